@@ -1,0 +1,5 @@
+package cli
+
+import "errors"
+
+func asExit(err error, target **ExitError) bool { return errors.As(err, target) }

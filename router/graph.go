@@ -1,0 +1,31 @@
+package router
+
+import (
+	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/scorer"
+)
+
+// Graph is the read view of a locality index the router needs.
+// *graphidx.Index satisfies it. Implementations must be safe for concurrent
+// readers and must not allocate on the lookup paths.
+type Graph interface {
+	scorer.Stats
+	// Lookup maps an entity name to its id.
+	Lookup(name string) (graphidx.EntityID, bool)
+	// Name returns the entity's name.
+	Name(id graphidx.EntityID) string
+	// Values returns the entity's value labels (ascending byte order). The
+	// slice belongs to the index and must not be modified.
+	Values(id graphidx.EntityID) []string
+	// ValueIndex maps a value label of the entity to its position.
+	ValueIndex(id graphidx.EntityID, label string) (int, bool)
+	// Neighbors returns the entity's neighbours in ascending id order.
+	Neighbors(id graphidx.EntityID) []graphidx.EntityID
+	// RankedNeighbors returns neighbours by descending pair support (ties by
+	// ascending id). It may be a prefix of the full list; see RankPrefix.
+	RankedNeighbors(id graphidx.EntityID) []graphidx.EntityID
+	// NumEntities is the number of entities.
+	NumEntities() int
+	// Generation identifies the index content (a fingerprint of its bytes).
+	Generation() uint64
+}

@@ -1,0 +1,13 @@
+package scorer
+
+import "github.com/hopwise/hopwise/graphidx"
+
+// Stats is the view of a locality index the scorer needs. *graphidx.Index
+// satisfies it; tests may use an in-memory implementation.
+type Stats interface {
+	// NumValues returns K for the entity.
+	NumValues(id graphidx.EntityID) int
+	// Pair returns the statistics of the ordered pair (a, b); ok is false when
+	// the pair was never observed together (or was pruned).
+	Pair(a, b graphidx.EntityID) (ps graphidx.PairStats, ok bool)
+}
