@@ -1,0 +1,300 @@
+package scorer
+
+import (
+	"fmt"
+	"gonum.org/v1/gonum/mat"
+
+	"github.com/hopwise/hopwise/graphidx"
+)
+
+// Bayes is the valued model: each local conditional P(b | a = r) gets a
+// symmetric Dirichlet(α) prior, updated by the pair counts, and answers carry
+// their posterior variance.
+//
+// # Local conditional
+//
+// For the ordered pair (a, b) with counts N[r][v], n_r = Σ_v N[r][v] and K_b
+// values of b, the posterior of row r is Dirichlet(N[r][·] + α), with mean
+// and covariance (Gelman et al., BDA 3rd ed. §3.4; Beta case §2.4)
+//
+//	θ̂_v       = (N[r][v] + α) / (n_r + K_b α)
+//	Cov(θ)    = (diag(θ̂) − θ̂θ̂ᵀ) / (n_r + K_b α + 1).
+//
+// # Direct estimate
+//
+// Dist = θ̂ for r = u and Err = Σ_v Var(θ_v) = (1 − Σ_v θ̂_v²)/(n_u + K_b α + 1).
+// A pair never observed (n_u = 0) gets the prior variance
+// (K−1)/(K(Kα+1)) — the largest error, never zero. Cost O(K_s·K_t) (the pair
+// support sums the whole table) plus one Stats lookup.
+//
+// # Chain estimate
+//
+// For s = b0 → b1 → … → bm → t = b(m+1), M_k is the K_(k−1)×K_k matrix of
+// posterior means of the pair (b(k−1), b(k)), and
+//
+//	p̂ = e_uᵀ M_1 M_2 … M_(m+1),
+//
+// which is exact when every bridge screens the earlier part of the chain off
+// from the later part (the Markov property). Products use gonum/mat.
+//
+// # Chain variance (delta method)
+//
+// With x_(k−1) = e_uᵀ M_1…M_(k−1), R_k = M_(k+1)…M_(m+1) (R_(m+1) = I) and
+// rows of all M_k independent a posteriori, the first-order (delta-method)
+// variance is
+//
+//	Var(p̂_v) ≈ Σ_k Σ_r x_(k−1)[r]² · R_k[:,v]ᵀ Σ_(k,r) R_k[:,v].
+//
+// Because Σ_(k,r) = (diag θ − θθᵀ)/c_(k,r) with θ = M_k[r,:], the quadratic
+// form is (Σ_j θ_j R_k[j,v]² − (Σ_j θ_j R_k[j,v])²)/c_(k,r), i.e.
+// ((M_k (R_k∘R_k))[r,v] − (M_k R_k)[r,v]²)/c_(k,r). A backward pass computes
+// M_k·[R_k | R_k∘R_k] = [R_(k−1) | M_k(R_k∘R_k)] with one gonum product per
+// edge, so no covariance matrix is formed. Then
+//
+//	Err_chain = Σ_v Var(p̂_v) + β·m.
+//
+// Cost O(Σ_k K_(k−1)·K_k·K_t + m·K²) = O(m·K³) time for K values per entity,
+// O(m·K²) workspace, one allocation (Dist). The linearisation neglects terms
+// of relative order 1/n (n the row counts); for rows with only a handful of
+// counts it can understate the variance, which the prior mass partly offsets.
+type Bayes struct {
+	alpha, beta, edgeN0 float64
+}
+
+// NewBayes returns the valued Dirichlet model. Options: WithAlpha (α > 0,
+// default 1), WithBeta (β ≥ 0, default DefaultBeta), WithEdgeN0 (> 0, default
+// 2α+1). WithV0 and WithN0 belong to the support model and are rejected with
+// ErrBadOption.
+func NewBayes(opts ...Option) (*Bayes, error) {
+	c, err := buildConfig(opts)
+	if err != nil {
+		return nil, err
+	}
+	if c.setV0 || c.setN0 {
+		return nil, fmt.Errorf("%w: WithV0/WithN0 apply to the support model only", ErrBadOption)
+	}
+	if !c.setEdgeN0 {
+		c.edgeN0 = 2*c.alpha + 1
+	}
+	return &Bayes{alpha: c.alpha, beta: c.beta, edgeN0: c.edgeN0}, nil
+}
+
+// Name returns "bayes".
+func (b *Bayes) Name() string { return "bayes" }
+
+// Alpha returns the Dirichlet pseudo-count α.
+func (b *Bayes) Alpha() float64 { return b.alpha }
+
+// HopBias returns β.
+func (b *Bayes) HopBias() float64 { return b.beta }
+
+// EdgeCost returns 1/2 / (support + n0), the posterior variance bound
+// Σ_v θ_v(1−θ_v)/(n + Kα + 1) ≤ (1/2)/(n + 2α + 1) of a binary row observed
+// support times, used as an additive per-edge proxy (DESIGN.md §4).
+// n0 defaults to 2α+1 (WithEdgeN0). O(1).
+func (b *Bayes) EdgeCost(support uint64) float64 {
+	return 0.5 / (float64(support) + b.edgeN0)
+}
+
+// Posterior appends to dst the parameters N[u][v] + α of the Dirichlet
+// posterior of P(t | s = u) and returns the extended slice. With K_t = 2 it
+// is the Beta(N[u][0]+α, N[u][1]+α) posterior of BDA §2.4, which gives
+// quantiles and intervals through gonum's stat/distuv. O(K_t).
+func (b *Bayes) Posterior(dst []float64, st Stats, s graphidx.EntityID, u int, t graphidx.EntityID) ([]float64, error) {
+	var ws Workspace
+	if err := ws.setPath(st, s, u, nil, t); err != nil {
+		return dst, err
+	}
+	ps, ok, err := pair(st, s, t, ws.ks[0], ws.ks[1])
+	if err != nil {
+		return dst, err
+	}
+	for v := 0; v < ws.ks[1]; v++ {
+		c := 0.0
+		if ok {
+			c = float64(ps.Count(u, v))
+		}
+		dst = append(dst, c+b.alpha)
+	}
+	return dst, nil
+}
+
+// Direct returns the posterior mean of P(t | s = u) and Err = Σ_v Var(θ_v)
+// (see the type documentation). Support is the pair support. A pair never
+// observed gets the prior: Dist uniform, Err = (K−1)/(K(Kα+1)), Support 0.
+// ws may be nil. O(K_s·K_t).
+func (b *Bayes) Direct(ws *Workspace, st Stats, s graphidx.EntityID, u int, t graphidx.EntityID) (Estimate, error) {
+	if st == nil {
+		return Estimate{}, fmt.Errorf("%w: nil Stats", ErrBadStats)
+	}
+	if s == t {
+		return Estimate{}, fmt.Errorf("%w: observed and target are both entity %d", ErrBadPath, s)
+	}
+	ks, err := numValues(st, s)
+	if err != nil {
+		return Estimate{}, err
+	}
+	kt, err := numValues(st, t)
+	if err != nil {
+		return Estimate{}, err
+	}
+	if u < 0 || u >= ks {
+		return Estimate{}, fmt.Errorf("%w: value %d of entity %d, which has %d values", ErrValueRange, u, s, ks)
+	}
+	ps, ok, err := pair(st, s, t, ks, kt)
+	if err != nil {
+		return Estimate{}, err
+	}
+	dist := make([]float64, kt)
+	ktA := float64(kt) * b.alpha
+	var n, sup uint64
+	if ok {
+		for v := range dist {
+			c := ps.Count(u, v)
+			n += uint64(c)
+			dist[v] = float64(c) + b.alpha
+		}
+		sup = ps.Support()
+	} else {
+		for v := range dist {
+			dist[v] = b.alpha
+		}
+	}
+	d := float64(n) + ktA
+	inv := 1 / d
+	sq := 0.0
+	for v := range dist {
+		dist[v] *= inv
+		sq += dist[v] * dist[v]
+	}
+	e := max(0, (1-sq)/(d+1))
+	return Estimate{Dist: dist, Err: e, Support: sup}, nil
+}
+
+// Chain returns p̂ = e_uᵀ M_1…M_(m+1) and Err = Σ_v Var(p̂_v) + β·m with the
+// delta-method variance (see the type documentation). Support is the smallest
+// edge support; an edge never observed contributes the prior and support 0.
+// ws may be nil (a temporary workspace is then allocated). O(m·K³).
+func (b *Bayes) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridges []graphidx.EntityID, t graphidx.EntityID) (Estimate, error) {
+	if ws == nil {
+		ws = new(Workspace)
+	}
+	if err := ws.setPath(st, s, u, bridges, t); err != nil {
+		return Estimate{}, err
+	}
+	minSup, err := ws.loadEdges(st, b.alpha)
+	if err != nil {
+		return Estimate{}, err
+	}
+	m := len(bridges)
+	kt := ws.ks[m+1]
+	dist := make([]float64, kt)
+	vr := growF(ws.vr, kt)
+	ws.vr = vr
+	clear(vr)
+
+	if m == 0 {
+		row := ws.theta[u*kt : u*kt+kt]
+		c := ws.cinv[u]
+		for v, th := range row {
+			dist[v] = th
+			vr[v] = c * (th - th*th)
+		}
+		return Estimate{Dist: dist, Err: sumClamped(vr), Support: minSup}, nil
+	}
+
+	// Forward pass: x_1 = row u of M_1, x_k = x_(k−1) M_k for k = 2..m.
+	ws.xoff = growI(ws.xoff, m+1)
+	xn := 0
+	for k := 1; k <= m; k++ {
+		ws.xoff[k-1] = xn
+		xn += ws.ks[k]
+	}
+	ws.xoff[m] = xn
+	ws.x = growF(ws.x, xn)
+	k1 := ws.ks[1]
+	copy(ws.x[:k1], ws.theta[u*k1:u*k1+k1])
+	for k := 2; k <= m; k++ {
+		kp, kc := ws.ks[k-1], ws.ks[k]
+		xp := dense(&ws.hA, ws.x[ws.xoff[k-2]:], 1, kp, kp)
+		mk := dense(&ws.hB, ws.theta[ws.toff[k-1]:], kp, kc, kc)
+		dense(&ws.hC, ws.x[ws.xoff[k-1]:], 1, kc, kc).Mul(xp, mk)
+	}
+
+	// Backward pass. P holds [R_(k−1) | M_k(R_k∘R_k)] with stride 2K_t and
+	// is turned into B_(k−1) = [R_(k−1) | R_(k−1)∘R_(k−1)] in place.
+	maxRows := 0
+	for k := 1; k <= m; k++ {
+		maxRows = max(maxRows, ws.ks[k])
+	}
+	w2 := 2 * kt
+	ws.bufA = growF(ws.bufA, maxRows*w2)
+	ws.bufB = growF(ws.bufB, maxRows*w2)
+	cur, nxt := ws.bufA, ws.bufB
+
+	// k = m+1: R_(m+1) = I, so P = [M_(m+1) | M_(m+1)].
+	{
+		rows := ws.ks[m]
+		th := ws.theta[ws.toff[m]:ws.toff[m+1]]
+		ci := ws.cinv[ws.coff[m]:ws.coff[m+1]]
+		x := ws.x[ws.xoff[m-1]:ws.xoff[m]]
+		for r := 0; r < rows; r++ {
+			wr := x[r] * x[r] * ci[r]
+			src := th[r*kt : r*kt+kt]
+			dst := cur[r*w2 : r*w2+w2]
+			for v, q := range src {
+				sq := q * q
+				vr[v] += wr * (q - sq)
+				dst[v] = q
+				dst[kt+v] = sq
+			}
+		}
+	}
+	for k := m; k >= 1; k-- {
+		kp, kc := ws.ks[k-1], ws.ks[k]
+		var mk *mat.Dense
+		var x []float64
+		ci := ws.cinv[ws.coff[k-1]:ws.coff[k]]
+		rows := kp
+		if k == 1 {
+			// Only row u matters: x_0 = e_u.
+			mk = dense(&ws.hA, ws.theta[u*kc:], 1, kc, kc)
+			ci = ci[u : u+1]
+			rows = 1
+		} else {
+			mk = dense(&ws.hA, ws.theta[ws.toff[k-1]:], kp, kc, kc)
+			x = ws.x[ws.xoff[k-2]:ws.xoff[k-1]]
+		}
+		bk := dense(&ws.hB, cur, kc, w2, w2)
+		dense(&ws.hC, nxt, rows, w2, w2).Mul(mk, bk)
+		for r := 0; r < rows; r++ {
+			wr := ci[r]
+			if x != nil {
+				wr *= x[r] * x[r]
+			}
+			p := nxt[r*w2 : r*w2+w2]
+			for v := 0; v < kt; v++ {
+				rv := p[v]
+				sq := rv * rv
+				vr[v] += wr * (p[kt+v] - sq)
+				p[kt+v] = sq
+			}
+		}
+		cur, nxt = nxt, cur
+	}
+	copy(dist, cur[:kt]) // row u of R_0 = M_1 R_1 is p̂
+	e := sumClamped(vr) + b.beta*float64(m)
+	return Estimate{Dist: dist, Err: e, Support: minSup}, nil
+}
+
+// sumClamped returns Σ max(0, x_i); each term is a variance that rounding
+// may push a hair below zero.
+func sumClamped(xs []float64) float64 {
+	s := 0.0
+	for _, x := range xs {
+		if x > 0 {
+			s += x
+		}
+	}
+	return s
+}

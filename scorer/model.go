@@ -1,0 +1,45 @@
+package scorer
+
+import "github.com/hopwise/hopwise/graphidx"
+
+// Estimate is a model's answer for the target entity given the observed one.
+type Estimate struct {
+	// Dist is the estimated distribution over the target's values, indexed
+	// like the target's value labels. It is freshly allocated per call and
+	// owned by the caller.
+	Dist []float64
+	// Err is the expected squared error of Dist summed over the target's
+	// values (for the Bayes model: Σ_v Var(p̂_v), plus β·m for a chain).
+	Err float64
+	// Support is the pair support for a direct estimate, and the smallest
+	// edge support along the chain for a chained one (0 when some edge was
+	// never observed).
+	Support uint64
+}
+
+// Model estimates a target's distribution, directly or through bridges,
+// together with the expected error of that estimate.
+//
+// Implementations are immutable and safe for concurrent use; the Workspace
+// argument carries per-call scratch space and must not be shared between
+// goroutines (nil means "allocate a temporary one").
+type Model interface {
+	// Direct estimates P(t | s = u) from the pair (s, t) alone.
+	Direct(ws *Workspace, st Stats, s graphidx.EntityID, u int, t graphidx.EntityID) (Estimate, error)
+	// Chain estimates P(t | s = u) through the ordered bridges b1..bm
+	// (m = len(bridges) may be 0, which gives the direct estimate with the
+	// chain error model).
+	Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridges []graphidx.EntityID, t graphidx.EntityID) (Estimate, error)
+	// EdgeCost is an additive per-edge error proxy used to generate chain
+	// candidates cheaply (DESIGN.md §4). It is decreasing in support.
+	EdgeCost(support uint64) float64
+	// HopBias is β, the squared bias charged per bridge.
+	HopBias() float64
+	// Name identifies the model in traces and reports.
+	Name() string
+}
+
+var (
+	_ Model = (*Bayes)(nil)
+	_ Model = (*Support)(nil)
+)

@@ -1,0 +1,122 @@
+package scorer
+
+import (
+	"fmt"
+	"math"
+)
+
+// Default parameter values.
+//
+// DefaultBeta, DefaultV0 and DefaultN0 are provisional: they are meant to be
+// replaced by values fitted on the synthetic worlds (DESIGN.md §7, issue 3
+// item 5). Until then they are order-of-magnitude choices stated here so that
+// nothing is hidden.
+const (
+	// DefaultAlpha is the Dirichlet pseudo-count α: the uniform (Bayes–Laplace)
+	// prior, Gelman et al., BDA 3rd ed. §2.4.
+	DefaultAlpha = 1.0
+	// DefaultBeta is the per-hop squared-bias term β (provisional).
+	DefaultBeta = 1e-3
+	// DefaultV0 is the support model's error numerator v0 (provisional):
+	// 1/4 is the largest variance of a Bernoulli variable (common practice).
+	DefaultV0 = 0.25
+	// DefaultN0 is the support model's pseudo-support n0 (provisional).
+	DefaultN0 = 1.0
+)
+
+// Option configures a model constructor. Options that do not apply to the
+// model being built make the constructor fail with ErrBadOption, so a typo in
+// a configuration does not pass unnoticed. A nil Option is ignored.
+type Option interface {
+	apply(*config) error
+}
+
+type optionFunc func(*config) error
+
+func (f optionFunc) apply(c *config) error { return f(c) }
+
+type config struct {
+	alpha, beta, v0, n0, edgeN0       float64
+	setV0, setN0, setEdgeN0, setAlpha bool
+	setBeta                           bool
+}
+
+func defaultConfig() config {
+	return config{alpha: DefaultAlpha, beta: DefaultBeta, v0: DefaultV0, n0: DefaultN0}
+}
+
+func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
+
+// WithAlpha sets the Dirichlet pseudo-count α (finite, > 0). Default 1.
+// For the Support model it only smooths the reported Dist.
+func WithAlpha(alpha float64) Option {
+	return optionFunc(func(c *config) error {
+		if !finite(alpha) || alpha <= 0 {
+			return fmt.Errorf("%w: WithAlpha(%v): α must be finite and > 0", ErrBadOption, alpha)
+		}
+		c.alpha, c.setAlpha = alpha, true
+		return nil
+	})
+}
+
+// WithBeta sets the per-hop squared-bias term β (finite, ≥ 0) added as β·m to
+// the error of a chain with m bridges. Default DefaultBeta.
+func WithBeta(beta float64) Option {
+	return optionFunc(func(c *config) error {
+		if !finite(beta) || beta < 0 {
+			return fmt.Errorf("%w: WithBeta(%v): β must be finite and ≥ 0", ErrBadOption, beta)
+		}
+		c.beta, c.setBeta = beta, true
+		return nil
+	})
+}
+
+// WithV0 sets the support model's error numerator v0 (finite, > 0).
+// Support model only.
+func WithV0(v0 float64) Option {
+	return optionFunc(func(c *config) error {
+		if !finite(v0) || v0 <= 0 {
+			return fmt.Errorf("%w: WithV0(%v): v0 must be finite and > 0", ErrBadOption, v0)
+		}
+		c.v0, c.setV0 = v0, true
+		return nil
+	})
+}
+
+// WithN0 sets the support model's pseudo-support n0 (finite, > 0, so that an
+// edge of support 0 has the finite error v0/n0). Support model only.
+func WithN0(n0 float64) Option {
+	return optionFunc(func(c *config) error {
+		if !finite(n0) || n0 <= 0 {
+			return fmt.Errorf("%w: WithN0(%v): n0 must be finite and > 0", ErrBadOption, n0)
+		}
+		c.n0, c.setN0 = n0, true
+		return nil
+	})
+}
+
+// WithEdgeN0 sets the pseudo-support n0 of the Bayes model's candidate-
+// generation proxy EdgeCost(s) = 1/2 / (s + n0) (finite, > 0). Default 2α+1.
+// Bayes model only (the support model's EdgeCost is its own edge error).
+func WithEdgeN0(n0 float64) Option {
+	return optionFunc(func(c *config) error {
+		if !finite(n0) || n0 <= 0 {
+			return fmt.Errorf("%w: WithEdgeN0(%v): n0 must be finite and > 0", ErrBadOption, n0)
+		}
+		c.edgeN0, c.setEdgeN0 = n0, true
+		return nil
+	})
+}
+
+func buildConfig(opts []Option) (config, error) {
+	c := defaultConfig()
+	for _, o := range opts {
+		if o == nil {
+			continue
+		}
+		if err := o.apply(&c); err != nil {
+			return config{}, err
+		}
+	}
+	return c, nil
+}

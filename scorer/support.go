@@ -1,0 +1,121 @@
+package scorer
+
+import (
+	"fmt"
+
+	"github.com/hopwise/hopwise/graphidx"
+)
+
+// Support is the presence-only model (DESIGN.md §3) for corpora that record
+// only which entities occur together. Each edge is judged by its support
+// alone:
+//
+//	err(edge)  = v0 / (support + n0)
+//	err(chain) = Σ_edges err(edge) + β·m,
+//
+// and a direct answer is a chain of one edge with m = 0. v0, n0 and β are
+// calibration constants (WithV0, WithN0, WithBeta). The reported Dist is
+// the same posterior-mean product as the Bayes model's (smoothed by α,
+// WithAlpha), which for presence-only entities (K = 1) is simply [1].
+// Cost: O(Σ_k K_(k−1)·K_k) per call plus one Stats lookup per edge; one
+// allocation (Dist).
+type Support struct {
+	alpha, beta, v0, n0 float64
+}
+
+// NewSupport returns the presence-only model. Options: WithV0 (> 0, default
+// DefaultV0), WithN0 (> 0, default DefaultN0), WithBeta (≥ 0, default
+// DefaultBeta), WithAlpha (> 0, default 1; smooths Dist only). WithEdgeN0
+// belongs to the Bayes model and is rejected with ErrBadOption.
+func NewSupport(opts ...Option) (*Support, error) {
+	c, err := buildConfig(opts)
+	if err != nil {
+		return nil, err
+	}
+	if c.setEdgeN0 {
+		return nil, fmt.Errorf("%w: WithEdgeN0 applies to the Bayes model only (the support model's edge cost is v0/(support+n0))", ErrBadOption)
+	}
+	return &Support{alpha: c.alpha, beta: c.beta, v0: c.v0, n0: c.n0}, nil
+}
+
+// Name returns "support".
+func (m *Support) Name() string { return "support" }
+
+// HopBias returns β.
+func (m *Support) HopBias() float64 { return m.beta }
+
+// EdgeCost returns v0/(support + n0), the model's own edge error. O(1).
+func (m *Support) EdgeCost(support uint64) float64 {
+	return m.v0 / (float64(support) + m.n0)
+}
+
+// Direct returns Err = v0/(support + n0) for the pair (s, t), the
+// posterior-mean Dist of P(t | s = u) and the pair support. ws may be nil.
+func (m *Support) Direct(ws *Workspace, st Stats, s graphidx.EntityID, u int, t graphidx.EntityID) (Estimate, error) {
+	return m.Chain(ws, st, s, u, nil, t)
+}
+
+// Chain returns Err = Σ_edges v0/(support_e + n0) + β·m, the product of
+// posterior means as Dist, and the smallest edge support. ws may be nil.
+func (m *Support) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridges []graphidx.EntityID, t graphidx.EntityID) (Estimate, error) {
+	if ws == nil {
+		ws = new(Workspace)
+	}
+	if err := ws.setPath(st, s, u, bridges, t); err != nil {
+		return Estimate{}, err
+	}
+	edges := len(bridges) + 1
+	ws.toff = growI(ws.toff, edges+1)
+	ws.coff = growI(ws.coff, edges+1)
+	tn, cn := 0, 0
+	for k := 0; k < edges; k++ {
+		ws.toff[k], ws.coff[k] = tn, cn
+		tn += ws.ks[k] * ws.ks[k+1]
+		cn += ws.ks[k]
+	}
+	ws.toff[edges], ws.coff[edges] = tn, cn
+	ws.theta = growF(ws.theta, tn)
+	ws.cinv = growF(ws.cinv, cn)
+	minSup := ^uint64(0)
+	e := 0.0
+	for k := 0; k < edges; k++ {
+		ka, kb := ws.ks[k], ws.ks[k+1]
+		ps, ok, err := pair(st, ws.path[k], ws.path[k+1], ka, kb)
+		if err != nil {
+			return Estimate{}, err
+		}
+		sup := fillMeans(ws.theta[ws.toff[k]:ws.toff[k+1]], ws.cinv[ws.coff[k]:ws.coff[k+1]], ps, ok, ka, kb, m.alpha)
+		minSup = min(minSup, sup)
+		e += m.EdgeCost(sup)
+	}
+	e += m.beta * float64(len(bridges))
+
+	kt := ws.ks[edges]
+	dist := make([]float64, kt)
+	k1 := ws.ks[1]
+	if edges == 1 {
+		copy(dist, ws.theta[u*k1:u*k1+k1])
+		return Estimate{Dist: dist, Err: e, Support: minSup}, nil
+	}
+	// Forward product x_k = x_(k−1) M_k, ping-ponging between two rows of
+	// bufA and writing the last product into dist.
+	kmax := 0
+	for _, k := range ws.ks {
+		kmax = max(kmax, k)
+	}
+	ws.bufA = growF(ws.bufA, 2*kmax)
+	cur, nxt := ws.bufA[:kmax], ws.bufA[kmax:]
+	copy(cur, ws.theta[u*k1:u*k1+k1])
+	for k := 2; k <= edges; k++ {
+		kp, kc := ws.ks[k-1], ws.ks[k]
+		out := nxt
+		if k == edges {
+			out = dist
+		}
+		xp := dense(&ws.hA, cur, 1, kp, kp)
+		mk := dense(&ws.hB, ws.theta[ws.toff[k-1]:], kp, kc, kc)
+		dense(&ws.hC, out, 1, kc, kc).Mul(xp, mk)
+		cur, nxt = nxt, cur
+	}
+	return Estimate{Dist: dist, Err: e, Support: minSup}, nil
+}

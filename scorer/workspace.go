@@ -1,0 +1,180 @@
+package scorer
+
+import (
+	"fmt"
+
+	"github.com/hopwise/hopwise/graphidx"
+	"gonum.org/v1/gonum/blas/blas64"
+	"gonum.org/v1/gonum/mat"
+)
+
+// Workspace holds the scratch buffers of Direct and Chain calls so that
+// repeated calls do not allocate beyond the returned Dist. Buffers grow to the
+// largest chain seen and are then reused. A Workspace must not be used by two
+// goroutines at once; give each goroutine its own (or keep them in a
+// sync.Pool). The zero value is ready to use.
+type Workspace struct {
+	path []graphidx.EntityID // s, b1..bm, t
+	ks   []int               // K of each path node
+
+	theta []float64 // posterior-mean matrices M_1..M_(m+1), row-major, concatenated
+	toff  []int     // toff[k-1] = offset of M_k in theta
+	cinv  []float64 // 1/(n_r + K_k α + 1) for each row r of each M_k, concatenated
+	coff  []int     // coff[k-1] = offset of M_k's rows in cinv
+
+	x    []float64 // forward row vectors x_1..x_m, concatenated
+	xoff []int     // xoff[k-1] = offset of x_k
+
+	bufA, bufB []float64 // backward products [R | ·] (K_(k−1) × 2K_t)
+	vr         []float64 // Σ_v accumulators, length K_t
+
+	// gonum headers over the buffers above (set with SetRawMatrix, so that
+	// no mat.Dense is allocated per call).
+	hA, hB, hC mat.Dense
+}
+
+// NewWorkspace returns an empty workspace. It is equivalent to new(Workspace).
+func NewWorkspace() *Workspace { return new(Workspace) }
+
+func growF(b []float64, n int) []float64 {
+	if cap(b) < n {
+		return make([]float64, n, n+n/2)
+	}
+	return b[:n]
+}
+
+func growI(b []int, n int) []int {
+	if cap(b) < n {
+		return make([]int, n, n+n/2)
+	}
+	return b[:n]
+}
+
+// numValues validates and returns K for id.
+func numValues(st Stats, id graphidx.EntityID) (int, error) {
+	k := st.NumValues(id)
+	if k < 1 {
+		return 0, fmt.Errorf("%w: entity %d", ErrUnknownEntity, id)
+	}
+	if k > graphidx.MaxValues {
+		return 0, fmt.Errorf("%w: entity %d has %d values, above the limit %d", ErrBadStats, id, k, graphidx.MaxValues)
+	}
+	return k, nil
+}
+
+// pair looks up (a, b) and checks the answer against the request.
+func pair(st Stats, a, b graphidx.EntityID, ka, kb int) (graphidx.PairStats, bool, error) {
+	ps, ok := st.Pair(a, b)
+	if !ok {
+		return ps, false, nil
+	}
+	if ps.A != a || ps.B != b || ps.KA != ka || ps.KB != kb {
+		return ps, false, fmt.Errorf("%w: Pair(%d, %d) returned pair (%d, %d) of size %d×%d, want %d×%d",
+			ErrBadStats, a, b, ps.A, ps.B, ps.KA, ps.KB, ka, kb)
+	}
+	return ps, true, nil
+}
+
+// setPath records s, bridges, t, checks that no entity repeats (O(L²) for a
+// path of L nodes; chains are short) and that u is a value of s.
+func (ws *Workspace) setPath(st Stats, s graphidx.EntityID, u int, bridges []graphidx.EntityID, t graphidx.EntityID) error {
+	if st == nil {
+		return fmt.Errorf("%w: nil Stats", ErrBadStats)
+	}
+	n := len(bridges) + 2
+	ws.path = append(ws.path[:0], s)
+	ws.path = append(ws.path, bridges...)
+	ws.path = append(ws.path, t)
+	ws.ks = growI(ws.ks, n)
+	for i, id := range ws.path {
+		for _, prev := range ws.path[:i] {
+			if prev == id {
+				return fmt.Errorf("%w: entity %d appears twice in path %v", ErrBadPath, id, ws.path)
+			}
+		}
+		k, err := numValues(st, id)
+		if err != nil {
+			return err
+		}
+		ws.ks[i] = k
+	}
+	if u < 0 || u >= ws.ks[0] {
+		return fmt.Errorf("%w: value %d of entity %d, which has %d values", ErrValueRange, u, s, ws.ks[0])
+	}
+	return nil
+}
+
+// loadEdges fills the posterior-mean matrices M_k and the row factors
+// 1/(n_r + K_k α + 1) for every edge of the path set by setPath, and returns
+// the smallest edge support. An edge never observed gets the prior (all-zero
+// counts). Cost O(Σ_k K_(k−1)·K_k) plus the Stats lookups.
+func (ws *Workspace) loadEdges(st Stats, alpha float64) (uint64, error) {
+	edges := len(ws.path) - 1
+	ws.toff = growI(ws.toff, edges+1)
+	ws.coff = growI(ws.coff, edges+1)
+	tn, cn := 0, 0
+	for k := 0; k < edges; k++ {
+		ws.toff[k], ws.coff[k] = tn, cn
+		tn += ws.ks[k] * ws.ks[k+1]
+		cn += ws.ks[k]
+	}
+	ws.toff[edges], ws.coff[edges] = tn, cn
+	ws.theta = growF(ws.theta, tn)
+	ws.cinv = growF(ws.cinv, cn)
+
+	minSup := ^uint64(0)
+	for k := 0; k < edges; k++ {
+		ka, kb := ws.ks[k], ws.ks[k+1]
+		ps, ok, err := pair(st, ws.path[k], ws.path[k+1], ka, kb)
+		if err != nil {
+			return 0, err
+		}
+		th := ws.theta[ws.toff[k]:ws.toff[k+1]]
+		ci := ws.cinv[ws.coff[k]:ws.coff[k+1]]
+		sup := fillMeans(th, ci, ps, ok, ka, kb, alpha)
+		minSup = min(minSup, sup)
+	}
+	return minSup, nil
+}
+
+// fillMeans writes θ_r = (N[r][·] + α)/(n_r + K_b α) for every row r into th
+// (ka×kb, row-major) and 1/(n_r + K_b α + 1) into ci; it returns the pair
+// support Σ_r n_r. ok=false means all-zero counts.
+func fillMeans(th, ci []float64, ps graphidx.PairStats, ok bool, ka, kb int, alpha float64) uint64 {
+	kbA := float64(kb) * alpha
+	if !ok {
+		inv := 1 / float64(kb)
+		for i := range th {
+			th[i] = inv
+		}
+		c := 1 / (kbA + 1)
+		for i := range ci {
+			ci[i] = c
+		}
+		return 0
+	}
+	var sup uint64
+	for r := 0; r < ka; r++ {
+		row := th[r*kb : r*kb+kb]
+		var n uint64
+		for v := range row {
+			c := ps.Count(r, v)
+			n += uint64(c)
+			row[v] = float64(c) + alpha
+		}
+		d := float64(n) + kbA
+		inv := 1 / d
+		for v := range row {
+			row[v] *= inv
+		}
+		ci[r] = 1 / (d + 1)
+		sup += n
+	}
+	return sup
+}
+
+// dense points h at data as an r×c row-major matrix with the given stride.
+func dense(h *mat.Dense, data []float64, r, c, stride int) *mat.Dense {
+	h.SetRawMatrix(blas64.General{Rows: r, Cols: c, Stride: stride, Data: data[:(r-1)*stride+c]})
+	return h
+}
