@@ -1,0 +1,766 @@
+package graphidx
+
+import (
+	"encoding/binary"
+	"fmt"
+	"hash/crc32"
+	"io"
+	"math"
+	"os"
+	"slices"
+	"strings"
+	"sync"
+	"sync/atomic"
+	"unsafe"
+)
+
+// OpenOption configures Open.
+type OpenOption interface{ applyOpen(*openConfig) }
+
+type openConfig struct {
+	lazy   bool
+	noMmap bool
+}
+
+type openOptionFunc func(*openConfig)
+
+func (f openOptionFunc) applyOpen(c *openConfig) { f(c) }
+
+// WithLazyVerify makes Open check only the magic, version, header checksum
+// and section table, in O(1) plus the small label tables, instead of every
+// section checksum and structural invariant in O(file size). Use it to open
+// large indexes fast and call (*Index).Verify when convenient. Readers of a
+// lazily opened index still never read out of bounds or panic, even on a
+// damaged file: a damaged region gives empty or wrong answers until Verify
+// reports it.
+func WithLazyVerify() OpenOption { return openOptionFunc(func(c *openConfig) { c.lazy = true }) }
+
+// WithoutMmap reads the whole file into memory instead of mapping it. The
+// read API is the same. Platforms without mmap support always read.
+func WithoutMmap() OpenOption { return openOptionFunc(func(c *openConfig) { c.noMmap = true }) }
+
+// Index is an opened locality index. All read methods are safe for
+// concurrent use, allocate nothing (except Name and the Verify pass), and
+// never panic on any input id: out-of-range ids give zero values.
+//
+// Slices and PairStats returned by an Index alias its memory map: they are
+// valid until Close and must not be modified. Strings (Name, Values) are
+// copies and stay valid forever.
+//
+// Close contract: the caller closes an Index only after every reader has
+// finished with it (the router swaps in a new index first and closes the old
+// one once its in-flight queries are done). Close is idempotent. Methods
+// called after Close return zero values (NumEntities()==0, Pair ok=false,
+// Verify returns ErrClosed) and do not crash; but slices obtained before
+// Close must not be read after it.
+type Index struct {
+	path    string
+	size    int64
+	v       atomic.Pointer[view]
+	mu      sync.Mutex
+	closed  bool
+	release func() error
+}
+
+// view is the decoded, immutable content of one open file.
+type view struct {
+	closed     bool
+	data       []byte
+	h          header
+	uniform    bool
+	k          int // uniform K
+	n          uint64
+	nameOffs   []uint64
+	nameBytes  []byte
+	labels     []string   // copied
+	sets       [][]string // value labels per value set, sub-slices of setFlat
+	vsetOffs   []uint32
+	vsetLabels []uint32
+	entVSet    []uint32
+	margOffs   []uint64
+	marg       []uint64
+	nbrOffs    []uint64
+	nbrs       []uint32
+	pairBase   []uint64
+	pairOffs   []uint64
+	counts     []uint32
+	rankOffs   []uint64
+	rank       []uint32
+}
+
+var closedView = &view{closed: true}
+
+// Open opens the locality index at path, memory-mapped and zero-copy.
+//
+// Validation happens in this order, each failure with its own sentinel
+// wrapped in a *CorruptionError naming the path: magic (ErrBadMagic),
+// version (ErrVersion), header checksum (ErrChecksum), header fields, size
+// and section table (ErrCorrupt, ErrSectionTable), then — unless
+// WithLazyVerify — every section checksum (ErrChecksum) and the structural
+// invariants (ErrCorrupt). A file with any single byte changed is rejected.
+//
+// Cost: O(1) + O(labels + value sets) with WithLazyVerify; O(file size +
+// E·log(deg)) by default (E directed edges).
+func Open(path string, opts ...OpenOption) (*Index, error) {
+	var cfg openConfig
+	for _, o := range opts {
+		if o != nil {
+			o.applyOpen(&cfg)
+		}
+	}
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, fmt.Errorf("graphidx: open: %w", err)
+	}
+	defer f.Close()
+	st, err := f.Stat()
+	if err != nil {
+		return nil, fmt.Errorf("graphidx: stat %s: %w", path, err)
+	}
+	size := st.Size()
+	if size > math.MaxInt || size < 0 {
+		return nil, &CorruptionError{Path: path, Err: ErrCorrupt, Detail: fmt.Sprintf("file size %d not addressable", size)}
+	}
+	var (
+		data    []byte
+		release = func() error { return nil }
+	)
+	switch {
+	case size < headerSize || cfg.noMmap || !mmapSupported:
+		data, err = readAligned(f, int(size))
+	default:
+		data, release, err = mapFile(f, int(size))
+	}
+	if err != nil {
+		return nil, err
+	}
+	v, err := parse(data, !cfg.lazy)
+	if err != nil {
+		_ = release()
+		if ce, ok := err.(*CorruptionError); ok {
+			ce.Path = path
+		}
+		return nil, err
+	}
+	x := &Index{path: path, size: size, release: release}
+	x.v.Store(v)
+	return x, nil
+}
+
+// readAligned reads size bytes of f into 8-aligned memory.
+func readAligned(f *os.File, size int) ([]byte, error) {
+	words := make([]uint64, (size+7)/8)
+	var b []byte
+	if len(words) > 0 {
+		b = unsafe.Slice((*byte)(unsafe.Pointer(&words[0])), len(words)*8)[:size]
+	}
+	if _, err := io.ReadFull(io.NewSectionReader(f, 0, int64(size)), b); err != nil {
+		return nil, fmt.Errorf("graphidx: read %s: %w", f.Name(), err)
+	}
+	return b, nil
+}
+
+// Close releases the memory map. It is safe to call more than once; see the
+// Index documentation for the contract with concurrent readers.
+func (x *Index) Close() error {
+	x.mu.Lock()
+	defer x.mu.Unlock()
+	if x.closed {
+		return nil
+	}
+	x.closed = true
+	x.v.Store(closedView)
+	return x.release()
+}
+
+// Verify checks every section checksum, the padding and every structural
+// invariant, in O(file size + E·log(deg)). It returns nil, ErrClosed, or a
+// *CorruptionError. It is safe to call concurrently with readers.
+func (x *Index) Verify() error {
+	v := x.v.Load()
+	if v.closed {
+		return ErrClosed
+	}
+	if err := v.verifyFull(); err != nil {
+		if ce, ok := err.(*CorruptionError); ok {
+			ce.Path = x.path
+		}
+		return err
+	}
+	return nil
+}
+
+// hostLittleEndian is true when zero-copy integer slices can be used.
+var hostLittleEndian = binary.NativeEndian.Uint16([]byte{1, 0}) == 1
+
+func asU64s(b []byte) []uint64 {
+	if len(b) < 8 {
+		return nil
+	}
+	if hostLittleEndian {
+		return unsafe.Slice((*uint64)(unsafe.Pointer(unsafe.SliceData(b))), len(b)/8)
+	}
+	out := make([]uint64, len(b)/8)
+	for i := range out {
+		out[i] = le.Uint64(b[8*i:])
+	}
+	return out
+}
+
+func asU32s(b []byte) []uint32 {
+	if len(b) < 4 {
+		return nil
+	}
+	if hostLittleEndian {
+		return unsafe.Slice((*uint32)(unsafe.Pointer(unsafe.SliceData(b))), len(b)/4)
+	}
+	out := make([]uint32, len(b)/4)
+	for i := range out {
+		out[i] = le.Uint32(b[4*i:])
+	}
+	return out
+}
+
+// parse validates data (header always; everything when full) and decodes the
+// sections into a view.
+func parse(data []byte, full bool) (*view, error) {
+	if len(data) > 0 && uintptr(unsafe.Pointer(&data[0]))%8 != 0 {
+		words := make([]uint64, (len(data)+7)/8)
+		b := unsafe.Slice((*byte)(unsafe.Pointer(&words[0])), len(words)*8)[:len(data)]
+		copy(b, data)
+		data = b
+	}
+	// 1. Magic.
+	if len(data) < len(Magic) {
+		if strings.HasPrefix(Magic, string(data)) {
+			return nil, corruptf(ErrCorrupt, "truncated: %d bytes, shorter than the magic", len(data))
+		}
+		return nil, corruptf(ErrBadMagic, "file starts with %q", data)
+	}
+	if string(data[:len(Magic)]) != Magic {
+		return nil, corruptf(ErrBadMagic, "file starts with %q, want %q", data[:len(Magic)], Magic)
+	}
+	// 2. Version.
+	if len(data) < offVersion+4 {
+		return nil, corruptf(ErrCorrupt, "truncated: %d bytes, no version field", len(data))
+	}
+	if ver := le.Uint32(data[offVersion:]); ver != FormatVersion {
+		return nil, corruptf(ErrVersion, "file has format version %d, this build reads %d", ver, FormatVersion)
+	}
+	// 3. Header checksum.
+	if len(data) < headerSize {
+		return nil, corruptf(ErrCorrupt, "truncated: %d bytes, shorter than the %d-byte header", len(data), headerSize)
+	}
+	if got, want := crc32.Checksum(data[:headerCRCOffset], castagnoli), le.Uint32(data[headerCRCOffset:]); got != want {
+		return nil, corruptf(ErrChecksum, "header CRC-32C is %08x, stored %08x", got, want)
+	}
+	// 4. Header fields and section table.
+	h := decodeHeader(data)
+	v := &view{data: data, h: h}
+	if err := v.checkHeader(uint64(len(data))); err != nil {
+		return nil, err
+	}
+	// 5. Section checksums and padding.
+	if full {
+		if err := v.checkSums(); err != nil {
+			return nil, err
+		}
+	}
+	v.decode()
+	// Small tables are always checked: they are O(labels + value sets).
+	if err := v.checkLabels(); err != nil {
+		return nil, err
+	}
+	// 6. Structural invariants.
+	if full {
+		if err := v.checkStructure(); err != nil {
+			return nil, err
+		}
+	}
+	return v, nil
+}
+
+// checkHeader validates the checksummed header fields and the section table
+// against the file size.
+func (v *view) checkHeader(size uint64) error {
+	h := &v.h
+	if got := le.Uint32(v.data[offHeaderSize:]); got != headerSize {
+		return corruptf(ErrCorrupt, "header size field %d, want %d", got, headerSize)
+	}
+	if got := le.Uint32(v.data[offNumSect:]); got != numSections {
+		return corruptf(ErrCorrupt, "section count %d, want %d", got, numSections)
+	}
+	if r := le.Uint32(v.data[offReserved:]); r != 0 {
+		return corruptf(ErrCorrupt, "reserved header field is %d, want 0", r)
+	}
+	if h.Flags&^knownFlags != 0 {
+		return corruptf(ErrCorrupt, "unknown header flags %#x", h.Flags&^knownFlags)
+	}
+	if h.FileSize != size {
+		if size < h.FileSize {
+			return corruptf(ErrCorrupt, "truncated: header says %d bytes, file has %d", h.FileSize, size)
+		}
+		return corruptf(ErrCorrupt, "%d trailing bytes after the %d the header declares", size-h.FileSize, h.FileSize)
+	}
+	if g := generationOf(h); g != h.Generation {
+		return corruptf(ErrCorrupt, "generation %016x does not match the content fingerprint %016x", h.Generation, g)
+	}
+	if h.RankPrefix < 1 || h.RankPrefix > MaxRankPrefix {
+		return corruptf(ErrCorrupt, "rank prefix %d out of range", h.RankPrefix)
+	}
+	// Bound every count by the file size before multiplying.
+	switch {
+	case h.Entities > math.MaxUint32 || h.Entities > size/8:
+		return corruptf(ErrCorrupt, "entity count %d impossible for a %d-byte file", h.Entities, size)
+	case h.Pairs > size/8 || h.Edges != 2*h.Pairs:
+		return corruptf(ErrCorrupt, "pair count %d / edge count %d impossible for a %d-byte file", h.Pairs, h.Edges, size)
+	case h.Values > size/8 || h.Values < h.Entities || h.Values > h.Entities*MaxValues:
+		return corruptf(ErrCorrupt, "value count %d impossible for %d entities", h.Values, h.Entities)
+	case h.Labels > size/8 || h.VSets > size/4 || h.VSets > h.Entities || (h.Entities > 0 && (h.Labels == 0 || h.VSets == 0)):
+		return corruptf(ErrCorrupt, "label count %d / value-set count %d impossible for %d entities", h.Labels, h.VSets, h.Entities)
+	case h.Contexts == 0 && h.Pairs > 0:
+		return corruptf(ErrCorrupt, "%d pairs over zero contexts", h.Pairs)
+	}
+	v.n = h.Entities
+	v.uniform = h.Flags&flagUniformK != 0
+	if v.uniform {
+		if h.UniformK < 1 || h.UniformK > MaxValues || h.Entities == 0 {
+			return corruptf(ErrCorrupt, "uniform K %d invalid (entities %d)", h.UniformK, h.Entities)
+		}
+		if h.Values != h.Entities*uint64(h.UniformK) {
+			return corruptf(ErrCorrupt, "value count %d, want %d×%d", h.Values, h.Entities, h.UniformK)
+		}
+		v.k = int(h.UniformK)
+	} else if h.UniformK != 0 {
+		return corruptf(ErrCorrupt, "uniform K %d set without the uniform flag", h.UniformK)
+	}
+
+	n, p := h.Entities, h.Pairs
+	const anyLen = math.MaxUint64
+	// rules[i] is the exact length of section i+1, or anyLen with a divisor.
+	type rule struct{ exact, div uint64 }
+	rules := [numSections]rule{
+		{8 * (n + 1), 0}, // name offsets
+		{anyLen, 1},      // name bytes
+		{8 * (h.Labels + 1), 0},
+		{anyLen, 1},
+		{4 * (h.VSets + 1), 0},
+		{anyLen, 4}, // value-set labels
+		{4 * n, 0},
+		{0, 0}, // marginal offsets, set below
+		{8 * h.Values, 0},
+		{8 * (n + 1), 0},
+		{4 * h.Edges, 0},
+		{8 * (n + 1), 0},
+		{0, 0}, // pair offsets, set below
+		{anyLen, 4},
+		{8 * (n + 1), 0},
+		{anyLen, 4},
+	}
+	if v.uniform {
+		kk := uint64(v.k * v.k)
+		if p > size/(4*kk) {
+			return corruptf(ErrSectionTable, "%d pairs of %d×%d tables cannot fit in %d bytes", p, v.k, v.k, size)
+		}
+		rules[secCounts-1] = rule{4 * kk * p, 0}
+	} else {
+		rules[secMargOffs-1] = rule{8 * (n + 1), 0}
+		rules[secPairOffs-1] = rule{8 * (p + 1), 0}
+	}
+	pos := uint64(headerSize)
+	for i, s := range h.Sections {
+		id := i + 1
+		name := sectionName(id)
+		if s.ID != uint32(id) {
+			return corruptf(ErrSectionTable, "entry %d has section id %d, want %d", i, s.ID, id)
+		}
+		if s.Offset != align8(pos) {
+			return corruptf(ErrSectionTable, "section %s at offset %d, want %d", name, s.Offset, align8(pos))
+		}
+		if s.Offset > size || s.Length > size-s.Offset {
+			return corruptf(ErrSectionTable, "section %s [%d, +%d) beyond the %d-byte file", name, s.Offset, s.Length, size)
+		}
+		r := rules[i]
+		if r.exact != anyLen && s.Length != r.exact {
+			return corruptf(ErrSectionTable, "section %s has %d bytes, want %d", name, s.Length, r.exact)
+		}
+		if r.exact == anyLen && s.Length%r.div != 0 {
+			return corruptf(ErrSectionTable, "section %s has %d bytes, not a multiple of %d", name, s.Length, r.div)
+		}
+		pos = s.Offset + s.Length
+	}
+	if pos != size {
+		return corruptf(ErrSectionTable, "sections end at %d, file has %d bytes", pos, size)
+	}
+	return nil
+}
+
+// section returns the bytes of section id.
+func (v *view) section(id int) []byte {
+	s := v.h.Sections[id-1]
+	return v.data[s.Offset : s.Offset+s.Length]
+}
+
+// checkSums verifies every section's CRC-32C and that padding is zero.
+func (v *view) checkSums() error {
+	pos := uint64(headerSize)
+	for i, s := range v.h.Sections {
+		for _, b := range v.data[pos:s.Offset] {
+			if b != 0 {
+				return corruptf(ErrCorrupt, "non-zero padding before section %s", sectionName(i+1))
+			}
+		}
+		if got := crc32.Checksum(v.section(i+1), castagnoli); got != s.CRC {
+			return corruptf(ErrChecksum, "section %s CRC-32C is %08x, stored %08x", sectionName(i+1), got, s.CRC)
+		}
+		pos = s.Offset + s.Length
+	}
+	return nil
+}
+
+// decode slices the sections (zero-copy on little-endian hosts).
+func (v *view) decode() {
+	v.nameOffs = asU64s(v.section(secNameOffs))
+	v.nameBytes = v.section(secNameBytes)
+	v.vsetOffs = asU32s(v.section(secVSetOffs))
+	v.vsetLabels = asU32s(v.section(secVSetLabels))
+	v.entVSet = asU32s(v.section(secEntVSet))
+	v.margOffs = asU64s(v.section(secMargOffs))
+	v.marg = asU64s(v.section(secMarginals))
+	v.nbrOffs = asU64s(v.section(secNbrOffs))
+	v.nbrs = asU32s(v.section(secNbrs))
+	v.pairBase = asU64s(v.section(secPairBase))
+	v.pairOffs = asU64s(v.section(secPairOffs))
+	v.counts = asU32s(v.section(secCounts))
+	v.rankOffs = asU64s(v.section(secRankOffs))
+	v.rank = asU32s(v.section(secRank))
+}
+
+// checkLabels validates the label dictionary and value sets and builds the
+// per-set label slices (copies). O(labels + value-set entries).
+func (v *view) checkLabels() error {
+	offs := asU64s(v.section(secLabelOffs))
+	lb := v.section(secLabelBytes)
+	if len(offs) == 0 || offs[0] != 0 || offs[len(offs)-1] != uint64(len(lb)) {
+		return corruptf(ErrCorrupt, "label offsets do not span the label bytes")
+	}
+	v.labels = make([]string, len(offs)-1)
+	for i := range v.labels {
+		s, e := offs[i], offs[i+1]
+		if s > e || e > uint64(len(lb)) {
+			return corruptf(ErrCorrupt, "label %d offsets [%d, %d) invalid", i, s, e)
+		}
+		v.labels[i] = string(lb[s:e])
+		if i > 0 && v.labels[i] <= v.labels[i-1] {
+			return corruptf(ErrCorrupt, "labels not strictly ascending at %d", i)
+		}
+	}
+	so := v.vsetOffs
+	if len(so) == 0 || so[0] != 0 || uint64(so[len(so)-1]) != uint64(len(v.vsetLabels)) {
+		return corruptf(ErrCorrupt, "value-set offsets do not span the value-set labels")
+	}
+	flat := make([]string, len(v.vsetLabels))
+	for i, id := range v.vsetLabels {
+		if uint64(id) >= uint64(len(v.labels)) {
+			return corruptf(ErrCorrupt, "value-set label id %d out of range (%d labels)", id, len(v.labels))
+		}
+		flat[i] = v.labels[id]
+	}
+	v.sets = make([][]string, len(so)-1)
+	for i := range v.sets {
+		s, e := so[i], so[i+1]
+		if s >= e || e-s > MaxValues || uint64(e) > uint64(len(flat)) {
+			return corruptf(ErrCorrupt, "value set %d has offsets [%d, %d) (1..%d values)", i, s, e, MaxValues)
+		}
+		for j := s + 1; j < e; j++ {
+			if v.vsetLabels[j] <= v.vsetLabels[j-1] {
+				return corruptf(ErrCorrupt, "value set %d labels not strictly ascending", i)
+			}
+		}
+		if v.uniform && int(e-s) != v.k {
+			return corruptf(ErrCorrupt, "value set %d has %d values in a uniform-K=%d index", i, e-s, v.k)
+		}
+		v.sets[i] = flat[s:e:e]
+	}
+	return nil
+}
+
+// span returns [offs[i], offs[i+1]) if it is a valid range within limit.
+func span(offs []uint64, i uint64, limit int) (int, int, bool) {
+	if i+1 >= uint64(len(offs)) {
+		return 0, 0, false
+	}
+	s, e := offs[i], offs[i+1]
+	if s > e || e > uint64(limit) {
+		return 0, 0, false
+	}
+	return int(s), int(e), true
+}
+
+// numValues returns K of entity id, or 0 if id or its value set is invalid.
+func (v *view) numValues(id EntityID) int {
+	if uint64(id) >= v.n {
+		return 0
+	}
+	if v.uniform {
+		return v.k
+	}
+	if int(id) >= len(v.entVSet) {
+		return 0
+	}
+	s := v.entVSet[id]
+	if int(s) >= len(v.sets) {
+		return 0
+	}
+	return len(v.sets[s])
+}
+
+func (v *view) nameAt(i uint64) string {
+	s, e, ok := span(v.nameOffs, i, len(v.nameBytes))
+	if !ok || s == e {
+		return ""
+	}
+	return unsafe.String(&v.nameBytes[s], e-s)
+}
+
+func (v *view) neighbors(id EntityID) []EntityID {
+	s, e, ok := span(v.nbrOffs, uint64(id), len(v.nbrs))
+	if !ok || uint64(id) >= v.n {
+		return nil
+	}
+	return v.nbrs[s:e:e]
+}
+
+// upperNeighbors returns the suffix of id's list with ids > id, and the
+// index of the first stored pair (id, ·).
+func (v *view) upperNeighbors(id EntityID) ([]EntityID, uint64) {
+	nb := v.neighbors(id)
+	if nb == nil || uint64(id)+1 >= uint64(len(v.pairBase)) {
+		return nil, 0
+	}
+	b0, b1 := v.pairBase[id], v.pairBase[id+1]
+	if b0 > b1 || b1-b0 > uint64(len(nb)) {
+		return nil, 0
+	}
+	return nb[uint64(len(nb))-(b1-b0):], b0
+}
+
+// pairIndex returns the stored index of the pair (lo, hi), lo < hi.
+func (v *view) pairIndex(lo, hi EntityID) (uint64, bool) {
+	up, base := v.upperNeighbors(lo)
+	j, found := slices.BinarySearch(up, hi)
+	if !found {
+		return 0, false
+	}
+	return base + uint64(j), true
+}
+
+// table returns the stored count table of pair index q, which must have
+// exactly cells entries.
+func (v *view) table(q uint64, cells int) ([]uint32, bool) {
+	var s, e uint64
+	if v.uniform {
+		kk := uint64(v.k * v.k)
+		if q >= v.h.Pairs {
+			return nil, false
+		}
+		s, e = q*kk, (q+1)*kk
+	} else {
+		a, b, ok := span(v.pairOffs, q, len(v.counts))
+		if !ok {
+			return nil, false
+		}
+		s, e = uint64(a), uint64(b)
+	}
+	if e > uint64(len(v.counts)) || e-s != uint64(cells) {
+		return nil, false
+	}
+	return v.counts[s:e:e], true
+}
+
+func (v *view) pair(a, b EntityID) (PairStats, bool) {
+	if a == b || uint64(a) >= v.n || uint64(b) >= v.n {
+		return PairStats{}, false
+	}
+	lo, hi, swapped := a, b, false
+	if a > b {
+		lo, hi, swapped = b, a, true
+	}
+	q, ok := v.pairIndex(lo, hi)
+	if !ok {
+		return PairStats{}, false
+	}
+	ka, kb := v.numValues(a), v.numValues(b)
+	if ka == 0 || kb == 0 {
+		return PairStats{}, false
+	}
+	t, ok := v.table(q, ka*kb)
+	if !ok {
+		return PairStats{}, false
+	}
+	return newStoredPairStats(a, b, ka, kb, t, swapped), true
+}
+
+func (v *view) marginal(id EntityID) []uint64 {
+	k := v.numValues(id)
+	if k == 0 {
+		return nil
+	}
+	var s, e uint64
+	if v.uniform {
+		s, e = uint64(id)*uint64(k), uint64(id+1)*uint64(k)
+	} else {
+		a, b, ok := span(v.margOffs, uint64(id), len(v.marg))
+		if !ok {
+			return nil
+		}
+		s, e = uint64(a), uint64(b)
+	}
+	if e > uint64(len(v.marg)) || e-s != uint64(k) {
+		return nil
+	}
+	return v.marg[s:e:e]
+}
+
+// --- read API ---
+
+// Lookup returns the id of the entity called name. Binary search over the
+// sorted names: O(log n · len(name)), no allocation.
+func (x *Index) Lookup(name string) (EntityID, bool) {
+	v := x.v.Load()
+	lo, hi := uint64(0), v.n
+	for lo < hi {
+		mid := lo + (hi-lo)/2
+		switch c := strings.Compare(v.nameAt(mid), name); {
+		case c == 0:
+			return EntityID(mid), true
+		case c < 0:
+			lo = mid + 1
+		default:
+			hi = mid
+		}
+	}
+	return 0, false
+}
+
+// Name returns the name of entity id ("" if out of range). The string is a
+// copy and outlives the Index. It allocates.
+func (x *Index) Name(id EntityID) string {
+	v := x.v.Load()
+	if uint64(id) >= v.n {
+		return ""
+	}
+	return strings.Clone(v.nameAt(uint64(id)))
+}
+
+// NumValues returns K, the number of values of entity id (0 if out of range).
+func (x *Index) NumValues(id EntityID) int { return x.v.Load().numValues(id) }
+
+// Values returns the value labels of entity id in ascending byte order. The
+// slice is shared and must not be modified.
+func (x *Index) Values(id EntityID) []string {
+	v := x.v.Load()
+	if uint64(id) >= v.n || int(id) >= len(v.entVSet) {
+		return nil
+	}
+	s := v.entVSet[id]
+	if int(s) >= len(v.sets) {
+		return nil
+	}
+	return v.sets[s]
+}
+
+// ValueIndex returns the position of label among the values of entity id.
+// O(log K), no allocation.
+func (x *Index) ValueIndex(id EntityID, label string) (int, bool) {
+	return slices.BinarySearch(x.Values(id), label)
+}
+
+// Neighbors returns the ids of every entity observed together with id, in
+// ascending order. The slice aliases the index memory.
+func (x *Index) Neighbors(id EntityID) []EntityID { return x.v.Load().neighbors(id) }
+
+// Degree returns the number of neighbours of id.
+func (x *Index) Degree(id EntityID) int { return len(x.Neighbors(id)) }
+
+// RankedNeighbors returns up to RankPrefix() neighbours of id ordered by
+// descending pair support, ties by ascending id. Entities with at most
+// RankPrefix neighbours get all of them.
+func (x *Index) RankedNeighbors(id EntityID) []EntityID {
+	v := x.v.Load()
+	if uint64(id) >= v.n {
+		return nil
+	}
+	s, e, ok := span(v.rankOffs, uint64(id), len(v.rank))
+	if !ok {
+		return nil
+	}
+	return v.rank[s:e:e]
+}
+
+// Pair returns the statistics of the ordered pair (a, b); ok is false when
+// the pair is not stored (never observed together, pruned, a == b, or an id
+// out of range). Two binary searches' worth of work: O(log deg(min(a,b))),
+// no allocation. The PairStats view is valid until Close.
+func (x *Index) Pair(a, b EntityID) (PairStats, bool) { return x.v.Load().pair(a, b) }
+
+// Marginal returns the marginal counts of entity id: Marginal(id)[u] is the
+// number of contexts observing id=u. The slice aliases the index memory.
+func (x *Index) Marginal(id EntityID) []uint64 { return x.v.Load().marginal(id) }
+
+// EntitySupport returns the number of contexts that observe entity id (the
+// sum of its marginals). O(K).
+func (x *Index) EntitySupport(id EntityID) uint64 {
+	var s uint64
+	for _, c := range x.Marginal(id) {
+		s += c
+	}
+	return s
+}
+
+// NumEntities returns the number of entities.
+func (x *Index) NumEntities() int { return int(x.v.Load().n) }
+
+// NumContexts returns the number of contexts the index was built from.
+func (x *Index) NumContexts() uint64 { return x.v.Load().h.Contexts }
+
+// NumPairs returns the number of stored unordered pairs; the number of
+// directed edges (adjacency entries) is twice that.
+func (x *Index) NumPairs() uint64 { return x.v.Load().h.Pairs }
+
+// Generation returns the content fingerprint stored in the header (see
+// FORMAT.md). Equal files have equal generations.
+func (x *Index) Generation() uint64 { return x.v.Load().h.Generation }
+
+// Bytes returns the size of the index file in bytes.
+func (x *Index) Bytes() int64 { return x.size }
+
+// FormatVersion returns the file's format version.
+func (x *Index) FormatVersion() int { return int(x.v.Load().h.Version) }
+
+// RankPrefix returns the length of the stored support-ranked prefix.
+func (x *Index) RankPrefix() int { return int(x.v.Load().h.RankPrefix) }
+
+// Path returns the path the index was opened from.
+func (x *Index) Path() string { return x.path }
+
+// SectionInfo describes one section of the file.
+type SectionInfo struct {
+	Name   string
+	Offset uint64
+	Length uint64
+	CRC    uint32
+}
+
+// Sections returns the section table (nil after Close).
+func (x *Index) Sections() []SectionInfo {
+	v := x.v.Load()
+	if v.closed {
+		return nil
+	}
+	out := make([]SectionInfo, numSections)
+	for i, s := range v.h.Sections {
+		out[i] = SectionInfo{Name: sectionName(i + 1), Offset: s.Offset, Length: s.Length, CRC: s.CRC}
+	}
+	return out
+}
