@@ -1,0 +1,139 @@
+package router
+
+// Query asks whether the answer to "what is To, given From = Value" should be
+// direct or chained.
+type Query struct {
+	From  string // observed entity
+	Value string // observed value of From
+	To    string // target entity
+	// Key is the caller's unit key: it drives A/B assignment and exploration
+	// and joins outcomes to decisions. Empty means From‖Value‖To.
+	Key string
+}
+
+// DirectResult is the direct estimate P(To | From = Value) with its
+// expected error and the pair's support.
+type DirectResult struct {
+	Estimate []float64 // over Decision.Values
+	Err      float64   // expected squared error Σ_v Var(θ_v) (model dependent)
+	Support  uint64    // contexts observing both endpoints
+}
+
+// ChainResult is the best chain found, scored exactly.
+type ChainResult struct {
+	Bridges    []string  // bridge entity names in order From → … → To
+	Estimate   []float64 // chained estimate over Decision.Values
+	Err        float64   // expected error of the chain, including β·m
+	MinSupport uint64    // smallest pair support along the chain
+}
+
+// Decision is the router's answer to one Query.
+//
+// Slices in a Decision (Bridges, Values, Estimate, Direct.Estimate and
+// everything under Chain) may be shared with the decision cache and with
+// other callers: treat them as read-only. They never point into index
+// memory, so they stay valid after the index is swapped out and closed.
+type Decision struct {
+	Mode     Mode
+	Bridges  []string  // Chain.Bridges when Mode is chain, else nil
+	Values   []string  // the target's value labels
+	Estimate []float64 // the chosen estimate over Values
+	Err      float64   // expected error of the chosen estimate
+	Direct   DirectResult
+	Chain    *ChainResult // best chain, nil when none was found
+	// Gain is Direct.Err − Chain.Err (0 without a chain).
+	Gain float64
+	// Score is the quantity compared with τ: Gain, or λ·Gain − c_hop·m with
+	// WithUtility (0 without a chain).
+	Score  float64
+	Reason Reason
+	// Truncated reports that a bound (beam, candidates, expansion budget or
+	// the context deadline) cut the search, so a better chain may exist.
+	Truncated  bool
+	Generation uint64 // index generation the decision was computed on
+	// Arm is the A/B arm of the unit ("" without arms).
+	Arm string
+	// Propensity is the probability with which this decision's mode was
+	// chosen for this unit under the configured policy (1 without
+	// exploration).
+	Propensity float64
+	// Explored reports that exploration overrode the preferred mode.
+	Explored bool
+	// Cached reports that the search result came from the decision cache.
+	Cached bool
+	// Key is the unit key used (Query.Key, or "" when derived).
+	Key string
+}
+
+// core is the arm-independent, cacheable result of a search.
+type core struct {
+	values     []string
+	direct     DirectResult
+	chain      *ChainResult
+	gain       float64
+	score      float64
+	truncated  bool
+	generation uint64
+}
+
+// finish applies the configured policy (arm, threshold, exploration) to a
+// search result. It does not allocate.
+func (s *settings) finish(c *core, q *Query, cached bool) Decision {
+	d := Decision{
+		Values:     c.values,
+		Direct:     c.direct,
+		Chain:      c.chain,
+		Gain:       c.gain,
+		Score:      c.score,
+		Truncated:  c.truncated,
+		Generation: c.generation,
+		Propensity: 1,
+		Cached:     cached,
+		Key:        q.Key,
+	}
+	policy := policyRouted
+	if i := s.assignArm(q); i >= 0 {
+		d.Arm = s.arms[i].name
+		policy = s.arms[i].policy
+	}
+	var code string
+	mode := ModeDirect
+	switch {
+	case c.chain == nil:
+		code = ReasonNoChain
+		if policy == policyDirectOnly {
+			code = ReasonArmDirectOnly
+		}
+	case policy == policyDirectOnly:
+		code = ReasonArmDirectOnly
+	case policy == policyChainAlways:
+		mode, code = ModeChain, ReasonArmChainAlways
+	default:
+		if c.score >= s.tau {
+			mode, code = ModeChain, ReasonGainAbove
+		} else {
+			code = ReasonGainBelow
+		}
+		if s.epsilon > 0 {
+			if s.explores(q) {
+				mode ^= 1
+				code = ReasonExplore
+				d.Explored = true
+				d.Propensity = s.epsilon
+			} else {
+				d.Propensity = 1 - s.epsilon
+			}
+		}
+	}
+	d.Mode = mode
+	d.Reason = reason(code)
+	if mode == ModeChain {
+		d.Bridges = c.chain.Bridges
+		d.Estimate = c.chain.Estimate
+		d.Err = c.chain.Err
+	} else {
+		d.Estimate = c.direct.Estimate
+		d.Err = c.direct.Err
+	}
+	return d
+}

@@ -1,0 +1,413 @@
+package router
+
+import (
+	"context"
+	"fmt"
+	"io"
+	"runtime"
+	"sync"
+	"sync/atomic"
+	"unsafe"
+
+	"github.com/hopwise/hopwise/graphidx"
+)
+
+// Router answers Decide calls against the current index. It owns the graphs
+// it is given: a graph replaced by Swap, or current at Close, is retired —
+// its Close method (when it implements io.Closer) runs exactly once, after
+// the last in-flight decision that uses it has finished.
+type Router struct {
+	cur    atomic.Pointer[handle]
+	cfg    atomic.Pointer[settings]
+	cache  *decisionCache // nil when disabled
+	seq    atomic.Uint64
+	mu     sync.Mutex // serialises Swap, Reconfigure and Close (writers only)
+	closed atomic.Bool
+	pool   sync.Pool
+	retire func(old Graph, closeErr error)
+}
+
+// handle is one index generation held by the router, reference counted.
+// refs counts the router's own reference plus in-flight decisions; when it
+// reaches zero it can never be acquired again.
+type handle struct {
+	g    Graph
+	seq  uint64
+	gen  uint64
+	refs atomic.Int64
+	once sync.Once
+	r    *Router
+}
+
+// tryAcquire takes a reference unless the handle is already dead.
+func (h *handle) tryAcquire() bool {
+	for {
+		n := h.refs.Load()
+		if n <= 0 {
+			return false
+		}
+		if h.refs.CompareAndSwap(n, n+1) {
+			return true
+		}
+	}
+}
+
+func (h *handle) release() {
+	if h.refs.Add(-1) == 0 {
+		h.once.Do(func() {
+			var err error
+			if c, ok := h.g.(io.Closer); ok {
+				err = c.Close()
+			}
+			if h.r.retire != nil {
+				h.r.retire(h.g, err)
+			}
+		})
+	}
+}
+
+// New returns a router over g. Options are validated; a bad option returns
+// an error wrapping ErrBadOption.
+func New(g Graph, opts ...Option) (*Router, error) {
+	if g == nil {
+		return nil, fmt.Errorf("%w: nil graph", ErrBadOption)
+	}
+	st, err := buildSettings(defaultSettings(), opts)
+	if err != nil {
+		return nil, err
+	}
+	st.gen = 1
+	r := &Router{}
+	r.pool.New = func() any { return newScratch() }
+	if st.cacheSize > 0 {
+		r.cache, err = newDecisionCache(st.cacheSize, runtime.GOMAXPROCS(0))
+		if err != nil {
+			return nil, fmt.Errorf("%w: cache: %v", ErrBadOption, err)
+		}
+	}
+	r.cfg.Store(&st)
+	r.cur.Store(r.newHandle(g))
+	return r, nil
+}
+
+// NewWithRetireHook is New with a callback run once per retired graph,
+// after its Close (if any) with that error. The hook runs outside the
+// router's locks, on the goroutine that released the last reference.
+func NewWithRetireHook(g Graph, hook func(old Graph, closeErr error), opts ...Option) (*Router, error) {
+	r, err := New(g, opts...)
+	if err != nil {
+		return nil, err
+	}
+	r.retire = hook
+	return r, nil
+}
+
+func (r *Router) newHandle(g Graph) *handle {
+	h := &handle{g: g, seq: r.seq.Add(1), gen: g.Generation(), r: r}
+	h.refs.Store(1)
+	return h
+}
+
+// Swap atomically replaces the index. Decisions that already hold the old
+// index finish on it; it is retired (closed) when the last of them returns.
+// Cached decisions of the old index are never served again. O(1) plus a
+// cache purge.
+func (r *Router) Swap(g Graph) error {
+	if g == nil {
+		return fmt.Errorf("%w: Swap: nil graph", ErrBadOption)
+	}
+	r.mu.Lock()
+	if r.closed.Load() {
+		r.mu.Unlock()
+		return ErrClosed
+	}
+	old := r.cur.Swap(r.newHandle(g))
+	r.mu.Unlock()
+	if r.cache != nil {
+		r.cache.purge()
+	}
+	old.release()
+	return nil
+}
+
+// Reconfigure applies opts over the current configuration and starts a new
+// configuration generation (cached decisions of the old one are not served).
+// The cache size is fixed at New; WithCacheSize here is an error.
+func (r *Router) Reconfigure(opts ...Option) error {
+	r.mu.Lock()
+	defer r.mu.Unlock()
+	if r.closed.Load() {
+		return ErrClosed
+	}
+	base := r.cfg.Load()
+	st, err := buildSettings(*base, opts)
+	if err != nil {
+		return err
+	}
+	if st.cacheSize != base.cacheSize {
+		return fmt.Errorf("%w: WithCacheSize: the cache size is fixed at New", ErrBadOption)
+	}
+	st.gen = base.gen + 1
+	r.cfg.Store(&st)
+	return nil
+}
+
+// Close stops the router: later Decide calls return ErrClosed and the
+// current graph is retired once in-flight decisions finish. Close is
+// idempotent and returns nil.
+func (r *Router) Close() error {
+	r.mu.Lock()
+	if r.closed.Swap(true) {
+		r.mu.Unlock()
+		return nil
+	}
+	old := r.cur.Swap(nil)
+	r.mu.Unlock()
+	if r.cache != nil {
+		r.cache.purge()
+	}
+	if old != nil {
+		old.release()
+	}
+	return nil
+}
+
+// Generation returns the current index generation (0 after Close).
+func (r *Router) Generation() uint64 {
+	if h := r.cur.Load(); h != nil {
+		return h.gen
+	}
+	return 0
+}
+
+// CacheLen returns the number of cached decisions.
+func (r *Router) CacheLen() int {
+	if r.cache == nil {
+		return 0
+	}
+	return r.cache.len()
+}
+
+// Decide routes one query. It is safe for concurrent use and never blocks
+// on Swap or Reconfigure.
+//
+// Errors wrap ErrSameEntity (From == To, always an error), ErrUnknownEntity
+// or ErrUnknownValue (unless a fallback is configured, see WithFallback: then
+// a Decision with Mode = the fallback mode, Reason unknown-entity-fallback or
+// unknown-value-fallback, no estimate and Values set when To is known is
+// returned with a nil error), ErrClosed, the context's error when ctx is
+// done before the search starts, and scorer errors for inconsistent
+// statistics. A deadline reached during the search is not an error: the
+// decision is returned with Truncated set (and is not cached).
+//
+// Cost: a cache hit is O(len(names)) with no allocation; a miss is the
+// search cost documented in search.go.
+func (r *Router) Decide(ctx context.Context, q Query) (Decision, error) {
+	st := r.cfg.Load()
+	h := r.cur.Load()
+	if h == nil {
+		return Decision{}, ErrClosed
+	}
+	if q.From == q.To {
+		return Decision{}, fmt.Errorf("%w: %q", ErrSameEntity, q.From)
+	}
+	if r.cache != nil {
+		k := cacheKey{from: q.From, value: q.Value, to: q.To, seq: h.seq, gen: h.gen, cfg: st.gen}
+		if c, ok := r.cache.get(&k); ok {
+			return st.finish(&c, &q, true), nil
+		}
+	}
+	if err := ctx.Err(); err != nil {
+		return Decision{}, err
+	}
+	for !h.tryAcquire() {
+		h = r.cur.Load()
+		if h == nil {
+			return Decision{}, ErrClosed
+		}
+	}
+	defer h.release()
+	c, cacheable, fb, err := r.compute(ctx, h, st, &q)
+	if err != nil {
+		return Decision{}, err
+	}
+	if fb != nil {
+		return *fb, nil
+	}
+	if cacheable && r.cache != nil {
+		k := cacheKey{from: q.From, value: q.Value, to: q.To, seq: h.seq, gen: h.gen, cfg: st.gen}
+		r.cache.add(&k, c)
+	}
+	return st.finish(&c, &q, false), nil
+}
+
+// compute resolves the query and runs the search on the acquired handle.
+func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query) (core, bool, *Decision, error) {
+	g := h.g
+	s, okS := g.Lookup(q.From)
+	t, okT := g.Lookup(q.To)
+	if !okS || !okT {
+		name := q.From
+		if okS {
+			name = q.To
+		}
+		err := fmt.Errorf("%w: %q", ErrUnknownEntity, name)
+		if st.fallback == FallbackError {
+			return core{}, false, nil, err
+		}
+		return core{}, false, r.fallback(st, g, h, q, t, okT, ReasonUnknownEntityFallback), nil
+	}
+	if s == t {
+		return core{}, false, nil, fmt.Errorf("%w: %q and %q resolve to one entity", ErrSameEntity, q.From, q.To)
+	}
+	u, okU := g.ValueIndex(s, q.Value)
+	if !okU {
+		if st.fallback == FallbackError {
+			return core{}, false, nil, fmt.Errorf("%w: %q for entity %q", ErrUnknownValue, q.Value, q.From)
+		}
+		return core{}, false, r.fallback(st, g, h, q, t, true, ReasonUnknownValueFallback), nil
+	}
+
+	sc := r.pool.Get().(*scratch)
+	defer func() { sc.reset(); r.pool.Put(sc) }()
+	sc.g, sc.model, sc.st, sc.s, sc.t = g, st.model, st, s, t
+	sc.hb = st.model.HopBias()
+	sc.bud = budget{left: st.budget, nextCheck: deadlinePoll, done: ctx.Done()}
+
+	dir, err := st.model.Direct(sc.ws, g, s, u, t)
+	if err != nil {
+		return core{}, false, nil, fmt.Errorf("router: direct estimate %q=%q → %q: %w", q.From, q.Value, q.To, err)
+	}
+	sc.ddist = append(sc.ddist[:0], dir.Dist...)
+	_, adjacent := g.Pair(s, t)
+
+	res := sc.generate(adjacent)
+
+	// Stage 2: exact scores of the k proxy-best candidates.
+	sc.sortCands()
+	best := -1
+	var bestEst struct {
+		err   float64
+		score float64
+	}
+	for i := range sc.heap {
+		cd := &sc.heap[i]
+		sc.path = append(sc.path[:0], cd.b[:cd.m]...)
+		est, err := st.model.Chain(sc.ws, g, s, u, sc.path, t)
+		if err != nil {
+			return core{}, false, nil, fmt.Errorf("router: chain estimate %q → %q: %w", q.From, q.To, err)
+		}
+		gain := dir.Err - est.Err
+		score := gain
+		if st.utility {
+			score = st.lambda*gain - st.hopCost*float64(cd.m)
+		}
+		if best < 0 || score > bestEst.score {
+			best = i
+			bestEst.err, bestEst.score = est.Err, score
+			sc.dist = append(sc.dist[:0], est.Dist...)
+		}
+	}
+
+	// Build the owned result: estimates in one block, strings in one buffer.
+	values := g.Values(t)
+	k := len(sc.ddist)
+	nf := k
+	if best >= 0 {
+		nf += len(sc.dist)
+	}
+	fl := make([]float64, nf)
+	copy(fl, sc.ddist)
+	c := core{
+		direct:     DirectResult{Estimate: fl[:k:k], Err: dir.Err, Support: dir.Support},
+		truncated:  res.truncated,
+		generation: h.gen,
+	}
+	var names []graphidx.EntityID
+	if best >= 0 {
+		cd := sc.heap[best]
+		names = cd.b[:cd.m]
+	}
+	strs := cloneStrings(g, values, names)
+	c.values = strs[:len(values):len(values)]
+	if best >= 0 {
+		cd := sc.heap[best]
+		copy(fl[k:], sc.dist)
+		minSup := ^uint64(0)
+		prev := s
+		for i := 0; i <= int(cd.m); i++ {
+			b := t
+			if i < int(cd.m) {
+				b = cd.b[i]
+			}
+			ps, ok := g.Pair(prev, b)
+			if !ok {
+				minSup = 0
+			} else if sp := ps.Support(); sp < minSup {
+				minSup = sp
+			}
+			prev = b
+		}
+		c.chain = &ChainResult{
+			Bridges:    strs[len(values):],
+			Estimate:   fl[k:],
+			Err:        bestEst.err,
+			MinSupport: minSup,
+		}
+		c.gain = dir.Err - bestEst.err
+		c.score = bestEst.score
+	}
+	return c, !res.deadline, nil, nil
+}
+
+// cloneStrings copies the value labels and the bridge names into one
+// heap buffer so that the result never points into index memory.
+func cloneStrings(g Graph, values []string, ids []graphidx.EntityID) []string {
+	n := 0
+	for _, v := range values {
+		n += len(v)
+	}
+	for _, id := range ids {
+		n += len(g.Name(id))
+	}
+	buf := make([]byte, 0, n)
+	out := make([]string, 0, len(values)+len(ids))
+	add := func(s string) {
+		start := len(buf)
+		buf = append(buf, s...)
+		if len(s) == 0 {
+			out = append(out, "")
+			return
+		}
+		out = append(out, unsafe.String(&buf[start], len(s)))
+	}
+	for _, v := range values {
+		add(v)
+	}
+	for _, id := range ids {
+		add(g.Name(id))
+	}
+	return out
+}
+
+// fallback builds the Decision returned for an unknown endpoint or value
+// when a fallback mode is configured.
+func (r *Router) fallback(st *settings, g Graph, h *handle, q *Query, t graphidx.EntityID, okT bool, code string) *Decision {
+	d := Decision{
+		Mode:       ModeDirect,
+		Reason:     reason(code),
+		Generation: h.gen,
+		Propensity: 1,
+		Key:        q.Key,
+	}
+	if st.fallback == FallbackChain {
+		d.Mode = ModeChain
+	}
+	if okT {
+		d.Values = cloneStrings(g, g.Values(t), nil)
+	}
+	if i := st.assignArm(q); i >= 0 {
+		d.Arm = st.arms[i].name
+	}
+	return &d
+}

@@ -1,0 +1,566 @@
+package router
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"slices"
+	"sync"
+	"sync/atomic"
+	"testing"
+	"time"
+
+	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/scorer"
+)
+
+func mustNew(t testing.TB, g Graph, opts ...Option) *Router {
+	t.Helper()
+	r, err := New(g, opts...)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return r
+}
+
+// bruteBest enumerates every simple chain of 1..H bridges from s to t and
+// scores it exactly; it returns the best (largest gain; ties: fewer hops).
+func bruteBest(t *testing.T, g *memGraph, m scorer.Model, s graphidx.EntityID, u int, tt graphidx.EntityID, H int) (best []graphidx.EntityID, bestErr float64, n int) {
+	t.Helper()
+	bestErr = math.Inf(1)
+	path := []graphidx.EntityID{}
+	onPath := map[graphidx.EntityID]bool{s: true, tt: true}
+	var rec func(last graphidx.EntityID)
+	rec = func(last graphidx.EntityID) {
+		if len(path) > 0 {
+			if _, ok := g.Pair(last, tt); ok {
+				est, err := m.Chain(nil, g, s, u, path, tt)
+				if err != nil {
+					t.Fatal(err)
+				}
+				n++
+				if est.Err < bestErr-1e-15 || (math.Abs(est.Err-bestErr) <= 1e-15 && len(path) < len(best)) {
+					best, bestErr = slices.Clone(path), est.Err
+				}
+			}
+		}
+		if len(path) == H {
+			return
+		}
+		for _, z := range g.Neighbors(last) {
+			if onPath[z] {
+				continue
+			}
+			onPath[z] = true
+			path = append(path, z)
+			rec(z)
+			path = path[:len(path)-1]
+			onPath[z] = false
+		}
+	}
+	rec(s)
+	return best, bestErr, n
+}
+
+// TestSearchMatchesBruteForce: with no bound hit, the search must return the
+// exact optimum over all chains; with tight bounds, an untruncated decision
+// must still be the optimum (the completeness claim in search.go).
+func TestSearchMatchesBruteForce(t *testing.T) {
+	t.Parallel()
+	model, err := scorer.NewBayes()
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx := context.Background()
+	checked, untrunc := 0, 0
+	for seed := uint64(1); seed <= 30; seed++ {
+		n := 8 + int(seed%9)
+		p := []float64{0.2, 0.35, 0.5}[seed%3]
+		g := randomGraph(seed, n, p)
+		for _, H := range []int{1, 2, 3} {
+			loose := mustNew(t, g, WithModel(model), WithMaxBridges(H), WithBeam(1<<10), WithMaxCandidates(1<<16), WithExpansionBudget(1<<30), WithCacheSize(0))
+			B := 1 + int(seed%4)
+			tight := mustNew(t, g, WithModel(model), WithMaxBridges(H), WithBeam(B), WithMaxCandidates(1+int(seed%5)), WithCacheSize(0))
+			for s := 0; s < n; s++ {
+				for tt := 0; tt < n; tt++ {
+					if s == tt || (s+tt+H)%3 != 0 {
+						continue
+					}
+					q := Query{From: g.names[s], Value: g.values[s][0], To: g.names[tt]}
+					want, wantErr, nChains := bruteBest(t, g, model, graphidx.EntityID(s), 0, graphidx.EntityID(tt), H)
+					for i, r := range []*Router{loose, tight} {
+						d, err := r.Decide(ctx, q)
+						if err != nil {
+							t.Fatalf("seed %d H %d %v: %v", seed, H, q, err)
+						}
+						if i == 0 && d.Truncated {
+							t.Fatalf("seed %d H %d %v: loose search truncated", seed, H, q)
+						}
+						if d.Truncated {
+							continue
+						}
+						checked++
+						if i == 1 {
+							untrunc++
+						}
+						if nChains == 0 {
+							if d.Chain != nil {
+								t.Fatalf("seed %d: chain %v found where none exists", seed, d.Chain.Bridges)
+							}
+							continue
+						}
+						if d.Chain == nil {
+							t.Fatalf("seed %d H %d %v (router %d): no chain, brute force has %d (best err %g)", seed, H, q, i, nChains, wantErr)
+						}
+						if math.Abs(d.Chain.Err-wantErr) > 1e-12 {
+							names := make([]string, len(want))
+							for j, b := range want {
+								names[j] = g.names[b]
+							}
+							t.Fatalf("seed %d H %d %v (router %d): chain %v err %.15g, brute force %v err %.15g",
+								seed, H, q, i, d.Chain.Bridges, d.Chain.Err, names, wantErr)
+						}
+						if len(d.Chain.Bridges) > H {
+							t.Fatalf("chain longer than H")
+						}
+					}
+				}
+			}
+		}
+	}
+	if untrunc == 0 {
+		t.Fatal("no untruncated tight search; the test does not exercise the completeness claim")
+	}
+	t.Logf("checked %d decisions against brute force (%d under tight bounds)", checked, untrunc)
+}
+
+// TestTruncatedByBudget: a hub search cut by the expansion budget says so.
+func TestTruncatedByBudget(t *testing.T) {
+	t.Parallel()
+	b := newMemBuilder(7)
+	s := b.entity("sensor-a", "off", "on")
+	tt := b.entity("sensor-b", "off", "on")
+	for i := 0; i < 2000; i++ {
+		z := b.entity(fmt.Sprintf("valve%04d", i), "off", "on")
+		b.pair(s, z, 3, 1, 1, 3)
+		b.pair(z, tt, 3, 1, 1, 3)
+	}
+	g := b.build()
+	q := Query{From: "sensor-a", Value: "on", To: "sensor-b"}
+	full := mustNew(t, g, WithMaxBridges(1), WithMaxCandidates(1<<12), WithExpansionBudget(1<<20))
+	d, err := full.Decide(context.Background(), q)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if d.Truncated || d.Chain == nil {
+		t.Fatalf("unbounded 1-bridge search: truncated=%v chain=%v", d.Truncated, d.Chain)
+	}
+	cut := mustNew(t, g, WithMaxBridges(3), WithExpansionBudget(500))
+	d, err = cut.Decide(context.Background(), q)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !d.Truncated {
+		t.Fatal("budget 500 over 4000 adjacency entries: want Truncated")
+	}
+	// k bound: 2000 one-bridge chains, k = 16.
+	kcut := mustNew(t, g, WithMaxBridges(1), WithExpansionBudget(1<<20))
+	d, err = kcut.Decide(context.Background(), q)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !d.Truncated {
+		t.Fatal("k=16 over 2000 chains: want Truncated")
+	}
+	// An expired deadline before the search is an error; the context error is wrapped.
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	if _, err := mustNew(t, g).Decide(ctx, q); !errors.Is(err, context.Canceled) {
+		t.Fatalf("cancelled context: got %v", err)
+	}
+}
+
+func TestSentinels(t *testing.T) {
+	t.Parallel()
+	g := greenhouse(1)
+	r := mustNew(t, g)
+	ctx := context.Background()
+	cases := []struct {
+		q    Query
+		want error
+	}{
+		{Query{From: "vent-east", Value: "open", To: "bed-tomato"}, ErrUnknownEntity},
+		{Query{From: "vent-north", Value: "open", To: "bed-cucumber"}, ErrUnknownEntity},
+		{Query{From: "vent-north", Value: "ajar", To: "bed-tomato"}, ErrUnknownValue},
+		{Query{From: "vent-north", Value: "open", To: "vent-north"}, ErrSameEntity},
+	}
+	for _, c := range cases {
+		_, err := r.Decide(ctx, c.q)
+		if !errors.Is(err, c.want) {
+			t.Errorf("%+v: got %v, want %v", c.q, err, c.want)
+		}
+	}
+	// The error names the culprit.
+	_, err := r.Decide(ctx, cases[0].q)
+	if err == nil || !contains(err.Error(), "vent-east") {
+		t.Errorf("error %v does not name the entity", err)
+	}
+	// Fallback: a decision, not an error.
+	fb := mustNew(t, g, WithFallback(ModeChain))
+	d, err := fb.Decide(ctx, cases[1].q)
+	if err != nil || d.Mode != ModeChain || d.Reason.Code != ReasonUnknownEntityFallback || d.Estimate != nil {
+		t.Errorf("fallback: %+v %v", d, err)
+	}
+	d, err = fb.Decide(ctx, cases[2].q)
+	if err != nil || d.Reason.Code != ReasonUnknownValueFallback || len(d.Values) != 2 {
+		t.Errorf("value fallback: %+v %v", d, err)
+	}
+	if _, err := fb.Decide(ctx, cases[3].q); !errors.Is(err, ErrSameEntity) {
+		t.Errorf("same entity with fallback: %v", err)
+	}
+	r.Close()
+	if _, err := r.Decide(ctx, Query{From: "vent-north", Value: "open", To: "bed-tomato"}); !errors.Is(err, ErrClosed) {
+		t.Errorf("after Close: %v", err)
+	}
+	if err := r.Swap(g); !errors.Is(err, ErrClosed) {
+		t.Errorf("Swap after Close: %v", err)
+	}
+	if g.closes.Load() != 1 {
+		t.Errorf("graph closed %d times, want 1", g.closes.Load())
+	}
+	r.Close() // idempotent
+	if g.closes.Load() != 1 {
+		t.Errorf("second Close closed the graph again")
+	}
+}
+
+func contains(s, sub string) bool {
+	for i := 0; i+len(sub) <= len(s); i++ {
+		if s[i:i+len(sub)] == sub {
+			return true
+		}
+	}
+	return false
+}
+
+func TestBadOptions(t *testing.T) {
+	t.Parallel()
+	g := greenhouse(1)
+	bad := []Option{
+		WithGainThreshold(math.NaN()), WithMaxBridges(4), WithMaxBridges(-1), WithBeam(0),
+		WithMaxCandidates(0), WithModel(nil), WithAlpha(0), WithBeta(-1), WithFallback(Mode(9)),
+		WithCacheSize(-1), WithUtility(0, 1), WithUtility(1, -1), WithExpansionBudget(0),
+		WithArms(ArmWeight{"routed", 1}, ArmWeight{"routed", 1}), WithArms(ArmWeight{"sideways", 1}),
+		WithArms(ArmWeight{"routed", 0}), WithArms(ArmWeight{"routed", math.Inf(1)}),
+		WithExploration(0.6, ""), WithExploration(-0.1, ""), WithHashKey([]byte("short")),
+	}
+	for i, o := range bad {
+		if _, err := New(g, o); !errors.Is(err, ErrBadOption) {
+			t.Errorf("bad option %d: got %v", i, err)
+		}
+	}
+	if _, err := New(nil); !errors.Is(err, ErrBadOption) {
+		t.Errorf("nil graph: %v", err)
+	}
+	m, _ := scorer.NewBayes()
+	if _, err := New(g, WithModel(m), WithBeta(0.1)); !errors.Is(err, ErrBadOption) {
+		t.Errorf("model with beta: %v", err)
+	}
+}
+
+// TestGreenhouseRoutesThroughHumidity: the vent and the bed are never seen
+// together, so the direct estimate is the prior; the humidity chain has
+// hundreds of contexts per edge and must win.
+func TestGreenhouseRoutesThroughHumidity(t *testing.T) {
+	t.Parallel()
+	r := mustNew(t, greenhouse(1))
+	d, err := r.Decide(context.Background(), Query{From: "vent-north", Value: "open", To: "bed-tomato"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if d.Mode != ModeChain || !slices.Equal(d.Bridges, []string{"humidity-zone1"}) || d.Direct.Support != 0 {
+		t.Fatalf("got %+v", d)
+	}
+	if d.Gain <= 0 || d.Reason.Code != ReasonGainAbove || d.Chain.MinSupport != 200 {
+		t.Fatalf("gain %v reason %v minsup %d", d.Gain, d.Reason, d.Chain.MinSupport)
+	}
+	// open vent → low humidity (88/100) → dry bed (85/100): P(dry) well above 1/2.
+	if d.Estimate[0] < 0.6 || math.Abs(d.Estimate[0]+d.Estimate[1]-1) > 1e-12 {
+		t.Fatalf("estimate %v", d.Estimate)
+	}
+	// A high threshold sends it direct.
+	if err := r.Reconfigure(WithGainThreshold(10)); err != nil {
+		t.Fatal(err)
+	}
+	d, _ = r.Decide(context.Background(), Query{From: "vent-north", Value: "open", To: "bed-tomato"})
+	if d.Mode != ModeDirect || d.Reason.Code != ReasonGainBelow || d.Cached {
+		t.Fatalf("after Reconfigure: %+v", d)
+	}
+	// Utility with a steep hop cost also goes direct.
+	u := mustNew(t, greenhouse(1), WithUtility(1, 1))
+	d, _ = u.Decide(context.Background(), Query{From: "vent-north", Value: "open", To: "bed-tomato"})
+	if d.Mode != ModeDirect || d.Score >= 0 {
+		t.Fatalf("utility: %+v", d)
+	}
+}
+
+func TestCacheHitAndStaleness(t *testing.T) { // not parallel: AllocsPerRun
+	ctx := context.Background()
+	g1 := greenhouse(1)
+	r := mustNew(t, g1)
+	q := Query{From: "vent-north", Value: "open", To: "bed-tomato", Key: "unit-7"}
+	d1, err := r.Decide(ctx, q)
+	if err != nil || d1.Cached {
+		t.Fatalf("%+v %v", d1, err)
+	}
+	d2, _ := r.Decide(ctx, q)
+	if !d2.Cached || d2.Key != "unit-7" || !slices.Equal(d2.Estimate, d1.Estimate) || d2.Generation != 1 {
+		t.Fatalf("second decide: %+v", d2)
+	}
+	allocs := testing.AllocsPerRun(200, func() {
+		if _, err := r.Decide(ctx, q); err != nil {
+			t.Fatal(err)
+		}
+	})
+	if allocs != 0 {
+		t.Fatalf("cache hit allocates %v per run", allocs)
+	}
+	// Swap to an index where the vent–humidity link is reversed: the decision
+	// must change, carry the new generation and not come from the cache.
+	b := newMemBuilder(2)
+	bed := b.entity("bed-tomato", "dry", "wet")
+	hum := b.entity("humidity-zone1", "high", "low")
+	vent := b.entity("vent-north", "closed", "open")
+	b.pair(vent, hum, 10, 90, 88, 12)
+	b.pair(hum, bed, 8, 92, 85, 15)
+	g2 := b.build()
+	if err := r.Swap(g2); err != nil {
+		t.Fatal(err)
+	}
+	if g1.closes.Load() != 1 {
+		t.Fatalf("old graph closed %d times", g1.closes.Load())
+	}
+	d3, err := r.Decide(ctx, q)
+	if err != nil || d3.Cached || d3.Generation != 2 || d3.Estimate[1] < 0.6 {
+		t.Fatalf("after swap: %+v %v", d3, err)
+	}
+	// Same content generation, new swap: still not served from the old entry.
+	g3 := greenhouse(2)
+	if err := r.Swap(g3); err != nil {
+		t.Fatal(err)
+	}
+	d4, _ := r.Decide(ctx, q)
+	if d4.Cached || d4.Estimate[0] < 0.6 {
+		t.Fatalf("after second swap: %+v", d4)
+	}
+	// The old decisions' slices stay readable after their graph is closed.
+	_ = d1.Values[0] + d1.Bridges[0]
+}
+
+func TestArmsDeterministicAndAllocated(t *testing.T) {
+	t.Parallel()
+	g := greenhouse(1)
+	weights := []ArmWeight{{ArmDirectOnly, 0.2}, {ArmRouted, 0.5}, {ArmChainAlways, 0.3}}
+	r1 := mustNew(t, g, WithArms(weights...))
+	r2 := mustNew(t, greenhouse(1), WithArms(weights...))
+	r3 := mustNew(t, greenhouse(1), WithArms(weights...), WithHashKey([]byte("0123456789abcdef")))
+	ctx := context.Background()
+	const n = 6000
+	counts := map[string]int{}
+	differ := 0
+	for i := 0; i < n; i++ {
+		q := Query{From: "vent-north", Value: "open", To: "bed-tomato", Key: fmt.Sprintf("user-%d", i)}
+		a, _ := r1.Decide(ctx, q)
+		b, _ := r2.Decide(ctx, q)
+		c, _ := r3.Decide(ctx, q)
+		if a.Arm != b.Arm {
+			t.Fatalf("key %s: arms %s vs %s across routers", q.Key, a.Arm, b.Arm)
+		}
+		if a.Arm != c.Arm {
+			differ++
+		}
+		counts[a.Arm]++
+		switch a.Arm {
+		case ArmDirectOnly:
+			if a.Mode != ModeDirect || a.Reason.Code != ReasonArmDirectOnly {
+				t.Fatalf("direct-only arm: %+v", a)
+			}
+		case ArmChainAlways:
+			if a.Mode != ModeChain || a.Reason.Code != ReasonArmChainAlways {
+				t.Fatalf("chain-always arm: %+v", a)
+			}
+		}
+	}
+	// Pearson chi-square, 2 degrees of freedom; 13.82 is the 0.999 quantile
+	// (standard chi-square table, from memory).
+	var chi2 float64
+	for _, w := range weights {
+		e := w.Weight * n
+		d := float64(counts[w.Arm]) - e
+		chi2 += d * d / e
+	}
+	if chi2 > 13.82 {
+		t.Fatalf("allocation %v: chi-square %.2f > 13.82", counts, chi2)
+	}
+	if differ < n/3 {
+		t.Fatalf("another hash key changed only %d of %d assignments", differ, n)
+	}
+}
+
+func TestExplorationPropensity(t *testing.T) {
+	t.Parallel()
+	const eps = 0.2
+	r := mustNew(t, greenhouse(1), WithExploration(eps, "season-1"))
+	r2 := mustNew(t, greenhouse(1), WithExploration(eps, "season-2"))
+	ctx := context.Background()
+	const n = 5000
+	explored, same := 0, 0
+	for i := 0; i < n; i++ {
+		q := Query{From: "vent-north", Value: "open", To: "bed-tomato", Key: fmt.Sprintf("k%d", i)}
+		d, _ := r.Decide(ctx, q)
+		again, _ := r.Decide(ctx, q)
+		if again.Mode != d.Mode || again.Propensity != d.Propensity {
+			t.Fatal("exploration is not deterministic per key")
+		}
+		d2, _ := r2.Decide(ctx, q)
+		if d2.Explored == d.Explored {
+			same++
+		}
+		if d.Explored {
+			explored++
+			if d.Mode != ModeDirect || d.Propensity != eps || d.Reason.Code != ReasonExplore {
+				t.Fatalf("explored: %+v", d)
+			}
+		} else if d.Mode != ModeChain || d.Propensity != 1-eps {
+			t.Fatalf("not explored: %+v", d)
+		}
+	}
+	// Binomial(5000, 0.2): sd = sqrt(5000·0.2·0.8) ≈ 28.3; allow 5 sd.
+	if math.Abs(float64(explored)-eps*n) > 5*28.3 {
+		t.Fatalf("explored %d of %d, want ≈ %v", explored, n, eps*n)
+	}
+	// Independent salts agree on about 0.8² + 0.2² = 0.68 of units.
+	if f := float64(same) / n; math.Abs(f-0.68) > 0.05 {
+		t.Fatalf("salts agree on %.3f of units, want ≈ 0.68", f)
+	}
+	// No chain: only direct is possible, propensity 1.
+	b := newMemBuilder(3)
+	a := b.entity("pump-1", "off", "on")
+	c := b.entity("pump-2", "off", "on")
+	b.pair(a, c, 5, 1, 1, 5)
+	r3 := mustNew(t, b.build(), WithExploration(eps, "x"))
+	for i := 0; i < 50; i++ {
+		d, _ := r3.Decide(ctx, Query{From: "pump-1", Value: "on", To: "pump-2", Key: fmt.Sprint(i)})
+		if d.Mode != ModeDirect || d.Propensity != 1 || d.Explored || d.Reason.Code != ReasonNoChain {
+			t.Fatalf("no chain: %+v", d)
+		}
+	}
+}
+
+// TestSwapStress: 8 goroutines decide while the index is swapped; every
+// retired graph is closed exactly once and never used afterwards (memGraph
+// panics on use after Close).
+func TestSwapStress(t *testing.T) {
+	t.Parallel()
+	graphs := make([]*memGraph, 40)
+	for i := range graphs {
+		graphs[i] = randomGraph(uint64(100+i%4), 14, 0.35)
+		graphs[i].gen = uint64(i + 1)
+	}
+	var retired atomic.Int32
+	r, err := NewWithRetireHook(graphs[0], func(old Graph, err error) { retired.Add(1) }, WithCacheSize(64))
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx := context.Background()
+	stop := make(chan struct{})
+	var wg sync.WaitGroup
+	var decisions atomic.Int64
+	errs := make(chan error, 8)
+	for w := 0; w < 8; w++ {
+		wg.Add(1)
+		go func(w int) {
+			defer wg.Done()
+			for i := 0; ; i++ {
+				select {
+				case <-stop:
+					return
+				default:
+				}
+				s, tt := (i+w)%14, (i*7+w+1)%14
+				if s == tt {
+					continue
+				}
+				q := Query{From: fmt.Sprintf("bed%02d", s), Value: "dry", To: fmt.Sprintf("bed%02d", tt), Key: fmt.Sprint(i)}
+				d, err := r.Decide(ctx, q)
+				if err != nil {
+					errs <- err
+					return
+				}
+				if d.Generation == 0 || len(d.Values) == 0 {
+					errs <- fmt.Errorf("bad decision %+v", d)
+					return
+				}
+				decisions.Add(1)
+			}
+		}(w)
+	}
+	for i := 1; i < len(graphs); i++ {
+		time.Sleep(2 * time.Millisecond)
+		if err := r.Swap(graphs[i]); err != nil {
+			t.Fatal(err)
+		}
+	}
+	time.Sleep(2 * time.Millisecond)
+	close(stop)
+	wg.Wait()
+	select {
+	case err := <-errs:
+		t.Fatal(err)
+	default:
+	}
+	r.Close()
+	for i, g := range graphs {
+		if c := g.closes.Load(); c != 1 {
+			t.Fatalf("graph %d closed %d times", i, c)
+		}
+	}
+	if retired.Load() != int32(len(graphs)) {
+		t.Fatalf("retire hook ran %d times, want %d", retired.Load(), len(graphs))
+	}
+	if decisions.Load() < 100 {
+		t.Fatalf("only %d decisions during the stress", decisions.Load())
+	}
+	t.Logf("%d decisions across %d swaps", decisions.Load(), len(graphs)-1)
+}
+
+func TestConcurrentReconfigure(t *testing.T) {
+	t.Parallel()
+	r := mustNew(t, greenhouse(1))
+	ctx := context.Background()
+	var wg sync.WaitGroup
+	for w := 0; w < 4; w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for i := 0; i < 300; i++ {
+				if _, err := r.Decide(ctx, Query{From: "vent-north", Value: "open", To: "bed-tomato"}); err != nil {
+					t.Error(err)
+					return
+				}
+			}
+		}()
+	}
+	for i := 0; i < 50; i++ {
+		if err := r.Reconfigure(WithGainThreshold(float64(i%2) * 10)); err != nil {
+			t.Fatal(err)
+		}
+	}
+	wg.Wait()
+	// The final configuration (τ = 10) is the one served.
+	d, _ := r.Decide(ctx, Query{From: "vent-north", Value: "open", To: "bed-tomato"})
+	if d.Mode != ModeDirect {
+		t.Fatalf("stale configuration served: %+v", d)
+	}
+}
