@@ -273,7 +273,10 @@ func TestBadInput(t *testing.T) {
 		func() error { _, e := Wilson(1, 3, 1.5); return e }(),
 		func() error { _, e := NewcombeDiff(1, 0, 1, 2, 0.95); return e }(),
 		func() error { _, e := TwoProportionZ(-1, 3, 1, 2); return e }(),
-		func() error { _, e := BootstrapMeanDiff(nil, []float64{1}, 10, 0.95, rand.New(rand.NewPCG(1, 1))); return e }(),
+		func() error {
+			_, e := BootstrapMeanDiff(nil, []float64{1}, 10, 0.95, rand.New(rand.NewPCG(1, 1)))
+			return e
+		}(),
 		func() error { _, e := PercentileInterval(0, []float64{math.NaN()}, 0.95); return e }(),
 	} {
 		if !errors.Is(err, ErrInput) {
