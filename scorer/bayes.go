@@ -55,15 +55,22 @@ import (
 //
 // Cost O(Σ_k K_(k−1)·K_k·K_t + m·K²) = O(m·K³) time for K values per entity,
 // O(m·K²) workspace, one allocation (Dist). The linearisation neglects terms
-// of relative order 1/n (n the row counts); for rows with only a handful of
-// counts it can understate the variance, which the prior mass partly offsets.
+// of relative order 1/n (n the row counts): the exact posterior variance is
+// the same sum with x_(k−1)[r]² replaced by E[x_(k−1)[r]²] (law of total
+// variance, one edge at a time), so the delta value is a lower bound. With
+// row totals ≥ 20 it stays within a few percent of a Monte Carlo of
+// posterior draws; with rows of 1–8 counts it fell 8–17% short in the
+// tests. WithVariance(ExactMoments) computes the exact value at the same
+// O(m·K³) cost.
 type Bayes struct {
 	alpha, beta, edgeN0 float64
+	variance            Variance
 }
 
 // NewBayes returns the valued Dirichlet model. Options: WithAlpha (α > 0,
 // default 1), WithBeta (β ≥ 0, default DefaultBeta), WithEdgeN0 (> 0, default
-// 2α+1). WithV0 and WithN0 belong to the support model and are rejected with
+// 2α+1), WithVariance (DeltaMethod or ExactMoments, default DeltaMethod).
+// WithV0 and WithN0 belong to the support model and are rejected with
 // ErrBadOption.
 func NewBayes(opts ...Option) (*Bayes, error) {
 	c, err := buildConfig(opts)
@@ -76,11 +83,14 @@ func NewBayes(opts ...Option) (*Bayes, error) {
 	if !c.setEdgeN0 {
 		c.edgeN0 = 2*c.alpha + 1
 	}
-	return &Bayes{alpha: c.alpha, beta: c.beta, edgeN0: c.edgeN0}, nil
+	return &Bayes{alpha: c.alpha, beta: c.beta, edgeN0: c.edgeN0, variance: c.variance}, nil
 }
 
 // Name returns "bayes".
 func (b *Bayes) Name() string { return "bayes" }
+
+// Variance returns the chain-variance method.
+func (b *Bayes) Variance() Variance { return b.variance }
 
 // Alpha returns the Dirichlet pseudo-count α.
 func (b *Bayes) Alpha() float64 { return b.alpha }
@@ -220,6 +230,10 @@ func (b *Bayes) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridg
 		mk := dense(&ws.hB, ws.theta[ws.toff[k-1]:], kp, kc, kc)
 		dense(&ws.hC, ws.x[ws.xoff[k-1]:], 1, kc, kc).Mul(xp, mk)
 	}
+	if b.variance == ExactMoments {
+		ws.exactMoments(u, m, dist, vr)
+		return Estimate{Dist: dist, Err: sumClamped(vr) + b.beta*float64(m), Support: minSup}, nil
+	}
 
 	// Backward pass. P holds [R_(k−1) | M_k(R_k∘R_k)] with stride 2K_t and
 	// is turned into B_(k−1) = [R_(k−1) | R_(k−1)∘R_(k−1)] in place.
@@ -297,4 +311,69 @@ func sumClamped(xs []float64) float64 {
 		}
 	}
 	return s
+}
+
+// exactMoments runs the ExactMoments recursion (see Variance) for a path
+// of m ≥ 1 bridges whose means, row factors and forward vectors x̄_1..x̄_m
+// are loaded. It writes p̂ into dist and C_(m+1)[v,v] into vr. O(m·K³).
+func (ws *Workspace) exactMoments(u, m int, dist, vr []float64) {
+	kmax := 0
+	for _, k := range ws.ks {
+		kmax = max(kmax, k)
+	}
+	ws.bufA = growF(ws.bufA, kmax*kmax) // C
+	ws.bufB = growF(ws.bufB, kmax*kmax) // Y = (C − W) M̄
+	ws.mt = growF(ws.mt, kmax*kmax)     // M̄ᵀ
+	ws.w = growF(ws.w, kmax)
+	C, Y, mt, w := ws.bufA, ws.bufB, ws.mt, ws.w
+
+	// C_1 = (diag θ − θᵀθ)/c for θ = row u of M_1.
+	k1 := ws.ks[1]
+	th := ws.theta[u*k1 : u*k1+k1]
+	c := ws.cinv[u]
+	for i, ti := range th {
+		for j, tj := range th {
+			C[i*k1+j] = -c * ti * tj
+		}
+		C[i*k1+i] += c * ti
+	}
+	for k := 2; k <= m+1; k++ {
+		kp, kc := ws.ks[k-1], ws.ks[k]
+		x := ws.x[ws.xoff[k-2]:ws.xoff[k-1]] // x̄_(k−1)
+		ci := ws.cinv[ws.coff[k-1]:ws.coff[k]]
+		mkData := ws.theta[ws.toff[k-1]:ws.toff[k]]
+		for r := 0; r < kp; r++ {
+			w[r] = (C[r*kp+r] + x[r]*x[r]) * ci[r]
+			C[r*kp+r] -= w[r]
+		}
+		mk := dense(&ws.hB, mkData, kp, kc, kc)
+		dense(&ws.hC, Y, kp, kc, kc).Mul(dense(&ws.hA, C, kp, kp, kp), mk)
+		if k == m+1 {
+			// Only the diagonal of C_(m+1) is needed:
+			// C[v,v] = Σ_r M̄[r,v]·Y[r,v] + Σ_r w_r M̄[r,v].
+			for r := 0; r < kp; r++ {
+				for v := 0; v < kc; v++ {
+					vr[v] += mkData[r*kc+v] * (Y[r*kc+v] + w[r])
+				}
+			}
+			// p̂ = x̄_m M̄_(m+1).
+			dense(&ws.hC, dist, 1, kc, kc).Mul(dense(&ws.hA, x, 1, kp, kp), mk)
+			return
+		}
+		// C_k = M̄ᵀ Y + diag(M̄ᵀ w), with M̄ᵀ copied so that mat.Dense.Mul
+		// needs no transpose view.
+		for r := 0; r < kp; r++ {
+			for v := 0; v < kc; v++ {
+				mt[v*kp+r] = mkData[r*kc+v]
+			}
+		}
+		dense(&ws.hC, C, kc, kc, kc).Mul(dense(&ws.hA, mt, kc, kp, kp), dense(&ws.hB, Y, kp, kc, kc))
+		for v := 0; v < kc; v++ {
+			s := 0.0
+			for r := 0; r < kp; r++ {
+				s += mt[v*kp+r] * w[r]
+			}
+			C[v*kc+v] += s
+		}
+	}
 }

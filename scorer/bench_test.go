@@ -62,27 +62,29 @@ func BenchmarkBayesDirect(b *testing.B) {
 }
 
 func BenchmarkBayesChain(b *testing.B) {
-	for _, c := range []struct{ k, m int }{{2, 1}, {2, 3}, {8, 3}, {64, 3}} {
-		b.Run(fmt.Sprintf("K=%d/bridges=%d", c.k, c.m), func(b *testing.B) {
-			st := benchChain(c.k, c.m)
-			bridges := make([]graphidx.EntityID, c.m)
-			for i := range bridges {
-				bridges[i] = graphidx.EntityID(i + 2)
-			}
-			t := graphidx.EntityID(c.m + 2)
-			m := mustBayes(b)
-			ws := scorer.NewWorkspace()
-			var est scorer.Estimate
-			var err error
-			b.ReportAllocs()
-			for b.Loop() {
-				est, err = m.Chain(ws, st, 1, 0, bridges, t)
-			}
-			if err != nil {
-				b.Fatal(err)
-			}
-			checkEstimate(b, est, c.k)
-		})
+	for _, method := range []scorer.Variance{scorer.DeltaMethod, scorer.ExactMoments} {
+		for _, c := range []struct{ k, m int }{{2, 1}, {2, 3}, {8, 3}, {64, 3}} {
+			b.Run(fmt.Sprintf("%v/K=%d/bridges=%d", method, c.k, c.m), func(b *testing.B) {
+				st := benchChain(c.k, c.m)
+				bridges := make([]graphidx.EntityID, c.m)
+				for i := range bridges {
+					bridges[i] = graphidx.EntityID(i + 2)
+				}
+				t := graphidx.EntityID(c.m + 2)
+				m := mustBayes(b, scorer.WithVariance(method))
+				ws := scorer.NewWorkspace()
+				var est scorer.Estimate
+				var err error
+				b.ReportAllocs()
+				for b.Loop() {
+					est, err = m.Chain(ws, st, 1, 0, bridges, t)
+				}
+				if err != nil {
+					b.Fatal(err)
+				}
+				checkEstimate(b, est, c.k)
+			})
+		}
 	}
 }
 

@@ -193,6 +193,7 @@ func TestDeltaMethodMonteCarlo(t *testing.T) {
 		{chainCase{ks: []int{3, 3, 3}, nMin: 2, nMax: 8, conc: 1, seed: 11}, false},    // small counts
 	}
 	b := mustBayes(t, scorer.WithBeta(0))
+	bx := mustBayes(t, scorer.WithBeta(0), scorer.WithVariance(scorer.ExactMoments))
 	for i, tc := range cases {
 		t.Run(tc.c.String(), func(t *testing.T) {
 			t.Parallel()
@@ -206,6 +207,15 @@ func TestDeltaMethodMonteCarlo(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
+			ex, err := bx.Chain(nil, st, path[0], u, path[1:len(path)-1], path[len(path)-1])
+			if err != nil {
+				t.Fatal(err)
+			}
+			for v := range est.Dist {
+				if !near(ex.Dist[v], est.Dist[v], 1e-14) {
+					t.Errorf("ExactMoments Dist %v, DeltaMethod Dist %v", ex.Dist, est.Dist)
+				}
+			}
 			src := rand.NewPCG(tc.c.seed, 0xd1c)
 			post := posteriors(tables, 1, src)
 			exact := exactChainVariance(post, u)
@@ -217,6 +227,11 @@ func TestDeltaMethodMonteCarlo(t *testing.T) {
 			// (relative sd of a variance estimate ≈ √(2/draws) ≈ 1%).
 			if math.Abs(mc-exact) > 0.05*exact {
 				t.Errorf("Monte Carlo %.4e disagrees with exact %.4e", mc, exact)
+			}
+			// ExactMoments reproduces the test's independent recursion
+			// (gonum mat + distmv) to rounding, small counts included.
+			if math.Abs(ex.Err-exact) > 1e-10*exact {
+				t.Errorf("ExactMoments %.12e, reference recursion %.12e", ex.Err, exact)
 			}
 			if est.Err > exact*(1+1e-9) {
 				t.Errorf("delta %.6e above exact %.6e; it must be a lower bound", est.Err, exact)

@@ -1,6 +1,21 @@
 // Package scorer turns locality-index statistics into estimates and expected
 // errors for direct answers and for answers chained through bridge entities.
 //
+// Two models implement Model:
+//
+//   - Bayes, for valued corpora: Dirichlet posteriors of the local
+//     conditionals (Gelman et al., BDA 3rd ed. §2.4, §3.4), a chained
+//     estimate p̂ = e_uᵀ M_1…M_(m+1) built with gonum/mat, its delta-method
+//     (or exact-moment) variance, and a per-hop squared bias β·m.
+//   - Support, for presence-only corpora: err(edge) = v0/(support + n0),
+//     err(chain) = Σ_edges err(edge) + β·m.
+//
+// Combine merges independent chains by inverse-error weighting.
+//
+// The scorer reads statistics through the small Stats interface, which
+// *graphidx.Index satisfies. Value indexes follow each entity's value labels
+// in ascending byte order.
+//
 // Concurrency: models are immutable after construction and safe for
 // concurrent use; per-call scratch space comes from a Workspace that must not
 // be shared between goroutines.

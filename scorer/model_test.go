@@ -39,6 +39,8 @@ func TestConstructorsRejectBadOptions(t *testing.T) {
 		{"support β<0", support(scorer.WithBeta(-1))},
 		{"support α=0", support(scorer.WithAlpha(0))},
 		{"support given edge n0", support(scorer.WithEdgeN0(2))},
+		{"bayes unknown variance", bayes(scorer.WithVariance(scorer.Variance(7)))},
+		{"support given variance", support(scorer.WithVariance(scorer.ExactMoments))},
 		{"later bad option wins", bayes(scorer.WithAlpha(2), scorer.WithBeta(-3))},
 	} {
 		if !errors.Is(c.err, scorer.ErrBadOption) {
@@ -64,8 +66,11 @@ func TestOptionsTakeEffect(t *testing.T) {
 	if got := b2.EdgeCost(0); got != 0.1 {
 		t.Errorf("EdgeCost(0) with n0=5: %g, want 0.1", got)
 	}
+	if e, _ := scorer.NewBayes(scorer.WithVariance(scorer.ExactMoments)); e.Variance() != scorer.ExactMoments || e.Variance().String() != "exact" {
+		t.Errorf("WithVariance(ExactMoments) not applied: %v", e.Variance())
+	}
 	d, _ := scorer.NewBayes()
-	if d.Alpha() != scorer.DefaultAlpha || d.HopBias() != scorer.DefaultBeta {
+	if d.Variance() != scorer.DeltaMethod || d.Alpha() != scorer.DefaultAlpha || d.HopBias() != scorer.DefaultBeta {
 		t.Errorf("defaults alpha %g beta %g", d.Alpha(), d.HopBias())
 	}
 	// EdgeCost decreases with support (candidate generation relies on it).

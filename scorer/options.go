@@ -39,6 +39,8 @@ type config struct {
 	alpha, beta, v0, n0, edgeN0       float64
 	setV0, setN0, setEdgeN0, setAlpha bool
 	setBeta                           bool
+	variance                          Variance
+	setVariance                       bool
 }
 
 func defaultConfig() config {
@@ -104,6 +106,51 @@ func WithEdgeN0(n0 float64) Option {
 			return fmt.Errorf("%w: WithEdgeN0(%v): n0 must be finite and > 0", ErrBadOption, n0)
 		}
 		c.edgeN0, c.setEdgeN0 = n0, true
+		return nil
+	})
+}
+
+// Variance selects how the Bayes model computes the variance of a chained
+// estimate.
+type Variance int
+
+const (
+	// DeltaMethod is the first-order (delta-method) variance of DESIGN.md §3,
+	// computed by a backward pass over suffix products. It is a lower bound
+	// on the exact posterior variance, short by a relative O(1/n) for rows of
+	// n counts. The default.
+	DeltaMethod Variance = iota
+	// ExactMoments propagates the covariance of the random row vector
+	// x_k = x_(k−1) M_k exactly (rows independent a posteriori):
+	//
+	//	C_k = M̄_kᵀ (C_(k−1) − W_k) M̄_k + diag(M̄_kᵀ w_k),
+	//	w_k[r] = (C_(k−1)[r,r] + x̄_(k−1)[r]²) / (n_r + K_k α + 1),  W_k = diag(w_k),
+	//
+	// from C_0 = 0, x̄_0 = e_u, and Err = trace(C_(m+1)) + β·m. Same O(m·K³)
+	// cost as DeltaMethod (two K×K products per edge). Setting
+	// C_(k−1)[r,r] to 0 in w_k gives back the delta method.
+	ExactMoments
+)
+
+// String returns "delta" or "exact".
+func (v Variance) String() string {
+	switch v {
+	case DeltaMethod:
+		return "delta"
+	case ExactMoments:
+		return "exact"
+	}
+	return fmt.Sprintf("Variance(%d)", int(v))
+}
+
+// WithVariance selects the chain-variance method of the Bayes model
+// (DeltaMethod by default). Bayes model only.
+func WithVariance(v Variance) Option {
+	return optionFunc(func(c *config) error {
+		if v != DeltaMethod && v != ExactMoments {
+			return fmt.Errorf("%w: WithVariance(%d): unknown method", ErrBadOption, int(v))
+		}
+		c.variance, c.setVariance = v, true
 		return nil
 	})
 }

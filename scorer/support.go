@@ -32,6 +32,9 @@ func NewSupport(opts ...Option) (*Support, error) {
 	if err != nil {
 		return nil, err
 	}
+	if c.setVariance {
+		return nil, fmt.Errorf("%w: WithVariance applies to the Bayes model only", ErrBadOption)
+	}
 	if c.setEdgeN0 {
 		return nil, fmt.Errorf("%w: WithEdgeN0 applies to the Bayes model only (the support model's edge cost is v0/(support+n0))", ErrBadOption)
 	}

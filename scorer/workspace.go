@@ -27,6 +27,7 @@ type Workspace struct {
 
 	bufA, bufB []float64 // backward products [R | ·] (K_(k−1) × 2K_t)
 	vr         []float64 // Σ_v accumulators, length K_t
+	mt, w      []float64 // ExactMoments: M̄ᵀ and row weights
 
 	// gonum headers over the buffers above (set with SetRawMatrix, so that
 	// no mat.Dense is allocated per call).
