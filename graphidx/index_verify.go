@@ -13,7 +13,8 @@ func (v *view) verifyFull() error {
 
 // checkStructure validates the invariants every reader relies on for
 // correct (not merely safe) answers. It assumes checkHeader and
-// checkLabels passed. Cost: O(file size + E·(log deg + K²)).
+// checkLabels passed. Cost: O(file size + E·(log deg + K²)) time and
+// 8 bytes per directed edge of temporary memory.
 func (v *view) checkStructure() error {
 	n := v.n
 	h := &v.h
@@ -89,20 +90,15 @@ func (v *view) checkStructure() error {
 			}
 		}
 	}
-	// Symmetry: each upper edge (i, h) has its mirror in h's lower part.
-	// Both directions hold exactly P entries, so this makes them a bijection.
-	for i := uint64(0); i < n; i++ {
-		up, _ := v.upperNeighbors(EntityID(i))
-		for _, hi := range up {
-			if _, found := slices.BinarySearch(v.neighbors(hi), EntityID(i)); !found {
-				return corruptf(ErrCorrupt, "edge (%d, %d) has no mirror", i, hi)
-			}
-		}
-	}
-	// Pair tables, in stored order.
+	// Pair tables in stored order, with the symmetry of the adjacency: each
+	// upper edge (lo, hi) must have its mirror in hi's lower part. Both
+	// directions hold exactly P entries, so this makes them a bijection.
+	// edgeSup[j] records the support of adjacency entry j for the rank check
+	// (temporary O(E) memory).
 	if !v.uniform && (v.pairOffs[0] != 0 || v.pairOffs[h.Pairs] != uint64(len(v.counts))) {
 		return corruptf(ErrCorrupt, "pair offsets do not span the counts")
 	}
+	edgeSup := make([]uint64, len(v.nbrs))
 	var q uint64
 	for lo := uint64(0); lo < n; lo++ {
 		up, base := v.upperNeighbors(EntityID(lo))
@@ -111,9 +107,14 @@ func (v *view) checkStructure() error {
 		}
 		ka := v.numValues(EntityID(lo))
 		mlo := v.marginal(EntityID(lo))
-		for _, hi := range up {
+		upStart := v.nbrOffs[lo+1] - uint64(len(up))
+		for k, hi := range up {
+			t, found := slices.BinarySearch(v.neighbors(hi), EntityID(lo))
+			if !found {
+				return corruptf(ErrCorrupt, "edge (%d, %d) has no mirror", lo, hi)
+			}
 			kb := v.numValues(hi)
-			t, ok := v.table(q, ka*kb)
+			tab, ok := v.table(q, ka*kb)
 			if !ok {
 				return corruptf(ErrCorrupt, "pair (%d, %d): table offsets invalid", lo, hi)
 			}
@@ -123,7 +124,7 @@ func (v *view) checkStructure() error {
 			for u := 0; u < ka; u++ {
 				var row uint64
 				for w := 0; w < kb; w++ {
-					c := uint64(t[u*kb+w])
+					c := uint64(tab[u*kb+w])
 					row += c
 					col[w] += c
 				}
@@ -140,6 +141,8 @@ func (v *view) checkStructure() error {
 			if sup == 0 {
 				return corruptf(ErrCorrupt, "pair (%d, %d) has zero support", lo, hi)
 			}
+			edgeSup[upStart+uint64(k)] = sup
+			edgeSup[v.nbrOffs[hi]+uint64(t)] = sup
 			q++
 		}
 	}
@@ -148,10 +151,6 @@ func (v *view) checkStructure() error {
 		return corruptf(ErrCorrupt, "rank offsets do not span the ranked neighbours")
 	}
 	R := uint64(h.RankPrefix)
-	support := func(a, b EntityID) uint64 {
-		ps, _ := v.pair(a, b)
-		return ps.Support()
-	}
 	for i := uint64(0); i < n; i++ {
 		s, e, ok := span(v.rankOffs, i, len(v.rank))
 		nb := v.neighbors(EntityID(i))
@@ -159,12 +158,14 @@ func (v *view) checkStructure() error {
 			return corruptf(ErrCorrupt, "entity %d: ranked prefix length invalid", i)
 		}
 		pre := v.rank[s:e]
+		sups := edgeSup[v.nbrOffs[i]:v.nbrOffs[i+1]]
 		var lastSup uint64
 		for j, id := range pre {
-			if _, found := slices.BinarySearch(nb, id); !found {
+			t, found := slices.BinarySearch(nb, id)
+			if !found {
 				return corruptf(ErrCorrupt, "entity %d: ranked neighbour %d is not a neighbour", i, id)
 			}
-			sup := support(EntityID(i), id)
+			sup := sups[t]
 			if j > 0 && (sup > lastSup || (sup == lastSup && id <= pre[j-1])) {
 				return corruptf(ErrCorrupt, "entity %d: ranked neighbours out of order at %d", i, j)
 			}
@@ -175,9 +176,8 @@ func (v *view) checkStructure() error {
 			// must be in the prefix: exactly len(pre) of them.
 			last := pre[len(pre)-1]
 			cnt := 0
-			for _, id := range nb {
-				sup := support(EntityID(i), id)
-				if sup > lastSup || (sup == lastSup && id <= last) {
+			for t, id := range nb {
+				if sups[t] > lastSup || (sups[t] == lastSup && id <= last) {
 					cnt++
 				}
 			}

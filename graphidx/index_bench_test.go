@@ -1,0 +1,190 @@
+package graphidx
+
+import (
+	"fmt"
+	"math/rand/v2"
+	"os"
+	"testing"
+	"time"
+
+	lru "github.com/hashicorp/golang-lru/v2"
+)
+
+// benchIndex writes and opens a random index of n entities with average
+// degree deg and k values each.
+func benchIndex(b *testing.B, n, deg, k int) (*Index, *ixSource) {
+	b.Helper()
+	src := ixRandomSource(n, deg, k, 42)
+	x, err := Open(ixWriteTemp(b, src), WithLazyVerify())
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.Cleanup(func() { x.Close() })
+	return x, src
+}
+
+// pairQueries draws stored pairs in random order and orientation.
+func pairQueries(src *ixSource, m int) [][2]EntityID {
+	rng := rand.New(rand.NewPCG(1, 2))
+	q := make([][2]EntityID, m)
+	for i := range q {
+		p := src.pairs[rng.IntN(len(src.pairs))]
+		if rng.IntN(2) == 0 {
+			q[i] = [2]EntityID{p.A, p.B}
+		} else {
+			q[i] = [2]EntityID{p.B, p.A}
+		}
+	}
+	return q
+}
+
+// BenchmarkPair measures Pair on stored pairs of a 100k-entity binary index
+// (average degree 16), directly and behind a golang-lru cache big enough to
+// hold every query (the best case for a cache: 100% hits after warm-up), on
+// a small working set (fits the CPU cache) and a large one. It exists to
+// decide whether Index should cache pair lookups.
+func BenchmarkPair(b *testing.B) {
+	x, src := benchIndex(b, 100_000, 16, 2)
+	for _, ws := range []int{1 << 12, 1 << 16} {
+		q := pairQueries(src, ws)
+		cache, err := lru.New[uint64, PairStats](2 * ws)
+		if err != nil {
+			b.Fatal(err)
+		}
+		cached := func(a, c EntityID) (PairStats, bool) {
+			key := uint64(a)<<32 | uint64(c)
+			if ps, ok := cache.Get(key); ok {
+				return ps, true
+			}
+			ps, ok := x.Pair(a, c)
+			if ok {
+				cache.Add(key, ps)
+			}
+			return ps, ok
+		}
+		for _, qq := range q {
+			cached(qq[0], qq[1])
+		}
+		for _, mode := range []struct {
+			name string
+			get  func(a, c EntityID) (PairStats, bool)
+		}{{"direct", x.Pair}, {"lru", cached}} {
+			b.Run(fmt.Sprintf("%s/ws=%d", mode.name, ws), func(b *testing.B) {
+				var sum uint64
+				i := 0
+				b.ReportAllocs()
+				for b.Loop() {
+					ps, ok := mode.get(q[i][0], q[i][1])
+					if !ok {
+						b.Fatal("stored pair not found")
+					}
+					sum += uint64(ps.Count(0, 0))
+					i = (i + 1) & (len(q) - 1)
+				}
+				if sum == 0 {
+					b.Fatal("no counts read")
+				}
+			})
+		}
+	}
+}
+
+// BenchmarkPairHub measures Pair against a hub with 200k neighbours.
+func BenchmarkPairHub(b *testing.B) {
+	const n = 200_001
+	ents := make([]EntityRecord, n)
+	for i := range ents {
+		ents[i] = EntityRecord{Name: ixName(i), Values: []string{"off", "on"}, Marginal: []uint64{1, 1}}
+	}
+	ents[0].Marginal = []uint64{n, n}
+	pairs := make([]PairRecord, n-1)
+	for i := range pairs {
+		pairs[i] = PairRecord{A: 0, B: EntityID(i + 1), Counts: []uint32{1, 0, 0, 1}}
+	}
+	src := &ixSource{contexts: 2 * n, ents: ents, pairs: pairs}
+	x, err := Open(ixWriteTemp(b, src), WithLazyVerify())
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer x.Close()
+	rng := rand.New(rand.NewPCG(3, 4))
+	ids := make([]EntityID, 1<<12)
+	for i := range ids {
+		ids[i] = EntityID(1 + rng.IntN(n-1))
+	}
+	i, hits := 0, 0
+	b.ReportAllocs()
+	for b.Loop() {
+		if _, ok := x.Pair(0, ids[i]); ok {
+			hits++
+		}
+		i = (i + 1) & (len(ids) - 1)
+	}
+	if hits == 0 {
+		b.Fatal("no hub pair found")
+	}
+}
+
+// BenchmarkLookup measures name lookup (binary search over sorted names).
+func BenchmarkLookup(b *testing.B) {
+	x, src := benchIndex(b, 100_000, 4, 2)
+	rng := rand.New(rand.NewPCG(5, 6))
+	names := make([]string, 1<<12)
+	for i := range names {
+		names[i] = src.ents[rng.IntN(len(src.ents))].Name
+	}
+	i, found := 0, 0
+	b.ReportAllocs()
+	for b.Loop() {
+		if _, ok := x.Lookup(names[i]); ok {
+			found++
+		}
+		i = (i + 1) & (len(names) - 1)
+	}
+	if found == 0 {
+		b.Fatal("nothing found")
+	}
+}
+
+// BenchmarkNeighbors measures Neighbors and RankedNeighbors.
+func BenchmarkNeighbors(b *testing.B) {
+	x, _ := benchIndex(b, 100_000, 16, 2)
+	var total int
+	id := EntityID(0)
+	b.ReportAllocs()
+	for b.Loop() {
+		total += len(x.Neighbors(id)) + len(x.RankedNeighbors(id))
+		id = (id + 7919) % 100_000
+	}
+	if total == 0 {
+		b.Fatal("no neighbours")
+	}
+}
+
+// BenchmarkOpen1M opens a 1M-entity binary index (average degree 8):
+// lazily (header, section table, label tables) and fully verified.
+func BenchmarkOpen1M(b *testing.B) {
+	src := ixRandomSource(1_000_000, 8, 2, 9)
+	start := time.Now()
+	path := ixWriteTemp(b, src)
+	st, _ := os.Stat(path)
+	b.Logf("wrote %d entities, %d pairs, %d bytes in %v", len(src.ents), len(src.pairs), st.Size(), time.Since(start))
+	for _, tc := range []struct {
+		name string
+		opts []OpenOption
+	}{{"lazy", []OpenOption{WithLazyVerify()}}, {"full", nil}} {
+		b.Run(tc.name, func(b *testing.B) {
+			b.ReportAllocs()
+			for b.Loop() {
+				x, err := Open(path, tc.opts...)
+				if err != nil {
+					b.Fatal(err)
+				}
+				if x.NumEntities() != 1_000_000 {
+					b.Fatal("wrong entity count")
+				}
+				x.Close()
+			}
+		})
+	}
+}
