@@ -441,3 +441,42 @@ func TestRandomBridges(t *testing.T) {
 		t.Errorf("err = %v, want ErrTooFewVariables", err)
 	}
 }
+
+// TestTrueConditionalConcurrent exercises the inference cache from several
+// goroutines (run with -race) and checks every answer against an uncached
+// posterior.
+func TestTrueConditionalConcurrent(t *testing.T) {
+	t.Parallel()
+	w, err := Generate(Config{Vars: 40, Edges: 50}, 9)
+	if err != nil {
+		t.Fatal(err)
+	}
+	errs := make(chan error, 4)
+	for g := range 4 {
+		go func() {
+			r := rand.New(rand.NewPCG(uint64(g), 1))
+			for range 200 {
+				a, b, u := r.IntN(40), r.IntN(40), r.IntN(2)
+				got, err := w.TrueConditional(a, u, b)
+				if errors.Is(err, ErrImpossibleEvidence) {
+					continue
+				}
+				if err != nil {
+					errs <- err
+					return
+				}
+				want, _ := w.Posterior(b, map[int]int{a: u})
+				if math.Abs(got[0]-want[0]) > 1e-12 {
+					errs <- errors.New("cached conditional differs from posterior")
+					return
+				}
+			}
+			errs <- nil
+		}()
+	}
+	for range 4 {
+		if err := <-errs; err != nil {
+			t.Error(err)
+		}
+	}
+}

@@ -60,8 +60,16 @@ type Condition struct {
 	// centre is dropped from the context. The centre is never dropped, so a
 	// context always observes at least one variable. In [0, 1).
 	Drop float64
-	// KeepHeldOut disables held-out enforcement (for ablations only): when
-	// false (the default) no context observes both members of a held-out pair.
+	// KeepHeldOut disables held-out enforcement (for ablations only). When
+	// false (the default) no context observes both members of a held-out
+	// pair: the variables of a context are visited in order — breadth-first
+	// from the centre for Local and Wrong, the centre and then a uniformly
+	// random order for Full — and a variable whose held-out partner was
+	// already accepted is removed (counted in SampleStats.HeldOutDrops). So
+	// under Local and Wrong the member nearer the centre stays, and under Full
+	// each member of an isolated pair stays half of the time. (Visiting Full
+	// contexts breadth-first instead would favour the same member so often
+	// that many unrelated pairs would lose all support.)
 	KeepHeldOut bool
 	// IDPrefix precedes the 1-based context number in ids (default "c").
 	IDPrefix string
@@ -307,33 +315,37 @@ func (s *Sampler) Next() Context {
 			radius = 1 + s.geo.Rand(s.rng)
 		}
 	}
-	// Breadth-first ball.
 	s.order = append(s.order[:0], centre)
-	s.seen[centre] = s.stamp
-	s.depth[centre] = 0
-	for i := 0; i < len(s.order); i++ {
-		v := s.order[i]
-		if s.depth[v] >= radius {
-			continue
-		}
-		for _, u := range s.adj[v] {
-			if s.seen[u] != s.stamp {
-				s.seen[u] = s.stamp
-				s.depth[u] = s.depth[v] + 1
-				s.order = append(s.order, u)
-			}
-		}
-	}
 	if s.cond.Locality == Full {
+		// Every variable, the centre first and the rest in uniformly random
+		// order.
 		for v := range n {
-			if s.seen[v] != s.stamp {
-				s.seen[v] = s.stamp
+			if v != centre {
 				s.order = append(s.order, v)
 			}
 		}
+		rest := s.order[1:]
+		s.rng.Shuffle(len(rest), func(i, j int) { rest[i], rest[j] = rest[j], rest[i] })
+	} else {
+		// Breadth-first ball.
+		s.seen[centre] = s.stamp
+		s.depth[centre] = 0
+		for i := 0; i < len(s.order); i++ {
+			v := s.order[i]
+			if s.depth[v] >= radius {
+				continue
+			}
+			for _, u := range s.adj[v] {
+				if s.seen[u] != s.stamp {
+					s.seen[u] = s.stamp
+					s.depth[u] = s.depth[v] + 1
+					s.order = append(s.order, u)
+				}
+			}
+		}
 	}
-	// Drop, then enforce held-out pairs in BFS order: the member nearer the
-	// centre (reached first) stays.
+	// Drop, then enforce held-out pairs along s.order: of two held-out
+	// partners, the one met first stays.
 	for i, v := range s.order {
 		if i > 0 && s.cond.Drop > 0 && s.rng.Float64() < s.cond.Drop {
 			s.stats.Dropped++
