@@ -1,0 +1,37 @@
+// Package ope estimates, from logged routing decisions, the value a
+// different routing policy would have had: off-policy evaluation of
+// threshold policies "chain when score ≥ τ and the chain has at most H
+// bridges, else direct".
+//
+// Each logged sample i carries the logged mode a_i, the propensity
+// p_i = π0(a_i | x_i) with which the logging policy chose it, a sampling
+// weight w_i = 1/(trace sampling ratio), the reward r_i (outcome score, or
+// score − cost) and the cost c_i. With the target mode t_i = π(x_i), the
+// match m_i = 1[t_i = a_i] and the logging probability of the target mode
+// π0(t_i | x_i) (p_i when they match, 1 − p_i otherwise, modes being
+// binary):
+//
+//	IPS    V = Σ w_i m_i r_i / p_i  /  Σ w_i
+//	SNIPS  V = Σ w_i m_i r_i / p_i  /  Σ w_i m_i / p_i
+//	DR     V = Σ w_i [ q̂(x_i, t_i) + m_i (r_i − q̂(x_i, a_i)) / p_i ]  /  Σ w_i
+//
+// (Horvitz & Thompson 1952; Swaminathan & Joachims 2015 for SNIPS; Dudík,
+// Langford & Li 2011 for DR). The outcome model q̂ is a weighted binned
+// regression of the reward on the routing score, fitted per mode on the
+// logs (see FitBinned). The effective sample size is Kish's
+// (Σ v_i)² / Σ v_i² with v_i = w_i m_i / p_i.
+//
+// Intervals are percentile intervals of a Poisson bootstrap (each sample
+// drawn Poisson(1) times per replicate, common practice; Hanley &
+// MacGibbon 2006), the outcome model held fixed.
+//
+// A policy is not estimated — its result says why — when some sample would
+// need a mode the logging policy took with probability below the floor (a
+// deterministic logger never supports the other mode), or when its
+// effective sample size is below the minimum. Missing propensities make
+// the whole evaluation fail with ErrMissingPropensity.
+//
+// Sweep evaluates a whole grid of (τ, H) in O(reps·(n + G·H)) time by
+// bucketing each sample at the largest τ and smallest H for which the
+// target policy chains, then taking 2-D suffix/prefix sums.
+package ope
