@@ -80,3 +80,45 @@ func BenchmarkPickHeldOut(b *testing.B) {
 		b.Fatal("no pairs")
 	}
 }
+
+// BenchmarkGreenhouse builds the demo world (including its held-out search)
+// and writes 50k local-geometric contexts as JSONL to io.Discard.
+func BenchmarkGreenhouse(b *testing.B) {
+	cond, _ := ConditionByName(CondLocalGeometric)
+	b.ReportAllocs()
+	var st SampleStats
+	for b.Loop() {
+		w, err := Greenhouse(1)
+		if err != nil {
+			b.Fatal(err)
+		}
+		st, err = w.WriteCorpus(context.Background(), io.Discard, 50000, cond, 1)
+		if err != nil {
+			b.Fatal(err)
+		}
+	}
+	if st.Contexts != 50000 {
+		b.Fatalf("stats %+v", st)
+	}
+	b.ReportMetric(float64(st.Observations)/50000, "obs/ctx")
+}
+
+// BenchmarkPosterior is one uncached exact query with one observed variable
+// in a 100-variable, 100-edge world.
+func BenchmarkPosterior(b *testing.B) {
+	w := benchWorld(b)
+	p := w.HeldOut()[0]
+	ev := map[int]int{p[0]: 1}
+	b.ReportAllocs()
+	var q []float64
+	for b.Loop() {
+		var err error
+		q, err = w.Posterior(p[1], ev)
+		if err != nil {
+			b.Fatal(err)
+		}
+	}
+	if s := q[0] + q[1]; s < 0.999999 || s > 1.000001 {
+		b.Fatalf("sum %v", s)
+	}
+}

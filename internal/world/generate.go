@@ -54,6 +54,13 @@ type Config struct {
 	MinHeldOutMI float64
 }
 
+// EvalConfig returns the world of the eval targets: 100 binary
+// variables, 100 edges, default Beta(0.2, 0.2) CPTs and 30 held-out pairs of
+// mutual information ≥ 0.01 nats.
+func EvalConfig() Config {
+	return Config{Vars: 100, Edges: 100, HeldOut: 30}
+}
+
 func (c Config) withDefaults() (Config, error) {
 	if c.Vars == 0 {
 		c.Vars = 100

@@ -115,7 +115,7 @@ func sumOut(f *factor, x int) *factor {
 }
 
 // cptFactor returns the CPT of v as a factor, restricted to the evidence.
-// O(2^|family| · ...) = O(table size).
+// O(size of the restricted table).
 func (w *World) cptFactor(v int, ev map[int]int) *factor {
 	fam := append([]int{v}, w.parents[v]...)
 	// CPT index weight of each family member.

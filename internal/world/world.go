@@ -392,10 +392,12 @@ func (w *World) IsHeldOut(a, b int) bool {
 }
 
 // Supported returns the pairs the eval treats as well supported: every
-// directed edge (parent, child) of the network. Adjacent variables are within
-// every local context's radius of each other's centre whenever one of them is
-// the centre, so under every condition they co-occur in a large share of the
-// contexts. Held-out pairs are never adjacent, so the two sets are disjoint.
+// directed edge (parent, child) of the network, sorted. A Local context
+// centred on either endpoint observes the other unless dropout removes it, so
+// under Local and Full conditions every edge co-occurs in a large share of
+// the contexts (under Wrong some edges may never co-occur; that is the point
+// of that condition). Held-out pairs are never adjacent, so the two sets are
+// disjoint.
 func (w *World) Supported() [][2]int {
 	var out [][2]int
 	for _, e := range w.Edges() {
