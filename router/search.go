@@ -2,6 +2,7 @@ package router
 
 import (
 	"cmp"
+	"math"
 	"math/bits"
 	"slices"
 
@@ -11,39 +12,40 @@ import (
 
 // Bridge search (DESIGN.md §4).
 //
-// A chain with m bridges s=b0 → b1 → … → bm → t=b(m+1) is generated as a
-// forward beam path s…x of d hops, a middle node z ∈ N(x) ∩ N(y) found by a
-// sorted-list intersection, and a backward beam path y…t of e hops, with
-// m = d + e + 1:
+// A chain with m bridges is s=b0 → b1 → … → bm → t=b(m+1).
 //
-//	m=1: (d,e) = (0,0)            N(s) ∩ N(t)
-//	m=2: (1,0) and (0,1)          x ∈ F1: N(x) ∩ N(t);   y ∈ T1: N(s) ∩ N(y)
-//	m=3: (2,0) and (0,2)          x ∈ F2: N(x) ∩ N(t);   y ∈ T2: N(s) ∩ N(y)
+//   - m = 1: every b1 ∈ N(s) ∩ N(t), by a merge of the two id-sorted
+//     adjacency lists, or a galloping search when one is more than 32× longer.
+//   - m = 2, 3: meet in the middle. Beams grow from both ends: F1 (T1) holds
+//     the B cheapest neighbours of s (t), read in order from the
+//     support-ranked adjacency prefix; F2 (T2) B two-hop paths taken
+//     breadth-first by rank from the ranked lists of the F1 (T1) nodes. The
+//     halves are joined on shared nodes by sort-merge:
+//     m = 2 from F2 ⋈ T1 (s→a→b, b→t) and F1 ⋈ T2 (s→a, t→c→a);
+//     m = 3 from F2 ⋈ T2 (s→a→b, t→c→b, a ≠ c). Only the second edge of a
+//     two-hop path that takes part in a join is looked up.
 //
-// F1 (T1) holds the B cheapest neighbours of s (t), read from the
-// support-ranked adjacency prefix; F2 (T2) holds the B cheapest two-hop
-// paths, produced best-first by a lazy k-way merge over the ranked lists of
-// the F1 (T1) nodes. Both sides meet on the intersection node, so a chain is
-// found when either its forward or its backward half is in a beam.
-//
-// Stage 1 scores every generated chain by the additive proxy
+// Stage 1 ranks the generated chains by the additive proxy
 // Σ_edges model.EdgeCost(support) + model.HopBias()·m and keeps the k
-// cheapest in a bounded max-heap (duplicates from the two directions are
-// dropped). Stage 2 scores those k exactly with model.Chain and picks the
-// largest score: the gain E_direct − E_chain, or λ·gain − c_hop·m.
+// cheapest in a bounded max-heap (a chain met from both sides is kept once).
+// Stage 2 scores those k exactly with model.Chain and picks the largest
+// score: the gain E_direct − E_chain, or λ·gain − c_hop·m (settings.finish).
 //
-// Cost: O(B·log B + (|F1|+|T1|+|F2|+|T2|+1)·I + k·C) where I is the cost
-// of one intersection, O(|a|+|b|) by merge or O(|a|·log(|b|/|a|)) by
-// galloping when |b| > 32·|a|, and C the cost of one exact chain score
-// (O(m·K³)). Everything touching adjacency is charged to the expansion
-// budget, so a hub with millions of neighbours costs at most the budget.
+// Cost: O(I + B·log B + B² + k·C) where I is the intersection, O(|a|+|b|)
+// by merge or O(|a|·log(|b|/|a|)) by galloping, 2B pair look-ups build the
+// first beam layers plus one per joined two-hop path, B² bounds a join of
+// equal middle nodes, and C is
+// one exact chain score (O(m·K³)). Intersections and look-ups are charged to
+// the expansion budget, so a hub with millions of neighbours costs at most
+// the budget, and the context's deadline is polled every 2048 units.
 //
-// Completeness: when no bound cuts the search (beam layers hold every
-// neighbour, the heap never overflows, the budget and deadline are not
-// reached) every simple chain of at most H bridges is generated and scored
-// exactly, so the result is the exact optimum. Otherwise Truncated is set.
-// EdgeCost must be ≥ 0 (pruning relies on it) and is assumed non-increasing
-// in support (the beams read support-ranked lists in order).
+// Completeness: the result is the exact optimum over all simple chains of
+// at most H bridges whenever Truncated is false, i.e. when the intersection
+// was not cut, (F2 and T1) or (F1 and T2) hold every path of their kind (for
+// H ≥ 2), F2 and T2 do (for H = 3), the heap never overflowed, and neither
+// budget nor deadline ran out. EdgeCost must be ≥ 0 (pruning relies on it)
+// and is assumed non-increasing in support (the beams read support-ranked
+// lists in order).
 
 type step1 struct {
 	id   graphidx.EntityID
@@ -59,11 +61,12 @@ type step2 struct {
 }
 
 type mergeItem struct {
-	cost float64
+	cost float64 // exact path cost, or a lower bound when lazy
 	c2   float64
 	li   int32 // index into the layer-1 slice
 	pos  int32 // position in the ranked list of layer1[li]
 	id   graphidx.EntityID
+	lazy bool // the edge to id has not been looked up yet
 }
 
 type cand struct {
@@ -117,7 +120,11 @@ type scratch struct {
 	ws     *scorer.Workspace
 	f1, t1 []step1
 	f2, t2 []step2
+	// id-sorted copies for the joins
+	f1s, t1s []step1
+	f2s, t2s []step2
 	mh     []mergeItem
+	cursor []int32
 	heap   []cand
 	hits   []graphidx.EntityID
 	path   []graphidx.EntityID
@@ -370,50 +377,62 @@ func (sc *scratch) mhPop() mergeItem {
 	return top
 }
 
-// layer2 extends l1 (rooted at from) best-first by the ranked lists of its
-// nodes into up to B two-hop paths from → a → b with b ∉ {from, other, a}.
+// layer2 extends l1 (rooted at from) into up to B two-hop paths
+// from → a → b with b ∉ {from, other, a}, breadth-first by rank: the
+// best-ranked remaining neighbour of every l1 node in l1's cost order, then
+// the second-best, and so on. No pair is looked up here: the edge cost of
+// a → b is filled in (edgeCost2) only when a join needs it, which keeps a
+// search to about 2B + (join hits) look-ups.
 func (sc *scratch) layer2(out []step2, l1 []step1, l1complete bool, from, other graphidx.EntityID) ([]step2, bool) {
 	out = out[:0]
-	sc.mh = sc.mh[:0]
 	complete := l1complete
+	if cap(sc.cursor) < len(l1) {
+		sc.cursor = make([]int32, len(l1))
+	}
+	cur := sc.cursor[:len(l1)]
 	for i, x := range l1 {
-		rk := sc.g.RankedNeighbors(x.id)
-		if len(rk) < len(sc.g.Neighbors(x.id)) {
+		cur[i] = 0
+		if len(sc.g.RankedNeighbors(x.id)) < len(sc.g.Neighbors(x.id)) {
 			complete = false // only a prefix is ranked
 		}
-		for pos := nextEligible(rk, 0, from, other, x.id); pos >= 0; pos = nextEligible(rk, pos+1, from, other, x.id) {
-			c, ok := sc.edge(x.id, rk[pos])
-			if !ok {
-				if sc.bud.left <= 0 {
-					return out, false
-				}
+	}
+	for progress := true; progress; {
+		progress = false
+		for i, x := range l1 {
+			if cur[i] < 0 {
 				continue
 			}
-			sc.mhPush(mergeItem{cost: x.cost + c, c2: c, li: int32(i), pos: int32(pos), id: rk[pos]})
-			break
-		}
-	}
-	for len(sc.mh) > 0 {
-		if len(out) == sc.st.beam {
-			return out, false
-		}
-		it := sc.mhPop()
-		x := l1[it.li]
-		out = append(out, step2{a: x.id, b: it.id, c1: x.cost, c2: it.c2, cost: it.cost})
-		rk := sc.g.RankedNeighbors(x.id)
-		for pos := nextEligible(rk, int(it.pos)+1, from, other, x.id); pos >= 0; pos = nextEligible(rk, pos+1, from, other, x.id) {
-			c, ok := sc.edge(x.id, rk[pos])
-			if !ok {
-				if sc.bud.left <= 0 {
-					return out, false
-				}
+			rk := sc.g.RankedNeighbors(x.id)
+			pos := nextEligible(rk, int(cur[i]), from, other, x.id)
+			if pos < 0 {
+				cur[i] = -1
 				continue
 			}
-			sc.mhPush(mergeItem{cost: x.cost + c, c2: c, li: it.li, pos: int32(pos), id: rk[pos]})
-			break
+			if len(out) == sc.st.beam {
+				return out, false
+			}
+			if sc.bud.take(1) == 0 {
+				return out, false
+			}
+			out = append(out, step2{a: x.id, b: rk[pos], c1: x.cost, c2: math.NaN()})
+			cur[i] = int32(pos + 1)
+			progress = true
 		}
 	}
-	return out, complete && !sc.bud.exhausted
+	return out, complete
+}
+
+// edgeCost2 returns the cost of p's second edge, looking it up once.
+func (sc *scratch) edgeCost2(p *step2) (float64, bool) {
+	if p.c2 == p.c2 { // not NaN
+		return p.c2, true
+	}
+	c, ok := sc.edge(p.a, p.b)
+	if !ok {
+		return 0, false
+	}
+	p.c2 = c
+	return c, true
 }
 
 // searchResult is the outcome of generate.
@@ -431,11 +450,10 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 	if H == 0 {
 		return searchResult{}
 	}
-	ns, nt := g.Neighbors(s), g.Neighbors(t)
 	complete := true
 
-	// m = 1: N(s) ∩ N(t).
-	if !sc.intersect(ns, nt) {
+	// m = 1: N(s) ∩ N(t), exact.
+	if !sc.intersect(g.Neighbors(s), g.Neighbors(t)) {
 		complete = false
 	}
 	for _, z := range sc.hits {
@@ -461,143 +479,101 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 		return sc.result(complete)
 	}
 
-	// m = 2.
-	var f1ok, t1ok bool
+	// Beams from both ends.
+	var f1ok, t1ok, f2ok, t2ok bool
 	sc.f1, f1ok = sc.layer1(sc.f1, s, t, adjacent)
 	sc.t1, t1ok = sc.layer1(sc.t1, t, s, adjacent)
-	fwd2 := f1ok
-	for _, x := range sc.f1 { // (1,0): s → x → z → t
-		if sc.prune(x.cost + 2*hb) {
-			fwd2 = false
-			continue
-		}
-		if !sc.intersect(g.Neighbors(x.id), nt) {
-			fwd2 = false
-		}
-		for _, z := range sc.hits {
-			if z == s || z == t || z == x.id {
-				continue
+	sc.f2, f2ok = sc.layer2(sc.f2, sc.f1, f1ok, s, t)
+	sc.t2, t2ok = sc.layer2(sc.t2, sc.t1, t1ok, t, s)
+	byID1 := func(a, b step1) int { return cmp.Compare(a.id, b.id) }
+	byEnd2 := func(a, b step2) int { return cmp.Compare(a.b, b.b) }
+	// Sorted copies for the joins; the beams keep their cost order.
+	sc.f1s = append(sc.f1s[:0], sc.f1...)
+	sc.t1s = append(sc.t1s[:0], sc.t1...)
+	sc.f2s = append(sc.f2s[:0], sc.f2...)
+	sc.t2s = append(sc.t2s[:0], sc.t2...)
+	slices.SortFunc(sc.f1s, byID1)
+	slices.SortFunc(sc.t1s, byID1)
+	slices.SortFunc(sc.f2s, byEnd2)
+	slices.SortFunc(sc.t2s, byEnd2)
+
+	// m = 2: F2 ⋈ T1 (s→a→b, b→t) and F1 ⋈ T2 (s→b, t→c→b).
+	for i, j := 0, 0; i < len(sc.f2s) && j < len(sc.t1s); {
+		f, y := sc.f2s[i], sc.t1s[j]
+		switch {
+		case f.b < y.id:
+			i++
+		case f.b > y.id:
+			j++
+		default:
+			if !sc.prune(f.c1+y.cost+2*hb) {
+				if c2, ok := sc.edgeCost2(&sc.f2s[i]); ok {
+					sc.push(cand{cost: f.c1 + c2 + y.cost + 2*hb, b: [3]graphidx.EntityID{f.a, f.b}, m: 2})
+				}
 			}
-			c2, ok := sc.edge(x.id, z)
-			if !ok {
-				fwd2 = false
-				continue
-			}
-			p := x.cost + c2
-			if sc.prune(p + 2*hb) {
-				fwd2 = false
-				continue
-			}
-			c3, ok := sc.edge(z, t)
-			if !ok {
-				fwd2 = false
-				continue
-			}
-			sc.push(cand{cost: p + c3 + 2*hb, b: [3]graphidx.EntityID{x.id, z}, m: 2})
-		}
-	}
-	bwd2 := t1ok
-	for _, y := range sc.t1 { // (0,1): s → z → y → t
-		if sc.prune(y.cost + 2*hb) {
-			bwd2 = false
-			continue
-		}
-		if !sc.intersect(ns, g.Neighbors(y.id)) {
-			bwd2 = false
-		}
-		for _, z := range sc.hits {
-			if z == s || z == t || z == y.id {
-				continue
-			}
-			c1, ok := sc.edge(s, z)
-			if !ok {
-				bwd2 = false
-				continue
-			}
-			if sc.prune(c1 + y.cost + 2*hb) {
-				bwd2 = false
-				continue
-			}
-			c2, ok := sc.edge(z, y.id)
-			if !ok {
-				bwd2 = false
-				continue
-			}
-			sc.push(cand{cost: c1 + c2 + y.cost + 2*hb, b: [3]graphidx.EntityID{z, y.id}, m: 2})
+			i++
 		}
 	}
-	complete = complete && (fwd2 || bwd2)
+	for i, j := 0, 0; i < len(sc.f1s) && j < len(sc.t2s); {
+		x, y := sc.f1s[i], sc.t2s[j]
+		switch {
+		case x.id < y.b:
+			i++
+		case x.id > y.b:
+			j++
+		default:
+			// path order: s→b (x), b→c (y.c2), c→t (y.c1)
+			if !sc.prune(x.cost+y.c1+2*hb) {
+				if c2, ok := sc.edgeCost2(&sc.t2s[j]); ok {
+					sc.push(cand{cost: x.cost + c2 + y.c1 + 2*hb, b: [3]graphidx.EntityID{x.id, y.a}, m: 2})
+				}
+			}
+			j++
+		}
+	}
+	complete = complete && ((f2ok && t1ok) || (f1ok && t2ok))
 	if H == 2 {
 		return sc.result(complete)
 	}
 
-	// m = 3.
-	var f2ok, t2ok bool
-	sc.f2, f2ok = sc.layer2(sc.f2, sc.f1, f1ok, s, t)
-	sc.t2, t2ok = sc.layer2(sc.t2, sc.t1, t1ok, t, s)
-	fwd3 := f2ok
-	for _, x := range sc.f2 { // (2,0): s → a → b → z → t
-		if sc.prune(x.cost + 3*hb) {
-			fwd3 = false
-			continue
-		}
-		if !sc.intersect(g.Neighbors(x.b), nt) {
-			fwd3 = false
-		}
-		for _, z := range sc.hits {
-			if z == s || z == t || z == x.a || z == x.b {
-				continue
+	// m = 3: F2 ⋈ T2 on the middle node (s→a→b, t→c→b, a ≠ c).
+	for i, j := 0, 0; i < len(sc.f2s) && j < len(sc.t2s); {
+		fb, tb := sc.f2s[i].b, sc.t2s[j].b
+		switch {
+		case fb < tb:
+			i++
+		case fb > tb:
+			j++
+		default:
+			ie, je := i, j
+			for ie < len(sc.f2s) && sc.f2s[ie].b == fb {
+				ie++
 			}
-			c3, ok := sc.edge(x.b, z)
-			if !ok {
-				fwd3 = false
-				continue
+			for je < len(sc.t2s) && sc.t2s[je].b == fb {
+				je++
 			}
-			p := x.c1 + x.c2 + c3
-			if sc.prune(p + 3*hb) {
-				fwd3 = false
-				continue
+			for fi := i; fi < ie; fi++ {
+				f := &sc.f2s[fi]
+				for yi := j; yi < je; yi++ {
+					y := &sc.t2s[yi]
+					if f.a == y.a || sc.prune(f.c1+y.c1+3*hb) {
+						continue
+					}
+					fc, ok1 := sc.edgeCost2(f)
+					if !ok1 {
+						break
+					}
+					yc, ok2 := sc.edgeCost2(y)
+					if !ok2 {
+						continue
+					}
+					sc.push(cand{cost: f.c1 + fc + yc + y.c1 + 3*hb, b: [3]graphidx.EntityID{f.a, fb, y.a}, m: 3})
+				}
 			}
-			c4, ok := sc.edge(z, t)
-			if !ok {
-				fwd3 = false
-				continue
-			}
-			sc.push(cand{cost: p + c4 + 3*hb, b: [3]graphidx.EntityID{x.a, x.b, z}, m: 3})
-		}
-	}
-	bwd3 := t2ok
-	for _, y := range sc.t2 { // (0,2): s → z → y.b → y.a → t
-		if sc.prune(y.cost + 3*hb) {
-			bwd3 = false
-			continue
-		}
-		if !sc.intersect(ns, g.Neighbors(y.b)) {
-			bwd3 = false
-		}
-		for _, z := range sc.hits {
-			if z == s || z == t || z == y.a || z == y.b {
-				continue
-			}
-			c1, ok := sc.edge(s, z)
-			if !ok {
-				bwd3 = false
-				continue
-			}
-			if sc.prune(c1 + y.cost + 3*hb) {
-				bwd3 = false
-				continue
-			}
-			c2, ok := sc.edge(z, y.b)
-			if !ok {
-				bwd3 = false
-				continue
-			}
-			// path order: s→z, z→y.b, y.b→y.a (c2 of y), y.a→t (c1 of y)
-			sc.push(cand{cost: c1 + c2 + y.c2 + y.c1 + 3*hb, b: [3]graphidx.EntityID{z, y.b, y.a}, m: 3})
+			i, j = ie, je
 		}
 	}
-	complete = complete && (fwd3 || bwd3)
+	complete = complete && f2ok && t2ok
 	return sc.result(complete)
 }
 
