@@ -1,0 +1,133 @@
+package cli
+
+import (
+	"bytes"
+	"encoding/json"
+	"errors"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"github.com/hopwise/hopwise/graphidx"
+)
+
+// inspectSource is a hand-made greenhouse index: three entities over five
+// contexts, counted by hand.
+//
+//	c1 pump.a=on  vent.east=open  bed.north=wet
+//	c2 pump.a=on  vent.east=open
+//	c3 pump.a=off vent.east=closed
+//	c4 pump.a=on                  bed.north=dry
+//	c5                            bed.north=wet
+type inspectSource struct{}
+
+func (inspectSource) Contexts() uint64 { return 5 }
+func (inspectSource) Entities() []graphidx.EntityRecord {
+	return []graphidx.EntityRecord{
+		{Name: "bed.north", Values: []string{"dry", "wet"}, Marginal: []uint64{1, 2}},     // c4; c1 c5
+		{Name: "pump.a", Values: []string{"off", "on"}, Marginal: []uint64{1, 3}},         // c3; c1 c2 c4
+		{Name: "vent.east", Values: []string{"closed", "open"}, Marginal: []uint64{1, 2}}, // c3; c1 c2
+	}
+}
+func (inspectSource) Pairs(fn func(graphidx.PairRecord) error) error {
+	for _, p := range []graphidx.PairRecord{
+		{A: 0, B: 1, Counts: []uint32{0, 1, 0, 1}}, // (dry,on) c4; (wet,on) c1
+		{A: 0, B: 2, Counts: []uint32{0, 0, 0, 1}}, // (wet,open) c1
+		{A: 1, B: 2, Counts: []uint32{1, 0, 0, 2}}, // (off,closed) c3; (on,open) c1 c2
+	} {
+		if err := fn(p); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+func runCLI(t *testing.T, args ...string) (string, error) {
+	t.Helper()
+	root := NewRoot()
+	var out bytes.Buffer
+	root.SetOut(&out)
+	root.SetErr(&out)
+	root.SetArgs(args)
+	err := root.Execute()
+	return out.String(), err
+}
+
+func TestInspect(t *testing.T) {
+	t.Parallel()
+	path := filepath.Join(t.TempDir(), "gh.hwx")
+	if err := graphidx.WriteFile(path, inspectSource{}); err != nil {
+		t.Fatal(err)
+	}
+	out, err := runCLI(t, "inspect", "--index", path, "--json", "--verify", "--entity", "pump.a", "--top", "1")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var rep inspectReport
+	if err := json.Unmarshal([]byte(out), &rep); err != nil {
+		t.Fatalf("%v\n%s", err, out)
+	}
+	st, _ := os.Stat(path)
+	if rep.Entities != 3 || rep.Contexts != 5 || rep.Pairs != 3 || rep.FormatVersion != 1 || rep.Bytes != st.Size() || !rep.Verified {
+		t.Fatalf("summary = %+v", rep)
+	}
+	e := rep.Entity
+	if e == nil || e.Support != 4 || e.Degree != 2 || len(e.Values) != 2 || e.Values[1].Marginal != 3 {
+		t.Fatalf("entity = %+v", e)
+	}
+	// Supports around pump.a: vent.east 3 (c1 c2 c3) > bed.north 2 (c1 c4).
+	if len(e.Neighbors) != 1 || e.Neighbors[0].Name != "vent.east" || e.Neighbors[0].Support != 3 {
+		t.Fatalf("neighbours = %+v", e.Neighbors)
+	}
+	// Rows are pump.a's values (off, on), columns vent.east's (closed, open).
+	if tab := e.Neighbors[0].Table; tab[0][0] != 1 || tab[0][1] != 0 || tab[1][0] != 0 || tab[1][1] != 2 {
+		t.Fatalf("table = %v", tab)
+	}
+	// bed.north is stored as (bed, pump): the table must come out transposed.
+	out, err = runCLI(t, "inspect", "--index", path, "--json", "--entity", "pump.a")
+	if err != nil {
+		t.Fatal(err)
+	}
+	rep = inspectReport{}
+	if err := json.Unmarshal([]byte(out), &rep); err != nil {
+		t.Fatal(err)
+	}
+	if nb := rep.Entity.Neighbors[1]; nb.Name != "bed.north" || nb.Table[1][0] != 1 || nb.Table[1][1] != 1 || nb.Table[0][1] != 0 {
+		t.Fatalf("bed.north neighbour = %+v", nb)
+	}
+
+	// Human output.
+	out, err = runCLI(t, "inspect", "--index", path, "--entity", "vent.east")
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, want := range []string{"entities        3", "contexts        5", "pairs           3 (6 directed edges)",
+		"pump.a     3        closed: off=1 on=0  open: off=0 on=2"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("output lacks %q:\n%s", want, out)
+		}
+	}
+
+	// Unknown entity: a clear error naming it.
+	_, err = runCLI(t, "inspect", "--index", path, "--entity", "pump.z")
+	if err == nil || !strings.Contains(err.Error(), `"pump.z"`) {
+		t.Fatalf("unknown entity: %v", err)
+	}
+
+	// A damaged file: exit status 2 with a corruption error.
+	b, _ := os.ReadFile(path)
+	b[len(b)-1] ^= 1
+	bad := filepath.Join(t.TempDir(), "bad.hwx")
+	if err := os.WriteFile(bad, b, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	_, err = runCLI(t, "inspect", "--index", bad, "--verify")
+	var ee *ExitError
+	if !errors.As(err, &ee) || ee.Code != 2 || !graphidx.IsCorruption(err) {
+		t.Fatalf("damaged index: %v", err)
+	}
+	if _, err := runCLI(t, "inspect"); err == nil {
+		t.Fatal("missing --index accepted")
+	}
+}
