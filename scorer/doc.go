@@ -10,7 +10,9 @@
 //   - Support, for presence-only corpora: err(edge) = v0/(support + n0),
 //     err(chain) = Σ_edges err(edge) + β·m.
 //
-// Combine merges independent chains by inverse-error weighting.
+// Combine merges independent chains by inverse-error weighting. FitSupport
+// and FitHopBias calibrate v0, n0 and β by least squares on realised squared
+// errors (for example from the synthetic worlds).
 //
 // The scorer reads statistics through the small Stats interface, which
 // *graphidx.Index satisfies. Value indexes follow each entity's value labels

@@ -519,5 +519,20 @@ func FuzzBayesChain(f *testing.F) {
 		if !near(s, 1, 1e-9) {
 			t.Fatalf("Dist sums to %g", s)
 		}
+		// ExactMoments: same Dist, and a variance never below the delta
+		// method's (the delta value is a lower bound, see Variance).
+		bx, _ := scorer.NewBayes(scorer.WithAlpha(alpha), scorer.WithVariance(scorer.ExactMoments))
+		ex, err := bx.Chain(nil, st, path[0], int(u), path[1:n-1], path[n-1])
+		if err != nil {
+			t.Fatal(err)
+		}
+		for v := range ex.Dist {
+			if !near(ex.Dist[v], est.Dist[v], 1e-12) {
+				t.Fatalf("exact Dist %v, delta Dist %v", ex.Dist, est.Dist)
+			}
+		}
+		if math.IsNaN(ex.Err) || ex.Err < est.Err*(1-1e-9)-1e-15 {
+			t.Fatalf("exact Err %.17g below delta Err %.17g", ex.Err, est.Err)
+		}
 	})
 }
