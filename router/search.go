@@ -123,13 +123,13 @@ type scratch struct {
 	// id-sorted copies for the joins
 	f1s, t1s []step1
 	f2s, t2s []step2
-	mh     []mergeItem
-	cursor []int32
-	heap   []cand
-	hits   []graphidx.EntityID
-	path   []graphidx.EntityID
-	dist   []float64 // best chain's Dist copy
-	ddist  []float64 // direct Dist copy
+	mh       []mergeItem
+	cursor   []int32
+	heap     []cand
+	hits     []graphidx.EntityID
+	path     []graphidx.EntityID
+	dist     []float64 // best chain's Dist copy
+	ddist    []float64 // direct Dist copy
 
 	// per call
 	g     Graph
@@ -506,7 +506,7 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 		case f.b > y.id:
 			j++
 		default:
-			if !sc.prune(f.c1+y.cost+2*hb) {
+			if !sc.prune(f.c1 + y.cost + 2*hb) {
 				if c2, ok := sc.edgeCost2(&sc.f2s[i]); ok {
 					sc.push(cand{cost: f.c1 + c2 + y.cost + 2*hb, b: [3]graphidx.EntityID{f.a, f.b}, m: 2})
 				}
@@ -523,7 +523,7 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 			j++
 		default:
 			// path order: s→b (x), b→c (y.c2), c→t (y.c1)
-			if !sc.prune(x.cost+y.c1+2*hb) {
+			if !sc.prune(x.cost + y.c1 + 2*hb) {
 				if c2, ok := sc.edgeCost2(&sc.t2s[j]); ok {
 					sc.push(cand{cost: x.cost + c2 + y.c1 + 2*hb, b: [3]graphidx.EntityID{x.id, y.a}, m: 2})
 				}
