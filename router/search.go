@@ -60,15 +60,6 @@ type step2 struct {
 	cost   float64
 }
 
-type mergeItem struct {
-	cost float64 // exact path cost, or a lower bound when lazy
-	c2   float64
-	li   int32 // index into the layer-1 slice
-	pos  int32 // position in the ranked list of layer1[li]
-	id   graphidx.EntityID
-	lazy bool // the edge to id has not been looked up yet
-}
-
 type cand struct {
 	cost float64
 	b    [MaxBridgesLimit]graphidx.EntityID
@@ -123,7 +114,6 @@ type scratch struct {
 	// id-sorted copies for the joins
 	f1s, t1s []step1
 	f2s, t2s []step2
-	mh       []mergeItem
 	cursor   []int32
 	heap     []cand
 	hits     []graphidx.EntityID
@@ -335,46 +325,6 @@ func nextEligible(ranked []graphidx.EntityID, pos int, ex0, ex1, ex2 graphidx.En
 		}
 	}
 	return -1
-}
-
-func (sc *scratch) mhPush(it mergeItem) {
-	h := append(sc.mh, it)
-	i := len(h) - 1
-	for i > 0 {
-		p := (i - 1) / 2
-		if h[p].cost <= h[i].cost {
-			break
-		}
-		h[p], h[i] = h[i], h[p]
-		i = p
-	}
-	sc.mh = h
-}
-
-func (sc *scratch) mhPop() mergeItem {
-	h := sc.mh
-	top := h[0]
-	n := len(h) - 1
-	h[0] = h[n]
-	h = h[:n]
-	i := 0
-	for {
-		l := 2*i + 1
-		if l >= n {
-			break
-		}
-		m := l
-		if r := l + 1; r < n && h[r].cost < h[l].cost {
-			m = r
-		}
-		if h[i].cost <= h[m].cost {
-			break
-		}
-		h[i], h[m] = h[m], h[i]
-		i = m
-	}
-	sc.mh = h
-	return top
 }
 
 // layer2 extends l1 (rooted at from) into up to B two-hop paths
