@@ -95,6 +95,10 @@ func (m *Support) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bri
 
 	kt := ws.ks[edges]
 	dist := make([]float64, kt)
+	if kt == 1 { // presence-only target: the only value has probability 1
+		dist[0] = 1
+		return Estimate{Dist: dist, Err: e, Support: minSup}, nil
+	}
 	k1 := ws.ks[1]
 	if edges == 1 {
 		copy(dist, ws.theta[u*k1:u*k1+k1])
