@@ -2,9 +2,9 @@ package scorer
 
 import (
 	"fmt"
-	"gonum.org/v1/gonum/mat"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"gonum.org/v1/gonum/mat"
 )
 
 // Bayes is the valued model: each local conditional P(b | a = r) gets a
@@ -40,8 +40,9 @@ import (
 // # Chain variance (delta method)
 //
 // With x_(k−1) = e_uᵀ M_1…M_(k−1), R_k = M_(k+1)…M_(m+1) (R_(m+1) = I) and
-// rows of all M_k independent a posteriori, the first-order (delta-method)
-// variance is
+// rows of all M_k treated as independent a posteriori (the model's
+// assumption: different pair tables are counted over overlapping contexts),
+// the first-order (delta-method) variance is
 //
 //	Var(p̂_v) ≈ Σ_k Σ_r x_(k−1)[r]² · R_k[:,v]ᵀ Σ_(k,r) R_k[:,v].
 //
@@ -181,8 +182,10 @@ func (b *Bayes) Direct(ws *Workspace, st Stats, s graphidx.EntityID, u int, t gr
 	return Estimate{Dist: dist, Err: e, Support: sup}, nil
 }
 
-// Chain returns p̂ = e_uᵀ M_1…M_(m+1) and Err = Σ_v Var(p̂_v) + β·m with the
-// delta-method variance (see the type documentation). Support is the smallest
+// Chain returns p̂ = e_uᵀ M_1…M_(m+1) and Err = Σ_v Var(p̂_v) + β·m, the
+// variance by the delta method or, with WithVariance(ExactMoments), exactly
+// (see the type documentation and Variance). For m = 0 both give the direct
+// error. Support is the smallest
 // edge support; an edge never observed contributes the prior and support 0.
 // ws may be nil (a temporary workspace is then allocated). O(m·K³).
 func (b *Bayes) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridges []graphidx.EntityID, t graphidx.EntityID) (Estimate, error) {
