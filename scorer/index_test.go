@@ -118,3 +118,49 @@ func TestAgainstRealIndex(t *testing.T) {
 		t.Fatalf("checked %d", checked)
 	}
 }
+
+// BenchmarkChainOnIndex measures Bayes.Chain with lookups served by a real
+// memory-mapped graphidx index (K = 2, 3 bridges), the router's setting.
+func BenchmarkChainOnIndex(b *testing.B) {
+	const k, m = 2, 3
+	mem := benchChain(k, m)
+	src := &tableSource{}
+	for i := 0; i < m+2; i++ {
+		src.ents = append(src.ents, graphidx.EntityRecord{
+			Name: fmt.Sprintf("e%02d", i), Values: []string{"off", "on"}, Marginal: make([]uint64, k)})
+	}
+	for a := 0; a < m+1; a++ {
+		ps, _ := mem.Pair(graphidx.EntityID(a+1), graphidx.EntityID(a+2))
+		flat := make([]uint32, 0, k*k)
+		for r := 0; r < k; r++ {
+			for v := 0; v < k; v++ {
+				c := ps.Count(r, v)
+				flat = append(flat, c)
+				src.ents[a].Marginal[r] += uint64(c)
+				src.ents[a+1].Marginal[v] += uint64(c)
+			}
+		}
+		src.pairs = append(src.pairs, graphidx.PairRecord{A: graphidx.EntityID(a), B: graphidx.EntityID(a + 1), Counts: flat})
+	}
+	path := filepath.Join(b.TempDir(), "bench.hwx")
+	if err := graphidx.WriteFile(path, src); err != nil {
+		b.Fatal(err)
+	}
+	ix, err := graphidx.Open(path)
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer ix.Close()
+	model := mustBayes(b)
+	ws := scorer.NewWorkspace()
+	bridges := []graphidx.EntityID{1, 2, 3}
+	var est scorer.Estimate
+	b.ReportAllocs()
+	for b.Loop() {
+		est, err = model.Chain(ws, ix, 0, 0, bridges, 4)
+	}
+	if err != nil {
+		b.Fatal(err)
+	}
+	checkEstimate(b, est, k)
+}
