@@ -25,6 +25,18 @@ type memGraph struct {
 	closes atomic.Int32
 }
 
+// hookGraph calls onPair with the running count of its Pair calls.
+type hookGraph struct {
+	*memGraph
+	n      atomic.Int64
+	onPair func(n int64)
+}
+
+func (h *hookGraph) Pair(a, b graphidx.EntityID) (graphidx.PairStats, bool) {
+	h.onPair(h.n.Add(1))
+	return h.memGraph.Pair(a, b)
+}
+
 type memBuilder struct {
 	g      *memGraph
 	tables map[[2]graphidx.EntityID][]uint32 // (lo, hi) orientation

@@ -564,3 +564,80 @@ func TestConcurrentReconfigure(t *testing.T) {
 		t.Fatalf("stale configuration served: %+v", d)
 	}
 }
+
+// hubGraph: a hub observed with 100k sensors; the query target shares 2000 of
+// them and has a few neighbours of its own.
+func hubGraph() *memGraph {
+	hubOnce.Do(func() { hubG = buildHubGraph() })
+	return hubG
+}
+
+var (
+	hubOnce sync.Once
+	hubG    *memGraph
+)
+
+func buildHubGraph() *memGraph {
+	b := newMemBuilder(9)
+	hub := b.entity("controller-main", "idle", "busy")
+	tt := b.entity("bed-lettuce", "dry", "wet")
+	for i := 0; i < 100_000; i++ {
+		z := b.entity(fmt.Sprintf("sensor%06d", i), "off", "on")
+		b.pair(hub, z, uint32(1+i%7), 1, 1, uint32(1+i%5))
+		if i%50 == 0 {
+			b.pair(z, tt, 6, 1, 1, 6)
+		}
+	}
+	return b.build()
+}
+
+// TestHubStaysWithinBudget: a query from a hub with 100k neighbours touches
+// at most the expansion budget (counted as pair look-ups on the graph).
+func TestHubStaysWithinBudget(t *testing.T) {
+	t.Parallel()
+	g := &hookGraph{memGraph: hubGraph(), onPair: func(int64) {}}
+	const budget = 4096
+	r := mustNew(t, nonClosing{g}, WithExpansionBudget(budget), WithCacheSize(0))
+	q := Query{From: "controller-main", Value: "busy", To: "bed-lettuce"}
+	before := g.n.Load()
+	start := time.Now()
+	d, err := r.Decide(context.Background(), q)
+	el := time.Since(start)
+	if err != nil {
+		t.Fatal(err)
+	}
+	calls := g.n.Load() - before
+	// budget-charged look-ups, plus the direct pair, the adjacency test and
+	// the exact scoring of ≤ k chains (≤ 4 edges each) and the MinSupport pass.
+	if limit := int64(budget + 2 + 16*4 + 4); calls > limit {
+		t.Fatalf("%d pair look-ups for budget %d (limit %d)", calls, budget, limit)
+	}
+	if d.Chain == nil || len(d.Chain.Bridges) != 1 {
+		t.Fatalf("hub query found no one-bridge chain: %+v", d)
+	}
+	t.Logf("hub query: %v, %d pair look-ups, truncated=%v", el, calls, d.Truncated)
+}
+
+// TestDeadlineTruncates: a context cancelled during the search gives a
+// truncated decision that is not cached.
+func TestDeadlineTruncates(t *testing.T) {
+	t.Parallel()
+	ctx, cancel := context.WithCancel(context.Background())
+	defer cancel()
+	g := &hookGraph{memGraph: hubGraph(), onPair: func(n int64) {
+		if n == 50 {
+			cancel()
+		}
+	}}
+	r := mustNew(t, nonClosing{g}, WithExpansionBudget(1<<24))
+	d, err := r.Decide(ctx, Query{From: "controller-main", Value: "busy", To: "bed-lettuce"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !d.Truncated {
+		t.Fatal("cancelled mid-search: want Truncated")
+	}
+	if r.CacheLen() != 0 {
+		t.Fatal("a deadline-truncated decision was cached")
+	}
+}

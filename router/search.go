@@ -37,7 +37,7 @@ import (
 // equal middle nodes, and C is
 // one exact chain score (O(m·K³)). Intersections and look-ups are charged to
 // the expansion budget, so a hub with millions of neighbours costs at most
-// the budget, and the context's deadline is polled every 2048 units.
+// the budget, and the context's deadline is polled every 256 units.
 //
 // Completeness: the result is the exact optimum over all simple chains of
 // at most H bridges whenever Truncated is false, i.e. when the intersection
@@ -76,7 +76,7 @@ type budget struct {
 	deadline  bool
 }
 
-const deadlinePoll = 2048
+const deadlinePoll = 256
 
 // take grants up to n units; fewer (possibly 0) when the budget or the
 // deadline ran out, which it records.
@@ -105,6 +105,19 @@ func (b *budget) take(n int) int {
 	}
 	return n
 }
+
+// limit caps the budget at n units until unlimit; it returns the units held
+// back.
+func (b *budget) limit(n int) int {
+	if n >= b.left {
+		return 0
+	}
+	held := b.left - n
+	b.left = n
+	return held
+}
+
+func (b *budget) unlimit(held int) { b.left += held }
 
 // scratch is per-call working memory, pooled per router.
 type scratch struct {
@@ -434,10 +447,15 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 	}
 	complete := true
 
-	// m = 1: N(s) ∩ N(t), exact.
+	// m = 1: N(s) ∩ N(t), exact. The phase may spend half the budget, the
+	// intersection itself half of that, so that the hits can be scored and
+	// the beams still run when a hub makes the intersection long.
+	held := sc.bud.limit(sc.bud.left / 2)
+	held2 := sc.bud.limit(sc.bud.left / 2)
 	if !sc.intersect(g.Neighbors(s), g.Neighbors(t)) {
 		complete = false
 	}
+	sc.bud.unlimit(held2)
 	for _, z := range sc.hits {
 		if z == s || z == t {
 			continue
@@ -457,6 +475,7 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 		}
 		sc.push(cand{cost: c1 + c2 + hb, b: [3]graphidx.EntityID{z}, m: 1})
 	}
+	sc.bud.unlimit(held)
 	if H == 1 {
 		return sc.result(complete)
 	}
