@@ -463,13 +463,22 @@ func TestExplorationPropensity(t *testing.T) {
 // panics on use after Close).
 func TestSwapStress(t *testing.T) {
 	t.Parallel()
+	for _, size := range []int{0, 64} {
+		t.Run(fmt.Sprint("cache", size), func(t *testing.T) {
+			t.Parallel()
+			swapStress(t, size)
+		})
+	}
+}
+
+func swapStress(t *testing.T, cacheSize int) {
 	graphs := make([]*memGraph, 40)
 	for i := range graphs {
 		graphs[i] = randomGraph(uint64(100+i%4), 14, 0.35)
 		graphs[i].gen = uint64(i + 1)
 	}
 	var retired atomic.Int32
-	r, err := NewWithRetireHook(graphs[0], func(old Graph, err error) { retired.Add(1) }, WithCacheSize(64))
+	r, err := NewWithRetireHook(graphs[0], func(old Graph, err error) { retired.Add(1) }, WithCacheSize(cacheSize))
 	if err != nil {
 		t.Fatal(err)
 	}
