@@ -17,8 +17,8 @@ import (
 //   - m = 1: every b1 ∈ N(s) ∩ N(t), by a merge of the two id-sorted
 //     adjacency lists, or a galloping search when one is more than 32× longer.
 //   - m = 2, 3: meet in the middle. Beams grow from both ends: F1 (T1) holds
-//     the B cheapest neighbours of s (t), read in order from the
-//     support-ranked adjacency prefix; F2 (T2) B two-hop paths taken
+//     the B best-ranked (highest-support, so cheapest) neighbours of s (t),
+//     read in order from the support-ranked adjacency prefix; F2 (T2) B two-hop paths taken
 //     breadth-first by rank from the ranked lists of the F1 (T1) nodes. The
 //     halves are joined on shared nodes by sort-merge:
 //     m = 2 from F2 ⋈ T1 (s→a→b, b→t) and F1 ⋈ T2 (s→a, t→c→a);
@@ -32,10 +32,10 @@ import (
 // score: the gain E_direct − E_chain, or λ·gain − c_hop·m (settings.finish).
 //
 // Cost: O(I + B·log B + B² + k·C) where I is the intersection, O(|a|+|b|)
-// by merge or O(|a|·log(|b|/|a|)) by galloping, 2B pair look-ups build the
-// first beam layers plus one per joined two-hop path, B² bounds a join of
-// equal middle nodes, and C is
-// one exact chain score (O(m·K³)). Intersections and look-ups are charged to
+// by merge or O(|a|·log(|b|/|a|)) by galloping; the beams are read from the
+// ranked lists without look-ups, and an edge cost is looked up (once) only
+// for a node or path that takes part in a join; B² bounds a join of equal
+// middle nodes, and C is one exact chain score (O(m·K³)). Intersections and look-ups are charged to
 // the expansion budget, so a hub with millions of neighbours costs at most
 // the budget, and the context's deadline is polled every 256 units.
 //
@@ -47,17 +47,19 @@ import (
 // and is assumed non-increasing in support (the beams read support-ranked
 // lists in order).
 
+// step1 is a first-layer beam node; cost is its edge cost from the origin,
+// NaN until a join needs it (cost1).
 type step1 struct {
 	id   graphidx.EntityID
 	cost float64
 }
 
-// step2 is a two-hop beam path origin → a → b with its edge costs
-// c1 = cost(origin, a) and c2 = cost(a, b).
+// step2 is a two-hop beam path origin → a → b; li indexes a in the
+// first-layer slice, c2 = cost(a, b) is NaN until a join needs it.
 type step2 struct {
-	a, b   graphidx.EntityID
-	c1, c2 float64
-	cost   float64
+	a, b graphidx.EntityID
+	li   int32
+	c2   float64
 }
 
 type cand struct {
@@ -124,9 +126,9 @@ type scratch struct {
 	ws     *scorer.Workspace
 	f1, t1 []step1
 	f2, t2 []step2
-	// id-sorted copies for the joins
-	f1s, t1s []step1
-	f2s, t2s []step2
+	// id-sorted views for the joins
+	f1s, t1s []int32 // positions in f1, t1
+	f2s, t2s []step2 // copies of f2, t2
 	cursor   []int32
 	keys     []uint64
 	heap     []cand
@@ -301,8 +303,9 @@ func (sc *scratch) prune(lower float64) bool {
 	return false
 }
 
-// layer1 fills out with the beam of up to B cheapest neighbours of from
-// (other excluded). complete reports that it holds all of them.
+// layer1 fills out with the beam of the B best-ranked neighbours of from
+// (other excluded): by support, hence by edge cost, which is looked up only
+// when a join uses the node. complete reports that it holds all of them.
 func (sc *scratch) layer1(out []step1, from, other graphidx.EntityID, adjacent bool) ([]step1, bool) {
 	out = out[:0]
 	rk := sc.g.RankedNeighbors(from)
@@ -314,19 +317,32 @@ func (sc *scratch) layer1(out []step1, from, other graphidx.EntityID, adjacent b
 		if x == other || x == from {
 			continue
 		}
-		if len(out) == sc.st.beam {
+		if len(out) == sc.st.beam || sc.bud.take(1) == 0 {
 			break
 		}
-		c, ok := sc.edge(from, x)
-		if !ok {
-			if sc.bud.left <= 0 {
-				break
-			}
-			continue
-		}
-		out = append(out, step1{id: x, cost: c})
+		out = append(out, step1{id: x, cost: math.NaN()})
 	}
 	return out, len(out) == eligible
+}
+
+// cost1 returns the edge cost origin → l[i].id, looking it up once.
+func (sc *scratch) cost1(l []step1, i int32, origin graphidx.EntityID) (float64, bool) {
+	if c := l[i].cost; c == c {
+		return c, true
+	}
+	c, ok := sc.edge(origin, l[i].id)
+	if ok {
+		l[i].cost = c
+	}
+	return c, ok
+}
+
+// known is x, or 0 while x is still unknown (NaN): a lower bound of a cost.
+func known(x float64) float64 {
+	if x != x {
+		return 0
+	}
+	return x
 }
 
 // nextEligible returns the first position ≥ pos in ranked whose node is not
@@ -343,10 +359,9 @@ func nextEligible(ranked []graphidx.EntityID, pos int, ex0, ex1, ex2 graphidx.En
 
 // layer2 extends l1 (rooted at from) into up to B two-hop paths
 // from → a → b with b ∉ {from, other, a}, breadth-first by rank: the
-// best-ranked remaining neighbour of every l1 node in l1's cost order, then
+// best-ranked remaining neighbour of every l1 node in l1's rank order, then
 // the second-best, and so on. No pair is looked up here: the edge cost of
-// a → b is filled in (edgeCost2) only when a join needs it, which keeps a
-// search to about 2B + (join hits) look-ups.
+// a → b is filled in (edgeCost2) only when a join needs it.
 func (sc *scratch) layer2(out []step2, l1 []step1, l1complete bool, from, other graphidx.EntityID) ([]step2, bool) {
 	out = out[:0]
 	complete := l1complete
@@ -378,7 +393,7 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1complete bool, from, other 
 			if sc.bud.take(1) == 0 {
 				return out, false
 			}
-			out = append(out, step2{a: x.id, b: rk[pos], c1: x.cost, c2: math.NaN()})
+			out = append(out, step2{a: x.id, b: rk[pos], li: int32(i), c2: math.NaN()})
 			cur[i] = int32(pos + 1)
 			progress = true
 		}
@@ -399,9 +414,9 @@ func (sc *scratch) edgeCost2(p *step2) (float64, bool) {
 	return c, true
 }
 
-// sortSteps1 returns src ordered by id in dst (stable; a packed-key sort of
-// uint64 is several times faster than sorting the structs by a closure).
-func (sc *scratch) sortSteps1(dst, src []step1) []step1 {
+// sortSteps1 returns the positions of src ordered by id (a packed-key sort
+// of uint64 is several times faster than sorting structs by a closure).
+func (sc *scratch) sortSteps1(dst []int32, src []step1) []int32 {
 	keys := sc.keys[:0]
 	for i, x := range src {
 		keys = append(keys, uint64(x.id)<<32|uint64(i))
@@ -409,7 +424,7 @@ func (sc *scratch) sortSteps1(dst, src []step1) []step1 {
 	slices.Sort(keys)
 	dst = dst[:0]
 	for _, k := range keys {
-		dst = append(dst, src[uint32(k)])
+		dst = append(dst, int32(uint32(k)))
 	}
 	sc.keys = keys
 	return dst
@@ -492,38 +507,50 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 	sc.f2s = sc.sortSteps2(sc.f2s, sc.f2)
 	sc.t2s = sc.sortSteps2(sc.t2s, sc.t2)
 
-	// m = 2: F2 ⋈ T1 (s→a→b, b→t) and F1 ⋈ T2 (s→b, t→c→b).
+	// m = 2: F2 ⋈ T1 (s→a→b, b→t) and F1 ⋈ T2 (s→b, t→c→b). Costs are
+	// summed in path order so a chain met by both joins costs the same.
+	f1, t1 := sc.f1, sc.t1
 	for i, j := 0, 0; i < len(sc.f2s) && j < len(sc.t1s); {
-		f, y := sc.f2s[i], sc.t1s[j]
-		switch {
-		case f.b < y.id:
+		f := &sc.f2s[i]
+		yi := sc.t1s[j]
+		switch y := t1[yi].id; {
+		case f.b < y:
 			i++
-		case f.b > y.id:
+		case f.b > y:
 			j++
 		default:
-			if !sc.prune(f.c1 + y.cost + 2*hb) {
-				if c2, ok := sc.edgeCost2(&sc.f2s[i]); ok {
-					sc.push(cand{cost: f.c1 + c2 + y.cost + 2*hb, b: [3]graphidx.EntityID{f.a, f.b}, m: 2})
-				}
-			}
 			i++
+			if sc.prune(known(f1[f.li].cost) + known(f.c2) + known(t1[yi].cost) + 2*hb) {
+				continue
+			}
+			c1, ok1 := sc.cost1(f1, f.li, s)
+			c2, ok2 := sc.edgeCost2(f)
+			c3, ok3 := sc.cost1(t1, yi, t)
+			if ok1 && ok2 && ok3 {
+				sc.push(cand{cost: c1 + c2 + c3 + 2*hb, b: [3]graphidx.EntityID{f.a, f.b}, m: 2})
+			}
 		}
 	}
 	for i, j := 0, 0; i < len(sc.f1s) && j < len(sc.t2s); {
-		x, y := sc.f1s[i], sc.t2s[j]
-		switch {
-		case x.id < y.b:
+		xi := sc.f1s[i]
+		y := &sc.t2s[j]
+		switch x := f1[xi].id; {
+		case x < y.b:
 			i++
-		case x.id > y.b:
+		case x > y.b:
 			j++
 		default:
-			// path order: s→b (x), b→c (y.c2), c→t (y.c1)
-			if !sc.prune(x.cost + y.c1 + 2*hb) {
-				if c2, ok := sc.edgeCost2(&sc.t2s[j]); ok {
-					sc.push(cand{cost: x.cost + c2 + y.c1 + 2*hb, b: [3]graphidx.EntityID{x.id, y.a}, m: 2})
-				}
-			}
 			j++
+			// path order: s→b (f1), b→c (y.c2), c→t (t1)
+			if sc.prune(known(f1[xi].cost) + known(y.c2) + known(t1[y.li].cost) + 2*hb) {
+				continue
+			}
+			c1, ok1 := sc.cost1(f1, xi, s)
+			c2, ok2 := sc.edgeCost2(y)
+			c3, ok3 := sc.cost1(t1, y.li, t)
+			if ok1 && ok2 && ok3 {
+				sc.push(cand{cost: c1 + c2 + c3 + 2*hb, b: [3]graphidx.EntityID{x, y.a}, m: 2})
+			}
 		}
 	}
 	complete = complete && ((f2ok && t1ok) || (f1ok && t2ok))
@@ -551,18 +578,16 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 				f := &sc.f2s[fi]
 				for yi := j; yi < je; yi++ {
 					y := &sc.t2s[yi]
-					if f.a == y.a || sc.prune(f.c1+y.c1+3*hb) {
+					if f.a == y.a || sc.prune(known(f1[f.li].cost)+known(f.c2)+known(y.c2)+known(t1[y.li].cost)+3*hb) {
 						continue
 					}
-					fc, ok1 := sc.edgeCost2(f)
-					if !ok1 {
-						break
+					c1, ok1 := sc.cost1(f1, f.li, s)
+					c2, ok2 := sc.edgeCost2(f)
+					c3, ok3 := sc.edgeCost2(y)
+					c4, ok4 := sc.cost1(t1, y.li, t)
+					if ok1 && ok2 && ok3 && ok4 {
+						sc.push(cand{cost: c1 + c2 + c3 + c4 + 3*hb, b: [3]graphidx.EntityID{f.a, fb, y.a}, m: 3})
 					}
-					yc, ok2 := sc.edgeCost2(y)
-					if !ok2 {
-						continue
-					}
-					sc.push(cand{cost: f.c1 + fc + yc + y.c1 + 3*hb, b: [3]graphidx.EntityID{f.a, fb, y.a}, m: 3})
 				}
 			}
 			i, j = ie, je
