@@ -1,0 +1,757 @@
+package graphidx
+
+import (
+	"bufio"
+	"context"
+	"encoding/binary"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"path/filepath"
+	"runtime"
+	"slices"
+	"strconv"
+	"strings"
+	"sync"
+	"sync/atomic"
+	"time"
+)
+
+// Build errors.
+var (
+	// ErrTooManyValues: an entity takes more than MaxValues distinct values.
+	// The error names the entity and the context where the excess appeared.
+	ErrTooManyValues = errors.New("graphidx: entity has more than 64 distinct values")
+	// ErrTooManyEntities: the corpus names more than 2^26 distinct entities.
+	ErrTooManyEntities = errors.New("graphidx: more than 67108864 distinct entities")
+	// ErrCountOverflow: a pair table cell counts more than MaxUint32 contexts.
+	ErrCountOverflow = errors.New("graphidx: pair count overflows uint32")
+	// ErrDuplicateEntity: a context from a foreign ContextReader observes one
+	// entity twice (the readers of this package reject such lines first).
+	ErrDuplicateEntity = errors.New("graphidx: entity observed twice in one context")
+	// ErrEmptyName: a context from a foreign ContextReader has an empty
+	// entity name or value.
+	ErrEmptyName = errors.New("graphidx: empty entity name or value")
+)
+
+// Build reads every context of r, counts co-occurrences and writes the
+// locality index to out with WriteFile. It is Compile followed by WriteFile;
+// see Compile for the counting, the memory budget and pruning. The summary
+// includes the reader's line accounting when r implements StatsReader.
+// Build stops early, removing its temporary files, when ctx is cancelled.
+func Build(ctx context.Context, r ContextReader, out string, opts ...BuildOption) (BuildSummary, error) {
+	start := time.Now()
+	cfg := newBuildConfig(opts)
+	c, sum, err := compileWith(ctx, r, cfg, start)
+	if err != nil {
+		return sum, err
+	}
+	defer c.Close()
+	if err := ctx.Err(); err != nil {
+		return sum, err
+	}
+	cfg.emit(ProgressEvent{Phase: PhaseWrite, Contexts: sum.Contexts, Entities: sum.Entities,
+		SpillRuns: sum.SpillRuns, Pairs: sum.Pairs.After, BytesRead: -1, Elapsed: time.Since(start)})
+	if err := WriteFile(out, c, cfg.writeOpts...); err != nil {
+		return sum, err
+	}
+	if fi, err := os.Stat(out); err == nil {
+		sum.BytesWritten = fi.Size()
+	}
+	sum.Elapsed = time.Since(start)
+	cfg.emit(ProgressEvent{Phase: PhaseDone, Contexts: sum.Contexts, Entities: sum.Entities,
+		SpillRuns: sum.SpillRuns, Pairs: sum.Pairs.After, BytesRead: -1, Elapsed: sum.Elapsed})
+	return sum, nil
+}
+
+// Compiled is the counted, merged and pruned content of a corpus: a Source
+// for WriteFile. Its pair tables live in memory or, after spilling, in a temp
+// file; Close releases them. Pairs may be called any number of times.
+type Compiled struct {
+	contexts uint64
+	ents     []EntityRecord
+	k        []uint8
+	store    *pairStore
+	filter   *pruneFilter
+	dir      string
+}
+
+// Contexts is the number of contexts counted.
+func (c *Compiled) Contexts() uint64 { return c.contexts }
+
+// Entities lists the entities in ascending name order.
+func (c *Compiled) Entities() []EntityRecord { return c.ents }
+
+// Pairs calls fn with every kept pair in ascending (A, B) order.
+func (c *Compiled) Pairs(fn func(PairRecord) error) error {
+	if c.store == nil {
+		return errors.New("graphidx: Compiled is closed")
+	}
+	return c.store.each(c.k, func(a, b uint32, counts []uint32) error {
+		if !c.filter.keep(a, b, sumCounts(counts)) {
+			return nil
+		}
+		return fn(PairRecord{A: a, B: b, Counts: counts})
+	})
+}
+
+// Close removes the temporary files.
+func (c *Compiled) Close() error {
+	var err error
+	if c.store != nil {
+		err = c.store.close()
+		c.store = nil
+	}
+	if c.dir != "" {
+		err = errors.Join(err, os.RemoveAll(c.dir))
+		c.dir = ""
+	}
+	return err
+}
+
+// Compile counts the contexts of r and returns the compiled, pruned index
+// content without writing it.
+//
+// Counting. Entities get provisional ids in first-seen order and values
+// provisional indices; every context adds 1 to its entities' marginals and,
+// for each unordered pair of its n observations, to one cell of the pair's
+// K×K table: n(n−1)/2 increments per context. One goroutine reads and
+// interns; WithWorkers(n) goroutines count pairs into private open-addressing
+// tables keyed by a packed uint64 (see cellKey). Work is O(Σ n²) plus the
+// sort of the distinct cells, O(C log C).
+//
+// Memory. The dictionary and the tables share the WithMemBudget budget. When
+// a worker's table cannot grow within its share it is sorted in name order
+// and spilled to the temp dir as a run of 12-byte records, then reused. At
+// the end the remaining tables become in-memory runs, and all runs are
+// k-way merged (container/heap), summing equal cells: counts are sums, so
+// the result does not depend on how contexts were split between workers and
+// runs, and a spilled build equals an in-memory one exactly.
+//
+// Output. Entity ids ascend with the name and values ascend in byte order,
+// so the result is deterministic. More than MaxValues values for one entity
+// (ErrTooManyValues) or a cell above MaxUint32 (ErrCountOverflow) is an
+// error. Pruning (WithMinSupport, WithMaxNeighbors) is applied last and
+// reported in the summary; entities are never pruned.
+func Compile(ctx context.Context, r ContextReader, opts ...BuildOption) (*Compiled, BuildSummary, error) {
+	return compileWith(ctx, r, newBuildConfig(opts), time.Now())
+}
+
+func newBuildConfig(opts []BuildOption) buildConfig {
+	cfg := buildConfig{workers: runtime.GOMAXPROCS(0), memBudget: DefaultMemBudget, minSupport: 1,
+		progressTick: 200 * time.Millisecond, fanIn: 256}
+	for _, o := range opts {
+		if o != nil {
+			o.applyBuild(&cfg)
+		}
+	}
+	return cfg
+}
+
+func (cfg *buildConfig) emit(ev ProgressEvent) {
+	if cfg.progress != nil {
+		cfg.progress(ev)
+	}
+}
+
+// buildDict interns names for the reading goroutine. Only that goroutine
+// writes; workers read the name list (under mu) to rank entities when they
+// spill.
+type buildDict struct {
+	mu    sync.RWMutex
+	ids   map[string]uint32
+	names []string
+	vals  [][]string // per provisional entity, first-seen order
+	marg  [][]uint64
+	bytes atomic.Int64
+
+	rankMu     sync.Mutex
+	rankN      int
+	rank, ordr []uint32
+}
+
+const dictEntryBytes = 160 // map entry, slices and headers per entity (estimate)
+
+func (d *buildDict) entity(name string) (uint32, error) {
+	if id, ok := d.ids[name]; ok {
+		return id, nil
+	}
+	if len(d.names) >= maxEntities {
+		return 0, ErrTooManyEntities
+	}
+	id := uint32(len(d.names))
+	d.mu.Lock()
+	d.ids[name] = id
+	d.names = append(d.names, name)
+	d.mu.Unlock()
+	d.vals = append(d.vals, nil)
+	d.marg = append(d.marg, nil)
+	d.bytes.Add(int64(len(name)) + dictEntryBytes)
+	return id, nil
+}
+
+func (d *buildDict) value(e uint32, v string) (uint32, bool) {
+	vs := d.vals[e]
+	for i, s := range vs {
+		if s == v {
+			return uint32(i), true
+		}
+	}
+	if len(vs) >= MaxValues {
+		return 0, false
+	}
+	d.vals[e] = append(vs, v)
+	d.marg[e] = append(d.marg[e], 0)
+	d.bytes.Add(int64(len(v)) + 24)
+	return uint32(len(vs)), true
+}
+
+func (d *buildDict) name(e uint32) string {
+	d.mu.RLock()
+	defer d.mu.RUnlock()
+	return d.names[e]
+}
+
+// ranks returns rank[prov] (position in name order) and its inverse for
+// every entity interned so far. Cached until a new entity appears.
+// O(E log E).
+func (d *buildDict) ranks() (rank, order []uint32) {
+	d.rankMu.Lock()
+	defer d.rankMu.Unlock()
+	d.mu.RLock()
+	names := d.names
+	d.mu.RUnlock()
+	if len(names) == d.rankN && d.rank != nil {
+		return d.rank, d.ordr
+	}
+	order = make([]uint32, len(names))
+	for i := range order {
+		order[i] = uint32(i)
+	}
+	slices.SortFunc(order, func(a, b uint32) int { return strings.Compare(names[a], names[b]) })
+	rank = make([]uint32, len(names))
+	for r, p := range order {
+		rank[p] = uint32(r)
+	}
+	d.rankN, d.rank, d.ordr = len(names), rank, order
+	return rank, order
+}
+
+// ctxBatch carries interned contexts from the reader to the workers.
+type ctxBatch struct {
+	ids   []string
+	off   []int32
+	items []uint32 // entity<<6 | value
+}
+
+const (
+	batchContexts = 1024
+	batchItems    = 1 << 15
+)
+
+// buildRun is the shared state of one compile.
+type buildRun struct {
+	cfg    buildConfig
+	dict   *buildDict
+	dir    string
+	dirMu  sync.Mutex
+	runsMu sync.Mutex
+	runs   []runFile
+	spillB int64
+	merges int
+	start  time.Time
+}
+
+func (b *buildRun) tempDir() (string, error) {
+	b.dirMu.Lock()
+	defer b.dirMu.Unlock()
+	if b.dir == "" {
+		d, err := os.MkdirTemp(b.cfg.tempDir, "hopwise-build-*")
+		if err != nil {
+			return "", fmt.Errorf("graphidx: temp dir: %w", err)
+		}
+		b.dir = d
+	}
+	return b.dir, nil
+}
+
+// fixedOverhead is the memory reserved outside the dictionary and tables:
+// read buffers, batches in flight, merge buffers.
+const fixedOverhead = 512 << 10
+
+// tableLimit is the most bytes one worker's table may use right now.
+func (b *buildRun) tableLimit() int64 {
+	free := b.cfg.memBudget - fixedOverhead - b.dict.bytes.Load()
+	return max(free/int64(b.cfg.workers), 64<<10)
+}
+
+// spill writes a drained table as a run.
+func (b *buildRun) spill(t *pairTab) error {
+	rank, order := b.dict.ranks()
+	cells := t.drain(rank)
+	dir, err := b.tempDir()
+	if err != nil {
+		return err
+	}
+	b.runsMu.Lock()
+	path := filepath.Join(dir, fmt.Sprintf("run-%06d", len(b.runs)))
+	b.runs = append(b.runs, runFile{path: path, cells: int64(len(cells))})
+	b.runsMu.Unlock()
+	n, err := writeRun(path, cells, order)
+	if err != nil {
+		return err
+	}
+	b.runsMu.Lock()
+	b.spillB += n
+	b.runsMu.Unlock()
+	t.reset()
+	return nil
+}
+
+func (b *buildRun) numRuns() int {
+	b.runsMu.Lock()
+	defer b.runsMu.Unlock()
+	return len(b.runs)
+}
+
+// worker counts the pairs of the batches it receives.
+func (b *buildRun) worker(ctx context.Context, in <-chan *ctxBatch, free chan<- *ctxBatch) (*pairTab, error) {
+	t := newPairTab(1 << 12)
+	var scratch []uint32
+	for batch := range in {
+		if ctx.Err() != nil {
+			continue // drain
+		}
+		for c := 0; c+1 < len(batch.off); c++ {
+			items := batch.items[batch.off[c]:batch.off[c+1]]
+			scratch = append(scratch[:0], items...)
+			if len(scratch) < 2 {
+				continue
+			}
+			if len(scratch) <= 16 {
+				for i := 1; i < len(scratch); i++ {
+					for j := i; j > 0 && scratch[j] < scratch[j-1]; j-- {
+						scratch[j], scratch[j-1] = scratch[j-1], scratch[j]
+					}
+				}
+			} else {
+				slices.Sort(scratch)
+			}
+			for i := 1; i < len(scratch); i++ {
+				if scratch[i]>>6 == scratch[i-1]>>6 {
+					return t, fmt.Errorf("%w: context %s: entity %s", ErrDuplicateEntity,
+						strconv.Quote(batch.ids[c]), strconv.Quote(b.dict.name(scratch[i]>>6)))
+				}
+			}
+			for i, x := range scratch {
+				hi := uint64(x>>6)<<38 | uint64(x&63)<<6
+				for _, y := range scratch[i+1:] {
+					if t.used >= t.limit {
+						if err := b.makeRoom(t); err != nil {
+							return t, err
+						}
+					}
+					if !t.add(hi | uint64(y>>6)<<12 | uint64(y&63)) {
+						a, bb := b.dict.name(x>>6), b.dict.name(y>>6)
+						return t, fmt.Errorf("%w: pair %s, %s", ErrCountOverflow, strconv.Quote(a), strconv.Quote(bb))
+					}
+				}
+			}
+		}
+		select {
+		case free <- batch:
+		default:
+		}
+	}
+	return t, ctx.Err()
+}
+
+// makeRoom grows the table if the budget allows, else spills it.
+func (b *buildRun) makeRoom(t *pairTab) error {
+	// Growing holds the old and the new table at once: 3× the current size.
+	if 3*t.bytes() <= b.tableLimit() {
+		t.grow()
+		return nil
+	}
+	return b.spill(t)
+}
+
+func compileWith(ctx context.Context, r ContextReader, cfg buildConfig, start time.Time) (_ *Compiled, sum BuildSummary, err error) {
+	sum.Workers, sum.MemBudget = cfg.workers, cfg.memBudget
+	b := &buildRun{cfg: cfg, start: start, dict: &buildDict{ids: map[string]uint32{}}}
+	defer func() {
+		if err != nil && b.dir != "" {
+			os.RemoveAll(b.dir)
+		}
+		sum.Elapsed = time.Since(start)
+	}()
+
+	wctx, cancel := context.WithCancelCause(ctx)
+	defer cancel(nil)
+	in := make(chan *ctxBatch, 2*cfg.workers)
+	free := make(chan *ctxBatch, 3*cfg.workers+1)
+	tables := make([]*pairTab, cfg.workers)
+	var wg sync.WaitGroup
+	for w := range cfg.workers {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			t, err := b.worker(wctx, in, free)
+			tables[w] = t
+			if err != nil {
+				cancel(err)
+			}
+		}()
+	}
+	rerr := b.read(wctx, r, in, free, &sum)
+	close(in)
+	wg.Wait()
+	if rerr == nil {
+		rerr = context.Cause(wctx)
+		if rerr == nil {
+			rerr = ctx.Err()
+		}
+	} else if c := context.Cause(wctx); c != nil && !errors.Is(c, context.Canceled) {
+		rerr = c // a worker's error explains the cancellation
+	}
+	if sr, ok := r.(StatsReader); ok {
+		sum.Read = sr.Stats()
+	}
+	if rerr != nil {
+		return nil, sum, rerr
+	}
+
+	comp, err := b.finish(ctx, tables, &sum)
+	if err != nil {
+		return nil, sum, err
+	}
+	return comp, sum, nil
+}
+
+// read is the producer: it reads contexts, interns them, counts marginals
+// and sends batches to the workers.
+func (b *buildRun) read(ctx context.Context, r ContextReader, in chan<- *ctxBatch, free chan *ctxBatch, sum *BuildSummary) error {
+	d := b.dict
+	br, _ := r.(interface{ BytesRead() int64 })
+	newBatch := func() *ctxBatch {
+		select {
+		case x := <-free:
+			x.ids, x.off, x.items = x.ids[:0], x.off[:1], x.items[:0]
+			return x
+		default:
+			return &ctxBatch{off: []int32{0}}
+		}
+	}
+	batch := newBatch()
+	send := func() error {
+		select {
+		case in <- batch:
+		case <-ctx.Done():
+			return context.Cause(ctx)
+		}
+		batch = newBatch()
+		return nil
+	}
+	lastTick := time.Now()
+	progress := func(phase string) {
+		ev := ProgressEvent{Phase: phase, Contexts: sum.Contexts, BytesRead: -1, Entities: len(d.names),
+			SpillRuns: b.numRuns(), Elapsed: time.Since(b.start)}
+		if br != nil {
+			ev.BytesRead = br.BytesRead()
+		}
+		b.cfg.emit(ev)
+	}
+	progress(PhaseRead)
+	for {
+		c, err := r.Next()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			return err
+		}
+		if len(batch.items)+len(c.Obs) > batchItems && len(batch.ids) > 0 {
+			if err := send(); err != nil {
+				return err
+			}
+		}
+		if len(c.Obs) > math.MaxInt32-len(batch.items) {
+			return fmt.Errorf("graphidx: context %s has too many observations", strconv.Quote(c.ID))
+		}
+		for _, o := range c.Obs {
+			if o.Entity == "" || o.Value == "" {
+				return fmt.Errorf("%w: context %s", ErrEmptyName, strconv.Quote(c.ID))
+			}
+			e, err := d.entity(o.Entity)
+			if err != nil {
+				return err
+			}
+			v, ok := d.value(e, o.Value)
+			if !ok {
+				return fmt.Errorf("%w: entity %s, value %s in context %s (it already has %s)", ErrTooManyValues,
+					strconv.Quote(o.Entity), strconv.Quote(o.Value), strconv.Quote(c.ID), strings.Join(d.vals[e], ","))
+			}
+			d.marg[e][v]++
+			batch.items = append(batch.items, e<<6|v)
+		}
+		batch.ids = append(batch.ids, c.ID)
+		batch.off = append(batch.off, int32(len(batch.items)))
+		sum.Contexts++
+		sum.Observations += uint64(len(c.Obs))
+		if len(batch.ids) >= batchContexts {
+			if err := send(); err != nil {
+				return err
+			}
+			if b.cfg.progress != nil && time.Since(lastTick) >= b.cfg.progressTick {
+				lastTick = time.Now()
+				progress(PhaseRead)
+			}
+		}
+	}
+	if len(batch.ids) > 0 {
+		if err := send(); err != nil {
+			return err
+		}
+	}
+	progress(PhaseRead)
+	return nil
+}
+
+// finish merges the tables and runs into the compiled pairs and prunes.
+func (b *buildRun) finish(ctx context.Context, tables []*pairTab, sum *BuildSummary) (_ *Compiled, err error) {
+	d := b.dict
+	rank, order := d.ranks() // final: rank[prov] is the EntityID
+	n := len(order)
+	sum.Entities = n
+	comp := &Compiled{contexts: sum.Contexts, ents: make([]EntityRecord, n), k: make([]uint8, n)}
+	defer func() {
+		if err != nil {
+			comp.Close()
+		}
+	}()
+	// Values sorted per entity; valFinal[prov][provValue] = final index.
+	valFinal := make([][]uint8, n)
+	for id, p := range order {
+		vs := d.vals[p]
+		idx := make([]int, len(vs))
+		for i := range idx {
+			idx[i] = i
+		}
+		slices.SortFunc(idx, func(x, y int) int { return strings.Compare(vs[x], vs[y]) })
+		rec := EntityRecord{Name: d.names[p], Values: make([]string, len(vs)), Marginal: make([]uint64, len(vs))}
+		vf := make([]uint8, len(vs))
+		for fi, pi := range idx {
+			rec.Values[fi] = vs[pi]
+			rec.Marginal[fi] = d.marg[p][pi]
+			vf[pi] = uint8(fi)
+		}
+		comp.ents[id] = rec
+		comp.k[id] = uint8(len(vs))
+		valFinal[p] = vf
+	}
+	b.cfg.emit(ProgressEvent{Phase: PhaseMerge, Contexts: sum.Contexts, Entities: n, SpillRuns: b.numRuns(),
+		BytesRead: -1, Elapsed: time.Since(b.start)})
+
+	// Sources: the remaining tables in memory, the runs on disk.
+	var srcs []cellSource
+	defer func() {
+		for _, s := range srcs {
+			s.close()
+		}
+	}()
+	for _, t := range tables {
+		if t != nil && t.used > 0 {
+			srcs = append(srcs, &memRun{cells: t.drain(rank)})
+		}
+	}
+	runs := b.runs
+	sum.SpillRuns, sum.SpillBytes = len(runs), b.spillB
+	if len(runs) > 0 {
+		// Intermediate merges while there are more runs than the fan-in.
+		for len(runs) > 1 && len(runs)+len(srcs) > b.cfg.fanIn {
+			k := max(2, min(b.cfg.fanIn, len(runs)))
+			merged, err := b.mergeRuns(runs[:k], rank)
+			if err != nil {
+				return nil, err
+			}
+			runs = append(runs[k:], merged)
+			sum.MergePasses++
+			if err := ctx.Err(); err != nil {
+				return nil, err
+			}
+		}
+		bufSize := runBufSize(b.cfg.memBudget, len(runs))
+		for _, rf := range runs {
+			fr, err := openRun(rf, rank, bufSize)
+			if err != nil {
+				return nil, err
+			}
+			srcs = append(srcs, fr)
+		}
+	}
+	dir := ""
+	if len(b.runs) > 0 {
+		dir = b.dir
+	}
+	comp.store = &pairStore{dir: dir, memLimit: max(b.cfg.memBudget/4, 1<<20)}
+	if dir == "" {
+		// Nothing spilled: keep the compiled pairs in memory unless huge.
+		comp.store.dir = b.cfg.tempDir
+	}
+	m, err := newCellMerger(srcs)
+	if err != nil {
+		return nil, err
+	}
+	srcs = nil
+	defer m.close()
+
+	var (
+		curAB = uint64(math.MaxUint64)
+		acc   []uint64
+		cnt   []uint32
+		seen  uint64
+	)
+	flush := func() error {
+		if curAB == math.MaxUint64 {
+			return nil
+		}
+		a, bb := uint32(curAB>>26), uint32(curAB)&keyEntMask
+		cnt = slices.Grow(cnt[:0], len(acc))[:len(acc)]
+		for i, x := range acc {
+			if x > math.MaxUint32 {
+				return fmt.Errorf("%w: pair %s, %s", ErrCountOverflow, strconv.Quote(comp.ents[a].Name), strconv.Quote(comp.ents[bb].Name))
+			}
+			cnt[i] = uint32(x)
+		}
+		return comp.store.put(a, bb, cnt)
+	}
+	err = m.each(func(key uint64, c uint64) error {
+		a, bb, u, v := splitKey(key)
+		if int(a) >= n || int(bb) >= n || a >= bb {
+			return fmt.Errorf("graphidx: internal error: bad merged key %#x", key)
+		}
+		ab := key >> 12
+		if ab != curAB {
+			if err := flush(); err != nil {
+				return err
+			}
+			curAB = ab
+			kb := int(comp.k[bb])
+			acc = slices.Grow(acc[:0], int(comp.k[a])*kb)[:int(comp.k[a])*kb]
+			clear(acc)
+			seen++
+			if seen&0xffff == 0 {
+				if err := ctx.Err(); err != nil {
+					return err
+				}
+			}
+		}
+		fu, fv := valFinal[order[a]], valFinal[order[bb]]
+		if int(u) >= len(fu) || int(v) >= len(fv) {
+			return fmt.Errorf("graphidx: internal error: bad merged value in key %#x", key)
+		}
+		acc[int(fu[u])*int(comp.k[bb])+int(fv[v])] += c
+		return nil
+	})
+	if err == nil {
+		err = flush()
+	}
+	if err == nil {
+		err = comp.store.seal()
+	}
+	if err != nil {
+		return nil, err
+	}
+	// Release the tables before pruning.
+	for i := range tables {
+		tables[i] = nil
+	}
+	if b.dir != "" {
+		comp.dir = b.dir
+		b.dir = ""
+		// Runs are merged; only the pair store may still live there.
+		for _, rf := range b.runs {
+			os.Remove(rf.path)
+		}
+	}
+
+	b.cfg.emit(ProgressEvent{Phase: PhasePrune, Contexts: sum.Contexts, Entities: n, SpillRuns: sum.SpillRuns,
+		Pairs: comp.store.n, BytesRead: -1, Elapsed: time.Since(b.start)})
+	f, st, err := planPrune(n, b.cfg.minSupport, b.cfg.maxNeighbors, func(fn func(a, b uint32, sup uint64) error) error {
+		return comp.store.each(comp.k, func(a, bb uint32, counts []uint32) error {
+			return fn(a, bb, sumCounts(counts))
+		})
+	})
+	if err != nil {
+		return nil, err
+	}
+	comp.filter = f
+	sum.Pairs = st
+	return comp, nil
+}
+
+// runBufSize is the read buffer per run in a merge of k runs: at most 256
+// KiB, at least 4 KiB, and together at most half the budget.
+func runBufSize(budget int64, k int) int {
+	if k == 0 {
+		return 4 << 10
+	}
+	return int(min(256<<10, max(4<<10, budget/int64(2*k))))
+}
+
+// mergeRuns merges runs into one final-keyed run file.
+func (b *buildRun) mergeRuns(runs []runFile, final []uint32) (runFile, error) {
+	bufSize := runBufSize(b.cfg.memBudget, len(runs))
+	var srcs []cellSource
+	for _, rf := range runs {
+		fr, err := openRun(rf, final, bufSize)
+		if err != nil {
+			for _, s := range srcs {
+				s.close()
+			}
+			return runFile{}, err
+		}
+		srcs = append(srcs, fr)
+	}
+	m, err := newCellMerger(srcs)
+	if err != nil {
+		m.close()
+		return runFile{}, err
+	}
+	defer m.close()
+	b.merges++
+	path := filepath.Join(b.dir, fmt.Sprintf("merged-%06d", b.merges))
+	out := runFile{path: path, final: true}
+	f, err := os.Create(path)
+	if err != nil {
+		return runFile{}, err
+	}
+	w := bufio.NewWriterSize(f, 256<<10)
+	var rec [12]byte
+	err = m.each(func(key uint64, c uint64) error {
+		if c > math.MaxUint32 {
+			a, bb, _, _ := splitKey(key)
+			return fmt.Errorf("%w: pair of entities %d and %d", ErrCountOverflow, a, bb)
+		}
+		binary.LittleEndian.PutUint64(rec[:8], key)
+		binary.LittleEndian.PutUint32(rec[8:], uint32(c))
+		_, err := w.Write(rec[:])
+		out.cells++
+		return err
+	})
+	if err == nil {
+		err = w.Flush()
+	}
+	if cerr := f.Close(); err == nil {
+		err = cerr
+	}
+	if err != nil {
+		return runFile{}, err
+	}
+	for _, rf := range runs {
+		os.Remove(rf.path)
+	}
+	return out, nil
+}

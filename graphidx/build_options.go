@@ -1,0 +1,210 @@
+package graphidx
+
+import (
+	"fmt"
+	"maps"
+	"sort"
+	"strings"
+	"time"
+)
+
+// DefaultMemBudget is the memory budget of Build and of the CSV reader when
+// none is given: 512 MiB.
+const DefaultMemBudget = 512 << 20
+
+// MinMemBudget is the smallest budget accepted; smaller values are raised to
+// it. Below it the fixed costs (read buffers, minimum tables) dominate.
+const MinMemBudget = 1 << 20
+
+// BuildOption configures Build and Compile.
+type BuildOption interface{ applyBuild(*buildConfig) }
+
+// SharedOption configures both a corpus reader and the builder.
+type SharedOption interface {
+	ReadOption
+	BuildOption
+}
+
+type buildConfig struct {
+	workers      int
+	memBudget    int64
+	tempDir      string
+	minSupport   uint64
+	maxNeighbors int
+	progress     func(ProgressEvent)
+	progressTick time.Duration
+	writeOpts    []WriteOption
+	fanIn        int // maximum runs merged at once
+}
+
+type buildOptionFunc func(*buildConfig)
+
+func (f buildOptionFunc) applyBuild(c *buildConfig) { f(c) }
+
+// WithWorkers sets the number of counting goroutines (default GOMAXPROCS).
+// Values < 1 keep the default.
+func WithWorkers(n int) BuildOption {
+	return buildOptionFunc(func(c *buildConfig) {
+		if n > 0 {
+			c.workers = n
+		}
+	})
+}
+
+// WithMinSupport drops pairs observed together in fewer than n contexts.
+// The default 1 keeps every observed pair.
+func WithMinSupport(n uint64) BuildOption {
+	return buildOptionFunc(func(c *buildConfig) { c.minSupport = max(n, 1) })
+}
+
+// WithMaxNeighbors keeps, for every entity, only its n best neighbours: the
+// pairs ranked by support (descending), ties broken by the neighbour's
+// EntityID (ascending), among the pairs that pass the minimum support. A pair
+// is kept when EITHER endpoint ranks the other in its top n, so every entity
+// keeps min(n, degree) neighbours and the graph stays symmetric; an entity's
+// degree may therefore exceed n when it is in the top n of many others.
+// n = 0 (the default) disables the limit. Cost: O(entities·n) memory.
+func WithMaxNeighbors(n int) BuildOption {
+	return buildOptionFunc(func(c *buildConfig) { c.maxNeighbors = max(n, 0) })
+}
+
+// WithProgress registers a callback for progress events. It is called from
+// the building goroutine, at most every 200 ms while reading and once per
+// phase change; a slow callback slows the build.
+func WithProgress(fn func(ProgressEvent)) BuildOption {
+	return buildOptionFunc(func(c *buildConfig) { c.progress = fn })
+}
+
+// WithWriteOptions passes options through to WriteFile (Build only).
+func WithWriteOptions(opts ...WriteOption) BuildOption {
+	return buildOptionFunc(func(c *buildConfig) { c.writeOpts = append(c.writeOpts, opts...) })
+}
+
+// withFanIn sets the maximum number of runs merged at once (tests).
+func withFanIn(n int) BuildOption {
+	return buildOptionFunc(func(c *buildConfig) { c.fanIn = max(n, 2) })
+}
+
+type memBudgetOption int64
+
+func (o memBudgetOption) applyBuild(c *buildConfig) {
+	if o > 0 {
+		c.memBudget = max(int64(o), MinMemBudget)
+	}
+}
+
+func (o memBudgetOption) applyRead(c *readConfig) {
+	if o > 0 {
+		c.memLimit = max(int64(o), 64<<10)
+	}
+}
+
+// WithMemBudget bounds the memory, in bytes, that the builder uses for its
+// dictionary and count tables (and that the CSV reader uses to group rows).
+// When the tables reach it they are spilled to the temp dir as sorted runs.
+// The Go runtime adds its own overhead on top; set a soft memory limit
+// (runtime/debug.SetMemoryLimit) to keep the process close to the budget.
+// Values ≤ 0 keep DefaultMemBudget.
+func WithMemBudget(bytes int64) SharedOption { return memBudgetOption(bytes) }
+
+type tempDirOption string
+
+func (o tempDirOption) applyBuild(c *buildConfig) { c.tempDir = string(o) }
+func (o tempDirOption) applyRead(c *readConfig)   { c.tempDir = string(o) }
+
+// WithTempDir sets the directory for spilled runs (default os.TempDir()).
+// A private subdirectory is created in it and removed when done.
+func WithTempDir(dir string) SharedOption { return tempDirOption(dir) }
+
+// Build phases reported in ProgressEvent.Phase.
+const (
+	PhaseRead  = "read"  // reading the corpus and counting
+	PhaseMerge = "merge" // merging counts (and spilled runs)
+	PhasePrune = "prune" // applying min-support and max-neighbours
+	PhaseWrite = "write" // writing the index file
+	PhaseDone  = "done"
+)
+
+// ProgressEvent reports the state of a build.
+type ProgressEvent struct {
+	Phase     string
+	Contexts  uint64        // contexts counted so far
+	BytesRead int64         // input bytes consumed, -1 if the reader does not tell
+	Entities  int           // distinct entities so far
+	SpillRuns int           // runs spilled so far
+	Pairs     uint64        // pairs compiled (merge phase and later)
+	Elapsed   time.Duration // since the build started
+}
+
+// PruneStats reports what pruning removed. Before = After + ByMinSupport +
+// ByMaxNeighbors.
+type PruneStats struct {
+	Before         uint64 // distinct pairs observed
+	After          uint64 // pairs kept
+	ByMinSupport   uint64 // pairs with support below the minimum
+	ByMaxNeighbors uint64 // pairs above the minimum but in neither top-n
+	MinSupport     uint64
+	MaxNeighbors   int
+}
+
+// BuildSummary reports a build.
+type BuildSummary struct {
+	Contexts     uint64
+	Observations uint64
+	Entities     int
+	Pairs        PruneStats
+	Read         ReadStats // zero when the reader does not implement StatsReader
+	Workers      int
+	MemBudget    int64
+	SpillRuns    int   // sorted runs written to the temp dir
+	SpillBytes   int64 // bytes of those runs
+	MergePasses  int   // intermediate merge passes (fan-in limit)
+	BytesWritten int64 // size of the index file (Build only)
+	Elapsed      time.Duration
+}
+
+// String renders the summary as a few human-readable lines, including the
+// skipped-line counts by reason.
+func (s BuildSummary) String() string {
+	var b strings.Builder
+	fmt.Fprintf(&b, "contexts      %d (%d observations)\n", s.Contexts, s.Observations)
+	fmt.Fprintf(&b, "entities      %d\n", s.Entities)
+	fmt.Fprintf(&b, "pairs         %d kept of %d", s.Pairs.After, s.Pairs.Before)
+	if s.Pairs.ByMinSupport > 0 || s.Pairs.MinSupport > 1 {
+		fmt.Fprintf(&b, "; %d below min support %d", s.Pairs.ByMinSupport, s.Pairs.MinSupport)
+	}
+	if s.Pairs.MaxNeighbors > 0 {
+		fmt.Fprintf(&b, "; %d outside every top-%d", s.Pairs.ByMaxNeighbors, s.Pairs.MaxNeighbors)
+	}
+	b.WriteString("\n")
+	if s.Read.Records > 0 || s.Read.Lines > 0 {
+		fmt.Fprintf(&b, "records       %d read, %d ok, %d skipped", s.Read.Records, s.Read.OK, s.Read.SkippedTotal())
+		if s.Read.Empty > 0 {
+			fmt.Fprintf(&b, ", %d without entities", s.Read.Empty)
+		}
+		fmt.Fprintf(&b, " (%d lines)\n", s.Read.Lines)
+		reasons := make([]string, 0, len(s.Read.Skipped))
+		for r := range maps.Keys(s.Read.Skipped) {
+			reasons = append(reasons, r)
+		}
+		sort.Strings(reasons)
+		for _, r := range reasons {
+			fmt.Fprintf(&b, "  skipped %-18s %d", r, s.Read.Skipped[r])
+			if e := s.Read.FirstBad[r]; e != nil {
+				fmt.Fprintf(&b, "  (first: %s)", e.Error())
+			}
+			b.WriteString("\n")
+		}
+	}
+	fmt.Fprintf(&b, "spill         %d runs, %d bytes, %d extra merge passes (budget %d bytes, %d workers)\n",
+		s.SpillRuns, s.SpillBytes, s.MergePasses, s.MemBudget, s.Workers)
+	if s.BytesWritten > 0 {
+		fmt.Fprintf(&b, "index         %d bytes\n", s.BytesWritten)
+	}
+	fmt.Fprintf(&b, "elapsed       %s", s.Elapsed.Round(time.Millisecond))
+	if sec := s.Elapsed.Seconds(); sec > 0 {
+		fmt.Fprintf(&b, " (%.0f contexts/s)", float64(s.Contexts)/sec)
+	}
+	b.WriteString("\n")
+	return b.String()
+}

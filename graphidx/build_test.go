@@ -1,0 +1,294 @@
+package graphidx
+
+import (
+	"bytes"
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// sliceReader is a ContextReader over a slice (copies Obs like a real
+// reader would reuse them).
+type sliceReader struct {
+	cs []Context
+	i  int
+}
+
+func (s *sliceReader) Next() (Context, error) {
+	if s.i >= len(s.cs) {
+		return Context{}, io.EOF
+	}
+	s.i++
+	return s.cs[s.i-1], nil
+}
+
+// dumpSrc renders a Source canonically for comparisons.
+func dumpSrc(t testing.TB, src Source) string {
+	t.Helper()
+	var b strings.Builder
+	fmt.Fprintf(&b, "contexts %d\n", src.Contexts())
+	ents := src.Entities()
+	for i, e := range ents {
+		fmt.Fprintf(&b, "e%d %s %v %v\n", i, e.Name, e.Values, e.Marginal)
+	}
+	err := src.Pairs(func(p PairRecord) error {
+		fmt.Fprintf(&b, "p %s-%s %v\n", ents[p.A].Name, ents[p.B].Name, p.Counts)
+		return nil
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return b.String()
+}
+
+// handCorpus is a small greenhouse corpus whose counts are worked out by
+// hand in TestCompileHandChecked.
+func handCorpus() []Context {
+	return []Context{
+		{ID: "c1", Obs: []Observation{{"vent3", "open"}, {"zone2.humidity", "high"}, {"pump1", "on"}}},
+		{ID: "c2", Obs: []Observation{{"vent3", "closed"}, {"zone2.humidity", "high"}}},
+		{ID: "c3", Obs: []Observation{{"zone2.humidity", "low"}, {"vent3", "open"}}},
+		{ID: "c4", Obs: []Observation{{"pump1", "off"}, {"bed4", "present"}}},
+		{ID: "c5", Obs: []Observation{{"bed4", "present"}}},
+	}
+}
+
+func TestCompileHandChecked(t *testing.T) {
+	t.Parallel()
+	c, sum, err := Compile(context.Background(), &sliceReader{cs: handCorpus()}, WithWorkers(2))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer c.Close()
+	// Worked by hand: ids by name bed4 < pump1 < vent3 < zone2.humidity;
+	// values ascending; c1 gives pump1/vent3, pump1/zone, vent3/zone; c2 and
+	// c3 give vent3/zone; c4 gives bed4/pump1.
+	want := `contexts 5
+e0 bed4 [present] [2]
+e1 pump1 [off on] [1 1]
+e2 vent3 [closed open] [1 2]
+e3 zone2.humidity [high low] [2 1]
+p bed4-pump1 [1 0]
+p pump1-vent3 [0 0 0 1]
+p pump1-zone2.humidity [0 0 1 0]
+p vent3-zone2.humidity [1 0 1 1]
+`
+	if got := dumpSrc(t, c); got != want {
+		t.Errorf("got\n%s\nwant\n%s", got, want)
+	}
+	if sum.Contexts != 5 || sum.Observations != 10 || sum.Entities != 4 || sum.Pairs.Before != 4 || sum.Pairs.After != 4 {
+		t.Errorf("summary %+v", sum)
+	}
+}
+
+// genCorpus makes n seeded contexts of about size entities each, drawn near
+// a random centre of a ring of ents entities (locality), with k values each.
+func genCorpus(seed uint64, n, ents, size, k int) []Context {
+	rng := rand.New(rand.NewPCG(seed, 7))
+	out := make([]Context, n)
+	for i := range out {
+		centre := rng.IntN(ents)
+		seen := map[int]bool{}
+		var obs []Observation
+		m := 1 + rng.IntN(2*size)
+		for len(obs) < m {
+			e := (centre + rng.IntN(4*size)) % ents
+			if seen[e] {
+				continue
+			}
+			seen[e] = true
+			obs = append(obs, Observation{fmt.Sprintf("sensor%04d", e), fmt.Sprintf("s%d", rng.IntN(k))})
+		}
+		out[i] = Context{ID: fmt.Sprintf("c%d", i), Obs: obs}
+	}
+	return out
+}
+
+func partialOf(t testing.TB, cs []Context) *Partial {
+	p := NewPartial()
+	for _, c := range cs {
+		if err := p.Add(c); err != nil {
+			t.Fatal(err)
+		}
+	}
+	return p
+}
+
+// TestCompileMatchesPartials checks the fast builder against the reference
+// name-keyed Partial, merged from shards in two different groupings
+// (associativity), with and without pruning.
+func TestCompileMatchesPartials(t *testing.T) {
+	t.Parallel()
+	cs := genCorpus(1, 3000, 300, 5, 3)
+	for _, opts := range [][]BuildOption{nil, {WithMinSupport(3)}, {WithMaxNeighbors(4)}, {WithMinSupport(2), WithMaxNeighbors(3)}} {
+		c, sum, err := Compile(context.Background(), &sliceReader{cs: cs}, append(opts, WithWorkers(3))...)
+		if err != nil {
+			t.Fatal(err)
+		}
+		got := dumpSrc(t, c)
+		c.Close()
+
+		// ((s0+s1)+s2) and (s0+(s1+s2)) over uneven shards.
+		s := []*Partial{partialOf(t, cs[:700]), partialOf(t, cs[700:2100]), partialOf(t, cs[2100:])}
+		left := NewPartial()
+		left.Merge(s[0])
+		left.Merge(s[1])
+		left.Merge(s[2])
+		right := NewPartial()
+		right.Merge(s[1])
+		right.Merge(s[2])
+		s0 := NewPartial()
+		s0.Merge(s[0])
+		s0.Merge(right)
+		for _, p := range []*Partial{left, s0} {
+			src, st, err := p.Compile(opts...)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if want := dumpSrc(t, src); got != want {
+				t.Fatalf("opts %d: Compile and Partial differ", len(opts))
+			}
+			if st != sum.Pairs {
+				t.Errorf("prune stats %+v vs %+v", st, sum.Pairs)
+			}
+		}
+	}
+}
+
+// TestSpillEqualsInMemory forces spilling with the smallest budget and a
+// fan-in of 2 (many intermediate merges) and compares with an in-memory
+// build, as Sources and as index files.
+func TestSpillEqualsInMemory(t *testing.T) {
+	t.Parallel()
+	cs := genCorpus(2, 20000, 2000, 6, 2)
+	dir := t.TempDir()
+	mem, memSum, err := Compile(context.Background(), &sliceReader{cs: cs})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer mem.Close()
+	if memSum.SpillRuns != 0 {
+		t.Fatalf("default budget spilled %d runs", memSum.SpillRuns)
+	}
+	for _, fan := range []int{256, 2} {
+		sp, spSum, err := Compile(context.Background(), &sliceReader{cs: cs}, WithMemBudget(1), WithTempDir(dir), withFanIn(fan), WithWorkers(2))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if spSum.SpillRuns < 3 {
+			t.Fatalf("fan-in %d: only %d runs spilled; the test does not exercise spilling", fan, spSum.SpillRuns)
+		}
+		if fan == 2 && spSum.MergePasses == 0 {
+			t.Fatalf("fan-in 2: no intermediate merge")
+		}
+		if a, b := dumpSrc(t, mem), dumpSrc(t, sp); a != b {
+			t.Fatalf("fan-in %d: spilled build differs from in-memory build", fan)
+		}
+		if testing.Verbose() {
+			t.Logf("fan-in %d: %d runs, %d merge passes", fan, spSum.SpillRuns, spSum.MergePasses)
+		}
+		if err := sp.Close(); err != nil {
+			t.Fatal(err)
+		}
+	}
+	// Nothing left behind in the temp dir.
+	if left, _ := os.ReadDir(dir); len(left) != 0 {
+		t.Errorf("temp dir not cleaned: %v", left)
+	}
+
+	// Files: byte-identical.
+	a, b := filepath.Join(dir, "mem.idx"), filepath.Join(dir, "spill.idx")
+	if _, err := Build(context.Background(), &sliceReader{cs: cs}, a); err != nil {
+		t.Fatal(err)
+	}
+	s, err := Build(context.Background(), &sliceReader{cs: cs}, b, WithMemBudget(1), WithTempDir(dir))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if s.SpillRuns == 0 || s.BytesWritten == 0 {
+		t.Fatalf("summary %+v", s)
+	}
+	ab, _ := os.ReadFile(a)
+	bb, _ := os.ReadFile(b)
+	if !bytes.Equal(ab, bb) || len(ab) == 0 {
+		t.Fatalf("index files differ: %d vs %d bytes", len(ab), len(bb))
+	}
+}
+
+func TestPruneHandChecked(t *testing.T) {
+	t.Parallel()
+	// Star around hub with supports hub-a:3, hub-b:2, hub-c:1, plus a-b:1.
+	var cs []Context
+	add := func(n int, ents ...string) {
+		for range n {
+			var obs []Observation
+			for _, e := range ents {
+				obs = append(obs, Observation{e, PresentValue})
+			}
+			cs = append(cs, Context{ID: fmt.Sprint(len(cs)), Obs: obs})
+		}
+	}
+	add(3, "hub", "a")
+	add(2, "hub", "b")
+	add(1, "hub", "c")
+	add(1, "a", "b")
+	pairs := func(opts ...BuildOption) (string, PruneStats) {
+		c, sum, err := Compile(context.Background(), &sliceReader{cs: cs}, opts...)
+		if err != nil {
+			t.Fatal(err)
+		}
+		defer c.Close()
+		var got []string
+		ents := c.Entities()
+		c.Pairs(func(p PairRecord) error {
+			got = append(got, ents[p.A].Name+"-"+ents[p.B].Name)
+			return nil
+		})
+		return strings.Join(got, " "), sum.Pairs
+	}
+	// Min support 2 drops hub-c and a-b.
+	if got, st := pairs(WithMinSupport(2)); got != "a-hub b-hub" || st.ByMinSupport != 2 || st.After != 2 {
+		t.Errorf("min support: %q %+v", got, st)
+	}
+	// Top-1: hub keeps a; a keeps hub; b keeps hub (2 > 1); c keeps hub.
+	// a-b is in neither top-1, so it alone is dropped: "either endpoint" rule.
+	if got, st := pairs(WithMaxNeighbors(1)); got != "a-hub b-hub c-hub" || st.ByMaxNeighbors != 1 || st.Before != 4 {
+		t.Errorf("max neighbours: %q %+v", got, st)
+	}
+	// Ties: with support 1 everywhere a-b vs a-hub... top-1 of c is hub only.
+	if got, _ := pairs(WithMaxNeighbors(1), WithMinSupport(3)); got != "a-hub" {
+		t.Errorf("combined: %q", got)
+	}
+}
+
+func TestBuildErrors(t *testing.T) {
+	t.Parallel()
+	ctx := context.Background()
+	var many []Context
+	for i := range 65 {
+		many = append(many, Context{ID: fmt.Sprint(i), Obs: []Observation{{"dial", fmt.Sprint(i)}}})
+	}
+	_, _, err := Compile(ctx, &sliceReader{cs: many})
+	if !errors.Is(err, ErrTooManyValues) || !strings.Contains(err.Error(), `"dial"`) {
+		t.Errorf("65 values: %v", err)
+	}
+	dup := []Context{{ID: "x", Obs: []Observation{{"a", "1"}, {"b", "1"}, {"a", "2"}}}}
+	if _, _, err := Compile(ctx, &sliceReader{cs: dup}); !errors.Is(err, ErrDuplicateEntity) || !strings.Contains(err.Error(), `"a"`) {
+		t.Errorf("duplicate: %v", err)
+	}
+	empty := []Context{{ID: "x", Obs: []Observation{{"a", ""}}}}
+	if _, _, err := Compile(ctx, &sliceReader{cs: empty}); !errors.Is(err, ErrEmptyName) {
+		t.Errorf("empty: %v", err)
+	}
+	cctx, cancel := context.WithCancel(ctx)
+	cancel()
+	if _, _, err := Compile(cctx, &sliceReader{cs: genCorpus(3, 5000, 100, 4, 2)}); !errors.Is(err, context.Canceled) {
+		t.Errorf("cancelled: %v", err)
+	}
+}

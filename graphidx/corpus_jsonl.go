@@ -1,0 +1,560 @@
+package graphidx
+
+import (
+	"fmt"
+	"io"
+	"strconv"
+	"unicode/utf16"
+	"unicode/utf8"
+)
+
+// JSONLReader reads JSON Lines contexts, one JSON object per line:
+//
+//	{"id":"c1","obs":{"vent3":"open","zone2.humidity":"high"}}
+//	{"id":"c2","ents":["pump1","bed4"]}
+//
+// Rules (each violation is a *LineError with the named reason):
+//   - "id" is a non-empty string (missing-id, bad-field).
+//   - "obs" is an object mapping entity names to value strings; "ents" is an
+//     array of entity names observed with PresentValue (bad-field for other
+//     types). A line with both is rejected (mixed-forms); a line with
+//     neither, or with an empty one, is rejected (empty-context).
+//   - An entity repeated in one line is rejected (duplicate-entity), whether
+//     the values differ or not; so is a repeated top-level key (bad-field).
+//   - Names and values are non-empty (empty-name), valid UTF-8 (bad-utf8) and
+//     at most MaxNameBytes long (name-too-long).
+//   - Other top-level keys are ignored, so lines may carry metadata.
+//   - Blank lines are ignored and are not records.
+//
+// The parser is a hand-written scanner for this schema: it allocates one
+// string per context id and none per repeated entity name or value. Lines
+// longer than the limit (WithMaxLineBytes) are skipped in constant memory.
+// A JSONLReader is not safe for concurrent use.
+type JSONLReader struct {
+	lr   *lineReader
+	name string
+	bl   badLines
+	in   interner
+	obs  []Observation
+	p    jparser
+}
+
+// NewJSONLReader returns a reader of JSONL contexts from r. name is the file
+// name used in errors.
+func NewJSONLReader(r io.Reader, name string, opts ...ReadOption) *JSONLReader {
+	cfg := newReadConfig(opts)
+	jr := &JSONLReader{lr: newLineReader(r, cfg.maxLine), name: name}
+	jr.bl.init(cfg.policy)
+	return jr
+}
+
+// Next returns the next valid context or io.EOF. In strict mode it returns
+// the first bad line as a *LineError; in lenient mode it skips and counts it.
+func (r *JSONLReader) Next() (Context, error) {
+	for {
+		line, err := r.lr.next()
+		if err == io.EOF {
+			return Context{}, io.EOF
+		}
+		if err != nil {
+			return Context{}, fmt.Errorf("%s:%d: %w", r.name, r.lr.line+1, err)
+		}
+		r.bl.stats.Lines++
+		if r.lr.tooLong {
+			r.bl.stats.Records++
+			if e := r.bl.bad(&LineError{File: r.name, Line: r.lr.line, Reason: ReasonLineTooLong,
+				Detail: fmt.Sprintf("longer than %d bytes", r.lr.max)}); e != nil {
+				return Context{}, e
+			}
+			continue
+		}
+		if isBlank(line) {
+			continue
+		}
+		r.bl.stats.Records++
+		c, le := r.parse(line)
+		if le != nil {
+			le.File, le.Line = r.name, r.lr.line
+			if e := r.bl.bad(le); e != nil {
+				return Context{}, e
+			}
+			continue
+		}
+		r.bl.stats.OK++
+		r.bl.stats.Contexts++
+		return c, nil
+	}
+}
+
+// Stats returns the line accounting so far.
+func (r *JSONLReader) Stats() ReadStats { return r.bl.snapshot() }
+
+// Skipped returns the counts of skipped lines by reason.
+func (r *JSONLReader) Skipped() map[string]int { return r.bl.Skipped() }
+
+// BytesRead is the number of input bytes consumed so far.
+func (r *JSONLReader) BytesRead() int64 { return r.lr.bytes }
+
+func isBlank(b []byte) bool {
+	for _, c := range b {
+		if c != ' ' && c != '\t' && c != '\r' {
+			return false
+		}
+	}
+	return true
+}
+
+func (r *JSONLReader) parse(line []byte) (Context, *LineError) {
+	p := &r.p
+	p.b, p.i = line, 0
+	r.obs = r.obs[:0]
+	var (
+		c                        Context
+		seenID, seenObs, seenEnt bool
+	)
+	p.ws()
+	if !p.eat('{') {
+		return c, p.syntax("want a JSON object")
+	}
+	p.ws()
+	if !p.eat('}') {
+		for {
+			p.ws()
+			key, ok := p.str()
+			if !ok {
+				return c, p.syntax("want a string key")
+			}
+			var k string
+			switch string(key) { // no allocation: the compiler converts in place
+			case "id":
+				k = "id"
+			case "obs":
+				k = "obs"
+			case "ents":
+				k = "ents"
+			}
+			p.ws()
+			if !p.eat(':') {
+				return c, p.syntax("want ':'")
+			}
+			p.ws()
+			switch k {
+			case "id":
+				if seenID {
+					return c, &LineError{Field: "id", Reason: ReasonBadField, Detail: "repeated key"}
+				}
+				seenID = true
+				if p.peek() != '"' {
+					if !p.skip(0) {
+						return c, p.syntax("bad value")
+					}
+					return c, &LineError{Field: "id", Reason: ReasonBadField, Detail: "want a string"}
+				}
+				s, ok := p.str()
+				if !ok {
+					return c, p.syntax("bad string")
+				}
+				if why := checkName(s); why != "" {
+					if why == ReasonEmptyName {
+						why = ReasonMissingID
+					}
+					return c, &LineError{Field: "id", Reason: why}
+				}
+				c.ID = string(s)
+			case "obs":
+				if seenObs {
+					return c, &LineError{Field: "obs", Reason: ReasonBadField, Detail: "repeated key"}
+				}
+				seenObs = true
+				if le := r.parseObs(); le != nil {
+					return c, le
+				}
+			case "ents":
+				if seenEnt {
+					return c, &LineError{Field: "ents", Reason: ReasonBadField, Detail: "repeated key"}
+				}
+				seenEnt = true
+				if le := r.parseEnts(); le != nil {
+					return c, le
+				}
+			default:
+				if !p.skip(0) {
+					return c, p.syntax("bad value")
+				}
+			}
+			p.ws()
+			if p.eat(',') {
+				continue
+			}
+			if p.eat('}') {
+				break
+			}
+			return c, p.syntax("want ',' or '}'")
+		}
+	}
+	p.ws()
+	if p.i != len(p.b) {
+		return c, p.syntax("trailing data after the object")
+	}
+	switch {
+	case !seenID:
+		return c, &LineError{Field: "id", Reason: ReasonMissingID}
+	case seenObs && seenEnt:
+		return c, &LineError{Reason: ReasonMixedForms, Detail: `both "obs" and "ents"`}
+	case len(r.obs) == 0:
+		return c, &LineError{Reason: ReasonEmptyContext}
+	}
+	if name, dup := dupCheck(r.obs); dup {
+		f := "ents"
+		if seenObs {
+			f = "obs." + name
+		}
+		return c, &LineError{Field: f, Reason: ReasonDuplicateEntity, Detail: strconv.Quote(name)}
+	}
+	c.Obs = r.obs
+	return c, nil
+}
+
+func (r *JSONLReader) parseObs() *LineError {
+	p := &r.p
+	if p.peek() != '{' {
+		if !p.skip(0) {
+			return p.syntax("bad value")
+		}
+		return &LineError{Field: "obs", Reason: ReasonBadField, Detail: "want an object of strings"}
+	}
+	p.i++
+	p.ws()
+	if p.eat('}') {
+		return nil
+	}
+	for {
+		p.ws()
+		k, ok := p.str()
+		if !ok {
+			return p.syntax("want a string key in obs")
+		}
+		if why := checkName(k); why != "" {
+			return &LineError{Field: "obs", Reason: why, Detail: "entity name"}
+		}
+		ent := r.in.get(k)
+		p.ws()
+		if !p.eat(':') {
+			return p.syntax("want ':'")
+		}
+		p.ws()
+		if p.peek() != '"' {
+			if !p.skip(0) {
+				return p.syntax("bad value")
+			}
+			return &LineError{Field: "obs." + ent, Reason: ReasonBadField, Detail: "want a string value"}
+		}
+		v, ok := p.str()
+		if !ok {
+			return p.syntax("bad string")
+		}
+		if why := checkName(v); why != "" {
+			return &LineError{Field: "obs." + ent, Reason: why, Detail: "value"}
+		}
+		r.obs = append(r.obs, Observation{Entity: ent, Value: r.in.get(v)})
+		p.ws()
+		if p.eat(',') {
+			continue
+		}
+		if p.eat('}') {
+			return nil
+		}
+		return p.syntax("want ',' or '}' in obs")
+	}
+}
+
+func (r *JSONLReader) parseEnts() *LineError {
+	p := &r.p
+	if p.peek() != '[' {
+		if !p.skip(0) {
+			return p.syntax("bad value")
+		}
+		return &LineError{Field: "ents", Reason: ReasonBadField, Detail: "want an array of strings"}
+	}
+	p.i++
+	p.ws()
+	if p.eat(']') {
+		return nil
+	}
+	for n := 0; ; n++ {
+		p.ws()
+		if p.peek() != '"' {
+			if !p.skip(0) {
+				return p.syntax("bad value")
+			}
+			return &LineError{Field: fmt.Sprintf("ents[%d]", n), Reason: ReasonBadField, Detail: "want a string"}
+		}
+		s, ok := p.str()
+		if !ok {
+			return p.syntax("bad string")
+		}
+		if why := checkName(s); why != "" {
+			return &LineError{Field: fmt.Sprintf("ents[%d]", n), Reason: why}
+		}
+		r.obs = append(r.obs, Observation{Entity: r.in.get(s), Value: PresentValue})
+		p.ws()
+		if p.eat(',') {
+			continue
+		}
+		if p.eat(']') {
+			return nil
+		}
+		return p.syntax("want ',' or ']' in ents")
+	}
+}
+
+// jparser is a minimal JSON scanner over one line (RFC 8259 grammar).
+type jparser struct {
+	b       []byte
+	i       int
+	scratch []byte
+}
+
+const maxJSONDepth = 512
+
+func (p *jparser) syntax(msg string) *LineError {
+	return &LineError{Reason: ReasonBadJSON, Detail: fmt.Sprintf("column %d: %s", p.i+1, msg)}
+}
+
+func (p *jparser) ws() {
+	for p.i < len(p.b) {
+		switch p.b[p.i] {
+		case ' ', '\t', '\r', '\n':
+			p.i++
+		default:
+			return
+		}
+	}
+}
+
+func (p *jparser) peek() byte {
+	if p.i < len(p.b) {
+		return p.b[p.i]
+	}
+	return 0
+}
+
+func (p *jparser) eat(c byte) bool {
+	if p.i < len(p.b) && p.b[p.i] == c {
+		p.i++
+		return true
+	}
+	return false
+}
+
+// str parses a JSON string at p.i and returns its decoded bytes, which are
+// valid until the next call. Invalid escapes and control characters fail.
+func (p *jparser) str() ([]byte, bool) {
+	if !p.eat('"') {
+		return nil, false
+	}
+	start := p.i
+	for p.i < len(p.b) {
+		c := p.b[p.i]
+		if c == '"' {
+			s := p.b[start:p.i]
+			p.i++
+			return s, true
+		}
+		if c == '\\' {
+			return p.strSlow(start)
+		}
+		if c < 0x20 {
+			return nil, false
+		}
+		p.i++
+	}
+	return nil, false
+}
+
+func (p *jparser) strSlow(start int) ([]byte, bool) {
+	out := append(p.scratch[:0], p.b[start:p.i]...)
+	defer func() { p.scratch = out[:0] }()
+	for p.i < len(p.b) {
+		c := p.b[p.i]
+		switch {
+		case c == '"':
+			p.i++
+			return out, true
+		case c < 0x20:
+			return nil, false
+		case c != '\\':
+			out = append(out, c)
+			p.i++
+			continue
+		}
+		if p.i+1 >= len(p.b) {
+			return nil, false
+		}
+		e := p.b[p.i+1]
+		p.i += 2
+		switch e {
+		case '"', '\\', '/':
+			out = append(out, e)
+		case 'b':
+			out = append(out, '\b')
+		case 'f':
+			out = append(out, '\f')
+		case 'n':
+			out = append(out, '\n')
+		case 'r':
+			out = append(out, '\r')
+		case 't':
+			out = append(out, '\t')
+		case 'u':
+			r, ok := p.hex4()
+			if !ok {
+				return nil, false
+			}
+			if utf16.IsSurrogate(r) {
+				// A high surrogate followed by a low one is one rune; a lone
+				// surrogate decodes to U+FFFD, as encoding/json does.
+				r2 := rune(-1)
+				if p.i+1 < len(p.b) && p.b[p.i] == '\\' && p.b[p.i+1] == 'u' {
+					save := p.i
+					p.i += 2
+					var ok2 bool
+					if r2, ok2 = p.hex4(); !ok2 {
+						return nil, false
+					}
+					if d := utf16.DecodeRune(r, r2); d != utf8.RuneError {
+						r = d
+					} else {
+						p.i = save
+						r = utf8.RuneError
+					}
+				} else {
+					r = utf8.RuneError
+				}
+			}
+			out = utf8.AppendRune(out, r)
+		default:
+			return nil, false
+		}
+	}
+	return nil, false
+}
+
+func (p *jparser) hex4() (rune, bool) {
+	if p.i+4 > len(p.b) {
+		return 0, false
+	}
+	var r rune
+	for _, c := range p.b[p.i : p.i+4] {
+		r <<= 4
+		switch {
+		case '0' <= c && c <= '9':
+			r |= rune(c - '0')
+		case 'a' <= c && c <= 'f':
+			r |= rune(c - 'a' + 10)
+		case 'A' <= c && c <= 'F':
+			r |= rune(c - 'A' + 10)
+		default:
+			return 0, false
+		}
+	}
+	p.i += 4
+	return r, true
+}
+
+// skip parses and discards one JSON value.
+func (p *jparser) skip(depth int) bool {
+	if depth > maxJSONDepth {
+		return false
+	}
+	p.ws()
+	switch c := p.peek(); {
+	case c == '"':
+		_, ok := p.str()
+		return ok
+	case c == '{':
+		p.i++
+		p.ws()
+		if p.eat('}') {
+			return true
+		}
+		for {
+			p.ws()
+			if _, ok := p.str(); !ok {
+				return false
+			}
+			p.ws()
+			if !p.eat(':') || !p.skip(depth+1) {
+				return false
+			}
+			p.ws()
+			if p.eat(',') {
+				continue
+			}
+			return p.eat('}')
+		}
+	case c == '[':
+		p.i++
+		p.ws()
+		if p.eat(']') {
+			return true
+		}
+		for {
+			if !p.skip(depth + 1) {
+				return false
+			}
+			p.ws()
+			if p.eat(',') {
+				continue
+			}
+			return p.eat(']')
+		}
+	case c == 't':
+		return p.lit("true")
+	case c == 'f':
+		return p.lit("false")
+	case c == 'n':
+		return p.lit("null")
+	case c == '-' || ('0' <= c && c <= '9'):
+		return p.num()
+	}
+	return false
+}
+
+func (p *jparser) lit(s string) bool {
+	if len(p.b)-p.i >= len(s) && string(p.b[p.i:p.i+len(s)]) == s {
+		p.i += len(s)
+		return true
+	}
+	return false
+}
+
+func (p *jparser) digits() int {
+	n := 0
+	for p.i < len(p.b) && '0' <= p.b[p.i] && p.b[p.i] <= '9' {
+		p.i++
+		n++
+	}
+	return n
+}
+
+func (p *jparser) num() bool {
+	p.eat('-')
+	if p.eat('0') {
+		// no leading zeros
+	} else if p.digits() == 0 {
+		return false
+	}
+	if p.eat('.') && p.digits() == 0 {
+		return false
+	}
+	if p.eat('e') || p.eat('E') {
+		if !p.eat('+') {
+			p.eat('-')
+		}
+		if p.digits() == 0 {
+			return false
+		}
+	}
+	return true
+}
