@@ -1,0 +1,199 @@
+package otelx
+
+import (
+	"context"
+	"fmt"
+	"os"
+	"slices"
+	"testing"
+	"time"
+
+	mnoop "go.opentelemetry.io/otel/metric/noop"
+	sdkmetric "go.opentelemetry.io/otel/sdk/metric"
+	sdktrace "go.opentelemetry.io/otel/sdk/trace"
+	tnoop "go.opentelemetry.io/otel/trace/noop"
+
+	"github.com/hopwise/hopwise/router"
+)
+
+// discard is a span exporter that drops everything.
+type discard struct{}
+
+func (discard) ExportSpans(context.Context, []sdktrace.ReadOnlySpan) error { return nil }
+func (discard) Shutdown(context.Context) error                             { return nil }
+
+// benchSetup builds a router over a seeded random graph of 400 crop beds
+// and a list of queries between them.
+func benchSetup(b testing.TB, cacheSize int) (*router.Router, []router.Query) {
+	g := randomGraph(11, 400, 0.02)
+	r, err := router.New(g, router.WithCacheSize(cacheSize), router.WithExploration(0.1, "bench"),
+		router.WithArms(router.ArmWeight{Arm: router.ArmRouted, Weight: 0.9}, router.ArmWeight{Arm: router.ArmDirectOnly, Weight: 0.1}))
+	if err != nil {
+		b.Fatal(err)
+	}
+	qs := make([]router.Query, 0, 1024)
+	for i := range 1024 {
+		from, to := (i*37)%400, (i*101+7)%400
+		if from == to {
+			to = (to + 1) % 400
+		}
+		qs = append(qs, router.Query{From: g.names[from], Value: g.values[from][0], To: g.names[to], Key: fmt.Sprintf("unit-%d", i)})
+	}
+	return r, qs
+}
+
+type variant struct {
+	name string
+	run  func(ctx context.Context, r *router.Router, q router.Query) (router.Decision, error)
+	stop func()
+}
+
+// variants: the plain router; the instrumentation on the otel globals with
+// no SDK installed; on the noop providers; on the SDK with a batch span
+// processor and an SDK meter provider; and, for reference, a bare SDK span
+// around the plain router (the SDK's own per-span cost, no hopwise code).
+func variants(tb testing.TB) []variant {
+	global, err := New()
+	if err != nil {
+		tb.Fatal(err)
+	}
+	noop, err := New(WithTracerProvider(tnoop.NewTracerProvider()), WithMeterProvider(mnoop.NewMeterProvider()))
+	if err != nil {
+		tb.Fatal(err)
+	}
+	tp := sdktrace.NewTracerProvider(sdktrace.WithBatcher(discard{}), sdktrace.WithSampler(sdktrace.AlwaysSample()))
+	mp := sdkmetric.NewMeterProvider(sdkmetric.WithReader(sdkmetric.NewManualReader()))
+	sdk, err := New(WithTracerProvider(tp), WithMeterProvider(mp))
+	if err != nil {
+		tb.Fatal(err)
+	}
+	tp2 := sdktrace.NewTracerProvider(sdktrace.WithBatcher(discard{}), sdktrace.WithSampler(sdktrace.AlwaysSample()))
+	bare := tp2.Tracer("bare")
+	return []variant{
+		{name: "plain", run: func(ctx context.Context, r *router.Router, q router.Query) (router.Decision, error) {
+			return r.Decide(ctx, q)
+		}},
+		{name: "global-no-sdk", run: global.Decide},
+		{name: "noop", run: noop.Decide},
+		{name: "sdk-batch", run: sdk.Decide, stop: func() { tp.Shutdown(context.Background()); mp.Shutdown(context.Background()) }},
+		{name: "bare-sdk-span", run: func(ctx context.Context, r *router.Router, q router.Query) (router.Decision, error) {
+			ctx, sp := bare.Start(ctx, "decide")
+			d, err := r.Decide(ctx, q)
+			sp.End()
+			return d, err
+		}, stop: func() { tp2.Shutdown(context.Background()) }},
+	}
+}
+
+func benchVariant(b *testing.B, v variant, r *router.Router, qs []router.Query) {
+	ctx := context.Background()
+	b.ReportAllocs()
+	i := 0
+	chains := 0
+	for b.Loop() {
+		d, err := v.run(ctx, r, qs[i%len(qs)])
+		if err != nil {
+			b.Fatal(err)
+		}
+		if d.Mode == router.ModeChain {
+			chains++
+		}
+		i++
+	}
+	if i > len(qs) && chains == 0 {
+		b.Fatal("no chain decision at all: the benchmark graph is degenerate")
+	}
+}
+
+// BenchmarkDecide compares routing with no telemetry, through a noop
+// provider, and through the SDK with a batch span processor (and an SDK
+// meter provider), with the decision cache off (every decision searches)
+// and on (1024 distinct queries, all hits after warm-up).
+func BenchmarkDecide(b *testing.B) {
+	for _, cache := range []int{0, 1 << 12} {
+		r, qs := benchSetup(b, cache)
+		for _, v := range variants(b) {
+			b.Run(fmt.Sprintf("cache=%d/%s", cache, v.name), func(b *testing.B) { benchVariant(b, v, r, qs) })
+			if v.stop != nil {
+				v.stop()
+			}
+		}
+		r.Close()
+	}
+}
+
+// TestOverhead measures the variants in one run by paired interleaving:
+// each round times one pass over all 1024 queries per variant (rotating
+// the order), and the overhead of a variant is the median over rounds of
+// its per-round difference from the plain router, so machine load drifts
+// cancel. It is slow, so it runs only with HOPWISE_OVERHEAD=1. The
+// targets (noop ≤ 3 %, SDK ≤ 1.5 µs per decision) are reported, and
+// enforced only with HOPWISE_OVERHEAD_ENFORCE=1, since shared machines are
+// noisy.
+func TestOverhead(t *testing.T) {
+	if os.Getenv("HOPWISE_OVERHEAD") == "" {
+		t.Skip("set HOPWISE_OVERHEAD=1 to measure telemetry overhead")
+	}
+	ctx := context.Background()
+	for _, cache := range []int{0, 1 << 12} {
+		r, qs := benchSetup(t, cache)
+		vs := variants(t)
+		passes, rounds := 1, 15
+		if cache > 0 {
+			passes, rounds = 20, 60
+		}
+		pass := func(v variant) float64 {
+			start := time.Now()
+			for range passes {
+				for _, q := range qs {
+					if _, err := v.run(ctx, r, q); err != nil {
+						t.Fatal(err)
+					}
+				}
+			}
+			return float64(time.Since(start).Nanoseconds()) / float64(passes*len(qs))
+		}
+		for _, v := range vs { // warm the cache and the pools
+			pass(v)
+		}
+		per := make([][]float64, len(vs))  // ns/decision per round
+		diff := make([][]float64, len(vs)) // minus plain, same round
+		for round := range rounds {
+			got := make([]float64, len(vs))
+			for k := range vs {
+				j := (k + round) % len(vs)
+				got[j] = pass(vs[j])
+			}
+			for k := range vs {
+				per[k] = append(per[k], got[k])
+				diff[k] = append(diff[k], got[k]-got[0])
+			}
+		}
+		median := func(xs []float64) float64 {
+			ys := slices.Clone(xs)
+			slices.Sort(ys)
+			return ys[len(ys)/2]
+		}
+		base := median(per[0])
+		line := fmt.Sprintf("cache=%d, %d rounds × %d decisions: plain %.0f ns/decision", cache, rounds, passes*len(qs), base)
+		for k := 1; k < len(vs); k++ {
+			d := median(diff[k])
+			line += fmt.Sprintf("; %s %+.0f ns (%+.2f%%)", vs[k].name, d, 100*d/base)
+		}
+		t.Log(line)
+		if os.Getenv("HOPWISE_OVERHEAD_ENFORCE") != "" {
+			if d := median(diff[2]); 100*d/base > 3 {
+				t.Errorf("cache=%d: noop overhead %.2f%% > 3%%", cache, 100*d/base)
+			}
+			if d := median(diff[3]); d > 1500 {
+				t.Errorf("cache=%d: SDK overhead %.0f ns > 1.5µs", cache, d)
+			}
+		}
+		for _, v := range vs {
+			if v.stop != nil {
+				v.stop()
+			}
+		}
+		r.Close()
+	}
+}

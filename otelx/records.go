@@ -1,0 +1,552 @@
+package otelx
+
+import (
+	"bufio"
+	"bytes"
+	"encoding/hex"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"slices"
+	"strconv"
+	"time"
+
+	commonpb "go.opentelemetry.io/proto/otlp/common/v1"
+	tracepb "go.opentelemetry.io/proto/otlp/trace/v1"
+
+	"github.com/hopwise/hopwise/otelx/otlpfile"
+)
+
+// ErrBadRecord is wrapped by errors about a decision or outcome record
+// whose attributes or fields have the wrong type or an out-of-range value.
+// The message names the file, line and attribute or field.
+var ErrBadRecord = errors.New("otelx: bad trace record")
+
+// DecisionRecord is one decision span read back from a trace file.
+type DecisionRecord struct {
+	Source          string // file:line
+	TraceID, SpanID string // lowercase hex
+	Start           time.Time
+	Duration        time.Duration
+
+	Key, From, Value, To string // From/Value/To maybe hashed
+	Mode                 string // "direct" or "chain"
+	Gain, Score, Err     float64
+	Reason               string
+	Truncated            bool
+	Explored             bool
+	Cached               bool
+	// Propensity is the logged probability of Mode; NaN when the span has
+	// none (see HasPropensity).
+	Propensity float64
+
+	DirectErr     float64
+	DirectSupport uint64
+
+	HasChain        bool
+	ChainErr        float64
+	ChainHops       int
+	Bridges         []string
+	ChainMinSupport uint64
+
+	Arm        string
+	Generation string
+	// SamplingRatio is the trace sampling ratio in force (1 when absent);
+	// weight the decision by 1/SamplingRatio.
+	SamplingRatio float64
+}
+
+// HasPropensity reports whether the span carried a propensity.
+func (d *DecisionRecord) HasPropensity() bool { return !math.IsNaN(d.Propensity) }
+
+// OutcomeRecord is an outcome read from a trace file (SpanOutcome) or from
+// a plain outcomes JSONL file.
+type OutcomeRecord struct {
+	Source       string // file:line
+	Key          string
+	Score        float64
+	InputTokens  int64
+	OutputTokens int64
+	LatencyMs    float64
+	// Mode and Arm are copied from the decision by RecordOutcome; empty
+	// in plain outcome files.
+	Mode, Arm     string
+	Time          time.Time
+	SamplingRatio float64
+}
+
+// Tokens returns InputTokens + OutputTokens.
+func (o *OutcomeRecord) Tokens() int64 { return o.InputTokens + o.OutputTokens }
+
+// ReadStats counts what a reader saw.
+type ReadStats struct {
+	Lines           int `json:"lines"`
+	Spans           int `json:"spans"`
+	Decisions       int `json:"decisions"`
+	FailedDecisions int `json:"failed_decisions"` // decision spans with error status
+	Outcomes        int `json:"outcomes"`
+	OtherSpans      int `json:"other_spans"`
+}
+
+func (s *ReadStats) add(o ReadStats) {
+	s.Lines += o.Lines
+	s.Spans += o.Spans
+	s.Decisions += o.Decisions
+	s.FailedDecisions += o.FailedDecisions
+	s.Outcomes += o.Outcomes
+	s.OtherSpans += o.OtherSpans
+}
+
+// ReadTraces streams an OTLP JSON Lines file, calling onDecision for each
+// decision span and onOutcome for each outcome span (either may be nil).
+// Other spans are counted and skipped. The first malformed line or record
+// stops the read with an error naming name and the line; an error returned
+// by a callback stops it too. Records passed to callbacks are freshly
+// allocated and may be kept. Cost O(file size).
+func ReadTraces(r io.Reader, name string, onDecision func(*DecisionRecord) error, onOutcome func(*OutcomeRecord) error) (ReadStats, error) {
+	var st ReadStats
+	sc := otlpfile.NewScanner(r, name, 0)
+	for sc.Scan() {
+		st.Lines++
+		src := name + ":" + strconv.Itoa(sc.Line())
+		for _, rs := range sc.TracesData().ResourceSpans {
+			for _, ss := range rs.ScopeSpans {
+				for _, sp := range ss.Spans {
+					st.Spans++
+					switch sp.Name {
+					case SpanDecide:
+						if sp.Status.GetCode() == tracepb.Status_STATUS_CODE_ERROR {
+							st.FailedDecisions++
+							continue
+						}
+						d, err := decisionFromSpan(sp, src)
+						if err != nil {
+							return st, err
+						}
+						st.Decisions++
+						if onDecision != nil {
+							if err := onDecision(d); err != nil {
+								return st, err
+							}
+						}
+					case SpanOutcome:
+						o, err := outcomeFromSpan(sp, src)
+						if err != nil {
+							return st, err
+						}
+						st.Outcomes++
+						if onOutcome != nil {
+							if err := onOutcome(o); err != nil {
+								return st, err
+							}
+						}
+					default:
+						st.OtherSpans++
+					}
+				}
+			}
+		}
+	}
+	return st, sc.Err()
+}
+
+// Log is the content of a set of trace files.
+type Log struct {
+	Decisions []DecisionRecord
+	Outcomes  []OutcomeRecord
+	Stats     ReadStats
+}
+
+// ReadTraceFiles reads every path into one Log (decisions in file order).
+func ReadTraceFiles(paths ...string) (*Log, error) {
+	lg := &Log{}
+	for _, p := range paths {
+		f, err := os.Open(p)
+		if err != nil {
+			return nil, fmt.Errorf("otelx: %w", err)
+		}
+		st, err := ReadTraces(bufio.NewReaderSize(f, 1<<20), p,
+			func(d *DecisionRecord) error { lg.Decisions = append(lg.Decisions, *d); return nil },
+			func(o *OutcomeRecord) error { lg.Outcomes = append(lg.Outcomes, *o); return nil })
+		f.Close()
+		lg.Stats.add(st)
+		if err != nil {
+			return nil, err
+		}
+	}
+	return lg, nil
+}
+
+// attrReader decodes typed attributes and remembers the first error.
+type attrReader struct {
+	src, span string
+	m         map[string]*commonpb.AnyValue
+	err       error
+}
+
+func newAttrReader(sp *tracepb.Span, src string) *attrReader {
+	a := &attrReader{src: src, span: hex.EncodeToString(sp.SpanId), m: make(map[string]*commonpb.AnyValue, len(sp.Attributes))}
+	for _, kv := range sp.Attributes {
+		a.m[kv.Key] = kv.Value
+	}
+	return a
+}
+
+func (a *attrReader) fail(key, format string, args ...any) {
+	if a.err == nil {
+		a.err = fmt.Errorf("%w: %s: span %s: attribute %s: %s", ErrBadRecord, a.src, a.span, key, fmt.Sprintf(format, args...))
+	}
+}
+
+func typeName(v *commonpb.AnyValue) string {
+	switch v.Value.(type) {
+	case *commonpb.AnyValue_StringValue:
+		return "string"
+	case *commonpb.AnyValue_BoolValue:
+		return "bool"
+	case *commonpb.AnyValue_IntValue:
+		return "int"
+	case *commonpb.AnyValue_DoubleValue:
+		return "double"
+	case *commonpb.AnyValue_ArrayValue:
+		return "array"
+	case *commonpb.AnyValue_KvlistValue:
+		return "kvlist"
+	case *commonpb.AnyValue_BytesValue:
+		return "bytes"
+	}
+	return "empty"
+}
+
+func (a *attrReader) has(key string) bool { _, ok := a.m[key]; return ok }
+
+func (a *attrReader) str(key string, required bool) string {
+	v, ok := a.m[key]
+	if !ok {
+		if required {
+			a.fail(key, "missing")
+		}
+		return ""
+	}
+	if s, ok := v.Value.(*commonpb.AnyValue_StringValue); ok {
+		return s.StringValue
+	}
+	a.fail(key, "want string, got %s", typeName(v))
+	return ""
+}
+
+// float accepts double or int values; def is returned when absent.
+func (a *attrReader) float(key string, def float64, required bool) float64 {
+	v, ok := a.m[key]
+	if !ok {
+		if required {
+			a.fail(key, "missing")
+		}
+		return def
+	}
+	switch x := v.Value.(type) {
+	case *commonpb.AnyValue_DoubleValue:
+		return x.DoubleValue
+	case *commonpb.AnyValue_IntValue:
+		return float64(x.IntValue)
+	}
+	a.fail(key, "want double, got %s", typeName(v))
+	return def
+}
+
+func (a *attrReader) int(key string) int64 {
+	v, ok := a.m[key]
+	if !ok {
+		return 0
+	}
+	if x, ok := v.Value.(*commonpb.AnyValue_IntValue); ok {
+		return x.IntValue
+	}
+	a.fail(key, "want int, got %s", typeName(v))
+	return 0
+}
+
+func (a *attrReader) uint(key string) uint64 {
+	n := a.int(key)
+	if n < 0 {
+		a.fail(key, "negative value %d", n)
+		return 0
+	}
+	return uint64(n)
+}
+
+func (a *attrReader) bool(key string) bool {
+	v, ok := a.m[key]
+	if !ok {
+		return false
+	}
+	if x, ok := v.Value.(*commonpb.AnyValue_BoolValue); ok {
+		return x.BoolValue
+	}
+	a.fail(key, "want bool, got %s", typeName(v))
+	return false
+}
+
+func (a *attrReader) strings(key string) []string {
+	v, ok := a.m[key]
+	if !ok {
+		return nil
+	}
+	arr, ok := v.Value.(*commonpb.AnyValue_ArrayValue)
+	if !ok {
+		a.fail(key, "want string array, got %s", typeName(v))
+		return nil
+	}
+	out := make([]string, 0, len(arr.ArrayValue.GetValues()))
+	for i, e := range arr.ArrayValue.GetValues() {
+		s, ok := e.Value.(*commonpb.AnyValue_StringValue)
+		if !ok {
+			a.fail(key, "element %d: want string, got %s", i, typeName(e))
+			return nil
+		}
+		out = append(out, s.StringValue)
+	}
+	return out
+}
+
+func (a *attrReader) ratio() float64 {
+	r := a.float(KeySamplingRatio, 1, false)
+	if !(r > 0 && r <= 1) {
+		a.fail(KeySamplingRatio, "ratio %v not in (0,1]", r)
+		return 1
+	}
+	return r
+}
+
+func spanTimes(sp *tracepb.Span) (time.Time, time.Duration) {
+	start := time.Unix(0, int64(sp.StartTimeUnixNano)).UTC()
+	var d time.Duration
+	if sp.EndTimeUnixNano >= sp.StartTimeUnixNano {
+		d = time.Duration(sp.EndTimeUnixNano - sp.StartTimeUnixNano)
+	}
+	return start, d
+}
+
+func decisionFromSpan(sp *tracepb.Span, src string) (*DecisionRecord, error) {
+	a := newAttrReader(sp, src)
+	d := &DecisionRecord{
+		Source:  src,
+		TraceID: hex.EncodeToString(sp.TraceId),
+		SpanID:  hex.EncodeToString(sp.SpanId),
+	}
+	d.Start, d.Duration = spanTimes(sp)
+	d.Key = a.str(KeyQueryKey, false)
+	d.From = a.str(KeyQueryFrom, false)
+	d.Value = a.str(KeyQueryValue, false)
+	d.To = a.str(KeyQueryTo, false)
+	d.Mode = a.str(KeyRouteMode, true)
+	if a.err == nil && d.Mode != "direct" && d.Mode != "chain" {
+		a.fail(KeyRouteMode, "unknown mode %q (want direct or chain)", d.Mode)
+	}
+	d.Gain = a.float(KeyRouteGain, 0, false)
+	d.Score = a.float(KeyRouteScore, d.Gain, false)
+	d.Err = a.float(KeyRouteErr, 0, false)
+	d.Reason = a.str(KeyRouteReason, false)
+	d.Truncated = a.bool(KeyRouteTruncated)
+	d.Explored = a.bool(KeyRouteExplored)
+	d.Cached = a.bool(KeyRouteCached)
+	d.Propensity = a.float(KeyRoutePropensity, math.NaN(), false)
+	if a.has(KeyRoutePropensity) && !(d.Propensity >= 0 && d.Propensity <= 1) {
+		a.fail(KeyRoutePropensity, "%v not in [0,1]", d.Propensity)
+	}
+	d.DirectErr = a.float(KeyDirectErr, 0, false)
+	d.DirectSupport = a.uint(KeyDirectSupport)
+	if a.has(KeyChainErr) {
+		d.HasChain = true
+		d.ChainErr = a.float(KeyChainErr, 0, false)
+		d.ChainHops = int(a.int(KeyChainHops))
+		d.Bridges = a.strings(KeyChainBridges)
+		d.ChainMinSupport = a.uint(KeyChainMinSupport)
+		if d.ChainHops < 0 {
+			a.fail(KeyChainHops, "negative hop count %d", d.ChainHops)
+		}
+	}
+	d.Arm = a.str(KeyABArm, false)
+	d.Generation = a.str(KeyIndexGeneration, false)
+	d.SamplingRatio = a.ratio()
+	if a.err != nil {
+		return nil, a.err
+	}
+	return d, nil
+}
+
+func outcomeFromSpan(sp *tracepb.Span, src string) (*OutcomeRecord, error) {
+	a := newAttrReader(sp, src)
+	o := &OutcomeRecord{Source: src}
+	o.Time, _ = spanTimes(sp)
+	o.Key = a.str(KeyQueryKey, true)
+	o.Score = a.float(KeyOutcomeScore, 0, true)
+	if a.err == nil && !(o.Score >= 0 && o.Score <= 1) {
+		a.fail(KeyOutcomeScore, "%v not in [0,1]", o.Score)
+	}
+	o.InputTokens = a.int(KeyOutcomeInputTokens)
+	o.OutputTokens = a.int(KeyOutcomeOutputTokens)
+	if o.InputTokens < 0 || o.OutputTokens < 0 {
+		a.fail(KeyOutcomeInputTokens, "negative token count")
+	}
+	o.LatencyMs = a.float(KeyOutcomeLatencyMs, 0, false)
+	o.Mode = a.str(KeyRouteMode, false)
+	o.Arm = a.str(KeyABArm, false)
+	o.SamplingRatio = a.ratio()
+	if a.err != nil {
+		return nil, a.err
+	}
+	return o, nil
+}
+
+// plainOutcome is the schema of a plain outcomes JSONL line.
+type plainOutcome struct {
+	Key          *string  `json:"key"`
+	Score        *float64 `json:"score"`
+	InputTokens  *int64   `json:"input_tokens"`
+	OutputTokens *int64   `json:"output_tokens"`
+	LatencyMs    *float64 `json:"latency_ms"`
+}
+
+// ReadOutcomes reads a plain outcomes JSONL file, one object per line:
+//
+//	{"key":"unit-17","score":1,"input_tokens":812,"output_tokens":95,"latency_ms":640}
+//
+// key and score are required (score in [0,1]); tokens are integers ≥ 0 and
+// latency_ms ≥ 0, all optional. Unknown fields are rejected (they are
+// usually typos). Blank lines are skipped. Errors name the file, line and
+// field and wrap ErrBadRecord.
+func ReadOutcomes(r io.Reader, name string) ([]OutcomeRecord, error) {
+	sc := bufio.NewScanner(r)
+	sc.Buffer(make([]byte, 0, 64<<10), 16<<20)
+	var out []OutcomeRecord
+	line := 0
+	for sc.Scan() {
+		line++
+		b := bytes.TrimSpace(sc.Bytes())
+		if len(b) == 0 {
+			continue
+		}
+		src := name + ":" + strconv.Itoa(line)
+		bad := func(field, format string, args ...any) error {
+			return fmt.Errorf("%w: %s: field %s: %s", ErrBadRecord, src, field, fmt.Sprintf(format, args...))
+		}
+		var p plainOutcome
+		dec := json.NewDecoder(bytes.NewReader(b))
+		dec.DisallowUnknownFields()
+		if err := dec.Decode(&p); err != nil {
+			var te *json.UnmarshalTypeError
+			if errors.As(err, &te) {
+				return nil, bad(te.Field, "cannot use JSON %s as %s", te.Value, te.Type)
+			}
+			return nil, fmt.Errorf("%w: %s: %v", ErrBadRecord, src, err)
+		}
+		if dec.More() {
+			return nil, fmt.Errorf("%w: %s: trailing data after the object", ErrBadRecord, src)
+		}
+		switch {
+		case p.Key == nil || *p.Key == "":
+			return nil, bad("key", "missing or empty")
+		case p.Score == nil:
+			return nil, bad("score", "missing")
+		case !(*p.Score >= 0 && *p.Score <= 1):
+			return nil, bad("score", "%v not in [0,1]", *p.Score)
+		case p.InputTokens != nil && *p.InputTokens < 0:
+			return nil, bad("input_tokens", "negative (%d)", *p.InputTokens)
+		case p.OutputTokens != nil && *p.OutputTokens < 0:
+			return nil, bad("output_tokens", "negative (%d)", *p.OutputTokens)
+		case p.LatencyMs != nil && !(*p.LatencyMs >= 0) || p.LatencyMs != nil && math.IsInf(*p.LatencyMs, 0):
+			return nil, bad("latency_ms", "%v is not a finite value ≥ 0", *p.LatencyMs)
+		}
+		o := OutcomeRecord{Source: src, Key: *p.Key, Score: *p.Score, SamplingRatio: 1}
+		if p.InputTokens != nil {
+			o.InputTokens = *p.InputTokens
+		}
+		if p.OutputTokens != nil {
+			o.OutputTokens = *p.OutputTokens
+		}
+		if p.LatencyMs != nil {
+			o.LatencyMs = *p.LatencyMs
+		}
+		out = append(out, o)
+	}
+	if err := sc.Err(); err != nil {
+		return nil, fmt.Errorf("%w: %s:%d: %v", ErrBadRecord, name, line+1, err)
+	}
+	return out, nil
+}
+
+// ReadOutcomeFile opens path and calls ReadOutcomes.
+func ReadOutcomeFile(path string) ([]OutcomeRecord, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, fmt.Errorf("otelx: %w", err)
+	}
+	defer f.Close()
+	return ReadOutcomes(f, path)
+}
+
+// Joined pairs a decision with its outcome.
+type Joined struct {
+	Decision *DecisionRecord
+	Outcome  *OutcomeRecord
+}
+
+// JoinStats reports how the join went; nothing is dropped silently.
+type JoinStats struct {
+	Joined                  int `json:"joined"`
+	DecisionsWithoutKey     int `json:"decisions_without_key"`
+	DecisionsWithoutOutcome int `json:"decisions_without_outcome"`
+	OutcomesWithoutDecision int `json:"outcomes_without_decision"`
+}
+
+// Join pairs decisions and outcomes by unit key. Within one key,
+// decisions are taken in start-time order (ties: input order) and outcomes
+// in input order, and the k-th outcome goes with the k-th decision. The
+// result follows the order of decisions. O((n+m) log n).
+func Join(decisions []DecisionRecord, outcomes []OutcomeRecord) ([]Joined, JoinStats) {
+	var st JoinStats
+	byKey := map[string][]int{}
+	for i := range decisions {
+		k := decisions[i].Key
+		if k == "" {
+			st.DecisionsWithoutKey++
+			continue
+		}
+		byKey[k] = append(byKey[k], i)
+	}
+	for _, ids := range byKey {
+		slices.SortStableFunc(ids, func(a, b int) int { return decisions[a].Start.Compare(decisions[b].Start) })
+	}
+	match := make([]int, len(decisions))
+	for i := range match {
+		match[i] = -1
+	}
+	next := map[string]int{}
+	for j := range outcomes {
+		k := outcomes[j].Key
+		ids := byKey[k]
+		n := next[k]
+		if n >= len(ids) {
+			st.OutcomesWithoutDecision++
+			continue
+		}
+		match[ids[n]] = j
+		next[k] = n + 1
+	}
+	out := make([]Joined, 0, len(outcomes))
+	for i, j := range match {
+		if j < 0 {
+			if decisions[i].Key != "" {
+				st.DecisionsWithoutOutcome++
+			}
+			continue
+		}
+		out = append(out, Joined{Decision: &decisions[i], Outcome: &outcomes[j]})
+		st.Joined++
+	}
+	return out, st
+}
