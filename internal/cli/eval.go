@@ -1,0 +1,249 @@
+package cli
+
+import (
+	"encoding/json"
+	"fmt"
+	"path/filepath"
+	"slices"
+	"strconv"
+	"strings"
+
+	"github.com/hopwise/hopwise/internal/eval"
+	"github.com/hopwise/hopwise/internal/world"
+	"github.com/hopwise/hopwise/router"
+	"github.com/spf13/cobra"
+)
+
+func init() { register(newEvalCmd) }
+
+type evalOptions struct {
+	conditions   string
+	seed         int64
+	seeds        string
+	worlds       int
+	contexts     int
+	vars, edges  int
+	heldOut      int
+	json         bool
+	plot         string
+	fit          bool
+	fitSeeds     string
+	beta         float64
+	maxBridges   int
+	beam         int
+	candidates   int
+	gainTau      float64
+	workers      int
+	writeQueries string
+}
+
+func newEvalCmd() *cobra.Command {
+	var o evalOptions
+	cmd := &cobra.Command{
+		Use:   "eval [--condition C[,C…]|all] [--seed N --worlds W | --seeds 1,2,3] [--json] [--plot FILE.png] [--fit]",
+		Short: "Measure direct, chained and routed answers against exact truth on synthetic worlds",
+		Long: `eval generates random Bayesian-network worlds (100 binary variables, 100
+edges, 30 held-out pairs by default), writes each world's corpus of contexts
+as JSONL, builds a locality index with the real builder, and answers every
+held-out pair (never observed together) and every supported pair (a network
+edge), in both directions and for every value of the observed entity,
+through the real router and scorer. It reports, per world and as a mean per
+condition, the MSE against exact truth (variable elimination) of:
+
+  direct        the pair's own posterior mean
+  chain         the best chain the router found (direct when none)
+  routed        what the router chose
+  ideal         a chain through the true minimal separator path
+  negative      a chain through random bridges, as many as the ideal path
+                (at least one)
+  support_only  the chain whose smallest edge support is largest (bridges
+                chosen by support alone, not by scored error)
+
+MSE per query is Σ_v (p̂_v − p_v)² / K over the target's K values, averaged
+over the queries of a set. Calibration compares the router's predicted error
+of its chosen answer with the realised squared error: Spearman ρ and the
+ratio of means.
+
+Conditions: local-geometric, local-zipf, full, wrong (comma-separated, or
+all). Seeds: --seeds 1,2,3, or --seed N --worlds W for N … N+W−1.
+
+--fit calibrates instead: the per-hop bias β of the Bayes model (fixed point
+of scorer.FitHopBias on the chains the router picks) and the support model's
+v0, n0, β (scorer.FitSupport), on the worlds of --fit-seeds, which must not
+overlap the evaluation seeds.
+
+--write-queries DIR keeps, for the first world, DIR/corpus.jsonl,
+DIR/index.hwx, DIR/queries.jsonl (input of "hopwise route --queries") and
+DIR/truth.jsonl (the exact answers by id).`,
+		Example: `  hopwise eval
+  hopwise eval --condition all --seed 1 --worlds 5 --plot eval.png
+  hopwise eval --seeds 1,2,3 --json > eval.json
+  hopwise eval --fit --fit-seeds 101,102,103,104,105`,
+		Args: cobra.NoArgs,
+		RunE: func(cmd *cobra.Command, _ []string) error { return runEval(cmd, o) },
+	}
+	def := world.EvalConfig()
+	f := cmd.Flags()
+	f.StringVar(&o.conditions, "condition", eval.DefaultCondition, "world condition(s): "+strings.Join(world.ConditionNames(), ", ")+", or all")
+	f.Int64Var(&o.seed, "seed", 1, "first world seed")
+	f.IntVar(&o.worlds, "worlds", 1, "number of worlds (seeds --seed … --seed+worlds−1)")
+	f.StringVar(&o.seeds, "seeds", "", "comma-separated world seeds (overrides --seed/--worlds)")
+	f.IntVar(&o.contexts, "contexts", eval.DefaultContexts, "contexts per corpus")
+	f.IntVar(&o.vars, "vars", def.Vars, "variables per world")
+	f.IntVar(&o.edges, "edges", def.Edges, "directed edges per world")
+	f.IntVar(&o.heldOut, "held-out", def.HeldOut, "held-out pairs per world")
+	f.BoolVar(&o.json, "json", false, "print the JSON summary instead of the table")
+	f.StringVar(&o.plot, "plot", "", "write a PNG bar chart of the per-condition means")
+	f.BoolVar(&o.fit, "fit", false, "fit β and the support-model constants instead of evaluating")
+	f.StringVar(&o.fitSeeds, "fit-seeds", "101,102,103,104,105", "world seeds for --fit")
+	f.Float64Var(&o.beta, "beta", router.DefaultConfig().Beta, "per-hop squared bias β of the Bayes model")
+	f.IntVar(&o.maxBridges, "max-bridges", router.DefaultMaxBridges, "H: most bridges in a chain (1-3)")
+	f.IntVar(&o.beam, "beam", router.DefaultBeam, "B: router beam width")
+	f.IntVar(&o.candidates, "max-candidates", router.DefaultMaxCandidates, "k: chains the router scores exactly")
+	f.Float64Var(&o.gainTau, "gain-threshold", router.DefaultGainThreshold, "τ_gain of the router")
+	f.IntVar(&o.workers, "workers", 0, "goroutines answering queries (0: GOMAXPROCS)")
+	f.StringVar(&o.writeQueries, "write-queries", "", "keep the first world's corpus, index, queries and truth in DIR")
+	return cmd
+}
+
+func parseSeeds(s string) ([]int64, error) {
+	var out []int64
+	for _, part := range strings.Split(s, ",") {
+		part = strings.TrimSpace(part)
+		if part == "" {
+			continue
+		}
+		n, err := strconv.ParseInt(part, 10, 64)
+		if err != nil {
+			return nil, fmt.Errorf("bad seed %q: %w", part, err)
+		}
+		if slices.Contains(out, n) {
+			return nil, fmt.Errorf("seed %d listed twice", n)
+		}
+		out = append(out, n)
+	}
+	if len(out) == 0 {
+		return nil, fmt.Errorf("no seeds in %q", s)
+	}
+	return out, nil
+}
+
+func runEval(cmd *cobra.Command, o evalOptions) error {
+	ctx := cmd.Context()
+	out := cmd.OutOrStdout()
+	conds := strings.Split(o.conditions, ",")
+	if o.conditions == "all" {
+		conds = world.ConditionNames()
+	}
+	for i, c := range conds {
+		conds[i] = strings.TrimSpace(c)
+		if _, err := world.ConditionByName(conds[i]); err != nil {
+			return fmt.Errorf("--condition: %w", err)
+		}
+	}
+	var seeds []int64
+	if cmd.Flags().Changed("seeds") {
+		var err error
+		if seeds, err = parseSeeds(o.seeds); err != nil {
+			return fmt.Errorf("--seeds: %w", err)
+		}
+	} else {
+		if o.worlds < 1 {
+			return fmt.Errorf("--worlds: must be ≥ 1, got %d", o.worlds)
+		}
+		for i := range o.worlds {
+			seeds = append(seeds, o.seed+int64(i))
+		}
+	}
+	if o.contexts < 1 {
+		return fmt.Errorf("--contexts: must be ≥ 1, got %d", o.contexts)
+	}
+	if o.vars < 2 || o.edges < 0 || o.heldOut < 0 {
+		return fmt.Errorf("--vars ≥ 2, --edges ≥ 0 and --held-out ≥ 0 required")
+	}
+	wc := world.EvalConfig()
+	wc.Vars, wc.Edges, wc.HeldOut = o.vars, o.edges, o.heldOut
+	if o.edges == 0 {
+		wc.Edges = -1 // world.Config: negative means no edges
+	}
+	beta := o.beta
+	base := eval.Config{
+		World: &wc, Contexts: o.contexts, Beta: &beta, MaxBridges: o.maxBridges, Workers: o.workers,
+		RouterOptions: []router.Option{
+			router.WithBeam(o.beam), router.WithMaxCandidates(o.candidates), router.WithGainThreshold(o.gainTau),
+		},
+	}
+	if o.maxBridges < 1 || o.maxBridges > router.MaxBridgesLimit {
+		return fmt.Errorf("--max-bridges: must be in 1..%d, got %d", router.MaxBridgesLimit, o.maxBridges)
+	}
+
+	if o.fit {
+		fitSeeds, err := parseSeeds(o.fitSeeds)
+		if err != nil {
+			return fmt.Errorf("--fit-seeds: %w", err)
+		}
+		if cmd.Flags().Changed("seeds") || cmd.Flags().Changed("seed") || cmd.Flags().Changed("worlds") {
+			for _, s := range fitSeeds {
+				if slices.Contains(seeds, s) {
+					return fmt.Errorf("--fit-seeds: seed %d is also an evaluation seed; fit and evaluate on different worlds", s)
+				}
+			}
+		}
+		if len(conds) != 1 {
+			return fmt.Errorf("--fit: give one --condition")
+		}
+		base.Condition = conds[0]
+		fr, err := eval.Fit(ctx, eval.FitConfig{Base: base, Seeds: fitSeeds, StartBeta: &beta,
+			Log: func(format string, args ...any) { fmt.Fprintf(cmd.ErrOrStderr(), format+"\n", args...) }})
+		if err != nil {
+			return err
+		}
+		if o.json {
+			enc := json.NewEncoder(out)
+			enc.SetIndent("", "  ")
+			return enc.Encode(fr)
+		}
+		fmt.Fprintf(out, "fitted on %s worlds, seeds %v (%d contexts each)\n", fr.Condition, fr.Seeds, o.contexts)
+		fmt.Fprintf(out, "bayes   β  = %.6g   (fixed point %v, %d chains)\n", fr.Beta, fr.BetaPath, fr.ChainSamples)
+		fmt.Fprintf(out, "support v0 = %.6g  n0 = %.6g  β = %.6g   (RMSE %.4g, %d samples)\n",
+			fr.Support.V0, fr.Support.N0, fr.Support.Beta, fr.Support.RMSE, fr.Support.N)
+		return nil
+	}
+
+	var reports []eval.Report
+	for ci, c := range conds {
+		for si, s := range seeds {
+			cfg := base
+			cfg.Condition, cfg.Seed = c, s
+			if ci == 0 && si == 0 && o.writeQueries != "" {
+				cfg.Dir = o.writeQueries
+			}
+			r, err := eval.Run(ctx, cfg)
+			if err != nil {
+				return err
+			}
+			reports = append(reports, r)
+			if !o.json {
+				fmt.Fprintf(cmd.ErrOrStderr(), "%s seed %d: built in %.2fs, answered in %.2fs\n", c, s, r.BuildSeconds, r.AnswerSeconds)
+			}
+		}
+	}
+	sum := eval.Summarize(reports)
+	if o.plot != "" {
+		if err := sum.WritePlot(o.plot); err != nil {
+			return err
+		}
+	}
+	if o.json {
+		enc := json.NewEncoder(out)
+		enc.SetIndent("", "  ")
+		return enc.Encode(sum)
+	}
+	if err := sum.WriteTable(out); err != nil {
+		return err
+	}
+	if o.plot != "" {
+		fmt.Fprintf(out, "plot: %s\n", filepath.Clean(o.plot))
+	}
+	return nil
+}
