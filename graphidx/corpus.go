@@ -197,6 +197,16 @@ func (o maxLineOption) applyRead(c *readConfig) {
 // Values ≤ 0 keep DefaultMaxLineBytes.
 func WithMaxLineBytes(n int) ReadOption { return maxLineOption(n) }
 
+type readOptionFunc func(*readConfig)
+
+func (f readOptionFunc) applyRead(c *readConfig) { f(c) }
+
+// withReadMemLimit sets the CSV grouping budget without the lower bound
+// (tests force spilling with it).
+func withReadMemLimit(n int64) ReadOption {
+	return readOptionFunc(func(c *readConfig) { c.memLimit = n })
+}
+
 // badLines implements the policy and the accounting shared by the readers.
 type badLines struct {
 	policy BadLinePolicy

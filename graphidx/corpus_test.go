@@ -1,0 +1,344 @@
+package graphidx
+
+import (
+	"errors"
+	"fmt"
+	"io"
+	"maps"
+	"os"
+	"path/filepath"
+	"slices"
+	"strings"
+	"testing"
+)
+
+// readAll drains a reader; obs are rendered "id:e=v,e=v" with entities
+// sorted so tests do not depend on the reader's order.
+func readAll(t testing.TB, r ContextReader) ([]string, error) {
+	t.Helper()
+	var out []string
+	for {
+		c, err := r.Next()
+		if err == io.EOF {
+			return out, nil
+		}
+		if err != nil {
+			return out, err
+		}
+		var parts []string
+		for _, o := range c.Obs {
+			parts = append(parts, o.Entity+"="+o.Value)
+		}
+		slices.Sort(parts)
+		out = append(out, c.ID+":"+strings.Join(parts, ","))
+	}
+}
+
+func checkReconcile(t *testing.T, s ReadStats) {
+	t.Helper()
+	if s.Records != s.OK+s.Empty+s.SkippedTotal() {
+		t.Errorf("records %d != ok %d + empty %d + skipped %d", s.Records, s.OK, s.Empty, s.SkippedTotal())
+	}
+}
+
+// Each bad line is tagged with the reason the reader must give it.
+var jsonlCases = []struct {
+	line, reason string
+}{
+	{`{"id":"c1","obs":{"vent3":"open","zone2":"high"}}`, ""},
+	{`{"id":"c2","ents":["pump1","bed4"]}`, ""},
+	{`   `, "blank"},
+	{`{"id":"c3","obs":{"vent3":"open"},"note":{"x":[1,2.5e3,true,null]}}`, ""},
+	{`{"id":"c4","obs":{"vent\u0033":"op\"en"}}`, ""},
+	{`{"id":"c5","obs":{"a":"1"}`, ReasonBadJSON},
+	{`not json`, ReasonBadJSON},
+	{`{"id":"c6","obs":{"a":"1"}} trailing`, ReasonBadJSON},
+	{`{"obs":{"a":"1"}}`, ReasonMissingID},
+	{`{"id":"","obs":{"a":"1"}}`, ReasonMissingID},
+	{`{"id":7,"obs":{"a":"1"}}`, ReasonBadField},
+	{`{"id":"c7","obs":{"a":1}}`, ReasonBadField},
+	{`{"id":"c8","ents":"a"}`, ReasonBadField},
+	{`{"id":"c9","ents":["a",2]}`, ReasonBadField},
+	{`{"id":"c10","id":"c10","ents":["a"]}`, ReasonBadField},
+	{`{"id":"c11","obs":{}}`, ReasonEmptyContext},
+	{`{"id":"c12"}`, ReasonEmptyContext},
+	{`{"id":"c13","obs":{"a":"1"},"ents":["b"]}`, ReasonMixedForms},
+	{`{"id":"c14","obs":{"a":"1","a":"2"}}`, ReasonDuplicateEntity},
+	{`{"id":"c15","ents":["a","b","a"]}`, ReasonDuplicateEntity},
+	{`{"id":"c16","obs":{"":"1"}}`, ReasonEmptyName},
+	{`{"id":"c17","obs":{"a":""}}`, ReasonEmptyName},
+	{"{\"id\":\"c18\",\"obs\":{\"a\xff\":\"1\"}}", ReasonBadUTF8},
+	{`{"id":"c19","obs":{"` + strings.Repeat("x", MaxNameBytes+1) + `":"1"}}`, ReasonNameTooLong},
+	{`{"id":"c20","ents":["` + strings.Repeat("y", MaxNameBytes+100) + `"]}`, ReasonLineTooLong}, // longer than the limit below
+	{`{"id":"c21","obs":{"a":"1"}}`, ""},
+}
+
+func TestJSONLReaderBadLines(t *testing.T) {
+	t.Parallel()
+	var b strings.Builder
+	wantSkip := map[string]int64{}
+	var wantOK int64
+	firstBad := 0
+	for i, c := range jsonlCases {
+		b.WriteString(c.line + "\n")
+		switch c.reason {
+		case "":
+			wantOK++
+		case "blank":
+		default:
+			wantSkip[c.reason]++
+			if firstBad == 0 {
+				firstBad = i + 1
+			}
+		}
+	}
+	// Lenient: every bad line counted under its reason, totals reconcile.
+	// c19 (a long name) must fit the line limit, c20 must not.
+	r := NewJSONLReader(strings.NewReader(b.String()), "ctx.jsonl", WithMaxLineBytes(len(jsonlCases[23].line)))
+	got, err := readAll(t, r)
+	if err != nil {
+		t.Fatal(err)
+	}
+	st := r.Stats()
+	if !maps.Equal(st.Skipped, wantSkip) {
+		t.Errorf("skipped %v, want %v", st.Skipped, wantSkip)
+	}
+	if st.OK != wantOK || int64(len(got)) != wantOK || st.Records != int64(len(jsonlCases)-1) || st.Lines != int64(len(jsonlCases)) {
+		t.Errorf("stats %+v, contexts %d", st, len(got))
+	}
+	checkReconcile(t, st)
+	want := []string{"c1:vent3=open,zone2=high", "c2:bed4=present,pump1=present", "c3:vent3=open", `c4:vent3=op"en`, "c21:a=1"}
+	if !slices.Equal(got, want) {
+		t.Errorf("got %q", got)
+	}
+	if e := st.FirstBad[ReasonDuplicateEntity]; e == nil || e.Line != 19 || e.Field != "obs.a" {
+		t.Errorf("first duplicate: %v", e)
+	}
+	// Strict: stops at the first bad line with file:line.
+	r = NewJSONLReader(strings.NewReader(b.String()), "ctx.jsonl", WithPolicy(Strict))
+	_, err = readAll(t, r)
+	var le *LineError
+	if !errors.As(err, &le) || le.Line != firstBad || le.Reason != ReasonBadJSON || !strings.HasPrefix(err.Error(), fmt.Sprintf("ctx.jsonl:%d: bad-json", firstBad)) {
+		t.Errorf("strict: %v", err)
+	}
+}
+
+func TestCSVReaderInterleaved(t *testing.T) {
+	t.Parallel()
+	// Rows of c1, c2, c3 interleaved; with the smallest budget every few rows
+	// spill, so grouping goes through the k-way merge of runs.
+	var b strings.Builder
+	b.WriteString("\xef\xbb\xbfContext, Entity ,value\n")
+	var want []string
+	for c := range 40 {
+		var obs []string
+		for e := range 5 {
+			obs = append(obs, fmt.Sprintf("e%d=v%d", e, (c+e)%3))
+		}
+		want = append(want, fmt.Sprintf("c%02d:%s", c, strings.Join(obs, ",")))
+	}
+	slices.Sort(want)
+	for e := range 5 {
+		for c := 39; c >= 0; c-- {
+			fmt.Fprintf(&b, "c%02d,e%d,v%d\n", c, e, (c+e)%3)
+		}
+		b.WriteString("\n")
+	}
+	for _, budget := range []int64{DefaultMemBudget, 512} {
+		dir := t.TempDir()
+		r := NewCSVReader(strings.NewReader(b.String()), "long.csv", withReadMemLimit(budget), WithTempDir(dir))
+		got, err := readAll(t, r)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !slices.Equal(got, want) {
+			t.Errorf("budget %d: got %q", budget, got[:3])
+		}
+		if budget == 512 && r.SpillRuns() < 10 {
+			t.Errorf("expected spilling, got %d runs", r.SpillRuns())
+		}
+		st := r.Stats()
+		if st.Records != 200 || st.OK != 200 || st.Contexts != 40 {
+			t.Errorf("stats %+v", st)
+		}
+		checkReconcile(t, st)
+		if err := r.Close(); err != nil {
+			t.Fatal(err)
+		}
+		if left, _ := os.ReadDir(dir); len(left) != 0 {
+			t.Errorf("temp files left: %v", left)
+		}
+	}
+}
+
+func TestCSVReaderBadRows(t *testing.T) {
+	t.Parallel()
+	in := strings.Join([]string{
+		"context,entity,value",
+		"c1,vent3,open",                 // 2
+		"c1,vent3,closed",               // 3 duplicate-entity (later row)
+		"c2,pump1",                      // 4 too-few
+		"c2,pump1,on,extra",             // 5 too-many
+		`c2,"pump""1",on`,               // 6 ok: entity pump"1
+		`c2,pu"mp,on`,                   // 7 bad-quote
+		`c3,"multi`,                     // 8 quoted field over two lines: ok
+		`line",x`,                       // 9
+		",bed4,present",                 // 10 missing-id
+		"c4,,present",                   // 11 empty-name (entity)
+		"c4,bed4,",                      // 12 empty-name (value)
+		"c4,bed4,\xff",                  // 13 bad-utf8
+		"c1,zone2,high",                 // 14 ok, non-contiguous with c1
+		`c5,"open quote never closed,x`, // 15 bad-quote at EOF
+	}, "\n") + "\n"
+	r := NewCSVReader(strings.NewReader(in), "rows.csv")
+	got, err := readAll(t, r)
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := []string{"c1:vent3=open,zone2=high", `c2:pump"1=on`, "c3:multi\nline=x"}
+	if !slices.Equal(got, want) {
+		t.Errorf("got %q", got)
+	}
+	st := r.Stats()
+	wantSkip := map[string]int64{ReasonDuplicateEntity: 1, ReasonTooFewColumns: 1, ReasonTooManyColumns: 1,
+		ReasonBadQuote: 2, ReasonMissingID: 1, ReasonEmptyName: 2, ReasonBadUTF8: 1}
+	if !maps.Equal(st.Skipped, wantSkip) {
+		t.Errorf("skipped %v want %v", st.Skipped, wantSkip)
+	}
+	if st.Records != 13 || st.OK != 4 {
+		t.Errorf("stats %+v", st)
+	}
+	checkReconcile(t, st)
+	if e := st.FirstBad[ReasonDuplicateEntity]; e == nil || e.Line != 3 || e.Field != "entity" {
+		t.Errorf("duplicate reported as %v", e)
+	}
+	if e := st.FirstBad[ReasonEmptyName]; e == nil || e.Line != 11 || e.Field != "entity" || e.Error() != "rows.csv:11: entity: empty-name" {
+		t.Errorf("empty name reported as %v", e)
+	}
+	// Strict stops at line 4 (the duplicate at line 3 is found only when grouping).
+	r = NewCSVReader(strings.NewReader(in), "rows.csv", WithPolicy(Strict))
+	_, err = readAll(t, r)
+	if le := (*LineError)(nil); !errors.As(err, &le) || le.Line != 4 || le.Reason != ReasonTooFewColumns {
+		t.Errorf("strict: %v", err)
+	}
+	// Bad header is fatal in both modes.
+	for _, h := range []string{"ctx,entity,value\n", "context,entity,value,extra\n", ""} {
+		_, err := readAll(t, NewCSVReader(strings.NewReader(h+"c,e,v\n"), "h.csv"))
+		if le := (*LineError)(nil); !errors.As(err, &le) || le.Reason != ReasonBadHeader {
+			t.Errorf("header %q: %v", h, err)
+		}
+	}
+	// Presence-only header.
+	got, err = readAll(t, NewCSVReader(strings.NewReader("context,entity\nc1,a\nc1,b\n"), "p.csv"))
+	if err != nil || !slices.Equal(got, []string{"c1:a=present,b=present"}) {
+		t.Errorf("presence: %q %v", got, err)
+	}
+}
+
+const testLexicon = `# surface form	entity
+Zone 2	zone2
+zone two	zone2
+Vent 3	vent3
+vent 3 motor	vent3.motor
+CO2	co2
+Über-Sensor	uber
+pump	pump1
+`
+
+func TestTextReaderMatching(t *testing.T) {
+	t.Parallel()
+	lex, err := ParseLexicon(strings.NewReader(testLexicon), "lex.tsv")
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := "In ZONE 2 the vent 3 motor hums; co2 rises.\n" + // zone2, vent3.motor (longest), co2
+		"Pumps and pumping are not a pump.\n" + // pump1 once (word boundary)
+		"\n\n" +
+		"zone two, zone2x, xzone 2 and subzone 2.\n" + // zone2 only via "zone two"
+		"\n" +
+		"Nothing known here: CO2x, vent3.\n" + // no match -> Empty
+		"\n" +
+		"ÜBER-SENSOR near vent 3.\n" // uber (Unicode case fold), vent3
+	r := NewTextReader(strings.NewReader(text), "notes.txt", lex)
+	got, err := readAll(t, r)
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := []string{
+		"notes.txt#p1:co2=present,pump1=present,vent3.motor=present,zone2=present",
+		"notes.txt#p2:zone2=present",
+		"notes.txt#p4:uber=present,vent3=present",
+	}
+	if !slices.Equal(got, want) {
+		t.Errorf("got %q\nwant %q", got, want)
+	}
+	st := r.Stats()
+	if st.Records != 4 || st.OK != 3 || st.Empty != 1 || st.Lines != 9 {
+		t.Errorf("stats %+v", st)
+	}
+	checkReconcile(t, st)
+
+	// A paragraph over the limit is a counted line-too-long at its first line.
+	long := "pump\n\n" + strings.Repeat("zone 2 ", 40) + "\nmore\n\npump\n"
+	r = NewTextReader(strings.NewReader(long), "long.txt", lex, WithMaxLineBytes(100))
+	got, _ = readAll(t, r)
+	if st := r.Stats(); len(got) != 2 || st.Skipped[ReasonLineTooLong] != 1 || st.FirstBad[ReasonLineTooLong].Line != 3 {
+		t.Errorf("long paragraph: %q %+v", got, st)
+	}
+}
+
+func TestLexiconErrors(t *testing.T) {
+	t.Parallel()
+	for _, c := range []struct{ in, want string }{
+		{"a\tx\nb\n", "lex.tsv:2: too-few-columns"},
+		{"a\tx\ty\n", "lex.tsv:1: too-many-columns"},
+		{"\tx\n", "lex.tsv:1: surface: empty-name"},
+		{"a\t\n", "lex.tsv:1: entity: empty-name"},
+		{"Vent\tv1\nvent\tv2\n", "lex.tsv:2: surface: duplicate-surface"},
+		{"# only comments\n\n", "lex.tsv:2: empty-context"},
+	} {
+		_, err := ParseLexicon(strings.NewReader(c.in), "lex.tsv")
+		if err == nil || !strings.HasPrefix(err.Error(), c.want) {
+			t.Errorf("%q: got %v, want prefix %q", c.in, err, c.want)
+		}
+	}
+	// The same form twice for one entity is fine.
+	if _, err := ParseLexicon(strings.NewReader("Vent\tv1\nvent\tv1\n"), "lex.tsv"); err != nil {
+		t.Error(err)
+	}
+}
+
+func TestOpenCorpus(t *testing.T) {
+	t.Parallel()
+	dir := t.TempDir()
+	write := func(name, s string) string {
+		p := filepath.Join(dir, name)
+		if err := os.WriteFile(p, []byte(s), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		return p
+	}
+	lex := write("lex.tsv", testLexicon)
+	for _, c := range []struct{ path, format, want string }{
+		{write("a.jsonl", `{"id":"x","ents":["pump1"]}`+"\n"), "", "x:pump1=present"},
+		{write("a.csv", "context,entity,value\nx,pump1,on\n"), "", "x:pump1=on"},
+		{write("a.txt", "the pump\n"), "", "PATH#p1:pump1=present"},
+		{write("a.data", "context,entity\nx,pump1\n"), "csv", "x:pump1=present"},
+	} {
+		r, cl, err := OpenCorpus(c.path, c.format, lex)
+		if err != nil {
+			t.Fatal(err)
+		}
+		got, err := readAll(t, r)
+		cl.Close()
+		if want := strings.ReplaceAll(c.want, "PATH", c.path); err != nil || len(got) != 1 || got[0] != want {
+			t.Errorf("%s: %q %v", c.path, got, err)
+		}
+	}
+	if _, _, err := OpenCorpus(write("b.data", ""), "", ""); !errors.Is(err, ErrUnknownFormat) {
+		t.Errorf("unknown: %v", err)
+	}
+	if _, _, err := OpenCorpus(filepath.Join(dir, "a.txt"), "", ""); !errors.Is(err, ErrLexiconRequired) {
+		t.Errorf("no lexicon: %v", err)
+	}
+}
