@@ -338,4 +338,3 @@ func cmpPair(a1, b1, a2, b2 string) int {
 	}
 	return strings.Compare(b1, b2)
 }
-

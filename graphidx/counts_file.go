@@ -505,4 +505,3 @@ func dirsLabel(dirs []string) string {
 	}
 	return fmt.Sprint(dirs)
 }
-
