@@ -1,0 +1,127 @@
+package demo
+
+import (
+	"bytes"
+	"context"
+	"errors"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"github.com/hopwise/hopwise/otelx"
+)
+
+// TestRunSmall runs the whole demo on a small corpus and checks that the
+// table it prints shows chained estimates beating direct ones on far-apart
+// pairs, that the files exist, and that the trace file holds one decision
+// span per routed query.
+func TestRunSmall(t *testing.T) {
+	t.Parallel()
+	dir := t.TempDir()
+	var log bytes.Buffer
+	rep, err := Run(context.Background(), Config{Dir: dir, Seed: 3, Contexts: 20_000, Progress: &log, Log: &log})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var table bytes.Buffer
+	if err := rep.WriteTable(&table); err != nil {
+		t.Fatal(err)
+	}
+	if err := rep.WriteFiles(&table); err != nil {
+		t.Fatal(err)
+	}
+	t.Logf("\n%s%s", log.String(), table.String())
+
+	h, s := rep.HeldOut, rep.Supported
+	if h.Queries == 0 || s.Queries == 0 {
+		t.Fatalf("empty query sets: %+v %+v", h, s)
+	}
+	// The point of the product: on pairs never seen together, chaining
+	// beats answering directly, and the router captures most of that.
+	if !(h.Chained < h.Direct) {
+		t.Errorf("held-out: chained MSE %.5f not below direct %.5f", h.Chained, h.Direct)
+	}
+	if !(h.Routed < h.Direct) {
+		t.Errorf("held-out: routed MSE %.5f not below direct %.5f", h.Routed, h.Direct)
+	}
+	if h.ChainShare() < 0.5 {
+		t.Errorf("held-out: only %.0f%% routed to a chain", 100*h.ChainShare())
+	}
+	// Held-out pairs never co-occur (world package contract).
+	if h.MeanSupport != 0 {
+		t.Errorf("held-out mean support %.1f, want 0", h.MeanSupport)
+	}
+	// On supported pairs the router must mostly keep the direct answer:
+	// always chaining there is far worse than routing.
+	if !(s.Routed < s.Chained/4) || s.ChainShare() > 0.25 {
+		t.Errorf("supported: routed MSE %.6f vs chained %.6f, %.0f%% chained", s.Routed, s.Chained, 100*s.ChainShare())
+	}
+	if len(rep.Explained) == 0 {
+		t.Error("no explained decisions")
+	}
+	out := table.String()
+	for _, want := range []string{"far-apart (held-out)", "well-supported", "chain via", "hopwise route --index"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("output lacks %q", want)
+		}
+	}
+	for _, p := range []string{rep.Files.Corpus, rep.Files.Index, rep.Files.Trace, rep.Files.Plot} {
+		st, err := os.Stat(p)
+		if err != nil || st.Size() == 0 {
+			t.Errorf("file %s missing or empty: %v", p, err)
+		}
+		if filepath.Dir(p) != dir {
+			t.Errorf("file %s outside %s", p, dir)
+		}
+	}
+	png, err := os.ReadFile(rep.Files.Plot)
+	if err != nil || !bytes.HasPrefix(png, []byte("\x89PNG\r\n\x1a\n")) {
+		t.Errorf("plot is not a PNG (%v)", err)
+	}
+	lg, err := otelx.ReadTraceFiles(rep.Files.Trace)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got, want := len(lg.Decisions), h.Queries+s.Queries; got != want {
+		t.Errorf("trace has %d decisions, want %d", got, want)
+	}
+	chains := 0
+	for _, d := range lg.Decisions {
+		if d.Mode == "chain" {
+			chains++
+		}
+	}
+	if want := h.RoutedChain + s.RoutedChain; chains != want {
+		t.Errorf("trace has %d chain decisions, table %d", chains, want)
+	}
+}
+
+func TestConfigErrors(t *testing.T) {
+	t.Parallel()
+	for _, c := range []Config{{Contexts: 5}, {Contexts: MaxContexts + 1}, {Workers: -1}, {Examples: 11}} {
+		c.Dir = t.TempDir()
+		if _, err := Run(context.Background(), c); !errors.Is(err, ErrBadConfig) {
+			t.Errorf("%+v: err %v, want ErrBadConfig", c, err)
+		}
+	}
+}
+
+// TestSqErr checks the error measure on hand-computed cases.
+func TestSqErr(t *testing.T) {
+	t.Parallel()
+	for _, c := range []struct {
+		est, truth []float64
+		want       float64
+	}{
+		{[]float64{0.5, 0.5}, []float64{0.5, 0.5}, 0},
+		{[]float64{0.2, 0.8}, []float64{0.5, 0.5}, 0.09},    // (0.3² + 0.3²)/2
+		{nil, []float64{0.9, 0.1}, 0.16},                    // uniform: (0.4² + 0.4²)/2
+		{[]float64{1, 0, 0}, []float64{0, 1, 0}, 2.0 / 3.0}, // (1 + 1 + 0)/3
+	} {
+		if got := sqErr(c.est, c.truth); math.Abs(got-c.want) > 1e-12 {
+			t.Errorf("sqErr(%v, %v) = %v, want %v", c.est, c.truth, got, c.want)
+		}
+	}
+}
