@@ -1,0 +1,255 @@
+package cli
+
+import (
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"runtime"
+	"runtime/debug"
+	"strconv"
+	"strings"
+	"time"
+	"unicode"
+
+	"github.com/hopwise/hopwise/graphidx"
+	"github.com/mattn/go-isatty"
+	"github.com/schollz/progressbar/v3"
+	"github.com/spf13/cobra"
+)
+
+func init() { register(newBuildCmd) }
+
+type buildOpts struct {
+	corpus, format, lexicon, out, tempDir, memBudget string
+	minSupport                                       uint64
+	maxNeighbors, workers                            int
+	strict, quiet                                    bool
+}
+
+func newBuildCmd() *cobra.Command {
+	var o buildOpts
+	cmd := &cobra.Command{
+		Use:   "build --corpus PATH --out PATH [flags]",
+		Short: "Build a locality index from a corpus of contexts",
+		Long: `build reads a corpus of contexts, counts which entities are observed together
+and with which values, and writes the locality index to --out (through a
+temporary file that is synced and renamed, so an existing index survives a
+failed build).
+
+Corpus formats (--format, or detected from the extension; .gz is decompressed):
+  jsonl  one context per line: {"id":"c1","obs":{"vent3":"open","zone2":"dry"}}
+         or, presence only, {"id":"c2","ents":["pump1","bed4"]}   (.jsonl .ndjson .json)
+  csv    a long table with the header context,entity,value (or context,entity);
+         rows of one context may be anywhere in the file              (.csv)
+  text   plain text, one context per blank-line-separated paragraph, entities
+         found by a lexicon TSV (--lexicon, "surface form<TAB>entity id"),
+         case-insensitively on word boundaries                         (.txt .text .md)
+
+Bad lines. By default a bad line is skipped and counted by reason (bad-json,
+missing-id, duplicate-entity, too-many-columns, ...); the counts and the first
+example of each are printed at the end. --strict stops at the first bad line
+with "file:line: field: reason". Nothing is dropped without being counted.
+
+Memory. --mem-budget bounds the builder's dictionary and count tables; when
+they fill it, sorted runs are spilled to --temp-dir and merged at the end,
+giving the same index as an in-memory build. For csv, half of the budget
+groups rows and half counts. The Go runtime gets a soft memory limit of the
+budget plus 1/8.
+
+Pruning. --min-support drops pairs seen together in fewer contexts;
+--max-neighbors keeps each entity's N best neighbours by support (a pair stays
+if either endpoint keeps it). Both are reported in the summary.
+
+Progress goes to stderr: a bar on a terminal, a line every few seconds
+otherwise (--quiet silences both). The summary goes to stdout.
+Exit status: 0 on success, 2 for bad input (a bad line with --strict, a bad
+CSV header or lexicon, too many values), 1 for other errors.`,
+		Example: `  hopwise build --corpus greenhouse.jsonl --out greenhouse.idx
+  hopwise build --corpus notes.txt --lexicon lexicon.tsv --out notes.idx --min-support 2
+  hopwise build --corpus big.csv --out big.idx --mem-budget 256MiB --workers 2 --strict`,
+		Args: cobra.NoArgs,
+		RunE: func(cmd *cobra.Command, _ []string) error {
+			return runBuild(cmd, o)
+		},
+	}
+	f := cmd.Flags()
+	f.StringVar(&o.corpus, "corpus", "", "corpus file (required)")
+	f.StringVar(&o.format, "format", "", "corpus format: jsonl, csv or text (default: from the extension)")
+	f.StringVar(&o.lexicon, "lexicon", "", "lexicon TSV for text corpora: surface form<TAB>entity id")
+	f.StringVar(&o.out, "out", "", "index file to write (required)")
+	f.Uint64Var(&o.minSupport, "min-support", 1, "drop pairs observed together in fewer than N contexts")
+	f.IntVar(&o.maxNeighbors, "max-neighbors", 0, "keep each entity's N best neighbours by support (0: no limit)")
+	f.StringVar(&o.memBudget, "mem-budget", "512MiB", "memory budget, e.g. 256MiB, 2GiB, 500MB or bytes")
+	f.IntVar(&o.workers, "workers", 0, "counting goroutines (0: one per core)")
+	f.StringVar(&o.tempDir, "temp-dir", "", "directory for spilled runs (default: the system temp dir)")
+	f.BoolVar(&o.strict, "strict", false, "stop at the first bad line instead of skipping and counting it")
+	f.BoolVar(&o.quiet, "quiet", false, "no progress output")
+	_ = cmd.MarkFlagRequired("corpus")
+	_ = cmd.MarkFlagRequired("out")
+	return cmd
+}
+
+func runBuild(cmd *cobra.Command, o buildOpts) error {
+	budget, err := parseByteSize(o.memBudget)
+	if err != nil {
+		return &ExitError{Code: 2, Err: fmt.Errorf("--mem-budget: %w", err)}
+	}
+	if o.workers < 0 {
+		return &ExitError{Code: 2, Err: fmt.Errorf("--workers must not be negative, got %d", o.workers)}
+	}
+	if o.workers == 0 {
+		o.workers = runtime.GOMAXPROCS(0)
+	}
+	format := o.format
+	if format == "" {
+		format = graphidx.DetectFormat(o.corpus)
+	}
+	readBudget, buildBudget := budget, budget
+	if format == graphidx.FormatCSV {
+		readBudget, buildBudget = budget/2, budget/2
+	}
+	policy := graphidx.Lenient
+	if o.strict {
+		policy = graphidx.Strict
+	}
+	r, closer, err := graphidx.OpenCorpus(o.corpus, format, o.lexicon,
+		graphidx.WithPolicy(policy), graphidx.WithMemBudget(readBudget), graphidx.WithTempDir(o.tempDir))
+	if err != nil {
+		return classifyBuildErr(err)
+	}
+	defer closer.Close()
+
+	old := debug.SetMemoryLimit(budget + budget/8)
+	defer debug.SetMemoryLimit(old)
+
+	var total int64 = -1
+	if fi, err := os.Stat(o.corpus); err == nil && !strings.HasSuffix(strings.ToLower(o.corpus), ".gz") {
+		total = fi.Size()
+	}
+	stderr := cmd.ErrOrStderr()
+	progress, done := newBuildProgress(stderr, total, o.quiet)
+	sum, err := graphidx.Build(cmd.Context(), r, o.out,
+		graphidx.WithMemBudget(buildBudget), graphidx.WithTempDir(o.tempDir), graphidx.WithWorkers(o.workers),
+		graphidx.WithMinSupport(o.minSupport), graphidx.WithMaxNeighbors(o.maxNeighbors),
+		graphidx.WithProgress(progress))
+	done()
+	if err != nil {
+		if n := sum.Read.SkippedTotal(); n > 0 && !o.quiet {
+			fmt.Fprintf(stderr, "build: %d bad records were skipped before the error\n", n)
+		}
+		return classifyBuildErr(err)
+	}
+	out := cmd.OutOrStdout()
+	fmt.Fprintf(out, "wrote %s\n", o.out)
+	fmt.Fprint(out, sum.String())
+	return nil
+}
+
+// classifyBuildErr maps input errors to exit status 2.
+func classifyBuildErr(err error) error {
+	var le *graphidx.LineError
+	switch {
+	case errors.As(err, &le), errors.Is(err, graphidx.ErrTooManyValues), errors.Is(err, graphidx.ErrUnknownFormat),
+		errors.Is(err, graphidx.ErrLexiconRequired), errors.Is(err, graphidx.ErrDuplicateEntity),
+		errors.Is(err, graphidx.ErrTooManyEntities), errors.Is(err, graphidx.ErrCountOverflow):
+		return &ExitError{Code: 2, Err: err}
+	}
+	return err
+}
+
+// newBuildProgress returns the progress callback of a build and a function
+// that finishes the display. On a terminal it draws a bar over the input
+// bytes (a spinner when the size is unknown); otherwise it prints a line at
+// each phase change and every 5 seconds while reading.
+func newBuildProgress(w io.Writer, total int64, quiet bool) (func(graphidx.ProgressEvent), func()) {
+	if quiet {
+		return nil, func() {}
+	}
+	f, ok := w.(*os.File)
+	if ok && (isatty.IsTerminal(f.Fd()) || isatty.IsCygwinTerminal(f.Fd())) {
+		bar := progressbar.NewOptions64(total,
+			progressbar.OptionSetWriter(w),
+			progressbar.OptionSetDescription("reading"),
+			progressbar.OptionShowBytes(true),
+			progressbar.OptionUseIECUnits(true),
+			progressbar.OptionSetPredictTime(true),
+			progressbar.OptionThrottle(100*time.Millisecond),
+			progressbar.OptionSetWidth(30),
+			progressbar.OptionShowDescriptionAtLineEnd(),
+			progressbar.OptionClearOnFinish(),
+		)
+		phase := graphidx.PhaseRead
+		return func(ev graphidx.ProgressEvent) {
+				if ev.Phase == graphidx.PhaseRead && ev.BytesRead >= 0 {
+					_ = bar.Set64(ev.BytesRead)
+					bar.Describe(fmt.Sprintf("%s contexts, %d entities, %d runs", humanCount(ev.Contexts), ev.Entities, ev.SpillRuns))
+				}
+				if ev.Phase != phase {
+					phase = ev.Phase
+					if total > 0 {
+						_ = bar.Set64(total)
+					}
+					bar.Describe(ev.Phase + "...")
+				}
+			}, func() {
+				_ = bar.Finish()
+			}
+	}
+	var last time.Time
+	phase := ""
+	return func(ev graphidx.ProgressEvent) {
+		if ev.Phase == phase && time.Since(last) < 5*time.Second {
+			return
+		}
+		phase, last = ev.Phase, time.Now()
+		msg := fmt.Sprintf("build: %-5s %s contexts, %d entities, %d spill runs", ev.Phase, humanCount(ev.Contexts), ev.Entities, ev.SpillRuns)
+		if ev.Phase == graphidx.PhaseRead && ev.BytesRead >= 0 && total > 0 {
+			msg += fmt.Sprintf(", %.0f%% of input", 100*float64(ev.BytesRead)/float64(total))
+		}
+		if ev.Pairs > 0 {
+			msg += fmt.Sprintf(", %d pairs", ev.Pairs)
+		}
+		fmt.Fprintf(w, "%s (%s)\n", msg, ev.Elapsed.Round(100*time.Millisecond))
+	}, func() {}
+}
+
+func humanCount(n uint64) string {
+	switch {
+	case n >= 10_000_000:
+		return fmt.Sprintf("%.0fM", float64(n)/1e6)
+	case n >= 1_000_000:
+		return fmt.Sprintf("%.1fM", float64(n)/1e6)
+	case n >= 10_000:
+		return fmt.Sprintf("%.0fk", float64(n)/1e3)
+	}
+	return strconv.FormatUint(n, 10)
+}
+
+// parseByteSize parses a size: a number with an optional unit, KiB/MiB/GiB/
+// TiB (and K/M/G/T) as powers of 1024, kB/MB/GB/TB as powers of 1000, B or
+// nothing for bytes. Case-insensitive; the number may have a fraction.
+func parseByteSize(s string) (int64, error) {
+	t := strings.TrimSpace(s)
+	i := strings.IndexFunc(t, func(r rune) bool { return !unicode.IsDigit(r) && r != '.' })
+	num, unit := t, ""
+	if i >= 0 {
+		num, unit = t[:i], strings.TrimSpace(t[i:])
+	}
+	v, err := strconv.ParseFloat(num, 64)
+	if err != nil || v < 0 {
+		return 0, fmt.Errorf("bad size %q (want e.g. 512MiB, 2GiB, 500MB)", s)
+	}
+	mult := map[string]float64{"": 1, "b": 1,
+		"k": 1 << 10, "kib": 1 << 10, "m": 1 << 20, "mib": 1 << 20, "g": 1 << 30, "gib": 1 << 30, "t": 1 << 40, "tib": 1 << 40,
+		"kb": 1e3, "mb": 1e6, "gb": 1e9, "tb": 1e12}
+	m, ok := mult[strings.ToLower(unit)]
+	if !ok {
+		return 0, fmt.Errorf("bad size unit %q in %q (want KiB, MiB, GiB, kB, MB, GB)", unit, s)
+	}
+	b := v * m
+	if b < 1 || b > 1<<62 {
+		return 0, fmt.Errorf("size %q out of range", s)
+	}
+	return int64(b), nil
+}
