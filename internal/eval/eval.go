@@ -207,6 +207,10 @@ type Report struct {
 	HeldOut     Scores      `json:"heldout"`
 	Supported   Scores      `json:"supported"`
 	Calibration Calibration `json:"calibration"`
+	// HeldOutPairs and SupportedPairs count the unordered pairs queried
+	// (world.PickHeldOut may find fewer qualifying pairs than asked for).
+	HeldOutPairs   int `json:"heldout_pairs"`
+	SupportedPairs int `json:"supported_pairs"`
 	// Beta is the β the world was answered with.
 	Beta float64 `json:"beta"`
 	// Contexts, Entities and Pairs describe the built index.
@@ -512,6 +516,7 @@ func (b *Bench) Answer(ctx context.Context, beta *float64, ropts ...router.Optio
 		Condition: b.cfg.Condition, Seed: b.cfg.Seed, Beta: bt,
 		Contexts: b.contexts, Entities: b.Index.NumEntities(), Pairs: b.Index.NumPairs(),
 		BuildSeconds: b.build.Seconds(),
+		HeldOutPairs: len(b.World.HeldOut()), SupportedPairs: len(b.World.Supported()),
 	}
 	var kept []QueryResult
 	for i := range res {
