@@ -81,3 +81,18 @@ func TestUnitKeyDefault(t *testing.T) {
 		t.Fatalf("draws %v %v %v %v", a, b, c, d)
 	}
 }
+
+// TestSipPrefixedMatchesStreaming: the register fast path equals the
+// streaming hash for every tail length.
+func TestSipPrefixedMatchesStreaming(t *testing.T) {
+	t.Parallel()
+	msg := "unit-key-for-the-north-greenhouse-bed-07"
+	for n := 0; n <= len(msg); n++ {
+		h := newSip(3, 5)
+		h.writeUint64(0xfeedface12345678)
+		h.writeString(msg[:n])
+		if got, want := sipPrefixed(3, 5, 0xfeedface12345678, msg[:n]), h.sum64(); got != want {
+			t.Fatalf("len %d: %#x != %#x", n, got, want)
+		}
+	}
+}

@@ -254,3 +254,29 @@ func BenchmarkDecideHub(b *testing.B) {
 		i++
 	}
 }
+
+// BenchmarkDecideCachedArms is the cached path with A/B arms and
+// exploration: two SipHash draws per decision on top of the cache hit.
+func BenchmarkDecideCachedArms(b *testing.B) {
+	ix, src := benchIndex(b)
+	r, err := New(nonClosing{ix},
+		WithArms(ArmWeight{ArmRouted, 0.8}, ArmWeight{ArmDirectOnly, 0.1}, ArmWeight{ArmChainAlways, 0.1}),
+		WithExploration(0.05, "bench"))
+	if err != nil {
+		b.Fatal(err)
+	}
+	q := benchQueries(src, 1, 3)[0]
+	q.Key = "grower-000042"
+	ctx := context.Background()
+	if _, err := r.Decide(ctx, q); err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	var d Decision
+	for b.Loop() {
+		d, err = r.Decide(ctx, q)
+	}
+	if err != nil || !d.Cached || d.Arm == "" {
+		b.Fatalf("cached decision %+v %v", d, err)
+	}
+}

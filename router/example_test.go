@@ -7,6 +7,7 @@ import (
 	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"strings"
 
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/router"
@@ -155,4 +156,26 @@ func ExampleWithArms() {
 	fmt.Println(counts)
 	// Output:
 	// map[direct-only/direct:501 routed/chain:449 routed/direct:50]
+}
+
+func ExampleParseConfig() {
+	c, err := router.ParseConfig(strings.NewReader(`{
+  "gain_threshold": 0.002,
+  "max_bridges": 2,
+  "fallback": "direct",
+  "arms": [{"arm": "routed", "weight": 0.9}, {"arm": "direct-only", "weight": 0.1}]
+}`), "route.json")
+	if err != nil {
+		log.Fatal(err)
+	}
+	fmt.Println(c.GainThreshold, c.MaxBridges, c.Beam, c.Fallback, len(c.Arms))
+	opts, err := c.Options() // for router.New or Router.Reconfigure
+	fmt.Println(len(opts) > 0, err)
+
+	_, err = router.ParseConfig(strings.NewReader(`{"beam": 0}`), "route.json")
+	fmt.Println(err)
+	// Output:
+	// 0.002 2 64 direct 2
+	// true <nil>
+	// route.json: field "beam": router: bad option: WithBeam: B must be in [1, 1048576], got 0
 }
