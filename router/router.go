@@ -121,6 +121,10 @@ func (r *Router) Swap(g Graph) error {
 		r.mu.Unlock()
 		return ErrClosed
 	}
+	if cur := r.cur.Load(); cur != nil && sameGraph(cur.g, g) {
+		r.mu.Unlock()
+		return fmt.Errorf("%w: Swap: the graph is already current (retiring it would close it)", ErrBadOption)
+	}
 	old := r.cur.Swap(r.newHandle(g))
 	r.mu.Unlock()
 	if r.cache != nil {
@@ -128,6 +132,17 @@ func (r *Router) Swap(g Graph) error {
 	}
 	old.release()
 	return nil
+}
+
+// sameGraph reports a == b without panicking on non-comparable dynamic
+// types (which are then treated as different).
+func sameGraph(a, b Graph) (same bool) {
+	defer func() {
+		if recover() != nil {
+			same = false
+		}
+	}()
+	return a == b
 }
 
 // Reconfigure applies opts over the current configuration and starts a new

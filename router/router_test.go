@@ -345,6 +345,9 @@ func TestCacheHitAndStaleness(t *testing.T) { // not parallel: AllocsPerRun
 	if err != nil || d3.Cached || d3.Generation != 2 || d3.Estimate[1] < 0.6 {
 		t.Fatalf("after swap: %+v %v", d3, err)
 	}
+	if err := r.Swap(g2); !errors.Is(err, ErrBadOption) {
+		t.Fatalf("swapping in the current graph: %v", err)
+	}
 	// Same content generation, new swap: still not served from the old entry.
 	g3 := greenhouse(2)
 	if err := r.Swap(g3); err != nil {
