@@ -83,6 +83,13 @@ type Config struct {
 	// KeepQueries stores every answered query in Report.Queries (for
 	// fitting and for cross-checks).
 	KeepQueries bool
+	// Network, when set, is the world to evaluate (for example
+	// world.Greenhouse) instead of one generated from World; Seed then only
+	// seeds the corpus and the negative-control bridges.
+	Network *world.World
+	// BuildOptions are passed to graphidx.Compile (for example
+	// graphidx.WithProgress).
+	BuildOptions []graphidx.BuildOption
 }
 
 func (c Config) withDefaults() (Config, world.Condition, error) {
@@ -303,9 +310,11 @@ func Prepare(ctx context.Context, cfg Config) (*Bench, error) {
 		return nil, err
 	}
 	start := time.Now()
-	w, err := world.Generate(*cfg.World, cfg.Seed)
-	if err != nil {
-		return nil, fmt.Errorf("eval: generate world (seed %d): %w", cfg.Seed, err)
+	w := cfg.Network
+	if w == nil {
+		if w, err = world.Generate(*cfg.World, cfg.Seed); err != nil {
+			return nil, fmt.Errorf("eval: generate world (seed %d): %w", cfg.Seed, err)
+		}
 	}
 	b := &Bench{cfg: cfg, World: w, dir: cfg.Dir}
 	if b.dir == "" {
@@ -327,7 +336,7 @@ func Prepare(ctx context.Context, cfg Config) (*Bench, error) {
 		return nil, err
 	}
 	idxPath := filepath.Join(b.dir, "index.hwx")
-	if err := buildIndex(ctx, corpus, idxPath); err != nil {
+	if err := buildIndex(ctx, corpus, idxPath, cfg.BuildOptions...); err != nil {
 		return nil, err
 	}
 	if b.Index, err = graphidx.Open(idxPath); err != nil {
@@ -369,13 +378,13 @@ func writeCorpus(ctx context.Context, w *world.World, path string, n int, cond w
 	return nil
 }
 
-func buildIndex(ctx context.Context, corpus, out string) error {
+func buildIndex(ctx context.Context, corpus, out string, opts ...graphidx.BuildOption) error {
 	r, closer, err := graphidx.OpenCorpus(corpus, graphidx.FormatJSONL, "", graphidx.WithPolicy(graphidx.Strict))
 	if err != nil {
 		return fmt.Errorf("eval: open corpus: %w", err)
 	}
 	defer closer.Close()
-	comp, _, err := graphidx.Compile(ctx, r)
+	comp, _, err := graphidx.Compile(ctx, r, opts...)
 	if err != nil {
 		return fmt.Errorf("eval: compile %s: %w", corpus, err)
 	}
