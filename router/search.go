@@ -131,6 +131,7 @@ type scratch struct {
 	f2s, t2s []step2 // copies of f2, t2
 	cursor   []int32
 	keys     []uint64
+	rks      [][]graphidx.EntityID // ranked lists of the layer-1 nodes
 	heap     []cand
 	hits     []graphidx.EntityID
 	path     []graphidx.EntityID
@@ -151,6 +152,7 @@ func newScratch() *scratch { return &scratch{ws: scorer.NewWorkspace()} }
 
 func (sc *scratch) reset() {
 	sc.g, sc.model, sc.st = nil, nil, nil
+	clear(sc.rks[:cap(sc.rks)]) // drop references into the index
 	sc.kCut = false
 	sc.bud = budget{}
 }
@@ -369,19 +371,23 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1complete bool, from, other 
 		sc.cursor = make([]int32, len(l1))
 	}
 	cur := sc.cursor[:len(l1)]
+	rks := sc.rks[:0]
 	for i, x := range l1 {
 		cur[i] = 0
-		if len(sc.g.RankedNeighbors(x.id)) < len(sc.g.Neighbors(x.id)) {
+		rk := sc.g.RankedNeighbors(x.id)
+		rks = append(rks, rk)
+		if len(rk) < len(sc.g.Neighbors(x.id)) {
 			complete = false // only a prefix is ranked
 		}
 	}
+	sc.rks = rks
 	for progress := true; progress; {
 		progress = false
 		for i, x := range l1 {
 			if cur[i] < 0 {
 				continue
 			}
-			rk := sc.g.RankedNeighbors(x.id)
+			rk := rks[i]
 			pos := nextEligible(rk, int(cur[i]), from, other, x.id)
 			if pos < 0 {
 				cur[i] = -1
