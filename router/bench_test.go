@@ -11,6 +11,7 @@ import (
 	"strconv"
 	"sync"
 	"testing"
+	"time"
 
 	"github.com/hopwise/hopwise/graphidx"
 )
@@ -279,4 +280,58 @@ func BenchmarkDecideCachedArms(b *testing.B) {
 	if err != nil || !d.Cached || d.Arm == "" {
 		b.Fatalf("cached decision %+v %v", d, err)
 	}
+}
+
+// TestLatencyProfile prints uncached Decide latency percentiles on the
+// power-law index (HOPWISE_BENCH_N entities, default 50k). It only runs with
+// HOPWISE_ROUTER_LATENCY=1; wall-clock figures depend on machine load.
+func TestLatencyProfile(t *testing.T) {
+	if os.Getenv("HOPWISE_ROUTER_LATENCY") == "" {
+		t.Skip("set HOPWISE_ROUTER_LATENCY=1 to run")
+	}
+	ix, src := benchIndex(&testing.B{})
+	qs := benchQueries(src, 20000, 5)
+	hubQs := benchQueries(src, 2000, 6)
+	for i := range hubQs {
+		hubQs[i].From = src.ents[0].Name
+		if hubQs[i].To == hubQs[i].From {
+			hubQs[i].To = src.ents[1].Name
+		}
+	}
+	ctx := context.Background()
+	run := func(name string, r *Router, qs []Query) {
+		for _, q := range qs[:len(qs)/10] { // warm the pool and page cache
+			r.Decide(ctx, q)
+		}
+		lat := make([]time.Duration, 0, len(qs))
+		found, trunc := 0, 0
+		for _, q := range qs {
+			start := time.Now()
+			d, err := r.Decide(ctx, q)
+			lat = append(lat, time.Since(start))
+			if err != nil {
+				t.Fatal(err)
+			}
+			if d.Chain != nil {
+				found++
+			}
+			if d.Truncated {
+				trunc++
+			}
+		}
+		slices.Sort(lat)
+		t.Logf("%-10s n=%d p50 %v p90 %v p99 %v max %v chain-found %.3f truncated %.3f", name, len(qs),
+			lat[len(lat)/2], lat[len(lat)*9/10], lat[len(lat)*99/100], lat[len(lat)-1],
+			float64(found)/float64(len(qs)), float64(trunc)/float64(len(qs)))
+	}
+	t.Logf("index: %d entities, %d pairs, hub degree %d", ix.NumEntities(), ix.NumPairs(), ix.Degree(0))
+	for _, h := range []int{1, 2, 3} {
+		r, err := New(nonClosing{ix}, WithCacheSize(0), WithMaxBridges(h))
+		if err != nil {
+			t.Fatal(err)
+		}
+		run(fmt.Sprintf("H=%d", h), r, qs)
+	}
+	r, _ := New(nonClosing{ix}, WithCacheSize(0))
+	run("hub H=3", r, hubQs)
 }
