@@ -19,8 +19,7 @@ const (
 
 	KeyRouteMode       = "hopwise.route.mode"       // string: "direct" or "chain"
 	KeyRouteGain       = "hopwise.route.gain"       // double: err(direct) − err(chain)
-	KeyRouteScore      = "hopwise.route.score"      // double: the quantity compared with τ
-	KeyRouteErr        = "hopwise.route.err"        // double: expected error of the chosen estimate
+	KeyRouteScore      = "hopwise.route.score"      // double: the quantity compared with τ; absent when equal to the gain
 	KeyRouteReason     = "hopwise.route.reason"     // string: router reason code
 	KeyRouteTruncated  = "hopwise.route.truncated"  // bool: a search bound cut the search
 	KeyRoutePropensity = "hopwise.route.propensity" // double: probability of the chosen mode
@@ -30,10 +29,9 @@ const (
 	KeyDirectErr     = "hopwise.direct.err"     // double
 	KeyDirectSupport = "hopwise.direct.support" // int
 
-	KeyChainErr        = "hopwise.chain.err"         // double; absent without a chain
-	KeyChainHops       = "hopwise.chain.hops"        // int: number of bridges
-	KeyChainBridges    = "hopwise.chain.bridges"     // string slice (maybe hashed)
-	KeyChainMinSupport = "hopwise.chain.min_support" // int: weakest edge support
+	KeyChainErr     = "hopwise.chain.err"     // double; absent without a chain
+	KeyChainHops    = "hopwise.chain.hops"    // int: number of bridges
+	KeyChainBridges = "hopwise.chain.bridges" // string slice (maybe hashed)
 
 	KeyABArm           = "hopwise.ab.arm"           // string; absent without arms
 	KeyIndexGeneration = "hopwise.index.generation" // string: 16 hex digits

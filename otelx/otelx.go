@@ -18,6 +18,7 @@ import (
 	"go.opentelemetry.io/otel/attribute"
 	"go.opentelemetry.io/otel/codes"
 	"go.opentelemetry.io/otel/metric"
+	mnoop "go.opentelemetry.io/otel/metric/noop"
 	"go.opentelemetry.io/otel/trace"
 	tnoop "go.opentelemetry.io/otel/trace/noop"
 
@@ -119,6 +120,9 @@ type Instrumentation struct {
 	hashers sync.Pool
 	ratio   attribute.KeyValue
 	hashed  bool
+	// metricsOff: the meter provider is the otel noop provider, so the
+	// Enabled checks are skipped too.
+	metricsOff bool
 
 	decisions metric.Int64Counter
 	latency   metric.Float64Histogram
@@ -126,10 +130,10 @@ type Instrumentation struct {
 	gain      metric.Float64Histogram
 	outcome   metric.Float64Histogram
 
-	sets     [3][len(knownArms)]attribute.Set // [mode][arm]: direct, chain, error
-	extra    sync.Map                         // unknown arm name → *[3]attribute.Set
-	hitSet   attribute.Set
-	missSet  attribute.Set
+	sets     [3][len(knownArms)]attrOpts // [mode][arm]: direct, chain, error
+	extra    sync.Map                    // unknown arm name → *[3]attrOpts
+	hitOpts  []metric.AddOption
+	missOpts []metric.AddOption
 	ratioVal float64
 }
 
@@ -176,6 +180,10 @@ func New(opts ...Option) (*Instrumentation, error) {
 		in.hashKey = cfg.hashKey
 		in.hashers.New = func() any { return hmac.New(sha256.New, in.hashKey) }
 	}
+	// Likewise the noop meter provider: its instruments are never enabled.
+	if _, isNoop := cfg.mp.(mnoop.MeterProvider); isNoop {
+		in.metricsOff = true
+	}
 	meter := cfg.mp.Meter(ScopeName, metric.WithInstrumentationVersion(Version))
 	var err, e error
 	in.decisions, e = meter.Int64Counter(MetricDecisions, metric.WithUnit("{decision}"),
@@ -204,34 +212,45 @@ func New(opts ...Option) (*Instrumentation, error) {
 			in.sets[m][a] = modeArmSet(modeNames[m], arm)
 		}
 	}
-	in.hitSet = attribute.NewSet(attribute.String(KeyCacheResult, "hit"))
-	in.missSet = attribute.NewSet(attribute.String(KeyCacheResult, "miss"))
+	in.hitOpts = []metric.AddOption{metric.WithAttributeSet(attribute.NewSet(attribute.String(KeyCacheResult, "hit")))}
+	in.missOpts = []metric.AddOption{metric.WithAttributeSet(attribute.NewSet(attribute.String(KeyCacheResult, "miss")))}
 	return in, nil
 }
 
-func modeArmSet(mode, arm string) attribute.Set {
-	if arm == "" {
-		return attribute.NewSet(attribute.String(KeyRouteMode, mode))
-	}
-	return attribute.NewSet(attribute.String(KeyRouteMode, mode), attribute.String(KeyABArm, arm))
+// attrOpts holds the measurement options of one (mode, arm) attribute
+// set, built once so that recording allocates nothing.
+type attrOpts struct {
+	add []metric.AddOption
+	rec []metric.RecordOption
 }
 
-// set returns the prebuilt attribute set of (mode, arm).
-func (in *Instrumentation) set(mode int, arm string) *attribute.Set {
+func modeArmSet(mode, arm string) attrOpts {
+	var set attribute.Set
+	if arm == "" {
+		set = attribute.NewSet(attribute.String(KeyRouteMode, mode))
+	} else {
+		set = attribute.NewSet(attribute.String(KeyRouteMode, mode), attribute.String(KeyABArm, arm))
+	}
+	o := metric.WithAttributeSet(set)
+	return attrOpts{add: []metric.AddOption{o}, rec: []metric.RecordOption{o}}
+}
+
+// set returns the prebuilt options of (mode, arm).
+func (in *Instrumentation) set(mode int, arm string) *attrOpts {
 	for a, k := range knownArms {
 		if k == arm {
 			return &in.sets[mode][a]
 		}
 	}
 	if v, ok := in.extra.Load(arm); ok {
-		return &v.(*[3]attribute.Set)[mode]
+		return &v.(*[3]attrOpts)[mode]
 	}
-	var s [3]attribute.Set
+	var s [3]attrOpts
 	for m := range s {
 		s[m] = modeArmSet(modeNames[m], arm)
 	}
 	v, _ := in.extra.LoadOrStore(arm, &s)
-	return &v.(*[3]attribute.Set)[mode]
+	return &v.(*[3]attrOpts)[mode]
 }
 
 // HashEntity returns what spans record for an entity name or value: the
@@ -260,8 +279,10 @@ func (in *Instrumentation) Decide(ctx context.Context, r *router.Router, q route
 	if in.tracer != nil {
 		ctx, span = in.tracer.Start(ctx, SpanDecide, in.startOp...)
 		recording = span.IsRecording()
+	} else if in.metricsOff {
+		return r.Decide(ctx, q) // both providers are the otel noop ones
 	}
-	timed := recording || in.latency.Enabled(ctx)
+	timed := recording || (!in.metricsOff && in.latency.Enabled(ctx))
 	var start time.Time
 	if timed {
 		start = time.Now()
@@ -289,6 +310,9 @@ func (in *Instrumentation) Decide(ctx context.Context, r *router.Router, q route
 		span.End()
 	}
 
+	if in.metricsOff {
+		return d, err
+	}
 	mode := modeError
 	if err == nil {
 		mode = int(d.Mode)
@@ -297,21 +321,21 @@ func (in *Instrumentation) Decide(ctx context.Context, r *router.Router, q route
 		}
 	}
 	if in.decisions.Enabled(ctx) {
-		in.decisions.Add(ctx, 1, metric.WithAttributeSet(*in.set(mode, d.Arm)))
+		in.decisions.Add(ctx, 1, in.set(mode, d.Arm).add...)
 	}
 	if timed && in.latency.Enabled(ctx) {
-		in.latency.Record(ctx, elapsed.Seconds(), metric.WithAttributeSet(*in.set(mode, d.Arm)))
+		in.latency.Record(ctx, elapsed.Seconds(), in.set(mode, d.Arm).rec...)
 	}
 	if err == nil {
 		if in.cache.Enabled(ctx) {
-			s := &in.missSet
+			opts := in.missOpts
 			if d.Cached {
-				s = &in.hitSet
+				opts = in.hitOpts
 			}
-			in.cache.Add(ctx, 1, metric.WithAttributeSet(*s))
+			in.cache.Add(ctx, 1, opts...)
 		}
 		if d.Chain != nil && in.gain.Enabled(ctx) {
-			in.gain.Record(ctx, d.Gain, metric.WithAttributeSet(*in.set(mode, d.Arm)))
+			in.gain.Record(ctx, d.Gain, in.set(mode, d.Arm).rec...)
 		}
 	}
 	return d, err
@@ -342,8 +366,6 @@ func (in *Instrumentation) decisionAttrs(attrs []attribute.KeyValue, q router.Qu
 	attrs = append(attrs,
 		attribute.String(KeyRouteMode, d.Mode.String()),
 		attribute.Float64(KeyRouteGain, d.Gain),
-		attribute.Float64(KeyRouteScore, d.Score),
-		attribute.Float64(KeyRouteErr, d.Err),
 		attribute.String(KeyRouteReason, d.Reason.Code),
 		attribute.Bool(KeyRouteTruncated, d.Truncated),
 		attribute.Float64(KeyRoutePropensity, d.Propensity),
@@ -353,6 +375,9 @@ func (in *Instrumentation) decisionAttrs(attrs []attribute.KeyValue, q router.Qu
 		attribute.Int64(KeyDirectSupport, clampInt64(d.Direct.Support)),
 		attribute.String(KeyIndexGeneration, in.genString(d.Generation)),
 	)
+	if d.Score != d.Gain { // utility scoring; readers default score to gain
+		attrs = append(attrs, attribute.Float64(KeyRouteScore, d.Score))
+	}
 	if d.Chain != nil {
 		bridges := d.Chain.Bridges // StringSlice copies it
 		if in.hashed {
@@ -365,7 +390,6 @@ func (in *Instrumentation) decisionAttrs(attrs []attribute.KeyValue, q router.Qu
 			attribute.Float64(KeyChainErr, d.Chain.Err),
 			attribute.Int(KeyChainHops, len(d.Chain.Bridges)),
 			attribute.StringSlice(KeyChainBridges, bridges),
-			attribute.Int64(KeyChainMinSupport, clampInt64(d.Chain.MinSupport)),
 		)
 	}
 	if d.Arm != "" {
@@ -448,12 +472,12 @@ func (in *Instrumentation) RecordOutcome(ctx context.Context, d router.Decision,
 	if span != nil {
 		span.End()
 	}
-	if in.outcome.Enabled(ctx) {
+	if !in.metricsOff && in.outcome.Enabled(ctx) {
 		m := int(d.Mode)
 		if m > 1 {
 			m = modeError
 		}
-		in.outcome.Record(ctx, o.Score, metric.WithAttributeSet(*in.set(m, d.Arm)))
+		in.outcome.Record(ctx, o.Score, in.set(m, d.Arm).rec...)
 	}
 	return nil
 }

@@ -86,7 +86,6 @@ func TestDecideSpanAndMetrics(t *testing.T) {
 		KeyQueryTo:         "bed-tomato",
 		KeyRouteMode:       d.Mode.String(),
 		KeyRouteGain:       d.Gain,
-		KeyRouteScore:      d.Score,
 		KeyRouteReason:     d.Reason.Code,
 		KeyRouteTruncated:  d.Truncated,
 		KeyRoutePropensity: d.Propensity,
@@ -108,6 +107,9 @@ func TestDecideSpanAndMetrics(t *testing.T) {
 		if got := v.AsInterface(); got != want {
 			t.Errorf("attribute %s = %v (%T), want %v (%T)", k, got, got, want, want)
 		}
+	}
+	if _, ok := a[KeyRouteScore]; ok != (d.Score != d.Gain) {
+		t.Errorf("route.score present = %v with score %v and gain %v", ok, d.Score, d.Gain)
 	}
 	if got := a[KeyChainBridges].AsStringSlice(); strings.Join(got, ",") != strings.Join(d.Chain.Bridges, ",") {
 		t.Errorf("bridges %v, want %v", got, d.Chain.Bridges)
@@ -338,7 +340,7 @@ func TestTraceFileRoundTrip(t *testing.T) {
 			t.Fatalf("unit %d missing", i)
 		}
 		dr, or := j.Decision, j.Outcome
-		if dr.Mode != m.d.Mode.String() || dr.Gain != m.d.Gain || dr.Score != m.d.Score || dr.Arm != m.d.Arm ||
+		if dr.Mode != m.d.Mode.String() || dr.Gain != m.d.Gain || dr.Score != m.d.Score || dr.Err != m.d.Err || dr.Arm != m.d.Arm ||
 			dr.Propensity != m.d.Propensity || dr.Explored != m.d.Explored || dr.Reason != m.d.Reason.Code ||
 			dr.DirectErr != m.d.Direct.Err || dr.DirectSupport != m.d.Direct.Support || dr.SamplingRatio != 0.25 ||
 			dr.HasChain != (m.d.Chain != nil) {

@@ -34,11 +34,14 @@ type DecisionRecord struct {
 
 	Key, From, Value, To string // From/Value/To maybe hashed
 	Mode                 string // "direct" or "chain"
-	Gain, Score, Err     float64
-	Reason               string
-	Truncated            bool
-	Explored             bool
-	Cached               bool
+	Gain, Score          float64
+	// Err is the expected error of the chosen estimate (ChainErr or
+	// DirectErr by Mode; 0 for a chain fallback without a chain).
+	Err       float64
+	Reason    string
+	Truncated bool
+	Explored  bool
+	Cached    bool
 	// Propensity is the logged probability of Mode; NaN when the span has
 	// none (see HasPropensity).
 	Propensity float64
@@ -46,11 +49,10 @@ type DecisionRecord struct {
 	DirectErr     float64
 	DirectSupport uint64
 
-	HasChain        bool
-	ChainErr        float64
-	ChainHops       int
-	Bridges         []string
-	ChainMinSupport uint64
+	HasChain  bool
+	ChainErr  float64
+	ChainHops int
+	Bridges   []string
 
 	Arm        string
 	Generation string
@@ -348,7 +350,6 @@ func decisionFromSpan(sp *tracepb.Span, src string) (*DecisionRecord, error) {
 	}
 	d.Gain = a.float(KeyRouteGain, 0, false)
 	d.Score = a.float(KeyRouteScore, d.Gain, false)
-	d.Err = a.float(KeyRouteErr, 0, false)
 	d.Reason = a.str(KeyRouteReason, false)
 	d.Truncated = a.bool(KeyRouteTruncated)
 	d.Explored = a.bool(KeyRouteExplored)
@@ -364,7 +365,6 @@ func decisionFromSpan(sp *tracepb.Span, src string) (*DecisionRecord, error) {
 		d.ChainErr = a.float(KeyChainErr, 0, false)
 		d.ChainHops = int(a.int(KeyChainHops))
 		d.Bridges = a.strings(KeyChainBridges)
-		d.ChainMinSupport = a.uint(KeyChainMinSupport)
 		if d.ChainHops < 0 {
 			a.fail(KeyChainHops, "negative hop count %d", d.ChainHops)
 		}
@@ -372,6 +372,13 @@ func decisionFromSpan(sp *tracepb.Span, src string) (*DecisionRecord, error) {
 	d.Arm = a.str(KeyABArm, false)
 	d.Generation = a.str(KeyIndexGeneration, false)
 	d.SamplingRatio = a.ratio()
+	// The expected error of the chosen estimate, as router.Decision.Err.
+	switch {
+	case d.Mode == "chain" && d.HasChain:
+		d.Err = d.ChainErr
+	case d.Mode == "direct":
+		d.Err = d.DirectErr
+	}
 	if a.err != nil {
 		return nil, a.err
 	}
