@@ -208,11 +208,13 @@ func (p *Partial) Reset() {
 	clear(p.cells)
 }
 
-// checkConsistent verifies that every pair cell names entities and values
-// that have marginals and that no row or column of a pair table exceeds the
-// marginal of its value: the invariants a sum of real contexts always has.
-// Counts from outside (count shards) must pass it before Compile. O(cells).
-func (p *Partial) checkConsistent() error {
+// Check verifies that every pair cell names entities and values that have
+// marginals, that no row or column of a pair table exceeds the marginal of
+// its value, and that no entity is observed in more contexts than counted:
+// the invariants a sum of real contexts always has. Counts loaded from
+// outside (count shards, AddCell) must pass it before Compile, which would
+// otherwise misplace cells. Errors wrap ErrBadCounts. O(cells).
+func (p *Partial) Check() error {
 	type ev struct{ e, v string }
 	rows := map[[2]string]map[ev]uint64{} // per pair and endpoint value: count
 	for k, n := range p.cells {

@@ -479,7 +479,7 @@ func MergeCounts(ctx context.Context, dirs []string, opts ...BuildOption) (Sourc
 		}
 		sum.SpillBytes += info.Bytes
 	}
-	if err := p.checkConsistent(); err != nil {
+	if err := p.Check(); err != nil {
 		return nil, sum, fmt.Errorf("%s: %w", dirsLabel(dirs), err)
 	}
 	src, st, err := p.Compile(opts...)
