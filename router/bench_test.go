@@ -22,16 +22,18 @@ import (
 // gives a degree distribution with tail exponent γ. Every entity has two
 // values; a pair's 2×2 table holds random counts.
 type powerLawSource struct {
-	n     int
-	ctxs  uint64 // every context observes exactly one pair
-	ents  []graphidx.EntityRecord
-	pairs []graphidx.PairRecord
+	n      int
+	ctxs   uint64 // every context observes exactly one pair
+	ents   []graphidx.EntityRecord
+	edges  []uint64 // a<<32 | b, ascending
+	counts []uint32 // 4 per edge
 }
 
 func (s *powerLawSource) Contexts() uint64                  { return s.ctxs }
 func (s *powerLawSource) Entities() []graphidx.EntityRecord { return s.ents }
 func (s *powerLawSource) Pairs(fn func(graphidx.PairRecord) error) error {
-	for _, p := range s.pairs {
+	for i, e := range s.edges {
+		p := graphidx.PairRecord{A: graphidx.EntityID(e >> 32), B: graphidx.EntityID(e & 0xffffffff), Counts: s.counts[4*i : 4*i+4 : 4*i+4]}
 		if err := fn(p); err != nil {
 			return err
 		}
@@ -76,9 +78,11 @@ func newPowerLaw(n int, avgDeg float64, gamma float64, seed uint64) *powerLawSou
 		s.ents = append(s.ents, graphidx.EntityRecord{
 			Name: fmt.Sprintf("sensor%0*d", width, i), Values: []string{"off", "on"}, Marginal: []uint64{0, 0}})
 	}
-	for _, e := range edges {
+	s.edges = edges
+	s.counts = make([]uint32, 4*len(edges))
+	for i, e := range edges {
 		a, b := graphidx.EntityID(e>>32), graphidx.EntityID(e&0xffffffff)
-		c := make([]uint32, 4)
+		c := s.counts[4*i : 4*i+4]
 		scale := 1 + rng.IntN(40)
 		for j := range c {
 			c[j] = uint32(rng.IntN(scale))
@@ -89,7 +93,6 @@ func newPowerLaw(n int, avgDeg float64, gamma float64, seed uint64) *powerLawSou
 			s.ents[a].Marginal[u] += uint64(c[u*2] + c[u*2+1])
 			s.ents[b].Marginal[u] += uint64(c[u] + c[2+u])
 		}
-		s.pairs = append(s.pairs, graphidx.PairRecord{A: a, B: b, Counts: c})
 	}
 	return s
 }
