@@ -2,8 +2,8 @@ package cli
 
 import (
 	"fmt"
-	"runtime"
 
+	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/internal/demo"
 	"github.com/spf13/cobra"
 )
@@ -19,14 +19,17 @@ func newDemoCmd() *cobra.Command {
 		Long: `demo needs no setup. On an invented greenhouse (zones, vents, pumps, sensors,
 crop beds; a Bayesian network with exact answers) it:
 
-  1. samples a corpus of local contexts (JSONL) into DIR,
-  2. builds the locality index with a progress bar,
-  3. routes every far-apart (held-out) and well-supported query through the
-     router, tracing each decision to an OTLP JSON Lines file,
-  4. prints the mean squared error vs the exact answer of direct, chained and
-     routed estimates, the share routed to chains and a few explained
-     decisions with their bridges,
-  5. writes a PNG of the error by route, and names what to run next.
+  1. samples a corpus of local contexts (DIR/corpus.jsonl),
+  2. builds the locality index (DIR/index.hwx) with a progress display,
+  3. measures direct, chained and routed estimates of every far-apart
+     (held-out) and well-supported query against the exact answer, with the
+     same harness as "hopwise eval" (DIR/queries.jsonl, DIR/truth.jsonl),
+  4. routes the queries again through the router wrapped in OpenTelemetry
+     instrumentation, tracing each decision to DIR/decisions.otlp.jsonl
+     (OTLP JSON Lines),
+  5. prints the mean squared errors, the share routed to chains and a few
+     explained decisions with their bridges, writes DIR/error-by-route.png,
+     and names what to run next.
 
 Far-apart pairs are never observed in the same context, so their direct
 estimate has no support; chaining local conditionals through bridges recovers
@@ -37,12 +40,12 @@ them. Well-supported pairs are answered directly.`,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			out := cmd.OutOrStdout()
 			cfg.Log = out
-			cfg.Progress = cmd.ErrOrStderr()
-			if quiet {
-				cfg.Log, cfg.Progress = nil, nil
+			stderr := cmd.ErrOrStderr()
+			cfg.Progress = func(size int64) (func(graphidx.ProgressEvent), func()) {
+				return newBuildProgress(stderr, size, quiet) // as hopwise build
 			}
-			if cfg.Workers == 0 {
-				cfg.Workers = runtime.GOMAXPROCS(0)
+			if quiet {
+				cfg.Log = nil
 			}
 			rep, err := demo.Run(cmd.Context(), cfg)
 			if err != nil {

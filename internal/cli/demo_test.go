@@ -23,15 +23,15 @@ func TestDemoCommand(t *testing.T) {
 		t.Fatalf("demo: %v\n%s", err, errb.String())
 	}
 	s := out.String()
-	for _, want := range []string{"far-apart (held-out)", "well-supported", "Explained decisions:", "hopwise route --index " + filepath.Join(dir, "greenhouse.hwx"), "hopwise eval"} {
+	for _, want := range []string{"far-apart (held-out)", "well-supported", "Explained decisions:", "hopwise route --index " + filepath.Join(dir, "index.hwx"), "hopwise eval"} {
 		if !strings.Contains(s, want) {
 			t.Errorf("output lacks %q:\n%s", want, s)
 		}
 	}
-	if !strings.Contains(errb.String(), "index build:") {
+	if !strings.Contains(errb.String(), "build: ") {
 		t.Errorf("no progress lines on stderr: %q", errb.String())
 	}
-	for _, f := range []string{"corpus.jsonl", "greenhouse.hwx", "decisions.otlp.jsonl", "error-by-route.png"} {
+	for _, f := range []string{"corpus.jsonl", "index.hwx", "decisions.otlp.jsonl", "error-by-route.png"} {
 		if _, err := os.Stat(filepath.Join(dir, f)); err != nil {
 			t.Error(err)
 		}

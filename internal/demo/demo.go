@@ -1,7 +1,6 @@
 package demo
 
 import (
-	"bufio"
 	"context"
 	"errors"
 	"fmt"
@@ -11,10 +10,12 @@ import (
 	"time"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/internal/eval"
 	"github.com/hopwise/hopwise/internal/world"
 	"github.com/hopwise/hopwise/otelx"
 	"github.com/hopwise/hopwise/otelx/otlpfile"
 	"github.com/hopwise/hopwise/router"
+	"github.com/hopwise/hopwise/scorer"
 	"go.opentelemetry.io/otel/attribute"
 	"go.opentelemetry.io/otel/metric/noop"
 	"go.opentelemetry.io/otel/sdk/resource"
@@ -30,16 +31,24 @@ const (
 	MaxContexts = 50_000_000
 )
 
-// File names written into Config.Dir.
+// File names in Config.Dir. The corpus, index, queries and truth files are
+// written by the eval harness (internal/eval) under its own names.
 const (
-	CorpusFile = "corpus.jsonl"
-	IndexFile  = "greenhouse.hwx"
-	TraceFile  = "decisions.otlp.jsonl"
-	PlotFile   = "error-by-route.png"
+	CorpusFile  = "corpus.jsonl"
+	IndexFile   = "index.hwx"
+	QueriesFile = "queries.jsonl"
+	TruthFile   = "truth.jsonl"
+	TraceFile   = "decisions.otlp.jsonl"
+	PlotFile    = "error-by-route.png"
 )
 
 // ErrBadConfig wraps an out-of-range Config field.
 var ErrBadConfig = errors.New("demo: bad configuration")
+
+// ProgressFunc starts a progress display for a build over a corpus of
+// corpusBytes bytes and returns the graphidx.WithProgress callback and a
+// function that ends the display.
+type ProgressFunc func(corpusBytes int64) (event func(graphidx.ProgressEvent), done func())
 
 // Config configures Run. The zero value runs the default demo in
 // ./hopwise-demo.
@@ -47,15 +56,15 @@ type Config struct {
 	Dir      string // output directory (created); default DefaultDir
 	Seed     int64  // world, corpus and exploration seed; 0 means DefaultSeed
 	Contexts int    // contexts to sample; 0 means DefaultContexts
-	Workers  int    // builder goroutines; 0 means GOMAXPROCS
-	// Progress receives the index-build progress (a bar on a terminal,
-	// plain lines otherwise); nil builds silently.
-	Progress io.Writer
+	Workers  int    // goroutines answering the eval queries; 0 means GOMAXPROCS
+	// Progress, when set, displays the index build.
+	Progress ProgressFunc
 	// Log receives one line per stage; nil is silent.
 	Log io.Writer
 	// Examples is the number of explained decisions (default 4, at most 10).
 	Examples int
-	// RouterOptions are applied over the router defaults.
+	// RouterOptions are applied after the eval harness's model options
+	// (bounds, thresholds; not WithAlpha/WithBeta).
 	RouterOptions []router.Option
 }
 
@@ -86,29 +95,34 @@ func (c Config) withDefaults() (Config, error) {
 
 // Files are the paths Run wrote.
 type Files struct {
-	Corpus, Index, Trace, Plot string
+	Corpus, Index, Queries, Truth, Trace, Plot string
 }
 
 // Timings are the wall times of Run's stages.
 type Timings struct {
-	Sample, Build, Route, Total time.Duration
+	Prepare time.Duration // sample the corpus and build the index
+	Measure time.Duration // answer every query with every estimator
+	Route   time.Duration // the traced routing pass
+	Total   time.Duration
 }
 
 // Report is the result of Run.
 type Report struct {
 	Seed     int64
 	Contexts int
-	Entities int
-	Build    graphidx.BuildSummary
-	// HeldOut and Supported are the two query sets of the table.
-	HeldOut, Supported Row
+	// Eval is the eval harness's report on the greenhouse world: the MSE of
+	// every estimator on held-out and supported queries.
+	Eval eval.Report
+	// HeldOut and Supported summarise the traced routing pass.
+	HeldOut, Supported Traced
 	// Explained are a few decisions with their bridges and exact truth.
 	Explained []Explained
 	Files     Files
 	Timings   Timings
 }
 
-// Run executes the demo: sample, build, route with tracing, measure, plot.
+// Run executes the demo: sample, build, measure against exact truth, route
+// again with tracing, explain, plot.
 func Run(ctx context.Context, cfg Config) (*Report, error) {
 	cfg, err := cfg.withDefaults()
 	if err != nil {
@@ -120,155 +134,121 @@ func Run(ctx context.Context, cfg Config) (*Report, error) {
 			fmt.Fprintf(cfg.Log, format+"\n", a...)
 		}
 	}
-	if err := os.MkdirAll(cfg.Dir, 0o755); err != nil {
-		return nil, fmt.Errorf("demo: %w", err)
-	}
 	rep := &Report{Seed: cfg.Seed, Contexts: cfg.Contexts}
 	rep.Files = Files{
-		Corpus: filepath.Join(cfg.Dir, CorpusFile),
-		Index:  filepath.Join(cfg.Dir, IndexFile),
-		Trace:  filepath.Join(cfg.Dir, TraceFile),
-		Plot:   filepath.Join(cfg.Dir, PlotFile),
+		Corpus:  filepath.Join(cfg.Dir, CorpusFile),
+		Index:   filepath.Join(cfg.Dir, IndexFile),
+		Queries: filepath.Join(cfg.Dir, QueriesFile),
+		Truth:   filepath.Join(cfg.Dir, TruthFile),
+		Trace:   filepath.Join(cfg.Dir, TraceFile),
+		Plot:    filepath.Join(cfg.Dir, PlotFile),
 	}
-
 	w, err := world.Greenhouse(cfg.Seed)
 	if err != nil {
 		return nil, fmt.Errorf("demo: greenhouse world: %w", err)
 	}
-	rep.Entities = w.NumVars()
 
-	// 1. Corpus.
+	// 1–2. Corpus and index, by the eval harness (real builder).
+	logf("sampling %d local contexts of the %d-entity greenhouse and building the index in %s ...", cfg.Contexts, w.NumVars(), cfg.Dir)
+	var done func()
+	ecfg := eval.Config{Network: w, Seed: cfg.Seed, Contexts: cfg.Contexts, Dir: cfg.Dir, Workers: cfg.Workers, RouterOptions: cfg.RouterOptions}
+	if cfg.Progress != nil {
+		var event func(graphidx.ProgressEvent)
+		ecfg.BuildOptions = []graphidx.BuildOption{graphidx.WithProgress(func(ev graphidx.ProgressEvent) {
+			if event == nil { // first event: the corpus is complete
+				var size int64 = -1
+				if st, err := os.Stat(rep.Files.Corpus); err == nil {
+					size = st.Size()
+				}
+				event, done = cfg.Progress(size)
+			}
+			if event != nil {
+				event(ev)
+			}
+		})}
+	}
 	t0 := time.Now()
-	size, err := writeCorpus(ctx, w, rep.Files.Corpus, cfg.Contexts, cfg.Seed)
-	if err != nil {
-		return nil, err
+	bench, err := eval.Prepare(ctx, ecfg)
+	if done != nil {
+		done()
 	}
-	rep.Timings.Sample = time.Since(t0)
-	logf("corpus: %d local contexts of %d greenhouse entities, %.1f MB, %s (%.1fs)",
-		cfg.Contexts, w.NumVars(), float64(size)/1e6, rep.Files.Corpus, rep.Timings.Sample.Seconds())
-
-	// 2. Index.
-	t0 = time.Now()
-	rep.Build, err = buildIndex(ctx, rep.Files.Corpus, rep.Files.Index, size, cfg)
-	if err != nil {
-		return nil, err
-	}
-	rep.Timings.Build = time.Since(t0)
-	logf("index: %d entities, %d pairs, %.1f MB, %s (%.1fs)", rep.Build.Entities, rep.Build.Pairs.After,
-		float64(rep.Build.BytesWritten)/1e6, rep.Files.Index, rep.Timings.Build.Seconds())
-
-	// 3. Route with tracing.
-	t0 = time.Now()
-	idx, err := graphidx.Open(rep.Files.Index)
 	if err != nil {
 		return nil, fmt.Errorf("demo: %w", err)
 	}
-	r, err := router.New(idx, cfg.RouterOptions...)
+	defer bench.Close()
+	rep.Timings.Prepare = time.Since(t0)
+	logf("index: %d entities, %d pairs from %d contexts (%.1fs)", bench.Index.NumEntities(), bench.Index.NumPairs(),
+		bench.Index.NumContexts(), rep.Timings.Prepare.Seconds())
+
+	// 3. Accuracy against exact truth, by the eval harness.
+	t0 = time.Now()
+	rep.Eval, err = bench.Answer(ctx, nil, cfg.RouterOptions...)
 	if err != nil {
-		idx.Close()
 		return nil, fmt.Errorf("demo: %w", err)
 	}
-	defer r.Close()                // closes idx
-	_ = os.Remove(rep.Files.Trace) // the exporter appends; start fresh
-	tp, inst, err := newTracing(ctx, rep.Files.Trace)
-	if err != nil {
+	rep.Timings.Measure = time.Since(t0)
+	logf("measured %d queries against exact truth (%.1fs)", rep.Eval.HeldOut.N+rep.Eval.Supported.N, rep.Timings.Measure.Seconds())
+
+	// 4. The same queries through an instrumented router, traced to a file.
+	t0 = time.Now()
+	if err := tracedPass(ctx, cfg, w, rep); err != nil {
 		return nil, err
 	}
-	res, evalErr := evaluate(ctx, w, r, inst, cfg.Examples)
-	shutCtx, cancel := context.WithTimeout(context.WithoutCancel(ctx), 10*time.Second)
-	defer cancel()
-	if err := tp.Shutdown(shutCtx); err != nil && evalErr == nil {
-		evalErr = fmt.Errorf("demo: flushing traces to %s: %w", rep.Files.Trace, err)
-	}
-	if evalErr != nil {
-		return nil, evalErr
-	}
-	rep.HeldOut, rep.Supported, rep.Explained = res.heldOut, res.supported, res.explained
 	rep.Timings.Route = time.Since(t0)
-	logf("routing: %d queries traced to %s (%.1fs)", rep.HeldOut.Queries+rep.Supported.Queries,
-		rep.Files.Trace, rep.Timings.Route.Seconds())
+	logf("routed %d queries with tracing to %s (%.1fs)", rep.HeldOut.Queries+rep.Supported.Queries, rep.Files.Trace, rep.Timings.Route.Seconds())
 
-	// 4. Plot.
-	if err := writePlot(rep.Files.Plot, rep); err != nil {
-		return nil, err
+	// 5. Plot (the harness's plot of one world).
+	if err := eval.Summarize([]eval.Report{rep.Eval}).WritePlot(rep.Files.Plot); err != nil {
+		return nil, fmt.Errorf("demo: %w", err)
 	}
 	rep.Timings.Total = time.Since(start)
 	return rep, nil
 }
 
-// writeCorpus samples n local contexts (DESIGN.md §7, local-geometric) and
-// writes them as JSONL through a temporary file, returning the file size.
-func writeCorpus(ctx context.Context, w *world.World, path string, n int, seed int64) (int64, error) {
-	cond, err := world.ConditionByName(world.CondLocalGeometric)
+// tracedPass opens the index in a router configured as the harness's, wraps
+// it in otelx instrumentation exporting to an OTLP JSON Lines file, and routes
+// every query again, keeping the decisions to explain.
+func tracedPass(ctx context.Context, cfg Config, w *world.World, rep *Report) (err error) {
+	idx, err := graphidx.Open(rep.Files.Index)
 	if err != nil {
-		return 0, fmt.Errorf("demo: %w", err)
+		return fmt.Errorf("demo: %w", err)
 	}
-	tmp := path + ".tmp"
-	f, err := os.Create(tmp)
+	model, err := scorer.NewBayes(scorer.WithBeta(rep.Eval.Beta))
 	if err != nil {
-		return 0, fmt.Errorf("demo: %w", err)
+		idx.Close()
+		return fmt.Errorf("demo: %w", err)
 	}
-	bw := bufio.NewWriterSize(f, 1<<20)
-	_, err = w.WriteCorpus(ctx, bw, n, cond, seed)
-	if err == nil {
-		err = bw.Flush()
-	}
-	if err == nil {
-		err = f.Close()
-	} else {
-		f.Close()
-	}
-	if err == nil {
-		err = os.Rename(tmp, path)
-	}
+	r, err := router.New(idx, append([]router.Option{router.WithModel(model)}, cfg.RouterOptions...)...)
 	if err != nil {
-		os.Remove(tmp)
-		return 0, fmt.Errorf("demo: writing corpus %s: %w", path, err)
+		idx.Close()
+		return fmt.Errorf("demo: %w", err)
 	}
-	st, err := os.Stat(path)
-	if err != nil {
-		return 0, fmt.Errorf("demo: %w", err)
-	}
-	return st.Size(), nil
-}
+	defer r.Close() // closes idx
 
-func buildIndex(ctx context.Context, corpus, out string, size int64, cfg Config) (graphidx.BuildSummary, error) {
-	rd, closer, err := graphidx.OpenCorpus(corpus, graphidx.FormatJSONL, "")
+	_ = os.Remove(rep.Files.Trace) // the exporter appends; start fresh
+	exp, err := otlpfile.NewExporter(ctx, rep.Files.Trace)
 	if err != nil {
-		return graphidx.BuildSummary{}, fmt.Errorf("demo: %w", err)
-	}
-	defer closer.Close()
-	prog := NewBuildProgress(cfg.Progress, size)
-	opts := []graphidx.BuildOption{graphidx.WithProgress(prog.Event)}
-	if cfg.Workers > 0 {
-		opts = append(opts, graphidx.WithWorkers(cfg.Workers))
-	}
-	sum, err := graphidx.Build(ctx, rd, out, opts...)
-	prog.Finish()
-	if err != nil {
-		return sum, fmt.Errorf("demo: building %s from %s: %w", out, corpus, err)
-	}
-	if n := sum.Read.SkippedTotal(); n > 0 {
-		return sum, fmt.Errorf("demo: the builder skipped %d lines of the generated corpus %s", n, corpus)
-	}
-	return sum, nil
-}
-
-// newTracing returns a tracer provider exporting to an OTLP JSON Lines file and
-// the decision instrumentation on it. The caller shuts the provider down.
-func newTracing(ctx context.Context, path string) (*sdktrace.TracerProvider, *otelx.Instrumentation, error) {
-	exp, err := otlpfile.NewExporter(ctx, path)
-	if err != nil {
-		return nil, nil, fmt.Errorf("demo: trace file %s: %w", path, err)
+		return fmt.Errorf("demo: trace file %s: %w", rep.Files.Trace, err)
 	}
 	tp := sdktrace.NewTracerProvider(
 		sdktrace.WithBatcher(exp),
 		sdktrace.WithResource(resource.NewSchemaless(attribute.String("service.name", "hopwise-demo"))),
 	)
+	defer func() {
+		sctx, cancel := context.WithTimeout(context.WithoutCancel(ctx), 10*time.Second)
+		defer cancel()
+		if e := tp.Shutdown(sctx); e != nil && err == nil {
+			err = fmt.Errorf("demo: flushing traces to %s: %w", rep.Files.Trace, e)
+		}
+	}()
 	inst, err := otelx.New(otelx.WithTracerProvider(tp), otelx.WithMeterProvider(noop.NewMeterProvider()))
 	if err != nil {
-		_ = tp.Shutdown(ctx)
-		return nil, nil, fmt.Errorf("demo: %w", err)
+		return fmt.Errorf("demo: %w", err)
 	}
-	return tp, inst, nil
+	res, err := route(ctx, w, r, inst, cfg.Examples)
+	if err != nil {
+		return err
+	}
+	rep.HeldOut, rep.Supported, rep.Explained = res.heldOut, res.supported, res.explained
+	return nil
 }

@@ -10,6 +10,8 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/internal/eval"
 	"github.com/hopwise/hopwise/otelx"
 )
 
@@ -21,9 +23,19 @@ func TestRunSmall(t *testing.T) {
 	t.Parallel()
 	dir := t.TempDir()
 	var log bytes.Buffer
-	rep, err := Run(context.Background(), Config{Dir: dir, Seed: 3, Contexts: 20_000, Progress: &log, Log: &log})
+	events := 0
+	progress := func(size int64) (func(graphidx.ProgressEvent), func()) {
+		if size <= 0 {
+			t.Errorf("progress started with corpus size %d", size)
+		}
+		return func(graphidx.ProgressEvent) { events++ }, func() {}
+	}
+	rep, err := Run(context.Background(), Config{Dir: dir, Seed: 3, Contexts: 20_000, Progress: progress, Log: &log})
 	if err != nil {
 		t.Fatal(err)
+	}
+	if events == 0 {
+		t.Error("no build progress events")
 	}
 	var table bytes.Buffer
 	if err := rep.WriteTable(&table); err != nil {
@@ -34,29 +46,43 @@ func TestRunSmall(t *testing.T) {
 	}
 	t.Logf("\n%s%s", log.String(), table.String())
 
-	h, s := rep.HeldOut, rep.Supported
-	if h.Queries == 0 || s.Queries == 0 {
+	h, s := rep.Eval.HeldOut, rep.Eval.Supported
+	if h.N == 0 || s.N == 0 {
 		t.Fatalf("empty query sets: %+v %+v", h, s)
 	}
 	// The point of the product: on pairs never seen together, chaining
-	// beats answering directly, and the router captures most of that.
-	if !(h.Chained < h.Direct) {
-		t.Errorf("held-out: chained MSE %.5f not below direct %.5f", h.Chained, h.Direct)
+	// beats answering directly, and the router captures that.
+	if !(h.Chain < h.Direct) {
+		t.Errorf("held-out: chained MSE %.5f not below direct %.5f", h.Chain, h.Direct)
 	}
 	if !(h.Routed < h.Direct) {
 		t.Errorf("held-out: routed MSE %.5f not below direct %.5f", h.Routed, h.Direct)
 	}
-	if h.ChainShare() < 0.5 {
-		t.Errorf("held-out: only %.0f%% routed to a chain", 100*h.ChainShare())
-	}
-	// Held-out pairs never co-occur (world package contract).
-	if h.MeanSupport != 0 {
-		t.Errorf("held-out mean support %.1f, want 0", h.MeanSupport)
+	if h.ChainShare < 0.5 {
+		t.Errorf("held-out: only %.0f%% routed to a chain", 100*h.ChainShare)
 	}
 	// On supported pairs the router must mostly keep the direct answer:
 	// always chaining there is far worse than routing.
-	if !(s.Routed < s.Chained/4) || s.ChainShare() > 0.25 {
-		t.Errorf("supported: routed MSE %.6f vs chained %.6f, %.0f%% chained", s.Routed, s.Chained, 100*s.ChainShare())
+	if !(s.Routed < s.Chain/4) || s.ChainShare > 0.25 {
+		t.Errorf("supported: routed MSE %.6f vs chained %.6f, %.0f%% chained", s.Routed, s.Chain, 100*s.ChainShare)
+	}
+	// The traced pass routes the harness's queries with the same router
+	// settings, so its counts must agree with the harness's.
+	for _, c := range []struct {
+		name string
+		sc   eval.Scores
+		tr   Traced
+	}{{"held-out", h, rep.HeldOut}, {"supported", s, rep.Supported}} {
+		if c.tr.Queries != c.sc.N {
+			t.Errorf("%s: traced %d queries, eval %d", c.name, c.tr.Queries, c.sc.N)
+		}
+		if math.Abs(c.tr.ChainShare()-c.sc.ChainShare) > 1e-9 {
+			t.Errorf("%s: traced chain share %.4f, eval %.4f", c.name, c.tr.ChainShare(), c.sc.ChainShare)
+		}
+	}
+	// Held-out pairs never co-occur (world package contract).
+	if rep.HeldOut.MeanSupport != 0 {
+		t.Errorf("held-out mean support %.1f, want 0", rep.HeldOut.MeanSupport)
 	}
 	if len(rep.Explained) == 0 {
 		t.Error("no explained decisions")
@@ -67,7 +93,7 @@ func TestRunSmall(t *testing.T) {
 			t.Errorf("output lacks %q", want)
 		}
 	}
-	for _, p := range []string{rep.Files.Corpus, rep.Files.Index, rep.Files.Trace, rep.Files.Plot} {
+	for _, p := range []string{rep.Files.Corpus, rep.Files.Index, rep.Files.Queries, rep.Files.Truth, rep.Files.Trace, rep.Files.Plot} {
 		st, err := os.Stat(p)
 		if err != nil || st.Size() == 0 {
 			t.Errorf("file %s missing or empty: %v", p, err)
@@ -84,7 +110,7 @@ func TestRunSmall(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if got, want := len(lg.Decisions), h.Queries+s.Queries; got != want {
+	if got, want := len(lg.Decisions), rep.HeldOut.Queries+rep.Supported.Queries; got != want {
 		t.Errorf("trace has %d decisions, want %d", got, want)
 	}
 	chains := 0
@@ -93,7 +119,7 @@ func TestRunSmall(t *testing.T) {
 			chains++
 		}
 	}
-	if want := h.RoutedChain + s.RoutedChain; chains != want {
+	if want := rep.HeldOut.RoutedChain + rep.Supported.RoutedChain; chains != want {
 		t.Errorf("trace has %d chain decisions, table %d", chains, want)
 	}
 }
@@ -104,24 +130,6 @@ func TestConfigErrors(t *testing.T) {
 		c.Dir = t.TempDir()
 		if _, err := Run(context.Background(), c); !errors.Is(err, ErrBadConfig) {
 			t.Errorf("%+v: err %v, want ErrBadConfig", c, err)
-		}
-	}
-}
-
-// TestSqErr checks the error measure on hand-computed cases.
-func TestSqErr(t *testing.T) {
-	t.Parallel()
-	for _, c := range []struct {
-		est, truth []float64
-		want       float64
-	}{
-		{[]float64{0.5, 0.5}, []float64{0.5, 0.5}, 0},
-		{[]float64{0.2, 0.8}, []float64{0.5, 0.5}, 0.09},    // (0.3² + 0.3²)/2
-		{nil, []float64{0.9, 0.1}, 0.16},                    // uniform: (0.4² + 0.4²)/2
-		{[]float64{1, 0, 0}, []float64{0, 1, 0}, 2.0 / 3.0}, // (1 + 1 + 0)/3
-	} {
-		if got := sqErr(c.est, c.truth); math.Abs(got-c.want) > 1e-12 {
-			t.Errorf("sqErr(%v, %v) = %v, want %v", c.est, c.truth, got, c.want)
 		}
 	}
 }

@@ -3,34 +3,55 @@ package demo
 import (
 	"fmt"
 	"io"
+	"math"
 	"strings"
 	"text/tabwriter"
+
+	"github.com/hopwise/hopwise/internal/eval"
 )
+
+// num formats an MSE: five decimals, or scientific below 1e-3.
+func num(x float64) string {
+	if math.IsNaN(x) {
+		return "-"
+	}
+	if x != 0 && math.Abs(x) < 1e-3 {
+		return fmt.Sprintf("%.1e", x)
+	}
+	return fmt.Sprintf("%.5f", x)
+}
 
 // WriteTable prints the accuracy table, the share routed to chains and the
 // explained decisions.
 func (r *Report) WriteTable(out io.Writer) error {
 	var b strings.Builder
-	fmt.Fprintf(&b, "Mean squared error vs the exact answer (greenhouse seed %d, %d contexts):\n\n", r.Seed, r.Contexts)
+	e := r.Eval
+	fmt.Fprintf(&b, "Mean squared error vs the exact answer (greenhouse seed %d, %d contexts, %d entities):\n\n", r.Seed, e.Contexts, e.Entities)
 	tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintln(tw, "query set\tpairs\tqueries\tdirect\tchained\trouted\trouted to chain\tmean support\t")
-	for _, row := range []Row{r.HeldOut, r.Supported} {
-		fmt.Fprintf(tw, "%s\t%d\t%d\t%.5f\t%.5f\t%.5f\t%.1f%%\t%.0f\t\n", row.Set, row.Pairs, row.Queries,
-			row.Direct, row.Chained, row.Routed, 100*row.ChainShare(), row.MeanSupport)
+	fmt.Fprintln(tw, "query set\tpairs\tqueries\tdirect\tchained\trouted\tideal*\trouted to chain\tmean support\t")
+	for _, row := range []struct {
+		name  string
+		pairs int
+		s     eval.Scores
+		t     Traced
+	}{{r.HeldOut.Set, e.HeldOutPairs, e.HeldOut, r.HeldOut}, {r.Supported.Set, e.SupportedPairs, e.Supported, r.Supported}} {
+		fmt.Fprintf(tw, "%s\t%d\t%d\t%s\t%s\t%s\t%s\t%.1f%%\t%.0f\t\n", row.name, row.pairs, row.s.N,
+			num(row.s.Direct), num(row.s.Chain), num(row.s.Routed), num(row.s.Ideal), 100*row.s.ChainShare, row.t.MeanSupport)
 	}
 	if err := tw.Flush(); err != nil {
 		return err
 	}
-	total := r.HeldOut.Queries + r.Supported.Queries
-	chained := r.HeldOut.RoutedChain + r.Supported.RoutedChain
+	b.WriteString("\n* ideal: chained through the true separator path of the network, a yardstick the router cannot see.\n")
+	total := e.HeldOut.N + e.Supported.N
+	chained := e.HeldOut.ChainShare*float64(e.HeldOut.N) + e.Supported.ChainShare*float64(e.Supported.N)
 	if total > 0 {
-		fmt.Fprintf(&b, "\nRouted to a chain: %d of %d queries (%.1f%%).", chained, total, 100*float64(chained)/float64(total))
+		fmt.Fprintf(&b, "Routed to a chain: %.0f of %d queries (%.1f%%).", chained, total, 100*chained/float64(total))
 	}
-	if r.HeldOut.Direct > 0 {
-		fmt.Fprintf(&b, " On far-apart pairs routing cuts the error %.1f×.", r.HeldOut.Direct/max(r.HeldOut.Routed, 1e-12))
+	if e.HeldOut.Routed > 0 {
+		fmt.Fprintf(&b, " On far-apart pairs routing cuts the direct error %.1f×.", e.HeldOut.Direct/e.HeldOut.Routed)
 	}
-	if s := r.HeldOut.Skipped + r.Supported.Skipped; s > 0 {
-		fmt.Fprintf(&b, " (%d queries with impossible evidence skipped.)", s)
+	if s := e.HeldOut.Skipped + e.Supported.Skipped; s > 0 {
+		fmt.Fprintf(&b, " (%d queries without an exact answer or unseen value skipped.)", s)
 	}
 	b.WriteString("\n")
 	if len(r.Explained) > 0 {
@@ -59,16 +80,16 @@ func (r *Report) WriteTable(out io.Writer) error {
 // WriteFiles prints the files written and the commands to run next.
 func (r *Report) WriteFiles(out io.Writer) error {
 	var b strings.Builder
-	fmt.Fprintf(&b, "Wrote:\n  corpus (JSONL contexts)   %s\n  locality index            %s\n  decision traces (OTLP)    %s\n  error by route (PNG)      %s\n",
-		r.Files.Corpus, r.Files.Index, r.Files.Trace, r.Files.Plot)
-	fmt.Fprintf(&b, "Timings: sample %.1fs, build %.1fs, route %.1fs, total %.1fs\n",
-		r.Timings.Sample.Seconds(), r.Timings.Build.Seconds(), r.Timings.Route.Seconds(), r.Timings.Total.Seconds())
+	fmt.Fprintf(&b, "Wrote:\n  corpus (JSONL contexts)   %s\n  locality index            %s\n  queries and exact truth   %s, %s\n  decision traces (OTLP)    %s\n  error by route (PNG)      %s\n",
+		r.Files.Corpus, r.Files.Index, r.Files.Queries, r.Files.Truth, r.Files.Trace, r.Files.Plot)
+	fmt.Fprintf(&b, "Timings: corpus+index %.1fs, measure %.1fs, traced routing %.1fs, total %.1fs\n",
+		r.Timings.Prepare.Seconds(), r.Timings.Measure.Seconds(), r.Timings.Route.Seconds(), r.Timings.Total.Seconds())
 	from, value, to := "zone-1/vent-a", "open", "bed-18/yield"
 	if len(r.Explained) > 0 {
 		from, value, to = r.Explained[0].From, r.Explained[0].Value, r.Explained[0].To
 	}
-	fmt.Fprintf(&b, "\nNext:\n  hopwise inspect --index %s\n  hopwise inspect --index %s --entity %s\n  hopwise route --index %s --from %s --value %s --to %s\n  hopwise eval\n",
-		r.Files.Index, r.Files.Index, to, r.Files.Index, from, value, to)
+	fmt.Fprintf(&b, "\nNext:\n  hopwise inspect --index %s --entity %s\n  hopwise route --index %s --from %s --value %s --to %s\n  hopwise route --index %s --queries %s\n  hopwise eval\n",
+		r.Files.Index, to, r.Files.Index, from, value, to, r.Files.Index, r.Files.Queries)
 	_, err := io.WriteString(out, b.String())
 	return err
 }

@@ -1,0 +1,203 @@
+package demo
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"sort"
+
+	"github.com/hopwise/hopwise/internal/world"
+	"github.com/hopwise/hopwise/otelx"
+	"github.com/hopwise/hopwise/router"
+)
+
+// Traced summarises the traced routing pass over one query set.
+type Traced struct {
+	Set     string // "far-apart (held-out)" or "well-supported"
+	Queries int    // (from, value, to) queries routed and traced
+	// Skipped counts queries without an exact answer (evidence of
+	// probability zero) or whose observed value never occurs in the corpus.
+	Skipped     int
+	WithChain   int     // queries for which the router found a chain
+	RoutedChain int     // decisions whose mode is chain
+	MeanSupport float64 // mean support of the direct pair
+}
+
+// ChainShare is the share of the set's queries routed to a chain.
+func (t Traced) ChainShare() float64 {
+	if t.Queries == 0 {
+		return 0
+	}
+	return float64(t.RoutedChain) / float64(t.Queries)
+}
+
+// Explained is one decision shown with its reason, bridges and exact truth.
+type Explained struct {
+	Set             string
+	From, Value, To string
+	Mode            string
+	Reason          string
+	Bridges         []string // the chosen chain, or the best chain not taken
+	Support         uint64   // direct pair support
+	ChainMinSupport uint64
+	Gain            float64
+	TargetValue     string  // the value whose probability is shown
+	Truth, Direct   float64 // P(To = TargetValue | From = Value)
+	Chained         float64 // equals Direct without a chain
+}
+
+type routeResult struct {
+	heldOut, supported Traced
+	explained          []Explained
+}
+
+type routed struct {
+	set             int // 0 held-out, 1 supported
+	from, to, value int
+	d               router.Decision
+	truth           []float64
+}
+
+// route decides both directions and every value of each held-out and each
+// supported pair (the eval harness's query set) through the instrumented
+// router, with unit keys so the traces can be joined to outcomes.
+func route(ctx context.Context, w *world.World, r *router.Router, inst *otelx.Instrumentation, nExplain int) (routeResult, error) {
+	sets := [2][][2]int{w.HeldOut(), w.Supported()}
+	rows := [2]Traced{{Set: "far-apart (held-out)"}, {Set: "well-supported"}}
+	var all []routed
+	n := 0
+	for si, pairs := range sets {
+		row := &rows[si]
+		var sumSup float64
+		for _, p := range pairs {
+			for _, dir := range [2][2]int{{p[0], p[1]}, {p[1], p[0]}} {
+				from, to := dir[0], dir[1]
+				for u := range w.Card(from) {
+					n++
+					truth, err := w.TrueConditional(from, u, to)
+					if errors.Is(err, world.ErrImpossibleEvidence) {
+						row.Skipped++
+						continue
+					}
+					if err != nil {
+						return routeResult{}, fmt.Errorf("demo: exact P(%s | %s): %w", w.Name(to), w.Name(from), err)
+					}
+					q := router.Query{From: w.Name(from), Value: w.Labels(from)[u], To: w.Name(to), Key: fmt.Sprintf("demo-q%04d", n)}
+					d, err := inst.Decide(ctx, r, q)
+					if errors.Is(err, router.ErrUnknownValue) {
+						row.Skipped++
+						continue
+					}
+					if err != nil {
+						return routeResult{}, fmt.Errorf("demo: routing %s=%s → %s: %w", q.From, q.Value, q.To, err)
+					}
+					if len(d.Values) != len(truth) {
+						return routeResult{}, fmt.Errorf("demo: index has %d values of %s, the world %d", len(d.Values), q.To, len(truth))
+					}
+					for i, l := range d.Values {
+						if l != w.Labels(to)[i] {
+							return routeResult{}, fmt.Errorf("demo: index values %v of %s differ from the world's %v", d.Values, q.To, w.Labels(to))
+						}
+					}
+					row.Queries++
+					if d.Chain != nil {
+						row.WithChain++
+					}
+					if d.Mode == router.ModeChain {
+						row.RoutedChain++
+					}
+					sumSup += float64(d.Direct.Support)
+					all = append(all, routed{set: si, from: from, to: to, value: u, d: d, truth: truth})
+				}
+			}
+		}
+		if row.Queries > 0 {
+			row.MeanSupport = sumSup / float64(row.Queries)
+		}
+	}
+	return routeResult{heldOut: rows[0], supported: rows[1], explained: pickExplained(w, all, rows, nExplain)}, nil
+}
+
+// pickExplained chooses n decisions that show the job: far-apart queries the
+// router chained with the largest error reduction (distinct pairs), the
+// far-apart query it answered directly with the smallest gain (if any), and
+// the best-supported query it answered directly.
+func pickExplained(w *world.World, all []routed, rows [2]Traced, n int) []Explained {
+	var out []Explained
+	seen := map[[2]int]bool{}
+	add := func(q routed) {
+		key := [2]int{min(q.from, q.to), max(q.from, q.to)}
+		if seen[key] || len(out) >= n {
+			return
+		}
+		seen[key] = true
+		out = append(out, explain(w, q, rows[q.set].Set))
+	}
+	var held, sup []routed
+	for _, q := range all {
+		if q.set == 0 {
+			held = append(held, q)
+		} else {
+			sup = append(sup, q)
+		}
+	}
+	sort.SliceStable(held, func(i, j int) bool { return held[i].d.Gain > held[j].d.Gain })
+	sort.SliceStable(sup, func(i, j int) bool { return sup[i].d.Direct.Support > sup[j].d.Direct.Support })
+	nChain := max(n-2, 1)
+	for _, q := range held {
+		if len(out) >= nChain {
+			break
+		}
+		if q.d.Mode == router.ModeChain {
+			add(q)
+		}
+	}
+	for i := len(held) - 1; i >= 0; i-- {
+		if held[i].d.Mode == router.ModeDirect {
+			add(held[i])
+			break
+		}
+	}
+	for _, q := range sup {
+		if q.d.Mode == router.ModeDirect {
+			add(q)
+			break
+		}
+	}
+	for _, q := range held { // fill up when a kind was missing
+		add(q)
+	}
+	return out
+}
+
+func explain(w *world.World, q routed, set string) Explained {
+	// Show the probability of the value the truth favours.
+	v := 0
+	for i, p := range q.truth {
+		if p > q.truth[v] {
+			v = i
+		}
+	}
+	e := Explained{
+		Set: set, From: w.Name(q.from), Value: w.Labels(q.from)[q.value], To: w.Name(q.to),
+		Mode: q.d.Mode.String(), Reason: q.d.Reason.Code, Bridges: q.d.Bridges,
+		Support: q.d.Direct.Support, Gain: q.d.Gain, TargetValue: w.Labels(q.to)[v],
+		Truth: q.truth[v], Direct: at(q.d.Direct.Estimate, v),
+	}
+	e.Chained = e.Direct
+	if q.d.Chain != nil {
+		e.Chained = at(q.d.Chain.Estimate, v)
+		e.ChainMinSupport = q.d.Chain.MinSupport
+		if e.Bridges == nil {
+			e.Bridges = q.d.Chain.Bridges
+		}
+	}
+	return e
+}
+
+func at(s []float64, i int) float64 {
+	if i < len(s) {
+		return s[i]
+	}
+	return 0
+}
