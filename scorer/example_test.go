@@ -71,7 +71,9 @@ func ExampleBayes_Chain() {
 }
 
 func ExampleCombine() {
-	m, err := scorer.NewBayes()
+	// A small β pinned here keeps the variance reduction visible; the fitted
+	// DefaultBeta would dominate both errors.
+	m, err := scorer.NewBayes(scorer.WithBeta(0.001))
 	if err != nil {
 		panic(err)
 	}
