@@ -435,7 +435,9 @@ func clampInt64(u uint64) int64 {
 // RecordOutcome reports what the gateway observed for decision d: a span
 // named SpanOutcome carrying the unit key (the join key with the decision
 // span), the outcome, and the decision's mode and arm, plus the outcome
-// score histogram. It returns ErrNoKey when d has no unit key and
+// score histogram. Pass the request's context (the one given to Decide),
+// so that the outcome span joins the decision's trace and a trace sampler
+// keeps or drops the two together. It returns ErrNoKey when d has no unit key and
 // ErrBadOutcome for values outside their domain; nothing is recorded then.
 func (in *Instrumentation) RecordOutcome(ctx context.Context, d router.Decision, o Outcome) error {
 	if d.Key == "" {

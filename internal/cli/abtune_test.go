@@ -1,0 +1,445 @@
+package cli
+
+import (
+	"bytes"
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"strings"
+	"sync"
+	"testing"
+	"time"
+
+	sdktrace "go.opentelemetry.io/otel/sdk/trace"
+	"go.opentelemetry.io/otel/trace"
+
+	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/internal/eval"
+	"github.com/hopwise/hopwise/internal/ope"
+	"github.com/hopwise/hopwise/internal/world"
+	"github.com/hopwise/hopwise/otelx"
+	"github.com/hopwise/hopwise/otelx/otlpfile"
+	"github.com/hopwise/hopwise/router"
+)
+
+// e2eQuery is one query of the traffic pool with its exact answer.
+type e2eQuery struct {
+	q     router.Query
+	truth []float64
+	held  bool
+}
+
+// e2eWorld is a synthetic world (internal/world) with its index built by
+// the real builder (internal/eval.Prepare) and a query pool: every
+// held-out pair (never observed together) and as many supported pairs,
+// both directions, every value.
+type e2eWorld struct {
+	bench *eval.Bench
+	index string // path of the built index; each router opens its own copy
+	held  []e2eQuery
+	supp  []e2eQuery
+}
+
+// newRouter opens the index and starts a router on it; the router closes
+// the index when it is closed.
+func (e *e2eWorld) newRouter(t *testing.T, opts ...router.Option) *router.Router {
+	t.Helper()
+	ix, err := graphidx.Open(e.index)
+	if err != nil {
+		t.Fatal(err)
+	}
+	r, err := router.New(ix, opts...)
+	if err != nil {
+		ix.Close()
+		t.Fatal(err)
+	}
+	return r
+}
+
+func newE2EWorld(t *testing.T) *e2eWorld {
+	t.Helper()
+	start := time.Now()
+	dir := t.TempDir()
+	b, err := eval.Prepare(context.Background(), eval.Config{
+		Seed: 5, World: &world.Config{Vars: 60, Edges: 60, HeldOut: 20}, Contexts: 20000, Dir: dir,
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { b.Close() })
+	w := b.World
+	e := &e2eWorld{bench: b, index: filepath.Join(dir, "index.hwx")}
+	add := func(dst *[]e2eQuery, pairs [][2]int, held bool, limit int) {
+		for _, p := range pairs {
+			for _, d := range [][2]int{{p[0], p[1]}, {p[1], p[0]}} {
+				for u := range w.Card(d[0]) {
+					if limit > 0 && len(*dst) >= limit {
+						return
+					}
+					truth, err := w.TrueConditional(d[0], u, d[1])
+					if err != nil {
+						t.Fatal(err)
+					}
+					*dst = append(*dst, e2eQuery{
+						q:     router.Query{From: w.Name(d[0]), Value: w.Labels(d[0])[u], To: w.Name(d[1])},
+						truth: truth, held: held,
+					})
+				}
+			}
+		}
+	}
+	add(&e.held, w.HeldOut(), true, 0)
+	add(&e.supp, w.Supported(), false, len(e.held))
+	t.Logf("world: %d held-out and %d supported queries, prepared in %v", len(e.held), len(e.supp), time.Since(start).Round(time.Millisecond))
+	return e
+}
+
+// draw picks a query: held-out or supported with probability 1/2 each,
+// then uniformly within the set.
+func (e *e2eWorld) draw(r *rand.Rand) e2eQuery {
+	if r.IntN(2) == 0 {
+		return e.held[r.IntN(len(e.held))]
+	}
+	return e.supp[r.IntN(len(e.supp))]
+}
+
+// quality is the probability that an answer drawn from the estimate is
+// judged right: 1 − total variation distance to the truth.
+func quality(est, truth []float64) float64 {
+	if len(est) != len(truth) {
+		return 0
+	}
+	var tv float64
+	for i := range est {
+		tv += math.Abs(est[i] - truth[i])
+	}
+	return 1 - tv/2
+}
+
+func tokens(d router.Decision) (in, out int64) {
+	in, out = 300, 40
+	if d.Mode == router.ModeChain {
+		h := int64(len(d.Bridges))
+		in += 120 * h
+		out += 60 * h
+	}
+	return
+}
+
+// simulate runs n units of gateway traffic through the router and the otelx
+// instrumentation into an OTLP JSON Lines file, sampling traces at ratio,
+// and reports each outcome (a Bernoulli draw of the answer's quality).
+func (e *e2eWorld) simulate(t *testing.T, path string, n int, ratio float64, seed uint64, opts ...router.Option) {
+	t.Helper()
+	ctx := context.Background()
+	r := e.newRouter(t, opts...)
+	defer r.Close()
+	exp, err := otlpfile.NewExporter(ctx, path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	tp := sdktrace.NewTracerProvider(sdktrace.WithBatcher(exp),
+		sdktrace.WithSampler(sdktrace.TraceIDRatioBased(ratio)),
+		sdktrace.WithIDGenerator(&seededIDs{r: rand.New(rand.NewPCG(seed, 1))}))
+	in, err := otelx.New(otelx.WithTracerProvider(tp), otelx.WithSamplingRatio(ratio))
+	if err != nil {
+		t.Fatal(err)
+	}
+	gw := tp.Tracer("greenhouse-gateway")
+	rng := rand.New(rand.NewPCG(seed, 2))
+	for i := range n {
+		eq := e.draw(rng)
+		q := eq.q
+		q.Key = fmt.Sprintf("unit-%d-%06d", seed, i)
+		// One trace per gateway request holds the decision and the
+		// outcome, so the sampler keeps or drops them together.
+		rctx, req := gw.Start(ctx, "gateway.request")
+		d, err := in.Decide(rctx, r, q)
+		if err != nil {
+			t.Fatal(err)
+		}
+		score := 0.0
+		if rng.Float64() < quality(d.Estimate, eq.truth) {
+			score = 1
+		}
+		ti, to := tokens(d)
+		if err := in.RecordOutcome(rctx, d, otelx.Outcome{Score: score, InputTokens: ti, OutputTokens: to, Latency: time.Duration(50+rng.IntN(50)) * time.Millisecond}); err != nil {
+			t.Fatal(err)
+		}
+		req.End()
+	}
+	if err := tp.Shutdown(ctx); err != nil {
+		t.Fatal(err)
+	}
+}
+
+// trueValue is the exact expected score of the policy (τ, H) over the
+// traffic mixture, from the router's own estimates without arms or
+// exploration and the world's exact conditionals.
+type policyTruth struct {
+	direct, chain []float64 // quality of each answer, held then supp
+	score         []float64
+	hops          []int
+	hasChain      []bool
+	nHeld         int
+}
+
+func (e *e2eWorld) truth(t *testing.T) *policyTruth {
+	r := e.newRouter(t)
+	defer r.Close()
+	pt := &policyTruth{nHeld: len(e.held)}
+	for _, eq := range append(append([]e2eQuery(nil), e.held...), e.supp...) {
+		d, err := r.Decide(context.Background(), eq.q)
+		if err != nil {
+			t.Fatal(err)
+		}
+		pt.direct = append(pt.direct, quality(d.Direct.Estimate, eq.truth))
+		if d.Chain != nil {
+			pt.chain = append(pt.chain, quality(d.Chain.Estimate, eq.truth))
+			pt.hops = append(pt.hops, len(d.Chain.Bridges))
+		} else {
+			pt.chain = append(pt.chain, 0)
+			pt.hops = append(pt.hops, 0)
+		}
+		pt.hasChain = append(pt.hasChain, d.Chain != nil)
+		pt.score = append(pt.score, d.Score)
+	}
+	return pt
+}
+
+func (pt *policyTruth) value(tau float64, maxHops int) float64 {
+	var held, supp float64
+	for i := range pt.direct {
+		v := pt.direct[i]
+		if pt.hasChain[i] && pt.score[i] >= tau && pt.hops[i] <= maxHops {
+			v = pt.chain[i]
+		}
+		if i < pt.nHeld {
+			held += v
+		} else {
+			supp += v
+		}
+	}
+	return 0.5*held/float64(pt.nHeld) + 0.5*supp/float64(len(pt.direct)-pt.nHeld)
+}
+
+// seededIDs makes trace ids (and so the ratio sampler's choices)
+// reproducible.
+type seededIDs struct {
+	mu sync.Mutex
+	r  *rand.Rand
+}
+
+func (g *seededIDs) NewIDs(context.Context) (tid trace.TraceID, sid trace.SpanID) {
+	g.mu.Lock()
+	defer g.mu.Unlock()
+	for i := range tid {
+		tid[i] = byte(g.r.Uint32())
+	}
+	for i := range sid {
+		sid[i] = byte(g.r.Uint32())
+	}
+	return
+}
+
+func (g *seededIDs) NewSpanID(context.Context, trace.TraceID) (sid trace.SpanID) {
+	g.mu.Lock()
+	defer g.mu.Unlock()
+	for i := range sid {
+		sid[i] = byte(g.r.Uint32())
+	}
+	return
+}
+
+// The issue's end-to-end check: routed traffic with arms and exploration on
+// a synthetic world, traces written, tune recommends a threshold whose true
+// value is within 5% of the best on its grid, ab detects routed vs
+// direct-only and nothing in an A/A split.
+func TestEndToEndTuneAndAB(t *testing.T) {
+	if testing.Short() {
+		t.Skip("end-to-end world build")
+	}
+	t.Parallel()
+	e := newE2EWorld(t)
+	dir := t.TempDir()
+	traces := filepath.Join(dir, "traces.jsonl")
+	e.simulate(t, traces, 24000, 0.5, 1,
+		router.WithArms(router.ArmWeight{Arm: router.ArmRouted, Weight: 0.5}, router.ArmWeight{Arm: router.ArmDirectOnly, Weight: 0.5}),
+		router.WithExploration(0.2, "e2e"))
+
+	// tune
+	out := filepath.Join(dir, "tuned.json")
+	rep, err := runTune(tuneOptions{traces: []string{traces}, objective: "score", out: out, plots: filepath.Join(dir, "plots"),
+		tauPoints: 21, estimator: "dr", floor: ope.DefaultFloor, minESS: ope.DefaultMinESS, reps: 200, seed: 1, conf: 0.95, arm: router.ArmRouted})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if rep.Best == nil {
+		t.Fatal("no recommendation")
+	}
+	pt := e.truth(t)
+	best := math.Inf(-1)
+	var bestTau float64
+	var bestH int
+	for _, p := range rep.Policies {
+		if v := pt.value(p.Tau, p.MaxHops); v > best {
+			best, bestTau, bestH = v, p.Tau, p.MaxHops
+		}
+	}
+	got := pt.value(rep.Best.Tau, rep.Best.MaxHops)
+	t.Logf("tune: recommended τ=%.5g H=%d (DR %v), true value %.4f; best on grid τ=%.5g H=%d true %.4f; all-direct %.4f, current τ=0 H=3 %.4f; used %d samples",
+		rep.Best.Tau, rep.Best.MaxHops, rep.Best.DR.Value, got, bestTau, bestH, best, pt.value(math.Inf(1), 3), pt.value(0, 3), rep.Used)
+	if got < 0.95*best {
+		t.Errorf("recommended policy's true value %.4f is not within 5%% of the grid's best %.4f", got, best)
+	}
+	cfg, err := router.LoadConfig(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if cfg.GainThreshold != rep.Best.Tau || cfg.MaxBridges != rep.Best.MaxHops {
+		t.Errorf("written config %+v", cfg)
+	}
+	for _, p := range rep.Plots {
+		if st, err := os.Stat(p); err != nil || st.Size() < 1000 {
+			t.Errorf("plot %s: %v", p, err)
+		}
+	}
+	// The DR interval of the recommended policy should cover its true value
+	// (a 95% interval, so this is a probabilistic check, seeded).
+	if !rep.Best.DR.Value.Contains(got) {
+		t.Logf("note: DR interval %v does not cover the true value %.4f", rep.Best.DR.Value, got)
+	}
+
+	// ab: routed vs direct-only
+	ab, err := runAB(abOptions{traces: []string{traces}, success: 0.5, conf: 0.95, reps: 500, seed: 1, alpha: 0.05,
+		allocation: "routed=0.5,direct-only=0.5", power: 0.8, mde: 0.02})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(ab.Diffs) != 1 || ab.Control != router.ArmDirectOnly {
+		t.Fatalf("diffs %+v", ab.Diffs)
+	}
+	d := ab.Diffs[0]
+	t.Logf("ab routed − direct-only: success %v, z %.2f, score Welch %v, SRM p %.3f", d.Success, d.Z.Z, d.Score.Interval, ab.SRM.P)
+	if !d.Significant || d.Success.Lo <= 0 {
+		t.Errorf("routed vs direct-only: no significant improvement detected: %v", d.Success)
+	}
+	if ab.SRM.Mismatch {
+		t.Errorf("sample ratio mismatch on a 50/50 allocation: %+v", ab.SRM)
+	}
+
+	// A/A: the routed arm with an unreachable threshold and no exploration
+	// answers exactly like direct-only.
+	aa := filepath.Join(dir, "aa.jsonl")
+	e.simulate(t, aa, 12000, 1, 2,
+		router.WithArms(router.ArmWeight{Arm: router.ArmRouted, Weight: 0.5}, router.ArmWeight{Arm: router.ArmDirectOnly, Weight: 0.5}),
+		router.WithGainThreshold(1e9))
+	aaRep, err := runAB(abOptions{traces: []string{aa}, success: 0.5, conf: 0.95, reps: 500, seed: 1, alpha: 0.05, allocation: "routed=1,direct-only=1"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	ad := aaRep.Diffs[0]
+	t.Logf("A/A: success %v, z %.2f, SRM p %.3f", ad.Success, ad.Z.Z, aaRep.SRM.P)
+	if ad.Significant || !ad.Score.Contains(0) {
+		t.Errorf("A/A split shows a difference: %+v", ad)
+	}
+	// Without exploration the logger is deterministic: tune refuses every
+	// policy that differs from it and writes no config.
+	noOut := filepath.Join(dir, "none.json")
+	aaTune, err := runTune(tuneOptions{traces: []string{aa}, objective: "score", out: noOut, taus: "0,0.01", maxHops: "3",
+		estimator: "dr", floor: ope.DefaultFloor, minESS: ope.DefaultMinESS, reps: 50, seed: 1, conf: 0.95, arm: router.ArmRouted})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, p := range aaTune.Policies {
+		if p.Supported && p.ChainShare > 0 {
+			t.Errorf("policy τ=%v supported without exploration: %+v", p.Tau, p)
+		}
+	}
+
+	// The commands through cobra, text output.
+	var buf bytes.Buffer
+	root := NewRoot()
+	root.SetOut(&buf)
+	root.SetArgs([]string{"ab", "--traces", traces, "--allocation", "routed=0.5,direct-only=0.5"})
+	if err := root.Execute(); err != nil {
+		t.Fatal(err)
+	}
+	if s := buf.String(); !strings.Contains(s, "routed − direct-only") || !strings.Contains(s, "Newcombe") || !strings.Contains(s, "consistent with the allocation") {
+		t.Errorf("ab output:\n%s", s)
+	}
+	buf.Reset()
+	root = NewRoot()
+	root.SetOut(&buf)
+	root.SetArgs([]string{"tune", "--traces", traces, "--reps", "50", "--out", filepath.Join(dir, "t2.json")})
+	if err := root.Execute(); err != nil {
+		t.Fatal(err)
+	}
+	if s := buf.String(); !strings.Contains(s, "recommended: gain_threshold") {
+		t.Errorf("tune output:\n%s", s)
+	}
+}
+
+func TestTuneRefusesMissingPropensity(t *testing.T) {
+	t.Parallel()
+	dir := t.TempDir()
+	// Two decision spans written by hand without hopwise.route.propensity,
+	// each with an outcome span.
+	var b strings.Builder
+	for i, mode := range []string{"direct", "chain"} {
+		fmt.Fprintf(&b, `{"resourceSpans":[{"scopeSpans":[{"spans":[`+
+			`{"traceId":"0af7651916cd43dd8448eb211c80319%d","spanId":"b7ad6b716920333%d","name":"hopwise.decide","startTimeUnixNano":"1700000000000000000",`+
+			`"attributes":[{"key":"hopwise.query.key","value":{"stringValue":"u%d"}},{"key":"hopwise.route.mode","value":{"stringValue":"%s"}},`+
+			`{"key":"hopwise.route.gain","value":{"doubleValue":0.01}},{"key":"hopwise.route.reason","value":{"stringValue":"gain-above-threshold"}},`+
+			`{"key":"hopwise.chain.err","value":{"doubleValue":0.02}},{"key":"hopwise.chain.hops","value":{"intValue":"1"}}]},`+
+			`{"traceId":"0af7651916cd43dd8448eb211c80319%d","spanId":"c7ad6b716920333%d","name":"hopwise.outcome",`+
+			`"attributes":[{"key":"hopwise.query.key","value":{"stringValue":"u%d"}},{"key":"hopwise.outcome.score","value":{"doubleValue":1}}]}]}]}]}`+"\n",
+			i, i, i, mode, i, i, i)
+	}
+	path := filepath.Join(dir, "t.jsonl")
+	if err := os.WriteFile(path, []byte(b.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	_, err := runTune(tuneOptions{traces: []string{path}, objective: "score", taus: "0", maxHops: "1", estimator: "dr",
+		floor: 0.01, minESS: 1, reps: 10, seed: 1, conf: 0.95, arm: router.ArmRouted, out: filepath.Join(dir, "x.json")})
+	if !errors.Is(err, ope.ErrMissingPropensity) || !strings.Contains(err.Error(), "t.jsonl:1") {
+		t.Fatalf("err = %v", err)
+	}
+	if _, err := os.Stat(filepath.Join(dir, "x.json")); err == nil {
+		t.Error("config written despite the refusal")
+	}
+	// ab needs arms.
+	if _, err := runAB(abOptions{traces: []string{path}, success: 0.5, conf: 0.95, alpha: 0.05}); err == nil || !strings.Contains(err.Error(), "no A/B arm") {
+		t.Errorf("ab without arms: %v", err)
+	}
+}
+
+func TestABTuneFlagErrors(t *testing.T) {
+	t.Parallel()
+	cases := []struct {
+		args []string
+		want string
+	}{
+		{[]string{"ab"}, "--traces"},
+		{[]string{"ab", "--traces", "x", "--allocation", "routed"}, "not arm=weight"},
+		{[]string{"ab", "--traces", "x", "--confidence", "2"}, "--confidence"},
+		{[]string{"tune", "--traces", "x", "--objective", "speed"}, "--objective"},
+		{[]string{"tune", "--traces", "x", "--objective", "score-cost"}, "--cost-per-token"},
+		{[]string{"tune", "--traces", "x", "--estimator", "mean"}, "--estimator"},
+		{[]string{"tune", "--traces", "/nonexistent/t.jsonl"}, "no such file"},
+	}
+	for _, c := range cases {
+		root := NewRoot()
+		root.SetOut(&bytes.Buffer{})
+		root.SetErr(&bytes.Buffer{})
+		root.SetArgs(c.args)
+		err := root.Execute()
+		if err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%v: err = %v, want %q", c.args, err, c.want)
+		}
+	}
+}
