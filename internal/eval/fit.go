@@ -63,6 +63,9 @@ func Fit(ctx context.Context, fc FitConfig) (FitResult, error) {
 	if len(fc.Seeds) == 0 {
 		return FitResult{}, fmt.Errorf("%w: fit needs at least one seed", ErrConfig)
 	}
+	if fc.Base.SignalBias != 0 {
+		return FitResult{}, fmt.Errorf("%w: fit the plain Bayes model (signal bias 0)", ErrConfig)
+	}
 	if fc.MaxIter <= 0 {
 		fc.MaxIter = 6
 	}
