@@ -1,5 +1,40 @@
 // Package otelx instruments routing decisions with OpenTelemetry traces and
-// metrics, and reads and writes OTLP JSON Lines trace files.
+// metrics, and reads the resulting OTLP JSON Lines trace files back into
+// typed records for tuning and A/B analysis.
 //
-// Concurrency: instrumentation values are safe for concurrent use.
+// # Instrumenting
+//
+// New takes providers, never a Tracer or Meter (WithTracerProvider,
+// WithMeterProvider; both default to the otel globals). The scope name is
+// ScopeName, the import path, with Version. Instrumentation.Decide wraps
+// router.Router.Decide in one span named SpanDecide whose attributes live in
+// the hopwise. namespace (the Key* constants: mode, gain, direct error and
+// support, chain error, hops and bridges, reason, truncation, arm,
+// propensity, exploration, index generation, sampling ratio, unit key).
+// They are built only when the span is recording. Metrics: decisions by
+// mode and arm, decision latency, cache hits and misses, the gain; their
+// attribute sets and measurement options are prebuilt, and every call is
+// guarded by the instrument's Enabled. The otel noop providers are
+// recognised and cost nothing per decision.
+//
+// WithEntityHashKey replaces entity names and values in spans by a keyed
+// HMAC-SHA256 (RFC 2104), truncated to 128 bits. WithSamplingRatio records
+// the trace sampling ratio in use on every span, because the SDK samplers
+// do not: readers weight each decision by its inverse.
+//
+// RecordOutcome reports the gateway's outcome (score in [0,1], tokens,
+// latency) in a span named SpanOutcome carrying the decision's unit key;
+// ReadOutcomes reads the same facts from a plain JSONL file instead. Join
+// pairs decisions with outcomes by key.
+//
+// # Trace files
+//
+// Package otlpfile writes OTLP JSON Lines through the public
+// otlptrace.Client interface (one TracesData object per line, hex ids) and
+// scans them back. ReadTraces and ReadTraceFiles turn such files into
+// DecisionRecord and OutcomeRecord values; any malformed line or mistyped
+// attribute is an error naming the file and line.
+//
+// Concurrency: an *Instrumentation is safe for concurrent use. Readers
+// are not; use one per goroutine.
 package otelx
