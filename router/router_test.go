@@ -621,7 +621,7 @@ func TestHubStaysWithinBudget(t *testing.T) {
 	calls := g.n.Load() - before
 	// budget-charged look-ups, plus the direct pair, the adjacency test and
 	// the exact scoring of ≤ k chains (≤ 4 edges each) and the MinSupport pass.
-	if limit := int64(budget + 2 + 16*4 + 4); calls > limit {
+	if limit := int64(budget/lookupUnits + 2 + 16*4 + 4); calls > limit {
 		t.Fatalf("%d pair look-ups for budget %d (limit %d)", calls, budget, limit)
 	}
 	if d.Chain == nil || len(d.Chain.Bridges) != 1 {
