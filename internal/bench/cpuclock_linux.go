@@ -1,0 +1,27 @@
+package bench
+
+import "golang.org/x/sys/unix"
+
+// threadCPU returns the calling OS thread's CPU time in nanoseconds
+// (clock_gettime(CLOCK_THREAD_CPUTIME_ID)); the caller locks its thread.
+func threadCPU() int64 {
+	var ts unix.Timespec
+	if err := unix.ClockGettime(unix.CLOCK_THREAD_CPUTIME_ID, &ts); err != nil {
+		return 0
+	}
+	return ts.Nano()
+}
+
+// threadCPUOverhead returns the median cost of one threadCPU pair and
+// whether the clock works.
+func threadCPUOverhead() (float64, bool) {
+	if threadCPU() == 0 {
+		return 0, false
+	}
+	ns := make([]float64, 2000)
+	for i := range ns {
+		c := threadCPU()
+		ns[i] = float64(threadCPU() - c)
+	}
+	return summarize(ns).P50, true
+}

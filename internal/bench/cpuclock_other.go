@@ -1,0 +1,7 @@
+//go:build !linux
+
+package bench
+
+func threadCPU() int64 { return 0 }
+
+func threadCPUOverhead() (float64, bool) { return 0, false }

@@ -1,0 +1,58 @@
+package cli
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"strings"
+	"testing"
+
+	"github.com/hopwise/hopwise/internal/bench"
+)
+
+func runBenchCmd(t *testing.T, args ...string) (string, string, error) {
+	t.Helper()
+	root := NewRoot()
+	var out, errb bytes.Buffer
+	root.SetOut(&out)
+	root.SetErr(&errb)
+	root.SetArgs(append([]string{"bench"}, args...))
+	err := root.ExecuteContext(context.Background())
+	return out.String(), errb.String(), err
+}
+
+func TestBenchJSON(t *testing.T) {
+	if testing.Short() {
+		t.Skip("runs every bench phase (several seconds)")
+	}
+	out, progress, err := runBenchCmd(t, "--entities", "1500", "--avg-degree", "4", "--queries", "60",
+		"--agree-queries", "30", "--hub", "--hub-queries", "30", "--seed", "7", "--json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var rep bench.Report
+	if err := json.Unmarshal([]byte(out), &rep); err != nil {
+		t.Fatalf("not JSON: %v\n%s", err, out)
+	}
+	if rep.Graph.Entities != 1500 || rep.Graph.Seed != 7 || rep.Uncached.Latency.N != 60 || rep.Hub == nil || rep.Gonum == nil {
+		t.Errorf("report %+v", rep)
+	}
+	if !strings.Contains(progress, "bench ") || strings.Contains(out, "bench ") {
+		t.Errorf("progress must go to stderr only; stderr %q", progress)
+	}
+}
+
+func TestBenchBadFlags(t *testing.T) {
+	t.Parallel()
+	for _, args := range [][]string{
+		{"--baselines", "sometimes"},
+		{"--build", "fast"},
+		{"--queries", "0"},
+		{"--entities", "1"},
+		{"--beam", "0"},
+	} {
+		if _, _, err := runBenchCmd(t, args...); err == nil {
+			t.Errorf("%v: no error", args)
+		}
+	}
+}
