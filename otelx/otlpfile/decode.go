@@ -324,13 +324,13 @@ func (e *jEnum) UnmarshalJSON(b []byte) error {
 	return nil
 }
 
-func (e jEnum) resolve(names map[string]int32, field string) (int32, error) {
+func (e jEnum) resolve(names map[string]int32, p *path) (int32, error) {
 	if e.name == "" {
 		return e.num, nil
 	}
 	v, ok := names[e.name]
 	if !ok {
-		return 0, fmt.Errorf("%w: %s: unknown enum name %q", ErrMalformed, field, e.name)
+		return 0, badf(p, "unknown enum name %q", e.name)
 	}
 	return v, nil
 }
@@ -349,30 +349,68 @@ func unquoteNumber(b []byte) (string, bool) {
 
 // ---- conversion --------------------------------------------------------
 
-func decodeID(s string, n int, path string) ([]byte, error) {
+// path is a JSON path built only when an error is reported: each node
+// names a field, optionally indexed, optionally with an attribute key.
+type path struct {
+	parent *path
+	name   string
+	idx    int // −1: no index
+	key    string
+}
+
+func (p *path) String() string {
+	if p == nil {
+		return ""
+	}
+	s := p.parent.String()
+	if p.name != "" {
+		if s != "" {
+			s += "."
+		}
+		s += p.name
+	}
+	if p.idx >= 0 {
+		s += "[" + strconv.Itoa(p.idx) + "]"
+	}
+	if p.key != "" {
+		s += "(" + p.key + ")"
+	}
+	return s
+}
+
+func field(parent *path, name string) path       { return path{parent: parent, name: name, idx: -1} }
+func elem(parent *path, name string, i int) path { return path{parent: parent, name: name, idx: i} }
+
+func badf(p *path, format string, args ...any) error {
+	return fmt.Errorf("%w: %s: %s", ErrMalformed, p, fmt.Sprintf(format, args...))
+}
+
+func decodeID(s string, n int, p *path) ([]byte, error) {
 	if s == "" {
 		return nil, nil
 	}
 	if len(s) != 2*n {
-		return nil, fmt.Errorf("%w: %s: want %d hex digits, got %d (%q)", ErrMalformed, path, 2*n, len(s), s)
+		return nil, badf(p, "want %d hex digits, got %d (%q)", 2*n, len(s), s)
 	}
 	b, err := hex.DecodeString(s)
 	if err != nil {
-		return nil, fmt.Errorf("%w: %s: not hex: %q", ErrMalformed, path, s)
+		return nil, badf(p, "not hex: %q", s)
 	}
 	return b, nil
 }
 
 func (j *jTracesData) convert() (*tracepb.TracesData, error) {
-	td := &tracepb.TracesData{}
+	td := &tracepb.TracesData{ResourceSpans: make([]*tracepb.ResourceSpans, 0, len(j.ResourceSpans))}
 	for i, r := range j.ResourceSpans {
 		if r == nil {
 			continue
 		}
-		p := fmt.Sprintf("resourceSpans[%d]", i)
+		rp := elem(nil, "resourceSpans", i)
 		rs := &tracepb.ResourceSpans{SchemaUrl: r.SchemaURL}
 		if r.Resource != nil {
-			attrs, err := convertKVs(r.Resource.Attributes, p+".resource.attributes")
+			resP := field(&rp, "resource")
+			ap := field(&resP, "attributes")
+			attrs, err := convertKVs(r.Resource.Attributes, &ap, 0)
 			if err != nil {
 				return nil, err
 			}
@@ -386,14 +424,17 @@ func (j *jTracesData) convert() (*tracepb.TracesData, error) {
 				})
 			}
 		}
+		rs.ScopeSpans = make([]*tracepb.ScopeSpans, 0, len(r.ScopeSpans))
 		for k, ss := range r.ScopeSpans {
 			if ss == nil {
 				continue
 			}
-			sp := fmt.Sprintf("%s.scopeSpans[%d]", p, k)
-			out := &tracepb.ScopeSpans{SchemaUrl: ss.SchemaURL}
+			sp := elem(&rp, "scopeSpans", k)
+			out := &tracepb.ScopeSpans{SchemaUrl: ss.SchemaURL, Spans: make([]*tracepb.Span, 0, len(ss.Spans))}
 			if ss.Scope != nil {
-				attrs, err := convertKVs(ss.Scope.Attributes, sp+".scope.attributes")
+				scP := field(&sp, "scope")
+				ap := field(&scP, "attributes")
+				attrs, err := convertKVs(ss.Scope.Attributes, &ap, 0)
 				if err != nil {
 					return nil, err
 				}
@@ -406,7 +447,8 @@ func (j *jTracesData) convert() (*tracepb.TracesData, error) {
 				if s == nil {
 					continue
 				}
-				span, err := s.convert(fmt.Sprintf("%s.spans[%d]", sp, m))
+				p := elem(&sp, "spans", m)
+				span, err := s.convert(&p)
 				if err != nil {
 					return nil, err
 				}
@@ -419,7 +461,7 @@ func (j *jTracesData) convert() (*tracepb.TracesData, error) {
 	return td, nil
 }
 
-func (s *jSpan) convert(p string) (*tracepb.Span, error) {
+func (s *jSpan) convert(p *path) (*tracepb.Span, error) {
 	var err error
 	out := &tracepb.Span{
 		TraceState:             s.TraceState,
@@ -431,28 +473,33 @@ func (s *jSpan) convert(p string) (*tracepb.Span, error) {
 		DroppedEventsCount:     s.DroppedEventsCount,
 		DroppedLinksCount:      s.DroppedLinksCount,
 	}
-	if out.TraceId, err = decodeID(s.TraceID, 16, p+".traceId"); err != nil {
+	tp, sp, pp := field(p, "traceId"), field(p, "spanId"), field(p, "parentSpanId")
+	if out.TraceId, err = decodeID(s.TraceID, 16, &tp); err != nil {
 		return nil, err
 	}
-	if out.SpanId, err = decodeID(s.SpanID, 8, p+".spanId"); err != nil {
+	if out.SpanId, err = decodeID(s.SpanID, 8, &sp); err != nil {
 		return nil, err
 	}
-	if out.ParentSpanId, err = decodeID(s.ParentSpanID, 8, p+".parentSpanId"); err != nil {
+	if out.ParentSpanId, err = decodeID(s.ParentSpanID, 8, &pp); err != nil {
 		return nil, err
 	}
-	kind, err := s.Kind.resolve(tracepb.Span_SpanKind_value, p+".kind")
+	kp := field(p, "kind")
+	kind, err := s.Kind.resolve(tracepb.Span_SpanKind_value, &kp)
 	if err != nil {
 		return nil, err
 	}
 	out.Kind = tracepb.Span_SpanKind(kind)
-	if out.Attributes, err = convertKVs(s.Attributes, p+".attributes"); err != nil {
+	ap := field(p, "attributes")
+	if out.Attributes, err = convertKVs(s.Attributes, &ap, 0); err != nil {
 		return nil, err
 	}
 	for i, e := range s.Events {
 		if e == nil {
 			continue
 		}
-		attrs, err := convertKVs(e.Attributes, fmt.Sprintf("%s.events[%d].attributes", p, i))
+		ep := elem(p, "events", i)
+		eap := field(&ep, "attributes")
+		attrs, err := convertKVs(e.Attributes, &eap, 0)
 		if err != nil {
 			return nil, err
 		}
@@ -465,21 +512,24 @@ func (s *jSpan) convert(p string) (*tracepb.Span, error) {
 		if l == nil {
 			continue
 		}
-		lp := fmt.Sprintf("%s.links[%d]", p, i)
+		lp := elem(p, "links", i)
+		ltp, lsp, lap := field(&lp, "traceId"), field(&lp, "spanId"), field(&lp, "attributes")
 		link := &tracepb.Span_Link{TraceState: l.TraceState, DroppedAttributesCount: l.DroppedAttributesCount, Flags: l.Flags}
-		if link.TraceId, err = decodeID(l.TraceID, 16, lp+".traceId"); err != nil {
+		if link.TraceId, err = decodeID(l.TraceID, 16, &ltp); err != nil {
 			return nil, err
 		}
-		if link.SpanId, err = decodeID(l.SpanID, 8, lp+".spanId"); err != nil {
+		if link.SpanId, err = decodeID(l.SpanID, 8, &lsp); err != nil {
 			return nil, err
 		}
-		if link.Attributes, err = convertKVs(l.Attributes, lp+".attributes"); err != nil {
+		if link.Attributes, err = convertKVs(l.Attributes, &lap, 0); err != nil {
 			return nil, err
 		}
 		out.Links = append(out.Links, link)
 	}
 	if s.Status != nil {
-		code, err := s.Status.Code.resolve(tracepb.Status_StatusCode_value, p+".status.code")
+		stp := field(p, "status")
+		cp := field(&stp, "code")
+		code, err := s.Status.Code.resolve(tracepb.Status_StatusCode_value, &cp)
 		if err != nil {
 			return nil, err
 		}
@@ -492,11 +542,7 @@ func (s *jSpan) convert(p string) (*tracepb.Span, error) {
 // cannot exhaust the stack.
 const maxDepth = 64
 
-func convertKVs(kvs []*jKeyValue, p string) ([]*commonpb.KeyValue, error) {
-	return convertKVsDepth(kvs, p, 0)
-}
-
-func convertKVsDepth(kvs []*jKeyValue, p string, depth int) ([]*commonpb.KeyValue, error) {
+func convertKVs(kvs []*jKeyValue, p *path, depth int) ([]*commonpb.KeyValue, error) {
 	if len(kvs) == 0 {
 		return nil, nil
 	}
@@ -507,7 +553,8 @@ func convertKVsDepth(kvs []*jKeyValue, p string, depth int) ([]*commonpb.KeyValu
 		}
 		o := &commonpb.KeyValue{Key: kv.Key, KeyStrindex: kv.KeyStrindex}
 		if kv.Value != nil {
-			v, err := convertAny(kv.Value, fmt.Sprintf("%s[%d](%s)", p, i, kv.Key), depth+1)
+			vp := path{parent: p, idx: i, key: kv.Key}
+			v, err := convertAny(kv.Value, &vp, depth+1)
 			if err != nil {
 				return nil, err
 			}
@@ -518,9 +565,9 @@ func convertKVsDepth(kvs []*jKeyValue, p string, depth int) ([]*commonpb.KeyValu
 	return out, nil
 }
 
-func convertAny(v *jAnyValue, p string, depth int) (*commonpb.AnyValue, error) {
+func convertAny(v *jAnyValue, p *path, depth int) (*commonpb.AnyValue, error) {
 	if depth > maxDepth {
-		return nil, fmt.Errorf("%w: %s: values nested deeper than %d", ErrMalformed, p, maxDepth)
+		return nil, badf(p, "values nested deeper than %d", maxDepth)
 	}
 	out := &commonpb.AnyValue{}
 	n := 0
@@ -542,12 +589,14 @@ func convertAny(v *jAnyValue, p string, depth int) (*commonpb.AnyValue, error) {
 	}
 	if v.ArrayValue != nil {
 		n++
-		arr := &commonpb.ArrayValue{}
+		arr := &commonpb.ArrayValue{Values: make([]*commonpb.AnyValue, 0, len(v.ArrayValue.Values))}
+		ap := field(p, "arrayValue")
 		for i, e := range v.ArrayValue.Values {
 			if e == nil {
 				continue
 			}
-			ev, err := convertAny(e, fmt.Sprintf("%s.arrayValue.values[%d]", p, i), depth+1)
+			ep := elem(&ap, "values", i)
+			ev, err := convertAny(e, &ep, depth+1)
 			if err != nil {
 				return nil, err
 			}
@@ -557,7 +606,9 @@ func convertAny(v *jAnyValue, p string, depth int) (*commonpb.AnyValue, error) {
 	}
 	if v.KvlistValue != nil {
 		n++
-		kvs, err := convertKVsDepth(v.KvlistValue.Values, p+".kvlistValue.values", depth+1)
+		kp := field(p, "kvlistValue")
+		vp := field(&kp, "values")
+		kvs, err := convertKVs(v.KvlistValue.Values, &vp, depth+1)
 		if err != nil {
 			return nil, err
 		}
@@ -570,7 +621,8 @@ func convertAny(v *jAnyValue, p string, depth int) (*commonpb.AnyValue, error) {
 			// Tolerate the URL-safe alphabet and missing padding.
 			b, err = base64.RawURLEncoding.DecodeString(trimPad(*v.BytesValue))
 			if err != nil {
-				return nil, fmt.Errorf("%w: %s.bytesValue: not base64", ErrMalformed, p)
+				bp := field(p, "bytesValue")
+				return nil, badf(&bp, "not base64")
 			}
 		}
 		out.Value = &commonpb.AnyValue_BytesValue{BytesValue: b}
@@ -580,7 +632,7 @@ func convertAny(v *jAnyValue, p string, depth int) (*commonpb.AnyValue, error) {
 		out.Value = &commonpb.AnyValue_StringValueStrindex{StringValueStrindex: *v.StringValueStrindex}
 	}
 	if n > 1 {
-		return nil, fmt.Errorf("%w: %s: AnyValue has %d members, want at most one", ErrMalformed, p, n)
+		return nil, badf(p, "AnyValue has %d members, want at most one", n)
 	}
 	return out, nil
 }
