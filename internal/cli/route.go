@@ -63,7 +63,9 @@ and writes one JSON line per input line, in input order:
    "truncated":false,"direct":{"estimate":{...},"err":x,"support":n},
    "chain":{"bridges":["B1",...],"estimate":{...},"err":y,"min_support":n}|null,
    "generation":"<hex>"}
-Estimates cover every value of the target, in the index's value order. A bad
+Estimates cover every value of the target, in the index's value order
+(decisions from a configured --fallback for unknown endpoints carry an empty
+estimate and their reason code says so). A bad
 line gives {"id":...,"error":"line N: ..."} and the batch goes on. Decisions
 run on --workers goroutines; output order is always input order.
 
