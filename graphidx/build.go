@@ -182,6 +182,7 @@ func (d *buildDict) entity(name string) (uint32, error) {
 		return 0, ErrTooManyEntities
 	}
 	id := uint32(len(d.names))
+	name = strings.Clone(name) // the reader's string may be a transient view
 	d.mu.Lock()
 	d.ids[name] = id
 	d.names = append(d.names, name)
@@ -202,6 +203,7 @@ func (d *buildDict) value(e uint32, v string) (uint32, bool) {
 	if len(vs) >= MaxValues {
 		return 0, false
 	}
+	v = strings.Clone(v)
 	d.vals[e] = append(vs, v)
 	d.marg[e] = append(d.marg[e], 0)
 	d.bytes.Add(int64(len(v)) + 24)
@@ -241,7 +243,9 @@ func (d *buildDict) ranks() (rank, order []uint32) {
 
 // ctxBatch carries interned contexts from the reader to the workers.
 type ctxBatch struct {
-	ids   []string
+	refs  atomic.Int32 // workers still reading the batch
+	first uint64       // ordinal of the first context (1-based)
+	ids   []string     // context ids, only when the reader's strings persist
 	off   []int32
 	items []uint32 // entity<<6 | value
 }
@@ -316,10 +320,25 @@ func (b *buildRun) numRuns() int {
 	return len(b.runs)
 }
 
-// worker counts the pairs of the batches it receives.
-func (b *buildRun) worker(ctx context.Context, in <-chan *ctxBatch, free chan<- *ctxBatch) (*pairTab, error) {
-	t := newPairTab(1 << 12)
+// pairShard is the worker that owns the pair (a, b) of provisional ids.
+func pairShard(a, b uint32, workers uint32) uint32 {
+	return ((a*0x9E3779B1 + b) >> 8) % workers
+}
+
+// worker counts the pairs of its shard (pairShard(a, b) == me) in every
+// batch: all workers see all contexts, each counts a disjoint set of pairs,
+// so the tables do not duplicate keys and together hold each cell once.
+func (b *buildRun) worker(ctx context.Context, me int, in <-chan *ctxBatch, free chan<- *ctxBatch) (*pairTab, error) {
+	nw := uint32(b.cfg.workers)
+	self := uint32(me)
+	// Start large enough to skip the early doublings, within the budget.
+	slots := 1 << 12
+	for slots < 1<<20 && int64(slots)*2*cellBytes*3 <= b.tableLimit() {
+		slots *= 2
+	}
+	t := newPairTab(slots)
 	var scratch []uint32
+	keys := make([]uint64, 0, 512)
 	for batch := range in {
 		if ctx.Err() != nil {
 			continue // drain
@@ -341,31 +360,66 @@ func (b *buildRun) worker(ctx context.Context, in <-chan *ctxBatch, free chan<- 
 			}
 			for i := 1; i < len(scratch); i++ {
 				if scratch[i]>>6 == scratch[i-1]>>6 {
+					id := "#" + strconv.FormatUint(batch.first+uint64(c), 10)
+					if c < len(batch.ids) {
+						id = strconv.Quote(batch.ids[c])
+					}
 					return t, fmt.Errorf("%w: context %s: entity %s", ErrDuplicateEntity,
-						strconv.Quote(batch.ids[c]), strconv.Quote(b.dict.name(scratch[i]>>6)))
+						id, strconv.Quote(b.dict.name(scratch[i]>>6)))
 				}
 			}
 			for i, x := range scratch {
 				hi := uint64(x>>6)<<38 | uint64(x&63)<<6
 				for _, y := range scratch[i+1:] {
-					if t.used >= t.limit {
-						if err := b.makeRoom(t); err != nil {
-							return t, err
-						}
+					if nw > 1 && pairShard(x>>6, y>>6, nw) != self {
+						continue
 					}
-					if !t.add(hi | uint64(y>>6)<<12 | uint64(y&63)) {
-						a, bb := b.dict.name(x>>6), b.dict.name(y>>6)
-						return t, fmt.Errorf("%w: pair %s, %s", ErrCountOverflow, strconv.Quote(a), strconv.Quote(bb))
-					}
+					keys = append(keys, hi|uint64(y>>6)<<12|uint64(y&63))
 				}
 			}
+			if len(keys) >= 256 {
+				if err := b.addKeys(t, keys); err != nil {
+					return t, err
+				}
+				keys = keys[:0]
+			}
 		}
-		select {
-		case free <- batch:
-		default:
+		if err := b.addKeys(t, keys); err != nil {
+			return t, err
+		}
+		keys = keys[:0]
+		if batch.refs.Add(-1) == 0 {
+			select {
+			case free <- batch:
+			default:
+			}
 		}
 	}
 	return t, ctx.Err()
+}
+
+// addKeys counts keys into t. It first touches the slot of every key: the
+// loads are independent, so the processor overlaps their cache misses, and
+// the dependent probing loop that follows mostly hits the cache (a software
+// prefetch; about 2× faster on tables far larger than the cache).
+func (b *buildRun) addKeys(t *pairTab, keys []uint64) error {
+	var sink uint64
+	for _, k := range keys {
+		sink += t.slots[(k*0x9E3779B97F4A7C15)>>t.shift].key
+	}
+	t.sink += sink
+	for _, k := range keys {
+		if t.used >= t.limit {
+			if err := b.makeRoom(t); err != nil {
+				return err
+			}
+		}
+		if !t.add(k) {
+			a, bb, _, _ := splitKey(k)
+			return fmt.Errorf("%w: pair %s, %s", ErrCountOverflow, strconv.Quote(b.dict.name(a)), strconv.Quote(b.dict.name(bb)))
+		}
+	}
+	return nil
 }
 
 // makeRoom grows the table if the budget allows, else spills it.
@@ -390,7 +444,10 @@ func compileWith(ctx context.Context, r ContextReader, cfg buildConfig, start ti
 
 	wctx, cancel := context.WithCancelCause(ctx)
 	defer cancel(nil)
-	in := make(chan *ctxBatch, 2*cfg.workers)
+	in := make([]chan *ctxBatch, cfg.workers)
+	for w := range in {
+		in[w] = make(chan *ctxBatch, 4)
+	}
 	free := make(chan *ctxBatch, 3*cfg.workers+1)
 	tables := make([]*pairTab, cfg.workers)
 	var wg sync.WaitGroup
@@ -398,7 +455,7 @@ func compileWith(ctx context.Context, r ContextReader, cfg buildConfig, start ti
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
-			t, err := b.worker(wctx, in, free)
+			t, err := b.worker(wctx, w, in[w], free)
 			tables[w] = t
 			if err != nil {
 				cancel(err)
@@ -406,7 +463,9 @@ func compileWith(ctx context.Context, r ContextReader, cfg buildConfig, start ti
 		}()
 	}
 	rerr := b.read(wctx, r, in, free, &sum)
-	close(in)
+	for _, c := range in {
+		close(c)
+	}
 	wg.Wait()
 	if rerr == nil {
 		rerr = context.Cause(wctx)
@@ -432,24 +491,36 @@ func compileWith(ctx context.Context, r ContextReader, cfg buildConfig, start ti
 
 // read is the producer: it reads contexts, interns them, counts marginals
 // and sends batches to the workers.
-func (b *buildRun) read(ctx context.Context, r ContextReader, in chan<- *ctxBatch, free chan *ctxBatch, sum *BuildSummary) error {
+func (b *buildRun) read(ctx context.Context, r ContextReader, in []chan *ctxBatch, free chan *ctxBatch, sum *BuildSummary) error {
 	d := b.dict
 	br, _ := r.(interface{ BytesRead() int64 })
+	// Our JSONL reader can hand out views into its line buffer: every
+	// string kept below is cloned, so skip its interning.
+	transient := false
+	if t, ok := r.(interface{ setTransient(bool) }); ok {
+		t.setTransient(true)
+		defer t.setTransient(false)
+		transient = true
+	}
 	newBatch := func() *ctxBatch {
 		select {
 		case x := <-free:
 			x.ids, x.off, x.items = x.ids[:0], x.off[:1], x.items[:0]
+			x.first = sum.Contexts + 1
 			return x
 		default:
-			return &ctxBatch{off: []int32{0}}
+			return &ctxBatch{off: []int32{0}, first: sum.Contexts + 1}
 		}
 	}
 	batch := newBatch()
 	send := func() error {
-		select {
-		case in <- batch:
-		case <-ctx.Done():
-			return context.Cause(ctx)
+		batch.refs.Store(int32(len(in)))
+		for _, c := range in {
+			select {
+			case c <- batch:
+			case <-ctx.Done():
+				return context.Cause(ctx)
+			}
 		}
 		batch = newBatch()
 		return nil
@@ -472,7 +543,7 @@ func (b *buildRun) read(ctx context.Context, r ContextReader, in chan<- *ctxBatc
 		if err != nil {
 			return err
 		}
-		if len(batch.items)+len(c.Obs) > batchItems && len(batch.ids) > 0 {
+		if len(batch.items)+len(c.Obs) > batchItems && len(batch.off) > 1 {
 			if err := send(); err != nil {
 				return err
 			}
@@ -496,11 +567,13 @@ func (b *buildRun) read(ctx context.Context, r ContextReader, in chan<- *ctxBatc
 			d.marg[e][v]++
 			batch.items = append(batch.items, e<<6|v)
 		}
-		batch.ids = append(batch.ids, c.ID)
+		if !transient {
+			batch.ids = append(batch.ids, c.ID)
+		}
 		batch.off = append(batch.off, int32(len(batch.items)))
 		sum.Contexts++
 		sum.Observations += uint64(len(c.Obs))
-		if len(batch.ids) >= batchContexts {
+		if len(batch.off) > batchContexts {
 			if err := send(); err != nil {
 				return err
 			}
@@ -510,7 +583,7 @@ func (b *buildRun) read(ctx context.Context, r ContextReader, in chan<- *ctxBatc
 			}
 		}
 	}
-	if len(batch.ids) > 0 {
+	if len(batch.off) > 1 {
 		if err := send(); err != nil {
 			return err
 		}

@@ -6,6 +6,7 @@ import (
 	"strconv"
 	"unicode/utf16"
 	"unicode/utf8"
+	"unsafe"
 )
 
 // JSONLReader reads JSON Lines contexts, one JSON object per line:
@@ -37,6 +38,21 @@ type JSONLReader struct {
 	in   interner
 	obs  []Observation
 	p    jparser
+	// transient makes names views into the line buffer, valid only until
+	// the next call to Next. Only Build sets it, through setTransient: it
+	// copies what it keeps, and skipping the interner saves a map lookup
+	// per observation.
+	transient bool
+}
+
+func (r *JSONLReader) setTransient(on bool) { r.transient = on }
+
+// str returns the string of a just-parsed JSON string s.
+func (r *JSONLReader) str(s []byte) string {
+	if r.transient && !r.p.escaped {
+		return unsafe.String(&s[0], len(s)) // s is non-empty: checkName ran
+	}
+	return r.in.get(s)
 }
 
 // NewJSONLReader returns a reader of JSONL contexts from r. name is the file
@@ -160,7 +176,11 @@ func (r *JSONLReader) parse(line []byte) (Context, *LineError) {
 					}
 					return c, &LineError{Field: "id", Reason: why}
 				}
-				c.ID = string(s)
+				if r.transient && !p.escaped {
+					c.ID = unsafe.String(&s[0], len(s))
+				} else {
+					c.ID = string(s)
+				}
 			case "obs":
 				if seenObs {
 					return c, &LineError{Field: "obs", Reason: ReasonBadField, Detail: "repeated key"}
@@ -237,7 +257,7 @@ func (r *JSONLReader) parseObs() *LineError {
 		if why := checkName(k); why != "" {
 			return &LineError{Field: "obs", Reason: why, Detail: "entity name"}
 		}
-		ent := r.in.get(k)
+		ent := r.str(k)
 		p.ws()
 		if !p.eat(':') {
 			return p.syntax("want ':'")
@@ -256,7 +276,7 @@ func (r *JSONLReader) parseObs() *LineError {
 		if why := checkName(v); why != "" {
 			return &LineError{Field: "obs." + ent, Reason: why, Detail: "value"}
 		}
-		r.obs = append(r.obs, Observation{Entity: ent, Value: r.in.get(v)})
+		r.obs = append(r.obs, Observation{Entity: ent, Value: r.str(v)})
 		p.ws()
 		if p.eat(',') {
 			continue
@@ -296,7 +316,7 @@ func (r *JSONLReader) parseEnts() *LineError {
 		if why := checkName(s); why != "" {
 			return &LineError{Field: fmt.Sprintf("ents[%d]", n), Reason: why}
 		}
-		r.obs = append(r.obs, Observation{Entity: r.in.get(s), Value: PresentValue})
+		r.obs = append(r.obs, Observation{Entity: r.str(s), Value: PresentValue})
 		p.ws()
 		if p.eat(',') {
 			continue
@@ -313,6 +333,7 @@ type jparser struct {
 	b       []byte
 	i       int
 	scratch []byte
+	escaped bool // the last string had escapes (decoded into scratch)
 }
 
 const maxJSONDepth = 512
@@ -353,6 +374,7 @@ func (p *jparser) str() ([]byte, bool) {
 	if !p.eat('"') {
 		return nil, false
 	}
+	p.escaped = false
 	start := p.i
 	for p.i < len(p.b) {
 		c := p.b[p.i]
@@ -373,6 +395,7 @@ func (p *jparser) str() ([]byte, bool) {
 }
 
 func (p *jparser) strSlow(start int) ([]byte, bool) {
+	p.escaped = true
 	out := append(p.scratch[:0], p.b[start:p.i]...)
 	defer func() { p.scratch = out[:0] }()
 	for p.i < len(p.b) {

@@ -52,6 +52,7 @@ type pairTab struct {
 	used  int
 	shift uint
 	limit int
+	sink  uint64 // keeps the prefetching loads of addKeys alive
 }
 
 func newPairTab(slots int) *pairTab {
@@ -109,8 +110,9 @@ func (t *pairTab) grow() {
 
 // drain compacts the table, rewrites every key into its name-ordered form
 // under rank (rank[prov] = position of the entity in name order) and sorts
-// the cells. The result aliases the table, which must be reset before reuse.
-// O(n log n).
+// the cells. The result may alias the table, which must be reset before
+// reuse; sorting may allocate a buffer of the same length (within the
+// budget's growth headroom). O(n).
 func (t *pairTab) drain(rank []uint32) []cell {
 	n := 0
 	for _, c := range t.slots {
@@ -128,16 +130,51 @@ func (t *pairTab) drain(rank []uint32) []cell {
 		}
 		cells[i].key = cellKey(ra, rb, u, v)
 	}
-	slices.SortFunc(cells, func(x, y cell) int {
-		switch {
-		case x.key < y.key:
-			return -1
-		case x.key > y.key:
-			return 1
+	return sortCells(cells)
+}
+
+func cmpCell(x, y cell) int {
+	switch {
+	case x.key < y.key:
+		return -1
+	case x.key > y.key:
+		return 1
+	}
+	return 0
+}
+
+// sortCells sorts cells by key. Small inputs use pdqsort in place; larger
+// ones an LSD radix sort with 11-bit digits through a scratch buffer of the
+// same length, skipping digits that all keys share. O(n·d) for d ≤ 6 passes.
+// The result is cells or the buffer.
+func sortCells(cells []cell) []cell {
+	if len(cells) < 1<<12 {
+		slices.SortFunc(cells, cmpCell)
+		return cells
+	}
+	a, buf := cells, make([]cell, len(cells))
+	var count [1 << 11]int
+	for shift := uint(0); shift < 64; shift += 11 {
+		clear(count[:])
+		for i := range a {
+			count[(a[i].key>>shift)&2047]++
 		}
-		return 0
-	})
-	return cells
+		if count[(a[0].key>>shift)&2047] == len(a) {
+			continue
+		}
+		sum := 0
+		for d, c := range count {
+			count[d] = sum
+			sum += c
+		}
+		for i := range a {
+			d := (a[i].key >> shift) & 2047
+			buf[count[d]] = a[i]
+			count[d]++
+		}
+		a, buf = buf, a
+	}
+	return a
 }
 
 func (t *pairTab) reset() {

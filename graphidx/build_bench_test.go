@@ -1,0 +1,223 @@
+package graphidx
+
+import (
+	"bufio"
+	"bytes"
+	"context"
+	"encoding/json"
+	"fmt"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"sort"
+	"testing"
+	"time"
+)
+
+// benchCorpus returns n JSONL contexts of exactly 8 entities each, drawn
+// from a window of 48 entities around a random centre on a ring of ents
+// greenhouse sensors (locality: far-apart sensors never co-occur), each
+// with one of 3 states. Seeded, so every run measures the same bytes.
+func benchCorpus(n, ents int, seed uint64) []byte {
+	rng := rand.New(rand.NewPCG(seed, 11))
+	states := []string{"low", "ok", "high"}
+	var b bytes.Buffer
+	picked := make([]int, 0, 8)
+	for i := range n {
+		centre := rng.IntN(ents)
+		picked = picked[:0]
+		for len(picked) < 8 {
+			e := (centre + rng.IntN(48)) % ents
+			dup := false
+			for _, p := range picked {
+				dup = dup || p == e
+			}
+			if !dup {
+				picked = append(picked, e)
+			}
+		}
+		fmt.Fprintf(&b, `{"id":"ctx%d","obs":{`, i)
+		for j, e := range picked {
+			if j > 0 {
+				b.WriteByte(',')
+			}
+			fmt.Fprintf(&b, `"bed%d.sensor%d":"%s"`, e/16, e%16, states[(e+rng.IntN(2))%3])
+		}
+		b.WriteString("}}\n")
+	}
+	return b.Bytes()
+}
+
+// naiveCounts is the baseline: encoding/json per line and nested string
+// maps, single-threaded. counts["a=u"]["b=v"] for a < b; marginals under "".
+func naiveCounts(data []byte) (map[string]map[string]int, int, error) {
+	counts := map[string]map[string]int{}
+	var line struct {
+		ID   string            `json:"id"`
+		Obs  map[string]string `json:"obs"`
+		Ents []string          `json:"ents"`
+	}
+	sc := bufio.NewScanner(bytes.NewReader(data))
+	sc.Buffer(make([]byte, 1<<20), 1<<24)
+	n := 0
+	for sc.Scan() {
+		line.Obs, line.Ents = nil, nil
+		if err := json.Unmarshal(sc.Bytes(), &line); err != nil {
+			return nil, 0, err
+		}
+		keys := make([]string, 0, len(line.Obs)+len(line.Ents))
+		for e, v := range line.Obs {
+			keys = append(keys, e+"="+v)
+		}
+		for _, e := range line.Ents {
+			keys = append(keys, e+"="+PresentValue)
+		}
+		sort.Strings(keys)
+		for i, a := range keys {
+			m := counts[a]
+			if m == nil {
+				m = map[string]int{}
+				counts[a] = m
+			}
+			m[""]++
+			for _, b := range keys[i+1:] {
+				m[b]++
+			}
+		}
+		n++
+	}
+	return counts, n, sc.Err()
+}
+
+const (
+	benchContexts = 200_000
+	benchEntities = 20_000
+)
+
+var benchData = func() func() []byte {
+	var data []byte
+	return func() []byte {
+		if data == nil {
+			data = benchCorpus(benchContexts, benchEntities, 42)
+		}
+		return data
+	}
+}()
+
+func benchHopwise(b *testing.B) {
+	data := benchData()
+	out := filepath.Join(b.TempDir(), "bench.idx")
+	b.SetBytes(int64(len(data)))
+	b.ReportAllocs()
+	var sum BuildSummary
+	cpu0 := cpuTime()
+	for b.Loop() {
+		var err error
+		sum, err = Build(context.Background(), NewJSONLReader(bytes.NewReader(data), "bench.jsonl"), out)
+		if err != nil {
+			b.Fatal(err)
+		}
+	}
+	cpu := cpuTime() - cpu0
+	if sum.Contexts != benchContexts || sum.Observations != 8*benchContexts || sum.Read.SkippedTotal() != 0 {
+		b.Fatalf("sanity: %+v", sum)
+	}
+	reportRates(b, cpu)
+}
+
+func benchNaive(b *testing.B) {
+	data := benchData()
+	b.SetBytes(int64(len(data)))
+	b.ReportAllocs()
+	var n int
+	cpu0 := cpuTime()
+	for b.Loop() {
+		var err error
+		if _, n, err = naiveCounts(data); err != nil {
+			b.Fatal(err)
+		}
+	}
+	cpu := cpuTime() - cpu0
+	if n != benchContexts {
+		b.Fatalf("sanity: %d contexts", n)
+	}
+	reportRates(b, cpu)
+}
+
+// reportRates reports contexts per wall-clock second and per CPU-second
+// (all goroutines; the latter is independent of other load on the machine).
+func reportRates(b *testing.B, cpu time.Duration) {
+	total := float64(benchContexts) * float64(b.N)
+	b.ReportMetric(total/b.Elapsed().Seconds(), "contexts/s")
+	if cpu > 0 {
+		b.ReportMetric(total/cpu.Seconds(), "contexts/cpu-s")
+	}
+}
+
+// BenchmarkBuild measures Build (read, count, merge, write the index) on
+// 200k generated 8-entity contexts against the naive baseline in the same
+// run. Compare the contexts/s metrics; TestBuildSpeedup prints the ratio.
+func BenchmarkBuild(b *testing.B) {
+	b.Run("hopwise", benchHopwise)
+	b.Run("naive", benchNaive)
+}
+
+// TestBuildSpeedup runs both benchmarks and logs contexts/s and the ratio
+// (targets: ≥ 300k contexts/s on 2 cores, ≥ 5× the baseline). It only runs
+// with HOPWISE_BENCH=1 because it takes tens of seconds; it asserts the
+// results agree, never a timing.
+func TestBuildSpeedup(t *testing.T) {
+	if os.Getenv("HOPWISE_BENCH") == "" {
+		t.Skip("set HOPWISE_BENCH=1 to measure")
+	}
+	// Agreement on a slice of the corpus: every naive count equals the
+	// matching cell of the compiled index.
+	small := benchCorpus(5000, 500, 3)
+	naive, _, err := naiveCounts(small)
+	if err != nil {
+		t.Fatal(err)
+	}
+	c, _, err := Compile(context.Background(), NewJSONLReader(bytes.NewReader(small), "s.jsonl"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer c.Close()
+	ents := c.Entities()
+	cells := 0
+	c.Pairs(func(p PairRecord) error {
+		kb := len(ents[p.B].Values)
+		for i, n := range p.Counts {
+			if n == 0 {
+				continue
+			}
+			cells++
+			a := ents[p.A].Name + "=" + ents[p.A].Values[i/kb]
+			bb := ents[p.B].Name + "=" + ents[p.B].Values[i%kb]
+			// The baseline orients pairs by "name=value" strings.
+			if got := naive[a][bb] + naive[bb][a]; got != int(n) {
+				t.Fatalf("%s %s: %d vs naive %d", a, bb, n, got)
+			}
+		}
+		return nil
+	})
+	total := 0
+	for _, m := range naive {
+		for k, n := range m {
+			if k != "" && n > 0 {
+				total++
+			}
+		}
+	}
+	if total != cells {
+		t.Fatalf("%d non-zero cells vs naive %d", cells, total)
+	}
+
+	h := testing.Benchmark(benchHopwise)
+	n := testing.Benchmark(benchNaive)
+	hs, ns := h.Extra["contexts/s"], n.Extra["contexts/s"]
+	hc, nc := h.Extra["contexts/cpu-s"], n.Extra["contexts/cpu-s"]
+	t.Logf("hopwise Build: %.0f contexts/s wall, %.0f per CPU-second (%s/op, %d allocs/op, %d B/op)",
+		hs, hc, h.T/(max(1, time.Duration(h.N))), h.AllocsPerOp(), h.AllocedBytesPerOp())
+	t.Logf("naive baseline: %.0f contexts/s wall, %.0f per CPU-second", ns, nc)
+	t.Logf("ratio: %.1fx wall, %.1fx per CPU-second", hs/ns, hc/nc)
+}
