@@ -1,6 +1,7 @@
 package graphidx
 
 import (
+	"hash/crc32"
 	"path/filepath"
 	"testing"
 )
@@ -56,6 +57,61 @@ func FuzzOpen(f *testing.F) {
 				}
 			} else {
 				_ = x.Verify()
+			}
+		}
+	})
+}
+
+// FuzzOpenResealed mutates valid files and then recomputes every checksum
+// and the generation, so the mutations reach the section-table, structural
+// and read paths instead of stopping at a CRC. It models a crafted file:
+// it must be rejected with a corruption error or served without panics,
+// and a full open must agree with Verify.
+func FuzzOpenResealed(f *testing.F) {
+	dir := f.TempDir()
+	for i, src := range []Source{
+		ixSourceFromContexts(ixGreenhouse()),
+		ixRandomSource(12, 4, 2, 1),
+		ixRandomSource(10, 3, 0, 2),
+	} {
+		p := filepath.Join(dir, "seed"+string(rune('0'+i))+".hwx")
+		if err := WriteFile(p, src, WithRankPrefix(2)); err != nil {
+			f.Fatal(err)
+		}
+		b := ixReadFile(f, p)
+		f.Add(b, uint16(0), byte(0))
+		f.Add(b, uint16(len(b)-1), byte(1))
+		f.Add(b, uint16(headerSize+3), byte(0x80))
+		f.Add(b, uint16(offPairs), byte(1))
+	}
+	f.Fuzz(func(t *testing.T, data []byte, pos uint16, mask byte) {
+		data = append([]byte(nil), data...)
+		if int(pos) < len(data) {
+			data[pos] ^= mask
+		}
+		if len(data) >= headerSize {
+			h := decodeHeader(data)
+			for i, s := range h.Sections {
+				if s.Offset <= uint64(len(data)) && s.Length <= uint64(len(data))-s.Offset {
+					e := data[tableOffset+i*tableEntrySize:]
+					le.PutUint32(e[16:], crc32.Checksum(data[s.Offset:s.Offset+s.Length], castagnoli))
+				}
+			}
+			ixResealHeader(data)
+		}
+		for _, full := range []bool{true, false} {
+			v, err := parse(data, full)
+			if err != nil {
+				if !IsCorruption(err) {
+					t.Fatalf("error %v is not a corruption error", err)
+				}
+				continue
+			}
+			x := &Index{}
+			x.v.Store(v)
+			ixExercise(x)
+			if err := x.Verify(); full && err != nil {
+				t.Fatalf("full open accepted what Verify rejects: %v", err)
 			}
 		}
 	})

@@ -604,3 +604,44 @@ func TestConcurrentReaders(t *testing.T) {
 		}
 	}
 }
+
+// TestCopyDecodePath runs the decoding used on big-endian hosts (copying
+// little-endian arrays instead of aliasing them) and compares every answer
+// with the zero-copy path. Not parallel: it switches a package variable.
+func TestCopyDecodePath(t *testing.T) {
+	src := ixRandomSource(120, 8, 0, 21)
+	path := ixWriteTemp(t, src)
+	zc, err := Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer zc.Close()
+	hostLittleEndian = false
+	cp, err := Open(path)
+	hostLittleEndian = true
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer cp.Close()
+	if err := cp.Verify(); err != nil {
+		t.Fatal(err)
+	}
+	for i := 0; i < zc.NumEntities(); i++ {
+		id := EntityID(i)
+		if !slices.Equal(zc.Neighbors(id), cp.Neighbors(id)) || !slices.Equal(zc.RankedNeighbors(id), cp.RankedNeighbors(id)) ||
+			!slices.Equal(zc.Marginal(id), cp.Marginal(id)) || zc.Name(id) != cp.Name(id) {
+			t.Fatalf("entity %d differs between decode paths", i)
+		}
+		for _, nb := range zc.Neighbors(id) {
+			a, _ := zc.Pair(nb, id)
+			b, _ := cp.Pair(nb, id)
+			for u := 0; u < a.KA; u++ {
+				for v := 0; v < a.KB; v++ {
+					if a.Count(u, v) != b.Count(u, v) {
+						t.Fatalf("pair (%d,%d) differs", nb, id)
+					}
+				}
+			}
+		}
+	}
+}
