@@ -123,6 +123,7 @@ type Instrumentation struct {
 	// metricsOff: the meter provider is the otel noop provider, so the
 	// Enabled checks are skipped too.
 	metricsOff bool
+	off        bool // tracer nil and metricsOff
 
 	decisions metric.Int64Counter
 	latency   metric.Float64Histogram
@@ -207,6 +208,7 @@ func New(opts ...Option) (*Instrumentation, error) {
 	if err != nil {
 		return nil, fmt.Errorf("otelx: create instruments: %w", err)
 	}
+	in.off = in.tracer == nil && in.metricsOff
 	for m := range in.sets {
 		for a, arm := range knownArms {
 			in.sets[m][a] = modeArmSet(modeNames[m], arm)
@@ -274,13 +276,20 @@ func (in *Instrumentation) HashEntity(name string) string {
 // latency histogram is enabled, and each metric call is guarded by its
 // instrument's Enabled.
 func (in *Instrumentation) Decide(ctx context.Context, r *router.Router, q router.Query) (router.Decision, error) {
+	if in.off {
+		return r.Decide(ctx, q) // both providers are the otel noop ones
+	}
+	return in.decide(ctx, r, q)
+}
+
+// decide is Decide's instrumented path; Decide stays small enough to be
+// inlined, so the noop case costs one branch.
+func (in *Instrumentation) decide(ctx context.Context, r *router.Router, q router.Query) (router.Decision, error) {
 	var span trace.Span
 	recording := false
 	if in.tracer != nil {
 		ctx, span = in.tracer.Start(ctx, SpanDecide, in.startOp...)
 		recording = span.IsRecording()
-	} else if in.metricsOff {
-		return r.Decide(ctx, q) // both providers are the otel noop ones
 	}
 	timed := recording || (!in.metricsOff && in.latency.Enabled(ctx))
 	var start time.Time
