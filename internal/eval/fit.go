@@ -57,14 +57,15 @@ type FitResult struct {
 // was found, that chain (its edge supports; SqErr of the chain estimate); the
 // pooled samples go to scorer.FitSupport (least squares for v0, n0, β).
 //
+// With Base.SignalBias = γ > 0 the same iteration fits β of the SignalBias
+// model at that γ (Var then includes the signal term); the support fit is
+// unchanged.
+//
 // Cost: passes × worlds × (queries × one router decision + chain scorings);
 // the worlds are built once.
 func Fit(ctx context.Context, fc FitConfig) (FitResult, error) {
 	if len(fc.Seeds) == 0 {
 		return FitResult{}, fmt.Errorf("%w: fit needs at least one seed", ErrConfig)
-	}
-	if fc.Base.SignalBias != 0 {
-		return FitResult{}, fmt.Errorf("%w: fit the plain Bayes model (signal bias 0)", ErrConfig)
 	}
 	if fc.MaxIter <= 0 {
 		fc.MaxIter = 6
