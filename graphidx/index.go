@@ -101,6 +101,10 @@ var closedView = &view{closed: true}
 //
 // Cost: O(1) + O(labels + value sets) with WithLazyVerify; O(file size +
 // E·log(deg)) by default (E directed edges).
+//
+// The file must not be modified or truncated in place while it is open
+// (WriteFile never does: it replaces files by rename, and an open Index
+// keeps reading the old content). Truncating a mapped file makes reads fault.
 func Open(path string, opts ...OpenOption) (*Index, error) {
 	var cfg openConfig
 	for _, o := range opts {

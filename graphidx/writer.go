@@ -11,8 +11,10 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"runtime"
 	"slices"
 	"strings"
+	"syscall"
 )
 
 // WriteOption configures WriteFile.
@@ -110,21 +112,23 @@ func WriteFile(path string, src Source, opts ...WriteOption) (err error) {
 	return syncDir(dir)
 }
 
-// syncDir fsyncs a directory so a rename in it is durable. Platforms that
-// cannot open or sync directories are tolerated.
+// syncDir fsyncs a directory so a rename in it is durable. File systems
+// that do not support fsync on directories (EINVAL, unsupported) are
+// tolerated; Windows cannot flush directory handles and is skipped.
 func syncDir(dir string) error {
-	d, err := os.Open(dir)
-	if err != nil {
+	if runtime.GOOS == "windows" {
 		return nil
 	}
+	d, err := os.Open(dir)
+	if err != nil {
+		return fmt.Errorf("graphidx: open dir for sync: %w", err)
+	}
 	defer d.Close()
-	if err := d.Sync(); err != nil && !errors.Is(err, os.ErrInvalid) && !errors.Is(err, errors.ErrUnsupported) {
-		// Some file systems reject fsync on directories; the rename is still atomic.
-		var pe *os.PathError
-		if errors.As(err, &pe) {
+	if err := d.Sync(); err != nil {
+		if errors.Is(err, syscall.EINVAL) || errors.Is(err, errors.ErrUnsupported) {
 			return nil
 		}
-		return fmt.Errorf("graphidx: sync dir %s: %w", dir, err)
+		return fmt.Errorf("graphidx: sync dir: %w", err)
 	}
 	return nil
 }
