@@ -1,5 +1,7 @@
 package router
 
+import "strings"
+
 // Query asks whether the answer to "what is To, given From = Value" should be
 // direct or chained.
 type Query struct {
@@ -49,7 +51,9 @@ type Decision struct {
 	Reason Reason
 	// Truncated reports that a bound (beam, candidates, expansion budget or
 	// the context deadline) cut the search, so a better chain may exist.
-	Truncated  bool
+	Truncated bool
+	// Cut says which bounds cut the search (0 when not Truncated).
+	Cut        Cut
 	Generation uint64 // index generation the decision was computed on
 	// Arm is the A/B arm of the unit ("" without arms).
 	Arm string
@@ -65,6 +69,39 @@ type Decision struct {
 	Key string
 }
 
+// Cut is a set of search bounds that cut a search.
+type Cut uint8
+
+const (
+	// CutBeam: a beam layer (width B, or the index's ranked prefix) held
+	// only part of the neighbours.
+	CutBeam Cut = 1 << iota
+	// CutCandidates: more than k chains were generated; only the k
+	// proxy-cheapest were scored exactly.
+	CutCandidates
+	// CutBudget: the expansion budget ran out.
+	CutBudget
+	// CutDeadline: the context's deadline or cancellation stopped the search.
+	CutDeadline
+)
+
+var cutNames = [...]string{"beam", "candidates", "budget", "deadline"}
+
+// Names lists the bounds in the set ("beam", "candidates", "budget",
+// "deadline"), in that order. It allocates.
+func (c Cut) Names() []string {
+	var out []string
+	for i, n := range cutNames {
+		if c&(1<<i) != 0 {
+			out = append(out, n)
+		}
+	}
+	return out
+}
+
+// String joins Names with "+" ("" for none).
+func (c Cut) String() string { return strings.Join(c.Names(), "+") }
+
 // core is the arm-independent, cacheable result of a search.
 type core struct {
 	values     []string
@@ -73,6 +110,7 @@ type core struct {
 	gain       float64
 	score      float64
 	truncated  bool
+	cut        Cut
 	generation uint64
 }
 
@@ -86,6 +124,7 @@ func (s *settings) finish(c *core, q *Query, cached bool) Decision {
 		Gain:       c.gain,
 		Score:      c.score,
 		Truncated:  c.truncated,
+		Cut:        c.cut,
 		Generation: c.generation,
 		Propensity: 1,
 		Cached:     cached,

@@ -336,6 +336,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	c := core{
 		direct:     DirectResult{Estimate: fl[:k:k], Err: dir.Err, Support: dir.Support},
 		truncated:  res.truncated,
+		cut:        res.cut,
 		generation: h.gen,
 	}
 	var names []graphidx.EntityID

@@ -94,6 +94,9 @@ func TestSearchMatchesBruteForce(t *testing.T) {
 						if err != nil {
 							t.Fatalf("seed %d H %d %v: %v", seed, H, q, err)
 						}
+						if d.Truncated != (d.Cut != 0) {
+							t.Fatalf("Truncated %v but Cut %q", d.Truncated, d.Cut)
+						}
 						if i == 0 && d.Truncated {
 							t.Fatalf("seed %d H %d %v: loose search truncated", seed, H, q)
 						}
@@ -161,8 +164,8 @@ func TestTruncatedByBudget(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if !d.Truncated {
-		t.Fatal("budget 500 over 4000 adjacency entries: want Truncated")
+	if !d.Truncated || d.Cut&CutBudget == 0 {
+		t.Fatalf("budget 500 over 4000 adjacency entries: want Truncated by budget, got %v %q", d.Truncated, d.Cut)
 	}
 	// k bound: 2000 one-bridge chains, k = 16.
 	kcut := mustNew(t, g, WithMaxBridges(1), WithExpansionBudget(1<<20))
@@ -170,8 +173,8 @@ func TestTruncatedByBudget(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if !d.Truncated {
-		t.Fatal("k=16 over 2000 chains: want Truncated")
+	if !d.Truncated || d.Cut != CutCandidates {
+		t.Fatalf("k=16 over 2000 chains: want Truncated by candidates only, got %v %q", d.Truncated, d.Cut)
 	}
 	// An expired deadline before the search is an error; the context error is wrapped.
 	ctx, cancel := context.WithCancel(context.Background())
@@ -646,8 +649,8 @@ func TestDeadlineTruncates(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if !d.Truncated {
-		t.Fatal("cancelled mid-search: want Truncated")
+	if !d.Truncated || d.Cut&CutDeadline == 0 || d.Cut&CutBudget != 0 {
+		t.Fatalf("cancelled mid-search: want Truncated by the deadline, got %v %q", d.Truncated, d.Cut)
 	}
 	if r.CacheLen() != 0 {
 		t.Fatal("a deadline-truncated decision was cached")

@@ -461,6 +461,7 @@ func (sc *scratch) sortSteps2(dst, src []step2) []step2 {
 type searchResult struct {
 	truncated bool
 	deadline  bool
+	cut       Cut
 }
 
 // generate fills sc.heap with the k proxy-cheapest chains of at most H
@@ -610,9 +611,22 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 }
 
 func (sc *scratch) result(complete bool) searchResult {
+	var cut Cut
+	if sc.kCut {
+		cut |= CutCandidates
+	}
+	if sc.bud.deadline {
+		cut |= CutDeadline
+	} else if sc.bud.exhausted {
+		cut |= CutBudget
+	}
+	if !complete && !sc.bud.exhausted {
+		cut |= CutBeam
+	}
 	return searchResult{
 		truncated: !complete || sc.kCut || sc.bud.exhausted,
 		deadline:  sc.bud.deadline,
+		cut:       cut,
 	}
 }
 

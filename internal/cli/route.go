@@ -63,6 +63,7 @@ and writes one JSON line per input line, in input order:
    "truncated":false,"direct":{"estimate":{...},"err":x,"support":n},
    "chain":{"bridges":["B1",...],"estimate":{...},"err":y,"min_support":n}|null,
    "generation":"<hex>"}
+with "cut":["beam"|"candidates"|"budget"|"deadline",...] added when truncated.
 Estimates cover every value of the target, in the index's value order
 (decisions from a configured --fallback for unknown endpoints carry an empty
 estimate and their reason code says so). A bad
@@ -296,6 +297,7 @@ type routeLine struct {
 	Gain       float64     `json:"gain"`
 	Reason     string      `json:"reason"`
 	Truncated  bool        `json:"truncated"`
+	Cut        []string    `json:"cut,omitempty"`
 	Direct     routeDirect `json:"direct"`
 	Chain      *routeChain `json:"chain"`
 	Generation string      `json:"generation"`
@@ -317,6 +319,7 @@ func newRouteLine(q routeQuery, d router.Decision) routeLine {
 		Gain:       d.Gain,
 		Reason:     d.Reason.Code,
 		Truncated:  d.Truncated,
+		Cut:        d.Cut.Names(),
 		Direct:     routeDirect{Estimate: dist{d.Values, d.Direct.Estimate}, Err: d.Direct.Err, Support: d.Direct.Support},
 		Generation: fmt.Sprintf("%016x", d.Generation),
 		Arm:        d.Arm,
@@ -543,8 +546,8 @@ func explain(w io.Writer, q routeQuery, d router.Decision, cfg router.Config) er
 		fmt.Fprintf(&b, "chain      none within %d bridges\n", cfg.MaxBridges)
 	}
 	if d.Truncated {
-		fmt.Fprintf(&b, "search     truncated: a bound (beam %d, candidates %d, budget %d or deadline) cut it; a better chain may exist\n",
-			cfg.Beam, cfg.MaxCandidates, cfg.ExpansionBudget)
+		fmt.Fprintf(&b, "search     truncated by %s (beam %d, candidates %d, budget %d); a better chain may exist\n",
+			strings.Join(d.Cut.Names(), ", "), cfg.Beam, cfg.MaxCandidates, cfg.ExpansionBudget)
 	} else if d.Reason.Code != router.ReasonUnknownEntityFallback && d.Reason.Code != router.ReasonUnknownValueFallback {
 		fmt.Fprintf(&b, "search     complete: no bound was hit\n")
 	}

@@ -152,6 +152,9 @@ func TestRouteBatch(t *testing.T) {
 		if len(est) != 2 || math.Abs(sum-1) > 1e-9 {
 			t.Errorf("line %d: estimate %v does not cover the target's values", i+1, est)
 		}
+		if cut, ok := m["cut"].([]any); (m["truncated"] == true) != (ok && len(cut) > 0) {
+			t.Errorf("line %d: truncated %v with cut %v", i+1, m["truncated"], m["cut"])
+		}
 		d := m["direct"].(map[string]any)
 		for _, k := range []string{"estimate", "err", "support"} {
 			if _, ok := d[k]; !ok {
