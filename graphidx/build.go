@@ -160,54 +160,88 @@ func (cfg *buildConfig) emit(ev ProgressEvent) {
 // writes; workers read the name list (under mu) to rank entities when they
 // spill.
 type buildDict struct {
-	mu    sync.RWMutex
-	ids   map[string]uint32
-	names []string
-	vals  [][]string // per provisional entity, first-seen order
-	marg  [][]uint64
-	bytes atomic.Int64
+	mu     sync.RWMutex
+	ids    map[string]entSlot
+	names  []string
+	vals   [][]string // per provisional entity, first-seen order, canonical strings
+	marg   [][]uint64 // summed from the workers by finish
+	gvals  map[string]uint32
+	gnames []string
+	bytes  atomic.Int64
 
 	rankMu     sync.Mutex
 	rankN      int
 	rank, ordr []uint32
 }
 
-const dictEntryBytes = 160 // map entry, slices and headers per entity (estimate)
-
-func (d *buildDict) entity(name string) (uint32, error) {
-	if id, ok := d.ids[name]; ok {
-		return id, nil
-	}
-	if len(d.names) >= maxEntities {
-		return 0, ErrTooManyEntities
-	}
-	id := uint32(len(d.names))
-	name = strings.Clone(name) // the reader's string may be a transient view
-	d.mu.Lock()
-	d.ids[name] = id
-	d.names = append(d.names, name)
-	d.mu.Unlock()
-	d.vals = append(d.vals, nil)
-	d.marg = append(d.marg, nil)
-	d.bytes.Add(int64(len(name)) + dictEntryBytes)
-	return id, nil
+// entSlot is the map value of an entity: its id and the global ids of its
+// first values inline, so that the common lookup touches one map entry and
+// the small, cache-resident value map only.
+type entSlot struct {
+	id uint32
+	nv uint8
+	gv [inlineValues]uint16 // global value ids; noInline when ≥ 0xffff
 }
 
-func (d *buildDict) value(e uint32, v string) (uint32, bool) {
-	vs := d.vals[e]
-	for i, s := range vs {
-		if s == v {
-			return uint32(i), true
+const (
+	inlineValues   = 5
+	noInline       = 0xffff
+	dictEntryBytes = 160 // map entry, slices and headers per entity (estimate)
+)
+
+// observe interns one observation and returns its item entity<<6 | value.
+func (d *buildDict) observe(ent, val string) (uint32, error) {
+	slot, ok := d.ids[ent]
+	if !ok {
+		if len(d.names) >= maxEntities {
+			return 0, ErrTooManyEntities
+		}
+		slot = entSlot{id: uint32(len(d.names))}
+		name := strings.Clone(ent) // the reader's string may be a transient view
+		d.mu.Lock()
+		d.ids[name] = slot
+		d.names = append(d.names, name)
+		d.mu.Unlock()
+		d.vals = append(d.vals, nil)
+		d.bytes.Add(int64(len(name)) + dictEntryBytes)
+	}
+	g, ok := d.gvals[val]
+	if !ok {
+		c := strings.Clone(val)
+		g = uint32(len(d.gnames))
+		d.gvals[c] = g
+		d.gnames = append(d.gnames, c)
+		d.bytes.Add(int64(len(c)) + 64)
+	}
+	n := int(slot.nv)
+	if g < noInline {
+		for i := range min(n, inlineValues) {
+			if uint32(slot.gv[i]) == g {
+				return slot.id<<6 | uint32(i), nil
+			}
 		}
 	}
-	if len(vs) >= MaxValues {
-		return 0, false
+	vs := d.vals[slot.id]
+	if n > inlineValues || g >= noInline {
+		for i, s := range vs {
+			if s == val {
+				return slot.id<<6 | uint32(i), nil
+			}
+		}
 	}
-	v = strings.Clone(v)
-	d.vals[e] = append(vs, v)
-	d.marg[e] = append(d.marg[e], 0)
-	d.bytes.Add(int64(len(v)) + 24)
-	return uint32(len(vs)), true
+	if n >= MaxValues {
+		return 0, ErrTooManyValues
+	}
+	d.vals[slot.id] = append(vs, d.gnames[g])
+	if n < inlineValues {
+		slot.gv[n] = uint16(min(g, noInline))
+	}
+	slot.nv++
+	// Assign with the stored (cloned) name: a map assignment may replace the
+	// key with the one given, which could be a transient view.
+	d.ids[d.names[slot.id]] = slot
+	d.bytes.Add(24)
+	return slot.id<<6 | uint32(n), nil
 }
 
 func (d *buildDict) name(e uint32) string {
@@ -322,13 +356,19 @@ func (b *buildRun) numRuns() int {
 
 // pairShard is the worker that owns the pair (a, b) of provisional ids.
 func pairShard(a, b uint32, workers uint32) uint32 {
-	return ((a*0x9E3779B1 + b) >> 8) % workers
+	// Lemire's multiply-shift range reduction instead of a division.
+	return uint32(uint64(a*0x9E3779B1+b*0x85EBCA77) * uint64(workers) >> 32)
+}
+
+// entityShard is the worker that counts the marginals of entity e.
+func entityShard(e uint32, workers uint32) uint32 {
+	return uint32(uint64(e*0x9E3779B1) * uint64(workers) >> 32)
 }
 
 // worker counts the pairs of its shard (pairShard(a, b) == me) in every
 // batch: all workers see all contexts, each counts a disjoint set of pairs,
 // so the tables do not duplicate keys and together hold each cell once.
-func (b *buildRun) worker(ctx context.Context, me int, in <-chan *ctxBatch, free chan<- *ctxBatch) (*pairTab, error) {
+func (b *buildRun) worker(ctx context.Context, me int, in <-chan *ctxBatch, free chan<- *ctxBatch) (t *pairTab, marg [][]uint64, err error) {
 	nw := uint32(b.cfg.workers)
 	self := uint32(me)
 	// Start large enough to skip the early doublings, within the budget.
@@ -336,7 +376,7 @@ func (b *buildRun) worker(ctx context.Context, me int, in <-chan *ctxBatch, free
 	for slots < 1<<20 && int64(slots)*2*cellBytes*3 <= b.tableLimit() {
 		slots *= 2
 	}
-	t := newPairTab(slots)
+	t = newPairTab(slots)
 	var scratch []uint32
 	keys := make([]uint64, 0, 512)
 	for batch := range in {
@@ -345,6 +385,17 @@ func (b *buildRun) worker(ctx context.Context, me int, in <-chan *ctxBatch, free
 		}
 		for c := 0; c+1 < len(batch.off); c++ {
 			items := batch.items[batch.off[c]:batch.off[c+1]]
+			for _, x := range items {
+				if e := x >> 6; nw == 1 || entityShard(e, nw) == self {
+					for int(e) >= len(marg) {
+						marg = append(marg, nil)
+					}
+					for int(x&63) >= len(marg[e]) {
+						marg[e] = append(marg[e], 0)
+					}
+					marg[e][x&63]++
+				}
+			}
 			scratch = append(scratch[:0], items...)
 			if len(scratch) < 2 {
 				continue
@@ -364,7 +415,7 @@ func (b *buildRun) worker(ctx context.Context, me int, in <-chan *ctxBatch, free
 					if c < len(batch.ids) {
 						id = strconv.Quote(batch.ids[c])
 					}
-					return t, fmt.Errorf("%w: context %s: entity %s", ErrDuplicateEntity,
+					return t, marg, fmt.Errorf("%w: context %s: entity %s", ErrDuplicateEntity,
 						id, strconv.Quote(b.dict.name(scratch[i]>>6)))
 				}
 			}
@@ -379,13 +430,13 @@ func (b *buildRun) worker(ctx context.Context, me int, in <-chan *ctxBatch, free
 			}
 			if len(keys) >= 256 {
 				if err := b.addKeys(t, keys); err != nil {
-					return t, err
+					return t, marg, err
 				}
 				keys = keys[:0]
 			}
 		}
 		if err := b.addKeys(t, keys); err != nil {
-			return t, err
+			return t, marg, err
 		}
 		keys = keys[:0]
 		if batch.refs.Add(-1) == 0 {
@@ -395,7 +446,16 @@ func (b *buildRun) worker(ctx context.Context, me int, in <-chan *ctxBatch, free
 			}
 		}
 	}
-	return t, ctx.Err()
+	if err := ctx.Err(); err != nil {
+		return t, marg, err
+	}
+	// The input is closed, so every entity is interned and the ranks are
+	// final: sort the table here, in parallel with the other workers.
+	if t.used > 0 {
+		rank, _ := b.dict.ranks()
+		t.sorted = t.drain(rank)
+	}
+	return t, marg, nil
 }
 
 // addKeys counts keys into t. It first touches the slot of every key: the
@@ -434,7 +494,7 @@ func (b *buildRun) makeRoom(t *pairTab) error {
 
 func compileWith(ctx context.Context, r ContextReader, cfg buildConfig, start time.Time) (_ *Compiled, sum BuildSummary, err error) {
 	sum.Workers, sum.MemBudget = cfg.workers, cfg.memBudget
-	b := &buildRun{cfg: cfg, start: start, dict: &buildDict{ids: map[string]uint32{}}}
+	b := &buildRun{cfg: cfg, start: start, dict: &buildDict{ids: map[string]entSlot{}, gvals: map[string]uint32{}}}
 	defer func() {
 		if err != nil && b.dir != "" {
 			os.RemoveAll(b.dir)
@@ -450,13 +510,14 @@ func compileWith(ctx context.Context, r ContextReader, cfg buildConfig, start ti
 	}
 	free := make(chan *ctxBatch, 3*cfg.workers+1)
 	tables := make([]*pairTab, cfg.workers)
+	margs := make([][][]uint64, cfg.workers)
 	var wg sync.WaitGroup
 	for w := range cfg.workers {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
-			t, err := b.worker(wctx, w, in[w], free)
-			tables[w] = t
+			t, marg, err := b.worker(wctx, w, in[w], free)
+			tables[w], margs[w] = t, marg
 			if err != nil {
 				cancel(err)
 			}
@@ -482,6 +543,19 @@ func compileWith(ctx context.Context, r ContextReader, cfg buildConfig, start ti
 		return nil, sum, rerr
 	}
 
+	// Marginals: each worker counted the entities of its shard.
+	d := b.dict
+	d.marg = make([][]uint64, len(d.names))
+	for e := range d.marg {
+		d.marg[e] = make([]uint64, len(d.vals[e]))
+	}
+	for _, m := range margs {
+		for e, vs := range m {
+			for v, n := range vs {
+				d.marg[e][v] += n
+			}
+		}
+	}
 	comp, err := b.finish(ctx, tables, &sum)
 	if err != nil {
 		return nil, sum, err
@@ -555,17 +629,16 @@ func (b *buildRun) read(ctx context.Context, r ContextReader, in []chan *ctxBatc
 			if o.Entity == "" || o.Value == "" {
 				return fmt.Errorf("%w: context %s", ErrEmptyName, strconv.Quote(c.ID))
 			}
-			e, err := d.entity(o.Entity)
+			item, err := d.observe(o.Entity, o.Value)
 			if err != nil {
+				if errors.Is(err, ErrTooManyValues) {
+					slot := d.ids[o.Entity]
+					return fmt.Errorf("%w: entity %s, value %s in context %s (it already has %s)", ErrTooManyValues,
+						strconv.Quote(o.Entity), strconv.Quote(o.Value), strconv.Quote(c.ID), strings.Join(d.vals[slot.id], ","))
+				}
 				return err
 			}
-			v, ok := d.value(e, o.Value)
-			if !ok {
-				return fmt.Errorf("%w: entity %s, value %s in context %s (it already has %s)", ErrTooManyValues,
-					strconv.Quote(o.Entity), strconv.Quote(o.Value), strconv.Quote(c.ID), strings.Join(d.vals[e], ","))
-			}
-			d.marg[e][v]++
-			batch.items = append(batch.items, e<<6|v)
+			batch.items = append(batch.items, item)
 		}
 		if !transient {
 			batch.ids = append(batch.ids, c.ID)
@@ -636,7 +709,10 @@ func (b *buildRun) finish(ctx context.Context, tables []*pairTab, sum *BuildSumm
 	}()
 	for _, t := range tables {
 		if t != nil && t.used > 0 {
-			srcs = append(srcs, &memRun{cells: t.drain(rank)})
+			if t.sorted == nil {
+				t.sorted = t.drain(rank)
+			}
+			srcs = append(srcs, &memRun{cells: t.sorted})
 		}
 	}
 	runs := b.runs

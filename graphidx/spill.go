@@ -53,6 +53,8 @@ type pairTab struct {
 	shift uint
 	limit int
 	sink  uint64 // keeps the prefetching loads of addKeys alive
+	// sorted holds the final drained cells once the worker is done.
+	sorted []cell
 }
 
 func newPairTab(slots int) *pairTab {
@@ -323,6 +325,9 @@ var errCellOverflow = errors.New("count exceeds the uint32 range of a pair table
 // each calls fn with every distinct key and the sum of its counts, in
 // ascending key order.
 func (m *cellMerger) each(fn func(key uint64, n uint64) error) error {
+	if len(m.items) <= 4 {
+		return m.eachFew(fn)
+	}
 	for len(m.items) > 0 {
 		top := m.items[0].c.key
 		var sum uint64
@@ -346,6 +351,44 @@ func (m *cellMerger) each(fn func(key uint64, n uint64) error) error {
 			return err
 		}
 	}
+	return nil
+}
+
+// eachFew is each for at most 4 sources: a linear scan for the minimum is
+// cheaper than the heap's interface calls at that size.
+func (m *cellMerger) eachFew(fn func(key uint64, n uint64) error) error {
+	items := m.items
+	for len(items) > 0 {
+		top := items[0].c.key
+		for _, it := range items[1:] {
+			top = min(top, it.c.key)
+		}
+		var sum uint64
+		for i := 0; i < len(items); {
+			if items[i].c.key != top {
+				i++
+				continue
+			}
+			sum += uint64(items[i].c.n)
+			c, ok, err := items[i].src.next()
+			if err != nil {
+				return err
+			}
+			if !ok {
+				items = append(items[:i], items[i+1:]...)
+				continue
+			}
+			if c.key <= top {
+				return fmt.Errorf("graphidx: spill run out of order")
+			}
+			items[i].c = c
+			i++
+		}
+		if err := fn(top, sum); err != nil {
+			return err
+		}
+	}
+	m.items = items
 	return nil
 }
 
