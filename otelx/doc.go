@@ -22,6 +22,11 @@
 // the trace sampling ratio in use on every span, because the SDK samplers
 // do not: readers weight each decision by its inverse.
 //
+// Traces that feed tuning and A/B analysis must not lose spans silently: a
+// batch span processor drops spans when its queue is full, which acts as
+// sampling that no span records. Give it sdktrace.WithBlocking() or a queue
+// large enough for the peak rate, and check the SDK's dropped-span count.
+//
 // RecordOutcome reports the gateway's outcome (score in [0,1], tokens,
 // latency) in a span named SpanOutcome carrying the decision's unit key;
 // ReadOutcomes reads the same facts from a plain JSONL file instead. Join

@@ -62,7 +62,7 @@ Sample-ratio mismatch: a chi-square test of units per arm against the
 allocation (--allocation routed=0.9,direct-only=0.1, or the arms of a router
 --config file). Sample size: with --power P and --mde D, the units per arm
 needed to detect a success difference D at level --alpha, at the control's
-observed rate, and the power the current sizes give.
+observed rate, and the power the current sizes give (decisions per arm).
 
 Decisions are the unit of analysis (treated as independent); units are what
 the allocation assigns. Exit status: 0 on success, 1 on any error.`,
@@ -413,6 +413,12 @@ func runAB(o abOptions) (*abReport, error) {
 		if err != nil {
 			return nil, err
 		}
+		if math.IsInf(r.ChiSq, 1) {
+			// units in an arm of weight 0: a mismatch by definition; keep
+			// the JSON finite
+			r.ChiSq = math.MaxFloat64
+			rep.Notes = append(rep.Notes, "an arm with allocation weight 0 received units")
+		}
 		s.SRMResult = r
 		s.Mismatch = r.P < 0.001
 		rep.SRM = s
@@ -500,7 +506,7 @@ func (r *abReport) write(w io.Writer) error {
 		}
 	}
 	if p := r.Power; p != nil {
-		fmt.Fprintf(w, "\nsample size: %d units per arm detect a success difference of %.4g from %.4f with power %.2f at α = %.3g (normal approximation); "+
+		fmt.Fprintf(w, "\nsample size: %d decisions per arm detect a success difference of %.4g from %.4f with power %.2f at α = %.3g (normal approximation); "+
 			"the smallest arm has %d, giving power %.3f\n", p.NeededPer, p.MDE, p.Baseline, p.Target, p.Alpha, p.CurrentMin, p.Achieved)
 	}
 	for _, n := range r.Notes {

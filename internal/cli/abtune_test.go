@@ -3,6 +3,7 @@ package cli
 import (
 	"bytes"
 	"context"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"math"
@@ -142,7 +143,9 @@ func (e *e2eWorld) simulate(t *testing.T, path string, n int, ratio float64, see
 	if err != nil {
 		t.Fatal(err)
 	}
-	tp := sdktrace.NewTracerProvider(sdktrace.WithBatcher(exp),
+	// WithBlocking: a full queue waits instead of dropping spans, which
+	// would be sampling that no span records.
+	tp := sdktrace.NewTracerProvider(sdktrace.WithBatcher(exp, sdktrace.WithBlocking()),
 		sdktrace.WithSampler(sdktrace.TraceIDRatioBased(ratio)),
 		sdktrace.WithIDGenerator(&seededIDs{r: rand.New(rand.NewPCG(seed, 1))}))
 	in, err := otelx.New(otelx.WithTracerProvider(tp), otelx.WithSamplingRatio(ratio))
@@ -266,6 +269,12 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 	t.Parallel()
 	e := newE2EWorld(t)
 	dir := t.TempDir()
+	if keep := os.Getenv("HOPWISE_E2E_DIR"); keep != "" { // keep traces, config and plots for a look
+		dir = keep
+		if err := os.MkdirAll(dir, 0o755); err != nil {
+			t.Fatal(err)
+		}
+	}
 	traces := filepath.Join(dir, "traces.jsonl")
 	e.simulate(t, traces, 24000, 0.5, 1,
 		router.WithArms(router.ArmWeight{Arm: router.ArmRouted, Weight: 0.5}, router.ArmWeight{Arm: router.ArmDirectOnly, Weight: 0.5}),
@@ -382,6 +391,35 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 	if s := buf.String(); !strings.Contains(s, "recommended: gain_threshold") {
 		t.Errorf("tune output:\n%s", s)
 	}
+	for _, args := range [][]string{
+		{"ab", "--traces", traces, "--json", "--config", writeArmsConfig(t, dir)},
+		{"tune", "--traces", traces, "--reps", "50", "--json"},
+	} {
+		buf.Reset()
+		root = NewRoot()
+		root.SetOut(&buf)
+		root.SetArgs(args)
+		if err := root.Execute(); err != nil {
+			t.Fatalf("%v: %v", args, err)
+		}
+		var v map[string]any
+		if err := json.Unmarshal(buf.Bytes(), &v); err != nil {
+			t.Fatalf("%v: output is not JSON: %v\n%.500s", args, err, buf.String())
+		}
+		if _, ok := v["join"]; !ok {
+			t.Errorf("%v: JSON without join stats: %.300s", args, buf.String())
+		}
+	}
+}
+
+func writeArmsConfig(t *testing.T, dir string) string {
+	c := router.DefaultConfig()
+	c.Arms = []router.ArmWeight{{Arm: router.ArmRouted, Weight: 1}, {Arm: router.ArmDirectOnly, Weight: 1}}
+	path := filepath.Join(dir, "arms.json")
+	if err := router.SaveConfig(path, c); err != nil {
+		t.Fatal(err)
+	}
+	return path
 }
 
 func TestTuneRefusesMissingPropensity(t *testing.T) {

@@ -204,8 +204,8 @@ func runTune(o tuneOptions) (*tuneReport, error) {
 	if o.costPerToken < 0 || math.IsNaN(o.costPerToken) {
 		return nil, fmt.Errorf("--cost-per-token %v: want ≥ 0", o.costPerToken)
 	}
-	if o.out == "" && o.plots == "" && !o.json {
-		// A report alone is fine, but say what was asked for.
+	if o.reps < 1 {
+		return nil, fmt.Errorf("--reps %d: tune reports bootstrap intervals and needs at least 1 replicate (400 by default)", o.reps)
 	}
 	base := router.DefaultConfig()
 	if o.base != "" {
@@ -400,9 +400,29 @@ func calibration(js []otelx.Joined, bins int) []calibBin {
 
 func plotValue(path string, rep *tuneReport) error {
 	p := plot.New()
-	p.Title.Text = fmt.Sprintf("estimated policy value (%s) vs threshold τ", strings.ToUpper(rep.Estimator))
-	p.X.Label.Text = "τ (routing score threshold)"
-	p.Y.Label.Text = "estimated value: " + rep.Objective
+	p.Title.Text = fmt.Sprintf("estimated policy value (%s, %s) by threshold τ", strings.ToUpper(rep.Estimator), rep.Objective)
+	p.X.Label.Text = "τ (routing score threshold; grid points evenly spaced)"
+	p.Y.Label.Text = "estimated value with bootstrap interval"
+	// The automatic grid follows the quantiles of the logged scores, which
+	// bunch up, so points are placed by their rank in the τ grid and the
+	// ticks carry the τ values.
+	var taus []float64
+	for _, pol := range rep.Policies {
+		taus = append(taus, pol.Tau)
+	}
+	slices.Sort(taus)
+	taus = slices.Compact(taus)
+	rank := func(tau float64) float64 { i, _ := slices.BinarySearch(taus, tau); return float64(i) }
+	var ticks []plot.Tick
+	step := max(1, (len(taus)+7)/8)
+	for i, tau := range taus {
+		t := plot.Tick{Value: float64(i)}
+		if i%step == 0 || i == len(taus)-1 {
+			t.Label = strconv.FormatFloat(tau, 'g', 3, 64)
+		}
+		ticks = append(ticks, t)
+	}
+	p.X.Tick.Marker = plot.ConstantTicks(ticks)
 	byH := map[int][]tunePolicy{}
 	var hs []int
 	for _, pol := range rep.Policies {
@@ -420,11 +440,13 @@ func plotValue(path string, rep *tuneReport) error {
 	}
 	for k, h := range hs {
 		pts := byH[h]
+		slices.SortFunc(pts, func(a, b tunePolicy) int { return cmpFloat(a.Tau, b.Tau) })
 		xys := make(plotter.XYs, len(pts))
 		errs := make(plotter.YErrors, len(pts))
 		for i, pol := range pts {
 			e := pick(pol.PolicyResult, rep.Estimator).Value
-			xys[i].X, xys[i].Y = pol.Tau, e.Est
+			// spread the H series a little so their intervals stay visible
+			xys[i].X, xys[i].Y = rank(pol.Tau)+0.12*(float64(k)-float64(len(hs)-1)/2), e.Est
 			errs[i].Low, errs[i].High = e.Est-e.Lo, e.Hi-e.Est
 		}
 		line, points, err := plotter.NewLinePoints(xys)
@@ -433,6 +455,7 @@ func plotValue(path string, rep *tuneReport) error {
 		}
 		col := plotutil.Color(k)
 		line.Color, points.Color = col, col
+		points.Shape = plotutil.Shape(k)
 		bars, err := plotter.NewYErrorBars(struct {
 			plotter.XYs
 			plotter.YErrors
@@ -446,16 +469,27 @@ func plotValue(path string, rep *tuneReport) error {
 	}
 	if rep.Best != nil {
 		e := pick(rep.Best.PolicyResult, rep.Estimator).Value
-		s, err := plotter.NewScatter(plotter.XYs{{X: rep.Best.Tau, Y: e.Est}})
+		s, err := plotter.NewScatter(plotter.XYs{{X: rank(rep.Best.Tau), Y: e.Est}})
 		if err == nil {
 			s.Color = color.RGBA{R: 0xd0, A: 0xff}
-			s.Radius = vg.Points(5)
+			s.Radius = vg.Points(6)
 			p.Add(s)
 			p.Legend.Add(fmt.Sprintf("recommended τ=%.4g H=%d", rep.Best.Tau, rep.Best.MaxHops), s)
 		}
 	}
-	p.Legend.Top = true
-	return p.Save(7*vg.Inch, 4.5*vg.Inch, path)
+	p.Add(plotter.NewGrid())
+	p.Legend.Top = false
+	return p.Save(8*vg.Inch, 5*vg.Inch, path)
+}
+
+func cmpFloat(a, b float64) int {
+	switch {
+	case a < b:
+		return -1
+	case a > b:
+		return 1
+	}
+	return 0
 }
 
 func plotCalibration(path string, bins []calibBin) error {
@@ -494,7 +528,7 @@ func (r *tuneReport) write(w io.Writer) error {
 	}
 	fmt.Fprintf(w, "\nobjective %s, cost in %s; intervals: percentile bootstrap\n\n", r.Objective, r.CostUnit)
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
-	fmt.Fprintln(tw, "τ\tH\tchain share\tESS\tIPS value\tSNIPS value\tDR value\tDR cost\t")
+	fmt.Fprintln(tw, "τ\tH\tchain share\tESS\tIPS value\tSNIPS value\tDR value\tDR cost")
 	iv := func(i abstat.Interval) string { return fmt.Sprintf("%.4f [%.4f, %.4f]", i.Est, i.Lo, i.Hi) }
 	for _, p := range r.Policies {
 		mark := ""
@@ -505,10 +539,10 @@ func (r *tuneReport) write(w io.Writer) error {
 			mark += " (best)"
 		}
 		if !p.Supported {
-			fmt.Fprintf(tw, "%.4g\t%d\t%.3f\t%.1f\tno estimate: %s%s\t\t\t\t\n", p.Tau, p.MaxHops, p.ChainShare, p.ESS, p.Reason, mark)
+			fmt.Fprintf(tw, "%.4g\t%d\t%.3f\t%.1f\tno estimate: %s%s\n", p.Tau, p.MaxHops, p.ChainShare, p.ESS, p.Reason, mark)
 			continue
 		}
-		fmt.Fprintf(tw, "%.4g\t%d\t%.3f\t%.1f\t%s\t%s\t%s\t%.4g [%.4g, %.4g]%s\t\n", p.Tau, p.MaxHops, p.ChainShare, p.ESS,
+		fmt.Fprintf(tw, "%.4g\t%d\t%.3f\t%.1f\t%s\t%s\t%s\t%.4g [%.4g, %.4g]%s\n", p.Tau, p.MaxHops, p.ChainShare, p.ESS,
 			iv(p.IPS.Value), iv(p.SNIPS.Value), iv(p.DR.Value), p.DR.Cost.Est, p.DR.Cost.Lo, p.DR.Cost.Hi, mark)
 	}
 	if err := tw.Flush(); err != nil {
