@@ -60,9 +60,9 @@ Each arm against the control (--control, default direct-only when present):
   cost      difference of means with the Welch interval.
 Sample-ratio mismatch: a chi-square test of units per arm against the
 allocation (--allocation routed=0.9,direct-only=0.1, or the arms of a router
---config file). Sample size: with --power P and --mde D, the units per arm
+--config file). Sample size: with --power P and --mde D, the decisions per arm
 needed to detect a success difference D at level --alpha, at the control's
-observed rate, and the power the current sizes give (decisions per arm).
+observed rate, and the power the current sizes give.
 
 Decisions are the unit of analysis (treated as independent); units are what
 the allocation assigns. Exit status: 0 on success, 1 on any error.`,
