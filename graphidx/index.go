@@ -736,8 +736,13 @@ func (x *Index) NumPairs() uint64 { return x.v.Load().h.Pairs }
 // FORMAT.md). Equal files have equal generations.
 func (x *Index) Generation() uint64 { return x.v.Load().h.Generation }
 
-// Bytes returns the size of the index file in bytes.
-func (x *Index) Bytes() int64 { return x.size }
+// Bytes returns the size of the index file in bytes (0 after Close).
+func (x *Index) Bytes() int64 {
+	if x.v.Load().closed {
+		return 0
+	}
+	return x.size
+}
 
 // FormatVersion returns the file's format version.
 func (x *Index) FormatVersion() int { return int(x.v.Load().h.Version) }

@@ -527,7 +527,7 @@ func TestCloseContract(t *testing.T) {
 	if err := x.Close(); err != nil {
 		t.Fatalf("second Close: %v", err)
 	}
-	if x.NumEntities() != 0 || x.Neighbors(1) != nil || x.Name(0) != "" || x.Sections() != nil {
+	if x.NumEntities() != 0 || x.Bytes() != 0 || x.Neighbors(1) != nil || x.Name(0) != "" || x.Sections() != nil {
 		t.Fatal("closed index still answers")
 	}
 	if _, ok := x.Pair(0, 1); ok {
