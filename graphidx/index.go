@@ -1,6 +1,7 @@
 package graphidx
 
 import (
+	"context"
 	"encoding/binary"
 	"fmt"
 	"hash/crc32"
@@ -180,12 +181,16 @@ func (x *Index) Close() error {
 // Verify checks every section checksum, the padding and every structural
 // invariant, in O(file size + E·log(deg)). It returns nil, ErrClosed, or a
 // *CorruptionError. It is safe to call concurrently with readers.
-func (x *Index) Verify() error {
+func (x *Index) Verify() error { return x.VerifyContext(context.Background()) }
+
+// VerifyContext is Verify that stops early, returning ctx.Err(), when ctx is
+// done (it polls between sections and every 65536 entities).
+func (x *Index) VerifyContext(ctx context.Context) error {
 	v := x.v.Load()
 	if v.closed {
 		return ErrClosed
 	}
-	if err := v.verifyFull(); err != nil {
+	if err := v.verifyFull(ctx); err != nil {
 		if ce, ok := err.(*CorruptionError); ok {
 			ce.Path = x.path
 		}
@@ -266,7 +271,7 @@ func parse(data []byte, full bool) (*view, error) {
 	}
 	// 5. Section checksums and padding.
 	if full {
-		if err := v.checkSums(); err != nil {
+		if err := v.checkSums(context.Background()); err != nil {
 			return nil, err
 		}
 	}
@@ -277,7 +282,7 @@ func parse(data []byte, full bool) (*view, error) {
 	}
 	// 6. Structural invariants.
 	if full {
-		if err := v.checkStructure(); err != nil {
+		if err := v.checkStructure(context.Background()); err != nil {
 			return nil, err
 		}
 	}
@@ -406,9 +411,12 @@ func (v *view) section(id int) []byte {
 }
 
 // checkSums verifies every section's CRC-32C and that padding is zero.
-func (v *view) checkSums() error {
+func (v *view) checkSums(ctx context.Context) error {
 	pos := uint64(headerSize)
 	for i, s := range v.h.Sections {
+		if err := ctx.Err(); err != nil {
+			return err
+		}
 		for _, b := range v.data[pos:s.Offset] {
 			if b != 0 {
 				return corruptf(ErrCorrupt, "non-zero padding before section %s", sectionName(i+1))

@@ -2,6 +2,7 @@ package graphidx
 
 import (
 	"bytes"
+	"context"
 	"errors"
 	"hash/crc32"
 	"os"
@@ -643,5 +644,24 @@ func TestCopyDecodePath(t *testing.T) {
 				}
 			}
 		}
+	}
+}
+
+// TestVerifyContext: a cancelled context stops Verify with ctx.Err(), which
+// is not a corruption.
+func TestVerifyContext(t *testing.T) {
+	t.Parallel()
+	x, err := Open(ixWriteTemp(t, ixRandomSource(50, 4, 2, 1)), WithLazyVerify())
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer x.Close()
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	if err := x.VerifyContext(ctx); !errors.Is(err, context.Canceled) || IsCorruption(err) {
+		t.Fatalf("VerifyContext(cancelled) = %v", err)
+	}
+	if err := x.VerifyContext(context.Background()); err != nil {
+		t.Fatal(err)
 	}
 }

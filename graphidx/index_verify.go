@@ -1,21 +1,32 @@
 package graphidx
 
-import "slices"
+import (
+	"context"
+	"slices"
+)
 
 // verifyFull checks every checksum, the padding and the structural
 // invariants of a decoded view.
-func (v *view) verifyFull() error {
-	if err := v.checkSums(); err != nil {
+func (v *view) verifyFull(ctx context.Context) error {
+	if err := v.checkSums(ctx); err != nil {
 		return err
 	}
-	return v.checkStructure()
+	return v.checkStructure(ctx)
+}
+
+// cancelled polls ctx every 64Ki iterations of a verification loop.
+func cancelled(ctx context.Context, i uint64) error {
+	if i&0xffff != 0 {
+		return nil
+	}
+	return ctx.Err()
 }
 
 // checkStructure validates the invariants every reader relies on for
 // correct (not merely safe) answers. It assumes checkHeader and
 // checkLabels passed. Cost: O(file size + E·(log deg + K²)) time and
 // 8 bytes per directed edge of temporary memory.
-func (v *view) checkStructure() error {
+func (v *view) checkStructure(ctx context.Context) error {
 	n := v.n
 	h := &v.h
 	// Names: offsets span the bytes, names non-empty and strictly ascending.
@@ -24,6 +35,9 @@ func (v *view) checkStructure() error {
 	}
 	prev := ""
 	for i := uint64(0); i < n; i++ {
+		if err := cancelled(ctx, i); err != nil {
+			return err
+		}
 		s, e, ok := span(v.nameOffs, i, len(v.nameBytes))
 		if !ok || s == e {
 			return corruptf(ErrCorrupt, "entity %d: name offsets [%d, %d) invalid or empty", i, v.nameOffs[i], v.nameOffs[i+1])
@@ -46,6 +60,9 @@ func (v *view) checkStructure() error {
 		}
 	}
 	for i := uint64(0); i < n; i++ {
+		if err := cancelled(ctx, i); err != nil {
+			return err
+		}
 		m := v.marginal(EntityID(i))
 		if m == nil {
 			return corruptf(ErrCorrupt, "entity %d: marginal offsets invalid", i)
@@ -69,6 +86,9 @@ func (v *view) checkStructure() error {
 		return corruptf(ErrCorrupt, "pair base does not span the %d pairs", h.Pairs)
 	}
 	for i := uint64(0); i < n; i++ {
+		if err := cancelled(ctx, i); err != nil {
+			return err
+		}
 		if _, _, ok := span(v.nbrOffs, i, len(v.nbrs)); !ok {
 			return corruptf(ErrCorrupt, "entity %d: neighbour offsets not monotone", i)
 		}
@@ -101,6 +121,9 @@ func (v *view) checkStructure() error {
 	edgeSup := make([]uint64, len(v.nbrs))
 	var q uint64
 	for lo := uint64(0); lo < n; lo++ {
+		if err := cancelled(ctx, lo); err != nil {
+			return err
+		}
 		up, base := v.upperNeighbors(EntityID(lo))
 		if base != q {
 			return corruptf(ErrCorrupt, "entity %d: pair base %d, want %d", lo, base, q)
@@ -152,6 +175,9 @@ func (v *view) checkStructure() error {
 	}
 	R := uint64(h.RankPrefix)
 	for i := uint64(0); i < n; i++ {
+		if err := cancelled(ctx, i); err != nil {
+			return err
+		}
 		s, e, ok := span(v.rankOffs, i, len(v.rank))
 		nb := v.neighbors(EntityID(i))
 		if !ok || uint64(e-s) != min(uint64(len(nb)), R) {

@@ -2,6 +2,7 @@ package cli
 
 import (
 	"cmp"
+	"context"
 	"encoding/json"
 	"fmt"
 	"io"
@@ -50,7 +51,7 @@ other errors (missing file, unknown entity, bad flags).`,
   hopwise inspect --index greenhouse.hwx --json --verify`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
-			return runInspect(cmd.OutOrStdout(), o)
+			return runInspect(cmd.Context(), cmd.OutOrStdout(), o)
 		},
 	}
 	f := cmd.Flags()
@@ -111,7 +112,7 @@ type neighborReport struct {
 	Table [][]uint32 `json:"table"`
 }
 
-func runInspect(w io.Writer, o inspectOptions) error {
+func runInspect(ctx context.Context, w io.Writer, o inspectOptions) error {
 	if o.index == "" {
 		return fmt.Errorf("inspect: --index is required")
 	}
@@ -146,7 +147,7 @@ func runInspect(w io.Writer, o inspectOptions) error {
 	}
 	if o.verify {
 		start := time.Now()
-		if err := x.Verify(); err != nil {
+		if err := x.VerifyContext(ctx); err != nil {
 			return indexError(err)
 		}
 		rep.Verified = true
