@@ -298,7 +298,11 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 
 	res := sc.generate(adjacent)
 
-	// Stage 2: exact scores of the k proxy-best candidates.
+	// Stage 2: exact scores of the k proxy-best candidates, shortest first.
+	// A chain of m bridges has Err ≥ β·m (β = HopBias, charged per bridge),
+	// so its score is at most the bound below; a candidate whose bound
+	// cannot beat the best score so far is skipped without scoring (exact:
+	// ties never replace the incumbent).
 	sc.sortCands()
 	best := -1
 	var bestEst struct {
@@ -307,6 +311,15 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	}
 	for i := range sc.heap {
 		cd := &sc.heap[i]
+		if best >= 0 {
+			ub := dir.Err - sc.hb*float64(cd.m)
+			if st.utility {
+				ub = st.lambda*ub - st.hopCost*float64(cd.m)
+			}
+			if ub <= bestEst.score {
+				continue
+			}
+		}
 		sc.path = append(sc.path[:0], cd.b[:cd.m]...)
 		est, err := st.model.Chain(sc.ws, g, s, u, sc.path, t)
 		if err != nil {

@@ -68,74 +68,83 @@ func bruteBest(t *testing.T, g *memGraph, m scorer.Model, s graphidx.EntityID, u
 // must still be the optimum (the completeness claim in search.go).
 func TestSearchMatchesBruteForce(t *testing.T) {
 	t.Parallel()
-	model, err := scorer.NewBayes()
-	if err != nil {
-		t.Fatal(err)
-	}
 	ctx := context.Background()
-	checked, untrunc := 0, 0
-	for seed := uint64(1); seed <= 30; seed++ {
-		n := 8 + int(seed%9)
-		p := []float64{0.2, 0.35, 0.5}[seed%3]
-		g := randomGraph(seed, n, p)
-		for _, H := range []int{1, 2, 3} {
-			loose := mustNew(t, g, WithModel(model), WithMaxBridges(H), WithBeam(1<<10), WithMaxCandidates(1<<16), WithExpansionBudget(1<<30), WithCacheSize(0))
-			B := 1 + int(seed%4)
-			tight := mustNew(t, g, WithModel(model), WithMaxBridges(H), WithBeam(B), WithMaxCandidates(1+int(seed%5)), WithCacheSize(0))
-			for s := 0; s < n; s++ {
-				for tt := 0; tt < n; tt++ {
-					if s == tt || (s+tt+H)%3 != 0 {
-						continue
-					}
-					q := Query{From: g.names[s], Value: g.values[s][0], To: g.names[tt]}
-					want, wantErr, nChains := bruteBest(t, g, model, graphidx.EntityID(s), 0, graphidx.EntityID(tt), H)
-					for i, r := range []*Router{loose, tight} {
-						d, err := r.Decide(ctx, q)
-						if err != nil {
-							t.Fatalf("seed %d H %d %v: %v", seed, H, q, err)
-						}
-						if d.Truncated != (d.Cut != 0) {
-							t.Fatalf("Truncated %v but Cut %q", d.Truncated, d.Cut)
-						}
-						if i == 0 && d.Truncated {
-							t.Fatalf("seed %d H %d %v: loose search truncated", seed, H, q)
-						}
-						if d.Truncated {
+	checked, untrunc, long := 0, 0, 0
+	// β = 0 lets long chains win; the default β mostly favours one bridge.
+	for _, beta := range []float64{0, 0.002, scorer.DefaultBeta} {
+		model, err := scorer.NewBayes(scorer.WithBeta(beta))
+		if err != nil {
+			t.Fatal(err)
+		}
+		for seed := uint64(1); seed <= 30; seed++ {
+			n := 8 + int(seed%9)
+			p := []float64{0.2, 0.35, 0.5}[seed%3]
+			g := randomGraph(seed, n, p)
+			for _, H := range []int{1, 2, 3} {
+				loose := mustNew(t, g, WithModel(model), WithMaxBridges(H), WithBeam(1<<10), WithMaxCandidates(1<<16), WithExpansionBudget(1<<30), WithCacheSize(0))
+				B := 1 + int(seed%4)
+				tight := mustNew(t, g, WithModel(model), WithMaxBridges(H), WithBeam(B), WithMaxCandidates(1+int(seed%5)), WithCacheSize(0))
+				for s := 0; s < n; s++ {
+					for tt := 0; tt < n; tt++ {
+						if s == tt || (s+tt+H)%3 != 0 {
 							continue
 						}
-						checked++
-						if i == 1 {
-							untrunc++
-						}
-						if nChains == 0 {
-							if d.Chain != nil {
-								t.Fatalf("seed %d: chain %v found where none exists", seed, d.Chain.Bridges)
+						q := Query{From: g.names[s], Value: g.values[s][0], To: g.names[tt]}
+						want, wantErr, nChains := bruteBest(t, g, model, graphidx.EntityID(s), 0, graphidx.EntityID(tt), H)
+						for i, r := range []*Router{loose, tight} {
+							d, err := r.Decide(ctx, q)
+							if err != nil {
+								t.Fatalf("seed %d H %d %v: %v", seed, H, q, err)
 							}
-							continue
-						}
-						if d.Chain == nil {
-							t.Fatalf("seed %d H %d %v (router %d): no chain, brute force has %d (best err %g)", seed, H, q, i, nChains, wantErr)
-						}
-						if math.Abs(d.Chain.Err-wantErr) > 1e-12 {
-							names := make([]string, len(want))
-							for j, b := range want {
-								names[j] = g.names[b]
+							if d.Truncated != (d.Cut != 0) {
+								t.Fatalf("Truncated %v but Cut %q", d.Truncated, d.Cut)
 							}
-							t.Fatalf("seed %d H %d %v (router %d): chain %v err %.15g, brute force %v err %.15g",
-								seed, H, q, i, d.Chain.Bridges, d.Chain.Err, names, wantErr)
-						}
-						if len(d.Chain.Bridges) > H {
-							t.Fatalf("chain longer than H")
+							if i == 0 && d.Truncated {
+								t.Fatalf("seed %d H %d %v: loose search truncated", seed, H, q)
+							}
+							if d.Truncated {
+								continue
+							}
+							checked++
+							if i == 1 {
+								untrunc++
+							}
+							if nChains == 0 {
+								if d.Chain != nil {
+									t.Fatalf("seed %d: chain %v found where none exists", seed, d.Chain.Bridges)
+								}
+								continue
+							}
+							if d.Chain == nil {
+								t.Fatalf("seed %d H %d %v (router %d): no chain, brute force has %d (best err %g)", seed, H, q, i, nChains, wantErr)
+							}
+							if math.Abs(d.Chain.Err-wantErr) > 1e-12 {
+								names := make([]string, len(want))
+								for j, b := range want {
+									names[j] = g.names[b]
+								}
+								t.Fatalf("seed %d H %d %v (router %d): chain %v err %.15g, brute force %v err %.15g",
+									seed, H, q, i, d.Chain.Bridges, d.Chain.Err, names, wantErr)
+							}
+							if len(d.Chain.Bridges) > H {
+								t.Fatalf("chain longer than H")
+							}
+							if len(d.Chain.Bridges) > 1 {
+								long++
+							}
 						}
 					}
 				}
 			}
 		}
 	}
+	if long == 0 {
+		t.Fatal("no multi-bridge optimum checked")
+	}
 	if untrunc == 0 {
 		t.Fatal("no untruncated tight search; the test does not exercise the completeness claim")
 	}
-	t.Logf("checked %d decisions against brute force (%d under tight bounds)", checked, untrunc)
+	t.Logf("checked %d decisions against brute force (%d under tight bounds, %d with a multi-bridge optimum)", checked, untrunc, long)
 }
 
 // TestTruncatedByBudget: a hub search cut by the expansion budget says so.

@@ -630,13 +630,14 @@ func (sc *scratch) result(complete bool) searchResult {
 	}
 }
 
-// sortCands orders the heap by ascending proxy cost, then hops, then ids.
+// sortCands orders the heap by hops, then ascending proxy cost, then ids:
+// short chains are scored first, which lets the β·m bound skip long ones.
 func (sc *scratch) sortCands() {
 	slices.SortFunc(sc.heap, func(a, b cand) int {
-		if c := cmp.Compare(a.cost, b.cost); c != 0 {
+		if c := cmp.Compare(a.m, b.m); c != 0 {
 			return c
 		}
-		if c := cmp.Compare(a.m, b.m); c != 0 {
+		if c := cmp.Compare(a.cost, b.cost); c != 0 {
 			return c
 		}
 		for i := 0; i < int(a.m); i++ {
