@@ -131,3 +131,26 @@ func TestInspect(t *testing.T) {
 		t.Fatal("missing --index accepted")
 	}
 }
+
+// TestInspectBeyondRankPrefix asks for more neighbours than the index's
+// ranked prefix holds, so inspect ranks the full adjacency list itself.
+func TestInspectBeyondRankPrefix(t *testing.T) {
+	t.Parallel()
+	path := filepath.Join(t.TempDir(), "gh1.hwx")
+	if err := graphidx.WriteFile(path, inspectSource{}, graphidx.WithRankPrefix(1)); err != nil {
+		t.Fatal(err)
+	}
+	out, err := runCLI(t, "inspect", "--index", path, "--json", "--entity", "pump.a", "--top", "5")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var rep inspectReport
+	if err := json.Unmarshal([]byte(out), &rep); err != nil {
+		t.Fatal(err)
+	}
+	// vent.east support 3 (c1 c2 c3), bed.north 2 (c1 c4).
+	nb := rep.Entity.Neighbors
+	if rep.RankPrefix != 1 || len(nb) != 2 || nb[0].Name != "vent.east" || nb[0].Support != 3 || nb[1].Name != "bed.north" || nb[1].Support != 2 {
+		t.Fatalf("neighbours = %+v", nb)
+	}
+}
