@@ -15,8 +15,10 @@
 // token) and 5xx for server faults (503 closed, 504 timeout).
 //
 // Each /v1/answer request runs under Config.RequestTimeout; the routing
-// decision gets Config.DecideTimeout of it (a deadline reached during the
-// bridge search truncates the search, it is not an error). Decisions are
+// decision gets Config.DecideTimeout of it. A deadline reached during the
+// bridge search truncates the search; one that passes before the search
+// starts (an overloaded process) degrades to a direct answer with reason
+// "decide-timeout" instead of failing the request. Decisions are
 // traced through otelx; the trace exporter is chosen by the caller (see the
 // gateway command: an OTLP JSON Lines file or OTLP/HTTP).
 //

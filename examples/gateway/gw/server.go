@@ -27,6 +27,10 @@ const (
 	MaxNameBytes = graphidx.MaxNameBytes
 )
 
+// ReasonDecideTimeout is the route reason of a request whose routing
+// decision missed Config.DecideTimeout: it is answered directly.
+const ReasonDecideTimeout = "decide-timeout"
+
 // Config configures New.
 type Config struct {
 	// IndexPath is the locality index file; /admin/reload-index reopens it.
@@ -239,13 +243,14 @@ func (s *Server) Ask(ctx context.Context, q AskRequest) (AskResponse, error) {
 	d, err := s.tel.Decide(dctx, s.rt, rq)
 	dcancel()
 	if err != nil {
-		if errors.Is(err, context.DeadlineExceeded) && ctx.Err() == nil {
-			// The decide deadline passed before the search could start
-			// (a deadline reached during the search only truncates it).
-			return AskResponse{}, &RequestError{http.StatusGatewayTimeout, "decide_timeout",
-				fmt.Sprintf("no routing decision within %v", s.cfg.DecideTimeout)}
+		if !errors.Is(err, context.DeadlineExceeded) || ctx.Err() != nil {
+			return AskResponse{}, classify(err)
 		}
-		return AskResponse{}, classify(err)
+		// The decide deadline passed before the search could start (one
+		// reached during the search only truncates it): degrade to the
+		// cheap direct answer rather than fail the request.
+		d = router.Decision{Mode: router.ModeDirect, Key: q.Key, Propensity: 1, Generation: s.rt.Generation(),
+			Reason: router.Reason{Code: ReasonDecideTimeout, Text: fmt.Sprintf("no routing decision within %v; answered directly", s.cfg.DecideTimeout)}}
 	}
 	a, err := s.ans.Answer(ctx, Request{Query: rq, Mode: d.Mode, Bridges: d.Bridges})
 	if err != nil {
