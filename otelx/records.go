@@ -204,7 +204,7 @@ func (a *attrReader) fail(key, format string, args ...any) {
 }
 
 func typeName(v *commonpb.AnyValue) string {
-	switch v.Value.(type) {
+	switch v.GetValue().(type) {
 	case *commonpb.AnyValue_StringValue:
 		return "string"
 	case *commonpb.AnyValue_BoolValue:
@@ -233,7 +233,7 @@ func (a *attrReader) str(key string, required bool) string {
 		}
 		return ""
 	}
-	if s, ok := v.Value.(*commonpb.AnyValue_StringValue); ok {
+	if s, ok := v.GetValue().(*commonpb.AnyValue_StringValue); ok {
 		return s.StringValue
 	}
 	a.fail(key, "want string, got %s", typeName(v))
@@ -249,7 +249,7 @@ func (a *attrReader) float(key string, def float64, required bool) float64 {
 		}
 		return def
 	}
-	switch x := v.Value.(type) {
+	switch x := v.GetValue().(type) {
 	case *commonpb.AnyValue_DoubleValue:
 		return x.DoubleValue
 	case *commonpb.AnyValue_IntValue:
@@ -264,7 +264,7 @@ func (a *attrReader) int(key string) int64 {
 	if !ok {
 		return 0
 	}
-	if x, ok := v.Value.(*commonpb.AnyValue_IntValue); ok {
+	if x, ok := v.GetValue().(*commonpb.AnyValue_IntValue); ok {
 		return x.IntValue
 	}
 	a.fail(key, "want int, got %s", typeName(v))
@@ -285,7 +285,7 @@ func (a *attrReader) bool(key string) bool {
 	if !ok {
 		return false
 	}
-	if x, ok := v.Value.(*commonpb.AnyValue_BoolValue); ok {
+	if x, ok := v.GetValue().(*commonpb.AnyValue_BoolValue); ok {
 		return x.BoolValue
 	}
 	a.fail(key, "want bool, got %s", typeName(v))
@@ -297,14 +297,14 @@ func (a *attrReader) strings(key string) []string {
 	if !ok {
 		return nil
 	}
-	arr, ok := v.Value.(*commonpb.AnyValue_ArrayValue)
+	arr, ok := v.GetValue().(*commonpb.AnyValue_ArrayValue)
 	if !ok {
 		a.fail(key, "want string array, got %s", typeName(v))
 		return nil
 	}
 	out := make([]string, 0, len(arr.ArrayValue.GetValues()))
 	for i, e := range arr.ArrayValue.GetValues() {
-		s, ok := e.Value.(*commonpb.AnyValue_StringValue)
+		s, ok := e.GetValue().(*commonpb.AnyValue_StringValue)
 		if !ok {
 			a.fail(key, "element %d: want string, got %s", i, typeName(e))
 			return nil
