@@ -323,6 +323,18 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 		t.Logf("note: DR interval %v does not cover the true value %.4f", rep.Best.DR.Value, got)
 	}
 
+	// Priced tokens: at 1e-3 per token a chain's extra ~88 tokens cost more
+	// than its +0.03 score, so the priced recommendation chains less.
+	priced, err := runTune(tuneOptions{traces: []string{traces}, objective: "score-cost", costPerToken: 1e-3,
+		tauPoints: 21, estimator: "dr", floor: ope.DefaultFloor, minESS: ope.DefaultMinESS, reps: 100, seed: 1, conf: 0.95, arm: router.ArmRouted})
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Logf("tune score-cost: τ=%.5g H=%d chain share %.3f (score-only %.3f)", priced.Best.Tau, priced.Best.MaxHops, priced.Best.ChainShare, rep.Best.ChainShare)
+	if priced.Best.ChainShare >= rep.Best.ChainShare {
+		t.Errorf("pricing tokens did not reduce chaining: %.3f vs %.3f", priced.Best.ChainShare, rep.Best.ChainShare)
+	}
+
 	// ab: routed vs direct-only
 	ab, err := runAB(abOptions{traces: []string{traces}, success: 0.5, conf: 0.95, reps: 500, seed: 1, alpha: 0.05,
 		allocation: "routed=0.5,direct-only=0.5", power: 0.8, mde: 0.02})
