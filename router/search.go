@@ -15,29 +15,32 @@ import (
 // A chain with m bridges is s=b0 → b1 → … → bm → t=b(m+1).
 //
 //   - m = 1: every b1 ∈ N(s) ∩ N(t), by a merge of the two id-sorted
-//     adjacency lists, or a galloping search when one is more than 32× longer.
-//   - m = 2, 3: meet in the middle. Beams grow from both ends: F1 (T1) holds
-//     the B best-ranked (highest-support, so cheapest) neighbours of s (t),
-//     read in order from the support-ranked adjacency prefix; F2 (T2) B two-hop paths taken
-//     breadth-first by rank from the ranked lists of the F1 (T1) nodes. The
-//     halves are joined on shared nodes by sort-merge:
-//     m = 2 from F2 ⋈ T1 (s→a→b, b→t) and F1 ⋈ T2 (s→a, t→c→a);
-//     m = 3 from F2 ⋈ T2 (s→a→b, t→c→b, a ≠ c). Only the second edge of a
-//     two-hop path that takes part in a join is looked up.
+//     adjacency lists, or a galloping search when one is more than 32×
+//     longer. This phase may spend half the budget (the intersection half
+//     of that), so a hub leaves room for the rest.
+//   - m = 2, 3: meet in the middle. Beams grow from both ends: F1 (T1)
+//     holds the B best-ranked (highest-support, so cheapest) neighbours of
+//     s (t), read in order from the support-ranked adjacency prefix; F2 (T2)
+//     holds B two-hop paths taken breadth-first by rank from the ranked lists
+//     of the F1 (T1) nodes. The halves are joined on shared nodes by
+//     sort-merge: m = 2 from F2 ⋈ T1 (s→a→b, b→t) and F1 ⋈ T2 (s→a,
+//     t→c→a); m = 3 from F2 ⋈ T2 (s→a→b, t→c→b, a ≠ c).
 //
 // Stage 1 ranks the generated chains by the additive proxy
 // Σ_edges model.EdgeCost(support) + model.HopBias()·m and keeps the k
 // cheapest in a bounded max-heap (a chain met from both sides is kept once).
-// Stage 2 scores those k exactly with model.Chain and picks the largest
-// score: the gain E_direct − E_chain, or λ·gain − c_hop·m (settings.finish).
+// Stage 2 (Router.compute) scores those k exactly with model.Chain, shortest
+// first, skipping a chain whose bound E_direct − β·m cannot beat the best,
+// and picks the largest score: the gain E_direct − E_chain, or
+// λ·gain − c_hop·m.
 //
-// Cost: O(I + B·log B + B² + k·C) where I is the intersection, O(|a|+|b|)
-// by merge or O(|a|·log(|b|/|a|)) by galloping; the beams are read from the
-// ranked lists without look-ups, and an edge cost is looked up (once) only
-// for a node or path that takes part in a join; B² bounds a join of equal
-// middle nodes, and C is one exact chain score (O(m·K³)). Intersections and look-ups are charged to
-// the expansion budget, so a hub with millions of neighbours costs at most
-// the budget, and the context's deadline is polled every 256 units.
+// Cost: O(I + B·log B + B² + k·C). I is the intersection, O(|a|+|b|) by
+// merge or O(|a|·log(|b|/|a|)) by galloping. The beams are read from the
+// ranked lists without look-ups; an edge cost is looked up (once) only for
+// a node or path that takes part in a join. B² bounds a join of equal middle
+// nodes, and C is one exact chain score (O(m·K³)). List steps cost 1 budget
+// unit and look-ups lookupUnits, so a hub with millions of neighbours costs
+// at most the budget; the context's deadline is polled every 256 units.
 //
 // Completeness: the result is the exact optimum over all simple chains of
 // at most H bridges whenever Truncated is false, i.e. when the intersection
@@ -45,7 +48,7 @@ import (
 // H ≥ 2), F2 and T2 do (for H = 3), the heap never overflowed, and neither
 // budget nor deadline ran out. EdgeCost must be ≥ 0 (pruning relies on it)
 // and is assumed non-increasing in support (the beams read support-ranked
-// lists in order).
+// lists in order); a model's Err must be ≥ HopBias()·m (stage 2 bound).
 
 // step1 is a first-layer beam node; cost is its edge cost from the origin,
 // NaN until a join needs it (cost1).
