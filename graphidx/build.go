@@ -186,7 +186,7 @@ type entSlot struct {
 const (
 	inlineValues   = 5
 	noInline       = 0xffff
-	dictEntryBytes = 160 // map entry, slices and headers per entity (estimate)
+	dictEntryBytes = 256 // map entry, names, values, workers' marginals per entity (estimate)
 )
 
 // observe interns one observation and returns its item entity<<6 | value.
@@ -319,11 +319,18 @@ func (b *buildRun) tempDir() (string, error) {
 // read buffers, batches in flight, merge buffers.
 const fixedOverhead = 512 << 10
 
-// tableLimit is the most bytes one worker's table may use right now.
+// tableLimit is the most bytes one worker's table may use right now,
+// transients included. One eighth of the budget is left to the garbage
+// collector's headroom and the runtime.
 func (b *buildRun) tableLimit() int64 {
-	free := b.cfg.memBudget - fixedOverhead - b.dict.bytes.Load()
+	free := b.cfg.memBudget - b.cfg.memBudget/8 - fixedOverhead - b.dict.bytes.Load()
 	return max(free/int64(b.cfg.workers), 64<<10)
 }
+
+// canGrow reports whether a table of the given bytes may double: growing
+// holds the old and the new table (3×), and the doubled table later needs
+// its sort buffer at a spill (2× + 0.75·2× = 3.5×).
+func (b *buildRun) canGrow(bytes int64) bool { return 7*bytes <= 2*b.tableLimit() }
 
 // spill writes a drained table as a run.
 func (b *buildRun) spill(t *pairTab) error {
@@ -373,7 +380,7 @@ func (b *buildRun) worker(ctx context.Context, me int, in <-chan *ctxBatch, free
 	self := uint32(me)
 	// Start large enough to skip the early doublings, within the budget.
 	slots := 1 << 12
-	for slots < 1<<20 && int64(slots)*2*cellBytes*3 <= b.tableLimit() {
+	for slots < 1<<20 && b.canGrow(int64(slots)*cellBytes) {
 		slots *= 2
 	}
 	t = newPairTab(slots)
@@ -454,6 +461,9 @@ func (b *buildRun) worker(ctx context.Context, me int, in <-chan *ctxBatch, free
 	if t.used > 0 {
 		rank, _ := b.dict.ranks()
 		t.sorted = t.drain(rank)
+		if len(t.sorted) > 0 && &t.sorted[0] != &t.slots[0] {
+			t.slots = nil // the sorted copy is all that is needed now
+		}
 	}
 	return t, marg, nil
 }
@@ -485,7 +495,7 @@ func (b *buildRun) addKeys(t *pairTab, keys []uint64) error {
 // makeRoom grows the table if the budget allows, else spills it.
 func (b *buildRun) makeRoom(t *pairTab) error {
 	// Growing holds the old and the new table at once: 3× the current size.
-	if 3*t.bytes() <= b.tableLimit() {
+	if b.canGrow(t.bytes()) {
 		t.grow()
 		return nil
 	}
@@ -745,7 +755,9 @@ func (b *buildRun) finish(ctx context.Context, tables []*pairTab, sum *BuildSumm
 		dir = b.dir
 	}
 	comp.store = &pairStore{dir: dir, memLimit: max(b.cfg.memBudget/4, 1<<20)}
-	if dir == "" {
+	if dir != "" {
+		comp.store.memLimit = 0 // spilled: memory is short, stream to disk
+	} else {
 		// Nothing spilled: keep the compiled pairs in memory unless huge.
 		comp.store.dir = b.cfg.tempDir
 	}

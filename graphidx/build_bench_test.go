@@ -221,3 +221,29 @@ func TestBuildSpeedup(t *testing.T) {
 	t.Logf("naive baseline: %.0f contexts/s wall, %.0f per CPU-second", ns, nc)
 	t.Logf("ratio: %.1fx wall, %.1fx per CPU-second", hs/ns, hc/nc)
 }
+
+// TestWriteBenchCorpus writes a large benchmark corpus for measuring the
+// peak RSS of "hopwise build" with /usr/bin/time -v. It only runs when
+// HOPWISE_BENCH_CORPUS names the output file; HOPWISE_BENCH_CONTEXTS and
+// HOPWISE_BENCH_ENTITIES set the size (defaults 2,000,000 and 200,000).
+func TestWriteBenchCorpus(t *testing.T) {
+	path := os.Getenv("HOPWISE_BENCH_CORPUS")
+	if path == "" {
+		t.Skip("set HOPWISE_BENCH_CORPUS=file to write the corpus")
+	}
+	n, ents := 2_000_000, 200_000
+	fmt.Sscan(os.Getenv("HOPWISE_BENCH_CONTEXTS"), &n)
+	fmt.Sscan(os.Getenv("HOPWISE_BENCH_ENTITIES"), &ents)
+	f, err := os.Create(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	const chunk = 100_000
+	for i := 0; i < n; i += chunk {
+		// Seed per chunk so the file is deterministic.
+		if _, err := f.Write(benchCorpus(min(chunk, n-i), ents, uint64(i)+1)); err != nil {
+			t.Fatal(err)
+		}
+	}
+}

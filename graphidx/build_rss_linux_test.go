@@ -1,0 +1,63 @@
+package graphidx
+
+import (
+	"context"
+	"os"
+	"path/filepath"
+	"runtime/debug"
+	"strconv"
+	"strings"
+	"testing"
+)
+
+// procStatus returns a field of /proc/self/status, e.g. "VmHWM:" (peak RSS).
+func procStatus(field string) string {
+	b, _ := os.ReadFile("/proc/self/status")
+	for _, l := range strings.Split(string(b), "\n") {
+		if strings.HasPrefix(l, field) {
+			return strings.TrimSpace(l[len(field):])
+		}
+	}
+	return "?"
+}
+
+// TestBuildPeakRSS logs the resident set after each build phase of a large
+// corpus, to check that spilling keeps the counting within the budget (the
+// target is the budget + 25%). It runs only when HOPWISE_RSS_CORPUS names a
+// corpus (see TestWriteBenchCorpus); HOPWISE_RSS_BUDGET sets the budget in
+// MiB (default 256). Like the CLI, it sets a soft memory limit of the budget
+// plus 1/8. The write phase is WriteFile's own memory, logged separately.
+func TestBuildPeakRSS(t *testing.T) {
+	path := os.Getenv("HOPWISE_RSS_CORPUS")
+	if path == "" {
+		t.Skip("set HOPWISE_RSS_CORPUS=file to measure")
+	}
+	mib := int64(256)
+	if v, err := strconv.ParseInt(os.Getenv("HOPWISE_RSS_BUDGET"), 10, 64); err == nil {
+		mib = v
+	}
+	budget := mib << 20
+	defer debug.SetMemoryLimit(debug.SetMemoryLimit(budget + budget/8))
+	r, cl, err := OpenCorpus(path, "", "")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer cl.Close()
+	last := ""
+	c, sum, err := Compile(context.Background(), r, WithMemBudget(budget), WithTempDir(t.TempDir()),
+		WithProgress(func(ev ProgressEvent) {
+			if ev.Phase != last {
+				t.Logf("start of %-5s RSS %s, peak %s", ev.Phase, procStatus("VmRSS:"), procStatus("VmHWM:"))
+				last = ev.Phase
+			}
+		}))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer c.Close()
+	t.Logf("compiled: budget %d MiB, peak RSS %s, %d spill runs, %d pairs", mib, procStatus("VmHWM:"), sum.SpillRuns, sum.Pairs.After)
+	if err := WriteFile(filepath.Join(t.TempDir(), "rss.idx"), c); err != nil {
+		t.Fatal(err)
+	}
+	t.Logf("written: peak RSS %s (includes WriteFile)", procStatus("VmHWM:"))
+}
