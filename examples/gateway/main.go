@@ -132,8 +132,10 @@ func tracerProvider(ctx context.Context, traceFile, endpoint string) (*sdktrace.
 	if err != nil {
 		return nil, err
 	}
+	// The batcher blocks rather than drop spans when its queue is full: a
+	// dropped decision is unrecorded sampling and would bias hopwise tune.
 	return sdktrace.NewTracerProvider(
-		sdktrace.WithBatcher(exp),
+		sdktrace.WithBatcher(exp, sdktrace.WithBlocking()),
 		sdktrace.WithResource(resource.NewSchemaless(attribute.String("service.name", "hopwise-gateway"))),
 	), nil
 }
