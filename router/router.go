@@ -288,51 +288,52 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	sc.g, sc.model, sc.st, sc.s, sc.t = g, st.model, st, s, t
 	sc.hb = st.model.HopBias()
 	sc.bud = budget{left: st.budget, nextCheck: deadlinePoll, done: ctx.Done()}
+	sc.u = u
 
 	dir, err := st.model.Direct(sc.ws, g, s, u, t)
 	if err != nil {
 		return core{}, false, nil, fmt.Errorf("router: direct estimate %q=%q → %q: %w", q.From, q.Value, q.To, err)
 	}
 	sc.ddist = append(sc.ddist[:0], dir.Dist...)
+	sc.dirErr = dir.Err
 	_, adjacent := g.Pair(s, t)
 
 	res := sc.generate(adjacent)
 
-	// Stage 2: exact scores of the k proxy-best candidates, shortest first.
-	// A chain of m bridges has Err ≥ β·m (β = HopBias, charged per bridge),
-	// so its score is at most the bound below; a candidate whose bound
-	// cannot beat the best score so far is skipped without scoring (exact:
-	// ties never replace the incumbent).
+	// Stage 2: exact scores of the k proxy-best candidates, shortest first,
+	// starting from the incumbent scored during generation. A chain of m
+	// bridges has Err ≥ β·m (β = HopBias, charged per bridge), so its score
+	// is at most sc.bound(m); a candidate whose bound cannot beat the best so
+	// far is skipped without scoring (exact: ties never replace the best).
+	if sc.err != nil {
+		return core{}, false, nil, fmt.Errorf("router: chain estimate %q → %q: %w", q.From, q.To, sc.err)
+	}
 	sc.sortCands()
-	best := -1
+	var bestC cand
 	var bestEst struct {
+		ok    bool
 		err   float64
 		score float64
 	}
+	if sc.inc.ok {
+		bestC = sc.inc.c
+		bestEst.ok, bestEst.err, bestEst.score = true, sc.inc.err, sc.inc.score
+		sc.dist = append(sc.dist[:0], sc.incDist...)
+	}
 	for i := range sc.heap {
 		cd := &sc.heap[i]
-		if best >= 0 {
-			ub := dir.Err - sc.hb*float64(cd.m)
-			if st.utility {
-				ub = st.lambda*ub - st.hopCost*float64(cd.m)
-			}
-			if ub <= bestEst.score {
-				continue
-			}
+		if bestEst.ok && (sc.bound(int(cd.m)) <= bestEst.score || (sc.inc.ok && cd.m == sc.inc.c.m && cd.b == sc.inc.c.b)) {
+			continue
 		}
 		sc.path = append(sc.path[:0], cd.b[:cd.m]...)
 		est, err := st.model.Chain(sc.ws, g, s, u, sc.path, t)
 		if err != nil {
 			return core{}, false, nil, fmt.Errorf("router: chain estimate %q → %q: %w", q.From, q.To, err)
 		}
-		gain := dir.Err - est.Err
-		score := gain
-		if st.utility {
-			score = st.lambda*gain - st.hopCost*float64(cd.m)
-		}
-		if best < 0 || score > bestEst.score {
-			best = i
-			bestEst.err, bestEst.score = est.Err, score
+		score := sc.scoreOf(dir.Err-est.Err, int(cd.m))
+		if !bestEst.ok || score > bestEst.score {
+			bestC = *cd
+			bestEst.ok, bestEst.err, bestEst.score = true, est.Err, score
 			sc.dist = append(sc.dist[:0], est.Dist...)
 		}
 	}
@@ -341,7 +342,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	values := g.Values(t)
 	k := len(sc.ddist)
 	nf := k
-	if best >= 0 {
+	if bestEst.ok {
 		nf += len(sc.dist)
 	}
 	fl := make([]float64, nf)
@@ -353,14 +354,13 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 		generation: h.gen,
 	}
 	var names []graphidx.EntityID
-	if best >= 0 {
-		cd := sc.heap[best]
-		names = cd.b[:cd.m]
+	if bestEst.ok {
+		names = bestC.b[:bestC.m]
 	}
 	strs := cloneStrings(g, values, names)
 	c.values = strs[:len(values):len(values)]
-	if best >= 0 {
-		cd := sc.heap[best]
+	if bestEst.ok {
+		cd := bestC
 		copy(fl[k:], sc.dist)
 		minSup := ^uint64(0)
 		prev := s

@@ -147,14 +147,25 @@ type scratch struct {
 	dist     []float64 // best chain's Dist copy
 	ddist    []float64 // direct Dist copy
 
+	// incumbent: a chain scored exactly during generation
+	inc struct {
+		ok         bool
+		c          cand
+		err, score float64
+	}
+	incDist []float64
+	err     error // model failure during generation
+
 	// per call
-	g     Graph
-	model scorer.Model
-	st    *settings
-	s, t  graphidx.EntityID
-	hb    float64
-	bud   budget
-	kCut  bool // the candidate heap overflowed or pruned
+	u      int
+	dirErr float64
+	g      Graph
+	model  scorer.Model
+	st     *settings
+	s, t   graphidx.EntityID
+	hb     float64
+	bud    budget
+	kCut   bool // the candidate heap overflowed or pruned
 }
 
 func newScratch() *scratch { return &scratch{ws: scorer.NewWorkspace()} }
@@ -164,6 +175,8 @@ func (sc *scratch) reset() {
 	clear(sc.rks[:cap(sc.rks)]) // drop references into the index
 	sc.kCut = false
 	sc.bud = budget{}
+	sc.inc.ok = false
+	sc.err = nil
 }
 
 // edge returns the proxy cost of the pair (a, b); ok is false when the pair
@@ -511,6 +524,24 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 		return sc.result(complete)
 	}
 
+	// Incumbent: score the proxy-best one-bridge chain exactly. Longer
+	// chains have score ≤ bound(m) (Err ≥ β·m); a phase whose bound cannot
+	// beat the incumbent is skipped, which loses nothing, so it is no cut.
+	if len(sc.heap) > 0 {
+		bi := 0
+		for i := range sc.heap {
+			if candLess(&sc.heap[i], &sc.heap[bi]) {
+				bi = i
+			}
+		}
+		if !sc.scoreIncumbent(sc.heap[bi]) {
+			return sc.result(complete)
+		}
+		if sc.bound(2) <= sc.inc.score {
+			return sc.result(complete)
+		}
+	}
+
 	// Beams from both ends.
 	var f1ok, t1ok, f2ok, t2ok bool
 	sc.f1, f1ok = sc.layer1(sc.f1, s, t, adjacent)
@@ -574,6 +605,10 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 		return sc.result(complete)
 	}
 
+	if sc.inc.ok && sc.bound(3) <= sc.inc.score {
+		return sc.result(complete)
+	}
+
 	// m = 3: F2 ⋈ T2 on the middle node (s→a→b, t→c→b, a ≠ c).
 	for i, j := 0, 0; i < len(sc.f2s) && j < len(sc.t2s); {
 		fb, tb := sc.f2s[i].b, sc.t2s[j].b
@@ -633,21 +668,51 @@ func (sc *scratch) result(complete bool) searchResult {
 	}
 }
 
-// sortCands orders the heap by hops, then ascending proxy cost, then ids:
-// short chains are scored first, which lets the β·m bound skip long ones.
-func (sc *scratch) sortCands() {
-	slices.SortFunc(sc.heap, func(a, b cand) int {
-		if c := cmp.Compare(a.m, b.m); c != 0 {
+// candCmp orders candidates by hops, then ascending proxy cost, then ids.
+func candCmp(a, b cand) int {
+	if c := cmp.Compare(a.m, b.m); c != 0 {
+		return c
+	}
+	if c := cmp.Compare(a.cost, b.cost); c != 0 {
+		return c
+	}
+	for i := 0; i < int(a.m); i++ {
+		if c := cmp.Compare(a.b[i], b.b[i]); c != 0 {
 			return c
 		}
-		if c := cmp.Compare(a.cost, b.cost); c != 0 {
-			return c
-		}
-		for i := 0; i < int(a.m); i++ {
-			if c := cmp.Compare(a.b[i], b.b[i]); c != 0 {
-				return c
-			}
-		}
-		return 0
-	})
+	}
+	return 0
+}
+
+func candLess(a, b *cand) bool { return candCmp(*a, *b) < 0 }
+
+// sortCands orders the heap by candCmp: short chains are scored first,
+// which lets the β·m bound skip long ones.
+func (sc *scratch) sortCands() { slices.SortFunc(sc.heap, candCmp) }
+
+// scoreOf is the routing score of a chain with the given gain and hops.
+func (sc *scratch) scoreOf(gain float64, m int) float64 {
+	if sc.st.utility {
+		return sc.st.lambda*gain - sc.st.hopCost*float64(m)
+	}
+	return gain
+}
+
+// bound is the largest score a chain of m bridges can have: its Err is at
+// least β·m, so its gain at most E_direct − β·m.
+func (sc *scratch) bound(m int) float64 { return sc.scoreOf(sc.dirErr-sc.hb*float64(m), m) }
+
+// scoreIncumbent scores c exactly and records it as the incumbent. It
+// returns false (with sc.err set) when the model fails.
+func (sc *scratch) scoreIncumbent(c cand) bool {
+	sc.path = append(sc.path[:0], c.b[:c.m]...)
+	est, err := sc.model.Chain(sc.ws, sc.g, sc.s, sc.u, sc.path, sc.t)
+	if err != nil {
+		sc.err = err
+		return false
+	}
+	sc.inc.ok, sc.inc.c = true, c
+	sc.inc.err, sc.inc.score = est.Err, sc.scoreOf(sc.dirErr-est.Err, int(c.m))
+	sc.incDist = append(sc.incDist[:0], est.Dist...)
+	return true
 }
