@@ -25,12 +25,13 @@ type buildOpts struct {
 	minSupport                                       uint64
 	maxNeighbors, workers                            int
 	strict, quiet                                    bool
+	counts                                           buildCountsOpts
 }
 
 func newBuildCmd() *cobra.Command {
 	var o buildOpts
 	cmd := &cobra.Command{
-		Use:   "build --corpus PATH --out PATH [flags]",
+		Use:   "build (--corpus PATH | --from-counts DIR) --out PATH [flags]",
 		Short: "Build a locality index from a corpus of contexts",
 		Long: `build reads a corpus of contexts, counts which entities are observed together
 and with which values, and writes the locality index to --out (through a
@@ -61,6 +62,10 @@ Pruning. --min-support drops pairs seen together in fewer contexts;
 --max-neighbors keeps each entity's N best neighbours by support (a pair stays
 if either endpoint keeps it). Both are reported in the summary.
 
+Count shards. --counts-out DIR also writes the corpus's unpruned counts as
+shards (a second pass over the corpus) for "hopwise merge"; --from-counts DIR
+compiles an index from such shards (or the Beam job's) instead of a corpus.
+
 Progress goes to stderr: a bar on a terminal, a line every few seconds
 otherwise (--quiet silences both). The summary goes to stdout.
 Exit status: 0 on success, 2 for bad input (a bad line with --strict, a bad
@@ -74,7 +79,7 @@ CSV header or lexicon, too many values), 1 for other errors.`,
 		},
 	}
 	f := cmd.Flags()
-	f.StringVar(&o.corpus, "corpus", "", "corpus file (required)")
+	f.StringVar(&o.corpus, "corpus", "", "corpus file (required unless --from-counts)")
 	f.StringVar(&o.format, "format", "", "corpus format: jsonl, csv or text (default: from the extension)")
 	f.StringVar(&o.lexicon, "lexicon", "", "lexicon TSV for text corpora: surface form<TAB>entity id")
 	f.StringVar(&o.out, "out", "", "index file to write (required)")
@@ -85,7 +90,7 @@ CSV header or lexicon, too many values), 1 for other errors.`,
 	f.StringVar(&o.tempDir, "temp-dir", "", "directory for spilled runs (default: the system temp dir)")
 	f.BoolVar(&o.strict, "strict", false, "stop at the first bad line instead of skipping and counting it")
 	f.BoolVar(&o.quiet, "quiet", false, "no progress output")
-	_ = cmd.MarkFlagRequired("corpus")
+	addBuildCountsFlags(cmd, &o.counts)
 	_ = cmd.MarkFlagRequired("out")
 	return cmd
 }
@@ -94,6 +99,14 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	budget, err := parseByteSize(o.memBudget)
 	if err != nil {
 		return &ExitError{Code: 2, Err: fmt.Errorf("--mem-budget: %w", err)}
+	}
+	switch {
+	case o.counts.fromCounts != "" && o.corpus != "":
+		return &ExitError{Code: 2, Err: errors.New("give either --corpus or --from-counts, not both")}
+	case o.counts.fromCounts != "":
+		return runBuildFromCounts(cmd, o.counts.fromCounts, o.out, o.minSupport, o.maxNeighbors)
+	case o.corpus == "":
+		return &ExitError{Code: 2, Err: errors.New(`required flag "corpus" not set (or give --from-counts)`)}
 	}
 	if o.workers < 0 {
 		return &ExitError{Code: 2, Err: fmt.Errorf("--workers must not be negative, got %d", o.workers)}
@@ -143,6 +156,25 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	out := cmd.OutOrStdout()
 	fmt.Fprintf(out, "wrote %s\n", o.out)
 	fmt.Fprint(out, sum.String())
+	if o.counts.countsOut != "" {
+		return buildCountsOut(cmd, o, format, policy)
+	}
+	return nil
+}
+
+// buildCountsOut reads the corpus a second time and writes its counts as
+// shards to --counts-out.
+func buildCountsOut(cmd *cobra.Command, o buildOpts, format string, policy graphidx.BadLinePolicy) error {
+	r, closer, err := graphidx.OpenCorpus(o.corpus, format, o.lexicon, graphidx.WithPolicy(policy), graphidx.WithTempDir(o.tempDir))
+	if err != nil {
+		return classifyBuildErr(err)
+	}
+	defer closer.Close()
+	n, err := writeCorpusCounts(cmd.Context(), r, o.counts.countsOut, o.counts.shards)
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(cmd.OutOrStdout(), "counts        %d bytes in %d shards under %s\n", n, o.counts.shards, o.counts.countsOut)
 	return nil
 }
 

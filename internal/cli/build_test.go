@@ -1,6 +1,7 @@
 package cli
 
 import (
+	"bytes"
 	"errors"
 	"os"
 	"path/filepath"
@@ -61,6 +62,25 @@ func TestBuildCommand(t *testing.T) {
 	if _, err := os.Stat(filepath.Join(dir, "s.idx")); !os.IsNotExist(err) {
 		t.Errorf("strict failure left an index: %v", err)
 	}
+	// --counts-out then --from-counts gives the same index bytes.
+	counts := filepath.Join(dir, "counts")
+	direct := filepath.Join(dir, "direct.idx")
+	if got, err := runCLI(t, "build", "--corpus", corpus, "--out", direct, "--quiet", "--counts-out", counts, "--shards", "3"); err != nil {
+		t.Fatalf("%v\n%s", err, got)
+	}
+	viaCounts := filepath.Join(dir, "counts.idx")
+	if got, err := runCLI(t, "build", "--from-counts", counts, "--out", viaCounts); err != nil {
+		t.Fatalf("%v\n%s", err, got)
+	}
+	a, _ := os.ReadFile(direct)
+	b, _ := os.ReadFile(viaCounts)
+	if len(a) == 0 || !bytes.Equal(a, b) {
+		t.Errorf("index from counts differs: %d vs %d bytes", len(a), len(b))
+	}
+	if _, err := runCLI(t, "build", "--out", viaCounts); err == nil {
+		t.Error("build without --corpus or --from-counts succeeded")
+	}
+
 	// Pruning flags reach the builder.
 	got, err = runCLI(t, "build", "--corpus", corpus, "--out", out, "--quiet", "--min-support", "2")
 	if err != nil || !strings.Contains(got, "pairs         1 kept of 4; 3 below min support 2") {
