@@ -447,3 +447,83 @@ func ExampleCompileCounts() {
 	// vent3 [open shut] [1 1]
 	// zone2.humidity [high] [2]
 }
+
+// FuzzDecodeCountShard: no input makes the decoder panic, and an accepted
+// shard re-encodes to the same bytes (the encoding is canonical).
+func FuzzDecodeCountShard(f *testing.F) {
+	p := NewPartial()
+	for _, c := range []Context{
+		{ID: "c1", Obs: []Observation{{"vent3", "open"}, {"zone2", "high"}}},
+		{ID: "c2", Obs: []Observation{{"vent3", "shut"}, {"zone2", "high"}, {"pump1", "on"}}},
+	} {
+		if err := p.Add(c); err != nil {
+			f.Fatal(err)
+		}
+	}
+	var buf bytes.Buffer
+	if _, err := writeCountShard(&buf, p, 0, 1, p.Contexts(), true); err != nil {
+		f.Fatal(err)
+	}
+	f.Add(buf.Bytes())
+	f.Add([]byte(CountsMagic))
+	f.Add([]byte{})
+	f.Fuzz(func(t *testing.T, b []byte) {
+		q := NewPartial()
+		hd, err := DecodeCountShard(b, "fuzz", q)
+		if err != nil {
+			if !errors.Is(err, ErrBadCounts) {
+				t.Fatalf("error does not wrap ErrBadCounts: %v", err)
+			}
+			return
+		}
+		var out bytes.Buffer
+		if _, err := writeCountShard(&out, q, hd.Shard, hd.Shards, hd.Contexts, true); err != nil {
+			t.Fatalf("re-encode: %v", err)
+		}
+		if !bytes.Equal(out.Bytes(), b) {
+			t.Fatalf("accepted shard is not canonical")
+		}
+	})
+}
+
+func BenchmarkCountShards(b *testing.B) {
+	corpus := greenhouseCorpus(7, 20000, 200)
+	p := NewPartial()
+	r := NewJSONLReader(bytes.NewReader(corpus), "bench.jsonl")
+	for {
+		c, err := r.Next()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			b.Fatal(err)
+		}
+		if err := p.Add(c); err != nil {
+			b.Fatal(err)
+		}
+	}
+	b.Run("write", func(b *testing.B) {
+		b.ReportAllocs()
+		var n int64
+		for b.Loop() {
+			var err error
+			if n, err = WriteCounts(b.TempDir(), p, 8); err != nil {
+				b.Fatal(err)
+			}
+		}
+		b.ReportMetric(float64(n)/float64(p.Len()), "bytes/cell")
+	})
+	dir := b.TempDir()
+	if _, err := WriteCounts(dir, p, 8); err != nil {
+		b.Fatal(err)
+	}
+	b.Run("compile", func(b *testing.B) {
+		b.ReportAllocs()
+		for b.Loop() {
+			src, sum, err := CompileCounts(context.Background(), dir)
+			if err != nil || sum.Contexts != p.Contexts() || len(src.Entities()) == 0 {
+				b.Fatalf("compile: %v, %d contexts", err, sum.Contexts)
+			}
+		}
+	})
+}
