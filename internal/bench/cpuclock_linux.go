@@ -25,3 +25,13 @@ func threadCPUOverhead() (float64, bool) {
 	}
 	return summarize(ns).P50, true
 }
+
+// threadFaults returns the calling thread's minor and major page faults
+// (getrusage(RUSAGE_THREAD)).
+func threadFaults() (minor, major int64) {
+	var ru unix.Rusage
+	if err := unix.Getrusage(unix.RUSAGE_THREAD, &ru); err != nil {
+		return 0, 0
+	}
+	return ru.Minflt, ru.Majflt
+}

@@ -102,6 +102,11 @@ type Phase struct {
 	// mean time per call, timed without per-call timers (cached phase
 	// only): robust to the preemptions a shared machine adds.
 	LoopMeanNs float64 `json:"loop_mean_ns,omitempty"`
+	// MinorFaults and MajorFaults are page faults of the deciding thread
+	// per call (Linux getrusage): first touches of index pages (minor) and
+	// reads from disk (major).
+	MinorFaults float64 `json:"minor_faults_per_op"`
+	MajorFaults float64 `json:"major_faults_per_op"`
 	// Load is the time to build the baseline's structures from the index.
 	LoadSeconds float64 `json:"load_seconds,omitempty"`
 }
@@ -121,6 +126,11 @@ type Agreement struct {
 	SameBest int      `json:"same_bridges"`
 	Ties     int      `json:"ties"`
 	Examples []string `json:"disagreements,omitempty"`
+	// NoWorse counts, over all queries (cut or not), those where the
+	// router's best chain error is at most the baseline's (+1e-12), or the
+	// baseline found no chain: a quality comparison under the bounds.
+	NoWorse     int     `json:"router_no_worse"`
+	NoWorseRate float64 `json:"router_no_worse_rate"`
 }
 
 // AgreementCheck is one agreement experiment.
@@ -401,6 +411,10 @@ func (r *runner) baselines(ctx context.Context, ix *graphidx.Index, model scorer
 	rep.Ratios["map_bfs_vs_router_p50"] = mph.Latency.P50 / u.P50
 	rep.Ratios["gonum_vs_router_mean"] = gph.Latency.Mean / u.Mean
 	rep.Ratios["gonum_vs_router_p50"] = gph.Latency.P50 / u.P50
+	if c := rep.Uncached.CPU; c != nil && mph.CPU != nil && gph.CPU != nil {
+		rep.Ratios["map_bfs_vs_router_cpu_mean"] = mph.CPU.Mean / c.Mean
+		rep.Ratios["gonum_vs_router_cpu_mean"] = gph.CPU.Mean / c.Mean
+	}
 
 	rep.Agreement = append(rep.Agreement, AgreementCheck{
 		Name:   "same queries, timed bounds",
@@ -527,6 +541,9 @@ func Agree(d router.Decision, r Result) (bool, bool, string) {
 func agreement(ds []router.Decision, rs []Result) Agreement {
 	a := Agreement{Queries: len(ds)}
 	for i := range ds {
+		if !rs[i].HasChain || (ds[i].Chain != nil && ds[i].Chain.Err <= rs[i].ChainErr+1e-12) {
+			a.NoWorse++
+		}
 		if ds[i].Truncated || rs[i].Truncated {
 			continue
 		}
@@ -545,6 +562,9 @@ func agreement(ds []router.Decision, rs []Result) Agreement {
 	}
 	if a.Checked > 0 {
 		a.Rate = float64(a.Agreed) / float64(a.Checked)
+	}
+	if a.Queries > 0 {
+		a.NoWorseRate = float64(a.NoWorse) / float64(a.Queries)
 	}
 	return a
 }
@@ -647,6 +667,7 @@ func measureRouter(ctx context.Context, rt *router.Router, qs []router.Query, wa
 	runtime.LockOSThread()
 	defer runtime.UnlockOSThread()
 	cpuCost, cpuOK := threadCPUOverhead()
+	min0, maj0 := threadFaults()
 	mallocs, bytes, err := memDelta(func() error {
 		for i, q := range qs {
 			c0 := threadCPU()
@@ -664,6 +685,9 @@ func measureRouter(ctx context.Context, rt *router.Router, qs []router.Query, wa
 	if err != nil {
 		return nil, ph, err
 	}
+	min1, maj1 := threadFaults()
+	ph.MinorFaults = float64(min1-min0) / float64(len(qs))
+	ph.MajorFaults = float64(maj1-maj0) / float64(len(qs))
 	ph.Latency = summarize(ns)
 	if cpuOK {
 		c := summarize(cpu)

@@ -47,11 +47,26 @@ func (r *Report) EvalTargets() []Target {
 				Applies: r.Graph.HubDegree >= 100_000})
 		}
 	}
-	if v, ok := r.Ratios["gonum_vs_router_mean"]; ok {
-		ts = append(ts, Target{Name: "vs gonum baseline", Want: "≥ 30× (100k entities)", Measured: v, Unit: "× (mean)", Met: v >= 30, Applies: mid})
+	// Speed ratios: the smaller of the wall-time and the CPU-time mean
+	// ratio (wall time on a loaded machine penalises the longer calls).
+	ratio := func(key string) (float64, string, bool) {
+		v, ok := r.Ratios[key+"_mean"]
+		if !ok {
+			return 0, "", false
+		}
+		unit := "× (mean wall)"
+		if c, ok := r.Ratios[key+"_cpu_mean"]; ok && c < v {
+			v, unit = c, "× (mean CPU)"
+		}
+		return v, unit, true
 	}
-	if v, ok := r.Ratios["map_bfs_vs_router_mean"]; ok {
-		ts = append(ts, Target{Name: "vs map-BFS baseline", Want: "≥ 10× (100k entities)", Measured: v, Unit: "× (mean)", Met: v >= 10, Applies: mid})
+	if v, unit, ok := ratio("gonum_vs_router"); ok {
+		ts = append(ts, Target{Name: "vs gonum baseline", Want: "≥ 30× (100k entities)", Measured: v, Unit: unit, Met: v >= 30, Applies: mid,
+			Note: "smaller of the wall and CPU ratios"})
+	}
+	if v, unit, ok := ratio("map_bfs_vs_router"); ok {
+		ts = append(ts, Target{Name: "vs map-BFS baseline", Want: "≥ 10× (100k entities)", Measured: v, Unit: unit, Met: v >= 10, Applies: mid,
+			Note: "smaller of the wall and CPU ratios"})
 	}
 	ts = append(ts, Target{Name: "throughput scaling", Want: "≥ 1.7× on 2 goroutines", Measured: r.Throughput.Ratio, Unit: "×", Met: r.Throughput.Ratio >= 1.7,
 		Applies: r.GOMAXPROCS == 2})
@@ -72,7 +87,7 @@ func (r *Report) WriteTable(w io.Writer) error {
 		r.Bounds.MaxBridges, r.Bounds.Beam, r.Bounds.MaxCandidates, r.Bounds.Budget, r.Bounds.GainThreshold, r.GOMAXPROCS, r.TimerNs)
 
 	tw := tabwriter.NewWriter(&b, 2, 8, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintln(tw, "workload\tn\tp50 µs\tp99 µs\tmean µs\tmax µs\tcpu p50 µs\tcpu p99 µs\tallocs/op\ttruncated\tchain found\t")
+	fmt.Fprintln(tw, "workload\tn\tp50 µs\tp99 µs\tmean µs\tmax µs\tcpu p50 µs\tcpu p99 µs\tallocs/op\tfaults/op\ttruncated\tchain found\t")
 	row := func(name string, p *Phase) {
 		if p == nil {
 			return
@@ -82,12 +97,12 @@ func (r *Report) WriteTable(w io.Writer) error {
 		if p.CPU != nil {
 			cp50, cp99 = us(p.CPU.P50), us(p.CPU.P99)
 		}
-		fmt.Fprintf(tw, "%s\t%d\t%s\t%s\t%s\t%s\t%s\t%s\t%.1f\t%.3f\t%.3f\t\n", name, l.N, us(l.P50), us(l.P99), us(l.Mean), us(l.Max),
-			cp50, cp99, p.AllocsPerOp, p.TruncatedShare, p.ChainShare)
+		fmt.Fprintf(tw, "%s\t%d\t%s\t%s\t%s\t%s\t%s\t%s\t%.1f\t%.2f\t%.3f\t%.3f\t\n", name, l.N, us(l.P50), us(l.P99), us(l.Mean), us(l.Max),
+			cp50, cp99, p.AllocsPerOp, p.MinorFaults+p.MajorFaults, p.TruncatedShare, p.ChainShare)
 	}
 	row("router uncached", &r.Uncached)
 	l := r.Cached.Latency
-	fmt.Fprintf(tw, "router cached\t%d\t%.3f\t%.3f\t%.3f\t%s\t-\t-\t%.2f\t-\t-\t\n", l.N, l.P50/1e3, l.P99/1e3, l.Mean/1e3, us(l.Max), r.Cached.AllocsPerOp)
+	fmt.Fprintf(tw, "router cached\t%d\t%.3f\t%.3f\t%.3f\t%s\t-\t-\t%.2f\t-\t-\t-\t\n", l.N, l.P50/1e3, l.P99/1e3, l.Mean/1e3, us(l.Max), r.Cached.AllocsPerOp)
 	row("map-BFS baseline", r.MapBFS)
 	row("gonum baseline", r.Gonum)
 	row("hub attack (router)", r.Hub)
@@ -96,14 +111,16 @@ func (r *Report) WriteTable(w io.Writer) error {
 	t := r.Throughput
 	fmt.Fprintf(&b, "throughput (uncached): %.0f/s on 1 goroutine, %.0f/s on %d, ratio %.2f\n", t.Single, t.Parallel, t.Goroutines, t.Ratio)
 	if len(r.Ratios) > 0 {
-		fmt.Fprintf(&b, "speed-up of the router: %.1f× vs map-BFS, %.1f× vs gonum (mean); %.1f× and %.1f× (p50)\n",
-			r.Ratios["map_bfs_vs_router_mean"], r.Ratios["gonum_vs_router_mean"], r.Ratios["map_bfs_vs_router_p50"], r.Ratios["gonum_vs_router_p50"])
+		fmt.Fprintf(&b, "speed-up of the router: %.1f× vs map-BFS, %.1f× vs gonum (mean wall); %.1f× and %.1f× (p50 wall); %.1f× and %.1f× (mean thread CPU)\n",
+			r.Ratios["map_bfs_vs_router_mean"], r.Ratios["gonum_vs_router_mean"], r.Ratios["map_bfs_vs_router_p50"], r.Ratios["gonum_vs_router_p50"],
+			r.Ratios["map_bfs_vs_router_cpu_mean"], r.Ratios["gonum_vs_router_cpu_mean"])
 		fmt.Fprintf(&b, "baseline load: map %.1fs, gonum %.1fs\n", r.MapBFS.LoadSeconds, r.Gonum.LoadSeconds)
 	}
 	if len(r.Agreement) > 0 {
-		fmt.Fprintln(&b, "\nagreement with the router (checked = neither search cut by a bound):")
+		fmt.Fprintln(&b, "\nagreement with the router (checked = neither search cut by a bound; router no worse = over all")
+		fmt.Fprintln(&b, "queries, the router's best chain error ≤ the baseline's, or the baseline found none):")
 		tw = tabwriter.NewWriter(&b, 2, 8, 2, ' ', 0)
-		fmt.Fprintln(tw, "check\tgraph\tbaseline\tqueries\tchecked\tagreed\tsame bridges\tties\trate\t")
+		fmt.Fprintln(tw, "check\tgraph\tbaseline\tqueries\tchecked\tagreed\tsame bridges\tties\trate\trouter no worse\t")
 		for _, c := range r.Agreement {
 			for _, x := range []struct {
 				name string
@@ -113,7 +130,7 @@ func (r *Report) WriteTable(w io.Writer) error {
 				if x.a.Checked > 0 {
 					rate = fmt.Sprintf("%.4f", x.a.Rate)
 				}
-				fmt.Fprintf(tw, "%s\t%s\t%s\t%d\t%d\t%d\t%d\t%d\t%s\t\n", c.Name, c.Graph, x.name, x.a.Queries, x.a.Checked, x.a.Agreed, x.a.SameBest, x.a.Ties, rate)
+				fmt.Fprintf(tw, "%s\t%s\t%s\t%d\t%d\t%d\t%d\t%d\t%s\t%.4f\t\n", c.Name, c.Graph, x.name, x.a.Queries, x.a.Checked, x.a.Agreed, x.a.SameBest, x.a.Ties, rate, x.a.NoWorseRate)
 			}
 		}
 		tw.Flush()

@@ -1,0 +1,232 @@
+package bench
+
+import (
+	"context"
+	"os"
+	"path/filepath"
+	"strconv"
+	"sync"
+	"testing"
+
+	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/router"
+	"github.com/hopwise/hopwise/scorer"
+)
+
+// The benchmarks share one generated index per process: 100k entities at
+// average degree 32 (issue 4's ratio setting), or HOPWISE_BENCH_ENTITIES.
+// The index is written from the generated Source (byte-identical to a
+// graphidx.Build over the contexts, see TestContextsBuildEqualsSource, and
+// several times faster to produce).
+var shared struct {
+	once  sync.Once
+	g     *Graph
+	ix    *graphidx.Index
+	model scorer.Model
+	qs    []router.Query
+	err   error
+
+	mapOnce, gonumOnce sync.Once
+	mb                 *MapBaseline
+	gb                 *GonumBaseline
+}
+
+func sharedIndex(b *testing.B) {
+	b.Helper()
+	shared.once.Do(func() {
+		n := 100_000
+		if v, err := strconv.Atoi(os.Getenv("HOPWISE_BENCH_ENTITIES")); err == nil && v >= 1000 {
+			n = v
+		}
+		g, err := NewGraph(GraphConfig{Entities: n, AvgDegree: 32, Seed: 1})
+		if err != nil {
+			shared.err = err
+			return
+		}
+		dir, err := os.MkdirTemp("", "hopwise-benchidx-")
+		if err != nil {
+			shared.err = err
+			return
+		}
+		defer os.RemoveAll(dir) // the mapping stays valid on unix
+		path := filepath.Join(dir, "b.hwx")
+		if shared.err = graphidx.WriteFile(path, g.Source()); shared.err != nil {
+			return
+		}
+		if shared.ix, shared.err = graphidx.Open(path); shared.err != nil {
+			return
+		}
+		shared.g = g
+		shared.model, shared.err = scorer.NewBayes()
+		shared.qs = makeQueries(g, 4096, 2)
+	})
+	if shared.err != nil {
+		b.Fatal(shared.err)
+	}
+}
+
+func benchRouter(b *testing.B, cache int) *router.Router {
+	sharedIndex(b)
+	rt, err := newRouter(shared.ix, shared.model, DefaultBounds(), cache)
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.Cleanup(func() { rt.Close() })
+	return rt
+}
+
+// BenchmarkRouterCached: target ≤ 300 ns and 0 allocs per decision.
+func BenchmarkRouterCached(b *testing.B) {
+	rt := benchRouter(b, 1<<14)
+	qs := shared.qs[:256]
+	ctx := context.Background()
+	for _, q := range qs {
+		if _, err := rt.Decide(ctx, q); err != nil {
+			b.Fatal(err)
+		}
+	}
+	b.ReportAllocs()
+	i := 0
+	var d router.Decision
+	var err error
+	for b.Loop() {
+		d, err = rt.Decide(ctx, qs[i&255])
+		i++
+	}
+	if err != nil || !d.Cached || len(d.Values) == 0 {
+		b.Fatalf("last decision %+v, %v: want a cache hit", d, err)
+	}
+}
+
+func reportShares(b *testing.B, n, trunc, chains int) {
+	b.ReportMetric(float64(trunc)/float64(n), "truncated/op")
+	b.ReportMetric(float64(chains)/float64(n), "chains/op")
+	if chains == 0 {
+		b.Fatal("no chain found in any decision")
+	}
+}
+
+// BenchmarkRouterUncached decides distinct queries without the cache.
+func BenchmarkRouterUncached(b *testing.B) {
+	rt := benchRouter(b, 0)
+	ctx := context.Background()
+	b.ReportAllocs()
+	i, trunc, chains := 0, 0, 0
+	for b.Loop() {
+		d, err := rt.Decide(ctx, shared.qs[i%len(shared.qs)])
+		if err != nil {
+			b.Fatal(err)
+		}
+		if d.Truncated {
+			trunc++
+		}
+		if d.Chain != nil {
+			chains++
+		}
+		i++
+	}
+	reportShares(b, i, trunc, chains)
+}
+
+// BenchmarkRouterUncachedParallel is the throughput counterpart: compare
+// its ns/op with BenchmarkRouterUncached at -cpu 1,2.
+func BenchmarkRouterUncachedParallel(b *testing.B) {
+	rt := benchRouter(b, 0)
+	ctx := context.Background()
+	var next sync.Mutex
+	k := 0
+	b.RunParallel(func(pb *testing.PB) {
+		next.Lock()
+		i := k * 997
+		k++
+		next.Unlock()
+		for pb.Next() {
+			if _, err := rt.Decide(ctx, shared.qs[i%len(shared.qs)]); err != nil {
+				b.Error(err)
+				return
+			}
+			i++
+		}
+	})
+}
+
+// BenchmarkRouterHub decides queries from and to the highest-degree entity.
+func BenchmarkRouterHub(b *testing.B) {
+	rt := benchRouter(b, 0)
+	hub, deg := shared.g.MaxDegree()
+	qs := hubQueries(shared.g, hub, 1024, 3)
+	b.ReportMetric(float64(deg), "hub-degree")
+	ctx := context.Background()
+	b.ReportAllocs()
+	i, trunc, chains := 0, 0, 0
+	for b.Loop() {
+		d, err := rt.Decide(ctx, qs[i%len(qs)])
+		if err != nil {
+			b.Fatal(err)
+		}
+		if d.Truncated {
+			trunc++
+		}
+		if d.Chain != nil {
+			chains++
+		}
+		i++
+	}
+	reportShares(b, i, trunc, chains)
+}
+
+func benchBaseline(b *testing.B, decide func(context.Context, router.Query) (Result, error)) {
+	ctx := context.Background()
+	b.ReportAllocs()
+	i, trunc, chains := 0, 0, 0
+	for b.Loop() {
+		r, err := decide(ctx, shared.qs[i%len(shared.qs)])
+		if err != nil {
+			b.Fatal(err)
+		}
+		if r.Truncated {
+			trunc++
+		}
+		if r.HasChain {
+			chains++
+		}
+		i++
+	}
+	reportShares(b, i, trunc, chains)
+}
+
+// BenchmarkBaselineMapBFS is the map[string]map[string] baseline on the
+// same queries and bounds as BenchmarkRouterUncached.
+func BenchmarkBaselineMapBFS(b *testing.B) {
+	sharedIndex(b)
+	shared.mapOnce.Do(func() { shared.mb, shared.err = LoadMap(shared.ix, shared.model, DefaultBounds()) })
+	if shared.err != nil {
+		b.Fatal(shared.err)
+	}
+	benchBaseline(b, shared.mb.Decide)
+}
+
+// BenchmarkBaselineGonum is the gonum graph/simple baseline on the same
+// queries and bounds as BenchmarkRouterUncached.
+func BenchmarkBaselineGonum(b *testing.B) {
+	sharedIndex(b)
+	shared.gonumOnce.Do(func() { shared.gb, shared.err = LoadGonum(shared.ix, shared.model, DefaultBounds()) })
+	if shared.err != nil {
+		b.Fatal(shared.err)
+	}
+	benchBaseline(b, shared.gb.Decide)
+}
+
+// BenchmarkGenerate is the generator alone (one walk over all edges).
+func BenchmarkGenerate(b *testing.B) {
+	b.ReportAllocs()
+	var g *Graph
+	var err error
+	for b.Loop() {
+		g, err = NewGraph(GraphConfig{Entities: 20_000, AvgDegree: 32, Seed: 1})
+	}
+	if err != nil || g.NumPairs() == 0 {
+		b.Fatal(g, err)
+	}
+	b.ReportMetric(float64(g.NumPairs()), "pairs")
+}
