@@ -35,3 +35,12 @@ func threadFaults() (minor, major int64) {
 	}
 	return ru.Minflt, ru.Majflt
 }
+
+// processCPU returns the process's user+system CPU time in seconds, or -1.
+func processCPU() float64 {
+	var ru unix.Rusage
+	if err := unix.Getrusage(unix.RUSAGE_SELF, &ru); err != nil {
+		return -1
+	}
+	return float64(ru.Utime.Nano()+ru.Stime.Nano()) / 1e9
+}

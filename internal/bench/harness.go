@@ -1,6 +1,7 @@
 package bench
 
 import (
+	"cmp"
 	"context"
 	"fmt"
 	"io"
@@ -148,6 +149,15 @@ type Throughput struct {
 	Single     float64 `json:"single_per_s"`
 	Parallel   float64 `json:"parallel_per_s"`
 	Ratio      float64 `json:"ratio"`
+	// SingleCores and ParallelCores are the cores the process obtained
+	// during the passes (process CPU seconds / wall seconds): on a shared
+	// machine the wall ratio cannot exceed ParallelCores/SingleCores.
+	SingleCores   float64 `json:"single_cores,omitempty"`
+	ParallelCores float64 `json:"parallel_cores,omitempty"`
+	// PerCPURatio compares decisions per CPU second in the parallel and
+	// the single pass: 1 means no loss to contention (locks, shared cache
+	// lines), whatever the machine's other load.
+	PerCPURatio float64 `json:"per_cpu_ratio,omitempty"`
 }
 
 // GraphInfo describes the generated graph and the index.
@@ -767,11 +777,13 @@ func measureCached(ctx context.Context, rt *router.Router, qs []router.Query) (P
 // rates.
 func measureThroughput(ctx context.Context, rt *router.Router, qs []router.Query) (Throughput, error) {
 	p := runtime.GOMAXPROCS(0)
-	pass := func(workers int) (float64, error) {
+	type result struct{ rate, cores float64 }
+	pass := func(workers int) (result, error) {
 		var next atomic.Int64
 		var firstErr error
 		var once sync.Once
 		var wg sync.WaitGroup
+		cpu0 := processCPU()
 		start := time.Now()
 		deadline := start.Add(throughputMin)
 		var done atomic.Int64
@@ -793,9 +805,14 @@ func measureThroughput(ctx context.Context, rt *router.Router, qs []router.Query
 			}()
 		}
 		wg.Wait()
-		return float64(done.Load()) / time.Since(start).Seconds(), firstErr
+		wall := time.Since(start).Seconds()
+		r := result{rate: float64(done.Load()) / wall}
+		if cpu0 >= 0 {
+			r.cores = (processCPU() - cpu0) / wall
+		}
+		return r, firstErr
 	}
-	var singles, pars []float64
+	var singles, pars []result
 	for i := 0; i < 3; i++ {
 		s, err := pass(1)
 		if err != nil {
@@ -807,10 +824,16 @@ func measureThroughput(ctx context.Context, rt *router.Router, qs []router.Query
 		}
 		singles, pars = append(singles, s), append(pars, pp)
 	}
-	slices.Sort(singles)
-	slices.Sort(pars)
-	t := Throughput{Goroutines: p, Single: singles[1], Parallel: pars[1]}
+	// median pass by rate
+	byRate := func(a, b result) int { return cmp.Compare(a.rate, b.rate) }
+	slices.SortFunc(singles, byRate)
+	slices.SortFunc(pars, byRate)
+	s, pp := singles[1], pars[1]
+	t := Throughput{Goroutines: p, Single: s.rate, Parallel: pp.rate, SingleCores: s.cores, ParallelCores: pp.cores}
 	t.Ratio = t.Parallel / t.Single
+	if s.cores > 0 && pp.cores > 0 {
+		t.PerCPURatio = (pp.rate / pp.cores) / (s.rate / s.cores)
+	}
 	return t, nil
 }
 
