@@ -380,7 +380,7 @@ func (b *buildRun) worker(ctx context.Context, me int, in <-chan *ctxBatch, free
 	self := uint32(me)
 	// Start large enough to skip the early doublings, within the budget.
 	slots := 1 << 12
-	for slots < 1<<20 && b.canGrow(int64(slots)*cellBytes) {
+	for slots < 1<<18 && b.canGrow(int64(slots)*cellBytes) {
 		slots *= 2
 	}
 	t = newPairTab(slots)

@@ -125,7 +125,11 @@ func partialOf(t testing.TB, cs []Context) *Partial {
 // (associativity), with and without pruning.
 func TestCompileMatchesPartials(t *testing.T) {
 	t.Parallel()
-	cs := genCorpus(1, 3000, 300, 5, 3)
+	n := 3000
+	if testing.Short() {
+		n = 800
+	}
+	cs := genCorpus(1, n, 300, 5, 3)
 	for _, opts := range [][]BuildOption{nil, {WithMinSupport(3)}, {WithMaxNeighbors(4)}, {WithMinSupport(2), WithMaxNeighbors(3)}} {
 		c, sum, err := Compile(context.Background(), &sliceReader{cs: cs}, append(opts, WithWorkers(3))...)
 		if err != nil {
@@ -135,7 +139,7 @@ func TestCompileMatchesPartials(t *testing.T) {
 		c.Close()
 
 		// ((s0+s1)+s2) and (s0+(s1+s2)) over uneven shards.
-		s := []*Partial{partialOf(t, cs[:700]), partialOf(t, cs[700:2100]), partialOf(t, cs[2100:])}
+		s := []*Partial{partialOf(t, cs[:n/4]), partialOf(t, cs[n/4:2*n/3]), partialOf(t, cs[2*n/3:])}
 		left := NewPartial()
 		left.Merge(s[0])
 		left.Merge(s[1])
@@ -166,7 +170,11 @@ func TestCompileMatchesPartials(t *testing.T) {
 // build, as Sources and as index files.
 func TestSpillEqualsInMemory(t *testing.T) {
 	t.Parallel()
-	cs := genCorpus(2, 20000, 2000, 6, 2)
+	n := 20000
+	if testing.Short() {
+		n = 6000
+	}
+	cs := genCorpus(2, n, 2000, 6, 2)
 	dir := t.TempDir()
 	mem, memSum, err := Compile(context.Background(), &sliceReader{cs: cs})
 	if err != nil {
@@ -176,7 +184,7 @@ func TestSpillEqualsInMemory(t *testing.T) {
 	if memSum.SpillRuns != 0 {
 		t.Fatalf("default budget spilled %d runs", memSum.SpillRuns)
 	}
-	for _, fan := range []int{256, 2} {
+	for _, fan := range []int{256, 3} {
 		sp, spSum, err := Compile(context.Background(), &sliceReader{cs: cs}, WithMemBudget(1), WithTempDir(dir), withFanIn(fan), WithWorkers(2))
 		if err != nil {
 			t.Fatal(err)
@@ -184,8 +192,8 @@ func TestSpillEqualsInMemory(t *testing.T) {
 		if spSum.SpillRuns < 3 {
 			t.Fatalf("fan-in %d: only %d runs spilled; the test does not exercise spilling", fan, spSum.SpillRuns)
 		}
-		if fan == 2 && spSum.MergePasses == 0 {
-			t.Fatalf("fan-in 2: no intermediate merge")
+		if fan == 3 && spSum.MergePasses == 0 {
+			t.Fatalf("fan-in 3: no intermediate merge")
 		}
 		if a, b := dumpSrc(t, mem), dumpSrc(t, sp); a != b {
 			t.Fatalf("fan-in %d: spilled build differs from in-memory build", fan)
