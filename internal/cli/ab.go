@@ -46,7 +46,9 @@ func newABCmd() *cobra.Command {
 		Short: "Compare A/B arms (direct-only, routed, chain-always) from traces and outcomes",
 		Long: `ab reads OTLP JSON Lines trace files written through the otelx package,
 joins each decision with its outcome by unit key (outcome spans in the traces,
-or a plain outcomes file given with --outcomes), and compares the arms.
+or a plain outcomes file given with --outcomes, one JSON object per line:
+  {"key":"unit-17","score":1,"input_tokens":812,"output_tokens":95,"latency_ms":640}
+with key and score in [0,1] required), and compares the arms.
 
 Per arm: decisions n, distinct units, mean outcome score, the success
 proportion (score ≥ --success) with its Wilson interval, mean cost (tokens,
