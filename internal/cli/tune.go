@@ -58,8 +58,9 @@ func newTuneCmd() *cobra.Command {
 		Short: "Choose the gain threshold τ and max bridges H by off-policy evaluation of traces",
 		Long: `tune reads OTLP JSON Lines traces written through the otelx package, joins the
 decisions with their outcomes by unit key (outcome spans, or --outcomes
-FILE.jsonl in the format "hopwise ab --help" shows), and estimates, for each candidate policy "chain when score ≥ τ and the chain has at
-most H bridges, else direct", the value it would have had:
+FILE.jsonl in the format "hopwise ab --help" shows), and estimates, for each
+candidate policy "chain when score ≥ τ and the chain has at most H bridges,
+else direct", the value it would have had:
 
   IPS     inverse propensity scoring,
   SNIPS   self-normalised IPS,
