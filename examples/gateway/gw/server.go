@@ -7,12 +7,14 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"net/http"
 	"strings"
 	"sync"
 	"sync/atomic"
 	"time"
 
+	lru "github.com/hashicorp/golang-lru/v2"
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/otelx"
 	"github.com/hopwise/hopwise/router"
@@ -52,6 +54,19 @@ type Config struct {
 	// AdminToken, when set, is required as "Authorization: Bearer <token>"
 	// on /admin/ endpoints.
 	AdminToken string
+	// FeedbackSize is the number of recent keyed decisions kept for
+	// POST /v1/feedback (default 100 000; the oldest are forgotten first).
+	FeedbackSize int
+}
+
+// DefaultFeedbackSize is the default of Config.FeedbackSize.
+const DefaultFeedbackSize = 100_000
+
+// pending is a keyed decision awaiting its outcome.
+type pending struct {
+	d       router.Decision
+	in, out int64
+	latency time.Duration
 }
 
 // Server is the gateway: router + answerer behind an HTTP API.
@@ -65,6 +80,7 @@ type Server struct {
 	reloads  atomic.Int64
 	started  time.Time
 	mux      *http.ServeMux
+	recent   *lru.Cache[string, pending]
 }
 
 // New opens the index and returns a Server. Close releases it.
@@ -84,9 +100,18 @@ func New(cfg Config) (*Server, error) {
 	if cfg.DecideTimeout < 0 || cfg.RequestTimeout < 0 || cfg.MaxBodyBytes < 0 {
 		return nil, errors.New("gw: timeouts and body limit must be ≥ 0")
 	}
+	if cfg.FeedbackSize == 0 {
+		cfg.FeedbackSize = DefaultFeedbackSize
+	}
+	if cfg.FeedbackSize < 0 {
+		return nil, errors.New("gw: FeedbackSize must be ≥ 0")
+	}
 	s := &Server{cfg: cfg, tel: cfg.Telemetry, ans: cfg.Answerer, started: time.Now()}
+	var err error
+	if s.recent, err = lru.New[string, pending](cfg.FeedbackSize); err != nil {
+		return nil, fmt.Errorf("gw: %w", err)
+	}
 	if s.tel == nil {
-		var err error
 		if s.tel, err = otelx.New(); err != nil {
 			return nil, fmt.Errorf("gw: %w", err)
 		}
@@ -116,6 +141,8 @@ func New(cfg Config) (*Server, error) {
 	s.mux = http.NewServeMux()
 	s.mux.HandleFunc("POST /v1/answer", s.handleAnswer)
 	s.mux.HandleFunc("/v1/answer", methodNotAllowed("POST"))
+	s.mux.HandleFunc("POST /v1/feedback", s.handleFeedback)
+	s.mux.HandleFunc("/v1/feedback", methodNotAllowed("POST"))
 	s.mux.HandleFunc("GET /healthz", s.handleHealth)
 	s.mux.HandleFunc("/healthz", methodNotAllowed("GET"))
 	s.mux.HandleFunc("POST /admin/reload-index", s.admin(s.handleReload))
@@ -281,8 +308,84 @@ func (s *Server) Ask(ctx context.Context, q AskRequest) (AskResponse, error) {
 	for _, st := range a.Steps {
 		resp.Answer.Steps = append(resp.Answer.Steps, StepJSON{Entity: st.Entity, Distribution: distMap(st.Values, st.Dist)})
 	}
-	resp.ElapsedMs = float64(time.Since(start).Microseconds()) / 1000
+	el := time.Since(start)
+	resp.ElapsedMs = float64(el.Microseconds()) / 1000
+	if d.Key != "" && q.Key != "" {
+		s.recent.Add(d.Key, pending{d: d, in: a.InputTokens, out: a.OutputTokens, latency: el})
+	}
 	return resp, nil
+}
+
+// FeedbackRequest is the body of POST /v1/feedback: the outcome of an
+// earlier /v1/answer call with the same key.
+type FeedbackRequest struct {
+	Key   string   `json:"key"`
+	Score *float64 `json:"score"`
+	// Optional overrides of what the gateway measured itself.
+	InputTokens  *int64   `json:"input_tokens,omitempty"`
+	OutputTokens *int64   `json:"output_tokens,omitempty"`
+	LatencyMs    *float64 `json:"latency_ms,omitempty"`
+}
+
+// Feedback records the outcome of the decision made for req.Key as a
+// hopwise.outcome span joined to the decision by key (otelx.RecordOutcome).
+// Tokens and latency default to what the gateway measured for that request.
+// Each decision takes one outcome: the key is forgotten afterwards.
+func (s *Server) Feedback(ctx context.Context, req FeedbackRequest) error {
+	if req.Key == "" {
+		return badRequest("missing_field", "field %q is required", "key")
+	}
+	if req.Score == nil {
+		return badRequest("missing_field", "field %q is required", "score")
+	}
+	if sc := *req.Score; !(sc >= 0 && sc <= 1) {
+		return badRequest("invalid_field", "field %q must be in [0, 1], got %v", "score", sc)
+	}
+	p, ok := s.recent.Peek(req.Key)
+	if !ok {
+		return &RequestError{http.StatusNotFound, "unknown_key", fmt.Sprintf("no recent decision with key %q (already reported, forgotten, or never keyed)", req.Key)}
+	}
+	o := otelx.Outcome{Score: *req.Score, InputTokens: p.in, OutputTokens: p.out, Latency: p.latency}
+	if req.InputTokens != nil {
+		o.InputTokens = *req.InputTokens
+	}
+	if req.OutputTokens != nil {
+		o.OutputTokens = *req.OutputTokens
+	}
+	if req.LatencyMs != nil {
+		if *req.LatencyMs < 0 || math.IsNaN(*req.LatencyMs) || math.IsInf(*req.LatencyMs, 0) {
+			return badRequest("invalid_field", "field %q must be a finite number ≥ 0", "latency_ms")
+		}
+		o.Latency = time.Duration(*req.LatencyMs * float64(time.Millisecond))
+	}
+	if o.InputTokens < 0 || o.OutputTokens < 0 {
+		return badRequest("invalid_field", "token counts must be ≥ 0")
+	}
+	// Remove before recording: of two concurrent reports for one key, only
+	// the one whose Remove finds it records.
+	if !s.recent.Remove(req.Key) {
+		return &RequestError{http.StatusNotFound, "unknown_key", fmt.Sprintf("no recent decision with key %q (already reported)", req.Key)}
+	}
+	if err := s.tel.RecordOutcome(ctx, p.d, o); err != nil {
+		if errors.Is(err, otelx.ErrBadOutcome) {
+			return badRequest("invalid_field", "%v", err)
+		}
+		return err
+	}
+	return nil
+}
+
+func (s *Server) handleFeedback(w http.ResponseWriter, r *http.Request) {
+	var q FeedbackRequest
+	if err := decodeBody(w, r, s.cfg.MaxBodyBytes, &q); err != nil {
+		writeErr(w, err)
+		return
+	}
+	if err := s.Feedback(r.Context(), q); err != nil {
+		writeErr(w, err)
+		return
+	}
+	writeJSON(w, http.StatusOK, map[string]string{"status": "recorded", "key": q.Key})
 }
 
 func distMap(values []string, dist []float64) map[string]float64 {

@@ -464,3 +464,58 @@ var (
 	osWriteFile = func(p string, b []byte) error { return os.WriteFile(p, b, 0o644) }
 	osRename    = os.Rename
 )
+
+// TestFeedback reports outcomes for earlier answers: each becomes an outcome
+// span that otelx.Join pairs with its decision by key, at most once per key.
+func TestFeedback(t *testing.T) {
+	t.Parallel()
+	s, flush := newServer(t, gw.Config{})
+	ts := httptest.NewServer(s.Handler())
+	defer ts.Close()
+	for _, q := range []gw.AskRequest{farQuery, nearQuery} {
+		if code, body, _ := post(t, ts.Client(), ts.URL+"/v1/answer", mustJSON(q)); code != 200 {
+			t.Fatalf("%d %s", code, body)
+		}
+	}
+	for _, c := range []struct {
+		body   string
+		status int
+		code   string
+	}{
+		{`{"key":"unit-1","score":1}`, 200, ""},
+		{`{"key":"unit-1","score":1}`, 404, "unknown_key"}, // reported already
+		{`{"key":"unit-2","score":1.5}`, 400, "invalid_field"},
+		{`{"key":"unit-2"}`, 400, "missing_field"},
+		{`{"key":"unit-2","score":0.25,"output_tokens":-1}`, 400, "invalid_field"},
+		{`{"key":"nobody","score":1}`, 404, "unknown_key"},
+		{`{"key":"unit-2","score":0.25,"latency_ms":12.5}`, 200, ""},
+	} {
+		code, body, _ := post(t, ts.Client(), ts.URL+"/v1/feedback", c.body)
+		if code != c.status || (c.code != "" && !bytes.Contains(body, []byte(`"`+c.code+`"`))) {
+			t.Errorf("%s: %d %s, want %d %s", c.body, code, body, c.status, c.code)
+		}
+	}
+	log, err := otelx.ReadTraceFiles(flush())
+	if err != nil {
+		t.Fatal(err)
+	}
+	joined, st := otelx.Join(log.Decisions, log.Outcomes)
+	if st.Joined != 2 || len(log.Outcomes) != 2 {
+		t.Fatalf("join %+v with %d outcomes", st, len(log.Outcomes))
+	}
+	for _, j := range joined {
+		if j.Outcome == nil {
+			continue
+		}
+		switch j.Decision.Key {
+		case "unit-1":
+			if j.Outcome.Score != 1 || j.Outcome.OutputTokens <= 16 || j.Outcome.Mode != "chain" {
+				t.Errorf("unit-1 outcome %+v", j.Outcome)
+			}
+		case "unit-2":
+			if j.Outcome.Score != 0.25 || j.Outcome.LatencyMs != 12.5 || j.Outcome.Mode != "direct" {
+				t.Errorf("unit-2 outcome %+v", j.Outcome)
+			}
+		}
+	}
+}
