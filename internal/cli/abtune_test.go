@@ -353,6 +353,27 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 		t.Errorf("sample ratio mismatch on a 50/50 allocation: %+v", ab.SRM)
 	}
 
+	// The same outcomes as a plain JSONL file give the same comparison.
+	lg, err := otelx.ReadTraceFiles(traces)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var plain bytes.Buffer
+	for _, o := range lg.Outcomes {
+		fmt.Fprintf(&plain, `{"key":%q,"score":%g,"input_tokens":%d,"output_tokens":%d,"latency_ms":%g}`+"\n", o.Key, o.Score, o.InputTokens, o.OutputTokens, o.LatencyMs)
+	}
+	outPath := filepath.Join(dir, "outcomes.jsonl")
+	if err := os.WriteFile(outPath, plain.Bytes(), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	viaFile, err := runAB(abOptions{traces: []string{traces}, outcomes: outPath, success: 0.5, conf: 0.95, reps: 0, seed: 1, alpha: 0.05})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if viaFile.Diffs[0].Success != d.Success || viaFile.Join.Joined != ab.Join.Joined || viaFile.Ignored != len(lg.Outcomes) {
+		t.Errorf("plain outcomes file: %v joined %d, spans: %v joined %d", viaFile.Diffs[0].Success, viaFile.Join.Joined, d.Success, ab.Join.Joined)
+	}
+
 	// A/A: the routed arm with an unreachable threshold and no exploration
 	// answers exactly like direct-only.
 	aa := filepath.Join(dir, "aa.jsonl")
