@@ -3,6 +3,7 @@ package bench
 import (
 	"cmp"
 	"fmt"
+	"math"
 	"slices"
 
 	"github.com/hopwise/hopwise/graphidx"
@@ -90,6 +91,31 @@ type bpath[N comparable] struct {
 type bcand struct {
 	ids  []graphidx.EntityID
 	cost float64
+	err  float64 // exact chain error, NaN until scored
+}
+
+// search is the input of beamSearch beyond the graph.
+type search struct {
+	st        scorer.Stats
+	model     scorer.Model
+	ws        *scorer.Workspace
+	b         Bounds
+	sid, tid  graphidx.EntityID
+	u         int
+	directErr float64
+}
+
+// score returns the exact error of c, computing it once.
+func (sr *search) score(c *bcand) (float64, error) {
+	if c.err == c.err { // not NaN
+		return c.err, nil
+	}
+	est, err := sr.model.Chain(sr.ws, sr.st, sr.sid, sr.u, c.ids, sr.tid)
+	if err != nil {
+		return 0, err
+	}
+	c.err = est.Err
+	return c.err, nil
 }
 
 // beamSearch is the straightforward bounded breadth-first search shared by
@@ -99,12 +125,20 @@ type bcand struct {
 // Σ EdgeCost(support) and cut to the B cheapest; every path whose end
 // touches t is a chain candidate. The k proxy-cheapest candidates are
 // scored exactly with model.Chain, and the largest gain wins (the first in
-// (proxy cost, hops, ids) order on equal gains, like the router). When no
-// bound cuts, every simple chain of at most H bridges is scored: the result
-// is the exact optimum. O(H·B²·(log B + L)) where L is one pair look-up.
-func beamSearch[N comparable, A adjacency[N]](a A, st scorer.Stats, model scorer.Model, ws *scorer.Workspace,
-	b Bounds, s, t N, u int) (cands []bcand, truncated bool) {
+// (proxy cost, hops, ids) order on equal gains, like the router).
+//
+// Exact pruning: a chain of m bridges has error ≥ β·m (its variance part
+// is positive), so before layer d is built, while at most k candidates
+// exist, they are scored and the search stops when the best error is
+// ≤ β·d: no longer chain can beat it. This is not a cut.
+//
+// When no bound cuts, every simple chain of at most H bridges that could
+// win is scored: the result is the exact optimum. O(H·B²·(log B + L))
+// look-ups and sorting, L one pair look-up, plus k exact scores.
+func beamSearch[N comparable, A adjacency[N]](a A, sr *search, s, t N, r *Result, name func(graphidx.EntityID) string) error {
+	b := sr.b
 	budget := b.Budget
+	truncated := false
 	take := func() bool {
 		if budget <= 0 {
 			truncated = true
@@ -113,9 +147,25 @@ func beamSearch[N comparable, A adjacency[N]](a A, st scorer.Stats, model scorer
 		budget--
 		return true
 	}
-	hb := model.HopBias()
+	hb := sr.model.HopBias()
+	var cands []bcand
+	scored := 0
+	bestErr := math.Inf(1)
 	frontier := []bpath[N]{{}}
 	for depth := 1; depth <= b.MaxBridges; depth++ {
+		if depth > 1 && len(cands) <= b.MaxCandidates {
+			for i := scored; i < len(cands); i++ {
+				e, err := sr.score(&cands[i])
+				if err != nil {
+					return err
+				}
+				bestErr = math.Min(bestErr, e)
+			}
+			scored = len(cands)
+			if bestErr <= hb*float64(depth) {
+				break
+			}
+		}
 		var ext []bpath[N]
 	paths:
 		for _, p := range frontier {
@@ -140,7 +190,7 @@ func beamSearch[N comparable, A adjacency[N]](a A, st scorer.Stats, model scorer
 					continue
 				}
 				nodes := append(p.nodes[:len(p.nodes):len(p.nodes)], y)
-				ext = append(ext, bpath[N]{nodes: nodes, cost: p.cost + model.EdgeCost(sup)})
+				ext = append(ext, bpath[N]{nodes: nodes, cost: p.cost + sr.model.EdgeCost(sup)})
 				n++
 			}
 		}
@@ -171,7 +221,7 @@ func beamSearch[N comparable, A adjacency[N]](a A, st scorer.Stats, model scorer
 			for i, y := range p.nodes {
 				ids[i] = a.id(y)
 			}
-			cands = append(cands, bcand{ids: ids, cost: p.cost + model.EdgeCost(sup) + hb*float64(depth)})
+			cands = append(cands, bcand{ids: ids, cost: p.cost + sr.model.EdgeCost(sup) + hb*float64(depth), err: math.NaN()})
 		}
 		frontier = ext
 		if len(frontier) == 0 {
@@ -191,22 +241,17 @@ func beamSearch[N comparable, A adjacency[N]](a A, st scorer.Stats, model scorer
 		truncated = true
 		cands = cands[:b.MaxCandidates]
 	}
-	return cands, truncated
-}
-
-// scoreCandidates scores the candidates exactly and fills r.
-func scoreCandidates(st scorer.Stats, model scorer.Model, ws *scorer.Workspace, b Bounds,
-	sid graphidx.EntityID, u int, tid graphidx.EntityID, cands []bcand, name func(graphidx.EntityID) string, r *Result) error {
+	r.Truncated = truncated
 	best := -1
-	var bestErr, bestGain float64
-	for i, c := range cands {
-		est, err := model.Chain(ws, st, sid, u, c.ids, tid)
+	var bestGain float64
+	for i := range cands {
+		e, err := sr.score(&cands[i])
 		if err != nil {
 			return err
 		}
-		gain := r.DirectErr - est.Err
+		gain := sr.directErr - e
 		if best < 0 || gain > bestGain {
-			best, bestErr, bestGain = i, est.Err, gain
+			best, bestErr, bestGain = i, e, gain
 		}
 	}
 	r.Mode = router.ModeDirect

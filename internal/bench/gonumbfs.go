@@ -152,9 +152,18 @@ func (gb *GonumBaseline) Pair(a, b graphidx.EntityID) (graphidx.PairStats, bool)
 	return graphidx.NewPairStats(a, b, e.kb, e.ka, c), true
 }
 
-// Decide answers q with the gonum baseline. Safe for concurrent use.
-func (gb *GonumBaseline) Decide(_ context.Context, q router.Query) (Result, error) {
+// Decide answers q with the gonum baseline under the bounds given at load.
+// Safe for concurrent use.
+func (gb *GonumBaseline) Decide(ctx context.Context, q router.Query) (Result, error) {
+	return gb.DecideWith(ctx, q, gb.bounds)
+}
+
+// DecideWith answers q under the bounds b.
+func (gb *GonumBaseline) DecideWith(_ context.Context, q router.Query, b Bounds) (Result, error) {
 	var r Result
+	if err := b.validate(); err != nil {
+		return r, err
+	}
 	if q.From == q.To {
 		return r, router.ErrSameEntity
 	}
@@ -179,8 +188,7 @@ func (gb *GonumBaseline) Decide(_ context.Context, q router.Query) (Result, erro
 		return r, err
 	}
 	r.DirectErr = dir.Err
-	cands, trunc := beamSearch[int64](gonumAdj{gb}, gb, gb.model, ws, gb.bounds, s, t, u)
-	r.Truncated = trunc
-	err = scoreCandidates(gb, gb.model, ws, gb.bounds, sid, u, tid, cands, func(id graphidx.EntityID) string { return gb.names[id] }, &r)
+	sr := &search{st: gb, model: gb.model, ws: ws, b: b, sid: sid, tid: tid, u: u, directErr: dir.Err}
+	err = beamSearch[int64](gonumAdj{gb}, sr, s, t, &r, func(id graphidx.EntityID) string { return gb.names[id] })
 	return r, err
 }

@@ -119,9 +119,18 @@ func (m *MapBaseline) Pair(a, b graphidx.EntityID) (graphidx.PairStats, bool) {
 	return graphidx.NewPairStats(a, b, p.ka, p.kb, p.counts), true
 }
 
-// Decide answers q with the map baseline. Safe for concurrent use.
-func (m *MapBaseline) Decide(_ context.Context, q router.Query) (Result, error) {
+// Decide answers q with the map baseline under the bounds given at load.
+// Safe for concurrent use.
+func (m *MapBaseline) Decide(ctx context.Context, q router.Query) (Result, error) {
+	return m.DecideWith(ctx, q, m.bounds)
+}
+
+// DecideWith answers q under the bounds b.
+func (m *MapBaseline) DecideWith(_ context.Context, q router.Query, b Bounds) (Result, error) {
 	var r Result
+	if err := b.validate(); err != nil {
+		return r, err
+	}
 	if q.From == q.To {
 		return r, router.ErrSameEntity
 	}
@@ -145,8 +154,7 @@ func (m *MapBaseline) Decide(_ context.Context, q router.Query) (Result, error) 
 		return r, err
 	}
 	r.DirectErr = dir.Err
-	cands, trunc := beamSearch[string](mapAdj{m}, m, m.model, ws, m.bounds, q.From, q.To, u)
-	r.Truncated = trunc
-	err = scoreCandidates(m, m.model, ws, m.bounds, sid, u, tid, cands, func(id graphidx.EntityID) string { return m.names[id] }, &r)
+	sr := &search{st: m, model: m.model, ws: ws, b: b, sid: sid, tid: tid, u: u, directErr: dir.Err}
+	err = beamSearch[string](mapAdj{m}, sr, q.From, q.To, &r, func(id graphidx.EntityID) string { return m.names[id] })
 	return r, err
 }
