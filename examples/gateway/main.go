@@ -35,32 +35,44 @@ import (
 	sdktrace "go.opentelemetry.io/otel/sdk/trace"
 )
 
+// options are the command's settings.
+type options struct {
+	addr, index, config, traceFile, endpoint, token string
+	decide, request, shutdown                       time.Duration
+	// listener, when set, is used instead of listening on addr (tests).
+	listener net.Listener
+}
+
 func main() {
-	addr := flag.String("addr", "127.0.0.1:8080", "listen address")
-	index := flag.String("index", "hopwise-demo/index.hwx", "locality index file")
-	config := flag.String("config", "", "router config JSON (router.Config, as written by hopwise tune)")
-	traceFile := flag.String("trace-file", "gateway.otlp.jsonl", "OTLP JSON Lines trace file (when -otlp-endpoint is empty)")
-	endpoint := flag.String("otlp-endpoint", "", "OTLP/HTTP collector URL, e.g. http://localhost:4318 (overrides -trace-file)")
-	decide := flag.Duration("decide-timeout", gw.DefaultDecideTimeout, "routing decision deadline")
-	request := flag.Duration("request-timeout", gw.DefaultRequestTimeout, "whole-request deadline")
-	shutdown := flag.Duration("shutdown-timeout", 10*time.Second, "graceful shutdown deadline")
-	token := flag.String("admin-token", os.Getenv("GATEWAY_ADMIN_TOKEN"), "bearer token for /admin/ (default $GATEWAY_ADMIN_TOKEN)")
+	var o options
+	flag.StringVar(&o.addr, "addr", "127.0.0.1:8080", "listen address")
+	flag.StringVar(&o.index, "index", "hopwise-demo/index.hwx", "locality index file")
+	flag.StringVar(&o.config, "config", "", "router config JSON (router.Config, as written by hopwise tune)")
+	flag.StringVar(&o.traceFile, "trace-file", "gateway.otlp.jsonl", "OTLP JSON Lines trace file (when -otlp-endpoint is empty)")
+	flag.StringVar(&o.endpoint, "otlp-endpoint", "", "OTLP/HTTP collector URL, e.g. http://localhost:4318 (overrides -trace-file)")
+	flag.DurationVar(&o.decide, "decide-timeout", gw.DefaultDecideTimeout, "routing decision deadline")
+	flag.DurationVar(&o.request, "request-timeout", gw.DefaultRequestTimeout, "whole-request deadline")
+	flag.DurationVar(&o.shutdown, "shutdown-timeout", 10*time.Second, "graceful shutdown deadline")
+	flag.StringVar(&o.token, "admin-token", os.Getenv("GATEWAY_ADMIN_TOKEN"), "bearer token for /admin/ (default $GATEWAY_ADMIN_TOKEN)")
 	flag.Parse()
 
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
 	defer stop()
-	if err := run(ctx, *addr, *index, *config, *traceFile, *endpoint, *token, *decide, *request, *shutdown); err != nil {
+	if err := run(ctx, o); err != nil {
 		log.Fatalf("gateway: %v", err)
 	}
 }
 
-func run(ctx context.Context, addr, index, config, traceFile, endpoint, token string, decide, request, shutdown time.Duration) error {
-	tp, err := tracerProvider(ctx, traceFile, endpoint)
+// run serves until ctx is done, then shuts down gracefully: stop accepting,
+// let in-flight requests finish (up to o.shutdown), close the router, flush
+// the traces.
+func run(ctx context.Context, o options) error {
+	tp, err := tracerProvider(ctx, o.traceFile, o.endpoint)
 	if err != nil {
 		return err
 	}
 	defer func() {
-		sctx, cancel := context.WithTimeout(context.Background(), shutdown)
+		sctx, cancel := context.WithTimeout(context.Background(), o.shutdown)
 		defer cancel()
 		if err := tp.Shutdown(sctx); err != nil {
 			log.Printf("gateway: flushing traces: %v", err)
@@ -71,8 +83,8 @@ func run(ctx context.Context, addr, index, config, traceFile, endpoint, token st
 		return err
 	}
 	var ropts []router.Option
-	if config != "" {
-		c, err := router.LoadConfig(config)
+	if o.config != "" {
+		c, err := router.LoadConfig(o.config)
 		if err != nil {
 			return err
 		}
@@ -80,8 +92,8 @@ func run(ctx context.Context, addr, index, config, traceFile, endpoint, token st
 			return err
 		}
 	}
-	srv, err := gw.New(gw.Config{IndexPath: index, RouterOptions: ropts, Telemetry: tel,
-		DecideTimeout: decide, RequestTimeout: request, AdminToken: token})
+	srv, err := gw.New(gw.Config{IndexPath: o.index, RouterOptions: ropts, Telemetry: tel,
+		DecideTimeout: o.decide, RequestTimeout: o.request, AdminToken: o.token})
 	if err != nil {
 		return err
 	}
@@ -90,16 +102,17 @@ func run(ctx context.Context, addr, index, config, traceFile, endpoint, token st
 	hs := &http.Server{
 		Handler:           srv.Handler(),
 		ReadHeaderTimeout: 5 * time.Second,
-		ReadTimeout:       request,
-		WriteTimeout:      request + time.Second,
+		ReadTimeout:       o.request,
+		WriteTimeout:      o.request + time.Second,
 		IdleTimeout:       60 * time.Second,
-		BaseContext:       func(net.Listener) context.Context { return ctx },
 	}
-	ln, err := net.Listen("tcp", addr)
-	if err != nil {
-		return err
+	ln := o.listener
+	if ln == nil {
+		if ln, err = net.Listen("tcp", o.addr); err != nil {
+			return err
+		}
 	}
-	log.Printf("gateway: listening on http://%s (index %s, generation %016x)", ln.Addr(), index, srv.Router().Generation())
+	log.Printf("gateway: listening on http://%s (index %s, generation %016x)", ln.Addr(), o.index, srv.Router().Generation())
 	errc := make(chan error, 1)
 	go func() { errc <- hs.Serve(ln) }()
 	select {
@@ -108,7 +121,7 @@ func run(ctx context.Context, addr, index, config, traceFile, endpoint, token st
 	case <-ctx.Done():
 	}
 	log.Printf("gateway: shutting down")
-	sctx, cancel := context.WithTimeout(context.Background(), shutdown)
+	sctx, cancel := context.WithTimeout(context.Background(), o.shutdown)
 	defer cancel()
 	if err := hs.Shutdown(sctx); err != nil {
 		return fmt.Errorf("shutdown: %w", err)
