@@ -68,6 +68,12 @@ func variants(tb testing.TB) []variant {
 	if err != nil {
 		tb.Fatal(err)
 	}
+	tp3 := sdktrace.NewTracerProvider(sdktrace.WithBatcher(discard{}), sdktrace.WithSampler(sdktrace.AlwaysSample()))
+	mp3 := sdkmetric.NewMeterProvider(sdkmetric.WithReader(sdkmetric.NewManualReader()))
+	compact, err := New(WithTracerProvider(tp3), WithMeterProvider(mp3), WithCompactSpans())
+	if err != nil {
+		tb.Fatal(err)
+	}
 	tp2 := sdktrace.NewTracerProvider(sdktrace.WithBatcher(discard{}), sdktrace.WithSampler(sdktrace.AlwaysSample()))
 	bare := tp2.Tracer("bare")
 	attrsOf, err := New(WithTracerProvider(tnoop.NewTracerProvider()), WithMeterProvider(mnoop.NewMeterProvider()))
@@ -81,6 +87,7 @@ func variants(tb testing.TB) []variant {
 		{name: "global-no-sdk", run: global.Decide},
 		{name: "noop", run: noop.Decide},
 		{name: "sdk-batch", run: sdk.Decide, stop: func() { tp.Shutdown(context.Background()); mp.Shutdown(context.Background()) }},
+		{name: "sdk-batch-compact", run: compact.Decide, stop: func() { tp3.Shutdown(context.Background()); mp3.Shutdown(context.Background()) }},
 		{name: "bare-sdk-span", run: func(ctx context.Context, r *router.Router, q router.Query) (router.Decision, error) {
 			ctx, sp := bare.Start(ctx, "decide")
 			d, err := r.Decide(ctx, q)

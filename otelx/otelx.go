@@ -61,6 +61,7 @@ type config struct {
 	hashSet  bool
 	ratio    float64
 	ratioSet bool
+	compact  bool
 }
 
 // WithTracerProvider sets the tracer provider (default: the otel global
@@ -102,6 +103,15 @@ func WithSamplingRatio(r float64) Option {
 	return optionFunc(func(c *config) { c.ratio, c.ratioSet = r, true })
 }
 
+// WithCompactSpans records on decision spans only the attributes that
+// `hopwise tune` and `hopwise ab` read: unit key, mode, gain (and score
+// when it differs), reason, propensity, exploration, direct error, chain
+// error and hops, arm and sampling ratio — no entity names, bridges,
+// support, truncation, cache or generation. The SDK's cost grows with the
+// attribute count (and a string slice is dear), so this roughly halves
+// the per-decision cost of a recording span.
+func WithCompactSpans() Option { return optionFunc(func(c *config) { c.compact = true }) }
+
 // Outcome is what the gateway observed for a routed query.
 type Outcome struct {
 	Score        float64       // quality in [0,1] (1 = correct)
@@ -120,6 +130,7 @@ type Instrumentation struct {
 	hashers sync.Pool
 	ratio   attribute.KeyValue
 	hashed  bool
+	compact bool
 	// metricsOff: the meter provider is the otel noop provider, so the
 	// Enabled checks are skipped too.
 	metricsOff bool
@@ -169,6 +180,7 @@ func New(opts ...Option) (*Instrumentation, error) {
 		startOp:  []trace.SpanStartOption{trace.WithSpanKind(trace.SpanKindInternal)},
 		ratio:    attribute.Float64(KeySamplingRatio, cfg.ratio),
 		ratioVal: cfg.ratio,
+		compact:  cfg.compact,
 	}
 	// The otel noop provider records nothing by contract, so its spans are
 	// skipped outright (no context allocation per decision). Any other
@@ -371,6 +383,9 @@ var attrPool = sync.Pool{New: func() any { s := make([]attribute.KeyValue, 0, 32
 // decisionAttrs appends the span attributes of a decision (DESIGN.md §6)
 // to attrs.
 func (in *Instrumentation) decisionAttrs(attrs []attribute.KeyValue, q router.Query, d *router.Decision) []attribute.KeyValue {
+	if in.compact {
+		return in.compactAttrs(attrs, q, d)
+	}
 	attrs = in.queryAttrs(attrs, q)
 	attrs = append(attrs,
 		attribute.String(KeyRouteMode, d.Mode.String()),
@@ -399,6 +414,38 @@ func (in *Instrumentation) decisionAttrs(attrs []attribute.KeyValue, q router.Qu
 			attribute.Float64(KeyChainErr, d.Chain.Err),
 			attribute.Int(KeyChainHops, len(d.Chain.Bridges)),
 			attribute.StringSlice(KeyChainBridges, bridges),
+		)
+	}
+	if d.Arm != "" {
+		attrs = append(attrs, attribute.String(KeyABArm, d.Arm))
+	}
+	return attrs
+}
+
+// compactAttrs is the WithCompactSpans set: what tuning and A/B analysis
+// read, and nothing else.
+func (in *Instrumentation) compactAttrs(attrs []attribute.KeyValue, q router.Query, d *router.Decision) []attribute.KeyValue {
+	attrs = append(attrs,
+		attribute.String(KeyRouteMode, d.Mode.String()),
+		attribute.Float64(KeyRouteGain, d.Gain),
+		attribute.String(KeyRouteReason, d.Reason.Code),
+		attribute.Float64(KeyRoutePropensity, d.Propensity),
+		attribute.Float64(KeyDirectErr, d.Direct.Err),
+		in.ratio,
+	)
+	if q.Key != "" {
+		attrs = append(attrs, attribute.String(KeyQueryKey, q.Key))
+	}
+	if d.Explored {
+		attrs = append(attrs, attribute.Bool(KeyRouteExplored, true))
+	}
+	if d.Score != d.Gain {
+		attrs = append(attrs, attribute.Float64(KeyRouteScore, d.Score))
+	}
+	if d.Chain != nil {
+		attrs = append(attrs,
+			attribute.Float64(KeyChainErr, d.Chain.Err),
+			attribute.Int(KeyChainHops, len(d.Chain.Bridges)),
 		)
 	}
 	if d.Arm != "" {

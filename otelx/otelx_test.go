@@ -8,6 +8,7 @@ import (
 	"errors"
 	"fmt"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 	"time"
@@ -482,5 +483,54 @@ func TestJoinOrderAndCounts(t *testing.T) {
 		if (x.Decision.Mode == "direct") != (x.Outcome.Score == 0) {
 			t.Errorf("pairing %+v %+v", x.Decision, x.Outcome)
 		}
+	}
+}
+
+func TestCompactSpans(t *testing.T) {
+	t.Parallel()
+	ctx := context.Background()
+	path := filepath.Join(t.TempDir(), "compact.jsonl")
+	exp, err := otlpfile.NewExporter(ctx, path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rec := tracetest.NewSpanRecorder()
+	tp := sdktrace.NewTracerProvider(sdktrace.WithSpanProcessor(rec), sdktrace.WithBatcher(exp))
+	in, err := New(WithTracerProvider(tp), WithCompactSpans(), WithSamplingRatio(0.5))
+	if err != nil {
+		t.Fatal(err)
+	}
+	r := newRouter(t, router.WithArms(router.ArmWeight{Arm: router.ArmRouted, Weight: 1}), router.WithExploration(0.3, "c"))
+	d, err := in.Decide(ctx, r, router.Query{From: "vent-north", Value: "open", To: "bed-tomato", Key: "u1"})
+	if err != nil || d.Chain == nil {
+		t.Fatalf("%v %+v", err, d)
+	}
+	if err := tp.Shutdown(ctx); err != nil {
+		t.Fatal(err)
+	}
+	var keys []string
+	for _, kv := range rec.Ended()[0].Attributes() {
+		keys = append(keys, string(kv.Key))
+		if kv.Value.Type() == attribute.STRING && strings.Contains(kv.Value.AsString(), "vent") {
+			t.Errorf("entity name recorded in %s", kv.Key)
+		}
+	}
+	want := []string{KeyRouteMode, KeyRouteGain, KeyRouteReason, KeyRoutePropensity, KeyDirectErr, KeySamplingRatio, KeyQueryKey, KeyChainErr, KeyChainHops, KeyABArm}
+	if d.Explored {
+		want = append(want, KeyRouteExplored)
+	}
+	slices.Sort(keys)
+	slices.Sort(want)
+	if !slices.Equal(keys, want) {
+		t.Errorf("compact keys %v, want %v", keys, want)
+	}
+	lg, err := ReadTraceFiles(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	got := lg.Decisions[0]
+	if got.Mode != d.Mode.String() || got.Gain != d.Gain || got.Propensity != d.Propensity || !got.HasChain ||
+		got.ChainHops != len(d.Chain.Bridges) || got.Err != d.Err || got.SamplingRatio != 0.5 || got.Key != "u1" || got.Arm != router.ArmRouted {
+		t.Errorf("compact record %+v vs decision %+v", got, d)
 	}
 }
