@@ -25,30 +25,35 @@ func main() {
 	value := flag.String("value", "reads-wet", "its observed value")
 	to := flag.String("to", "bed-10/leaf-wilt", "target entity")
 	flag.Parse()
-	if err := Run(context.Background(), os.Stdout, *index, router.Query{From: *from, Value: *value, To: *to}); err != nil {
+	q := router.Query{From: *from, Value: *value, To: *to}
+	d, err := Decide(context.Background(), *index, q)
+	if err != nil {
 		fmt.Fprintln(os.Stderr, "quickstart:", err)
 		os.Exit(1)
 	}
+	Print(os.Stdout, q, d)
 }
 
-// Run opens the index at path, decides q and prints the decision to w.
-func Run(ctx context.Context, w io.Writer, path string, q router.Query) error {
+// Decide opens the index at path, builds a router and decides q.
+func Decide(ctx context.Context, path string, q router.Query) (router.Decision, error) {
 	idx, err := graphidx.Open(path)
 	if err != nil {
-		return err
+		return router.Decision{}, err
 	}
 	r, err := router.New(idx) // the router owns idx and closes it
 	if err != nil {
 		idx.Close()
-		return err
+		return router.Decision{}, err
 	}
 	defer r.Close()
 	ctx, cancel := context.WithTimeout(ctx, 100*time.Millisecond) // a search deadline
 	defer cancel()
-	d, err := r.Decide(ctx, q)
-	if err != nil {
-		return err
-	}
+	return r.Decide(ctx, q)
+}
+
+// Print writes the decision: the mode, the bridges, the estimate, and the
+// direct error it was compared with.
+func Print(w io.Writer, q router.Query, d router.Decision) {
 	fmt.Fprintf(w, "%s=%s → %s: answer %s", q.From, q.Value, q.To, d.Mode)
 	if d.Mode == router.ModeChain {
 		fmt.Fprintf(w, " via %s", strings.Join(d.Bridges, " → "))
@@ -58,5 +63,4 @@ func Run(ctx context.Context, w io.Writer, path string, q router.Query) error {
 		fmt.Fprintf(w, "  P(%s) = %.3f\n", v, d.Estimate[i])
 	}
 	fmt.Fprintf(w, "  direct error %.4f (support %d), gain %.4f\n", d.Direct.Err, d.Direct.Support, d.Gain)
-	return nil
 }
