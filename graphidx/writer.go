@@ -50,7 +50,9 @@ func TempPrefix(path string) string { return "." + filepath.Base(path) + ".tmp-"
 // The file is written to a temporary file in the same directory (named
 // TempPrefix(path)+"<pid>-<random>"), synced, renamed over path and the
 // directory is synced, so a crash or an error leaves either the old file or
-// the new one at path, never a partial file. The output is deterministic:
+// the new one at path, never a partial file. Temporary files of earlier
+// writes of path whose process is dead (crashed builds) are removed first.
+// The output is deterministic:
 // the same Source content gives a byte-identical file, and the generation
 // stored in the header is a fingerprint of that content.
 //
@@ -82,6 +84,7 @@ func WriteFile(path string, src Source, opts ...WriteOption) (err error) {
 	}
 
 	dir := filepath.Dir(path)
+	removeStaleTemps(path)
 	var rnd [6]byte
 	if _, err := rand.Read(rnd[:]); err != nil {
 		return fmt.Errorf("graphidx: temp name: %w", err)
