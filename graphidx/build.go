@@ -316,8 +316,8 @@ func (b *buildRun) tempDir() (string, error) {
 }
 
 // fixedOverhead is the memory reserved outside the dictionary and tables:
-// read buffers, batches in flight, merge buffers.
-const fixedOverhead = 512 << 10
+// read buffers, batches in flight, the runtime and the program around it.
+const fixedOverhead = 4 << 20
 
 // tableLimit is the most bytes one worker's table may use right now,
 // transients included. One eighth of the budget is left to the garbage
@@ -463,6 +463,8 @@ func (b *buildRun) worker(ctx context.Context, me int, in <-chan *ctxBatch, free
 		t.sorted = t.drain(rank)
 		if len(t.sorted) > 0 && &t.sorted[0] != &t.slots[0] {
 			t.slots = nil // the sorted copy is all that is needed now
+		} else {
+			t.buf = nil
 		}
 	}
 	return t, marg, nil
@@ -854,12 +856,13 @@ func (b *buildRun) finish(ctx context.Context, tables []*pairTab, sum *BuildSumm
 }
 
 // runBufSize is the read buffer per run in a merge of k runs: at most 256
-// KiB, at least 4 KiB, and together at most half the budget.
+// KiB, at least 4 KiB, and together at most a quarter of the budget (the
+// in-memory tables still hold their share during the final merge).
 func runBufSize(budget int64, k int) int {
 	if k == 0 {
 		return 4 << 10
 	}
-	return int(min(256<<10, max(4<<10, budget/int64(2*k))))
+	return int(min(256<<10, max(4<<10, budget/int64(4*k))))
 }
 
 // mergeRuns merges runs into one final-keyed run file.

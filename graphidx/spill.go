@@ -55,6 +55,7 @@ type pairTab struct {
 	sink  uint64 // keeps the prefetching loads of addKeys alive
 	// sorted holds the final drained cells once the worker is done.
 	sorted []cell
+	buf    []cell // radix sort scratch
 }
 
 func newPairTab(slots int) *pairTab {
@@ -94,6 +95,7 @@ func (t *pairTab) bytes() int64 { return int64(len(t.slots)) * cellBytes }
 
 // grow doubles the table.
 func (t *pairTab) grow() {
+	t.buf = nil
 	old := t.slots
 	t.alloc(2 * len(old))
 	mask := uint64(len(t.slots) - 1)
@@ -132,7 +134,12 @@ func (t *pairTab) drain(rank []uint32) []cell {
 		}
 		cells[i].key = cellKey(ra, rb, u, v)
 	}
-	return sortCells(cells)
+	if len(cells) >= 1<<12 && cap(t.buf) < len(cells) {
+		// Kept across spills so sorting does not churn the heap; dropped
+		// when the table grows (see makeRoom's accounting).
+		t.buf = make([]cell, len(cells))
+	}
+	return sortCells(cells, t.buf)
 }
 
 func cmpCell(x, y cell) int {
@@ -146,15 +153,16 @@ func cmpCell(x, y cell) int {
 }
 
 // sortCells sorts cells by key. Small inputs use pdqsort in place; larger
-// ones an LSD radix sort with 11-bit digits through a scratch buffer of the
-// same length, skipping digits that all keys share. O(n·d) for d ≤ 6 passes.
-// The result is cells or the buffer.
-func sortCells(cells []cell) []cell {
+// ones an LSD radix sort with 11-bit digits through buf (at least as long),
+// skipping digits that all keys share. O(n·d) for d ≤ 6 passes. The result
+// is cells or buf.
+func sortCells(cells, buf []cell) []cell {
 	if len(cells) < 1<<12 {
 		slices.SortFunc(cells, cmpCell)
 		return cells
 	}
-	a, buf := cells, make([]cell, len(cells))
+	a := cells
+	buf = buf[:len(cells)]
 	var count [1 << 11]int
 	for shift := uint(0); shift < 64; shift += 11 {
 		clear(count[:])
@@ -411,6 +419,7 @@ type pairStore struct {
 	w        *bufio.Writer
 	n        uint64
 	bytes    int64
+	tmp      [8]byte
 }
 
 func (s *pairStore) put(a, b uint32, counts []uint32) error {
@@ -427,7 +436,7 @@ func (s *pairStore) put(a, b uint32, counts []uint32) error {
 		}
 		s.buf = nil
 	}
-	var tmp [8]byte
+	tmp := s.tmp[:]
 	binary.LittleEndian.PutUint32(tmp[:4], a)
 	binary.LittleEndian.PutUint32(tmp[4:], b)
 	s.n++

@@ -55,8 +55,8 @@ with "file:line: field: reason". Nothing is dropped without being counted.
 Memory. --mem-budget bounds the builder's dictionary and count tables; when
 they fill it, sorted runs are spilled to --temp-dir and merged at the end,
 giving the same index as an in-memory build. For csv, half of the budget
-groups rows and half counts. The Go runtime gets a soft memory limit of the
-budget plus 1/8.
+groups rows and half counts. The Go runtime gets a soft memory limit equal to
+the budget.
 
 Pruning. --min-support drops pairs seen together in fewer contexts;
 --max-neighbors keeps each entity's N best neighbours by support (a pair stays
@@ -133,7 +133,9 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	}
 	defer closer.Close()
 
-	old := debug.SetMemoryLimit(budget + budget/8)
+	// The builder keeps its live data well under the budget; a soft limit of
+	// the budget stops the collector from letting garbage grow past it.
+	old := debug.SetMemoryLimit(budget)
 	defer debug.SetMemoryLimit(old)
 
 	var total int64 = -1
