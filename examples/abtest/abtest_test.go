@@ -63,14 +63,19 @@ func TestSmallRun(t *testing.T) {
 	for _, v := range res.Verdicts {
 		found[v.Arm] = v
 	}
-	// Chaining every query hurts the well-supported majority and costs more
-	// tokens: the experiment must detect that even on a small run.
-	ca, ok := found[router.ArmChainAlways]
-	if !ok || !ca.Worse || !(ca.CostDiff > 0) {
-		t.Errorf("chain-always verdict %+v, want significantly worse and costlier than direct-only", ca)
+	// Product properties, whatever the error model's fine tuning: routing
+	// answers far-apart questions better than always answering directly,
+	// and spends fewer tokens than always chaining.
+	ro, ok1 := found[router.ArmRouted]
+	ca, ok2 := found[router.ArmChainAlways]
+	if !ok1 || !ok2 {
+		t.Fatalf("verdicts %+v lack routed or chain-always", res.Verdicts)
 	}
-	if _, ok := found[router.ArmRouted]; !ok {
-		t.Error("no routed verdict")
+	if !(ro.Diff > 0) {
+		t.Errorf("routed success %+.3f vs direct-only, want > 0", ro.Diff)
+	}
+	if !(ca.CostDiff > ro.CostDiff && ro.CostDiff > 0) {
+		t.Errorf("cost vs direct-only: chain-always %+.4f, routed %+.4f; want chain-always > routed > 0", ca.CostDiff, ro.CostDiff)
 	}
 	if res.SRM {
 		t.Error("sample-ratio mismatch on a deterministic hash assignment")
