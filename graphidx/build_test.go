@@ -300,3 +300,42 @@ func TestBuildErrors(t *testing.T) {
 		t.Errorf("cancelled: %v", err)
 	}
 }
+
+// cancelReader cancels the build's context after n contexts.
+type cancelReader struct {
+	sliceReader
+	n      int
+	cancel context.CancelFunc
+}
+
+func (c *cancelReader) Next() (Context, error) {
+	if c.i == c.n {
+		c.cancel()
+	}
+	return c.sliceReader.Next()
+}
+
+// TestBuildCancelMidway cancels while spilling and checks the error and that
+// no temporary file or output is left behind.
+func TestBuildCancelMidway(t *testing.T) {
+	t.Parallel()
+	dir := t.TempDir()
+	out := filepath.Join(dir, "out.idx")
+	ctx, cancel := context.WithCancel(context.Background())
+	defer cancel()
+	r := &cancelReader{sliceReader: sliceReader{cs: genCorpus(5, 6000, 2000, 6, 2)}, n: 4000, cancel: cancel}
+	tmp := filepath.Join(dir, "tmp")
+	if err := os.Mkdir(tmp, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	_, err := Build(ctx, r, out, WithMemBudget(1), WithTempDir(tmp))
+	if !errors.Is(err, context.Canceled) {
+		t.Fatalf("got %v, want context.Canceled", err)
+	}
+	if left, _ := os.ReadDir(tmp); len(left) != 0 {
+		t.Errorf("temp files left: %v", left)
+	}
+	if _, err := os.Stat(out); !os.IsNotExist(err) {
+		t.Errorf("output exists after cancel: %v", err)
+	}
+}
