@@ -25,7 +25,7 @@ type DirectResult struct {
 type ChainResult struct {
 	Bridges    []string  // bridge entity names in order From → … → To
 	Estimate   []float64 // chained estimate over Decision.Values
-	Err        float64   // expected error of the chain, including β·m
+	Err        float64   // expected error: Σ Var + β·m + squared distance from the reference (search.go)
 	MinSupport uint64    // smallest pair support along the chain
 }
 

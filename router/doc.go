@@ -8,8 +8,13 @@
 //  1. estimates the direct answer and its expected error E_direct;
 //  2. searches chains of at most H bridges (search.go: an exact one-bridge
 //     intersection, then meet-in-the-middle beams of width B joined on shared
-//     nodes), ranks them by an additive edge-cost proxy, keeps the k best and
-//     scores those exactly; the best chain has error E_chain;
+//     nodes), ranks them by an additive edge-cost proxy (for the Bayes model
+//     the signal each edge loses), keeps the k best and scores those
+//     exactly: E_chain = Σ Var + β·m + the squared distance of the chain's
+//     estimate from a reference (the direct estimate when the pair was ever
+//     observed together, else the proxy-best chain's), so that weak chains
+//     whose estimates drift toward the target's marginal are not preferred
+//     for their small variance;
 //  3. routes by gain = E_direct − E_chain (or the utility λ·gain − c_hop·m):
 //     chain when the score is ≥ τ, else direct, subject to the unit's A/B arm
 //     and optional exploration.

@@ -236,8 +236,8 @@ func WithMaxCandidates(k int) Option {
 
 // WithModel sets the error model. Default: scorer.NewBayes with WithAlpha /
 // WithBeta when given, else the scorer defaults. A nil model is an error.
-// The search relies on EdgeCost ≥ 0, non-increasing in support, and on a
-// chain's Err ≥ HopBias()·m, as both scorer models guarantee.
+// The search relies on EdgeCost ≥ 0 and on a chain's Err ≥ HopBias()·m, as
+// both scorer models guarantee; EdgeCost need not be monotone in support.
 func WithModel(m scorer.Model) Option {
 	return optionFunc(func(s *settings) error {
 		if m == nil {

@@ -10,6 +10,7 @@ import (
 	"unsafe"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/scorer"
 )
 
 // Router answers Decide calls against the current index. It owns the graphs
@@ -296,15 +297,28 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	}
 	sc.ddist = append(sc.ddist[:0], dir.Dist...)
 	sc.dirErr = dir.Err
+	if dir.Support > 0 {
+		// The pair's own counts carry no screening-off bias.
+		sc.ref = sc.ddist
+	}
 	_, adjacent := g.Pair(s, t)
 
 	res := sc.generate(adjacent)
 
 	// Stage 2: exact scores of the k proxy-best candidates, shortest first,
-	// starting from the incumbent scored during generation. A chain of m
-	// bridges has Err ≥ β·m (β = HopBias, charged per bridge), so its score
-	// is at most sc.bound(m); a candidate whose bound cannot beat the best so
-	// far is skipped without scoring (exact: ties never replace the best).
+	// starting from the incumbent: the one-bridge chain scored during
+	// generation, or, without direct support, the reference chain (the
+	// proxy-cheapest candidate, scored with bias 0). Every other chain's Err
+	// adds its squared distance from the reference (search.go). A chain of m
+	// bridges has Err ≥ β·m (β = HopBias, charged per bridge; variance and
+	// bias are ≥ 0), so its score is at most sc.bound(m); a candidate whose
+	// bound cannot beat the best so far is skipped without scoring (exact:
+	// ties never replace the best).
+	if sc.err == nil && sc.ref == nil {
+		if ri := sc.refCand(); ri >= 0 {
+			sc.scoreIncumbent(sc.heap[ri])
+		}
+	}
 	if sc.err != nil {
 		return core{}, false, nil, fmt.Errorf("router: chain estimate %q → %q: %w", q.From, q.To, sc.err)
 	}
@@ -330,10 +344,11 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 		if err != nil {
 			return core{}, false, nil, fmt.Errorf("router: chain estimate %q → %q: %w", q.From, q.To, err)
 		}
-		score := sc.scoreOf(dir.Err-est.Err, int(cd.m))
+		e := est.Err + scorer.ReferenceBias(est.Dist, sc.ref)
+		score := sc.scoreOf(dir.Err-e, int(cd.m))
 		if !bestEst.ok || score > bestEst.score {
 			bestC = *cd
-			bestEst.ok, bestEst.err, bestEst.score = true, est.Err, score
+			bestEst.ok, bestEst.err, bestEst.score = true, e, score
 			sc.dist = append(sc.dist[:0], est.Dist...)
 		}
 	}

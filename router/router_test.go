@@ -24,11 +24,25 @@ func mustNew(t testing.TB, g Graph, opts ...Option) *Router {
 	return r
 }
 
-// bruteBest enumerates every simple chain of 1..H bridges from s to t and
-// scores it exactly; it returns the best (largest gain; ties: fewer hops).
+// bruteBest enumerates every simple chain of 1..H bridges from s to t,
+// applies the selection rule of search.go independently and returns the
+// best (largest gain; ties: fewer hops): the reference is the direct
+// estimate when the pair has support, else the chain of smallest proxy cost
+// Σ EdgeCost (edges in path order, pairs read in ascending id order) + β·m,
+// ties to fewer hops, then smaller ids; every chain's error is its model
+// Err plus its squared distance from the reference.
 func bruteBest(t *testing.T, g *memGraph, m scorer.Model, s graphidx.EntityID, u int, tt graphidx.EntityID, H int) (best []graphidx.EntityID, bestErr float64, n int) {
 	t.Helper()
-	bestErr = math.Inf(1)
+	type chain struct {
+		b    []graphidx.EntityID
+		cost float64
+		est  scorer.Estimate
+	}
+	cost := func(a, b graphidx.EntityID) float64 {
+		ps, _ := g.Pair(min(a, b), max(a, b))
+		return m.EdgeCost(ps)
+	}
+	var all []chain
 	path := []graphidx.EntityID{}
 	onPath := map[graphidx.EntityID]bool{s: true, tt: true}
 	var rec func(last graphidx.EntityID)
@@ -39,10 +53,12 @@ func bruteBest(t *testing.T, g *memGraph, m scorer.Model, s graphidx.EntityID, u
 				if err != nil {
 					t.Fatal(err)
 				}
-				n++
-				if est.Err < bestErr-1e-15 || (math.Abs(est.Err-bestErr) <= 1e-15 && len(path) < len(best)) {
-					best, bestErr = slices.Clone(path), est.Err
+				c, prev := 0.0, s
+				for _, z := range append(slices.Clone(path), tt) {
+					c += cost(prev, z)
+					prev = z
 				}
+				all = append(all, chain{slices.Clone(path), c + float64(len(path))*m.HopBias(), est})
 			}
 		}
 		if len(path) == H {
@@ -60,7 +76,29 @@ func bruteBest(t *testing.T, g *memGraph, m scorer.Model, s graphidx.EntityID, u
 		}
 	}
 	rec(s)
-	return best, bestErr, n
+	dir, err := m.Direct(nil, g, s, u, tt)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ref := dir.Dist
+	if dir.Support == 0 && len(all) > 0 {
+		ri := 0
+		for i, c := range all {
+			r := all[ri]
+			if c.cost < r.cost || (c.cost == r.cost && (len(c.b) < len(r.b) || (len(c.b) == len(r.b) && slices.Compare(c.b, r.b) < 0))) {
+				ri = i
+			}
+		}
+		ref = all[ri].est.Dist
+	}
+	bestErr = math.Inf(1)
+	for _, c := range all {
+		e := c.est.Err + scorer.ReferenceBias(c.est.Dist, ref)
+		if e < bestErr-1e-15 || (math.Abs(e-bestErr) <= 1e-15 && len(c.b) < len(best)) {
+			best, bestErr = c.b, e
+		}
+	}
+	return best, bestErr, len(all)
 }
 
 // TestSearchMatchesBruteForce: with no bound hit, the search must return the
@@ -69,7 +107,7 @@ func bruteBest(t *testing.T, g *memGraph, m scorer.Model, s graphidx.EntityID, u
 func TestSearchMatchesBruteForce(t *testing.T) {
 	t.Parallel()
 	ctx := context.Background()
-	checked, untrunc, long := 0, 0, 0
+	checked, untrunc, long, refChain := 0, 0, 0, 0
 	// β = 0 lets long chains win; the default β mostly favours one bridge.
 	for _, beta := range []float64{0, 0.002, scorer.DefaultBeta} {
 		model, err := scorer.NewBayes(scorer.WithBeta(beta))
@@ -132,6 +170,9 @@ func TestSearchMatchesBruteForce(t *testing.T) {
 							if len(d.Chain.Bridges) > 1 {
 								long++
 							}
+							if d.Direct.Support == 0 {
+								refChain++ // the reference was a chain
+							}
 						}
 					}
 				}
@@ -144,7 +185,10 @@ func TestSearchMatchesBruteForce(t *testing.T) {
 	if untrunc == 0 {
 		t.Fatal("no untruncated tight search; the test does not exercise the completeness claim")
 	}
-	t.Logf("checked %d decisions against brute force (%d under tight bounds, %d with a multi-bridge optimum)", checked, untrunc, long)
+	if refChain == 0 {
+		t.Fatal("no pair without direct support; the reference-chain rule is not exercised")
+	}
+	t.Logf("checked %d decisions against brute force (%d under tight bounds, %d with a multi-bridge optimum, %d with a reference chain)", checked, untrunc, long, refChain)
 }
 
 // TestTruncatedByBudget: a hub search cut by the expansion budget says so.
@@ -278,6 +322,73 @@ func TestBadOptions(t *testing.T) {
 	m, _ := scorer.NewBayes()
 	if _, err := New(g, WithModel(m), WithBeta(0.1)); !errors.Is(err, ErrBadOption) {
 		t.Errorf("model with beta: %v", err)
+	}
+}
+
+// TestSeparatorBeatsHighSupportBridges: a tree-structured world where
+// vent → humidity → bed is a Markov chain (P(low | open) = 0.9, P(wet |
+// high) = 0.9; 200 contexts per edge, vent and bed never together) and 20
+// loggers co-occur with vent and bed in ~10⁴ contexts each but carry almost
+// no signal (φ ≈ 0.02–0.04). Truth (by enumerating the chain):
+// P(bed = dry | vent = open) = 0.1·0.1 + 0.9·0.9 = 0.82. Each logger chain
+// has a smaller exact variance than the separator chain and more support,
+// so choosing by variance alone, or generating candidates by support, picks
+// a logger and answers ≈ 0.5; the signal-loss proxy and the reference bias
+// must pick humidity.
+func TestSeparatorBeatsHighSupportBridges(t *testing.T) {
+	t.Parallel()
+	b := newMemBuilder(1)
+	bed := b.entity("bed-tomato", "dry", "wet")
+	hum := b.entity("humidity-zone1", "high", "low")
+	vent := b.entity("vent-north", "closed", "open")
+	b.pair(vent, hum, 180, 20, 20, 180) // rows vent closed/open, cols humidity high/low
+	b.pair(hum, bed, 20, 180, 180, 20)  // rows humidity high/low, cols bed dry/wet
+	var loggers []graphidx.EntityID
+	for i := range 20 {
+		l := b.entity(fmt.Sprintf("logger-%02d", i), "idle", "busy")
+		loggers = append(loggers, l)
+		d := uint32(10 * i)
+		b.pair(vent, l, 5200+d, 4800, 4800, 5200+d)
+		b.pair(l, bed, 5100, 4900+d, 4900+d, 5100)
+	}
+	g := b.build()
+	q := Query{From: "vent-north", Value: "open", To: "bed-tomato"}
+	const truthDry = 0.82
+
+	// The old failure, shown with the scorer alone: every logger chain has
+	// more support and a smaller variance than the separator chain.
+	m, err := scorer.NewBayes()
+	if err != nil {
+		t.Fatal(err)
+	}
+	open, _ := g.ValueIndex(vent, "open")
+	sep, err := m.Chain(nil, g, vent, open, []graphidx.EntityID{hum}, bed)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, l := range loggers {
+		e, err := m.Chain(nil, g, vent, open, []graphidx.EntityID{l}, bed)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !(e.Err < sep.Err && e.Support > sep.Support) || math.Abs(e.Dist[0]-0.5) > 0.05 {
+			t.Fatalf("world not as designed: logger chain err %g support %d dist %v, separator err %g support %d",
+				e.Err, e.Support, e.Dist, sep.Err, sep.Support)
+		}
+	}
+
+	for _, H := range []int{1, 3} {
+		r := mustNew(t, g, WithMaxBridges(H), WithCacheSize(0))
+		d, err := r.Decide(context.Background(), q)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if d.Chain == nil || !slices.Equal(d.Chain.Bridges, []string{"humidity-zone1"}) || d.Mode != ModeChain {
+			t.Fatalf("H=%d: mode %v chain %+v, want the humidity chain", H, d.Mode, d.Chain)
+		}
+		if math.Abs(d.Estimate[0]-truthDry) > 0.03 {
+			t.Errorf("H=%d: P(dry | open) = %.3f, truth %.2f", H, d.Estimate[0], truthDry)
+		}
 	}
 }
 

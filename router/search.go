@@ -19,36 +19,60 @@ import (
 //     longer. This phase may spend half the budget (the intersection half
 //     of that), so a hub leaves room for the rest.
 //   - m = 2, 3: meet in the middle. Beams grow from both ends: F1 (T1)
-//     holds the B best-ranked (highest-support, so cheapest) neighbours of
-//     s (t), read in order from the support-ranked adjacency prefix; F2 (T2)
-//     holds B two-hop paths taken breadth-first by rank from the ranked lists
-//     of the F1 (T1) nodes. The halves are joined on shared nodes by
-//     sort-merge: m = 2 from F2 ⋈ T1 (s→a→b, b→t) and F1 ⋈ T2 (s→a,
-//     t→c→a); m = 3 from F2 ⋈ T2 (s→a→b, t→c→b, a ≠ c).
+//     holds the B best-ranked (highest-support) neighbours of s (t), read in
+//     order from the support-ranked adjacency prefix; F2 (T2) holds B
+//     two-hop paths taken breadth-first by rank from the ranked lists of the
+//     F1 (T1) nodes. The halves are joined on shared nodes by sort-merge:
+//     m = 2 from F2 ⋈ T1 (s→a→b, b→t) and F1 ⋈ T2 (s→a, t→c→a); m = 3 from
+//     F2 ⋈ T2 (s→a→b, t→c→b, a ≠ c).
 //
 // Stage 1 ranks the generated chains by the additive proxy
-// Σ_edges model.EdgeCost(support) + model.HopBias()·m and keeps the k
+// Σ_edges model.EdgeCost(pair stats) + model.HopBias()·m and keeps the k
 // cheapest in a bounded max-heap (a chain met from both sides is kept once).
-// Stage 2 (Router.compute) scores those k exactly with model.Chain, shortest
-// first, skipping a chain whose bound E_direct − β·m cannot beat the best,
-// and picks the largest score: the gain E_direct − E_chain, or
-// λ·gain − c_hop·m.
+// For the Bayes model EdgeCost is a signal-loss cost (−log of a lower bound
+// of Cramér's V), so the cheapest chains are those that keep the most
+// signal; it is not monotone in support. The beams are still support-ranked
+// prefixes: support bounds how well an edge is known, and a beam that could
+// not hold every neighbour marks the search truncated, so a cheap edge of
+// low rank is never silently lost.
+//
+// Stage 2 (Router.compute) scores the candidates exactly with model.Chain and
+// adds a squared-bias term relative to a reference estimate ref:
+//
+//	Err_c = Σ_v Var(p̂_c,v) + β·m_c + scorer.ReferenceBias(p̂_c, ref),
+//
+// where ref is the direct estimate when the pair has support > 0, else the
+// estimate of the proxy-cheapest generated chain (smallest cost, then fewer
+// bridges, then smaller ids), whose own bias term is 0. It picks the largest
+// score: the gain E_direct − Err_c, or λ·gain − c_hop·m. Candidates are
+// scored shortest first, and one whose bound (Err_c ≥ β·m_c, so score ≤
+// bound(m)) cannot beat the best so far is skipped. When ref is the direct
+// estimate it is known before generation, and generation itself scores the
+// proxy-best one-bridge chain and skips the two- and three-bridge phases
+// whose bound cannot beat it. Without direct support the reference depends
+// on every generated chain, so all phases are generated (only exact scoring
+// is skipped).
 //
 // Cost: O(I + B·log B + B² + k·C). I is the intersection, O(|a|+|b|) by
 // merge or O(|a|·log(|b|/|a|)) by galloping. The beams are read from the
-// ranked lists without look-ups; an edge cost is looked up (once) only for
-// a node or path that takes part in a join. B² bounds a join of equal middle
-// nodes, and C is one exact chain score (O(m·K³)). List steps cost 1 budget
-// unit and look-ups lookupUnits, so a hub with millions of neighbours costs
-// at most the budget; the context's deadline is polled every 256 units.
+// ranked lists without look-ups; an edge cost (O(K²): Cramér's V of the
+// pair table) is computed once, only for a node or path that takes part in a
+// join. B² bounds a join of equal middle nodes, and C is one exact chain
+// score (O(m·K³)). List steps cost 1 budget unit and look-ups lookupUnits,
+// so a hub with millions of neighbours costs at most the budget; the
+// context's deadline is polled every 256 units.
 //
-// Completeness: the result is the exact optimum over all simple chains of
-// at most H bridges whenever Truncated is false, i.e. when the intersection
-// was not cut, (F2 and T1) or (F1 and T2) hold every path of their kind (for
-// H ≥ 2), F2 and T2 do (for H = 3), the heap never overflowed, and neither
-// budget nor deadline ran out. EdgeCost must be ≥ 0 (pruning relies on it)
-// and is assumed non-increasing in support (the beams read support-ranked
-// lists in order); a model's Err must be ≥ HopBias()·m (stage 2 bound).
+// Completeness: the result is the exact optimum of the rule above over all
+// simple chains of at most H bridges whenever Truncated is false, i.e. when
+// the intersection was not cut, (F2 and T1) or (F1 and T2) hold every path
+// of their kind (for H ≥ 2), F2 and T2 do (for H = 3), the heap never
+// overflowed or pruned, and neither budget nor deadline ran out. Then every
+// chain is generated, so the reference is the global proxy minimum and every
+// chain is either scored or provably beaten. The pruning rules need only
+// EdgeCost ≥ 0 (a partial sum of edge costs, unknown costs counted as 0,
+// bounds a chain's proxy cost from below) and Err_c ≥ HopBias()·m (stage-2
+// and phase bounds; the variance and bias terms are ≥ 0). No rule assumes
+// EdgeCost is monotone in support.
 
 // step1 is a first-layer beam node; cost is its edge cost from the origin,
 // NaN until a join needs it (cost1).
@@ -146,6 +170,9 @@ type scratch struct {
 	path     []graphidx.EntityID
 	dist     []float64 // best chain's Dist copy
 	ddist    []float64 // direct Dist copy
+	// ref is the reference estimate of the bias term (ddist, or incDist of
+	// the reference chain); nil until known.
+	ref []float64
 
 	// incumbent: a chain scored exactly during generation
 	inc struct {
@@ -177,19 +204,25 @@ func (sc *scratch) reset() {
 	sc.bud = budget{}
 	sc.inc.ok = false
 	sc.err = nil
+	sc.ref = nil
 }
 
 // edge returns the proxy cost of the pair (a, b); ok is false when the pair
-// has no statistics or the budget is out.
+// has no statistics or the budget is out. The pair is read in ascending id
+// order, so an edge costs the same whichever way a path crosses it (a chain
+// met from both sides must cost the same to be kept once).
 func (sc *scratch) edge(a, b graphidx.EntityID) (float64, bool) {
 	if sc.bud.take(lookupUnits) < lookupUnits {
 		return 0, false
+	}
+	if a > b {
+		a, b = b, a
 	}
 	ps, ok := sc.g.Pair(a, b)
 	if !ok {
 		return 0, false
 	}
-	return sc.model.EdgeCost(ps.Support()), true
+	return sc.model.EdgeCost(ps), true
 }
 
 // intersect puts a ∩ b (both ascending) into sc.hits. It reports false when
@@ -328,8 +361,8 @@ func (sc *scratch) prune(lower float64) bool {
 }
 
 // layer1 fills out with the beam of the B best-ranked neighbours of from
-// (other excluded): by support, hence by edge cost, which is looked up only
-// when a join uses the node. complete reports that it holds all of them.
+// (other excluded), by support; the edge cost is looked up only when a join
+// uses the node. complete reports that it holds all of them.
 func (sc *scratch) layer1(out []step1, from, other graphidx.EntityID, adjacent bool) ([]step1, bool) {
 	out = out[:0]
 	rk := sc.g.RankedNeighbors(from)
@@ -524,10 +557,12 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 		return sc.result(complete)
 	}
 
-	// Incumbent: score the proxy-best one-bridge chain exactly. Longer
-	// chains have score ≤ bound(m) (Err ≥ β·m); a phase whose bound cannot
-	// beat the incumbent is skipped, which loses nothing, so it is no cut.
-	if len(sc.heap) > 0 {
+	// Incumbent: with the reference known (the direct estimate), score the
+	// proxy-best one-bridge chain exactly. Longer chains have score ≤
+	// bound(m) (Err ≥ β·m); a phase whose bound cannot beat the incumbent is
+	// skipped, which loses nothing, so it is no cut. Without direct support
+	// the reference needs every phase's candidates, so none is skipped.
+	if sc.ref != nil && len(sc.heap) > 0 {
 		bi := 0
 		for i := range sc.heap {
 			if candLess(&sc.heap[i], &sc.heap[bi]) {
@@ -548,7 +583,7 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 	sc.t1, t1ok = sc.layer1(sc.t1, t, s, adjacent)
 	sc.f2, f2ok = sc.layer2(sc.f2, sc.f1, f1ok, s, t)
 	sc.t2, t2ok = sc.layer2(sc.t2, sc.t1, t1ok, t, s)
-	// Sorted copies for the joins; the beams keep their cost order.
+	// Sorted copies for the joins; the beams keep their rank order.
 	sc.f1s = sc.sortSteps1(sc.f1s, sc.f1)
 	sc.t1s = sc.sortSteps1(sc.t1s, sc.t1)
 	sc.f2s = sc.sortSteps2(sc.f2s, sc.f2)
@@ -702,8 +737,10 @@ func (sc *scratch) scoreOf(gain float64, m int) float64 {
 // least β·m, so its gain at most E_direct − β·m.
 func (sc *scratch) bound(m int) float64 { return sc.scoreOf(sc.dirErr-sc.hb*float64(m), m) }
 
-// scoreIncumbent scores c exactly and records it as the incumbent. It
-// returns false (with sc.err set) when the model fails.
+// scoreIncumbent scores c exactly, with its bias relative to sc.ref (or as
+// the reference itself when sc.ref is nil: bias 0, and sc.ref becomes its
+// estimate), and records it as the incumbent. It returns false (with sc.err
+// set) when the model fails.
 func (sc *scratch) scoreIncumbent(c cand) bool {
 	sc.path = append(sc.path[:0], c.b[:c.m]...)
 	est, err := sc.model.Chain(sc.ws, sc.g, sc.s, sc.u, sc.path, sc.t)
@@ -711,8 +748,44 @@ func (sc *scratch) scoreIncumbent(c cand) bool {
 		sc.err = err
 		return false
 	}
+	e := est.Err
+	if sc.ref != nil {
+		e += scorer.ReferenceBias(est.Dist, sc.ref)
+	}
 	sc.inc.ok, sc.inc.c = true, c
-	sc.inc.err, sc.inc.score = est.Err, sc.scoreOf(sc.dirErr-est.Err, int(c.m))
+	sc.inc.err, sc.inc.score = e, sc.scoreOf(sc.dirErr-e, int(c.m))
 	sc.incDist = append(sc.incDist[:0], est.Dist...)
+	if sc.ref == nil {
+		sc.ref = sc.incDist
+	}
 	return true
+}
+
+// refCmp orders candidates for the choice of the reference chain: by proxy
+// cost, then hops, then ids.
+func refCmp(a, b *cand) int {
+	if c := cmp.Compare(a.cost, b.cost); c != 0 {
+		return c
+	}
+	if c := cmp.Compare(a.m, b.m); c != 0 {
+		return c
+	}
+	for i := 0; i < int(a.m); i++ {
+		if c := cmp.Compare(a.b[i], b.b[i]); c != 0 {
+			return c
+		}
+	}
+	return 0
+}
+
+// refCand returns the index in sc.heap of the proxy-cheapest candidate
+// (refCmp), or -1 for an empty heap.
+func (sc *scratch) refCand() int {
+	ri := -1
+	for i := range sc.heap {
+		if ri < 0 || refCmp(&sc.heap[i], &sc.heap[ri]) < 0 {
+			ri = i
+		}
+	}
+	return ri
 }

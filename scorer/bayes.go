@@ -64,13 +64,14 @@ import (
 // tests. WithVariance(ExactMoments) computes the exact value at the same
 // O(m·K³) cost.
 type Bayes struct {
-	alpha, beta, edgeN0 float64
-	variance            Variance
+	alpha, beta, signalZ float64
+	variance             Variance
 }
 
 // NewBayes returns the valued Dirichlet model. Options: WithAlpha (α > 0,
-// default 1), WithBeta (β ≥ 0, default DefaultBeta), WithEdgeN0 (> 0, default
-// 2α+1), WithVariance (DeltaMethod or ExactMoments, default DeltaMethod).
+// default 1), WithBeta (β ≥ 0, default DefaultBeta), WithSignalZ (z ≥ 0 of
+// EdgeCost, default DefaultSignalZ), WithVariance (DeltaMethod or
+// ExactMoments, default DeltaMethod).
 // WithV0 and WithN0 belong to the support model and are rejected with
 // ErrBadOption.
 func NewBayes(opts ...Option) (*Bayes, error) {
@@ -81,10 +82,7 @@ func NewBayes(opts ...Option) (*Bayes, error) {
 	if c.setV0 || c.setN0 {
 		return nil, fmt.Errorf("%w: WithV0/WithN0 apply to the support model only", ErrBadOption)
 	}
-	if !c.setEdgeN0 {
-		c.edgeN0 = 2*c.alpha + 1
-	}
-	return &Bayes{alpha: c.alpha, beta: c.beta, edgeN0: c.edgeN0, variance: c.variance}, nil
+	return &Bayes{alpha: c.alpha, beta: c.beta, signalZ: c.signalZ, variance: c.variance}, nil
 }
 
 // Name returns "bayes".
@@ -99,13 +97,8 @@ func (b *Bayes) Alpha() float64 { return b.alpha }
 // HopBias returns β.
 func (b *Bayes) HopBias() float64 { return b.beta }
 
-// EdgeCost returns 1/2 / (support + n0), the posterior variance bound
-// Σ_v θ_v(1−θ_v)/(n + Kα + 1) ≤ (1/2)/(n + 2α + 1) of a binary row observed
-// support times, used as an additive per-edge proxy (DESIGN.md §4).
-// n0 defaults to 2α+1 (WithEdgeN0). O(1).
-func (b *Bayes) EdgeCost(support uint64) float64 {
-	return 0.5 / (float64(support) + b.edgeN0)
-}
+// SignalZ returns z of EdgeCost.
+func (b *Bayes) SignalZ() float64 { return b.signalZ }
 
 // Posterior appends to dst the parameters N[u][v] + α of the Dirichlet
 // posterior of P(t | s = u) and returns the extended slice. With K_t = 2 it

@@ -30,9 +30,14 @@ type Model interface {
 	// (m = len(bridges) may be 0, which gives the direct estimate with the
 	// chain error model).
 	Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridges []graphidx.EntityID, t graphidx.EntityID) (Estimate, error)
-	// EdgeCost is an additive per-edge error proxy used to generate chain
-	// candidates cheaply (DESIGN.md §4). It is decreasing in support.
-	EdgeCost(support uint64) float64
+	// EdgeCost is the additive per-edge proxy used to generate chain
+	// candidates cheaply (DESIGN.md §4): the router scores exactly only the
+	// k chains of smallest Σ_edges EdgeCost + HopBias·m. It must be ≥ 0
+	// (the search prunes on partial sums), need not be monotone in
+	// support, and should be cheap and allocation-free: it runs once per
+	// looked-up edge. Bayes: a signal-loss cost from Cramér's V; Support:
+	// v0/(support + n0).
+	EdgeCost(ps graphidx.PairStats) float64
 	// HopBias is β, the squared bias charged per bridge.
 	HopBias() float64
 	// Name identifies the model in traces and reports.

@@ -27,8 +27,9 @@ func TestConstructorsRejectBadOptions(t *testing.T) {
 		{"bayes β<0", bayes(scorer.WithBeta(-1e-9))},
 		{"bayes β=NaN", bayes(scorer.WithBeta(nan))},
 		{"bayes β=Inf", bayes(scorer.WithBeta(inf))},
-		{"bayes edge n0=0", bayes(scorer.WithEdgeN0(0))},
-		{"bayes edge n0=NaN", bayes(scorer.WithEdgeN0(nan))},
+		{"bayes z<0", bayes(scorer.WithSignalZ(-0.5))},
+		{"bayes z=NaN", bayes(scorer.WithSignalZ(nan))},
+		{"bayes z=Inf", bayes(scorer.WithSignalZ(inf))},
 		{"bayes given v0", bayes(scorer.WithV0(1))},
 		{"bayes given n0", bayes(scorer.WithN0(1))},
 		{"support v0=0", support(scorer.WithV0(0))},
@@ -38,7 +39,7 @@ func TestConstructorsRejectBadOptions(t *testing.T) {
 		{"support n0=NaN", support(scorer.WithN0(nan))},
 		{"support β<0", support(scorer.WithBeta(-1))},
 		{"support α=0", support(scorer.WithAlpha(0))},
-		{"support given edge n0", support(scorer.WithEdgeN0(2))},
+		{"support given z", support(scorer.WithSignalZ(2))},
 		{"bayes unknown variance", bayes(scorer.WithVariance(scorer.Variance(7)))},
 		{"support given variance", support(scorer.WithVariance(scorer.ExactMoments))},
 		{"later bad option wins", bayes(scorer.WithAlpha(2), scorer.WithBeta(-3))},
@@ -58,13 +59,15 @@ func TestOptionsTakeEffect(t *testing.T) {
 	if b.Alpha() != 0.5 || b.HopBias() != 0.02 || b.Name() != "bayes" {
 		t.Errorf("alpha %g beta %g name %q", b.Alpha(), b.HopBias(), b.Name())
 	}
-	// EdgeCost = 1/2 / (support + 2α + 1) by default (hand computed: 0.5/(10+2)).
-	if got := b.EdgeCost(10); got != 0.5/12 {
-		t.Errorf("EdgeCost(10) = %g, want %g", got, 0.5/12)
+	if b.SignalZ() != scorer.DefaultSignalZ {
+		t.Errorf("default z %g", b.SignalZ())
 	}
-	b2, _ := scorer.NewBayes(scorer.WithEdgeN0(5))
-	if got := b2.EdgeCost(0); got != 0.1 {
-		t.Errorf("EdgeCost(0) with n0=5: %g, want 0.1", got)
+	// z enters EdgeCost as −log(V̂ − z/√n) (values in TestBayesEdgeCostHand).
+	ps := graphidx.NewPairStats(1, 2, 2, 2, []uint32{40, 10, 10, 40})
+	b0, _ := scorer.NewBayes(scorer.WithSignalZ(0))
+	b3, _ := scorer.NewBayes(scorer.WithSignalZ(3))
+	if c0, c2, c3 := b0.EdgeCost(ps), b.EdgeCost(ps), b3.EdgeCost(ps); !(0 < c0 && c0 < c2 && c2 < c3) || b0.SignalZ() != 0 {
+		t.Errorf("EdgeCost with z = 0, 2, 3: %g, %g, %g; want increasing in z", c0, c2, c3)
 	}
 	if e, _ := scorer.NewBayes(scorer.WithVariance(scorer.ExactMoments)); e.Variance() != scorer.ExactMoments || e.Variance().String() != "exact" {
 		t.Errorf("WithVariance(ExactMoments) not applied: %v", e.Variance())
@@ -73,16 +76,15 @@ func TestOptionsTakeEffect(t *testing.T) {
 	if d.Variance() != scorer.DeltaMethod || d.Alpha() != scorer.DefaultAlpha || d.HopBias() != scorer.DefaultBeta {
 		t.Errorf("defaults alpha %g beta %g", d.Alpha(), d.HopBias())
 	}
-	// EdgeCost decreases with support (candidate generation relies on it).
-	for _, m := range []scorer.Model{d, mustSupport(t)} {
-		prev := math.Inf(1)
-		for _, s := range []uint64{0, 1, 5, 100, 1 << 40} {
-			c := m.EdgeCost(s)
-			if !(c < prev) || c <= 0 {
-				t.Errorf("%s: EdgeCost(%d) = %g not decreasing/positive", m.Name(), s, c)
-			}
-			prev = c
+	// The support model's EdgeCost decreases with support.
+	sm := mustSupport(t)
+	prev := math.Inf(1)
+	for _, s := range []uint32{0, 1, 5, 100, 1 << 30} {
+		c := sm.EdgeCost(graphidx.NewPairStats(1, 2, 1, 1, []uint32{s}))
+		if !(c < prev) || c <= 0 {
+			t.Errorf("support: EdgeCost at support %d = %g not decreasing/positive", s, c)
 		}
+		prev = c
 	}
 }
 
@@ -298,8 +300,8 @@ func TestSupportModelFormula(t *testing.T) {
 			}
 		}
 	}
-	if got := m.EdgeCost(8); got != 0.05 {
-		t.Errorf("EdgeCost(8) = %g, want 0.05", got)
+	if got := m.EdgeCost(graphidx.NewPairStats(1, 2, 1, 1, []uint32{8})); got != 0.05 {
+		t.Errorf("EdgeCost at support 8 = %g, want 0.05", got)
 	}
 	if m.HopBias() != 0.01 || m.Name() != "support" {
 		t.Errorf("HopBias %g Name %q", m.HopBias(), m.Name())

@@ -43,15 +43,15 @@ type optionFunc func(*config) error
 func (f optionFunc) apply(c *config) error { return f(c) }
 
 type config struct {
-	alpha, beta, v0, n0, edgeN0       float64
-	setV0, setN0, setEdgeN0, setAlpha bool
-	setBeta                           bool
-	variance                          Variance
-	setVariance                       bool
+	alpha, beta, v0, n0, signalZ       float64
+	setV0, setN0, setSignalZ, setAlpha bool
+	setBeta                            bool
+	variance                           Variance
+	setVariance                        bool
 }
 
 func defaultConfig() config {
-	return config{alpha: DefaultAlpha, beta: DefaultBeta, v0: DefaultV0, n0: DefaultN0}
+	return config{alpha: DefaultAlpha, beta: DefaultBeta, v0: DefaultV0, n0: DefaultN0, signalZ: DefaultSignalZ}
 }
 
 func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
@@ -104,15 +104,16 @@ func WithN0(n0 float64) Option {
 	})
 }
 
-// WithEdgeN0 sets the pseudo-support n0 of the Bayes model's candidate-
-// generation proxy EdgeCost(s) = 1/2 / (s + n0) (finite, > 0). Default 2α+1.
-// Bayes model only (the support model's EdgeCost is its own edge error).
-func WithEdgeN0(n0 float64) Option {
+// WithSignalZ sets z (finite, ≥ 0) of the Bayes model's candidate-generation
+// proxy EdgeCost = −log max(ε, V̂ − z/√n): how many standard errors the
+// edge association is discounted by. Default DefaultSignalZ; 0 ranks edges
+// by the point estimate V̂. Bayes model only.
+func WithSignalZ(z float64) Option {
 	return optionFunc(func(c *config) error {
-		if !finite(n0) || n0 <= 0 {
-			return fmt.Errorf("%w: WithEdgeN0(%v): n0 must be finite and > 0", ErrBadOption, n0)
+		if !finite(z) || z < 0 {
+			return fmt.Errorf("%w: WithSignalZ(%v): z must be finite and ≥ 0", ErrBadOption, z)
 		}
-		c.edgeN0, c.setEdgeN0 = n0, true
+		c.signalZ, c.setSignalZ = z, true
 		return nil
 	})
 }

@@ -25,8 +25,9 @@ type Support struct {
 
 // NewSupport returns the presence-only model. Options: WithV0 (> 0, default
 // DefaultV0), WithN0 (> 0, default DefaultN0), WithBeta (≥ 0, default
-// DefaultBeta), WithAlpha (> 0, default 1; smooths Dist only). WithEdgeN0
-// belongs to the Bayes model and is rejected with ErrBadOption.
+// DefaultBeta), WithAlpha (> 0, default 1; smooths Dist only). WithSignalZ
+// and WithVariance belong to the Bayes model and are rejected with
+// ErrBadOption.
 func NewSupport(opts ...Option) (*Support, error) {
 	c, err := buildConfig(opts)
 	if err != nil {
@@ -35,8 +36,8 @@ func NewSupport(opts ...Option) (*Support, error) {
 	if c.setVariance {
 		return nil, fmt.Errorf("%w: WithVariance applies to the Bayes model only", ErrBadOption)
 	}
-	if c.setEdgeN0 {
-		return nil, fmt.Errorf("%w: WithEdgeN0 applies to the Bayes model only (the support model's edge cost is v0/(support+n0))", ErrBadOption)
+	if c.setSignalZ {
+		return nil, fmt.Errorf("%w: WithSignalZ applies to the Bayes model only (the support model's edge cost is v0/(support+n0))", ErrBadOption)
 	}
 	return &Support{alpha: c.alpha, beta: c.beta, v0: c.v0, n0: c.n0}, nil
 }
@@ -47,8 +48,14 @@ func (m *Support) Name() string { return "support" }
 // HopBias returns β.
 func (m *Support) HopBias() float64 { return m.beta }
 
-// EdgeCost returns v0/(support + n0), the model's own edge error. O(1).
-func (m *Support) EdgeCost(support uint64) float64 {
+// EdgeCost returns v0/(support + n0), the model's own edge error, for the
+// pair's support. O(K_a·K_b) (the support sums the table).
+func (m *Support) EdgeCost(ps graphidx.PairStats) float64 {
+	return m.edgeErr(ps.Support())
+}
+
+// edgeErr is v0/(support + n0). O(1).
+func (m *Support) edgeErr(support uint64) float64 {
 	return m.v0 / (float64(support) + m.n0)
 }
 
@@ -89,7 +96,7 @@ func (m *Support) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bri
 		}
 		sup := fillMeans(ws.theta[ws.toff[k]:ws.toff[k+1]], ws.cinv[ws.coff[k]:ws.coff[k+1]], ps, ok, ka, kb, m.alpha)
 		minSup = min(minSup, sup)
-		e += m.EdgeCost(sup)
+		e += m.edgeErr(sup)
 	}
 	e += m.beta * float64(len(bridges))
 
