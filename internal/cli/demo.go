@@ -38,6 +38,9 @@ them. Well-supported pairs are answered directly.`,
   hopwise demo --dir /tmp/gh --seed 7 --contexts 50000`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
+			if cfg.Seed == 0 {
+				return fmt.Errorf("demo: --seed must be non-zero (0 would mean the default seed %d)", demo.DefaultSeed)
+			}
 			out := cmd.OutOrStdout()
 			cfg.Log = out
 			stderr := cmd.ErrOrStderr()

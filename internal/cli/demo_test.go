@@ -44,4 +44,11 @@ func TestDemoCommand(t *testing.T) {
 	if err := root.ExecuteContext(context.Background()); err == nil || !strings.Contains(err.Error(), "contexts 3") {
 		t.Errorf("--contexts 3: err %v", err)
 	}
+	root = NewRoot()
+	root.SetOut(&out)
+	root.SetErr(&errb)
+	root.SetArgs([]string{"demo", "--dir", dir, "--seed", "0"})
+	if err := root.ExecuteContext(context.Background()); err == nil || !strings.Contains(err.Error(), "--seed") {
+		t.Errorf("--seed 0: err %v", err)
+	}
 }
