@@ -1,25 +1,26 @@
 // Package demo runs the end-to-end tour behind `hopwise demo` on the invented
-// greenhouse world (internal/world.Greenhouse): it samples a corpus of local
-// contexts, builds a locality index with the real builder, routes every
-// held-out (far-apart) and well-supported query through a router.Router
-// instrumented by otelx, and measures the direct, chained and routed
-// estimates against the exact conditionals of the world.
+// greenhouse world (internal/world.Greenhouse).
 //
-// Error measure. For a query (s = u, t) with exact conditional p = P(t | s=u)
-// over the K values of t and an estimate p̂, the squared error is
+// The measurement is the eval harness's (internal/eval): eval.Prepare samples
+// a corpus of local contexts and builds the index with the real builder, and
+// Bench.Answer scores the direct, chained, routed, ideal-scaffold,
+// negative-control and support-only estimates of every held-out (far-apart)
+// and supported query against the exact conditionals. For a query with exact
+// answer p over the K values of the target and an estimate p̂, the error is
+// (1/K) Σ_v (p̂_v − p_v)²; a table cell is the mean over the set's queries
+// (eval.MSEDefinition).
 //
-//	e(p̂) = (1/K) Σ_v (p̂_v − p_v)²
-//
-// (for binary t this is (p̂_1 − p_1)²), and a table cell is the mean of e over
-// the queries of its set: the mean squared error (MSE). "Chained" is the best
-// chain's estimate when the router found one and the direct estimate
-// otherwise (what an always-chain policy answers); "routed" is the estimate
-// of the mode the router chose.
+// The demo then routes the same queries again through a router configured as
+// the harness's and wrapped in otelx instrumentation exporting to an OTLP JSON
+// Lines file (otelx/otlpfile), keeps a few decisions to explain with their
+// bridges and exact answers, and writes the harness's plot of error by route.
+// The traced pass must agree with the harness (same queries, same modes); the
+// tests check it.
 //
 // Cost: sampling is O(contexts × context size), the build O(Σ n²) over
-// contexts of n observations, and routing one query is one bounded search
-// (router package). Exact truth is one cached variable elimination per
-// (from, value, to).
+// contexts of n observations, and each query one bounded router search plus
+// cached exact inference. The default (100 000 contexts) runs in a few
+// seconds on 2 cores.
 //
 // Concurrency: Run is safe to call concurrently with distinct directories.
 package demo

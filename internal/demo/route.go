@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"sort"
+	"strings"
 
 	"github.com/hopwise/hopwise/internal/world"
 	"github.com/hopwise/hopwise/otelx"
@@ -125,12 +126,14 @@ func route(ctx context.Context, w *world.World, r *router.Router, inst *otelx.In
 func pickExplained(w *world.World, all []routed, rows [2]Traced, n int) []Explained {
 	var out []Explained
 	seen := map[[2]int]bool{}
+	shown := map[string]bool{} // chains already shown
 	add := func(q routed) {
 		key := [2]int{min(q.from, q.to), max(q.from, q.to)}
-		if seen[key] || len(out) >= n {
+		chain := strings.Join(q.d.Bridges, "\x00")
+		if seen[key] || (chain != "" && shown[chain]) || len(out) >= n {
 			return
 		}
-		seen[key] = true
+		seen[key], shown[chain] = true, chain != ""
 		out = append(out, explain(w, q, rows[q.set].Set))
 	}
 	var held, sup []routed
@@ -141,7 +144,13 @@ func pickExplained(w *world.World, all []routed, rows [2]Traced, n int) []Explai
 			sup = append(sup, q)
 		}
 	}
-	sort.SliceStable(held, func(i, j int) bool { return held[i].d.Gain > held[j].d.Gain })
+	// By gain, then longer chains first (they show more of the reasoning).
+	sort.SliceStable(held, func(i, j int) bool {
+		if held[i].d.Gain != held[j].d.Gain {
+			return held[i].d.Gain > held[j].d.Gain
+		}
+		return len(held[i].d.Bridges) > len(held[j].d.Bridges)
+	})
 	sort.SliceStable(sup, func(i, j int) bool { return sup[i].d.Direct.Support > sup[j].d.Direct.Support })
 	nChain := max(n-2, 1)
 	for _, q := range held {
