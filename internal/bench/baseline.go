@@ -77,8 +77,10 @@ type adjacency[N comparable] interface {
 	// ranked returns x's neighbours by descending support, ties by
 	// ascending id (the order of graphidx's support-ranked lists).
 	ranked(x N) []N
-	// support returns the pair support, ok false when x and y never met.
-	support(x, y N) (uint64, bool)
+	// pair returns the statistics of the pair in ascending id order (the
+	// orientation the router reads, so proxy costs match bit for bit), ok
+	// false when x and y never met. One look-up.
+	pair(x, y N) (graphidx.PairStats, bool)
 	// id maps a node to its index id (for tie-breaking and scoring).
 	id(x N) graphidx.EntityID
 }
@@ -103,9 +105,14 @@ type search struct {
 	sid, tid  graphidx.EntityID
 	u         int
 	directErr float64
+	// ref is the reference estimate of the reference-bias term (see
+	// setRef); nil until chosen.
+	ref []float64
 }
 
-// score returns the exact error of c, computing it once.
+// score returns the exact error of c, computing it once: the model's
+// chain error plus scorer.ReferenceBias of its estimate against the
+// reference, the router's stage-2 error.
 func (sr *search) score(c *bcand) (float64, error) {
 	if c.err == c.err { // not NaN
 		return c.err, nil
@@ -115,20 +122,69 @@ func (sr *search) score(c *bcand) (float64, error) {
 		return 0, err
 	}
 	c.err = est.Err
+	if sr.ref != nil {
+		c.err += scorer.ReferenceBias(est.Dist, sr.ref)
+	} else {
+		sr.ref = est.Dist // the reference itself: bias 0
+	}
 	return c.err, nil
+}
+
+// setRef chooses the reference among cands the way the router does when
+// the endpoints were never observed together (otherwise the direct
+// estimate is the reference, set before the search): the proxy-cheapest
+// one-bridge chain, ties by ids, or without one the proxy-cheapest chain
+// by (cost, hops, ids). It scores that chain first, with bias 0.
+func (sr *search) setRef(cands []bcand) error {
+	if sr.ref != nil || len(cands) == 0 {
+		return nil
+	}
+	less := func(p, q *bcand) bool {
+		if len(p.ids) == 1 && len(q.ids) != 1 {
+			return true
+		}
+		if len(p.ids) != 1 && len(q.ids) == 1 {
+			return false
+		}
+		return candCompare(p, q) < 0
+	}
+	best := 0
+	for i := range cands {
+		if less(&cands[i], &cands[best]) {
+			best = i
+		}
+	}
+	_, err := sr.score(&cands[best])
+	return err
+}
+
+// candCompare orders candidates by (proxy cost, hops, ids).
+func candCompare(p, q *bcand) int {
+	if c := cmp.Compare(p.cost, q.cost); c != 0 {
+		return c
+	}
+	if c := cmp.Compare(len(p.ids), len(q.ids)); c != 0 {
+		return c
+	}
+	return slices.Compare(p.ids, q.ids)
 }
 
 // beamSearch is the straightforward bounded breadth-first search shared by
 // the baselines: layer d holds paths s → b1 → … → bd, built from layer d−1 by
 // extending every path with its node's B best-supported eligible
 // neighbours (simple paths, never s or t), sorted by the additive proxy
-// Σ EdgeCost(support) and cut to the B cheapest; every path whose end
+// Σ EdgeCost(pair statistics) and cut to the B cheapest; every path whose end
 // touches t is a chain candidate. The k proxy-cheapest candidates are
 // scored exactly with model.Chain, and the largest gain wins (the first in
 // (proxy cost, hops, ids) order on equal gains, like the router).
 //
-// Exact pruning: a chain of m bridges has error ≥ β·m (its variance part
-// is positive), so before layer d is built, while at most k candidates
+// Errors are the router's stage-2 errors: model.Chain's error plus the
+// squared distance from a reference estimate (scorer.ReferenceBias; the
+// direct estimate when the endpoints were observed together, else the
+// reference chain of setRef).
+//
+// Exact pruning: a chain of m bridges has error ≥ β·m (its variance and
+// bias parts are ≥ 0), so before layer d is built, while at most k candidates
 // exist, they are scored and the search stops when the best error is
 // ≤ β·d: no longer chain can beat it. This is not a cut.
 //
@@ -154,6 +210,9 @@ func beamSearch[N comparable, A adjacency[N]](a A, sr *search, s, t N, r *Result
 	frontier := []bpath[N]{{}}
 	for depth := 1; depth <= b.MaxBridges; depth++ {
 		if depth > 1 && len(cands) <= b.MaxCandidates {
+			if err := sr.setRef(cands); err != nil {
+				return err
+			}
 			for i := scored; i < len(cands); i++ {
 				e, err := sr.score(&cands[i])
 				if err != nil {
@@ -185,12 +244,12 @@ func beamSearch[N comparable, A adjacency[N]](a A, sr *search, s, t N, r *Result
 					truncated = true
 					break
 				}
-				sup, ok := a.support(x, y)
+				ps, ok := a.pair(x, y)
 				if !ok {
 					continue
 				}
 				nodes := append(p.nodes[:len(p.nodes):len(p.nodes)], y)
-				ext = append(ext, bpath[N]{nodes: nodes, cost: p.cost + sr.model.EdgeCost(sup)})
+				ext = append(ext, bpath[N]{nodes: nodes, cost: p.cost + sr.model.EdgeCost(ps)})
 				n++
 			}
 		}
@@ -213,7 +272,7 @@ func beamSearch[N comparable, A adjacency[N]](a A, sr *search, s, t N, r *Result
 			if !take() {
 				break
 			}
-			sup, ok := a.support(p.nodes[len(p.nodes)-1], t)
+			ps, ok := a.pair(p.nodes[len(p.nodes)-1], t)
 			if !ok {
 				continue
 			}
@@ -221,25 +280,20 @@ func beamSearch[N comparable, A adjacency[N]](a A, sr *search, s, t N, r *Result
 			for i, y := range p.nodes {
 				ids[i] = a.id(y)
 			}
-			cands = append(cands, bcand{ids: ids, cost: p.cost + sr.model.EdgeCost(sup) + hb*float64(depth), err: math.NaN()})
+			cands = append(cands, bcand{ids: ids, cost: p.cost + sr.model.EdgeCost(ps) + hb*float64(depth), err: math.NaN()})
 		}
 		frontier = ext
 		if len(frontier) == 0 {
 			break
 		}
 	}
-	slices.SortStableFunc(cands, func(p, q bcand) int {
-		if c := cmp.Compare(p.cost, q.cost); c != 0 {
-			return c
-		}
-		if c := cmp.Compare(len(p.ids), len(q.ids)); c != 0 {
-			return c
-		}
-		return slices.Compare(p.ids, q.ids)
-	})
+	slices.SortStableFunc(cands, func(p, q bcand) int { return candCompare(&p, &q) })
 	if len(cands) > b.MaxCandidates {
 		truncated = true
 		cands = cands[:b.MaxCandidates]
+	}
+	if err := sr.setRef(cands); err != nil {
+		return err
 	}
 	r.Truncated = truncated
 	best := -1

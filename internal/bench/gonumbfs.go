@@ -116,12 +116,16 @@ func LoadGonum(ix router.Graph, model scorer.Model, b Bounds) (*GonumBaseline, e
 type gonumAdj struct{ gb *GonumBaseline }
 
 func (a gonumAdj) ranked(x int64) []int64 { return a.gb.ranked[x] }
-func (a gonumAdj) support(x, y int64) (uint64, bool) {
-	e := a.gb.g.WeightedEdge(x, y)
-	if e == nil {
-		return 0, false
+func (a gonumAdj) pair(x, y int64) (graphidx.PairStats, bool) {
+	if x > y {
+		x, y = y, x
 	}
-	return uint64(e.Weight()), true
+	// LoadGonum stores every table in ascending id order (f < t).
+	e, ok := a.gb.g.WeightedEdge(x, y).(*tableEdge)
+	if !ok || e == nil {
+		return graphidx.PairStats{}, false
+	}
+	return graphidx.NewPairStats(graphidx.EntityID(x), graphidx.EntityID(y), e.ka, e.kb, e.counts), true
 }
 func (a gonumAdj) id(x int64) graphidx.EntityID { return graphidx.EntityID(x) }
 
@@ -189,6 +193,9 @@ func (gb *GonumBaseline) DecideWith(_ context.Context, q router.Query, b Bounds)
 	}
 	r.DirectErr = dir.Err
 	sr := &search{st: gb, model: gb.model, ws: ws, b: b, sid: sid, tid: tid, u: u, directErr: dir.Err}
+	if dir.Support > 0 {
+		sr.ref = dir.Dist // the pair's own counts carry no screening-off bias
+	}
 	err = beamSearch[int64](gonumAdj{gb}, sr, s, t, &r, func(id graphidx.EntityID) string { return gb.names[id] })
 	return r, err
 }

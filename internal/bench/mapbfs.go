@@ -90,12 +90,16 @@ func LoadMap(ix router.Graph, model scorer.Model, b Bounds) (*MapBaseline, error
 type mapAdj struct{ m *MapBaseline }
 
 func (a mapAdj) ranked(x string) []string { return a.m.ranked[x] }
-func (a mapAdj) support(x, y string) (uint64, bool) {
+func (a mapAdj) pair(x, y string) (graphidx.PairStats, bool) {
+	ix, iy := a.m.ids[x], a.m.ids[y]
+	if ix > iy {
+		x, y, ix, iy = y, x, iy, ix
+	}
 	p, ok := a.m.adj[x][y]
 	if !ok {
-		return 0, false
+		return graphidx.PairStats{}, false
 	}
-	return p.support, true
+	return graphidx.NewPairStats(ix, iy, p.ka, p.kb, p.counts), true
 }
 func (a mapAdj) id(x string) graphidx.EntityID { return a.m.ids[x] }
 
@@ -155,6 +159,9 @@ func (m *MapBaseline) DecideWith(_ context.Context, q router.Query, b Bounds) (R
 	}
 	r.DirectErr = dir.Err
 	sr := &search{st: m, model: m.model, ws: ws, b: b, sid: sid, tid: tid, u: u, directErr: dir.Err}
+	if dir.Support > 0 {
+		sr.ref = dir.Dist // the pair's own counts carry no screening-off bias
+	}
 	err = beamSearch[string](mapAdj{m}, sr, q.From, q.To, &r, func(id graphidx.EntityID) string { return m.names[id] })
 	return r, err
 }
