@@ -39,7 +39,10 @@ import (
 //	  "hash_key": ""                // 32 hex digits (16-byte SipHash key), "" = DefaultHashKey
 //	}
 //
-// (JSON has no comments; they are annotations here.)
+// (JSON has no comments; they are annotations here.) The "beta" field is
+// the β of whichever model is chosen; its default is the Bayes model's
+// scorer.DefaultBeta, so a "support" configuration should set it (the
+// support model's own fit is scorer.DefaultSupportBeta).
 type Config struct {
 	GainThreshold   float64     `json:"gain_threshold"`
 	MaxBridges      int         `json:"max_bridges"`

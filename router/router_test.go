@@ -108,8 +108,9 @@ func TestSearchMatchesBruteForce(t *testing.T) {
 	t.Parallel()
 	ctx := context.Background()
 	checked, untrunc, long, refChain := 0, 0, 0, 0
-	// β = 0 lets long chains win; the default β mostly favours one bridge.
-	for _, beta := range []float64{0, 0.002, scorer.DefaultBeta} {
+	// β = 0 lets long chains win; a large β (0.13) favours one bridge and
+	// exercises the phase skips.
+	for _, beta := range []float64{0, scorer.DefaultBeta, 0.13} {
 		model, err := scorer.NewBayes(scorer.WithBeta(beta))
 		if err != nil {
 			t.Fatal(err)

@@ -25,7 +25,7 @@ type Support struct {
 
 // NewSupport returns the presence-only model. Options: WithV0 (> 0, default
 // DefaultV0), WithN0 (> 0, default DefaultN0), WithBeta (≥ 0, default
-// DefaultBeta), WithAlpha (> 0, default 1; smooths Dist only). WithSignalZ
+// DefaultSupportBeta), WithAlpha (> 0, default 1; smooths Dist only). WithSignalZ
 // and WithVariance belong to the Bayes model and are rejected with
 // ErrBadOption.
 func NewSupport(opts ...Option) (*Support, error) {
@@ -38,6 +38,9 @@ func NewSupport(opts ...Option) (*Support, error) {
 	}
 	if c.setSignalZ {
 		return nil, fmt.Errorf("%w: WithSignalZ applies to the Bayes model only (the support model's edge cost is v0/(support+n0))", ErrBadOption)
+	}
+	if !c.setBeta {
+		c.beta = DefaultSupportBeta
 	}
 	return &Support{alpha: c.alpha, beta: c.beta, v0: c.v0, n0: c.n0}, nil
 }

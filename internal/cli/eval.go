@@ -35,7 +35,6 @@ type evalOptions struct {
 	gainTau      float64
 	workers      int
 	writeQueries string
-	signalBias   float64
 }
 
 func newEvalCmd() *cobra.Command {
@@ -73,11 +72,6 @@ of scorer.FitHopBias on the chains the router picks) and the support model's
 v0, n0, β (scorer.FitSupport), on the worlds of --fit-seeds, which must not
 overlap the evaluation seeds.
 
---signal-bias γ answers with an experimental error model (eval.SignalBias)
-that adds γ·(1 − Π δ_k)² to a chain's error, δ_k the contraction coefficient
-of edge k, so that chains which lose signal are no longer preferred for
-their small variance.
-
 --write-queries DIR keeps, for the first world, DIR/corpus.jsonl,
 DIR/index.hwx, DIR/queries.jsonl (input of "hopwise route --queries") and
 DIR/truth.jsonl (the exact answers by id).`,
@@ -108,7 +102,6 @@ DIR/truth.jsonl (the exact answers by id).`,
 	f.IntVar(&o.candidates, "max-candidates", router.DefaultMaxCandidates, "k: chains the router scores exactly")
 	f.Float64Var(&o.gainTau, "gain-threshold", router.DefaultGainThreshold, "τ_gain of the router")
 	f.IntVar(&o.workers, "workers", 0, "goroutines answering queries (0: GOMAXPROCS)")
-	f.Float64Var(&o.signalBias, "signal-bias", 0, "experiment: γ of eval.SignalBias, a chain bias γ·(1−Πδ)² from edge contraction (0: off)")
 	f.StringVar(&o.writeQueries, "write-queries", "", "keep the first world's corpus, index, queries and truth in DIR")
 	return cmd
 }
@@ -175,7 +168,7 @@ func runEval(cmd *cobra.Command, o evalOptions) error {
 	}
 	beta := o.beta
 	base := eval.Config{
-		World: &wc, Contexts: o.contexts, Beta: &beta, MaxBridges: o.maxBridges, Workers: o.workers, SignalBias: o.signalBias,
+		World: &wc, Contexts: o.contexts, Beta: &beta, MaxBridges: o.maxBridges, Workers: o.workers,
 		RouterOptions: []router.Option{
 			router.WithBeam(o.beam), router.WithMaxCandidates(o.candidates), router.WithGainThreshold(o.gainTau),
 		},

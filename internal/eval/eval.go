@@ -67,10 +67,6 @@ type Config struct {
 	// router and by every chained estimator (default scorer.DefaultBeta;
 	// a negative value is an error).
 	Beta *float64
-	// SignalBias, when > 0, answers with the experimental SignalBias model
-	// (γ = SignalBias) instead of the plain Bayes model, in the router and in
-	// every chained estimator.
-	SignalBias float64
 	// RouterOptions are passed to router.New after WithModel (bounds,
 	// thresholds; not WithBeta/WithAlpha, which conflict with WithModel).
 	RouterOptions []router.Option
@@ -126,9 +122,6 @@ func (c Config) withDefaults() (Config, world.Condition, error) {
 	}
 	if c.MaxBridges < 0 || c.MaxBridges > router.MaxBridgesLimit {
 		return c, cond, fmt.Errorf("%w: max bridges = %d (0..%d)", ErrConfig, c.MaxBridges, router.MaxBridgesLimit)
-	}
-	if c.SignalBias < 0 || math.IsNaN(c.SignalBias) || math.IsInf(c.SignalBias, 0) {
-		return c, cond, fmt.Errorf("%w: signal bias = %v", ErrConfig, c.SignalBias)
 	}
 	if c.Workers <= 0 {
 		c.Workers = runtime.GOMAXPROCS(0)
@@ -221,8 +214,6 @@ type Report struct {
 	HeldOut     Scores      `json:"heldout"`
 	Supported   Scores      `json:"supported"`
 	Calibration Calibration `json:"calibration"`
-	// SignalBias is γ of the experimental SignalBias model (0: plain Bayes).
-	SignalBias float64 `json:"signal_bias,omitempty"`
 	// HeldOutPairs and SupportedPairs count the unordered pairs queried
 	// (world.PickHeldOut may find fewer qualifying pairs than asked for).
 	HeldOutPairs   int `json:"heldout_pairs"`
@@ -477,13 +468,7 @@ func (b *Bench) Answer(ctx context.Context, beta *float64, ropts ...router.Optio
 	if beta != nil {
 		bt = *beta
 	}
-	var model scorer.Model
-	var err error
-	if b.cfg.SignalBias > 0 {
-		model, err = NewSignalBias(b.cfg.SignalBias, scorer.WithBeta(bt))
-	} else {
-		model, err = scorer.NewBayes(scorer.WithBeta(bt))
-	}
+	model, err := scorer.NewBayes(scorer.WithBeta(bt))
 	if err != nil {
 		return Report{}, fmt.Errorf("eval: %w", err)
 	}
@@ -537,7 +522,7 @@ func (b *Bench) Answer(ctx context.Context, beta *float64, ropts ...router.Optio
 		return Report{}, err
 	}
 	rep := Report{
-		Condition: b.cfg.Condition, Seed: b.cfg.Seed, Beta: bt, SignalBias: b.cfg.SignalBias,
+		Condition: b.cfg.Condition, Seed: b.cfg.Seed, Beta: bt,
 		Contexts: b.contexts, Entities: b.Index.NumEntities(), Pairs: b.Index.NumPairs(),
 		BuildSeconds: b.build.Seconds(),
 		HeldOutPairs: len(b.World.HeldOut()), SupportedPairs: len(b.World.Supported()),

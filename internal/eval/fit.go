@@ -47,7 +47,9 @@ type FitResult struct {
 // pass answers all queries of all worlds through the router with the current
 // β, takes the best chain the router found for each query (whether or not it
 // routed to it) as a sample (Var = Chain.Err − β·m, Hops = m, SqErr = Σ_v
-// (p̂_v − p_v)²), and sets β to scorer.FitHopBias of the pooled samples. The
+// (p̂_v − p_v)²), and sets β to scorer.FitHopBias of the pooled samples.
+// Chain.Err includes the router's reference-bias term, so Var here is the
+// variance plus that term, and β fits only the per-hop residual. The
 // samples are the chains the router actually picks, so β measures their bias;
 // since the router's pick depends on β, the iteration repeats until β changes
 // by less than Tol (relative) or MaxIter passes ran.
@@ -56,10 +58,6 @@ type FitResult struct {
 // (one edge: the pair support; SqErr of the direct estimate) and, when a chain
 // was found, that chain (its edge supports; SqErr of the chain estimate); the
 // pooled samples go to scorer.FitSupport (least squares for v0, n0, β).
-//
-// With Base.SignalBias = γ > 0 the same iteration fits β of the SignalBias
-// model at that γ (Var then includes the signal term); the support fit is
-// unchanged.
 //
 // Cost: passes × worlds × (queries × one router decision + chain scorings);
 // the worlds are built once.
