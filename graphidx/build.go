@@ -205,6 +205,14 @@ func (d *buildDict) observe(ent, val string) (uint32, error) {
 		d.vals = append(d.vals, nil)
 		d.bytes.Add(int64(len(name)) + dictEntryBytes)
 	}
+	n := int(slot.nv)
+	// Fast path: compare with the entity's first values (canonical strings
+	// in the small, cache-resident global list), no hashing.
+	for i := range min(n, inlineValues) {
+		if g := slot.gv[i]; g != noInline && d.gnames[g] == val {
+			return slot.id<<6 | uint32(i), nil
+		}
+	}
 	g, ok := d.gvals[val]
 	if !ok {
 		c := strings.Clone(val)
@@ -212,14 +220,6 @@ func (d *buildDict) observe(ent, val string) (uint32, error) {
 		d.gvals[c] = g
 		d.gnames = append(d.gnames, c)
 		d.bytes.Add(int64(len(c)) + 64)
-	}
-	n := int(slot.nv)
-	if g < noInline {
-		for i := range min(n, inlineValues) {
-			if uint32(slot.gv[i]) == g {
-				return slot.id<<6 | uint32(i), nil
-			}
-		}
 	}
 	vs := d.vals[slot.id]
 	if n > inlineValues || g >= noInline {
