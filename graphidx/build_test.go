@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
@@ -337,5 +338,31 @@ func TestBuildCancelMidway(t *testing.T) {
 	}
 	if _, err := os.Stat(out); !os.IsNotExist(err) {
 		t.Errorf("output exists after cancel: %v", err)
+	}
+}
+
+// TestCountOverflow: cell sums are carried in uint64 through the merge and
+// rejected above MaxUint32 when compiled.
+func TestCountOverflow(t *testing.T) {
+	t.Parallel()
+	k := cellKey(0, 1, 0, 0)
+	m, err := newCellMerger([]cellSource{&memRun{cells: []cell{{k, math.MaxUint32}}}, &memRun{cells: []cell{{k, 2}}}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var got uint64
+	m.each(func(key, n uint64) error { got = n; return nil })
+	if got != math.MaxUint32+2 {
+		t.Errorf("merged sum %d", got)
+	}
+	p := NewPartial()
+	for _, c := range []CountCell{{A: "a", U: "1", N: 1 << 33}, {A: "b", U: "1", N: 1 << 33}, {A: "a", U: "1", B: "b", V: "1", N: 1 << 32}} {
+		if err := p.AddCell(c); err != nil {
+			t.Fatal(err)
+		}
+	}
+	p.AddContexts(1 << 33)
+	if _, _, err := p.Compile(); !errors.Is(err, ErrCountOverflow) {
+		t.Errorf("compile: %v", err)
 	}
 }
