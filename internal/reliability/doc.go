@@ -2,8 +2,7 @@
 // reliability and privacy promises (docs/GUARANTEES.md lists each promise
 // and the test that checks it), and the small helpers those tests share:
 // synthetic index sources for adversarial shapes (HubSource, ChainSource,
-// GridSource), a counter of a file's memory mappings (MappedRegions), and
-// a writer that always fails with ENOSPC (FullDisk).
+// GridSource) and a counter of a file's memory mappings (MappedRegions).
 //
 // The tests use only the public APIs of graphidx, router, otelx and the
 // hopwise command line. Heavy cases (a million-leaf hub, 16×100k decisions)

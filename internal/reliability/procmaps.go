@@ -7,7 +7,6 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
-	"syscall"
 )
 
 // ErrNoProcMaps is returned by MappedRegions on systems without
@@ -49,15 +48,4 @@ func MappedRegions(path string) (int, error) {
 		}
 	}
 	return n, sc.Err()
-}
-
-// FullDisk is an io.Writer that fails every write with ENOSPC, as a file on
-// a full disk does. Its Writes field counts the attempts. Not safe for
-// concurrent use.
-type FullDisk struct{ Writes int }
-
-// Write always fails with syscall.ENOSPC and writes nothing.
-func (w *FullDisk) Write(p []byte) (int, error) {
-	w.Writes++
-	return 0, &os.PathError{Op: "write", Path: "full-disk", Err: syscall.ENOSPC}
 }
