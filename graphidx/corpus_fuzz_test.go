@@ -101,6 +101,20 @@ func FuzzJSONLReader(f *testing.F) {
 			t.Fatalf("lines %d (blank %d) vs stats %+v", lines, blank, st)
 		}
 		strictErr(t, NewJSONLReader(bytes.NewReader(data), "f.jsonl", WithPolicy(Strict), WithMaxLineBytes(200)))
+		// The builder's transient mode (names as views into the line
+		// buffer) must read exactly the same contexts.
+		want, _ := readAll(t, NewJSONLReader(bytes.NewReader(data), "f.jsonl", WithMaxLineBytes(200)))
+		tr := NewJSONLReader(bytes.NewReader(data), "f.jsonl", WithMaxLineBytes(200))
+		tr.setTransient(true)
+		got, _ := readAll(t, tr)
+		if len(got) != len(want) {
+			t.Fatalf("transient read %d contexts, want %d", len(got), len(want))
+		}
+		for i := range got {
+			if got[i] != want[i] {
+				t.Fatalf("transient context %d: %q, want %q", i, got[i], want[i])
+			}
+		}
 	})
 }
 
