@@ -98,7 +98,7 @@ func TestBuildCrashSafety(t *testing.T) {
 	small := filepath.Join(dir, "small.jsonl")
 	big := filepath.Join(dir, "big.jsonl")
 	writeCorpus(t, small, 2000, 300, 1)
-	nBig := 40_000
+	nBig := 80_000
 	if stress() {
 		nBig = 300_000
 	}
@@ -132,28 +132,43 @@ func TestBuildCrashSafety(t *testing.T) {
 
 	rng := rand.New(rand.NewPCG(2026, 12))
 	leftovers, replaced := 0, 0
-	const kills = 6
-	for i := range kills {
+	// Kills 0-4 land at random moments; kill 5 (retried up to three more
+	// times if the build outruns the poll) lands inside the write phase, as
+	// soon as the temporary file of --out exists.
+	const randomKills = 5
+	kills := 0
+	for i := 0; i < randomKills+4; i++ {
+		if i > randomKills && leftovers > 0 {
+			break
+		}
+		kills++
 		delay := time.Duration((0.05 + 0.9*rng.Float64()) * float64(full))
 		cmd := build(big, out)
-		var stderr bytes.Buffer
-		cmd.Stderr = &stderr
 		started := time.Now()
 		if err := cmd.Start(); err != nil {
 			t.Fatal(err)
 		}
-		if i < kills-1 {
-			time.Sleep(delay)
+		var waitErr error
+		done := make(chan struct{})
+		go func() { waitErr = cmd.Wait(); close(done) }()
+		if i < randomKills {
+			select {
+			case <-time.After(delay):
+			case <-done:
+			}
 		} else {
-			// The last kill lands inside the write phase: as soon as
-			// the temporary file of --out exists.
-			for time.Since(started) < 4*full && len(tempsOf(t, out)) == 0 {
-				time.Sleep(200 * time.Microsecond)
+		poll:
+			for len(tempsOf(t, out)) == 0 {
+				select {
+				case <-done:
+					break poll
+				case <-time.After(50 * time.Microsecond):
+				}
 			}
 			delay = time.Since(started)
 		}
 		_ = cmd.Process.Signal(syscall.SIGKILL)
-		waitErr := cmd.Wait()
+		<-done
 		killed := waitErr != nil
 		got, rerr := os.ReadFile(out)
 		if rerr != nil {
