@@ -366,3 +366,24 @@ func TestCountOverflow(t *testing.T) {
 		t.Errorf("compile: %v", err)
 	}
 }
+
+// TestBuildEdgeCases: an empty corpus and a corpus without any pair still
+// give valid index files.
+func TestBuildEdgeCases(t *testing.T) {
+	t.Parallel()
+	for i, cs := range [][]Context{nil, {{ID: "a", Obs: []Observation{{"pump1", "on"}}}, {ID: "b", Obs: []Observation{{"pump1", "off"}}}}} {
+		out := filepath.Join(t.TempDir(), "e.idx")
+		s, err := Build(context.Background(), &sliceReader{cs: cs}, out)
+		if err != nil {
+			t.Fatalf("case %d: %v", i, err)
+		}
+		x, err := Open(out)
+		if err != nil {
+			t.Fatalf("case %d: open: %v", i, err)
+		}
+		if x.NumContexts() != uint64(len(cs)) || x.NumPairs() != 0 || s.Pairs.Before != 0 || s.Entities != min(len(cs), 1) {
+			t.Errorf("case %d: contexts %d pairs %d summary %+v", i, x.NumContexts(), x.NumPairs(), s)
+		}
+		x.Close()
+	}
+}
