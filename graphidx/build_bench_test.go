@@ -89,23 +89,29 @@ func naiveCounts(data []byte) (map[string]map[string]int, int, error) {
 	return counts, n, sc.Err()
 }
 
-const (
-	benchContexts = 200_000
-	benchEntities = 20_000
-)
+const benchContexts = 200_000
 
-var benchData = func() func() []byte {
-	var data []byte
-	return func() []byte {
-		if data == nil {
-			data = benchCorpus(benchContexts, benchEntities, 42)
-		}
-		return data
+// Two corpus shapes: "sparse" spreads the contexts over 20,000 sensors
+// (868k distinct pairs, each seen ~6 times: count tables far larger than the
+// cache), "dense" over 2,000 (94k pairs seen ~60 times: tables that fit in
+// cache). Both have exactly 8 entities per context.
+var benchShapes = []struct {
+	name     string
+	entities int
+}{{"sparse", 20_000}, {"dense", 2_000}}
+
+var benchCache = map[int][]byte{}
+
+func benchData(entities int) []byte {
+	if d, ok := benchCache[entities]; ok {
+		return d
 	}
-}()
+	d := benchCorpus(benchContexts, entities, 42)
+	benchCache[entities] = d
+	return d
+}
 
-func benchHopwise(b *testing.B) {
-	data := benchData()
+func benchHopwise(b *testing.B, data []byte) {
 	out := filepath.Join(b.TempDir(), "bench.idx")
 	b.SetBytes(int64(len(data)))
 	b.ReportAllocs()
@@ -125,8 +131,7 @@ func benchHopwise(b *testing.B) {
 	reportRates(b, cpu)
 }
 
-func benchNaive(b *testing.B) {
-	data := benchData()
+func benchNaive(b *testing.B, data []byte) {
 	b.SetBytes(int64(len(data)))
 	b.ReportAllocs()
 	var n int
@@ -156,10 +161,14 @@ func reportRates(b *testing.B, cpu time.Duration) {
 
 // BenchmarkBuild measures Build (read, count, merge, write the index) on
 // 200k generated 8-entity contexts against the naive baseline in the same
-// run. Compare the contexts/s metrics; TestBuildSpeedup prints the ratio.
+// run, for both corpus shapes. Compare the contexts/s metrics;
+// TestBuildSpeedup prints the ratios.
 func BenchmarkBuild(b *testing.B) {
-	b.Run("hopwise", benchHopwise)
-	b.Run("naive", benchNaive)
+	for _, sh := range benchShapes {
+		data := benchData(sh.entities)
+		b.Run(sh.name+"/hopwise", func(b *testing.B) { benchHopwise(b, data) })
+		b.Run(sh.name+"/naive", func(b *testing.B) { benchNaive(b, data) })
+	}
 }
 
 // TestBuildSpeedup runs both benchmarks and logs contexts/s and the ratio
@@ -212,14 +221,17 @@ func TestBuildSpeedup(t *testing.T) {
 		t.Fatalf("%d non-zero cells vs naive %d", cells, total)
 	}
 
-	h := testing.Benchmark(benchHopwise)
-	n := testing.Benchmark(benchNaive)
-	hs, ns := h.Extra["contexts/s"], n.Extra["contexts/s"]
-	hc, nc := h.Extra["contexts/cpu-s"], n.Extra["contexts/cpu-s"]
-	t.Logf("hopwise Build: %.0f contexts/s wall, %.0f per CPU-second (%s/op, %d allocs/op, %d B/op)",
-		hs, hc, h.T/(max(1, time.Duration(h.N))), h.AllocsPerOp(), h.AllocedBytesPerOp())
-	t.Logf("naive baseline: %.0f contexts/s wall, %.0f per CPU-second", ns, nc)
-	t.Logf("ratio: %.1fx wall, %.1fx per CPU-second", hs/ns, hc/nc)
+	for _, sh := range benchShapes {
+		data := benchData(sh.entities)
+		h := testing.Benchmark(func(b *testing.B) { benchHopwise(b, data) })
+		n := testing.Benchmark(func(b *testing.B) { benchNaive(b, data) })
+		hs, ns := h.Extra["contexts/s"], n.Extra["contexts/s"]
+		hc, nc := h.Extra["contexts/cpu-s"], n.Extra["contexts/cpu-s"]
+		t.Logf("%s: hopwise Build %.0f contexts/s wall, %.0f per CPU-second (%s/op, %d allocs/op, %d B/op)",
+			sh.name, hs, hc, h.T/(max(1, time.Duration(h.N))), h.AllocsPerOp(), h.AllocedBytesPerOp())
+		t.Logf("%s: naive baseline %.0f contexts/s wall, %.0f per CPU-second", sh.name, ns, nc)
+		t.Logf("%s: ratio %.1fx wall, %.1fx per CPU-second", sh.name, hs/ns, hc/nc)
+	}
 }
 
 // TestWriteBenchCorpus writes a large benchmark corpus for measuring the
