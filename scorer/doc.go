@@ -10,6 +10,13 @@
 //   - Support, for presence-only corpora: err(edge) = v0/(support + n0),
 //     err(chain) = Σ_edges err(edge) + β·m.
 //
+// Model.EdgeCost is the additive proxy the router uses to generate chain
+// candidates: for Bayes a signal-loss cost, −log of a lower confidence bound
+// of Cramér's V of the pair table (the max-signal chain is the cheapest, as
+// in Chow & Liu 1968); for Support the edge error v0/(support + n0).
+// ReferenceBias is the squared distance of a chain's estimate from a
+// reference estimate, which the router adds to a chain's error as its bias.
+//
 // Combine merges independent chains by inverse-error weighting. FitSupport
 // and FitHopBias calibrate v0, n0 and β by least squares on realised squared
 // errors (for example from the synthetic worlds).
