@@ -50,11 +50,12 @@ Source above 40M contexts), and measures in one run on the same queries:
   - uncached throughput on 1 and on GOMAXPROCS goroutines, and their ratio;
   - two baselines with the same scorer model and bounds: nested
     map[string]map[string] breadth-first beam search, and the same search
-    on gonum's graph/simple; their speed relative to the router, and the
-    agreement of their best chains with the router's on queries where no
-    bound cut either search (plus a one-bridge check with generous bounds
-    on the main graph and an up-to-three-bridge exhaustive check on a small
-    companion graph);
+    on gonum's graph/simple; their speed relative to the router (wall and
+    thread-CPU means), and the agreement of their best chains with the
+    router's where no bound cut either search: the router's untruncated
+    decisions against exhaustive baselines, the same queries under the same
+    bounds, one bridge with generous bounds on the main graph, and up to
+    three bridges with generous bounds on a small companion graph;
   - with --hub, queries from and to the highest-degree entity.
 
 Progress goes to stderr. The baselines hold the whole graph in Go maps
