@@ -108,6 +108,9 @@ type Phase struct {
 	// reads from disk (major).
 	MinorFaults float64 `json:"minor_faults_per_op"`
 	MajorFaults float64 `json:"major_faults_per_op"`
+	// Cuts counts, per bound name (router.Cut.Names), the decisions that
+	// bound cut (router phases only).
+	Cuts map[string]int `json:"cuts,omitempty"`
 	// Load is the time to build the baseline's structures from the index.
 	LoadSeconds float64 `json:"load_seconds,omitempty"`
 }
@@ -751,6 +754,12 @@ func measureRouter(ctx context.Context, rt *router.Router, qs []router.Query, wa
 	for _, d := range ds {
 		if d.Truncated {
 			tr++
+		}
+		for _, c := range d.Cut.Names() {
+			if ph.Cuts == nil {
+				ph.Cuts = map[string]int{}
+			}
+			ph.Cuts[c]++
 		}
 		if d.Chain != nil {
 			ch++

@@ -3,6 +3,7 @@ package bench
 import (
 	"fmt"
 	"io"
+	"slices"
 	"strings"
 	"text/tabwriter"
 )
@@ -108,6 +109,24 @@ func (r *Report) WriteTable(w io.Writer) error {
 	row("gonum baseline", r.Gonum)
 	row("hub attack (router)", r.Hub)
 	tw.Flush()
+	for _, x := range []struct {
+		name string
+		p    *Phase
+	}{{"router uncached", &r.Uncached}, {"hub attack", r.Hub}} {
+		if x.p == nil || len(x.p.Cuts) == 0 {
+			continue
+		}
+		names := make([]string, 0, len(x.p.Cuts))
+		for n := range x.p.Cuts {
+			names = append(names, n)
+		}
+		slices.Sort(names)
+		fmt.Fprintf(&b, "%s: decisions cut by", x.name)
+		for _, n := range names {
+			fmt.Fprintf(&b, " %s %d", n, x.p.Cuts[n])
+		}
+		fmt.Fprintf(&b, " (of %d)\n", x.p.Latency.N)
+	}
 	fmt.Fprintf(&b, "\ncached, median of 1000-call batch means (no per-call timer): %.0f ns/decision\n", r.Cached.LoopMeanNs)
 	t := r.Throughput
 	fmt.Fprintf(&b, "throughput (uncached): %.0f/s on 1 goroutine, %.0f/s on %d, ratio %.2f; cores obtained %.2f and %.2f; decisions per CPU-second ratio %.2f\n",
