@@ -361,20 +361,17 @@ func (b *buildRun) numRuns() int {
 	return len(b.runs)
 }
 
-// pairShard is the worker that owns the pair (a, b) of provisional ids.
-func pairShard(a, b uint32, workers uint32) uint32 {
-	// Lemire's multiply-shift range reduction instead of a division.
-	return uint32(uint64(a*0x9E3779B1+b*0x85EBCA77) * uint64(workers) >> 32)
-}
-
-// entityShard is the worker that counts the marginals of entity e.
+// entityShard is the worker that owns entity e: it counts e's marginals and
+// every pair (e, f) with e < f (provisional ids). Lemire's multiply-shift
+// range reduction of a Fibonacci hash, instead of a division.
 func entityShard(e uint32, workers uint32) uint32 {
 	return uint32(uint64(e*0x9E3779B1) * uint64(workers) >> 32)
 }
 
-// worker counts the pairs of its shard (pairShard(a, b) == me) in every
-// batch: all workers see all contexts, each counts a disjoint set of pairs,
-// so the tables do not duplicate keys and together hold each cell once.
+// worker counts the marginals and pairs of its shard in every batch: all
+// workers see all contexts, each counts the pairs whose lower entity it
+// owns, so the tables hold disjoint keys (each cell once overall) and a
+// worker skips the other workers' rows without generating them.
 func (b *buildRun) worker(ctx context.Context, me int, in <-chan *ctxBatch, free chan<- *ctxBatch) (t *pairTab, marg [][]uint64, err error) {
 	nw := uint32(b.cfg.workers)
 	self := uint32(me)
@@ -427,11 +424,11 @@ func (b *buildRun) worker(ctx context.Context, me int, in <-chan *ctxBatch, free
 				}
 			}
 			for i, x := range scratch {
+				if nw > 1 && entityShard(x>>6, nw) != self {
+					continue
+				}
 				hi := uint64(x>>6)<<38 | uint64(x&63)<<6
 				for _, y := range scratch[i+1:] {
-					if nw > 1 && pairShard(x>>6, y>>6, nw) != self {
-						continue
-					}
 					keys = append(keys, hi|uint64(y>>6)<<12|uint64(y&63))
 				}
 			}
