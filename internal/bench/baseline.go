@@ -15,11 +15,11 @@ import (
 // baselines: H bridges, beam B, k candidates scored exactly, the expansion
 // budget, and τ_gain for the mode.
 type Bounds struct {
-	MaxBridges    int
-	Beam          int
-	MaxCandidates int
-	Budget        int
-	GainThreshold float64
+	MaxBridges    int     `json:"max_bridges"`
+	Beam          int     `json:"beam"`
+	MaxCandidates int     `json:"max_candidates"`
+	Budget        int     `json:"expansion_budget"`
+	GainThreshold float64 `json:"gain_threshold"`
 }
 
 // DefaultBounds returns the router's defaults (H=3, B=64, k=16, budget
