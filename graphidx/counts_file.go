@@ -11,7 +11,6 @@ import (
 	"regexp"
 	"slices"
 	"strconv"
-	"time"
 )
 
 // On-disk constants of a count shard; COUNTS.md is the byte-level spec.
@@ -382,40 +381,12 @@ type CountsInfo struct {
 // time plus the counts; time O(total bytes).
 func ReadCounts(ctx context.Context, dir string, into *Partial) (CountsInfo, error) {
 	info := CountsInfo{Dir: dir}
-	des, err := os.ReadDir(dir)
+	paths, err := listCountSet(dir)
 	if err != nil {
-		return info, fmt.Errorf("graphidx: read count shards: %w", err)
+		return info, err
 	}
-	shards := map[int]string{}
-	n := -1
-	for _, de := range des {
-		nm := de.Name()
-		m := countShardRE.FindStringSubmatch(nm)
-		if m == nil {
-			if filepath.Ext(nm) == ".hwc" && nm[0] != '.' {
-				return info, fmt.Errorf("%w: %s: unexpected shard file name %s", ErrBadCounts, dir, nm)
-			}
-			continue
-		}
-		i, _ := strconv.Atoi(m[1])
-		k, _ := strconv.Atoi(m[2])
-		if n >= 0 && k != n {
-			return info, fmt.Errorf("%w: %s holds shards of two sets (%d and %d shards)", ErrBadCounts, dir, n, k)
-		}
-		if k < 1 || k > MaxCountShards || i >= k {
-			return info, fmt.Errorf("%w: %s: shard name %s out of range", ErrBadCounts, dir, nm)
-		}
-		n = k
-		shards[i] = filepath.Join(dir, nm)
-	}
-	if n < 0 {
-		return info, fmt.Errorf("%w: %s holds no count shards (counts-*-of-*.hwc)", ErrBadCounts, dir)
-	}
-	for i := range n {
-		if _, ok := shards[i]; !ok {
-			return info, fmt.Errorf("%w: %s: shard %s is missing", ErrBadCounts, dir, CountShardName(i, n))
-		}
-	}
+	n := len(paths)
+	shards := paths
 	info.Shards = n
 	for i := range n {
 		if err := ctx.Err(); err != nil {
@@ -445,63 +416,61 @@ func ReadCounts(ctx context.Context, dir string, into *Partial) (CountsInfo, err
 	return info, nil
 }
 
-// CompileCounts reads the count shards in dir (ReadCounts), checks that the
-// counts are consistent (every pair value has a marginal, no table row or
-// column above its marginal, no entity in more contexts than counted) and
-// compiles them with Partial.Compile, applying WithMinSupport and
-// WithMaxNeighbors. The Source equals the one Compile gives on the corpus the
-// shards were counted from, so WriteFile of it is byte-identical to Build.
+// listCountSet returns the shard paths of the complete count set in dir, in
+// shard order; see ReadCounts for the rules.
+func listCountSet(dir string) ([]string, error) {
+	des, err := os.ReadDir(dir)
+	if err != nil {
+		return nil, fmt.Errorf("graphidx: read count shards: %w", err)
+	}
+	shards := map[int]string{}
+	n := -1
+	for _, de := range des {
+		nm := de.Name()
+		m := countShardRE.FindStringSubmatch(nm)
+		if m == nil {
+			if filepath.Ext(nm) == ".hwc" && nm[0] != '.' {
+				return nil, fmt.Errorf("%w: %s: unexpected shard file name %s", ErrBadCounts, dir, nm)
+			}
+			continue
+		}
+		i, _ := strconv.Atoi(m[1])
+		k, _ := strconv.Atoi(m[2])
+		if n >= 0 && k != n {
+			return nil, fmt.Errorf("%w: %s holds shards of two sets (%d and %d shards)", ErrBadCounts, dir, n, k)
+		}
+		if k < 1 || k > MaxCountShards || i >= k {
+			return nil, fmt.Errorf("%w: %s: shard name %s out of range", ErrBadCounts, dir, nm)
+		}
+		n = k
+		shards[i] = filepath.Join(dir, nm)
+	}
+	if n < 0 {
+		return nil, fmt.Errorf("%w: %s holds no count shards (counts-*-of-*.hwc)", ErrBadCounts, dir)
+	}
+	paths := make([]string, n)
+	for i := range n {
+		p, ok := shards[i]
+		if !ok {
+			return nil, fmt.Errorf("%w: %s: shard %s is missing", ErrBadCounts, dir, CountShardName(i, n))
+		}
+		paths[i] = p
+	}
+	return paths, nil
+}
+
+// CompileCounts reads the count shards in dir, checks them (checksums,
+// record order and bounds, a complete set) and their consistency (every
+// pair value has a marginal, no table row or column above its marginal, no
+// entity in more contexts than counted), and compiles them, applying
+// WithMinSupport and WithMaxNeighbors. The Source equals the one Compile
+// gives on the corpus the shards were counted from, so WriteFile of it is
+// byte-identical to Build.
 //
 // Pruning happens here, at compile time only: count shards always hold the
 // full sums, which is what makes them mergeable (MergeCounts).
 //
-// Memory: all counts in a Partial, about 100 bytes per distinct cell.
-// Time: O(bytes + C log C) for C cells.
+// It is MergeCounts with one directory; see there for memory and time.
 func CompileCounts(ctx context.Context, dir string, opts ...BuildOption) (Source, BuildSummary, error) {
 	return MergeCounts(ctx, []string{dir}, opts...)
-}
-
-// MergeCounts is CompileCounts over the union of several count-shard
-// directories: counts are sums, so the result equals the compile of the
-// concatenated corpora (an incremental update is MergeCounts(old, new)).
-// The summary's Read field is zero; SpillBytes holds the shard bytes read.
-func MergeCounts(ctx context.Context, dirs []string, opts ...BuildOption) (Source, BuildSummary, error) {
-	start := time.Now()
-	var sum BuildSummary
-	if len(dirs) == 0 {
-		return nil, sum, fmt.Errorf("graphidx: MergeCounts: no directories")
-	}
-	p := NewPartial()
-	for _, dir := range dirs {
-		info, err := ReadCounts(ctx, dir, p)
-		if err != nil {
-			return nil, sum, err
-		}
-		sum.SpillBytes += info.Bytes
-	}
-	if err := p.Check(); err != nil {
-		return nil, sum, fmt.Errorf("%s: %w", dirsLabel(dirs), err)
-	}
-	src, st, err := p.Compile(opts...)
-	if err != nil {
-		return nil, sum, fmt.Errorf("%s: %w", dirsLabel(dirs), err)
-	}
-	sum.Contexts = src.Contexts()
-	sum.Entities = len(src.Entities())
-	for _, e := range src.Entities() {
-		for _, n := range e.Marginal {
-			sum.Observations += n
-		}
-	}
-	sum.Pairs = st
-	sum.Workers = 1
-	sum.Elapsed = time.Since(start)
-	return src, sum, nil
-}
-
-func dirsLabel(dirs []string) string {
-	if len(dirs) == 1 {
-		return dirs[0]
-	}
-	return fmt.Sprint(dirs)
 }

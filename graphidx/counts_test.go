@@ -164,8 +164,31 @@ func TestMergeCountsEqualsRebuild(t *testing.T) {
 		t.Fatal(err)
 	}
 	for _, opts := range [][]BuildOption{nil, {WithMinSupport(2), WithMaxNeighbors(5)}} {
-		if !bytes.Equal(buildBytes(t, corpus, opts...), compileCountsBytes(t, []string{da, db}, opts...)) {
+		direct := buildBytes(t, corpus, opts...)
+		if !bytes.Equal(direct, compileCountsBytes(t, []string{da, db}, opts...)) {
 			t.Fatalf("merge of A and B differs from the build of A∪B (opts %d)", len(opts))
+		}
+		// The Partial path (ReadCounts, Check, Compile) agrees with the
+		// streaming one.
+		p := NewPartial()
+		for _, d := range []string{da, db} {
+			if _, err := ReadCounts(context.Background(), d, p); err != nil {
+				t.Fatal(err)
+			}
+		}
+		if err := p.Check(); err != nil {
+			t.Fatal(err)
+		}
+		src, _, err := p.Compile(opts...)
+		if err != nil {
+			t.Fatal(err)
+		}
+		out := filepath.Join(t.TempDir(), "p.hwi")
+		if err := WriteFile(out, src); err != nil {
+			t.Fatal(err)
+		}
+		if b, _ := os.ReadFile(out); !bytes.Equal(direct, b) {
+			t.Fatalf("ReadCounts+Partial.Compile differs from the build of A∪B (opts %d)", len(opts))
 		}
 	}
 }

@@ -87,6 +87,21 @@ func runMerge(cmd *cobra.Command, o mergeOpts, inputs []string) error {
 		}
 	}
 	start := time.Now()
+	w := cmd.OutOrStdout()
+	if o.countsOut == "" {
+		// Index only: stream the shards (graphidx.MergeCounts), no Partial.
+		src, sum, err := graphidx.MergeCounts(cmd.Context(), inputs,
+			graphidx.WithMinSupport(o.minSupport), graphidx.WithMaxNeighbors(o.maxNeighbors))
+		if err != nil {
+			return classifyCountsErr(err)
+		}
+		fmt.Fprintf(w, "read %d count set(s), %d bytes of shards, %d contexts\n", len(inputs), sum.SpillBytes, sum.Contexts)
+		if err := writeCompiled(w, o.out, src, sum.Pairs); err != nil {
+			return err
+		}
+		fmt.Fprintf(w, "elapsed %s\n", time.Since(start).Round(time.Millisecond))
+		return nil
+	}
 	p := graphidx.NewPartial()
 	var shardBytes int64
 	for _, in := range inputs {
@@ -99,15 +114,12 @@ func runMerge(cmd *cobra.Command, o mergeOpts, inputs []string) error {
 	if err := p.Check(); err != nil {
 		return classifyCountsErr(err)
 	}
-	w := cmd.OutOrStdout()
 	fmt.Fprintf(w, "read %d count set(s), %d bytes of shards, %d contexts\n", len(inputs), shardBytes, p.Contexts())
-	if o.countsOut != "" {
-		n, err := graphidx.WriteCounts(o.countsOut, p, o.shards)
-		if err != nil {
-			return classifyCountsErr(err)
-		}
-		fmt.Fprintf(w, "wrote %s: %d shards, %d bytes\n", o.countsOut, o.shards, n)
+	n, err := graphidx.WriteCounts(o.countsOut, p, o.shards)
+	if err != nil {
+		return classifyCountsErr(err)
 	}
+	fmt.Fprintf(w, "wrote %s: %d shards, %d bytes\n", o.countsOut, o.shards, n)
 	if o.out != "" {
 		src, st, err := p.Compile(graphidx.WithMinSupport(o.minSupport), graphidx.WithMaxNeighbors(o.maxNeighbors))
 		if err != nil {
