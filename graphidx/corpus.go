@@ -261,15 +261,52 @@ func checkName(s []byte) string {
 	return ""
 }
 
-// dupCheck sorts obs by entity name and reports the first repeated entity.
+// dupCheck reports a repeated entity in obs. Up to 32 observations it
+// compares cheap fingerprints pairwise (O(n²) integer compares, a string
+// compare only on a fingerprint match) and leaves obs in place; longer
+// contexts are sorted by entity name (O(n log n)).
 func dupCheck(obs []Observation) (string, bool) {
-	sortObs(obs)
-	for i := 1; i < len(obs); i++ {
-		if obs[i].Entity == obs[i-1].Entity {
-			return obs[i].Entity, true
+	if len(obs) > 32 {
+		sortObs(obs)
+		for i := 1; i < len(obs); i++ {
+			if obs[i].Entity == obs[i-1].Entity {
+				return obs[i].Entity, true
+			}
+		}
+		return "", false
+	}
+	var h [32]uint64
+	for i := range obs {
+		h[i] = fingerprint(obs[i].Entity)
+		for j := range i {
+			if h[j] == h[i] && obs[j].Entity == obs[i].Entity {
+				return obs[i].Entity, true
+			}
 		}
 	}
 	return "", false
+}
+
+// fingerprint mixes a name's length with its first and last 8 bytes. Equal
+// names have equal fingerprints; different ones rarely do.
+func fingerprint(s string) uint64 {
+	n := len(s)
+	var a, b uint64
+	if n >= 8 {
+		a = load64(s)
+		b = load64(s[n-8:])
+	} else {
+		for i := range n {
+			a = a<<8 | uint64(s[i])
+		}
+	}
+	return (a*0x9E3779B97F4A7C15 ^ b*0xC2B2AE3D27D4EB4F) + uint64(n)
+}
+
+func load64(s string) uint64 {
+	_ = s[7]
+	return uint64(s[0]) | uint64(s[1])<<8 | uint64(s[2])<<16 | uint64(s[3])<<24 |
+		uint64(s[4])<<32 | uint64(s[5])<<40 | uint64(s[6])<<48 | uint64(s[7])<<56
 }
 
 // sortObs sorts by entity name; insertion sort for the usual short contexts.
