@@ -222,7 +222,7 @@ func (r *CSVReader) readAll() error {
 		bufSize = int(min(int64(bufSize), max(4<<10, r.cfg.memLimit/int64(2*len(r.runs)))))
 	}
 	for _, p := range r.runs {
-		rr, err := openCSVRun(p, bufSize)
+		rr, err := openCSVRun(p, bufSize, &r.in)
 		if err != nil {
 			m.close()
 			return err
@@ -499,17 +499,19 @@ func (m *memCSVRun) next() (csvRow, bool, error) {
 func (m *memCSVRun) close() error { m.rows = nil; return nil }
 
 type fileCSVRun struct {
-	f  *os.File
-	br *bufio.Reader
-	in interner
+	f       *os.File
+	br      *bufio.Reader
+	in      *interner // shared by the runs of one reader
+	buf     []byte
+	lastCtx string // rows of one context are consecutive: reuse its id
 }
 
-func openCSVRun(path string, bufSize int) (*fileCSVRun, error) {
+func openCSVRun(path string, bufSize int, in *interner) (*fileCSVRun, error) {
 	f, err := os.Open(path)
 	if err != nil {
 		return nil, err
 	}
-	return &fileCSVRun{f: f, br: bufio.NewReaderSize(f, bufSize)}, nil
+	return &fileCSVRun{f: f, br: bufio.NewReaderSize(f, bufSize), in: in, buf: make([]byte, MaxNameBytes)}, nil
 }
 
 func (f *fileCSVRun) str(buf []byte) ([]byte, error) {
@@ -526,21 +528,24 @@ func (f *fileCSVRun) str(buf []byte) ([]byte, error) {
 }
 
 func (f *fileCSVRun) next() (csvRow, bool, error) {
-	var buf [MaxNameBytes]byte
-	c, err := f.str(buf[:])
+	buf := f.buf
+	c, err := f.str(buf)
 	if err == io.EOF {
 		return csvRow{}, false, nil
 	}
 	if err != nil {
 		return csvRow{}, false, err
 	}
-	row := csvRow{ctx: string(c)}
-	e, err := f.str(buf[:])
+	if string(c) != f.lastCtx {
+		f.lastCtx = string(c)
+	}
+	row := csvRow{ctx: f.lastCtx}
+	e, err := f.str(buf)
 	if err != nil {
 		return csvRow{}, false, noEOF(err)
 	}
 	row.ent = f.in.get(e)
-	v, err := f.str(buf[:])
+	v, err := f.str(buf)
 	if err != nil {
 		return csvRow{}, false, noEOF(err)
 	}
