@@ -33,9 +33,12 @@ import (
 // the memory budget (WithMemBudget), then sorted by (context id, line) and
 // spilled as a run to the temp dir (WithTempDir); at the end of the input
 // the runs and the buffer are k-way merged (container/heap) and each group of
-// equal ids becomes one context. Memory is therefore O(budget + runs×64 KiB)
-// whatever the file size, and contexts come out in ascending byte order of
-// their id. Close removes the runs.
+// equal ids becomes one context. When anything was spilled the buffer is
+// spilled too, so that while contexts are returned only the runs' read
+// buffers (at most 64 KiB each, together at most half the budget) stay in
+// memory. Memory is therefore O(budget) whatever the file size, and
+// contexts come out in ascending byte order of their id. Close removes the
+// runs.
 //
 // Row errors are reported at the row's first line: too-many-columns,
 // too-few-columns, bad-quote, line-too-long, missing-id, empty-name,
@@ -213,6 +216,14 @@ func (r *CSVReader) readAll() error {
 			}
 		}
 	}
+	if len(r.runs) > 0 {
+		// The input did not fit: spill the rest too, so that while the
+		// contexts are consumed (and counted) only the read buffers of
+		// the runs stay in memory, not a budget's worth of rows.
+		if err := r.spill(); err != nil {
+			return err
+		}
+	}
 	slices.SortFunc(r.rows, func(a, b csvRow) int { return cmpRow(&a, &b) })
 	m := &csvMerger{}
 	// Each run gets a read buffer of at most 64 KiB, fewer when there are
@@ -229,7 +240,9 @@ func (r *CSVReader) readAll() error {
 		}
 		m.srcs = append(m.srcs, rr)
 	}
-	m.srcs = append(m.srcs, &memCSVRun{rows: r.rows})
+	if len(r.rows) > 0 {
+		m.srcs = append(m.srcs, &memCSVRun{rows: r.rows})
+	}
 	if err := m.init(); err != nil {
 		m.close()
 		return err
@@ -332,8 +345,11 @@ func (r *CSVReader) row(first int) *LineError {
 	if r.cols == 3 {
 		row.val = r.in.get(r.fields[2])
 	}
+	oldCap := cap(r.rows)
 	r.rows = append(r.rows, row)
-	r.mem += int64(len(row.ent)+len(row.val)) + 56
+	// Count the slice by its capacity: append doubles it, and the old
+	// array lives on until the collector frees it.
+	r.mem += int64(cap(r.rows)-oldCap)*56 + int64(len(row.ent)+len(row.val))
 	return nil
 }
 
@@ -439,7 +455,10 @@ func (r *CSVReader) spill() error {
 	clear(r.rows)
 	r.rows = r.rows[:0]
 	r.ctxIntn = nil
-	r.mem = 0
+	r.mem = int64(cap(r.rows)) * 56 // the array is kept for the next rows
+	if r.mem > r.cfg.memLimit/2 {
+		r.rows, r.mem = nil, 0 // unless it would leave too little room
+	}
 	return nil
 }
 
