@@ -387,3 +387,30 @@ func TestBuildEdgeCases(t *testing.T) {
 		x.Close()
 	}
 }
+
+// TestBuildProgress: phases arrive in order and the last read event counts
+// every context.
+func TestBuildProgress(t *testing.T) {
+	t.Parallel()
+	cs := genCorpus(6, 3000, 200, 4, 2)
+	var phases []string
+	var lastRead ProgressEvent
+	_, err := Build(context.Background(), &sliceReader{cs: cs}, filepath.Join(t.TempDir(), "p.idx"),
+		WithProgress(func(ev ProgressEvent) {
+			if len(phases) == 0 || phases[len(phases)-1] != ev.Phase {
+				phases = append(phases, ev.Phase)
+			}
+			if ev.Phase == PhaseRead {
+				lastRead = ev
+			}
+		}))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got := strings.Join(phases, ","); got != "read,merge,prune,write,done" {
+		t.Errorf("phases %s", got)
+	}
+	if lastRead.Contexts != 3000 || lastRead.BytesRead != -1 || lastRead.Entities == 0 {
+		t.Errorf("last read event %+v", lastRead)
+	}
+}
