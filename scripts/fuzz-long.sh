@@ -7,7 +7,9 @@
 # (go test -run '^$' -fuzz '^FuzzXxx$' -fuzztime DURATION ./pkg). A crash
 # makes the fuzzer write the failing input under the package's
 # testdata/fuzz/FuzzXxx/ directory; commit it so `go test` replays it as a
-# regression seed. The script goes on with the other targets, prints a table
+# regression seed. (A worker killed from outside, e.g. by SIGQUIT, is also
+# recorded as "hung or terminated unexpectedly"; re-run the written input
+# with go test -run=FuzzXxx/ID before committing it.) The script goes on with the other targets, prints a table
 # (target, status, executions, new interesting inputs) and exits 1 if any
 # target failed.
 #
@@ -72,7 +74,12 @@ for t in "${targets[@]}"; do
 	echo "$line"
 	summary+=("$line")
 	if [ "$status" = FAIL ]; then
-		grep -E -- '--- FAIL|Failing input written to|panic:|Error' "$log" | head -n 20 | sed 's/^/    /'
+		if grep -q 'Failing input written to' "$log"; then
+			grep -E -- '--- FAIL|Failing input written to|panic:|hung or terminated' "$log" | head -n 20 | sed 's/^/    /'
+		else
+			echo "    no failing input: the package did not build or its tests failed; see $log"
+			tail -n 5 "$log" | sed 's/^/    /'
+		fi
 	fi
 done
 
