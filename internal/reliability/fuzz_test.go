@@ -1,6 +1,7 @@
 package reliability
 
-// Fuzz targets for the parsers not fuzzed in their own packages: the router
+// Fuzz targets for the parsers not fuzzed in their own packages (and for
+// Decide on arbitrary query strings): the router
 // configuration, the route batch query lines (through the command line),
 // the text-corpus lexicon, the single-line JSONL parser used by distributed
 // builds, and gzip-compressed corpora. The other targets live beside their
@@ -10,10 +11,12 @@ package reliability
 
 import (
 	"bytes"
+	"context"
 	"compress/gzip"
 	"encoding/json"
 	"errors"
 	"io"
+	"math"
 	"os"
 	"path/filepath"
 	"reflect"
@@ -328,6 +331,71 @@ func FuzzOpenCorpusGzip(f *testing.F) {
 					t.Fatalf("error does not name the file: %v", err)
 				}
 				return
+			}
+		}
+	})
+}
+
+// FuzzDecide: Decide on arbitrary query strings never panics; it fails only
+// with a documented sentinel, and a decision it returns is well formed
+// (known mode, estimate a distribution over the target's values,
+// propensity in (0, 1], finite errors).
+func FuzzDecide(f *testing.F) {
+	f.Add(GridName(1), "open", GridName(2), "")
+	f.Add(GridName(3), "closed", GridName(3), "k")
+	f.Add("ghost", "open", GridName(2), "unit-1")
+	f.Add(GridName(1), "ajar", GridName(2), "")
+	f.Add("", "", "", "\xff")
+	f.Add(GridName(1)+"\x00", "open", GridName(2), "")
+	x, err := graphidx.Open(smallIndex(f))
+	if err != nil {
+		f.Fatal(err)
+	}
+	plain, err := router.New(x, router.WithGainThreshold(-1))
+	if err != nil {
+		f.Fatal(err)
+	}
+	y, err := graphidx.Open(smallIndex(f))
+	if err != nil {
+		f.Fatal(err)
+	}
+	fallback, err := router.New(y, router.WithFallback(router.ModeChain),
+		router.WithArms(router.ArmWeight{Arm: router.ArmRouted, Weight: 1}, router.ArmWeight{Arm: router.ArmChainAlways, Weight: 1}),
+		router.WithExploration(0.2, "s"))
+	if err != nil {
+		f.Fatal(err)
+	}
+	f.Cleanup(func() { _ = plain.Close(); _ = fallback.Close() })
+	f.Fuzz(func(t *testing.T, from, value, to, key string) {
+		q := router.Query{From: from, Value: value, To: to, Key: key}
+		for _, r := range []*router.Router{plain, fallback} {
+			d, err := r.Decide(context.Background(), q)
+			if err != nil {
+				if !errors.Is(err, router.ErrUnknownEntity) && !errors.Is(err, router.ErrUnknownValue) && !errors.Is(err, router.ErrSameEntity) {
+					t.Fatalf("%+v: undocumented error %v", q, err)
+				}
+				continue
+			}
+			if d.Mode != router.ModeDirect && d.Mode != router.ModeChain {
+				t.Fatalf("mode %v", d.Mode)
+			}
+			if d.Propensity <= 0 || d.Propensity > 1 || math.IsNaN(d.Err) || math.IsInf(d.Err, 0) {
+				t.Fatalf("%+v: propensity %v err %v", q, d.Propensity, d.Err)
+			}
+			if len(d.Estimate) > 0 {
+				if len(d.Estimate) != len(d.Values) {
+					t.Fatalf("%d estimates for %d values", len(d.Estimate), len(d.Values))
+				}
+				sum := 0.0
+				for _, p := range d.Estimate {
+					if p < 0 || p > 1 || math.IsNaN(p) {
+						t.Fatalf("estimate %v", d.Estimate)
+					}
+					sum += p
+				}
+				if math.Abs(sum-1) > 1e-9 {
+					t.Fatalf("estimate sums to %v", sum)
+				}
 			}
 		}
 	})
