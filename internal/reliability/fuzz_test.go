@@ -11,8 +11,8 @@ package reliability
 
 import (
 	"bytes"
-	"context"
 	"compress/gzip"
+	"context"
 	"encoding/json"
 	"errors"
 	"io"
