@@ -3,6 +3,7 @@ package otlpfile
 import (
 	"encoding/base64"
 	"encoding/hex"
+	"iter"
 	"math"
 	"strconv"
 	"unicode/utf8"
@@ -106,7 +107,71 @@ func (f *fields) id(k string, v []byte) {
 	f.b = append(f.b, '"')
 }
 
+// kvs writes a repeated KeyValue member, omitted when empty.
+func (f *fields) kvs(k string, v []*commonpb.KeyValue) {
+	if len(v) > 0 { // inlined guard: no call for the common empty list
+		f.keyValues(k, v)
+	}
+}
+
+func (f *fields) keyValues(k string, v []*commonpb.KeyValue) {
+	for kv := range elems(f, k, v) {
+		o := newObject(f.b)
+		o.str("key", kv.Key)
+		if kv.Value != nil {
+			o.key("value")
+			o.b = appendAnyValue(o.b, kv.Value)
+		}
+		o.i32("keyStrindex", kv.KeyStrindex)
+		f.b = o.end()
+	}
+}
+
+// strs writes a repeated string member, omitted when empty.
+func (f *fields) strs(k string, v []string) {
+	if len(v) == 0 {
+		return
+	}
+	f.key(k)
+	f.b = append(f.b, '[')
+	for i, s := range v {
+		if i > 0 {
+			f.b = append(f.b, ',')
+		}
+		f.b = appendString(f.b, s)
+	}
+	f.b = append(f.b, ']')
+}
+
 func (f *fields) end() []byte { return append(f.b, '}') }
+
+// elems writes member k of f as a JSON array of the non-nil entries of xs,
+// omitted when xs is empty (proto3 JSON); a slice of only nil entries gives
+// []. It yields each entry after writing the separator before it, so the
+// loop body appends just the element. O(len(xs)) plus the elements.
+func elems[T any](f *fields, k string, xs []*T) iter.Seq[*T] {
+	return func(yield func(*T) bool) {
+		if len(xs) == 0 {
+			return
+		}
+		f.key(k)
+		f.b = append(f.b, '[')
+		n := 0
+		for _, x := range xs {
+			if x == nil {
+				continue
+			}
+			if n > 0 {
+				f.b = append(f.b, ',')
+			}
+			n++
+			if !yield(x) {
+				break
+			}
+		}
+		f.b = append(f.b, ']')
+	}
+}
 
 func appendResourceSpans(b []byte, r *tracepb.ResourceSpans) []byte {
 	o := newObject(b)
@@ -114,21 +179,8 @@ func appendResourceSpans(b []byte, r *tracepb.ResourceSpans) []byte {
 		o.key("resource")
 		o.b = appendResource(o.b, r.Resource)
 	}
-	if len(r.ScopeSpans) > 0 {
-		o.key("scopeSpans")
-		o.b = append(o.b, '[')
-		n := 0
-		for _, ss := range r.ScopeSpans {
-			if ss == nil {
-				continue
-			}
-			if n > 0 {
-				o.b = append(o.b, ',')
-			}
-			n++
-			o.b = appendScopeSpans(o.b, ss)
-		}
-		o.b = append(o.b, ']')
+	for e := range elems(&o, "scopeSpans", r.ScopeSpans) {
+		o.b = appendScopeSpans(o.b, e)
 	}
 	o.str("schemaUrl", r.SchemaUrl)
 	return o.end()
@@ -136,60 +188,28 @@ func appendResourceSpans(b []byte, r *tracepb.ResourceSpans) []byte {
 
 func appendResource(b []byte, r *resourcepb.Resource) []byte {
 	o := newObject(b)
-	if len(r.Attributes) > 0 {
-		o.key("attributes")
-		o.b = appendKeyValues(o.b, r.Attributes)
-	}
+	o.kvs("attributes", r.Attributes)
 	o.u32("droppedAttributesCount", r.DroppedAttributesCount)
-	if len(r.EntityRefs) > 0 {
-		o.key("entityRefs")
-		o.b = append(o.b, '[')
-		n := 0
-		for _, e := range r.EntityRefs {
-			if e == nil {
-				continue
-			}
-			if n > 0 {
-				o.b = append(o.b, ',')
-			}
-			n++
-			eo := newObject(o.b)
-			eo.str("schemaUrl", e.SchemaUrl)
-			eo.str("type", e.Type)
-			if len(e.IdKeys) > 0 {
-				eo.key("idKeys")
-				eo.b = appendStrings(eo.b, e.IdKeys)
-			}
-			if len(e.DescriptionKeys) > 0 {
-				eo.key("descriptionKeys")
-				eo.b = appendStrings(eo.b, e.DescriptionKeys)
-			}
-			o.b = eo.end()
-		}
-		o.b = append(o.b, ']')
+	for e := range elems(&o, "entityRefs", r.EntityRefs) {
+		o.b = appendEntityRef(o.b, e)
 	}
 	return o.end()
 }
 
-func appendStrings(b []byte, ss []string) []byte {
-	b = append(b, '[')
-	for i, s := range ss {
-		if i > 0 {
-			b = append(b, ',')
-		}
-		b = appendString(b, s)
-	}
-	return append(b, ']')
+func appendEntityRef(b []byte, e *commonpb.EntityRef) []byte {
+	o := newObject(b)
+	o.str("schemaUrl", e.SchemaUrl)
+	o.str("type", e.Type)
+	o.strs("idKeys", e.IdKeys)
+	o.strs("descriptionKeys", e.DescriptionKeys)
+	return o.end()
 }
 
 func appendScope(b []byte, s *commonpb.InstrumentationScope) []byte {
 	o := newObject(b)
 	o.str("name", s.Name)
 	o.str("version", s.Version)
-	if len(s.Attributes) > 0 {
-		o.key("attributes")
-		o.b = appendKeyValues(o.b, s.Attributes)
-	}
+	o.kvs("attributes", s.Attributes)
 	o.u32("droppedAttributesCount", s.DroppedAttributesCount)
 	return o.end()
 }
@@ -200,21 +220,8 @@ func appendScopeSpans(b []byte, ss *tracepb.ScopeSpans) []byte {
 		o.key("scope")
 		o.b = appendScope(o.b, ss.Scope)
 	}
-	if len(ss.Spans) > 0 {
-		o.key("spans")
-		o.b = append(o.b, '[')
-		n := 0
-		for _, sp := range ss.Spans {
-			if sp == nil {
-				continue
-			}
-			if n > 0 {
-				o.b = append(o.b, ',')
-			}
-			n++
-			o.b = appendSpan(o.b, sp)
-		}
-		o.b = append(o.b, ']')
+	for e := range elems(&o, "spans", ss.Spans) {
+		o.b = appendSpan(o.b, e)
 	}
 	o.str("schemaUrl", ss.SchemaUrl)
 	return o.end()
@@ -231,61 +238,14 @@ func appendSpan(b []byte, s *tracepb.Span) []byte {
 	o.i32("kind", int32(s.Kind))
 	o.u64("startTimeUnixNano", s.StartTimeUnixNano)
 	o.u64("endTimeUnixNano", s.EndTimeUnixNano)
-	if len(s.Attributes) > 0 {
-		o.key("attributes")
-		o.b = appendKeyValues(o.b, s.Attributes)
-	}
+	o.kvs("attributes", s.Attributes)
 	o.u32("droppedAttributesCount", s.DroppedAttributesCount)
-	if len(s.Events) > 0 {
-		o.key("events")
-		o.b = append(o.b, '[')
-		n := 0
-		for _, e := range s.Events {
-			if e == nil {
-				continue
-			}
-			if n > 0 {
-				o.b = append(o.b, ',')
-			}
-			n++
-			eo := newObject(o.b)
-			eo.u64("timeUnixNano", e.TimeUnixNano)
-			eo.str("name", e.Name)
-			if len(e.Attributes) > 0 {
-				eo.key("attributes")
-				eo.b = appendKeyValues(eo.b, e.Attributes)
-			}
-			eo.u32("droppedAttributesCount", e.DroppedAttributesCount)
-			o.b = eo.end()
-		}
-		o.b = append(o.b, ']')
+	for e := range elems(&o, "events", s.Events) {
+		o.b = appendEvent(o.b, e)
 	}
 	o.u32("droppedEventsCount", s.DroppedEventsCount)
-	if len(s.Links) > 0 {
-		o.key("links")
-		o.b = append(o.b, '[')
-		n := 0
-		for _, l := range s.Links {
-			if l == nil {
-				continue
-			}
-			if n > 0 {
-				o.b = append(o.b, ',')
-			}
-			n++
-			lo := newObject(o.b)
-			lo.id("traceId", l.TraceId)
-			lo.id("spanId", l.SpanId)
-			lo.str("traceState", l.TraceState)
-			if len(l.Attributes) > 0 {
-				lo.key("attributes")
-				lo.b = appendKeyValues(lo.b, l.Attributes)
-			}
-			lo.u32("droppedAttributesCount", l.DroppedAttributesCount)
-			lo.u32("flags", l.Flags)
-			o.b = lo.end()
-		}
-		o.b = append(o.b, ']')
+	for e := range elems(&o, "links", s.Links) {
+		o.b = appendLink(o.b, e)
 	}
 	o.u32("droppedLinksCount", s.DroppedLinksCount)
 	if s.Status != nil {
@@ -298,27 +258,24 @@ func appendSpan(b []byte, s *tracepb.Span) []byte {
 	return o.end()
 }
 
-func appendKeyValues(b []byte, kvs []*commonpb.KeyValue) []byte {
-	b = append(b, '[')
-	n := 0
-	for _, kv := range kvs {
-		if kv == nil {
-			continue
-		}
-		if n > 0 {
-			b = append(b, ',')
-		}
-		n++
-		o := newObject(b)
-		o.str("key", kv.Key)
-		if kv.Value != nil {
-			o.key("value")
-			o.b = appendAnyValue(o.b, kv.Value)
-		}
-		o.i32("keyStrindex", kv.KeyStrindex)
-		b = o.end()
-	}
-	return append(b, ']')
+func appendEvent(b []byte, e *tracepb.Span_Event) []byte {
+	o := newObject(b)
+	o.u64("timeUnixNano", e.TimeUnixNano)
+	o.str("name", e.Name)
+	o.kvs("attributes", e.Attributes)
+	o.u32("droppedAttributesCount", e.DroppedAttributesCount)
+	return o.end()
+}
+
+func appendLink(b []byte, l *tracepb.Span_Link) []byte {
+	o := newObject(b)
+	o.id("traceId", l.TraceId)
+	o.id("spanId", l.SpanId)
+	o.str("traceState", l.TraceState)
+	o.kvs("attributes", l.Attributes)
+	o.u32("droppedAttributesCount", l.DroppedAttributesCount)
+	o.u32("flags", l.Flags)
+	return o.end()
 }
 
 func appendAnyValue(b []byte, v *commonpb.AnyValue) []byte {
@@ -341,29 +298,17 @@ func appendAnyValue(b []byte, v *commonpb.AnyValue) []byte {
 	case *commonpb.AnyValue_ArrayValue:
 		o.key("arrayValue")
 		ao := newObject(o.b)
-		if x.ArrayValue != nil && len(x.ArrayValue.Values) > 0 {
-			ao.key("values")
-			ao.b = append(ao.b, '[')
-			n := 0
-			for _, e := range x.ArrayValue.Values {
-				if e == nil {
-					continue
-				}
-				if n > 0 {
-					ao.b = append(ao.b, ',')
-				}
-				n++
+		if x.ArrayValue != nil {
+			for e := range elems(&ao, "values", x.ArrayValue.Values) {
 				ao.b = appendAnyValue(ao.b, e)
 			}
-			ao.b = append(ao.b, ']')
 		}
 		o.b = ao.end()
 	case *commonpb.AnyValue_KvlistValue:
 		o.key("kvlistValue")
 		ko := newObject(o.b)
-		if x.KvlistValue != nil && len(x.KvlistValue.Values) > 0 {
-			ko.key("values")
-			ko.b = appendKeyValues(ko.b, x.KvlistValue.Values)
+		if x.KvlistValue != nil {
+			ko.kvs("values", x.KvlistValue.Values)
 		}
 		o.b = ko.end()
 	case *commonpb.AnyValue_BytesValue:
