@@ -77,28 +77,13 @@ func (m *Support) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bri
 	if err := ws.setPath(st, s, u, bridges, t); err != nil {
 		return Estimate{}, err
 	}
-	edges := len(bridges) + 1
-	ws.toff = growI(ws.toff, edges+1)
-	ws.coff = growI(ws.coff, edges+1)
-	tn, cn := 0, 0
-	for k := 0; k < edges; k++ {
-		ws.toff[k], ws.coff[k] = tn, cn
-		tn += ws.ks[k] * ws.ks[k+1]
-		cn += ws.ks[k]
+	minSup, err := ws.loadEdges(st, m.alpha)
+	if err != nil {
+		return Estimate{}, err
 	}
-	ws.toff[edges], ws.coff[edges] = tn, cn
-	ws.theta = growF(ws.theta, tn)
-	ws.cinv = growF(ws.cinv, cn)
-	minSup := ^uint64(0)
+	edges := len(bridges) + 1
 	e := 0.0
-	for k := 0; k < edges; k++ {
-		ka, kb := ws.ks[k], ws.ks[k+1]
-		ps, ok, err := pair(st, ws.path[k], ws.path[k+1], ka, kb)
-		if err != nil {
-			return Estimate{}, err
-		}
-		sup := fillMeans(ws.theta[ws.toff[k]:ws.toff[k+1]], ws.cinv[ws.coff[k]:ws.coff[k+1]], ps, ok, ka, kb, m.alpha)
-		minSup = min(minSup, sup)
+	for _, sup := range ws.sup {
 		e += m.edgeErr(sup)
 	}
 	e += m.beta * float64(len(bridges))

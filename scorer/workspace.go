@@ -21,6 +21,7 @@ type Workspace struct {
 	toff  []int     // toff[k-1] = offset of M_k in theta
 	cinv  []float64 // 1/(n_r + K_k α + 1) for each row r of each M_k, concatenated
 	coff  []int     // coff[k-1] = offset of M_k's rows in cinv
+	sup   []uint64  // sup[k-1] = support of edge k (the pair count behind M_k)
 
 	x    []float64 // forward row vectors x_1..x_m, concatenated
 	xoff []int     // xoff[k-1] = offset of x_k
@@ -107,8 +108,9 @@ func (ws *Workspace) setPath(st Stats, s graphidx.EntityID, u int, bridges []gra
 
 // loadEdges fills the posterior-mean matrices M_k and the row factors
 // 1/(n_r + K_k α + 1) for every edge of the path set by setPath, and returns
-// the smallest edge support. An edge never observed gets the prior (all-zero
-// counts). Cost O(Σ_k K_(k−1)·K_k) plus the Stats lookups.
+// the smallest edge support; each edge's support is kept in ws.sup. An edge
+// never observed gets the prior (all-zero counts) and support 0. Cost
+// O(Σ_k K_(k−1)·K_k) plus the Stats lookups.
 func (ws *Workspace) loadEdges(st Stats, alpha float64) (uint64, error) {
 	edges := len(ws.path) - 1
 	ws.toff = growI(ws.toff, edges+1)
@@ -123,6 +125,7 @@ func (ws *Workspace) loadEdges(st Stats, alpha float64) (uint64, error) {
 	ws.theta = growF(ws.theta, tn)
 	ws.cinv = growF(ws.cinv, cn)
 
+	ws.sup = ws.sup[:0]
 	minSup := ^uint64(0)
 	for k := 0; k < edges; k++ {
 		ka, kb := ws.ks[k], ws.ks[k+1]
@@ -133,6 +136,7 @@ func (ws *Workspace) loadEdges(st Stats, alpha float64) (uint64, error) {
 		th := ws.theta[ws.toff[k]:ws.toff[k+1]]
 		ci := ws.cinv[ws.coff[k]:ws.coff[k+1]]
 		sup := fillMeans(th, ci, ps, ok, ka, kb, alpha)
+		ws.sup = append(ws.sup, sup)
 		minSup = min(minSup, sup)
 	}
 	return minSup, nil
