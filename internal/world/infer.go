@@ -3,7 +3,6 @@ package world
 import (
 	"fmt"
 	"math"
-	"math/bits"
 	"slices"
 )
 
@@ -256,15 +255,7 @@ func (w *World) eliminationOrder(hidden []int, factors []*factor) []int {
 		best, bestFill, bestDeg := -1, math.MaxInt, math.MaxInt
 		for ri, v := range remaining {
 			lv := local[v]
-			nbr = nbr[:0]
-			for wi, word := range nb[lv] {
-				word &= alive[wi]
-				for word != 0 {
-					b := bits.TrailingZeros64(word)
-					nbr = append(nbr, wi*64+b)
-					word &= word - 1
-				}
-			}
+			nbr = nb[lv].appendAnd(nbr[:0], alive)
 			fill := 0
 			for i := 0; i < len(nbr) && fill < bestFill; i++ {
 				for j := i + 1; j < len(nbr); j++ {
@@ -279,15 +270,7 @@ func (w *World) eliminationOrder(hidden []int, factors []*factor) []int {
 		}
 		v := remaining[best]
 		lv := local[v]
-		nbr = nbr[:0]
-		for wi, word := range nb[lv] {
-			word &= alive[wi]
-			for word != 0 {
-				b := bits.TrailingZeros64(word)
-				nbr = append(nbr, wi*64+b)
-				word &= word - 1
-			}
-		}
+		nbr = nb[lv].appendAnd(nbr[:0], alive)
 		for _, a := range nbr {
 			for _, b := range nbr {
 				if a != b {

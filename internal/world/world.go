@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"math/bits"
 	"slices"
 	"sort"
 	"sync"
@@ -419,6 +420,20 @@ func (b bitset) or(o bitset) {
 		b[i] |= o[i]
 	}
 }
+
+// appendAnd appends the members of b ∩ o to dst in increasing order.
+// O(len(b) + |b ∩ o|).
+func (b bitset) appendAnd(dst []int, o bitset) []int {
+	for wi, word := range b {
+		word &= o[wi]
+		for word != 0 {
+			dst = append(dst, wi*64+bits.TrailingZeros64(word))
+			word &= word - 1
+		}
+	}
+	return dst
+}
+
 func (b bitset) intersects(o bitset) bool {
 	for i := range b {
 		if b[i]&o[i] != 0 {
