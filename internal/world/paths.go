@@ -6,9 +6,10 @@ import (
 	"slices"
 )
 
-// bfs returns the undirected skeleton distance from src to every variable
+// bfs returns the distance from src to every variable along the lists of adj
 // (−1 when unreachable) and the BFS predecessor of each reached variable.
-// Neighbours are visited in ascending index order. O(N + E).
+// With the undirected skeleton as adj these are skeleton distances.
+// Neighbours are visited in list order (ascending in w.adj). O(N + E).
 func bfs(adj [][]int, src int) (dist, pred []int) {
 	n := len(adj)
 	dist = make([]int, n)
@@ -65,28 +66,10 @@ func (w *World) ShortestPath(a, b int) ([]int, error) {
 
 // upDist returns the directed distance from every ancestor c of v down to v
 // (−1 for non-ancestors) and, for each ancestor, the next variable on a
-// shortest directed path from it towards v. O(N + E).
+// shortest directed path from it towards v: the breadth-first search of bfs
+// run over the parent lists. O(N + E).
 func (w *World) upDist(v int) (dist, next []int) {
-	n := len(w.names)
-	dist = make([]int, n)
-	next = make([]int, n)
-	for i := range dist {
-		dist[i], next[i] = -1, -1
-	}
-	dist[v] = 0
-	queue := []int{v}
-	for len(queue) > 0 {
-		x := queue[0]
-		queue = queue[1:]
-		for _, p := range w.parents[x] {
-			if dist[p] < 0 {
-				dist[p] = dist[x] + 1
-				next[p] = x
-				queue = append(queue, p)
-			}
-		}
-	}
-	return dist, next
+	return bfs(w.parents, v)
 }
 
 // MinimalSeparatorPath returns the ideal scaffold of the eval: the interior
