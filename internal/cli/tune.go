@@ -369,16 +369,7 @@ func calibration(js []otelx.Joined, bins int) []calibBin {
 	for i := range idx {
 		idx[i] = i
 	}
-	slices.SortFunc(idx, func(a, b int) int {
-		x, y := js[a].Decision.Err, js[b].Decision.Err
-		switch {
-		case x < y:
-			return -1
-		case x > y:
-			return 1
-		}
-		return 0
-	})
+	slices.SortFunc(idx, func(a, b int) int { return cmpFloat(js[a].Decision.Err, js[b].Decision.Err) })
 	bins = min(bins, len(idx))
 	var out []calibBin
 	for b := range bins {
@@ -483,6 +474,7 @@ func plotValue(path string, rep *tuneReport) error {
 	return p.Save(8*vg.Inch, 5*vg.Inch, path)
 }
 
+// cmpFloat orders a before b by <; NaN compares equal to everything.
 func cmpFloat(a, b float64) int {
 	switch {
 	case a < b:
