@@ -86,8 +86,10 @@ func WithMeterProvider(mp metric.MeterProvider) Option {
 
 // WithEntityHashKey replaces entity names and values in spans by
 // HMAC-SHA256(key, name), hex encoded and truncated to 128 bits, so traces
-// can be joined and counted without revealing the names. The key must be
-// at least MinHashKeyLen bytes; it is copied.
+// can be joined and counted without revealing the names. The span of a
+// failed decision then records only the sentinel the error wraps (the
+// router's error text names the entity in clear). The key must be at least
+// MinHashKeyLen bytes; it is copied.
 func WithEntityHashKey(key []byte) Option {
 	return optionFunc(func(c *config) {
 		c.hashKey = append([]byte(nil), key...)
@@ -315,8 +317,9 @@ func (in *Instrumentation) decide(ctx context.Context, r *router.Router, q route
 	}
 	if recording {
 		if err != nil {
-			span.RecordError(err)
-			span.SetStatus(codes.Error, err.Error())
+			serr := in.spanError(err) // no entity names in clear when hashing
+			span.RecordError(serr)
+			span.SetStatus(codes.Error, serr.Error())
 			span.SetAttributes(in.queryAttrs(nil, q)...)
 		} else {
 			bp := attrPool.Get().(*[]attribute.KeyValue)
