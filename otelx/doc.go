@@ -26,6 +26,8 @@
 // batch span processor drops spans when its queue is full, which acts as
 // sampling that no span records. Give it sdktrace.WithBlocking() or a queue
 // large enough for the peak rate, and check the SDK's dropped-span count.
+// NewDropCounter wraps an exporter so that the spans of failed exports (a
+// full disk, an unreachable collector) are counted in MetricSpansDropped.
 //
 // RecordOutcome reports the gateway's outcome (score in [0,1], tokens,
 // latency) in a span named SpanOutcome carrying the decision's unit key;

@@ -70,7 +70,8 @@ type telemetryArm struct {
 // processor counts spans dropped on a full queue in
 // otel.sdk.processor.span.processed{error.type=queue_full}, which this test
 // requires for the unreachable endpoint; failed exports of the file
-// exporter reach otel's error handler, which this test requires too.
+// exporter reach otel's error handler and, through otelx.NewDropCounter,
+// the hopwise.trace.spans.dropped counter; this test requires both.
 //
 // Not parallel: it sets an environment variable and the otel globals.
 func TestTelemetryFailureNeverBlocksDecide(t *testing.T) {
@@ -124,7 +125,11 @@ func TestTelemetryFailureNeverBlocksDecide(t *testing.T) {
 	arms = append(arms, unreachable)
 	var fullDisk *telemetryArm
 	if _, err := os.Stat("/dev/full"); err == nil {
-		fileExp, err := otlpfile.NewExporter(ctx, "/dev/full")
+		rawFile, err := otlpfile.NewExporter(ctx, "/dev/full")
+		if err != nil {
+			t.Fatal(err)
+		}
+		fileExp, err := otelx.NewDropCounter(rawFile, otelx.WithMeterProvider(mp))
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -223,8 +228,11 @@ func TestTelemetryFailureNeverBlocksDecide(t *testing.T) {
 	if queueFull+exportErr == 0 {
 		t.Errorf("the unreachable endpoint dropped spans but no metric counts them")
 	}
-	if fullDisk != nil && handled.Load() == 0 {
-		t.Errorf("full-disk export failures were not reported to the otel error handler")
+	fileDropped := sumCounterWithKey(rm, otelx.MetricSpansDropped, "")
+	t.Logf("full-disk file exporter: %s = %d", otelx.MetricSpansDropped, fileDropped)
+	if fullDisk != nil && (handled.Load() == 0 || fileDropped == 0) {
+		t.Errorf("full-disk export failures: %d error-handler calls, %s = %d; want both > 0",
+			handled.Load(), otelx.MetricSpansDropped, fileDropped)
 	}
 }
 
@@ -250,7 +258,7 @@ func sumCounter(rm metricdata.ResourceMetrics, name string, kv attribute.KeyValu
 }
 
 // sumCounterWithKey sums the data points of the named metric that carry the
-// attribute key (any value).
+// attribute key (any value; every point when key is "").
 func sumCounterWithKey(rm metricdata.ResourceMetrics, name string, key attribute.Key) int64 {
 	var n int64
 	for _, sm := range rm.ScopeMetrics {
@@ -260,7 +268,7 @@ func sumCounterWithKey(rm metricdata.ResourceMetrics, name string, key attribute
 			}
 			if s, ok := m.Data.(metricdata.Sum[int64]); ok {
 				for _, dp := range s.DataPoints {
-					if dp.Attributes.HasValue(key) {
+					if key == "" || dp.Attributes.HasValue(key) {
 						n += dp.Value
 					}
 				}
