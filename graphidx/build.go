@@ -306,7 +306,7 @@ func (b *buildRun) tempDir() (string, error) {
 	b.dirMu.Lock()
 	defer b.dirMu.Unlock()
 	if b.dir == "" {
-		d, err := os.MkdirTemp(b.cfg.tempDir, "hopwise-build-*")
+		d, err := makeSpillDir(b.cfg.tempDir, buildDirPrefix)
 		if err != nil {
 			return "", fmt.Errorf("graphidx: temp dir: %w", err)
 		}

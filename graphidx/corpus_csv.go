@@ -420,7 +420,7 @@ func (r *CSVReader) spill() error {
 		return nil
 	}
 	if r.tmpDir == "" {
-		d, err := os.MkdirTemp(r.cfg.tempDir, "hopwise-csv-*")
+		d, err := makeSpillDir(r.cfg.tempDir, csvDirPrefix)
 		if err != nil {
 			return err
 		}

@@ -80,7 +80,8 @@ func tempsOf(t testing.TB, out string) []string {
 // leftover temporary file either fails to open with a corruption error or
 // is a complete copy of the new index — a partial file is never accepted as
 // an index. The next normal run then completes and leaves no temporary
-// file of X behind (WriteFile removes those of dead processes).
+// file of X and no spill directory behind (WriteFile and the builder remove
+// those of dead processes).
 func TestBuildCrashSafety(t *testing.T) {
 	t.Parallel()
 	if testing.Short() {
@@ -219,6 +220,9 @@ func TestBuildCrashSafety(t *testing.T) {
 		t.Fatalf("stale temporary files after a normal run: %v", ts)
 	}
 	spillLeft, _ := os.ReadDir(spill)
+	if len(spillLeft) != 0 {
+		t.Errorf("%d spill entries of killed builds left in --temp-dir after a normal run", len(spillLeft))
+	}
 	t.Logf("%d kills: %d left temp files of --out (all rejected or complete), %d completed before the kill; after the next run: 0 temp files of --out, %d spill dirs left in --temp-dir",
 		kills, leftovers, replaced, len(spillLeft))
 	if leftovers == 0 {
@@ -226,14 +230,12 @@ func TestBuildCrashSafety(t *testing.T) {
 	}
 }
 
-// TestBuildCleansStaleSpillDirs: spill directories (hopwise-build-* in
-// --temp-dir) of a killed build are removed by a later run. Skipped: it
-// fails today (see the skip message); remove the skip once fixed.
+// TestBuildCleansStaleSpillDirs: the spill directory (hopwise-build-<pid>-*
+// in --temp-dir) of a SIGKILLed build is removed by the next run, which
+// leaves nothing of its own either. (Found by TestBuildCrashSafety: before
+// the fix every killed build left its sorted runs behind for good.)
 func TestBuildCleansStaleSpillDirs(t *testing.T) {
 	t.Parallel()
-	t.Skip("known bug in graphidx build (its owner was still active): a SIGKILLed `hopwise build` leaves its " +
-		"hopwise-build-* spill directory (sorted runs) in --temp-dir, and no later run removes it; " +
-		"TestBuildCrashSafety logs the count (5 of 6 kills left one)")
 	if testing.Short() || runtime.GOOS == "windows" {
 		t.Skip("builds the hopwise binary")
 	}
