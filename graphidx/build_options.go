@@ -113,7 +113,9 @@ func (o tempDirOption) applyBuild(c *buildConfig) { c.tempDir = string(o) }
 func (o tempDirOption) applyRead(c *readConfig)   { c.tempDir = string(o) }
 
 // WithTempDir sets the directory for spilled runs (default os.TempDir()).
-// A private subdirectory is created in it and removed when done.
+// A private subdirectory (hopwise-build-<pid>-* or hopwise-csv-<pid>-*) is
+// created in it and removed when done; those left by processes that died
+// (a killed build) are removed when the next one is created.
 func WithTempDir(dir string) SharedOption { return tempDirOption(dir) }
 
 // Build phases reported in ProgressEvent.Phase.
