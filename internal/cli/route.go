@@ -391,7 +391,7 @@ func routeBatch(ctx context.Context, r *router.Router, in io.Reader, name string
 		items = items[:0]
 		for len(items) < chunk {
 			b, tooLong, rerr := readLine(br, o.maxLineBytes)
-			if rerr == io.EOF && b == nil {
+			if rerr == io.EOF && b == nil && !tooLong {
 				eof = true
 				break
 			}

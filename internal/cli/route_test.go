@@ -219,3 +219,25 @@ func itoa(i int) string {
 	b, _ := json.Marshal(i)
 	return string(b)
 }
+
+// TestRouteBatchLongLastLine: a final line longer than --max-line-bytes with
+// no newline after it gets its own error line; it used to be dropped as if
+// the file had ended (found by FuzzRouteBatch in CI's short fuzzing).
+func TestRouteBatchLongLastLine(t *testing.T) {
+	t.Parallel()
+	idx := writeRouteIndex(t)
+	qs := filepath.Join(t.TempDir(), "q.jsonl")
+	input := `{"id":"q1","from":"vent-north","value":"open","to":"bed-tomato"}` + "\n" + strings.Repeat("x", 300)
+	if err := os.WriteFile(qs, []byte(input), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	out, err := routeCLI(t, "route", "--index", idx, "--queries", qs, "--max-line-bytes", "256")
+	var ee *ExitError
+	if !errors.As(err, &ee) || ee.Code != 2 {
+		t.Fatalf("want exit 2, got %v", err)
+	}
+	lines := strings.Split(strings.TrimSuffix(out, "\n"), "\n")
+	if len(lines) != 2 || !strings.Contains(lines[1], "line 2: longer than 256 bytes") {
+		t.Fatalf("want 2 output lines, the second naming the long line 2; got %d:\n%s", len(lines), out)
+	}
+}
