@@ -198,7 +198,9 @@ func Run(ctx context.Context, cfg Config) (*Report, error) {
 	logf("routed %d queries with tracing to %s (%.1fs)", rep.HeldOut.Queries+rep.Supported.Queries, rep.Files.Trace, rep.Timings.Route.Seconds())
 
 	// 5. Plot (the harness's plot of one world).
-	if err := eval.Summarize([]eval.Report{rep.Eval}).WritePlot(rep.Files.Plot); err != nil {
+	sum := eval.Summarize([]eval.Report{rep.Eval})
+	sum.Title = fmt.Sprintf("greenhouse demo (seed %d, %d contexts): MSE vs exact truth by route", cfg.Seed, cfg.Contexts)
+	if err := sum.WritePlot(rep.Files.Plot); err != nil {
 		return nil, fmt.Errorf("demo: %w", err)
 	}
 	rep.Timings.Total = time.Since(start)

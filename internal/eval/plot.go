@@ -35,6 +35,9 @@ func (s Summary) WritePlot(path string) error {
 	for _, m := range s.Mean {
 		p := plot.New()
 		p.Title.Text = fmt.Sprintf("%s: mean over %d world(s)", m.Condition, len(m.Seeds))
+		if s.Title != "" {
+			p.Title.Text = s.Title
+		}
 		p.Y.Label.Text = "MSE vs exact truth"
 		p.Y.Min = 0
 		top := 0.0

@@ -22,6 +22,8 @@ type Summary struct {
 	MSE string `json:"mse"`
 	// CalibrationDef states how calibration is measured.
 	CalibrationDef string `json:"calibration_def"`
+	// Title, when set, replaces the per-condition plot title of WritePlot.
+	Title string `json:"-"`
 }
 
 // Mean averages the reports of one condition: every score and calibration
