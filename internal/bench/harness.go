@@ -707,6 +707,51 @@ func memDelta(f func() error) (mallocs, bytes uint64, err error) {
 	return b.Mallocs - a.Mallocs, b.TotalAlloc - a.TotalAlloc, err
 }
 
+// timeEach decides every query once with call under a per-call wall-clock and
+// thread-CPU timer, on one locked OS thread, and fills ph's latency, CPU,
+// allocation and page-fault figures. It stops early when ctx is done.
+func timeEach[T any](ctx context.Context, qs []router.Query, ph *Phase, what string, call func(context.Context, router.Query) (T, error)) ([]T, error) {
+	out := make([]T, len(qs))
+	ns := make([]float64, len(qs))
+	cpu := make([]float64, len(qs))
+	runtime.LockOSThread()
+	defer runtime.UnlockOSThread()
+	cpuCost, cpuOK := threadCPUOverhead()
+	min0, maj0 := threadFaults()
+	mallocs, bytes, err := memDelta(func() error {
+		for i, q := range qs {
+			if err := ctx.Err(); err != nil {
+				return err
+			}
+			c0 := threadCPU()
+			t := time.Now()
+			r, err := call(ctx, q)
+			ns[i] = float64(time.Since(t))
+			cpu[i] = float64(threadCPU()-c0) - cpuCost
+			if err != nil {
+				return fmt.Errorf("bench: %s %+v: %w", what, q, err)
+			}
+			out[i] = r
+		}
+		return nil
+	})
+	if err != nil {
+		return nil, err
+	}
+	min1, maj1 := threadFaults()
+	n := float64(len(qs))
+	ph.MinorFaults = float64(min1-min0) / n
+	ph.MajorFaults = float64(maj1-maj0) / n
+	ph.Latency = summarize(ns)
+	if cpuOK {
+		c := summarize(cpu)
+		ph.CPU = &c
+	}
+	ph.AllocsPerOp = float64(mallocs) / n
+	ph.BytesPerOp = float64(bytes) / n
+	return out, nil
+}
+
 // measureRouter warms up on the first warm queries, then decides every
 // query once with a per-call timer.
 func measureRouter(ctx context.Context, rt *router.Router, qs []router.Query, warm int) ([]router.Decision, Phase, error) {
@@ -716,40 +761,10 @@ func measureRouter(ctx context.Context, rt *router.Router, qs []router.Query, wa
 			return nil, ph, err
 		}
 	}
-	ds := make([]router.Decision, len(qs))
-	ns := make([]float64, len(qs))
-	cpu := make([]float64, len(qs))
-	runtime.LockOSThread()
-	defer runtime.UnlockOSThread()
-	cpuCost, cpuOK := threadCPUOverhead()
-	min0, maj0 := threadFaults()
-	mallocs, bytes, err := memDelta(func() error {
-		for i, q := range qs {
-			c0 := threadCPU()
-			t := time.Now()
-			d, err := rt.Decide(ctx, q)
-			ns[i] = float64(time.Since(t))
-			cpu[i] = float64(threadCPU()-c0) - cpuCost
-			if err != nil {
-				return fmt.Errorf("bench: Decide %+v: %w", q, err)
-			}
-			ds[i] = d
-		}
-		return nil
-	})
+	ds, err := timeEach(ctx, qs, &ph, "Decide", rt.Decide)
 	if err != nil {
 		return nil, ph, err
 	}
-	min1, maj1 := threadFaults()
-	ph.MinorFaults = float64(min1-min0) / float64(len(qs))
-	ph.MajorFaults = float64(maj1-maj0) / float64(len(qs))
-	ph.Latency = summarize(ns)
-	if cpuOK {
-		c := summarize(cpu)
-		ph.CPU = &c
-	}
-	ph.AllocsPerOp = float64(mallocs) / float64(len(qs))
-	ph.BytesPerOp = float64(bytes) / float64(len(qs))
 	var tr, ch, cm int
 	for _, d := range ds {
 		if d.Truncated {
@@ -890,45 +905,16 @@ func measureThroughput(ctx context.Context, rt *router.Router, qs []router.Query
 
 func measureBaseline(ctx context.Context, decide func(context.Context, router.Query) (Result, error), qs []router.Query) ([]Result, Phase, error) {
 	var ph Phase
-	res := make([]Result, len(qs))
-	ns := make([]float64, len(qs))
-	cpu := make([]float64, len(qs))
-	runtime.LockOSThread()
-	defer runtime.UnlockOSThread()
-	cpuCost, cpuOK := threadCPUOverhead()
 	warm := min(len(qs), 50)
 	for _, q := range qs[:warm] {
 		if _, err := decide(ctx, q); err != nil {
 			return nil, ph, err
 		}
 	}
-	mallocs, bytes, err := memDelta(func() error {
-		for i, q := range qs {
-			if err := ctx.Err(); err != nil {
-				return err
-			}
-			c0 := threadCPU()
-			t := time.Now()
-			r, err := decide(ctx, q)
-			ns[i] = float64(time.Since(t))
-			cpu[i] = float64(threadCPU()-c0) - cpuCost
-			if err != nil {
-				return fmt.Errorf("bench: baseline %+v: %w", q, err)
-			}
-			res[i] = r
-		}
-		return nil
-	})
+	res, err := timeEach(ctx, qs, &ph, "baseline", decide)
 	if err != nil {
 		return nil, ph, err
 	}
-	ph.Latency = summarize(ns)
-	if cpuOK {
-		c := summarize(cpu)
-		ph.CPU = &c
-	}
-	ph.AllocsPerOp = float64(mallocs) / float64(len(qs))
-	ph.BytesPerOp = float64(bytes) / float64(len(qs))
 	var tr, ch, cm int
 	for _, r := range res {
 		if r.Truncated {
