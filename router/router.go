@@ -334,11 +334,21 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 		bestEst.ok, bestEst.err, bestEst.score = true, sc.inc.err, sc.inc.score
 		sc.dist = append(sc.dist[:0], sc.incDist...)
 	}
+	// The deadline is polled every scorePoll exact scores, so a large
+	// candidate limit k cannot outlast it: the chains left unscored are
+	// reported as a deadline cut, and the best scored so far stands.
+	scored := 0
 	for i := range sc.heap {
 		cd := &sc.heap[i]
 		if bestEst.ok && (sc.bound(int(cd.m)) <= bestEst.score || (sc.inc.ok && cd.m == sc.inc.c.m && cd.b == sc.inc.c.b)) {
 			continue
 		}
+		if scored%scorePoll == scorePoll-1 && ctxDone(ctx) {
+			res.truncated, res.deadline = true, true
+			res.cut |= CutDeadline
+			break
+		}
+		scored++
 		sc.path = append(sc.path[:0], cd.b[:cd.m]...)
 		est, err := st.model.Chain(sc.ws, g, s, u, sc.path, t)
 		if err != nil {
@@ -402,6 +412,20 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 		c.score = bestEst.score
 	}
 	return c, !res.deadline, nil, nil
+}
+
+// scorePoll is how many exact chain scores stage 2 runs between two polls
+// of the context (one score is O(m·K³), about a microsecond).
+const scorePoll = 16
+
+// ctxDone reports whether ctx is done, without blocking.
+func ctxDone(ctx context.Context) bool {
+	select {
+	case <-ctx.Done():
+		return true
+	default:
+		return false
+	}
 }
 
 // cloneStrings copies the value labels and the bridge names into one

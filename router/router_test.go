@@ -777,3 +777,61 @@ func TestDeadlineTruncates(t *testing.T) {
 		t.Fatal("a deadline-truncated decision was cached")
 	}
 }
+
+// cancelModel wraps a model and cancels a context at its n-th Chain call.
+type cancelModel struct {
+	scorer.Model
+	calls  atomic.Int64
+	at     int64
+	cancel context.CancelFunc
+}
+
+func (m *cancelModel) Chain(ws *scorer.Workspace, st scorer.Stats, s graphidx.EntityID, u int, b []graphidx.EntityID, t graphidx.EntityID) (scorer.Estimate, error) {
+	if m.calls.Add(1) == m.at {
+		m.cancel()
+	}
+	return m.Model.Chain(ws, st, s, u, b, t)
+}
+
+// TestDeadlineBoundsScoring: the exact scoring of the k candidates (stage
+// 2) stops within scorePoll scores of a cancellation, so a large k cannot
+// outlast a deadline (CI once saw a 20 ms deadline return after 2.9 s when
+// only the generation phase polled the context).
+func TestDeadlineBoundsScoring(t *testing.T) {
+	t.Parallel()
+	b := newMemBuilder(1)
+	s := b.entity("sensor-a", "dry", "wet")
+	tt := b.entity("vent-b", "closed", "open")
+	const leaves = 400
+	for i := range leaves {
+		z := b.entity(fmt.Sprintf("bed-%03d", i), "low", "high")
+		n := uint32(5 + i%37)
+		b.pair(s, z, 3*n, n, n, 2*n)
+		b.pair(z, tt, 2*n, n+uint32(i%5), n, 3*n)
+	}
+	g := b.build()
+	bayes, err := scorer.NewBayes()
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	defer cancel()
+	const at = 5
+	m := &cancelModel{Model: bayes, at: at, cancel: cancel}
+	r := mustNew(t, nonClosing{g}, WithModel(m), WithMaxBridges(1), WithMaxCandidates(1024),
+		WithExpansionBudget(1<<24), WithCacheSize(0))
+	d, err := r.Decide(ctx, Query{From: "sensor-a", Value: "dry", To: "vent-b"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	calls := m.calls.Load()
+	if calls < at {
+		t.Fatalf("only %d chain scores; the test needs more than %d candidates", calls, at)
+	}
+	if calls > at+scorePoll {
+		t.Fatalf("%d chain scores after a cancellation at score %d (poll every %d)", calls-at, at, scorePoll)
+	}
+	if !d.Truncated || d.Cut&CutDeadline == 0 || d.Chain == nil {
+		t.Fatalf("want a deadline-truncated decision with the best chain so far, got truncated=%v cut=%q chain=%v", d.Truncated, d.Cut, d.Chain)
+	}
+}
