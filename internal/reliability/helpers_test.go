@@ -146,3 +146,35 @@ func percentile(ds []time.Duration, q float64) time.Duration {
 var cleanupDirs []string
 
 func osMkdirTemp(pattern string) (string, error) { return os.MkdirTemp("", pattern) }
+
+// measured is the cost of one call: wall time and, where the thread clock
+// works, the CPU time of the calling thread.
+type measured struct {
+	wall, cpu time.Duration
+	cpuOK     bool
+}
+
+// work is the figure a bound on work is checked against: the thread's CPU
+// time when known, else wall time. A search that ignores its budget or its
+// deadline burns CPU; a goroutine that merely waited for a core on a loaded
+// CI machine (CI once saw a 5 ms query take 4.7 s of wall time under -race
+// next to other test binaries) does not.
+func (m measured) work() time.Duration {
+	if m.cpuOK {
+		return m.cpu
+	}
+	return m.wall
+}
+
+// measure runs f on a locked OS thread and reports its wall and thread CPU
+// time.
+func measure(f func()) measured {
+	runtime.LockOSThread()
+	defer runtime.UnlockOSThread()
+	c0, ok0 := threadCPU()
+	start := time.Now()
+	f()
+	wall := time.Since(start)
+	c1, ok1 := threadCPU()
+	return measured{wall: wall, cpu: c1 - c0, cpuOK: ok0 && ok1}
+}
