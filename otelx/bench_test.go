@@ -8,9 +8,11 @@ import (
 	"testing"
 	"time"
 
+	"go.opentelemetry.io/otel/attribute"
 	mnoop "go.opentelemetry.io/otel/metric/noop"
 	sdkmetric "go.opentelemetry.io/otel/sdk/metric"
 	sdktrace "go.opentelemetry.io/otel/sdk/trace"
+	"go.opentelemetry.io/otel/trace"
 	tnoop "go.opentelemetry.io/otel/trace/noop"
 
 	"github.com/hopwise/hopwise/otelx/otlpfile"
@@ -278,4 +280,75 @@ func BenchmarkReadTraces(b *testing.B) {
 			b.Fatalf("%v %+v", err, lg.Stats)
 		}
 	}
+}
+
+// BenchmarkSpanAttrCount measures the OpenTelemetry SDK's own cost of one
+// span through a batch processor carrying n double attributes, set in one
+// SetAttributes call or passed to Start: what each attribute of a decision
+// span costs, and the step past 8 attributes (where the SDK's end-of-span
+// de-duplication allocates a full hash table instead of one map group).
+func BenchmarkSpanAttrCount(b *testing.B) {
+	tp := sdktrace.NewTracerProvider(sdktrace.WithBatcher(discard{}), sdktrace.WithSampler(sdktrace.AlwaysSample()))
+	defer tp.Shutdown(context.Background())
+	tr := tp.Tracer("attr-count")
+	kvs := make([]attribute.KeyValue, 20)
+	for i := range kvs {
+		kvs[i] = attribute.Float64(fmt.Sprintf("hopwise.bench.k%02d", i), float64(i))
+	}
+	ctx := context.Background()
+	for _, n := range []int{0, 4, 8, 9, 12, 16, 19} {
+		b.Run(fmt.Sprintf("set/n=%d", n), func(b *testing.B) {
+			b.ReportAllocs()
+			for b.Loop() {
+				_, sp := tr.Start(ctx, SpanDecide)
+				sp.SetAttributes(kvs[:n]...)
+				sp.End()
+			}
+			_, sp := tr.Start(ctx, SpanDecide)
+			sp.SetAttributes(kvs[:n]...)
+			sp.End()
+			if got := len(sp.(sdktrace.ReadOnlySpan).Attributes()); got != n {
+				b.Fatalf("span kept %d attributes, want %d", got, n)
+			}
+		})
+		b.Run(fmt.Sprintf("start/n=%d", n), func(b *testing.B) {
+			b.ReportAllocs()
+			for b.Loop() {
+				_, sp := tr.Start(ctx, SpanDecide, trace.WithAttributes(kvs[:n]...))
+				sp.End()
+			}
+		})
+	}
+}
+
+// BenchmarkHashEntity: an entity pseudonym computed (HMAC-SHA256 of a
+// 12-byte name) against one served from the cache.
+func BenchmarkHashEntity(b *testing.B) {
+	in, err := New(WithTracerProvider(tnoop.NewTracerProvider()), WithMeterProvider(mnoop.NewMeterProvider()),
+		WithEntityHashKey([]byte("greenhouse-bench-key")))
+	if err != nil {
+		b.Fatal(err)
+	}
+	const name = "bed-tomato-7"
+	want := in.hmacHex(name)
+	b.Run("hmac", func(b *testing.B) {
+		b.ReportAllocs()
+		var s string
+		for b.Loop() {
+			s = in.hmacHex(name)
+		}
+		if s != want {
+			b.Fatal(s)
+		}
+	})
+	b.Run("cached", func(b *testing.B) {
+		b.ReportAllocs()
+		var s string
+		for b.Loop() {
+			s = in.HashEntity(name)
+		}
+		if s != want {
+			b.Fatal(s)
+		}
+	})
 }

@@ -9,6 +9,7 @@ import (
 	"fmt"
 	"hash"
 	"math"
+	"reflect"
 	"strconv"
 	"sync"
 	"sync/atomic"
@@ -100,18 +101,22 @@ func WithEntityHashKey(key []byte) Option {
 // WithSamplingRatio records r, the trace sampling ratio configured in the
 // tracer provider's sampler, on every span (hopwise.sampling.ratio), so
 // readers can weight each decision by 1/r. The SDK samplers do not record
-// it themselves. r must be in (0, 1]; default 1.
+// it themselves. r must be in (0, 1]. Without this option spans carry no
+// ratio and readers take 1.
 func WithSamplingRatio(r float64) Option {
 	return optionFunc(func(c *config) { c.ratio, c.ratioSet = r, true })
 }
 
 // WithCompactSpans records on decision spans only the attributes that
-// `hopwise tune` and `hopwise ab` read: unit key, mode, gain (and score
-// when it differs), reason, propensity, exploration, direct error, chain
-// error and hops, arm and sampling ratio — no entity names, bridges,
-// support, truncation, cache or generation. The SDK's cost grows with the
-// attribute count (and a string slice is dear), so this roughly halves
-// the per-decision cost of a recording span.
+// `hopwise tune` and `hopwise ab` read: mode, gain, reason, propensity,
+// the expected error of the chosen mode (direct or chain), the hop count
+// when a chain was found, unit key, arm, and when they apply the sampling
+// ratio, exploration and score — no entity names, bridges, support,
+// truncation, cache or generation. The SDK's cost grows with the attribute
+// count, and more steeply past 8 attributes (its end-of-span de-duplication
+// then allocates a full hash table; measured with OpenTelemetry Go SDK
+// v1.47 in BenchmarkSpanAttrCount), so a typical compact span stays at 8
+// or fewer and costs well under half the default span.
 func WithCompactSpans() Option { return optionFunc(func(c *config) { c.compact = true }) }
 
 // Outcome is what the gateway observed for a routed query.
@@ -126,17 +131,27 @@ type Outcome struct {
 // concurrent use.
 type Instrumentation struct {
 	tracer  trace.Tracer // nil when the provider is the otel noop provider
-	startOp []trace.SpanStartOption
 	genStr  atomic.Pointer[genCache]
 	hashKey []byte
 	hashers sync.Pool
+	hashes  hashCache
 	ratio   attribute.KeyValue
-	hashed  bool
-	compact bool
+	// ratioSet: WithSamplingRatio was given, so spans carry the ratio
+	// (readers take 1 when it is absent).
+	ratioSet bool
+	hashed   bool
+	compact  bool
 	// metricsOff: the meter provider is the otel noop provider, so the
 	// Enabled checks are skipped too.
 	metricsOff bool
 	off        bool // tracer nil and metricsOff
+	// globalTP and globalMP are the otel global delegating providers,
+	// captured at New while no SDK had been installed behind them (nil
+	// otherwise). Until otel.SetTracerProvider (SetMeterProvider) installs
+	// one, the global ones return the captured value and record nothing,
+	// so a decision skips the span (the metrics) after one atomic load.
+	globalTP trace.TracerProvider
+	globalMP metric.MeterProvider
 
 	decisions metric.Int64Counter
 	latency   metric.Float64Histogram
@@ -179,16 +194,20 @@ func New(opts ...Option) (*Instrumentation, error) {
 		return nil, fmt.Errorf("%w: WithEntityHashKey: key of %d bytes, want at least %d", ErrBadOption, len(cfg.hashKey), MinHashKeyLen)
 	}
 	in := &Instrumentation{
-		startOp:  []trace.SpanStartOption{trace.WithSpanKind(trace.SpanKindInternal)},
 		ratio:    attribute.Float64(KeySamplingRatio, cfg.ratio),
+		ratioSet: cfg.ratioSet,
 		ratioVal: cfg.ratio,
 		compact:  cfg.compact,
 	}
 	// The otel noop provider records nothing by contract, so its spans are
 	// skipped outright (no context allocation per decision). Any other
-	// provider, including the global delegate, gets real Start calls.
+	// provider gets real Start calls; the global delegate only once an SDK
+	// is installed behind it.
 	if _, isNoop := cfg.tp.(tnoop.TracerProvider); !isNoop {
 		in.tracer = cfg.tp.Tracer(ScopeName, trace.WithInstrumentationVersion(Version))
+		if isGlobalDelegate(cfg.tp) {
+			in.globalTP = cfg.tp
+		}
 	}
 	if cfg.hashSet {
 		in.hashed = true
@@ -198,6 +217,8 @@ func New(opts ...Option) (*Instrumentation, error) {
 	// Likewise the noop meter provider: its instruments are never enabled.
 	if _, isNoop := cfg.mp.(mnoop.MeterProvider); isNoop {
 		in.metricsOff = true
+	} else if isGlobalDelegate(cfg.mp) {
+		in.globalMP = cfg.mp
 	}
 	meter := cfg.mp.Meter(ScopeName, metric.WithInstrumentationVersion(Version))
 	var err, e error
@@ -275,6 +296,16 @@ func (in *Instrumentation) HashEntity(name string) string {
 	if !in.hashed {
 		return name
 	}
+	if s, ok := in.hashes.get(name); ok {
+		return s
+	}
+	s := in.hmacHex(name)
+	in.hashes.put(name, s)
+	return s
+}
+
+// hmacHex computes the truncated HMAC-SHA256 of name in hex.
+func (in *Instrumentation) hmacHex(name string) string {
 	h := in.hashers.Get().(hash.Hash)
 	h.Reset()
 	h.Write([]byte(name))
@@ -288,7 +319,9 @@ func (in *Instrumentation) HashEntity(name string) string {
 // decision metrics. Span attributes are built only when the span is
 // recording, the latency is measured only when a span records or the
 // latency histogram is enabled, and each metric call is guarded by its
-// instrument's Enabled.
+// instrument's Enabled. With the otel noop providers, or the otel globals
+// before an SDK is installed behind them, it calls r.Decide and nothing
+// else.
 func (in *Instrumentation) Decide(ctx context.Context, r *router.Router, q router.Query) (router.Decision, error) {
 	if in.off {
 		return r.Decide(ctx, q) // both providers are the otel noop ones
@@ -296,16 +329,31 @@ func (in *Instrumentation) Decide(ctx context.Context, r *router.Router, q route
 	return in.decide(ctx, r, q)
 }
 
-// decide is Decide's instrumented path; Decide stays small enough to be
-// inlined, so the noop case costs one branch.
+// tracing reports whether decisions get spans now: the tracer is not the
+// noop one, and not the otel global one with no SDK behind it yet.
+func (in *Instrumentation) tracing() bool {
+	return in.tracer != nil && (in.globalTP == nil || otel.GetTracerProvider() != in.globalTP)
+}
+
+// metering is tracing's counterpart for the meter provider.
+func (in *Instrumentation) metering() bool {
+	return !in.metricsOff && (in.globalMP == nil || otel.GetMeterProvider() != in.globalMP)
+}
+
+// decide is Decide's instrumented path; Decide stays small, so the noop
+// case costs one branch and a call.
 func (in *Instrumentation) decide(ctx context.Context, r *router.Router, q router.Query) (router.Decision, error) {
+	tracing, metering := in.tracing(), in.metering()
+	if !tracing && !metering {
+		return r.Decide(ctx, q)
+	}
 	var span trace.Span
 	recording := false
-	if in.tracer != nil {
-		ctx, span = in.tracer.Start(ctx, SpanDecide, in.startOp...)
+	if tracing {
+		ctx, span = in.tracer.Start(ctx, SpanDecide)
 		recording = span.IsRecording()
 	}
-	timed := recording || (!in.metricsOff && in.latency.Enabled(ctx))
+	timed := recording || (metering && in.latency.Enabled(ctx))
 	var start time.Time
 	if timed {
 		start = time.Now()
@@ -316,27 +364,34 @@ func (in *Instrumentation) decide(ctx context.Context, r *router.Router, q route
 		elapsed = time.Since(start)
 	}
 	if recording {
+		bp := attrPool.Get().(*[]attribute.KeyValue)
+		var attrs []attribute.KeyValue
 		if err != nil {
 			serr := in.spanError(err) // no entity names in clear when hashing
 			span.RecordError(serr)
 			span.SetStatus(codes.Error, serr.Error())
-			span.SetAttributes(in.queryAttrs(nil, q)...)
+			attrs = in.queryAttrs((*bp)[:0], q)
 		} else {
-			bp := attrPool.Get().(*[]attribute.KeyValue)
-			attrs := in.decisionAttrs((*bp)[:0], q, &d)
-			span.SetAttributes(attrs...) // the SDK copies the values
-			clear(attrs)
-			*bp = attrs[:0]
-			attrPool.Put(bp)
+			attrs = in.decisionAttrs((*bp)[:0], q, &d)
 		}
+		// One call: the SDK grows its attribute slice once and copies the
+		// values, so the pooled slice can be reused.
+		span.SetAttributes(attrs...)
+		clear(attrs)
+		*bp = attrs[:0]
+		attrPool.Put(bp)
 	}
 	if span != nil {
 		span.End()
 	}
-
-	if in.metricsOff {
-		return d, err
+	if metering {
+		in.measure(ctx, &d, err, timed, elapsed)
 	}
+	return d, err
+}
+
+// measure records the decision metrics, each guarded by Enabled.
+func (in *Instrumentation) measure(ctx context.Context, d *router.Decision, err error, timed bool, elapsed time.Duration) {
 	mode := modeError
 	if err == nil {
 		mode = int(d.Mode)
@@ -344,25 +399,26 @@ func (in *Instrumentation) decide(ctx context.Context, r *router.Router, q route
 			mode = modeError
 		}
 	}
+	set := in.set(mode, d.Arm)
 	if in.decisions.Enabled(ctx) {
-		in.decisions.Add(ctx, 1, in.set(mode, d.Arm).add...)
+		in.decisions.Add(ctx, 1, set.add...)
 	}
 	if timed && in.latency.Enabled(ctx) {
-		in.latency.Record(ctx, elapsed.Seconds(), in.set(mode, d.Arm).rec...)
+		in.latency.Record(ctx, elapsed.Seconds(), set.rec...)
 	}
-	if err == nil {
-		if in.cache.Enabled(ctx) {
-			opts := in.missOpts
-			if d.Cached {
-				opts = in.hitOpts
-			}
-			in.cache.Add(ctx, 1, opts...)
-		}
-		if d.Chain != nil && in.gain.Enabled(ctx) {
-			in.gain.Record(ctx, d.Gain, in.set(mode, d.Arm).rec...)
-		}
+	if err != nil {
+		return
 	}
-	return d, err
+	if in.cache.Enabled(ctx) {
+		opts := in.missOpts
+		if d.Cached {
+			opts = in.hitOpts
+		}
+		in.cache.Add(ctx, 1, opts...)
+	}
+	if d.Chain != nil && in.gain.Enabled(ctx) {
+		in.gain.Record(ctx, d.Gain, set.rec...)
+	}
 }
 
 func (in *Instrumentation) queryAttrs(attrs []attribute.KeyValue, q router.Query) []attribute.KeyValue {
@@ -370,38 +426,65 @@ func (in *Instrumentation) queryAttrs(attrs []attribute.KeyValue, q router.Query
 		attribute.String(KeyQueryFrom, in.HashEntity(q.From)),
 		attribute.String(KeyQueryValue, in.HashEntity(q.Value)),
 		attribute.String(KeyQueryTo, in.HashEntity(q.To)),
-		in.ratio,
 	)
+	if in.ratioSet {
+		attrs = append(attrs, in.ratio)
+	}
 	if q.Key != "" {
 		attrs = append(attrs, attribute.String(KeyQueryKey, q.Key))
 	}
 	if in.hashed {
-		attrs = append(attrs, attribute.String(KeyEntityHash, "hmac-sha256"))
+		attrs = append(attrs, entityHashAttr)
 	}
 	return attrs
+}
+
+var (
+	entityHashAttr = attribute.String(KeyEntityHash, "hmac-sha256")
+	// Enum-like attributes, built once.
+	modeAttrs     = [2]attribute.KeyValue{attribute.String(KeyRouteMode, "direct"), attribute.String(KeyRouteMode, "chain")}
+	truncatedAttr = attribute.Bool(KeyRouteTruncated, true)
+	exploredAttr  = attribute.Bool(KeyRouteExplored, true)
+	cachedAttr    = attribute.Bool(KeyRouteCached, true)
+)
+
+func modeAttr(m router.Mode) attribute.KeyValue {
+	if int(m) < len(modeAttrs) {
+		return modeAttrs[m]
+	}
+	return attribute.String(KeyRouteMode, m.String())
 }
 
 var attrPool = sync.Pool{New: func() any { s := make([]attribute.KeyValue, 0, 32); return &s }}
 
 // decisionAttrs appends the span attributes of a decision (DESIGN.md §6)
-// to attrs.
+// to attrs. The flags truncated, explored and cached are recorded only
+// when true, the sampling ratio only when WithSamplingRatio was given, and
+// the score only when it differs from the gain: readers take false, 1 and
+// the gain when they are absent, and every attribute costs the SDK time.
 func (in *Instrumentation) decisionAttrs(attrs []attribute.KeyValue, q router.Query, d *router.Decision) []attribute.KeyValue {
 	if in.compact {
 		return in.compactAttrs(attrs, q, d)
 	}
 	attrs = in.queryAttrs(attrs, q)
 	attrs = append(attrs,
-		attribute.String(KeyRouteMode, d.Mode.String()),
+		modeAttr(d.Mode),
 		attribute.Float64(KeyRouteGain, d.Gain),
 		attribute.String(KeyRouteReason, d.Reason.Code),
-		attribute.Bool(KeyRouteTruncated, d.Truncated),
 		attribute.Float64(KeyRoutePropensity, d.Propensity),
-		attribute.Bool(KeyRouteExplored, d.Explored),
-		attribute.Bool(KeyRouteCached, d.Cached),
 		attribute.Float64(KeyDirectErr, d.Direct.Err),
 		attribute.Int64(KeyDirectSupport, clampInt64(d.Direct.Support)),
 		attribute.String(KeyIndexGeneration, in.genString(d.Generation)),
 	)
+	if d.Truncated {
+		attrs = append(attrs, truncatedAttr)
+	}
+	if d.Explored {
+		attrs = append(attrs, exploredAttr)
+	}
+	if d.Cached {
+		attrs = append(attrs, cachedAttr)
+	}
 	if d.Score != d.Gain { // utility scoring; readers default score to gain
 		attrs = append(attrs, attribute.Float64(KeyRouteScore, d.Score))
 	}
@@ -426,33 +509,39 @@ func (in *Instrumentation) decisionAttrs(attrs []attribute.KeyValue, q router.Qu
 }
 
 // compactAttrs is the WithCompactSpans set: what tuning and A/B analysis
-// read, and nothing else.
+// read, and nothing else. The expected error is recorded for the chosen
+// mode only (direct error in direct mode, chain error in chain mode), and
+// the hop count marks that a chain was available; so a typical span has
+// at most 8 attributes (see WithCompactSpans).
 func (in *Instrumentation) compactAttrs(attrs []attribute.KeyValue, q router.Query, d *router.Decision) []attribute.KeyValue {
 	attrs = append(attrs,
-		attribute.String(KeyRouteMode, d.Mode.String()),
+		modeAttr(d.Mode),
 		attribute.Float64(KeyRouteGain, d.Gain),
 		attribute.String(KeyRouteReason, d.Reason.Code),
 		attribute.Float64(KeyRoutePropensity, d.Propensity),
-		attribute.Float64(KeyDirectErr, d.Direct.Err),
-		in.ratio,
 	)
+	if d.Mode == router.ModeChain && d.Chain != nil {
+		attrs = append(attrs, attribute.Float64(KeyChainErr, d.Chain.Err))
+	} else {
+		attrs = append(attrs, attribute.Float64(KeyDirectErr, d.Direct.Err))
+	}
+	if d.Chain != nil {
+		attrs = append(attrs, attribute.Int(KeyChainHops, len(d.Chain.Bridges)))
+	}
 	if q.Key != "" {
 		attrs = append(attrs, attribute.String(KeyQueryKey, q.Key))
 	}
+	if d.Arm != "" {
+		attrs = append(attrs, attribute.String(KeyABArm, d.Arm))
+	}
+	if in.ratioSet {
+		attrs = append(attrs, in.ratio)
+	}
 	if d.Explored {
-		attrs = append(attrs, attribute.Bool(KeyRouteExplored, true))
+		attrs = append(attrs, exploredAttr)
 	}
 	if d.Score != d.Gain {
 		attrs = append(attrs, attribute.Float64(KeyRouteScore, d.Score))
-	}
-	if d.Chain != nil {
-		attrs = append(attrs,
-			attribute.Float64(KeyChainErr, d.Chain.Err),
-			attribute.Int(KeyChainHops, len(d.Chain.Bridges)),
-		)
-	}
-	if d.Arm != "" {
-		attrs = append(attrs, attribute.String(KeyABArm, d.Arm))
 	}
 	return attrs
 }
@@ -511,8 +600,8 @@ func (in *Instrumentation) RecordOutcome(ctx context.Context, d router.Decision,
 		return fmt.Errorf("%w: negative latency %v", ErrBadOutcome, o.Latency)
 	}
 	var span trace.Span
-	if in.tracer != nil {
-		_, span = in.tracer.Start(ctx, SpanOutcome, in.startOp...)
+	if in.tracing() {
+		_, span = in.tracer.Start(ctx, SpanOutcome)
 	}
 	if span != nil && span.IsRecording() {
 		attrs := []attribute.KeyValue{
@@ -523,7 +612,9 @@ func (in *Instrumentation) RecordOutcome(ctx context.Context, d router.Decision,
 			attribute.Float64(KeyOutcomeLatencyMs, float64(o.Latency)/float64(time.Millisecond)),
 			attribute.String(KeyRouteMode, d.Mode.String()),
 			attribute.String(KeyIndexGeneration, in.genString(d.Generation)),
-			in.ratio,
+		}
+		if in.ratioSet {
+			attrs = append(attrs, in.ratio)
 		}
 		if d.Arm != "" {
 			attrs = append(attrs, attribute.String(KeyABArm, d.Arm))
@@ -533,7 +624,7 @@ func (in *Instrumentation) RecordOutcome(ctx context.Context, d router.Decision,
 	if span != nil {
 		span.End()
 	}
-	if !in.metricsOff && in.outcome.Enabled(ctx) {
+	if in.metering() && in.outcome.Enabled(ctx) {
 		m := int(d.Mode)
 		if m > 1 {
 			m = modeError
@@ -545,3 +636,15 @@ func (in *Instrumentation) RecordOutcome(ctx context.Context, d router.Decision,
 
 // SamplingRatio returns the ratio recorded on spans.
 func (in *Instrumentation) SamplingRatio() float64 { return in.ratioVal }
+
+// globalPkg is the package of the otel global delegating providers.
+const globalPkg = "go.opentelemetry.io/otel/internal/global"
+
+// isGlobalDelegate reports whether p is one of otel's global delegating
+// providers (what otel.GetTracerProvider and GetMeterProvider return before
+// an SDK is installed). Should otel move them, this reports false and the
+// instrumentation just takes its ordinary path.
+func isGlobalDelegate(p any) bool {
+	t := reflect.TypeOf(p)
+	return t != nil && t.Kind() == reflect.Pointer && t.Elem().PkgPath() == globalPkg
+}

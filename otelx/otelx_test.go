@@ -88,9 +88,7 @@ func TestDecideSpanAndMetrics(t *testing.T) {
 		KeyRouteMode:       d.Mode.String(),
 		KeyRouteGain:       d.Gain,
 		KeyRouteReason:     d.Reason.Code,
-		KeyRouteTruncated:  d.Truncated,
 		KeyRoutePropensity: d.Propensity,
-		KeyRouteCached:     false,
 		KeyDirectErr:       d.Direct.Err,
 		KeyDirectSupport:   int64(d.Direct.Support),
 		KeyChainErr:        d.Chain.Err,
@@ -107,6 +105,12 @@ func TestDecideSpanAndMetrics(t *testing.T) {
 		}
 		if got := v.AsInterface(); got != want {
 			t.Errorf("attribute %s = %v (%T), want %v (%T)", k, got, got, want, want)
+		}
+	}
+	// Flags are recorded only when true (readers take false).
+	for k, on := range map[attribute.Key]bool{KeyRouteTruncated: d.Truncated, KeyRouteExplored: d.Explored, KeyRouteCached: false} {
+		if v, ok := a[k]; ok != on || (ok && !v.AsBool()) {
+			t.Errorf("attribute %s = %v (present %v), want present only as true: %v", k, v.AsInterface(), ok, on)
 		}
 	}
 	if _, ok := a[KeyRouteScore]; ok != (d.Score != d.Gain) {
@@ -334,7 +338,7 @@ func TestTraceFileRoundTrip(t *testing.T) {
 	for _, j := range joined {
 		byKey[j.Decision.Key] = j
 	}
-	explored := 0
+	explored, cached := 0, 0
 	for i, m := range want {
 		j, ok := byKey[fmt.Sprintf("unit-%02d", i)]
 		if !ok {
@@ -344,7 +348,7 @@ func TestTraceFileRoundTrip(t *testing.T) {
 		if dr.Mode != m.d.Mode.String() || dr.Gain != m.d.Gain || dr.Score != m.d.Score || dr.Err != m.d.Err || dr.Arm != m.d.Arm ||
 			dr.Propensity != m.d.Propensity || dr.Explored != m.d.Explored || dr.Reason != m.d.Reason.Code ||
 			dr.DirectErr != m.d.Direct.Err || dr.DirectSupport != m.d.Direct.Support || dr.SamplingRatio != 0.25 ||
-			dr.HasChain != (m.d.Chain != nil) {
+			dr.HasChain != (m.d.Chain != nil) || dr.Cached != m.d.Cached || dr.Truncated != m.d.Truncated {
 			t.Errorf("unit %d: record %+v\n decision %+v", i, dr, m.d)
 		}
 		if m.d.Chain != nil && (dr.ChainErr != m.d.Chain.Err || dr.ChainHops != len(m.d.Chain.Bridges) || strings.Join(dr.Bridges, ",") != strings.Join(m.d.Chain.Bridges, ",")) {
@@ -360,8 +364,16 @@ func TestTraceFileRoundTrip(t *testing.T) {
 		if dr.Explored {
 			explored++
 		}
+		if dr.Cached {
+			cached++
+		}
 	}
-	t.Logf("explored %d of 40", explored)
+	// The flags are written only when true: both values must occur for
+	// the check above to cover them.
+	t.Logf("explored %d, cached %d of 40", explored, cached)
+	if explored == 0 || explored == 40 || cached == 0 || cached == 40 {
+		t.Errorf("explored %d, cached %d of 40: want both values of each flag", explored, cached)
+	}
 }
 
 // A decision span line written by hand to the OTLP/JSON spec reads back
@@ -486,8 +498,25 @@ func TestJoinOrderAndCounts(t *testing.T) {
 	}
 }
 
+// TestCompactSpans: the compact set holds exactly what tune and ab read,
+// the error of the chosen mode only, and reads back into the same record
+// fields (HasChain from the hop count when the chain was not taken). τ = -1
+// takes every chain, τ = 2 none (a gain never exceeds 1).
 func TestCompactSpans(t *testing.T) {
 	t.Parallel()
+	for _, c := range []struct {
+		name string
+		tau  float64
+		mode router.Mode
+	}{{"chain", -1, router.ModeChain}, {"direct", 2, router.ModeDirect}} {
+		t.Run(c.name, func(t *testing.T) {
+			t.Parallel()
+			compactCase(t, c.tau, c.mode)
+		})
+	}
+}
+
+func compactCase(t *testing.T, tau float64, mode router.Mode) {
 	ctx := context.Background()
 	path := filepath.Join(t.TempDir(), "compact.jsonl")
 	exp, err := otlpfile.NewExporter(ctx, path)
@@ -500,9 +529,9 @@ func TestCompactSpans(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	r := newRouter(t, router.WithArms(router.ArmWeight{Arm: router.ArmRouted, Weight: 1}), router.WithExploration(0.3, "c"))
+	r := newRouter(t, router.WithArms(router.ArmWeight{Arm: router.ArmRouted, Weight: 1}), router.WithGainThreshold(tau))
 	d, err := in.Decide(ctx, r, router.Query{From: "vent-north", Value: "open", To: "bed-tomato", Key: "u1"})
-	if err != nil || d.Chain == nil {
+	if err != nil || d.Chain == nil || d.Mode != mode {
 		t.Fatalf("%v %+v", err, d)
 	}
 	if err := tp.Shutdown(ctx); err != nil {
@@ -515,9 +544,11 @@ func TestCompactSpans(t *testing.T) {
 			t.Errorf("entity name recorded in %s", kv.Key)
 		}
 	}
-	want := []string{KeyRouteMode, KeyRouteGain, KeyRouteReason, KeyRoutePropensity, KeyDirectErr, KeySamplingRatio, KeyQueryKey, KeyChainErr, KeyChainHops, KeyABArm}
-	if d.Explored {
-		want = append(want, KeyRouteExplored)
+	want := []string{KeyRouteMode, KeyRouteGain, KeyRouteReason, KeyRoutePropensity, KeySamplingRatio, KeyQueryKey, KeyChainHops, KeyABArm}
+	if d.Mode == router.ModeChain {
+		want = append(want, KeyChainErr)
+	} else {
+		want = append(want, KeyDirectErr)
 	}
 	slices.Sort(keys)
 	slices.Sort(want)

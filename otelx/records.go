@@ -46,10 +46,13 @@ type DecisionRecord struct {
 	// none (see HasPropensity).
 	Propensity float64
 
+	// DirectErr and ChainErr are 0 when the span does not carry them:
+	// compact spans (WithCompactSpans) record the error of the chosen
+	// mode only.
 	DirectErr     float64
 	DirectSupport uint64
 
-	HasChain  bool
+	HasChain  bool // the span has a chain error or a hop count
 	ChainErr  float64
 	ChainHops int
 	Bridges   []string
@@ -360,7 +363,9 @@ func decisionFromSpan(sp *tracepb.Span, src string) (*DecisionRecord, error) {
 	}
 	d.DirectErr = a.float(KeyDirectErr, 0, false)
 	d.DirectSupport = a.uint(KeyDirectSupport)
-	if a.has(KeyChainErr) {
+	// Compact spans carry the chain error only in chain mode; the hop
+	// count is what marks a chain as available.
+	if a.has(KeyChainErr) || a.has(KeyChainHops) {
 		d.HasChain = true
 		d.ChainErr = a.float(KeyChainErr, 0, false)
 		d.ChainHops = int(a.int(KeyChainHops))

@@ -1,0 +1,82 @@
+package otelx
+
+import (
+	"context"
+	"os"
+	"os/exec"
+	"testing"
+
+	"go.opentelemetry.io/otel"
+	sdkmetric "go.opentelemetry.io/otel/sdk/metric"
+	"go.opentelemetry.io/otel/sdk/metric/metricdata"
+	sdktrace "go.opentelemetry.io/otel/sdk/trace"
+	"go.opentelemetry.io/otel/sdk/trace/tracetest"
+
+	"github.com/hopwise/hopwise/router"
+)
+
+// TestGlobalProviders: over the otel globals with no SDK installed, a
+// decision costs no span and no allocation; once an SDK is installed
+// behind the globals, the same Instrumentation records spans and metrics.
+// Installing a global provider cannot be undone, so the test runs in a
+// child process of its own.
+func TestGlobalProviders(t *testing.T) {
+	if os.Getenv("HOPWISE_GLOBAL_CHILD") == "" {
+		t.Parallel()
+		cmd := exec.Command(os.Args[0], "-test.run=^TestGlobalProviders$", "-test.v")
+		cmd.Env = append(os.Environ(), "HOPWISE_GLOBAL_CHILD=1")
+		out, err := cmd.CombinedOutput()
+		if err != nil {
+			t.Fatalf("child: %v\n%s", err, out)
+		}
+		return
+	}
+	ctx := context.Background()
+	in, err := New()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if in.globalTP == nil || in.globalMP == nil {
+		t.Fatalf("the otel global providers were not recognised: %T %T", otel.GetTracerProvider(), otel.GetMeterProvider())
+	}
+	r := newRouter(t, router.WithCacheSize(16))
+	q := router.Query{From: "vent-north", Value: "open", To: "bed-tomato", Key: "u"}
+	if _, err := in.Decide(ctx, r, q); err != nil { // fills the cache
+		t.Fatal(err)
+	}
+	// The global tracer's Start allocates a context per span; a cached
+	// decision alone allocates nothing (router BenchmarkDecide, cache hit).
+	if n := testing.AllocsPerRun(100, func() { _, _ = in.Decide(ctx, r, q) }); n != 0 {
+		t.Errorf("%v allocations per decision over the idle globals, want 0", n)
+	}
+
+	rec := tracetest.NewSpanRecorder()
+	otel.SetTracerProvider(sdktrace.NewTracerProvider(sdktrace.WithSpanProcessor(rec)))
+	reader := sdkmetric.NewManualReader()
+	otel.SetMeterProvider(sdkmetric.NewMeterProvider(sdkmetric.WithReader(reader)))
+	for range 2 {
+		if _, err := in.Decide(ctx, r, q); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if n := len(rec.Ended()); n != 2 {
+		t.Errorf("%d spans after installing an SDK, want 2", n)
+	}
+	var rm metricdata.ResourceMetrics
+	if err := reader.Collect(ctx, &rm); err != nil {
+		t.Fatal(err)
+	}
+	var decisions int64
+	for _, sm := range rm.ScopeMetrics {
+		for _, m := range sm.Metrics {
+			if s, ok := m.Data.(metricdata.Sum[int64]); ok && m.Name == MetricDecisions {
+				for _, dp := range s.DataPoints {
+					decisions += dp.Value
+				}
+			}
+		}
+	}
+	if decisions != 2 {
+		t.Errorf("%d decisions counted after installing an SDK, want 2", decisions)
+	}
+}
