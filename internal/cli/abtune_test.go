@@ -283,7 +283,7 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 	// tune
 	out := filepath.Join(dir, "tuned.json")
 	rep, err := runTune(tuneOptions{traces: []string{traces}, objective: "score", out: out, plots: filepath.Join(dir, "plots"),
-		tauPoints: 21, estimator: "dr", floor: ope.DefaultFloor, minESS: ope.DefaultMinESS, reps: 200, seed: 1, conf: 0.95, arm: router.ArmRouted})
+		tauPoints: 21, estimator: "dr", floor: ope.DefaultFloor, minESS: ope.DefaultMinESS, folds: ope.DefaultFolds, reps: 200, seed: 1, conf: 0.95, arm: router.ArmRouted})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -326,7 +326,7 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 	// Priced tokens: at 1e-3 per token a chain's extra ~88 tokens cost more
 	// than its +0.03 score, so the priced recommendation chains less.
 	priced, err := runTune(tuneOptions{traces: []string{traces}, objective: "score-cost", costPerToken: 1e-3,
-		tauPoints: 21, estimator: "dr", floor: ope.DefaultFloor, minESS: ope.DefaultMinESS, reps: 100, seed: 1, conf: 0.95, arm: router.ArmRouted})
+		tauPoints: 21, estimator: "dr", floor: ope.DefaultFloor, minESS: ope.DefaultMinESS, folds: ope.DefaultFolds, reps: 100, seed: 1, conf: 0.95, arm: router.ArmRouted})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -393,7 +393,7 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 	// policy that differs from it and writes no config.
 	noOut := filepath.Join(dir, "none.json")
 	aaTune, err := runTune(tuneOptions{traces: []string{aa}, objective: "score", out: noOut, taus: "0,0.01", maxHops: "3",
-		estimator: "dr", floor: ope.DefaultFloor, minESS: ope.DefaultMinESS, reps: 50, seed: 1, conf: 0.95, arm: router.ArmRouted})
+		estimator: "dr", floor: ope.DefaultFloor, minESS: ope.DefaultMinESS, folds: ope.DefaultFolds, reps: 50, seed: 1, conf: 0.95, arm: router.ArmRouted})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -476,7 +476,7 @@ func TestTuneRefusesMissingPropensity(t *testing.T) {
 		t.Fatal(err)
 	}
 	_, err := runTune(tuneOptions{traces: []string{path}, objective: "score", taus: "0", maxHops: "1", estimator: "dr",
-		floor: 0.01, minESS: 1, reps: 10, seed: 1, conf: 0.95, arm: router.ArmRouted, out: filepath.Join(dir, "x.json")})
+		floor: 0.01, minESS: 1, folds: ope.DefaultFolds, reps: 10, seed: 1, conf: 0.95, arm: router.ArmRouted, out: filepath.Join(dir, "x.json")})
 	if !errors.Is(err, ope.ErrMissingPropensity) || !strings.Contains(err.Error(), "t.jsonl:1") {
 		t.Fatalf("err = %v", err)
 	}

@@ -44,6 +44,7 @@ type tuneOptions struct {
 	estimator    string
 	floor        float64
 	minESS       float64
+	folds        int
 	reps         int
 	seed         uint64
 	conf         float64
@@ -52,7 +53,7 @@ type tuneOptions struct {
 
 func newTuneCmd() *cobra.Command {
 	o := tuneOptions{objective: "score", tauPoints: 21, estimator: "dr", floor: ope.DefaultFloor,
-		minESS: ope.DefaultMinESS, reps: ope.DefaultReps, seed: 1, conf: 0.95, arm: router.ArmRouted}
+		minESS: ope.DefaultMinESS, folds: ope.DefaultFolds, reps: ope.DefaultReps, seed: 1, conf: 0.95, arm: router.ArmRouted}
 	cmd := &cobra.Command{
 		Use:   "tune --traces PATH... [--outcomes FILE.jsonl] --out config.json [flags]",
 		Short: "Choose the gain threshold τ and max bridges H by off-policy evaluation of traces",
@@ -122,6 +123,7 @@ config written), 1 on errors.`,
 	f.StringVar(&o.estimator, "estimator", o.estimator, "estimator that picks the recommendation: dr, snips or ips")
 	f.Float64Var(&o.floor, "floor", o.floor, "smallest logging probability of a target mode")
 	f.Float64Var(&o.minESS, "min-ess", o.minESS, "smallest effective sample size for an estimate")
+	f.IntVar(&o.folds, "folds", o.folds, "cross-fitting folds of the DR outcome model (1 fits it in-sample)")
 	f.IntVar(&o.reps, "reps", o.reps, "bootstrap replicates")
 	f.Uint64Var(&o.seed, "seed", o.seed, "bootstrap seed")
 	f.Float64Var(&o.conf, "confidence", o.conf, "confidence level of the intervals")
@@ -309,7 +311,7 @@ func runTune(o tuneOptions) (*tuneReport, error) {
 		slices.Sort(hops)
 	}
 	res, err := ope.Sweep(samples, ope.Grid{Taus: taus, MaxHops: hops},
-		ope.WithPropensityFloor(o.floor), ope.WithMinESS(o.minESS), ope.WithBootstrap(o.reps, o.seed), ope.WithConfidence(o.conf))
+		ope.WithPropensityFloor(o.floor), ope.WithMinESS(o.minESS), ope.WithCrossFit(o.folds), ope.WithBootstrap(o.reps, o.seed), ope.WithConfidence(o.conf))
 	if err != nil {
 		return nil, err
 	}

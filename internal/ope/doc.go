@@ -18,7 +18,8 @@
 // (Horvitz & Thompson 1952; Swaminathan & Joachims 2015 for SNIPS; Dudík,
 // Langford & Li 2011 for DR). The outcome model q̂ is a weighted binned
 // regression of the reward on the routing score, fitted per mode on the
-// logs (see FitBinned). The effective sample size is Kish's
+// logs (see FitBinned) and cross-fitted over 5 interleaved folds by default,
+// so that no sample's outcome enters its own correction (WithCrossFit). The effective sample size is Kish's
 // (Σ v_i)² / Σ v_i² with v_i = w_i m_i / p_i.
 //
 // Intervals are percentile intervals of a Poisson bootstrap (each sample

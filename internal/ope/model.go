@@ -127,3 +127,25 @@ func (m *Binned) Predict(s *Sample, a Action) (reward, cost float64) {
 	}
 	return m.meanR, m.meanC
 }
+
+// fitFolds returns the outcome models of k-fold cross-fitting: models[f]
+// is fitted on every sample i with i mod k ≠ f and predicts for the samples
+// of fold f. With k = 1, or fewer than k samples, it is one in-sample
+// model. O(k · n log n).
+func fitFolds(samples []Sample, maxBins, k int) []*Binned {
+	if k <= 1 || len(samples) < k {
+		return []*Binned{FitBinned(samples, maxBins)}
+	}
+	models := make([]*Binned, k)
+	train := make([]Sample, 0, len(samples)-len(samples)/k)
+	for f := range k {
+		train = train[:0]
+		for i := range samples {
+			if i%k != f {
+				train = append(train, samples[i])
+			}
+		}
+		models[f] = FitBinned(train, maxBins)
+	}
+	return models
+}

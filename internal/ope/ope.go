@@ -60,6 +60,9 @@ const (
 	DefaultMinESS     = 30
 	DefaultReps       = 400
 	DefaultConfidence = 0.95
+	// DefaultFolds is the number of cross-fitting folds of the DR outcome
+	// model (5 is the usual choice; Chernozhukov et al. 2018 §3).
+	DefaultFolds = 5
 )
 
 // Option configures an evaluation.
@@ -72,6 +75,7 @@ type config struct {
 	seed   uint64
 	conf   float64
 	bins   int
+	folds  int
 }
 
 // WithPropensityFloor sets the smallest logging probability of the target
@@ -95,8 +99,17 @@ func WithConfidence(level float64) Option { return func(c *config) { c.conf = le
 // (default 10).
 func WithBins(n int) Option { return func(c *config) { c.bins = n } }
 
+// WithCrossFit sets the number of cross-fitting folds of the doubly robust
+// estimator's outcome model (default DefaultFolds). With k ≥ 2, sample i
+// falls in fold i mod k (interleaved, so a drift over the log spreads over
+// every fold) and its q̂ is fitted on the other folds only, so a sample's
+// own outcome never enters the model that corrects it (cross-fitting:
+// Chernozhukov et al. 2018, "Double/debiased machine learning", §3).
+// k = 1 fits one model on every sample (in-sample). Must be ≥ 1.
+func WithCrossFit(k int) Option { return func(c *config) { c.folds = k } }
+
 func buildConfig(opts []Option) (config, error) {
-	c := config{floor: DefaultFloor, minESS: DefaultMinESS, reps: DefaultReps, seed: 1, conf: DefaultConfidence, bins: 10}
+	c := config{floor: DefaultFloor, minESS: DefaultMinESS, reps: DefaultReps, seed: 1, conf: DefaultConfidence, bins: 10, folds: DefaultFolds}
 	for _, o := range opts {
 		if o != nil {
 			o(&c)
@@ -113,6 +126,8 @@ func buildConfig(opts []Option) (config, error) {
 		return c, fmt.Errorf("%w: confidence %v not in (0,1)", ErrBadOption, c.conf)
 	case c.bins < 1:
 		return c, fmt.Errorf("%w: bins %d < 1", ErrBadOption, c.bins)
+	case c.folds < 1:
+		return c, fmt.Errorf("%w: cross-fitting folds %d < 1", ErrBadOption, c.folds)
 	}
 	return c, nil
 }
@@ -236,7 +251,7 @@ func Sweep(samples []Sample, grid Grid, opts ...Option) ([]PolicyResult, error) 
 	if err := Validate(samples); err != nil {
 		return nil, err
 	}
-	model := FitBinned(samples, cfg.bins)
+	models := fitFolds(samples, cfg.bins, cfg.folds)
 
 	// Sorted copies of the grid; results are mapped back to grid order.
 	taus := slices.Clone(grid.Taus)
@@ -255,6 +270,7 @@ func Sweep(samples []Sample, grid Grid, opts ...Option) ([]PolicyResult, error) 
 	var sumW float64
 	for i := range samples {
 		s := &samples[i]
+		model := models[i%len(models)]
 		var d, a [nTerms]float64
 		terms(s, Direct, model, cfg.floor, &d)
 		if s.HasChain {

@@ -173,7 +173,18 @@ func TestSweepMatchesNaive(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	model := FitBinned(samples, 10)
+	// The naive computation cross-fits by hand: the model of sample i is
+	// fitted on the samples j with j mod 5 ≠ i mod 5.
+	var folds [DefaultFolds]*Binned
+	for f := range folds {
+		var train []Sample
+		for j := range samples {
+			if j%DefaultFolds != f {
+				train = append(train, samples[j])
+			}
+		}
+		folds[f] = FitBinned(train, 10)
+	}
 	k := 0
 	for _, tau := range taus {
 		for _, H := range hopsGrid {
@@ -185,6 +196,7 @@ func TestSweepMatchesNaive(t *testing.T) {
 					tgt = Chain
 				}
 				sw += s.Weight
+				model := folds[i%DefaultFolds]
 				q, _ := model.Predict(s, tgt)
 				dr += s.Weight * q
 				if tgt == s.Logged {
@@ -293,5 +305,43 @@ func BenchmarkSweep(b *testing.B) {
 		if err != nil || len(res) != 75 {
 			b.Fatal(err)
 		}
+	}
+}
+
+// TestCrossFitExcludesOwnFold: with one bin per group, the model of fold f
+// predicts the weighted mean reward of the samples outside fold f, which
+// differs from the in-sample mean whenever fold f's rewards do.
+func TestCrossFitExcludesOwnFold(t *testing.T) {
+	t.Parallel()
+	const n, k = 103, 5
+	samples := make([]Sample, n)
+	for i := range samples {
+		samples[i] = Sample{Logged: Chain, Propensity: 0.5, Weight: 1, HasChain: true, Hops: 1, Score: 0.1, Reward: float64(i * i % 17), Cost: float64(i % 3)}
+	}
+	models := fitFolds(samples, 1, k)
+	if len(models) != k {
+		t.Fatalf("%d models, want %d", len(models), k)
+	}
+	all := FitBinned(samples, 1)
+	for f := range k {
+		var sr, sc, w float64
+		for i, s := range samples {
+			if i%k != f {
+				sr, sc, w = sr+s.Reward, sc+s.Cost, w+1
+			}
+		}
+		r, c := models[f].Predict(&samples[f], Chain)
+		if math.Abs(r-sr/w) > 1e-12 || math.Abs(c-sc/w) > 1e-12 {
+			t.Errorf("fold %d: predicted (%v, %v), want the out-of-fold means (%v, %v)", f, r, c, sr/w, sc/w)
+		}
+		if ra, _ := all.Predict(&samples[f], Chain); ra == r {
+			t.Errorf("fold %d: the cross-fitted prediction equals the in-sample one (%v)", f, r)
+		}
+	}
+	if got := fitFolds(samples[:3], 1, k); len(got) != 1 {
+		t.Errorf("fewer samples than folds: %d models, want one in-sample model", len(got))
+	}
+	if _, err := Sweep(samples, Grid{Taus: []float64{0}, MaxHops: []int{3}}, WithCrossFit(0)); !errors.Is(err, ErrBadOption) {
+		t.Errorf("WithCrossFit(0): err %v, want ErrBadOption", err)
 	}
 }
