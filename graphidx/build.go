@@ -54,7 +54,11 @@ func Build(ctx context.Context, r ContextReader, out string, opts ...BuildOption
 	}
 	cfg.emit(ProgressEvent{Phase: PhaseWrite, Contexts: sum.Contexts, Entities: sum.Entities,
 		SpillRuns: sum.SpillRuns, Pairs: sum.Pairs.After, BytesRead: -1, Elapsed: time.Since(start)})
-	if err := WriteFile(out, c, cfg.writeOpts...); err != nil {
+	// The write phase streams the pairs; its adjacency buckets get a
+	// quarter of the budget (an option given by the caller comes later and
+	// wins).
+	wopts := append([]WriteOption{WithWriteMemory(max(cfg.memBudget/4, 1))}, cfg.writeOpts...)
+	if err := WriteFile(out, c, wopts...); err != nil {
 		return sum, err
 	}
 	if fi, err := os.Stat(out); err == nil {

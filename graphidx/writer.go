@@ -1,13 +1,10 @@
 package graphidx
 
 import (
-	"bufio"
-	"cmp"
 	"crypto/rand"
 	"encoding/hex"
 	"errors"
 	"fmt"
-	"hash/crc32"
 	"math"
 	"os"
 	"path/filepath"
@@ -22,6 +19,7 @@ type WriteOption interface{ applyWrite(*writeConfig) }
 
 type writeConfig struct {
 	rankPrefix int
+	memory     int64
 }
 
 type writeOptionFunc func(*writeConfig)
@@ -37,6 +35,23 @@ const MaxRankPrefix = 1 << 20
 // rejects n < 1 or n > MaxRankPrefix.
 func WithRankPrefix(n int) WriteOption {
 	return writeOptionFunc(func(c *writeConfig) { c.rankPrefix = n })
+}
+
+// DefaultWriteMemory is the default of WithWriteMemory: 64 MiB.
+const DefaultWriteMemory = 64 << 20
+
+// WithWriteMemory bounds the memory WriteFile uses for the pair-sized part
+// of its work (default DefaultWriteMemory). WriteFile keeps O(entities)
+// arrays in memory and streams everything that grows with the number of
+// pairs: the count tables go straight to the file, and the adjacency is
+// assembled in buckets of consecutive entities whose edges take at most
+// bytes (12 bytes per directed edge: a neighbour id and a support), the
+// buckets after the first spooled to a temporary file next to the output
+// (16 bytes per edge). A single entity whose edges need more than bytes
+// gets a bucket of its own, and at most 4096 buckets are made. Build sets
+// it to a quarter of WithMemBudget. WriteFile rejects bytes < 1.
+func WithWriteMemory(bytes int64) WriteOption {
+	return writeOptionFunc(func(c *writeConfig) { c.memory = bytes })
 }
 
 // TempPrefix returns the name prefix WriteFile uses for its temporary file
@@ -60,13 +75,24 @@ func TempPrefix(path string) string { return "." + filepath.Base(path) + ".tmp-"
 // non-empty, 1..MaxValues strictly ascending value labels with one marginal
 // each, pairs strictly ascending by (A, B) with A < B, tables of KA×KB
 // counts with a positive support, row and column sums not above the
-// marginals. It calls src.Pairs twice.
+// marginals. It calls src.Pairs twice: the first pass validates and counts
+// degrees, the second streams the count tables to the file and the edges
+// to the adjacency buckets, and must yield the same pairs and supports
+// (ErrInvalidSource otherwise).
 //
-// Memory: O(entities + pairs) words besides the Source; the count tables
-// are streamed to disk. Time: O(V + P + E·log(deg)) for E = 2P directed
-// edges (the support ranking sorts each adjacency list).
+// Memory: O(entities) words (about 80 bytes per entity besides the
+// Source's own records), the adjacency buckets bounded by WithWriteMemory
+// (or one entity's degree, if larger), and about 1 MiB of write buffers
+// plus 4–256 KiB per spooled bucket; nothing grows with the number of
+// pairs. Disk: the output plus, when the adjacency needs more than one
+// bucket, a spool of 16 bytes per directed edge outside the first bucket,
+// removed before WriteFile returns (on Unix it is unlinked at once, so not
+// even a crash leaves it; elsewhere its name starts with TempPrefix(path)
+// and the pid, like the temporary output). Time: O(V + P + E·log(deg))
+// for E = 2P directed edges (the support ranking sorts each adjacency
+// list).
 func WriteFile(path string, src Source, opts ...WriteOption) (err error) {
-	cfg := writeConfig{rankPrefix: DefaultRankPrefix}
+	cfg := writeConfig{rankPrefix: DefaultRankPrefix, memory: DefaultWriteMemory}
 	for _, o := range opts {
 		if o != nil {
 			o.applyWrite(&cfg)
@@ -74,6 +100,9 @@ func WriteFile(path string, src Source, opts ...WriteOption) (err error) {
 	}
 	if cfg.rankPrefix < 1 || cfg.rankPrefix > MaxRankPrefix {
 		return fmt.Errorf("graphidx: rank prefix %d out of range [1, %d]", cfg.rankPrefix, MaxRankPrefix)
+	}
+	if cfg.memory < 1 {
+		return fmt.Errorf("graphidx: write memory %d bytes, want at least 1", cfg.memory)
 	}
 	if src == nil {
 		return sourceErrorf("nil source")
@@ -100,7 +129,7 @@ func WriteFile(path string, src Source, opts ...WriteOption) (err error) {
 			_ = os.Remove(tmp)
 		}
 	}()
-	if err = p.write(f, src); err != nil {
+	if err = p.write(f, tmp+".adj", src); err != nil {
 		return err
 	}
 	if err = f.Sync(); err != nil {
@@ -136,7 +165,10 @@ func syncDir(dir string) error {
 	return nil
 }
 
-// plan is everything of the file except the count tables, computed in memory.
+// plan is the part of the file that takes O(entities) memory, computed by
+// the first pass over the pairs: every section but the neighbours, the pair
+// offsets, the counts and the ranked neighbours, which write streams from
+// the second pass.
 type plan struct {
 	h          header
 	uniform    bool
@@ -151,25 +183,36 @@ type plan struct {
 	margOffs   []uint64 // nil if uniform
 	marginals  []uint64
 	nbrOffs    []uint64
-	nbrs       []uint32
 	pairBase   []uint64
-	pairOffs   []uint64 // nil if uniform
-	pairSup    []uint64 // support per pair, to re-check the second pass
-	pairLo     []uint32
-	pairHi     []uint32
-	cells      uint64
 	rankOffs   []uint64
-	rank       []uint32
+	cells      uint64 // Σ K_lo·K_hi over the pairs
+	// fp is a fingerprint of the first pass's (A, B, support) sequence;
+	// the second pass must reproduce it.
+	fp     uint64
+	memory int64 // WithWriteMemory
 }
 
-// compile validates src and computes every section except the counts.
+// pairPrint folds one pair into a fingerprint of the pair sequence. It is
+// order-sensitive (each step multiplies and rotates), so a second pass that
+// reorders, drops, adds or changes the support of a pair gets a different
+// value except with probability about 2⁻⁶⁴ (the multipliers are the
+// 64-bit golden-ratio and SplitMix64 constants; common practice).
+func pairPrint(h uint64, a, b uint32, sup uint64) uint64 {
+	h = (h ^ (uint64(a)<<32 | uint64(b))) * 0x9E3779B97F4A7C15
+	h = (h<<29 | h>>35) ^ sup
+	h *= 0xBF58476D1CE4E5B9
+	return h<<31 | h>>33
+}
+
+// compile validates src and computes the O(entities) sections, the degrees
+// and the fingerprint of the pairs: one pass over src.Pairs.
 func compile(src Source, cfg writeConfig) (*plan, error) {
 	ents := src.Entities()
 	n := len(ents)
 	if uint64(n) > math.MaxUint32 {
 		return nil, sourceErrorf("%d entities exceed the uint32 id space", n)
 	}
-	p := &plan{k: make([]uint8, n)}
+	p := &plan{k: make([]uint8, n), memory: cfg.memory}
 	contexts := src.Contexts()
 
 	// Names and values.
@@ -271,21 +314,21 @@ func compile(src Source, cfg writeConfig) (*plan, error) {
 		return p.marginals[p.margOffs[id]:p.margOffs[id+1]]
 	}
 
-	// Pass 1 over the pairs: validate, count degrees, record supports.
+	// Pass 1 over the pairs: validate, count degrees, fingerprint.
 	upper := make([]uint64, n)
 	lower := make([]uint64, n)
 	var prevA, prevB uint32
-	first := true
+	var np uint64
 	colSum := make([]uint64, MaxValues)
 	err := src.Pairs(func(r PairRecord) error {
 		if r.A >= r.B || uint64(r.B) >= uint64(n) {
 			return sourceErrorf("pair (%d, %d): want A < B < %d", r.A, r.B, n)
 		}
-		if !first && (r.A < prevA || (r.A == prevA && r.B <= prevB)) {
+		if np > 0 && (r.A < prevA || (r.A == prevA && r.B <= prevB)) {
 			return sourceErrorf("pair (%s, %s) is not after (%s, %s) (pairs must be strictly ascending)",
 				ents[r.A].Name, ents[r.B].Name, ents[prevA].Name, ents[prevB].Name)
 		}
-		first, prevA, prevB = false, r.A, r.B
+		prevA, prevB = r.A, r.B
 		ka, kb := int(p.k[r.A]), int(p.k[r.B])
 		if len(r.Counts) != ka*kb {
 			return sourceErrorf("pair (%s, %s): %d counts, want %d×%d", ents[r.A].Name, ents[r.B].Name, len(r.Counts), ka, kb)
@@ -317,9 +360,8 @@ func compile(src Source, cfg writeConfig) (*plan, error) {
 		}
 		upper[r.A]++
 		lower[r.B]++
-		p.pairLo = append(p.pairLo, r.A)
-		p.pairHi = append(p.pairHi, r.B)
-		p.pairSup = append(p.pairSup, sup)
+		np++
+		p.fp = pairPrint(p.fp, r.A, r.B, sup)
 		p.cells += uint64(ka * kb)
 		return nil
 	})
@@ -329,63 +371,18 @@ func compile(src Source, cfg writeConfig) (*plan, error) {
 		}
 		return nil, fmt.Errorf("graphidx: reading pairs: %w", err)
 	}
-	np := uint64(len(p.pairLo))
 
-	// CSR adjacency (both directions, ascending) and the pair base.
+	// CSR offsets, pair base and ranked-prefix offsets: prefix sums of the
+	// degrees.
+	R := uint64(cfg.rankPrefix)
 	p.nbrOffs = make([]uint64, n+1)
 	p.pairBase = make([]uint64, n+1)
-	for i := 0; i < n; i++ {
-		p.nbrOffs[i+1] = p.nbrOffs[i] + upper[i] + lower[i]
-		p.pairBase[i+1] = p.pairBase[i] + upper[i]
-	}
-	edges := 2 * np
-	p.nbrs = make([]uint32, edges)
-	esup := make([]uint64, edges)
-	lowCur := make([]uint64, n)
-	upCur := upper // reuse: upCur[i] = nbrOffs[i] + lower[i]
-	for i := 0; i < n; i++ {
-		lowCur[i] = p.nbrOffs[i]
-		upCur[i] = p.nbrOffs[i] + lower[i]
-	}
-	if !p.uniform {
-		p.pairOffs = make([]uint64, np+1)
-	}
-	for q := uint64(0); q < np; q++ {
-		lo, hi, s := p.pairLo[q], p.pairHi[q], p.pairSup[q]
-		p.nbrs[upCur[lo]], esup[upCur[lo]] = hi, s
-		upCur[lo]++
-		p.nbrs[lowCur[hi]], esup[lowCur[hi]] = lo, s
-		lowCur[hi]++
-		if !p.uniform {
-			p.pairOffs[q+1] = p.pairOffs[q] + uint64(p.k[lo])*uint64(p.k[hi])
-		}
-	}
-
-	// Support-ranked prefixes: support descending, then id ascending.
-	R := uint64(cfg.rankPrefix)
 	p.rankOffs = make([]uint64, n+1)
-	type ranked struct {
-		id  uint32
-		sup uint64
-	}
-	var scratch []ranked
 	for i := 0; i < n; i++ {
-		s, e := p.nbrOffs[i], p.nbrOffs[i+1]
-		scratch = scratch[:0]
-		for j := s; j < e; j++ {
-			scratch = append(scratch, ranked{p.nbrs[j], esup[j]})
-		}
-		slices.SortFunc(scratch, func(a, b ranked) int {
-			if c := cmp.Compare(b.sup, a.sup); c != 0 {
-				return c
-			}
-			return cmp.Compare(a.id, b.id)
-		})
-		m := min(e-s, R)
-		for _, r := range scratch[:m] {
-			p.rank = append(p.rank, r.id)
-		}
-		p.rankOffs[i+1] = p.rankOffs[i] + m
+		deg := upper[i] + lower[i]
+		p.nbrOffs[i+1] = p.nbrOffs[i] + deg
+		p.pairBase[i+1] = p.pairBase[i] + upper[i]
+		p.rankOffs[i+1] = p.rankOffs[i] + min(deg, R)
 	}
 
 	var flags uint32
@@ -400,7 +397,7 @@ func compile(src Source, cfg writeConfig) (*plan, error) {
 		Contexts:   contexts,
 		Entities:   uint64(n),
 		Pairs:      np,
-		Edges:      edges,
+		Edges:      2 * np,
 		Values:     values,
 		Labels:     uint64(len(p.labels)),
 		VSets:      uint64(len(p.vsetOffs) - 1),
@@ -410,132 +407,7 @@ func compile(src Source, cfg writeConfig) (*plan, error) {
 	return p, nil
 }
 
-// secWriter streams sections, tracking the position and each section's CRC.
-type secWriter struct {
-	w   *bufio.Writer
-	pos uint64
-	crc uint32
-	buf []byte
-	err error
-}
-
-func (s *secWriter) write(b []byte) {
-	if s.err != nil {
-		return
-	}
-	s.crc = crc32.Update(s.crc, castagnoli, b)
-	_, s.err = s.w.Write(b)
-	s.pos += uint64(len(b))
-}
-
-func (s *secWriter) u64s(vs []uint64) {
-	for len(vs) > 0 && s.err == nil {
-		m := min(len(vs), 4096)
-		s.buf = s.buf[:0]
-		for _, v := range vs[:m] {
-			s.buf = le.AppendUint64(s.buf, v)
-		}
-		s.write(s.buf)
-		vs = vs[m:]
-	}
-}
-
-func (s *secWriter) u32s(vs []uint32) {
-	for len(vs) > 0 && s.err == nil {
-		m := min(len(vs), 8192)
-		s.buf = s.buf[:0]
-		for _, v := range vs[:m] {
-			s.buf = le.AppendUint32(s.buf, v)
-		}
-		s.write(s.buf)
-		vs = vs[m:]
-	}
-}
-
-func (s *secWriter) strs(vs []string) {
-	for _, v := range vs {
-		if s.err != nil {
-			return
-		}
-		s.crc = crc32.Update(s.crc, castagnoli, []byte(v))
-		_, s.err = s.w.WriteString(v)
-		s.pos += uint64(len(v))
-	}
-}
-
-// write streams the whole file to f: a zero header, the sections, then the
-// real header at offset 0.
-func (p *plan) write(f *os.File, src Source) error {
-	bw := bufio.NewWriterSize(f, 1<<20)
-	sw := &secWriter{w: bw, buf: make([]byte, 0, 32768)}
-	var zero [headerSize]byte
-	sw.write(zero[:])
-
-	section := func(id int, body func()) {
-		if pad := align8(sw.pos) - sw.pos; pad > 0 {
-			sw.write(zero[:pad])
-		}
-		start := sw.pos
-		sw.crc = 0
-		body()
-		p.h.Sections[id-1] = sectionEntry{Offset: start, Length: sw.pos - start, CRC: sw.crc, ID: uint32(id)}
-	}
-	section(secNameOffs, func() { sw.u64s(p.nameOffs) })
-	section(secNameBytes, func() { sw.strs(p.names) })
-	section(secLabelOffs, func() { sw.u64s(p.labelOffs) })
-	section(secLabelBytes, func() { sw.strs(p.labels) })
-	section(secVSetOffs, func() { sw.u32s(p.vsetOffs) })
-	section(secVSetLabels, func() { sw.u32s(p.vsetLabels) })
-	section(secEntVSet, func() { sw.u32s(p.entVSet) })
-	section(secMargOffs, func() { sw.u64s(p.margOffs) })
-	section(secMarginals, func() { sw.u64s(p.marginals) })
-	section(secNbrOffs, func() { sw.u64s(p.nbrOffs) })
-	section(secNbrs, func() { sw.u32s(p.nbrs) })
-	section(secPairBase, func() { sw.u64s(p.pairBase) })
-	section(secPairOffs, func() { sw.u64s(p.pairOffs) })
-	var perr error
-	section(secCounts, func() {
-		q := 0
-		perr = src.Pairs(func(r PairRecord) error {
-			if q >= len(p.pairLo) || r.A != p.pairLo[q] || r.B != p.pairHi[q] ||
-				len(r.Counts) != int(p.k[r.A])*int(p.k[r.B]) {
-				return sourceErrorf("second Pairs pass differs from the first at pair %d", q)
-			}
-			var s uint64
-			for _, c := range r.Counts {
-				s += uint64(c)
-			}
-			if s != p.pairSup[q] {
-				return sourceErrorf("second Pairs pass differs from the first at pair %d (support %d, was %d)", q, s, p.pairSup[q])
-			}
-			q++
-			sw.u32s(r.Counts)
-			return sw.err
-		})
-		if perr == nil && q != len(p.pairLo) {
-			perr = sourceErrorf("second Pairs pass yielded %d pairs, the first %d", q, len(p.pairLo))
-		}
-	})
-	if perr != nil {
-		if errors.Is(perr, ErrInvalidSource) {
-			return perr
-		}
-		return fmt.Errorf("graphidx: reading pairs: %w", perr)
-	}
-	section(secRankOffs, func() { sw.u64s(p.rankOffs) })
-	section(secRank, func() { sw.u32s(p.rank) })
-	if sw.err != nil {
-		return fmt.Errorf("graphidx: write %s: %w", f.Name(), sw.err)
-	}
-	if err := bw.Flush(); err != nil {
-		return fmt.Errorf("graphidx: write %s: %w", f.Name(), err)
-	}
-	p.h.FileSize = sw.pos
-	p.h.Generation = generationOf(&p.h)
-	var hb [headerSize]byte
-	p.h.encode(hb[:])
-	if _, err := f.WriteAt(hb[:], 0); err != nil {
-		return fmt.Errorf("graphidx: write header %s: %w", f.Name(), err)
-	}
-	return nil
+// lowerDeg is the number of neighbours of i with smaller ids.
+func (p *plan) lowerDeg(i uint32) uint64 {
+	return p.nbrOffs[i+1] - p.nbrOffs[i] - (p.pairBase[i+1] - p.pairBase[i])
 }

@@ -1,0 +1,268 @@
+package graphidx
+
+import (
+	"bytes"
+	"context"
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"runtime"
+	"testing"
+)
+
+// TestStreamingWriterMatchesReference: the streaming WriteFile gives the
+// same bytes as the in-memory writer it replaced (writer_ref_test.go), for
+// uniform and mixed K, several rank prefixes, and write memories from the
+// default (one bucket) down to 1 byte (one bucket per entity, every edge
+// past the first entity spooled).
+func TestStreamingWriterMatchesReference(t *testing.T) {
+	t.Parallel()
+	compiled := func(data []byte) Source {
+		c, _, err := Compile(context.Background(), NewJSONLReader(bytes.NewReader(data), "s.jsonl"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		t.Cleanup(func() { c.Close() })
+		return c
+	}
+	// A hub: entity 0 is paired with everyone, so its degree exceeds any
+	// small bucket limit and it gets a bucket of its own.
+	hub := ixRandomSource(120, 4, 2, 9)
+	{
+		var pairs []PairRecord
+		seen := map[[2]uint32]bool{}
+		for _, pr := range hub.pairs {
+			seen[[2]uint32{pr.A, pr.B}] = true
+		}
+		for b := 1; b < len(hub.ents); b++ {
+			if !seen[[2]uint32{0, uint32(b)}] {
+				pairs = append(pairs, PairRecord{A: 0, B: uint32(b), Counts: []uint32{0, 0, 0, 1}})
+				hub.ents[0].Marginal[1]++
+				hub.ents[b].Marginal[1]++
+			}
+		}
+		hub.pairs = append(pairs, hub.pairs...)
+		sortIxPairs(hub)
+		hub.contexts += uint64(len(pairs))
+	}
+	// Supports above 2³²−1 take the ranking's comparison-sort path.
+	const mx = 1<<32 - 1
+	big := &ixSource{contexts: 1 << 40}
+	for _, name := range []string{"pump1", "pump2", "pump3", "pump4"} {
+		big.ents = append(big.ents, EntityRecord{Name: name, Values: []string{"off", "on"}, Marginal: []uint64{1 << 36, 1 << 36}})
+	}
+	big.pairs = []PairRecord{
+		{A: 0, B: 1, Counts: []uint32{mx, mx, 1, 0}},
+		{A: 0, B: 2, Counts: []uint32{5, 0, 0, 0}},
+		{A: 0, B: 3, Counts: []uint32{mx, mx, mx, 0}},
+		{A: 1, B: 2, Counts: []uint32{mx, 0, 0, mx}},
+		{A: 2, B: 3, Counts: []uint32{2, 0, 0, 1}},
+	}
+	for _, tc := range []struct {
+		name string
+		src  Source
+	}{
+		{"hugeSupports", big},
+		{"greenhouse", ixSourceFromContexts(ixGreenhouse())},
+		{"empty", &ixSource{}},
+		{"onePairless", &ixSource{contexts: 3, ents: []EntityRecord{{Name: "vent", Values: []string{"open"}, Marginal: []uint64{2}}}}},
+		{"uniformK2", ixRandomSource(300, 12, 2, 1)},
+		{"mixedK", ixRandomSource(200, 10, 0, 2)},
+		{"dense", ixRandomSource(40, 39, 3, 3)},
+		{"hub", hub},
+		{"built", compiled(benchCorpus(3000, 400, 7))},
+	} {
+		for _, rp := range []int{1, 3, DefaultRankPrefix} {
+			want, err := refWriteBytes(t, tc.src, rp)
+			if err != nil {
+				t.Fatalf("%s: reference writer: %v", tc.name, err)
+			}
+			for _, mem := range []int64{DefaultWriteMemory, 2000, 100, 1} {
+				got := ixReadFile(t, ixWriteTemp(t, tc.src, WithRankPrefix(rp), WithWriteMemory(mem)))
+				if !bytes.Equal(got, want) {
+					t.Errorf("%s rank prefix %d write memory %d: %d bytes differ from the reference's %d (first difference at %d)",
+						tc.name, rp, mem, len(got), len(want), firstDiff(got, want))
+				}
+			}
+		}
+	}
+}
+
+func firstDiff(a, b []byte) int {
+	for i := range min(len(a), len(b)) {
+		if a[i] != b[i] {
+			return i
+		}
+	}
+	return min(len(a), len(b))
+}
+
+// sortIxPairs sorts the pairs of an ixSource by (A, B).
+func sortIxPairs(s *ixSource) {
+	ps := s.pairs
+	for i := 1; i < len(ps); i++ {
+		for j := i; j > 0 && (ps[j].A < ps[j-1].A || (ps[j].A == ps[j-1].A && ps[j].B < ps[j-1].B)); j-- {
+			ps[j], ps[j-1] = ps[j-1], ps[j]
+		}
+	}
+}
+
+// fickleSource yields src's pairs, changed by mutate on the second call of
+// Pairs.
+type fickleSource struct {
+	*ixSource
+	mutate func(ps []PairRecord) []PairRecord
+	calls  int
+}
+
+func (f *fickleSource) Pairs(fn func(PairRecord) error) error {
+	f.calls++
+	ps := f.ixSource.pairs
+	if f.calls == 2 {
+		ps = f.mutate(clonePairs(ps))
+	}
+	for _, p := range ps {
+		if err := fn(p); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+func clonePairs(ps []PairRecord) []PairRecord {
+	out := make([]PairRecord, len(ps))
+	for i, p := range ps {
+		out[i] = PairRecord{A: p.A, B: p.B, Counts: append([]uint32(nil), p.Counts...)}
+	}
+	return out
+}
+
+// TestSecondPassMustMatch: a Source whose second Pairs pass differs from
+// the first is rejected with ErrInvalidSource, with one bucket or many, and
+// leaves no file behind (neither the output nor its temporary nor the
+// adjacency spool).
+func TestSecondPassMustMatch(t *testing.T) {
+	t.Parallel()
+	for _, tc := range []struct {
+		name   string
+		mutate func(ps []PairRecord) []PairRecord
+	}{
+		{"supportChanged", func(ps []PairRecord) []PairRecord {
+			c := ps[len(ps)/2].Counts
+			for i := range c {
+				if c[i] > 0 {
+					c[i]--
+					return ps
+				}
+			}
+			panic("no positive count")
+		}},
+		{"pairDropped", func(ps []PairRecord) []PairRecord { return append(ps[:7], ps[8:]...) }},
+		{"lastDropped", func(ps []PairRecord) []PairRecord { return ps[:len(ps)-1] }},
+		{"pairAdded", func(ps []PairRecord) []PairRecord {
+			last := ps[len(ps)-1]
+			return append(ps, PairRecord{A: last.A, B: last.B + 1, Counts: []uint32{1, 0, 0, 0}})
+		}},
+		{"orderSwapped", func(ps []PairRecord) []PairRecord { ps[3], ps[4] = ps[4], ps[3]; return ps }},
+		{"partnerMoved", func(ps []PairRecord) []PairRecord {
+			// Same pair count, same A, another B: the fingerprint (or the
+			// degree bound) catches it.
+			for i := range ps {
+				if i+1 < len(ps) && ps[i+1].A == ps[i].A && ps[i+1].B > ps[i].B+1 {
+					ps[i].B++
+					return ps
+				}
+			}
+			panic("no gap")
+		}},
+	} {
+		for _, mem := range []int64{DefaultWriteMemory, 64} {
+			src := &fickleSource{ixSource: ixRandomSource(150, 8, 2, 5), mutate: tc.mutate}
+			dir := t.TempDir()
+			err := WriteFile(filepath.Join(dir, "x.hwx"), src, WithWriteMemory(mem))
+			if !errors.Is(err, ErrInvalidSource) {
+				t.Errorf("%s (write memory %d): err = %v, want ErrInvalidSource", tc.name, mem, err)
+			}
+			if ents, _ := os.ReadDir(dir); len(ents) != 0 {
+				t.Errorf("%s (write memory %d): %d files left behind, first %s", tc.name, mem, len(ents), ents[0].Name())
+			}
+		}
+	}
+	if err := WriteFile(filepath.Join(t.TempDir(), "x.hwx"), &ixSource{}, WithWriteMemory(0)); err == nil {
+		t.Error("write memory 0 accepted")
+	}
+}
+
+// windowSource is a pair-heavy synthetic Source that stores nothing per
+// pair: n binary entities "bed.NNNNNNN", each paired with the next w
+// (so about n·w pairs), tables generated from the ids on the fly.
+type windowSource struct {
+	n, w int
+	ents []EntityRecord
+}
+
+func newWindowSource(n, w int) *windowSource {
+	s := &windowSource{n: n, w: w, ents: make([]EntityRecord, n)}
+	for i := range s.ents {
+		s.ents[i] = EntityRecord{Name: fmt.Sprintf("bed.%07d", i), Values: []string{"dry", "wet"}, Marginal: []uint64{1000, 1000}}
+	}
+	return s
+}
+
+func (s *windowSource) Contexts() uint64         { return 2000 }
+func (s *windowSource) Entities() []EntityRecord { return s.ents }
+func (s *windowSource) Pairs(fn func(PairRecord) error) error {
+	counts := make([]uint32, 4)
+	for a := 0; a < s.n; a++ {
+		for b := a + 1; b <= a+s.w && b < s.n; b++ {
+			x := uint32(a*31 + b*17)
+			counts[0], counts[1], counts[2], counts[3] = 1+x%7, x%3, x%5, x%11
+			if err := fn(PairRecord{A: uint32(a), B: uint32(b), Counts: counts}); err != nil {
+				return err
+			}
+		}
+	}
+	return nil
+}
+
+// TestWriteMemoryFlatInPairs: the bytes WriteFile allocates do not grow with
+// the number of pairs. The same 3000 entities are written with 4 and with
+// 150 neighbours on each side (about 12 k vs 450 k pairs) and a write memory
+// of 1 MiB; the allocation difference must stay under 3 MiB. The in-memory
+// writer this replaced held about 48 bytes per pair (supports, ids, edges),
+// so it allocated over 20 MiB more for the larger index and fails here.
+// Not parallel: it reads the process-wide allocation counter.
+func TestWriteMemoryFlatInPairs(t *testing.T) {
+	if testing.Short() {
+		t.Skip("writes a 450k-pair index")
+	}
+	const ents = 3000
+	alloc := func(w int) (uint64, uint64) {
+		src := newWindowSource(ents, w)
+		path := filepath.Join(t.TempDir(), "w.hwx")
+		runtime.GC()
+		var before, after runtime.MemStats
+		runtime.ReadMemStats(&before)
+		if err := WriteFile(path, src, WithWriteMemory(1<<20)); err != nil {
+			t.Fatal(err)
+		}
+		runtime.ReadMemStats(&after)
+		x, err := Open(path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		defer x.Close()
+		return after.TotalAlloc - before.TotalAlloc, x.NumPairs()
+	}
+	smallB, smallP := alloc(4)
+	bigB, bigP := alloc(150)
+	t.Logf("WriteFile allocated %d bytes for %d pairs, %d bytes for %d pairs (%.2f bytes per extra pair)",
+		smallB, smallP, bigB, bigP, float64(int64(bigB)-int64(smallB))/float64(bigP-smallP))
+	if bigP < 30*smallP {
+		t.Fatalf("pair counts %d and %d are not far enough apart", smallP, bigP)
+	}
+	if bigB > smallB+3<<20 {
+		t.Errorf("write phase allocated %d bytes more for %d more pairs: memory grows with the pairs", bigB-smallB, bigP-smallP)
+	}
+}
