@@ -38,7 +38,10 @@ var (
 
 // Build reads every context of r, counts co-occurrences and writes the
 // locality index to out with WriteFile. It is Compile followed by WriteFile;
-// see Compile for the counting, the memory budget and pruning. The summary
+// see Compile for the counting, the memory budget and pruning. The write
+// streams the pairs (see WriteFile) with WithWriteMemory set to a quarter of
+// the budget, so its memory does not grow with the number of pairs; a
+// WithWriteMemory passed through WithWriteOptions overrides that. The summary
 // includes the reader's line accounting when r implements StatsReader.
 // Build stops early, removing its temporary files, when ctx is cancelled.
 func Build(ctx context.Context, r ContextReader, out string, opts ...BuildOption) (BuildSummary, error) {

@@ -22,11 +22,14 @@ func procStatus(field string) string {
 }
 
 // TestBuildPeakRSS logs the resident set after each build phase of a large
-// corpus, to check that spilling keeps the counting within the budget (the
-// target is the budget + 25%). It runs only when HOPWISE_RSS_CORPUS names a
-// corpus (see TestWriteBenchCorpus); HOPWISE_RSS_BUDGET sets the budget in
-// MiB (default 256). Like the CLI, it sets a soft memory limit equal to the
-// budget. The write phase is WriteFile's own memory, logged separately.
+// corpus, to check that spilling keeps the counting and the streaming write
+// within the budget (the target is the budget + 25%). It runs only when
+// HOPWISE_RSS_CORPUS names a corpus (see TestWriteBenchCorpus);
+// HOPWISE_RSS_BUDGET sets the budget in MiB (default 256). Like the CLI, it
+// sets a soft memory limit equal to the budget, and it gives WriteFile a
+// quarter of the budget as Build does. With HOPWISE_RSS_MAX_RATIO set (for
+// example 1.25) it fails when the peak RSS exceeds that multiple of the
+// budget.
 func TestBuildPeakRSS(t *testing.T) {
 	path := os.Getenv("HOPWISE_RSS_CORPUS")
 	if path == "" {
@@ -56,8 +59,24 @@ func TestBuildPeakRSS(t *testing.T) {
 	}
 	defer c.Close()
 	t.Logf("compiled: budget %d MiB, peak RSS %s, %d spill runs, %d pairs", mib, procStatus("VmHWM:"), sum.SpillRuns, sum.Pairs.After)
-	if err := WriteFile(filepath.Join(t.TempDir(), "rss.idx"), c); err != nil {
+	compiled := procStatus("VmHWM:")
+	if err := WriteFile(filepath.Join(t.TempDir(), "rss.idx"), c, WithWriteMemory(budget/4)); err != nil {
 		t.Fatal(err)
 	}
-	t.Logf("written: peak RSS %s (includes WriteFile)", procStatus("VmHWM:"))
+	peak := procStatus("VmHWM:")
+	kb, err := strconv.ParseInt(strings.TrimSuffix(peak, " kB"), 10, 64)
+	if err != nil {
+		t.Fatalf("VmHWM %q: %v", peak, err)
+	}
+	ratio := float64(kb<<10) / float64(budget)
+	t.Logf("written: peak RSS %s (%.2f× the budget; %s before WriteFile)", peak, ratio, compiled)
+	if v := os.Getenv("HOPWISE_RSS_MAX_RATIO"); v != "" {
+		limit, err := strconv.ParseFloat(v, 64)
+		if err != nil {
+			t.Fatalf("HOPWISE_RSS_MAX_RATIO: %v", err)
+		}
+		if ratio > limit {
+			t.Errorf("peak RSS %.2f× the budget, above HOPWISE_RSS_MAX_RATIO %.2f", ratio, limit)
+		}
+	}
 }

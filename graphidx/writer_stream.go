@@ -185,6 +185,11 @@ func (p *plan) layout() uint64 {
 func (p *plan) write(f *os.File, spoolPath string, src Source) error {
 	size := p.layout()
 	h := &p.h
+	// A zero header until the real one is written last (FORMAT.md, Writing).
+	var zero [headerSize]byte
+	if _, err := f.WriteAt(zero[:], 0); err != nil {
+		return fmt.Errorf("graphidx: write %s: %w", f.Name(), err)
+	}
 	for _, s := range []struct {
 		id   int
 		body func(*secOut)
