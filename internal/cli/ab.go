@@ -58,7 +58,10 @@ Each arm against the control (--control, default direct-only when present):
   success   difference of proportions with the Newcombe hybrid score interval
             (Newcombe 1998, method 10) and the pooled two-proportion z-test;
   score     difference of means with the Welch interval and a percentile
-            bootstrap interval (--reps, --seed);
+            bootstrap interval (--reps, --seed); when a unit key carries
+            several decisions, the bootstrap resamples whole units and the
+            report gives the design effect (its variance over that of
+            resampling decisions);
   cost      difference of means with the Welch interval.
 Sample-ratio mismatch: a chi-square test of units per arm against the
 allocation (--allocation routed=0.9,direct-only=0.1, or the arms of a router
@@ -66,8 +69,9 @@ allocation (--allocation routed=0.9,direct-only=0.1, or the arms of a router
 needed to detect a success difference D at level --alpha, at the control's
 observed rate, and the power the current sizes give.
 
-Decisions are the unit of analysis (treated as independent); units are what
-the allocation assigns. Exit status: 0 on success, 1 on any error.`,
+Decisions are the unit of analysis of the Welch, Newcombe and z figures
+(treated as independent); units are what the allocation assigns and what the
+bootstrap resamples when they repeat. Exit status: 0 on success, 1 on any error.`,
 		Example: `  hopwise ab --traces traces.jsonl
   hopwise ab --traces day1.jsonl day2.jsonl --outcomes outcomes.jsonl --allocation routed=0.5,direct-only=0.5
   hopwise ab --traces traces.jsonl --power 0.8 --mde 0.02 --json`,
@@ -167,17 +171,38 @@ type abArm struct {
 	ChainShare float64         `json:"chain_share"`
 
 	scores, costs []float64
+	byUnit        map[string][]float64 // scores per unit key
+}
+
+// unitClusters returns the arm's scores grouped by unit key, in key order.
+func (a *abArm) unitClusters() [][]float64 {
+	keys := make([]string, 0, len(a.byUnit))
+	for k := range a.byUnit {
+		keys = append(keys, k)
+	}
+	slices.Sort(keys)
+	out := make([][]float64, len(keys))
+	for i, k := range keys {
+		out[i] = a.byUnit[k]
+	}
+	return out
 }
 
 type abDiff struct {
-	Arm         string              `json:"arm"`
-	Control     string              `json:"control"`
-	Success     abstat.Interval     `json:"success_diff"` // Newcombe hybrid score
-	Z           abstat.ZTest        `json:"success_z"`
-	Score       *abstat.WelchResult `json:"score_diff_welch,omitempty"`
-	ScoreBoot   *abstat.Interval    `json:"score_diff_bootstrap,omitempty"`
-	Cost        *abstat.WelchResult `json:"cost_diff_welch,omitempty"`
-	Significant bool                `json:"success_significant"`
+	Arm       string              `json:"arm"`
+	Control   string              `json:"control"`
+	Success   abstat.Interval     `json:"success_diff"` // Newcombe hybrid score
+	Z         abstat.ZTest        `json:"success_z"`
+	Score     *abstat.WelchResult `json:"score_diff_welch,omitempty"`
+	ScoreBoot *abstat.Interval    `json:"score_diff_bootstrap,omitempty"`
+	// BootByUnit: units repeat, so the bootstrap resampled whole units
+	// (their decisions may be correlated) rather than single decisions.
+	BootByUnit bool `json:"score_bootstrap_by_unit,omitempty"`
+	// DesignEffect is the variance ratio of the unit to the decision
+	// bootstrap (1 when decisions are independent), set with BootByUnit.
+	DesignEffect float64             `json:"score_design_effect,omitempty"`
+	Cost         *abstat.WelchResult `json:"cost_diff_welch,omitempty"`
+	Significant  bool                `json:"success_significant"`
 }
 
 type abSRM struct {
@@ -292,13 +317,14 @@ func runAB(o abOptions) (*abReport, error) {
 		d, oc := j.Decision, j.Outcome
 		a := byArm[d.Arm]
 		if a == nil {
-			a = &abArm{Arm: d.Arm}
+			a = &abArm{Arm: d.Arm, byUnit: map[string][]float64{}}
 			byArm[d.Arm] = a
 			units[d.Arm] = map[string]bool{}
 		}
 		a.N++
 		units[d.Arm][d.Key] = true
 		a.scores = append(a.scores, oc.Score)
+		a.byUnit[d.Key] = append(a.byUnit[d.Key], oc.Score)
 		a.costs = append(a.costs, outcomeCost(oc, o.costPerToken))
 		if oc.Score >= o.success {
 			a.Successes++
@@ -385,7 +411,23 @@ func runAB(o abOptions) (*abReport, error) {
 		} else {
 			rep.Notes = append(rep.Notes, fmt.Sprintf("arm %s or the control has fewer than 2 outcomes: no Welch interval", a.Arm))
 		}
-		if o.reps > 0 {
+		switch {
+		case o.reps > 0 && (len(arm.byUnit) < arm.N || len(ctrl.byUnit) < ctrl.N):
+			// Units repeat: resample units, not decisions, and say how
+			// much the repetition widens the interval.
+			ua, uc := arm.unitClusters(), ctrl.unitClusters()
+			b, err := abstat.ClusterBootstrapMeanDiff(ua, uc, o.reps, o.conf, rand.New(rand.NewPCG(o.seed, 0xab)))
+			if err != nil {
+				return nil, err
+			}
+			de, err := abstat.DesignEffect(ua, uc, o.reps, rand.New(rand.NewPCG(o.seed, 0xde)))
+			if err != nil {
+				return nil, err
+			}
+			d.ScoreBoot, d.BootByUnit, d.DesignEffect = &b, true, de
+			rep.Notes = append(rep.Notes, fmt.Sprintf("arm %s vs %s: %d decisions come from %d units; the bootstrap interval resamples units, and its variance is %.2f× that of resampling decisions (design effect). The Welch, Newcombe and z figures treat decisions as independent: read them as too narrow when the design effect is well above 1",
+				a.Arm, rep.Control, arm.N+ctrl.N, len(arm.byUnit)+len(ctrl.byUnit), de))
+		case o.reps > 0:
 			b, err := abstat.BootstrapMeanDiff(arm.scores, ctrl.scores, o.reps, o.conf, rand.New(rand.NewPCG(o.seed, 0xab)))
 			if err != nil {
 				return nil, err
@@ -489,7 +531,9 @@ func (r *abReport) write(w io.Writer) error {
 		if d.Score != nil {
 			fmt.Fprintf(w, "  score    %s  Welch (df %.1f, p = %.3g)\n", fmtIv(d.Score.Interval), d.Score.DF, d.Score.P)
 		}
-		if d.ScoreBoot != nil {
+		if d.ScoreBoot != nil && d.BootByUnit {
+			fmt.Fprintf(w, "  score    %s  percentile bootstrap over units (design effect %.2f)\n", fmtIv(*d.ScoreBoot), d.DesignEffect)
+		} else if d.ScoreBoot != nil {
 			fmt.Fprintf(w, "  score    %s  percentile bootstrap\n", fmtIv(*d.ScoreBoot))
 		}
 		if d.Cost != nil {

@@ -514,3 +514,54 @@ func TestABTuneFlagErrors(t *testing.T) {
 		}
 	}
 }
+
+// TestABRepeatedUnitsResampleUnits: when a unit key carries several
+// decisions whose outcomes are correlated (here identical within a unit),
+// ab's bootstrap resamples units and reports a design effect near the
+// cluster size (Kish 1965 §5.4: 1 + (m − 1)·ρ with ρ = 1, m = 6).
+func TestABRepeatedUnitsResampleUnits(t *testing.T) {
+	t.Parallel()
+	dir := t.TempDir()
+	var spans, outs strings.Builder
+	n := 0
+	for _, arm := range []string{"direct-only", "routed"} {
+		for u := range 30 {
+			key := fmt.Sprintf("%s-bed-%02d", arm, u)
+			score := float64((u*7 + len(arm)) % 2)
+			for d := range 6 {
+				fmt.Fprintf(&spans, `{"resourceSpans":[{"scopeSpans":[{"spans":[`+
+					`{"traceId":"%032x","spanId":"%016x","name":"hopwise.decide","startTimeUnixNano":"%d",`+
+					`"attributes":[{"key":"hopwise.query.key","value":{"stringValue":"%s"}},{"key":"hopwise.route.mode","value":{"stringValue":"direct"}},`+
+					`{"key":"hopwise.ab.arm","value":{"stringValue":"%s"}},{"key":"hopwise.route.propensity","value":{"doubleValue":1}}]}]}]}]}`+"\n",
+					n+1, n+1, 1700000000000000000+int64(d), key, arm)
+				fmt.Fprintf(&outs, `{"key":%q,"score":%g}`+"\n", key, score)
+				n++
+			}
+		}
+	}
+	traces, outcomes := filepath.Join(dir, "t.jsonl"), filepath.Join(dir, "o.jsonl")
+	if err := os.WriteFile(traces, []byte(spans.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(outcomes, []byte(outs.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	rep, err := runAB(abOptions{traces: []string{traces}, outcomes: outcomes, success: 0.5, conf: 0.95, reps: 1000, seed: 1, alpha: 0.05})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if rep.Join.Joined != n || len(rep.Diffs) != 1 {
+		t.Fatalf("joined %d of %d, %d diffs", rep.Join.Joined, n, len(rep.Diffs))
+	}
+	d := rep.Diffs[0]
+	if !d.BootByUnit || d.ScoreBoot == nil || d.DesignEffect < 4 || d.DesignEffect > 8 {
+		t.Fatalf("repeated units: by unit %v, design effect %.2f (want ≈ 6), interval %v", d.BootByUnit, d.DesignEffect, d.ScoreBoot)
+	}
+	if d.Score == nil || d.ScoreBoot.Hi-d.ScoreBoot.Lo < 1.8*(d.Score.Hi-d.Score.Lo) {
+		t.Errorf("the unit bootstrap interval %v is not wider than Welch's %v", d.ScoreBoot, d.Score)
+	}
+	if !strings.Contains(strings.Join(rep.Notes, "\n"), "design effect") {
+		t.Errorf("no note on the repeated units: %q", rep.Notes)
+	}
+	t.Logf("design effect %.2f; unit bootstrap %v vs Welch %v", d.DesignEffect, d.ScoreBoot, d.Score.Interval)
+}
