@@ -65,7 +65,8 @@ else direct", the value it would have had:
 
   IPS     inverse propensity scoring,
   SNIPS   self-normalised IPS,
-  DR      doubly robust, with a binned per-mode outcome model fitted on the logs,
+  DR      doubly robust, with a binned per-mode outcome model fitted on the logs
+          and cross-fitted over --folds folds,
 
 each with a percentile (Poisson) bootstrap interval, the cost estimated the
 same way, and the effective sample size. Decisions are weighted by
