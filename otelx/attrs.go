@@ -46,12 +46,15 @@ const (
 
 // Metric names.
 const (
-	MetricDecisions       = "hopwise.decisions"         // counter, by mode and arm
+	// MetricDecisions counts decisions by mode, arm and cache result:
+	// the decision cache's hits and misses are its hopwise.cache.result
+	// dimension (one measurement per decision instead of two).
+	MetricDecisions       = "hopwise.decisions"         // counter, by mode, arm and hopwise.cache.result
 	MetricDecisionLatency = "hopwise.decision.duration" // histogram, seconds, by mode and arm
-	MetricCache           = "hopwise.decision.cache"    // counter, by hopwise.cache.result = hit|miss
 	MetricGain            = "hopwise.route.gain"        // histogram of gain, decisions with a chain
 	MetricOutcomeScore    = "hopwise.outcome.score"     // histogram of outcome scores, by mode and arm
 
-	// KeyCacheResult labels MetricCache.
+	// KeyCacheResult labels MetricDecisions: "hit" or "miss" (absent on
+	// failed decisions, mode "error").
 	KeyCacheResult = "hopwise.cache.result"
 )

@@ -12,10 +12,12 @@
 // support, chain error, hops and bridges, reason, truncation, arm,
 // propensity, exploration, index generation, sampling ratio, unit key).
 // They are built only when the span is recording. Metrics: decisions by
-// mode and arm, decision latency, cache hits and misses, the gain; their
+// mode, arm and cache result (hit or miss), decision latency, the gain; their
 // attribute sets and measurement options are prebuilt, and every call is
 // guarded by the instrument's Enabled. The otel noop providers are
-// recognised and cost nothing per decision.
+// recognised and cost nothing per decision; so are the otel global
+// providers until an SDK is installed behind them (one atomic load each
+// per decision to notice when it is).
 //
 // WithEntityHashKey replaces entity names and values in spans by a keyed
 // HMAC-SHA256 (RFC 2104), truncated to 128 bits. WithSamplingRatio records

@@ -10,6 +10,7 @@ import (
 	"hash"
 	"math"
 	"reflect"
+	"slices"
 	"strconv"
 	"sync"
 	"sync/atomic"
@@ -145,6 +146,7 @@ type Instrumentation struct {
 	// Enabled checks are skipped too.
 	metricsOff bool
 	off        bool // tracer nil and metricsOff
+	idleable   bool // tracer nil or global, and metricsOff or meter global
 	// globalTP and globalMP are the otel global delegating providers,
 	// captured at New while no SDK had been installed behind them (nil
 	// otherwise). Until otel.SetTracerProvider (SetMeterProvider) installs
@@ -155,15 +157,13 @@ type Instrumentation struct {
 
 	decisions metric.Int64Counter
 	latency   metric.Float64Histogram
-	cache     metric.Int64Counter
 	gain      metric.Float64Histogram
 	outcome   metric.Float64Histogram
 
 	sets     [3][len(knownArms)]attrOpts // [mode][arm]: direct, chain, error
 	extra    sync.Map                    // unknown arm name → *[3]attrOpts
-	hitOpts  []metric.AddOption
-	missOpts []metric.AddOption
 	ratioVal float64
+	epoch    time.Time // New's time, with its monotonic reading
 }
 
 var knownArms = [...]string{"", router.ArmRouted, router.ArmDirectOnly, router.ArmChainAlways}
@@ -198,6 +198,7 @@ func New(opts ...Option) (*Instrumentation, error) {
 		ratioSet: cfg.ratioSet,
 		ratioVal: cfg.ratio,
 		compact:  cfg.compact,
+		epoch:    time.Now(),
 	}
 	// The otel noop provider records nothing by contract, so its spans are
 	// skipped outright (no context allocation per decision). Any other
@@ -223,14 +224,11 @@ func New(opts ...Option) (*Instrumentation, error) {
 	meter := cfg.mp.Meter(ScopeName, metric.WithInstrumentationVersion(Version))
 	var err, e error
 	in.decisions, e = meter.Int64Counter(MetricDecisions, metric.WithUnit("{decision}"),
-		metric.WithDescription("Routing decisions by mode and A/B arm."))
+		metric.WithDescription("Routing decisions by mode, A/B arm and decision cache result (hit or miss; none for failed decisions)."))
 	err = errors.Join(err, e)
 	in.latency, e = meter.Float64Histogram(MetricDecisionLatency, metric.WithUnit("s"),
 		metric.WithDescription("Time to decide a route."),
 		metric.WithExplicitBucketBoundaries(1e-6, 2.5e-6, 5e-6, 1e-5, 2.5e-5, 5e-5, 1e-4, 2.5e-4, 5e-4, 1e-3, 5e-3, 0.01, 0.05))
-	err = errors.Join(err, e)
-	in.cache, e = meter.Int64Counter(MetricCache, metric.WithUnit("{decision}"),
-		metric.WithDescription("Decision cache hits and misses."))
 	err = errors.Join(err, e)
 	in.gain, e = meter.Float64Histogram(MetricGain, metric.WithUnit("1"),
 		metric.WithDescription("Estimated error reduction of the best chain over the direct answer."),
@@ -244,32 +242,39 @@ func New(opts ...Option) (*Instrumentation, error) {
 		return nil, fmt.Errorf("otelx: create instruments: %w", err)
 	}
 	in.off = in.tracer == nil && in.metricsOff
+	in.idleable = (in.tracer == nil || in.globalTP != nil) && (in.metricsOff || in.globalMP != nil)
 	for m := range in.sets {
 		for a, arm := range knownArms {
 			in.sets[m][a] = modeArmSet(modeNames[m], arm)
 		}
 	}
-	in.hitOpts = []metric.AddOption{metric.WithAttributeSet(attribute.NewSet(attribute.String(KeyCacheResult, "hit")))}
-	in.missOpts = []metric.AddOption{metric.WithAttributeSet(attribute.NewSet(attribute.String(KeyCacheResult, "miss")))}
 	return in, nil
 }
 
-// attrOpts holds the measurement options of one (mode, arm) attribute
-// set, built once so that recording allocates nothing.
+// attrOpts holds the measurement options of one (mode, arm): the
+// decision counter's, by cache result, and the histograms'. They are built
+// once, so that recording allocates nothing.
 type attrOpts struct {
-	add []metric.AddOption
+	add [2][]metric.AddOption // [miss, hit]; the same set for the error mode
 	rec []metric.RecordOption
 }
 
 func modeArmSet(mode, arm string) attrOpts {
-	var set attribute.Set
-	if arm == "" {
-		set = attribute.NewSet(attribute.String(KeyRouteMode, mode))
-	} else {
-		set = attribute.NewSet(attribute.String(KeyRouteMode, mode), attribute.String(KeyABArm, arm))
+	kvs := []attribute.KeyValue{attribute.String(KeyRouteMode, mode)}
+	if arm != "" {
+		kvs = append(kvs, attribute.String(KeyABArm, arm))
 	}
-	o := metric.WithAttributeSet(set)
-	return attrOpts{add: []metric.AddOption{o}, rec: []metric.RecordOption{o}}
+	var o attrOpts
+	o.rec = []metric.RecordOption{metric.WithAttributeSet(attribute.NewSet(kvs...))}
+	for i, res := range [2]string{"miss", "hit"} {
+		if mode == modeNames[modeError] {
+			o.add[i] = []metric.AddOption{metric.WithAttributeSet(attribute.NewSet(kvs...))}
+			continue
+		}
+		withRes := append(slices.Clip(kvs), attribute.String(KeyCacheResult, res))
+		o.add[i] = []metric.AddOption{metric.WithAttributeSet(attribute.NewSet(withRes...))}
+	}
+	return o
 }
 
 // set returns the prebuilt options of (mode, arm).
@@ -317,14 +322,15 @@ func (in *Instrumentation) hmacHex(name string) string {
 
 // Decide calls r.Decide inside a span named SpanDecide and records the
 // decision metrics. Span attributes are built only when the span is
-// recording, the latency is measured only when a span records or the
-// latency histogram is enabled, and each metric call is guarded by its
-// instrument's Enabled. With the otel noop providers, or the otel globals
+// recording, the latency is measured only when the latency histogram is
+// enabled, and each metric call is guarded by its instrument's Enabled. With the otel noop providers, or the otel globals
 // before an SDK is installed behind them, it calls r.Decide and nothing
 // else.
 func (in *Instrumentation) Decide(ctx context.Context, r *router.Router, q router.Query) (router.Decision, error) {
-	if in.off {
-		return r.Decide(ctx, q) // both providers are the otel noop ones
+	// off: both providers are the otel noop ones. idleable: each is noop
+	// or an otel global, which records nothing until an SDK is installed.
+	if in.off || (in.idleable && !in.tracing() && !in.metering()) {
+		return r.Decide(ctx, q)
 	}
 	return in.decide(ctx, r, q)
 }
@@ -344,24 +350,24 @@ func (in *Instrumentation) metering() bool {
 // case costs one branch and a call.
 func (in *Instrumentation) decide(ctx context.Context, r *router.Router, q router.Query) (router.Decision, error) {
 	tracing, metering := in.tracing(), in.metering()
-	if !tracing && !metering {
-		return r.Decide(ctx, q)
-	}
 	var span trace.Span
 	recording := false
+	spanCtx := ctx
 	if tracing {
-		ctx, span = in.tracer.Start(ctx, SpanDecide)
+		spanCtx, span = in.tracer.Start(ctx, SpanDecide)
 		recording = span.IsRecording()
 	}
-	timed := recording || (metering && in.latency.Enabled(ctx))
-	var start time.Time
+	// Monotonic readings since New: one clock read each, where time.Now
+	// reads the wall clock as well.
+	timed := metering && in.latency.Enabled(spanCtx)
+	var start time.Duration
 	if timed {
-		start = time.Now()
+		start = time.Since(in.epoch)
 	}
-	d, err := r.Decide(ctx, q)
+	d, err := r.Decide(spanCtx, q)
 	var elapsed time.Duration
 	if timed {
-		elapsed = time.Since(start)
+		elapsed = time.Since(in.epoch) - start
 	}
 	if recording {
 		bp := attrPool.Get().(*[]attribute.KeyValue)
@@ -385,13 +391,17 @@ func (in *Instrumentation) decide(ctx context.Context, r *router.Router, q route
 		span.End()
 	}
 	if metering {
-		in.measure(ctx, &d, err, timed, elapsed)
+		in.measure(ctx, spanCtx, &d, err, timed, elapsed)
 	}
 	return d, err
 }
 
-// measure records the decision metrics, each guarded by Enabled.
-func (in *Instrumentation) measure(ctx context.Context, d *router.Decision, err error, timed bool, elapsed time.Duration) {
+// measure records the decision metrics, each guarded by Enabled. The
+// latency is recorded in the decision span's context, so that an SDK
+// exemplar of the latency histogram points at the decision's span; the
+// counter and the gain in the caller's context (an exemplar there would
+// add nothing, and the SDK reads the clock for each exemplar it offers).
+func (in *Instrumentation) measure(ctx, spanCtx context.Context, d *router.Decision, err error, timed bool, elapsed time.Duration) {
 	mode := modeError
 	if err == nil {
 		mode = int(d.Mode)
@@ -401,22 +411,16 @@ func (in *Instrumentation) measure(ctx context.Context, d *router.Decision, err 
 	}
 	set := in.set(mode, d.Arm)
 	if in.decisions.Enabled(ctx) {
-		in.decisions.Add(ctx, 1, set.add...)
-	}
-	if timed && in.latency.Enabled(ctx) {
-		in.latency.Record(ctx, elapsed.Seconds(), set.rec...)
-	}
-	if err != nil {
-		return
-	}
-	if in.cache.Enabled(ctx) {
-		opts := in.missOpts
-		if d.Cached {
-			opts = in.hitOpts
+		hit := 0
+		if err == nil && d.Cached {
+			hit = 1
 		}
-		in.cache.Add(ctx, 1, opts...)
+		in.decisions.Add(ctx, 1, set.add[hit]...)
 	}
-	if d.Chain != nil && in.gain.Enabled(ctx) {
+	if timed {
+		in.latency.Record(spanCtx, elapsed.Seconds(), set.rec...)
+	}
+	if err == nil && d.Chain != nil && in.gain.Enabled(ctx) {
 		in.gain.Record(ctx, d.Gain, set.rec...)
 	}
 }

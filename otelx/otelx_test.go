@@ -132,6 +132,11 @@ func TestDecideSpanAndMetrics(t *testing.T) {
 	}
 	got := map[string]int64{}
 	var latencyCount, gainCount uint64
+	latencyExemplars := 0
+	spanIDs := map[string]bool{}
+	for _, sp := range spans {
+		spanIDs[sp.SpanContext().SpanID().String()] = true
+	}
 	for _, sm := range rm.ScopeMetrics {
 		if sm.Scope.Name != ScopeName || sm.Scope.Version != Version {
 			t.Errorf("meter scope %+v", sm.Scope)
@@ -150,6 +155,14 @@ func TestDecideSpanAndMetrics(t *testing.T) {
 					switch m.Name {
 					case MetricDecisionLatency:
 						latencyCount += dp.Count
+						// The SDK's trace-based exemplars link the
+						// latency to the decision spans.
+						for _, ex := range dp.Exemplars {
+							if !spanIDs[hex.EncodeToString(ex.SpanID)] {
+								t.Errorf("latency exemplar span %x is no decision span", ex.SpanID)
+							}
+							latencyExemplars++
+						}
 					case MetricGain:
 						gainCount += dp.Count
 					}
@@ -159,15 +172,20 @@ func TestDecideSpanAndMetrics(t *testing.T) {
 	}
 	mode := d.Mode.String()
 	want := map[string]int64{
-		MetricDecisions + "|" + mode + "|routed|": 2,
-		MetricDecisions + "|error||":              1,
-		MetricCache + "|||hit":                    1,
-		MetricCache + "|||miss":                   1,
+		MetricDecisions + "|" + mode + "|routed|miss": 1,
+		MetricDecisions + "|" + mode + "|routed|hit":  1,
+		MetricDecisions + "|error||":                  1,
+	}
+	if len(got) != len(want) {
+		t.Errorf("metric points %v, want %v", got, want)
 	}
 	for k, v := range want {
 		if got[k] != v {
 			t.Errorf("metric %s = %d, want %d (all: %v)", k, got[k], v, got)
 		}
+	}
+	if latencyExemplars == 0 {
+		t.Error("no latency exemplar: the latency is not recorded in the decision span's context")
 	}
 	if latencyCount != 3 || gainCount != 2 {
 		t.Errorf("latency count %d (want 3), gain count %d (want 2)", latencyCount, gainCount)
