@@ -200,7 +200,7 @@ func BenchmarkDecideCachedParallel(b *testing.B) {
 
 func benchUncached(b *testing.B, opts ...Option) {
 	ix, src := benchIndex(b)
-	r, err := New(nonClosing{ix}, append([]Option{WithCacheSize(0)}, opts...)...)
+	r, err := New(wrapIndex(ix), append([]Option{WithCacheSize(0)}, opts...)...)
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -236,7 +236,7 @@ func BenchmarkDecideUncachedH1(b *testing.B) { benchUncached(b, WithMaxBridges(1
 // hub) to random entities.
 func BenchmarkDecideHub(b *testing.B) {
 	ix, src := benchIndex(b)
-	r, err := New(nonClosing{ix}, WithCacheSize(0))
+	r, err := New(wrapIndex(ix), WithCacheSize(0))
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -329,12 +329,12 @@ func TestLatencyProfile(t *testing.T) {
 	}
 	t.Logf("index: %d entities, %d pairs, hub degree %d", ix.NumEntities(), ix.NumPairs(), ix.Degree(0))
 	for _, h := range []int{1, 2, 3} {
-		r, err := New(nonClosing{ix}, WithCacheSize(0), WithMaxBridges(h))
+		r, err := New(wrapIndex(ix), WithCacheSize(0), WithMaxBridges(h))
 		if err != nil {
 			t.Fatal(err)
 		}
 		run(fmt.Sprintf("H=%d", h), r, qs)
 	}
-	r, _ := New(nonClosing{ix}, WithCacheSize(0))
+	r, _ := New(wrapIndex(ix), WithCacheSize(0))
 	run("hub H=3", r, hubQs)
 }

@@ -33,6 +33,7 @@ type Router struct {
 // reaches zero it can never be acquired again.
 type handle struct {
 	g    Graph
+	pb   PairBatcher // g's batch look-up, or nil
 	seq  uint64
 	gen  uint64
 	refs atomic.Int64
@@ -105,6 +106,7 @@ func NewWithRetireHook(g Graph, hook func(old Graph, closeErr error), opts ...Op
 
 func (r *Router) newHandle(g Graph) *handle {
 	h := &handle{g: g, seq: r.seq.Add(1), gen: g.Generation(), r: r}
+	h.pb, _ = g.(PairBatcher)
 	h.refs.Store(1)
 	return h
 }
@@ -286,12 +288,12 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 
 	sc := r.pool.Get().(*scratch)
 	defer func() { sc.reset(); r.pool.Put(sc) }()
-	sc.g, sc.model, sc.st, sc.s, sc.t = g, st.model, st, s, t
+	sc.g, sc.model, sc.st, sc.s, sc.t, sc.pb = g, st.model, st, s, t, h.pb
 	sc.hb = st.model.HopBias()
 	sc.bud = budget{left: st.budget, nextCheck: deadlinePoll, done: ctx.Done()}
 	sc.u = u
 
-	dir, err := st.model.Direct(sc.ws, g, s, u, t)
+	dir, err := st.model.Direct(sc.ws, sc, s, u, t)
 	if err != nil {
 		return core{}, false, nil, fmt.Errorf("router: direct estimate %q=%q → %q: %w", q.From, q.Value, q.To, err)
 	}
@@ -301,7 +303,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 		// The pair's own counts carry no screening-off bias.
 		sc.ref = sc.ddist
 	}
-	_, adjacent := g.Pair(s, t)
+	_, adjacent := sc.pairStats(s, t)
 
 	res := sc.generate(adjacent)
 
@@ -350,7 +352,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 		}
 		scored++
 		sc.path = append(sc.path[:0], cd.b[:cd.m]...)
-		est, err := st.model.Chain(sc.ws, g, s, u, sc.path, t)
+		est, err := st.model.Chain(sc.ws, sc, s, u, sc.path, t)
 		if err != nil {
 			return core{}, false, nil, fmt.Errorf("router: chain estimate %q → %q: %w", q.From, q.To, err)
 		}
@@ -394,7 +396,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 			if i < int(cd.m) {
 				b = cd.b[i]
 			}
-			ps, ok := g.Pair(prev, b)
+			ps, ok := sc.pairStats(prev, b)
 			if !ok {
 				minSup = 0
 			} else if sp := ps.Support(); sp < minSup {

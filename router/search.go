@@ -62,6 +62,15 @@ import (
 // so a hub with millions of neighbours costs at most the budget; the
 // context's deadline is polled every 256 units.
 //
+// Every pair is read from the graph once per decision (pairMemo; stage 2
+// and the direct estimate read the memo too). When the graph implements
+// PairBatcher, the pairs of the one-bridge phase and of the joins are
+// fetched in one batch each before the phase (prefetchJoins), so that their
+// cache misses overlap; the phase then finds them in the memo. The budget
+// is charged per edge by the phase exactly as without the batch, so no
+// decision changes; a batch holds at most the look-ups the remaining budget
+// allows, so a decision's graph look-ups stay below twice the budget's.
+//
 // Completeness: the result is the exact optimum of the rule above over all
 // simple chains of at most H bridges whenever Truncated is false, i.e. when
 // the intersection was not cut, (F2 and T1) or (F1 and T2) hold every path
@@ -183,6 +192,15 @@ type scratch struct {
 	}
 	incDist []float64
 	err     error // model failure during generation
+	memo    pairMemo
+	pb      PairBatcher // the graph's batch look-up, or nil
+	pend    struct {    // pairs queued for fetch
+		lo, hi []graphidx.EntityID
+		ps     []graphidx.PairStats
+		ok     []bool
+	}
+	pendMax int
+	touched uint32 // sink of fetch's table touches
 
 	// per call
 	u      int
@@ -199,13 +217,14 @@ type scratch struct {
 func newScratch() *scratch { return &scratch{ws: scorer.NewWorkspace()} }
 
 func (sc *scratch) reset() {
-	sc.g, sc.model, sc.st = nil, nil, nil
+	sc.g, sc.model, sc.st, sc.pb = nil, nil, nil, nil
 	clear(sc.rks[:cap(sc.rks)]) // drop references into the index
 	sc.kCut = false
 	sc.bud = budget{}
 	sc.inc.ok = false
 	sc.err = nil
 	sc.ref = nil
+	sc.memo.clear() // drop references into the index
 }
 
 // edge returns the proxy cost of the pair (a, b); ok is false when the pair
@@ -219,11 +238,15 @@ func (sc *scratch) edge(a, b graphidx.EntityID) (float64, bool) {
 	if a > b {
 		a, b = b, a
 	}
-	ps, ok := sc.g.Pair(a, b)
-	if !ok {
+	e := sc.memo.get(sc.g, a, b)
+	if !e.ok {
 		return 0, false
 	}
-	return sc.model.EdgeCost(ps), true
+	if c := e.cost; c == c { // not NaN: computed before
+		return c, true
+	}
+	e.cost = sc.model.EdgeCost(e.ps)
+	return e.cost, true
 }
 
 // intersect puts a ∩ b (both ascending) into sc.hits. It reports false when
@@ -586,6 +609,15 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 		complete = false
 	}
 	sc.bud.unlimit(held2)
+	if sc.beginPrefetch(sc.bud.left/lookupUnits + 1) {
+		for _, z := range sc.hits {
+			if z != s && z != t {
+				sc.want(s, z)
+				sc.want(z, t)
+			}
+		}
+		sc.fetch()
+	}
 	for _, z := range sc.hits {
 		if z == s || z == t {
 			continue
@@ -641,6 +673,8 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 	sc.t1s = sc.sortSteps1(sc.t1s, sc.t1)
 	sc.f2s = sc.sortSteps2(sc.f2s, sc.f2)
 	sc.t2s = sc.sortSteps2(sc.t2s, sc.t2)
+	skip3 := H < 3 || (sc.inc.ok && sc.bound(3) <= sc.inc.score)
+	sc.prefetchJoins(skip3)
 
 	// m = 2: F2 ⋈ T1 (s→a→b, b→t) and F1 ⋈ T2 (s→b, t→c→b). Costs are
 	// summed in path order so a chain met by both joins costs the same.
@@ -693,7 +727,7 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 		return sc.result(complete)
 	}
 
-	if sc.inc.ok && sc.bound(3) <= sc.inc.score {
+	if skip3 {
 		return sc.result(complete)
 	}
 
@@ -734,6 +768,78 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 	}
 	complete = complete && f2ok && t2ok
 	return sc.result(complete)
+}
+
+// prefetchJoins queues and fetches the pairs the joins below will read:
+// for every match of F2 ⋈ T1, F1 ⋈ T2 and (unless skip3) F2 ⋈ T2, each of
+// its edges. It walks the same sort-merges as the joins, without costs.
+func (sc *scratch) prefetchJoins(skip3 bool) {
+	if !sc.beginPrefetch(sc.bud.left/lookupUnits + 1) {
+		return
+	}
+	s, t, f1, t1 := sc.s, sc.t, sc.f1, sc.t1
+	for i, j := 0, 0; i < len(sc.f2s) && j < len(sc.t1s); {
+		f := &sc.f2s[i]
+		switch y := t1[sc.t1s[j]].id; {
+		case f.b < y:
+			i++
+		case f.b > y:
+			j++
+		default:
+			i++
+			sc.want(s, f.a)
+			sc.want(f.a, f.b)
+			sc.want(y, t)
+		}
+	}
+	for i, j := 0, 0; i < len(sc.f1s) && j < len(sc.t2s); {
+		y := &sc.t2s[j]
+		switch x := f1[sc.f1s[i]].id; {
+		case x < y.b:
+			i++
+		case x > y.b:
+			j++
+		default:
+			j++
+			sc.want(s, x)
+			sc.want(x, y.a)
+			sc.want(y.a, t)
+		}
+	}
+	if !skip3 {
+		for i, j := 0, 0; i < len(sc.f2s) && j < len(sc.t2s); {
+			fb, tb := sc.f2s[i].b, sc.t2s[j].b
+			switch {
+			case fb < tb:
+				i++
+			case fb > tb:
+				j++
+			default:
+				ie, je := i, j
+				for ie < len(sc.f2s) && sc.f2s[ie].b == fb {
+					ie++
+				}
+				for je < len(sc.t2s) && sc.t2s[je].b == fb {
+					je++
+				}
+				for fi := i; fi < ie; fi++ {
+					f := &sc.f2s[fi]
+					for yi := j; yi < je; yi++ {
+						y := &sc.t2s[yi]
+						if f.a == y.a {
+							continue
+						}
+						sc.want(s, f.a)
+						sc.want(f.a, fb)
+						sc.want(fb, y.a)
+						sc.want(y.a, t)
+					}
+				}
+				i, j = ie, je
+			}
+		}
+	}
+	sc.fetch()
 }
 
 func (sc *scratch) result(complete bool) searchResult {
@@ -796,7 +902,7 @@ func (sc *scratch) bound(m int) float64 { return sc.scoreOf(sc.dirErr-sc.hb*floa
 // set) when the model fails.
 func (sc *scratch) scoreIncumbent(c cand) bool {
 	sc.path = append(sc.path[:0], c.b[:c.m]...)
-	est, err := sc.model.Chain(sc.ws, sc.g, sc.s, sc.u, sc.path, sc.t)
+	est, err := sc.model.Chain(sc.ws, sc, sc.s, sc.u, sc.path, sc.t)
 	if err != nil {
 		sc.err = err
 		return false

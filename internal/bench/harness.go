@@ -629,8 +629,21 @@ func newRouter(g router.Graph, model scorer.Model, b Bounds, cache int) (*router
 	return router.New(noClose{g}, opts...)
 }
 
-// noClose keeps the shared index open when a router retires it.
+// noClose keeps the shared index open when a router retires it. It
+// forwards the index's batch pair look-up (router.PairBatcher).
 type noClose struct{ router.Graph }
+
+// PairBatch forwards to the graph's PairBatch, or looks the pairs up one by
+// one when it has none.
+func (n noClose) PairBatch(a, b []graphidx.EntityID, out []graphidx.PairStats, ok []bool) {
+	if pb, has := n.Graph.(router.PairBatcher); has {
+		pb.PairBatch(a, b, out, ok)
+		return
+	}
+	for i := range a {
+		out[i], ok[i] = n.Graph.Pair(a[i], b[i])
+	}
+}
 
 // makeQueries draws n queries: From uniform over entities, a uniform value
 // of From, To uniform and different.

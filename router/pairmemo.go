@@ -1,0 +1,235 @@
+package router
+
+import (
+	"math"
+
+	"github.com/hopwise/hopwise/graphidx"
+)
+
+// pairMemo remembers the pair look-ups of one decision, keyed by the
+// unordered pair, with the pair's edge cost once computed. Generation looks
+// every edge of every candidate up, and stage 2 (model.Chain through the
+// scratch's Stats view), the adjacency test, the direct estimate and the
+// MinSupport pass read the same pairs again: on the 100k-entity benchmark
+// index a decision made 116 Graph.Pair calls, about half of them repeats,
+// each a binary search in a (often hub-sized) adjacency list.
+//
+// The table is open-addressed with linear probing (Knuth, TAOCP vol. 3
+// §6.4, algorithm L) on a multiplicative hash of lo<<32|hi, kept at most
+// half full; the slots used in a decision are listed so that clear drops
+// only those (and with them every reference into index memory). O(1)
+// expected per look-up; no allocation once the table has grown to the
+// largest decision seen.
+type pairMemo struct {
+	tab   []memoEntry
+	used  []int32 // occupied slots, in insertion order
+	shift uint    // 64 − log2(len(tab))
+}
+
+// find returns the slot of key, or of the empty slot where it belongs.
+func (m *pairMemo) find(key uint64) (int, bool) {
+	mask := len(m.tab) - 1
+	for i := memoHash(key, m.shift); ; i = (i + 1) & mask {
+		e := &m.tab[i]
+		if !e.full {
+			return i, false
+		}
+		if e.key == key {
+			return i, true
+		}
+	}
+}
+
+// reserve enters (lo, hi) without statistics and reports true, or reports
+// false when the pair is already remembered. The caller must fill the
+// entry (fetch) before the next get.
+func (m *pairMemo) reserve(lo, hi graphidx.EntityID) bool {
+	if m.tab == nil {
+		m.init(memoMinSlots)
+	}
+	key := uint64(lo)<<32 | uint64(hi)
+	i, found := m.find(key)
+	if found {
+		return false
+	}
+	if 2*(len(m.used)+1) > len(m.tab) {
+		m.grow()
+		i, _ = m.find(key)
+	}
+	m.tab[i] = memoEntry{key: key, full: true}
+	m.used = append(m.used, int32(i))
+	return true
+}
+
+// memoEntry is one remembered pair (lo, hi), lo < hi or lo == hi.
+type memoEntry struct {
+	key  uint64 // lo<<32 | hi
+	full bool
+	ok   bool               // the graph has statistics for the pair
+	cost float64            // model.EdgeCost(ps), NaN until computed
+	ps   graphidx.PairStats // in (lo, hi) orientation
+}
+
+const memoMinSlots = 256
+
+func memoHash(key uint64, shift uint) int { return int((key * 0x9e3779b97f4a7c15) >> shift) }
+
+// get returns the entry of (lo, hi), looking the pair up in g on the first
+// request. The pointer is valid until the next get.
+func (m *pairMemo) get(g Graph, lo, hi graphidx.EntityID) *memoEntry {
+	if m.tab == nil {
+		m.init(memoMinSlots)
+	}
+	key := uint64(lo)<<32 | uint64(hi)
+	i, found := m.find(key)
+	if found {
+		return &m.tab[i]
+	}
+	if 2*(len(m.used)+1) > len(m.tab) {
+		m.grow()
+		i, _ = m.find(key)
+	}
+	e := &m.tab[i]
+	ps, ok := g.Pair(lo, hi)
+	*e = memoEntry{key: key, full: true, ok: ok, cost: math.NaN(), ps: ps}
+	m.used = append(m.used, int32(i))
+	return e
+}
+
+func (m *pairMemo) init(slots int) {
+	m.tab = make([]memoEntry, slots)
+	m.shift = uint(64 - log2(slots))
+	m.used = m.used[:0]
+}
+
+// grow doubles the table and re-inserts the entries in insertion order.
+func (m *pairMemo) grow() {
+	old, oldUsed := m.tab, m.used
+	m.init(2 * len(old))
+	mask := len(m.tab) - 1
+	for _, j := range oldUsed {
+		e := &old[j]
+		i := memoHash(e.key, m.shift)
+		for m.tab[i].full {
+			i = (i + 1) & mask
+		}
+		m.tab[i] = *e
+		m.used = append(m.used, int32(i))
+	}
+}
+
+// clear empties the table in O(entries used).
+func (m *pairMemo) clear() {
+	for _, i := range m.used {
+		m.tab[i] = memoEntry{}
+	}
+	m.used = m.used[:0]
+}
+
+func log2(n int) int {
+	l := 0
+	for 1<<l < n {
+		l++
+	}
+	return l
+}
+
+// pairStats returns the statistics of the ordered pair (a, b) through the
+// memo: one Graph.Pair call per unordered pair and decision, the reverse
+// orientation by PairStats.Transpose (the same view Graph.Pair(b, a)
+// returns; graphidx.PairStats counts mean a=u, b=v whichever way the pair
+// is stored).
+func (sc *scratch) pairStats(a, b graphidx.EntityID) (graphidx.PairStats, bool) {
+	lo, hi := a, b
+	if a > b {
+		lo, hi = b, a
+	}
+	e := sc.memo.get(sc.g, lo, hi)
+	if !e.ok {
+		return e.ps, false
+	}
+	if a > b {
+		return e.ps.Transpose(), true
+	}
+	return e.ps, true
+}
+
+// PairBatcher is an optional interface of a Graph: PairBatch sets out[i],
+// ok[i] = Pair(a[i], b[i]) for every i < len(a) (b, out and ok at least as
+// long as a), in less time than as many Pair calls. *graphidx.Index
+// implements it. When the graph does, the search fetches the pairs that a
+// phase will read in one batch before the phase starts (see fetch); a
+// wrapper around an Index should forward the method.
+type PairBatcher interface {
+	PairBatch(a, b []graphidx.EntityID, out []graphidx.PairStats, ok []bool)
+}
+
+// want queues the unordered pair {a, b} for the next fetch unless the
+// memo already has it or the queue holds sc.pendMax pairs.
+func (sc *scratch) want(a, b graphidx.EntityID) {
+	if len(sc.pend.lo) >= sc.pendMax {
+		return
+	}
+	if a > b {
+		a, b = b, a
+	}
+	if sc.memo.reserve(a, b) {
+		sc.pend.lo = append(sc.pend.lo, a)
+		sc.pend.hi = append(sc.pend.hi, b)
+	}
+}
+
+// beginPrefetch starts a queue of at most n pairs (n ≥ 0). It reports false
+// (and queues nothing) when the graph has no PairBatch.
+func (sc *scratch) beginPrefetch(n int) bool {
+	if sc.pb == nil || n <= 0 {
+		return false
+	}
+	sc.pendMax = n
+	sc.pend.lo, sc.pend.hi = sc.pend.lo[:0], sc.pend.hi[:0]
+	return true
+}
+
+// fetch looks the queued pairs up with one PairBatch call, fills their
+// memo slots and computes their edge costs, so that the phase that follows
+// finds every pair in the memo. It changes no decision: the memo returns
+// what Graph.Pair would, and the budget is still charged per edge by the
+// phase itself (sc.edge). Pairs the phase then prunes were fetched in vain;
+// on the benchmark index that is about one in eight.
+func (sc *scratch) fetch() {
+	n := len(sc.pend.lo)
+	if n == 0 {
+		return
+	}
+	if cap(sc.pend.ps) < n {
+		sc.pend.ps = make([]graphidx.PairStats, n)
+		sc.pend.ok = make([]bool, n)
+	}
+	ps, ok := sc.pend.ps[:n], sc.pend.ok[:n]
+	sc.pb.PairBatch(sc.pend.lo, sc.pend.hi, ps, ok)
+	// Touch every table first: independent loads whose cache misses
+	// overlap, instead of one miss per EdgeCost below.
+	var touch uint32
+	for i := range ps {
+		if ok[i] {
+			touch += ps[i].Count(0, 0)
+		}
+	}
+	sc.touched += touch
+	for i, lo := range sc.pend.lo {
+		j, _ := sc.memo.find(uint64(lo)<<32 | uint64(sc.pend.hi[i]))
+		e := &sc.memo.tab[j]
+		e.ok, e.ps, e.cost = ok[i], ps[i], math.NaN()
+		if ok[i] {
+			e.cost = sc.model.EdgeCost(ps[i])
+		}
+		ps[i] = graphidx.PairStats{} // drop the reference into the index
+	}
+	sc.pend.lo, sc.pend.hi = sc.pend.lo[:0], sc.pend.hi[:0]
+}
+
+// NumValues implements scorer.Stats for the model calls of a decision.
+func (sc *scratch) NumValues(id graphidx.EntityID) int { return sc.g.NumValues(id) }
+
+// Pair implements scorer.Stats through the decision's pair memo.
+func (sc *scratch) Pair(a, b graphidx.EntityID) (graphidx.PairStats, bool) { return sc.pairStats(a, b) }

@@ -1,0 +1,239 @@
+package router
+
+import (
+	"context"
+	"crypto/sha256"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"reflect"
+	"runtime"
+	"testing"
+
+	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/scorer"
+)
+
+// batchGraph gives a Graph a PairBatch made of Pair calls, so that the
+// router takes its prefetching path on any test graph.
+type batchGraph struct {
+	Graph
+	batches int
+}
+
+func (g *batchGraph) PairBatch(a, b []graphidx.EntityID, out []graphidx.PairStats, ok []bool) {
+	g.batches++
+	for i := range a {
+		out[i], ok[i] = g.Pair(a[i], b[i])
+	}
+}
+
+// nonClosingIndex keeps a shared index open (like nonClosing) and forwards
+// its PairBatch.
+type nonClosingIndex struct {
+	nonClosing
+	PairBatcher
+}
+
+func wrapIndex(ix *graphidx.Index) nonClosingIndex { return nonClosingIndex{nonClosing{ix}, ix} }
+
+// TestPrefetchMatchesSequential: the batch prefetch and the pair memo change
+// no decision. Every query of the brute-force graphs, under loose and tight
+// bounds, decides the same with a PairBatcher graph as with the plain one
+// (which reads every pair with Pair, one at a time, as before the memo).
+func TestPrefetchMatchesSequential(t *testing.T) {
+	t.Parallel()
+	ctx := context.Background()
+	n, batched := 0, 0
+	for seed := uint64(1); seed <= 24; seed++ {
+		nn := 8 + int(seed%11)
+		g := randomGraph(seed, nn, []float64{0.2, 0.35, 0.6}[seed%3])
+		bg := &batchGraph{Graph: nonClosing{g}}
+		for _, opts := range [][]Option{
+			{WithBeam(1 << 10), WithMaxCandidates(1 << 16), WithExpansionBudget(1 << 30)},
+			{WithBeam(1 + int(seed%4)), WithMaxCandidates(1 + int(seed%5))},
+			{WithExpansionBudget(40 + int(seed)*7)},
+			{WithMaxBridges(2), WithUtility(2, 0.01)},
+		} {
+			opts = append(opts, WithCacheSize(0))
+			plain, batch := mustNew(t, nonClosing{g}, opts...), mustNew(t, bg, opts...)
+			for s := 0; s < nn; s++ {
+				for tt := 0; tt < nn; tt++ {
+					if s == tt {
+						continue
+					}
+					q := Query{From: g.names[s], Value: g.values[s][(s+tt)%len(g.values[s])], To: g.names[tt]}
+					want, err1 := plain.Decide(ctx, q)
+					got, err2 := batch.Decide(ctx, q)
+					if (err1 == nil) != (err2 == nil) || !reflect.DeepEqual(want, got) {
+						t.Fatalf("seed %d %v %v: sequential %+v (%v), prefetched %+v (%v)", seed, opts, q, want, err1, got, err2)
+					}
+					n++
+				}
+			}
+		}
+		batched += bg.batches
+	}
+	if batched == 0 {
+		t.Fatal("no PairBatch call: the prefetch path was not exercised")
+	}
+	t.Logf("%d decisions identical, %d batches", n, batched)
+}
+
+// TestTransposeIsReversedPair: PairStats.Transpose of an index pair is the
+// view Pair returns for the reversed pair, which the memo relies on.
+func TestTransposeIsReversedPair(t *testing.T) {
+	t.Parallel()
+	ix := goldenIndex(t, 2000, 8)
+	rng := rand.New(rand.NewPCG(4, 4))
+	found := 0
+	for range 5000 {
+		a, b := graphidx.EntityID(rng.IntN(2000)), graphidx.EntityID(rng.IntN(2000))
+		if nb := ix.Neighbors(a); len(nb) > 0 && rng.IntN(2) == 0 {
+			b = nb[rng.IntN(len(nb))]
+		}
+		ab, ok1 := ix.Pair(a, b)
+		ba, ok2 := ix.Pair(b, a)
+		if ok1 != ok2 {
+			t.Fatalf("Pair(%d,%d) ok %v, Pair(%d,%d) ok %v", a, b, ok1, b, a, ok2)
+		}
+		if !ok1 {
+			continue
+		}
+		found++
+		tr := ab.Transpose()
+		if tr.A != ba.A || tr.B != ba.B || tr.KA != ba.KA || tr.KB != ba.KB || tr.Support() != ba.Support() {
+			t.Fatalf("Transpose of (%d,%d) = %+v, Pair(%d,%d) = %+v", a, b, tr, b, a, ba)
+		}
+		for u := 0; u < tr.KA; u++ {
+			for v := 0; v < tr.KB; v++ {
+				if tr.Count(u, v) != ba.Count(u, v) || tr.Count(u, v) != ab.Count(v, u) {
+					t.Fatalf("(%d,%d) cell %d,%d: transpose %d, reversed pair %d", a, b, u, v, tr.Count(u, v), ba.Count(u, v))
+				}
+			}
+		}
+	}
+	if found < 1000 {
+		t.Fatalf("only %d stored pairs drawn", found)
+	}
+}
+
+// goldenIndex writes and opens a power-law index (bench_test.go's
+// Chung–Lu source, seed 1) of n entities and average degree deg.
+func goldenIndex(t testing.TB, n int, deg float64) *graphidx.Index {
+	t.Helper()
+	path := filepath.Join(t.TempDir(), "golden.hwx")
+	if err := graphidx.WriteFile(path, newPowerLaw(n, deg, 2.1, 1)); err != nil {
+		t.Fatal(err)
+	}
+	ix, err := graphidx.Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { ix.Close() })
+	return ix
+}
+
+// decisionDigest hashes every field of every decision (floats by their
+// bits) of qs.
+func decisionDigest(t testing.TB, r *Router, qs []Query) (string, int) {
+	t.Helper()
+	h := sha256.New()
+	chains := 0
+	for i, q := range qs {
+		d, err := r.Decide(context.Background(), q)
+		fmt.Fprintf(h, "%d %v %v\n", i, q, err)
+		if err != nil {
+			continue
+		}
+		fmt.Fprintf(h, "%v %v %q %q %x %x %x %x %d %x %x %v %v\n", d.Mode, d.Reason, d.Bridges, d.Values,
+			f64bits(d.Estimate), math.Float64bits(d.Err), f64bits(d.Direct.Estimate), math.Float64bits(d.Direct.Err),
+			d.Direct.Support, math.Float64bits(d.Gain), math.Float64bits(d.Score), d.Truncated, d.Cut)
+		if c := d.Chain; c != nil {
+			chains++
+			fmt.Fprintf(h, "%q %x %x %d\n", c.Bridges, f64bits(c.Estimate), math.Float64bits(c.Err), c.MinSupport)
+		}
+	}
+	return fmt.Sprintf("%x", h.Sum(nil)[:8]), chains
+}
+
+func f64bits(x []float64) []uint64 {
+	out := make([]uint64, len(x))
+	for i, v := range x {
+		out[i] = math.Float64bits(v)
+	}
+	return out
+}
+
+// TestDecideGoldenDigest pins every field of 2000 decisions per
+// configuration on a seeded 20k-entity power-law index. The digests were
+// computed by the router before the pair memo, the batch prefetch and the
+// other latency work (commit ffa682b); a performance change must leave them
+// as they are. A deliberate change of the search or the scorer updates them
+// (HOPWISE_GOLDEN_PRINT=1 prints the new ones). Checked on amd64 only:
+// other architectures may fuse multiply-adds (Go spec, "Arithmetic
+// operators"), which changes the last bits of the estimates.
+func TestDecideGoldenDigest(t *testing.T) {
+	if runtime.GOARCH != "amd64" {
+		t.Skip("digests are of amd64 floating point")
+	}
+	if testing.Short() {
+		t.Skip("builds a 20k-entity index")
+	}
+	t.Parallel()
+	const n = 20_000
+	ix := goldenIndex(t, n, 32)
+	src := newPowerLaw(n, 32, 2.1, 1)
+	qs := benchQueries(src, 2000, 11)
+	rng := rand.New(rand.NewPCG(11, 12))
+	for i := range qs {
+		qs[i].Value = []string{"off", "on"}[rng.IntN(2)]
+		if i%4 == 0 { // hub queries: entity 0 has the largest weight
+			qs[i].From = src.ents[0].Name
+			if qs[i].To == qs[i].From {
+				qs[i].To = src.ents[1].Name
+			}
+		}
+	}
+	support, err := scorer.NewSupport()
+	if err != nil {
+		t.Fatal(err)
+	}
+	exact, err := scorer.NewBayes(scorer.WithVariance(scorer.ExactMoments))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		name string
+		opts []Option
+		want string
+	}{
+		{"default", nil, "7875ef035a29bcac"},
+		{"H1", []Option{WithMaxBridges(1)}, "ec0550c7962d8358"},
+		{"H2", []Option{WithMaxBridges(2)}, "9e38a5509b8a1d9e"},
+		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "e3414fcbba30679c"},
+		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "a409bc10579628b8"},
+		{"budget3000", []Option{WithExpansionBudget(3000)}, "77366de09d93f037"},
+		{"support", []Option{WithModel(support)}, "049ede2c77a62f5b"},
+		{"exact", []Option{WithModel(exact)}, "9eb28ffb036aa0ec"},
+		{"utility", []Option{WithUtility(2, 0.001)}, "6ccc3cbae0f67716"},
+	} {
+		opts := append([]Option{WithCacheSize(0)}, tc.opts...)
+		for _, wrap := range []struct {
+			name string
+			g    Graph
+		}{{"batch", wrapIndex(ix)}, {"plain", nonClosing{ix}}} {
+			r := mustNew(t, wrap.g, opts...)
+			got, chains := decisionDigest(t, r, qs)
+			if os.Getenv("HOPWISE_GOLDEN_PRINT") != "" {
+				t.Logf("{%q, ..., %q}, // %s, %d chains", tc.name, got, wrap.name, chains)
+				continue
+			}
+			if got != tc.want {
+				t.Errorf("%s (%s graph): digest %s, want %s", tc.name, wrap.name, got, tc.want)
+			}
+		}
+	}
+}
