@@ -179,13 +179,21 @@ func (sc *scratch) want(a, b graphidx.EntityID) {
 	}
 }
 
-// beginPrefetch starts a queue of at most n pairs (n ≥ 0). It reports false
-// (and queues nothing) when the graph has no PairBatch.
+// maxPrefetch caps one prefetch batch. A batch runs without polling the
+// context, so its size bounds the work done past a deadline: 4096 pairs are
+// a few milliseconds at most (about 0.3 µs per pair with its edge cost on
+// the benchmark index). Pairs beyond the cap are read one at a time by the
+// phase, charged to the budget and polled as before.
+const maxPrefetch = 4096
+
+// beginPrefetch starts a queue of at most min(n, maxPrefetch) pairs
+// (n ≥ 0). It reports false (and queues nothing) when the graph has no
+// PairBatch.
 func (sc *scratch) beginPrefetch(n int) bool {
 	if sc.pb == nil || n <= 0 {
 		return false
 	}
-	sc.pendMax = n
+	sc.pendMax = min(n, maxPrefetch)
 	sc.pend.lo, sc.pend.hi = sc.pend.lo[:0], sc.pend.hi[:0]
 	return true
 }

@@ -20,11 +20,12 @@ import (
 // router takes its prefetching path on any test graph.
 type batchGraph struct {
 	Graph
-	batches int
+	batches, largest int
 }
 
 func (g *batchGraph) PairBatch(a, b []graphidx.EntityID, out []graphidx.PairStats, ok []bool) {
 	g.batches++
+	g.largest = max(g.largest, len(a))
 	for i := range a {
 		out[i], ok[i] = g.Pair(a[i], b[i])
 	}
@@ -235,5 +236,30 @@ func TestDecideGoldenDigest(t *testing.T) {
 				t.Errorf("%s (%s graph): digest %s, want %s", tc.name, wrap.name, got, tc.want)
 			}
 		}
+	}
+}
+
+// TestPrefetchBatchIsCapped: a hub query with an unlimited budget asks for
+// one batch per phase; each stays within maxPrefetch pairs, since a batch
+// does not poll the context (an uncapped batch of 400k hub pairs ran 1.4 s
+// of CPU past a 20 ms deadline under -race in TestBoundedWork).
+func TestPrefetchBatchIsCapped(t *testing.T) {
+	t.Parallel()
+	b := newMemBuilder(1)
+	s := b.entity("sensor-a", "dry", "wet")
+	tt := b.entity("vent-b", "closed", "open")
+	for i := range 3 * maxPrefetch {
+		z := b.entity(fmt.Sprintf("bed-%05d", i), "low", "high")
+		n := uint32(5 + i%37)
+		b.pair(s, z, 3*n, n, n, 2*n)
+		b.pair(z, tt, 2*n, n+uint32(i%5), n, 3*n)
+	}
+	bg := &batchGraph{Graph: nonClosing{b.build()}}
+	r := mustNew(t, bg, WithMaxBridges(1), WithExpansionBudget(1<<30), WithCacheSize(0))
+	if _, err := r.Decide(context.Background(), Query{From: "sensor-a", Value: "dry", To: "vent-b"}); err != nil {
+		t.Fatal(err)
+	}
+	if bg.batches == 0 || bg.largest > maxPrefetch {
+		t.Fatalf("%d batches, largest %d pairs (cap %d)", bg.batches, bg.largest, maxPrefetch)
 	}
 }
