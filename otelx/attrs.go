@@ -46,15 +46,16 @@ const (
 
 // Metric names.
 const (
-	// MetricDecisions counts decisions by mode, arm and cache result:
-	// the decision cache's hits and misses are its hopwise.cache.result
-	// dimension (one measurement per decision instead of two).
-	MetricDecisions       = "hopwise.decisions"         // counter, by mode, arm and hopwise.cache.result
-	MetricDecisionLatency = "hopwise.decision.duration" // histogram, seconds, by mode and arm
+	// MetricDecisionLatency is the time to decide, by mode, arm and
+	// cache result (hopwise.cache.result). Its count is the decision
+	// count: decisions by mode and arm, and the decision cache's hits and
+	// misses, come from it rather than from counters of their own (one SDK
+	// measurement per decision instead of three).
+	MetricDecisionLatency = "hopwise.decision.duration" // histogram, seconds, by mode, arm and cache result
 	MetricGain            = "hopwise.route.gain"        // histogram of gain, decisions with a chain
 	MetricOutcomeScore    = "hopwise.outcome.score"     // histogram of outcome scores, by mode and arm
 
-	// KeyCacheResult labels MetricDecisions: "hit" or "miss" (absent on
-	// failed decisions, mode "error").
+	// KeyCacheResult labels MetricDecisionLatency: "hit" or "miss"
+	// (absent on failed decisions, mode "error").
 	KeyCacheResult = "hopwise.cache.result"
 )

@@ -4,7 +4,9 @@ import (
 	"context"
 	"fmt"
 	"os"
+	"runtime"
 	"slices"
+	"strings"
 	"testing"
 	"time"
 
@@ -54,7 +56,8 @@ type variant struct {
 // variants: the plain router; the instrumentation on the otel globals with
 // no SDK installed; on the noop providers; on the SDK with a batch span
 // processor and an SDK meter provider, with the default and the compact
-// spans; and, for reference, a bare SDK span around the plain router (the
+// spans, and compact spans with 10 % of traces sampled; and, for
+// reference, a bare SDK span around the plain router (the
 // SDK's own per-span cost, no hopwise code). The "-before" variants run the
 // decision path as it was before the overhead work (legacy_test.go) on the
 // same Instrumentation, so one run compares both.
@@ -79,6 +82,12 @@ func variants(tb testing.TB) []variant {
 	if err != nil {
 		tb.Fatal(err)
 	}
+	tp4 := sdktrace.NewTracerProvider(sdktrace.WithBatcher(discard{}), sdktrace.WithSampler(sdktrace.TraceIDRatioBased(0.1)))
+	mp4 := sdkmetric.NewMeterProvider(sdkmetric.WithReader(sdkmetric.NewManualReader()))
+	sampled, err := New(WithTracerProvider(tp4), WithMeterProvider(mp4), WithCompactSpans(), WithSamplingRatio(0.1))
+	if err != nil {
+		tb.Fatal(err)
+	}
 	tp2 := sdktrace.NewTracerProvider(sdktrace.WithBatcher(discard{}), sdktrace.WithSampler(sdktrace.AlwaysSample()))
 	bare := tp2.Tracer("bare")
 	return []variant{
@@ -92,6 +101,7 @@ func variants(tb testing.TB) []variant {
 		{name: "sdk-batch", run: sdk.Decide, stop: func() { tp.Shutdown(context.Background()); mp.Shutdown(context.Background()) }},
 		{name: "sdk-batch-compact-before", run: legacyDecide(tb, compact, mp3)},
 		{name: "sdk-batch-compact", run: compact.Decide, stop: func() { tp3.Shutdown(context.Background()); mp3.Shutdown(context.Background()) }},
+		{name: "sdk-batch-compact-10%", run: sampled.Decide, stop: func() { tp4.Shutdown(context.Background()); mp4.Shutdown(context.Background()) }},
 		{name: "bare-sdk-span", run: func(ctx context.Context, r *router.Router, q router.Query) (router.Decision, error) {
 			ctx, sp := bare.Start(ctx, "decide")
 			d, err := r.Decide(ctx, q)
@@ -195,25 +205,23 @@ func TestOverhead(t *testing.T) {
 				diffCPU[k] = append(diffCPU[k], gotCPU[k]-gotCPU[0])
 			}
 		}
-		median := func(xs []float64) float64 {
+		q := func(xs []float64, p float64) float64 { // the p-quantile, nearest rank
 			ys := slices.Clone(xs)
 			slices.Sort(ys)
-			return ys[len(ys)/2]
+			return ys[int(p*float64(len(ys)-1)+0.5)]
 		}
-		base := median(per[0])
-		line := fmt.Sprintf("cache=%d, %d rounds × %d decisions: plain %.0f ns/decision", cache, rounds, passes*len(qs), base)
-		for k := 1; k < len(vs); k++ {
-			d := median(diff[k])
-			line += fmt.Sprintf("; %s %+.0f ns (%+.2f%%)", vs[k].name, d, 100*d/base)
-		}
-		t.Log("wall: " + line)
-		baseCPU := median(perCPU[0])
-		line = fmt.Sprintf("cache=%d: plain %.0f ns/decision", cache, baseCPU)
+		median := func(xs []float64) float64 { return q(xs, 0.5) }
+		base, baseCPU := median(per[0]), median(perCPU[0])
+		var tb strings.Builder
+		fmt.Fprintf(&tb, "cache=%d, %d rounds × %d decisions, load %s: plain %.0f ns/decision wall, %.0f ns CPU\n",
+			cache, rounds, passes*len(qs), loadAvg(), base, baseCPU)
+		fmt.Fprintf(&tb, "  %-26s %10s %10s %9s   %s\n", "variant", "wall Δ ns", "CPU Δ ns", "CPU Δ %", "CPU Δ quartiles")
 		for k := 1; k < len(vs); k++ {
 			d := median(diffCPU[k])
-			line += fmt.Sprintf("; %s %+.0f ns (%+.2f%%)", vs[k].name, d, 100*d/baseCPU)
+			fmt.Fprintf(&tb, "  %-26s %+10.0f %+10.0f %+8.1f%%   [%+.0f, %+.0f]\n", vs[k].name,
+				median(diff[k]), d, 100*d/baseCPU, q(diffCPU[k], 0.25), q(diffCPU[k], 0.75))
 		}
-		t.Log("process CPU: " + line)
+		t.Log("overhead over the plain router (medians of per-round differences):\n" + tb.String())
 		if os.Getenv("HOPWISE_OVERHEAD_ENFORCE") != "" {
 			idx := func(name string) int {
 				i := slices.IndexFunc(vs, func(v variant) bool { return v.name == name })
@@ -236,6 +244,18 @@ func TestOverhead(t *testing.T) {
 		}
 		r.Close()
 	}
+}
+
+// loadAvg returns the 1-minute load average and the CPU count, or "?"
+// where /proc is missing: the overhead figures mean little on a busy
+// machine.
+func loadAvg() string {
+	b, err := os.ReadFile("/proc/loadavg")
+	f := strings.Fields(string(b))
+	if err != nil || len(f) == 0 {
+		return "?"
+	}
+	return fmt.Sprintf("%s on %d CPUs", f[0], runtime.NumCPU())
 }
 
 // BenchmarkReadTraces reads a trace file of 2000 decisions and 2000

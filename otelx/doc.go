@@ -11,8 +11,9 @@
 // the hopwise. namespace (the Key* constants: mode, gain, direct error and
 // support, chain error, hops and bridges, reason, truncation, arm,
 // propensity, exploration, index generation, sampling ratio, unit key).
-// They are built only when the span is recording. Metrics: decisions by
-// mode, arm and cache result (hit or miss), decision latency, the gain; their
+// They are built only when the span is recording. Metrics: the decision
+// latency histogram by mode, arm and cache result (hit or miss), whose
+// count is the number of decisions, and the gain; their
 // attribute sets and measurement options are prebuilt, and every call is
 // guarded by the instrument's Enabled. The otel noop providers are
 // recognised and cost nothing per decision; so are the otel global

@@ -69,9 +69,9 @@ func TestGlobalProviders(t *testing.T) {
 	var decisions int64
 	for _, sm := range rm.ScopeMetrics {
 		for _, m := range sm.Metrics {
-			if s, ok := m.Data.(metricdata.Sum[int64]); ok && m.Name == MetricDecisions {
-				for _, dp := range s.DataPoints {
-					decisions += dp.Value
+			if h, ok := m.Data.(metricdata.Histogram[float64]); ok && m.Name == MetricDecisionLatency {
+				for _, dp := range h.DataPoints {
+					decisions += int64(dp.Count)
 				}
 			}
 		}

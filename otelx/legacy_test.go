@@ -28,10 +28,11 @@ var legacyStartOp = []trace.SpanStartOption{trace.WithSpanKind(trace.SpanKindInt
 // (mode, arm) sets without the cache result.
 type legacy struct {
 	*Instrumentation
-	cache    metric.Int64Counter
-	hitOpts  []metric.AddOption
-	missOpts []metric.AddOption
-	sets     [3][len(knownArms)]legacyOpts
+	decisions metric.Int64Counter
+	cache     metric.Int64Counter
+	hitOpts   []metric.AddOption
+	missOpts  []metric.AddOption
+	sets      [3][len(knownArms)]legacyOpts
 }
 
 type legacyOpts struct {
@@ -46,11 +47,14 @@ func legacyDecide(tb testing.TB, in *Instrumentation, mp metric.MeterProvider) f
 		mp = otel.GetMeterProvider()
 	}
 	l := &legacy{Instrumentation: in}
-	var err error
-	l.cache, err = mp.Meter(ScopeName+"/legacy", metric.WithInstrumentationVersion(Version)).Int64Counter(MetricDecisions+".cache",
-		metric.WithUnit("{decision}"), metric.WithDescription("Decision cache hits and misses."))
-	if err != nil {
-		tb.Fatal(err)
+	meter := mp.Meter(ScopeName+"/legacy", metric.WithInstrumentationVersion(Version))
+	var err, err2 error
+	l.decisions, err = meter.Int64Counter("hopwise.decisions", metric.WithUnit("{decision}"),
+		metric.WithDescription("Routing decisions by mode and A/B arm."))
+	l.cache, err2 = meter.Int64Counter("hopwise.decision.cache", metric.WithUnit("{decision}"),
+		metric.WithDescription("Decision cache hits and misses."))
+	if err != nil || err2 != nil {
+		tb.Fatal(err, err2)
 	}
 	l.hitOpts = []metric.AddOption{metric.WithAttributeSet(attribute.NewSet(attribute.String(KeyCacheResult, "hit")))}
 	l.missOpts = []metric.AddOption{metric.WithAttributeSet(attribute.NewSet(attribute.String(KeyCacheResult, "miss")))}

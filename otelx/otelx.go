@@ -155,10 +155,9 @@ type Instrumentation struct {
 	globalTP trace.TracerProvider
 	globalMP metric.MeterProvider
 
-	decisions metric.Int64Counter
-	latency   metric.Float64Histogram
-	gain      metric.Float64Histogram
-	outcome   metric.Float64Histogram
+	latency metric.Float64Histogram
+	gain    metric.Float64Histogram
+	outcome metric.Float64Histogram
 
 	sets     [3][len(knownArms)]attrOpts // [mode][arm]: direct, chain, error
 	extra    sync.Map                    // unknown arm name → *[3]attrOpts
@@ -223,11 +222,8 @@ func New(opts ...Option) (*Instrumentation, error) {
 	}
 	meter := cfg.mp.Meter(ScopeName, metric.WithInstrumentationVersion(Version))
 	var err, e error
-	in.decisions, e = meter.Int64Counter(MetricDecisions, metric.WithUnit("{decision}"),
-		metric.WithDescription("Routing decisions by mode, A/B arm and decision cache result (hit or miss; none for failed decisions)."))
-	err = errors.Join(err, e)
 	in.latency, e = meter.Float64Histogram(MetricDecisionLatency, metric.WithUnit("s"),
-		metric.WithDescription("Time to decide a route."),
+		metric.WithDescription("Time to decide a route, by mode, A/B arm and decision cache result; its count is the number of decisions."),
 		metric.WithExplicitBucketBoundaries(1e-6, 2.5e-6, 5e-6, 1e-5, 2.5e-5, 5e-5, 1e-4, 2.5e-4, 5e-4, 1e-3, 5e-3, 0.01, 0.05))
 	err = errors.Join(err, e)
 	in.gain, e = meter.Float64Histogram(MetricGain, metric.WithUnit("1"),
@@ -251,11 +247,11 @@ func New(opts ...Option) (*Instrumentation, error) {
 	return in, nil
 }
 
-// attrOpts holds the measurement options of one (mode, arm): the
-// decision counter's, by cache result, and the histograms'. They are built
+// attrOpts holds the measurement options of one (mode, arm): the latency
+// histogram's, by cache result, and the other histograms'. They are built
 // once, so that recording allocates nothing.
 type attrOpts struct {
-	add [2][]metric.AddOption // [miss, hit]; the same set for the error mode
+	lat [2][]metric.RecordOption // [miss, hit]; the same set for the error mode
 	rec []metric.RecordOption
 }
 
@@ -268,11 +264,11 @@ func modeArmSet(mode, arm string) attrOpts {
 	o.rec = []metric.RecordOption{metric.WithAttributeSet(attribute.NewSet(kvs...))}
 	for i, res := range [2]string{"miss", "hit"} {
 		if mode == modeNames[modeError] {
-			o.add[i] = []metric.AddOption{metric.WithAttributeSet(attribute.NewSet(kvs...))}
+			o.lat[i] = o.rec
 			continue
 		}
 		withRes := append(slices.Clip(kvs), attribute.String(KeyCacheResult, res))
-		o.add[i] = []metric.AddOption{metric.WithAttributeSet(attribute.NewSet(withRes...))}
+		o.lat[i] = []metric.RecordOption{metric.WithAttributeSet(attribute.NewSet(withRes...))}
 	}
 	return o
 }
@@ -397,10 +393,12 @@ func (in *Instrumentation) decide(ctx context.Context, r *router.Router, q route
 }
 
 // measure records the decision metrics, each guarded by Enabled. The
-// latency is recorded in the decision span's context, so that an SDK
-// exemplar of the latency histogram points at the decision's span; the
-// counter and the gain in the caller's context (an exemplar there would
-// add nothing, and the SDK reads the clock for each exemplar it offers).
+// latency histogram is also the decision count, by mode, arm and cache
+// result (its count; the OpenTelemetry HTTP semantic conventions count
+// requests the same way, from memory), which saves the SDK one measurement
+// per decision. It is recorded in the decision span's context, so that an
+// SDK exemplar points at the decision's span; the gain in the caller's
+// context (the SDK reads the clock for each exemplar it offers).
 func (in *Instrumentation) measure(ctx, spanCtx context.Context, d *router.Decision, err error, timed bool, elapsed time.Duration) {
 	mode := modeError
 	if err == nil {
@@ -410,15 +408,12 @@ func (in *Instrumentation) measure(ctx, spanCtx context.Context, d *router.Decis
 		}
 	}
 	set := in.set(mode, d.Arm)
-	if in.decisions.Enabled(ctx) {
+	if timed {
 		hit := 0
 		if err == nil && d.Cached {
 			hit = 1
 		}
-		in.decisions.Add(ctx, 1, set.add[hit]...)
-	}
-	if timed {
-		in.latency.Record(spanCtx, elapsed.Seconds(), set.rec...)
+		in.latency.Record(spanCtx, elapsed.Seconds(), set.lat[hit]...)
 	}
 	if err == nil && d.Chain != nil && in.gain.Enabled(ctx) {
 		in.gain.Record(ctx, d.Gain, set.rec...)

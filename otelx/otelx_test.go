@@ -155,6 +155,10 @@ func TestDecideSpanAndMetrics(t *testing.T) {
 					switch m.Name {
 					case MetricDecisionLatency:
 						latencyCount += dp.Count
+						mode, _ := dp.Attributes.Value(KeyRouteMode)
+						arm, _ := dp.Attributes.Value(KeyABArm)
+						res, _ := dp.Attributes.Value(KeyCacheResult)
+						got[m.Name+"|"+mode.AsString()+"|"+arm.AsString()+"|"+res.AsString()] += int64(dp.Count)
 						// The SDK's trace-based exemplars link the
 						// latency to the decision spans.
 						for _, ex := range dp.Exemplars {
@@ -171,10 +175,11 @@ func TestDecideSpanAndMetrics(t *testing.T) {
 		}
 	}
 	mode := d.Mode.String()
+	// Decisions by mode, arm and cache result are the latency counts.
 	want := map[string]int64{
-		MetricDecisions + "|" + mode + "|routed|miss": 1,
-		MetricDecisions + "|" + mode + "|routed|hit":  1,
-		MetricDecisions + "|error||":                  1,
+		MetricDecisionLatency + "|" + mode + "|routed|miss": 1,
+		MetricDecisionLatency + "|" + mode + "|routed|hit":  1,
+		MetricDecisionLatency + "|error||":                  1,
 	}
 	if len(got) != len(want) {
 		t.Errorf("metric points %v, want %v", got, want)
