@@ -5,8 +5,11 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"slices"
+	"strings"
 
 	sdktrace "go.opentelemetry.io/otel/sdk/trace"
+	"go.opentelemetry.io/otel/sdk/trace/tracetest"
 
 	"github.com/hopwise/hopwise/otelx/otlpfile"
 	"github.com/hopwise/hopwise/router"
@@ -43,4 +46,41 @@ func ExampleInstrumentation_Decide() {
 			j.Decision.Key, j.Decision.Mode, j.Decision.Bridges, j.Outcome.Score, j.Outcome.Tokens())
 	}
 	// Output: request-1: chain via [humidity-zone1], outcome 1, 510 tokens
+}
+
+// A high-rate gateway keeps the per-decision cost down with compact spans
+// (what tuning and A/B analysis read, 8 attributes or fewer, no entity
+// names) and trace sampling, recording the ratio so that readers weight
+// each decision by its inverse.
+func ExampleWithCompactSpans() {
+	ctx := context.Background()
+	rec := tracetest.NewSpanRecorder()
+	// A gateway would sample, say, 0.1 of its traces and pass the same
+	// ratio to WithSamplingRatio; 1 keeps this example's one span.
+	const ratio = 1.0
+	tp := sdktrace.NewTracerProvider(sdktrace.WithSpanProcessor(rec),
+		sdktrace.WithSampler(sdktrace.ParentBased(sdktrace.TraceIDRatioBased(ratio))))
+	in, _ := New(WithTracerProvider(tp), WithCompactSpans(), WithSamplingRatio(ratio))
+
+	r, _ := router.New(greenhouseGraph())
+	defer r.Close()
+	if _, err := in.Decide(ctx, r, router.Query{From: "vent-north", Value: "open", To: "bed-tomato", Key: "request-1"}); err != nil {
+		fmt.Println(err)
+		return
+	}
+	var keys []string
+	for _, kv := range rec.Ended()[0].Attributes() {
+		keys = append(keys, string(kv.Key))
+	}
+	slices.Sort(keys)
+	fmt.Println(strings.Join(keys, "\n"))
+	// Output:
+	// hopwise.chain.err
+	// hopwise.chain.hops
+	// hopwise.query.key
+	// hopwise.route.gain
+	// hopwise.route.mode
+	// hopwise.route.propensity
+	// hopwise.route.reason
+	// hopwise.sampling.ratio
 }
