@@ -48,8 +48,11 @@ const DefaultWriteMemory = 64 << 20
 // bytes (12 bytes per directed edge: a neighbour id and a support), the
 // buckets after the first spooled to a temporary file next to the output
 // (16 bytes per edge). A single entity whose edges need more than bytes
-// gets a bucket of its own, and at most 4096 buckets are made. Build sets
-// it to a quarter of WithMemBudget. WriteFile rejects bytes < 1.
+// gets a bucket of its own, and a bucket may always hold E/4096 edges (E
+// directed edges), which keeps the buckets under about 8200 and their spool
+// buffers (4–256 KiB each, together about a quarter of bytes when that is
+// larger) bounded. Build sets it to a quarter of WithMemBudget. WriteFile
+// rejects bytes < 1.
 func WithWriteMemory(bytes int64) WriteOption {
 	return writeOptionFunc(func(c *writeConfig) { c.memory = bytes })
 }
@@ -80,7 +83,7 @@ func TempPrefix(path string) string { return "." + filepath.Base(path) + ".tmp-"
 // to the adjacency buckets, and must yield the same pairs and supports
 // (ErrInvalidSource otherwise).
 //
-// Memory: O(entities) words (about 80 bytes per entity besides the
+// Memory: O(entities) words (about 90 bytes per binary entity besides the
 // Source's own records), the adjacency buckets bounded by WithWriteMemory
 // (or one entity's degree, if larger), and about 1 MiB of write buffers
 // plus 4–256 KiB per spooled bucket; nothing grows with the number of

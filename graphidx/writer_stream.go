@@ -342,8 +342,10 @@ type spoolWriter struct {
 }
 
 // newAdjacency splits the entities into buckets of at most the write
-// memory's worth of edges (at least one entity, at most maxAdjBuckets
-// buckets) and allocates the in-memory bucket. O(entities).
+// memory's worth of edges, but at least one entity and at least
+// E/maxAdjBuckets edges (two consecutive buckets then hold more than that
+// limit together, so there are at most 2·maxAdjBuckets+1 buckets), and
+// allocates the in-memory bucket. O(entities).
 func newAdjacency(p *plan) *adjacency {
 	n := len(p.k)
 	E := p.h.Edges

@@ -347,3 +347,99 @@ func TestBuildWritePhaseFlatInPairs(t *testing.T) {
 		t.Errorf("write phase allocated %d bytes more for %d more pairs: memory grows with the pairs", bigB-smallB, bigP-smallP)
 	}
 }
+
+// TestAdjacencyBuckets: the bucket split covers the entities in order, each
+// bucket holds at most the limit of edges unless it is a single entity, and
+// a tiny write memory still gives at most 2·maxAdjBuckets+1 buckets (here
+// degrees alternate 1 and 97, the worst case for the pairing argument).
+func TestAdjacencyBuckets(t *testing.T) {
+	t.Parallel()
+	for _, tc := range []struct {
+		n      int
+		memory int64
+	}{{0, 1}, {1, 1}, {20_000, 1}, {20_000, 12 * 500}, {20_000, DefaultWriteMemory}} {
+		p := &plan{k: make([]uint8, tc.n), nbrOffs: make([]uint64, tc.n+1), memory: tc.memory}
+		for i := range tc.n {
+			p.nbrOffs[i+1] = p.nbrOffs[i] + uint64(1+96*(i%2))
+		}
+		p.h.Edges = p.nbrOffs[tc.n]
+		a := newAdjacency(p)
+		limit := max(uint64(tc.memory/adjEdgeBytes), (p.h.Edges+maxAdjBuckets-1)/maxAdjBuckets, 1)
+		nb := a.buckets()
+		if nb < 1 || nb > 2*maxAdjBuckets+1 || a.first[0] != 0 || int(a.first[nb]) != tc.n || a.edge[nb] != p.h.Edges {
+			t.Fatalf("n=%d memory=%d: %d buckets, first %v..., edge ends %d", tc.n, tc.memory, nb, a.first[:min(3, len(a.first))], a.edge[nb])
+		}
+		var largest uint64
+		for b := range nb {
+			size := a.edge[b+1] - a.edge[b]
+			largest = max(largest, size)
+			if a.edge[b] != p.nbrOffs[a.first[b]] || (size > limit && a.first[b+1]-a.first[b] != 1) {
+				t.Fatalf("n=%d memory=%d: bucket %d (entities %d..%d) has %d edges, limit %d",
+					tc.n, tc.memory, b, a.first[b], a.first[b+1], size, limit)
+			}
+		}
+		if uint64(len(a.nbr)) != largest || uint64(len(a.sup)) != largest {
+			t.Fatalf("n=%d memory=%d: bucket arrays of %d, largest bucket %d", tc.n, tc.memory, len(a.nbr), largest)
+		}
+		t.Logf("n=%d memory=%d: %d buckets, limit %d edges", tc.n, tc.memory, nb, limit)
+	}
+}
+
+// BenchmarkWriteSections compares the streaming writer with the in-memory
+// reference it replaced (both: validate, lay out, write the sections to a
+// file; no fsync or rename) on a 1M-pair binary window index, with the
+// adjacency in one bucket (64 MiB) and in about 24 spooled buckets (1 MiB).
+func BenchmarkWriteSections(b *testing.B) {
+	src := newWindowSource(50_000, 20)
+	dir := b.TempDir()
+	size := func(path string) int64 {
+		fi, err := os.Stat(path)
+		if err != nil {
+			b.Fatal(err)
+		}
+		return fi.Size()
+	}
+	var want int64
+	b.Run("reference", func(b *testing.B) {
+		b.ReportAllocs()
+		path := filepath.Join(dir, "ref.hwx")
+		for b.Loop() {
+			p, err := refCompile(src, refConfig{rankPrefix: DefaultRankPrefix})
+			if err != nil {
+				b.Fatal(err)
+			}
+			f, err := os.Create(path)
+			if err != nil {
+				b.Fatal(err)
+			}
+			if err := p.write(f, src); err != nil {
+				b.Fatal(err)
+			}
+			f.Close()
+		}
+		want = size(path)
+	})
+	for _, mem := range []int64{64 << 20, 1 << 20} {
+		b.Run(fmt.Sprintf("streaming/mem=%dMiB", mem>>20), func(b *testing.B) {
+			b.ReportAllocs()
+			path := filepath.Join(dir, "new.hwx")
+			for b.Loop() {
+				p, err := compile(src, writeConfig{rankPrefix: DefaultRankPrefix, memory: mem})
+				if err != nil {
+					b.Fatal(err)
+				}
+				f, err := os.Create(path)
+				if err != nil {
+					b.Fatal(err)
+				}
+				if err := p.write(f, path+".adj", src); err != nil {
+					b.Fatal(err)
+				}
+				f.Close()
+			}
+			if got := size(path); want != 0 && got != want {
+				b.Fatalf("file of %d bytes, reference %d", got, want)
+			}
+		})
+	}
+}
