@@ -113,12 +113,13 @@ func WithSamplingRatio(r float64) Option {
 // the expected error of the chosen mode (direct or chain), the hop count
 // when a chain was found, unit key, arm, and when they apply the sampling
 // ratio, exploration and score — no entity names, bridges, support,
-// truncation, cache or generation. The SDK's cost grows with the attribute
-// count, and more steeply past 8 attributes (its end-of-span de-duplication
-// then allocates a full hash table: 7 allocations per span instead of 4
-// with OpenTelemetry Go SDK v1.47, BenchmarkSpanAttrCount), so a typical
-// compact span stays at 8 or fewer; in TestOverhead its overhead is about
-// half the default span's.
+// truncation, cache or generation (outcome spans lose the generation too,
+// so they stay at 8 attributes or fewer). The SDK's cost grows with the
+// attribute count, and more steeply past 8 attributes (its end-of-span
+// de-duplication then allocates a full hash table: 7 allocations per span
+// instead of 4 with OpenTelemetry Go SDK v1.47, BenchmarkSpanAttrCount),
+// so a typical compact span stays at 8 or fewer; in TestOverhead its
+// overhead is about half the default span's.
 func WithCompactSpans() Option { return optionFunc(func(c *config) { c.compact = true }) }
 
 // Outcome is what the gateway observed for a routed query.
@@ -604,14 +605,17 @@ func (in *Instrumentation) RecordOutcome(ctx context.Context, d router.Decision,
 		_, span = in.tracer.Start(ctx, SpanOutcome)
 	}
 	if span != nil && span.IsRecording() {
-		attrs := []attribute.KeyValue{
+		bp := attrPool.Get().(*[]attribute.KeyValue)
+		attrs := append((*bp)[:0],
 			attribute.String(KeyQueryKey, d.Key),
 			attribute.Float64(KeyOutcomeScore, o.Score),
 			attribute.Int64(KeyOutcomeInputTokens, o.InputTokens),
 			attribute.Int64(KeyOutcomeOutputTokens, o.OutputTokens),
 			attribute.Float64(KeyOutcomeLatencyMs, float64(o.Latency)/float64(time.Millisecond)),
-			attribute.String(KeyRouteMode, d.Mode.String()),
-			attribute.String(KeyIndexGeneration, in.genString(d.Generation)),
+			modeAttr(d.Mode),
+		)
+		if !in.compact { // no reader uses it: the decision span has it
+			attrs = append(attrs, attribute.String(KeyIndexGeneration, in.genString(d.Generation)))
 		}
 		if in.ratioSet {
 			attrs = append(attrs, in.ratio)
@@ -620,6 +624,9 @@ func (in *Instrumentation) RecordOutcome(ctx context.Context, d router.Decision,
 			attrs = append(attrs, attribute.String(KeyABArm, d.Arm))
 		}
 		span.SetAttributes(attrs...)
+		clear(attrs)
+		*bp = attrs[:0]
+		attrPool.Put(bp)
 	}
 	if span != nil {
 		span.End()

@@ -557,6 +557,9 @@ func compactCase(t *testing.T, tau float64, mode router.Mode) {
 	if err != nil || d.Chain == nil || d.Mode != mode {
 		t.Fatalf("%v %+v", err, d)
 	}
+	if err := in.RecordOutcome(ctx, d, Outcome{Score: 1, InputTokens: 7}); err != nil {
+		t.Fatal(err)
+	}
 	if err := tp.Shutdown(ctx); err != nil {
 		t.Fatal(err)
 	}
@@ -581,6 +584,15 @@ func compactCase(t *testing.T, tau float64, mode router.Mode) {
 	lg, err := ReadTraceFiles(path)
 	if err != nil {
 		t.Fatal(err)
+	}
+	// The outcome span: no generation, 8 attributes with ratio and arm.
+	oa := spanAttrs(rec.Ended()[1])
+	if _, ok := oa[KeyIndexGeneration]; ok || len(oa) != 8 {
+		t.Errorf("compact outcome span attributes %v", oa)
+	}
+	if len(lg.Outcomes) != 1 || lg.Outcomes[0].Score != 1 || lg.Outcomes[0].InputTokens != 7 || lg.Outcomes[0].Arm != router.ArmRouted ||
+		lg.Outcomes[0].SamplingRatio != 0.5 || lg.Outcomes[0].Key != "u1" || lg.Outcomes[0].Mode != d.Mode.String() {
+		t.Errorf("compact outcome records %+v", lg.Outcomes)
 	}
 	got := lg.Decisions[0]
 	if got.Mode != d.Mode.String() || got.Gain != d.Gain || got.Propensity != d.Propensity || !got.HasChain ||

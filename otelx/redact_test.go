@@ -3,7 +3,9 @@ package otelx
 import (
 	"context"
 	"errors"
+	"strconv"
 	"strings"
+	"sync"
 	"testing"
 
 	sdktrace "go.opentelemetry.io/otel/sdk/trace"
@@ -75,5 +77,44 @@ func TestHashedErrorSpansHideNames(t *testing.T) {
 	}
 	if got := (&Instrumentation{hashed: true}).spanError(errors.New("something naming bed-4")); got != errWithheld {
 		t.Errorf("unknown error with hashing: %v, want errWithheld", got)
+	}
+}
+
+// TestHashCacheConcurrentAndBounded: pseudonyms served by the cache equal
+// freshly computed HMACs under concurrent use (run with -race), and the
+// cache stops growing at maxCachedHashes while names past the bound are
+// still hashed correctly.
+func TestHashCacheConcurrentAndBounded(t *testing.T) {
+	t.Parallel()
+	in, err := New(WithEntityHashKey([]byte("greenhouse-cache-key-01")))
+	if err != nil {
+		t.Fatal(err)
+	}
+	names := []string{"vent-north", "bed-tomato", "pump-2", "humidity-zone1", "open", "dry"}
+	var wg sync.WaitGroup
+	for g := range 4 {
+		wg.Go(func() {
+			for i := range 200 {
+				n := names[(i+g)%len(names)]
+				if got, want := in.HashEntity(n), in.hmacHex(n); got != want {
+					t.Errorf("HashEntity(%q) = %s, want %s", n, got, want)
+					return
+				}
+			}
+		})
+	}
+	wg.Wait()
+	for i := range maxCachedHashes + 100 {
+		in.HashEntity("bed-" + strconv.Itoa(i))
+	}
+	if n := in.hashes.n.Load(); n != maxCachedHashes {
+		t.Errorf("cache holds %d names, want the bound %d", n, maxCachedHashes)
+	}
+	past := "bed-" + strconv.Itoa(maxCachedHashes+50)
+	if _, ok := in.hashes.get(past); ok {
+		t.Errorf("%s cached past the bound", past)
+	}
+	if in.HashEntity(past) != in.hmacHex(past) {
+		t.Errorf("name past the bound hashed wrongly")
 	}
 }
