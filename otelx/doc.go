@@ -28,7 +28,9 @@
 // # Cost
 //
 // With the noop providers, or the globals before an SDK is installed, a
-// decision pays one call (the 248-byte Decision is copied once more). With
+// decision pays one call (the 248-byte Decision is copied once more). (So
+// an eBPF auto-instrumentation that hooks the global tracer without an SDK
+// sees no decision spans; install its provider or pass one explicitly.) With
 // the SDK, nearly all of the cost is the SDK's own: starting and ending a
 // span, a cost per attribute and, once a span has more than 8 attributes,
 // a hash table of 3 more allocations (BenchmarkSpanAttrCount, SDK v1.47),
