@@ -791,9 +791,12 @@ func (p PairStats) Transpose() PairStats {
 }
 
 // pairBatchWidth is the number of binary searches PairBatch runs in
-// lockstep: enough outstanding cache misses to keep a core's miss handling
-// busy (about 10–20 on current x86 and arm64 cores; common practice).
-const pairBatchWidth = 8
+// lockstep: more than the cache misses a core keeps in flight (about 10–20
+// on current x86 and arm64 cores; common practice), so the hardware, not
+// the batch, sets the overlap. On the router's 1M-entity benchmark, widths
+// 8, 16, 32 and 64 measured 38.7, 37.7, 38.0 and 35.0 µs median decision
+// CPU time (4 interleaved runs each; within this machine's noise).
+const pairBatchWidth = 64
 
 // PairBatch looks up several pairs at once: for every i < len(a), out[i]
 // and ok[i] are what Pair(a[i], b[i]) returns (the same view, bit for bit).

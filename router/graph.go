@@ -8,6 +8,13 @@ import (
 // Graph is the read view of a locality index the router needs.
 // *graphidx.Index satisfies it. Implementations must be safe for concurrent
 // readers and must not allocate on the lookup paths.
+//
+// Two optional methods make the search faster without changing any
+// decision; *graphidx.Index has both, and a wrapper around an index should
+// forward them: PairBatch (see PairBatcher), and RankPrefix() int, the
+// length of the ranked prefix, which tells that a RankedNeighbors list
+// shorter than it holds every neighbour (so the search need not read
+// Neighbors to know).
 type Graph interface {
 	scorer.Stats
 	// Lookup maps an entity name to its id.

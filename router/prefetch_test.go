@@ -32,11 +32,17 @@ func (g *batchGraph) PairBatch(a, b []graphidx.EntityID, out []graphidx.PairStat
 }
 
 // nonClosingIndex keeps a shared index open (like nonClosing) and forwards
-// its PairBatch.
+// the optional methods the router uses (PairBatch, RankPrefix).
 type nonClosingIndex struct {
 	nonClosing
-	PairBatcher
+	ix *graphidx.Index
 }
+
+func (g nonClosingIndex) PairBatch(a, b []graphidx.EntityID, out []graphidx.PairStats, ok []bool) {
+	g.ix.PairBatch(a, b, out, ok)
+}
+
+func (g nonClosingIndex) RankPrefix() int { return g.ix.RankPrefix() }
 
 func wrapIndex(ix *graphidx.Index) nonClosingIndex { return nonClosingIndex{nonClosing{ix}, ix} }
 

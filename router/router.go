@@ -34,6 +34,7 @@ type Router struct {
 type handle struct {
 	g    Graph
 	pb   PairBatcher // g's batch look-up, or nil
+	rp   int         // g's RankPrefix, or 0
 	seq  uint64
 	gen  uint64
 	refs atomic.Int64
@@ -107,6 +108,9 @@ func NewWithRetireHook(g Graph, hook func(old Graph, closeErr error), opts ...Op
 func (r *Router) newHandle(g Graph) *handle {
 	h := &handle{g: g, seq: r.seq.Add(1), gen: g.Generation(), r: r}
 	h.pb, _ = g.(PairBatcher)
+	if p, ok := g.(interface{ RankPrefix() int }); ok {
+		h.rp = p.RankPrefix()
+	}
 	h.refs.Store(1)
 	return h
 }
@@ -288,7 +292,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 
 	sc := r.pool.Get().(*scratch)
 	defer func() { sc.reset(); r.pool.Put(sc) }()
-	sc.g, sc.model, sc.st, sc.s, sc.t, sc.pb = g, st.model, st, s, t, h.pb
+	sc.g, sc.model, sc.st, sc.s, sc.t, sc.pb, sc.rankPrefix = g, st.model, st, s, t, h.pb, h.rp
 	sc.hb = st.model.HopBias()
 	sc.bud = budget{left: st.budget, nextCheck: deadlinePoll, done: ctx.Done()}
 	sc.u = u

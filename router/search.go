@@ -200,7 +200,10 @@ type scratch struct {
 		ok     []bool
 	}
 	pendMax int
-	touched uint32 // sink of fetch's table touches
+	// rankPrefix is the graph's RankPrefix (ranked lists shorter than it
+	// are whole), or 0 when unknown.
+	rankPrefix int
+	touched    uint32 // sink of fetch's table touches
 
 	// per call
 	u      int
@@ -455,8 +458,10 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1complete bool, from, other 
 		cur[i] = 0
 		rk := sc.g.RankedNeighbors(x.id)
 		rks = append(rks, rk)
-		if len(rk) < len(sc.g.Neighbors(x.id)) {
-			complete = false // only a prefix is ranked
+		// Only a prefix is ranked? A list shorter than the graph's rank
+		// prefix is whole, which spares reading the node's offsets.
+		if complete && (sc.rankPrefix <= 0 || len(rk) >= sc.rankPrefix) && len(rk) < len(sc.g.Neighbors(x.id)) {
+			complete = false
 		}
 	}
 	sc.rks = rks

@@ -630,8 +630,17 @@ func newRouter(g router.Graph, model scorer.Model, b Bounds, cache int) (*router
 }
 
 // noClose keeps the shared index open when a router retires it. It
-// forwards the index's batch pair look-up (router.PairBatcher).
+// forwards the optional methods the router uses: the batch pair look-up
+// (router.PairBatcher) and RankPrefix.
 type noClose struct{ router.Graph }
+
+// RankPrefix forwards to the graph's RankPrefix, or returns 0 (unknown).
+func (n noClose) RankPrefix() int {
+	if p, has := n.Graph.(interface{ RankPrefix() int }); has {
+		return p.RankPrefix()
+	}
+	return 0
+}
 
 // PairBatch forwards to the graph's PairBatch, or looks the pairs up one by
 // one when it has none.
