@@ -1,8 +1,6 @@
 package router
 
-import "github.com/hopwise/hopwise/graphidx"
-
-// idIndex maps entity ids to positions: an open-addressed table with
+// idIndex maps entity ids (or id pairs, a<<32|b) to positions: an open-addressed table with
 // linear probing (Knuth, TAOCP vol. 3 §6.4, algorithm L) on a
 // multiplicative hash, at most half full. Entries carry the stamp of the
 // reset that made them, so reset is O(1) (no clearing) except when the
@@ -14,7 +12,7 @@ type idIndex struct {
 }
 
 type idSlot struct {
-	id    graphidx.EntityID
+	id    uint64
 	pos   int32
 	stamp uint32
 }
@@ -34,12 +32,12 @@ func (x *idIndex) reset(n int) {
 	}
 }
 
-func (x *idIndex) slot(id graphidx.EntityID) int {
-	return int((uint64(id) * 0x9e3779b97f4a7c15) >> x.shift)
+func (x *idIndex) slot(id uint64) int {
+	return int((id * 0x9e3779b97f4a7c15) >> x.shift)
 }
 
 // put records pos for id unless id is already present.
-func (x *idIndex) put(id graphidx.EntityID, pos int32) {
+func (x *idIndex) put(id uint64, pos int32) {
 	mask := len(x.tab) - 1
 	for i := x.slot(id); ; i = (i + 1) & mask {
 		e := &x.tab[i]
@@ -54,7 +52,7 @@ func (x *idIndex) put(id graphidx.EntityID, pos int32) {
 }
 
 // get returns the position recorded for id.
-func (x *idIndex) get(id graphidx.EntityID) (int32, bool) {
+func (x *idIndex) get(id uint64) (int32, bool) {
 	mask := len(x.tab) - 1
 	for i := x.slot(id); ; i = (i + 1) & mask {
 		e := &x.tab[i]

@@ -172,6 +172,7 @@ type scratch struct {
 	// join matches (matchJoins)
 	f1ids, t1ids   idIndex  // layer-1 node → position
 	f2ends, t2ends idIndex  // layer-2 end node → a position
+	f2paths        idIndex  // a<<32|b of each F2 path → position
 	joinA, joinB   []uint64 // b<<32 | position in f2 (A), t2 (B)
 	joinC          []match3
 	keysF, keysT   []uint64
@@ -328,17 +329,22 @@ func (sc *scratch) gallop(a, b []graphidx.EntityID) bool {
 	return true
 }
 
-// push offers a candidate to the bounded max-heap of the k cheapest.
-func (sc *scratch) push(c cand) {
+// push offers a candidate to the bounded max-heap of the k cheapest. When
+// dup is set, a candidate already in the heap (the same chain met from the
+// other direction) is dropped; the caller sets it only for a chain that
+// may have been pushed before, so the O(k) scan runs rarely.
+func (sc *scratch) push(c cand, dup bool) {
 	h := sc.heap
 	k := sc.st.maxCand
 	if len(h) == k && c.cost > h[0].cost {
 		sc.kCut = true
 		return
 	}
-	for i := range h {
-		if h[i].cost == c.cost && h[i].m == c.m && h[i].b == c.b {
-			return // the same chain from the other direction
+	if dup {
+		for i := range h {
+			if h[i].cost == c.cost && h[i].m == c.m && h[i].b == c.b {
+				return // the same chain from the other direction
+			}
 		}
 	}
 	if len(h) < k {
@@ -559,7 +565,7 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 			complete = false
 			continue
 		}
-		sc.push(cand{cost: c1 + c2 + hb, b: [3]graphidx.EntityID{z}, m: 1})
+		sc.push(cand{cost: c1 + c2 + hb, b: [3]graphidx.EntityID{z}, m: 1}, false)
 	}
 	sc.bud.unlimit(held)
 	if H == 1 {
@@ -601,7 +607,7 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 	f1, t1, f2, t2 := sc.f1, sc.t1, sc.f2, sc.t2
 	for _, k := range sc.joinA {
 		f := &f2[uint32(k)]
-		yi, _ := sc.t1ids.get(f.b)
+		yi, _ := sc.t1ids.get(uint64(f.b))
 		if sc.prune(known(f1[f.li].cost) + known(f.c2) + known(t1[yi].cost) + 2*hb) {
 			continue
 		}
@@ -609,12 +615,12 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 		c2, ok2 := sc.edgeCost2(f)
 		c3, ok3 := sc.cost1(t1, yi, t)
 		if ok1 && ok2 && ok3 {
-			sc.push(cand{cost: c1 + c2 + c3 + 2*hb, b: [3]graphidx.EntityID{f.a, f.b}, m: 2})
+			sc.push(cand{cost: c1 + c2 + c3 + 2*hb, b: [3]graphidx.EntityID{f.a, f.b}, m: 2}, false)
 		}
 	}
 	for _, k := range sc.joinB {
 		y := &t2[uint32(k)]
-		xi, _ := sc.f1ids.get(y.b)
+		xi, _ := sc.f1ids.get(uint64(y.b))
 		x := f1[xi].id
 		// path order: s→b (f1), b→c (y.c2), c→t (t1)
 		if sc.prune(known(f1[xi].cost) + known(y.c2) + known(t1[y.li].cost) + 2*hb) {
@@ -624,7 +630,9 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 		c2, ok2 := sc.edgeCost2(y)
 		c3, ok3 := sc.cost1(t1, y.li, t)
 		if ok1 && ok2 && ok3 {
-			sc.push(cand{cost: c1 + c2 + c3 + 2*hb, b: [3]graphidx.EntityID{x, y.a}, m: 2})
+			// F2 ⋈ T1 met this chain too iff F2 has the path s→x→c.
+			_, again := sc.f2paths.get(uint64(x)<<32 | uint64(y.a))
+			sc.push(cand{cost: c1 + c2 + c3 + 2*hb, b: [3]graphidx.EntityID{x, y.a}, m: 2}, again)
 		}
 	}
 	complete = complete && ((f2ok && t1ok) || (f1ok && t2ok))
@@ -647,7 +655,7 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 		c3, ok3 := sc.edgeCost2(y)
 		c4, ok4 := sc.cost1(t1, y.li, t)
 		if ok1 && ok2 && ok3 && ok4 {
-			sc.push(cand{cost: c1 + c2 + c3 + c4 + 3*hb, b: [3]graphidx.EntityID{f.a, f.b, y.a}, m: 3})
+			sc.push(cand{cost: c1 + c2 + c3 + c4 + 3*hb, b: [3]graphidx.EntityID{f.a, f.b, y.a}, m: 3}, false)
 		}
 	}
 	complete = complete && f2ok && t2ok
@@ -667,22 +675,26 @@ func (sc *scratch) matchJoins(skip3 bool) {
 	f1, t1, f2, t2 := sc.f1, sc.t1, sc.f2, sc.t2
 	sc.f1ids.reset(len(f1))
 	for i := range f1 {
-		sc.f1ids.put(f1[i].id, int32(i))
+		sc.f1ids.put(uint64(f1[i].id), int32(i))
 	}
 	sc.t1ids.reset(len(t1))
 	for i := range t1 {
-		sc.t1ids.put(t1[i].id, int32(i))
+		sc.t1ids.put(uint64(t1[i].id), int32(i))
+	}
+	sc.f2paths.reset(len(f2))
+	for i := range f2 {
+		sc.f2paths.put(uint64(f2[i].a)<<32|uint64(f2[i].b), int32(i))
 	}
 	sc.joinA = sc.joinA[:0]
 	for i := range f2 {
-		if _, ok := sc.t1ids.get(f2[i].b); ok {
+		if _, ok := sc.t1ids.get(uint64(f2[i].b)); ok {
 			sc.joinA = append(sc.joinA, uint64(f2[i].b)<<32|uint64(i))
 		}
 	}
 	slices.Sort(sc.joinA)
 	sc.joinB = sc.joinB[:0]
 	for i := range t2 {
-		if _, ok := sc.f1ids.get(t2[i].b); ok {
+		if _, ok := sc.f1ids.get(uint64(t2[i].b)); ok {
 			sc.joinB = append(sc.joinB, uint64(t2[i].b)<<32|uint64(i))
 		}
 	}
@@ -695,20 +707,20 @@ func (sc *scratch) matchJoins(skip3 bool) {
 	// other side has, sorted, then merged group by group.
 	sc.f2ends.reset(len(f2))
 	for i := range f2 {
-		sc.f2ends.put(f2[i].b, int32(i))
+		sc.f2ends.put(uint64(f2[i].b), int32(i))
 	}
 	sc.t2ends.reset(len(t2))
 	for i := range t2 {
-		sc.t2ends.put(t2[i].b, int32(i))
+		sc.t2ends.put(uint64(t2[i].b), int32(i))
 	}
 	fk, tk := sc.keysF[:0], sc.keysT[:0]
 	for i := range f2 {
-		if _, ok := sc.t2ends.get(f2[i].b); ok {
+		if _, ok := sc.t2ends.get(uint64(f2[i].b)); ok {
 			fk = append(fk, uint64(f2[i].b)<<32|uint64(i))
 		}
 	}
 	for i := range t2 {
-		if _, ok := sc.f2ends.get(t2[i].b); ok {
+		if _, ok := sc.f2ends.get(uint64(t2[i].b)); ok {
 			tk = append(tk, uint64(t2[i].b)<<32|uint64(i))
 		}
 	}
@@ -751,7 +763,7 @@ func (sc *scratch) prefetchJoins() {
 	}
 	for _, k := range sc.joinB {
 		y := &t2[uint32(k)]
-		xi, _ := sc.f1ids.get(y.b)
+		xi, _ := sc.f1ids.get(uint64(y.b))
 		sc.want(s, f1[xi].id)
 		sc.want(y.b, y.a)
 		sc.want(y.a, t)
