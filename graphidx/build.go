@@ -686,6 +686,11 @@ func (b *buildRun) finish(ctx context.Context, tables []*pairTab, sum *BuildSumm
 	d := b.dict
 	rank, order := d.ranks() // final: rank[prov] is the EntityID
 	n := len(order)
+	// Reading is over: drop the interning maps (a large part of the
+	// dictionary) before the entity records and merge buffers are made.
+	d.mu.Lock()
+	d.ids, d.gvals = nil, nil
+	d.mu.Unlock()
 	sum.Entities = n
 	comp := &Compiled{contexts: sum.Contexts, ents: make([]EntityRecord, n), k: make([]uint8, n)}
 	defer func() {
@@ -712,6 +717,7 @@ func (b *buildRun) finish(ctx context.Context, tables []*pairTab, sum *BuildSumm
 		comp.ents[id] = rec
 		comp.k[id] = uint8(len(vs))
 		valFinal[p] = vf
+		d.vals[p], d.marg[p] = nil, nil // copied into rec
 	}
 	b.cfg.emit(ProgressEvent{Phase: PhaseMerge, Contexts: sum.Contexts, Entities: n, SpillRuns: b.numRuns(),
 		BytesRead: -1, Elapsed: time.Since(b.start)})
