@@ -171,8 +171,7 @@ type scratch struct {
 	f2, t2 []step2
 	// join matches (matchJoins)
 	f1ids, t1ids   idIndex  // layer-1 node → position
-	f2ends, t2ends idIndex  // layer-2 end node → a position
-	f2paths        idIndex  // a<<32|b of each F2 path → position
+	f2ends, t2ends idIndex  // layer-2 end nodes met by both sides (f2ends), of T2
 	joinA, joinB   []uint64 // b<<32 | position in f2 (A), t2 (B)
 	joinC          []match3
 	keysF, keysT   []uint64
@@ -473,6 +472,17 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1complete bool, from, other 
 		}
 	}
 	sc.rks = rks
+	// Read the head of every ranked list in one tight loop first: the
+	// loads are independent, so their cache misses overlap, where the
+	// breadth-first loop below (branchy, one list after the other) would
+	// meet them one by one.
+	var touch graphidx.EntityID
+	for _, rk := range rks {
+		if len(rk) > 0 {
+			touch += rk[0]
+		}
+	}
+	sc.touched += uint32(touch)
 	for progress := true; progress; {
 		progress = false
 		for i, x := range l1 {
@@ -630,9 +640,7 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 		c2, ok2 := sc.edgeCost2(y)
 		c3, ok3 := sc.cost1(t1, y.li, t)
 		if ok1 && ok2 && ok3 {
-			// F2 ⋈ T1 met this chain too iff F2 has the path s→x→c.
-			_, again := sc.f2paths.get(uint64(x)<<32 | uint64(y.a))
-			sc.push(cand{cost: c1 + c2 + c3 + 2*hb, b: [3]graphidx.EntityID{x, y.a}, m: 2}, again)
+			sc.push(cand{cost: c1 + c2 + c3 + 2*hb, b: [3]graphidx.EntityID{x, y.a}, m: 2}, sc.inJoinA(x, y.a))
 		}
 	}
 	complete = complete && ((f2ok && t1ok) || (f1ok && t2ok))
@@ -681,10 +689,6 @@ func (sc *scratch) matchJoins(skip3 bool) {
 	for i := range t1 {
 		sc.t1ids.put(uint64(t1[i].id), int32(i))
 	}
-	sc.f2paths.reset(len(f2))
-	for i := range f2 {
-		sc.f2paths.put(uint64(f2[i].a)<<32|uint64(f2[i].b), int32(i))
-	}
 	sc.joinA = sc.joinA[:0]
 	for i := range f2 {
 		if _, ok := sc.t1ids.get(uint64(f2[i].b)); ok {
@@ -703,12 +707,9 @@ func (sc *scratch) matchJoins(skip3 bool) {
 	if skip3 {
 		return
 	}
-	// End nodes of each side, then the paths of each side whose end the
-	// other side has, sorted, then merged group by group.
-	sc.f2ends.reset(len(f2))
-	for i := range f2 {
-		sc.f2ends.put(uint64(f2[i].b), int32(i))
-	}
+	// The F2 paths whose end T2 has, then the T2 paths whose end is one
+	// of those (few, so their index is small), both sorted, then merged
+	// group by group.
 	sc.t2ends.reset(len(t2))
 	for i := range t2 {
 		sc.t2ends.put(uint64(t2[i].b), int32(i))
@@ -719,9 +720,15 @@ func (sc *scratch) matchJoins(skip3 bool) {
 			fk = append(fk, uint64(f2[i].b)<<32|uint64(i))
 		}
 	}
-	for i := range t2 {
-		if _, ok := sc.f2ends.get(uint64(t2[i].b)); ok {
-			tk = append(tk, uint64(t2[i].b)<<32|uint64(i))
+	if len(fk) > 0 {
+		sc.f2ends.reset(len(fk))
+		for _, k := range fk {
+			sc.f2ends.put(k>>32, 0)
+		}
+		for i := range t2 {
+			if _, ok := sc.f2ends.get(uint64(t2[i].b)); ok {
+				tk = append(tk, uint64(t2[i].b)<<32|uint64(i))
+			}
 		}
 	}
 	slices.Sort(fk)
@@ -743,6 +750,20 @@ func (sc *scratch) matchJoins(skip3 bool) {
 		i, j = ie, je
 	}
 	sc.keysF, sc.keysT = fk, tk
+}
+
+// inJoinA reports whether F2 ⋈ T1 met the chain s→x→c→t, i.e. whether F2
+// has the path s→x→c with c in T1: a binary search for c in the sorted
+// matches of F2 ⋈ T1 (a few per decision). Only such a chain can be pushed
+// twice.
+func (sc *scratch) inJoinA(x, c graphidx.EntityID) bool {
+	j, _ := slices.BinarySearch(sc.joinA, uint64(c)<<32)
+	for ; j < len(sc.joinA) && sc.joinA[j]>>32 == uint64(c); j++ {
+		if sc.f2[uint32(sc.joinA[j])].a == x {
+			return true
+		}
+	}
+	return false
 }
 
 // match3 is a match of F2 ⋈ T2: positions in F2 and T2.
