@@ -436,13 +436,16 @@ func ctxDone(ctx context.Context) bool {
 
 // cloneStrings copies the value labels and the bridge names into one
 // heap buffer so that the result never points into index memory.
+// Each name is read once (Graph.Name of an Index allocates a copy).
 func cloneStrings(g Graph, values []string, ids []graphidx.EntityID) []string {
+	var names [MaxBridgesLimit]string
 	n := 0
 	for _, v := range values {
 		n += len(v)
 	}
-	for _, id := range ids {
-		n += len(g.Name(id))
+	for i, id := range ids {
+		names[i] = g.Name(id)
+		n += len(names[i])
 	}
 	buf := make([]byte, 0, n)
 	out := make([]string, 0, len(values)+len(ids))
@@ -458,8 +461,8 @@ func cloneStrings(g Graph, values []string, ids []graphidx.EntityID) []string {
 	for _, v := range values {
 		add(v)
 	}
-	for _, id := range ids {
-		add(g.Name(id))
+	for i := range ids {
+		add(names[i])
 	}
 	return out
 }
