@@ -199,8 +199,13 @@ func BenchmarkDecideCachedParallel(b *testing.B) {
 }
 
 func benchUncached(b *testing.B, opts ...Option) {
-	ix, src := benchIndex(b)
-	r, err := New(wrapIndex(ix), append([]Option{WithCacheSize(0)}, opts...)...)
+	ix, _ := benchIndex(b)
+	benchUncachedOn(b, wrapIndex(ix), opts...)
+}
+
+func benchUncachedOn(b *testing.B, g Graph, opts ...Option) {
+	_, src := benchIndex(b)
+	r, err := New(g, append([]Option{WithCacheSize(0)}, opts...)...)
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -229,6 +234,15 @@ func benchUncached(b *testing.B, opts ...Option) {
 }
 
 func BenchmarkDecideUncached(b *testing.B) { benchUncached(b) }
+
+// BenchmarkDecideUncachedOneByOne is BenchmarkDecideUncached on a graph
+// that hides the index's optional methods (PairBatch, RankPrefix): every
+// pair is read with its own Pair call, as before the batch prefetch (the
+// per-decision pair memo stays). Same decisions (TestDecideGoldenDigest).
+func BenchmarkDecideUncachedOneByOne(b *testing.B) {
+	ix, _ := benchIndex(b)
+	benchUncachedOn(b, nonClosing{ix})
+}
 
 func BenchmarkDecideUncachedH1(b *testing.B) { benchUncached(b, WithMaxBridges(1)) }
 
