@@ -204,7 +204,11 @@ func runEval(cmd *cobra.Command, o evalOptions) error {
 			return enc.Encode(fr)
 		}
 		fmt.Fprintf(out, "fitted on %s worlds, seeds %v (%d contexts each)\n", fr.Condition, fr.Seeds, o.contexts)
-		fmt.Fprintf(out, "bayes   β  = %.6g   (fixed point %v, %d chains)\n", fr.Beta, fr.BetaPath, fr.ChainSamples)
+		fmt.Fprintf(out, "bayes   β  = %.6g  γ = %.6g  δ = %.6g   (fixed point β %v, γ %v, %d chains)\n",
+			fr.Beta, fr.Gamma, fr.Delta, fr.BetaPath, fr.GammaPath, fr.ChainSamples)
+		for _, g := range fr.Grid {
+			fmt.Fprintf(out, "        δ = %-6g β = %.6g  γ = %.6g  fit-world ρ %.4f  mean ratio %.3f\n", g.Delta, g.Beta, g.Gamma, g.Spearman, g.MeanRatio)
+		}
 		fmt.Fprintf(out, "support v0 = %.6g  n0 = %.6g  β = %.6g   (RMSE %.4g, %d samples)\n",
 			fr.Support.V0, fr.Support.N0, fr.Support.Beta, fr.Support.RMSE, fr.Support.N)
 		return nil
