@@ -67,10 +67,11 @@ ratio of means.
 Conditions: local-geometric, local-zipf, full, wrong (comma-separated, or
 all). Seeds: --seeds 1,2,3, or --seed N --worlds W for N … N+W−1.
 
---fit calibrates instead: the per-hop bias β of the Bayes model (fixed point
-of scorer.FitHopBias on the chains the router picks) and the support model's
-v0, n0, β (scorer.FitSupport), on the worlds of --fit-seeds, which must not
-overlap the evaluation seeds.
+--fit calibrates instead: the Bayes model's chain bias β·m + γ·(δ − L)₊²
+(for each δ of a grid, the fixed point of scorer.FitChainBias on the chains
+the router answers with; δ is the one with the best Spearman ρ on the fit
+worlds) and the support model's v0, n0, β (scorer.FitSupport), on the worlds
+of --fit-seeds, which must not overlap the evaluation seeds.
 
 --write-queries DIR keeps, for the first world, DIR/corpus.jsonl,
 DIR/index.hwx, DIR/queries.jsonl (input of "hopwise route --queries") and
