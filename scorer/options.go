@@ -33,7 +33,9 @@ const (
 	// grid value (0.05 … 0.3) whose fixed point gave the largest mean Spearman
 	// ρ of predicted against realised error on the fit worlds (0.664; δ = 0.1
 	// gave 0.605, δ = 0.15 0.645); γ is the least-squares fit at that δ
-	// (fixed point 1 → 3.975 → 4.4157 → 4.4152). On the evaluation seeds 1–5
+	// (fixed point 1 → 3.975 → 4.4157 → 4.4152 when started from the
+	// previous β = 0.00236; 1 → 4.022 → 4.4157 → 4.4152 from β = 0, so the
+	// fit reproduces itself). On the evaluation seeds 1–5
 	// (local-geometric) the defaults give ρ 0.635 (0.549 with the previous
 	// β = 0.00236 and no missing-signal term), mean ratio 1.01, held-out
 	// routed MSE 0.00286 and supported 7.74e-4 (direct 7.94e-4).
