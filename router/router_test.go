@@ -356,9 +356,10 @@ func TestSeparatorBeatsHighSupportBridges(t *testing.T) {
 	q := Query{From: "vent-north", Value: "open", To: "bed-tomato"}
 	const truthDry = 0.82
 
-	// The old failure, shown with the scorer alone: every logger chain has
-	// more support and a smaller variance than the separator chain.
-	m, err := scorer.NewBayes()
+	// The old failure, shown with the scorer's variance alone (β = 0, no
+	// missing-signal term): every logger chain has more support and a
+	// smaller variance than the separator chain.
+	m, err := scorer.NewBayes(scorer.WithBeta(0), scorer.WithMissingSignal(0, 0))
 	if err != nil {
 		t.Fatal(err)
 	}

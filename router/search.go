@@ -40,7 +40,10 @@ import (
 // Stage 2 (Router.compute) scores the candidates exactly with model.Chain and
 // adds a squared-bias term relative to a reference estimate ref:
 //
-//	Err_c = Σ_v Var(p̂_c,v) + β·m_c + scorer.ReferenceBias(p̂_c, ref),
+//	Err_c = model Err of c + scorer.ReferenceBias(p̂_c, ref),
+//
+// the model Err being, for Bayes, Σ_v Var(p̂_c,v) + β·m_c plus its
+// missing-signal bias (≥ 0),
 //
 // where ref is the direct estimate when the pair has support > 0, else the
 // estimate of the proxy-cheapest generated chain (smallest cost, then fewer

@@ -53,7 +53,19 @@ import (
 // M_k·[R_k | R_k∘R_k] = [R_(k−1) | M_k(R_k∘R_k)] with one matrix product per
 // edge, so no covariance matrix is formed. Then
 //
-//	Err_chain = Σ_v Var(p̂_v) + β·m.
+//	Err_chain = Σ_v Var(p̂_v) + β·m + γ·(δ − L)₊²,   L = Π_k ℓ_k,
+//
+// where ℓ_k = max(0, V̂_k − z/√n_k) is edge k's association lower bound
+// (SignalBound; EdgeCost = −log ℓ_k, so L = exp(−Σ_k EdgeCost)). The last
+// term is the missing-signal bias: a chain whose signal cannot be told from
+// zero answers about the target's marginal, and when the endpoints are in
+// fact dependent its error is the whole dependence it missed, which neither
+// the variance (a weak chain varies little) nor a constant per hop sees. A
+// chain that keeps a detectable signal (L ≥ δ) pays nothing. γ and δ are
+// fitted (DefaultMissingGamma, DefaultMissingDelta): on the fit worlds
+// almost every chain with a large bias had L ≈ 0 (its best chain missed the
+// true path), and chains with L above ≈ 0.1 almost never had one. The term is
+// ≥ 0, so Err_chain ≥ β·m still holds (the router's pruning bound).
 //
 // Cost O(Σ_k K_(k−1)·K_k·K_t + m·K²) = O(m·K³) time for K values per entity,
 // O(m·K²) workspace, one allocation (Dist). The linearisation neglects terms
@@ -66,12 +78,14 @@ import (
 // O(m·K³) cost.
 type Bayes struct {
 	alpha, beta, signalZ float64
+	gamma, delta         float64
 	variance             Variance
 }
 
 // NewBayes returns the valued Dirichlet model. Options: WithAlpha (α > 0,
-// default 1), WithBeta (β ≥ 0, default DefaultBeta), WithSignalZ (z ≥ 0 of
-// EdgeCost, default DefaultSignalZ), WithVariance (DeltaMethod or
+// default 1), WithBeta (β ≥ 0, default DefaultBeta), WithMissingSignal (γ ≥ 0,
+// δ ∈ [0, 1], defaults DefaultMissingGamma, DefaultMissingDelta), WithSignalZ
+// (z ≥ 0 of EdgeCost and of the signal bound, default DefaultSignalZ), WithVariance (DeltaMethod or
 // ExactMoments, default DeltaMethod).
 // WithV0 and WithN0 belong to the support model and are rejected with
 // ErrBadOption.
@@ -83,7 +97,7 @@ func NewBayes(opts ...Option) (*Bayes, error) {
 	if c.setV0 || c.setN0 {
 		return nil, fmt.Errorf("%w: WithV0/WithN0 apply to the support model only", ErrBadOption)
 	}
-	return &Bayes{alpha: c.alpha, beta: c.beta, signalZ: c.signalZ, variance: c.variance}, nil
+	return &Bayes{alpha: c.alpha, beta: c.beta, signalZ: c.signalZ, gamma: c.gamma, delta: c.delta, variance: c.variance}, nil
 }
 
 // Name returns "bayes".
@@ -176,7 +190,8 @@ func (b *Bayes) Direct(ws *Workspace, st Stats, s graphidx.EntityID, u int, t gr
 	return Estimate{Dist: dist, Err: e, Support: sup}, nil
 }
 
-// Chain returns p̂ = e_uᵀ M_1…M_(m+1) and Err = Σ_v Var(p̂_v) + β·m, the
+// Chain returns p̂ = e_uᵀ M_1…M_(m+1) and Err = Σ_v Var(p̂_v) + β·m +
+// γ·(δ − L)₊² (the missing-signal bias; see the type documentation), the
 // variance by the delta method or, with WithVariance(ExactMoments), exactly
 // (see the type documentation and Variance). For m = 0 both give the direct
 // error. Support is the smallest
@@ -189,11 +204,19 @@ func (b *Bayes) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridg
 	if err := ws.setPath(st, s, u, bridges, t); err != nil {
 		return Estimate{}, err
 	}
-	minSup, err := ws.loadEdges(st, b.alpha)
+	var sig *Bayes
+	if b.gamma > 0 && len(bridges) > 0 {
+		sig = b
+	}
+	minSup, err := ws.loadEdges(st, b.alpha, sig)
 	if err != nil {
 		return Estimate{}, err
 	}
 	m := len(bridges)
+	bias := b.beta * float64(m)
+	if sig != nil {
+		bias += b.missingSignal(ws.lb)
+	}
 	kt := ws.ks[m+1]
 	dist := make([]float64, kt)
 	vr := growF(ws.vr, kt)
@@ -227,7 +250,7 @@ func (b *Bayes) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridg
 	}
 	if b.variance == ExactMoments {
 		ws.exactMoments(u, m, dist, vr)
-		return Estimate{Dist: dist, Err: sumClamped(vr) + b.beta*float64(m), Support: minSup}, nil
+		return Estimate{Dist: dist, Err: sumClamped(vr) + bias, Support: minSup}, nil
 	}
 
 	// Backward pass. P holds [R_(k−1) | M_k(R_k∘R_k)] with stride 2K_t and
@@ -291,7 +314,7 @@ func (b *Bayes) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridg
 		cur, nxt = nxt, cur
 	}
 	copy(dist, cur[:kt]) // row u of R_0 = M_1 R_1 is p̂
-	e := sumClamped(vr) + b.beta*float64(m)
+	e := sumClamped(vr) + bias
 	return Estimate{Dist: dist, Err: e, Support: minSup}, nil
 }
 

@@ -156,6 +156,9 @@ type ChainSample struct {
 	Var   float64
 	Hops  int
 	SqErr float64
+	// Signal is the chain's signal L = Π_k SignalBound(edge k) (used by
+	// FitChainBias only).
+	Signal float64
 }
 
 // FitHopBias fits β by least squares on the realised squared errors,
@@ -179,4 +182,58 @@ func FitHopBias(samples []ChainSample) (float64, error) {
 		return 0, fmt.Errorf("%w: no chained samples (all hops 0)", ErrFit)
 	}
 	return max(0, num/den), nil
+}
+
+// FitChainBias fits β and γ of the Bayes model's chain bias
+// β·m + γ·(δ − L)₊² (δ given) by least squares on the realised squared
+// errors,
+//
+//	minimise Σ_i (Var_i + β m_i + γ f_i − SqErr_i)²,  f_i = (δ − Signal_i)₊²,
+//
+// over β, γ ≥ 0: the 2×2 normal equations, and when a coefficient comes out
+// negative the one-variable fit of the other with it held at 0 (non-negative
+// least squares in two variables, common practice). O(n). Errors (ErrFit):
+// no sample with m_i > 0, negative hops, a NaN, infinite or negative Var or
+// SqErr, a Signal outside [0, 1], or δ outside [0, 1].
+func FitChainBias(samples []ChainSample, delta float64) (beta, gamma float64, err error) {
+	if !finite(delta) || delta < 0 || delta > 1 {
+		return 0, 0, fmt.Errorf("%w: δ = %v", ErrFit, delta)
+	}
+	var mm, mf, ff, my, fy float64
+	for i, s := range samples {
+		if s.Hops < 0 || !finite(s.Var) || s.Var < 0 || !finite(s.SqErr) || s.SqErr < 0 || !(s.Signal >= 0 && s.Signal <= 1) {
+			return 0, 0, fmt.Errorf("%w: sample %d: hops %d, var %v, squared error %v, signal %v", ErrFit, i, s.Hops, s.Var, s.SqErr, s.Signal)
+		}
+		m := float64(s.Hops)
+		if m == 0 {
+			continue
+		}
+		f := max(0, delta-s.Signal)
+		f *= f
+		y := s.SqErr - s.Var
+		mm += m * m
+		mf += m * f
+		ff += f * f
+		my += m * y
+		fy += f * y
+	}
+	if mm == 0 {
+		return 0, 0, fmt.Errorf("%w: no chained samples (all hops 0)", ErrFit)
+	}
+	if det := mm*ff - mf*mf; det > 1e-12*mm*ff {
+		beta, gamma = (my*ff-fy*mf)/det, (fy*mm-my*mf)/det
+		if beta >= 0 && gamma >= 0 {
+			return beta, gamma, nil
+		}
+	}
+	// One coefficient at 0: the better of the two one-variable fits.
+	bOnly := max(0, my/mm)
+	sseB := -2*bOnly*my + bOnly*bOnly*mm
+	if ff > 0 {
+		gOnly := max(0, fy/ff)
+		if sseG := -2*gOnly*fy + gOnly*gOnly*ff; sseG < sseB {
+			return 0, gOnly, nil
+		}
+	}
+	return bOnly, 0, nil
 }

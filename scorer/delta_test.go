@@ -192,8 +192,8 @@ func TestDeltaMethodMonteCarlo(t *testing.T) {
 		{chainCase{ks: []int{2, 2, 2, 2}, nMin: 1, nMax: 5, conc: 1, seed: 10}, false}, // small counts
 		{chainCase{ks: []int{3, 3, 3}, nMin: 2, nMax: 8, conc: 1, seed: 11}, false},    // small counts
 	}
-	b := mustBayes(t, scorer.WithBeta(0))
-	bx := mustBayes(t, scorer.WithBeta(0), scorer.WithVariance(scorer.ExactMoments))
+	b := mustBayes(t, scorer.WithBeta(0), scorer.WithMissingSignal(0, 0))
+	bx := mustBayes(t, scorer.WithBeta(0), scorer.WithMissingSignal(0, 0), scorer.WithVariance(scorer.ExactMoments))
 	for i, tc := range cases {
 		t.Run(tc.c.String(), func(t *testing.T) {
 			t.Parallel()

@@ -6,7 +6,9 @@
 //   - Bayes, for valued corpora: Dirichlet posteriors of the local
 //     conditionals (Gelman et al., BDA 3rd ed. §2.4, §3.4), a chained
 //     estimate p̂ = e_uᵀ M_1…M_(m+1) built with gonum/mat, its delta-method
-//     (or exact-moment) variance, and a per-hop squared bias β·m.
+//     (or exact-moment) variance, a per-hop squared bias β·m and a
+//     missing-signal bias γ·(δ − L)₊² for chains whose signal L (the product
+//     of the edges' association lower bounds) is too weak to detect.
 //   - Support, for presence-only corpora: err(edge) = v0/(support + n0),
 //     err(chain) = Σ_edges err(edge) + β·m.
 //
@@ -17,9 +19,9 @@
 // ReferenceBias is the squared distance of a chain's estimate from a
 // reference estimate, which the router adds to a chain's error as its bias.
 //
-// Combine merges independent chains by inverse-error weighting. FitSupport
-// and FitHopBias calibrate v0, n0 and β by least squares on realised squared
-// errors (for example from the synthetic worlds).
+// Combine merges independent chains by inverse-error weighting. FitSupport,
+// FitHopBias and FitChainBias calibrate v0, n0, β and γ by least squares on
+// realised squared errors (for example from the synthetic worlds).
 //
 // The scorer reads statistics through the small Stats interface, which
 // *graphidx.Index satisfies. Value indexes follow each entity's value labels

@@ -213,7 +213,7 @@ func TestChainUnobservedEdgeUsesPrior(t *testing.T) {
 	st := newMemStats().entity(1, 2).entity(2, 3).entity(3, 2).
 		pair(1, 2, [][]uint32{{50, 30, 20}, {10, 10, 80}})
 	// 2–3 never observed: M_2 is the prior, every row uniform.
-	b := mustBayes(t, scorer.WithBeta(0.01))
+	b := mustBayes(t, scorer.WithBeta(0.01), scorer.WithMissingSignal(2, 0.1))
 	est, err := b.Chain(nil, st, 1, 0, []graphidx.EntityID{2}, 3)
 	if err != nil {
 		t.Fatal(err)
@@ -229,9 +229,11 @@ func TestChainUnobservedEdgeUsesPrior(t *testing.T) {
 	// Hand derivation: rows of M_2 are Dirichlet(1,1) with Var = 1/12 per
 	// value; p̂_v = Σ_r x[r] M2[r,v] with x = θ̂ of row 0 of edge 1, so
 	// Var(p̂_v) = Σ_r x[r]²/12 from edge 2; edge 1 adds nothing because every
-	// column of R_1 = M_2 (means) is constant (0.5). Err = 2·Σ x²/12 + β.
+	// column of R_1 = M_2 (means) is constant (0.5). Err = 2·Σ x²/12 + β +
+	// γδ²: the unobserved edge has signal 0, so the missing-signal term is
+	// γ·(δ − 0)² = 2·0.1².
 	x := []float64{51.0 / 103, 31.0 / 103, 21.0 / 103}
-	want := 0.01
+	want := 0.01 + 2*0.1*0.1
 	for _, xi := range x {
 		want += 2 * xi * xi / 12
 	}

@@ -89,7 +89,7 @@ func TestDirichletBDA34(t *testing.T) {
 		}
 	}
 	st.pair(2, 3, rows)
-	b := mustBayes(t, scorer.WithBeta(0))
+	b := mustBayes(t, scorer.WithBeta(0), scorer.WithMissingSignal(0, 0))
 	params, err := b.Posterior(nil, st, 1, 0, 2)
 	if err != nil {
 		t.Fatal(err)
@@ -154,7 +154,7 @@ func TestPriorVariance(t *testing.T) {
 	for _, k := range []int{1, 2, 3, 5, 64} {
 		for _, alpha := range []float64{0.25, 1, 3} {
 			want := float64(k-1) / (float64(k) * (float64(k)*alpha + 1))
-			b := mustBayes(t, scorer.WithAlpha(alpha), scorer.WithBeta(0))
+			b := mustBayes(t, scorer.WithAlpha(alpha), scorer.WithBeta(0), scorer.WithMissingSignal(0, 0))
 			// 1–2 unobserved; 1–3 observed but never with value 0 of entity 1.
 			st := newMemStats().entity(1, 2).entity(2, k).entity(3, k)
 			row1 := make([]uint32, k)
@@ -217,7 +217,7 @@ func TestChainExactMarkov(t *testing.T) {
 		st.pair(ids[k], ids[k+1], rows)
 		marg = next
 	}
-	b := mustBayes(t, scorer.WithBeta(0))
+	b := mustBayes(t, scorer.WithBeta(0), scorer.WithMissingSignal(0, 0))
 	ws := scorer.NewWorkspace()
 	for u := 0; u < 3; u++ {
 		// Exact: x ← x·T_k by hand.

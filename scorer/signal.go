@@ -58,12 +58,7 @@ var MaxEdgeCost = -math.Log(signalFloor)
 // signal to rank by). It is not monotone in support. O(K_a·K_b), no
 // allocation.
 func (b *Bayes) EdgeCost(ps graphidx.PairStats) float64 {
-	ka, kb := ps.KA, ps.KB
-	if ka < 2 || kb < 2 || ka > graphidx.MaxValues || kb > graphidx.MaxValues {
-		return MaxEdgeCost
-	}
-	v, n := cramersV(ps, b.alpha)
-	lb := v - b.signalZ/math.Sqrt(n)
+	lb := b.signalBound(ps, true)
 	if !(lb > signalFloor) { // also catches NaN
 		return MaxEdgeCost
 	}
@@ -71,6 +66,43 @@ func (b *Bayes) EdgeCost(ps graphidx.PairStats) float64 {
 		return 0
 	}
 	return -math.Log(lb)
+}
+
+// signalBound returns the edge's association lower bound V̂ − z/√n of
+// EdgeCost clamped to [0, 1]; 0 for an edge never observed (ok false), an
+// entity with fewer than 2 values, or NaN. O(K_a·K_b).
+func (b *Bayes) signalBound(ps graphidx.PairStats, ok bool) float64 {
+	ka, kb := ps.KA, ps.KB
+	if !ok || ka < 2 || kb < 2 || ka > graphidx.MaxValues || kb > graphidx.MaxValues {
+		return 0
+	}
+	v, n := cramersV(ps, b.alpha)
+	lb := v - b.signalZ/math.Sqrt(n)
+	if !(lb > 0) {
+		return 0
+	}
+	return min(lb, 1)
+}
+
+// SignalBound returns the association lower bound max(0, min(1, V̂ − z/√n))
+// of the edge ps (see EdgeCost, whose cost is −log of it): 0 when the
+// association is not distinguishable from zero or an entity has fewer than
+// 2 values. The product of the bounds along a chain is the signal L of the
+// missing-signal bias. O(K_a·K_b), no allocation.
+func (b *Bayes) SignalBound(ps graphidx.PairStats) float64 { return b.signalBound(ps, true) }
+
+// missingSignal returns the missing-signal bias γ·(δ − L)₊² of a chain
+// whose edges have the signal lower bounds lbs, L = Π_k lbs[k]. O(m).
+func (b *Bayes) missingSignal(lbs []float64) float64 {
+	l := 1.0
+	for _, x := range lbs {
+		l *= x
+	}
+	d := b.delta - l
+	if d <= 0 {
+		return 0
+	}
+	return b.gamma * d * d
 }
 
 // cramersV returns Cramér's V of the posterior-mean joint table of ps (see

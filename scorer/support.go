@@ -39,6 +39,9 @@ func NewSupport(opts ...Option) (*Support, error) {
 	if c.setSignalZ {
 		return nil, fmt.Errorf("%w: WithSignalZ applies to the Bayes model only (the support model's edge cost is v0/(support+n0))", ErrBadOption)
 	}
+	if c.setMissing {
+		return nil, fmt.Errorf("%w: WithMissingSignal applies to the Bayes model only", ErrBadOption)
+	}
 	if !c.setBeta {
 		c.beta = DefaultSupportBeta
 	}
@@ -77,7 +80,7 @@ func (m *Support) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bri
 	if err := ws.setPath(st, s, u, bridges, t); err != nil {
 		return Estimate{}, err
 	}
-	minSup, err := ws.loadEdges(st, m.alpha)
+	minSup, err := ws.loadEdges(st, m.alpha, nil)
 	if err != nil {
 		return Estimate{}, err
 	}

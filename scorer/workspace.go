@@ -22,6 +22,7 @@ type Workspace struct {
 	cinv  []float64 // 1/(n_r + K_k α + 1) for each row r of each M_k, concatenated
 	coff  []int     // coff[k-1] = offset of M_k's rows in cinv
 	sup   []uint64  // sup[k-1] = support of edge k (the pair count behind M_k)
+	lb    []float64 // lb[k-1] = signal lower bound of edge k (Bayes.signalBound), when asked
 
 	x    []float64 // forward row vectors x_1..x_m, concatenated
 	xoff []int     // xoff[k-1] = offset of x_k
@@ -111,7 +112,10 @@ func (ws *Workspace) setPath(st Stats, s graphidx.EntityID, u int, bridges []gra
 // the smallest edge support; each edge's support is kept in ws.sup. An edge
 // never observed gets the prior (all-zero counts) and support 0. Cost
 // O(Σ_k K_(k−1)·K_k) plus the Stats lookups.
-func (ws *Workspace) loadEdges(st Stats, alpha float64) (uint64, error) {
+//
+// With sig non-nil, ws.lb[k-1] is also set to sig.signalBound of edge k
+// (O(K_(k−1)·K_k) more per edge).
+func (ws *Workspace) loadEdges(st Stats, alpha float64, sig *Bayes) (uint64, error) {
 	edges := len(ws.path) - 1
 	ws.toff = growI(ws.toff, edges+1)
 	ws.coff = growI(ws.coff, edges+1)
@@ -126,6 +130,7 @@ func (ws *Workspace) loadEdges(st Stats, alpha float64) (uint64, error) {
 	ws.cinv = growF(ws.cinv, cn)
 
 	ws.sup = ws.sup[:0]
+	ws.lb = ws.lb[:0]
 	minSup := ^uint64(0)
 	for k := 0; k < edges; k++ {
 		ka, kb := ws.ks[k], ws.ks[k+1]
@@ -137,6 +142,9 @@ func (ws *Workspace) loadEdges(st Stats, alpha float64) (uint64, error) {
 		ci := ws.cinv[ws.coff[k]:ws.coff[k+1]]
 		sup := fillMeans(th, ci, ps, ok, ka, kb, alpha)
 		ws.sup = append(ws.sup, sup)
+		if sig != nil {
+			ws.lb = append(ws.lb, sig.signalBound(ps, ok))
+		}
 		minSup = min(minSup, sup)
 	}
 	return minSup, nil

@@ -67,10 +67,11 @@ ratio of means.
 Conditions: local-geometric, local-zipf, full, wrong (comma-separated, or
 all). Seeds: --seeds 1,2,3, or --seed N --worlds W for N … N+W−1.
 
---fit calibrates instead: the per-hop bias β of the Bayes model (fixed point
-of scorer.FitHopBias on the chains the router picks) and the support model's
-v0, n0, β (scorer.FitSupport), on the worlds of --fit-seeds, which must not
-overlap the evaluation seeds.
+--fit calibrates instead: the Bayes model's chain bias β·m + γ·(δ − L)₊²
+(for each δ of a grid, the fixed point of scorer.FitChainBias on the chains
+the router answers with; δ is the one with the best Spearman ρ on the fit
+worlds) and the support model's v0, n0, β (scorer.FitSupport), on the worlds
+of --fit-seeds, which must not overlap the evaluation seeds.
 
 --write-queries DIR keeps, for the first world, DIR/corpus.jsonl,
 DIR/index.hwx, DIR/queries.jsonl (input of "hopwise route --queries") and
@@ -204,7 +205,11 @@ func runEval(cmd *cobra.Command, o evalOptions) error {
 			return enc.Encode(fr)
 		}
 		fmt.Fprintf(out, "fitted on %s worlds, seeds %v (%d contexts each)\n", fr.Condition, fr.Seeds, o.contexts)
-		fmt.Fprintf(out, "bayes   β  = %.6g   (fixed point %v, %d chains)\n", fr.Beta, fr.BetaPath, fr.ChainSamples)
+		fmt.Fprintf(out, "bayes   β  = %.6g  γ = %.6g  δ = %.6g   (fixed point β %v, γ %v, %d chains)\n",
+			fr.Beta, fr.Gamma, fr.Delta, fr.BetaPath, fr.GammaPath, fr.ChainSamples)
+		for _, g := range fr.Grid {
+			fmt.Fprintf(out, "        δ = %-6g β = %.6g  γ = %.6g  fit-world ρ %.4f  mean ratio %.3f\n", g.Delta, g.Beta, g.Gamma, g.Spearman, g.MeanRatio)
+		}
 		fmt.Fprintf(out, "support v0 = %.6g  n0 = %.6g  β = %.6g   (RMSE %.4g, %d samples)\n",
 			fr.Support.V0, fr.Support.N0, fr.Support.Beta, fr.Support.RMSE, fr.Support.N)
 		return nil

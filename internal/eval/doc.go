@@ -46,15 +46,18 @@
 //
 // # Fitting the default constants (Fit, `hopwise eval --fit`)
 //
-// β of the Bayes model is the fixed point of: answer all queries of the fit
-// worlds with β, collect the best chain the router found for every query
-// (Var = Chain.Err − β·m, m bridges, realised Σ_v squared error), and set β =
-// scorer.FitHopBias(samples); stop when β moves by < 2 %. Chain.Err carries
-// the router's reference-bias term (scorer.ReferenceBias), so β is only the
-// per-hop residual; with that term it fell from 0.1306 (variance-only error
-// model) to 0.00236. The support model's
+// The Bayes model's chain bias is β·m + γ·(δ − L)₊² (L the chain's signal,
+// scorer.Bayes.SignalBound). For every δ of a grid, (β, γ) is the fixed point
+// of: answer all queries of the fit worlds, collect every answer the router
+// gave through a chain (Var = Chain.Err − β·m − γ·(δ − L)₊², m bridges, L,
+// realised Σ_v squared error), and set (β, γ) = scorer.FitChainBias(samples,
+// δ); stop when both move by < 2 %. δ is the grid value whose fixed point
+// gives the largest mean Spearman ρ on the fit worlds. Chain.Err carries the
+// router's reference-bias term (scorer.ReferenceBias), so β and γ fit only
+// the residual. The support model's
 // v0, n0 and β come from scorer.FitSupport on the direct answers (one edge:
-// the pair support) and those chains (their edge supports) at the final β.
+// the pair support) and the best chains (their edge supports) at the final
+// Bayes constants.
 // The fit worlds must use seeds other than the evaluation seeds: the
 // installed defaults came from
 //

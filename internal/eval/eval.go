@@ -67,6 +67,9 @@ type Config struct {
 	// router and by every chained estimator (default scorer.DefaultBeta;
 	// a negative value is an error).
 	Beta *float64
+	// ModelOptions are passed to scorer.NewBayes after WithBeta (for
+	// example scorer.WithMissingSignal).
+	ModelOptions []scorer.Option
 	// RouterOptions are passed to router.New after WithModel (bounds,
 	// thresholds; not WithBeta/WithAlpha, which conflict with WithModel).
 	RouterOptions []router.Option
@@ -246,6 +249,9 @@ type QueryResult struct {
 	ChainErr     float64  // best chain's Err (0 without a chain)
 	ChainSups    []uint64 // edge supports of the best chain (nil without)
 	ChainBridges int
+	// ChainSignal is the best chain's signal L = Π_k SignalBound(edge k)
+	// (0 without a chain).
+	ChainSignal  float64
 	IdealBridges int
 }
 
@@ -463,15 +469,21 @@ func (b *Bench) Dir() string { return b.dir }
 // Answer answers every query with β (nil: the Config's β) and the given
 // router options over the prepared index, and scores the estimators.
 func (b *Bench) Answer(ctx context.Context, beta *float64, ropts ...router.Option) (Report, error) {
-	start := time.Now()
 	bt := *b.cfg.Beta
 	if beta != nil {
 		bt = *beta
 	}
-	model, err := scorer.NewBayes(scorer.WithBeta(bt))
+	model, err := scorer.NewBayes(append([]scorer.Option{scorer.WithBeta(bt)}, b.cfg.ModelOptions...)...)
 	if err != nil {
 		return Report{}, fmt.Errorf("eval: %w", err)
 	}
+	return b.AnswerModel(ctx, model, ropts...)
+}
+
+// AnswerModel is Answer with the given Bayes model (its β is reported).
+func (b *Bench) AnswerModel(ctx context.Context, model *scorer.Bayes, ropts ...router.Option) (Report, error) {
+	start := time.Now()
+	bt := model.HopBias()
 	opts := append([]router.Option{router.WithModel(model), router.WithMaxBridges(b.cfg.MaxBridges)}, ropts...)
 	// The router owns the graph it is given and closes it on Close; the
 	// wrapper hides Close so that the Bench keeps ownership of the index.
@@ -607,6 +619,17 @@ func (b *Bench) answer(ctx context.Context, rt *router.Router, model scorer.Mode
 		}
 		path = append(path, t)
 		r.ChainSups = b.pathSupports(path)
+		if bm, ok := model.(*scorer.Bayes); ok {
+			r.ChainSignal = 1
+			for i := 0; i+1 < len(path); i++ {
+				ps, ok := b.Index.Pair(path[i], path[i+1])
+				if !ok {
+					r.ChainSignal = 0
+					break
+				}
+				r.ChainSignal *= bm.SignalBound(ps)
+			}
+		}
 	} else {
 		r.Est[EstChain] = r.Est[EstDirect]
 	}
