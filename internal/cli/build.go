@@ -55,8 +55,12 @@ with "file:line: field: reason". Nothing is dropped without being counted.
 Memory. --mem-budget bounds the builder's dictionary and count tables; when
 they fill it, sorted runs are spilled to --temp-dir and merged at the end,
 giving the same index as an in-memory build. For csv, half of the budget
-groups rows and half counts. The Go runtime gets a soft memory limit equal to
-the budget.
+groups rows and half counts. The index is then written in two streaming
+passes over the merged pairs with a quarter of the budget for its adjacency
+buffers (the rest is spooled to a temporary file next to --out, 16 bytes per
+edge of disk), so the write phase does not grow with the number of pairs.
+What does grow is the dictionary, about 300 bytes per entity. The Go runtime
+gets a soft memory limit equal to the budget.
 
 Pruning. --min-support drops pairs seen together in fewer contexts;
 --max-neighbors keeps each entity's N best neighbours by support (a pair stays
