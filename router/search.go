@@ -57,11 +57,12 @@ import (
 // on every generated chain, so all phases are generated (only exact scoring
 // is skipped).
 //
-// Cost: O(I + B·log B + B² + k·C). I is the intersection, O(|a|+|b|) by
-// merge or O(|a|·log(|b|/|a|)) by galloping. The beams are read from the
-// ranked lists without look-ups; an edge cost (O(K²): Cramér's V of the
-// pair table) is computed once, only for a node or path that takes part in a
-// join. B² bounds a join of equal middle nodes, and C is one exact chain
+// Cost: O(I + B + M·log M + B² + k·C). I is the intersection, O(|a|+|b|)
+// by merge or O(|a|·log(|b|/|a|)) by galloping. The beams are read from the
+// ranked lists without look-ups and joined by hashing (expected O(B)); the
+// M matches are sorted. An edge cost (O(K²): Cramér's V of the pair table)
+// is computed once, only for a node or path that takes part in a join. B²
+// bounds a join of equal middle nodes, and C is one exact chain
 // score (O(m·K³)). List steps cost 1 budget unit and look-ups lookupUnits,
 // so a hub with millions of neighbours costs at most the budget; the
 // context's deadline is polled every 256 units.
