@@ -68,7 +68,7 @@ import (
 // ≥ 0, so Err_chain ≥ β·m still holds (the router's pruning bound).
 //
 // Cost O(Σ_k K_(k−1)·K_k·K_t + m·K²) = O(m·K³) time for K values per entity,
-// O(m·K²) workspace, one allocation (Dist). The linearisation neglects terms
+// O(m·K²) workspace, one allocation (Dist; none with Workspace.BorrowDist). The linearisation neglects terms
 // of relative order 1/n (n the row counts): the exact posterior variance is
 // the same sum with x_(k−1)[r]² replaced by E[x_(k−1)[r]²] (law of total
 // variance, one edge at a time), so the delta value is a lower bound. With
@@ -164,7 +164,7 @@ func (b *Bayes) Direct(ws *Workspace, st Stats, s graphidx.EntityID, u int, t gr
 	if err != nil {
 		return Estimate{}, err
 	}
-	dist := make([]float64, kt)
+	dist := ws.newDist(kt)
 	ktA := float64(kt) * b.alpha
 	var n, sup uint64
 	if ok {
@@ -218,7 +218,7 @@ func (b *Bayes) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridg
 		bias += b.missingSignal(ws.lb)
 	}
 	kt := ws.ks[m+1]
-	dist := make([]float64, kt)
+	dist := ws.newDist(kt)
 	vr := growF(ws.vr, kt)
 	ws.vr = vr
 	clear(vr)

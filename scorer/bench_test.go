@@ -63,8 +63,15 @@ func BenchmarkBayesDirect(b *testing.B) {
 
 func BenchmarkBayesChain(b *testing.B) {
 	for _, method := range []scorer.Variance{scorer.DeltaMethod, scorer.ExactMoments} {
-		for _, c := range []struct{ k, m int }{{2, 1}, {2, 3}, {8, 3}, {64, 3}} {
-			b.Run(fmt.Sprintf("%v/K=%d/bridges=%d", method, c.k, c.m), func(b *testing.B) {
+		for _, c := range []struct {
+			k, m   int
+			borrow bool
+		}{{2, 1, false}, {2, 1, true}, {2, 3, false}, {8, 3, false}, {8, 3, true}, {64, 3, false}} {
+			name := fmt.Sprintf("%v/K=%d/bridges=%d", method, c.k, c.m)
+			if c.borrow {
+				name += "/borrow"
+			}
+			b.Run(name, func(b *testing.B) {
 				st := benchChain(c.k, c.m)
 				bridges := make([]graphidx.EntityID, c.m)
 				for i := range bridges {
@@ -73,6 +80,7 @@ func BenchmarkBayesChain(b *testing.B) {
 				t := graphidx.EntityID(c.m + 2)
 				m := mustBayes(b, scorer.WithVariance(method))
 				ws := scorer.NewWorkspace()
+				ws.BorrowDist(c.borrow)
 				var est scorer.Estimate
 				var err error
 				b.ReportAllocs()

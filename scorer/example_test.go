@@ -115,3 +115,28 @@ func ExampleSupport() {
 	// Output:
 	// direct err 0.1250, chain err 0.0288
 }
+
+func ExampleWorkspace_BorrowDist() {
+	m, err := scorer.NewBayes(scorer.WithBeta(0.001))
+	if err != nil {
+		panic(err)
+	}
+	st := greenhouse()
+	ws := scorer.NewWorkspace()
+	ws.BorrowDist(true) // Dist now lives in ws until the next call
+	best := []float64{}
+	bestErr := 0.0
+	for _, bridge := range []graphidx.EntityID{humidity, pump} {
+		est, err := m.Chain(ws, st, vent, 0, []graphidx.EntityID{bridge}, mildew)
+		if err != nil {
+			panic(err)
+		}
+		if len(best) == 0 || est.Err < bestErr {
+			best = append(best[:0], est.Dist...) // copy what is kept
+			bestErr = est.Err
+		}
+	}
+	fmt.Printf("best chain: P(mildew=present|vent=open) = %.4f  err %.5f\n", best[1], bestErr)
+	// Output:
+	// best chain: P(mildew=present|vent=open) = 0.1540  err 0.00465
+}

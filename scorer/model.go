@@ -6,7 +6,9 @@ import "github.com/hopwise/hopwise/graphidx"
 type Estimate struct {
 	// Dist is the estimated distribution over the target's values, indexed
 	// like the target's value labels. It is freshly allocated per call and
-	// owned by the caller.
+	// owned by the caller, unless the caller opted in to a borrowed buffer
+	// with Workspace.BorrowDist (then it is valid until the next call with
+	// that workspace).
 	Dist []float64
 	// Err is the expected squared error of Dist summed over the target's
 	// values (for the Bayes model: Σ_v Var(p̂_v), plus β·m for a chain).

@@ -18,7 +18,7 @@ import (
 // the same posterior-mean product as the Bayes model's (smoothed by α,
 // WithAlpha), which for presence-only entities (K = 1) is simply [1].
 // Cost: O(Σ_k K_(k−1)·K_k) per call plus one Stats lookup per edge; one
-// allocation (Dist).
+// allocation (Dist; none with Workspace.BorrowDist).
 type Support struct {
 	alpha, beta, v0, n0 float64
 }
@@ -92,7 +92,7 @@ func (m *Support) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bri
 	e += m.beta * float64(len(bridges))
 
 	kt := ws.ks[edges]
-	dist := make([]float64, kt)
+	dist := ws.newDist(kt)
 	if kt == 1 { // presence-only target: the only value has probability 1
 		dist[0] = 1
 		return Estimate{Dist: dist, Err: e, Support: minSup}, nil

@@ -9,10 +9,11 @@ import (
 )
 
 // Workspace holds the scratch buffers of Direct and Chain calls so that
-// repeated calls do not allocate beyond the returned Dist. Buffers grow to the
-// largest chain seen and are then reused. A Workspace must not be used by two
-// goroutines at once; give each goroutine its own (or keep them in a
-// sync.Pool). The zero value is ready to use.
+// repeated calls do not allocate beyond the returned Dist (and, after
+// BorrowDist(true), not at all). Buffers grow to the largest chain seen and
+// are then reused. A Workspace must not be used by two goroutines at once;
+// give each goroutine its own (or keep them in a sync.Pool). The zero value
+// is ready to use, with Dist freshly allocated per call.
 type Workspace struct {
 	path []graphidx.EntityID // s, b1..bm, t
 	ks   []int               // K of each path node
@@ -31,6 +32,11 @@ type Workspace struct {
 	vr         []float64 // Σ_v accumulators, length K_t
 	mt, w      []float64 // ExactMoments: M̄ᵀ and row weights
 
+	// borrow makes newDist hand out out instead of a fresh slice
+	// (BorrowDist); out is never used as scratch by any computation.
+	borrow bool
+	out    []float64
+
 	// gonum headers over the buffers above (set with SetRawMatrix, so that
 	// no mat.Dense is allocated per call).
 	hA, hB, hC mat.Dense
@@ -38,6 +44,36 @@ type Workspace struct {
 
 // NewWorkspace returns an empty workspace. It is equivalent to new(Workspace).
 func NewWorkspace() *Workspace { return new(Workspace) }
+
+// BorrowDist sets who owns the Dist of the estimates that the built-in
+// models (Bayes, Support) return for calls made with this workspace.
+//
+// Off (the default, and the zero value): each Dist is freshly allocated and
+// belongs to the caller, as the Model interface documents.
+//
+// On: each Dist is a view of one buffer owned by the workspace, valid only
+// until the next Direct or Chain call with this workspace (which overwrites
+// it), so a caller that keeps an estimate must copy it first. A call then
+// allocates nothing once the workspace's buffers have grown to the largest
+// path seen. The values are bit for bit the same either way. Other Model
+// implementations may ignore the setting and keep allocating, which is
+// always safe. O(1).
+func (ws *Workspace) BorrowDist(on bool) { ws.borrow = on }
+
+// BorrowsDist reports whether BorrowDist(true) is in effect.
+func (ws *Workspace) BorrowsDist() bool { return ws != nil && ws.borrow }
+
+// newDist returns the Dist of n values for an estimate: a fresh slice, or
+// with BorrowDist the workspace's output buffer, capped at n so that an
+// append by the caller cannot write past it. ws may be nil. The contents
+// are unspecified; every caller writes all n values.
+func (ws *Workspace) newDist(n int) []float64 {
+	if ws == nil || !ws.borrow {
+		return make([]float64, n)
+	}
+	ws.out = growF(ws.out, n)
+	return ws.out[:n:n]
+}
 
 func growF(b []float64, n int) []float64 {
 	if cap(b) < n {
