@@ -301,6 +301,8 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	if err != nil {
 		return core{}, false, nil, fmt.Errorf("router: direct estimate %q=%q → %q: %w", q.From, q.Value, q.To, err)
 	}
+	// dir.Dist is borrowed from sc.ws (newScratch): copy it before the
+	// next model call.
 	sc.ddist = append(sc.ddist[:0], dir.Dist...)
 	sc.dirErr = dir.Err
 	if dir.Support > 0 {
@@ -360,6 +362,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 		if err != nil {
 			return core{}, false, nil, fmt.Errorf("router: chain estimate %q → %q: %w", q.From, q.To, err)
 		}
+		// est.Dist is borrowed from sc.ws until the next model call.
 		e := est.Err + scorer.ReferenceBias(est.Dist, sc.ref)
 		score := sc.scoreOf(dir.Err-e, int(cd.m))
 		if !bestEst.ok || score > bestEst.score {

@@ -223,7 +223,15 @@ type scratch struct {
 	kCut   bool // the candidate heap overflowed or pruned
 }
 
-func newScratch() *scratch { return &scratch{ws: scorer.NewWorkspace()} }
+// newScratch returns a scratch whose scorer workspace lends Dist
+// (scorer.Workspace.BorrowDist): every estimate's Dist is read or copied
+// into the scratch's own buffers (ddist, incDist, dist) before the next
+// model call, so the exact scores allocate nothing.
+func newScratch() *scratch {
+	ws := scorer.NewWorkspace()
+	ws.BorrowDist(true)
+	return &scratch{ws: ws}
+}
 
 func (sc *scratch) reset() {
 	sc.g, sc.model, sc.st, sc.pb = nil, nil, nil, nil
