@@ -223,7 +223,9 @@ func (r *Router) CacheLen() int {
 // decision is returned with Truncated set (and is not cached).
 //
 // Cost: a cache hit is O(len(names)) with no allocation; a miss is the
-// search cost documented in search.go.
+// search cost documented in search.go, and allocates only the result: two
+// blocks (three with more than eight labels and bridges; see resultBlock)
+// plus whatever Graph.Name allocates per bridge (*graphidx.Index: one copy).
 func (r *Router) Decide(ctx context.Context, q Query) (Decision, error) {
 	st := r.cfg.Load()
 	h := r.cur.Load()
@@ -372,30 +374,27 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 		}
 	}
 
-	// Build the owned result: estimates in one block, strings in one buffer.
-	values := g.Values(t)
-	k := len(sc.ddist)
-	nf := k
-	if bestEst.ok {
-		nf += len(sc.dist)
-	}
-	fl := make([]float64, nf)
-	copy(fl, sc.ddist)
-	c := core{
-		direct:     DirectResult{Estimate: fl[:k:k], Err: dir.Err, Support: dir.Support},
-		truncated:  res.truncated,
-		cut:        res.cut,
-		generation: h.gen,
-	}
+	// Build the owned result (see resultBlock): the estimates and the
+	// label and name bytes in one block, the string headers (and the
+	// ChainResult) in another.
 	var names []graphidx.EntityID
 	if bestEst.ok {
 		names = bestC.b[:bestC.m]
 	}
-	strs := cloneStrings(g, values, names)
-	c.values = strs[:len(values):len(values)]
+	var chainDist []float64
+	if bestEst.ok {
+		chainDist = sc.dist
+	}
+	rb := newResultBlock(g, g.Values(t), names, sc.ddist, chainDist, bestEst.ok)
+	c := core{
+		values:     rb.values,
+		direct:     DirectResult{Estimate: rb.direct, Err: dir.Err, Support: dir.Support},
+		truncated:  res.truncated,
+		cut:        res.cut,
+		generation: h.gen,
+	}
 	if bestEst.ok {
 		cd := bestC
-		copy(fl[k:], sc.dist)
 		minSup := ^uint64(0)
 		prev := s
 		for i := 0; i <= int(cd.m); i++ {
@@ -411,12 +410,13 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 			}
 			prev = b
 		}
-		c.chain = &ChainResult{
-			Bridges:    strs[len(values):],
-			Estimate:   fl[k:],
+		*rb.chain = ChainResult{
+			Bridges:    rb.bridges,
+			Estimate:   rb.chainEst,
 			Err:        bestEst.err,
 			MinSupport: minSup,
 		}
+		c.chain = rb.chain
 		c.gain = dir.Err - bestEst.err
 		c.score = bestEst.score
 	}
@@ -437,35 +437,134 @@ func ctxDone(ctx context.Context) bool {
 	}
 }
 
-// cloneStrings copies the value labels and the bridge names into one
-// heap buffer so that the result never points into index memory.
-// Each name is read once (Graph.Name of an Index allocates a copy).
-func cloneStrings(g Graph, values []string, ids []graphidx.EntityID) []string {
+// resultBlock is the memory a decision owns, in at most two heap blocks
+// (plus the names that Graph.Name allocates, e.g. *graphidx.Index's
+// copies):
+//
+//   - one pointer-free block of float64 words: the direct estimate, the
+//     chain estimate, then the bytes of the value labels and the bridge
+//     names (the strings point into it, past the end of both estimate
+//     slices, whose capacities stop at their lengths);
+//   - one block of string headers (labels, then bridges), which for up to
+//     chainBlockSmall strings also holds the ChainResult.
+//
+// So a decision never points into index memory, and an uncached decision
+// allocates two objects beside the names. O(K + Σ len(labels) + Σ
+// len(names)).
+type resultBlock struct {
+	values, bridges  []string
+	direct, chainEst []float64
+	chain            *ChainResult // nil unless chained
+}
+
+// chainBlockSmall is the largest number of strings (value labels plus
+// bridge names) that share one allocation with the ChainResult.
+const chainBlockSmall = 8
+
+// chainWith allocates a ChainResult and n ≤ len(A) string headers in one
+// block (A is [N]string). The block has exactly the size of the two it
+// replaces (64 + 16·N bytes), so it saves an object without wasting
+// bytes when N = n. O(N).
+func chainWith[A any](n int) (*ChainResult, []string) {
+	blk := new(struct {
+		cr   ChainResult
+		strs A
+	})
+	return &blk.cr, unsafe.Slice((*string)(unsafe.Pointer(&blk.strs)), n)[:0]
+}
+
+// newChainBlock returns a ChainResult and room for n string headers, in one
+// block when n ≤ chainBlockSmall.
+func newChainBlock(n int) (*ChainResult, []string) {
+	switch {
+	case n <= 2:
+		return chainWith[[2]string](n)
+	case n == 3:
+		return chainWith[[3]string](n)
+	case n == 4:
+		return chainWith[[4]string](n)
+	case n == 5:
+		return chainWith[[5]string](n)
+	case n == 6:
+		return chainWith[[6]string](n)
+	case n == 7:
+		return chainWith[[7]string](n)
+	case n == chainBlockSmall:
+		return chainWith[[chainBlockSmall]string](n)
+	}
+	return new(ChainResult), make([]string, 0, n)
+}
+
+// newResultBlock copies direct and, when chained, chainDist and the names of
+// ids into fresh memory laid out as resultBlock describes. Each name is read
+// once (Graph.Name of an Index allocates a copy).
+func newResultBlock(g Graph, values []string, ids []graphidx.EntityID, direct, chainDist []float64, chained bool) resultBlock {
 	var names [MaxBridgesLimit]string
+	nb := 0
+	for _, v := range values {
+		nb += len(v)
+	}
+	for i, id := range ids {
+		names[i] = g.Name(id)
+		nb += len(names[i])
+	}
+	k, nf := len(direct), len(direct)+len(chainDist)
+	fl := make([]float64, nf+(nb+7)/8)
+	copy(fl, direct)
+	copy(fl[k:], chainDist)
+	var buf []byte
+	if nb > 0 {
+		// A view of the words past the estimates as bytes: float64 is
+		// larger than and at least as aligned as byte, and the block has no
+		// pointers, so the garbage collector keeps it alive through the
+		// strings' interior pointers.
+		buf = unsafe.Slice((*byte)(unsafe.Pointer(&fl[nf])), nb)[:0]
+	}
+	ns := len(values) + len(ids)
+	rb := resultBlock{direct: fl[:k:k]}
+	var strs []string
+	if chained {
+		rb.chain, strs = newChainBlock(ns)
+	} else {
+		strs = make([]string, 0, ns)
+	}
+	strs = appendStrings(strs, buf, values, names[:len(ids)])
+	rb.values = strs[:len(values):len(values)]
+	if chained {
+		rb.bridges = strs[len(values):]
+		rb.chainEst = fl[k:nf:nf]
+	}
+	return rb
+}
+
+// cloneLabels copies value labels into one heap buffer so that the result
+// never points into index memory. O(Σ len).
+func cloneLabels(values []string) []string {
 	n := 0
 	for _, v := range values {
 		n += len(v)
 	}
-	for i, id := range ids {
-		names[i] = g.Name(id)
-		n += len(names[i])
-	}
-	buf := make([]byte, 0, n)
-	out := make([]string, 0, len(values)+len(ids))
+	return appendStrings(make([]string, 0, len(values)), make([]byte, 0, n), values, nil)
+}
+
+// appendStrings appends to out copies of values and then of names, whose
+// bytes go to buf; buf must have room for all of them (it never grows, so
+// the strings stay where they were written). O(Σ len).
+func appendStrings(out []string, buf []byte, values, names []string) []string {
 	add := func(s string) {
-		start := len(buf)
-		buf = append(buf, s...)
 		if len(s) == 0 {
 			out = append(out, "")
 			return
 		}
+		start := len(buf)
+		buf = append(buf, s...)
 		out = append(out, unsafe.String(&buf[start], len(s)))
 	}
 	for _, v := range values {
 		add(v)
 	}
-	for i := range ids {
-		add(names[i])
+	for _, n := range names {
+		add(n)
 	}
 	return out
 }
@@ -484,7 +583,7 @@ func (r *Router) fallback(st *settings, g Graph, h *handle, q *Query, t graphidx
 		d.Mode = ModeChain
 	}
 	if okT {
-		d.Values = cloneStrings(g, g.Values(t), nil)
+		d.Values = cloneLabels(g.Values(t))
 	}
 	if i := st.assignArm(q); i >= 0 {
 		d.Arm = st.arms[i].name
