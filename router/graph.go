@@ -14,7 +14,8 @@ import (
 // forward them: PairBatch (see PairBatcher), and RankPrefix() int, the
 // length of the ranked prefix, which tells that a RankedNeighbors list
 // shorter than it holds every neighbour (so the search need not read
-// Neighbors to know).
+// Neighbors to know). A third, AppendName (see NameAppender), spares the
+// per-bridge copy that Name makes.
 type Graph interface {
 	scorer.Stats
 	// Lookup maps an entity name to its id.
@@ -35,4 +36,15 @@ type Graph interface {
 	NumEntities() int
 	// Generation identifies the index content (a fingerprint of its bytes).
 	Generation() uint64
+}
+
+// NameAppender is an optional interface of a Graph: AppendName appends the
+// bytes of the entity's name (the string Name returns) to dst and returns
+// the extended slice, allocating only when dst must grow. When the graph
+// implements it, a decision copies its bridge names straight into its own
+// result block instead of calling Name, which for an index that hands out
+// copies costs one allocation per bridge. A wrapper around such a graph
+// should forward the method.
+type NameAppender interface {
+	AppendName(dst []byte, id graphidx.EntityID) []byte
 }

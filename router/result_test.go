@@ -4,7 +4,10 @@ import (
 	"context"
 	"fmt"
 	"slices"
+	"strings"
 	"testing"
+
+	"github.com/hopwise/hopwise/graphidx"
 )
 
 // wideGraph is greenhouse with a target of k values ("level-00"…), reached
@@ -131,6 +134,74 @@ func TestUncachedDecideAllocs(t *testing.T) { // not parallel: AllocsPerRun
 		}
 		if !slices.Equal(d.Values, keep.Values) || !slices.Equal(d.Bridges, keep.Bridges) {
 			t.Errorf("%s: appending to an estimate changed the labels: %v %v", tc.name, d.Values, d.Bridges)
+		}
+	}
+}
+
+// cloningGraph's Name hands out copies, as *graphidx.Index does.
+type cloningGraph struct{ *memGraph }
+
+func (g cloningGraph) Name(id graphidx.EntityID) string { return strings.Clone(g.memGraph.Name(id)) }
+
+// appendingGraph adds NameAppender to cloningGraph and counts its calls.
+type appendingGraph struct {
+	cloningGraph
+	appends *int
+}
+
+func (g appendingGraph) AppendName(dst []byte, id graphidx.EntityID) []byte {
+	*g.appends++
+	return append(dst, g.memGraph.Name(id)...)
+}
+
+// TestNameAppender checks that a graph with AppendName gives the same
+// decisions as one with only Name, reads each bridge name once through
+// AppendName, and spares the per-bridge copy (Name of cloningGraph
+// allocates like *graphidx.Index's).
+func TestNameAppender(t *testing.T) { // not parallel: AllocsPerRun
+	ctx := context.Background()
+	n := 0
+	plain := mustNew(t, cloningGraph{greenhouse(1)}, WithCacheSize(0))
+	withApp := mustNew(t, appendingGraph{cloningGraph{greenhouse(1)}, &n}, WithCacheSize(0))
+	queries := []Query{
+		{From: "vent-north", Value: "open", To: "bed-tomato"},
+		{From: "vent-north", Value: "closed", To: "bed-tomato"},
+		{From: "bed-tomato", Value: "wet", To: "vent-north"},
+		{From: "pump-2", Value: "on", To: "humidity-zone1"},
+	}
+	bridges := 0
+	for _, q := range queries {
+		a, err := plain.Decide(ctx, q)
+		if err != nil {
+			t.Fatal(err)
+		}
+		b, err := withApp.Decide(ctx, q)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !sameDecision(a, b) {
+			t.Errorf("%+v: with AppendName %+v, without %+v", q, b, a)
+		}
+		if a.Chain != nil {
+			bridges += len(a.Chain.Bridges)
+		}
+	}
+	if bridges == 0 || n != bridges {
+		t.Errorf("AppendName called %d times for %d bridges", n, bridges)
+	}
+	q := queries[0]
+	for _, c := range []struct {
+		name string
+		r    *Router
+		want float64
+	}{{"Name only", plain, 3}, {"AppendName", withApp, 2}} {
+		got := testing.AllocsPerRun(100, func() {
+			if _, err := c.r.Decide(ctx, q); err != nil {
+				t.Fatal(err)
+			}
+		})
+		if got != c.want && !raceEnabled {
+			t.Errorf("%s: %v allocations per uncached one-bridge decision, want %v", c.name, got, c.want)
 		}
 	}
 }

@@ -33,8 +33,9 @@ type Router struct {
 // reaches zero it can never be acquired again.
 type handle struct {
 	g    Graph
-	pb   PairBatcher // g's batch look-up, or nil
-	rp   int         // g's RankPrefix, or 0
+	pb   PairBatcher  // g's batch look-up, or nil
+	na   NameAppender // g's name append, or nil
+	rp   int          // g's RankPrefix, or 0
 	seq  uint64
 	gen  uint64
 	refs atomic.Int64
@@ -108,6 +109,7 @@ func NewWithRetireHook(g Graph, hook func(old Graph, closeErr error), opts ...Op
 func (r *Router) newHandle(g Graph) *handle {
 	h := &handle{g: g, seq: r.seq.Add(1), gen: g.Generation(), r: r}
 	h.pb, _ = g.(PairBatcher)
+	h.na, _ = g.(NameAppender)
 	if p, ok := g.(interface{ RankPrefix() int }); ok {
 		h.rp = p.RankPrefix()
 	}
@@ -385,7 +387,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	if bestEst.ok {
 		chainDist = sc.dist
 	}
-	rb := newResultBlock(g, g.Values(t), names, sc.ddist, chainDist, bestEst.ok)
+	rb := newResultBlock(g, h.na, &sc.names, g.Values(t), names, sc.ddist, chainDist, bestEst.ok)
 	c := core{
 		values:     rb.values,
 		direct:     DirectResult{Estimate: rb.direct, Err: dir.Err, Support: dir.Support},
@@ -497,16 +499,37 @@ func newChainBlock(n int) (*ChainResult, []string) {
 
 // newResultBlock copies direct and, when chained, chainDist and the names of
 // ids into fresh memory laid out as resultBlock describes. Each name is read
-// once (Graph.Name of an Index allocates a copy).
-func newResultBlock(g Graph, values []string, ids []graphidx.EntityID, direct, chainDist []float64, chained bool) resultBlock {
+// once: with na (the graph's NameAppender, or nil) into the scratch buffer
+// *tmp, else by g.Name (which for an Index allocates a copy).
+func newResultBlock(g Graph, na NameAppender, tmp *[]byte, values []string, ids []graphidx.EntityID, direct, chainDist []float64, chained bool) resultBlock {
 	var names [MaxBridgesLimit]string
 	nb := 0
 	for _, v := range values {
 		nb += len(v)
 	}
-	for i, id := range ids {
-		names[i] = g.Name(id)
-		nb += len(names[i])
+	if na != nil && len(ids) > 0 {
+		var end [MaxBridgesLimit]int
+		b := (*tmp)[:0]
+		for i, id := range ids {
+			b = na.AppendName(b, id)
+			end[i] = len(b)
+		}
+		*tmp = b
+		// Views of the scratch bytes, copied into the block below before
+		// the scratch is reused.
+		start := 0
+		for i := range ids {
+			if end[i] > start {
+				names[i] = unsafe.String(&b[start], end[i]-start)
+				nb += len(names[i])
+			}
+			start = end[i]
+		}
+	} else {
+		for i, id := range ids {
+			names[i] = g.Name(id)
+			nb += len(names[i])
+		}
 	}
 	k, nf := len(direct), len(direct)+len(chainDist)
 	fl := make([]float64, nf+(nb+7)/8)

@@ -206,6 +206,7 @@ type scratch struct {
 		ok     []bool
 	}
 	pendMax int
+	names   []byte // bridge names read by NameAppender (newResultBlock)
 	// rankPrefix is the graph's RankPrefix (ranked lists shorter than it
 	// are whole), or 0 when unknown.
 	rankPrefix int
