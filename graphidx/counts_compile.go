@@ -4,6 +4,7 @@ import (
 	"container/heap"
 	"context"
 	"fmt"
+	"io"
 	"maps"
 	"math"
 	"os"
@@ -13,8 +14,10 @@ import (
 )
 
 // countsSource is the Source compiled from count sets without a Partial:
-// the shard files stay in memory as encoded bytes (about 17 bytes per cell,
-// against about 100 for a Partial), entities are merged into a table, and
+// the shard files are mapped read-only (read into memory where mmap is
+// unavailable) and stay encoded (about 17 bytes per cell, against about 100
+// for a Partial), so they occupy page cache the kernel can reclaim rather
+// than heap; entities are merged into a table, and
 // every call to Pairs k-way merges the shards' sorted pair sections,
 // summing equal pairs. Pair records are strictly ascending by (A, B) name
 // in every shard, and ids ascend with names, so the merge yields the
@@ -27,6 +30,8 @@ type countsSource struct {
 	pairs    [][]byte // pair section of every shard
 	names    []string // file of every shard, for errors
 	filter   *pruneFilter
+	release  []func() error // unmaps the shard files
+	closed   bool
 
 	counts []uint32 // reused table of the record handed to fn
 	acc    []uint64
@@ -35,8 +40,30 @@ type countsSource struct {
 func (s *countsSource) Contexts() uint64         { return s.contexts }
 func (s *countsSource) Entities() []EntityRecord { return s.ents }
 
+// Close releases the mapped shard files; Pairs fails afterwards. It is
+// idempotent. The Source returned by MergeCounts and CompileCounts
+// implements io.Closer through it.
+func (s *countsSource) Close() error {
+	if s.closed {
+		return nil
+	}
+	s.closed = true
+	s.pairs = nil
+	var first error
+	for _, r := range s.release {
+		if err := r(); err != nil && first == nil {
+			first = err
+		}
+	}
+	s.release = nil
+	return first
+}
+
 // Pairs calls fn with every kept pair in ascending (A, B) order.
 func (s *countsSource) Pairs(fn func(PairRecord) error) error {
+	if s.closed {
+		return fmt.Errorf("graphidx: count source used after Close")
+	}
 	return s.merge(func(a, b uint32, counts []uint32, sup uint64) error {
 		if !s.filter.keep(a, b, sup) {
 			return nil
@@ -209,8 +236,15 @@ func (s *countsSource) aboveMarginal(a, b, e uint32, v int, n uint64) error {
 
 // loadCounts reads and checks every shard of the sets in dirs, merges their
 // entity sections and keeps their pair sections for countsSource.merge.
-func loadCounts(ctx context.Context, dirs []string) (*countsSource, int64, error) {
+// loadCounts maps and checks every shard of dirs and merges their entity
+// sections. On error the shards mapped so far are released.
+func loadCounts(ctx context.Context, dirs []string) (_ *countsSource, _ int64, err error) {
 	s := &countsSource{id: map[string]uint32{}}
+	defer func() {
+		if err != nil {
+			s.Close()
+		}
+	}()
 	marg := map[string]map[string]uint64{}
 	var bytesRead int64
 	for _, dir := range dirs {
@@ -222,9 +256,12 @@ func loadCounts(ctx context.Context, dirs []string) (*countsSource, int64, error
 			if err := ctx.Err(); err != nil {
 				return nil, bytesRead, err
 			}
-			b, err := os.ReadFile(path)
+			b, release, err := mapShard(path)
 			if err != nil {
-				return nil, bytesRead, fmt.Errorf("graphidx: read count shard: %w", err)
+				return nil, bytesRead, err
+			}
+			if release != nil {
+				s.release = append(s.release, release)
 			}
 			bytesRead += int64(len(b))
 			hd, err := DecodeCountShard(b, path, nil)
@@ -271,6 +308,29 @@ func loadCounts(ctx context.Context, dirs []string) (*countsSource, int64, error
 	return s, bytesRead, nil
 }
 
+// mapShard maps a count-shard file read-only; release is nil when nothing
+// was mapped (an empty file, or a platform without mmap, where the file is
+// read). The bytes are bounds-checked by DecodeCountShard like read bytes.
+func mapShard(path string) (b []byte, release func() error, err error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, nil, fmt.Errorf("graphidx: read count shard: %w", err)
+	}
+	defer f.Close()
+	st, err := f.Stat()
+	if err != nil {
+		return nil, nil, fmt.Errorf("graphidx: read count shard: %w", err)
+	}
+	if st.Size() == 0 || !mmapSupported || st.Size() > math.MaxInt {
+		b, err := io.ReadAll(f)
+		if err != nil {
+			return nil, nil, fmt.Errorf("graphidx: read count shard %s: %w", path, err)
+		}
+		return b, nil, nil
+	}
+	return mapFile(f, int(st.Size()))
+}
+
 // addEntitySection adds the entity records of one checked shard to marg.
 func addEntitySection(marg map[string]map[string]uint64, ent []byte, path string) error {
 	d := countDecoder{b: ent}
@@ -304,13 +364,21 @@ func addEntitySection(marg map[string]map[string]uint64, ent []byte, path string
 // directories: counts are sums, so the result equals the compile of the
 // concatenated corpora (an incremental update is MergeCounts(old, new)).
 //
-// It streams: the shards are read and checked once and kept as encoded
-// bytes (about 17 bytes per distinct cell), entities are merged into a
-// table, and each pass over the pairs k-way merges the shards' sorted pair
-// sections (container/heap), summing equal pairs and checking every summed
-// table against the marginals. WriteFile and pruning take three passes.
-// Memory: O(shard bytes + entities·K); time O(bytes·log shards) per pass.
+// It streams: the shards are mapped read-only and checked once, and stay
+// encoded (about 17 bytes per distinct cell) in page cache the kernel can
+// reclaim, not in the Go heap; entities are merged into a table, and each
+// pass over the pairs k-way merges the shards' sorted pair sections
+// (container/heap), summing equal pairs and checking every summed table
+// against the marginals. WriteFile and pruning take three passes.
+// Heap: O(entities·K + shards); time O(bytes·log shards) per pass.
 // The summary's SpillBytes holds the shard bytes read; Read is zero.
+//
+// The returned Source implements io.Closer: close it once it has been
+// written, to unmap the shards (Pairs fails after Close). A shard file must
+// not be truncated while its Source is open.
+//
+// Shard files are untrusted input: DecodeCountShard checks every length
+// and offset, and the checksum, before a byte is used.
 func MergeCounts(ctx context.Context, dirs []string, opts ...BuildOption) (Source, BuildSummary, error) {
 	start := time.Now()
 	var sum BuildSummary
@@ -327,6 +395,7 @@ func MergeCounts(ctx context.Context, dirs []string, opts ...BuildOption) (Sourc
 		return s.merge(func(a, b uint32, _ []uint32, sup uint64) error { return fn(a, b, sup) })
 	})
 	if err != nil {
+		s.Close()
 		return nil, sum, err
 	}
 	s.filter = f

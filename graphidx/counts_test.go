@@ -106,6 +106,7 @@ func compileCountsBytes(t *testing.T, dirs []string, opts ...BuildOption) []byte
 	if err != nil {
 		t.Fatal(err)
 	}
+	defer src.(io.Closer).Close()
 	out := filepath.Join(t.TempDir(), "counts.hwi")
 	if err := WriteFile(out, src); err != nil {
 		t.Fatal(err)
@@ -460,6 +461,7 @@ func ExampleCompileCounts() {
 		fmt.Println(err)
 		return
 	}
+	defer src.(io.Closer).Close() // unmaps the shards
 	fmt.Println("contexts:", sum.Contexts, "entities:", sum.Entities, "pairs:", sum.Pairs.After)
 	for _, e := range src.Entities() {
 		fmt.Println(e.Name, e.Values, e.Marginal)
@@ -547,6 +549,64 @@ func BenchmarkCountShards(b *testing.B) {
 			if err != nil || sum.Contexts != p.Contexts() || len(src.Entities()) == 0 {
 				b.Fatalf("compile: %v, %d contexts", err, sum.Contexts)
 			}
+			src.(io.Closer).Close()
 		}
 	})
+}
+
+// TestCountSourceCloseUnmaps: MergeCounts maps the shards (on Linux they
+// appear in /proc/self/maps) and Close unmaps them; Pairs fails after
+// Close, and Close is idempotent. A failing MergeCounts leaves nothing
+// mapped either.
+func TestCountSourceCloseUnmaps(t *testing.T) {
+	dir := t.TempDir()
+	if _, err := WriteCounts(dir, countsPartialOf(t, greenhouseCorpus(3, 300, 12)), 3); err != nil {
+		t.Fatal(err)
+	}
+	mapped := func() int {
+		b, err := os.ReadFile("/proc/self/maps")
+		if err != nil {
+			return -1 // not Linux: nothing to count
+		}
+		return bytes.Count(b, []byte(dir))
+	}
+	src, _, err := CompileCounts(context.Background(), dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if n := mapped(); n == 0 && mmapSupported {
+		t.Error("no shard of the open source is mapped")
+	}
+	c := src.(io.Closer)
+	if err := c.Close(); err != nil {
+		t.Fatal(err)
+	}
+	if n := mapped(); n > 0 {
+		t.Errorf("%d mappings of the shards left after Close", n)
+	}
+	if err := src.Pairs(func(PairRecord) error { return nil }); err == nil {
+		t.Error("Pairs after Close succeeded")
+	}
+	if err := c.Close(); err != nil {
+		t.Errorf("second Close: %v", err)
+	}
+	// A set whose last shard is corrupt fails after mapping the others.
+	paths, err := filepath.Glob(filepath.Join(dir, "*.hwc"))
+	if err != nil || len(paths) != 3 {
+		t.Fatalf("shards %v, %v", paths, err)
+	}
+	b, err := os.ReadFile(paths[2])
+	if err != nil {
+		t.Fatal(err)
+	}
+	b[len(b)-1] ^= 0xff
+	if err := os.WriteFile(paths[2], b, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if _, _, err := CompileCounts(context.Background(), dir); err == nil {
+		t.Fatal("a corrupt shard was accepted")
+	}
+	if n := mapped(); n > 0 {
+		t.Errorf("%d mappings left after a failed compile", n)
+	}
 }

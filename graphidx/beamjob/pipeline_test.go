@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"context"
 	"fmt"
+	"io"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
@@ -101,6 +102,7 @@ func countsIndex(t testing.TB, dirs []string, opts ...graphidx.BuildOption) []by
 	if err != nil {
 		t.Fatal(err)
 	}
+	defer src.(io.Closer).Close()
 	out := filepath.Join(t.TempDir(), "counts.hwi")
 	if err := graphidx.WriteFile(out, src); err != nil {
 		t.Fatal(err)

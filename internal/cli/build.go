@@ -67,8 +67,11 @@ Pruning. --min-support drops pairs seen together in fewer contexts;
 if either endpoint keeps it). Both are reported in the summary.
 
 Count shards. --counts-out DIR also writes the corpus's unpruned counts as
-shards (a second pass over the corpus) for "hopwise merge"; --from-counts DIR
-compiles an index from such shards (or the Beam job's) instead of a corpus.
+shards (a second pass over the corpus) for "hopwise merge". That pass holds
+every count cell in memory (about 100 bytes per cell) outside --mem-budget:
+for corpora that do not fit, count with the Beam job instead. --from-counts
+DIR compiles an index from such shards (or the Beam job's) instead of a
+corpus; the shards are mapped, not read into the heap.
 
 Progress goes to stderr: a bar on a terminal, a line every few seconds
 otherwise (--quiet silences both). The summary goes to stdout.

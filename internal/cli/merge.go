@@ -135,7 +135,14 @@ func runMerge(cmd *cobra.Command, o mergeOpts, inputs []string) error {
 
 // writeCompiled writes src as an index and prints what was written,
 // including what pruning removed.
-func writeCompiled(w io.Writer, out string, src graphidx.Source, st graphidx.PruneStats) error {
+func writeCompiled(w io.Writer, out string, src graphidx.Source, st graphidx.PruneStats) (err error) {
+	if c, ok := src.(io.Closer); ok { // the shards stay mapped until written
+		defer func() {
+			if cerr := c.Close(); err == nil {
+				err = cerr
+			}
+		}()
+	}
 	if err := graphidx.WriteFile(out, src); err != nil {
 		return err
 	}
