@@ -665,6 +665,18 @@ func (x *Index) Name(id EntityID) string {
 	return strings.Clone(v.nameAt(uint64(id)))
 }
 
+// AppendName appends the bytes of entity id's name to dst and returns the
+// extended slice (dst unchanged if id is out of range). Unlike Name it
+// allocates only when dst must grow, which lets a caller copy names into
+// memory it owns (router.NameAppender). O(len(name)).
+func (x *Index) AppendName(dst []byte, id EntityID) []byte {
+	v := x.v.Load()
+	if uint64(id) >= v.n {
+		return dst
+	}
+	return append(dst, v.nameAt(uint64(id))...)
+}
+
 // NumValues returns K, the number of values of entity id (0 if out of range).
 func (x *Index) NumValues(id EntityID) int { return x.v.Load().numValues(id) }
 

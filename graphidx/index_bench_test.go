@@ -308,3 +308,26 @@ func TestPairBatchMatchesPair(t *testing.T) {
 		}
 	}
 }
+
+// TestAppendNameMatchesName: AppendName appends exactly Name's bytes, leaves
+// dst alone for an id out of range, and allocates nothing when dst has room.
+func TestAppendNameMatchesName(t *testing.T) { // not parallel: AllocsPerRun
+	ix, err := Open(ixWriteTemp(t, ixRandomSource(500, 6, 2, 5)))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer ix.Close()
+	buf := make([]byte, 0, 256)
+	for id := range EntityID(ix.NumEntities()) {
+		got := ix.AppendName(buf[:0], id)
+		if string(got) != ix.Name(id) {
+			t.Fatalf("id %d: AppendName %q, Name %q", id, got, ix.Name(id))
+		}
+	}
+	if got := ix.AppendName([]byte("x"), EntityID(ix.NumEntities())); string(got) != "x" {
+		t.Errorf("out of range: %q", got)
+	}
+	if n := testing.AllocsPerRun(100, func() { buf = ix.AppendName(buf[:0], 0) }); n != 0 {
+		t.Errorf("AppendName allocated %v times with room in dst", n)
+	}
+}

@@ -271,3 +271,9 @@ func TestPrefetchBatchIsCapped(t *testing.T) {
 		t.Fatalf("%d batches, largest %d pairs (cap %d)", bg.batches, bg.largest, maxPrefetch)
 	}
 }
+
+// The index offers every optional method the router looks for.
+var (
+	_ PairBatcher  = (*graphidx.Index)(nil)
+	_ NameAppender = (*graphidx.Index)(nil)
+)

@@ -631,7 +631,7 @@ func newRouter(g router.Graph, model scorer.Model, b Bounds, cache int) (*router
 
 // noClose keeps the shared index open when a router retires it. It
 // forwards the optional methods the router uses: the batch pair look-up
-// (router.PairBatcher) and RankPrefix.
+// (router.PairBatcher), RankPrefix and AppendName (router.NameAppender).
 type noClose struct{ router.Graph }
 
 // RankPrefix forwards to the graph's RankPrefix, or returns 0 (unknown).
@@ -652,6 +652,15 @@ func (n noClose) PairBatch(a, b []graphidx.EntityID, out []graphidx.PairStats, o
 	for i := range a {
 		out[i], ok[i] = n.Graph.Pair(a[i], b[i])
 	}
+}
+
+// AppendName forwards to the graph's AppendName (router.NameAppender), or
+// appends Name's copy.
+func (n noClose) AppendName(dst []byte, id graphidx.EntityID) []byte {
+	if na, has := n.Graph.(router.NameAppender); has {
+		return na.AppendName(dst, id)
+	}
+	return append(dst, n.Graph.Name(id)...)
 }
 
 // makeQueries draws n queries: From uniform over entities, a uniform value
