@@ -58,9 +58,7 @@ type variant struct {
 // processor and an SDK meter provider, with the default and the compact
 // spans, and compact spans with 10 % of traces sampled; and, for
 // reference, a bare SDK span around the plain router (the
-// SDK's own per-span cost, no hopwise code). The "-before" variants run the
-// decision path as it was before the overhead work (legacy_test.go) on the
-// same Instrumentation, so one run compares both.
+// SDK's own per-span cost, no hopwise code).
 func variants(tb testing.TB) []variant {
 	global, err := New()
 	if err != nil {
@@ -94,12 +92,9 @@ func variants(tb testing.TB) []variant {
 		{name: "plain", run: func(ctx context.Context, r *router.Router, q router.Query) (router.Decision, error) {
 			return r.Decide(ctx, q)
 		}},
-		{name: "global-no-sdk-before", run: legacyDecide(tb, global, nil)},
 		{name: "global-no-sdk", run: global.Decide},
 		{name: "noop", run: noop.Decide},
-		{name: "sdk-batch-before", run: legacyDecide(tb, sdk, mp)},
 		{name: "sdk-batch", run: sdk.Decide, stop: func() { tp.Shutdown(context.Background()); mp.Shutdown(context.Background()) }},
-		{name: "sdk-batch-compact-before", run: legacyDecide(tb, compact, mp3)},
 		{name: "sdk-batch-compact", run: compact.Decide, stop: func() { tp3.Shutdown(context.Background()); mp3.Shutdown(context.Background()) }},
 		{name: "sdk-batch-compact-10%", run: sampled.Decide, stop: func() { tp4.Shutdown(context.Background()); mp4.Shutdown(context.Background()) }},
 		{name: "bare-sdk-span", run: func(ctx context.Context, r *router.Router, q router.Query) (router.Decision, error) {
