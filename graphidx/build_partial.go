@@ -32,6 +32,10 @@ func NewPartial() *Partial {
 	return &Partial{marg: map[string]map[string]uint64{}, cells: map[partialCell]uint64{}}
 }
 
+// NumCells is the number of distinct pair-table cells counted (each costs
+// a map entry; marginals are not included). O(1).
+func (p *Partial) NumCells() int { return len(p.cells) }
+
 // Contexts is the number of contexts added or merged.
 func (p *Partial) Contexts() uint64 { return p.contexts }
 
@@ -40,8 +44,45 @@ func (p *Partial) Contexts() uint64 { return p.contexts }
 // (ErrDuplicateEntity) and a 65th value of an entity (ErrTooManyValues),
 // leaving p unchanged. O(n²) for n observations.
 func (p *Partial) Add(c Context) error {
+	return p.AddShards(c, 1, nil)
+}
+
+// AddShards counts one context like Add, except that it keeps only the
+// pair cells whose count shard of n (CountCell.Shard) satisfies keep (nil
+// keeps all); marginals and the context total are always counted. Counting a corpus
+// once per group of shards bounds the Partial to that group's cells, and
+// each group's shards are then byte-identical to those written from a
+// Partial of the whole corpus (WriteCountShards). O(n²) for n observations,
+// plus one hash per pair.
+func (p *Partial) AddShards(c Context, n int, keep func(shard int) bool) error {
 	obs := slices.Clone(c.Obs)
 	slices.SortFunc(obs, func(a, b Observation) int { return strings.Compare(a.Entity, b.Entity) })
+	if err := p.checkSorted(obs, c.ID); err != nil {
+		return err
+	}
+	all := keep == nil || (n <= 1 && keep(0))
+	none := !all && n <= 1
+	p.contexts++
+	for i, o := range obs {
+		m := p.marg[o.Entity]
+		if m == nil {
+			m = map[string]uint64{}
+			p.marg[o.Entity] = m
+		}
+		m[o.Value]++
+		for _, q := range obs[i+1:] {
+			if all || (!none && keep(CountCell{A: o.Entity, B: q.Entity}.Shard(n))) {
+				p.cells[partialCell{o.Entity, q.Entity, o.Value, q.Value}]++
+			}
+		}
+	}
+	return nil
+}
+
+// checkSorted applies Add's checks to the observations of context id,
+// sorted by entity, without counting them.
+func (p *Partial) checkSorted(obs []Observation, id string) error {
+	c := Context{ID: id}
 	for i, o := range obs {
 		if o.Entity == "" || o.Value == "" {
 			return fmt.Errorf("%w: context %s", ErrEmptyName, strconv.Quote(c.ID))
@@ -54,18 +95,6 @@ func (p *Partial) Add(c Context) error {
 				return fmt.Errorf("%w: entity %s, value %s in context %s", ErrTooManyValues,
 					strconv.Quote(o.Entity), strconv.Quote(o.Value), strconv.Quote(c.ID))
 			}
-		}
-	}
-	p.contexts++
-	for i, o := range obs {
-		m := p.marg[o.Entity]
-		if m == nil {
-			m = map[string]uint64{}
-			p.marg[o.Entity] = m
-		}
-		m[o.Value]++
-		for _, q := range obs[i+1:] {
-			p.cells[partialCell{o.Entity, q.Entity, o.Value, q.Value}]++
 		}
 	}
 	return nil

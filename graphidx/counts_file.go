@@ -52,11 +52,33 @@ func WriteCounts(dir string, p *Partial, nshards int) (int64, error) {
 	if nshards < 1 || nshards > MaxCountShards {
 		return 0, fmt.Errorf("graphidx: WriteCounts: %d shards, want 1..%d", nshards, MaxCountShards)
 	}
+	all := make([]int, nshards)
+	for i := range all {
+		all[i] = i
+	}
+	return WriteCountShards(dir, p, nshards, all)
+}
+
+// WriteCountShards is WriteCounts restricted to the listed shards of the
+// set: each is written from p's cells of that shard, exactly as WriteCounts
+// would write it, and cells of other shards are ignored. A set counted in
+// groups (Partial.AddShards with the group's shards, then WriteCountShards
+// with the same list) is byte-identical to one written by WriteCounts from a
+// Partial of the whole corpus, with memory bounded by one group's cells.
+func WriteCountShards(dir string, p *Partial, nshards int, shards []int) (int64, error) {
+	if nshards < 1 || nshards > MaxCountShards {
+		return 0, fmt.Errorf("graphidx: WriteCountShards: %d shards, want 1..%d", nshards, MaxCountShards)
+	}
+	for _, s := range shards {
+		if s < 0 || s >= nshards {
+			return 0, fmt.Errorf("graphidx: WriteCountShards: shard %d of %d out of range", s, nshards)
+		}
+	}
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		return 0, err
 	}
 	var total int64
-	for s := range nshards {
+	for _, s := range shards {
 		path := filepath.Join(dir, CountShardName(s, nshards))
 		f, err := os.CreateTemp(dir, "."+CountShardName(s, nshards)+".tmp-")
 		if err != nil {

@@ -610,3 +610,65 @@ func TestCountSourceCloseUnmaps(t *testing.T) {
 		t.Errorf("%d mappings left after a failed compile", n)
 	}
 }
+
+// TestCountShardsInGroups: counting a corpus once per group of shards
+// (Partial.AddShards) and writing each group (WriteCountShards) gives the
+// same files, byte for byte, as WriteCounts from one Partial of the whole
+// corpus, and each group's Partial holds only its shards' cells.
+func TestCountShardsInGroups(t *testing.T) {
+	t.Parallel()
+	corpus := greenhouseCorpus(4, 1500, 30)
+	const n, groups = 7, 3
+	whole := t.TempDir()
+	full := countsPartialOf(t, corpus)
+	if _, err := WriteCounts(whole, full, n); err != nil {
+		t.Fatal(err)
+	}
+	grouped := t.TempDir()
+	maxCells := 0
+	for g := range groups {
+		var mine []int
+		for s := range n {
+			if s%groups == g {
+				mine = append(mine, s)
+			}
+		}
+		p := NewPartial()
+		r := NewJSONLReader(bytes.NewReader(corpus), "corpus.jsonl")
+		for {
+			c, err := r.Next()
+			if err == io.EOF {
+				break
+			}
+			if err != nil {
+				t.Fatal(err)
+			}
+			if err := p.AddShards(c, n, func(s int) bool { return s%groups == g }); err != nil {
+				t.Fatal(err)
+			}
+		}
+		maxCells = max(maxCells, len(p.cells))
+		if _, err := WriteCountShards(grouped, p, n, mine); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if maxCells*2 > len(full.cells) {
+		t.Errorf("a group held %d of %d cells: the grouping does not bound memory", maxCells, len(full.cells))
+	}
+	for s := range n {
+		a, err := os.ReadFile(filepath.Join(whole, CountShardName(s, n)))
+		if err != nil {
+			t.Fatal(err)
+		}
+		b, err := os.ReadFile(filepath.Join(grouped, CountShardName(s, n)))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !bytes.Equal(a, b) {
+			t.Fatalf("shard %d differs when counted in %d groups", s, groups)
+		}
+	}
+	if _, err := WriteCountShards(grouped, full, n, []int{n}); err == nil {
+		t.Error("a shard out of range was accepted")
+	}
+}

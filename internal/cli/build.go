@@ -67,9 +67,10 @@ Pruning. --min-support drops pairs seen together in fewer contexts;
 if either endpoint keeps it). Both are reported in the summary.
 
 Count shards. --counts-out DIR also writes the corpus's unpruned counts as
-shards (a second pass over the corpus) for "hopwise merge". That pass holds
-every count cell in memory (about 100 bytes per cell) outside --mem-budget:
-for corpora that do not fit, count with the Beam job instead. --from-counts
+shards for "hopwise merge", in further passes over the corpus: each pass
+counts the cells of a group of shards (about 160 bytes per cell in memory),
+and there are as many passes as keep a pass within half of --mem-budget (at
+most --shards; raise --shards for corpora with more cells). --from-counts
 DIR compiles an index from such shards (or the Beam job's) instead of a
 corpus; the shards are mapped, not read into the heap.
 
@@ -166,24 +167,37 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	fmt.Fprintf(out, "wrote %s\n", o.out)
 	fmt.Fprint(out, sum.String())
 	if o.counts.countsOut != "" {
-		return buildCountsOut(cmd, o, format, policy)
+		return buildCountsOut(cmd, o, format, policy, budget, sum.Pairs)
 	}
 	return nil
 }
 
-// buildCountsOut reads the corpus a second time and writes its counts as
-// shards to --counts-out.
-func buildCountsOut(cmd *cobra.Command, o buildOpts, format string, policy graphidx.BadLinePolicy) error {
-	r, closer, err := graphidx.OpenCorpus(o.corpus, format, o.lexicon, graphidx.WithPolicy(policy), graphidx.WithTempDir(o.tempDir))
-	if err != nil {
-		return classifyBuildErr(err)
-	}
-	defer closer.Close()
-	n, err := writeCorpusCounts(cmd.Context(), r, o.counts.countsOut, o.counts.shards)
+// buildCountsOut reads the corpus again and writes its counts as shards to
+// --counts-out, in as many passes as keep one pass's cells within half the
+// memory budget (countsPasses).
+func buildCountsOut(cmd *cobra.Command, o buildOpts, format string, policy graphidx.BadLinePolicy, budget int64, pairs graphidx.PruneStats) error {
+	passes, cells, err := countsPasses(o.out, pairs.Before, pairs.After, budget, o.counts.shards)
 	if err != nil {
 		return err
 	}
-	fmt.Fprintf(cmd.OutOrStdout(), "counts        %d bytes in %d shards under %s\n", n, o.counts.shards, o.counts.countsOut)
+	if cells*partialCellBytes/uint64(passes) > uint64(budget)/2 && !o.quiet {
+		fmt.Fprintf(cmd.ErrOrStderr(), "counts: about %d cells; one shard of %d holds more than half of --mem-budget: raise --shards to bound the memory of --counts-out\n",
+			cells, o.counts.shards)
+	}
+	open := func() (graphidx.ContextReader, io.Closer, error) {
+		return graphidx.OpenCorpus(o.corpus, format, o.lexicon, graphidx.WithPolicy(policy), graphidx.WithTempDir(o.tempDir))
+	}
+	var progress func(int)
+	if passes > 1 && !o.quiet {
+		progress = func(g int) {
+			fmt.Fprintf(cmd.ErrOrStderr(), "counts: pass %d of %d over the corpus (about %d cells in all)\n", g+1, passes, cells)
+		}
+	}
+	n, err := writeCorpusCounts(cmd.Context(), open, o.counts.countsOut, o.counts.shards, passes, progress)
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(cmd.OutOrStdout(), "counts        %d bytes in %d shards under %s (%d pass(es) over the corpus)\n", n, o.counts.shards, o.counts.countsOut, passes)
 	return nil
 }
 

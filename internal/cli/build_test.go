@@ -2,7 +2,11 @@ package cli
 
 import (
 	"bytes"
+	"context"
 	"errors"
+	"fmt"
+	"io"
+	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"strings"
@@ -102,5 +106,102 @@ func TestParseByteSize(t *testing.T) {
 		if _, err := parseByteSize(bad); err == nil {
 			t.Errorf("%q accepted", bad)
 		}
+	}
+}
+
+// TestCountsOutInPasses: --counts-out counted in several passes over the
+// corpus (one group of shards each) writes the same shard files as one
+// pass, and countsPasses sizes the passes from the index's cells and the
+// budget.
+func TestCountsOutInPasses(t *testing.T) {
+	t.Parallel()
+	dir := t.TempDir()
+	corpus := filepath.Join(dir, "beds.jsonl")
+	var b strings.Builder
+	rng := rand.New(rand.NewPCG(3, 4))
+	for i := range 400 {
+		fmt.Fprintf(&b, `{"id":"c%d","obs":{`, i)
+		for j := range 5 {
+			if j > 0 {
+				b.WriteString(",")
+			}
+			fmt.Fprintf(&b, `"bed-%02d/moisture":"%s"`, rng.IntN(40), []string{"dry", "damp", "wet"}[rng.IntN(3)])
+		}
+		b.WriteString("}}\n")
+	}
+	if err := os.WriteFile(corpus, []byte(b.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	open := func() (graphidx.ContextReader, io.Closer, error) {
+		return graphidx.OpenCorpus(corpus, graphidx.FormatJSONL, "", graphidx.WithPolicy(graphidx.Lenient))
+	}
+	one, three := filepath.Join(dir, "one"), filepath.Join(dir, "three")
+	if _, err := writeCorpusCounts(context.Background(), open, one, 8, 1, nil); err != nil {
+		t.Fatal(err)
+	}
+	passes := 0
+	if _, err := writeCorpusCounts(context.Background(), open, three, 8, 3, func(int) { passes++ }); err != nil {
+		t.Fatal(err)
+	}
+	if passes != 3 {
+		t.Errorf("%d passes reported, want 3", passes)
+	}
+	for s := range 8 {
+		name := graphidx.CountShardName(s, 8)
+		x, err1 := os.ReadFile(filepath.Join(one, name))
+		y, err2 := os.ReadFile(filepath.Join(three, name))
+		if err1 != nil || err2 != nil || !bytes.Equal(x, y) {
+			t.Fatalf("shard %d differs between 1 and 3 passes (%v, %v)", s, err1, err2)
+		}
+	}
+
+	// countsPasses: the index's distinct cells, then passes of at most half
+	// the budget each, capped at the shard count.
+	idx := filepath.Join(dir, "beds.idx")
+	if got, err := runCLI(t, "build", "--corpus", corpus, "--out", idx, "--quiet"); err != nil {
+		t.Fatalf("%v\n%s", err, got)
+	}
+	p := graphidx.NewPartial()
+	r, c, err := open()
+	if err != nil {
+		t.Fatal(err)
+	}
+	for {
+		ctx, err := r.Next()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := p.Add(ctx); err != nil {
+			t.Fatal(err)
+		}
+	}
+	c.Close()
+	_, cells, err := countsPasses(idx, 0, 0, 1<<30, 8)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if want := uint64(p.NumCells()); cells != want {
+		t.Errorf("countsPasses counted %d cells, the Partial has %d", cells, want)
+	}
+	for _, c := range []struct {
+		budget int64
+		shards int
+		want   int
+	}{
+		{1 << 30, 8, 1},
+		{int64(cells * partialCellBytes), 8, 2},     // half the budget per pass
+		{int64(cells * partialCellBytes / 2), 8, 4}, // a quarter
+		{1, 8, 8}, // capped at the shards
+	} {
+		if got, _, _ := countsPasses(idx, 0, 0, c.budget, c.shards); got != c.want {
+			t.Errorf("budget %d, %d shards: %d passes, want %d", c.budget, c.shards, got, c.want)
+		}
+	}
+	// Pruned pairs are scaled back in: 4 pairs seen, 2 kept → twice the cells.
+	if _, scaled, _ := countsPasses(idx, 4, 2, 1<<30, 8); scaled != 2*cells {
+		t.Errorf("scaled cells %d, want %d", scaled, 2*cells)
 	}
 }
