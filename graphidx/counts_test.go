@@ -82,19 +82,26 @@ func buildBytes(t *testing.T, corpus []byte, opts ...BuildOption) []byte {
 	return b
 }
 
-func countsPartialOf(t *testing.T, corpus []byte) *Partial {
+func countsPartialOf(t testing.TB, corpus []byte) *Partial {
 	t.Helper()
 	p := NewPartial()
+	eachContext(t, corpus, p.Add)
+	return p
+}
+
+// eachContext calls add with every context of a JSONL corpus.
+func eachContext(t testing.TB, corpus []byte, add func(Context) error) {
+	t.Helper()
 	r := NewJSONLReader(bytes.NewReader(corpus), "corpus.jsonl")
 	for {
 		c, err := r.Next()
 		if err == io.EOF {
-			return p
+			return
 		}
 		if err != nil {
 			t.Fatal(err)
 		}
-		if err := p.Add(c); err != nil {
+		if err := add(c); err != nil {
 			t.Fatal(err)
 		}
 	}
@@ -512,21 +519,7 @@ func FuzzDecodeCountShard(f *testing.F) {
 }
 
 func BenchmarkCountShards(b *testing.B) {
-	corpus := greenhouseCorpus(7, 20000, 200)
-	p := NewPartial()
-	r := NewJSONLReader(bytes.NewReader(corpus), "bench.jsonl")
-	for {
-		c, err := r.Next()
-		if err == io.EOF {
-			break
-		}
-		if err != nil {
-			b.Fatal(err)
-		}
-		if err := p.Add(c); err != nil {
-			b.Fatal(err)
-		}
-	}
+	p := countsPartialOf(b, greenhouseCorpus(7, 20000, 200))
 	b.Run("write", func(b *testing.B) {
 		b.ReportAllocs()
 		var n int64
@@ -634,19 +627,9 @@ func TestCountShardsInGroups(t *testing.T) {
 			}
 		}
 		p := NewPartial()
-		r := NewJSONLReader(bytes.NewReader(corpus), "corpus.jsonl")
-		for {
-			c, err := r.Next()
-			if err == io.EOF {
-				break
-			}
-			if err != nil {
-				t.Fatal(err)
-			}
-			if err := p.AddShards(c, n, func(s int) bool { return s%groups == g }); err != nil {
-				t.Fatal(err)
-			}
-		}
+		eachContext(t, corpus, func(c Context) error {
+			return p.AddShards(c, n, func(s int) bool { return s%groups == g })
+		})
 		maxCells = max(maxCells, len(p.cells))
 		if _, err := WriteCountShards(grouped, p, n, mine); err != nil {
 			t.Fatal(err)
