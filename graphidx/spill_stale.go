@@ -34,6 +34,15 @@ func makeSpillDir(dir, prefix string) (string, error) {
 // removeStaleSpillDirs removes dir's subdirectories named prefix+"<pid>-…"
 // whose pid is dead and returns their paths.
 func removeStaleSpillDirs(dir, prefix string) []string {
+	return removeDeadOwners(dir, prefix, func(e os.DirEntry) bool { return e.IsDir() }, os.RemoveAll)
+}
+
+// removeDeadOwners removes, with remove, every entry of dir that keep
+// accepts and whose name is prefix+"<pid>-…" for a pid other than this
+// process's that is no longer alive, and returns the removed paths. Entries
+// of other forms, of live processes and of this one are left alone; errors
+// are ignored (best effort). O(entries in dir).
+func removeDeadOwners(dir, prefix string, keep func(os.DirEntry) bool, remove func(string) error) []string {
 	ents, err := os.ReadDir(dir)
 	if err != nil {
 		return nil
@@ -42,7 +51,7 @@ func removeStaleSpillDirs(dir, prefix string) []string {
 	var removed []string
 	for _, e := range ents {
 		rest, ok := strings.CutPrefix(e.Name(), prefix)
-		if !ok || !e.IsDir() {
+		if !ok || !keep(e) {
 			continue
 		}
 		pidStr, _, ok := strings.Cut(rest, "-")
@@ -54,7 +63,7 @@ func removeStaleSpillDirs(dir, prefix string) []string {
 			continue
 		}
 		p := filepath.Join(dir, e.Name())
-		if os.RemoveAll(p) == nil {
+		if remove(p) == nil {
 			removed = append(removed, p)
 		}
 	}

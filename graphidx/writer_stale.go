@@ -3,8 +3,6 @@ package graphidx
 import (
 	"os"
 	"path/filepath"
-	"strconv"
-	"strings"
 )
 
 // removeStaleTemps deletes the leftovers of crashed writes of path: regular
@@ -17,32 +15,5 @@ import (
 // best effort and never fails the write). It returns the removed paths.
 // O(entries in the directory).
 func removeStaleTemps(path string) []string {
-	dir := filepath.Dir(path)
-	prefix := TempPrefix(path)
-	ents, err := os.ReadDir(dir)
-	if err != nil {
-		return nil
-	}
-	self := os.Getpid()
-	var removed []string
-	for _, e := range ents {
-		name := e.Name()
-		rest, ok := strings.CutPrefix(name, prefix)
-		if !ok || !e.Type().IsRegular() {
-			continue
-		}
-		pidStr, _, ok := strings.Cut(rest, "-")
-		if !ok {
-			continue
-		}
-		pid, err := strconv.Atoi(pidStr)
-		if err != nil || pid <= 0 || pid == self || processAlive(pid) {
-			continue
-		}
-		p := filepath.Join(dir, name)
-		if os.Remove(p) == nil {
-			removed = append(removed, p)
-		}
-	}
-	return removed
+	return removeDeadOwners(filepath.Dir(path), TempPrefix(path), func(e os.DirEntry) bool { return e.Type().IsRegular() }, os.Remove)
 }
