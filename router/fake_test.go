@@ -207,3 +207,19 @@ func greenhouse(gen uint64) *memGraph {
 	b.pair(pump, bed, 1, 2, 2, 1)
 	return b.build()
 }
+
+// bedStar is sensor-a (dry/wet) and vent-b (closed/open), never observed
+// together, with leaves crop beds each adjacent to both with varied counts:
+// as many one-bridge chains as leaves.
+func bedStar(leaves int) *memGraph {
+	b := newMemBuilder(1)
+	s := b.entity("sensor-a", "dry", "wet")
+	tt := b.entity("vent-b", "closed", "open")
+	for i := range leaves {
+		z := b.entity(fmt.Sprintf("bed-%05d", i), "low", "high")
+		n := uint32(5 + i%37)
+		b.pair(s, z, 3*n, n, n, 2*n)
+		b.pair(z, tt, 2*n, n+uint32(i%5), n, 3*n)
+	}
+	return b.build()
+}

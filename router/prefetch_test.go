@@ -253,16 +253,7 @@ func TestDecideGoldenDigest(t *testing.T) {
 // of CPU past a 20 ms deadline under -race in TestBoundedWork).
 func TestPrefetchBatchIsCapped(t *testing.T) {
 	t.Parallel()
-	b := newMemBuilder(1)
-	s := b.entity("sensor-a", "dry", "wet")
-	tt := b.entity("vent-b", "closed", "open")
-	for i := range 3 * maxPrefetch {
-		z := b.entity(fmt.Sprintf("bed-%05d", i), "low", "high")
-		n := uint32(5 + i%37)
-		b.pair(s, z, 3*n, n, n, 2*n)
-		b.pair(z, tt, 2*n, n+uint32(i%5), n, 3*n)
-	}
-	bg := &batchGraph{Graph: nonClosing{b.build()}}
+	bg := &batchGraph{Graph: nonClosing{bedStar(3 * maxPrefetch)}}
 	r := mustNew(t, bg, WithMaxBridges(1), WithExpansionBudget(1<<30), WithCacheSize(0))
 	if _, err := r.Decide(context.Background(), Query{From: "sensor-a", Value: "dry", To: "vent-b"}); err != nil {
 		t.Fatal(err)

@@ -800,17 +800,7 @@ func (m *cancelModel) Chain(ws *scorer.Workspace, st scorer.Stats, s graphidx.En
 // only the generation phase polled the context).
 func TestDeadlineBoundsScoring(t *testing.T) {
 	t.Parallel()
-	b := newMemBuilder(1)
-	s := b.entity("sensor-a", "dry", "wet")
-	tt := b.entity("vent-b", "closed", "open")
-	const leaves = 400
-	for i := range leaves {
-		z := b.entity(fmt.Sprintf("bed-%03d", i), "low", "high")
-		n := uint32(5 + i%37)
-		b.pair(s, z, 3*n, n, n, 2*n)
-		b.pair(z, tt, 2*n, n+uint32(i%5), n, 3*n)
-	}
-	g := b.build()
+	g := bedStar(400)
 	bayes, err := scorer.NewBayes()
 	if err != nil {
 		t.Fatal(err)
