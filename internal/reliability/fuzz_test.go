@@ -137,16 +137,9 @@ func FuzzRouteBatch(f *testing.F) {
 	f.Add([]byte(strings.Repeat("x", 300) + "\n"))
 	idx := smallIndex(f)
 	dir := f.TempDir()
-	var mu sync.Mutex
-	n := 0
+	inputs := &fuzzFiles{dir: dir}
 	f.Fuzz(func(t *testing.T, data []byte) {
-		mu.Lock()
-		n++
-		p := filepath.Join(dir, "q"+itoa(n)+".jsonl")
-		mu.Unlock()
-		if err := os.WriteFile(p, data, 0o644); err != nil {
-			t.Fatal(err)
-		}
+		p := inputs.write(t, "q", ".jsonl", data)
 		defer os.Remove(p)
 		code, out, errOut := runCLI(t, "route", "--index", idx, "--queries", p, "--workers", "1", "--max-line-bytes", "256")
 		assertNoPanic(t, "route --queries", out+errOut)
@@ -305,16 +298,9 @@ func FuzzOpenCorpusGzip(f *testing.F) {
 	f.Add([]byte("\x1f\x8b"))
 	f.Add([]byte(`{"id":"c1","ents":["x"]}`))
 	dir := f.TempDir()
-	var mu sync.Mutex
-	n := 0
+	inputs := &fuzzFiles{dir: dir}
 	f.Fuzz(func(t *testing.T, data []byte) {
-		mu.Lock()
-		n++
-		p := filepath.Join(dir, "c"+itoa(n)+".jsonl.gz")
-		mu.Unlock()
-		if err := os.WriteFile(p, data, 0o644); err != nil {
-			t.Fatal(err)
-		}
+		p := inputs.write(t, "c", ".jsonl.gz", data)
 		defer os.Remove(p)
 		r, closer, err := graphidx.OpenCorpus(p, "", "", graphidx.WithMaxLineBytes(1<<12))
 		if err != nil {
@@ -399,4 +385,24 @@ func FuzzDecide(f *testing.F) {
 			}
 		}
 	})
+}
+
+// fuzzFiles writes fuzz inputs to distinct files in dir (the fuzz function
+// may run on several goroutines).
+type fuzzFiles struct {
+	dir string
+	mu  sync.Mutex
+	n   int
+}
+
+// write stores data as dir/<prefix><n><ext> and returns the path.
+func (ff *fuzzFiles) write(t *testing.T, prefix, ext string, data []byte) string {
+	ff.mu.Lock()
+	ff.n++
+	p := filepath.Join(ff.dir, prefix+itoa(ff.n)+ext)
+	ff.mu.Unlock()
+	if err := os.WriteFile(p, data, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	return p
 }

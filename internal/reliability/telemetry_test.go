@@ -239,27 +239,21 @@ func TestTelemetryFailureNeverBlocksDecide(t *testing.T) {
 // sumCounter sums the int64 sum data points of the named metric that carry
 // the attribute kv.
 func sumCounter(rm metricdata.ResourceMetrics, name string, kv attribute.KeyValue) int64 {
-	var n int64
-	for _, sm := range rm.ScopeMetrics {
-		for _, m := range sm.Metrics {
-			if m.Name != name {
-				continue
-			}
-			if s, ok := m.Data.(metricdata.Sum[int64]); ok {
-				for _, dp := range s.DataPoints {
-					if v, ok := dp.Attributes.Value(kv.Key); ok && v == kv.Value {
-						n += dp.Value
-					}
-				}
-			}
-		}
-	}
-	return n
+	return sumPoints(rm, name, func(a attribute.Set) bool {
+		v, ok := a.Value(kv.Key)
+		return ok && v == kv.Value
+	})
 }
 
 // sumCounterWithKey sums the data points of the named metric that carry the
 // attribute key (any value; every point when key is "").
 func sumCounterWithKey(rm metricdata.ResourceMetrics, name string, key attribute.Key) int64 {
+	return sumPoints(rm, name, func(a attribute.Set) bool { return key == "" || a.HasValue(key) })
+}
+
+// sumPoints sums the int64 sum data points of the named metric whose
+// attributes match.
+func sumPoints(rm metricdata.ResourceMetrics, name string, match func(attribute.Set) bool) int64 {
 	var n int64
 	for _, sm := range rm.ScopeMetrics {
 		for _, m := range sm.Metrics {
@@ -268,7 +262,7 @@ func sumCounterWithKey(rm metricdata.ResourceMetrics, name string, key attribute
 			}
 			if s, ok := m.Data.(metricdata.Sum[int64]); ok {
 				for _, dp := range s.DataPoints {
-					if key == "" || dp.Attributes.HasValue(key) {
+					if match(dp.Attributes) {
 						n += dp.Value
 					}
 				}
