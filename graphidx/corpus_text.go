@@ -25,6 +25,8 @@ type Lexicon struct {
 	forms []string // pattern id → case-folded surface form
 	// edge[i] bit 0: the form starts with a word rune; bit 1: it ends with one.
 	edge []uint8
+	// display maps an entity to its first surface form as written.
+	display map[string]string
 }
 
 // Len is the number of distinct surface forms.
@@ -49,7 +51,7 @@ func LoadLexicon(path string) (*Lexicon, error) {
 // lexicon file and line. Building the automaton costs O(Σ|form|).
 func ParseLexicon(r io.Reader, name string) (*Lexicon, error) {
 	lr := newLineReader(r, 1<<20)
-	lex := &Lexicon{}
+	lex := &Lexicon{display: map[string]string{}}
 	seen := map[string]int{} // folded form → pattern id
 	lines := []int{}
 	for {
@@ -91,6 +93,9 @@ func ParseLexicon(r io.Reader, name string) (*Lexicon, error) {
 					strconv.Quote(string(form)), strconv.Quote(string(ent)), strconv.Quote(lex.ents[id]), lines[id]))
 			}
 			continue
+		}
+		if _, ok := lex.display[string(ent)]; !ok {
+			lex.display[string(ent)] = string(form)
 		}
 		seen[folded] = len(lex.forms)
 		lines = append(lines, lr.line)
@@ -162,6 +167,7 @@ func (l *Lexicon) Match(text []byte) []string {
 type matcher struct {
 	folded []byte
 	found  []textMatch
+	kept   []textMatch // the accepted matches in text order
 	ents   []string
 }
 
@@ -169,6 +175,7 @@ func (m *matcher) match(l *Lexicon, text []byte) []string {
 	m.folded = foldCase(m.folded[:0], text)
 	m.found = m.found[:0]
 	m.ents = m.ents[:0]
+	m.kept = m.kept[:0]
 	t := m.folded
 	for _, mt := range l.ac.FindAllOverlapping(t) {
 		e := l.edge[mt.PatternID]
@@ -196,6 +203,7 @@ func (m *matcher) match(l *Lexicon, text []byte) []string {
 			continue
 		}
 		end = f.end
+		m.kept = append(m.kept, f)
 		m.ents = append(m.ents, l.ents[f.id])
 	}
 	slices.Sort(m.ents)
