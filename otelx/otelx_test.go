@@ -451,8 +451,8 @@ func TestReadTracesBadRecords(t *testing.T) {
 	}
 	good := span(`{"key":"hopwise.route.mode","value":{"stringValue":"direct"}}`)
 	cases := []struct{ name, input, want string }{
-		{"gain as string", good + "\n" + span(`{"key":"hopwise.route.mode","value":{"stringValue":"direct"}},{"key":"hopwise.route.gain","value":{"stringValue":"high"}}`),
-			"t.jsonl:2: span b7ad6b7169203331: attribute hopwise.route.gain: want double, got string"},
+		{"gain as string", good + "\n" + strings.Replace(span(`{"key":"hopwise.route.mode","value":{"stringValue":"direct"}},{"key":"hopwise.route.gain","value":{"stringValue":"high"}}`), "b7ad6b7169203331", "b7ad6b7169203332", 1),
+			"t.jsonl:2: span b7ad6b7169203332: attribute hopwise.route.gain: want double, got string"},
 		{"missing mode", span(`{"key":"hopwise.route.gain","value":{"doubleValue":1}}`), "t.jsonl:1: span b7ad6b7169203331: attribute hopwise.route.mode: missing"},
 		{"unknown mode", span(`{"key":"hopwise.route.mode","value":{"stringValue":"sideways"}}`), "unknown mode"},
 		{"bad ratio", span(`{"key":"hopwise.route.mode","value":{"stringValue":"direct"}},{"key":"hopwise.sampling.ratio","value":{"doubleValue":0}}`), "ratio 0 not in (0,1]"},

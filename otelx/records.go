@@ -83,7 +83,43 @@ type OutcomeRecord struct {
 	SamplingRatio float64
 }
 
-// Tokens returns InputTokens + OutputTokens.
+// Ranges of the numeric outcome fields. Readers reject values outside
+// them, naming the file, line and field, so that sums over any number of
+// outcomes stay exact: two counts of at most 2^40 add without overflow,
+// and float64 sums of up to 2^12 such totals stay integral.
+const (
+	// MaxTokens bounds input and output token counts of one outcome
+	// (2^40 ≈ 1.1e12, far above any context window).
+	MaxTokens = int64(1) << 40
+	// MaxLatencyMs bounds an outcome's latency: one week in
+	// milliseconds.
+	MaxLatencyMs = 7 * 24 * 3600 * 1000.0
+)
+
+// tokensProblem says what is wrong with a token count, "" when nothing.
+func tokensProblem(n int64) string {
+	switch {
+	case n < 0:
+		return fmt.Sprintf("negative token count %d", n)
+	case n > MaxTokens:
+		return fmt.Sprintf("%d above the limit of %d tokens", n, MaxTokens)
+	}
+	return ""
+}
+
+// latencyProblem says what is wrong with a latency, "" when nothing.
+func latencyProblem(ms float64) string {
+	switch {
+	case !(ms >= 0) || math.IsInf(ms, 0):
+		return fmt.Sprintf("%v is not a finite value ≥ 0", ms)
+	case ms > MaxLatencyMs:
+		return fmt.Sprintf("%v above the limit of %v ms (one week)", ms, MaxLatencyMs)
+	}
+	return ""
+}
+
+// Tokens returns InputTokens + OutputTokens (exact: each is at most
+// MaxTokens in records the readers return).
 func (o *OutcomeRecord) Tokens() int64 { return o.InputTokens + o.OutputTokens }
 
 // ReadStats counts what a reader saw.
@@ -94,6 +130,10 @@ type ReadStats struct {
 	FailedDecisions int `json:"failed_decisions"` // decision spans with error status
 	Outcomes        int `json:"outcomes"`
 	OtherSpans      int `json:"other_spans"`
+	// DuplicateSpans counts decision and outcome spans dropped by
+	// ReadTraceFiles because a span with the same (trace id, span id) was
+	// read before (a file given twice, a line written twice).
+	DuplicateSpans int `json:"duplicate_spans"`
 }
 
 func (s *ReadStats) add(o ReadStats) {
@@ -103,15 +143,60 @@ func (s *ReadStats) add(o ReadStats) {
 	s.FailedDecisions += o.FailedDecisions
 	s.Outcomes += o.Outcomes
 	s.OtherSpans += o.OtherSpans
+	s.DuplicateSpans += o.DuplicateSpans
 }
 
 // ReadTraces streams an OTLP JSON Lines file, calling onDecision for each
 // decision span and onOutcome for each outcome span (either may be nil).
-// Other spans are counted and skipped. The first malformed line or record
-// stops the read with an error naming name and the line; an error returned
-// by a callback stops it too. Records passed to callbacks are freshly
-// allocated and may be kept. Cost O(file size).
+// Other spans are counted and skipped. A decision or outcome span whose
+// (trace id, span id) was already read is dropped and counted in
+// ReadStats.DuplicateSpans; one without a trace or span id (absent or all
+// zero) is an error. The first malformed line or record stops the read
+// with an error naming name and the line; an error returned by a callback
+// stops it too. Records passed to callbacks are freshly allocated and may
+// be kept. Cost O(file size) time, O(spans) memory for the duplicate set.
 func ReadTraces(r io.Reader, name string, onDecision func(*DecisionRecord) error, onOutcome func(*OutcomeRecord) error) (ReadStats, error) {
+	return readTraces(r, name, spanSet{}, onDecision, onOutcome)
+}
+
+// spanKey is a span's identity: trace id then span id.
+type spanKey [16 + 8]byte
+
+// spanSet holds the identities of the spans read so far.
+type spanSet map[spanKey]struct{}
+
+// firstSeen checks the span's ids and reports whether it is new.
+func (s spanSet) firstSeen(sp *tracepb.Span, src string) (bool, error) {
+	bad := func(what string) error {
+		return fmt.Errorf("%w: %s: span %s: %s: missing or all zero (a span needs both ids to be told from a duplicate)",
+			ErrBadRecord, src, hex.EncodeToString(sp.SpanId), what)
+	}
+	if len(sp.TraceId) != 16 || allZero(sp.TraceId) {
+		return false, bad("trace id")
+	}
+	if len(sp.SpanId) != 8 || allZero(sp.SpanId) {
+		return false, bad("span id")
+	}
+	var k spanKey
+	copy(k[:16], sp.TraceId)
+	copy(k[16:], sp.SpanId)
+	if _, dup := s[k]; dup {
+		return false, nil
+	}
+	s[k] = struct{}{}
+	return true, nil
+}
+
+func allZero(b []byte) bool {
+	for _, c := range b {
+		if c != 0 {
+			return false
+		}
+	}
+	return true
+}
+
+func readTraces(r io.Reader, name string, seen spanSet, onDecision func(*DecisionRecord) error, onOutcome func(*OutcomeRecord) error) (ReadStats, error) {
 	var st ReadStats
 	sc := otlpfile.NewScanner(r, name, 0)
 	for sc.Scan() {
@@ -121,6 +206,18 @@ func ReadTraces(r io.Reader, name string, onDecision func(*DecisionRecord) error
 			for _, ss := range rs.ScopeSpans {
 				for _, sp := range ss.Spans {
 					st.Spans++
+					if sp.Name != SpanDecide && sp.Name != SpanOutcome {
+						st.OtherSpans++
+						continue
+					}
+					fresh, err := seen.firstSeen(sp, src)
+					if err != nil {
+						return st, err
+					}
+					if !fresh {
+						st.DuplicateSpans++
+						continue
+					}
 					switch sp.Name {
 					case SpanDecide:
 						if sp.Status.GetCode() == tracepb.Status_STATUS_CODE_ERROR {
@@ -148,8 +245,6 @@ func ReadTraces(r io.Reader, name string, onDecision func(*DecisionRecord) error
 								return st, err
 							}
 						}
-					default:
-						st.OtherSpans++
 					}
 				}
 			}
@@ -166,14 +261,18 @@ type Log struct {
 }
 
 // ReadTraceFiles reads every path into one Log (decisions in file order).
+// A span whose (trace id, span id) was read before, in the same or an
+// earlier file, is dropped and counted in Stats.DuplicateSpans: a file
+// given twice, overlapping copies or a batch written twice count once.
 func ReadTraceFiles(paths ...string) (*Log, error) {
 	lg := &Log{}
+	seen := spanSet{}
 	for _, p := range paths {
 		f, err := os.Open(p)
 		if err != nil {
 			return nil, fmt.Errorf("otelx: %w", err)
 		}
-		st, err := ReadTraces(bufio.NewReaderSize(f, 1<<20), p,
+		st, err := readTraces(bufio.NewReaderSize(f, 1<<20), p, seen,
 			func(d *DecisionRecord) error { lg.Decisions = append(lg.Decisions, *d); return nil },
 			func(o *OutcomeRecord) error { lg.Outcomes = append(lg.Outcomes, *o); return nil })
 		f.Close()
@@ -281,6 +380,16 @@ func (a *attrReader) uint(key string) uint64 {
 		return 0
 	}
 	return uint64(n)
+}
+
+// tokens reads a token count: an int in [0, MaxTokens], 0 when absent.
+func (a *attrReader) tokens(key string) int64 {
+	n := a.int(key)
+	if msg := tokensProblem(n); msg != "" {
+		a.fail(key, "%s", msg)
+		return 0
+	}
+	return n
 }
 
 func (a *attrReader) bool(key string) bool {
@@ -399,12 +508,12 @@ func outcomeFromSpan(sp *tracepb.Span, src string) (*OutcomeRecord, error) {
 	if a.err == nil && !(o.Score >= 0 && o.Score <= 1) {
 		a.fail(KeyOutcomeScore, "%v not in [0,1]", o.Score)
 	}
-	o.InputTokens = a.int(KeyOutcomeInputTokens)
-	o.OutputTokens = a.int(KeyOutcomeOutputTokens)
-	if o.InputTokens < 0 || o.OutputTokens < 0 {
-		a.fail(KeyOutcomeInputTokens, "negative token count")
-	}
+	o.InputTokens = a.tokens(KeyOutcomeInputTokens)
+	o.OutputTokens = a.tokens(KeyOutcomeOutputTokens)
 	o.LatencyMs = a.float(KeyOutcomeLatencyMs, 0, false)
+	if msg := latencyProblem(o.LatencyMs); msg != "" && a.err == nil {
+		a.fail(KeyOutcomeLatencyMs, "%s", msg)
+	}
 	o.Mode = a.str(KeyRouteMode, false)
 	o.Arm = a.str(KeyABArm, false)
 	o.SamplingRatio = a.ratio()
@@ -466,12 +575,12 @@ func ReadOutcomes(r io.Reader, name string) ([]OutcomeRecord, error) {
 			return nil, bad("score", "missing")
 		case !(*p.Score >= 0 && *p.Score <= 1):
 			return nil, bad("score", "%v not in [0,1]", *p.Score)
-		case p.InputTokens != nil && *p.InputTokens < 0:
-			return nil, bad("input_tokens", "negative (%d)", *p.InputTokens)
-		case p.OutputTokens != nil && *p.OutputTokens < 0:
-			return nil, bad("output_tokens", "negative (%d)", *p.OutputTokens)
-		case p.LatencyMs != nil && !(*p.LatencyMs >= 0) || p.LatencyMs != nil && math.IsInf(*p.LatencyMs, 0):
-			return nil, bad("latency_ms", "%v is not a finite value ≥ 0", *p.LatencyMs)
+		case p.InputTokens != nil && tokensProblem(*p.InputTokens) != "":
+			return nil, bad("input_tokens", "%s", tokensProblem(*p.InputTokens))
+		case p.OutputTokens != nil && tokensProblem(*p.OutputTokens) != "":
+			return nil, bad("output_tokens", "%s", tokensProblem(*p.OutputTokens))
+		case p.LatencyMs != nil && latencyProblem(*p.LatencyMs) != "":
+			return nil, bad("latency_ms", "%s", latencyProblem(*p.LatencyMs))
 		}
 		o := OutcomeRecord{Source: src, Key: *p.Key, Score: *p.Score, SamplingRatio: 1}
 		if p.InputTokens != nil {
