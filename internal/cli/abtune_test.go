@@ -19,8 +19,10 @@ import (
 	"go.opentelemetry.io/otel/trace"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/internal/abreport"
 	"github.com/hopwise/hopwise/internal/eval"
 	"github.com/hopwise/hopwise/internal/ope"
+	"github.com/hopwise/hopwise/internal/tuner"
 	"github.com/hopwise/hopwise/internal/world"
 	"github.com/hopwise/hopwise/otelx"
 	"github.com/hopwise/hopwise/otelx/otlpfile"
@@ -282,13 +284,14 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 
 	// tune
 	out := filepath.Join(dir, "tuned.json")
-	rep, err := runTune(tuneOptions{traces: []string{traces}, objective: "score", out: out, plots: filepath.Join(dir, "plots"),
-		tauPoints: 21, estimator: "dr", floor: ope.DefaultFloor, minESS: ope.DefaultMinESS, folds: ope.DefaultFolds, reps: 200, seed: 1, conf: 0.95, arm: router.ArmRouted})
+	to := tuneOpts(traces)
+	to.out, to.plotDir, to.Reps = out, filepath.Join(dir, "plots"), 200
+	rep, err := runTune(to, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
-	if rep.Best == nil {
-		t.Fatal("no recommendation")
+	if rep.Best == nil || rep.Config == nil {
+		t.Fatalf("no recommendation: %s", rep.Why)
 	}
 	pt := e.truth(t)
 	best := math.Inf(-1)
@@ -299,9 +302,9 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 			best, bestTau, bestH = v, p.Tau, p.MaxHops
 		}
 	}
-	got := pt.value(rep.Best.Tau, rep.Best.MaxHops)
-	t.Logf("tune: recommended τ=%.5g H=%d (DR %v), true value %.4f; best on grid τ=%.5g H=%d true %.4f; all-direct %.4f, current τ=0 H=3 %.4f; used %d samples",
-		rep.Best.Tau, rep.Best.MaxHops, rep.Best.DR.Value, got, bestTau, bestH, best, pt.value(math.Inf(1), 3), pt.value(0, 3), rep.Used)
+	got := pt.value(rep.Config.GainThreshold, rep.Config.MaxBridges)
+	t.Logf("tune: %s τ=%.5g H=%d (best estimated τ=%.5g H=%d, DR %v: %s), true value %.4f; best on grid τ=%.5g H=%d true %.4f; all-direct %.4f, current τ=0 H=3 %.4f; used %d samples",
+		rep.Decision, rep.Config.GainThreshold, rep.Config.MaxBridges, rep.Best.Tau, rep.Best.MaxHops, rep.Best.DR.Value, rep.Why, got, bestTau, bestH, best, pt.value(math.Inf(1), 3), pt.value(0, 3), rep.Used)
 	if got < 0.95*best {
 		t.Errorf("recommended policy's true value %.4f is not within 5%% of the grid's best %.4f", got, best)
 	}
@@ -309,7 +312,7 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if cfg.GainThreshold != rep.Best.Tau || cfg.MaxBridges != rep.Best.MaxHops {
+	if cfg.GainThreshold != rep.Config.GainThreshold || cfg.MaxBridges != rep.Config.MaxBridges || cfg.Exploration != 0.2 || len(cfg.Arms) != 2 {
 		t.Errorf("written config %+v", cfg)
 	}
 	for _, p := range rep.Plots {
@@ -325,8 +328,9 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 
 	// Priced tokens: at 1e-3 per token a chain's extra ~88 tokens cost more
 	// than its +0.03 score, so the priced recommendation chains less.
-	priced, err := runTune(tuneOptions{traces: []string{traces}, objective: "score-cost", costPerToken: 1e-3,
-		tauPoints: 21, estimator: "dr", floor: ope.DefaultFloor, minESS: ope.DefaultMinESS, folds: ope.DefaultFolds, reps: 100, seed: 1, conf: 0.95, arm: router.ArmRouted})
+	po := tuneOpts(traces)
+	po.Objective, po.CostPerToken, po.Reps = tuner.ObjectiveScoreCost, 1e-3, 100
+	priced, err := runTune(po, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -336,8 +340,9 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 	}
 
 	// ab: routed vs direct-only
-	ab, err := runAB(abOptions{traces: []string{traces}, success: 0.5, conf: 0.95, reps: 500, seed: 1, alpha: 0.05,
-		allocation: "routed=0.5,direct-only=0.5", power: 0.8, mde: 0.02})
+	ao := abOpts(traces)
+	ao.Reps, ao.allocation, ao.Power, ao.MDE = 500, "routed=0.5,direct-only=0.5", 0.8, 0.02
+	ab, err := runAB(nil, ao, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -366,7 +371,9 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 	if err := os.WriteFile(outPath, plain.Bytes(), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	viaFile, err := runAB(abOptions{traces: []string{traces}, outcomes: outPath, success: 0.5, conf: 0.95, reps: 0, seed: 1, alpha: 0.05})
+	vo := abOpts(traces)
+	vo.outcomes, vo.Reps = outPath, 0
+	viaFile, err := runAB(nil, vo, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -380,7 +387,9 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 	e.simulate(t, aa, 12000, 1, 2,
 		router.WithArms(router.ArmWeight{Arm: router.ArmRouted, Weight: 0.5}, router.ArmWeight{Arm: router.ArmDirectOnly, Weight: 0.5}),
 		router.WithGainThreshold(1e9))
-	aaRep, err := runAB(abOptions{traces: []string{aa}, success: 0.5, conf: 0.95, reps: 500, seed: 1, alpha: 0.05, allocation: "routed=1,direct-only=1"})
+	aao := abOpts(aa)
+	aao.Reps, aao.allocation = 500, "routed=1,direct-only=1"
+	aaRep, err := runAB(nil, aao, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -392,8 +401,9 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 	// Without exploration the logger is deterministic: tune refuses every
 	// policy that differs from it and writes no config.
 	noOut := filepath.Join(dir, "none.json")
-	aaTune, err := runTune(tuneOptions{traces: []string{aa}, objective: "score", out: noOut, taus: "0,0.01", maxHops: "3",
-		estimator: "dr", floor: ope.DefaultFloor, minESS: ope.DefaultMinESS, folds: ope.DefaultFolds, reps: 50, seed: 1, conf: 0.95, arm: router.ArmRouted})
+	at := tuneOpts(aa)
+	at.out, at.taus, at.maxBridges, at.Reps = noOut, "0,0.01", "3", 50
+	aaTune, err := runTune(at, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -418,10 +428,10 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 	root = NewRoot()
 	root.SetOut(&buf)
 	root.SetArgs([]string{"tune", "--traces", traces, "--reps", "50", "--out", filepath.Join(dir, "t2.json")})
-	if err := root.Execute(); err != nil {
+	if err := root.Execute(); err != nil && !isExit(err, tuneExitKeep) {
 		t.Fatal(err)
 	}
-	if s := buf.String(); !strings.Contains(s, "recommended: gain_threshold") {
+	if s := buf.String(); !strings.Contains(s, "recommended: ") {
 		t.Errorf("tune output:\n%s", s)
 	}
 	for _, args := range [][]string{
@@ -432,7 +442,7 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 		root = NewRoot()
 		root.SetOut(&buf)
 		root.SetArgs(args)
-		if err := root.Execute(); err != nil {
+		if err := root.Execute(); err != nil && !isExit(err, tuneExitKeep) {
 			t.Fatalf("%v: %v", args, err)
 		}
 		var v map[string]any
@@ -475,8 +485,9 @@ func TestTuneRefusesMissingPropensity(t *testing.T) {
 	if err := os.WriteFile(path, []byte(b.String()), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	_, err := runTune(tuneOptions{traces: []string{path}, objective: "score", taus: "0", maxHops: "1", estimator: "dr",
-		floor: 0.01, minESS: 1, folds: ope.DefaultFolds, reps: 10, seed: 1, conf: 0.95, arm: router.ArmRouted, out: filepath.Join(dir, "x.json")})
+	mo := tuneOpts(path)
+	mo.taus, mo.maxBridges, mo.MinESS, mo.Reps, mo.out = "0", "1", 1, 10, filepath.Join(dir, "x.json")
+	_, err := runTune(mo, nil)
 	if !errors.Is(err, ope.ErrMissingPropensity) || !strings.Contains(err.Error(), "t.jsonl:1") {
 		t.Fatalf("err = %v", err)
 	}
@@ -484,7 +495,7 @@ func TestTuneRefusesMissingPropensity(t *testing.T) {
 		t.Error("config written despite the refusal")
 	}
 	// ab needs arms.
-	if _, err := runAB(abOptions{traces: []string{path}, success: 0.5, conf: 0.95, alpha: 0.05}); err == nil || !strings.Contains(err.Error(), "no A/B arm") {
+	if _, err := runAB(nil, abOpts(path), nil); err == nil || !strings.Contains(err.Error(), "no A/B arm") {
 		t.Errorf("ab without arms: %v", err)
 	}
 }
@@ -497,10 +508,12 @@ func TestABTuneFlagErrors(t *testing.T) {
 	}{
 		{[]string{"ab"}, "--traces"},
 		{[]string{"ab", "--traces", "x", "--allocation", "routed"}, "not arm=weight"},
-		{[]string{"ab", "--traces", "x", "--confidence", "2"}, "--confidence"},
-		{[]string{"tune", "--traces", "x", "--objective", "speed"}, "--objective"},
-		{[]string{"tune", "--traces", "x", "--objective", "score-cost"}, "--cost-per-token"},
-		{[]string{"tune", "--traces", "x", "--estimator", "mean"}, "--estimator"},
+		{[]string{"ab", "--traces", "x", "--confidence", "2"}, "confidence 2"},
+		{[]string{"ab", "--traces", "x", "--alpha", "0.01"}, "--alpha was renamed"},
+		{[]string{"tune", "--traces", "x", "--objective", "speed"}, "objective \"speed\""},
+		{[]string{"tune", "--traces", "x", "--objective", "score-cost"}, "cost per token"},
+		{[]string{"tune", "--traces", "x", "--estimator", "mean"}, "estimator \"mean\""},
+		{[]string{"tune", "--traces", "x", "--max-bridges", "1.5"}, "--max-bridges: 1.5"},
 		{[]string{"tune", "--traces", "/nonexistent/t.jsonl"}, "no such file"},
 	}
 	for _, c := range cases {
@@ -546,7 +559,9 @@ func TestABRepeatedUnitsResampleUnits(t *testing.T) {
 	if err := os.WriteFile(outcomes, []byte(outs.String()), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	rep, err := runAB(abOptions{traces: []string{traces}, outcomes: outcomes, success: 0.5, conf: 0.95, reps: 1000, seed: 1, alpha: 0.05})
+	ro := abOpts(traces)
+	ro.outcomes, ro.Reps = outcomes, 1000
+	rep, err := runAB(nil, ro, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -564,4 +579,20 @@ func TestABRepeatedUnitsResampleUnits(t *testing.T) {
 		t.Errorf("no note on the repeated units: %q", rep.Notes)
 	}
 	t.Logf("design effect %.2f; unit bootstrap %v vs Welch %v", d.DesignEffect, d.ScoreBoot, d.Score.Interval)
+}
+
+// tuneOpts are the flag defaults of tune with the given trace files.
+func tuneOpts(traces ...string) tuneOptions {
+	return tuneOptions{traces: traces, Options: tuner.DefaultOptions()}
+}
+
+// abOpts are the flag defaults of ab with the given trace files.
+func abOpts(traces ...string) abOptions {
+	return abOptions{traces: traces, Options: abreport.DefaultOptions()}
+}
+
+// isExit reports whether err is an ExitError with the code.
+func isExit(err error, code int) bool {
+	var ee *ExitError
+	return errors.As(err, &ee) && ee.Code == code
 }

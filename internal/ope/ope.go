@@ -69,6 +69,7 @@ const (
 type Option func(*config)
 
 type config struct {
+	ref    *reference
 	floor  float64
 	minESS float64
 	reps   int
@@ -107,6 +108,20 @@ func WithBins(n int) Option { return func(c *config) { c.bins = n } }
 // Chernozhukov et al. 2018, "Double/debiased machine learning", §3).
 // k = 1 fits one model on every sample (in-sample). Must be ≥ 1.
 func WithCrossFit(k int) Option { return func(c *config) { c.folds = k } }
+
+// reference is the policy of WithReference.
+type reference struct {
+	tau     float64
+	maxHops int
+}
+
+// WithReference names the policy (τ, H) every other policy is compared
+// with, usually the one in production: each PolicyResult then carries
+// Versus, its value minus the reference's, with a paired bootstrap
+// interval. The reference must be in the grid.
+func WithReference(tau float64, maxHops int) Option {
+	return func(c *config) { c.ref = &reference{tau, maxHops} }
+}
 
 func buildConfig(opts []Option) (config, error) {
 	c := config{floor: DefaultFloor, minESS: DefaultMinESS, reps: DefaultReps, seed: 1, conf: DefaultConfidence, bins: 10, folds: DefaultFolds}
@@ -155,6 +170,24 @@ type PolicyResult struct {
 	IPS        Estimate `json:"ips"`
 	SNIPS      Estimate `json:"snips"`
 	DR         Estimate `json:"dr"`
+	// Versus compares the policy with the reference of WithReference;
+	// nil without a reference or when either policy has no estimate.
+	Versus *Versus `json:"versus_reference,omitempty"`
+}
+
+// Versus is a policy's value minus the reference policy's, per
+// estimator. The intervals are percentile intervals of the paired
+// differences: both policies are evaluated on the same bootstrap
+// replicates, so their common noise cancels. An interval that excludes 0
+// says the policies differ at the interval's level (for one comparison
+// chosen in advance; the best of a grid picked after looking is favoured
+// by chance, so treat a narrow exclusion with care).
+type Versus struct {
+	Tau     float64         `json:"tau"`
+	MaxHops int             `json:"max_hops"`
+	IPS     abstat.Interval `json:"ips"`
+	SNIPS   abstat.Interval `json:"snips"`
+	DR      abstat.Interval `json:"dr"`
 }
 
 // term indexes the per-sample sums.
@@ -261,6 +294,15 @@ func Sweep(samples []Sample, grid Grid, opts ...Option) ([]PolicyResult, error) 
 	slices.Sort(hops)
 	hops = slices.Compact(hops)
 	G, H := len(taus), len(hops)
+	ref := -1
+	if cfg.ref != nil {
+		j, okT := slices.BinarySearch(taus, cfg.ref.tau)
+		h, okH := slices.BinarySearch(hops, cfg.ref.maxHops)
+		if !okT || !okH {
+			return nil, fmt.Errorf("%w: reference policy τ=%v H=%d is not in the grid", ErrBadOption, cfg.ref.tau, cfg.ref.maxHops)
+		}
+		ref = j*H + h
+	}
 
 	n := len(samples)
 	base := make([]float64, nTerms)      // Σ of direct-target terms
@@ -328,8 +370,9 @@ func Sweep(samples []Sample, grid Grid, opts ...Option) ([]PolicyResult, error) 
 			r.DR.Cost.Est = t[tDRC] / sumW
 		}
 	}
+	setVersus(results, ref)
 	if cfg.reps > 0 {
-		if err := bootstrap(samples, direct, diffs, cell, G, H, cfg, results); err != nil {
+		if err := bootstrap(samples, direct, diffs, cell, G, H, ref, cfg, results); err != nil {
 			return nil, err
 		}
 	} else {
@@ -337,6 +380,11 @@ func Sweep(samples []Sample, grid Grid, opts ...Option) ([]PolicyResult, error) 
 			for _, e := range []*Estimate{&results[i].IPS, &results[i].SNIPS, &results[i].DR} {
 				e.Value.Lo, e.Value.Hi = math.NaN(), math.NaN()
 				e.Cost.Lo, e.Cost.Hi = math.NaN(), math.NaN()
+			}
+			if v := results[i].Versus; v != nil {
+				for _, iv := range []*abstat.Interval{&v.IPS, &v.SNIPS, &v.DR} {
+					iv.Lo, iv.Hi = math.NaN(), math.NaN()
+				}
 			}
 		}
 	}
@@ -351,6 +399,25 @@ func Sweep(samples []Sample, grid Grid, opts ...Option) ([]PolicyResult, error) 
 		}
 	}
 	return out, nil
+}
+
+// setVersus sets the point differences to the reference policy (index
+// ref, −1 for none) of every supported policy, and clears them when either
+// policy has no estimate.
+func setVersus(results []PolicyResult, ref int) {
+	for i := range results {
+		r := &results[i]
+		r.Versus = nil
+		if ref < 0 || !r.Supported || !results[ref].Supported {
+			continue
+		}
+		b := &results[ref]
+		r.Versus = &Versus{Tau: b.Tau, MaxHops: b.MaxHops,
+			IPS:   abstat.Interval{Est: r.IPS.Value.Est - b.IPS.Value.Est},
+			SNIPS: abstat.Interval{Est: r.SNIPS.Value.Est - b.SNIPS.Value.Est},
+			DR:    abstat.Interval{Est: r.DR.Value.Est - b.DR.Value.Est},
+		}
+	}
 }
 
 // sortSearchFloat returns the number of taus ≤ x (taus ascending).
@@ -469,11 +536,16 @@ func poisson1(r *rand.Rand) int32 {
 	return int32(len(poisson1CDF))
 }
 
-func bootstrap(samples []Sample, direct, diffs [][nTerms]float64, cell []int, G, H int, cfg config, results []PolicyResult) error {
+// bootstrap sets the percentile intervals of every supported policy and,
+// with a reference policy (index ref ≥ 0), of the paired differences to
+// it. O(reps·(n + G·H)).
+func bootstrap(samples []Sample, direct, diffs [][nTerms]float64, cell []int, G, H, ref int, cfg config, results []PolicyResult) error {
 	n := len(samples)
 	P := G * H
 	// replicates[p][e] for e in IPS-V, IPS-C, SNIPS-V, SNIPS-C, DR-V, DR-C
 	reps := make([][6][]float64, P)
+	// versus[p][e] for e in IPS, SNIPS, DR: value minus the reference's
+	versus := make([][3][]float64, P)
 	for p := range reps {
 		for e := range 6 {
 			reps[p][e] = make([]float64, 0, cfg.reps)
@@ -505,6 +577,14 @@ func bootstrap(samples []Sample, direct, diffs [][nTerms]float64, cell []int, G,
 				continue
 			}
 			t := grid[p]
+			if ref >= 0 && results[ref].Supported {
+				b := grid[ref]
+				versus[p][0] = append(versus[p][0], (t[tIPSR]-b[tIPSR])/sumW)
+				if t[tDen] > 0 && b[tDen] > 0 {
+					versus[p][1] = append(versus[p][1], t[tIPSR]/t[tDen]-b[tIPSR]/b[tDen])
+				}
+				versus[p][2] = append(versus[p][2], (t[tDRR]-b[tDRR])/sumW)
+			}
 			reps[p][0] = append(reps[p][0], t[tIPSR]/sumW)
 			reps[p][1] = append(reps[p][1], t[tIPSC]/sumW)
 			if t[tDen] > 0 {
@@ -528,6 +608,24 @@ func bootstrap(samples []Sample, direct, diffs [][nTerms]float64, cell []int, G,
 				break
 			}
 			got, err := abstat.PercentileInterval(iv.Est, reps[p][e], cfg.conf)
+			if err != nil {
+				return err
+			}
+			*iv = got
+		}
+	}
+	setVersus(results, ref) // a policy may have lost its support above
+	for p := range P {
+		v := results[p].Versus
+		if v == nil {
+			continue
+		}
+		for e, iv := range []*abstat.Interval{&v.IPS, &v.SNIPS, &v.DR} {
+			if len(versus[p][e]) < cfg.reps/2 {
+				iv.Lo, iv.Hi = math.NaN(), math.NaN()
+				continue
+			}
+			got, err := abstat.PercentileInterval(iv.Est, versus[p][e], cfg.conf)
 			if err != nil {
 				return err
 			}
