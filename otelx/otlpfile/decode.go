@@ -22,6 +22,10 @@ import (
 // bad number, unknown enum name...).
 var ErrMalformed = errors.New("otlpfile: malformed OTLP/JSON line")
 
+// ErrNotJSONLines is wrapped when a file is not text at all: gzip or zstd
+// compressed, or binary (OTLP protobuf). The message says which.
+var ErrNotJSONLines = errors.New("otlpfile: not an OTLP JSON Lines file")
+
 // ErrLineTooLong is wrapped when a line exceeds the scanner's limit.
 var ErrLineTooLong = errors.New("otlpfile: line too long")
 
@@ -79,11 +83,13 @@ func malformed(err error) error {
 // lines are skipped. It stops at the first bad line; Err then returns a
 // *LineError naming the file and line.
 type Scanner struct {
-	sc   *bufio.Scanner
-	name string
-	line int
-	td   *tracepb.TracesData
-	err  error
+	br      *bufio.Reader
+	checked bool // the start of the input was checked by sniff
+	sc      *bufio.Scanner
+	name    string
+	line    int
+	td      *tracepb.TracesData
+	err     error
 }
 
 // DefaultMaxLine is the default limit on one line's length (256 MiB).
@@ -95,9 +101,37 @@ func NewScanner(r io.Reader, name string, maxLine int) *Scanner {
 	if maxLine <= 0 {
 		maxLine = DefaultMaxLine
 	}
-	sc := bufio.NewScanner(r)
+	br := bufio.NewReaderSize(r, 4096)
+	sc := bufio.NewScanner(br)
 	sc.Buffer(make([]byte, 0, min(64<<10, maxLine)), maxLine)
-	return &Scanner{sc: sc, name: name}
+	return &Scanner{br: br, sc: sc, name: name}
+}
+
+// sniff looks at the first bytes of a file and says what it is when it is
+// not text that could be OTLP JSON Lines: a compressed file (the
+// collector's file exporter writes zstd with compression: zstd; gzip is
+// the usual archive format) or a binary one (the file exporter's format:
+// proto writes length-prefixed OTLP protobuf). "" when it may be JSON.
+func sniff(head []byte) string {
+	switch {
+	case bytes.HasPrefix(head, []byte{0x1f, 0x8b}):
+		return "the file is gzip-compressed; decompress it first (gunzip), as hopwise reads uncompressed OTLP JSON Lines"
+	case bytes.HasPrefix(head, []byte{0x28, 0xb5, 0x2f, 0xfd}):
+		return "the file is zstd-compressed (the collector file exporter's compression: zstd); decompress it (zstd -d) or configure the exporter without compression"
+	}
+	t := bytes.TrimLeft(head, " \t\r\n")
+	if len(t) == 0 || t[0] == '{' {
+		return ""
+	}
+	if i := bytes.IndexByte(t, '\n'); i >= 0 {
+		t = t[:i]
+	}
+	for _, c := range t {
+		if c < 0x20 && c != '\t' && c != '\r' {
+			return fmt.Sprintf("the file is binary (first bytes % x), likely OTLP protobuf (the collector file exporter's format: proto); configure format: json", head[:min(len(head), 8)])
+		}
+	}
+	return ""
 }
 
 // Scan advances to the next non-blank line and decodes it. It returns false
@@ -105,6 +139,14 @@ func NewScanner(r io.Reader, name string, maxLine int) *Scanner {
 func (s *Scanner) Scan() bool {
 	if s.err != nil {
 		return false
+	}
+	if !s.checked {
+		s.checked = true
+		head, _ := s.br.Peek(512) // a short or failing read is reported by the scan below
+		if what := sniff(head); what != "" {
+			s.err = &LineError{File: s.name, Line: 1, Err: fmt.Errorf("%w: %s", ErrNotJSONLines, what)}
+			return false
+		}
 	}
 	for s.sc.Scan() {
 		s.line++
