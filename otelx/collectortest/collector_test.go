@@ -59,7 +59,7 @@ type greenhouseWorld struct {
 	queries    []router.Query
 }
 
-func world0(t *testing.T) *greenhouseWorld {
+func world0(t testing.TB) *greenhouseWorld {
 	t.Helper()
 	g, err := greenhouse()
 	if err != nil {
@@ -73,7 +73,7 @@ func world0(t *testing.T) *greenhouseWorld {
 // every span both ways given: each exporter gets the same spans in the
 // same order. Outcome spans report score 1 with probability 0.6 for a
 // direct answer and 0.7 for a chained one.
-func (g *greenhouseWorld) decide(t *testing.T, n int, seed uint64, exporters ...sdktrace.SpanExporter) {
+func (g *greenhouseWorld) decide(t testing.TB, n int, seed uint64, exporters ...sdktrace.SpanExporter) {
 	t.Helper()
 	ctx := context.Background()
 	ix, err := graphidx.Open(g.index)
