@@ -3,11 +3,13 @@ package collectortest
 import (
 	"context"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"reflect"
+	"strings"
 	"sync"
 	"testing"
 	"time"
@@ -247,4 +249,35 @@ func TestMain(m *testing.M) {
 		os.RemoveAll(g.dir)
 	}
 	os.Exit(code)
+}
+
+// TestCollectorFormatsNamed: files the file exporter writes with format
+// proto, or with zstd compression, are rejected by hopwise's reader at
+// line 1 with what they are, not as bad JSON.
+func TestCollectorFormatsNamed(t *testing.T) {
+	t.Parallel()
+	g := world0(t)
+	ctx := context.Background()
+	for _, c := range []struct {
+		file FileConfig
+		want string
+	}{
+		{FileConfig{"format": "proto"}, "likely OTLP protobuf"},
+		{FileConfig{"format": "json", "compression": "zstd"}, "zstd-compressed"},
+	} {
+		path := filepath.Join(t.TempDir(), "traces.jsonl")
+		c.file["path"] = path
+		col, err := Start(ctx, c.file)
+		if err != nil {
+			t.Fatal(err)
+		}
+		g.decide(t, 50, 20, toCollector(t, col))
+		if err := col.Shutdown(ctx); err != nil {
+			t.Fatal(err)
+		}
+		_, err = otelx.ReadTraceFiles(path)
+		if !errors.Is(err, otlpfile.ErrNotJSONLines) || !strings.Contains(err.Error(), path+":1:") || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%v: err = %v, want %q at line 1", c.file, err, c.want)
+		}
+	}
 }

@@ -107,6 +107,9 @@ func NewScanner(r io.Reader, name string, maxLine int) *Scanner {
 	return &Scanner{br: br, sc: sc, name: name}
 }
 
+// zstdMagic starts every zstd frame (RFC 8878 §3.1.1).
+var zstdMagic = []byte{0x28, 0xb5, 0x2f, 0xfd}
+
 // sniff looks at the first bytes of a file and says what it is when it is
 // not text that could be OTLP JSON Lines: a compressed file (the
 // collector's file exporter writes zstd with compression: zstd; gzip is
@@ -116,8 +119,10 @@ func sniff(head []byte) string {
 	switch {
 	case bytes.HasPrefix(head, []byte{0x1f, 0x8b}):
 		return "the file is gzip-compressed; decompress it first (gunzip), as hopwise reads uncompressed OTLP JSON Lines"
-	case bytes.HasPrefix(head, []byte{0x28, 0xb5, 0x2f, 0xfd}):
-		return "the file is zstd-compressed (the collector file exporter's compression: zstd); decompress it (zstd -d) or configure the exporter without compression"
+	case bytes.HasPrefix(head, zstdMagic):
+		return "the file is zstd-compressed; decompress it (zstd -d) or configure the exporter without compression"
+	case len(head) >= 8 && bytes.Equal(head[4:8], zstdMagic):
+		return "the file holds length-prefixed zstd-compressed messages (the collector file exporter's compression: zstd); configure the exporter without compression"
 	}
 	t := bytes.TrimLeft(head, " \t\r\n")
 	if len(t) == 0 || t[0] == '{' {

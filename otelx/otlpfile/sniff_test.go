@@ -40,6 +40,7 @@ func TestScannerNamesNonJSONFiles(t *testing.T) {
 		{"gzip", gz.Bytes(), "t.jsonl:1: otlpfile: not an OTLP JSON Lines file: the file is gzip-compressed"},
 		{"zstd", zstd, "t.jsonl:1: otlpfile: not an OTLP JSON Lines file: the file is zstd-compressed"},
 		{"protobuf", pb, "t.jsonl:1: otlpfile: not an OTLP JSON Lines file: the file is binary"},
+		{"length-prefixed zstd", append(binary.BigEndian.AppendUint32(nil, uint32(len(zstd))), zstd...), "t.jsonl:1: otlpfile: not an OTLP JSON Lines file: the file holds length-prefixed zstd-compressed messages"},
 	} {
 		sc := NewScanner(bytes.NewReader(c.input), "t.jsonl", 0)
 		for sc.Scan() {
