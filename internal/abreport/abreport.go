@@ -28,6 +28,8 @@ type Arm struct {
 
 	scores, costs []float64
 	byUnit        map[string][]float64 // scores per unit key
+	units         map[string]bool      // unit keys
+	chains        int                  // decisions answered through a chain
 }
 
 // unitClusters returns the arm's scores grouped by unit key, in key order.
@@ -163,24 +165,67 @@ func Compare(s *traceset.Set, o Options) (*Report, error) {
 	if err := o.Validate(); err != nil {
 		return nil, err
 	}
-	alloc := o.Allocation
-	jd := s
-	rep := &Report{Set: jd, Confidence: o.Confidence, SuccessAt: o.Success, CostUnit: traceset.CostUnit(o.CostPerToken)}
+	rep := &Report{Set: s, Confidence: o.Confidence, SuccessAt: o.Success, CostUnit: traceset.CostUnit(o.CostPerToken)}
+	byArm := rep.group(o)
+	if _, ok := byArm[""]; ok {
+		if len(byArm) == 1 {
+			return nil, fmt.Errorf("%w: the decisions carry no A/B arm (hopwise.ab.arm): configure the router's arms to run an experiment", ErrNoComparison)
+		}
+		rep.Notes = append(rep.Notes, fmt.Sprintf("%d joined decisions without an arm are reported as arm \"\"", byArm[""].N))
+	}
+	names, err := rep.order(byArm, o.Control)
+	if err != nil {
+		return nil, err
+	}
+	for _, n := range names {
+		a := byArm[n]
+		a.Control = n == rep.Control
+		a.Units = len(a.units)
+		sum := abstat.Summarize(a.scores)
+		a.MeanScore, a.ScoreSD = sum.Mean, math.Sqrt(sum.Var)
+		a.MeanCost = abstat.Summarize(a.costs).Mean
+		a.ChainShare = float64(a.chains) / float64(a.N)
+		if a.Success, err = abstat.Wilson(a.Successes, a.N, o.Confidence); err != nil {
+			return nil, err
+		}
+		rep.Arms = append(rep.Arms, *a)
+	}
+	ctrl := byArm[rep.Control]
+	for _, a := range rep.Arms[1:] {
+		d, err := rep.diff(byArm[a.Arm], ctrl, o)
+		if err != nil {
+			return nil, err
+		}
+		rep.Diffs = append(rep.Diffs, d)
+	}
+	if o.Allocation != nil {
+		if rep.SRM, err = rep.srm(byArm, o.Allocation); err != nil {
+			return nil, err
+		}
+	} else {
+		rep.Notes = append(rep.Notes, "no allocation given (--allocation or --config): sample-ratio check skipped")
+	}
+	if o.Power > 0 {
+		if rep.Power, err = rep.power(ctrl, o); err != nil {
+			return nil, err
+		}
+	}
+	return rep, nil
+}
 
+// group collects the joined decisions by arm. O(n).
+func (rep *Report) group(o Options) map[string]*Arm {
 	byArm := map[string]*Arm{}
-	units := map[string]map[string]bool{}
 	ratios := map[float64]bool{}
-	var chains = map[string]int{}
-	for _, j := range jd.Joined {
+	for _, j := range rep.Joined {
 		d, oc := j.Decision, j.Outcome
 		a := byArm[d.Arm]
 		if a == nil {
-			a = &Arm{Arm: d.Arm, byUnit: map[string][]float64{}}
+			a = &Arm{Arm: d.Arm, byUnit: map[string][]float64{}, units: map[string]bool{}}
 			byArm[d.Arm] = a
-			units[d.Arm] = map[string]bool{}
 		}
 		a.N++
-		units[d.Arm][d.Key] = true
+		a.units[d.Key] = true
 		a.scores = append(a.scores, oc.Score)
 		a.byUnit[d.Key] = append(a.byUnit[d.Key], oc.Score)
 		a.costs = append(a.costs, traceset.Cost(oc, o.CostPerToken))
@@ -188,19 +233,20 @@ func Compare(s *traceset.Set, o Options) (*Report, error) {
 			a.Successes++
 		}
 		if d.Mode == "chain" {
-			chains[d.Arm]++
+			a.chains++
 		}
 		ratios[d.SamplingRatio] = true
-	}
-	if _, ok := byArm[""]; ok {
-		if len(byArm) == 1 {
-			return nil, fmt.Errorf("%w: the decisions carry no A/B arm (hopwise.ab.arm): configure the router's arms to run an experiment", ErrNoComparison)
-		}
-		rep.Notes = append(rep.Notes, fmt.Sprintf("%d joined decisions without an arm are reported as arm \"\"", byArm[""].N))
 	}
 	if len(ratios) > 1 {
 		rep.Notes = append(rep.Notes, "the traces mix several sampling ratios; arm comparisons are unweighted, which is exact only when every arm was sampled alike")
 	}
+	return byArm
+}
+
+// order picks the control (direct-only when present, else the first arm by
+// name, unless given) and returns the arm names, control first, then by
+// name.
+func (rep *Report) order(byArm map[string]*Arm, control string) ([]string, error) {
 	names := make([]string, 0, len(byArm))
 	for k := range byArm {
 		names = append(names, k)
@@ -209,7 +255,7 @@ func Compare(s *traceset.Set, o Options) (*Report, error) {
 	if len(names) < 2 {
 		return nil, fmt.Errorf("%w: only one arm (%q) has joined outcomes; an A/B comparison needs two", ErrNoComparison, names[0])
 	}
-	rep.Control = o.Control
+	rep.Control = control
 	if rep.Control == "" {
 		rep.Control = names[0]
 		if _, ok := byArm[router.ArmDirectOnly]; ok {
@@ -219,7 +265,6 @@ func Compare(s *traceset.Set, o Options) (*Report, error) {
 	if _, ok := byArm[rep.Control]; !ok {
 		return nil, fmt.Errorf("%w: control arm %q: no joined decisions in that arm (arms: %s)", ErrBadOption, rep.Control, strings.Join(names, ", "))
 	}
-	// control first, then the others by name
 	slices.SortStableFunc(names, func(a, b string) int {
 		switch {
 		case a == rep.Control:
@@ -229,128 +274,118 @@ func Compare(s *traceset.Set, o Options) (*Report, error) {
 		}
 		return strings.Compare(a, b)
 	})
-	for _, n := range names {
-		a := byArm[n]
-		a.Control = n == rep.Control
-		a.Units = len(units[n])
-		s := abstat.Summarize(a.scores)
-		a.MeanScore, a.ScoreSD = s.Mean, math.Sqrt(s.Var)
-		a.MeanCost = abstat.Summarize(a.costs).Mean
-		a.ChainShare = float64(chains[n]) / float64(a.N)
-		w, err := abstat.Wilson(a.Successes, a.N, o.Confidence)
-		if err != nil {
-			return nil, err
-		}
-		a.Success = w
-		rep.Arms = append(rep.Arms, *a)
-	}
-	ctrl := byArm[rep.Control]
+	return names, nil
+}
+
+// diff compares one arm with the control. O(reps·n) with the bootstrap.
+func (rep *Report) diff(arm, ctrl *Arm, o Options) (Diff, error) {
+	d := Diff{Arm: arm.Arm, Control: ctrl.Arm}
 	var err error
-	for _, a := range rep.Arms[1:] {
-		arm := byArm[a.Arm]
-		d := Diff{Arm: a.Arm, Control: rep.Control}
-		if d.Success, err = abstat.NewcombeDiff(arm.Successes, arm.N, ctrl.Successes, ctrl.N, o.Confidence); err != nil {
-			return nil, err
-		}
-		if d.Z, err = abstat.TwoProportionZ(arm.Successes, arm.N, ctrl.Successes, ctrl.N); err != nil {
-			return nil, err
-		}
-		d.Significant = d.Success.Lo > 0 || d.Success.Hi < 0
-		if arm.N >= 2 && ctrl.N >= 2 {
-			w, err := abstat.Welch(abstat.Summarize(arm.scores), abstat.Summarize(ctrl.scores), o.Confidence)
-			if err != nil {
-				return nil, err
-			}
-			d.Score = &w
-			c, err := abstat.Welch(abstat.Summarize(arm.costs), abstat.Summarize(ctrl.costs), o.Confidence)
-			if err != nil {
-				return nil, err
-			}
-			d.Cost = &c
-		} else {
-			rep.Notes = append(rep.Notes, fmt.Sprintf("arm %s or the control has fewer than 2 outcomes: no Welch interval", a.Arm))
-		}
-		switch {
-		case o.Reps > 0 && (len(arm.byUnit) < arm.N || len(ctrl.byUnit) < ctrl.N):
-			// Units repeat: resample units, not decisions, and say how
-			// much the repetition widens the interval.
-			ua, uc := arm.unitClusters(), ctrl.unitClusters()
-			b, err := abstat.ClusterBootstrapMeanDiff(ua, uc, o.Reps, o.Confidence, rand.New(rand.NewPCG(o.Seed, 0xab)))
-			if err != nil {
-				return nil, err
-			}
-			de, err := abstat.DesignEffect(ua, uc, o.Reps, rand.New(rand.NewPCG(o.Seed, 0xde)))
-			if err != nil {
-				return nil, err
-			}
-			d.ScoreBoot, d.BootByUnit, d.DesignEffect = &b, true, de
-			rep.Notes = append(rep.Notes, fmt.Sprintf("arm %s vs %s: %d decisions come from %d units; the bootstrap interval resamples units, and its variance is %.2f× that of resampling decisions (design effect). The Welch, Newcombe and z figures treat decisions as independent: read them as too narrow when the design effect is well above 1",
-				a.Arm, rep.Control, arm.N+ctrl.N, len(arm.byUnit)+len(ctrl.byUnit), de))
-		case o.Reps > 0:
-			b, err := abstat.BootstrapMeanDiff(arm.scores, ctrl.scores, o.Reps, o.Confidence, rand.New(rand.NewPCG(o.Seed, 0xab)))
-			if err != nil {
-				return nil, err
-			}
-			d.ScoreBoot = &b
-		}
-		rep.Diffs = append(rep.Diffs, d)
+	if d.Success, err = abstat.NewcombeDiff(arm.Successes, arm.N, ctrl.Successes, ctrl.N, o.Confidence); err != nil {
+		return d, err
 	}
-
-	if alloc != nil {
-		s := &SRM{Allocation: alloc}
-		var weights []float64
-		for n := range alloc {
-			s.Arms = append(s.Arms, n)
-		}
-		slices.Sort(s.Arms)
-		for n := range byArm {
-			if _, ok := alloc[n]; !ok {
-				return nil, fmt.Errorf("arm %q appears in the traces but not in the allocation", n)
-			}
-		}
-		for _, n := range s.Arms {
-			s.Units = append(s.Units, len(units[n]))
-			weights = append(weights, alloc[n])
-		}
-		r, err := abstat.SRM(s.Units, weights)
+	if d.Z, err = abstat.TwoProportionZ(arm.Successes, arm.N, ctrl.Successes, ctrl.N); err != nil {
+		return d, err
+	}
+	d.Significant = d.Success.Lo > 0 || d.Success.Hi < 0
+	if arm.N >= 2 && ctrl.N >= 2 {
+		w, err := abstat.Welch(abstat.Summarize(arm.scores), abstat.Summarize(ctrl.scores), o.Confidence)
 		if err != nil {
-			return nil, err
+			return d, err
 		}
-		if math.IsInf(r.ChiSq, 1) {
-			// units in an arm of weight 0: a mismatch by definition; keep
-			// the JSON finite
-			r.ChiSq = math.MaxFloat64
-			rep.Notes = append(rep.Notes, "an arm with allocation weight 0 received units")
+		d.Score = &w
+		c, err := abstat.Welch(abstat.Summarize(arm.costs), abstat.Summarize(ctrl.costs), o.Confidence)
+		if err != nil {
+			return d, err
 		}
-		s.SRMResult = r
-		s.Mismatch = r.P < 0.001
-		rep.SRM = s
+		d.Cost = &c
 	} else {
-		rep.Notes = append(rep.Notes, "no allocation given (--allocation or --config): sample-ratio check skipped")
+		rep.Notes = append(rep.Notes, fmt.Sprintf("arm %s or the control has fewer than 2 outcomes: no Welch interval", arm.Arm))
 	}
+	switch {
+	case o.Reps > 0 && (len(arm.byUnit) < arm.N || len(ctrl.byUnit) < ctrl.N):
+		// Units repeat: resample units, not decisions, and say how much
+		// the repetition widens the interval.
+		ua, uc := arm.unitClusters(), ctrl.unitClusters()
+		b, err := abstat.ClusterBootstrapMeanDiff(ua, uc, o.Reps, o.Confidence, rand.New(rand.NewPCG(o.Seed, 0xab)))
+		if err != nil {
+			return d, err
+		}
+		de, err := abstat.DesignEffect(ua, uc, o.Reps, rand.New(rand.NewPCG(o.Seed, 0xde)))
+		if err != nil {
+			return d, err
+		}
+		d.ScoreBoot, d.BootByUnit, d.DesignEffect = &b, true, de
+		rep.Notes = append(rep.Notes, fmt.Sprintf("arm %s vs %s: %d decisions come from %d units; the bootstrap interval resamples units, and its variance is %.2f× that of resampling decisions (design effect). The Welch, Newcombe and z figures treat decisions as independent: read them as too narrow when the design effect is well above 1",
+			arm.Arm, ctrl.Arm, arm.N+ctrl.N, len(arm.byUnit)+len(ctrl.byUnit), de))
+	case o.Reps > 0:
+		b, err := abstat.BootstrapMeanDiff(arm.scores, ctrl.scores, o.Reps, o.Confidence, rand.New(rand.NewPCG(o.Seed, 0xab)))
+		if err != nil {
+			return d, err
+		}
+		d.ScoreBoot = &b
+	}
+	return d, nil
+}
 
-	if o.Power > 0 {
-		base := ctrl.Success.Est
-		p2 := base + o.MDE
-		if p2 >= 1 {
-			p2 = base - o.MDE
-		}
-		if base <= 0 || base >= 1 || p2 <= 0 {
-			return nil, fmt.Errorf("%w: power: the control's success rate %.4f leaves no room for a difference of %v", ErrBadOption, base, o.MDE)
-		}
-		n, err := abstat.SampleSizeTwoProportions(base, p2, 1-o.Confidence, o.Power)
-		if err != nil {
-			return nil, err
-		}
-		cur := ctrl.N
-		for _, a := range rep.Arms {
-			cur = min(cur, a.N)
-		}
-		ach, err := abstat.PowerTwoProportions(base, p2, 1-o.Confidence, cur)
-		if err != nil {
-			return nil, err
-		}
-		rep.Power = &Power{Target: o.Power, MDE: o.MDE, Alpha: 1 - o.Confidence, Baseline: base, NeededPer: n, CurrentMin: cur, Achieved: ach}
+// srm tests the units per arm against the allocation.
+func (rep *Report) srm(byArm map[string]*Arm, alloc map[string]float64) (*SRM, error) {
+	s := &SRM{Allocation: alloc}
+	for n := range alloc {
+		s.Arms = append(s.Arms, n)
 	}
-	return rep, nil
+	slices.Sort(s.Arms)
+	for n := range byArm {
+		if _, ok := alloc[n]; !ok {
+			return nil, fmt.Errorf("%w: arm %q appears in the traces but not in the allocation", ErrBadOption, n)
+		}
+	}
+	var weights []float64
+	for _, n := range s.Arms {
+		u := 0
+		if a := byArm[n]; a != nil {
+			u = len(a.units)
+		}
+		s.Units = append(s.Units, u)
+		weights = append(weights, alloc[n])
+	}
+	r, err := abstat.SRM(s.Units, weights)
+	if err != nil {
+		return nil, err
+	}
+	if math.IsInf(r.ChiSq, 1) {
+		// units in an arm of weight 0: a mismatch by definition; keep the
+		// JSON finite
+		r.ChiSq = math.MaxFloat64
+		rep.Notes = append(rep.Notes, "an arm with allocation weight 0 received units")
+	}
+	s.SRMResult = r
+	s.Mismatch = r.P < 0.001
+	return s, nil
+}
+
+// power runs the sample-size helper at the control's success rate.
+func (rep *Report) power(ctrl *Arm, o Options) (*Power, error) {
+	base := ctrl.Success.Est
+	p2 := base + o.MDE
+	if p2 >= 1 {
+		p2 = base - o.MDE
+	}
+	if base <= 0 || base >= 1 || p2 <= 0 {
+		return nil, fmt.Errorf("%w: power: the control's success rate %.4f leaves no room for a difference of %v", ErrBadOption, base, o.MDE)
+	}
+	alpha := 1 - o.Confidence
+	n, err := abstat.SampleSizeTwoProportions(base, p2, alpha, o.Power)
+	if err != nil {
+		return nil, err
+	}
+	cur := ctrl.N
+	for _, a := range rep.Arms {
+		cur = min(cur, a.N)
+	}
+	ach, err := abstat.PowerTwoProportions(base, p2, alpha, cur)
+	if err != nil {
+		return nil, err
+	}
+	return &Power{Target: o.Power, MDE: o.MDE, Alpha: alpha, Baseline: base, NeededPer: n, CurrentMin: cur, Achieved: ach}, nil
 }

@@ -350,3 +350,36 @@ func TestTraceFilesAsArguments(t *testing.T) {
 }
 
 func errorsAs(err error, target any) bool { return errors.As(err, target) }
+
+// TestABRejectsTokenOverflow: token counts whose sum overflows int64 used
+// to give a negative mean cost; now the outcomes file is rejected naming
+// the file, line and field.
+func TestABRejectsTokenOverflow(t *testing.T) {
+	t.Parallel()
+	dir := t.TempDir()
+	var spans, outs strings.Builder
+	for i, arm := range []string{"routed", "direct-only", "routed", "direct-only"} {
+		fmt.Fprintf(&spans, `{"resourceSpans":[{"scopeSpans":[{"spans":[{"traceId":"%032x","spanId":"%016x","name":"hopwise.decide","attributes":[`+
+			`{"key":"hopwise.query.key","value":{"stringValue":"pump-%d"}},{"key":"hopwise.route.mode","value":{"stringValue":"direct"}},`+
+			`{"key":"hopwise.ab.arm","value":{"stringValue":"%s"}}]}]}]}]}`+"\n", i+1, i+1, i, arm)
+		tokens := "300"
+		if i == 1 {
+			tokens = "9000000000000000000"
+		}
+		fmt.Fprintf(&outs, `{"key":"pump-%d","score":1,"input_tokens":%s,"output_tokens":%s}`+"\n", i, tokens, tokens)
+	}
+	traces, outcomes := filepath.Join(dir, "t.jsonl"), filepath.Join(dir, "o.jsonl")
+	if err := os.WriteFile(traces, []byte(spans.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(outcomes, []byte(outs.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	root := NewRoot()
+	root.SetOut(&bytes.Buffer{})
+	root.SetErr(&bytes.Buffer{})
+	root.SetArgs([]string{"ab", traces, "--outcomes", outcomes})
+	if err := root.Execute(); err == nil || !strings.Contains(err.Error(), "o.jsonl:2: field input_tokens: 9000000000000000000 above the limit") {
+		t.Errorf("err = %v", err)
+	}
+}
