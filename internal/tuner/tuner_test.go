@@ -76,7 +76,7 @@ func TestFormatTaus(t *testing.T) {
 		{[]float64{0.123456789, 0.123456781, 0.123456789}, []string{"0.12345679", "0.12345678", "0.12345679"}},
 		{[]float64{-0.0017744, 0.1}, []string{"-0.001774", "0.1"}},
 	} {
-		if got := FormatTaus(c.in);  !slices.Equal(got, c.want) {
+		if got := FormatTaus(c.in); !slices.Equal(got, c.want) {
 			t.Errorf("%v → %v, want %v", c.in, got, c.want)
 		}
 	}
