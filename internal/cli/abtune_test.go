@@ -428,7 +428,7 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 	root = NewRoot()
 	root.SetOut(&buf)
 	root.SetArgs([]string{"tune", "--traces", traces, "--reps", "50", "--out", filepath.Join(dir, "t2.json")})
-	if err := root.Execute(); err != nil && !isExit(err, tuneExitKeep) {
+	if err := root.Execute(); err != nil {
 		t.Fatal(err)
 	}
 	if s := buf.String(); !strings.Contains(s, "recommended: ") {
@@ -442,7 +442,7 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 		root = NewRoot()
 		root.SetOut(&buf)
 		root.SetArgs(args)
-		if err := root.Execute(); err != nil && !isExit(err, tuneExitKeep) {
+		if err := root.Execute(); err != nil {
 			t.Fatalf("%v: %v", args, err)
 		}
 		var v map[string]any
@@ -589,10 +589,4 @@ func tuneOpts(traces ...string) tuneOptions {
 // abOpts are the flag defaults of ab with the given trace files.
 func abOpts(traces ...string) abOptions {
 	return abOptions{traces: traces, Options: abreport.DefaultOptions()}
-}
-
-// isExit reports whether err is an ExitError with the code.
-func isExit(err error, code int) bool {
-	var ee *ExitError
-	return errors.As(err, &ee) && ee.Code == code
 }

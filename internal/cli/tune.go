@@ -33,12 +33,10 @@ type tuneOptions struct {
 	tuner.Options
 }
 
-// Exit statuses of `hopwise tune` besides 0 (a change recommended) and 1
-// (an error).
-const (
-	tuneExitNone = 2 // no candidate policy has a supported estimate
-	tuneExitKeep = 3 // no policy is shown better: keep the current setting
-)
+// tuneExitNone is the exit status of `hopwise tune` when no candidate
+// policy has a supported estimate (0: a recommendation, change or keep,
+// was made; 1: an error).
+const tuneExitNone = 2
 
 func newTuneCmd() *cobra.Command {
 	o := tuneOptions{Options: tuner.DefaultOptions()}
@@ -81,9 +79,10 @@ recommended τ and H (or unchanged when keeping). It holds τ, H, the
 exploration rate and every field that differs from the router defaults
 (arms, hash key, fitted constants of --base); defaults are left out so the
 router's own apply. --plot-dir DIR adds value-vs-τ and calibration PNGs.
-Exit status: 0 when a change is recommended, 3 when the current setting is
-kept (config still written), 2 when no policy can be supported (no config
-written), 1 on errors.`,
+The decision ("change" or "keep") is the first word after "recommended:"
+and the "decision" field of --json. Exit status: 0 with a recommendation
+(change or keep; config written), 2 when no policy can be supported (no
+config written), 1 on errors.`,
 		Example: `  hopwise tune --traces traces.jsonl --base deployed.json --out tuned.json
   hopwise tune --traces day1.jsonl --traces day2.jsonl --outcomes outcomes.jsonl --objective score-cost --cost-per-token 2e-6 --out tuned.json --plot-dir plots/
   hopwise tune day1.jsonl day2.jsonl --max-bridges 1,2 --out tuned.json`,
@@ -103,11 +102,8 @@ written), 1 on errors.`,
 			} else if err := writeTune(out, rep); err != nil {
 				return err
 			}
-			switch rep.Decision {
-			case tuner.None:
+			if rep.Decision == tuner.None {
 				return &ExitError{Code: tuneExitNone, Err: errors.New("tune: no candidate policy has a supported estimate; no config written")}
-			case tuner.Keep:
-				return &ExitError{Code: tuneExitKeep, Err: errors.New("tune: keep the current setting: " + rep.Why)}
 			}
 			return nil
 		},

@@ -26,6 +26,12 @@
 // drawn Poisson(1) times per replicate, common practice; Hanley &
 // MacGibbon 2006), the outcome model held fixed.
 //
+// With WithReference(τ0, H0) every result also carries Versus: its value
+// minus the reference policy's, per estimator, with intervals from the
+// paired differences over the same bootstrap replicates, so that the noise
+// the two policies share cancels. `hopwise tune` recommends leaving the
+// current setting only when that interval excludes zero.
+//
 // A policy is not estimated — its result says why — when some sample would
 // need a mode the logging policy took with probability below the floor (a
 // deterministic logger never supports the other mode), or when its
