@@ -620,9 +620,14 @@ func bootstrap(samples []Sample, direct, diffs [][nTerms]float64, cell []int, G,
 		if v == nil {
 			continue
 		}
+		own := []abstat.Interval{results[p].IPS.Value, results[p].SNIPS.Value, results[p].DR.Value}
+		base := []abstat.Interval{results[ref].IPS.Value, results[ref].SNIPS.Value, results[ref].DR.Value}
 		for e, iv := range []*abstat.Interval{&v.IPS, &v.SNIPS, &v.DR} {
 			if len(versus[p][e]) < cfg.reps/2 {
-				iv.Lo, iv.Hi = math.NaN(), math.NaN()
+				// Too few replicates usable for both policies at once:
+				// the unpaired difference of the two intervals, wider
+				// but still an interval.
+				iv.Lo, iv.Hi = own[e].Lo-base[e].Hi, own[e].Hi-base[e].Lo
 				continue
 			}
 			got, err := abstat.PercentileInterval(iv.Est, versus[p][e], cfg.conf)
