@@ -20,7 +20,7 @@ import (
 // current returns the configuration in production: o.Base, or the router
 // defaults with the exploration rate and the A/B arms read off the logged
 // decisions. The notes say what was read and what could not be.
-func current(decisions []otelx.DecisionRecord, o Options) (router.Config, []string, error) {
+func current(decisions []otelx.DecisionRecord, o Options) (router.Config, []string) {
 	eps, epsNote := loggedExploration(decisions, o.Arm)
 	var notes []string
 	if epsNote != "" {
@@ -30,7 +30,7 @@ func current(decisions []otelx.DecisionRecord, o Options) (router.Config, []stri
 		if eps >= 0 && math.Abs(eps-o.Base.Exploration) > 1e-9 {
 			notes = append(notes, fmt.Sprintf("the logged decisions explored at ε = %v but the base config says exploration %v; the written config keeps the base's", eps, o.Base.Exploration))
 		}
-		return *o.Base, notes, nil
+		return *o.Base, notes
 	}
 	c := router.DefaultConfig()
 	if eps > 0 {
@@ -38,14 +38,17 @@ func current(decisions []otelx.DecisionRecord, o Options) (router.Config, []stri
 		notes = append(notes, fmt.Sprintf("exploration ε = %v read off the logged propensities (no base config given)", eps))
 	}
 	if arms := loggedArms(decisions); arms != nil {
-		c.Arms = arms
-		notes = append(notes, fmt.Sprintf("A/B arms %s read off the logged decisions as unit shares rounded to 0.01 (no base config given): "+
-			"give the deployed config as base to keep the exact weights, their order, the hash key and the exploration salt", armList(arms)))
+		withArms := c
+		withArms.Arms = arms
+		if err := withArms.Validate(); err != nil {
+			notes = append(notes, fmt.Sprintf("the A/B arms of the logged decisions (%s) do not form a valid router config (%v); the written config has no arms: give the deployed config as base", armList(arms), err))
+		} else {
+			c = withArms
+			notes = append(notes, fmt.Sprintf("A/B arms %s read off the logged decisions as unit shares rounded to 0.01 (no base config given): "+
+				"give the deployed config as base to keep the exact weights, their order, the hash key and the exploration salt", armList(arms)))
+		}
 	}
-	if err := c.Validate(); err != nil {
-		return c, nil, fmt.Errorf("the configuration read off the logs is not valid (%w); give the deployed config as base", err)
-	}
-	return c, notes, nil
+	return c, notes
 }
 
 // loggedExploration returns the exploration rate ε of the routed policy's
@@ -79,13 +82,16 @@ func loggedExploration(decisions []otelx.DecisionRecord, arm string) (float64, s
 
 // loggedArms returns the arms of the logged decisions weighted by their
 // share of distinct unit keys (a decision without key counts as one
-// unit), rounded to 0.01 and at least 0.01, heaviest first; nil when no
-// decision carries an arm.
+// unit), rounded to 0.01 and at least 0.01, heaviest first; decisions
+// without an arm are left out. nil when no decision carries an arm.
 func loggedArms(decisions []otelx.DecisionRecord) []router.ArmWeight {
 	units := map[string]map[string]bool{}
 	anon := map[string]int{}
 	for i := range decisions {
 		d := &decisions[i]
+		if d.Arm == "" { // not in any arm: outside the allocation
+			continue
+		}
 		if units[d.Arm] == nil {
 			units[d.Arm] = map[string]bool{}
 		}
@@ -95,7 +101,7 @@ func loggedArms(decisions []otelx.DecisionRecord) []router.ArmWeight {
 			units[d.Arm][d.Key] = true
 		}
 	}
-	if len(units) == 0 || len(units) == 1 && units[""] != nil {
+	if len(units) == 0 {
 		return nil
 	}
 	total := 0

@@ -185,10 +185,7 @@ func Run(s *traceset.Set, o Options) (*Report, error) {
 	}
 	rep := &Report{Set: s, Objective: o.Objective, Estimator: o.Estimator, Confidence: o.Confidence,
 		Excluded: map[string]int{}, CostUnit: traceset.CostUnit(o.CostPerToken)}
-	base, notes, err := current(s.Log.Decisions, o)
-	if err != nil {
-		return nil, err
-	}
+	base, notes := current(s.Log.Decisions, o)
 	rep.Notes = append(rep.Notes, notes...)
 	samples, scores := rep.samples(o)
 	if len(samples) == 0 {

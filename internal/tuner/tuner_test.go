@@ -112,6 +112,12 @@ func TestLoggedSettings(t *testing.T) {
 	if arms := loggedArms(plain); arms != nil {
 		t.Errorf("arms without arms: %v", arms)
 	}
+	// An unknown arm name cannot be deployed: the arms are left out, and
+	// a note says so.
+	odd := append(slices.Clone(ds), otelx.DecisionRecord{Key: "fan-1", Arm: "blue"})
+	if c, notes := current(odd, DefaultOptions()); c.Arms != nil || !strings.Contains(strings.Join(notes, "\n"), "do not form a valid router config") || c.Exploration != 0.15 {
+		t.Errorf("unknown arm: config %+v, notes %q", c, notes)
+	}
 	ds[2].Propensity = 0.7 // a second rate
 	if eps, note := loggedExploration(ds, router.ArmRouted); eps != 0.15 || !strings.Contains(note, "2 exploration rates") {
 		t.Errorf("two rates: ε = %v, note %q", eps, note)
