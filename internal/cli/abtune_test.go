@@ -514,6 +514,8 @@ func TestABTuneFlagErrors(t *testing.T) {
 		{[]string{"tune", "--traces", "x", "--objective", "score-cost"}, "cost per token"},
 		{[]string{"tune", "--traces", "x", "--estimator", "mean"}, "estimator \"mean\""},
 		{[]string{"tune", "--traces", "x", "--max-bridges", "1.5"}, "--max-bridges: 1.5"},
+		{[]string{"tune", "--traces", "x", "--confidence", "1.5"}, "confidence 1.5"},
+		{[]string{"tune", "--traces", "x", "--floor", "0"}, "propensity floor 0"},
 		{[]string{"tune", "--traces", "/nonexistent/t.jsonl"}, "no such file"},
 	}
 	for _, c := range cases {

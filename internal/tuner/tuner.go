@@ -90,6 +90,14 @@ func (o Options) Validate() error {
 		return fmt.Errorf("%w: estimator %q: want dr, snips or ips", ErrBadOption, o.Estimator)
 	case o.Reps < 1:
 		return fmt.Errorf("%w: bootstrap replicates %d: tune reports intervals and needs at least 1 (%d by default)", ErrBadOption, o.Reps, ope.DefaultReps)
+	case !(o.Confidence > 0 && o.Confidence < 1):
+		return fmt.Errorf("%w: confidence %v: want a level in (0,1)", ErrBadOption, o.Confidence)
+	case !(o.Floor > 0 && o.Floor < 1):
+		return fmt.Errorf("%w: propensity floor %v: want a probability in (0,1)", ErrBadOption, o.Floor)
+	case !(o.MinESS >= 1):
+		return fmt.Errorf("%w: minimum effective sample size %v: want ≥ 1", ErrBadOption, o.MinESS)
+	case o.Folds < 1:
+		return fmt.Errorf("%w: cross-fitting folds %d: want ≥ 1", ErrBadOption, o.Folds)
 	case o.Taus == nil && o.TauPoints < 2:
 		return fmt.Errorf("%w: τ grid points %d: want ≥ 2", ErrBadOption, o.TauPoints)
 	}
