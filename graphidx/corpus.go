@@ -132,17 +132,17 @@ const (
 //
 // Blank lines, the CSV header and lexicon lines are not records.
 type ReadStats struct {
-	Lines   int64 // physical lines consumed
-	Records int64 // records examined
-	OK      int64 // records accepted
-	Empty   int64 // text paragraphs without an observation (not an error)
-	// Unvalued counts, for text, valued entities left out of a paragraph
-	// that names them only by forms without a value (see TextReader).
-	Unvalued int64
+	Lines    int64            // physical lines consumed
+	Records  int64            // records examined
+	OK       int64            // records accepted
+	Empty    int64            // text paragraphs without an observation (not an error)
 	Skipped  map[string]int64 // records rejected in lenient mode, by reason code
 	Contexts int64            // contexts returned by Next
 	// FirstBad holds the first LineError seen for each skipped reason.
 	FirstBad map[string]*LineError
+	// Unvalued counts, for text, valued entities left out of a paragraph
+	// that names them only by forms without a value (see TextReader).
+	Unvalued int64
 }
 
 // SkippedTotal is the number of rejected records over all reasons.
@@ -457,7 +457,7 @@ var ErrUnknownFormat = errors.New("graphidx: unknown corpus format")
 
 // ErrLexiconRequired is returned by OpenCorpus for text corpora without a
 // lexicon.
-var ErrLexiconRequired = errors.New("graphidx: a text corpus needs a lexicon (hopwise build --lexicon FILE.tsv; OpenCorpus's lexicon argument or WithLexicon)")
+var ErrLexiconRequired = errors.New("graphidx: a text corpus needs a lexicon: pass --lexicon FILE.tsv (lines: surface form<TAB>entity id[<TAB>value])")
 
 // OpenCorpus opens a corpus file and returns a reader for it and the closer
 // that releases the file and any temporary files of the reader. format is

@@ -65,7 +65,12 @@ type Lexicon struct {
 	valued  []bool   // entity → some form of it carries a value
 
 	firstSep bool // some form starts with a non-word token
-	stats    LexiconStats
+	// first is a bit filter of the keys of the forms' first tokens, bit
+	// key>>firstShift; firstKeys collects those keys while loading.
+	first      []uint64
+	firstShift uint
+	firstKeys  []uint64
+	stats      LexiconStats
 }
 
 // Table word flags.
@@ -315,6 +320,7 @@ func (l *Lexicon) add(folded, form, ent, val []byte, hasVal bool, keys []uint64,
 	if !words[0] {
 		l.firstSep = true
 	}
+	l.firstKeys = append(l.firstKeys, keys[0])
 	for k := 0; k < m-1; k++ {
 		// A separator followed by a word token needs no entry of its own:
 		// the walk steps over a miss there (see walk).
@@ -416,7 +422,19 @@ func (l *Lexicon) finish() {
 	if want := l.used*10/7 + 1; want < len(l.keys)*9/10 {
 		l.rehash(want)
 	}
-	l.forms = slices.Clip(slices.Clone(l.forms))
+	// The first-token filter: about 8 bits per distinct first token, between
+	// 2^16 and 2^23 bits (8 KiB to 1 MiB, so that it stays in cache).
+	slices.Sort(l.firstKeys)
+	distinct := len(slices.Compact(l.firstKeys))
+	logBits := min(max(bits.Len(uint(8*distinct)), 16), 23)
+	l.first = make([]uint64, 1<<logBits/64)
+	l.firstShift = uint(64 - logBits)
+	for _, k := range l.firstKeys[:distinct] {
+		b := k >> l.firstShift
+		l.first[b>>6] |= 1 << (b & 63)
+	}
+	l.firstKeys = nil
+	l.forms = slices.Clone(l.forms)
 	l.formOff = slices.Clone(l.formOff)
 	l.pent = slices.Clone(l.pent)
 	l.pval = slices.Clone(l.pval)
@@ -429,7 +447,7 @@ func (l *Lexicon) finish() {
 	s.Forms = len(l.pent)
 	s.Entities = l.ents.len()
 	s.Values = l.values.len()
-	mem := int64(8*cap(l.keys) + 4*cap(l.vals) + cap(l.forms) + 4*cap(l.formOff) + 4*cap(l.pent) + 4*cap(l.pval) +
+	mem := int64(8*cap(l.keys) + 8*cap(l.first) + 4*cap(l.vals) + cap(l.forms) + 4*cap(l.formOff) + 4*cap(l.pent) + 4*cap(l.pval) +
 		cap(l.disp) + 4*cap(l.dispOff) + cap(l.valued))
 	for _, ps := range l.over {
 		mem += 8 + 24 + 4*int64(cap(ps)) + 16 // key, slice header, elements, map overhead (estimate)

@@ -54,7 +54,7 @@ func (l *Lexicon) Link(text string) ([]Mention, error) {
 // does not allocate.
 func (l *Lexicon) AppendLinks(dst []Mention, text string) ([]Mention, error) {
 	if l == nil {
-		return dst, ErrLexiconRequired
+		return dst, fmt.Errorf("%w: Link on a nil *Lexicon", ErrLexiconRequired)
 	}
 	if len(text) > MaxLinkBytes {
 		return dst, fmt.Errorf("%w: %d bytes, limit %d", ErrTextTooLong, len(text), MaxLinkBytes)

@@ -85,30 +85,44 @@ func foldEqual(folded, s []byte) bool {
 	return j == len(folded)
 }
 
-// hashAcc hashes the folded bytes of one token, eight bytes at a time.
-type hashAcc struct {
-	h, w uint64
-	n    uint64
-}
+// Token hashing: the folded bytes of a token, eight at a time (h, the
+// running hash; w, the pending bytes; n, the byte count). Collisions only
+// cost work: a match is always verified byte by byte.
+func hashStep(h, w uint64) uint64 { return bits.RotateLeft64((h^w)*0x9E3779B97F4A7C15, 29) }
 
-func (a *hashAcc) add(c byte) {
-	a.w = a.w<<8 | uint64(c)
-	a.n++
-	if a.n&7 == 0 {
-		a.h = bits.RotateLeft64((a.h^a.w)*0x9E3779B97F4A7C15, 29)
-		a.w = 0
+func addByte(h, w, n uint64, c byte) (uint64, uint64, uint64) {
+	w = w<<8 | uint64(c)
+	n++
+	if n&7 == 0 {
+		h, w = hashStep(h, w), 0
 	}
+	return h, w, n
 }
 
-func (a *hashAcc) addRune(r rune) {
+func addRune(h, w, n uint64, r rune) (uint64, uint64, uint64) {
 	var b [utf8.UTFMax]byte
-	n := utf8.EncodeRune(b[:], r)
-	for _, c := range b[:n] {
-		a.add(c)
+	k := utf8.EncodeRune(b[:], r)
+	for _, c := range b[:k] {
+		h, w, n = addByte(h, w, n, c)
 	}
+	return h, w, n
 }
 
-func (a *hashAcc) sum() uint64 { return a.h ^ a.w*0xC2B2AE3D27D4EB4F ^ a.n<<56 }
+func tokSum(h, w, n uint64) uint64 { return h ^ w*0xC2B2AE3D27D4EB4F ^ n<<56 }
+
+// wordLower[c] is the lower-case form of ASCII word byte c, 0 for the other
+// ASCII bytes.
+var wordLower = func() (t [utf8.RuneSelf]byte) {
+	for c := range byte(utf8.RuneSelf) {
+		if wordASCII[c] {
+			t[c] = c
+			if 'A' <= c && c <= 'Z' {
+				t[c] = c + 'a' - 'A'
+			}
+		}
+	}
+	return t
+}()
 
 // chainKey extends the key of a token prefix by one token hash. mix is the
 // SplitMix64 finalizer (Steele, Lea and Flood, "Fast splittable pseudorandom
@@ -143,63 +157,64 @@ func (t *tokenizer) reset(text []byte, seed uint64, perRune bool) {
 
 // next consumes the token at t.pos (which must be < len(t.text)) and
 // returns its end, the hash of its folded bytes and whether it is a word
-// token. O(token length).
+// token. O(token length), one table load per ASCII byte.
 func (t *tokenizer) next() (int, uint64, bool) {
 	s, i := t.text, t.pos
-	a := hashAcc{h: t.seed}
+	h, w, n := t.seed, uint64(0), uint64(0)
 	// The first rune decides the kind of token.
-	c := s[i]
-	if c < utf8.RuneSelf {
-		if 'A' <= c && c <= 'Z' {
-			c += 'a' - 'A'
-		}
-		a.add(c)
+	if c := s[i]; c < utf8.RuneSelf {
+		lc := wordLower[c]
 		i++
-		if !wordASCII[c] || t.perRune {
+		if lc == 0 || t.perRune {
+			if 'A' <= c && c <= 'Z' {
+				c += 'a' - 'A'
+			}
 			t.pos = i
-			return i, a.sum(), wordASCII[c]
+			return i, tokSum(h, uint64(c), 1), lc != 0
 		}
+		w, n = uint64(lc), 1
 	} else {
-		r, n := utf8.DecodeRune(s[i:])
-		if r == utf8.RuneError && n == 1 {
-			a.add(c)
+		r, sz := utf8.DecodeRune(s[i:])
+		if r == utf8.RuneError && sz == 1 {
 			t.pos = i + 1
-			return i + 1, a.sum(), false
+			return i + 1, tokSum(h, uint64(c), 1), false
 		}
 		r = unicode.ToLower(r)
-		a.addRune(r)
-		i += n
-		if w := isWordRune(r); !w || t.perRune {
+		h, w, n = addRune(h, w, n, r)
+		i += sz
+		if word := isWordRune(r); !word || t.perRune {
 			t.pos = i
-			return i, a.sum(), w
+			return i, tokSum(h, w, n), word
 		}
 	}
 	// A word run: take word runes to its end.
 	for i < len(s) {
 		c := s[i]
 		if c < utf8.RuneSelf {
-			if !wordASCII[c] {
+			lc := wordLower[c]
+			if lc == 0 {
 				break
 			}
-			if 'A' <= c && c <= 'Z' {
-				c += 'a' - 'A'
+			w = w<<8 | uint64(lc)
+			n++
+			if n&7 == 0 {
+				h, w = hashStep(h, w), 0
 			}
-			a.add(c)
 			i++
 			continue
 		}
-		r, n := utf8.DecodeRune(s[i:])
-		if r == utf8.RuneError && n == 1 {
+		r, sz := utf8.DecodeRune(s[i:])
+		if r == utf8.RuneError && sz == 1 {
 			break
 		}
 		if r = unicode.ToLower(r); !isWordRune(r) {
 			break
 		}
-		a.addRune(r)
-		i += n
+		h, w, n = addRune(h, w, n, r)
+		i += sz
 	}
 	t.pos = i
-	return i, a.sum(), true
+	return i, tokSum(h, w, n), true
 }
 
 // textMatch is one accepted lexicon match: the byte span in the text and
@@ -219,34 +234,95 @@ const linkWindow = 4096
 // use.
 type linker struct {
 	tz    tokenizer
-	start int      // byte offset where window token 0 starts
-	ends  []int    // token j ends at ends[j]
-	hs    []uint64 // token hashes
-	words []bool   // word token?
+	start int     // byte offset where window token 0 starts
+	toks  []token // the window of tokens
 	found []textMatch
+	cand  []candidate
 	ents  []string
+}
+
+// token is one text token: where it ends, the hash of its folded bytes,
+// and whether it is a word token.
+type token struct {
+	end  int
+	h    uint64
+	word bool
+}
+
+// candidate is a walk position where the table holds a form: verified
+// only if no longer candidate of the walk verifies.
+type candidate struct {
+	j   int
+	key uint64
+	v   uint32
 }
 
 var linkerPool = sync.Pool{New: func() any { return new(linker) }}
 
 func (m *linker) fill(k int) bool {
-	for len(m.hs) < k {
-		if m.tz.pos >= len(m.tz.text) {
-			return false
-		}
-		end, h, w := m.tz.next()
-		m.ends = append(m.ends, end)
-		m.hs = append(m.hs, h)
-		m.words = append(m.words, w)
+	if len(m.toks) < k {
+		m.scan(k + 64)
 	}
-	return true
+	return len(m.toks) >= k
+}
+
+// scan appends tokens until there are want or the text ends. Pure ASCII
+// word runs and ASCII separators are cut here, inline; a token with other
+// bytes goes through tokenizer.next.
+func (m *linker) scan(want int) {
+	t := &m.tz
+	s, i, seed := t.text, t.pos, t.seed
+	for len(m.toks) < want && i < len(s) {
+		c := s[i]
+		if c < utf8.RuneSelf && !t.perRune {
+			lc := wordLower[c]
+			if lc == 0 {
+				i++
+				m.toks = append(m.toks, token{i, tokSum(seed, uint64(c), 1), false}) // not a letter: already folded
+				continue
+			}
+			j := i + 1
+			h, w, n := seed, uint64(lc), uint64(1)
+			for ; j < len(s); j++ {
+				lc = 0
+				if c := s[j]; c < utf8.RuneSelf {
+					lc = wordLower[c]
+				} else if r, _ := utf8.DecodeRune(s[j:]); isWordRune(unicode.ToLower(r)) {
+					break // a non-ASCII word rune: the slow path cuts this token
+				}
+				if lc == 0 {
+					m.toks = append(m.toks, token{j, tokSum(h, w, n), true})
+					i = j
+					goto next
+				}
+				w = w<<8 | uint64(lc)
+				n++
+				if n&7 == 0 {
+					h, w = hashStep(h, w), 0
+				}
+			}
+			if j == len(s) {
+				m.toks = append(m.toks, token{j, tokSum(h, w, n), true})
+				i = j
+				continue
+			}
+		}
+		t.pos = i
+		{
+			end, h, w := t.next()
+			m.toks = append(m.toks, token{end, h, w})
+			i = end
+		}
+	next:
+	}
+	t.pos = i
 }
 
 func (m *linker) tokStart(j int) int {
 	if j == 0 {
 		return m.start
 	}
-	return m.ends[j-1]
+	return m.toks[j-1].end
 }
 
 // run puts the matches of l in text into m.found, in text order.
@@ -267,50 +343,65 @@ func (m *linker) tokStart(j int) int {
 func (m *linker) run(l *Lexicon, text []byte, all bool) {
 	m.tz.reset(text, l.seed, l.perRune)
 	m.start = 0
-	m.ends, m.hs, m.words, m.found = m.ends[:0], m.hs[:0], m.words[:0], m.found[:0]
+	m.toks, m.found = m.toks[:0], m.found[:0]
 	skipSep := !l.firstSep && !l.perRune
 	for i := 0; m.fill(i + 1); {
 		if i >= linkWindow {
-			m.start = m.ends[i-1]
-			m.ends = m.ends[:copy(m.ends, m.ends[i:])]
-			m.hs = m.hs[:copy(m.hs, m.hs[i:])]
-			m.words = m.words[:copy(m.words, m.words[i:])]
+			m.start = m.toks[i-1].end
+			m.toks = m.toks[:copy(m.toks, m.toks[i:])]
 			i = 0
 		}
-		if skipSep && !m.words[i] {
+		if skipSep && !m.toks[i].word {
 			i++ // no form starts with a separator
 			continue
 		}
-		bestJ, best := -1, uint32(0)
-		key := l.seed
-		for j := i; m.fill(j + 1); j++ {
-			key = chainKey(key, m.hs[j])
+		key := chainKey(l.seed, m.toks[i].h)
+		if !l.mayStart(key) {
+			i++ // no form starts with this token
+			continue
+		}
+		m.cand = m.cand[:0]
+		for j := i; ; {
 			v, ok := l.lookup(key)
 			if ok && v&(patMask|overBit) != 0 {
-				if p, ok := l.verify(key, v, text[m.tokStart(i):m.ends[j]]); ok {
-					if all {
-						m.found = append(m.found, textMatch{m.tokStart(i), m.ends[j], p})
-					}
-					bestJ, best = j, p
-				}
+				m.cand = append(m.cand, candidate{j, key, v})
 			}
-			if ok && v&childBit != 0 {
-				continue
-			}
-			// A separator followed by a word token has no entry of its own
+			// Go on while the tokens so far are a proper prefix of a form;
+			// a separator followed by a word token has no entry of its own
 			// in the table (see Lexicon.add): step over it to the word.
-			if !l.perRune && !m.words[j] && m.fill(j+2) && m.words[j+1] {
+			more := ok && v&childBit != 0 || !l.perRune && !m.toks[j].word && m.fill(j+2) && m.toks[j+1].word
+			if !more || !m.fill(j+2) {
+				break
+			}
+			j++
+			key = chainKey(key, m.toks[j].h)
+		}
+		// The longest candidate whose bytes spell its form wins; verifying
+		// from the longest down costs one comparison but for a hash
+		// collision.
+		next := i + 1
+		for c := len(m.cand) - 1; c >= 0; c-- {
+			cd := m.cand[c]
+			p, ok := l.verify(cd.key, cd.v, text[m.tokStart(i):m.toks[cd.j].end])
+			if !ok {
 				continue
 			}
-			break
+			m.found = append(m.found, textMatch{m.tokStart(i), m.toks[cd.j].end, p})
+			if !all {
+				next = cd.j + 1
+				break
+			}
 		}
-		if bestJ >= 0 && !all {
-			m.found = append(m.found, textMatch{m.tokStart(i), m.ends[bestJ], best})
-			i = bestJ + 1
-		} else {
-			i++
-		}
+		i = next
 	}
+}
+
+// mayStart reports whether some form may start with the token whose
+// one-token key is key: a bit of the first-token filter (no false
+// negatives; false positives only cost a table probe).
+func (l *Lexicon) mayStart(key uint64) bool {
+	b := key >> l.firstShift
+	return l.first[b>>6]&(1<<(b&63)) != 0
 }
 
 // verify returns the pattern under key whose folded form equals the folded
