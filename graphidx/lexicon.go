@@ -58,11 +58,15 @@ type Lexicon struct {
 	pent    []uint32 // pattern → entity index
 	pval    []uint32 // pattern → value index + 1, 0 for a form without value
 
-	ents    strTable
-	values  strTable
-	disp    []byte   // display forms as written, one per entity, in entity order
-	dispOff []uint32 // entity e: disp[dispOff[e]:dispOff[e+1]]
-	valued  []bool   // entity → some form of it carries a value
+	ents   strTable
+	values strTable
+	// entDisp[e] is the display form of entity e: pattern p's folded form
+	// when it is written in lower case (no dispBit), else (dispBit|k)
+	// disp[dispOff[k]:dispOff[k+1]].
+	entDisp []uint32
+	disp    []byte
+	dispOff []uint32
+	valued  []bool // entity → some form of it carries a value
 
 	firstSep bool // some form starts with a non-word token
 	// first is a bit filter of the keys of the forms' first tokens, bit
@@ -77,6 +81,7 @@ type Lexicon struct {
 const (
 	childBit = 1 << 31 // the key is a proper prefix of some form
 	overBit  = 1 << 30 // more patterns with this key are in Lexicon.over
+	dispBit  = 1 << 31 // Lexicon.entDisp: an index of the disp arena
 	patMask  = 1<<30 - 1
 )
 
@@ -118,7 +123,12 @@ func (l *Lexicon) DisplayName(entity string) string {
 	if !ok {
 		return ""
 	}
-	return bstr(l.disp[l.dispOff[e]:l.dispOff[e+1]])
+	d := l.entDisp[e]
+	if d&dispBit == 0 {
+		return bstr(l.form(d))
+	}
+	k := d &^ dispBit
+	return bstr(l.disp[l.dispOff[k]:l.dispOff[k+1]])
 }
 
 // LoadLexicon reads a lexicon TSV file; see ParseLexicon.
@@ -290,12 +300,18 @@ func (l *Lexicon) add(folded, form, ent, val []byte, hasVal bool, keys []uint64,
 	if err != nil {
 		return le("entity", "lexicon-too-large", err.Error())
 	}
+	p := uint32(len(l.pent))
 	if isNew {
-		if len(l.disp)+len(form) > 1<<32-1 {
+		switch {
+		case bytes.Equal(form, folded):
+			l.entDisp = append(l.entDisp, p) // shares the folded form's bytes
+		case len(l.disp)+len(form) > 1<<32-1:
 			return le("surface", "lexicon-too-large", "4 GiB of display forms")
+		default:
+			l.entDisp = append(l.entDisp, dispBit|uint32(len(l.dispOff)-1))
+			l.disp = append(l.disp, form...)
+			l.dispOff = append(l.dispOff, uint32(len(l.disp)))
 		}
-		l.disp = append(l.disp, form...)
-		l.dispOff = append(l.dispOff, uint32(len(l.disp)))
 		l.valued = append(l.valued, false)
 	}
 	var v uint32
@@ -308,7 +324,6 @@ func (l *Lexicon) add(folded, form, ent, val []byte, hasVal bool, keys []uint64,
 		l.valued[e] = true
 		l.stats.ValuedForms++
 	}
-	p := uint32(len(l.pent))
 	l.forms = append(l.forms, folded...)
 	l.formOff = append(l.formOff, uint32(len(l.forms)))
 	l.pent = append(l.pent, e)
@@ -440,6 +455,7 @@ func (l *Lexicon) finish() {
 	l.pval = slices.Clone(l.pval)
 	l.disp = slices.Clone(l.disp)
 	l.dispOff = slices.Clone(l.dispOff)
+	l.entDisp = slices.Clone(l.entDisp)
 	l.valued = slices.Clone(l.valued)
 	l.ents.trim()
 	l.values.trim()
@@ -448,7 +464,7 @@ func (l *Lexicon) finish() {
 	s.Entities = l.ents.len()
 	s.Values = l.values.len()
 	mem := int64(8*cap(l.keys) + 8*cap(l.first) + 4*cap(l.vals) + cap(l.forms) + 4*cap(l.formOff) + 4*cap(l.pent) + 4*cap(l.pval) +
-		cap(l.disp) + 4*cap(l.dispOff) + cap(l.valued))
+		cap(l.disp) + 4*cap(l.dispOff) + 4*cap(l.entDisp) + cap(l.valued))
 	for _, ps := range l.over {
 		mem += 8 + 24 + 4*int64(cap(ps)) + 16 // key, slice header, elements, map overhead (estimate)
 	}
