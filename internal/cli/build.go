@@ -138,6 +138,11 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	if o.strict {
 		policy = graphidx.Strict
 	}
+	// The builder keeps its live data well under the budget; a soft limit of
+	// the budget stops the collector from letting garbage grow past it (also
+	// while the lexicon loads).
+	old := debug.SetMemoryLimit(budget)
+	defer debug.SetMemoryLimit(old)
 	if format == graphidx.FormatText && o.lexicon != "" {
 		if o.lex, err = loadBuildLexicon(o.lexicon, budget); err != nil {
 			return err
@@ -150,11 +155,6 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 		return classifyBuildErr(err)
 	}
 	defer closer.Close()
-
-	// The builder keeps its live data well under the budget; a soft limit of
-	// the budget stops the collector from letting garbage grow past it.
-	old := debug.SetMemoryLimit(budget)
-	defer debug.SetMemoryLimit(old)
 
 	var total int64 = -1
 	if fi, err := os.Stat(o.corpus); err == nil && !strings.HasSuffix(strings.ToLower(o.corpus), ".gz") {
