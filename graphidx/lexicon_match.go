@@ -272,13 +272,14 @@ func (m *linker) fill(k int) bool {
 func (m *linker) scan(want int) {
 	t := &m.tz
 	s, i, seed := t.text, t.pos, t.seed
-	for len(m.toks) < want && i < len(s) {
+	toks := m.toks // a local slice: appends need not reload m.toks
+	for len(toks) < want && i < len(s) {
 		c := s[i]
 		if c < utf8.RuneSelf && !t.perRune {
 			lc := wordLower[c]
 			if lc == 0 {
 				i++
-				m.toks = append(m.toks, token{i, tokSum(seed, uint64(c), 1), false}) // not a letter: already folded
+				toks = append(toks, token{i, tokSum(seed, uint64(c), 1), false}) // not a letter: already folded
 				continue
 			}
 			j := i + 1
@@ -291,7 +292,7 @@ func (m *linker) scan(want int) {
 					break // a non-ASCII word rune: the slow path cuts this token
 				}
 				if lc == 0 {
-					m.toks = append(m.toks, token{j, tokSum(h, w, n), true})
+					toks = append(toks, token{j, tokSum(h, w, n), true})
 					i = j
 					goto next
 				}
@@ -302,7 +303,7 @@ func (m *linker) scan(want int) {
 				}
 			}
 			if j == len(s) {
-				m.toks = append(m.toks, token{j, tokSum(h, w, n), true})
+				toks = append(toks, token{j, tokSum(h, w, n), true})
 				i = j
 				continue
 			}
@@ -310,12 +311,13 @@ func (m *linker) scan(want int) {
 		t.pos = i
 		{
 			end, h, w := t.next()
-			m.toks = append(m.toks, token{end, h, w})
+			toks = append(toks, token{end, h, w})
 			i = end
 		}
 	next:
 	}
 	t.pos = i
+	m.toks = toks
 }
 
 func (m *linker) tokStart(j int) int {
