@@ -231,8 +231,8 @@ func loadBuildLexicon(path string, budget int64) (*graphidx.Lexicon, error) {
 // printLexiconStats prints the lexicon line of the build summary: its size,
 // its colliding forms (never silent) and the valued mentions left out.
 func printLexiconStats(w io.Writer, st graphidx.LexiconStats, unvalued int64) {
-	fmt.Fprintf(w, "lexicon       %d forms (%d with a value), %d entities, %d colliding forms (first listed kept), %d duplicate lines, %d bytes of the memory budget\n",
-		st.Forms, st.ValuedForms, st.Entities, st.Collisions, st.Duplicates, st.MemBytes)
+	fmt.Fprintf(w, "lexicon       %d forms (%d with a value), %d entities, %d colliding forms (first listed kept), %d duplicate lines, longest form %d tokens, %d bytes of the memory budget\n",
+		st.Forms, st.ValuedForms, st.Entities, st.Collisions, st.Duplicates, st.MaxFormTokens, st.MemBytes)
 	if st.FirstCollision != nil {
 		fmt.Fprintf(w, "  first collision: %s\n", st.FirstCollision.Error())
 	}
