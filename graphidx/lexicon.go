@@ -38,7 +38,7 @@ const lexiconLineFormat = "want surface form<TAB>entity id or surface form<TAB>e
 // words; the folded forms, entity ids, values and display forms live in a few
 // byte arenas indexed by 32-bit offsets. Matching walks this implicit trie
 // from each token of the text (see Link). Memory is 12 bytes per table slot
-// (at most 1/0.7 slots per stored prefix), 12 bytes per form plus the folded
+// (about 1.43 slots per stored prefix), 12 bytes per form plus the folded
 // form's bytes, per entity its id and 8–13 bytes (and its display form when
 // that is not written in lower case), and a first-token filter of 8 KiB to
 // 1 MiB: measured 78 bytes per form for 1,000,000 generated greenhouse

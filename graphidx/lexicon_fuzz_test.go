@@ -243,6 +243,23 @@ func TestLinkMatchesBruteForce(t *testing.T) {
 	t.Logf("%d lexicons parsed, %d mentions compared", parsed, mentions)
 }
 
+// TestLinkLongTextMatchesBruteForce: texts of 30,000+ tokens slide the
+// linker's token window (linkWindow) many times, with forms straddling the
+// slides; the mentions still equal the reference matcher's.
+func TestLinkLongTextMatchesBruteForce(t *testing.T) {
+	t.Parallel()
+	rng := rand.New(rand.NewPCG(3, 5))
+	lex := "a b\tab\na b a\taba\nb\tb\tv1\nİ a\tia\n-\tdash\n"
+	pieces := []string{"a", "b", "İ", "i", " ", " ", "-", "x", "A"}
+	var b strings.Builder
+	for range 60000 {
+		b.WriteString(pieces[rng.IntN(len(pieces))])
+	}
+	if n := checkLink(t, lex, b.String()); n < 5000 {
+		t.Errorf("only %d mentions", n)
+	}
+}
+
 // TestLinkHugeInputs: the text limits hold without panics.
 func TestLinkHugeInputs(t *testing.T) {
 	t.Parallel()
