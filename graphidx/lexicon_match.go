@@ -155,6 +155,20 @@ func (t *tokenizer) reset(text []byte, seed uint64, perRune bool) {
 	*t = tokenizer{text: text, seed: seed, perRune: perRune}
 }
 
+// scanClass[c] is wordLower[c] for an ASCII byte c and nonASCII for the
+// others: one table load per byte in the tokenizer's ASCII loop.
+var scanClass = func() (t [256]byte) {
+	for c := range 256 {
+		t[c] = nonASCII
+		if c < utf8.RuneSelf {
+			t[c] = wordLower[c]
+		}
+	}
+	return t
+}()
+
+const nonASCII = 0xFF
+
 // next consumes the token at t.pos (which must be < len(t.text)) and
 // returns its end, the hash of its folded bytes and whether it is a word
 // token. O(token length), one table load per ASCII byte.
@@ -285,13 +299,13 @@ func (m *linker) scan(want int) {
 			j := i + 1
 			h, w, n := seed, uint64(lc), uint64(1)
 			for ; j < len(s); j++ {
-				lc = 0
-				if c := s[j]; c < utf8.RuneSelf {
-					lc = wordLower[c]
-				} else if r, _ := utf8.DecodeRune(s[j:]); isWordRune(unicode.ToLower(r)) {
-					break // a non-ASCII word rune: the slow path cuts this token
-				}
-				if lc == 0 {
+				lc = scanClass[s[j]]
+				if lc == 0 || lc == nonASCII {
+					if lc == nonASCII {
+						if r, _ := utf8.DecodeRune(s[j:]); isWordRune(unicode.ToLower(r)) {
+							break // a non-ASCII word rune: the slow path cuts this token
+						}
+					}
 					toks = append(toks, token{j, tokSum(h, w, n), true})
 					i = j
 					goto next
