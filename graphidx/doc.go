@@ -3,7 +3,12 @@
 // co-occurrence statistics of every observed pair, together with the corpus
 // readers and the builder that produce it.
 //
+// Text: a Lexicon (see docs/LINKING.md) maps surface forms to entities and
+// optionally to their values; the text reader observes what it finds in each
+// paragraph, and Lexicon.Link finds the mentions of a prompt.
+//
 // Concurrency: an opened *Index is read-only and safe for concurrent use by
-// any number of goroutines until Close. Corpus readers are not safe for
-// concurrent use; the builder parallelises internally.
+// any number of goroutines until Close, and so is a loaded *Lexicon. Corpus
+// readers are not safe for concurrent use; the builder parallelises
+// internally.
 package graphidx

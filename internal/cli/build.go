@@ -26,6 +26,7 @@ type buildOpts struct {
 	maxNeighbors, workers                            int
 	strict, quiet                                    bool
 	counts                                           buildCountsOpts
+	lex                                              *graphidx.Lexicon // loaded --lexicon of a text corpus
 }
 
 func newBuildCmd() *cobra.Command {
@@ -44,8 +45,9 @@ Corpus formats (--format, or detected from the extension; .gz is decompressed):
   csv    a long table with the header context,entity,value (or context,entity);
          rows of one context may be anywhere in the file              (.csv)
   text   plain text, one context per blank-line-separated paragraph, entities
-         found by a lexicon TSV (--lexicon, "surface form<TAB>entity id"),
-         case-insensitively on word boundaries                         (.txt .text .md)
+         found by a lexicon TSV (--lexicon, "surface form<TAB>entity id", or
+         "surface form<TAB>entity id<TAB>value" for a form stating a value),
+         case-insensitively on word boundaries, leftmost-longest       (.txt .text .md)
 
 Bad lines. By default a bad line is skipped and counted by reason (bad-json,
 missing-id, duplicate-entity, too-many-columns, ...); the counts and the first
@@ -59,8 +61,10 @@ groups rows and half counts. The index is then written in two streaming
 passes over the merged pairs with a quarter of the budget for its adjacency
 buffers (the rest is spooled to a temporary file next to --out, 16 bytes per
 edge of disk), so the write phase does not grow with the number of pairs.
-What does grow is the dictionary, about 300 bytes per entity. The Go runtime
-gets a soft memory limit equal to the budget.
+What does grow is the dictionary, about 300 bytes per entity. A text
+corpus's lexicon is loaded first; its memory (printed, about 90 bytes per
+form) is taken out of the budget, and a lexicon larger than the budget is an
+error. The Go runtime gets a soft memory limit equal to the budget.
 
 Pruning. --min-support drops pairs seen together in fewer contexts;
 --max-neighbors keeps each entity's N best neighbours by support (a pair stays
@@ -89,7 +93,7 @@ CSV header or lexicon, too many values), 1 for other errors.`,
 	f := cmd.Flags()
 	f.StringVar(&o.corpus, "corpus", "", "corpus file (required unless --from-counts)")
 	f.StringVar(&o.format, "format", "", "corpus format: jsonl, csv or text (default: from the extension)")
-	f.StringVar(&o.lexicon, "lexicon", "", "lexicon TSV for text corpora: surface form<TAB>entity id")
+	f.StringVar(&o.lexicon, "lexicon", "", "lexicon TSV for text corpora: surface form<TAB>entity id[<TAB>value]")
 	f.StringVar(&o.out, "out", "", "index file to write (required)")
 	f.Uint64Var(&o.minSupport, "min-support", 1, "drop pairs observed together in fewer than N contexts")
 	f.IntVar(&o.maxNeighbors, "max-neighbors", 0, "keep each entity's N best neighbours by support (0: no limit)")
@@ -134,17 +138,23 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	if o.strict {
 		policy = graphidx.Strict
 	}
-	r, closer, err := graphidx.OpenCorpus(o.corpus, format, o.lexicon,
+	// The builder keeps its live data well under the budget; a soft limit of
+	// the budget stops the collector from letting garbage grow past it (also
+	// while the lexicon loads).
+	old := debug.SetMemoryLimit(budget)
+	defer debug.SetMemoryLimit(old)
+	if format == graphidx.FormatText && o.lexicon != "" {
+		if o.lex, err = loadBuildLexicon(o.lexicon, budget); err != nil {
+			return err
+		}
+		buildBudget -= o.lex.Stats().MemBytes
+	}
+	r, closer, err := graphidx.OpenCorpus(o.corpus, format, o.lexicon, graphidx.WithLexicon(o.lex),
 		graphidx.WithPolicy(policy), graphidx.WithMemBudget(readBudget), graphidx.WithTempDir(o.tempDir))
 	if err != nil {
 		return classifyBuildErr(err)
 	}
 	defer closer.Close()
-
-	// The builder keeps its live data well under the budget; a soft limit of
-	// the budget stops the collector from letting garbage grow past it.
-	old := debug.SetMemoryLimit(budget)
-	defer debug.SetMemoryLimit(old)
 
 	var total int64 = -1
 	if fi, err := os.Stat(o.corpus); err == nil && !strings.HasSuffix(strings.ToLower(o.corpus), ".gz") {
@@ -165,6 +175,9 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	}
 	out := cmd.OutOrStdout()
 	fmt.Fprintf(out, "wrote %s\n", o.out)
+	if o.lex != nil {
+		printLexiconStats(out, o.lex.Stats(), sum.Read.Unvalued)
+	}
 	fmt.Fprint(out, sum.String())
 	if o.counts.countsOut != "" {
 		return buildCountsOut(cmd, o, format, policy, budget, sum.Pairs)
@@ -185,7 +198,7 @@ func buildCountsOut(cmd *cobra.Command, o buildOpts, format string, policy graph
 			cells, o.counts.shards)
 	}
 	open := func() (graphidx.ContextReader, io.Closer, error) {
-		return graphidx.OpenCorpus(o.corpus, format, o.lexicon, graphidx.WithPolicy(policy), graphidx.WithTempDir(o.tempDir))
+		return graphidx.OpenCorpus(o.corpus, format, o.lexicon, graphidx.WithLexicon(o.lex), graphidx.WithPolicy(policy), graphidx.WithTempDir(o.tempDir))
 	}
 	var progress func(int)
 	if passes > 1 && !o.quiet {
@@ -199,6 +212,33 @@ func buildCountsOut(cmd *cobra.Command, o buildOpts, format string, policy graph
 	}
 	fmt.Fprintf(cmd.OutOrStdout(), "counts        %d bytes in %d shards under %s (%d pass(es) over the corpus)\n", n, o.counts.shards, o.counts.countsOut, passes)
 	return nil
+}
+
+// loadBuildLexicon loads the lexicon of a text corpus and checks that its
+// memory leaves room in the budget (the builder gets what is left).
+func loadBuildLexicon(path string, budget int64) (*graphidx.Lexicon, error) {
+	lex, err := graphidx.LoadLexicon(path)
+	if err != nil {
+		return nil, classifyBuildErr(err)
+	}
+	if st := lex.Stats(); st.MemBytes >= budget {
+		return nil, &ExitError{Code: 2, Err: fmt.Errorf("lexicon %s holds %d bytes of memory (%d forms), not less than --mem-budget %d bytes: raise --mem-budget or shrink the lexicon",
+			path, st.MemBytes, st.Forms, budget)}
+	}
+	return lex, nil
+}
+
+// printLexiconStats prints the lexicon line of the build summary: its size,
+// its colliding forms (never silent) and the valued mentions left out.
+func printLexiconStats(w io.Writer, st graphidx.LexiconStats, unvalued int64) {
+	fmt.Fprintf(w, "lexicon       %d forms (%d with a value), %d entities, %d colliding forms (first listed kept), %d duplicate lines, longest form %d tokens, %d bytes of the memory budget\n",
+		st.Forms, st.ValuedForms, st.Entities, st.Collisions, st.Duplicates, st.MaxFormTokens, st.MemBytes)
+	if st.FirstCollision != nil {
+		fmt.Fprintf(w, "  first collision: %s\n", st.FirstCollision.Error())
+	}
+	if unvalued > 0 {
+		fmt.Fprintf(w, "  %d times a valued entity was named without a value and left out of that paragraph\n", unvalued)
+	}
 }
 
 // classifyBuildErr maps input errors to exit status 2.
