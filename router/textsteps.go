@@ -82,7 +82,7 @@ func (r *Router) ChainDists(ctx context.Context, q Query, d Decision) ([]BridgeD
 		}
 		ids[i] = id
 	}
-	model := st.model
+	model := st.modelFor(h)
 	ws := scorer.NewWorkspace()
 	out := make([]BridgeDist, len(ids))
 	for k, id := range ids {
@@ -95,6 +95,23 @@ func (r *Router) ChainDists(ctx context.Context, q Query, d Decision) ([]BridgeD
 	return out, nil
 }
 
-// ModelName is the name of the error model the router scores with
-// ("bayes" or "support" for the built-in models).
-func (r *Router) ModelName() string { return r.cfg.Load().model.Name() }
+// ModelName is the name of the error model that scores decisions on the
+// current index ("bayes" or "support" for the built-in models; without
+// WithModel, "support" exactly when the index is presence-only). "" after
+// Close.
+func (r *Router) ModelName() string {
+	h := r.cur.Load()
+	if h == nil {
+		return ""
+	}
+	return r.cfg.Load().modelFor(h).Name()
+}
+
+// PresenceOnly reports whether the current index records presence only
+// (scorer.PresenceOnly): its decisions have no distribution to report, and
+// their error figures are the support proxy unless a model was set with
+// WithModel. False after Close.
+func (r *Router) PresenceOnly() bool {
+	h := r.cur.Load()
+	return h != nil && h.presence
+}
