@@ -19,8 +19,8 @@ func presenceGraph(valued bool) *memGraph {
 	if valued {
 		b.entity("zone-1/humidity", "high", "low")
 	}
-	b.pair(vent, pump, 30)
-	b.pair(pump, bed, 50)
+	b.pair(vent, pump, 300)
+	b.pair(pump, bed, 400)
 	b.pair(vent, bed, 2)
 	return b.build()
 }
@@ -74,7 +74,7 @@ func TestPresenceOnlyIndexSelectsSupportModel(t *testing.T) {
 			if d.Chain == nil || len(d.Chain.Bridges) != 1 || d.Chain.Bridges[0] != "pump-2" {
 				t.Fatalf("chain %+v, want via pump-2", d.Chain)
 			}
-			wantChain := scorer.DefaultV0/(30+scorer.DefaultN0) + scorer.DefaultV0/(50+scorer.DefaultN0) + scorer.DefaultSupportBeta
+			wantChain := scorer.DefaultV0/(300+scorer.DefaultN0) + scorer.DefaultV0/(400+scorer.DefaultN0) + scorer.DefaultSupportBeta
 			if math.Abs(d.Chain.Err-wantChain) > 1e-12 {
 				t.Errorf("chain error %g, want %g", d.Chain.Err, wantChain)
 			}
