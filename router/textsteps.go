@@ -115,3 +115,24 @@ func (r *Router) PresenceOnly() bool {
 	h := r.cur.Load()
 	return h != nil && h.presence
 }
+
+// EntityValues returns a copy of the value labels the current index knows
+// for entity (ascending byte order), or ErrUnknownEntity, or ErrClosed.
+// For error messages and query forms. O(K + Σ len(labels)).
+func (r *Router) EntityValues(entity string) ([]string, error) {
+	h := r.cur.Load()
+	if h == nil {
+		return nil, ErrClosed
+	}
+	for !h.tryAcquire() {
+		if h = r.cur.Load(); h == nil {
+			return nil, ErrClosed
+		}
+	}
+	defer h.release()
+	id, ok := h.g.Lookup(entity)
+	if !ok {
+		return nil, fmt.Errorf("%w: %q", ErrUnknownEntity, entity)
+	}
+	return cloneLabels(h.g.Values(id)), nil
+}

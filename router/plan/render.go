@@ -19,7 +19,7 @@ var ErrTemplate = errors.New("plan: template")
 const DefaultChainTemplate = `Work this out in steps before answering.
 {{if .HasValue}}Known: {{.FromName}} is {{.Value}}.{{else}}Known: {{.FromName}} is involved.{{end}}
 {{range $i, $s := .Steps}}Step {{inc $i}}: settle what {{$s.Name}} is doing{{if $s.HasValue}} (the records lean to "{{$s.Value}}", {{percent $s.Prob}}){{end}}.
-{{end}}Finally, from those steps, say what {{.ToName}} is likely to be. Put the answer after the steps.
+{{end}}Finally, from those steps, say {{if .Answer.HasValue}}what {{.ToName}} is likely to be{{else}}how {{.ToName}} is affected{{end}}. Put the answer after the steps.
 `
 
 // DefaultDirectTemplate is the direct template NewRenderer uses unless
