@@ -124,9 +124,11 @@ func WithTextKey(key string) TextOption {
 // (graphidx.ErrTextTooLong, graphidx.ErrInvalidText), then those of
 // DecideMentions.
 //
-// Cost: Link (O(len(text)) for the automaton plus the mentions), forming
-// (O(E·T) pair look-ups for E evidence and T target entities, plus a sort),
-// then one Decide per query.
+// Cost: Link (O(len(text)) plus the mentions), forming (O(n) for n
+// mentions; with more than one candidate query also O(E+T) entity and
+// O(E·T) pair look-ups for E evidence and T target entities, and a sort),
+// then one Decide per query. BenchmarkDecideTextOverhead measures it
+// against an uncached Decide.
 func (r *Router) DecideText(ctx context.Context, lex *graphidx.Lexicon, text string, opts ...TextOption) (TextDecision, error) {
 	if lex == nil {
 		return TextDecision{}, badOpt("DecideText", "nil lexicon")
@@ -173,7 +175,10 @@ func (r *Router) DecideMentions(ctx context.Context, ms []graphidx.Mention, opts
 		qs[i].Key = cfg.key
 		d, err := r.Decide(ctx, qs[i].Query)
 		if err != nil {
-			return td, fmt.Errorf("router: query %d (%s = %s → %s): %w", i+1, qs[i].From, qs[i].Value, qs[i].To, err)
+			return td, fmt.Errorf("router: query %d (%s = %s → %s): %w", i+1, qs[i].From, qs[i].Value, qs[i].To, r.explainTextErr(qs[i], err))
+		}
+		if len(qs) == 1 { // not looked up by formQueries
+			qs[i].Support = d.Direct.Support
 		}
 		td.Decisions = append(td.Decisions, d)
 	}
@@ -222,15 +227,16 @@ func SplitMentions(ms []graphidx.Mention, presenceOnly bool) (evidence, targets 
 	return evidence, targets, nil
 }
 
-// smallSet is the size up to which mentionSet scans a slice (no hashing,
-// one allocation) before it switches to a map.
+// smallSet is the size up to which mentionSet scans an array (no hashing,
+// no allocation) before it switches to a map.
 const smallSet = 16
 
-// mentionSet is a set of (entity, value) keys: a slice while small, a map
-// beyond smallSet entries.
+// mentionSet is a set of (entity, value) keys: an array while small (no
+// allocation), a map beyond smallSet entries.
 type mentionSet struct {
-	list [][2]string
-	m    map[[2]string]struct{}
+	arr [smallSet][2]string
+	n   int
+	m   map[[2]string]struct{}
 }
 
 func (s *mentionSet) has(entity, value string) bool {
@@ -239,7 +245,7 @@ func (s *mentionSet) has(entity, value string) bool {
 		_, ok := s.m[k]
 		return ok
 	}
-	for _, x := range s.list {
+	for _, x := range s.arr[:s.n] {
 		if x == k {
 			return true
 		}
@@ -256,15 +262,15 @@ func (s *mentionSet) add(entity, value string) bool {
 	switch {
 	case s.m != nil:
 		s.m[k] = struct{}{}
-	case len(s.list) < smallSet:
-		s.list = append(s.list, k)
+	case s.n < smallSet:
+		s.arr[s.n] = k
+		s.n++
 	default:
 		s.m = make(map[[2]string]struct{}, 2*smallSet)
-		for _, x := range s.list {
+		for _, x := range s.arr[:s.n] {
 			s.m[x] = struct{}{}
 		}
 		s.m[k] = struct{}{}
-		s.list = nil
 	}
 	return true
 }
@@ -273,82 +279,67 @@ func (s *mentionSet) len() int {
 	if s.m != nil {
 		return len(s.m)
 	}
-	return len(s.list)
+	return s.n
 }
 
-// formQueries applies the rules on the current index: split, validate
-// (with the error fallback), pair and order. It reports whether the index
-// is presence-only.
+// formQueries applies the rules on the current index: split, pair and,
+// with more than one pair, order by pair support. It reports whether the
+// index is presence-only. A single pair needs no order, so it costs no
+// index look-up here: its support is the decision's Direct.Support, and
+// unknown entities and values surface as Decide's errors (see
+// explainTextErr).
 func (r *Router) formQueries(ms []graphidx.Mention) ([]TextQuery, bool, error) {
-	st := r.cfg.Load()
 	h := r.cur.Load()
 	if h == nil {
 		return nil, false, ErrClosed
 	}
+	presence := h.presence
+	ev, tg, err := SplitMentions(ms, presence)
+	if err != nil {
+		return nil, presence, err
+	}
+	if n := max(distinctEntities(ev), len(tg)); n > MaxTextEntities {
+		return nil, presence, fmt.Errorf("%w: %d distinct evidence or target entities, limit %d", ErrTooManyMentions, n, MaxTextEntities)
+	}
+	qs := make([]TextQuery, 0, len(ev)*len(tg))
+	for _, e := range ev {
+		v := e.Value
+		if presence {
+			v = graphidx.PresentValue
+		}
+		for _, t := range tg {
+			qs = append(qs, TextQuery{Query: Query{From: e.Entity, Value: v, To: t.Entity}, Evidence: e, Target: t})
+		}
+	}
+	if len(qs) < 2 {
+		return qs, presence, nil
+	}
 	for !h.tryAcquire() {
 		if h = r.cur.Load(); h == nil {
-			return nil, false, ErrClosed
+			return nil, presence, ErrClosed
 		}
 	}
 	defer h.release()
 	g := h.g
-	ev, tg, err := SplitMentions(ms, h.presence)
-	if err != nil {
-		return nil, h.presence, err
-	}
-	if n := max(distinctEntities(ev), len(tg)); n > MaxTextEntities {
-		return nil, h.presence, fmt.Errorf("%w: %d distinct evidence or target entities, limit %d", ErrTooManyMentions, n, MaxTextEntities)
-	}
-	strict := st.fallback == FallbackError
 	type end struct {
 		id graphidx.EntityID
 		ok bool
 	}
-	resolve := func(m graphidx.Mention) (end, error) {
-		id, ok := g.Lookup(m.Entity)
-		if !ok && strict {
-			return end{}, fmt.Errorf("%w: %q (mentioned as %q at bytes %d–%d)", ErrUnknownEntity, m.Entity, m.Surface, m.Start, m.End)
+	ids := make(map[string]end, len(ev)+len(tg))
+	resolve := func(name string) end {
+		e, seen := ids[name]
+		if !seen {
+			e.id, e.ok = g.Lookup(name)
+			ids[name] = e
 		}
-		return end{id, ok}, nil
+		return e
 	}
-	evEnds := make([]end, len(ev))
-	evValues := make([]string, len(ev))
-	for i, m := range ev {
-		e, err := resolve(m)
-		if err != nil {
-			return nil, h.presence, err
-		}
-		evEnds[i] = e
-		evValues[i] = m.Value
-		if h.presence {
-			evValues[i] = graphidx.PresentValue
-		}
-		if e.ok && strict {
-			if _, ok := g.ValueIndex(e.id, evValues[i]); !ok {
-				return nil, h.presence, fmt.Errorf("%w: %q for entity %q (mentioned as %q at bytes %d–%d); the index knows %s",
-					ErrUnknownValue, evValues[i], m.Entity, m.Surface, m.Start, m.End, quoteList(g.Values(e.id)))
+	for i := range qs {
+		a, b := resolve(qs[i].From), resolve(qs[i].To)
+		if a.ok && b.ok {
+			if ps, ok := g.Pair(a.id, b.id); ok {
+				qs[i].Support = ps.Support()
 			}
-		}
-	}
-	tgEnds := make([]end, len(tg))
-	for i, m := range tg {
-		if tgEnds[i], err = resolve(m); err != nil {
-			return nil, h.presence, err
-		}
-	}
-	qs := make([]TextQuery, 0, len(ev)*len(tg))
-	for i, e := range ev {
-		for j, t := range tg {
-			if e.Entity == t.Entity {
-				continue // cannot happen after SplitMentions; kept as a guard
-			}
-			q := TextQuery{Query: Query{From: e.Entity, Value: evValues[i], To: t.Entity}, Evidence: e, Target: t}
-			if evEnds[i].ok && tgEnds[j].ok {
-				if ps, ok := g.Pair(evEnds[i].id, tgEnds[j].id); ok {
-					q.Support = ps.Support()
-				}
-			}
-			qs = append(qs, q)
 		}
 	}
 	slices.SortStableFunc(qs, func(a, b TextQuery) int {
@@ -363,7 +354,30 @@ func (r *Router) formQueries(ms []graphidx.Mention) ([]TextQuery, bool, error) {
 		}
 		return a.Target.Start - b.Target.Start
 	})
-	return qs, h.presence, nil
+	return qs, presence, nil
+}
+
+// explainTextErr adds to a Decide error of a text query the mention behind
+// it and, for an unknown value, the values the index knows for the entity.
+func (r *Router) explainTextErr(q TextQuery, err error) error {
+	at := func(m graphidx.Mention) string {
+		return fmt.Sprintf("mentioned as %q at bytes %d–%d", m.Surface, m.Start, m.End)
+	}
+	switch {
+	case errors.Is(err, ErrUnknownValue):
+		known := "no values"
+		if vs, verr := r.EntityValues(q.From); verr == nil {
+			known = quoteList(vs)
+		}
+		return fmt.Errorf("%w (%s); the index knows %s", err, at(q.Evidence), known)
+	case errors.Is(err, ErrUnknownEntity):
+		m := q.Target
+		if _, verr := r.EntityValues(q.From); errors.Is(verr, ErrUnknownEntity) {
+			m = q.Evidence
+		}
+		return fmt.Errorf("%w (%s)", err, at(m))
+	}
+	return err
 }
 
 func distinctEntities(ms []graphidx.Mention) int {
