@@ -64,7 +64,7 @@ func TestRouteTextPresenceOnly(t *testing.T) {
 		`"north vent" → vent-north`, `"bed four" → bed-4`, "rule       presence-only index",
 		"queries    2 decided, least pair support first", "(pair support 2)", "decision   chain via pump-2",
 		"no distribution: bed-4 records presence only", "error proxy", "not an error of any probability",
-		"plan       chain template", "Step 1: settle what pump two is doing.",
+		"plan       chain template", "Step 1: work out the state of pump two.",
 	} {
 		if !strings.Contains(out, want) {
 			t.Errorf("output lacks %q:\n%s", want, out)

@@ -50,7 +50,7 @@ func ExampleRenderer_Render_chain() {
 	// Output:
 	// Work this out in steps before answering.
 	// Known: the moisture probe in bed 11 is reads-wet.
-	// Step 1: settle what the soil moisture of bed 10 is doing (the records lean to "damp", 81%).
+	// Step 1: work out the state of the soil moisture of bed 10 (the records lean to "damp", 81%).
 	// Finally, from those steps, say what leaf wilt in bed 10 is likely to be. Put the answer after the steps.
 }
 

@@ -159,7 +159,7 @@ func TestRendererTemplates(t *testing.T) {
 		want     string // substring of the output
 		wantExec bool   // Render fails
 	}{
-		{name: "default chain", p: chain, want: `Step 1: settle what c is doing (the records lean to "hi", 60%).`},
+		{name: "default chain", p: chain, want: `Step 1: work out the state of c (the records lean to "hi", 60%).`},
 		{name: "default direct", p: direct, want: "Answer directly (a is x; the question is about b)."},
 		{name: "chain without steps renders direct", p: func() plan.Plan { p := chain; p.Steps = nil; return p }(), want: "Answer directly"},
 		{name: "own chain", opts: []plan.RenderOption{plan.WithChainTemplate("{{range .Steps}}[{{.Name}}={{.Value}}]{{end}} {{fixed .Figure}}")},

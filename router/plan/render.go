@@ -18,7 +18,7 @@ var ErrTemplate = errors.New("plan: template")
 // answer.
 const DefaultChainTemplate = `Work this out in steps before answering.
 {{if .HasValue}}Known: {{.FromName}} is {{.Value}}.{{else}}Known: {{.FromName}} is involved.{{end}}
-{{range $i, $s := .Steps}}Step {{inc $i}}: settle what {{$s.Name}} is doing{{if $s.HasValue}} (the records lean to "{{$s.Value}}", {{percent $s.Prob}}){{end}}.
+{{range $i, $s := .Steps}}Step {{inc $i}}: work out the state of {{$s.Name}}{{if $s.HasValue}} (the records lean to "{{$s.Value}}", {{percent $s.Prob}}){{end}}.
 {{end}}Finally, from those steps, say {{if .Answer.HasValue}}what {{.ToName}} is likely to be{{else}}how {{.ToName}} is affected{{end}}. Put the answer after the steps.
 `
 
