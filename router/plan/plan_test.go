@@ -160,7 +160,7 @@ func TestRendererTemplates(t *testing.T) {
 		wantExec bool   // Render fails
 	}{
 		{name: "default chain", p: chain, want: `Step 1: work out the state of c (the records lean to "hi", 60%).`},
-		{name: "default direct", p: direct, want: "Answer directly (a is x; the question is about b)."},
+		{name: "default direct", p: direct, want: "Answer directly (known: a: x; asked: b)."},
 		{name: "chain without steps renders direct", p: func() plan.Plan { p := chain; p.Steps = nil; return p }(), want: "Answer directly"},
 		{name: "own chain", opts: []plan.RenderOption{plan.WithChainTemplate("{{range .Steps}}[{{.Name}}={{.Value}}]{{end}} {{fixed .Figure}}")},
 			p: chain, want: "[c=hi] 0.01"},
