@@ -3,9 +3,11 @@ package plan_test
 import (
 	"context"
 	"errors"
+	"math"
 	"strings"
 	"testing"
 
+	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/router"
 	"github.com/hopwise/hopwise/router/plan"
 )
@@ -98,6 +100,14 @@ func TestFromDists(t *testing.T) {
 			check: func(t *testing.T, p plan.Plan) {
 				if len(p.Steps) != 0 || p.Support != 77 || p.Answer.HasValue {
 					t.Errorf("direct plan %+v", p)
+				}
+			}},
+		{name: "nil lexicon namer, non-finite distribution", q: q, d: chainDecision("pump-2"), measure: router.MeasureSqErrorSum,
+			namer: (*graphidx.Lexicon)(nil),
+			dists: []router.BridgeDist{{Entity: "pump-2", Values: []string{"off", "on"}, Dist: []float64{math.NaN(), 0.5}}},
+			check: func(t *testing.T, p plan.Plan) {
+				if p.Steps[0].HasValue || p.Steps[0].Name != "pump-2" || p.FromName != "vent-a" {
+					t.Errorf("steps %+v from %q", p.Steps, p.FromName)
 				}
 			}},
 		{name: "count mismatch", q: q, d: chainDecision("zone-1/hum"), dists: two, wantErr: plan.ErrMismatch},
