@@ -314,10 +314,8 @@ func (r *Router) formQueries(ms []graphidx.Mention) ([]TextQuery, bool, error) {
 	if len(qs) < 2 {
 		return qs, presence, nil
 	}
-	for !h.tryAcquire() {
-		if h = r.cur.Load(); h == nil {
-			return nil, presence, ErrClosed
-		}
+	if h, err = r.acquire(); err != nil {
+		return nil, presence, err
 	}
 	defer h.release()
 	g := h.g

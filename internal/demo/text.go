@@ -13,7 +13,6 @@ import (
 	"github.com/hopwise/hopwise/internal/world"
 	"github.com/hopwise/hopwise/router"
 	"github.com/hopwise/hopwise/router/plan"
-	"github.com/hopwise/hopwise/scorer"
 )
 
 // File names of the text stage in Config.Dir.
@@ -111,21 +110,11 @@ func textPass(ctx context.Context, cfg Config, w *world.World, rep *Report) erro
 	if err != nil {
 		return fmt.Errorf("demo: %w", err)
 	}
-	idx, err := graphidx.Open(rep.Files.Index)
+	r, err := openRouter(cfg, rep)
 	if err != nil {
-		return fmt.Errorf("demo: %w", err)
+		return err
 	}
-	model, err := scorer.NewBayes(scorer.WithBeta(rep.Eval.Beta))
-	if err != nil {
-		idx.Close()
-		return fmt.Errorf("demo: %w", err)
-	}
-	r, err := router.New(idx, append([]router.Option{router.WithModel(model)}, cfg.RouterOptions...)...)
-	if err != nil {
-		idx.Close()
-		return fmt.Errorf("demo: %w", err)
-	}
-	defer r.Close() // closes idx
+	defer r.Close() // closes the index
 	rend, err := plan.NewRenderer()
 	if err != nil {
 		return fmt.Errorf("demo: %w", err)
