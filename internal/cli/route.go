@@ -28,6 +28,8 @@ type routeOptions struct {
 	key              string
 	queries          string
 	text, lexicon    string
+	chainTemplate    string
+	directTemplate   string
 	json             bool
 	workers          int
 	timeout          time.Duration
@@ -112,6 +114,8 @@ fatal error (index, config, flags, I/O).`,
 	f.StringVar(&o.queries, "queries", "", "JSONL file of queries, - for stdin (batch)")
 	f.StringVar(&o.text, "text", "", "prompt text to link, form queries from and decide (needs --lexicon)")
 	f.StringVar(&o.lexicon, "lexicon", "", "lexicon TSV for --text and for text lines of --queries")
+	f.StringVar(&o.chainTemplate, "chain-template", "", "text/template file replacing the default chain plan (fields: docs/PLANS.md)")
+	f.StringVar(&o.directTemplate, "direct-template", "", "text/template file replacing the default direct plan")
 	f.BoolVar(&o.json, "json", false, "single query: print the batch JSON object")
 	f.IntVar(&o.workers, "workers", runtime.GOMAXPROCS(0), "batch: goroutines deciding in parallel")
 	f.DurationVar(&o.timeout, "timeout", 0, "deadline per decision (0: none); a cut search is reported as truncated")
@@ -175,6 +179,9 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 	if text && o.lexicon == "" {
 		return errors.New("route: --text needs --lexicon")
 	}
+	if (o.chainTemplate != "" || o.directTemplate != "") && o.lexicon == "" {
+		return errors.New("route: --chain-template and --direct-template render plans of texts, which need --lexicon")
+	}
 	if o.workers < 1 {
 		return fmt.Errorf("route: --workers must be ≥ 1, got %d", o.workers)
 	}
@@ -191,7 +198,7 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 	}
 	var tp *textPlanner
 	if o.lexicon != "" {
-		if tp, err = newTextPlanner(o.lexicon, cfg); err != nil {
+		if tp, err = newTextPlanner(o.lexicon, o.chainTemplate, o.directTemplate, cfg); err != nil {
 			return err
 		}
 	}

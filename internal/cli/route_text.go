@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"os"
 	"strconv"
 	"strings"
 
@@ -22,14 +23,30 @@ type textPlanner struct {
 	cfg  router.Config // for the readable account
 }
 
-func newTextPlanner(lexicon string, cfg router.Config) (*textPlanner, error) {
+// newTextPlanner loads the lexicon and the plan templates (the defaults
+// unless chainTmpl or directTmpl name a file).
+func newTextPlanner(lexicon, chainTmpl, directTmpl string, cfg router.Config) (*textPlanner, error) {
 	lex, err := graphidx.LoadLexicon(lexicon)
 	if err != nil {
 		return nil, fmt.Errorf("route: --lexicon: %w", err)
 	}
-	rend, err := plan.NewRenderer()
+	var opts []plan.RenderOption
+	for _, t := range []struct {
+		flag, path string
+		opt        func(string) plan.RenderOption
+	}{{"--chain-template", chainTmpl, plan.WithChainTemplate}, {"--direct-template", directTmpl, plan.WithDirectTemplate}} {
+		if t.path == "" {
+			continue
+		}
+		b, err := os.ReadFile(t.path)
+		if err != nil {
+			return nil, fmt.Errorf("route: %s: %w", t.flag, err)
+		}
+		opts = append(opts, t.opt(string(b)))
+	}
+	rend, err := plan.NewRenderer(opts...)
 	if err != nil {
-		return nil, err
+		return nil, fmt.Errorf("route: %w (templates: %q, %q)", err, chainTmpl, directTmpl)
 	}
 	return &textPlanner{lex: lex, rend: rend, cfg: cfg}, nil
 }

@@ -170,3 +170,32 @@ func TestRouteBatchTextLines(t *testing.T) {
 		t.Errorf("no lexicon: %s", out)
 	}
 }
+
+func TestRouteTextTemplates(t *testing.T) {
+	t.Parallel()
+	_, tags, lex := writeTextFixtures(t)
+	dir := t.TempDir()
+	chain := filepath.Join(dir, "chain.tmpl")
+	os.WriteFile(chain, []byte("Plan for {{.ToName}}:{{range .Steps}} [{{.Name}}]{{end}}\n"), 0o644)
+	text := "The north vent is running. What about bed four?"
+	out, err := routeCLI(t, "route", "--index", tags, "--lexicon", lex, "--text", text, "--chain-template", chain)
+	if err != nil || !strings.Contains(out, "│ Plan for bed four: [pump two]") {
+		t.Errorf("own chain template: %v\n%s", err, out)
+	}
+	bad := filepath.Join(dir, "bad.tmpl")
+	os.WriteFile(bad, []byte("{{range .Steps}"), 0o644)
+	_, err = routeCLI(t, "route", "--index", tags, "--lexicon", lex, "--text", text, "--direct-template", bad)
+	var ee *ExitError
+	if err == nil || errors.As(err, &ee) || !strings.Contains(err.Error(), "direct template") || !strings.Contains(err.Error(), "bad.tmpl") {
+		t.Errorf("unparsable template: %v", err)
+	}
+	fails := filepath.Join(dir, "fails.tmpl")
+	os.WriteFile(fails, []byte("{{index .Steps 7}}"), 0o644)
+	out, err = routeCLI(t, "route", "--index", tags, "--lexicon", lex, "--text", text, "--chain-template", fails)
+	if !errors.As(err, &ee) || ee.Code != 2 || !strings.Contains(out, "plan: template") {
+		t.Errorf("failing template: %v\n%s", err, out)
+	}
+	if _, err := routeCLI(t, "route", "--index", tags, "--from", "vent-north", "--to", "bed-4", "--chain-template", chain); err == nil {
+		t.Error("--chain-template without --lexicon accepted")
+	}
+}
