@@ -196,3 +196,47 @@ func TestDecideTextPresenceOnly(t *testing.T) {
 		t.Errorf("invalid text: %v", err)
 	}
 }
+
+// TestDecideMentionsDuringSwap: text decisions stay consistent while the
+// index is swapped between a valued and a presence-only one: each call
+// forms its queries under one rule and every decision succeeds or names a
+// documented error.
+func TestDecideMentionsDuringSwap(t *testing.T) {
+	t.Parallel()
+	r, err := New(greenhouse(1))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer r.Close()
+	// Both graphs hold vent-north and pump-2; the valued one reads "open"
+	// as a value, the presence-only one ignores it.
+	ms := []graphidx.Mention{mention("vent-north", "open", 0), mention("pump-2", "", 20)}
+	done := make(chan struct{})
+	go func() {
+		defer close(done)
+		for i := range 40 {
+			g := Graph(greenhouse(uint64(10 + i)))
+			if i%2 == 0 {
+				g = presenceGraph(false)
+			}
+			if err := r.Swap(g); err != nil {
+				t.Error(err)
+				return
+			}
+		}
+	}()
+	defer func() { <-done }() // before r.Close
+	ctx := context.Background()
+	for range 400 {
+		td, err := r.DecideMentions(ctx, ms)
+		if err != nil {
+			t.Error(err)
+			break
+		}
+		for i, q := range td.Queries {
+			if td.PresenceOnly != (q.Value == graphidx.PresentValue) {
+				t.Fatalf("query %d %+v under presence=%v", i, q.Query, td.PresenceOnly)
+			}
+		}
+	}
+}

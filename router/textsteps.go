@@ -34,7 +34,9 @@ type BridgeDist struct {
 // the chain carries forward to the next link); the decision's
 // Chain.Estimate is x_(m+1) at the target.
 //
-// This is a separate call so that Decide stays as it is: a decision does not
+// The matrices are the current configuration's (a Reconfigure of α between
+// the decision and this call changes them). This is a separate call so
+// that Decide stays as it is: a decision does not
 // carry the intermediate rows, and most callers never need them. It returns
 // nil and no error when d has no chain. Errors: ErrClosed,
 // ErrStaleDecision (d.Generation is not the current index generation),
