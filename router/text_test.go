@@ -132,6 +132,14 @@ func TestDecideMentionsOrderAndErrors(t *testing.T) {
 	if !errors.Is(err, ErrUnknownValue) || !strings.Contains(err.Error(), `the index knows "closed", "open"`) {
 		t.Errorf("unknown value: %v", err)
 	}
+	var crowd []graphidx.Mention
+	crowd = append(crowd, mention("vent-north", "open", 0))
+	for i := range MaxTextEntities + 1 {
+		crowd = append(crowd, mention(fmt.Sprintf("bed-%03d", i), "", 10+i))
+	}
+	if _, err := r.DecideMentions(ctx, crowd); !errors.Is(err, ErrTooManyMentions) {
+		t.Errorf("%d targets: %v", MaxTextEntities+1, err)
+	}
 	unknown := []graphidx.Mention{mention("vent-south", "open", 0), mention("bed-tomato", "", 9)}
 	if _, err := r.DecideMentions(ctx, unknown); !errors.Is(err, ErrUnknownEntity) || !strings.Contains(err.Error(), "vent-south") {
 		t.Errorf("unknown entity: %v", err)

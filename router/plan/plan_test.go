@@ -110,6 +110,13 @@ func TestFromDists(t *testing.T) {
 					t.Errorf("steps %+v from %q", p.Steps, p.FromName)
 				}
 			}},
+		{name: "chain fallback without a chain", q: q, d: router.Decision{Mode: router.ModeChain, Reason: router.Reason{Code: router.ReasonUnknownEntityFallback}},
+			measure: router.MeasureSqErrorSum,
+			check: func(t *testing.T, p plan.Plan) {
+				if len(p.Steps) != 0 || p.Answer.HasValue || plan.Template(p) != "direct" {
+					t.Errorf("fallback plan %+v renders %s", p, plan.Template(p))
+				}
+			}},
 		{name: "count mismatch", q: q, d: chainDecision("zone-1/hum"), dists: two, wantErr: plan.ErrMismatch},
 		{name: "entity mismatch", q: q, d: chainDecision("pump-2", "zone-1/hum"), dists: two, wantErr: plan.ErrMismatch},
 		{name: "length mismatch", q: q, d: chainDecision("pump-2"),
