@@ -23,7 +23,7 @@ import (
 //	  "max_bridges": 3,             // H in [0, 3]
 //	  "beam": 64,                   // B in [1, 2^20]
 //	  "max_candidates": 16,         // k in [1, 2^16]
-//	  "model": "bayes",             // "bayes" or "support" (bayes: support on a presence-only index)
+//	  "model": "bayes",             // "bayes" or "support"
 //	  "alpha": 1,                   // Dirichlet α > 0 (bayes; smoothing for support)
 //	  "beta": 0.001,                // per-hop squared bias β ≥ 0
 //	  "support_v0": 0.25,           // support model v0 > 0 (0 = scorer default)

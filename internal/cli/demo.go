@@ -27,10 +27,7 @@ crop beds; a Bayesian network with exact answers) it:
   4. routes the queries again through the router wrapped in OpenTelemetry
      instrumentation, tracing each decision to DIR/decisions.otlp.jsonl
      (OTLP JSON Lines),
-  5. writes a lexicon of display names and value phrases (DIR/lexicon.tsv)
-     and free-text questions (DIR/questions.jsonl), and takes two of them
-     from text to linked mentions, decisions and rendered reasoning plans,
-  6. prints the mean squared errors, the share routed to chains and a few
+  5. prints the mean squared errors, the share routed to chains and a few
      explained decisions with their bridges, writes DIR/error-by-route.png,
      and names what to run next.
 
