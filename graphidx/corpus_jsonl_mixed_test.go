@@ -116,13 +116,13 @@ func BenchmarkJSONLReaderFormCheck(b *testing.B) {
 		t0 := cpuTime()
 		r := NewJSONLReader(bytes.NewReader(data), "bench.jsonl")
 		r.setTransient(true)
-		r.noFormCheck = !check
+		r.forms.off = !check
 		n, err := countContexts(r)
 		if err != nil {
 			b.Fatal(err)
 		}
-		if n != 50_000 || (check && len(r.forms) == 0) {
-			b.Fatalf("%d contexts, %d entities recorded", n, len(r.forms))
+		if n != 50_000 || (check && len(r.forms.m) == 0) {
+			b.Fatalf("%d contexts, %d entities recorded", n, len(r.forms.m))
 		}
 		return cpuTime() - t0
 	}
