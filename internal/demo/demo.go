@@ -227,11 +227,21 @@ func Run(ctx context.Context, cfg Config) (*Report, error) {
 // it in otelx instrumentation exporting to an OTLP JSON Lines file, and routes
 // every query again, keeping the decisions to explain.
 func tracedPass(ctx context.Context, cfg Config, w *world.World, rep *Report) (err error) {
-	r, err := openRouter(cfg, rep)
+	idx, err := graphidx.Open(rep.Files.Index)
 	if err != nil {
-		return err
+		return fmt.Errorf("demo: %w", err)
 	}
-	defer r.Close() // closes the index
+	model, err := scorer.NewBayes(scorer.WithBeta(rep.Eval.Beta))
+	if err != nil {
+		idx.Close()
+		return fmt.Errorf("demo: %w", err)
+	}
+	r, err := router.New(idx, append([]router.Option{router.WithModel(model)}, cfg.RouterOptions...)...)
+	if err != nil {
+		idx.Close()
+		return fmt.Errorf("demo: %w", err)
+	}
+	defer r.Close() // closes idx
 
 	_ = os.Remove(rep.Files.Trace) // the exporter appends; start fresh
 	exp, err := otlpfile.NewExporter(ctx, rep.Files.Trace)
@@ -259,25 +269,4 @@ func tracedPass(ctx context.Context, cfg Config, w *world.World, rep *Report) (e
 	}
 	rep.HeldOut, rep.Supported, rep.Explained = res.heldOut, res.supported, res.explained
 	return nil
-}
-
-// openRouter opens the demo's index in a router configured as the eval
-// harness's: the Bayes model with the fitted β, then cfg.RouterOptions. The
-// router owns the index.
-func openRouter(cfg Config, rep *Report) (*router.Router, error) {
-	idx, err := graphidx.Open(rep.Files.Index)
-	if err != nil {
-		return nil, fmt.Errorf("demo: %w", err)
-	}
-	model, err := scorer.NewBayes(scorer.WithBeta(rep.Eval.Beta))
-	if err != nil {
-		idx.Close()
-		return nil, fmt.Errorf("demo: %w", err)
-	}
-	r, err := router.New(idx, append([]router.Option{router.WithModel(model)}, cfg.RouterOptions...)...)
-	if err != nil {
-		idx.Close()
-		return nil, fmt.Errorf("demo: %w", err)
-	}
-	return r, nil
 }

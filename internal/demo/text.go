@@ -13,6 +13,7 @@ import (
 	"github.com/hopwise/hopwise/internal/world"
 	"github.com/hopwise/hopwise/router"
 	"github.com/hopwise/hopwise/router/plan"
+	"github.com/hopwise/hopwise/scorer"
 )
 
 // File names of the text stage in Config.Dir.
@@ -227,4 +228,25 @@ func (r *Report) writeTexts(b *strings.Builder) {
 			}
 		}
 	}
+}
+
+// openRouter opens the demo's index in a router configured as the eval
+// harness's: the Bayes model with the fitted β, then cfg.RouterOptions. The
+// router owns the index.
+func openRouter(cfg Config, rep *Report) (*router.Router, error) {
+	idx, err := graphidx.Open(rep.Files.Index)
+	if err != nil {
+		return nil, fmt.Errorf("demo: %w", err)
+	}
+	model, err := scorer.NewBayes(scorer.WithBeta(rep.Eval.Beta))
+	if err != nil {
+		idx.Close()
+		return nil, fmt.Errorf("demo: %w", err)
+	}
+	r, err := router.New(idx, append([]router.Option{router.WithModel(model)}, cfg.RouterOptions...)...)
+	if err != nil {
+		idx.Close()
+		return nil, fmt.Errorf("demo: %w", err)
+	}
+	return r, nil
 }
