@@ -31,6 +31,13 @@ import (
 // string per context id and none per repeated entity name or value. Lines
 // longer than the limit (WithMaxLineBytes) are skipped in constant memory.
 // A JSONLReader is not safe for concurrent use.
+//
+// Across lines, an entity listed in "ents" (present) on one line and given a
+// value other than PresentValue in "obs" on another would get "present" as
+// a spurious extra value: the later of the two lines is rejected
+// (mixed-forms), naming the entity and the first line of the other form
+// (formTracker, corpus_jsonl_forms.go). JSONLLineParser, which sees one line
+// at a time, cannot apply this rule.
 type JSONLReader struct {
 	lr   *lineReader
 	name string
@@ -38,6 +45,10 @@ type JSONLReader struct {
 	in   interner
 	obs  []Observation
 	p    jparser
+	// forms enforces the cross-line mixed-forms rule; lineEnts says that
+	// the line being parsed uses "ents" (set by parseEnts).
+	forms    formTracker
+	lineEnts bool
 	// transient makes names views into the line buffer, valid only until
 	// the next call to Next. Only Build sets it, through setTransient: it
 	// copies what it keeps, and skipping the interner saves a map lookup
@@ -88,7 +99,11 @@ func (r *JSONLReader) Next() (Context, error) {
 			continue
 		}
 		r.bl.stats.Records++
+		r.lineEnts = false // set by parseEnts
 		c, le := r.parse(line)
+		if le == nil {
+			le = r.forms.check(r.obs, r.lineEnts, r.lr.line)
+		}
 		if le != nil {
 			le.File, le.Line = r.name, r.lr.line
 			if e := r.bl.bad(le); e != nil {
@@ -290,6 +305,7 @@ func (r *JSONLReader) parseObs() *LineError {
 
 func (r *JSONLReader) parseEnts() *LineError {
 	p := &r.p
+	r.lineEnts = true
 	if p.peek() != '[' {
 		if !p.skip(0) {
 			return p.syntax("bad value")

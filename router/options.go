@@ -148,6 +148,10 @@ type settings struct {
 	cacheSizeSet bool
 	// touched in the current build: alpha/beta given alongside WithModel.
 	touchAlpha, touchBeta bool
+
+	// support scores presence-only indexes when no model was set
+	// (modelFor).
+	support scorer.Model
 }
 
 // DefaultHashKey is the SipHash key used for arm assignment and exploration
@@ -235,7 +239,10 @@ func WithMaxCandidates(k int) Option {
 }
 
 // WithModel sets the error model. Default: scorer.NewBayes with WithAlpha /
-// WithBeta when given, else the scorer defaults. A nil model is an error.
+// WithBeta when given, else the scorer defaults, except on a presence-only
+// index (scorer.PresenceOnly), which without WithModel is scored by
+// scorer.NewSupport with its defaults (chosen per index at New and Swap).
+// A nil model is an error.
 // The search relies on EdgeCost ≥ 0 and on a chain's Err ≥ HopBias()·m, as
 // both scorer models guarantee; EdgeCost need not be monotone in support.
 func WithModel(m scorer.Model) Option {
@@ -445,6 +452,19 @@ func buildSettings(base settings, opts []Option) (settings, error) {
 			return settings{}, fmt.Errorf("%w: default model: %v", ErrBadOption, err)
 		}
 		s.model = m
+		if s.support, err = scorer.NewSupport(scorer.WithAlpha(s.alpha)); err != nil {
+			return settings{}, fmt.Errorf("%w: default presence-only model: %v", ErrBadOption, err)
+		}
 	}
 	return s, nil
+}
+
+// modelFor is the model that scores decisions on h: the configured one, or
+// without WithModel the Support model (scorer defaults) when h's index is
+// presence-only (scorer.PresenceOnly) and the Bayes model otherwise. O(1).
+func (s *settings) modelFor(h *handle) scorer.Model {
+	if h.presence && !s.modelSet && s.support != nil {
+		return s.support
+	}
+	return s.model
 }
