@@ -1,6 +1,7 @@
 package graphidx
 
 import (
+	"bytes"
 	"fmt"
 	"io"
 	"strconv"
@@ -43,6 +44,7 @@ type JSONLReader struct {
 	// copies what it keeps, and skipping the interner saves a map lookup
 	// per observation.
 	transient bool
+	maxEnts   int // most entities per line (0: no limit)
 }
 
 func (r *JSONLReader) setTransient(on bool) { r.transient = on }
@@ -59,7 +61,7 @@ func (r *JSONLReader) str(s []byte) string {
 // name used in errors.
 func NewJSONLReader(r io.Reader, name string, opts ...ReadOption) *JSONLReader {
 	cfg := newReadConfig(opts)
-	jr := &JSONLReader{lr: newLineReader(r, cfg.maxLine), name: name}
+	jr := &JSONLReader{lr: newLineReader(r, cfg.maxLine), name: name, maxEnts: cfg.maxCtxEnts}
 	jr.bl.init(cfg.policy)
 	return jr
 }
@@ -102,6 +104,9 @@ func (r *JSONLReader) Next() (Context, error) {
 	}
 }
 
+// position names the line of the context Next returned last.
+func (r *JSONLReader) position() (string, int) { return r.name, r.lr.line }
+
 // Stats returns the line accounting so far.
 func (r *JSONLReader) Stats() ReadStats { return r.bl.snapshot() }
 
@@ -122,7 +127,7 @@ func isBlank(b []byte) bool {
 
 func (r *JSONLReader) parse(line []byte) (Context, *LineError) {
 	p := &r.p
-	p.b, p.i = line, 0
+	p.b, p.i, p.badSurrogate = line, 0, false
 	r.obs = r.obs[:0]
 	var (
 		c                        Context
@@ -148,6 +153,11 @@ func (r *JSONLReader) parse(line []byte) (Context, *LineError) {
 				k = "obs"
 			case "ents":
 				k = "ents"
+			default:
+				if v := caseVariant(key); v != "" {
+					return c, &LineError{Field: EscapeControl(string(key)), Reason: ReasonBadField,
+						Detail: fmt.Sprintf("key differs from %q only in case", v)}
+				}
 			}
 			p.ws()
 			if !p.eat(':') {
@@ -235,6 +245,29 @@ func (r *JSONLReader) parse(line []byte) (Context, *LineError) {
 	return c, nil
 }
 
+// caseVariant returns the known key ("id", "obs", "ents") that key matches
+// case-insensitively but not exactly, or "". Such a key is rejected rather
+// than ignored as metadata: {"ID":"a","id":"b"} or {"Obs":{...}} is a
+// mistake, and readers that fold case would take the other key.
+func caseVariant(key []byte) string {
+	for _, k := range [...]string{"id", "obs", "ents"} {
+		if len(key) == len(k) && string(key) != k && bytes.EqualFold(key, []byte(k)) {
+			return k
+		}
+	}
+	return ""
+}
+
+// tooMany reports a line with more entities than the reader's limit; the
+// caller stops parsing it, so a wide line costs O(limit) memory.
+func (r *JSONLReader) tooMany(field string) *LineError {
+	if r.maxEnts > 0 && len(r.obs) > r.maxEnts {
+		return &LineError{Field: field, Reason: ReasonTooManyEntities,
+			Detail: fmt.Sprintf("more than %d entities in one context", r.maxEnts)}
+	}
+	return nil
+}
+
 func (r *JSONLReader) parseObs() *LineError {
 	p := &r.p
 	if p.peek() != '{' {
@@ -277,6 +310,9 @@ func (r *JSONLReader) parseObs() *LineError {
 			return &LineError{Field: "obs." + ent, Reason: why, Detail: "value"}
 		}
 		r.obs = append(r.obs, Observation{Entity: ent, Value: r.str(v)})
+		if le := r.tooMany("obs"); le != nil {
+			return le
+		}
 		p.ws()
 		if p.eat(',') {
 			continue
@@ -317,6 +353,9 @@ func (r *JSONLReader) parseEnts() *LineError {
 			return &LineError{Field: fmt.Sprintf("ents[%d]", n), Reason: why}
 		}
 		r.obs = append(r.obs, Observation{Entity: r.str(s), Value: PresentValue})
+		if le := r.tooMany("ents"); le != nil {
+			return le
+		}
 		p.ws()
 		if p.eat(',') {
 			continue
@@ -334,11 +373,17 @@ type jparser struct {
 	i       int
 	scratch []byte
 	escaped bool // the last string had escapes (decoded into scratch)
+	// badSurrogate: the last string failed on a lone UTF-16 surrogate
+	// escape; syntax reports it as bad-utf8 instead of bad-json.
+	badSurrogate bool
 }
 
 const maxJSONDepth = 512
 
 func (p *jparser) syntax(msg string) *LineError {
+	if p.badSurrogate {
+		return &LineError{Reason: ReasonBadUTF8, Detail: fmt.Sprintf("column %d: lone UTF-16 surrogate escape", p.i+1)}
+	}
 	return &LineError{Reason: ReasonBadJSON, Detail: fmt.Sprintf("column %d: %s", p.i+1, msg)}
 }
 
@@ -374,7 +419,7 @@ func (p *jparser) str() ([]byte, bool) {
 	if !p.eat('"') {
 		return nil, false
 	}
-	p.escaped = false
+	p.escaped, p.badSurrogate = false, false
 	start := p.i
 	for p.i < len(p.b) {
 		c := p.b[p.i]
@@ -435,24 +480,22 @@ func (p *jparser) strSlow(start int) ([]byte, bool) {
 				return nil, false
 			}
 			if utf16.IsSurrogate(r) {
-				// A high surrogate followed by a low one is one rune; a lone
-				// surrogate decodes to U+FFFD, as encoding/json does.
-				r2 := rune(-1)
-				if p.i+1 < len(p.b) && p.b[p.i] == '\\' && p.b[p.i+1] == 'u' {
-					save := p.i
-					p.i += 2
-					var ok2 bool
-					if r2, ok2 = p.hex4(); !ok2 {
-						return nil, false
-					}
-					if d := utf16.DecodeRune(r, r2); d != utf8.RuneError {
-						r = d
-					} else {
-						p.i = save
-						r = utf8.RuneError
-					}
-				} else {
-					r = utf8.RuneError
+				// A high surrogate followed by a low one is one rune. A lone
+				// surrogate is rejected (encoding/json would decode it to
+				// U+FFFD, merging distinct names): the string fails with
+				// badSurrogate set, and the caller reports bad-utf8.
+				if p.i+1 >= len(p.b) || p.b[p.i] != '\\' || p.b[p.i+1] != 'u' {
+					p.badSurrogate = true
+					return nil, false
+				}
+				p.i += 2
+				r2, ok2 := p.hex4()
+				if !ok2 {
+					return nil, false
+				}
+				if r = utf16.DecodeRune(r, r2); r == utf8.RuneError {
+					p.badSurrogate = true
+					return nil, false
 				}
 			}
 			out = utf8.AppendRune(out, r)
