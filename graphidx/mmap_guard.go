@@ -21,7 +21,7 @@ var ErrFileChanged = errors.New("graphidx: index file changed while open (trunca
 type FaultError struct {
 	Path   string  // the index file
 	Addr   uintptr // the faulting address, 0 when the failure was not a fault
-	Detail string  // the runtime's description of the failure
+	Detail string  // where the read failed and the file's size then and now
 }
 
 func (e *FaultError) Error() string {
@@ -69,12 +69,23 @@ func (x *Index) faultError(p any) *FaultError {
 		return nil
 	}
 	if a, ok := p.(interface{ Addr() uintptr }); ok && x.inMap(a.Addr()) {
-		return &FaultError{Path: x.path, Addr: a.Addr(), Detail: re.Error()}
+		off := a.Addr() - uintptr(unsafe.Pointer(unsafe.SliceData(x.mapped)))
+		return &FaultError{Path: x.path, Addr: a.Addr(),
+			Detail: fmt.Sprintf("read fault at byte %d of the map; the file had %d bytes when opened, %s", off, x.size, x.sizeNow())}
 	}
 	if x.changedInPlace() {
-		return &FaultError{Path: x.path, Detail: re.Error()}
+		return &FaultError{Path: x.path, Detail: fmt.Sprintf("%v after the file changed (%s)", re, x.sizeNow())}
 	}
 	return nil
+}
+
+// sizeNow describes the current size of the file at x's path.
+func (x *Index) sizeNow() string {
+	st, err := os.Stat(x.path)
+	if err != nil {
+		return "now " + err.Error()
+	}
+	return fmt.Sprintf("now %d", st.Size())
 }
 
 // inMap reports whether addr lies in x's memory map.
