@@ -119,12 +119,14 @@ func (o tempDirOption) applyRead(c *readConfig)   { c.tempDir = string(o) }
 // DefaultMaxContextEntities is the default limit on the entities of one
 // context (WithMaxContextEntities). A context of n entities costs n(n−1)/2
 // pair increments and, when its pairs are new, about 12 bytes of index per
-// pair: 4096 entities give 8.4 M pairs (~100 MB of index) from one corpus
-// line. Measured on 2 shared cores (docs/HOSTILE-INPUT.md): one context of
-// 4096 entities builds in about 2 s of CPU, so the limit keeps a single bad
-// line from dominating a build while leaving every realistic document (tens
-// to hundreds of entities) untouched.
-const DefaultMaxContextEntities = 4096
+// pair. Measured with `hopwise build --max-context-entities 0` on one
+// context alone (2 shared cores, user+sys CPU): n = 1024 takes 0.16 s and
+// writes a 6.6 MB index, n = 2048 0.8 s and 26 MB, n = 4096 4.5 s and
+// 102 MB, n = 8192 17 s and 405 MB. The limit keeps one corpus line under
+// a second of CPU and ~26 MB of index, far above realistic documents (tens
+// to hundreds of entities); raise it for corpora whose contexts are
+// legitimately wider.
+const DefaultMaxContextEntities = 2048
 
 type maxCtxEntsOption int
 

@@ -42,7 +42,12 @@ import (
 //
 // Row errors are reported at the row's first line: too-many-columns,
 // too-few-columns, bad-quote, line-too-long, missing-id, empty-name,
-// name-too-long, bad-utf8. A second row for the same (context, entity) pair
+// name-too-long, bad-utf8, control-char (a newline inside a quoted field is
+// a control character in a name). A quote still open at the end of the
+// input is one bad-quote error whose detail names the lines it swallowed.
+// A context with more rows than WithMaxContextEntities is skipped whole
+// (too-many-entities, counted once per row, reported at its first row)
+// without holding more than the limit of its rows. A second row for the same (context, entity) pair
 // is a duplicate-entity error at the later row, whatever its value; in
 // lenient mode the earlier row is kept. Duplicate errors surface during the
 // merge, after the whole file has been read. A CSVReader is not safe for

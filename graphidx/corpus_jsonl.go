@@ -23,9 +23,15 @@ import (
 //     neither, or with an empty one, is rejected (empty-context).
 //   - An entity repeated in one line is rejected (duplicate-entity), whether
 //     the values differ or not; so is a repeated top-level key (bad-field).
-//   - Names and values are non-empty (empty-name), valid UTF-8 (bad-utf8) and
-//     at most MaxNameBytes long (name-too-long).
-//   - Other top-level keys are ignored, so lines may carry metadata.
+//   - Names, values and ids are non-empty (empty-name), valid UTF-8 without
+//     lone UTF-16 surrogate escapes such as "\ud800" (bad-utf8), free of
+//     control characters (control-char) and at most MaxNameBytes long
+//     (name-too-long).
+//   - A line names at most WithMaxContextEntities entities
+//     (too-many-entities); parsing stops at the first one over.
+//   - Other top-level keys are ignored, so lines may carry metadata, except
+//     keys that differ from "id", "obs" or "ents" only in case ("ID",
+//     "Obs"), which are rejected (bad-field) rather than silently ignored.
 //   - Blank lines are ignored and are not records.
 //
 // The parser is a hand-written scanner for this schema: it allocates one

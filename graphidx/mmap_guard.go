@@ -60,6 +60,20 @@ func (x *Index) Guard(fn func() error) (err error) {
 	return fn()
 }
 
+// CheckFile returns a *FaultError (wrapping ErrFileChanged) when the file
+// at x's path is the file opened but was modified in place since (its size
+// or modification time differs), and nil otherwise, also when it was
+// replaced by rename. Reads of a file overwritten in place may return the
+// new bytes at the old offsets without faulting; a caller that serves
+// results calls CheckFile after a batch of reads to withhold results that
+// may be wrong. One stat(2) call.
+func (x *Index) CheckFile() error {
+	if x.changedInPlace() {
+		return &FaultError{Path: x.path, Detail: fmt.Sprintf("modified in place; the file had %d bytes when opened, %s", x.size, x.sizeNow())}
+	}
+	return nil
+}
+
 // faultError classifies a recovered panic: a fault inside the map, or a
 // runtime error after the file changed in place, gives a *FaultError;
 // anything else nil.

@@ -5,6 +5,7 @@ import (
 	"os"
 	"strings"
 	"testing"
+	"time"
 )
 
 // TestGuardTruncatedMap: reads of an index whose file was truncated under
@@ -24,8 +25,14 @@ func TestGuardTruncatedMap(t *testing.T) {
 	if err := x.Guard(x.Verify); err != nil {
 		t.Fatalf("intact file: %v", err)
 	}
+	if err := x.CheckFile(); err != nil {
+		t.Fatalf("CheckFile of an intact file: %v", err)
+	}
 	if err := os.Truncate(path, 4096); err != nil {
 		t.Fatal(err)
+	}
+	if err := x.CheckFile(); !errors.Is(err, ErrFileChanged) {
+		t.Errorf("CheckFile after a truncation: %v", err)
 	}
 	err = x.Guard(x.Verify)
 	var fe *FaultError
@@ -60,7 +67,36 @@ func TestGuardRenamedFileKeepsServing(t *testing.T) {
 	if err := x.Guard(x.Verify); err != nil {
 		t.Errorf("old map after a rename: %v", err)
 	}
-	if x.changedInPlace() {
-		t.Errorf("a renamed-over file counted as changed in place")
+	if err := x.CheckFile(); err != nil {
+		t.Errorf("a renamed-over file counted as changed in place: %v", err)
+	}
+}
+
+// TestCheckFileSameSizeOverwrite: bytes written over an open file without
+// changing its size (no read faults) are still detected by CheckFile.
+func TestCheckFileSameSizeOverwrite(t *testing.T) {
+	t.Parallel()
+	path := ixWriteTemp(t, ixRandomSource(200, 3, 2, 4))
+	x, err := Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer x.Close()
+	f, err := os.OpenFile(path, os.O_WRONLY, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, err = f.WriteAt([]byte{0xff}, 100)
+	f.Close()
+	if err != nil {
+		t.Fatal(err)
+	}
+	// Make sure the modification time moves even on coarse clocks.
+	later := x.fi.ModTime().Add(time.Second)
+	if err := os.Chtimes(path, later, later); err != nil {
+		t.Fatal(err)
+	}
+	if err := x.CheckFile(); !errors.Is(err, ErrFileChanged) || !strings.Contains(err.Error(), path) {
+		t.Errorf("CheckFile after an in-place write: %v", err)
 	}
 }

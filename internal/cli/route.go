@@ -81,9 +81,10 @@ run on --workers goroutines; output order is always input order.
 The index is memory-mapped: replace it by rename (hopwise build does), never
 by writing over it in place (cp, truncate, >). If the file is truncated or
 overwritten while route runs, the decision in flight fails with an error
-naming the file instead of crashing the process, and a batch writes the
-lines of its current chunk (the failed ones as errors) and stops, exit
-status 1.
+naming the file instead of crashing the process (the file is also checked
+after every chunk of a batch, since an overwrite may be read without a
+fault), and a batch writes its current chunk's lines as errors and stops,
+exit status 1.
 
 Settings come from --config FILE.json (the router.Config format, also
 written by "hopwise tune") and are overridden by the flags given explicitly.
@@ -200,10 +201,16 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 	if single {
 		q := routeQuery{ID: "", From: o.from, Value: o.value, To: o.to, Key: o.key}
 		d, err := gd.decide(ctx, q)
+		if err == nil {
+			err = ix.CheckFile()
+		}
 		if err != nil {
 			if o.json {
 				line, _ := json.Marshal(routeError{ID: nil, Error: err.Error()})
 				out.Write(append(line, '\n'))
+			}
+			if errors.Is(err, graphidx.ErrFileChanged) {
+				return err
 			}
 			return &ExitError{Code: 2, Err: err}
 		}
@@ -565,7 +572,16 @@ func routeBatch(ctx context.Context, gd guardedDecider, in io.Reader, name strin
 			}
 		}
 		decideChunk(ctx, gd, items, o)
-		var changed error
+		// A file overwritten in place may be read without a fault (new
+		// bytes at old offsets): check it once per chunk and withhold the
+		// chunk's answers when it changed.
+		changed := gd.ix.CheckFile()
+		for i := range items {
+			if it := &items[i]; changed != nil && it.err == nil {
+				it.err = fmt.Errorf("line %d: answer withheld: %w", it.line, changed)
+				it.out = errorLine(it)
+			}
+		}
 		for i := range items {
 			it := &items[i]
 			total++
@@ -624,6 +640,17 @@ func readLine(br *bufio.Reader, max int) (line []byte, tooLong bool, err error) 
 	}
 }
 
+// errorLine renders the error output line of a failed item.
+func errorLine(it *batchItem) []byte {
+	e := routeError{Error: it.err.Error()}
+	if it.idSet {
+		id := it.q.ID
+		e.ID = &id
+	}
+	b, _ := json.Marshal(e)
+	return append(b, '\n')
+}
+
 // decideChunk decides the items on o.workers goroutines and renders each
 // item's output line.
 func decideChunk(ctx context.Context, gd guardedDecider, items []batchItem, o routeOptions) {
@@ -639,13 +666,7 @@ func decideChunk(ctx context.Context, gd guardedDecider, items []batchItem, o ro
 				return
 			}
 		}
-		e := routeError{Error: it.err.Error()}
-		if it.idSet {
-			id := it.q.ID
-			e.ID = &id
-		}
-		b, _ := json.Marshal(e)
-		it.out = append(b, '\n')
+		it.out = errorLine(it)
 	}
 	w := o.workers
 	if w > len(items) {
