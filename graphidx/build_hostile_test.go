@@ -108,9 +108,11 @@ func TestWideContextCancel(t *testing.T) {
 		if !errors.Is(err, context.Canceled) {
 			t.Fatalf("Build: %v, want context.Canceled", err)
 		}
-		if d := time.Since(cancelled); d > 2*time.Second {
+		d := time.Since(cancelled)
+		if d > 2*time.Second {
 			t.Errorf("Build returned %v after the cancel", d)
 		}
+		t.Logf("Build returned %v after the cancel", d.Round(time.Millisecond))
 	case <-time.After(60 * time.Second):
 		t.Fatal("Build did not return within 60 s of the start")
 	}

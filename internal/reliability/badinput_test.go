@@ -42,11 +42,7 @@ var jsonlBad = []badLine{
 	}},
 	{graphidx.ReasonControlChar, func(i int) string { return fmt.Sprintf(`{"id":"bad%d","ents":["zone-\u001b[2J"]}`, i) }},
 	{graphidx.ReasonTooManyEntities, func(i int) string {
-		ents := make([]string, graphidx.DefaultMaxContextEntities+1)
-		for j := range ents {
-			ents[j] = fmt.Sprintf(`"wide-%d"`, j)
-		}
-		return fmt.Sprintf(`{"id":"bad%d","ents":[%s]}`, i, strings.Join(ents, ","))
+		return wideLine(fmt.Sprintf("bad%d", i), graphidx.DefaultMaxContextEntities+1)
 	}},
 }
 
