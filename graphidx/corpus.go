@@ -306,21 +306,33 @@ func (b *badLines) Skipped() map[string]int {
 }
 
 // checkName validates one name, value or id; it returns a reason code or "".
+// One pass over ASCII names; from the first non-ASCII byte on, the rest is
+// validated as UTF-8 and scanned for C0, DEL and C1 (0xC2 0x80–0x9F)
+// controls.
 func checkName(s []byte) string {
 	switch {
 	case len(s) == 0:
 		return ReasonEmptyName
 	case len(s) > MaxNameBytes:
 		return ReasonNameTooLong
-	case !utf8.Valid(s):
-		return ReasonBadUTF8
 	}
 	for i, c := range s {
-		// Every C0 control and DEL is one byte; a C1 control (U+0080–
-		// U+009F) is 0xC2 followed by 0x80–0x9F (s is valid UTF-8 here).
-		if c < 0x20 || c == 0x7f || (c == 0xc2 && i+1 < len(s) && s[i+1] <= 0x9f) {
+		if c < 0x20 || c == 0x7f {
 			return ReasonControlChar
 		}
+		if c < 0x80 {
+			continue
+		}
+		rest := s[i:]
+		if !utf8.Valid(rest) {
+			return ReasonBadUTF8
+		}
+		for j, d := range rest {
+			if d < 0x20 || d == 0x7f || (d == 0xc2 && j+1 < len(rest) && rest[j+1] <= 0x9f) {
+				return ReasonControlChar
+			}
+		}
+		return ""
 	}
 	return ""
 }
