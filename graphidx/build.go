@@ -34,7 +34,37 @@ var (
 	// ErrEmptyName: a context from a foreign ContextReader has an empty
 	// entity name or value.
 	ErrEmptyName = errors.New("graphidx: empty entity name or value")
+	// ErrWideContext: under WithPolicy(Strict), a context from a reader
+	// that does not apply WithMaxContextEntities itself has more entities
+	// than the limit. (The readers of this package report a
+	// too-many-entities LineError naming file and line instead.)
+	ErrWideContext = errors.New("graphidx: context has more entities than the limit")
+	// ErrNoContexts: Build read no valid context (an empty corpus, or one
+	// whose every line was skipped); the output file is left untouched, so
+	// a good index is never replaced by an empty one.
+	ErrNoContexts = errors.New("graphidx: no valid context in the corpus")
+	// ErrTooFewValid: Build's reader accepted fewer records than
+	// WithMinValidShare requires; the output file is left untouched.
+	ErrTooFewValid = errors.New("graphidx: too few valid records in the corpus")
 )
+
+// positioner is implemented by readers that can name the file and line of
+// the context Next returned last (for errors found after reading it).
+type positioner interface {
+	position() (file string, line int)
+}
+
+// contextPlace names a context in an error: "file:line: context \"id\"" when
+// the reader tells its position, else "context \"id\"".
+func contextPlace(r ContextReader, id string) string {
+	q := "context " + EscapeControl(strconv.Quote(id))
+	if p, ok := r.(positioner); ok {
+		if f, l := p.position(); l > 0 {
+			return fmt.Sprintf("%s:%d: %s", EscapeControl(f), l, q)
+		}
+	}
+	return q
+}
 
 // Build reads every context of r, counts co-occurrences and writes the
 // locality index to out with WriteFile. It is Compile followed by WriteFile;
@@ -47,6 +77,7 @@ var (
 func Build(ctx context.Context, r ContextReader, out string, opts ...BuildOption) (BuildSummary, error) {
 	start := time.Now()
 	cfg := newBuildConfig(opts)
+	cfg.guard = true
 	c, sum, err := compileWith(ctx, r, cfg, start)
 	if err != nil {
 		return sum, err
@@ -61,7 +92,15 @@ func Build(ctx context.Context, r ContextReader, out string, opts ...BuildOption
 	// quarter of the budget (an option given by the caller comes later and
 	// wins).
 	wopts := append([]WriteOption{WithWriteMemory(max(cfg.memBudget/4, 1))}, cfg.writeOpts...)
-	if err := WriteFile(out, c, wopts...); err != nil {
+	if err := WriteFile(out, cancelSource{ctx, c}, wopts...); err != nil {
+		if cerr := ctx.Err(); cerr != nil && errors.Is(err, cerr) {
+			return sum, cerr
+		}
+		return sum, err
+	}
+	if err := ctx.Err(); err != nil {
+		// Cancelled after the rename: the new index is complete and valid;
+		// report the cancellation all the same.
 		return sum, err
 	}
 	if fi, err := os.Stat(out); err == nil {
@@ -71,6 +110,72 @@ func Build(ctx context.Context, r ContextReader, out string, opts ...BuildOption
 	cfg.emit(ProgressEvent{Phase: PhaseDone, Contexts: sum.Contexts, Entities: sum.Entities,
 		SpillRuns: sum.SpillRuns, Pairs: sum.Pairs.After, BytesRead: -1, Elapsed: sum.Elapsed})
 	return sum, nil
+}
+
+// cancelSource passes a Source to WriteFile and stops its pair stream when
+// ctx is done (polled every 4096 pairs), so an interrupt during the write
+// phase aborts the write: WriteFile removes its temporary file and leaves
+// the output untouched.
+type cancelSource struct {
+	ctx context.Context
+	Source
+}
+
+func (s cancelSource) Pairs(fn func(PairRecord) error) error {
+	if err := s.ctx.Err(); err != nil {
+		return err
+	}
+	n := 0
+	return s.Source.Pairs(func(p PairRecord) error {
+		if n++; n&4095 == 0 {
+			if err := s.ctx.Err(); err != nil {
+				return err
+			}
+		}
+		return fn(p)
+	})
+}
+
+// checkValid applies Build's guards against replacing an index with the
+// result of a bad corpus: no context at all (ErrNoContexts), or a reader
+// that accepted less than the minimum share of its records (ErrTooFewValid).
+func (cfg *buildConfig) checkValid(sum *BuildSummary) error {
+	st := sum.Read
+	if sum.Contexts == 0 {
+		detail := "the corpus is empty"
+		if st.Records > 0 {
+			detail = fmt.Sprintf("%d records, none valid; %s", st.Records, firstBad(st))
+		} else if sum.WideContexts > 0 {
+			detail = fmt.Sprintf("%d contexts over the entity limit were skipped", sum.WideContexts)
+		}
+		return fmt.Errorf("%w (%s); the output was not written", ErrNoContexts, detail)
+	}
+	if st.Records > 0 && cfg.minValid > 0 {
+		valid := st.OK + st.Empty
+		if share := float64(valid) / float64(st.Records); share < cfg.minValid {
+			return fmt.Errorf("%w: %d of %d records valid (%.1f%%, minimum %.1f%%); %s; the output was not written",
+				ErrTooFewValid, valid, st.Records, 100*share, 100*cfg.minValid, firstBad(st))
+		}
+	}
+	return nil
+}
+
+// firstBad describes the most frequent skip reason and its first example.
+func firstBad(st ReadStats) string {
+	best, bn := "", int64(0)
+	for r, n := range st.Skipped {
+		if n > bn || (n == bn && r < best) {
+			best, bn = r, n
+		}
+	}
+	if best == "" {
+		return "nothing was skipped"
+	}
+	msg := fmt.Sprintf("most skipped: %s ×%d", best, bn)
+	if e := st.FirstBad[best]; e != nil {
+		msg += ", first at " + e.Error()
+	}
+	return msg
 }
 
 // Compiled is the counted, merged and pruned content of a corpus: a Source
@@ -148,7 +253,8 @@ func Compile(ctx context.Context, r ContextReader, opts ...BuildOption) (*Compil
 
 func newBuildConfig(opts []BuildOption) buildConfig {
 	cfg := buildConfig{workers: runtime.GOMAXPROCS(0), memBudget: DefaultMemBudget, minSupport: 1,
-		progressTick: 200 * time.Millisecond, fanIn: 256}
+		progressTick: 200 * time.Millisecond, fanIn: 256, maxCtxEnts: DefaultMaxContextEntities,
+		minValid: DefaultMinValidShare}
 	for _, o := range opts {
 		if o != nil {
 			o.applyBuild(&cfg)
@@ -294,6 +400,12 @@ type ctxBatch struct {
 const (
 	batchContexts = 1024
 	batchItems    = 1 << 15
+	// keyChunk is the most pair keys a worker collects before counting
+	// them (32 KiB), whatever the width of the context.
+	keyChunk = 4096
+	// cancelPollKeys is how many keys a worker counts between two polls
+	// of the build's context inside one context (about 10 ms of work).
+	cancelPollKeys = 1 << 20
 )
 
 // buildRun is the shared state of one compile.
@@ -389,7 +501,8 @@ func (b *buildRun) worker(ctx context.Context, me int, in <-chan *ctxBatch, free
 	}
 	t = newPairTab(slots)
 	var scratch []uint32
-	keys := make([]uint64, 0, 512)
+	keys := make([]uint64, 0, keyChunk)
+	streamed := 0 // keys counted since the last cancellation poll
 	for batch := range in {
 		if ctx.Err() != nil {
 			continue // drain
@@ -430,13 +543,35 @@ func (b *buildRun) worker(ctx context.Context, me int, in <-chan *ctxBatch, free
 						id, strconv.Quote(b.dict.name(scratch[i]>>6)))
 				}
 			}
+			// Stream the pairs in chunks of keyChunk keys: a wide context
+			// (n entities, n(n−1)/2 pairs) then spills mid-context within
+			// the budget instead of collecting all its keys first, and
+			// cancellation is polled every cancelPollKeys keys.
 			for i, x := range scratch {
 				if nw > 1 && entityShard(x>>6, nw) != self {
 					continue
 				}
 				hi := uint64(x>>6)<<38 | uint64(x&63)<<6
-				for _, y := range scratch[i+1:] {
-					keys = append(keys, hi|uint64(y>>6)<<12|uint64(y&63))
+				rest := scratch[i+1:]
+				for len(rest) > 0 {
+					m := min(len(rest), keyChunk-len(keys))
+					for _, y := range rest[:m] {
+						keys = append(keys, hi|uint64(y>>6)<<12|uint64(y&63))
+					}
+					rest = rest[m:]
+					if len(keys) < keyChunk {
+						break
+					}
+					if err := b.addKeys(t, keys); err != nil {
+						return t, marg, err
+					}
+					keys = keys[:0]
+					if streamed += keyChunk; streamed >= cancelPollKeys {
+						streamed = 0
+						if err := ctx.Err(); err != nil {
+							return t, marg, err
+						}
+					}
 				}
 			}
 			if len(keys) >= 256 {
@@ -555,6 +690,9 @@ func compileWith(ctx context.Context, r ContextReader, cfg buildConfig, start ti
 	if sr, ok := r.(StatsReader); ok {
 		sum.Read = sr.Stats()
 	}
+	if rerr == nil && cfg.guard {
+		rerr = cfg.checkValid(&sum)
+	}
 	if rerr != nil {
 		return nil, sum, rerr
 	}
@@ -633,24 +771,36 @@ func (b *buildRun) read(ctx context.Context, r ContextReader, in []chan *ctxBatc
 		if err != nil {
 			return err
 		}
+		if m := b.cfg.maxCtxEnts; m > 0 && len(c.Obs) > m {
+			place := contextPlace(r, c.ID)
+			if b.cfg.strict {
+				return fmt.Errorf("%w: %s has %d entities (limit %d)", ErrWideContext, place, len(c.Obs), m)
+			}
+			if sum.WideContexts == 0 {
+				sum.FirstWide = fmt.Sprintf("%s, %d entities (limit %d)", place, len(c.Obs), m)
+			}
+			sum.WideContexts++
+			continue
+		}
 		if len(batch.items)+len(c.Obs) > batchItems && len(batch.off) > 1 {
 			if err := send(); err != nil {
 				return err
 			}
 		}
 		if len(c.Obs) > math.MaxInt32-len(batch.items) {
-			return fmt.Errorf("graphidx: context %s has too many observations", strconv.Quote(c.ID))
+			return fmt.Errorf("graphidx: %s has too many observations", contextPlace(r, c.ID))
 		}
 		for _, o := range c.Obs {
 			if o.Entity == "" || o.Value == "" {
-				return fmt.Errorf("%w: context %s", ErrEmptyName, strconv.Quote(c.ID))
+				return fmt.Errorf("%w: %s", ErrEmptyName, contextPlace(r, c.ID))
 			}
 			item, err := d.observe(o.Entity, o.Value)
 			if err != nil {
 				if errors.Is(err, ErrTooManyValues) {
 					slot := d.ids[o.Entity]
-					return fmt.Errorf("%w: entity %s, value %s in context %s (it already has %s)", ErrTooManyValues,
-						strconv.Quote(o.Entity), strconv.Quote(o.Value), strconv.Quote(c.ID), strings.Join(d.vals[slot.id], ","))
+					return fmt.Errorf("%w: %s: entity %s, value %s (it already has %s)", ErrTooManyValues,
+						contextPlace(r, c.ID), EscapeControl(strconv.Quote(o.Entity)), EscapeControl(strconv.Quote(o.Value)),
+						EscapeControl(strings.Join(d.vals[slot.id], ",")))
 				}
 				return err
 			}

@@ -367,13 +367,26 @@ func TestCountOverflow(t *testing.T) {
 	}
 }
 
-// TestBuildEdgeCases: an empty corpus and a corpus without any pair still
-// give valid index files.
+// TestBuildEdgeCases: an empty corpus compiles (Compile, WriteFile) to a
+// valid empty index but Build refuses it (ErrNoContexts, see
+// TestBuildNeverReplacesWithEmpty); a corpus without any pair gives a valid
+// index file.
 func TestBuildEdgeCases(t *testing.T) {
 	t.Parallel()
 	for i, cs := range [][]Context{nil, {{ID: "a", Obs: []Observation{{"pump1", "on"}}}, {ID: "b", Obs: []Observation{{"pump1", "off"}}}}} {
 		out := filepath.Join(t.TempDir(), "e.idx")
 		s, err := Build(context.Background(), &sliceReader{cs: cs}, out)
+		if len(cs) == 0 {
+			if !errors.Is(err, ErrNoContexts) {
+				t.Fatalf("case %d: empty corpus built: %v", i, err)
+			}
+			var c *Compiled
+			if c, s, err = Compile(context.Background(), &sliceReader{cs: cs}); err != nil {
+				t.Fatalf("case %d: compile: %v", i, err)
+			}
+			err = WriteFile(out, c)
+			c.Close()
+		}
 		if err != nil {
 			t.Fatalf("case %d: %v", i, err)
 		}

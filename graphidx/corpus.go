@@ -71,8 +71,18 @@ const (
 	ReasonEmptyName = "empty-name"
 	// ReasonNameTooLong: a name, value or id is longer than MaxNameBytes.
 	ReasonNameTooLong = "name-too-long"
-	// ReasonBadUTF8: a name, value or id is not valid UTF-8.
+	// ReasonBadUTF8: a name, value or id is not valid UTF-8, or a JSON
+	// string escapes a lone UTF-16 surrogate (\ud800 without its pair),
+	// which would otherwise decode to U+FFFD and merge distinct names.
 	ReasonBadUTF8 = "bad-utf8"
+	// ReasonControlChar: a name, value or id contains a control character
+	// (U+0000–U+001F, U+007F or U+0080–U+009F), which could rewrite a
+	// terminal when the name is printed.
+	ReasonControlChar = "control-char"
+	// ReasonTooManyEntities: a context names more entities than the
+	// reader's limit (WithMaxContextEntities); its n(n−1)/2 pairs would
+	// dominate the build.
+	ReasonTooManyEntities = "too-many-entities"
 	// ReasonLineTooLong: a line or paragraph is longer than the reader's limit.
 	ReasonLineTooLong = "line-too-long"
 	// ReasonTooManyColumns: a CSV row has more fields than the header.
@@ -97,18 +107,59 @@ type LineError struct {
 	Detail string
 }
 
-// Error formats the error as "file:line: field: reason[: detail]".
+// Error formats the error as "file:line: field: reason[: detail]". Control
+// characters in the field and detail (which may quote corpus names) are
+// escaped, so printing the error cannot drive a terminal.
 func (e *LineError) Error() string {
 	var b strings.Builder
-	fmt.Fprintf(&b, "%s:%d: ", e.File, e.Line)
+	fmt.Fprintf(&b, "%s:%d: ", EscapeControl(e.File), e.Line)
 	if e.Field != "" {
-		b.WriteString(e.Field)
+		b.WriteString(EscapeControl(e.Field))
 		b.WriteString(": ")
 	}
 	b.WriteString(e.Reason)
 	if e.Detail != "" {
 		b.WriteString(": ")
-		b.WriteString(e.Detail)
+		b.WriteString(EscapeControl(e.Detail))
+	}
+	return b.String()
+}
+
+// isControl reports the C0 controls, DEL and the C1 controls.
+func isControl(r rune) bool { return r < 0x20 || (r >= 0x7f && r <= 0x9f) }
+
+// EscapeControl returns s with every control character (U+0000–U+001F,
+// U+007F, U+0080–U+009F) and every invalid UTF-8 byte written as a Go
+// escape (\x1b, \u009b, \xff), and s itself when it has none, without
+// allocating. Use it wherever a name from a corpus, an index or a query is
+// printed for a person: the readers of this package reject such names, but
+// an index written by another tool, or a query, may still carry them.
+// O(len(s)).
+func EscapeControl(s string) string {
+	clean := true
+	for _, r := range s {
+		if isControl(r) || r == utf8.RuneError {
+			clean = false
+			break
+		}
+	}
+	if clean {
+		return s
+	}
+	var b strings.Builder
+	for i := 0; i < len(s); {
+		r, n := utf8.DecodeRuneInString(s[i:])
+		switch {
+		case r == utf8.RuneError && n <= 1:
+			fmt.Fprintf(&b, "\\x%02x", s[i])
+		case r < 0x80 && isControl(r):
+			fmt.Fprintf(&b, "\\x%02x", r)
+		case isControl(r):
+			fmt.Fprintf(&b, "\\u%04x", r)
+		default:
+			b.WriteString(s[i : i+n])
+		}
+		i += n
 	}
 	return b.String()
 }
@@ -170,10 +221,13 @@ type readConfig struct {
 	maxLine  int
 	tempDir  string
 	memLimit int64
+	// maxCtxEnts is the most entities one context may have (0: no limit).
+	maxCtxEnts int
 }
 
 func newReadConfig(opts []ReadOption) readConfig {
-	c := readConfig{policy: Lenient, maxLine: DefaultMaxLineBytes, memLimit: DefaultMemBudget}
+	c := readConfig{policy: Lenient, maxLine: DefaultMaxLineBytes, memLimit: DefaultMemBudget,
+		maxCtxEnts: DefaultMaxContextEntities}
 	for _, o := range opts {
 		if o != nil {
 			o.applyRead(&c)
@@ -184,10 +238,13 @@ func newReadConfig(opts []ReadOption) readConfig {
 
 type policyOption BadLinePolicy
 
-func (o policyOption) applyRead(c *readConfig) { c.policy = BadLinePolicy(o) }
+func (o policyOption) applyRead(c *readConfig)   { c.policy = BadLinePolicy(o) }
+func (o policyOption) applyBuild(c *buildConfig) { c.strict = BadLinePolicy(o) == Strict }
 
-// WithPolicy sets the bad-line policy of a reader (Lenient by default).
-func WithPolicy(p BadLinePolicy) ReadOption { return policyOption(p) }
+// WithPolicy sets the bad-line policy of a reader (Lenient by default). Given
+// to Build, Strict makes a context over WithMaxContextEntities an error
+// rather than a counted skip.
+func WithPolicy(p BadLinePolicy) SharedOption { return policyOption(p) }
 
 type maxLineOption int
 
@@ -261,14 +318,33 @@ func (b *badLines) Skipped() map[string]int {
 }
 
 // checkName validates one name, value or id; it returns a reason code or "".
+// One pass over ASCII names; from the first non-ASCII byte on, the rest is
+// validated as UTF-8 and scanned for C0, DEL and C1 (0xC2 0x80–0x9F)
+// controls.
 func checkName(s []byte) string {
 	switch {
 	case len(s) == 0:
 		return ReasonEmptyName
 	case len(s) > MaxNameBytes:
 		return ReasonNameTooLong
-	case !utf8.Valid(s):
-		return ReasonBadUTF8
+	}
+	for i, c := range s {
+		if c < 0x20 || c == 0x7f {
+			return ReasonControlChar
+		}
+		if c < 0x80 {
+			continue
+		}
+		rest := s[i:]
+		if !utf8.Valid(rest) {
+			return ReasonBadUTF8
+		}
+		for j, d := range rest {
+			if d < 0x20 || d == 0x7f || (d == 0xc2 && j+1 < len(rest) && rest[j+1] <= 0x9f) {
+				return ReasonControlChar
+			}
+		}
+		return ""
 	}
 	return ""
 }

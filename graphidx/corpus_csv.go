@@ -42,7 +42,12 @@ import (
 //
 // Row errors are reported at the row's first line: too-many-columns,
 // too-few-columns, bad-quote, line-too-long, missing-id, empty-name,
-// name-too-long, bad-utf8. A second row for the same (context, entity) pair
+// name-too-long, bad-utf8, control-char (a newline inside a quoted field is
+// a control character in a name). A quote still open at the end of the
+// input is one bad-quote error whose detail names the lines it swallowed.
+// A context with more rows than WithMaxContextEntities is skipped whole
+// (too-many-entities, counted once per row, reported at its first row)
+// without holding more than the limit of its rows. A second row for the same (context, entity) pair
 // is a duplicate-entity error at the later row, whatever its value; in
 // lenient mode the earlier row is kept. Duplicate errors surface during the
 // merge, after the whole file has been read. A CSVReader is not safe for
@@ -56,9 +61,10 @@ type CSVReader struct {
 	cols  int
 	state int // 0 before header, 1 reading, 2 emitting, 3 done
 
-	rec    []byte
-	fields [][]byte
-	recErr string // reason of the last record's framing error, or ""
+	rec       []byte
+	fields    [][]byte
+	recErr    string // reason of the last record's framing error, or ""
+	recDetail string // its detail, or ""
 
 	rows    []csvRow
 	ctxIntn map[string]string
@@ -66,11 +72,12 @@ type CSVReader struct {
 	tmpDir  string
 	runs    []string
 
-	merge  *csvMerger
-	obs    []Observation
-	group  []csvRow
-	fatal  error
-	closed bool
+	merge     *csvMerger
+	obs       []Observation
+	group     []csvRow
+	groupLine int // first line of the context Next returned last
+	fatal     error
+	closed    bool
 }
 
 type csvRow struct {
@@ -103,6 +110,9 @@ func (r *CSVReader) Skipped() map[string]int { return r.bl.Skipped() }
 
 // BytesRead is the number of input bytes consumed so far.
 func (r *CSVReader) BytesRead() int64 { return r.lr.bytes }
+
+// position names the first row of the context Next returned last.
+func (r *CSVReader) position() (string, int) { return r.name, r.groupLine }
 
 // SpillRuns is the number of sorted runs the reader wrote to group rows.
 func (r *CSVReader) SpillRuns() int { return len(r.runs) }
@@ -275,6 +285,7 @@ func (r *CSVReader) record() (int, error) {
 		return 0, nil
 	}
 	r.rec = append(r.rec[:0], line...)
+	r.recDetail = ""
 	for {
 		var st int
 		r.fields, st = splitCSV(r.rec, r.fields[:0])
@@ -290,6 +301,12 @@ func (r *CSVReader) record() (int, error) {
 		next, err := r.lr.next()
 		if err == io.EOF {
 			r.fields, r.recErr = nil, ReasonBadQuote
+			if last := r.lr.line; last > first {
+				// The open quote ran to the end of the input: say which
+				// lines (and so which rows) it swallowed.
+				r.recDetail = fmt.Sprintf("quote opened on line %d never closes; it swallowed lines %d-%d (%d lines, rows on them were not read)",
+					first, first+1, last, last-first)
+			}
 			return first, nil
 		}
 		if err != nil {
@@ -315,7 +332,7 @@ func (r *CSVReader) record() (int, error) {
 // row validates r.fields and buffers the row.
 func (r *CSVReader) row(first int) *LineError {
 	if r.recErr != "" {
-		return &LineError{Reason: r.recErr}
+		return &LineError{Reason: r.recErr, Detail: r.recDetail}
 	}
 	switch {
 	case len(r.fields) > r.cols:
@@ -471,11 +488,29 @@ func (r *CSVReader) nextGroup() (Context, error) {
 		}
 		head := m.items[0].cur
 		r.group = r.group[:0]
+		limit, rows := r.cfg.maxCtxEnts, 0
 		for m.Len() > 0 && m.items[0].cur.ctx == head.ctx {
-			r.group = append(r.group, m.items[0].cur)
+			// A context over the limit keeps no more rows than the limit:
+			// the rest are only counted, so its memory stays O(limit).
+			if rows++; limit <= 0 || rows <= limit {
+				r.group = append(r.group, m.items[0].cur)
+			}
 			if err := m.advance(); err != nil {
 				return Context{}, err
 			}
+		}
+		r.groupLine = r.group[0].line
+		if limit > 0 && rows > limit {
+			// Too wide: every row of the context is skipped, counted under
+			// one reason; the error names the context's first row.
+			le := &LineError{File: r.name, Line: r.groupLine, Field: "context", Reason: ReasonTooManyEntities,
+				Detail: fmt.Sprintf("context %s has %d rows, more than %d entities in one context; all its rows were skipped",
+					strconv.Quote(head.ctx), rows, limit)}
+			if e := r.bl.bad(le); e != nil {
+				return Context{}, e
+			}
+			r.bl.stats.Skipped[ReasonTooManyEntities] += int64(rows) - 1
+			continue
 		}
 		// Rows are in line order; a stable sort by entity keeps the first.
 		slices.SortStableFunc(r.group, func(a, b csvRow) int { return strings.Compare(a.ent, b.ent) })

@@ -1,6 +1,7 @@
 package graphidx
 
 import (
+	"bytes"
 	"fmt"
 	"io"
 	"strconv"
@@ -22,9 +23,15 @@ import (
 //     neither, or with an empty one, is rejected (empty-context).
 //   - An entity repeated in one line is rejected (duplicate-entity), whether
 //     the values differ or not; so is a repeated top-level key (bad-field).
-//   - Names and values are non-empty (empty-name), valid UTF-8 (bad-utf8) and
-//     at most MaxNameBytes long (name-too-long).
-//   - Other top-level keys are ignored, so lines may carry metadata.
+//   - Names, values and ids are non-empty (empty-name), valid UTF-8 without
+//     lone UTF-16 surrogate escapes such as "\ud800" (bad-utf8), free of
+//     control characters (control-char) and at most MaxNameBytes long
+//     (name-too-long).
+//   - A line names at most WithMaxContextEntities entities
+//     (too-many-entities); parsing stops at the first one over.
+//   - Other top-level keys are ignored, so lines may carry metadata, except
+//     keys that differ from "id", "obs" or "ents" only in case ("ID",
+//     "Obs"), which are rejected (bad-field) rather than silently ignored.
 //   - Blank lines are ignored and are not records.
 //
 // The parser is a hand-written scanner for this schema: it allocates one
@@ -54,6 +61,7 @@ type JSONLReader struct {
 	// copies what it keeps, and skipping the interner saves a map lookup
 	// per observation.
 	transient bool
+	maxEnts   int // most entities per line (0: no limit)
 }
 
 func (r *JSONLReader) setTransient(on bool) { r.transient = on }
@@ -70,7 +78,7 @@ func (r *JSONLReader) str(s []byte) string {
 // name used in errors.
 func NewJSONLReader(r io.Reader, name string, opts ...ReadOption) *JSONLReader {
 	cfg := newReadConfig(opts)
-	jr := &JSONLReader{lr: newLineReader(r, cfg.maxLine), name: name}
+	jr := &JSONLReader{lr: newLineReader(r, cfg.maxLine), name: name, maxEnts: cfg.maxCtxEnts}
 	jr.bl.init(cfg.policy)
 	return jr
 }
@@ -117,6 +125,9 @@ func (r *JSONLReader) Next() (Context, error) {
 	}
 }
 
+// position names the line of the context Next returned last.
+func (r *JSONLReader) position() (string, int) { return r.name, r.lr.line }
+
 // Stats returns the line accounting so far.
 func (r *JSONLReader) Stats() ReadStats { return r.bl.snapshot() }
 
@@ -137,7 +148,7 @@ func isBlank(b []byte) bool {
 
 func (r *JSONLReader) parse(line []byte) (Context, *LineError) {
 	p := &r.p
-	p.b, p.i = line, 0
+	p.b, p.i, p.badSurrogate = line, 0, false
 	r.obs = r.obs[:0]
 	var (
 		c                        Context
@@ -163,6 +174,11 @@ func (r *JSONLReader) parse(line []byte) (Context, *LineError) {
 				k = "obs"
 			case "ents":
 				k = "ents"
+			default:
+				if v := caseVariant(key); v != "" {
+					return c, &LineError{Field: EscapeControl(string(key)), Reason: ReasonBadField,
+						Detail: fmt.Sprintf("key differs from %q only in case", v)}
+				}
 			}
 			p.ws()
 			if !p.eat(':') {
@@ -250,6 +266,29 @@ func (r *JSONLReader) parse(line []byte) (Context, *LineError) {
 	return c, nil
 }
 
+// caseVariant returns the known key ("id", "obs", "ents") that key matches
+// case-insensitively but not exactly, or "". Such a key is rejected rather
+// than ignored as metadata: {"ID":"a","id":"b"} or {"Obs":{...}} is a
+// mistake, and readers that fold case would take the other key.
+func caseVariant(key []byte) string {
+	for _, k := range [...]string{"id", "obs", "ents"} {
+		if len(key) == len(k) && string(key) != k && bytes.EqualFold(key, []byte(k)) {
+			return k
+		}
+	}
+	return ""
+}
+
+// tooMany reports a line with more entities than the reader's limit; the
+// caller stops parsing it, so a wide line costs O(limit) memory.
+func (r *JSONLReader) tooMany(field string) *LineError {
+	if r.maxEnts > 0 && len(r.obs) > r.maxEnts {
+		return &LineError{Field: field, Reason: ReasonTooManyEntities,
+			Detail: fmt.Sprintf("more than %d entities in one context", r.maxEnts)}
+	}
+	return nil
+}
+
 func (r *JSONLReader) parseObs() *LineError {
 	p := &r.p
 	if p.peek() != '{' {
@@ -292,6 +331,9 @@ func (r *JSONLReader) parseObs() *LineError {
 			return &LineError{Field: "obs." + ent, Reason: why, Detail: "value"}
 		}
 		r.obs = append(r.obs, Observation{Entity: ent, Value: r.str(v)})
+		if le := r.tooMany("obs"); le != nil {
+			return le
+		}
 		p.ws()
 		if p.eat(',') {
 			continue
@@ -333,6 +375,9 @@ func (r *JSONLReader) parseEnts() *LineError {
 			return &LineError{Field: fmt.Sprintf("ents[%d]", n), Reason: why}
 		}
 		r.obs = append(r.obs, Observation{Entity: r.str(s), Value: PresentValue})
+		if le := r.tooMany("ents"); le != nil {
+			return le
+		}
 		p.ws()
 		if p.eat(',') {
 			continue
@@ -350,11 +395,17 @@ type jparser struct {
 	i       int
 	scratch []byte
 	escaped bool // the last string had escapes (decoded into scratch)
+	// badSurrogate: the last string failed on a lone UTF-16 surrogate
+	// escape; syntax reports it as bad-utf8 instead of bad-json.
+	badSurrogate bool
 }
 
 const maxJSONDepth = 512
 
 func (p *jparser) syntax(msg string) *LineError {
+	if p.badSurrogate {
+		return &LineError{Reason: ReasonBadUTF8, Detail: fmt.Sprintf("column %d: lone UTF-16 surrogate escape", p.i+1)}
+	}
 	return &LineError{Reason: ReasonBadJSON, Detail: fmt.Sprintf("column %d: %s", p.i+1, msg)}
 }
 
@@ -390,7 +441,7 @@ func (p *jparser) str() ([]byte, bool) {
 	if !p.eat('"') {
 		return nil, false
 	}
-	p.escaped = false
+	p.escaped, p.badSurrogate = false, false
 	start := p.i
 	for p.i < len(p.b) {
 		c := p.b[p.i]
@@ -451,24 +502,22 @@ func (p *jparser) strSlow(start int) ([]byte, bool) {
 				return nil, false
 			}
 			if utf16.IsSurrogate(r) {
-				// A high surrogate followed by a low one is one rune; a lone
-				// surrogate decodes to U+FFFD, as encoding/json does.
-				r2 := rune(-1)
-				if p.i+1 < len(p.b) && p.b[p.i] == '\\' && p.b[p.i+1] == 'u' {
-					save := p.i
-					p.i += 2
-					var ok2 bool
-					if r2, ok2 = p.hex4(); !ok2 {
-						return nil, false
-					}
-					if d := utf16.DecodeRune(r, r2); d != utf8.RuneError {
-						r = d
-					} else {
-						p.i = save
-						r = utf8.RuneError
-					}
-				} else {
-					r = utf8.RuneError
+				// A high surrogate followed by a low one is one rune. A lone
+				// surrogate is rejected (encoding/json would decode it to
+				// U+FFFD, merging distinct names): the string fails with
+				// badSurrogate set, and the caller reports bad-utf8.
+				if p.i+1 >= len(p.b) || p.b[p.i] != '\\' || p.b[p.i+1] != 'u' {
+					p.badSurrogate = true
+					return nil, false
+				}
+				p.i += 2
+				r2, ok2 := p.hex4()
+				if !ok2 {
+					return nil, false
+				}
+				if r = utf16.DecodeRune(r, r2); r == utf8.RuneError {
+					p.badSurrogate = true
+					return nil, false
 				}
 			}
 			out = utf8.AppendRune(out, r)

@@ -18,11 +18,11 @@ type JSONLLineParser struct {
 }
 
 // NewJSONLLineParser returns a parser whose errors name the file name.
-// Only WithMaxLineBytes is used from opts; the bad-line policy belongs to
+// Only WithMaxLineBytes and WithMaxContextEntities are used from opts; the bad-line policy belongs to
 // the caller, who decides whether to stop or to count and skip.
 func NewJSONLLineParser(name string, opts ...ReadOption) *JSONLLineParser {
 	cfg := newReadConfig(opts)
-	return &JSONLLineParser{name: name, max: cfg.maxLine}
+	return &JSONLLineParser{name: name, max: cfg.maxLine, r: JSONLReader{maxEnts: cfg.maxCtxEnts}}
 }
 
 // Parse parses one line. blank is true for a blank line, which is not a

@@ -57,6 +57,8 @@ func WithoutMmap() OpenOption { return openOptionFunc(func(c *openConfig) { c.no
 type Index struct {
 	path    string
 	size    int64
+	fi      os.FileInfo // the file as opened, to tell an in-place change (Guard)
+	mapped  []byte      // the memory map, nil when the file was read
 	v       atomic.Pointer[view]
 	mu      sync.Mutex
 	closed  bool
@@ -105,7 +107,9 @@ var closedView = &view{closed: true}
 //
 // The file must not be modified or truncated in place while it is open
 // (WriteFile never does: it replaces files by rename, and an open Index
-// keeps reading the old content). Truncating a mapped file makes reads fault.
+// keeps reading the old content). Truncating a mapped file makes reads
+// fault (SIGBUS), which kills the process unless the read runs inside
+// Guard; overwriting it in place changes the content under the reader.
 func Open(path string, opts ...OpenOption) (*Index, error) {
 	var cfg openConfig
 	for _, o := range opts {
@@ -147,7 +151,10 @@ func Open(path string, opts ...OpenOption) (*Index, error) {
 		}
 		return nil, err
 	}
-	x := &Index{path: path, size: size, release: release}
+	x := &Index{path: path, size: size, fi: st, release: release}
+	if size >= headerSize && !cfg.noMmap && mmapSupported {
+		x.mapped = data
+	}
 	x.v.Store(v)
 	return x, nil
 }

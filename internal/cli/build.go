@@ -23,7 +23,8 @@ func init() { register(newBuildCmd) }
 type buildOpts struct {
 	corpus, format, lexicon, out, tempDir, memBudget string
 	minSupport                                       uint64
-	maxNeighbors, workers                            int
+	maxNeighbors, workers, maxContextEntities        int
+	minValidShare                                    float64
 	strict, quiet                                    bool
 	counts                                           buildCountsOpts
 	lex                                              *graphidx.Lexicon // loaded --lexicon of a text corpus
@@ -53,6 +54,15 @@ Bad lines. By default a bad line is skipped and counted by reason (bad-json,
 missing-id, duplicate-entity, too-many-columns, ...); the counts and the first
 example of each are printed at the end. --strict stops at the first bad line
 with "file:line: field: reason". Nothing is dropped without being counted.
+Names, values and ids with control characters (control-char) or lone UTF-16
+surrogate escapes (bad-utf8) are bad lines, and JSONL keys that differ from
+"id", "obs" or "ents" only in case are rejected (bad-field).
+
+Guards. A context with more than --max-context-entities entities (its
+n(n-1)/2 pairs would dominate the build) is a bad line (too-many-entities).
+A build that reads no valid context, or whose valid share of records is
+below --min-valid-share, fails with exit status 2 and leaves --out as it was:
+a garbage or empty corpus never replaces a good index.
 
 Memory. --mem-budget bounds the builder's dictionary and count tables; when
 they fill it, sorted runs are spilled to --temp-dir and merged at the end,
@@ -80,8 +90,11 @@ corpus; the shards are mapped, not read into the heap.
 
 Progress goes to stderr: a bar on a terminal, a line every few seconds
 otherwise (--quiet silences both). The summary goes to stdout.
+Ctrl-C (SIGINT) or SIGTERM stops the build in any phase, removes its
+temporary files and leaves --out untouched.
 Exit status: 0 on success, 2 for bad input (a bad line with --strict, a bad
-CSV header or lexicon, too many values), 1 for other errors.`,
+CSV header or lexicon, too many values, no or too few valid records), 1 for
+other errors.`,
 		Example: `  hopwise build --corpus greenhouse.jsonl --out greenhouse.idx
   hopwise build --corpus notes.txt --lexicon lexicon.tsv --out notes.idx --min-support 2
   hopwise build --corpus big.csv --out big.idx --mem-budget 256MiB --workers 2 --strict`,
@@ -101,6 +114,10 @@ CSV header or lexicon, too many values), 1 for other errors.`,
 	f.IntVar(&o.workers, "workers", 0, "counting goroutines (0: one per core)")
 	f.StringVar(&o.tempDir, "temp-dir", "", "directory for spilled runs (default: the system temp dir)")
 	f.BoolVar(&o.strict, "strict", false, "stop at the first bad line instead of skipping and counting it")
+	f.IntVar(&o.maxContextEntities, "max-context-entities", graphidx.DefaultMaxContextEntities,
+		"skip (with --strict: reject) contexts with more entities (0: no limit)")
+	f.Float64Var(&o.minValidShare, "min-valid-share", graphidx.DefaultMinValidShare,
+		"fail, keeping --out, when fewer than this share of records is valid (0: off)")
 	f.BoolVar(&o.quiet, "quiet", false, "no progress output")
 	addBuildCountsFlags(cmd, &o.counts)
 	_ = cmd.MarkFlagRequired("out")
@@ -126,6 +143,12 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	if o.workers == 0 {
 		o.workers = runtime.GOMAXPROCS(0)
 	}
+	if o.maxContextEntities < 0 {
+		return &ExitError{Code: 2, Err: fmt.Errorf("--max-context-entities must not be negative, got %d", o.maxContextEntities)}
+	}
+	if !(o.minValidShare >= 0 && o.minValidShare <= 1) {
+		return &ExitError{Code: 2, Err: fmt.Errorf("--min-valid-share must be in [0, 1], got %g", o.minValidShare)}
+	}
 	format := o.format
 	if format == "" {
 		format = graphidx.DetectFormat(o.corpus)
@@ -150,7 +173,8 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 		buildBudget -= o.lex.Stats().MemBytes
 	}
 	r, closer, err := graphidx.OpenCorpus(o.corpus, format, o.lexicon, graphidx.WithLexicon(o.lex),
-		graphidx.WithPolicy(policy), graphidx.WithMemBudget(readBudget), graphidx.WithTempDir(o.tempDir))
+		graphidx.WithPolicy(policy), graphidx.WithMemBudget(readBudget), graphidx.WithTempDir(o.tempDir),
+		graphidx.WithMaxContextEntities(o.maxContextEntities))
 	if err != nil {
 		return classifyBuildErr(err)
 	}
@@ -165,7 +189,8 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	sum, err := graphidx.Build(cmd.Context(), r, o.out,
 		graphidx.WithMemBudget(buildBudget), graphidx.WithTempDir(o.tempDir), graphidx.WithWorkers(o.workers),
 		graphidx.WithMinSupport(o.minSupport), graphidx.WithMaxNeighbors(o.maxNeighbors),
-		graphidx.WithProgress(progress))
+		graphidx.WithProgress(progress), graphidx.WithPolicy(policy),
+		graphidx.WithMaxContextEntities(o.maxContextEntities), graphidx.WithMinValidShare(o.minValidShare))
 	done()
 	if err != nil {
 		if n := sum.Read.SkippedTotal(); n > 0 && !o.quiet {
@@ -198,7 +223,8 @@ func buildCountsOut(cmd *cobra.Command, o buildOpts, format string, policy graph
 			cells, o.counts.shards)
 	}
 	open := func() (graphidx.ContextReader, io.Closer, error) {
-		return graphidx.OpenCorpus(o.corpus, format, o.lexicon, graphidx.WithLexicon(o.lex), graphidx.WithPolicy(policy), graphidx.WithTempDir(o.tempDir))
+		return graphidx.OpenCorpus(o.corpus, format, o.lexicon, graphidx.WithLexicon(o.lex), graphidx.WithPolicy(policy),
+			graphidx.WithTempDir(o.tempDir), graphidx.WithMaxContextEntities(o.maxContextEntities))
 	}
 	var progress func(int)
 	if passes > 1 && !o.quiet {
@@ -247,7 +273,8 @@ func classifyBuildErr(err error) error {
 	switch {
 	case errors.As(err, &le), errors.Is(err, graphidx.ErrTooManyValues), errors.Is(err, graphidx.ErrUnknownFormat),
 		errors.Is(err, graphidx.ErrLexiconRequired), errors.Is(err, graphidx.ErrDuplicateEntity),
-		errors.Is(err, graphidx.ErrTooManyEntities), errors.Is(err, graphidx.ErrCountOverflow):
+		errors.Is(err, graphidx.ErrTooManyEntities), errors.Is(err, graphidx.ErrCountOverflow),
+		errors.Is(err, graphidx.ErrNoContexts), errors.Is(err, graphidx.ErrTooFewValid), errors.Is(err, graphidx.ErrWideContext):
 		return &ExitError{Code: 2, Err: err}
 	}
 	return err

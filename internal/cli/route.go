@@ -10,9 +10,13 @@ import (
 	"io"
 	"os"
 	"runtime"
+	"slices"
+	"strconv"
 	"strings"
 	"sync"
 	"time"
+	"unicode/utf16"
+	"unicode/utf8"
 
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/router"
@@ -88,8 +92,21 @@ Estimates cover every value of the target, in the index's value order; a
 decision from a configured --fallback has neither estimate nor error figure.
 A text line gives {"id","text","presence_only","mentions":[...],
 "decisions":[{<view>,"plan":{...},"prompt":"..."}],"dropped":n}. A bad line
-gives {"id":...,"error":"line N: ..."} and the batch goes on. Decisions run on
+gives {"id":...,"error":"line N: ..."} and the batch goes on: keys are
+matched exactly (a repeated key, an unknown key or one differing only in
+case, e.g. "From", is an error), strings must be valid UTF-8 without lone
+surrogate escapes, and each field is at most 4096 bytes (checked before it is
+decoded). Lines are processed in chunks of at most 1024 lines or 8 MiB, so
+memory stays bounded whatever --max-line-bytes is. Decisions run on
 --workers goroutines; output order is always input order.
+
+The index is memory-mapped: replace it by rename (hopwise build does), never
+by writing over it in place (cp, truncate, >). If the file is truncated or
+overwritten while route runs, the decision in flight fails with an error
+naming the file instead of crashing the process (the file is also checked
+after every chunk of a batch, since an overwrite may be read without a
+fault), and a batch writes its current chunk's lines as errors and stops,
+exit status 1.
 
 Settings come from --config FILE.json (the router.Config format, also
 written by "hopwise tune") and are overridden by the flags given explicitly.
@@ -212,6 +229,7 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 		return err
 	}
 	defer r.Close()
+	gd := guardedDecider{r: r, ix: ix, timeout: o.timeout}
 	ctx := cmd.Context()
 	if ctx == nil {
 		ctx = context.Background()
@@ -220,15 +238,21 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 	defer out.Flush()
 
 	if text {
-		return o.tp.runSingle(ctx, r, out, o)
+		return o.tp.runSingle(ctx, gd, out, o)
 	}
 	if single {
 		q := routeQuery{ID: "", From: o.from, Value: o.value, To: o.to, Key: o.key}
-		d, err := decideSingle(ctx, r, &q, o.timeout)
+		d, err := decideSingle(ctx, gd, &q)
+		if err == nil {
+			err = ix.CheckFile()
+		}
 		if err != nil {
 			if o.json {
 				line, _ := json.Marshal(routeError{ID: nil, Error: err.Error()})
 				out.Write(append(line, '\n'))
+			}
+			if errors.Is(err, graphidx.ErrFileChanged) {
+				return err
 			}
 			return &ExitError{Code: 2, Err: err}
 		}
@@ -254,7 +278,7 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 		defer f.Close()
 		in = f
 	}
-	failed, total, err := routeBatch(ctx, r, in, o.queries, out, o)
+	failed, total, err := routeBatch(ctx, gd, in, o.queries, out, o)
 	if err != nil {
 		return err
 	}
@@ -267,13 +291,28 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 	return nil
 }
 
-func decideOne(ctx context.Context, r *router.Router, q routeQuery, timeout time.Duration) (router.Decision, error) {
-	if timeout > 0 {
+// guardedDecider decides queries on r inside ix.Guard, so that an index
+// file truncated or overwritten under its memory map fails the decision
+// with a *graphidx.FaultError naming the file instead of killing the
+// process with SIGBUS.
+type guardedDecider struct {
+	r       *router.Router
+	ix      *graphidx.Index
+	timeout time.Duration
+}
+
+func (g guardedDecider) decide(ctx context.Context, q routeQuery) (d router.Decision, err error) {
+	if g.timeout > 0 {
 		var cancel context.CancelFunc
-		ctx, cancel = context.WithTimeout(ctx, timeout)
+		ctx, cancel = context.WithTimeout(ctx, g.timeout)
 		defer cancel()
 	}
-	return r.Decide(ctx, router.Query{From: q.From, Value: q.Value, To: q.To, Key: q.Key})
+	err = g.ix.Guard(func() error {
+		var derr error
+		d, derr = g.r.Decide(ctx, router.Query{From: q.From, Value: q.Value, To: q.To, Key: q.Key})
+		return derr
+	})
+	return d, err
 }
 
 // routeQuery is one batch input line.
@@ -311,48 +350,166 @@ type batchItem struct {
 	out   []byte
 }
 
-// parseQueryLine decodes one batch line strictly: unknown fields, missing
-// fields and trailing data are errors naming the line and the field.
+// maxQueryField is the longest accepted value of a batch field, in bytes:
+// the longest name an index can hold (graphidx.MaxNameBytes).
+const maxQueryField = graphidx.MaxNameBytes
+
+// queryFields are the keys of a batch line, matched exactly.
+var queryFields = [...]string{"id", "from", "value", "to", "key"}
+
+// parseQueryLine decodes one batch line strictly: each key once and spelt
+// exactly (encoding/json would match "From" to from and keep the last of
+// two), no unknown keys, string values only, valid UTF-8 without lone
+// surrogate escapes (encoding/json would turn them into U+FFFD), each value
+// at most maxQueryField bytes, checked on the raw bytes before decoding, and
+// nothing after the object. Errors name the line and the field.
 func parseQueryLine(b []byte, line int) (routeQuery, bool, error) {
-	var raw map[string]json.RawMessage
 	var q routeQuery
-	if err := json.Unmarshal(b, &raw); err != nil {
-		return q, false, fmt.Errorf("line %d: not a JSON object: %v", line, err)
-	}
-	_, idSet := raw["id"]
 	dec := json.NewDecoder(bytes.NewReader(b))
-	dec.DisallowUnknownFields()
-	if err := dec.Decode(&q); err != nil {
-		var te *json.UnmarshalTypeError
-		if errors.As(err, &te) {
-			return q, false, fmt.Errorf("line %d: field %q: want a %s, got %s", line, te.Field, te.Type, te.Value)
-		}
-		return q, false, fmt.Errorf("line %d: %v", line, err)
+	if tok, err := dec.Token(); err != nil || tok != json.Delim('{') {
+		return q, false, fmt.Errorf("line %d: not a JSON object", line)
 	}
-	for _, f := range []struct{ name, v string }{{"id", q.ID}, {"from", q.From}, {"value", q.Value}, {"to", q.To}} {
-		if _, ok := raw[f.name]; !ok {
-			return q, idSet, fmt.Errorf("line %d: missing field %q", line, f.name)
+	var seen [len(queryFields)]bool
+	for dec.More() {
+		tok, err := dec.Token()
+		if err != nil {
+			return q, seen[0], fmt.Errorf("line %d: not a JSON object: %v", line, err)
 		}
-		if f.v == "" && f.name != "id" {
-			return q, idSet, fmt.Errorf("line %d: field %q is empty", line, f.name)
+		key, _ := tok.(string)
+		i := slices.Index(queryFields[:], key)
+		if i < 0 {
+			for _, f := range queryFields {
+				if strings.EqualFold(key, f) {
+					return q, seen[0], fmt.Errorf("line %d: key %s differs from %q only in case", line, quoteField(key), f)
+				}
+			}
+			return q, seen[0], fmt.Errorf("line %d: unknown field %s", line, quoteField(key))
+		}
+		if seen[i] {
+			return q, seen[0], fmt.Errorf("line %d: field %q appears twice", line, key)
+		}
+		seen[i] = true
+		var raw json.RawMessage
+		if err := dec.Decode(&raw); err != nil {
+			return q, seen[0], fmt.Errorf("line %d: field %q: %v", line, key, err)
+		}
+		v, err := decodeQueryString(raw)
+		if err != nil {
+			return q, seen[0], fmt.Errorf("line %d: field %q: %v", line, key, err)
+		}
+		*[...]*string{&q.ID, &q.From, &q.Value, &q.To, &q.Key}[i] = v
+	}
+	if _, err := dec.Token(); err != nil {
+		return q, seen[0], fmt.Errorf("line %d: not a JSON object: %v", line, err)
+	}
+	if _, err := dec.Token(); err != io.EOF {
+		return q, seen[0], fmt.Errorf("line %d: data after the JSON object", line)
+	}
+	for i, f := range queryFields[:4] {
+		if !seen[i] {
+			return q, seen[0], fmt.Errorf("line %d: missing field %q", line, f)
+		}
+		if v := *[...]*string{&q.ID, &q.From, &q.Value, &q.To}[i]; v == "" && f != "id" {
+			return q, seen[0], fmt.Errorf("line %d: field %q is empty", line, f)
 		}
 	}
-	return q, idSet, nil
+	return q, seen[0], nil
+}
+
+// decodeQueryString decodes one JSON string value of a batch line. It
+// rejects other JSON types, values over maxQueryField bytes (on the raw
+// length first: an escape takes at most 6 bytes per decoded byte, so a raw
+// string over 6·maxQueryField+2 bytes is too long without decoding it),
+// invalid UTF-8 and lone UTF-16 surrogate escapes.
+func decodeQueryString(raw []byte) (string, error) {
+	if len(raw) == 0 || raw[0] != '"' {
+		kind := "a number"
+		switch {
+		case len(raw) == 0:
+			kind = "nothing"
+		case raw[0] == '{':
+			kind = "an object"
+		case raw[0] == '[':
+			kind = "an array"
+		case raw[0] == 't' || raw[0] == 'f':
+			kind = "a boolean"
+		case raw[0] == 'n':
+			kind = "null"
+		}
+		return "", fmt.Errorf("want a string, got %s", kind)
+	}
+	if len(raw) > 6*maxQueryField+2 {
+		return "", fmt.Errorf("longer than %d bytes", maxQueryField)
+	}
+	if !utf8.Valid(raw) {
+		return "", errors.New("not valid UTF-8")
+	}
+	if loneSurrogate(raw) {
+		return "", errors.New("lone UTF-16 surrogate escape (not a character)")
+	}
+	var v string
+	if err := json.Unmarshal(raw, &v); err != nil {
+		return "", err
+	}
+	if len(v) > maxQueryField {
+		return "", fmt.Errorf("longer than %d bytes", maxQueryField)
+	}
+	return v, nil
+}
+
+// loneSurrogate reports a \uD800–\uDFFF escape in the raw JSON string s
+// that is not a high surrogate directly followed by a low one.
+func loneSurrogate(s []byte) bool {
+	hex4 := func(i int) (rune, bool) {
+		if i+6 > len(s) || s[i] != '\\' || s[i+1] != 'u' {
+			return 0, false
+		}
+		v, err := strconv.ParseUint(string(s[i+2:i+6]), 16, 16)
+		return rune(v), err == nil
+	}
+	for i := 0; i < len(s); i++ {
+		if s[i] != '\\' {
+			continue
+		}
+		r, ok := hex4(i)
+		if !ok {
+			i++ // skip the escaped character (it may be a backslash)
+			continue
+		}
+		if utf16.IsSurrogate(r) {
+			r2, ok := hex4(i + 6)
+			if r >= 0xdc00 || !ok || r2 < 0xdc00 || r2 > 0xdfff {
+				return true
+			}
+			i += 6
+		}
+		i += 5
+	}
+	return false
+}
+
+// quoteField quotes a key for an error message, shortened to 64 bytes.
+func quoteField(k string) string {
+	if len(k) > 64 {
+		return strconv.Quote(k[:64]) + "..."
+	}
+	return strconv.Quote(k)
 }
 
 // routeBatch decides every line of in and writes the results in input
-// order. It processes chunks of lines with o.workers goroutines so memory
-// stays bounded. It returns the number of failed and total lines; err is
-// only for fatal I/O errors.
-func routeBatch(ctx context.Context, r *router.Router, in io.Reader, name string, out io.Writer, o routeOptions) (failed, total int, err error) {
+// order. It processes chunks of at most chunkLines lines and chunkBytes
+// input bytes with o.workers goroutines, so memory stays bounded whatever
+// the line limit. It returns the number of failed and total lines; err is
+// for fatal errors: I/O, and an index file changed under its map (the
+// chunk's lines are written first, the failed ones as errors).
+func routeBatch(ctx context.Context, gd guardedDecider, in io.Reader, name string, out io.Writer, o routeOptions) (failed, total int, err error) {
 	br := bufio.NewReaderSize(in, 64<<10)
-	const chunk = 1024
-	items := make([]batchItem, 0, chunk)
+	items := make([]batchItem, 0, chunkLines)
 	lineNo := 0
 	eof := false
 	for !eof {
 		items = items[:0]
-		for len(items) < chunk {
+		for n := 0; len(items) < chunkLines && n < chunkBytes; {
 			b, tooLong, rerr := readLine(br, o.maxLineBytes)
 			if rerr == io.EOF && b == nil && !tooLong {
 				eof = true
@@ -362,6 +519,7 @@ func routeBatch(ctx context.Context, r *router.Router, in io.Reader, name string
 				return failed, total, fmt.Errorf("%s: %w", name, rerr)
 			}
 			lineNo++
+			n += len(b)
 			it := batchItem{line: lineNo}
 			switch {
 			case tooLong:
@@ -377,20 +535,44 @@ func routeBatch(ctx context.Context, r *router.Router, in io.Reader, name string
 				break
 			}
 		}
-		decideChunk(ctx, r, items, o)
+		decideChunk(ctx, gd, items, o)
+		// A file overwritten in place may be read without a fault (new
+		// bytes at old offsets): check it once per chunk and withhold the
+		// chunk's answers when it changed.
+		changed := gd.ix.CheckFile()
+		for i := range items {
+			if it := &items[i]; changed != nil && it.err == nil {
+				it.err = fmt.Errorf("line %d: answer withheld: %w", it.line, changed)
+				it.out = errorLine(it)
+			}
+		}
 		for i := range items {
 			it := &items[i]
 			total++
 			if it.err != nil {
 				failed++
+				if changed == nil && errors.Is(it.err, graphidx.ErrFileChanged) {
+					changed = it.err
+				}
 			}
 			if _, werr := out.Write(it.out); werr != nil {
 				return failed, total, werr
 			}
 		}
+		if changed != nil {
+			return failed, total, fmt.Errorf("route: stopped after input line %d: %w", lineNo, changed)
+		}
 	}
 	return failed, total, nil
 }
+
+// Chunk bounds of a batch: lines are read, decided and written chunk by
+// chunk, so at most this much input is held at once (each line's decoded
+// fields are at most 5·maxQueryField bytes).
+const (
+	chunkLines = 1024
+	chunkBytes = 8 << 20
+)
 
 // readLine returns the next line without its newline. A line longer than
 // max is consumed and reported as tooLong. At the end it returns io.EOF,
@@ -422,34 +604,39 @@ func readLine(br *bufio.Reader, max int) (line []byte, tooLong bool, err error) 
 	}
 }
 
+// errorLine renders the error output line of a failed item.
+func errorLine(it *batchItem) []byte {
+	e := routeError{Error: it.err.Error()}
+	if it.idSet {
+		id := it.q.ID
+		e.ID = &id
+	}
+	b, _ := json.Marshal(e)
+	return append(b, '\n')
+}
+
 // decideChunk decides the items on o.workers goroutines and renders each
 // item's output line.
-func decideChunk(ctx context.Context, r *router.Router, items []batchItem, o routeOptions) {
+func decideChunk(ctx context.Context, gd guardedDecider, items []batchItem, o routeOptions) {
 	work := func(it *batchItem) {
 		if it.err == nil && it.q.Text != "" {
-			if it.out, it.err = o.tp.batchLine(ctx, r, it.q, it.line, o); it.out != nil {
+			if it.out, it.err = o.tp.batchLine(ctx, gd, it.q, it.line, o); it.out != nil {
 				return
 			}
 			it.err = fmt.Errorf("line %d: %w", it.line, it.err)
 		}
 		if it.err == nil {
-			d, err := decideOne(ctx, r, it.q, o.timeout)
+			d, err := gd.decide(ctx, it.q)
 			if err != nil {
 				it.err = fmt.Errorf("line %d: %w", it.line, err)
-			} else if b, err := json.Marshal(newRouteLine(it.q, d, r.ErrorMeasure())); err != nil {
+			} else if b, err := json.Marshal(newRouteLine(it.q, d, gd.r.ErrorMeasure())); err != nil {
 				it.err = fmt.Errorf("line %d: %w", it.line, err)
 			} else {
 				it.out = append(b, '\n')
 				return
 			}
 		}
-		e := routeError{Error: it.err.Error()}
-		if it.idSet {
-			id := it.q.ID
-			e.ID = &id
-		}
-		b, _ := json.Marshal(e)
-		it.out = append(b, '\n')
+		it.out = errorLine(it)
 	}
 	w := o.workers
 	if w > len(items) {
@@ -476,6 +663,17 @@ func decideChunk(ctx context.Context, r *router.Router, items []batchItem, o rou
 
 // explain prints a readable account of one decision.
 func explain(w io.Writer, q routeQuery, d router.Decision, cfg router.Config, m router.ErrorMeasure) error {
+	// Names come from the command line and the index: escape control
+	// characters so that printing them cannot drive the terminal.
+	esc := graphidx.EscapeControl
+	escAll := func(ss []string) []string {
+		out := make([]string, len(ss))
+		for i, x := range ss {
+			out[i] = esc(x)
+		}
+		return out
+	}
+	q = routeQuery{From: esc(q.From), Value: esc(q.Value), To: esc(q.To)}
 	var b strings.Builder
 	fmtDist := func(p []float64) string {
 		if len(p) == 0 {
@@ -484,7 +682,7 @@ func explain(w io.Writer, q routeQuery, d router.Decision, cfg router.Config, m 
 		parts := make([]string, 0, len(p))
 		for i, v := range p {
 			if i < len(d.Values) {
-				parts = append(parts, fmt.Sprintf("%s %.3f", d.Values[i], v))
+				parts = append(parts, fmt.Sprintf("%s %.3f", esc(d.Values[i]), v))
 			}
 		}
 		return strings.Join(parts, "  ")
@@ -492,10 +690,10 @@ func explain(w io.Writer, q routeQuery, d router.Decision, cfg router.Config, m 
 	fmt.Fprintf(&b, "query      %s = %s  →  %s\n", q.From, q.Value, q.To)
 	mode := d.Mode.String()
 	if d.Mode == router.ModeChain && len(d.Bridges) > 0 {
-		mode += " via " + strings.Join(d.Bridges, " → ")
+		mode += " via " + strings.Join(escAll(d.Bridges), " → ")
 	}
 	fmt.Fprintf(&b, "decision   %s\n", mode)
-	fmt.Fprintf(&b, "reason     %s: %s\n", d.Reason.Code, d.Reason.Text)
+	fmt.Fprintf(&b, "reason     %s: %s\n", d.Reason.Code, esc(d.Reason.Text))
 	// A target with one label (presence-only) has no distribution to show;
 	// its figures are the support proxy, not a probability error.
 	proxy := m == router.MeasureSupportProxy
@@ -530,7 +728,7 @@ func explain(w io.Writer, q routeQuery, d router.Decision, cfg router.Config, m 
 		fmt.Fprintf(&b, "direct     %s\n", withDist(d.Direct.Estimate, fmt.Sprintf("%s %.4g, support %d contexts", errName, d.Direct.Err, d.Direct.Support)))
 	}
 	if d.Chain != nil {
-		path := append(append([]string{q.From}, d.Chain.Bridges...), q.To)
+		path := append(append([]string{q.From}, escAll(d.Chain.Bridges)...), q.To)
 		fmt.Fprintf(&b, "chain      %s\n", strings.Join(path, " → "))
 		fmt.Fprintf(&b, "           %s\n", withDist(d.Chain.Estimate, fmt.Sprintf("%s %.4g, weakest edge %d contexts", errName, d.Chain.Err, d.Chain.MinSupport)))
 		rule := fmt.Sprintf("direct %s − chain %s = %.4g", errName, errName, d.Gain)
@@ -548,7 +746,7 @@ func explain(w io.Writer, q routeQuery, d router.Decision, cfg router.Config, m 
 		fmt.Fprintf(&b, "search     complete: no bound was hit\n")
 	}
 	if d.Arm != "" || d.Propensity != 1 {
-		fmt.Fprintf(&b, "policy     arm %q, propensity %.4g, explored %v\n", d.Arm, d.Propensity, d.Explored)
+		fmt.Fprintf(&b, "policy     arm %s, propensity %.4g, explored %v\n", esc(strconv.Quote(d.Arm)), d.Propensity, d.Explored)
 	}
 	fmt.Fprintf(&b, "index      generation %016x\n", d.Generation)
 	_, err := io.WriteString(w, b.String())

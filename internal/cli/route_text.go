@@ -11,7 +11,6 @@ import (
 	"slices"
 	"strconv"
 	"strings"
-	"time"
 
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/router"
@@ -92,7 +91,17 @@ type textResult struct {
 
 // decide links, decides and plans text. On an error the result still
 // holds the mentions found (td.Mentions), for the report.
-func (tp *textPlanner) decide(ctx context.Context, r *router.Router, text, key string, o routeOptions) (textResult, error) {
+// Linking, deciding and planning run inside the index's fault guard, like
+// every other read of the mapped index (see guardedDecider).
+func (tp *textPlanner) decide(ctx context.Context, gd guardedDecider, text, key string, o routeOptions) (res textResult, err error) {
+	err = gd.ix.Guard(func() error {
+		res, err = tp.decideUnguarded(ctx, gd.r, text, key, o)
+		return err
+	})
+	return res, err
+}
+
+func (tp *textPlanner) decideUnguarded(ctx context.Context, r *router.Router, text, key string, o routeOptions) (textResult, error) {
 	if o.timeout > 0 {
 		var cancel context.CancelFunc
 		ctx, cancel = context.WithTimeout(ctx, o.timeout)
@@ -141,8 +150,12 @@ func (tp *textPlanner) toJSON(id *string, text string, res textResult, m router.
 
 // runSingle is `route --text`: the readable account, or with --json one
 // JSON object.
-func (tp *textPlanner) runSingle(ctx context.Context, r *router.Router, out io.Writer, o routeOptions) error {
-	res, err := tp.decide(ctx, r, o.text, o.key, o)
+func (tp *textPlanner) runSingle(ctx context.Context, gd guardedDecider, out io.Writer, o routeOptions) error {
+	r := gd.r
+	res, err := tp.decide(ctx, gd, o.text, o.key, o)
+	if err == nil {
+		err = gd.ix.CheckFile()
+	}
 	if o.json {
 		b, merr := json.Marshal(tp.toJSON(nil, o.text, res, r.ErrorMeasure(), err))
 		if merr != nil {
@@ -158,6 +171,9 @@ func (tp *textPlanner) runSingle(ctx context.Context, r *router.Router, out io.W
 		if !o.json {
 			fmt.Fprintf(out, "error      %v\n", err)
 		}
+		if errors.Is(err, graphidx.ErrFileChanged) {
+			return err
+		}
 		return &ExitError{Code: 2, Err: err}
 	}
 	return nil
@@ -167,11 +183,12 @@ func (tp *textPlanner) runSingle(ctx context.Context, r *router.Router, out io.W
 // returns its JSON line. A failed text still gets a line, with the mentions
 // found and the error (then err is set too, so the batch counts it); only
 // a missing lexicon returns no line.
-func (tp *textPlanner) batchLine(ctx context.Context, r *router.Router, q routeQuery, line int, o routeOptions) ([]byte, error) {
+func (tp *textPlanner) batchLine(ctx context.Context, gd guardedDecider, q routeQuery, line int, o routeOptions) ([]byte, error) {
+	r := gd.r
 	if tp == nil {
 		return nil, errors.New(`field "text": a text line needs --lexicon`)
 	}
-	res, err := tp.decide(ctx, r, q.Text, q.Key, o)
+	res, err := tp.decide(ctx, gd, q.Text, q.Key, o)
 	if err != nil {
 		err = fmt.Errorf("line %d: %w", line, err)
 	}
@@ -256,14 +273,15 @@ func btoi(b bool) int {
 // value means "present" on a presence-only index (q.Value is set to it)
 // and is an error listing the entity's values on a valued one; an unknown
 // value's error lists them too.
-func decideSingle(ctx context.Context, r *router.Router, q *routeQuery, timeout time.Duration) (router.Decision, error) {
+func decideSingle(ctx context.Context, gd guardedDecider, q *routeQuery) (router.Decision, error) {
+	r := gd.r
 	if q.Value == "" {
 		if !r.PresenceOnly() {
 			return router.Decision{}, fmt.Errorf("no value given for %q; it has %s", q.From, knownValues(r, q.From))
 		}
 		q.Value = graphidx.PresentValue
 	}
-	d, err := decideOne(ctx, r, *q, timeout)
+	d, err := gd.decide(ctx, *q)
 	if errors.Is(err, router.ErrUnknownValue) {
 		err = fmt.Errorf("%w; it has %s", err, knownValues(r, q.From))
 	}

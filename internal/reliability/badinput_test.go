@@ -40,6 +40,10 @@ var jsonlBad = []badLine{
 	{graphidx.ReasonLineTooLong, func(i int) string {
 		return fmt.Sprintf(`{"id":"bad%d","ents":["%s"]}`, i, strings.Repeat("y", graphidx.DefaultMaxLineBytes))
 	}},
+	{graphidx.ReasonControlChar, func(i int) string { return fmt.Sprintf(`{"id":"bad%d","ents":["zone-\u001b[2J"]}`, i) }},
+	{graphidx.ReasonTooManyEntities, func(i int) string {
+		return wideLine(fmt.Sprintf("bad%d", i), graphidx.DefaultMaxContextEntities+1)
+	}},
 }
 
 // csvBad has one generator per CSV row reason code.
@@ -53,6 +57,7 @@ var csvBad = []badLine{
 		return fmt.Sprintf("bad%d,%s,open", i, strings.Repeat("z", graphidx.MaxNameBytes+1))
 	}},
 	{graphidx.ReasonBadUTF8, func(i int) string { return fmt.Sprintf("bad%d,zone-\xff,open", i) }},
+	{graphidx.ReasonControlChar, func(i int) string { return fmt.Sprintf("bad%d,zone-\x1b[2J,open", i) }},
 }
 
 // mixedCorpus interleaves valid lines with the bad ones: reason j is

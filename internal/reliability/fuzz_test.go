@@ -135,6 +135,8 @@ func FuzzRouteBatch(f *testing.F) {
 	f.Add([]byte(`[1,2,3]` + "\n" + `"str"` + "\n" + `null`))
 	f.Add([]byte(`{"id":"\ud800","from":"zone-0001","value":"open","to":"zone-0002"}`))
 	f.Add([]byte(strings.Repeat("x", 300) + "\n"))
+	f.Add([]byte(`{"id":"q","from":"zzz","From":"zone-0001","value":"open","to":"zone-0002"}` + "\n" +
+		`{"id":"q","id":"r","from":"zone-0001","value":"open","to":"zone-0002"}` + "\n"))
 	idx := smallIndex(f)
 	dir := f.TempDir()
 	inputs := &fuzzFiles{dir: dir}
