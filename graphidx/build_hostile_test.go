@@ -126,7 +126,7 @@ func TestWideContextCancel(t *testing.T) {
 // skips and counts it from other readers, or fails under Strict.
 func TestMaxContextEntities(t *testing.T) {
 	t.Parallel()
-	jsonl := `{"id":"a","ents":["p1","p2"]}` + "\n" + `{"id":"wide","ents":["p1","p2","p3","p4"]}` + "\n" + `{"id":"b","obs":{"p1":"on","p3":"off","p4":"on"}}` + "\n"
+	jsonl := `{"id":"a","ents":["p1","p2"]}` + "\n" + `{"id":"wide","ents":["p1","p2","p3","p4"]}` + "\n" + `{"id":"b","ents":["p1","p3","p4"]}` + "\n"
 	csv := "context,entity\nc1,p1\nw,p1\nw,p2\nc1,p2\nw,p3\nw,p4\nc2,p3\n"
 	for _, tc := range []struct {
 		name, in string
