@@ -458,7 +458,7 @@ func modeAttr(m router.Mode) attribute.KeyValue {
 
 var attrPool = sync.Pool{New: func() any { s := make([]attribute.KeyValue, 0, 32); return &s }}
 
-// decisionAttrs appends the span attributes of a decision (DESIGN.md §6)
+// decisionAttrs appends the span attributes of a decision (docs/DESIGN.md, Telemetry)
 // to attrs. The flags truncated, explored and cached are recorded only
 // when true, the sampling ratio only when WithSamplingRatio was given, and
 // the score only when it differs from the gain: readers take false, 1 and

@@ -269,7 +269,7 @@ func TestSupportModelFormula(t *testing.T) {
 	st := newMemStats().entity(1, 1).entity(2, 1).entity(3, 1).
 		pair(1, 2, [][]uint32{{8}}).pair(2, 3, [][]uint32{{18}})
 	m := mustSupport(t, scorer.WithV0(0.5), scorer.WithN0(2), scorer.WithBeta(0.01))
-	// Expected values by hand from DESIGN.md §3: err(edge) = v0/(support+n0).
+	// Expected values by hand from the support model (docs/DESIGN.md, Error model): err(edge) = v0/(support+n0).
 	for _, c := range []struct {
 		name    string
 		s       graphidx.EntityID

@@ -14,7 +14,7 @@ import (
 )
 
 // The benchmarks share one generated index per process: 100k entities at
-// average degree 32 (issue 4's ratio setting), or HOPWISE_BENCH_ENTITIES.
+// average degree 32 (the setting of the ratio figures), or HOPWISE_BENCH_ENTITIES.
 // The index is written from the generated Source (byte-identical to a
 // graphidx.Build over the contexts, see TestContextsBuildEqualsSource, and
 // several times faster to produce).

@@ -285,7 +285,7 @@ type routeChain struct {
 	MinSupport uint64   `json:"min_support"`
 }
 
-// routeLine is the JSON contract of one decision (issue 4 item 5).
+// routeLine is the JSON contract of one decision (documented in route --help).
 type routeLine struct {
 	ID         string      `json:"id"`
 	From       string      `json:"from"`

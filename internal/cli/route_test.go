@@ -138,7 +138,7 @@ func TestRouteBatch(t *testing.T) {
 			}
 			continue
 		}
-		// The exact contract of issue 4 item 5.
+		// The exact contract route --help documents.
 		for _, k := range []string{"id", "from", "value", "to", "mode", "estimate", "err", "gain", "reason", "truncated", "direct", "chain"} {
 			if _, ok := m[k]; !ok {
 				t.Errorf("line %d lacks %q: %s", i+1, k, l)

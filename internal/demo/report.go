@@ -69,7 +69,7 @@ func (r *Report) WriteTable(out io.Writer) error {
 		}
 		fmt.Fprintf(&b, "   P(%s=%s): exact %.3f, direct %.3f (support %d)", e.To, e.TargetValue, e.Truth, e.Direct, e.Support)
 		if len(e.Bridges) > 0 {
-			fmt.Fprintf(&b, ", chained %.3f (weakest link %d)", e.Chained, e.ChainMinSupport)
+			fmt.Fprintf(&b, ", chained %.3f (weakest edge %d)", e.Chained, e.ChainMinSupport)
 		}
 		fmt.Fprintf(&b, "\n   gain %.5f, reason %s\n", e.Gain, e.Reason)
 	}
