@@ -2,6 +2,9 @@ package cli
 
 import (
 	"fmt"
+	"os"
+	"os/exec"
+	"path/filepath"
 
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/internal/demo"
@@ -59,7 +62,10 @@ them. Well-supported pairs are answered directly.`,
 				return err
 			}
 			fmt.Fprintln(out)
-			return rep.WriteFiles(out)
+			if err := rep.WriteFiles(out); err != nil {
+				return err
+			}
+			return rep.WriteNext(out, invocation())
 		},
 	}
 	f := cmd.Flags()
@@ -69,4 +75,33 @@ them. Well-supported pairs are answered directly.`,
 	f.IntVar(&cfg.Examples, "explain", 4, "explained decisions to print, in [1, 10]")
 	f.BoolVarP(&quiet, "quiet", "q", false, "print only the table and the file list")
 	return cmd
+}
+
+// invocation returns how the reader should run hopwise again: "hopwise"
+// when the running binary is the hopwise found on PATH (installed), else
+// "go run ./cmd/hopwise" (a "go run" or "go build" binary elsewhere, run from
+// a checkout).
+func invocation() string {
+	self, err1 := os.Executable()
+	onPath, err2 := exec.LookPath("hopwise")
+	if err1 == nil && err2 == nil && sameFile(self, onPath) {
+		return "hopwise"
+	}
+	return "go run ./cmd/hopwise"
+}
+
+// sameFile reports whether two paths name the same file after resolving
+// symbolic links.
+func sameFile(a, b string) bool {
+	sa, err1 := os.Stat(a)
+	sb, err2 := os.Stat(b)
+	if err1 != nil || err2 != nil {
+		return false
+	}
+	if os.SameFile(sa, sb) {
+		return true
+	}
+	ra, err1 := filepath.EvalSymlinks(a)
+	rb, err2 := filepath.EvalSymlinks(b)
+	return err1 == nil && err2 == nil && ra == rb
 }

@@ -23,11 +23,12 @@ func TestDemoCommand(t *testing.T) {
 		t.Fatalf("demo: %v\n%s", err, errb.String())
 	}
 	s := out.String()
-	for _, want := range []string{"far-apart (held-out)", "well-supported", "Explained decisions:", "hopwise route --index " + filepath.Join(dir, "index.hwx"), "hopwise eval"} {
+	for _, want := range []string{"far-apart (held-out)", "well-supported", "Explained decisions:", "go run ./cmd/hopwise route --index " + filepath.Join(dir, "index.hwx"), "go run ./cmd/hopwise eval"} {
 		if !strings.Contains(s, want) {
 			t.Errorf("output lacks %q:\n%s", want, s)
 		}
 	}
+	runNextCommands(t, s)
 	if !strings.Contains(errb.String(), "build: ") {
 		t.Errorf("no progress lines on stderr: %q", errb.String())
 	}
@@ -50,5 +51,44 @@ func TestDemoCommand(t *testing.T) {
 	root.SetArgs([]string{"demo", "--dir", dir, "--seed", "0"})
 	if err := root.ExecuteContext(context.Background()); err == nil || !strings.Contains(err.Error(), "--seed") {
 		t.Errorf("--seed 0: err %v", err)
+	}
+}
+
+// runNextCommands runs every command of the demo's "Next:" list through the
+// command line, as a reader who only ran "go run ./cmd/hopwise demo" would
+// paste it (the test binary is not the installed hopwise, so each line
+// starts with "go run ./cmd/hopwise"). "eval" builds its own worlds and is
+// skipped under -short.
+func runNextCommands(t *testing.T, out string) {
+	t.Helper()
+	_, next, ok := strings.Cut(out, "\nNext:\n")
+	if !ok {
+		t.Fatalf("no Next: list in\n%s", out)
+	}
+	const prog = "go run ./cmd/hopwise "
+	n := 0
+	for _, line := range strings.Split(strings.TrimRight(next, "\n"), "\n") {
+		line = strings.TrimSpace(line)
+		args, ok := strings.CutPrefix(line, prog)
+		if !ok {
+			t.Errorf("Next line %q does not start with %q", line, prog)
+			continue
+		}
+		n++
+		fields := strings.Fields(args)
+		if fields[0] == "eval" && testing.Short() {
+			continue
+		}
+		root := NewRoot()
+		var o, e bytes.Buffer
+		root.SetOut(&o)
+		root.SetErr(&e)
+		root.SetArgs(fields)
+		if err := root.ExecuteContext(context.Background()); err != nil {
+			t.Errorf("%s: %v\n%s", line, err, e.String())
+		}
+	}
+	if n < 4 {
+		t.Errorf("%d Next commands, want at least 4:\n%s", n, next)
 	}
 }

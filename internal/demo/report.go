@@ -77,19 +77,13 @@ func (r *Report) WriteTable(out io.Writer) error {
 	return err
 }
 
-// WriteFiles prints the files written and the commands to run next.
+// WriteFiles prints the files written and the timings.
 func (r *Report) WriteFiles(out io.Writer) error {
 	var b strings.Builder
 	fmt.Fprintf(&b, "Wrote:\n  corpus (JSONL contexts)   %s\n  locality index            %s\n  queries and exact truth   %s, %s\n  decision traces (OTLP)    %s\n  error by route (PNG)      %s\n",
 		r.Files.Corpus, r.Files.Index, r.Files.Queries, r.Files.Truth, r.Files.Trace, r.Files.Plot)
 	fmt.Fprintf(&b, "Timings: corpus+index %.1fs, measure %.1fs, traced routing %.1fs, total %.1fs\n",
 		r.Timings.Prepare.Seconds(), r.Timings.Measure.Seconds(), r.Timings.Route.Seconds(), r.Timings.Total.Seconds())
-	from, value, to := "zone-1/vent-a", "open", "bed-18/yield"
-	if len(r.Explained) > 0 {
-		from, value, to = r.Explained[0].From, r.Explained[0].Value, r.Explained[0].To
-	}
-	fmt.Fprintf(&b, "\nNext:\n  hopwise inspect --index %s --entity %s\n  hopwise route --index %s --from %s --value %s --to %s\n  hopwise route --index %s --queries %s\n  hopwise eval\n",
-		r.Files.Index, to, r.Files.Index, from, value, to, r.Files.Index, r.Files.Queries)
 	_, err := io.WriteString(out, b.String())
 	return err
 }
