@@ -44,6 +44,9 @@ func TestRunSmall(t *testing.T) {
 	if err := rep.WriteFiles(&table); err != nil {
 		t.Fatal(err)
 	}
+	if err := rep.WriteNext(&table, "hopwise"); err != nil {
+		t.Fatal(err)
+	}
 	t.Logf("\n%s%s", log.String(), table.String())
 
 	h, s := rep.Eval.HeldOut, rep.Eval.Supported
