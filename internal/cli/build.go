@@ -5,7 +5,6 @@ import (
 	"fmt"
 	"io"
 	"os"
-	"runtime"
 	"runtime/debug"
 	"strconv"
 	"strings"
@@ -94,7 +93,7 @@ CSV header or lexicon, too many values), 1 for other errors.`,
 	f.Uint64Var(&o.minSupport, "min-support", 1, "drop pairs observed together in fewer than N contexts")
 	f.IntVar(&o.maxNeighbors, "max-neighbors", 0, "keep each entity's N best neighbours by support (0: no limit)")
 	f.StringVar(&o.memBudget, "mem-budget", "512MiB", "memory budget, e.g. 256MiB, 2GiB, 500MB or bytes")
-	f.IntVar(&o.workers, "workers", 0, "counting goroutines (0: one per core)")
+	workersFlag(f, &o.workers, "counting goroutines")
 	f.StringVar(&o.tempDir, "temp-dir", "", "directory for spilled runs (default: the system temp dir)")
 	f.BoolVar(&o.strict, "strict", false, "stop at the first bad line instead of skipping and counting it")
 	f.BoolVar(&o.quiet, "quiet", false, "no progress output")
@@ -116,13 +115,10 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	case o.corpus == "":
 		return &ExitError{Code: 2, Err: errors.New(`required flag "corpus" not set (or give --from-counts)`)}
 	}
-	if o.workers < 0 {
-		return &ExitError{Code: 2, Err: fmt.Errorf("--workers must not be negative, got %d", o.workers)}
+	if o.workers, err = resolveWorkers(o.workers); err != nil {
+		return &ExitError{Code: 2, Err: err}
 	}
-	if o.workers == 0 {
-		o.workers = runtime.GOMAXPROCS(0)
-	}
-	format := o.format
+	format := strings.ToLower(o.format) // --format CSV works too
 	if format == "" {
 		format = graphidx.DetectFormat(o.corpus)
 	}

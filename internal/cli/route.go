@@ -9,7 +9,6 @@ import (
 	"fmt"
 	"io"
 	"os"
-	"runtime"
 	"strconv"
 	"strings"
 	"sync"
@@ -65,7 +64,7 @@ and writes one JSON line per input line, in input order:
    "generation":"<hex>"}
 with "cut":["beam"|"candidates"|"budget"|"deadline",...] added when truncated.
 Estimates cover every value of the target, in the index's value order
-(decisions from a configured --fallback for unknown endpoints carry an empty
+(decisions from a configured --unknown-entity fallback carry an empty
 estimate and their reason code says so). A bad
 line gives {"id":...,"error":"line N: ..."} and the batch goes on. Decisions
 run on --workers goroutines; output order is always input order.
@@ -92,7 +91,7 @@ fatal error (index, config, flags, I/O).`,
 	f.StringVar(&o.key, "key", "", "unit key for A/B assignment and exploration (single query)")
 	f.StringVar(&o.queries, "queries", "", "JSONL file of queries, - for stdin (batch)")
 	f.BoolVar(&o.json, "json", false, "single query: print the batch JSON object")
-	f.IntVar(&o.workers, "workers", runtime.GOMAXPROCS(0), "batch: goroutines deciding in parallel")
+	workersFlag(f, &o.workers, "batch: goroutines deciding in parallel")
 	f.DurationVar(&o.timeout, "timeout", 0, "deadline per decision (0: none); a cut search is reported as truncated")
 	f.Float64Var(&o.gainThreshold, "gain-threshold", def.GainThreshold, "τ_gain: route chain when gain ≥ τ")
 	f.IntVar(&o.maxBridges, "max-bridges", def.MaxBridges, "H: most bridges in a chain (0-3)")
@@ -100,8 +99,8 @@ fatal error (index, config, flags, I/O).`,
 	f.IntVar(&o.maxCandidates, "max-candidates", def.MaxCandidates, "k: chains scored exactly")
 	f.Float64Var(&o.alpha, "alpha", def.Alpha, "Dirichlet pseudo-count α")
 	f.Float64Var(&o.beta, "beta", def.Beta, "per-hop squared bias β")
-	f.StringVar(&o.fallback, "fallback", def.Fallback, "unknown endpoints: error, direct or chain")
-	f.IntVar(&o.budget, "budget", def.ExpansionBudget, "expansion budget per search")
+	f.StringVar(&o.fallback, "unknown-entity", def.Fallback, "unknown endpoints: error, or answer with a direct or chain fallback decision")
+	f.IntVar(&o.budget, "expansion-budget", def.ExpansionBudget, "work units one search may spend (a hub costs at most this)")
 	f.Float64Var(&o.utilityLambda, "utility-lambda", def.UtilityLambda, "λ of the utility form λ·gain − hop_cost·m (0: off)")
 	f.Float64Var(&o.hopCost, "hop-cost", def.HopCost, "cost per bridge in the utility form")
 	f.IntVar(&o.cacheSize, "cache-size", def.CacheSize, "decision cache entries (0: off)")
@@ -131,8 +130,8 @@ func routeConfig(cmd *cobra.Command, o routeOptions) (router.Config, error) {
 	set("max-candidates", func() { c.MaxCandidates = o.maxCandidates })
 	set("alpha", func() { c.Alpha = o.alpha })
 	set("beta", func() { c.Beta = o.beta })
-	set("fallback", func() { c.Fallback = o.fallback })
-	set("budget", func() { c.ExpansionBudget = o.budget })
+	set("unknown-entity", func() { c.Fallback = o.fallback })
+	set("expansion-budget", func() { c.ExpansionBudget = o.budget })
 	set("utility-lambda", func() { c.UtilityLambda = o.utilityLambda })
 	set("hop-cost", func() { c.HopCost = o.hopCost })
 	set("cache-size", func() { c.CacheSize = o.cacheSize })
@@ -150,8 +149,9 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 	if single && (o.from == "" || o.value == "" || o.to == "") {
 		return errors.New("route: a single query needs --from, --value and --to")
 	}
-	if o.workers < 1 {
-		return fmt.Errorf("route: --workers must be ≥ 1, got %d", o.workers)
+	var err error
+	if o.workers, err = resolveWorkers(o.workers); err != nil {
+		return fmt.Errorf("route: %w", err)
 	}
 	if o.maxLineBytes < 64 {
 		return fmt.Errorf("route: --max-line-bytes must be ≥ 64, got %d", o.maxLineBytes)

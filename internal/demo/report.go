@@ -26,7 +26,7 @@ func num(x float64) string {
 func (r *Report) WriteTable(out io.Writer) error {
 	var b strings.Builder
 	e := r.Eval
-	fmt.Fprintf(&b, "Mean squared error vs the exact answer (greenhouse seed %d, %d contexts, %d entities):\n\n", r.Seed, e.Contexts, e.Entities)
+	fmt.Fprintf(&b, "Mean squared error vs the exact answer, averaged over the target's values (greenhouse seed %d, %d contexts, %d entities):\n\n", r.Seed, e.Contexts, e.Entities)
 	tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', tabwriter.AlignRight)
 	fmt.Fprintln(tw, "query set\tpairs\tqueries\tdirect\tchained\trouted\tideal*\trouted to chain\tmean support\t")
 	for _, row := range []struct {
