@@ -1,24 +1,13 @@
 package cli
 
 import (
-	"bytes"
-	"context"
+	"errors"
+	"os"
+	"path/filepath"
 	"runtime"
 	"strings"
 	"testing"
 )
-
-// runArgs runs the command line with args and returns its error and output.
-func runArgs(t *testing.T, args ...string) (string, error) {
-	t.Helper()
-	root := NewRoot()
-	var out bytes.Buffer
-	root.SetOut(&out)
-	root.SetErr(&out)
-	root.SetArgs(args)
-	err := root.ExecuteContext(context.Background())
-	return out.String(), err
-}
 
 // TestRenamedFlagsNameTheNewFlag checks that a renamed flag is refused with
 // an error naming its new name, and that other unknown flags keep cobra's
@@ -37,7 +26,7 @@ func TestRenamedFlagsNameTheNewFlag(t *testing.T) {
 		// A command without the new flag keeps the plain message.
 		{[]string{"inspect", "--index", "x.hwx", "--budget", "5"}, "unknown flag: --budget"},
 	} {
-		_, err := runArgs(t, c.args...)
+		_, err := routeCLI(t, c.args...)
 		if err == nil || err.Error() != c.want {
 			t.Errorf("%v: error %v, want %q", c.args, err, c.want)
 		}
@@ -67,8 +56,72 @@ func TestResolveWorkers(t *testing.T) {
 			t.Errorf("%s --workers: %+v", cmd, f)
 		}
 	}
-	_, err := runArgs(t, "eval", "--workers", "-2")
+	_, err := routeCLI(t, "eval", "--workers", "-2")
 	if err == nil || !strings.Contains(err.Error(), "--workers must not be negative") {
 		t.Errorf("eval --workers -2: %v", err)
+	}
+}
+
+// TestErrorsSayWhatToDo checks the hints of route and inspect errors: near
+// names for an unknown entity, the values for an unknown value, an
+// explained deadline, the listing of names, and one exit status (2) for a
+// damaged index from both commands.
+func TestErrorsSayWhatToDo(t *testing.T) {
+	t.Parallel()
+	idx := writeRouteIndex(t)
+	for _, c := range []struct {
+		args []string
+		want []string
+	}{
+		{[]string{"route", "--index", idx, "--from", "vent-north", "--value", "open", "--to", "humidity-zone"},
+			[]string{`unknown entity: "humidity-zone"`, `did you mean "humidity-zone1"`, "--list --prefix humidity"}},
+		{[]string{"route", "--index", idx, "--from", "Vent-North", "--value", "open", "--to", "humidity-zone1"},
+			[]string{`did you mean "vent-north"`}},
+		{[]string{"route", "--index", idx, "--from", "vent-north", "--value", "ajar", "--to", "humidity-zone1"},
+			[]string{`unknown value: "ajar"`, `has the values "closed" or "open"`}},
+		{[]string{"route", "--index", idx, "--from", "vent-north", "--value", "open", "--to", "humidity-zone1", "--timeout", "1ns"},
+			[]string{"--timeout of 1ns expired", "Raise --timeout"}},
+		{[]string{"inspect", "--index", idx, "--entity", "vent-nort"},
+			[]string{`did you mean "vent-north"`}},
+		{[]string{"inspect", "--index", idx, "--entity", "x", "--list"}, []string{"not both"}},
+	} {
+		_, err := routeCLI(t, c.args...)
+		if err == nil {
+			t.Errorf("%v: no error", c.args)
+			continue
+		}
+		for _, w := range c.want {
+			if !strings.Contains(err.Error(), w) {
+				t.Errorf("%v: error %q lacks %q", c.args, err, w)
+			}
+		}
+	}
+	out, err := routeCLI(t, "inspect", "--index", idx, "--prefix", "humidity")
+	if err != nil || out != "humidity-zone1\n" {
+		t.Errorf("inspect --prefix humidity: %q, %v", out, err)
+	}
+	out, err = routeCLI(t, "inspect", "--index", idx, "--list", "--prefix", "nothing", "--json")
+	if err != nil || !strings.Contains(out, `"count": 0`) {
+		t.Errorf("inspect --list --prefix nothing --json: %q, %v", out, err)
+	}
+
+	// The same damage gets the same exit status from route and inspect.
+	raw, err := os.ReadFile(idx)
+	if err != nil {
+		t.Fatal(err)
+	}
+	bad := filepath.Join(t.TempDir(), "truncated.hwx")
+	if err := os.WriteFile(bad, raw[:len(raw)/2], 0o644); err != nil {
+		t.Fatal(err)
+	}
+	for _, args := range [][]string{
+		{"route", "--index", bad, "--from", "vent-north", "--value", "open", "--to", "humidity-zone1"},
+		{"inspect", "--index", bad},
+	} {
+		_, err := routeCLI(t, args...)
+		var ee *ExitError
+		if !errors.As(err, &ee) || ee.Code != 2 {
+			t.Errorf("%s on a truncated index: %v, want exit status 2", args[0], err)
+		}
 	}
 }

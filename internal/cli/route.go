@@ -71,8 +71,10 @@ run on --workers goroutines; output order is always input order.
 
 Settings come from --config FILE.json (the router.Config format, also
 written by "hopwise tune") and are overridden by the flags given explicitly.
-Exit status: 0 when every query was answered, 2 when some failed, 1 on a
-fatal error (index, config, flags, I/O).`,
+Exit status: 0 when every query was answered, 2 when some failed or the
+index is damaged or not an index (as for "hopwise inspect"), 1 on another
+fatal error (missing index, config, flags, I/O). An unknown entity is
+answered with the nearest names in the index.`,
 		Example: `  hopwise route --index greenhouse.hwx --from vent-north --value open --to bed-tomato
   hopwise route --index greenhouse.hwx --from vent-north --value open --to bed-tomato --json
   hopwise route --index greenhouse.hwx --queries queries.jsonl --config route.json > decisions.jsonl`,
@@ -166,7 +168,7 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 	}
 	ix, err := graphidx.Open(o.index)
 	if err != nil {
-		return err
+		return indexError(err) // damage: exit 2, as in inspect
 	}
 	r, err := router.New(ix, opts...) // the router closes the index
 	if err != nil {
@@ -185,6 +187,7 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 		q := routeQuery{ID: "", From: o.from, Value: o.value, To: o.to, Key: o.key}
 		d, err := decideOne(ctx, r, q, o.timeout)
 		if err != nil {
+			err = decideErrorHint(ix, router.Query{From: q.From, Value: q.Value, To: q.To}, o.timeout, err)
 			if o.json {
 				line, _ := json.Marshal(routeError{ID: nil, Error: err.Error()})
 				out.Write(append(line, '\n'))
