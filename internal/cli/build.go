@@ -254,15 +254,27 @@ func newBuildProgress(w io.Writer, total int64, quiet bool) (func(graphidx.Progr
 			return
 		}
 		phase, last = ev.Phase, time.Now()
-		msg := fmt.Sprintf("build: %-5s %s contexts, %d entities, %d spill runs", ev.Phase, humanCount(ev.Contexts), ev.Entities, ev.SpillRuns)
-		if ev.Phase == graphidx.PhaseRead && ev.BytesRead >= 0 && total > 0 {
-			msg += fmt.Sprintf(", %.0f%% of input", 100*float64(ev.BytesRead)/float64(total))
-		}
-		if ev.Pairs > 0 {
-			msg += fmt.Sprintf(", %d pairs", ev.Pairs)
-		}
-		fmt.Fprintf(w, "%s (%s)\n", msg, ev.Elapsed.Round(100*time.Millisecond))
+		fmt.Fprintln(w, progressLine(ev, total))
 	}, func() {}
+}
+
+// progressLine is one line of the plain (not terminal) build progress. While
+// reading a corpus of known size it gives the share read (0% on the first
+// line) and, once some bytes are read, the time left to read at the rate so
+// far.
+func progressLine(ev graphidx.ProgressEvent, total int64) string {
+	msg := fmt.Sprintf("build: %-5s %s contexts, %d entities, %d spill runs", ev.Phase, humanCount(ev.Contexts), ev.Entities, ev.SpillRuns)
+	if ev.Phase == graphidx.PhaseRead && ev.BytesRead >= 0 && total > 0 {
+		msg += fmt.Sprintf(", %.0f%% of input", 100*float64(ev.BytesRead)/float64(total))
+		if ev.BytesRead > 0 && ev.BytesRead < total && ev.Elapsed > 0 {
+			left := time.Duration(float64(ev.Elapsed) * float64(total-ev.BytesRead) / float64(ev.BytesRead))
+			msg += fmt.Sprintf(", about %s left to read", left.Round(time.Second))
+		}
+	}
+	if ev.Pairs > 0 {
+		msg += fmt.Sprintf(", %d pairs", ev.Pairs)
+	}
+	return fmt.Sprintf("%s (%s)", msg, ev.Elapsed.Round(100*time.Millisecond))
 }
 
 func humanCount(n uint64) string {

@@ -36,7 +36,10 @@ crop beds; a Bayesian network with exact answers) it:
 
 Far-apart pairs are never observed in the same context, so their direct
 estimate has no support; chaining local conditionals through bridges recovers
-them. Well-supported pairs are answered directly.`,
+them. Well-supported pairs are answered directly.
+
+Progress goes to stderr and the results to stdout; --quiet prints only the
+accuracy table, the files written and the timings.`,
 		Example: `  hopwise demo
   hopwise demo --dir /tmp/gh --seed 7 --contexts 50000`,
 		Args: cobra.NoArgs,
@@ -44,26 +47,29 @@ them. Well-supported pairs are answered directly.`,
 			if cfg.Seed == 0 {
 				return fmt.Errorf("demo: --seed must be non-zero (0 would mean the default seed %d)", demo.DefaultSeed)
 			}
-			out := cmd.OutOrStdout()
-			cfg.Log = out
-			stderr := cmd.ErrOrStderr()
-			cfg.Progress = func(size int64) (func(graphidx.ProgressEvent), func()) {
-				return newBuildProgress(stderr, size, quiet) // as hopwise build
-			}
-			if quiet {
-				cfg.Log = nil
+			out, stderr := cmd.OutOrStdout(), cmd.ErrOrStderr()
+			if !quiet { // progress and stage lines go to stderr, results to stdout
+				cfg.Log = stderr
+				cfg.Progress = func(size int64) (func(graphidx.ProgressEvent), func()) {
+					return newBuildProgress(stderr, size, false) // as hopwise build
+				}
 			}
 			rep, err := demo.Run(cmd.Context(), cfg)
 			if err != nil {
 				return err
 			}
-			fmt.Fprintln(out)
+			if quiet {
+				rep.Explained = nil
+			}
 			if err := rep.WriteTable(out); err != nil {
 				return err
 			}
 			fmt.Fprintln(out)
 			if err := rep.WriteFiles(out); err != nil {
 				return err
+			}
+			if quiet {
+				return nil
 			}
 			return rep.WriteNext(out, invocation())
 		},
@@ -73,7 +79,7 @@ them. Well-supported pairs are answered directly.`,
 	f.Int64Var(&cfg.Seed, "seed", demo.DefaultSeed, "seed of the greenhouse world and its corpus (non-zero)")
 	f.IntVar(&cfg.Contexts, "contexts", demo.DefaultContexts, fmt.Sprintf("contexts to sample, in [100, %d]", demo.MaxContexts))
 	f.IntVar(&cfg.Examples, "explain", 4, "explained decisions to print, in [1, 10]")
-	f.BoolVarP(&quiet, "quiet", "q", false, "print only the table and the file list")
+	f.BoolVarP(&quiet, "quiet", "q", false, "print only the accuracy table, the files written and the timings (no progress, explained decisions or next steps)")
 	return cmd
 }
 

@@ -29,13 +29,31 @@ func TestDemoCommand(t *testing.T) {
 		}
 	}
 	runNextCommands(t, s)
-	if !strings.Contains(errb.String(), "build: ") {
-		t.Errorf("no progress lines on stderr: %q", errb.String())
+	if e := errb.String(); !strings.Contains(e, "build: read  0 contexts") || !strings.Contains(e, "measured ") {
+		t.Errorf("progress and stage lines not on stderr: %q", e)
+	}
+	if strings.Contains(s, "build: ") || strings.Contains(s, "measured ") {
+		t.Errorf("progress on stdout:\n%s", s)
 	}
 	for _, f := range []string{"corpus.jsonl", "index.hwx", "decisions.otlp.jsonl", "error-by-route.png"} {
 		if _, err := os.Stat(filepath.Join(dir, f)); err != nil {
 			t.Error(err)
 		}
+	}
+	// --quiet prints what its help says: the table, the files and the
+	// timings, nothing on stderr.
+	root = NewRoot()
+	out.Reset()
+	errb.Reset()
+	root.SetOut(&out)
+	root.SetErr(&errb)
+	root.SetArgs([]string{"demo", "--dir", filepath.Join(t.TempDir(), "q"), "--contexts", "2000", "--quiet"})
+	if err := root.ExecuteContext(context.Background()); err != nil {
+		t.Fatalf("demo --quiet: %v\n%s", err, errb.String())
+	}
+	if q := out.String(); !strings.Contains(q, "far-apart (held-out)") || !strings.Contains(q, "Wrote:") || !strings.Contains(q, "Timings:") ||
+		strings.Contains(q, "Explained decisions:") || strings.Contains(q, "Next:") || errb.Len() > 0 {
+		t.Errorf("demo --quiet: stdout\n%s\nstderr %q", q, errb.String())
 	}
 	// A bad flag value is a clear error, not a panic.
 	root = NewRoot()
