@@ -30,9 +30,15 @@ crop beds; a Bayesian network with exact answers) it:
   4. routes the queries again through the router wrapped in OpenTelemetry
      instrumentation, tracing each decision to DIR/decisions.otlp.jsonl
      (OTLP JSON Lines),
-  5. prints the mean squared errors, the share routed to chains and a few
-     explained decisions with their bridges, writes DIR/error-by-route.png,
-     and names what to run next.
+  5. asks every query 4 more times, each time for a new simulated user,
+     under A/B arms (routed 50%, direct-only 25%, chain-always 25%) and
+     exploration (ε = 0.1), scores each answer against a value drawn from
+     the exact answer (one minus half its Brier score) with invented token
+     costs, and traces decisions and outcomes to DIR/experiment.otlp.jsonl,
+     which "hopwise tune" and "hopwise ab" read,
+  6. prints the mean squared errors (averaged over the target's values),
+     the share routed to chains and a few explained decisions with their
+     bridges, writes DIR/error-by-route.png, and names what to run next.
 
 Far-apart pairs are never observed in the same context, so their direct
 estimate has no support; chaining local conditionals through bridges recovers

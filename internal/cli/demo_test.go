@@ -75,8 +75,9 @@ func TestDemoCommand(t *testing.T) {
 // runNextCommands runs every command of the demo's "Next:" list through the
 // command line, as a reader who only ran "go run ./cmd/hopwise demo" would
 // paste it (the test binary is not the installed hopwise, so each line
-// starts with "go run ./cmd/hopwise"). "eval" builds its own worlds and is
-// skipped under -short.
+// starts with "go run ./cmd/hopwise"). tune and ab read the demo's
+// experiment traces, so they must find propensities and outcomes there.
+// "eval" builds its own worlds and is skipped under -short.
 func runNextCommands(t *testing.T, out string) {
 	t.Helper()
 	_, next, ok := strings.Cut(out, "\nNext:\n")
@@ -106,7 +107,12 @@ func runNextCommands(t *testing.T, out string) {
 			t.Errorf("%s: %v\n%s", line, err, e.String())
 		}
 	}
-	if n < 4 {
-		t.Errorf("%d Next commands, want at least 4:\n%s", n, next)
+	for _, sub := range []string{"inspect", "route", "tune", "ab", "eval"} {
+		if !strings.Contains(next, prog+sub+" ") && !strings.HasSuffix(strings.TrimSpace(next), prog+sub) {
+			t.Errorf("no %q line in Next:\n%s", sub, next)
+		}
+	}
+	if n < 6 {
+		t.Errorf("%d Next commands, want at least 6:\n%s", n, next)
 	}
 }

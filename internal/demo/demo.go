@@ -12,14 +12,7 @@ import (
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/internal/eval"
 	"github.com/hopwise/hopwise/internal/world"
-	"github.com/hopwise/hopwise/otelx"
-	"github.com/hopwise/hopwise/otelx/otlpfile"
 	"github.com/hopwise/hopwise/router"
-	"github.com/hopwise/hopwise/scorer"
-	"go.opentelemetry.io/otel/attribute"
-	"go.opentelemetry.io/otel/metric/noop"
-	"go.opentelemetry.io/otel/sdk/resource"
-	sdktrace "go.opentelemetry.io/otel/sdk/trace"
 )
 
 // Defaults of Config.
@@ -38,7 +31,7 @@ const (
 	IndexFile   = "index.hwx"
 	QueriesFile = "queries.jsonl"
 	TruthFile   = "truth.jsonl"
-	TraceFile   = "decisions.otlp.jsonl"
+	TraceFile   = "decisions.otlp.jsonl" // ExperimentFile: see experiment.go
 	PlotFile    = "error-by-route.png"
 )
 
@@ -96,6 +89,7 @@ func (c Config) withDefaults() (Config, error) {
 // Files are the paths Run wrote.
 type Files struct {
 	Corpus, Index, Queries, Truth, Trace, Plot string
+	Experiment                                 string // traces with outcomes, for tune and ab
 }
 
 // Timings are the wall times of Run's stages.
@@ -103,7 +97,9 @@ type Timings struct {
 	Prepare time.Duration // sample the corpus and build the index
 	Measure time.Duration // answer every query with every estimator
 	Route   time.Duration // the traced routing pass
-	Total   time.Duration
+	// Experiment is the pass under A/B arms and exploration, with outcomes.
+	Experiment time.Duration
+	Total      time.Duration
 }
 
 // Report is the result of Run.
@@ -117,8 +113,11 @@ type Report struct {
 	HeldOut, Supported Traced
 	// Explained are a few decisions with their bridges and exact truth.
 	Explained []Explained
-	Files     Files
-	Timings   Timings
+	// Experiment summarises the pass under A/B arms and exploration whose
+	// traces carry outcomes (Files.Experiment).
+	Experiment Experiment
+	Files      Files
+	Timings    Timings
 }
 
 // Run executes the demo: sample, build, measure against exact truth, route
@@ -142,6 +141,8 @@ func Run(ctx context.Context, cfg Config) (*Report, error) {
 		Truth:   filepath.Join(cfg.Dir, TruthFile),
 		Trace:   filepath.Join(cfg.Dir, TraceFile),
 		Plot:    filepath.Join(cfg.Dir, PlotFile),
+
+		Experiment: filepath.Join(cfg.Dir, ExperimentFile),
 	}
 	w, err := world.Greenhouse(cfg.Seed)
 	if err != nil {
@@ -196,6 +197,12 @@ func Run(ctx context.Context, cfg Config) (*Report, error) {
 	}
 	rep.Timings.Route = time.Since(t0)
 	logf("routed %d queries with tracing to %s (%.1fs)", rep.HeldOut.Queries+rep.Supported.Queries, rep.Files.Trace, rep.Timings.Route.Seconds())
+	t0 = time.Now()
+	if err := experimentPass(ctx, cfg, w, rep); err != nil {
+		return nil, err
+	}
+	rep.Timings.Experiment = time.Since(t0)
+	logf("asked every query %d times under A/B arms and exploration, with outcomes, to %s (%.1fs)", ExperimentRounds, rep.Files.Experiment, rep.Timings.Experiment.Seconds())
 
 	// 5. Plot (the harness's plot of one world).
 	sum := eval.Summarize([]eval.Report{rep.Eval})
@@ -207,46 +214,19 @@ func Run(ctx context.Context, cfg Config) (*Report, error) {
 	return rep, nil
 }
 
-// tracedPass opens the index in a router configured as the harness's, wraps
-// it in otelx instrumentation exporting to an OTLP JSON Lines file, and routes
-// every query again, keeping the decisions to explain.
+// tracedPass routes every query again through an instrumented router
+// configured as the harness's, tracing each decision to rep.Files.Trace, and
+// keeps the decisions to explain.
 func tracedPass(ctx context.Context, cfg Config, w *world.World, rep *Report) (err error) {
-	idx, err := graphidx.Open(rep.Files.Index)
+	r, inst, done, err := tracedRouter(ctx, cfg, rep, rep.Files.Trace)
 	if err != nil {
-		return fmt.Errorf("demo: %w", err)
+		return err
 	}
-	model, err := scorer.NewBayes(scorer.WithBeta(rep.Eval.Beta))
-	if err != nil {
-		idx.Close()
-		return fmt.Errorf("demo: %w", err)
-	}
-	r, err := router.New(idx, append([]router.Option{router.WithModel(model)}, cfg.RouterOptions...)...)
-	if err != nil {
-		idx.Close()
-		return fmt.Errorf("demo: %w", err)
-	}
-	defer r.Close() // closes idx
-
-	_ = os.Remove(rep.Files.Trace) // the exporter appends; start fresh
-	exp, err := otlpfile.NewExporter(ctx, rep.Files.Trace)
-	if err != nil {
-		return fmt.Errorf("demo: trace file %s: %w", rep.Files.Trace, err)
-	}
-	tp := sdktrace.NewTracerProvider(
-		sdktrace.WithBatcher(exp),
-		sdktrace.WithResource(resource.NewSchemaless(attribute.String("service.name", "hopwise-demo"))),
-	)
 	defer func() {
-		sctx, cancel := context.WithTimeout(context.WithoutCancel(ctx), 10*time.Second)
-		defer cancel()
-		if e := tp.Shutdown(sctx); e != nil && err == nil {
-			err = fmt.Errorf("demo: flushing traces to %s: %w", rep.Files.Trace, e)
+		if e := done(); e != nil && err == nil {
+			err = e
 		}
 	}()
-	inst, err := otelx.New(otelx.WithTracerProvider(tp), otelx.WithMeterProvider(noop.NewMeterProvider()))
-	if err != nil {
-		return fmt.Errorf("demo: %w", err)
-	}
 	res, err := route(ctx, w, r, inst, cfg.Examples)
 	if err != nil {
 		return err

@@ -3,6 +3,7 @@ package demo
 import (
 	"fmt"
 	"io"
+	"path/filepath"
 	"strings"
 )
 
@@ -16,12 +17,18 @@ func (r *Report) NextCommands(prog string) []string {
 		from, value, to = r.Explained[0].From, r.Explained[0].Value, r.Explained[0].To
 	}
 	q := shellQuote
-	return []string{
+	cmds := []string{
 		fmt.Sprintf("%s inspect --index %s --entity %s", prog, q(r.Files.Index), q(to)),
 		fmt.Sprintf("%s route --index %s --from %s --value %s --to %s", prog, q(r.Files.Index), q(from), q(value), q(to)),
 		fmt.Sprintf("%s route --index %s --queries %s", prog, q(r.Files.Index), q(r.Files.Queries)),
-		prog + " eval",
 	}
+	if r.Experiment.Decisions > 0 {
+		tuned := filepath.Join(filepath.Dir(r.Files.Experiment), "tuned.json")
+		cmds = append(cmds,
+			fmt.Sprintf("%s tune --traces %s --out %s", prog, q(r.Files.Experiment), q(tuned)),
+			fmt.Sprintf("%s ab --traces %s", prog, q(r.Files.Experiment)))
+	}
+	return append(cmds, prog+" eval")
 }
 
 // shellQuote returns s as one POSIX shell word: unchanged when it holds only

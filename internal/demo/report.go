@@ -82,8 +82,12 @@ func (r *Report) WriteFiles(out io.Writer) error {
 	var b strings.Builder
 	fmt.Fprintf(&b, "Wrote:\n  corpus (JSONL contexts)   %s\n  locality index            %s\n  queries and exact truth   %s, %s\n  decision traces (OTLP)    %s\n  error by route (PNG)      %s\n",
 		r.Files.Corpus, r.Files.Index, r.Files.Queries, r.Files.Truth, r.Files.Trace, r.Files.Plot)
-	fmt.Fprintf(&b, "Timings: corpus+index %.1fs, measure %.1fs, traced routing %.1fs, total %.1fs\n",
-		r.Timings.Prepare.Seconds(), r.Timings.Measure.Seconds(), r.Timings.Route.Seconds(), r.Timings.Total.Seconds())
+	if r.Experiment.Decisions > 0 {
+		fmt.Fprintf(&b, "  A/B traces + outcomes     %s\n", r.Files.Experiment)
+		fmt.Fprintf(&b, "    %s\n", r.Experiment.describe())
+	}
+	fmt.Fprintf(&b, "Timings: corpus+index %.1fs, measure %.1fs, traced routing %.1fs, A/B with outcomes %.1fs, total %.1fs\n",
+		r.Timings.Prepare.Seconds(), r.Timings.Measure.Seconds(), r.Timings.Route.Seconds(), r.Timings.Experiment.Seconds(), r.Timings.Total.Seconds())
 	_, err := io.WriteString(out, b.String())
 	return err
 }
