@@ -38,7 +38,7 @@
 // 10 to 21 attributes (15 with a unit key, an arm and a chain);
 // WithCompactSpans keeps 8 or fewer in the common case, and a ratio
 // sampler (with WithSamplingRatio) skips the attributes of the spans it
-// drops. TestOverhead (HOPWISE_OVERHEAD=1) measures each setup against the
+// drops. TestOverhead (HOPWISE_STRESS=1) measures each setup against the
 // plain router.
 //
 // Traces that feed tuning and A/B analysis must not lose spans silently: a

@@ -21,10 +21,9 @@ import (
 // Installing a global provider cannot be undone, so the test runs in a
 // child process of its own.
 func TestGlobalProviders(t *testing.T) {
-	if os.Getenv("HOPWISE_GLOBAL_CHILD") == "" {
+	if !*globalChild {
 		t.Parallel()
-		cmd := exec.Command(os.Args[0], "-test.run=^TestGlobalProviders$", "-test.v")
-		cmd.Env = append(os.Environ(), "HOPWISE_GLOBAL_CHILD=1")
+		cmd := exec.Command(os.Args[0], "-test.run=^TestGlobalProviders$", "-test.v", "-global-child")
 		out, err := cmd.CombinedOutput()
 		if err != nil {
 			t.Fatalf("child: %v\n%s", err, out)

@@ -14,6 +14,7 @@ import (
 	"time"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/internal/stress"
 )
 
 // powerLawSource is a Chung–Lu random graph (Chung & Lu 2002): entity i has
@@ -104,13 +105,13 @@ var benchIdx struct {
 	err error
 }
 
-// benchIndex builds (once per process) a power-law index; HOPWISE_BENCH_N
-// overrides the 50k entities.
+// benchIndex builds (once per process) a power-law index of 50k entities,
+// 1M with HOPWISE_STRESS=1.
 func benchIndex(b *testing.B) (*graphidx.Index, *powerLawSource) {
 	benchIdx.Do(func() {
 		n := 50_000
-		if v, err := strconv.Atoi(os.Getenv("HOPWISE_BENCH_N")); err == nil && v > 100 {
-			n = v
+		if stress.On() {
+			n = 1_000_000
 		}
 		src := newPowerLaw(n, 32, 2.1, 1)
 		dir, err := os.MkdirTemp("", "hopwise-bench")
@@ -300,12 +301,10 @@ func BenchmarkDecideCachedArms(b *testing.B) {
 }
 
 // TestLatencyProfile prints uncached Decide latency percentiles on the
-// power-law index (HOPWISE_BENCH_N entities, default 50k). It only runs with
-// HOPWISE_ROUTER_LATENCY=1; wall-clock figures depend on machine load.
+// power-law index (1M entities). It only runs with HOPWISE_STRESS=1;
+// wall-clock figures depend on machine load.
 func TestLatencyProfile(t *testing.T) {
-	if os.Getenv("HOPWISE_ROUTER_LATENCY") == "" {
-		t.Skip("set HOPWISE_ROUTER_LATENCY=1 to run")
-	}
+	stress.Require(t, "router latency profile on a 1M-entity index")
 	ix, src := benchIndex(&testing.B{})
 	qs := benchQueries(src, 20000, 5)
 	hubQs := benchQueries(src, 2000, 6)

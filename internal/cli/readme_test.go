@@ -17,9 +17,15 @@ const (
 	cliEnd   = "<!-- cli-reference:end -->"
 )
 
-// update rewrites docs/cli.md from the commands' --help output instead of
-// comparing (go test ./internal/cli -run TestREADMECLIReference -update).
-var update = flag.Bool("update", false, "rewrite docs/cli.md from the commands' --help output")
+// Flags of the internal/cli tests, listed in DEVELOPERS.md.
+var (
+	// update rewrites docs/cli.md from the commands' --help output instead
+	// of comparing (go test ./internal/cli -run TestREADMECLIReference -update).
+	update = flag.Bool("update", false, "rewrite docs/cli.md from the commands' --help output")
+	// keepE2E keeps the traces, tuned config and plots of
+	// TestEndToEndTuneAndAB in a directory for a look.
+	keepE2E = flag.String("keep-e2e", "", "TestEndToEndTuneAndAB: write its traces, config and plots to this directory")
+)
 
 // cliReference renders the --help text of every command, in command order.
 func cliReference(t *testing.T) string {
