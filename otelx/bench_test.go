@@ -17,6 +17,7 @@ import (
 	"go.opentelemetry.io/otel/trace"
 	tnoop "go.opentelemetry.io/otel/trace/noop"
 
+	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/internal/stress"
 	"github.com/hopwise/hopwise/otelx/otlpfile"
 	"github.com/hopwise/hopwise/router"
@@ -43,7 +44,8 @@ func benchSetup(b testing.TB, cacheSize int) (*router.Router, []router.Query) {
 		if from == to {
 			to = (to + 1) % 400
 		}
-		qs = append(qs, router.Query{From: g.names[from], Value: g.values[from][0], To: g.names[to], Key: fmt.Sprintf("unit-%d", i)})
+		f, t := graphidx.EntityID(from), graphidx.EntityID(to)
+		qs = append(qs, router.Query{From: g.Name(f), Value: g.Values(f)[0], To: g.Name(t), Key: fmt.Sprintf("unit-%d", i)})
 	}
 	return r, qs
 }

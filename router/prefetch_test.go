@@ -73,7 +73,8 @@ func TestPrefetchMatchesSequential(t *testing.T) {
 					if s == tt {
 						continue
 					}
-					q := Query{From: g.names[s], Value: g.values[s][(s+tt)%len(g.values[s])], To: g.names[tt]}
+					sv := g.Values(graphidx.EntityID(s))
+					q := Query{From: g.Name(graphidx.EntityID(s)), Value: sv[(s+tt)%len(sv)], To: g.Name(graphidx.EntityID(tt))}
 					want, err1 := plain.Decide(ctx, q)
 					got, err2 := batch.Decide(ctx, q)
 					if (err1 == nil) != (err2 == nil) || !reflect.DeepEqual(want, got) {
@@ -204,9 +205,9 @@ func TestDecideGoldenDigest(t *testing.T) {
 	for i := range qs {
 		qs[i].Value = []string{"off", "on"}[rng.IntN(2)]
 		if i%4 == 0 { // hub queries: entity 0 has the largest weight
-			qs[i].From = src.ents[0].Name
+			qs[i].From = src.Entities()[0].Name
 			if qs[i].To == qs[i].From {
-				qs[i].To = src.ents[1].Name
+				qs[i].To = src.Entities()[1].Name
 			}
 		}
 	}
