@@ -625,4 +625,3 @@ func (in *Instrumentation) RecordOutcome(ctx context.Context, d router.Decision,
 
 // SamplingRatio returns the ratio recorded on spans.
 func (in *Instrumentation) SamplingRatio() float64 { return in.ratioVal }
-
