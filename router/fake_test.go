@@ -53,24 +53,10 @@ func randomGraph(seed uint64, n int, p float64) *memGraph {
 	return testgraph.Random(seed, n, p, "bed%02d")
 }
 
-// greenhouse is a small hand-made graph: a vent drives a zone's humidity,
-// which drives a crop bed's moisture; the vent and the bed are never observed
-// together, the pump links to both weakly.
-func greenhouse(gen uint64) *memGraph {
-	b := newMemBuilder(gen)
-	bed := b.entity("bed-tomato", "dry", "wet")
-	hum := b.entity("humidity-zone1", "high", "low")
-	pump := b.entity("pump-2", "off", "on")
-	vent := b.entity("vent-north", "closed", "open")
-	// vent → humidity: open vents mostly give low humidity (rows vent, cols humidity high/low)
-	b.pair(vent, hum, 90, 10, 12, 88)
-	// humidity → bed: high humidity mostly wet beds (rows humidity high/low, cols bed dry/wet)
-	b.pair(hum, bed, 8, 92, 85, 15)
-	// weak links through the pump
-	b.pair(vent, pump, 2, 1, 1, 2)
-	b.pair(pump, bed, 1, 2, 2, 1)
-	return b.build()
-}
+// greenhouse is testgraph's hand-made greenhouse: a vent drives a zone's
+// humidity, which drives a crop bed's moisture; the vent and the bed are
+// never observed together, the pump links to both weakly.
+func greenhouse(gen uint64) *memGraph { return testgraph.GreenhouseBuilder(gen).Build() }
 
 // bedStar is sensor-a (dry/wet) and vent-b (closed/open), never observed
 // together, with leaves crop beds each adjacent to both with varied counts:

@@ -221,3 +221,24 @@ func Random(seed uint64, n int, p float64, nameFormat string) *Graph {
 	}
 	return b.Build()
 }
+
+// GreenhouseBuilder starts the small hand-made graph most router and otelx
+// tests use: a north vent drives zone-1 humidity, which drives the tomato
+// bed's moisture; the vent and the bed are never observed together, and
+// pump-2 links to both weakly. Ids by name: 0 bed-tomato, 1
+// humidity-zone1, 2 pump-2, 3 vent-north. Add more before Build.
+func GreenhouseBuilder(gen uint64) *Builder {
+	b := NewBuilder(gen)
+	bed := b.Entity("bed-tomato", "dry", "wet")
+	hum := b.Entity("humidity-zone1", "high", "low")
+	pump := b.Entity("pump-2", "off", "on")
+	vent := b.Entity("vent-north", "closed", "open")
+	// vent → humidity: open vents mostly give low humidity (rows vent, cols humidity high/low)
+	b.Pair(vent, hum, 90, 10, 12, 88)
+	// humidity → bed: high humidity mostly wet beds (rows humidity high/low, cols bed dry/wet)
+	b.Pair(hum, bed, 8, 92, 85, 15)
+	// weak links through the pump
+	b.Pair(vent, pump, 2, 1, 1, 2)
+	b.Pair(pump, bed, 1, 2, 2, 1)
+	return b
+}

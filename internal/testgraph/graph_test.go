@@ -9,29 +9,25 @@ import (
 
 func TestBuilder(t *testing.T) {
 	t.Parallel()
-	b := NewBuilder(7)
-	vent := b.Entity("vent", "open", "closed")
-	hum := b.Entity("humidity", "low", "high")
-	pump := b.Entity("pump", "on", "off")
-	b.Pair(vent, hum, 1, 2, 3, 4) // rows vent closed/open, cols humidity high/low
-	b.Pair(pump, vent, 9, 0, 0, 1)
+	b := GreenhouseBuilder(7)
+	bed, hum, pump, vent := graphidx.EntityID(0), graphidx.EntityID(1), graphidx.EntityID(2), graphidx.EntityID(3)
 	g := b.Build()
-	if got := g.Values(vent); !slices.Equal(got, []string{"closed", "open"}) {
-		t.Errorf("values %v not sorted", got)
+	if g.Generation() != 7 || g.NumEntities() != 4 || g.Name(vent) != "vent-north" {
+		t.Fatalf("generation %d, %d entities, entity 3 %q", g.Generation(), g.NumEntities(), g.Name(vent))
 	}
-	ps, ok := g.Pair(hum, vent) // the transpose
-	if !ok || ps.Count(0, 1) != 3 || ps.Count(1, 0) != 2 || ps.Support() != 10 {
+	if got := g.Values(vent); !slices.Equal(got, []string{"closed", "open"}) {
+		t.Errorf("values %v", got)
+	}
+	ps, ok := g.Pair(hum, vent) // the transpose of (vent, hum) = 90 10 / 12 88
+	if !ok || ps.Count(0, 1) != 12 || ps.Count(1, 0) != 10 || ps.Support() != 200 {
 		t.Errorf("transpose: %+v %v", ps, ok)
 	}
-	if got := g.Neighbors(vent); !slices.Equal(got, []graphidx.EntityID{hum, pump}) {
+	if got := g.Neighbors(bed); !slices.Equal(got, []graphidx.EntityID{hum, pump}) {
 		t.Errorf("neighbours %v", got)
 	}
-	if got := g.RankedNeighbors(vent); !slices.Equal(got, []graphidx.EntityID{hum, pump}) { // equal support 10: ties by ascending id
-		t.Errorf("ranked %v", got)
-	}
 	g.SetRankPrefix(1)
-	if got := g.RankedNeighbors(vent); len(got) != 1 {
-		t.Errorf("rank prefix 1: %v", got)
+	if got := g.RankedNeighbors(vent); !slices.Equal(got, []graphidx.EntityID{hum}) { // support 200 before 6
+		t.Errorf("ranked prefix 1: %v", got)
 	}
 	if i, ok := g.ValueIndex(hum, "low"); !ok || i != 1 {
 		t.Errorf("ValueIndex(low) = %d, %v", i, ok)
@@ -45,7 +41,7 @@ func TestBuilder(t *testing.T) {
 			t.Error("use after Close did not panic")
 		}
 	}()
-	g.Lookup("vent")
+	g.Lookup("vent-north")
 }
 
 func TestGeneratorsAreDeterministic(t *testing.T) {
