@@ -12,6 +12,8 @@ import (
 	"sort"
 	"testing"
 	"time"
+
+	"github.com/hopwise/hopwise/internal/stress"
 )
 
 // benchCorpus returns n JSONL contexts of exactly 8 entities each, drawn
@@ -173,12 +175,10 @@ func BenchmarkBuild(b *testing.B) {
 
 // TestBuildSpeedup runs both benchmarks and logs contexts/s and the ratio
 // (targets: ≥ 300k contexts/s on 2 cores, ≥ 5× the baseline). It only runs
-// with HOPWISE_BENCH=1 because it takes tens of seconds; it asserts the
+// with HOPWISE_STRESS=1 because it takes tens of seconds; it asserts the
 // results agree, never a timing.
 func TestBuildSpeedup(t *testing.T) {
-	if os.Getenv("HOPWISE_BENCH") == "" {
-		t.Skip("set HOPWISE_BENCH=1 to measure")
-	}
+	stress.Require(t, "build speed-up against the naive builder")
 	// Agreement on a slice of the corpus: every naive count equals the
 	// matching cell of the compiled index.
 	small := benchCorpus(5000, 500, 3)
@@ -236,16 +236,17 @@ func TestBuildSpeedup(t *testing.T) {
 
 // TestWriteBenchCorpus writes a large benchmark corpus for measuring the
 // peak RSS of "hopwise build" with /usr/bin/time -v. It only runs when
-// HOPWISE_BENCH_CORPUS names the output file; HOPWISE_BENCH_CONTEXTS and
-// HOPWISE_BENCH_ENTITIES set the size (defaults 2,000,000 and 200,000).
+// -bench-corpus names the output file; -bench-contexts and -bench-entities
+// set the size (defaults 2,000,000 and 200,000).
 func TestWriteBenchCorpus(t *testing.T) {
-	path := os.Getenv("HOPWISE_BENCH_CORPUS")
+	path := *benchCorpusFlag
 	if path == "" {
-		t.Skip("set HOPWISE_BENCH_CORPUS=file to write the corpus")
+		t.Skip("give -bench-corpus FILE to write the corpus")
 	}
-	n, ents := 2_000_000, 200_000
-	fmt.Sscan(os.Getenv("HOPWISE_BENCH_CONTEXTS"), &n)
-	fmt.Sscan(os.Getenv("HOPWISE_BENCH_ENTITIES"), &ents)
+	n, ents := *benchContextsFlag, *benchEntitiesFlag
+	if n < 1 || ents < 2 {
+		t.Fatalf("-bench-contexts %d, -bench-entities %d: want ≥ 1 and ≥ 2", n, ents)
+	}
 	f, err := os.Create(path)
 	if err != nil {
 		t.Fatal(err)

@@ -259,8 +259,8 @@ func (s BuildSummary) String() string {
 	if s.WideContexts > 0 {
 		fmt.Fprintf(&b, "  skipped %-18s %d  (first: %s)\n", "wide contexts", s.WideContexts, s.FirstWide)
 	}
-	fmt.Fprintf(&b, "spill         %d runs, %d bytes, %d extra merge passes (budget %d bytes, %d workers)\n",
-		s.SpillRuns, s.SpillBytes, s.MergePasses, s.MemBudget, s.Workers)
+	fmt.Fprintf(&b, "spill         %d runs, %d bytes, %d extra merge passes (budget %s, %d workers)\n",
+		s.SpillRuns, s.SpillBytes, s.MergePasses, formatSize(s.MemBudget), s.Workers)
 	if s.BytesWritten > 0 {
 		fmt.Fprintf(&b, "index         %d bytes\n", s.BytesWritten)
 	}
@@ -270,4 +270,22 @@ func (s BuildSummary) String() string {
 	}
 	b.WriteString("\n")
 	return b.String()
+}
+
+// formatSize writes a byte count the way a user writes a budget: in the
+// largest binary unit (KiB, MiB, GiB, TiB) that divides it, else the largest
+// decimal one (kB, MB, GB, TB), else in bytes. So 512 << 20 prints as
+// 512MiB and 500e6 as 500MB, as given to --mem-budget.
+func formatSize(n int64) string {
+	if n > 0 {
+		for _, u := range []struct {
+			size int64
+			name string
+		}{{1 << 40, "TiB"}, {1 << 30, "GiB"}, {1 << 20, "MiB"}, {1 << 10, "KiB"}, {1e12, "TB"}, {1e9, "GB"}, {1e6, "MB"}, {1e3, "kB"}} {
+			if n%u.size == 0 {
+				return fmt.Sprintf("%d%s", n/u.size, u.name)
+			}
+		}
+	}
+	return fmt.Sprintf("%d bytes", n)
 }

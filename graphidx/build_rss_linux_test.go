@@ -24,20 +24,19 @@ func procStatus(field string) string {
 // TestBuildPeakRSS logs the resident set after each build phase of a large
 // corpus, to check that spilling keeps the counting and the streaming write
 // within the budget (the target is the budget + 25%). It runs only when
-// HOPWISE_RSS_CORPUS names a corpus (see TestWriteBenchCorpus);
-// HOPWISE_RSS_BUDGET sets the budget in MiB (default 256). Like the CLI, it
-// sets a soft memory limit equal to the budget, and it gives WriteFile a
-// quarter of the budget as Build does. With HOPWISE_RSS_MAX_RATIO set (for
-// example 1.25) it fails when the peak RSS exceeds that multiple of the
-// budget.
+// -rss-corpus names a corpus (see TestWriteBenchCorpus); -rss-budget sets
+// the budget in MiB (default 256). Like the CLI, it sets a soft memory
+// limit equal to the budget, and it gives WriteFile a quarter of the budget
+// as Build does. With -rss-max-ratio set (for example 1.25) it fails when
+// the peak RSS exceeds that multiple of the budget.
 func TestBuildPeakRSS(t *testing.T) {
-	path := os.Getenv("HOPWISE_RSS_CORPUS")
+	path := *rssCorpusFlag
 	if path == "" {
-		t.Skip("set HOPWISE_RSS_CORPUS=file to measure")
+		t.Skip("give -rss-corpus FILE to measure")
 	}
-	mib := int64(256)
-	if v, err := strconv.ParseInt(os.Getenv("HOPWISE_RSS_BUDGET"), 10, 64); err == nil {
-		mib = v
+	mib := *rssBudgetFlag
+	if mib < 1 {
+		t.Fatalf("-rss-budget %d MiB: want ≥ 1", mib)
 	}
 	budget := mib << 20
 	defer debug.SetMemoryLimit(debug.SetMemoryLimit(budget))
@@ -70,13 +69,7 @@ func TestBuildPeakRSS(t *testing.T) {
 	}
 	ratio := float64(kb<<10) / float64(budget)
 	t.Logf("written: peak RSS %s (%.2f× the budget; %s before WriteFile)", peak, ratio, compiled)
-	if v := os.Getenv("HOPWISE_RSS_MAX_RATIO"); v != "" {
-		limit, err := strconv.ParseFloat(v, 64)
-		if err != nil {
-			t.Fatalf("HOPWISE_RSS_MAX_RATIO: %v", err)
-		}
-		if ratio > limit {
-			t.Errorf("peak RSS %.2f× the budget, above HOPWISE_RSS_MAX_RATIO %.2f", ratio, limit)
-		}
+	if limit := *rssMaxRatioFlag; limit > 0 && ratio > limit {
+		t.Errorf("peak RSS %.2f× the budget, above -rss-max-ratio %.2f", ratio, limit)
 	}
 }

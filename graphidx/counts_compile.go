@@ -363,6 +363,8 @@ func addEntitySection(marg map[string]map[string]uint64, ent []byte, path string
 // MergeCounts is CompileCounts over the union of several count-shard
 // directories: counts are sums, so the result equals the compile of the
 // concatenated corpora (an incremental update is MergeCounts(old, new)).
+// The same set given twice (by any path, or a copy of it) is refused with
+// ErrDuplicateCounts (CheckDistinctCountSets) instead of being counted twice.
 //
 // It streams: the shards are mapped read-only and checked once, and stay
 // encoded (about 17 bytes per distinct cell) in page cache the kernel can
@@ -384,6 +386,9 @@ func MergeCounts(ctx context.Context, dirs []string, opts ...BuildOption) (Sourc
 	var sum BuildSummary
 	if len(dirs) == 0 {
 		return nil, sum, fmt.Errorf("graphidx: MergeCounts: no directories")
+	}
+	if err := CheckDistinctCountSets(dirs); err != nil {
+		return nil, sum, err
 	}
 	cfg := newBuildConfig(opts)
 	s, n, err := loadCounts(ctx, dirs)

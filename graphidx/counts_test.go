@@ -655,3 +655,49 @@ func TestCountShardsInGroups(t *testing.T) {
 		t.Error("a shard out of range was accepted")
 	}
 }
+
+// TestMergeCountsRefusesDuplicateSets: a count set given twice, by the same
+// path or as a copy, is refused instead of being counted twice; distinct
+// sets with the same shard count still merge.
+func TestMergeCountsRefusesDuplicateSets(t *testing.T) {
+	t.Parallel()
+	write := func(ctxs []ixContext) string {
+		p := NewPartial()
+		for _, c := range ctxs {
+			var obs []Observation
+			for e, v := range c {
+				obs = append(obs, Observation{Entity: e, Value: v})
+			}
+			if err := p.Add(Context{Obs: obs}); err != nil {
+				t.Fatal(err)
+			}
+		}
+		dir := t.TempDir()
+		if _, err := WriteCounts(dir, p, 2); err != nil {
+			t.Fatal(err)
+		}
+		return dir
+	}
+	gh := ixGreenhouse()
+	a, b := write(gh[:4]), write(gh[4:])
+	cp := filepath.Join(t.TempDir(), "copy")
+	if err := os.CopyFS(cp, os.DirFS(a)); err != nil {
+		t.Fatal(err)
+	}
+	for _, dirs := range [][]string{{a, a}, {a, b, a + string(filepath.Separator)}, {a, cp}} {
+		_, _, err := MergeCounts(context.Background(), dirs)
+		if !errors.Is(err, ErrDuplicateCounts) || !errors.Is(err, ErrBadCounts) {
+			t.Errorf("MergeCounts(%v): %v, want ErrDuplicateCounts", dirs, err)
+		}
+	}
+	src, sum, err := MergeCounts(context.Background(), []string{a, b})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if c, ok := src.(io.Closer); ok {
+		c.Close()
+	}
+	if sum.Contexts != uint64(len(gh)) {
+		t.Errorf("merged %d contexts, want %d", sum.Contexts, len(gh))
+	}
+}

@@ -132,44 +132,52 @@ func TestRoundTripRandom(t *testing.T) {
 				t.Fatal(err)
 			}
 			defer x.Close()
-			if x.NumPairs() != uint64(len(src.pairs)) {
-				t.Fatalf("pairs %d want %d", x.NumPairs(), len(src.pairs))
-			}
-			adj := make([][]EntityID, tc.n)
-			for _, p := range src.pairs {
-				adj[p.A] = append(adj[p.A], p.B)
-				adj[p.B] = append(adj[p.B], p.A)
-				ka, kb := len(src.ents[p.A].Values), len(src.ents[p.B].Values)
-				ab, ok1 := x.Pair(p.A, p.B)
-				ba, ok2 := x.Pair(p.B, p.A)
-				if !ok1 || !ok2 {
-					t.Fatalf("pair (%d,%d) missing", p.A, p.B)
-				}
-				for u := 0; u < ka; u++ {
-					for v := 0; v < kb; v++ {
-						if ab.Count(u, v) != p.Counts[u*kb+v] || ba.Count(v, u) != p.Counts[u*kb+v] {
-							t.Fatalf("pair (%d,%d) cell (%d,%d) differs", p.A, p.B, u, v)
-						}
-					}
-				}
-			}
-			for i := range adj {
-				slices.Sort(adj[i])
-				id := EntityID(i)
-				if got := x.Neighbors(id); !slices.Equal(got, adj[i]) && !(len(got) == 0 && len(adj[i]) == 0) {
-					t.Fatalf("Neighbors(%d) = %v want %v", i, got, adj[i])
-				}
-				if got, want := x.RankedNeighbors(id), ixRankedRef(src, id, tc.r); !slices.Equal(got, want) && !(len(got) == 0 && len(want) == 0) {
-					t.Fatalf("RankedNeighbors(%d) = %v want %v", i, got, want)
-				}
-				if !slices.Equal(x.Marginal(id), src.ents[i].Marginal) || !slices.Equal(x.Values(id), src.ents[i].Values) {
-					t.Fatalf("entity %d values/marginals differ", i)
-				}
-				if got, ok := x.Lookup(src.ents[i].Name); !ok || got != id {
-					t.Fatalf("Lookup(%q) = %d %v", src.ents[i].Name, got, ok)
-				}
-			}
+			ixCheckMatches(t, x, src, tc.r)
 		})
+	}
+}
+
+// ixCheckMatches checks that x holds exactly src: pair tables in both
+// orientations, adjacency, ranked prefixes of length rankPrefix, values,
+// marginals and name look-ups.
+func ixCheckMatches(t *testing.T, x *Index, src *ixSource, rankPrefix int) {
+	t.Helper()
+	if x.NumPairs() != uint64(len(src.pairs)) {
+		t.Fatalf("pairs %d want %d", x.NumPairs(), len(src.pairs))
+	}
+	adj := make([][]EntityID, len(src.ents))
+	for _, p := range src.pairs {
+		adj[p.A] = append(adj[p.A], p.B)
+		adj[p.B] = append(adj[p.B], p.A)
+		ka, kb := len(src.ents[p.A].Values), len(src.ents[p.B].Values)
+		ab, ok1 := x.Pair(p.A, p.B)
+		ba, ok2 := x.Pair(p.B, p.A)
+		if !ok1 || !ok2 {
+			t.Fatalf("pair (%d,%d) missing", p.A, p.B)
+		}
+		for u := 0; u < ka; u++ {
+			for v := 0; v < kb; v++ {
+				if ab.Count(u, v) != p.Counts[u*kb+v] || ba.Count(v, u) != p.Counts[u*kb+v] {
+					t.Fatalf("pair (%d,%d) cell (%d,%d) differs", p.A, p.B, u, v)
+				}
+			}
+		}
+	}
+	for i := range adj {
+		slices.Sort(adj[i])
+		id := EntityID(i)
+		if got := x.Neighbors(id); !slices.Equal(got, adj[i]) && !(len(got) == 0 && len(adj[i]) == 0) {
+			t.Fatalf("Neighbors(%d) = %v want %v", i, got, adj[i])
+		}
+		if got, want := x.RankedNeighbors(id), ixRankedRef(src, id, rankPrefix); !slices.Equal(got, want) && !(len(got) == 0 && len(want) == 0) {
+			t.Fatalf("RankedNeighbors(%d) = %v want %v", i, got, want)
+		}
+		if !slices.Equal(x.Marginal(id), src.ents[i].Marginal) || !slices.Equal(x.Values(id), src.ents[i].Values) {
+			t.Fatalf("entity %d values/marginals differ", i)
+		}
+		if got, ok := x.Lookup(src.ents[i].Name); !ok || got != id {
+			t.Fatalf("Lookup(%q) = %d %v", src.ents[i].Name, got, ok)
+		}
 	}
 }
 

@@ -51,7 +51,7 @@ func (p PairStats) Count(u, v int) uint32 {
 }
 
 // RowSum returns the number of contexts that observe A=u together with any
-// value of B (n_u in DESIGN.md §3).
+// value of B (n_u in docs/DESIGN.md, Error model).
 func (p PairStats) RowSum(u int) uint64 {
 	var s uint64
 	for v := 0; v < p.KB; v++ {

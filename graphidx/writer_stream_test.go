@@ -3,22 +3,143 @@ package graphidx
 import (
 	"bytes"
 	"context"
+	"crypto/sha256"
 	"errors"
 	"fmt"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"runtime"
+	"strings"
 	"testing"
 )
 
-// TestStreamingWriterMatchesReference: the streaming WriteFile gives the
-// same bytes as the in-memory writer it replaced (writer_ref_test.go), for
-// uniform and mixed K, several rank prefixes, and write memories from the
-// default (one bucket) down to 1 byte (one bucket per entity, every edge
-// past the first entity spooled).
+// TestStreamingWriterMatchesReference: WriteFile gives, byte for byte, the
+// files of the in-memory writer it replaced, for every input of writerCases
+// (uniform and mixed K, huge supports, a hub, a compiled corpus), rank
+// prefixes 1, 3 and the default, and write memories from the default (one
+// bucket) down to 1 byte (one bucket per entity, every edge past the first
+// entity spooled). The reference files are pinned by their SHA-256 in
+// testdata/writer-v1.sha256, computed with that writer before it was
+// retired; the hand-checked greenhouse file itself is
+// testdata/golden-v1.hwx (TestGoldenIndexV1). -update rewrites the digests
+// from WriteFile, for a deliberate change of the format only.
 func TestStreamingWriterMatchesReference(t *testing.T) {
 	t.Parallel()
+	want := readWriterDigests(t)
+	var fresh []string
+	for _, tc := range writerCases(t) {
+		for _, rp := range []int{1, 3, DefaultRankPrefix} {
+			key := fmt.Sprintf("%s %d", tc.name, rp)
+			var first string
+			for _, mem := range []int64{DefaultWriteMemory, 2000, 100, 1} {
+				got := fmt.Sprintf("%x", sha256.Sum256(ixReadFile(t, ixWriteTemp(t, tc.src, WithRankPrefix(rp), WithWriteMemory(mem)))))
+				if first == "" {
+					first = got
+				}
+				if got != first {
+					t.Errorf("%s: write memory %d gives another file than the default memory", key, mem)
+				}
+				if !*update && got != want[key] {
+					t.Errorf("%s, write memory %d: SHA-256 %s, want %s", key, mem, got, want[key])
+				}
+			}
+			fresh = append(fresh, key+" "+first)
+			delete(want, key)
+		}
+	}
+	if *update {
+		if err := os.WriteFile(writerDigestsFile, []byte(strings.Join(fresh, "\n")+"\n"), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		return
+	}
+	for key := range want {
+		t.Errorf("%s has a digest for %q, which no case writes", writerDigestsFile, key)
+	}
+}
+
+// writerDigestsFile pins the writer's output (see
+// TestStreamingWriterMatchesReference).
+const writerDigestsFile = "testdata/writer-v1.sha256"
+
+// readWriterDigests reads lines "case rankPrefix sha256" into a map keyed by
+// "case rankPrefix".
+func readWriterDigests(t *testing.T) map[string]string {
+	t.Helper()
+	b, err := os.ReadFile(writerDigestsFile)
+	if err != nil {
+		t.Fatal(err)
+	}
+	m := map[string]string{}
+	for i, line := range strings.Split(strings.TrimSpace(string(b)), "\n") {
+		f := strings.Fields(line)
+		if len(f) != 3 || len(f[2]) != 64 {
+			t.Fatalf("%s:%d: want \"case rankPrefix sha256\", got %q", writerDigestsFile, i+1, line)
+		}
+		m[f[0]+" "+f[1]] = f[2]
+	}
+	return m
+}
+
+// goldenFile is a tiny version-1 index of the hand-counted greenhouse
+// (ixGreenhouse), written by the in-memory writer that preceded the
+// streaming one.
+const goldenFile = "testdata/golden-v1.hwx"
+
+// TestGoldenIndexV1: the checked-in version-1 file opens and verifies, holds
+// exactly the hand-counted greenhouse, and WriteFile reproduces it byte for
+// byte. A reader change that breaks old files, or a writer change that
+// alters the format, fails here. -update rewrites the file from WriteFile
+// (a deliberate format change only; bump the version then).
+func TestGoldenIndexV1(t *testing.T) {
+	t.Parallel()
+	src := ixSourceFromContexts(ixGreenhouse())
+	got := ixReadFile(t, ixWriteTemp(t, src))
+	if *update {
+		if err := os.WriteFile(goldenFile, got, 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	want := ixReadFile(t, goldenFile)
+	if !bytes.Equal(got, want) {
+		t.Errorf("WriteFile gives %d bytes that differ from %s (%d bytes) at byte %d", len(got), goldenFile, len(want), firstDiff(got, want))
+	}
+	x, err := Open(goldenFile)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer x.Close()
+	if err := x.Verify(); err != nil {
+		t.Fatal(err)
+	}
+	if x.FormatVersion() != 1 || x.NumContexts() != 8 || x.NumEntities() != 5 {
+		t.Errorf("version %d, %d contexts, %d entities; want 1, 8, 5", x.FormatVersion(), x.NumContexts(), x.NumEntities())
+	}
+	ixCheckMatches(t, x, src, DefaultRankPrefix)
+	// One cell counted by hand: bed.north=wet with pump.a=on in c1 and c2.
+	bed, _ := x.Lookup("bed.north")
+	pump, _ := x.Lookup("pump.a")
+	wet, _ := x.ValueIndex(bed, "wet")
+	on, _ := x.ValueIndex(pump, "on")
+	if ps, ok := x.Pair(bed, pump); !ok || ps.Count(wet, on) != 2 {
+		t.Errorf("bed.north=wet, pump.a=on: %v %v, want 2", ps, ok)
+	}
+}
+
+// writerCase is one input of the writer checks.
+type writerCase struct {
+	name string
+	src  Source
+}
+
+// writerCases are the inputs the streaming writer is checked on: huge
+// supports (the ranking's comparison-sort path), the hand-counted
+// greenhouse, an empty index, one entity without pairs, uniform and mixed
+// K, a dense graph, a hub whose degree exceeds any small bucket, and a
+// compiled corpus.
+func writerCases(t *testing.T) []writerCase {
+	t.Helper()
 	compiled := func(data []byte) Source {
 		c, _, err := Compile(context.Background(), NewJSONLReader(bytes.NewReader(data), "s.jsonl"))
 		if err != nil {
@@ -60,10 +181,7 @@ func TestStreamingWriterMatchesReference(t *testing.T) {
 		{A: 1, B: 2, Counts: []uint32{mx, 0, 0, mx}},
 		{A: 2, B: 3, Counts: []uint32{2, 0, 0, 1}},
 	}
-	for _, tc := range []struct {
-		name string
-		src  Source
-	}{
+	return []writerCase{
 		{"hugeSupports", big},
 		{"greenhouse", ixSourceFromContexts(ixGreenhouse())},
 		{"empty", &ixSource{}},
@@ -73,20 +191,6 @@ func TestStreamingWriterMatchesReference(t *testing.T) {
 		{"dense", ixRandomSource(40, 39, 3, 3)},
 		{"hub", hub},
 		{"built", compiled(benchCorpus(3000, 400, 7))},
-	} {
-		for _, rp := range []int{1, 3, DefaultRankPrefix} {
-			want, err := refWriteBytes(t, tc.src, rp)
-			if err != nil {
-				t.Fatalf("%s: reference writer: %v", tc.name, err)
-			}
-			for _, mem := range []int64{DefaultWriteMemory, 2000, 100, 1} {
-				got := ixReadFile(t, ixWriteTemp(t, tc.src, WithRankPrefix(rp), WithWriteMemory(mem)))
-				if !bytes.Equal(got, want) {
-					t.Errorf("%s rank prefix %d write memory %d: %d bytes differ from the reference's %d (first difference at %d)",
-						tc.name, rp, mem, len(got), len(want), firstDiff(got, want))
-				}
-			}
-		}
 	}
 }
 
@@ -385,40 +489,16 @@ func TestAdjacencyBuckets(t *testing.T) {
 	}
 }
 
-// BenchmarkWriteSections compares the streaming writer with the in-memory
-// reference it replaced (both: validate, lay out, write the sections to a
-// file; no fsync or rename) on a 1M-pair binary window index, with the
-// adjacency in one bucket (64 MiB) and in about 24 spooled buckets (1 MiB).
+// BenchmarkWriteSections measures the writer (validate, lay out, write the
+// sections to a file; no fsync or rename) on a 1M-pair binary window index,
+// with the adjacency in one bucket (64 MiB, the baseline) and in about 24
+// spooled buckets (1 MiB), and checks that both write the same file. (The
+// in-memory writer it replaced was the baseline until it was retired for
+// the golden digests of TestStreamingWriterMatchesReference.)
 func BenchmarkWriteSections(b *testing.B) {
 	src := newWindowSource(50_000, 20)
 	dir := b.TempDir()
-	size := func(path string) int64 {
-		fi, err := os.Stat(path)
-		if err != nil {
-			b.Fatal(err)
-		}
-		return fi.Size()
-	}
-	var want int64
-	b.Run("reference", func(b *testing.B) {
-		b.ReportAllocs()
-		path := filepath.Join(dir, "ref.hwx")
-		for b.Loop() {
-			p, err := refCompile(src, refConfig{rankPrefix: DefaultRankPrefix})
-			if err != nil {
-				b.Fatal(err)
-			}
-			f, err := os.Create(path)
-			if err != nil {
-				b.Fatal(err)
-			}
-			if err := p.write(f, src); err != nil {
-				b.Fatal(err)
-			}
-			f.Close()
-		}
-		want = size(path)
-	})
+	var want []byte
 	for _, mem := range []int64{64 << 20, 1 << 20} {
 		b.Run(fmt.Sprintf("streaming/mem=%dMiB", mem>>20), func(b *testing.B) {
 			b.ReportAllocs()
@@ -437,8 +517,14 @@ func BenchmarkWriteSections(b *testing.B) {
 				}
 				f.Close()
 			}
-			if got := size(path); want != 0 && got != want {
-				b.Fatalf("file of %d bytes, reference %d", got, want)
+			got, err := os.ReadFile(path)
+			if err != nil {
+				b.Fatal(err)
+			}
+			if want == nil {
+				want = got
+			} else if !bytes.Equal(got, want) {
+				b.Fatalf("mem=%dMiB: a file of %d bytes that differs from the one-bucket file (%d bytes)", mem>>20, len(got), len(want))
 			}
 		})
 	}

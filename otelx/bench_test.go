@@ -17,6 +17,8 @@ import (
 	"go.opentelemetry.io/otel/trace"
 	tnoop "go.opentelemetry.io/otel/trace/noop"
 
+	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/internal/stress"
 	"github.com/hopwise/hopwise/otelx/otlpfile"
 	"github.com/hopwise/hopwise/router"
 )
@@ -42,7 +44,8 @@ func benchSetup(b testing.TB, cacheSize int) (*router.Router, []router.Query) {
 		if from == to {
 			to = (to + 1) % 400
 		}
-		qs = append(qs, router.Query{From: g.names[from], Value: g.values[from][0], To: g.names[to], Key: fmt.Sprintf("unit-%d", i)})
+		f, t := graphidx.EntityID(from), graphidx.EntityID(to)
+		qs = append(qs, router.Query{From: g.Name(f), Value: g.Values(f)[0], To: g.Name(t), Key: fmt.Sprintf("unit-%d", i)})
 	}
 	return r, qs
 }
@@ -147,14 +150,12 @@ func BenchmarkDecide(b *testing.B) {
 // each round times one pass over all 1024 queries per variant (rotating
 // the order), and the overhead of a variant is the median over rounds of
 // its per-round difference from the plain router, so machine load drifts
-// cancel. It is slow, so it runs only with HOPWISE_OVERHEAD=1. The
+// cancel. It is slow, so it runs only with HOPWISE_STRESS=1. The
 // targets (noop ≤ 3 %, SDK ≤ 1.5 µs per decision) are reported, and
-// enforced only with HOPWISE_OVERHEAD_ENFORCE=1, since shared machines are
-// noisy.
+// enforced only with the test flag -overhead-enforce, since shared machines
+// are noisy.
 func TestOverhead(t *testing.T) {
-	if os.Getenv("HOPWISE_OVERHEAD") == "" {
-		t.Skip("set HOPWISE_OVERHEAD=1 to measure telemetry overhead")
-	}
+	stress.Require(t, "telemetry overhead measurement")
 	ctx := context.Background()
 	for _, cache := range []int{0, 1 << 12} {
 		r, qs := benchSetup(t, cache)
@@ -217,7 +218,7 @@ func TestOverhead(t *testing.T) {
 				median(diff[k]), d, 100*d/baseCPU, q(diffCPU[k], 0.25), q(diffCPU[k], 0.75))
 		}
 		t.Log("overhead over the plain router (medians of per-round differences):\n" + tb.String())
-		if os.Getenv("HOPWISE_OVERHEAD_ENFORCE") != "" {
+		if *overheadEnforce {
 			idx := func(name string) int {
 				i := slices.IndexFunc(vs, func(v variant) bool { return v.name == name })
 				if i < 0 {

@@ -16,9 +16,10 @@
 // count is the number of decisions, and the gain; their
 // attribute sets and measurement options are prebuilt, and every call is
 // guarded by the instrument's Enabled. The otel noop providers are
-// recognised and cost nothing per decision; so are the otel global
-// providers until an SDK is installed behind them (one atomic load each
-// per decision to notice when it is).
+// recognised and cost nothing per decision. The otel globals are ordinary
+// providers: before an SDK is installed behind them a decision starts a
+// non-recording span (3 small allocations); a process that never installs
+// an SDK should pass the noop providers.
 //
 // WithEntityHashKey replaces entity names and values in spans by a keyed
 // HMAC-SHA256 (RFC 2104), truncated to 128 bits. WithSamplingRatio records
@@ -27,10 +28,10 @@
 //
 // # Cost
 //
-// With the noop providers, or the globals before an SDK is installed, a
-// decision pays one call (the 248-byte Decision is copied once more). (So
-// an eBPF auto-instrumentation that hooks the global tracer without an SDK
-// sees no decision spans; install its provider or pass one explicitly.) With
+// With the noop providers a decision pays one call (the 248-byte Decision
+// is copied once more). Through the otel globals with no SDK it also starts
+// a non-recording span, which an eBPF auto-instrumentation hooking the
+// global tracer can see. With
 // the SDK, nearly all of the cost is the SDK's own: starting and ending a
 // span, a cost per attribute and, once a span has more than 8 attributes,
 // a hash table of 3 more allocations (BenchmarkSpanAttrCount, SDK v1.47),
@@ -38,7 +39,7 @@
 // 10 to 21 attributes (15 with a unit key, an arm and a chain);
 // WithCompactSpans keeps 8 or fewer in the common case, and a ratio
 // sampler (with WithSamplingRatio) skips the attributes of the spans it
-// drops. TestOverhead (HOPWISE_OVERHEAD=1) measures each setup against the
+// drops. TestOverhead (HOPWISE_STRESS=1) measures each setup against the
 // plain router.
 //
 // Traces that feed tuning and A/B analysis must not lose spans silently: a

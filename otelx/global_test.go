@@ -16,15 +16,14 @@ import (
 )
 
 // TestGlobalProviders: over the otel globals with no SDK installed, a
-// decision costs no span and no allocation; once an SDK is installed
-// behind the globals, the same Instrumentation records spans and metrics.
-// Installing a global provider cannot be undone, so the test runs in a
-// child process of its own.
+// decision records nothing; once an SDK is installed behind the globals,
+// the same Instrumentation records spans and metrics, because the global
+// tracer and meter forward to it. Installing a global provider cannot be
+// undone, so the test runs in a child process of its own.
 func TestGlobalProviders(t *testing.T) {
-	if os.Getenv("HOPWISE_GLOBAL_CHILD") == "" {
+	if !*globalChild {
 		t.Parallel()
-		cmd := exec.Command(os.Args[0], "-test.run=^TestGlobalProviders$", "-test.v")
-		cmd.Env = append(os.Environ(), "HOPWISE_GLOBAL_CHILD=1")
+		cmd := exec.Command(os.Args[0], "-test.run=^TestGlobalProviders$", "-test.v", "-global-child")
 		out, err := cmd.CombinedOutput()
 		if err != nil {
 			t.Fatalf("child: %v\n%s", err, out)
@@ -36,18 +35,13 @@ func TestGlobalProviders(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if in.globalTP == nil || in.globalMP == nil {
-		t.Fatalf("the otel global providers were not recognised: %T %T", otel.GetTracerProvider(), otel.GetMeterProvider())
+	if in.off {
+		t.Fatal("the otel global providers were taken for noop ones")
 	}
 	r := newRouter(t, router.WithCacheSize(16))
 	q := router.Query{From: "vent-north", Value: "open", To: "bed-tomato", Key: "u"}
 	if _, err := in.Decide(ctx, r, q); err != nil { // fills the cache
 		t.Fatal(err)
-	}
-	// The global tracer's Start allocates a context per span; a cached
-	// decision alone allocates nothing (router BenchmarkDecide, cache hit).
-	if n := testing.AllocsPerRun(100, func() { _, _ = in.Decide(ctx, r, q) }); n != 0 {
-		t.Errorf("%v allocations per decision over the idle globals, want 0", n)
 	}
 
 	rec := tracetest.NewSpanRecorder()

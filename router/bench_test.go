@@ -3,7 +3,6 @@ package router
 import (
 	"context"
 	"fmt"
-	"math"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
@@ -14,88 +13,8 @@ import (
 	"time"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/internal/stress"
 )
-
-// powerLawSource is a Chung–Lu random graph (Chung & Lu 2002): entity i has
-// weight w_i ∝ (i+1)^(−1/(γ−1)), and M = n·d/2 edge draws pick both
-// endpoints proportionally to weight (duplicates and loops dropped), which
-// gives a degree distribution with tail exponent γ. Every entity has two
-// values; a pair's 2×2 table holds random counts.
-type powerLawSource struct {
-	n      int
-	ctxs   uint64 // every context observes exactly one pair
-	ents   []graphidx.EntityRecord
-	edges  []uint64 // a<<32 | b, ascending
-	counts []uint32 // 4 per edge
-}
-
-func (s *powerLawSource) Contexts() uint64                  { return s.ctxs }
-func (s *powerLawSource) Entities() []graphidx.EntityRecord { return s.ents }
-func (s *powerLawSource) Pairs(fn func(graphidx.PairRecord) error) error {
-	for i, e := range s.edges {
-		p := graphidx.PairRecord{A: graphidx.EntityID(e >> 32), B: graphidx.EntityID(e & 0xffffffff), Counts: s.counts[4*i : 4*i+4 : 4*i+4]}
-		if err := fn(p); err != nil {
-			return err
-		}
-	}
-	return nil
-}
-
-func newPowerLaw(n int, avgDeg float64, gamma float64, seed uint64) *powerLawSource {
-	rng := rand.New(rand.NewPCG(seed, 99))
-	cum := make([]float64, n)
-	var tot float64
-	for i := 0; i < n; i++ {
-		tot += math.Pow(float64(i+1), -1/(gamma-1))
-		cum[i] = tot
-	}
-	draw := func() int {
-		x := rng.Float64() * tot
-		i, _ := slices.BinarySearch(cum, x)
-		if i >= n {
-			i = n - 1
-		}
-		return i
-	}
-	m := int(float64(n) * avgDeg / 2)
-	edges := make([]uint64, 0, m)
-	for len(edges) < m {
-		a, b := draw(), draw()
-		if a == b {
-			continue
-		}
-		if a > b {
-			a, b = b, a
-		}
-		edges = append(edges, uint64(a)<<32|uint64(b))
-	}
-	slices.Sort(edges)
-	edges = slices.Compact(edges)
-	width := len(strconv.Itoa(n))
-	s := &powerLawSource{n: n}
-	for i := 0; i < n; i++ {
-		// names sorted ascending == ids, by zero padding
-		s.ents = append(s.ents, graphidx.EntityRecord{
-			Name: fmt.Sprintf("sensor%0*d", width, i), Values: []string{"off", "on"}, Marginal: []uint64{0, 0}})
-	}
-	s.edges = edges
-	s.counts = make([]uint32, 4*len(edges))
-	for i, e := range edges {
-		a, b := graphidx.EntityID(e>>32), graphidx.EntityID(e&0xffffffff)
-		c := s.counts[4*i : 4*i+4]
-		scale := 1 + rng.IntN(40)
-		for j := range c {
-			c[j] = uint32(rng.IntN(scale))
-		}
-		c[rng.IntN(4)]++
-		s.ctxs += uint64(c[0] + c[1] + c[2] + c[3])
-		for u := 0; u < 2; u++ {
-			s.ents[a].Marginal[u] += uint64(c[u*2] + c[u*2+1])
-			s.ents[b].Marginal[u] += uint64(c[u] + c[2+u])
-		}
-	}
-	return s
-}
 
 var benchIdx struct {
 	sync.Once
@@ -104,13 +23,13 @@ var benchIdx struct {
 	err error
 }
 
-// benchIndex builds (once per process) a power-law index; HOPWISE_BENCH_N
-// overrides the 50k entities.
+// benchIndex builds (once per process) a power-law index of 50k entities,
+// 1M with HOPWISE_STRESS=1.
 func benchIndex(b *testing.B) (*graphidx.Index, *powerLawSource) {
 	benchIdx.Do(func() {
 		n := 50_000
-		if v, err := strconv.Atoi(os.Getenv("HOPWISE_BENCH_N")); err == nil && v > 100 {
-			n = v
+		if stress.On() {
+			n = 1_000_000
 		}
 		src := newPowerLaw(n, 32, 2.1, 1)
 		dir, err := os.MkdirTemp("", "hopwise-bench")
@@ -140,11 +59,11 @@ func benchQueries(src *powerLawSource, n int, seed uint64) []Query {
 	rng := rand.New(rand.NewPCG(seed, 5))
 	qs := make([]Query, 0, n)
 	for len(qs) < n {
-		a, c := rng.IntN(src.n), rng.IntN(src.n)
+		a, c := rng.IntN(len(src.Entities())), rng.IntN(len(src.Entities()))
 		if a == c {
 			continue
 		}
-		qs = append(qs, Query{From: src.ents[a].Name, Value: "on", To: src.ents[c].Name, Key: strconv.Itoa(len(qs))})
+		qs = append(qs, Query{From: src.Entities()[a].Name, Value: "on", To: src.Entities()[c].Name, Key: strconv.Itoa(len(qs))})
 	}
 	return qs
 }
@@ -256,9 +175,9 @@ func BenchmarkDecideHub(b *testing.B) {
 	}
 	qs := benchQueries(src, 1024, 6)
 	for i := range qs {
-		qs[i].From = src.ents[0].Name
+		qs[i].From = src.Entities()[0].Name
 		if qs[i].To == qs[i].From {
-			qs[i].To = src.ents[1].Name
+			qs[i].To = src.Entities()[1].Name
 		}
 	}
 	b.ReportMetric(float64(ix.Degree(0)), "hub-degree")
@@ -300,19 +219,17 @@ func BenchmarkDecideCachedArms(b *testing.B) {
 }
 
 // TestLatencyProfile prints uncached Decide latency percentiles on the
-// power-law index (HOPWISE_BENCH_N entities, default 50k). It only runs with
-// HOPWISE_ROUTER_LATENCY=1; wall-clock figures depend on machine load.
+// power-law index (1M entities). It only runs with HOPWISE_STRESS=1;
+// wall-clock figures depend on machine load.
 func TestLatencyProfile(t *testing.T) {
-	if os.Getenv("HOPWISE_ROUTER_LATENCY") == "" {
-		t.Skip("set HOPWISE_ROUTER_LATENCY=1 to run")
-	}
+	stress.Require(t, "router latency profile on a 1M-entity index")
 	ix, src := benchIndex(&testing.B{})
 	qs := benchQueries(src, 20000, 5)
 	hubQs := benchQueries(src, 2000, 6)
 	for i := range hubQs {
-		hubQs[i].From = src.ents[0].Name
+		hubQs[i].From = src.Entities()[0].Name
 		if hubQs[i].To == hubQs[i].From {
-			hubQs[i].To = src.ents[1].Name
+			hubQs[i].To = src.Entities()[1].Name
 		}
 	}
 	ctx := context.Background()

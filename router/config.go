@@ -9,6 +9,7 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"strings"
 
 	"github.com/hopwise/hopwise/scorer"
 )
@@ -23,12 +24,12 @@ import (
 //	  "max_bridges": 3,             // H in [0, 3]
 //	  "beam": 64,                   // B in [1, 2^20]
 //	  "max_candidates": 16,         // k in [1, 2^16]
-//	  "model": "bayes",             // "bayes" or "support"
+//	  "error_model": "bayes",       // "bayes" or "support"
 //	  "alpha": 1,                   // Dirichlet α > 0 (bayes; smoothing for support)
 //	  "beta": 0.001,                // per-hop squared bias β ≥ 0
 //	  "support_v0": 0.25,           // support model v0 > 0 (0 = scorer default)
 //	  "support_n0": 1,              // support model n0 > 0 (0 = scorer default)
-//	  "fallback": "error",          // unknown endpoints: "error", "direct" or "chain"
+//	  "unknown_entity": "error",    // unknown endpoints: "error", "direct" or "chain"
 //	  "cache_size": 65536,          // decisions cached, 0 disables
 //	  "utility_lambda": 0,          // > 0 turns on score = λ·gain − hop_cost·m
 //	  "hop_cost": 0,                // c_hop ≥ 0 (needs utility_lambda > 0)
@@ -39,7 +40,10 @@ import (
 //	  "hash_key": ""                // 32 hex digits (16-byte SipHash key), "" = DefaultHashKey
 //	}
 //
-// (JSON has no comments; they are annotations here.) The "beta" field is
+// (JSON has no comments; they are annotations here.) "error_model" and
+// "unknown_entity" were called "model" and "fallback" before; a file that
+// still uses an old name is rejected with an error naming the new field. The
+// "beta" field is
 // the β of whichever model is chosen; its default is the Bayes model's
 // scorer.DefaultBeta, so a "support" configuration should set it (the
 // support model's own fit is scorer.DefaultSupportBeta).
@@ -48,12 +52,12 @@ type Config struct {
 	MaxBridges      int         `json:"max_bridges"`
 	Beam            int         `json:"beam"`
 	MaxCandidates   int         `json:"max_candidates"`
-	Model           string      `json:"model"`
+	Model           string      `json:"error_model"`
 	Alpha           float64     `json:"alpha"`
 	Beta            float64     `json:"beta"`
 	SupportV0       float64     `json:"support_v0"`
 	SupportN0       float64     `json:"support_n0"`
-	Fallback        string      `json:"fallback"`
+	Fallback        string      `json:"unknown_entity"`
 	CacheSize       int         `json:"cache_size"`
 	UtilityLambda   float64     `json:"utility_lambda"`
 	HopCost         float64     `json:"hop_cost"`
@@ -103,15 +107,15 @@ func (c Config) Options() ([]Option, error) {
 	add("exploration", WithExploration(c.Exploration, c.ExplorationSalt))
 	fb, err := ParseFallback(c.Fallback)
 	if err != nil {
-		return nil, fieldError("fallback", err)
+		return nil, fieldError("unknown_entity", err)
 	}
 	switch fb {
 	case FallbackDirect:
-		add("fallback", WithFallback(ModeDirect))
+		add("unknown_entity", WithFallback(ModeDirect))
 	case FallbackChain:
-		add("fallback", WithFallback(ModeChain))
+		add("unknown_entity", WithFallback(ModeChain))
 	default:
-		add("fallback", WithoutFallback())
+		add("unknown_entity", WithoutFallback())
 	}
 	if c.UtilityLambda != 0 || c.HopCost != 0 {
 		if c.UtilityLambda == 0 {
@@ -132,7 +136,7 @@ func (c Config) Options() ([]Option, error) {
 	switch c.Model {
 	case "", "bayes":
 		if c.SupportV0 != 0 || c.SupportN0 != 0 {
-			return nil, fieldError("support_v0", fmt.Errorf("%w: support_v0/support_n0 need model \"support\"", ErrBadOption))
+			return nil, fieldError("support_v0", fmt.Errorf("%w: support_v0/support_n0 need error_model \"support\"", ErrBadOption))
 		}
 		add("alpha", WithAlpha(c.Alpha))
 		add("beta", WithBeta(c.Beta))
@@ -146,11 +150,11 @@ func (c Config) Options() ([]Option, error) {
 		}
 		m, err := scorer.NewSupport(opts...)
 		if err != nil {
-			return nil, fieldError("model", fmt.Errorf("%w: %v", ErrBadOption, err))
+			return nil, fieldError("error_model", fmt.Errorf("%w: %v", ErrBadOption, err))
 		}
-		add("model", WithModel(m))
+		add("error_model", WithModel(m))
 	default:
-		return nil, fieldError("model", fmt.Errorf("%w: unknown model %q (want bayes or support)", ErrBadOption, c.Model))
+		return nil, fieldError("error_model", fmt.Errorf("%w: unknown model %q (want bayes or support)", ErrBadOption, c.Model))
 	}
 	// Validate each option on its own so the error names its field.
 	out := make([]Option, 0, len(list))
@@ -170,6 +174,13 @@ func (c Config) Validate() error {
 	return err
 }
 
+// renamedFields maps the config fields that were renamed to their new names,
+// so that an old file gets an error that says what to write instead.
+var renamedFields = map[string]string{
+	"model":    "error_model",    // the error model; "model" read as the language model
+	"fallback": "unknown_entity", // what to do with unknown endpoints
+}
+
 // ParseConfig reads a Config from r over DefaultConfig; unknown fields and
 // trailing data are errors. name labels errors (usually the file path).
 func ParseConfig(r io.Reader, name string) (Config, error) {
@@ -177,6 +188,12 @@ func ParseConfig(r io.Reader, name string) (Config, error) {
 	dec := json.NewDecoder(r)
 	dec.DisallowUnknownFields()
 	if err := dec.Decode(&c); err != nil {
+		if old, ok := strings.CutPrefix(err.Error(), `json: unknown field "`); ok {
+			old = strings.TrimSuffix(old, `"`)
+			if nw, ok := renamedFields[old]; ok {
+				return Config{}, fmt.Errorf("%s: field %q was renamed to %q: %w", name, old, nw, ErrBadOption)
+			}
+		}
 		var te *json.UnmarshalTypeError
 		if errors.As(err, &te) {
 			return Config{}, fmt.Errorf("%s: field %q: want %s, got JSON %s", name, te.Field, te.Type, te.Value)

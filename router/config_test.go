@@ -55,12 +55,15 @@ func TestConfigErrorsNameTheField(t *testing.T) {
 	cases := []struct{ json, field string }{
 		{`{"beam": 0}`, "beam"},
 		{`{"max_bridges": 5}`, "max_bridges"},
-		{`{"fallback": "maybe"}`, "fallback"},
+		{`{"unknown_entity": "maybe"}`, "unknown_entity"},
 		{`{"hop_cost": 0.1}`, "hop_cost"},
 		{`{"exploration": 0.9}`, "exploration"},
 		{`{"arms": [{"arm": "sideways", "weight": 1}]}`, "arms"},
 		{`{"hash_key": "zz"}`, "hash_key"},
-		{`{"model": "oracle"}`, "model"},
+		{`{"error_model": "oracle"}`, "error_model"},
+		// Renamed fields are refused, naming the new field.
+		{`{"model": "bayes"}`, `renamed to "error_model"`},
+		{`{"fallback": "direct"}`, `renamed to "unknown_entity"`},
 		{`{"alpha": -1}`, "alpha"},
 		{`{"beam": "wide"}`, "beam"},
 		{`{"beam_width": 8}`, "beam_width"}, // unknown field
@@ -86,7 +89,7 @@ func TestConfigErrorsNameTheField(t *testing.T) {
 		t.Errorf("missing file: %v", err)
 	}
 	// The support model is selectable.
-	c, err := ParseConfig(strings.NewReader(`{"model": "support", "support_n0": 2}`), "x")
+	c, err := ParseConfig(strings.NewReader(`{"error_model": "support", "support_n0": 2}`), "x")
 	if err != nil {
 		t.Fatal(err)
 	}

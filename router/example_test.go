@@ -162,7 +162,7 @@ func ExampleParseConfig() {
 	c, err := router.ParseConfig(strings.NewReader(`{
   "gain_threshold": 0.002,
   "max_bridges": 2,
-  "fallback": "direct",
+  "unknown_entity": "direct",
   "arms": [{"arm": "routed", "weight": 0.9}, {"arm": "direct-only", "weight": 0.1}]
 }`), "route.json")
 	if err != nil {

@@ -13,7 +13,7 @@ import (
 // practice for bounded best-first search), meant to be tuned per deployment.
 const (
 	// DefaultGainThreshold is τ_gain: route chain when the estimated error
-	// reduction is at least this (on the scale of Σ_v Var, DESIGN.md §3).
+	// reduction is at least this (on the scale of Σ_v Var; docs/DESIGN.md, Error model).
 	DefaultGainThreshold = 0.0
 	// DefaultMaxBridges is H, the largest number of bridges in a chain.
 	DefaultMaxBridges = 3

@@ -3,6 +3,7 @@ package router
 import (
 	"context"
 	"crypto/sha256"
+	"flag"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -10,6 +11,7 @@ import (
 	"path/filepath"
 	"reflect"
 	"runtime"
+	"strings"
 	"testing"
 
 	"github.com/hopwise/hopwise/graphidx"
@@ -71,7 +73,8 @@ func TestPrefetchMatchesSequential(t *testing.T) {
 					if s == tt {
 						continue
 					}
-					q := Query{From: g.names[s], Value: g.values[s][(s+tt)%len(g.values[s])], To: g.names[tt]}
+					sv := g.Values(graphidx.EntityID(s))
+					q := Query{From: g.Name(graphidx.EntityID(s)), Value: sv[(s+tt)%len(sv)], To: g.Name(graphidx.EntityID(tt))}
 					want, err1 := plain.Decide(ctx, q)
 					got, err2 := batch.Decide(ctx, q)
 					if (err1 == nil) != (err2 == nil) || !reflect.DeepEqual(want, got) {
@@ -180,8 +183,10 @@ func f64bits(x []float64) []uint64 {
 // the other latency work (commit ffa682b), which left them unchanged; they
 // were recomputed once when the scorer gained the missing-signal chain bias
 // (a deliberate change of every Bayes decision's error; the support model's
-// digest stayed the same). A performance change must leave them as they are. A deliberate change of the search or the scorer updates them
-// (HOPWISE_GOLDEN_PRINT=1 prints the new ones). Checked on amd64 only:
+// digest stayed the same). A performance change must leave them as they
+// are. A deliberate change of the search or the scorer rewrites them in
+// this file with "go test ./router -run TestDecideGoldenDigest -update"
+// (and says why in the commit). Checked on amd64 only:
 // other architectures may fuse multiply-adds (Go spec, "Arithmetic
 // operators"), which changes the last bits of the estimates.
 func TestDecideGoldenDigest(t *testing.T) {
@@ -200,9 +205,9 @@ func TestDecideGoldenDigest(t *testing.T) {
 	for i := range qs {
 		qs[i].Value = []string{"off", "on"}[rng.IntN(2)]
 		if i%4 == 0 { // hub queries: entity 0 has the largest weight
-			qs[i].From = src.ents[0].Name
+			qs[i].From = src.Entities()[0].Name
 			if qs[i].To == qs[i].From {
-				qs[i].To = src.ents[1].Name
+				qs[i].To = src.Entities()[1].Name
 			}
 		}
 	}
@@ -214,7 +219,7 @@ func TestDecideGoldenDigest(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, tc := range []struct {
+	cases := []struct {
 		name string
 		opts []Option
 		want string
@@ -228,7 +233,9 @@ func TestDecideGoldenDigest(t *testing.T) {
 		{"support", []Option{WithModel(support)}, "049ede2c77a62f5b"},
 		{"exact", []Option{WithModel(exact)}, "4a805e8df5e0e605"},
 		{"utility", []Option{WithUtility(2, 0.001)}, "112394a8000fcfe4"},
-	} {
+	}
+	fresh := map[string]string{} // with -update: the new digest of each case
+	for _, tc := range cases {
 		opts := append([]Option{WithCacheSize(0)}, tc.opts...)
 		for _, wrap := range []struct {
 			name string
@@ -236,8 +243,12 @@ func TestDecideGoldenDigest(t *testing.T) {
 		}{{"batch", wrapIndex(ix)}, {"plain", nonClosing{ix}}} {
 			r := mustNew(t, wrap.g, opts...)
 			got, chains := decisionDigest(t, r, qs)
-			if os.Getenv("HOPWISE_GOLDEN_PRINT") != "" {
-				t.Logf("{%q, ..., %q}, // %s, %d chains", tc.name, got, wrap.name, chains)
+			if *update {
+				if prev, ok := fresh[tc.name]; ok && prev != got {
+					t.Fatalf("%s: the batch and plain graphs give digests %s and %s; fix that first", tc.name, prev, got)
+				}
+				fresh[tc.name] = got
+				t.Logf("%s: %s (%s graph, %d chains)", tc.name, got, wrap.name, chains)
 				continue
 			}
 			if got != tc.want {
@@ -245,6 +256,49 @@ func TestDecideGoldenDigest(t *testing.T) {
 			}
 		}
 	}
+	if *update {
+		old := map[string]string{}
+		for _, tc := range cases {
+			old[tc.name] = tc.want
+		}
+		rewriteGoldenDigests(t, "prefetch_test.go", old, fresh)
+	}
+}
+
+// update makes TestDecideGoldenDigest rewrite its digests in this file.
+var update = flag.Bool("update", false, "rewrite the golden digests of TestDecideGoldenDigest in prefetch_test.go")
+
+// rewriteGoldenDigests replaces, in the test file path, each case's old
+// digest by its new one, on the line of the case's table entry
+// ({"name", …, "digest"}). Every case must be found exactly once.
+func rewriteGoldenDigests(t *testing.T, path string, old, fresh map[string]string) {
+	t.Helper()
+	b, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	lines := strings.Split(string(b), "\n")
+	changed := 0
+	for name, digest := range fresh {
+		found := 0
+		for i, l := range lines {
+			entry := strings.TrimSpace(l)
+			if strings.HasPrefix(entry, fmt.Sprintf("{%q,", name)) && strings.HasSuffix(entry, fmt.Sprintf("%q},", old[name])) {
+				lines[i] = strings.Replace(l, fmt.Sprintf("%q}", old[name]), fmt.Sprintf("%q}", digest), 1)
+				found++
+			}
+		}
+		if found != 1 {
+			t.Fatalf("case %q found %d times in %s", name, found, path)
+		}
+		if digest != old[name] {
+			changed++
+		}
+	}
+	if err := os.WriteFile(path, []byte(strings.Join(lines, "\n")), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	t.Logf("rewrote %d of %d digests in %s", changed, len(fresh), path)
 }
 
 // TestPrefetchBatchIsCapped: a hub query with an unlimited budget asks for

@@ -128,7 +128,7 @@ func TestSearchMatchesBruteForce(t *testing.T) {
 						if s == tt || (s+tt+H)%3 != 0 {
 							continue
 						}
-						q := Query{From: g.names[s], Value: g.values[s][0], To: g.names[tt]}
+						q := Query{From: g.Name(graphidx.EntityID(s)), Value: g.Values(graphidx.EntityID(s))[0], To: g.Name(graphidx.EntityID(tt))}
 						want, wantErr, nChains := bruteBest(t, g, model, graphidx.EntityID(s), 0, graphidx.EntityID(tt), H)
 						for i, r := range []*Router{loose, tight} {
 							d, err := r.Decide(ctx, q)
@@ -160,7 +160,7 @@ func TestSearchMatchesBruteForce(t *testing.T) {
 							if math.Abs(d.Chain.Err-wantErr) > 1e-12 {
 								names := make([]string, len(want))
 								for j, b := range want {
-									names[j] = g.names[b]
+									names[j] = g.Name(b)
 								}
 								t.Fatalf("seed %d H %d %v (router %d): chain %v err %.15g, brute force %v err %.15g",
 									seed, H, q, i, d.Chain.Bridges, d.Chain.Err, names, wantErr)
@@ -283,11 +283,11 @@ func TestSentinels(t *testing.T) {
 	if err := r.Swap(g); !errors.Is(err, ErrClosed) {
 		t.Errorf("Swap after Close: %v", err)
 	}
-	if g.closes.Load() != 1 {
-		t.Errorf("graph closed %d times, want 1", g.closes.Load())
+	if g.Closes() != 1 {
+		t.Errorf("graph closed %d times, want 1", g.Closes())
 	}
 	r.Close() // idempotent
-	if g.closes.Load() != 1 {
+	if g.Closes() != 1 {
 		t.Errorf("second Close closed the graph again")
 	}
 }
@@ -463,8 +463,8 @@ func TestCacheHitAndStaleness(t *testing.T) { // not parallel: AllocsPerRun
 	if err := r.Swap(g2); err != nil {
 		t.Fatal(err)
 	}
-	if g1.closes.Load() != 1 {
-		t.Fatalf("old graph closed %d times", g1.closes.Load())
+	if g1.Closes() != 1 {
+		t.Fatalf("old graph closed %d times", g1.Closes())
 	}
 	d3, err := r.Decide(ctx, q)
 	if err != nil || d3.Cached || d3.Generation != 2 || d3.Estimate[1] < 0.6 {
@@ -603,7 +603,7 @@ func swapStress(t *testing.T, cacheSize int) {
 	graphs := make([]*memGraph, 40)
 	for i := range graphs {
 		graphs[i] = randomGraph(uint64(100+i%4), 14, 0.35)
-		graphs[i].gen = uint64(i + 1)
+		graphs[i].SetGeneration(uint64(i + 1))
 	}
 	var retired atomic.Int32
 	r, err := NewWithRetireHook(graphs[0], func(old Graph, err error) { retired.Add(1) }, WithCacheSize(cacheSize))
@@ -659,7 +659,7 @@ func swapStress(t *testing.T, cacheSize int) {
 	}
 	r.Close()
 	for i, g := range graphs {
-		if c := g.closes.Load(); c != 1 {
+		if c := g.Closes(); c != 1 {
 			t.Fatalf("graph %d closed %d times", i, c)
 		}
 	}

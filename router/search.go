@@ -10,7 +10,7 @@ import (
 	"github.com/hopwise/hopwise/scorer"
 )
 
-// Bridge search (DESIGN.md §4).
+// Bridge search (docs/DESIGN.md, Bridge search).
 //
 // A chain with m bridges is s=b0 → b1 → … → bm → t=b(m+1).
 //

@@ -163,7 +163,7 @@ func monteCarloChainVariance(post [][]*distmv.Dirichlet, u, draws int) float64 {
 }
 
 // TestDeltaMethodMonteCarlo checks the delta-method chain variance against a
-// seeded Monte Carlo of Dirichlet posterior draws (DESIGN.md §3, issue 3:
+// seeded Monte Carlo of Dirichlet posterior draws (docs/DESIGN.md, Error model:
 // within 10%) and against the exact second-moment recursion.
 //
 // Row totals are at least ~20: the delta method keeps the first-order terms

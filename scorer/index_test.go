@@ -50,7 +50,7 @@ func randomWorld(seed uint64, n int) (*memStats, *tableSource) {
 			if rng.IntN(3) == 0 {
 				continue
 			}
-			ka, kb := st.k[graphidx.EntityID(a)], st.k[graphidx.EntityID(b)]
+			ka, kb := st.NumValues(graphidx.EntityID(a)), st.NumValues(graphidx.EntityID(b))
 			rows := make([][]uint32, ka)
 			flat := make([]uint32, 0, ka*kb)
 			for r := range rows {
@@ -101,7 +101,7 @@ func TestAgainstRealIndex(t *testing.T) {
 		for i := range p {
 			p[i] = graphidx.EntityID(perm[i])
 		}
-		u := rng.IntN(mem.k[p[0]])
+		u := rng.IntN(mem.NumValues(p[0]))
 		for _, md := range models {
 			a, errA := md.Chain(ws, mem, p[0], u, p[1:m+1], p[m+1])
 			b, errB := md.Chain(ws, ix, p[0], u, p[1:m+1], p[m+1])

@@ -33,7 +33,7 @@ type Model interface {
 	// chain error model).
 	Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridges []graphidx.EntityID, t graphidx.EntityID) (Estimate, error)
 	// EdgeCost is the additive per-edge proxy used to generate chain
-	// candidates cheaply (DESIGN.md §4): the router scores exactly only the
+	// candidates cheaply (docs/DESIGN.md, Bridge search): the router scores exactly only the
 	// k chains of smallest Σ_edges EdgeCost + HopBias·m. It must be ≥ 0
 	// (the search prunes on partial sums), need not be monotone in
 	// support, and should be cheap and allocation-free: it runs once per

@@ -165,7 +165,7 @@ func randomStats(seed uint64, n, kmax, nmax int) *memStats {
 			if rng.IntN(5) == 0 {
 				continue // some pairs never observed
 			}
-			ka, kb := st.k[graphidx.EntityID(a)], st.k[graphidx.EntityID(b)]
+			ka, kb := st.NumValues(graphidx.EntityID(a)), st.NumValues(graphidx.EntityID(b))
 			rows := make([][]uint32, ka)
 			for r := range rows {
 				rows[r] = make([]uint32, kb)
@@ -189,7 +189,7 @@ func TestChainWithoutBridgesEqualsDirect(t *testing.T) {
 			if s == tg {
 				continue
 			}
-			for u := 0; u < st.k[s]; u++ {
+			for u := 0; u < st.NumValues(s); u++ {
 				d, err1 := b.Direct(ws, st, s, u, tg)
 				c, err2 := b.Chain(ws, st, s, u, nil, tg)
 				if err1 != nil || err2 != nil {
@@ -269,7 +269,7 @@ func TestSupportModelFormula(t *testing.T) {
 	st := newMemStats().entity(1, 1).entity(2, 1).entity(3, 1).
 		pair(1, 2, [][]uint32{{8}}).pair(2, 3, [][]uint32{{18}})
 	m := mustSupport(t, scorer.WithV0(0.5), scorer.WithN0(2), scorer.WithBeta(0.01))
-	// Expected values by hand from DESIGN.md §3: err(edge) = v0/(support+n0).
+	// Expected values by hand from the support model (docs/DESIGN.md, Error model): err(edge) = v0/(support+n0).
 	for _, c := range []struct {
 		name    string
 		s       graphidx.EntityID
@@ -482,7 +482,7 @@ func FuzzBayesChain(f *testing.F) {
 		}
 		pos := n
 		for e := 0; e+1 < n; e++ {
-			ka, kb := st.k[graphidx.EntityID(e+1)], st.k[graphidx.EntityID(e+2)]
+			ka, kb := st.NumValues(graphidx.EntityID(e+1)), st.NumValues(graphidx.EntityID(e+2))
 			rows := make([][]uint32, ka)
 			for r := range rows {
 				rows[r] = make([]uint32, kb)
@@ -501,9 +501,9 @@ func FuzzBayesChain(f *testing.F) {
 			path[i] = graphidx.EntityID(i + 1)
 		}
 		est, err := b.Chain(nil, st, path[0], int(u), path[1:n-1], path[n-1])
-		if int(u) >= st.k[1] {
+		if int(u) >= st.NumValues(1) {
 			if !errors.Is(err, scorer.ErrValueRange) {
-				t.Fatalf("u=%d K=%d: error %v, want ErrValueRange", u, st.k[1], err)
+				t.Fatalf("u=%d K=%d: error %v, want ErrValueRange", u, st.NumValues(1), err)
 			}
 			return
 		}

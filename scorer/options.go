@@ -8,8 +8,8 @@ import (
 // Default parameter values.
 //
 // DefaultBeta, DefaultMissingGamma, DefaultMissingDelta, DefaultSupportBeta,
-// DefaultV0 and DefaultN0 are fitted on synthetic worlds (DESIGN.md §7,
-// issue 3 item 5) by `hopwise eval --fit --fit-seeds 101,102,103,104,105`:
+// DefaultV0 and DefaultN0 are fitted on synthetic worlds (docs/DESIGN.md,
+// Testbed) by `hopwise eval --fit --fit-seeds 101,102,103,104,105`:
 // five local-geometric worlds of 100 binary variables, 100 edges, 30 held-out
 // pairs and 50000 contexts, seeds disjoint from the evaluation seeds 1–5,
 // answered by the router with the signal-loss proxy and the reference bias
@@ -166,7 +166,7 @@ func WithMissingSignal(gamma, delta float64) Option {
 type Variance int
 
 const (
-	// DeltaMethod is the first-order (delta-method) variance of DESIGN.md §3,
+	// DeltaMethod is the first-order (delta-method) variance (docs/DESIGN.md, Error model),
 	// computed by a backward pass over suffix products. It is a lower bound
 	// on the exact posterior variance, short by a relative O(1/n) for rows of
 	// n counts. The default.

@@ -42,7 +42,7 @@ func TestBetaBDA24(t *testing.T) {
 		t.Fatalf("posterior parameters %v, want [438 544] (BDA 3rd ed. §2.4)", params)
 	}
 	ref := distuv.Beta{Alpha: params[0], Beta: params[1]}
-	// gonum stat/distuv.Beta moments (reference library, DESIGN.md §8).
+	// gonum stat/distuv.Beta moments (reference library; docs/DESIGN.md, External checks).
 	if !near(est.Dist[0], ref.Mean(), 1e-14) {
 		t.Errorf("mean %.17g, distuv.Beta %.17g", est.Dist[0], ref.Mean())
 	}

@@ -22,7 +22,7 @@ const signalFloor = 1e-12
 var MaxEdgeCost = -math.Log(signalFloor)
 
 // EdgeCost is the signal-loss proxy of the edge (a, b) used to generate
-// chain candidates (DESIGN.md §4):
+// chain candidates (docs/DESIGN.md, Bridge search):
 //
 //	cost = −log max(ε, V̂ − z/√n),   ε = 10⁻¹², n = support + K_a·K_b·α,
 //

@@ -6,7 +6,7 @@ import (
 	"github.com/hopwise/hopwise/graphidx"
 )
 
-// Support is the presence-only model (DESIGN.md §3) for corpora that record
+// Support is the presence-only model (docs/DESIGN.md, Error model) for corpora that record
 // only which entities occur together. Each edge is judged by its support
 // alone:
 //

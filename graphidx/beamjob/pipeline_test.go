@@ -144,18 +144,14 @@ func shardSizes(t testing.TB, dir string) (files int, total, smallest, largest i
 // TestPipelineByteIdentical: the prism pipeline's count shards, compiled
 // with graphidx.CompileCounts, give the same index file byte for byte as
 // graphidx.Build on the corpus, with and without pruning. The corpus has
-// 50,000 contexts (5,000 with -short); HOPWISE_BEAM_CONTEXTS=N sets another
-// size.
+// 50,000 contexts (5,000 with -short, 500,000 with HOPWISE_STRESS=1).
 func TestPipelineByteIdentical(t *testing.T) {
-	n := 50000 // the check; about 10 s on prism on 2 busy cores
+	n := 50000 // about 10 s on prism on 2 busy cores
 	if testing.Short() {
 		n = 5000
 	}
-	if v := os.Getenv("HOPWISE_BEAM_CONTEXTS"); v != "" {
-		var err error
-		if n, err = strconv.Atoi(v); err != nil || n < 1 {
-			t.Fatalf("HOPWISE_BEAM_CONTEXTS=%q: want a positive integer", v)
-		}
+	if os.Getenv("HOPWISE_STRESS") == "1" { // the repository's one stress switch (internal/stress)
+		n = 500_000
 	}
 	dir := t.TempDir()
 	corpus := writeCorpus(t, dir, 42, n, max(50, n/50), 3)

@@ -4,17 +4,18 @@ import (
 	"context"
 	"os"
 	"path/filepath"
-	"strconv"
 	"sync"
 	"testing"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/internal/stress"
 	"github.com/hopwise/hopwise/router"
 	"github.com/hopwise/hopwise/scorer"
 )
 
 // The benchmarks share one generated index per process: 100k entities at
-// average degree 32 (issue 4's ratio setting), or HOPWISE_BENCH_ENTITIES.
+// average degree 32 (the setting of the ratio figures), 1M with
+// HOPWISE_STRESS=1.
 // The index is written from the generated Source (byte-identical to a
 // graphidx.Build over the contexts, see TestContextsBuildEqualsSource, and
 // several times faster to produce).
@@ -35,8 +36,8 @@ func sharedIndex(b *testing.B) {
 	b.Helper()
 	shared.once.Do(func() {
 		n := 100_000
-		if v, err := strconv.Atoi(os.Getenv("HOPWISE_BENCH_ENTITIES")); err == nil && v >= 1000 {
-			n = v
+		if stress.On() {
+			n = 1_000_000
 		}
 		g, err := NewGraph(GraphConfig{Entities: n, AvgDegree: 32, Seed: 1})
 		if err != nil {

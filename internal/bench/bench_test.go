@@ -303,7 +303,7 @@ func TestRunSmall(t *testing.T) {
 	if err := rep.WriteTable(&tab); err != nil {
 		t.Fatal(err)
 	}
-	for _, want := range []string{"router uncached", "gonum baseline", "hub attack", "targets (issue 4)", "agreement with the router"} {
+	for _, want := range []string{"router uncached", "gonum baseline", "hub attack", "performance targets", "agreement with the router"} {
 		if !strings.Contains(tab.String(), want) {
 			t.Errorf("table lacks %q:\n%s", want, tab.String())
 		}

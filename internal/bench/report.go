@@ -8,7 +8,7 @@ import (
 	"text/tabwriter"
 )
 
-// Target is one performance target of issue 4 checked against a Report.
+// Target is one of the project's performance targets checked against a Report.
 type Target struct {
 	Name     string  `json:"name"`
 	Want     string  `json:"want"`
@@ -161,7 +161,7 @@ func (r *Report) WriteTable(w io.Writer) error {
 			}
 		}
 	}
-	fmt.Fprintln(&b, "\ntargets (issue 4):")
+	fmt.Fprintln(&b, "\nperformance targets:")
 	tw = tabwriter.NewWriter(&b, 2, 8, 2, ' ', 0)
 	fmt.Fprintln(tw, "target\twant\tmeasured\tmet\tapplies to this run\t")
 	for _, t := range r.Targets {

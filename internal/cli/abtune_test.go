@@ -271,7 +271,7 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 	t.Parallel()
 	e := newE2EWorld(t)
 	dir := t.TempDir()
-	if keep := os.Getenv("HOPWISE_E2E_DIR"); keep != "" { // keep traces, config and plots for a look
+	if keep := *keepE2E; keep != "" { // keep traces, config and plots for a look
 		dir = keep
 		if err := os.MkdirAll(dir, 0o755); err != nil {
 			t.Fatal(err)

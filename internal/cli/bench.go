@@ -85,7 +85,7 @@ CPU columns leave out time spent waiting for a core.`,
 	f.IntVar(&o.maxBridges, "max-bridges", bench.DefaultBounds().MaxBridges, "H, largest number of bridges")
 	f.IntVar(&o.beam, "beam", bench.DefaultBounds().Beam, "B, beam width")
 	f.IntVar(&o.maxCandidates, "max-candidates", bench.DefaultBounds().MaxCandidates, "k, candidates scored exactly")
-	f.IntVar(&o.budget, "budget", bench.DefaultBounds().Budget, "expansion budget per search")
+	f.IntVar(&o.budget, "expansion-budget", bench.DefaultBounds().Budget, "work units one search may spend (a hub costs at most this)")
 	return cmd
 }
 

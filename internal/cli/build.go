@@ -5,7 +5,6 @@ import (
 	"fmt"
 	"io"
 	"os"
-	"runtime"
 	"runtime/debug"
 	"strconv"
 	"strings"
@@ -111,7 +110,7 @@ other errors.`,
 	f.Uint64Var(&o.minSupport, "min-support", 1, "drop pairs observed together in fewer than N contexts")
 	f.IntVar(&o.maxNeighbors, "max-neighbors", 0, "keep each entity's N best neighbours by support (0: no limit)")
 	f.StringVar(&o.memBudget, "mem-budget", "512MiB", "memory budget, e.g. 256MiB, 2GiB, 500MB or bytes")
-	f.IntVar(&o.workers, "workers", 0, "counting goroutines (0: one per core)")
+	workersFlag(f, &o.workers, "counting goroutines")
 	f.StringVar(&o.tempDir, "temp-dir", "", "directory for spilled runs (default: the system temp dir)")
 	f.BoolVar(&o.strict, "strict", false, "stop at the first bad line instead of skipping and counting it")
 	f.IntVar(&o.maxContextEntities, "max-context-entities", graphidx.DefaultMaxContextEntities,
@@ -137,11 +136,8 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	case o.corpus == "":
 		return &ExitError{Code: 2, Err: errors.New(`required flag "corpus" not set (or give --from-counts)`)}
 	}
-	if o.workers < 0 {
-		return &ExitError{Code: 2, Err: fmt.Errorf("--workers must not be negative, got %d", o.workers)}
-	}
-	if o.workers == 0 {
-		o.workers = runtime.GOMAXPROCS(0)
+	if o.workers, err = resolveWorkers(o.workers); err != nil {
+		return &ExitError{Code: 2, Err: err}
 	}
 	if o.maxContextEntities < 0 {
 		return &ExitError{Code: 2, Err: fmt.Errorf("--max-context-entities must not be negative, got %d", o.maxContextEntities)}
@@ -149,7 +145,7 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	if !(o.minValidShare >= 0 && o.minValidShare <= 1) {
 		return &ExitError{Code: 2, Err: fmt.Errorf("--min-valid-share must be in [0, 1], got %g", o.minValidShare)}
 	}
-	format := o.format
+	format := strings.ToLower(o.format) // --format CSV works too
 	if format == "" {
 		format = graphidx.DetectFormat(o.corpus)
 	}
@@ -325,15 +321,27 @@ func newBuildProgress(w io.Writer, total int64, quiet bool) (func(graphidx.Progr
 			return
 		}
 		phase, last = ev.Phase, time.Now()
-		msg := fmt.Sprintf("build: %-5s %s contexts, %d entities, %d spill runs", ev.Phase, humanCount(ev.Contexts), ev.Entities, ev.SpillRuns)
-		if ev.Phase == graphidx.PhaseRead && ev.BytesRead >= 0 && total > 0 {
-			msg += fmt.Sprintf(", %.0f%% of input", 100*float64(ev.BytesRead)/float64(total))
-		}
-		if ev.Pairs > 0 {
-			msg += fmt.Sprintf(", %d pairs", ev.Pairs)
-		}
-		fmt.Fprintf(w, "%s (%s)\n", msg, ev.Elapsed.Round(100*time.Millisecond))
+		fmt.Fprintln(w, progressLine(ev, total))
 	}, func() {}
+}
+
+// progressLine is one line of the plain (not terminal) build progress. While
+// reading a corpus of known size it gives the share read (0% on the first
+// line) and, once some bytes are read, the time left to read at the rate so
+// far.
+func progressLine(ev graphidx.ProgressEvent, total int64) string {
+	msg := fmt.Sprintf("build: %-5s %s contexts, %d entities, %d spill runs", ev.Phase, humanCount(ev.Contexts), ev.Entities, ev.SpillRuns)
+	if ev.Phase == graphidx.PhaseRead && ev.BytesRead >= 0 && total > 0 {
+		msg += fmt.Sprintf(", %.0f%% of input", 100*float64(ev.BytesRead)/float64(total))
+		if ev.BytesRead > 0 && ev.BytesRead < total && ev.Elapsed > 0 {
+			left := time.Duration(float64(ev.Elapsed) * float64(total-ev.BytesRead) / float64(ev.BytesRead))
+			msg += fmt.Sprintf(", about %s left to read", left.Round(time.Second))
+		}
+	}
+	if ev.Pairs > 0 {
+		msg += fmt.Sprintf(", %d pairs", ev.Pairs)
+	}
+	return fmt.Sprintf("%s (%s)", msg, ev.Elapsed.Round(100*time.Millisecond))
 }
 
 func humanCount(n uint64) string {

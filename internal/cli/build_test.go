@@ -11,6 +11,7 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+	"time"
 
 	"github.com/hopwise/hopwise/graphidx"
 )
@@ -203,5 +204,27 @@ func TestCountsOutInPasses(t *testing.T) {
 	// Pruned pairs are scaled back in: 4 pairs seen, 2 kept → twice the cells.
 	if _, scaled, _ := countsPasses(idx, 4, 2, 1<<30, 8); scaled != 2*cells {
 		t.Errorf("scaled cells %d, want %d", scaled, 2*cells)
+	}
+}
+
+func TestProgressLine(t *testing.T) {
+	t.Parallel()
+	for _, c := range []struct {
+		ev    graphidx.ProgressEvent
+		total int64
+		want  string
+	}{
+		{graphidx.ProgressEvent{Phase: graphidx.PhaseRead}, 1000,
+			"build: read  0 contexts, 0 entities, 0 spill runs, 0% of input (0s)"},
+		{graphidx.ProgressEvent{Phase: graphidx.PhaseRead, BytesRead: 250, Contexts: 20_000, Entities: 7, Elapsed: 3 * time.Second}, 1000,
+			"build: read  20k contexts, 7 entities, 0 spill runs, 25% of input, about 9s left to read (3s)"},
+		{graphidx.ProgressEvent{Phase: graphidx.PhaseRead, BytesRead: 250, Elapsed: 3 * time.Second}, -1,
+			"build: read  0 contexts, 0 entities, 0 spill runs (3s)"},
+		{graphidx.ProgressEvent{Phase: graphidx.PhaseMerge, Pairs: 12, Elapsed: 5 * time.Second}, 1000,
+			"build: merge 0 contexts, 0 entities, 0 spill runs, 12 pairs (5s)"},
+	} {
+		if got := progressLine(c.ev, c.total); got != c.want {
+			t.Errorf("progressLine(%+v, %d) =\n%q, want\n%q", c.ev, c.total, got, c.want)
+		}
 	}
 }

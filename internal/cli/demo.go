@@ -2,6 +2,9 @@ package cli
 
 import (
 	"fmt"
+	"os"
+	"os/exec"
+	"path/filepath"
 
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/internal/demo"
@@ -27,13 +30,22 @@ crop beds; a Bayesian network with exact answers) it:
   4. routes the queries again through the router wrapped in OpenTelemetry
      instrumentation, tracing each decision to DIR/decisions.otlp.jsonl
      (OTLP JSON Lines),
-  5. prints the mean squared errors, the share routed to chains and a few
-     explained decisions with their bridges, writes DIR/error-by-route.png,
-     and names what to run next.
+  5. asks every query 4 more times, each time for a new simulated user,
+     under A/B arms (routed 50%, direct-only 25%, chain-always 25%) and
+     exploration (ε = 0.1), scores each answer against a value drawn from
+     the exact answer (one minus half its Brier score) with invented token
+     costs, and traces decisions and outcomes to DIR/experiment.otlp.jsonl,
+     which "hopwise tune" and "hopwise ab" read,
+  6. prints the mean squared errors (averaged over the target's values),
+     the share routed to chains and a few explained decisions with their
+     bridges, writes DIR/error-by-route.png, and names what to run next.
 
 Far-apart pairs are never observed in the same context, so their direct
 estimate has no support; chaining local conditionals through bridges recovers
-them. Well-supported pairs are answered directly.`,
+them. Well-supported pairs are answered directly.
+
+Progress goes to stderr and the results to stdout; --quiet prints only the
+accuracy table, the files written and the timings.`,
 		Example: `  hopwise demo
   hopwise demo --dir /tmp/gh --seed 7 --contexts 50000`,
 		Args: cobra.NoArgs,
@@ -41,25 +53,31 @@ them. Well-supported pairs are answered directly.`,
 			if cfg.Seed == 0 {
 				return fmt.Errorf("demo: --seed must be non-zero (0 would mean the default seed %d)", demo.DefaultSeed)
 			}
-			out := cmd.OutOrStdout()
-			cfg.Log = out
-			stderr := cmd.ErrOrStderr()
-			cfg.Progress = func(size int64) (func(graphidx.ProgressEvent), func()) {
-				return newBuildProgress(stderr, size, quiet) // as hopwise build
-			}
-			if quiet {
-				cfg.Log = nil
+			out, stderr := cmd.OutOrStdout(), cmd.ErrOrStderr()
+			if !quiet { // progress and stage lines go to stderr, results to stdout
+				cfg.Log = stderr
+				cfg.Progress = func(size int64) (func(graphidx.ProgressEvent), func()) {
+					return newBuildProgress(stderr, size, false) // as hopwise build
+				}
 			}
 			rep, err := demo.Run(cmd.Context(), cfg)
 			if err != nil {
 				return err
 			}
-			fmt.Fprintln(out)
+			if quiet {
+				rep.Explained = nil
+			}
 			if err := rep.WriteTable(out); err != nil {
 				return err
 			}
 			fmt.Fprintln(out)
-			return rep.WriteFiles(out)
+			if err := rep.WriteFiles(out); err != nil {
+				return err
+			}
+			if quiet {
+				return nil
+			}
+			return rep.WriteNext(out, invocation())
 		},
 	}
 	f := cmd.Flags()
@@ -67,6 +85,35 @@ them. Well-supported pairs are answered directly.`,
 	f.Int64Var(&cfg.Seed, "seed", demo.DefaultSeed, "seed of the greenhouse world and its corpus (non-zero)")
 	f.IntVar(&cfg.Contexts, "contexts", demo.DefaultContexts, fmt.Sprintf("contexts to sample, in [100, %d]", demo.MaxContexts))
 	f.IntVar(&cfg.Examples, "explain", 4, "explained decisions to print, in [1, 10]")
-	f.BoolVarP(&quiet, "quiet", "q", false, "print only the table and the file list")
+	f.BoolVarP(&quiet, "quiet", "q", false, "print only the accuracy table, the files written and the timings (no progress, explained decisions or next steps)")
 	return cmd
+}
+
+// invocation returns how the reader should run hopwise again: "hopwise"
+// when the running binary is the hopwise found on PATH (installed), else
+// "go run ./cmd/hopwise" (a "go run" or "go build" binary elsewhere, run from
+// a checkout).
+func invocation() string {
+	self, err1 := os.Executable()
+	onPath, err2 := exec.LookPath("hopwise")
+	if err1 == nil && err2 == nil && sameFile(self, onPath) {
+		return "hopwise"
+	}
+	return "go run ./cmd/hopwise"
+}
+
+// sameFile reports whether two paths name the same file after resolving
+// symbolic links.
+func sameFile(a, b string) bool {
+	sa, err1 := os.Stat(a)
+	sb, err2 := os.Stat(b)
+	if err1 != nil || err2 != nil {
+		return false
+	}
+	if os.SameFile(sa, sb) {
+		return true
+	}
+	ra, err1 := filepath.EvalSymlinks(a)
+	rb, err2 := filepath.EvalSymlinks(b)
+	return err1 == nil && err2 == nil && ra == rb
 }

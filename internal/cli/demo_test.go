@@ -23,18 +23,37 @@ func TestDemoCommand(t *testing.T) {
 		t.Fatalf("demo: %v\n%s", err, errb.String())
 	}
 	s := out.String()
-	for _, want := range []string{"far-apart (held-out)", "well-supported", "Explained decisions:", "hopwise route --index " + filepath.Join(dir, "index.hwx"), "hopwise eval"} {
+	for _, want := range []string{"far-apart (held-out)", "well-supported", "Explained decisions:", "go run ./cmd/hopwise route --index " + filepath.Join(dir, "index.hwx"), "go run ./cmd/hopwise eval"} {
 		if !strings.Contains(s, want) {
 			t.Errorf("output lacks %q:\n%s", want, s)
 		}
 	}
-	if !strings.Contains(errb.String(), "build: ") {
-		t.Errorf("no progress lines on stderr: %q", errb.String())
+	runNextCommands(t, s)
+	if e := errb.String(); !strings.Contains(e, "build: read  0 contexts") || !strings.Contains(e, "measured ") {
+		t.Errorf("progress and stage lines not on stderr: %q", e)
+	}
+	if strings.Contains(s, "build: ") || strings.Contains(s, "measured ") {
+		t.Errorf("progress on stdout:\n%s", s)
 	}
 	for _, f := range []string{"corpus.jsonl", "index.hwx", "decisions.otlp.jsonl", "error-by-route.png"} {
 		if _, err := os.Stat(filepath.Join(dir, f)); err != nil {
 			t.Error(err)
 		}
+	}
+	// --quiet prints what its help says: the table, the files and the
+	// timings, nothing on stderr.
+	root = NewRoot()
+	out.Reset()
+	errb.Reset()
+	root.SetOut(&out)
+	root.SetErr(&errb)
+	root.SetArgs([]string{"demo", "--dir", filepath.Join(t.TempDir(), "q"), "--contexts", "2000", "--quiet"})
+	if err := root.ExecuteContext(context.Background()); err != nil {
+		t.Fatalf("demo --quiet: %v\n%s", err, errb.String())
+	}
+	if q := out.String(); !strings.Contains(q, "far-apart (held-out)") || !strings.Contains(q, "Wrote:") || !strings.Contains(q, "Timings:") ||
+		strings.Contains(q, "Explained decisions:") || strings.Contains(q, "Next:") || errb.Len() > 0 {
+		t.Errorf("demo --quiet: stdout\n%s\nstderr %q", q, errb.String())
 	}
 	// A bad flag value is a clear error, not a panic.
 	root = NewRoot()
@@ -50,5 +69,50 @@ func TestDemoCommand(t *testing.T) {
 	root.SetArgs([]string{"demo", "--dir", dir, "--seed", "0"})
 	if err := root.ExecuteContext(context.Background()); err == nil || !strings.Contains(err.Error(), "--seed") {
 		t.Errorf("--seed 0: err %v", err)
+	}
+}
+
+// runNextCommands runs every command of the demo's "Next:" list through the
+// command line, as a reader who only ran "go run ./cmd/hopwise demo" would
+// paste it (the test binary is not the installed hopwise, so each line
+// starts with "go run ./cmd/hopwise"). tune and ab read the demo's
+// experiment traces, so they must find propensities and outcomes there.
+// "eval" builds its own worlds and is skipped under -short.
+func runNextCommands(t *testing.T, out string) {
+	t.Helper()
+	_, next, ok := strings.Cut(out, "\nNext:\n")
+	if !ok {
+		t.Fatalf("no Next: list in\n%s", out)
+	}
+	const prog = "go run ./cmd/hopwise "
+	n := 0
+	for _, line := range strings.Split(strings.TrimRight(next, "\n"), "\n") {
+		line = strings.TrimSpace(line)
+		args, ok := strings.CutPrefix(line, prog)
+		if !ok {
+			t.Errorf("Next line %q does not start with %q", line, prog)
+			continue
+		}
+		n++
+		fields := strings.Fields(args)
+		if fields[0] == "eval" && testing.Short() {
+			continue
+		}
+		root := NewRoot()
+		var o, e bytes.Buffer
+		root.SetOut(&o)
+		root.SetErr(&e)
+		root.SetArgs(fields)
+		if err := root.ExecuteContext(context.Background()); err != nil {
+			t.Errorf("%s: %v\n%s", line, err, e.String())
+		}
+	}
+	for _, sub := range []string{"inspect", "route", "tune", "ab", "eval"} {
+		if !strings.Contains(next, prog+sub+" ") && !strings.HasSuffix(strings.TrimSpace(next), prog+sub) {
+			t.Errorf("no %q line in Next:\n%s", sub, next)
+		}
+	}
+	if n < 6 {
+		t.Errorf("%d Next commands, want at least 6:\n%s", n, next)
 	}
 }

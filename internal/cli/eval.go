@@ -102,7 +102,7 @@ DIR/truth.jsonl (the exact answers by id).`,
 	f.IntVar(&o.beam, "beam", router.DefaultBeam, "B: router beam width")
 	f.IntVar(&o.candidates, "max-candidates", router.DefaultMaxCandidates, "k: chains the router scores exactly")
 	f.Float64Var(&o.gainTau, "gain-threshold", router.DefaultGainThreshold, "τ_gain of the router")
-	f.IntVar(&o.workers, "workers", 0, "goroutines answering queries (0: GOMAXPROCS)")
+	workersFlag(f, &o.workers, "goroutines answering queries")
 	f.StringVar(&o.writeQueries, "write-queries", "", "keep the first world's corpus, index, queries and truth in DIR")
 	return cmd
 }
@@ -130,6 +130,10 @@ func parseSeeds(s string) ([]int64, error) {
 }
 
 func runEval(cmd *cobra.Command, o evalOptions) error {
+	var err error
+	if o.workers, err = resolveWorkers(o.workers); err != nil {
+		return fmt.Errorf("eval: %w", err)
+	}
 	ctx := cmd.Context()
 	out := cmd.OutOrStdout()
 	conds := strings.Split(o.conditions, ",")

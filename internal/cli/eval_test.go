@@ -25,7 +25,7 @@ func evalCLI(t *testing.T, args ...string) (stdout, stderr string, err error) {
 }
 
 // TestEvalRouteAgree measures the router through `hopwise route --queries`
-// on a world written by the eval generator (issue 4 quality target) and checks
+// on a world written by the eval generator (the routed-quality check) and checks
 // that the routed MSE computed from the route command's JSONL equals the one
 // `hopwise eval` reports for the same world.
 func TestEvalRouteAgree(t *testing.T) {

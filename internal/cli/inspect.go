@@ -25,12 +25,14 @@ type inspectOptions struct {
 	json   bool
 	verify bool
 	top    int
+	list   bool
+	prefix string
 }
 
 func newInspectCmd() *cobra.Command {
 	var o inspectOptions
 	cmd := &cobra.Command{
-		Use:   "inspect --index PATH [--entity NAME] [--json] [--verify] [--top N]",
+		Use:   "inspect --index PATH [--entity NAME | --list [--prefix P]] [--json] [--verify] [--top N]",
 		Short: "Show the counts and size of a locality index, or one entity's statistics",
 		Long: `inspect opens a locality index and prints its format version, generation,
 size, and the numbers of entities, contexts and pairs. bytes_per_edge is the
@@ -40,15 +42,21 @@ edges (adjacency entries, twice the pairs).
 With --entity it prints that entity's values with their marginal counts, the
 number of contexts observing it (support), and its top neighbours by pair
 support with each pair's count table (rows: the entity's values, columns: the
-neighbour's values).
+neighbour's values). An unknown name is answered with the nearest names.
+
+With --list it prints the entity names, one per line in byte order (with
+--json one object with the names); --prefix P keeps the names that start
+with P and implies --list.
 
 The index is opened with a header-only check, which is fast on any size;
 --verify also checks every section checksum and structural invariant.
-Exit status: 0 on success, 2 if the index is damaged or not an index, 1 for
-other errors (missing file, unknown entity, bad flags).`,
+Exit status: 0 on success, 2 if the index is damaged or not an index (as
+for "hopwise route"), 1 for other errors (missing file, unknown entity, bad
+flags).`,
 		Example: `  hopwise inspect --index greenhouse.hwx
   hopwise inspect --index greenhouse.hwx --entity pump.a --top 5
-  hopwise inspect --index greenhouse.hwx --json --verify`,
+  hopwise inspect --index greenhouse.hwx --json --verify
+  hopwise inspect --index greenhouse.hwx --list --prefix pump`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			return runInspect(cmd.Context(), cmd.OutOrStdout(), o)
@@ -60,6 +68,8 @@ other errors (missing file, unknown entity, bad flags).`,
 	f.BoolVar(&o.json, "json", false, "print JSON instead of a table")
 	f.BoolVar(&o.verify, "verify", false, "verify every section checksum and invariant, not only the header")
 	f.IntVar(&o.top, "top", 10, "number of neighbours to show with --entity")
+	f.BoolVar(&o.list, "list", false, "print the entity names, one per line")
+	f.StringVar(&o.prefix, "prefix", "", "with --list: only the names that start with this (implies --list)")
 	_ = cmd.MarkFlagRequired("index")
 	return cmd
 }
@@ -119,6 +129,10 @@ func runInspect(ctx context.Context, w io.Writer, o inspectOptions) error {
 	if o.top < 0 {
 		return fmt.Errorf("inspect: --top must be ≥ 0, got %d", o.top)
 	}
+	o.list = o.list || o.prefix != ""
+	if o.list && o.entity != "" {
+		return fmt.Errorf("inspect: give --entity or --list/--prefix, not both")
+	}
 	x, err := graphidx.Open(o.index, graphidx.WithLazyVerify())
 	if err != nil {
 		return indexError(err)
@@ -153,6 +167,9 @@ func runInspect(ctx context.Context, w io.Writer, o inspectOptions) error {
 		rep.Verified = true
 		rep.VerifySeconds = time.Since(start).Seconds()
 	}
+	if o.list {
+		return listNames(w, x, o.prefix, o.json)
+	}
 	if o.entity != "" {
 		er, err := entityStats(x, o.entity, o.top)
 		if err != nil {
@@ -181,7 +198,7 @@ func indexError(err error) error {
 func entityStats(x *graphidx.Index, name string, n int) (*entityReport, error) {
 	id, ok := x.Lookup(name)
 	if !ok {
-		return nil, fmt.Errorf("inspect: entity %q not found in %s (%d entities; names are case-sensitive)", name, x.Path(), x.NumEntities())
+		return nil, fmt.Errorf("inspect: entity %q not found in %s (%d entities)%s", name, x.Path(), x.NumEntities(), unknownEntityHint(x, name))
 	}
 	er := &entityReport{Name: name, ID: id, Support: x.EntitySupport(id), Degree: x.Degree(id), Neighbors: []neighborReport{}}
 	marg := x.Marginal(id)

@@ -41,7 +41,9 @@ merges them into the old counts.
 Inputs are directories of count shards (counts-IIIII-of-NNNNN.hwc, see
 graphidx/COUNTS.md) written by the Beam job (hopwise-beam), by
 "hopwise build --counts-out" or by an earlier "merge --counts-out". Each set
-must be complete; the shard counts of different sets need not agree.
+must be complete; the shard counts of different sets need not agree. One set
+given twice (by any path, or a copy of it) is refused: it would be counted
+twice.
 
 Pruning happens only here, at compile time (--min-support, --max-neighbors),
 never in the counts, so merged counts are always exact. Index files are
@@ -85,6 +87,9 @@ func runMerge(cmd *cobra.Command, o mergeOpts, inputs []string) error {
 		if err := checkCountsInput(in); err != nil {
 			return err
 		}
+	}
+	if err := graphidx.CheckDistinctCountSets(inputs); err != nil {
+		return classifyCountsErr(err)
 	}
 	start := time.Now()
 	w := cmd.OutOrStdout()

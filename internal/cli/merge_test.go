@@ -134,6 +134,11 @@ func TestMergeRefuses(t *testing.T) {
 	if err := os.WriteFile(shard, b, 0o644); err != nil {
 		t.Fatal(err)
 	}
+	// A copy of a set is the same set: refused by identity, not by path.
+	copied := filepath.Join(t.TempDir(), "copy")
+	if err := os.CopyFS(copied, os.DirFS(good)); err != nil {
+		t.Fatal(err)
+	}
 	notEmpty := t.TempDir()
 	if err := os.WriteFile(filepath.Join(notEmpty, "x"), nil, 0o644); err != nil {
 		t.Fatal(err)
@@ -146,6 +151,10 @@ func TestMergeRefuses(t *testing.T) {
 		{[]string{"merge", "--out", filepath.Join(dir, "o.idx"), damaged}, "checksum mismatch"},
 		{[]string{"merge", "--counts-out", notEmpty, good}, "not empty"},
 		{[]string{"merge", good}, "give --out"},
+		{[]string{"merge", "--out", filepath.Join(dir, "o.idx"), good, good}, "same count set"},
+		{[]string{"merge", "--out", filepath.Join(dir, "o.idx"), good, good + "/"}, "same count set"},
+		{[]string{"merge", "--out", filepath.Join(dir, "o.idx"), good, copied}, "same count set"},
+		{[]string{"merge", "--counts-out", filepath.Join(dir, "c"), good, copied}, "same count set"},
 	} {
 		_, err := runCLI(t, tc.args...)
 		var ee *ExitError

@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"os"
 	"sort"
+	"strings"
 
 	"github.com/spf13/cobra"
 )
@@ -33,7 +34,27 @@ to be more accurate. Run "hopwise demo" for a tour on generated greenhouse data.
 	}
 	sort.Slice(subs, func(i, j int) bool { return subs[i].Name() < subs[j].Name() })
 	root.AddCommand(subs...)
+	root.SetFlagErrorFunc(renamedFlagError)
 	return root
+}
+
+// renamedFlags maps flags that were renamed to their new names.
+var renamedFlags = map[string]string{
+	"budget":   "expansion-budget", // route, bench: the config field is expansion_budget
+	"fallback": "unknown-entity",   // route: the config field is unknown_entity
+}
+
+// renamedFlagError turns cobra's "unknown flag: --budget" for a renamed
+// flag into an error that names the new flag; other flag errors pass.
+func renamedFlagError(cmd *cobra.Command, err error) error {
+	name, ok := strings.CutPrefix(err.Error(), "unknown flag: --")
+	if !ok {
+		return err
+	}
+	if nw, ok := renamedFlags[name]; ok && cmd.Flags().Lookup(nw) != nil {
+		return fmt.Errorf("%s: flag --%s was renamed to --%s", cmd.Name(), name, nw)
+	}
+	return err
 }
 
 // ExitError carries a process exit status through cobra.

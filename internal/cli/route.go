@@ -9,7 +9,6 @@ import (
 	"fmt"
 	"io"
 	"os"
-	"runtime"
 	"slices"
 	"strconv"
 	"strings"
@@ -89,7 +88,8 @@ the figures are "error_proxy" (error_measure "support-proxy"), the support
 model's v0/(support+n0) summed over links plus β per bridge, which ranks
 answers by co-occurrence evidence and is not an error of any probability.
 Estimates cover every value of the target, in the index's value order; a
-decision from a configured --fallback has neither estimate nor error figure.
+decision from a configured --unknown-entity fallback has neither estimate
+nor error figure.
 A text line gives {"id","text","presence_only","mentions":[...],
 "decisions":[{<view>,"plan":{...},"prompt":"..."}],"dropped":n}. A bad line
 gives {"id":...,"error":"line N: ..."} and the batch goes on: keys are
@@ -110,8 +110,10 @@ exit status 1.
 
 Settings come from --config FILE.json (the router.Config format, also
 written by "hopwise tune") and are overridden by the flags given explicitly.
-Exit status: 0 when every query was answered, 2 when some failed, 1 on a
-fatal error (index, config, flags, I/O).`,
+Exit status: 0 when every query was answered, 2 when some failed or the
+index is damaged or not an index (as for "hopwise inspect"), 1 on another
+fatal error (missing index, config, flags, I/O). An unknown entity is
+answered with the nearest names in the index.`,
 		Example: `  hopwise route --index greenhouse.hwx --from vent-north --value open --to bed-tomato
   hopwise route --index greenhouse.hwx --from vent-north --value open --to bed-tomato --json
   hopwise route --index greenhouse.hwx --queries queries.jsonl --config route.json > decisions.jsonl
@@ -135,7 +137,7 @@ fatal error (index, config, flags, I/O).`,
 	f.StringVar(&o.chainTemplate, "chain-template", "", "text/template file replacing the default chain plan (fields: docs/PLANS.md)")
 	f.StringVar(&o.directTemplate, "direct-template", "", "text/template file replacing the default direct plan")
 	f.BoolVar(&o.json, "json", false, "single query: print the batch JSON object")
-	f.IntVar(&o.workers, "workers", runtime.GOMAXPROCS(0), "batch: goroutines deciding in parallel")
+	workersFlag(f, &o.workers, "batch: goroutines deciding in parallel")
 	f.DurationVar(&o.timeout, "timeout", 0, "deadline per decision (0: none); a cut search is reported as truncated")
 	f.Float64Var(&o.gainThreshold, "gain-threshold", def.GainThreshold, "τ_gain: route chain when gain ≥ τ")
 	f.IntVar(&o.maxBridges, "max-bridges", def.MaxBridges, "H: most bridges in a chain (0-3)")
@@ -143,8 +145,8 @@ fatal error (index, config, flags, I/O).`,
 	f.IntVar(&o.maxCandidates, "max-candidates", def.MaxCandidates, "k: chains scored exactly")
 	f.Float64Var(&o.alpha, "alpha", def.Alpha, "Dirichlet pseudo-count α")
 	f.Float64Var(&o.beta, "beta", def.Beta, "per-hop squared bias β")
-	f.StringVar(&o.fallback, "fallback", def.Fallback, "unknown endpoints: error, direct or chain")
-	f.IntVar(&o.budget, "budget", def.ExpansionBudget, "expansion budget per search")
+	f.StringVar(&o.fallback, "unknown-entity", def.Fallback, "unknown endpoints: error, or answer with a direct or chain fallback decision")
+	f.IntVar(&o.budget, "expansion-budget", def.ExpansionBudget, "work units one search may spend (a hub costs at most this)")
 	f.Float64Var(&o.utilityLambda, "utility-lambda", def.UtilityLambda, "λ of the utility form λ·gain − hop_cost·m (0: off)")
 	f.Float64Var(&o.hopCost, "hop-cost", def.HopCost, "cost per bridge in the utility form")
 	f.IntVar(&o.cacheSize, "cache-size", def.CacheSize, "decision cache entries (0: off)")
@@ -174,8 +176,8 @@ func routeConfig(cmd *cobra.Command, o routeOptions) (router.Config, error) {
 	set("max-candidates", func() { c.MaxCandidates = o.maxCandidates })
 	set("alpha", func() { c.Alpha = o.alpha })
 	set("beta", func() { c.Beta = o.beta })
-	set("fallback", func() { c.Fallback = o.fallback })
-	set("budget", func() { c.ExpansionBudget = o.budget })
+	set("unknown-entity", func() { c.Fallback = o.fallback })
+	set("expansion-budget", func() { c.ExpansionBudget = o.budget })
 	set("utility-lambda", func() { c.UtilityLambda = o.utilityLambda })
 	set("hop-cost", func() { c.HopCost = o.hopCost })
 	set("cache-size", func() { c.CacheSize = o.cacheSize })
@@ -200,8 +202,9 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 	if (o.chainTemplate != "" || o.directTemplate != "") && o.lexicon == "" {
 		return errors.New("route: --chain-template and --direct-template render plans of texts, which need --lexicon")
 	}
-	if o.workers < 1 {
-		return fmt.Errorf("route: --workers must be ≥ 1, got %d", o.workers)
+	var err error
+	if o.workers, err = resolveWorkers(o.workers); err != nil {
+		return fmt.Errorf("route: %w", err)
 	}
 	if o.maxLineBytes < 64 {
 		return fmt.Errorf("route: --max-line-bytes must be ≥ 64, got %d", o.maxLineBytes)
@@ -221,7 +224,7 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 	}
 	ix, err := graphidx.Open(o.index)
 	if err != nil {
-		return err
+		return indexError(err) // damage: exit 2, as in inspect
 	}
 	r, err := router.New(ix, opts...) // the router closes the index
 	if err != nil {
@@ -247,6 +250,7 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 			err = ix.CheckFile()
 		}
 		if err != nil {
+			err = decideErrorHint(ix, router.Query{From: q.From, Value: q.Value, To: q.To}, o.timeout, err)
 			if o.json {
 				line, _ := json.Marshal(routeError{ID: nil, Error: err.Error()})
 				out.Write(append(line, '\n'))

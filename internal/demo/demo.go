@@ -12,14 +12,7 @@ import (
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/internal/eval"
 	"github.com/hopwise/hopwise/internal/world"
-	"github.com/hopwise/hopwise/otelx"
-	"github.com/hopwise/hopwise/otelx/otlpfile"
 	"github.com/hopwise/hopwise/router"
-	"github.com/hopwise/hopwise/scorer"
-	"go.opentelemetry.io/otel/attribute"
-	"go.opentelemetry.io/otel/metric/noop"
-	"go.opentelemetry.io/otel/sdk/resource"
-	sdktrace "go.opentelemetry.io/otel/sdk/trace"
 )
 
 // Defaults of Config.
@@ -38,7 +31,7 @@ const (
 	IndexFile   = "index.hwx"
 	QueriesFile = "queries.jsonl"
 	TruthFile   = "truth.jsonl"
-	TraceFile   = "decisions.otlp.jsonl"
+	TraceFile   = "decisions.otlp.jsonl" // ExperimentFile: see experiment.go
 	PlotFile    = "error-by-route.png"
 )
 
@@ -99,6 +92,7 @@ type Files struct {
 	// Lexicon (display names and value phrases) and Questions (free-text
 	// questions in the `hopwise route --queries` text-line form).
 	Lexicon, Questions string
+	Experiment         string // traces with outcomes, for tune and ab
 }
 
 // Timings are the wall times of Run's stages.
@@ -106,7 +100,9 @@ type Timings struct {
 	Prepare time.Duration // sample the corpus and build the index
 	Measure time.Duration // answer every query with every estimator
 	Route   time.Duration // the traced routing pass
-	Total   time.Duration
+	// Experiment is the pass under A/B arms and exploration, with outcomes.
+	Experiment time.Duration
+	Total      time.Duration
 }
 
 // Report is the result of Run.
@@ -122,9 +118,12 @@ type Report struct {
 	Explained []Explained
 	// Texts are questions taken from free text to mentions, decisions and
 	// rendered plans.
-	Texts   []TextExample
-	Files   Files
-	Timings Timings
+	Texts []TextExample
+	// Experiment summarises the pass under A/B arms and exploration whose
+	// traces carry outcomes (Files.Experiment).
+	Experiment Experiment
+	Files      Files
+	Timings    Timings
 }
 
 // Run executes the demo: sample, build, measure against exact truth, route
@@ -149,8 +148,9 @@ func Run(ctx context.Context, cfg Config) (*Report, error) {
 		Trace:   filepath.Join(cfg.Dir, TraceFile),
 		Plot:    filepath.Join(cfg.Dir, PlotFile),
 
-		Lexicon:   filepath.Join(cfg.Dir, LexiconFile),
-		Questions: filepath.Join(cfg.Dir, QuestionsFile),
+		Lexicon:    filepath.Join(cfg.Dir, LexiconFile),
+		Questions:  filepath.Join(cfg.Dir, QuestionsFile),
+		Experiment: filepath.Join(cfg.Dir, ExperimentFile),
 	}
 	w, err := world.Greenhouse(cfg.Seed)
 	if err != nil {
@@ -205,6 +205,12 @@ func Run(ctx context.Context, cfg Config) (*Report, error) {
 	}
 	rep.Timings.Route = time.Since(t0)
 	logf("routed %d queries with tracing to %s (%.1fs)", rep.HeldOut.Queries+rep.Supported.Queries, rep.Files.Trace, rep.Timings.Route.Seconds())
+	t0 = time.Now()
+	if err := experimentPass(ctx, cfg, w, rep); err != nil {
+		return nil, err
+	}
+	rep.Timings.Experiment = time.Since(t0)
+	logf("asked every query %d times under A/B arms and exploration, with outcomes, to %s (%.1fs)", ExperimentRounds, rep.Files.Experiment, rep.Timings.Experiment.Seconds())
 
 	// 5. Free-text questions: a lexicon and questions next to the index,
 	// and two of them taken from text to a plan.
@@ -223,46 +229,19 @@ func Run(ctx context.Context, cfg Config) (*Report, error) {
 	return rep, nil
 }
 
-// tracedPass opens the index in a router configured as the harness's, wraps
-// it in otelx instrumentation exporting to an OTLP JSON Lines file, and routes
-// every query again, keeping the decisions to explain.
+// tracedPass routes every query again through an instrumented router
+// configured as the harness's, tracing each decision to rep.Files.Trace, and
+// keeps the decisions to explain.
 func tracedPass(ctx context.Context, cfg Config, w *world.World, rep *Report) (err error) {
-	idx, err := graphidx.Open(rep.Files.Index)
+	r, inst, done, err := tracedRouter(ctx, cfg, rep, rep.Files.Trace)
 	if err != nil {
-		return fmt.Errorf("demo: %w", err)
+		return err
 	}
-	model, err := scorer.NewBayes(scorer.WithBeta(rep.Eval.Beta))
-	if err != nil {
-		idx.Close()
-		return fmt.Errorf("demo: %w", err)
-	}
-	r, err := router.New(idx, append([]router.Option{router.WithModel(model)}, cfg.RouterOptions...)...)
-	if err != nil {
-		idx.Close()
-		return fmt.Errorf("demo: %w", err)
-	}
-	defer r.Close() // closes idx
-
-	_ = os.Remove(rep.Files.Trace) // the exporter appends; start fresh
-	exp, err := otlpfile.NewExporter(ctx, rep.Files.Trace)
-	if err != nil {
-		return fmt.Errorf("demo: trace file %s: %w", rep.Files.Trace, err)
-	}
-	tp := sdktrace.NewTracerProvider(
-		sdktrace.WithBatcher(exp),
-		sdktrace.WithResource(resource.NewSchemaless(attribute.String("service.name", "hopwise-demo"))),
-	)
 	defer func() {
-		sctx, cancel := context.WithTimeout(context.WithoutCancel(ctx), 10*time.Second)
-		defer cancel()
-		if e := tp.Shutdown(sctx); e != nil && err == nil {
-			err = fmt.Errorf("demo: flushing traces to %s: %w", rep.Files.Trace, e)
+		if e := done(); e != nil && err == nil {
+			err = e
 		}
 	}()
-	inst, err := otelx.New(otelx.WithTracerProvider(tp), otelx.WithMeterProvider(noop.NewMeterProvider()))
-	if err != nil {
-		return fmt.Errorf("demo: %w", err)
-	}
 	res, err := route(ctx, w, r, inst, cfg.Examples)
 	if err != nil {
 		return err

@@ -5,6 +5,7 @@ import (
 	"context"
 	"errors"
 	"math"
+	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"strings"
@@ -13,6 +14,7 @@ import (
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/internal/eval"
 	"github.com/hopwise/hopwise/otelx"
+	"github.com/hopwise/hopwise/router"
 )
 
 // TestRunSmall runs the whole demo on a small corpus and checks that the
@@ -42,6 +44,9 @@ func TestRunSmall(t *testing.T) {
 		t.Fatal(err)
 	}
 	if err := rep.WriteFiles(&table); err != nil {
+		t.Fatal(err)
+	}
+	if err := rep.WriteNext(&table, "hopwise"); err != nil {
 		t.Fatal(err)
 	}
 	t.Logf("\n%s%s", log.String(), table.String())
@@ -142,6 +147,64 @@ func TestRunSmall(t *testing.T) {
 	}
 	if want := rep.HeldOut.RoutedChain + rep.Supported.RoutedChain; chains != want {
 		t.Errorf("trace has %d chain decisions, table %d", chains, want)
+	}
+	checkExperiment(t, rep)
+}
+
+// checkExperiment checks the experiment pass: every query asked
+// ExperimentRounds times, all three arms used, exploration on, and a trace
+// file in which every decision carries a propensity and joins one outcome
+// in [0, 1], as tune and ab need.
+func checkExperiment(t *testing.T, rep *Report) {
+	t.Helper()
+	ex := rep.Experiment
+	if want := ExperimentRounds * (rep.HeldOut.Queries + rep.Supported.Queries); ex.Decisions != want {
+		t.Errorf("experiment: %d decisions, want %d", ex.Decisions, want)
+	}
+	for _, a := range ExperimentArms {
+		if ex.ByArm[a.Arm] == 0 {
+			t.Errorf("experiment: arm %s unused: %v", a.Arm, ex.ByArm)
+		}
+	}
+	if ex.Explored == 0 || !(ex.MeanScore > 0 && ex.MeanScore < 1) {
+		t.Errorf("experiment: %d explored, mean score %v", ex.Explored, ex.MeanScore)
+	}
+	lg, err := otelx.ReadTraceFiles(rep.Files.Experiment)
+	if err != nil {
+		t.Fatal(err)
+	}
+	joined, st := otelx.Join(lg.Decisions, lg.Outcomes)
+	if len(lg.Decisions) != ex.Decisions || st.Joined != ex.Decisions || st.DecisionsWithoutOutcome+st.OutcomesWithoutDecision+st.DecisionsWithoutKey != 0 {
+		t.Errorf("experiment trace: %d decisions, join %+v; want %d joined", len(lg.Decisions), st, ex.Decisions)
+	}
+	for _, j := range joined {
+		if !j.Decision.HasPropensity() || !(j.Outcome.Score >= 0 && j.Outcome.Score <= 1) {
+			t.Fatalf("decision %+v, outcome %+v", *j.Decision, *j.Outcome)
+		}
+	}
+}
+
+// TestOutcome checks the outcome score (one minus half the Brier score
+// against a value drawn from the exact answer) and the token prices.
+func TestOutcome(t *testing.T) {
+	t.Parallel()
+	rng := rand.New(rand.NewPCG(1, 2))
+	d := router.Decision{Estimate: []float64{0.8, 0.2}, Bridges: []string{"a", "b"}}
+	truth := []float64{0.7, 0.3}
+	var sum float64
+	const n = 20000
+	for range n {
+		o := outcome(d, truth, rng)
+		if o.InputTokens != answerInTokens+2*bridgeInTokens || o.OutputTokens != answerOutTokens+2*bridgeOutTokens {
+			t.Fatalf("tokens %d in, %d out", o.InputTokens, o.OutputTokens)
+		}
+		sum += o.Score
+	}
+	// E[score] = 1 − ½(Σ(p̂ − p)² + 1 − Σp²) = 1 − ½(0.02 + 0.42) = 0.78;
+	// the score takes the values 0.96 and 0.36, so its sd is 0.275 and the
+	// mean of n draws has sd 0.0019.
+	if mean := sum / n; math.Abs(mean-0.78) > 0.01 {
+		t.Errorf("mean score %.4f, want 0.78", mean)
 	}
 }
 

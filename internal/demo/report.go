@@ -26,7 +26,7 @@ func num(x float64) string {
 func (r *Report) WriteTable(out io.Writer) error {
 	var b strings.Builder
 	e := r.Eval
-	fmt.Fprintf(&b, "Mean squared error vs the exact answer (greenhouse seed %d, %d contexts, %d entities):\n\n", r.Seed, e.Contexts, e.Entities)
+	fmt.Fprintf(&b, "Mean squared error vs the exact answer, averaged over the target's values (greenhouse seed %d, %d contexts, %d entities):\n\n", r.Seed, e.Contexts, e.Entities)
 	tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', tabwriter.AlignRight)
 	fmt.Fprintln(tw, "query set\tpairs\tqueries\tdirect\tchained\trouted\tideal*\trouted to chain\tmean support\t")
 	for _, row := range []struct {
@@ -69,7 +69,7 @@ func (r *Report) WriteTable(out io.Writer) error {
 		}
 		fmt.Fprintf(&b, "   P(%s=%s): exact %.3f, direct %.3f (support %d)", e.To, e.TargetValue, e.Truth, e.Direct, e.Support)
 		if len(e.Bridges) > 0 {
-			fmt.Fprintf(&b, ", chained %.3f (weakest link %d)", e.Chained, e.ChainMinSupport)
+			fmt.Fprintf(&b, ", chained %.3f (weakest edge %d)", e.Chained, e.ChainMinSupport)
 		}
 		fmt.Fprintf(&b, "\n   gain %.5f, reason %s\n", e.Gain, e.Reason)
 	}
@@ -78,30 +78,17 @@ func (r *Report) WriteTable(out io.Writer) error {
 	return err
 }
 
-// WriteFiles prints the files written and the commands to run next.
+// WriteFiles prints the files written and the timings.
 func (r *Report) WriteFiles(out io.Writer) error {
 	var b strings.Builder
 	fmt.Fprintf(&b, "Wrote:\n  corpus (JSONL contexts)   %s\n  locality index            %s\n  queries and exact truth   %s, %s\n  decision traces (OTLP)    %s\n  error by route (PNG)      %s\n  lexicon and questions     %s, %s\n",
 		r.Files.Corpus, r.Files.Index, r.Files.Queries, r.Files.Truth, r.Files.Trace, r.Files.Plot, r.Files.Lexicon, r.Files.Questions)
-	fmt.Fprintf(&b, "Timings: corpus+index %.1fs, measure %.1fs, traced routing %.1fs, total %.1fs\n",
-		r.Timings.Prepare.Seconds(), r.Timings.Measure.Seconds(), r.Timings.Route.Seconds(), r.Timings.Total.Seconds())
-	from, value, to := "zone-1/vent-a", "open", "bed-18/yield"
-	if len(r.Explained) > 0 {
-		from, value, to = r.Explained[0].From, r.Explained[0].Value, r.Explained[0].To
+	if r.Experiment.Decisions > 0 {
+		fmt.Fprintf(&b, "  A/B traces + outcomes     %s\n", r.Files.Experiment)
+		fmt.Fprintf(&b, "    %s\n", r.Experiment.describe())
 	}
-	fmt.Fprintf(&b, "\nNext:\n  hopwise inspect --index %s --entity %s\n  hopwise route --index %s --from %s --value %s --to %s\n  hopwise route --index %s --queries %s\n",
-		r.Files.Index, to, r.Files.Index, from, value, to, r.Files.Index, r.Files.Queries)
-	if len(r.Texts) > 0 {
-		fmt.Fprintf(&b, "  hopwise route --index %s --lexicon %s --text %s\n  hopwise route --index %s --lexicon %s --queries %s\n",
-			r.Files.Index, r.Files.Lexicon, shellQuote(r.Texts[0].Question), r.Files.Index, r.Files.Lexicon, r.Files.Questions)
-	}
-	b.WriteString("  hopwise eval\n")
+	fmt.Fprintf(&b, "Timings: corpus+index %.1fs, measure %.1fs, traced routing %.1fs, A/B with outcomes %.1fs, total %.1fs\n",
+		r.Timings.Prepare.Seconds(), r.Timings.Measure.Seconds(), r.Timings.Route.Seconds(), r.Timings.Experiment.Seconds(), r.Timings.Total.Seconds())
 	_, err := io.WriteString(out, b.String())
 	return err
-}
-
-// shellQuote quotes s for a POSIX shell: single quotes, with each embedded
-// single quote written as '\”.
-func shellQuote(s string) string {
-	return "'" + strings.ReplaceAll(s, "'", `'\''`) + "'"
 }

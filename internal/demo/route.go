@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"slices"
 	"sort"
 	"strings"
 
@@ -63,60 +64,92 @@ type routed struct {
 // supported pair (the eval harness's query set) through the instrumented
 // router, with unit keys so the traces can be joined to outcomes.
 func route(ctx context.Context, w *world.World, r *router.Router, inst *otelx.Instrumentation, nExplain int) (routeResult, error) {
-	sets := [2][][2]int{w.HeldOut(), w.Supported()}
 	rows := [2]Traced{{Set: "far-apart (held-out)"}, {Set: "well-supported"}}
+	qs, impossible, err := demoQueries(w)
+	if err != nil {
+		return routeResult{}, err
+	}
+	rows[0].Skipped, rows[1].Skipped = impossible[0], impossible[1]
 	var all []routed
-	n := 0
-	for si, pairs := range sets {
-		row := &rows[si]
-		var sumSup float64
+	var sumSup [2]float64
+	for n, dq := range qs {
+		row := &rows[dq.set]
+		q := dq.query(w, fmt.Sprintf("demo-q%04d", n+1))
+		d, err := inst.Decide(ctx, r, q)
+		if errors.Is(err, router.ErrUnknownValue) {
+			row.Skipped++
+			continue
+		}
+		if err == nil {
+			err = dq.checkValues(w, d)
+		}
+		if err != nil {
+			return routeResult{}, fmt.Errorf("demo: routing %s=%s → %s: %w", q.From, q.Value, q.To, err)
+		}
+		row.Queries++
+		if d.Chain != nil {
+			row.WithChain++
+		}
+		if d.Mode == router.ModeChain {
+			row.RoutedChain++
+		}
+		sumSup[dq.set] += float64(d.Direct.Support)
+		all = append(all, routed{set: dq.set, from: dq.from, to: dq.to, value: dq.value, d: d, truth: dq.truth})
+	}
+	for i := range rows {
+		if rows[i].Queries > 0 {
+			rows[i].MeanSupport = sumSup[i] / float64(rows[i].Queries)
+		}
+	}
+	return routeResult{heldOut: rows[0], supported: rows[1], explained: pickExplained(w, all, rows, nExplain)}, nil
+}
+
+// demoQuery is one question of the demo with its exact answer: entity to
+// given entity from = its value-th value, from query set set (0 held-out,
+// 1 supported).
+type demoQuery struct {
+	set, from, value, to int
+	truth                []float64 // exact P(to | from = value), by value index
+}
+
+// demoQueries lists both directions and every value of each held-out and
+// each supported pair of w (the eval harness's query set), leaving out,
+// and counting per set, the queries whose evidence has probability zero.
+func demoQueries(w *world.World) (qs []demoQuery, impossible [2]int, err error) {
+	for si, pairs := range [2][][2]int{w.HeldOut(), w.Supported()} {
 		for _, p := range pairs {
 			for _, dir := range [2][2]int{{p[0], p[1]}, {p[1], p[0]}} {
 				from, to := dir[0], dir[1]
 				for u := range w.Card(from) {
-					n++
 					truth, err := w.TrueConditional(from, u, to)
 					if errors.Is(err, world.ErrImpossibleEvidence) {
-						row.Skipped++
+						impossible[si]++
 						continue
 					}
 					if err != nil {
-						return routeResult{}, fmt.Errorf("demo: exact P(%s | %s): %w", w.Name(to), w.Name(from), err)
+						return nil, impossible, fmt.Errorf("demo: exact P(%s | %s): %w", w.Name(to), w.Name(from), err)
 					}
-					q := router.Query{From: w.Name(from), Value: w.Labels(from)[u], To: w.Name(to), Key: fmt.Sprintf("demo-q%04d", n)}
-					d, err := inst.Decide(ctx, r, q)
-					if errors.Is(err, router.ErrUnknownValue) {
-						row.Skipped++
-						continue
-					}
-					if err != nil {
-						return routeResult{}, fmt.Errorf("demo: routing %s=%s → %s: %w", q.From, q.Value, q.To, err)
-					}
-					if len(d.Values) != len(truth) {
-						return routeResult{}, fmt.Errorf("demo: index has %d values of %s, the world %d", len(d.Values), q.To, len(truth))
-					}
-					for i, l := range d.Values {
-						if l != w.Labels(to)[i] {
-							return routeResult{}, fmt.Errorf("demo: index values %v of %s differ from the world's %v", d.Values, q.To, w.Labels(to))
-						}
-					}
-					row.Queries++
-					if d.Chain != nil {
-						row.WithChain++
-					}
-					if d.Mode == router.ModeChain {
-						row.RoutedChain++
-					}
-					sumSup += float64(d.Direct.Support)
-					all = append(all, routed{set: si, from: from, to: to, value: u, d: d, truth: truth})
+					qs = append(qs, demoQuery{set: si, from: from, value: u, to: to, truth: truth})
 				}
 			}
 		}
-		if row.Queries > 0 {
-			row.MeanSupport = sumSup / float64(row.Queries)
-		}
 	}
-	return routeResult{heldOut: rows[0], supported: rows[1], explained: pickExplained(w, all, rows, nExplain)}, nil
+	return qs, impossible, nil
+}
+
+// query is the router query of q with the unit key key.
+func (q demoQuery) query(w *world.World, key string) router.Query {
+	return router.Query{From: w.Name(q.from), Value: w.Labels(q.from)[q.value], To: w.Name(q.to), Key: key}
+}
+
+// checkValues checks that the decision's target values are the world's, in
+// the same order, so estimates and exact answers line up.
+func (q demoQuery) checkValues(w *world.World, d router.Decision) error {
+	labels := w.Labels(q.to)
+	if !slices.Equal(d.Values, labels) {
+		return fmt.Errorf("index values %v of %s differ from the world's %v", d.Values, w.Name(q.to), labels)
+	}
+	return nil
 }
 
 // pickExplained chooses n decisions that show the job: far-apart queries the

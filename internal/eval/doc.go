@@ -1,6 +1,6 @@
 // Package eval is the evaluation harness of hopwise: it measures the real
 // index builder, scorer and router against exact truth on synthetic worlds
-// (DESIGN.md §7, issue 3). `hopwise eval` and the demo use it.
+// (docs/DESIGN.md, Testbed). `hopwise eval` and the demo use it.
 //
 // # One world (Run = Prepare + Answer)
 //

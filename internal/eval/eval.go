@@ -21,9 +21,9 @@ import (
 
 // Defaults of Config.
 const (
-	// DefaultContexts is the corpus size of an eval world (issue 3 targets).
+	// DefaultContexts is the corpus size of an eval world.
 	DefaultContexts = 50000
-	// DefaultCondition is the condition of the issue 3 targets.
+	// DefaultCondition is the condition the accuracy figures are measured on.
 	DefaultCondition = world.CondLocalGeometric
 )
 

@@ -63,14 +63,14 @@ func TestRunSmallWorld(t *testing.T) {
 		if !(r.HeldOut.Chain < r.HeldOut.Direct) {
 			t.Errorf("seed %d: held-out chain MSE %.4f not below direct %.4f", seed, r.HeldOut.Chain, r.HeldOut.Direct)
 		}
-		// The routed answer must beat direct by a wide margin (issue 4's
+		// The routed answer must beat direct by a wide margin (the
 		// quality target): here by at least 4× (measured: see the log).
 		t.Logf("seed %d: held-out routed %.5f, direct %.5f, ideal %.5f; supported routed %.5f, direct %.5f",
 			seed, r.HeldOut.Routed, r.HeldOut.Direct, r.HeldOut.Ideal, r.Supported.Routed, r.Supported.Direct)
 		if !(r.HeldOut.Routed < r.HeldOut.Direct/4) {
 			t.Errorf("seed %d: held-out routed MSE %.4f not well below direct %.4f", seed, r.HeldOut.Routed, r.HeldOut.Direct)
 		}
-		// ... and must not lose on supported pairs (issue 3: ≤ 1.2× direct).
+		// ... and must not lose on supported pairs (at most 1.2× direct).
 		if !(r.Supported.Routed <= 1.2*r.Supported.Direct) {
 			t.Errorf("seed %d: supported routed MSE %.5f above 1.2× direct %.5f", seed, r.Supported.Routed, r.Supported.Direct)
 		}
@@ -138,7 +138,7 @@ func TestSummaryJSONShape(t *testing.T) {
 	if len(doc.Worlds) != 1 || len(doc.Mean) != 1 {
 		t.Fatalf("worlds %d, mean %d; want 1, 1", len(doc.Worlds), len(doc.Mean))
 	}
-	// The issue 3 contract: condition, seed, heldout/supported with the five
+	// The JSON contract: condition, seed, heldout/supported with the five
 	// estimators and n, calibration with spearman and mean_ratio.
 	w := doc.Worlds[0]
 	for _, k := range []string{"condition", "seed", "heldout", "supported", "calibration"} {

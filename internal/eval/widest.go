@@ -7,7 +7,7 @@ import "github.com/hopwise/hopwise/graphidx"
 // largest (a widest, or bottleneck, path), ties going to fewer bridges and
 // then to the lowest ids met in ascending order. It ignores values and
 // signal strength on purpose: it is the "choose bridges by support alone"
-// baseline of issue 3, measured against the router's choice by scored error.
+// baseline, measured against the router's choice by scored error.
 //
 // Search: a hop-layered bottleneck dynamic programme. Layer m keeps, for every
 // node, the best simple path s → … → node of m edges (its bottleneck and

@@ -40,7 +40,7 @@ func FuzzParseConfig(f *testing.F) {
 	}
 	f.Add(def)
 	f.Add([]byte(`{}`))
-	f.Add([]byte(`{"gain_threshold":0.002,"max_bridges":3,"beam":64,"model":"support","support_v0":0.25,"fallback":"direct"}`))
+	f.Add([]byte(`{"gain_threshold":0.002,"max_bridges":3,"beam":64,"error_model":"support","support_v0":0.25,"unknown_entity":"direct"}`))
 	f.Add([]byte(`{"arms":[{"arm":"routed","weight":0.9},{"arm":"direct-only","weight":0.1}],"exploration":0.1,"exploration_salt":"s"}`))
 	f.Add([]byte(`{"hash_key":"00112233445566778899aabbccddeeff","utility_lambda":1,"hop_cost":0.01}`))
 	f.Add([]byte(`{"beam":0}`))

@@ -16,10 +16,11 @@ import (
 
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/internal/cli"
+	stresstest "github.com/hopwise/hopwise/internal/stress"
 )
 
 // stress reports whether the heavy cases were asked for (HOPWISE_STRESS=1).
-func stress() bool { return os.Getenv("HOPWISE_STRESS") == "1" }
+func stress() bool { return stresstest.On() }
 
 // writeIndex writes src to dir/name and returns the path.
 func writeIndex(t testing.TB, dir, name string, src graphidx.Source) string {

@@ -9,7 +9,7 @@ import (
 
 // Geometric is the geometric distribution on {0, 1, 2, …} counting failures
 // before the first success: pmf p(1−p)^k, mean (1−p)/p, variance (1−p)/p²
-// (common practice; the mean is the DESIGN.md §8 check).
+// (common practice; the mean is the check of docs/DESIGN.md, External checks).
 type Geometric struct {
 	P float64 // success probability, in (0, 1]
 }
@@ -47,7 +47,7 @@ func (g Geometric) Rand(r *rand.Rand) int {
 
 // Zipf is the finite Zipf distribution on {1, …, N} with exponent S:
 // pmf 1 / (H_(N,S) k^S), where H_(N,S) = Σ_(i=1..N) i^(−S) is the
-// generalised harmonic number (DESIGN.md §8).
+// generalised harmonic number (docs/DESIGN.md, External checks).
 type Zipf struct {
 	s   float64
 	cdf []float64 // cdf[k−1] = P(K ≤ k)

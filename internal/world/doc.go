@@ -4,7 +4,7 @@
 // joint sample, held-out pairs that never co-occur, and a JSONL corpus writer
 // in the format read by graphidx.NewJSONLReader.
 //
-// The pieces (DESIGN.md §7):
+// The pieces (docs/DESIGN.md, Testbed):
 //
 //   - Generate draws a random sparse DAG with Beta(0.2, 0.2) CPT rows;
 //     New builds a world from explicit variables and CPTs; Greenhouse builds

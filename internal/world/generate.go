@@ -107,7 +107,7 @@ func (c Config) withDefaults() (Config, error) {
 	return c, nil
 }
 
-// Generate returns a random Bayesian network (DESIGN.md §7):
+// Generate returns a random Bayesian network (docs/DESIGN.md, Testbed):
 //
 //  1. a uniformly random topological order of N variables;
 //  2. E distinct edges drawn uniformly among the order-respecting pairs,

@@ -11,12 +11,12 @@ import (
 )
 
 // TestBetaRandMoments checks the Marsaglia–Tsang Beta sampler against the
-// Beta mean and variance from gonum stat/distuv (DESIGN.md §8 names distuv as
-// the reference library), within 5 standard errors of 200k draws.
+// Beta mean and variance from gonum stat/distuv (docs/DESIGN.md, External checks,
+// names distuv as the reference library), within 5 standard errors of 200k draws.
 func TestBetaRandMoments(t *testing.T) {
 	t.Parallel()
 	cases := []struct{ a, b float64 }{
-		{0.2, 0.2}, // the DESIGN.md §7 CPT default
+		{0.2, 0.2}, // the default CPT prior (docs/DESIGN.md, Testbed)
 		{0.5, 3},
 		{2, 5},
 		{1, 1},

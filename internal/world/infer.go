@@ -445,7 +445,7 @@ func (w *World) TrueConditional(from, fromValue, to int) ([]float64, error) {
 }
 
 // TrueChain returns e_uᵀ M_1 ⋯ M_(m+1), where M_k is the exact conditional
-// matrix P(b_k | b_(k−1)) along s=b_0 → bridges → t=b_(m+1) (DESIGN.md §3).
+// matrix P(b_k | b_(k−1)) along s=b_0 → bridges → t=b_(m+1) (docs/DESIGN.md, Error model).
 // It equals TrueConditional(s, u, t) when each bridge d-separates the earlier
 // part of the chain from the later part; the difference measures the
 // approximation error of the chain itself, apart from estimation error.

@@ -60,7 +60,7 @@ func TestBurglaryAIMA(t *testing.T) {
 	const B, E, A, J, M = 0, 1, 2, 3, 4
 
 	// AIMA 3rd ed. §14.4.1: P(B | j, m) = ⟨0.284, 0.716⟩; 0.28417184 to 8 digits
-	// (DESIGN.md §8).
+	// (docs/DESIGN.md, External checks).
 	p, err := w.Posterior(B, map[int]int{J: 1, M: 1})
 	if err != nil {
 		t.Fatal(err)
@@ -315,9 +315,9 @@ func TestNewRejects(t *testing.T) {
 	}
 }
 
-// TestTrueChainExactOnPolytrees checks DESIGN.md §3's claim that the chained
-// estimate is exact when each bridge screens off the two sides: on random
-// polytrees, the chain through MinimalSeparatorPath equals the exact
+// TestTrueChainExactOnPolytrees checks the claim of docs/DESIGN.md, Error
+// model, that the chained estimate is exact when each bridge screens off
+// the two sides: on random polytrees, the chain through MinimalSeparatorPath equals the exact
 // conditional for every dependent pair (d-separation, Pearl 1988 §3.3).
 func TestTrueChainExactOnPolytrees(t *testing.T) {
 	t.Parallel()

@@ -21,7 +21,7 @@ const (
 	// Full observes every variable.
 	Full
 	// Wrong observes a ball as Local does, but with distances taken in a
-	// different random graph over the same variables (DESIGN.md §7 "wrong
+	// different random graph over the same variables (docs/DESIGN.md, Testbed, "wrong
 	// locality"): same number of undirected edges, drawn uniformly.
 	Wrong
 )
@@ -88,7 +88,7 @@ func ConditionNames() []string {
 	return []string{CondLocalGeometric, CondLocalZipf, CondFull, CondWrong}
 }
 
-// ConditionByName returns the DESIGN.md §7 preset called name:
+// ConditionByName returns the preset called name (docs/DESIGN.md, Testbed):
 // local-geometric (radius 1+Geometric(0.5), drop 0.2), local-zipf (radius
 // Zipf(2) on {1..N}, drop 0.2), full (every variable, no drop) and wrong
 // (as local-geometric, distances in a different random graph).

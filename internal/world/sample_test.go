@@ -18,7 +18,7 @@ import (
 
 func TestZipfPMF(t *testing.T) {
 	t.Parallel()
-	// DESIGN.md §8: H_(10,1) = 7381/2520, so p(1) = 2520/7381 = 0.34142.
+	// Harmonic number: H_(10,1) = 7381/2520, so p(1) = 2520/7381 = 0.34142.
 	z, err := NewZipf(1, 10)
 	if err != nil {
 		t.Fatal(err)
@@ -56,7 +56,7 @@ func TestZipfPMF(t *testing.T) {
 
 func TestGeometricMean(t *testing.T) {
 	t.Parallel()
-	// DESIGN.md §8: the geometric mean (1−p)/p is 5 at p = 1/6.
+	// Geometric law: the mean (1−p)/p is 5 at p = 1/6.
 	g := Geometric{P: 1.0 / 6}
 	if math.Abs(g.Mean()-5) > 1e-12 {
 		t.Errorf("mean = %v, want 5", g.Mean())
@@ -379,7 +379,7 @@ func TestSampleStopsOnErrorAndCancel(t *testing.T) {
 	}
 }
 
-// TestHeldOutProperties checks DESIGN.md §7: held-out pairs are connected,
+// TestHeldOutProperties checks the testbed (docs/DESIGN.md, Testbed): held-out pairs are connected,
 // non-adjacent, dependent (MI ≥ the threshold) and never co-observed, while
 // supported pairs are the edges and do co-occur.
 func TestHeldOutProperties(t *testing.T) {

@@ -1,0 +1,29 @@
+// Package stress holds the one switch of the heavy tests: the environment
+// variable HOPWISE_STRESS. With HOPWISE_STRESS=1 the reliability suites run
+// their large variants, and the measurements that take minutes (build
+// speed-up, router latency profile, telemetry overhead, large benchmark
+// indexes) run instead of skipping. DEVELOPERS.md lists what it turns on.
+//
+// Every other test knob is a flag of the package's tests (-update to
+// rewrite golden files, and a few measurement settings), and quick runs use
+// testing.Short. Safe for concurrent use.
+package stress
+
+import (
+	"os"
+	"testing"
+)
+
+// Var is the name of the environment variable.
+const Var = "HOPWISE_STRESS"
+
+// On reports whether HOPWISE_STRESS=1.
+func On() bool { return os.Getenv(Var) == "1" }
+
+// Require skips tb unless HOPWISE_STRESS=1, saying what would run.
+func Require(tb testing.TB, what string) {
+	tb.Helper()
+	if !On() {
+		tb.Skipf("%s: set %s=1 to run", what, Var)
+	}
+}
