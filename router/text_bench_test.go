@@ -24,7 +24,7 @@ import (
 func BenchmarkDecideTextOverhead(b *testing.B) {
 	ix, src := benchIndex(b)
 	var lx strings.Builder
-	for _, e := range src.ents {
+	for _, e := range src.Entities() {
 		fmt.Fprintf(&lx, "%s\t%s\n", strings.ReplaceAll(e.Name, "-", " "), e.Name)
 	}
 	lex, err := graphidx.ParseLexicon(strings.NewReader(lx.String()), "bench-lexicon")

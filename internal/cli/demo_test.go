@@ -94,7 +94,7 @@ func runNextCommands(t *testing.T, out string) {
 			continue
 		}
 		n++
-		fields := strings.Fields(args)
+		fields := shellWords(t, args)
 		if fields[0] == "eval" && testing.Short() {
 			continue
 		}
@@ -115,4 +115,45 @@ func runNextCommands(t *testing.T, out string) {
 	if n < 6 {
 		t.Errorf("%d Next commands, want at least 6:\n%s", n, next)
 	}
+}
+
+// shellWords splits a command line the way a POSIX shell splits the words
+// the demo prints: blanks separate words, and single quotes (with '\'' for
+// an embedded quote) keep blanks inside one word.
+func shellWords(t *testing.T, line string) []string {
+	t.Helper()
+	var words []string
+	var w strings.Builder
+	inWord, quoted := false, false
+	for i := 0; i < len(line); i++ {
+		c := line[i]
+		switch {
+		case quoted && c == '\'':
+			quoted = false
+		case quoted:
+			w.WriteByte(c)
+		case c == '\'':
+			quoted, inWord = true, true
+		case c == '\\' && i+1 < len(line):
+			i++
+			w.WriteByte(line[i])
+			inWord = true
+		case c == ' ' || c == '\t':
+			if inWord {
+				words = append(words, w.String())
+				w.Reset()
+				inWord = false
+			}
+		default:
+			w.WriteByte(c)
+			inWord = true
+		}
+	}
+	if quoted {
+		t.Fatalf("unterminated quote in %q", line)
+	}
+	if inWord {
+		words = append(words, w.String())
+	}
+	return words
 }
