@@ -10,7 +10,6 @@ import (
 	"unsafe"
 
 	"github.com/hopwise/hopwise/graphidx"
-	"github.com/hopwise/hopwise/scorer"
 )
 
 // Router answers Decide calls against the current index. It owns the graphs
@@ -311,7 +310,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	sc.dirErr = dir.Err
 	if dir.Support > 0 {
 		// The pair's own counts carry no screening-off bias.
-		sc.ref = sc.ddist
+		sc.ref, sc.refVar = sc.ddist, dir.Var
 	}
 	_, adjacent := sc.pairStats(s, t)
 
@@ -367,8 +366,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 			return core{}, false, nil, fmt.Errorf("router: chain estimate %q → %q: %w", q.From, q.To, err)
 		}
 		// est.Dist is borrowed from sc.ws until the next model call.
-		e := est.Err + scorer.ReferenceBias(est.Dist, sc.ref)
-		score := sc.scoreOf(dir.Err-e, int(cd.m))
+		e, score := sc.chainScore(est, int(cd.m))
 		if !bestEst.ok || score > bestEst.score {
 			bestC = *cd
 			bestEst.ok, bestEst.err, bestEst.score = true, e, score

@@ -237,3 +237,43 @@ func FitChainBias(samples []ChainSample, delta float64) (beta, gamma float64, er
 	}
 	return bOnly, 0, nil
 }
+
+// PriorSample is one unobserved pair's query used to fit the prior strength
+// A of the Bayes model's direct estimate: the spread 1 − Σ_v m̂_v² of the
+// target's smoothed marginal m̂ and the realised Σ_v (m̂_v − p_v)² of
+// answering that marginal against the truth p.
+type PriorSample struct {
+	Spread float64
+	SqErr  float64
+}
+
+// FitPriorStrength fits A of the empirical-Bayes prior Dirichlet(A·m̂) (see
+// Bayes, "Direct estimate") so that its prior variance (1 − Σ_v m̂_v²)/(A+1)
+// matches the realised squared distance of unobserved pairs' conditionals
+// from their marginals, by least squares through the origin,
+//
+//	c = Σ_i Spread_i·SqErr_i / Σ_i Spread_i²,   A = 1/c − 1,
+//
+// the minimiser of Σ_i (c·Spread_i − SqErr_i)² (common practice). O(n).
+// Errors (ErrFit): no sample with Spread > 0, a NaN, infinite or negative
+// value, a Spread above 1, or data that give c ≥ 1 (A ≤ 0: the
+// conditionals lie as far from the marginal as a uniform draw would, so no
+// prior on the marginal helps) or c = 0.
+func FitPriorStrength(samples []PriorSample) (float64, error) {
+	var gg, gy float64
+	for i, s := range samples {
+		if !finite(s.Spread) || s.Spread < 0 || s.Spread > 1 || !finite(s.SqErr) || s.SqErr < 0 {
+			return 0, fmt.Errorf("%w: sample %d: spread %v, squared error %v", ErrFit, i, s.Spread, s.SqErr)
+		}
+		gg += s.Spread * s.Spread
+		gy += s.Spread * s.SqErr
+	}
+	if gg == 0 {
+		return 0, fmt.Errorf("%w: no sample with a spread > 0", ErrFit)
+	}
+	c := gy / gg
+	if !(c > 0 && c < 1) {
+		return 0, fmt.Errorf("%w: variance ratio %v outside (0, 1)", ErrFit, c)
+	}
+	return 1/c - 1, nil
+}

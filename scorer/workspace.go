@@ -32,6 +32,13 @@ type Workspace struct {
 	vr         []float64 // Σ_v accumulators, length K_t
 	mt, w      []float64 // ExactMoments: M̄ᵀ and row weights
 
+	// separation check (separationBias)
+	rr                     []float64 // suffix products R_1..R_(m+1), concatenated
+	roff                   []int     // roff[j-1] = offset of R_j in rr
+	sepD, sepC, sepY, sepA []float64 // D(prev, w), its row factors, y|z|yD, Δ terms
+	sepB, sepBC, sepW      []float64 // M(b, w), its row factors, M(w, next)
+	sepWC, sepG, sepH      []float64 // M(w, next)'s row factors, G, H
+
 	// borrow makes newDist hand out out instead of a fresh slice
 	// (BorrowDist); out is never used as scratch by any computation.
 	borrow bool
