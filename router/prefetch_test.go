@@ -219,15 +219,15 @@ func TestDecideGoldenDigest(t *testing.T) {
 		opts []Option
 		want string
 	}{
-		{"default", nil, "ef128099b116c508"},
-		{"H1", []Option{WithMaxBridges(1)}, "48fdc17a21f11706"},
-		{"H2", []Option{WithMaxBridges(2)}, "ed2ca31256522711"},
-		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "acbf1b216208efa0"},
-		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "3a422d9722e8c997"},
-		{"budget3000", []Option{WithExpansionBudget(3000)}, "448649860a482d05"},
+		{"default", nil, "5cf5bf85db0559a0"},
+		{"H1", []Option{WithMaxBridges(1)}, "82fbab949672cbd9"},
+		{"H2", []Option{WithMaxBridges(2)}, "be6c6f3d0f2896ef"},
+		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "716b9e19c8452210"},
+		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "85643d5b6751ab59"},
+		{"budget3000", []Option{WithExpansionBudget(3000)}, "437e7101615a5120"},
 		{"support", []Option{WithModel(support)}, "049ede2c77a62f5b"},
-		{"exact", []Option{WithModel(exact)}, "4a805e8df5e0e605"},
-		{"utility", []Option{WithUtility(2, 0.001)}, "112394a8000fcfe4"},
+		{"exact", []Option{WithModel(exact)}, "e74578ecd5fde7cc"},
+		{"utility", []Option{WithUtility(2, 0.001)}, "5ab975409269a041"},
 	} {
 		opts := append([]Option{WithCacheSize(0)}, tc.opts...)
 		for _, wrap := range []struct {
