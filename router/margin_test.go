@@ -1,6 +1,8 @@
 package router
 
 import (
+	"testing"
+
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/scorer"
 )
@@ -13,4 +15,24 @@ func (g nonClosing) Marginal(id graphidx.EntityID) []uint64 {
 		return m.Marginal(id)
 	}
 	return nil
+}
+
+// BenchmarkDecideSeparation measures the cost of the Bayes model's
+// separation check (up to SeparationWitnesses + 1 witnesses per bridge,
+// each up to three more pair look-ups, through the decision's pair memo):
+// uncached decisions with the default model ("on") against the same model
+// with the check off ("off", the baseline), in one run.
+func BenchmarkDecideSeparation(b *testing.B) {
+	for _, c := range []struct {
+		name   string
+		lambda float64
+	}{{"off", 0}, {"on", scorer.DefaultSeparation}} {
+		b.Run(c.name, func(b *testing.B) {
+			m, err := scorer.NewBayes(scorer.WithSeparation(c.lambda))
+			if err != nil {
+				b.Fatal(err)
+			}
+			benchUncached(b, WithModel(m))
+		})
+	}
 }

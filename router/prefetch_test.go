@@ -219,15 +219,15 @@ func TestDecideGoldenDigest(t *testing.T) {
 		opts []Option
 		want string
 	}{
-		{"default", nil, "5cf5bf85db0559a0"},
-		{"H1", []Option{WithMaxBridges(1)}, "82fbab949672cbd9"},
-		{"H2", []Option{WithMaxBridges(2)}, "be6c6f3d0f2896ef"},
-		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "716b9e19c8452210"},
-		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "85643d5b6751ab59"},
-		{"budget3000", []Option{WithExpansionBudget(3000)}, "437e7101615a5120"},
+		{"default", nil, "106aa328f421d0cd"},
+		{"H1", []Option{WithMaxBridges(1)}, "ee0a5ce8ba3072f2"},
+		{"H2", []Option{WithMaxBridges(2)}, "9f9092314f93e70a"},
+		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "0940648a40fc958d"},
+		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "ed7528481d1b89be"},
+		{"budget3000", []Option{WithExpansionBudget(3000)}, "3ca178284fca02d0"},
 		{"support", []Option{WithModel(support)}, "049ede2c77a62f5b"},
-		{"exact", []Option{WithModel(exact)}, "e74578ecd5fde7cc"},
-		{"utility", []Option{WithUtility(2, 0.001)}, "5ab975409269a041"},
+		{"exact", []Option{WithModel(exact)}, "a640460c2e05ae15"},
+		{"utility", []Option{WithUtility(2, 0.001)}, "3f73abf2cec4f719"},
 	} {
 		opts := append([]Option{WithCacheSize(0)}, tc.opts...)
 		for _, wrap := range []struct {

@@ -233,6 +233,7 @@ type scratch struct {
 func newScratch() *scratch {
 	ws := scorer.NewWorkspace()
 	ws.BorrowDist(true)
+	ws.DeferSeparation(deferSeparation) // resolved by chainScore
 	return &scratch{ws: ws}
 }
 
@@ -882,7 +883,11 @@ func (sc *scratch) scoreIncumbent(c cand) bool {
 		sc.err = err
 		return false
 	}
-	e, score := sc.chainScore(est, int(c.m))
+	e, score, err := sc.chainScore(est, int(c.m), nil)
+	if err != nil {
+		sc.err = err
+		return false
+	}
 	sc.inc.ok, sc.inc.c = true, c
 	sc.inc.err, sc.inc.score = e, score
 	sc.incDist = append(sc.incDist[:0], est.Dist...)

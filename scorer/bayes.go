@@ -303,6 +303,7 @@ func (b *Bayes) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridg
 		return Estimate{}, err
 	}
 	if len(bridges) == 0 {
+		ws.sepPending = false
 		return b.Direct(ws, st, s, u, t)
 	}
 	var sig *Bayes
@@ -339,12 +340,17 @@ func (b *Bayes) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridg
 		kp, kc := ws.ks[k-1], ws.ks[k]
 		ws.mul(ws.x[ws.xoff[k-1]:], kc, ws.x[ws.xoff[k-2]:], kp, ws.theta[ws.toff[k-1]:], kc, 1, kp, kc)
 	}
+	ws.sepPending = false
 	if b.separation > 0 {
-		sb, err := ws.separationBias(st, u, m, b.alpha)
-		if err != nil {
-			return Estimate{}, err
+		if ws.deferSep {
+			ws.sepPending, ws.sepU, ws.sepM = true, u, m
+		} else {
+			sb, err := ws.separationBias(st, u, m, b.alpha)
+			if err != nil {
+				return Estimate{}, err
+			}
+			bias += b.separation * sb
 		}
-		bias += b.separation * sb
 	}
 	if b.variance == ExactMoments {
 		ws.exactMoments(u, m, dist, vr)
@@ -415,6 +421,24 @@ func (b *Bayes) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridg
 	copy(dist, cur[:kt]) // row u of R_0 = M_1 R_1 is p̂
 	v := sumClamped(vr)
 	return Estimate{Dist: dist, Err: v + bias, Var: v, Support: minSup}, nil
+}
+
+// PendingBias returns the separation bias λ·S that the last Chain call
+// with ws left out under Workspace.DeferSeparation (0 when none is pending:
+// the check is off, the chain had no bridges, or it was already returned),
+// and clears it. It reads the path, edges and forward vectors that call
+// loaded, so it must come before any other call with ws and with the same
+// statistics. Cost as the check itself (see "Separation check").
+func (b *Bayes) PendingBias(ws *Workspace, st Stats) (float64, error) {
+	if ws == nil || !ws.sepPending {
+		return 0, nil
+	}
+	ws.sepPending = false
+	sb, err := ws.separationBias(st, ws.sepU, ws.sepM, b.alpha)
+	if err != nil {
+		return 0, err
+	}
+	return b.separation * sb, nil
 }
 
 // mulSmall is the widest product row (n) that mul computes with matMul;

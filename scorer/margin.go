@@ -11,7 +11,17 @@ type GainMarginer interface {
 	GainMargin(chainVar, refVar float64) float64
 }
 
-var _ GainMarginer = (*Bayes)(nil)
+// PendingBiaser is an optional interface of a Model whose Chain can defer
+// a bias term that is ≥ 0 (Workspace.DeferSeparation): PendingBias returns
+// the term of the last Chain call made with ws. *Bayes implements it.
+type PendingBiaser interface {
+	PendingBias(ws *Workspace, st Stats) (float64, error)
+}
+
+var (
+	_ GainMarginer  = (*Bayes)(nil)
+	_ PendingBiaser = (*Bayes)(nil)
+)
 
 // GainMargin returns k·√2·(chainVar + refVar) (k = WithNoiseK), or 0 when k
 // is 0 or an input is not a finite non-negative number.

@@ -14,7 +14,7 @@ type RankedNeighborer interface {
 // witnesses of its separation check: the support-ranked prefix holds the
 // bridge's strongest associations, where a common effect shows first, and
 // the bound keeps the check at O(m·W) pair look-ups per chain.
-const SeparationWitnesses = 4
+const SeparationWitnesses = 2
 
 // separationBias returns S = Σ_k S_k of the Bayes model's separation check
 // (see Bayes, "Separation check") for the path set by setPath, whose edges
@@ -24,9 +24,9 @@ const SeparationWitnesses = 4
 // For bridge b_k (k = 1..m) with chain neighbours prev = b_(k−1) and next =
 // b_(k+1), a witness is an entity w whose tables with prev and with b_k are
 // in the index and for which the route w → next is known: w = next itself
-// (when prev and next were observed together; the route is the identity),
-// or one of the first SeparationWitnesses ranked neighbours of b_k off the
-// path with tables (prev, w) and (w, next). With y = x_(k−1) (e_u for
+// when prev and next were observed together (the route is the identity);
+// otherwise each of the first SeparationWitnesses ranked neighbours of b_k
+// off the path with tables (prev, w) and (w, next). With y = x_(k−1) (e_u for
 // k = 1), z = y M_k, G = M(w, next) R_(k+1) (R_(k+1) = I for w = next and
 // k = m) and H = M(b_k, w) G,
 //
@@ -39,8 +39,9 @@ const SeparationWitnesses = 4
 // form of the delta method and c the row factors 1/(n_r + Kα + 1). If b_k
 // separates prev from w, E[Δ_w] = 0 and E‖Δ_w‖² ≈ V_w; S_k = max over the
 // witnesses of max(0, ‖Δ_w‖² − V_w), 0 without witnesses. Cost O(m·W·K³)
-// time and O(m·W) pair look-ups (W = SeparationWitnesses + 1), no
-// allocation once the buffers have grown.
+// time and at most m·(1 + 3·SeparationWitnesses) pair look-ups (one per
+// bridge when its neighbours were observed together), no allocation once
+// the buffers have grown.
 func (ws *Workspace) separationBias(st Stats, u, m int, alpha float64) (float64, error) {
 	kt := ws.ks[m+1]
 	// R_1..R_(m+1), R_j of K_j × K_t, concatenated at roff[j−1].
@@ -93,7 +94,10 @@ func (ws *Workspace) separationBias(st Stats, u, m int, alpha float64) (float64,
 			}
 			worst = max(worst, ws.witnessBias(&wk, ps, y, z, mk, ck, kt, alpha))
 		}
-		if rn == nil {
+		if rn == nil || ok {
+			// With prev and next observed together the chain's own hop is
+			// tested directly; other witnesses are read only when it
+			// cannot be.
 			total += worst
 			continue
 		}
@@ -110,19 +114,27 @@ func (ws *Workspace) separationBias(st Stats, u, m int, alpha float64) (float64,
 			if err != nil {
 				return 0, err
 			}
-			psPW, ok1, err := pair(st, prev, w, kp, kw)
-			if err != nil {
-				return 0, err
+			// Look-ups in order of how likely they are to fail (prev and a
+			// neighbour of b are the farthest apart), stopping at the first.
+			psPW, ok, err := pair(st, prev, w, kp, kw)
+			if err != nil || !ok {
+				if err != nil {
+					return 0, err
+				}
+				continue
 			}
-			psWN, ok2, err := pair(st, w, next, kw, kn)
-			if err != nil {
-				return 0, err
+			psWN, ok, err := pair(st, w, next, kw, kn)
+			if err != nil || !ok {
+				if err != nil {
+					return 0, err
+				}
+				continue
 			}
-			psBW, ok3, err := pair(st, b, w, kb, kw)
-			if err != nil {
-				return 0, err
-			}
-			if !ok1 || !ok2 || !ok3 {
+			psBW, ok, err := pair(st, b, w, kb, kw)
+			if err != nil || !ok {
+				if err != nil {
+					return 0, err
+				}
 				continue
 			}
 			// M(b, w) with row factors, and G = M(w, next) R_(k+1).
