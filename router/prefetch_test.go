@@ -219,15 +219,15 @@ func TestDecideGoldenDigest(t *testing.T) {
 		opts []Option
 		want string
 	}{
-		{"default", nil, "106aa328f421d0cd"},
-		{"H1", []Option{WithMaxBridges(1)}, "ee0a5ce8ba3072f2"},
-		{"H2", []Option{WithMaxBridges(2)}, "9f9092314f93e70a"},
-		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "0940648a40fc958d"},
-		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "ed7528481d1b89be"},
-		{"budget3000", []Option{WithExpansionBudget(3000)}, "3ca178284fca02d0"},
+		{"default", nil, "7c22b3949866b491"},
+		{"H1", []Option{WithMaxBridges(1)}, "8d6351bd48f036ef"},
+		{"H2", []Option{WithMaxBridges(2)}, "3e986c653e3e8d74"},
+		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "1fde5aee6cdf5b43"},
+		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "3365dbc6c97a8f60"},
+		{"budget3000", []Option{WithExpansionBudget(3000)}, "99bd00bee355841c"},
 		{"support", []Option{WithModel(support)}, "049ede2c77a62f5b"},
-		{"exact", []Option{WithModel(exact)}, "a640460c2e05ae15"},
-		{"utility", []Option{WithUtility(2, 0.001)}, "3f73abf2cec4f719"},
+		{"exact", []Option{WithModel(exact)}, "5eec6140b5751f05"},
+		{"utility", []Option{WithUtility(2, 0.001)}, "3c5a3f856942132a"},
 	} {
 		opts := append([]Option{WithCacheSize(0)}, tc.opts...)
 		for _, wrap := range []struct {

@@ -96,8 +96,8 @@ func ExampleCombine() {
 	fmt.Printf("via humidity %.4f (err %.5f), via pump %.4f (err %.5f)\n", a.Dist[1], a.Err, b.Dist[1], b.Err)
 	fmt.Printf("combined     %.4f (err %.5f)\n", c.Dist[1], c.Err)
 	// Output:
-	// via humidity 0.1540 (err 0.00183), via pump 0.2472 (err 0.08101)
-	// combined     0.1561 (err 0.00179)
+	// via humidity 0.1540 (err 0.00183), via pump 0.2472 (err 0.06816)
+	// combined     0.1564 (err 0.00178)
 }
 
 func ExampleSupport() {

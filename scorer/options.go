@@ -28,27 +28,26 @@ const (
 	DefaultPriorStrength = 3.2
 	// DefaultBeta is the per-hop squared-bias term β of the Bayes model,
 	// fitted jointly with γ by FitChainBias on the chains the router answers
-	// with (589 chains at the chosen δ; fixed point β 0 → 0 → 0 → 0). The
-	// least-squares fit puts all of the residual bias on the missing-signal
-	// term: the chains with real screening-off bias left after the
-	// separation check are those whose signal L is near 0 (the router's best
-	// chain misses the true path). With β = 0 the router charges no constant
-	// per bridge, so its β·m pruning bounds are 0.
-	DefaultBeta = 0.0
+	// with (588 chains at the chosen δ; fixed point β 0 → 5.2e-4 → 3.0e-5 →
+	// 2.5e-5 → 2.5e-5). The least-squares fit puts almost all of the
+	// residual bias on the missing-signal term: the chains with real
+	// screening-off bias left after the separation check are those whose
+	// signal L is near 0 (the router's best chain misses the true path).
+	DefaultBeta = 2.5e-5
 	// DefaultMissingGamma and DefaultMissingDelta are γ and δ of the Bayes
 	// model's missing-signal bias γ·(δ − L)₊² (WithMissingSignal), fitted
 	// with A = 3.2 and the separation check on. δ is the grid value
 	// (0.05 … 0.3) whose fixed point gave the largest mean Spearman ρ of
-	// predicted against realised error on the fit worlds (0.667; δ = 0.125
-	// gave 0.661, δ = 0.15 0.642); γ is the least-squares fit at that δ
-	// (fixed point 1 → 5.818 → 7.756 → 7.911).
-	DefaultMissingGamma = 7.911
+	// predicted against realised error on the fit worlds (0.668; δ = 0.125
+	// gave 0.664, δ = 0.15 0.645); γ is the least-squares fit at that δ
+	// (fixed point 1 → 5.578 → 6.334 → 6.626 → 6.626).
+	DefaultMissingGamma = 6.626
 	DefaultMissingDelta = 0.1
 	// DefaultNoiseK is k of the gain margin k·√2·(Var_chain + Var_ref)
 	// (WithNoiseK, Bayes.GainMargin): the grid value (0 … 4) with the
-	// smallest routed MSE over all queries of the fit worlds (1.17419e-3;
-	// k = 0 gave 1.17969e-3 and chained 0.15 % of the supported queries,
-	// every k ≥ 0.5 none; the grid is flat from 0.5 to 4).
+	// smallest routed MSE over all queries of the fit worlds (1.20636e-3;
+	// k = 0 gave 1.22821e-3 and chained 0.15 % of the supported queries,
+	// every k ≥ 0.5 none; the grid is flat from 0.5 to 4, within 3e-8).
 	DefaultNoiseK = 1.0
 	// DefaultSeparation is λ of the separation bias (WithSeparation): 1
 	// charges the estimated squared bias as derived (docs/QUALITY.md); it is
@@ -58,7 +57,7 @@ const (
 	// direct answers and best chains of the same worlds (5112 samples,
 	// RMSE 0.157), fitted with earlier Bayes constants (β = 0.00236, no
 	// missing-signal term, uniform direct prior); the current fit prints
-	// v0 7.317, n0 74.11, β 0.0629 (RMSE 0.174), not installed.
+	// v0 5.909, n0 60.04, β 0.0664 (RMSE 0.173), not installed.
 	DefaultSupportBeta = 0.0319
 	// DefaultV0 is the support model's error numerator v0 (same fit).
 	DefaultV0 = 24.84
