@@ -245,6 +245,9 @@ func FitChainBias(samples []ChainSample, delta float64) (beta, gamma float64, er
 type PriorSample struct {
 	Spread float64
 	SqErr  float64
+	// Rarity is (1 − P̂(s = u))²·(1 − 1/K_t) of the query, the feature of
+	// FitUnseenSpread.
+	Rarity float64
 }
 
 // FitPriorStrength fits A of the empirical-Bayes prior Dirichlet(A·m̂) (see
@@ -276,4 +279,29 @@ func FitPriorStrength(samples []PriorSample) (float64, error) {
 		return 0, fmt.Errorf("%w: variance ratio %v outside (0, 1)", ErrFit, c)
 	}
 	return 1/c - 1, nil
+}
+
+// FitUnseenSpread fits η of the unobserved-pair error E0 = η·Rarity (see
+// Bayes, "Direct estimate") by least squares through the origin on the
+// realised squared distances of unobserved pairs' conditionals from their
+// marginals,
+//
+//	η = Σ_i Rarity_i·SqErr_i / Σ_i Rarity_i²,
+//
+// the minimiser of Σ_i (η·Rarity_i − SqErr_i)² (common practice). O(n).
+// Errors (ErrFit): no sample with Rarity > 0, a NaN, infinite, negative or
+// above-1 Rarity, or a NaN, infinite or negative SqErr.
+func FitUnseenSpread(samples []PriorSample) (float64, error) {
+	var gg, gy float64
+	for i, s := range samples {
+		if !finite(s.Rarity) || s.Rarity < 0 || s.Rarity > 1 || !finite(s.SqErr) || s.SqErr < 0 {
+			return 0, fmt.Errorf("%w: sample %d: rarity %v, squared error %v", ErrFit, i, s.Rarity, s.SqErr)
+		}
+		gg += s.Rarity * s.Rarity
+		gy += s.Rarity * s.SqErr
+	}
+	if gg == 0 {
+		return 0, fmt.Errorf("%w: no sample with a rarity > 0", ErrFit)
+	}
+	return gy / gg, nil
 }

@@ -26,28 +26,33 @@ const (
 	// conditionals of those pairs lie, in squared distance summed over
 	// values, 1/(A+1) = 0.24 of the marginal's spread 1 − Σ m̂² from it.
 	DefaultPriorStrength = 3.2
+	// DefaultUnseenSpread is η of the unobserved-pair error
+	// E0 = η·(1 − P̂(s = u))²·(1 − 1/K_t) (WithUnseenSpread):
+	// FitUnseenSpread on the same 600 held-out queries (0.693978).
+	DefaultUnseenSpread = 0.694
 	// DefaultBeta is the per-hop squared-bias term β of the Bayes model,
 	// fitted jointly with γ by FitChainBias on the chains the router answers
-	// with (588 chains at the chosen δ; fixed point β 0 → 5.2e-4 → 3.0e-5 →
-	// 2.5e-5 → 2.5e-5). The least-squares fit puts almost all of the
-	// residual bias on the missing-signal term: the chains with real
-	// screening-off bias left after the separation check are those whose
-	// signal L is near 0 (the router's best chain misses the true path).
-	DefaultBeta = 2.5e-5
+	// with (560 chains at the chosen δ; fixed point β 2.5e-5 → 0 → … → 0).
+	// The least-squares fit puts all of the residual bias on the
+	// missing-signal term: the chains with real screening-off bias left
+	// after the separation check are those whose signal L is near 0 (the
+	// router's best chain misses the true path). With β = 0 the router
+	// charges no constant per bridge, so its β·m pruning bounds are 0.
+	DefaultBeta = 0.0
 	// DefaultMissingGamma and DefaultMissingDelta are γ and δ of the Bayes
 	// model's missing-signal bias γ·(δ − L)₊² (WithMissingSignal), fitted
-	// with A = 3.2 and the separation check on. δ is the grid value
-	// (0.05 … 0.3) whose fixed point gave the largest mean Spearman ρ of
-	// predicted against realised error on the fit worlds (0.668; δ = 0.125
-	// gave 0.664, δ = 0.15 0.645); γ is the least-squares fit at that δ
-	// (fixed point 1 → 5.578 → 6.334 → 6.626 → 6.626).
-	DefaultMissingGamma = 6.626
-	DefaultMissingDelta = 0.1
+	// with A = 3.2, η = 0.694 and the separation check on. δ is the grid
+	// value (0.05 … 0.3) whose fixed point gave the largest mean Spearman ρ
+	// of predicted against realised error on the fit worlds (0.666; δ = 0.1
+	// gave 0.657, δ = 0.15 0.652); γ is the least-squares fit at that δ
+	// (fixed point 1 → 4.001 → 5.355 → 5.578 → 5.714 → 5.881 → 5.881).
+	DefaultMissingGamma = 5.881
+	DefaultMissingDelta = 0.125
 	// DefaultNoiseK is k of the gain margin k·√2·(Var_chain + Var_ref)
 	// (WithNoiseK, Bayes.GainMargin): the grid value (0 … 4) with the
-	// smallest routed MSE over all queries of the fit worlds (1.20636e-3;
-	// k = 0 gave 1.22821e-3 and chained 0.15 % of the supported queries,
-	// every k ≥ 0.5 none; the grid is flat from 0.5 to 4, within 3e-8).
+	// smallest routed MSE over all queries of the fit worlds (1.27922e-3;
+	// k = 0 gave 1.29632e-3 and chained 0.30 % of the supported queries,
+	// k = 0.5 0.05 %, every k ≥ 1 none; flat from 1 to 4, within 1e-8).
 	DefaultNoiseK = 1.0
 	// DefaultSeparation is λ of the separation bias (WithSeparation): 1
 	// charges the estimated squared bias as derived (docs/QUALITY.md); it is
@@ -57,7 +62,7 @@ const (
 	// direct answers and best chains of the same worlds (5112 samples,
 	// RMSE 0.157), fitted with earlier Bayes constants (β = 0.00236, no
 	// missing-signal term, uniform direct prior); the current fit prints
-	// v0 5.909, n0 60.04, β 0.0664 (RMSE 0.173), not installed.
+	// v0 6.949, n0 70.47, β 0.0637 (RMSE 0.173), not installed.
 	DefaultSupportBeta = 0.0319
 	// DefaultV0 is the support model's error numerator v0 (same fit).
 	DefaultV0 = 24.84
@@ -82,6 +87,8 @@ type config struct {
 	setMissing                         bool
 	prior, separation, noiseK          float64
 	setPrior, setSeparation, setNoiseK bool
+	spread                             float64
+	setSpread                          bool
 	setV0, setN0, setSignalZ, setAlpha bool
 	setBeta                            bool
 	variance                           Variance
@@ -91,7 +98,7 @@ type config struct {
 func defaultConfig() config {
 	return config{alpha: DefaultAlpha, beta: DefaultBeta, v0: DefaultV0, n0: DefaultN0, signalZ: DefaultSignalZ,
 		gamma: DefaultMissingGamma, delta: DefaultMissingDelta,
-		prior: DefaultPriorStrength, separation: DefaultSeparation, noiseK: DefaultNoiseK}
+		prior: DefaultPriorStrength, separation: DefaultSeparation, noiseK: DefaultNoiseK, spread: DefaultUnseenSpread}
 }
 
 func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
@@ -187,6 +194,19 @@ func WithPriorStrength(a float64) Option {
 			return fmt.Errorf("%w: WithPriorStrength(%v): A must be finite and > 0", ErrBadOption, a)
 		}
 		c.prior, c.setPrior = a, true
+		return nil
+	})
+}
+
+// WithUnseenSpread sets η (finite, ≥ 0) of the Bayes model's
+// unobserved-pair error E0 = η·(1 − P̂(s = u))²·(1 − 1/K_t) (see Bayes,
+// "Direct estimate"). Default DefaultUnseenSpread. Bayes model only.
+func WithUnseenSpread(eta float64) Option {
+	return optionFunc(func(c *config) error {
+		if !finite(eta) || eta < 0 {
+			return fmt.Errorf("%w: WithUnseenSpread(%v): η must be finite and ≥ 0", ErrBadOption, eta)
+		}
+		c.spread, c.setSpread = eta, true
 		return nil
 	})
 }

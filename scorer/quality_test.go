@@ -68,6 +68,24 @@ func TestDirectMarginalPrior(t *testing.T) {
 	if err != nil || d.Dist[0] != 0.5 || !near(d.Err, 1.0/6, 1e-15) {
 		t.Errorf("without marginals: %+v (%v), want uniform, Err 1/6", d, err)
 	}
+	// With the observed entities' marginals too, the error is the shrinkage
+	// MSE λ²(1 − Σθ̂²)/n_u + (1 − λ)²·E0, E0 = η(1 − P̂(s = u))²(1 − 1/K_t),
+	// λ = n_u/(n_u + a₀); an unseen pair (λ = 0) gets E0.
+	const eta = 0.7
+	full := margStats{ms, map[graphidx.EntityID][]uint64{1: {90, 10}, 2: {5, 1}, 3: {30, 10}}}
+	me := mustBayes(t, scorer.WithPriorStrength(a), scorer.WithUnseenSpread(eta))
+	share1 := 91.0 / 102
+	e0 := eta * (1 - share1) * (1 - share1) * 0.5
+	if d, err := me.Direct(nil, full, 1, 0, 3); err != nil || !near(d.Err, e0, 1e-15) || !near(d.Dist[0], mh[0], 1e-15) {
+		t.Errorf("unseen pair with marginals: %+v (%v), want Err %v", d, err, e0)
+	}
+	share2 := 6.0 / 8 // (5 + 1)/(6 + 2)
+	e0 = eta * (1 - share2) * (1 - share2) * 0.5
+	lam := 5 / (5 + a0)
+	want := lam*lam*(1-th0*th0-th1*th1)/5 + (1-lam)*(1-lam)*e0
+	if d, err := me.Direct(nil, full, 2, 0, 3); err != nil || !near(d.Err, want, 1e-15) || !near(d.Dist[0], th0, 1e-15) {
+		t.Errorf("seen pair with marginals: %+v (%v), want Err %v", d, err, want)
+	}
 	// A marginal of the wrong length is ignored (uniform prior).
 	bad := margStats{ms, map[graphidx.EntityID][]uint64{3: {1, 2, 3}}}
 	if d, err := m.Direct(nil, bad, 1, 0, 3); err != nil || d.Dist[0] != 0.5 {
@@ -164,6 +182,20 @@ func TestFitPriorStrength(t *testing.T) {
 	}
 }
 
+func TestFitUnseenSpread(t *testing.T) {
+	t.Parallel()
+	// Hand-computed: η = (0.5·0.2 + 0.25·0.1)/(0.25 + 0.0625) = 0.125/0.3125 = 0.4.
+	eta, err := scorer.FitUnseenSpread([]scorer.PriorSample{{Rarity: 0.5, SqErr: 0.2}, {Rarity: 0.25, SqErr: 0.1}})
+	if err != nil || !near(eta, 0.4, 1e-15) {
+		t.Errorf("η %v (%v), want 0.4", eta, err)
+	}
+	for _, bad := range [][]scorer.PriorSample{nil, {{Rarity: 0, SqErr: 1}}, {{Rarity: 2, SqErr: 1}}, {{Rarity: 0.5, SqErr: -1}}, {{Rarity: math.NaN(), SqErr: 1}}} {
+		if _, err := scorer.FitUnseenSpread(bad); !errors.Is(err, scorer.ErrFit) {
+			t.Errorf("%v: error %v, want ErrFit", bad, err)
+		}
+	}
+}
+
 func TestGainMargin(t *testing.T) {
 	t.Parallel()
 	m := mustBayes(t, scorer.WithNoiseK(2))
@@ -189,12 +221,13 @@ func TestQualityOptionValidation(t *testing.T) {
 		scorer.WithPriorStrength(0), scorer.WithPriorStrength(-1), scorer.WithPriorStrength(math.NaN()), scorer.WithPriorStrength(math.Inf(1)),
 		scorer.WithSeparation(-1), scorer.WithSeparation(math.NaN()), scorer.WithSeparation(math.Inf(1)),
 		scorer.WithNoiseK(-0.5), scorer.WithNoiseK(math.NaN()), scorer.WithNoiseK(math.Inf(1)),
+		scorer.WithUnseenSpread(-1), scorer.WithUnseenSpread(math.NaN()), scorer.WithUnseenSpread(math.Inf(1)),
 	} {
 		if _, err := scorer.NewBayes(o); !errors.Is(err, scorer.ErrBadOption) {
 			t.Errorf("NewBayes: error %v, want ErrBadOption", err)
 		}
 	}
-	for _, o := range []scorer.Option{scorer.WithPriorStrength(2), scorer.WithSeparation(1), scorer.WithNoiseK(1)} {
+	for _, o := range []scorer.Option{scorer.WithPriorStrength(2), scorer.WithSeparation(1), scorer.WithNoiseK(1), scorer.WithUnseenSpread(1)} {
 		if _, err := scorer.NewSupport(o); !errors.Is(err, scorer.ErrBadOption) {
 			t.Errorf("NewSupport: error %v, want ErrBadOption", err)
 		}

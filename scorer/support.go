@@ -42,8 +42,8 @@ func NewSupport(opts ...Option) (*Support, error) {
 	if c.setMissing {
 		return nil, fmt.Errorf("%w: WithMissingSignal applies to the Bayes model only", ErrBadOption)
 	}
-	if c.setPrior || c.setSeparation || c.setNoiseK {
-		return nil, fmt.Errorf("%w: WithPriorStrength, WithSeparation and WithNoiseK apply to the Bayes model only", ErrBadOption)
+	if c.setPrior || c.setSeparation || c.setNoiseK || c.setSpread {
+		return nil, fmt.Errorf("%w: WithPriorStrength, WithUnseenSpread, WithSeparation and WithNoiseK apply to the Bayes model only", ErrBadOption)
 	}
 	if !c.setBeta {
 		c.beta = DefaultSupportBeta

@@ -33,6 +33,7 @@ type evalOptions struct {
 	prior        float64
 	separation   float64
 	noiseK       float64
+	spread       float64
 	maxBridges   int
 	beam         int
 	candidates   int
@@ -109,6 +110,7 @@ DIR/truth.jsonl (the exact answers by id).`,
 	f.StringVar(&o.fitSeeds, "fit-seeds", "101,102,103,104,105", "world seeds for --fit")
 	f.Float64Var(&o.beta, "beta", router.DefaultConfig().Beta, "per-hop squared bias β of the Bayes model")
 	f.Float64Var(&o.prior, "prior-strength", scorer.DefaultPriorStrength, "A: pseudo-count of the direct estimate's prior centred on the target's marginal")
+	f.Float64Var(&o.spread, "unseen-spread", scorer.DefaultUnseenSpread, "η: a never-seen pair's direct error is η·(1 − P(observed value))²·(1 − 1/K)")
 	f.Float64Var(&o.separation, "separation", scorer.DefaultSeparation, "λ: weight of the chain's separation bias (0: off)")
 	f.Float64Var(&o.noiseK, "noise-k", scorer.DefaultNoiseK, "k: a chain must beat direct by k standard errors of its bias estimate (0: off)")
 	f.IntVar(&o.maxBridges, "max-bridges", router.DefaultMaxBridges, "H: most bridges in a chain (1-3)")
@@ -184,7 +186,7 @@ func runEval(cmd *cobra.Command, o evalOptions) error {
 	base := eval.Config{
 		World: &wc, Contexts: o.contexts, Beta: &beta, MaxBridges: o.maxBridges, Workers: o.workers,
 		ModelOptions: []scorer.Option{
-			scorer.WithPriorStrength(o.prior), scorer.WithSeparation(o.separation), scorer.WithNoiseK(o.noiseK),
+			scorer.WithPriorStrength(o.prior), scorer.WithUnseenSpread(o.spread), scorer.WithSeparation(o.separation), scorer.WithNoiseK(o.noiseK),
 		},
 		RouterOptions: []router.Option{
 			router.WithBeam(o.beam), router.WithMaxCandidates(o.candidates), router.WithGainThreshold(o.gainTau),
@@ -221,7 +223,7 @@ func runEval(cmd *cobra.Command, o evalOptions) error {
 			return enc.Encode(fr)
 		}
 		fmt.Fprintf(out, "fitted on %s worlds, seeds %v (%d contexts each)\n", fr.Condition, fr.Seeds, o.contexts)
-		fmt.Fprintf(out, "bayes   A  = %.6g   (direct prior strength, %d unobserved-pair queries)\n", fr.PriorStrength, fr.PriorSamples)
+		fmt.Fprintf(out, "bayes   A  = %.6g  η = %.6g   (direct prior strength and unseen-pair spread, %d unobserved-pair queries)\n", fr.PriorStrength, fr.UnseenSpread, fr.PriorSamples)
 		fmt.Fprintf(out, "bayes   β  = %.6g  γ = %.6g  δ = %.6g   (fixed point β %v, γ %v, %d chains)\n",
 			fr.Beta, fr.Gamma, fr.Delta, fr.BetaPath, fr.GammaPath, fr.ChainSamples)
 		for _, g := range fr.Grid {

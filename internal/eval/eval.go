@@ -253,15 +253,18 @@ type Report struct {
 // QueryResult is one answered query with every estimate, over the world's
 // value indexes of the target.
 type QueryResult struct {
-	Set          string
-	From, To     int // world variable indexes
-	Value        int // observed value (world index)
-	Truth        []float64
-	Est          map[string][]float64
-	Mode         router.Mode
-	RoutedErr    float64 // Decision.Err
-	DirectErr    float64
-	DirectSup    uint64
+	Set       string
+	From, To  int // world variable indexes
+	Value     int // observed value (world index)
+	Truth     []float64
+	Est       map[string][]float64
+	Mode      router.Mode
+	RoutedErr float64 // Decision.Err
+	DirectErr float64
+	DirectSup uint64
+	// FromShare is the observed value's smoothed share among the observed
+	// entity's contexts, (c_u + 1)/(Σ c + K) from the index's marginal.
+	FromShare    float64
 	ChainErr     float64  // best chain's Err (0 without a chain)
 	ChainSups    []uint64 // edge supports of the best chain (nil without)
 	ChainBridges int
@@ -618,6 +621,7 @@ func (b *Bench) answer(ctx context.Context, rt *router.Router, model scorer.Mode
 		Mode:      d.Mode,
 		RoutedErr: d.Err, DirectErr: d.Direct.Err, DirectSup: d.Direct.Support,
 	}
+	r.FromShare = smoothedMarginal(b.Index.Marginal(s))[u]
 	r.Est[EstDirect] = conv(d.Direct.Estimate, d.Values)
 	r.Est[EstRouted] = conv(d.Estimate, d.Values)
 	if d.Chain != nil {

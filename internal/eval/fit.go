@@ -62,7 +62,10 @@ type FitResult struct {
 	// (scorer.FitPriorStrength), fitted on PriorSamples unobserved-pair
 	// queries.
 	PriorStrength float64 `json:"prior_strength"`
-	PriorSamples  int     `json:"prior_samples"`
+	// UnseenSpread is η of the unobserved-pair error
+	// (scorer.FitUnseenSpread), on the same queries.
+	UnseenSpread float64 `json:"unseen_spread"`
+	PriorSamples int     `json:"prior_samples"`
 	// NoiseK is k of the gain margin (scorer.WithNoiseK): the grid value
 	// with the smallest routed MSE over all queries of the fit worlds.
 	NoiseK    float64    `json:"noise_k"`
@@ -225,15 +228,20 @@ func Fit(ctx context.Context, fc FitConfig) (FitResult, error) {
 			for _, p := range m {
 				spread -= p * p
 			}
-			ps = append(ps, scorer.PriorSample{Spread: max(0, spread), SqErr: q.SqErr(EstMarginal)})
+			r := 1 - q.FromShare
+			ps = append(ps, scorer.PriorSample{Spread: max(0, spread), SqErr: q.SqErr(EstMarginal), Rarity: r * r * (1 - 1/float64(len(m)))})
 		}
 		a, err := scorer.FitPriorStrength(ps)
 		if err != nil {
 			return res, fmt.Errorf("eval: fit prior strength: %w", err)
 		}
-		res.PriorStrength, res.PriorSamples = a, len(ps)
-		fitted = append(fitted, scorer.WithPriorStrength(a))
-		logf("prior strength A %.6g on %d unobserved-pair queries", a, len(ps))
+		eta, err := scorer.FitUnseenSpread(ps)
+		if err != nil {
+			return res, fmt.Errorf("eval: fit unseen spread: %w", err)
+		}
+		res.PriorStrength, res.UnseenSpread, res.PriorSamples = a, eta, len(ps)
+		fitted = append(fitted, scorer.WithPriorStrength(a), scorer.WithUnseenSpread(eta))
+		logf("prior strength A %.6g, unseen spread η %.6g on %d unobserved-pair queries", a, eta, len(ps))
 	}
 	bestRho := math.Inf(-1)
 	for _, delta := range fc.Deltas {
