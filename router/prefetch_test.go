@@ -219,15 +219,15 @@ func TestDecideGoldenDigest(t *testing.T) {
 		opts []Option
 		want string
 	}{
-		{"default", nil, "7c22b3949866b491"},
-		{"H1", []Option{WithMaxBridges(1)}, "8d6351bd48f036ef"},
-		{"H2", []Option{WithMaxBridges(2)}, "3e986c653e3e8d74"},
-		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "1fde5aee6cdf5b43"},
-		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "3365dbc6c97a8f60"},
-		{"budget3000", []Option{WithExpansionBudget(3000)}, "99bd00bee355841c"},
+		{"default", nil, "9e87a0e2bf285ca7"},
+		{"H1", []Option{WithMaxBridges(1)}, "8757cf432d682c99"},
+		{"H2", []Option{WithMaxBridges(2)}, "a0edebea0c1be613"},
+		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "9622e1f4467204af"},
+		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "a894f2b572876f95"},
+		{"budget3000", []Option{WithExpansionBudget(3000)}, "348d2b52db54d29c"},
 		{"support", []Option{WithModel(support)}, "049ede2c77a62f5b"},
-		{"exact", []Option{WithModel(exact)}, "5eec6140b5751f05"},
-		{"utility", []Option{WithUtility(2, 0.001)}, "3c5a3f856942132a"},
+		{"exact", []Option{WithModel(exact)}, "45bf081b32016aff"},
+		{"utility", []Option{WithUtility(2, 0.001)}, "02d00653d8fec984"},
 	} {
 		opts := append([]Option{WithCacheSize(0)}, tc.opts...)
 		for _, wrap := range []struct {
