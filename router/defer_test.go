@@ -6,6 +6,8 @@ import (
 	"math/rand/v2"
 	"strings"
 	"testing"
+
+	"github.com/hopwise/hopwise/graphidx"
 )
 
 // TestDeferredSeparationExact: deciding with the separation bias deferred
@@ -18,20 +20,7 @@ func TestDeferredSeparationExact(t *testing.T) {
 	if testing.Short() {
 		t.Skip("builds a 20k-entity index")
 	}
-	const n = 20_000
-	ix := goldenIndex(t, n, 32)
-	src := newPowerLaw(n, 32, 2.1, 1)
-	qs := benchQueries(src, 2000, 11)
-	rng := rand.New(rand.NewPCG(11, 12))
-	for i := range qs {
-		qs[i].Value = []string{"off", "on"}[rng.IntN(2)]
-		if i%4 == 0 {
-			qs[i].From = src.ents[0].Name
-			if qs[i].To == qs[i].From {
-				qs[i].To = src.ents[1].Name
-			}
-		}
-	}
+	ix, qs := goldenQueries(t)
 	run := func(def bool) []string {
 		deferSeparation = def
 		r := mustNew(t, wrapIndex(ix), WithCacheSize(0))
@@ -64,4 +53,26 @@ func TestDeferredSeparationExact(t *testing.T) {
 	if chains == 0 {
 		t.Fatal("no query chained; the test shows nothing")
 	}
+}
+
+// goldenQueries builds the seeded 20k-entity power-law index of
+// TestDecideGoldenDigest and its 2000 queries (every fourth from the
+// largest hub, values drawn at random).
+func goldenQueries(t *testing.T) (*graphidx.Index, []Query) {
+	t.Helper()
+	const n = 20_000
+	ix := goldenIndex(t, n, 32)
+	src := newPowerLaw(n, 32, 2.1, 1)
+	qs := benchQueries(src, 2000, 11)
+	rng := rand.New(rand.NewPCG(11, 12))
+	for i := range qs {
+		qs[i].Value = []string{"off", "on"}[rng.IntN(2)]
+		if i%4 == 0 { // hub queries: entity 0 has the largest weight
+			qs[i].From = src.ents[0].Name
+			if qs[i].To == qs[i].From {
+				qs[i].To = src.ents[1].Name
+			}
+		}
+	}
+	return ix, qs
 }

@@ -192,20 +192,7 @@ func TestDecideGoldenDigest(t *testing.T) {
 		t.Skip("builds a 20k-entity index")
 	}
 	t.Parallel()
-	const n = 20_000
-	ix := goldenIndex(t, n, 32)
-	src := newPowerLaw(n, 32, 2.1, 1)
-	qs := benchQueries(src, 2000, 11)
-	rng := rand.New(rand.NewPCG(11, 12))
-	for i := range qs {
-		qs[i].Value = []string{"off", "on"}[rng.IntN(2)]
-		if i%4 == 0 { // hub queries: entity 0 has the largest weight
-			qs[i].From = src.ents[0].Name
-			if qs[i].To == qs[i].From {
-				qs[i].To = src.ents[1].Name
-			}
-		}
-	}
+	ix, qs := goldenQueries(t)
 	support, err := scorer.NewSupport()
 	if err != nil {
 		t.Fatal(err)

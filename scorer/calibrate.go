@@ -263,22 +263,34 @@ type PriorSample struct {
 // conditionals lie as far from the marginal as a uniform draw would, so no
 // prior on the marginal helps) or c = 0.
 func FitPriorStrength(samples []PriorSample) (float64, error) {
-	var gg, gy float64
-	for i, s := range samples {
-		if !finite(s.Spread) || s.Spread < 0 || s.Spread > 1 || !finite(s.SqErr) || s.SqErr < 0 {
-			return 0, fmt.Errorf("%w: sample %d: spread %v, squared error %v", ErrFit, i, s.Spread, s.SqErr)
-		}
-		gg += s.Spread * s.Spread
-		gy += s.Spread * s.SqErr
+	c, err := originSlope(samples, "spread", func(s PriorSample) float64 { return s.Spread })
+	if err != nil {
+		return 0, err
 	}
-	if gg == 0 {
-		return 0, fmt.Errorf("%w: no sample with a spread > 0", ErrFit)
-	}
-	c := gy / gg
 	if !(c > 0 && c < 1) {
 		return 0, fmt.Errorf("%w: variance ratio %v outside (0, 1)", ErrFit, c)
 	}
 	return 1/c - 1, nil
+}
+
+// originSlope returns Σ_i x_i·SqErr_i / Σ_i x_i², x_i = feature(sample i),
+// the least-squares slope through the origin. Errors (ErrFit): a feature
+// outside [0, 1] or not finite, a NaN, infinite or negative SqErr, or no
+// sample with a feature > 0. O(n).
+func originSlope(samples []PriorSample, name string, feature func(PriorSample) float64) (float64, error) {
+	var gg, gy float64
+	for i, s := range samples {
+		x := feature(s)
+		if !finite(x) || x < 0 || x > 1 || !finite(s.SqErr) || s.SqErr < 0 {
+			return 0, fmt.Errorf("%w: sample %d: %s %v, squared error %v", ErrFit, i, name, x, s.SqErr)
+		}
+		gg += x * x
+		gy += x * s.SqErr
+	}
+	if gg == 0 {
+		return 0, fmt.Errorf("%w: no sample with a %s > 0", ErrFit, name)
+	}
+	return gy / gg, nil
 }
 
 // FitUnseenSpread fits η of the unobserved-pair error E0 = η·Rarity (see
@@ -292,16 +304,5 @@ func FitPriorStrength(samples []PriorSample) (float64, error) {
 // Errors (ErrFit): no sample with Rarity > 0, a NaN, infinite, negative or
 // above-1 Rarity, or a NaN, infinite or negative SqErr.
 func FitUnseenSpread(samples []PriorSample) (float64, error) {
-	var gg, gy float64
-	for i, s := range samples {
-		if !finite(s.Rarity) || s.Rarity < 0 || s.Rarity > 1 || !finite(s.SqErr) || s.SqErr < 0 {
-			return 0, fmt.Errorf("%w: sample %d: rarity %v, squared error %v", ErrFit, i, s.Rarity, s.SqErr)
-		}
-		gg += s.Rarity * s.Rarity
-		gy += s.Rarity * s.SqErr
-	}
-	if gg == 0 {
-		return 0, fmt.Errorf("%w: no sample with a rarity > 0", ErrFit)
-	}
-	return gy / gg, nil
+	return originSlope(samples, "rarity", func(s PriorSample) float64 { return s.Rarity })
 }
