@@ -104,8 +104,8 @@ func ExampleRouter_Decide() {
 	// Output:
 	// mode: chain via [humidity-zone1]
 	// reason: gain-above-threshold
-	// direct support 0, error 0.1667
-	// chain error 0.0029, gain 0.1638
+	// direct support 0, error 0.0885
+	// chain error 0.0029, gain 0.0856
 	// P(bed-tomato=dry) = 0.768
 	// P(bed-tomato=wet) = 0.232
 }

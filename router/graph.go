@@ -15,7 +15,10 @@ import (
 // length of the ranked prefix, which tells that a RankedNeighbors list
 // shorter than it holds every neighbour (so the search need not read
 // Neighbors to know). A third, AppendName (see NameAppender), spares the
-// per-bridge copy that Name makes.
+// per-bridge copy that Name makes. A fourth, Marginal (scorer.Marginals),
+// gives the Bayes model the target's marginal counts, toward which it
+// shrinks the direct estimate of a pair seen rarely or never; a wrapper
+// should forward it too, or the model falls back to a uniform prior.
 type Graph interface {
 	scorer.Stats
 	// Lookup maps an entity name to its id.

@@ -316,7 +316,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	sc.dirErr = dir.Err
 	if dir.Support > 0 {
 		// The pair's own counts carry no screening-off bias.
-		sc.ref = sc.ddist
+		sc.ref, sc.refVar = sc.ddist, dir.Var
 	}
 	_, adjacent := sc.pairStats(s, t)
 
@@ -372,8 +372,14 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 			return core{}, false, nil, fmt.Errorf("router: chain estimate %q → %q: %w", q.From, q.To, err)
 		}
 		// est.Dist is borrowed from sc.ws until the next model call.
-		e := est.Err + scorer.ReferenceBias(est.Dist, sc.ref)
-		score := sc.scoreOf(dir.Err-e, int(cd.m))
+		var beat *float64
+		if bestEst.ok {
+			beat = &bestEst.score
+		}
+		e, score, err := sc.chainScore(est, int(cd.m), beat)
+		if err != nil {
+			return core{}, false, nil, fmt.Errorf("router: chain estimate %q → %q: %w", q.From, q.To, err)
+		}
 		if !bestEst.ok || score > bestEst.score {
 			bestC = *cd
 			bestEst.ok, bestEst.err, bestEst.score = true, e, score

@@ -26,7 +26,7 @@ func mustNew(t testing.TB, g Graph, opts ...Option) *Router {
 
 // bruteBest enumerates every simple chain of 1..H bridges from s to t,
 // applies the selection rule of search.go independently and returns the
-// best (largest gain; ties: fewer hops): the reference is the direct
+// best (largest gain less the model's gain margin; ties: fewer hops): the reference is the direct
 // estimate when the pair has support, else the chain of smallest proxy cost
 // Σ EdgeCost (edges in path order, pairs read in ascending id order) + β·m,
 // ties to fewer hops, then smaller ids; every chain's error is its model
@@ -80,22 +80,29 @@ func bruteBest(t *testing.T, g *memGraph, m scorer.Model, s graphidx.EntityID, u
 	if err != nil {
 		t.Fatal(err)
 	}
-	ref := dir.Dist
+	ref, refVar, ri := dir.Dist, dir.Var, -1
 	if dir.Support == 0 && len(all) > 0 {
-		ri := 0
+		ri = 0
 		for i, c := range all {
 			r := all[ri]
 			if c.cost < r.cost || (c.cost == r.cost && (len(c.b) < len(r.b) || (len(c.b) == len(r.b) && slices.Compare(c.b, r.b) < 0))) {
 				ri = i
 			}
 		}
-		ref = all[ri].est.Dist
+		ref, refVar = all[ri].est.Dist, all[ri].est.Var
 	}
-	bestErr = math.Inf(1)
-	for _, c := range all {
+	// Score: −Err less the gain margin of the bias estimate (none for the
+	// reference chain, which carries no bias term).
+	gm, _ := m.(scorer.GainMarginer)
+	bestScore := math.Inf(-1)
+	for i, c := range all {
 		e := c.est.Err + scorer.ReferenceBias(c.est.Dist, ref)
-		if e < bestErr-1e-15 || (math.Abs(e-bestErr) <= 1e-15 && len(c.b) < len(best)) {
-			best, bestErr = c.b, e
+		sc := -e
+		if gm != nil && i != ri {
+			sc -= gm.GainMargin(c.est.Var, refVar)
+		}
+		if sc > bestScore+1e-15 || (math.Abs(sc-bestScore) <= 1e-15 && len(c.b) < len(best)) {
+			best, bestErr, bestScore = c.b, e, sc
 		}
 	}
 	return best, bestErr, len(all)

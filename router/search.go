@@ -187,8 +187,10 @@ type scratch struct {
 	dist           []float64 // best chain's Dist copy
 	ddist          []float64 // direct Dist copy
 	// ref is the reference estimate of the bias term (ddist, or incDist of
-	// the reference chain); nil until known.
-	ref []float64
+	// the reference chain); nil until known. refVar is its variance part
+	// (scorer.Estimate.Var), for the gain margin (chainScore).
+	ref    []float64
+	refVar float64
 
 	// incumbent: a chain scored exactly during generation
 	inc struct {
@@ -231,6 +233,7 @@ type scratch struct {
 func newScratch() *scratch {
 	ws := scorer.NewWorkspace()
 	ws.BorrowDist(true)
+	ws.DeferSeparation(deferSeparation) // resolved by chainScore
 	return &scratch{ws: ws}
 }
 
@@ -880,15 +883,16 @@ func (sc *scratch) scoreIncumbent(c cand) bool {
 		sc.err = err
 		return false
 	}
-	e := est.Err
-	if sc.ref != nil {
-		e += scorer.ReferenceBias(est.Dist, sc.ref)
+	e, score, err := sc.chainScore(est, int(c.m), nil)
+	if err != nil {
+		sc.err = err
+		return false
 	}
 	sc.inc.ok, sc.inc.c = true, c
-	sc.inc.err, sc.inc.score = e, sc.scoreOf(sc.dirErr-e, int(c.m))
+	sc.inc.err, sc.inc.score = e, score
 	sc.incDist = append(sc.incDist[:0], est.Dist...)
 	if sc.ref == nil {
-		sc.ref = sc.incDist
+		sc.ref, sc.refVar = sc.incDist, est.Var
 	}
 	return true
 }

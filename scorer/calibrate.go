@@ -237,3 +237,72 @@ func FitChainBias(samples []ChainSample, delta float64) (beta, gamma float64, er
 	}
 	return bOnly, 0, nil
 }
+
+// PriorSample is one unobserved pair's query used to fit the prior strength
+// A of the Bayes model's direct estimate: the spread 1 − Σ_v m̂_v² of the
+// target's smoothed marginal m̂ and the realised Σ_v (m̂_v − p_v)² of
+// answering that marginal against the truth p.
+type PriorSample struct {
+	Spread float64
+	SqErr  float64
+	// Rarity is (1 − P̂(s = u))²·(1 − 1/K_t) of the query, the feature of
+	// FitUnseenSpread.
+	Rarity float64
+}
+
+// FitPriorStrength fits A of the empirical-Bayes prior Dirichlet(A·m̂) (see
+// Bayes, "Direct estimate") so that its prior variance (1 − Σ_v m̂_v²)/(A+1)
+// matches the realised squared distance of unobserved pairs' conditionals
+// from their marginals, by least squares through the origin,
+//
+//	c = Σ_i Spread_i·SqErr_i / Σ_i Spread_i²,   A = 1/c − 1,
+//
+// the minimiser of Σ_i (c·Spread_i − SqErr_i)² (common practice). O(n).
+// Errors (ErrFit): no sample with Spread > 0, a NaN, infinite or negative
+// value, a Spread above 1, or data that give c ≥ 1 (A ≤ 0: the
+// conditionals lie as far from the marginal as a uniform draw would, so no
+// prior on the marginal helps) or c = 0.
+func FitPriorStrength(samples []PriorSample) (float64, error) {
+	c, err := originSlope(samples, "spread", func(s PriorSample) float64 { return s.Spread })
+	if err != nil {
+		return 0, err
+	}
+	if !(c > 0 && c < 1) {
+		return 0, fmt.Errorf("%w: variance ratio %v outside (0, 1)", ErrFit, c)
+	}
+	return 1/c - 1, nil
+}
+
+// originSlope returns Σ_i x_i·SqErr_i / Σ_i x_i², x_i = feature(sample i),
+// the least-squares slope through the origin. Errors (ErrFit): a feature
+// outside [0, 1] or not finite, a NaN, infinite or negative SqErr, or no
+// sample with a feature > 0. O(n).
+func originSlope(samples []PriorSample, name string, feature func(PriorSample) float64) (float64, error) {
+	var gg, gy float64
+	for i, s := range samples {
+		x := feature(s)
+		if !finite(x) || x < 0 || x > 1 || !finite(s.SqErr) || s.SqErr < 0 {
+			return 0, fmt.Errorf("%w: sample %d: %s %v, squared error %v", ErrFit, i, name, x, s.SqErr)
+		}
+		gg += x * x
+		gy += x * s.SqErr
+	}
+	if gg == 0 {
+		return 0, fmt.Errorf("%w: no sample with a %s > 0", ErrFit, name)
+	}
+	return gy / gg, nil
+}
+
+// FitUnseenSpread fits η of the unobserved-pair error E0 = η·Rarity (see
+// Bayes, "Direct estimate") by least squares through the origin on the
+// realised squared distances of unobserved pairs' conditionals from their
+// marginals,
+//
+//	η = Σ_i Rarity_i·SqErr_i / Σ_i Rarity_i²,
+//
+// the minimiser of Σ_i (η·Rarity_i − SqErr_i)² (common practice). O(n).
+// Errors (ErrFit): no sample with Rarity > 0, a NaN, infinite, negative or
+// above-1 Rarity, or a NaN, infinite or negative SqErr.
+func FitUnseenSpread(samples []PriorSample) (float64, error) {
+	return originSlope(samples, "rarity", func(s PriorSample) float64 { return s.Rarity })
+}

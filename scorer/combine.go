@@ -17,6 +17,9 @@ import (
 // correlated biases the combined Err is optimistic. Combined Err never exceeds
 // the smallest input Err.
 //
+// Var is Σ_i w_i² Var_i, the variance of the weighted mean of independent
+// estimates.
+//
 // Estimates with Err = 0 are exact: if any is present, Dist is the plain mean
 // of those and Err = 0. Estimates with Err = +Inf get weight 0 (if all are
 // +Inf, Dist is the plain mean and Err = +Inf). Support is the sum of the
@@ -80,6 +83,13 @@ func Combine(ests []Estimate) (Estimate, error) {
 	}
 	for v := range out.Dist {
 		out.Dist[v] /= total
+	}
+	// Var = Σ_i w_i² Var_i with the normalised weights (independent
+	// estimates); estimates of weight 0 add nothing.
+	for _, e := range ests {
+		if w := weight(e) / total; w > 0 && !math.IsInf(e.Var, 0) {
+			out.Var += w * w * e.Var
+		}
 	}
 	if zeros == 0 && infs < len(ests) {
 		out.Err = 1 / total

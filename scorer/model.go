@@ -13,6 +13,11 @@ type Estimate struct {
 	// Err is the expected squared error of Dist summed over the target's
 	// values (for the Bayes model: Σ_v Var(p̂_v), plus β·m for a chain).
 	Err float64
+	// Var is the variance part of Err, Σ_v Var(p̂_v) (Err − Var is the
+	// model's bias allowance: β·m, the missing-signal and the separation
+	// terms). For the support model, whose error is not a variance, Var =
+	// Err.
+	Var float64
 	// Support is the pair support for a direct estimate, and the smallest
 	// edge support along the chain for a chained one (0 when some edge was
 	// never observed).

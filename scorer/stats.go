@@ -11,3 +11,12 @@ type Stats interface {
 	// the pair was never observed together (or was pruned).
 	Pair(a, b graphidx.EntityID) (ps graphidx.PairStats, ok bool)
 }
+
+// Marginals is an optional interface of a Stats: Marginal(id)[v] is the
+// number of contexts that observe entity id with value v (K entries), or nil
+// when unknown. *graphidx.Index satisfies it. With it the Bayes model's
+// direct estimate shrinks toward the target's marginal instead of the
+// uniform distribution (see Bayes, "Direct estimate").
+type Marginals interface {
+	Marginal(id graphidx.EntityID) []uint64
+}

@@ -42,6 +42,9 @@ func NewSupport(opts ...Option) (*Support, error) {
 	if c.setMissing {
 		return nil, fmt.Errorf("%w: WithMissingSignal applies to the Bayes model only", ErrBadOption)
 	}
+	if c.setPrior || c.setSeparation || c.setNoiseK || c.setSpread {
+		return nil, fmt.Errorf("%w: WithPriorStrength, WithUnseenSpread, WithSeparation and WithNoiseK apply to the Bayes model only", ErrBadOption)
+	}
 	if !c.setBeta {
 		c.beta = DefaultSupportBeta
 	}
@@ -95,12 +98,12 @@ func (m *Support) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bri
 	dist := ws.newDist(kt)
 	if kt == 1 { // presence-only target: the only value has probability 1
 		dist[0] = 1
-		return Estimate{Dist: dist, Err: e, Support: minSup}, nil
+		return Estimate{Dist: dist, Err: e, Var: e, Support: minSup}, nil
 	}
 	k1 := ws.ks[1]
 	if edges == 1 {
 		copy(dist, ws.theta[u*k1:u*k1+k1])
-		return Estimate{Dist: dist, Err: e, Support: minSup}, nil
+		return Estimate{Dist: dist, Err: e, Var: e, Support: minSup}, nil
 	}
 	// Forward product x_k = x_(k−1) M_k, ping-ponging between two rows of
 	// bufA and writing the last product into dist.
@@ -122,5 +125,5 @@ func (m *Support) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bri
 		dense(&ws.hC, out, 1, kc, kc).Mul(xp, mk)
 		cur, nxt = nxt, cur
 	}
-	return Estimate{Dist: dist, Err: e, Support: minSup}, nil
+	return Estimate{Dist: dist, Err: e, Var: e, Support: minSup}, nil
 }

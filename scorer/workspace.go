@@ -32,6 +32,19 @@ type Workspace struct {
 	vr         []float64 // Σ_v accumulators, length K_t
 	mt, w      []float64 // ExactMoments: M̄ᵀ and row weights
 
+	// separation check (separationBias)
+	rr                     []float64 // suffix products R_1..R_(m+1), concatenated
+	roff                   []int     // roff[j-1] = offset of R_j in rr
+	sepD, sepC, sepY, sepA []float64 // D(prev, w), its row factors, y|z|yD, Δ terms
+	sepB, sepBC, sepW      []float64 // M(b, w), its row factors, M(w, next)
+	sepWC, sepG, sepH      []float64 // M(w, next)'s row factors, G, H
+
+	// deferSep defers the separation bias of Bayes.Chain (DeferSeparation);
+	// sepPending marks a deferred term for the last chain (value sepU,
+	// sepM bridges) that PendingBias computes from the loaded path.
+	deferSep, sepPending bool
+	sepU, sepM           int
+
 	// borrow makes newDist hand out out instead of a fresh slice
 	// (BorrowDist); out is never used as scratch by any computation.
 	borrow bool
@@ -59,6 +72,15 @@ func NewWorkspace() *Workspace { return new(Workspace) }
 // implementations may ignore the setting and keep allocating, which is
 // always safe. O(1).
 func (ws *Workspace) BorrowDist(on bool) { ws.borrow = on }
+
+// DeferSeparation sets whether the Bayes model's Chain calls made with this
+// workspace leave out the separation bias (see Bayes, "Separation check")
+// and only record it as pending, for Bayes.PendingBias to add when the
+// caller needs it. The term is ≥ 0, so a caller that compares a chain's
+// error against a best-so-far can compute it only for chains that would
+// otherwise win, and decide exactly as if it were always included (the
+// router does). Off by default. O(1).
+func (ws *Workspace) DeferSeparation(on bool) { ws.deferSep = on }
 
 // BorrowsDist reports whether BorrowDist(true) is in effect.
 func (ws *Workspace) BorrowsDist() bool { return ws != nil && ws.borrow }

@@ -11,6 +11,7 @@ import (
 	"github.com/hopwise/hopwise/internal/eval"
 	"github.com/hopwise/hopwise/internal/world"
 	"github.com/hopwise/hopwise/router"
+	"github.com/hopwise/hopwise/scorer"
 	"github.com/spf13/cobra"
 )
 
@@ -29,6 +30,10 @@ type evalOptions struct {
 	fit          bool
 	fitSeeds     string
 	beta         float64
+	prior        float64
+	separation   float64
+	noiseK       float64
+	spread       float64
 	maxBridges   int
 	beam         int
 	candidates   int
@@ -58,6 +63,9 @@ condition, the MSE against exact truth (variable elimination) of:
                 (at least one)
   support_only  the chain whose smallest edge support is largest (bridges
                 chosen by support alone, not by scored error)
+  marginal      the target's marginal in the index, whatever the observed
+                value
+  count_chain   the chain of fewest bridges, widest support among those
 
 MSE per query is Σ_v (p̂_v − p_v)² / K over the target's K values, averaged
 over the queries of a set. Calibration compares the router's predicted error
@@ -67,11 +75,14 @@ ratio of means.
 Conditions: local-geometric, local-zipf, full, wrong (comma-separated, or
 all). Seeds: --seeds 1,2,3, or --seed N --worlds W for N … N+W−1.
 
---fit calibrates instead: the Bayes model's chain bias β·m + γ·(δ − L)₊²
-(for each δ of a grid, the fixed point of scorer.FitChainBias on the chains
-the router answers with; δ is the one with the best Spearman ρ on the fit
-worlds) and the support model's v0, n0, β (scorer.FitSupport), on the worlds
-of --fit-seeds, which must not overlap the evaluation seeds.
+--fit calibrates instead, on the worlds of --fit-seeds (which must not
+overlap the evaluation seeds): the prior strength A of the direct estimate
+(how far the held-out pairs' conditionals lie from the target's marginal),
+the Bayes model's chain bias β·m + γ·(δ − L)₊² (for each δ of a grid, the
+fixed point of scorer.FitChainBias on the chains the router answers with; δ
+is the one with the best Spearman ρ on the fit worlds), the gain margin k
+(the grid value with the smallest routed MSE) and the support model's v0,
+n0, β (scorer.FitSupport).
 
 --write-queries DIR keeps, for the first world, DIR/corpus.jsonl,
 DIR/index.hwx, DIR/queries.jsonl (input of "hopwise route --queries") and
@@ -98,6 +109,10 @@ DIR/truth.jsonl (the exact answers by id).`,
 	f.BoolVar(&o.fit, "fit", false, "fit β and the support-model constants instead of evaluating")
 	f.StringVar(&o.fitSeeds, "fit-seeds", "101,102,103,104,105", "world seeds for --fit")
 	f.Float64Var(&o.beta, "beta", router.DefaultConfig().Beta, "per-hop squared bias β of the Bayes model")
+	f.Float64Var(&o.prior, "prior-strength", scorer.DefaultPriorStrength, "A: pseudo-count of the direct estimate's prior centred on the target's marginal")
+	f.Float64Var(&o.spread, "unseen-spread", scorer.DefaultUnseenSpread, "η: a never-seen pair's direct error is η·(1 − P(observed value))²·(1 − 1/K)")
+	f.Float64Var(&o.separation, "separation", scorer.DefaultSeparation, "λ: weight of the chain's separation bias (0: off)")
+	f.Float64Var(&o.noiseK, "noise-k", scorer.DefaultNoiseK, "k: a chain must beat direct by k standard errors of its bias estimate (0: off)")
 	f.IntVar(&o.maxBridges, "max-bridges", router.DefaultMaxBridges, "H: most bridges in a chain (1-3)")
 	f.IntVar(&o.beam, "beam", router.DefaultBeam, "B: router beam width")
 	f.IntVar(&o.candidates, "max-candidates", router.DefaultMaxCandidates, "k: chains the router scores exactly")
@@ -174,6 +189,9 @@ func runEval(cmd *cobra.Command, o evalOptions) error {
 	beta := o.beta
 	base := eval.Config{
 		World: &wc, Contexts: o.contexts, Beta: &beta, MaxBridges: o.maxBridges, Workers: o.workers,
+		ModelOptions: []scorer.Option{
+			scorer.WithPriorStrength(o.prior), scorer.WithUnseenSpread(o.spread), scorer.WithSeparation(o.separation), scorer.WithNoiseK(o.noiseK),
+		},
 		RouterOptions: []router.Option{
 			router.WithBeam(o.beam), router.WithMaxCandidates(o.candidates), router.WithGainThreshold(o.gainTau),
 		},
@@ -209,10 +227,16 @@ func runEval(cmd *cobra.Command, o evalOptions) error {
 			return enc.Encode(fr)
 		}
 		fmt.Fprintf(out, "fitted on %s worlds, seeds %v (%d contexts each)\n", fr.Condition, fr.Seeds, o.contexts)
+		fmt.Fprintf(out, "bayes   A  = %.6g  η = %.6g   (direct prior strength and unseen-pair spread, %d unobserved-pair queries)\n", fr.PriorStrength, fr.UnseenSpread, fr.PriorSamples)
 		fmt.Fprintf(out, "bayes   β  = %.6g  γ = %.6g  δ = %.6g   (fixed point β %v, γ %v, %d chains)\n",
 			fr.Beta, fr.Gamma, fr.Delta, fr.BetaPath, fr.GammaPath, fr.ChainSamples)
 		for _, g := range fr.Grid {
 			fmt.Fprintf(out, "        δ = %-6g β = %.6g  γ = %.6g  fit-world ρ %.4f  mean ratio %.3f\n", g.Delta, g.Beta, g.Gamma, g.Spearman, g.MeanRatio)
+		}
+		fmt.Fprintf(out, "bayes   k  = %.6g   (gain margin)\n", fr.NoiseK)
+		for _, g := range fr.NoiseGrid {
+			fmt.Fprintf(out, "        k = %-4g routed MSE all %.6g  held-out %.6g  supported %.6g  (%.2f%% of supported chained)\n",
+				g.K, g.All, g.HeldOut, g.Supported, 100*g.SupportedChainShare)
 		}
 		fmt.Fprintf(out, "support v0 = %.6g  n0 = %.6g  β = %.6g   (RMSE %.4g, %d samples)\n",
 			fr.Support.V0, fr.Support.N0, fr.Support.Beta, fr.Support.RMSE, fr.Support.N)

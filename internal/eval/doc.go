@@ -27,7 +27,10 @@
 //     - support_only: scorer Chain through the chain of at most H bridges
 //     whose smallest edge support is largest (bridges chosen by support
 //     alone; see widestChain), to compare with the router's choice by
-//     scored error.
+//     scored error;
+//     - marginal: the target's marginal from the index, smoothed (α = 1);
+//     - count_chain: scorer Chain through the chain of fewest bridges, the
+//     widest (largest smallest edge support) among those.
 //  5. Truth is world.TrueConditional (variable elimination).
 //
 // # Figures
@@ -46,6 +49,10 @@
 //
 // # Fitting the default constants (Fit, `hopwise eval --fit`)
 //
+// First the prior strength A of the direct estimate's empirical-Bayes prior
+// (scorer.FitPriorStrength on the held-out queries: how far their exact
+// conditionals lie from the target's marginal). Then, with A fixed:
+//
 // The Bayes model's chain bias is β·m + γ·(δ − L)₊² (L the chain's signal,
 // scorer.Bayes.SignalBound). For every δ of a grid, (β, γ) is the fixed point
 // of: answer all queries of the fit worlds, collect every answer the router
@@ -54,7 +61,9 @@
 // δ); stop when both move by < 2 %. δ is the grid value whose fixed point
 // gives the largest mean Spearman ρ on the fit worlds. Chain.Err carries the
 // router's reference-bias term (scorer.ReferenceBias), so β and γ fit only
-// the residual. The support model's
+// the residual. Then k of the gain margin (scorer.WithNoiseK): the value
+// of a grid whose answers have the smallest routed MSE over all queries of
+// the fit worlds. The support model's
 // v0, n0 and β come from scorer.FitSupport on the direct answers (one edge:
 // the pair support) and the best chains (their edge supports) at the final
 // Bayes constants.

@@ -38,11 +38,13 @@ const (
 	EstIdeal       = "ideal"
 	EstNegative    = "negative"
 	EstSupportOnly = "support_only"
+	EstMarginal    = "marginal"
+	EstCountChain  = "count_chain"
 )
 
 // Estimators lists the estimator names in report order.
 func Estimators() []string {
-	return []string{EstDirect, EstChain, EstRouted, EstIdeal, EstNegative, EstSupportOnly}
+	return []string{EstDirect, EstChain, EstRouted, EstIdeal, EstNegative, EstSupportOnly, EstMarginal, EstCountChain}
 }
 
 // ErrConfig reports an invalid Config (unknown condition, negative sizes,
@@ -145,6 +147,12 @@ type Scores struct {
 	Ideal       float64 `json:"ideal"`
 	Negative    float64 `json:"negative"`
 	SupportOnly float64 `json:"support_only"`
+	// Marginal answers the target's marginal from the index, smoothed like
+	// the model (α = 1), whatever the observed value.
+	Marginal float64 `json:"marginal"`
+	// CountChain is the simple count chain: fewest bridges, then widest
+	// smallest edge support (direct when no chain exists).
+	CountChain float64 `json:"count_chain"`
 	// N is the number of queries scored.
 	N int `json:"n"`
 	// Skipped counts queries whose observed value never occurs in the
@@ -175,6 +183,10 @@ func (s Scores) Get(est string) float64 {
 		return s.Negative
 	case EstSupportOnly:
 		return s.SupportOnly
+	case EstMarginal:
+		return s.Marginal
+	case EstCountChain:
+		return s.CountChain
 	}
 	return math.NaN()
 }
@@ -193,6 +205,10 @@ func (s *Scores) set(est string, v float64) {
 		s.Negative = v
 	case EstSupportOnly:
 		s.SupportOnly = v
+	case EstMarginal:
+		s.Marginal = v
+	case EstCountChain:
+		s.CountChain = v
 	}
 }
 
@@ -237,15 +253,18 @@ type Report struct {
 // QueryResult is one answered query with every estimate, over the world's
 // value indexes of the target.
 type QueryResult struct {
-	Set          string
-	From, To     int // world variable indexes
-	Value        int // observed value (world index)
-	Truth        []float64
-	Est          map[string][]float64
-	Mode         router.Mode
-	RoutedErr    float64 // Decision.Err
-	DirectErr    float64
-	DirectSup    uint64
+	Set       string
+	From, To  int // world variable indexes
+	Value     int // observed value (world index)
+	Truth     []float64
+	Est       map[string][]float64
+	Mode      router.Mode
+	RoutedErr float64 // Decision.Err
+	DirectErr float64
+	DirectSup uint64
+	// FromShare is the observed value's smoothed share among the observed
+	// entity's contexts, (c_u + 1)/(Σ c + K) from the index's marginal.
+	FromShare    float64
 	ChainErr     float64  // best chain's Err (0 without a chain)
 	ChainSups    []uint64 // edge supports of the best chain (nil without)
 	ChainBridges int
@@ -602,6 +621,7 @@ func (b *Bench) answer(ctx context.Context, rt *router.Router, model scorer.Mode
 		Mode:      d.Mode,
 		RoutedErr: d.Err, DirectErr: d.Direct.Err, DirectSup: d.Direct.Support,
 	}
+	r.FromShare = smoothedMarginal(b.Index.Marginal(s))[u]
 	r.Est[EstDirect] = conv(d.Direct.Estimate, d.Values)
 	r.Est[EstRouted] = conv(d.Estimate, d.Values)
 	if d.Chain != nil {
@@ -663,21 +683,48 @@ func (b *Bench) answer(ctx context.Context, rt *router.Router, model scorer.Mode
 	if r.Est[EstNegative], err = chain(neg); err != nil {
 		return r, false, fmt.Errorf("eval: negative chain: %w", err)
 	}
-	so := b.widestChain(s, t, b.cfg.MaxBridges)
-	if so == nil {
-		r.Est[EstSupportOnly] = r.Est[EstDirect]
-	} else {
+	for _, c := range []struct {
+		est    string
+		fewest bool
+	}{{EstSupportOnly, false}, {EstCountChain, true}} {
+		so := b.widestChain(s, t, b.cfg.MaxBridges, c.fewest)
+		if so == nil {
+			r.Est[c.est] = r.Est[EstDirect]
+			continue
+		}
 		e, err := model.Chain(ws, b.Index, s, u, so, t)
 		if err != nil {
-			return r, false, fmt.Errorf("eval: support-only chain: %w", err)
+			return r, false, fmt.Errorf("eval: %s chain: %w", c.est, err)
 		}
-		r.Est[EstSupportOnly] = conv(e.Dist, idxLabels)
+		r.Est[c.est] = conv(e.Dist, idxLabels)
 	}
+	r.Est[EstMarginal] = conv(smoothedMarginal(b.Index.Marginal(t)), idxLabels)
 	return r, true, nil
 }
 
-// borrowed lends the index to a router without its Close method.
-type borrowed struct{ router.Graph }
+// smoothedMarginal returns (c_v + 1)/(Σ c + K), the marginal the Bayes
+// model's empirical-Bayes prior is centred on (α = 1).
+func smoothedMarginal(c []uint64) []float64 {
+	out := make([]float64, len(c))
+	tot := float64(len(c))
+	for _, x := range c {
+		tot += float64(x)
+	}
+	for v, x := range c {
+		out[v] = (float64(x) + 1) / tot
+	}
+	return out
+}
+
+// borrowed lends the index to a router without its Close method. It
+// forwards the optional methods the router uses (marginals for the direct
+// estimate's prior, batched pair look-ups, the ranked prefix).
+type borrowed struct{ *graphidx.Index }
+
+// Close shadows the index's Close so that the router never closes the
+// Bench's index (without an error result it is not an io.Closer, which is
+// what the router retires).
+func (borrowed) Close() {}
 
 func (b *Bench) support(a, c graphidx.EntityID) uint64 {
 	l := b.adj[a]

@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"slices"
 
 	"github.com/hopwise/hopwise/router"
 	"github.com/hopwise/hopwise/scorer"
@@ -26,9 +27,15 @@ type FitConfig struct {
 	// Tol is the relative change of β and γ that stops the iteration
 	// (default 0.02).
 	Tol float64
+	// NoiseKs are the candidate k of the gain margin (default
+	// DefaultFitNoiseKs), each ≥ 0.
+	NoiseKs []float64
 	// Log, when set, receives one line per pass.
 	Log func(format string, args ...any)
 }
+
+// DefaultFitNoiseKs is the k grid of Fit (scorer.WithNoiseK).
+var DefaultFitNoiseKs = []float64{0, 0.5, 1, 1.5, 2, 3, 4}
 
 // DefaultFitDeltas is the δ grid of Fit.
 var DefaultFitDeltas = []float64{0.05, 0.1, 0.125, 0.15, 0.175, 0.2, 0.25, 0.3}
@@ -51,6 +58,18 @@ type FitResult struct {
 	// ChainSamples is the number of chains β and γ were fitted on (last pass
 	// at the chosen δ).
 	ChainSamples int `json:"chain_samples"`
+	// PriorStrength is A of the direct estimate's empirical-Bayes prior
+	// (scorer.FitPriorStrength), fitted on PriorSamples unobserved-pair
+	// queries.
+	PriorStrength float64 `json:"prior_strength"`
+	// UnseenSpread is η of the unobserved-pair error
+	// (scorer.FitUnseenSpread), on the same queries.
+	UnseenSpread float64 `json:"unseen_spread"`
+	PriorSamples int     `json:"prior_samples"`
+	// NoiseK is k of the gain margin (scorer.WithNoiseK): the grid value
+	// with the smallest routed MSE over all queries of the fit worlds.
+	NoiseK    float64    `json:"noise_k"`
+	NoiseGrid []NoiseFit `json:"noise_grid"`
 	// Support is the support model's fit (v0, n0, β, RMSE, N).
 	Support scorer.SupportFit `json:"support"`
 	// Seeds are the worlds used.
@@ -69,7 +88,25 @@ type DeltaFit struct {
 	MeanRatio float64 `json:"mean_ratio"`
 }
 
+// NoiseFit is the outcome of one candidate k of the gain margin: the routed
+// MSE (Σ_v (p̂_v − p_v)²/K per query, mean over the fit worlds' queries) of
+// all queries, the held-out and the supported ones, and the share of
+// supported queries answered through a chain.
+type NoiseFit struct {
+	K                   float64 `json:"k"`
+	All                 float64 `json:"all"`
+	HeldOut             float64 `json:"heldout"`
+	Supported           float64 `json:"supported"`
+	SupportedChainShare float64 `json:"supported_chain_share"`
+}
+
 // Fit calibrates the error models on the worlds of cfg.Seeds.
+//
+// Direct prior: A of the empirical-Bayes prior (scorer.WithPriorStrength)
+// comes first, from scorer.FitPriorStrength on every held-out query of the
+// fit worlds (pairs never observed together): the spread 1 − Σ_v m̂_v² of
+// the target's smoothed marginal against the realised Σ_v (m̂_v − p_v)². It
+// does not depend on the other constants, which are then fitted with it.
 //
 // Bayes model: a chain of m bridges with signal L (the product of its edges'
 // association lower bounds, scorer.Bayes.SignalBound) has the error
@@ -86,6 +123,11 @@ type DeltaFit struct {
 // chosen from the grid as the one whose fixed point gives the largest mean
 // Spearman ρ (predicted against realised error, all queries) over the fit
 // worlds — on the fit worlds only, never on evaluation worlds.
+//
+// Gain margin: with A, β, γ and δ fixed, k (scorer.WithNoiseK) is the value
+// of the grid NoiseKs whose answers have the smallest routed MSE over all
+// queries of the fit worlds (a decision threshold, so it is chosen by the
+// loss it controls; ties go to the smaller k).
 //
 // Support model: with the final Bayes constants, every query contributes its
 // direct answer (one edge: the pair support; SqErr of the direct estimate) and,
@@ -107,6 +149,14 @@ func Fit(ctx context.Context, fc FitConfig) (FitResult, error) {
 	}
 	if len(fc.Deltas) == 0 {
 		fc.Deltas = DefaultFitDeltas
+	}
+	if len(fc.NoiseKs) == 0 {
+		fc.NoiseKs = DefaultFitNoiseKs
+	}
+	for _, k := range fc.NoiseKs {
+		if !(k >= 0) || math.IsInf(k, 1) {
+			return FitResult{}, fmt.Errorf("%w: fit k = %v, want a finite k ≥ 0", ErrConfig, k)
+		}
 	}
 	for _, d := range fc.Deltas {
 		if !(d >= 0 && d <= 1) {
@@ -141,8 +191,11 @@ func Fit(ctx context.Context, fc FitConfig) (FitResult, error) {
 	res := FitResult{Seeds: fc.Seeds, Condition: benches[0].cfg.Condition}
 	// answerAll answers every fit world; rho and ratio are the means over
 	// worlds of the calibration figures.
-	answerAll := func(beta, gamma, delta float64) (qs []QueryResult, rho, ratio float64, err error) {
-		model, err := scorer.NewBayes(scorer.WithBeta(beta), scorer.WithMissingSignal(gamma, delta))
+	var fitted []scorer.Option // constants fitted so far, applied after the base options
+	answerAll := func(beta, gamma, delta float64, extra ...scorer.Option) (qs []QueryResult, rho, ratio float64, err error) {
+		opts := append(slices.Clone(fc.Base.ModelOptions), fitted...)
+		opts = append(opts, scorer.WithBeta(beta), scorer.WithMissingSignal(gamma, delta))
+		model, err := scorer.NewBayes(append(opts, extra...)...)
 		if err != nil {
 			return nil, 0, 0, fmt.Errorf("eval: fit: %w", err)
 		}
@@ -157,6 +210,38 @@ func Fit(ctx context.Context, fc FitConfig) (FitResult, error) {
 		}
 		n := float64(len(benches))
 		return qs, rho / n, ratio / n, nil
+	}
+	// Direct prior strength A, from the held-out (never co-observed) pairs.
+	{
+		qs, _, _, err := answerAll(beta0, 1, DefaultFitDeltas[0])
+		if err != nil {
+			return res, err
+		}
+		var ps []scorer.PriorSample
+		for i := range qs {
+			q := &qs[i]
+			if q.DirectSup != 0 {
+				continue
+			}
+			m := q.Est[EstMarginal]
+			spread := 1.0
+			for _, p := range m {
+				spread -= p * p
+			}
+			r := 1 - q.FromShare
+			ps = append(ps, scorer.PriorSample{Spread: max(0, spread), SqErr: q.SqErr(EstMarginal), Rarity: r * r * (1 - 1/float64(len(m)))})
+		}
+		a, err := scorer.FitPriorStrength(ps)
+		if err != nil {
+			return res, fmt.Errorf("eval: fit prior strength: %w", err)
+		}
+		eta, err := scorer.FitUnseenSpread(ps)
+		if err != nil {
+			return res, fmt.Errorf("eval: fit unseen spread: %w", err)
+		}
+		res.PriorStrength, res.UnseenSpread, res.PriorSamples = a, eta, len(ps)
+		fitted = append(fitted, scorer.WithPriorStrength(a), scorer.WithUnseenSpread(eta))
+		logf("prior strength A %.6g, unseen spread η %.6g on %d unobserved-pair queries", a, eta, len(ps))
 	}
 	bestRho := math.Inf(-1)
 	for _, delta := range fc.Deltas {
@@ -203,6 +288,21 @@ func Fit(ctx context.Context, fc FitConfig) (FitResult, error) {
 			res.ChainSamples = len(samples)
 		}
 	}
+	// Gain margin k: the smallest routed MSE over all queries.
+	bestAll := math.Inf(1)
+	for _, k := range fc.NoiseKs {
+		qs, _, _, err := answerAll(res.Beta, res.Gamma, res.Delta, scorer.WithNoiseK(k))
+		if err != nil {
+			return res, err
+		}
+		nf := noiseFit(k, qs)
+		res.NoiseGrid = append(res.NoiseGrid, nf)
+		logf("k %g: routed MSE all %.6g, held-out %.6g, supported %.6g (%.2f%% of supported chained)", k, nf.All, nf.HeldOut, nf.Supported, 100*nf.SupportedChainShare)
+		if nf.All < bestAll {
+			bestAll, res.NoiseK = nf.All, k
+		}
+	}
+	fitted = append(fitted, scorer.WithNoiseK(res.NoiseK))
 	// Support model on the answers of the final constants.
 	qs, _, _, err := answerAll(res.Beta, res.Gamma, res.Delta)
 	if err != nil {
@@ -221,4 +321,37 @@ func Fit(ctx context.Context, fc FitConfig) (FitResult, error) {
 	}
 	logf("support model: v0 %.6g, n0 %.6g, β %.6g (RMSE %.4g, %d samples)", res.Support.V0, res.Support.N0, res.Support.Beta, res.Support.RMSE, res.Support.N)
 	return res, nil
+}
+
+// noiseFit summarises the routed MSE of one candidate k over the pooled
+// queries of the fit worlds.
+func noiseFit(k float64, qs []QueryResult) NoiseFit {
+	nf := NoiseFit{K: k}
+	var nAll, nH, nS, chained float64
+	for i := range qs {
+		q := &qs[i]
+		e := q.SqErr(EstRouted) / float64(len(q.Truth))
+		nf.All += e
+		nAll++
+		switch q.Set {
+		case SetHeldOut:
+			nf.HeldOut += e
+			nH++
+		case SetSupported:
+			nf.Supported += e
+			nS++
+			if q.Mode == router.ModeChain {
+				chained++
+			}
+		}
+	}
+	div := func(a, b float64) float64 {
+		if b == 0 {
+			return math.NaN()
+		}
+		return a / b
+	}
+	nf.All, nf.HeldOut, nf.Supported = div(nf.All, nAll), div(nf.HeldOut, nH), div(nf.Supported, nS)
+	nf.SupportedChainShare = div(chained, nS)
+	return nf
 }

@@ -15,7 +15,10 @@ import "github.com/hopwise/hopwise/graphidx"
 // one path per (layer, node) can miss a simple path that only a dominated
 // prefix reaches, so the result is a heuristic for m ≥ 2 (exact for m = 1).
 // Cost O(h·(N + Σ deg)) with N entities. Returns nil when no chain exists.
-func (b *Bench) widestChain(s, t graphidx.EntityID, h int) []graphidx.EntityID {
+//
+// With fewest, the search stops at the first layer that reaches t: the
+// simple count chain of fewest bridges, widest among those.
+func (b *Bench) widestChain(s, t graphidx.EntityID, h int, fewest bool) []graphidx.EntityID {
 	if h < 1 {
 		return nil
 	}
@@ -48,7 +51,7 @@ func (b *Bench) widestChain(s, t graphidx.EntityID, h int) []graphidx.EntityID {
 				best, bestB = c.path, bn
 			}
 		}
-		if m == h {
+		if m == h || (fewest && best != nil) {
 			break
 		}
 		next := make([]cell, n)

@@ -28,22 +28,25 @@ func TestWidestChain(t *testing.T) {
 	// via 2, 3 → min(80, 90, 70) = 70; the direct edge 0–4 is not a chain.
 	base := [][3]uint64{{0, 1, 100}, {1, 4, 50}, {0, 2, 80}, {2, 3, 90}, {3, 4, 70}, {0, 4, 1000}}
 	cases := []struct {
-		name  string
-		edges [][3]uint64
-		h     int
-		want  []graphidx.EntityID
+		name   string
+		edges  [][3]uint64
+		h      int
+		fewest bool
+		want   []graphidx.EntityID
 	}{
-		{"one bridge", base, 1, []graphidx.EntityID{1}},
-		{"two bridges win", base, 3, []graphidx.EntityID{2, 3}},
-		{"tie goes to fewer bridges", append(slices.Clone(base), [3]uint64{0, 5, 70}, [3]uint64{5, 4, 75}), 3, []graphidx.EntityID{5}},
-		{"no chain", [][3]uint64{{0, 4, 10}, {0, 1, 5}}, 3, nil},
-		{"H = 0", base, 0, nil},
+		{"one bridge", base, 1, false, []graphidx.EntityID{1}},
+		{"two bridges win", base, 3, false, []graphidx.EntityID{2, 3}},
+		{"fewest bridges first", base, 3, true, []graphidx.EntityID{1}},
+		{"tie goes to fewer bridges", append(slices.Clone(base), [3]uint64{0, 5, 70}, [3]uint64{5, 4, 75}), 3, false, []graphidx.EntityID{5}},
+		{"fewest, then widest", append(slices.Clone(base), [3]uint64{0, 5, 70}, [3]uint64{5, 4, 75}), 3, true, []graphidx.EntityID{5}},
+		{"no chain", [][3]uint64{{0, 4, 10}, {0, 1, 5}}, 3, false, nil},
+		{"H = 0", base, 0, false, nil},
 		// A path may not revisit s: 0–1–0–… is never taken.
-		{"simple paths only", [][3]uint64{{0, 1, 100}, {1, 2, 100}, {2, 4, 100}, {0, 3, 1}, {3, 4, 1}}, 3, []graphidx.EntityID{1, 2}},
+		{"simple paths only", [][3]uint64{{0, 1, 100}, {1, 2, 100}, {2, 4, 100}, {0, 3, 1}, {3, 4, 1}}, 3, false, []graphidx.EntityID{1, 2}},
 	}
 	for _, c := range cases {
 		b := benchOf(6, c.edges)
-		if got := b.widestChain(0, 4, c.h); !slices.Equal(got, c.want) {
+		if got := b.widestChain(0, 4, c.h, c.fewest); !slices.Equal(got, c.want) {
 			t.Errorf("%s: widestChain = %v, want %v", c.name, got, c.want)
 		}
 	}

@@ -1,0 +1,146 @@
+package world
+
+import "fmt"
+
+// Published networks: small Bayesian networks from the literature, typed in
+// with their source, used as external checks of the scorer and the router
+// (their exact answers come from variable elimination like every other
+// world). Unlike Generate and Greenhouse they have no random parts; the
+// held-out pairs are chosen by the caller (PublishedHeldOut, WithHeldOut).
+
+// Asia returns the chest-clinic network of Lauritzen & Spiegelhalter (1988),
+// "Local computations with probabilities on graphical structures and their
+// application to expert systems", J. R. Statist. Soc. B 50(2), 157–224,
+// Fig. 1 and the probabilities listed with it: 8 binary variables, labels
+// "no" < "yes".
+//
+//	asia    visit to Asia                     P(yes) = 0.01
+//	smoke   smoker                            P(yes) = 0.5
+//	tub     tuberculosis    ← asia            yes .05, no .01
+//	lung    lung cancer     ← smoke           yes .10, no .01
+//	bronc   bronchitis      ← smoke           yes .60, no .30
+//	either  tub or lung     ← tub, lung       logical or (deterministic)
+//	xray    positive X-ray  ← either          yes .98, no .05
+//	dysp    dyspnoea        ← either, bronc   (yes,yes) .9, (yes,no) .7, (no,yes) .8, (no,no) .1
+//
+// "either" is a common effect of tub and lung (explaining away: given
+// either, tub and lung are dependent), and dysp one of either and bronc.
+func Asia() (*World, error) {
+	yn := []string{"no", "yes"}
+	// pYes builds a binary CPT from P(yes | configuration) in configuration
+	// order (first parent most significant, "no" before "yes").
+	pYes := func(ps ...float64) []float64 {
+		out := make([]float64, 0, 2*len(ps))
+		for _, p := range ps {
+			out = append(out, 1-p, p)
+		}
+		return out
+	}
+	const (
+		asia = iota
+		smoke
+		tub
+		lung
+		bronc
+		either
+		xray
+		dysp
+	)
+	vars := []Variable{
+		asia:  {Name: "asia", Labels: yn, CPT: pYes(0.01)},
+		smoke: {Name: "smoke", Labels: yn, CPT: pYes(0.5)},
+		tub:   {Name: "tub", Labels: yn, Parents: []int{asia}, CPT: pYes(0.01, 0.05)},
+		lung:  {Name: "lung", Labels: yn, Parents: []int{smoke}, CPT: pYes(0.01, 0.10)},
+		bronc: {Name: "bronc", Labels: yn, Parents: []int{smoke}, CPT: pYes(0.30, 0.60)},
+		// (tub, lung): (no,no), (no,yes), (yes,no), (yes,yes).
+		either: {Name: "either", Labels: yn, Parents: []int{tub, lung}, CPT: pYes(0, 1, 1, 1)},
+		xray:   {Name: "xray", Labels: yn, Parents: []int{either}, CPT: pYes(0.05, 0.98)},
+		// (either, bronc): (no,no), (no,yes), (yes,no), (yes,yes).
+		dysp: {Name: "dysp", Labels: yn, Parents: []int{either, bronc}, CPT: pYes(0.1, 0.8, 0.7, 0.9)},
+	}
+	w, err := New(vars)
+	if err != nil {
+		return nil, fmt.Errorf("asia: %w", err)
+	}
+	return w, nil
+}
+
+// Survey returns the travel survey network of Scutari & Denis (2014),
+// "Bayesian Networks with Examples in R", Chapman & Hall/CRC, chapter 1: six
+// discrete variables, three of them with more than two values. The
+// probabilities below were typed from memory of that chapter's tables (not
+// copied from the book at hand), so they may differ from the printed ones in
+// the second decimal; the structure is the book's.
+//
+//	A  age          adult | old | young      young .3, adult .5, old .2
+//	S  sex          F | M                     M .6, F .4
+//	E  education    high | uni     ← A, S
+//	O  occupation   emp | self     ← E
+//	R  residence    big | small    ← E
+//	T  transport    car | other | train  ← O, R
+//
+// E is a common effect of A and S and T one of O and R, so the network has
+// two colliders; labels are in ascending byte order as New requires (the
+// book lists young, adult, old and car, train, other).
+func Survey() (*World, error) {
+	const (
+		a = iota
+		s
+		e
+		o
+		r
+		t
+	)
+	// E | A, S with A in label order (adult, old, young) and S (F, M);
+	// each row is P(high), P(uni).
+	eCPT := []float64{
+		0.70, 0.30, // adult, F
+		0.72, 0.28, // adult, M
+		0.90, 0.10, // old, F
+		0.88, 0.12, // old, M
+		0.64, 0.36, // young, F
+		0.75, 0.25, // young, M
+	}
+	// T | O, R with O (emp, self) and R (big, small); each row is P(car),
+	// P(other), P(train).
+	tCPT := []float64{
+		0.58, 0.18, 0.24, // emp, big
+		0.48, 0.10, 0.42, // emp, small
+		0.70, 0.09, 0.21, // self, big
+		0.56, 0.08, 0.36, // self, small
+	}
+	vars := []Variable{
+		a: {Name: "age", Labels: []string{"adult", "old", "young"}, CPT: []float64{0.5, 0.2, 0.3}},
+		s: {Name: "sex", Labels: []string{"F", "M"}, CPT: []float64{0.4, 0.6}},
+		e: {Name: "education", Labels: []string{"high", "uni"}, Parents: []int{a, s}, CPT: eCPT},
+		// rows: high, uni; P(emp), P(self).
+		o: {Name: "occupation", Labels: []string{"emp", "self"}, Parents: []int{e}, CPT: []float64{0.96, 0.04, 0.92, 0.08}},
+		// rows: high, uni; P(big), P(small).
+		r: {Name: "residence", Labels: []string{"big", "small"}, Parents: []int{e}, CPT: []float64{0.75, 0.25, 0.80, 0.20}},
+		t: {Name: "transport", Labels: []string{"car", "other", "train"}, Parents: []int{o, r}, CPT: tCPT},
+	}
+	w, err := New(vars)
+	if err != nil {
+		return nil, fmt.Errorf("survey: %w", err)
+	}
+	return w, nil
+}
+
+// PublishedHeldOut returns every pair of w at skeleton distance ≥ minDist,
+// sorted, for use as held-out (never observed together) pairs with
+// WithHeldOut. Pairs that are far apart are the ones a chain must answer;
+// unlike PickHeldOut it keeps pairs of any mutual information, including
+// independent ones, whose right answer is the target's marginal. O(N·(N+E)).
+func PublishedHeldOut(w *World, minDist int) [][2]int {
+	n := w.NumVars()
+	var out [][2]int
+	for a := range n {
+		dist, _ := bfs(w.adj, a)
+		for b := a + 1; b < n; b++ {
+			if dist[b] >= minDist {
+				out = append(out, [2]int{a, b})
+			}
+		}
+	}
+	return out
+}
