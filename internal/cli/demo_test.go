@@ -118,8 +118,8 @@ func runNextCommands(t *testing.T, out string) {
 }
 
 // shellWords splits a command line the way a POSIX shell splits the words
-// the demo prints: blanks separate words, and single quotes (with '\'' for
-// an embedded quote) keep blanks inside one word.
+// the demo prints: blanks separate words, and single quotes (an embedded
+// quote is written as quote, backslash, quote, quote) keep blanks inside one word.
 func shellWords(t *testing.T, line string) []string {
 	t.Helper()
 	var words []string
