@@ -7,7 +7,7 @@ import (
 	"strings"
 	"testing"
 
-	abtest "github.com/hopwise/hopwise/examples/abtest"
+	abtest "github.com/hopwise/hopwise/examples/gateway/cmd/abtest"
 	"github.com/hopwise/hopwise/otelx"
 	"github.com/hopwise/hopwise/router"
 )
