@@ -1,17 +1,27 @@
-// Command abtest walks through the loop after deployment: it sends simulated
-// traffic through the gateway example's code with three A/B arms
-// (routed, direct-only, chain-always) and exploration on, writes the decision
-// traces (OTLP JSON Lines) and the outcomes (JSONL), then runs `hopwise tune`
-// and `hopwise ab` on them and prints the recommended thresholds and the A/B
-// verdict.
+// Command abtest walks through the loop after deployment, over HTTP: it
+// starts the simulated model (package simmodel) and the gateway in front of
+// it with three A/B arms (routed, direct-only, chain-always) and
+// exploration on, sends chat-completions requests in plain words, scores
+// each answer against the exact one and reports it with POST /v1/outcomes,
+// prints accuracy and token cost per arm as a table, then runs `hopwise
+// tune` and `hopwise ab` on the traces and prints the recommended
+// thresholds and the A/B verdict.
 //
-//	go run ./examples/abtest                 # files in ./hopwise-abtest
-//	go run ./examples/abtest -requests 20000 -dir /tmp/ab
+//	cd examples/gateway
+//	go run ./cmd/abtest                      # files in ./hopwise-abtest
+//	go run ./cmd/abtest -requests 20000 -dir /tmp/ab
 //
 // The traffic asks questions about the invented greenhouse world, whose exact
-// answers are known: an outcome's score is 1 when the answer's most likely
-// value is the exact most likely value, else 0, and its cost is the
-// simulated model's token usage.
+// answers are known: an outcome's score is 1 when the answer's value is the
+// exact most likely value, else 0, and its cost is the token usage the
+// simulated model reports.
+//
+// This program cannot be copied out of the repository: the exact answers
+// come from the greenhouse world in github.com/hopwise/hopwise/internal/world
+// (through examples/internal/ghtest) and tune and ab run in-process through
+// github.com/hopwise/hopwise/internal/cli, both internal packages. A copy
+// would read the exact answers from the truth.jsonl file that `hopwise demo`
+// writes and run the hopwise binary instead.
 package main
 
 import (
