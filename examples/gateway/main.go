@@ -53,12 +53,12 @@ const (
 // options are the command's settings.
 type options struct {
 	addr, index, lexicon, config, upstream, traceFile, endpoint string
-	tokenFile, hashKeyFile, provider                           string
-	traceMaxBytes                                              int64
-	traceBackups                                               int
-	routingOff                                                 bool
-	decide, upstreamTimeout, body, shutdown                    time.Duration
-	maxBody                                                    int64
+	tokenFile, hashKeyFile, provider                            string
+	traceMaxBytes                                               int64
+	traceBackups                                                int
+	routingOff                                                  bool
+	decide, upstreamTimeout, body, shutdown                     time.Duration
+	maxBody                                                     int64
 	// token and hashKey are read from files or the environment.
 	token   string
 	hashKey []byte
