@@ -3,7 +3,6 @@ module github.com/hopwise/hopwise
 go 1.26.8
 
 require (
-	github.com/coregx/ahocorasick v0.3.1
 	github.com/hashicorp/golang-lru/v2 v2.0.7
 	github.com/mattn/go-isatty v0.0.24
 	github.com/schollz/progressbar/v3 v3.19.1

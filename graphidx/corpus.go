@@ -135,11 +135,14 @@ type ReadStats struct {
 	Lines    int64            // physical lines consumed
 	Records  int64            // records examined
 	OK       int64            // records accepted
-	Empty    int64            // text paragraphs without a lexicon match (not an error)
+	Empty    int64            // text paragraphs without an observation (not an error)
 	Skipped  map[string]int64 // records rejected in lenient mode, by reason code
 	Contexts int64            // contexts returned by Next
 	// FirstBad holds the first LineError seen for each skipped reason.
 	FirstBad map[string]*LineError
+	// Unvalued counts, for text, valued entities left out of a paragraph
+	// that names them only by forms without a value (see TextReader).
+	Unvalued int64
 }
 
 // SkippedTotal is the number of rejected records over all reasons.
@@ -162,6 +165,7 @@ type StatsReader interface {
 type ReadOption interface{ applyRead(*readConfig) }
 
 type readConfig struct {
+	lexicon  *Lexicon
 	policy   BadLinePolicy
 	maxLine  int
 	tempDir  string
@@ -200,6 +204,14 @@ func WithMaxLineBytes(n int) ReadOption { return maxLineOption(n) }
 type readOptionFunc func(*readConfig)
 
 func (f readOptionFunc) applyRead(c *readConfig) { f(c) }
+
+// WithLexicon gives OpenCorpus an already loaded lexicon for a text
+// corpus, so a caller can load it once, check its memory (Stats) and read
+// the corpus several times. It takes precedence over OpenCorpus's lexicon
+// path.
+func WithLexicon(l *Lexicon) ReadOption {
+	return readOptionFunc(func(c *readConfig) { c.lexicon = l })
+}
 
 // withReadMemLimit sets the CSV grouping budget without the lower bound
 // (tests force spilling with it).
@@ -445,13 +457,14 @@ var ErrUnknownFormat = errors.New("graphidx: unknown corpus format")
 
 // ErrLexiconRequired is returned by OpenCorpus for text corpora without a
 // lexicon.
-var ErrLexiconRequired = errors.New("graphidx: text corpus needs a lexicon")
+var ErrLexiconRequired = errors.New("graphidx: a text corpus needs a lexicon: pass --lexicon FILE.tsv (lines: surface form<TAB>entity id[<TAB>value])")
 
 // OpenCorpus opens a corpus file and returns a reader for it and the closer
 // that releases the file and any temporary files of the reader. format is
 // one of FormatJSONL, FormatCSV, FormatText, or "" to detect it from the
-// extension (see DetectFormat). lexicon is the path of the lexicon TSV and
-// is required for text, ignored otherwise. Files ending in .gz are
+// extension (see DetectFormat). lexicon is the path of the lexicon TSV
+// (see ParseLexicon) and is required for text unless WithLexicon is given,
+// ignored otherwise. Files ending in .gz are
 // decompressed on the fly. The reader also implements StatsReader.
 func OpenCorpus(path, format, lexicon string, opts ...ReadOption) (ContextReader, io.Closer, error) {
 	if format == "" {
@@ -466,6 +479,9 @@ func OpenCorpus(path, format, lexicon string, opts ...ReadOption) (ContextReader
 	}
 	var lex *Lexicon
 	if format == FormatText {
+		lex = newReadConfig(opts).lexicon
+	}
+	if format == FormatText && lex == nil {
 		if lexicon == "" {
 			return nil, nil, fmt.Errorf("%w: %s", ErrLexiconRequired, path)
 		}

@@ -287,27 +287,6 @@ func TestTextReaderMatching(t *testing.T) {
 	}
 }
 
-func TestLexiconErrors(t *testing.T) {
-	t.Parallel()
-	for _, c := range []struct{ in, want string }{
-		{"a\tx\nb\n", "lex.tsv:2: too-few-columns"},
-		{"a\tx\ty\n", "lex.tsv:1: too-many-columns"},
-		{"\tx\n", "lex.tsv:1: surface: empty-name"},
-		{"a\t\n", "lex.tsv:1: entity: empty-name"},
-		{"Vent\tv1\nvent\tv2\n", "lex.tsv:2: surface: duplicate-surface"},
-		{"# only comments\n\n", "lex.tsv:2: empty-context"},
-	} {
-		_, err := ParseLexicon(strings.NewReader(c.in), "lex.tsv")
-		if err == nil || !strings.HasPrefix(err.Error(), c.want) {
-			t.Errorf("%q: got %v, want prefix %q", c.in, err, c.want)
-		}
-	}
-	// The same form twice for one entity is fine.
-	if _, err := ParseLexicon(strings.NewReader("Vent\tv1\nvent\tv1\n"), "lex.tsv"); err != nil {
-		t.Error(err)
-	}
-}
-
 func TestOpenCorpus(t *testing.T) {
 	t.Parallel()
 	dir := t.TempDir()

@@ -4,217 +4,36 @@ import (
 	"bytes"
 	"fmt"
 	"io"
-	"os"
 	"slices"
 	"strconv"
-	"unicode"
-	"unicode/utf8"
-
-	"github.com/coregx/ahocorasick"
 )
 
-// ReasonDuplicateSurface: a lexicon maps one surface form (after case
-// folding) to two different entities. Lexicon errors are always fatal.
-const ReasonDuplicateSurface = "duplicate-surface"
-
-// Lexicon maps surface forms to entity ids for the text reader. It is
-// immutable after parsing and safe for concurrent use.
-type Lexicon struct {
-	ac    *ahocorasick.Automaton
-	ents  []string // pattern id → entity
-	forms []string // pattern id → case-folded surface form
-	// edge[i] bit 0: the form starts with a word rune; bit 1: it ends with one.
-	edge []uint8
-	// display maps an entity to its first surface form as written.
-	display map[string]string
-}
-
-// Len is the number of distinct surface forms.
-func (l *Lexicon) Len() int { return len(l.forms) }
-
-// LoadLexicon reads a lexicon TSV file; see ParseLexicon.
-func LoadLexicon(path string) (*Lexicon, error) {
-	f, err := os.Open(path)
-	if err != nil {
-		return nil, err
-	}
-	defer f.Close()
-	return ParseLexicon(f, path)
-}
-
-// ParseLexicon reads a lexicon: one "surface form<TAB>entity id" per line.
-// Blank lines and lines starting with '#' are ignored. Both fields are
-// trimmed of surrounding spaces and must be non-empty valid UTF-8 of at most
-// MaxNameBytes. Surface forms are case-folded (unicode.ToLower per rune);
-// several forms may name one entity, but one folded form naming two entities
-// is an error (duplicate-surface). Every error is a *LineError naming the
-// lexicon file and line. Building the automaton costs O(Σ|form|).
-func ParseLexicon(r io.Reader, name string) (*Lexicon, error) {
-	lr := newLineReader(r, 1<<20)
-	lex := &Lexicon{display: map[string]string{}}
-	seen := map[string]int{} // folded form → pattern id
-	lines := []int{}
-	for {
-		line, err := lr.next()
-		if err == io.EOF {
-			break
-		}
-		if err != nil {
-			return nil, fmt.Errorf("%s: %w", name, err)
-		}
-		le := func(field, reason, detail string) error {
-			return &LineError{File: name, Line: lr.line, Field: field, Reason: reason, Detail: detail}
-		}
-		if lr.tooLong {
-			return nil, le("", ReasonLineTooLong, "")
-		}
-		t := bytes.TrimSpace(line)
-		if len(t) == 0 || t[0] == '#' {
-			continue
-		}
-		parts := bytes.Split(line, []byte{'\t'})
-		if len(parts) < 2 {
-			return nil, le("", ReasonTooFewColumns, "want surface form<TAB>entity id")
-		}
-		if len(parts) > 2 {
-			return nil, le("", ReasonTooManyColumns, "want surface form<TAB>entity id")
-		}
-		form, ent := bytes.TrimSpace(parts[0]), bytes.TrimSpace(parts[1])
-		if why := checkName(form); why != "" {
-			return nil, le("surface", why, "")
-		}
-		if why := checkName(ent); why != "" {
-			return nil, le("entity", why, "")
-		}
-		folded := string(foldCase(nil, form))
-		if id, ok := seen[folded]; ok {
-			if lex.ents[id] != string(ent) {
-				return nil, le("surface", ReasonDuplicateSurface, fmt.Sprintf("%s names %s here and %s at line %d",
-					strconv.Quote(string(form)), strconv.Quote(string(ent)), strconv.Quote(lex.ents[id]), lines[id]))
-			}
-			continue
-		}
-		if _, ok := lex.display[string(ent)]; !ok {
-			lex.display[string(ent)] = string(form)
-		}
-		seen[folded] = len(lex.forms)
-		lines = append(lines, lr.line)
-		lex.forms = append(lex.forms, folded)
-		lex.ents = append(lex.ents, string(ent))
-		var e uint8
-		if r, _ := utf8.DecodeRuneInString(folded); isWordRune(r) {
-			e |= 1
-		}
-		if r, _ := utf8.DecodeLastRuneInString(folded); isWordRune(r) {
-			e |= 2
-		}
-		lex.edge = append(lex.edge, e)
-	}
-	if len(lex.forms) == 0 {
-		return nil, &LineError{File: name, Line: lr.line, Reason: ReasonEmptyContext, Detail: "lexicon has no entries"}
-	}
-	ac, err := ahocorasick.NewBuilder().AddStrings(lex.forms).SetMatchKind(ahocorasick.LeftmostLongest).Build()
-	if err != nil {
-		return nil, fmt.Errorf("%s: building the matcher: %w", name, err)
-	}
-	lex.ac = ac
-	return lex, nil
-}
-
-func isWordRune(r rune) bool {
-	return r == '_' || unicode.IsLetter(r) || unicode.IsDigit(r)
-}
-
-// foldCase appends the lower-case form of s to dst: ASCII bytes directly,
-// other runes through unicode.ToLower. Invalid UTF-8 bytes are kept as is.
-func foldCase(dst, s []byte) []byte {
-	for i := 0; i < len(s); {
-		c := s[i]
-		if c < utf8.RuneSelf {
-			if 'A' <= c && c <= 'Z' {
-				c += 'a' - 'A'
-			}
-			dst = append(dst, c)
-			i++
-			continue
-		}
-		r, n := utf8.DecodeRune(s[i:])
-		if r == utf8.RuneError && n == 1 {
-			dst = append(dst, c)
-		} else {
-			dst = utf8.AppendRune(dst, unicode.ToLower(r))
-		}
-		i += n
-	}
-	return dst
-}
-
-// textMatch is one accepted lexicon match.
-type textMatch struct{ start, end, id int }
-
-// Match returns the entity ids mentioned in text, deduplicated and sorted.
-// Matching is case-insensitive (both sides case-folded) and respects word
-// boundaries: a form whose first rune is a letter, digit or '_' must not be
-// preceded by one, and likewise at its end. Among the boundary-respecting
-// matches the leftmost-longest non-overlapping ones are kept, so with forms
-// "zone 2" and "zone 2 vent" the text "zone 2 vent" names only the second.
-// Cost O(|text| + matches·log matches).
-func (l *Lexicon) Match(text []byte) []string {
-	var m matcher
-	return slices.Clone(m.match(l, text))
-}
-
-type matcher struct {
-	folded []byte
-	found  []textMatch
-	kept   []textMatch // the accepted matches in text order
-	ents   []string
-}
-
-func (m *matcher) match(l *Lexicon, text []byte) []string {
-	m.folded = foldCase(m.folded[:0], text)
-	m.found = m.found[:0]
-	m.ents = m.ents[:0]
-	m.kept = m.kept[:0]
-	t := m.folded
-	for _, mt := range l.ac.FindAllOverlapping(t) {
-		e := l.edge[mt.PatternID]
-		if e&1 != 0 && mt.Start > 0 {
-			if r, _ := utf8.DecodeLastRune(t[:mt.Start]); isWordRune(r) {
-				continue
-			}
-		}
-		if e&2 != 0 && mt.End < len(t) {
-			if r, _ := utf8.DecodeRune(t[mt.End:]); isWordRune(r) {
-				continue
-			}
-		}
-		m.found = append(m.found, textMatch{mt.Start, mt.End, mt.PatternID})
-	}
-	slices.SortFunc(m.found, func(a, b textMatch) int {
-		if a.start != b.start {
-			return a.start - b.start
-		}
-		return b.end - a.end
-	})
-	end := 0
-	for _, f := range m.found {
-		if f.start < end {
-			continue
-		}
-		end = f.end
-		m.kept = append(m.kept, f)
-		m.ents = append(m.ents, l.ents[f.id])
-	}
-	slices.Sort(m.ents)
-	return slices.Compact(m.ents)
-}
+// ReasonConflictingValues: a text paragraph states two different values of
+// one entity (through two lexicon forms with values). The paragraph is a bad
+// record: skipped and counted in lenient mode, an error in strict mode.
+const ReasonConflictingValues = "conflicting-values"
 
 // TextReader reads plain text, one context per paragraph (paragraphs are
-// separated by blank lines), and observes every lexicon entity mentioned in
-// the paragraph with PresentValue (see Lexicon.Match for the matching
-// rules). A paragraph's context id is "<name>#p<N>", N counting paragraphs
-// from 1. Paragraphs without a match are counted in ReadStats.Empty and
+// separated by blank lines), and observes the lexicon entities mentioned in
+// the paragraph (see Lexicon.Link for the matching rules). A paragraph's
+// context id is "<name>#p<N>", N counting paragraphs from 1.
+//
+// Values. An entity none of whose lexicon forms carries a value is observed
+// with PresentValue. An entity with at least one valued form (a valued
+// entity) is observed with the value its mentions state, and never with
+// PresentValue:
+//   - mentions stating one value (once or more) give entity=value, also
+//     when the paragraph names the entity by value-less forms as well;
+//   - mentions that state no value only (a valued entity named by a
+//     value-less form) leave the entity out of that context, counted in
+//     ReadStats.Unvalued: its value is unknown there, and a made-up
+//     "present" would become a value beside the real ones;
+//   - mentions stating two or more different values make the paragraph a
+//     bad record with reason conflicting-values (skipped and counted in
+//     lenient mode, the error in strict mode), naming the line of the
+//     mention that states the second value.
+//
+// Paragraphs left without an observation are counted in ReadStats.Empty and
 // skipped; they are not errors. A paragraph longer than the line limit is a
 // line-too-long error at its first line. A TextReader is not safe for
 // concurrent use.
@@ -225,9 +44,17 @@ type TextReader struct {
 	bl    badLines
 	para  []byte
 	n     int
-	m     matcher
+	m     linker
+	agg   []mentionRef
 	obs   []Observation
 	atEOF bool
+}
+
+// mentionRef is one mention of a paragraph: entity and value indexes of the
+// lexicon (val 0: no value) and the byte offset in the paragraph.
+type mentionRef struct {
+	ent, val uint32
+	at       int
 }
 
 // NewTextReader returns a reader of paragraphs from r matched against lex.
@@ -298,18 +125,98 @@ func (r *TextReader) Next() (Context, error) {
 			}
 			continue
 		}
-		ents := r.m.match(r.lex, r.para)
-		if len(ents) == 0 {
+		obs, le := r.observe(first)
+		if le != nil {
+			if e := r.bl.bad(le); e != nil {
+				return Context{}, e
+			}
+			continue
+		}
+		if len(obs) == 0 {
 			r.bl.stats.Empty++
 			continue
 		}
-		r.obs = r.obs[:0]
-		for _, e := range ents {
-			r.obs = append(r.obs, Observation{Entity: e, Value: PresentValue})
-		}
 		r.bl.stats.OK++
 		r.bl.stats.Contexts++
-		return Context{ID: r.name + "#p" + strconv.Itoa(r.n), Obs: r.obs}, nil
+		return Context{ID: r.name + "#p" + strconv.Itoa(r.n), Obs: obs}, nil
 	}
 	return Context{}, io.EOF
+}
+
+// observe links the current paragraph (whose first line is first) and turns
+// its mentions into observations by the value rules of TextReader. It
+// returns a conflicting-values error for a paragraph stating two values of
+// one entity. O(mentions·log mentions) beyond the linking.
+func (r *TextReader) observe(first int) ([]Observation, *LineError) {
+	lex := r.lex
+	r.m.run(lex, r.para, false)
+	r.agg = r.agg[:0]
+	for _, f := range r.m.found {
+		r.agg = append(r.agg, mentionRef{lex.pent[f.pat], lex.pval[f.pat], f.start})
+	}
+	slices.SortFunc(r.agg, func(a, b mentionRef) int {
+		if a.ent != b.ent {
+			return int(a.ent) - int(b.ent)
+		}
+		if a.val != b.val {
+			return int(a.val) - int(b.val)
+		}
+		return a.at - b.at
+	})
+	r.obs = r.obs[:0]
+	unvalued := int64(0)
+	for i := 0; i < len(r.agg); {
+		g := r.agg[i]
+		j := i + 1
+		for j < len(r.agg) && r.agg[j].ent == g.ent {
+			j++
+		}
+		grp := r.agg[i:j]
+		i = j
+		ent := lex.ents.str(g.ent)
+		if !lex.valued[g.ent] {
+			r.obs = append(r.obs, Observation{Entity: ent, Value: PresentValue})
+			continue
+		}
+		// Sorted by value: value-less mentions (0) first, then by value.
+		k := 0
+		for k < len(grp) && grp[k].val == 0 {
+			k++
+		}
+		switch {
+		case k == len(grp):
+			unvalued++
+		case grp[k].val == grp[len(grp)-1].val:
+			r.obs = append(r.obs, Observation{Entity: ent, Value: lex.values.str(grp[k].val - 1)})
+		default:
+			a := grp[k]
+			b := grp[k+1]
+			for b.val == a.val {
+				k++
+				b = grp[k+1]
+			}
+			return nil, r.conflict(first, ent, a, b)
+		}
+	}
+	r.bl.stats.Unvalued += unvalued
+	return r.obs, nil
+}
+
+// conflict describes a paragraph stating two values of ent, at the line of
+// the later of the two mentions.
+func (r *TextReader) conflict(first int, ent string, a, b mentionRef) *LineError {
+	if b.at < a.at {
+		a, b = b, a
+	}
+	quote := func(m mentionRef) string {
+		end := m.at
+		for _, f := range r.m.found {
+			if f.start == m.at {
+				end = f.end
+			}
+		}
+		return strconv.Quote(r.lex.values.str(m.val-1)) + " (" + strconv.Quote(string(r.para[m.at:end])) + ")"
+	}
+	return &LineError{File: r.name, Line: first + bytes.Count(r.para[:b.at], []byte{'\n'}), Reason: ReasonConflictingValues,
+		Detail: fmt.Sprintf("paragraph %d states %s = %s and %s", r.n, strconv.Quote(ent), quote(a), quote(b))}
 }

@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"unicode/utf8"
+	"unsafe"
 )
 
 // MaxLinkBytes is the longest text Link accepts. A prompt longer than this is
@@ -35,34 +36,51 @@ type Mention struct {
 // Link returns the mentions of lexicon entities in text, in text order, by
 // the same rules as Match: case-insensitive, on word boundaries, leftmost
 // longest, never overlapping. Unlike Match it keeps every mention (an entity
-// named twice gives two mentions) with its byte span. It is safe for
+// named twice gives two mentions) with its byte span and, for a form listed
+// with a value, that value. A text longer than MaxLinkBytes is
+// ErrTextTooLong and one that is not valid UTF-8 is ErrInvalidText naming
+// the first bad byte offset; neither gives a partial result. It is safe for
 // concurrent use.
+//
+// Cost O(T·L) table probes for a text of T tokens and L =
+// Stats().MaxFormTokens, with bounded scratch memory; see AppendLinks to
+// reuse the result slice.
 func (l *Lexicon) Link(text string) ([]Mention, error) {
-	if len(text) > MaxLinkBytes {
-		return nil, fmt.Errorf("%w: %d bytes, limit %d", ErrTextTooLong, len(text), MaxLinkBytes)
-	}
-	if !utf8.ValidString(text) {
-		for i, r := range text {
-			if r == utf8.RuneError {
-				if _, n := utf8.DecodeRuneInString(text[i:]); n == 1 {
-					return nil, fmt.Errorf("%w: bad byte at offset %d", ErrInvalidText, i)
-				}
-			}
-		}
-		return nil, ErrInvalidText
-	}
-	var m matcher
-	m.match(l, []byte(text))
-	out := make([]Mention, 0, len(m.kept))
-	for _, f := range m.kept {
-		out = append(out, Mention{Entity: l.ents[f.id], Start: f.start, End: f.end, Surface: text[f.start:f.end]})
-	}
-	return out, nil
+	return l.AppendLinks(nil, text)
 }
 
-// DisplayName is the first surface form listed for entity in the lexicon
-// file, as written there (not case-folded), or "" when the lexicon does not
-// name the entity.
-func (l *Lexicon) DisplayName(entity string) string {
-	return l.display[entity]
+// AppendLinks is Link appending the mentions to dst. The mentions' strings
+// point into the lexicon and into text; with a dst of enough capacity it
+// does not allocate.
+func (l *Lexicon) AppendLinks(dst []Mention, text string) ([]Mention, error) {
+	if l == nil {
+		return dst, fmt.Errorf("%w: Link on a nil *Lexicon", ErrLexiconRequired)
+	}
+	if len(text) > MaxLinkBytes {
+		return dst, fmt.Errorf("%w: %d bytes, limit %d", ErrTextTooLong, len(text), MaxLinkBytes)
+	}
+	if !utf8.ValidString(text) {
+		for i := 0; i < len(text); {
+			r, n := utf8.DecodeRuneInString(text[i:])
+			if r == utf8.RuneError && n == 1 {
+				return dst, fmt.Errorf("%w: bad byte 0x%02x at offset %d", ErrInvalidText, text[i], i)
+			}
+			i += n
+		}
+	}
+	if len(text) == 0 {
+		return dst, nil
+	}
+	m := linkerPool.Get().(*linker)
+	defer m.release()
+	// The linker only reads the bytes; text is never written through them.
+	m.run(l, unsafe.Slice(unsafe.StringData(text), len(text)), false)
+	for _, f := range m.found {
+		mt := Mention{Entity: l.ents.str(l.pent[f.pat]), Start: f.start, End: f.end, Surface: text[f.start:f.end]}
+		if v := l.pval[f.pat]; v != 0 {
+			mt.Value, mt.HasValue = l.values.str(v-1), true
+		}
+		dst = append(dst, mt)
+	}
+	return dst, nil
 }

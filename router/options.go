@@ -148,6 +148,10 @@ type settings struct {
 	cacheSizeSet bool
 	// touched in the current build: alpha/beta given alongside WithModel.
 	touchAlpha, touchBeta bool
+
+	// support scores presence-only indexes when no model was set
+	// (modelFor).
+	support scorer.Model
 }
 
 // DefaultHashKey is the SipHash key used for arm assignment and exploration
@@ -445,6 +449,19 @@ func buildSettings(base settings, opts []Option) (settings, error) {
 			return settings{}, fmt.Errorf("%w: default model: %v", ErrBadOption, err)
 		}
 		s.model = m
+		if s.support, err = scorer.NewSupport(scorer.WithAlpha(s.alpha)); err != nil {
+			return settings{}, fmt.Errorf("%w: default presence-only model: %v", ErrBadOption, err)
+		}
 	}
 	return s, nil
+}
+
+// modelFor is the model that scores decisions on h: the configured one, or
+// without WithModel the Support model (scorer defaults) when h's index is
+// presence-only (scorer.PresenceOnly) and the Bayes model otherwise. O(1).
+func (s *settings) modelFor(h *handle) scorer.Model {
+	if h.presence && !s.modelSet && s.support != nil {
+		return s.support
+	}
+	return s.model
 }

@@ -41,6 +41,9 @@ type handle struct {
 	refs atomic.Int64
 	once sync.Once
 	r    *Router
+
+	// presence: g is presence-only (scorer.PresenceOnly); see modelFor.
+	presence bool
 }
 
 // tryAcquire takes a reference unless the handle is already dead.
@@ -110,6 +113,7 @@ func (r *Router) newHandle(g Graph) *handle {
 	h := &handle{g: g, seq: r.seq.Add(1), gen: g.Generation(), r: r}
 	h.pb, _ = g.(PairBatcher)
 	h.na, _ = g.(NameAppender)
+	h.presence = scorer.PresenceOnly(g)
 	if p, ok := g.(interface{ RankPrefix() int }); ok {
 		h.rp = p.RankPrefix()
 	}
@@ -296,12 +300,13 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 
 	sc := r.pool.Get().(*scratch)
 	defer func() { sc.reset(); r.pool.Put(sc) }()
-	sc.g, sc.model, sc.st, sc.s, sc.t, sc.pb, sc.rankPrefix = g, st.model, st, s, t, h.pb, h.rp
-	sc.hb = st.model.HopBias()
+	model := st.modelFor(h)
+	sc.g, sc.model, sc.st, sc.s, sc.t, sc.pb, sc.rankPrefix = g, model, st, s, t, h.pb, h.rp
+	sc.hb = model.HopBias()
 	sc.bud = budget{left: st.budget, nextCheck: deadlinePoll, done: ctx.Done()}
 	sc.u = u
 
-	dir, err := st.model.Direct(sc.ws, sc, s, u, t)
+	dir, err := model.Direct(sc.ws, sc, s, u, t)
 	if err != nil {
 		return core{}, false, nil, fmt.Errorf("router: direct estimate %q=%q → %q: %w", q.From, q.Value, q.To, err)
 	}
@@ -362,7 +367,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 		}
 		scored++
 		sc.path = append(sc.path[:0], cd.b[:cd.m]...)
-		est, err := st.model.Chain(sc.ws, sc, s, u, sc.path, t)
+		est, err := model.Chain(sc.ws, sc, s, u, sc.path, t)
 		if err != nil {
 			return core{}, false, nil, fmt.Errorf("router: chain estimate %q → %q: %w", q.From, q.To, err)
 		}

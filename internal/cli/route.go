@@ -10,7 +10,6 @@ import (
 	"io"
 	"os"
 	"runtime"
-	"strconv"
 	"strings"
 	"sync"
 	"time"
@@ -28,6 +27,7 @@ type routeOptions struct {
 	from, value, to  string
 	key              string
 	queries          string
+	text, lexicon    string
 	json             bool
 	workers          int
 	timeout          time.Duration
@@ -46,29 +46,47 @@ type routeOptions struct {
 func newRouteCmd() *cobra.Command {
 	var o routeOptions
 	cmd := &cobra.Command{
-		Use:   "route --index PATH (--from E --value V --to T | --queries FILE.jsonl) [flags]",
-		Short: "Decide direct or chained answers for one query or a JSONL batch",
+		Use:   "route --index PATH (--from E [--value V] --to T | --text PROMPT --lexicon FILE | --queries FILE.jsonl) [flags]",
+		Short: "Decide direct or chained answers for one query, a prompt text or a JSONL batch",
 		Long: `route opens a locality index and decides, per query, whether the target
 entity should be answered directly from the observed entity's statistics or
 through a chain of bridge entities, by the estimated error reduction (gain).
 
 Single query: --from E --value V --to T prints a readable explanation, or with
---json the same JSON object batch mode prints.
+--json the same JSON object batch mode prints. On a presence-only index
+(every entity's only value is "present") --value may be left out.
+
+Prompt text: --text PROMPT --lexicon FILE links the text against the lexicon
+(lines "surface form<TAB>entity id", or with a third column the value the
+form states), forms queries (evidence = mentions with a value, targets =
+mentions without; least-supported pair first; see docs/PLANS.md), decides
+each, and prints the mentions, the decisions and the rendered reasoning plan.
 
 Batch: --queries FILE.jsonl (or - for stdin) reads one query per line,
   {"id":"q1","from":"E","value":"V","to":"T"}        ("key" optional: A/B unit)
-and writes one JSON line per input line, in input order:
+  {"id":"q2","text":"a prompt"}                      (needs --lexicon)
+and writes one JSON line per input line, in input order. A query line gives
+the decision view (router.View):
   {"id":"q1","from":"E","value":"V","to":"T","mode":"direct"|"chain",
-   "estimate":{"<value>":p,...},"err":x,"gain":g,"reason":"<code>",
-   "truncated":false,"direct":{"estimate":{...},"err":x,"support":n},
-   "chain":{"bridges":["B1",...],"estimate":{...},"err":y,"min_support":n}|null,
+   "reason":"<code>","explanation":"...","bridges":[...],
+   "estimate":{"<value>":p,...},"error_measure":"sq-error-sum",
+   "sq_error_sum":x,"gain":g,"score":s,"truncated":false,
+   "direct":{"estimate":{...},"sq_error_sum":x,"support":n},
+   "chain":{"bridges":[...],"estimate":{...},"sq_error_sum":y,
+            "weakest_link_support":n}|null,
    "generation":"<hex>"}
 with "cut":["beam"|"candidates"|"budget"|"deadline",...] added when truncated.
-Estimates cover every value of the target, in the index's value order
-(decisions from a configured --fallback for unknown endpoints carry an empty
-estimate and their reason code says so). A bad
-line gives {"id":...,"error":"line N: ..."} and the batch goes on. Decisions
-run on --workers goroutines; output order is always input order.
+sq_error_sum is the expected squared error summed over the target's values.
+On a presence-only index there is no distribution: "estimate" is absent and
+the figures are "error_proxy" (error_measure "support-proxy"), the support
+model's v0/(support+n0) summed over links plus β per bridge, which ranks
+answers by co-occurrence evidence and is not an error of any probability.
+Estimates cover every value of the target, in the index's value order; a
+decision from a configured --fallback has neither estimate nor error figure.
+A text line gives {"id","text","presence_only","mentions":[...],
+"decisions":[{<view>,"plan":{...},"prompt":"..."}],"dropped":n}. A bad line
+gives {"id":...,"error":"line N: ..."} and the batch goes on. Decisions run on
+--workers goroutines; output order is always input order.
 
 Settings come from --config FILE.json (the router.Config format, also
 written by "hopwise tune") and are overridden by the flags given explicitly.
@@ -76,7 +94,8 @@ Exit status: 0 when every query was answered, 2 when some failed, 1 on a
 fatal error (index, config, flags, I/O).`,
 		Example: `  hopwise route --index greenhouse.hwx --from vent-north --value open --to bed-tomato
   hopwise route --index greenhouse.hwx --from vent-north --value open --to bed-tomato --json
-  hopwise route --index greenhouse.hwx --queries queries.jsonl --config route.json > decisions.jsonl`,
+  hopwise route --index greenhouse.hwx --queries queries.jsonl --config route.json > decisions.jsonl
+  hopwise route --index greenhouse.hwx --lexicon lexicon.tsv --text "The north vent is open; how is the tomato bed?"`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			return runRoute(cmd, o)
@@ -87,10 +106,12 @@ fatal error (index, config, flags, I/O).`,
 	f.StringVar(&o.index, "index", "", "path of the locality index file (required)")
 	f.StringVar(&o.config, "config", "", "router configuration JSON file")
 	f.StringVar(&o.from, "from", "", "observed entity (single query)")
-	f.StringVar(&o.value, "value", "", "observed value of --from (single query)")
+	f.StringVar(&o.value, "value", "", "observed value of --from (single query; not needed on a presence-only index)")
 	f.StringVar(&o.to, "to", "", "target entity (single query)")
 	f.StringVar(&o.key, "key", "", "unit key for A/B assignment and exploration (single query)")
 	f.StringVar(&o.queries, "queries", "", "JSONL file of queries, - for stdin (batch)")
+	f.StringVar(&o.text, "text", "", "prompt text to link, form queries from and decide (needs --lexicon)")
+	f.StringVar(&o.lexicon, "lexicon", "", "lexicon TSV for --text and for text lines of --queries")
 	f.BoolVar(&o.json, "json", false, "single query: print the batch JSON object")
 	f.IntVar(&o.workers, "workers", runtime.GOMAXPROCS(0), "batch: goroutines deciding in parallel")
 	f.DurationVar(&o.timeout, "timeout", 0, "deadline per decision (0: none); a cut search is reported as truncated")
@@ -144,11 +165,15 @@ func routeConfig(cmd *cobra.Command, o routeOptions) (router.Config, error) {
 
 func runRoute(cmd *cobra.Command, o routeOptions) error {
 	single := o.from != "" || o.value != "" || o.to != ""
-	if single == (o.queries != "") {
-		return errors.New("route: give either --from/--value/--to or --queries")
+	text := cmd.Flags().Changed("text")
+	if n := btoi(single) + btoi(text) + btoi(o.queries != ""); n != 1 {
+		return errors.New("route: give exactly one of --from/--value/--to, --text or --queries")
 	}
-	if single && (o.from == "" || o.value == "" || o.to == "") {
-		return errors.New("route: a single query needs --from, --value and --to")
+	if single && (o.from == "" || o.to == "") {
+		return errors.New("route: a single query needs --from and --to (and --value unless the index is presence-only)")
+	}
+	if text && o.lexicon == "" {
+		return errors.New("route: --text needs --lexicon")
 	}
 	if o.workers < 1 {
 		return fmt.Errorf("route: --workers must be ≥ 1, got %d", o.workers)
@@ -163,6 +188,12 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 	opts, err := cfg.Options()
 	if err != nil {
 		return err
+	}
+	var tp *textPlanner
+	if o.lexicon != "" {
+		if tp, err = newTextPlanner(o.lexicon, cfg); err != nil {
+			return err
+		}
 	}
 	ix, err := graphidx.Open(o.index)
 	if err != nil {
@@ -181,9 +212,12 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 	out := bufio.NewWriter(cmd.OutOrStdout())
 	defer out.Flush()
 
+	if text {
+		return tp.runSingle(ctx, r, out, o)
+	}
 	if single {
 		q := routeQuery{ID: "", From: o.from, Value: o.value, To: o.to, Key: o.key}
-		d, err := decideOne(ctx, r, q, o.timeout)
+		d, err := decideOne(ctx, r, &q, o.timeout)
 		if err != nil {
 			if o.json {
 				line, _ := json.Marshal(routeError{ID: nil, Error: err.Error()})
@@ -192,14 +226,14 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 			return &ExitError{Code: 2, Err: err}
 		}
 		if o.json {
-			line, err := json.Marshal(newRouteLine(q, d))
+			line, err := json.Marshal(newRouteLine(q, d, r.ErrorMeasure()))
 			if err != nil {
 				return err
 			}
 			_, err = out.Write(append(line, '\n'))
 			return err
 		}
-		return explain(out, q, d, cfg)
+		return explain(out, q, d, cfg, r.ErrorMeasure())
 	}
 
 	var in io.Reader
@@ -213,7 +247,7 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 		defer f.Close()
 		in = f
 	}
-	failed, total, err := routeBatch(ctx, r, in, o.queries, out, o)
+	failed, total, err := routeBatch(ctx, r, tp, in, o.queries, out, o)
 	if err != nil {
 		return err
 	}
@@ -226,13 +260,26 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 	return nil
 }
 
-func decideOne(ctx context.Context, r *router.Router, q routeQuery, timeout time.Duration) (router.Decision, error) {
+// decideOne decides q. An empty value means "present" on a presence-only
+// index (q.Value is set to it) and is an error listing the entity's values
+// on a valued one; so is an unknown value.
+func decideOne(ctx context.Context, r *router.Router, q *routeQuery, timeout time.Duration) (router.Decision, error) {
+	if q.Value == "" {
+		if !r.PresenceOnly() {
+			return router.Decision{}, fmt.Errorf("no value given for %q; it has %s", q.From, knownValues(r, q.From))
+		}
+		q.Value = graphidx.PresentValue
+	}
 	if timeout > 0 {
 		var cancel context.CancelFunc
 		ctx, cancel = context.WithTimeout(ctx, timeout)
 		defer cancel()
 	}
-	return r.Decide(ctx, router.Query{From: q.From, Value: q.Value, To: q.To, Key: q.Key})
+	d, err := r.Decide(ctx, router.Query{From: q.From, Value: q.Value, To: q.To, Key: q.Key})
+	if errors.Is(err, router.ErrUnknownValue) {
+		err = fmt.Errorf("%w; it has %s", err, knownValues(r, q.From))
+	}
+	return d, err
 }
 
 // routeQuery is one batch input line.
@@ -242,67 +289,14 @@ type routeQuery struct {
 	Value string `json:"value"`
 	To    string `json:"to"`
 	Key   string `json:"key,omitempty"`
+	Text  string `json:"text,omitempty"`
 }
 
-// dist is an estimate printed as a JSON object in the target's value order.
-type dist struct {
-	labels []string
-	p      []float64
-}
-
-func (d dist) MarshalJSON() ([]byte, error) {
-	var b bytes.Buffer
-	b.WriteByte('{')
-	for i, l := range d.labels {
-		if i >= len(d.p) {
-			break
-		}
-		if i > 0 {
-			b.WriteByte(',')
-		}
-		k, err := json.Marshal(l)
-		if err != nil {
-			return nil, err
-		}
-		b.Write(k)
-		b.WriteByte(':')
-		b.WriteString(strconv.FormatFloat(d.p[i], 'g', -1, 64))
-	}
-	b.WriteByte('}')
-	return b.Bytes(), nil
-}
-
-type routeDirect struct {
-	Estimate dist    `json:"estimate"`
-	Err      float64 `json:"err"`
-	Support  uint64  `json:"support"`
-}
-
-type routeChain struct {
-	Bridges    []string `json:"bridges"`
-	Estimate   dist     `json:"estimate"`
-	Err        float64  `json:"err"`
-	MinSupport uint64   `json:"min_support"`
-}
-
-// routeLine is the JSON contract of one decision (issue 4 item 5).
+// routeLine is the JSON of one decided query line: the batch line's id
+// and the decision's public view (router.View).
 type routeLine struct {
-	ID         string      `json:"id"`
-	From       string      `json:"from"`
-	Value      string      `json:"value"`
-	To         string      `json:"to"`
-	Mode       string      `json:"mode"`
-	Estimate   dist        `json:"estimate"`
-	Err        float64     `json:"err"`
-	Gain       float64     `json:"gain"`
-	Reason     string      `json:"reason"`
-	Truncated  bool        `json:"truncated"`
-	Cut        []string    `json:"cut,omitempty"`
-	Direct     routeDirect `json:"direct"`
-	Chain      *routeChain `json:"chain"`
-	Generation string      `json:"generation"`
-	Arm        string      `json:"arm,omitempty"`
-	Propensity *float64    `json:"propensity,omitempty"`
+	ID string `json:"id"`
+	router.View
 }
 
 type routeError struct {
@@ -310,33 +304,8 @@ type routeError struct {
 	Error string  `json:"error"`
 }
 
-func newRouteLine(q routeQuery, d router.Decision) routeLine {
-	l := routeLine{
-		ID: q.ID, From: q.From, Value: q.Value, To: q.To,
-		Mode:       d.Mode.String(),
-		Estimate:   dist{d.Values, d.Estimate},
-		Err:        d.Err,
-		Gain:       d.Gain,
-		Reason:     d.Reason.Code,
-		Truncated:  d.Truncated,
-		Cut:        d.Cut.Names(),
-		Direct:     routeDirect{Estimate: dist{d.Values, d.Direct.Estimate}, Err: d.Direct.Err, Support: d.Direct.Support},
-		Generation: fmt.Sprintf("%016x", d.Generation),
-		Arm:        d.Arm,
-	}
-	if d.Arm != "" || d.Propensity != 1 {
-		p := d.Propensity
-		l.Propensity = &p
-	}
-	if d.Chain != nil {
-		l.Chain = &routeChain{
-			Bridges:    d.Chain.Bridges,
-			Estimate:   dist{d.Values, d.Chain.Estimate},
-			Err:        d.Chain.Err,
-			MinSupport: d.Chain.MinSupport,
-		}
-	}
-	return l
+func newRouteLine(q routeQuery, d router.Decision, m router.ErrorMeasure) routeLine {
+	return routeLine{ID: q.ID, View: router.NewView(router.Query{From: q.From, Value: q.Value, To: q.To, Key: q.Key}, d, m)}
 }
 
 // batchItem is one input line on its way through the workers.
@@ -366,11 +335,23 @@ func parseQueryLine(b []byte, line int) (routeQuery, bool, error) {
 		}
 		return q, false, fmt.Errorf("line %d: %v", line, err)
 	}
+	if _, ok := raw["text"]; ok {
+		for _, f := range []string{"from", "value", "to"} {
+			if _, ok := raw[f]; ok {
+				return q, idSet, fmt.Errorf("line %d: field %q: a line has either \"text\" or \"from\"/\"value\"/\"to\"", line, f)
+			}
+		}
+		if q.Text == "" {
+			return q, idSet, fmt.Errorf("line %d: field \"text\" is empty", line)
+		}
+		return q, idSet, nil
+	}
+	// "value" may be left out on a presence-only index (decideOne).
 	for _, f := range []struct{ name, v string }{{"id", q.ID}, {"from", q.From}, {"value", q.Value}, {"to", q.To}} {
-		if _, ok := raw[f.name]; !ok {
+		if _, ok := raw[f.name]; !ok && f.name != "value" {
 			return q, idSet, fmt.Errorf("line %d: missing field %q", line, f.name)
 		}
-		if f.v == "" && f.name != "id" {
+		if _, ok := raw[f.name]; ok && f.v == "" && f.name != "id" {
 			return q, idSet, fmt.Errorf("line %d: field %q is empty", line, f.name)
 		}
 	}
@@ -381,7 +362,7 @@ func parseQueryLine(b []byte, line int) (routeQuery, bool, error) {
 // order. It processes chunks of lines with o.workers goroutines so memory
 // stays bounded. It returns the number of failed and total lines; err is
 // only for fatal I/O errors.
-func routeBatch(ctx context.Context, r *router.Router, in io.Reader, name string, out io.Writer, o routeOptions) (failed, total int, err error) {
+func routeBatch(ctx context.Context, r *router.Router, tp *textPlanner, in io.Reader, name string, out io.Writer, o routeOptions) (failed, total int, err error) {
 	br := bufio.NewReaderSize(in, 64<<10)
 	const chunk = 1024
 	items := make([]batchItem, 0, chunk)
@@ -414,7 +395,7 @@ func routeBatch(ctx context.Context, r *router.Router, in io.Reader, name string
 				break
 			}
 		}
-		decideChunk(ctx, r, items, o)
+		decideChunk(ctx, r, tp, items, o)
 		for i := range items {
 			it := &items[i]
 			total++
@@ -461,13 +442,19 @@ func readLine(br *bufio.Reader, max int) (line []byte, tooLong bool, err error) 
 
 // decideChunk decides the items on o.workers goroutines and renders each
 // item's output line.
-func decideChunk(ctx context.Context, r *router.Router, items []batchItem, o routeOptions) {
+func decideChunk(ctx context.Context, r *router.Router, tp *textPlanner, items []batchItem, o routeOptions) {
 	work := func(it *batchItem) {
+		if it.err == nil && it.q.Text != "" {
+			if it.out, it.err = tp.batchLine(ctx, r, it.q, it.line, o); it.out != nil {
+				return
+			}
+			it.err = fmt.Errorf("line %d: %w", it.line, it.err)
+		}
 		if it.err == nil {
-			d, err := decideOne(ctx, r, it.q, o.timeout)
+			d, err := decideOne(ctx, r, &it.q, o.timeout)
 			if err != nil {
 				it.err = fmt.Errorf("line %d: %w", it.line, err)
-			} else if b, err := json.Marshal(newRouteLine(it.q, d)); err != nil {
+			} else if b, err := json.Marshal(newRouteLine(it.q, d, r.ErrorMeasure())); err != nil {
 				it.err = fmt.Errorf("line %d: %w", it.line, err)
 			} else {
 				it.out = append(b, '\n')
@@ -506,7 +493,7 @@ func decideChunk(ctx context.Context, r *router.Router, items []batchItem, o rou
 }
 
 // explain prints a readable account of one decision.
-func explain(w io.Writer, q routeQuery, d router.Decision, cfg router.Config) error {
+func explain(w io.Writer, q routeQuery, d router.Decision, cfg router.Config, m router.ErrorMeasure) error {
 	var b strings.Builder
 	fmtDist := func(p []float64) string {
 		if len(p) == 0 {
@@ -527,17 +514,44 @@ func explain(w io.Writer, q routeQuery, d router.Decision, cfg router.Config) er
 	}
 	fmt.Fprintf(&b, "decision   %s\n", mode)
 	fmt.Fprintf(&b, "reason     %s: %s\n", d.Reason.Code, d.Reason.Text)
+	// A target with one label (presence-only) has no distribution to show;
+	// its figures are the support proxy, not a probability error.
+	proxy := m == router.MeasureSupportProxy
+	if len(d.Values) < 2 {
+		fmtDist = func([]float64) string { return "" }
+	}
+	errName := "error"
+	if proxy {
+		errName = "error proxy"
+	}
 	if len(d.Estimate) > 0 {
-		fmt.Fprintf(&b, "estimate   P(%s) = %s   (expected error %.4g)\n", q.To, fmtDist(d.Estimate), d.Err)
+		if len(d.Values) < 2 {
+			fmt.Fprintf(&b, "estimate   no distribution: %s records presence only\n", q.To)
+		} else {
+			fmt.Fprintf(&b, "estimate   P(%s) = %s   (expected error %.4g)\n", q.To, fmtDist(d.Estimate), d.Err)
+		}
+		if proxy {
+			fmt.Fprintf(&b, "figures    error proxy %.4g = Σ over links v0/(support + n0) + β per bridge: lower means\n"+
+				"           more co-occurrence evidence; it is not an error of any probability\n", d.Err)
+		} else {
+			fmt.Fprintf(&b, "figures    expected squared error summed over %s's %d values\n", q.To, len(d.Values))
+		}
+	}
+	// withDist prefixes a distribution, when there is one, to the figures.
+	withDist := func(p []float64, rest string) string {
+		if s := fmtDist(p); s != "" {
+			return s + "   " + rest
+		}
+		return rest
 	}
 	if d.Direct.Estimate != nil {
-		fmt.Fprintf(&b, "direct     %s   error %.4g, support %d contexts\n", fmtDist(d.Direct.Estimate), d.Direct.Err, d.Direct.Support)
+		fmt.Fprintf(&b, "direct     %s\n", withDist(d.Direct.Estimate, fmt.Sprintf("%s %.4g, support %d contexts", errName, d.Direct.Err, d.Direct.Support)))
 	}
 	if d.Chain != nil {
 		path := append(append([]string{q.From}, d.Chain.Bridges...), q.To)
 		fmt.Fprintf(&b, "chain      %s\n", strings.Join(path, " → "))
-		fmt.Fprintf(&b, "           %s   error %.4g, weakest edge %d contexts\n", fmtDist(d.Chain.Estimate), d.Chain.Err, d.Chain.MinSupport)
-		rule := fmt.Sprintf("direct error − chain error = %.4g", d.Gain)
+		fmt.Fprintf(&b, "           %s\n", withDist(d.Chain.Estimate, fmt.Sprintf("%s %.4g, weakest edge %d contexts", errName, d.Chain.Err, d.Chain.MinSupport)))
+		rule := fmt.Sprintf("direct %s − chain %s = %.4g", errName, errName, d.Gain)
 		if cfg.UtilityLambda > 0 {
 			rule += fmt.Sprintf("; utility = %.4g·gain − %.4g·%d = %.4g", cfg.UtilityLambda, cfg.HopCost, len(d.Chain.Bridges), d.Score)
 		}

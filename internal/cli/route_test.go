@@ -138,8 +138,8 @@ func TestRouteBatch(t *testing.T) {
 			}
 			continue
 		}
-		// The exact contract of issue 4 item 5.
-		for _, k := range []string{"id", "from", "value", "to", "mode", "estimate", "err", "gain", "reason", "truncated", "direct", "chain"} {
+		// The decision view's contract (router.View).
+		for _, k := range []string{"id", "from", "value", "to", "mode", "estimate", "error_measure", "sq_error_sum", "gain", "reason", "truncated", "direct", "chain"} {
 			if _, ok := m[k]; !ok {
 				t.Errorf("line %d lacks %q: %s", i+1, k, l)
 			}
@@ -156,7 +156,7 @@ func TestRouteBatch(t *testing.T) {
 			t.Errorf("line %d: truncated %v with cut %v", i+1, m["truncated"], m["cut"])
 		}
 		d := m["direct"].(map[string]any)
-		for _, k := range []string{"estimate", "err", "support"} {
+		for _, k := range []string{"estimate", "sq_error_sum", "support"} {
 			if _, ok := d[k]; !ok {
 				t.Errorf("line %d: direct lacks %q", i+1, k)
 			}

@@ -96,6 +96,9 @@ func (c Config) withDefaults() (Config, error) {
 // Files are the paths Run wrote.
 type Files struct {
 	Corpus, Index, Queries, Truth, Trace, Plot string
+	// Lexicon (display names and value phrases) and Questions (free-text
+	// questions in the `hopwise route --queries` text-line form).
+	Lexicon, Questions string
 }
 
 // Timings are the wall times of Run's stages.
@@ -117,8 +120,11 @@ type Report struct {
 	HeldOut, Supported Traced
 	// Explained are a few decisions with their bridges and exact truth.
 	Explained []Explained
-	Files     Files
-	Timings   Timings
+	// Texts are questions taken from free text to mentions, decisions and
+	// rendered plans.
+	Texts   []TextExample
+	Files   Files
+	Timings Timings
 }
 
 // Run executes the demo: sample, build, measure against exact truth, route
@@ -142,6 +148,9 @@ func Run(ctx context.Context, cfg Config) (*Report, error) {
 		Truth:   filepath.Join(cfg.Dir, TruthFile),
 		Trace:   filepath.Join(cfg.Dir, TraceFile),
 		Plot:    filepath.Join(cfg.Dir, PlotFile),
+
+		Lexicon:   filepath.Join(cfg.Dir, LexiconFile),
+		Questions: filepath.Join(cfg.Dir, QuestionsFile),
 	}
 	w, err := world.Greenhouse(cfg.Seed)
 	if err != nil {
@@ -197,7 +206,14 @@ func Run(ctx context.Context, cfg Config) (*Report, error) {
 	rep.Timings.Route = time.Since(t0)
 	logf("routed %d queries with tracing to %s (%.1fs)", rep.HeldOut.Queries+rep.Supported.Queries, rep.Files.Trace, rep.Timings.Route.Seconds())
 
-	// 5. Plot (the harness's plot of one world).
+	// 5. Free-text questions: a lexicon and questions next to the index,
+	// and two of them taken from text to a plan.
+	if err := textPass(ctx, cfg, w, rep); err != nil {
+		return nil, err
+	}
+	logf("linked %d free-text questions to decisions and plans (%s)", len(rep.Texts), rep.Files.Questions)
+
+	// 6. Plot (the harness's plot of one world).
 	sum := eval.Summarize([]eval.Report{rep.Eval})
 	sum.Title = fmt.Sprintf("greenhouse demo (seed %d, %d contexts): MSE vs exact truth by route", cfg.Seed, cfg.Contexts)
 	if err := sum.WritePlot(rep.Files.Plot); err != nil {

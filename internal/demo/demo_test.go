@@ -93,7 +93,28 @@ func TestRunSmall(t *testing.T) {
 			t.Errorf("output lacks %q", want)
 		}
 	}
-	for _, p := range []string{rep.Files.Corpus, rep.Files.Index, rep.Files.Queries, rep.Files.Truth, rep.Files.Trace, rep.Files.Plot} {
+	// Free text: one question chained, one direct, each through mentions
+	// (a valued fact and a target), a decision and a plan with one step
+	// per bridge.
+	if len(rep.Texts) != 2 || rep.Texts[0].Decisions[0].Mode.String() != "chain" || rep.Texts[1].Decisions[0].Mode.String() != "direct" {
+		t.Fatalf("texts: %+v", rep.Texts)
+	}
+	for _, ex := range rep.Texts {
+		if len(ex.Mentions) < 2 || !ex.Mentions[0].HasValue || len(ex.Decisions) != len(ex.Plans) || len(ex.Plans) != len(ex.Prompts) {
+			t.Errorf("%s: %d mentions, %d decisions, %d plans", ex.ID, len(ex.Mentions), len(ex.Decisions), len(ex.Plans))
+		}
+		for i, d := range ex.Decisions {
+			if len(ex.Plans[i].Steps) != len(d.Bridges) || ex.Prompts[i] == "" {
+				t.Errorf("%s: plan of %d steps for %d bridges", ex.ID, len(ex.Plans[i].Steps), len(d.Bridges))
+			}
+		}
+	}
+	for _, want := range []string{"From a question to a plan", "mention  \"", "chain template:", "direct template:", "--lexicon"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("output lacks %q", want)
+		}
+	}
+	for _, p := range []string{rep.Files.Corpus, rep.Files.Index, rep.Files.Queries, rep.Files.Truth, rep.Files.Trace, rep.Files.Plot, rep.Files.Lexicon, rep.Files.Questions} {
 		st, err := os.Stat(p)
 		if err != nil || st.Size() == 0 {
 			t.Errorf("file %s missing or empty: %v", p, err)

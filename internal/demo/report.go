@@ -73,6 +73,7 @@ func (r *Report) WriteTable(out io.Writer) error {
 		}
 		fmt.Fprintf(&b, "\n   gain %.5f, reason %s\n", e.Gain, e.Reason)
 	}
+	r.writeTexts(&b)
 	_, err := io.WriteString(out, b.String())
 	return err
 }
@@ -80,16 +81,27 @@ func (r *Report) WriteTable(out io.Writer) error {
 // WriteFiles prints the files written and the commands to run next.
 func (r *Report) WriteFiles(out io.Writer) error {
 	var b strings.Builder
-	fmt.Fprintf(&b, "Wrote:\n  corpus (JSONL contexts)   %s\n  locality index            %s\n  queries and exact truth   %s, %s\n  decision traces (OTLP)    %s\n  error by route (PNG)      %s\n",
-		r.Files.Corpus, r.Files.Index, r.Files.Queries, r.Files.Truth, r.Files.Trace, r.Files.Plot)
+	fmt.Fprintf(&b, "Wrote:\n  corpus (JSONL contexts)   %s\n  locality index            %s\n  queries and exact truth   %s, %s\n  decision traces (OTLP)    %s\n  error by route (PNG)      %s\n  lexicon and questions     %s, %s\n",
+		r.Files.Corpus, r.Files.Index, r.Files.Queries, r.Files.Truth, r.Files.Trace, r.Files.Plot, r.Files.Lexicon, r.Files.Questions)
 	fmt.Fprintf(&b, "Timings: corpus+index %.1fs, measure %.1fs, traced routing %.1fs, total %.1fs\n",
 		r.Timings.Prepare.Seconds(), r.Timings.Measure.Seconds(), r.Timings.Route.Seconds(), r.Timings.Total.Seconds())
 	from, value, to := "zone-1/vent-a", "open", "bed-18/yield"
 	if len(r.Explained) > 0 {
 		from, value, to = r.Explained[0].From, r.Explained[0].Value, r.Explained[0].To
 	}
-	fmt.Fprintf(&b, "\nNext:\n  hopwise inspect --index %s --entity %s\n  hopwise route --index %s --from %s --value %s --to %s\n  hopwise route --index %s --queries %s\n  hopwise eval\n",
+	fmt.Fprintf(&b, "\nNext:\n  hopwise inspect --index %s --entity %s\n  hopwise route --index %s --from %s --value %s --to %s\n  hopwise route --index %s --queries %s\n",
 		r.Files.Index, to, r.Files.Index, from, value, to, r.Files.Index, r.Files.Queries)
+	if len(r.Texts) > 0 {
+		fmt.Fprintf(&b, "  hopwise route --index %s --lexicon %s --text %s\n  hopwise route --index %s --lexicon %s --queries %s\n",
+			r.Files.Index, r.Files.Lexicon, shellQuote(r.Texts[0].Question), r.Files.Index, r.Files.Lexicon, r.Files.Questions)
+	}
+	b.WriteString("  hopwise eval\n")
 	_, err := io.WriteString(out, b.String())
 	return err
+}
+
+// shellQuote quotes s for a POSIX shell: single quotes, with each embedded
+// single quote written as '\”.
+func shellQuote(s string) string {
+	return "'" + strings.ReplaceAll(s, "'", `'\''`) + "'"
 }

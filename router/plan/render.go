@@ -1,0 +1,152 @@
+package plan
+
+import (
+	"bytes"
+	"errors"
+	"fmt"
+	"io"
+	"strconv"
+	"text/template"
+)
+
+// ErrTemplate wraps every template error: a template that does not parse
+// (from NewRenderer) or fails to execute (from Render and Execute).
+var ErrTemplate = errors.New("plan: template")
+
+// DefaultChainTemplate is the chain template NewRenderer uses unless
+// WithChainTemplate replaces it: work through the bridges in order, then
+// answer.
+const DefaultChainTemplate = `Work this out in steps before answering.
+{{if .HasValue}}Known: {{.FromName}} is {{.Value}}.{{else}}Known: {{.FromName}} is involved.{{end}}
+{{range $i, $s := .Steps}}Step {{inc $i}}: work out the state of {{$s.Name}}{{if $s.HasValue}} (the records lean to "{{$s.Value}}", {{percent $s.Prob}}){{end}}.
+{{end}}Finally, from those steps, say {{if .Answer.HasValue}}what {{.ToName}} is likely to be{{else}}how {{.ToName}} is affected{{end}}. Put the answer after the steps.
+`
+
+// DefaultDirectTemplate is the direct template NewRenderer uses unless
+// WithDirectTemplate replaces it: answer without step-by-step working.
+const DefaultDirectTemplate = `Answer directly{{if .HasValue}} ({{.FromName}} is {{.Value}}; the question is about {{.ToName}}){{end}}. Skip step-by-step working: give the answer and at most one sentence of reason.
+`
+
+// Funcs are the functions a template may call beside text/template's
+// built-ins:
+//
+//	inc     i+1 (number steps from 1 in a range)
+//	percent a probability as a whole percentage, "73%" (NaN/Inf: "?")
+//	fixed   a number with four significant digits, "0.01234"
+func Funcs() template.FuncMap {
+	return template.FuncMap{
+		"inc": func(i int) int { return i + 1 },
+		"percent": func(p float64) string {
+			if p != p || p > 1e300 || p < -1e300 {
+				return "?"
+			}
+			return strconv.FormatFloat(p*100, 'f', 0, 64) + "%"
+		},
+		"fixed": func(x float64) string { return strconv.FormatFloat(x, 'g', 4, 64) },
+	}
+}
+
+// Renderer renders plans as prompt text through two text/templates.
+type Renderer struct {
+	chain, direct *template.Template
+}
+
+// RenderOption configures NewRenderer.
+type RenderOption func(*renderConfig)
+
+type renderConfig struct {
+	chain, direct string
+}
+
+// WithChainTemplate replaces the chain template (text/template syntax over
+// a Plan, with Funcs).
+func WithChainTemplate(text string) RenderOption {
+	return func(c *renderConfig) { c.chain = text }
+}
+
+// WithDirectTemplate replaces the direct template (text/template syntax
+// over a Plan, with Funcs).
+func WithDirectTemplate(text string) RenderOption {
+	return func(c *renderConfig) { c.direct = text }
+}
+
+// NewRenderer parses the two templates (the defaults unless replaced). A
+// template that does not parse is an error wrapping ErrTemplate that names
+// it ("chain" or "direct").
+func NewRenderer(opts ...RenderOption) (*Renderer, error) {
+	c := renderConfig{chain: DefaultChainTemplate, direct: DefaultDirectTemplate}
+	for _, o := range opts {
+		if o != nil {
+			o(&c)
+		}
+	}
+	chain, err := parse("chain", c.chain)
+	if err != nil {
+		return nil, err
+	}
+	direct, err := parse("direct", c.direct)
+	if err != nil {
+		return nil, err
+	}
+	return &Renderer{chain: chain, direct: direct}, nil
+}
+
+func parse(name, text string) (*template.Template, error) {
+	t, err := template.New(name).Funcs(Funcs()).Option("missingkey=error").Parse(text)
+	if err != nil {
+		return nil, fmt.Errorf("%w: %s template: %v", ErrTemplate, name, err)
+	}
+	return t, nil
+}
+
+// Render returns the plan's prompt text: the chain template when the plan
+// is a chain with at least one step, else the direct template. O(size of
+// the output).
+func (r *Renderer) Render(p Plan) (string, error) {
+	var b bytes.Buffer
+	if err := r.render(&b, p); err != nil {
+		return "", err
+	}
+	return b.String(), nil
+}
+
+// Execute writes the plan's prompt text to w (see Render). The text is
+// rendered in memory first, so w receives nothing when the template fails.
+func (r *Renderer) Execute(w io.Writer, p Plan) error {
+	var b bytes.Buffer
+	if err := r.render(&b, p); err != nil {
+		return err
+	}
+	_, err := w.Write(b.Bytes())
+	return err
+}
+
+// Template returns the name of the template Render uses for p ("chain" or
+// "direct").
+func Template(p Plan) string {
+	if p.Mode.String() == "chain" && len(p.Steps) > 0 {
+		return "chain"
+	}
+	return "direct"
+}
+
+func (r *Renderer) render(b *bytes.Buffer, p Plan) (err error) {
+	if r == nil || r.chain == nil || r.direct == nil {
+		return fmt.Errorf("%w: renderer not built by NewRenderer", ErrTemplate)
+	}
+	t := r.direct
+	if Template(p) == "chain" {
+		t = r.chain
+	}
+	// text/template recovers panics of called functions and methods into
+	// errors; this guard keeps the no-panic promise for anything else.
+	defer func() {
+		if v := recover(); v != nil {
+			err = fmt.Errorf("%w: %s template: %v", ErrTemplate, t.Name(), v)
+		}
+	}()
+	if err := t.Execute(b, p); err != nil {
+		return fmt.Errorf("%w: %v", ErrTemplate, err)
+	}
+	return nil
+}
