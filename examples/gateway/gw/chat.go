@@ -151,7 +151,9 @@ func (s *Server) decide(ctx context.Context, text, unit string) (route, string, 
 	}
 	s.lmu.RLock()
 	defer s.lmu.RUnlock()
-	q, reason, ok := s.lk.former.Form(text)
+	dctx, cancel := context.WithTimeout(ctx, s.cfg.DecideTimeout)
+	q, reason, ok := s.lk.former.Form(dctx, text, unit)
+	cancel()
 	if !ok {
 		return route{mode: "pass", reason: reason}, "", nil
 	}
@@ -166,9 +168,12 @@ func (s *Server) decide(ctx context.Context, text, unit string) (route, string, 
 		}
 		return route{}, "", err
 	}
-	instr, err := s.lk.renderer.Render(q, d)
+	instr, err := s.lk.renderer.Render(ctx, q, d)
 	if err != nil {
-		return route{}, "", err
+		// A plan that cannot be built (the index was swapped between the
+		// decision and the plan) or rendered: forward untouched.
+		s.log.Printf("gateway: rendering the plan: %v", err)
+		return route{mode: "pass", reason: PassRender}, "", nil
 	}
 	return route{mode: d.Mode.String(), reason: d.Reason.Code, d: d, decided: true}, instr, nil
 }

@@ -53,7 +53,7 @@ func TestChatRouting(t *testing.T) {
 		t.Fatalf("route %q (%s), want chain", h.Get(gw.HeaderRoute), h.Get(gw.HeaderReason))
 	}
 	msgs := upstreamMessages(t, r)
-	if len(msgs) != 2 || msgs[0]["role"] != "system" || !strings.Contains(msgs[0]["content"], "step by step") || msgs[1]["content"] != farQuestion {
+	if len(msgs) != 2 || msgs[0]["role"] != "system" || !strings.Contains(msgs[0]["content"], "Step 1:") || msgs[1]["content"] != farQuestion {
 		t.Fatalf("upstream messages %q", msgs)
 	}
 	var far chatReply
@@ -71,7 +71,7 @@ func TestChatRouting(t *testing.T) {
 	if code != 200 || h.Get(gw.HeaderRoute) != "direct" {
 		t.Fatalf("near: status %d route %q: %s", code, h.Get(gw.HeaderRoute), b)
 	}
-	if msgs := upstreamMessages(t, r); len(msgs) != 2 || !strings.Contains(msgs[0]["content"], "directly") {
+	if msgs := upstreamMessages(t, r); len(msgs) != 2 || !strings.Contains(msgs[0]["content"], "Answer directly") {
 		t.Fatalf("near upstream messages %q", msgs)
 	}
 	var near chatReply
@@ -90,7 +90,7 @@ func TestPassThrough(t *testing.T) {
 	r := newRig(t, gw.Config{}, nil)
 	cases := []struct{ body, reason string }{
 		{chatBody(plainQuestion), gw.PassNoMention},
-		{chatBody("Tell me about zone-3/air-temp."), gw.PassOneEntity},
+		{chatBody("zone-3/air-temp is hot, is it not?"), gw.PassOneEntity},
 		{chatBody("Compare zone-3/air-temp with zone-3/vent-a."), gw.PassNoValue},
 		{`{"model":"m","messages":[{"role":"system","content":"hi"}]}`, gw.PassNoUserMessage},
 	}

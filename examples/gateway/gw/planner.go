@@ -2,35 +2,39 @@ package gw
 
 import (
 	"bytes"
+	"context"
 	"errors"
-	"fmt"
 	"strings"
-	"text/template"
 	"unicode"
 	"unicode/utf8"
 
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/router"
+	"github.com/hopwise/hopwise/router/plan"
 )
 
 // Pass-through reasons: why a request was forwarded untouched. They are
 // recorded on the request's span (KeyPassReason) and in the route counter.
 const (
-	PassNoUserMessage = "no-user-message" // no user message with text content
-	PassNoMention     = "no-mention"      // the lexicon names nothing in it
-	PassOneEntity     = "one-entity"      // one entity named: no question between two
-	PassNoValue       = "no-value"        // no observed value stated for any named entity
-	PassUnknown       = "unknown-name"    // the index does not know an entity or value
-	PassBadText       = "bad-text"        // too long or not UTF-8 to link
-	PassRoutingOff    = "routing-off"     // the gateway runs with routing turned off
+	PassNoUserMessage = "no-user-message"   // no user message with text content
+	PassNoMention     = "no-mention"        // the lexicon names nothing in it
+	PassOneEntity     = "one-entity"        // one entity named: no question between two
+	PassNoValue       = "no-value"          // no observed value stated for any named entity
+	PassUnknown       = "unknown-name"      // the index does not know an entity or value
+	PassBadText       = "bad-text"          // too long or not UTF-8 to link
+	PassRoutingOff    = "routing-off"       // the gateway runs with routing turned off
+	PassRender        = "render-failed"     // the plan could not be built or rendered (logged)
+	PassTooMany       = "too-many-mentions" // more distinct entities than the router forms queries from
 )
 
-// Former forms a routing query from the text of the last user message. It
-// returns ok = false and a pass-through reason (one of the Pass* codes) when
-// the text asks nothing the router can decide. It must be safe for
-// concurrent use.
+// Former forms the routing query from the text of the last user message.
+// It returns ok = false and a pass-through reason (one of the Pass* codes)
+// when the text asks nothing the router can decide. It may decide to choose
+// among candidate queries (TextFormer does); the gateway then decides the
+// chosen query again through otelx, which the router's decision cache
+// answers. It must be safe for concurrent use.
 type Former interface {
-	Form(text string) (q router.Query, reason string, ok bool)
+	Form(ctx context.Context, text, unit string) (q router.Query, reason string, ok bool)
 }
 
 // Renderer turns a decision into the text the gateway adds to the request
@@ -38,7 +42,87 @@ type Former interface {
 // instruction to answer at once for a direct decision. It must be safe for
 // concurrent use.
 type Renderer interface {
-	Render(q router.Query, d router.Decision) (string, error)
+	Render(ctx context.Context, q router.Query, d router.Decision) (string, error)
+}
+
+// TextFormer forms queries by the router's text rules
+// (router.Router.DecideMentions: evidence = mentions stating a value,
+// targets = the others, least-supported pair first) and keeps the first.
+// Mentions the lexicon links without a value get the value the text states
+// right after them, when it is one of the entity's labels in the index
+// ("zone-2/thermometer reads-cool", "… is reads-cool", "… = reads-cool"),
+// so a lexicon of bare entity names works too.
+type TextFormer struct {
+	Lex    *graphidx.Lexicon
+	Router *router.Router
+	Vocab  Vocabulary
+}
+
+// Form implements Former.
+func (f TextFormer) Form(ctx context.Context, text, unit string) (router.Query, string, bool) {
+	ms, err := f.Lex.Link(text)
+	if err != nil {
+		return router.Query{}, PassBadText, false
+	}
+	if f.Vocab != nil {
+		attachValues(ms, text, f.Vocab)
+	}
+	td, err := f.Router.DecideMentions(ctx, ms, router.WithMaxQueries(1), router.WithTextKey(unit))
+	switch {
+	case len(td.Queries) > 0:
+		// Formed; a failed decision (a deadline) is the gateway's to handle
+		// when it decides again.
+		return td.Queries[0].Query, "", true
+	case errors.Is(err, router.ErrNoMentions):
+		return router.Query{}, PassNoMention, false
+	case errors.Is(err, router.ErrNoEvidence):
+		return router.Query{}, PassNoValue, false
+	case errors.Is(err, router.ErrNoTarget), errors.Is(err, router.ErrSameEntity):
+		return router.Query{}, PassOneEntity, false
+	case errors.Is(err, router.ErrTooManyMentions):
+		return router.Query{}, PassTooMany, false
+	}
+	return router.Query{}, PassUnknown, false
+}
+
+// attachValues gives each mention without a value the label of its entity
+// that the text states right after it (before the next mention).
+func attachValues(ms []graphidx.Mention, text string, vocab Vocabulary) {
+	for i := range ms {
+		m := &ms[i]
+		if m.HasValue {
+			continue
+		}
+		id, ok := vocab.Lookup(m.Entity)
+		if !ok {
+			continue
+		}
+		end := len(text)
+		if i+1 < len(ms) {
+			end = ms[i+1].Start
+		}
+		if v, ok := statedValue(text[m.End:end], vocab.Values(id)); ok {
+			m.Value, m.HasValue = v, true
+		}
+	}
+}
+
+// PlanRenderer renders decisions with router/plan: the plan (one step per
+// bridge with the value the chain expects there) through a plan.Renderer
+// (its default chain and direct templates unless replaced).
+type PlanRenderer struct {
+	Router   *router.Router
+	Namer    plan.Namer // display names; nil shows entity ids
+	Renderer *plan.Renderer
+}
+
+// Render implements Renderer.
+func (r PlanRenderer) Render(ctx context.Context, q router.Query, d router.Decision) (string, error) {
+	p, err := plan.Build(ctx, r.Router, q, d, r.Namer)
+	if err != nil {
+		return "", err
+	}
+	return r.Renderer.Render(p)
 }
 
 // Vocabulary is what LexiconFormer reads from the index (*graphidx.Index
@@ -48,8 +132,9 @@ type Vocabulary interface {
 	Values(id graphidx.EntityID) []string
 }
 
-// LexiconFormer links the text with a graphidx.Lexicon and forms the query
-// from the mentions: the first entity whose value the text states right
+// LexiconFormer forms one query from a text without a router (the
+// simulated model reads questions with it): it links the text with a
+// graphidx.Lexicon and forms the query from the mentions: the first entity whose value the text states right
 // after it ("zone-2/thermometer reads-cool", "… is reads-cool", "… = reads-cool")
 // is the observed one, the last other entity named is the target. Values
 // are the index's labels, matched case-insensitively on word boundaries.
@@ -59,7 +144,7 @@ type LexiconFormer struct {
 	Vocab Vocabulary
 }
 
-// Form implements Former.
+// Form returns the query of text, or a Pass* reason.
 func (f LexiconFormer) Form(text string) (router.Query, string, bool) {
 	ms, err := f.Lex.Link(text)
 	if err != nil {
@@ -139,80 +224,6 @@ func statedValue(rest string, values []string) (string, bool) {
 		}
 	}
 	return best, best != ""
-}
-
-// planView is what the default templates see.
-type planView struct {
-	From, Value, To string
-	Steps           []string // display names, from the observed entity to the target
-	Values          string   // the target's labels, comma separated ("" when unknown)
-}
-
-// Default templates of TemplateRenderer. They say what to do in plain words;
-// the chain template lists one line per step.
-const (
-	DefaultChainTemplate = `Answer by reasoning step by step through the greenhouse, one link at a time.
-Known: {{.From}} is {{.Value}}.
-{{range $i, $s := .Steps}}{{if $i}}Step {{$i}}: from that, work out {{$s}}.
-{{end}}{{end}}State each intermediate conclusion, then give the final answer as "Answer: <value>" for {{.To}}{{if .Values}} (one of {{.Values}}){{end}}.`
-	DefaultDirectTemplate = `Answer directly, without intermediate steps: given {{.From}} is {{.Value}}, give the most likely state of {{.To}} as "Answer: <value>"{{if .Values}} (one of {{.Values}}){{end}}.`
-)
-
-// TemplateRenderer renders decisions with text/template: Chain for chain
-// decisions, Direct for direct ones. Names are shown by Display (for
-// example graphidx.Lexicon.DisplayName), falling back to the entity id.
-type TemplateRenderer struct {
-	Chain, Direct *template.Template
-	Display       func(entity string) string
-	Vocab         Vocabulary
-}
-
-// NewTemplateRenderer parses the default templates.
-func NewTemplateRenderer(lex *graphidx.Lexicon, vocab Vocabulary) *TemplateRenderer {
-	r := &TemplateRenderer{
-		Chain:  template.Must(template.New("chain").Parse(DefaultChainTemplate)),
-		Direct: template.Must(template.New("direct").Parse(DefaultDirectTemplate)),
-		Vocab:  vocab,
-	}
-	if lex != nil {
-		r.Display = lex.DisplayName
-	}
-	return r
-}
-
-// Render implements Renderer.
-func (r *TemplateRenderer) Render(q router.Query, d router.Decision) (string, error) {
-	name := func(e string) string {
-		if r.Display != nil {
-			if s := r.Display(e); s != "" {
-				return s
-			}
-		}
-		return e
-	}
-	v := planView{From: name(q.From), Value: q.Value, To: name(q.To)}
-	if r.Vocab != nil {
-		if id, ok := r.Vocab.Lookup(q.To); ok {
-			v.Values = strings.Join(r.Vocab.Values(id), ", ")
-		}
-	}
-	t := r.Direct
-	if d.Mode == router.ModeChain {
-		t = r.Chain
-		v.Steps = append(v.Steps, v.From)
-		for _, b := range d.Bridges {
-			v.Steps = append(v.Steps, name(b))
-		}
-		v.Steps = append(v.Steps, v.To)
-	}
-	if t == nil {
-		return "", errors.New("gw: renderer has no template for this mode")
-	}
-	var b bytes.Buffer
-	if err := t.Execute(&b, v); err != nil {
-		return "", fmt.Errorf("gw: rendering the plan: %w", err)
-	}
-	return b.String(), nil
 }
 
 // Names lists entity names: *graphidx.Index satisfies it.

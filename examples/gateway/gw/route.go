@@ -67,7 +67,7 @@ func (s *Server) handleRoute(w http.ResponseWriter, r *http.Request) {
 		return
 	}
 	s.lmu.RLock()
-	instr, err := s.lk.renderer.Render(rq, d)
+	instr, err := s.lk.renderer.Render(r.Context(), rq, d)
 	s.lmu.RUnlock()
 	if err != nil {
 		s.writeErr(w, err)

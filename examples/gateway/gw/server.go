@@ -15,6 +15,7 @@ import (
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/otelx"
 	"github.com/hopwise/hopwise/router"
+	"github.com/hopwise/hopwise/router/plan"
 	"go.opentelemetry.io/otel"
 	"go.opentelemetry.io/otel/metric"
 	"go.opentelemetry.io/otel/trace"
@@ -84,7 +85,7 @@ type Config struct {
 	// the same proxy without routing, for comparisons.
 	RoutingOff bool
 	// Former and Renderer form the query and the instruction; nil uses
-	// LexiconFormer and NewTemplateRenderer over the index.
+	// TextFormer and PlanRenderer (router/plan's default templates).
 	Former   Former
 	Renderer Renderer
 	// Telemetry traces decisions and outcomes; nil uses otelx.New() over the
@@ -155,6 +156,7 @@ type Server struct {
 	recent   *lru.Cache[string, pending]
 	authFail *failLimiter
 	ins      *instruments
+	planR    *plan.Renderer
 }
 
 // New opens the index, builds the router and returns a Server. Close
@@ -227,6 +229,10 @@ func New(cfg Config) (*Server, error) {
 		idx.Close()
 		return nil, fmt.Errorf("gw: %w", err)
 	}
+	if s.planR, err = plan.NewRenderer(); err != nil {
+		s.rt.Close()
+		return nil, fmt.Errorf("gw: %w", err)
+	}
 	if s.lk, err = s.openLinker(); err != nil {
 		s.rt.Close()
 		return nil, err
@@ -257,10 +263,10 @@ func (s *Server) openLinker() (linker, error) {
 	}
 	lk := linker{former: s.cfg.Former, renderer: s.cfg.Renderer, vocab: ix}
 	if lk.former == nil {
-		lk.former = LexiconFormer{Lex: lex, Vocab: ix}
+		lk.former = TextFormer{Lex: lex, Router: s.rt, Vocab: ix}
 	}
 	if lk.renderer == nil {
-		lk.renderer = NewTemplateRenderer(lex, ix)
+		lk.renderer = PlanRenderer{Router: s.rt, Namer: lex, Renderer: s.planR}
 	}
 	return lk, nil
 }
