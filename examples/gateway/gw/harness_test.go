@@ -196,3 +196,18 @@ func errorCode(b []byte) (code, msg string) {
 	_ = json.Unmarshal(b, &e)
 	return e.Error.Code, e.Error.Message
 }
+
+type getResp struct {
+	code int
+	body []byte
+}
+
+func httpGet(url string) (getResp, error) {
+	resp, err := http.Get(url)
+	if err != nil {
+		return getResp{}, err
+	}
+	defer resp.Body.Close()
+	b, err := io.ReadAll(resp.Body)
+	return getResp{resp.StatusCode, b}, err
+}

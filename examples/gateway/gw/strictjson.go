@@ -94,6 +94,8 @@ type keyFrame struct {
 	keys   []string
 	folded map[string]string // folded key → key, past 16 keys
 	expect bool              // object: the next string token is a key
+	// nonASCII: some key is not ASCII, so the folded map is not enough.
+	nonASCII bool
 }
 
 // seen reports whether k, or a key equal to it under case folding, is
@@ -104,9 +106,9 @@ func (f *keyFrame) seen(k string) (string, bool) {
 		if ok {
 			return p, true
 		}
-		// ToLower does not fold every pair EqualFold does (ſ, K): check
-		// those rare keys by scan.
-		if isASCII(k) {
+		// ToLower does not fold every pair EqualFold does (ſ and s, K and
+		// k): scan when either side is not ASCII.
+		if !f.nonASCII && isASCII(k) {
 			return "", false
 		}
 	}
@@ -120,6 +122,7 @@ func (f *keyFrame) seen(k string) (string, bool) {
 
 func (f *keyFrame) add(k string) {
 	f.keys = append(f.keys, k)
+	f.nonASCII = f.nonASCII || !isASCII(k)
 	if f.folded == nil && len(f.keys) > 16 {
 		f.folded = make(map[string]string, 2*len(f.keys))
 		for _, p := range f.keys {

@@ -53,6 +53,9 @@ type Config struct {
 	Requests int    // per gateway
 	Clients  int
 	Rounds   int // alternating rounds per gateway
+	// Distinct is the number of distinct questions (0: every request its
+	// own); a small number lets the router's decision cache answer.
+	Distinct int
 	Timeout  time.Duration
 	// Sim answers with the simulated model; false (the default of the
 	// command) with one fixed completion, so that the upstream does the
@@ -135,6 +138,7 @@ func main() {
 	flag.IntVar(&cfg.Requests, "requests", 20000, "requests per gateway")
 	flag.IntVar(&cfg.Clients, "clients", 32, "concurrent clients")
 	flag.IntVar(&cfg.Rounds, "rounds", 4, "alternating rounds per gateway")
+	flag.IntVar(&cfg.Distinct, "distinct", 0, "distinct questions, repeated in turn (0: every request its own; small: decisions come from the router's cache)")
 	flag.DurationVar(&cfg.Timeout, "timeout", 3*time.Minute, "stop after this long whatever is left")
 	flag.BoolVar(&cfg.Sim, "sim", false, "answer with the simulated model (default: one fixed completion, the same work for both gateways)")
 	prof := flag.String("cpuprofile", "", "write a CPU profile of the run to this file")
@@ -239,6 +243,11 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 		}
 	}
 	bodies := makeBodies(ix, cfg.Requests, 1)
+	if cfg.Distinct > 0 && cfg.Distinct < len(bodies) {
+		for i := cfg.Distinct; i < len(bodies); i++ {
+			bodies[i] = bodies[i%cfg.Distinct]
+		}
+	}
 	var on, off []sample
 	var elOn, elOff, cpuOn, cpuOff time.Duration
 	per := cfg.Requests / cfg.Rounds
@@ -273,8 +282,12 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 	if cfg.Sim {
 		upName = "the simulated model"
 	}
-	fmt.Fprintf(w, "%d requests per gateway (distinct questions from the index's names, 1 in 10 linking nothing) from %d clients over loopback, %d alternating rounds; upstream: %s, at once; telemetry off\n\n",
-		cfg.Requests, cfg.Clients, cfg.Rounds, upName)
+	distinct := "every question distinct"
+	if cfg.Distinct > 0 {
+		distinct = fmt.Sprintf("%d distinct questions repeated", cfg.Distinct)
+	}
+	fmt.Fprintf(w, "%d requests per gateway (questions from the index's names, %s, 1 in 10 linking nothing) from %d clients over loopback, %d alternating rounds; upstream: %s, at once; telemetry off\n\n",
+		cfg.Requests, distinct, cfg.Clients, cfg.Rounds, upName)
 	fmt.Fprintln(w, "gateway       requests  errors      p50       p99       max   req/s  CPU/request  routes")
 	for _, s := range []Stats{res.Off, res.On} {
 		fmt.Fprintf(w, "%-12s  %8d  %6d  %7.0fµs  %7.0fµs  %6.1fms  %6.0f  %9.0fµs  %v\n", s.Name, s.N, s.Errors,
