@@ -260,6 +260,20 @@ func Tokens(s string) int64 {
 	return int64((len(s) + 3) / 4)
 }
 
+// Completion is the part of a non-streamed chat completion a client of
+// the simulated model reads: the reply text and the usage.
+type Completion struct {
+	Choices []struct {
+		Message struct {
+			Content string `json:"content"`
+		} `json:"message"`
+	} `json:"choices"`
+	Usage struct {
+		PromptTokens     int64 `json:"prompt_tokens"`
+		CompletionTokens int64 `json:"completion_tokens"`
+	} `json:"usage"`
+}
+
 // request is the part of a chat-completions body the model reads.
 type request struct {
 	Model    string `json:"model"`

@@ -15,13 +15,11 @@ import (
 	"github.com/hopwise/hopwise/router"
 )
 
-// TestThink checks the simulated model against the greenhouse's exact
-// answers: direct answers on pairs never seen together are much worse than
-// on well-supported pairs, and following the router's chain step by step
-// repairs most of that.
-func TestThink(t *testing.T) {
-	t.Parallel()
-	path, err := ghtest.Build(t.TempDir(), "index.hwx", 1, 20000, 1)
+// newModel builds a greenhouse index of n contexts (seed 1) and a model
+// over it; the index closes with the test.
+func newModel(t *testing.T, n int, opt simmodel.Options) (string, *graphidx.Index, *simmodel.Model) {
+	t.Helper()
+	path, err := ghtest.Build(t.TempDir(), "index.hwx", 1, n, 1)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -29,11 +27,21 @@ func TestThink(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	defer idx.Close()
-	m, err := simmodel.New(idx, simmodel.Options{Seed: 7})
+	t.Cleanup(func() { idx.Close() })
+	m, err := simmodel.New(idx, opt)
 	if err != nil {
 		t.Fatal(err)
 	}
+	return path, idx, m
+}
+
+// TestThink checks the simulated model against the greenhouse's exact
+// answers: direct answers on pairs never seen together are much worse than
+// on well-supported pairs, and following the router's chain step by step
+// repairs most of that.
+func TestThink(t *testing.T) {
+	t.Parallel()
+	path, idx, m := newModel(t, 20000, simmodel.Options{Seed: 7})
 	idx2, err := graphidx.Open(path)
 	if err != nil {
 		t.Fatal(err)
@@ -105,36 +113,12 @@ func TestThink(t *testing.T) {
 	}
 }
 
-type completion struct {
-	Choices []struct {
-		Message struct {
-			Content string `json:"content"`
-		} `json:"message"`
-	} `json:"choices"`
-	Usage struct {
-		PromptTokens     int64 `json:"prompt_tokens"`
-		CompletionTokens int64 `json:"completion_tokens"`
-	} `json:"usage"`
-}
-
 // TestServe speaks the wire format: JSON with usage; SSE with a final
 // usage chunk only when asked; a plan in a system message makes a
 // step-by-step answer that costs more output tokens.
 func TestServe(t *testing.T) {
 	t.Parallel()
-	path, err := ghtest.Build(t.TempDir(), "index.hwx", 1, 5000, 1)
-	if err != nil {
-		t.Fatal(err)
-	}
-	idx, err := graphidx.Open(path)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer idx.Close()
-	m, err := simmodel.New(idx, simmodel.Options{})
-	if err != nil {
-		t.Fatal(err)
-	}
+	_, _, m := newModel(t, 5000, simmodel.Options{})
 	hs := httptest.NewServer(m)
 	defer hs.Close()
 	const q = "bed-11/moisture-probe is reads-wet. What is bed-10/leaf-wilt?"
@@ -145,10 +129,10 @@ func TestServe(t *testing.T) {
 		}
 		return resp
 	}
-	var direct, chained completion
+	var direct, chained simmodel.Completion
 	for _, c := range []struct {
 		body string
-		dst  *completion
+		dst  *simmodel.Completion
 	}{
 		{`{"model":"m","messages":[{"role":"user","content":"` + q + `"}]}`, &direct},
 		{`{"model":"m","messages":[{"role":"system","content":"Step 1: work out bed-10/soil-moisture."},{"role":"user","content":"` + q + `"}]}`, &chained},

@@ -471,17 +471,7 @@ func chat(ctx context.Context, c *http.Client, base, unit, q string) (reply, err
 	if resp.StatusCode != http.StatusOK {
 		return reply{}, fmt.Errorf("status %d: %s", resp.StatusCode, bytes.TrimSpace(body))
 	}
-	var r struct {
-		Choices []struct {
-			Message struct {
-				Content string `json:"content"`
-			} `json:"message"`
-		} `json:"choices"`
-		Usage struct {
-			PromptTokens     int64 `json:"prompt_tokens"`
-			CompletionTokens int64 `json:"completion_tokens"`
-		} `json:"usage"`
-	}
+	var r simmodel.Completion
 	if err := json.Unmarshal(body, &r); err != nil || len(r.Choices) == 0 {
 		return reply{}, fmt.Errorf("decoding the completion: %s", bytes.TrimSpace(body))
 	}
