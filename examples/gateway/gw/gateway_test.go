@@ -45,7 +45,7 @@ func upstreamMessages(t *testing.T, r *rig) []map[string]string {
 func TestChatRouting(t *testing.T) {
 	t.Parallel()
 	r := newRig(t, gw.Config{}, nil)
-	code, b, h := post(t, r.url+"/v1/chat/completions", chatBody(farQuestion), gw.HeaderUnit, "u-far")
+	code, b, h := post(t, r.url+"/v1/chat/completions", chatBody(farQuestion, "temperature", "0.25", "metadata", `{"tag":"é\u00e9"}`), gw.HeaderUnit, "u-far")
 	if code != 200 {
 		t.Fatalf("status %d: %s", code, b)
 	}
@@ -55,6 +55,13 @@ func TestChatRouting(t *testing.T) {
 	msgs := upstreamMessages(t, r)
 	if len(msgs) != 2 || msgs[0]["role"] != "system" || !strings.Contains(msgs[0]["content"], "Step 1:") || msgs[1]["content"] != farQuestion {
 		t.Fatalf("upstream messages %q", msgs)
+	}
+	var sent struct {
+		Temperature float64           `json:"temperature"`
+		Metadata    map[string]string `json:"metadata"`
+	}
+	if err := json.Unmarshal(r.lastBody(), &sent); err != nil || sent.Temperature != 0.25 || sent.Metadata["tag"] != "éé" {
+		t.Errorf("other fields not forwarded as sent: %s (%v)", r.lastBody(), err)
 	}
 	var far chatReply
 	if err := json.Unmarshal(b, &far); err != nil {
