@@ -2,7 +2,6 @@ package graphidx
 
 import (
 	"fmt"
-	"hash/maphash"
 	"io"
 	"strconv"
 	"unicode/utf16"
@@ -25,19 +24,6 @@ import (
 //     the values differ or not; so is a repeated top-level key (bad-field).
 //   - Names and values are non-empty (empty-name), valid UTF-8 (bad-utf8) and
 //     at most MaxNameBytes long (name-too-long).
-//   - An entity observed through "ents" (present) in one line and with a
-//     value other than PresentValue through "obs" in another would get
-//     "present" as a spurious extra value; the later of the two lines is
-//     rejected (mixed-forms), naming the entity and the first line of the
-//     other form. Tracking this keeps one map entry of 64-bit hash of the
-//     name (maphash), form and line per distinct entity (O(distinct
-//     entities) memory, about 40 bytes each, one look-up per observation;
-//     reading costs about 1.6× the CPU without it, a few percent of a
-//     build). Two names with equal hashes in different forms would be
-//     reported as mixed: with n entities the chance is about n²/2⁶⁵ (3·10⁻⁶
-//     at 10⁷ entities).
-//     It spans lines, so JSONLLineParser, which sees one line at a time,
-//     cannot apply it.
 //   - Other top-level keys are ignored, so lines may carry metadata.
 //   - Blank lines are ignored and are not records.
 //
@@ -45,6 +31,13 @@ import (
 // string per context id and none per repeated entity name or value. Lines
 // longer than the limit (WithMaxLineBytes) are skipped in constant memory.
 // A JSONLReader is not safe for concurrent use.
+//
+// Across lines, an entity listed in "ents" (present) on one line and given a
+// value other than PresentValue in "obs" on another would get "present" as
+// a spurious extra value: the later of the two lines is rejected
+// (mixed-forms), naming the entity and the first line of the other form
+// (formTracker, corpus_jsonl_forms.go). JSONLLineParser, which sees one line
+// at a time, cannot apply this rule.
 type JSONLReader struct {
 	lr   *lineReader
 	name string
@@ -52,17 +45,10 @@ type JSONLReader struct {
 	in   interner
 	obs  []Observation
 	p    jparser
-	// forms records, per entity (by the maphash of its name under seed),
-	// whether it was observed present ("ents", formPresent) or with a
-	// value other than PresentValue ("obs", formValued), and the first
-	// line of that; see checkForms.
-	forms map[uint64]entityForm
-	seed  maphash.Seed
-	// noFormCheck turns checkForms off (benchmark baseline only).
-	noFormCheck bool
-	// lineEnts: the line parse last accepted used "ents".
+	// forms enforces the cross-line mixed-forms rule; lineEnts says that
+	// the line being parsed uses "ents" (set by parseEnts).
+	forms    formTracker
 	lineEnts bool
-	newForm  []uint64 // checkForms scratch: hashes not yet recorded
 	// transient makes names views into the line buffer, valid only until
 	// the next call to Next. Only Build sets it, through setTransient: it
 	// copies what it keeps, and skipping the interner saves a map lookup
@@ -113,9 +99,10 @@ func (r *JSONLReader) Next() (Context, error) {
 			continue
 		}
 		r.bl.stats.Records++
+		r.lineEnts = false // set by parseEnts
 		c, le := r.parse(line)
 		if le == nil {
-			le = r.checkForms(r.lineEnts)
+			le = r.forms.check(r.obs, r.lineEnts, r.lr.line)
 		}
 		if le != nil {
 			le.File, le.Line = r.name, r.lr.line
@@ -259,70 +246,8 @@ func (r *JSONLReader) parse(line []byte) (Context, *LineError) {
 		}
 		return c, &LineError{Field: f, Reason: ReasonDuplicateEntity, Detail: strconv.Quote(name)}
 	}
-	r.lineEnts = seenEnt
 	c.Obs = r.obs
 	return c, nil
-}
-
-// entityForm is how an entity was observed so far (formPresent,
-// formValued) and the line that first did so.
-type entityForm struct {
-	form uint8
-	line int
-}
-
-const (
-	formPresent uint8 = 1 // listed in "ents"
-	formValued  uint8 = 2 // in "obs" with a value other than PresentValue
-)
-
-// checkForms rejects a line that observes an entity in the other form than
-// earlier lines did (see the JSONLReader rules), and otherwise records the
-// line's entities. A rejected line records nothing. O(len(r.obs)) map
-// look-ups; a name is copied once, when first recorded.
-func (r *JSONLReader) checkForms(presence bool) *LineError {
-	if r.noFormCheck {
-		return nil
-	}
-	if r.forms == nil {
-		r.forms = make(map[uint64]entityForm)
-		r.seed = maphash.MakeSeed()
-	}
-	line := r.lr.line
-	r.newForm = r.newForm[:0]
-	for i := range r.obs {
-		o := &r.obs[i]
-		f := formPresent
-		if !presence {
-			if o.Value == PresentValue {
-				continue // "obs" with the value present fits either form
-			}
-			f = formValued
-		}
-		h := maphash.String(r.seed, o.Entity)
-		prev, ok := r.forms[h]
-		if !ok {
-			r.newForm = append(r.newForm, h)
-			continue
-		}
-		if prev.form != f {
-			field, how, was := "ents", "as present", "with values"
-			if f == formValued {
-				field, how, was = "obs."+o.Entity, "with value "+strconv.Quote(o.Value), `as present ("ents")`
-			}
-			return &LineError{Field: field, Reason: ReasonMixedForms, Detail: fmt.Sprintf(
-				"%s is observed %s here but %s at line %d: one entity must not mix valued and presence-only lines",
-				strconv.Quote(o.Entity), how, was, prev.line)}
-		}
-	}
-	f := formValued
-	if presence {
-		f = formPresent
-	}
-	for _, h := range r.newForm {
-		r.forms[h] = entityForm{form: f, line: line}
-	}
-	return nil
 }
 
 func (r *JSONLReader) parseObs() *LineError {
@@ -380,6 +305,7 @@ func (r *JSONLReader) parseObs() *LineError {
 
 func (r *JSONLReader) parseEnts() *LineError {
 	p := &r.p
+	r.lineEnts = true
 	if p.peek() != '[' {
 		if !p.skip(0) {
 			return p.syntax("bad value")

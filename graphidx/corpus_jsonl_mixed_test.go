@@ -55,23 +55,16 @@ func TestJSONLMixedPresenceAndValues(t *testing.T) {
 			t.Parallel()
 			data := strings.Join(tc.lines, "\n") + "\n"
 			r := NewJSONLReader(strings.NewReader(data), "mixed.jsonl")
-			n := 0
-			for {
-				_, err := r.Next()
-				if err == io.EOF {
-					break
-				}
-				if err != nil {
-					t.Fatal(err)
-				}
-				n++
+			n, err := countContexts(r)
+			if err != nil {
+				t.Fatal(err)
 			}
 			if n != len(tc.lines)-len(tc.bad) || r.Skipped()[ReasonMixedForms] != len(tc.bad) {
 				t.Fatalf("%d contexts, skipped %v; want %d mixed-forms", n, r.Skipped(), len(tc.bad))
 			}
 			// Strict: the first bad line is the error, with file:line.
 			sr := NewJSONLReader(strings.NewReader(data), "mixed.jsonl", WithPolicy(Strict))
-			var err error
+			err = nil
 			for err == nil {
 				_, err = sr.Next()
 			}
@@ -101,6 +94,17 @@ func TestJSONLMixedPresenceAndValues(t *testing.T) {
 	}
 }
 
+// countContexts reads r to the end and returns the number of contexts.
+func countContexts(r *JSONLReader) (int, error) {
+	for n := 0; ; n++ {
+		if _, err := r.Next(); err == io.EOF {
+			return n, nil
+		} else if err != nil {
+			return n, err
+		}
+	}
+}
+
 // BenchmarkJSONLReaderFormCheck reads the build benchmark's corpus with the
 // cross-line form check and, in the same loop and in alternating order,
 // with the same reader without it (the baseline). It reports the process
@@ -112,20 +116,13 @@ func BenchmarkJSONLReaderFormCheck(b *testing.B) {
 		t0 := cpuTime()
 		r := NewJSONLReader(bytes.NewReader(data), "bench.jsonl")
 		r.setTransient(true)
-		r.noFormCheck = !check
-		n := 0
-		for {
-			_, err := r.Next()
-			if err == io.EOF {
-				break
-			}
-			if err != nil {
-				b.Fatal(err)
-			}
-			n++
+		r.forms.off = !check
+		n, err := countContexts(r)
+		if err != nil {
+			b.Fatal(err)
 		}
-		if n != 50_000 || (check && len(r.forms) == 0) {
-			b.Fatalf("%d contexts, %d entities recorded", n, len(r.forms))
+		if n != 50_000 || (check && len(r.forms.m) == 0) {
+			b.Fatalf("%d contexts, %d entities recorded", n, len(r.forms.m))
 		}
 		return cpuTime() - t0
 	}

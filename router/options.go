@@ -239,7 +239,10 @@ func WithMaxCandidates(k int) Option {
 }
 
 // WithModel sets the error model. Default: scorer.NewBayes with WithAlpha /
-// WithBeta when given, else the scorer defaults. A nil model is an error.
+// WithBeta when given, else the scorer defaults, except on a presence-only
+// index (scorer.PresenceOnly), which without WithModel is scored by
+// scorer.NewSupport with its defaults (chosen per index at New and Swap).
+// A nil model is an error.
 // The search relies on EdgeCost ≥ 0 and on a chain's Err ≥ HopBias()·m, as
 // both scorer models guarantee; EdgeCost need not be monotone in support.
 func WithModel(m scorer.Model) Option {

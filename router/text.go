@@ -149,6 +149,11 @@ func (r *Router) DecideText(ctx context.Context, lex *graphidx.Lexicon, text str
 // message lists the entity's known values; then Decide's errors (the first
 // one stops the call). With a fallback mode configured, unknown entities
 // and values get Decide's fallback decisions instead.
+//
+// The queries are formed and decided on one index generation: when the
+// index is swapped meanwhile (a decision, or the router, is on another
+// generation), the call starts over, at most textAttempts times; the last
+// attempt is returned as it is.
 func (r *Router) DecideMentions(ctx context.Context, ms []graphidx.Mention, opts ...TextOption) (TextDecision, error) {
 	cfg := textConfig{maxQueries: DefaultMaxTextQueries}
 	for _, o := range opts {
@@ -159,11 +164,44 @@ func (r *Router) DecideMentions(ctx context.Context, ms []graphidx.Mention, opts
 			return TextDecision{}, err
 		}
 	}
+	var td TextDecision
+	var err error
+	for range textAttempts {
+		var gen uint64
+		td, gen, err = r.decideMentionsOnce(ctx, ms, &cfg)
+		if !swappedDuring(r, &td, gen) {
+			break
+		}
+	}
+	return td, err
+}
+
+// textAttempts bounds how often DecideMentions starts over because the
+// index was swapped while it formed and decided queries.
+const textAttempts = 3
+
+// swappedDuring reports whether the queries of td were formed on
+// generation gen but some decision, or the router now, is on another.
+func swappedDuring(r *Router, td *TextDecision, gen uint64) bool {
+	if r.Generation() != gen {
+		return true
+	}
+	for _, d := range td.Decisions {
+		if d.Generation != gen {
+			return true
+		}
+	}
+	return false
+}
+
+// decideMentionsOnce forms and decides once; it returns the generation the
+// queries were formed on.
+func (r *Router) decideMentionsOnce(ctx context.Context, ms []graphidx.Mention, cfg *textConfig) (TextDecision, uint64, error) {
 	td := TextDecision{Mentions: ms}
-	qs, presence, err := r.formQueries(ms)
+	qs, presence, gen, err := r.formQueries(ms)
 	td.PresenceOnly = presence
 	if err != nil {
-		return td, err
+		return td, gen, err
 	}
 	if len(qs) > cfg.maxQueries {
 		td.Dropped = len(qs) - cfg.maxQueries
@@ -175,14 +213,14 @@ func (r *Router) DecideMentions(ctx context.Context, ms []graphidx.Mention, opts
 		qs[i].Key = cfg.key
 		d, err := r.Decide(ctx, qs[i].Query)
 		if err != nil {
-			return td, fmt.Errorf("router: query %d (%s = %s → %s): %w", i+1, qs[i].From, qs[i].Value, qs[i].To, r.explainTextErr(qs[i], err))
+			return td, gen, fmt.Errorf("router: query %d (%s = %s → %s): %w", i+1, qs[i].From, qs[i].Value, qs[i].To, r.explainTextErr(qs[i], err))
 		}
 		if len(qs) == 1 { // not looked up by formQueries
 			qs[i].Support = d.Direct.Support
 		}
 		td.Decisions = append(td.Decisions, d)
 	}
-	return td, nil
+	return td, gen, nil
 }
 
 // SplitMentions applies the evidence and target rules (2 and 3 above) to
@@ -288,18 +326,18 @@ func (s *mentionSet) len() int {
 // index look-up here: its support is the decision's Direct.Support, and
 // unknown entities and values surface as Decide's errors (see
 // explainTextErr).
-func (r *Router) formQueries(ms []graphidx.Mention) ([]TextQuery, bool, error) {
+func (r *Router) formQueries(ms []graphidx.Mention) ([]TextQuery, bool, uint64, error) {
 	h := r.cur.Load()
 	if h == nil {
-		return nil, false, ErrClosed
+		return nil, false, 0, ErrClosed
 	}
-	presence := h.presence
+	presence, gen := h.presence, h.gen
 	ev, tg, err := SplitMentions(ms, presence)
 	if err != nil {
-		return nil, presence, err
+		return nil, presence, gen, err
 	}
 	if n := max(distinctEntities(ev), len(tg)); n > MaxTextEntities {
-		return nil, presence, fmt.Errorf("%w: %d distinct evidence or target entities, limit %d", ErrTooManyMentions, n, MaxTextEntities)
+		return nil, presence, gen, fmt.Errorf("%w: %d distinct evidence or target entities, limit %d", ErrTooManyMentions, n, MaxTextEntities)
 	}
 	qs := make([]TextQuery, 0, len(ev)*len(tg))
 	for _, e := range ev {
@@ -312,14 +350,15 @@ func (r *Router) formQueries(ms []graphidx.Mention) ([]TextQuery, bool, error) {
 		}
 	}
 	if len(qs) < 2 {
-		return qs, presence, nil
+		return qs, presence, gen, nil
 	}
-	for !h.tryAcquire() {
-		if h = r.cur.Load(); h == nil {
-			return nil, presence, ErrClosed
-		}
+	if h, err = r.acquire(); err != nil {
+		return nil, presence, gen, err
 	}
 	defer h.release()
+	if h.gen != gen {
+		return qs, presence, gen, nil // swapped: DecideMentions starts over
+	}
 	g := h.g
 	type end struct {
 		id graphidx.EntityID
@@ -354,7 +393,7 @@ func (r *Router) formQueries(ms []graphidx.Mention) ([]TextQuery, bool, error) {
 		}
 		return a.Target.Start - b.Target.Start
 	})
-	return qs, presence, nil
+	return qs, presence, gen, nil
 }
 
 // explainTextErr adds to a Decide error of a text query the mention behind

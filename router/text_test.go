@@ -132,6 +132,14 @@ func TestDecideMentionsOrderAndErrors(t *testing.T) {
 	if !errors.Is(err, ErrUnknownValue) || !strings.Contains(err.Error(), `the index knows "closed", "open"`) {
 		t.Errorf("unknown value: %v", err)
 	}
+	var crowd []graphidx.Mention
+	crowd = append(crowd, mention("vent-north", "open", 0))
+	for i := range MaxTextEntities + 1 {
+		crowd = append(crowd, mention(fmt.Sprintf("bed-%03d", i), "", 10+i))
+	}
+	if _, err := r.DecideMentions(ctx, crowd); !errors.Is(err, ErrTooManyMentions) {
+		t.Errorf("%d targets: %v", MaxTextEntities+1, err)
+	}
 	unknown := []graphidx.Mention{mention("vent-south", "open", 0), mention("bed-tomato", "", 9)}
 	if _, err := r.DecideMentions(ctx, unknown); !errors.Is(err, ErrUnknownEntity) || !strings.Contains(err.Error(), "vent-south") {
 		t.Errorf("unknown entity: %v", err)
@@ -194,5 +202,49 @@ func TestDecideTextPresenceOnly(t *testing.T) {
 	}
 	if _, err := r.DecideText(ctx, lex, "bad \xff byte"); !errors.Is(err, graphidx.ErrInvalidText) {
 		t.Errorf("invalid text: %v", err)
+	}
+}
+
+// TestDecideMentionsDuringSwap: text decisions stay consistent while the
+// index is swapped between a valued and a presence-only one: each call
+// forms its queries under one rule and every decision succeeds or names a
+// documented error.
+func TestDecideMentionsDuringSwap(t *testing.T) {
+	t.Parallel()
+	r, err := New(greenhouse(1))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer r.Close()
+	// Both graphs hold vent-north and pump-2; the valued one reads "open"
+	// as a value, the presence-only one ignores it.
+	ms := []graphidx.Mention{mention("vent-north", "open", 0), mention("pump-2", "", 20)}
+	done := make(chan struct{})
+	go func() {
+		defer close(done)
+		for i := range 40 {
+			g := Graph(greenhouse(uint64(10 + i)))
+			if i%2 == 0 {
+				g = presenceGraph(false)
+			}
+			if err := r.Swap(g); err != nil {
+				t.Error(err)
+				return
+			}
+		}
+	}()
+	defer func() { <-done }() // before r.Close
+	ctx := context.Background()
+	for range 400 {
+		td, err := r.DecideMentions(ctx, ms)
+		if err != nil {
+			t.Error(err)
+			break
+		}
+		for i, q := range td.Queries {
+			if td.PresenceOnly != (q.Value == graphidx.PresentValue) {
+				t.Fatalf("query %d %+v under presence=%v", i, q.Query, td.PresenceOnly)
+			}
+		}
 	}
 }

@@ -34,7 +34,9 @@ type BridgeDist struct {
 // the chain carries forward to the next link); the decision's
 // Chain.Estimate is x_(m+1) at the target.
 //
-// This is a separate call so that Decide stays as it is: a decision does not
+// The matrices are the current configuration's (a Reconfigure of α between
+// the decision and this call changes them). This is a separate call so
+// that Decide stays as it is: a decision does not
 // carry the intermediate rows, and most callers never need them. It returns
 // nil and no error when d has no chain. Errors: ErrClosed,
 // ErrStaleDecision (d.Generation is not the current index generation),
@@ -52,14 +54,9 @@ func (r *Router) ChainDists(ctx context.Context, q Query, d Decision) ([]BridgeD
 		return nil, err
 	}
 	st := r.cfg.Load()
-	h := r.cur.Load()
-	if h == nil {
-		return nil, ErrClosed
-	}
-	for !h.tryAcquire() {
-		if h = r.cur.Load(); h == nil {
-			return nil, ErrClosed
-		}
+	h, err := r.acquire()
+	if err != nil {
+		return nil, err
 	}
 	defer h.release()
 	if d.Generation != h.gen {
@@ -120,14 +117,9 @@ func (r *Router) PresenceOnly() bool {
 // for entity (ascending byte order), or ErrUnknownEntity, or ErrClosed.
 // For error messages and query forms. O(K + Σ len(labels)).
 func (r *Router) EntityValues(entity string) ([]string, error) {
-	h := r.cur.Load()
-	if h == nil {
-		return nil, ErrClosed
-	}
-	for !h.tryAcquire() {
-		if h = r.cur.Load(); h == nil {
-			return nil, ErrClosed
-		}
+	h, err := r.acquire()
+	if err != nil {
+		return nil, err
 	}
 	defer h.release()
 	id, ok := h.g.Lookup(entity)
@@ -135,4 +127,17 @@ func (r *Router) EntityValues(entity string) ([]string, error) {
 		return nil, fmt.Errorf("%w: %q", ErrUnknownEntity, entity)
 	}
 	return cloneLabels(h.g.Values(id)), nil
+}
+
+// acquire takes a reference on the current index handle; the caller
+// releases it. ErrClosed after Close.
+func (r *Router) acquire() (*handle, error) {
+	h := r.cur.Load()
+	for h != nil && !h.tryAcquire() {
+		h = r.cur.Load()
+	}
+	if h == nil {
+		return nil, ErrClosed
+	}
+	return h, nil
 }

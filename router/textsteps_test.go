@@ -49,19 +49,27 @@ func vecMat(x []float64, m [][]float64) []float64 {
 	return out
 }
 
+// decideOn returns a router over g (closed when the test ends) and its
+// decision of q.
+func decideOn(t *testing.T, g Graph, q Query, opts ...Option) (*Router, Decision) {
+	t.Helper()
+	r, err := New(g, opts...)
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { r.Close() })
+	d, err := r.Decide(context.Background(), q)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return r, d
+}
+
 func TestChainDistsMatchHandProduct(t *testing.T) {
 	t.Parallel()
-	r, err := New(pathGraph(7), WithGainThreshold(-1))
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer r.Close()
 	ctx := context.Background()
 	q := Query{From: "vent-north", Value: "open", To: "bed-4"}
-	d, err := r.Decide(ctx, q)
-	if err != nil {
-		t.Fatal(err)
-	}
+	r, d := decideOn(t, pathGraph(7), q, WithGainThreshold(-1))
 	if d.Mode != ModeChain || len(d.Bridges) != 2 {
 		t.Fatalf("want a two-bridge chain, got %v %v", d.Mode, d.Bridges)
 	}
@@ -108,16 +116,8 @@ func TestChainDistsMatchHandProduct(t *testing.T) {
 func TestChainDistsErrors(t *testing.T) {
 	t.Parallel()
 	ctx := context.Background()
-	r, err := New(pathGraph(7), WithGainThreshold(-1))
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer r.Close()
 	q := Query{From: "vent-north", Value: "open", To: "bed-4"}
-	d, err := r.Decide(ctx, q)
-	if err != nil {
-		t.Fatal(err)
-	}
+	r, d := decideOn(t, pathGraph(7), q, WithGainThreshold(-1))
 	direct := d
 	direct.Chain, direct.Bridges = nil, nil
 	if got, err := r.ChainDists(ctx, q, direct); got != nil || err != nil {

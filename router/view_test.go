@@ -1,7 +1,6 @@
 package router
 
 import (
-	"context"
 	"encoding/json"
 	"reflect"
 	"slices"
@@ -11,7 +10,6 @@ import (
 
 func TestViewJSON(t *testing.T) {
 	t.Parallel()
-	ctx := context.Background()
 	keys := func(t *testing.T, b []byte) map[string]any {
 		t.Helper()
 		var m map[string]any
@@ -22,16 +20,8 @@ func TestViewJSON(t *testing.T) {
 	}
 	t.Run("valued chain", func(t *testing.T) {
 		t.Parallel()
-		r, err := New(pathGraph(7), WithGainThreshold(-1))
-		if err != nil {
-			t.Fatal(err)
-		}
-		defer r.Close()
 		q := Query{From: "vent-north", Value: "open", To: "bed-4"}
-		d, err := r.Decide(ctx, q)
-		if err != nil {
-			t.Fatal(err)
-		}
+		r, d := decideOn(t, pathGraph(7), q, WithGainThreshold(-1))
 		b, err := json.Marshal(NewView(q, d, r.ErrorMeasure()))
 		if err != nil {
 			t.Fatal(err)
@@ -72,16 +62,8 @@ func TestViewJSON(t *testing.T) {
 	})
 	t.Run("presence-only", func(t *testing.T) {
 		t.Parallel()
-		r, err := New(presenceGraph(false))
-		if err != nil {
-			t.Fatal(err)
-		}
-		defer r.Close()
 		q := Query{From: "vent-north", Value: "present", To: "bed-4"}
-		d, err := r.Decide(ctx, q)
-		if err != nil {
-			t.Fatal(err)
-		}
+		r, d := decideOn(t, presenceGraph(false), q)
 		b, _ := json.Marshal(NewView(q, d, r.ErrorMeasure()))
 		m := keys(t, b)
 		if _, ok := m["estimate"]; ok {
@@ -96,16 +78,8 @@ func TestViewJSON(t *testing.T) {
 	})
 	t.Run("fallback", func(t *testing.T) {
 		t.Parallel()
-		r, err := New(greenhouse(1), WithFallback(ModeDirect))
-		if err != nil {
-			t.Fatal(err)
-		}
-		defer r.Close()
 		q := Query{From: "vent-south", Value: "open", To: "bed-tomato"}
-		d, err := r.Decide(ctx, q)
-		if err != nil {
-			t.Fatal(err)
-		}
+		r, d := decideOn(t, greenhouse(1), q, WithFallback(ModeDirect))
 		b, _ := json.Marshal(NewView(q, d, r.ErrorMeasure()))
 		m := keys(t, b)
 		for _, k := range []string{"estimate", "sq_error_sum", "error_proxy"} {

@@ -28,6 +28,9 @@ type routeOptions struct {
 	key              string
 	queries          string
 	text, lexicon    string
+	chainTemplate    string
+	directTemplate   string
+	tp               *textPlanner // set by runRoute from --lexicon
 	json             bool
 	workers          int
 	timeout          time.Duration
@@ -112,6 +115,8 @@ fatal error (index, config, flags, I/O).`,
 	f.StringVar(&o.queries, "queries", "", "JSONL file of queries, - for stdin (batch)")
 	f.StringVar(&o.text, "text", "", "prompt text to link, form queries from and decide (needs --lexicon)")
 	f.StringVar(&o.lexicon, "lexicon", "", "lexicon TSV for --text and for text lines of --queries")
+	f.StringVar(&o.chainTemplate, "chain-template", "", "text/template file replacing the default chain plan (fields: docs/PLANS.md)")
+	f.StringVar(&o.directTemplate, "direct-template", "", "text/template file replacing the default direct plan")
 	f.BoolVar(&o.json, "json", false, "single query: print the batch JSON object")
 	f.IntVar(&o.workers, "workers", runtime.GOMAXPROCS(0), "batch: goroutines deciding in parallel")
 	f.DurationVar(&o.timeout, "timeout", 0, "deadline per decision (0: none); a cut search is reported as truncated")
@@ -175,6 +180,9 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 	if text && o.lexicon == "" {
 		return errors.New("route: --text needs --lexicon")
 	}
+	if (o.chainTemplate != "" || o.directTemplate != "") && o.lexicon == "" {
+		return errors.New("route: --chain-template and --direct-template render plans of texts, which need --lexicon")
+	}
 	if o.workers < 1 {
 		return fmt.Errorf("route: --workers must be ≥ 1, got %d", o.workers)
 	}
@@ -189,9 +197,8 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 	if err != nil {
 		return err
 	}
-	var tp *textPlanner
 	if o.lexicon != "" {
-		if tp, err = newTextPlanner(o.lexicon, cfg); err != nil {
+		if o.tp, err = newTextPlanner(o.lexicon, o.chainTemplate, o.directTemplate, cfg); err != nil {
 			return err
 		}
 	}
@@ -213,11 +220,11 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 	defer out.Flush()
 
 	if text {
-		return tp.runSingle(ctx, r, out, o)
+		return o.tp.runSingle(ctx, r, out, o)
 	}
 	if single {
 		q := routeQuery{ID: "", From: o.from, Value: o.value, To: o.to, Key: o.key}
-		d, err := decideOne(ctx, r, &q, o.timeout)
+		d, err := decideSingle(ctx, r, &q, o.timeout)
 		if err != nil {
 			if o.json {
 				line, _ := json.Marshal(routeError{ID: nil, Error: err.Error()})
@@ -247,7 +254,7 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 		defer f.Close()
 		in = f
 	}
-	failed, total, err := routeBatch(ctx, r, tp, in, o.queries, out, o)
+	failed, total, err := routeBatch(ctx, r, in, o.queries, out, o)
 	if err != nil {
 		return err
 	}
@@ -260,26 +267,13 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 	return nil
 }
 
-// decideOne decides q. An empty value means "present" on a presence-only
-// index (q.Value is set to it) and is an error listing the entity's values
-// on a valued one; so is an unknown value.
-func decideOne(ctx context.Context, r *router.Router, q *routeQuery, timeout time.Duration) (router.Decision, error) {
-	if q.Value == "" {
-		if !r.PresenceOnly() {
-			return router.Decision{}, fmt.Errorf("no value given for %q; it has %s", q.From, knownValues(r, q.From))
-		}
-		q.Value = graphidx.PresentValue
-	}
+func decideOne(ctx context.Context, r *router.Router, q routeQuery, timeout time.Duration) (router.Decision, error) {
 	if timeout > 0 {
 		var cancel context.CancelFunc
 		ctx, cancel = context.WithTimeout(ctx, timeout)
 		defer cancel()
 	}
-	d, err := r.Decide(ctx, router.Query{From: q.From, Value: q.Value, To: q.To, Key: q.Key})
-	if errors.Is(err, router.ErrUnknownValue) {
-		err = fmt.Errorf("%w; it has %s", err, knownValues(r, q.From))
-	}
-	return d, err
+	return r.Decide(ctx, router.Query{From: q.From, Value: q.Value, To: q.To, Key: q.Key})
 }
 
 // routeQuery is one batch input line.
@@ -335,23 +329,11 @@ func parseQueryLine(b []byte, line int) (routeQuery, bool, error) {
 		}
 		return q, false, fmt.Errorf("line %d: %v", line, err)
 	}
-	if _, ok := raw["text"]; ok {
-		for _, f := range []string{"from", "value", "to"} {
-			if _, ok := raw[f]; ok {
-				return q, idSet, fmt.Errorf("line %d: field %q: a line has either \"text\" or \"from\"/\"value\"/\"to\"", line, f)
-			}
-		}
-		if q.Text == "" {
-			return q, idSet, fmt.Errorf("line %d: field \"text\" is empty", line)
-		}
-		return q, idSet, nil
-	}
-	// "value" may be left out on a presence-only index (decideOne).
 	for _, f := range []struct{ name, v string }{{"id", q.ID}, {"from", q.From}, {"value", q.Value}, {"to", q.To}} {
-		if _, ok := raw[f.name]; !ok && f.name != "value" {
+		if _, ok := raw[f.name]; !ok {
 			return q, idSet, fmt.Errorf("line %d: missing field %q", line, f.name)
 		}
-		if _, ok := raw[f.name]; ok && f.v == "" && f.name != "id" {
+		if f.v == "" && f.name != "id" {
 			return q, idSet, fmt.Errorf("line %d: field %q is empty", line, f.name)
 		}
 	}
@@ -362,7 +344,7 @@ func parseQueryLine(b []byte, line int) (routeQuery, bool, error) {
 // order. It processes chunks of lines with o.workers goroutines so memory
 // stays bounded. It returns the number of failed and total lines; err is
 // only for fatal I/O errors.
-func routeBatch(ctx context.Context, r *router.Router, tp *textPlanner, in io.Reader, name string, out io.Writer, o routeOptions) (failed, total int, err error) {
+func routeBatch(ctx context.Context, r *router.Router, in io.Reader, name string, out io.Writer, o routeOptions) (failed, total int, err error) {
 	br := bufio.NewReaderSize(in, 64<<10)
 	const chunk = 1024
 	items := make([]batchItem, 0, chunk)
@@ -387,7 +369,7 @@ func routeBatch(ctx context.Context, r *router.Router, tp *textPlanner, in io.Re
 			case len(bytes.TrimSpace(b)) == 0:
 				it.err = fmt.Errorf("line %d: empty line", lineNo)
 			default:
-				it.q, it.idSet, it.err = parseQueryLine(b, lineNo)
+				it.q, it.idSet, it.err = parseRouteLine(b, lineNo)
 			}
 			items = append(items, it)
 			if rerr == io.EOF {
@@ -395,7 +377,7 @@ func routeBatch(ctx context.Context, r *router.Router, tp *textPlanner, in io.Re
 				break
 			}
 		}
-		decideChunk(ctx, r, tp, items, o)
+		decideChunk(ctx, r, items, o)
 		for i := range items {
 			it := &items[i]
 			total++
@@ -442,16 +424,16 @@ func readLine(br *bufio.Reader, max int) (line []byte, tooLong bool, err error) 
 
 // decideChunk decides the items on o.workers goroutines and renders each
 // item's output line.
-func decideChunk(ctx context.Context, r *router.Router, tp *textPlanner, items []batchItem, o routeOptions) {
+func decideChunk(ctx context.Context, r *router.Router, items []batchItem, o routeOptions) {
 	work := func(it *batchItem) {
 		if it.err == nil && it.q.Text != "" {
-			if it.out, it.err = tp.batchLine(ctx, r, it.q, it.line, o); it.out != nil {
+			if it.out, it.err = o.tp.batchLine(ctx, r, it.q, it.line, o); it.out != nil {
 				return
 			}
 			it.err = fmt.Errorf("line %d: %w", it.line, it.err)
 		}
 		if it.err == nil {
-			d, err := decideOne(ctx, r, &it.q, o.timeout)
+			d, err := decideOne(ctx, r, it.q, o.timeout)
 			if err != nil {
 				it.err = fmt.Errorf("line %d: %w", it.line, err)
 			} else if b, err := json.Marshal(newRouteLine(it.q, d, r.ErrorMeasure())); err != nil {

@@ -1,13 +1,17 @@
 package cli
 
 import (
+	"bytes"
 	"context"
 	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
+	"os"
+	"slices"
 	"strconv"
 	"strings"
+	"time"
 
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/router"
@@ -22,14 +26,30 @@ type textPlanner struct {
 	cfg  router.Config // for the readable account
 }
 
-func newTextPlanner(lexicon string, cfg router.Config) (*textPlanner, error) {
+// newTextPlanner loads the lexicon and the plan templates (the defaults
+// unless chainTmpl or directTmpl name a file).
+func newTextPlanner(lexicon, chainTmpl, directTmpl string, cfg router.Config) (*textPlanner, error) {
 	lex, err := graphidx.LoadLexicon(lexicon)
 	if err != nil {
 		return nil, fmt.Errorf("route: --lexicon: %w", err)
 	}
-	rend, err := plan.NewRenderer()
+	var opts []plan.RenderOption
+	for _, t := range []struct {
+		flag, path string
+		opt        func(string) plan.RenderOption
+	}{{"--chain-template", chainTmpl, plan.WithChainTemplate}, {"--direct-template", directTmpl, plan.WithDirectTemplate}} {
+		if t.path == "" {
+			continue
+		}
+		b, err := os.ReadFile(t.path)
+		if err != nil {
+			return nil, fmt.Errorf("route: %s: %w", t.flag, err)
+		}
+		opts = append(opts, t.opt(string(b)))
+	}
+	rend, err := plan.NewRenderer(opts...)
 	if err != nil {
-		return nil, err
+		return nil, fmt.Errorf("route: %w (templates: %q, %q)", err, chainTmpl, directTmpl)
 	}
 	return &textPlanner{lex: lex, rend: rend, cfg: cfg}, nil
 }
@@ -230,4 +250,77 @@ func btoi(b bool) int {
 		return 1
 	}
 	return 0
+}
+
+// decideSingle decides the query of `route --from/--value/--to`. An empty
+// value means "present" on a presence-only index (q.Value is set to it)
+// and is an error listing the entity's values on a valued one; an unknown
+// value's error lists them too.
+func decideSingle(ctx context.Context, r *router.Router, q *routeQuery, timeout time.Duration) (router.Decision, error) {
+	if q.Value == "" {
+		if !r.PresenceOnly() {
+			return router.Decision{}, fmt.Errorf("no value given for %q; it has %s", q.From, knownValues(r, q.From))
+		}
+		q.Value = graphidx.PresentValue
+	}
+	d, err := decideOne(ctx, r, *q, timeout)
+	if errors.Is(err, router.ErrUnknownValue) {
+		err = fmt.Errorf("%w; it has %s", err, knownValues(r, q.From))
+	}
+	return d, err
+}
+
+// textKeys are the keys of a text line of --queries.
+var textKeys = [...]string{"id", "text", "key"}
+
+// parseRouteLine parses one --queries line: a text line (it has a "text"
+// key: {"id","text"} and optionally "key") here, any other line by
+// parseQueryLine. A text line is decoded strictly: every key once, string
+// values, no other key (a "from", "value" or "to" beside "text" is named),
+// nothing after the object, and a non-empty text.
+func parseRouteLine(b []byte, line int) (routeQuery, bool, error) {
+	var q routeQuery
+	if !bytes.Contains(b, []byte(`"text"`)) {
+		return parseQueryLine(b, line)
+	}
+	var raw map[string]json.RawMessage
+	if err := json.Unmarshal(b, &raw); err != nil {
+		return parseQueryLine(b, line) // it reports the syntax error
+	}
+	if _, ok := raw["text"]; !ok {
+		return parseQueryLine(b, line)
+	}
+	_, idSet := raw["id"]
+	dec := json.NewDecoder(bytes.NewReader(b))
+	dec.Token() // '{', checked by Unmarshal above
+	seen := map[string]bool{}
+	for dec.More() {
+		tok, err := dec.Token()
+		if err != nil {
+			return q, idSet, fmt.Errorf("line %d: %v", line, err)
+		}
+		key, _ := tok.(string)
+		i := slices.Index(textKeys[:], key)
+		switch {
+		case key == "from" || key == "value" || key == "to":
+			return q, idSet, fmt.Errorf(`line %d: field %q: a line has either "text" or "from"/"value"/"to"`, line, key)
+		case i < 0:
+			return q, idSet, fmt.Errorf("line %d: unknown field %s", line, strconv.Quote(key))
+		case seen[key]:
+			return q, idSet, fmt.Errorf("line %d: field %q appears twice", line, key)
+		}
+		seen[key] = true
+		var v string
+		if err := dec.Decode(&v); err != nil {
+			return q, idSet, fmt.Errorf("line %d: field %q: want a string", line, key)
+		}
+		*[...]*string{&q.ID, &q.Text, &q.Key}[i] = v
+	}
+	if !seen["id"] {
+		return q, idSet, fmt.Errorf(`line %d: missing field "id"`, line)
+	}
+	if q.Text == "" {
+		return q, idSet, fmt.Errorf(`line %d: field "text" is empty`, line)
+	}
+	return q, idSet, nil
 }

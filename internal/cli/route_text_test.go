@@ -137,7 +137,10 @@ func TestRouteBatchTextLines(t *testing.T) {
 		`{"id":"t1","text":"With the north vent on, what about bed four?"}`,
 		`{"id":"t2","text":"only the north vent"}`,
 		`{"id":"t3","text":"north vent","to":"bed-4"}`,
-		`{"id":"q4","from":"vent-north","to":"bed-4"}`,
+		`{"id":"q4","from":"vent-north","value":"present","to":"bed-4"}`,
+		`{"id":"t5","text":"north vent","text":"bed four"}`,
+		`{"id":"t6","text":7}`,
+		`{"text":"north vent and bed four","key":"u1"}`,
 	}, "\n") + "\n"
 	if err := os.WriteFile(qs, []byte(input), 0o644); err != nil {
 		t.Fatal(err)
@@ -145,10 +148,10 @@ func TestRouteBatchTextLines(t *testing.T) {
 	out, err := routeCLI(t, "route", "--index", tags, "--lexicon", lex, "--queries", qs)
 	var ee *ExitError
 	if !errors.As(err, &ee) || ee.Code != 2 {
-		t.Fatalf("want exit 2 (two bad lines): %v\n%s", err, out)
+		t.Fatalf("want exit 2 (bad lines): %v\n%s", err, out)
 	}
 	lines := strings.Split(strings.TrimSuffix(out, "\n"), "\n")
-	if len(lines) != 4 {
+	if len(lines) != 7 {
 		t.Fatalf("%d lines:\n%s", len(lines), out)
 	}
 	var t1 textLineJSON
@@ -162,11 +165,45 @@ func TestRouteBatchTextLines(t *testing.T) {
 		t.Errorf("t3: %s", lines[2])
 	}
 	if !strings.Contains(lines[3], `"id":"q4"`) || !strings.Contains(lines[3], `"error_proxy"`) {
-		t.Errorf("q4 (no value on a presence-only index): %s", lines[3])
+		t.Errorf("q4 (presence-only index): %s", lines[3])
+	}
+	for i, want := range map[int]string{4: `field \"text\" appears twice`, 5: `field \"text\": want a string`, 6: `missing field \"id\"`} {
+		if !strings.Contains(lines[i], want) {
+			t.Errorf("line %d lacks %s: %s", i+1, want, lines[i])
+		}
 	}
 	// Without --lexicon a text line is an error line; the others still run.
 	out, _ = routeCLI(t, "route", "--index", valued, "--queries", qs)
 	if !strings.Contains(out, `"error":"line 1: field \"text\": a text line needs --lexicon"`) {
 		t.Errorf("no lexicon: %s", out)
+	}
+}
+
+func TestRouteTextTemplates(t *testing.T) {
+	t.Parallel()
+	_, tags, lex := writeTextFixtures(t)
+	dir := t.TempDir()
+	chain := filepath.Join(dir, "chain.tmpl")
+	os.WriteFile(chain, []byte("Plan for {{.ToName}}:{{range .Steps}} [{{.Name}}]{{end}}\n"), 0o644)
+	text := "The north vent is running. What about bed four?"
+	out, err := routeCLI(t, "route", "--index", tags, "--lexicon", lex, "--text", text, "--chain-template", chain)
+	if err != nil || !strings.Contains(out, "│ Plan for bed four: [pump two]") {
+		t.Errorf("own chain template: %v\n%s", err, out)
+	}
+	bad := filepath.Join(dir, "bad.tmpl")
+	os.WriteFile(bad, []byte("{{range .Steps}"), 0o644)
+	_, err = routeCLI(t, "route", "--index", tags, "--lexicon", lex, "--text", text, "--direct-template", bad)
+	var ee *ExitError
+	if err == nil || errors.As(err, &ee) || !strings.Contains(err.Error(), "direct template") || !strings.Contains(err.Error(), "bad.tmpl") {
+		t.Errorf("unparsable template: %v", err)
+	}
+	fails := filepath.Join(dir, "fails.tmpl")
+	os.WriteFile(fails, []byte("{{index .Steps 7}}"), 0o644)
+	out, err = routeCLI(t, "route", "--index", tags, "--lexicon", lex, "--text", text, "--chain-template", fails)
+	if !errors.As(err, &ee) || ee.Code != 2 || !strings.Contains(out, "plan: template") {
+		t.Errorf("failing template: %v\n%s", err, out)
+	}
+	if _, err := routeCLI(t, "route", "--index", tags, "--from", "vent-north", "--to", "bed-4", "--chain-template", chain); err == nil {
+		t.Error("--chain-template without --lexicon accepted")
 	}
 }

@@ -111,21 +111,11 @@ func textPass(ctx context.Context, cfg Config, w *world.World, rep *Report) erro
 	if err != nil {
 		return fmt.Errorf("demo: %w", err)
 	}
-	idx, err := graphidx.Open(rep.Files.Index)
+	r, err := openRouter(cfg, rep)
 	if err != nil {
-		return fmt.Errorf("demo: %w", err)
+		return err
 	}
-	model, err := scorer.NewBayes(scorer.WithBeta(rep.Eval.Beta))
-	if err != nil {
-		idx.Close()
-		return fmt.Errorf("demo: %w", err)
-	}
-	r, err := router.New(idx, append([]router.Option{router.WithModel(model)}, cfg.RouterOptions...)...)
-	if err != nil {
-		idx.Close()
-		return fmt.Errorf("demo: %w", err)
-	}
-	defer r.Close() // closes idx
+	defer r.Close() // closes the index
 	rend, err := plan.NewRenderer()
 	if err != nil {
 		return fmt.Errorf("demo: %w", err)
@@ -238,4 +228,25 @@ func (r *Report) writeTexts(b *strings.Builder) {
 			}
 		}
 	}
+}
+
+// openRouter opens the demo's index in a router configured as the eval
+// harness's: the Bayes model with the fitted β, then cfg.RouterOptions. The
+// router owns the index.
+func openRouter(cfg Config, rep *Report) (*router.Router, error) {
+	idx, err := graphidx.Open(rep.Files.Index)
+	if err != nil {
+		return nil, fmt.Errorf("demo: %w", err)
+	}
+	model, err := scorer.NewBayes(scorer.WithBeta(rep.Eval.Beta))
+	if err != nil {
+		idx.Close()
+		return nil, fmt.Errorf("demo: %w", err)
+	}
+	r, err := router.New(idx, append([]router.Option{router.WithModel(model)}, cfg.RouterOptions...)...)
+	if err != nil {
+		idx.Close()
+		return nil, fmt.Errorf("demo: %w", err)
+	}
+	return r, nil
 }

@@ -49,7 +49,7 @@ func ExampleRenderer_Render_chain() {
 	}
 	// Output:
 	// Work this out in steps before answering.
-	// Known: the moisture probe in bed 11 is reads-wet.
+	// Known: the moisture probe in bed 11: reads-wet.
 	// Step 1: work out the state of the soil moisture of bed 10 (the records lean to "damp", 81%).
 	// Finally, from those steps, say what leaf wilt in bed 10 is likely to be. Put the answer after the steps.
 }
@@ -84,7 +84,7 @@ func ExampleRenderer_Render_direct() {
 	s, err = own.Render(p)
 	fmt.Print(s, err, "\n")
 	// Output:
-	// Answer directly (zone-3/vent-a is open; the question is about zone-3/humidity). Skip step-by-step working: give the answer and at most one sentence of reason.
+	// Answer directly (known: zone-3/vent-a: open; asked: zone-3/humidity). Skip step-by-step working: give the answer and at most one sentence of reason.
 	// <nil>
 	// Reply in one line about zone-3/humidity (1200 records; likely low, 78%).
 	// <nil>

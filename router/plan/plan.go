@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"math"
 
+	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/router"
 )
 
@@ -14,8 +15,9 @@ import (
 // differ).
 var ErrMismatch = errors.New("plan: bridge distributions do not match the decision")
 
-// Namer gives an entity's display name. *graphidx.Lexicon satisfies it. An
-// empty name means "none": the plan then shows the entity id.
+// Namer gives an entity's display name. *graphidx.Lexicon satisfies it (a
+// nil *Lexicon names nothing). An empty name means "none": the plan then
+// shows the entity id.
 type Namer interface {
 	DisplayName(entity string) string
 }
@@ -133,9 +135,7 @@ func FromDists(q router.Query, d router.Decision, dists []router.BridgeDist, m r
 	return p, nil
 }
 
-// presentValue is graphidx.PresentValue (kept here so that the package
-// does not import graphidx for one constant).
-const presentValue = "present"
+const presentValue = graphidx.PresentValue
 
 // pick returns the step of entity with its most probable value. An entity
 // with fewer than two labels, or whose probabilities are missing or not
@@ -159,6 +159,9 @@ func pick(entity, name string, labels []string, dist []float64) Step {
 }
 
 func nameOf(n Namer, entity string) string {
+	if l, ok := n.(*graphidx.Lexicon); ok && l == nil {
+		return entity // a nil *Lexicon in the interface: no names
+	}
 	if n != nil {
 		if s := n.DisplayName(entity); s != "" {
 			return s

@@ -3,9 +3,11 @@ package plan_test
 import (
 	"context"
 	"errors"
+	"math"
 	"strings"
 	"testing"
 
+	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/router"
 	"github.com/hopwise/hopwise/router/plan"
 )
@@ -100,6 +102,21 @@ func TestFromDists(t *testing.T) {
 					t.Errorf("direct plan %+v", p)
 				}
 			}},
+		{name: "nil lexicon namer, non-finite distribution", q: q, d: chainDecision("pump-2"), measure: router.MeasureSqErrorSum,
+			namer: (*graphidx.Lexicon)(nil),
+			dists: []router.BridgeDist{{Entity: "pump-2", Values: []string{"off", "on"}, Dist: []float64{math.NaN(), 0.5}}},
+			check: func(t *testing.T, p plan.Plan) {
+				if p.Steps[0].HasValue || p.Steps[0].Name != "pump-2" || p.FromName != "vent-a" {
+					t.Errorf("steps %+v from %q", p.Steps, p.FromName)
+				}
+			}},
+		{name: "chain fallback without a chain", q: q, d: router.Decision{Mode: router.ModeChain, Reason: router.Reason{Code: router.ReasonUnknownEntityFallback}},
+			measure: router.MeasureSqErrorSum,
+			check: func(t *testing.T, p plan.Plan) {
+				if len(p.Steps) != 0 || p.Answer.HasValue || plan.Template(p) != "direct" {
+					t.Errorf("fallback plan %+v renders %s", p, plan.Template(p))
+				}
+			}},
 		{name: "count mismatch", q: q, d: chainDecision("zone-1/hum"), dists: two, wantErr: plan.ErrMismatch},
 		{name: "entity mismatch", q: q, d: chainDecision("pump-2", "zone-1/hum"), dists: two, wantErr: plan.ErrMismatch},
 		{name: "length mismatch", q: q, d: chainDecision("pump-2"),
@@ -160,7 +177,7 @@ func TestRendererTemplates(t *testing.T) {
 		wantExec bool   // Render fails
 	}{
 		{name: "default chain", p: chain, want: `Step 1: work out the state of c (the records lean to "hi", 60%).`},
-		{name: "default direct", p: direct, want: "Answer directly (a is x; the question is about b)."},
+		{name: "default direct", p: direct, want: "Answer directly (known: a: x; asked: b)."},
 		{name: "chain without steps renders direct", p: func() plan.Plan { p := chain; p.Steps = nil; return p }(), want: "Answer directly"},
 		{name: "own chain", opts: []plan.RenderOption{plan.WithChainTemplate("{{range .Steps}}[{{.Name}}={{.Value}}]{{end}} {{fixed .Figure}}")},
 			p: chain, want: "[c=hi] 0.01"},

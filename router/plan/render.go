@@ -17,14 +17,14 @@ var ErrTemplate = errors.New("plan: template")
 // WithChainTemplate replaces it: work through the bridges in order, then
 // answer.
 const DefaultChainTemplate = `Work this out in steps before answering.
-{{if .HasValue}}Known: {{.FromName}} is {{.Value}}.{{else}}Known: {{.FromName}} is involved.{{end}}
+{{if .HasValue}}Known: {{.FromName}}: {{.Value}}.{{else}}Known: {{.FromName}} is involved.{{end}}
 {{range $i, $s := .Steps}}Step {{inc $i}}: work out the state of {{$s.Name}}{{if $s.HasValue}} (the records lean to "{{$s.Value}}", {{percent $s.Prob}}){{end}}.
 {{end}}Finally, from those steps, say {{if .Answer.HasValue}}what {{.ToName}} is likely to be{{else}}how {{.ToName}} is affected{{end}}. Put the answer after the steps.
 `
 
 // DefaultDirectTemplate is the direct template NewRenderer uses unless
 // WithDirectTemplate replaces it: answer without step-by-step working.
-const DefaultDirectTemplate = `Answer directly{{if .HasValue}} ({{.FromName}} is {{.Value}}; the question is about {{.ToName}}){{end}}. Skip step-by-step working: give the answer and at most one sentence of reason.
+const DefaultDirectTemplate = `Answer directly{{if .HasValue}} (known: {{.FromName}}: {{.Value}}; asked: {{.ToName}}){{end}}. Skip step-by-step working: give the answer and at most one sentence of reason.
 `
 
 // Funcs are the functions a template may call beside text/template's
