@@ -51,9 +51,9 @@ func CheckKeys(body []byte) error {
 				}
 				if prev, dup := top.seen(k); dup {
 					if prev == k {
-						return fmt.Errorf("duplicate key %q at byte %d", clip(k), dec.InputOffset())
+						return fmt.Errorf("duplicate key %q (the second ends at byte %d)", clip(k), dec.InputOffset())
 					}
-					return fmt.Errorf("keys %q and %q differ only in letter case (at byte %d); send one", clip(prev), clip(k), dec.InputOffset())
+					return fmt.Errorf("keys %q and %q differ only in letter case (the second ends at byte %d); send one", clip(prev), clip(k), dec.InputOffset())
 				}
 				top.add(k)
 				top.expect = false
