@@ -29,10 +29,8 @@ const (
 
 // Former forms the routing query from the text of the last user message.
 // It returns ok = false and a pass-through reason (one of the Pass* codes)
-// when the text asks nothing the router can decide. It may decide to choose
-// among candidate queries (TextFormer does); the gateway then decides the
-// chosen query again through otelx, which the router's decision cache
-// answers. It must be safe for concurrent use.
+// when the text asks nothing the router can decide. The gateway decides
+// the query through otelx. It must be safe for concurrent use.
 type Former interface {
 	Form(ctx context.Context, text, unit string) (q router.Query, reason string, ok bool)
 }
@@ -45,21 +43,34 @@ type Renderer interface {
 	Render(ctx context.Context, q router.Query, d router.Decision) (string, error)
 }
 
-// TextFormer forms queries by the router's text rules
-// (router.Router.DecideMentions: evidence = mentions stating a value,
-// targets = the others, least-supported pair first) and keeps the first.
-// Mentions the lexicon links without a value get the value the text states
-// right after them, when it is one of the entity's labels in the index
+// TextFormer forms the query by the router's text rules
+// (router.SplitMentions: evidence = mentions stating a value, targets = the
+// entities mentioned without one; on a presence-only index the first
+// mention is the evidence) and keeps the candidate the router would decide
+// first: the evidence × target pair of least support (contexts observing
+// both), ties to the earlier evidence, then the earlier target
+// (router.Router.DecideMentions orders them so). It does not decide: the
+// gateway decides the one query through otelx, so the traced decision is
+// the real one. Mentions the lexicon links without a value get the value
+// the text states right after them, when it is one of the entity's labels
 // ("zone-2/thermometer reads-cool", "… is reads-cool", "… = reads-cool"),
-// so a lexicon of bare entity names works too.
+// so a lexicon of bare entity names works too. Cost: Link, then
+// O(E·T) pair look-ups for E evidence and T target mentions.
 type TextFormer struct {
 	Lex    *graphidx.Lexicon
 	Router *router.Router
-	Vocab  Vocabulary
+	Vocab  Pairs
+}
+
+// Pairs is what TextFormer reads from the index (*graphidx.Index
+// satisfies it).
+type Pairs interface {
+	Vocabulary
+	Pair(a, b graphidx.EntityID) (graphidx.PairStats, bool)
 }
 
 // Form implements Former.
-func (f TextFormer) Form(ctx context.Context, text, unit string) (router.Query, string, bool) {
+func (f TextFormer) Form(_ context.Context, text, _ string) (router.Query, string, bool) {
 	ms, err := f.Lex.Link(text)
 	if err != nil {
 		return router.Query{}, PassBadText, false
@@ -67,22 +78,44 @@ func (f TextFormer) Form(ctx context.Context, text, unit string) (router.Query, 
 	if f.Vocab != nil {
 		attachValues(ms, text, f.Vocab)
 	}
-	td, err := f.Router.DecideMentions(ctx, ms, router.WithMaxQueries(1), router.WithTextKey(unit))
+	presence := f.Router.PresenceOnly()
+	ev, tg, err := router.SplitMentions(ms, presence)
 	switch {
-	case len(td.Queries) > 0:
-		// Formed; a failed decision (a deadline) is the gateway's to handle
-		// when it decides again.
-		return td.Queries[0].Query, "", true
 	case errors.Is(err, router.ErrNoMentions):
 		return router.Query{}, PassNoMention, false
 	case errors.Is(err, router.ErrNoEvidence):
 		return router.Query{}, PassNoValue, false
-	case errors.Is(err, router.ErrNoTarget), errors.Is(err, router.ErrSameEntity):
+	case err != nil:
 		return router.Query{}, PassOneEntity, false
-	case errors.Is(err, router.ErrTooManyMentions):
+	case len(ev) > router.MaxTextEntities || len(tg) > router.MaxTextEntities:
 		return router.Query{}, PassTooMany, false
 	}
-	return router.Query{}, PassUnknown, false
+	best, bestSup := [2]int{0, 0}, uint64(0)
+	if len(ev)*len(tg) > 1 && f.Vocab != nil {
+		first := true
+		for i, e := range ev {
+			a, aok := f.Vocab.Lookup(e.Entity)
+			for j, t := range tg {
+				var sup uint64
+				if b, bok := f.Vocab.Lookup(t.Entity); aok && bok {
+					if ps, ok := f.Vocab.Pair(a, b); ok {
+						sup = ps.Support()
+					}
+				}
+				// Evidence and targets come in first-mention order, so the
+				// first pair met at the least support is the router's first.
+				if first || sup < bestSup {
+					best, bestSup, first = [2]int{i, j}, sup, false
+				}
+			}
+		}
+	}
+	e, t := ev[best[0]], tg[best[1]]
+	v := e.Value
+	if presence {
+		v = graphidx.PresentValue
+	}
+	return router.Query{From: e.Entity, Value: v, To: t.Entity}, "", true
 }
 
 // attachValues gives each mention without a value the label of its entity

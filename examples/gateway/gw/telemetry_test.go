@@ -67,7 +67,7 @@ func TestGenAISpans(t *testing.T) {
 	if call[gw.KeyGenAIProvider].AsString() != "greenhouse-sim-provider" || call[gw.KeyGatewayRoute].AsString() != "chain" {
 		t.Errorf("call span: provider %q route %q", call[gw.KeyGenAIProvider].AsString(), call[gw.KeyGatewayRoute].AsString())
 	}
-	if decide[otelx.KeyRouteMode].AsString() != "chain" || decide[otelx.KeyQueryKey].AsString() != "span-1" {
+	if decide[otelx.KeyRouteMode].AsString() != "chain" || decide[otelx.KeyQueryKey].AsString() != "span-1" || decide[otelx.KeyRouteCached].AsBool() {
 		t.Errorf("decision span lost its hopwise attributes: %v", decide)
 	}
 	if _, ok := decide[gw.KeyGenAIOperation]; ok {
