@@ -1,32 +1,54 @@
-// Package gw is the library part of the gateway example: a small net/http
-// service that embeds the hopwise router in front of a pluggable Answerer.
+// Package gw is the library part of the gateway example: a chat-completions
+// reverse proxy that routes each request with the hopwise router before it
+// reaches the model.
 //
-// API (JSON over HTTP, our own):
+// Per POST /v1/chat/completions (JSON, or SSE with "stream": true):
 //
-//	POST /v1/answer           {"from":"zone-2/thermometer","value":"reads-cool","to":"zone-6/vent-a","key":"unit-17"}
-//	                          → 200 {"key":…,"answer":{"value":…,"distribution":{…},"steps":[…]},
-//	                                 "route":{"mode":"chain","bridges":[…],"reason":…,…},"usage":{…},"elapsed_ms":…}
-//	POST /v1/feedback         {"key":"unit-17","score":1}   (optional input_tokens, output_tokens, latency_ms)
-//	                          → 200 {"status":"recorded","key":…}: a hopwise.outcome span joined by key
-//	GET  /healthz             → 200 {"status":"ok","generation":"<hex>","reloads":n,"uptime_seconds":s}
-//	POST /admin/reload-index  → 200 {"status":"reloaded","generation":…,"previous_generation":…}
+//  1. the body is read under Config.MaxBodyBytes (413) and
+//     Config.BodyTimeout (408), and checked by CheckKeys: duplicate or
+//     case-variant keys anywhere are a 400, before anything acts on it;
+//  2. the last user message is linked to the index's entities
+//     (graphidx.Lexicon.Link) and a query is formed (Former); a message
+//     that asks nothing the router can decide passes through untouched,
+//     with the reason (the Pass* codes) in the Hopwise-Reason header, on the
+//     span and in the route counter;
+//  3. the router decides under Config.DecideTimeout (otelx.Decide, so the
+//     decision span keeps its hopwise.* attributes); a deadline that passes
+//     before the search starts degrades to a direct decision with reason
+//     decide-timeout;
+//  4. the Renderer's text (the chain's steps, or the instruction to answer
+//     directly) is added as a system message before the last user message,
+//     and the request is forwarded to Config.Upstream + "/chat/completions"
+//     inside a GenAI client span ("chat {model}");
+//  5. the answer is relayed (SSE line by line, flushed per event); the model
+//     and usage are read from the JSON answer or from the stream chunk that
+//     carries them (the final one when stream_options.include_usage is set).
 //
-// Every error is a JSON object {"error":{"code":"…","message":"…"}} with a
-// 4xx status for bad requests (400 malformed or missing fields, 413 body too
-// large, 422 unknown entity or value, 404 unknown feedback key, 405 wrong
-// method, 401 missing admin token) and 5xx for server faults (503 closed, 504 timeout).
+// Upstream faults: a timeout (Config.UpstreamTimeout) is 504
+// upstream_timeout, a refused connection 502 upstream_refused, other
+// transport failures 502 upstream_unreachable; an upstream 4xx or 5xx is
+// passed through with its status and body. No error message carries an
+// internal path, a socket address or a Go type name; details go to the log.
 //
-// Each /v1/answer request runs under Config.RequestTimeout; the routing
-// decision gets Config.DecideTimeout of it. A deadline reached during the
-// bridge search truncates the search; one that passes before the search
-// starts (an overloaded process) degrades to a direct answer with reason
-// "decide-timeout" instead of failing the request. Decisions are
-// traced through otelx; the trace exporter is chosen by the caller (see the
-// gateway command: an OTLP JSON Lines file or OTLP/HTTP).
+// Other endpoints:
 //
-// The bundled Sim answerer models a language model trained on the local
-// corpus (see Sim).
+//	POST /v1/outcomes        {"unit":"u-17","score":1}  (optional input_tokens, output_tokens, latency_ms)
+//	POST /v1/route           {"from","value","to","unit"}: the decision and the rendered text, no model call
+//	GET  /healthz            {"status":"ok","generation":…,"reloads":n,"uptime_seconds":s,"routing":true}
+//	GET  /metrics            Config.Metrics (NewPrometheus), when set
+//	POST /admin/reload-index reopen the index file and swap it in (Config.AdminToken)
+//
+// The unit key (header Hopwise-Unit, at most MaxUnitBytes) is the A/B unit
+// and the join key of the outcome; the gateway keeps the most recent routed
+// request per unit (Config.OutcomeSize of them) until its outcome arrives.
+//
+// Telemetry: the model-call span and the outcome span carry the
+// OpenTelemetry GenAI semantic-convention attributes gen_ai.operation.name,
+// gen_ai.request.model, gen_ai.response.model, gen_ai.usage.input_tokens and
+// gen_ai.usage.output_tokens (the outcome span through SpanAttrsProcessor);
+// the metrics are gen_ai.client.operation.duration,
+// gen_ai.client.token.usage and hopwise.gateway.requests.
 //
 // Concurrency: a *Server is safe for concurrent use; reloads are serialised
-// and never block answers for longer than the answerer's index swap.
+// and hold requests back only while the linker is swapped.
 package gw

@@ -1,13 +1,13 @@
 package main
 
 import (
-	"bufio"
 	"bytes"
 	"context"
 	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"math/rand/v2"
 	"net/http"
 	"net/http/httptest"
@@ -18,7 +18,9 @@ import (
 	"time"
 
 	"github.com/hopwise/hopwise/examples/gateway/gw"
+	"github.com/hopwise/hopwise/examples/gateway/simmodel"
 	"github.com/hopwise/hopwise/examples/internal/ghtest"
+	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/internal/cli"
 	"github.com/hopwise/hopwise/internal/world"
 	"github.com/hopwise/hopwise/otelx"
@@ -100,13 +102,31 @@ func (c *Config) defaults() error {
 
 // Files are the paths Run wrote.
 type Files struct {
-	Index, Traces, Outcomes, Tuned, Plots string
+	Index, Traces, Tuned, Plots string
 }
 
 // ArmCount is what the traffic loop itself saw per arm.
 type ArmCount struct {
-	N, Successes, Chained int
-	Tokens                int64
+	N, Successes, Chained, Passed int
+	InputTokens, OutputTokens     int64
+}
+
+// Accuracy is the share of correct answers.
+func (c *ArmCount) Accuracy() float64 { return float64(c.Successes) / float64(max(c.N, 1)) }
+
+// Wilson returns the Wilson score interval of the accuracy at 95%
+// (E. B. Wilson, "Probable inference, the law of succession, and
+// statistical inference", JASA 22, 1927): (p̂ + z²/2n ± z√(p̂(1−p̂)/n + z²/4n²)) / (1 + z²/n), z = 1.96.
+func (c *ArmCount) Wilson() (lo, hi float64) {
+	if c.N == 0 {
+		return 0, 1
+	}
+	const z = 1.959963984540054
+	n, p := float64(c.N), c.Accuracy()
+	den := 1 + z*z/n
+	mid := (p + z*z/(2*n)) / den
+	half := z * math.Sqrt(p*(1-p)/n+z*z/(4*n*n)) / den
+	return max(mid-half, 0), min(mid+half, 1)
 }
 
 // Verdict is one arm compared with the control, from `hopwise ab --json`.
@@ -139,10 +159,9 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 		return nil, err
 	}
 	res := &Result{Arms: map[string]*ArmCount{}, Files: Files{
-		Traces:   filepath.Join(cfg.Dir, "traces.otlp.jsonl"),
-		Outcomes: filepath.Join(cfg.Dir, "outcomes.jsonl"),
-		Tuned:    filepath.Join(cfg.Dir, "tuned.json"),
-		Plots:    filepath.Join(cfg.Dir, "plots"),
+		Traces: filepath.Join(cfg.Dir, "traces.otlp.jsonl"),
+		Tuned:  filepath.Join(cfg.Dir, "tuned.json"),
+		Plots:  filepath.Join(cfg.Dir, "plots"),
 	}}
 	fmt.Fprintf(out, "1. Building a greenhouse index from %d contexts ...\n", cfg.Contexts)
 	var err error
@@ -154,19 +173,30 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 		return nil, err
 	}
 
-	// 2. The gateway with arms and exploration, traced to a file. The
-	// batcher blocks instead of dropping spans: a dropped decision would be
-	// unrecorded sampling and bias the off-policy estimates.
-	for _, p := range []string{res.Files.Traces, res.Files.Outcomes} {
-		if err := os.Remove(p); err != nil && !errors.Is(err, os.ErrNotExist) {
-			return nil, err
-		}
+	// 2. The simulated model, and the gateway in front of it with arms and
+	// exploration, traced to a file. The batcher blocks instead of dropping
+	// spans: a dropped decision would be unrecorded sampling and bias the
+	// off-policy estimates.
+	if err := os.Remove(res.Files.Traces); err != nil && !errors.Is(err, os.ErrNotExist) {
+		return nil, err
 	}
+	ix, err := graphidx.Open(res.Files.Index)
+	if err != nil {
+		return nil, err
+	}
+	defer ix.Close()
+	model, err := simmodel.New(ix, simmodel.Options{Seed: uint64(cfg.Seed)})
+	if err != nil {
+		return nil, err
+	}
+	up := httptest.NewServer(model)
+	defer up.Close()
 	exp, err := otlpfile.NewExporter(ctx, res.Files.Traces)
 	if err != nil {
 		return nil, err
 	}
-	tp := sdktrace.NewTracerProvider(sdktrace.WithBatcher(exp, sdktrace.WithBlocking()),
+	tp := sdktrace.NewTracerProvider(sdktrace.WithSpanProcessor(gw.SpanAttrsProcessor{}),
+		sdktrace.WithBatcher(exp, sdktrace.WithBlocking()),
 		sdktrace.WithResource(resource.NewSchemaless(attribute.String("service.name", "hopwise-abtest"))))
 	defer tp.Shutdown(context.WithoutCancel(ctx))
 	tel, err := otelx.New(otelx.WithTracerProvider(tp))
@@ -174,10 +204,11 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 		return nil, err
 	}
 	srv, err := gw.New(gw.Config{
-		IndexPath:     res.Files.Index,
-		Telemetry:     tel,
-		SimOptions:    gw.SimOptions{Seed: uint64(cfg.Seed)},
-		RouterOptions: []router.Option{router.WithArms(arms...), router.WithExploration(cfg.Exploration, "abtest")},
+		IndexPath:      res.Files.Index,
+		Upstream:       up.URL + "/v1",
+		Telemetry:      tel,
+		TracerProvider: tp,
+		RouterOptions:  []router.Option{router.WithArms(arms...), router.WithExploration(cfg.Exploration, "abtest")},
 	})
 	if err != nil {
 		return nil, err
@@ -186,7 +217,7 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 	hs := httptest.NewServer(srv.Handler())
 	defer hs.Close()
 
-	fmt.Fprintf(out, "2. Sending %d requests through the gateway (arms routed 50%%, direct-only 25%%, chain-always 25%%; exploration ε = %.2f) ...\n",
+	fmt.Fprintf(out, "2. Sending %d chat requests over HTTP through the gateway to the simulated model (arms routed 50%%, direct-only 25%%, chain-always 25%%; exploration ε = %.2f), each followed by POST /v1/outcomes ...\n",
 		cfg.Requests, cfg.Exploration)
 	t0 := time.Now()
 	if err := traffic(ctx, cfg, w, hs, res); err != nil {
@@ -196,24 +227,16 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 		return nil, fmt.Errorf("flushing traces: %w", err)
 	}
 	el := time.Since(t0)
-	fmt.Fprintf(out, "   %d requests in %.1fs (%.0f req/s); traces %s, outcomes %s\n", cfg.Requests, el.Seconds(),
-		float64(cfg.Requests)/el.Seconds(), res.Files.Traces, res.Files.Outcomes)
-	fmt.Fprintln(out, "   arm            requests  success  chained  mean tokens")
-	for _, a := range arms {
-		c := res.Arms[a.Arm]
-		if c == nil {
-			continue
-		}
-		fmt.Fprintf(out, "   %-14s %8d  %6.1f%%  %6.1f%%  %11.0f\n", a.Arm, c.N, 100*float64(c.Successes)/float64(c.N),
-			100*float64(c.Chained)/float64(c.N), float64(c.Tokens)/float64(c.N))
-	}
+	fmt.Fprintf(out, "   %d requests in %.1fs (%.0f req/s); traces with decisions and outcomes in %s\n\n", cfg.Requests, el.Seconds(),
+		float64(cfg.Requests)/el.Seconds(), res.Files.Traces)
+	printTable(out, res, cfg.CostPerToken)
 
 	// 3. hopwise tune.
 	reps := fmt.Sprint(cfg.Reps)
 	cpt := fmt.Sprint(cfg.CostPerToken)
-	fmt.Fprintf(out, "\n3. hopwise tune --traces %s --outcomes %s --objective score-cost --cost-per-token %s --out %s --plots %s\n\n",
-		res.Files.Traces, res.Files.Outcomes, cpt, res.Files.Tuned, res.Files.Plots)
-	res.TuneExit, err = hopwise(ctx, out, nil, "tune", "--traces", res.Files.Traces, "--outcomes", res.Files.Outcomes,
+	fmt.Fprintf(out, "\n3. hopwise tune --traces %s --objective score-cost --cost-per-token %s --out %s --plots %s\n\n",
+		res.Files.Traces, cpt, res.Files.Tuned, res.Files.Plots)
+	res.TuneExit, err = hopwise(ctx, out, nil, "tune", "--traces", res.Files.Traces,
 		"--objective", "score-cost", "--cost-per-token", cpt, "--out", res.Files.Tuned, "--plots", res.Files.Plots,
 		"--tau-points", "9", "--max-hops", "1,3", "--reps", reps, "--seed", fmt.Sprint(cfg.Seed))
 	if err != nil {
@@ -235,7 +258,7 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 
 	// 4. hopwise ab: the readable report, then the verdict from its JSON.
 	alloc := "routed=0.5,direct-only=0.25,chain-always=0.25"
-	abArgs := []string{"ab", "--traces", res.Files.Traces, "--outcomes", res.Files.Outcomes, "--control", router.ArmDirectOnly,
+	abArgs := []string{"ab", "--traces", res.Files.Traces, "--control", router.ArmDirectOnly,
 		"--allocation", alloc, "--cost-per-token", cpt, "--reps", reps, "--seed", fmt.Sprint(cfg.Seed)}
 	fmt.Fprintf(out, "\n4. hopwise %s\n\n", strings.Join(abArgs, " "))
 	if res.ABExit, err = hopwise(ctx, out, nil, abArgs...); err != nil {
@@ -264,7 +287,7 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 	if res.SRM {
 		fmt.Fprintln(out, "  warning: sample-ratio mismatch; the assignment does not match the allocation")
 	}
-	fmt.Fprintf(out, "\nFiles: %s, %s, %s, %s/\n", res.Files.Traces, res.Files.Outcomes, res.Files.Tuned, res.Files.Plots)
+	fmt.Fprintf(out, "\nFiles: %s, %s, %s/\n", res.Files.Traces, res.Files.Tuned, res.Files.Plots)
 	return res, nil
 }
 
@@ -295,8 +318,21 @@ type query struct {
 	from, to, value int
 }
 
-// traffic sends cfg.Requests requests over HTTP from cfg.Workers clients and
-// writes one outcome line per request, in request order.
+// question words a greenhouse question the way a user would.
+func question(w *world.World, q query, i int) string {
+	from, value, to := w.Name(q.from), w.Labels(q.from)[q.value], w.Name(q.to)
+	switch i % 3 {
+	case 0:
+		return fmt.Sprintf("In the greenhouse, %s is %s. What is the most likely state of %s?", from, value, to)
+	case 1:
+		return fmt.Sprintf("%s reads %s right now; what should I expect %s to be?", from, value, to)
+	}
+	return fmt.Sprintf("Given %s = %s, how is %s most likely?", from, value, to)
+}
+
+// traffic sends cfg.Requests chat requests over HTTP from cfg.Workers
+// clients, scores each answer against the exact one, and reports each
+// outcome with POST /v1/outcomes.
 func traffic(ctx context.Context, cfg Config, w *world.World, hs *httptest.Server, res *Result) error {
 	rng := rand.New(rand.NewPCG(uint64(cfg.Seed), 0xab7e57))
 	far, near := w.HeldOut(), w.Supported()
@@ -312,16 +348,12 @@ func traffic(ctx context.Context, cfg Config, w *world.World, hs *httptest.Serve
 		}
 		qs[i] = query{from: p[0], to: p[1], value: rng.IntN(w.Card(p[0]))}
 	}
-	type outcome struct {
-		Key          string  `json:"key"`
-		Score        float64 `json:"score"`
-		InputTokens  int64   `json:"input_tokens"`
-		OutputTokens int64   `json:"output_tokens"`
-		LatencyMs    float64 `json:"latency_ms"`
+	type result struct {
+		arm, route string
+		score      float64
+		in, out    int64
 	}
-	outs := make([]outcome, len(qs))
-	arm := make([]string, len(qs))
-	chained := make([]bool, len(qs))
+	results := make([]result, len(qs))
 	errs := make([]error, cfg.Workers)
 	var next int
 	var mu sync.Mutex
@@ -340,10 +372,10 @@ func traffic(ctx context.Context, cfg Config, w *world.World, hs *httptest.Serve
 					return
 				}
 				q := qs[i]
-				req := gw.AskRequest{From: w.Name(q.from), Value: w.Labels(q.from)[q.value], To: w.Name(q.to), Key: fmt.Sprintf("unit-%06d", i)}
-				resp, err := ask(ctx, client, hs.URL, req)
+				unit := fmt.Sprintf("unit-%06d", i)
+				rep, err := chat(ctx, client, hs.URL, unit, question(w, q, i))
 				if err != nil {
-					errs[wk] = fmt.Errorf("request %d (%s=%s → %s): %w", i, req.From, req.Value, req.To, err)
+					errs[wk] = fmt.Errorf("request %d (%s): %w", i, unit, err)
 					return
 				}
 				truth, err := w.TrueConditional(q.from, q.value, q.to)
@@ -351,13 +383,18 @@ func traffic(ctx context.Context, cfg Config, w *world.World, hs *httptest.Serve
 					errs[wk] = err
 					return
 				}
-				score := 0.0
-				if resp.Answer.Value == w.Labels(q.to)[argmax(truth)] {
-					score = 1
+				r := result{arm: rep.arm, route: rep.route, in: rep.in, out: rep.out}
+				if v, ok := simmodel.ParseAnswer(rep.text); ok && v == w.Labels(q.to)[argmax(truth)] {
+					r.score = 1
 				}
-				outs[i] = outcome{Key: req.Key, Score: score, InputTokens: resp.Usage.InputTokens,
-					OutputTokens: resp.Usage.OutputTokens, LatencyMs: resp.ElapsedMs}
-				arm[i], chained[i] = resp.Route.Arm, resp.Route.Mode == "chain"
+				results[i] = r
+				if rep.route == "pass" {
+					continue // no decision to report against
+				}
+				if err := outcome(ctx, client, hs.URL, unit, r.score); err != nil {
+					errs[wk] = fmt.Errorf("outcome of %s: %w", unit, err)
+					return
+				}
 			}
 		}()
 	}
@@ -365,63 +402,99 @@ func traffic(ctx context.Context, cfg Config, w *world.World, hs *httptest.Serve
 	if err := errors.Join(append(errs, ctx.Err())...); err != nil {
 		return err
 	}
-	f, err := os.Create(res.Files.Outcomes)
-	if err != nil {
-		return err
-	}
-	bw := bufio.NewWriter(f)
-	enc := json.NewEncoder(bw)
-	for i, o := range outs {
-		if err := enc.Encode(o); err != nil {
-			f.Close()
-			return err
-		}
-		c := res.Arms[arm[i]]
+	for _, r := range results {
+		c := res.Arms[r.arm]
 		if c == nil {
 			c = &ArmCount{}
-			res.Arms[arm[i]] = c
+			res.Arms[r.arm] = c
 		}
 		c.N++
-		c.Successes += int(o.Score)
-		c.Tokens += o.InputTokens + o.OutputTokens
-		if chained[i] {
+		c.Successes += int(r.score)
+		c.InputTokens += r.in
+		c.OutputTokens += r.out
+		switch r.route {
+		case "chain":
 			c.Chained++
+		case "pass":
+			c.Passed++
 		}
 	}
-	if err := bw.Flush(); err != nil {
-		f.Close()
-		return err
-	}
-	return f.Close()
+	return nil
 }
 
-func ask(ctx context.Context, c *http.Client, base string, q gw.AskRequest) (gw.AskResponse, error) {
-	b, err := json.Marshal(q)
-	if err != nil {
-		return gw.AskResponse{}, err
+// printTable prints accuracy and token cost per arm.
+func printTable(out io.Writer, res *Result, costPerToken float64) {
+	fmt.Fprintln(out, "   arm            requests  accuracy  (Wilson 95%)     chained  mean in  mean out  mean cost")
+	for _, a := range arms {
+		c := res.Arms[a.Arm]
+		if c == nil {
+			continue
+		}
+		lo, hi := c.Wilson()
+		n := float64(c.N)
+		fmt.Fprintf(out, "   %-14s %8d  %7.1f%%  [%5.1f%%, %5.1f%%]  %6.1f%%  %7.0f  %8.0f  %9.4f\n", a.Arm, c.N, 100*c.Accuracy(), 100*lo, 100*hi,
+			100*float64(c.Chained)/n, float64(c.InputTokens)/n, float64(c.OutputTokens)/n,
+			costPerToken*float64(c.InputTokens+c.OutputTokens)/n)
 	}
-	req, err := http.NewRequestWithContext(ctx, http.MethodPost, base+"/v1/answer", bytes.NewReader(b))
+	if c := res.Arms[""]; c != nil {
+		fmt.Fprintf(out, "   (%d requests had no arm)\n", c.N)
+	}
+}
+
+// reply is what the client reads from a chat completion.
+type reply struct {
+	text, arm, route string
+	in, out          int64
+}
+
+func chat(ctx context.Context, c *http.Client, base, unit, q string) (reply, error) {
+	b, err := json.Marshal(map[string]any{"model": "greenhouse-sim",
+		"messages": []any{map[string]string{"role": "user", "content": q}}})
 	if err != nil {
-		return gw.AskResponse{}, err
+		return reply{}, err
+	}
+	req, err := http.NewRequestWithContext(ctx, http.MethodPost, base+"/v1/chat/completions", bytes.NewReader(b))
+	if err != nil {
+		return reply{}, err
 	}
 	req.Header.Set("Content-Type", "application/json")
+	req.Header.Set(gw.HeaderUnit, unit)
 	resp, err := c.Do(req)
 	if err != nil {
-		return gw.AskResponse{}, err
+		return reply{}, err
 	}
 	defer resp.Body.Close()
 	body, err := io.ReadAll(io.LimitReader(resp.Body, 1<<20))
 	if err != nil {
-		return gw.AskResponse{}, err
+		return reply{}, err
 	}
 	if resp.StatusCode != http.StatusOK {
-		return gw.AskResponse{}, fmt.Errorf("status %d: %s", resp.StatusCode, bytes.TrimSpace(body))
+		return reply{}, fmt.Errorf("status %d: %s", resp.StatusCode, bytes.TrimSpace(body))
 	}
-	var r gw.AskResponse
-	if err := json.Unmarshal(body, &r); err != nil {
-		return gw.AskResponse{}, fmt.Errorf("decoding the answer: %w", err)
+	var r simmodel.Completion
+	if err := json.Unmarshal(body, &r); err != nil || len(r.Choices) == 0 {
+		return reply{}, fmt.Errorf("decoding the completion: %s", bytes.TrimSpace(body))
 	}
-	return r, nil
+	return reply{text: r.Choices[0].Message.Content, arm: resp.Header.Get(gw.HeaderArm), route: resp.Header.Get(gw.HeaderRoute),
+		in: r.Usage.PromptTokens, out: r.Usage.CompletionTokens}, nil
+}
+
+func outcome(ctx context.Context, c *http.Client, base, unit string, score float64) error {
+	b, _ := json.Marshal(map[string]any{"unit": unit, "score": score})
+	req, err := http.NewRequestWithContext(ctx, http.MethodPost, base+"/v1/outcomes", bytes.NewReader(b))
+	if err != nil {
+		return err
+	}
+	resp, err := c.Do(req)
+	if err != nil {
+		return err
+	}
+	defer resp.Body.Close()
+	body, _ := io.ReadAll(io.LimitReader(resp.Body, 1<<16))
+	if resp.StatusCode != http.StatusOK {
+		return fmt.Errorf("status %d: %s", resp.StatusCode, bytes.TrimSpace(body))
+	}
+	return nil
 }
 
 func argmax(p []float64) int {

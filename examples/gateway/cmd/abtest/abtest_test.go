@@ -7,7 +7,7 @@ import (
 	"strings"
 	"testing"
 
-	abtest "github.com/hopwise/hopwise/examples/abtest"
+	abtest "github.com/hopwise/hopwise/examples/gateway/cmd/abtest"
 	"github.com/hopwise/hopwise/otelx"
 	"github.com/hopwise/hopwise/router"
 )
@@ -43,9 +43,21 @@ func TestSmallRun(t *testing.T) {
 	if len(log.Decisions) != 2000 {
 		t.Errorf("%d decision spans, want 2000 (a dropped span would bias tune)", len(log.Decisions))
 	}
-	outs, err := otelx.ReadOutcomeFile(res.Files.Outcomes)
-	if err != nil || len(outs) != 2000 {
-		t.Errorf("outcomes: %d, %v", len(outs), err)
+	passed := 0
+	for _, c := range res.Arms {
+		passed += c.Passed
+	}
+	if len(log.Outcomes) != 2000-passed || passed > 20 {
+		t.Errorf("%d outcome spans, %d passed through; want one outcome per routed request", len(log.Outcomes), passed)
+	}
+	genai := 0
+	for _, o := range log.Outcomes {
+		if o.InputTokens > 0 && o.OutputTokens > 0 {
+			genai++
+		}
+	}
+	if genai != len(log.Outcomes) {
+		t.Errorf("%d of %d outcomes carry the upstream's token usage", genai, len(log.Outcomes))
 	}
 	switch res.TuneExit {
 	case 0:
