@@ -219,15 +219,15 @@ func TestDecideGoldenDigest(t *testing.T) {
 		opts []Option
 		want string
 	}{
-		{"default", nil, "ef128099b116c508"},
-		{"H1", []Option{WithMaxBridges(1)}, "48fdc17a21f11706"},
-		{"H2", []Option{WithMaxBridges(2)}, "ed2ca31256522711"},
-		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "acbf1b216208efa0"},
-		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "3a422d9722e8c997"},
-		{"budget3000", []Option{WithExpansionBudget(3000)}, "448649860a482d05"},
-		{"support", []Option{WithModel(support)}, "049ede2c77a62f5b"},
-		{"exact", []Option{WithModel(exact)}, "4a805e8df5e0e605"},
-		{"utility", []Option{WithUtility(2, 0.001)}, "112394a8000fcfe4"},
+		{"default", nil, "bee1137bcacdb49d"},
+		{"H1", []Option{WithMaxBridges(1)}, "24a1433cb1932147"},
+		{"H2", []Option{WithMaxBridges(2)}, "b5d24a1d546c95b5"},
+		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "626694d998e6bc9c"},
+		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "f000dc8429f0a741"},
+		{"budget3000", []Option{WithExpansionBudget(3000)}, "779632d60793a5ef"},
+		{"support", []Option{WithModel(support)}, "e06acf7f4b69d29a"},
+		{"exact", []Option{WithModel(exact)}, "0eb86baa065f17fc"},
+		{"utility", []Option{WithUtility(2, 0.001)}, "66b2e328cf7f4b38"},
 	} {
 		opts := append([]Option{WithCacheSize(0)}, tc.opts...)
 		for _, wrap := range []struct {

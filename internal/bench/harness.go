@@ -397,11 +397,11 @@ func (r *runner) baselines(ctx context.Context, ix *graphidx.Index, model scorer
 			exQs, exDs = append(exQs, qs[i]), append(exDs, d)
 		}
 	}
-	wide := Bounds{MaxBridges: b.MaxBridges, Beam: 1 << 20, MaxCandidates: 1 << 16, Budget: 1 << 22, GainThreshold: b.GainThreshold}
+	wide := Bounds{MaxBridges: b.MaxBridges, Beam: 1 << 20, FanOut: 1 << 20, MaxCandidates: 1 << 16, Budget: 1 << 22, GainThreshold: b.GainThreshold}
 
 	// One bridge with generous candidates: the router's intersection is
 	// exact, the baselines scan every neighbour of From.
-	h1 := Bounds{MaxBridges: 1, Beam: 1 << 20, MaxCandidates: 1 << 16, Budget: 1 << 30, GainThreshold: b.GainThreshold}
+	h1 := Bounds{MaxBridges: 1, Beam: 1 << 20, FanOut: 1 << 20, MaxCandidates: 1 << 16, Budget: 1 << 30, GainThreshold: b.GainThreshold}
 	r.logf("router, one bridge, generous bounds: %d queries", nq)
 	rt1, err := newRouter(ix, model, h1, 0)
 	if err != nil {

@@ -29,6 +29,7 @@ type benchOptions struct {
 	indexOut      string
 	maxBridges    int
 	beam          int
+	fanOut        int
 	maxCandidates int
 	budget        int
 }
@@ -83,7 +84,8 @@ CPU columns leave out time spent waiting for a core.`,
 	f.StringVar(&o.build, "build", "auto", `index build: "auto", "contexts" (graphidx.Build) or "direct" (WriteFile of the Source)`)
 	f.StringVar(&o.indexOut, "index-out", "", "keep the generated index at this path (default: a temp file, removed)")
 	f.IntVar(&o.maxBridges, "max-bridges", bench.DefaultBounds().MaxBridges, "H, largest number of bridges")
-	f.IntVar(&o.beam, "beam", bench.DefaultBounds().Beam, "B, beam width")
+	f.IntVar(&o.beam, "beam", bench.DefaultBounds().Beam, "B, width of the first search layer")
+	f.IntVar(&o.fanOut, "fan-out", bench.DefaultBounds().FanOut, "f, second-layer neighbours per first-layer node")
 	f.IntVar(&o.maxCandidates, "max-candidates", bench.DefaultBounds().MaxCandidates, "k, candidates scored exactly")
 	f.IntVar(&o.budget, "budget", bench.DefaultBounds().Budget, "expansion budget per search")
 	return cmd
@@ -124,7 +126,7 @@ func runBench(cmd *cobra.Command, o benchOptions) error {
 	cfg := bench.RunConfig{
 		Graph:        bench.GraphConfig{Entities: o.entities, AvgDegree: o.avgDegree, Gamma: o.gamma, Seed: o.seed},
 		Queries:      o.queries,
-		Bounds:       bench.Bounds{MaxBridges: o.maxBridges, Beam: o.beam, MaxCandidates: o.maxCandidates, Budget: o.budget, GainThreshold: bench.DefaultBounds().GainThreshold},
+		Bounds:       bench.Bounds{MaxBridges: o.maxBridges, Beam: o.beam, FanOut: o.fanOut, MaxCandidates: o.maxCandidates, Budget: o.budget, GainThreshold: bench.DefaultBounds().GainThreshold},
 		Build:        mode,
 		Baselines:    base,
 		Hub:          o.hub,
