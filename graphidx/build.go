@@ -47,6 +47,9 @@ var (
 func Build(ctx context.Context, r ContextReader, out string, opts ...BuildOption) (BuildSummary, error) {
 	start := time.Now()
 	cfg := newBuildConfig(opts)
+	if err := cfg.checkWrite(); err != nil {
+		return BuildSummary{}, err
+	}
 	c, sum, err := compileWith(ctx, r, cfg, start)
 	if err != nil {
 		return sum, err

@@ -23,7 +23,7 @@ func init() { register(newBuildCmd) }
 type buildOpts struct {
 	corpus, format, lexicon, out, tempDir, memBudget string
 	minSupport                                       uint64
-	maxNeighbors, workers                            int
+	maxNeighbors, workers, rankPrefix                int
 	strict, quiet                                    bool
 	counts                                           buildCountsOpts
 }
@@ -95,6 +95,7 @@ CSV header or lexicon, too many values), 1 for other errors.`,
 	f.IntVar(&o.maxNeighbors, "max-neighbors", 0, "keep each entity's N best neighbours by support (0: no limit)")
 	f.StringVar(&o.memBudget, "mem-budget", "512MiB", "memory budget, e.g. 256MiB, 2GiB, 500MB or bytes")
 	f.IntVar(&o.workers, "workers", 0, "counting goroutines (0: one per core)")
+	f.IntVar(&o.rankPrefix, "rank-prefix", graphidx.DefaultRankPrefix, "neighbours stored per entity in support order (the router's first layers read them)")
 	f.StringVar(&o.tempDir, "temp-dir", "", "directory for spilled runs (default: the system temp dir)")
 	f.BoolVar(&o.strict, "strict", false, "stop at the first bad line instead of skipping and counting it")
 	f.BoolVar(&o.quiet, "quiet", false, "no progress output")
@@ -108,11 +109,14 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	if err != nil {
 		return &ExitError{Code: 2, Err: fmt.Errorf("--mem-budget: %w", err)}
 	}
+	if o.rankPrefix < 1 || o.rankPrefix > graphidx.MaxRankPrefix {
+		return &ExitError{Code: 2, Err: fmt.Errorf("--rank-prefix must be in [1, %d], got %d", graphidx.MaxRankPrefix, o.rankPrefix)}
+	}
 	switch {
 	case o.counts.fromCounts != "" && o.corpus != "":
 		return &ExitError{Code: 2, Err: errors.New("give either --corpus or --from-counts, not both")}
 	case o.counts.fromCounts != "":
-		return runBuildFromCounts(cmd, o.counts.fromCounts, o.out, o.minSupport, o.maxNeighbors)
+		return runBuildFromCounts(cmd, o.counts.fromCounts, o.out, o.minSupport, o.maxNeighbors, graphidx.WithRankPrefix(o.rankPrefix))
 	case o.corpus == "":
 		return &ExitError{Code: 2, Err: errors.New(`required flag "corpus" not set (or give --from-counts)`)}
 	}
@@ -155,7 +159,7 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	sum, err := graphidx.Build(cmd.Context(), r, o.out,
 		graphidx.WithMemBudget(buildBudget), graphidx.WithTempDir(o.tempDir), graphidx.WithWorkers(o.workers),
 		graphidx.WithMinSupport(o.minSupport), graphidx.WithMaxNeighbors(o.maxNeighbors),
-		graphidx.WithProgress(progress))
+		graphidx.WithProgress(progress), graphidx.WithRankPrefix(o.rankPrefix))
 	done()
 	if err != nil {
 		if n := sum.Read.SkippedTotal(); n > 0 && !o.quiet {
