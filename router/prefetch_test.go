@@ -224,7 +224,7 @@ func TestDecideGoldenDigest(t *testing.T) {
 		{"H2", []Option{WithMaxBridges(2)}, "b5d24a1d546c95b5"},
 		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "626694d998e6bc9c"},
 		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "f000dc8429f0a741"},
-		{"budget3000", []Option{WithExpansionBudget(3000)}, "779632d60793a5ef"},
+		{"budget3000", []Option{WithExpansionBudget(3000)}, "f7e1150a17003f4c"},
 		{"support", []Option{WithModel(support)}, "e06acf7f4b69d29a"},
 		{"exact", []Option{WithModel(exact)}, "0eb86baa065f17fc"},
 		{"utility", []Option{WithUtility(2, 0.001)}, "66b2e328cf7f4b38"},

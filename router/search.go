@@ -500,6 +500,11 @@ func (sc *scratch) whole(x graphidx.EntityID, rk []graphidx.EntityID) bool {
 // sort when they do not fit; the returned slice is scratch memory valid
 // until the next call.
 func (sc *scratch) beyond(x graphidx.EntityID, rk []graphidx.EntityID, room int, ex0, ex1, ex2 graphidx.EntityID) (extra []graphidx.EntityID, ok, beamCut bool) {
+	if room <= 0 {
+		// Nothing more fits: the rest is cut, whatever it holds (the
+		// caller knows the list is not whole).
+		return nil, false, true
+	}
 	all := sc.g.Neighbors(x)
 	if sc.bud.take(len(all)) < len(all) {
 		return nil, false, false
@@ -520,9 +525,6 @@ func (sc *scratch) beyond(x graphidx.EntityID, rk []graphidx.EntityID, room int,
 	sc.extra = rest
 	if len(rest) <= room {
 		return rest, true, false
-	}
-	if room <= 0 {
-		return nil, false, true
 	}
 	// Rank the rest by support: one look-up each, all or nothing.
 	if sc.bud.left < len(rest)*lookupUnits {
