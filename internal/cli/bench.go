@@ -8,6 +8,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/internal/bench"
 )
 
@@ -32,6 +33,7 @@ type benchOptions struct {
 	fanOut        int
 	maxCandidates int
 	budget        int
+	rankPrefix    int
 }
 
 func newBenchCmd() *cobra.Command {
@@ -53,10 +55,11 @@ Source above 40M contexts), and measures in one run on the same queries:
     map[string]map[string] breadth-first beam search, and the same search
     on gonum's graph/simple; their speed relative to the router (wall and
     thread-CPU means), and the agreement of their best chains with the
-    router's where no bound cut either search: the router's untruncated
-    decisions against exhaustive baselines, the same queries under the same
-    bounds, one bridge with generous bounds on the main graph, and up to
-    three bridges with generous bounds on a small companion graph;
+    router's where no bound cut either search: up to two bridges with wide
+    bounds on --agree-queries queries of the main graph that the router's
+    wide search did not cut, the timed queries under the same bounds, one
+    bridge with generous bounds on the main graph, and up to three bridges
+    with generous bounds on a small companion graph;
   - with --hub, queries from and to the highest-degree entity.
 
 Progress goes to stderr. The baselines hold the whole graph in Go maps
@@ -88,6 +91,7 @@ CPU columns leave out time spent waiting for a core.`,
 	f.IntVar(&o.fanOut, "fan-out", bench.DefaultBounds().FanOut, "f, second-layer neighbours per first-layer node")
 	f.IntVar(&o.maxCandidates, "max-candidates", bench.DefaultBounds().MaxCandidates, "k, candidates scored exactly")
 	f.IntVar(&o.budget, "budget", bench.DefaultBounds().Budget, "expansion budget per search")
+	f.IntVar(&o.rankPrefix, "rank-prefix", graphidx.DefaultRankPrefix, "rank prefix R of the generated index")
 	return cmd
 }
 
@@ -132,6 +136,7 @@ func runBench(cmd *cobra.Command, o benchOptions) error {
 		Hub:          o.hub,
 		HubQueries:   o.hubQueries,
 		AgreeQueries: o.agreeQueries,
+		RankPrefix:   o.rankPrefix,
 		IndexPath:    o.indexOut,
 		Progress:     progress,
 	}
