@@ -78,6 +78,9 @@ func Build(ctx context.Context, r ContextReader, out string, opts ...BuildOption
 	start := time.Now()
 	cfg := newBuildConfig(opts)
 	cfg.guard = true
+	if err := cfg.checkWrite(); err != nil {
+		return BuildSummary{}, err
+	}
 	c, sum, err := compileWith(ctx, r, cfg, start)
 	if err != nil {
 		return sum, err

@@ -84,6 +84,19 @@ func WithWriteOptions(opts ...WriteOption) BuildOption {
 	return buildOptionFunc(func(c *buildConfig) { c.writeOpts = append(c.writeOpts, opts...) })
 }
 
+// checkWrite validates the options Build will pass to WriteFile (the rank
+// prefix) before any counting starts, so a bad WithRankPrefix fails at
+// once instead of after the corpus was read.
+func (c *buildConfig) checkWrite() error {
+	wc := writeConfig{rankPrefix: DefaultRankPrefix}
+	for _, o := range c.writeOpts {
+		if o != nil {
+			o.applyWrite(&wc)
+		}
+	}
+	return checkRankPrefix(wc.rankPrefix)
+}
+
 // withFanIn sets the maximum number of runs merged at once (tests).
 func withFanIn(n int) BuildOption {
 	return buildOptionFunc(func(c *buildConfig) { c.fanIn = max(n, 2) })

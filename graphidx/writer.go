@@ -29,12 +29,34 @@ func (f writeOptionFunc) applyWrite(c *writeConfig) { f(c) }
 // MaxRankPrefix is the largest accepted WithRankPrefix value.
 const MaxRankPrefix = 1 << 20
 
-// WithRankPrefix sets how many neighbours of each entity are stored in
+// WithRankPrefix sets R, how many neighbours of each entity are stored in
 // support-ranked order (default DefaultRankPrefix). Each stored entry costs
-// 4 bytes; entities with fewer neighbours store all of them. WriteFile
-// rejects n < 1 or n > MaxRankPrefix.
-func WithRankPrefix(n int) WriteOption {
-	return writeOptionFunc(func(c *writeConfig) { c.rankPrefix = n })
+// 4 bytes; entities with fewer neighbours store all of them. The router
+// reads its first search layers from this prefix and goes past it (reading
+// the whole adjacency, and looking up supports to rank it) only when its
+// beam or fan-out asks for more neighbours than R; so R ≥ the router's B
+// and f keeps every search on the prefix (docs/SEARCH.md has the measured
+// sizes and latencies). It is both a WriteOption and a BuildOption (Build
+// passes it to WriteFile). WriteFile and Build reject n < 1 or
+// n > MaxRankPrefix.
+func WithRankPrefix(n int) RankPrefixOption { return RankPrefixOption(n) }
+
+// RankPrefixOption is the option WithRankPrefix returns; it configures
+// both WriteFile and Build.
+type RankPrefixOption int
+
+func (o RankPrefixOption) applyWrite(c *writeConfig) { c.rankPrefix = int(o) }
+
+func (o RankPrefixOption) applyBuild(c *buildConfig) {
+	c.writeOpts = append(c.writeOpts, o)
+}
+
+// checkRankPrefix validates a rank prefix length.
+func checkRankPrefix(n int) error {
+	if n < 1 || n > MaxRankPrefix {
+		return fmt.Errorf("graphidx: rank prefix %d out of range [1, %d]", n, MaxRankPrefix)
+	}
+	return nil
 }
 
 // DefaultWriteMemory is the default of WithWriteMemory: 64 MiB.
@@ -101,8 +123,8 @@ func WriteFile(path string, src Source, opts ...WriteOption) (err error) {
 			o.applyWrite(&cfg)
 		}
 	}
-	if cfg.rankPrefix < 1 || cfg.rankPrefix > MaxRankPrefix {
-		return fmt.Errorf("graphidx: rank prefix %d out of range [1, %d]", cfg.rankPrefix, MaxRankPrefix)
+	if err := checkRankPrefix(cfg.rankPrefix); err != nil {
+		return err
 	}
 	if cfg.memory < 1 {
 		return fmt.Errorf("graphidx: write memory %d bytes, want at least 1", cfg.memory)

@@ -23,7 +23,8 @@ import (
 //	  "gain_threshold": 0.002,      // τ_gain, finite
 //	  "max_bridges": 3,             // H in [0, 3]
 //	  "beam": 64,                   // B in [1, 2^20]
-//	  "max_candidates": 16,         // k in [1, 2^16]
+//	  "fan_out": 16,                // f in [1, 2^20]; 0 or absent = DefaultFanOut
+//	  "max_candidates": 4,          // k in [1, 2^16]
 //	  "error_model": "bayes",       // "bayes" or "support"
 //	  "alpha": 1,                   // Dirichlet α > 0 (bayes; smoothing for support)
 //	  "beta": 0.001,                // per-hop squared bias β ≥ 0
@@ -51,6 +52,7 @@ type Config struct {
 	GainThreshold   float64     `json:"gain_threshold"`
 	MaxBridges      int         `json:"max_bridges"`
 	Beam            int         `json:"beam"`
+	FanOut          int         `json:"fan_out,omitempty"`
 	MaxCandidates   int         `json:"max_candidates"`
 	Model           string      `json:"error_model"`
 	Alpha           float64     `json:"alpha"`
@@ -74,6 +76,7 @@ func DefaultConfig() Config {
 		GainThreshold:   DefaultGainThreshold,
 		MaxBridges:      DefaultMaxBridges,
 		Beam:            DefaultBeam,
+		FanOut:          DefaultFanOut,
 		MaxCandidates:   DefaultMaxCandidates,
 		Model:           "bayes",
 		Alpha:           scorer.DefaultAlpha,
@@ -101,6 +104,9 @@ func (c Config) Options() ([]Option, error) {
 	add("gain_threshold", WithGainThreshold(c.GainThreshold))
 	add("max_bridges", WithMaxBridges(c.MaxBridges))
 	add("beam", WithBeam(c.Beam))
+	if c.FanOut != 0 {
+		add("fan_out", WithFanOut(c.FanOut))
+	}
 	add("max_candidates", WithMaxCandidates(c.MaxCandidates))
 	add("cache_size", WithCacheSize(c.CacheSize))
 	add("expansion_budget", WithExpansionBudget(c.ExpansionBudget))

@@ -51,6 +51,8 @@ type Decision struct {
 	Reason Reason
 	// Truncated reports that a bound (beam, candidates, expansion budget or
 	// the context deadline) cut the search, so a better chain may exist.
+	// When false, Chain is the exact optimum over every simple chain of at
+	// most H bridges (docs/SEARCH.md).
 	Truncated bool
 	// Cut says which bounds cut the search (0 when not Truncated).
 	Cut        Cut
@@ -73,13 +75,19 @@ type Decision struct {
 type Cut uint8
 
 const (
-	// CutBeam: a beam layer (width B, or the index's ranked prefix) held
-	// only part of the neighbours.
+	// CutBeam: a search layer (the first layer's width B, the second
+	// layer's fan-out f, or the B paths per side of the three-bridge join)
+	// left out neighbours, and the chains through them were not met from
+	// the other side. A layer that holds every neighbour is no cut, whatever
+	// the index's rank prefix.
 	CutBeam Cut = 1 << iota
-	// CutCandidates: more than k chains were generated; only the k
-	// proxy-cheapest were scored exactly.
+	// CutCandidates: a chain of m bridges was left out of the k
+	// proxy-cheapest candidates scored exactly, and its bound (score ≤
+	// E_direct − β·m, or the utility of that) could beat the chosen chain.
+	// Chains left out that could not have won are no cut.
 	CutCandidates
-	// CutBudget: the expansion budget ran out.
+	// CutBudget: the expansion budget (or the one-bridge phase's share of
+	// it) ran out before a phase finished.
 	CutBudget
 	// CutDeadline: the context's deadline or cancellation stopped the search.
 	CutDeadline

@@ -179,3 +179,26 @@ func ExampleParseConfig() {
 	// true <nil>
 	// route.json: field "beam": router: bad option: WithBeam: B must be in [1, 1048576], got 0
 }
+
+// ExampleWithFanOut sets the search bounds and reads what a decision says
+// about them: on this three-entity index a beam and fan-out of 8 hold every
+// neighbour, so no bound cut the search and the chain is the exact optimum
+// over all chains of at most three bridges.
+func ExampleWithFanOut() {
+	dir, _ := os.MkdirTemp("", "hopwise-example")
+	defer os.RemoveAll(dir)
+	ix := greenhouseIndex(dir)
+	r, err := router.New(ix, router.WithBeam(8), router.WithFanOut(8))
+	if err != nil {
+		log.Fatal(err)
+	}
+	defer r.Close()
+	q := router.Query{From: "vent-north", Value: "open", To: "bed-tomato"}
+	d, err := r.Decide(context.Background(), q)
+	if err != nil {
+		log.Fatal(err)
+	}
+	fmt.Printf("via %v, truncated %v, cut %q\n", d.Bridges, d.Truncated, d.Cut)
+	// Output:
+	// via [humidity-zone1], truncated false, cut ""
+}

@@ -318,9 +318,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 		// The pair's own counts carry no screening-off bias.
 		sc.ref, sc.refVar = sc.ddist, dir.Var
 	}
-	_, adjacent := sc.pairStats(s, t)
-
-	res := sc.generate(adjacent)
+	res := sc.generate()
 
 	// Stage 2: exact scores of the k proxy-best candidates, shortest first,
 	// starting from the incumbent: the one-bridge chain scored during
@@ -385,6 +383,13 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 			bestEst.ok, bestEst.err, bestEst.score = true, e, score
 			sc.dist = append(sc.dist[:0], est.Dist...)
 		}
+	}
+
+	// Candidates left out of the k scored are a cut only when one could
+	// have won (search.go).
+	if sc.candidatesCut(bestEst.ok, bestEst.score) {
+		res.truncated = true
+		res.cut |= CutCandidates
 	}
 
 	// Build the owned result (see resultBlock): the estimates and the

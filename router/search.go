@@ -10,7 +10,7 @@ import (
 	"github.com/hopwise/hopwise/scorer"
 )
 
-// Bridge search (docs/DESIGN.md, Bridge search).
+// Bridge search (docs/SEARCH.md; overview in docs/DESIGN.md, Bridge search).
 //
 // A chain with m bridges is s=b0 → b1 → … → bm → t=b(m+1).
 //
@@ -18,24 +18,29 @@ import (
 //     adjacency lists, or a galloping search when one is more than 32×
 //     longer. This phase may spend half the budget (the intersection half
 //     of that), so a hub leaves room for the rest.
-//   - m = 2, 3: meet in the middle. Beams grow from both ends: F1 (T1)
+//   - m = 2, 3: meet in the middle. Layers grow from both ends: F1 (T1)
 //     holds the B best-ranked (highest-support) neighbours of s (t), read in
-//     order from the support-ranked adjacency prefix; F2 (T2) holds B
-//     two-hop paths taken breadth-first by rank from the ranked lists of the
-//     F1 (T1) nodes. The halves are joined on shared nodes (a hash join
-//     whose matches are processed in ascending node-id order, matchJoins):
-//     m = 2 from F2 ⋈ T1 (s→a→b, b→t) and F1 ⋈ T2 (s→a, t→c→a); m = 3 from
-//     F2 ⋈ T2 (s→a→b, t→c→b, a ≠ c).
+//     order from the support-ranked adjacency prefix and, when B reaches past
+//     the index's rank prefix, from the full adjacency (beyond); F2 (T2)
+//     extends every F1 (T1) node by its f best-ranked neighbours (f = the
+//     fan-out), so it holds at most B·f two-hop paths. The halves are joined
+//     on shared nodes (hash joins, matchJoins): m = 2 from F2 ⋈ T1
+//     (s→a→b, b→t) and F1 ⋈ T2 (s→a, t→c→a) over the whole layers; m = 3
+//     from F2 ⋈ T2 (s→a→b, t→c→b, a ≠ c) over the B best-ranked paths of
+//     each side (beam3), since its matches grow with the product of the
+//     two layers.
 //
 // Stage 1 ranks the generated chains by the additive proxy
 // Σ_edges model.EdgeCost(pair stats) + model.HopBias()·m and keeps the k
 // cheapest in a bounded max-heap (a chain met from both sides is kept once).
 // For the Bayes model EdgeCost is a signal-loss cost (−log of a lower bound
 // of Cramér's V), so the cheapest chains are those that keep the most
-// signal; it is not monotone in support. The beams are still support-ranked
-// prefixes: support bounds how well an edge is known, and a beam that could
-// not hold every neighbour marks the search truncated, so a cheap edge of
-// low rank is never silently lost.
+// signal; it is not monotone in support. The layers are still
+// support-ranked: support bounds how well an edge is known, and a layer
+// that could not hold every neighbour marks the search cut (CutBeam), so a
+// cheap edge of low rank is never silently lost. The join matches are
+// turned into chains cheapest lower bound first (joinAll), so the heap
+// bound prunes most of them before their middle edges are looked up.
 //
 // Stage 2 (Router.compute) scores the candidates exactly with model.Chain and
 // adds a squared-bias term relative to a reference estimate ref:
@@ -57,36 +62,52 @@ import (
 // on every generated chain, so all phases are generated (only exact scoring
 // is skipped).
 //
-// Cost: O(I + B + M·log M + B² + k·C). I is the intersection, O(|a|+|b|)
-// by merge or O(|a|·log(|b|/|a|)) by galloping. The beams are read from the
-// ranked lists without look-ups and joined by hashing (expected O(B)); the
-// M matches are sorted. An edge cost (O(K²): Cramér's V of the pair table)
-// is computed once, only for a node or path that takes part in a join. B²
-// bounds a join of equal middle nodes, and C is one exact chain
-// score (O(m·K³)). List steps cost 1 budget unit and look-ups lookupUnits,
-// so a hub with millions of neighbours costs at most the budget; the
-// context's deadline is polled every 256 units.
+// Cost: O(I + B·f + M·log M + k·C) plus the pair look-ups. I is the
+// intersection, O(|a|+|b|) by merge or O(|a|·log(|b|/|a|)) by galloping.
+// The layers are read from the ranked lists without look-ups and joined by
+// hashing (expected O(B·f)); the M matches are sorted by their lower
+// bound. An edge cost (O(K²): Cramér's V of the pair table) is computed
+// once, only for an edge of a match that the heap bound did not prune. C is
+// one exact chain score (O(m·K³)). List steps cost 1 budget unit and
+// look-ups lookupUnits, so a hub with millions of neighbours costs at most
+// the budget; the context's deadline is polled every 256 units.
 //
 // Every pair is read from the graph once per decision (pairMemo; stage 2
 // and the direct estimate read the memo too). When the graph implements
-// PairBatcher, the pairs of the one-bridge phase and of the joins are
-// fetched in one batch each before the phase (prefetchJoins), so that their
-// cache misses overlap; the phase then finds them in the memo. The budget
-// is charged per edge by the phase exactly as without the batch, so no
-// decision changes; a batch holds at most the look-ups the remaining budget
-// allows, so a decision's graph look-ups stay below twice the budget's.
+// PairBatcher, the pairs of the one-bridge phase, the end edges of the
+// joins and the middle edges of each chunk of matches are fetched in one
+// batch each (fetch), so that their cache misses overlap; the phase then
+// finds them in the memo. The budget is charged per edge by the phase
+// exactly as without the batch, so no decision changes; a batch holds at
+// most the look-ups the remaining budget allows, so a decision's graph
+// look-ups stay below twice the budget's.
 //
-// Completeness: the result is the exact optimum of the rule above over all
-// simple chains of at most H bridges whenever Truncated is false, i.e. when
-// the intersection was not cut, (F2 and T1) or (F1 and T2) hold every path
-// of their kind (for H ≥ 2), F2 and T2 do (for H = 3), the heap never
-// overflowed or pruned, and neither budget nor deadline ran out. Then every
-// chain is generated, so the reference is the global proxy minimum and every
-// chain is either scored or provably beaten. The pruning rules need only
-// EdgeCost ≥ 0 (a partial sum of edge costs, unknown costs counted as 0,
-// bounds a chain's proxy cost from below) and Err_c ≥ HopBias()·m (stage-2
-// and phase bounds; the variance and bias terms are ≥ 0). No rule assumes
-// EdgeCost is monotone in support.
+// Completeness (what Decision.Truncated and Cut mean): the result is the
+// exact optimum of the rule above over all simple chains of at most H
+// bridges whenever Truncated is false. A cut is recorded only when a bound
+// left out something that could have won:
+//
+//   - CutBeam: a layer could not hold every eligible neighbour (B for the
+//     first layer, f per node for the second, B paths per side for the
+//     three-bridge join) and the phases that need it were not covered by
+//     the other side: m = 2 needs (F2 and T1) or (F1 and T2) whole, m = 3
+//     needs F2 and T2 whole and at most B paths each. A layer cut only by
+//     the budget is reported as CutBudget instead.
+//   - CutCandidates: a generated chain (or a pruned partial path) of m
+//     bridges was left out of the k candidates and its bound could beat
+//     the chosen chain: bound(m) > best score, or no chain was scored
+//     (candidatesCut). Chains that could not have won are no cut.
+//   - CutBudget: the expansion budget (or the one-bridge phase's share of
+//     it) ran out before a phase finished.
+//   - CutDeadline: the context was done; the decision is not cached.
+//
+// Then every chain is generated or provably beaten, so the reference is
+// the global proxy minimum and every chain is either scored or provably
+// beaten. The pruning rules need only EdgeCost ≥ 0 (a partial sum of edge
+// costs, unknown costs counted as 0, bounds a chain's proxy cost from
+// below) and Err_c ≥ HopBias()·m (stage-2 and phase bounds; the variance
+// and bias terms are ≥ 0). No rule assumes EdgeCost is monotone in
+// support.
 
 // step1 is a first-layer beam node; cost is its edge cost from the origin,
 // NaN until a join needs it (cost1).
@@ -100,6 +121,7 @@ type step1 struct {
 type step2 struct {
 	a, b graphidx.EntityID
 	li   int32
+	r    int32 // position of b among a's eligible neighbours (rank order)
 	c2   float64
 }
 
@@ -174,12 +196,17 @@ type scratch struct {
 	f1, t1 []step1
 	f2, t2 []step2
 	// join matches (matchJoins)
-	f1ids, t1ids   idIndex  // layer-1 node → position
+	f1ids, t1ids   idIndex // layer-1 node → position
+	rkSet          idIndex // a ranked prefix (beyond)
+	extra, extra2  []graphidx.EntityID
+	sups           []uint64
+	ord            []int32
+	jms            []jmatch
+	rcount         []int
 	f2ends, t2ends idIndex  // layer-2 end nodes met by both sides (f2ends), of T2
 	joinA, joinB   []uint64 // b<<32 | position in f2 (A), t2 (B)
 	joinC          []match3
 	keysF, keysT   []uint64
-	cursor         []int32
 	rks            [][]graphidx.EntityID // ranked lists of the layer-1 nodes
 	heap           []cand
 	hits           []graphidx.EntityID
@@ -223,7 +250,9 @@ type scratch struct {
 	s, t   graphidx.EntityID
 	hb     float64
 	bud    budget
-	kCut   bool // the candidate heap overflowed or pruned
+	// dropped has bit m set when a chain of m bridges was left out of
+	// the candidates (drop).
+	dropped uint8
 }
 
 // newScratch returns a scratch whose scorer workspace lends Dist
@@ -240,7 +269,7 @@ func newScratch() *scratch {
 func (sc *scratch) reset() {
 	sc.g, sc.model, sc.st, sc.pb = nil, nil, nil, nil
 	clear(sc.rks[:cap(sc.rks)]) // drop references into the index
-	sc.kCut = false
+	sc.dropped = 0
 	sc.bud = budget{}
 	sc.inc.ok = false
 	sc.err = nil
@@ -283,10 +312,12 @@ func (sc *scratch) intersect(a, b []graphidx.EntityID) bool {
 	if len(b) > 32*len(a) {
 		return sc.gallop(a, b)
 	}
-	want := len(a) + len(b)
-	got := sc.bud.take(want)
-	i, j := 0, 0
-	for n := 0; n < got && i < len(a) && j < len(b); n++ {
+	// Step at most as far as the budget allows, then charge the steps
+	// taken: a merge that ends early (one list exhausted) within the
+	// budget is complete and no cut, however long the other list is.
+	avail := min(len(a)+len(b), max(sc.bud.left, 0))
+	i, j, n := 0, 0, 0
+	for ; n < avail && i < len(a) && j < len(b); n++ {
 		x, y := a[i], b[j]
 		switch {
 		case x < y:
@@ -299,7 +330,12 @@ func (sc *scratch) intersect(a, b []graphidx.EntityID) bool {
 			j++
 		}
 	}
-	return got == want || i == len(a) || j == len(b)
+	sc.bud.take(n)
+	if i == len(a) || j == len(b) {
+		return true
+	}
+	sc.bud.exhausted = true
+	return false
 }
 
 // gallop intersects a short list a with a long list b by exponential then
@@ -352,7 +388,7 @@ func (sc *scratch) push(c cand, dup bool) {
 	h := sc.heap
 	k := sc.st.maxCand
 	if len(h) == k && c.cost > h[0].cost {
-		sc.kCut = true
+		sc.drop(int(c.m))
 		return
 	}
 	if dup {
@@ -377,10 +413,11 @@ func (sc *scratch) push(c cand, dup bool) {
 		sc.heap = h
 		return
 	}
-	sc.kCut = true
 	if c.cost == h[0].cost {
+		sc.drop(int(c.m))
 		return // keep the earlier of equal-cost candidates
 	}
+	sc.drop(int(h[0].m))
 	h[0] = c
 	i := 0
 	for {
@@ -400,36 +437,127 @@ func (sc *scratch) push(c cand, dup bool) {
 	}
 }
 
-// full reports whether a candidate of the given lower-bound cost can no
-// longer enter the heap; it records the cut.
-func (sc *scratch) prune(lower float64) bool {
+// prune reports whether a chain of m bridges whose proxy cost is at least
+// lower can no longer enter the heap; it records the drop.
+func (sc *scratch) prune(lower float64, m int) bool {
 	if len(sc.heap) == sc.st.maxCand && lower >= sc.heap[0].cost {
-		sc.kCut = true
+		sc.drop(m)
 		return true
 	}
 	return false
 }
 
-// layer1 fills out with the beam of the B best-ranked neighbours of from
-// (other excluded), by support; the edge cost is looked up only when a join
-// uses the node. complete reports that it holds all of them.
-func (sc *scratch) layer1(out []step1, from, other graphidx.EntityID, adjacent bool) ([]step1, bool) {
+// drop records that a chain of m bridges was generated (or pruned as a
+// partial path) but left out of the k candidates. Whether that is a cut is
+// decided after the exact scores (candidatesCut).
+func (sc *scratch) drop(m int) { sc.dropped |= 1 << m }
+
+// layer1 fills out with the first-layer beam of from: its B best-ranked
+// neighbours by support (other excluded), read from the support-ranked
+// prefix and, when the beam reaches past the prefix, from the full
+// adjacency (ranked). The edge cost is looked up only when a join uses the
+// node. ok reports that it holds every eligible neighbour; beamCut that
+// the width B (not the budget) left some out.
+func (sc *scratch) layer1(out []step1, from, other graphidx.EntityID) (l []step1, ok, beamCut bool) {
 	out = out[:0]
 	rk := sc.g.RankedNeighbors(from)
-	eligible := len(sc.g.Neighbors(from))
-	if adjacent {
-		eligible--
-	}
 	for _, x := range rk {
 		if x == other || x == from {
 			continue
 		}
-		if len(out) == sc.st.beam || sc.bud.take(1) == 0 {
-			break
+		if len(out) == sc.st.beam {
+			return out, false, true
+		}
+		if sc.bud.take(1) == 0 {
+			return out, false, false
 		}
 		out = append(out, step1{id: x, cost: math.NaN()})
 	}
-	return out, len(out) == eligible
+	if sc.whole(from, rk) {
+		return out, true, false
+	}
+	extra, ok, beamCut := sc.beyond(from, rk, sc.st.beam-len(out), from, other, from)
+	for _, x := range extra {
+		out = append(out, step1{id: x, cost: math.NaN()})
+	}
+	return out, ok, beamCut
+}
+
+// whole reports whether rk, the ranked list of x, holds every neighbour of
+// x: a list shorter than the graph's rank prefix is whole, which spares
+// reading x's offsets; otherwise the lengths are compared. O(1).
+func (sc *scratch) whole(x graphidx.EntityID, rk []graphidx.EntityID) bool {
+	if sc.rankPrefix > 0 && len(rk) < sc.rankPrefix {
+		return true
+	}
+	return len(rk) >= len(sc.g.Neighbors(x))
+}
+
+// beyond returns, best first, up to room neighbours of x that its ranked
+// prefix rk does not hold, other than ex0, ex1, ex2: all of them (in id
+// order) when they fit, else the room best by (support descending, id
+// ascending), which costs one pair look-up each. It is how a beam wider
+// than the index's rank prefix goes on past the prefix. ok reports that
+// every such neighbour was returned; beamCut that room (not the budget)
+// left some out. Cost O(deg(x)) list steps, plus O(deg(x)) look-ups and a
+// sort when they do not fit; the returned slice is scratch memory valid
+// until the next call.
+func (sc *scratch) beyond(x graphidx.EntityID, rk []graphidx.EntityID, room int, ex0, ex1, ex2 graphidx.EntityID) (extra []graphidx.EntityID, ok, beamCut bool) {
+	if room <= 0 {
+		// Nothing more fits: the rest is cut, whatever it holds (the
+		// caller knows the list is not whole).
+		return nil, false, true
+	}
+	all := sc.g.Neighbors(x)
+	if sc.bud.take(len(all)) < len(all) {
+		return nil, false, false
+	}
+	sc.rkSet.reset(len(rk))
+	for i, y := range rk {
+		sc.rkSet.put(uint64(y), int32(i))
+	}
+	rest := sc.extra[:0]
+	for _, y := range all {
+		if y == ex0 || y == ex1 || y == ex2 {
+			continue
+		}
+		if _, in := sc.rkSet.get(uint64(y)); !in {
+			rest = append(rest, y)
+		}
+	}
+	sc.extra = rest
+	if len(rest) <= room {
+		return rest, true, false
+	}
+	// Rank the rest by support: one look-up each, all or nothing.
+	if sc.bud.left < len(rest)*lookupUnits {
+		sc.bud.take(sc.bud.left + 1) // records the exhaustion
+		return nil, false, false
+	}
+	sc.bud.take(len(rest) * lookupUnits)
+	sups := sc.sups[:0]
+	for _, y := range rest {
+		ps, _ := sc.pairStats(x, y)
+		sups = append(sups, ps.Support())
+	}
+	sc.sups = sups
+	ord := sc.ord[:0]
+	for i := range rest {
+		ord = append(ord, int32(i))
+	}
+	slices.SortFunc(ord, func(i, j int32) int {
+		if c := cmp.Compare(sups[j], sups[i]); c != 0 {
+			return c
+		}
+		return cmp.Compare(rest[i], rest[j])
+	})
+	sc.ord = ord
+	best := sc.extra2[:0]
+	for _, i := range ord[:room] {
+		best = append(best, rest[i])
+	}
+	sc.extra2 = best
+	return best, false, true
 }
 
 // cost1 returns the edge cost origin → l[i].id, looking it up once.
@@ -452,46 +580,27 @@ func known(x float64) float64 {
 	return x
 }
 
-// nextEligible returns the first position ≥ pos in ranked whose node is not
-// one of the excluded ids, or -1.
-func nextEligible(ranked []graphidx.EntityID, pos int, ex0, ex1, ex2 graphidx.EntityID) int {
-	for ; pos < len(ranked); pos++ {
-		y := ranked[pos]
-		if y != ex0 && y != ex1 && y != ex2 {
-			return pos
-		}
-	}
-	return -1
-}
-
-// layer2 extends l1 (rooted at from) into up to B two-hop paths
-// from → a → b with b ∉ {from, other, a}, breadth-first by rank: the
-// best-ranked remaining neighbour of every l1 node in l1's rank order, then
-// the second-best, and so on. No pair is looked up here: the edge cost of
-// a → b is filled in (edgeCost2) only when a join needs it.
-func (sc *scratch) layer2(out []step2, l1 []step1, l1complete bool, from, other graphidx.EntityID) ([]step2, bool) {
+// layer2 extends l1 (rooted at from) into two-hop paths from → a → b with
+// b ∉ {from, other, a}: every first-layer node a by its f best-ranked
+// neighbours (f = the fan-out), read from the ranked prefix and, when f
+// reaches past it, from the full adjacency. So the layer holds at most
+// |l1|·f paths. No pair is looked up here: the edge cost of a → b is
+// filled in (edgeCost2) only when a join needs it. ok reports that every
+// path of the kind is in the layer (l1ok and no node cut); beamCut that
+// the fan-out (not the budget) left some out.
+func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphidx.EntityID) (l []step2, ok, beamCut bool) {
 	out = out[:0]
-	complete := l1complete
-	if cap(sc.cursor) < len(l1) {
-		sc.cursor = make([]int32, len(l1))
-	}
-	cur := sc.cursor[:len(l1)]
+	ok = l1ok
+	f := sc.st.fanOut
 	rks := sc.rks[:0]
-	for i, x := range l1 {
-		cur[i] = 0
-		rk := sc.g.RankedNeighbors(x.id)
-		rks = append(rks, rk)
-		// Only a prefix is ranked? A list shorter than the graph's rank
-		// prefix is whole, which spares reading the node's offsets.
-		if complete && (sc.rankPrefix <= 0 || len(rk) >= sc.rankPrefix) && len(rk) < len(sc.g.Neighbors(x.id)) {
-			complete = false
-		}
+	for _, x := range l1 {
+		rks = append(rks, sc.g.RankedNeighbors(x.id))
 	}
 	sc.rks = rks
 	// Read the head of every ranked list in one tight loop first: the
 	// loads are independent, so their cache misses overlap, where the
-	// breadth-first loop below (branchy, one list after the other) would
-	// meet them one by one.
+	// loop below (branchy, one list after the other) would meet them one
+	// by one.
 	var touch graphidx.EntityID
 	for _, rk := range rks {
 		if len(rk) > 0 {
@@ -499,30 +608,45 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1complete bool, from, other 
 		}
 	}
 	sc.touched += uint32(touch)
-	for progress := true; progress; {
-		progress = false
-		for i, x := range l1 {
-			if cur[i] < 0 {
+	for i, x := range l1 {
+		rk := rks[i]
+		n := 0
+		full := false
+		for _, y := range rk {
+			if y == from || y == other || y == x.id {
 				continue
 			}
-			rk := rks[i]
-			pos := nextEligible(rk, int(cur[i]), from, other, x.id)
-			if pos < 0 {
-				cur[i] = -1
-				continue
-			}
-			if len(out) == sc.st.beam {
-				return out, false
+			if n == f {
+				full = true
+				break
 			}
 			if sc.bud.take(1) == 0 {
-				return out, false
+				return out, false, beamCut
 			}
-			out = append(out, step2{a: x.id, b: rk[pos], li: int32(i), c2: math.NaN()})
-			cur[i] = int32(pos + 1)
-			progress = true
+			out = append(out, step2{a: x.id, b: y, li: int32(i), r: int32(n), c2: math.NaN()})
+			n++
+		}
+		if full {
+			ok, beamCut = false, true
+			continue
+		}
+		if sc.whole(x.id, rk) {
+			continue
+		}
+		extra, eok, ecut := sc.beyond(x.id, rk, f-n, from, other, x.id)
+		for _, y := range extra {
+			out = append(out, step2{a: x.id, b: y, li: int32(i), r: int32(n), c2: math.NaN()})
+			n++
+		}
+		if !eok {
+			ok = false
+			beamCut = beamCut || ecut
+			if !ecut {
+				return out, false, beamCut // the budget ran out
+			}
 		}
 	}
-	return out, complete
+	return out, ok, beamCut
 }
 
 // edgeCost2 returns the cost of p's second edge, looking it up once.
@@ -547,23 +671,21 @@ type searchResult struct {
 
 // generate fills sc.heap with the k proxy-cheapest chains of at most H
 // bridges between s and t.
-func (sc *scratch) generate(adjacent bool) searchResult {
+func (sc *scratch) generate() searchResult {
 	g, s, t, H := sc.g, sc.s, sc.t, sc.st.maxBridges
 	hb := sc.hb
 	sc.heap = sc.heap[:0]
 	if H == 0 {
 		return searchResult{}
 	}
-	complete := true
+	beamOK := true // no beam or fan-out left a chain out
 
 	// m = 1: N(s) ∩ N(t), exact. The phase may spend half the budget, the
 	// intersection itself half of that, so that the hits can be scored and
 	// the beams still run when a hub makes the intersection long.
 	held := sc.bud.limit(sc.bud.left / 2)
 	held2 := sc.bud.limit(sc.bud.left / 2)
-	if !sc.intersect(g.Neighbors(s), g.Neighbors(t)) {
-		complete = false
-	}
+	sc.intersect(g.Neighbors(s), g.Neighbors(t))
 	sc.bud.unlimit(held2)
 	if sc.beginPrefetch(sc.bud.left/lookupUnits + 1) {
 		for _, z := range sc.hits {
@@ -580,22 +702,20 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 		}
 		c1, ok1 := sc.edge(s, z)
 		if !ok1 {
-			complete = false
 			continue
 		}
-		if sc.prune(c1 + hb) {
+		if sc.prune(c1+hb, 1) {
 			continue
 		}
 		c2, ok2 := sc.edge(z, t)
 		if !ok2 {
-			complete = false
 			continue
 		}
 		sc.push(cand{cost: c1 + c2 + hb, b: [3]graphidx.EntityID{z}, m: 1}, false)
 	}
 	sc.bud.unlimit(held)
 	if H == 1 {
-		return sc.result(complete)
+		return sc.result(beamOK)
 	}
 
 	// Incumbent: with the reference known (the direct estimate), score the
@@ -611,79 +731,33 @@ func (sc *scratch) generate(adjacent bool) searchResult {
 			}
 		}
 		if !sc.scoreIncumbent(sc.heap[bi]) {
-			return sc.result(complete)
+			return sc.result(beamOK)
 		}
 		if sc.bound(2) <= sc.inc.score {
-			return sc.result(complete)
+			return sc.result(beamOK)
 		}
 	}
 
 	// Beams from both ends.
-	var f1ok, t1ok, f2ok, t2ok bool
-	sc.f1, f1ok = sc.layer1(sc.f1, s, t, adjacent)
-	sc.t1, t1ok = sc.layer1(sc.t1, t, s, adjacent)
-	sc.f2, f2ok = sc.layer2(sc.f2, sc.f1, f1ok, s, t)
-	sc.t2, t2ok = sc.layer2(sc.t2, sc.t1, t1ok, t, s)
+	var f1ok, t1ok, f2ok, t2ok, f1cut, t1cut, f2cut, t2cut bool
+	sc.f1, f1ok, f1cut = sc.layer1(sc.f1, s, t)
+	sc.t1, t1ok, t1cut = sc.layer1(sc.t1, t, s)
+	sc.f2, f2ok, f2cut = sc.layer2(sc.f2, sc.f1, f1ok, s, t)
+	sc.t2, t2ok, t2cut = sc.layer2(sc.t2, sc.t1, t1ok, t, s)
 	skip3 := H < 3 || (sc.inc.ok && sc.bound(3) <= sc.inc.score)
 	sc.matchJoins(skip3)
-	sc.prefetchJoins()
+	sc.joinAll()
 
-	// m = 2: F2 ⋈ T1 (s→a→b, b→t) and F1 ⋈ T2 (s→b, t→c→b). Costs are
-	// summed in path order so a chain met by both joins costs the same.
-	f1, t1, f2, t2 := sc.f1, sc.t1, sc.f2, sc.t2
-	for _, k := range sc.joinA {
-		f := &f2[uint32(k)]
-		yi, _ := sc.t1ids.get(uint64(f.b))
-		if sc.prune(known(f1[f.li].cost) + known(f.c2) + known(t1[yi].cost) + 2*hb) {
-			continue
-		}
-		c1, ok1 := sc.cost1(f1, f.li, s)
-		c2, ok2 := sc.edgeCost2(f)
-		c3, ok3 := sc.cost1(t1, yi, t)
-		if ok1 && ok2 && ok3 {
-			sc.push(cand{cost: c1 + c2 + c3 + 2*hb, b: [3]graphidx.EntityID{f.a, f.b}, m: 2}, false)
-		}
+	// A layer cut only by the budget counts as whole here: the budget cut
+	// is reported on its own (CutBudget).
+	bf1, bt1 := f1ok || !f1cut, t1ok || !t1cut
+	bf2, bt2 := f2ok || !(f2cut || f1cut), t2ok || !(t2cut || t1cut)
+	beamOK = (bf2 && bt1) || (bf1 && bt2)
+	if H >= 3 && !skip3 {
+		// The three-bridge join reads only B paths per side (beam3).
+		beamOK = beamOK && bf2 && bt2 && len(sc.f2) <= sc.st.beam && len(sc.t2) <= sc.st.beam
 	}
-	for _, k := range sc.joinB {
-		y := &t2[uint32(k)]
-		xi, _ := sc.f1ids.get(uint64(y.b))
-		x := f1[xi].id
-		// path order: s→b (f1), b→c (y.c2), c→t (t1)
-		if sc.prune(known(f1[xi].cost) + known(y.c2) + known(t1[y.li].cost) + 2*hb) {
-			continue
-		}
-		c1, ok1 := sc.cost1(f1, xi, s)
-		c2, ok2 := sc.edgeCost2(y)
-		c3, ok3 := sc.cost1(t1, y.li, t)
-		if ok1 && ok2 && ok3 {
-			sc.push(cand{cost: c1 + c2 + c3 + 2*hb, b: [3]graphidx.EntityID{x, y.a}, m: 2}, sc.inJoinA(x, y.a))
-		}
-	}
-	complete = complete && ((f2ok && t1ok) || (f1ok && t2ok))
-	if H == 2 {
-		return sc.result(complete)
-	}
-
-	if skip3 {
-		return sc.result(complete)
-	}
-
-	// m = 3: F2 ⋈ T2 on the middle node (s→a→b, t→c→b, a ≠ c).
-	for _, mt := range sc.joinC {
-		f, y := &f2[mt.f], &t2[mt.t]
-		if f.a == y.a || sc.prune(known(f1[f.li].cost)+known(f.c2)+known(y.c2)+known(t1[y.li].cost)+3*hb) {
-			continue
-		}
-		c1, ok1 := sc.cost1(f1, f.li, s)
-		c2, ok2 := sc.edgeCost2(f)
-		c3, ok3 := sc.edgeCost2(y)
-		c4, ok4 := sc.cost1(t1, y.li, t)
-		if ok1 && ok2 && ok3 && ok4 {
-			sc.push(cand{cost: c1 + c2 + c3 + c4 + 3*hb, b: [3]graphidx.EntityID{f.a, f.b, y.a}, m: 3}, false)
-		}
-	}
-	complete = complete && f2ok && t2ok
-	return sc.result(complete)
+	return sc.result(beamOK)
 }
 
 // matchJoins lists the matches of the joins, in the order a sort-merge
@@ -726,12 +800,18 @@ func (sc *scratch) matchJoins(skip3 bool) {
 	// The F2 paths whose end T2 has, then the T2 paths whose end is one
 	// of those (few, so their index is small), both sorted, then merged
 	// group by group.
+	r3f, r3t := sc.beam3(f2), sc.beam3(t2)
 	sc.t2ends.reset(len(t2))
 	for i := range t2 {
-		sc.t2ends.put(uint64(t2[i].b), int32(i))
+		if r3t.in(&t2[i]) {
+			sc.t2ends.put(uint64(t2[i].b), int32(i))
+		}
 	}
 	fk, tk := sc.keysF[:0], sc.keysT[:0]
 	for i := range f2 {
+		if !r3f.in(&f2[i]) {
+			continue
+		}
 		if _, ok := sc.t2ends.get(uint64(f2[i].b)); ok {
 			fk = append(fk, uint64(f2[i].b)<<32|uint64(i))
 		}
@@ -742,6 +822,9 @@ func (sc *scratch) matchJoins(skip3 bool) {
 			sc.f2ends.put(k>>32, 0)
 		}
 		for i := range t2 {
+			if !r3t.in(&t2[i]) {
+				continue
+			}
 			if _, ok := sc.f2ends.get(uint64(t2[i].b)); ok {
 				tk = append(tk, uint64(t2[i].b)<<32|uint64(i))
 			}
@@ -768,74 +851,273 @@ func (sc *scratch) matchJoins(skip3 bool) {
 	sc.keysF, sc.keysT = fk, tk
 }
 
-// inJoinA reports whether F2 ⋈ T1 met the chain s→x→c→t, i.e. whether F2
-// has the path s→x→c with c in T1: a binary search for c in the sorted
-// matches of F2 ⋈ T1 (a few per decision). Only such a chain can be pushed
-// twice.
-func (sc *scratch) inJoinA(x, c graphidx.EntityID) bool {
-	j, _ := slices.BinarySearch(sc.joinA, uint64(c)<<32)
-	for ; j < len(sc.joinA) && sc.joinA[j]>>32 == uint64(c); j++ {
-		if sc.f2[uint32(sc.joinA[j])].a == x {
-			return true
-		}
+// rankCut selects the three-bridge beam of a second layer: the paths of
+// rank position below r, and those at position r of first-layer nodes
+// before li (see beam3).
+type rankCut struct{ r, li int32 }
+
+func (c rankCut) in(p *step2) bool { return p.r < c.r || (p.r == c.r && p.li < c.li) }
+
+// beam3 returns the three-bridge beam of the second layer l: its B paths
+// first in (rank position, first-layer position) order, i.e. the B paths a
+// breadth-first walk of the first-layer nodes' ranked lists takes (the
+// best-ranked extension of every node, then the second-best, …). The
+// two-bridge joins use all of l (fan-out f per node); the three-bridge join
+// F2 ⋈ T2, whose matches grow with the product of the two layers, uses this
+// beam of B paths per side. O(|l|).
+func (sc *scratch) beam3(l []step2) rankCut {
+	B := sc.st.beam
+	if len(l) <= B {
+		return rankCut{r: math.MaxInt32}
 	}
-	return false
+	cnt := sc.rcount[:0]
+	for i := range l {
+		r := int(l[i].r)
+		for len(cnt) <= r {
+			cnt = append(cnt, 0)
+		}
+		cnt[r]++
+	}
+	sc.rcount = cnt
+	left := B
+	for r, c := range cnt {
+		if c <= left {
+			left -= c
+			continue
+		}
+		// Level r is taken in part: its first `left` paths by li.
+		li := int32(math.MaxInt32)
+		if left > 0 {
+			seen := 0
+			for i := range l {
+				if int(l[i].r) == r {
+					seen++
+					if seen == left+1 {
+						li = l[i].li
+						break
+					}
+				}
+			}
+		} else {
+			li = -1
+		}
+		return rankCut{r: int32(r), li: li}
+	}
+	return rankCut{r: math.MaxInt32}
 }
 
 // match3 is a match of F2 ⋈ T2: positions in F2 and T2.
 type match3 struct{ f, t uint32 }
 
-// prefetchJoins queues and fetches the pairs the joins will read: every
-// edge of every match (matchJoins).
-func (sc *scratch) prefetchJoins() {
-	if !sc.beginPrefetch(sc.bud.left/lookupUnits + 1) {
-		return
-	}
-	s, t, f1, f2, t2 := sc.s, sc.t, sc.f1, sc.f2, sc.t2
-	for _, k := range sc.joinA {
-		f := &f2[uint32(k)]
-		sc.want(s, f.a)
-		sc.want(f.a, f.b)
-		sc.want(f.b, t)
-	}
-	for _, k := range sc.joinB {
-		y := &t2[uint32(k)]
-		xi, _ := sc.f1ids.get(uint64(y.b))
-		sc.want(s, f1[xi].id)
-		sc.want(y.b, y.a)
-		sc.want(y.a, t)
-	}
-	for _, mt := range sc.joinC {
-		f, y := &f2[mt.f], &t2[mt.t]
-		if f.a == y.a {
-			continue
-		}
-		sc.want(s, f.a)
-		sc.want(f.a, f.b)
-		sc.want(f.b, y.a)
-		sc.want(y.a, t)
-	}
-	sc.fetch()
+// jmatch is one join match (matchJoins) waiting to become a chain: kind
+// 0 is F2 ⋈ T1 (i in joinA), 1 is F1 ⋈ T2 (i in joinB), 2 is F2 ⋈ T2 (i
+// in joinC). lb is a lower bound of the chain's proxy cost: its two
+// first-layer edges (the end edges) plus β·m, the middle edges counted as
+// 0 (EdgeCost ≥ 0).
+type jmatch struct {
+	lb   float64
+	kind uint8
+	i    int32
 }
 
-func (sc *scratch) result(complete bool) searchResult {
+// joinChunk is the number of matches whose middle edges are fetched in one
+// batch: small enough that the heap bound prunes most matches before their
+// look-ups, large enough that a batch's cache misses overlap.
+const joinChunk = 8
+
+// joinAll turns the join matches into candidates, cheapest lower bound
+// first, so that the heap bound prunes the rest before their middle edges
+// are looked up:
+//
+//  1. the end edges (s → first-layer node, first-layer node → t) of every
+//     match are fetched in one batch and costed (they are shared by many
+//     matches, a few dozen per decision);
+//  2. the matches are sorted by lb = end costs + β·m (ties by kind, then
+//     position: deterministic);
+//  3. in that order, chunks of joinChunk matches not yet prunable have
+//     their middle edges fetched in one batch and are pushed; the first
+//     match whose lb reaches the heap's largest cost ends the pass, since
+//     every later one is at least as costly (those are recorded as dropped
+//     chains, see candidatesCut).
+//
+// Cost: O(M·log M) for M matches plus the look-ups of the end edges and of
+// the middle edges of the matches scored before the bound prunes.
+func (sc *scratch) joinAll() {
+	s, t := sc.s, sc.t
+	f1, t1, f2, t2 := sc.f1, sc.t1, sc.f2, sc.t2
+	hb := sc.hb
+	n := len(sc.joinA) + len(sc.joinB) + len(sc.joinC)
+	if n == 0 {
+		return
+	}
+	// 1. End edges.
+	if sc.beginPrefetch(sc.bud.left/lookupUnits + 1) {
+		for _, k := range sc.joinA {
+			f := &f2[uint32(k)]
+			sc.want(s, f.a)
+			sc.want(f.b, t)
+		}
+		for _, k := range sc.joinB {
+			y := &t2[uint32(k)]
+			sc.want(s, y.b)
+			sc.want(y.a, t)
+		}
+		for _, mt := range sc.joinC {
+			sc.want(s, f2[mt.f].a)
+			sc.want(t2[mt.t].a, t)
+		}
+		sc.fetch()
+	}
+	// 2. Lower bounds.
+	ms := sc.jms[:0]
+	for i, k := range sc.joinA {
+		f := &f2[uint32(k)]
+		yi, _ := sc.t1ids.get(uint64(f.b))
+		c1, ok1 := sc.cost1(f1, f.li, s)
+		c3, ok3 := sc.cost1(t1, yi, t)
+		if ok1 && ok3 {
+			ms = append(ms, jmatch{lb: c1 + c3 + 2*hb, kind: 0, i: int32(i)})
+		}
+	}
+	for i, k := range sc.joinB {
+		y := &t2[uint32(k)]
+		xi, _ := sc.f1ids.get(uint64(y.b))
+		c1, ok1 := sc.cost1(f1, xi, s)
+		c3, ok3 := sc.cost1(t1, y.li, t)
+		if ok1 && ok3 {
+			ms = append(ms, jmatch{lb: c1 + c3 + 2*hb, kind: 1, i: int32(i)})
+		}
+	}
+	for i, mt := range sc.joinC {
+		f, y := &f2[mt.f], &t2[mt.t]
+		if f.a == y.a {
+			continue // s→a→b→a→t is no simple chain
+		}
+		c1, ok1 := sc.cost1(f1, f.li, s)
+		c4, ok4 := sc.cost1(t1, y.li, t)
+		if ok1 && ok4 {
+			ms = append(ms, jmatch{lb: c1 + c4 + 3*hb, kind: 2, i: int32(i)})
+		}
+	}
+	slices.SortFunc(ms, func(a, b jmatch) int {
+		if c := cmp.Compare(a.lb, b.lb); c != 0 {
+			return c
+		}
+		if c := cmp.Compare(a.kind, b.kind); c != 0 {
+			return c
+		}
+		return cmp.Compare(a.i, b.i)
+	})
+	sc.jms = ms
+	// 3. Chunks in lower-bound order.
+	for p := 0; p < len(ms); {
+		if sc.prune(ms[p].lb, 2+int(ms[p].kind)/2) {
+			for _, m := range ms[p+1:] {
+				sc.drop(2 + int(m.kind)/2)
+			}
+			return
+		}
+		q := min(p+joinChunk, len(ms))
+		if sc.beginPrefetch(sc.bud.left/lookupUnits + 1) {
+			for _, m := range ms[p:q] {
+				switch m.kind {
+				case 0:
+					f := &f2[uint32(sc.joinA[m.i])]
+					sc.want(f.a, f.b)
+				case 1:
+					y := &t2[uint32(sc.joinB[m.i])]
+					sc.want(y.b, y.a)
+				default:
+					mt := sc.joinC[m.i]
+					sc.want(f2[mt.f].a, f2[mt.f].b)
+					sc.want(t2[mt.t].b, t2[mt.t].a)
+				}
+			}
+			sc.fetch()
+		}
+		for _, m := range ms[p:q] {
+			sc.joinOne(m)
+		}
+		p = q
+	}
+}
+
+// joinOne pushes the chain of match m. Costs are summed in path order
+// (s→…→t) so that a two-bridge chain met by both F2 ⋈ T1 and F1 ⋈ T2 costs
+// the same bit for bit and is kept once.
+func (sc *scratch) joinOne(m jmatch) {
+	s, t := sc.s, sc.t
+	f1, t1, f2, t2 := sc.f1, sc.t1, sc.f2, sc.t2
+	hb := sc.hb
+	switch m.kind {
+	case 0: // s→a→b, b→t
+		f := &f2[uint32(sc.joinA[m.i])]
+		yi, _ := sc.t1ids.get(uint64(f.b))
+		if sc.prune(known(f1[f.li].cost)+known(f.c2)+known(t1[yi].cost)+2*hb, 2) {
+			return
+		}
+		c1, ok1 := sc.cost1(f1, f.li, s)
+		c2, ok2 := sc.edgeCost2(f)
+		c3, ok3 := sc.cost1(t1, yi, t)
+		if ok1 && ok2 && ok3 {
+			sc.push(cand{cost: c1 + c2 + c3 + 2*hb, b: [3]graphidx.EntityID{f.a, f.b}, m: 2}, true)
+		}
+	case 1: // s→b (F1), t→c→b (T2): s→b→c→t
+		y := &t2[uint32(sc.joinB[m.i])]
+		xi, _ := sc.f1ids.get(uint64(y.b))
+		if sc.prune(known(f1[xi].cost)+known(y.c2)+known(t1[y.li].cost)+2*hb, 2) {
+			return
+		}
+		c1, ok1 := sc.cost1(f1, xi, s)
+		c2, ok2 := sc.edgeCost2(y)
+		c3, ok3 := sc.cost1(t1, y.li, t)
+		if ok1 && ok2 && ok3 {
+			sc.push(cand{cost: c1 + c2 + c3 + 2*hb, b: [3]graphidx.EntityID{f1[xi].id, y.a}, m: 2}, true)
+		}
+	default: // s→a→b (F2), t→c→b (T2): s→a→b→c→t
+		mt := sc.joinC[m.i]
+		f, y := &f2[mt.f], &t2[mt.t]
+		if sc.prune(known(f1[f.li].cost)+known(f.c2)+known(y.c2)+known(t1[y.li].cost)+3*hb, 3) {
+			return
+		}
+		c1, ok1 := sc.cost1(f1, f.li, s)
+		c2, ok2 := sc.edgeCost2(f)
+		c3, ok3 := sc.edgeCost2(y)
+		c4, ok4 := sc.cost1(t1, y.li, t)
+		if ok1 && ok2 && ok3 && ok4 {
+			sc.push(cand{cost: c1 + c2 + c3 + c4 + 3*hb, b: [3]graphidx.EntityID{f.a, f.b, y.a}, m: 3}, false)
+		}
+	}
+}
+
+// result reports the cuts of generation: the beams (beamOK false: a beam or
+// fan-out left a chain out) and the budget or deadline. Candidates left out
+// of the heap are judged after the exact scores (candidatesCut).
+func (sc *scratch) result(beamOK bool) searchResult {
 	var cut Cut
-	if sc.kCut {
-		cut |= CutCandidates
+	if !beamOK {
+		cut |= CutBeam
 	}
 	if sc.bud.deadline {
 		cut |= CutDeadline
 	} else if sc.bud.exhausted {
 		cut |= CutBudget
 	}
-	if !complete && !sc.bud.exhausted {
-		cut |= CutBeam
+	return searchResult{truncated: cut != 0, deadline: sc.bud.deadline, cut: cut}
+}
+
+// candidatesCut reports whether a chain left out of the k candidates
+// (dropped from the heap, or pruned as a partial path) could have beaten
+// the best scored chain: a chain of m bridges has score ≤ bound(m), and a
+// tie never replaces the best, so a dropped chain could have won only when
+// bound(m) > best (or no chain was scored). O(H).
+func (sc *scratch) candidatesCut(found bool, best float64) bool {
+	for m := 1; m <= MaxBridgesLimit; m++ {
+		if sc.dropped&(1<<m) != 0 && (!found || sc.bound(m) > best) {
+			return true
+		}
 	}
-	return searchResult{
-		truncated: !complete || sc.kCut || sc.bud.exhausted,
-		deadline:  sc.bud.deadline,
-		cut:       cut,
-	}
+	return false
 }
 
 // candCmp orders candidates by hops, then ascending proxy cost, then ids.

@@ -13,21 +13,25 @@ import (
 
 // Bounds are the search limits applied alike to the router and to the
 // baselines: H bridges, beam B, k candidates scored exactly, the expansion
-// budget, and τ_gain for the mode.
+// budget, and τ_gain for the mode. FanOut is the router's second-layer
+// fan-out f (router.WithFanOut; 0 keeps router.DefaultFanOut); the
+// baselines' layers are all B wide.
 type Bounds struct {
 	MaxBridges    int     `json:"max_bridges"`
 	Beam          int     `json:"beam"`
+	FanOut        int     `json:"fan_out"`
 	MaxCandidates int     `json:"max_candidates"`
 	Budget        int     `json:"expansion_budget"`
 	GainThreshold float64 `json:"gain_threshold"`
 }
 
-// DefaultBounds returns the router's defaults (H=3, B=64, k=16, budget
-// 65536, τ=0).
+// DefaultBounds returns the router's defaults (H, B, f, k, budget and τ:
+// router.DefaultMaxBridges and the like).
 func DefaultBounds() Bounds {
 	return Bounds{
 		MaxBridges:    router.DefaultMaxBridges,
 		Beam:          router.DefaultBeam,
+		FanOut:        router.DefaultFanOut,
 		MaxCandidates: router.DefaultMaxCandidates,
 		Budget:        router.DefaultExpansionBudget,
 		GainThreshold: router.DefaultGainThreshold,
@@ -37,22 +41,26 @@ func DefaultBounds() Bounds {
 // GenerousBounds returns bounds wide enough that searches on small graphs
 // are exhaustive (used for the agreement check).
 func GenerousBounds() Bounds {
-	return Bounds{MaxBridges: 3, Beam: 1 << 20, MaxCandidates: 1 << 16, Budget: 1 << 30}
+	return Bounds{MaxBridges: 3, Beam: 1 << 20, FanOut: 1 << 20, MaxCandidates: 1 << 16, Budget: 1 << 30}
 }
 
 // RouterOptions returns the router options for b.
 func (b Bounds) RouterOptions() []router.Option {
-	return []router.Option{
+	opts := []router.Option{
 		router.WithMaxBridges(b.MaxBridges),
 		router.WithBeam(b.Beam),
 		router.WithMaxCandidates(b.MaxCandidates),
 		router.WithExpansionBudget(b.Budget),
 		router.WithGainThreshold(b.GainThreshold),
 	}
+	if b.FanOut != 0 {
+		opts = append(opts, router.WithFanOut(b.FanOut))
+	}
+	return opts
 }
 
 func (b Bounds) validate() error {
-	if b.MaxBridges < 0 || b.MaxBridges > router.MaxBridgesLimit || b.Beam < 1 || b.MaxCandidates < 1 || b.Budget < 1 {
+	if b.MaxBridges < 0 || b.MaxBridges > router.MaxBridgesLimit || b.Beam < 1 || b.FanOut < 0 || b.MaxCandidates < 1 || b.Budget < 1 {
 		return fmt.Errorf("%w: bounds %+v", ErrBadConfig, b)
 	}
 	return nil
@@ -94,6 +102,10 @@ type bcand struct {
 	ids  []graphidx.EntityID
 	cost float64
 	err  float64 // exact chain error, NaN until scored
+	// margin is the model's gain margin of the chain's reference-bias
+	// estimate (scorer.GainMarginer), set with err; the router ranks
+	// chains by gain − margin.
+	margin float64
 }
 
 // search is the input of beamSearch beyond the graph.
@@ -106,8 +118,10 @@ type search struct {
 	u         int
 	directErr float64
 	// ref is the reference estimate of the reference-bias term (see
-	// setRef); nil until chosen.
-	ref []float64
+	// setRef); nil until chosen. refVar is its variance part, for the
+	// model's gain margin.
+	ref    []float64
+	refVar float64
 }
 
 // score returns the exact error of c, computing it once: the model's
@@ -124,8 +138,11 @@ func (sr *search) score(c *bcand) (float64, error) {
 	c.err = est.Err
 	if sr.ref != nil {
 		c.err += scorer.ReferenceBias(est.Dist, sr.ref)
+		if gm, ok := sr.model.(scorer.GainMarginer); ok {
+			c.margin = gm.GainMargin(est.Var, sr.refVar)
+		}
 	} else {
-		sr.ref = est.Dist // the reference itself: bias 0
+		sr.ref, sr.refVar = est.Dist, est.Var // the reference itself: bias 0, no margin
 	}
 	return c.err, nil
 }
@@ -133,24 +150,16 @@ func (sr *search) score(c *bcand) (float64, error) {
 // setRef chooses the reference among cands the way the router does when
 // the endpoints were never observed together (otherwise the direct
 // estimate is the reference, set before the search): the proxy-cheapest
-// one-bridge chain, ties by ids, or without one the proxy-cheapest chain
-// by (cost, hops, ids). It scores that chain first, with bias 0.
+// chain by (cost, hops, ids) among all generated chains. It scores that
+// chain first, with bias 0. The caller passes every generated chain (or
+// the k cheapest, which hold the cheapest).
 func (sr *search) setRef(cands []bcand) error {
 	if sr.ref != nil || len(cands) == 0 {
 		return nil
 	}
-	less := func(p, q *bcand) bool {
-		if len(p.ids) == 1 && len(q.ids) != 1 {
-			return true
-		}
-		if len(p.ids) != 1 && len(q.ids) == 1 {
-			return false
-		}
-		return candCompare(p, q) < 0
-	}
 	best := 0
 	for i := range cands {
-		if less(&cands[i], &cands[best]) {
+		if candCompare(&cands[i], &cands[best]) < 0 {
 			best = i
 		}
 	}
@@ -184,7 +193,8 @@ func candCompare(p, q *bcand) int {
 // reference chain of setRef).
 //
 // Exact pruning: a chain of m bridges has error ≥ β·m (its variance and
-// bias parts are ≥ 0), so before layer d is built, while at most k candidates
+// bias parts are ≥ 0), so when the reference is known (the endpoints were
+// observed together), before layer d is built, while at most k candidates
 // exist, they are scored and the search stops when the best error is
 // ≤ β·d: no longer chain can beat it. This is not a cut.
 //
@@ -209,10 +219,9 @@ func beamSearch[N comparable, A adjacency[N]](a A, sr *search, s, t N, r *Result
 	bestErr := math.Inf(1)
 	frontier := []bpath[N]{{}}
 	for depth := 1; depth <= b.MaxBridges; depth++ {
-		if depth > 1 && len(cands) <= b.MaxCandidates {
-			if err := sr.setRef(cands); err != nil {
-				return err
-			}
+		// Without the direct estimate the reference needs every chain, so
+		// only a search with a known reference stops early.
+		if depth > 1 && len(cands) <= b.MaxCandidates && sr.ref != nil {
 			for i := scored; i < len(cands); i++ {
 				e, err := sr.score(&cands[i])
 				if err != nil {
@@ -303,8 +312,10 @@ func beamSearch[N comparable, A adjacency[N]](a A, sr *search, s, t N, r *Result
 		if err != nil {
 			return err
 		}
+		// Ranked like the router: by the gain less the margin of the
+		// chain's bias estimate; the reported gain keeps no margin.
 		gain := sr.directErr - e
-		if best < 0 || gain > bestGain {
+		if best < 0 || gain-cands[i].margin > bestGain-cands[best].margin {
 			best, bestErr, bestGain = i, e, gain
 		}
 	}

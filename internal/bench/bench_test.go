@@ -323,3 +323,15 @@ func TestRunBadConfig(t *testing.T) {
 		t.Errorf("got %v", err)
 	}
 }
+
+// TestRunBadRankPrefix: a rank prefix outside 0..graphidx.MaxRankPrefix
+// is a configuration error, reported before anything is generated.
+func TestRunBadRankPrefix(t *testing.T) {
+	t.Parallel()
+	for _, rp := range []int{-1, graphidx.MaxRankPrefix + 1} {
+		_, err := Run(context.Background(), RunConfig{Graph: GraphConfig{Entities: 100, AvgDegree: 4}, RankPrefix: rp})
+		if !errors.Is(err, ErrBadConfig) {
+			t.Errorf("rank prefix %d: got %v", rp, err)
+		}
+	}
+}

@@ -194,8 +194,20 @@ func (gb *GonumBaseline) DecideWith(_ context.Context, q router.Query, b Bounds)
 	r.DirectErr = dir.Err
 	sr := &search{st: gb, model: gb.model, ws: ws, b: b, sid: sid, tid: tid, u: u, directErr: dir.Err}
 	if dir.Support > 0 {
-		sr.ref = dir.Dist // the pair's own counts carry no screening-off bias
+		sr.ref, sr.refVar = dir.Dist, dir.Var // the pair's own counts carry no screening-off bias
 	}
 	err = beamSearch[int64](gonumAdj{gb}, sr, s, t, &r, func(id graphidx.EntityID) string { return gb.names[id] })
 	return r, err
+}
+
+// RankedNeighbors implements scorer.RankedNeighborer, so the model's
+// separation check finds the same witnesses as on the index: the
+// neighbours in support order. It allocates (a baseline, not a fast path).
+func (gb *GonumBaseline) RankedNeighbors(id graphidx.EntityID) []graphidx.EntityID {
+	r := gb.ranked[id]
+	out := make([]graphidx.EntityID, len(r))
+	for i, x := range r {
+		out[i] = graphidx.EntityID(x)
+	}
+	return out
 }

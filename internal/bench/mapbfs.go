@@ -160,8 +160,20 @@ func (m *MapBaseline) DecideWith(_ context.Context, q router.Query, b Bounds) (R
 	r.DirectErr = dir.Err
 	sr := &search{st: m, model: m.model, ws: ws, b: b, sid: sid, tid: tid, u: u, directErr: dir.Err}
 	if dir.Support > 0 {
-		sr.ref = dir.Dist // the pair's own counts carry no screening-off bias
+		sr.ref, sr.refVar = dir.Dist, dir.Var // the pair's own counts carry no screening-off bias
 	}
 	err = beamSearch[string](mapAdj{m}, sr, q.From, q.To, &r, func(id graphidx.EntityID) string { return m.names[id] })
 	return r, err
+}
+
+// RankedNeighbors implements scorer.RankedNeighborer, so the model's
+// separation check finds the same witnesses as on the index: the
+// neighbours in support order. It allocates (a baseline, not a fast path).
+func (m *MapBaseline) RankedNeighbors(id graphidx.EntityID) []graphidx.EntityID {
+	r := m.ranked[m.names[id]]
+	out := make([]graphidx.EntityID, len(r))
+	for i, x := range r {
+		out[i] = m.ids[x]
+	}
+	return out
 }

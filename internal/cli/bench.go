@@ -8,6 +8,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/internal/bench"
 )
 
@@ -29,8 +30,10 @@ type benchOptions struct {
 	indexOut      string
 	maxBridges    int
 	beam          int
+	fanOut        int
 	maxCandidates int
 	budget        int
+	rankPrefix    int
 }
 
 func newBenchCmd() *cobra.Command {
@@ -52,10 +55,11 @@ Source above 40M contexts), and measures in one run on the same queries:
     map[string]map[string] breadth-first beam search, and the same search
     on gonum's graph/simple; their speed relative to the router (wall and
     thread-CPU means), and the agreement of their best chains with the
-    router's where no bound cut either search: the router's untruncated
-    decisions against exhaustive baselines, the same queries under the same
-    bounds, one bridge with generous bounds on the main graph, and up to
-    three bridges with generous bounds on a small companion graph;
+    router's where no bound cut either search: up to two bridges with wide
+    bounds on --agree-queries queries of the main graph that the router's
+    wide search did not cut, the timed queries under the same bounds, one
+    bridge with generous bounds on the main graph, and up to three bridges
+    with generous bounds on a small companion graph;
   - with --hub, queries from and to the highest-degree entity.
 
 Progress goes to stderr. The baselines hold the whole graph in Go maps
@@ -83,9 +87,11 @@ CPU columns leave out time spent waiting for a core.`,
 	f.StringVar(&o.build, "build", "auto", `index build: "auto", "contexts" (graphidx.Build) or "direct" (WriteFile of the Source)`)
 	f.StringVar(&o.indexOut, "index-out", "", "keep the generated index at this path (default: a temp file, removed)")
 	f.IntVar(&o.maxBridges, "max-bridges", bench.DefaultBounds().MaxBridges, "H, largest number of bridges")
-	f.IntVar(&o.beam, "beam", bench.DefaultBounds().Beam, "B, beam width")
+	f.IntVar(&o.beam, "beam", bench.DefaultBounds().Beam, "B, width of the first search layer")
+	f.IntVar(&o.fanOut, "fan-out", bench.DefaultBounds().FanOut, "f, second-layer neighbours per first-layer node")
 	f.IntVar(&o.maxCandidates, "max-candidates", bench.DefaultBounds().MaxCandidates, "k, candidates scored exactly")
 	f.IntVar(&o.budget, "expansion-budget", bench.DefaultBounds().Budget, "work units one search may spend (a hub costs at most this)")
+	f.IntVar(&o.rankPrefix, "rank-prefix", graphidx.DefaultRankPrefix, "rank prefix R of the generated index")
 	return cmd
 }
 
@@ -124,12 +130,13 @@ func runBench(cmd *cobra.Command, o benchOptions) error {
 	cfg := bench.RunConfig{
 		Graph:        bench.GraphConfig{Entities: o.entities, AvgDegree: o.avgDegree, Gamma: o.gamma, Seed: o.seed},
 		Queries:      o.queries,
-		Bounds:       bench.Bounds{MaxBridges: o.maxBridges, Beam: o.beam, MaxCandidates: o.maxCandidates, Budget: o.budget, GainThreshold: bench.DefaultBounds().GainThreshold},
+		Bounds:       bench.Bounds{MaxBridges: o.maxBridges, Beam: o.beam, FanOut: o.fanOut, MaxCandidates: o.maxCandidates, Budget: o.budget, GainThreshold: bench.DefaultBounds().GainThreshold},
 		Build:        mode,
 		Baselines:    base,
 		Hub:          o.hub,
 		HubQueries:   o.hubQueries,
 		AgreeQueries: o.agreeQueries,
+		RankPrefix:   o.rankPrefix,
 		IndexPath:    o.indexOut,
 		Progress:     progress,
 	}

@@ -20,13 +20,13 @@ import (
 func init() { register(newBuildCmd) }
 
 type buildOpts struct {
-	corpus, format, lexicon, out, tempDir, memBudget string
-	minSupport                                       uint64
-	maxNeighbors, workers, maxContextEntities        int
-	minValidShare                                    float64
-	strict, quiet                                    bool
-	counts                                           buildCountsOpts
-	lex                                              *graphidx.Lexicon // loaded --lexicon of a text corpus
+	corpus, format, lexicon, out, tempDir, memBudget      string
+	minSupport                                            uint64
+	maxNeighbors, workers, maxContextEntities, rankPrefix int
+	minValidShare                                         float64
+	strict, quiet                                         bool
+	counts                                                buildCountsOpts
+	lex                                                   *graphidx.Lexicon // loaded --lexicon of a text corpus
 }
 
 func newBuildCmd() *cobra.Command {
@@ -111,6 +111,7 @@ other errors.`,
 	f.IntVar(&o.maxNeighbors, "max-neighbors", 0, "keep each entity's N best neighbours by support (0: no limit)")
 	f.StringVar(&o.memBudget, "mem-budget", "512MiB", "memory budget, e.g. 256MiB, 2GiB, 500MB or bytes")
 	workersFlag(f, &o.workers, "counting goroutines")
+	f.IntVar(&o.rankPrefix, "rank-prefix", graphidx.DefaultRankPrefix, "neighbours stored per entity in support order (the router's first layers read them)")
 	f.StringVar(&o.tempDir, "temp-dir", "", "directory for spilled runs (default: the system temp dir)")
 	f.BoolVar(&o.strict, "strict", false, "stop at the first bad line instead of skipping and counting it")
 	f.IntVar(&o.maxContextEntities, "max-context-entities", graphidx.DefaultMaxContextEntities,
@@ -128,11 +129,14 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	if err != nil {
 		return &ExitError{Code: 2, Err: fmt.Errorf("--mem-budget: %w", err)}
 	}
+	if o.rankPrefix < 1 || o.rankPrefix > graphidx.MaxRankPrefix {
+		return &ExitError{Code: 2, Err: fmt.Errorf("--rank-prefix must be in [1, %d], got %d", graphidx.MaxRankPrefix, o.rankPrefix)}
+	}
 	switch {
 	case o.counts.fromCounts != "" && o.corpus != "":
 		return &ExitError{Code: 2, Err: errors.New("give either --corpus or --from-counts, not both")}
 	case o.counts.fromCounts != "":
-		return runBuildFromCounts(cmd, o.counts.fromCounts, o.out, o.minSupport, o.maxNeighbors)
+		return runBuildFromCounts(cmd, o.counts.fromCounts, o.out, o.minSupport, o.maxNeighbors, graphidx.WithRankPrefix(o.rankPrefix))
 	case o.corpus == "":
 		return &ExitError{Code: 2, Err: errors.New(`required flag "corpus" not set (or give --from-counts)`)}
 	}
@@ -185,7 +189,7 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	sum, err := graphidx.Build(cmd.Context(), r, o.out,
 		graphidx.WithMemBudget(buildBudget), graphidx.WithTempDir(o.tempDir), graphidx.WithWorkers(o.workers),
 		graphidx.WithMinSupport(o.minSupport), graphidx.WithMaxNeighbors(o.maxNeighbors),
-		graphidx.WithProgress(progress), graphidx.WithPolicy(policy),
+		graphidx.WithProgress(progress), graphidx.WithPolicy(policy), graphidx.WithRankPrefix(o.rankPrefix),
 		graphidx.WithMaxContextEntities(o.maxContextEntities), graphidx.WithMinValidShare(o.minValidShare))
 	done()
 	if err != nil {

@@ -33,7 +33,7 @@ func addBuildCountsFlags(cmd *cobra.Command, o *buildCountsOpts) {
 
 // runBuildFromCounts compiles the count shards in dir with the pruning
 // options and writes the index to out.
-func runBuildFromCounts(cmd *cobra.Command, dir, out string, minSupport uint64, maxNeighbors int) error {
+func runBuildFromCounts(cmd *cobra.Command, dir, out string, minSupport uint64, maxNeighbors int, wopts ...graphidx.WriteOption) error {
 	src, sum, err := graphidx.CompileCounts(cmd.Context(), dir,
 		graphidx.WithMinSupport(minSupport), graphidx.WithMaxNeighbors(maxNeighbors))
 	if err != nil {
@@ -41,7 +41,7 @@ func runBuildFromCounts(cmd *cobra.Command, dir, out string, minSupport uint64, 
 	}
 	w := cmd.OutOrStdout()
 	fmt.Fprintf(w, "read %s: %d bytes of count shards\n", dir, sum.SpillBytes)
-	if err := writeCompiled(w, out, src, sum.Pairs); err != nil {
+	if err := writeCompiled(w, out, src, sum.Pairs, wopts...); err != nil {
 		return err
 	}
 	fmt.Fprintf(w, "elapsed %s\n", sum.Elapsed.Round(1e6))

@@ -140,7 +140,7 @@ func runMerge(cmd *cobra.Command, o mergeOpts, inputs []string) error {
 
 // writeCompiled writes src as an index and prints what was written,
 // including what pruning removed.
-func writeCompiled(w io.Writer, out string, src graphidx.Source, st graphidx.PruneStats) (err error) {
+func writeCompiled(w io.Writer, out string, src graphidx.Source, st graphidx.PruneStats, wopts ...graphidx.WriteOption) (err error) {
 	if c, ok := src.(io.Closer); ok { // the shards stay mapped until written
 		defer func() {
 			if cerr := c.Close(); err == nil {
@@ -148,7 +148,7 @@ func writeCompiled(w io.Writer, out string, src graphidx.Source, st graphidx.Pru
 			}
 		}()
 	}
-	if err := graphidx.WriteFile(out, src); err != nil {
+	if err := graphidx.WriteFile(out, src, wopts...); err != nil {
 		return err
 	}
 	var size int64

@@ -34,7 +34,7 @@ func TestEncodeConfig(t *testing.T) {
 	}{
 		{"defaults", def, []string{"gain_threshold", "max_bridges", "exploration"}},
 		{"deployed", full, []string{"gain_threshold", "max_bridges", "exploration", "exploration_salt", "arms", "hash_key"}},
-		{"fitted support model", support, []string{"gain_threshold", "max_bridges", "model", "beta", "support_v0", "exploration"}},
+		{"fitted support model", support, []string{"gain_threshold", "max_bridges", "error_model", "beta", "support_v0", "exploration"}},
 	} {
 		b, err := EncodeConfig(c.cfg)
 		if err != nil {
