@@ -40,6 +40,7 @@ type routeOptions struct {
 	gainThreshold    float64
 	maxBridges, beam int
 	maxCandidates    int
+	fanOut           int
 	alpha, beta      float64
 	fallback         string
 	budget           int
@@ -141,7 +142,8 @@ answered with the nearest names in the index.`,
 	f.DurationVar(&o.timeout, "timeout", 0, "deadline per decision (0: none); a cut search is reported as truncated")
 	f.Float64Var(&o.gainThreshold, "gain-threshold", def.GainThreshold, "τ_gain: route chain when gain ≥ τ")
 	f.IntVar(&o.maxBridges, "max-bridges", def.MaxBridges, "H: most bridges in a chain (0-3)")
-	f.IntVar(&o.beam, "beam", def.Beam, "B: beam width of each search layer")
+	f.IntVar(&o.beam, "beam", def.Beam, "B: width of the first search layer")
+	f.IntVar(&o.fanOut, "fan-out", def.FanOut, "f: second-layer neighbours per first-layer node")
 	f.IntVar(&o.maxCandidates, "max-candidates", def.MaxCandidates, "k: chains scored exactly")
 	f.Float64Var(&o.alpha, "alpha", def.Alpha, "Dirichlet pseudo-count α")
 	f.Float64Var(&o.beta, "beta", def.Beta, "per-hop squared bias β")
@@ -173,6 +175,7 @@ func routeConfig(cmd *cobra.Command, o routeOptions) (router.Config, error) {
 	set("gain-threshold", func() { c.GainThreshold = o.gainThreshold })
 	set("max-bridges", func() { c.MaxBridges = o.maxBridges })
 	set("beam", func() { c.Beam = o.beam })
+	set("fan-out", func() { c.FanOut = o.fanOut })
 	set("max-candidates", func() { c.MaxCandidates = o.maxCandidates })
 	set("alpha", func() { c.Alpha = o.alpha })
 	set("beta", func() { c.Beta = o.beta })
@@ -744,8 +747,12 @@ func explain(w io.Writer, q routeQuery, d router.Decision, cfg router.Config, m 
 		fmt.Fprintf(&b, "chain      none within %d bridges\n", cfg.MaxBridges)
 	}
 	if d.Truncated {
-		fmt.Fprintf(&b, "search     truncated by %s (beam %d, candidates %d, budget %d); a better chain may exist\n",
-			strings.Join(d.Cut.Names(), ", "), cfg.Beam, cfg.MaxCandidates, cfg.ExpansionBudget)
+		fanOut := cfg.FanOut
+		if fanOut == 0 {
+			fanOut = router.DefaultFanOut
+		}
+		fmt.Fprintf(&b, "search     truncated by %s (beam %d, fan-out %d, candidates %d, expansion budget %d); a better chain may exist\n",
+			strings.Join(d.Cut.Names(), ", "), cfg.Beam, fanOut, cfg.MaxCandidates, cfg.ExpansionBudget)
 	} else if d.Reason.Code != router.ReasonUnknownEntityFallback && d.Reason.Code != router.ReasonUnknownValueFallback {
 		fmt.Fprintf(&b, "search     complete: no bound was hit\n")
 	}
