@@ -534,9 +534,14 @@ func (sc *scratch) beyond(x graphidx.EntityID, rk []graphidx.EntityID, room int,
 		sc.bud.take(sc.bud.left + 1) // records the exhaustion
 		return nil, false, false
 	}
-	sc.bud.take(len(rest) * lookupUnits)
+	// Charged per look-up, so the deadline is polled every deadlinePoll
+	// units: a hub's rest can be hundreds of thousands of look-ups.
 	sups := sc.sups[:0]
 	for _, y := range rest {
+		if sc.bud.take(lookupUnits) < lookupUnits {
+			sc.sups = sups
+			return nil, false, false // the deadline fired (the budget was checked above)
+		}
 		ps, _ := sc.pairStats(x, y)
 		sups = append(sups, ps.Support())
 	}
