@@ -48,6 +48,9 @@ With --list it prints the entity names, one per line in byte order (with
 --json one object with the names); --prefix P keeps the names that start
 with P and implies --list.
 
+In the text output control characters of names and values are escaped
+(\x1b, \u009b), as route does; --json gives them exactly.
+
 The index is opened with a header-only check, which is fast on any size;
 --verify also checks every section checksum and structural invariant.
 Exit status: 0 on success, 2 if the index is damaged or not an index (as
