@@ -122,12 +122,17 @@ func TestWideContextCancel(t *testing.T) {
 }
 
 // TestMaxContextEntities: a context over the limit is a counted bad line
-// naming file and line (JSONL, CSV), an error in strict mode; the builder
+// naming file and line (JSONL, CSV, text), an error in strict mode; the builder
 // skips and counts it from other readers, or fails under Strict.
 func TestMaxContextEntities(t *testing.T) {
 	t.Parallel()
 	jsonl := `{"id":"a","ents":["p1","p2"]}` + "\n" + `{"id":"wide","ents":["p1","p2","p3","p4"]}` + "\n" + `{"id":"b","ents":["p1","p3","p4"]}` + "\n"
 	csv := "context,entity\nc1,p1\nw,p1\nw,p2\nc1,p2\nw,p3\nw,p4\nc2,p3\n"
+	text := "p1 and p2\n\n\nthe wide one:\np1 p2, p3\nand p4 p1\n\np1 p3 p4\n"
+	lex, err := ParseLexicon(strings.NewReader("p1\tp1\np2\tp2\np3\tp3\np4\tp4\n"), "lex.tsv")
+	if err != nil {
+		t.Fatal(err)
+	}
 	for _, tc := range []struct {
 		name, in string
 		open     func(string, ...ReadOption) ContextReader
@@ -140,6 +145,9 @@ func TestMaxContextEntities(t *testing.T) {
 		{"csv", csv, func(s string, o ...ReadOption) ContextReader {
 			return NewCSVReader(strings.NewReader(s), "c.csv", o...)
 		}, 3, 4},
+		{"text", text, func(s string, o ...ReadOption) ContextReader {
+			return NewTextReader(strings.NewReader(s), "c.txt", lex, o...)
+		}, 4, 1},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			t.Parallel()

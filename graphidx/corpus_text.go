@@ -33,6 +33,9 @@ const ReasonConflictingValues = "conflicting-values"
 //     lenient mode, the error in strict mode), naming the line of the
 //     mention that states the second value.
 //
+// A paragraph linking more entities than WithMaxContextEntities is a bad
+// record with reason too-many-entities at its first line.
+//
 // Paragraphs left without an observation are counted in ReadStats.Empty and
 // skipped; they are not errors. A paragraph longer than the line limit is a
 // line-too-long error at its first line. A TextReader is not safe for
@@ -48,6 +51,8 @@ type TextReader struct {
 	agg   []mentionRef
 	obs   []Observation
 	atEOF bool
+	// maxEnts is WithMaxContextEntities (0: no limit).
+	maxEnts int
 }
 
 // mentionRef is one mention of a paragraph: entity and value indexes of the
@@ -61,7 +66,7 @@ type mentionRef struct {
 // name is the file name used in ids and errors.
 func NewTextReader(r io.Reader, name string, lex *Lexicon, opts ...ReadOption) *TextReader {
 	cfg := newReadConfig(opts)
-	tr := &TextReader{lr: newLineReader(r, cfg.maxLine), name: name, lex: lex}
+	tr := &TextReader{lr: newLineReader(r, cfg.maxLine), name: name, lex: lex, maxEnts: cfg.maxCtxEnts}
 	tr.bl.init(cfg.policy)
 	return tr
 }
@@ -126,6 +131,10 @@ func (r *TextReader) Next() (Context, error) {
 			continue
 		}
 		obs, le := r.observe(first)
+		if le == nil && r.maxEnts > 0 && len(obs) > r.maxEnts {
+			le = &LineError{File: r.name, Line: first, Reason: ReasonTooManyEntities,
+				Detail: fmt.Sprintf("paragraph %d links %d entities, more than %d in one context", r.n, len(obs), r.maxEnts)}
+		}
 		if le != nil {
 			if e := r.bl.bad(le); e != nil {
 				return Context{}, e

@@ -28,7 +28,7 @@ func unknownEntityHint(x *graphidx.Index, name string) string {
 	} else if len(prefix) > 3 {
 		prefix = prefix[:3]
 	}
-	fmt.Fprintf(&b, " (names are case-sensitive; list them with: hopwise inspect --index %s --list --prefix %s)", x.Path(), prefix)
+	fmt.Fprintf(&b, " (names are case-sensitive; list them with: hopwise inspect --index %s --list --prefix %s)", graphidx.EscapeControl(x.Path()), graphidx.EscapeControl(prefix))
 	return b.String()
 }
 

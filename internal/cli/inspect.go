@@ -48,6 +48,9 @@ With --list it prints the entity names, one per line in byte order (with
 --json one object with the names); --prefix P keeps the names that start
 with P and implies --list.
 
+In the text output control characters of names and values are escaped
+(\x1b, \u009b), as route does; --json gives them exactly.
+
 The index is opened with a header-only check, which is fast on any size;
 --verify also checks every section checksum and structural invariant.
 Exit status: 0 on success, 2 if the index is damaged or not an index (as
@@ -198,7 +201,7 @@ func indexError(err error) error {
 func entityStats(x *graphidx.Index, name string, n int) (*entityReport, error) {
 	id, ok := x.Lookup(name)
 	if !ok {
-		return nil, fmt.Errorf("inspect: entity %q not found in %s (%d entities)%s", name, x.Path(), x.NumEntities(), unknownEntityHint(x, name))
+		return nil, fmt.Errorf("inspect: entity %q not found in %s (%d entities)%s", name, graphidx.EscapeControl(x.Path()), x.NumEntities(), unknownEntityHint(x, name))
 	}
 	er := &entityReport{Name: name, ID: id, Support: x.EntitySupport(id), Degree: x.Degree(id), Neighbors: []neighborReport{}}
 	marg := x.Marginal(id)
@@ -232,7 +235,8 @@ func entityStats(x *graphidx.Index, name string, n int) (*entityReport, error) {
 	for _, b := range top {
 		ps, ok := x.Pair(id, b)
 		if !ok {
-			return nil, fmt.Errorf("inspect: %s: pair (%s, %s) listed as neighbours but not stored; run with --verify", x.Path(), name, x.Name(b))
+			return nil, fmt.Errorf("inspect: %s: pair (%s, %s) listed as neighbours but not stored; run with --verify",
+				graphidx.EscapeControl(x.Path()), graphidx.EscapeControl(name), graphidx.EscapeControl(x.Name(b)))
 		}
 		nr := neighborReport{Name: x.Name(b), ID: b, Support: ps.Support(), Values: x.Values(b)}
 		for u := 0; u < ps.KA; u++ {
@@ -254,7 +258,11 @@ func printInspect(w io.Writer, r *inspectReport) error {
 	if r.Verified {
 		verified = fmt.Sprintf("all checksums and invariants (%.3fs)", r.VerifySeconds)
 	}
-	fmt.Fprintf(tw, "index\t%s\n", r.Path)
+	// Names, values and the path may come from a foreign index or the
+	// command line: escape control characters so that printing them cannot
+	// drive the terminal (the --json form is escaped by JSON).
+	esc := graphidx.EscapeControl
+	fmt.Fprintf(tw, "index\t%s\n", esc(r.Path))
 	fmt.Fprintf(tw, "format version\t%d\n", r.FormatVersion)
 	fmt.Fprintf(tw, "generation\t%s\n", r.Generation)
 	fmt.Fprintf(tw, "bytes\t%d\n", r.Bytes)
@@ -271,11 +279,11 @@ func printInspect(w io.Writer, r *inspectReport) error {
 	if e == nil {
 		return nil
 	}
-	fmt.Fprintf(w, "\nentity %s (id %d): observed in %d contexts, %d neighbours\n\n", e.Name, e.ID, e.Support, e.Degree)
+	fmt.Fprintf(w, "\nentity %s (id %d): observed in %d contexts, %d neighbours\n\n", esc(e.Name), e.ID, e.Support, e.Degree)
 	tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
 	fmt.Fprintf(tw, "value\tmarginal\n")
 	for _, v := range e.Values {
-		fmt.Fprintf(tw, "%s\t%d\n", v.Label, v.Marginal)
+		fmt.Fprintf(tw, "%s\t%d\n", esc(v.Label), v.Marginal)
 	}
 	if err := tw.Flush(); err != nil {
 		return err
@@ -284,7 +292,7 @@ func printInspect(w io.Writer, r *inspectReport) error {
 		fmt.Fprintln(w, "\nno neighbours shown")
 		return nil
 	}
-	fmt.Fprintf(w, "\ntop %d neighbours by support (table rows: %s values; columns: neighbour values)\n\n", len(e.Neighbors), e.Name)
+	fmt.Fprintf(w, "\ntop %d neighbours by support (table rows: %s values; columns: neighbour values)\n\n", len(e.Neighbors), esc(e.Name))
 	tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
 	fmt.Fprintf(tw, "neighbour\tsupport\tcounts\n")
 	for _, nb := range e.Neighbors {
@@ -294,7 +302,7 @@ func printInspect(w io.Writer, r *inspectReport) error {
 				sb.WriteString("  ")
 			}
 			if u < len(e.Values) {
-				sb.WriteString(e.Values[u].Label)
+				sb.WriteString(esc(e.Values[u].Label))
 			}
 			sb.WriteString(": ")
 			for v, c := range row {
@@ -302,13 +310,13 @@ func printInspect(w io.Writer, r *inspectReport) error {
 					sb.WriteByte(' ')
 				}
 				if v < len(nb.Values) {
-					sb.WriteString(nb.Values[v])
+					sb.WriteString(esc(nb.Values[v]))
 				}
 				sb.WriteByte('=')
 				sb.WriteString(strconv.FormatUint(uint64(c), 10))
 			}
 		}
-		fmt.Fprintf(tw, "%s\t%d\t%s\n", nb.Name, nb.Support, sb.String())
+		fmt.Fprintf(tw, "%s\t%d\t%s\n", esc(nb.Name), nb.Support, sb.String())
 	}
 	return tw.Flush()
 }

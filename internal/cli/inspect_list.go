@@ -12,7 +12,9 @@ import (
 // name for ""), in the index's byte order: one per line, or with asJSON one
 // object {"prefix":…,"count":n,"names":[…]}. The range comes from two
 // binary searches (graphidx.Index.PrefixRange), so listing a prefix costs
-// O(log n) plus the names printed.
+// O(log n) plus the names printed. In the text form control characters
+// are escaped (graphidx.EscapeControl), so a name from a foreign index can
+// neither drive the terminal nor break the one-name-a-line layout.
 func listNames(w io.Writer, x *graphidx.Index, prefix string, asJSON bool) error {
 	lo, hi := x.PrefixRange(prefix)
 	if asJSON {
@@ -31,10 +33,25 @@ func listNames(w io.Writer, x *graphidx.Index, prefix string, asJSON bool) error
 	bw := bufio.NewWriter(w)
 	var line []byte
 	for id := lo; id < hi; id++ {
-		line = append(x.AppendName(line[:0], id), '\n')
+		line = x.AppendName(line[:0], id)
+		if !printableASCII(line) {
+			line = append(line[:0], graphidx.EscapeControl(string(line))...)
+		}
+		line = append(line, '\n')
 		if _, err := bw.Write(line); err != nil {
 			return err
 		}
 	}
 	return bw.Flush()
+}
+
+// printableASCII reports that b has only the bytes 0x20–0x7e, which need no
+// escaping: the common case, checked without converting b to a string.
+func printableASCII(b []byte) bool {
+	for _, c := range b {
+		if c < 0x20 || c > 0x7e {
+			return false
+		}
+	}
+	return true
 }

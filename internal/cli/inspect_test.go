@@ -154,3 +154,62 @@ func TestInspectBeyondRankPrefix(t *testing.T) {
 		t.Fatalf("neighbours = %+v", nb)
 	}
 }
+
+// hostileSource is an index written by another tool whose names and values
+// carry terminal escapes and a newline (the corpus readers reject them, an
+// index file need not).
+type hostileSource struct{}
+
+func (hostileSource) Contexts() uint64 { return 2 }
+func (hostileSource) Entities() []graphidx.EntityRecord {
+	return []graphidx.EntityRecord{
+		{Name: "bed\x1b[2J", Values: []string{"dry\x07", "wet"}, Marginal: []uint64{1, 1}},
+		{Name: "pump\nfake", Values: []string{"off", "on\u009b"}, Marginal: []uint64{1, 1}},
+	}
+}
+func (hostileSource) Pairs(fn func(graphidx.PairRecord) error) error {
+	return fn(graphidx.PairRecord{A: 0, B: 1, Counts: []uint32{1, 0, 0, 1}})
+}
+
+// TestInspectEscapesControl: the text output (an entity's statistics and
+// --list) escapes control characters of names and values, as route does;
+// --json keeps the names exact (JSON escapes them itself).
+func TestInspectEscapesControl(t *testing.T) {
+	t.Parallel()
+	path := filepath.Join(t.TempDir(), "hostile.hwx")
+	if err := graphidx.WriteFile(path, hostileSource{}); err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		args []string
+		want []string
+	}{
+		{[]string{"--entity", "bed\x1b[2J"}, []string{`entity bed\x1b[2J (id 0)`, `dry\x07`, `pump\x0afake`, `on\u009b=1`}},
+		{[]string{"--entity", "pump\nfake"}, []string{`entity pump\x0afake (id 1)`, `on\u009b`, `bed\x1b[2J`, `off: dry\x07=1`}},
+		{[]string{"--list"}, []string{"bed\\x1b[2J\npump\\x0afake\n"}},
+	} {
+		out, err := runCLI(t, append([]string{"inspect", "--index", path}, tc.args...)...)
+		if err != nil {
+			t.Fatalf("%q: %v", tc.args, err)
+		}
+		for _, w := range tc.want {
+			if !strings.Contains(out, w) {
+				t.Errorf("%q: output lacks %q:\n%s", tc.args, w, out)
+			}
+		}
+		if strings.ContainsAny(out, "\x1b\x07\u009b") || strings.Count(out, "pump") != strings.Count(out, "pump\\x0afake") {
+			t.Errorf("%q: raw control characters in the output:\n%q", tc.args, out)
+		}
+	}
+	out, err := runCLI(t, "inspect", "--index", path, "--json", "--entity", "pump\nfake")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var rep inspectReport
+	if err := json.Unmarshal([]byte(out), &rep); err != nil {
+		t.Fatal(err)
+	}
+	if rep.Entity.Name != "pump\nfake" || rep.Entity.Values[1].Label != "on\u009b" || rep.Entity.Neighbors[0].Name != "bed\x1b[2J" {
+		t.Fatalf("--json changed the names: %+v", rep.Entity)
+	}
+}

@@ -114,7 +114,11 @@ written by "hopwise tune") and are overridden by the flags given explicitly.
 Exit status: 0 when every query was answered, 2 when some failed or the
 index is damaged or not an index (as for "hopwise inspect"), 1 on another
 fatal error (missing index, config, flags, I/O). An unknown entity is
-answered with the nearest names in the index.`,
+answered with the nearest names in the index; in a batch only the first ` + strconv.Itoa(batchHints) + `
+unknown names get them (each search reads every name of the index, about
+30 ms on 450,000 names, while the failed decision is one lookup), the later
+lines say how to list names. An error line says the same as a single query
+about an unknown value (the entity's values) and an expired --timeout.`,
 		Example: `  hopwise route --index greenhouse.hwx --from vent-north --value open --to bed-tomato
   hopwise route --index greenhouse.hwx --from vent-north --value open --to bed-tomato --json
   hopwise route --index greenhouse.hwx --queries queries.jsonl --config route.json > decisions.jsonl
@@ -370,9 +374,25 @@ var queryFields = [...]string{"id", "from", "value", "to", "key"}
 // surrogate escapes (encoding/json would turn them into U+FFFD), each value
 // at most maxQueryField bytes, checked on the raw bytes before decoding, and
 // nothing after the object. Errors name the line and the field.
+//
+// A string literal too long for any field is found on the raw bytes first
+// (firstLongString) and handed to the decoder shortened, so a line of a
+// megabyte is rejected in O(line) memchr time instead of being tokenized
+// by encoding/json (about 10 ms per megabyte): the decoder still reads
+// every byte before it, so the error is the one a full decode gives.
 func parseQueryLine(b []byte, line int) (routeQuery, bool, error) {
+	if start, end, ok := firstLongString(b, 6*maxQueryField+2); ok {
+		src := io.MultiReader(bytes.NewReader(b[:start]), bytes.NewReader(shortLiteral(b[start:end])), bytes.NewReader(b[end:]))
+		return decodeQueryLine(src, int64(start), line)
+	}
+	return decodeQueryLine(bytes.NewReader(b), -1, line)
+}
+
+// decodeQueryLine is parseQueryLine on src, in which the string literal at
+// byte offset longAt (if ≥ 0) stands shortened for one too long for a field.
+func decodeQueryLine(src io.Reader, longAt int64, line int) (routeQuery, bool, error) {
 	var q routeQuery
-	dec := json.NewDecoder(bytes.NewReader(b))
+	dec := json.NewDecoder(src)
 	if tok, err := dec.Token(); err != nil || tok != json.Delim('{') {
 		return q, false, fmt.Errorf("line %d: not a JSON object", line)
 	}
@@ -399,6 +419,9 @@ func parseQueryLine(b []byte, line int) (routeQuery, bool, error) {
 		var raw json.RawMessage
 		if err := dec.Decode(&raw); err != nil {
 			return q, seen[0], fmt.Errorf("line %d: field %q: %v", line, key, err)
+		}
+		if dec.InputOffset()-int64(len(raw)) == longAt {
+			return q, seen[0], fmt.Errorf("line %d: field %q: longer than %d bytes", line, key, maxQueryField)
 		}
 		v, err := decodeQueryString(raw)
 		if err != nil {
@@ -464,6 +487,67 @@ func decodeQueryString(raw []byte) (string, error) {
 	return v, nil
 }
 
+// firstLongString finds the first JSON string literal of b whose raw form
+// (quotes included) is longer than max bytes, as b[start:end], by skipping
+// from quote to quote with bytes.IndexByte (a quote preceded by an odd run
+// of backslashes is escaped). Outside string literals a valid JSON line has
+// no quote, and in an invalid one the decoder stops at or before the
+// literal, so the literals found are the decoder's. O(len(b)); a line no
+// longer than max is not scanned.
+func firstLongString(b []byte, max int) (start, end int, ok bool) {
+	if len(b) <= max {
+		return 0, 0, false
+	}
+	for i := 0; ; {
+		o := bytes.IndexByte(b[i:], '"')
+		if o < 0 {
+			return 0, 0, false
+		}
+		start = i + o
+		j := start + 1
+		for {
+			c := bytes.IndexByte(b[j:], '"')
+			if c < 0 {
+				return 0, 0, false // unterminated: the decoder reports it
+			}
+			j += c
+			bs := 0
+			for k := j - 1; k > start && b[k] == '\\'; k-- {
+				bs++
+			}
+			j++
+			if bs%2 == 0 {
+				break
+			}
+		}
+		if j-start > max {
+			return start, j, true
+		}
+		i = j
+	}
+}
+
+// shortLiteral returns the raw JSON string literal lit cut to its first 512
+// or so raw bytes, at an escape boundary, and closed: as a key it decodes to
+// the same first 64 bytes (an escape is at most 6 raw bytes for at least
+// one decoded byte, so 512 raw bytes give at least 85), which is all an
+// unknown-field error shows (quoteField).
+func shortLiteral(lit []byte) []byte {
+	i := 1
+	for i < len(lit)-1 && i < 512 {
+		switch {
+		case lit[i] != '\\':
+			i++
+		case i+1 < len(lit) && lit[i+1] == 'u':
+			i += 6
+		default:
+			i += 2
+		}
+	}
+	i = min(i, len(lit)-1)
+	return append(append([]byte(nil), lit[:i]...), '"')
+}
+
 // loneSurrogate reports a \uD800–\uDFFF escape in the raw JSON string s
 // that is not a high surrogate directly followed by a low one.
 func loneSurrogate(s []byte) bool {
@@ -514,10 +598,13 @@ func routeBatch(ctx context.Context, gd guardedDecider, in io.Reader, name strin
 	items := make([]batchItem, 0, chunkLines)
 	lineNo := 0
 	eof := false
+	var lineBuf []byte // reused: a line is parsed before the next is read
+	hinted := 0        // unknown-entity lines given near names so far
 	for !eof {
 		items = items[:0]
 		for n := 0; len(items) < chunkLines && n < chunkBytes; {
-			b, tooLong, rerr := readLine(br, o.maxLineBytes)
+			b, tooLong, rerr := readLine(br, o.maxLineBytes, lineBuf[:0])
+			lineBuf = b[:0]
 			if rerr == io.EOF && b == nil && !tooLong {
 				eof = true
 				break
@@ -543,6 +630,7 @@ func routeBatch(ctx context.Context, gd guardedDecider, in io.Reader, name strin
 			}
 		}
 		decideChunk(ctx, gd, items, o)
+		hinted = hintUnknown(gd, items, hinted)
 		// A file overwritten in place may be read without a fault (new
 		// bytes at old offsets): check it once per chunk and withhold the
 		// chunk's answers when it changed.
@@ -581,16 +669,17 @@ const (
 	chunkBytes = 8 << 20
 )
 
-// readLine returns the next line without its newline. A line longer than
-// max is consumed and reported as tooLong. At the end it returns io.EOF,
-// with the last line's bytes when it had no final newline.
-func readLine(br *bufio.Reader, max int) (line []byte, tooLong bool, err error) {
-	var buf []byte
+// readLine returns the next line without its newline, appended to buf
+// (give the last line's buf[:0] to reuse its memory: lines of a megabyte
+// would otherwise each allocate and copy a growing buffer). A line longer
+// than max is consumed and reported as tooLong. At the end it returns
+// io.EOF, with the last line's bytes when it had no final newline.
+func readLine(br *bufio.Reader, max int, buf []byte) (line []byte, tooLong bool, err error) {
 	for {
 		frag, e := br.ReadSlice('\n')
 		if !tooLong {
 			if len(buf)+len(frag) > max+1 { // +1: the newline
-				tooLong, buf = true, nil
+				tooLong, buf = true, buf[:0]
 			} else {
 				buf = append(buf, frag...)
 			}
@@ -622,8 +711,41 @@ func errorLine(it *batchItem) []byte {
 	return append(b, '\n')
 }
 
+// batchHints is how many unknown-entity lines of a batch get near names
+// (graphidx.Index.Suggest), in input order. Suggest reads every name of the
+// index, O(N): 30 ms per call on 454,812 names against 2.4 µs for the
+// lookup that fails the decision (2-core development machine), so 5,000
+// unknown names would add 150 s to a batch that otherwise takes about one;
+// with this bound the hints add at most batchHints·O(N) per batch.
+const batchHints = 8
+
+// hintUnknown adds near names to the unknown-entity errors of items, in
+// input order, while fewer than batchHints lines of the batch have had
+// them (done counts those so far; the new count is returned), and to the
+// later ones the way to find names. It runs after the chunk's parallel
+// decisions, so which lines get hints does not depend on --workers.
+func hintUnknown(gd guardedDecider, items []batchItem, done int) int {
+	for i := range items {
+		it := &items[i]
+		if it.err == nil || it.q.Text != "" || !errors.Is(it.err, router.ErrUnknownEntity) {
+			continue
+		}
+		if done < batchHints {
+			done++
+			it.err = decideErrorHint(gd.ix, router.Query{From: it.q.From, Value: it.q.Value, To: it.q.To}, gd.timeout, it.err)
+		} else {
+			it.err = fmt.Errorf("%w (near names are looked up for the first %d unknown names of a batch only; "+
+				"route this query alone for them, or list names with: hopwise inspect --index %s --list --prefix P)",
+				it.err, batchHints, graphidx.EscapeControl(gd.ix.Path()))
+		}
+		it.out = errorLine(it)
+	}
+	return done
+}
+
 // decideChunk decides the items on o.workers goroutines and renders each
-// item's output line.
+// item's output line. Errors other than an unknown entity get their hint
+// (decideErrorHint) here; unknown entities get theirs from hintUnknown.
 func decideChunk(ctx context.Context, gd guardedDecider, items []batchItem, o routeOptions) {
 	work := func(it *batchItem) {
 		if it.err == nil && it.q.Text != "" {
@@ -635,6 +757,9 @@ func decideChunk(ctx context.Context, gd guardedDecider, items []batchItem, o ro
 		if it.err == nil {
 			d, err := gd.decide(ctx, it.q)
 			if err != nil {
+				if !errors.Is(err, router.ErrUnknownEntity) {
+					err = decideErrorHint(gd.ix, router.Query{From: it.q.From, Value: it.q.Value, To: it.q.To}, gd.timeout, err)
+				}
 				it.err = fmt.Errorf("line %d: %w", it.line, err)
 			} else if b, err := json.Marshal(newRouteLine(it.q, d, gd.r.ErrorMeasure())); err != nil {
 				it.err = fmt.Errorf("line %d: %w", it.line, err)
