@@ -95,7 +95,7 @@ func TestConfigErrorsNameTheField(t *testing.T) {
 	}
 	opts, _ := c.Options()
 	r, err := New(greenhouse(1), opts...)
-	if err != nil || r.cfg.Load().model.Name() != "support" {
+	if err != nil || r.cfg.Load().model.Name() != "support" || !r.cfg.Load().forced {
 		t.Fatalf("support model: %v", err)
 	}
 }
