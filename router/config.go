@@ -2,6 +2,7 @@ package router
 
 import (
 	"bytes"
+	"cmp"
 	"encoding/binary"
 	"encoding/hex"
 	"encoding/json"
@@ -142,12 +143,38 @@ var optionOf = map[string]string{
 	"arms": "WithArms", "hash_key": "WithHashKey",
 }
 
-// scorerField maps scorer.FieldError fields to the Config's JSON names.
-var scorerField = map[string]string{
-	"Alpha": "alpha", "Beta": "beta", "SignalZ": "signal_z", "MissingGamma": "missing_gamma",
-	"MissingDelta": "missing_delta", "PriorStrength": "prior_strength", "UnseenSpread": "unseen_spread",
-	"Separation": "separation", "NoiseK": "noise_k", "Variance": "chain_variance",
-	"V0": "support_v0", "N0": "support_n0", "Name": "error_model",
+// modelFields lists the Config's model fields: the JSON name, the
+// scorer.FieldError field it maps to, whether only the Bayes model reads
+// it, and its value (compared with DefaultConfig's). A new scorer constant
+// adds one row here.
+var modelFields = []struct {
+	json, scorer string
+	bayesOnly    bool
+	get          func(*Config) any
+}{
+	{"error_model", "Name", false, func(c *Config) any { return cmp.Or(c.Model, scorer.ModelBayes) }},
+	{"alpha", "Alpha", false, func(c *Config) any { return c.Alpha }},
+	{"beta", "Beta", false, func(c *Config) any { return c.Beta }},
+	{"signal_z", "SignalZ", true, func(c *Config) any { return c.SignalZ }},
+	{"missing_gamma", "MissingGamma", true, func(c *Config) any { return c.MissingGamma }},
+	{"missing_delta", "MissingDelta", true, func(c *Config) any { return c.MissingDelta }},
+	{"prior_strength", "PriorStrength", true, func(c *Config) any { return c.PriorStrength }},
+	{"unseen_spread", "UnseenSpread", true, func(c *Config) any { return c.UnseenSpread }},
+	{"separation", "Separation", true, func(c *Config) any { return c.Separation }},
+	{"noise_k", "NoiseK", true, func(c *Config) any { return c.NoiseK }},
+	{"chain_variance", "Variance", true, func(c *Config) any { return c.ChainVariance }},
+	{"support_v0", "V0", false, func(c *Config) any { return c.SupportV0 }},
+	{"support_n0", "N0", false, func(c *Config) any { return c.SupportN0 }},
+}
+
+// jsonOfScorerField returns the JSON name of a scorer.FieldError field.
+func jsonOfScorerField(f string) string {
+	for _, m := range modelFields {
+		if m.scorer == f {
+			return m.json
+		}
+	}
+	return f
 }
 
 // span is an inclusive integer domain.
@@ -162,15 +189,6 @@ type span struct {
 func (c Config) modelConfig() (scorer.ModelConfig, error) {
 	m := scorer.DefaultModelConfig()
 	def := DefaultConfig()
-	bayesOnly := []struct {
-		field    string
-		v, deflt float64
-	}{
-		{"signal_z", c.SignalZ, def.SignalZ}, {"missing_gamma", c.MissingGamma, def.MissingGamma},
-		{"missing_delta", c.MissingDelta, def.MissingDelta}, {"prior_strength", c.PriorStrength, def.PriorStrength},
-		{"unseen_spread", c.UnseenSpread, def.UnseenSpread}, {"separation", c.Separation, def.Separation},
-		{"noise_k", c.NoiseK, def.NoiseK},
-	}
 	switch c.Model {
 	case "", scorer.ModelBayes:
 		m.Name = scorer.ModelBayes
@@ -179,13 +197,10 @@ func (c Config) modelConfig() (scorer.ModelConfig, error) {
 		}
 	case scorer.ModelSupport:
 		m.Name = scorer.ModelSupport
-		for _, f := range bayesOnly {
-			if f.v != f.deflt {
-				return m, configError(f.field, "applies to error_model %q only (got %v with %q)", scorer.ModelBayes, f.v, c.Model)
+		for _, f := range modelFields {
+			if v := f.get(&c); f.bayesOnly && v != f.get(&def) {
+				return m, configError(f.json, "applies to error_model %q only (got %v with %q)", scorer.ModelBayes, v, c.Model)
 			}
-		}
-		if c.ChainVariance != def.ChainVariance {
-			return m, configError("chain_variance", "applies to error_model %q only (got %q with %q)", scorer.ModelBayes, c.ChainVariance, c.Model)
 		}
 		m.Support.Beta = c.Beta
 		if c.SupportV0 != 0 {
@@ -214,7 +229,7 @@ func (c Config) modelConfig() (scorer.ModelConfig, error) {
 	for _, err := range []error{b.Validate(), m.Support.Validate()} {
 		var fe *scorer.FieldError
 		if errors.As(err, &fe) {
-			return m, configError(scorerField[fe.Field], "%s", fe.Msg)
+			return m, configError(jsonOfScorerField(fe.Field), "%s", fe.Msg)
 		} else if err != nil {
 			return m, fmt.Errorf("%w: %v", ErrBadOption, err)
 		}
@@ -311,20 +326,9 @@ func (d draft) compile() (settings, error) {
 // DefaultConfig: WithModel conflicts with it.
 func modelFieldsDefault(c Config) error {
 	def := DefaultConfig()
-	for _, f := range []struct {
-		field string
-		same  bool
-	}{
-		{"error_model", c.Model == "" || c.Model == def.Model},
-		{"alpha", c.Alpha == def.Alpha}, {"beta", c.Beta == def.Beta},
-		{"signal_z", c.SignalZ == def.SignalZ}, {"missing_gamma", c.MissingGamma == def.MissingGamma},
-		{"missing_delta", c.MissingDelta == def.MissingDelta}, {"prior_strength", c.PriorStrength == def.PriorStrength},
-		{"unseen_spread", c.UnseenSpread == def.UnseenSpread}, {"separation", c.Separation == def.Separation},
-		{"noise_k", c.NoiseK == def.NoiseK}, {"chain_variance", c.ChainVariance == def.ChainVariance},
-		{"support_v0", c.SupportV0 == def.SupportV0}, {"support_n0", c.SupportN0 == def.SupportN0},
-	} {
-		if !f.same {
-			return configError(f.field, "conflicts with WithModel (configure the model itself)")
+	for _, f := range modelFields {
+		if f.get(&c) != f.get(&def) {
+			return configError(f.json, "conflicts with WithModel (configure the model itself)")
 		}
 	}
 	return nil
