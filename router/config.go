@@ -40,7 +40,7 @@ import (
 //	  "unseen_spread": 0.694,       // bayes: η ≥ 0 of the unobserved-pair error
 //	  "separation": 1,              // bayes: λ ≥ 0 of the separation bias (0 = off)
 //	  "noise_k": 1,                 // bayes: k ≥ 0 of the gain margin (0 = off)
-//	  "chain_variance": "delta",    // bayes: "delta" (delta method) or "exact" (exact moments)
+//	  "chain_variance": "delta",    // bayes: "delta" (delta method; "" too) or "exact" (exact moments)
 //	  "support_v0": 0.25,           // support model v0 > 0 (0 = scorer default)
 //	  "support_n0": 1,              // support model n0 > 0 (0 = scorer default)
 //	  "unknown_entity": "error",    // unknown endpoints: "error", "direct" or "chain"
@@ -162,7 +162,7 @@ var modelFields = []struct {
 	{"unseen_spread", "UnseenSpread", true, func(c *Config) any { return c.UnseenSpread }},
 	{"separation", "Separation", true, func(c *Config) any { return c.Separation }},
 	{"noise_k", "NoiseK", true, func(c *Config) any { return c.NoiseK }},
-	{"chain_variance", "Variance", true, func(c *Config) any { return c.ChainVariance }},
+	{"chain_variance", "Variance", true, func(c *Config) any { return cmp.Or(c.ChainVariance, scorer.DeltaMethod.String()) }},
 	{"support_v0", "V0", false, func(c *Config) any { return c.SupportV0 }},
 	{"support_n0", "N0", false, func(c *Config) any { return c.SupportN0 }},
 }
@@ -213,7 +213,7 @@ func (c Config) modelConfig() (scorer.ModelConfig, error) {
 		return m, configError("error_model", "unknown model %q (want %s or %s)", c.Model, scorer.ModelBayes, scorer.ModelSupport)
 	}
 	switch c.ChainVariance {
-	case scorer.DeltaMethod.String():
+	case "", scorer.DeltaMethod.String():
 		m.Bayes.Variance = scorer.DeltaMethod
 	case scorer.ExactMoments.String():
 		m.Bayes.Variance = scorer.ExactMoments
