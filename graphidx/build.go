@@ -647,6 +647,9 @@ func (b *buildRun) makeRoom(t *pairTab) error {
 }
 
 func compileWith(ctx context.Context, r ContextReader, cfg buildConfig, start time.Time) (_ *Compiled, sum BuildSummary, err error) {
+	if cfg.err != nil {
+		return nil, sum, cfg.err
+	}
 	sum.Workers, sum.MemBudget = cfg.workers, cfg.memBudget
 	b := &buildRun{cfg: cfg, start: start, dict: &buildDict{ids: map[string]entSlot{}, gvals: map[string]uint32{}}}
 	defer func() {

@@ -1,6 +1,7 @@
 package graphidx
 
 import (
+	"errors"
 	"fmt"
 	"maps"
 	"sort"
@@ -12,8 +13,9 @@ import (
 // none is given: 512 MiB.
 const DefaultMemBudget = 512 << 20
 
-// MinMemBudget is the smallest budget accepted; smaller values are raised to
-// it. Below it the fixed costs (read buffers, minimum tables) dominate.
+// MinMemBudget is the smallest budget Build and Compile accept (a smaller
+// WithMemBudget is an ErrBadBuildOption). Below it the fixed costs (read
+// buffers, minimum tables) dominate.
 const MinMemBudget = 1 << 20
 
 // BuildOption configures Build and Compile.
@@ -39,19 +41,35 @@ type buildConfig struct {
 	minValid     float64 // Build: least share of valid records (see WithMinValidShare)
 	strict       bool    // WithPolicy(Strict): a too-wide context is an error
 	guard        bool    // Build: apply checkValid before writing
+	err          error   // the first option outside its domain (checked by check)
+}
+
+// ErrBadBuildOption reports a build option outside its domain (a worker
+// count < 1, a negative neighbour limit, a memory budget below
+// MinMemBudget). Build, Compile and the count compilers return it before
+// reading anything.
+var ErrBadBuildOption = errors.New("graphidx: bad build option")
+
+// fail records the first bad option.
+func (c *buildConfig) fail(format string, args ...any) {
+	if c.err == nil {
+		c.err = fmt.Errorf("%w: %s", ErrBadBuildOption, fmt.Sprintf(format, args...))
+	}
 }
 
 type buildOptionFunc func(*buildConfig)
 
 func (f buildOptionFunc) applyBuild(c *buildConfig) { f(c) }
 
-// WithWorkers sets the number of counting goroutines (default GOMAXPROCS).
-// Values < 1 keep the default.
+// WithWorkers sets the number of counting goroutines (≥ 1; default
+// GOMAXPROCS). A value < 1 is an ErrBadBuildOption.
 func WithWorkers(n int) BuildOption {
 	return buildOptionFunc(func(c *buildConfig) {
-		if n > 0 {
-			c.workers = n
+		if n < 1 {
+			c.fail("WithWorkers(%d): want at least 1 counting goroutine", n)
+			return
 		}
+		c.workers = n
 	})
 }
 
@@ -67,9 +85,16 @@ func WithMinSupport(n uint64) BuildOption {
 // is kept when EITHER endpoint ranks the other in its top n, so every entity
 // keeps min(n, degree) neighbours and the graph stays symmetric; an entity's
 // degree may therefore exceed n when it is in the top n of many others.
-// n = 0 (the default) disables the limit. Cost: O(entities·n) memory.
+// n = 0 (the default) disables the limit; n < 0 is an ErrBadBuildOption.
+// Cost: O(entities·n) memory.
 func WithMaxNeighbors(n int) BuildOption {
-	return buildOptionFunc(func(c *buildConfig) { c.maxNeighbors = max(n, 0) })
+	return buildOptionFunc(func(c *buildConfig) {
+		if n < 0 {
+			c.fail("WithMaxNeighbors(%d): want ≥ 0 (0 = no limit)", n)
+			return
+		}
+		c.maxNeighbors = n
+	})
 }
 
 // WithProgress registers a callback for progress events. It is called from
@@ -94,6 +119,9 @@ func (c *buildConfig) checkWrite() error {
 			o.applyWrite(&wc)
 		}
 	}
+	if c.err != nil {
+		return c.err
+	}
 	return checkRankPrefix(wc.rankPrefix)
 }
 
@@ -105,8 +133,11 @@ func withFanIn(n int) BuildOption {
 type memBudgetOption int64
 
 func (o memBudgetOption) applyBuild(c *buildConfig) {
-	if o > 0 {
-		c.memBudget = max(int64(o), MinMemBudget)
+	switch {
+	case o < 0 || (o > 0 && o < MinMemBudget):
+		c.fail("WithMemBudget(%d): want 0 (DefaultMemBudget) or at least MinMemBudget = %d bytes", int64(o), MinMemBudget)
+	case o > 0:
+		c.memBudget = int64(o)
 	}
 }
 
@@ -121,7 +152,9 @@ func (o memBudgetOption) applyRead(c *readConfig) {
 // When the tables reach it they are spilled to the temp dir as sorted runs.
 // The Go runtime adds its own overhead on top; set a soft memory limit
 // (runtime/debug.SetMemoryLimit) to keep the process close to the budget.
-// Values ≤ 0 keep DefaultMemBudget.
+// 0 keeps DefaultMemBudget; Build and Compile refuse a negative budget or
+// one below MinMemBudget with ErrBadBuildOption (a corpus reader, which
+// cannot fail at construction, raises a budget below 64 KiB to 64 KiB).
 func WithMemBudget(bytes int64) SharedOption { return memBudgetOption(bytes) }
 
 type tempDirOption string

@@ -125,6 +125,9 @@ func (p *Partial) Merge(q *Partial) {
 // when a cell exceeds MaxUint32. O(C log C) for C cells.
 func (p *Partial) Compile(opts ...BuildOption) (Source, PruneStats, error) {
 	cfg := newBuildConfig(opts)
+	if cfg.err != nil {
+		return nil, PruneStats{}, cfg.err
+	}
 	names := slices.Sorted(maps.Keys(p.marg))
 	id := make(map[string]uint32, len(names))
 	src := &partialSource{contexts: p.contexts, ents: make([]EntityRecord, len(names))}

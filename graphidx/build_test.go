@@ -186,7 +186,7 @@ func TestSpillEqualsInMemory(t *testing.T) {
 		t.Fatalf("default budget spilled %d runs", memSum.SpillRuns)
 	}
 	for _, fan := range []int{256, 3} {
-		sp, spSum, err := Compile(context.Background(), &sliceReader{cs: cs}, WithMemBudget(1), WithTempDir(dir), withFanIn(fan), WithWorkers(2))
+		sp, spSum, err := Compile(context.Background(), &sliceReader{cs: cs}, WithMemBudget(MinMemBudget), WithTempDir(dir), withFanIn(fan), WithWorkers(2))
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -216,7 +216,7 @@ func TestSpillEqualsInMemory(t *testing.T) {
 	if _, err := Build(context.Background(), &sliceReader{cs: cs}, a); err != nil {
 		t.Fatal(err)
 	}
-	s, err := Build(context.Background(), &sliceReader{cs: cs}, b, WithMemBudget(1), WithTempDir(dir))
+	s, err := Build(context.Background(), &sliceReader{cs: cs}, b, WithMemBudget(MinMemBudget), WithTempDir(dir))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -329,7 +329,7 @@ func TestBuildCancelMidway(t *testing.T) {
 	if err := os.Mkdir(tmp, 0o755); err != nil {
 		t.Fatal(err)
 	}
-	_, err := Build(ctx, r, out, WithMemBudget(1), WithTempDir(tmp))
+	_, err := Build(ctx, r, out, WithMemBudget(MinMemBudget), WithTempDir(tmp))
 	if !errors.Is(err, context.Canceled) {
 		t.Fatalf("got %v, want context.Canceled", err)
 	}

@@ -391,6 +391,9 @@ func MergeCounts(ctx context.Context, dirs []string, opts ...BuildOption) (Sourc
 		return nil, sum, err
 	}
 	cfg := newBuildConfig(opts)
+	if cfg.err != nil {
+		return nil, sum, cfg.err
+	}
 	s, n, err := loadCounts(ctx, dirs)
 	sum.SpillBytes = n
 	if err != nil {

@@ -2,11 +2,14 @@ package router
 
 import (
 	"bytes"
+	"cmp"
+	"encoding/binary"
 	"encoding/hex"
 	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
@@ -14,10 +17,12 @@ import (
 	"github.com/hopwise/hopwise/scorer"
 )
 
-// Config is the file form of the router's options, read by LoadConfig,
-// written by SaveConfig (and by `hopwise tune`). Format: one JSON object;
-// every field is optional and defaults to DefaultConfig; unknown fields are
-// rejected. Example:
+// Config is the router's configuration, the one source of truth: the
+// options (WithBeam, WithAlpha, ...) set its fields, Validate checks them
+// all in one place, and it is the file form read by LoadConfig, written by
+// SaveConfig (and by `hopwise tune`). Format: one JSON object; every field
+// is optional and defaults to DefaultConfig; unknown fields are rejected.
+// Example:
 //
 //	{
 //	  "gain_threshold": 0.002,      // τ_gain, finite
@@ -25,9 +30,17 @@ import (
 //	  "beam": 64,                   // B in [1, 2^20]
 //	  "fan_out": 16,                // f in [1, 2^20]; 0 or absent = DefaultFanOut
 //	  "max_candidates": 4,          // k in [1, 2^16]
-//	  "error_model": "bayes",       // "bayes" or "support"
+//	  "error_model": "bayes",       // "bayes" (support on presence-only indexes) or "support"
 //	  "alpha": 1,                   // Dirichlet α > 0 (bayes; smoothing for support)
 //	  "beta": 0.001,                // per-hop squared bias β ≥ 0
+//	  "signal_z": 1,                // bayes: z ≥ 0 of the edge-cost signal bound
+//	  "missing_gamma": 5.881,       // bayes: γ ≥ 0 of the missing-signal bias γ·(δ − L)₊²
+//	  "missing_delta": 0.125,       // bayes: δ in [0, 1] of the same
+//	  "prior_strength": 3.2,        // bayes: A > 0 of the direct estimate's prior
+//	  "unseen_spread": 0.694,       // bayes: η ≥ 0 of the unobserved-pair error
+//	  "separation": 1,              // bayes: λ ≥ 0 of the separation bias (0 = off)
+//	  "noise_k": 1,                 // bayes: k ≥ 0 of the gain margin (0 = off)
+//	  "chain_variance": "delta",    // bayes: "delta" (delta method; "" too) or "exact" (exact moments)
 //	  "support_v0": 0.25,           // support model v0 > 0 (0 = scorer default)
 //	  "support_n0": 1,              // support model n0 > 0 (0 = scorer default)
 //	  "unknown_entity": "error",    // unknown endpoints: "error", "direct" or "chain"
@@ -41,13 +54,16 @@ import (
 //	  "hash_key": ""                // 32 hex digits (16-byte SipHash key), "" = DefaultHashKey
 //	}
 //
-// (JSON has no comments; they are annotations here.) "error_model" and
-// "unknown_entity" were called "model" and "fallback" before; a file that
-// still uses an old name is rejected with an error naming the new field. The
-// "beta" field is
-// the β of whichever model is chosen; its default is the Bayes model's
-// scorer.DefaultBeta, so a "support" configuration should set it (the
-// support model's own fit is scorer.DefaultSupportBeta).
+// (JSON has no comments; they are annotations here.) The Bayes model's
+// constants (signal_z … chain_variance) default to the scorer's fitted
+// values (scorer.DefaultBayesConfig) and must keep them under
+// "error_model": "support"; support_v0 and support_n0 need "support".
+// "error_model" and "unknown_entity" were called "model" and "fallback"
+// before; a file that still uses an old name is rejected with an error
+// naming the new field. The "beta" field is the β of whichever model is
+// chosen; its default is the Bayes model's scorer.DefaultBeta, so a
+// "support" configuration should set it (the support model's own fit is
+// scorer.DefaultSupportBeta).
 type Config struct {
 	GainThreshold   float64     `json:"gain_threshold"`
 	MaxBridges      int         `json:"max_bridges"`
@@ -57,6 +73,14 @@ type Config struct {
 	Model           string      `json:"error_model"`
 	Alpha           float64     `json:"alpha"`
 	Beta            float64     `json:"beta"`
+	SignalZ         float64     `json:"signal_z"`
+	MissingGamma    float64     `json:"missing_gamma"`
+	MissingDelta    float64     `json:"missing_delta"`
+	PriorStrength   float64     `json:"prior_strength"`
+	UnseenSpread    float64     `json:"unseen_spread"`
+	Separation      float64     `json:"separation"`
+	NoiseK          float64     `json:"noise_k"`
+	ChainVariance   string      `json:"chain_variance"`
 	SupportV0       float64     `json:"support_v0"`
 	SupportN0       float64     `json:"support_n0"`
 	Fallback        string      `json:"unknown_entity"`
@@ -70,113 +94,300 @@ type Config struct {
 	HashKey         string      `json:"hash_key"`
 }
 
-// DefaultConfig returns the configuration New uses without options.
+// DefaultConfig returns the configuration New uses without options. The
+// model fields are scorer.DefaultBayesConfig's.
 func DefaultConfig() Config {
+	b := scorer.DefaultBayesConfig()
 	return Config{
 		GainThreshold:   DefaultGainThreshold,
 		MaxBridges:      DefaultMaxBridges,
 		Beam:            DefaultBeam,
 		FanOut:          DefaultFanOut,
 		MaxCandidates:   DefaultMaxCandidates,
-		Model:           "bayes",
-		Alpha:           scorer.DefaultAlpha,
-		Beta:            scorer.DefaultBeta,
-		Fallback:        "error",
+		Model:           scorer.ModelBayes,
+		Alpha:           b.Alpha,
+		Beta:            b.Beta,
+		SignalZ:         b.SignalZ,
+		MissingGamma:    b.MissingGamma,
+		MissingDelta:    b.MissingDelta,
+		PriorStrength:   b.PriorStrength,
+		UnseenSpread:    b.UnseenSpread,
+		Separation:      b.Separation,
+		NoiseK:          b.NoiseK,
+		ChainVariance:   b.Variance.String(),
+		Fallback:        FallbackError.String(),
 		CacheSize:       DefaultCacheSize,
 		ExpansionBudget: DefaultExpansionBudget,
 	}
 }
 
-// fieldError names the JSON field of a bad value.
-func fieldError(field string, err error) error {
-	return fmt.Errorf("field %q: %w", field, err)
+func defaultSettings() settings { return settings{cfg: DefaultConfig()} }
+
+// configError names the JSON field of a bad value and the option that sets
+// it; it wraps ErrBadOption.
+func configError(field, format string, args ...any) error {
+	opt := optionOf[field]
+	if opt != "" {
+		opt = " (" + opt + ")"
+	}
+	return fmt.Errorf("%w: field %q%s: %s", ErrBadOption, field, opt, fmt.Sprintf(format, args...))
 }
 
-// Options converts the configuration into router options, validating every
-// field; an error names the JSON field and wraps ErrBadOption.
-func (c Config) Options() ([]Option, error) {
-	type fo struct {
-		field string
-		opt   Option
-	}
-	var list []fo
-	add := func(field string, o Option) { list = append(list, fo{field, o}) }
-	add("gain_threshold", WithGainThreshold(c.GainThreshold))
-	add("max_bridges", WithMaxBridges(c.MaxBridges))
-	add("beam", WithBeam(c.Beam))
-	if c.FanOut != 0 {
-		add("fan_out", WithFanOut(c.FanOut))
-	}
-	add("max_candidates", WithMaxCandidates(c.MaxCandidates))
-	add("cache_size", WithCacheSize(c.CacheSize))
-	add("expansion_budget", WithExpansionBudget(c.ExpansionBudget))
-	add("exploration", WithExploration(c.Exploration, c.ExplorationSalt))
-	fb, err := ParseFallback(c.Fallback)
-	if err != nil {
-		return nil, fieldError("unknown_entity", err)
-	}
-	switch fb {
-	case FallbackDirect:
-		add("unknown_entity", WithFallback(ModeDirect))
-	case FallbackChain:
-		add("unknown_entity", WithFallback(ModeChain))
-	default:
-		add("unknown_entity", WithoutFallback())
-	}
-	if c.UtilityLambda != 0 || c.HopCost != 0 {
-		if c.UtilityLambda == 0 {
-			return nil, fieldError("hop_cost", fmt.Errorf("%w: hop_cost needs utility_lambda > 0", ErrBadOption))
+// optionOf names the router option that sets each field ("" when only the
+// file, or WithModel, sets it).
+var optionOf = map[string]string{
+	"gain_threshold": "WithGainThreshold", "max_bridges": "WithMaxBridges", "beam": "WithBeam",
+	"fan_out": "WithFanOut", "max_candidates": "WithMaxCandidates", "alpha": "WithAlpha", "beta": "WithBeta",
+	"unknown_entity": "WithFallback", "cache_size": "WithCacheSize", "utility_lambda": "WithUtility",
+	"hop_cost": "WithUtility", "expansion_budget": "WithExpansionBudget", "exploration": "WithExploration",
+	"arms": "WithArms", "hash_key": "WithHashKey",
+}
+
+// modelFields lists the Config's model fields: the JSON name, the
+// scorer.FieldError field it maps to, whether only the Bayes model reads
+// it, and its value (compared with DefaultConfig's). A new scorer constant
+// adds one row here.
+var modelFields = []struct {
+	json, scorer string
+	bayesOnly    bool
+	get          func(*Config) any
+}{
+	{"error_model", "Name", false, func(c *Config) any { return cmp.Or(c.Model, scorer.ModelBayes) }},
+	{"alpha", "Alpha", false, func(c *Config) any { return c.Alpha }},
+	{"beta", "Beta", false, func(c *Config) any { return c.Beta }},
+	{"signal_z", "SignalZ", true, func(c *Config) any { return c.SignalZ }},
+	{"missing_gamma", "MissingGamma", true, func(c *Config) any { return c.MissingGamma }},
+	{"missing_delta", "MissingDelta", true, func(c *Config) any { return c.MissingDelta }},
+	{"prior_strength", "PriorStrength", true, func(c *Config) any { return c.PriorStrength }},
+	{"unseen_spread", "UnseenSpread", true, func(c *Config) any { return c.UnseenSpread }},
+	{"separation", "Separation", true, func(c *Config) any { return c.Separation }},
+	{"noise_k", "NoiseK", true, func(c *Config) any { return c.NoiseK }},
+	{"chain_variance", "Variance", true, func(c *Config) any { return cmp.Or(c.ChainVariance, scorer.DeltaMethod.String()) }},
+	{"support_v0", "V0", false, func(c *Config) any { return c.SupportV0 }},
+	{"support_n0", "N0", false, func(c *Config) any { return c.SupportN0 }},
+}
+
+// jsonOfScorerField returns the JSON name of a scorer.FieldError field.
+func jsonOfScorerField(f string) string {
+	for _, m := range modelFields {
+		if m.scorer == f {
+			return m.json
 		}
-		add("utility_lambda", WithUtility(c.UtilityLambda, c.HopCost))
 	}
-	if len(c.Arms) > 0 {
-		add("arms", WithArms(c.Arms...))
-	}
-	if c.HashKey != "" {
-		key, err := hex.DecodeString(c.HashKey)
-		if err != nil || len(key) != 16 {
-			return nil, fieldError("hash_key", fmt.Errorf("%w: want 32 hex digits", ErrBadOption))
-		}
-		add("hash_key", WithHashKey(key))
-	}
+	return f
+}
+
+// span is an inclusive integer domain.
+type span struct {
+	field, sym string
+	v          int
+	lo, hi     int
+}
+
+// modelConfig returns the scorer configuration the model fields describe,
+// or an error naming the first bad field. O(1).
+func (c Config) modelConfig() (scorer.ModelConfig, error) {
+	m := scorer.DefaultModelConfig()
+	def := DefaultConfig()
 	switch c.Model {
-	case "", "bayes":
+	case "", scorer.ModelBayes:
+		m.Name = scorer.ModelBayes
 		if c.SupportV0 != 0 || c.SupportN0 != 0 {
-			return nil, fieldError("support_v0", fmt.Errorf("%w: support_v0/support_n0 need error_model \"support\"", ErrBadOption))
+			return m, configError("support_v0", "support_v0/support_n0 need error_model %q", scorer.ModelSupport)
 		}
-		add("alpha", WithAlpha(c.Alpha))
-		add("beta", WithBeta(c.Beta))
-	case "support":
-		opts := []scorer.Option{scorer.WithAlpha(c.Alpha), scorer.WithBeta(c.Beta)}
+	case scorer.ModelSupport:
+		m.Name = scorer.ModelSupport
+		for _, f := range modelFields {
+			if v := f.get(&c); f.bayesOnly && v != f.get(&def) {
+				return m, configError(f.json, "applies to error_model %q only (got %v with %q)", scorer.ModelBayes, v, c.Model)
+			}
+		}
+		m.Support.Beta = c.Beta
 		if c.SupportV0 != 0 {
-			opts = append(opts, scorer.WithV0(c.SupportV0))
+			m.Support.V0 = c.SupportV0
 		}
 		if c.SupportN0 != 0 {
-			opts = append(opts, scorer.WithN0(c.SupportN0))
+			m.Support.N0 = c.SupportN0
 		}
-		m, err := scorer.NewSupport(opts...)
-		if err != nil {
-			return nil, fieldError("error_model", fmt.Errorf("%w: %v", ErrBadOption, err))
-		}
-		add("error_model", WithModel(m))
 	default:
-		return nil, fieldError("error_model", fmt.Errorf("%w: unknown model %q (want bayes or support)", ErrBadOption, c.Model))
+		return m, configError("error_model", "unknown model %q (want %s or %s)", c.Model, scorer.ModelBayes, scorer.ModelSupport)
 	}
-	// Validate each option on its own so the error names its field.
-	out := make([]Option, 0, len(list))
-	for _, o := range list {
-		s := defaultSettings()
-		if err := o.opt.apply(&s); err != nil {
-			return nil, fieldError(o.field, err)
+	switch c.ChainVariance {
+	case "", scorer.DeltaMethod.String():
+		m.Bayes.Variance = scorer.DeltaMethod
+	case scorer.ExactMoments.String():
+		m.Bayes.Variance = scorer.ExactMoments
+	default:
+		return m, configError("chain_variance", "unknown method %q (want %s or %s)", c.ChainVariance, scorer.DeltaMethod, scorer.ExactMoments)
+	}
+	b := &m.Bayes
+	b.Alpha, b.Beta, b.SignalZ, b.MissingGamma, b.MissingDelta = c.Alpha, c.Beta, c.SignalZ, c.MissingGamma, c.MissingDelta
+	b.PriorStrength, b.UnseenSpread, b.Separation, b.NoiseK = c.PriorStrength, c.UnseenSpread, c.Separation, c.NoiseK
+	m.Support.Alpha = c.Alpha
+	// The Bayes constants are checked under either name (under "support"
+	// they are the defaults), and so are the support model's.
+	for _, err := range []error{b.Validate(), m.Support.Validate()} {
+		var fe *scorer.FieldError
+		if errors.As(err, &fe) {
+			return m, configError(jsonOfScorerField(fe.Field), "%s", fe.Msg)
+		} else if err != nil {
+			return m, fmt.Errorf("%w: %v", ErrBadOption, err)
 		}
-		out = append(out, o.opt)
 	}
+	return m, nil
+}
+
+// compile validates the draft and derives the settings the hot path reads:
+// the one validation of every router setting. An error names the JSON field
+// and the option that sets it, and wraps ErrBadOption. O(arms).
+func (d draft) compile() (settings, error) {
+	c := d.cfg
+	s := settings{cfg: c, custom: d.custom}
+	for _, f := range []struct {
+		field string
+		v     float64
+		ok    bool
+		want  string
+	}{
+		{"gain_threshold", c.GainThreshold, finite(c.GainThreshold), "τ must be finite"},
+		{"utility_lambda", c.UtilityLambda, finite(c.UtilityLambda) && c.UtilityLambda >= 0, "λ must be finite and > 0 (0 = no utility)"},
+		{"hop_cost", c.HopCost, finite(c.HopCost) && c.HopCost >= 0, "hop cost must be finite and ≥ 0"},
+		{"hop_cost", c.HopCost, c.HopCost == 0 || c.UtilityLambda > 0, "hop_cost needs utility_lambda > 0"},
+		{"exploration", c.Exploration, finite(c.Exploration) && c.Exploration >= 0 && c.Exploration <= MaxExploration, fmt.Sprintf("ε must be in [0, %v]", MaxExploration)},
+	} {
+		if !f.ok {
+			return settings{}, configError(f.field, "%s, got %v", f.want, f.v)
+		}
+	}
+	for _, f := range []span{
+		{"max_bridges", "H", c.MaxBridges, 0, MaxBridgesLimit},
+		{"beam", "B", c.Beam, 1, 1 << 20},
+		{"fan_out", "f", c.FanOut, 0, 1 << 20},
+		{"max_candidates", "k", c.MaxCandidates, 1, 1 << 16},
+		{"cache_size", "size", c.CacheSize, 0, 1 << 26},
+		{"expansion_budget", "budget", c.ExpansionBudget, 1, 1 << 30},
+	} {
+		if f.v < f.lo || f.v > f.hi {
+			return settings{}, configError(f.field, "%s must be in [%d, %d], got %d", f.sym, f.lo, f.hi, f.v)
+		}
+	}
+	var err error
+	if s.fallback, err = ParseFallback(c.Fallback); err != nil {
+		return settings{}, configError("unknown_entity", "%q (want error, direct or chain)", c.Fallback)
+	}
+	if s.arms, err = compileArms(c.Arms); err != nil {
+		return settings{}, err
+	}
+	key := DefaultHashKey[:]
+	if c.HashKey != "" {
+		if key, err = hex.DecodeString(c.HashKey); err != nil || len(key) != 16 {
+			return settings{}, configError("hash_key", "want 32 hex digits (a 16-byte key), got %q", c.HashKey)
+		}
+	}
+	s.k0, s.k1 = binary.LittleEndian.Uint64(key[0:8]), binary.LittleEndian.Uint64(key[8:16])
+	s.tau, s.maxBridges, s.beam, s.fanOut, s.maxCand = c.GainThreshold, c.MaxBridges, c.Beam, c.FanOut, c.MaxCandidates
+	if s.fanOut == 0 {
+		s.fanOut = DefaultFanOut
+	}
+	s.cacheSize, s.budget = c.CacheSize, c.ExpansionBudget
+	s.utility, s.lambda, s.hopCost = c.UtilityLambda > 0, 1, c.HopCost
+	if s.utility {
+		s.lambda = c.UtilityLambda
+	}
+	s.epsilon, s.exploreSalt = c.Exploration, saltOf(c.ExplorationSalt)
+
+	mc, err := c.modelConfig()
+	if err != nil {
+		return settings{}, err
+	}
+	if d.custom != nil {
+		if _, isNil := d.custom.(nilModel); isNil {
+			return settings{}, badOpt("WithModel", "nil model")
+		}
+		if err := modelFieldsDefault(c); err != nil {
+			return settings{}, err
+		}
+		s.model, s.forced = d.custom, true
+		return s, nil
+	}
+	if s.model, err = scorer.New(mc); err != nil {
+		return settings{}, fmt.Errorf("%w: error model: %v", ErrBadOption, err)
+	}
+	s.forced = mc.Name == scorer.ModelSupport
+	if !s.forced {
+		if s.support, err = scorer.NewSupportFrom(mc.Support); err != nil {
+			return settings{}, fmt.Errorf("%w: presence-only model: %v", ErrBadOption, err)
+		}
+	}
+	return s, nil
+}
+
+// modelFieldsDefault reports the first model field of c that differs from
+// DefaultConfig: WithModel conflicts with it.
+func modelFieldsDefault(c Config) error {
+	def := DefaultConfig()
+	for _, f := range modelFields {
+		if f.get(&c) != f.get(&def) {
+			return configError(f.json, "conflicts with WithModel (configure the model itself)")
+		}
+	}
+	return nil
+}
+
+// compileArms checks the A/B arms and normalises their weights.
+func compileArms(arms []ArmWeight) ([]arm, error) {
+	if len(arms) == 0 {
+		return nil, nil
+	}
+	var sum float64
+	seen := map[string]bool{}
+	for i, a := range arms {
+		if _, ok := parseArm(a.Arm); !ok {
+			return nil, configError("arms", "arm %d: unknown arm %q (want %s, %s or %s)", i, a.Arm, ArmRouted, ArmDirectOnly, ArmChainAlways)
+		}
+		if seen[a.Arm] {
+			return nil, configError("arms", "arm %q listed twice", a.Arm)
+		}
+		seen[a.Arm] = true
+		if !finite(a.Weight) || a.Weight < 0 {
+			return nil, configError("arms", "arm %q: weight must be finite and ≥ 0, got %v", a.Arm, a.Weight)
+		}
+		sum += a.Weight
+	}
+	if !(sum > 0) || math.IsInf(sum, 0) {
+		return nil, configError("arms", "weights must sum to a finite value > 0, got %v", sum)
+	}
+	out := make([]arm, 0, len(arms))
+	var cum float64
+	for _, a := range arms {
+		p, _ := parseArm(a.Arm)
+		share := a.Weight / sum
+		cum += share
+		out = append(out, arm{name: a.Arm, policy: p, share: share, cum: cum})
+	}
+	out[len(out)-1].cum = 1 // absorb rounding
 	return out, nil
 }
 
-// Validate reports the first invalid field.
+// Options validates c and returns the option that sets every field of the
+// router's configuration to c's (for New or Router.Reconfigure). An error
+// names the JSON field and wraps ErrBadOption.
+func (c Config) Options() ([]Option, error) {
+	if err := c.Validate(); err != nil {
+		return nil, err
+	}
+	c.Arms = append([]ArmWeight(nil), c.Arms...)
+	return []Option{optionFunc(func(d *draft) {
+		d.cfg = c
+		d.cfg.Arms = append([]ArmWeight(nil), c.Arms...)
+	})}, nil
+}
+
+// Validate reports the first invalid field, naming it; the error wraps
+// ErrBadOption. It is the same check New and Reconfigure run on the
+// options' result. O(arms).
 func (c Config) Validate() error {
-	_, err := c.Options()
+	_, err := draft{cfg: c}.compile()
 	return err
 }
 

@@ -2,10 +2,14 @@ package router
 
 import (
 	"errors"
+	"fmt"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"github.com/hopwise/hopwise/scorer"
 )
 
 func TestConfigRoundTrip(t *testing.T) {
@@ -95,7 +99,98 @@ func TestConfigErrorsNameTheField(t *testing.T) {
 	}
 	opts, _ := c.Options()
 	r, err := New(greenhouse(1), opts...)
-	if err != nil || r.cfg.Load().model.Name() != "support" {
+	if err != nil || r.cfg.Load().model.Name() != "support" || !r.cfg.Load().forced {
 		t.Fatalf("support model: %v", err)
+	}
+}
+
+// TestConfigModelFields: the Bayes constants of the file round-trip through
+// SaveConfig/LoadConfig, build exactly the model scorer.NewBayes builds from
+// the same options, are refused out of their domain or under the support
+// model (naming the field), and WithModel conflicts with any of them.
+func TestConfigModelFields(t *testing.T) {
+	t.Parallel()
+	c := DefaultConfig()
+	c.SignalZ, c.MissingGamma, c.MissingDelta = 0.5, 2, 0.2
+	c.PriorStrength, c.UnseenSpread, c.Separation, c.NoiseK = 5, 0.3, 0.5, 2
+	c.ChainVariance = "exact"
+	path := filepath.Join(t.TempDir(), "model.json")
+	if err := SaveConfig(path, c); err != nil {
+		t.Fatal(err)
+	}
+	got, err := LoadConfig(path)
+	if err != nil || fmt.Sprint(got) != fmt.Sprint(c) {
+		t.Fatalf("round trip: %+v (%v), want %+v", got, err, c)
+	}
+	opts, err := got.Options()
+	if err != nil {
+		t.Fatal(err)
+	}
+	r, err := New(greenhouse(1), opts...)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer r.Close()
+	want, err := scorer.NewBayes(scorer.WithSignalZ(0.5), scorer.WithMissingSignal(2, 0.2), scorer.WithPriorStrength(5),
+		scorer.WithUnseenSpread(0.3), scorer.WithSeparation(0.5), scorer.WithNoiseK(2), scorer.WithVariance(scorer.ExactMoments))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if b, ok := r.cfg.Load().model.(*scorer.Bayes); !ok || b.Config() != want.Config() {
+		t.Errorf("router model %#v, want Bayes %+v", r.cfg.Load().model, want.Config())
+	}
+
+	for _, tc := range []struct{ json, field string }{
+		{`{"signal_z": -1}`, `"signal_z"`},
+		{`{"missing_gamma": -0.5}`, `"missing_gamma"`},
+		{`{"missing_delta": 2}`, `"missing_delta"`},
+		{`{"prior_strength": 0}`, `"prior_strength"`},
+		{`{"unseen_spread": -1}`, `"unseen_spread"`},
+		{`{"separation": -1}`, `"separation"`},
+		{`{"noise_k": -0.1}`, `"noise_k"`},
+		{`{"chain_variance": "second-order"}`, `"chain_variance"`},
+		{`{"error_model": "support", "noise_k": 2}`, `"noise_k"`},
+		{`{"error_model": "support", "chain_variance": "exact"}`, `"chain_variance"`},
+		{`{"error_model": "support", "support_v0": -1}`, `"support_v0"`},
+		{`{"support_n0": 3}`, `"support_v0"`},
+	} {
+		_, err := ParseConfig(strings.NewReader(tc.json), "m.json")
+		if !errors.Is(err, ErrBadOption) || !strings.Contains(err.Error(), tc.field) || !strings.Contains(err.Error(), "m.json") {
+			t.Errorf("%s: error %v, want ErrBadOption naming %s and the file", tc.json, err, tc.field)
+		}
+	}
+	if _, err := New(greenhouse(1), WithModel(want), opts[0]); !errors.Is(err, ErrBadOption) || !strings.Contains(err.Error(), "WithModel") {
+		t.Errorf("WithModel with a configured noise_k: %v, want a conflict", err)
+	}
+}
+
+// TestOptionErrorsNameFieldAndOption: an option's bad value is reported by
+// the one validation, naming the JSON field and the option.
+func TestOptionErrorsNameFieldAndOption(t *testing.T) {
+	t.Parallel()
+	for _, tc := range []struct {
+		opt   Option
+		field string
+	}{
+		{WithBeam(0), `field "beam" (WithBeam)`},
+		{WithFanOut(-1), `field "fan_out" (WithFanOut)`},
+		{WithMaxBridges(4), `field "max_bridges" (WithMaxBridges)`},
+		{WithGainThreshold(math.NaN()), `field "gain_threshold" (WithGainThreshold)`},
+		{WithAlpha(0), `field "alpha" (WithAlpha)`},
+		{WithBeta(-1), `field "beta" (WithBeta)`},
+		{WithFallback(Mode(9)), `field "unknown_entity" (WithFallback)`},
+		{WithCacheSize(-1), `field "cache_size" (WithCacheSize)`},
+		{WithUtility(-1, 0), `field "utility_lambda" (WithUtility)`},
+		{WithUtility(0, 0.5), `field "hop_cost" (WithUtility)`},
+		{WithExpansionBudget(0), `field "expansion_budget" (WithExpansionBudget)`},
+		{WithExploration(0.6, ""), `field "exploration" (WithExploration)`},
+		{WithArms(ArmWeight{ArmRouted, -1}), `field "arms" (WithArms)`},
+		{WithHashKey([]byte("short")), `field "hash_key" (WithHashKey)`},
+		{WithModel(nil), "WithModel"},
+	} {
+		_, err := New(greenhouse(1), tc.opt)
+		if !errors.Is(err, ErrBadOption) || !strings.Contains(err.Error(), tc.field) {
+			t.Errorf("error %v, want ErrBadOption naming %s", err, tc.field)
+		}
 	}
 }

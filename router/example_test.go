@@ -177,7 +177,7 @@ func ExampleParseConfig() {
 	// Output:
 	// 0.002 2 64 direct 2
 	// true <nil>
-	// route.json: field "beam": router: bad option: WithBeam: B must be in [1, 1048576], got 0
+	// route.json: router: bad option: field "beam" (WithBeam): B must be in [1, 1048576], got 0
 }
 
 // ExampleWithFanOut sets the search bounds and reads what a decision says

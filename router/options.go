@@ -1,7 +1,7 @@
 package router
 
 import (
-	"encoding/binary"
+	"encoding/hex"
 	"errors"
 	"fmt"
 	"math"
@@ -133,35 +133,35 @@ type arm struct {
 	share  float64 // normalised weight
 }
 
-// settings is the immutable configuration of one config generation.
+// settings is the immutable configuration of one config generation: the
+// Config the options set (the one source of truth), the model given by
+// WithModel, and the values compile derives from them for the hot path.
 type settings struct {
-	tau          float64
-	maxBridges   int
-	beam         int
-	fanOut       int
-	maxCand      int
-	model        scorer.Model
-	modelSet     bool
-	alpha, beta  float64
-	betaSet      bool
-	fallback     Fallback
-	cacheSize    int
-	utility      bool
-	lambda       float64
-	hopCost      float64
-	budget       int
-	arms         []arm // empty: everyone routed
-	epsilon      float64
-	exploreSalt  uint64
-	k0, k1       uint64 // SipHash key
-	gen          uint64 // config generation (set by the router)
-	cacheSizeSet bool
-	// touched in the current build: alpha/beta given alongside WithModel.
-	touchAlpha, touchBeta bool
+	cfg    Config       // what the options set; Config.Validate checks it
+	custom scorer.Model // WithModel; nil = the models cfg describes
 
-	// support scores presence-only indexes when no model was set
-	// (modelFor).
-	support scorer.Model
+	// Derived by compile; never set by an option.
+	tau         float64
+	maxBridges  int
+	beam        int
+	fanOut      int
+	maxCand     int
+	fallback    Fallback
+	cacheSize   int
+	utility     bool
+	lambda      float64
+	hopCost     float64
+	budget      int
+	arms        []arm // empty: everyone routed
+	epsilon     float64
+	exploreSalt uint64
+	k0, k1      uint64 // SipHash key
+	gen         uint64 // config generation (set by the router)
+
+	// model scores valued indexes (and every index when forced); support
+	// scores presence-only indexes otherwise (modelFor).
+	model, support scorer.Model
+	forced         bool
 }
 
 // DefaultHashKey is the SipHash key used for arm assignment and exploration
@@ -169,30 +169,23 @@ type settings struct {
 // own key when units could choose their keys to game the assignment.
 var DefaultHashKey = [16]byte{'h', 'o', 'p', 'w', 'i', 's', 'e', '-', 'a', 's', 's', 'i', 'g', 'n', '-', '1'}
 
-func defaultSettings() settings {
-	return settings{
-		tau:        DefaultGainThreshold,
-		maxBridges: DefaultMaxBridges,
-		beam:       DefaultBeam,
-		fanOut:     DefaultFanOut,
-		maxCand:    DefaultMaxCandidates,
-		alpha:      scorer.DefaultAlpha,
-		cacheSize:  DefaultCacheSize,
-		budget:     DefaultExpansionBudget,
-		lambda:     1,
-		k0:         binary.LittleEndian.Uint64(DefaultHashKey[0:8]),
-		k1:         binary.LittleEndian.Uint64(DefaultHashKey[8:16]),
-	}
+// draft is what the options edit: the configuration and the custom model.
+type draft struct {
+	cfg    Config
+	custom scorer.Model
 }
 
-// Option configures a Router (New, Reconfigure). A nil Option is ignored.
+// Option configures a Router (New, Reconfigure): each option sets fields of
+// the router's Config (named in its doc), and the result is validated once
+// by Config.Validate, whose error names the field and the option. A nil
+// Option is ignored.
 type Option interface {
-	apply(*settings) error
+	apply(*draft)
 }
 
-type optionFunc func(*settings) error
+type optionFunc func(*draft)
 
-func (f optionFunc) apply(s *settings) error { return f(s) }
+func (f optionFunc) apply(d *draft) { f(d) }
 
 func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
 
@@ -200,244 +193,139 @@ func badOpt(name string, format string, args ...any) error {
 	return fmt.Errorf("%w: %s: %s", ErrBadOption, name, fmt.Sprintf(format, args...))
 }
 
-// WithGainThreshold sets τ_gain (finite). The routed policy chooses the chain
-// when score ≥ τ, where score is the gain (or the utility, see WithUtility).
-// Default DefaultGainThreshold.
+// WithGainThreshold sets "gain_threshold", τ_gain (finite). The routed
+// policy chooses the chain when score ≥ τ, where score is the gain (or the
+// utility, see WithUtility). Default DefaultGainThreshold.
 func WithGainThreshold(tau float64) Option {
-	return optionFunc(func(s *settings) error {
-		if !finite(tau) {
-			return badOpt("WithGainThreshold", "τ must be finite, got %v", tau)
-		}
-		s.tau = tau
-		return nil
-	})
+	return optionFunc(func(d *draft) { d.cfg.GainThreshold = tau })
 }
 
-// WithMaxBridges sets H, the largest number of bridges (0 ≤ H ≤ 3; 0 turns
-// the search off). Default 3.
+// WithMaxBridges sets "max_bridges", H, the largest number of bridges
+// (0 ≤ H ≤ 3; 0 turns the search off). Default 3.
 func WithMaxBridges(h int) Option {
-	return optionFunc(func(s *settings) error {
-		if h < 0 || h > MaxBridgesLimit {
-			return badOpt("WithMaxBridges", "H must be in [0, %d], got %d", MaxBridgesLimit, h)
-		}
-		s.maxBridges = h
-		return nil
-	})
+	return optionFunc(func(d *draft) { d.cfg.MaxBridges = h })
 }
 
-// WithBeam sets B, the width of the first search layer: the B best-ranked
-// (highest-support) neighbours of each endpoint (1 ≤ B ≤ 1<<20). Default
-// DefaultBeam.
+// WithBeam sets "beam", B, the width of the first search layer: the B
+// best-ranked (highest-support) neighbours of each endpoint
+// (1 ≤ B ≤ 1<<20). Default DefaultBeam.
 func WithBeam(b int) Option {
-	return optionFunc(func(s *settings) error {
-		if b < 1 || b > 1<<20 {
-			return badOpt("WithBeam", "B must be in [1, %d], got %d", 1<<20, b)
-		}
-		s.beam = b
-		return nil
-	})
+	return optionFunc(func(d *draft) { d.cfg.Beam = b })
 }
 
-// WithFanOut sets f, the fan-out of the second search layer: every
-// first-layer node is extended by its f best-ranked neighbours, so a
-// second layer holds at most B·f two-hop paths (1 ≤ f ≤ 1<<20). Default
-// DefaultFanOut.
+// WithFanOut sets "fan_out", f, the fan-out of the second search layer:
+// every first-layer node is extended by its f best-ranked neighbours, so a
+// second layer holds at most B·f two-hop paths (1 ≤ f ≤ 1<<20; 0 means
+// DefaultFanOut, as an absent "fan_out" does). Default DefaultFanOut.
 func WithFanOut(f int) Option {
-	return optionFunc(func(s *settings) error {
-		if f < 1 || f > 1<<20 {
-			return badOpt("WithFanOut", "f must be in [1, %d], got %d", 1<<20, f)
-		}
-		s.fanOut = f
-		return nil
-	})
+	return optionFunc(func(d *draft) { d.cfg.FanOut = f })
 }
 
-// WithMaxCandidates sets k, the number of proxy-best candidate chains that
-// are scored exactly (1 ≤ k ≤ 1<<16). Default DefaultMaxCandidates.
+// WithMaxCandidates sets "max_candidates", k, the number of proxy-best
+// candidate chains that are scored exactly (1 ≤ k ≤ 1<<16). Default
+// DefaultMaxCandidates.
 func WithMaxCandidates(k int) Option {
-	return optionFunc(func(s *settings) error {
-		if k < 1 || k > 1<<16 {
-			return badOpt("WithMaxCandidates", "k must be in [1, %d], got %d", 1<<16, k)
-		}
-		s.maxCand = k
-		return nil
-	})
+	return optionFunc(func(d *draft) { d.cfg.MaxCandidates = k })
 }
 
-// WithModel sets the error model. Default: scorer.NewBayes with WithAlpha /
-// WithBeta when given, else the scorer defaults, except on a presence-only
-// index (scorer.PresenceOnly), which without WithModel is scored by
-// scorer.NewSupport with its defaults (chosen per index at New and Swap).
-// A nil model is an error.
+// WithModel sets the error model, built by the caller (scorer.New,
+// scorer.NewBayes, ...). Without it the router builds the model its Config
+// describes ("error_model", "alpha", "beta", ...): the Bayes model, except
+// on a presence-only index (scorer.PresenceOnly), which is scored by the
+// Support model (chosen per index at New and Swap) unless "error_model" is
+// "support". WithModel conflicts with model fields that differ from
+// DefaultConfig (configure the model itself). A nil model is an error.
 // The search relies on EdgeCost ≥ 0 and on a chain's Err ≥ HopBias()·m, as
 // both scorer models guarantee; EdgeCost need not be monotone in support.
 func WithModel(m scorer.Model) Option {
-	return optionFunc(func(s *settings) error {
+	return optionFunc(func(d *draft) {
 		if m == nil {
-			return badOpt("WithModel", "nil model")
+			d.custom = nilModel{}
+			return
 		}
-		s.model, s.modelSet = m, true
-		return nil
+		d.custom = m
 	})
 }
 
-// WithAlpha sets the Dirichlet pseudo-count α of the default Bayes model
-// (finite, > 0). It conflicts with WithModel.
+// nilModel marks WithModel(nil), which compile rejects.
+type nilModel struct{ scorer.Model }
+
+// WithAlpha sets "alpha", the Dirichlet pseudo-count α of the configured
+// model (finite, > 0). It conflicts with WithModel.
 func WithAlpha(alpha float64) Option {
-	return optionFunc(func(s *settings) error {
-		if !finite(alpha) || alpha <= 0 {
-			return badOpt("WithAlpha", "α must be finite and > 0, got %v", alpha)
-		}
-		s.alpha, s.touchAlpha = alpha, true
-		return nil
-	})
+	return optionFunc(func(d *draft) { d.cfg.Alpha = alpha })
 }
 
-// WithBeta sets the per-hop squared-bias β of the default Bayes model
+// WithBeta sets "beta", the per-hop squared bias β of the configured model
 // (finite, ≥ 0; default scorer.DefaultBeta). It conflicts with WithModel.
 func WithBeta(beta float64) Option {
-	return optionFunc(func(s *settings) error {
-		if !finite(beta) || beta < 0 {
-			return badOpt("WithBeta", "β must be finite and ≥ 0, got %v", beta)
-		}
-		s.beta, s.betaSet, s.touchBeta = beta, true, true
-		return nil
-	})
+	return optionFunc(func(d *draft) { d.cfg.Beta = beta })
 }
 
-// WithFallback makes Decide answer queries with an unknown endpoint or value
-// with a Decision in the given mode (reason unknown-entity-fallback or
-// unknown-value-fallback) instead of an error. Default: errors.
+// WithFallback sets "unknown_entity": Decide answers queries with an unknown
+// endpoint or value with a Decision in the given mode (reason
+// unknown-entity-fallback or unknown-value-fallback) instead of an error.
+// Default: errors.
 func WithFallback(m Mode) Option {
-	return optionFunc(func(s *settings) error {
-		switch m {
-		case ModeDirect:
-			s.fallback = FallbackDirect
-		case ModeChain:
-			s.fallback = FallbackChain
-		default:
-			return badOpt("WithFallback", "invalid mode %d", uint8(m))
-		}
-		return nil
-	})
+	return optionFunc(func(d *draft) { d.cfg.Fallback = m.String() })
 }
 
-// WithoutFallback restores the default: unknown endpoints are errors.
+// WithoutFallback restores the default: unknown endpoints are errors
+// ("unknown_entity": "error").
 func WithoutFallback() Option {
-	return optionFunc(func(s *settings) error { s.fallback = FallbackError; return nil })
+	return optionFunc(func(d *draft) { d.cfg.Fallback = FallbackError.String() })
 }
 
-// WithCacheSize sets the decision-cache capacity (0 disables the cache,
-// at most 1<<26). Default 65536. It only takes effect in New.
+// WithCacheSize sets "cache_size", the decision-cache capacity (0 disables
+// the cache, at most 1<<26). Default 65536. It only takes effect in New.
 func WithCacheSize(n int) Option {
-	return optionFunc(func(s *settings) error {
-		if n < 0 || n > 1<<26 {
-			return badOpt("WithCacheSize", "size must be in [0, %d], got %d", 1<<26, n)
-		}
-		s.cacheSize, s.cacheSizeSet = n, true
-		return nil
-	})
+	return optionFunc(func(d *draft) { d.cfg.CacheSize = n })
 }
 
-// WithUtility switches the routed policy to the utility form
-// score = λ·gain − c_hop·m (m = bridges of the best chain): chains are ranked
-// by that score and chosen when it is ≥ τ. λ > 0 and c_hop ≥ 0, finite.
+// WithUtility sets "utility_lambda" and "hop_cost": the routed policy takes
+// the utility form score = λ·gain − c_hop·m (m = bridges of the best chain):
+// chains are ranked by that score and chosen when it is ≥ τ. λ > 0 and
+// c_hop ≥ 0, finite; WithUtility(0, 0) turns the utility form off.
 func WithUtility(lambda, hopCost float64) Option {
-	return optionFunc(func(s *settings) error {
-		if !finite(lambda) || lambda <= 0 {
-			return badOpt("WithUtility", "λ must be finite and > 0, got %v", lambda)
-		}
-		if !finite(hopCost) || hopCost < 0 {
-			return badOpt("WithUtility", "hop cost must be finite and ≥ 0, got %v", hopCost)
-		}
-		s.utility, s.lambda, s.hopCost = true, lambda, hopCost
-		return nil
-	})
+	return optionFunc(func(d *draft) { d.cfg.UtilityLambda, d.cfg.HopCost = lambda, hopCost })
 }
 
-// WithExpansionBudget bounds the adjacency entries one search may touch
-// (1 ≤ n ≤ 1<<30). Default DefaultExpansionBudget.
+// WithExpansionBudget sets "expansion_budget", the bound on the adjacency
+// entries one search may touch (1 ≤ n ≤ 1<<30). Default
+// DefaultExpansionBudget.
 func WithExpansionBudget(n int) Option {
-	return optionFunc(func(s *settings) error {
-		if n < 1 || n > 1<<30 {
-			return badOpt("WithExpansionBudget", "budget must be in [1, %d], got %d", 1<<30, n)
-		}
-		s.budget = n
-		return nil
-	})
+	return optionFunc(func(d *draft) { d.cfg.ExpansionBudget = n })
 }
 
-// WithArms enables A/B assignment over the given arms. Every arm name must
-// be one of ArmRouted, ArmDirectOnly, ArmChainAlways, appear once, and have a
-// finite weight ≥ 0; the weights must sum to > 0. Units (Query.Key) are
-// assigned by a keyed hash, see WithHashKey. No arms (the default) means
-// every query is routed and Decision.Arm is "".
+// WithArms sets "arms", enabling A/B assignment over the given arms. Every
+// arm name must be one of ArmRouted, ArmDirectOnly, ArmChainAlways, appear
+// once, and have a finite weight ≥ 0; the weights must sum to > 0. Units
+// (Query.Key) are assigned by a keyed hash, see WithHashKey. No arms (the
+// default) means every query is routed and Decision.Arm is "".
 func WithArms(arms ...ArmWeight) Option {
-	return optionFunc(func(s *settings) error {
-		if len(arms) == 0 {
-			s.arms = nil
-			return nil
-		}
-		var sum float64
-		seen := map[string]bool{}
-		for i, a := range arms {
-			if _, ok := parseArm(a.Arm); !ok {
-				return badOpt("WithArms", "arm %d: unknown arm %q (want %s, %s or %s)", i, a.Arm, ArmRouted, ArmDirectOnly, ArmChainAlways)
-			}
-			if seen[a.Arm] {
-				return badOpt("WithArms", "arm %q listed twice", a.Arm)
-			}
-			seen[a.Arm] = true
-			if !finite(a.Weight) || a.Weight < 0 {
-				return badOpt("WithArms", "arm %q: weight must be finite and ≥ 0, got %v", a.Arm, a.Weight)
-			}
-			sum += a.Weight
-		}
-		if !(sum > 0) || math.IsInf(sum, 0) {
-			return badOpt("WithArms", "weights must sum to a finite value > 0, got %v", sum)
-		}
-		out := make([]arm, 0, len(arms))
-		var cum float64
-		for _, a := range arms {
-			p, _ := parseArm(a.Arm)
-			share := a.Weight / sum
-			cum += share
-			out = append(out, arm{name: a.Arm, policy: p, share: share, cum: cum})
-		}
-		out[len(out)-1].cum = 1 // absorb rounding
-		s.arms = out
-		return nil
-	})
+	arms = append([]ArmWeight(nil), arms...)
+	return optionFunc(func(d *draft) { d.cfg.Arms = arms })
 }
 
-// WithExploration sets the exploration rate ε ∈ [0, 1/2] and the salt that
-// makes the exploration draw independent of the arm draw. In the routed
-// policy, with probability ε (a deterministic draw from the unit key) the
-// decision takes the mode the policy did not prefer; Decision.Propensity is
-// then ε, otherwise 1−ε. When only one mode is possible (no chain found) the
-// propensity is 1. ε = 0 disables exploration.
+// WithExploration sets "exploration", the rate ε ∈ [0, 1/2], and
+// "exploration_salt", the salt that makes the exploration draw independent
+// of the arm draw. In the routed policy, with probability ε (a deterministic
+// draw from the unit key) the decision takes the mode the policy did not
+// prefer; Decision.Propensity is then ε, otherwise 1−ε. When only one mode
+// is possible (no chain found) the propensity is 1. ε = 0 disables
+// exploration.
 func WithExploration(epsilon float64, salt string) Option {
-	return optionFunc(func(s *settings) error {
-		if !finite(epsilon) || epsilon < 0 || epsilon > MaxExploration {
-			return badOpt("WithExploration", "ε must be in [0, %v], got %v", MaxExploration, epsilon)
-		}
-		s.epsilon = epsilon
-		s.exploreSalt = saltOf(salt)
-		return nil
-	})
+	return optionFunc(func(d *draft) { d.cfg.Exploration, d.cfg.ExplorationSalt = epsilon, salt })
 }
 
-// WithHashKey sets the 16-byte SipHash-2-4 key of the unit assignment
-// (arms and exploration). Default DefaultHashKey.
+// WithHashKey sets "hash_key", the 16-byte SipHash-2-4 key of the unit
+// assignment (arms and exploration). Default DefaultHashKey.
 func WithHashKey(key []byte) Option {
-	return optionFunc(func(s *settings) error {
-		if len(key) != 16 {
-			return badOpt("WithHashKey", "key must be 16 bytes, got %d", len(key))
-		}
-		s.k0 = binary.LittleEndian.Uint64(key[0:8])
-		s.k1 = binary.LittleEndian.Uint64(key[8:16])
-		return nil
-	})
+	hk := hex.EncodeToString(key)
+	if len(key) != 16 {
+		hk = fmt.Sprintf("(%d bytes)", len(key)) // refused by Validate
+	}
+	return optionFunc(func(d *draft) { d.cfg.HashKey = hk })
 }
 
 // saltOf folds a salt string into 64 bits (FNV-1a, common practice).
@@ -450,46 +338,25 @@ func saltOf(s string) uint64 {
 	return h
 }
 
-// buildSettings applies opts over base and finishes the model.
+// buildSettings applies opts over base's configuration and compiles the
+// result.
 func buildSettings(base settings, opts []Option) (settings, error) {
-	s := base
-	s.arms = append([]arm(nil), base.arms...)
-	s.touchAlpha, s.touchBeta = false, false
-	rebuild := !s.modelSet
+	d := draft{cfg: base.cfg, custom: base.custom}
+	d.cfg.Arms = append([]ArmWeight(nil), base.cfg.Arms...)
 	for _, o := range opts {
-		if o == nil {
-			continue
-		}
-		if err := o.apply(&s); err != nil {
-			return settings{}, err
+		if o != nil {
+			o.apply(&d)
 		}
 	}
-	if s.modelSet && (s.touchAlpha || s.touchBeta) {
-		return settings{}, badOpt("WithModel", "conflicts with WithAlpha/WithBeta (configure the model itself)")
-	}
-	if !s.modelSet && (rebuild || s.touchAlpha || s.touchBeta || s.model == nil) {
-		var mopts []scorer.Option
-		mopts = append(mopts, scorer.WithAlpha(s.alpha))
-		if s.betaSet {
-			mopts = append(mopts, scorer.WithBeta(s.beta))
-		}
-		m, err := scorer.NewBayes(mopts...)
-		if err != nil {
-			return settings{}, fmt.Errorf("%w: default model: %v", ErrBadOption, err)
-		}
-		s.model = m
-		if s.support, err = scorer.NewSupport(scorer.WithAlpha(s.alpha)); err != nil {
-			return settings{}, fmt.Errorf("%w: default presence-only model: %v", ErrBadOption, err)
-		}
-	}
-	return s, nil
+	return d.compile()
 }
 
-// modelFor is the model that scores decisions on h: the configured one, or
-// without WithModel the Support model (scorer defaults) when h's index is
-// presence-only (scorer.PresenceOnly) and the Bayes model otherwise. O(1).
+// modelFor is the model that scores decisions on h: the configured one
+// (WithModel or "error_model": "support"), or else the Support model when
+// h's index is presence-only (scorer.PresenceOnly) and the Bayes model
+// otherwise. O(1).
 func (s *settings) modelFor(h *handle) scorer.Model {
-	if h.presence && !s.modelSet && s.support != nil {
+	if h.presence && !s.forced {
 		return s.support
 	}
 	return s.model

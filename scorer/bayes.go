@@ -143,7 +143,8 @@ type Bayes struct {
 	variance                  Variance
 }
 
-// NewBayes returns the valued Dirichlet model. Options: WithAlpha (α > 0,
+// NewBayes returns the valued Dirichlet model: NewBayesFrom of
+// DefaultBayesConfig with opts applied (BayesConfig.Apply). Options: WithAlpha (α > 0,
 // default 1), WithBeta (β ≥ 0, default DefaultBeta), WithMissingSignal (γ ≥ 0,
 // δ ∈ [0, 1], defaults DefaultMissingGamma, DefaultMissingDelta), WithSignalZ
 // (z ≥ 0 of EdgeCost and of the signal bound, default DefaultSignalZ), WithVariance (DeltaMethod or
@@ -153,15 +154,11 @@ type Bayes struct {
 // WithV0 and WithN0 belong to the support model and are rejected with
 // ErrBadOption.
 func NewBayes(opts ...Option) (*Bayes, error) {
-	c, err := buildConfig(opts)
+	c, err := DefaultBayesConfig().Apply(opts...)
 	if err != nil {
 		return nil, err
 	}
-	if c.setV0 || c.setN0 {
-		return nil, fmt.Errorf("%w: WithV0/WithN0 apply to the support model only", ErrBadOption)
-	}
-	return &Bayes{alpha: c.alpha, beta: c.beta, signalZ: c.signalZ, gamma: c.gamma, delta: c.delta,
-		prior: c.prior, separation: c.separation, noiseK: c.noiseK, spread: c.spread, variance: c.variance}, nil
+	return NewBayesFrom(c)
 }
 
 // Name returns "bayes".

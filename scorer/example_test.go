@@ -140,3 +140,25 @@ func ExampleWorkspace_BorrowDist() {
 	// Output:
 	// best chain: P(mildew=present|vent=open) = 0.1540  err 0.00569
 }
+
+// ExampleNew builds a model from its serialisable description: start from
+// the defaults, change a constant, and let New validate and construct it.
+func ExampleNew() {
+	cfg := scorer.DefaultModelConfig()
+	cfg.Bayes.NoiseK = 2
+	m, err := scorer.New(cfg)
+	fmt.Println(m.Name(), m.(*scorer.Bayes).NoiseK(), err)
+
+	cfg.Bayes.MissingDelta = 1.5
+	_, err = scorer.New(cfg)
+	fmt.Println(err)
+
+	cfg = scorer.DefaultModelConfig()
+	cfg.Name = scorer.ModelSupport
+	m, err = scorer.New(cfg)
+	fmt.Println(m.Name(), m.HopBias() == scorer.DefaultSupportBeta, err)
+	// Output:
+	// bayes 2 <nil>
+	// scorer: bad option: MissingDelta: δ must be in [0, 1], got 1.5
+	// support true <nil>
+}

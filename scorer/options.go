@@ -1,9 +1,6 @@
 package scorer
 
-import (
-	"fmt"
-	"math"
-)
+import "fmt"
 
 // Default parameter values.
 //
@@ -71,173 +68,119 @@ const (
 	DefaultN0 = 132.0
 )
 
-// Option configures a model constructor. Options that do not apply to the
-// model being built make the constructor fail with ErrBadOption, so a typo in
-// a configuration does not pass unnoticed. A nil Option is ignored.
+// Option configures a model constructor: each option is a setter of one or
+// two fields of BayesConfig and/or SupportConfig, and the constructor
+// validates the result once (BayesConfig.Validate, SupportConfig.Validate).
+// An option that does not apply to the model being built (WithV0 on the
+// Bayes model, WithSignalZ on the Support model, ...) makes the constructor
+// fail with ErrBadOption, so a typo in a configuration does not pass
+// unnoticed. A nil Option is ignored.
 type Option interface {
-	apply(*config) error
+	bayes(*BayesConfig) error
+	support(*SupportConfig) error
 }
 
-type optionFunc func(*config) error
-
-func (f optionFunc) apply(c *config) error { return f(c) }
-
-type config struct {
-	alpha, beta, v0, n0, signalZ       float64
-	gamma, delta                       float64
-	setMissing                         bool
-	prior, separation, noiseK          float64
-	setPrior, setSeparation, setNoiseK bool
-	spread                             float64
-	setSpread                          bool
-	setV0, setN0, setSignalZ, setAlpha bool
-	setBeta                            bool
-	variance                           Variance
-	setVariance                        bool
+// option sets fields of either configuration; a nil setter means the option
+// does not apply to that model.
+type option struct {
+	name string
+	b    func(*BayesConfig)
+	s    func(*SupportConfig)
 }
 
-func defaultConfig() config {
-	return config{alpha: DefaultAlpha, beta: DefaultBeta, v0: DefaultV0, n0: DefaultN0, signalZ: DefaultSignalZ,
-		gamma: DefaultMissingGamma, delta: DefaultMissingDelta,
-		prior: DefaultPriorStrength, separation: DefaultSeparation, noiseK: DefaultNoiseK, spread: DefaultUnseenSpread}
+func (o option) bayes(c *BayesConfig) error {
+	if o.b == nil {
+		return errNotFor(o.name, ModelBayes)
+	}
+	o.b(c)
+	return nil
 }
 
-func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
+func (o option) support(c *SupportConfig) error {
+	if o.s == nil {
+		return errNotFor(o.name, ModelSupport)
+	}
+	o.s(c)
+	return nil
+}
 
-// WithAlpha sets the Dirichlet pseudo-count α (finite, > 0). Default 1.
-// For the Support model it only smooths the reported Dist.
+// WithAlpha sets Alpha, the Dirichlet pseudo-count α (finite, > 0), of
+// either model. Default 1. For the Support model it only smooths the
+// reported Dist.
 func WithAlpha(alpha float64) Option {
-	return optionFunc(func(c *config) error {
-		if !finite(alpha) || alpha <= 0 {
-			return fmt.Errorf("%w: WithAlpha(%v): α must be finite and > 0", ErrBadOption, alpha)
-		}
-		c.alpha, c.setAlpha = alpha, true
-		return nil
-	})
+	return option{"WithAlpha", func(c *BayesConfig) { c.Alpha = alpha }, func(c *SupportConfig) { c.Alpha = alpha }}
 }
 
-// WithBeta sets the per-hop squared-bias term β (finite, ≥ 0) added as β·m to
-// the error of a chain with m bridges. Default DefaultBeta (Bayes) or
-// DefaultSupportBeta (Support).
+// WithBeta sets Beta, the per-hop squared-bias term β (finite, ≥ 0) added as
+// β·m to the error of a chain with m bridges, of either model. Default
+// DefaultBeta (Bayes) or DefaultSupportBeta (Support).
 func WithBeta(beta float64) Option {
-	return optionFunc(func(c *config) error {
-		if !finite(beta) || beta < 0 {
-			return fmt.Errorf("%w: WithBeta(%v): β must be finite and ≥ 0", ErrBadOption, beta)
-		}
-		c.beta, c.setBeta = beta, true
-		return nil
-	})
+	return option{"WithBeta", func(c *BayesConfig) { c.Beta = beta }, func(c *SupportConfig) { c.Beta = beta }}
 }
 
-// WithV0 sets the support model's error numerator v0 (finite, > 0).
-// Support model only.
+// WithV0 sets SupportConfig.V0, the support model's error numerator v0
+// (finite, > 0). Support model only.
 func WithV0(v0 float64) Option {
-	return optionFunc(func(c *config) error {
-		if !finite(v0) || v0 <= 0 {
-			return fmt.Errorf("%w: WithV0(%v): v0 must be finite and > 0", ErrBadOption, v0)
-		}
-		c.v0, c.setV0 = v0, true
-		return nil
-	})
+	return option{"WithV0", nil, func(c *SupportConfig) { c.V0 = v0 }}
 }
 
-// WithN0 sets the support model's pseudo-support n0 (finite, > 0, so that an
-// edge of support 0 has the finite error v0/n0). Support model only.
+// WithN0 sets SupportConfig.N0, the support model's pseudo-support n0
+// (finite, > 0, so that an edge of support 0 has the finite error v0/n0).
+// Support model only.
 func WithN0(n0 float64) Option {
-	return optionFunc(func(c *config) error {
-		if !finite(n0) || n0 <= 0 {
-			return fmt.Errorf("%w: WithN0(%v): n0 must be finite and > 0", ErrBadOption, n0)
-		}
-		c.n0, c.setN0 = n0, true
-		return nil
-	})
+	return option{"WithN0", nil, func(c *SupportConfig) { c.N0 = n0 }}
 }
 
-// WithSignalZ sets z (finite, ≥ 0) of the Bayes model's candidate-generation
-// proxy EdgeCost = −log max(ε, V̂ − z/√n): how many standard errors the
-// edge association is discounted by. Default DefaultSignalZ; 0 ranks edges
-// by the point estimate V̂. Bayes model only.
+// WithSignalZ sets BayesConfig.SignalZ, z (finite, ≥ 0) of the Bayes model's
+// candidate-generation proxy EdgeCost = −log max(ε, V̂ − z/√n): how many
+// standard errors the edge association is discounted by. Default
+// DefaultSignalZ; 0 ranks edges by the point estimate V̂. Bayes model only.
 func WithSignalZ(z float64) Option {
-	return optionFunc(func(c *config) error {
-		if !finite(z) || z < 0 {
-			return fmt.Errorf("%w: WithSignalZ(%v): z must be finite and ≥ 0", ErrBadOption, z)
-		}
-		c.signalZ, c.setSignalZ = z, true
-		return nil
-	})
+	return option{"WithSignalZ", func(c *BayesConfig) { c.SignalZ = z }, nil}
 }
 
-// WithMissingSignal sets γ (finite, ≥ 0) and δ (finite, in [0, 1]) of the
-// Bayes model's missing-signal bias γ·(δ − L)₊², L the product of the chain's
-// edge association lower bounds (see Bayes). γ = 0 turns it off. Default
+// WithMissingSignal sets BayesConfig.MissingGamma and MissingDelta, γ
+// (finite, ≥ 0) and δ (finite, in [0, 1]) of the Bayes model's
+// missing-signal bias γ·(δ − L)₊², L the product of the chain's edge
+// association lower bounds (see Bayes). γ = 0 turns it off. Default
 // DefaultMissingGamma, DefaultMissingDelta. Bayes model only.
 func WithMissingSignal(gamma, delta float64) Option {
-	return optionFunc(func(c *config) error {
-		if !finite(gamma) || gamma < 0 {
-			return fmt.Errorf("%w: WithMissingSignal(%v, %v): γ must be finite and ≥ 0", ErrBadOption, gamma, delta)
-		}
-		if !finite(delta) || delta < 0 || delta > 1 {
-			return fmt.Errorf("%w: WithMissingSignal(%v, %v): δ must be in [0, 1]", ErrBadOption, gamma, delta)
-		}
-		c.gamma, c.delta, c.setMissing = gamma, delta, true
-		return nil
-	})
+	return option{"WithMissingSignal", func(c *BayesConfig) { c.MissingGamma, c.MissingDelta = gamma, delta }, nil}
 }
 
-// WithPriorStrength sets A (finite, > 0), the total pseudo-count of the
-// Bayes model's empirical-Bayes prior of a direct estimate: Dirichlet(A·m̂)
-// with m̂ the target's smoothed marginal (see Bayes, "Direct estimate").
-// Default DefaultPriorStrength. Without marginals in the statistics the
-// prior is the symmetric Dirichlet(α) and A is not used. Bayes model only.
+// WithPriorStrength sets BayesConfig.PriorStrength, A (finite, > 0), the
+// total pseudo-count of the Bayes model's empirical-Bayes prior of a direct
+// estimate: Dirichlet(A·m̂) with m̂ the target's smoothed marginal (see
+// Bayes, "Direct estimate"). Default DefaultPriorStrength. Without marginals
+// in the statistics the prior is the symmetric Dirichlet(α) and A is not
+// used. Bayes model only.
 func WithPriorStrength(a float64) Option {
-	return optionFunc(func(c *config) error {
-		if !finite(a) || a <= 0 {
-			return fmt.Errorf("%w: WithPriorStrength(%v): A must be finite and > 0", ErrBadOption, a)
-		}
-		c.prior, c.setPrior = a, true
-		return nil
-	})
+	return option{"WithPriorStrength", func(c *BayesConfig) { c.PriorStrength = a }, nil}
 }
 
-// WithUnseenSpread sets η (finite, ≥ 0) of the Bayes model's
-// unobserved-pair error E0 = η·(1 − P̂(s = u))²·(1 − 1/K_t) (see Bayes,
-// "Direct estimate"). Default DefaultUnseenSpread. Bayes model only.
+// WithUnseenSpread sets BayesConfig.UnseenSpread, η (finite, ≥ 0) of the
+// Bayes model's unobserved-pair error E0 = η·(1 − P̂(s = u))²·(1 − 1/K_t)
+// (see Bayes, "Direct estimate"). Default DefaultUnseenSpread. Bayes model
+// only.
 func WithUnseenSpread(eta float64) Option {
-	return optionFunc(func(c *config) error {
-		if !finite(eta) || eta < 0 {
-			return fmt.Errorf("%w: WithUnseenSpread(%v): η must be finite and ≥ 0", ErrBadOption, eta)
-		}
-		c.spread, c.setSpread = eta, true
-		return nil
-	})
+	return option{"WithUnseenSpread", func(c *BayesConfig) { c.UnseenSpread = eta }, nil}
 }
 
-// WithSeparation sets λ (finite, ≥ 0), the weight of the Bayes model's
-// separation bias: λ·Σ_k max(0, D_k − V_k) over the bridges whose two chain
-// neighbours were observed together (see Bayes, "Separation check"). 0
-// turns the check off. Default DefaultSeparation. Bayes model only.
+// WithSeparation sets BayesConfig.Separation, λ (finite, ≥ 0), the weight of
+// the Bayes model's separation bias: λ·Σ_k max(0, D_k − V_k) over the
+// bridges whose two chain neighbours were observed together (see Bayes,
+// "Separation check"). 0 turns the check off. Default DefaultSeparation.
+// Bayes model only.
 func WithSeparation(lambda float64) Option {
-	return optionFunc(func(c *config) error {
-		if !finite(lambda) || lambda < 0 {
-			return fmt.Errorf("%w: WithSeparation(%v): λ must be finite and ≥ 0", ErrBadOption, lambda)
-		}
-		c.separation, c.setSeparation = lambda, true
-		return nil
-	})
+	return option{"WithSeparation", func(c *BayesConfig) { c.Separation = lambda }, nil}
 }
 
-// WithNoiseK sets k (finite, ≥ 0) of the Bayes model's gain margin
-// k·√2·(Var_chain + Var_ref) (see Bayes.GainMargin): a chain must beat
-// the direct answer by more than k standard errors of its bias estimate.
-// 0 turns the margin off. Default DefaultNoiseK. Bayes model only.
+// WithNoiseK sets BayesConfig.NoiseK, k (finite, ≥ 0) of the Bayes model's
+// gain margin k·√2·(Var_chain + Var_ref) (see Bayes.GainMargin): a chain
+// must beat the direct answer by more than k standard errors of its bias
+// estimate. 0 turns the margin off. Default DefaultNoiseK. Bayes model only.
 func WithNoiseK(k float64) Option {
-	return optionFunc(func(c *config) error {
-		if !finite(k) || k < 0 {
-			return fmt.Errorf("%w: WithNoiseK(%v): k must be finite and ≥ 0", ErrBadOption, k)
-		}
-		c.noiseK, c.setNoiseK = k, true
-		return nil
-	})
+	return option{"WithNoiseK", func(c *BayesConfig) { c.NoiseK = k }, nil}
 }
 
 // Variance selects how the Bayes model computes the variance of a chained
@@ -273,27 +216,38 @@ func (v Variance) String() string {
 	return fmt.Sprintf("Variance(%d)", int(v))
 }
 
-// WithVariance selects the chain-variance method of the Bayes model
-// (DeltaMethod by default). Bayes model only.
+// WithVariance sets BayesConfig.Variance, the chain-variance method of the
+// Bayes model (DeltaMethod by default). Bayes model only.
 func WithVariance(v Variance) Option {
-	return optionFunc(func(c *config) error {
-		if v != DeltaMethod && v != ExactMoments {
-			return fmt.Errorf("%w: WithVariance(%d): unknown method", ErrBadOption, int(v))
-		}
-		c.variance, c.setVariance = v, true
-		return nil
-	})
+	return option{"WithVariance", func(c *BayesConfig) { c.Variance = v }, nil}
 }
 
-func buildConfig(opts []Option) (config, error) {
-	c := defaultConfig()
+// Apply sets the fields opts configure on a copy of c and validates the
+// result. It fails with ErrBadOption on an option that does not apply to the
+// Bayes model or on a value outside its domain.
+func (c BayesConfig) Apply(opts ...Option) (BayesConfig, error) {
 	for _, o := range opts {
 		if o == nil {
 			continue
 		}
-		if err := o.apply(&c); err != nil {
-			return config{}, err
+		if err := o.bayes(&c); err != nil {
+			return BayesConfig{}, err
 		}
 	}
-	return c, nil
+	return c, c.Validate()
+}
+
+// Apply sets the fields opts configure on a copy of c and validates the
+// result. It fails with ErrBadOption on an option that does not apply to the
+// Support model or on a value outside its domain.
+func (c SupportConfig) Apply(opts ...Option) (SupportConfig, error) {
+	for _, o := range opts {
+		if o == nil {
+			continue
+		}
+		if err := o.support(&c); err != nil {
+			return SupportConfig{}, err
+		}
+	}
+	return c, c.Validate()
 }

@@ -1,10 +1,6 @@
 package scorer
 
-import (
-	"fmt"
-
-	"github.com/hopwise/hopwise/graphidx"
-)
+import "github.com/hopwise/hopwise/graphidx"
 
 // Support is the presence-only model (docs/DESIGN.md, Error model) for corpora that record
 // only which entities occur together. Each edge is judged by its support
@@ -23,32 +19,18 @@ type Support struct {
 	alpha, beta, v0, n0 float64
 }
 
-// NewSupport returns the presence-only model. Options: WithV0 (> 0, default
+// NewSupport returns the presence-only model: NewSupportFrom of
+// DefaultSupportConfig with opts applied (SupportConfig.Apply). Options: WithV0 (> 0, default
 // DefaultV0), WithN0 (> 0, default DefaultN0), WithBeta (≥ 0, default
 // DefaultSupportBeta), WithAlpha (> 0, default 1; smooths Dist only). WithSignalZ
 // and WithVariance belong to the Bayes model and are rejected with
 // ErrBadOption.
 func NewSupport(opts ...Option) (*Support, error) {
-	c, err := buildConfig(opts)
+	c, err := DefaultSupportConfig().Apply(opts...)
 	if err != nil {
 		return nil, err
 	}
-	if c.setVariance {
-		return nil, fmt.Errorf("%w: WithVariance applies to the Bayes model only", ErrBadOption)
-	}
-	if c.setSignalZ {
-		return nil, fmt.Errorf("%w: WithSignalZ applies to the Bayes model only (the support model's edge cost is v0/(support+n0))", ErrBadOption)
-	}
-	if c.setMissing {
-		return nil, fmt.Errorf("%w: WithMissingSignal applies to the Bayes model only", ErrBadOption)
-	}
-	if c.setPrior || c.setSeparation || c.setNoiseK || c.setSpread {
-		return nil, fmt.Errorf("%w: WithPriorStrength, WithUnseenSpread, WithSeparation and WithNoiseK apply to the Bayes model only", ErrBadOption)
-	}
-	if !c.setBeta {
-		c.beta = DefaultSupportBeta
-	}
-	return &Support{alpha: c.alpha, beta: c.beta, v0: c.v0, n0: c.n0}, nil
+	return NewSupportFrom(c)
 }
 
 // Name returns "support".

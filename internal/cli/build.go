@@ -143,6 +143,9 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	if o.workers, err = resolveWorkers(o.workers); err != nil {
 		return &ExitError{Code: 2, Err: err}
 	}
+	if o.maxNeighbors < 0 {
+		return &ExitError{Code: 2, Err: fmt.Errorf("--max-neighbors must not be negative, got %d (0 means no limit)", o.maxNeighbors)}
+	}
 	if o.maxContextEntities < 0 {
 		return &ExitError{Code: 2, Err: fmt.Errorf("--max-context-entities must not be negative, got %d", o.maxContextEntities)}
 	}
@@ -171,6 +174,9 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 			return err
 		}
 		buildBudget -= o.lex.Stats().MemBytes
+	}
+	if buildBudget < graphidx.MinMemBudget {
+		return &ExitError{Code: 2, Err: fmt.Errorf("--mem-budget %s leaves %d bytes for the builder (after the CSV reader's half and the lexicon), want at least %d", o.memBudget, buildBudget, graphidx.MinMemBudget)}
 	}
 	r, closer, err := graphidx.OpenCorpus(o.corpus, format, o.lexicon, graphidx.WithLexicon(o.lex),
 		graphidx.WithPolicy(policy), graphidx.WithMemBudget(readBudget), graphidx.WithTempDir(o.tempDir),

@@ -75,6 +75,9 @@ func runMerge(cmd *cobra.Command, o mergeOpts, inputs []string) error {
 	if o.out == "" && o.countsOut == "" {
 		return &ExitError{Code: 2, Err: errors.New("merge: give --out, --counts-out or both")}
 	}
+	if o.maxNeighbors < 0 {
+		return &ExitError{Code: 2, Err: fmt.Errorf("--max-neighbors must not be negative, got %d (0 means no limit)", o.maxNeighbors)}
+	}
 	if o.countsOut != "" {
 		if o.shards < 1 || o.shards > graphidx.MaxCountShards {
 			return &ExitError{Code: 2, Err: fmt.Errorf("--shards must be in 1..%d, got %d", graphidx.MaxCountShards, o.shards)}

@@ -155,6 +155,7 @@ func TestMergeRefuses(t *testing.T) {
 		{[]string{"merge", "--out", filepath.Join(dir, "o.idx"), good, good + "/"}, "same count set"},
 		{[]string{"merge", "--out", filepath.Join(dir, "o.idx"), good, copied}, "same count set"},
 		{[]string{"merge", "--counts-out", filepath.Join(dir, "c"), good, copied}, "same count set"},
+		{[]string{"merge", "--out", filepath.Join(dir, "o.idx"), "--max-neighbors", "-1", good}, "--max-neighbors must not be negative"},
 	} {
 		_, err := runCLI(t, tc.args...)
 		var ee *ExitError

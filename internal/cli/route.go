@@ -42,6 +42,9 @@ type routeOptions struct {
 	maxCandidates    int
 	fanOut           int
 	alpha, beta      float64
+	prior, spread    float64 // A and η of the Bayes model's direct estimate
+	separation       float64 // λ of the separation bias
+	noiseK           float64 // k of the gain margin
 	fallback         string
 	budget           int
 	utilityLambda    float64
@@ -151,6 +154,10 @@ about an unknown value (the entity's values) and an expired --timeout.`,
 	f.IntVar(&o.maxCandidates, "max-candidates", def.MaxCandidates, "k: chains scored exactly")
 	f.Float64Var(&o.alpha, "alpha", def.Alpha, "Dirichlet pseudo-count α")
 	f.Float64Var(&o.beta, "beta", def.Beta, "per-hop squared bias β")
+	f.Float64Var(&o.prior, "prior-strength", def.PriorStrength, "A: pseudo-count of the direct estimate's prior centred on the target's marginal (bayes)")
+	f.Float64Var(&o.spread, "unseen-spread", def.UnseenSpread, "η: a never-seen pair's direct error is η·(1 − P(observed value))²·(1 − 1/K) (bayes)")
+	f.Float64Var(&o.separation, "separation", def.Separation, "λ: weight of the chain's separation bias (0: off; bayes)")
+	f.Float64Var(&o.noiseK, "noise-k", def.NoiseK, "k: a chain must beat direct by k standard errors of its bias estimate (0: off; bayes)")
 	f.StringVar(&o.fallback, "unknown-entity", def.Fallback, "unknown endpoints: error, or answer with a direct or chain fallback decision")
 	f.IntVar(&o.budget, "expansion-budget", def.ExpansionBudget, "work units one search may spend (a hub costs at most this)")
 	f.Float64Var(&o.utilityLambda, "utility-lambda", def.UtilityLambda, "λ of the utility form λ·gain − hop_cost·m (0: off)")
@@ -183,6 +190,10 @@ func routeConfig(cmd *cobra.Command, o routeOptions) (router.Config, error) {
 	set("max-candidates", func() { c.MaxCandidates = o.maxCandidates })
 	set("alpha", func() { c.Alpha = o.alpha })
 	set("beta", func() { c.Beta = o.beta })
+	set("prior-strength", func() { c.PriorStrength = o.prior })
+	set("unseen-spread", func() { c.UnseenSpread = o.spread })
+	set("separation", func() { c.Separation = o.separation })
+	set("noise-k", func() { c.NoiseK = o.noiseK })
 	set("unknown-entity", func() { c.Fallback = o.fallback })
 	set("expansion-budget", func() { c.ExpansionBudget = o.budget })
 	set("utility-lambda", func() { c.UtilityLambda = o.utilityLambda })

@@ -241,3 +241,33 @@ func TestRouteBatchLongLastLine(t *testing.T) {
 		t.Fatalf("want 2 output lines, the second naming the long line 2; got %d:\n%s", len(lines), out)
 	}
 }
+
+// TestRouteModelFlags: the Bayes constants' flags reach the router's
+// configuration — a bad value names its field, and under a support-model
+// config they are refused — and an in-domain value decides.
+func TestRouteModelFlags(t *testing.T) {
+	t.Parallel()
+	idx := writeRouteIndex(t)
+	q := []string{"--from", "vent-north", "--value", "open", "--to", "bed-tomato"}
+	support := filepath.Join(t.TempDir(), "support.json")
+	if err := os.WriteFile(support, []byte(`{"error_model": "support"}`), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		args []string
+		want string
+	}{
+		{[]string{"--noise-k", "-1"}, `"noise_k"`},
+		{[]string{"--prior-strength", "0"}, `"prior_strength"`},
+		{[]string{"--unseen-spread", "-0.5"}, `"unseen_spread"`},
+		{[]string{"--config", support, "--separation", "0"}, `"separation"`},
+	} {
+		_, err := routeCLI(t, append(append([]string{"route", "--index", idx}, tc.args...), q...)...)
+		if err == nil || !strings.Contains(err.Error(), tc.want) {
+			t.Errorf("%v: error %v, want one naming %s", tc.args, err, tc.want)
+		}
+	}
+	if out, err := routeCLI(t, append([]string{"route", "--index", idx, "--noise-k", "0", "--separation", "0.5"}, q...)...); err != nil {
+		t.Errorf("in-domain model flags: %v\n%s", err, out)
+	}
+}

@@ -27,6 +27,8 @@ func TestEncodeConfig(t *testing.T) {
 	full.HashKey = "00112233445566778899aabbccddeeff"
 	support := def
 	support.Model, support.Beta, support.SupportV0 = "support", 0.004, 0.3
+	bayes := def
+	bayes.NoiseK, bayes.PriorStrength = 2, 4.5
 	for _, c := range []struct {
 		name string
 		cfg  router.Config
@@ -35,6 +37,7 @@ func TestEncodeConfig(t *testing.T) {
 		{"defaults", def, []string{"gain_threshold", "max_bridges", "exploration"}},
 		{"deployed", full, []string{"gain_threshold", "max_bridges", "exploration", "exploration_salt", "arms", "hash_key"}},
 		{"fitted support model", support, []string{"gain_threshold", "max_bridges", "error_model", "beta", "support_v0", "exploration"}},
+		{"refitted Bayes constants", bayes, []string{"gain_threshold", "max_bridges", "noise_k", "prior_strength", "exploration"}},
 	} {
 		b, err := EncodeConfig(c.cfg)
 		if err != nil {

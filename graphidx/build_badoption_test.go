@@ -1,0 +1,46 @@
+package graphidx
+
+import (
+	"context"
+	"errors"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// TestBadBuildOptions: a worker count < 1, a negative neighbour limit and a
+// memory budget that is negative or below MinMemBudget are errors naming
+// the option (they used to be raised or kept at the default silently), for
+// Build, Compile and Partial.Compile alike; 0 budget keeps the default.
+func TestBadBuildOptions(t *testing.T) {
+	t.Parallel()
+	const corpus = `{"id":"a","obs":{"vent":"open","pump":"on"}}` + "\n"
+	for _, tc := range []struct {
+		opt  BuildOption
+		name string
+	}{
+		{WithWorkers(0), "WithWorkers(0)"},
+		{WithWorkers(-2), "WithWorkers(-2)"},
+		{WithMaxNeighbors(-1), "WithMaxNeighbors(-1)"},
+		{WithMemBudget(-1), "WithMemBudget(-1)"},
+		{WithMemBudget(MinMemBudget - 1), "WithMemBudget(1048575)"},
+	} {
+		out := filepath.Join(t.TempDir(), "x.hwx")
+		_, err := Build(context.Background(), NewJSONLReader(strings.NewReader(corpus), "c.jsonl"), out, tc.opt)
+		if !errors.Is(err, ErrBadBuildOption) || !strings.Contains(err.Error(), tc.name) {
+			t.Errorf("Build with %s: error %v, want ErrBadBuildOption naming it", tc.name, err)
+		}
+		if _, _, err := Compile(context.Background(), NewJSONLReader(strings.NewReader(corpus), "c.jsonl"), tc.opt); !errors.Is(err, ErrBadBuildOption) {
+			t.Errorf("Compile with %s: error %v, want ErrBadBuildOption", tc.name, err)
+		}
+	}
+	p := NewPartial()
+	if _, _, err := p.Compile(WithMaxNeighbors(-3)); !errors.Is(err, ErrBadBuildOption) {
+		t.Errorf("Partial.Compile with WithMaxNeighbors(-3): error %v, want ErrBadBuildOption", err)
+	}
+	out := filepath.Join(t.TempDir(), "ok.hwx")
+	if _, err := Build(context.Background(), NewJSONLReader(strings.NewReader(corpus), "c.jsonl"), out,
+		WithMemBudget(0), WithMemBudget(MinMemBudget), WithWorkers(1), WithMaxNeighbors(0)); err != nil {
+		t.Errorf("in-domain options: %v", err)
+	}
+}
