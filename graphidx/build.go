@@ -407,8 +407,10 @@ const (
 	// them (32 KiB), whatever the width of the context.
 	keyChunk = 4096
 	// cancelPollKeys is how many keys a worker counts between two polls
-	// of the build's context inside one context (about 10 ms of work).
-	cancelPollKeys = 1 << 20
+	// of the build's context inside one context (under a millisecond of work;
+	// under the race detector, with other tests beside it, 2^20 keys took
+	// seconds).
+	cancelPollKeys = 1 << 16
 )
 
 // buildRun is the shared state of one compile.
