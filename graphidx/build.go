@@ -189,7 +189,7 @@ type Compiled struct {
 	ents     []EntityRecord
 	k        []uint8
 	store    *pairStore
-	filter   *pruneFilter
+	filter   *PruneFilter
 	dir      string
 }
 
@@ -205,7 +205,7 @@ func (c *Compiled) Pairs(fn func(PairRecord) error) error {
 		return errors.New("graphidx: Compiled is closed")
 	}
 	return c.store.each(c.k, func(a, b uint32, counts []uint32) error {
-		if !c.filter.keep(a, b, sumCounts(counts)) {
+		if !c.filter.Keep(a, b, sumCounts(counts)) {
 			return nil
 		}
 		return fn(PairRecord{A: a, B: b, Counts: counts})

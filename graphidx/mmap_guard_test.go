@@ -1,6 +1,8 @@
 package graphidx
 
 import (
+	"github.com/hopwise/hopwise/graphidx/internal/fileio"
+
 	"errors"
 	"os"
 	"strings"
@@ -13,7 +15,7 @@ import (
 // Guard the process dies of SIGBUS); other panics pass through.
 func TestGuardTruncatedMap(t *testing.T) {
 	t.Parallel()
-	if !mmapSupported {
+	if !fileio.MmapSupported {
 		t.Skip("no memory map on this platform")
 	}
 	path := ixWriteTemp(t, ixRandomSource(3000, 8, 3, 7))

@@ -5,6 +5,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"github.com/hopwise/hopwise/graphidx/counts"
 	"io"
 	"math/rand/v2"
 	"os"
@@ -148,7 +149,7 @@ func TestCountsOutInPasses(t *testing.T) {
 		t.Errorf("%d passes reported, want 3", passes)
 	}
 	for s := range 8 {
-		name := graphidx.CountShardName(s, 8)
+		name := counts.CountShardName(s, 8)
 		x, err1 := os.ReadFile(filepath.Join(one, name))
 		y, err2 := os.ReadFile(filepath.Join(three, name))
 		if err1 != nil || err2 != nil || !bytes.Equal(x, y) {
@@ -162,7 +163,7 @@ func TestCountsOutInPasses(t *testing.T) {
 	if got, err := runCLI(t, "build", "--corpus", corpus, "--out", idx, "--quiet"); err != nil {
 		t.Fatalf("%v\n%s", err, got)
 	}
-	p := graphidx.NewPartial()
+	p := counts.NewPartial()
 	r, c, err := open()
 	if err != nil {
 		t.Fatal(err)
