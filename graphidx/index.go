@@ -1,8 +1,6 @@
 package graphidx
 
 import (
-	"github.com/hopwise/hopwise/graphidx/internal/fileio"
-
 	"context"
 	"encoding/binary"
 	"fmt"
@@ -14,6 +12,8 @@ import (
 	"sync"
 	"sync/atomic"
 	"unsafe"
+
+	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
 // OpenOption configures Open.

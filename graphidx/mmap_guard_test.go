@@ -1,13 +1,13 @@
 package graphidx
 
 import (
-	"github.com/hopwise/hopwise/graphidx/internal/fileio"
-
 	"errors"
 	"os"
 	"strings"
 	"testing"
 	"time"
+
+	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
 // TestGuardTruncatedMap: reads of an index whose file was truncated under

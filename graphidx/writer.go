@@ -1,8 +1,6 @@
 package graphidx
 
 import (
-	"github.com/hopwise/hopwise/graphidx/internal/fileio"
-
 	"crypto/rand"
 	"encoding/hex"
 	"errors"
@@ -12,6 +10,8 @@ import (
 	"path/filepath"
 	"slices"
 	"strings"
+
+	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
 // WriteOption configures WriteFile.

@@ -7,7 +7,6 @@ import (
 	"encoding/hex"
 	"errors"
 	"fmt"
-	"github.com/hopwise/hopwise/graphidx/counts"
 	"reflect"
 	"strings"
 
@@ -17,6 +16,7 @@ import (
 	"github.com/apache/beam/sdks/v2/go/pkg/beam/io/textio"
 	"github.com/apache/beam/sdks/v2/go/pkg/beam/register"
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/counts"
 )
 
 // DefaultShards is the number of count shards written when Config.Shards is 0.

@@ -4,7 +4,6 @@ import (
 	"bytes"
 	"context"
 	"fmt"
-	"github.com/hopwise/hopwise/graphidx/counts"
 	"io"
 	"math/rand/v2"
 	"os"
@@ -17,6 +16,7 @@ import (
 	"github.com/apache/beam/sdks/v2/go/pkg/beam"
 	"github.com/apache/beam/sdks/v2/go/pkg/beam/testing/ptest"
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/counts"
 )
 
 // TestMain runs every pipeline of this package on prism, Beam's local

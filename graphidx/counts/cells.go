@@ -1,8 +1,6 @@
 package counts
 
 import (
-	"github.com/hopwise/hopwise/graphidx"
-
 	"encoding/binary"
 	"errors"
 	"fmt"
@@ -10,6 +8,8 @@ import (
 	"hash/fnv"
 	"strconv"
 	"strings"
+
+	"github.com/hopwise/hopwise/graphidx"
 )
 
 // Count cells: the wire unit of distributed counting.

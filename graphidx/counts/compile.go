@@ -1,10 +1,6 @@
 package counts
 
 import (
-	"github.com/hopwise/hopwise/graphidx/internal/fileio"
-
-	"github.com/hopwise/hopwise/graphidx"
-
 	"container/heap"
 	"context"
 	"fmt"
@@ -15,6 +11,9 @@ import (
 	"slices"
 	"strconv"
 	"time"
+
+	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
 // countsSource is the Source compiled from count sets without a Partial:

@@ -1,10 +1,6 @@
 package counts
 
 import (
-	"github.com/hopwise/hopwise/graphidx/internal/fileio"
-
-	"github.com/hopwise/hopwise/graphidx"
-
 	"bytes"
 	"context"
 	"errors"
@@ -15,6 +11,9 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
 // greenhouseCorpus returns n JSONL contexts of an invented greenhouse: each

@@ -1,10 +1,6 @@
 package counts
 
 import (
-	"github.com/hopwise/hopwise/graphidx/internal/fileio"
-
-	"github.com/hopwise/hopwise/graphidx"
-
 	"context"
 	"encoding/binary"
 	"fmt"
@@ -15,6 +11,9 @@ import (
 	"regexp"
 	"slices"
 	"strconv"
+
+	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
 // On-disk constants of a count shard; COUNTS.md is the byte-level spec.

@@ -1,14 +1,14 @@
 package counts
 
 import (
-	"github.com/hopwise/hopwise/graphidx"
-
 	"fmt"
 	"maps"
 	"math"
 	"slices"
 	"strconv"
 	"strings"
+
+	"github.com/hopwise/hopwise/graphidx"
 )
 
 // Partial is a mergeable set of co-occurrence counts keyed by names: the

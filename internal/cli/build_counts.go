@@ -4,10 +4,10 @@ import (
 	"context"
 	"errors"
 	"fmt"
-	"github.com/hopwise/hopwise/graphidx/counts"
 	"io"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/counts"
 	"github.com/spf13/cobra"
 )
 

@@ -5,7 +5,6 @@ import (
 	"context"
 	"errors"
 	"fmt"
-	"github.com/hopwise/hopwise/graphidx/counts"
 	"io"
 	"math/rand/v2"
 	"os"
@@ -15,6 +14,7 @@ import (
 	"time"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/counts"
 )
 
 // A hand-checked greenhouse corpus with one bad line of each of two kinds.
@@ -226,6 +226,22 @@ func TestProgressLine(t *testing.T) {
 	} {
 		if got := progressLine(c.ev, c.total); got != c.want {
 			t.Errorf("progressLine(%+v, %d) =\n%q, want\n%q", c.ev, c.total, got, c.want)
+		}
+	}
+}
+
+// TestBuildHelpListsFormats: build's help and --format flag are generated
+// from the format table, so every format and extension appears in them.
+func TestBuildHelpListsFormats(t *testing.T) {
+	t.Parallel()
+	cmd := newBuildCmd()
+	usage := cmd.Flags().Lookup("format").Usage
+	for _, f := range graphidx.Formats() {
+		if !strings.Contains(cmd.Long, "\n  "+f.Name+" ") || !strings.Contains(usage, f.Name) {
+			t.Errorf("format %s missing from the help or the --format flag", f.Name)
+		}
+		if !strings.Contains(cmd.Long, "("+strings.Join(f.Extensions, " ")+")") {
+			t.Errorf("extensions of %s missing from the help", f.Name)
 		}
 	}
 }

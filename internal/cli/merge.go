@@ -3,12 +3,12 @@ package cli
 import (
 	"errors"
 	"fmt"
-	"github.com/hopwise/hopwise/graphidx/counts"
 	"io"
 	"os"
 	"time"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/counts"
 	"github.com/spf13/cobra"
 )
 

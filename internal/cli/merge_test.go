@@ -5,7 +5,6 @@ import (
 	"context"
 	"errors"
 	"fmt"
-	"github.com/hopwise/hopwise/graphidx/counts"
 	"io"
 	"math/rand/v2"
 	"os"
@@ -14,6 +13,7 @@ import (
 	"testing"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/counts"
 )
 
 // mergeCorpus returns n seeded greenhouse contexts (vents, pumps, zones,
