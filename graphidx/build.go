@@ -17,6 +17,8 @@ import (
 	"sync"
 	"sync/atomic"
 	"time"
+
+	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
 // Build errors.
@@ -428,7 +430,7 @@ func (b *buildRun) tempDir() (string, error) {
 	b.dirMu.Lock()
 	defer b.dirMu.Unlock()
 	if b.dir == "" {
-		d, err := makeSpillDir(b.cfg.tempDir, buildDirPrefix)
+		d, err := fileio.MakeSpillDir(b.cfg.tempDir, buildDirPrefix)
 		if err != nil {
 			return "", fmt.Errorf("graphidx: temp dir: %w", err)
 		}

@@ -12,6 +12,8 @@ import (
 	"slices"
 	"strings"
 	"unicode/utf8"
+
+	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
 // Observation is one entity observed with one value inside a context.
@@ -435,72 +437,25 @@ func (in *interner) get(b []byte) string {
 	return s
 }
 
-// lineReader reads lines of bounded length and counts lines and bytes.
+// lineReader is the bounded line reader of the corpus readers and the
+// lexicon (fileio.LineReader) under the names they use.
 type lineReader struct {
-	br      *bufio.Reader
-	buf     []byte
-	max     int
+	fileio.LineReader
 	line    int // number of the line last returned (1-based)
 	bytes   int64
 	tooLong bool // the line last returned was truncated
+	max     int  // the longest line accepted
 }
 
 func newLineReader(r io.Reader, max int) *lineReader {
-	return &lineReader{br: bufio.NewReaderSize(r, 64<<10), max: max}
+	return &lineReader{LineReader: *fileio.NewLineReader(r, max), max: max}
 }
 
-// next returns the next line without its line terminator ("\n" or "\r\n").
-// A line longer than max is consumed to its end and returned empty with
-// tooLong set. It returns io.EOF when the input is exhausted.
+// next is LineReader.Next, mirroring its counters into the fields.
 func (l *lineReader) next() ([]byte, error) {
-	l.buf = l.buf[:0]
-	l.tooLong = false
-	started := false
-	for {
-		chunk, err := l.br.ReadSlice('\n')
-		l.bytes += int64(len(chunk))
-		if len(chunk) > 0 {
-			started = true
-		}
-		if !l.tooLong {
-			if len(l.buf)+len(chunk) > l.max+2 { // +2 for the terminator
-				l.tooLong = true
-				l.buf = l.buf[:0]
-			} else {
-				l.buf = append(l.buf, chunk...)
-			}
-		}
-		switch {
-		case err == nil:
-			l.line++
-			return l.trim(), nil
-		case errors.Is(err, bufio.ErrBufferFull):
-			continue
-		case errors.Is(err, io.EOF):
-			if !started {
-				return nil, io.EOF
-			}
-			l.line++
-			return l.trim(), nil
-		default:
-			return nil, err
-		}
-	}
-}
-
-func (l *lineReader) trim() []byte {
-	b := l.buf
-	if len(b) > 0 && b[len(b)-1] == '\n' {
-		b = b[:len(b)-1]
-	}
-	if len(b) > 0 && b[len(b)-1] == '\r' {
-		b = b[:len(b)-1]
-	}
-	if !l.tooLong && len(b) > l.max {
-		l.tooLong = true
-		b = b[:0]
-	}
-	return b
+	b, err := l.Next()
+	l.line, l.bytes, l.tooLong = l.Line, l.Bytes, l.TooLong
+	return b, err
 }
 
 // Corpus formats accepted by OpenCorpus (the names of the Formats table).
