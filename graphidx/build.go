@@ -17,6 +17,8 @@ import (
 	"sync"
 	"sync/atomic"
 	"time"
+
+	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
 // Build errors.
@@ -189,7 +191,7 @@ type Compiled struct {
 	ents     []EntityRecord
 	k        []uint8
 	store    *pairStore
-	filter   *pruneFilter
+	filter   *PruneFilter
 	dir      string
 }
 
@@ -205,7 +207,7 @@ func (c *Compiled) Pairs(fn func(PairRecord) error) error {
 		return errors.New("graphidx: Compiled is closed")
 	}
 	return c.store.each(c.k, func(a, b uint32, counts []uint32) error {
-		if !c.filter.keep(a, b, sumCounts(counts)) {
+		if !c.filter.Keep(a, b, sumCounts(counts)) {
 			return nil
 		}
 		return fn(PairRecord{A: a, B: b, Counts: counts})
@@ -430,7 +432,7 @@ func (b *buildRun) tempDir() (string, error) {
 	b.dirMu.Lock()
 	defer b.dirMu.Unlock()
 	if b.dir == "" {
-		d, err := makeSpillDir(b.cfg.tempDir, buildDirPrefix)
+		d, err := fileio.MakeSpillDir(b.cfg.tempDir, buildDirPrefix)
 		if err != nil {
 			return "", fmt.Errorf("graphidx: temp dir: %w", err)
 		}

@@ -11,7 +11,8 @@ import (
 // TestBadBuildOptions: a worker count < 1, a negative neighbour limit and a
 // memory budget that is negative or below MinMemBudget are errors naming
 // the option (they used to be raised or kept at the default silently), for
-// Build, Compile and Partial.Compile alike; 0 budget keeps the default.
+// Build, Compile and CheckBuildOptions alike (counts.Partial.Compile has its
+// own test); 0 budget keeps the default.
 func TestBadBuildOptions(t *testing.T) {
 	t.Parallel()
 	const corpus = `{"id":"a","obs":{"vent":"open","pump":"on"}}` + "\n"
@@ -34,9 +35,8 @@ func TestBadBuildOptions(t *testing.T) {
 			t.Errorf("Compile with %s: error %v, want ErrBadBuildOption", tc.name, err)
 		}
 	}
-	p := NewPartial()
-	if _, _, err := p.Compile(WithMaxNeighbors(-3)); !errors.Is(err, ErrBadBuildOption) {
-		t.Errorf("Partial.Compile with WithMaxNeighbors(-3): error %v, want ErrBadBuildOption", err)
+	if err := CheckBuildOptions([]BuildOption{WithMaxNeighbors(-3)}); !errors.Is(err, ErrBadBuildOption) {
+		t.Errorf("CheckBuildOptions with WithMaxNeighbors(-3): error %v, want ErrBadBuildOption", err)
 	}
 	out := filepath.Join(t.TempDir(), "ok.hwx")
 	if _, err := Build(context.Background(), NewJSONLReader(strings.NewReader(corpus), "c.jsonl"), out,

@@ -2,9 +2,11 @@ package graphidx
 
 import "slices"
 
-// pruneFilter decides which compiled pairs are kept. It is shared by Build,
-// Compile and Partial so that every path prunes identically.
-type pruneFilter struct {
+// PruneFilter decides which compiled pairs are kept. It is shared by Build,
+// Compile and the compilers of graphidx/counts (Partial.Compile,
+// MergeCounts) so that every path prunes identically. Read-only once
+// planned: safe for concurrent Keep calls.
+type PruneFilter struct {
 	minSupport uint64
 	maxN       int
 	top        [][]uint32 // per entity: its top-n neighbour ids, ascending; nil without a limit
@@ -57,11 +59,32 @@ func offer(h *[]nbr, n int, c nbr) {
 	}
 }
 
+// CheckBuildOptions returns the ErrBadBuildOption of the first option of
+// opts outside its domain (nil when all are in range), for a compiler
+// outside this package that takes build options (graphidx/counts) and
+// should refuse them before reading its input. O(len(opts)).
+func CheckBuildOptions(opts []BuildOption) error {
+	return newBuildConfig(opts).err
+}
+
+// PlanPrune is planPrune with the WithMinSupport and WithMaxNeighbors of
+// opts (the other options are ignored): the pruning plan for a compiler
+// outside this package that enumerates its own pairs. each must call fn for
+// every pair, by entity ids below nEnt, with its support; it is called once,
+// or twice with a neighbour limit, and must give the same pairs both times.
+func PlanPrune(nEnt int, opts []BuildOption, each func(fn func(a, b uint32, sup uint64) error) error) (*PruneFilter, PruneStats, error) {
+	cfg := newBuildConfig(opts)
+	if cfg.err != nil {
+		return nil, PruneStats{}, cfg.err
+	}
+	return planPrune(nEnt, cfg.minSupport, cfg.maxNeighbors, each)
+}
+
 // planPrune scans the pairs once (twice with a neighbour limit) and returns
 // the filter and its statistics. each must call fn for every pair with its
 // support. Memory O(entities·maxN); time O(P·log maxN).
-func planPrune(nEnt int, minSupport uint64, maxN int, each func(fn func(a, b uint32, sup uint64) error) error) (*pruneFilter, PruneStats, error) {
-	f := &pruneFilter{minSupport: max(minSupport, 1), maxN: maxN}
+func planPrune(nEnt int, minSupport uint64, maxN int, each func(fn func(a, b uint32, sup uint64) error) error) (*PruneFilter, PruneStats, error) {
+	f := &PruneFilter{minSupport: max(minSupport, 1), maxN: maxN}
 	st := PruneStats{MinSupport: f.minSupport, MaxNeighbors: maxN}
 	var heaps [][]nbr
 	if maxN > 0 {
@@ -97,7 +120,7 @@ func planPrune(nEnt int, minSupport uint64, maxN int, each func(fn func(a, b uin
 		heaps[i] = nil
 	}
 	err = each(func(a, b uint32, sup uint64) error {
-		if f.keep(a, b, sup) {
+		if f.Keep(a, b, sup) {
 			st.After++
 		} else if sup >= f.minSupport {
 			st.ByMaxNeighbors++
@@ -107,8 +130,9 @@ func planPrune(nEnt int, minSupport uint64, maxN int, each func(fn func(a, b uin
 	return f, st, err
 }
 
-// keep reports whether the pair (a, b) with the given support survives.
-func (f *pruneFilter) keep(a, b uint32, sup uint64) bool {
+// Keep reports whether the pair (a, b) with the given support survives.
+// O(log maxNeighbors).
+func (f *PruneFilter) Keep(a, b uint32, sup uint64) bool {
 	if sup < f.minSupport {
 		return false
 	}

@@ -111,61 +111,6 @@ func genCorpus(seed uint64, n, ents, size, k int) []Context {
 	return out
 }
 
-func partialOf(t testing.TB, cs []Context) *Partial {
-	p := NewPartial()
-	for _, c := range cs {
-		if err := p.Add(c); err != nil {
-			t.Fatal(err)
-		}
-	}
-	return p
-}
-
-// TestCompileMatchesPartials checks the fast builder against the reference
-// name-keyed Partial, merged from shards in two different groupings
-// (associativity), with and without pruning.
-func TestCompileMatchesPartials(t *testing.T) {
-	t.Parallel()
-	n := 3000
-	if testing.Short() {
-		n = 800
-	}
-	cs := genCorpus(1, n, 300, 5, 3)
-	for _, opts := range [][]BuildOption{nil, {WithMinSupport(3)}, {WithMaxNeighbors(4)}, {WithMinSupport(2), WithMaxNeighbors(3)}} {
-		c, sum, err := Compile(context.Background(), &sliceReader{cs: cs}, append(opts, WithWorkers(3))...)
-		if err != nil {
-			t.Fatal(err)
-		}
-		got := dumpSrc(t, c)
-		c.Close()
-
-		// ((s0+s1)+s2) and (s0+(s1+s2)) over uneven shards.
-		s := []*Partial{partialOf(t, cs[:n/4]), partialOf(t, cs[n/4:2*n/3]), partialOf(t, cs[2*n/3:])}
-		left := NewPartial()
-		left.Merge(s[0])
-		left.Merge(s[1])
-		left.Merge(s[2])
-		right := NewPartial()
-		right.Merge(s[1])
-		right.Merge(s[2])
-		s0 := NewPartial()
-		s0.Merge(s[0])
-		s0.Merge(right)
-		for _, p := range []*Partial{left, s0} {
-			src, st, err := p.Compile(opts...)
-			if err != nil {
-				t.Fatal(err)
-			}
-			if want := dumpSrc(t, src); got != want {
-				t.Fatalf("opts %d: Compile and Partial differ", len(opts))
-			}
-			if st != sum.Pairs {
-				t.Errorf("prune stats %+v vs %+v", st, sum.Pairs)
-			}
-		}
-	}
-}
-
 // TestSpillEqualsInMemory forces spilling with the smallest budget and a
 // fan-in of 2 (many intermediate merges) and compares with an in-memory
 // build, as Sources and as index files.
@@ -341,8 +286,9 @@ func TestBuildCancelMidway(t *testing.T) {
 	}
 }
 
-// TestCountOverflow: cell sums are carried in uint64 through the merge and
-// rejected above MaxUint32 when compiled.
+// TestCountOverflow: cell sums are carried in uint64 through the merge
+// (counts.TestPartialCountOverflow checks the rejection above MaxUint32 when
+// a Partial is compiled).
 func TestCountOverflow(t *testing.T) {
 	t.Parallel()
 	k := cellKey(0, 1, 0, 0)
@@ -354,16 +300,6 @@ func TestCountOverflow(t *testing.T) {
 	m.each(func(key, n uint64) error { got = n; return nil })
 	if got != math.MaxUint32+2 {
 		t.Errorf("merged sum %d", got)
-	}
-	p := NewPartial()
-	for _, c := range []CountCell{{A: "a", U: "1", N: 1 << 33}, {A: "b", U: "1", N: 1 << 33}, {A: "a", U: "1", B: "b", V: "1", N: 1 << 32}} {
-		if err := p.AddCell(c); err != nil {
-			t.Fatal(err)
-		}
-	}
-	p.AddContexts(1 << 33)
-	if _, _, err := p.Compile(); !errors.Is(err, ErrCountOverflow) {
-		t.Errorf("compile: %v", err)
 	}
 }
 

@@ -12,6 +12,8 @@ import (
 	"slices"
 	"strings"
 	"unicode/utf8"
+
+	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
 // Observation is one entity observed with one value inside a context.
@@ -435,94 +437,123 @@ func (in *interner) get(b []byte) string {
 	return s
 }
 
-// lineReader reads lines of bounded length and counts lines and bytes.
+// lineReader is the bounded line reader of the corpus readers and the
+// lexicon (fileio.LineReader) under the names they use.
 type lineReader struct {
-	br      *bufio.Reader
-	buf     []byte
-	max     int
+	fileio.LineReader
 	line    int // number of the line last returned (1-based)
 	bytes   int64
 	tooLong bool // the line last returned was truncated
+	max     int  // the longest line accepted
 }
 
 func newLineReader(r io.Reader, max int) *lineReader {
-	return &lineReader{br: bufio.NewReaderSize(r, 64<<10), max: max}
+	return &lineReader{LineReader: *fileio.NewLineReader(r, max), max: max}
 }
 
-// next returns the next line without its line terminator ("\n" or "\r\n").
-// A line longer than max is consumed to its end and returned empty with
-// tooLong set. It returns io.EOF when the input is exhausted.
+// next is LineReader.Next, mirroring its counters into the fields.
 func (l *lineReader) next() ([]byte, error) {
-	l.buf = l.buf[:0]
-	l.tooLong = false
-	started := false
-	for {
-		chunk, err := l.br.ReadSlice('\n')
-		l.bytes += int64(len(chunk))
-		if len(chunk) > 0 {
-			started = true
-		}
-		if !l.tooLong {
-			if len(l.buf)+len(chunk) > l.max+2 { // +2 for the terminator
-				l.tooLong = true
-				l.buf = l.buf[:0]
-			} else {
-				l.buf = append(l.buf, chunk...)
-			}
-		}
-		switch {
-		case err == nil:
-			l.line++
-			return l.trim(), nil
-		case errors.Is(err, bufio.ErrBufferFull):
-			continue
-		case errors.Is(err, io.EOF):
-			if !started {
-				return nil, io.EOF
-			}
-			l.line++
-			return l.trim(), nil
-		default:
-			return nil, err
-		}
-	}
+	b, err := l.Next()
+	l.line, l.bytes, l.tooLong = l.Line, l.Bytes, l.TooLong
+	return b, err
 }
 
-func (l *lineReader) trim() []byte {
-	b := l.buf
-	if len(b) > 0 && b[len(b)-1] == '\n' {
-		b = b[:len(b)-1]
-	}
-	if len(b) > 0 && b[len(b)-1] == '\r' {
-		b = b[:len(b)-1]
-	}
-	if !l.tooLong && len(b) > l.max {
-		l.tooLong = true
-		b = b[:0]
-	}
-	return b
-}
-
-// Corpus formats accepted by OpenCorpus.
+// Corpus formats accepted by OpenCorpus (the names of the Formats table).
 const (
 	FormatJSONL = "jsonl"
 	FormatCSV   = "csv"
 	FormatText  = "text"
 )
 
-// DetectFormat guesses the corpus format from a file name: .jsonl, .ndjson
-// and .json are JSONL, .csv is CSV, .txt, .text and .md are text. A trailing
-// .gz is ignored. It returns "" when the extension is unknown.
+// CorpusFormat is one entry of the corpus format table (Formats): adding a
+// format means adding one entry, which DetectFormat, OpenCorpus and the
+// --format help and validation of `hopwise build` all read.
+type CorpusFormat struct {
+	// Name is the --format value, lower case.
+	Name string
+	// Extensions are the lower-case file extensions, with the dot, that
+	// DetectFormat maps to the format (a trailing .gz is ignored).
+	Extensions []string
+	// Help describes the format for people, one or more lines without
+	// the extensions (the build help appends them).
+	Help string
+	// NeedsLexicon: the reader finds entities with a Lexicon (WithLexicon
+	// or OpenCorpus's lexicon path), which is then required.
+	NeedsLexicon bool
+	// GroupsInMemory: the reader holds data of its own within WithMemBudget
+	// (CSV groups the rows of a context), so a caller sharing one budget
+	// between the reader and the builder splits it.
+	GroupsInMemory bool
+	// Open returns a reader of the format over in, whose errors name the
+	// file name; lex is nil unless NeedsLexicon. A reader that also
+	// implements io.Closer holds resources (temporary files) and is closed
+	// by OpenCorpus's closer.
+	Open func(in io.Reader, name string, lex *Lexicon, opts ...ReadOption) ContextReader
+}
+
+// formats is the corpus format table, in the order of the help.
+var formats = []CorpusFormat{
+	{Name: FormatJSONL, Extensions: []string{".jsonl", ".ndjson", ".json"},
+		Help: `one context per line: {"id":"c1","obs":{"vent3":"open","zone2":"dry"}}
+or, presence only, {"id":"c2","ents":["pump1","bed4"]}`,
+		Open: func(in io.Reader, name string, _ *Lexicon, opts ...ReadOption) ContextReader {
+			return NewJSONLReader(in, name, opts...)
+		}},
+	{Name: FormatCSV, Extensions: []string{".csv"}, GroupsInMemory: true,
+		Help: `a long table with the header context,entity,value (or context,entity);
+rows of one context may be anywhere in the file`,
+		Open: func(in io.Reader, name string, _ *Lexicon, opts ...ReadOption) ContextReader {
+			return NewCSVReader(in, name, opts...)
+		}},
+	{Name: FormatText, Extensions: []string{".txt", ".text", ".md"}, NeedsLexicon: true,
+		Help: `plain text, one context per blank-line-separated paragraph, entities
+found by a lexicon TSV (--lexicon, "surface form<TAB>entity id", or
+"surface form<TAB>entity id<TAB>value" for a form stating a value),
+case-insensitively on word boundaries, leftmost-longest`,
+		Open: func(in io.Reader, name string, lex *Lexicon, opts ...ReadOption) ContextReader {
+			return NewTextReader(in, name, lex, opts...)
+		}},
+}
+
+// Formats returns the corpus format table, in help order. The slice is a
+// copy; the entries' Extensions must not be modified. O(formats).
+func Formats() []CorpusFormat { return slices.Clone(formats) }
+
+// LookupFormat returns the table entry named name (lower case), and false
+// when there is none. O(formats).
+func LookupFormat(name string) (CorpusFormat, bool) {
+	for _, f := range formats {
+		if f.Name == name {
+			return f, true
+		}
+	}
+	return CorpusFormat{}, false
+}
+
+// FormatNames lists the format names for messages: "jsonl, csv or text".
+func FormatNames() string {
+	names := make([]string, len(formats))
+	for i, f := range formats {
+		names[i] = f.Name
+	}
+	if len(names) < 2 {
+		return strings.Join(names, "")
+	}
+	return strings.Join(names[:len(names)-1], ", ") + " or " + names[len(names)-1]
+}
+
+// DetectFormat guesses the corpus format from a file name by the
+// extensions of the format table (Formats): .jsonl, .ndjson and .json are
+// JSONL, .csv is CSV, .txt, .text and .md are text. A trailing .gz is
+// ignored. It returns "" when the extension is unknown. O(extensions).
 func DetectFormat(path string) string {
 	p := strings.ToLower(path)
 	p = strings.TrimSuffix(p, ".gz")
-	switch filepath.Ext(p) {
-	case ".jsonl", ".ndjson", ".json":
-		return FormatJSONL
-	case ".csv":
-		return FormatCSV
-	case ".txt", ".text", ".md":
-		return FormatText
+	ext := filepath.Ext(p)
+	for _, f := range formats {
+		if slices.Contains(f.Extensions, ext) {
+			return f.Name
+		}
 	}
 	return ""
 }
@@ -537,27 +568,28 @@ var ErrLexiconRequired = errors.New("graphidx: a text corpus needs a lexicon: pa
 
 // OpenCorpus opens a corpus file and returns a reader for it and the closer
 // that releases the file and any temporary files of the reader. format is
-// one of FormatJSONL, FormatCSV, FormatText, or "" to detect it from the
-// extension (see DetectFormat). lexicon is the path of the lexicon TSV
-// (see ParseLexicon) and is required for text unless WithLexicon is given,
+// the name of an entry of the format table (Formats: FormatJSONL, FormatCSV,
+// FormatText), or "" to detect it from the extension (see DetectFormat).
+// lexicon is the path of the lexicon TSV (see ParseLexicon) and is required
+// for a format that NeedsLexicon (text) unless WithLexicon is given,
 // ignored otherwise. Files ending in .gz are
 // decompressed on the fly. The reader also implements StatsReader.
 func OpenCorpus(path, format, lexicon string, opts ...ReadOption) (ContextReader, io.Closer, error) {
 	if format == "" {
 		format = DetectFormat(path)
 	}
-	switch format {
-	case FormatJSONL, FormatCSV, FormatText:
-	case "":
+	if format == "" {
 		return nil, nil, fmt.Errorf("%w: cannot tell the format of %s from its extension; pass it explicitly", ErrUnknownFormat, path)
-	default:
-		return nil, nil, fmt.Errorf("%w: %q (want jsonl, csv or text)", ErrUnknownFormat, format)
+	}
+	cf, ok := LookupFormat(format)
+	if !ok {
+		return nil, nil, fmt.Errorf("%w: %q (want %s)", ErrUnknownFormat, format, FormatNames())
 	}
 	var lex *Lexicon
-	if format == FormatText {
+	if cf.NeedsLexicon {
 		lex = newReadConfig(opts).lexicon
 	}
-	if format == FormatText && lex == nil {
+	if cf.NeedsLexicon && lex == nil {
 		if lexicon == "" {
 			return nil, nil, fmt.Errorf("%w: %s", ErrLexiconRequired, path)
 		}
@@ -581,17 +613,11 @@ func OpenCorpus(path, format, lexicon string, opts ...ReadOption) (ContextReader
 		cl = &multiCloser{gz, f}
 		in = gz
 	}
-	name := path
-	switch format {
-	case FormatJSONL:
-		return NewJSONLReader(in, name, opts...), cl, nil
-	case FormatCSV:
-		r := NewCSVReader(in, name, opts...)
-		*cl = append(multiCloser{r}, *cl...)
-		return r, cl, nil
-	default:
-		return NewTextReader(in, name, lex, opts...), cl, nil
+	r := cf.Open(in, path, lex, opts...)
+	if c, ok := r.(io.Closer); ok {
+		*cl = append(multiCloser{c}, *cl...)
 	}
+	return r, cl, nil
 }
 
 type multiCloser []io.Closer

@@ -12,6 +12,8 @@ import (
 	"slices"
 	"strconv"
 	"strings"
+
+	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
 // CSVReader reads a long CSV table with one observation per row:
@@ -437,7 +439,7 @@ func (r *CSVReader) spill() error {
 		return nil
 	}
 	if r.tmpDir == "" {
-		d, err := makeSpillDir(r.cfg.tempDir, csvDirPrefix)
+		d, err := fileio.MakeSpillDir(r.cfg.tempDir, csvDirPrefix)
 		if err != nil {
 			return err
 		}

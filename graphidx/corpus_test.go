@@ -321,3 +321,56 @@ func TestOpenCorpus(t *testing.T) {
 		t.Errorf("no lexicon: %v", err)
 	}
 }
+
+// TestFormatTable: the format table is the one source of the format names
+// and extensions: every extension is detected as its format (also upper
+// case and gzipped), no name or extension is listed twice, every entry
+// opens a reader, and OpenCorpus refuses a name outside the table with the
+// table's names in the message.
+func TestFormatTable(t *testing.T) {
+	t.Parallel()
+	seen := map[string]string{}
+	for _, f := range Formats() {
+		if f.Name == "" || f.Name != strings.ToLower(f.Name) || f.Open == nil || f.Help == "" || len(f.Extensions) == 0 {
+			t.Errorf("format %+v: incomplete entry", f)
+		}
+		if g, ok := LookupFormat(f.Name); !ok || g.Name != f.Name {
+			t.Errorf("LookupFormat(%q) = %v, %v", f.Name, g.Name, ok)
+		}
+		for _, ext := range append([]string{f.Name}, f.Extensions...) {
+			if prev, dup := seen[ext]; dup {
+				t.Errorf("%s listed by %s and %s", ext, prev, f.Name)
+			}
+			seen[ext] = f.Name
+		}
+		for _, ext := range f.Extensions {
+			for _, p := range []string{"dir/a" + ext, "A" + strings.ToUpper(ext), "a" + ext + ".gz"} {
+				if got := DetectFormat(p); got != f.Name {
+					t.Errorf("DetectFormat(%q) = %q, want %q", p, got, f.Name)
+				}
+			}
+		}
+		var lex *Lexicon
+		if f.NeedsLexicon {
+			var err error
+			if lex, err = ParseLexicon(strings.NewReader("vent three\tvent3\n"), "lex.tsv"); err != nil {
+				t.Fatal(err)
+			}
+		}
+		if r := f.Open(strings.NewReader(""), "empty", lex); r == nil {
+			t.Errorf("%s: Open returned nil", f.Name)
+		} else if c, ok := r.(io.Closer); ok {
+			c.Close()
+		}
+	}
+	if got := FormatNames(); got != "jsonl, csv or text" {
+		t.Errorf("FormatNames() = %q", got)
+	}
+	if _, ok := LookupFormat("parquet"); ok {
+		t.Error("LookupFormat found a format outside the table")
+	}
+	_, _, err := OpenCorpus(filepath.Join(t.TempDir(), "a.jsonl"), "parquet", "")
+	if !errors.Is(err, ErrUnknownFormat) || !strings.Contains(err.Error(), `"parquet" (want jsonl, csv or text)`) {
+		t.Errorf("OpenCorpus with an unknown format: %v", err)
+	}
+}

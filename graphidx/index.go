@@ -5,7 +5,6 @@ import (
 	"encoding/binary"
 	"fmt"
 	"hash/crc32"
-	"io"
 	"math"
 	"os"
 	"slices"
@@ -13,6 +12,8 @@ import (
 	"sync"
 	"sync/atomic"
 	"unsafe"
+
+	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
 // OpenOption configures Open.
@@ -135,10 +136,10 @@ func Open(path string, opts ...OpenOption) (*Index, error) {
 		release = func() error { return nil }
 	)
 	switch {
-	case size < headerSize || cfg.noMmap || !mmapSupported:
-		data, err = readAligned(f, int(size))
+	case size < headerSize || cfg.noMmap || !fileio.MmapSupported:
+		data, err = fileio.ReadAligned(f, int(size))
 	default:
-		data, release, err = mapFile(f, int(size))
+		data, release, err = fileio.MapFile(f, int(size))
 	}
 	if err != nil {
 		return nil, err
@@ -152,24 +153,11 @@ func Open(path string, opts ...OpenOption) (*Index, error) {
 		return nil, err
 	}
 	x := &Index{path: path, size: size, fi: st, release: release}
-	if size >= headerSize && !cfg.noMmap && mmapSupported {
+	if size >= headerSize && !cfg.noMmap && fileio.MmapSupported {
 		x.mapped = data
 	}
 	x.v.Store(v)
 	return x, nil
-}
-
-// readAligned reads size bytes of f into 8-aligned memory.
-func readAligned(f *os.File, size int) ([]byte, error) {
-	words := make([]uint64, (size+7)/8)
-	var b []byte
-	if len(words) > 0 {
-		b = unsafe.Slice((*byte)(unsafe.Pointer(&words[0])), len(words)*8)[:size]
-	}
-	if _, err := io.ReadFull(io.NewSectionReader(f, 0, int64(size)), b); err != nil {
-		return nil, fmt.Errorf("graphidx: read %s: %w", f.Name(), err)
-	}
-	return b, nil
 }
 
 // Close releases the memory map. It is safe to call more than once; see the

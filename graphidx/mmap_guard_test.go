@@ -6,6 +6,8 @@ import (
 	"strings"
 	"testing"
 	"time"
+
+	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
 // TestGuardTruncatedMap: reads of an index whose file was truncated under
@@ -13,7 +15,7 @@ import (
 // Guard the process dies of SIGBUS); other panics pass through.
 func TestGuardTruncatedMap(t *testing.T) {
 	t.Parallel()
-	if !mmapSupported {
+	if !fileio.MmapSupported {
 		t.Skip("no memory map on this platform")
 	}
 	path := ixWriteTemp(t, ixRandomSource(3000, 8, 3, 7))

@@ -8,6 +8,8 @@ import (
 	"runtime"
 	"strings"
 	"testing"
+
+	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
 // TestStaleSpillDirsRemoved: spill directories left by a dead process (a
@@ -39,7 +41,7 @@ func TestStaleSpillDirsRemoved(t *testing.T) {
 			mk(prefix + "987654"), // older name without a pid
 			mk(fmt.Sprintf("other-%d-1", dead)),
 		}
-		d, err := makeSpillDir(dir, prefix)
+		d, err := fileio.MakeSpillDir(dir, prefix)
 		if err != nil {
 			t.Fatal(err)
 		}

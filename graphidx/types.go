@@ -85,6 +85,10 @@ type PairRecord struct {
 	Counts []uint32
 }
 
+// Support is the number of contexts in which both entities occur: the sum
+// of the table, the quantity pruning ranks by. O(KA·KB).
+func (p PairRecord) Support() uint64 { return sumCounts(p.Counts) }
+
 // Source is the input of WriteFile: the compiled content of an index.
 type Source interface {
 	// Contexts is the number of contexts the counts were taken from.

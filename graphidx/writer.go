@@ -8,10 +8,10 @@ import (
 	"math"
 	"os"
 	"path/filepath"
-	"runtime"
 	"slices"
 	"strings"
-	"syscall"
+
+	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
 // WriteOption configures WriteFile.
@@ -166,28 +166,7 @@ func WriteFile(path string, src Source, opts ...WriteOption) (err error) {
 	if err = os.Rename(tmp, path); err != nil {
 		return fmt.Errorf("graphidx: rename to %s: %w", path, err)
 	}
-	return syncDir(dir)
-}
-
-// syncDir fsyncs a directory so a rename in it is durable. File systems
-// that do not support fsync on directories (EINVAL, unsupported) are
-// tolerated; Windows cannot flush directory handles and is skipped.
-func syncDir(dir string) error {
-	if runtime.GOOS == "windows" {
-		return nil
-	}
-	d, err := os.Open(dir)
-	if err != nil {
-		return fmt.Errorf("graphidx: open dir for sync: %w", err)
-	}
-	defer d.Close()
-	if err := d.Sync(); err != nil {
-		if errors.Is(err, syscall.EINVAL) || errors.Is(err, errors.ErrUnsupported) {
-			return nil
-		}
-		return fmt.Errorf("graphidx: sync dir: %w", err)
-	}
-	return nil
+	return fileio.SyncDir(dir)
 }
 
 // plan is the part of the file that takes O(entities) memory, computed by

@@ -16,6 +16,7 @@ import (
 	"github.com/apache/beam/sdks/v2/go/pkg/beam/io/textio"
 	"github.com/apache/beam/sdks/v2/go/pkg/beam/register"
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/counts"
 )
 
 // DefaultShards is the number of count shards written when Config.Shards is 0.
@@ -44,7 +45,7 @@ type Config struct {
 	// s3://, whatever filesystems the binary links). At least one.
 	Inputs []string
 	// Output is the directory (or object prefix) that receives the count
-	// shards, named by graphidx.CountShardName.
+	// shards, named by counts.CountShardName.
 	Output string
 	// Shards is the number of count shards (default DefaultShards). Each
 	// shard is sorted and written by one worker, so a shard must fit in a
@@ -71,8 +72,8 @@ func (c *Config) check() error {
 	if c.Shards == 0 {
 		c.Shards = DefaultShards
 	}
-	if c.Shards < 1 || c.Shards > graphidx.MaxCountShards {
-		return fmt.Errorf("beamjob: %d shards, want 1..%d", c.Shards, graphidx.MaxCountShards)
+	if c.Shards < 1 || c.Shards > counts.MaxCountShards {
+		return fmt.Errorf("beamjob: %d shards, want 1..%d", c.Shards, counts.MaxCountShards)
 	}
 	if c.FlushCells <= 0 {
 		c.FlushCells = DefaultFlushCells
@@ -84,12 +85,12 @@ func (c *Config) check() error {
 }
 
 // contextsKey is the cell key that carries the number of contexts. Count
-// cell keys start with 'M' or 'P' (graphidx.CountCell.AppendKey), so it
+// cell keys start with 'M' or 'P' (counts.CountCell.AppendKey), so it
 // cannot collide.
 const contextsKey = "C"
 
 // Cell is one keyed count on its way to a count shard: a cell key of
-// graphidx.CountCell.AppendKey (or contextsKey) and its summed count.
+// counts.CountCell.AppendKey (or contextsKey) and its summed count.
 // An empty Key is a marker that makes every shard exist, even an empty one.
 type Cell struct {
 	Key string
@@ -110,11 +111,11 @@ func init() {
 
 // Pipeline adds the counting job to s: read the corpus lines → parse each
 // line with graphidx.JSONLLineParser and count it into a per-bundle
-// graphidx.Partial → emit its cells keyed by graphidx.CountCell.AppendKey →
+// counts.Partial → emit its cells keyed by counts.CountCell.AppendKey →
 // CombinePerKey (sum) → route each cell to shard CountCell.Shard(Shards) →
 // GroupByKey on the shard → each shard is sorted and written by one worker
-// with graphidx.WriteCountShard. The count shards compile, with
-// graphidx.CompileCounts, to the same index as graphidx.Build on the corpus.
+// with counts.WriteCountShard. The count shards compile, with
+// counts.CompileCounts, to the same index as graphidx.Build on the corpus.
 //
 // Shuffle volume is O(distinct cells per bundle) thanks to the per-bundle
 // Partial and the lifted combine; the write stage holds one shard in memory.
@@ -170,7 +171,7 @@ type countFn struct {
 	FlushCells   int
 	MaxLineBytes int
 
-	p        *graphidx.Partial
+	p        *counts.Partial
 	parsers  map[string]*graphidx.JSONLLineParser
 	key      []byte
 	lines    beam.Counter
@@ -184,7 +185,7 @@ func (f *countFn) Setup() {
 }
 
 func (f *countFn) StartBundle(_ context.Context, _ func(string, int64)) {
-	f.p = graphidx.NewPartial()
+	f.p = counts.NewPartial()
 }
 
 func (f *countFn) ProcessElement(ctx context.Context, file, line string, emit func(string, int64)) error {
@@ -232,7 +233,7 @@ func (f *countFn) flush(emit func(string, int64)) {
 	if f.p == nil || f.p.Contexts() == 0 {
 		return
 	}
-	_ = f.p.Cells(func(c graphidx.CountCell) error {
+	_ = f.p.Cells(func(c counts.CountCell) error {
 		f.key = c.AppendKey(f.key[:0])
 		emit(string(f.key), int64(c.N))
 		return nil
@@ -258,7 +259,7 @@ func (f *routeFn) ProcessElement(key string, n int64, emit func(int, Cell)) erro
 		emit(0, Cell{Key: key, N: n})
 		return nil
 	}
-	c, err := graphidx.ParseCountKey([]byte(key), uint64(n))
+	c, err := counts.ParseCountKey([]byte(key), uint64(n))
 	if err != nil {
 		return err
 	}
@@ -286,7 +287,7 @@ func (f *writeFn) Setup() {
 }
 
 func (f *writeFn) ProcessElement(ctx context.Context, shard int, iter func(*Cell) bool) error {
-	p := graphidx.NewPartial()
+	p := counts.NewPartial()
 	var c Cell
 	for iter(&c) {
 		switch c.Key {
@@ -294,7 +295,7 @@ func (f *writeFn) ProcessElement(ctx context.Context, shard int, iter func(*Cell
 		case contextsKey:
 			p.AddContexts(uint64(c.N))
 		default:
-			cell, err := graphidx.ParseCountKey([]byte(c.Key), uint64(c.N))
+			cell, err := counts.ParseCountKey([]byte(c.Key), uint64(c.N))
 			if err == nil {
 				err = p.AddCell(cell)
 			}
@@ -303,10 +304,10 @@ func (f *writeFn) ProcessElement(ctx context.Context, shard int, iter func(*Cell
 			}
 		}
 	}
-	final := JoinPath(f.Output, graphidx.CountShardName(shard, f.Shards))
+	final := JoinPath(f.Output, counts.CountShardName(shard, f.Shards))
 	var rnd [6]byte
 	_, _ = rand.Read(rnd[:])
-	tmp := JoinPath(f.Output, "."+graphidx.CountShardName(shard, f.Shards)+".tmp-"+hex.EncodeToString(rnd[:]))
+	tmp := JoinPath(f.Output, "."+counts.CountShardName(shard, f.Shards)+".tmp-"+hex.EncodeToString(rnd[:]))
 	fs, err := filesystem.New(ctx, final)
 	if err != nil {
 		return err
@@ -317,7 +318,7 @@ func (f *writeFn) ProcessElement(ctx context.Context, shard int, iter func(*Cell
 		return fmt.Errorf("beamjob: create %s: %w", tmp, err)
 	}
 	bw := bufio.NewWriterSize(w, 1<<20)
-	n, err := graphidx.WriteCountShard(bw, p, shard, f.Shards)
+	n, err := counts.WriteCountShard(bw, p, shard, f.Shards)
 	if err == nil {
 		err = bw.Flush()
 	}

@@ -16,6 +16,7 @@ import (
 	"github.com/apache/beam/sdks/v2/go/pkg/beam"
 	"github.com/apache/beam/sdks/v2/go/pkg/beam/testing/ptest"
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/counts"
 )
 
 // TestMain runs every pipeline of this package on prism, Beam's local
@@ -98,7 +99,7 @@ func directIndex(t testing.TB, corpus []byte, opts ...graphidx.BuildOption) ([]b
 
 func countsIndex(t testing.TB, dirs []string, opts ...graphidx.BuildOption) []byte {
 	t.Helper()
-	src, _, err := graphidx.MergeCounts(context.Background(), dirs, opts...)
+	src, _, err := counts.MergeCounts(context.Background(), dirs, opts...)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -142,7 +143,7 @@ func shardSizes(t testing.TB, dir string) (files int, total, smallest, largest i
 }
 
 // TestPipelineByteIdentical: the prism pipeline's count shards, compiled
-// with graphidx.CompileCounts, give the same index file byte for byte as
+// with counts.CompileCounts, give the same index file byte for byte as
 // graphidx.Build on the corpus, with and without pruning. The corpus has
 // 50,000 contexts (5,000 with -short, 500,000 with HOPWISE_STRESS=1).
 func TestPipelineByteIdentical(t *testing.T) {
@@ -233,7 +234,7 @@ func TestConfigCheck(t *testing.T) {
 		{Output: "o"},
 		{Inputs: []string{"x"}},
 		{Inputs: []string{"x"}, Output: "o", Shards: -1},
-		{Inputs: []string{"x"}, Output: "o", Shards: graphidx.MaxCountShards + 1},
+		{Inputs: []string{"x"}, Output: "o", Shards: counts.MaxCountShards + 1},
 	} {
 		if err := c.check(); err == nil {
 			t.Fatalf("config %+v accepted", c)

@@ -29,26 +29,45 @@ type buildOpts struct {
 	lex                                                   *graphidx.Lexicon // loaded --lexicon of a text corpus
 }
 
+// corpusFormatsHelp is the "Corpus formats" section of build's help, from
+// the format table (graphidx.Formats): each format's name, its help lines
+// and, after the last line, its extensions.
+func corpusFormatsHelp() string {
+	fs := graphidx.Formats()
+	lines := make([][]string, len(fs))
+	width := 0
+	for i, f := range fs {
+		lines[i] = strings.Split(f.Help, "\n")
+		width = max(width, len(lines[i][len(lines[i])-1]))
+	}
+	var b strings.Builder
+	b.WriteString("Corpus formats (--format, or detected from the extension; .gz is decompressed):\n")
+	for i, f := range fs {
+		for j, l := range lines[i] {
+			name := ""
+			if j == 0 {
+				name = f.Name
+			}
+			if j == len(lines[i])-1 {
+				l = fmt.Sprintf("%-*s   (%s)", width, l, strings.Join(f.Extensions, " "))
+			}
+			fmt.Fprintf(&b, "  %-6s %s\n", name, l)
+		}
+	}
+	return b.String()
+}
+
 func newBuildCmd() *cobra.Command {
 	var o buildOpts
 	cmd := &cobra.Command{
 		Use:   "build (--corpus PATH | --from-counts DIR) --out PATH [flags]",
 		Short: "Build a locality index from a corpus of contexts",
-		Long: `build reads a corpus of contexts, counts which entities are observed together
+		Long: strings.Replace(`build reads a corpus of contexts, counts which entities are observed together
 and with which values, and writes the locality index to --out (through a
 temporary file that is synced and renamed, so an existing index survives a
 failed build).
 
-Corpus formats (--format, or detected from the extension; .gz is decompressed):
-  jsonl  one context per line: {"id":"c1","obs":{"vent3":"open","zone2":"dry"}}
-         or, presence only, {"id":"c2","ents":["pump1","bed4"]}   (.jsonl .ndjson .json)
-  csv    a long table with the header context,entity,value (or context,entity);
-         rows of one context may be anywhere in the file              (.csv)
-  text   plain text, one context per blank-line-separated paragraph, entities
-         found by a lexicon TSV (--lexicon, "surface form<TAB>entity id", or
-         "surface form<TAB>entity id<TAB>value" for a form stating a value),
-         case-insensitively on word boundaries, leftmost-longest       (.txt .text .md)
-
+{{formats}}
 Bad lines. By default a bad line is skipped and counted by reason (bad-json,
 missing-id, duplicate-entity, too-many-columns, ...); the counts and the first
 example of each are printed at the end. --strict stops at the first bad line
@@ -93,7 +112,7 @@ Ctrl-C (SIGINT) or SIGTERM stops the build in any phase, removes its
 temporary files and leaves --out untouched.
 Exit status: 0 on success, 2 for bad input (a bad line with --strict, a bad
 CSV header or lexicon, too many values, no or too few valid records), 1 for
-other errors.`,
+other errors.`, "{{formats}}", corpusFormatsHelp(), 1),
 		Example: `  hopwise build --corpus greenhouse.jsonl --out greenhouse.idx
   hopwise build --corpus notes.txt --lexicon lexicon.tsv --out notes.idx --min-support 2
   hopwise build --corpus big.csv --out big.idx --mem-budget 256MiB --workers 2 --strict`,
@@ -104,7 +123,7 @@ other errors.`,
 	}
 	f := cmd.Flags()
 	f.StringVar(&o.corpus, "corpus", "", "corpus file (required unless --from-counts)")
-	f.StringVar(&o.format, "format", "", "corpus format: jsonl, csv or text (default: from the extension)")
+	f.StringVar(&o.format, "format", "", "corpus format: "+graphidx.FormatNames()+" (default: from the extension)")
 	f.StringVar(&o.lexicon, "lexicon", "", "lexicon TSV for text corpora: surface form<TAB>entity id[<TAB>value]")
 	f.StringVar(&o.out, "out", "", "index file to write (required)")
 	f.Uint64Var(&o.minSupport, "min-support", 1, "drop pairs observed together in fewer than N contexts")
@@ -156,8 +175,9 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	if format == "" {
 		format = graphidx.DetectFormat(o.corpus)
 	}
+	cf, known := graphidx.LookupFormat(format) // unknown: OpenCorpus names the error
 	readBudget, buildBudget := budget, budget
-	if format == graphidx.FormatCSV {
+	if cf.GroupsInMemory {
 		readBudget, buildBudget = budget/2, budget/2
 	}
 	policy := graphidx.Lenient
@@ -169,7 +189,7 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	// while the lexicon loads).
 	old := debug.SetMemoryLimit(budget)
 	defer debug.SetMemoryLimit(old)
-	if format == graphidx.FormatText && o.lexicon != "" {
+	if known && cf.NeedsLexicon && o.lexicon != "" {
 		if o.lex, err = loadBuildLexicon(o.lexicon, budget); err != nil {
 			return err
 		}

@@ -7,6 +7,7 @@ import (
 	"io"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/counts"
 	"github.com/spf13/cobra"
 )
 
@@ -34,7 +35,7 @@ func addBuildCountsFlags(cmd *cobra.Command, o *buildCountsOpts) {
 // runBuildFromCounts compiles the count shards in dir with the pruning
 // options and writes the index to out.
 func runBuildFromCounts(cmd *cobra.Command, dir, out string, minSupport uint64, maxNeighbors int, wopts ...graphidx.WriteOption) error {
-	src, sum, err := graphidx.CompileCounts(cmd.Context(), dir,
+	src, sum, err := counts.CompileCounts(cmd.Context(), dir,
 		graphidx.WithMinSupport(minSupport), graphidx.WithMaxNeighbors(maxNeighbors))
 	if err != nil {
 		return classifyCountsErr(err)
@@ -48,7 +49,7 @@ func runBuildFromCounts(cmd *cobra.Command, dir, out string, minSupport uint64, 
 	return nil
 }
 
-// partialCellBytes is the heap a graphidx.Partial spends on one distinct
+// partialCellBytes is the heap a counts.Partial spends on one distinct
 // count cell: a map entry keyed by four strings plus the strings it keeps
 // alive (measured: 3.7 GB peak RSS for the 8.69M-pair benchmark corpus).
 const partialCellBytes = 160
@@ -100,11 +101,11 @@ func countsPasses(indexPath string, pairsBefore, pairsAfter uint64, budget int64
 // graphidx.Partials and writes them as shards to dir, which must be new or
 // empty: in passes passes over the corpus, each counting the pair cells of
 // one group of shards (shard mod passes), so a pass holds about 1/passes of
-// the cells (graphidx.Partial.AddShards, WriteCountShards; the files are the
+// the cells (counts.Partial.AddShards, WriteCountShards; the files are the
 // same as from one pass). progress, when not nil, is told each pass.
 func writeCorpusCounts(ctx context.Context, open func() (graphidx.ContextReader, io.Closer, error), dir string, shards, passes int, progress func(pass int)) (int64, error) {
-	if shards < 1 || shards > graphidx.MaxCountShards {
-		return 0, &ExitError{Code: 2, Err: fmt.Errorf("--shards must be in 1..%d, got %d", graphidx.MaxCountShards, shards)}
+	if shards < 1 || shards > counts.MaxCountShards {
+		return 0, &ExitError{Code: 2, Err: fmt.Errorf("--shards must be in 1..%d, got %d", counts.MaxCountShards, shards)}
 	}
 	if err := checkEmptyDir(dir); err != nil {
 		return 0, &ExitError{Code: 2, Err: err}
@@ -142,7 +143,7 @@ func countPass(ctx context.Context, open func() (graphidx.ContextReader, io.Clos
 		return 0, classifyBuildErr(err)
 	}
 	defer closer.Close()
-	p := graphidx.NewPartial()
+	p := counts.NewPartial()
 	for n := 0; ; n++ {
 		if n%4096 == 0 {
 			if err := ctx.Err(); err != nil {
@@ -160,5 +161,5 @@ func countPass(ctx context.Context, open func() (graphidx.ContextReader, io.Clos
 			return 0, classifyBuildErr(err)
 		}
 	}
-	return graphidx.WriteCountShards(dir, p, shards, mine)
+	return counts.WriteCountShards(dir, p, shards, mine)
 }

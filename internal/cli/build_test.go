@@ -14,6 +14,7 @@ import (
 	"time"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/counts"
 )
 
 // A hand-checked greenhouse corpus with one bad line of each of two kinds.
@@ -148,7 +149,7 @@ func TestCountsOutInPasses(t *testing.T) {
 		t.Errorf("%d passes reported, want 3", passes)
 	}
 	for s := range 8 {
-		name := graphidx.CountShardName(s, 8)
+		name := counts.CountShardName(s, 8)
 		x, err1 := os.ReadFile(filepath.Join(one, name))
 		y, err2 := os.ReadFile(filepath.Join(three, name))
 		if err1 != nil || err2 != nil || !bytes.Equal(x, y) {
@@ -162,7 +163,7 @@ func TestCountsOutInPasses(t *testing.T) {
 	if got, err := runCLI(t, "build", "--corpus", corpus, "--out", idx, "--quiet"); err != nil {
 		t.Fatalf("%v\n%s", err, got)
 	}
-	p := graphidx.NewPartial()
+	p := counts.NewPartial()
 	r, c, err := open()
 	if err != nil {
 		t.Fatal(err)
@@ -225,6 +226,22 @@ func TestProgressLine(t *testing.T) {
 	} {
 		if got := progressLine(c.ev, c.total); got != c.want {
 			t.Errorf("progressLine(%+v, %d) =\n%q, want\n%q", c.ev, c.total, got, c.want)
+		}
+	}
+}
+
+// TestBuildHelpListsFormats: build's help and --format flag are generated
+// from the format table, so every format and extension appears in them.
+func TestBuildHelpListsFormats(t *testing.T) {
+	t.Parallel()
+	cmd := newBuildCmd()
+	usage := cmd.Flags().Lookup("format").Usage
+	for _, f := range graphidx.Formats() {
+		if !strings.Contains(cmd.Long, "\n  "+f.Name+" ") || !strings.Contains(usage, f.Name) {
+			t.Errorf("format %s missing from the help or the --format flag", f.Name)
+		}
+		if !strings.Contains(cmd.Long, "("+strings.Join(f.Extensions, " ")+")") {
+			t.Errorf("extensions of %s missing from the help", f.Name)
 		}
 	}
 }

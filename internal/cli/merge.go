@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/counts"
 	"github.com/spf13/cobra"
 )
 
@@ -79,8 +80,8 @@ func runMerge(cmd *cobra.Command, o mergeOpts, inputs []string) error {
 		return &ExitError{Code: 2, Err: fmt.Errorf("--max-neighbors must not be negative, got %d (0 means no limit)", o.maxNeighbors)}
 	}
 	if o.countsOut != "" {
-		if o.shards < 1 || o.shards > graphidx.MaxCountShards {
-			return &ExitError{Code: 2, Err: fmt.Errorf("--shards must be in 1..%d, got %d", graphidx.MaxCountShards, o.shards)}
+		if o.shards < 1 || o.shards > counts.MaxCountShards {
+			return &ExitError{Code: 2, Err: fmt.Errorf("--shards must be in 1..%d, got %d", counts.MaxCountShards, o.shards)}
 		}
 		if err := checkEmptyDir(o.countsOut); err != nil {
 			return &ExitError{Code: 2, Err: err}
@@ -91,14 +92,14 @@ func runMerge(cmd *cobra.Command, o mergeOpts, inputs []string) error {
 			return err
 		}
 	}
-	if err := graphidx.CheckDistinctCountSets(inputs); err != nil {
+	if err := counts.CheckDistinctCountSets(inputs); err != nil {
 		return classifyCountsErr(err)
 	}
 	start := time.Now()
 	w := cmd.OutOrStdout()
 	if o.countsOut == "" {
-		// Index only: stream the shards (graphidx.MergeCounts), no Partial.
-		src, sum, err := graphidx.MergeCounts(cmd.Context(), inputs,
+		// Index only: stream the shards (counts.MergeCounts), no Partial.
+		src, sum, err := counts.MergeCounts(cmd.Context(), inputs,
 			graphidx.WithMinSupport(o.minSupport), graphidx.WithMaxNeighbors(o.maxNeighbors))
 		if err != nil {
 			return classifyCountsErr(err)
@@ -110,10 +111,10 @@ func runMerge(cmd *cobra.Command, o mergeOpts, inputs []string) error {
 		fmt.Fprintf(w, "elapsed %s\n", time.Since(start).Round(time.Millisecond))
 		return nil
 	}
-	p := graphidx.NewPartial()
+	p := counts.NewPartial()
 	var shardBytes int64
 	for _, in := range inputs {
-		info, err := graphidx.ReadCounts(cmd.Context(), in, p)
+		info, err := counts.ReadCounts(cmd.Context(), in, p)
 		if err != nil {
 			return classifyCountsErr(err)
 		}
@@ -123,7 +124,7 @@ func runMerge(cmd *cobra.Command, o mergeOpts, inputs []string) error {
 		return classifyCountsErr(err)
 	}
 	fmt.Fprintf(w, "read %d count set(s), %d bytes of shards, %d contexts\n", len(inputs), shardBytes, p.Contexts())
-	n, err := graphidx.WriteCounts(o.countsOut, p, o.shards)
+	n, err := counts.WriteCounts(o.countsOut, p, o.shards)
 	if err != nil {
 		return classifyCountsErr(err)
 	}
@@ -205,7 +206,7 @@ func checkEmptyDir(dir string) error {
 
 // classifyCountsErr maps bad count shards to exit status 2.
 func classifyCountsErr(err error) error {
-	if errors.Is(err, graphidx.ErrBadCounts) || errors.Is(err, graphidx.ErrTooManyValues) || errors.Is(err, graphidx.ErrCountOverflow) {
+	if errors.Is(err, counts.ErrBadCounts) || errors.Is(err, graphidx.ErrTooManyValues) || errors.Is(err, graphidx.ErrCountOverflow) {
 		return &ExitError{Code: 2, Err: err}
 	}
 	return err

@@ -13,6 +13,7 @@ import (
 	"testing"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/counts"
 )
 
 // mergeCorpus returns n seeded greenhouse contexts (vents, pumps, zones,
@@ -36,11 +37,11 @@ func mergeCorpus(seed uint64, n int) []byte {
 	return b.Bytes()
 }
 
-// countsDir counts a corpus with graphidx.Partial and writes it as shards.
+// countsDir counts a corpus with counts.Partial and writes it as shards.
 func countsDir(t *testing.T, corpus []byte, shards int) string {
 	t.Helper()
 	dir := t.TempDir()
-	p := graphidx.NewPartial()
+	p := counts.NewPartial()
 	r := graphidx.NewJSONLReader(bytes.NewReader(corpus), "c.jsonl")
 	for {
 		c, err := r.Next()
@@ -54,7 +55,7 @@ func countsDir(t *testing.T, corpus []byte, shards int) string {
 			t.Fatal(err)
 		}
 	}
-	if _, err := graphidx.WriteCounts(dir, p, shards); err != nil {
+	if _, err := counts.WriteCounts(dir, p, shards); err != nil {
 		t.Fatal(err)
 	}
 	return dir
@@ -128,7 +129,7 @@ func TestMergeRefuses(t *testing.T) {
 	}
 	good := countsDir(t, corpus, 2)
 	damaged := countsDir(t, corpus, 2)
-	shard := filepath.Join(damaged, graphidx.CountShardName(1, 2))
+	shard := filepath.Join(damaged, counts.CountShardName(1, 2))
 	b := readFile(t, shard)
 	b[len(b)-1] ^= 1
 	if err := os.WriteFile(shard, b, 0o644); err != nil {

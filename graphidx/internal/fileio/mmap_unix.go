@@ -1,6 +1,6 @@
 //go:build unix
 
-package graphidx
+package fileio
 
 import (
 	"fmt"
@@ -9,13 +9,13 @@ import (
 	"golang.org/x/sys/unix"
 )
 
-// mmapSupported reports whether mapFile maps rather than reads.
-const mmapSupported = true
+// MmapSupported reports whether MapFile maps rather than reads.
+const MmapSupported = true
 
-// mapFile maps size bytes of f read-only and shared. The returned release
+// MapFile maps size bytes of f read-only and shared. The returned release
 // function unmaps them. The mapping is page-aligned, so every 8-aligned
 // section is aligned for zero-copy integer slices.
-func mapFile(f *os.File, size int) ([]byte, func() error, error) {
+func MapFile(f *os.File, size int) ([]byte, func() error, error) {
 	b, err := unix.Mmap(int(f.Fd()), 0, size, unix.PROT_READ, unix.MAP_SHARED)
 	if err != nil {
 		return nil, nil, fmt.Errorf("graphidx: mmap %s: %w", f.Name(), err)

@@ -1,4 +1,4 @@
-package graphidx
+package counts
 
 import (
 	"fmt"
@@ -7,6 +7,8 @@ import (
 	"slices"
 	"strconv"
 	"strings"
+
+	"github.com/hopwise/hopwise/graphidx"
 )
 
 // Partial is a mergeable set of co-occurrence counts keyed by names: the
@@ -43,7 +45,7 @@ func (p *Partial) Contexts() uint64 { return p.contexts }
 // unordered pair. It rejects empty names (ErrEmptyName), repeated entities
 // (ErrDuplicateEntity) and a 65th value of an entity (ErrTooManyValues),
 // leaving p unchanged. O(n²) for n observations.
-func (p *Partial) Add(c Context) error {
+func (p *Partial) Add(c graphidx.Context) error {
 	return p.AddShards(c, 1, nil)
 }
 
@@ -54,9 +56,9 @@ func (p *Partial) Add(c Context) error {
 // each group's shards are then byte-identical to those written from a
 // Partial of the whole corpus (WriteCountShards). O(n²) for n observations,
 // plus one hash per pair.
-func (p *Partial) AddShards(c Context, n int, keep func(shard int) bool) error {
+func (p *Partial) AddShards(c graphidx.Context, n int, keep func(shard int) bool) error {
 	obs := slices.Clone(c.Obs)
-	slices.SortFunc(obs, func(a, b Observation) int { return strings.Compare(a.Entity, b.Entity) })
+	slices.SortFunc(obs, func(a, b graphidx.Observation) int { return strings.Compare(a.Entity, b.Entity) })
 	if err := p.checkSorted(obs, c.ID); err != nil {
 		return err
 	}
@@ -81,18 +83,18 @@ func (p *Partial) AddShards(c Context, n int, keep func(shard int) bool) error {
 
 // checkSorted applies Add's checks to the observations of context id,
 // sorted by entity, without counting them.
-func (p *Partial) checkSorted(obs []Observation, id string) error {
-	c := Context{ID: id}
+func (p *Partial) checkSorted(obs []graphidx.Observation, id string) error {
+	c := graphidx.Context{ID: id}
 	for i, o := range obs {
 		if o.Entity == "" || o.Value == "" {
-			return fmt.Errorf("%w: context %s", ErrEmptyName, strconv.Quote(c.ID))
+			return fmt.Errorf("%w: context %s", graphidx.ErrEmptyName, strconv.Quote(c.ID))
 		}
 		if i > 0 && o.Entity == obs[i-1].Entity {
-			return fmt.Errorf("%w: context %s: entity %s", ErrDuplicateEntity, strconv.Quote(c.ID), strconv.Quote(o.Entity))
+			return fmt.Errorf("%w: context %s: entity %s", graphidx.ErrDuplicateEntity, strconv.Quote(c.ID), strconv.Quote(o.Entity))
 		}
-		if m := p.marg[o.Entity]; len(m) >= MaxValues {
+		if m := p.marg[o.Entity]; len(m) >= graphidx.MaxValues {
 			if _, ok := m[o.Value]; !ok {
-				return fmt.Errorf("%w: entity %s, value %s in context %s", ErrTooManyValues,
+				return fmt.Errorf("%w: entity %s, value %s in context %s", graphidx.ErrTooManyValues,
 					strconv.Quote(o.Entity), strconv.Quote(o.Value), strconv.Quote(c.ID))
 			}
 		}
@@ -123,22 +125,21 @@ func (p *Partial) Merge(q *Partial) {
 // WithMaxNeighbors are used from opts. It fails with ErrTooManyValues when
 // merging gave an entity more than MaxValues values, and ErrCountOverflow
 // when a cell exceeds MaxUint32. O(C log C) for C cells.
-func (p *Partial) Compile(opts ...BuildOption) (Source, PruneStats, error) {
-	cfg := newBuildConfig(opts)
-	if cfg.err != nil {
-		return nil, PruneStats{}, cfg.err
+func (p *Partial) Compile(opts ...graphidx.BuildOption) (graphidx.Source, graphidx.PruneStats, error) {
+	if err := graphidx.CheckBuildOptions(opts); err != nil {
+		return nil, graphidx.PruneStats{}, err
 	}
 	names := slices.Sorted(maps.Keys(p.marg))
 	id := make(map[string]uint32, len(names))
-	src := &partialSource{contexts: p.contexts, ents: make([]EntityRecord, len(names))}
+	src := &partialSource{contexts: p.contexts, ents: make([]graphidx.EntityRecord, len(names))}
 	valIdx := make([]map[string]int, len(names))
 	for i, n := range names {
 		id[n] = uint32(i)
 		vals := slices.Sorted(maps.Keys(p.marg[n]))
-		if len(vals) > MaxValues {
-			return nil, PruneStats{}, fmt.Errorf("%w: entity %s has %d", ErrTooManyValues, strconv.Quote(n), len(vals))
+		if len(vals) > graphidx.MaxValues {
+			return nil, graphidx.PruneStats{}, fmt.Errorf("%w: entity %s has %d", graphidx.ErrTooManyValues, strconv.Quote(n), len(vals))
 		}
-		rec := EntityRecord{Name: n, Values: vals, Marginal: make([]uint64, len(vals))}
+		rec := graphidx.EntityRecord{Name: n, Values: vals, Marginal: make([]uint64, len(vals))}
 		valIdx[i] = map[string]int{}
 		for j, v := range vals {
 			rec.Marginal[j] = p.marg[n][v]
@@ -169,15 +170,15 @@ func (p *Partial) Compile(opts ...BuildOption) (Source, PruneStats, error) {
 		counts := make([]uint32, len(t))
 		for i, x := range t {
 			if x > math.MaxUint32 {
-				return nil, PruneStats{}, fmt.Errorf("%w: pair %s, %s", ErrCountOverflow, strconv.Quote(names[k.a]), strconv.Quote(names[k.b]))
+				return nil, graphidx.PruneStats{}, fmt.Errorf("%w: pair %s, %s", graphidx.ErrCountOverflow, strconv.Quote(names[k.a]), strconv.Quote(names[k.b]))
 			}
 			counts[i] = uint32(x)
 		}
-		src.pairs = append(src.pairs, PairRecord{A: k.a, B: k.b, Counts: counts})
+		src.pairs = append(src.pairs, graphidx.PairRecord{A: k.a, B: k.b, Counts: counts})
 	}
-	f, st, err := planPrune(len(names), cfg.minSupport, cfg.maxNeighbors, func(fn func(a, b uint32, sup uint64) error) error {
+	f, st, err := graphidx.PlanPrune(len(names), opts, func(fn func(a, b uint32, sup uint64) error) error {
 		for _, pr := range src.pairs {
-			if err := fn(pr.A, pr.B, sumCounts(pr.Counts)); err != nil {
+			if err := fn(pr.A, pr.B, pr.Support()); err != nil {
 				return err
 			}
 		}
@@ -188,7 +189,7 @@ func (p *Partial) Compile(opts ...BuildOption) (Source, PruneStats, error) {
 	}
 	kept := src.pairs[:0]
 	for _, pr := range src.pairs {
-		if f.keep(pr.A, pr.B, sumCounts(pr.Counts)) {
+		if f.Keep(pr.A, pr.B, pr.Support()) {
 			kept = append(kept, pr)
 		}
 	}
@@ -199,13 +200,13 @@ func (p *Partial) Compile(opts ...BuildOption) (Source, PruneStats, error) {
 // partialSource is the in-memory Source compiled from a Partial.
 type partialSource struct {
 	contexts uint64
-	ents     []EntityRecord
-	pairs    []PairRecord
+	ents     []graphidx.EntityRecord
+	pairs    []graphidx.PairRecord
 }
 
-func (s *partialSource) Contexts() uint64         { return s.contexts }
-func (s *partialSource) Entities() []EntityRecord { return s.ents }
-func (s *partialSource) Pairs(fn func(PairRecord) error) error {
+func (s *partialSource) Contexts() uint64                  { return s.contexts }
+func (s *partialSource) Entities() []graphidx.EntityRecord { return s.ents }
+func (s *partialSource) Pairs(fn func(graphidx.PairRecord) error) error {
 	for _, p := range s.pairs {
 		if err := fn(p); err != nil {
 			return err

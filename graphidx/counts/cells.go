@@ -1,4 +1,4 @@
-package graphidx
+package counts
 
 import (
 	"encoding/binary"
@@ -8,6 +8,8 @@ import (
 	"hash/fnv"
 	"strconv"
 	"strings"
+
+	"github.com/hopwise/hopwise/graphidx"
 )
 
 // Count cells: the wire unit of distributed counting.
@@ -145,7 +147,7 @@ func checkCell(c CountCell) error {
 		if s == "" {
 			return bad("empty name or value")
 		}
-		if len(s) > MaxNameBytes {
+		if len(s) > graphidx.MaxNameBytes {
 			return bad("name longer than MaxNameBytes")
 		}
 	}
@@ -153,7 +155,7 @@ func checkCell(c CountCell) error {
 		return bad("pair cell with one entity or value missing")
 	}
 	if !c.IsMarginal() {
-		if len(c.B) > MaxNameBytes || len(c.V) > MaxNameBytes {
+		if len(c.B) > graphidx.MaxNameBytes || len(c.V) > graphidx.MaxNameBytes {
 			return bad("name longer than MaxNameBytes")
 		}
 		if c.A >= c.B {
@@ -292,8 +294,8 @@ func (d *countDecoder) name() string {
 	if d.err != nil {
 		return ""
 	}
-	if n == 0 || n > MaxNameBytes {
-		d.fail("name length " + strconv.FormatUint(n, 10) + " out of range 1.." + strconv.Itoa(MaxNameBytes))
+	if n == 0 || n > graphidx.MaxNameBytes {
+		d.fail("name length " + strconv.FormatUint(n, 10) + " out of range 1.." + strconv.Itoa(graphidx.MaxNameBytes))
 		return ""
 	}
 	if uint64(len(d.b)-d.i) < n {
@@ -311,8 +313,8 @@ func (d *countDecoder) labels() []string {
 	if d.err != nil {
 		return nil
 	}
-	if k == 0 || k > MaxValues {
-		d.fail("value count " + strconv.FormatUint(k, 10) + " out of range 1.." + strconv.Itoa(MaxValues))
+	if k == 0 || k > graphidx.MaxValues {
+		d.fail("value count " + strconv.FormatUint(k, 10) + " out of range 1.." + strconv.Itoa(graphidx.MaxValues))
 		return nil
 	}
 	out := make([]string, k)

@@ -1,17 +1,17 @@
 //go:build unix
 
-package graphidx
+package fileio
 
 import (
 	"errors"
 	"syscall"
 )
 
-// processAlive reports whether a process with this pid exists: kill(pid, 0)
+// ProcessAlive reports whether a process with this pid exists: kill(pid, 0)
 // fails with ESRCH only when there is none (EPERM means it exists but
 // belongs to another user). A reused pid counts as alive, which only keeps
 // a stale file longer.
-func processAlive(pid int) bool {
+func ProcessAlive(pid int) bool {
 	err := syscall.Kill(pid, 0)
 	return !errors.Is(err, syscall.ESRCH)
 }

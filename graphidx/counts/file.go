@@ -1,4 +1,4 @@
-package graphidx
+package counts
 
 import (
 	"context"
@@ -11,6 +11,9 @@ import (
 	"regexp"
 	"slices"
 	"strconv"
+
+	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
 // On-disk constants of a count shard; COUNTS.md is the byte-level spec.
@@ -104,7 +107,7 @@ func WriteCountShards(dir string, p *Partial, nshards int, shards []int) (int64,
 		}
 		total += n
 	}
-	return total, syncDir(dir)
+	return total, fileio.SyncDir(dir)
 }
 
 type pairAcc struct {
@@ -136,8 +139,8 @@ func writeCountShard(w io.Writer, p *Partial, shard, nshards int, contexts uint6
 	for _, e := range names {
 		m := p.marg[e]
 		vals := slices.Sorted(maps.Keys(m))
-		if len(vals) > MaxValues {
-			return 0, fmt.Errorf("%w: entity %s has %d values", ErrTooManyValues, strconv.Quote(e), len(vals))
+		if len(vals) > graphidx.MaxValues {
+			return 0, fmt.Errorf("%w: entity %s has %d values", graphidx.ErrTooManyValues, strconv.Quote(e), len(vals))
 		}
 		ent = appendStrings(ent, e)
 		ent = binary.AppendUvarint(ent, uint64(len(vals)))
@@ -175,8 +178,8 @@ func writeCountShard(w io.Writer, p *Partial, shard, nshards int, contexts uint6
 			us[uv[0]], vs[uv[1]] = true, true
 		}
 		ul, vl := slices.Sorted(maps.Keys(us)), slices.Sorted(maps.Keys(vs))
-		if len(ul) > MaxValues || len(vl) > MaxValues {
-			return 0, fmt.Errorf("%w: pair %s, %s has more than %d values on one side", ErrTooManyValues, strconv.Quote(acc.a), strconv.Quote(acc.b), MaxValues)
+		if len(ul) > graphidx.MaxValues || len(vl) > graphidx.MaxValues {
+			return 0, fmt.Errorf("%w: pair %s, %s has more than %d values on one side", graphidx.ErrTooManyValues, strconv.Quote(acc.a), strconv.Quote(acc.b), graphidx.MaxValues)
 		}
 		pr = appendStrings(pr, acc.a, acc.b)
 		pr = binary.AppendUvarint(pr, uint64(len(ul)))
@@ -288,8 +291,8 @@ func DecodeCountShard(b []byte, name string, into *Partial) (CountShardHeader, e
 	for d.i < len(d.b) && d.err == nil {
 		e := d.name()
 		k := d.uvarint()
-		if d.err == nil && (k == 0 || k > MaxValues) {
-			d.fail("value count " + strconv.FormatUint(k, 10) + " out of range 1.." + strconv.Itoa(MaxValues))
+		if d.err == nil && (k == 0 || k > graphidx.MaxValues) {
+			d.fail("value count " + strconv.FormatUint(k, 10) + " out of range 1.." + strconv.Itoa(graphidx.MaxValues))
 		}
 		if d.err != nil {
 			break
@@ -493,6 +496,6 @@ func listCountSet(dir string) ([]string, error) {
 // full sums, which is what makes them mergeable (MergeCounts).
 //
 // It is MergeCounts with one directory; see there for memory and time.
-func CompileCounts(ctx context.Context, dir string, opts ...BuildOption) (Source, BuildSummary, error) {
+func CompileCounts(ctx context.Context, dir string, opts ...graphidx.BuildOption) (graphidx.Source, graphidx.BuildSummary, error) {
 	return MergeCounts(ctx, []string{dir}, opts...)
 }

@@ -1,4 +1,4 @@
-package graphidx
+package counts
 
 import (
 	"bytes"
@@ -11,6 +11,9 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
 // greenhouseCorpus returns n JSONL contexts of an invented greenhouse: each
@@ -69,10 +72,10 @@ func greenhouseCorpus(seed uint64, n, ents int) []byte {
 	return b.Bytes()
 }
 
-func buildBytes(t *testing.T, corpus []byte, opts ...BuildOption) []byte {
+func buildBytes(t *testing.T, corpus []byte, opts ...graphidx.BuildOption) []byte {
 	t.Helper()
 	out := filepath.Join(t.TempDir(), "direct.hwi")
-	if _, err := Build(context.Background(), NewJSONLReader(bytes.NewReader(corpus), "corpus.jsonl"), out, opts...); err != nil {
+	if _, err := graphidx.Build(context.Background(), graphidx.NewJSONLReader(bytes.NewReader(corpus), "corpus.jsonl"), out, opts...); err != nil {
 		t.Fatal(err)
 	}
 	b, err := os.ReadFile(out)
@@ -90,9 +93,9 @@ func countsPartialOf(t testing.TB, corpus []byte) *Partial {
 }
 
 // eachContext calls add with every context of a JSONL corpus.
-func eachContext(t testing.TB, corpus []byte, add func(Context) error) {
+func eachContext(t testing.TB, corpus []byte, add func(graphidx.Context) error) {
 	t.Helper()
-	r := NewJSONLReader(bytes.NewReader(corpus), "corpus.jsonl")
+	r := graphidx.NewJSONLReader(bytes.NewReader(corpus), "corpus.jsonl")
 	for {
 		c, err := r.Next()
 		if err == io.EOF {
@@ -107,7 +110,7 @@ func eachContext(t testing.TB, corpus []byte, add func(Context) error) {
 	}
 }
 
-func compileCountsBytes(t *testing.T, dirs []string, opts ...BuildOption) []byte {
+func compileCountsBytes(t *testing.T, dirs []string, opts ...graphidx.BuildOption) []byte {
 	t.Helper()
 	src, _, err := MergeCounts(context.Background(), dirs, opts...)
 	if err != nil {
@@ -115,7 +118,7 @@ func compileCountsBytes(t *testing.T, dirs []string, opts ...BuildOption) []byte
 	}
 	defer src.(io.Closer).Close()
 	out := filepath.Join(t.TempDir(), "counts.hwi")
-	if err := WriteFile(out, src); err != nil {
+	if err := graphidx.WriteFile(out, src); err != nil {
 		t.Fatal(err)
 	}
 	b, err := os.ReadFile(out)
@@ -134,13 +137,13 @@ func TestCountsByteIdentical(t *testing.T) {
 	p := countsPartialOf(t, corpus)
 	for _, tc := range []struct {
 		shards int
-		opts   []BuildOption
+		opts   []graphidx.BuildOption
 	}{
 		{1, nil},
 		{7, nil},
-		{16, []BuildOption{WithMinSupport(3)}},
-		{5, []BuildOption{WithMaxNeighbors(4)}},
-		{3, []BuildOption{WithMinSupport(2), WithMaxNeighbors(6)}},
+		{16, []graphidx.BuildOption{graphidx.WithMinSupport(3)}},
+		{5, []graphidx.BuildOption{graphidx.WithMaxNeighbors(4)}},
+		{3, []graphidx.BuildOption{graphidx.WithMinSupport(2), graphidx.WithMaxNeighbors(6)}},
 	} {
 		t.Run(fmt.Sprintf("shards=%d/opts=%d", tc.shards, len(tc.opts)), func(t *testing.T) {
 			t.Parallel()
@@ -171,7 +174,7 @@ func TestMergeCountsEqualsRebuild(t *testing.T) {
 	if _, err := WriteCounts(db, countsPartialOf(t, b), 9); err != nil { // shard counts need not agree
 		t.Fatal(err)
 	}
-	for _, opts := range [][]BuildOption{nil, {WithMinSupport(2), WithMaxNeighbors(5)}} {
+	for _, opts := range [][]graphidx.BuildOption{nil, {graphidx.WithMinSupport(2), graphidx.WithMaxNeighbors(5)}} {
 		direct := buildBytes(t, corpus, opts...)
 		if !bytes.Equal(direct, compileCountsBytes(t, []string{da, db}, opts...)) {
 			t.Fatalf("merge of A and B differs from the build of A∪B (opts %d)", len(opts))
@@ -192,7 +195,7 @@ func TestMergeCountsEqualsRebuild(t *testing.T) {
 			t.Fatal(err)
 		}
 		out := filepath.Join(t.TempDir(), "p.hwi")
-		if err := WriteFile(out, src); err != nil {
+		if err := graphidx.WriteFile(out, src); err != nil {
 			t.Fatal(err)
 		}
 		if b, _ := os.ReadFile(out); !bytes.Equal(direct, b) {
@@ -277,7 +280,7 @@ func TestAddCellRejects(t *testing.T) {
 		{A: "a", B: "a", U: "x", V: "y", N: 1},
 		{A: "a", B: "b", U: "x", N: 1},
 		{A: "a", U: "x", N: 0},
-		{A: strings.Repeat("a", MaxNameBytes+1), U: "x", N: 1},
+		{A: strings.Repeat("a", graphidx.MaxNameBytes+1), U: "x", N: 1},
 	} {
 		if err := p.AddCell(c); !errors.Is(err, ErrBadCounts) {
 			t.Fatalf("AddCell(%+v) = %v, want ErrBadCounts", c, err)
@@ -401,7 +404,7 @@ func TestJSONLLineParserMatchesReader(t *testing.T) {
 			"{\"id\":\"y\",\"ents\":[\"p\"],\"obs\":{\"q\":\"r\"}}\n"+
 			"{\"obs\":{\"q\":\"r\"}}\n"+
 			"{\"id\":\"z\",\"obs\":{\"q\":\"r\"}}\r\n")...)
-	r := NewJSONLReader(bytes.NewReader(corpus), "f.jsonl")
+	r := graphidx.NewJSONLReader(bytes.NewReader(corpus), "f.jsonl")
 	var want []string
 	for {
 		c, err := r.Next()
@@ -413,12 +416,12 @@ func TestJSONLLineParserMatchesReader(t *testing.T) {
 		}
 		want = append(want, fmt.Sprint(c))
 	}
-	lp := NewJSONLLineParser("f.jsonl")
+	lp := graphidx.NewJSONLLineParser("f.jsonl")
 	var got []string
 	reasons := map[string]int64{}
 	for line := range bytes.SplitSeq(bytes.TrimSuffix(corpus, []byte("\n")), []byte("\n")) {
 		c, blank, err := lp.Parse(line)
-		var le *LineError
+		var le *graphidx.LineError
 		switch {
 		case blank:
 		case errors.As(err, &le):
@@ -438,8 +441,8 @@ func TestJSONLLineParserMatchesReader(t *testing.T) {
 	if fmt.Sprint(reasons) != fmt.Sprint(r.Stats().Skipped) {
 		t.Fatalf("skip reasons differ: line parser %v, reader %v", reasons, r.Stats().Skipped)
 	}
-	long := NewJSONLLineParser("f", WithMaxLineBytes(10))
-	if _, _, err := long.Parse([]byte(`{"id":"c1","obs":{"a":"b"}}`)); err == nil || !strings.Contains(err.Error(), ReasonLineTooLong) {
+	long := graphidx.NewJSONLLineParser("f", graphidx.WithMaxLineBytes(10))
+	if _, _, err := long.Parse([]byte(`{"id":"c1","obs":{"a":"b"}}`)); err == nil || !strings.Contains(err.Error(), graphidx.ReasonLineTooLong) {
 		t.Fatalf("long line: %v", err)
 	}
 }
@@ -448,9 +451,9 @@ func ExampleCompileCounts() {
 	// Two greenhouse contexts counted into a Partial, written as 2 count
 	// shards and compiled back.
 	p := NewPartial()
-	for _, c := range []Context{
-		{ID: "c1", Obs: []Observation{{"vent3", "open"}, {"zone2.humidity", "high"}}},
-		{ID: "c2", Obs: []Observation{{"vent3", "shut"}, {"zone2.humidity", "high"}, {"pump1", "on"}}},
+	for _, c := range []graphidx.Context{
+		{ID: "c1", Obs: []graphidx.Observation{{Entity: "vent3", Value: "open"}, {Entity: "zone2.humidity", Value: "high"}}},
+		{ID: "c2", Obs: []graphidx.Observation{{Entity: "vent3", Value: "shut"}, {Entity: "zone2.humidity", Value: "high"}, {Entity: "pump1", Value: "on"}}},
 	} {
 		if err := p.Add(c); err != nil {
 			fmt.Println(err)
@@ -484,9 +487,9 @@ func ExampleCompileCounts() {
 // shard re-encodes to the same bytes (the encoding is canonical).
 func FuzzDecodeCountShard(f *testing.F) {
 	p := NewPartial()
-	for _, c := range []Context{
-		{ID: "c1", Obs: []Observation{{"vent3", "open"}, {"zone2", "high"}}},
-		{ID: "c2", Obs: []Observation{{"vent3", "shut"}, {"zone2", "high"}, {"pump1", "on"}}},
+	for _, c := range []graphidx.Context{
+		{ID: "c1", Obs: []graphidx.Observation{{Entity: "vent3", Value: "open"}, {Entity: "zone2", Value: "high"}}},
+		{ID: "c2", Obs: []graphidx.Observation{{Entity: "vent3", Value: "shut"}, {Entity: "zone2", Value: "high"}, {Entity: "pump1", Value: "on"}}},
 	} {
 		if err := p.Add(c); err != nil {
 			f.Fatal(err)
@@ -567,7 +570,7 @@ func TestCountSourceCloseUnmaps(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if n := mapped(); n == 0 && mmapSupported {
+	if n := mapped(); n == 0 && fileio.MmapSupported {
 		t.Error("no shard of the open source is mapped")
 	}
 	c := src.(io.Closer)
@@ -577,7 +580,7 @@ func TestCountSourceCloseUnmaps(t *testing.T) {
 	if n := mapped(); n > 0 {
 		t.Errorf("%d mappings of the shards left after Close", n)
 	}
-	if err := src.Pairs(func(PairRecord) error { return nil }); err == nil {
+	if err := src.Pairs(func(graphidx.PairRecord) error { return nil }); err == nil {
 		t.Error("Pairs after Close succeeded")
 	}
 	if err := c.Close(); err != nil {
@@ -627,7 +630,7 @@ func TestCountShardsInGroups(t *testing.T) {
 			}
 		}
 		p := NewPartial()
-		eachContext(t, corpus, func(c Context) error {
+		eachContext(t, corpus, func(c graphidx.Context) error {
 			return p.AddShards(c, n, func(s int) bool { return s%groups == g })
 		})
 		maxCells = max(maxCells, len(p.cells))
@@ -661,14 +664,14 @@ func TestCountShardsInGroups(t *testing.T) {
 // sets with the same shard count still merge.
 func TestMergeCountsRefusesDuplicateSets(t *testing.T) {
 	t.Parallel()
-	write := func(ctxs []ixContext) string {
+	write := func(ctxs []map[string]string) string {
 		p := NewPartial()
 		for _, c := range ctxs {
-			var obs []Observation
+			var obs []graphidx.Observation
 			for e, v := range c {
-				obs = append(obs, Observation{Entity: e, Value: v})
+				obs = append(obs, graphidx.Observation{Entity: e, Value: v})
 			}
-			if err := p.Add(Context{Obs: obs}); err != nil {
+			if err := p.Add(graphidx.Context{Obs: obs}); err != nil {
 				t.Fatal(err)
 			}
 		}
@@ -678,7 +681,7 @@ func TestMergeCountsRefusesDuplicateSets(t *testing.T) {
 		}
 		return dir
 	}
-	gh := ixGreenhouse()
+	gh := greenhouseContexts()
 	a, b := write(gh[:4]), write(gh[4:])
 	cp := filepath.Join(t.TempDir(), "copy")
 	if err := os.CopyFS(cp, os.DirFS(a)); err != nil {
@@ -699,5 +702,36 @@ func TestMergeCountsRefusesDuplicateSets(t *testing.T) {
 	}
 	if sum.Contexts != uint64(len(gh)) {
 		t.Errorf("merged %d contexts, want %d", sum.Contexts, len(gh))
+	}
+}
+
+// greenhouseContexts is a small hand-written corpus: one map (entity to
+// value) per context.
+func greenhouseContexts() []map[string]string {
+	return []map[string]string{
+		{"bed.north": "wet", "pump.a": "on", "vent.east": "open"},
+		{"bed.north": "wet", "pump.a": "on"},
+		{"bed.north": "dry", "pump.a": "off", "zone.temp": "hot"},
+		{"vent.east": "closed", "zone.temp": "mild"},
+		{"bed.north": "dry", "vent.east": "open", "zone.temp": "hot"},
+		{"pump.a": "on", "zone.temp": "cold"},
+		{"pump.a": "on", "sensor.co2": "low"},
+		{"sensor.co2": "high"},
+	}
+}
+
+// TestPartialCountOverflow: a Partial carries cell sums in uint64 and
+// Compile rejects one above MaxUint32 with ErrCountOverflow.
+func TestPartialCountOverflow(t *testing.T) {
+	t.Parallel()
+	p := NewPartial()
+	for _, c := range []CountCell{{A: "a", U: "1", N: 1 << 33}, {A: "b", U: "1", N: 1 << 33}, {A: "a", U: "1", B: "b", V: "1", N: 1 << 32}} {
+		if err := p.AddCell(c); err != nil {
+			t.Fatal(err)
+		}
+	}
+	p.AddContexts(1 << 33)
+	if _, _, err := p.Compile(); !errors.Is(err, graphidx.ErrCountOverflow) {
+		t.Errorf("compile: %v", err)
 	}
 }

@@ -1,4 +1,4 @@
-package graphidx
+package counts
 
 import (
 	"crypto/sha256"

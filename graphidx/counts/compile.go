@@ -1,4 +1,4 @@
-package graphidx
+package counts
 
 import (
 	"container/heap"
@@ -11,6 +11,9 @@ import (
 	"slices"
 	"strconv"
 	"time"
+
+	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
 // countsSource is the Source compiled from count sets without a Partial:
@@ -24,12 +27,12 @@ import (
 // pairs in ascending (A, B) id order as Source requires.
 type countsSource struct {
 	contexts uint64
-	ents     []EntityRecord
+	ents     []graphidx.EntityRecord
 	id       map[string]uint32
 	valIdx   []map[string]int
 	pairs    [][]byte // pair section of every shard
 	names    []string // file of every shard, for errors
-	filter   *pruneFilter
+	filter   *graphidx.PruneFilter
 	release  []func() error // unmaps the shard files
 	closed   bool
 
@@ -37,8 +40,8 @@ type countsSource struct {
 	acc    []uint64
 }
 
-func (s *countsSource) Contexts() uint64         { return s.contexts }
-func (s *countsSource) Entities() []EntityRecord { return s.ents }
+func (s *countsSource) Contexts() uint64                  { return s.contexts }
+func (s *countsSource) Entities() []graphidx.EntityRecord { return s.ents }
 
 // Close releases the mapped shard files; Pairs fails afterwards. It is
 // idempotent. The Source returned by MergeCounts and CompileCounts
@@ -60,15 +63,15 @@ func (s *countsSource) Close() error {
 }
 
 // Pairs calls fn with every kept pair in ascending (A, B) order.
-func (s *countsSource) Pairs(fn func(PairRecord) error) error {
+func (s *countsSource) Pairs(fn func(graphidx.PairRecord) error) error {
 	if s.closed {
 		return fmt.Errorf("graphidx: count source used after Close")
 	}
 	return s.merge(func(a, b uint32, counts []uint32, sup uint64) error {
-		if !s.filter.keep(a, b, sup) {
+		if !s.filter.Keep(a, b, sup) {
 			return nil
 		}
-		return fn(PairRecord{A: a, B: b, Counts: counts})
+		return fn(graphidx.PairRecord{A: a, B: b, Counts: counts})
 	})
 }
 
@@ -160,7 +163,7 @@ func (s *countsSource) merge(fn func(a, b uint32, counts []uint32, sup uint64) e
 		var sup uint64
 		for i, x := range s.acc {
 			if x > math.MaxUint32 {
-				return fmt.Errorf("%w: pair %s, %s", ErrCountOverflow, strconv.Quote(an), strconv.Quote(bn))
+				return fmt.Errorf("%w: pair %s, %s", graphidx.ErrCountOverflow, strconv.Quote(an), strconv.Quote(bn))
 			}
 			s.counts[i] = uint32(x)
 			sup += x
@@ -197,7 +200,7 @@ func (s *countsSource) add(c *pairCursor, a, b uint32, kb int) error {
 			n := c.counts[i*len(c.vl)+j]
 			cell := &s.acc[ui[i]*kb+vi]
 			if *cell+n < *cell {
-				return fmt.Errorf("%w: pair %s, %s", ErrCountOverflow, strconv.Quote(c.a), strconv.Quote(c.b))
+				return fmt.Errorf("%w: pair %s, %s", graphidx.ErrCountOverflow, strconv.Quote(c.a), strconv.Quote(c.b))
 			}
 			*cell += n
 		}
@@ -284,15 +287,15 @@ func loadCounts(ctx context.Context, dirs []string) (_ *countsSource, _ int64, e
 		}
 	}
 	names := slices.Sorted(maps.Keys(marg))
-	s.ents = make([]EntityRecord, len(names))
+	s.ents = make([]graphidx.EntityRecord, len(names))
 	s.valIdx = make([]map[string]int, len(names))
 	for i, n := range names {
 		s.id[n] = uint32(i)
 		vals := slices.Sorted(maps.Keys(marg[n]))
-		if len(vals) > MaxValues {
-			return nil, bytesRead, fmt.Errorf("%w: entity %s has %d", ErrTooManyValues, strconv.Quote(n), len(vals))
+		if len(vals) > graphidx.MaxValues {
+			return nil, bytesRead, fmt.Errorf("%w: entity %s has %d", graphidx.ErrTooManyValues, strconv.Quote(n), len(vals))
 		}
-		rec := EntityRecord{Name: n, Values: vals, Marginal: make([]uint64, len(vals))}
+		rec := graphidx.EntityRecord{Name: n, Values: vals, Marginal: make([]uint64, len(vals))}
 		s.valIdx[i] = make(map[string]int, len(vals))
 		var sum uint64
 		for j, v := range vals {
@@ -321,14 +324,14 @@ func mapShard(path string) (b []byte, release func() error, err error) {
 	if err != nil {
 		return nil, nil, fmt.Errorf("graphidx: read count shard: %w", err)
 	}
-	if st.Size() == 0 || !mmapSupported || st.Size() > math.MaxInt {
+	if st.Size() == 0 || !fileio.MmapSupported || st.Size() > math.MaxInt {
 		b, err := io.ReadAll(f)
 		if err != nil {
 			return nil, nil, fmt.Errorf("graphidx: read count shard %s: %w", path, err)
 		}
 		return b, nil, nil
 	}
-	return mapFile(f, int(st.Size()))
+	return fileio.MapFile(f, int(st.Size()))
 }
 
 // addEntitySection adds the entity records of one checked shard to marg.
@@ -381,25 +384,24 @@ func addEntitySection(marg map[string]map[string]uint64, ent []byte, path string
 //
 // Shard files are untrusted input: DecodeCountShard checks every length
 // and offset, and the checksum, before a byte is used.
-func MergeCounts(ctx context.Context, dirs []string, opts ...BuildOption) (Source, BuildSummary, error) {
+func MergeCounts(ctx context.Context, dirs []string, opts ...graphidx.BuildOption) (graphidx.Source, graphidx.BuildSummary, error) {
 	start := time.Now()
-	var sum BuildSummary
+	var sum graphidx.BuildSummary
 	if len(dirs) == 0 {
 		return nil, sum, fmt.Errorf("graphidx: MergeCounts: no directories")
 	}
 	if err := CheckDistinctCountSets(dirs); err != nil {
 		return nil, sum, err
 	}
-	cfg := newBuildConfig(opts)
-	if cfg.err != nil {
-		return nil, sum, cfg.err
+	if err := graphidx.CheckBuildOptions(opts); err != nil {
+		return nil, sum, err
 	}
 	s, n, err := loadCounts(ctx, dirs)
 	sum.SpillBytes = n
 	if err != nil {
 		return nil, sum, err
 	}
-	f, st, err := planPrune(len(s.ents), cfg.minSupport, cfg.maxNeighbors, func(fn func(a, b uint32, sup uint64) error) error {
+	f, st, err := graphidx.PlanPrune(len(s.ents), opts, func(fn func(a, b uint32, sup uint64) error) error {
 		return s.merge(func(a, b uint32, _ []uint32, sup uint64) error { return fn(a, b, sup) })
 	})
 	if err != nil {
