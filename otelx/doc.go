@@ -50,8 +50,9 @@
 // full disk, an unreachable collector) are counted in MetricSpansDropped.
 //
 // RecordOutcome reports the gateway's outcome (score in [0,1], tokens,
-// latency) in a span named SpanOutcome carrying the decision's unit key;
-// ReadOutcomes reads the same facts from a plain JSONL file instead. Join
+// latency) in a span named SpanOutcome carrying the decision's unit key
+// (WithOutcomeAttributes adds the caller's own attributes to it, such as
+// the GenAI attributes of the model call); ReadOutcomes reads the same facts from a plain JSONL file instead. Join
 // pairs decisions with outcomes by key.
 //
 // # Trace files

@@ -8,6 +8,7 @@ import (
 	"slices"
 	"strings"
 
+	"go.opentelemetry.io/otel/attribute"
 	sdktrace "go.opentelemetry.io/otel/sdk/trace"
 	"go.opentelemetry.io/otel/sdk/trace/tracetest"
 
@@ -83,4 +84,28 @@ func ExampleWithCompactSpans() {
 	// hopwise.route.propensity
 	// hopwise.route.reason
 	// hopwise.sampling.ratio
+}
+
+// A gateway puts the GenAI attributes of the model call on the outcome
+// span, beside the hopwise.outcome.* ones.
+func ExampleWithOutcomeAttributes() {
+	ctx := context.Background()
+	rec := tracetest.NewSpanRecorder()
+	tp := sdktrace.NewTracerProvider(sdktrace.WithSpanProcessor(rec))
+	in, _ := New(WithTracerProvider(tp))
+
+	d := router.Decision{Key: "request-1", Mode: router.ModeChain}
+	err := in.RecordOutcome(ctx, d, Outcome{Score: 1, InputTokens: 96, OutputTokens: 16},
+		WithOutcomeAttributes(attribute.String("gen_ai.operation.name", "chat"), attribute.String("gen_ai.request.model", "greenhouse-sim")))
+	fmt.Println(err)
+	for _, kv := range rec.Ended()[0].Attributes() {
+		if strings.HasPrefix(string(kv.Key), "gen_ai.") || kv.Key == KeyOutcomeScore {
+			fmt.Printf("%s=%s\n", kv.Key, kv.Value.Emit())
+		}
+	}
+	// Output:
+	// <nil>
+	// hopwise.outcome.score=1
+	// gen_ai.operation.name=chat
+	// gen_ai.request.model=greenhouse-sim
 }

@@ -570,9 +570,22 @@ func clampInt64(u uint64) int64 {
 // so that the outcome span joins the decision's trace and a trace sampler
 // keeps or drops the two together. It returns ErrNoKey when d has no unit key and
 // ErrBadOutcome for values outside their domain; nothing is recorded then.
-func (in *Instrumentation) RecordOutcome(ctx context.Context, d router.Decision, o Outcome) error {
+//
+// Options add to the span: WithOutcomeAttributes puts the caller's own
+// attributes (the GenAI attributes of the model call, say) beside the
+// hopwise.* ones.
+func (in *Instrumentation) RecordOutcome(ctx context.Context, d router.Decision, o Outcome, opts ...OutcomeOption) error {
 	if d.Key == "" {
 		return ErrNoKey
+	}
+	var oc outcomeConfig
+	for _, opt := range opts {
+		if opt != nil {
+			opt.applyOutcome(&oc)
+		}
+	}
+	if err := checkOutcomeAttrs(oc.attrs); err != nil {
+		return err
 	}
 	switch {
 	case !(o.Score >= 0 && o.Score <= 1):
@@ -605,6 +618,7 @@ func (in *Instrumentation) RecordOutcome(ctx context.Context, d router.Decision,
 		if d.Arm != "" {
 			attrs = append(attrs, attribute.String(KeyABArm, d.Arm))
 		}
+		attrs = append(attrs, oc.attrs...)
 		span.SetAttributes(attrs...)
 		clear(attrs)
 		*bp = attrs[:0]

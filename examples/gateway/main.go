@@ -261,8 +261,7 @@ func run(ctx context.Context, o options) error {
 }
 
 // tracerProvider exports spans over OTLP/HTTP when o.endpoint is set, else
-// to a rotated OTLP JSON Lines file. SpanAttrsProcessor puts the GenAI
-// attributes on outcome spans.
+// to a rotated OTLP JSON Lines file.
 func tracerProvider(ctx context.Context, o options) (*sdktrace.TracerProvider, error) {
 	var exp sdktrace.SpanExporter
 	var err error
@@ -285,7 +284,6 @@ func tracerProvider(ctx context.Context, o options) (*sdktrace.TracerProvider, e
 		bopts = append(bopts, sdktrace.WithBatchTimeout(o.batchDelay))
 	}
 	return sdktrace.NewTracerProvider(
-		sdktrace.WithSpanProcessor(gw.SpanAttrsProcessor{}),
 		sdktrace.WithBatcher(exp, bopts...),
 		sdktrace.WithResource(resource.NewSchemaless(attribute.String("service.name", "hopwise-gateway"))),
 	), nil

@@ -45,7 +45,8 @@
 // Telemetry: the model-call span and the outcome span carry the
 // OpenTelemetry GenAI semantic-convention attributes gen_ai.operation.name,
 // gen_ai.request.model, gen_ai.response.model, gen_ai.usage.input_tokens and
-// gen_ai.usage.output_tokens (the outcome span through SpanAttrsProcessor);
+// gen_ai.usage.output_tokens (the outcome span through
+// otelx.WithOutcomeAttributes);
 // the metrics are gen_ai.client.operation.duration,
 // gen_ai.client.token.usage and hopwise.gateway.requests.
 //

@@ -116,7 +116,7 @@ func newRig(t testing.TB, cfg gw.Config, upstream http.Handler, topts ...otelx.O
 	if cfg.Upstream == "" {
 		cfg.Upstream = r.upstream.URL + "/v1"
 	}
-	r.tp = sdktrace.NewTracerProvider(sdktrace.WithSpanProcessor(gw.SpanAttrsProcessor{}), sdktrace.WithSyncer(r.spans))
+	r.tp = sdktrace.NewTracerProvider(sdktrace.WithSyncer(r.spans))
 	t.Cleanup(func() { r.tp.Shutdown(context.Background()) })
 	var err error
 	if cfg.Telemetry, err = otelx.New(append([]otelx.Option{otelx.WithTracerProvider(r.tp)}, topts...)...); err != nil {

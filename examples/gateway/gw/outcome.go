@@ -10,7 +10,6 @@ import (
 	"time"
 
 	"github.com/hopwise/hopwise/otelx"
-	"go.opentelemetry.io/otel/attribute"
 )
 
 // OutcomeRequest is the body of POST /v1/outcomes: the outcome of the most
@@ -52,7 +51,7 @@ func number(field string, n *Number, lo, hi float64, integer bool) (float64, err
 // Outcome validates the whole outcome first, then takes the pending
 // request of req.Unit and records the outcome as a hopwise.outcome span
 // joined to the decision by the unit key (otelx.RecordOutcome), with the
-// GenAI attributes of the call when SpanAttrsProcessor is registered.
+// GenAI attributes of the call (otelx.WithOutcomeAttributes).
 // Tokens and latency default to what the gateway measured. A request takes
 // one outcome; a rejected outcome leaves it pending, so a corrected retry
 // records.
@@ -110,11 +109,7 @@ func (s *Server) Outcome(ctx context.Context, req OutcomeRequest) error {
 	if !s.recent.Remove(req.Unit) {
 		return &RequestError{http.StatusNotFound, "unknown_unit", fmt.Sprintf("no routed request is pending for unit %q (already reported)", clip(req.Unit))}
 	}
-	octx := withSpanAttrs(ctx,
-		attribute.String(KeyGenAIOperation, "chat"), attribute.String(KeyGenAIRequestModel, p.reqModel),
-		attribute.String(KeyGenAIRespModel, p.respModel),
-		attribute.Int64(KeyGenAIInputTokens, o.InputTokens), attribute.Int64(KeyGenAIOutputTokens, o.OutputTokens))
-	if err := s.tel.RecordOutcome(octx, p.d, o); err != nil {
+	if err := s.tel.RecordOutcome(ctx, p.d, o, otelx.WithOutcomeAttributes(s.ins.outcomeAttrs(p, o)...)); err != nil {
 		s.recent.ContainsOrAdd(req.Unit, p) // keep it for a retry
 		if errors.Is(err, otelx.ErrBadOutcome) {
 			return badRequest("invalid_field", "the outcome is out of range")

@@ -21,7 +21,8 @@ const maxJSONDepth = 64
 // the first: {"from":"zzz","From":"zone-1/air-temp"} would mean one thing to
 // this gateway and another to whatever reads the same body next. Rejecting
 // such bodies removes the ambiguity. It also rejects nesting deeper than 64,
-// invalid UTF-8 in keys, and trailing data. Cost: O(n) in the body size,
+// invalid UTF-8 in keys, trailing data, and a body without a value (empty
+// or only white space). Cost: O(n) in the body size,
 // plus O(k²) key comparisons per object of k keys (k is small in requests;
 // a map keyed by the folded key takes over past 16 keys).
 func CheckKeys(body []byte) error {
@@ -31,10 +32,12 @@ func CheckKeys(body []byte) error {
 	for {
 		tok, err := dec.Token()
 		if err == io.EOF {
+			// A complete top-level value returns below, so EOF here means
+			// an open object or array, or no value at all.
 			if len(stack) != 0 {
 				return errors.New("truncated JSON body")
 			}
-			return nil
+			return errors.New("no JSON value in the body")
 		}
 		if err != nil {
 			return jsonSyntax(err, dec.InputOffset())

@@ -43,6 +43,8 @@ func TestCheckKeys(t *testing.T) {
 		{`{"a" 1}`, false, "malformed JSON"},
 		{strings.Repeat("[", 65) + strings.Repeat("]", 65), false, "deeper than 64"},
 		{strings.Repeat("[", 64) + strings.Repeat("]", 64), true, ""},
+		{``, false, "no JSON value"}, // found by FuzzCheckKeys (testdata/fuzz)
+		{" \n\t", false, "no JSON value"},
 	}
 	for _, c := range cases {
 		err := gw.CheckKeys([]byte(c.body))

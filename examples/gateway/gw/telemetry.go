@@ -5,13 +5,13 @@ import (
 	"net/http"
 	"time"
 
+	"github.com/hopwise/hopwise/otelx"
 	"github.com/prometheus/client_golang/prometheus"
 	"github.com/prometheus/client_golang/prometheus/promhttp"
 	"go.opentelemetry.io/otel/attribute"
 	otelprom "go.opentelemetry.io/otel/exporters/prometheus"
 	"go.opentelemetry.io/otel/metric"
 	sdkmetric "go.opentelemetry.io/otel/sdk/metric"
-	sdktrace "go.opentelemetry.io/otel/sdk/trace"
 	"go.opentelemetry.io/otel/trace"
 )
 
@@ -114,42 +114,22 @@ func (in *instruments) endCall(ctx context.Context, span trace.Span, model strin
 	}
 }
 
-// spanAttrsKey carries attributes for SpanAttrsProcessor in a context.
-type spanAttrsKey struct{}
-
-// withSpanAttrs returns ctx carrying attrs for the next span started with
-// it (see SpanAttrsProcessor).
-func withSpanAttrs(ctx context.Context, attrs ...attribute.KeyValue) context.Context {
-	return context.WithValue(ctx, spanAttrsKey{}, attrs)
-}
-
-// SpanAttrsProcessor is an sdktrace.SpanProcessor that adds, to a span
-// started with a context the gateway prepared, the attributes that context
-// carries. The gateway uses it to put the GenAI attributes
-// (gen_ai.operation.name, gen_ai.request.model, gen_ai.response.model,
-// gen_ai.usage.*) on the hopwise.outcome span that otelx.RecordOutcome
-// starts. Register it on the TracerProvider given to otelx:
-//
-//	sdktrace.NewTracerProvider(sdktrace.WithSpanProcessor(gw.SpanAttrsProcessor{}), …)
-//
-// Without it outcome spans carry only their hopwise.* attributes.
-type SpanAttrsProcessor struct{}
-
-// OnStart implements sdktrace.SpanProcessor.
-func (SpanAttrsProcessor) OnStart(parent context.Context, s sdktrace.ReadWriteSpan) {
-	if attrs, ok := parent.Value(spanAttrsKey{}).([]attribute.KeyValue); ok {
-		s.SetAttributes(attrs...)
+// outcomeAttrs are the GenAI attributes of the model call that the
+// outcome span of p carries beside its hopwise.outcome.* attributes: the
+// operation, the request and response models, the provider when set, and
+// the tokens of the outcome (what the caller reported, else what the
+// upstream did).
+func (in *instruments) outcomeAttrs(p pending, o otelx.Outcome) []attribute.KeyValue {
+	attrs := append(genAICallAttrs(p.reqModel),
+		attribute.Int64(KeyGenAIInputTokens, o.InputTokens), attribute.Int64(KeyGenAIOutputTokens, o.OutputTokens))
+	if p.respModel != "" {
+		attrs = append(attrs, attribute.String(KeyGenAIRespModel, p.respModel))
 	}
+	if in.provider != "" {
+		attrs = append(attrs, attribute.String(KeyGenAIProvider, in.provider))
+	}
+	return attrs
 }
-
-// OnEnd implements sdktrace.SpanProcessor.
-func (SpanAttrsProcessor) OnEnd(sdktrace.ReadOnlySpan) {}
-
-// Shutdown implements sdktrace.SpanProcessor.
-func (SpanAttrsProcessor) Shutdown(context.Context) error { return nil }
-
-// ForceFlush implements sdktrace.SpanProcessor.
-func (SpanAttrsProcessor) ForceFlush(context.Context) error { return nil }
 
 // NewPrometheus returns a MeterProvider whose histograms and counters are
 // served for scraping by the returned handler (Prometheus text format,

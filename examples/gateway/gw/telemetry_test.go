@@ -64,6 +64,9 @@ func TestGenAISpans(t *testing.T) {
 	if call[gw.KeyGenAIInputTokens] != outcome[gw.KeyGenAIInputTokens] || outcome[otelx.KeyOutcomeInputTokens].AsInt64() != call[gw.KeyGenAIInputTokens].AsInt64() {
 		t.Errorf("outcome tokens %v / %v differ from the call's %v", outcome[gw.KeyGenAIInputTokens], outcome[otelx.KeyOutcomeInputTokens], call[gw.KeyGenAIInputTokens])
 	}
+	if outcome[gw.KeyGenAIProvider].AsString() != "greenhouse-sim-provider" {
+		t.Errorf("outcome span: provider %q", outcome[gw.KeyGenAIProvider].AsString())
+	}
 	if call[gw.KeyGenAIProvider].AsString() != "greenhouse-sim-provider" || call[gw.KeyGatewayRoute].AsString() != "chain" {
 		t.Errorf("call span: provider %q route %q", call[gw.KeyGenAIProvider].AsString(), call[gw.KeyGatewayRoute].AsString())
 	}

@@ -195,8 +195,7 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 	if err != nil {
 		return nil, err
 	}
-	tp := sdktrace.NewTracerProvider(sdktrace.WithSpanProcessor(gw.SpanAttrsProcessor{}),
-		sdktrace.WithBatcher(exp, sdktrace.WithBlocking()),
+	tp := sdktrace.NewTracerProvider(sdktrace.WithBatcher(exp, sdktrace.WithBlocking()),
 		sdktrace.WithResource(resource.NewSchemaless(attribute.String("service.name", "hopwise-abtest"))))
 	defer tp.Shutdown(context.WithoutCancel(ctx))
 	tel, err := otelx.New(otelx.WithTracerProvider(tp))

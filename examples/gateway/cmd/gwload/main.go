@@ -9,6 +9,7 @@
 //	cd examples/gateway
 //	go run ./cmd/gwload                         # 20 000 requests, 32 clients
 //	go run ./cmd/gwload -requests 2000 -clients 8
+//	go run ./cmd/gwload -config tuned.json      # the routing gateway with a router config
 //
 // Traffic stays on 127.0.0.1; every run is bounded by -requests and
 // -timeout. The questions are about the greenhouse world of examples/
@@ -43,6 +44,7 @@ import (
 	"github.com/hopwise/hopwise/examples/internal/ghtest"
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/otelx"
+	"github.com/hopwise/hopwise/router"
 	"go.opentelemetry.io/otel/metric/noop"
 	tnoop "go.opentelemetry.io/otel/trace/noop"
 )
@@ -61,7 +63,10 @@ type Config struct {
 	// command) with one fixed completion, so that the upstream does the
 	// same work whether or not the gateway added a plan.
 	Sim bool
-	Out io.Writer
+	// RouterOptions configure the routing gateway's router (the gateway's
+	// -config); nil keeps the router's defaults.
+	RouterOptions []router.Option
+	Out           io.Writer
 }
 
 // Stats are one gateway's figures.
@@ -142,8 +147,18 @@ func main() {
 	flag.DurationVar(&cfg.Timeout, "timeout", 3*time.Minute, "stop after this long whatever is left")
 	flag.BoolVar(&cfg.Sim, "sim", false, "answer with the simulated model (default: one fixed completion, the same work for both gateways)")
 	prof := flag.String("cpuprofile", "", "write a CPU profile of the run to this file")
+	config := flag.String("config", "", "router config JSON for the routing gateway (router.Config, as the gateway's -config; default: the router's defaults)")
 	flag.Parse()
 	cfg.Out = os.Stdout
+	if *config != "" {
+		c, err := router.LoadConfig(*config)
+		if err != nil {
+			log.Fatalf("gwload: %v", err)
+		}
+		if cfg.RouterOptions, err = c.Options(); err != nil {
+			log.Fatalf("gwload: %s: %v", *config, err)
+		}
+	}
 	if *prof != "" {
 		f, err := os.Create(*prof)
 		if err != nil {
@@ -208,7 +223,7 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 		return nil, err
 	}
 	start := func(off bool) (*gw.Server, *httptest.Server, error) {
-		s, err := gw.New(gw.Config{IndexPath: cfg.Index, Upstream: up.URL + "/v1", RoutingOff: off, Telemetry: tel,
+		s, err := gw.New(gw.Config{IndexPath: cfg.Index, Upstream: up.URL + "/v1", RoutingOff: off, Telemetry: tel, RouterOptions: cfg.RouterOptions,
 			TracerProvider: tnoop.NewTracerProvider(), MeterProvider: noop.NewMeterProvider(),
 			Logger: log.New(io.Discard, "", 0)})
 		if err != nil {

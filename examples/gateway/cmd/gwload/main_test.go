@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"github.com/hopwise/hopwise/examples/internal/ghtest"
+	"github.com/hopwise/hopwise/router"
 )
 
 // TestRunSmall runs the load on a small index with few requests: no
@@ -34,6 +35,17 @@ func TestRunSmall(t *testing.T) {
 		if res.On.P99 < res.On.P50 || res.On.CPU <= 0 || !strings.Contains(out.String(), "routing adds") {
 			t.Errorf("figures: %+v", res.On)
 		}
+	}
+	// Router options reach the routing gateway only: a gain threshold no
+	// chain reaches routes every linked question directly.
+	var out bytes.Buffer
+	res, err := Run(context.Background(), Config{Index: index, Requests: 200, Clients: 4, Rounds: 2, Timeout: time.Minute, Out: &out,
+		RouterOptions: []router.Option{router.WithGainThreshold(1e9), router.WithBeam(16)}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.On.Routes["chain"] != 0 || res.On.Routes["direct"] < 150 || res.Off.Routes["pass"] != 200 {
+		t.Errorf("with τ = 1e9: routes on %v, off %v", res.On.Routes, res.Off.Routes)
 	}
 	if _, err := Run(context.Background(), Config{Index: index, Requests: 4, Clients: 8, Rounds: 1}); err == nil {
 		t.Error("fewer requests than clients accepted")
