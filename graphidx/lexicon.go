@@ -77,7 +77,12 @@ type Lexicon struct {
 	first      []uint64
 	firstShift uint
 	firstKeys  []uint64
-	stats      LexiconStats
+	// firstByte and firstLen are the shapes of the forms' first tokens:
+	// bit c of firstByte is set when some first token's folded bytes start
+	// with c, bit min(n, 63) of firstLen when one is n folded bytes long.
+	firstByte [4]uint64
+	firstLen  uint64
+	stats     LexiconStats
 }
 
 // Table word flags.
@@ -237,8 +242,13 @@ func parseLexicon(r io.Reader, name string, perRune bool) (*Lexicon, error) {
 		keys, words = keys[:0], words[:0]
 		tz.reset(form, l.seed, perRune)
 		key := l.seed
+		var c0 byte
+		var n0 uint32
 		for tz.pos < len(form) {
 			_, h, w := tz.next()
+			if len(keys) == 0 {
+				c0, n0 = tz.lastC0, tz.lastN
+			}
 			key = chainKey(key, h)
 			keys = append(keys, key)
 			words = append(words, w)
@@ -246,6 +256,10 @@ func parseLexicon(r io.Reader, name string, perRune bool) (*Lexicon, error) {
 		if e := l.add(folded, form, ent, val, n == 3, keys, words, le); e != nil {
 			return nil, e
 		}
+		// Lines whose form was not kept add their shape too: a superset
+		// only costs a filter check.
+		l.firstByte[c0>>6] |= 1 << (c0 & 63)
+		l.firstLen |= 1 << min(n0, 63)
 	}
 	if len(l.pent) == 0 {
 		return nil, &LineError{File: name, Line: lr.line, Reason: ReasonEmptyLexicon,

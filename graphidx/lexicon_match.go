@@ -149,6 +149,10 @@ type tokenizer struct {
 	pos     int
 	seed    uint64
 	perRune bool
+	// lastN and lastC0 are the folded byte length and the first folded
+	// byte of the token next returned last (the first-token shape).
+	lastN  uint32
+	lastC0 byte
 }
 
 func (t *tokenizer) reset(text []byte, seed uint64, perRune bool) {
@@ -183,21 +187,23 @@ func (t *tokenizer) next() (int, uint64, bool) {
 			if 'A' <= c && c <= 'Z' {
 				c += 'a' - 'A'
 			}
-			t.pos = i
+			t.pos, t.lastN, t.lastC0 = i, 1, c
 			return i, tokSum(h, uint64(c), 1), lc != 0
 		}
 		w, n = uint64(lc), 1
+		t.lastC0 = lc
 	} else {
 		r, sz := utf8.DecodeRune(s[i:])
 		if r == utf8.RuneError && sz == 1 {
-			t.pos = i + 1
+			t.pos, t.lastN, t.lastC0 = i+1, 1, c
 			return i + 1, tokSum(h, uint64(c), 1), false
 		}
 		r = unicode.ToLower(r)
 		h, w, n = addRune(h, w, n, r)
+		t.lastC0 = byte(w >> (8 * (n - 1))) // the first of the rune's n ≤ 4 bytes
 		i += sz
 		if word := isWordRune(r); !word || t.perRune {
-			t.pos = i
+			t.pos, t.lastN = i, uint32(n)
 			return i, tokSum(h, w, n), word
 		}
 	}
@@ -227,7 +233,7 @@ func (t *tokenizer) next() (int, uint64, bool) {
 		h, w, n = addRune(h, w, n, r)
 		i += sz
 	}
-	t.pos = i
+	t.pos, t.lastN = i, uint32(min(n, 1<<32-1))
 	return i, tokSum(h, w, n), true
 }
 
@@ -256,11 +262,14 @@ type linker struct {
 }
 
 // token is one text token: where it ends, the hash of its folded bytes,
-// and whether it is a word token.
+// whether it is a word token, and its shape: the first folded byte and the
+// folded byte length (for Lexicon.mayStartShape).
 type token struct {
 	end  int
 	h    uint64
 	word bool
+	c0   byte
+	n    uint32
 }
 
 // candidate is a walk position where the table holds a form: verified
@@ -293,10 +302,11 @@ func (m *linker) scan(want int) {
 			lc := wordLower[c]
 			if lc == 0 {
 				i++
-				toks = append(toks, token{i, tokSum(seed, uint64(c), 1), false}) // not a letter: already folded
+				toks = append(toks, token{i, tokSum(seed, uint64(c), 1), false, c, 1}) // not a letter: already folded
 				continue
 			}
 			j := i + 1
+			c0 := lc
 			h, w, n := seed, uint64(lc), uint64(1)
 			for ; j < len(s); j++ {
 				lc = scanClass[s[j]]
@@ -306,7 +316,7 @@ func (m *linker) scan(want int) {
 							break // a non-ASCII word rune: the slow path cuts this token
 						}
 					}
-					toks = append(toks, token{j, tokSum(h, w, n), true})
+					toks = append(toks, token{j, tokSum(h, w, n), true, c0, uint32(n)})
 					i = j
 					goto next
 				}
@@ -317,7 +327,7 @@ func (m *linker) scan(want int) {
 				}
 			}
 			if j == len(s) {
-				toks = append(toks, token{j, tokSum(h, w, n), true})
+				toks = append(toks, token{j, tokSum(h, w, n), true, c0, uint32(n)})
 				i = j
 				continue
 			}
@@ -325,7 +335,7 @@ func (m *linker) scan(want int) {
 		t.pos = i
 		{
 			end, h, w := t.next()
-			toks = append(toks, token{end, h, w})
+			toks = append(toks, token{end, h, w, t.lastC0, t.lastN})
 			i = end
 		}
 	next:
@@ -371,6 +381,10 @@ func (m *linker) run(l *Lexicon, text []byte, all bool) {
 			i++ // no form starts with a separator
 			continue
 		}
+		if !l.mayStartShape(m.toks[i].c0, m.toks[i].n) {
+			i++ // no form's first token has this first byte and length
+			continue
+		}
 		key := chainKey(l.seed, m.toks[i].h)
 		if !l.mayStart(key) {
 			i++ // no form starts with this token
@@ -410,6 +424,14 @@ func (m *linker) run(l *Lexicon, text []byte, all bool) {
 		}
 		i = next
 	}
+}
+
+// mayStartShape reports whether some form's first token has first folded
+// byte c0 and folded length n (lengths of 63 bytes and more share one bit):
+// a check in two words of the Lexicon itself, before the first-token
+// filter's memory is touched. No false negatives.
+func (l *Lexicon) mayStartShape(c0 byte, n uint32) bool {
+	return l.firstByte[c0>>6]&(1<<(c0&63)) != 0 && l.firstLen&(1<<min(n, 63)) != 0
 }
 
 // mayStart reports whether some form may start with the token whose
