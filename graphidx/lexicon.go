@@ -48,10 +48,18 @@ type Lexicon struct {
 	seed    uint64
 	perRune bool // every rune is a token, no word boundaries (all-matches check mode)
 
-	// Prefix table: linear probing, slot = ⌊key·len/2⁶⁴⌋, key 0 is empty.
+	// Prefix table while loading: linear probing, slot = ⌊key·len/2⁶⁴⌋,
+	// key 0 is empty. finish packs it into table and drops it.
 	keys []uint64
 	vals []uint32 // childBit | overBit | (pattern+1)
 	used int
+	// table is the loaded prefix table, one 8-byte word per slot: the low
+	// 32 bits of the key (its tag) above the table word, 0 when empty; same
+	// slot rule. Keys with equal tags on one probe run share a word (their
+	// flags and patterns merged, see pack): that only costs work, since a
+	// match is always verified byte by byte.
+	table   []uint64
+	tagMask uint32 // the key bits a tag keeps: all but in tests of merging
 	// over holds further patterns whose folded forms hash to a key already
 	// holding another pattern (64-bit hash collisions; verified by bytes).
 	over map[uint64][]uint32
@@ -178,8 +186,15 @@ func ParseLexicon(r io.Reader, name string) (*Lexicon, error) {
 // parseLexicon is ParseLexicon; perRune selects the all-matches check mode
 // (every rune its own token, no word boundaries).
 func parseLexicon(r io.Reader, name string, perRune bool) (*Lexicon, error) {
+	return parseLexiconTags(r, name, perRune, ^uint32(0))
+}
+
+// parseLexiconTags is parseLexicon keeping only the tagMask bits of each
+// key's tag in the loaded table; tests narrow it to force merged words.
+func parseLexiconTags(r io.Reader, name string, perRune bool, tagMask uint32) (*Lexicon, error) {
 	lr := newLineReader(r, 1<<20)
 	l := newLexicon(perRune)
+	l.tagMask = tagMask
 	var (
 		folded []byte
 		tz     tokenizer
@@ -271,7 +286,7 @@ func parseLexicon(r io.Reader, name string, perRune bool) (*Lexicon, error) {
 }
 
 func newLexicon(perRune bool) *Lexicon {
-	l := &Lexicon{seed: rand.Uint64() | 1, perRune: perRune}
+	l := &Lexicon{seed: rand.Uint64() | 1, perRune: perRune, tagMask: ^uint32(0)}
 	l.ents.init()
 	l.values.init()
 	l.keys = make([]uint64, 1024)
@@ -403,10 +418,74 @@ func (l *Lexicon) slot(key uint64) int {
 }
 
 // lookup returns the table word of key. Expected O(1): the load is at most
-// 0.7.
+// 0.7. Once loaded, one 8-byte word per probe (table).
 func (l *Lexicon) lookup(key uint64) (uint32, bool) {
+	if t := l.table; t != nil {
+		n := uint64(len(t))
+		i, _ := bits.Mul64(key, n)
+		tag := uint32(key) & l.tagMask
+		for {
+			w := t[i]
+			if w == 0 {
+				return 0, false
+			}
+			if uint32(w>>32) == tag {
+				return uint32(w), true
+			}
+			if i++; i == n {
+				i = 0
+			}
+		}
+	}
 	i := l.slot(key)
 	return l.vals[i], l.keys[i] != 0
+}
+
+// pack moves the loading table (keys, vals) into table. A key whose probe
+// run meets a word of its tag (another key with the same low 32 bits)
+// merges into it: the flags are or-ed, and when both hold a pattern the
+// later one moves to over under its full key with overBit set, where
+// verify finds it. Every walk then sees at least the flags it saw before,
+// and any extra candidate is verified by its bytes, so matches do not
+// change. O(slots).
+func (l *Lexicon) pack() {
+	n := uint64(len(l.keys))
+	t := make([]uint64, n)
+	for j, k := range l.keys {
+		if k == 0 {
+			continue
+		}
+		v := l.vals[j]
+		i, _ := bits.Mul64(k, n)
+		for {
+			w := t[i]
+			if w == 0 {
+				t[i] = uint64(uint32(k)&l.tagMask)<<32 | uint64(v)
+				break
+			}
+			if uint32(w>>32) == uint32(k)&l.tagMask {
+				old := uint32(w)
+				merged := old | v&(childBit|overBit)
+				if p := v & patMask; p != 0 {
+					if old&patMask == 0 {
+						merged |= p
+					} else {
+						if l.over == nil {
+							l.over = map[uint64][]uint32{}
+						}
+						l.over[k] = append(l.over[k], p-1)
+						merged |= overBit
+					}
+				}
+				t[i] = uint64(uint32(w>>32))<<32 | uint64(merged)
+				break
+			}
+			if i++; i == n {
+				i = 0
+			}
+		}
+	}
+	l.table, l.keys, l.vals = t, nil, nil
 }
 
 func (l *Lexicon) claim(key uint64) int {
@@ -454,6 +533,7 @@ func (l *Lexicon) finish() {
 	if want := l.used*10/7 + 1; want < len(l.keys)*9/10 {
 		l.rehash(want)
 	}
+	l.pack()
 	// The first-token filter: about 8 bits per distinct first token, between
 	// 2^16 and 2^23 bits (8 KiB to 1 MiB, so that it stays in cache).
 	slices.Sort(l.firstKeys)
@@ -480,7 +560,7 @@ func (l *Lexicon) finish() {
 	s.Forms = len(l.pent)
 	s.Entities = l.ents.len()
 	s.Values = l.values.len()
-	mem := int64(8*cap(l.keys) + 8*cap(l.first) + 4*cap(l.vals) + cap(l.forms) + 4*cap(l.formOff) + 4*cap(l.pent) + 4*cap(l.pval) +
+	mem := int64(8*cap(l.table) + 8*cap(l.first) + cap(l.forms) + 4*cap(l.formOff) + 4*cap(l.pent) + 4*cap(l.pval) +
 		cap(l.disp) + 4*cap(l.dispOff) + 4*cap(l.entDisp) + cap(l.valued))
 	for _, ps := range l.over {
 		mem += 8 + 24 + 4*int64(cap(ps)) + 16 // key, slice header, elements, map overhead (estimate)
