@@ -420,25 +420,35 @@ func (l *Lexicon) slot(key uint64) int {
 // lookup returns the table word of key. Expected O(1): the load is at most
 // 0.7. Once loaded, one 8-byte word per probe (table).
 func (l *Lexicon) lookup(key uint64) (uint32, bool) {
-	if t := l.table; t != nil {
-		n := uint64(len(t))
-		i, _ := bits.Mul64(key, n)
-		tag := uint32(key) & l.tagMask
-		for {
-			w := t[i]
-			if w == 0 {
-				return 0, false
-			}
-			if uint32(w>>32) == tag {
-				return uint32(w), true
-			}
-			if i++; i == n {
-				i = 0
-			}
-		}
+	if l.table != nil {
+		i, w := l.home(key)
+		return l.probeFrom(key, i, w)
 	}
 	i := l.slot(key)
 	return l.vals[i], l.keys[i] != 0
+}
+
+// home returns key's home slot in the loaded table and the word there.
+func (l *Lexicon) home(key uint64) (uint64, uint64) {
+	i, _ := bits.Mul64(key, uint64(len(l.table)))
+	return i, l.table[i]
+}
+
+// probeFrom finishes a loaded-table look-up of key from its home slot i
+// holding word w.
+func (l *Lexicon) probeFrom(key, i, w uint64) (uint32, bool) {
+	t, tag := l.table, uint32(key)&l.tagMask
+	for n := uint64(len(t)); ; w = t[i] {
+		if w == 0 {
+			return 0, false
+		}
+		if uint32(w>>32) == tag {
+			return uint32(w), true
+		}
+		if i++; i == n {
+			i = 0
+		}
+	}
 }
 
 // pack moves the loading table (keys, vals) into table. A key whose probe

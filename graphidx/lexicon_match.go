@@ -237,11 +237,14 @@ func (t *tokenizer) next() (int, uint64, bool) {
 	return i, tokSum(h, w, n), true
 }
 
-// textMatch is one accepted lexicon match: the byte span in the text and
-// the pattern (form) id.
+// textMatch is one accepted lexicon match: the byte span in the text, the
+// pattern (form) id, its entity and value (Lexicon.pent, pval) and the
+// entity id's span in the ents arena.
 type textMatch struct {
 	start, end int
 	pat        uint32
+	ent, val   uint32
+	eOff, eEnd uint32
 }
 
 // linkWindow is the most text tokens kept behind the current start before
@@ -386,13 +389,22 @@ func (m *linker) run(l *Lexicon, text []byte, all bool) {
 			continue
 		}
 		key := chainKey(l.seed, m.toks[i].h)
+		// The home word is loaded before the filter's bit is tested, so
+		// that the two memory reads overlap.
+		slot, word := l.home(key)
 		if !l.mayStart(key) {
 			i++ // no form starts with this token
 			continue
 		}
 		m.cand = m.cand[:0]
 		for j := i; ; {
-			v, ok := l.lookup(key)
+			var v uint32
+			var ok bool
+			if j == i {
+				v, ok = l.probeFrom(key, slot, word)
+			} else {
+				v, ok = l.lookup(key)
+			}
 			if ok && v&(patMask|overBit) != 0 {
 				m.cand = append(m.cand, candidate{j, key, v})
 			}
@@ -412,11 +424,24 @@ func (m *linker) run(l *Lexicon, text []byte, all bool) {
 		next := i + 1
 		for c := len(m.cand) - 1; c >= 0; c-- {
 			cd := m.cand[c]
+			// The entity and value of the likely pattern are read before
+			// the bytes are compared, so that these reads overlap the
+			// form's.
+			q := cd.v & patMask
+			var ent, val uint32
+			if q != 0 {
+				ent, val = l.pent[q-1], l.pval[q-1]
+			}
+			eOff, eEnd := l.ents.off[ent], l.ents.off[ent+1]
 			p, ok := l.verify(cd.key, cd.v, text[m.tokStart(i):m.toks[cd.j].end])
 			if !ok {
 				continue
 			}
-			m.found = append(m.found, textMatch{m.tokStart(i), m.toks[cd.j].end, p})
+			if p+1 != q {
+				ent, val = l.pent[p], l.pval[p]
+				eOff, eEnd = l.ents.off[ent], l.ents.off[ent+1]
+			}
+			m.found = append(m.found, textMatch{m.tokStart(i), m.toks[cd.j].end, p, ent, val, eOff, eEnd})
 			if !all {
 				next = cd.j + 1
 				break
@@ -471,11 +496,14 @@ func (l *Lexicon) Match(text []byte) []string {
 	m.run(l, text, false)
 	m.ents = m.ents[:0]
 	for _, f := range m.found {
-		m.ents = append(m.ents, l.ents.str(l.pent[f.pat]))
+		m.ents = append(m.ents, l.entityAt(f))
 	}
 	slices.Sort(m.ents)
 	return slices.Clone(slices.Compact(m.ents))
 }
+
+// entityAt is the entity id of match f, a string into the ents arena.
+func (l *Lexicon) entityAt(f textMatch) string { return bstr(l.ents.arena[f.eOff:f.eEnd]) }
 
 // release returns m to the pool, dropping buffers a huge text grew.
 func (m *linker) release() {
