@@ -173,6 +173,18 @@ var scanClass = func() (t [256]byte) {
 
 const nonASCII = 0xFF
 
+// scanFold[c] is the folded form of ASCII byte c (c itself but for the
+// upper-case letters).
+var scanFold = func() (t [utf8.RuneSelf]byte) {
+	for c := range byte(utf8.RuneSelf) {
+		t[c] = c
+		if 'A' <= c && c <= 'Z' {
+			t[c] = c + 'a' - 'A'
+		}
+	}
+	return t
+}()
+
 // next consumes the token at t.pos (which must be < len(t.text)) and
 // returns its end, the hash of its folded bytes and whether it is a word
 // token. O(token length), one table load per ASCII byte.
@@ -265,14 +277,13 @@ type linker struct {
 }
 
 // token is one text token: where it ends, the hash of its folded bytes,
-// whether it is a word token, and its shape: the first folded byte and the
-// folded byte length (for Lexicon.mayStartShape).
+// whether it is a word token, and whether it is pure ASCII (then its
+// folded length is its byte length, for Lexicon.mayStartShape).
 type token struct {
-	end  int
-	h    uint64
-	word bool
-	c0   byte
-	n    uint32
+	end   int
+	h     uint64
+	word  bool
+	ascii bool
 }
 
 // candidate is a walk position where the table holds a form: verified
@@ -305,11 +316,10 @@ func (m *linker) scan(want int) {
 			lc := wordLower[c]
 			if lc == 0 {
 				i++
-				toks = append(toks, token{i, tokSum(seed, uint64(c), 1), false, c, 1}) // not a letter: already folded
+				toks = append(toks, token{i, tokSum(seed, uint64(c), 1), false, true}) // not a letter: already folded
 				continue
 			}
 			j := i + 1
-			c0 := lc
 			h, w, n := seed, uint64(lc), uint64(1)
 			for ; j < len(s); j++ {
 				lc = scanClass[s[j]]
@@ -319,7 +329,7 @@ func (m *linker) scan(want int) {
 							break // a non-ASCII word rune: the slow path cuts this token
 						}
 					}
-					toks = append(toks, token{j, tokSum(h, w, n), true, c0, uint32(n)})
+					toks = append(toks, token{j, tokSum(h, w, n), true, true})
 					i = j
 					goto next
 				}
@@ -330,7 +340,7 @@ func (m *linker) scan(want int) {
 				}
 			}
 			if j == len(s) {
-				toks = append(toks, token{j, tokSum(h, w, n), true, c0, uint32(n)})
+				toks = append(toks, token{j, tokSum(h, w, n), true, true})
 				i = j
 				continue
 			}
@@ -338,7 +348,7 @@ func (m *linker) scan(want int) {
 		t.pos = i
 		{
 			end, h, w := t.next()
-			toks = append(toks, token{end, h, w, t.lastC0, t.lastN})
+			toks = append(toks, token{end, h, w, false})
 			i = end
 		}
 	next:
@@ -384,27 +394,21 @@ func (m *linker) run(l *Lexicon, text []byte, all bool) {
 			i++ // no form starts with a separator
 			continue
 		}
-		if !l.mayStartShape(m.toks[i].c0, m.toks[i].n) {
-			i++ // no form's first token has this first byte and length
-			continue
+		if tk := m.toks[i]; tk.ascii {
+			start := m.tokStart(i)
+			if !l.mayStartShape(scanFold[text[start]], uint32(tk.end-start)) {
+				i++ // no form's first token has this first byte and length
+				continue
+			}
 		}
 		key := chainKey(l.seed, m.toks[i].h)
-		// The home word is loaded before the filter's bit is tested, so
-		// that the two memory reads overlap.
-		slot, word := l.home(key)
 		if !l.mayStart(key) {
 			i++ // no form starts with this token
 			continue
 		}
 		m.cand = m.cand[:0]
 		for j := i; ; {
-			var v uint32
-			var ok bool
-			if j == i {
-				v, ok = l.probeFrom(key, slot, word)
-			} else {
-				v, ok = l.lookup(key)
-			}
+			v, ok := l.lookup(key)
 			if ok && v&(patMask|overBit) != 0 {
 				m.cand = append(m.cand, candidate{j, key, v})
 			}
