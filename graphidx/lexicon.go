@@ -34,15 +34,15 @@ const lexiconLineFormat = "want surface form<TAB>entity id or surface form<TAB>e
 // Representation. A surface form is case-folded and cut into tokens: a
 // maximal run of word runes (letters, digits, '_') or one single other rune.
 // Every token prefix of every form is one 64-bit key, a seeded hash chained
-// over the token hashes, in one open-addressing table of (key, flags|pattern)
-// words; the folded forms, entity ids, values and display forms live in a few
-// byte arenas indexed by 32-bit offsets. Matching walks this implicit trie
-// from each token of the text (see Link). Memory is 12 bytes per table slot
-// (about 1.43 slots per stored prefix), 12 bytes per form plus the folded
-// form's bytes, per entity its id and 8–13 bytes (and its display form when
-// that is not written in lower case), and a first-token filter of 8 KiB to
-// 1 MiB: measured 78 bytes per form for 1,000,000 generated greenhouse
-// forms. Stats().MemBytes is the exact sum of the allocated arrays; see
+// over the token hashes, in one open-addressing table of 8-byte words (the
+// key's low 32 bits as a tag, then flags|pattern); the folded forms, entity
+// ids, values and display forms live in a few byte arenas indexed by 32-bit
+// offsets. Matching walks this implicit trie from each token of the text
+// (see Link). Memory is 8 bytes per table slot (about 1.43 slots per stored
+// prefix), 12 bytes per form plus the folded form's bytes, per entity its
+// id and 8–13 bytes (and its display form when that is not written in lower
+// case), and a first-token filter of 8 KiB to 1 MiB: measured 70 bytes per
+// form for 1,000,000 generated greenhouse forms. Stats().MemBytes is the exact sum of the allocated arrays; see
 // docs/LINKING.md.
 type Lexicon struct {
 	seed    uint64
