@@ -34,24 +34,32 @@ const lexiconLineFormat = "want surface form<TAB>entity id or surface form<TAB>e
 // Representation. A surface form is case-folded and cut into tokens: a
 // maximal run of word runes (letters, digits, '_') or one single other rune.
 // Every token prefix of every form is one 64-bit key, a seeded hash chained
-// over the token hashes, in one open-addressing table of (key, flags|pattern)
-// words; the folded forms, entity ids, values and display forms live in a few
-// byte arenas indexed by 32-bit offsets. Matching walks this implicit trie
-// from each token of the text (see Link). Memory is 12 bytes per table slot
-// (about 1.43 slots per stored prefix), 12 bytes per form plus the folded
-// form's bytes, per entity its id and 8–13 bytes (and its display form when
-// that is not written in lower case), and a first-token filter of 8 KiB to
-// 1 MiB: measured 78 bytes per form for 1,000,000 generated greenhouse
-// forms. Stats().MemBytes is the exact sum of the allocated arrays; see
+// over the token hashes, in one open-addressing table of 8-byte words (the
+// key's low 32 bits as a tag, then flags|pattern); the folded forms, entity
+// ids, values and display forms live in a few byte arenas indexed by 32-bit
+// offsets. Matching walks this implicit trie from each token of the text
+// (see Link). Memory is 8 bytes per table slot (about 1.43 slots per stored
+// prefix), 12 bytes per form plus the folded form's bytes, per entity its
+// id and 8–13 bytes (and its display form when that is not written in lower
+// case), and a first-token filter of 8 KiB to 1 MiB: measured 70 bytes per
+// form for 1,000,000 generated greenhouse forms. Stats().MemBytes is the exact sum of the allocated arrays; see
 // docs/LINKING.md.
 type Lexicon struct {
 	seed    uint64
 	perRune bool // every rune is a token, no word boundaries (all-matches check mode)
 
-	// Prefix table: linear probing, slot = ⌊key·len/2⁶⁴⌋, key 0 is empty.
+	// Prefix table while loading: linear probing, slot = ⌊key·len/2⁶⁴⌋,
+	// key 0 is empty. finish packs it into table and drops it.
 	keys []uint64
 	vals []uint32 // childBit | overBit | (pattern+1)
 	used int
+	// table is the loaded prefix table, one 8-byte word per slot: the low
+	// 32 bits of the key (its tag) above the table word, 0 when empty; same
+	// slot rule. Keys with equal tags on one probe run share a word (their
+	// flags and patterns merged, see pack): that only costs work, since a
+	// match is always verified byte by byte.
+	table   []uint64
+	tagMask uint32 // the key bits a tag keeps: all but in tests of merging
 	// over holds further patterns whose folded forms hash to a key already
 	// holding another pattern (64-bit hash collisions; verified by bytes).
 	over map[uint64][]uint32
@@ -77,7 +85,12 @@ type Lexicon struct {
 	first      []uint64
 	firstShift uint
 	firstKeys  []uint64
-	stats      LexiconStats
+	// firstByte and firstLen are the shapes of the forms' first tokens:
+	// bit c of firstByte is set when some first token's folded bytes start
+	// with c, bit min(n, 63) of firstLen when one is n folded bytes long.
+	firstByte [4]uint64
+	firstLen  uint64
+	stats     LexiconStats
 }
 
 // Table word flags.
@@ -173,8 +186,15 @@ func ParseLexicon(r io.Reader, name string) (*Lexicon, error) {
 // parseLexicon is ParseLexicon; perRune selects the all-matches check mode
 // (every rune its own token, no word boundaries).
 func parseLexicon(r io.Reader, name string, perRune bool) (*Lexicon, error) {
+	return parseLexiconTags(r, name, perRune, ^uint32(0))
+}
+
+// parseLexiconTags is parseLexicon keeping only the tagMask bits of each
+// key's tag in the loaded table; tests narrow it to force merged words.
+func parseLexiconTags(r io.Reader, name string, perRune bool, tagMask uint32) (*Lexicon, error) {
 	lr := newLineReader(r, 1<<20)
 	l := newLexicon(perRune)
+	l.tagMask = tagMask
 	var (
 		folded []byte
 		tz     tokenizer
@@ -237,8 +257,13 @@ func parseLexicon(r io.Reader, name string, perRune bool) (*Lexicon, error) {
 		keys, words = keys[:0], words[:0]
 		tz.reset(form, l.seed, perRune)
 		key := l.seed
+		var c0 byte
+		var n0 uint32
 		for tz.pos < len(form) {
 			_, h, w := tz.next()
+			if len(keys) == 0 {
+				c0, n0 = tz.lastC0, tz.lastN
+			}
 			key = chainKey(key, h)
 			keys = append(keys, key)
 			words = append(words, w)
@@ -246,6 +271,10 @@ func parseLexicon(r io.Reader, name string, perRune bool) (*Lexicon, error) {
 		if e := l.add(folded, form, ent, val, n == 3, keys, words, le); e != nil {
 			return nil, e
 		}
+		// Lines whose form was not kept add their shape too: a superset
+		// only costs a filter check.
+		l.firstByte[c0>>6] |= 1 << (c0 & 63)
+		l.firstLen |= 1 << min(n0, 63)
 	}
 	if len(l.pent) == 0 {
 		return nil, &LineError{File: name, Line: lr.line, Reason: ReasonEmptyLexicon,
@@ -257,7 +286,7 @@ func parseLexicon(r io.Reader, name string, perRune bool) (*Lexicon, error) {
 }
 
 func newLexicon(perRune bool) *Lexicon {
-	l := &Lexicon{seed: rand.Uint64() | 1, perRune: perRune}
+	l := &Lexicon{seed: rand.Uint64() | 1, perRune: perRune, tagMask: ^uint32(0)}
 	l.ents.init()
 	l.values.init()
 	l.keys = make([]uint64, 1024)
@@ -389,10 +418,84 @@ func (l *Lexicon) slot(key uint64) int {
 }
 
 // lookup returns the table word of key. Expected O(1): the load is at most
-// 0.7.
+// 0.7. Once loaded, one 8-byte word per probe (table).
 func (l *Lexicon) lookup(key uint64) (uint32, bool) {
+	if l.table != nil {
+		i, w := l.home(key)
+		return l.probeFrom(key, i, w)
+	}
 	i := l.slot(key)
 	return l.vals[i], l.keys[i] != 0
+}
+
+// home returns key's home slot in the loaded table and the word there.
+func (l *Lexicon) home(key uint64) (uint64, uint64) {
+	i, _ := bits.Mul64(key, uint64(len(l.table)))
+	return i, l.table[i]
+}
+
+// probeFrom finishes a loaded-table look-up of key from its home slot i
+// holding word w.
+func (l *Lexicon) probeFrom(key, i, w uint64) (uint32, bool) {
+	t, tag := l.table, uint32(key)&l.tagMask
+	for n := uint64(len(t)); ; w = t[i] {
+		if w == 0 {
+			return 0, false
+		}
+		if uint32(w>>32) == tag {
+			return uint32(w), true
+		}
+		if i++; i == n {
+			i = 0
+		}
+	}
+}
+
+// pack moves the loading table (keys, vals) into table. A key whose probe
+// run meets a word of its tag (another key with the same low 32 bits)
+// merges into it: the flags are or-ed, and when both hold a pattern the
+// later one moves to over under its full key with overBit set, where
+// verify finds it. Every walk then sees at least the flags it saw before,
+// and any extra candidate is verified by its bytes, so matches do not
+// change. O(slots).
+func (l *Lexicon) pack() {
+	n := uint64(len(l.keys))
+	t := make([]uint64, n)
+	for j, k := range l.keys {
+		if k == 0 {
+			continue
+		}
+		v := l.vals[j]
+		i, _ := bits.Mul64(k, n)
+		for {
+			w := t[i]
+			if w == 0 {
+				t[i] = uint64(uint32(k)&l.tagMask)<<32 | uint64(v)
+				break
+			}
+			if uint32(w>>32) == uint32(k)&l.tagMask {
+				old := uint32(w)
+				merged := old | v&(childBit|overBit)
+				if p := v & patMask; p != 0 {
+					if old&patMask == 0 {
+						merged |= p
+					} else {
+						if l.over == nil {
+							l.over = map[uint64][]uint32{}
+						}
+						l.over[k] = append(l.over[k], p-1)
+						merged |= overBit
+					}
+				}
+				t[i] = uint64(uint32(w>>32))<<32 | uint64(merged)
+				break
+			}
+			if i++; i == n {
+				i = 0
+			}
+		}
+	}
+	l.table, l.keys, l.vals = t, nil, nil
 }
 
 func (l *Lexicon) claim(key uint64) int {
@@ -440,6 +543,7 @@ func (l *Lexicon) finish() {
 	if want := l.used*10/7 + 1; want < len(l.keys)*9/10 {
 		l.rehash(want)
 	}
+	l.pack()
 	// The first-token filter: about 8 bits per distinct first token, between
 	// 2^16 and 2^23 bits (8 KiB to 1 MiB, so that it stays in cache).
 	slices.Sort(l.firstKeys)
@@ -466,7 +570,7 @@ func (l *Lexicon) finish() {
 	s.Forms = len(l.pent)
 	s.Entities = l.ents.len()
 	s.Values = l.values.len()
-	mem := int64(8*cap(l.keys) + 8*cap(l.first) + 4*cap(l.vals) + cap(l.forms) + 4*cap(l.formOff) + 4*cap(l.pent) + 4*cap(l.pval) +
+	mem := int64(8*cap(l.table) + 8*cap(l.first) + cap(l.forms) + 4*cap(l.formOff) + 4*cap(l.pent) + 4*cap(l.pval) +
 		cap(l.disp) + 4*cap(l.dispOff) + 4*cap(l.entDisp) + cap(l.valued))
 	for _, ps := range l.over {
 		mem += 8 + 24 + 4*int64(cap(ps)) + 16 // key, slice header, elements, map overhead (estimate)

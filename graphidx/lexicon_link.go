@@ -3,6 +3,7 @@ package graphidx
 import (
 	"errors"
 	"fmt"
+	"slices"
 	"unicode/utf8"
 	"unsafe"
 )
@@ -75,9 +76,10 @@ func (l *Lexicon) AppendLinks(dst []Mention, text string) ([]Mention, error) {
 	defer m.release()
 	// The linker only reads the bytes; text is never written through them.
 	m.run(l, unsafe.Slice(unsafe.StringData(text), len(text)), false)
+	dst = slices.Grow(dst, len(m.found)) // one allocation at most
 	for _, f := range m.found {
-		mt := Mention{Entity: l.ents.str(l.pent[f.pat]), Start: f.start, End: f.end, Surface: text[f.start:f.end]}
-		if v := l.pval[f.pat]; v != 0 {
+		mt := Mention{Entity: l.entityAt(f), Start: f.start, End: f.end, Surface: text[f.start:f.end]}
+		if v := f.val; v != 0 {
 			mt.Value, mt.HasValue = l.values.str(v-1), true
 		}
 		dst = append(dst, mt)

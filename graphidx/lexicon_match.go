@@ -149,6 +149,10 @@ type tokenizer struct {
 	pos     int
 	seed    uint64
 	perRune bool
+	// lastN and lastC0 are the folded byte length and the first folded
+	// byte of the token next returned last (the first-token shape).
+	lastN  uint32
+	lastC0 byte
 }
 
 func (t *tokenizer) reset(text []byte, seed uint64, perRune bool) {
@@ -169,6 +173,18 @@ var scanClass = func() (t [256]byte) {
 
 const nonASCII = 0xFF
 
+// scanFold[c] is the folded form of ASCII byte c (c itself but for the
+// upper-case letters).
+var scanFold = func() (t [utf8.RuneSelf]byte) {
+	for c := range byte(utf8.RuneSelf) {
+		t[c] = c
+		if 'A' <= c && c <= 'Z' {
+			t[c] = c + 'a' - 'A'
+		}
+	}
+	return t
+}()
+
 // next consumes the token at t.pos (which must be < len(t.text)) and
 // returns its end, the hash of its folded bytes and whether it is a word
 // token. O(token length), one table load per ASCII byte.
@@ -183,21 +199,23 @@ func (t *tokenizer) next() (int, uint64, bool) {
 			if 'A' <= c && c <= 'Z' {
 				c += 'a' - 'A'
 			}
-			t.pos = i
+			t.pos, t.lastN, t.lastC0 = i, 1, c
 			return i, tokSum(h, uint64(c), 1), lc != 0
 		}
 		w, n = uint64(lc), 1
+		t.lastC0 = lc
 	} else {
 		r, sz := utf8.DecodeRune(s[i:])
 		if r == utf8.RuneError && sz == 1 {
-			t.pos = i + 1
+			t.pos, t.lastN, t.lastC0 = i+1, 1, c
 			return i + 1, tokSum(h, uint64(c), 1), false
 		}
 		r = unicode.ToLower(r)
 		h, w, n = addRune(h, w, n, r)
+		t.lastC0 = byte(w >> (8 * (n - 1))) // the first of the rune's n ≤ 4 bytes
 		i += sz
 		if word := isWordRune(r); !word || t.perRune {
-			t.pos = i
+			t.pos, t.lastN = i, uint32(n)
 			return i, tokSum(h, w, n), word
 		}
 	}
@@ -227,15 +245,18 @@ func (t *tokenizer) next() (int, uint64, bool) {
 		h, w, n = addRune(h, w, n, r)
 		i += sz
 	}
-	t.pos = i
+	t.pos, t.lastN = i, uint32(min(n, 1<<32-1))
 	return i, tokSum(h, w, n), true
 }
 
-// textMatch is one accepted lexicon match: the byte span in the text and
-// the pattern (form) id.
+// textMatch is one accepted lexicon match: the byte span in the text, the
+// pattern (form) id, its entity and value (Lexicon.pent, pval) and the
+// entity id's span in the ents arena.
 type textMatch struct {
 	start, end int
 	pat        uint32
+	ent, val   uint32
+	eOff, eEnd uint32
 }
 
 // linkWindow is the most text tokens kept behind the current start before
@@ -256,11 +277,13 @@ type linker struct {
 }
 
 // token is one text token: where it ends, the hash of its folded bytes,
-// and whether it is a word token.
+// whether it is a word token, and whether it is pure ASCII (then its
+// folded length is its byte length, for Lexicon.mayStartShape).
 type token struct {
-	end  int
-	h    uint64
-	word bool
+	end   int
+	h     uint64
+	word  bool
+	ascii bool
 }
 
 // candidate is a walk position where the table holds a form: verified
@@ -293,7 +316,7 @@ func (m *linker) scan(want int) {
 			lc := wordLower[c]
 			if lc == 0 {
 				i++
-				toks = append(toks, token{i, tokSum(seed, uint64(c), 1), false}) // not a letter: already folded
+				toks = append(toks, token{i, tokSum(seed, uint64(c), 1), false, true}) // not a letter: already folded
 				continue
 			}
 			j := i + 1
@@ -306,7 +329,7 @@ func (m *linker) scan(want int) {
 							break // a non-ASCII word rune: the slow path cuts this token
 						}
 					}
-					toks = append(toks, token{j, tokSum(h, w, n), true})
+					toks = append(toks, token{j, tokSum(h, w, n), true, true})
 					i = j
 					goto next
 				}
@@ -317,7 +340,7 @@ func (m *linker) scan(want int) {
 				}
 			}
 			if j == len(s) {
-				toks = append(toks, token{j, tokSum(h, w, n), true})
+				toks = append(toks, token{j, tokSum(h, w, n), true, true})
 				i = j
 				continue
 			}
@@ -325,7 +348,7 @@ func (m *linker) scan(want int) {
 		t.pos = i
 		{
 			end, h, w := t.next()
-			toks = append(toks, token{end, h, w})
+			toks = append(toks, token{end, h, w, false})
 			i = end
 		}
 	next:
@@ -371,6 +394,13 @@ func (m *linker) run(l *Lexicon, text []byte, all bool) {
 			i++ // no form starts with a separator
 			continue
 		}
+		if tk := m.toks[i]; tk.ascii {
+			start := m.tokStart(i)
+			if !l.mayStartShape(scanFold[text[start]], uint32(tk.end-start)) {
+				i++ // no form's first token has this first byte and length
+				continue
+			}
+		}
 		key := chainKey(l.seed, m.toks[i].h)
 		if !l.mayStart(key) {
 			i++ // no form starts with this token
@@ -398,11 +428,24 @@ func (m *linker) run(l *Lexicon, text []byte, all bool) {
 		next := i + 1
 		for c := len(m.cand) - 1; c >= 0; c-- {
 			cd := m.cand[c]
+			// The entity and value of the likely pattern are read before
+			// the bytes are compared, so that these reads overlap the
+			// form's.
+			q := cd.v & patMask
+			var ent, val uint32
+			if q != 0 {
+				ent, val = l.pent[q-1], l.pval[q-1]
+			}
+			eOff, eEnd := l.ents.off[ent], l.ents.off[ent+1]
 			p, ok := l.verify(cd.key, cd.v, text[m.tokStart(i):m.toks[cd.j].end])
 			if !ok {
 				continue
 			}
-			m.found = append(m.found, textMatch{m.tokStart(i), m.toks[cd.j].end, p})
+			if p+1 != q {
+				ent, val = l.pent[p], l.pval[p]
+				eOff, eEnd = l.ents.off[ent], l.ents.off[ent+1]
+			}
+			m.found = append(m.found, textMatch{m.tokStart(i), m.toks[cd.j].end, p, ent, val, eOff, eEnd})
 			if !all {
 				next = cd.j + 1
 				break
@@ -410,6 +453,14 @@ func (m *linker) run(l *Lexicon, text []byte, all bool) {
 		}
 		i = next
 	}
+}
+
+// mayStartShape reports whether some form's first token has first folded
+// byte c0 and folded length n (lengths of 63 bytes and more share one bit):
+// a check in two words of the Lexicon itself, before the first-token
+// filter's memory is touched. No false negatives.
+func (l *Lexicon) mayStartShape(c0 byte, n uint32) bool {
+	return l.firstByte[c0>>6]&(1<<(c0&63)) != 0 && l.firstLen&(1<<min(n, 63)) != 0
 }
 
 // mayStart reports whether some form may start with the token whose
@@ -449,11 +500,14 @@ func (l *Lexicon) Match(text []byte) []string {
 	m.run(l, text, false)
 	m.ents = m.ents[:0]
 	for _, f := range m.found {
-		m.ents = append(m.ents, l.ents.str(l.pent[f.pat]))
+		m.ents = append(m.ents, l.entityAt(f))
 	}
 	slices.Sort(m.ents)
 	return slices.Clone(slices.Compact(m.ents))
 }
+
+// entityAt is the entity id of match f, a string into the ents arena.
+func (l *Lexicon) entityAt(f textMatch) string { return bstr(l.ents.arena[f.eOff:f.eEnd]) }
 
 // release returns m to the pool, dropping buffers a huge text grew.
 func (m *linker) release() {

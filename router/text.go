@@ -156,11 +156,9 @@ func (r *Router) DecideText(ctx context.Context, lex *graphidx.Lexicon, text str
 // attempt is returned as it is.
 func (r *Router) DecideMentions(ctx context.Context, ms []graphidx.Mention, opts ...TextOption) (TextDecision, error) {
 	cfg := textConfig{maxQueries: DefaultMaxTextQueries}
-	for _, o := range opts {
-		if o == nil {
-			continue
-		}
-		if err := o(&cfg); err != nil {
+	if len(opts) > 0 { // only then does a configuration reach the heap
+		var err error
+		if cfg, err = textOptions(opts); err != nil {
 			return TextDecision{}, err
 		}
 	}
@@ -174,6 +172,20 @@ func (r *Router) DecideMentions(ctx context.Context, ms []graphidx.Mention, opts
 		}
 	}
 	return td, err
+}
+
+// textOptions applies opts to the default configuration.
+func textOptions(opts []TextOption) (textConfig, error) {
+	cfg := textConfig{maxQueries: DefaultMaxTextQueries}
+	for _, o := range opts {
+		if o == nil {
+			continue
+		}
+		if err := o(&cfg); err != nil {
+			return textConfig{}, err
+		}
+	}
+	return cfg, nil
 }
 
 // textAttempts bounds how often DecideMentions starts over because the
@@ -198,7 +210,7 @@ func swappedDuring(r *Router, td *TextDecision, gen uint64) bool {
 // queries were formed on.
 func (r *Router) decideMentionsOnce(ctx context.Context, ms []graphidx.Mention, cfg *textConfig) (TextDecision, uint64, error) {
 	td := TextDecision{Mentions: ms}
-	qs, presence, gen, err := r.formQueries(ms)
+	qs, presence, gen, err := r.formQueries(ms, false)
 	td.PresenceOnly = presence
 	if err != nil {
 		return td, gen, err
@@ -230,12 +242,20 @@ func (r *Router) decideMentionsOnce(ctx context.Context, ms []graphidx.Mention, 
 // ErrNoEvidence, ErrNoTarget. O(n·d) for n mentions and d distinct ones
 // while d ≤ smallSet, O(n) expected beyond (hash sets).
 func SplitMentions(ms []graphidx.Mention, presenceOnly bool) (evidence, targets []graphidx.Mention, err error) {
+	evidence, targets, _, err = splitMentions(ms, presenceOnly, nil, nil)
+	return evidence, targets, err
+}
+
+// splitMentions is SplitMentions appending to evidence and targets (so a
+// caller can hand it buffers on its stack); it also returns the number of
+// distinct evidence entities.
+func splitMentions(ms []graphidx.Mention, presenceOnly bool, evidence, targets []graphidx.Mention) (_, _ []graphidx.Mention, evEntities int, err error) {
 	if len(ms) == 0 {
-		return nil, nil, ErrNoMentions
+		return nil, nil, 0, ErrNoMentions
 	}
 	var evEnt mentionSet // evidence entities
 	if presenceOnly {
-		evidence = []graphidx.Mention{ms[0]}
+		evidence = append(evidence, ms[0])
 		evEnt.add(ms[0].Entity, "")
 	} else {
 		var evPair mentionSet // evidence (entity, value) pairs
@@ -249,7 +269,7 @@ func SplitMentions(ms []graphidx.Mention, presenceOnly bool) (evidence, targets 
 			}
 		}
 		if len(evidence) == 0 {
-			return nil, nil, ErrNoEvidence
+			return nil, nil, 0, ErrNoEvidence
 		}
 	}
 	var seenT mentionSet
@@ -260,9 +280,9 @@ func SplitMentions(ms []graphidx.Mention, presenceOnly bool) (evidence, targets 
 		targets = append(targets, m)
 	}
 	if len(targets) == 0 {
-		return evidence, nil, ErrNoTarget
+		return evidence, nil, evEnt.len(), ErrNoTarget
 	}
-	return evidence, targets, nil
+	return evidence, targets, evEnt.len(), nil
 }
 
 // smallSet is the size up to which mentionSet scans an array (no hashing,
@@ -320,23 +340,51 @@ func (s *mentionSet) len() int {
 	return s.n
 }
 
+// FormQueries forms the candidate queries of mentions (in text order, as
+// Link returns them, possibly with values a caller attached) by the rules
+// above on the router's current index, without deciding them: every query
+// DecideMentions would decide, in the order it decides them (the first is
+// the one it decides first), each with its pair support, and whether the
+// index is presence-only (rule 3 formed them). An endpoint the index does
+// not hold gets support 0; deciding that query gives ErrUnknownEntity.
+// Errors: ErrNoMentions, ErrNoEvidence, ErrNoTarget (all wrap
+// ErrNoQuery), ErrTooManyMentions, ErrClosed.
+//
+// Cost: O(n) for n mentions (SplitMentions), O(E+T) entity and O(E·T)
+// pair look-ups for E evidence and T target entities, and a stable sort of
+// the E·T queries.
+func (r *Router) FormQueries(ms []graphidx.Mention) (queries []TextQuery, presenceOnly bool, err error) {
+	qs, presence, _, err := r.formQueries(ms, true)
+	return qs, presence, err
+}
+
 // formQueries applies the rules on the current index: split, pair and,
 // with more than one pair, order by pair support. It reports whether the
-// index is presence-only. A single pair needs no order, so it costs no
-// index look-up here: its support is the decision's Direct.Support, and
+// index is presence-only and its generation. A single pair needs no order,
+// so unless lookupSingle is set it costs no index look-up here (the path
+// of DecideMentions): its support is the decision's Direct.Support, and
 // unknown entities and values surface as Decide's errors (see
-// explainTextErr).
-func (r *Router) formQueries(ms []graphidx.Mention) ([]TextQuery, bool, uint64, error) {
-	h := r.cur.Load()
-	if h == nil {
+// explainTextErr). All look-ups are on the one generation returned.
+func (r *Router) formQueries(ms []graphidx.Mention, lookupSingle bool) ([]TextQuery, bool, uint64, error) {
+	var h *handle
+	if lookupSingle { // it will look up: hold the generation from the start
+		var err error
+		if h, err = r.acquire(); err != nil {
+			return nil, false, 0, err
+		}
+		defer h.release()
+	} else if h = r.cur.Load(); h == nil {
 		return nil, false, 0, ErrClosed
 	}
 	presence, gen := h.presence, h.gen
-	ev, tg, err := SplitMentions(ms, presence)
+	// Most prompts name a handful of entities: split into buffers on the
+	// stack, so that only the queries are allocated.
+	var evBuf, tgBuf [4]graphidx.Mention
+	ev, tg, nev, err := splitMentions(ms, presence, evBuf[:0], tgBuf[:0])
 	if err != nil {
 		return nil, presence, gen, err
 	}
-	if n := max(distinctEntities(ev), len(tg)); n > MaxTextEntities {
+	if n := max(nev, len(tg)); n > MaxTextEntities {
 		return nil, presence, gen, fmt.Errorf("%w: %d distinct evidence or target entities, limit %d", ErrTooManyMentions, n, MaxTextEntities)
 	}
 	qs := make([]TextQuery, 0, len(ev)*len(tg))
@@ -349,22 +397,33 @@ func (r *Router) formQueries(ms []graphidx.Mention) ([]TextQuery, bool, uint64, 
 			qs = append(qs, TextQuery{Query: Query{From: e.Entity, Value: v, To: t.Entity}, Evidence: e, Target: t})
 		}
 	}
-	if len(qs) < 2 {
-		return qs, presence, gen, nil
+	if !lookupSingle {
+		if len(qs) < 2 {
+			return qs, presence, gen, nil
+		}
+		held, err := r.acquire()
+		if err != nil {
+			return nil, presence, gen, err
+		}
+		defer held.release()
+		if held.gen != gen {
+			return qs, presence, gen, nil // swapped: DecideMentions starts over
+		}
+		h = held
 	}
-	if h, err = r.acquire(); err != nil {
-		return nil, presence, gen, err
-	}
-	defer h.release()
-	if h.gen != gen {
-		return qs, presence, gen, nil // swapped: DecideMentions starts over
-	}
-	g := h.g
+	orderBySupport(h.g, qs)
+	return qs, presence, gen, nil
+}
+
+// orderBySupport sets each query's pair support on g and sorts the
+// queries by rule 4: ascending support, then the evidence's and the
+// target's first mention (a stable sort).
+func orderBySupport(g Graph, qs []TextQuery) {
 	type end struct {
 		id graphidx.EntityID
 		ok bool
 	}
-	ids := make(map[string]end, len(ev)+len(tg))
+	ids := make(map[string]end, 2*len(qs))
 	resolve := func(name string) end {
 		e, seen := ids[name]
 		if !seen {
@@ -393,7 +452,6 @@ func (r *Router) formQueries(ms []graphidx.Mention) ([]TextQuery, bool, uint64, 
 		}
 		return a.Target.Start - b.Target.Start
 	})
-	return qs, presence, gen, nil
 }
 
 // explainTextErr adds to a Decide error of a text query the mention behind
@@ -417,14 +475,6 @@ func (r *Router) explainTextErr(q TextQuery, err error) error {
 		return fmt.Errorf("%w (%s)", err, at(m))
 	}
 	return err
-}
-
-func distinctEntities(ms []graphidx.Mention) int {
-	var s mentionSet
-	for _, m := range ms {
-		s.add(m.Entity, "")
-	}
-	return s.len()
 }
 
 // quoteList renders labels as "a", "b", "c" (at most 16, then a count).

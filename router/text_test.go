@@ -248,3 +248,75 @@ func TestDecideMentionsDuringSwap(t *testing.T) {
 		}
 	}
 }
+
+// TestFormQueriesMatchesDecideMentions: FormQueries gives exactly the
+// queries DecideMentions decides, in its order, with their supports, also
+// for one pair (where DecideMentions takes the support from the decision),
+// and the no-query errors without deciding anything.
+func TestFormQueriesMatchesDecideMentions(t *testing.T) {
+	t.Parallel()
+	ctx := context.Background()
+	valued, err := New(greenhouse(1))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer valued.Close()
+	presence, err := New(presenceGraph(false))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer presence.Close()
+	for _, tc := range []struct {
+		name string
+		r    *Router
+		ms   []graphidx.Mention
+	}{
+		{"three targets", valued, []graphidx.Mention{mention("humidity-zone1", "", 0), mention("vent-north", "open", 10),
+			mention("pump-2", "", 20), mention("bed-tomato", "", 30)}},
+		{"one pair", valued, []graphidx.Mention{mention("vent-north", "open", 0), mention("pump-2", "", 20)}},
+		{"two evidence", valued, []graphidx.Mention{mention("vent-north", "open", 0), mention("pump-2", "", 5),
+			mention("vent-north", "closed", 10), mention("bed-tomato", "", 30), mention("pump-2", "", 40)}},
+		{"unknown target", valued, []graphidx.Mention{mention("vent-north", "open", 0), mention("bed-unknown", "", 9),
+			mention("pump-2", "", 20)}},
+		{"presence", presence, []graphidx.Mention{mention("vent-north", "", 0), mention("pump-2", "", 10), mention("bed-4", "", 20)}},
+	} {
+		qs, po, err := tc.r.FormQueries(tc.ms)
+		if err != nil {
+			t.Fatalf("%s: %v", tc.name, err)
+		}
+		td, derr := tc.r.DecideMentions(ctx, tc.ms, WithMaxQueries(MaxTextEntities))
+		if po != td.PresenceOnly || len(qs) != len(td.Queries) {
+			t.Fatalf("%s: presence %v, %d queries; DecideMentions %v, %d (%v)", tc.name, po, len(qs), td.PresenceOnly, len(td.Queries), derr)
+		}
+		for i := range qs {
+			want := td.Queries[i]
+			want.Key = ""
+			if qs[i] != want {
+				t.Errorf("%s: query %d %+v, DecideMentions %+v", tc.name, i, qs[i], want)
+			}
+		}
+		if len(qs) == 1 && qs[0].Support == 0 {
+			t.Errorf("%s: one pair without its support", tc.name)
+		}
+	}
+	for _, tc := range []struct {
+		ms   []graphidx.Mention
+		want error
+	}{
+		{nil, ErrNoMentions},
+		{[]graphidx.Mention{mention("vent-north", "", 0), mention("pump-2", "", 9)}, ErrNoEvidence},
+		{[]graphidx.Mention{mention("vent-north", "open", 0), mention("vent-north", "", 9)}, ErrNoTarget},
+	} {
+		if _, _, err := valued.FormQueries(tc.ms); !errors.Is(err, tc.want) || !errors.Is(err, ErrNoQuery) {
+			t.Errorf("%v: %v, want %v", tc.ms, err, tc.want)
+		}
+	}
+	closed, err := New(greenhouse(1))
+	if err != nil {
+		t.Fatal(err)
+	}
+	closed.Close()
+	if _, _, err := closed.FormQueries([]graphidx.Mention{mention("vent-north", "open", 0)}); !errors.Is(err, ErrClosed) {
+		t.Errorf("closed router: %v", err)
+	}
+}

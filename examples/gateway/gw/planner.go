@@ -43,30 +43,24 @@ type Renderer interface {
 	Render(ctx context.Context, q router.Query, d router.Decision) (string, error)
 }
 
-// TextFormer forms the query by the router's text rules
-// (router.SplitMentions: evidence = mentions stating a value, targets = the
-// entities mentioned without one; on a presence-only index the first
-// mention is the evidence) and keeps the candidate the router would decide
-// first: the evidence × target pair of least support (contexts observing
-// both), ties to the earlier evidence, then the earlier target
-// (router.Router.DecideMentions orders them so). It does not decide: the
-// gateway decides the one query through otelx, so the traced decision is
-// the real one. Mentions the lexicon links without a value get the value
-// the text states right after them, when it is one of the entity's labels
-// ("zone-2/thermometer reads-cool", "… is reads-cool", "… = reads-cool"),
-// so a lexicon of bare entity names works too. Cost: Link, then
-// O(E·T) pair look-ups for E evidence and T target mentions.
+// TextFormer forms the query by the router's own text rules: it links the
+// text, then takes the first query router.Router.FormQueries gives, which
+// is the one router.Router.DecideMentions would decide first (evidence =
+// mentions stating a value, targets = the entities mentioned without one,
+// on a presence-only index the first mention is the evidence; the pair of
+// least support first). It does not decide: the gateway decides the one
+// query through otelx, so the traced decision is the real one. Mentions the
+// lexicon links without a value get the value the text states right after
+// them, when it is one of the entity's labels ("zone-2/thermometer
+// reads-cool", "… is reads-cool", "… = reads-cool"), so a lexicon of bare
+// entity names works too. Cost: Link, then FormQueries (O(E·T) pair
+// look-ups for E evidence and T target entities).
 type TextFormer struct {
 	Lex    *graphidx.Lexicon
 	Router *router.Router
-	Vocab  Pairs
-}
-
-// Pairs is what TextFormer reads from the index (*graphidx.Index
-// satisfies it).
-type Pairs interface {
-	Vocabulary
-	Pair(a, b graphidx.EntityID) (graphidx.PairStats, bool)
+	// Vocab gives the value labels that attachValues matches; nil attaches
+	// none (the lexicon's own values still count).
+	Vocab Vocabulary
 }
 
 // Form implements Former.
@@ -78,44 +72,20 @@ func (f TextFormer) Form(_ context.Context, text, _ string) (router.Query, strin
 	if f.Vocab != nil {
 		attachValues(ms, text, f.Vocab)
 	}
-	presence := f.Router.PresenceOnly()
-	ev, tg, err := router.SplitMentions(ms, presence)
+	qs, _, err := f.Router.FormQueries(ms)
 	switch {
 	case errors.Is(err, router.ErrNoMentions):
 		return router.Query{}, PassNoMention, false
 	case errors.Is(err, router.ErrNoEvidence):
 		return router.Query{}, PassNoValue, false
-	case err != nil:
+	case errors.Is(err, router.ErrNoTarget):
 		return router.Query{}, PassOneEntity, false
-	case len(ev) > router.MaxTextEntities || len(tg) > router.MaxTextEntities:
+	case errors.Is(err, router.ErrTooManyMentions):
 		return router.Query{}, PassTooMany, false
+	case err != nil: // ErrClosed: the gateway is shutting down, nothing is routed
+		return router.Query{}, PassRoutingOff, false
 	}
-	best, bestSup := [2]int{0, 0}, uint64(0)
-	if len(ev)*len(tg) > 1 && f.Vocab != nil {
-		first := true
-		for i, e := range ev {
-			a, aok := f.Vocab.Lookup(e.Entity)
-			for j, t := range tg {
-				var sup uint64
-				if b, bok := f.Vocab.Lookup(t.Entity); aok && bok {
-					if ps, ok := f.Vocab.Pair(a, b); ok {
-						sup = ps.Support()
-					}
-				}
-				// Evidence and targets come in first-mention order, so the
-				// first pair met at the least support is the router's first.
-				if first || sup < bestSup {
-					best, bestSup, first = [2]int{i, j}, sup, false
-				}
-			}
-		}
-	}
-	e, t := ev[best[0]], tg[best[1]]
-	v := e.Value
-	if presence {
-		v = graphidx.PresentValue
-	}
-	return router.Query{From: e.Entity, Value: v, To: t.Entity}, "", true
+	return qs[0].Query, "", true
 }
 
 // attachValues gives each mention without a value the label of its entity
