@@ -11,9 +11,9 @@ import (
 	"io"
 	"math"
 	"os"
-	"path/filepath"
 	"strings"
 
+	"github.com/hopwise/hopwise/internal/atomicfile"
 	"github.com/hopwise/hopwise/scorer"
 )
 
@@ -446,28 +446,8 @@ func SaveConfig(path string, c Config) error {
 		return err
 	}
 	b = append(b, '\n')
-	f, err := os.CreateTemp(filepath.Dir(path), ".hopwise-config-*")
-	if err != nil {
+	return atomicfile.Write(path, ".hopwise-config-*", func(w io.Writer) error {
+		_, err := w.Write(b)
 		return err
-	}
-	tmp := f.Name()
-	if _, err := f.Write(b); err != nil {
-		f.Close()
-		os.Remove(tmp)
-		return err
-	}
-	if err := f.Sync(); err != nil {
-		f.Close()
-		os.Remove(tmp)
-		return err
-	}
-	if err := f.Close(); err != nil {
-		os.Remove(tmp)
-		return err
-	}
-	if err := os.Rename(tmp, path); err != nil {
-		os.Remove(tmp)
-		return err
-	}
-	return nil
+	})
 }

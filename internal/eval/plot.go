@@ -3,14 +3,16 @@ package eval
 import (
 	"fmt"
 	"image/color"
+	"io"
 	"math"
-	"os"
 
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/plotter"
 	"gonum.org/v1/plot/vg"
 	"gonum.org/v1/plot/vg/draw"
 	"gonum.org/v1/plot/vg/vgimg"
+
+	"github.com/hopwise/hopwise/internal/atomicfile"
 )
 
 // WritePlot draws the per-condition means of s as a PNG at path: one panel
@@ -92,20 +94,11 @@ func (s Summary) WritePlot(path string) error {
 	for i := range rows {
 		rows[i][0].Draw(canvases[i][0])
 	}
-	tmp := path + ".tmp"
-	f, err := os.Create(tmp)
+	err := atomicfile.Write(path, ".hopwise-plot-*", func(w io.Writer) error {
+		_, err := vgimg.PngCanvas{Canvas: img}.WriteTo(w)
+		return err
+	})
 	if err != nil {
-		return fmt.Errorf("eval: plot: %w", err)
-	}
-	_, err = vgimg.PngCanvas{Canvas: img}.WriteTo(f)
-	if cerr := f.Close(); err == nil {
-		err = cerr
-	}
-	if err == nil {
-		err = os.Rename(tmp, path)
-	}
-	if err != nil {
-		os.Remove(tmp)
 		return fmt.Errorf("eval: writing plot %s: %w", path, err)
 	}
 	return nil

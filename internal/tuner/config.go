@@ -6,13 +6,12 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"os"
-	"path/filepath"
 	"reflect"
 	"slices"
 	"strconv"
 	"strings"
 
+	"github.com/hopwise/hopwise/internal/atomicfile"
 	"github.com/hopwise/hopwise/otelx"
 	"github.com/hopwise/hopwise/router"
 )
@@ -216,25 +215,10 @@ func WriteConfig(path string, c router.Config) error {
 	if err != nil {
 		return err
 	}
-	f, err := os.CreateTemp(filepath.Dir(path), ".hopwise-config-*")
-	if err != nil {
+	return atomicfile.Write(path, ".hopwise-config-*", func(w io.Writer) error {
+		_, err := w.Write(b)
 		return err
-	}
-	tmp := f.Name()
-	_, err = io.Copy(f, bytes.NewReader(b))
-	if err == nil {
-		err = f.Sync()
-	}
-	if cerr := f.Close(); err == nil {
-		err = cerr
-	}
-	if err == nil {
-		err = os.Rename(tmp, path)
-	}
-	if err != nil {
-		os.Remove(tmp)
-	}
-	return err
+	})
 }
 
 // FormatTaus formats thresholds with the fewest significant digits (at
