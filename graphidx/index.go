@@ -90,6 +90,14 @@ type view struct {
 	counts     []uint32
 	rankOffs   []uint64
 	rank       []uint32
+
+	// names is Lookup's in-memory sample of the sorted names, built on
+	// the first Lookup (nameSample).
+	names struct {
+		once   sync.Once
+		keys   []uint64
+		prefix string // the prefix every name shares
+	}
 }
 
 var closedView = &view{closed: true}
@@ -631,11 +639,17 @@ func (v *view) marginal(id EntityID) []uint64 {
 
 // --- read API ---
 
-// Lookup returns the id of the entity called name. Binary search over the
-// sorted names: O(log n · len(name)), no allocation.
+// Lookup returns the id of the entity called name. A binary search over
+// an in-memory sample of the sorted names (nameSample) narrows the range to
+// at most nameSampleStep names, then a binary search over the names
+// themselves: O(log n + len(name)·log nameSampleStep), no allocation. The
+// sample is built on the first Lookup (O(n / nameSampleStep) reads, 8 bytes
+// per sampled name); without it the search took ~2·log₂ n dependent cache
+// misses on a large index (names' offsets and bytes), two Lookups being
+// about a tenth of an uncached decision at 1M entities.
 func (x *Index) Lookup(name string) (EntityID, bool) {
 	v := x.v.Load()
-	lo, hi := uint64(0), v.n
+	lo, hi := v.nameRange(name)
 	for lo < hi {
 		mid := lo + (hi-lo)/2
 		switch c := strings.Compare(v.nameAt(mid), name); {
@@ -648,6 +662,79 @@ func (x *Index) Lookup(name string) (EntityID, bool) {
 		}
 	}
 	return 0, false
+}
+
+// nameSampleStep is the gap between sampled names: 32 keeps the sample at
+// 0.25 bytes per entity (256 KiB at 1M entities, mostly cache-resident)
+// and leaves five probes of the names themselves.
+const nameSampleStep = 32
+
+// nameKey is the first 8 bytes of s, big-endian, zero-padded. For
+// byte-wise ordered strings a ≤ b, nameKey(a) ≤ nameKey(b) (truncation and
+// padding keep the order), so a name's key bounds where it can be. The
+// sample keys the names after the prefix they all share (names such as
+// "sensor000123" would otherwise share most of their 8 bytes). O(1).
+func nameKey(s string) uint64 {
+	var k uint64
+	for i := 0; i < 8; i++ {
+		k <<= 8
+		if i < len(s) {
+			k |= uint64(s[i])
+		}
+	}
+	return k
+}
+
+// nameRange returns [lo, hi) holding every entity whose name has the key
+// of name, from the sample: names before the last sampled key below it,
+// and from the first sampled key above it on, cannot match. O(log n).
+func (v *view) nameRange(name string) (uint64, uint64) {
+	v.names.once.Do(func() {
+		if v.n == 0 {
+			return
+		}
+		// Names are sorted, so the first and the last share the prefix
+		// that every name shares.
+		first, last := v.nameAt(0), v.nameAt(v.n-1)
+		p := 0
+		for p < len(first) && p < len(last) && first[p] == last[p] {
+			p++
+		}
+		v.names.prefix = strings.Clone(first[:p])
+		keys := make([]uint64, 0, (v.n+nameSampleStep-1)/nameSampleStep)
+		for i := uint64(0); i < v.n; i += nameSampleStep {
+			nm := v.nameAt(i)
+			if len(nm) < p {
+				nm = "" // a corrupt offset (WithLazyVerify); no panic
+			} else {
+				nm = nm[p:]
+			}
+			keys = append(keys, nameKey(nm))
+		}
+		v.names.keys = keys
+	})
+	if !strings.HasPrefix(name, v.names.prefix) {
+		return 0, 0 // no name lacks the shared prefix
+	}
+	keys := v.names.keys
+	k := nameKey(name[len(v.names.prefix):])
+	// j1: first sample with key ≥ k; sample j1−1 (key < k) and every name
+	// before it precede name. j2: first sample with key > k; it and every
+	// name after it follow name.
+	j1, _ := slices.BinarySearch(keys, k)
+	j2 := len(keys)
+	if k < math.MaxUint64 {
+		j2, _ = slices.BinarySearch(keys[j1:], k+1)
+		j2 += j1
+	}
+	lo, hi := uint64(0), v.n
+	if j1 > 0 {
+		lo = uint64(j1-1)*nameSampleStep + 1
+	}
+	if j2 < len(keys) {
+		hi = min(hi, uint64(j2)*nameSampleStep)
+	}
+	return lo, hi
 }
 
 // Name returns the name of entity id ("" if out of range). The string is a
