@@ -202,6 +202,7 @@ type scratch struct {
 	sups           []uint64
 	ord            []int32
 	jms            []jmatch
+	jchunk         []jmatch // the matches of one join chunk, popped from jms
 	rcount         []int
 	f2ends, t2ends idIndex  // layer-2 end nodes met by both sides (f2ends), of T2
 	joinA, joinB   []uint64 // b<<32 | position in f2 (A), t2 (B)
@@ -1004,27 +1005,33 @@ func (sc *scratch) joinAll() {
 			ms = append(ms, jmatch{lb: c1 + c4 + 3*hb, kind: 2, i: int32(i)})
 		}
 	}
-	slices.SortFunc(ms, func(a, b jmatch) int {
-		if c := cmp.Compare(a.lb, b.lb); c != 0 {
-			return c
-		}
-		if c := cmp.Compare(a.kind, b.kind); c != 0 {
-			return c
-		}
-		return cmp.Compare(a.i, b.i)
-	})
+	// 3. Chunks in lower-bound order, popped from a heap: the search
+	// usually stops (prune) after a few chunks, so heapifying, O(M), and
+	// popping what is used, O(used·log M), replaces sorting all M matches;
+	// the order is the same total order (lb, kind, i), so is every
+	// decision.
+	h := len(ms)
+	for i := h/2 - 1; i >= 0; i-- {
+		jmSiftDown(ms[:h], i)
+	}
 	sc.jms = ms
-	// 3. Chunks in lower-bound order.
-	for p := 0; p < len(ms); {
-		if sc.prune(ms[p].lb, 2+int(ms[p].kind)/2) {
-			for _, m := range ms[p+1:] {
+	for h > 0 {
+		if sc.prune(ms[0].lb, 2+int(ms[0].kind)/2) {
+			for _, m := range ms[1:h] {
 				sc.drop(2 + int(m.kind)/2)
 			}
 			return
 		}
-		q := min(p+joinChunk, len(ms))
+		chunk := sc.jchunk[:0]
+		for len(chunk) < joinChunk && h > 0 {
+			chunk = append(chunk, ms[0])
+			h--
+			ms[0] = ms[h]
+			jmSiftDown(ms[:h], 0)
+		}
+		sc.jchunk = chunk
 		if sc.beginPrefetch(sc.bud.left/lookupUnits + 1) {
-			for _, m := range ms[p:q] {
+			for _, m := range chunk {
 				switch m.kind {
 				case 0:
 					f := &f2[uint32(sc.joinA[m.i])]
@@ -1040,10 +1047,42 @@ func (sc *scratch) joinAll() {
 			}
 			sc.fetch()
 		}
-		for _, m := range ms[p:q] {
+		for _, m := range chunk {
 			sc.joinOne(m)
 		}
-		p = q
+	}
+}
+
+// jmLess orders join matches by (lower bound, kind, index): a total order,
+// since the index is unique within a kind.
+func jmLess(a, b *jmatch) bool {
+	if a.lb != b.lb {
+		return cmp.Less(a.lb, b.lb)
+	}
+	if a.kind != b.kind {
+		return a.kind < b.kind
+	}
+	return a.i < b.i
+}
+
+// jmSiftDown restores the min-heap order of h (by jmLess) below i.
+// O(log len(h)).
+func jmSiftDown(h []jmatch, i int) {
+	n := len(h)
+	for {
+		l := 2*i + 1
+		if l >= n {
+			return
+		}
+		m := l
+		if r := l + 1; r < n && jmLess(&h[r], &h[l]) {
+			m = r
+		}
+		if !jmLess(&h[m], &h[i]) {
+			return
+		}
+		h[i], h[m] = h[m], h[i]
+		i = m
 	}
 }
 
