@@ -190,6 +190,29 @@ func (b *budget) limit(n int) int {
 
 func (b *budget) unlimit(held int) { b.left += held }
 
+// pollEvery is how many items a loop that charges no budget (reading the
+// lists of a hub-sized layer) handles between two deadline polls.
+const pollEvery = 1024
+
+// poll reports whether the deadline has fired, recording it as take does,
+// without charging anything; for loops whose work the budget does not
+// count, so that a search cut by the deadline is the same search whatever
+// the loop. O(1).
+func (b *budget) poll() bool {
+	if b.done == nil || b.deadline {
+		return b.deadline
+	}
+	select {
+	case <-b.done:
+		b.deadline = true
+		b.exhausted = true
+		b.left = 0
+		return true
+	default:
+		return false
+	}
+}
+
 // scratch is per-call working memory, pooled per router.
 type scratch struct {
 	ws     *scorer.Workspace
@@ -518,7 +541,11 @@ func (sc *scratch) beyond(x graphidx.EntityID, rk []graphidx.EntityID, room int,
 		sc.rkSet.put(uint64(y), int32(i))
 	}
 	rest := sc.extra[:0]
-	for _, y := range all {
+	for i, y := range all {
+		if i%pollEvery == pollEvery-1 && sc.bud.poll() {
+			sc.extra = rest
+			return nil, false, false // the deadline fired (charged above)
+		}
 		if y == ex0 || y == ex1 || y == ex2 {
 			continue
 		}
@@ -599,7 +626,14 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 	ok = l1ok
 	f := sc.st.fanOut
 	rks := sc.rks[:0]
-	for _, x := range l1 {
+	for i, x := range l1 {
+		// A hub's first layer can hold 10⁵ nodes whose list offsets are
+		// read here, uncharged (cold pages of the mapping on a first
+		// call): poll the deadline.
+		if i%pollEvery == pollEvery-1 && sc.bud.poll() {
+			sc.rks = rks
+			return out, false, beamCut
+		}
 		rks = append(rks, sc.g.RankedNeighbors(x.id))
 	}
 	sc.rks = rks
@@ -777,29 +811,48 @@ func (sc *scratch) generate() searchResult {
 // other step). O(B) expected plus O(M·log M) for M matches.
 func (sc *scratch) matchJoins(skip3 bool) {
 	f1, t1, f2, t2 := sc.f1, sc.t1, sc.f2, sc.t2
+	sc.joinA, sc.joinB, sc.joinC = sc.joinA[:0], sc.joinB[:0], sc.joinC[:0]
+	// The layers of a hub hold 10⁵–10⁶ entries, indexed here without a
+	// budget charge: poll the deadline, and join nothing once it fired.
+	fired := func(i int) bool {
+		if i%pollEvery == pollEvery-1 && sc.bud.poll() {
+			sc.joinA, sc.joinB, sc.joinC = sc.joinA[:0], sc.joinB[:0], sc.joinC[:0]
+			return true
+		}
+		return false
+	}
 	sc.f1ids.reset(len(f1))
 	for i := range f1 {
+		if fired(i) {
+			return
+		}
 		sc.f1ids.put(uint64(f1[i].id), int32(i))
 	}
 	sc.t1ids.reset(len(t1))
 	for i := range t1 {
+		if fired(i) {
+			return
+		}
 		sc.t1ids.put(uint64(t1[i].id), int32(i))
 	}
-	sc.joinA = sc.joinA[:0]
 	for i := range f2 {
+		if fired(i) {
+			return
+		}
 		if _, ok := sc.t1ids.get(uint64(f2[i].b)); ok {
 			sc.joinA = append(sc.joinA, uint64(f2[i].b)<<32|uint64(i))
 		}
 	}
 	slices.Sort(sc.joinA)
-	sc.joinB = sc.joinB[:0]
 	for i := range t2 {
+		if fired(i) {
+			return
+		}
 		if _, ok := sc.f1ids.get(uint64(t2[i].b)); ok {
 			sc.joinB = append(sc.joinB, uint64(t2[i].b)<<32|uint64(i))
 		}
 	}
 	slices.Sort(sc.joinB)
-	sc.joinC = sc.joinC[:0]
 	if skip3 {
 		return
 	}
