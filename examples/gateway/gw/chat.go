@@ -266,10 +266,14 @@ func (s *Server) handleChat(w http.ResponseWriter, r *http.Request) {
 	if rt.d.Arm != "" {
 		w.Header().Set(HeaderArm, rt.d.Arm)
 	}
-	u := s.forward(w, r, c, rt, out)
-	if rt.decided && unit != "" && u.ok {
-		s.recent.Add(unit, pending{d: rt.d, in: u.in, out: u.out, latency: time.Since(start), reqModel: c.model, respModel: u.model})
-	}
+	// The decision is kept for its outcome before the answer's last bytes
+	// reach the client: a client that posts its outcome as soon as it holds
+	// the answer finds the decision already waiting.
+	s.forward(w, r, c, rt, out, func(u usage) {
+		if rt.decided && unit != "" {
+			s.recent.Add(unit, pending{d: rt.d, in: u.in, out: u.out, latency: time.Since(start), reqModel: c.model, respModel: u.model})
+		}
+	})
 }
 
 // usage is what the gateway learnt from the upstream's answer.
@@ -281,8 +285,12 @@ type usage struct {
 }
 
 // forward sends body upstream under UpstreamTimeout inside a GenAI client
-// span and relays the answer, recording usage.
-func (s *Server) forward(w http.ResponseWriter, r *http.Request, c chatRequest, rt route, body []byte) (u usage) {
+// span and relays the answer, recording usage. complete is called once,
+// with the usage, when a 2xx answer has been read whole and before its last
+// bytes are written to the client (for a stream: before the data: [DONE]
+// line, or at the end of a stream that has none); it is not called for a
+// failed or cut answer.
+func (s *Server) forward(w http.ResponseWriter, r *http.Request, c chatRequest, rt route, body []byte, complete func(usage)) (u usage) {
 	ctx, cancel := context.WithTimeout(r.Context(), s.cfg.UpstreamTimeout)
 	defer cancel()
 	ctx, span := s.ins.startCall(ctx, c.model, rt)
@@ -327,13 +335,21 @@ func (s *Server) forward(w http.ResponseWriter, r *http.Request, c chatRequest, 
 	}
 	if strings.HasPrefix(resp.Header.Get("Content-Type"), "text/event-stream") {
 		w.WriteHeader(resp.StatusCode)
-		if err := s.relayStream(ctx, w, resp.Body, &u); err != nil {
+		done := false
+		finish := func() {
+			if !done {
+				done = true
+				u.ok = true
+				complete(u)
+			}
+		}
+		if err := s.relayStream(ctx, w, resp.Body, &u, finish); err != nil {
 			errType = "stream"
 			span.SetStatus(codes.Error, "stream cut: "+err.Error())
 			s.log.Printf("gateway: upstream stream ended early: %v", err)
 			return u
 		}
-		u.ok = true
+		finish()
 		return u
 	}
 	b, err := io.ReadAll(io.LimitReader(resp.Body, s.cfg.MaxResponseBytes+1))
@@ -348,9 +364,10 @@ func (s *Server) forward(w http.ResponseWriter, r *http.Request, c chatRequest, 
 		return u
 	}
 	u.read(b)
+	u.ok = true
+	complete(u)
 	w.WriteHeader(resp.StatusCode)
 	_, _ = w.Write(b)
-	u.ok = true
 	return u
 }
 
@@ -402,7 +419,8 @@ func (u *usage) read(b []byte) {
 // relayStream copies an SSE stream line by line, flushing at the end of
 // every event, and reads the model and the usage from the data lines
 // (the final chunk carries the usage when the client asked for it).
-func (s *Server) relayStream(ctx context.Context, w http.ResponseWriter, body io.Reader, u *usage) error {
+// atDone is called just before the data: [DONE] line is written.
+func (s *Server) relayStream(ctx context.Context, w http.ResponseWriter, body io.Reader, u *usage, atDone func()) error {
 	rc := http.NewResponseController(w)
 	br := bufio.NewReaderSize(body, 32<<10)
 	var long []byte
@@ -424,6 +442,9 @@ func (s *Server) relayStream(ctx context.Context, w http.ResponseWriter, body io
 				data = bytes.TrimSpace(data)
 				if (u.model == "" || bytes.Contains(data, []byte(`"usage"`))) && len(data) > 0 && data[0] == '{' {
 					u.read(data)
+				}
+				if string(data) == "[DONE]" {
+					atDone()
 				}
 			}
 			if _, werr := w.Write(line); werr != nil {

@@ -3,6 +3,7 @@ package gw_test
 import (
 	"context"
 	"errors"
+	"fmt"
 	"io"
 	"net/http"
 	"strings"
@@ -85,7 +86,7 @@ func TestClientStreaming(t *testing.T) {
 		t.Fatalf("no usage chunk: %+v", acc.Usage)
 	}
 	var in, out int64 = -1, -1
-	for _, s := range r.spans.GetSpans() {
+	for _, s := range r.endedSpans(t, "chat greenhouse-sim") {
 		if s.Name == "chat greenhouse-sim" {
 			for _, a := range s.Attributes {
 				switch a.Key {
@@ -149,5 +150,34 @@ func TestClientPassThrough(t *testing.T) {
 	}
 	if strings.Contains(string(r.lastBody()), `"system"`) || len(cc.Choices) != 1 {
 		t.Errorf("pass-through changed the request or lost the answer: %s", r.lastBody())
+	}
+}
+
+// TestOutcomeRightAfterAnswer: a client that posts its outcome the moment
+// it holds the whole answer (the last stream chunk, or the JSON body) finds
+// its decision waiting, every time: the gateway keeps the decision before
+// the answer's last bytes leave.
+func TestOutcomeRightAfterAnswer(t *testing.T) {
+	t.Parallel()
+	r := newRig(t, gw.Config{}, nil)
+	c := client(r)
+	for i := range 40 {
+		unit := fmt.Sprintf("quick-%d", i)
+		p := params(farQuestion)
+		if i%2 == 0 {
+			p.StreamOptions = openai.ChatCompletionStreamOptionsParam{IncludeUsage: openai.Bool(true)}
+			st := c.Chat.Completions.NewStreaming(context.Background(), p, option.WithHeader(gw.HeaderUnit, unit))
+			for st.Next() {
+			}
+			if err := st.Err(); err != nil {
+				t.Fatal(err)
+			}
+			st.Close()
+		} else if _, err := c.Chat.Completions.New(context.Background(), p, option.WithHeader(gw.HeaderUnit, unit)); err != nil {
+			t.Fatal(err)
+		}
+		if code, b, _ := post(t, r.url+"/v1/outcomes", `{"unit":"`+unit+`","score":1}`); code != 200 {
+			t.Fatalf("answer %d (stream %v): outcome %d %s", i, i%2 == 0, code, b)
+		}
 	}
 }

@@ -337,7 +337,7 @@ func TestEntityHashing(t *testing.T) {
 		t.Fatalf("%d %s", code, b)
 	}
 	found := false
-	for _, s := range r.spans.GetSpans() {
+	for _, s := range r.endedSpans(t, otelx.SpanDecide) {
 		for _, a := range s.Attributes {
 			v := a.Value.Emit()
 			if strings.Contains(v, "bed-11") || strings.Contains(v, "bed-10") {

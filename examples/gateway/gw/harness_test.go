@@ -11,6 +11,7 @@ import (
 	"strings"
 	"sync"
 	"testing"
+	"time"
 
 	"github.com/hopwise/hopwise/examples/gateway/gw"
 	"github.com/hopwise/hopwise/examples/gateway/simmodel"
@@ -210,4 +211,37 @@ func httpGet(url string) (getResp, error) {
 	defer resp.Body.Close()
 	b, err := io.ReadAll(resp.Body)
 	return getResp{resp.StatusCode, b}, err
+}
+
+// endedSpans returns the ended spans once every named one has ended. The
+// client can hold the whole answer (the final stream chunk, or the last
+// byte of a JSON body) a moment before the handler ends its spans, so a
+// test that reads spans right after a call waits for them here (up to 10 s).
+func (r *rig) endedSpans(t testing.TB, names ...string) tracetest.SpanStubs {
+	t.Helper()
+	deadline := time.Now().Add(10 * time.Second)
+	for {
+		got := r.spans.GetSpans()
+		missing := ""
+		for _, n := range names {
+			found := false
+			for _, s := range got {
+				if s.Name == n {
+					found = true
+					break
+				}
+			}
+			if !found {
+				missing = n
+				break
+			}
+		}
+		if missing == "" {
+			return got
+		}
+		if time.Now().After(deadline) {
+			t.Fatalf("span %q did not end within 10 s (%d spans ended)", missing, len(got))
+		}
+		time.Sleep(2 * time.Millisecond)
+	}
 }

@@ -35,7 +35,7 @@ func TestGenAISpans(t *testing.T) {
 		t.Fatalf("%d %s", code, b)
 	}
 	var call, outcome, decide map[string]attribute.Value
-	for _, s := range r.spans.GetSpans() {
+	for _, s := range r.endedSpans(t, "chat greenhouse-sim", otelx.SpanOutcome, otelx.SpanDecide) {
 		switch s.Name {
 		case "chat greenhouse-sim":
 			if s.SpanKind != trace.SpanKindClient {
