@@ -31,14 +31,14 @@ var (
 	// ErrCountOverflow: a pair table cell counts more than MaxUint32 contexts.
 	ErrCountOverflow = errors.New("graphidx: pair count overflows uint32")
 	// ErrDuplicateEntity: a context from a foreign ContextReader observes one
-	// entity twice (the readers of this package reject such lines first).
+	// entity twice (the readers of graphidx/corpus reject such lines first).
 	ErrDuplicateEntity = errors.New("graphidx: entity observed twice in one context")
 	// ErrEmptyName: a context from a foreign ContextReader has an empty
 	// entity name or value.
 	ErrEmptyName = errors.New("graphidx: empty entity name or value")
 	// ErrWideContext: under WithPolicy(Strict), a context from a reader
 	// that does not apply WithMaxContextEntities itself has more entities
-	// than the limit. (The readers of this package report a
+	// than the limit. (The readers of graphidx/corpus report a
 	// too-many-entities LineError naming file and line instead.)
 	ErrWideContext = errors.New("graphidx: context has more entities than the limit")
 	// ErrNoContexts: Build read no valid context (an empty corpus, or one
@@ -50,18 +50,12 @@ var (
 	ErrTooFewValid = errors.New("graphidx: too few valid records in the corpus")
 )
 
-// positioner is implemented by readers that can name the file and line of
-// the context Next returned last (for errors found after reading it).
-type positioner interface {
-	position() (file string, line int)
-}
-
 // contextPlace names a context in an error: "file:line: context \"id\"" when
 // the reader tells its position, else "context \"id\"".
 func contextPlace(r ContextReader, id string) string {
 	q := "context " + EscapeControl(strconv.Quote(id))
-	if p, ok := r.(positioner); ok {
-		if f, l := p.position(); l > 0 {
+	if p, ok := r.(Positioner); ok {
+		if f, l := p.Position(); l > 0 {
 			return fmt.Sprintf("%s:%d: %s", EscapeControl(f), l, q)
 		}
 	}
@@ -432,7 +426,7 @@ func (b *buildRun) tempDir() (string, error) {
 	b.dirMu.Lock()
 	defer b.dirMu.Unlock()
 	if b.dir == "" {
-		d, err := fileio.MakeSpillDir(b.cfg.tempDir, buildDirPrefix)
+		d, err := fileio.MakeSpillDir(b.cfg.tempDir, fileio.BuildDirPrefix)
 		if err != nil {
 			return "", fmt.Errorf("graphidx: temp dir: %w", err)
 		}
@@ -732,12 +726,13 @@ func compileWith(ctx context.Context, r ContextReader, cfg buildConfig, start ti
 func (b *buildRun) read(ctx context.Context, r ContextReader, in []chan *ctxBatch, free chan *ctxBatch, sum *BuildSummary) error {
 	d := b.dict
 	br, _ := r.(interface{ BytesRead() int64 })
-	// Our JSONL reader can hand out views into its line buffer: every
-	// string kept below is cloned, so skip its interning.
+	// A reader that can hand out views into its line buffer (the JSONL
+	// reader) does so: every string kept below is cloned, so it can skip
+	// its interning.
 	transient := false
-	if t, ok := r.(interface{ setTransient(bool) }); ok {
-		t.setTransient(true)
-		defer t.setTransient(false)
+	if t, ok := r.(TransientReader); ok {
+		t.SetTransient(true)
+		defer t.SetTransient(false)
 		transient = true
 	}
 	newBatch := func() *ctxBatch {

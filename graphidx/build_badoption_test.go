@@ -27,11 +27,11 @@ func TestBadBuildOptions(t *testing.T) {
 		{WithMemBudget(MinMemBudget - 1), "WithMemBudget(1048575)"},
 	} {
 		out := filepath.Join(t.TempDir(), "x.hwx")
-		_, err := Build(context.Background(), NewJSONLReader(strings.NewReader(corpus), "c.jsonl"), out, tc.opt)
+		_, err := Build(context.Background(), jsonlReader(strings.NewReader(corpus), "c.jsonl"), out, tc.opt)
 		if !errors.Is(err, ErrBadBuildOption) || !strings.Contains(err.Error(), tc.name) {
 			t.Errorf("Build with %s: error %v, want ErrBadBuildOption naming it", tc.name, err)
 		}
-		if _, _, err := Compile(context.Background(), NewJSONLReader(strings.NewReader(corpus), "c.jsonl"), tc.opt); !errors.Is(err, ErrBadBuildOption) {
+		if _, _, err := Compile(context.Background(), jsonlReader(strings.NewReader(corpus), "c.jsonl"), tc.opt); !errors.Is(err, ErrBadBuildOption) {
 			t.Errorf("Compile with %s: error %v, want ErrBadBuildOption", tc.name, err)
 		}
 	}
@@ -39,7 +39,7 @@ func TestBadBuildOptions(t *testing.T) {
 		t.Errorf("CheckBuildOptions with WithMaxNeighbors(-3): error %v, want ErrBadBuildOption", err)
 	}
 	out := filepath.Join(t.TempDir(), "ok.hwx")
-	if _, err := Build(context.Background(), NewJSONLReader(strings.NewReader(corpus), "c.jsonl"), out,
+	if _, err := Build(context.Background(), jsonlReader(strings.NewReader(corpus), "c.jsonl"), out,
 		WithMemBudget(0), WithMemBudget(MinMemBudget), WithWorkers(1), WithMaxNeighbors(0)); err != nil {
 		t.Errorf("in-domain options: %v", err)
 	}

@@ -5,50 +5,15 @@ import (
 	"bytes"
 	"context"
 	"encoding/json"
-	"fmt"
-	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"sort"
 	"testing"
 	"time"
 
+	"github.com/hopwise/hopwise/graphidx/internal/testcorpus"
 	"github.com/hopwise/hopwise/internal/stress"
 )
-
-// benchCorpus returns n JSONL contexts of exactly 8 entities each, drawn
-// from a window of 48 entities around a random centre on a ring of ents
-// greenhouse sensors (locality: far-apart sensors never co-occur), each
-// with one of 3 states. Seeded, so every run measures the same bytes.
-func benchCorpus(n, ents int, seed uint64) []byte {
-	rng := rand.New(rand.NewPCG(seed, 11))
-	states := []string{"low", "ok", "high"}
-	var b bytes.Buffer
-	picked := make([]int, 0, 8)
-	for i := range n {
-		centre := rng.IntN(ents)
-		picked = picked[:0]
-		for len(picked) < 8 {
-			e := (centre + rng.IntN(48)) % ents
-			dup := false
-			for _, p := range picked {
-				dup = dup || p == e
-			}
-			if !dup {
-				picked = append(picked, e)
-			}
-		}
-		fmt.Fprintf(&b, `{"id":"ctx%d","obs":{`, i)
-		for j, e := range picked {
-			if j > 0 {
-				b.WriteByte(',')
-			}
-			fmt.Fprintf(&b, `"bed%d.sensor%d":"%s"`, e/16, e%16, states[(e+rng.IntN(2))%3])
-		}
-		b.WriteString("}}\n")
-	}
-	return b.Bytes()
-}
 
 // naiveCounts is the baseline: encoding/json per line and nested string
 // maps, single-threaded. counts["a=u"]["b=v"] for a < b; marginals under "".
@@ -108,7 +73,7 @@ func benchData(entities int) []byte {
 	if d, ok := benchCache[entities]; ok {
 		return d
 	}
-	d := benchCorpus(benchContexts, entities, 42)
+	d := testcorpus.JSONL(benchContexts, entities, 42)
 	benchCache[entities] = d
 	return d
 }
@@ -118,15 +83,15 @@ func benchHopwise(b *testing.B, data []byte) {
 	b.SetBytes(int64(len(data)))
 	b.ReportAllocs()
 	var sum BuildSummary
-	cpu0 := cpuTime()
+	cpu0 := testcorpus.CPUTime()
 	for b.Loop() {
 		var err error
-		sum, err = Build(context.Background(), NewJSONLReader(bytes.NewReader(data), "bench.jsonl"), out)
+		sum, err = Build(context.Background(), jsonlReader(bytes.NewReader(data), "bench.jsonl"), out)
 		if err != nil {
 			b.Fatal(err)
 		}
 	}
-	cpu := cpuTime() - cpu0
+	cpu := testcorpus.CPUTime() - cpu0
 	if sum.Contexts != benchContexts || sum.Observations != 8*benchContexts || sum.Read.SkippedTotal() != 0 {
 		b.Fatalf("sanity: %+v", sum)
 	}
@@ -137,14 +102,14 @@ func benchNaive(b *testing.B, data []byte) {
 	b.SetBytes(int64(len(data)))
 	b.ReportAllocs()
 	var n int
-	cpu0 := cpuTime()
+	cpu0 := testcorpus.CPUTime()
 	for b.Loop() {
 		var err error
 		if _, n, err = naiveCounts(data); err != nil {
 			b.Fatal(err)
 		}
 	}
-	cpu := cpuTime() - cpu0
+	cpu := testcorpus.CPUTime() - cpu0
 	if n != benchContexts {
 		b.Fatalf("sanity: %d contexts", n)
 	}
@@ -181,12 +146,12 @@ func TestBuildSpeedup(t *testing.T) {
 	stress.Require(t, "build speed-up against the naive builder")
 	// Agreement on a slice of the corpus: every naive count equals the
 	// matching cell of the compiled index.
-	small := benchCorpus(5000, 500, 3)
+	small := testcorpus.JSONL(5000, 500, 3)
 	naive, _, err := naiveCounts(small)
 	if err != nil {
 		t.Fatal(err)
 	}
-	c, _, err := Compile(context.Background(), NewJSONLReader(bytes.NewReader(small), "s.jsonl"))
+	c, _, err := Compile(context.Background(), jsonlReader(bytes.NewReader(small), "s.jsonl"))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -255,7 +220,7 @@ func TestWriteBenchCorpus(t *testing.T) {
 	const chunk = 100_000
 	for i := 0; i < n; i += chunk {
 		// Seed per chunk so the file is deterministic.
-		if _, err := f.Write(benchCorpus(min(chunk, n-i), ents, uint64(i)+1)); err != nil {
+		if _, err := f.Write(testcorpus.JSONL(min(chunk, n-i), ents, uint64(i)+1)); err != nil {
 			t.Fatal(err)
 		}
 	}

@@ -121,58 +121,11 @@ func TestWideContextCancel(t *testing.T) {
 	}
 }
 
-// TestMaxContextEntities: a context over the limit is a counted bad line
-// naming file and line (JSONL, CSV, text), an error in strict mode; the builder
-// skips and counts it from other readers, or fails under Strict.
-func TestMaxContextEntities(t *testing.T) {
+// TestBuildMaxContextEntities: the builder skips and counts a context over
+// the limit from a reader that does not apply it, or fails under Strict.
+// (The corpus readers' own handling is tested in graphidx/corpus.)
+func TestBuildMaxContextEntities(t *testing.T) {
 	t.Parallel()
-	jsonl := `{"id":"a","ents":["p1","p2"]}` + "\n" + `{"id":"wide","ents":["p1","p2","p3","p4"]}` + "\n" + `{"id":"b","ents":["p1","p3","p4"]}` + "\n"
-	csv := "context,entity\nc1,p1\nw,p1\nw,p2\nc1,p2\nw,p3\nw,p4\nc2,p3\n"
-	text := "p1 and p2\n\n\nthe wide one:\np1 p2, p3\nand p4 p1\n\np1 p3 p4\n"
-	lex, err := ParseLexicon(strings.NewReader("p1\tp1\np2\tp2\np3\tp3\np4\tp4\n"), "lex.tsv")
-	if err != nil {
-		t.Fatal(err)
-	}
-	for _, tc := range []struct {
-		name, in string
-		open     func(string, ...ReadOption) ContextReader
-		line     int
-		skipped  int64
-	}{
-		{"jsonl", jsonl, func(s string, o ...ReadOption) ContextReader {
-			return NewJSONLReader(strings.NewReader(s), "c.jsonl", o...)
-		}, 2, 1},
-		{"csv", csv, func(s string, o ...ReadOption) ContextReader {
-			return NewCSVReader(strings.NewReader(s), "c.csv", o...)
-		}, 3, 4},
-		{"text", text, func(s string, o ...ReadOption) ContextReader {
-			return NewTextReader(strings.NewReader(s), "c.txt", lex, o...)
-		}, 4, 1},
-	} {
-		t.Run(tc.name, func(t *testing.T) {
-			t.Parallel()
-			r := tc.open(tc.in, WithMaxContextEntities(3))
-			got, err := readAll(t, r)
-			if err != nil {
-				t.Fatal(err)
-			}
-			st := r.(StatsReader).Stats()
-			if st.Skipped[ReasonTooManyEntities] != tc.skipped || len(got) != 2 {
-				t.Errorf("contexts %q, skipped %v", got, st.Skipped)
-			}
-			if e := st.FirstBad[ReasonTooManyEntities]; e == nil || e.Line != tc.line {
-				t.Errorf("first bad %v, want line %d", e, tc.line)
-			}
-			var le *LineError
-			_, err = readAll(t, tc.open(tc.in, WithMaxContextEntities(3), WithPolicy(Strict)))
-			if !errors.As(err, &le) || le.Reason != ReasonTooManyEntities || le.Line != tc.line {
-				t.Errorf("strict: %v", err)
-			}
-			if got, err := readAll(t, tc.open(tc.in, WithMaxContextEntities(0))); err != nil || len(got) != 3 {
-				t.Errorf("no limit: %q %v", got, err)
-			}
-		})
-	}
 	cs := []Context{wideContext("w", 5), {ID: "s", Obs: []Observation{{"a", "1"}, {"b", "2"}}}}
 	sum, err := Build(context.Background(), &sliceReader{cs: cs}, filepath.Join(t.TempDir(), "x.hwx"), WithMaxContextEntities(4))
 	if err != nil || sum.WideContexts != 1 || sum.Contexts != 1 || !strings.Contains(sum.String(), "wide contexts") {
@@ -202,7 +155,7 @@ func TestBuildNeverReplacesWithEmpty(t *testing.T) {
 				bo = append(bo, b)
 			}
 		}
-		return Build(context.Background(), NewJSONLReader(bytes.NewReader(corpus), "g.jsonl", opts...), out, bo...)
+		return Build(context.Background(), jsonlReader(bytes.NewReader(corpus), "g.jsonl", opts...), out, bo...)
 	}
 	if _, err := build(good.Bytes()); err != nil {
 		t.Fatal(err)
@@ -238,7 +191,7 @@ func TestBuildNeverReplacesWithEmpty(t *testing.T) {
 		}
 	}
 	// The share guard can be lowered.
-	if _, err := Build(context.Background(), NewJSONLReader(bytes.NewReader(mostlyBad), "g.jsonl"), out, WithMinValidShare(0.2)); err != nil {
+	if _, err := Build(context.Background(), jsonlReader(bytes.NewReader(mostlyBad), "g.jsonl"), out, WithMinValidShare(0.2)); err != nil {
 		t.Errorf("share 0.2: %v", err)
 	}
 }
@@ -270,61 +223,6 @@ func TestBuildCancelledInWritePhase(t *testing.T) {
 	}
 }
 
-// TestHostileNames: control characters, lone surrogates and case-variant
-// keys are rejected naming the line and the reason.
-func TestHostileNames(t *testing.T) {
-	t.Parallel()
-	for _, tc := range []struct {
-		line, reason string
-	}{
-		{`{"id":"c","ents":["vent\u001b[2J"]}`, ReasonControlChar},
-		{`{"id":"c","obs":{"vent":"op\u0085en"}}`, ReasonControlChar},
-		{`{"id":"c\u007f","ents":["vent"]}`, ReasonControlChar},
-		{`{"id":"c","ents":["zone-\ud800"]}`, ReasonBadUTF8},
-		{`{"id":"c","ents":["zone-\udc00\ud800"]}`, ReasonBadUTF8},
-		{`{"id":"c","ents":["zone-\ud800x"]}`, ReasonBadUTF8},
-		{`{"id":"c","ents":["a"],"ID":"d"}`, ReasonBadField},
-		{`{"id":"c","Obs":{"a":"1"},"ents":["b"]}`, ReasonBadField},
-		{`{"id":"c","ENTS":["a"],"ents":["b"]}`, ReasonBadField},
-	} {
-		in := `{"id":"ok","ents":["zone-\ud83c\udf31","pump"]}` + "\n" + tc.line + "\n"
-		got, err := readAll(t, NewJSONLReader(strings.NewReader(in), "h.jsonl"))
-		if err != nil || len(got) != 1 || !strings.Contains(got[0], "zone-\U0001F331") {
-			t.Errorf("%s: lenient read %q %v", tc.line, got, err)
-		}
-		_, err = readAll(t, NewJSONLReader(strings.NewReader(in), "h.jsonl", WithPolicy(Strict)))
-		var le *LineError
-		if !errors.As(err, &le) || le.Reason != tc.reason || le.Line != 2 {
-			t.Errorf("%s: strict %v, want h.jsonl:2 %s", tc.line, err, tc.reason)
-			continue
-		}
-		if msg := le.Error(); strings.ContainsAny(msg, "\x1b\x7f") || strings.Contains(msg, "\u0085") {
-			t.Errorf("%s: error message carries a raw control character: %q", tc.line, msg)
-		}
-	}
-	csv := "context,entity,value\nc1,vent,open\nc1,\"bed\x1b]0;x\x07\",dry\n"
-	_, err := readAll(t, NewCSVReader(strings.NewReader(csv), "h.csv", WithPolicy(Strict)))
-	var le *LineError
-	if !errors.As(err, &le) || le.Reason != ReasonControlChar || le.Line != 3 {
-		t.Errorf("csv: %v", err)
-	}
-}
-
-// TestCSVOpenQuoteNamesSwallowedLines: a quote that never closes reports
-// the lines it swallowed.
-func TestCSVOpenQuoteNamesSwallowedLines(t *testing.T) {
-	t.Parallel()
-	in := "context,entity,value\nc1,vent,open\nc2,\"pump,on\nc3,bed,dry\nc4,bed,wet\nc5,fan,off\n"
-	r := NewCSVReader(strings.NewReader(in), "q.csv")
-	if _, err := readAll(t, r); err != nil {
-		t.Fatal(err)
-	}
-	e := r.Stats().FirstBad[ReasonBadQuote]
-	if e == nil || e.Line != 3 || !strings.Contains(e.Detail, "lines 4-6") || !strings.Contains(e.Detail, "3 lines") {
-		t.Errorf("bad-quote error %v: want line 3 naming the swallowed lines 4-6", e)
-	}
-}
-
 // TestTooManyValuesNamesFileLine: a 65th value names file and line.
 func TestTooManyValuesNamesFileLine(t *testing.T) {
 	t.Parallel()
@@ -332,7 +230,7 @@ func TestTooManyValuesNamesFileLine(t *testing.T) {
 	for i := range MaxValues + 1 {
 		fmt.Fprintf(&b, `{"id":"c%d","obs":{"valve":"v%02d","bed":"dry"}}`+"\n", i, i)
 	}
-	_, err := Build(context.Background(), NewJSONLReader(strings.NewReader(b.String()), "v.jsonl"), filepath.Join(t.TempDir(), "v.hwx"))
+	_, err := Build(context.Background(), jsonlReader(strings.NewReader(b.String()), "v.jsonl"), filepath.Join(t.TempDir(), "v.hwx"))
 	if !errors.Is(err, ErrTooManyValues) || !strings.Contains(err.Error(), fmt.Sprintf("v.jsonl:%d:", MaxValues+1)) {
 		t.Errorf("got %v, want v.jsonl:%d", err, MaxValues+1)
 	}

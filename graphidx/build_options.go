@@ -21,7 +21,8 @@ const MinMemBudget = 1 << 20
 // BuildOption configures Build and Compile.
 type BuildOption interface{ applyBuild(*buildConfig) }
 
-// SharedOption configures both a corpus reader and the builder.
+// SharedOption configures both a corpus reader (graphidx/corpus) and the
+// builder.
 type SharedOption interface {
 	ReadOption
 	BuildOption
@@ -141,9 +142,9 @@ func (o memBudgetOption) applyBuild(c *buildConfig) {
 	}
 }
 
-func (o memBudgetOption) applyRead(c *readConfig) {
+func (o memBudgetOption) ApplyRead(s *ReadSettings) {
 	if o > 0 {
-		c.memLimit = max(int64(o), 64<<10)
+		s.MemBudget = max(int64(o), 64<<10)
 	}
 }
 
@@ -160,7 +161,7 @@ func WithMemBudget(bytes int64) SharedOption { return memBudgetOption(bytes) }
 type tempDirOption string
 
 func (o tempDirOption) applyBuild(c *buildConfig) { c.tempDir = string(o) }
-func (o tempDirOption) applyRead(c *readConfig)   { c.tempDir = string(o) }
+func (o tempDirOption) ApplyRead(s *ReadSettings) { s.TempDir = string(o) }
 
 // DefaultMaxContextEntities is the default limit on the entities of one
 // context (WithMaxContextEntities). A context of n entities costs n(n−1)/2
@@ -177,10 +178,10 @@ const DefaultMaxContextEntities = 2048
 type maxCtxEntsOption int
 
 func (o maxCtxEntsOption) applyBuild(c *buildConfig) { c.maxCtxEnts = max(int(o), 0) }
-func (o maxCtxEntsOption) applyRead(c *readConfig)   { c.maxCtxEnts = max(int(o), 0) }
+func (o maxCtxEntsOption) ApplyRead(s *ReadSettings) { s.MaxContextEntities = max(int(o), 0) }
 
 // WithMaxContextEntities bounds the entities of one context. The readers of
-// this package reject a wider context as a bad line (reason
+// graphidx/corpus reject a wider context as a bad line (reason
 // too-many-entities, naming file and line: skipped and counted in lenient
 // mode, an error in strict mode) without keeping its observations; the
 // builder skips and counts wider contexts from other readers

@@ -35,7 +35,7 @@ func TestBuildRankPrefixOption(t *testing.T) {
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			out := filepath.Join(t.TempDir(), "x.hwx")
-			if _, err := Build(context.Background(), NewJSONLReader(strings.NewReader(corpus), "c.jsonl"), out, tc.opts...); err != nil {
+			if _, err := Build(context.Background(), jsonlReader(strings.NewReader(corpus), "c.jsonl"), out, tc.opts...); err != nil {
 				t.Fatal(err)
 			}
 			x, err := Open(out)
@@ -57,7 +57,7 @@ func TestBuildRankPrefixOption(t *testing.T) {
 		})
 	}
 	for _, bad := range []int{0, -1, MaxRankPrefix + 1} {
-		r := &countingReader{ContextReader: NewJSONLReader(strings.NewReader(corpus), "c.jsonl")}
+		r := &countingReader{ContextReader: jsonlReader(strings.NewReader(corpus), "c.jsonl")}
 		_, err := Build(context.Background(), r, filepath.Join(t.TempDir(), "x.hwx"), WithRankPrefix(bad))
 		if err == nil || !strings.Contains(err.Error(), "rank prefix") {
 			t.Errorf("WithRankPrefix(%d): err = %v, want a rank prefix error", bad, err)

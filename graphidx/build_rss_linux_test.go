@@ -40,7 +40,7 @@ func TestBuildPeakRSS(t *testing.T) {
 	}
 	budget := mib << 20
 	defer debug.SetMemoryLimit(debug.SetMemoryLimit(budget))
-	r, cl, err := OpenCorpus(path, "", "")
+	r, cl, err := OpenCorpusForTest(path)
 	if err != nil {
 		t.Fatal(err)
 	}

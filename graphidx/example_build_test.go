@@ -6,18 +6,19 @@ import (
 	"strings"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/corpus"
 )
 
 // Compile counts a small greenhouse corpus; the bad last line is skipped
 // and counted, not dropped silently.
 func ExampleCompile() {
-	corpus := `{"id":"c1","obs":{"vent3":"open","zone2":"humid"}}
+	text := `{"id":"c1","obs":{"vent3":"open","zone2":"humid"}}
 {"id":"c2","obs":{"vent3":"closed","zone2":"humid"}}
 {"id":"c3","obs":{"vent3":"open","zone2":"dry"}}
 {"id":"c4","ents":["pump1","bed4"]}
 not a context
 `
-	r := graphidx.NewJSONLReader(strings.NewReader(corpus), "greenhouse.jsonl")
+	r := corpus.NewJSONLReader(strings.NewReader(text), "greenhouse.jsonl")
 	c, sum, err := graphidx.Compile(context.Background(), r)
 	if err != nil {
 		fmt.Println(err)

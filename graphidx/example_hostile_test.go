@@ -9,6 +9,7 @@ import (
 	"strings"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/corpus"
 )
 
 // A name with a terminal escape is printed escaped; clean names are
@@ -24,7 +25,7 @@ func ExampleEscapeControl() {
 // A context wider than the limit is skipped and counted, naming its line;
 // a build that is left with no valid context fails and writes nothing.
 func ExampleWithMaxContextEntities() {
-	corpus := `{"id":"c1","ents":["vent-1","bed-2"]}
+	text := `{"id":"c1","ents":["vent-1","bed-2"]}
 {"id":"c2","ents":["vent-1","bed-2","pump-3","fan-4"]}
 `
 	dir, err := os.MkdirTemp("", "example-wide-")
@@ -33,12 +34,12 @@ func ExampleWithMaxContextEntities() {
 	}
 	defer os.RemoveAll(dir)
 	out := filepath.Join(dir, "greenhouse.hwx")
-	r := graphidx.NewJSONLReader(strings.NewReader(corpus), "greenhouse.jsonl", graphidx.WithMaxContextEntities(3))
+	r := corpus.NewJSONLReader(strings.NewReader(text), "greenhouse.jsonl", graphidx.WithMaxContextEntities(3))
 	sum, err := graphidx.Build(context.Background(), r, out, graphidx.WithMinValidShare(0))
 	fmt.Println(sum.Contexts, sum.Read.Skipped[graphidx.ReasonTooManyEntities], err)
 	fmt.Println(sum.Read.FirstBad[graphidx.ReasonTooManyEntities])
 
-	r = graphidx.NewJSONLReader(strings.NewReader("\n"), "empty.jsonl")
+	r = corpus.NewJSONLReader(strings.NewReader("\n"), "empty.jsonl")
 	_, err = graphidx.Build(context.Background(), r, out)
 	fmt.Println(errors.Is(err, graphidx.ErrNoContexts))
 	// Output:

@@ -9,6 +9,8 @@ import (
 	"os"
 	"slices"
 	"strconv"
+
+	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
 // ReasonDuplicateSurface names a lexicon line whose surface form (after case
@@ -167,7 +169,8 @@ func LoadLexicon(path string) (*Lexicon, error) {
 // MaxNameBytes. Surface forms are case-folded (unicode.ToLower per rune).
 // Several forms may name one entity. A form with a value states that value
 // of the entity ("probe reads wet" → moisture-probe = reads-wet); an entity
-// with at least one such form is a valued entity (see TextReader).
+// with at least one such form is a valued entity (see the text reader of
+// graphidx/corpus).
 //
 // Collision rule: when two lines give the same folded form different targets
 // (entity, value), the first listed line wins and the later one is counted
@@ -192,7 +195,7 @@ func parseLexicon(r io.Reader, name string, perRune bool) (*Lexicon, error) {
 // parseLexiconTags is parseLexicon keeping only the tagMask bits of each
 // key's tag in the loaded table; tests narrow it to force merged words.
 func parseLexiconTags(r io.Reader, name string, perRune bool, tagMask uint32) (*Lexicon, error) {
-	lr := newLineReader(r, 1<<20)
+	lr := fileio.NewLineReader(r, 1<<20)
 	l := newLexicon(perRune)
 	l.tagMask = tagMask
 	var (
@@ -202,17 +205,17 @@ func parseLexiconTags(r io.Reader, name string, perRune bool, tagMask uint32) (*
 		words  []bool
 	)
 	for {
-		line, err := lr.next()
+		line, err := lr.Next()
 		if err == io.EOF {
 			break
 		}
 		if err != nil {
-			return nil, fmt.Errorf("%s:%d: %w", name, lr.line+1, err)
+			return nil, fmt.Errorf("%s:%d: %w", name, lr.Line+1, err)
 		}
 		le := func(field, reason, detail string) *LineError {
-			return &LineError{File: name, Line: lr.line, Field: field, Reason: reason, Detail: detail}
+			return &LineError{File: name, Line: lr.Line, Field: field, Reason: reason, Detail: detail}
 		}
-		if lr.tooLong {
+		if lr.TooLong {
 			return nil, le("", ReasonLineTooLong, "longer than 1 MiB")
 		}
 		t := bytes.TrimSpace(line)
@@ -244,7 +247,7 @@ func parseLexiconTags(r io.Reader, name string, perRune bool, tagMask uint32) (*
 			if c.field == "value" && n == 2 {
 				break
 			}
-			if why := checkName(c.b); why != "" {
+			if why := CheckName(c.b); why != "" {
 				detail := ""
 				if c.field == "value" && why == ReasonEmptyName {
 					detail = "the third column is empty; drop the trailing tab for a form without a value"
@@ -277,11 +280,11 @@ func parseLexiconTags(r io.Reader, name string, perRune bool, tagMask uint32) (*
 		l.firstLen |= 1 << min(n0, 63)
 	}
 	if len(l.pent) == 0 {
-		return nil, &LineError{File: name, Line: lr.line, Reason: ReasonEmptyLexicon,
+		return nil, &LineError{File: name, Line: lr.Line, Reason: ReasonEmptyLexicon,
 			Detail: "no surface form lines (" + lexiconLineFormat + ")"}
 	}
 	l.finish()
-	l.stats.Lines = lr.line
+	l.stats.Lines = lr.Line
 	return l, nil
 }
 

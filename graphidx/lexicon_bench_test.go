@@ -11,6 +11,8 @@ import (
 	"testing"
 	"time"
 	"unsafe"
+
+	"github.com/hopwise/hopwise/graphidx/internal/testcorpus"
 )
 
 var greenhouseKinds = []string{"moisture probe", "leaf wilt", "vent motor", "drip valve", "soil moisture",
@@ -83,10 +85,10 @@ func BenchmarkLexicon1M(b *testing.B) {
 	var before, after runtime.MemStats
 	runtime.GC()
 	runtime.ReadMemStats(&before)
-	t0 := cpuTime() // the process's CPU: the collector's work counts too
+	t0 := testcorpus.CPUTime() // the process's CPU: the collector's work counts too
 	w0 := time.Now()
 	l, err := ParseLexicon(bytes.NewReader(data), "gen.tsv")
-	loadCPU, loadWall := cpuTime()-t0, time.Since(w0)
+	loadCPU, loadWall := testcorpus.CPUTime()-t0, time.Since(w0)
 	if err != nil {
 		b.Fatal(err)
 	}

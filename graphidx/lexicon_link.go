@@ -19,6 +19,9 @@ var (
 	// ErrInvalidText is returned by Lexicon.Link for a text that is not valid
 	// UTF-8; the error names the first bad byte offset.
 	ErrInvalidText = errors.New("graphidx: text is not valid UTF-8")
+	// ErrNilLexicon is returned by Lexicon.Link and AppendLinks called on a
+	// nil *Lexicon.
+	ErrNilLexicon = errors.New("graphidx: no lexicon")
 )
 
 // Mention is one lexicon match in a text.
@@ -55,7 +58,7 @@ func (l *Lexicon) Link(text string) ([]Mention, error) {
 // does not allocate.
 func (l *Lexicon) AppendLinks(dst []Mention, text string) ([]Mention, error) {
 	if l == nil {
-		return dst, fmt.Errorf("%w: Link on a nil *Lexicon", ErrLexiconRequired)
+		return dst, fmt.Errorf("%w: Link on a nil *Lexicon", ErrNilLexicon)
 	}
 	if len(text) > MaxLinkBytes {
 		return dst, fmt.Errorf("%w: %d bytes, limit %d", ErrTextTooLong, len(text), MaxLinkBytes)
@@ -86,3 +89,60 @@ func (l *Lexicon) AppendLinks(dst []Mention, text string) ([]Mention, error) {
 	}
 	return dst, nil
 }
+
+// Found is one mention reported by a Matcher: its byte span in the text,
+// and its entity and value by number rather than by name, so that a caller
+// aggregating many mentions (the text corpus reader) compares integers.
+// Entities are numbered 0, 1, … in the order the lexicon file first names
+// them, and so are values; EntityName and ValueName return the names.
+type Found struct {
+	// Start and End are the mention's byte span: text[Start:End].
+	Start, End int
+	// Entity is the number of the entity the surface form names.
+	Entity uint32
+	// Value is the number of the value the form states, valid only when
+	// HasValue.
+	Value    uint32
+	HasValue bool
+}
+
+// Matcher finds the mentions of one lexicon in a sequence of texts, reusing
+// its scratch memory from text to text: the entry point of the text corpus
+// reader (graphidx/corpus), which links every paragraph of a corpus. The
+// mentions are those of Link (same rules, text order). A Matcher is not
+// safe for concurrent use; the Lexicon itself is, so use one Matcher per
+// goroutine.
+type Matcher struct {
+	l     *Lexicon
+	m     linker
+	found []Found
+}
+
+// NewMatcher returns a Matcher over l.
+func (l *Lexicon) NewMatcher() *Matcher { return &Matcher{l: l} }
+
+// Find returns the mentions of the lexicon in text, in text order. Unlike
+// Link it takes a text of any length and does not check it: bytes that are
+// not valid UTF-8 never match. The slice is reused by the next call. Cost as
+// for Link, with no allocation once the Matcher's buffers have grown to the
+// largest text.
+func (m *Matcher) Find(text []byte) []Found {
+	m.m.run(m.l, text, false)
+	m.found = m.found[:0]
+	for _, f := range m.m.found {
+		m.found = append(m.found, Found{Start: f.start, End: f.end, Entity: f.ent, Value: f.val - 1, HasValue: f.val != 0})
+	}
+	return m.found
+}
+
+// EntityName is the id of entity number n (see Found). It panics when n is
+// not below Stats().Entities. O(1), no allocation.
+func (l *Lexicon) EntityName(n uint32) string { return l.ents.str(n) }
+
+// ValueName is the label of value number n (see Found). It panics when n is
+// not below Stats().Values. O(1), no allocation.
+func (l *Lexicon) ValueName(n uint32) string { return l.values.str(n) }
+
+// Valued reports whether entity number n is a valued entity: at least one of
+// its forms states a value (see ParseLexicon). O(1).
+func (l *Lexicon) Valued(n uint32) bool { return l.valued[n] }

@@ -156,38 +156,6 @@ func TestLinkValues(t *testing.T) { // not parallel: AllocsPerRun
 	}
 }
 
-func TestTextReaderValues(t *testing.T) {
-	t.Parallel()
-	l := mustLexicon(t, "moisture probe\tprobe\nprobe reads wet\tprobe\treads-wet\nprobe reads dry\tprobe\treads-dry\n"+
-		"vent 3\tvent3\n")
-	text := "Probe reads wet near vent 3; the moisture probe again.\n\n" + // probe=reads-wet (value-less mention ignored)
-		"The moisture probe near vent 3.\n\n" + // probe left out (no value stated): Unvalued
-		"probe reads wet at dawn,\nprobe reads dry at noon, vent 3.\n\n" + // two values: conflicting-values at line 6
-		"the moisture probe alone\n" // only an unvalued mention: Empty
-	r := NewTextReader(strings.NewReader(text), "log.txt", l)
-	got, err := readAll(t, r)
-	if err != nil {
-		t.Fatal(err)
-	}
-	want := []string{"log.txt#p1:probe=reads-wet,vent3=present", "log.txt#p2:vent3=present"}
-	if !slices.Equal(got, want) {
-		t.Errorf("got %q\nwant %q", got, want)
-	}
-	st := r.Stats()
-	if st.Records != 4 || st.OK != 2 || st.Empty != 1 || st.Skipped[ReasonConflictingValues] != 1 || st.Unvalued != 2 {
-		t.Errorf("stats %+v", st)
-	}
-	checkReconcile(t, st)
-	fb := st.FirstBad[ReasonConflictingValues]
-	if fb == nil || fb.Line != 6 || !strings.Contains(fb.Detail, `"probe" = "reads-wet" ("probe reads wet") and "reads-dry" ("probe reads dry")`) {
-		t.Errorf("conflict error %v", fb)
-	}
-	_, err = readAll(t, NewTextReader(strings.NewReader(text), "log.txt", l, WithPolicy(Strict)))
-	if le := (*LineError)(nil); !errors.As(err, &le) || le.Reason != ReasonConflictingValues || le.Line != 6 {
-		t.Errorf("strict: %v", err)
-	}
-}
-
 // poolDrops reports whether sync.Pool drops items it was given, as it does
 // on purpose under the race detector; allocation counts then mean nothing.
 func poolDrops() bool {

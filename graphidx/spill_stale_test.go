@@ -22,7 +22,7 @@ func TestStaleSpillDirsRemoved(t *testing.T) {
 		t.Skip("no process liveness check on this platform")
 	}
 	dead := deadPid(t)
-	for _, prefix := range []string{buildDirPrefix, csvDirPrefix} {
+	for _, prefix := range []string{fileio.BuildDirPrefix, fileio.CSVDirPrefix} {
 		dir := t.TempDir()
 		mk := func(name string) string {
 			p := filepath.Join(dir, name)
@@ -61,7 +61,7 @@ func TestStaleSpillDirsRemoved(t *testing.T) {
 	// Through Build: a spilling build over a temp dir with a stale
 	// directory removes it and leaves nothing of its own.
 	dir := t.TempDir()
-	stale := filepath.Join(dir, fmt.Sprintf("%s%d-55", buildDirPrefix, dead))
+	stale := filepath.Join(dir, fmt.Sprintf("%s%d-55", fileio.BuildDirPrefix, dead))
 	if err := os.MkdirAll(stale, 0o755); err != nil {
 		t.Fatal(err)
 	}
@@ -70,7 +70,7 @@ func TestStaleSpillDirsRemoved(t *testing.T) {
 		fmt.Fprintf(&b, `{"id":"c%d","obs":{"e%d":"v%d","e%d":"v%d","e%d":"v%d","e%d":"v%d"}}`+"\n",
 			i, i%997, i%3, (i*7+1)%997+1000, i%2, (i*13+5)%997+2000, i%4, (i*31+7)%991+3000, i%5)
 	}
-	sum, err := Build(context.Background(), NewJSONLReader(strings.NewReader(b.String()), "c.jsonl"),
+	sum, err := Build(context.Background(), jsonlReader(strings.NewReader(b.String()), "c.jsonl"),
 		filepath.Join(t.TempDir(), "x.hwx"), WithTempDir(dir), WithMemBudget(MinMemBudget), WithWorkers(2))
 	if err != nil {
 		t.Fatal(err)

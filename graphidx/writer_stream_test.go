@@ -12,6 +12,8 @@ import (
 	"runtime"
 	"strings"
 	"testing"
+
+	"github.com/hopwise/hopwise/graphidx/internal/testcorpus"
 )
 
 // TestStreamingWriterMatchesReference: WriteFile gives, byte for byte, the
@@ -141,7 +143,7 @@ type writerCase struct {
 func writerCases(t *testing.T) []writerCase {
 	t.Helper()
 	compiled := func(data []byte) Source {
-		c, _, err := Compile(context.Background(), NewJSONLReader(bytes.NewReader(data), "s.jsonl"))
+		c, _, err := Compile(context.Background(), jsonlReader(bytes.NewReader(data), "s.jsonl"))
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -190,7 +192,7 @@ func writerCases(t *testing.T) []writerCase {
 		{"mixedK", ixRandomSource(200, 10, 0, 2)},
 		{"dense", ixRandomSource(40, 39, 3, 3)},
 		{"hub", hub},
-		{"built", compiled(benchCorpus(3000, 400, 7))},
+		{"built", compiled(testcorpus.JSONL(3000, 400, 7))},
 	}
 }
 
@@ -422,7 +424,7 @@ func TestBuildWritePhaseFlatInPairs(t *testing.T) {
 		var at uint64
 		var ms runtime.MemStats
 		var delta uint64
-		sum, err := Build(context.Background(), NewJSONLReader(bytes.NewReader(data), "ring.jsonl"),
+		sum, err := Build(context.Background(), jsonlReader(bytes.NewReader(data), "ring.jsonl"),
 			filepath.Join(t.TempDir(), "r.hwx"), WithTempDir(t.TempDir()), WithMemBudget(64<<20),
 			WithWriteOptions(WithWriteMemory(1<<20)),
 			WithProgress(func(ev ProgressEvent) {

@@ -5,7 +5,7 @@
 // `hopwise build --from-counts DIR`.
 //
 // It is a nested Go module so that the core hopwise module does not depend
-// on Beam. It reuses the core's line parser (graphidx.JSONLLineParser), its
+// on Beam. It reuses the core's line parser (corpus.JSONLLineParser), its
 // counting (counts.Partial) and its count-shard format
 // (counts.WriteCountShard, specified in graphidx/COUNTS.md): the index
 // compiled from the shards is byte-identical to graphidx.Build on the same

@@ -16,6 +16,7 @@ import (
 	"github.com/apache/beam/sdks/v2/go/pkg/beam/io/textio"
 	"github.com/apache/beam/sdks/v2/go/pkg/beam/register"
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/corpus"
 	"github.com/hopwise/hopwise/graphidx/counts"
 )
 
@@ -58,7 +59,7 @@ type Config struct {
 	// DefaultFlushCells).
 	FlushCells int
 	// MaxLineBytes is the longest accepted line (default
-	// graphidx.DefaultMaxLineBytes).
+	// corpus.DefaultMaxLineBytes).
 	MaxLineBytes int
 }
 
@@ -79,7 +80,7 @@ func (c *Config) check() error {
 		c.FlushCells = DefaultFlushCells
 	}
 	if c.MaxLineBytes <= 0 {
-		c.MaxLineBytes = graphidx.DefaultMaxLineBytes
+		c.MaxLineBytes = corpus.DefaultMaxLineBytes
 	}
 	return nil
 }
@@ -110,7 +111,7 @@ func init() {
 }
 
 // Pipeline adds the counting job to s: read the corpus lines → parse each
-// line with graphidx.JSONLLineParser and count it into a per-bundle
+// line with corpus.JSONLLineParser and count it into a per-bundle
 // counts.Partial → emit its cells keyed by counts.CountCell.AppendKey →
 // CombinePerKey (sum) → route each cell to shard CountCell.Shard(Shards) →
 // GroupByKey on the shard → each shard is sorted and written by one worker
@@ -172,14 +173,14 @@ type countFn struct {
 	MaxLineBytes int
 
 	p        *counts.Partial
-	parsers  map[string]*graphidx.JSONLLineParser
+	parsers  map[string]*corpus.JSONLLineParser
 	key      []byte
 	lines    beam.Counter
 	contexts beam.Counter
 }
 
 func (f *countFn) Setup() {
-	f.parsers = map[string]*graphidx.JSONLLineParser{}
+	f.parsers = map[string]*corpus.JSONLLineParser{}
 	f.lines = beam.NewCounter(MetricsNamespace, CounterLines)
 	f.contexts = beam.NewCounter(MetricsNamespace, CounterContexts)
 }
@@ -194,7 +195,7 @@ func (f *countFn) ProcessElement(ctx context.Context, file, line string, emit fu
 		if len(f.parsers) > 1024 {
 			clear(f.parsers)
 		}
-		lp = graphidx.NewJSONLLineParser(file, graphidx.WithMaxLineBytes(f.MaxLineBytes))
+		lp = corpus.NewJSONLLineParser(file, corpus.WithMaxLineBytes(f.MaxLineBytes))
 		f.parsers[file] = lp
 	}
 	c, blank, err := lp.Parse([]byte(line))

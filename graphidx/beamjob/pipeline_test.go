@@ -16,6 +16,7 @@ import (
 	"github.com/apache/beam/sdks/v2/go/pkg/beam"
 	"github.com/apache/beam/sdks/v2/go/pkg/beam/testing/ptest"
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/corpus"
 	"github.com/hopwise/hopwise/graphidx/counts"
 )
 
@@ -82,10 +83,10 @@ func writeCorpus(t testing.TB, dir string, seed uint64, n, ents, files int) []by
 	return all.Bytes()
 }
 
-func directIndex(t testing.TB, corpus []byte, opts ...graphidx.BuildOption) ([]byte, graphidx.BuildSummary) {
+func directIndex(t testing.TB, data []byte, opts ...graphidx.BuildOption) ([]byte, graphidx.BuildSummary) {
 	t.Helper()
 	out := filepath.Join(t.TempDir(), "direct.hwi")
-	r := graphidx.NewJSONLReader(bytes.NewReader(corpus), "corpus.jsonl")
+	r := corpus.NewJSONLReader(bytes.NewReader(data), "corpus.jsonl")
 	sum, err := graphidx.Build(context.Background(), r, out, opts...)
 	if err != nil {
 		t.Fatal(err)
@@ -155,7 +156,7 @@ func TestPipelineByteIdentical(t *testing.T) {
 		n = 500_000
 	}
 	dir := t.TempDir()
-	corpus := writeCorpus(t, dir, 42, n, max(50, n/50), 3)
+	data := writeCorpus(t, dir, 42, n, max(50, n/50), 3)
 	out := filepath.Join(dir, "counts")
 	start := time.Now()
 	res, err := runPipeline(t, Config{Inputs: []string{filepath.Join(dir, "part-*.jsonl")}, Output: out,
@@ -169,7 +170,7 @@ func TestPipelineByteIdentical(t *testing.T) {
 		t.Fatalf("%d shard files, want 8", files)
 	}
 
-	direct, sum := directIndex(t, corpus)
+	direct, sum := directIndex(t, data)
 	if sum.Pairs.After == 0 || sum.Read.SkippedTotal() == 0 {
 		t.Fatalf("degenerate corpus: %d pairs, %d skipped lines", sum.Pairs.After, sum.Read.SkippedTotal())
 	}
@@ -177,7 +178,7 @@ func TestPipelineByteIdentical(t *testing.T) {
 		t.Fatal("index from the pipeline's count shards differs from the direct build")
 	}
 	opts := []graphidx.BuildOption{graphidx.WithMinSupport(2), graphidx.WithMaxNeighbors(8)}
-	if d, _ := directIndex(t, corpus, opts...); !bytes.Equal(d, countsIndex(t, []string{out}, opts...)) {
+	if d, _ := directIndex(t, data, opts...); !bytes.Equal(d, countsIndex(t, []string{out}, opts...)) {
 		t.Fatal("pruned index from count shards differs from the pruned direct build")
 	}
 

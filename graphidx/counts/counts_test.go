@@ -13,6 +13,7 @@ import (
 	"testing"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/corpus"
 	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
@@ -72,10 +73,10 @@ func greenhouseCorpus(seed uint64, n, ents int) []byte {
 	return b.Bytes()
 }
 
-func buildBytes(t *testing.T, corpus []byte, opts ...graphidx.BuildOption) []byte {
+func buildBytes(t *testing.T, data []byte, opts ...graphidx.BuildOption) []byte {
 	t.Helper()
 	out := filepath.Join(t.TempDir(), "direct.hwi")
-	if _, err := graphidx.Build(context.Background(), graphidx.NewJSONLReader(bytes.NewReader(corpus), "corpus.jsonl"), out, opts...); err != nil {
+	if _, err := graphidx.Build(context.Background(), corpus.NewJSONLReader(bytes.NewReader(data), "data.jsonl"), out, opts...); err != nil {
 		t.Fatal(err)
 	}
 	b, err := os.ReadFile(out)
@@ -85,17 +86,17 @@ func buildBytes(t *testing.T, corpus []byte, opts ...graphidx.BuildOption) []byt
 	return b
 }
 
-func countsPartialOf(t testing.TB, corpus []byte) *Partial {
+func countsPartialOf(t testing.TB, data []byte) *Partial {
 	t.Helper()
 	p := NewPartial()
-	eachContext(t, corpus, p.Add)
+	eachContext(t, data, p.Add)
 	return p
 }
 
 // eachContext calls add with every context of a JSONL corpus.
-func eachContext(t testing.TB, corpus []byte, add func(graphidx.Context) error) {
+func eachContext(t testing.TB, data []byte, add func(graphidx.Context) error) {
 	t.Helper()
-	r := graphidx.NewJSONLReader(bytes.NewReader(corpus), "corpus.jsonl")
+	r := corpus.NewJSONLReader(bytes.NewReader(data), "data.jsonl")
 	for {
 		c, err := r.Next()
 		if err == io.EOF {
@@ -133,8 +134,8 @@ func compileCountsBytes(t *testing.T, dirs []string, opts ...graphidx.BuildOptio
 // corpus, with and without pruning and for several shard counts.
 func TestCountsByteIdentical(t *testing.T) {
 	t.Parallel()
-	corpus := greenhouseCorpus(1, 3000, 60)
-	p := countsPartialOf(t, corpus)
+	data := greenhouseCorpus(1, 3000, 60)
+	p := countsPartialOf(t, data)
 	for _, tc := range []struct {
 		shards int
 		opts   []graphidx.BuildOption
@@ -151,7 +152,7 @@ func TestCountsByteIdentical(t *testing.T) {
 			if _, err := WriteCounts(dir, p, tc.shards); err != nil {
 				t.Fatal(err)
 			}
-			direct := buildBytes(t, corpus, tc.opts...)
+			direct := buildBytes(t, data, tc.opts...)
 			fromCounts := compileCountsBytes(t, []string{dir}, tc.opts...)
 			if !bytes.Equal(direct, fromCounts) {
 				t.Fatalf("index from counts differs from direct build (%d vs %d bytes)", len(fromCounts), len(direct))
@@ -164,9 +165,9 @@ func TestCountsByteIdentical(t *testing.T) {
 // and merging the count sets gives the index of the whole corpus.
 func TestMergeCountsEqualsRebuild(t *testing.T) {
 	t.Parallel()
-	corpus := greenhouseCorpus(2, 2000, 40)
-	cut := bytes.IndexByte(corpus[len(corpus)/3:], '\n') + len(corpus)/3 + 1
-	a, b := corpus[:cut], corpus[cut:]
+	data := greenhouseCorpus(2, 2000, 40)
+	cut := bytes.IndexByte(data[len(data)/3:], '\n') + len(data)/3 + 1
+	a, b := data[:cut], data[cut:]
 	da, db := t.TempDir(), t.TempDir()
 	if _, err := WriteCounts(da, countsPartialOf(t, a), 4); err != nil {
 		t.Fatal(err)
@@ -175,7 +176,7 @@ func TestMergeCountsEqualsRebuild(t *testing.T) {
 		t.Fatal(err)
 	}
 	for _, opts := range [][]graphidx.BuildOption{nil, {graphidx.WithMinSupport(2), graphidx.WithMaxNeighbors(5)}} {
-		direct := buildBytes(t, corpus, opts...)
+		direct := buildBytes(t, data, opts...)
 		if !bytes.Equal(direct, compileCountsBytes(t, []string{da, db}, opts...)) {
 			t.Fatalf("merge of A and B differs from the build of A∪B (opts %d)", len(opts))
 		}
@@ -397,14 +398,14 @@ func TestCompileCountsInconsistent(t *testing.T) {
 // exactly what JSONLReader does, with the same reasons.
 func TestJSONLLineParserMatchesReader(t *testing.T) {
 	t.Parallel()
-	corpus := append(greenhouseCorpus(6, 400, 20), []byte(
+	data := append(greenhouseCorpus(6, 400, 20), []byte(
 		"{\"id\":\"x\",\"obs\":{\"a\":\"1\",\"a\":\"2\"}}\r\n"+
 			"not json\n"+
 			"   \n"+
 			"{\"id\":\"y\",\"ents\":[\"p\"],\"obs\":{\"q\":\"r\"}}\n"+
 			"{\"obs\":{\"q\":\"r\"}}\n"+
 			"{\"id\":\"z\",\"obs\":{\"q\":\"r\"}}\r\n")...)
-	r := graphidx.NewJSONLReader(bytes.NewReader(corpus), "f.jsonl")
+	r := corpus.NewJSONLReader(bytes.NewReader(data), "f.jsonl")
 	var want []string
 	for {
 		c, err := r.Next()
@@ -416,10 +417,10 @@ func TestJSONLLineParserMatchesReader(t *testing.T) {
 		}
 		want = append(want, fmt.Sprint(c))
 	}
-	lp := graphidx.NewJSONLLineParser("f.jsonl")
+	lp := corpus.NewJSONLLineParser("f.jsonl")
 	var got []string
 	reasons := map[string]int64{}
-	for line := range bytes.SplitSeq(bytes.TrimSuffix(corpus, []byte("\n")), []byte("\n")) {
+	for line := range bytes.SplitSeq(bytes.TrimSuffix(data, []byte("\n")), []byte("\n")) {
 		c, blank, err := lp.Parse(line)
 		var le *graphidx.LineError
 		switch {
@@ -441,7 +442,7 @@ func TestJSONLLineParserMatchesReader(t *testing.T) {
 	if fmt.Sprint(reasons) != fmt.Sprint(r.Stats().Skipped) {
 		t.Fatalf("skip reasons differ: line parser %v, reader %v", reasons, r.Stats().Skipped)
 	}
-	long := graphidx.NewJSONLLineParser("f", graphidx.WithMaxLineBytes(10))
+	long := corpus.NewJSONLLineParser("f", corpus.WithMaxLineBytes(10))
 	if _, _, err := long.Parse([]byte(`{"id":"c1","obs":{"a":"b"}}`)); err == nil || !strings.Contains(err.Error(), graphidx.ReasonLineTooLong) {
 		t.Fatalf("long line: %v", err)
 	}
@@ -613,10 +614,10 @@ func TestCountSourceCloseUnmaps(t *testing.T) {
 // corpus, and each group's Partial holds only its shards' cells.
 func TestCountShardsInGroups(t *testing.T) {
 	t.Parallel()
-	corpus := greenhouseCorpus(4, 1500, 30)
+	data := greenhouseCorpus(4, 1500, 30)
 	const n, groups = 7, 3
 	whole := t.TempDir()
-	full := countsPartialOf(t, corpus)
+	full := countsPartialOf(t, data)
 	if _, err := WriteCounts(whole, full, n); err != nil {
 		t.Fatal(err)
 	}
@@ -630,7 +631,7 @@ func TestCountShardsInGroups(t *testing.T) {
 			}
 		}
 		p := NewPartial()
-		eachContext(t, corpus, func(c graphidx.Context) error {
+		eachContext(t, data, func(c graphidx.Context) error {
 			return p.AddShards(c, n, func(s int) bool { return s%groups == g })
 		})
 		maxCells = max(maxCells, len(p.cells))

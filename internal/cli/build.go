@@ -12,6 +12,7 @@ import (
 	"unicode"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/corpus"
 	"github.com/mattn/go-isatty"
 	"github.com/schollz/progressbar/v3"
 	"github.com/spf13/cobra"
@@ -30,10 +31,10 @@ type buildOpts struct {
 }
 
 // corpusFormatsHelp is the "Corpus formats" section of build's help, from
-// the format table (graphidx.Formats): each format's name, its help lines
+// the format table (corpus.Formats): each format's name, its help lines
 // and, after the last line, its extensions.
 func corpusFormatsHelp() string {
-	fs := graphidx.Formats()
+	fs := corpus.Formats()
 	lines := make([][]string, len(fs))
 	width := 0
 	for i, f := range fs {
@@ -123,7 +124,7 @@ other errors.`, "{{formats}}", corpusFormatsHelp(), 1),
 	}
 	f := cmd.Flags()
 	f.StringVar(&o.corpus, "corpus", "", "corpus file (required unless --from-counts)")
-	f.StringVar(&o.format, "format", "", "corpus format: "+graphidx.FormatNames()+" (default: from the extension)")
+	f.StringVar(&o.format, "format", "", "corpus format: "+corpus.FormatNames()+" (default: from the extension)")
 	f.StringVar(&o.lexicon, "lexicon", "", "lexicon TSV for text corpora: surface form<TAB>entity id[<TAB>value]")
 	f.StringVar(&o.out, "out", "", "index file to write (required)")
 	f.Uint64Var(&o.minSupport, "min-support", 1, "drop pairs observed together in fewer than N contexts")
@@ -173,9 +174,9 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	}
 	format := strings.ToLower(o.format) // --format CSV works too
 	if format == "" {
-		format = graphidx.DetectFormat(o.corpus)
+		format = corpus.DetectFormat(o.corpus)
 	}
-	cf, known := graphidx.LookupFormat(format) // unknown: OpenCorpus names the error
+	cf, known := corpus.LookupFormat(format) // unknown: corpus.Open names the error
 	readBudget, buildBudget := budget, budget
 	if cf.GroupsInMemory {
 		readBudget, buildBudget = budget/2, budget/2
@@ -198,7 +199,7 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	if buildBudget < graphidx.MinMemBudget {
 		return &ExitError{Code: 2, Err: fmt.Errorf("--mem-budget %s leaves %d bytes for the builder (after the CSV reader's half and the lexicon), want at least %d", o.memBudget, buildBudget, graphidx.MinMemBudget)}
 	}
-	r, closer, err := graphidx.OpenCorpus(o.corpus, format, o.lexicon, graphidx.WithLexicon(o.lex),
+	r, closer, err := corpus.Open(o.corpus, format, o.lexicon, corpus.WithLexicon(o.lex),
 		graphidx.WithPolicy(policy), graphidx.WithMemBudget(readBudget), graphidx.WithTempDir(o.tempDir),
 		graphidx.WithMaxContextEntities(o.maxContextEntities))
 	if err != nil {
@@ -249,7 +250,7 @@ func buildCountsOut(cmd *cobra.Command, o buildOpts, format string, policy graph
 			cells, o.counts.shards)
 	}
 	open := func() (graphidx.ContextReader, io.Closer, error) {
-		return graphidx.OpenCorpus(o.corpus, format, o.lexicon, graphidx.WithLexicon(o.lex), graphidx.WithPolicy(policy),
+		return corpus.Open(o.corpus, format, o.lexicon, corpus.WithLexicon(o.lex), graphidx.WithPolicy(policy),
 			graphidx.WithTempDir(o.tempDir), graphidx.WithMaxContextEntities(o.maxContextEntities))
 	}
 	var progress func(int)
@@ -297,8 +298,8 @@ func printLexiconStats(w io.Writer, st graphidx.LexiconStats, unvalued int64) {
 func classifyBuildErr(err error) error {
 	var le *graphidx.LineError
 	switch {
-	case errors.As(err, &le), errors.Is(err, graphidx.ErrTooManyValues), errors.Is(err, graphidx.ErrUnknownFormat),
-		errors.Is(err, graphidx.ErrLexiconRequired), errors.Is(err, graphidx.ErrDuplicateEntity),
+	case errors.As(err, &le), errors.Is(err, graphidx.ErrTooManyValues), errors.Is(err, corpus.ErrUnknownFormat),
+		errors.Is(err, corpus.ErrLexiconRequired), errors.Is(err, graphidx.ErrDuplicateEntity),
 		errors.Is(err, graphidx.ErrTooManyEntities), errors.Is(err, graphidx.ErrCountOverflow),
 		errors.Is(err, graphidx.ErrNoContexts), errors.Is(err, graphidx.ErrTooFewValid), errors.Is(err, graphidx.ErrWideContext):
 		return &ExitError{Code: 2, Err: err}

@@ -14,6 +14,7 @@ import (
 	"time"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/corpus"
 	"github.com/hopwise/hopwise/graphidx/counts"
 )
 
@@ -118,7 +119,7 @@ func TestParseByteSize(t *testing.T) {
 func TestCountsOutInPasses(t *testing.T) {
 	t.Parallel()
 	dir := t.TempDir()
-	corpus := filepath.Join(dir, "beds.jsonl")
+	path := filepath.Join(dir, "beds.jsonl")
 	var b strings.Builder
 	rng := rand.New(rand.NewPCG(3, 4))
 	for i := range 400 {
@@ -131,11 +132,11 @@ func TestCountsOutInPasses(t *testing.T) {
 		}
 		b.WriteString("}}\n")
 	}
-	if err := os.WriteFile(corpus, []byte(b.String()), 0o644); err != nil {
+	if err := os.WriteFile(path, []byte(b.String()), 0o644); err != nil {
 		t.Fatal(err)
 	}
 	open := func() (graphidx.ContextReader, io.Closer, error) {
-		return graphidx.OpenCorpus(corpus, graphidx.FormatJSONL, "", graphidx.WithPolicy(graphidx.Lenient))
+		return corpus.Open(path, corpus.FormatJSONL, "", graphidx.WithPolicy(graphidx.Lenient))
 	}
 	one, three := filepath.Join(dir, "one"), filepath.Join(dir, "three")
 	if _, err := writeCorpusCounts(context.Background(), open, one, 8, 1, nil); err != nil {
@@ -160,7 +161,7 @@ func TestCountsOutInPasses(t *testing.T) {
 	// countsPasses: the index's distinct cells, then passes of at most half
 	// the budget each, capped at the shard count.
 	idx := filepath.Join(dir, "beds.idx")
-	if got, err := runCLI(t, "build", "--corpus", corpus, "--out", idx, "--quiet"); err != nil {
+	if got, err := runCLI(t, "build", "--corpus", path, "--out", idx, "--quiet"); err != nil {
 		t.Fatalf("%v\n%s", err, got)
 	}
 	p := counts.NewPartial()
@@ -236,7 +237,7 @@ func TestBuildHelpListsFormats(t *testing.T) {
 	t.Parallel()
 	cmd := newBuildCmd()
 	usage := cmd.Flags().Lookup("format").Usage
-	for _, f := range graphidx.Formats() {
+	for _, f := range corpus.Formats() {
 		if !strings.Contains(cmd.Long, "\n  "+f.Name+" ") || !strings.Contains(usage, f.Name) {
 			t.Errorf("format %s missing from the help or the --format flag", f.Name)
 		}

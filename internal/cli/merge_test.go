@@ -13,6 +13,7 @@ import (
 	"testing"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/corpus"
 	"github.com/hopwise/hopwise/graphidx/counts"
 )
 
@@ -38,11 +39,11 @@ func mergeCorpus(seed uint64, n int) []byte {
 }
 
 // countsDir counts a corpus with counts.Partial and writes it as shards.
-func countsDir(t *testing.T, corpus []byte, shards int) string {
+func countsDir(t *testing.T, data []byte, shards int) string {
 	t.Helper()
 	dir := t.TempDir()
 	p := counts.NewPartial()
-	r := graphidx.NewJSONLReader(bytes.NewReader(corpus), "c.jsonl")
+	r := corpus.NewJSONLReader(bytes.NewReader(data), "c.jsonl")
 	for {
 		c, err := r.Next()
 		if err == io.EOF {
@@ -61,10 +62,10 @@ func countsDir(t *testing.T, corpus []byte, shards int) string {
 	return dir
 }
 
-func builtIndex(t *testing.T, corpus []byte, opts ...graphidx.BuildOption) []byte {
+func builtIndex(t *testing.T, data []byte, opts ...graphidx.BuildOption) []byte {
 	t.Helper()
 	out := filepath.Join(t.TempDir(), "b.idx")
-	if _, err := graphidx.Build(context.Background(), graphidx.NewJSONLReader(bytes.NewReader(corpus), "c.jsonl"), out, opts...); err != nil {
+	if _, err := graphidx.Build(context.Background(), corpus.NewJSONLReader(bytes.NewReader(data), "c.jsonl"), out, opts...); err != nil {
 		t.Fatal(err)
 	}
 	b, err := os.ReadFile(out)
@@ -122,13 +123,13 @@ func TestMergeEqualsRebuild(t *testing.T) {
 func TestMergeRefuses(t *testing.T) {
 	t.Parallel()
 	dir := t.TempDir()
-	corpus := mergeCorpus(3, 50)
+	data := mergeCorpus(3, 50)
 	idx := filepath.Join(dir, "a.idx")
-	if err := os.WriteFile(idx, builtIndex(t, corpus), 0o644); err != nil {
+	if err := os.WriteFile(idx, builtIndex(t, data), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	good := countsDir(t, corpus, 2)
-	damaged := countsDir(t, corpus, 2)
+	good := countsDir(t, data, 2)
+	damaged := countsDir(t, data, 2)
 	shard := filepath.Join(damaged, counts.CountShardName(1, 2))
 	b := readFile(t, shard)
 	b[len(b)-1] ^= 1

@@ -16,6 +16,7 @@ import (
 	sdktrace "go.opentelemetry.io/otel/sdk/trace"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/corpus"
 	"github.com/hopwise/hopwise/otelx"
 	"github.com/hopwise/hopwise/otelx/otlpfile"
 	"github.com/hopwise/hopwise/router"
@@ -40,11 +41,11 @@ func bedLine(t *testing.T, dir string) string {
 		}
 		fmt.Fprintf(&b, `{"id":"c%d","obs":{%s}}`+"\n", c, strings.Join(obs, ","))
 	}
-	corpus := filepath.Join(dir, "beds.jsonl")
-	if err := os.WriteFile(corpus, []byte(b.String()), 0o644); err != nil {
+	path := filepath.Join(dir, "beds.jsonl")
+	if err := os.WriteFile(path, []byte(b.String()), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	rd, closer, err := graphidx.OpenCorpus(corpus, "jsonl", "")
+	rd, closer, err := corpus.Open(path, "jsonl", "")
 	if err != nil {
 		t.Fatal(err)
 	}

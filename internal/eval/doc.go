@@ -9,7 +9,7 @@
 //     information ≥ 0.01 nats) from Config.Seed.
 //  2. world.WriteCorpus writes Config.Contexts contexts (default 50000) of the
 //     condition (local-geometric, local-zipf, full, wrong) as JSONL.
-//  3. The corpus is read back by graphidx.OpenCorpus (strict), counted by
+//  3. The corpus is read back by corpus.Open (strict), counted by
 //     graphidx.Compile, written by graphidx.WriteFile and opened by
 //     graphidx.Open: the product's own build path.
 //  4. Every held-out pair (never observed together) and every supported pair

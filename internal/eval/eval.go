@@ -14,6 +14,7 @@ import (
 	"time"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/corpus"
 	"github.com/hopwise/hopwise/internal/world"
 	"github.com/hopwise/hopwise/router"
 	"github.com/hopwise/hopwise/scorer"
@@ -326,7 +327,7 @@ type query struct {
 }
 
 // Prepare generates the world, writes the corpus (world.WriteCorpus) to
-// Dir/corpus.jsonl, reads it back with graphidx.OpenCorpus (strict), compiles
+// Dir/corpus.jsonl, reads it back with corpus.Open (strict), compiles
 // and writes the index (graphidx.Compile, graphidx.WriteFile) and opens it
 // (graphidx.Open). The caller must Close the Bench.
 func Prepare(ctx context.Context, cfg Config) (*Bench, error) {
@@ -403,15 +404,15 @@ func writeCorpus(ctx context.Context, w *world.World, path string, n int, cond w
 	return nil
 }
 
-func buildIndex(ctx context.Context, corpus, out string, opts ...graphidx.BuildOption) error {
-	r, closer, err := graphidx.OpenCorpus(corpus, graphidx.FormatJSONL, "", graphidx.WithPolicy(graphidx.Strict))
+func buildIndex(ctx context.Context, corpusPath, out string, opts ...graphidx.BuildOption) error {
+	r, closer, err := corpus.Open(corpusPath, corpus.FormatJSONL, "", graphidx.WithPolicy(graphidx.Strict))
 	if err != nil {
 		return fmt.Errorf("eval: open corpus: %w", err)
 	}
 	defer closer.Close()
 	comp, _, err := graphidx.Compile(ctx, r, opts...)
 	if err != nil {
-		return fmt.Errorf("eval: compile %s: %w", corpus, err)
+		return fmt.Errorf("eval: compile %s: %w", corpusPath, err)
 	}
 	defer comp.Close()
 	if err := graphidx.WriteFile(out, comp); err != nil {

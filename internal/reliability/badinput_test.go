@@ -11,6 +11,7 @@ import (
 	"testing"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/corpus"
 )
 
 // badLine is a corpus line that must be rejected with reason.
@@ -38,7 +39,7 @@ var jsonlBad = []badLine{
 	}},
 	{graphidx.ReasonBadUTF8, func(i int) string { return fmt.Sprintf(`{"id":"bad%d","ents":["zone-`+"\xff"+`"]}`, i) }},
 	{graphidx.ReasonLineTooLong, func(i int) string {
-		return fmt.Sprintf(`{"id":"bad%d","ents":["%s"]}`, i, strings.Repeat("y", graphidx.DefaultMaxLineBytes))
+		return fmt.Sprintf(`{"id":"bad%d","ents":["%s"]}`, i, strings.Repeat("y", corpus.DefaultMaxLineBytes))
 	}},
 	{graphidx.ReasonControlChar, func(i int) string { return fmt.Sprintf(`{"id":"bad%d","ents":["zone-\u001b[2J"]}`, i) }},
 	{graphidx.ReasonTooManyEntities, func(i int) string {

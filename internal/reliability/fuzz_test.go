@@ -27,6 +27,7 @@ import (
 	"unicode/utf8"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/corpus"
 	"github.com/hopwise/hopwise/router"
 )
 
@@ -241,10 +242,10 @@ func FuzzJSONLLineParser(f *testing.F) {
 		if bytes.ContainsAny(line, "\n") {
 			return // the parser takes one line without its terminator
 		}
-		p := graphidx.NewJSONLLineParser("f.jsonl", graphidx.WithMaxLineBytes(512))
+		p := corpus.NewJSONLLineParser("f.jsonl", corpus.WithMaxLineBytes(512))
 		c, blank, perr := p.Parse(line)
-		r := graphidx.NewJSONLReader(bytes.NewReader(append(append([]byte(nil), line...), '\n')), "f.jsonl",
-			graphidx.WithPolicy(graphidx.Strict), graphidx.WithMaxLineBytes(512))
+		r := corpus.NewJSONLReader(bytes.NewReader(append(append([]byte(nil), line...), '\n')), "f.jsonl",
+			graphidx.WithPolicy(graphidx.Strict), corpus.WithMaxLineBytes(512))
 		rc, rerr := r.Next()
 		switch {
 		case blank:
@@ -304,7 +305,7 @@ func FuzzOpenCorpusGzip(f *testing.F) {
 	f.Fuzz(func(t *testing.T, data []byte) {
 		p := inputs.write(t, "c", ".jsonl.gz", data)
 		defer os.Remove(p)
-		r, closer, err := graphidx.OpenCorpus(p, "", "", graphidx.WithMaxLineBytes(1<<12))
+		r, closer, err := corpus.Open(p, "", "", corpus.WithMaxLineBytes(1<<12))
 		if err != nil {
 			return
 		}

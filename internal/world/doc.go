@@ -2,7 +2,7 @@
 // evaluating hopwise: discrete Bayesian networks, exact inference by variable
 // elimination, context samplers that observe only a neighbourhood of each
 // joint sample, held-out pairs that never co-occur, and a JSONL corpus writer
-// in the format read by graphidx.NewJSONLReader.
+// in the format read by corpus.NewJSONLReader.
 //
 // The pieces (docs/DESIGN.md, Testbed):
 //

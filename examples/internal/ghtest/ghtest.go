@@ -8,6 +8,7 @@ import (
 	"path/filepath"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/corpus"
 	"github.com/hopwise/hopwise/internal/world"
 )
 
@@ -26,12 +27,12 @@ func Build(dir, name string, seed int64, n int, corpusSeed int64) (string, error
 	if err != nil {
 		return "", err
 	}
-	var corpus bytes.Buffer
-	if _, err := w.WriteCorpus(context.Background(), &corpus, n, cond, corpusSeed); err != nil {
+	var data bytes.Buffer
+	if _, err := w.WriteCorpus(context.Background(), &data, n, cond, corpusSeed); err != nil {
 		return "", err
 	}
 	path := filepath.Join(dir, name)
-	rd := graphidx.NewJSONLReader(&corpus, "greenhouse.jsonl", graphidx.WithPolicy(graphidx.Strict))
+	rd := corpus.NewJSONLReader(&data, "greenhouse.jsonl", graphidx.WithPolicy(graphidx.Strict))
 	if _, err := graphidx.Build(context.Background(), rd, path); err != nil {
 		return "", fmt.Errorf("ghtest: build %s: %w", path, err)
 	}

@@ -8,6 +8,14 @@ import (
 	"strings"
 )
 
+// Name prefixes of the private spill directories of graphidx.Build and of
+// the CSV reader of graphidx/corpus; the creating process's pid follows the
+// prefix (MakeSpillDir creates them and removes those of dead processes).
+const (
+	BuildDirPrefix = "hopwise-build-"
+	CSVDirPrefix   = "hopwise-csv-"
+)
+
 // MakeSpillDir creates a private directory for spilled runs in dir (the
 // system temp dir when empty), named prefix+"<pid>-<random>", after removing
 // the directories of the same prefix left by processes that are no longer

@@ -1,14 +1,16 @@
-package graphidx
+package corpus
 
 import (
 	"fmt"
 	"hash/maphash"
 	"strconv"
+
+	"github.com/hopwise/hopwise/graphidx"
 )
 
 // formTracker enforces, across the lines of one JSONL reader, that no
 // entity is both listed in "ents" (present) and given a value other than
-// PresentValue in "obs" (see JSONLReader): such an entity would get
+// graphidx.PresentValue in "obs" (see JSONLReader): such an entity would get
 // "present" as a spurious extra value.
 //
 // Entities are tracked by the 64-bit maphash of their name: one map entry
@@ -34,14 +36,14 @@ type entityForm struct {
 
 const (
 	formPresent uint8 = 1 // listed in "ents"
-	formValued  uint8 = 2 // in "obs" with a value other than PresentValue
+	formValued  uint8 = 2 // in "obs" with a value other than graphidx.PresentValue
 )
 
 // check rejects the line (number line, observations obs, "ents" form when
 // presence) when it observes an entity in the other form than earlier
 // lines did, and otherwise records its entities. A rejected line records
 // nothing. One map look-up per observation.
-func (t *formTracker) check(obs []Observation, presence bool, line int) *LineError {
+func (t *formTracker) check(obs []graphidx.Observation, presence bool, line int) *graphidx.LineError {
 	if t.off {
 		return nil
 	}
@@ -56,7 +58,7 @@ func (t *formTracker) check(obs []Observation, presence bool, line int) *LineErr
 	t.scratch = t.scratch[:0]
 	for i := range obs {
 		o := &obs[i]
-		if !presence && o.Value == PresentValue {
+		if !presence && o.Value == graphidx.PresentValue {
 			continue // "obs" with the value present fits either form
 		}
 		h := maphash.String(t.seed, o.Entity)
@@ -70,7 +72,7 @@ func (t *formTracker) check(obs []Observation, presence bool, line int) *LineErr
 			if f == formValued {
 				field, how, was = "obs."+o.Entity, "with value "+strconv.Quote(o.Value), `as present ("ents")`
 			}
-			return &LineError{Field: field, Reason: ReasonMixedForms, Detail: fmt.Sprintf(
+			return &graphidx.LineError{Field: field, Reason: graphidx.ReasonMixedForms, Detail: fmt.Sprintf(
 				"%s is observed %s here but %s at line %d: one entity must not mix valued and presence-only lines",
 				strconv.Quote(o.Entity), how, was, prev.line)}
 		}

@@ -1,4 +1,4 @@
-package graphidx
+package corpus
 
 import (
 	"bytes"
@@ -7,12 +7,14 @@ import (
 	"os"
 	"testing"
 	"unicode/utf8"
+
+	"github.com/hopwise/hopwise/graphidx"
 )
 
 // checkContexts drains r and checks the reader contract on arbitrary input:
 // no panic, no error in lenient mode, every context valid, and the line
 // accounting reconciling.
-func checkContexts(t *testing.T, r ContextReader) ReadStats {
+func checkContexts(t *testing.T, r graphidx.ContextReader) graphidx.ReadStats {
 	t.Helper()
 	var n int64
 	for {
@@ -30,7 +32,7 @@ func checkContexts(t *testing.T, r ContextReader) ReadStats {
 		}
 		for _, o := range c.Obs {
 			for _, s := range []string{o.Entity, o.Value} {
-				if s == "" || len(s) > MaxNameBytes || !utf8.ValidString(s) {
+				if s == "" || len(s) > graphidx.MaxNameBytes || !utf8.ValidString(s) {
 					t.Fatalf("context %q: invalid name %q", c.ID, s)
 				}
 			}
@@ -40,7 +42,7 @@ func checkContexts(t *testing.T, r ContextReader) ReadStats {
 			seen[o.Entity] = true
 		}
 	}
-	st := r.(StatsReader).Stats()
+	st := r.(graphidx.StatsReader).Stats()
 	if st.Records != st.OK+st.Empty+st.SkippedTotal() {
 		t.Fatalf("records %d != ok %d + empty %d + skipped %v", st.Records, st.OK, st.Empty, st.Skipped)
 	}
@@ -51,7 +53,7 @@ func checkContexts(t *testing.T, r ContextReader) ReadStats {
 }
 
 // strictErr checks that a strict reader fails, if at all, with a LineError.
-func strictErr(t *testing.T, r ContextReader) {
+func strictErr(t *testing.T, r graphidx.ContextReader) {
 	t.Helper()
 	for {
 		_, err := r.Next()
@@ -59,7 +61,7 @@ func strictErr(t *testing.T, r ContextReader) {
 			return
 		}
 		if err != nil {
-			var le *LineError
+			var le *graphidx.LineError
 			if !errors.As(err, &le) || le.Line < 1 || le.Reason == "" {
 				t.Fatalf("strict error %v is not a LineError with a line", err)
 			}
@@ -97,15 +99,15 @@ func FuzzJSONLReader(f *testing.F) {
 		lines, blank := countLines(data)
 		// Every line is a record or blank (blank lines over the limit are
 		// records too: they are reported as line-too-long).
-		if st.Lines != lines || st.Records > lines-blank+st.Skipped[ReasonLineTooLong] || st.Records < lines-blank {
+		if st.Lines != lines || st.Records > lines-blank+st.Skipped[graphidx.ReasonLineTooLong] || st.Records < lines-blank {
 			t.Fatalf("lines %d (blank %d) vs stats %+v", lines, blank, st)
 		}
-		strictErr(t, NewJSONLReader(bytes.NewReader(data), "f.jsonl", WithPolicy(Strict), WithMaxLineBytes(200)))
+		strictErr(t, NewJSONLReader(bytes.NewReader(data), "f.jsonl", graphidx.WithPolicy(graphidx.Strict), WithMaxLineBytes(200)))
 		// The builder's transient mode (names as views into the line
 		// buffer) must read exactly the same contexts.
 		want, _ := readAll(t, NewJSONLReader(bytes.NewReader(data), "f.jsonl", WithMaxLineBytes(200)))
 		tr := NewJSONLReader(bytes.NewReader(data), "f.jsonl", WithMaxLineBytes(200))
-		tr.setTransient(true)
+		tr.SetTransient(true)
 		got, _ := readAll(t, tr)
 		if len(got) != len(want) {
 			t.Fatalf("transient read %d contexts, want %d", len(got), len(want))
@@ -125,7 +127,7 @@ func FuzzCSVReader(f *testing.F) {
 	f.Add([]byte("nope\n"))
 	f.Fuzz(func(t *testing.T, data []byte) {
 		dir := t.TempDir()
-		r := NewCSVReader(bytes.NewReader(data), "f.csv", WithMaxLineBytes(200), withReadMemLimit(256), WithTempDir(dir))
+		r := NewCSVReader(bytes.NewReader(data), "f.csv", WithMaxLineBytes(200), withReadMemLimit(256), graphidx.WithTempDir(dir))
 		defer r.Close()
 		var n int64
 		for {
@@ -135,8 +137,8 @@ func FuzzCSVReader(f *testing.F) {
 			}
 			if err != nil {
 				// Only a bad header may stop a lenient CSV reader.
-				var le *LineError
-				if !errors.As(err, &le) || le.Reason != ReasonBadHeader {
+				var le *graphidx.LineError
+				if !errors.As(err, &le) || le.Reason != graphidx.ReasonBadHeader {
 					t.Fatalf("lenient CSV error %v", err)
 				}
 				return
@@ -151,7 +153,7 @@ func FuzzCSVReader(f *testing.F) {
 		if left, _ := os.ReadDir(dir); len(left) != 0 {
 			t.Fatalf("temp files left")
 		}
-		s := NewCSVReader(bytes.NewReader(data), "f.csv", WithPolicy(Strict), withReadMemLimit(256), WithTempDir(dir))
+		s := NewCSVReader(bytes.NewReader(data), "f.csv", graphidx.WithPolicy(graphidx.Strict), withReadMemLimit(256), graphidx.WithTempDir(dir))
 		strictErr(t, s)
 		s.Close()
 	})
@@ -161,15 +163,15 @@ func FuzzTextReader(f *testing.F) {
 	f.Add([]byte("In Zone 2 the vent 3 motor hums.\n\nCO2 in zone two\n"))
 	f.Add([]byte("\xff\xfezone 2\xff\n\r\n\r\npump\tpump_pump pump."))
 	f.Add([]byte("ÜBER-SENSOR über-sensor İ zone 2"))
-	lex, err := ParseLexicon(bytes.NewReader([]byte(testLexicon)), "lex.tsv")
+	lex, err := graphidx.ParseLexicon(bytes.NewReader([]byte(testLexicon)), "lex.tsv")
 	if err != nil {
 		f.Fatal(err)
 	}
 	f.Fuzz(func(t *testing.T, data []byte) {
 		r := NewTextReader(bytes.NewReader(data), "f.txt", lex, WithMaxLineBytes(300))
 		checkContexts(t, r)
-		strictErr(t, NewTextReader(bytes.NewReader(data), "f.txt", lex, WithPolicy(Strict), WithMaxLineBytes(300)))
+		strictErr(t, NewTextReader(bytes.NewReader(data), "f.txt", lex, graphidx.WithPolicy(graphidx.Strict), WithMaxLineBytes(300)))
 		// The lexicon parser must not panic either.
-		ParseLexicon(bytes.NewReader(data), "f.tsv")
+		graphidx.ParseLexicon(bytes.NewReader(data), "f.tsv")
 	})
 }

@@ -1,4 +1,4 @@
-package graphidx
+package corpus
 
 import (
 	"bytes"
@@ -10,6 +10,9 @@ import (
 	"strings"
 	"testing"
 	"time"
+
+	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/internal/testcorpus"
 )
 
 // TestJSONLMixedPresenceAndValues: an entity listed in "ents" on one line
@@ -34,13 +37,13 @@ func TestJSONLMixedPresenceAndValues(t *testing.T) {
 			lines:  []string{`{"id":"1","ents":["vent","pump"]}`, `{"id":"2","obs":{"bed":"dry","vent":"open"}}`},
 			bad:    []int{2},
 			detail: `obs.vent: mixed-forms: "vent" is observed with value "open" here but as present ("ents") at line 1`,
-			entity: "vent", wantVal: []string{PresentValue}},
+			entity: "vent", wantVal: []string{graphidx.PresentValue}},
 		{name: "obs value present fits both",
 			lines:  []string{`{"id":"1","obs":{"vent":"present"}}`, `{"id":"2","ents":["vent","pump"]}`, `{"id":"3","obs":{"pump":"present","bed":"dry"}}`},
-			entity: "vent", wantVal: []string{PresentValue}},
+			entity: "vent", wantVal: []string{graphidx.PresentValue}},
 		{name: "valued entity with a label present",
 			lines:  []string{`{"id":"1","obs":{"vent":"present","pump":"on"}}`, `{"id":"2","obs":{"vent":"absent","pump":"off"}}`},
-			entity: "vent", wantVal: []string{"absent", PresentValue}},
+			entity: "vent", wantVal: []string{"absent", graphidx.PresentValue}},
 		{name: "different entities in different forms",
 			lines:  []string{`{"id":"1","ents":["tag-a","tag-b"]}`, `{"id":"2","obs":{"vent":"open","pump":"on"}}`},
 			entity: "vent", wantVal: []string{"open"}},
@@ -48,7 +51,7 @@ func TestJSONLMixedPresenceAndValues(t *testing.T) {
 			lines:  []string{`{"id":"1","ents":["vent","pump"]}`, `{"id":"2","obs":{"vent":"open","bed":"dry"}}`, `{"id":"3","ents":["bed","pump"]}`},
 			bad:    []int{2},
 			detail: `"vent" is observed with value "open"`,
-			entity: "bed", wantVal: []string{PresentValue}},
+			entity: "bed", wantVal: []string{graphidx.PresentValue}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
@@ -59,29 +62,29 @@ func TestJSONLMixedPresenceAndValues(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			if n != len(tc.lines)-len(tc.bad) || r.Skipped()[ReasonMixedForms] != len(tc.bad) {
+			if n != len(tc.lines)-len(tc.bad) || r.Skipped()[graphidx.ReasonMixedForms] != len(tc.bad) {
 				t.Fatalf("%d contexts, skipped %v; want %d mixed-forms", n, r.Skipped(), len(tc.bad))
 			}
 			// Strict: the first bad line is the error, with file:line.
-			sr := NewJSONLReader(strings.NewReader(data), "mixed.jsonl", WithPolicy(Strict))
+			sr := NewJSONLReader(strings.NewReader(data), "mixed.jsonl", graphidx.WithPolicy(graphidx.Strict))
 			err = nil
 			for err == nil {
 				_, err = sr.Next()
 			}
-			var le *LineError
+			var le *graphidx.LineError
 			if len(tc.bad) == 0 {
 				if err != io.EOF {
 					t.Fatalf("strict: %v", err)
 				}
-			} else if !errors.As(err, &le) || le.Line != tc.bad[0] || le.Reason != ReasonMixedForms || !strings.Contains(err.Error(), tc.detail) {
+			} else if !errors.As(err, &le) || le.Line != tc.bad[0] || le.Reason != graphidx.ReasonMixedForms || !strings.Contains(err.Error(), tc.detail) {
 				t.Fatalf("strict: %v, want line %d mixed-forms with %q", err, tc.bad[0], tc.detail)
 			}
 			// Built: no spurious value.
 			out := filepath.Join(t.TempDir(), "ix.hwx")
-			if _, err := Build(context.Background(), NewJSONLReader(strings.NewReader(data), "mixed.jsonl"), out); err != nil {
+			if _, err := graphidx.Build(context.Background(), NewJSONLReader(strings.NewReader(data), "mixed.jsonl"), out); err != nil {
 				t.Fatal(err)
 			}
-			ix, err := Open(out)
+			ix, err := graphidx.Open(out)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -111,11 +114,11 @@ func countContexts(r *JSONLReader) (int, error) {
 // CPU time of each per read and their ratio (checked/baseline), which stays
 // meaningful on a loaded machine.
 func BenchmarkJSONLReaderFormCheck(b *testing.B) {
-	data := benchCorpus(50_000, 20_000, 1)
+	data := testcorpus.JSONL(50_000, 20_000, 1)
 	read := func(check bool) time.Duration {
-		t0 := cpuTime()
+		t0 := testcorpus.CPUTime()
 		r := NewJSONLReader(bytes.NewReader(data), "bench.jsonl")
-		r.setTransient(true)
+		r.SetTransient(true)
 		r.forms.off = !check
 		n, err := countContexts(r)
 		if err != nil {
@@ -124,7 +127,7 @@ func BenchmarkJSONLReaderFormCheck(b *testing.B) {
 		if n != 50_000 || (check && len(r.forms.m) == 0) {
 			b.Fatalf("%d contexts, %d entities recorded", n, len(r.forms.m))
 		}
-		return cpuTime() - t0
+		return testcorpus.CPUTime() - t0
 	}
 	var base, checked time.Duration
 	i := 0

@@ -1,4 +1,4 @@
-package graphidx
+package corpus
 
 import (
 	"bufio"
@@ -13,6 +13,7 @@ import (
 	"strconv"
 	"strings"
 
+	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/graphidx/internal/fileio"
 )
 
@@ -26,14 +27,14 @@ import (
 // The header is required and must be context,entity,value or, for
 // presence-only data, context,entity (names compared case-insensitively,
 // surrounding spaces ignored, a UTF-8 byte-order mark allowed). A wrong
-// header is a fatal *LineError (reason bad-header) in both policies. Fields
+// header is a fatal *graphidx.LineError (reason bad-header) in both policies. Fields
 // follow RFC 4180: quoted fields may contain commas, doubled quotes and line
 // breaks; unquoted fields are taken verbatim (no trimming).
 //
 // Rows of one context may be anywhere in the file. The reader groups them
 // by context id before returning anything: rows are buffered in memory up to
-// the memory budget (WithMemBudget), then sorted by (context id, line) and
-// spilled as a run to the temp dir (WithTempDir); at the end of the input
+// the memory budget (graphidx.WithMemBudget), then sorted by (context id, line) and
+// spilled as a run to the temp dir (graphidx.WithTempDir); at the end of the input
 // the runs and the buffer are k-way merged (container/heap) and each group of
 // equal ids becomes one context. When anything was spilled the buffer is
 // spilled too, so that while contexts are returned only the runs' read
@@ -47,7 +48,7 @@ import (
 // name-too-long, bad-utf8, control-char (a newline inside a quoted field is
 // a control character in a name). A quote still open at the end of the
 // input is one bad-quote error whose detail names the lines it swallowed.
-// A context with more rows than WithMaxContextEntities is skipped whole
+// A context with more rows than graphidx.WithMaxContextEntities is skipped whole
 // (too-many-entities, counted once per row, reported at its first row)
 // without holding more than the limit of its rows. A second row for the same (context, entity) pair
 // is a duplicate-entity error at the later row, whatever its value; in
@@ -57,7 +58,7 @@ import (
 type CSVReader struct {
 	lr    *lineReader
 	name  string
-	cfg   readConfig
+	cfg   config
 	bl    badLines
 	in    interner
 	cols  int
@@ -75,7 +76,7 @@ type CSVReader struct {
 	runs    []string
 
 	merge     *csvMerger
-	obs       []Observation
+	obs       []graphidx.Observation
 	group     []csvRow
 	groupLine int // first line of the context Next returned last
 	fatal     error
@@ -97,15 +98,15 @@ func cmpRow(a, b *csvRow) int {
 // NewCSVReader returns a reader of a long CSV table from r. name is the
 // file name used in errors. Close it to remove its temporary files.
 func NewCSVReader(r io.Reader, name string, opts ...ReadOption) *CSVReader {
-	cfg := newReadConfig(opts)
+	cfg := newConfig(opts)
 	cr := &CSVReader{lr: newLineReader(r, cfg.maxLine), name: name, cfg: cfg}
-	cr.bl.init(cfg.policy)
+	cr.bl.init(cfg.Policy)
 	return cr
 }
 
 // Stats returns the row accounting so far. Records are data rows; a row is
 // counted OK when its context is returned.
-func (r *CSVReader) Stats() ReadStats { return r.bl.snapshot() }
+func (r *CSVReader) Stats() graphidx.ReadStats { return r.bl.snapshot() }
 
 // Skipped returns the counts of skipped rows by reason.
 func (r *CSVReader) Skipped() map[string]int { return r.bl.Skipped() }
@@ -113,8 +114,9 @@ func (r *CSVReader) Skipped() map[string]int { return r.bl.Skipped() }
 // BytesRead is the number of input bytes consumed so far.
 func (r *CSVReader) BytesRead() int64 { return r.lr.bytes }
 
-// position names the first row of the context Next returned last.
-func (r *CSVReader) position() (string, int) { return r.name, r.groupLine }
+// Position returns the file name and the first line of the context Next
+// returned last (graphidx.Positioner).
+func (r *CSVReader) Position() (string, int) { return r.name, r.groupLine }
 
 // SpillRuns is the number of sorted runs the reader wrote to group rows.
 func (r *CSVReader) SpillRuns() int { return len(r.runs) }
@@ -136,18 +138,18 @@ func (r *CSVReader) Close() error {
 }
 
 // Next returns the next context in ascending id order, or io.EOF.
-func (r *CSVReader) Next() (Context, error) {
+func (r *CSVReader) Next() (graphidx.Context, error) {
 	if r.fatal != nil {
-		return Context{}, r.fatal
+		return graphidx.Context{}, r.fatal
 	}
 	if r.state < 2 {
 		if err := r.readAll(); err != nil {
 			r.fatal = err
-			return Context{}, err
+			return graphidx.Context{}, err
 		}
 	}
 	if r.state == 3 {
-		return Context{}, io.EOF
+		return graphidx.Context{}, io.EOF
 	}
 	c, err := r.nextGroup()
 	if err != nil && err != io.EOF {
@@ -163,7 +165,7 @@ func (r *CSVReader) header() error {
 	for {
 		line, err := r.lr.next()
 		if err == io.EOF {
-			return &LineError{File: r.name, Line: 1, Reason: ReasonBadHeader, Detail: "empty input, want context,entity,value"}
+			return &graphidx.LineError{File: r.name, Line: 1, Reason: graphidx.ReasonBadHeader, Detail: "empty input, want context,entity,value"}
 		}
 		if err != nil {
 			return fmt.Errorf("%s: %w", r.name, err)
@@ -191,7 +193,7 @@ func (r *CSVReader) header() error {
 		if len(shown) > 80 {
 			shown = shown[:80] + "..."
 		}
-		return &LineError{File: r.name, Line: r.lr.line, Reason: ReasonBadHeader,
+		return &graphidx.LineError{File: r.name, Line: r.lr.line, Reason: graphidx.ReasonBadHeader,
 			Detail: fmt.Sprintf("got %q, want context,entity,value or context,entity", shown)}
 	}
 }
@@ -222,7 +224,7 @@ func (r *CSVReader) readAll() error {
 				return e
 			}
 		}
-		if r.mem > r.cfg.memLimit {
+		if r.mem > r.cfg.MemBudget {
 			if err := r.spill(); err != nil {
 				return err
 			}
@@ -242,7 +244,7 @@ func (r *CSVReader) readAll() error {
 	// many runs, so the merge stays within the budget.
 	bufSize := 64 << 10
 	if len(r.runs) > 0 {
-		bufSize = int(min(int64(bufSize), max(4<<10, r.cfg.memLimit/int64(2*len(r.runs)))))
+		bufSize = int(min(int64(bufSize), max(4<<10, r.cfg.MemBudget/int64(2*len(r.runs)))))
 	}
 	for _, p := range r.runs {
 		rr, err := openCSVRun(p, bufSize, &r.in)
@@ -266,7 +268,7 @@ func (r *CSVReader) readAll() error {
 }
 
 // record reads one CSV record into r.fields. It returns the record's first
-// line number (0 for a blank line) or a *LineError-carrying nil fields with
+// line number (0 for a blank line) or a *graphidx.LineError-carrying nil fields with
 // the reason in r.recErr.
 func (r *CSVReader) record() (int, error) {
 	line, err := r.lr.next()
@@ -280,7 +282,7 @@ func (r *CSVReader) record() (int, error) {
 	first := r.lr.line
 	if r.lr.tooLong {
 		r.fields = nil
-		r.recErr = ReasonLineTooLong
+		r.recErr = graphidx.ReasonLineTooLong
 		return first, nil
 	}
 	if isBlank(line) {
@@ -296,13 +298,13 @@ func (r *CSVReader) record() (int, error) {
 			r.recErr = ""
 			return first, nil
 		case csvBadQuote:
-			r.fields, r.recErr = nil, ReasonBadQuote
+			r.fields, r.recErr = nil, graphidx.ReasonBadQuote
 			return first, nil
 		}
 		// Inside a quoted field at the end of the line: join the next one.
 		next, err := r.lr.next()
 		if err == io.EOF {
-			r.fields, r.recErr = nil, ReasonBadQuote
+			r.fields, r.recErr = nil, graphidx.ReasonBadQuote
 			if last := r.lr.line; last > first {
 				// The open quote ran to the end of the input: say which
 				// lines (and so which rows) it swallowed.
@@ -316,7 +318,7 @@ func (r *CSVReader) record() (int, error) {
 		}
 		r.bl.stats.Lines++
 		if r.lr.tooLong || len(r.rec)+1+len(next) > r.lr.max {
-			r.fields, r.recErr = nil, ReasonLineTooLong
+			r.fields, r.recErr = nil, graphidx.ReasonLineTooLong
 			// Skip to the end of the quoted field to resynchronise.
 			for r.lr.tooLong || bytes.Count(next, []byte{'"'})%2 == 0 {
 				if next, err = r.lr.next(); err != nil {
@@ -332,23 +334,23 @@ func (r *CSVReader) record() (int, error) {
 }
 
 // row validates r.fields and buffers the row.
-func (r *CSVReader) row(first int) *LineError {
+func (r *CSVReader) row(first int) *graphidx.LineError {
 	if r.recErr != "" {
-		return &LineError{Reason: r.recErr, Detail: r.recDetail}
+		return &graphidx.LineError{Reason: r.recErr, Detail: r.recDetail}
 	}
 	switch {
 	case len(r.fields) > r.cols:
-		return &LineError{Reason: ReasonTooManyColumns, Detail: fmt.Sprintf("%d fields, header has %d", len(r.fields), r.cols)}
+		return &graphidx.LineError{Reason: graphidx.ReasonTooManyColumns, Detail: fmt.Sprintf("%d fields, header has %d", len(r.fields), r.cols)}
 	case len(r.fields) < r.cols:
-		return &LineError{Reason: ReasonTooFewColumns, Detail: fmt.Sprintf("%d fields, header has %d", len(r.fields), r.cols)}
+		return &graphidx.LineError{Reason: graphidx.ReasonTooFewColumns, Detail: fmt.Sprintf("%d fields, header has %d", len(r.fields), r.cols)}
 	}
 	names := [3]string{"context", "entity", "value"}
 	for i, f := range r.fields {
-		if why := checkName(f); why != "" {
-			if i == 0 && why == ReasonEmptyName {
-				why = ReasonMissingID
+		if why := graphidx.CheckName(f); why != "" {
+			if i == 0 && why == graphidx.ReasonEmptyName {
+				why = graphidx.ReasonMissingID
 			}
-			return &LineError{Field: names[i], Reason: why}
+			return &graphidx.LineError{Field: names[i], Reason: why}
 		}
 	}
 	if r.ctxIntn == nil {
@@ -360,7 +362,7 @@ func (r *CSVReader) row(first int) *LineError {
 		r.ctxIntn[ctx] = ctx
 		r.mem += int64(len(ctx)) + 48
 	}
-	row := csvRow{ctx: ctx, ent: r.in.get(r.fields[1]), val: PresentValue, line: first}
+	row := csvRow{ctx: ctx, ent: r.in.get(r.fields[1]), val: graphidx.PresentValue, line: first}
 	if r.cols == 3 {
 		row.val = r.in.get(r.fields[2])
 	}
@@ -439,7 +441,7 @@ func (r *CSVReader) spill() error {
 		return nil
 	}
 	if r.tmpDir == "" {
-		d, err := fileio.MakeSpillDir(r.cfg.tempDir, csvDirPrefix)
+		d, err := fileio.MakeSpillDir(r.cfg.TempDir, fileio.CSVDirPrefix)
 		if err != nil {
 			return err
 		}
@@ -475,22 +477,22 @@ func (r *CSVReader) spill() error {
 	r.rows = r.rows[:0]
 	r.ctxIntn = nil
 	r.mem = int64(cap(r.rows)) * 56 // the array is kept for the next rows
-	if r.mem > r.cfg.memLimit/2 {
+	if r.mem > r.cfg.MemBudget/2 {
 		r.rows, r.mem = nil, 0 // unless it would leave too little room
 	}
 	return nil
 }
 
 // nextGroup merges the rows of the next context id.
-func (r *CSVReader) nextGroup() (Context, error) {
+func (r *CSVReader) nextGroup() (graphidx.Context, error) {
 	m := r.merge
 	for {
 		if m.Len() == 0 {
-			return Context{}, io.EOF
+			return graphidx.Context{}, io.EOF
 		}
 		head := m.items[0].cur
 		r.group = r.group[:0]
-		limit, rows := r.cfg.maxCtxEnts, 0
+		limit, rows := r.cfg.MaxContextEntities, 0
 		for m.Len() > 0 && m.items[0].cur.ctx == head.ctx {
 			// A context over the limit keeps no more rows than the limit:
 			// the rest are only counted, so its memory stays O(limit).
@@ -498,20 +500,20 @@ func (r *CSVReader) nextGroup() (Context, error) {
 				r.group = append(r.group, m.items[0].cur)
 			}
 			if err := m.advance(); err != nil {
-				return Context{}, err
+				return graphidx.Context{}, err
 			}
 		}
 		r.groupLine = r.group[0].line
 		if limit > 0 && rows > limit {
 			// Too wide: every row of the context is skipped, counted under
 			// one reason; the error names the context's first row.
-			le := &LineError{File: r.name, Line: r.groupLine, Field: "context", Reason: ReasonTooManyEntities,
+			le := &graphidx.LineError{File: r.name, Line: r.groupLine, Field: "context", Reason: graphidx.ReasonTooManyEntities,
 				Detail: fmt.Sprintf("context %s has %d rows, more than %d entities in one context; all its rows were skipped",
 					strconv.Quote(head.ctx), rows, limit)}
 			if e := r.bl.bad(le); e != nil {
-				return Context{}, e
+				return graphidx.Context{}, e
 			}
-			r.bl.stats.Skipped[ReasonTooManyEntities] += int64(rows) - 1
+			r.bl.stats.Skipped[graphidx.ReasonTooManyEntities] += int64(rows) - 1
 			continue
 		}
 		// Rows are in line order; a stable sort by entity keeps the first.
@@ -519,18 +521,18 @@ func (r *CSVReader) nextGroup() (Context, error) {
 		r.obs = r.obs[:0]
 		for i, row := range r.group {
 			if i > 0 && row.ent == r.group[i-1].ent {
-				le := &LineError{File: r.name, Line: row.line, Field: "entity", Reason: ReasonDuplicateEntity,
+				le := &graphidx.LineError{File: r.name, Line: row.line, Field: "entity", Reason: graphidx.ReasonDuplicateEntity,
 					Detail: fmt.Sprintf("%s already observed in context %s at line %d", strconv.Quote(row.ent), strconv.Quote(row.ctx), r.group[i-1].line)}
 				if e := r.bl.bad(le); e != nil {
-					return Context{}, e
+					return graphidx.Context{}, e
 				}
 				continue
 			}
-			r.obs = append(r.obs, Observation{Entity: row.ent, Value: row.val})
+			r.obs = append(r.obs, graphidx.Observation{Entity: row.ent, Value: row.val})
 		}
 		r.bl.stats.OK += int64(len(r.obs))
 		r.bl.stats.Contexts++
-		return Context{ID: head.ctx, Obs: r.obs}, nil
+		return graphidx.Context{ID: head.ctx, Obs: r.obs}, nil
 	}
 }
 
@@ -567,7 +569,7 @@ func openCSVRun(path string, bufSize int, in *interner) (*fileCSVRun, error) {
 	if err != nil {
 		return nil, err
 	}
-	return &fileCSVRun{f: f, br: bufio.NewReaderSize(f, bufSize), in: in, buf: make([]byte, MaxNameBytes)}, nil
+	return &fileCSVRun{f: f, br: bufio.NewReaderSize(f, bufSize), in: in, buf: make([]byte, graphidx.MaxNameBytes)}, nil
 }
 
 func (f *fileCSVRun) str(buf []byte) ([]byte, error) {
@@ -575,7 +577,7 @@ func (f *fileCSVRun) str(buf []byte) ([]byte, error) {
 	if err != nil {
 		return nil, err
 	}
-	if n > MaxNameBytes {
+	if n > graphidx.MaxNameBytes {
 		return nil, fmt.Errorf("graphidx: corrupt CSV spill run %s", f.f.Name())
 	}
 	buf = buf[:n]

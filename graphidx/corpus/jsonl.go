@@ -1,4 +1,4 @@
-package graphidx
+package corpus
 
 import (
 	"bytes"
@@ -8,6 +8,8 @@ import (
 	"unicode/utf16"
 	"unicode/utf8"
 	"unsafe"
+
+	"github.com/hopwise/hopwise/graphidx"
 )
 
 // JSONLReader reads JSON Lines contexts, one JSON object per line:
@@ -15,19 +17,19 @@ import (
 //	{"id":"c1","obs":{"vent3":"open","zone2.humidity":"high"}}
 //	{"id":"c2","ents":["pump1","bed4"]}
 //
-// Rules (each violation is a *LineError with the named reason):
+// Rules (each violation is a *graphidx.LineError with the named reason):
 //   - "id" is a non-empty string (missing-id, bad-field).
 //   - "obs" is an object mapping entity names to value strings; "ents" is an
-//     array of entity names observed with PresentValue (bad-field for other
+//     array of entity names observed with graphidx.PresentValue (bad-field for other
 //     types). A line with both is rejected (mixed-forms); a line with
 //     neither, or with an empty one, is rejected (empty-context).
 //   - An entity repeated in one line is rejected (duplicate-entity), whether
 //     the values differ or not; so is a repeated top-level key (bad-field).
 //   - Names, values and ids are non-empty (empty-name), valid UTF-8 without
 //     lone UTF-16 surrogate escapes such as "\ud800" (bad-utf8), free of
-//     control characters (control-char) and at most MaxNameBytes long
+//     control characters (control-char) and at most graphidx.MaxNameBytes long
 //     (name-too-long).
-//   - A line names at most WithMaxContextEntities entities
+//   - A line names at most graphidx.WithMaxContextEntities entities
 //     (too-many-entities); parsing stops at the first one over.
 //   - Other top-level keys are ignored, so lines may carry metadata, except
 //     keys that differ from "id", "obs" or "ents" only in case ("ID",
@@ -40,7 +42,7 @@ import (
 // A JSONLReader is not safe for concurrent use.
 //
 // Across lines, an entity listed in "ents" (present) on one line and given a
-// value other than PresentValue in "obs" on another would get "present" as
+// value other than graphidx.PresentValue in "obs" on another would get "present" as
 // a spurious extra value: the later of the two lines is rejected
 // (mixed-forms), naming the entity and the first line of the other form
 // (formTracker, corpus_jsonl_forms.go). JSONLLineParser, which sees one line
@@ -50,21 +52,25 @@ type JSONLReader struct {
 	name string
 	bl   badLines
 	in   interner
-	obs  []Observation
+	obs  []graphidx.Observation
 	p    jparser
 	// forms enforces the cross-line mixed-forms rule; lineEnts says that
 	// the line being parsed uses "ents" (set by parseEnts).
 	forms    formTracker
 	lineEnts bool
 	// transient makes names views into the line buffer, valid only until
-	// the next call to Next. Only Build sets it, through setTransient: it
+	// the next call to Next. Only graphidx.Build sets it, through SetTransient: it
 	// copies what it keeps, and skipping the interner saves a map lookup
 	// per observation.
 	transient bool
 	maxEnts   int // most entities per line (0: no limit)
 }
 
-func (r *JSONLReader) setTransient(on bool) { r.transient = on }
+// SetTransient turns views on or off (graphidx.TransientReader): with views
+// on, the names and values of a returned context are views into the line
+// buffer, valid only until the next call to Next. graphidx.Build turns them
+// on while it reads, since it copies what it keeps; off by default.
+func (r *JSONLReader) SetTransient(on bool) { r.transient = on }
 
 // str returns the string of a just-parsed JSON string s.
 func (r *JSONLReader) str(s []byte) string {
@@ -77,29 +83,29 @@ func (r *JSONLReader) str(s []byte) string {
 // NewJSONLReader returns a reader of JSONL contexts from r. name is the file
 // name used in errors.
 func NewJSONLReader(r io.Reader, name string, opts ...ReadOption) *JSONLReader {
-	cfg := newReadConfig(opts)
-	jr := &JSONLReader{lr: newLineReader(r, cfg.maxLine), name: name, maxEnts: cfg.maxCtxEnts}
-	jr.bl.init(cfg.policy)
+	cfg := newConfig(opts)
+	jr := &JSONLReader{lr: newLineReader(r, cfg.maxLine), name: name, maxEnts: cfg.MaxContextEntities}
+	jr.bl.init(cfg.Policy)
 	return jr
 }
 
 // Next returns the next valid context or io.EOF. In strict mode it returns
-// the first bad line as a *LineError; in lenient mode it skips and counts it.
-func (r *JSONLReader) Next() (Context, error) {
+// the first bad line as a *graphidx.LineError; in lenient mode it skips and counts it.
+func (r *JSONLReader) Next() (graphidx.Context, error) {
 	for {
 		line, err := r.lr.next()
 		if err == io.EOF {
-			return Context{}, io.EOF
+			return graphidx.Context{}, io.EOF
 		}
 		if err != nil {
-			return Context{}, fmt.Errorf("%s:%d: %w", r.name, r.lr.line+1, err)
+			return graphidx.Context{}, fmt.Errorf("%s:%d: %w", r.name, r.lr.line+1, err)
 		}
 		r.bl.stats.Lines++
 		if r.lr.tooLong {
 			r.bl.stats.Records++
-			if e := r.bl.bad(&LineError{File: r.name, Line: r.lr.line, Reason: ReasonLineTooLong,
+			if e := r.bl.bad(&graphidx.LineError{File: r.name, Line: r.lr.line, Reason: graphidx.ReasonLineTooLong,
 				Detail: fmt.Sprintf("longer than %d bytes", r.lr.max)}); e != nil {
-				return Context{}, e
+				return graphidx.Context{}, e
 			}
 			continue
 		}
@@ -115,7 +121,7 @@ func (r *JSONLReader) Next() (Context, error) {
 		if le != nil {
 			le.File, le.Line = r.name, r.lr.line
 			if e := r.bl.bad(le); e != nil {
-				return Context{}, e
+				return graphidx.Context{}, e
 			}
 			continue
 		}
@@ -125,11 +131,12 @@ func (r *JSONLReader) Next() (Context, error) {
 	}
 }
 
-// position names the line of the context Next returned last.
-func (r *JSONLReader) position() (string, int) { return r.name, r.lr.line }
+// Position returns the file name and the line of the context Next returned
+// last (graphidx.Positioner).
+func (r *JSONLReader) Position() (string, int) { return r.name, r.lr.line }
 
 // Stats returns the line accounting so far.
-func (r *JSONLReader) Stats() ReadStats { return r.bl.snapshot() }
+func (r *JSONLReader) Stats() graphidx.ReadStats { return r.bl.snapshot() }
 
 // Skipped returns the counts of skipped lines by reason.
 func (r *JSONLReader) Skipped() map[string]int { return r.bl.Skipped() }
@@ -146,12 +153,12 @@ func isBlank(b []byte) bool {
 	return true
 }
 
-func (r *JSONLReader) parse(line []byte) (Context, *LineError) {
+func (r *JSONLReader) parse(line []byte) (graphidx.Context, *graphidx.LineError) {
 	p := &r.p
 	p.b, p.i, p.badSurrogate = line, 0, false
 	r.obs = r.obs[:0]
 	var (
-		c                        Context
+		c                        graphidx.Context
 		seenID, seenObs, seenEnt bool
 	)
 	p.ws()
@@ -176,7 +183,7 @@ func (r *JSONLReader) parse(line []byte) (Context, *LineError) {
 				k = "ents"
 			default:
 				if v := caseVariant(key); v != "" {
-					return c, &LineError{Field: EscapeControl(string(key)), Reason: ReasonBadField,
+					return c, &graphidx.LineError{Field: graphidx.EscapeControl(string(key)), Reason: graphidx.ReasonBadField,
 						Detail: fmt.Sprintf("key differs from %q only in case", v)}
 				}
 			}
@@ -188,24 +195,24 @@ func (r *JSONLReader) parse(line []byte) (Context, *LineError) {
 			switch k {
 			case "id":
 				if seenID {
-					return c, &LineError{Field: "id", Reason: ReasonBadField, Detail: "repeated key"}
+					return c, &graphidx.LineError{Field: "id", Reason: graphidx.ReasonBadField, Detail: "repeated key"}
 				}
 				seenID = true
 				if p.peek() != '"' {
 					if !p.skip(0) {
 						return c, p.syntax("bad value")
 					}
-					return c, &LineError{Field: "id", Reason: ReasonBadField, Detail: "want a string"}
+					return c, &graphidx.LineError{Field: "id", Reason: graphidx.ReasonBadField, Detail: "want a string"}
 				}
 				s, ok := p.str()
 				if !ok {
 					return c, p.syntax("bad string")
 				}
-				if why := checkName(s); why != "" {
-					if why == ReasonEmptyName {
-						why = ReasonMissingID
+				if why := graphidx.CheckName(s); why != "" {
+					if why == graphidx.ReasonEmptyName {
+						why = graphidx.ReasonMissingID
 					}
-					return c, &LineError{Field: "id", Reason: why}
+					return c, &graphidx.LineError{Field: "id", Reason: why}
 				}
 				if r.transient && !p.escaped {
 					c.ID = unsafe.String(&s[0], len(s))
@@ -214,7 +221,7 @@ func (r *JSONLReader) parse(line []byte) (Context, *LineError) {
 				}
 			case "obs":
 				if seenObs {
-					return c, &LineError{Field: "obs", Reason: ReasonBadField, Detail: "repeated key"}
+					return c, &graphidx.LineError{Field: "obs", Reason: graphidx.ReasonBadField, Detail: "repeated key"}
 				}
 				seenObs = true
 				if le := r.parseObs(); le != nil {
@@ -222,7 +229,7 @@ func (r *JSONLReader) parse(line []byte) (Context, *LineError) {
 				}
 			case "ents":
 				if seenEnt {
-					return c, &LineError{Field: "ents", Reason: ReasonBadField, Detail: "repeated key"}
+					return c, &graphidx.LineError{Field: "ents", Reason: graphidx.ReasonBadField, Detail: "repeated key"}
 				}
 				seenEnt = true
 				if le := r.parseEnts(); le != nil {
@@ -249,18 +256,18 @@ func (r *JSONLReader) parse(line []byte) (Context, *LineError) {
 	}
 	switch {
 	case !seenID:
-		return c, &LineError{Field: "id", Reason: ReasonMissingID}
+		return c, &graphidx.LineError{Field: "id", Reason: graphidx.ReasonMissingID}
 	case seenObs && seenEnt:
-		return c, &LineError{Reason: ReasonMixedForms, Detail: `both "obs" and "ents"`}
+		return c, &graphidx.LineError{Reason: graphidx.ReasonMixedForms, Detail: `both "obs" and "ents"`}
 	case len(r.obs) == 0:
-		return c, &LineError{Reason: ReasonEmptyContext}
+		return c, &graphidx.LineError{Reason: graphidx.ReasonEmptyContext}
 	}
 	if name, dup := dupCheck(r.obs); dup {
 		f := "ents"
 		if seenObs {
 			f = "obs." + name
 		}
-		return c, &LineError{Field: f, Reason: ReasonDuplicateEntity, Detail: strconv.Quote(name)}
+		return c, &graphidx.LineError{Field: f, Reason: graphidx.ReasonDuplicateEntity, Detail: strconv.Quote(name)}
 	}
 	c.Obs = r.obs
 	return c, nil
@@ -281,21 +288,21 @@ func caseVariant(key []byte) string {
 
 // tooMany reports a line with more entities than the reader's limit; the
 // caller stops parsing it, so a wide line costs O(limit) memory.
-func (r *JSONLReader) tooMany(field string) *LineError {
+func (r *JSONLReader) tooMany(field string) *graphidx.LineError {
 	if r.maxEnts > 0 && len(r.obs) > r.maxEnts {
-		return &LineError{Field: field, Reason: ReasonTooManyEntities,
+		return &graphidx.LineError{Field: field, Reason: graphidx.ReasonTooManyEntities,
 			Detail: fmt.Sprintf("more than %d entities in one context", r.maxEnts)}
 	}
 	return nil
 }
 
-func (r *JSONLReader) parseObs() *LineError {
+func (r *JSONLReader) parseObs() *graphidx.LineError {
 	p := &r.p
 	if p.peek() != '{' {
 		if !p.skip(0) {
 			return p.syntax("bad value")
 		}
-		return &LineError{Field: "obs", Reason: ReasonBadField, Detail: "want an object of strings"}
+		return &graphidx.LineError{Field: "obs", Reason: graphidx.ReasonBadField, Detail: "want an object of strings"}
 	}
 	p.i++
 	p.ws()
@@ -308,8 +315,8 @@ func (r *JSONLReader) parseObs() *LineError {
 		if !ok {
 			return p.syntax("want a string key in obs")
 		}
-		if why := checkName(k); why != "" {
-			return &LineError{Field: "obs", Reason: why, Detail: "entity name"}
+		if why := graphidx.CheckName(k); why != "" {
+			return &graphidx.LineError{Field: "obs", Reason: why, Detail: "entity name"}
 		}
 		ent := r.str(k)
 		p.ws()
@@ -321,16 +328,16 @@ func (r *JSONLReader) parseObs() *LineError {
 			if !p.skip(0) {
 				return p.syntax("bad value")
 			}
-			return &LineError{Field: "obs." + ent, Reason: ReasonBadField, Detail: "want a string value"}
+			return &graphidx.LineError{Field: "obs." + ent, Reason: graphidx.ReasonBadField, Detail: "want a string value"}
 		}
 		v, ok := p.str()
 		if !ok {
 			return p.syntax("bad string")
 		}
-		if why := checkName(v); why != "" {
-			return &LineError{Field: "obs." + ent, Reason: why, Detail: "value"}
+		if why := graphidx.CheckName(v); why != "" {
+			return &graphidx.LineError{Field: "obs." + ent, Reason: why, Detail: "value"}
 		}
-		r.obs = append(r.obs, Observation{Entity: ent, Value: r.str(v)})
+		r.obs = append(r.obs, graphidx.Observation{Entity: ent, Value: r.str(v)})
 		if le := r.tooMany("obs"); le != nil {
 			return le
 		}
@@ -345,14 +352,14 @@ func (r *JSONLReader) parseObs() *LineError {
 	}
 }
 
-func (r *JSONLReader) parseEnts() *LineError {
+func (r *JSONLReader) parseEnts() *graphidx.LineError {
 	p := &r.p
 	r.lineEnts = true
 	if p.peek() != '[' {
 		if !p.skip(0) {
 			return p.syntax("bad value")
 		}
-		return &LineError{Field: "ents", Reason: ReasonBadField, Detail: "want an array of strings"}
+		return &graphidx.LineError{Field: "ents", Reason: graphidx.ReasonBadField, Detail: "want an array of strings"}
 	}
 	p.i++
 	p.ws()
@@ -365,16 +372,16 @@ func (r *JSONLReader) parseEnts() *LineError {
 			if !p.skip(0) {
 				return p.syntax("bad value")
 			}
-			return &LineError{Field: fmt.Sprintf("ents[%d]", n), Reason: ReasonBadField, Detail: "want a string"}
+			return &graphidx.LineError{Field: fmt.Sprintf("ents[%d]", n), Reason: graphidx.ReasonBadField, Detail: "want a string"}
 		}
 		s, ok := p.str()
 		if !ok {
 			return p.syntax("bad string")
 		}
-		if why := checkName(s); why != "" {
-			return &LineError{Field: fmt.Sprintf("ents[%d]", n), Reason: why}
+		if why := graphidx.CheckName(s); why != "" {
+			return &graphidx.LineError{Field: fmt.Sprintf("ents[%d]", n), Reason: why}
 		}
-		r.obs = append(r.obs, Observation{Entity: r.str(s), Value: PresentValue})
+		r.obs = append(r.obs, graphidx.Observation{Entity: r.str(s), Value: graphidx.PresentValue})
 		if le := r.tooMany("ents"); le != nil {
 			return le
 		}
@@ -402,11 +409,11 @@ type jparser struct {
 
 const maxJSONDepth = 512
 
-func (p *jparser) syntax(msg string) *LineError {
+func (p *jparser) syntax(msg string) *graphidx.LineError {
 	if p.badSurrogate {
-		return &LineError{Reason: ReasonBadUTF8, Detail: fmt.Sprintf("column %d: lone UTF-16 surrogate escape", p.i+1)}
+		return &graphidx.LineError{Reason: graphidx.ReasonBadUTF8, Detail: fmt.Sprintf("column %d: lone UTF-16 surrogate escape", p.i+1)}
 	}
-	return &LineError{Reason: ReasonBadJSON, Detail: fmt.Sprintf("column %d: %s", p.i+1, msg)}
+	return &graphidx.LineError{Reason: graphidx.ReasonBadJSON, Detail: fmt.Sprintf("column %d: %s", p.i+1, msg)}
 }
 
 func (p *jparser) ws() {

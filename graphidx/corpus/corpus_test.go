@@ -1,4 +1,4 @@
-package graphidx
+package corpus
 
 import (
 	"errors"
@@ -10,11 +10,13 @@ import (
 	"slices"
 	"strings"
 	"testing"
+
+	"github.com/hopwise/hopwise/graphidx"
 )
 
 // readAll drains a reader; obs are rendered "id:e=v,e=v" with entities
 // sorted so tests do not depend on the reader's order.
-func readAll(t testing.TB, r ContextReader) ([]string, error) {
+func readAll(t testing.TB, r graphidx.ContextReader) ([]string, error) {
 	t.Helper()
 	var out []string
 	for {
@@ -34,7 +36,7 @@ func readAll(t testing.TB, r ContextReader) ([]string, error) {
 	}
 }
 
-func checkReconcile(t *testing.T, s ReadStats) {
+func checkReconcile(t *testing.T, s graphidx.ReadStats) {
 	t.Helper()
 	if s.Records != s.OK+s.Empty+s.SkippedTotal() {
 		t.Errorf("records %d != ok %d + empty %d + skipped %d", s.Records, s.OK, s.Empty, s.SkippedTotal())
@@ -50,26 +52,26 @@ var jsonlCases = []struct {
 	{`   `, "blank"},
 	{`{"id":"c3","obs":{"vent3":"open"},"note":{"x":[1,2.5e3,true,null]}}`, ""},
 	{`{"id":"c4","obs":{"vent\u0033":"op\"en"}}`, ""},
-	{`{"id":"c5","obs":{"a":"1"}`, ReasonBadJSON},
-	{`not json`, ReasonBadJSON},
-	{`{"id":"c6","obs":{"a":"1"}} trailing`, ReasonBadJSON},
-	{`{"obs":{"a":"1"}}`, ReasonMissingID},
-	{`{"id":"","obs":{"a":"1"}}`, ReasonMissingID},
-	{`{"id":7,"obs":{"a":"1"}}`, ReasonBadField},
-	{`{"id":"c7","obs":{"a":1}}`, ReasonBadField},
-	{`{"id":"c8","ents":"a"}`, ReasonBadField},
-	{`{"id":"c9","ents":["a",2]}`, ReasonBadField},
-	{`{"id":"c10","id":"c10","ents":["a"]}`, ReasonBadField},
-	{`{"id":"c11","obs":{}}`, ReasonEmptyContext},
-	{`{"id":"c12"}`, ReasonEmptyContext},
-	{`{"id":"c13","obs":{"a":"1"},"ents":["b"]}`, ReasonMixedForms},
-	{`{"id":"c14","obs":{"a":"1","a":"2"}}`, ReasonDuplicateEntity},
-	{`{"id":"c15","ents":["a","b","a"]}`, ReasonDuplicateEntity},
-	{`{"id":"c16","obs":{"":"1"}}`, ReasonEmptyName},
-	{`{"id":"c17","obs":{"a":""}}`, ReasonEmptyName},
-	{"{\"id\":\"c18\",\"obs\":{\"a\xff\":\"1\"}}", ReasonBadUTF8},
-	{`{"id":"c19","obs":{"` + strings.Repeat("x", MaxNameBytes+1) + `":"1"}}`, ReasonNameTooLong},
-	{`{"id":"c20","ents":["` + strings.Repeat("y", MaxNameBytes+100) + `"]}`, ReasonLineTooLong}, // longer than the limit below
+	{`{"id":"c5","obs":{"a":"1"}`, graphidx.ReasonBadJSON},
+	{`not json`, graphidx.ReasonBadJSON},
+	{`{"id":"c6","obs":{"a":"1"}} trailing`, graphidx.ReasonBadJSON},
+	{`{"obs":{"a":"1"}}`, graphidx.ReasonMissingID},
+	{`{"id":"","obs":{"a":"1"}}`, graphidx.ReasonMissingID},
+	{`{"id":7,"obs":{"a":"1"}}`, graphidx.ReasonBadField},
+	{`{"id":"c7","obs":{"a":1}}`, graphidx.ReasonBadField},
+	{`{"id":"c8","ents":"a"}`, graphidx.ReasonBadField},
+	{`{"id":"c9","ents":["a",2]}`, graphidx.ReasonBadField},
+	{`{"id":"c10","id":"c10","ents":["a"]}`, graphidx.ReasonBadField},
+	{`{"id":"c11","obs":{}}`, graphidx.ReasonEmptyContext},
+	{`{"id":"c12"}`, graphidx.ReasonEmptyContext},
+	{`{"id":"c13","obs":{"a":"1"},"ents":["b"]}`, graphidx.ReasonMixedForms},
+	{`{"id":"c14","obs":{"a":"1","a":"2"}}`, graphidx.ReasonDuplicateEntity},
+	{`{"id":"c15","ents":["a","b","a"]}`, graphidx.ReasonDuplicateEntity},
+	{`{"id":"c16","obs":{"":"1"}}`, graphidx.ReasonEmptyName},
+	{`{"id":"c17","obs":{"a":""}}`, graphidx.ReasonEmptyName},
+	{"{\"id\":\"c18\",\"obs\":{\"a\xff\":\"1\"}}", graphidx.ReasonBadUTF8},
+	{`{"id":"c19","obs":{"` + strings.Repeat("x", graphidx.MaxNameBytes+1) + `":"1"}}`, graphidx.ReasonNameTooLong},
+	{`{"id":"c20","ents":["` + strings.Repeat("y", graphidx.MaxNameBytes+100) + `"]}`, graphidx.ReasonLineTooLong}, // longer than the limit below
 	{`{"id":"c21","obs":{"a":"1"}}`, ""},
 }
 
@@ -111,14 +113,14 @@ func TestJSONLReaderBadLines(t *testing.T) {
 	if !slices.Equal(got, want) {
 		t.Errorf("got %q", got)
 	}
-	if e := st.FirstBad[ReasonDuplicateEntity]; e == nil || e.Line != 19 || e.Field != "obs.a" {
+	if e := st.FirstBad[graphidx.ReasonDuplicateEntity]; e == nil || e.Line != 19 || e.Field != "obs.a" {
 		t.Errorf("first duplicate: %v", e)
 	}
 	// Strict: stops at the first bad line with file:line.
-	r = NewJSONLReader(strings.NewReader(b.String()), "ctx.jsonl", WithPolicy(Strict))
+	r = NewJSONLReader(strings.NewReader(b.String()), "ctx.jsonl", graphidx.WithPolicy(graphidx.Strict))
 	_, err = readAll(t, r)
-	var le *LineError
-	if !errors.As(err, &le) || le.Line != firstBad || le.Reason != ReasonBadJSON || !strings.HasPrefix(err.Error(), fmt.Sprintf("ctx.jsonl:%d: bad-json", firstBad)) {
+	var le *graphidx.LineError
+	if !errors.As(err, &le) || le.Line != firstBad || le.Reason != graphidx.ReasonBadJSON || !strings.HasPrefix(err.Error(), fmt.Sprintf("ctx.jsonl:%d: bad-json", firstBad)) {
 		t.Errorf("strict: %v", err)
 	}
 }
@@ -144,9 +146,9 @@ func TestCSVReaderInterleaved(t *testing.T) {
 		}
 		b.WriteString("\n")
 	}
-	for _, budget := range []int64{DefaultMemBudget, 512} {
+	for _, budget := range []int64{graphidx.DefaultMemBudget, 512} {
 		dir := t.TempDir()
-		r := NewCSVReader(strings.NewReader(b.String()), "long.csv", withReadMemLimit(budget), WithTempDir(dir))
+		r := NewCSVReader(strings.NewReader(b.String()), "long.csv", withReadMemLimit(budget), graphidx.WithTempDir(dir))
 		got, err := readAll(t, r)
 		if err != nil {
 			t.Fatal(err)
@@ -200,8 +202,8 @@ func TestCSVReaderBadRows(t *testing.T) {
 		t.Errorf("got %q", got)
 	}
 	st := r.Stats()
-	wantSkip := map[string]int64{ReasonDuplicateEntity: 1, ReasonTooFewColumns: 1, ReasonTooManyColumns: 1,
-		ReasonBadQuote: 2, ReasonMissingID: 1, ReasonEmptyName: 2, ReasonBadUTF8: 1, ReasonControlChar: 1}
+	wantSkip := map[string]int64{graphidx.ReasonDuplicateEntity: 1, graphidx.ReasonTooFewColumns: 1, graphidx.ReasonTooManyColumns: 1,
+		graphidx.ReasonBadQuote: 2, graphidx.ReasonMissingID: 1, graphidx.ReasonEmptyName: 2, graphidx.ReasonBadUTF8: 1, graphidx.ReasonControlChar: 1}
 	if !maps.Equal(st.Skipped, wantSkip) {
 		t.Errorf("skipped %v want %v", st.Skipped, wantSkip)
 	}
@@ -209,22 +211,22 @@ func TestCSVReaderBadRows(t *testing.T) {
 		t.Errorf("stats %+v", st)
 	}
 	checkReconcile(t, st)
-	if e := st.FirstBad[ReasonDuplicateEntity]; e == nil || e.Line != 3 || e.Field != "entity" {
+	if e := st.FirstBad[graphidx.ReasonDuplicateEntity]; e == nil || e.Line != 3 || e.Field != "entity" {
 		t.Errorf("duplicate reported as %v", e)
 	}
-	if e := st.FirstBad[ReasonEmptyName]; e == nil || e.Line != 11 || e.Field != "entity" || e.Error() != "rows.csv:11: entity: empty-name" {
+	if e := st.FirstBad[graphidx.ReasonEmptyName]; e == nil || e.Line != 11 || e.Field != "entity" || e.Error() != "rows.csv:11: entity: empty-name" {
 		t.Errorf("empty name reported as %v", e)
 	}
 	// Strict stops at line 4 (the duplicate at line 3 is found only when grouping).
-	r = NewCSVReader(strings.NewReader(in), "rows.csv", WithPolicy(Strict))
+	r = NewCSVReader(strings.NewReader(in), "rows.csv", graphidx.WithPolicy(graphidx.Strict))
 	_, err = readAll(t, r)
-	if le := (*LineError)(nil); !errors.As(err, &le) || le.Line != 4 || le.Reason != ReasonTooFewColumns {
+	if le := (*graphidx.LineError)(nil); !errors.As(err, &le) || le.Line != 4 || le.Reason != graphidx.ReasonTooFewColumns {
 		t.Errorf("strict: %v", err)
 	}
 	// Bad header is fatal in both modes.
 	for _, h := range []string{"ctx,entity,value\n", "context,entity,value,extra\n", ""} {
 		_, err := readAll(t, NewCSVReader(strings.NewReader(h+"c,e,v\n"), "h.csv"))
-		if le := (*LineError)(nil); !errors.As(err, &le) || le.Reason != ReasonBadHeader {
+		if le := (*graphidx.LineError)(nil); !errors.As(err, &le) || le.Reason != graphidx.ReasonBadHeader {
 			t.Errorf("header %q: %v", h, err)
 		}
 	}
@@ -247,7 +249,7 @@ pump	pump1
 
 func TestTextReaderMatching(t *testing.T) {
 	t.Parallel()
-	lex, err := ParseLexicon(strings.NewReader(testLexicon), "lex.tsv")
+	lex, err := graphidx.ParseLexicon(strings.NewReader(testLexicon), "lex.tsv")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -282,12 +284,12 @@ func TestTextReaderMatching(t *testing.T) {
 	long := "pump\n\n" + strings.Repeat("zone 2 ", 40) + "\nmore\n\npump\n"
 	r = NewTextReader(strings.NewReader(long), "long.txt", lex, WithMaxLineBytes(100))
 	got, _ = readAll(t, r)
-	if st := r.Stats(); len(got) != 2 || st.Skipped[ReasonLineTooLong] != 1 || st.FirstBad[ReasonLineTooLong].Line != 3 {
+	if st := r.Stats(); len(got) != 2 || st.Skipped[graphidx.ReasonLineTooLong] != 1 || st.FirstBad[graphidx.ReasonLineTooLong].Line != 3 {
 		t.Errorf("long paragraph: %q %+v", got, st)
 	}
 }
 
-func TestOpenCorpus(t *testing.T) {
+func TestOpen(t *testing.T) {
 	t.Parallel()
 	dir := t.TempDir()
 	write := func(name, s string) string {
@@ -304,7 +306,7 @@ func TestOpenCorpus(t *testing.T) {
 		{write("a.txt", "the pump\n"), "", "PATH#p1:pump1=present"},
 		{write("a.data", "context,entity\nx,pump1\n"), "csv", "x:pump1=present"},
 	} {
-		r, cl, err := OpenCorpus(c.path, c.format, lex)
+		r, cl, err := Open(c.path, c.format, lex)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -314,10 +316,10 @@ func TestOpenCorpus(t *testing.T) {
 			t.Errorf("%s: %q %v", c.path, got, err)
 		}
 	}
-	if _, _, err := OpenCorpus(write("b.data", ""), "", ""); !errors.Is(err, ErrUnknownFormat) {
+	if _, _, err := Open(write("b.data", ""), "", ""); !errors.Is(err, ErrUnknownFormat) {
 		t.Errorf("unknown: %v", err)
 	}
-	if _, _, err := OpenCorpus(filepath.Join(dir, "a.txt"), "", ""); !errors.Is(err, ErrLexiconRequired) {
+	if _, _, err := Open(filepath.Join(dir, "a.txt"), "", ""); !errors.Is(err, ErrLexiconRequired) {
 		t.Errorf("no lexicon: %v", err)
 	}
 }
@@ -350,10 +352,10 @@ func TestFormatTable(t *testing.T) {
 				}
 			}
 		}
-		var lex *Lexicon
+		var lex *graphidx.Lexicon
 		if f.NeedsLexicon {
 			var err error
-			if lex, err = ParseLexicon(strings.NewReader("vent three\tvent3\n"), "lex.tsv"); err != nil {
+			if lex, err = graphidx.ParseLexicon(strings.NewReader("vent three\tvent3\n"), "lex.tsv"); err != nil {
 				t.Fatal(err)
 			}
 		}
@@ -369,7 +371,7 @@ func TestFormatTable(t *testing.T) {
 	if _, ok := LookupFormat("parquet"); ok {
 		t.Error("LookupFormat found a format outside the table")
 	}
-	_, _, err := OpenCorpus(filepath.Join(t.TempDir(), "a.jsonl"), "parquet", "")
+	_, _, err := Open(filepath.Join(t.TempDir(), "a.jsonl"), "parquet", "")
 	if !errors.Is(err, ErrUnknownFormat) || !strings.Contains(err.Error(), `"parquet" (want jsonl, csv or text)`) {
 		t.Errorf("OpenCorpus with an unknown format: %v", err)
 	}

@@ -1,0 +1,46 @@
+// Package testcorpus holds the test fixtures that the tests of graphidx and
+// of graphidx/corpus share: a seeded JSONL benchmark corpus and the process
+// CPU clock of the benchmarks. It imports neither package, so the internal
+// tests of both can use it (internal/testgraph, the fixtures of the packages
+// above graphidx, imports graphidx).
+package testcorpus
+
+import (
+	"bytes"
+	"fmt"
+	"math/rand/v2"
+)
+
+// JSONL returns n JSONL contexts of exactly 8 entities each, drawn
+// from a window of 48 entities around a random centre on a ring of ents
+// greenhouse sensors (locality: far-apart sensors never co-occur), each
+// with one of 3 states. Seeded, so every run measures the same bytes.
+func JSONL(n, ents int, seed uint64) []byte {
+	rng := rand.New(rand.NewPCG(seed, 11))
+	states := []string{"low", "ok", "high"}
+	var b bytes.Buffer
+	picked := make([]int, 0, 8)
+	for i := range n {
+		centre := rng.IntN(ents)
+		picked = picked[:0]
+		for len(picked) < 8 {
+			e := (centre + rng.IntN(48)) % ents
+			dup := false
+			for _, p := range picked {
+				dup = dup || p == e
+			}
+			if !dup {
+				picked = append(picked, e)
+			}
+		}
+		fmt.Fprintf(&b, `{"id":"ctx%d","obs":{`, i)
+		for j, e := range picked {
+			if j > 0 {
+				b.WriteByte(',')
+			}
+			fmt.Fprintf(&b, `"bed%d.sensor%d":"%s"`, e/16, e%16, states[(e+rng.IntN(2))%3])
+		}
+		b.WriteString("}}\n")
+	}
+	return b.Bytes()
+}
