@@ -262,7 +262,7 @@ type BuildSummary struct {
 	MergePasses  int   // intermediate merge passes (fan-in limit)
 	// WideContexts counts contexts the builder skipped for having more
 	// entities than WithMaxContextEntities (only from readers that do not
-	// apply the limit themselves; the readers of this package count them
+	// apply the limit themselves; the readers of graphidx/corpus count them
 	// in Read.Skipped as too-many-entities). FirstWide names the first.
 	WideContexts uint64
 	FirstWide    string

@@ -47,3 +47,29 @@ Zone 2 Vent	zone-2/vent-motor
 	// 5 forms, 4 entities, 1 collision: lexicon.tsv:7: surface: duplicate-surface: "Zone 2 Vent" names "zone-2/vent-motor" here but was listed earlier for "zone-2/vent", which is kept
 	// Zone 2
 }
+
+// A Matcher links many texts against one lexicon, reusing its memory, and
+// reports entities and values by number, as the text corpus reader
+// aggregates them; EntityName and ValueName give the names back.
+func ExampleLexicon_NewMatcher() {
+	lex, err := graphidx.ParseLexicon(strings.NewReader("moisture probe\tprobe\nprobe reads wet\tprobe\treads-wet\nvent 3\tvent3\n"), "lexicon.tsv")
+	if err != nil {
+		fmt.Println(err)
+		return
+	}
+	m := lex.NewMatcher()
+	for _, text := range []string{"The probe reads wet near vent 3.", "Vent 3 and the moisture probe."} {
+		for _, f := range m.Find([]byte(text)) {
+			fmt.Printf("%q entity %d %s valued=%t", text[f.Start:f.End], f.Entity, lex.EntityName(f.Entity), lex.Valued(f.Entity))
+			if f.HasValue {
+				fmt.Printf(" value %s", lex.ValueName(f.Value))
+			}
+			fmt.Println()
+		}
+	}
+	// Output:
+	// "probe reads wet" entity 0 probe valued=true value reads-wet
+	// "vent 3" entity 1 vent3 valued=false
+	// "Vent 3" entity 1 vent3 valued=false
+	// "moisture probe" entity 0 probe valued=true
+}

@@ -265,7 +265,7 @@ type textMatch struct {
 const linkWindow = 4096
 
 // linker is the scratch state of one match run. It is reused across texts
-// (pooled for Link, owned by a TextReader) and is not safe for concurrent
+// (pooled for Link, owned by a Matcher) and is not safe for concurrent
 // use.
 type linker struct {
 	tz    tokenizer

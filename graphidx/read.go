@@ -194,7 +194,7 @@ type ReadStats struct {
 	// FirstBad holds the first LineError seen for each skipped reason.
 	FirstBad map[string]*LineError
 	// Unvalued counts, for text, valued entities left out of a paragraph
-	// that names them only by forms without a value (see TextReader).
+	// that names them only by forms without a value (see corpus.TextReader).
 	Unvalued int64
 }
 
