@@ -129,20 +129,8 @@ func BenchmarkJSONLReaderFormCheck(b *testing.B) {
 		}
 		return testcorpus.CPUTime() - t0
 	}
-	var base, checked time.Duration
-	i := 0
 	b.SetBytes(2 * int64(len(data)))
-	b.ReportAllocs()
-	for b.Loop() {
-		if i%2 == 0 {
-			base += read(false)
-			checked += read(true)
-		} else {
-			checked += read(true)
-			base += read(false)
-		}
-		i++
-	}
+	checked, base, i := testcorpus.Alternate(b, func() time.Duration { return read(true) }, func() time.Duration { return read(false) })
 	if base <= 0 || checked <= 0 {
 		return // no CPU clock on this platform
 	}

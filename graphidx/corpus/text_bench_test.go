@@ -90,20 +90,8 @@ func BenchmarkTextReader(b *testing.B) {
 		}
 		return testcorpus.CPUTime() - t0
 	}
-	var reader, base time.Duration
-	i := 0
 	b.SetBytes(int64(len(text)))
-	b.ReportAllocs()
-	for b.Loop() {
-		if i%2 == 0 {
-			reader += read()
-			base += match()
-		} else {
-			base += match()
-			reader += read()
-		}
-		i++
-	}
+	reader, base, i := testcorpus.Alternate(b, read, match)
 	if reader <= 0 || base <= 0 {
 		return // no CPU clock on this platform
 	}

@@ -9,6 +9,8 @@ import (
 	"bytes"
 	"fmt"
 	"math/rand/v2"
+	"testing"
+	"time"
 )
 
 // JSONL returns n JSONL contexts of exactly 8 entities each, drawn
@@ -43,4 +45,24 @@ func JSONL(n, ents int, seed uint64) []byte {
 		b.WriteString("}}\n")
 	}
 	return b.Bytes()
+}
+
+// Alternate runs a and base once each per b.Loop iteration, in alternating
+// order so that neither always runs second (on a warmer cache, or while the
+// shared machine is quieter), and returns the sums of what they return
+// (their own CPU times, measured with CPUTime) and the iteration count. It
+// calls b.ReportAllocs.
+func Alternate(b *testing.B, a, base func() time.Duration) (ta, tbase time.Duration, n int) {
+	b.ReportAllocs()
+	for b.Loop() {
+		if n%2 == 0 {
+			ta += a()
+			tbase += base()
+		} else {
+			tbase += base()
+			ta += a()
+		}
+		n++
+	}
+	return ta, tbase, n
 }
