@@ -3,14 +3,17 @@ package graphidx
 import (
 	"context"
 	"errors"
+	"math"
 	"path/filepath"
 	"strings"
 	"testing"
 )
 
-// TestBadBuildOptions: a worker count < 1, a negative neighbour limit and a
-// memory budget that is negative or below MinMemBudget are errors naming
-// the option (they used to be raised or kept at the default silently), for
+// TestBadBuildOptions: a worker count < 1, a negative neighbour limit, a
+// memory budget that is negative or below MinMemBudget, a negative context
+// width limit and a valid share outside [0, 1] (or NaN) are errors naming
+// the option (they used to be raised, clamped or kept at the default
+// silently), for
 // Build, Compile and CheckBuildOptions alike (counts.Partial.Compile has its
 // own test); 0 budget keeps the default.
 func TestBadBuildOptions(t *testing.T) {
@@ -25,6 +28,10 @@ func TestBadBuildOptions(t *testing.T) {
 		{WithMaxNeighbors(-1), "WithMaxNeighbors(-1)"},
 		{WithMemBudget(-1), "WithMemBudget(-1)"},
 		{WithMemBudget(MinMemBudget - 1), "WithMemBudget(1048575)"},
+		{WithMaxContextEntities(-1), "WithMaxContextEntities(-1)"},
+		{WithMinValidShare(1.5), "WithMinValidShare(1.5)"},
+		{WithMinValidShare(-0.1), "WithMinValidShare(-0.1)"},
+		{WithMinValidShare(math.NaN()), "WithMinValidShare(NaN)"},
 	} {
 		out := filepath.Join(t.TempDir(), "x.hwx")
 		_, err := Build(context.Background(), jsonlReader(strings.NewReader(corpus), "c.jsonl"), out, tc.opt)
@@ -40,7 +47,8 @@ func TestBadBuildOptions(t *testing.T) {
 	}
 	out := filepath.Join(t.TempDir(), "ok.hwx")
 	if _, err := Build(context.Background(), jsonlReader(strings.NewReader(corpus), "c.jsonl"), out,
-		WithMemBudget(0), WithMemBudget(MinMemBudget), WithWorkers(1), WithMaxNeighbors(0)); err != nil {
+		WithMemBudget(0), WithMemBudget(MinMemBudget), WithWorkers(1), WithMaxNeighbors(0),
+		WithMaxContextEntities(0), WithMinValidShare(0), WithMinValidShare(1)); err != nil {
 		t.Errorf("in-domain options: %v", err)
 	}
 }

@@ -46,8 +46,8 @@ type buildConfig struct {
 }
 
 // ErrBadBuildOption reports a build option outside its domain (a worker
-// count < 1, a negative neighbour limit, a memory budget below
-// MinMemBudget). Build, Compile and the count compilers return it before
+// count < 1, a negative neighbour or context-width limit, a memory budget
+// below MinMemBudget, a valid share outside [0, 1]). Build, Compile and the count compilers return it before
 // reading anything.
 var ErrBadBuildOption = errors.New("graphidx: bad build option")
 
@@ -177,7 +177,13 @@ const DefaultMaxContextEntities = 2048
 
 type maxCtxEntsOption int
 
-func (o maxCtxEntsOption) applyBuild(c *buildConfig) { c.maxCtxEnts = max(int(o), 0) }
+func (o maxCtxEntsOption) applyBuild(c *buildConfig) {
+	if o < 0 {
+		c.fail("WithMaxContextEntities(%d): want ≥ 0 (0 = no limit)", int(o))
+		return
+	}
+	c.maxCtxEnts = int(o)
+}
 func (o maxCtxEntsOption) ApplyRead(s *ReadSettings) { s.MaxContextEntities = max(int(o), 0) }
 
 // WithMaxContextEntities bounds the entities of one context. The readers of
@@ -188,7 +194,9 @@ func (o maxCtxEntsOption) ApplyRead(s *ReadSettings) { s.MaxContextEntities = ma
 // (BuildSummary.WideContexts), or fails with ErrWideContext under
 // WithPolicy(Strict). n = 0 removes the limit (the builder still streams
 // the pairs of a wide context within its memory budget). Default
-// DefaultMaxContextEntities; negative values mean 0.
+// DefaultMaxContextEntities. A negative n is an ErrBadBuildOption for Build
+// and Compile; a corpus reader, which cannot fail at construction, reads it
+// as 0.
 func WithMaxContextEntities(n int) SharedOption { return maxCtxEntsOption(n) }
 
 // DefaultMinValidShare is the default least share of valid records a build
@@ -199,15 +207,17 @@ const DefaultMinValidShare = 0.5
 // file untouched, when the reader (a StatsReader) accepted fewer than share
 // of the records it examined ((OK + Empty) / Records, so text paragraphs
 // without a lexicon match are not held against the corpus). A build that
-// counts no context at all always fails with ErrNoContexts. share is clamped
-// to [0, 1]; 0 disables the share check (not the empty check). Default
+// counts no context at all always fails with ErrNoContexts. share is in
+// [0, 1]: 0 disables the share check (not the empty check), and a share
+// outside [0, 1] or NaN is an ErrBadBuildOption. Default
 // DefaultMinValidShare.
 func WithMinValidShare(share float64) BuildOption {
 	return buildOptionFunc(func(c *buildConfig) {
-		if share != share { // NaN
-			share = DefaultMinValidShare
+		if !(share >= 0 && share <= 1) { // also NaN
+			c.fail("WithMinValidShare(%g): want a share in [0, 1]", share)
+			return
 		}
-		c.minValid = min(max(share, 0), 1)
+		c.minValid = share
 	})
 }
 

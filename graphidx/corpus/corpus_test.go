@@ -316,8 +316,18 @@ func TestOpen(t *testing.T) {
 			t.Errorf("%s: %q %v", c.path, got, err)
 		}
 	}
-	if _, _, err := Open(write("b.data", ""), "", ""); !errors.Is(err, ErrUnknownFormat) {
-		t.Errorf("unknown: %v", err)
+	if _, _, err := Open(write("b.data", ""), "", ""); !errors.Is(err, ErrUnknownFormat) ||
+		!strings.Contains(err.Error(), ".ndjson") || !strings.Contains(err.Error(), "--format") || !strings.Contains(err.Error(), "jsonl, csv or text") {
+		t.Errorf("unknown extension: %v, want the known extensions and the --format names", err)
+	}
+	// Format names are compared without regard to case.
+	if r, cl, err := Open(filepath.Join(dir, "a.txt"), "JSONL", ""); err != nil {
+		t.Errorf("format JSONL: %v", err)
+	} else {
+		cl.Close()
+		if _, ok := r.(*JSONLReader); !ok {
+			t.Errorf("format JSONL opened a %T", r)
+		}
 	}
 	if _, _, err := Open(filepath.Join(dir, "a.txt"), "", ""); !errors.Is(err, ErrLexiconRequired) {
 		t.Errorf("no lexicon: %v", err)
@@ -327,7 +337,7 @@ func TestOpen(t *testing.T) {
 // TestFormatTable: the format table is the one source of the format names
 // and extensions: every extension is detected as its format (also upper
 // case and gzipped), no name or extension is listed twice, every entry
-// opens a reader, and OpenCorpus refuses a name outside the table with the
+// opens a reader, and Open refuses a name outside the table with the
 // table's names in the message.
 func TestFormatTable(t *testing.T) {
 	t.Parallel()
@@ -373,6 +383,6 @@ func TestFormatTable(t *testing.T) {
 	}
 	_, _, err := Open(filepath.Join(t.TempDir(), "a.jsonl"), "parquet", "")
 	if !errors.Is(err, ErrUnknownFormat) || !strings.Contains(err.Error(), `"parquet" (want jsonl, csv or text)`) {
-		t.Errorf("OpenCorpus with an unknown format: %v", err)
+		t.Errorf("Open with an unknown format: %v", err)
 	}
 }

@@ -75,11 +75,11 @@ case-insensitively on word boundaries, leftmost-longest`,
 // copy; the entries' Extensions must not be modified. O(formats).
 func Formats() []Format { return slices.Clone(formats) }
 
-// LookupFormat returns the table entry named name (lower case), and false
-// when there is none. O(formats).
+// LookupFormat returns the table entry named name, compared without regard
+// to case ("JSONL" is jsonl), and false when there is none. O(formats).
 func LookupFormat(name string) (Format, bool) {
 	for _, f := range formats {
-		if f.Name == name {
+		if strings.EqualFold(f.Name, name) {
 			return f, true
 		}
 	}
@@ -96,6 +96,16 @@ func FormatNames() string {
 		return strings.Join(names, "")
 	}
 	return strings.Join(names[:len(names)-1], ", ") + " or " + names[len(names)-1]
+}
+
+// extensionNames lists every extension of the table for messages:
+// ".jsonl, .ndjson, .json, .csv, .txt, .text, .md".
+func extensionNames() string {
+	var exts []string
+	for _, f := range formats {
+		exts = append(exts, f.Extensions...)
+	}
+	return strings.Join(exts, ", ")
 }
 
 // DetectFormat guesses the corpus format from a file name by the
@@ -127,7 +137,8 @@ func Open(path, format, lexicon string, opts ...ReadOption) (graphidx.ContextRea
 		format = DetectFormat(path)
 	}
 	if format == "" {
-		return nil, nil, fmt.Errorf("%w: cannot tell the format of %s from its extension; pass it explicitly", ErrUnknownFormat, path)
+		return nil, nil, fmt.Errorf("%w: cannot tell the format of %s from its extension (known: %s, each also with .gz); give the format (hopwise build --format): %s",
+			ErrUnknownFormat, path, extensionNames(), FormatNames())
 	}
 	cf, ok := LookupFormat(format)
 	if !ok {
