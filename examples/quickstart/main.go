@@ -2,8 +2,8 @@
 // query and prints the decision. Build an index first, for example with
 // `hopwise demo`, then:
 //
-//	go run ./examples/quickstart -index hopwise-demo/index.hwx \
-//	    -from bed-11/moisture-probe -value reads-wet -to bed-10/leaf-wilt
+//	go run ./examples/quickstart --index hopwise-demo/index.hwx \
+//	    --from bed-11/moisture-probe --value reads-wet --to bed-10/leaf-wilt
 package main
 
 import (
