@@ -123,8 +123,9 @@ func TestRouteTextErrors(t *testing.T) {
 	if !errors.As(err, &ee) || !strings.Contains(err.Error(), `it has values "closed", "open"`) {
 		t.Errorf("missing value: %v", err)
 	}
+	// An unknown value's error lists the entity's values, once.
 	_, err = routeCLI(t, "route", "--index", valued, "--from", "vent-north", "--value", "ajar", "--to", "bed-tomato")
-	if !errors.As(err, &ee) || !strings.Contains(err.Error(), `it has values "closed", "open"`) {
+	if !errors.As(err, &ee) || !strings.Contains(err.Error(), `has the values "closed" or "open"`) || strings.Count(err.Error(), `"closed"`) != 1 {
 		t.Errorf("unknown value: %v", err)
 	}
 }
