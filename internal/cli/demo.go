@@ -5,6 +5,7 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"runtime/debug"
 
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/internal/demo"
@@ -90,16 +91,39 @@ accuracy table, the files written and the timings.`,
 }
 
 // invocation returns how the reader should run hopwise again: "hopwise"
-// when the running binary is the hopwise found on PATH (installed), else
-// "go run ./cmd/hopwise" (a "go run" or "go build" binary elsewhere, run from
-// a checkout).
+// when the running binary is the hopwise found on PATH (installed); else,
+// in a checkout (./cmd/hopwise exists), "go run ./cmd/hopwise"; else (a
+// binary run by "go run <module>/cmd/hopwise@version" from any directory)
+// that module command at the running version, "@latest" for a development
+// build.
 func invocation() string {
 	self, err1 := os.Executable()
 	onPath, err2 := exec.LookPath("hopwise")
 	if err1 == nil && err2 == nil && sameFile(self, onPath) {
 		return "hopwise"
 	}
-	return "go run ./cmd/hopwise"
+	version := ""
+	if bi, ok := debug.ReadBuildInfo(); ok {
+		version = bi.Main.Version
+	}
+	return goRunInvocation(".", version)
+}
+
+// modulePath is the module of the hopwise command, for "go run" lines
+// outside a checkout.
+const modulePath = "github.com/hopwise/hopwise"
+
+// goRunInvocation is the "go run" form of invocation for a working
+// directory dir and the running module version ("" or "(devel)" when not
+// built from a tagged module).
+func goRunInvocation(dir, version string) string {
+	if fi, err := os.Stat(filepath.Join(dir, "cmd", "hopwise")); err == nil && fi.IsDir() {
+		return "go run ./cmd/hopwise"
+	}
+	if version == "" || version == "(devel)" {
+		version = "latest"
+	}
+	return "go run " + modulePath + "/cmd/hopwise@" + version
 }
 
 // sameFile reports whether two paths name the same file after resolving

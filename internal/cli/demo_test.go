@@ -23,7 +23,8 @@ func TestDemoCommand(t *testing.T) {
 		t.Fatalf("demo: %v\n%s", err, errb.String())
 	}
 	s := out.String()
-	for _, want := range []string{"far-apart (held-out)", "well-supported", "Explained decisions:", "go run ./cmd/hopwise route --index " + filepath.Join(dir, "index.hwx"), "go run ./cmd/hopwise eval"} {
+	prog := invocation() // the test binary is not the installed hopwise: a "go run" line
+	for _, want := range []string{"far-apart (held-out)", "well-supported", "Explained decisions:", prog + " route --index " + filepath.Join(dir, "index.hwx"), prog + " eval"} {
 		if !strings.Contains(s, want) {
 			t.Errorf("output lacks %q:\n%s", want, s)
 		}
@@ -73,9 +74,9 @@ func TestDemoCommand(t *testing.T) {
 }
 
 // runNextCommands runs every command of the demo's "Next:" list through the
-// command line, as a reader who only ran "go run ./cmd/hopwise demo" would
-// paste it (the test binary is not the installed hopwise, so each line
-// starts with "go run ./cmd/hopwise"). tune and ab read the demo's
+// command line, as a reader who only ran the demo with "go run" would paste
+// it (the test binary is not the installed hopwise, so each line starts
+// with the "go run" form of invocation). tune and ab read the demo's
 // experiment traces, so they must find propensities and outcomes there.
 // "eval" builds its own worlds and is skipped under -short.
 func runNextCommands(t *testing.T, out string) {
@@ -84,7 +85,7 @@ func runNextCommands(t *testing.T, out string) {
 	if !ok {
 		t.Fatalf("no Next: list in\n%s", out)
 	}
-	const prog = "go run ./cmd/hopwise "
+	prog := invocation() + " "
 	n := 0
 	for _, line := range strings.Split(strings.TrimRight(next, "\n"), "\n") {
 		line = strings.TrimSpace(line)
@@ -156,4 +157,30 @@ func shellWords(t *testing.T, line string) []string {
 		words = append(words, w.String())
 	}
 	return words
+}
+
+// TestGoRunInvocation: the demo's "Next:" lines run hopwise as "go run
+// ./cmd/hopwise" only inside a checkout; elsewhere (a binary run with
+// "go run <module>/cmd/hopwise@version" from any directory) they name the
+// module command at the running version, @latest for a development build.
+func TestGoRunInvocation(t *testing.T) {
+	t.Parallel()
+	elsewhere := t.TempDir()
+	checkout := t.TempDir()
+	if err := os.MkdirAll(filepath.Join(checkout, "cmd", "hopwise"), 0o755); err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		dir, version, want string
+	}{
+		{checkout, "(devel)", "go run ./cmd/hopwise"},
+		{checkout, "v1.2.0", "go run ./cmd/hopwise"},
+		{elsewhere, "", "go run github.com/hopwise/hopwise/cmd/hopwise@latest"},
+		{elsewhere, "(devel)", "go run github.com/hopwise/hopwise/cmd/hopwise@latest"},
+		{elsewhere, "v1.2.0", "go run github.com/hopwise/hopwise/cmd/hopwise@v1.2.0"},
+	} {
+		if got := goRunInvocation(tc.dir, tc.version); got != tc.want {
+			t.Errorf("goRunInvocation(%s, %q) = %q, want %q", filepath.Base(tc.dir), tc.version, got, tc.want)
+		}
+	}
 }
