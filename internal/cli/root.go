@@ -1,5 +1,3 @@
-// Package cli implements the hopwise command line. Each command lives in its
-// own file and registers itself with register in an init function.
 package cli
 
 import (

@@ -1,5 +1,5 @@
-// Package fileio holds the file primitives graphidx and graphidx/counts
-// share: read-only memory maps of untrusted files (MapFile, with an aligned
+// Package fileio holds the file primitives graphidx, graphidx/corpus and
+// graphidx/counts share: read-only memory maps of untrusted files (MapFile, with an aligned
 // read fallback where mmap is unsupported), durable renames (SyncDir),
 // private spill directories whose leftovers from killed processes are
 // removed (MakeSpillDir, RemoveDeadOwners, ProcessAlive), and the bounded

@@ -1,8 +1,3 @@
-// Package testcorpus holds the test fixtures that the tests of graphidx and
-// of graphidx/corpus share: a seeded JSONL benchmark corpus and the process
-// CPU clock of the benchmarks. It imports neither package, so the internal
-// tests of both can use it (internal/testgraph, the fixtures of the packages
-// above graphidx, imports graphidx).
 package testcorpus
 
 import (
