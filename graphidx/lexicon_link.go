@@ -100,8 +100,8 @@ type Found struct {
 	Start, End int
 	// Entity is the number of the entity the surface form names.
 	Entity uint32
-	// Value is the number of the value the form states, valid only when
-	// HasValue.
+	// Value is the number of the value the form states when HasValue, and
+	// 0 otherwise.
 	Value    uint32
 	HasValue bool
 }
@@ -118,7 +118,7 @@ type Matcher struct {
 	found []Found
 }
 
-// NewMatcher returns a Matcher over l.
+// NewMatcher returns a Matcher over l, which must not be nil.
 func (l *Lexicon) NewMatcher() *Matcher { return &Matcher{l: l} }
 
 // Find returns the mentions of the lexicon in text, in text order. Unlike
@@ -130,7 +130,11 @@ func (m *Matcher) Find(text []byte) []Found {
 	m.m.run(m.l, text, false)
 	m.found = m.found[:0]
 	for _, f := range m.m.found {
-		m.found = append(m.found, Found{Start: f.start, End: f.end, Entity: f.ent, Value: f.val - 1, HasValue: f.val != 0})
+		fd := Found{Start: f.start, End: f.end, Entity: f.ent}
+		if f.val != 0 {
+			fd.Value, fd.HasValue = f.val-1, true
+		}
+		m.found = append(m.found, fd)
 	}
 	return m.found
 }
