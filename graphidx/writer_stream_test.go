@@ -383,18 +383,7 @@ func ringCorpus(n, ents, w int, seed uint64) []byte {
 	var b bytes.Buffer
 	picked := make([]int, 0, 8)
 	for i := range n {
-		c := rng.IntN(ents)
-		picked = picked[:0]
-		for len(picked) < 8 {
-			e := (c + rng.IntN(w)) % ents
-			dup := false
-			for _, p := range picked {
-				dup = dup || p == e
-			}
-			if !dup {
-				picked = append(picked, e)
-			}
-		}
+		picked = testcorpus.Window(rng, picked, rng.IntN(ents), w, ents, 8)
 		fmt.Fprintf(&b, `{"id":"c%d","obs":{`, i)
 		for j, e := range picked {
 			if j > 0 {

@@ -18,18 +18,7 @@ func JSONL(n, ents int, seed uint64) []byte {
 	var b bytes.Buffer
 	picked := make([]int, 0, 8)
 	for i := range n {
-		centre := rng.IntN(ents)
-		picked = picked[:0]
-		for len(picked) < 8 {
-			e := (centre + rng.IntN(48)) % ents
-			dup := false
-			for _, p := range picked {
-				dup = dup || p == e
-			}
-			if !dup {
-				picked = append(picked, e)
-			}
-		}
+		picked = Window(rng, picked, rng.IntN(ents), 48, ents, 8)
 		fmt.Fprintf(&b, `{"id":"ctx%d","obs":{`, i)
 		for j, e := range picked {
 			if j > 0 {
@@ -40,6 +29,25 @@ func JSONL(n, ents int, seed uint64) []byte {
 		b.WriteString("}}\n")
 	}
 	return b.Bytes()
+}
+
+// Window sets dst to k distinct entities drawn uniformly from the window of
+// w entities starting at centre on a ring of ents (w ≥ k), redrawing
+// repeats, and returns it: the locality of the generated corpora (entities
+// far apart on the ring never co-occur). It draws rng.IntN(w) once per try.
+func Window(rng *rand.Rand, dst []int, centre, w, ents, k int) []int {
+	dst = dst[:0]
+	for len(dst) < k {
+		e := (centre + rng.IntN(w)) % ents
+		dup := false
+		for _, p := range dst {
+			dup = dup || p == e
+		}
+		if !dup {
+			dst = append(dst, e)
+		}
+	}
+	return dst
 }
 
 // Alternate runs a and base once each per b.Loop iteration, in alternating
