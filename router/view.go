@@ -161,7 +161,7 @@ func (d *Dist) UnmarshalJSON(data []byte) error {
 //	direct                 {estimate, sq_error_sum|error_proxy, support}:
 //	                       support = contexts that observed both endpoints
 //	chain                  {bridges, estimate, sq_error_sum|error_proxy,
-//	                       weakest_link_support} or null when none was found
+//	                       weakest_edge_support} or null when none was found
 //	generation             the index generation, 16 hex digits
 //	arm, propensity, explored, cached
 //	                       the A/B and exploration policy (omitted when
@@ -204,7 +204,7 @@ type ChainView struct {
 	Bridges  []string `json:"bridges"`
 	Estimate *Dist    `json:"estimate,omitempty"`
 	ErrorFigure
-	WeakestLinkSupport uint64 `json:"weakest_link_support"`
+	WeakestEdgeSupport uint64 `json:"weakest_edge_support"`
 }
 
 // NewView returns the JSON view of decision d for query q, its error
@@ -252,7 +252,7 @@ func NewView(q Query, d Decision, m ErrorMeasure) View {
 			Bridges:            d.Chain.Bridges,
 			Estimate:           est(d.Chain.Estimate),
 			ErrorFigure:        NewErrorFigure(m, d.Chain.Err),
-			WeakestLinkSupport: d.Chain.MinSupport,
+			WeakestEdgeSupport: d.Chain.MinSupport,
 		}
 	}
 	return v

@@ -42,7 +42,7 @@ func TestViewJSON(t *testing.T) {
 			t.Errorf("figures %v %v %v", m["error_measure"], m["sq_error_sum"], m["mode"])
 		}
 		ch := m["chain"].(map[string]any)
-		if ch["weakest_link_support"] != float64(d.Chain.MinSupport) || ch["sq_error_sum"] != d.Chain.Err {
+		if ch["weakest_edge_support"] != float64(d.Chain.MinSupport) || ch["sq_error_sum"] != d.Chain.Err {
 			t.Errorf("chain %v", ch)
 		}
 		if dr := m["direct"].(map[string]any); dr["support"] != float64(d.Direct.Support) || dr["sq_error_sum"] != d.Direct.Err {

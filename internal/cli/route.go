@@ -83,7 +83,7 @@ the decision view (router.View):
    "sq_error_sum":x,"gain":g,"score":s,"truncated":false,
    "direct":{"estimate":{...},"sq_error_sum":x,"support":n},
    "chain":{"bridges":[...],"estimate":{...},"sq_error_sum":y,
-            "weakest_link_support":n}|null,
+            "weakest_edge_support":n}|null,
    "generation":"<hex>"}
 with "cut":["beam"|"candidates"|"budget"|"deadline",...] added when truncated.
 sq_error_sum is the expected squared error summed over the target's values.

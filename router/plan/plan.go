@@ -67,7 +67,7 @@ type Plan struct {
 	router.ErrorFigure
 	// Support is the evidence behind the chosen answer: for a direct plan
 	// the contexts observing both endpoints, for a chain the support of
-	// its weakest link.
+	// its weakest edge.
 	Support uint64 `json:"support"`
 	// Reason is the decision's reason code (router.Reason*).
 	Reason string `json:"reason"`
