@@ -211,15 +211,15 @@ func TestDecideGoldenDigest(t *testing.T) {
 		opts []Option
 		want string
 	}{
-		{"default", nil, "2e21a4bc02d85f72"},
-		{"H1", []Option{WithMaxBridges(1)}, "7ea4a4ddb11ab22f"},
-		{"H2", []Option{WithMaxBridges(2)}, "147abdf837dddc51"},
-		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "cc2dc746051fd732"},
-		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "0c58cf2e6593180e"},
-		{"budget3000", []Option{WithExpansionBudget(3000)}, "fa4943e555eefbcd"},
+		{"default", nil, "eb7e51cb28775baf"},
+		{"H1", []Option{WithMaxBridges(1)}, "7e7eda1ef6de67d1"},
+		{"H2", []Option{WithMaxBridges(2)}, "778f137d915746ef"},
+		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "05031546d0f78781"},
+		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "dc890fb4dbdfe795"},
+		{"budget3000", []Option{WithExpansionBudget(3000)}, "0779e5f144d69b37"},
 		{"support", []Option{WithModel(support)}, "e06acf7f4b69d29a"},
-		{"exact", []Option{WithModel(exact)}, "b41284f2721142ca"},
-		{"utility", []Option{WithUtility(2, 0.001)}, "7637562bc14e34df"},
+		{"exact", []Option{WithModel(exact)}, "b76e9dd2a0341b26"},
+		{"utility", []Option{WithUtility(2, 0.001)}, "025025fc0adab099"},
 	}
 	fresh := map[string]string{} // with -update: the new digest of each case
 	for _, tc := range cases {

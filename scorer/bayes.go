@@ -139,7 +139,7 @@ type Bayes struct {
 	alpha, beta, signalZ      float64
 	gamma, delta              float64
 	prior, separation, noiseK float64
-	spread                    float64
+	spread, influence         float64
 	variance                  Variance
 }
 
@@ -181,6 +181,9 @@ func (b *Bayes) PriorStrength() float64 { return b.prior }
 
 // Separation returns λ of the separation bias.
 func (b *Bayes) Separation() float64 { return b.separation }
+
+// Influence returns κ of the influence bound (0: off).
+func (b *Bayes) Influence() float64 { return b.influence }
 
 // NoiseK returns k of GainMargin.
 func (b *Bayes) NoiseK() float64 { return b.noiseK }
@@ -299,7 +302,12 @@ func (b *Bayes) Direct(ws *Workspace, st Stats, s graphidx.EntityID, u int, t gr
 		sq += dist[v] * dist[v]
 	}
 	e := max(0, (1-sq)/(d+1))
-	if e0, ok := b.unseenErr(st, s, u, kt); ok {
+	if prior, e0, ok := b.unseenErrs(st, s, u, t, kt, sup); ok {
+		r := 1.0
+		if prior > 0 {
+			r = e0 / prior
+		}
+		ws.remember(st, s, u, t, r)
 		// Shrinkage MSE: θ̂ = λ·N/n + (1 − λ)·a/a₀ with λ = n/(n + a₀).
 		nf := float64(n)
 		lam := nf / d
@@ -365,7 +373,15 @@ func (b *Bayes) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridg
 	m := len(bridges)
 	bias := b.beta * float64(m)
 	if sig != nil {
-		bias += b.missingSignal(ws.lb)
+		if ms := b.missingSignal(ws.lb); ms > 0 {
+			// The dependence a chain can miss is at most the target's
+			// distance from its marginal: scaled with it (Influence bound).
+			r, err := b.unseenRatio(ws, st, s, u, t, ws.ks[len(bridges)+1])
+			if err != nil {
+				return Estimate{}, err
+			}
+			bias += ms * r
+		}
 	}
 	kt := ws.ks[m+1]
 	dist := ws.newDist(kt)

@@ -1,0 +1,252 @@
+package scorer
+
+import (
+	"reflect"
+
+	"github.com/hopwise/hopwise/graphidx"
+)
+
+// InfluenceFirst and InfluenceSecond are the most support-ranked neighbours
+// read by the influence bound (see Bayes, "Influence bound"): up to
+// InfluenceFirst neighbours w of the observed entity, and for each up to
+// InfluenceSecond neighbours z of w. The ranked prefix holds an entity's
+// strongest, usually adjacent, associations, through which its influence
+// leaves; the bounds keep the bound at most
+// InfluenceFirst·(1 + InfluenceSecond) pair look-ups per direct estimate.
+const (
+	InfluenceFirst  = 8
+	InfluenceSecond = 3
+	InfluenceRefine = 2
+)
+
+// influenceBound returns B², the squared two-hop influence bound of the
+// observed value s = u (see Bayes, "Influence bound"):
+//
+//	B = max over ranked neighbours w of s and ranked neighbours z ≠ s of w
+//	    of TV(d_z),   d_z = (π_w − m_w)ᵀ Θ_(w→z),
+//
+// where π_w = P̂(w | s = u) is row u of the pair (s, w)'s posterior means,
+// m_w = P̂(w) the smoothed marginal of w, Θ_(w→z) the posterior-mean matrix
+// of the pair (w, z) and TV half the L1 norm. stop ends the scan as soon as
+// 2·B² reaches it (the caller's cap can no longer bind). ok is false when
+// st lacks ranked neighbours or marginals, or s has no neighbour with both.
+// Cost at most InfluenceFirst·(1 + InfluenceSecond) pair look-ups and
+// O(InfluenceFirst·InfluenceSecond·K²) arithmetic, no allocation.
+func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, stop float64) (float64, bool) {
+	rn, ok := st.(RankedNeighborer)
+	if !ok {
+		return 0, false
+	}
+	nl, ok := st.(NeighborLister)
+	if !ok {
+		return 0, false
+	}
+	first := nl.Neighbors(s)
+	if len(first) > InfluenceFirst {
+		return 0, false
+	}
+	ms, ok := st.(Marginals)
+	if !ok {
+		return 0, false
+	}
+	ks := st.NumValues(s)
+	if u < 0 || u >= ks {
+		return 0, false
+	}
+	// Pass 1: π_w − m_w and TV(π_w, m_w) for every neighbour w; the TV
+	// bounds every two-hop deviation through w.
+	var devs [InfluenceFirst][graphidx.MaxValues]float64
+	var tvs [InfluenceFirst]float64
+	var ws [InfluenceFirst]graphidx.EntityID
+	var kws [InfluenceFirst]int
+	n := 0
+	for _, w := range first {
+		if w == s {
+			continue
+		}
+		kw := st.NumValues(w)
+		if kw < 1 || kw > graphidx.MaxValues {
+			continue
+		}
+		ps, ok, err := pair(st, s, w, ks, kw)
+		if err != nil || !ok {
+			continue
+		}
+		mw := ms.Marginal(w)
+		if len(mw) != kw {
+			continue
+		}
+		rowTot := float64(ps.RowSum(u)) + float64(kw)*b.alpha
+		mTot := float64(kw) * b.alpha
+		for _, c := range mw {
+			mTot += float64(c)
+		}
+		dev := devs[n][:kw]
+		tvw := 0.0
+		for v := range dev {
+			dev[v] = (float64(ps.Count(u, v))+b.alpha)/rowTot - (float64(mw[v])+b.alpha)/mTot
+			if dev[v] > 0 {
+				tvw += dev[v]
+			}
+		}
+		tvs[n], ws[n], kws[n] = tvw, w, kw
+		n++
+	}
+	if n == 0 {
+		return 0, false
+	}
+	// Pass 2: the InfluenceRefine neighbours of largest TV get their
+	// two-hop deviation: to the target itself when w was observed with it,
+	// and to w's first InfluenceSecond ranked neighbours. The rest keep
+	// their TV. Order by TV, descending (n ≤ InfluenceFirst).
+	var idx [InfluenceFirst]int
+	for i := range n {
+		idx[i] = i
+		for j := i; j > 0 && tvs[idx[j]] > tvs[idx[j-1]]; j-- {
+			idx[j], idx[j-1] = idx[j-1], idx[j]
+		}
+	}
+	refine := min(InfluenceRefine, n)
+	rest := 0.0
+	for _, i := range idx[refine:n] {
+		rest += tvs[i]
+	}
+	if 2*rest*rest >= stop {
+		return rest * rest, true // the cap cannot bind, however small the rest
+	}
+	var out [graphidx.MaxValues]float64
+	sum := rest
+	for _, i := range idx[:refine] {
+		w, kw := ws[i], kws[i]
+		dev := devs[i][:kw]
+		best := 0.0
+		if tv, ok := b.twoHop(st, w, kw, t, dev, out[:]); ok {
+			best = tv
+		}
+		second := 0
+		for _, z := range rn.RankedNeighbors(w) {
+			if second == InfluenceSecond {
+				break
+			}
+			if z == s || z == w || z == t {
+				continue
+			}
+			tv, ok := b.twoHop(st, w, kw, z, dev, out[:])
+			if !ok {
+				continue
+			}
+			second++
+			best = max(best, tv)
+		}
+		sum += min(best, tvs[i])
+	}
+	return sum * sum, true
+}
+
+// unseenErrs returns the prior error E0 of an unobserved pair (unseenErr)
+// and the error after the influence bound, min(E0, κ·2·B²) when sup = 0
+// and the bound applies, else E0 again (see Bayes, "Influence bound"). ok
+// is false without marginals. Cost that of influenceBound when sup = 0.
+func (b *Bayes) unseenErrs(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, kt int, sup uint64) (prior, e0 float64, ok bool) {
+	prior, ok = b.unseenErr(st, s, u, kt)
+	if !ok {
+		return 0, 0, false
+	}
+	e0 = prior
+	if sup == 0 && b.influence > 0 && prior > 0 {
+		if bb, ok := b.influenceBound(st, s, u, t, prior/b.influence); ok {
+			e0 = min(prior, b.influence*2*bb)
+		}
+	}
+	return prior, e0, true
+}
+
+// remember records r = E0/E0_prior of the query (s = u, t) over st in ws,
+// for the Chain calls that follow (unseenRatio). ws may be nil. O(1).
+func (ws *Workspace) remember(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, r float64) {
+	if ws == nil {
+		return
+	}
+	ws.inflOK, ws.inflSt, ws.inflS, ws.inflU, ws.inflT, ws.inflRatio = true, st, s, u, t, r
+}
+
+// unseenRatio returns r = E0/E0_prior ∈ [0, 1] for the query (s = u, t):
+// the factor by which the influence bound shrinks the missing-signal bias
+// of a chain (see Bayes, "Influence bound"); 1 when the pair was observed
+// together, without marginals or with the bound off. It reuses the value
+// that the last Direct (or Chain) call with ws recorded for the same query
+// and the same Stats value, else computes and records it. O(1) when
+// recorded, else one pair look-up plus influenceBound.
+func (b *Bayes) unseenRatio(ws *Workspace, st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, kt int) (float64, error) {
+	if b.influence == 0 {
+		return 1, nil
+	}
+	if ws.inflOK && ws.inflS == s && ws.inflU == u && ws.inflT == t && sameStats(ws.inflSt, st) {
+		return ws.inflRatio, nil
+	}
+	ks := ws.ks[0]
+	ps, ok, err := pair(st, s, t, ks, kt)
+	if err != nil {
+		return 0, err
+	}
+	var sup uint64
+	if ok {
+		sup = ps.Support()
+	}
+	r := 1.0
+	if prior, e0, ok := b.unseenErrs(st, s, u, t, kt, sup); ok && prior > 0 {
+		r = e0 / prior
+	}
+	ws.remember(st, s, u, t, r)
+	return r, nil
+}
+
+// sameStats reports whether a and b are the same Stats value; values of a
+// type that cannot be compared are never the same (so a Workspace never
+// reuses a recorded ratio for them). O(1).
+func sameStats(a, b Stats) bool {
+	ta := reflect.TypeOf(a)
+	if ta == nil || ta != reflect.TypeOf(b) || !ta.Comparable() {
+		return false
+	}
+	return a == b
+}
+
+// twoHop returns TV(d_z), d_z = devᵀ Θ_(w→z) with Θ the posterior means of
+// the pair (w, z), using out (≥ K_z entries) as scratch; ok is false when
+// the pair was never observed. O(K_w·K_z) and one pair look-up.
+func (b *Bayes) twoHop(st Stats, w graphidx.EntityID, kw int, z graphidx.EntityID, dev, out []float64) (float64, bool) {
+	kz := st.NumValues(z)
+	if kz < 1 || kz > graphidx.MaxValues {
+		return 0, false
+	}
+	pz, ok, err := pair(st, w, z, kw, kz)
+	if err != nil || !ok {
+		return 0, false
+	}
+	clear(out[:kz])
+	for r := 0; r < kw; r++ {
+		if dev[r] == 0 {
+			continue
+		}
+		f := dev[r] / (float64(pz.RowSum(r)) + float64(kz)*b.alpha)
+		for v := 0; v < kz; v++ {
+			out[v] += f * (float64(pz.Count(r, v)) + b.alpha)
+		}
+	}
+	tv := 0.0
+	for _, d := range out[:kz] {
+		if d > 0 {
+			tv += d
+		}
+	}
+	return tv, true
+}
+
+// NeighborLister is an optional interface of a Stats: every entity observed
+// with id (in any order). *graphidx.Index satisfies it. With it the Bayes
+// model bounds an unobserved pair's error by the observed value's influence
+// (see Bayes, "Influence bound").
+type NeighborLister interface {
+	Neighbors(id graphidx.EntityID) []graphidx.EntityID
+}

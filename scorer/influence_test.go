@@ -1,0 +1,200 @@
+package scorer_test
+
+import (
+	"math"
+	"slices"
+	"testing"
+
+	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/scorer"
+)
+
+// localStats adds marginals and neighbour lists to memStats, as an index
+// has them: what the influence bound reads.
+type localStats struct {
+	*memStats
+	marg map[graphidx.EntityID][]uint64
+	adj  map[graphidx.EntityID][]graphidx.EntityID
+}
+
+func newLocalStats() *localStats {
+	return &localStats{memStats: newMemStats(), marg: map[graphidx.EntityID][]uint64{}, adj: map[graphidx.EntityID][]graphidx.EntityID{}}
+}
+
+// link stores the table of (a, b) and records each as the other's
+// neighbour (in insertion order, which serves as the support ranking).
+func (l *localStats) link(a, b graphidx.EntityID, rows [][]uint32) {
+	l.pair(a, b, rows)
+	l.adj[a] = append(l.adj[a], b)
+	l.adj[b] = append(l.adj[b], a)
+}
+
+func (l *localStats) Marginal(id graphidx.EntityID) []uint64 { return l.marg[id] }
+func (l *localStats) Neighbors(id graphidx.EntityID) []graphidx.EntityID {
+	return slices.Clone(l.adj[id])
+}
+func (l *localStats) RankedNeighbors(id graphidx.EntityID) []graphidx.EntityID { return l.adj[id] }
+
+// tv2 is the total-variation distance of a binary distribution deviation d
+// (its positive part).
+func tv2(d0, d1 float64) float64 { return max(d0, 0) + max(d1, 0) }
+
+// TestInfluenceBound: on the path s — w — z — t of binary entities, with
+// (s, t) never observed together, the error of the direct estimate of t
+// given s = u is min(E0, 2·B²), E0 the fitted prior error and B the
+// two-hop influence TV((π_w − m_w)ᵀ Θ_(w→z)) computed here by hand from the
+// tables (α = 1); a chain's missing-signal term shrinks by the same factor.
+// The bound does not apply with κ = 0, to a pair observed together, or when
+// s has more neighbours than InfluenceFirst (the bound could not read them
+// all).
+func TestInfluenceBound(t *testing.T) {
+	t.Parallel()
+	const s, w, z, tg = 1, 2, 3, 4
+	st := newLocalStats()
+	for id := graphidx.EntityID(1); id <= 4; id++ {
+		st.entity(id, 2)
+	}
+	sw := [][]uint32{{400, 100}, {380, 120}} // s barely moves w
+	wz := [][]uint32{{600, 180}, {90, 130}}
+	zt := [][]uint32{{500, 190}, {100, 210}}
+	st.link(s, w, sw)
+	st.link(w, z, wz)
+	st.link(z, tg, zt)
+	st.marg[s] = []uint64{500, 500}
+	st.marg[w] = []uint64{780, 220}
+	st.marg[z] = []uint64{690, 310}
+	st.marg[tg] = []uint64{600, 400}
+
+	const u = 1
+	// By hand: π_w = row u of (s, w) smoothed, m_w the smoothed marginal.
+	pi := []float64{381.0 / 502, 121.0 / 502}
+	mw := []float64{781.0 / 1002, 221.0 / 1002}
+	dev := []float64{pi[0] - mw[0], pi[1] - mw[1]}
+	theta := [][]float64{{601.0 / 782, 181.0 / 782}, {91.0 / 222, 131.0 / 222}}
+	d0 := dev[0]*theta[0][0] + dev[1]*theta[1][0]
+	d1 := dev[0]*theta[0][1] + dev[1]*theta[1][1]
+	b := min(tv2(d0, d1), tv2(dev[0], dev[1]))
+	share := 501.0 / 1002
+	prior := scorer.DefaultUnseenSpread * (1 - share) * (1 - share) * 0.5
+	want := min(prior, 2*b*b)
+	if want >= prior/10 {
+		t.Fatalf("test world: bound %.3g does not bind against E0 %.3g", want, prior)
+	}
+
+	on := mustBayes(t)
+	off := mustBayes(t, scorer.WithInfluence(0))
+	got, err := on.Direct(nil, st, s, u, tg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !near(got.Err, want, 1e-12) {
+		t.Errorf("bounded error %.15g, want %.15g (E0 %.6g, B %.6g)", got.Err, want, prior, b)
+	}
+	plain, err := off.Direct(nil, st, s, u, tg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !near(plain.Err, prior, 1e-12) {
+		t.Errorf("κ = 0: error %.15g, want E0 %.15g", plain.Err, prior)
+	}
+	if !slices.Equal(got.Dist, plain.Dist) {
+		t.Errorf("the bound changed the estimate: %v against %v", got.Dist, plain.Dist)
+	}
+
+	// A chain's missing-signal term shrinks by want/prior; the rest of its
+	// error is unchanged. Compare with the term off to isolate it.
+	bridges := []graphidx.EntityID{w, z}
+	var terms [2]float64
+	for i, m := range []*scorer.Bayes{on, off} {
+		c0, err := mustBayesFrom(t, m, 0).Chain(nil, st, s, u, bridges, tg)
+		if err != nil {
+			t.Fatal(err)
+		}
+		c1, err := m.Chain(nil, st, s, u, bridges, tg)
+		if err != nil {
+			t.Fatal(err)
+		}
+		terms[i] = c1.Err - c0.Err
+	}
+	if terms[1] <= 0 {
+		t.Fatalf("test world: the weak chain pays no missing-signal term")
+	}
+	if r := terms[0] / terms[1]; !near(r, want/prior, 1e-9) {
+		t.Errorf("missing-signal term scaled by %.9g, want %.9g", r, want/prior)
+	}
+	// A workspace reused across queries (as the router does) gives the
+	// same answers as a fresh one.
+	ws := scorer.NewWorkspace()
+	for range 2 {
+		for _, tt := range []graphidx.EntityID{tg, z} {
+			d, err := on.Direct(ws, st, s, u, tt)
+			if err != nil {
+				t.Fatal(err)
+			}
+			d0, _ := on.Direct(nil, st, s, u, tt)
+			if d.Err != d0.Err {
+				t.Errorf("reused workspace: Err %v, fresh %v", d.Err, d0.Err)
+			}
+		}
+		c, err := on.Chain(ws, st, s, u, bridges, tg)
+		if err != nil {
+			t.Fatal(err)
+		}
+		c0, _ := on.Chain(nil, st, s, u, bridges, tg)
+		if c.Err != c0.Err {
+			t.Errorf("reused workspace: chain Err %v, fresh %v", c.Err, c0.Err)
+		}
+	}
+
+	// A pair observed together keeps its error: add (s, t) to a copy.
+	seen := newLocalStats()
+	for id := graphidx.EntityID(1); id <= 4; id++ {
+		seen.entity(id, 2)
+		seen.marg[id] = st.marg[id]
+	}
+	seen.link(s, w, sw)
+	seen.link(w, z, wz)
+	seen.link(z, tg, zt)
+	seen.link(s, tg, [][]uint32{{1, 0}, {0, 1}})
+	a, _ := on.Direct(nil, seen, s, u, tg)
+	bOff, _ := off.Direct(nil, seen, s, u, tg)
+	if a.Err != bOff.Err {
+		t.Errorf("observed pair: Err %v with the bound, %v without", a.Err, bOff.Err)
+	}
+
+	// More neighbours than InfluenceFirst: no bound.
+	hub := newLocalStats()
+	for id := graphidx.EntityID(1); id <= 4; id++ {
+		hub.entity(id, 2)
+		hub.marg[id] = st.marg[id]
+	}
+	hub.link(s, w, sw)
+	hub.link(w, z, wz)
+	hub.link(z, tg, zt)
+	for i := range scorer.InfluenceFirst {
+		id := graphidx.EntityID(10 + i)
+		hub.entity(id, 2)
+		hub.marg[id] = []uint64{500, 500}
+		hub.link(s, id, [][]uint32{{250, 250}, {250, 250}})
+	}
+	h, err := on.Direct(nil, hub, s, u, tg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !near(h.Err, prior, 1e-12) || math.IsNaN(h.Err) {
+		t.Errorf("hub with %d neighbours: Err %.15g, want E0 %.15g", len(hub.adj[s]), h.Err, prior)
+	}
+}
+
+// mustBayesFrom returns m's configuration with γ set (the missing-signal
+// term on or off, everything else equal).
+func mustBayesFrom(t *testing.T, m *scorer.Bayes, gamma float64) *scorer.Bayes {
+	t.Helper()
+	c := m.Config()
+	c.MissingGamma = gamma
+	b, err := scorer.NewBayesFrom(c)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return b
+}
