@@ -59,6 +59,8 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 	var tvs [InfluenceFirst]float64
 	var ws [InfluenceFirst]graphidx.EntityID
 	var kws [InfluenceFirst]int
+	var out [graphidx.MaxValues]float64
+	tsum, tseen := 0.0, false
 	n := 0
 	for _, w := range first {
 		if w == s {
@@ -91,9 +93,17 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 		}
 		tvs[n], ws[n], kws[n] = tvw, w, kw
 		n++
+		// Through w straight to the target, when w was observed with it.
+		if tv, ok := b.twoHop(st, w, kw, t, dev, out[:]); ok {
+			tsum += min(tv, tvw)
+			tseen = true
+		}
 	}
 	if n == 0 {
 		return 0, false
+	}
+	if tseen && 2*tsum*tsum < stop {
+		stop = 2 * tsum * tsum // the refinement below matters only below it
 	}
 	// Pass 2: the InfluenceRefine neighbours of largest TV get their
 	// two-hop deviation: to the target itself when w was observed with it,
@@ -112,9 +122,8 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 		rest += tvs[i]
 	}
 	if 2*rest*rest >= stop {
-		return rest * rest, true // the cap cannot bind, however small the rest
+		return min(rest*rest, stop/2), true // the refinement cannot go below stop
 	}
-	var out [graphidx.MaxValues]float64
 	sum := rest
 	for _, i := range idx[:refine] {
 		w, kw := ws[i], kws[i]
@@ -139,6 +148,9 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 			best = max(best, tv)
 		}
 		sum += min(best, tvs[i])
+	}
+	if tseen {
+		sum = min(sum, tsum)
 	}
 	return sum * sum, true
 }
