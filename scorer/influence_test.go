@@ -1,7 +1,10 @@
 package scorer_test
 
 import (
+	"fmt"
 	"math"
+	"math/rand/v2"
+	"path/filepath"
 	"slices"
 	"testing"
 
@@ -186,6 +189,51 @@ func TestInfluenceBound(t *testing.T) {
 	}
 }
 
+// TestInfluenceBoundTarget: when the observed entity's neighbour w was
+// observed with the target t, the bound is the deviation w passes on to t
+// itself, TV((π_w − m_w)ᵀ Θ_(w→t)), even when w moves another neighbour z
+// more (the two-hop bound through z alone would be larger).
+func TestInfluenceBoundTarget(t *testing.T) {
+	t.Parallel()
+	const s, w, z, tg = 1, 2, 3, 4
+	st := newLocalStats()
+	for id := graphidx.EntityID(1); id <= 4; id++ {
+		st.entity(id, 2)
+	}
+	sw := [][]uint32{{400, 100}, {300, 200}}
+	st.link(s, w, sw)
+	st.link(w, z, [][]uint32{{690, 10}, {10, 290}})    // w → z strong
+	st.link(w, tg, [][]uint32{{400, 300}, {160, 140}}) // w → t weak
+	st.marg[s] = []uint64{500, 500}
+	st.marg[w] = []uint64{700, 300}
+	st.marg[z] = []uint64{700, 300}
+	st.marg[tg] = []uint64{560, 440}
+	const u = 1
+	pi := []float64{301.0 / 502, 201.0 / 502}
+	mw := []float64{701.0 / 1002, 301.0 / 1002}
+	dev := []float64{pi[0] - mw[0], pi[1] - mw[1]}
+	through := func(rows [][]float64) float64 {
+		d0 := dev[0]*rows[0][0] + dev[1]*rows[1][0]
+		d1 := dev[0]*rows[0][1] + dev[1]*rows[1][1]
+		return tv2(d0, d1)
+	}
+	toT := through([][]float64{{401.0 / 702, 301.0 / 702}, {161.0 / 302, 141.0 / 302}})
+	toZ := through([][]float64{{691.0 / 702, 11.0 / 702}, {11.0 / 302, 291.0 / 302}})
+	if !(toT < toZ/4) {
+		t.Fatalf("test world: deviation at t %.4g not well below the one at z %.4g", toT, toZ)
+	}
+	share := 501.0 / 1002
+	prior := scorer.DefaultUnseenSpread * (1 - share) * (1 - share) * 0.5
+	want := min(prior, 2*toT*toT)
+	got, err := mustBayes(t).Direct(nil, st, s, u, tg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !near(got.Err, want, 1e-12) {
+		t.Errorf("bounded error %.15g, want %.15g (through z alone it would be %.6g)", got.Err, want, 2*toZ*toZ)
+	}
+}
+
 // mustBayesFrom returns m's configuration with γ set (the missing-signal
 // term on or off, everything else equal).
 func mustBayesFrom(t *testing.T, m *scorer.Bayes, gamma float64) *scorer.Bayes {
@@ -197,4 +245,68 @@ func mustBayesFrom(t *testing.T, m *scorer.Bayes, gamma float64) *scorer.Bayes {
 		t.Fatal(err)
 	}
 	return b
+}
+
+// BenchmarkDirectUnseen measures Bayes.Direct for pairs never observed
+// together on a real index (1000 binary entities on a ring, each observed
+// with the 2 nearest on either side: 4 neighbours), with the influence
+// bound on (κ = 1) against the baseline κ = 0 in the same run: the bound's
+// added cost per direct estimate (at most 16 pair look-ups here).
+func BenchmarkDirectUnseen(b *testing.B) {
+	const n = 1000
+	rng := rand.New(rand.NewPCG(7, 7))
+	src := &tableSource{}
+	for i := range n {
+		src.ents = append(src.ents, graphidx.EntityRecord{Name: fmt.Sprintf("e%04d", i), Values: []string{"off", "on"}, Marginal: make([]uint64, 2)})
+	}
+	for a := range n {
+		for d := 1; d <= 2; d++ {
+			c := (a + d) % n
+			lo, hi := min(a, c), max(a, c)
+			flat := []uint32{uint32(200 + rng.IntN(100)), uint32(20 + rng.IntN(50)), uint32(20 + rng.IntN(50)), uint32(200 + rng.IntN(100))}
+			for r := range 2 {
+				for v := range 2 {
+					src.ents[lo].Marginal[r] += uint64(flat[r*2+v])
+					src.ents[hi].Marginal[v] += uint64(flat[r*2+v])
+				}
+			}
+			src.pairs = append(src.pairs, graphidx.PairRecord{A: graphidx.EntityID(lo), B: graphidx.EntityID(hi), Counts: flat})
+		}
+	}
+	slices.SortFunc(src.pairs, func(x, y graphidx.PairRecord) int {
+		if x.A != y.A {
+			return int(x.A) - int(y.A)
+		}
+		return int(x.B) - int(y.B)
+	})
+	path := filepath.Join(b.TempDir(), "ring.hwx")
+	if err := graphidx.WriteFile(path, src); err != nil {
+		b.Fatal(err)
+	}
+	ix, err := graphidx.Open(path)
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer ix.Close()
+	for _, kappa := range []float64{0, 1} {
+		b.Run(fmt.Sprintf("kappa=%g", kappa), func(b *testing.B) {
+			model := mustBayes(b, scorer.WithInfluence(kappa))
+			ws := scorer.NewWorkspace()
+			ws.BorrowDist(true)
+			var est scorer.Estimate
+			i := 0
+			b.ReportAllocs()
+			for b.Loop() {
+				s := graphidx.EntityID(i % n)
+				est, err = model.Direct(ws, ix, s, i&1, graphidx.EntityID((i+10)%n))
+				i++
+			}
+			if err != nil {
+				b.Fatal(err)
+			}
+			if est.Support != 0 || len(est.Dist) != 2 || !(est.Err > 0) {
+				b.Fatalf("unexpected estimate %+v for a pair never observed together", est)
+			}
+		})
+	}
 }
