@@ -6,32 +6,37 @@ import (
 	"github.com/hopwise/hopwise/graphidx"
 )
 
-// InfluenceFirst and InfluenceSecond are the most support-ranked neighbours
-// read by the influence bound (see Bayes, "Influence bound"): up to
-// InfluenceFirst neighbours w of the observed entity, and for each up to
-// InfluenceSecond neighbours z of w. The ranked prefix holds an entity's
-// strongest, usually adjacent, associations, through which its influence
-// leaves; the bounds keep the bound at most
-// InfluenceFirst·(1 + InfluenceSecond) pair look-ups per direct estimate.
+// Sizes of the influence bound (see Bayes, "Influence bound"):
+// InfluenceFirst is the most neighbours the observed entity may have for
+// the bound to apply (all of them are read: the bound assumes every route
+// out of the entity starts at a neighbour it read); InfluenceRefine is how
+// many of them, those of largest TV(π_w, m_w), are refined to their two-hop
+// deviation, over the target and the first InfluenceSecond ranked
+// neighbours of w. Together they keep the bound at most 2·InfluenceFirst +
+// InfluenceRefine·(1 + InfluenceSecond) = 24 pair look-ups per direct
+// estimate.
 const (
 	InfluenceFirst  = 8
 	InfluenceSecond = 3
 	InfluenceRefine = 2
 )
 
-// influenceBound returns B², the squared two-hop influence bound of the
-// observed value s = u (see Bayes, "Influence bound"):
+// influenceBound returns min(B, B_t)², the squared influence bound of the
+// observed value s = u on the target t (see Bayes, "Influence bound"):
 //
-//	B = max over ranked neighbours w of s and ranked neighbours z ≠ s of w
-//	    of TV(d_z),   d_z = (π_w − m_w)ᵀ Θ_(w→z),
+//	B   = Σ_w min(TV(π_w, m_w), max_z TV(d_z)),   d_z = (π_w − m_w)ᵀ Θ_(w→z),
+//	B_t = Σ_(w observed with t) TV(d_t),
 //
-// where π_w = P̂(w | s = u) is row u of the pair (s, w)'s posterior means,
-// m_w = P̂(w) the smoothed marginal of w, Θ_(w→z) the posterior-mean matrix
-// of the pair (w, z) and TV half the L1 norm. stop ends the scan as soon as
-// 2·B² reaches it (the caller's cap can no longer bind). ok is false when
-// st lacks ranked neighbours or marginals, or s has no neighbour with both.
-// Cost at most InfluenceFirst·(1 + InfluenceSecond) pair look-ups and
-// O(InfluenceFirst·InfluenceSecond·K²) arithmetic, no allocation.
+// w over every neighbour of s (at most InfluenceFirst, else ok is false), z
+// over t and the first InfluenceSecond ranked neighbours of w other than s
+// for the InfluenceRefine neighbours of largest TV(π_w, m_w) (the others
+// keep that TV, an upper bound of their term); π_w = P̂(w | s = u) is row u
+// of the pair (s, w)'s posterior means, m_w = P̂(w) the smoothed marginal of
+// w, Θ_(w→z) the posterior-mean matrix of the pair (w, z) and TV half the L1
+// norm. A result with 2·B² ≥ stop may be cut short (the caller's cap
+// cannot bind). ok is false when st lacks ranked neighbours, neighbour
+// lists or marginals, or no neighbour of s has a table and a marginal.
+// Cost as InfluenceFirst says, O(K²) arithmetic per look-up, no allocation.
 func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, stop float64) (float64, bool) {
 	rn, ok := st.(RankedNeighborer)
 	if !ok {
