@@ -4,7 +4,6 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
-	"path/filepath"
 	"slices"
 	"testing"
 
@@ -42,6 +41,23 @@ func (l *localStats) RankedNeighbors(id graphidx.EntityID) []graphidx.EntityID {
 // (its positive part).
 func tv2(d0, d1 float64) float64 { return max(d0, 0) + max(d1, 0) }
 
+// pathWorld returns the path 1 — 2 — 3 — 4 of binary entities of
+// TestInfluenceBound: (1, 2) barely dependent, (2, 3) and (3, 4) more.
+func pathWorld() *localStats {
+	st := newLocalStats()
+	for id := graphidx.EntityID(1); id <= 4; id++ {
+		st.entity(id, 2)
+	}
+	st.link(1, 2, [][]uint32{{400, 100}, {380, 120}})
+	st.link(2, 3, [][]uint32{{600, 180}, {90, 130}})
+	st.link(3, 4, [][]uint32{{500, 190}, {100, 210}})
+	st.marg[1] = []uint64{500, 500}
+	st.marg[2] = []uint64{780, 220}
+	st.marg[3] = []uint64{690, 310}
+	st.marg[4] = []uint64{600, 400}
+	return st
+}
+
 // TestInfluenceBound: on the path s — w — z — t of binary entities, with
 // (s, t) never observed together, the error of the direct estimate of t
 // given s = u is min(E0, 2·B²), E0 the fitted prior error and B the
@@ -53,21 +69,7 @@ func tv2(d0, d1 float64) float64 { return max(d0, 0) + max(d1, 0) }
 func TestInfluenceBound(t *testing.T) {
 	t.Parallel()
 	const s, w, z, tg = 1, 2, 3, 4
-	st := newLocalStats()
-	for id := graphidx.EntityID(1); id <= 4; id++ {
-		st.entity(id, 2)
-	}
-	sw := [][]uint32{{400, 100}, {380, 120}} // s barely moves w
-	wz := [][]uint32{{600, 180}, {90, 130}}
-	zt := [][]uint32{{500, 190}, {100, 210}}
-	st.link(s, w, sw)
-	st.link(w, z, wz)
-	st.link(z, tg, zt)
-	st.marg[s] = []uint64{500, 500}
-	st.marg[w] = []uint64{780, 220}
-	st.marg[z] = []uint64{690, 310}
-	st.marg[tg] = []uint64{600, 400}
-
+	st := pathWorld()
 	const u = 1
 	// By hand: π_w = row u of (s, w) smoothed, m_w the smoothed marginal.
 	pi := []float64{381.0 / 502, 121.0 / 502}
@@ -150,14 +152,7 @@ func TestInfluenceBound(t *testing.T) {
 	}
 
 	// A pair observed together keeps its error: add (s, t) to a copy.
-	seen := newLocalStats()
-	for id := graphidx.EntityID(1); id <= 4; id++ {
-		seen.entity(id, 2)
-		seen.marg[id] = st.marg[id]
-	}
-	seen.link(s, w, sw)
-	seen.link(w, z, wz)
-	seen.link(z, tg, zt)
+	seen := pathWorld()
 	seen.link(s, tg, [][]uint32{{1, 0}, {0, 1}})
 	a, _ := on.Direct(nil, seen, s, u, tg)
 	bOff, _ := off.Direct(nil, seen, s, u, tg)
@@ -166,14 +161,7 @@ func TestInfluenceBound(t *testing.T) {
 	}
 
 	// More neighbours than InfluenceFirst: no bound.
-	hub := newLocalStats()
-	for id := graphidx.EntityID(1); id <= 4; id++ {
-		hub.entity(id, 2)
-		hub.marg[id] = st.marg[id]
-	}
-	hub.link(s, w, sw)
-	hub.link(w, z, wz)
-	hub.link(z, tg, zt)
+	hub := pathWorld()
 	for i := range scorer.InfluenceFirst {
 		id := graphidx.EntityID(10 + i)
 		hub.entity(id, 2)
@@ -279,21 +267,14 @@ func BenchmarkDirectUnseen(b *testing.B) {
 		}
 		return int(x.B) - int(y.B)
 	})
-	path := filepath.Join(b.TempDir(), "ring.hwx")
-	if err := graphidx.WriteFile(path, src); err != nil {
-		b.Fatal(err)
-	}
-	ix, err := graphidx.Open(path)
-	if err != nil {
-		b.Fatal(err)
-	}
-	defer ix.Close()
+	ix := openIndex(b, src)
 	for _, kappa := range []float64{0, 1} {
 		b.Run(fmt.Sprintf("kappa=%g", kappa), func(b *testing.B) {
 			model := mustBayes(b, scorer.WithInfluence(kappa))
 			ws := scorer.NewWorkspace()
 			ws.BorrowDist(true)
 			var est scorer.Estimate
+			var err error
 			i := 0
 			b.ReportAllocs()
 			for b.Loop() {
