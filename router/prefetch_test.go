@@ -211,15 +211,15 @@ func TestDecideGoldenDigest(t *testing.T) {
 		opts []Option
 		want string
 	}{
-		{"default", nil, "1e3c80b3feaad042"},
-		{"H1", []Option{WithMaxBridges(1)}, "e56adb3170698144"},
-		{"H2", []Option{WithMaxBridges(2)}, "11b8abd895c7331e"},
-		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "fe15dc8400a70a84"},
-		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "9c558e2ca5f29b53"},
-		{"budget3000", []Option{WithExpansionBudget(3000)}, "d4b863c043efd451"},
+		{"default", nil, "1a50c1dc97a5f23d"},
+		{"H1", []Option{WithMaxBridges(1)}, "51b57275c97c8bea"},
+		{"H2", []Option{WithMaxBridges(2)}, "e9b86333735b1e0b"},
+		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "9720fc305985b281"},
+		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "76e85b1f7157f161"},
+		{"budget3000", []Option{WithExpansionBudget(3000)}, "2261c3caf16016e5"},
 		{"support", []Option{WithModel(support)}, "e06acf7f4b69d29a"},
-		{"exact", []Option{WithModel(exact)}, "613e73ad1bbad9a2"},
-		{"utility", []Option{WithUtility(2, 0.001)}, "64867e9bd4725bc8"},
+		{"exact", []Option{WithModel(exact)}, "31a4b1705b9b0ce2"},
+		{"utility", []Option{WithUtility(2, 0.001)}, "5e28a8ff476590a8"},
 	}
 	fresh := map[string]string{} // with -update: the new digest of each case
 	for _, tc := range cases {

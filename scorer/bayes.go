@@ -134,7 +134,9 @@ import (
 //
 // For a pair never observed together, with Marginals, RankedNeighborer and
 // NeighborLister available and at most InfluenceFirst neighbours of s, E0
-// becomes min(E0, κ·2·min(B, B_t)²) (WithInfluence, κ = 1). With π_w =
+// becomes min(E0, κ·2·min(B, B_t)² + Var(m̂_t)) (WithInfluence, κ = 1;
+// Var(m̂_t) = (1 − Σ m̂²)/(N_t + K_t α + 1) the posterior variance of the
+// target's marginal from its N_t counts: the marginal's own error). With π_w =
 // P̂(w | s = u), m_w = P̂(w) and Θ_(w→z) the posterior means of (w, z):
 //
 //	B   = Σ_w min(TV(π_w, m_w), max_z TV((π_w − m_w)ᵀ Θ_(w→z))),

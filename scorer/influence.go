@@ -161,8 +161,8 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 }
 
 // unseenErrs returns the prior error E0 of an unobserved pair (unseenErr)
-// and the error after the influence bound, min(E0, κ·2·B²) when sup = 0
-// and the bound applies, else E0 again (see Bayes, "Influence bound"). ok
+// and the error after the influence bound, min(E0, κ·2·B² + Var(m̂_t)) when
+// sup = 0 and the bound applies (marginalVar), else E0 again (see Bayes, "Influence bound"). ok
 // is false without marginals. Cost that of influenceBound when sup = 0.
 func (b *Bayes) unseenErrs(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, kt int, sup uint64) (prior, e0 float64, ok bool) {
 	prior, ok = b.unseenErr(st, s, u, kt)
@@ -172,10 +172,37 @@ func (b *Bayes) unseenErrs(st Stats, s graphidx.EntityID, u int, t graphidx.Enti
 	e0 = prior
 	if sup == 0 && b.influence > 0 && prior > 0 {
 		if bb, ok := b.influenceBound(st, s, u, t, prior/b.influence); ok {
-			e0 = min(prior, b.influence*2*bb)
+			// The marginal's own error adds its posterior variance.
+			e0 = min(prior, b.influence*2*bb+b.marginalVar(st, t, kt))
 		}
 	}
 	return prior, e0, true
+}
+
+// marginalVar returns (1 − Σ_v m̂_v²)/(N + K_t α + 1), the posterior
+// variance (summed over values) of the target's smoothed marginal m̂ from
+// its N marginal counts: the part of the marginal's squared error that
+// remains when the target does not depend on the observed value at all. 0
+// without marginals of K_t entries. O(K_t).
+func (b *Bayes) marginalVar(st Stats, t graphidx.EntityID, kt int) float64 {
+	ms, ok := st.(Marginals)
+	if !ok {
+		return 0
+	}
+	c := ms.Marginal(t)
+	if len(c) != kt {
+		return 0
+	}
+	tot := float64(kt) * b.alpha
+	for _, x := range c {
+		tot += float64(x)
+	}
+	sq := 0.0
+	for _, x := range c {
+		m := (float64(x) + b.alpha) / tot
+		sq += m * m
+	}
+	return max(0, 1-sq) / (tot + 1)
 }
 
 // remember records r = E0/E0_prior of the query (s = u, t) over st in ws,

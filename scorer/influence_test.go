@@ -60,7 +60,7 @@ func pathWorld() *localStats {
 
 // TestInfluenceBound: on the path s — w — z — t of binary entities, with
 // (s, t) never observed together, the error of the direct estimate of t
-// given s = u is min(E0, 2·B²), E0 the fitted prior error and B the
+// given s = u is min(E0, 2·B² + Var(m̂_t)), E0 the fitted prior error, B the
 // two-hop influence TV((π_w − m_w)ᵀ Θ_(w→z)) computed here by hand from the
 // tables (α = 1); a chain's missing-signal term shrinks by the same factor.
 // The bound does not apply with κ = 0, to a pair observed together, or when
@@ -81,7 +81,8 @@ func TestInfluenceBound(t *testing.T) {
 	b := min(tv2(d0, d1), tv2(dev[0], dev[1]))
 	share := 501.0 / 1002
 	prior := scorer.DefaultUnseenSpread * (1 - share) * (1 - share) * 0.5
-	want := min(prior, 2*b*b)
+	mt := []float64{601.0 / 1002, 401.0 / 1002} // the target's smoothed marginal
+	want := min(prior, 2*b*b+(1-mt[0]*mt[0]-mt[1]*mt[1])/1003)
 	if want >= prior/10 {
 		t.Fatalf("test world: bound %.3g does not bind against E0 %.3g", want, prior)
 	}
@@ -212,7 +213,8 @@ func TestInfluenceBoundTarget(t *testing.T) {
 	}
 	share := 501.0 / 1002
 	prior := scorer.DefaultUnseenSpread * (1 - share) * (1 - share) * 0.5
-	want := min(prior, 2*toT*toT)
+	mt := []float64{561.0 / 1002, 441.0 / 1002}
+	want := min(prior, 2*toT*toT+(1-mt[0]*mt[0]-mt[1]*mt[1])/1003)
 	got, err := mustBayes(t).Direct(nil, st, s, u, tg)
 	if err != nil {
 		t.Fatal(err)
