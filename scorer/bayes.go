@@ -331,10 +331,14 @@ func (b *Bayes) Direct(ws *Workspace, st Stats, s graphidx.EntityID, u int, t gr
 		sq += dist[v] * dist[v]
 	}
 	e := max(0, (1-sq)/(d+1))
-	if prior, e0, ok := b.unseenErrs(st, s, u, t, kt, sup); ok {
+	e0Prior, e0, ok, err := b.unseenErrs(st, s, u, t, kt, sup)
+	if err != nil {
+		return Estimate{}, err
+	}
+	if ok {
 		r := 1.0
-		if prior > 0 {
-			r = e0 / prior
+		if e0Prior > 0 {
+			r = e0 / e0Prior
 		}
 		ws.remember(st, s, u, t, r)
 		// Shrinkage MSE: θ̂ = λ·N/n + (1 − λ)·a/a₀ with λ = n/(n + a₀).

@@ -37,26 +37,26 @@ const (
 // cannot bind). ok is false when st lacks ranked neighbours, neighbour
 // lists or marginals, or no neighbour of s has a table and a marginal.
 // Cost as InfluenceFirst says, O(K²) arithmetic per look-up, no allocation.
-func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, stop float64) (float64, bool) {
+func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, stop float64) (float64, bool, error) {
 	rn, ok := st.(RankedNeighborer)
 	if !ok {
-		return 0, false
+		return 0, false, nil
 	}
 	nl, ok := st.(NeighborLister)
 	if !ok {
-		return 0, false
+		return 0, false, nil
 	}
 	first := nl.Neighbors(s)
 	if len(first) > InfluenceFirst {
-		return 0, false
+		return 0, false, nil
 	}
 	ms, ok := st.(Marginals)
 	if !ok {
-		return 0, false
+		return 0, false, nil
 	}
 	ks := st.NumValues(s)
 	if u < 0 || u >= ks {
-		return 0, false
+		return 0, false, nil
 	}
 	// Pass 1: π_w − m_w and TV(π_w, m_w) for every neighbour w; the TV
 	// bounds every two-hop deviation through w.
@@ -76,7 +76,10 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 			continue
 		}
 		ps, ok, err := pair(st, s, w, ks, kw)
-		if err != nil || !ok {
+		if err != nil {
+			return 0, false, err
+		}
+		if !ok {
 			continue
 		}
 		mw := ms.Marginal(w)
@@ -99,13 +102,17 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 		tvs[n], ws[n], kws[n] = tvw, w, kw
 		n++
 		// Through w straight to the target, when w was observed with it.
-		if tv, ok := b.twoHop(st, w, kw, t, dev, out[:]); ok {
+		tv, ok, err := b.twoHop(st, w, kw, t, dev, out[:])
+		if err != nil {
+			return 0, false, err
+		}
+		if ok {
 			tsum += min(tv, tvw)
 			tseen = true
 		}
 	}
 	if n == 0 {
-		return 0, false
+		return 0, false, nil
 	}
 	if tseen && 2*tsum*tsum < stop {
 		stop = 2 * tsum * tsum // the refinement below matters only below it
@@ -127,14 +134,18 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 		rest += tvs[i]
 	}
 	if 2*rest*rest >= stop {
-		return min(rest*rest, stop/2), true // the refinement cannot go below stop
+		return min(rest*rest, stop/2), true, nil // the refinement cannot go below stop
 	}
 	sum := rest
 	for _, i := range idx[:refine] {
 		w, kw := ws[i], kws[i]
 		dev := devs[i][:kw]
 		best := 0.0
-		if tv, ok := b.twoHop(st, w, kw, t, dev, out[:]); ok {
+		tv, ok, err := b.twoHop(st, w, kw, t, dev, out[:])
+		if err != nil {
+			return 0, false, err
+		}
+		if ok {
 			best = tv
 		}
 		second := 0
@@ -145,7 +156,10 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 			if z == s || z == w || z == t {
 				continue
 			}
-			tv, ok := b.twoHop(st, w, kw, z, dev, out[:])
+			tv, ok, err := b.twoHop(st, w, kw, z, dev, out[:])
+			if err != nil {
+				return 0, false, err
+			}
 			if !ok {
 				continue
 			}
@@ -157,26 +171,30 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 	if tseen {
 		sum = min(sum, tsum)
 	}
-	return sum * sum, true
+	return sum * sum, true, nil
 }
 
 // unseenErrs returns the prior error E0 of an unobserved pair (unseenErr)
 // and the error after the influence bound, min(E0, κ·2·B² + Var(m̂_t)) when
 // sup = 0 and the bound applies (marginalVar), else E0 again (see Bayes, "Influence bound"). ok
 // is false without marginals. Cost that of influenceBound when sup = 0.
-func (b *Bayes) unseenErrs(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, kt int, sup uint64) (prior, e0 float64, ok bool) {
+func (b *Bayes) unseenErrs(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, kt int, sup uint64) (prior, e0 float64, ok bool, err error) {
 	prior, ok = b.unseenErr(st, s, u, kt)
 	if !ok {
-		return 0, 0, false
+		return 0, 0, false, nil
 	}
 	e0 = prior
 	if sup == 0 && b.influence > 0 && prior > 0 {
-		if bb, ok := b.influenceBound(st, s, u, t, prior/b.influence); ok {
+		bb, ok, err := b.influenceBound(st, s, u, t, prior/b.influence)
+		if err != nil {
+			return 0, 0, false, err
+		}
+		if ok {
 			// The marginal's own error adds its posterior variance.
 			e0 = min(prior, b.influence*2*bb+b.marginalVar(st, t, kt))
 		}
 	}
-	return prior, e0, true
+	return prior, e0, true, nil
 }
 
 // marginalVar returns (1 − Σ_v m̂_v²)/(N + K_t α + 1), the posterior
@@ -238,7 +256,11 @@ func (b *Bayes) unseenRatio(ws *Workspace, st Stats, s graphidx.EntityID, u int,
 		sup = ps.Support()
 	}
 	r := 1.0
-	if prior, e0, ok := b.unseenErrs(st, s, u, t, kt, sup); ok && prior > 0 {
+	prior, e0, ok, err := b.unseenErrs(st, s, u, t, kt, sup)
+	if err != nil {
+		return 0, err
+	}
+	if ok && prior > 0 {
 		r = e0 / prior
 	}
 	ws.remember(st, s, u, t, r)
@@ -258,15 +280,16 @@ func sameStats(a, b Stats) bool {
 
 // twoHop returns TV(d_z), d_z = devᵀ Θ_(w→z) with Θ the posterior means of
 // the pair (w, z), using out (≥ K_z entries) as scratch; ok is false when
-// the pair was never observed. O(K_w·K_z) and one pair look-up.
-func (b *Bayes) twoHop(st Stats, w graphidx.EntityID, kw int, z graphidx.EntityID, dev, out []float64) (float64, bool) {
+// the pair was never observed; err reports a pair whose shape does not
+// match the request (ErrBadStats). O(K_w·K_z) and one pair look-up.
+func (b *Bayes) twoHop(st Stats, w graphidx.EntityID, kw int, z graphidx.EntityID, dev, out []float64) (float64, bool, error) {
 	kz := st.NumValues(z)
 	if kz < 1 || kz > graphidx.MaxValues {
-		return 0, false
+		return 0, false, nil
 	}
 	pz, ok, err := pair(st, w, z, kw, kz)
 	if err != nil || !ok {
-		return 0, false
+		return 0, false, err
 	}
 	clear(out[:kz])
 	for r := 0; r < kw; r++ {
@@ -284,7 +307,7 @@ func (b *Bayes) twoHop(st Stats, w graphidx.EntityID, kw int, z graphidx.EntityI
 			tv += d
 		}
 	}
-	return tv, true
+	return tv, true, nil
 }
 
 // NeighborLister is an optional interface of a Stats: every entity observed

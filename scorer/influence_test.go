@@ -1,6 +1,7 @@
 package scorer_test
 
 import (
+	"errors"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -291,5 +292,37 @@ func BenchmarkDirectUnseen(b *testing.B) {
 				b.Fatalf("unexpected estimate %+v for a pair never observed together", est)
 			}
 		})
+	}
+}
+
+// wrongShape is a localStats whose table of (a, b) claims a different
+// shape than the entities have (a broken Stats implementation).
+type wrongShape struct {
+	*localStats
+	a, b graphidx.EntityID
+}
+
+func (w wrongShape) Pair(a, b graphidx.EntityID) (graphidx.PairStats, bool) {
+	ps, ok := w.localStats.Pair(a, b)
+	if ok && a == w.a && b == w.b {
+		ps.KB++
+	}
+	return ps, ok
+}
+
+// TestInfluenceBoundBadStats: a neighbour table read only by the influence
+// bound whose shape does not match its entities is reported
+// (ErrBadStats), not skipped.
+func TestInfluenceBoundBadStats(t *testing.T) {
+	t.Parallel()
+	for _, c := range []struct {
+		name string
+		a, b graphidx.EntityID
+	}{{"first hop", 1, 2}, {"second hop", 2, 3}} {
+		st := wrongShape{pathWorld(), c.a, c.b}
+		_, err := mustBayes(t).Direct(nil, st, 1, 1, 4)
+		if !errors.Is(err, scorer.ErrBadStats) {
+			t.Errorf("%s: Direct error %v, want ErrBadStats", c.name, err)
+		}
 	}
 }
