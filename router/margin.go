@@ -62,6 +62,12 @@ func (sc *scratch) RankedNeighbors(id graphidx.EntityID) []graphidx.EntityID {
 	return sc.g.RankedNeighbors(id)
 }
 
+// Neighbors implements scorer.NeighborLister for the model's influence
+// bound: every neighbour of the entity. O(1).
+func (sc *scratch) Neighbors(id graphidx.EntityID) []graphidx.EntityID {
+	return sc.g.Neighbors(id)
+}
+
 // deferSeparation is whether decisions defer the model's separation bias to
 // the chains that could win (chainScore). Always true in production; a test
 // turns it off to check that deferring changes no decision.

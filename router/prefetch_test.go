@@ -211,15 +211,15 @@ func TestDecideGoldenDigest(t *testing.T) {
 		opts []Option
 		want string
 	}{
-		{"default", nil, "2e21a4bc02d85f72"},
-		{"H1", []Option{WithMaxBridges(1)}, "7ea4a4ddb11ab22f"},
-		{"H2", []Option{WithMaxBridges(2)}, "147abdf837dddc51"},
-		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "cc2dc746051fd732"},
-		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "0c58cf2e6593180e"},
-		{"budget3000", []Option{WithExpansionBudget(3000)}, "fa4943e555eefbcd"},
+		{"default", nil, "1a50c1dc97a5f23d"},
+		{"H1", []Option{WithMaxBridges(1)}, "51b57275c97c8bea"},
+		{"H2", []Option{WithMaxBridges(2)}, "e9b86333735b1e0b"},
+		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "9720fc305985b281"},
+		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "76e85b1f7157f161"},
+		{"budget3000", []Option{WithExpansionBudget(3000)}, "2261c3caf16016e5"},
 		{"support", []Option{WithModel(support)}, "e06acf7f4b69d29a"},
-		{"exact", []Option{WithModel(exact)}, "b41284f2721142ca"},
-		{"utility", []Option{WithUtility(2, 0.001)}, "7637562bc14e34df"},
+		{"exact", []Option{WithModel(exact)}, "31a4b1705b9b0ce2"},
+		{"utility", []Option{WithUtility(2, 0.001)}, "5e28a8ff476590a8"},
 	}
 	fresh := map[string]string{} // with -update: the new digest of each case
 	for _, tc := range cases {

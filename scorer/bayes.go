@@ -123,8 +123,36 @@ import (
 // effect: prev → b_k ← next, where the chain invents a dependence that D_k
 // does not show). S = Σ_k max(0, ‖Δ_k‖² − V_k) over the checked bridges; a
 // bridge whose neighbours were never observed together is not checked.
+// S is capped at ‖p̂ − m̂_t‖², the chain's own squared distance from the
+// target's smoothed marginal: the check measures a dependence the chain
+// invents, and that bias is at most the chain's distance from the marginal
+// (equal when the endpoints are independent, as through a common effect).
 // λ = 1 (WithSeparation) charges the estimate as derived. docs/QUALITY.md
 // has the derivation. Cost O(m·K³) more and m more pair look-ups.
+//
+// # Influence bound
+//
+// For a pair never observed together, with Marginals, RankedNeighborer and
+// NeighborLister available and at most InfluenceFirst neighbours of s, E0
+// becomes min(E0, κ·2·min(B, B_t)² + Var(m̂_t)) (WithInfluence, κ = 1;
+// Var(m̂_t) = (1 − Σ m̂²)/(N_t + K_t α + 1) the posterior variance of the
+// target's marginal from its N_t counts: the marginal's own error). With π_w =
+// P̂(w | s = u), m_w = P̂(w) and Θ_(w→z) the posterior means of (w, z):
+//
+//	B   = Σ_w min(TV(π_w, m_w), max_z TV((π_w − m_w)ᵀ Θ_(w→z))),
+//	B_t = Σ_(w observed with t) TV((π_w − m_w)ᵀ Θ_(w→t)),
+//
+// TV half the L1 norm; z ranges over t and the first InfluenceSecond ranked
+// neighbours of w, for the InfluenceRefine neighbours of largest TV (the
+// others keep TV(π_w, m_w)). By data processing, the deviation of P(t | s =
+// u) from P(t) is at most the deviation s = u passes through a separating
+// neighbour, and Σ_v (p_v − m_v)² ≤ 2·TV²; the sum over neighbours covers
+// several routes (exact as a bound for singly connected networks, a
+// heuristic with loops). A chain's missing-signal term is scaled by the
+// same ratio E0'/E0 (the dependence it can miss is the target's distance
+// from its marginal). Cost at most 2·InfluenceFirst + InfluenceRefine·(1 +
+// InfluenceSecond) pair look-ups per unobserved-pair direct estimate;
+// docs/QUALITY.md has the derivation and the measurements.
 //
 // Cost O(Σ_k K_(k−1)·K_k·K_t + m·K²) = O(m·K³) time for K values per entity,
 // O(m·K²) workspace, one allocation (Dist; none with Workspace.BorrowDist). The linearisation neglects terms
@@ -139,7 +167,7 @@ type Bayes struct {
 	alpha, beta, signalZ      float64
 	gamma, delta              float64
 	prior, separation, noiseK float64
-	spread                    float64
+	spread, influence         float64
 	variance                  Variance
 }
 
@@ -150,7 +178,8 @@ type Bayes struct {
 // (z ≥ 0 of EdgeCost and of the signal bound, default DefaultSignalZ), WithVariance (DeltaMethod or
 // ExactMoments, default DeltaMethod), WithPriorStrength (A > 0, default
 // DefaultPriorStrength), WithSeparation (λ ≥ 0, default DefaultSeparation),
-// WithNoiseK (k ≥ 0, default DefaultNoiseK).
+// WithNoiseK (k ≥ 0, default DefaultNoiseK), WithInfluence (κ ≥ 0, default
+// DefaultInfluence).
 // WithV0 and WithN0 belong to the support model and are rejected with
 // ErrBadOption.
 func NewBayes(opts ...Option) (*Bayes, error) {
@@ -181,6 +210,9 @@ func (b *Bayes) PriorStrength() float64 { return b.prior }
 
 // Separation returns λ of the separation bias.
 func (b *Bayes) Separation() float64 { return b.separation }
+
+// Influence returns κ of the influence bound (0: off).
+func (b *Bayes) Influence() float64 { return b.influence }
 
 // NoiseK returns k of GainMargin.
 func (b *Bayes) NoiseK() float64 { return b.noiseK }
@@ -299,7 +331,16 @@ func (b *Bayes) Direct(ws *Workspace, st Stats, s graphidx.EntityID, u int, t gr
 		sq += dist[v] * dist[v]
 	}
 	e := max(0, (1-sq)/(d+1))
-	if e0, ok := b.unseenErr(st, s, u, kt); ok {
+	e0Prior, e0, ok, err := b.unseenErrs(st, s, u, t, kt, sup)
+	if err != nil {
+		return Estimate{}, err
+	}
+	if ok {
+		r := 1.0
+		if e0Prior > 0 {
+			r = e0 / e0Prior
+		}
+		ws.remember(st, s, u, t, r)
 		// Shrinkage MSE: θ̂ = λ·N/n + (1 − λ)·a/a₀ with λ = n/(n + a₀).
 		nf := float64(n)
 		lam := nf / d
@@ -365,7 +406,15 @@ func (b *Bayes) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridg
 	m := len(bridges)
 	bias := b.beta * float64(m)
 	if sig != nil {
-		bias += b.missingSignal(ws.lb)
+		if ms := b.missingSignal(ws.lb); ms > 0 {
+			// The dependence a chain can miss is at most the target's
+			// distance from its marginal: scaled with it (Influence bound).
+			r, err := b.unseenRatio(ws, st, s, u, t, ws.ks[len(bridges)+1])
+			if err != nil {
+				return Estimate{}, err
+			}
+			bias += ms * r
+		}
 	}
 	kt := ws.ks[m+1]
 	dist := ws.newDist(kt)

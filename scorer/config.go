@@ -28,6 +28,9 @@ type BayesConfig struct {
 	Separation float64
 	// NoiseK is k of the gain margin (finite, ≥ 0; 0 = off).
 	NoiseK float64
+	// Influence is κ of the influence bound on an unobserved pair's error
+	// (finite, ≥ 0; 0 = off).
+	Influence float64
 	// Variance is the chain-variance method (DeltaMethod or ExactMoments).
 	Variance Variance
 }
@@ -35,12 +38,12 @@ type BayesConfig struct {
 // DefaultBayesConfig returns the fitted defaults (DefaultAlpha, DefaultBeta,
 // DefaultSignalZ, DefaultMissingGamma, DefaultMissingDelta,
 // DefaultPriorStrength, DefaultUnseenSpread, DefaultSeparation,
-// DefaultNoiseK, DeltaMethod).
+// DefaultNoiseK, DefaultInfluence, DeltaMethod).
 func DefaultBayesConfig() BayesConfig {
 	return BayesConfig{Alpha: DefaultAlpha, Beta: DefaultBeta, SignalZ: DefaultSignalZ,
 		MissingGamma: DefaultMissingGamma, MissingDelta: DefaultMissingDelta,
 		PriorStrength: DefaultPriorStrength, UnseenSpread: DefaultUnseenSpread,
-		Separation: DefaultSeparation, NoiseK: DefaultNoiseK, Variance: DeltaMethod}
+		Separation: DefaultSeparation, NoiseK: DefaultNoiseK, Influence: DefaultInfluence, Variance: DeltaMethod}
 }
 
 // SupportConfig holds the constants of the presence-only Support model.
@@ -133,6 +136,7 @@ func (c BayesConfig) Validate() error {
 		{"UnseenSpread", c.UnseenSpread, c.UnseenSpread >= 0, "η must be finite and ≥ 0"},
 		{"Separation", c.Separation, c.Separation >= 0, "λ must be finite and ≥ 0"},
 		{"NoiseK", c.NoiseK, c.NoiseK >= 0, "k must be finite and ≥ 0"},
+		{"Influence", c.Influence, c.Influence >= 0, "κ must be finite and ≥ 0"},
 	}); err != nil {
 		return err
 	}
@@ -181,7 +185,7 @@ func NewBayesFrom(c BayesConfig) (*Bayes, error) {
 		return nil, err
 	}
 	return &Bayes{alpha: c.Alpha, beta: c.Beta, signalZ: c.SignalZ, gamma: c.MissingGamma, delta: c.MissingDelta,
-		prior: c.PriorStrength, separation: c.Separation, noiseK: c.NoiseK, spread: c.UnseenSpread, variance: c.Variance}, nil
+		prior: c.PriorStrength, separation: c.Separation, noiseK: c.NoiseK, spread: c.UnseenSpread, influence: c.Influence, variance: c.Variance}, nil
 }
 
 // NewSupportFrom validates c and returns the Support model it describes.
@@ -197,7 +201,7 @@ func NewSupportFrom(c SupportConfig) (*Support, error) {
 // builds an equal model). O(1).
 func (b *Bayes) Config() BayesConfig {
 	return BayesConfig{Alpha: b.alpha, Beta: b.beta, SignalZ: b.signalZ, MissingGamma: b.gamma, MissingDelta: b.delta,
-		PriorStrength: b.prior, UnseenSpread: b.spread, Separation: b.separation, NoiseK: b.noiseK, Variance: b.variance}
+		PriorStrength: b.prior, UnseenSpread: b.spread, Separation: b.separation, NoiseK: b.noiseK, Influence: b.influence, Variance: b.variance}
 }
 
 // Config returns the configuration m was built from. O(1).

@@ -26,6 +26,8 @@ func TestModelConfig(t *testing.T) {
 		{"UnseenSpread", func(c *scorer.ModelConfig) { c.Bayes.UnseenSpread = math.NaN() }},
 		{"Separation", func(c *scorer.ModelConfig) { c.Bayes.Separation = -2 }},
 		{"NoiseK", func(c *scorer.ModelConfig) { c.Bayes.NoiseK = -1 }},
+		{"Influence", func(c *scorer.ModelConfig) { c.Bayes.Influence = math.NaN() }},
+		{"Influence", func(c *scorer.ModelConfig) { c.Bayes.Influence = -0.5 }},
 		{"Variance", func(c *scorer.ModelConfig) { c.Bayes.Variance = 7 }},
 		{"Name", func(c *scorer.ModelConfig) { c.Name = "dirichlet" }},
 		{"V0", func(c *scorer.ModelConfig) { c.Name, c.Support.V0 = scorer.ModelSupport, 0 }},
@@ -48,7 +50,7 @@ func TestModelConfig(t *testing.T) {
 	}
 
 	want := scorer.DefaultBayesConfig()
-	want.Beta, want.NoiseK, want.Variance = 0.01, 2, scorer.ExactMoments
+	want.Beta, want.NoiseK, want.Influence, want.Variance = 0.01, 2, 0.5, scorer.ExactMoments
 	m, err := scorer.New(scorer.ModelConfig{Bayes: want})
 	if err != nil {
 		t.Fatal(err)
@@ -56,7 +58,7 @@ func TestModelConfig(t *testing.T) {
 	if b, ok := m.(*scorer.Bayes); !ok || b.Config() != want {
 		t.Errorf("New(bayes) = %#v, want a Bayes with %+v", m, want)
 	}
-	viaOpts, err := scorer.NewBayes(scorer.WithBeta(0.01), scorer.WithNoiseK(2), scorer.WithVariance(scorer.ExactMoments))
+	viaOpts, err := scorer.NewBayes(scorer.WithBeta(0.01), scorer.WithNoiseK(2), scorer.WithInfluence(0.5), scorer.WithVariance(scorer.ExactMoments))
 	if err != nil || viaOpts.Config() != want {
 		t.Errorf("NewBayes(options) config %+v (%v), want %+v", viaOpts.Config(), err, want)
 	}

@@ -79,6 +79,22 @@ func (p plainStats) Pair(a, b graphidx.EntityID) (graphidx.PairStats, bool) {
 	return p.ix.Pair(a, b)
 }
 
+// openIndex writes src as an index file in a temporary directory and opens
+// it; the index is closed when the test ends.
+func openIndex(tb testing.TB, src graphidx.Source) *graphidx.Index {
+	tb.Helper()
+	path := filepath.Join(tb.TempDir(), "w.hwx")
+	if err := graphidx.WriteFile(path, src); err != nil {
+		tb.Fatal(err)
+	}
+	ix, err := graphidx.Open(path)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	tb.Cleanup(func() { ix.Close() })
+	return ix
+}
+
 // TestAgainstRealIndex writes the tables with graphidx.WriteFile, opens the
 // file and checks that every model gives identical answers on the index
 // (seen through its Stats methods only) and on the in-memory tables, in both
@@ -87,15 +103,7 @@ func TestAgainstRealIndex(t *testing.T) {
 	t.Parallel()
 	const n = 9
 	mem, src := randomWorld(21, n)
-	path := filepath.Join(t.TempDir(), "w.hwx")
-	if err := graphidx.WriteFile(path, src); err != nil {
-		t.Fatal(err)
-	}
-	ix, err := graphidx.Open(path)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer ix.Close()
+	ix := openIndex(t, src)
 	models := []scorer.Model{
 		mustBayes(t),
 		mustBayes(t, scorer.WithVariance(scorer.ExactMoments), scorer.WithAlpha(0.5)),
@@ -152,19 +160,12 @@ func BenchmarkChainOnIndex(b *testing.B) {
 		}
 		src.pairs = append(src.pairs, graphidx.PairRecord{A: graphidx.EntityID(a), B: graphidx.EntityID(a + 1), Counts: flat})
 	}
-	path := filepath.Join(b.TempDir(), "bench.hwx")
-	if err := graphidx.WriteFile(path, src); err != nil {
-		b.Fatal(err)
-	}
-	ix, err := graphidx.Open(path)
-	if err != nil {
-		b.Fatal(err)
-	}
-	defer ix.Close()
+	ix := openIndex(b, src)
 	model := mustBayes(b)
 	ws := scorer.NewWorkspace()
 	bridges := []graphidx.EntityID{1, 2, 3}
 	var est scorer.Estimate
+	var err error
 	b.ReportAllocs()
 	for b.Loop() {
 		est, err = model.Chain(ws, ix, 0, 0, bridges, 4)

@@ -56,6 +56,9 @@ const (
 	// charges the estimated squared bias as derived (docs/QUALITY.md); it is
 	// not fitted.
 	DefaultSeparation = 1.0
+	// DefaultInfluence is κ of the influence bound (WithInfluence): 1 uses
+	// the bound as derived (docs/QUALITY.md); it is not fitted.
+	DefaultInfluence = 1.0
 	// DefaultSupportBeta is the support model's β from FitSupport on the
 	// direct answers and best chains of the same worlds (5112 samples,
 	// RMSE 0.157), fitted with earlier Bayes constants (β = 0.00236, no
@@ -173,6 +176,15 @@ func WithUnseenSpread(eta float64) Option {
 // Bayes model only.
 func WithSeparation(lambda float64) Option {
 	return option{"WithSeparation", func(c *BayesConfig) { c.Separation = lambda }, nil}
+}
+
+// WithInfluence sets BayesConfig.Influence, κ (finite, ≥ 0) of the Bayes
+// model's influence bound: the error of a pair never observed together is
+// at most κ·2·B², B the two-hop influence of the observed value (see Bayes,
+// "Influence bound"). 0 turns the bound off. Default DefaultInfluence. Bayes
+// model only.
+func WithInfluence(kappa float64) Option {
+	return option{"WithInfluence", func(c *BayesConfig) { c.Influence = kappa }, nil}
 }
 
 // WithNoiseK sets BayesConfig.NoiseK, k (finite, ≥ 0) of the Bayes model's

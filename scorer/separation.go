@@ -151,7 +151,50 @@ func (ws *Workspace) separationBias(st Stats, u, m int, alpha float64) (float64,
 		}
 		total += worst
 	}
+	if total == 0 {
+		return 0, nil
+	}
+	// The check measures a dependence the chain invents through a bridge
+	// that does not separate; the bias that adds is at most the chain's
+	// own distance from the target's marginal, ‖p̂ − m_t‖² (equal when the
+	// endpoints are independent, as through a common effect).
+	if d2, ok := ws.marginalDistance(st, u, m, alpha); ok {
+		total = min(total, d2)
+	}
 	return total, nil
+}
+
+// marginalDistance returns ‖p̂ − m_t‖² for the chain loaded by setPath and
+// loadEdges with its suffix products R_j in ws.rr (separationBias): p̂ = row
+// u of M_1 R_1 and m_t the target's smoothed marginal. ok is false without
+// marginals. O(K_1·K_t).
+func (ws *Workspace) marginalDistance(st Stats, u, m int, alpha float64) (float64, bool) {
+	mg, ok := st.(Marginals)
+	if !ok {
+		return 0, false
+	}
+	kt := ws.ks[m+1]
+	c := mg.Marginal(ws.path[m+1])
+	if len(c) != kt {
+		return 0, false
+	}
+	tot := float64(kt) * alpha
+	for _, x := range c {
+		tot += float64(x)
+	}
+	k1 := ws.ks[1]
+	r1 := ws.rr[ws.roff[0]:ws.roff[1]]
+	row := ws.theta[u*k1 : u*k1+k1]
+	d2 := 0.0
+	for v := 0; v < kt; v++ {
+		p := 0.0
+		for j, th := range row {
+			p += th * r1[j*kt+v]
+		}
+		d := p - (float64(c[v])+alpha)/tot
+		d2 += d * d
+	}
+	return d2, true
 }
 
 // witness is one witness w of a bridge's separation check: M(b, w) (K_b ×

@@ -45,6 +45,15 @@ type Workspace struct {
 	deferSep, sepPending bool
 	sepU, sepM           int
 
+	// influence bound of the last query (Bayes.unseenRatio): the ratio
+	// E0/E0_prior for observed value inflU of inflS and target inflT over
+	// the Stats inflSt, valid when inflOK.
+	inflOK       bool
+	inflS, inflT graphidx.EntityID
+	inflU        int
+	inflSt       Stats
+	inflRatio    float64
+
 	// borrow makes newDist hand out out instead of a fresh slice
 	// (BorrowDist); out is never used as scratch by any computation.
 	borrow bool

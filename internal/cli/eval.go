@@ -33,6 +33,7 @@ type evalOptions struct {
 	prior        float64
 	separation   float64
 	noiseK       float64
+	influence    float64
 	spread       float64
 	maxBridges   int
 	beam         int
@@ -113,6 +114,7 @@ DIR/truth.jsonl (the exact answers by id).`,
 	f.Float64Var(&o.spread, "unseen-spread", scorer.DefaultUnseenSpread, "η: a never-seen pair's direct error is η·(1 − P(observed value))²·(1 − 1/K)")
 	f.Float64Var(&o.separation, "separation", scorer.DefaultSeparation, "λ: weight of the chain's separation bias (0: off)")
 	f.Float64Var(&o.noiseK, "noise-k", scorer.DefaultNoiseK, "k: a chain must beat direct by k standard errors of its bias estimate (0: off)")
+	f.Float64Var(&o.influence, "influence", scorer.DefaultInfluence, "κ: weight of the influence bound on an unobserved pair's error (0: off)")
 	f.IntVar(&o.maxBridges, "max-bridges", router.DefaultMaxBridges, "H: most bridges in a chain (1-3)")
 	f.IntVar(&o.beam, "beam", router.DefaultBeam, "B: router beam width")
 	f.IntVar(&o.candidates, "max-candidates", router.DefaultMaxCandidates, "k: chains the router scores exactly")
@@ -190,7 +192,7 @@ func runEval(cmd *cobra.Command, o evalOptions) error {
 	base := eval.Config{
 		World: &wc, Contexts: o.contexts, Beta: &beta, MaxBridges: o.maxBridges, Workers: o.workers,
 		ModelOptions: []scorer.Option{
-			scorer.WithPriorStrength(o.prior), scorer.WithUnseenSpread(o.spread), scorer.WithSeparation(o.separation), scorer.WithNoiseK(o.noiseK),
+			scorer.WithPriorStrength(o.prior), scorer.WithUnseenSpread(o.spread), scorer.WithSeparation(o.separation), scorer.WithNoiseK(o.noiseK), scorer.WithInfluence(o.influence),
 		},
 		RouterOptions: []router.Option{
 			router.WithBeam(o.beam), router.WithMaxCandidates(o.candidates), router.WithGainThreshold(o.gainTau),

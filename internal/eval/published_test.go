@@ -50,39 +50,105 @@ func publishedMean(t *testing.T, net *world.World, minDist int, opts ...scorer.O
 	return m.HeldOut, m.Supported, m.Calibration.Spearman
 }
 
-// TestPublishedAsia checks routing on the chest-clinic network of Lauritzen
-// & Spiegelhalter (1988), J. R. Statist. Soc. B 50(2), 157–224 (world.Asia:
-// 8 binary variables with two common effects, "either" and "dysp").
+// publishedNet is one published network of TestPublishedNetworks with the
+// bounds its routed answers must meet.
+type publishedNet struct {
+	name  string
+	build func() (*world.World, error)
+	// chainTol is how far above the simple count chain the routed held-out
+	// MSE may be (1 = not above); minRho is the least Spearman ρ of
+	// predicted against realised error (a floor under today's value).
+	chainTol, minRho float64
+}
+
+// publishedNets are the networks of TestPublishedNetworks, each typed from
+// its publication (see the world constructors for the sources):
 //
-// Non-adjacent pairs (skeleton distance ≥ 2, held out): the routed answer
-// must beat the target's marginal and stay within 10 % of the simple count
-// chain (fewest bridges, widest support). Adjacent pairs: routed within 10 %
-// of direct. Far pairs (distance ≥ 3), whose best chains in this network
-// run through a common effect (tub → either ← lung ← smoke): the separation
-// check must cut the routed error by at least 40 % (measured 0.0055 →
-// 0.0028, 3 seeds), and the routed error must stay within 2.5× the
-// marginal's (0.0012). The marginal is better there: these pairs start from
-// the rare values asia = yes and tub = yes, for which the fitted unseen-pair
-// error of the marginal is large (a conditional given a rare value is
-// barely tied to the marginal, in the fit worlds), while in ASIA they are
-// independent of the far target; see docs/QUALITY.md.
-func TestPublishedAsia(t *testing.T) {
+//   - ASIA, Lauritzen & Spiegelhalter (1988), J. R. Statist. Soc. B 50(2),
+//     157–224: 8 binary variables, two common effects (world.Asia).
+//   - Survey, Scutari & Denis (2014), "Bayesian Networks with Examples in R",
+//     ch. 1: 6 variables of 2 and 3 values, two common effects (world.Survey;
+//     probabilities typed from memory).
+//   - Cancer, Korb & Nicholson (2004), "Bayesian Artificial Intelligence",
+//     §2.2: 5 binary variables, one common effect (world.Cancer;
+//     probabilities typed from memory).
+//
+// None of them was used to fit a constant: the model is fitted on the
+// synthetic fit worlds (hopwise eval --fit), so these are held-out checks.
+//
+// Measured (3 seeds, 50 000 contexts; routed / marginal / count chain, ρ):
+// ASIA 0.01153 / 0.02862 / 0.01123, ρ 0.473; Survey 1.643e-5 / 2.464e-5 /
+// 1.885e-5, ρ 0.373; Cancer 3.501e-5 / 6.86e-5 / 2.424e-5, ρ 0.578. Before
+// the influence bound ρ was 0.403, 0.055 and 0.146. The chain tolerances
+// are today's shortfalls, not targets: in ASIA the router and the count
+// chain take the same chains through the common effect "either" (tub →
+// either → lung), whose bias no table of a distance-2 corpus can show, and
+// the router's own choices differ on one query (lung → bronc); in Cancer
+// the gap (1.1e-5) is below the error of the marginal itself under local
+// sampling (up to 5e-4 per query), where near ties between the marginal
+// and the one-bridge chain through "cancer" fall either way.
+var publishedNets = []publishedNet{
+	{"asia", world.Asia, 1.1, 0.45},
+	{"survey", world.Survey, 1.0, 0.35},
+	{"cancer", world.Cancer, 1.6, 0.5},
+}
+
+// TestPublishedNetworks checks routing on the published networks: every
+// non-adjacent pair (skeleton distance ≥ 2) is held out. Held-out pairs: the
+// routed answer must be no worse than the target's marginal and within the
+// network's tolerance of the simple count chain (fewest bridges, widest
+// support). Adjacent pairs: within 10 % of direct. Calibration: Spearman ρ at
+// least the network's floor. The mean routed MSE over the networks is
+// logged. Heavy (3 seeds per network): skipped under -short.
+func TestPublishedNetworks(t *testing.T) {
+	if testing.Short() {
+		t.Skip("builds 9 indexes of 50 000 contexts")
+	}
+	t.Parallel()
+	mean := 0.0
+	for _, n := range publishedNets {
+		net, err := n.build()
+		if err != nil {
+			t.Fatal(err)
+		}
+		held, sup, rho := publishedMean(t, net, 2)
+		mean += held.Routed / float64(len(publishedNets))
+		t.Logf("%s, distance ≥ 2: routed %.4g, marginal %.4g, count chain %.4g; supported routed %.4g, direct %.4g; ρ %.3f",
+			n.name, held.Routed, held.Marginal, held.CountChain, sup.Routed, sup.Direct, rho)
+		if held.Routed > held.Marginal {
+			t.Errorf("%s: non-adjacent pairs: routed MSE %.4g above the marginal's %.4g", n.name, held.Routed, held.Marginal)
+		}
+		if held.Routed > n.chainTol*held.CountChain {
+			t.Errorf("%s: non-adjacent pairs: routed MSE %.4g above %g × the count chain's %.4g", n.name, held.Routed, n.chainTol, held.CountChain)
+		}
+		if sup.Routed > 1.1*sup.Direct {
+			t.Errorf("%s: adjacent pairs: routed MSE %.4g above 1.1 × direct %.4g", n.name, sup.Routed, sup.Direct)
+		}
+		if rho < n.minRho {
+			t.Errorf("%s: Spearman ρ %.3f of predicted against realised error, want ≥ %.2f", n.name, rho, n.minRho)
+		}
+	}
+	t.Logf("mean routed held-out MSE over %d networks: %.4g", len(publishedNets), mean)
+}
+
+// TestPublishedAsiaFar checks the far pairs of ASIA (skeleton distance ≥ 3,
+// 9 pairs), whose best chains run through a common effect (tub → either ←
+// lung ← smoke): the separation check must cut the routed error by at least
+// 40 % (measured 0.0055 → 0.0027, 3 seeds), and the routed error must stay
+// within 2.5× the marginal's (0.0012). The marginal is better there: these
+// pairs start from the rare values asia = yes and tub = yes, for which the
+// fitted unseen-pair error of the marginal is large (a conditional given a
+// rare value is barely tied to the marginal, in the fit worlds), while in
+// ASIA they are independent of the far target; see docs/QUALITY.md. Heavy:
+// skipped under -short.
+func TestPublishedAsiaFar(t *testing.T) {
+	if testing.Short() {
+		t.Skip("builds 6 indexes of 50 000 contexts")
+	}
 	t.Parallel()
 	asia, err := world.Asia()
 	if err != nil {
 		t.Fatal(err)
-	}
-	held, sup, rho := publishedMean(t, asia, 2)
-	t.Logf("distance ≥ 2: routed %.4g, marginal %.4g, count chain %.4g; supported routed %.4g, direct %.4g; ρ %.3f",
-		held.Routed, held.Marginal, held.CountChain, sup.Routed, sup.Direct, rho)
-	if held.Routed > held.Marginal {
-		t.Errorf("non-adjacent pairs: routed MSE %.4g above the marginal's %.4g", held.Routed, held.Marginal)
-	}
-	if held.Routed > 1.1*held.CountChain {
-		t.Errorf("non-adjacent pairs: routed MSE %.4g above 1.1 × the count chain's %.4g", held.Routed, held.CountChain)
-	}
-	if sup.Routed > 1.1*sup.Direct {
-		t.Errorf("adjacent pairs: routed MSE %.4g above 1.1 × direct %.4g", sup.Routed, sup.Direct)
 	}
 	far, _, _ := publishedMean(t, asia, 3)
 	off, _, _ := publishedMean(t, asia, 3, scorer.WithSeparation(0))
@@ -92,30 +158,6 @@ func TestPublishedAsia(t *testing.T) {
 	}
 	if far.Routed > 2.5*far.Marginal {
 		t.Errorf("far pairs: routed MSE %.4g above 2.5 × the marginal's %.4g", far.Routed, far.Marginal)
-	}
-}
-
-// TestPublishedSurvey checks routing on the multi-valued travel survey
-// network of Scutari & Denis (2014), "Bayesian Networks with Examples in R",
-// chapter 1 (world.Survey, probabilities typed from memory: see there): six
-// variables of 2 and 3 values with two common effects. Non-adjacent pairs:
-// the routed answer must be no worse than 1.05× the better of the marginal
-// and the simple count chain (measured: routed 1.88e-5, count chain
-// 1.89e-5, marginal 2.46e-5); adjacent pairs within 10 % of direct.
-func TestPublishedSurvey(t *testing.T) {
-	t.Parallel()
-	survey, err := world.Survey()
-	if err != nil {
-		t.Fatal(err)
-	}
-	held, sup, rho := publishedMean(t, survey, 2)
-	t.Logf("distance ≥ 2: routed %.4g, marginal %.4g, count chain %.4g; supported routed %.4g, direct %.4g; ρ %.3f",
-		held.Routed, held.Marginal, held.CountChain, sup.Routed, sup.Direct, rho)
-	if best := min(held.Marginal, held.CountChain); held.Routed > 1.05*best {
-		t.Errorf("non-adjacent pairs: routed MSE %.4g above 1.05 × the better of the marginal (%.4g) and the count chain (%.4g)", held.Routed, held.Marginal, held.CountChain)
-	}
-	if sup.Routed > 1.1*sup.Direct {
-		t.Errorf("adjacent pairs: routed MSE %.4g above 1.1 × direct %.4g", sup.Routed, sup.Direct)
 	}
 }
 
@@ -215,5 +257,29 @@ func TestExplainingAwayChain(t *testing.T) {
 	t.Logf("separation charge: valid chain %.3g, invalid chain %.3g", extra, invalid)
 	if extra > 0.01*invalid {
 		t.Errorf("valid chain smoke → lung → either → xray charged %.3g for separation, more than 1%% of the invalid chain's %.3g", extra, invalid)
+	}
+	// tub → lung → smoke is valid too (given lung, tub and smoke are
+	// separated), but lung's witness "either" is a common effect of tub and
+	// lung, so it fails the witness test. The charge is at most the chain's
+	// squared distance from the target's marginal (tub and lung are
+	// independent, so that distance is tiny), not the 0.21 the witness
+	// alone gives.
+	lOn, err := on.Chain(nil, ix, tub, yes, []graphidx.EntityID{lung}, smoke)
+	if err != nil {
+		t.Fatal(err)
+	}
+	lOff, err := off.Chain(nil, ix, tub, yes, []graphidx.EntityID{lung}, smoke)
+	if err != nil {
+		t.Fatal(err)
+	}
+	m := ix.Marginal(smoke)
+	d2 := 0.0
+	for v := range lOn.Dist {
+		d := lOn.Dist[v] - (float64(m[v])+1)/(float64(m[0]+m[1])+2)
+		d2 += d * d
+	}
+	t.Logf("tub → lung → smoke: answers %.3f, separation charge %.3g, squared distance from the marginal %.3g", lOn.Dist[yes], lOn.Err-lOff.Err, d2)
+	if got := lOn.Err - lOff.Err; got > d2+1e-12 || got > 0.01*invalid {
+		t.Errorf("valid chain tub → lung → smoke charged %.3g for separation: above its squared distance %.3g from the marginal or 1%% of the invalid chain's %.3g", got, d2, invalid)
 	}
 }

@@ -144,3 +144,43 @@ func PublishedHeldOut(w *World, minDist int) [][2]int {
 	}
 	return out
 }
+
+// Cancer returns the lung-cancer network of Korb & Nicholson (2004),
+// "Bayesian Artificial Intelligence", Chapman & Hall/CRC, §2.2 (Fig. 2.1 and
+// its tables): five binary variables, one common effect. The probabilities
+// below were typed from memory of that example (not copied from the book
+// at hand); the structure is the book's.
+//
+//	pollution   high | low                  P(low) = 0.9
+//	smoker      no | yes                    P(yes) = 0.3
+//	cancer      no | yes    ← pollution, smoker
+//	            (high,yes) .05, (high,no) .02, (low,yes) .03, (low,no) .001
+//	xray        negative | positive  ← cancer   yes .9, no .2
+//	dysp        no | yes    ← cancer            yes .65, no .3
+//
+// cancer is a common effect of pollution and smoker, which are independent;
+// every non-adjacent pair is two hops apart through cancer.
+func Cancer() (*World, error) {
+	const (
+		pollution = iota
+		smoker
+		cancer
+		xray
+		dysp
+	)
+	yn := []string{"no", "yes"}
+	vars := []Variable{
+		pollution: {Name: "pollution", Labels: []string{"high", "low"}, CPT: []float64{0.1, 0.9}},
+		smoker:    {Name: "smoker", Labels: yn, CPT: []float64{0.7, 0.3}},
+		// (pollution, smoker): (high,no), (high,yes), (low,no), (low,yes).
+		cancer: {Name: "cancer", Labels: yn, Parents: []int{pollution, smoker}, CPT: []float64{
+			0.98, 0.02, 0.95, 0.05, 0.999, 0.001, 0.97, 0.03}},
+		xray: {Name: "xray", Labels: []string{"negative", "positive"}, Parents: []int{cancer}, CPT: []float64{0.8, 0.2, 0.1, 0.9}},
+		dysp: {Name: "dysp", Labels: yn, Parents: []int{cancer}, CPT: []float64{0.7, 0.3, 0.35, 0.65}},
+	}
+	w, err := New(vars)
+	if err != nil {
+		return nil, fmt.Errorf("cancer: %w", err)
+	}
+	return w, nil
+}

@@ -106,3 +106,34 @@ func TestPublishedHeldOut(t *testing.T) {
 		}
 	}
 }
+
+// TestCancer checks world.Cancer against the marginal hand-computed from
+// the typed tables, P(cancer) = 0.9·(0.3·0.03 + 0.7·0.001) + 0.1·(0.3·0.05 +
+// 0.7·0.02) = 0.01163, and the independence of the common effect's causes.
+func TestCancer(t *testing.T) {
+	t.Parallel()
+	w, err := Cancer()
+	if err != nil {
+		t.Fatal(err)
+	}
+	c, _ := w.Index("cancer")
+	p, err := w.Posterior(c, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if math.Abs(p[1]-0.01163) > 1e-12 {
+		t.Errorf("P(cancer = yes) = %.6f, want 0.01163", p[1])
+	}
+	pol, _ := w.Index("pollution")
+	smk, _ := w.Index("smoker")
+	q, err := w.TrueConditional(pol, 0, smk)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if math.Abs(q[1]-0.3) > 1e-12 {
+		t.Errorf("P(smoker | pollution = high) = %v, want 0.3", q)
+	}
+	if got := len(PublishedHeldOut(w, 2)); got != 6 {
+		t.Errorf("%d non-adjacent pairs, want 6", got)
+	}
+}

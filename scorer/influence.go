@@ -1,0 +1,319 @@
+package scorer
+
+import (
+	"reflect"
+
+	"github.com/hopwise/hopwise/graphidx"
+)
+
+// Sizes of the influence bound (see Bayes, "Influence bound"):
+// InfluenceFirst is the most neighbours the observed entity may have for
+// the bound to apply (all of them are read: the bound assumes every route
+// out of the entity starts at a neighbour it read); InfluenceRefine is how
+// many of them, those of largest TV(π_w, m_w), are refined to their two-hop
+// deviation, over the target and the first InfluenceSecond ranked
+// neighbours of w. Together they keep the bound at most 2·InfluenceFirst +
+// InfluenceRefine·(1 + InfluenceSecond) = 24 pair look-ups per direct
+// estimate.
+const (
+	InfluenceFirst  = 8
+	InfluenceSecond = 3
+	InfluenceRefine = 2
+)
+
+// influenceBound returns min(B, B_t)², the squared influence bound of the
+// observed value s = u on the target t (see Bayes, "Influence bound"):
+//
+//	B   = Σ_w min(TV(π_w, m_w), max_z TV(d_z)),   d_z = (π_w − m_w)ᵀ Θ_(w→z),
+//	B_t = Σ_(w observed with t) TV(d_t),
+//
+// w over every neighbour of s (at most InfluenceFirst, else ok is false), z
+// over t and the first InfluenceSecond ranked neighbours of w other than s
+// for the InfluenceRefine neighbours of largest TV(π_w, m_w) (the others
+// keep that TV, an upper bound of their term); π_w = P̂(w | s = u) is row u
+// of the pair (s, w)'s posterior means, m_w = P̂(w) the smoothed marginal of
+// w, Θ_(w→z) the posterior-mean matrix of the pair (w, z) and TV half the L1
+// norm. A result with 2·B² ≥ stop may be cut short (the caller's cap
+// cannot bind). ok is false when st lacks ranked neighbours, neighbour
+// lists or marginals, or no neighbour of s has a table and a marginal.
+// Cost as InfluenceFirst says, O(K²) arithmetic per look-up, no allocation.
+func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, stop float64) (float64, bool, error) {
+	rn, ok := st.(RankedNeighborer)
+	if !ok {
+		return 0, false, nil
+	}
+	nl, ok := st.(NeighborLister)
+	if !ok {
+		return 0, false, nil
+	}
+	first := nl.Neighbors(s)
+	if len(first) > InfluenceFirst {
+		return 0, false, nil
+	}
+	ms, ok := st.(Marginals)
+	if !ok {
+		return 0, false, nil
+	}
+	ks := st.NumValues(s)
+	if u < 0 || u >= ks {
+		return 0, false, nil
+	}
+	// Pass 1: π_w − m_w and TV(π_w, m_w) for every neighbour w; the TV
+	// bounds every two-hop deviation through w.
+	var devs [InfluenceFirst][graphidx.MaxValues]float64
+	var tvs [InfluenceFirst]float64
+	var ws [InfluenceFirst]graphidx.EntityID
+	var kws [InfluenceFirst]int
+	var out [graphidx.MaxValues]float64
+	tsum, tseen := 0.0, false
+	n := 0
+	for _, w := range first {
+		if w == s {
+			continue
+		}
+		kw := st.NumValues(w)
+		if kw < 1 || kw > graphidx.MaxValues {
+			continue
+		}
+		ps, ok, err := pair(st, s, w, ks, kw)
+		if err != nil {
+			return 0, false, err
+		}
+		if !ok {
+			continue
+		}
+		mw := ms.Marginal(w)
+		if len(mw) != kw {
+			continue
+		}
+		rowTot := float64(ps.RowSum(u)) + float64(kw)*b.alpha
+		mTot := float64(kw) * b.alpha
+		for _, c := range mw {
+			mTot += float64(c)
+		}
+		dev := devs[n][:kw]
+		tvw := 0.0
+		for v := range dev {
+			dev[v] = (float64(ps.Count(u, v))+b.alpha)/rowTot - (float64(mw[v])+b.alpha)/mTot
+			if dev[v] > 0 {
+				tvw += dev[v]
+			}
+		}
+		tvs[n], ws[n], kws[n] = tvw, w, kw
+		n++
+		// Through w straight to the target, when w was observed with it.
+		tv, ok, err := b.twoHop(st, w, kw, t, dev, out[:])
+		if err != nil {
+			return 0, false, err
+		}
+		if ok {
+			tsum += min(tv, tvw)
+			tseen = true
+		}
+	}
+	if n == 0 {
+		return 0, false, nil
+	}
+	if tseen && 2*tsum*tsum < stop {
+		stop = 2 * tsum * tsum // the refinement below matters only below it
+	}
+	// Pass 2: the InfluenceRefine neighbours of largest TV get their
+	// two-hop deviation: to the target itself when w was observed with it,
+	// and to w's first InfluenceSecond ranked neighbours. The rest keep
+	// their TV. Order by TV, descending (n ≤ InfluenceFirst).
+	var idx [InfluenceFirst]int
+	for i := range n {
+		idx[i] = i
+		for j := i; j > 0 && tvs[idx[j]] > tvs[idx[j-1]]; j-- {
+			idx[j], idx[j-1] = idx[j-1], idx[j]
+		}
+	}
+	refine := min(InfluenceRefine, n)
+	rest := 0.0
+	for _, i := range idx[refine:n] {
+		rest += tvs[i]
+	}
+	if 2*rest*rest >= stop {
+		return min(rest*rest, stop/2), true, nil // the refinement cannot go below stop
+	}
+	sum := rest
+	for _, i := range idx[:refine] {
+		w, kw := ws[i], kws[i]
+		dev := devs[i][:kw]
+		best := 0.0
+		tv, ok, err := b.twoHop(st, w, kw, t, dev, out[:])
+		if err != nil {
+			return 0, false, err
+		}
+		if ok {
+			best = tv
+		}
+		second := 0
+		for _, z := range rn.RankedNeighbors(w) {
+			if second == InfluenceSecond {
+				break
+			}
+			if z == s || z == w || z == t {
+				continue
+			}
+			tv, ok, err := b.twoHop(st, w, kw, z, dev, out[:])
+			if err != nil {
+				return 0, false, err
+			}
+			if !ok {
+				continue
+			}
+			second++
+			best = max(best, tv)
+		}
+		sum += min(best, tvs[i])
+	}
+	if tseen {
+		sum = min(sum, tsum)
+	}
+	return sum * sum, true, nil
+}
+
+// unseenErrs returns the prior error E0 of an unobserved pair (unseenErr)
+// and the error after the influence bound, min(E0, κ·2·B² + Var(m̂_t)) when
+// sup = 0 and the bound applies (marginalVar), else E0 again (see Bayes, "Influence bound"). ok
+// is false without marginals. Cost that of influenceBound when sup = 0.
+func (b *Bayes) unseenErrs(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, kt int, sup uint64) (prior, e0 float64, ok bool, err error) {
+	prior, ok = b.unseenErr(st, s, u, kt)
+	if !ok {
+		return 0, 0, false, nil
+	}
+	e0 = prior
+	if sup == 0 && b.influence > 0 && prior > 0 {
+		bb, ok, err := b.influenceBound(st, s, u, t, prior/b.influence)
+		if err != nil {
+			return 0, 0, false, err
+		}
+		if ok {
+			// The marginal's own error adds its posterior variance.
+			e0 = min(prior, b.influence*2*bb+b.marginalVar(st, t, kt))
+		}
+	}
+	return prior, e0, true, nil
+}
+
+// marginalVar returns (1 − Σ_v m̂_v²)/(N + K_t α + 1), the posterior
+// variance (summed over values) of the target's smoothed marginal m̂ from
+// its N marginal counts: the part of the marginal's squared error that
+// remains when the target does not depend on the observed value at all. 0
+// without marginals of K_t entries. O(K_t).
+func (b *Bayes) marginalVar(st Stats, t graphidx.EntityID, kt int) float64 {
+	ms, ok := st.(Marginals)
+	if !ok {
+		return 0
+	}
+	c := ms.Marginal(t)
+	if len(c) != kt {
+		return 0
+	}
+	tot := float64(kt) * b.alpha
+	for _, x := range c {
+		tot += float64(x)
+	}
+	sq := 0.0
+	for _, x := range c {
+		m := (float64(x) + b.alpha) / tot
+		sq += m * m
+	}
+	return max(0, 1-sq) / (tot + 1)
+}
+
+// remember records r = E0/E0_prior of the query (s = u, t) over st in ws,
+// for the Chain calls that follow (unseenRatio). ws may be nil. O(1).
+func (ws *Workspace) remember(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, r float64) {
+	if ws == nil {
+		return
+	}
+	ws.inflOK, ws.inflSt, ws.inflS, ws.inflU, ws.inflT, ws.inflRatio = true, st, s, u, t, r
+}
+
+// unseenRatio returns r = E0/E0_prior ∈ [0, 1] for the query (s = u, t):
+// the factor by which the influence bound shrinks the missing-signal bias
+// of a chain (see Bayes, "Influence bound"); 1 when the pair was observed
+// together, without marginals or with the bound off. It reuses the value
+// that the last Direct (or Chain) call with ws recorded for the same query
+// and the same Stats value, else computes and records it. O(1) when
+// recorded, else one pair look-up plus influenceBound.
+func (b *Bayes) unseenRatio(ws *Workspace, st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, kt int) (float64, error) {
+	if b.influence == 0 {
+		return 1, nil
+	}
+	if ws.inflOK && ws.inflS == s && ws.inflU == u && ws.inflT == t && sameStats(ws.inflSt, st) {
+		return ws.inflRatio, nil
+	}
+	ks := ws.ks[0]
+	ps, ok, err := pair(st, s, t, ks, kt)
+	if err != nil {
+		return 0, err
+	}
+	var sup uint64
+	if ok {
+		sup = ps.Support()
+	}
+	r := 1.0
+	prior, e0, ok, err := b.unseenErrs(st, s, u, t, kt, sup)
+	if err != nil {
+		return 0, err
+	}
+	if ok && prior > 0 {
+		r = e0 / prior
+	}
+	ws.remember(st, s, u, t, r)
+	return r, nil
+}
+
+// sameStats reports whether a and b are the same Stats value; values of a
+// type that cannot be compared are never the same (so a Workspace never
+// reuses a recorded ratio for them). O(1).
+func sameStats(a, b Stats) bool {
+	ta := reflect.TypeOf(a)
+	if ta == nil || ta != reflect.TypeOf(b) || !ta.Comparable() {
+		return false
+	}
+	return a == b
+}
+
+// twoHop returns TV(d_z), d_z = devᵀ Θ_(w→z) with Θ the posterior means of
+// the pair (w, z), using out (≥ K_z entries) as scratch; ok is false when
+// the pair was never observed; err reports a pair whose shape does not
+// match the request (ErrBadStats). O(K_w·K_z) and one pair look-up.
+func (b *Bayes) twoHop(st Stats, w graphidx.EntityID, kw int, z graphidx.EntityID, dev, out []float64) (float64, bool, error) {
+	kz := st.NumValues(z)
+	if kz < 1 || kz > graphidx.MaxValues {
+		return 0, false, nil
+	}
+	pz, ok, err := pair(st, w, z, kw, kz)
+	if err != nil || !ok {
+		return 0, false, err
+	}
+	clear(out[:kz])
+	for r := 0; r < kw; r++ {
+		if dev[r] == 0 {
+			continue
+		}
+		f := dev[r] / (float64(pz.RowSum(r)) + float64(kz)*b.alpha)
+		for v := 0; v < kz; v++ {
+			out[v] += f * (float64(pz.Count(r, v)) + b.alpha)
+		}
+	}
+	tv := 0.0
+	for _, d := range out[:kz] {
+		if d > 0 {
+			tv += d
+		}
+	}
+	return tv, true, nil
+}
+
+// NeighborLister is an optional interface of a Stats: every entity observed
+// with id (in any order). *graphidx.Index satisfies it. With it the Bayes
+// model bounds an unobserved pair's error by the observed value's influence
+// (see Bayes, "Influence bound").
+type NeighborLister interface {
+	Neighbors(id graphidx.EntityID) []graphidx.EntityID
+}

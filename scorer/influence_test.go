@@ -1,0 +1,328 @@
+package scorer_test
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"slices"
+	"testing"
+
+	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/scorer"
+)
+
+// localStats adds marginals and neighbour lists to memStats, as an index
+// has them: what the influence bound reads.
+type localStats struct {
+	*memStats
+	marg map[graphidx.EntityID][]uint64
+	adj  map[graphidx.EntityID][]graphidx.EntityID
+}
+
+func newLocalStats() *localStats {
+	return &localStats{memStats: newMemStats(), marg: map[graphidx.EntityID][]uint64{}, adj: map[graphidx.EntityID][]graphidx.EntityID{}}
+}
+
+// link stores the table of (a, b) and records each as the other's
+// neighbour (in insertion order, which serves as the support ranking).
+func (l *localStats) link(a, b graphidx.EntityID, rows [][]uint32) {
+	l.pair(a, b, rows)
+	l.adj[a] = append(l.adj[a], b)
+	l.adj[b] = append(l.adj[b], a)
+}
+
+func (l *localStats) Marginal(id graphidx.EntityID) []uint64 { return l.marg[id] }
+func (l *localStats) Neighbors(id graphidx.EntityID) []graphidx.EntityID {
+	return slices.Clone(l.adj[id])
+}
+func (l *localStats) RankedNeighbors(id graphidx.EntityID) []graphidx.EntityID { return l.adj[id] }
+
+// tv2 is the total-variation distance of a binary distribution deviation d
+// (its positive part).
+func tv2(d0, d1 float64) float64 { return max(d0, 0) + max(d1, 0) }
+
+// pathWorld returns the path 1 — 2 — 3 — 4 of binary entities of
+// TestInfluenceBound: (1, 2) barely dependent, (2, 3) and (3, 4) more.
+func pathWorld() *localStats {
+	st := newLocalStats()
+	for id := graphidx.EntityID(1); id <= 4; id++ {
+		st.entity(id, 2)
+	}
+	st.link(1, 2, [][]uint32{{400, 100}, {380, 120}})
+	st.link(2, 3, [][]uint32{{600, 180}, {90, 130}})
+	st.link(3, 4, [][]uint32{{500, 190}, {100, 210}})
+	st.marg[1] = []uint64{500, 500}
+	st.marg[2] = []uint64{780, 220}
+	st.marg[3] = []uint64{690, 310}
+	st.marg[4] = []uint64{600, 400}
+	return st
+}
+
+// TestInfluenceBound: on the path s — w — z — t of binary entities, with
+// (s, t) never observed together, the error of the direct estimate of t
+// given s = u is min(E0, 2·B² + Var(m̂_t)), E0 the fitted prior error, B the
+// two-hop influence TV((π_w − m_w)ᵀ Θ_(w→z)) computed here by hand from the
+// tables (α = 1); a chain's missing-signal term shrinks by the same factor.
+// The bound does not apply with κ = 0, to a pair observed together, or when
+// s has more neighbours than InfluenceFirst (the bound could not read them
+// all).
+func TestInfluenceBound(t *testing.T) {
+	t.Parallel()
+	const s, w, z, tg = 1, 2, 3, 4
+	st := pathWorld()
+	const u = 1
+	// By hand: π_w = row u of (s, w) smoothed, m_w the smoothed marginal.
+	pi := []float64{381.0 / 502, 121.0 / 502}
+	mw := []float64{781.0 / 1002, 221.0 / 1002}
+	dev := []float64{pi[0] - mw[0], pi[1] - mw[1]}
+	theta := [][]float64{{601.0 / 782, 181.0 / 782}, {91.0 / 222, 131.0 / 222}}
+	d0 := dev[0]*theta[0][0] + dev[1]*theta[1][0]
+	d1 := dev[0]*theta[0][1] + dev[1]*theta[1][1]
+	b := min(tv2(d0, d1), tv2(dev[0], dev[1]))
+	share := 501.0 / 1002
+	prior := scorer.DefaultUnseenSpread * (1 - share) * (1 - share) * 0.5
+	mt := []float64{601.0 / 1002, 401.0 / 1002} // the target's smoothed marginal
+	want := min(prior, 2*b*b+(1-mt[0]*mt[0]-mt[1]*mt[1])/1003)
+	if want >= prior/10 {
+		t.Fatalf("test world: bound %.3g does not bind against E0 %.3g", want, prior)
+	}
+
+	on := mustBayes(t)
+	off := mustBayes(t, scorer.WithInfluence(0))
+	got, err := on.Direct(nil, st, s, u, tg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !near(got.Err, want, 1e-12) {
+		t.Errorf("bounded error %.15g, want %.15g (E0 %.6g, B %.6g)", got.Err, want, prior, b)
+	}
+	plain, err := off.Direct(nil, st, s, u, tg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !near(plain.Err, prior, 1e-12) {
+		t.Errorf("κ = 0: error %.15g, want E0 %.15g", plain.Err, prior)
+	}
+	if !slices.Equal(got.Dist, plain.Dist) {
+		t.Errorf("the bound changed the estimate: %v against %v", got.Dist, plain.Dist)
+	}
+
+	// A chain's missing-signal term shrinks by want/prior; the rest of its
+	// error is unchanged. Compare with the term off to isolate it.
+	bridges := []graphidx.EntityID{w, z}
+	var terms [2]float64
+	for i, m := range []*scorer.Bayes{on, off} {
+		c0, err := mustBayesFrom(t, m, 0).Chain(nil, st, s, u, bridges, tg)
+		if err != nil {
+			t.Fatal(err)
+		}
+		c1, err := m.Chain(nil, st, s, u, bridges, tg)
+		if err != nil {
+			t.Fatal(err)
+		}
+		terms[i] = c1.Err - c0.Err
+	}
+	if terms[1] <= 0 {
+		t.Fatalf("test world: the weak chain pays no missing-signal term")
+	}
+	if r := terms[0] / terms[1]; !near(r, want/prior, 1e-9) {
+		t.Errorf("missing-signal term scaled by %.9g, want %.9g", r, want/prior)
+	}
+	// A workspace reused across queries (as the router does) gives the
+	// same answers as a fresh one.
+	ws := scorer.NewWorkspace()
+	for range 2 {
+		for _, tt := range []graphidx.EntityID{tg, z} {
+			d, err := on.Direct(ws, st, s, u, tt)
+			if err != nil {
+				t.Fatal(err)
+			}
+			d0, _ := on.Direct(nil, st, s, u, tt)
+			if d.Err != d0.Err {
+				t.Errorf("reused workspace: Err %v, fresh %v", d.Err, d0.Err)
+			}
+		}
+		c, err := on.Chain(ws, st, s, u, bridges, tg)
+		if err != nil {
+			t.Fatal(err)
+		}
+		c0, _ := on.Chain(nil, st, s, u, bridges, tg)
+		if c.Err != c0.Err {
+			t.Errorf("reused workspace: chain Err %v, fresh %v", c.Err, c0.Err)
+		}
+	}
+
+	// A pair observed together keeps its error: add (s, t) to a copy.
+	seen := pathWorld()
+	seen.link(s, tg, [][]uint32{{1, 0}, {0, 1}})
+	a, _ := on.Direct(nil, seen, s, u, tg)
+	bOff, _ := off.Direct(nil, seen, s, u, tg)
+	if a.Err != bOff.Err {
+		t.Errorf("observed pair: Err %v with the bound, %v without", a.Err, bOff.Err)
+	}
+
+	// More neighbours than InfluenceFirst: no bound.
+	hub := pathWorld()
+	for i := range scorer.InfluenceFirst {
+		id := graphidx.EntityID(10 + i)
+		hub.entity(id, 2)
+		hub.marg[id] = []uint64{500, 500}
+		hub.link(s, id, [][]uint32{{250, 250}, {250, 250}})
+	}
+	h, err := on.Direct(nil, hub, s, u, tg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !near(h.Err, prior, 1e-12) || math.IsNaN(h.Err) {
+		t.Errorf("hub with %d neighbours: Err %.15g, want E0 %.15g", len(hub.adj[s]), h.Err, prior)
+	}
+}
+
+// TestInfluenceBoundTarget: when the observed entity's neighbour w was
+// observed with the target t, the bound is the deviation w passes on to t
+// itself, TV((π_w − m_w)ᵀ Θ_(w→t)), even when w moves another neighbour z
+// more (the two-hop bound through z alone would be larger).
+func TestInfluenceBoundTarget(t *testing.T) {
+	t.Parallel()
+	const s, w, z, tg = 1, 2, 3, 4
+	st := newLocalStats()
+	for id := graphidx.EntityID(1); id <= 4; id++ {
+		st.entity(id, 2)
+	}
+	sw := [][]uint32{{400, 100}, {300, 200}}
+	st.link(s, w, sw)
+	st.link(w, z, [][]uint32{{690, 10}, {10, 290}})    // w → z strong
+	st.link(w, tg, [][]uint32{{400, 300}, {160, 140}}) // w → t weak
+	st.marg[s] = []uint64{500, 500}
+	st.marg[w] = []uint64{700, 300}
+	st.marg[z] = []uint64{700, 300}
+	st.marg[tg] = []uint64{560, 440}
+	const u = 1
+	pi := []float64{301.0 / 502, 201.0 / 502}
+	mw := []float64{701.0 / 1002, 301.0 / 1002}
+	dev := []float64{pi[0] - mw[0], pi[1] - mw[1]}
+	through := func(rows [][]float64) float64 {
+		d0 := dev[0]*rows[0][0] + dev[1]*rows[1][0]
+		d1 := dev[0]*rows[0][1] + dev[1]*rows[1][1]
+		return tv2(d0, d1)
+	}
+	toT := through([][]float64{{401.0 / 702, 301.0 / 702}, {161.0 / 302, 141.0 / 302}})
+	toZ := through([][]float64{{691.0 / 702, 11.0 / 702}, {11.0 / 302, 291.0 / 302}})
+	if !(toT < toZ/4) {
+		t.Fatalf("test world: deviation at t %.4g not well below the one at z %.4g", toT, toZ)
+	}
+	share := 501.0 / 1002
+	prior := scorer.DefaultUnseenSpread * (1 - share) * (1 - share) * 0.5
+	mt := []float64{561.0 / 1002, 441.0 / 1002}
+	want := min(prior, 2*toT*toT+(1-mt[0]*mt[0]-mt[1]*mt[1])/1003)
+	got, err := mustBayes(t).Direct(nil, st, s, u, tg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !near(got.Err, want, 1e-12) {
+		t.Errorf("bounded error %.15g, want %.15g (through z alone it would be %.6g)", got.Err, want, 2*toZ*toZ)
+	}
+}
+
+// mustBayesFrom returns m's configuration with γ set (the missing-signal
+// term on or off, everything else equal).
+func mustBayesFrom(t *testing.T, m *scorer.Bayes, gamma float64) *scorer.Bayes {
+	t.Helper()
+	c := m.Config()
+	c.MissingGamma = gamma
+	b, err := scorer.NewBayesFrom(c)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return b
+}
+
+// BenchmarkDirectUnseen measures Bayes.Direct for pairs never observed
+// together on a real index (1000 binary entities on a ring, each observed
+// with the 2 nearest on either side: 4 neighbours), with the influence
+// bound on (κ = 1) against the baseline κ = 0 in the same run: the bound's
+// added cost per direct estimate (at most 16 pair look-ups here).
+func BenchmarkDirectUnseen(b *testing.B) {
+	const n = 1000
+	rng := rand.New(rand.NewPCG(7, 7))
+	src := &tableSource{}
+	for i := range n {
+		src.ents = append(src.ents, graphidx.EntityRecord{Name: fmt.Sprintf("e%04d", i), Values: []string{"off", "on"}, Marginal: make([]uint64, 2)})
+	}
+	for a := range n {
+		for d := 1; d <= 2; d++ {
+			c := (a + d) % n
+			lo, hi := min(a, c), max(a, c)
+			flat := []uint32{uint32(200 + rng.IntN(100)), uint32(20 + rng.IntN(50)), uint32(20 + rng.IntN(50)), uint32(200 + rng.IntN(100))}
+			for r := range 2 {
+				for v := range 2 {
+					src.ents[lo].Marginal[r] += uint64(flat[r*2+v])
+					src.ents[hi].Marginal[v] += uint64(flat[r*2+v])
+				}
+			}
+			src.pairs = append(src.pairs, graphidx.PairRecord{A: graphidx.EntityID(lo), B: graphidx.EntityID(hi), Counts: flat})
+		}
+	}
+	slices.SortFunc(src.pairs, func(x, y graphidx.PairRecord) int {
+		if x.A != y.A {
+			return int(x.A) - int(y.A)
+		}
+		return int(x.B) - int(y.B)
+	})
+	ix := openIndex(b, src)
+	for _, kappa := range []float64{0, 1} {
+		b.Run(fmt.Sprintf("kappa=%g", kappa), func(b *testing.B) {
+			model := mustBayes(b, scorer.WithInfluence(kappa))
+			ws := scorer.NewWorkspace()
+			ws.BorrowDist(true)
+			var est scorer.Estimate
+			var err error
+			i := 0
+			b.ReportAllocs()
+			for b.Loop() {
+				s := graphidx.EntityID(i % n)
+				est, err = model.Direct(ws, ix, s, i&1, graphidx.EntityID((i+10)%n))
+				i++
+			}
+			if err != nil {
+				b.Fatal(err)
+			}
+			if est.Support != 0 || len(est.Dist) != 2 || !(est.Err > 0) {
+				b.Fatalf("unexpected estimate %+v for a pair never observed together", est)
+			}
+		})
+	}
+}
+
+// wrongShape is a localStats whose table of (a, b) claims a different
+// shape than the entities have (a broken Stats implementation).
+type wrongShape struct {
+	*localStats
+	a, b graphidx.EntityID
+}
+
+func (w wrongShape) Pair(a, b graphidx.EntityID) (graphidx.PairStats, bool) {
+	ps, ok := w.localStats.Pair(a, b)
+	if ok && a == w.a && b == w.b {
+		ps.KB++
+	}
+	return ps, ok
+}
+
+// TestInfluenceBoundBadStats: a neighbour table read only by the influence
+// bound whose shape does not match its entities is reported
+// (ErrBadStats), not skipped.
+func TestInfluenceBoundBadStats(t *testing.T) {
+	t.Parallel()
+	for _, c := range []struct {
+		name string
+		a, b graphidx.EntityID
+	}{{"first hop", 1, 2}, {"second hop", 2, 3}} {
+		st := wrongShape{pathWorld(), c.a, c.b}
+		_, err := mustBayes(t).Direct(nil, st, 1, 1, 4)
+		if !errors.Is(err, scorer.ErrBadStats) {
+			t.Errorf("%s: Direct error %v, want ErrBadStats", c.name, err)
+		}
+	}
+}
