@@ -257,7 +257,7 @@ func Compile(ctx context.Context, r ContextReader, opts ...BuildOption) (*Compil
 }
 
 func newBuildConfig(opts []BuildOption) buildConfig {
-	cfg := buildConfig{workers: runtime.GOMAXPROCS(0), memBudget: DefaultMemBudget, minSupport: 1,
+	cfg := buildConfig{workers: min(runtime.GOMAXPROCS(0), MaxWorkers), memBudget: DefaultMemBudget, minSupport: 1,
 		progressTick: 200 * time.Millisecond, fanIn: 256, maxCtxEnts: DefaultMaxContextEntities,
 		minValid: DefaultMinValidShare}
 	for _, o := range opts {
@@ -265,6 +265,7 @@ func newBuildConfig(opts []BuildOption) buildConfig {
 			o.applyBuild(&cfg)
 		}
 	}
+	cfg.checkWorkers()
 	return cfg
 }
 
@@ -450,7 +451,7 @@ const fixedOverhead = 4 << 20
 // collector's headroom and the runtime.
 func (b *buildRun) tableLimit() int64 {
 	free := b.cfg.memBudget - b.cfg.memBudget/8 - fixedOverhead - b.dict.bytes.Load()
-	return max(free/int64(b.cfg.workers), 64<<10)
+	return max(free/int64(b.cfg.workers), minTableBytes)
 }
 
 // canGrow reports whether a table of the given bytes may double: growing
