@@ -2,6 +2,7 @@ package graphidx
 
 import (
 	"bufio"
+	"bytes"
 	"compress/gzip"
 	"errors"
 	"fmt"
@@ -114,7 +115,11 @@ type LineError struct {
 // escaped, so printing the error cannot drive a terminal.
 func (e *LineError) Error() string {
 	var b strings.Builder
-	fmt.Fprintf(&b, "%s:%d: ", EscapeControl(e.File), e.Line)
+	if e.Line > 0 {
+		fmt.Fprintf(&b, "%s:%d: ", EscapeControl(e.File), e.Line)
+	} else { // no line: an empty file, or a line parsed alone (JSONLLineParser)
+		fmt.Fprintf(&b, "%s: ", EscapeControl(e.File))
+	}
 	if e.Field != "" {
 		b.WriteString(EscapeControl(e.Field))
 		b.WriteString(": ")
@@ -126,6 +131,12 @@ func (e *LineError) Error() string {
 	}
 	return b.String()
 }
+
+// trimBOM drops a UTF-8 byte-order mark from the start of a file's first
+// line: editors and spreadsheet exports on some systems write one, and it
+// is no part of the first name (RFC 8259 §8.1 lets a JSON parser ignore
+// it). O(1).
+func trimBOM(line []byte) []byte { return bytes.TrimPrefix(line, []byte("\xef\xbb\xbf")) }
 
 // isControl reports the C0 controls, DEL and the C1 controls.
 func isControl(r rune) bool { return r < 0x20 || (r >= 0x7f && r <= 0x9f) }

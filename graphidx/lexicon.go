@@ -162,7 +162,8 @@ func LoadLexicon(path string) (*Lexicon, error) {
 //	surface form<TAB>entity id
 //	surface form<TAB>entity id<TAB>value
 //
-// Blank lines and lines starting with '#' are ignored. Every field is
+// Blank lines and lines starting with '#' are ignored, and so is a UTF-8
+// byte-order mark at the start of the file. Every field is
 // trimmed of surrounding spaces and must be non-empty valid UTF-8 of at most
 // MaxNameBytes. Surface forms are case-folded (unicode.ToLower per rune).
 // Several forms may name one entity. A form with a value states that value
@@ -214,6 +215,9 @@ func parseLexiconTags(r io.Reader, name string, perRune bool, tagMask uint32) (*
 		}
 		if lr.tooLong {
 			return nil, le("", ReasonLineTooLong, "longer than 1 MiB")
+		}
+		if lr.line == 1 {
+			line = trimBOM(line)
 		}
 		t := bytes.TrimSpace(line)
 		if len(t) == 0 || t[0] == '#' {
