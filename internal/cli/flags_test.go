@@ -125,3 +125,14 @@ func TestErrorsSayWhatToDo(t *testing.T) {
 		}
 	}
 }
+
+// TestRouteRefusesNegativeTimeout: --timeout below zero is an error naming
+// the flag; it used to be taken silently as "no deadline", the meaning of
+// 0, so a typo removed the deadline a gateway test meant to set.
+func TestRouteRefusesNegativeTimeout(t *testing.T) {
+	t.Parallel()
+	_, err := routeCLI(t, "route", "--index", "x.hwx", "--from", "a", "--value", "v", "--to", "b", "--timeout", "-1s")
+	if err == nil || !strings.Contains(err.Error(), "route: --timeout must not be negative, got -1s (0 means no deadline)") {
+		t.Errorf("--timeout -1s: %v", err)
+	}
+}
