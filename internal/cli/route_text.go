@@ -44,11 +44,15 @@ func newTextPlanner(lexicon, chainTmpl, directTmpl string, cfg router.Config) (*
 		if err != nil {
 			return nil, fmt.Errorf("route: %s: %w", t.flag, err)
 		}
+		// Checked alone first, so the error names the flag and the file.
+		if _, err := plan.NewRenderer(t.opt(string(b))); err != nil {
+			return nil, fmt.Errorf("route: %s %s: %w", t.flag, t.path, err)
+		}
 		opts = append(opts, t.opt(string(b)))
 	}
 	rend, err := plan.NewRenderer(opts...)
 	if err != nil {
-		return nil, fmt.Errorf("route: %w (templates: %q, %q)", err, chainTmpl, directTmpl)
+		return nil, fmt.Errorf("route: %w", err)
 	}
 	return &textPlanner{lex: lex, rend: rend, cfg: cfg}, nil
 }

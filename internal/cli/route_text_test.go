@@ -197,8 +197,18 @@ func TestRouteTextTemplates(t *testing.T) {
 	if err == nil || errors.As(err, &ee) || !strings.Contains(err.Error(), "direct template") || !strings.Contains(err.Error(), "bad.tmpl") {
 		t.Errorf("unparsable template: %v", err)
 	}
+	// A template failing on every plan of a shape fails at load, naming
+	// the flag, the file and the shape.
+	sevenSteps := filepath.Join(dir, "seven.tmpl")
+	os.WriteFile(sevenSteps, []byte("{{index .Steps 7}}"), 0o644)
+	_, err = routeCLI(t, "route", "--index", tags, "--lexicon", lex, "--text", text, "--chain-template", sevenSteps)
+	if err == nil || errors.As(err, &ee) || !strings.Contains(err.Error(), "route: --chain-template "+sevenSteps+": plan: template") ||
+		!strings.Contains(err.Error(), "index out of range: 7 (on a sample valued chain of 1 step)") {
+		t.Errorf("template failing on every chain: %v", err)
+	}
+	// One failing on this plan only fails when it is rendered.
 	fails := filepath.Join(dir, "fails.tmpl")
-	os.WriteFile(fails, []byte("{{index .Steps 7}}"), 0o644)
+	os.WriteFile(fails, []byte(`{{if eq .From "vent-north"}}{{index .Steps 7}}{{end}}`), 0o644)
 	out, err = routeCLI(t, "route", "--index", tags, "--lexicon", lex, "--text", text, "--chain-template", fails)
 	if !errors.As(err, &ee) || ee.Code != 2 || !strings.Contains(out, "plan: template") {
 		t.Errorf("failing template: %v\n%s", err, out)
