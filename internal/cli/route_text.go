@@ -228,7 +228,7 @@ func (tp *textPlanner) explain(w io.Writer, r *router.Router, res textResult, o 
 	if n := len(res.td.Queries); n > 0 {
 		fmt.Fprintf(&b, "queries    %d decided, least pair support first", n)
 		if res.td.Dropped > 0 {
-			fmt.Fprintf(&b, "; %d more formed and not decided (--queries limit)", res.td.Dropped)
+			fmt.Fprintf(&b, "; %d more formed and not decided (at most %d are decided per text)", res.td.Dropped, router.DefaultMaxTextQueries)
 		}
 		b.WriteString("\n")
 	}

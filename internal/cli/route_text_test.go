@@ -9,6 +9,7 @@ import (
 	"testing"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/router"
 )
 
 // presenceSource is a presence-only greenhouse: tags observed together.
@@ -215,5 +216,23 @@ func TestRouteTextTemplates(t *testing.T) {
 	}
 	if _, err := routeCLI(t, "route", "--index", tags, "--from", "vent-north", "--to", "bed-4", "--chain-template", chain); err == nil {
 		t.Error("--chain-template without --lexicon accepted")
+	}
+}
+
+// TestRouteTextDroppedNamesTheLimit: the count of queries formed but not
+// decided names the limit; it pointed at a "--queries limit", and
+// --queries is the batch file flag, which sets no limit.
+func TestRouteTextDroppedNamesTheLimit(t *testing.T) {
+	t.Parallel()
+	var res textResult
+	res.td.Queries = make([]router.TextQuery, router.DefaultMaxTextQueries)
+	res.td.Dropped = 4
+	var b strings.Builder
+	if err := (&textPlanner{}).explain(&b, nil, res, routeOptions{text: "t"}); err != nil {
+		t.Fatal(err)
+	}
+	want := "queries    16 decided, least pair support first; 4 more formed and not decided (at most 16 are decided per text)\n"
+	if !strings.Contains(b.String(), want) {
+		t.Errorf("got\n%s\nwant %q", b.String(), want)
 	}
 }
