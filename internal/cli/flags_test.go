@@ -136,3 +136,15 @@ func TestRouteRefusesNegativeTimeout(t *testing.T) {
 		t.Errorf("--timeout -1s: %v", err)
 	}
 }
+
+// TestUnknownValueListedOnce: a single query with an unknown value lists
+// the entity's values once; it listed them twice ("it has values "closed",
+// "open"; "vent-north" has the values "closed" or "open"").
+func TestUnknownValueListedOnce(t *testing.T) {
+	t.Parallel()
+	idx := writeRouteIndex(t)
+	_, err := routeCLI(t, "route", "--index", idx, "--from", "vent-north", "--value", "ajar", "--to", "humidity-zone1")
+	if err == nil || strings.Count(err.Error(), `"closed"`) != 1 || !strings.Contains(err.Error(), `"vent-north" has the values "closed" or "open"`) {
+		t.Errorf("error %v, want the values listed once", err)
+	}
+}

@@ -275,8 +275,8 @@ func btoi(b bool) int {
 
 // decideSingle decides the query of `route --from/--value/--to`. An empty
 // value means "present" on a presence-only index (q.Value is set to it)
-// and is an error listing the entity's values on a valued one; an unknown
-// value's error lists them too.
+// and is an error listing the entity's values on a valued one (the caller
+// adds them to an unknown value's error, see decideErrorHint).
 func decideSingle(ctx context.Context, gd guardedDecider, q *routeQuery) (router.Decision, error) {
 	r := gd.r
 	if q.Value == "" {
@@ -285,11 +285,7 @@ func decideSingle(ctx context.Context, gd guardedDecider, q *routeQuery) (router
 		}
 		q.Value = graphidx.PresentValue
 	}
-	d, err := gd.decide(ctx, *q)
-	if errors.Is(err, router.ErrUnknownValue) {
-		err = fmt.Errorf("%w; it has %s", err, knownValues(r, q.From))
-	}
-	return d, err
+	return gd.decide(ctx, *q) // decideErrorHint lists the values of an unknown one
 }
 
 // textKeys are the keys of a text line of --queries.

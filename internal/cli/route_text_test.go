@@ -125,7 +125,7 @@ func TestRouteTextErrors(t *testing.T) {
 		t.Errorf("missing value: %v", err)
 	}
 	_, err = routeCLI(t, "route", "--index", valued, "--from", "vent-north", "--value", "ajar", "--to", "bed-tomato")
-	if !errors.As(err, &ee) || !strings.Contains(err.Error(), `it has values "closed", "open"`) {
+	if !errors.As(err, &ee) || !strings.Contains(err.Error(), `"vent-north" has the values "closed" or "open"`) {
 		t.Errorf("unknown value: %v", err)
 	}
 }
