@@ -83,6 +83,9 @@ func Build(ctx context.Context, r ContextReader, out string, opts ...BuildOption
 	if err := cfg.checkWrite(); err != nil {
 		return BuildSummary{}, err
 	}
+	if err := CheckOutput(out); err != nil {
+		return BuildSummary{}, err
+	}
 	c, sum, err := compileWith(ctx, r, cfg, start)
 	if err != nil {
 		return sum, err

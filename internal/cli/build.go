@@ -159,6 +159,9 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	case o.corpus == "":
 		return &ExitError{Code: 2, Err: errors.New(`required flag "corpus" not set (or give --from-counts)`)}
 	}
+	if err := graphidx.CheckOutput(o.out); err != nil {
+		return &ExitError{Code: 2, Err: fmt.Errorf("--out: %w", err)}
+	}
 	workersGiven := o.workers != 0
 	if o.workers, err = resolveWorkers(o.workers); err != nil {
 		return &ExitError{Code: 2, Err: err}

@@ -29,6 +29,7 @@ func TestBuildRefusesBadBudgets(t *testing.T) {
 		// Every counting goroutine reads every context: 100 000 of them
 		// ran for over ten minutes at 3.8 GB on a 100 000-context corpus.
 		{[]string{"build", "--corpus", csv, "--out", filepath.Join(dir, "c.idx"), "--workers", "100000"}, "--workers must be at most 256"},
+		{[]string{"build", "--corpus", csv, "--out", dir}, "--out: graphidx: output " + dir + " is a directory"},
 		{[]string{"build", "--corpus", csv, "--out", filepath.Join(dir, "d.idx"), "--workers", "200", "--mem-budget", "8MiB"},
 			"--workers 200 does not fit --mem-budget 8MiB: the builder's 4194304 bytes (after the corpus reader's half) hold at most 32"},
 	} {
