@@ -86,8 +86,8 @@ func WithWriteMemory(bytes int64) WriteOption {
 // crashed write and may be deleted.
 func TempPrefix(path string) string { return "." + filepath.Base(path) + ".tmp-" }
 
-// CheckOutput reports, before any work, an index path WriteFile could not
-// write: path names a directory or another file that is not regular, its
+// CheckOutput reports, before any work, a path WriteFile (or any writer
+// that renames a temporary file over its output) could not write: path names a directory or another file that is not regular, its
 // directory is missing or not a directory, or no file can be created there
 // (permissions, a read-only file system). It creates and removes one empty
 // file named like WriteFile's temporary file, so the stale-file cleanup of
@@ -99,7 +99,7 @@ func CheckOutput(path string) error {
 		if st.IsDir() {
 			kind = "a directory"
 		}
-		return fmt.Errorf("graphidx: output %s is %s; give the index file's path", path, kind)
+		return fmt.Errorf("graphidx: output %s is %s; give a file's path", path, kind)
 	}
 	dir := filepath.Dir(path)
 	st, err := os.Stat(dir)
