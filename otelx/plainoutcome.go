@@ -7,9 +7,10 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"slices"
 	"strconv"
 	"strings"
+
+	"github.com/hopwise/hopwise/internal/jsonkeys"
 )
 
 // plainOutcomeFields are the fields of a plain outcomes line, in the order
@@ -46,16 +47,11 @@ func parsePlainOutcome(b []byte) (plainOutcome, *fieldError) {
 	bad := func(field, format string, args ...any) (plainOutcome, *fieldError) {
 		return p, &fieldError{field, fmt.Sprintf(format, args...)}
 	}
-	syntax := func(err error) (plainOutcome, *fieldError) {
-		if errors.Is(err, io.EOF) || errors.Is(err, io.ErrUnexpectedEOF) {
-			return bad("", "truncated JSON object")
-		}
-		return bad("", "not valid JSON: %v", strings.TrimPrefix(err.Error(), "json: "))
-	}
+	syntax := func(err error) (plainOutcome, *fieldError) { return bad("", "%v", jsonkeys.Syntax(err)) }
 	if tok, err := dec.Token(); err != nil {
 		return syntax(err)
 	} else if tok != json.Delim('{') {
-		return bad("", "want a JSON object, got %s", jsonKind(tok))
+		return bad("", "want a JSON object, got %s", jsonkeys.Kind(tok))
 	}
 	var seen [len(plainOutcomeFields)]bool
 	for dec.More() {
@@ -64,13 +60,11 @@ func parsePlainOutcome(b []byte) (plainOutcome, *fieldError) {
 			return syntax(err)
 		}
 		key, _ := tok.(string)
-		i := slices.Index(plainOutcomeFields[:], key)
-		if i < 0 {
-			for _, f := range plainOutcomeFields {
-				if strings.EqualFold(key, f) {
-					return bad(strconv.Quote(key), "differs from %q only in case", f)
-				}
-			}
+		i, caseOf := jsonkeys.Match(key, plainOutcomeFields[:])
+		switch {
+		case caseOf != "":
+			return bad(strconv.Quote(key), "differs from %q only in case", caseOf)
+		case i < 0:
 			return bad(strconv.Quote(key), "unknown (want %s)", strings.Join(plainOutcomeFields[:], ", "))
 		}
 		if seen[i] {
@@ -87,14 +81,14 @@ func parsePlainOutcome(b []byte) (plainOutcome, *fieldError) {
 		if i == 0 {
 			s, ok := v.(string)
 			if !ok {
-				return bad(key, "want a string, got %s", jsonKind(v))
+				return bad(key, "want a string, got %s", jsonkeys.Kind(v))
 			}
 			p.Key = &s
 			continue
 		}
 		n, ok := v.(json.Number)
 		if !ok {
-			return bad(key, "want a number, got %s", jsonKind(v))
+			return bad(key, "want a number, got %s", jsonkeys.Kind(v))
 		}
 		switch key {
 		case "input_tokens", "output_tokens":
@@ -128,24 +122,4 @@ func parsePlainOutcome(b []byte) (plainOutcome, *fieldError) {
 		return bad("", "trailing data after the object")
 	}
 	return p, nil
-}
-
-// jsonKind names the JSON kind of a decoder token, for errors.
-func jsonKind(tok json.Token) string {
-	switch v := tok.(type) {
-	case string:
-		return "a string"
-	case json.Number, float64:
-		return "a number"
-	case bool:
-		return "a boolean"
-	case nil:
-		return "null"
-	case json.Delim:
-		if v == '[' {
-			return "an array"
-		}
-		return "an object"
-	}
-	return "something else"
 }

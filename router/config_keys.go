@@ -9,6 +9,8 @@ import (
 	"reflect"
 	"strconv"
 	"strings"
+
+	"github.com/hopwise/hopwise/internal/jsonkeys"
 )
 
 // checkConfigJSON checks a config document before it is decoded: one JSON
@@ -26,9 +28,9 @@ func checkConfigJSON(b []byte) error {
 	case err == io.EOF:
 		return errors.New("empty file, want a JSON object")
 	case err != nil:
-		return jsonSyntax(err)
+		return jsonkeys.Syntax(err)
 	case tok != json.Delim('{'):
-		return fmt.Errorf("want a JSON object, got %s", tokenKind(tok))
+		return fmt.Errorf("want a JSON object, got %s", jsonkeys.Kind(tok))
 	}
 	return checkObject(dec, reflect.TypeFor[Config](), "")
 }
@@ -37,26 +39,24 @@ func checkConfigJSON(b []byte) error {
 // the JSON fields of struct t; prefix is the object's path with a dot.
 func checkObject(dec *json.Decoder, t reflect.Type, prefix string) error {
 	fields := map[string]reflect.Type{}
+	var names []string
 	for i := range t.NumField() {
 		f := t.Field(i)
 		if tag, _, _ := strings.Cut(f.Tag.Get("json"), ","); tag != "" && tag != "-" {
 			fields[tag] = f.Type
+			names = append(names, tag)
 		}
 	}
 	seen := map[string]bool{}
 	for dec.More() {
 		tok, err := dec.Token()
 		if err != nil {
-			return jsonSyntax(err)
+			return jsonkeys.Syntax(err)
 		}
 		key, _ := tok.(string)
-		ft, known := fields[key]
-		if !known {
-			for name := range fields {
-				if strings.EqualFold(key, name) {
-					return fmt.Errorf("field %q differs from %q only in case", prefix+key, name)
-				}
-			}
+		ft := fields[key]
+		if _, caseOf := jsonkeys.Match(key, names); caseOf != "" {
+			return fmt.Errorf("field %q differs from %q only in case", prefix+key, caseOf)
 		}
 		if seen[key] {
 			return fmt.Errorf("field %q appears twice", prefix+key)
@@ -68,7 +68,7 @@ func checkObject(dec *json.Decoder, t reflect.Type, prefix string) error {
 	}
 	_, err := dec.Token() // '}'
 	if err != nil {
-		return jsonSyntax(err)
+		return jsonkeys.Syntax(err)
 	}
 	return nil
 }
@@ -78,7 +78,7 @@ func checkObject(dec *json.Decoder, t reflect.Type, prefix string) error {
 func checkValue(dec *json.Decoder, t reflect.Type, name string) error {
 	tok, err := dec.Token()
 	if err != nil {
-		return jsonSyntax(err)
+		return jsonkeys.Syntax(err)
 	}
 	if d, ok := tok.(json.Delim); ok {
 		switch {
@@ -92,11 +92,11 @@ func checkValue(dec *json.Decoder, t reflect.Type, name string) error {
 			}
 			_, err := dec.Token() // ']'
 			if err != nil {
-				return jsonSyntax(err)
+				return jsonkeys.Syntax(err)
 			}
 			return nil
 		case t != nil:
-			return fmt.Errorf("field %q: want %s, got %s", name, kindWant(t), tokenKind(tok))
+			return fmt.Errorf("field %q: want %s, got %s", name, kindWant(t), jsonkeys.Kind(tok))
 		}
 		return skipValue(dec) // an unknown field's object or array
 	}
@@ -135,7 +135,7 @@ func checkValue(dec *json.Decoder, t reflect.Type, name string) error {
 	default:
 		return nil // a kind this walk does not know: the decoder checks it
 	}
-	return fmt.Errorf("field %q: want %s, got %s", name, kindWant(t), tokenKind(tok))
+	return fmt.Errorf("field %q: want %s, got %s", name, kindWant(t), jsonkeys.Kind(tok))
 }
 
 // skipValue skips the rest of an object or array whose opening delimiter
@@ -144,7 +144,7 @@ func skipValue(dec *json.Decoder) error {
 	for depth := 1; depth > 0; {
 		tok, err := dec.Token()
 		if err != nil {
-			return jsonSyntax(err)
+			return jsonkeys.Syntax(err)
 		}
 		switch tok {
 		case json.Delim('{'), json.Delim('['):
@@ -154,14 +154,6 @@ func skipValue(dec *json.Decoder) error {
 		}
 	}
 	return nil
-}
-
-// jsonSyntax words a decoder error for people.
-func jsonSyntax(err error) error {
-	if errors.Is(err, io.EOF) || errors.Is(err, io.ErrUnexpectedEOF) {
-		return errors.New("truncated JSON object")
-	}
-	return fmt.Errorf("not valid JSON: %s", strings.TrimPrefix(err.Error(), "json: "))
 }
 
 // kindWant names what a field of type t takes.
@@ -181,24 +173,4 @@ func kindWant(t reflect.Type) string {
 		return "an object"
 	}
 	return "a value of another kind"
-}
-
-// tokenKind names the JSON kind of a decoder token.
-func tokenKind(tok json.Token) string {
-	switch v := tok.(type) {
-	case string:
-		return "a string"
-	case json.Number:
-		return "the number " + string(v)
-	case bool:
-		return "a boolean"
-	case nil:
-		return "null"
-	case json.Delim:
-		if v == '[' {
-			return "an array"
-		}
-		return "an object"
-	}
-	return "something else"
 }
