@@ -114,6 +114,10 @@ func (tp *textPlanner) decideUnguarded(ctx context.Context, r *router.Router, te
 	var res textResult
 	td, err := r.DecideText(ctx, tp.lex, text, router.WithTextKey(key))
 	res.td = td
+	if errors.Is(err, router.ErrNoEvidence) && tp.lex.Stats().ValuedForms == 0 {
+		err = fmt.Errorf("%w; the lexicon has no form that states a value (a third column, e.g. %s), so on this valued index no text can give evidence",
+			err, valuedFormExample(r, td.Mentions))
+	}
 	if err != nil {
 		return res, err
 	}
@@ -130,6 +134,17 @@ func (tp *textPlanner) decideUnguarded(ctx context.Context, r *router.Router, te
 		res.texts = append(res.texts, s)
 	}
 	return res, nil
+}
+
+// valuedFormExample is a lexicon line stating a value, for the first
+// mentioned entity with a value in the index, or a generic line.
+func valuedFormExample(r *router.Router, ms []graphidx.Mention) string {
+	for _, m := range ms {
+		if vs, err := r.EntityValues(m.Entity); err == nil && len(vs) > 0 {
+			return strconv.Quote(m.Surface + " is " + vs[0] + "<TAB>" + m.Entity + "<TAB>" + vs[0])
+		}
+	}
+	return `"surface form<TAB>entity id<TAB>value"`
 }
 
 func (tp *textPlanner) toJSON(id *string, text string, res textResult, m router.ErrorMeasure, err error) textLineJSON {

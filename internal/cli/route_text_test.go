@@ -236,3 +236,17 @@ func TestRouteTextDroppedNamesTheLimit(t *testing.T) {
 		t.Errorf("got\n%s\nwant %q", b.String(), want)
 	}
 }
+
+// TestRouteTextNoValuedForms: on a valued index, a lexicon without a
+// single form that states a value (no third column) can never give a text
+// evidence; the error says so and how to fix it, where it only said "no
+// mention states a value".
+func TestRouteTextNoValuedForms(t *testing.T) {
+	t.Parallel()
+	valued, _, lex := writeTextFixtures(t)
+	out, err := routeCLI(t, "route", "--index", valued, "--lexicon", lex, "--text", "The north vent is open. What about the tomato bed?")
+	want := "the lexicon has no form that states a value (a third column, e.g. \"north vent is closed<TAB>vent-north<TAB>closed\"), so on this valued index no text can give evidence"
+	if err == nil || !strings.Contains(err.Error(), want) || !strings.Contains(out, want) {
+		t.Errorf("error %v\n%s\nwant %q", err, out, want)
+	}
+}
