@@ -77,6 +77,9 @@ func Build(ctx context.Context, r ContextReader, out string, opts ...BuildOption
 	if err := cfg.checkWrite(); err != nil {
 		return BuildSummary{}, err
 	}
+	if err := CheckOutput(out); err != nil {
+		return BuildSummary{}, err
+	}
 	c, sum, err := compileWith(ctx, r, cfg, start)
 	if err != nil {
 		return sum, err
@@ -251,7 +254,7 @@ func Compile(ctx context.Context, r ContextReader, opts ...BuildOption) (*Compil
 }
 
 func newBuildConfig(opts []BuildOption) buildConfig {
-	cfg := buildConfig{workers: runtime.GOMAXPROCS(0), memBudget: DefaultMemBudget, minSupport: 1,
+	cfg := buildConfig{workers: min(runtime.GOMAXPROCS(0), MaxWorkers), memBudget: DefaultMemBudget, minSupport: 1,
 		progressTick: 200 * time.Millisecond, fanIn: 256, maxCtxEnts: DefaultMaxContextEntities,
 		minValid: DefaultMinValidShare}
 	for _, o := range opts {
@@ -259,6 +262,7 @@ func newBuildConfig(opts []BuildOption) buildConfig {
 			o.applyBuild(&cfg)
 		}
 	}
+	cfg.checkWorkers()
 	return cfg
 }
 
@@ -444,7 +448,7 @@ const fixedOverhead = 4 << 20
 // collector's headroom and the runtime.
 func (b *buildRun) tableLimit() int64 {
 	free := b.cfg.memBudget - b.cfg.memBudget/8 - fixedOverhead - b.dict.bytes.Load()
-	return max(free/int64(b.cfg.workers), 64<<10)
+	return max(free/int64(b.cfg.workers), minTableBytes)
 }
 
 // canGrow reports whether a table of the given bytes may double: growing

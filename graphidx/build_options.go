@@ -18,6 +18,18 @@ const DefaultMemBudget = 512 << 20
 // buffers, minimum tables) dominate.
 const MinMemBudget = 1 << 20
 
+// MaxWorkers is the most counting goroutines Build and Compile accept
+// (WithWorkers). Every counting goroutine reads every context (it counts
+// the pairs of its own entity shard) and holds a pair table of at least
+// minTableBytes, so time and memory grow with the count whatever the
+// corpus: 100,000 goroutines took a 100,000-context build from 0.7 s to
+// more than ten minutes and 3.8 GB.
+const MaxWorkers = 256
+
+// minTableBytes is the smallest pair table a counting goroutine keeps,
+// whatever the budget leaves it.
+const minTableBytes = 64 << 10
+
 // BuildOption configures Build and Compile.
 type BuildOption interface{ applyBuild(*buildConfig) }
 
@@ -30,6 +42,7 @@ type SharedOption interface {
 
 type buildConfig struct {
 	workers      int
+	workersSet   bool // WithWorkers was given (else workers is the default)
 	memBudget    int64
 	tempDir      string
 	minSupport   uint64
@@ -62,16 +75,43 @@ type buildOptionFunc func(*buildConfig)
 
 func (f buildOptionFunc) applyBuild(c *buildConfig) { f(c) }
 
-// WithWorkers sets the number of counting goroutines (≥ 1; default
-// GOMAXPROCS). A value < 1 is an ErrBadBuildOption.
+// WithWorkers sets the number of counting goroutines (1 to MaxWorkers;
+// default GOMAXPROCS, at most MaxWorkers and at most what the memory budget
+// holds). A value outside [1, MaxWorkers], or more goroutines than half the
+// memory budget holds at minTableBytes each, is an ErrBadBuildOption.
 func WithWorkers(n int) BuildOption {
 	return buildOptionFunc(func(c *buildConfig) {
-		if n < 1 {
+		switch {
+		case n < 1:
 			c.fail("WithWorkers(%d): want at least 1 counting goroutine", n)
 			return
+		case n > MaxWorkers:
+			c.fail("WithWorkers(%d): want at most MaxWorkers = %d (every counting goroutine reads every context and holds a table of at least %d KiB)",
+				n, MaxWorkers, minTableBytes>>10)
+			return
 		}
-		c.workers = n
+		c.workers, c.workersSet = n, true
 	})
+}
+
+// MaxWorkersFor is the most counting goroutines Build and Compile accept
+// with a memory budget of budget bytes: at most MaxWorkers, and as many as
+// half the budget holds at the smallest table each (64 KiB), at least 1.
+// O(1).
+func MaxWorkersFor(budget int64) int { return int(min(max(budget/2/minTableBytes, 1), MaxWorkers)) }
+
+// checkWorkers fits the worker count to the budget once every option is
+// applied: a default count is lowered, an explicit one is an error.
+func (c *buildConfig) checkWorkers() {
+	most := MaxWorkersFor(c.memBudget)
+	switch {
+	case c.workers <= most:
+	case c.workersSet:
+		c.fail("WithWorkers(%d) with a memory budget of %d bytes: each counting goroutine holds a table of at least %d KiB, so the budget holds at most %d of them in its half",
+			c.workers, c.memBudget, minTableBytes>>10, most)
+	default:
+		c.workers = most
+	}
 }
 
 // WithMinSupport drops pairs observed together in fewer than n contexts.

@@ -29,6 +29,10 @@ var (
 	// checksummed content violates a structural invariant (offsets not
 	// monotone, neighbour ids out of range or unsorted, K above MaxValues...).
 	ErrCorrupt = errors.New("graphidx: corrupt index")
+	// ErrNotFile means the path names no regular file: a directory, a
+	// named pipe, a device or a socket, which cannot be mapped (and a named
+	// pipe would block Open until some process writes to it).
+	ErrNotFile = errors.New("graphidx: not a regular file")
 	// ErrClosed is returned by Verify after Close.
 	ErrClosed = errors.New("graphidx: index is closed")
 	// ErrInvalidSource is returned by WriteFile when the Source breaks its
@@ -37,8 +41,8 @@ var (
 )
 
 // CorruptionError reports a file that cannot be used as a locality index.
-// Err is one of ErrBadMagic, ErrVersion, ErrChecksum, ErrSectionTable and
-// ErrCorrupt.
+// Err is one of ErrBadMagic, ErrVersion, ErrChecksum, ErrSectionTable,
+// ErrCorrupt and ErrNotFile.
 type CorruptionError struct {
 	Path   string // file path ("" when not known)
 	Err    error  // the sentinel
@@ -61,13 +65,13 @@ func (e *CorruptionError) Unwrap() error { return e.Err }
 
 // IsCorruption reports whether err (or an error it wraps) says that an index
 // file is damaged or not an index: any of ErrBadMagic, ErrVersion,
-// ErrChecksum, ErrSectionTable or ErrCorrupt.
+// ErrChecksum, ErrSectionTable, ErrCorrupt or ErrNotFile.
 func IsCorruption(err error) bool {
 	var ce *CorruptionError
 	if errors.As(err, &ce) {
 		return true
 	}
-	for _, s := range []error{ErrBadMagic, ErrVersion, ErrChecksum, ErrSectionTable, ErrCorrupt} {
+	for _, s := range []error{ErrBadMagic, ErrVersion, ErrChecksum, ErrSectionTable, ErrCorrupt, ErrNotFile} {
 		if errors.Is(err, s) {
 			return true
 		}

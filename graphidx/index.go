@@ -126,6 +126,10 @@ func Open(path string, opts ...OpenOption) (*Index, error) {
 			o.applyOpen(&cfg)
 		}
 	}
+	// A named pipe would block the open until a writer comes: look first.
+	if st, err := os.Stat(path); err == nil && !st.Mode().IsRegular() {
+		return nil, notFile(path, st.Mode())
+	}
 	f, err := os.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("graphidx: open: %w", err)
@@ -134,6 +138,9 @@ func Open(path string, opts ...OpenOption) (*Index, error) {
 	st, err := f.Stat()
 	if err != nil {
 		return nil, fmt.Errorf("graphidx: stat %s: %w", path, err)
+	}
+	if !st.Mode().IsRegular() {
+		return nil, notFile(path, st.Mode())
 	}
 	size := st.Size()
 	if size > math.MaxInt || size < 0 {
@@ -983,4 +990,20 @@ func (v *view) pairBatch(a, b []EntityID, out []PairStats, ok []bool) {
 			out[i], ok[i] = newStoredPairStats(a[i], b[i], ka, kb, t, a[i] > b[i]), true
 		}
 	}
+}
+
+// notFile is the ErrNotFile error for path of the given mode.
+func notFile(path string, m os.FileMode) error {
+	kind := "not a regular file"
+	switch {
+	case m.IsDir():
+		kind = "a directory"
+	case m&os.ModeNamedPipe != 0:
+		kind = "a named pipe"
+	case m&os.ModeDevice != 0:
+		kind = "a device"
+	case m&os.ModeSocket != 0:
+		kind = "a socket"
+	}
+	return &CorruptionError{Path: path, Err: ErrNotFile, Detail: kind + "; an index is a regular file written by hopwise build"}
 }

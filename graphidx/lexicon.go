@@ -164,7 +164,8 @@ func LoadLexicon(path string) (*Lexicon, error) {
 //	surface form<TAB>entity id
 //	surface form<TAB>entity id<TAB>value
 //
-// Blank lines and lines starting with '#' are ignored. Every field is
+// Blank lines and lines starting with '#' are ignored, and so is a UTF-8
+// byte-order mark at the start of the file. Every field is
 // trimmed of surrounding spaces and must be non-empty valid UTF-8 of at most
 // MaxNameBytes. Surface forms are case-folded (unicode.ToLower per rune).
 // Several forms may name one entity. A form with a value states that value
@@ -217,6 +218,9 @@ func parseLexiconTags(r io.Reader, name string, perRune bool, tagMask uint32) (*
 		}
 		if lr.TooLong {
 			return nil, le("", ReasonLineTooLong, "longer than 1 MiB")
+		}
+		if lr.Line == 1 {
+			line = trimBOM(line)
 		}
 		t := bytes.TrimSpace(line)
 		if len(t) == 0 || t[0] == '#' {
@@ -580,3 +584,9 @@ func (l *Lexicon) finish() {
 	}
 	s.MemBytes = mem + l.ents.memBytes() + l.values.memBytes()
 }
+
+// trimBOM drops a UTF-8 byte-order mark from the start of a file's first
+// line: editors and spreadsheet exports on some systems write one, and it
+// is no part of the first name (RFC 8259 §8.1 lets a JSON parser ignore
+// it). O(1).
+func trimBOM(line []byte) []byte { return bytes.TrimPrefix(line, []byte("\xef\xbb\xbf")) }

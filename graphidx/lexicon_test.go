@@ -31,13 +31,34 @@ func TestLexiconErrors(t *testing.T) {
 		{"a\tx\t\xff\n", "lex.tsv:1: value: bad-utf8"},
 		{"a\t" + strings.Repeat("e", MaxNameBytes+1) + "\n", "lex.tsv:1: entity: name-too-long"},
 		{"# only comments\n\n", "lex.tsv:2: empty-lexicon: no surface form lines"},
-		{"", "lex.tsv:0: empty-lexicon"},
+		{"", "lex.tsv: empty-lexicon: no surface form lines"}, // no line 0
+		{"\xef\xbb\xbf\n", "lex.tsv:1: empty-lexicon"},
 	} {
 		_, err := ParseLexicon(strings.NewReader(c.in), "lex.tsv")
 		var le *LineError
 		if err == nil || !strings.HasPrefix(err.Error(), c.want) || !errors.As(err, &le) {
 			t.Errorf("%q: got %v, want a *LineError with prefix %q", c.in, err, c.want)
 		}
+	}
+}
+
+// TestLexiconByteOrderMark: a UTF-8 byte-order mark at the start of the
+// file (editors and spreadsheets on some systems write one) is not part of
+// the first surface form. It used to be kept, so the first form silently
+// never matched. Elsewhere U+FEFF stays a character of its field.
+func TestLexiconByteOrderMark(t *testing.T) {
+	t.Parallel()
+	l := mustLexicon(t, "\xef\xbb\xbfbed 8 probe dry\tbed-8/probe\treads-dry\nleaf wilt\tbed-7/leaf-wilt\n")
+	ms, err := l.Link("bed 8 probe dry; leaf wilt?")
+	if err != nil || len(ms) != 2 || ms[0].Entity != "bed-8/probe" || ms[0].Value != "reads-dry" {
+		t.Errorf("Link after a BOM: %+v, %v; want the first form found", ms, err)
+	}
+	if got := l.DisplayName("bed-8/probe"); got != "bed 8 probe dry" {
+		t.Errorf("display name %q", got)
+	}
+	l = mustLexicon(t, "a\tx\n\xef\xbb\xbfb\ty\n")
+	if ms, _ := l.Link("b"); len(ms) != 0 {
+		t.Errorf("a BOM on line 2 is part of the form, got %+v", ms)
 	}
 }
 

@@ -114,7 +114,11 @@ type LineError struct {
 // escaped, so printing the error cannot drive a terminal.
 func (e *LineError) Error() string {
 	var b strings.Builder
-	fmt.Fprintf(&b, "%s:%d: ", EscapeControl(e.File), e.Line)
+	if e.Line > 0 {
+		fmt.Fprintf(&b, "%s:%d: ", EscapeControl(e.File), e.Line)
+	} else { // no line: an empty file, or a line parsed alone (JSONLLineParser)
+		fmt.Fprintf(&b, "%s: ", EscapeControl(e.File))
+	}
 	if e.Field != "" {
 		b.WriteString(EscapeControl(e.Field))
 		b.WriteString(": ")

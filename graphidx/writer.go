@@ -9,6 +9,7 @@ import (
 	"os"
 	"path/filepath"
 	"slices"
+	"strconv"
 	"strings"
 
 	"github.com/hopwise/hopwise/graphidx/internal/fileio"
@@ -84,6 +85,38 @@ func WithWriteMemory(bytes int64) WriteOption {
 // written by a live process (the pid follows the prefix) is a leftover of a
 // crashed write and may be deleted.
 func TempPrefix(path string) string { return "." + filepath.Base(path) + ".tmp-" }
+
+// CheckOutput reports, before any work, a path WriteFile (or any writer
+// that renames a temporary file over its output) could not write: path names a directory or another file that is not regular, its
+// directory is missing or not a directory, or no file can be created there
+// (permissions, a read-only file system). It creates and removes one empty
+// file named like WriteFile's temporary file, so the stale-file cleanup of
+// a later write removes it should this process die in between. Build calls
+// it before reading the corpus. O(1) file-system calls.
+func CheckOutput(path string) error {
+	if st, err := os.Stat(path); err == nil && !st.Mode().IsRegular() {
+		kind := "not a regular file"
+		if st.IsDir() {
+			kind = "a directory"
+		}
+		return fmt.Errorf("graphidx: output %s is %s; give a file's path", path, kind)
+	}
+	dir := filepath.Dir(path)
+	st, err := os.Stat(dir)
+	switch {
+	case err != nil:
+		return fmt.Errorf("graphidx: output directory: %w", err)
+	case !st.IsDir():
+		return fmt.Errorf("graphidx: output directory: %s: not a directory", dir)
+	}
+	f, err := os.CreateTemp(dir, TempPrefix(path)+strconv.Itoa(os.Getpid())+"-probe-*")
+	if err != nil {
+		return fmt.Errorf("graphidx: output directory: %w", err)
+	}
+	name := f.Name()
+	f.Close()
+	return os.Remove(name)
+}
 
 // WriteFile writes the content of src as a locality index file at path.
 //

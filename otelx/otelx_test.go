@@ -487,8 +487,8 @@ func TestReadOutcomesPlain(t *testing.T) {
 		{`{"key":"u","score":1.5}`, "out.jsonl:1: field score: 1.5 not in [0,1]"},
 		{`{"score":1}`, "field key: missing"},
 		{`{"key":"u","score":1,"input_tokens":-3}`, "field input_tokens: negative"},
-		{`{"key":"u","score":1,"input_tokens":"many"}`, "field input_tokens: cannot use JSON string"},
-		{`{"key":"u","score":1,"tokens":3}`, "unknown field"},
+		{`{"key":"u","score":1,"input_tokens":"many"}`, "field input_tokens: want a number, got a string"},
+		{`{"key":"u","score":1,"tokens":3}`, `field "tokens": unknown`},
 		{`{"key":"u","score":1`, "out.jsonl:1:"},
 	}
 	for _, b := range bad {

@@ -4,7 +4,6 @@ import (
 	"bufio"
 	"bytes"
 	"encoding/hex"
-	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
@@ -294,6 +293,11 @@ type attrReader struct {
 func newAttrReader(sp *tracepb.Span, src string) *attrReader {
 	a := &attrReader{src: src, span: hex.EncodeToString(sp.SpanId), m: make(map[string]*commonpb.AnyValue, len(sp.Attributes))}
 	for _, kv := range sp.Attributes {
+		if _, dup := a.m[kv.Key]; dup {
+			// Attribute keys are unique in the OpenTelemetry data model,
+			// so no SDK writes this; keeping either value would be a guess.
+			a.fail(kv.Key, "given twice in one span")
+		}
 		a.m[kv.Key] = kv.Value
 	}
 	return a
@@ -359,6 +363,17 @@ func (a *attrReader) float(key string, def float64, required bool) float64 {
 	}
 	a.fail(key, "want double, got %s", typeName(v))
 	return def
+}
+
+// finite is float for a figure tune and ab compute with: NaN and ±Inf are
+// errors (an infinite gain would pick the same mode under every threshold).
+func (a *attrReader) finite(key string, def float64) float64 {
+	f := a.float(key, def, false)
+	if math.IsNaN(f) || math.IsInf(f, 0) {
+		a.fail(key, "%v is not finite", f)
+		return def
+	}
+	return f
 }
 
 func (a *attrReader) int(key string) int64 {
@@ -460,8 +475,8 @@ func decisionFromSpan(sp *tracepb.Span, src string) (*DecisionRecord, error) {
 	if a.err == nil && d.Mode != "direct" && d.Mode != "chain" {
 		a.fail(KeyRouteMode, "unknown mode %q (want direct or chain)", d.Mode)
 	}
-	d.Gain = a.float(KeyRouteGain, 0, false)
-	d.Score = a.float(KeyRouteScore, d.Gain, false)
+	d.Gain = a.finite(KeyRouteGain, 0)
+	d.Score = a.finite(KeyRouteScore, d.Gain)
 	d.Reason = a.str(KeyRouteReason, false)
 	d.Truncated = a.bool(KeyRouteTruncated)
 	d.Explored = a.bool(KeyRouteExplored)
@@ -470,13 +485,13 @@ func decisionFromSpan(sp *tracepb.Span, src string) (*DecisionRecord, error) {
 	if a.has(KeyRoutePropensity) && !(d.Propensity >= 0 && d.Propensity <= 1) {
 		a.fail(KeyRoutePropensity, "%v not in [0,1]", d.Propensity)
 	}
-	d.DirectErr = a.float(KeyDirectErr, 0, false)
+	d.DirectErr = a.finite(KeyDirectErr, 0)
 	d.DirectSupport = a.uint(KeyDirectSupport)
 	// Compact spans carry the chain error only in chain mode; the hop
 	// count is what marks a chain as available.
 	if a.has(KeyChainErr) || a.has(KeyChainHops) {
 		d.HasChain = true
-		d.ChainErr = a.float(KeyChainErr, 0, false)
+		d.ChainErr = a.finite(KeyChainErr, 0)
 		d.ChainHops = int(a.int(KeyChainHops))
 		d.Bridges = a.strings(KeyChainBridges)
 		if d.ChainHops < 0 {
@@ -523,23 +538,17 @@ func outcomeFromSpan(sp *tracepb.Span, src string) (*OutcomeRecord, error) {
 	return o, nil
 }
 
-// plainOutcome is the schema of a plain outcomes JSONL line.
-type plainOutcome struct {
-	Key          *string  `json:"key"`
-	Score        *float64 `json:"score"`
-	InputTokens  *int64   `json:"input_tokens"`
-	OutputTokens *int64   `json:"output_tokens"`
-	LatencyMs    *float64 `json:"latency_ms"`
-}
-
 // ReadOutcomes reads a plain outcomes JSONL file, one object per line:
 //
 //	{"key":"unit-17","score":1,"input_tokens":812,"output_tokens":95,"latency_ms":640}
 //
-// key and score are required (score in [0,1]); tokens are integers ≥ 0 and
-// latency_ms ≥ 0, all optional. Unknown fields are rejected (they are
-// usually typos). Blank lines are skipped. Errors name the file, line and
-// field and wrap ErrBadRecord.
+// key and score are required (score in [0,1]); tokens are whole numbers in
+// [0, MaxTokens] and latency_ms is in [0, one week], all optional. Fields
+// are spelt exactly and given once: an unknown field (usually a typo), one
+// differing from a known one only in case, or a repeated one is an error,
+// since encoding/json would match case-insensitively and keep the last.
+// Blank lines are skipped. Errors name the file, line and field and wrap
+// ErrBadRecord.
 func ReadOutcomes(r io.Reader, name string) ([]OutcomeRecord, error) {
 	sc := bufio.NewScanner(r)
 	sc.Buffer(make([]byte, 0, 64<<10), 16<<20)
@@ -555,18 +564,12 @@ func ReadOutcomes(r io.Reader, name string) ([]OutcomeRecord, error) {
 		bad := func(field, format string, args ...any) error {
 			return fmt.Errorf("%w: %s: field %s: %s", ErrBadRecord, src, field, fmt.Sprintf(format, args...))
 		}
-		var p plainOutcome
-		dec := json.NewDecoder(bytes.NewReader(b))
-		dec.DisallowUnknownFields()
-		if err := dec.Decode(&p); err != nil {
-			var te *json.UnmarshalTypeError
-			if errors.As(err, &te) {
-				return nil, bad(te.Field, "cannot use JSON %s as %s", te.Value, te.Type)
+		p, fe := parsePlainOutcome(b)
+		if fe != nil {
+			if fe.field == "" {
+				return nil, fmt.Errorf("%w: %s: %s", ErrBadRecord, src, fe.msg)
 			}
-			return nil, fmt.Errorf("%w: %s: %v", ErrBadRecord, src, err)
-		}
-		if dec.More() {
-			return nil, fmt.Errorf("%w: %s: trailing data after the object", ErrBadRecord, src)
+			return nil, bad(fe.field, "%s", fe.msg)
 		}
 		switch {
 		case p.Key == nil || *p.Key == "":

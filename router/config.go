@@ -398,11 +398,24 @@ var renamedFields = map[string]string{
 	"fallback": "unknown_entity", // what to do with unknown endpoints
 }
 
-// ParseConfig reads a Config from r over DefaultConfig; unknown fields and
-// trailing data are errors. name labels errors (usually the file path).
+// ParseConfig reads a Config from r over DefaultConfig; unknown fields, a
+// field given twice or differing from a known one only in case (at any
+// level), a value of the wrong kind or out of its type's range, trailing
+// data and more than 1 MiB are errors naming the field. name labels errors
+// (usually the file path).
 func ParseConfig(r io.Reader, name string) (Config, error) {
+	b, err := io.ReadAll(io.LimitReader(r, maxConfigBytes+1))
+	if err != nil {
+		return Config{}, fmt.Errorf("%s: %w", name, err)
+	}
+	if len(b) > maxConfigBytes {
+		return Config{}, fmt.Errorf("%s: longer than %d bytes, which no config is", name, maxConfigBytes)
+	}
+	if err := checkConfigJSON(b); err != nil {
+		return Config{}, fmt.Errorf("%s: %w", name, err)
+	}
 	c := DefaultConfig()
-	dec := json.NewDecoder(r)
+	dec := json.NewDecoder(bytes.NewReader(b))
 	dec.DisallowUnknownFields()
 	if err := dec.Decode(&c); err != nil {
 		if old, ok := strings.CutPrefix(err.Error(), `json: unknown field "`); ok {
@@ -425,6 +438,10 @@ func ParseConfig(r io.Reader, name string) (Config, error) {
 	}
 	return c, nil
 }
+
+// maxConfigBytes bounds a config file: the largest real one is a few
+// hundred bytes.
+const maxConfigBytes = 1 << 20
 
 // LoadConfig reads and validates a Config file (see Config for the format).
 func LoadConfig(path string) (Config, error) {

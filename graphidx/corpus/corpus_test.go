@@ -386,3 +386,25 @@ func TestFormatTable(t *testing.T) {
 		t.Errorf("Open with an unknown format: %v", err)
 	}
 }
+
+// TestJSONLReaderByteOrderMark: a UTF-8 byte-order mark before the first
+// line is ignored (RFC 8259 §8.1 allows a parser to ignore it), as the CSV
+// reader does. The first context used to be skipped as bad-json with
+// "column 1: want a JSON object", which does not say what is wrong. A mark
+// on a later line is still a bad line.
+func TestJSONLReaderByteOrderMark(t *testing.T) {
+	t.Parallel()
+	in := "\xef\xbb\xbf" + `{"id":"c1","obs":{"a":"x","b":"y"}}` + "\n" + `{"id":"c2","obs":{"a":"x","b":"z"}}` + "\n" +
+		"\xef\xbb\xbf" + `{"id":"c3","obs":{"a":"x"}}` + "\n"
+	r := NewJSONLReader(strings.NewReader(in), "bom.jsonl")
+	got, err := readAll(t, r)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if want := []string{"c1:a=x,b=y", "c2:a=x,b=z"}; !slices.Equal(got, want) {
+		t.Errorf("got %q, want %q", got, want)
+	}
+	if st := r.Stats(); st.OK != 2 || st.Skipped[graphidx.ReasonBadJSON] != 1 || st.FirstBad[graphidx.ReasonBadJSON].Line != 3 {
+		t.Errorf("stats %+v", st)
+	}
+}

@@ -171,7 +171,7 @@ func (r *CSVReader) header() error {
 			return fmt.Errorf("%s: %w", r.name, err)
 		}
 		r.bl.stats.Lines++
-		line = bytes.TrimPrefix(line, []byte("\xef\xbb\xbf"))
+		line = trimBOM(line)
 		if isBlank(line) && !r.lr.tooLong {
 			continue
 		}

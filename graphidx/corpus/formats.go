@@ -2,6 +2,7 @@ package corpus
 
 import (
 	"bufio"
+	"bytes"
 	"compress/gzip"
 	"errors"
 	"fmt"
@@ -191,3 +192,9 @@ func (m *multiCloser) Close() error {
 	*m = nil
 	return errors.Join(errs...)
 }
+
+// trimBOM drops a UTF-8 byte-order mark from the start of a file's first
+// line (as the lexicon reader does): editors and spreadsheet exports on
+// some systems write one, and it is no part of the first name (RFC 8259
+// §8.1 lets a JSON parser ignore it). O(1).
+func trimBOM(line []byte) []byte { return bytes.TrimPrefix(line, []byte("\xef\xbb\xbf")) }

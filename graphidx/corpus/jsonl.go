@@ -101,6 +101,9 @@ func (r *JSONLReader) Next() (graphidx.Context, error) {
 			return graphidx.Context{}, fmt.Errorf("%s:%d: %w", r.name, r.lr.line+1, err)
 		}
 		r.bl.stats.Lines++
+		if r.lr.line == 1 {
+			line = trimBOM(line)
+		}
 		if r.lr.tooLong {
 			r.bl.stats.Records++
 			if e := r.bl.bad(&graphidx.LineError{File: r.name, Line: r.lr.line, Reason: graphidx.ReasonLineTooLong,

@@ -175,7 +175,11 @@ func parseAllocation(s string) (map[string]float64, error) {
 		if err != nil || !(v >= 0) || math.IsInf(v, 0) {
 			return nil, fmt.Errorf("--allocation: arm %q: weight %q is not a finite number ≥ 0", name, w)
 		}
-		out[strings.TrimSpace(name)] = v
+		name = strings.TrimSpace(name)
+		if _, dup := out[name]; dup {
+			return nil, fmt.Errorf("--allocation: arm %q given twice", name)
+		}
+		out[name] = v
 	}
 	if len(out) < 2 {
 		return nil, fmt.Errorf("--allocation: need at least two arms, got %q", s)

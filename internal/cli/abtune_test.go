@@ -517,6 +517,12 @@ func TestABTuneFlagErrors(t *testing.T) {
 		{[]string{"tune", "--traces", "x", "--confidence", "1.5"}, "confidence 1.5"},
 		{[]string{"tune", "--traces", "x", "--floor", "0"}, "propensity floor 0"},
 		{[]string{"tune", "--traces", "/nonexistent/t.jsonl"}, "no such file"},
+		// An arm given twice is named, not reported as "need at least two
+		// arms"; an --out that is a directory is refused before the
+		// traces are read (it failed at the final rename, with a
+		// temporary file created in the directory above).
+		{[]string{"ab", "--traces", "x", "--allocation", "routed=0.5,routed=0.5"}, `--allocation: arm "routed" given twice`},
+		{[]string{"tune", "--traces", "/nonexistent/t.jsonl", "--out", os.TempDir()}, "--out: graphidx: output " + os.TempDir() + " is a directory"},
 	}
 	for _, c := range cases {
 		root := NewRoot()

@@ -160,8 +160,15 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 	case o.corpus == "":
 		return &ExitError{Code: 2, Err: errors.New(`required flag "corpus" not set (or give --from-counts)`)}
 	}
+	if err := graphidx.CheckOutput(o.out); err != nil {
+		return &ExitError{Code: 2, Err: fmt.Errorf("--out: %w", err)}
+	}
+	workersGiven := o.workers != 0
 	if o.workers, err = resolveWorkers(o.workers); err != nil {
 		return &ExitError{Code: 2, Err: err}
+	}
+	if o.workers > graphidx.MaxWorkers {
+		return &ExitError{Code: 2, Err: fmt.Errorf("--workers must be at most %d, got %d (every counting goroutine reads every context and holds its own table)", graphidx.MaxWorkers, o.workers)}
 	}
 	if o.maxNeighbors < 0 {
 		return &ExitError{Code: 2, Err: fmt.Errorf("--max-neighbors must not be negative, got %d (0 means no limit)", o.maxNeighbors)}
@@ -197,7 +204,13 @@ func runBuild(cmd *cobra.Command, o buildOpts) error {
 		buildBudget -= o.lex.Stats().MemBytes
 	}
 	if buildBudget < graphidx.MinMemBudget {
-		return &ExitError{Code: 2, Err: fmt.Errorf("--mem-budget %s leaves %d bytes for the builder (after the CSV reader's half and the lexicon), want at least %d", o.memBudget, buildBudget, graphidx.MinMemBudget)}
+		return &ExitError{Code: 2, Err: fmt.Errorf("--mem-budget %s leaves %d bytes for the builder%s, want at least %d", o.memBudget, buildBudget, budgetShares(cf.GroupsInMemory, o.lex != nil), graphidx.MinMemBudget)}
+	}
+	if most := graphidx.MaxWorkersFor(buildBudget); o.workers > most {
+		if workersGiven {
+			return &ExitError{Code: 2, Err: fmt.Errorf("--workers %d does not fit --mem-budget %s: the builder's %d bytes%s hold at most %d counting goroutines (64 KiB of table each, in half the budget)", o.workers, o.memBudget, buildBudget, budgetShares(cf.GroupsInMemory, o.lex != nil), most)}
+		}
+		o.workers = most
 	}
 	r, closer, err := corpus.Open(o.corpus, format, o.lexicon, corpus.WithLexicon(o.lex),
 		graphidx.WithPolicy(policy), graphidx.WithMemBudget(readBudget), graphidx.WithTempDir(o.tempDir),
@@ -413,4 +426,18 @@ func parseByteSize(s string) (int64, error) {
 		return 0, fmt.Errorf("size %q out of range", s)
 	}
 	return int64(b), nil
+}
+
+// budgetShares says what the build budget is left after: the half a corpus
+// reader that groups rows in memory takes, and the lexicon.
+func budgetShares(readerHalf, lexicon bool) string {
+	switch {
+	case readerHalf && lexicon:
+		return " (after the corpus reader's half and the lexicon)"
+	case readerHalf:
+		return " (after the corpus reader's half)"
+	case lexicon:
+		return " (after the lexicon)"
+	}
+	return ""
 }

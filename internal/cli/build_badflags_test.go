@@ -11,7 +11,8 @@ import (
 // TestBuildRefusesBadBudgets: a negative --max-neighbors and a --mem-budget
 // that leaves the builder less than graphidx.MinMemBudget (a CSV corpus
 // gives half to the reader) exit 2 naming the flag, where the library used
-// to raise or ignore the value silently.
+// to raise or ignore the value silently; so do more counting goroutines
+// than graphidx.MaxWorkers or than the budget holds.
 func TestBuildRefusesBadBudgets(t *testing.T) {
 	t.Parallel()
 	dir := t.TempDir()
@@ -25,6 +26,12 @@ func TestBuildRefusesBadBudgets(t *testing.T) {
 	}{
 		{[]string{"build", "--corpus", csv, "--out", filepath.Join(dir, "a.idx"), "--mem-budget", "1MiB"}, "leaves 524288 bytes for the builder"},
 		{[]string{"build", "--corpus", csv, "--out", filepath.Join(dir, "b.idx"), "--max-neighbors", "-2"}, "--max-neighbors must not be negative"},
+		// Every counting goroutine reads every context: 100 000 of them
+		// ran for over ten minutes at 3.8 GB on a 100 000-context corpus.
+		{[]string{"build", "--corpus", csv, "--out", filepath.Join(dir, "c.idx"), "--workers", "100000"}, "--workers must be at most 256"},
+		{[]string{"build", "--corpus", csv, "--out", dir}, "--out: graphidx: output " + dir + " is a directory"},
+		{[]string{"build", "--corpus", csv, "--out", filepath.Join(dir, "d.idx"), "--workers", "200", "--mem-budget", "8MiB"},
+			"--workers 200 does not fit --mem-budget 8MiB: the builder's 4194304 bytes (after the corpus reader's half) hold at most 32"},
 	} {
 		_, err := runCLI(t, tc.args...)
 		var ee *ExitError

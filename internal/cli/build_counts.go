@@ -35,6 +35,9 @@ func addBuildCountsFlags(cmd *cobra.Command, o *buildCountsOpts) {
 // runBuildFromCounts compiles the count shards in dir with the pruning
 // options and writes the index to out.
 func runBuildFromCounts(cmd *cobra.Command, dir, out string, minSupport uint64, maxNeighbors int, wopts ...graphidx.WriteOption) error {
+	if err := graphidx.CheckOutput(out); err != nil {
+		return &ExitError{Code: 2, Err: fmt.Errorf("--out: %w", err)}
+	}
 	src, sum, err := counts.CompileCounts(cmd.Context(), dir,
 		graphidx.WithMinSupport(minSupport), graphidx.WithMaxNeighbors(maxNeighbors))
 	if err != nil {

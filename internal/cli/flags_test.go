@@ -125,3 +125,26 @@ func TestErrorsSayWhatToDo(t *testing.T) {
 		}
 	}
 }
+
+// TestRouteRefusesNegativeTimeout: --timeout below zero is an error naming
+// the flag; it used to be taken silently as "no deadline", the meaning of
+// 0, so a typo removed the deadline a gateway test meant to set.
+func TestRouteRefusesNegativeTimeout(t *testing.T) {
+	t.Parallel()
+	_, err := routeCLI(t, "route", "--index", "x.hwx", "--from", "a", "--value", "v", "--to", "b", "--timeout", "-1s")
+	if err == nil || !strings.Contains(err.Error(), "route: --timeout must not be negative, got -1s (0 means no deadline)") {
+		t.Errorf("--timeout -1s: %v", err)
+	}
+}
+
+// TestUnknownValueListedOnce: a single query with an unknown value lists
+// the entity's values once; it listed them twice ("it has values "closed",
+// "open"; "vent-north" has the values "closed" or "open"").
+func TestUnknownValueListedOnce(t *testing.T) {
+	t.Parallel()
+	idx := writeRouteIndex(t)
+	_, err := routeCLI(t, "route", "--index", idx, "--from", "vent-north", "--value", "ajar", "--to", "humidity-zone1")
+	if err == nil || strings.Count(err.Error(), `"closed"`) != 1 || !strings.Contains(err.Error(), `"vent-north" has the values "closed" or "open"`) {
+		t.Errorf("error %v, want the values listed once", err)
+	}
+}

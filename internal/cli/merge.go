@@ -87,6 +87,11 @@ func runMerge(cmd *cobra.Command, o mergeOpts, inputs []string) error {
 			return &ExitError{Code: 2, Err: err}
 		}
 	}
+	if o.out != "" {
+		if err := graphidx.CheckOutput(o.out); err != nil {
+			return &ExitError{Code: 2, Err: fmt.Errorf("--out: %w", err)}
+		}
+	}
 	for _, in := range inputs {
 		if err := checkCountsInput(in); err != nil {
 			return err

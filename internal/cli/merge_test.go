@@ -158,6 +158,10 @@ func TestMergeRefuses(t *testing.T) {
 		{[]string{"merge", "--out", filepath.Join(dir, "o.idx"), good, copied}, "same count set"},
 		{[]string{"merge", "--counts-out", filepath.Join(dir, "c"), good, copied}, "same count set"},
 		{[]string{"merge", "--out", filepath.Join(dir, "o.idx"), "--max-neighbors", "-1", good}, "--max-neighbors must not be negative"},
+		// An output that cannot be written is refused before the merge.
+		{[]string{"merge", "--out", dir, good}, "--out: graphidx: output " + dir + " is a directory"},
+		{[]string{"merge", "--out", filepath.Join(dir, "none", "o.idx"), good}, "--out: graphidx: output directory"},
+		{[]string{"build", "--from-counts", good, "--out", dir}, "--out: graphidx: output " + dir + " is a directory"},
 	} {
 		_, err := runCLI(t, tc.args...)
 		var ee *ExitError

@@ -227,6 +227,9 @@ func runRoute(cmd *cobra.Command, o routeOptions) error {
 	if o.maxLineBytes < 64 {
 		return fmt.Errorf("route: --max-line-bytes must be ≥ 64, got %d", o.maxLineBytes)
 	}
+	if o.timeout < 0 {
+		return fmt.Errorf("route: --timeout must not be negative, got %v (0 means no deadline)", o.timeout)
+	}
 	cfg, err := routeConfig(cmd, o)
 	if err != nil {
 		return err

@@ -44,11 +44,15 @@ func newTextPlanner(lexicon, chainTmpl, directTmpl string, cfg router.Config) (*
 		if err != nil {
 			return nil, fmt.Errorf("route: %s: %w", t.flag, err)
 		}
+		// Checked alone first, so the error names the flag and the file.
+		if _, err := plan.NewRenderer(t.opt(string(b))); err != nil {
+			return nil, fmt.Errorf("route: %s %s: %w", t.flag, t.path, err)
+		}
 		opts = append(opts, t.opt(string(b)))
 	}
 	rend, err := plan.NewRenderer(opts...)
 	if err != nil {
-		return nil, fmt.Errorf("route: %w (templates: %q, %q)", err, chainTmpl, directTmpl)
+		return nil, fmt.Errorf("route: %w", err)
 	}
 	return &textPlanner{lex: lex, rend: rend, cfg: cfg}, nil
 }
@@ -110,6 +114,10 @@ func (tp *textPlanner) decideUnguarded(ctx context.Context, r *router.Router, te
 	var res textResult
 	td, err := r.DecideText(ctx, tp.lex, text, router.WithTextKey(key))
 	res.td = td
+	if errors.Is(err, router.ErrNoEvidence) && tp.lex.Stats().ValuedForms == 0 {
+		err = fmt.Errorf("%w; the lexicon has no form that states a value (a third column, e.g. %s), so on this valued index no text can give evidence",
+			err, valuedFormExample(r, td.Mentions))
+	}
 	if err != nil {
 		return res, err
 	}
@@ -126,6 +134,17 @@ func (tp *textPlanner) decideUnguarded(ctx context.Context, r *router.Router, te
 		res.texts = append(res.texts, s)
 	}
 	return res, nil
+}
+
+// valuedFormExample is a lexicon line stating a value, for the first
+// mentioned entity with a value in the index, or a generic line.
+func valuedFormExample(r *router.Router, ms []graphidx.Mention) string {
+	for _, m := range ms {
+		if vs, err := r.EntityValues(m.Entity); err == nil && len(vs) > 0 {
+			return strconv.Quote(m.Surface + " is " + vs[0] + "<TAB>" + m.Entity + "<TAB>" + vs[0])
+		}
+	}
+	return `"surface form<TAB>entity id<TAB>value"`
 }
 
 func (tp *textPlanner) toJSON(id *string, text string, res textResult, m router.ErrorMeasure, err error) textLineJSON {
@@ -224,7 +243,7 @@ func (tp *textPlanner) explain(w io.Writer, r *router.Router, res textResult, o 
 	if n := len(res.td.Queries); n > 0 {
 		fmt.Fprintf(&b, "queries    %d decided, least pair support first", n)
 		if res.td.Dropped > 0 {
-			fmt.Fprintf(&b, "; %d more formed and not decided (--queries limit)", res.td.Dropped)
+			fmt.Fprintf(&b, "; %d more formed and not decided (at most %d are decided per text)", res.td.Dropped, router.DefaultMaxTextQueries)
 		}
 		b.WriteString("\n")
 	}

@@ -9,6 +9,7 @@ import (
 	"testing"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/router"
 )
 
 // presenceSource is a presence-only greenhouse: tags observed together.
@@ -198,13 +199,55 @@ func TestRouteTextTemplates(t *testing.T) {
 	if err == nil || errors.As(err, &ee) || !strings.Contains(err.Error(), "direct template") || !strings.Contains(err.Error(), "bad.tmpl") {
 		t.Errorf("unparsable template: %v", err)
 	}
+	// A template failing on every plan of a shape fails at load, naming
+	// the flag, the file and the shape.
+	sevenSteps := filepath.Join(dir, "seven.tmpl")
+	os.WriteFile(sevenSteps, []byte("{{index .Steps 7}}"), 0o644)
+	_, err = routeCLI(t, "route", "--index", tags, "--lexicon", lex, "--text", text, "--chain-template", sevenSteps)
+	if err == nil || errors.As(err, &ee) || !strings.Contains(err.Error(), "route: --chain-template "+sevenSteps+": plan: template") ||
+		!strings.Contains(err.Error(), "index out of range: 7 (on a sample valued chain of 1 step)") {
+		t.Errorf("template failing on every chain: %v", err)
+	}
+	// One failing on this plan only fails when it is rendered.
 	fails := filepath.Join(dir, "fails.tmpl")
-	os.WriteFile(fails, []byte("{{index .Steps 7}}"), 0o644)
+	os.WriteFile(fails, []byte(`{{if eq .From "vent-north"}}{{index .Steps 7}}{{end}}`), 0o644)
 	out, err = routeCLI(t, "route", "--index", tags, "--lexicon", lex, "--text", text, "--chain-template", fails)
 	if !errors.As(err, &ee) || ee.Code != 2 || !strings.Contains(out, "plan: template") {
 		t.Errorf("failing template: %v\n%s", err, out)
 	}
 	if _, err := routeCLI(t, "route", "--index", tags, "--from", "vent-north", "--to", "bed-4", "--chain-template", chain); err == nil {
 		t.Error("--chain-template without --lexicon accepted")
+	}
+}
+
+// TestRouteTextDroppedNamesTheLimit: the count of queries formed but not
+// decided names the limit; it pointed at a "--queries limit", and
+// --queries is the batch file flag, which sets no limit.
+func TestRouteTextDroppedNamesTheLimit(t *testing.T) {
+	t.Parallel()
+	var res textResult
+	res.td.Queries = make([]router.TextQuery, router.DefaultMaxTextQueries)
+	res.td.Dropped = 4
+	var b strings.Builder
+	if err := (&textPlanner{}).explain(&b, nil, res, routeOptions{text: "t"}); err != nil {
+		t.Fatal(err)
+	}
+	want := "queries    16 decided, least pair support first; 4 more formed and not decided (at most 16 are decided per text)\n"
+	if !strings.Contains(b.String(), want) {
+		t.Errorf("got\n%s\nwant %q", b.String(), want)
+	}
+}
+
+// TestRouteTextNoValuedForms: on a valued index, a lexicon without a
+// single form that states a value (no third column) can never give a text
+// evidence; the error says so and how to fix it, where it only said "no
+// mention states a value".
+func TestRouteTextNoValuedForms(t *testing.T) {
+	t.Parallel()
+	valued, _, lex := writeTextFixtures(t)
+	out, err := routeCLI(t, "route", "--index", valued, "--lexicon", lex, "--text", "The north vent is open. What about the tomato bed?")
+	want := "the lexicon has no form that states a value (a third column, e.g. \"north vent is closed<TAB>vent-north<TAB>closed\"), so on this valued index no text can give evidence"
+	if err == nil || !strings.Contains(err.Error(), want) || !strings.Contains(out, want) {
+		t.Errorf("error %v\n%s\nwant %q", err, out, want)
 	}
 }

@@ -4,6 +4,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"github.com/hopwise/hopwise/graphidx"
 	"io"
 	"math"
 	"slices"
@@ -183,6 +184,11 @@ func runTune(o tuneOptions, args []string) (*tuner.Report, error) {
 			return nil, err
 		}
 		o.Taus = ts
+	}
+	if o.out != "" {
+		if err := graphidx.CheckOutput(o.out); err != nil {
+			return nil, fmt.Errorf("--out: %w", err)
+		}
 	}
 	set, err := loadTraces(o.traces, args, o.outcomes)
 	if err != nil {

@@ -52,6 +52,7 @@ func FuzzParseConfig(f *testing.F) {
 	f.Add([]byte(`{"exploration":0.5000001}`))
 	f.Add([]byte(`{"cache_size":67108865}`))
 	f.Add([]byte("\xef\xbb\xbf{}"))
+	f.Add([]byte(`{"beam":3,"Beam":4,"arms":[{"arm":"routed","weight":1,"weight":0}]}`))
 	dir := f.TempDir()
 	var seq sync.Mutex
 	n := 0

@@ -183,9 +183,17 @@ func TestRendererTemplates(t *testing.T) {
 			p: chain, want: "[c=hi] 0.01"},
 		{name: "unparsable chain", opts: []plan.RenderOption{plan.WithChainTemplate("{{range .Steps}")}, newErr: true},
 		{name: "unparsable direct", opts: []plan.RenderOption{plan.WithDirectTemplate("{{nosuchfunc .To}}")}, newErr: true},
-		{name: "missing field", opts: []plan.RenderOption{plan.WithDirectTemplate("{{.Nope}}")}, p: direct, wantExec: true},
-		{name: "index out of range", opts: []plan.RenderOption{plan.WithChainTemplate("{{index .Steps 5}}")}, p: chain, wantExec: true},
-		{name: "bad argument type", opts: []plan.RenderOption{plan.WithDirectTemplate("{{inc .To}}")}, p: direct, wantExec: true},
+		// A template that fails on the shapes every router produces fails
+		// in NewRenderer, once, instead of on every plan of that shape
+		// (route used to print the error for each chained query, and a
+		// gateway found out at its first chain decision).
+		{name: "missing field", opts: []plan.RenderOption{plan.WithDirectTemplate("{{.Nope}}")}, newErr: true},
+		{name: "missing field in chain", opts: []plan.RenderOption{plan.WithChainTemplate("{{range .Steps}}{{.Nmae}}{{end}}")}, newErr: true},
+		{name: "index out of range", opts: []plan.RenderOption{plan.WithChainTemplate("{{index .Steps 5}}")}, newErr: true},
+		{name: "bad argument type", opts: []plan.RenderOption{plan.WithDirectTemplate("{{inc .To}}")}, newErr: true},
+		{name: "second step on a one-step chain", opts: []plan.RenderOption{plan.WithChainTemplate("{{(index .Steps 1).Name}}")}, newErr: true},
+		// A failure no sample shape reaches still fails in Execute.
+		{name: "failure on one plan only", opts: []plan.RenderOption{plan.WithDirectTemplate(`{{if eq .From "a"}}{{index .Steps 0}}{{end}}`)}, p: direct, wantExec: true},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

@@ -7,6 +7,8 @@ import (
 	"io"
 	"strconv"
 	"text/template"
+
+	"github.com/hopwise/hopwise/router"
 )
 
 // ErrTemplate wraps every template error: a template that does not parse
@@ -70,9 +72,13 @@ func WithDirectTemplate(text string) RenderOption {
 	return func(c *renderConfig) { c.direct = text }
 }
 
-// NewRenderer parses the two templates (the defaults unless replaced). A
-// template that does not parse is an error wrapping ErrTemplate that names
-// it ("chain" or "direct").
+// NewRenderer parses the two templates (the defaults unless replaced) and
+// renders each on sample plans of every shape a router produces (chains of
+// one and three steps, direct plans, valued and presence-only, a fallback
+// without an estimate). A template that does not parse, or fails on a
+// sample, is an error wrapping ErrTemplate that names it ("chain" or
+// "direct") and the sample's shape. A template can still fail in Render on
+// a plan no sample has (say, one branching on an entity's name).
 func NewRenderer(opts ...RenderOption) (*Renderer, error) {
 	c := renderConfig{chain: DefaultChainTemplate, direct: DefaultDirectTemplate}
 	for _, o := range opts {
@@ -88,7 +94,62 @@ func NewRenderer(opts ...RenderOption) (*Renderer, error) {
 	if err != nil {
 		return nil, err
 	}
-	return &Renderer{chain: chain, direct: direct}, nil
+	r := &Renderer{chain: chain, direct: direct}
+	var b bytes.Buffer
+	for _, p := range samplePlans() {
+		b.Reset()
+		if err := r.render(&b, p); err != nil {
+			return nil, fmt.Errorf("%w (on a sample %s)", err, sampleShape(p))
+		}
+	}
+	return r, nil
+}
+
+// samplePlans are plans of every shape a router gives a template: chains
+// of one and three steps and direct plans, valued and presence-only, and
+// a fallback decision without an estimate. NewRenderer renders each, so a
+// template that cannot render one of them (a misspelt field, an index past
+// the steps, a function given the wrong type) fails once, at construction,
+// instead of on every such plan.
+func samplePlans() []Plan {
+	step := func(e, name, v string, p float64) Step {
+		return Step{Entity: e, Name: name, Value: v, Prob: p, HasValue: v != ""}
+	}
+	valued := Plan{Mode: router.ModeChain, From: "bed-2/moisture-probe", FromName: "bed 2 moisture probe", Value: "reads-dry", HasValue: true,
+		To: "bed-3/leaf-wilt", ToName: "bed 3 leaf wilt",
+		Steps:       []Step{step("bed-2/soil-moisture", "bed 2 soil moisture", "dry", 0.9)},
+		Answer:      step("bed-3/leaf-wilt", "bed 3 leaf wilt", "wilted", 0.6),
+		ErrorFigure: router.NewErrorFigure(router.MeasureSqErrorSum, 0.01), Support: 120, Reason: router.ReasonGainAbove}
+	long := valued
+	long.Steps = []Step{valued.Steps[0], step("pump-1", "pump 1", "idle", 0.7), step("bed-3/soil-moisture", "bed 3 soil moisture", "dry", 0.55)}
+	long.Truncated = true
+	presence := Plan{Mode: router.ModeChain, From: "vent-a", FromName: "vent a", To: "bed-3", ToName: "bed 3",
+		Steps: []Step{step("pump-2", "pump 2", "", 0)}, Answer: step("bed-3", "bed 3", "", 0),
+		ErrorFigure: router.NewErrorFigure(router.MeasureSupportProxy, 0.3), Support: 52, Reason: router.ReasonGainAbove}
+	direct, directPresence := valued, presence
+	direct.Mode, direct.Steps, direct.Reason = router.ModeDirect, nil, router.ReasonGainBelow
+	directPresence.Mode, directPresence.Steps, directPresence.Reason = router.ModeDirect, nil, router.ReasonGainBelow
+	fallback := direct
+	fallback.Answer, fallback.Reason, fallback.Support = step("bed-3/leaf-wilt", "bed 3 leaf wilt", "", 0), router.ReasonUnknownEntityFallback, 0
+	return []Plan{valued, long, presence, direct, directPresence, fallback}
+}
+
+// sampleShape describes a sample plan for an error message.
+func sampleShape(p Plan) string {
+	kind := "valued"
+	if !p.HasValue {
+		kind = "presence-only"
+	}
+	if Template(p) == "chain" {
+		if len(p.Steps) == 1 {
+			return kind + " chain of 1 step"
+		}
+		return fmt.Sprintf("%s chain of %d steps", kind, len(p.Steps))
+	}
+	if p.Reason == router.ReasonUnknownEntityFallback {
+		return "fallback direct plan without an estimate"
+	}
+	return kind + " direct plan"
 }
 
 func parse(name, text string) (*template.Template, error) {
