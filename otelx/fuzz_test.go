@@ -28,11 +28,11 @@ func FuzzReadTraces(f *testing.F) {
 
 // FuzzReadOutcomes: plain outcome lines read or fail with ErrBadRecord.
 func FuzzReadOutcomes(f *testing.F) {
-	f.Add([]byte(`{"key":"bed-4","score":0.5,"input_tokens":10,"output_tokens":2,"latency_ms":3.5}`))
-	f.Add([]byte(`{"key":"bed-4","score":2}`))
-	f.Add([]byte(`{"key":"","score":1}` + "\n" + `[]`))
-	f.Add([]byte(`{"key":"u","Score":0,"score":1}`))
-	f.Add([]byte(`{"key":"u","input_tokens":1e3,"score":null}`))
+	f.Add([]byte(`{"unit":"bed-4","score":0.5,"input_tokens":10,"output_tokens":2,"latency_ms":3.5}`))
+	f.Add([]byte(`{"unit":"bed-4","score":2}`))
+	f.Add([]byte(`{"unit":"","score":1}` + "\n" + `[]`))
+	f.Add([]byte(`{"unit":"u","Score":0,"score":1}`))
+	f.Add([]byte(`{"unit":"u","input_tokens":1e3,"score":null}`))
 	f.Fuzz(func(t *testing.T, data []byte) {
 		out, err := ReadOutcomes(bytes.NewReader(data), "o.jsonl")
 		if err != nil {

@@ -472,9 +472,9 @@ func TestReadTracesBadRecords(t *testing.T) {
 
 func TestReadOutcomesPlain(t *testing.T) {
 	t.Parallel()
-	input := `{"key":"unit-1","score":1,"input_tokens":812,"output_tokens":95,"latency_ms":640.5}
+	input := `{"unit":"unit-1","score":1,"input_tokens":812,"output_tokens":95,"latency_ms":640.5}
 
-{"key":"unit-2","score":0}
+{"unit":"unit-2","score":0}
 `
 	got, err := ReadOutcomes(strings.NewReader(input), "out.jsonl")
 	if err != nil {
@@ -484,12 +484,12 @@ func TestReadOutcomesPlain(t *testing.T) {
 		t.Errorf("%+v", got)
 	}
 	bad := []struct{ line, want string }{
-		{`{"key":"u","score":1.5}`, "out.jsonl:1: field score: 1.5 not in [0,1]"},
-		{`{"score":1}`, "field key: missing"},
-		{`{"key":"u","score":1,"input_tokens":-3}`, "field input_tokens: negative"},
-		{`{"key":"u","score":1,"input_tokens":"many"}`, "field input_tokens: want a number, got a string"},
-		{`{"key":"u","score":1,"tokens":3}`, `field "tokens": unknown`},
-		{`{"key":"u","score":1`, "out.jsonl:1:"},
+		{`{"unit":"u","score":1.5}`, "out.jsonl:1: field score: 1.5 not in [0,1]"},
+		{`{"score":1}`, "field unit: missing"},
+		{`{"unit":"u","score":1,"input_tokens":-3}`, "field input_tokens: negative"},
+		{`{"unit":"u","score":1,"input_tokens":"many"}`, "field input_tokens: want a number, got a string"},
+		{`{"unit":"u","score":1,"tokens":3}`, `field "tokens": unknown`},
+		{`{"unit":"u","score":1`, "out.jsonl:1:"},
 	}
 	for _, b := range bad {
 		_, err := ReadOutcomes(strings.NewReader(b.line), "out.jsonl")

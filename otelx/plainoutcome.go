@@ -15,7 +15,7 @@ import (
 
 // plainOutcomeFields are the fields of a plain outcomes line, in the order
 // of plainOutcome's fields.
-var plainOutcomeFields = [...]string{"key", "score", "input_tokens", "output_tokens", "latency_ms"}
+var plainOutcomeFields = [...]string{"unit", "score", "input_tokens", "output_tokens", "latency_ms"}
 
 // plainOutcome is one decoded plain outcomes line; a nil field was absent
 // (or null).

@@ -540,9 +540,9 @@ func outcomeFromSpan(sp *tracepb.Span, src string) (*OutcomeRecord, error) {
 
 // ReadOutcomes reads a plain outcomes JSONL file, one object per line:
 //
-//	{"key":"unit-17","score":1,"input_tokens":812,"output_tokens":95,"latency_ms":640}
+//	{"unit":"unit-17","score":1,"input_tokens":812,"output_tokens":95,"latency_ms":640}
 //
-// key and score are required (score in [0,1]); tokens are whole numbers in
+// unit and score are required (score in [0,1]); tokens are whole numbers in
 // [0, MaxTokens] and latency_ms is in [0, one week], all optional. Fields
 // are spelt exactly and given once: an unknown field (usually a typo), one
 // differing from a known one only in case, or a repeated one is an error,
@@ -573,7 +573,7 @@ func ReadOutcomes(r io.Reader, name string) ([]OutcomeRecord, error) {
 		}
 		switch {
 		case p.Key == nil || *p.Key == "":
-			return nil, bad("key", "missing or empty")
+			return nil, bad("unit", "missing or empty")
 		case p.Score == nil:
 			return nil, bad("score", "missing")
 		case !(*p.Score >= 0 && *p.Score <= 1):

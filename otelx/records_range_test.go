@@ -28,10 +28,10 @@ func decisionSpanLine(traceID, spanID, key string) string {
 func TestOutcomeFieldRanges(t *testing.T) {
 	t.Parallel()
 	plain := []struct{ line, want string }{
-		{`{"key":"u","score":1,"input_tokens":9000000000000000000,"output_tokens":9000000000000000000}`, "out.jsonl:1: field input_tokens: 9000000000000000000 above"},
-		{`{"key":"u","score":1,"output_tokens":9000000000000000000}`, "out.jsonl:1: field output_tokens: 9000000000000000000 above"},
-		{`{"key":"u","score":1,"latency_ms":1e300}`, "out.jsonl:1: field latency_ms: 1e+300 above"},
-		{`{"key":"u","score":1,"input_tokens":1e3}`, "field input_tokens"},
+		{`{"unit":"u","score":1,"input_tokens":9000000000000000000,"output_tokens":9000000000000000000}`, "out.jsonl:1: field input_tokens: 9000000000000000000 above"},
+		{`{"unit":"u","score":1,"output_tokens":9000000000000000000}`, "out.jsonl:1: field output_tokens: 9000000000000000000 above"},
+		{`{"unit":"u","score":1,"latency_ms":1e300}`, "out.jsonl:1: field latency_ms: 1e+300 above"},
+		{`{"unit":"u","score":1,"input_tokens":1e3}`, "field input_tokens"},
 	}
 	for _, c := range plain {
 		_, err := ReadOutcomes(strings.NewReader(c.line), "out.jsonl")
@@ -54,7 +54,7 @@ func TestOutcomeFieldRanges(t *testing.T) {
 		}
 	}
 	// The largest accepted counts still add up without overflow.
-	o, err := ReadOutcomes(strings.NewReader(fmt.Sprintf(`{"key":"u","score":1,"input_tokens":%d,"output_tokens":%d}`, int64(1)<<40, int64(1)<<40)), "out.jsonl")
+	o, err := ReadOutcomes(strings.NewReader(fmt.Sprintf(`{"unit":"u","score":1,"input_tokens":%d,"output_tokens":%d}`, int64(1)<<40, int64(1)<<40)), "out.jsonl")
 	if err != nil || o[0].Tokens() != 2<<40 {
 		t.Errorf("largest counts: %v %v", o, err)
 	}

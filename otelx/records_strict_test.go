@@ -8,22 +8,22 @@ import (
 
 // TestOutcomeKeysMatchExactly: in a plain outcomes line each field is
 // spelt exactly and given once. encoding/json matched "Score" to score and
-// kept the last of two, so {"key":"u","Score":0,"score":1} was read as a
-// success and {"key":"u","score":0,"score":1} too: a poisoned statistic
+// kept the last of two, so {"unit":"u","Score":0,"score":1} was read as a
+// success and {"unit":"u","score":0,"score":1} too: a poisoned statistic
 // from one hostile or garbled line. Numbers of the wrong kind are named
 // without Go type names.
 func TestOutcomeKeysMatchExactly(t *testing.T) {
 	t.Parallel()
 	for _, c := range []struct{ line, want string }{
-		{`{"key":"u","score":0,"score":1}`, `out.jsonl:1: field score: appears twice`},
-		{`{"key":"u","Score":0,"score":1}`, `out.jsonl:1: field "Score": differs from "score" only in case`},
-		{`{"KEY":"u","score":1}`, `out.jsonl:1: field "KEY": differs from "key" only in case`},
-		{`{"key":"u","key":"v","score":1}`, `out.jsonl:1: field key: appears twice`},
-		{`{"key":"u","score":1,"unit":"v"}`, `out.jsonl:1: field "unit": unknown (want key, score, input_tokens, output_tokens, latency_ms)`},
-		{`{"key":"u","score":1,"input_tokens":1e3}`, `out.jsonl:1: field input_tokens: want a whole number of tokens, got 1e3`},
-		{`{"key":"u","score":"1"}`, `out.jsonl:1: field score: want a number, got a string`},
-		{`{"key":1,"score":1}`, `out.jsonl:1: field key: want a string, got a number`},
-		{`{"key":"u","score":1`, `out.jsonl:1: truncated JSON object`},
+		{`{"unit":"u","score":0,"score":1}`, `out.jsonl:1: field score: appears twice`},
+		{`{"unit":"u","Score":0,"score":1}`, `out.jsonl:1: field "Score": differs from "score" only in case`},
+		{`{"UNIT":"u","score":1}`, `out.jsonl:1: field "UNIT": differs from "unit" only in case`},
+		{`{"unit":"u","unit":"v","score":1}`, `out.jsonl:1: field unit: appears twice`},
+		{`{"unit":"u","score":1,"key":"v"}`, `out.jsonl:1: field "key": unknown (want unit, score, input_tokens, output_tokens, latency_ms)`},
+		{`{"unit":"u","score":1,"input_tokens":1e3}`, `out.jsonl:1: field input_tokens: want a whole number of tokens, got 1e3`},
+		{`{"unit":"u","score":"1"}`, `out.jsonl:1: field score: want a number, got a string`},
+		{`{"unit":1,"score":1}`, `out.jsonl:1: field unit: want a string, got a number`},
+		{`{"unit":"u","score":1`, `out.jsonl:1: truncated JSON object`},
 		{`["key","u"]`, `out.jsonl:1: want a JSON object`},
 	} {
 		_, err := ReadOutcomes(strings.NewReader(c.line), "out.jsonl")
@@ -31,7 +31,7 @@ func TestOutcomeKeysMatchExactly(t *testing.T) {
 			t.Errorf("%s: err = %v, want %q", c.line, err, c.want)
 		}
 	}
-	o, err := ReadOutcomes(strings.NewReader(`{"latency_ms":5,"output_tokens":2,"input_tokens":3,"score":0.5,"key":"u"}`), "out.jsonl")
+	o, err := ReadOutcomes(strings.NewReader(`{"latency_ms":5,"output_tokens":2,"input_tokens":3,"score":0.5,"unit":"u"}`), "out.jsonl")
 	if err != nil || len(o) != 1 || o[0].Key != "u" || o[0].Score != 0.5 || o[0].Tokens() != 5 || o[0].LatencyMs != 5 {
 		t.Errorf("fields in any order: %+v, %v", o, err)
 	}

@@ -42,8 +42,8 @@ func newABCmd() *cobra.Command {
 once), joins each decision with its outcome by unit key (outcome spans in the
 traces, or a plain outcomes file given with --outcomes, one JSON object per
 line:
-  {"key":"unit-17","score":1,"input_tokens":812,"output_tokens":95,"latency_ms":640}
-with key and score in [0,1] required, token counts integers in [0, 2^40] and
+  {"unit":"unit-17","score":1,"input_tokens":812,"output_tokens":95,"latency_ms":640}
+with unit and score in [0,1] required, token counts integers in [0, 2^40] and
 latency_ms in [0, one week]), and compares the arms.
 
 Per arm: decisions n, distinct units, mean outcome score, the success
@@ -110,7 +110,7 @@ bootstrap resamples when they repeat. Exit status: 0 on success, 1 on any error.
 func traceFlags(cmd *cobra.Command, traces *[]string, outcomes *string) {
 	f := cmd.Flags()
 	f.StringSliceVar(traces, "traces", nil, "OTLP JSON Lines trace file (repeat the flag, or give the files as arguments)")
-	f.StringVar(outcomes, "outcomes", "", "plain outcomes JSONL file joined by key (replaces outcome spans)")
+	f.StringVar(outcomes, "outcomes", "", "plain outcomes JSONL file joined by unit (replaces outcome spans)")
 }
 
 // loadTraces reads the --traces files and the trace files given as

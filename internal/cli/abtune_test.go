@@ -365,7 +365,7 @@ func TestEndToEndTuneAndAB(t *testing.T) {
 	}
 	var plain bytes.Buffer
 	for _, o := range lg.Outcomes {
-		fmt.Fprintf(&plain, `{"key":%q,"score":%g,"input_tokens":%d,"output_tokens":%d,"latency_ms":%g}`+"\n", o.Key, o.Score, o.InputTokens, o.OutputTokens, o.LatencyMs)
+		fmt.Fprintf(&plain, `{"unit":%q,"score":%g,"input_tokens":%d,"output_tokens":%d,"latency_ms":%g}`+"\n", o.Key, o.Score, o.InputTokens, o.OutputTokens, o.LatencyMs)
 	}
 	outPath := filepath.Join(dir, "outcomes.jsonl")
 	if err := os.WriteFile(outPath, plain.Bytes(), 0o644); err != nil {
@@ -555,7 +555,7 @@ func TestABRepeatedUnitsResampleUnits(t *testing.T) {
 					`"attributes":[{"key":"hopwise.query.key","value":{"stringValue":"%s"}},{"key":"hopwise.route.mode","value":{"stringValue":"direct"}},`+
 					`{"key":"hopwise.ab.arm","value":{"stringValue":"%s"}},{"key":"hopwise.route.propensity","value":{"doubleValue":1}}]}]}]}]}`+"\n",
 					n+1, n+1, 1700000000000000000+int64(d), key, arm)
-				fmt.Fprintf(&outs, `{"key":%q,"score":%g}`+"\n", key, score)
+				fmt.Fprintf(&outs, `{"unit":%q,"score":%g}`+"\n", key, score)
 				n++
 			}
 		}

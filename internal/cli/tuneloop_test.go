@@ -365,7 +365,7 @@ func TestABRejectsTokenOverflow(t *testing.T) {
 		if i == 1 {
 			tokens = "9000000000000000000"
 		}
-		fmt.Fprintf(&outs, `{"key":"pump-%d","score":1,"input_tokens":%s,"output_tokens":%s}`+"\n", i, tokens, tokens)
+		fmt.Fprintf(&outs, `{"unit":"pump-%d","score":1,"input_tokens":%s,"output_tokens":%s}`+"\n", i, tokens, tokens)
 	}
 	traces, outcomes := filepath.Join(dir, "t.jsonl"), filepath.Join(dir, "o.jsonl")
 	if err := os.WriteFile(traces, []byte(spans.String()), 0o644); err != nil {

@@ -34,7 +34,7 @@ func TestLoad(t *testing.T) {
 	withOut, bare, outs := filepath.Join(dir, "a.jsonl"), filepath.Join(dir, "b.jsonl"), filepath.Join(dir, "o.jsonl")
 	spans(t, withOut, 4, true)
 	spans(t, bare, 4, false)
-	if err := os.WriteFile(outs, []byte(`{"key":"bed-1","score":0.5,"input_tokens":10}`+"\n"), 0o644); err != nil {
+	if err := os.WriteFile(outs, []byte(`{"unit":"bed-1","score":0.5,"input_tokens":10}`+"\n"), 0o644); err != nil {
 		t.Fatal(err)
 	}
 	s, err := Load([]string{withOut, withOut}, "")
