@@ -49,7 +49,13 @@ type Config struct {
 	CostPerToken float64
 	Reps         int
 	Workers      int // concurrent clients (default 4)
-	Out          io.Writer
+	// DecideTimeout bounds each routing decision (default 2 s). An
+	// experiment wants every request decided: a decision that times out is
+	// answered directly and logged as a failed span, one unit fewer in its
+	// arm; the gateway's serving default (gw.DefaultDecideTimeout) is far
+	// shorter, and a loaded machine can miss it now and then.
+	DecideTimeout time.Duration
+	Out           io.Writer
 }
 
 func (c *Config) defaults() error {
@@ -79,6 +85,9 @@ func (c *Config) defaults() error {
 	}
 	if c.Workers == 0 {
 		c.Workers = 4
+	}
+	if c.DecideTimeout == 0 {
+		c.DecideTimeout = 2 * time.Second
 	}
 	if c.Out == nil {
 		c.Out = io.Discard
@@ -205,6 +214,7 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 	srv, err := gw.New(gw.Config{
 		IndexPath:      res.Files.Index,
 		Upstream:       up.URL + "/v1",
+		DecideTimeout:  cfg.DecideTimeout,
 		Telemetry:      tel,
 		TracerProvider: tp,
 		RouterOptions:  []router.Option{router.WithArms(arms...), router.WithExploration(cfg.Exploration, "abtest")},
