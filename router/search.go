@@ -227,9 +227,10 @@ type scratch struct {
 	jms            []jmatch
 	jchunk         []jmatch // the matches of one join chunk, popped from jms
 	rcount         []int
-	f2ends, t2ends idIndex  // layer-2 end nodes met by both sides (f2ends), of T2
-	joinA, joinB   []uint64 // b<<32 | position in f2 (A), t2 (B)
+	f2ends, t2ends idIndex // layer-2 end nodes met by both sides (f2ends), of T2
+	joinA, joinB   []jpair // F2 ⋈ T1 (A), F1 ⋈ T2 (B)
 	joinC          []match3
+	endF, endT     []bool // first-layer nodes whose end edge is queued (joinAll)
 	keysF, keysT   []uint64
 	rks            [][]graphidx.EntityID // ranked lists of the layer-1 nodes
 	heap           []cand
@@ -475,6 +476,61 @@ func (sc *scratch) prune(lower float64, m int) bool {
 // partial path) but left out of the k candidates. Whether that is a cut is
 // decided after the exact scores (candidatesCut).
 func (sc *scratch) drop(m int) { sc.dropped |= 1 << m }
+
+// oneChunk is the number of one-bridge hits whose second edges are
+// fetched in one batch (fetchSecond).
+const oneChunk = 16
+
+// fetchSecond fetches, in one batch, the second edges z → t of the hits
+// from position i on, up to oneChunk of them, except those whose first
+// edge s → z already lets the heap bound prune the chain (the bound only
+// tightens, so they are pruned when their turn comes; their first edges
+// were fetched before). It returns the position after the chunk. The
+// budget is charged by the phase as without it.
+func (sc *scratch) fetchSecond(i int) int {
+	end := min(len(sc.hits), i+oneChunk)
+	if !sc.beginPrefetch(sc.bud.left/lookupUnits + 1) {
+		return len(sc.hits)
+	}
+	for _, z := range sc.hits[i:end] {
+		if z == sc.s || z == sc.t {
+			continue
+		}
+		if c, ok := sc.peekCost(sc.s, z); ok && sc.prunable(c+sc.hb) {
+			continue
+		}
+		sc.want(z, sc.t)
+	}
+	sc.fetch()
+	return end
+}
+
+// peekCost returns the edge cost of the pair (a, b) when the memo holds
+// it, computing the cost if needed, without charging the budget (the phase
+// charges it when it uses the edge). O(1) expected plus one EdgeCost.
+func (sc *scratch) peekCost(a, b graphidx.EntityID) (float64, bool) {
+	if a > b {
+		a, b = b, a
+	}
+	if len(sc.memo.tab) == 0 {
+		return 0, false
+	}
+	i, found := sc.memo.find(uint64(a)<<32 | uint64(b))
+	if !found || !sc.memo.tab[i].ok {
+		return 0, false
+	}
+	e := &sc.memo.tab[i]
+	if e.cost != e.cost {
+		e.cost = sc.model.EdgeCost(e.ps)
+	}
+	return e.cost, true
+}
+
+// prunable reports whether a chain whose proxy cost is at least lower can
+// no longer enter the heap (as prune, without recording a drop). O(1).
+func (sc *scratch) prunable(lower float64) bool {
+	return len(sc.heap) == sc.st.maxCand && lower >= sc.heap[0].cost
+}
 
 // layer1 fills out with the first-layer beam of from: its B best-ranked
 // neighbours by support (other excluded), read from the support-ranked
@@ -727,16 +783,26 @@ func (sc *scratch) generate() searchResult {
 	held2 := sc.bud.limit(sc.bud.left / 2)
 	sc.intersect(g.Neighbors(s), g.Neighbors(t))
 	sc.bud.unlimit(held2)
+	// Every first edge s → z in one batch, with the second edges z → t of
+	// the first oneChunk hits; the other second edges a chunk at a time
+	// (fetchSecond), leaving out those the heap bound already prunes.
+	next := len(sc.hits)
 	if sc.beginPrefetch(sc.bud.left/lookupUnits + 1) {
-		for _, z := range sc.hits {
+		next = min(len(sc.hits), oneChunk)
+		for i, z := range sc.hits {
 			if z != s && z != t {
 				sc.want(s, z)
-				sc.want(z, t)
+				if i < next {
+					sc.want(z, t)
+				}
 			}
 		}
 		sc.fetch()
 	}
-	for _, z := range sc.hits {
+	for i, z := range sc.hits {
+		if i == next {
+			next = sc.fetchSecond(i)
+		}
 		if z == s || z == t {
 			continue
 		}
@@ -800,15 +866,15 @@ func (sc *scratch) generate() searchResult {
 	return sc.result(beamOK)
 }
 
-// matchJoins lists the matches of the joins, in the order a sort-merge
-// of the id-sorted beams meets them (the order the joins process them in,
-// which decides heap ties and pruning): F2 ⋈ T1 by ascending (b, position
-// in F2), F1 ⋈ T2 by ascending (b, position in T2), and, unless skip3,
-// F2 ⋈ T2 by ascending (b, position in F2, position in T2). The matches
-// are found by hashing the ids of one side (idIndex) and sorting only the
-// matches, a few dozen per decision, instead of sorting all four beams and
-// merging them (whose data-dependent branches mispredict about every
-// other step). O(B) expected plus O(M·log M) for M matches.
+// matchJoins lists the matches of the joins: F2 ⋈ T1 and F1 ⋈ T2 in layer
+// order, each with its key (b, position in F2 or T2), the order a
+// sort-merge of the id-sorted beams would meet them in, which joinAll uses
+// to break ties; and, unless skip3, F2 ⋈ T2 in ascending (b, position in
+// F2, position in T2). The matches are found by hashing the ids of one
+// side (idIndex) instead of sorting all four beams and merging them (whose
+// data-dependent branches mispredict about every other step); only the
+// three-bridge join sorts its few keys. O(B·f) expected plus O(M3·log M3)
+// for M3 three-bridge matches.
 func (sc *scratch) matchJoins(skip3 bool) {
 	f1, t1, f2, t2 := sc.f1, sc.t1, sc.f2, sc.t2
 	sc.joinA, sc.joinB, sc.joinC = sc.joinA[:0], sc.joinB[:0], sc.joinC[:0]
@@ -839,20 +905,18 @@ func (sc *scratch) matchJoins(skip3 bool) {
 		if fired(i) {
 			return
 		}
-		if _, ok := sc.t1ids.get(uint64(f2[i].b)); ok {
-			sc.joinA = append(sc.joinA, uint64(f2[i].b)<<32|uint64(i))
+		if yi, ok := sc.t1ids.get(uint64(f2[i].b)); ok {
+			sc.joinA = append(sc.joinA, jpair{key: uint64(f2[i].b)<<32 | uint64(i), end: yi})
 		}
 	}
-	slices.Sort(sc.joinA)
 	for i := range t2 {
 		if fired(i) {
 			return
 		}
-		if _, ok := sc.f1ids.get(uint64(t2[i].b)); ok {
-			sc.joinB = append(sc.joinB, uint64(t2[i].b)<<32|uint64(i))
+		if xi, ok := sc.f1ids.get(uint64(t2[i].b)); ok {
+			sc.joinB = append(sc.joinB, jpair{key: uint64(t2[i].b)<<32 | uint64(i), end: xi})
 		}
 	}
-	slices.Sort(sc.joinB)
 	if skip3 {
 		return
 	}
@@ -968,15 +1032,24 @@ func (sc *scratch) beam3(l []step2) rankCut {
 // match3 is a match of F2 ⋈ T2: positions in F2 and T2.
 type match3 struct{ f, t uint32 }
 
+// jpair is a match of F2 ⋈ T1 (or F1 ⋈ T2): key is b<<32 | the path's
+// position in F2 (T2), end the position of b in T1 (F1).
+type jpair struct {
+	key uint64
+	end int32
+}
+
 // jmatch is one join match (matchJoins) waiting to become a chain: kind
 // 0 is F2 ⋈ T1 (i in joinA), 1 is F1 ⋈ T2 (i in joinB), 2 is F2 ⋈ T2 (i
 // in joinC). lb is a lower bound of the chain's proxy cost: its two
 // first-layer edges (the end edges) plus β·m, the middle edges counted as
-// 0 (EdgeCost ≥ 0).
+// 0 (EdgeCost ≥ 0). ord breaks ties within a kind: the match's key (kinds
+// 0 and 1) or i (kind 2, whose matches are listed in key order).
 type jmatch struct {
 	lb   float64
-	kind uint8
+	ord  uint64
 	i    int32
+	kind uint8
 }
 
 // joinChunk is the number of matches whose middle edges are fetched in one
@@ -990,17 +1063,29 @@ const joinChunk = 8
 //
 //  1. the end edges (s → first-layer node, first-layer node → t) of every
 //     match are fetched in one batch and costed (they are shared by many
-//     matches, a few dozen per decision);
-//  2. the matches are sorted by lb = end costs + β·m (ties by kind, then
-//     position: deterministic);
-//  3. in that order, chunks of joinChunk matches not yet prunable have
-//     their middle edges fetched in one batch and are pushed; the first
-//     match whose lb reaches the heap's largest cost ends the pass, since
-//     every later one is at least as costly (those are recorded as dropped
-//     chains, see candidatesCut).
+//     matches: at most |F1| + |T1| distinct edges, whatever M);
+//  2. every match gets lb = end costs + β·m; when the heap already holds k
+//     candidates, a match whose lb reaches the heap's largest cost is
+//     dropped at once (that cost only falls as the heap fills with cheaper
+//     chains, so the match would be pruned wherever it came; it is
+//     recorded as a dropped chain, see candidatesCut), which on a dense
+//     index is most of them;
+//  3. in (lb, kind, key) order, popped from a heap, chunks of joinChunk
+//     matches not yet prunable have their middle edges fetched in one
+//     batch and are pushed; the first match whose lb reaches the heap's
+//     largest cost ends the pass, since every later one is at least as
+//     costly (those are dropped chains too).
 //
-// Cost: O(M·log M) for M matches plus the look-ups of the end edges and of
-// the middle edges of the matches scored before the bound prunes.
+// The order (lb, kind, key) is total and does not depend on the order
+// matchJoins lists the matches in, so neither do the pushes, the prunes
+// nor the drops. The end edges are costed (and charged to the budget) in
+// that listing order, which matters only when the budget cannot cover
+// every first-layer node: then the matches are first sorted by key, the
+// order a sort-merge join meets them in.
+//
+// Cost: O(M + P·log M) for M matches of which P are popped, plus the
+// look-ups of the end edges and of the middle edges of the matches scored
+// before the bound prunes.
 func (sc *scratch) joinAll() {
 	s, t := sc.s, sc.t
 	f1, t1, f2, t2 := sc.f1, sc.t1, sc.f2, sc.t2
@@ -1009,42 +1094,67 @@ func (sc *scratch) joinAll() {
 	if n == 0 {
 		return
 	}
-	// 1. End edges.
+	if sc.bud.left < (len(f1)+len(t1))*lookupUnits {
+		byKey := func(x, y jpair) int { return cmp.Compare(x.key, y.key) }
+		slices.SortFunc(sc.joinA, byKey)
+		slices.SortFunc(sc.joinB, byKey)
+	}
+	// 1. End edges, each queued once.
 	if sc.beginPrefetch(sc.bud.left/lookupUnits + 1) {
-		for _, k := range sc.joinA {
-			f := &f2[uint32(k)]
-			sc.want(s, f.a)
-			sc.want(f.b, t)
+		endF, endT := resetMarks(sc.endF, len(f1)), resetMarks(sc.endT, len(t1))
+		wantF := func(i int32) {
+			if !endF[i] && f1[i].cost != f1[i].cost { // not yet costed
+				endF[i] = true
+				sc.want(s, f1[i].id)
+			}
 		}
-		for _, k := range sc.joinB {
-			y := &t2[uint32(k)]
-			sc.want(s, y.b)
-			sc.want(y.a, t)
+		wantT := func(i int32) {
+			if !endT[i] && t1[i].cost != t1[i].cost {
+				endT[i] = true
+				sc.want(t1[i].id, t)
+			}
+		}
+		for _, p := range sc.joinA {
+			wantF(f2[uint32(p.key)].li)
+			wantT(p.end)
+		}
+		for _, p := range sc.joinB {
+			wantF(p.end)
+			wantT(t2[uint32(p.key)].li)
 		}
 		for _, mt := range sc.joinC {
-			sc.want(s, f2[mt.f].a)
-			sc.want(t2[mt.t].a, t)
+			wantF(f2[mt.f].li)
+			wantT(t2[mt.t].li)
 		}
+		sc.endF, sc.endT = endF, endT
 		sc.fetch()
 	}
-	// 2. Lower bounds.
+	// 2. Lower bounds; matches the heap bound already prunes are dropped.
+	bar := math.Inf(1)
+	if k := sc.st.maxCand; k > 0 && len(sc.heap) == k {
+		bar = sc.heap[0].cost
+	}
 	ms := sc.jms[:0]
-	for i, k := range sc.joinA {
-		f := &f2[uint32(k)]
-		yi, _ := sc.t1ids.get(uint64(f.b))
-		c1, ok1 := sc.cost1(f1, f.li, s)
-		c3, ok3 := sc.cost1(t1, yi, t)
+	for i, p := range sc.joinA {
+		c1, ok1 := sc.cost1(f1, f2[uint32(p.key)].li, s)
+		c3, ok3 := sc.cost1(t1, p.end, t)
 		if ok1 && ok3 {
-			ms = append(ms, jmatch{lb: c1 + c3 + 2*hb, kind: 0, i: int32(i)})
+			if lb := c1 + c3 + 2*hb; lb < bar {
+				ms = append(ms, jmatch{lb: lb, ord: p.key, i: int32(i), kind: 0})
+			} else {
+				sc.drop(2)
+			}
 		}
 	}
-	for i, k := range sc.joinB {
-		y := &t2[uint32(k)]
-		xi, _ := sc.f1ids.get(uint64(y.b))
-		c1, ok1 := sc.cost1(f1, xi, s)
-		c3, ok3 := sc.cost1(t1, y.li, t)
+	for i, p := range sc.joinB {
+		c1, ok1 := sc.cost1(f1, p.end, s)
+		c3, ok3 := sc.cost1(t1, t2[uint32(p.key)].li, t)
 		if ok1 && ok3 {
-			ms = append(ms, jmatch{lb: c1 + c3 + 2*hb, kind: 1, i: int32(i)})
+			if lb := c1 + c3 + 2*hb; lb < bar {
+				ms = append(ms, jmatch{lb: lb, ord: p.key, i: int32(i), kind: 1})
+			} else {
+				sc.drop(2)
+			}
 		}
 	}
 	for i, mt := range sc.joinC {
@@ -1055,7 +1165,11 @@ func (sc *scratch) joinAll() {
 		c1, ok1 := sc.cost1(f1, f.li, s)
 		c4, ok4 := sc.cost1(t1, y.li, t)
 		if ok1 && ok4 {
-			ms = append(ms, jmatch{lb: c1 + c4 + 3*hb, kind: 2, i: int32(i)})
+			if lb := c1 + c4 + 3*hb; lb < bar {
+				ms = append(ms, jmatch{lb: lb, ord: uint64(i), i: int32(i), kind: 2})
+			} else {
+				sc.drop(3)
+			}
 		}
 	}
 	// 3. Chunks in lower-bound order, popped from a heap: the search
@@ -1087,10 +1201,10 @@ func (sc *scratch) joinAll() {
 			for _, m := range chunk {
 				switch m.kind {
 				case 0:
-					f := &f2[uint32(sc.joinA[m.i])]
+					f := &f2[uint32(sc.joinA[m.i].key)]
 					sc.want(f.a, f.b)
 				case 1:
-					y := &t2[uint32(sc.joinB[m.i])]
+					y := &t2[uint32(sc.joinB[m.i].key)]
 					sc.want(y.b, y.a)
 				default:
 					mt := sc.joinC[m.i]
@@ -1106,8 +1220,8 @@ func (sc *scratch) joinAll() {
 	}
 }
 
-// jmLess orders join matches by (lower bound, kind, index): a total order,
-// since the index is unique within a kind.
+// jmLess orders join matches by (lower bound, kind, ord): a total order,
+// since ord is unique within a kind.
 func jmLess(a, b *jmatch) bool {
 	if a.lb != b.lb {
 		return cmp.Less(a.lb, b.lb)
@@ -1115,7 +1229,17 @@ func jmLess(a, b *jmatch) bool {
 	if a.kind != b.kind {
 		return a.kind < b.kind
 	}
-	return a.i < b.i
+	return a.ord < b.ord
+}
+
+// resetMarks returns marks resized to n entries, all false. O(n).
+func resetMarks(marks []bool, n int) []bool {
+	if cap(marks) < n {
+		return make([]bool, n)
+	}
+	marks = marks[:n]
+	clear(marks)
+	return marks
 }
 
 // jmSiftDown restores the min-heap order of h (by jmLess) below i.
@@ -1148,8 +1272,8 @@ func (sc *scratch) joinOne(m jmatch) {
 	hb := sc.hb
 	switch m.kind {
 	case 0: // s→a→b, b→t
-		f := &f2[uint32(sc.joinA[m.i])]
-		yi, _ := sc.t1ids.get(uint64(f.b))
+		f := &f2[uint32(sc.joinA[m.i].key)]
+		yi := sc.joinA[m.i].end
 		if sc.prune(known(f1[f.li].cost)+known(f.c2)+known(t1[yi].cost)+2*hb, 2) {
 			return
 		}
@@ -1160,8 +1284,8 @@ func (sc *scratch) joinOne(m jmatch) {
 			sc.push(cand{cost: c1 + c2 + c3 + 2*hb, b: [3]graphidx.EntityID{f.a, f.b}, m: 2}, true)
 		}
 	case 1: // s→b (F1), t→c→b (T2): s→b→c→t
-		y := &t2[uint32(sc.joinB[m.i])]
-		xi, _ := sc.f1ids.get(uint64(y.b))
+		y := &t2[uint32(sc.joinB[m.i].key)]
+		xi := sc.joinB[m.i].end
 		if sc.prune(known(f1[xi].cost)+known(y.c2)+known(t1[y.li].cost)+2*hb, 2) {
 			return
 		}
