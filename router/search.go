@@ -231,13 +231,19 @@ type scratch struct {
 	joinA, joinB   []jpair // F2 ⋈ T1 (A), F1 ⋈ T2 (B)
 	joinC          []match3
 	endF, endT     []bool // first-layer nodes whose end edge is queued (joinAll)
-	keysF, keysT   []uint64
-	rks            [][]graphidx.EntityID // ranked lists of the layer-1 nodes
-	heap           []cand
-	hits           []graphidx.EntityID
-	path           []graphidx.EntityID
-	dist           []float64 // best chain's Dist copy
-	ddist          []float64 // direct Dist copy
+	liveF, liveT   []bool // first-layer nodes extended by layer2 (liveNodes)
+	// nF2, nT2: the second-layer paths of each first-layer node, counted
+	// also for the nodes liveNodes leaves out (beam3); totF2, totT2 their
+	// sums.
+	nF2, nT2     []int32
+	totF2, totT2 int
+	keysF, keysT []uint64
+	rks          [][]graphidx.EntityID // ranked lists of the layer-1 nodes
+	heap         []cand
+	hits         []graphidx.EntityID
+	path         []graphidx.EntityID
+	dist         []float64 // best chain's Dist copy
+	ddist        []float64 // direct Dist copy
 	// ref is the reference estimate of the bias term (ddist, or incDist of
 	// the reference chain); nil until known. refVar is its variance part
 	// (scorer.Estimate.Var), for the gain margin (chainScore).
@@ -677,10 +683,18 @@ func known(x float64) float64 {
 // filled in (edgeCost2) only when a join needs it. ok reports that every
 // path of the kind is in the layer (l1ok and no node cut); beamCut that
 // the fan-out (not the budget) left some out.
-func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphidx.EntityID) (l []step2, ok, beamCut bool) {
+//
+// counts receives the number of paths of every first-layer node, in
+// order. A node that live (when not nil) marks false gets no paths, but
+// its count and flags are what extending it would give; liveNodes admits
+// that only when such a node's paths come from its ranked prefix alone
+// (no beyond) and the budget cannot run out.
+func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphidx.EntityID, live []bool, counts *[]int32) (l []step2, ok, beamCut bool) {
 	out = out[:0]
 	ok = l1ok
 	f := sc.st.fanOut
+	cnt := (*counts)[:0]
+	defer func() { *counts = cnt }()
 	rks := sc.rks[:0]
 	for i, x := range l1 {
 		// A hub's first layer can hold 10⁵ nodes whose list offsets are
@@ -708,6 +722,25 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 		rk := rks[i]
 		n := 0
 		full := false
+		if live != nil && !live[i] {
+			for _, y := range rk {
+				if y == from || y == other || y == x.id {
+					continue
+				}
+				if n == f {
+					full = true
+					break
+				}
+				n++
+			}
+			cnt = append(cnt, int32(n))
+			// Not whole, the prefix gave f paths (liveNodes): beyond
+			// would find no room, a fan-out cut.
+			if full || !sc.whole(x.id, rk) {
+				ok, beamCut = false, true
+			}
+			continue
+		}
 		for _, y := range rk {
 			if y == from || y == other || y == x.id {
 				continue
@@ -717,16 +750,19 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 				break
 			}
 			if sc.bud.take(1) == 0 {
+				cnt = append(cnt, int32(n))
 				return out, false, beamCut
 			}
 			out = append(out, step2{a: x.id, b: y, li: int32(i), r: int32(n), c2: math.NaN()})
 			n++
 		}
 		if full {
+			cnt = append(cnt, int32(n))
 			ok, beamCut = false, true
 			continue
 		}
 		if sc.whole(x.id, rk) {
+			cnt = append(cnt, int32(n))
 			continue
 		}
 		extra, eok, ecut := sc.beyond(x.id, rk, f-n, from, other, x.id)
@@ -734,6 +770,7 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 			out = append(out, step2{a: x.id, b: y, li: int32(i), r: int32(n), c2: math.NaN()})
 			n++
 		}
+		cnt = append(cnt, int32(n))
 		if !eok {
 			ok = false
 			beamCut = beamCut || ecut
@@ -743,6 +780,98 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 		}
 	}
 	return out, ok, beamCut
+}
+
+// liveNodes decides which first-layer nodes layer2 extends, when a node's
+// every chain is already beaten: with the heap holding k candidates
+// (largest cost c_k), a two- or three-bridge chain whose first-layer node
+// on the s side is a has proxy cost ≥ cost(s, a) + min over T1 of
+// cost(c, t) + 2β, so when that reaches c_k, which only falls, every such
+// chain would be pruned, and a's second-layer paths can match nothing
+// that enters the heap (the same on the t side). It returns nil, nil
+// (extend every node) unless all of these hold, under which leaving the
+// paths out changes no decision:
+//
+//   - a one-bridge chain was dropped: then candidatesCut depends on
+//     bound(1) alone, since bound(m) does not grow with m (β ≥ 0, λ ≥ 0,
+//     c_hop ≥ 0), so the chains left out need not be recorded;
+//   - s and t share at least half a beam of neighbours (the one-bridge
+//     hits): the joins then have many matches and costing every
+//     first-layer node up front pays for itself (on a sparse index it
+//     would add look-ups the joins never make);
+//   - every node's ranked prefix is whole or holds f paths (no beyond),
+//     and the budget left covers every charge the full layers and joins
+//     could make, so neither way can run out of budget.
+//
+// Cost: one look-up per first-layer node (batched), O(B) otherwise.
+func (sc *scratch) liveNodes() (liveF, liveT []bool) {
+	k, f := sc.st.maxCand, sc.st.fanOut
+	f1, t1 := sc.f1, sc.t1
+	nodes := len(f1) + len(t1)
+	switch {
+	case k == 0 || len(sc.heap) < k || sc.dropped&(1<<1) == 0 || !(sc.hb >= 0):
+		return nil, nil
+	case 2*len(sc.hits) < sc.st.beam:
+		return nil, nil
+	case sc.st.hooks != nil && sc.st.hooks.noLayerPruning:
+		return nil, nil
+	case sc.bud.left < nodes*(f+lookupUnits+f*lookupUnits):
+		return nil, nil
+	}
+	for _, side := range [2]struct {
+		l     []step1
+		other graphidx.EntityID
+	}{{f1, sc.t}, {t1, sc.s}} {
+		for i := range side.l {
+			x := side.l[i].id
+			rk := sc.g.RankedNeighbors(x)
+			// At most the two ends are not eligible (x is not in
+			// its own list).
+			if len(rk) < f+2 && !sc.whole(x, rk) {
+				return nil, nil
+			}
+		}
+	}
+	s, t := sc.s, sc.t
+	if sc.beginPrefetch(sc.bud.left/lookupUnits + 1) {
+		for i := range f1 {
+			if f1[i].cost != f1[i].cost {
+				sc.want(s, f1[i].id)
+			}
+		}
+		for i := range t1 {
+			if t1[i].cost != t1[i].cost {
+				sc.want(t1[i].id, t)
+			}
+		}
+		sc.fetch()
+	}
+	minF, minT := math.Inf(1), math.Inf(1)
+	for i := range f1 {
+		if c, ok := sc.cost1(f1, int32(i), s); ok {
+			minF = min(minF, c)
+		}
+	}
+	for i := range t1 {
+		if c, ok := sc.cost1(t1, int32(i), t); ok {
+			minT = min(minT, c)
+		}
+	}
+	bar := sc.heap[0].cost
+	liveF, liveT = resetMarks(sc.liveF, len(f1)), resetMarks(sc.liveT, len(t1))
+	for i := range f1 {
+		c := f1[i].cost // NaN when the look-up failed: no chain through it
+		liveF[i] = c == c && c+minT+2*sc.hb < bar
+	}
+	for i := range t1 {
+		c := t1[i].cost
+		liveT[i] = c == c && c+minF+2*sc.hb < bar
+	}
+	sc.liveF, sc.liveT = liveF, liveT
+	if sc.st.hooks != nil && sc.st.hooks.layerPruned != nil {
+		sc.st.hooks.layerPruned()
+	}
+	return liveF, liveT
 }
 
 // edgeCost2 returns the cost of p's second edge, looking it up once.
@@ -848,8 +977,10 @@ func (sc *scratch) generate() searchResult {
 	var f1ok, t1ok, f2ok, t2ok, f1cut, t1cut, f2cut, t2cut bool
 	sc.f1, f1ok, f1cut = sc.layer1(sc.f1, s, t)
 	sc.t1, t1ok, t1cut = sc.layer1(sc.t1, t, s)
-	sc.f2, f2ok, f2cut = sc.layer2(sc.f2, sc.f1, f1ok, s, t)
-	sc.t2, t2ok, t2cut = sc.layer2(sc.t2, sc.t1, t1ok, t, s)
+	liveF, liveT := sc.liveNodes()
+	sc.f2, f2ok, f2cut = sc.layer2(sc.f2, sc.f1, f1ok, s, t, liveF, &sc.nF2)
+	sc.t2, t2ok, t2cut = sc.layer2(sc.t2, sc.t1, t1ok, t, s, liveT, &sc.nT2)
+	sc.totF2, sc.totT2 = sumCounts(sc.nF2), sumCounts(sc.nT2)
 	skip3 := H < 3 || (sc.inc.ok && sc.bound(3) <= sc.inc.score)
 	sc.matchJoins(skip3)
 	sc.joinAll()
@@ -861,7 +992,7 @@ func (sc *scratch) generate() searchResult {
 	beamOK = (bf2 && bt1) || (bf1 && bt2)
 	if H >= 3 && !skip3 {
 		// The three-bridge join reads only B paths per side (beam3).
-		beamOK = beamOK && bf2 && bt2 && len(sc.f2) <= sc.st.beam && len(sc.t2) <= sc.st.beam
+		beamOK = beamOK && bf2 && bt2 && sc.totF2 <= sc.st.beam && sc.totT2 <= sc.st.beam
 	}
 	return sc.result(beamOK)
 }
@@ -923,7 +1054,7 @@ func (sc *scratch) matchJoins(skip3 bool) {
 	// The F2 paths whose end T2 has, then the T2 paths whose end is one
 	// of those (few, so their index is small), both sorted, then merged
 	// group by group.
-	r3f, r3t := sc.beam3(f2), sc.beam3(t2)
+	r3f, r3t := sc.beam3(sc.nF2, sc.totF2), sc.beam3(sc.nT2, sc.totT2)
 	sc.t2ends.reset(len(t2))
 	for i := range t2 {
 		if r3t.in(&t2[i]) {
@@ -981,25 +1112,29 @@ type rankCut struct{ r, li int32 }
 
 func (c rankCut) in(p *step2) bool { return p.r < c.r || (p.r == c.r && p.li < c.li) }
 
-// beam3 returns the three-bridge beam of the second layer l: its B paths
-// first in (rank position, first-layer position) order, i.e. the B paths a
-// breadth-first walk of the first-layer nodes' ranked lists takes (the
-// best-ranked extension of every node, then the second-best, …). The
-// two-bridge joins use all of l (fan-out f per node); the three-bridge join
-// F2 ⋈ T2, whose matches grow with the product of the two layers, uses this
-// beam of B paths per side. O(|l|).
-func (sc *scratch) beam3(l []step2) rankCut {
+// beam3 returns the three-bridge beam of a second layer, from the path
+// counts of its first-layer nodes (counts[li] paths of node li, at rank
+// positions 0, 1, …) and their sum total: its B paths first in (rank
+// position, first-layer position) order, i.e. the B paths a breadth-first
+// walk of the first-layer nodes' ranked lists takes (the best-ranked
+// extension of every node, then the second-best, …). The two-bridge joins
+// use the whole layer (fan-out f per node); the three-bridge join F2 ⋈ T2,
+// whose matches grow with the product of the two layers, uses this beam of
+// B paths per side. O(total).
+func (sc *scratch) beam3(counts []int32, total int) rankCut {
 	B := sc.st.beam
-	if len(l) <= B {
+	if total <= B {
 		return rankCut{r: math.MaxInt32}
 	}
+	// cnt[r]: the nodes with a path at rank position r.
 	cnt := sc.rcount[:0]
-	for i := range l {
-		r := int(l[i].r)
-		for len(cnt) <= r {
+	for _, n := range counts {
+		for len(cnt) < int(n) {
 			cnt = append(cnt, 0)
 		}
-		cnt[r]++
+		for r := range int(n) {
+			cnt[r]++
+		}
 	}
 	sc.rcount = cnt
 	left := B
@@ -1009,24 +1144,31 @@ func (sc *scratch) beam3(l []step2) rankCut {
 			continue
 		}
 		// Level r is taken in part: its first `left` paths by li.
-		li := int32(math.MaxInt32)
+		li := int32(-1)
 		if left > 0 {
 			seen := 0
-			for i := range l {
-				if int(l[i].r) == r {
+			for i, n := range counts {
+				if int(n) > r {
 					seen++
 					if seen == left+1 {
-						li = l[i].li
+						li = int32(i)
 						break
 					}
 				}
 			}
-		} else {
-			li = -1
 		}
 		return rankCut{r: int32(r), li: li}
 	}
 	return rankCut{r: math.MaxInt32}
+}
+
+// sumCounts is the sum of path counts. O(len).
+func sumCounts(counts []int32) int {
+	t := 0
+	for _, n := range counts {
+		t += int(n)
+	}
+	return t
 }
 
 // match3 is a match of F2 ⋈ T2: positions in F2 and T2.
