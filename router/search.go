@@ -624,8 +624,16 @@ func (sc *scratch) beyond(x graphidx.EntityID, rk []graphidx.EntityID, room int,
 		sc.bud.take(sc.bud.left + 1) // records the exhaustion
 		return nil, false, false
 	}
-	// Charged per look-up, so the deadline is polled every deadlinePoll
-	// units: a hub's rest can be hundreds of thousands of look-ups.
+	// The look-ups in one batch (their misses overlap; fetch caps the
+	// batch), each still charged below. Charged per look-up, so the
+	// deadline is polled every deadlinePoll units: a hub's rest can be
+	// hundreds of thousands of look-ups.
+	if sc.beginPrefetch(len(rest)) {
+		for _, y := range rest {
+			sc.want(x, y)
+		}
+		sc.fetch()
+	}
 	sups := sc.sups[:0]
 	for _, y := range rest {
 		if sc.bud.take(lookupUnits) < lookupUnits {
@@ -636,16 +644,36 @@ func (sc *scratch) beyond(x graphidx.EntityID, rk []graphidx.EntityID, room int,
 		sups = append(sups, ps.Support())
 	}
 	sc.sups = sups
-	ord := sc.ord[:0]
-	for i := range rest {
-		ord = append(ord, int32(i))
-	}
-	slices.SortFunc(ord, func(i, j int32) int {
+	better := func(i, j int32) int { // support descending, then id
 		if c := cmp.Compare(sups[j], sups[i]); c != 0 {
 			return c
 		}
 		return cmp.Compare(rest[i], rest[j])
-	})
+	}
+	ord := sc.ord[:0]
+	if room <= smallRoom {
+		// The room best by insertion into a sorted run: O(len·room).
+		for i := range rest {
+			j := len(ord)
+			if j == room && better(int32(i), ord[j-1]) >= 0 {
+				continue
+			}
+			if j < room {
+				ord = append(ord, 0)
+			} else {
+				j--
+			}
+			for ; j > 0 && better(int32(i), ord[j-1]) < 0; j-- {
+				ord[j] = ord[j-1]
+			}
+			ord[j] = int32(i)
+		}
+	} else {
+		for i := range rest {
+			ord = append(ord, int32(i))
+		}
+		slices.SortFunc(ord, better)
+	}
 	sc.ord = ord
 	best := sc.extra2[:0]
 	for _, i := range ord[:room] {
@@ -654,6 +682,10 @@ func (sc *scratch) beyond(x graphidx.EntityID, rk []graphidx.EntityID, room int,
 	sc.extra2 = best
 	return best, false, true
 }
+
+// smallRoom is the largest room that beyond fills by insertion instead of
+// sorting every candidate.
+const smallRoom = 8
 
 // cost1 returns the edge cost origin → l[i].id, looking it up once.
 func (sc *scratch) cost1(l []step1, i int32, origin graphidx.EntityID) (float64, bool) {
@@ -711,10 +743,12 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 	// loads are independent, so their cache misses overlap, where the
 	// loop below (branchy, one list after the other) would meet them one
 	// by one.
+	// The last entry the loop can read (f paths plus the two ends) may
+	// sit on the list's next cache line: touch it too.
 	var touch graphidx.EntityID
 	for _, rk := range rks {
 		if len(rk) > 0 {
-			touch += rk[0]
+			touch += rk[0] + rk[min(len(rk), f+2)-1]
 		}
 	}
 	sc.touched += uint32(touch)
