@@ -756,25 +756,7 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 		rk := rks[i]
 		n := 0
 		full := false
-		if live != nil && !live[i] {
-			for _, y := range rk {
-				if y == from || y == other || y == x.id {
-					continue
-				}
-				if n == f {
-					full = true
-					break
-				}
-				n++
-			}
-			cnt = append(cnt, int32(n))
-			// Not whole, the prefix gave f paths (liveNodes): beyond
-			// would find no room, a fan-out cut.
-			if full || !sc.whole(x.id, rk) {
-				ok, beamCut = false, true
-			}
-			continue
-		}
+		dead := live != nil && !live[i] // counted, not extended
 		for _, y := range rk {
 			if y == from || y == other || y == x.id {
 				continue
@@ -783,12 +765,23 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 				full = true
 				break
 			}
-			if sc.bud.take(1) == 0 {
-				cnt = append(cnt, int32(n))
-				return out, false, beamCut
+			if !dead {
+				if sc.bud.take(1) == 0 {
+					cnt = append(cnt, int32(n))
+					return out, false, beamCut
+				}
+				out = append(out, step2{a: x.id, b: y, li: int32(i), r: int32(n), c2: math.NaN()})
 			}
-			out = append(out, step2{a: x.id, b: y, li: int32(i), r: int32(n), c2: math.NaN()})
 			n++
+		}
+		if dead {
+			cnt = append(cnt, int32(n))
+			// Not whole, the prefix gave f paths (liveNodes): beyond
+			// would find no room, a fan-out cut.
+			if full || !sc.whole(x.id, rk) {
+				ok, beamCut = false, true
+			}
+			continue
 		}
 		if full {
 			cnt = append(cnt, int32(n))

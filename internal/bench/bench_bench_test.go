@@ -112,12 +112,26 @@ func reportShares(b *testing.B, n, trunc, chains int) {
 
 // BenchmarkRouterUncached decides distinct queries without the cache.
 func BenchmarkRouterUncached(b *testing.B) {
-	rt := benchRouter(b, 0)
+	decideLoop(b, benchRouter(b, 0), shared.qs, nil)
+}
+
+// decideLoop decides qs in turn under b.Loop and reports the shares of
+// truncated decisions and chains (reportShares); with cpu not nil it
+// appends each decision's thread CPU time in nanoseconds (the caller locks
+// its OS thread).
+func decideLoop(b *testing.B, rt *router.Router, qs []router.Query, cpu *[]float64) {
 	ctx := context.Background()
 	b.ReportAllocs()
 	i, trunc, chains := 0, 0, 0
 	for b.Loop() {
-		d, err := rt.Decide(ctx, shared.qs[i%len(shared.qs)])
+		c0 := int64(0)
+		if cpu != nil {
+			c0 = threadCPU()
+		}
+		d, err := rt.Decide(ctx, qs[i%len(qs)])
+		if cpu != nil {
+			*cpu = append(*cpu, float64(threadCPU()-c0))
+		}
 		if err != nil {
 			b.Fatal(err)
 		}
@@ -289,31 +303,15 @@ func BenchmarkRouterUncachedDense(b *testing.B) {
 					}
 				}
 			}
-			b.ReportAllocs()
-			i, trunc, chains := 0, 0, 0
 			var cpu []float64
-			if tc.cache == 0 {
+			rec := &cpu
+			if tc.cache > 0 {
+				rec = nil
+			} else {
 				runtime.LockOSThread()
 				defer runtime.UnlockOSThread()
 			}
-			for b.Loop() {
-				c0 := threadCPU()
-				d, err := rt.Decide(ctx, qs[i%len(qs)])
-				if tc.cache == 0 {
-					cpu = append(cpu, float64(threadCPU()-c0))
-				}
-				if err != nil {
-					b.Fatal(err)
-				}
-				if d.Truncated {
-					trunc++
-				}
-				if d.Chain != nil {
-					chains++
-				}
-				i++
-			}
-			reportShares(b, i, trunc, chains)
+			decideLoop(b, rt, qs, rec)
 			if l := summarize(cpu); l.P50 > 0 {
 				b.ReportMetric(l.P50/1e3, "cpu-p50-µs")
 				b.ReportMetric(l.P99/1e3, "cpu-p99-µs")
