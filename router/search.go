@@ -495,7 +495,9 @@ const oneChunk = 16
 // budget is charged by the phase as without it.
 func (sc *scratch) fetchSecond(i int) int {
 	end := min(len(sc.hits), i+oneChunk)
-	if !sc.beginPrefetch(sc.bud.left/lookupUnits + 1) {
+	if sc.bud.left < lookupUnits || !sc.beginPrefetch(sc.bud.left/lookupUnits+1) {
+		// The phase can look nothing more up (a hub's hits outlast
+		// the budget): no more batches.
 		return len(sc.hits)
 	}
 	for _, z := range sc.hits[i:end] {
