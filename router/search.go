@@ -847,12 +847,9 @@ func (sc *scratch) liveNodes() (liveF, liveT []bool) {
 	case sc.bud.left < nodes*(f+lookupUnits+f*lookupUnits):
 		return nil, nil
 	}
-	for _, side := range [2]struct {
-		l     []step1
-		other graphidx.EntityID
-	}{{f1, sc.t}, {t1, sc.s}} {
-		for i := range side.l {
-			x := side.l[i].id
+	for _, l := range [2][]step1{f1, t1} {
+		for i := range l {
+			x := l[i].id
 			rk := sc.g.RankedNeighbors(x)
 			// At most the two ends are not eligible (x is not in
 			// its own list).
