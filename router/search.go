@@ -768,13 +768,17 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 				break
 			}
 			if !dead {
-				if sc.bud.take(1) == 0 {
-					cnt = append(cnt, int32(n))
-					return out, false, beamCut
-				}
 				out = append(out, step2{a: x.id, b: y, li: int32(i), r: int32(n), c2: math.NaN()})
 			}
 			n++
+		}
+		// One unit per path, charged for the node at once: when the
+		// budget holds fewer, the node keeps that many paths and the
+		// layer stops, as a unit-by-unit charge would.
+		if got := sc.bud.take(n); !dead && got < n {
+			out = out[:len(out)-(n-got)]
+			cnt = append(cnt, int32(got))
+			return out, false, beamCut
 		}
 		if dead {
 			cnt = append(cnt, int32(n))
