@@ -578,6 +578,26 @@ func TestWithoutMmap(t *testing.T) {
 			}
 		}
 	}
+	if err := b.Verify(); err != nil {
+		t.Fatalf("Verify of the copy: %v", err)
+	}
+	// A damaged file is rejected on this path too, and Close releases the
+	// copy once (a second Close is a no-op).
+	raw, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	raw[len(raw)-1] ^= 1
+	bad := filepath.Join(t.TempDir(), "bad.hwx")
+	if err := os.WriteFile(bad, raw, 0o600); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := Open(bad, WithoutMmap()); !errors.Is(err, ErrChecksum) {
+		t.Fatalf("damaged file opened without mmap: %v, want ErrChecksum", err)
+	}
+	if err := b.Close(); err != nil || b.Close() != nil || b.NumEntities() != 0 {
+		t.Fatalf("Close: %v, then NumEntities %d", err, b.NumEntities())
+	}
 }
 
 // TestConcurrentReaders hammers one index from several goroutines (run

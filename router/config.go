@@ -242,7 +242,7 @@ func (c Config) modelConfig() (scorer.ModelConfig, error) {
 // and the option that sets it, and wraps ErrBadOption. O(arms).
 func (d draft) compile() (settings, error) {
 	c := d.cfg
-	s := settings{cfg: c, custom: d.custom}
+	s := settings{cfg: c, custom: d.custom, hooks: d.hooks}
 	for _, f := range []struct {
 		field string
 		v     float64

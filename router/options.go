@@ -139,6 +139,7 @@ type arm struct {
 type settings struct {
 	cfg    Config       // what the options set; Config.Validate checks it
 	custom scorer.Model // WithModel; nil = the models cfg describes
+	hooks  *searchHooks // tests only
 
 	// Derived by compile; never set by an option.
 	tau         float64
@@ -173,6 +174,13 @@ var DefaultHashKey = [16]byte{'h', 'o', 'p', 'w', 'i', 's', 'e', '-', 'a', 's', 
 type draft struct {
 	cfg    Config
 	custom scorer.Model
+	hooks  *searchHooks
+}
+
+// searchHooks instrument the search for tests; nil otherwise.
+type searchHooks struct {
+	noLayerPruning bool   // liveNodes never prunes
+	layerPruned    func() // called when liveNodes prunes
 }
 
 // Option configures a Router (New, Reconfigure): each option sets fields of
@@ -341,7 +349,7 @@ func saltOf(s string) uint64 {
 // buildSettings applies opts over base's configuration and compiles the
 // result.
 func buildSettings(base settings, opts []Option) (settings, error) {
-	d := draft{cfg: base.cfg, custom: base.custom}
+	d := draft{cfg: base.cfg, custom: base.custom, hooks: base.hooks}
 	d.cfg.Arms = append([]ArmWeight(nil), base.cfg.Arms...)
 	for _, o := range opts {
 		if o != nil {

@@ -198,9 +198,10 @@ func (sc *scratch) beginPrefetch(n int) bool {
 	return true
 }
 
-// fetch looks the queued pairs up with one PairBatch call, fills their
-// memo slots and computes their edge costs, so that the phase that follows
-// finds every pair in the memo. It changes no decision: the memo returns
+// fetch looks the queued pairs up with one PairBatch call and fills their
+// memo slots, so that the phase that follows finds every pair in the memo;
+// an edge cost is computed only when the phase asks for it (scratch.edge),
+// so a fetched pair that the phase prunes costs no EdgeCost. It changes no decision: the memo returns
 // what Graph.Pair would, and the budget is still charged per edge by the
 // phase itself (sc.edge). Pairs the phase then prunes were fetched in vain;
 // on the benchmark index that is about one in eight.
@@ -216,7 +217,7 @@ func (sc *scratch) fetch() {
 	ps, ok := sc.pend.ps[:n], sc.pend.ok[:n]
 	sc.pb.PairBatch(sc.pend.lo, sc.pend.hi, ps, ok)
 	// Touch every table first: independent loads whose cache misses
-	// overlap, instead of one miss per EdgeCost below.
+	// overlap, instead of one miss per EdgeCost later.
 	var touch uint32
 	for i := range ps {
 		if ok[i] {
@@ -228,9 +229,6 @@ func (sc *scratch) fetch() {
 		j, _ := sc.memo.find(uint64(lo)<<32 | uint64(sc.pend.hi[i]))
 		e := &sc.memo.tab[j]
 		e.ok, e.ps, e.cost = ok[i], ps[i], math.NaN()
-		if ok[i] {
-			e.cost = sc.model.EdgeCost(ps[i])
-		}
 		ps[i] = graphidx.PairStats{} // drop the reference into the index
 	}
 	sc.pend.lo, sc.pend.hi = sc.pend.lo[:0], sc.pend.hi[:0]

@@ -227,16 +227,23 @@ type scratch struct {
 	jms            []jmatch
 	jchunk         []jmatch // the matches of one join chunk, popped from jms
 	rcount         []int
-	f2ends, t2ends idIndex  // layer-2 end nodes met by both sides (f2ends), of T2
-	joinA, joinB   []uint64 // b<<32 | position in f2 (A), t2 (B)
+	f2ends, t2ends idIndex // layer-2 end nodes met by both sides (f2ends), of T2
+	joinA, joinB   []jpair // F2 ⋈ T1 (A), F1 ⋈ T2 (B)
 	joinC          []match3
-	keysF, keysT   []uint64
-	rks            [][]graphidx.EntityID // ranked lists of the layer-1 nodes
-	heap           []cand
-	hits           []graphidx.EntityID
-	path           []graphidx.EntityID
-	dist           []float64 // best chain's Dist copy
-	ddist          []float64 // direct Dist copy
+	endF, endT     []bool // first-layer nodes whose end edge is queued (joinAll)
+	liveF, liveT   []bool // first-layer nodes extended by layer2 (liveNodes)
+	// nF2, nT2: the second-layer paths of each first-layer node, counted
+	// also for the nodes liveNodes leaves out (beam3); totF2, totT2 their
+	// sums.
+	nF2, nT2     []int32
+	totF2, totT2 int
+	keysF, keysT []uint64
+	rks          [][]graphidx.EntityID // ranked lists of the layer-1 nodes
+	heap         []cand
+	hits         []graphidx.EntityID
+	path         []graphidx.EntityID
+	dist         []float64 // best chain's Dist copy
+	ddist        []float64 // direct Dist copy
 	// ref is the reference estimate of the bias term (ddist, or incDist of
 	// the reference chain); nil until known. refVar is its variance part
 	// (scorer.Estimate.Var), for the gain margin (chainScore).
@@ -476,6 +483,63 @@ func (sc *scratch) prune(lower float64, m int) bool {
 // decided after the exact scores (candidatesCut).
 func (sc *scratch) drop(m int) { sc.dropped |= 1 << m }
 
+// oneChunk is the number of one-bridge hits whose second edges are
+// fetched in one batch (fetchSecond).
+const oneChunk = 16
+
+// fetchSecond fetches, in one batch, the second edges z → t of the hits
+// from position i on, up to oneChunk of them, except those whose first
+// edge s → z already lets the heap bound prune the chain (the bound only
+// tightens, so they are pruned when their turn comes; their first edges
+// were fetched before). It returns the position after the chunk. The
+// budget is charged by the phase as without it.
+func (sc *scratch) fetchSecond(i int) int {
+	end := min(len(sc.hits), i+oneChunk)
+	if sc.bud.left < lookupUnits || !sc.beginPrefetch(sc.bud.left/lookupUnits+1) {
+		// The phase can look nothing more up (a hub's hits outlast
+		// the budget): no more batches.
+		return len(sc.hits)
+	}
+	for _, z := range sc.hits[i:end] {
+		if z == sc.s || z == sc.t {
+			continue
+		}
+		if c, ok := sc.peekCost(sc.s, z); ok && sc.prunable(c+sc.hb) {
+			continue
+		}
+		sc.want(z, sc.t)
+	}
+	sc.fetch()
+	return end
+}
+
+// peekCost returns the edge cost of the pair (a, b) when the memo holds
+// it, computing the cost if needed, without charging the budget (the phase
+// charges it when it uses the edge). O(1) expected plus one EdgeCost.
+func (sc *scratch) peekCost(a, b graphidx.EntityID) (float64, bool) {
+	if a > b {
+		a, b = b, a
+	}
+	if len(sc.memo.tab) == 0 {
+		return 0, false
+	}
+	i, found := sc.memo.find(uint64(a)<<32 | uint64(b))
+	if !found || !sc.memo.tab[i].ok {
+		return 0, false
+	}
+	e := &sc.memo.tab[i]
+	if e.cost != e.cost {
+		e.cost = sc.model.EdgeCost(e.ps)
+	}
+	return e.cost, true
+}
+
+// prunable reports whether a chain whose proxy cost is at least lower can
+// no longer enter the heap (as prune, without recording a drop). O(1).
+func (sc *scratch) prunable(lower float64) bool {
+	return len(sc.heap) == sc.st.maxCand && lower >= sc.heap[0].cost
+}
+
 // layer1 fills out with the first-layer beam of from: its B best-ranked
 // neighbours by support (other excluded), read from the support-ranked
 // prefix and, when the beam reaches past the prefix, from the full
@@ -562,8 +626,16 @@ func (sc *scratch) beyond(x graphidx.EntityID, rk []graphidx.EntityID, room int,
 		sc.bud.take(sc.bud.left + 1) // records the exhaustion
 		return nil, false, false
 	}
-	// Charged per look-up, so the deadline is polled every deadlinePoll
-	// units: a hub's rest can be hundreds of thousands of look-ups.
+	// The look-ups in one batch (their misses overlap; fetch caps the
+	// batch), each still charged below. Charged per look-up, so the
+	// deadline is polled every deadlinePoll units: a hub's rest can be
+	// hundreds of thousands of look-ups.
+	if sc.beginPrefetch(len(rest)) {
+		for _, y := range rest {
+			sc.want(x, y)
+		}
+		sc.fetch()
+	}
 	sups := sc.sups[:0]
 	for _, y := range rest {
 		if sc.bud.take(lookupUnits) < lookupUnits {
@@ -574,16 +646,36 @@ func (sc *scratch) beyond(x graphidx.EntityID, rk []graphidx.EntityID, room int,
 		sups = append(sups, ps.Support())
 	}
 	sc.sups = sups
-	ord := sc.ord[:0]
-	for i := range rest {
-		ord = append(ord, int32(i))
-	}
-	slices.SortFunc(ord, func(i, j int32) int {
+	better := func(i, j int32) int { // support descending, then id
 		if c := cmp.Compare(sups[j], sups[i]); c != 0 {
 			return c
 		}
 		return cmp.Compare(rest[i], rest[j])
-	})
+	}
+	ord := sc.ord[:0]
+	if room <= smallRoom {
+		// The room best by insertion into a sorted run: O(len·room).
+		for i := range rest {
+			j := len(ord)
+			if j == room && better(int32(i), ord[j-1]) >= 0 {
+				continue
+			}
+			if j < room {
+				ord = append(ord, 0)
+			} else {
+				j--
+			}
+			for ; j > 0 && better(int32(i), ord[j-1]) < 0; j-- {
+				ord[j] = ord[j-1]
+			}
+			ord[j] = int32(i)
+		}
+	} else {
+		for i := range rest {
+			ord = append(ord, int32(i))
+		}
+		slices.SortFunc(ord, better)
+	}
 	sc.ord = ord
 	best := sc.extra2[:0]
 	for _, i := range ord[:room] {
@@ -592,6 +684,10 @@ func (sc *scratch) beyond(x graphidx.EntityID, rk []graphidx.EntityID, room int,
 	sc.extra2 = best
 	return best, false, true
 }
+
+// smallRoom is the largest room that beyond fills by insertion instead of
+// sorting every candidate.
+const smallRoom = 8
 
 // cost1 returns the edge cost origin → l[i].id, looking it up once.
 func (sc *scratch) cost1(l []step1, i int32, origin graphidx.EntityID) (float64, bool) {
@@ -621,10 +717,18 @@ func known(x float64) float64 {
 // filled in (edgeCost2) only when a join needs it. ok reports that every
 // path of the kind is in the layer (l1ok and no node cut); beamCut that
 // the fan-out (not the budget) left some out.
-func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphidx.EntityID) (l []step2, ok, beamCut bool) {
+//
+// counts receives the number of paths of every first-layer node, in
+// order. A node that live (when not nil) marks false gets no paths, but
+// its count and flags are what extending it would give; liveNodes admits
+// that only when such a node's paths come from its ranked prefix alone
+// (no beyond) and the budget cannot run out.
+func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphidx.EntityID, live []bool, counts *[]int32) (l []step2, ok, beamCut bool) {
 	out = out[:0]
 	ok = l1ok
 	f := sc.st.fanOut
+	cnt := (*counts)[:0]
+	defer func() { *counts = cnt }()
 	rks := sc.rks[:0]
 	for i, x := range l1 {
 		// A hub's first layer can hold 10⁵ nodes whose list offsets are
@@ -641,10 +745,12 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 	// loads are independent, so their cache misses overlap, where the
 	// loop below (branchy, one list after the other) would meet them one
 	// by one.
+	// The last entry the loop can read (f paths plus the two ends) may
+	// sit on the list's next cache line: touch it too.
 	var touch graphidx.EntityID
 	for _, rk := range rks {
 		if len(rk) > 0 {
-			touch += rk[0]
+			touch += rk[0] + rk[min(len(rk), f+2)-1]
 		}
 	}
 	sc.touched += uint32(touch)
@@ -652,6 +758,7 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 		rk := rks[i]
 		n := 0
 		full := false
+		dead := live != nil && !live[i] // counted, not extended
 		for _, y := range rk {
 			if y == from || y == other || y == x.id {
 				continue
@@ -660,17 +767,35 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 				full = true
 				break
 			}
-			if sc.bud.take(1) == 0 {
-				return out, false, beamCut
+			if !dead {
+				out = append(out, step2{a: x.id, b: y, li: int32(i), r: int32(n), c2: math.NaN()})
 			}
-			out = append(out, step2{a: x.id, b: y, li: int32(i), r: int32(n), c2: math.NaN()})
 			n++
 		}
+		// One unit per path, charged for the node at once: when the
+		// budget holds fewer, the node keeps that many paths and the
+		// layer stops, as a unit-by-unit charge would.
+		if got := sc.bud.take(n); !dead && got < n {
+			out = out[:len(out)-(n-got)]
+			cnt = append(cnt, int32(got))
+			return out, false, beamCut
+		}
+		if dead {
+			cnt = append(cnt, int32(n))
+			// Not whole, the prefix gave f paths (liveNodes): beyond
+			// would find no room, a fan-out cut.
+			if full || !sc.whole(x.id, rk) {
+				ok, beamCut = false, true
+			}
+			continue
+		}
 		if full {
+			cnt = append(cnt, int32(n))
 			ok, beamCut = false, true
 			continue
 		}
 		if sc.whole(x.id, rk) {
+			cnt = append(cnt, int32(n))
 			continue
 		}
 		extra, eok, ecut := sc.beyond(x.id, rk, f-n, from, other, x.id)
@@ -678,6 +803,7 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 			out = append(out, step2{a: x.id, b: y, li: int32(i), r: int32(n), c2: math.NaN()})
 			n++
 		}
+		cnt = append(cnt, int32(n))
 		if !eok {
 			ok = false
 			beamCut = beamCut || ecut
@@ -687,6 +813,95 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 		}
 	}
 	return out, ok, beamCut
+}
+
+// liveNodes decides which first-layer nodes layer2 extends, when a node's
+// every chain is already beaten: with the heap holding k candidates
+// (largest cost c_k), a two- or three-bridge chain whose first-layer node
+// on the s side is a has proxy cost ≥ cost(s, a) + min over T1 of
+// cost(c, t) + 2β, so when that reaches c_k, which only falls, every such
+// chain would be pruned, and a's second-layer paths can match nothing
+// that enters the heap (the same on the t side). It returns nil, nil
+// (extend every node) unless all of these hold, under which leaving the
+// paths out changes no decision:
+//
+//   - a one-bridge chain was dropped: then candidatesCut depends on
+//     bound(1) alone, since bound(m) does not grow with m (β ≥ 0, λ ≥ 0,
+//     c_hop ≥ 0), so the chains left out need not be recorded;
+//   - s and t share at least half a beam of neighbours (the one-bridge
+//     hits): the joins then have many matches and costing every
+//     first-layer node up front pays for itself (on a sparse index it
+//     would add look-ups the joins never make);
+//   - every node's ranked prefix is whole or holds f paths (no beyond),
+//     and the budget left covers every charge the full layers and joins
+//     could make, so neither way can run out of budget.
+//
+// Cost: one look-up per first-layer node (batched), O(B) otherwise.
+func (sc *scratch) liveNodes() (liveF, liveT []bool) {
+	k, f := sc.st.maxCand, sc.st.fanOut
+	f1, t1 := sc.f1, sc.t1
+	nodes := len(f1) + len(t1)
+	switch {
+	case k == 0 || len(sc.heap) < k || sc.dropped&(1<<1) == 0 || !(sc.hb >= 0):
+		return nil, nil
+	case 2*len(sc.hits) < sc.st.beam:
+		return nil, nil
+	case sc.st.hooks != nil && sc.st.hooks.noLayerPruning:
+		return nil, nil
+	case sc.bud.left < nodes*(f+lookupUnits+f*lookupUnits):
+		return nil, nil
+	}
+	for _, l := range [2][]step1{f1, t1} {
+		for i := range l {
+			x := l[i].id
+			rk := sc.g.RankedNeighbors(x)
+			// At most the two ends are not eligible (x is not in
+			// its own list).
+			if len(rk) < f+2 && !sc.whole(x, rk) {
+				return nil, nil
+			}
+		}
+	}
+	s, t := sc.s, sc.t
+	if sc.beginPrefetch(sc.bud.left/lookupUnits + 1) {
+		for i := range f1 {
+			if f1[i].cost != f1[i].cost {
+				sc.want(s, f1[i].id)
+			}
+		}
+		for i := range t1 {
+			if t1[i].cost != t1[i].cost {
+				sc.want(t1[i].id, t)
+			}
+		}
+		sc.fetch()
+	}
+	minF, minT := math.Inf(1), math.Inf(1)
+	for i := range f1 {
+		if c, ok := sc.cost1(f1, int32(i), s); ok {
+			minF = min(minF, c)
+		}
+	}
+	for i := range t1 {
+		if c, ok := sc.cost1(t1, int32(i), t); ok {
+			minT = min(minT, c)
+		}
+	}
+	bar := sc.heap[0].cost
+	liveF, liveT = resetMarks(sc.liveF, len(f1)), resetMarks(sc.liveT, len(t1))
+	for i := range f1 {
+		c := f1[i].cost // NaN when the look-up failed: no chain through it
+		liveF[i] = c == c && c+minT+2*sc.hb < bar
+	}
+	for i := range t1 {
+		c := t1[i].cost
+		liveT[i] = c == c && c+minF+2*sc.hb < bar
+	}
+	sc.liveF, sc.liveT = liveF, liveT
+	if sc.st.hooks != nil && sc.st.hooks.layerPruned != nil {
+		sc.st.hooks.layerPruned()
+	}
+	return liveF, liveT
 }
 
 // edgeCost2 returns the cost of p's second edge, looking it up once.
@@ -727,16 +942,26 @@ func (sc *scratch) generate() searchResult {
 	held2 := sc.bud.limit(sc.bud.left / 2)
 	sc.intersect(g.Neighbors(s), g.Neighbors(t))
 	sc.bud.unlimit(held2)
+	// Every first edge s → z in one batch, with the second edges z → t of
+	// the first oneChunk hits; the other second edges a chunk at a time
+	// (fetchSecond), leaving out those the heap bound already prunes.
+	next := len(sc.hits)
 	if sc.beginPrefetch(sc.bud.left/lookupUnits + 1) {
-		for _, z := range sc.hits {
+		next = min(len(sc.hits), oneChunk)
+		for i, z := range sc.hits {
 			if z != s && z != t {
 				sc.want(s, z)
-				sc.want(z, t)
+				if i < next {
+					sc.want(z, t)
+				}
 			}
 		}
 		sc.fetch()
 	}
-	for _, z := range sc.hits {
+	for i, z := range sc.hits {
+		if i == next {
+			next = sc.fetchSecond(i)
+		}
 		if z == s || z == t {
 			continue
 		}
@@ -782,8 +1007,10 @@ func (sc *scratch) generate() searchResult {
 	var f1ok, t1ok, f2ok, t2ok, f1cut, t1cut, f2cut, t2cut bool
 	sc.f1, f1ok, f1cut = sc.layer1(sc.f1, s, t)
 	sc.t1, t1ok, t1cut = sc.layer1(sc.t1, t, s)
-	sc.f2, f2ok, f2cut = sc.layer2(sc.f2, sc.f1, f1ok, s, t)
-	sc.t2, t2ok, t2cut = sc.layer2(sc.t2, sc.t1, t1ok, t, s)
+	liveF, liveT := sc.liveNodes()
+	sc.f2, f2ok, f2cut = sc.layer2(sc.f2, sc.f1, f1ok, s, t, liveF, &sc.nF2)
+	sc.t2, t2ok, t2cut = sc.layer2(sc.t2, sc.t1, t1ok, t, s, liveT, &sc.nT2)
+	sc.totF2, sc.totT2 = sumCounts(sc.nF2), sumCounts(sc.nT2)
 	skip3 := H < 3 || (sc.inc.ok && sc.bound(3) <= sc.inc.score)
 	sc.matchJoins(skip3)
 	sc.joinAll()
@@ -795,20 +1022,20 @@ func (sc *scratch) generate() searchResult {
 	beamOK = (bf2 && bt1) || (bf1 && bt2)
 	if H >= 3 && !skip3 {
 		// The three-bridge join reads only B paths per side (beam3).
-		beamOK = beamOK && bf2 && bt2 && len(sc.f2) <= sc.st.beam && len(sc.t2) <= sc.st.beam
+		beamOK = beamOK && bf2 && bt2 && sc.totF2 <= sc.st.beam && sc.totT2 <= sc.st.beam
 	}
 	return sc.result(beamOK)
 }
 
-// matchJoins lists the matches of the joins, in the order a sort-merge
-// of the id-sorted beams meets them (the order the joins process them in,
-// which decides heap ties and pruning): F2 ⋈ T1 by ascending (b, position
-// in F2), F1 ⋈ T2 by ascending (b, position in T2), and, unless skip3,
-// F2 ⋈ T2 by ascending (b, position in F2, position in T2). The matches
-// are found by hashing the ids of one side (idIndex) and sorting only the
-// matches, a few dozen per decision, instead of sorting all four beams and
-// merging them (whose data-dependent branches mispredict about every
-// other step). O(B) expected plus O(M·log M) for M matches.
+// matchJoins lists the matches of the joins: F2 ⋈ T1 and F1 ⋈ T2 in layer
+// order, each with its key (b, position in F2 or T2), the order a
+// sort-merge of the id-sorted beams would meet them in, which joinAll uses
+// to break ties; and, unless skip3, F2 ⋈ T2 in ascending (b, position in
+// F2, position in T2). The matches are found by hashing the ids of one
+// side (idIndex) instead of sorting all four beams and merging them (whose
+// data-dependent branches mispredict about every other step); only the
+// three-bridge join sorts its few keys. O(B·f) expected plus O(M3·log M3)
+// for M3 three-bridge matches.
 func (sc *scratch) matchJoins(skip3 bool) {
 	f1, t1, f2, t2 := sc.f1, sc.t1, sc.f2, sc.t2
 	sc.joinA, sc.joinB, sc.joinC = sc.joinA[:0], sc.joinB[:0], sc.joinC[:0]
@@ -839,27 +1066,25 @@ func (sc *scratch) matchJoins(skip3 bool) {
 		if fired(i) {
 			return
 		}
-		if _, ok := sc.t1ids.get(uint64(f2[i].b)); ok {
-			sc.joinA = append(sc.joinA, uint64(f2[i].b)<<32|uint64(i))
+		if yi, ok := sc.t1ids.get(uint64(f2[i].b)); ok {
+			sc.joinA = append(sc.joinA, jpair{key: uint64(f2[i].b)<<32 | uint64(i), end: yi})
 		}
 	}
-	slices.Sort(sc.joinA)
 	for i := range t2 {
 		if fired(i) {
 			return
 		}
-		if _, ok := sc.f1ids.get(uint64(t2[i].b)); ok {
-			sc.joinB = append(sc.joinB, uint64(t2[i].b)<<32|uint64(i))
+		if xi, ok := sc.f1ids.get(uint64(t2[i].b)); ok {
+			sc.joinB = append(sc.joinB, jpair{key: uint64(t2[i].b)<<32 | uint64(i), end: xi})
 		}
 	}
-	slices.Sort(sc.joinB)
 	if skip3 {
 		return
 	}
 	// The F2 paths whose end T2 has, then the T2 paths whose end is one
 	// of those (few, so their index is small), both sorted, then merged
 	// group by group.
-	r3f, r3t := sc.beam3(f2), sc.beam3(t2)
+	r3f, r3t := sc.beam3(sc.nF2, sc.totF2), sc.beam3(sc.nT2, sc.totT2)
 	sc.t2ends.reset(len(t2))
 	for i := range t2 {
 		if r3t.in(&t2[i]) {
@@ -917,25 +1142,29 @@ type rankCut struct{ r, li int32 }
 
 func (c rankCut) in(p *step2) bool { return p.r < c.r || (p.r == c.r && p.li < c.li) }
 
-// beam3 returns the three-bridge beam of the second layer l: its B paths
-// first in (rank position, first-layer position) order, i.e. the B paths a
-// breadth-first walk of the first-layer nodes' ranked lists takes (the
-// best-ranked extension of every node, then the second-best, …). The
-// two-bridge joins use all of l (fan-out f per node); the three-bridge join
-// F2 ⋈ T2, whose matches grow with the product of the two layers, uses this
-// beam of B paths per side. O(|l|).
-func (sc *scratch) beam3(l []step2) rankCut {
+// beam3 returns the three-bridge beam of a second layer, from the path
+// counts of its first-layer nodes (counts[li] paths of node li, at rank
+// positions 0, 1, …) and their sum total: its B paths first in (rank
+// position, first-layer position) order, i.e. the B paths a breadth-first
+// walk of the first-layer nodes' ranked lists takes (the best-ranked
+// extension of every node, then the second-best, …). The two-bridge joins
+// use the whole layer (fan-out f per node); the three-bridge join F2 ⋈ T2,
+// whose matches grow with the product of the two layers, uses this beam of
+// B paths per side. O(total).
+func (sc *scratch) beam3(counts []int32, total int) rankCut {
 	B := sc.st.beam
-	if len(l) <= B {
+	if total <= B {
 		return rankCut{r: math.MaxInt32}
 	}
+	// cnt[r]: the nodes with a path at rank position r.
 	cnt := sc.rcount[:0]
-	for i := range l {
-		r := int(l[i].r)
-		for len(cnt) <= r {
+	for _, n := range counts {
+		for len(cnt) < int(n) {
 			cnt = append(cnt, 0)
 		}
-		cnt[r]++
+		for r := range int(n) {
+			cnt[r]++
+		}
 	}
 	sc.rcount = cnt
 	left := B
@@ -945,38 +1174,54 @@ func (sc *scratch) beam3(l []step2) rankCut {
 			continue
 		}
 		// Level r is taken in part: its first `left` paths by li.
-		li := int32(math.MaxInt32)
+		li := int32(-1)
 		if left > 0 {
 			seen := 0
-			for i := range l {
-				if int(l[i].r) == r {
+			for i, n := range counts {
+				if int(n) > r {
 					seen++
 					if seen == left+1 {
-						li = l[i].li
+						li = int32(i)
 						break
 					}
 				}
 			}
-		} else {
-			li = -1
 		}
 		return rankCut{r: int32(r), li: li}
 	}
 	return rankCut{r: math.MaxInt32}
 }
 
+// sumCounts is the sum of path counts. O(len).
+func sumCounts(counts []int32) int {
+	t := 0
+	for _, n := range counts {
+		t += int(n)
+	}
+	return t
+}
+
 // match3 is a match of F2 ⋈ T2: positions in F2 and T2.
 type match3 struct{ f, t uint32 }
+
+// jpair is a match of F2 ⋈ T1 (or F1 ⋈ T2): key is b<<32 | the path's
+// position in F2 (T2), end the position of b in T1 (F1).
+type jpair struct {
+	key uint64
+	end int32
+}
 
 // jmatch is one join match (matchJoins) waiting to become a chain: kind
 // 0 is F2 ⋈ T1 (i in joinA), 1 is F1 ⋈ T2 (i in joinB), 2 is F2 ⋈ T2 (i
 // in joinC). lb is a lower bound of the chain's proxy cost: its two
 // first-layer edges (the end edges) plus β·m, the middle edges counted as
-// 0 (EdgeCost ≥ 0).
+// 0 (EdgeCost ≥ 0). ord breaks ties within a kind: the match's key (kinds
+// 0 and 1) or i (kind 2, whose matches are listed in key order).
 type jmatch struct {
 	lb   float64
-	kind uint8
+	ord  uint64
 	i    int32
+	kind uint8
 }
 
 // joinChunk is the number of matches whose middle edges are fetched in one
@@ -990,17 +1235,29 @@ const joinChunk = 8
 //
 //  1. the end edges (s → first-layer node, first-layer node → t) of every
 //     match are fetched in one batch and costed (they are shared by many
-//     matches, a few dozen per decision);
-//  2. the matches are sorted by lb = end costs + β·m (ties by kind, then
-//     position: deterministic);
-//  3. in that order, chunks of joinChunk matches not yet prunable have
-//     their middle edges fetched in one batch and are pushed; the first
-//     match whose lb reaches the heap's largest cost ends the pass, since
-//     every later one is at least as costly (those are recorded as dropped
-//     chains, see candidatesCut).
+//     matches: at most |F1| + |T1| distinct edges, whatever M);
+//  2. every match gets lb = end costs + β·m; when the heap already holds k
+//     candidates, a match whose lb reaches the heap's largest cost is
+//     dropped at once (that cost only falls as the heap fills with cheaper
+//     chains, so the match would be pruned wherever it came; it is
+//     recorded as a dropped chain, see candidatesCut), which on a dense
+//     index is most of them;
+//  3. in (lb, kind, key) order, popped from a heap, chunks of joinChunk
+//     matches not yet prunable have their middle edges fetched in one
+//     batch and are pushed; the first match whose lb reaches the heap's
+//     largest cost ends the pass, since every later one is at least as
+//     costly (those are dropped chains too).
 //
-// Cost: O(M·log M) for M matches plus the look-ups of the end edges and of
-// the middle edges of the matches scored before the bound prunes.
+// The order (lb, kind, key) is total and does not depend on the order
+// matchJoins lists the matches in, so neither do the pushes, the prunes
+// nor the drops. The end edges are costed (and charged to the budget) in
+// that listing order, which matters only when the budget cannot cover
+// every first-layer node: then the matches are first sorted by key, the
+// order a sort-merge join meets them in.
+//
+// Cost: O(M + P·log M) for M matches of which P are popped, plus the
+// look-ups of the end edges and of the middle edges of the matches scored
+// before the bound prunes.
 func (sc *scratch) joinAll() {
 	s, t := sc.s, sc.t
 	f1, t1, f2, t2 := sc.f1, sc.t1, sc.f2, sc.t2
@@ -1009,42 +1266,67 @@ func (sc *scratch) joinAll() {
 	if n == 0 {
 		return
 	}
-	// 1. End edges.
+	if sc.bud.left < (len(f1)+len(t1))*lookupUnits {
+		byKey := func(x, y jpair) int { return cmp.Compare(x.key, y.key) }
+		slices.SortFunc(sc.joinA, byKey)
+		slices.SortFunc(sc.joinB, byKey)
+	}
+	// 1. End edges, each queued once.
 	if sc.beginPrefetch(sc.bud.left/lookupUnits + 1) {
-		for _, k := range sc.joinA {
-			f := &f2[uint32(k)]
-			sc.want(s, f.a)
-			sc.want(f.b, t)
+		endF, endT := resetMarks(sc.endF, len(f1)), resetMarks(sc.endT, len(t1))
+		wantF := func(i int32) {
+			if !endF[i] && f1[i].cost != f1[i].cost { // not yet costed
+				endF[i] = true
+				sc.want(s, f1[i].id)
+			}
 		}
-		for _, k := range sc.joinB {
-			y := &t2[uint32(k)]
-			sc.want(s, y.b)
-			sc.want(y.a, t)
+		wantT := func(i int32) {
+			if !endT[i] && t1[i].cost != t1[i].cost {
+				endT[i] = true
+				sc.want(t1[i].id, t)
+			}
+		}
+		for _, p := range sc.joinA {
+			wantF(f2[uint32(p.key)].li)
+			wantT(p.end)
+		}
+		for _, p := range sc.joinB {
+			wantF(p.end)
+			wantT(t2[uint32(p.key)].li)
 		}
 		for _, mt := range sc.joinC {
-			sc.want(s, f2[mt.f].a)
-			sc.want(t2[mt.t].a, t)
+			wantF(f2[mt.f].li)
+			wantT(t2[mt.t].li)
 		}
+		sc.endF, sc.endT = endF, endT
 		sc.fetch()
 	}
-	// 2. Lower bounds.
+	// 2. Lower bounds; matches the heap bound already prunes are dropped.
+	bar := math.Inf(1)
+	if k := sc.st.maxCand; k > 0 && len(sc.heap) == k {
+		bar = sc.heap[0].cost
+	}
 	ms := sc.jms[:0]
-	for i, k := range sc.joinA {
-		f := &f2[uint32(k)]
-		yi, _ := sc.t1ids.get(uint64(f.b))
-		c1, ok1 := sc.cost1(f1, f.li, s)
-		c3, ok3 := sc.cost1(t1, yi, t)
+	for i, p := range sc.joinA {
+		c1, ok1 := sc.cost1(f1, f2[uint32(p.key)].li, s)
+		c3, ok3 := sc.cost1(t1, p.end, t)
 		if ok1 && ok3 {
-			ms = append(ms, jmatch{lb: c1 + c3 + 2*hb, kind: 0, i: int32(i)})
+			if lb := c1 + c3 + 2*hb; lb < bar {
+				ms = append(ms, jmatch{lb: lb, ord: p.key, i: int32(i), kind: 0})
+			} else {
+				sc.drop(2)
+			}
 		}
 	}
-	for i, k := range sc.joinB {
-		y := &t2[uint32(k)]
-		xi, _ := sc.f1ids.get(uint64(y.b))
-		c1, ok1 := sc.cost1(f1, xi, s)
-		c3, ok3 := sc.cost1(t1, y.li, t)
+	for i, p := range sc.joinB {
+		c1, ok1 := sc.cost1(f1, p.end, s)
+		c3, ok3 := sc.cost1(t1, t2[uint32(p.key)].li, t)
 		if ok1 && ok3 {
-			ms = append(ms, jmatch{lb: c1 + c3 + 2*hb, kind: 1, i: int32(i)})
+			if lb := c1 + c3 + 2*hb; lb < bar {
+				ms = append(ms, jmatch{lb: lb, ord: p.key, i: int32(i), kind: 1})
+			} else {
+				sc.drop(2)
+			}
 		}
 	}
 	for i, mt := range sc.joinC {
@@ -1055,7 +1337,11 @@ func (sc *scratch) joinAll() {
 		c1, ok1 := sc.cost1(f1, f.li, s)
 		c4, ok4 := sc.cost1(t1, y.li, t)
 		if ok1 && ok4 {
-			ms = append(ms, jmatch{lb: c1 + c4 + 3*hb, kind: 2, i: int32(i)})
+			if lb := c1 + c4 + 3*hb; lb < bar {
+				ms = append(ms, jmatch{lb: lb, ord: uint64(i), i: int32(i), kind: 2})
+			} else {
+				sc.drop(3)
+			}
 		}
 	}
 	// 3. Chunks in lower-bound order, popped from a heap: the search
@@ -1087,10 +1373,10 @@ func (sc *scratch) joinAll() {
 			for _, m := range chunk {
 				switch m.kind {
 				case 0:
-					f := &f2[uint32(sc.joinA[m.i])]
+					f := &f2[uint32(sc.joinA[m.i].key)]
 					sc.want(f.a, f.b)
 				case 1:
-					y := &t2[uint32(sc.joinB[m.i])]
+					y := &t2[uint32(sc.joinB[m.i].key)]
 					sc.want(y.b, y.a)
 				default:
 					mt := sc.joinC[m.i]
@@ -1106,8 +1392,8 @@ func (sc *scratch) joinAll() {
 	}
 }
 
-// jmLess orders join matches by (lower bound, kind, index): a total order,
-// since the index is unique within a kind.
+// jmLess orders join matches by (lower bound, kind, ord): a total order,
+// since ord is unique within a kind.
 func jmLess(a, b *jmatch) bool {
 	if a.lb != b.lb {
 		return cmp.Less(a.lb, b.lb)
@@ -1115,7 +1401,17 @@ func jmLess(a, b *jmatch) bool {
 	if a.kind != b.kind {
 		return a.kind < b.kind
 	}
-	return a.i < b.i
+	return a.ord < b.ord
+}
+
+// resetMarks returns marks resized to n entries, all false. O(n).
+func resetMarks(marks []bool, n int) []bool {
+	if cap(marks) < n {
+		return make([]bool, n)
+	}
+	marks = marks[:n]
+	clear(marks)
+	return marks
 }
 
 // jmSiftDown restores the min-heap order of h (by jmLess) below i.
@@ -1148,8 +1444,8 @@ func (sc *scratch) joinOne(m jmatch) {
 	hb := sc.hb
 	switch m.kind {
 	case 0: // s→a→b, b→t
-		f := &f2[uint32(sc.joinA[m.i])]
-		yi, _ := sc.t1ids.get(uint64(f.b))
+		f := &f2[uint32(sc.joinA[m.i].key)]
+		yi := sc.joinA[m.i].end
 		if sc.prune(known(f1[f.li].cost)+known(f.c2)+known(t1[yi].cost)+2*hb, 2) {
 			return
 		}
@@ -1160,8 +1456,8 @@ func (sc *scratch) joinOne(m jmatch) {
 			sc.push(cand{cost: c1 + c2 + c3 + 2*hb, b: [3]graphidx.EntityID{f.a, f.b}, m: 2}, true)
 		}
 	case 1: // s→b (F1), t→c→b (T2): s→b→c→t
-		y := &t2[uint32(sc.joinB[m.i])]
-		xi, _ := sc.f1ids.get(uint64(y.b))
+		y := &t2[uint32(sc.joinB[m.i].key)]
+		xi := sc.joinB[m.i].end
 		if sc.prune(known(f1[xi].cost)+known(y.c2)+known(t1[y.li].cost)+2*hb, 2) {
 			return
 		}

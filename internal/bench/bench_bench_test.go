@@ -1,14 +1,17 @@
 package bench
 
 import (
+	"bytes"
 	"context"
 	"os"
 	"path/filepath"
+	"runtime"
 	"sync"
 	"testing"
 
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/internal/stress"
+	"github.com/hopwise/hopwise/internal/world"
 	"github.com/hopwise/hopwise/router"
 	"github.com/hopwise/hopwise/scorer"
 )
@@ -109,12 +112,26 @@ func reportShares(b *testing.B, n, trunc, chains int) {
 
 // BenchmarkRouterUncached decides distinct queries without the cache.
 func BenchmarkRouterUncached(b *testing.B) {
-	rt := benchRouter(b, 0)
+	decideLoop(b, benchRouter(b, 0), shared.qs, nil)
+}
+
+// decideLoop decides qs in turn under b.Loop and reports the shares of
+// truncated decisions and chains (reportShares); with cpu not nil it
+// appends each decision's thread CPU time in nanoseconds (the caller locks
+// its OS thread).
+func decideLoop(b *testing.B, rt *router.Router, qs []router.Query, cpu *[]float64) {
 	ctx := context.Background()
 	b.ReportAllocs()
 	i, trunc, chains := 0, 0, 0
 	for b.Loop() {
-		d, err := rt.Decide(ctx, shared.qs[i%len(shared.qs)])
+		c0 := int64(0)
+		if cpu != nil {
+			c0 = threadCPU()
+		}
+		d, err := rt.Decide(ctx, qs[i%len(qs)])
+		if cpu != nil {
+			*cpu = append(*cpu, float64(threadCPU()-c0))
+		}
 		if err != nil {
 			b.Fatal(err)
 		}
@@ -230,4 +247,75 @@ func BenchmarkGenerate(b *testing.B) {
 		b.Fatal(g, err)
 	}
 	b.ReportMetric(float64(g.NumPairs()), "pairs")
+}
+
+// BenchmarkRouterUncachedDense decides distinct queries without the cache
+// on a dense index: the greenhouse world of the gateway example (seed 1,
+// 30 000 local contexts), 119 entities with about 117 neighbours each, more
+// than the rank prefix, so every search fills both layers. The cached row
+// is the baseline of the same run (the cost a repeated question pays).
+// The uncached row also reports the deciding thread's CPU time per
+// decision (p50, p99), which the machine's other load inflates less than
+// ns/op.
+func BenchmarkRouterUncachedDense(b *testing.B) {
+	w, err := world.Greenhouse(1)
+	if err != nil {
+		b.Fatal(err)
+	}
+	cond, err := world.ConditionByName(world.CondLocalGeometric)
+	if err != nil {
+		b.Fatal(err)
+	}
+	var corpus bytes.Buffer
+	if _, err := w.WriteCorpus(context.Background(), &corpus, 30000, cond, 1); err != nil {
+		b.Fatal(err)
+	}
+	path := filepath.Join(b.TempDir(), "dense.hwx")
+	rd := graphidx.NewJSONLReader(&corpus, "greenhouse.jsonl", graphidx.WithPolicy(graphidx.Strict))
+	if _, err := graphidx.Build(context.Background(), rd, path); err != nil {
+		b.Fatal(err)
+	}
+	ix, err := graphidx.Open(path)
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.Cleanup(func() { ix.Close() })
+	model, err := scorer.NewBayes()
+	if err != nil {
+		b.Fatal(err)
+	}
+	qs := makeQueriesIx(ix, 4096, 2)
+	for _, tc := range []struct {
+		name  string
+		cache int
+	}{{"uncached", 0}, {"cached", 2 * len(qs)}} {
+		b.Run(tc.name, func(b *testing.B) {
+			rt, err := newRouter(ix, model, DefaultBounds(), tc.cache)
+			if err != nil {
+				b.Fatal(err)
+			}
+			defer rt.Close()
+			ctx := context.Background()
+			if tc.cache > 0 {
+				for _, q := range qs { // every timed call is a hit
+					if _, err := rt.Decide(ctx, q); err != nil {
+						b.Fatal(err)
+					}
+				}
+			}
+			var cpu []float64
+			rec := &cpu
+			if tc.cache > 0 {
+				rec = nil
+			} else {
+				runtime.LockOSThread()
+				defer runtime.UnlockOSThread()
+			}
+			decideLoop(b, rt, qs, rec)
+			if l := summarize(cpu); l.P50 > 0 {
+				b.ReportMetric(l.P50/1e3, "cpu-p50-µs")
+				b.ReportMetric(l.P99/1e3, "cpu-p99-µs")
+			}
+		})
+	}
 }

@@ -296,8 +296,8 @@ func TestRunSmall(t *testing.T) {
 			t.Errorf("%s: nothing checked: %+v %+v", c.Name, c.Map, c.Gonum)
 		}
 	}
-	if rep.Graph.BuildMode != "graphidx.Build" || len(rep.Targets) < 8 {
-		t.Errorf("build %q, %d targets", rep.Graph.BuildMode, len(rep.Targets))
+	if rep.Graph.BuildMode != "graphidx.Build" || rep.Graph.Open != "mmap" || len(rep.Targets) < 8 {
+		t.Errorf("build %q, open %q, %d targets", rep.Graph.BuildMode, rep.Graph.Open, len(rep.Targets))
 	}
 	var tab bytes.Buffer
 	if err := rep.WriteTable(&tab); err != nil {

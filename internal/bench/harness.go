@@ -74,6 +74,9 @@ type RunConfig struct {
 	// 0 keeps graphidx.DefaultRankPrefix).
 	RankPrefix int
 	IndexPath  string
+	// ReadIndex opens the index with graphidx.WithoutMmap (a private copy,
+	// on Linux with transparent huge pages) instead of mapping it.
+	ReadIndex bool
 	// Progress receives one line per phase (nil: silent).
 	Progress io.Writer
 }
@@ -183,6 +186,8 @@ type GraphInfo struct {
 	BuildSeconds float64 `json:"build_seconds"`
 	IndexBytes   int64   `json:"index_bytes"`
 	RankPrefix   int     `json:"rank_prefix"`
+	// Open is how the index was opened: "mmap" or "read" (ReadIndex).
+	Open string `json:"open"`
 }
 
 // Report is the result of Run.
@@ -269,7 +274,12 @@ func Run(ctx context.Context, cfg RunConfig) (*Report, error) {
 	if err := r.build(ctx, g, path, rep); err != nil {
 		return nil, err
 	}
-	ix, err := graphidx.Open(path)
+	var openOpts []graphidx.OpenOption
+	rep.Graph.Open = "mmap"
+	if cfg.ReadIndex {
+		openOpts, rep.Graph.Open = append(openOpts, graphidx.WithoutMmap()), "read"
+	}
+	ix, err := graphidx.Open(path, openOpts...)
 	if err != nil {
 		return nil, fmt.Errorf("bench: open %s: %w", path, err)
 	}

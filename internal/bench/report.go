@@ -83,8 +83,8 @@ func (r *Report) WriteTable(w io.Writer) error {
 	g := r.Graph
 	fmt.Fprintf(&b, "graph: %d entities, avg degree %.2f (asked %g), γ=%g, seed %d, %d pairs, %d contexts, mean support %.2f\n",
 		g.Entities, g.MeanDegree, g.AvgDegreeCfg, g.Gamma, g.Seed, g.Pairs, g.Contexts, g.MeanSupport)
-	fmt.Fprintf(&b, "hub: %s with %d neighbours; index %d bytes (rank prefix %d) via %s (generate %.1fs, build %.1fs)\n",
-		g.HubName, g.HubDegree, g.IndexBytes, g.RankPrefix, g.BuildMode, g.GenSeconds, g.BuildSeconds)
+	fmt.Fprintf(&b, "hub: %s with %d neighbours; index %d bytes (rank prefix %d, opened by %s) via %s (generate %.1fs, build %.1fs)\n",
+		g.HubName, g.HubDegree, g.IndexBytes, g.RankPrefix, g.Open, g.BuildMode, g.GenSeconds, g.BuildSeconds)
 	fmt.Fprintf(&b, "bounds: H=%d B=%d f=%d k=%d budget=%d τ=%g; GOMAXPROCS=%d; timer overhead %.0f ns\n\n",
 		r.Bounds.MaxBridges, r.Bounds.Beam, r.Bounds.FanOut, r.Bounds.MaxCandidates, r.Bounds.Budget, r.Bounds.GainThreshold, r.GOMAXPROCS, r.TimerNs)
 

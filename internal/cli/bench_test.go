@@ -26,7 +26,7 @@ func TestBenchJSON(t *testing.T) {
 		t.Skip("runs every bench phase (several seconds)")
 	}
 	out, progress, err := runBenchCmd(t, "--entities", "1500", "--avg-degree", "4", "--queries", "60",
-		"--agree-queries", "30", "--hub", "--hub-queries", "30", "--seed", "7", "--json")
+		"--agree-queries", "30", "--hub", "--hub-queries", "30", "--seed", "7", "--open", "read", "--json")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -34,7 +34,7 @@ func TestBenchJSON(t *testing.T) {
 	if err := json.Unmarshal([]byte(out), &rep); err != nil {
 		t.Fatalf("not JSON: %v\n%s", err, out)
 	}
-	if rep.Graph.Entities != 1500 || rep.Graph.Seed != 7 || rep.Uncached.Latency.N != 60 || rep.Hub == nil || rep.Gonum == nil {
+	if rep.Graph.Entities != 1500 || rep.Graph.Seed != 7 || rep.Graph.Open != "read" || rep.Uncached.Latency.N != 60 || rep.Hub == nil || rep.Gonum == nil {
 		t.Errorf("report %+v", rep)
 	}
 	if !strings.Contains(progress, "bench ") || strings.Contains(out, "bench ") {
@@ -47,6 +47,7 @@ func TestBenchBadFlags(t *testing.T) {
 	for _, args := range [][]string{
 		{"--baselines", "sometimes"},
 		{"--build", "fast"},
+		{"--open", "disk"},
 		{"--queries", "0"},
 		{"--entities", "1"},
 		{"--beam", "0"},

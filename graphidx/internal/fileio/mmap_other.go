@@ -17,3 +17,9 @@ func MapFile(f *os.File, size int) ([]byte, func() error, error) {
 	}
 	return b, func() error { return nil }, nil
 }
+
+// ReadAnon reads the file into 8-aligned memory (ReadAligned) on platforms
+// without mmap support in this package. Release is a no-op.
+func ReadAnon(f *os.File, size int) ([]byte, func() error, error) {
+	return MapFile(f, size)
+}

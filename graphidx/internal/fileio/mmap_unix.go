@@ -4,6 +4,7 @@ package fileio
 
 import (
 	"fmt"
+	"io"
 	"os"
 
 	"golang.org/x/sys/unix"
@@ -21,4 +22,33 @@ func MapFile(f *os.File, size int) ([]byte, func() error, error) {
 		return nil, nil, fmt.Errorf("graphidx: mmap %s: %w", f.Name(), err)
 	}
 	return b, func() error { return unix.Munmap(b) }, nil
+}
+
+// ReadAnon reads size bytes of f into a private anonymous mapping, asks the
+// kernel to back it with transparent huge pages where it can (adviseHuge),
+// and makes it read-only. An index read this way costs its size in memory
+// that no other process shares, and the read takes O(size) at open, but
+// its random reads take fewer TLB misses than through the page cache's 4 KiB
+// pages: on a 642 MB index, uncached router decisions took about 15% less
+// CPU. The returned release function unmaps the memory.
+func ReadAnon(f *os.File, size int) ([]byte, func() error, error) {
+	if size <= 0 {
+		b, err := ReadAligned(f, size)
+		return b, func() error { return nil }, err
+	}
+	b, err := unix.Mmap(-1, 0, size, unix.PROT_READ|unix.PROT_WRITE, unix.MAP_PRIVATE|unix.MAP_ANON)
+	if err != nil {
+		return nil, nil, fmt.Errorf("graphidx: allocate %d bytes for %s: %w", size, f.Name(), err)
+	}
+	release := func() error { return unix.Munmap(b) }
+	adviseHuge(b)
+	if _, err := io.ReadFull(io.NewSectionReader(f, 0, int64(size)), b); err != nil {
+		release()
+		return nil, nil, fmt.Errorf("graphidx: read %s: %w", f.Name(), err)
+	}
+	if err := unix.Mprotect(b, unix.PROT_READ); err != nil {
+		release()
+		return nil, nil, fmt.Errorf("graphidx: protect the copy of %s: %w", f.Name(), err)
+	}
+	return b, release, nil
 }
