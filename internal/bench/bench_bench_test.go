@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/graphidx/corpus"
 	"github.com/hopwise/hopwise/internal/stress"
 	"github.com/hopwise/hopwise/internal/world"
 	"github.com/hopwise/hopwise/router"
@@ -266,12 +267,12 @@ func BenchmarkRouterUncachedDense(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
-	var corpus bytes.Buffer
-	if _, err := w.WriteCorpus(context.Background(), &corpus, 30000, cond, 1); err != nil {
+	var buf bytes.Buffer
+	if _, err := w.WriteCorpus(context.Background(), &buf, 30000, cond, 1); err != nil {
 		b.Fatal(err)
 	}
 	path := filepath.Join(b.TempDir(), "dense.hwx")
-	rd := graphidx.NewJSONLReader(&corpus, "greenhouse.jsonl", graphidx.WithPolicy(graphidx.Strict))
+	rd := corpus.NewJSONLReader(&buf, "greenhouse.jsonl", graphidx.WithPolicy(graphidx.Strict))
 	if _, err := graphidx.Build(context.Background(), rd, path); err != nil {
 		b.Fatal(err)
 	}
