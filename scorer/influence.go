@@ -33,10 +33,16 @@ const (
 // keep that TV, an upper bound of their term); π_w = P̂(w | s = u) is row u
 // of the pair (s, w)'s posterior means, m_w = P̂(w) the smoothed marginal of
 // w, Θ_(w→z) the posterior-mean matrix of the pair (w, z) and TV half the L1
-// norm. A result with 2·B² ≥ stop may be cut short (the caller's cap
-// cannot bind). ok is false when st lacks ranked neighbours, neighbour
+// norm. Two tests on the tables read drop terms (see Bayes, "Influence
+// bound"): a route through a common effect w of s and another neighbour p
+// (colliderAt) to p or to a z on p's side of w (behind) is no route; and a
+// moved neighbour whose change a more moved neighbour observed with t
+// explains (explains) adds no term to B_t. A result with 2·B² ≥ stop may
+// be cut short (the caller's cap cannot bind). ok is false when st lacks ranked neighbours, neighbour
 // lists or marginals, or no neighbour of s has a table and a marginal.
-// Cost as InfluenceFirst says, O(K²) arithmetic per look-up, no allocation.
+// Cost as InfluenceFirst says plus at most 2·ColliderTests tables for the
+// tests and two per blocked route, O(K³) arithmetic per look-up, no
+// allocation.
 func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, stop float64) (float64, bool, error) {
 	rn, ok := st.(RankedNeighborer)
 	if !ok {
