@@ -81,18 +81,12 @@ type inflNeighbour struct {
 // One pair look-up, O(K_w·K_p), no allocation.
 func (b *Bayes) colliderAt(st Stats, nb []inflNeighbour, i, j, u int) (bool, error) {
 	w, p := &nb[i], &nb[j]
-	if p.n == 0 || w.n == 0 || significant(p.x2, p.k) {
+	if significant(p.x2, p.k) {
 		return false, nil
 	}
-	wp, ok, err := pair(st, w.id, p.id, w.k, p.k)
-	if err != nil || !ok {
+	x2, wp, ok, err := b.twoStepFit(st, nb, i, j, u)
+	if err != nil || !ok || !significant(x2, p.k) {
 		return false, err
-	}
-	var q [graphidx.MaxValues]float64
-	b.predict(q[:p.k], w.pi[:w.k], wp)
-	neff := 1 / (1/p.n + 1/w.n)
-	if !significant(rowFit(p.ps, u, q[:p.k], neff), p.k) {
-		return false, nil
 	}
 	w.wp = wp
 	return true, nil
@@ -215,18 +209,31 @@ func (e *inflNeighbour) dev() []float64 { return e.d[:e.k] }
 // through w1 first, and w1's own term over the table (w1, t) already
 // covers it. One pair look-up, O(K_w1·K_w2), no allocation.
 func (b *Bayes) explains(st Stats, nb []inflNeighbour, i, j, u int) (bool, error) {
-	w1, w2 := &nb[i], &nb[j]
-	if w1.n == 0 || w2.n == 0 {
-		return false, nil
-	}
-	ps, ok, err := pair(st, w1.id, w2.id, w1.k, w2.k)
+	x2, _, ok, err := b.twoStepFit(st, nb, i, j, u)
 	if err != nil || !ok {
 		return false, err
 	}
+	return !significant(x2, nb[j].k), nil
+}
+
+// twoStepFit returns Pearson's X² of row u of (s, a2), a2 = nb[j], against
+// the two-step prediction q = π_a1ᵀ Θ_(a1→a2) through a1 = nb[i] (predict),
+// on the effective count 1/(1/n_a1 + 1/n_a2) of the two rows, and the
+// table (a1, a2); ok is false when a row is empty or the pair was never
+// observed. One pair look-up, O(K_a1·K_a2), no allocation.
+func (b *Bayes) twoStepFit(st Stats, nb []inflNeighbour, i, j, u int) (float64, graphidx.PairStats, bool, error) {
+	a1, a2 := &nb[i], &nb[j]
+	if a1.n == 0 || a2.n == 0 {
+		return 0, graphidx.PairStats{}, false, nil
+	}
+	ps, ok, err := pair(st, a1.id, a2.id, a1.k, a2.k)
+	if err != nil || !ok {
+		return 0, ps, false, err
+	}
 	var q [graphidx.MaxValues]float64
-	b.predict(q[:w2.k], w1.pi[:w1.k], ps)
-	neff := 1 / (1/w1.n + 1/w2.n)
-	return !significant(rowFit(w2.ps, u, q[:w2.k], neff), w2.k), nil
+	b.predict(q[:a2.k], a1.pi[:a1.k], ps)
+	neff := 1 / (1/a1.n + 1/a2.n)
+	return rowFit(a2.ps, u, q[:a2.k], neff), ps, true, nil
 }
 
 // predict sets q = πᵀ Θ, Θ the posterior means of the table ps (K_A = len(π)
