@@ -1,6 +1,8 @@
 package scorer
 
 import (
+	"math"
+
 	"github.com/hopwise/hopwise/graphidx"
 	"gonum.org/v1/gonum/stat/distuv"
 )
@@ -84,7 +86,7 @@ func (b *Bayes) colliderAt(st Stats, nb []inflNeighbour, i, j, u int) (bool, err
 	if significant(p.x2, p.k) {
 		return false, nil
 	}
-	x2, wp, ok, err := b.twoStepFit(st, nb, i, j, u)
+	x2, _, wp, ok, err := b.twoStepFit(st, nb, i, j, u)
 	if err != nil || !ok || !significant(x2, p.k) {
 		return false, err
 	}
@@ -198,42 +200,59 @@ func (b *Bayes) behind(st Stats, nb []inflNeighbour, i int, z graphidx.EntityID)
 // first pass). O(1).
 func (e *inflNeighbour) dev() []float64 { return e.d[:e.k] }
 
-// explains reports whether the neighbour w1 = nb[i] of s carries the whole
-// change that s = u makes to the neighbour w2 = nb[j] (see Bayes,
-// "Influence bound", mediated neighbours): row u of (s, w2) does not
-// reject the two-step prediction q = π_w1ᵀ Θ_(w1→w2) (Pearson X² against
-// q on the effective count 1/(1/n_w1 + 1/n_w2), not significant at
+// explains tests whether the neighbour w1 = nb[i] of s carries the change
+// that s = u makes to the neighbour w2 = nb[j] (see Bayes, "Influence
+// bound", mediated neighbours): row u of (s, w2) does not reject the
+// two-step prediction q = π_w1ᵀ Θ_(w1→w2) (Pearson X² against q on the
+// effective count n_e = 1/(1/n_w1 + 1/n_w2), not significant at
 // ColliderLevel), while it does reject w2's marginal (the caller checks
 // that, so the test has something to explain). Then w1 separates s from
-// w2 as far as the change shows, every route from s through w2 runs
-// through w1 first, and w1's own term over the table (w1, t) already
-// covers it. One pair look-up, O(K_w1·K_w2), no allocation.
-func (b *Bayes) explains(st Stats, nb []inflNeighbour, i, j, u int) (bool, error) {
-	x2, _, ok, err := b.twoStepFit(st, nb, i, j, u)
+// w2 as far as the rows show, and every route from s through w2 runs
+// through w1 first, except a part of w2's change the test could not see:
+// dmin, the smallest total-variation residual it detects (at the 50 %
+// point: X² at the χ² quantile), placed on the two most likely values
+// of q, dmin² = χ²_(K−1)(1 − ColliderLevel)/(n_e·(1/q_(1) + 1/q_(2))). ok
+// is false when the prediction is rejected or a row is empty. One pair
+// look-up, O(K_w1·K_w2), no allocation.
+func (b *Bayes) explains(st Stats, nb []inflNeighbour, i, j, u int) (dmin float64, ok bool, err error) {
+	x2, dmin, _, ok, err := b.twoStepFit(st, nb, i, j, u)
 	if err != nil || !ok {
-		return false, err
+		return 0, false, err
 	}
-	return !significant(x2, nb[j].k), nil
+	return dmin, !significant(x2, nb[j].k), nil
 }
 
 // twoStepFit returns Pearson's X² of row u of (s, a2), a2 = nb[j], against
 // the two-step prediction q = π_a1ᵀ Θ_(a1→a2) through a1 = nb[i] (predict),
-// on the effective count 1/(1/n_a1 + 1/n_a2) of the two rows, and the
-// table (a1, a2); ok is false when a row is empty or the pair was never
-// observed. One pair look-up, O(K_a1·K_a2), no allocation.
-func (b *Bayes) twoStepFit(st Stats, nb []inflNeighbour, i, j, u int) (float64, graphidx.PairStats, bool, error) {
+// on the effective count n_e = 1/(1/n_a1 + 1/n_a2) of the two rows, the
+// smallest total-variation residual dmin that the test detects (see
+// explains), and the table (a1, a2); ok is false when a row is empty or
+// the pair was never observed. One pair look-up, O(K_a1·K_a2), no
+// allocation.
+func (b *Bayes) twoStepFit(st Stats, nb []inflNeighbour, i, j, u int) (x2, dmin float64, ps graphidx.PairStats, ok bool, err error) {
 	a1, a2 := &nb[i], &nb[j]
 	if a1.n == 0 || a2.n == 0 {
-		return 0, graphidx.PairStats{}, false, nil
+		return 0, 0, ps, false, nil
 	}
-	ps, ok, err := pair(st, a1.id, a2.id, a1.k, a2.k)
+	ps, ok, err = pair(st, a1.id, a2.id, a1.k, a2.k)
 	if err != nil || !ok {
-		return 0, ps, false, err
+		return 0, 0, ps, false, err
 	}
 	var q [graphidx.MaxValues]float64
 	b.predict(q[:a2.k], a1.pi[:a1.k], ps)
 	neff := 1 / (1/a1.n + 1/a2.n)
-	return rowFit(a2.ps, u, q[:a2.k], neff), ps, true, nil
+	q1, q2 := 0.0, 0.0 // the two largest q_v
+	for _, v := range q[:a2.k] {
+		if v > q1 {
+			q1, q2 = v, q1
+		} else if v > q2 {
+			q2 = v
+		}
+	}
+	if a2.k >= 2 && q2 > 0 {
+		dmin = math.Sqrt(chi2Crit[a2.k-1] / (neff * (1/q1 + 1/q2)))
+	}
+	return rowFit(a2.ps, u, q[:a2.k], neff), dmin, ps, true, nil
 }
 
 // predict sets q = πᵀ Θ, Θ the posterior means of the table ps (K_A = len(π)

@@ -68,7 +68,7 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 	// every neighbour w; the TV bounds every two-hop deviation through w.
 	var nb [InfluenceFirst]inflNeighbour
 	var tvs, tvT [InfluenceFirst]float64
-	var seenT, blockedT [InfluenceFirst]bool
+	var seenT [InfluenceFirst]bool
 	var out [graphidx.MaxValues]float64
 	n := 0
 	for _, w := range first {
@@ -157,9 +157,13 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 	}
 	// Mediated neighbours: a moved neighbour w2 whose change a neighbour
 	// w1 of larger TV, itself observed with the target and not mediated,
-	// explains; w2's route to the target is part of w1's term. At most
-	// ColliderTests tables (w1, w2).
+	// explains; of w2's route to the target only the part the test could
+	// not see remains, dmin·TV(d_t)/TV(π_w2, m_w2) (the route's
+	// contraction applied to the undetected residual); the rest is part of
+	// w1's term. At most ColliderTests tables (w1, w2).
 	var mediated [InfluenceFirst]bool
+	var termT [InfluenceFirst]float64 // each neighbour's term of B_t
+	copy(termT[:n], tvT[:n])
 	tests = 0
 	for a, i := range idx[:n] {
 		if tests == ColliderTests {
@@ -176,11 +180,14 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 				continue
 			}
 			tests++
-			ok, err := b.explains(st, nb[:n], i, j, u)
+			dmin, ok, err := b.explains(st, nb[:n], i, j, u)
 			if err != nil {
 				return 0, false, err
 			}
-			mediated[j] = ok
+			if ok && tvs[j] > 0 {
+				mediated[j] = true
+				termT[j] = min(tvT[j], dmin*tvT[j]/tvs[j])
+			}
 		}
 	}
 	tsum, tseen := 0.0, false
@@ -193,11 +200,10 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 		if err != nil {
 			return 0, false, err
 		}
-		blockedT[i] = blocked || mediated[i]
-		blocked = blockedT[i]
-		if !blocked {
-			tsum += tvT[i]
+		if blocked {
+			termT[i] = 0
 		}
+		tsum += termT[i]
 	}
 	if tseen && 2*tsum*tsum < stop {
 		stop = 2 * tsum * tsum // the refinement below matters only below it
@@ -219,8 +225,8 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 		w, kw := nb[i].id, nb[i].k
 		dev := nb[i].dev()
 		best := 0.0
-		if seenT[i] && !blockedT[i] {
-			best = tvT[i]
+		if seenT[i] {
+			best = termT[i]
 		}
 		second := 0
 		for _, z := range rn.RankedNeighbors(w) {

@@ -142,7 +142,7 @@ func TestPublishedNetworks(t *testing.T) {
 // test (tub and lung independent, both dependent on either) stops it from
 // passing tub's change of either on to lung's side. Measured (3 seeds):
 // routed 0.00267 before that test (0.00546 without the separation check),
-// 0.000244 with it (0.000362 without the check); marginal 0.00123. See
+// 0.000315 with it (0.00546 without the check); marginal 0.00123. See
 // docs/QUALITY.md. Heavy: skipped under -short.
 func TestPublishedAsiaFar(t *testing.T) {
 	if testing.Short() {
