@@ -157,8 +157,9 @@ import (
 // the route through w to p, or to a z that p separates from w (the part
 // of (π_w − m_w)ᵀ Θ_(w→z) not passing through p within its delta-method
 // noise), is dropped. Mediated neighbour: a moved w2 whose row the chain
-// through a more moved w1 observed with t does not reject adds no term to
-// B_t (w1's term over the table (w1, t) covers it). A chain's
+// through a more moved w1 observed with t does not reject keeps, in B_t,
+// only the part of its term the test could not see (w1's term over the
+// table (w1, t) covers the rest; see explains). A chain's
 // missing-signal term is scaled by the same ratio E0'/E0 (the dependence it can miss is the target's distance
 // from its marginal). Cost at most 2·InfluenceFirst + InfluenceRefine·(1 +
 // InfluenceSecond) pair look-ups per unobserved-pair direct estimate, plus

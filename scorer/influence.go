@@ -37,7 +37,7 @@ const (
 // bound"): a route through a common effect w of s and another neighbour p
 // (colliderAt) to p or to a z on p's side of w (behind) is no route; and a
 // moved neighbour whose change a more moved neighbour observed with t
-// explains (explains) adds no term to B_t. A result with 2·B² ≥ stop may
+// explains (explains) keeps in B_t only the part the test could not see. A result with 2·B² ≥ stop may
 // be cut short (the caller's cap cannot bind). ok is false when st lacks ranked neighbours, neighbour
 // lists or marginals, or no neighbour of s has a table and a marginal.
 // Cost as InfluenceFirst says plus at most 2·ColliderTests tables for the
