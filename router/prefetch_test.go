@@ -211,15 +211,15 @@ func TestDecideGoldenDigest(t *testing.T) {
 		opts []Option
 		want string
 	}{
-		{"default", nil, "1a50c1dc97a5f23d"},
-		{"H1", []Option{WithMaxBridges(1)}, "51b57275c97c8bea"},
-		{"H2", []Option{WithMaxBridges(2)}, "e9b86333735b1e0b"},
-		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "9720fc305985b281"},
-		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "76e85b1f7157f161"},
-		{"budget3000", []Option{WithExpansionBudget(3000)}, "2261c3caf16016e5"},
+		{"default", nil, "10fd3aa8048803ef"},
+		{"H1", []Option{WithMaxBridges(1)}, "826db4ce2e558da2"},
+		{"H2", []Option{WithMaxBridges(2)}, "50ca4026af9016d2"},
+		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "273ba67a992c0adf"},
+		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "d8688f0d2d7e2d62"},
+		{"budget3000", []Option{WithExpansionBudget(3000)}, "05e275fe3502bfe2"},
 		{"support", []Option{WithModel(support)}, "e06acf7f4b69d29a"},
-		{"exact", []Option{WithModel(exact)}, "31a4b1705b9b0ce2"},
-		{"utility", []Option{WithUtility(2, 0.001)}, "5e28a8ff476590a8"},
+		{"exact", []Option{WithModel(exact)}, "4830f4fbafa26acc"},
+		{"utility", []Option{WithUtility(2, 0.001)}, "96c0624b3435d2e0"},
 	}
 	fresh := map[string]string{} // with -update: the new digest of each case
 	for _, tc := range cases {

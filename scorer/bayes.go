@@ -148,10 +148,23 @@ import (
 // u) from P(t) is at most the deviation s = u passes through a separating
 // neighbour, and Σ_v (p_v − m_v)² ≤ 2·TV²; the sum over neighbours covers
 // several routes (exact as a bound for singly connected networks, a
-// heuristic with loops). A chain's missing-signal term is scaled by the
-// same ratio E0'/E0 (the dependence it can miss is the target's distance
+// heuristic with loops). Two tests drop routes that are none. Common
+// effect (the unshielded-collider test of the PC algorithm; Spirtes,
+// Glymour & Scheines 2000): when s = u moves w (Pearson χ² of row u of
+// (s, w) against m_w significant at ColliderLevel) but not another
+// neighbour p (not significant), and that row of (s, p) rejects the chain's
+// prediction π_wᵀ Θ_(w→p) (significant), w is a common effect of s and p;
+// the route through w to p, or to a z that p separates from w (the part
+// of (π_w − m_w)ᵀ Θ_(w→z) not passing through p within its delta-method
+// noise), is dropped. Mediated neighbour: a moved w2 whose row the chain
+// through a more moved w1 observed with t does not reject keeps, in B_t,
+// only the part of its term the test could not see (w1's term over the
+// table (w1, t) covers the rest; see explains). A chain's
+// missing-signal term is scaled by the same ratio E0'/E0 (the dependence it can miss is the target's distance
 // from its marginal). Cost at most 2·InfluenceFirst + InfluenceRefine·(1 +
-// InfluenceSecond) pair look-ups per unobserved-pair direct estimate;
+// InfluenceSecond) pair look-ups per unobserved-pair direct estimate, plus
+// 2·ColliderTests for the tests and two per route tested against a common
+// effect;
 // docs/QUALITY.md has the derivation and the measurements.
 //
 // Cost O(Σ_k K_(k−1)·K_k·K_t + m·K²) = O(m·K³) time for K values per entity,

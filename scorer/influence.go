@@ -33,10 +33,16 @@ const (
 // keep that TV, an upper bound of their term); π_w = P̂(w | s = u) is row u
 // of the pair (s, w)'s posterior means, m_w = P̂(w) the smoothed marginal of
 // w, Θ_(w→z) the posterior-mean matrix of the pair (w, z) and TV half the L1
-// norm. A result with 2·B² ≥ stop may be cut short (the caller's cap
-// cannot bind). ok is false when st lacks ranked neighbours, neighbour
+// norm. Two tests on the tables read drop terms (see Bayes, "Influence
+// bound"): a route through a common effect w of s and another neighbour p
+// (colliderAt) to p or to a z on p's side of w (behind) is no route; and a
+// moved neighbour whose change a more moved neighbour observed with t
+// explains (explains) keeps in B_t only the part the test could not see. A result with 2·B² ≥ stop may
+// be cut short (the caller's cap cannot bind). ok is false when st lacks ranked neighbours, neighbour
 // lists or marginals, or no neighbour of s has a table and a marginal.
-// Cost as InfluenceFirst says, O(K²) arithmetic per look-up, no allocation.
+// Cost as InfluenceFirst says plus at most 2·ColliderTests tables for the
+// tests and two per blocked route, O(K³) arithmetic per look-up, no
+// allocation.
 func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, stop float64) (float64, bool, error) {
 	rn, ok := st.(RankedNeighborer)
 	if !ok {
@@ -58,14 +64,12 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 	if u < 0 || u >= ks {
 		return 0, false, nil
 	}
-	// Pass 1: π_w − m_w and TV(π_w, m_w) for every neighbour w; the TV
-	// bounds every two-hop deviation through w.
-	var devs [InfluenceFirst][graphidx.MaxValues]float64
-	var tvs [InfluenceFirst]float64
-	var ws [InfluenceFirst]graphidx.EntityID
-	var kws [InfluenceFirst]int
+	// Pass 1: π_w, m_w, TV(π_w, m_w) and the X² of row u against m_w for
+	// every neighbour w; the TV bounds every two-hop deviation through w.
+	var nb [InfluenceFirst]inflNeighbour
+	var tvs, tvT [InfluenceFirst]float64
+	var seenT [InfluenceFirst]bool
 	var out [graphidx.MaxValues]float64
-	tsum, tseen := 0.0, false
 	n := 0
 	for _, w := range first {
 		if w == s {
@@ -86,41 +90,37 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 		if len(mw) != kw {
 			continue
 		}
-		rowTot := float64(ps.RowSum(u)) + float64(kw)*b.alpha
+		e := &nb[n]
+		e.id, e.k, e.ps, e.partner = w, kw, ps, -1
+		e.n = float64(ps.RowSum(u))
+		rowTot := e.n + float64(kw)*b.alpha
 		mTot := float64(kw) * b.alpha
 		for _, c := range mw {
 			mTot += float64(c)
 		}
-		dev := devs[n][:kw]
 		tvw := 0.0
-		for v := range dev {
-			dev[v] = (float64(ps.Count(u, v))+b.alpha)/rowTot - (float64(mw[v])+b.alpha)/mTot
-			if dev[v] > 0 {
-				tvw += dev[v]
+		for v := 0; v < kw; v++ {
+			e.pi[v] = (float64(ps.Count(u, v)) + b.alpha) / rowTot
+			e.mw[v] = (float64(mw[v]) + b.alpha) / mTot
+			e.d[v] = e.pi[v] - e.mw[v]
+			if e.d[v] > 0 {
+				tvw += e.d[v]
 			}
 		}
-		tvs[n], ws[n], kws[n] = tvw, w, kw
-		n++
+		e.x2 = rowFit(ps, u, e.mw[:kw], e.n)
+		tvs[n] = tvw
 		// Through w straight to the target, when w was observed with it.
-		tv, ok, err := b.twoHop(st, w, kw, t, dev, out[:])
+		tv, ok, err := b.twoHop(st, w, kw, t, e.dev(), out[:])
 		if err != nil {
 			return 0, false, err
 		}
-		if ok {
-			tsum += min(tv, tvw)
-			tseen = true
-		}
+		tvT[n], seenT[n] = min(tv, tvw), ok
+		n++
 	}
 	if n == 0 {
 		return 0, false, nil
 	}
-	if tseen && 2*tsum*tsum < stop {
-		stop = 2 * tsum * tsum // the refinement below matters only below it
-	}
-	// Pass 2: the InfluenceRefine neighbours of largest TV get their
-	// two-hop deviation: to the target itself when w was observed with it,
-	// and to w's first InfluenceSecond ranked neighbours. The rest keep
-	// their TV. Order by TV, descending (n ≤ InfluenceFirst).
+	// Order by TV, descending (n ≤ InfluenceFirst).
 	var idx [InfluenceFirst]int
 	for i := range n {
 		idx[i] = i
@@ -128,6 +128,90 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 			idx[j], idx[j-1] = idx[j-1], idx[j]
 		}
 	}
+	// Common effects: a neighbour w that s = u moves, tested against the
+	// neighbours p that s = u does not move, the most moved w first, at
+	// most ColliderTests tables (w, p).
+	tests := 0
+	for _, i := range idx[:n] {
+		if tests == ColliderTests {
+			break
+		}
+		if !significant(nb[i].x2, nb[i].k) {
+			continue
+		}
+		for j := n - 1; j >= 0 && tests < ColliderTests; j-- {
+			pj := idx[j]
+			if pj == i || nb[pj].n == 0 || significant(nb[pj].x2, nb[pj].k) {
+				continue
+			}
+			tests++
+			ok, err := b.colliderAt(st, nb[:n], i, pj, u)
+			if err != nil {
+				return 0, false, err
+			}
+			if ok {
+				nb[i].partner = pj
+				break
+			}
+		}
+	}
+	// Mediated neighbours: a moved neighbour w2 whose change a neighbour
+	// w1 of larger TV, itself observed with the target and not mediated,
+	// explains; of w2's route to the target only the part the test could
+	// not see remains, dmin·TV(d_t)/TV(π_w2, m_w2) (the route's
+	// contraction applied to the undetected residual); the rest is part of
+	// w1's term. At most ColliderTests tables (w1, w2).
+	var mediated [InfluenceFirst]bool
+	var termT [InfluenceFirst]float64 // each neighbour's term of B_t
+	copy(termT[:n], tvT[:n])
+	tests = 0
+	for a, i := range idx[:n] {
+		if tests == ColliderTests {
+			break
+		}
+		if mediated[i] || !seenT[i] || !significant(nb[i].x2, nb[i].k) {
+			continue
+		}
+		for _, j := range idx[a+1 : n] {
+			if tests == ColliderTests {
+				break
+			}
+			if mediated[j] || !seenT[j] || !significant(nb[j].x2, nb[j].k) {
+				continue
+			}
+			tests++
+			dmin, ok, err := b.explains(st, nb[:n], i, j, u)
+			if err != nil {
+				return 0, false, err
+			}
+			if ok && tvs[j] > 0 {
+				mediated[j] = true
+				termT[j] = min(tvT[j], dmin*tvT[j]/tvs[j])
+			}
+		}
+	}
+	tsum, tseen := 0.0, false
+	for i := range n {
+		if !seenT[i] {
+			continue
+		}
+		tseen = true
+		blocked, err := b.behind(st, nb[:n], i, t)
+		if err != nil {
+			return 0, false, err
+		}
+		if blocked {
+			termT[i] = 0
+		}
+		tsum += termT[i]
+	}
+	if tseen && 2*tsum*tsum < stop {
+		stop = 2 * tsum * tsum // the refinement below matters only below it
+	}
+	// Pass 2: the InfluenceRefine neighbours of largest TV get their
+	// two-hop deviation: to the target itself when w was observed with it,
+	// and to w's first InfluenceSecond ranked neighbours, except those
+	// behind a common effect. The rest keep their TV.
 	refine := min(InfluenceRefine, n)
 	rest := 0.0
 	for _, i := range idx[refine:n] {
@@ -138,15 +222,11 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 	}
 	sum := rest
 	for _, i := range idx[:refine] {
-		w, kw := ws[i], kws[i]
-		dev := devs[i][:kw]
+		w, kw := nb[i].id, nb[i].k
+		dev := nb[i].dev()
 		best := 0.0
-		tv, ok, err := b.twoHop(st, w, kw, t, dev, out[:])
-		if err != nil {
-			return 0, false, err
-		}
-		if ok {
-			best = tv
+		if seenT[i] {
+			best = termT[i]
 		}
 		second := 0
 		for _, z := range rn.RankedNeighbors(w) {
@@ -164,7 +244,13 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 				continue
 			}
 			second++
-			best = max(best, tv)
+			blocked, err := b.behind(st, nb[:n], i, z)
+			if err != nil {
+				return 0, false, err
+			}
+			if !blocked {
+				best = max(best, tv)
+			}
 		}
 		sum += min(best, tvs[i])
 	}
