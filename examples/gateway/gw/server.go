@@ -114,6 +114,10 @@ type Config struct {
 	// OutcomeSize is the number of recent routed requests kept for
 	// POST /v1/outcomes (default 100 000; the oldest are forgotten first).
 	OutcomeSize int
+	// PlanCacheSize is the number of rendered instructions the built-in
+	// renderer keeps (PlanCache; default DefaultPlanCacheSize, negative:
+	// none). A custom Renderer is never cached.
+	PlanCacheSize int
 	// Metrics, when set, is served on GET /metrics.
 	Metrics http.Handler
 	// Logger receives failed admin logins (rate-limited) and upstream
@@ -185,6 +189,9 @@ func New(cfg Config) (*Server, error) {
 	}
 	if cfg.OutcomeSize == 0 {
 		cfg.OutcomeSize = DefaultOutcomeSize
+	}
+	if cfg.PlanCacheSize == 0 {
+		cfg.PlanCacheSize = DefaultPlanCacheSize
 	}
 	if cfg.DecideTimeout < 0 || cfg.UpstreamTimeout < 0 || cfg.BodyTimeout < 0 || cfg.MaxBodyBytes < 0 ||
 		cfg.MaxResponseBytes < 0 || cfg.OutcomeSize < 0 {
@@ -266,7 +273,14 @@ func (s *Server) openLinker() (linker, error) {
 		lk.former = TextFormer{Lex: lex, Router: s.rt, Vocab: ix}
 	}
 	if lk.renderer == nil {
-		lk.renderer = PlanRenderer{Router: s.rt, Namer: lex, Renderer: s.planR}
+		pr := PlanRenderer{Router: s.rt, Namer: lex, Renderer: s.planR}
+		if s.cfg.PlanCacheSize > 0 { // a new cache with each lexicon
+			if pr.Cache, err = NewPlanCache(s.cfg.PlanCacheSize); err != nil {
+				ix.Close()
+				return linker{}, fmt.Errorf("gw: %w", err)
+			}
+		}
+		lk.renderer = pr
 	}
 	return lk, nil
 }
