@@ -241,14 +241,15 @@ func (s *Server) decide(ctx context.Context, text, unit string) (route, string, 
 	}
 	s.lmu.RLock()
 	defer s.lmu.RUnlock()
+	// One deadline for linking and deciding: one timer per request.
 	dctx, cancel := context.WithTimeout(ctx, s.cfg.DecideTimeout)
+	defer cancel()
 	q, reason, ok := s.lk.former.Form(dctx, text, unit)
-	cancel()
 	if !ok {
 		return route{mode: "pass", reason: reason}, "", nil
 	}
 	q.Key = unit
-	d, err := s.decideQuery(ctx, q)
+	d, err := s.decideQuery(ctx, dctx, q)
 	if err != nil {
 		switch {
 		case errors.Is(err, router.ErrUnknownEntity), errors.Is(err, router.ErrUnknownValue):
@@ -268,13 +269,11 @@ func (s *Server) decide(ctx context.Context, text, unit string) (route, string, 
 	return route{mode: d.Mode.String(), reason: d.Reason.Code, d: d, decided: true}, instr, nil
 }
 
-// decideQuery runs the traced decision under DecideTimeout. A deadline
-// that passes before the search starts degrades to a direct decision with
-// reason decide-timeout.
-func (s *Server) decideQuery(ctx context.Context, q router.Query) (router.Decision, error) {
-	dctx, cancel := context.WithTimeout(ctx, s.cfg.DecideTimeout)
+// decideQuery runs the traced decision under dctx, ctx under the decide
+// deadline. A deadline that passes before the search starts degrades to a
+// direct decision with reason decide-timeout.
+func (s *Server) decideQuery(ctx, dctx context.Context, q router.Query) (router.Decision, error) {
 	d, err := s.tel.Decide(dctx, s.rt, q)
-	cancel()
 	if err == nil {
 		return d, nil
 	}

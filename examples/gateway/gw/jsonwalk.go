@@ -141,20 +141,23 @@ func jsonString(raw []byte) (string, bool) {
 // checkValidKeys is CheckKeys for a body json.Valid accepted: the same
 // checks (keys equal or equal under case folding, nesting deeper than
 // maxJSONDepth), in document order, with the same messages and byte
-// offsets as the tokenizer walk, in one pass over the bytes.
+// offsets as the tokenizer walk, in one pass over the bytes. Keys are
+// compared where they lie in the body (a key with an escape or invalid
+// UTF-8 is decoded first), so an object of ASCII keys allocates nothing.
 func checkValidKeys(b []byte) error {
-	var stack []keyFrame
+	var frames [8]walkFrame
+	stack := frames[:0]
 	for i := skipWS(b, 0); i < len(b); i = skipWS(b, i) {
 		c := b[i]
 		if n := len(stack); n > 0 && stack[n-1].object && stack[n-1].expect && c == '"' {
 			end, esc := stringEnd(b, i)
-			k := string(keyText(b[i:end], esc))
+			k := keyText(b[i:end], esc)
 			top := &stack[n-1]
 			if prev, dup := top.seen(k); dup {
-				if prev == k {
-					return fmt.Errorf("duplicate key %q (the second ends at byte %d)", clip(k), end)
+				if bytes.Equal(prev, k) {
+					return fmt.Errorf("duplicate key %q (the second ends at byte %d)", clip(string(k)), end)
 				}
-				return fmt.Errorf("keys %q and %q differ only in letter case (the second ends at byte %d); send one", clip(prev), clip(k), end)
+				return fmt.Errorf("keys %q and %q differ only in letter case (the second ends at byte %d); send one", clip(string(prev)), clip(string(k)), end)
 			}
 			top.add(k)
 			top.expect = false
@@ -172,11 +175,11 @@ func checkValidKeys(b []byte) error {
 				return fmt.Errorf("JSON nested deeper than %d levels", maxJSONDepth)
 			}
 			// Reuse the key slice a closed sibling left at this depth.
-			var keys []string
+			var keys [][]byte
 			if len(stack) < cap(stack) {
 				keys = stack[:len(stack)+1][len(stack)].keys[:0]
 			}
-			stack = append(stack, keyFrame{object: c == '{', expect: c == '{', keys: keys})
+			stack = append(stack, walkFrame{object: c == '{', expect: c == '{', keys: keys})
 			i++
 		case '}', ']':
 			stack = stack[:len(stack)-1]
@@ -192,4 +195,57 @@ func checkValidKeys(b []byte) error {
 		}
 	}
 	return nil
+}
+
+// walkFrame is keyFrame over keys as bytes.
+type walkFrame struct {
+	object, expect bool
+	keys           [][]byte
+	folded         map[string][]byte // lower-cased key → key, past 16 keys
+	nonASCII       bool
+}
+
+// seen reports whether k, or a key equal to it under case folding, is
+// already in the object, and returns that key.
+func (f *walkFrame) seen(k []byte) ([]byte, bool) {
+	if f.folded != nil {
+		if p, ok := f.folded[string(bytes.ToLower(k))]; ok {
+			return p, true
+		}
+		// ToLower does not fold every pair EqualFold does (ſ and s, K and
+		// k): scan when either side is not ASCII.
+		if !f.nonASCII && isASCIIBytes(k) {
+			return nil, false
+		}
+	}
+	for _, p := range f.keys {
+		if bytes.EqualFold(p, k) {
+			return p, true
+		}
+	}
+	return nil, false
+}
+
+func (f *walkFrame) add(k []byte) {
+	f.keys = append(f.keys, k)
+	f.nonASCII = f.nonASCII || !isASCIIBytes(k)
+	if f.folded == nil && len(f.keys) > 16 {
+		f.folded = make(map[string][]byte, 2*len(f.keys))
+		for _, p := range f.keys {
+			f.folded[string(bytes.ToLower(p))] = p
+		}
+		return
+	}
+	if f.folded != nil {
+		f.folded[string(bytes.ToLower(k))] = k
+	}
+}
+
+func isASCIIBytes(b []byte) bool {
+	for _, c := range b {
+		if c >= utf8.RuneSelf {
+			return false
+		}
+	}
+	return true
 }

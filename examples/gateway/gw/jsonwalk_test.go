@@ -79,7 +79,7 @@ func FuzzParseChat(f *testing.F) {
 			t.Fatalf("lastUserText(%q) = %q, %d; reference %q, %d", b, gt, gat, wt, wat)
 		}
 		for _, at := range []int{gat, 0, len(got.messages) - 1} {
-			if at < 0 {
+			if at < 0 || at >= len(got.messages) { // withSystem's callers pass a message's index
 				continue
 			}
 			spliced := got.withSystem(instr, at)
