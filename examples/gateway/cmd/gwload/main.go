@@ -115,6 +115,9 @@ type Stats struct {
 	// except for what routing does.
 	CPU    time.Duration
 	Routes map[string]int
+	// RoundP99 is the p99 of each round alone: a pause of the whole
+	// machine shows as one round far above the others.
+	RoundP99 []time.Duration
 }
 
 // CPUPerRequest is the process CPU time per request.
@@ -312,18 +315,23 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 			return nil, err
 		}
 	}
+	// Each pass asks questions of its own (seeds 1, 3, 4), so that no pass
+	// finds the decisions of another in the router's cache, unless
+	// -distinct asks for that: then every pass asks the same questions,
+	// asked once each before the passes.
 	bodies := makeBodies(ix, cfg.Requests, 1)
+	openBodies, cpuBodies := bodies, bodies
 	if cfg.Distinct > 0 && cfg.Distinct < len(bodies) {
 		for i := cfg.Distinct; i < len(bodies); i++ {
 			bodies[i] = bodies[i%cfg.Distinct]
 		}
-		// The distinct questions once each, so that the measured rounds
-		// find their decisions in the router's cache.
 		for _, h := range []*httptest.Server{hon, hoff} {
 			if _, err := load(ctx, client, h.URL, bodies[:cfg.Distinct], min(cfg.Clients, cfg.Distinct), 3*len(bodies)); err != nil {
 				return nil, err
 			}
 		}
+	} else {
+		openBodies, cpuBodies = makeBodies(ix, cfg.Requests, 3), makeBodies(ix, cfg.Requests, 4)
 	}
 	if cfg.Profile != nil {
 		if err := pprof.StartCPUProfile(cfg.Profile); err != nil {
@@ -348,7 +356,7 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 	if res.Rate > 0 {
 		// The open-loop units follow the closed loop's, so that no unit
 		// key repeats (the gateway keeps one pending decision per unit).
-		open, err := alternate(ctx, gws, bodies, cfg.Rounds, func(url string, b [][]byte, offset int) ([]sample, error) {
+		open, err := alternate(ctx, gws, openBodies, cfg.Rounds, func(url string, b [][]byte, offset int) ([]sample, error) {
 			return loadOpen(ctx, client, url, b, res.Rate, len(bodies)+offset)
 		})
 		if err != nil {
@@ -361,7 +369,7 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 		for _, m := range meters {
 			m.on.Store(true)
 		}
-		if _, err := alternate(ctx, gws, bodies, cfg.Rounds, func(url string, b [][]byte, offset int) ([]sample, error) {
+		if _, err := alternate(ctx, gws, cpuBodies, cfg.Rounds, func(url string, b [][]byte, offset int) ([]sample, error) {
 			return load(ctx, client, url, b, cfg.Clients, 2*len(bodies)+offset)
 		}); err != nil {
 			return nil, err
@@ -420,12 +428,17 @@ const maxInFlight = 256
 
 // side is one gateway's samples, wall time and process CPU over the rounds.
 type side struct {
-	samples []sample
-	elapsed time.Duration
-	cpu     time.Duration
+	samples  []sample
+	elapsed  time.Duration
+	cpu      time.Duration
+	roundP99 []time.Duration
 }
 
-func (s side) stats(name string) Stats { return stats(name, s.samples, s.elapsed, s.cpu) }
+func (s side) stats(name string) Stats {
+	st := stats(name, s.samples, s.elapsed, s.cpu)
+	st.RoundP99 = s.roundP99
+	return st
+}
 
 // alternate sends bodies to both gateways (gws[0] off, gws[1] on) in
 // rounds, alternating which goes first, and returns both sides.
@@ -447,6 +460,7 @@ func alternate(ctx context.Context, gws [2]string, bodies [][]byte, rounds int,
 				return out, err
 			}
 			out[g].samples = append(out[g].samples, s...)
+			out[g].roundP99 = append(out[g].roundP99, stats("", s, 0, 0).P99)
 		}
 	}
 	return out, ctx.Err()
@@ -484,6 +498,7 @@ func report(cfg Config, res *Result) {
 		fmt.Fprintf(w, "open loop at %.0f req/s (latency from the scheduled send; the sender's own p99 lateness %.0fµs off, %.0fµs on): routing adds %+.0fµs at p50 and %+.0fµs at p99 and %+.1fµs of CPU per request\n",
 			res.Rate, us(res.OpenOff.Late), us(res.OpenOn.Late), us(res.OpenOn.P50-res.OpenOff.P50), us(res.OpenAddedP99),
 			us(res.OpenOn.CPUPerRequest()-res.OpenOff.CPUPerRequest()))
+		fmt.Fprintf(w, "open loop p99 of each round: routing off %s; routing on %s\n", usList(res.OpenOff.RoundP99), usList(res.OpenOn.RoundP99))
 	}
 	if res.HandlerOn > 0 {
 		fmt.Fprintf(w, "gateway handler thread CPU per request (closed loop, each handler on its own OS thread): %.1fµs routing off, %.1fµs routing on: routing adds %+.1fµs (%.2f×)\n",
@@ -492,6 +507,17 @@ func report(cfg Config, res *Result) {
 }
 
 func us(d time.Duration) float64 { return float64(d.Nanoseconds()) / 1000 }
+
+func usList(ds []time.Duration) string {
+	var b bytes.Buffer
+	for i, d := range ds {
+		if i > 0 {
+			b.WriteString(", ")
+		}
+		fmt.Fprintf(&b, "%.0fµs", us(d))
+	}
+	return b.String()
+}
 
 type sample struct {
 	took  time.Duration
