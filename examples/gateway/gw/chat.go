@@ -241,8 +241,9 @@ func (s *Server) decide(ctx context.Context, text, unit string) (route, string, 
 	}
 	s.lmu.RLock()
 	defer s.lmu.RUnlock()
-	// One deadline for linking and deciding: one timer per request.
-	dctx, cancel := context.WithTimeout(ctx, s.cfg.DecideTimeout)
+	// One deadline for linking and deciding, whose timer starts only when
+	// a search waits on it: a decision from the router's cache costs none.
+	dctx, cancel := withLazyDeadline(ctx, s.cfg.DecideTimeout)
 	defer cancel()
 	q, reason, ok := s.lk.former.Form(dctx, text, unit)
 	if !ok {
