@@ -110,3 +110,48 @@ func decodeAny(t *testing.T, b []byte) any {
 	}
 	return v
 }
+
+// BenchmarkParseChat compares the request parsing of the chat path (the
+// checks of CheckKeys, the fields, the last user message, the splice of a
+// system message) with the encoding/json versions it replaced, in the same
+// run: x-ref is the reference's time over the walk's.
+func BenchmarkParseChat(b *testing.B) {
+	body := []byte(`{"model":"greenhouse-sim","temperature":0.2,"messages":[{"role":"system","content":"You answer questions about the greenhouse."},` +
+		`{"role":"user","content":"In the greenhouse, bed-11/moisture-probe is reads-wet. What is the most likely state of bed-10/leaf-wilt?"}],"stream":false}`)
+	instr := "Work this out in steps before answering.\nKnown: bed-11/moisture-probe: reads-wet.\nStep 1: work out the state of zone-4/humidity (the records lean to \"high\", 71%).\nFinally, from those steps, say what bed-10/leaf-wilt is likely to be. Put the answer after the steps.\n"
+	var refNs float64
+	for _, impl := range []string{"encoding-json", "in-place"} {
+		b.Run(impl, func(b *testing.B) {
+			b.ReportAllocs()
+			var out []byte
+			for b.Loop() {
+				if impl == "in-place" {
+					c, err := parseChat(body)
+					if err != nil {
+						b.Fatal(err)
+					}
+					_, at := c.lastUserText()
+					out = c.withSystem(instr, at)
+				} else {
+					c, err := parseChatRef(body)
+					if err != nil {
+						b.Fatal(err)
+					}
+					_, at := c.lastUserText()
+					if out, err = c.withSystem(instr, at); err != nil {
+						b.Fatal(err)
+					}
+				}
+			}
+			if !bytes.Contains(out, []byte(`"role":"system","content":"Work this out`)) || !json.Valid(out) {
+				b.Fatalf("spliced body %s", out)
+			}
+			ns := float64(b.Elapsed().Nanoseconds()) / float64(b.N)
+			if impl == "encoding-json" {
+				refNs = ns
+			} else if refNs > 0 {
+				b.ReportMetric(refNs/ns, "x-ref")
+			}
+		})
+	}
+}
