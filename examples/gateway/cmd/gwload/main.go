@@ -68,7 +68,11 @@ import (
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/otelx"
 	"github.com/hopwise/hopwise/router"
+	"go.opentelemetry.io/otel/metric"
 	"go.opentelemetry.io/otel/metric/noop"
+	sdkmetric "go.opentelemetry.io/otel/sdk/metric"
+	sdktrace "go.opentelemetry.io/otel/sdk/trace"
+	"go.opentelemetry.io/otel/trace"
 	tnoop "go.opentelemetry.io/otel/trace/noop"
 )
 
@@ -93,6 +97,9 @@ type Config struct {
 	// RouterOptions configure the routing gateway's router (the gateway's
 	// -config); nil keeps the router's defaults.
 	RouterOptions []router.Option
+	// Telemetry is "off" (or ""), "sdk" (the OpenTelemetry SDK, default
+	// decision spans) or "compact" (the SDK with otelx.WithCompactSpans).
+	Telemetry string
 	// HandlerCPU adds the handler CPU pass (Linux).
 	HandlerCPU bool
 	// Profile, when set, receives a CPU profile of the measured rounds
@@ -196,6 +203,7 @@ func main() {
 	flag.Float64Var(&cfg.Open, "open", 0.3, "open-loop rate as a fraction of the routing gateway's closed-loop throughput (0: no open-loop run)")
 	flag.Float64Var(&cfg.Rate, "rate", 0, "open-loop rate in requests per second (overrides -open)")
 	flag.DurationVar(&cfg.Timeout, "timeout", 5*time.Minute, "stop after this long whatever is left")
+	flag.StringVar(&cfg.Telemetry, "telemetry", "off", "telemetry of both gateways: off (noop providers), sdk (OpenTelemetry SDK, spans batched to an exporter that drops them) or compact (sdk with otelx.WithCompactSpans)")
 	flag.BoolVar(&cfg.HandlerCPU, "handler-cpu", true, "measure the gateway handlers' own thread CPU per request in a third pass (Linux)")
 	flag.BoolVar(&cfg.Sim, "sim", false, "answer with the simulated model (default: one fixed completion, the same work for both gateways)")
 	prof := flag.String("cpuprofile", "", "write a CPU profile of the measured rounds to this file")
@@ -268,17 +276,35 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 	}
 	up := httptest.NewServer(upstream)
 	defer up.Close()
-	// Telemetry off on both sides (noop providers): the figure is the cost
-	// of linking, deciding and rewriting the body, not of an exporter.
-	tel, err := otelx.New(otelx.WithTracerProvider(tnoop.NewTracerProvider()), otelx.WithMeterProvider(noop.NewMeterProvider()))
+	// The same telemetry on both sides: off (noop providers, the figure is
+	// the cost of linking, deciding and rewriting the body), or the SDK
+	// (spans batched to an exporter that drops them, metrics into a reader
+	// nobody collects), so that the figure includes what recording the
+	// decision and model-call spans and the metrics costs.
+	tp, mp := trace.TracerProvider(tnoop.NewTracerProvider()), metric.MeterProvider(noop.NewMeterProvider())
+	topts := []otelx.Option{}
+	switch cfg.Telemetry {
+	case "", "off":
+	case "sdk", "compact":
+		stp := sdktrace.NewTracerProvider(sdktrace.WithBatcher(dropSpans{}))
+		smp := sdkmetric.NewMeterProvider(sdkmetric.WithReader(sdkmetric.NewManualReader()))
+		defer stp.Shutdown(context.Background())
+		defer smp.Shutdown(context.Background())
+		tp, mp = stp, smp
+		if cfg.Telemetry == "compact" {
+			topts = append(topts, otelx.WithCompactSpans())
+		}
+	default:
+		return nil, fmt.Errorf("telemetry %q: want off, sdk or compact", cfg.Telemetry)
+	}
+	tel, err := otelx.New(append(topts, otelx.WithTracerProvider(tp), otelx.WithMeterProvider(mp))...)
 	if err != nil {
 		return nil, err
 	}
 	var meters []*meter // routing on, routing off
 	start := func(off bool) (*gw.Server, *httptest.Server, error) {
 		s, err := gw.New(gw.Config{IndexPath: cfg.Index, Upstream: up.URL + "/v1", RoutingOff: off, Telemetry: tel, RouterOptions: cfg.RouterOptions,
-			TracerProvider: tnoop.NewTracerProvider(), MeterProvider: noop.NewMeterProvider(),
-			Logger: log.New(io.Discard, "", 0)})
+			TracerProvider: tp, MeterProvider: mp, Logger: log.New(io.Discard, "", 0)})
 		if err != nil {
 			return nil, nil, err
 		}
@@ -422,6 +448,13 @@ func (m *meter) perRequest() time.Duration {
 	return time.Duration(m.cpu.Load() / max(m.n.Load(), 1))
 }
 
+// dropSpans is a span exporter that drops what it is given: the SDK's
+// recording and batching are measured, no I/O.
+type dropSpans struct{}
+
+func (dropSpans) ExportSpans(context.Context, []sdktrace.ReadOnlySpan) error { return nil }
+func (dropSpans) Shutdown(context.Context) error                             { return nil }
+
 // maxInFlight bounds the open loop's requests in flight (and sizes the
 // client's idle connection pool).
 const maxInFlight = 256
@@ -473,12 +506,13 @@ func report(cfg Config, res *Result) {
 	if cfg.Sim {
 		upName = "the simulated model"
 	}
+	telName := map[string]string{"": "off", "off": "off", "sdk": "on (SDK, spans dropped)", "compact": "on (SDK, compact decision spans, spans dropped)"}[cfg.Telemetry]
 	distinct := "every question distinct"
 	if cfg.Distinct > 0 {
 		distinct = fmt.Sprintf("%d distinct questions repeated", cfg.Distinct)
 	}
-	fmt.Fprintf(w, "%d requests per gateway and mode (questions from the index's names, %s, 1 in 10 linking nothing) over loopback, %d alternating rounds; upstream: %s, at once; telemetry off; GOMAXPROCS %d\n\n",
-		cfg.Requests, distinct, cfg.Rounds, upName, runtime.GOMAXPROCS(0))
+	fmt.Fprintf(w, "%d requests per gateway and mode (questions from the index's names, %s, 1 in 10 linking nothing) over loopback, %d alternating rounds; upstream: %s, at once; telemetry %s; GOMAXPROCS %d\n\n",
+		cfg.Requests, distinct, cfg.Rounds, upName, telName, runtime.GOMAXPROCS(0))
 	fmt.Fprintln(w, "mode                  gateway       requests  errors      p50       p99       max   req/s  CPU/request  routes")
 	row := func(mode string, s Stats) {
 		fmt.Fprintf(w, "%-20s  %-12s  %8d  %6d  %7.0fµs  %7.0fµs  %6.1fms  %6.0f  %9.1fµs  %v\n", mode, s.Name, s.N, s.Errors,

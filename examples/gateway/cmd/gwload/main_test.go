@@ -62,6 +62,15 @@ func TestRunSmall(t *testing.T) {
 	if res.On.Routes["chain"] != 0 || res.On.Routes["direct"] < 150 || res.Off.Routes["pass"] != 200 {
 		t.Errorf("with τ = 1e9: routes on %v, off %v", res.On.Routes, res.Off.Routes)
 	}
+	// With the SDK recording spans and metrics (dropped at export).
+	var sdkOut bytes.Buffer
+	sdkRes, err := Run(context.Background(), Config{Index: index, Requests: 100, Clients: 4, Rounds: 2, Telemetry: "compact", Timeout: time.Minute, Out: &sdkOut})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if sdkRes.On.Errors+sdkRes.Off.Errors != 0 || sdkRes.On.Routes["pass"] == 100 || !strings.Contains(sdkOut.String(), "compact decision spans") {
+		t.Errorf("telemetry compact: %+v\n%s", sdkRes.On, sdkOut.String())
+	}
 	if res.OpenOn.N != 0 || res.HandlerOn != 0 || strings.Contains(out.String(), "open loop") {
 		t.Errorf("open loop or handler pass run without being asked for: %+v", res.OpenOn)
 	}
@@ -70,6 +79,7 @@ func TestRunSmall(t *testing.T) {
 		{Index: index, Requests: 40, Clients: 8, Rounds: 1, Open: 1.5}, // a fraction above 1
 		{Index: index, Requests: 40, Clients: 8, Rounds: 1, Rate: -1},  // a negative rate
 		{Index: index, Requests: 40, Clients: 8, Rounds: 1, Open: math.NaN()},
+		{Index: index, Requests: 40, Clients: 8, Rounds: 1, Telemetry: "loud"},
 	} {
 		if _, err := Run(context.Background(), c); err == nil {
 			t.Errorf("%+v accepted", c)
