@@ -36,13 +36,7 @@ func BenchmarkChat(b *testing.B) {
 		q    string
 	}{{"off", true, farQuestion}, {"on-far", false, farQuestion}, {"on-near", false, nearQuestion}, {"on-pass", false, plainQuestion}} {
 		b.Run(tc.name, func(b *testing.B) {
-			tel, _ := otelx.New(otelx.WithTracerProvider(tnoop.NewTracerProvider()), otelx.WithMeterProvider(noop.NewMeterProvider()))
-			s, err := gw.New(gw.Config{IndexPath: sharedIndex(b), Upstream: up.URL + "/v1", RoutingOff: tc.off, Telemetry: tel,
-				TracerProvider: tnoop.NewTracerProvider(), MeterProvider: noop.NewMeterProvider()})
-			if err != nil {
-				b.Fatal(err)
-			}
-			defer s.Close()
+			s := benchServer(b, up.URL, tc.off)
 			h := s.Handler()
 			body := []byte(chatBody(tc.q))
 			b.ReportAllocs()
@@ -80,17 +74,12 @@ func BenchmarkPrepare(b *testing.B) {
 		q           string
 	}{{"off", "pass", true, farQuestion}, {"on-chain", "chain", false, farQuestion}, {"on-direct", "direct", false, nearQuestion}, {"on-pass", "pass", false, plainQuestion}} {
 		b.Run(tc.name, func(b *testing.B) {
-			tel, _ := otelx.New(otelx.WithTracerProvider(tnoop.NewTracerProvider()), otelx.WithMeterProvider(noop.NewMeterProvider()))
-			s, err := gw.New(gw.Config{IndexPath: sharedIndex(b), Upstream: up.URL + "/v1", RoutingOff: tc.off, Telemetry: tel,
-				TracerProvider: tnoop.NewTracerProvider(), MeterProvider: noop.NewMeterProvider()})
-			if err != nil {
-				b.Fatal(err)
-			}
-			defer s.Close()
+			s := benchServer(b, up.URL, tc.off)
 			body := []byte(chatBody(tc.q))
 			var out []byte
 			var route string
 			b.ReportAllocs()
+			var err error
 			cpu := startThreadCPU()
 			for b.Loop() {
 				if out, route, err = s.Prepare(body, "bench"); err != nil {
@@ -139,4 +128,20 @@ func (c threadClock) report(b *testing.B, base *float64, baseline bool) {
 	} else if *base > 0 {
 		b.ReportMetric(ns-*base, "added-cpu-ns/op")
 	}
+}
+
+// benchServer is a gateway with telemetry off (noop providers) in front of
+// upstream, closed with the benchmark.
+func benchServer(b *testing.B, upstream string, routingOff bool) *gw.Server {
+	tel, err := otelx.New(otelx.WithTracerProvider(tnoop.NewTracerProvider()), otelx.WithMeterProvider(noop.NewMeterProvider()))
+	if err != nil {
+		b.Fatal(err)
+	}
+	s, err := gw.New(gw.Config{IndexPath: sharedIndex(b), Upstream: upstream + "/v1", RoutingOff: routingOff, Telemetry: tel,
+		TracerProvider: tnoop.NewTracerProvider(), MeterProvider: noop.NewMeterProvider()})
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.Cleanup(func() { s.Close() })
+	return s
 }

@@ -15,21 +15,20 @@ import (
 	"github.com/hopwise/hopwise/router/plan"
 )
 
-// TestPlanCache: a cached instruction is the one rendering gives; the unit
-// key, arm and propensity share an entry; any plan field of the decision,
-// the index generation or the router's configuration makes a new one; a
-// failed rendering is not kept; concurrent renderings agree.
-func TestPlanCache(t *testing.T) {
-	t.Parallel()
+// planRig opens the shared index under a router (closed with the test) and
+// returns it with the index's lexicon and the default plan renderer.
+func planRig(t testing.TB) (*router.Router, *graphidx.Lexicon, *plan.Renderer) {
+	t.Helper()
 	ix, err := graphidx.Open(sharedIndex(t))
 	if err != nil {
 		t.Fatal(err)
 	}
 	rt, err := router.New(ix)
 	if err != nil {
+		ix.Close()
 		t.Fatal(err)
 	}
-	defer rt.Close()
+	t.Cleanup(func() { rt.Close() })
 	lex, err := gw.IndexLexicon(ix)
 	if err != nil {
 		t.Fatal(err)
@@ -38,6 +37,16 @@ func TestPlanCache(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	return rt, lex, pr
+}
+
+// TestPlanCache: a cached instruction is the one rendering gives; the unit
+// key, arm and propensity share an entry; any plan field of the decision,
+// the index generation or the router's configuration makes a new one; a
+// failed rendering is not kept; concurrent renderings agree.
+func TestPlanCache(t *testing.T) {
+	t.Parallel()
+	rt, lex, pr := planRig(t)
 	cache, err := gw.NewPlanCache(64)
 	if err != nil {
 		t.Fatal(err)
@@ -171,23 +180,7 @@ func TestPlanCacheGateway(t *testing.T) {
 // for a chain and a direct decision, in the same run: x-uncached is the
 // rendering's time over the hit's.
 func BenchmarkPlanRender(b *testing.B) {
-	ix, err := graphidx.Open(sharedIndex(b))
-	if err != nil {
-		b.Fatal(err)
-	}
-	rt, err := router.New(ix)
-	if err != nil {
-		b.Fatal(err)
-	}
-	defer rt.Close()
-	lex, err := gw.IndexLexicon(ix)
-	if err != nil {
-		b.Fatal(err)
-	}
-	pr, err := plan.NewRenderer()
-	if err != nil {
-		b.Fatal(err)
-	}
+	rt, lex, pr := planRig(b)
 	cache, err := gw.NewPlanCache(16)
 	if err != nil {
 		b.Fatal(err)
