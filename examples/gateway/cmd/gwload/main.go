@@ -341,10 +341,14 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 			return nil, err
 		}
 	}
-	// Each pass asks questions of its own (seeds 1, 3, 4), so that no pass
-	// finds the decisions of another in the router's cache, unless
-	// -distinct asks for that: then every pass asks the same questions,
-	// asked once each before the passes.
+	// Each pass asks questions of its own (seeds 1, 3, 4) and starts with
+	// the router's decision cache empty (a Reconfigure with no change
+	// starts a new configuration generation, which no cached decision
+	// matches), so that no pass finds the decisions of the warm-up or of
+	// another pass; the same (entity, value, target) asked twice within a
+	// pass is served from the cache, as in a gateway's traffic. With
+	// -distinct every pass asks the same questions, asked once each before
+	// the passes, so that all decisions come from the cache.
 	bodies := makeBodies(ix, cfg.Requests, 1)
 	openBodies, cpuBodies := bodies, bodies
 	if cfg.Distinct > 0 && cfg.Distinct < len(bodies) {
@@ -359,6 +363,12 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 	} else {
 		openBodies, cpuBodies = makeBodies(ix, cfg.Requests, 3), makeBodies(ix, cfg.Requests, 4)
 	}
+	coldCache := func() error {
+		if cfg.Distinct > 0 {
+			return nil
+		}
+		return son.Router().Reconfigure()
+	}
 	if cfg.Profile != nil {
 		if err := pprof.StartCPUProfile(cfg.Profile); err != nil {
 			return nil, err
@@ -367,6 +377,9 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 	}
 	gws := [2]string{hoff.URL, hon.URL}
 	res := &Result{}
+	if err := coldCache(); err != nil {
+		return nil, err
+	}
 	closed, err := alternate(ctx, gws, bodies, cfg.Rounds, func(url string, b [][]byte, offset int) ([]sample, error) {
 		return load(ctx, client, url, b, cfg.Clients, offset)
 	})
@@ -380,6 +393,9 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 		res.Rate = cfg.Open * res.On.Throughput()
 	}
 	if res.Rate > 0 {
+		if err := coldCache(); err != nil {
+			return nil, err
+		}
 		// The open-loop units follow the closed loop's, so that no unit
 		// key repeats (the gateway keeps one pending decision per unit).
 		open, err := alternate(ctx, gws, openBodies, cfg.Rounds, func(url string, b [][]byte, offset int) ([]sample, error) {
@@ -392,6 +408,9 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 		res.OpenAddedP99 = res.OpenOn.P99 - res.OpenOff.P99
 	}
 	if _, ok := threadCPU(); ok && cfg.HandlerCPU {
+		if err := coldCache(); err != nil {
+			return nil, err
+		}
 		for _, m := range meters {
 			m.on.Store(true)
 		}
