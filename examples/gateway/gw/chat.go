@@ -241,15 +241,18 @@ func (s *Server) decide(ctx context.Context, text, unit string) (route, string, 
 	}
 	s.lmu.RLock()
 	defer s.lmu.RUnlock()
-	// One deadline for linking and deciding, whose timer starts only when
-	// a search waits on it: a decision from the router's cache costs none.
-	dctx, cancel := withLazyDeadline(ctx, s.cfg.DecideTimeout)
-	defer cancel()
-	q, reason, ok := s.lk.former.Form(dctx, text, unit)
+	// Linking and deciding each get DecideTimeout, as deadlines whose
+	// timers start only when something waits on them (a search does): a
+	// decision from the router's cache costs no timer.
+	fctx, fcancel := withLazyDeadline(ctx, s.cfg.DecideTimeout)
+	q, reason, ok := s.lk.former.Form(fctx, text, unit)
+	fcancel()
 	if !ok {
 		return route{mode: "pass", reason: reason}, "", nil
 	}
 	q.Key = unit
+	dctx, cancel := withLazyDeadline(ctx, s.cfg.DecideTimeout)
+	defer cancel()
 	d, err := s.decideQuery(ctx, dctx, q)
 	if err != nil {
 		switch {

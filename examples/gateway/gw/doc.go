@@ -12,10 +12,10 @@
 //     that asks nothing the router can decide passes through untouched,
 //     with the reason (the Pass* codes) in the Hopwise-Reason header, on the
 //     span and in the route counter;
-//  3. the router decides under Config.DecideTimeout, which bounds linking
-//     and deciding together (otelx.Decide, so the decision span keeps its
-//     hopwise.* attributes); a deadline that passes before the search
-//     starts degrades to a direct decision with reason decide-timeout;
+//  3. the router decides under Config.DecideTimeout (otelx.Decide, so the
+//     decision span keeps its hopwise.* attributes); a deadline that passes
+//     before the search starts degrades to a direct decision with reason
+//     decide-timeout;
 //  4. the Renderer's text (the chain's steps, or the instruction to answer
 //     directly; the built-in PlanRenderer keeps rendered texts per decision
 //     in a PlanCache of Config.PlanCacheSize) is spliced in as a system

@@ -96,8 +96,8 @@ type Config struct {
 	MeterProvider  metric.MeterProvider
 	// ProviderName, when set, is recorded as gen_ai.provider.name.
 	ProviderName string
-	// DecideTimeout bounds the routing decision, linking the prompt
-	// included (default 50 ms);
+	// DecideTimeout bounds the routing decision, and the linking of the
+	// prompt before it (each; default 50 ms);
 	// UpstreamTimeout the whole upstream exchange, streaming included
 	// (default 60 s); BodyTimeout the reading of a request body (default
 	// 10 s; a slower body gets 408).
