@@ -8,6 +8,7 @@ import (
 	"net/http/httptest"
 	"sync"
 	"testing"
+	"time"
 
 	"github.com/hopwise/hopwise/examples/gateway/gw"
 	"github.com/hopwise/hopwise/graphidx"
@@ -150,7 +151,7 @@ func TestPlanCacheGateway(t *testing.T) {
 	defer up.Close()
 	var bodies [2][][]byte
 	for i, size := range []int{-1, 0} {
-		s, err := gw.New(gw.Config{IndexPath: sharedIndex(t), Upstream: up.URL + "/v1", PlanCacheSize: size})
+		s, err := gw.New(gw.Config{IndexPath: sharedIndex(t), Upstream: up.URL + "/v1", PlanCacheSize: size, DecideTimeout: time.Minute})
 		if err != nil {
 			t.Fatal(err)
 		}
