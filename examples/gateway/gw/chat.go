@@ -24,8 +24,11 @@ import (
 // chatRequest is the part of a chat-completions body the gateway reads.
 // Everything else is forwarded as sent.
 type chatRequest struct {
-	body     []byte
+	body []byte
+	// messages are the elements of the messages array as sent (sub-slices
+	// of body), msgAt their byte offsets in body.
 	messages []json.RawMessage
+	msgAt    []int
 	// msgStart and msgEnd are the byte span of the messages array in body.
 	msgStart, msgEnd int
 	model            string
@@ -34,45 +37,53 @@ type chatRequest struct {
 
 // parseChat checks and splits a chat-completions body. Top-level keys are
 // matched exactly (CheckKeys has rejected case variants); the messages
-// array is located by byte offset so that a plan can be spliced in without
-// re-encoding the rest of the body.
+// array and its elements are located by byte offset, so that a plan can be
+// spliced in without re-encoding the rest of the body. Cost: O(n) in the
+// body size (CheckKeys, then one walk of the top-level object).
 func parseChat(body []byte) (chatRequest, error) {
 	c := chatRequest{body: body, msgStart: -1}
 	if err := CheckKeys(body); err != nil {
 		return c, badRequest("invalid_json", "%v", err)
 	}
-	dec := json.NewDecoder(bytes.NewReader(body))
-	if tok, err := dec.Token(); err != nil || tok != json.Delim('{') {
+	i := skipWS(body, 0)
+	if body[i] != '{' { // CheckKeys accepted it: valid JSON, not empty
 		return c, badRequest("invalid_json", "the body must be a JSON object")
 	}
-	for dec.More() {
-		kt, err := dec.Token()
-		if err != nil {
-			return c, badRequest("invalid_json", "the body must be a JSON object")
-		}
-		key, _ := kt.(string)
-		var raw json.RawMessage
-		if err := dec.Decode(&raw); err != nil {
-			return c, badRequest("invalid_json", "the body must be a JSON object")
-		}
-		switch key {
+	var ferr error
+	eachMember(body, i, func(key []byte, vs, ve int) bool {
+		raw := body[vs:ve]
+		switch string(key) {
 		case "messages":
-			c.msgEnd = int(dec.InputOffset())
-			c.msgStart = c.msgEnd - len(raw)
-			if err := json.Unmarshal(raw, &c.messages); err != nil || raw[0] != '[' {
-				return c, badRequest("invalid_field", "field %q must be an array of objects", "messages")
+			if raw[0] != '[' {
+				ferr = badRequest("invalid_field", "field %q must be an array of objects", "messages")
+				return false
 			}
+			c.msgStart, c.msgEnd = vs, ve
+			eachElement(body, vs, func(es, ee int) {
+				c.messages = append(c.messages, body[es:ee:ee])
+				c.msgAt = append(c.msgAt, es)
+			})
 		case "model":
-			if err := json.Unmarshal(raw, &c.model); err != nil {
-				return c, badRequest("invalid_field", "field %q must be a string", "model")
+			m, ok := jsonString(raw)
+			if !ok {
+				ferr = badRequest("invalid_field", "field %q must be a string", "model")
+				return false
 			}
+			c.model = m
 		case "stream":
-			if string(raw) != "null" {
-				if err := json.Unmarshal(raw, &c.stream); err != nil {
-					return c, badRequest("invalid_field", "field %q must be a boolean", "stream")
-				}
+			switch string(raw) {
+			case "null":
+			case "true", "false":
+				c.stream = string(raw) == "true"
+			default:
+				ferr = badRequest("invalid_field", "field %q must be a boolean", "stream")
+				return false
 			}
 		}
+		return true
+	})
+	if ferr != nil {
+		return c, ferr
 	}
 	if c.msgStart < 0 {
 		return c, badRequest("missing_field", "field %q is required", "messages")
@@ -82,24 +93,31 @@ func parseChat(body []byte) (chatRequest, error) {
 
 // lastUserText returns the text of the last user message and its index:
 // a string content, or the text parts of an array content joined by
-// newlines.
+// newlines. Keys are matched exactly, as the upstream reads them.
 func (c *chatRequest) lastUserText() (string, int) {
 	for i := len(c.messages) - 1; i >= 0; i-- {
-		var m map[string]json.RawMessage // exact keys, as the upstream reads them
-		if json.Unmarshal(c.messages[i], &m) != nil {
+		m := c.messages[i]
+		if m[0] != '{' {
 			continue
 		}
-		var role string
-		if json.Unmarshal(m["role"], &role) != nil || role != "user" {
+		var role, raw []byte
+		eachMember(m, 0, func(key []byte, vs, ve int) bool {
+			switch string(key) {
+			case "role":
+				role = m[vs:ve]
+			case "content":
+				raw = m[vs:ve]
+			}
+			return true
+		})
+		if r, ok := jsonString(role); !ok || r != "user" {
 			continue
 		}
-		raw := m["content"]
-		var s string
-		if json.Unmarshal(raw, &s) == nil {
+		if s, ok := jsonString(raw); ok {
 			return s, i
 		}
 		var parts []map[string]json.RawMessage
-		if json.Unmarshal(raw, &parts) == nil {
+		if len(raw) > 0 && raw[0] == '[' && json.Unmarshal(raw, &parts) == nil {
 			var b strings.Builder
 			for _, p := range parts {
 				var typ, text string
@@ -117,30 +135,77 @@ func (c *chatRequest) lastUserText() (string, int) {
 	return "", -1
 }
 
+// systemOpen and systemClose wrap the content of the system message that
+// withSystem inserts.
+const (
+	systemOpen  = `{"role":"system","content":`
+	systemClose = `},`
+)
+
 // withSystem returns the body with a system message carrying text inserted
-// before message at: the messages array is rebuilt from its elements as
-// sent, the rest of the body is copied byte for byte.
-func (c *chatRequest) withSystem(text string, at int) ([]byte, error) {
-	content, err := json.Marshal(text)
-	if err != nil {
-		return nil, err
-	}
-	out := make([]byte, 0, len(c.body)+len(content)+32)
-	out = append(out, c.body[:c.msgStart]...)
-	out = append(out, '[')
-	for i, m := range c.messages {
-		if i == at {
-			out = append(out, `{"role":"system","content":`...)
-			out = append(out, content...)
-			out = append(out, "},"...)
+// before message at: the body is copied byte for byte with the message
+// spliced in at that element's offset.
+func (c *chatRequest) withSystem(text string, at int) []byte {
+	off := c.msgAt[at]
+	out := make([]byte, 0, len(c.body)+len(systemOpen)+len(systemClose)+len(text)+len(text)/8+2)
+	out = append(out, c.body[:off]...)
+	out = append(out, systemOpen...)
+	out = appendJSONString(out, text)
+	out = append(out, systemClose...)
+	return append(out, c.body[off:]...)
+}
+
+// appendJSONString appends s as a JSON string: quote and backslash escaped,
+// control characters as \n, \r, \t or \u00XX, U+2028 and U+2029 as \u
+// escapes (as encoding/json writes them), invalid UTF-8 as U+FFFD;
+// everything else as is. O(len(s)).
+func appendJSONString(dst []byte, s string) []byte {
+	const hex = "0123456789abcdef"
+	dst = append(dst, '"')
+	start := 0
+	for i := 0; i < len(s); {
+		c := s[i]
+		if c < utf8.RuneSelf {
+			if c >= 0x20 && c != '"' && c != '\\' {
+				i++
+				continue
+			}
+			dst = append(dst, s[start:i]...)
+			switch c {
+			case '"', '\\':
+				dst = append(dst, '\\', c)
+			case '\n':
+				dst = append(dst, '\\', 'n')
+			case '\r':
+				dst = append(dst, '\\', 'r')
+			case '\t':
+				dst = append(dst, '\\', 't')
+			default:
+				dst = append(dst, '\\', 'u', '0', '0', hex[c>>4], hex[c&0xf])
+			}
+			i++
+			start = i
+			continue
 		}
-		out = append(out, m...)
-		if i+1 < len(c.messages) {
-			out = append(out, ',')
+		r, size := utf8.DecodeRuneInString(s[i:])
+		if r == utf8.RuneError && size == 1 {
+			dst = append(dst, s[start:i]...)
+			dst = append(dst, "\\ufffd"...)
+			i += size
+			start = i
+			continue
 		}
+		if r == '\u2028' || r == '\u2029' {
+			dst = append(dst, s[start:i]...)
+			dst = append(dst, '\\', 'u', '2', '0', '2', hex[r&0xf])
+			i += size
+			start = i
+			continue
+		}
+		i += size
 	}
-	out = append(out, ']')
-	return append(out, c.body[c.msgEnd:]...), nil
+	dst = append(dst, s[start:]...)
+	return append(dst, '"')
 }
 
 // checkUnit validates a unit key.
@@ -176,14 +241,19 @@ func (s *Server) decide(ctx context.Context, text, unit string) (route, string, 
 	}
 	s.lmu.RLock()
 	defer s.lmu.RUnlock()
-	dctx, cancel := context.WithTimeout(ctx, s.cfg.DecideTimeout)
-	q, reason, ok := s.lk.former.Form(dctx, text, unit)
-	cancel()
+	// Linking and deciding each get DecideTimeout, as deadlines whose
+	// timers start only when something waits on them (a search does): a
+	// decision from the router's cache costs no timer.
+	fctx, fcancel := withLazyDeadline(ctx, s.cfg.DecideTimeout)
+	q, reason, ok := s.lk.former.Form(fctx, text, unit)
+	fcancel()
 	if !ok {
 		return route{mode: "pass", reason: reason}, "", nil
 	}
 	q.Key = unit
-	d, err := s.decideQuery(ctx, q)
+	dctx, cancel := withLazyDeadline(ctx, s.cfg.DecideTimeout)
+	defer cancel()
+	d, err := s.decideQuery(ctx, dctx, q)
 	if err != nil {
 		switch {
 		case errors.Is(err, router.ErrUnknownEntity), errors.Is(err, router.ErrUnknownValue):
@@ -203,13 +273,11 @@ func (s *Server) decide(ctx context.Context, text, unit string) (route, string, 
 	return route{mode: d.Mode.String(), reason: d.Reason.Code, d: d, decided: true}, instr, nil
 }
 
-// decideQuery runs the traced decision under DecideTimeout. A deadline
-// that passes before the search starts degrades to a direct decision with
-// reason decide-timeout.
-func (s *Server) decideQuery(ctx context.Context, q router.Query) (router.Decision, error) {
-	dctx, cancel := context.WithTimeout(ctx, s.cfg.DecideTimeout)
+// decideQuery runs the traced decision under dctx, ctx under the decide
+// deadline. A deadline that passes before the search starts degrades to a
+// direct decision with reason decide-timeout.
+func (s *Server) decideQuery(ctx, dctx context.Context, q router.Query) (router.Decision, error) {
 	d, err := s.tel.Decide(dctx, s.rt, q)
-	cancel()
 	if err == nil {
 		return d, nil
 	}
@@ -221,6 +289,25 @@ func (s *Server) decideQuery(ctx context.Context, q router.Query) (router.Decisi
 	}
 	return router.Decision{Mode: router.ModeDirect, Key: q.Key, Propensity: 1, Generation: s.rt.Generation(),
 		Reason: router.Reason{Code: ReasonDecideTimeout, Text: fmt.Sprintf("no routing decision within %v; answered directly", s.cfg.DecideTimeout)}}, nil
+}
+
+// prepare parses a chat body and routes it: the request as parsed, the
+// route taken and the body to forward (body itself when nothing is added).
+func (s *Server) prepare(ctx context.Context, body []byte, unit string) (chatRequest, route, []byte, error) {
+	c, err := parseChat(body)
+	if err != nil {
+		return c, route{}, nil, err
+	}
+	text, at := c.lastUserText()
+	rt := route{mode: "pass", reason: PassNoUserMessage}
+	if at < 0 || strings.TrimSpace(text) == "" {
+		return c, rt, body, nil
+	}
+	rt, instr, err := s.decide(ctx, text, unit)
+	if err != nil || !rt.decided {
+		return c, rt, body, err
+	}
+	return c, rt, c.withSystem(instr, at), nil
 }
 
 func (s *Server) handleChat(w http.ResponseWriter, r *http.Request) {
@@ -235,30 +322,14 @@ func (s *Server) handleChat(w http.ResponseWriter, r *http.Request) {
 		s.writeErr(w, err)
 		return
 	}
-	c, err := parseChat(body)
+	ctx := r.Context()
+	c, rt, out, err := s.prepare(ctx, body, unit)
 	if err != nil {
+		if errors.Is(err, context.Canceled) && ctx.Err() != nil {
+			return // the client went away
+		}
 		s.writeErr(w, err)
 		return
-	}
-	ctx := r.Context()
-	text, at := c.lastUserText()
-	rt := route{mode: "pass", reason: PassNoUserMessage}
-	out := body
-	if at >= 0 && strings.TrimSpace(text) != "" {
-		var instr string
-		if rt, instr, err = s.decide(ctx, text, unit); err != nil {
-			if errors.Is(err, context.Canceled) && ctx.Err() != nil {
-				return // the client went away
-			}
-			s.writeErr(w, err)
-			return
-		}
-		if rt.decided {
-			if out, err = c.withSystem(instr, at); err != nil {
-				s.writeErr(w, err)
-				return
-			}
-		}
 	}
 	s.ins.routed(ctx, rt)
 	w.Header().Set(HeaderRoute, rt.mode)

@@ -17,9 +17,11 @@
 //     before the search starts degrades to a direct decision with reason
 //     decide-timeout;
 //  4. the Renderer's text (the chain's steps, or the instruction to answer
-//     directly) is added as a system message before the last user message,
-//     and the request is forwarded to Config.Upstream + "/chat/completions"
-//     inside a GenAI client span ("chat {model}");
+//     directly; the built-in PlanRenderer keeps rendered texts per decision
+//     in a PlanCache of Config.PlanCacheSize) is spliced in as a system
+//     message before the last user message, the rest of the body forwarded
+//     byte for byte, to Config.Upstream + "/chat/completions" inside a
+//     GenAI client span ("chat {model}");
 //  5. the answer is relayed (SSE line by line, flushed per event); the model
 //     and usage are read from the JSON answer or from the stream chunk that
 //     carries them (the final one when stream_options.include_usage is set).
@@ -49,6 +51,14 @@
 // otelx.WithOutcomeAttributes);
 // the metrics are gen_ai.client.operation.duration,
 // gen_ai.client.token.usage and hopwise.gateway.requests.
+//
+// Cost: the body is walked in place (CheckKeys and the chat fields in
+// O(body), no decoding of what the gateway does not read), and the decide
+// deadline's timer starts only when a search waits on it, so a request
+// whose decision comes from the router's cache adds a few microseconds of
+// CPU to the proxy's own work: linking the message, the cache look-ups and
+// the splice (BenchmarkPrepare and BenchmarkChat measure it in thread CPU
+// against routing off in the same run; cmd/gwload under load).
 //
 // Concurrency: a *Server is safe for concurrent use; reloads are serialised
 // and hold requests back only while the linker is swapped.

@@ -93,6 +93,12 @@ func newRig(t testing.TB, cfg gw.Config, upstream http.Handler, topts ...otelx.O
 	if cfg.IndexPath == "" {
 		cfg.IndexPath = sharedIndex(t)
 	}
+	if cfg.DecideTimeout == 0 {
+		// A loaded machine under -race can stall a request past the
+		// default 50 ms before its search starts (a decide-timeout); the
+		// tests check routes, not that deadline.
+		cfg.DecideTimeout = time.Minute
+	}
 	if upstream == nil {
 		ix, err := graphidx.Open(cfg.IndexPath)
 		if err != nil {

@@ -117,15 +117,25 @@ type PlanRenderer struct {
 	Router   *router.Router
 	Namer    plan.Namer // display names; nil shows entity ids
 	Renderer *plan.Renderer
+	// Cache, when set, keeps the rendered instructions (see PlanCache);
+	// it must serve this PlanRenderer only.
+	Cache *PlanCache
 }
 
-// Render implements Renderer.
+// Render implements Renderer. Cost: a cache hit O(key); otherwise
+// plan.Build (router.Router.ChainDists for a chain) and the template.
 func (r PlanRenderer) Render(ctx context.Context, q router.Query, d router.Decision) (string, error) {
-	p, err := plan.Build(ctx, r.Router, q, d, r.Namer)
-	if err != nil {
-		return "", err
+	build := func() (string, error) {
+		p, err := plan.Build(ctx, r.Router, q, d, r.Namer)
+		if err != nil {
+			return "", err
+		}
+		return r.Renderer.Render(p)
 	}
-	return r.Renderer.Render(p)
+	if r.Cache == nil {
+		return build()
+	}
+	return r.Cache.render(r.Router.ConfigGeneration(), q, &d, build)
 }
 
 // Vocabulary is what LexiconFormer reads from the index (*graphidx.Index

@@ -61,7 +61,9 @@ func (s *Server) handleRoute(w http.ResponseWriter, r *http.Request) {
 		return
 	}
 	rq := router.Query{From: q.From, Value: q.Value, To: q.To, Key: q.Unit}
-	d, err := s.decideQuery(r.Context(), rq)
+	dctx, cancel := context.WithTimeout(r.Context(), s.cfg.DecideTimeout)
+	d, err := s.decideQuery(r.Context(), dctx, rq)
+	cancel()
 	if err != nil {
 		s.writeErr(w, classify(err))
 		return

@@ -96,7 +96,8 @@ type Config struct {
 	MeterProvider  metric.MeterProvider
 	// ProviderName, when set, is recorded as gen_ai.provider.name.
 	ProviderName string
-	// DecideTimeout bounds the routing decision (default 50 ms);
+	// DecideTimeout bounds the routing decision, and the linking of the
+	// prompt before it (each; default 50 ms);
 	// UpstreamTimeout the whole upstream exchange, streaming included
 	// (default 60 s); BodyTimeout the reading of a request body (default
 	// 10 s; a slower body gets 408).
@@ -114,6 +115,10 @@ type Config struct {
 	// OutcomeSize is the number of recent routed requests kept for
 	// POST /v1/outcomes (default 100 000; the oldest are forgotten first).
 	OutcomeSize int
+	// PlanCacheSize is the number of rendered instructions the built-in
+	// renderer keeps (PlanCache; default DefaultPlanCacheSize, negative:
+	// none). A custom Renderer is never cached.
+	PlanCacheSize int
 	// Metrics, when set, is served on GET /metrics.
 	Metrics http.Handler
 	// Logger receives failed admin logins (rate-limited) and upstream
@@ -185,6 +190,9 @@ func New(cfg Config) (*Server, error) {
 	}
 	if cfg.OutcomeSize == 0 {
 		cfg.OutcomeSize = DefaultOutcomeSize
+	}
+	if cfg.PlanCacheSize == 0 {
+		cfg.PlanCacheSize = DefaultPlanCacheSize
 	}
 	if cfg.DecideTimeout < 0 || cfg.UpstreamTimeout < 0 || cfg.BodyTimeout < 0 || cfg.MaxBodyBytes < 0 ||
 		cfg.MaxResponseBytes < 0 || cfg.OutcomeSize < 0 {
@@ -266,7 +274,14 @@ func (s *Server) openLinker() (linker, error) {
 		lk.former = TextFormer{Lex: lex, Router: s.rt, Vocab: ix}
 	}
 	if lk.renderer == nil {
-		lk.renderer = PlanRenderer{Router: s.rt, Namer: lex, Renderer: s.planR}
+		pr := PlanRenderer{Router: s.rt, Namer: lex, Renderer: s.planR}
+		if s.cfg.PlanCacheSize > 0 { // a new cache with each lexicon
+			if pr.Cache, err = NewPlanCache(s.cfg.PlanCacheSize); err != nil {
+				ix.Close()
+				return linker{}, fmt.Errorf("gw: %w", err)
+			}
+		}
+		lk.renderer = pr
 	}
 	return lk, nil
 }

@@ -24,8 +24,20 @@ const maxJSONDepth = 64
 // invalid UTF-8 in keys, trailing data, and a body without a value (empty
 // or only white space). Cost: O(n) in the body size,
 // plus O(k²) key comparisons per object of k keys (k is small in requests;
-// a map keyed by the folded key takes over past 16 keys).
+// a map keyed by the folded key takes over past 16 keys). A body that is
+// valid JSON (json.Valid) is walked in place, without decoding; any other
+// body goes through encoding/json's tokenizer for an error that names the
+// place.
 func CheckKeys(body []byte) error {
+	if json.Valid(body) {
+		return checkValidKeys(body)
+	}
+	return checkKeysTokens(body)
+}
+
+// checkKeysTokens is CheckKeys through encoding/json's tokenizer: the
+// reference walk, and the one that words the syntax errors.
+func checkKeysTokens(body []byte) error {
 	dec := json.NewDecoder(bytes.NewReader(body))
 	dec.UseNumber()
 	var stack []keyFrame

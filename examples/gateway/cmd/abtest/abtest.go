@@ -218,6 +218,11 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 		Telemetry:      tel,
 		TracerProvider: tp,
 		RouterOptions:  []router.Option{router.WithArms(arms...), router.WithExploration(cfg.Exploration, "abtest")},
+		// A decision whose deadline passes before its search starts is
+		// logged as a failed decision, which tune cannot use: on a loaded
+		// machine (tests under -race) the default 50 ms can pass while a
+		// request waits to run, so the walkthrough gives decisions a minute.
+		DecideTimeout: time.Minute,
 	})
 	if err != nil {
 		return nil, err
