@@ -120,11 +120,6 @@ func newRig(t testing.TB, cfg gw.Config, upstream http.Handler, topts ...otelx.O
 		upstream.ServeHTTP(w, req)
 	}))
 	t.Cleanup(r.upstream.Close)
-	if cfg.DecideTimeout == 0 {
-		// Tests check what a decision does, not that it beats the serving
-		// default (50 ms) on a loaded machine under the race detector.
-		cfg.DecideTimeout = 10 * time.Second
-	}
 	if cfg.Upstream == "" {
 		cfg.Upstream = r.upstream.URL + "/v1"
 	}

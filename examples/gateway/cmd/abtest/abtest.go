@@ -49,7 +49,7 @@ type Config struct {
 	CostPerToken float64
 	Reps         int
 	Workers      int // concurrent clients (default 4)
-	// DecideTimeout bounds each routing decision (default 2 s). An
+	// DecideTimeout bounds each routing decision (default one minute). An
 	// experiment wants every request decided: a decision that times out is
 	// answered directly and logged as a failed span, one unit fewer in its
 	// arm; the gateway's serving default (gw.DefaultDecideTimeout) is far
@@ -87,7 +87,7 @@ func (c *Config) defaults() error {
 		c.Workers = 4
 	}
 	if c.DecideTimeout == 0 {
-		c.DecideTimeout = 2 * time.Second
+		c.DecideTimeout = time.Minute
 	}
 	if c.Out == nil {
 		c.Out = io.Discard
@@ -218,11 +218,6 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 		Telemetry:      tel,
 		TracerProvider: tp,
 		RouterOptions:  []router.Option{router.WithArms(arms...), router.WithExploration(cfg.Exploration, "abtest")},
-		// A decision whose deadline passes before its search starts is
-		// logged as a failed decision, which tune cannot use: on a loaded
-		// machine (tests under -race) the default 50 ms can pass while a
-		// request waits to run, so the walkthrough gives decisions a minute.
-		DecideTimeout: time.Minute,
 	})
 	if err != nil {
 		return nil, err

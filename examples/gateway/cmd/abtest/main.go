@@ -43,7 +43,7 @@ func main() {
 	flag.Float64Var(&cfg.Exploration, "exploration", 0.1, "router exploration rate ε")
 	flag.Float64Var(&cfg.CostPerToken, "cost-per-token", 2e-4, "price of one token in score units (tune objective score-cost)")
 	flag.IntVar(&cfg.Reps, "reps", 400, "bootstrap replicates of tune and ab")
-	flag.DurationVar(&cfg.DecideTimeout, "decide-timeout", 2*time.Second, "bound on each routing decision (a timed-out one is answered directly and logged as a failed span)")
+	flag.DurationVar(&cfg.DecideTimeout, "decide-timeout", time.Minute, "bound on each routing decision (a timed-out one is answered directly and logged as a failed span)")
 	flag.Parse()
 	cfg.Out = os.Stdout
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
