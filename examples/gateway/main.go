@@ -28,6 +28,7 @@ import (
 	"log"
 	"net"
 	"net/http"
+	"net/url"
 	"os"
 	"os/signal"
 	"strings"
@@ -89,13 +90,27 @@ func parseFlags(args []string, getenv func(string) string, errw io.Writer) (opti
 	fs.StringVar(&o.endpoint, "otlp-endpoint", "", "OTLP/HTTP collector base URL, e.g. http://127.0.0.1:4318 (traces go to <url>/v1/traces; overrides -trace-file)")
 	fs.StringVar(&o.tokenFile, "admin-token-file", "", "file holding the bearer token for /admin/ routes (default $"+envAdminToken+")")
 	fs.StringVar(&o.hashKeyFile, "entity-hash-key-file", "", "file holding a key (≥ 16 bytes) to replace entity names in traces by keyed hashes (default $"+envHashKey+"; empty: names in clear)")
-	fs.DurationVar(&o.decide, "decide-timeout", gw.DefaultDecideTimeout, "routing decision deadline")
+	fs.DurationVar(&o.decide, "decide-timeout", gw.DefaultDecideTimeout, "routing decision deadline (0: the default)")
 	fs.DurationVar(&o.upstreamTimeout, "upstream-timeout", gw.DefaultUpstreamTimeout, "deadline of the whole upstream exchange, streaming included")
-	fs.DurationVar(&o.body, "body-timeout", gw.DefaultBodyTimeout, "deadline for receiving a request body (408 past it)")
-	fs.Int64Var(&o.maxBody, "max-body-bytes", gw.DefaultMaxBodyBytes, "largest request body (413 past it)")
+	fs.DurationVar(&o.body, "body-timeout", gw.DefaultBodyTimeout, "deadline for receiving a request body (408 past it; 0: the default)")
+	fs.Int64Var(&o.maxBody, "max-body-bytes", gw.DefaultMaxBodyBytes, "largest request body (413 past it; 0: the default)")
 	fs.DurationVar(&o.shutdown, "shutdown-timeout", 10*time.Second, "graceful shutdown deadline")
 	if err := fs.Parse(args); err != nil {
 		return o, err
+	}
+	for _, d := range []struct {
+		flag string
+		v    time.Duration
+	}{{"decide-timeout", o.decide}, {"upstream-timeout", o.upstreamTimeout}, {"body-timeout", o.body}, {"shutdown-timeout", o.shutdown}} {
+		if d.v < 0 {
+			return o, fmt.Errorf("-%s %v: want ≥ 0 (0: the default)", d.flag, d.v)
+		}
+	}
+	if o.maxBody < 0 {
+		return o, fmt.Errorf("-max-body-bytes %d: want ≥ 0 (0: the default)", o.maxBody)
+	}
+	if u, err := url.Parse(o.upstream); err != nil || (u.Scheme != "http" && u.Scheme != "https") || u.Host == "" {
+		return o, fmt.Errorf("-upstream %q: want an http or https base URL such as http://127.0.0.1:9090/v1", o.upstream)
 	}
 	if o.traceMaxBytes < 0 || o.traceBackups < 1 {
 		return o, fmt.Errorf("-trace-max-bytes must be ≥ 0 and -trace-backups ≥ 1")

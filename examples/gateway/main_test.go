@@ -275,3 +275,28 @@ func TestRunAdminChoiceLogged(t *testing.T) {
 type writerFunc func([]byte) (int, error)
 
 func (f writerFunc) Write(p []byte) (int, error) { return f(p) }
+
+// TestFlagsNamed: a bad flag value is an error naming the flag (it was
+// "gw: timeouts, sizes and limits must be ≥ 0" for all of them, and a bad
+// -upstream named a Go field).
+func TestFlagsNamed(t *testing.T) {
+	t.Parallel()
+	var errw bytes.Buffer
+	for _, tc := range []struct {
+		args []string
+		want string
+	}{
+		{[]string{"-decide-timeout", "-1s"}, "-decide-timeout -1s"},
+		{[]string{"-upstream-timeout", "-2s"}, "-upstream-timeout -2s"},
+		{[]string{"-body-timeout", "-1ms"}, "-body-timeout -1ms"},
+		{[]string{"-shutdown-timeout", "-1s"}, "-shutdown-timeout -1s"},
+		{[]string{"-max-body-bytes", "-5"}, "-max-body-bytes -5"},
+		{[]string{"-upstream", "ftp://x"}, `-upstream "ftp://x"`},
+		{[]string{"-upstream", "localhost:9090"}, `-upstream "localhost:9090"`},
+	} {
+		_, err := parseFlags(tc.args, func(string) string { return "" }, &errw)
+		if err == nil || !strings.Contains(err.Error(), tc.want) || strings.Contains(err.Error(), "Config.") {
+			t.Errorf("%v: %v, want an error naming %s", tc.args, err, tc.want)
+		}
+	}
+}

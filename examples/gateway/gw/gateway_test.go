@@ -2,6 +2,7 @@ package gw_test
 
 import (
 	"encoding/json"
+	"errors"
 	"fmt"
 	"io"
 	"net"
@@ -350,5 +351,29 @@ func TestEntityHashing(t *testing.T) {
 	}
 	if !found {
 		t.Error("no decision span")
+	}
+}
+
+// TestNewNamesBadField: New's errors wrap ErrBadConfig and name the field.
+func TestNewNamesBadField(t *testing.T) {
+	t.Parallel()
+	idx := sharedIndex(t)
+	for _, tc := range []struct {
+		cfg  gw.Config
+		want string
+	}{
+		{gw.Config{Upstream: "http://127.0.0.1:1/v1"}, "IndexPath is empty"},
+		{gw.Config{IndexPath: idx, Upstream: "ftp://x"}, `Upstream "ftp://x"`},
+		{gw.Config{IndexPath: idx, Upstream: "http://127.0.0.1:1/v1", DecideTimeout: -time.Second}, "DecideTimeout is -1s"},
+		{gw.Config{IndexPath: idx, Upstream: "http://127.0.0.1:1/v1", MaxBodyBytes: -5}, "MaxBodyBytes is -5"},
+		{gw.Config{IndexPath: idx, Upstream: "http://127.0.0.1:1/v1", OutcomeSize: -1}, "OutcomeSize is -1"},
+	} {
+		s, err := gw.New(tc.cfg)
+		if err == nil {
+			s.Close()
+		}
+		if !errors.Is(err, gw.ErrBadConfig) || !strings.Contains(err.Error(), tc.want) {
+			t.Errorf("%+v: %v, want ErrBadConfig naming %s", tc.cfg, err, tc.want)
+		}
 	}
 }

@@ -58,6 +58,11 @@ const (
 	HeaderArm = "Hopwise-Arm"
 )
 
+// ErrBadConfig is returned by New for a Config it cannot run with; the
+// message names the field (IndexPath, Upstream, a negative timeout or
+// size).
+var ErrBadConfig = errors.New("gw: bad config")
+
 // ReasonDecideTimeout is the route reason of a request whose routing
 // decision missed Config.DecideTimeout: it is forwarded with the direct
 // instruction.
@@ -168,11 +173,28 @@ type Server struct {
 // releases them.
 func New(cfg Config) (*Server, error) {
 	if cfg.IndexPath == "" {
-		return nil, errors.New("gw: Config.IndexPath is empty")
+		return nil, fmt.Errorf("%w: IndexPath is empty", ErrBadConfig)
 	}
 	u, err := url.Parse(cfg.Upstream)
 	if err != nil || (u.Scheme != "http" && u.Scheme != "https") || u.Host == "" {
-		return nil, errors.New("gw: Config.Upstream must be an http or https base URL")
+		return nil, fmt.Errorf("%w: Upstream %q is not an http or https base URL", ErrBadConfig, cfg.Upstream)
+	}
+	for _, f := range []struct {
+		name string
+		v    int64
+		unit time.Duration // non-zero for durations
+	}{
+		{"DecideTimeout", int64(cfg.DecideTimeout), 1}, {"UpstreamTimeout", int64(cfg.UpstreamTimeout), 1},
+		{"BodyTimeout", int64(cfg.BodyTimeout), 1}, {"MaxBodyBytes", cfg.MaxBodyBytes, 0},
+		{"MaxResponseBytes", cfg.MaxResponseBytes, 0}, {"OutcomeSize", int64(cfg.OutcomeSize), 0},
+	} {
+		if f.v < 0 {
+			shown := fmt.Sprint(f.v)
+			if f.unit != 0 {
+				shown = time.Duration(f.v).String()
+			}
+			return nil, fmt.Errorf("%w: %s is %s; want ≥ 0 (0: the default)", ErrBadConfig, f.name, shown)
+		}
 	}
 	def := func(p *time.Duration, v time.Duration) {
 		if *p == 0 {
@@ -193,10 +215,6 @@ func New(cfg Config) (*Server, error) {
 	}
 	if cfg.PlanCacheSize == 0 {
 		cfg.PlanCacheSize = DefaultPlanCacheSize
-	}
-	if cfg.DecideTimeout < 0 || cfg.UpstreamTimeout < 0 || cfg.BodyTimeout < 0 || cfg.MaxBodyBytes < 0 ||
-		cfg.MaxResponseBytes < 0 || cfg.OutcomeSize < 0 {
-		return nil, errors.New("gw: timeouts, sizes and limits must be ≥ 0")
 	}
 	s := &Server{cfg: cfg, tel: cfg.Telemetry, started: time.Now(), log: cfg.Logger,
 		upstream: strings.TrimSuffix(cfg.Upstream, "/") + "/chat/completions", authFail: newFailLimiter(5, time.Minute)}
