@@ -211,15 +211,15 @@ func TestDecideGoldenDigest(t *testing.T) {
 		opts []Option
 		want string
 	}{
-		{"default", nil, "10fd3aa8048803ef"},
-		{"H1", []Option{WithMaxBridges(1)}, "826db4ce2e558da2"},
-		{"H2", []Option{WithMaxBridges(2)}, "50ca4026af9016d2"},
-		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "273ba67a992c0adf"},
-		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "d8688f0d2d7e2d62"},
-		{"budget3000", []Option{WithExpansionBudget(3000)}, "05e275fe3502bfe2"},
+		{"default", nil, "edef4bc989ebbf15"},
+		{"H1", []Option{WithMaxBridges(1)}, "4384861396ecd3a8"},
+		{"H2", []Option{WithMaxBridges(2)}, "459a2a47eb105753"},
+		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "faa07dccca8c5087"},
+		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "1c98bb26f58c6d58"},
+		{"budget3000", []Option{WithExpansionBudget(3000)}, "8777fe215377a960"},
 		{"support", []Option{WithModel(support)}, "e06acf7f4b69d29a"},
-		{"exact", []Option{WithModel(exact)}, "4830f4fbafa26acc"},
-		{"utility", []Option{WithUtility(2, 0.001)}, "96c0624b3435d2e0"},
+		{"exact", []Option{WithModel(exact)}, "f73a2632ca773978"},
+		{"utility", []Option{WithUtility(2, 0.001)}, "d6b432ff2554eff2"},
 	}
 	fresh := map[string]string{} // with -update: the new digest of each case
 	for _, tc := range cases {

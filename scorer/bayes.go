@@ -167,6 +167,23 @@ import (
 // effect;
 // docs/QUALITY.md has the derivation and the measurements.
 //
+// # Range bound
+//
+// Bayes' rule bounds how far any conditional can lie from the target's
+// marginal given the two marginals alone: with P_u = P(s = u) and r = (1 −
+// P_u)/P_u, p_v ≤ m_v/P_u and 1 − p_v ≤ (1 − m_v)/P_u, so p_v − m_v ≤ U_v =
+// min(1 − m_v, m_v·r), m_v − p_v ≤ D_v = min(m_v, (1 − m_v)·r), and
+//
+//	Σ_v (p_v − m_v)² ≤ R = min(Σ_v max(U_v, D_v)², 2·min(Σ_v U_v, Σ_v D_v)²).
+//
+// E0 (after the influence bound) becomes min(E0, R + Var(m̂_t)), for every
+// pair, so the missing-signal term's ratio E0'/E0 carries it too. A target
+// value of small marginal cannot move far unless the observed value is rare
+// (P(asia = yes | smoke = yes) in ASIA is within 0.01 of P(asia = yes) =
+// 0.01, since P(smoke = yes) = 0.5). Derived, no constant; m̂ and P_u are the
+// smoothed marginals of the statistics (α). O(K_s + K_t), no look-up beyond
+// the two marginals.
+//
 // Cost O(Σ_k K_(k−1)·K_k·K_t + m·K²) = O(m·K³) time for K values per entity,
 // O(m·K²) workspace, one allocation (Dist; none with Workspace.BorrowDist). The linearisation neglects terms
 // of relative order 1/n (n the row counts): the exact posterior variance is

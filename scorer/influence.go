@@ -262,8 +262,11 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 
 // unseenErrs returns the prior error E0 of an unobserved pair (unseenErr)
 // and the error after the influence bound, min(E0, κ·2·B² + Var(m̂_t)) when
-// sup = 0 and the bound applies (marginalVar), else E0 again (see Bayes, "Influence bound"). ok
-// is false without marginals. Cost that of influenceBound when sup = 0.
+// sup = 0 and the bound applies (marginalVar), else E0 again (see Bayes, "Influence bound"),
+// then capped by the range bound, min(·, R + Var(m̂_t)) (rangeBound; for
+// every pair: E0 is the prior's distance from the marginal whatever the
+// support). ok is false without marginals. Cost that of influenceBound when
+// sup = 0, plus O(K_s + K_t).
 func (b *Bayes) unseenErrs(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, kt int, sup uint64) (prior, e0 float64, ok bool, err error) {
 	prior, ok = b.unseenErr(st, s, u, kt)
 	if !ok {
@@ -279,6 +282,9 @@ func (b *Bayes) unseenErrs(st Stats, s graphidx.EntityID, u int, t graphidx.Enti
 			// The marginal's own error adds its posterior variance.
 			e0 = min(prior, b.influence*2*bb+b.marginalVar(st, t, kt))
 		}
+	}
+	if rb, ok := b.rangeBound(st, s, u, t, kt); ok {
+		e0 = min(e0, rb+b.marginalVar(st, t, kt))
 	}
 	return prior, e0, true, nil
 }
