@@ -161,7 +161,10 @@ import (
 // only the part of its term the test could not see (w1's term over the
 // table (w1, t) covers the rest; see explains). A chain's
 // missing-signal term is scaled by the same ratio E0'/E0 (the dependence it can miss is the target's distance
-// from its marginal). Cost at most 2·InfluenceFirst + InfluenceRefine·(1 +
+// from its marginal); a one-bridge chain s → w → t, which computes the
+// route through w exactly, by min(E0, κ·2·(B_t − TV_w(d_t))² + Var(m̂_t),
+// R + Var(m̂_t))/E0 when w is observed with t (the routes it does not take;
+// the terms are kept in the workspace with the ratio). Cost at most 2·InfluenceFirst + InfluenceRefine·(1 +
 // InfluenceSecond) pair look-ups per unobserved-pair direct estimate, plus
 // 2·ColliderTests for the tests and two per route tested against a common
 // effect;
@@ -361,7 +364,8 @@ func (b *Bayes) Direct(ws *Workspace, st Stats, s graphidx.EntityID, u int, t gr
 		sq += dist[v] * dist[v]
 	}
 	e := max(0, (1-sq)/(d+1))
-	e0Prior, e0, ok, err := b.unseenErrs(st, s, u, t, kt, sup)
+	var rt routeTerms
+	e0Prior, e0, ok, err := b.unseenErrs(st, s, u, t, kt, sup, &rt)
 	if err != nil {
 		return Estimate{}, err
 	}
@@ -370,7 +374,7 @@ func (b *Bayes) Direct(ws *Workspace, st Stats, s graphidx.EntityID, u int, t gr
 		if e0Prior > 0 {
 			r = e0 / e0Prior
 		}
-		ws.remember(st, s, u, t, r)
+		ws.remember(st, s, u, t, r, &rt)
 		// Shrinkage MSE: θ̂ = λ·N/n + (1 − λ)·a/a₀ with λ = n/(n + a₀).
 		nf := float64(n)
 		lam := nf / d
@@ -442,6 +446,13 @@ func (b *Bayes) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridg
 			r, err := b.unseenRatio(ws, st, s, u, t, ws.ks[len(bridges)+1])
 			if err != nil {
 				return Estimate{}, err
+			}
+			// A one-bridge chain computes the route through its bridge
+			// exactly: it can miss only the other routes of B_t.
+			if len(bridges) == 1 && b.influence > 0 {
+				if r1, ok := ws.inflTerms.withoutRoute(bridges[0], b.influence); ok {
+					r = min(r, r1)
+				}
 			}
 			bias += ms * r
 		}
