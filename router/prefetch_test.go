@@ -211,15 +211,15 @@ func TestDecideGoldenDigest(t *testing.T) {
 		opts []Option
 		want string
 	}{
-		{"default", nil, "10fd3aa8048803ef"},
-		{"H1", []Option{WithMaxBridges(1)}, "826db4ce2e558da2"},
-		{"H2", []Option{WithMaxBridges(2)}, "50ca4026af9016d2"},
-		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "273ba67a992c0adf"},
-		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "d8688f0d2d7e2d62"},
-		{"budget3000", []Option{WithExpansionBudget(3000)}, "05e275fe3502bfe2"},
+		{"default", nil, "39c2b2500d381412"},
+		{"H1", []Option{WithMaxBridges(1)}, "09e36dbc8ab81c82"},
+		{"H2", []Option{WithMaxBridges(2)}, "fce8a4b7d7be513d"},
+		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "46341374bd26edf0"},
+		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "8e8e53460f742728"},
+		{"budget3000", []Option{WithExpansionBudget(3000)}, "a699e16b330f4411"},
 		{"support", []Option{WithModel(support)}, "e06acf7f4b69d29a"},
-		{"exact", []Option{WithModel(exact)}, "4830f4fbafa26acc"},
-		{"utility", []Option{WithUtility(2, 0.001)}, "96c0624b3435d2e0"},
+		{"exact", []Option{WithModel(exact)}, "c42fbf541f2db3a7"},
+		{"utility", []Option{WithUtility(2, 0.001)}, "d9ea10061d463d05"},
 	}
 	fresh := map[string]string{} // with -update: the new digest of each case
 	for _, tc := range cases {

@@ -161,11 +161,31 @@ import (
 // only the part of its term the test could not see (w1's term over the
 // table (w1, t) covers the rest; see explains). A chain's
 // missing-signal term is scaled by the same ratio E0'/E0 (the dependence it can miss is the target's distance
-// from its marginal). Cost at most 2·InfluenceFirst + InfluenceRefine·(1 +
+// from its marginal); a one-bridge chain s → w → t, which computes the
+// route through w exactly, by min(E0, κ·2·(B_t − TV_w(d_t))² + Var(m̂_t),
+// R + Var(m̂_t))/E0 when w is observed with t (the routes it does not take;
+// the terms are kept in the workspace with the ratio). Cost at most 2·InfluenceFirst + InfluenceRefine·(1 +
 // InfluenceSecond) pair look-ups per unobserved-pair direct estimate, plus
 // 2·ColliderTests for the tests and two per route tested against a common
 // effect;
 // docs/QUALITY.md has the derivation and the measurements.
+//
+// # Range bound
+//
+// Bayes' rule bounds how far any conditional can lie from the target's
+// marginal given the two marginals alone: with P_u = P(s = u) and r = (1 −
+// P_u)/P_u, p_v ≤ m_v/P_u and 1 − p_v ≤ (1 − m_v)/P_u, so p_v − m_v ≤ U_v =
+// min(1 − m_v, m_v·r), m_v − p_v ≤ D_v = min(m_v, (1 − m_v)·r), and
+//
+//	Σ_v (p_v − m_v)² ≤ R = min(Σ_v max(U_v, D_v)², 2·min(Σ_v U_v, Σ_v D_v)²).
+//
+// E0 (after the influence bound) becomes min(E0, R + Var(m̂_t)), for every
+// pair, so the missing-signal term's ratio E0'/E0 carries it too. A target
+// value of small marginal cannot move far unless the observed value is rare
+// (P(asia = yes | smoke = yes) in ASIA is within 0.01 of P(asia = yes) =
+// 0.01, since P(smoke = yes) = 0.5). Derived, no constant; m̂ and P_u are the
+// smoothed marginals of the statistics (α). O(K_s + K_t), no look-up beyond
+// the two marginals.
 //
 // Cost O(Σ_k K_(k−1)·K_k·K_t + m·K²) = O(m·K³) time for K values per entity,
 // O(m·K²) workspace, one allocation (Dist; none with Workspace.BorrowDist). The linearisation neglects terms
@@ -344,7 +364,8 @@ func (b *Bayes) Direct(ws *Workspace, st Stats, s graphidx.EntityID, u int, t gr
 		sq += dist[v] * dist[v]
 	}
 	e := max(0, (1-sq)/(d+1))
-	e0Prior, e0, ok, err := b.unseenErrs(st, s, u, t, kt, sup)
+	var rt routeTerms
+	e0Prior, e0, ok, err := b.unseenErrs(st, s, u, t, kt, sup, &rt)
 	if err != nil {
 		return Estimate{}, err
 	}
@@ -353,7 +374,7 @@ func (b *Bayes) Direct(ws *Workspace, st Stats, s graphidx.EntityID, u int, t gr
 		if e0Prior > 0 {
 			r = e0 / e0Prior
 		}
-		ws.remember(st, s, u, t, r)
+		ws.remember(st, s, u, t, r, &rt)
 		// Shrinkage MSE: θ̂ = λ·N/n + (1 − λ)·a/a₀ with λ = n/(n + a₀).
 		nf := float64(n)
 		lam := nf / d
@@ -425,6 +446,13 @@ func (b *Bayes) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridg
 			r, err := b.unseenRatio(ws, st, s, u, t, ws.ks[len(bridges)+1])
 			if err != nil {
 				return Estimate{}, err
+			}
+			// A one-bridge chain computes the route through its bridge
+			// exactly: it can miss only the other routes of B_t.
+			if len(bridges) == 1 && b.influence > 0 {
+				if r1, ok := ws.inflTerms.withoutRoute(bridges[0], b.influence); ok {
+					r = min(r, r1)
+				}
 			}
 			bias += ms * r
 		}

@@ -1,6 +1,7 @@
 package scorer
 
 import (
+	"math"
 	"reflect"
 
 	"github.com/hopwise/hopwise/graphidx"
@@ -43,7 +44,7 @@ const (
 // Cost as InfluenceFirst says plus at most 2·ColliderTests tables for the
 // tests and two per blocked route, O(K³) arithmetic per look-up, no
 // allocation.
-func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, stop float64) (float64, bool, error) {
+func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, stop float64, rt *routeTerms) (float64, bool, error) {
 	rn, ok := st.(RankedNeighborer)
 	if !ok {
 		return 0, false, nil
@@ -205,6 +206,12 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 		}
 		tsum += termT[i]
 	}
+	if rt != nil && tseen {
+		rt.ok, rt.n, rt.sum = true, n, tsum
+		for i := range n {
+			rt.id[i], rt.term[i], rt.seen[i] = nb[i].id, termT[i], seenT[i]
+		}
+	}
 	if tseen && 2*tsum*tsum < stop {
 		stop = 2 * tsum * tsum // the refinement below matters only below it
 	}
@@ -260,18 +267,63 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 	return sum * sum, true, nil
 }
 
+// routeTerms records, for one query (s = u, t) whose pair was never
+// observed together, the terms of B_t that the influence bound summed: for
+// each neighbour w of s observed with t, its route's term TV(d_t) (after the
+// common-effect and mediation tests), with E0's prior, Var(m̂_t) and the
+// range cap R + Var(m̂_t) (+Inf without). withoutRoute uses them to bound
+// what a one-bridge chain through w can miss (see Bayes, "Influence
+// bound"). ok is false when B_t was not computed in full.
+type routeTerms struct {
+	ok                bool
+	n                 int
+	id                [InfluenceFirst]graphidx.EntityID
+	term              [InfluenceFirst]float64
+	seen              [InfluenceFirst]bool
+	sum               float64
+	prior, floor, cap float64
+}
+
+// withoutRoute returns the ratio E0_w/E0_prior for a one-bridge chain
+// s → w → t, E0_w = min(E0_prior, κ·2·(B_t − TV_w(d_t))² + Var(m̂_t), R +
+// Var(m̂_t)): the chain computes the route through w exactly (its estimate's
+// distance from the marginal is that route's deviation), so the dependence
+// it can miss is the rest of B_t. ok is false when the terms are not
+// recorded or w is not among the neighbours observed with t. O(InfluenceFirst).
+func (rt *routeTerms) withoutRoute(w graphidx.EntityID, kappa float64) (float64, bool) {
+	if !rt.ok || !(rt.prior > 0) {
+		return 0, false
+	}
+	for i := range rt.n {
+		if rt.id[i] != w || !rt.seen[i] {
+			continue
+		}
+		rest := max(0, rt.sum-rt.term[i])
+		return min(rt.prior, kappa*2*rest*rest+rt.floor, rt.cap) / rt.prior, true
+	}
+	return 0, false
+}
+
 // unseenErrs returns the prior error E0 of an unobserved pair (unseenErr)
 // and the error after the influence bound, min(E0, κ·2·B² + Var(m̂_t)) when
-// sup = 0 and the bound applies (marginalVar), else E0 again (see Bayes, "Influence bound"). ok
-// is false without marginals. Cost that of influenceBound when sup = 0.
-func (b *Bayes) unseenErrs(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, kt int, sup uint64) (prior, e0 float64, ok bool, err error) {
+// sup = 0 and the bound applies (marginalVar), else E0 again (see Bayes, "Influence bound"),
+// then capped by the range bound, min(·, R + Var(m̂_t)) (rangeBound; for
+// every pair: E0 is the prior's distance from the marginal whatever the
+// support). ok is false without marginals. Cost that of influenceBound when
+// sup = 0, plus O(K_s + K_t).
+//
+// rt, when not nil, receives the route terms of B_t (routeTerms).
+func (b *Bayes) unseenErrs(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, kt int, sup uint64, rt *routeTerms) (prior, e0 float64, ok bool, err error) {
+	if rt != nil {
+		rt.ok = false
+	}
 	prior, ok = b.unseenErr(st, s, u, kt)
 	if !ok {
 		return 0, 0, false, nil
 	}
 	e0 = prior
 	if sup == 0 && b.influence > 0 && prior > 0 {
-		bb, ok, err := b.influenceBound(st, s, u, t, prior/b.influence)
+		bb, ok, err := b.influenceBound(st, s, u, t, prior/b.influence, rt)
 		if err != nil {
 			return 0, 0, false, err
 		}
@@ -279,6 +331,14 @@ func (b *Bayes) unseenErrs(st Stats, s graphidx.EntityID, u int, t graphidx.Enti
 			// The marginal's own error adds its posterior variance.
 			e0 = min(prior, b.influence*2*bb+b.marginalVar(st, t, kt))
 		}
+	}
+	capped := math.Inf(1)
+	if rb, ok := b.rangeBound(st, s, u, t, kt); ok {
+		capped = rb + b.marginalVar(st, t, kt)
+		e0 = min(e0, capped)
+	}
+	if rt != nil && rt.ok {
+		rt.prior, rt.floor, rt.cap = prior, b.marginalVar(st, t, kt), capped
 	}
 	return prior, e0, true, nil
 }
@@ -311,11 +371,17 @@ func (b *Bayes) marginalVar(st Stats, t graphidx.EntityID, kt int) float64 {
 
 // remember records r = E0/E0_prior of the query (s = u, t) over st in ws,
 // for the Chain calls that follow (unseenRatio). ws may be nil. O(1).
-func (ws *Workspace) remember(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, r float64) {
+// rt (may be nil: none recorded) is kept with it for Chain's one-bridge
+// chains (routeTerms.withoutRoute).
+func (ws *Workspace) remember(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, r float64, rt *routeTerms) {
 	if ws == nil {
 		return
 	}
 	ws.inflOK, ws.inflSt, ws.inflS, ws.inflU, ws.inflT, ws.inflRatio = true, st, s, u, t, r
+	ws.inflTerms.ok = false
+	if rt != nil {
+		ws.inflTerms = *rt
+	}
 }
 
 // unseenRatio returns r = E0/E0_prior ∈ [0, 1] for the query (s = u, t):
@@ -342,14 +408,15 @@ func (b *Bayes) unseenRatio(ws *Workspace, st Stats, s graphidx.EntityID, u int,
 		sup = ps.Support()
 	}
 	r := 1.0
-	prior, e0, ok, err := b.unseenErrs(st, s, u, t, kt, sup)
+	var rt routeTerms
+	prior, e0, ok, err := b.unseenErrs(st, s, u, t, kt, sup, &rt)
 	if err != nil {
 		return 0, err
 	}
 	if ok && prior > 0 {
 		r = e0 / prior
 	}
-	ws.remember(st, s, u, t, r)
+	ws.remember(st, s, u, t, r, &rt)
 	return r, nil
 }
 

@@ -53,6 +53,8 @@ type Workspace struct {
 	inflU        int
 	inflSt       Stats
 	inflRatio    float64
+	// inflTerms are the route terms of B_t of that query (routeTerms).
+	inflTerms routeTerms
 
 	// borrow makes newDist hand out out instead of a fresh slice
 	// (BorrowDist); out is never used as scratch by any computation.
