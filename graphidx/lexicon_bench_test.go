@@ -13,6 +13,7 @@ import (
 	"unsafe"
 
 	"github.com/hopwise/hopwise/graphidx/internal/testcorpus"
+	"github.com/hopwise/hopwise/internal/cpuclock"
 )
 
 var greenhouseKinds = []string{"moisture probe", "leaf wilt", "vent motor", "drip valve", "soil moisture",
@@ -127,15 +128,15 @@ func BenchmarkLexicon1M(b *testing.B) {
 	for b.Loop() {
 		p := prompts[i%len(prompts)]
 		i++
-		c0 := threadCPU()
+		c0 := cpuclock.ThreadOrWall()
 		for range batch {
 			buf, err = l.AppendLinks(buf[:0], p)
 		}
-		c1 := threadCPU()
+		c1 := cpuclock.ThreadOrWall()
 		for range batch {
 			tokenize(p)
 		}
-		c2 := threadCPU()
+		c2 := cpuclock.ThreadOrWall()
 		if err != nil || len(buf) < 4 {
 			b.Fatalf("%v, %d mentions", err, len(buf))
 		}

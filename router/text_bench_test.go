@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/internal/cpuclock"
 )
 
 // BenchmarkDecideTextOverhead measures what deciding from a prompt adds to
@@ -62,18 +63,18 @@ func BenchmarkDecideTextOverhead(b *testing.B) {
 		var d Decision
 		var err error
 		decide := func() {
-			t0 := threadCPU()
+			t0 := cpuclock.ThreadOrWall()
 			d, err = r.Decide(ctx, qs[k])
-			tDecide += threadCPU() - t0
+			tDecide += cpuclock.ThreadOrWall() - t0
 			if err != nil {
 				b.Fatal(err)
 			}
 		}
 		var td TextDecision
 		text := func() {
-			t0 := threadCPU()
+			t0 := cpuclock.ThreadOrWall()
 			ms, err := lex.Link(texts[k])
-			tLink += threadCPU() - t0
+			tLink += cpuclock.ThreadOrWall() - t0
 			if err != nil {
 				b.Fatal(err)
 			}
@@ -83,13 +84,13 @@ func BenchmarkDecideTextOverhead(b *testing.B) {
 				}
 			}
 			td, err = r.DecideMentions(ctx, ms)
-			tText += threadCPU() - t0
+			tText += cpuclock.ThreadOrWall() - t0
 			if err != nil {
 				b.Fatal(err)
 			}
 		}
-		c0 := threadCPU()
-		tClock += threadCPU() - c0
+		c0 := cpuclock.ThreadOrWall()
+		tClock += cpuclock.ThreadOrWall() - c0
 		if first {
 			decide()
 			text()

@@ -7,6 +7,7 @@ import (
 	"time"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/internal/cpuclock"
 	"github.com/hopwise/hopwise/router"
 )
 
@@ -43,7 +44,7 @@ func BenchmarkGuardOverhead(b *testing.B) {
 			runtime.LockOSThread()
 			defer runtime.UnlockOSThread()
 			clock := func() time.Duration {
-				if d, ok := threadCPU(); ok {
+				if d, ok := cpuclock.Thread(); ok {
 					return d
 				}
 				return time.Duration(time.Now().UnixNano())

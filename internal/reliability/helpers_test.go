@@ -16,6 +16,7 @@ import (
 
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/internal/cli"
+	"github.com/hopwise/hopwise/internal/cpuclock"
 	stresstest "github.com/hopwise/hopwise/internal/stress"
 )
 
@@ -172,10 +173,10 @@ func (m measured) work() time.Duration {
 func measure(f func()) measured {
 	runtime.LockOSThread()
 	defer runtime.UnlockOSThread()
-	c0, ok0 := threadCPU()
+	c0, ok0 := cpuclock.Thread()
 	start := time.Now()
 	f()
 	wall := time.Since(start)
-	c1, ok1 := threadCPU()
+	c1, ok1 := cpuclock.Thread()
 	return measured{wall: wall, cpu: c1 - c0, cpuOK: ok0 && ok1}
 }

@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"github.com/hopwise/hopwise/examples/gateway/gw"
+	"github.com/hopwise/hopwise/internal/cpuclock"
 	"github.com/hopwise/hopwise/otelx"
 	"go.opentelemetry.io/otel/metric/noop"
 	tnoop "go.opentelemetry.io/otel/trace/noop"
@@ -109,14 +110,14 @@ type threadClock struct {
 
 func startThreadCPU() threadClock {
 	runtime.LockOSThread()
-	t0, ok := threadCPU()
+	t0, ok := cpuclock.Thread()
 	return threadClock{t0, ok}
 }
 
 // report unlocks the thread and reports cpu-ns/op, and added-cpu-ns/op
 // against *base (set by the baseline, which runs first).
 func (c threadClock) report(b *testing.B, base *float64, baseline bool) {
-	t1, ok := threadCPU()
+	t1, ok := cpuclock.Thread()
 	runtime.UnlockOSThread()
 	if !c.ok || !ok {
 		return

@@ -66,6 +66,7 @@ import (
 	"github.com/hopwise/hopwise/examples/gateway/simmodel"
 	"github.com/hopwise/hopwise/examples/internal/ghtest"
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/internal/cpuclock"
 	"github.com/hopwise/hopwise/otelx"
 	"github.com/hopwise/hopwise/router"
 	"go.opentelemetry.io/otel/metric"
@@ -407,7 +408,7 @@ func Run(ctx context.Context, cfg Config) (*Result, error) {
 		res.OpenOff, res.OpenOn = open[0].stats("routing off"), open[1].stats("routing on")
 		res.OpenAddedP99 = res.OpenOn.P99 - res.OpenOff.P99
 	}
-	if _, ok := threadCPU(); ok && cfg.HandlerCPU {
+	if _, ok := cpuclock.Thread(); ok && cfg.HandlerCPU {
 		if err := coldCache(); err != nil {
 			return nil, err
 		}
@@ -456,9 +457,9 @@ func (m *meter) serve(w http.ResponseWriter, r *http.Request) {
 	}
 	runtime.LockOSThread()
 	defer runtime.UnlockOSThread()
-	t0, _ := threadCPU()
+	t0, _ := cpuclock.Thread()
 	m.h.ServeHTTP(w, r)
-	t1, _ := threadCPU()
+	t1, _ := cpuclock.Thread()
 	m.cpu.Add(int64(t1 - t0))
 	m.n.Add(1)
 }

@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"github.com/hopwise/hopwise/examples/internal/ghtest"
+	"github.com/hopwise/hopwise/internal/cpuclock"
 	"github.com/hopwise/hopwise/router"
 )
 
@@ -47,7 +48,7 @@ func TestRunSmall(t *testing.T) {
 		if res.Rate != 2000 || !strings.Contains(out.String(), "closed loop: routing adds") || !strings.Contains(out.String(), "open loop at 2000 req/s") {
 			t.Errorf("rate %v, report:\n%s", res.Rate, out.String())
 		}
-		if _, ok := threadCPU(); ok && (res.HandlerOn <= 0 || res.HandlerOff <= 0 || !strings.Contains(out.String(), "handler thread CPU")) {
+		if _, ok := cpuclock.Thread(); ok && (res.HandlerOn <= 0 || res.HandlerOff <= 0 || !strings.Contains(out.String(), "handler thread CPU")) {
 			t.Errorf("handler CPU: on %v, off %v", res.HandlerOn, res.HandlerOff)
 		}
 	}

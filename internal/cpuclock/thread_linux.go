@@ -1,6 +1,6 @@
 //go:build linux
 
-package main
+package cpuclock
 
 import (
 	"time"
@@ -8,10 +8,9 @@ import (
 	"golang.org/x/sys/unix"
 )
 
-// threadCPU is the calling thread's CPU time (CLOCK_THREAD_CPUTIME_ID);
-// ok is false when the clock cannot be read. The caller locks its OS
-// thread.
-func threadCPU() (time.Duration, bool) {
+// Thread returns the calling OS thread's CPU time; ok is false when the
+// clock cannot be read.
+func Thread() (time.Duration, bool) {
 	var ts unix.Timespec
 	if err := unix.ClockGettime(unix.CLOCK_THREAD_CPUTIME_ID, &ts); err != nil {
 		return 0, false

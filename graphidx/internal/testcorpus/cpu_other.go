@@ -1,8 +1,0 @@
-//go:build !unix
-
-package testcorpus
-
-import "time"
-
-// CPUTime is not measured on this platform: it returns 0.
-func CPUTime() time.Duration { return 0 }
