@@ -12,6 +12,7 @@ import (
 	"reflect"
 	"runtime"
 	"strings"
+	"sync/atomic"
 	"testing"
 
 	"github.com/hopwise/hopwise/graphidx"
@@ -47,6 +48,24 @@ func (g nonClosingIndex) PairBatch(a, b []graphidx.EntityID, out []graphidx.Pair
 func (g nonClosingIndex) RankPrefix() int { return g.ix.RankPrefix() }
 
 func wrapIndex(ix *graphidx.Index) nonClosingIndex { return nonClosingIndex{nonClosing{ix}, ix} }
+
+// hintedIndex is nonClosingIndex that also forwards the hinted batch
+// look-up (HintedPairBatcher) and counts the pairs asked with a hint.
+type hintedIndex struct {
+	nonClosingIndex
+	hinted *atomic.Int64
+}
+
+func (g hintedIndex) RankedPairHints(id graphidx.EntityID) []uint32 { return g.ix.RankedPairHints(id) }
+
+func (g hintedIndex) PairBatchHinted(a, b []graphidx.EntityID, hint []uint32, out []graphidx.PairStats, ok []bool) {
+	for _, h := range hint[:len(a)] {
+		if h != graphidx.NoPairHint {
+			g.hinted.Add(1)
+		}
+	}
+	g.ix.PairBatchHinted(a, b, hint, out, ok)
+}
 
 // TestPrefetchMatchesSequential: the batch prefetch and the pair memo change
 // no decision. Every query of the brute-force graphs, under loose and tight
@@ -178,7 +197,9 @@ func f64bits(x []float64) []uint64 {
 }
 
 // TestDecideGoldenDigest pins every field of 2000 decisions per
-// configuration on a seeded 20k-entity power-law index. The digests were
+// configuration on a seeded 20k-entity power-law index, read with
+// stored-position hints (HintedPairBatcher), with PairBatch alone and with
+// Pair alone: the three give the same digests. The digests were
 // first computed by the router before the pair memo, the batch prefetch and
 // the other latency work (commit ffa682b), which left them unchanged; they
 // were recomputed once when the scorer gained the missing-signal chain bias
@@ -222,12 +243,13 @@ func TestDecideGoldenDigest(t *testing.T) {
 		{"utility", []Option{WithUtility(2, 0.001)}, "96c0624b3435d2e0"},
 	}
 	fresh := map[string]string{} // with -update: the new digest of each case
+	var hinted atomic.Int64
 	for _, tc := range cases {
 		opts := append([]Option{WithCacheSize(0)}, tc.opts...)
 		for _, wrap := range []struct {
 			name string
 			g    Graph
-		}{{"batch", wrapIndex(ix)}, {"plain", nonClosing{ix}}} {
+		}{{"hinted", hintedIndex{wrapIndex(ix), &hinted}}, {"batch", wrapIndex(ix)}, {"plain", nonClosing{ix}}} {
 			r := mustNew(t, wrap.g, opts...)
 			got, chains := decisionDigest(t, r, qs)
 			if *update {
@@ -243,6 +265,10 @@ func TestDecideGoldenDigest(t *testing.T) {
 			}
 		}
 	}
+	if hinted.Load() == 0 {
+		t.Error("no pair was looked up with a stored-position hint: the hinted path was not exercised")
+	}
+	t.Logf("%d pairs looked up with a hint", hinted.Load())
 	if *update {
 		old := map[string]string{}
 		for _, tc := range cases {
@@ -306,6 +332,7 @@ func TestPrefetchBatchIsCapped(t *testing.T) {
 
 // The index offers every optional method the router looks for.
 var (
-	_ PairBatcher  = (*graphidx.Index)(nil)
-	_ NameAppender = (*graphidx.Index)(nil)
+	_ PairBatcher       = (*graphidx.Index)(nil)
+	_ HintedPairBatcher = (*graphidx.Index)(nil)
+	_ NameAppender      = (*graphidx.Index)(nil)
 )

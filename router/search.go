@@ -113,6 +113,7 @@ import (
 // NaN until a join needs it (cost1).
 type step1 struct {
 	id   graphidx.EntityID
+	hint uint32 // stored position of the pair (origin, id), graphidx.NoPairHint if unknown
 	cost float64
 }
 
@@ -121,7 +122,8 @@ type step1 struct {
 type step2 struct {
 	a, b graphidx.EntityID
 	li   int32
-	r    int32 // position of b among a's eligible neighbours (rank order)
+	r    int32  // position of b among a's eligible neighbours (rank order)
+	hint uint32 // stored position of the pair (a, b), graphidx.NoPairHint if unknown
 	c2   float64
 }
 
@@ -239,6 +241,7 @@ type scratch struct {
 	totF2, totT2 int
 	keysF, keysT []uint64
 	rks          [][]graphidx.EntityID // ranked lists of the layer-1 nodes
+	hks          [][]uint32            // their pair hints (HintedPairBatcher), nil entries without
 	heap         []cand
 	hits         []graphidx.EntityID
 	path         []graphidx.EntityID
@@ -259,9 +262,11 @@ type scratch struct {
 	incDist []float64
 	err     error // model failure during generation
 	memo    pairMemo
-	pb      PairBatcher // the graph's batch look-up, or nil
-	pend    struct {    // pairs queued for fetch
+	pb      PairBatcher       // the graph's batch look-up, or nil
+	hp      HintedPairBatcher // the graph's hinted batch look-up, or nil
+	pend    struct {          // pairs queued for fetch
 		lo, hi []graphidx.EntityID
+		hint   []uint32 // stored pair positions, graphidx.NoPairHint when unknown
 		ps     []graphidx.PairStats
 		ok     []bool
 	}
@@ -298,8 +303,9 @@ func newScratch() *scratch {
 }
 
 func (sc *scratch) reset() {
-	sc.g, sc.model, sc.st, sc.pb = nil, nil, nil, nil
+	sc.g, sc.model, sc.st, sc.pb, sc.hp = nil, nil, nil, nil, nil
 	clear(sc.rks[:cap(sc.rks)]) // drop references into the index
+	clear(sc.hks[:cap(sc.hks)])
 	sc.dropped = 0
 	sc.bud = budget{}
 	sc.inc.ok = false
@@ -549,7 +555,8 @@ func (sc *scratch) prunable(lower float64) bool {
 func (sc *scratch) layer1(out []step1, from, other graphidx.EntityID) (l []step1, ok, beamCut bool) {
 	out = out[:0]
 	rk := sc.g.RankedNeighbors(from)
-	for _, x := range rk {
+	hints := sc.rankedHints(from, len(rk))
+	for j, x := range rk {
 		if x == other || x == from {
 			continue
 		}
@@ -559,14 +566,18 @@ func (sc *scratch) layer1(out []step1, from, other graphidx.EntityID) (l []step1
 		if sc.bud.take(1) == 0 {
 			return out, false, false
 		}
-		out = append(out, step1{id: x, cost: math.NaN()})
+		h := uint32(graphidx.NoPairHint)
+		if hints != nil {
+			h = hints[j]
+		}
+		out = append(out, step1{id: x, hint: h, cost: math.NaN()})
 	}
 	if sc.whole(from, rk) {
 		return out, true, false
 	}
 	extra, ok, beamCut := sc.beyond(from, rk, sc.st.beam-len(out), from, other, from)
 	for _, x := range extra {
-		out = append(out, step1{id: x, cost: math.NaN()})
+		out = append(out, step1{id: x, hint: graphidx.NoPairHint, cost: math.NaN()})
 	}
 	return out, ok, beamCut
 }
@@ -729,37 +740,43 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 	f := sc.st.fanOut
 	cnt := (*counts)[:0]
 	defer func() { *counts = cnt }()
-	rks := sc.rks[:0]
+	rks, hks := sc.rks[:0], sc.hks[:0]
 	for i, x := range l1 {
 		// A hub's first layer can hold 10⁵ nodes whose list offsets are
 		// read here, uncharged (cold pages of the mapping on a first
 		// call): poll the deadline.
 		if i%pollEvery == pollEvery-1 && sc.bud.poll() {
-			sc.rks = rks
+			sc.rks, sc.hks = rks, hks
 			return out, false, beamCut
 		}
-		rks = append(rks, sc.g.RankedNeighbors(x.id))
+		rk := sc.g.RankedNeighbors(x.id)
+		rks = append(rks, rk)
+		hks = append(hks, sc.rankedHints(x.id, len(rk)))
 	}
-	sc.rks = rks
+	sc.rks, sc.hks = rks, hks
 	// Read the head of every ranked list in one tight loop first: the
 	// loads are independent, so their cache misses overlap, where the
 	// loop below (branchy, one list after the other) would meet them one
 	// by one.
 	// The last entry the loop can read (f paths plus the two ends) may
 	// sit on the list's next cache line: touch it too.
+	// The same for the pair hints the joins pass with the paths' edges.
 	var touch graphidx.EntityID
-	for _, rk := range rks {
+	for i, rk := range rks {
 		if len(rk) > 0 {
 			touch += rk[0] + rk[min(len(rk), f+2)-1]
+			if hk := hks[i]; hk != nil {
+				touch += hk[0] + hk[min(len(hk), f+2)-1]
+			}
 		}
 	}
 	sc.touched += uint32(touch)
 	for i, x := range l1 {
-		rk := rks[i]
+		rk, hk := rks[i], hks[i]
 		n := 0
 		full := false
 		dead := live != nil && !live[i] // counted, not extended
-		for _, y := range rk {
+		for j, y := range rk {
 			if y == from || y == other || y == x.id {
 				continue
 			}
@@ -768,7 +785,11 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 				break
 			}
 			if !dead {
-				out = append(out, step2{a: x.id, b: y, li: int32(i), r: int32(n), c2: math.NaN()})
+				h := uint32(graphidx.NoPairHint)
+				if hk != nil {
+					h = hk[j]
+				}
+				out = append(out, step2{a: x.id, b: y, li: int32(i), r: int32(n), hint: h, c2: math.NaN()})
 			}
 			n++
 		}
@@ -800,7 +821,7 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 		}
 		extra, eok, ecut := sc.beyond(x.id, rk, f-n, from, other, x.id)
 		for _, y := range extra {
-			out = append(out, step2{a: x.id, b: y, li: int32(i), r: int32(n), c2: math.NaN()})
+			out = append(out, step2{a: x.id, b: y, li: int32(i), r: int32(n), hint: graphidx.NoPairHint, c2: math.NaN()})
 			n++
 		}
 		cnt = append(cnt, int32(n))
@@ -866,12 +887,12 @@ func (sc *scratch) liveNodes() (liveF, liveT []bool) {
 	if sc.beginPrefetch(sc.bud.left/lookupUnits + 1) {
 		for i := range f1 {
 			if f1[i].cost != f1[i].cost {
-				sc.want(s, f1[i].id)
+				sc.wantHint(s, f1[i].id, f1[i].hint)
 			}
 		}
 		for i := range t1 {
 			if t1[i].cost != t1[i].cost {
-				sc.want(t1[i].id, t)
+				sc.wantHint(t1[i].id, t, t1[i].hint)
 			}
 		}
 		sc.fetch()
@@ -1277,13 +1298,13 @@ func (sc *scratch) joinAll() {
 		wantF := func(i int32) {
 			if !endF[i] && f1[i].cost != f1[i].cost { // not yet costed
 				endF[i] = true
-				sc.want(s, f1[i].id)
+				sc.wantHint(s, f1[i].id, f1[i].hint)
 			}
 		}
 		wantT := func(i int32) {
 			if !endT[i] && t1[i].cost != t1[i].cost {
 				endT[i] = true
-				sc.want(t1[i].id, t)
+				sc.wantHint(t1[i].id, t, t1[i].hint)
 			}
 		}
 		for _, p := range sc.joinA {
@@ -1373,15 +1394,13 @@ func (sc *scratch) joinAll() {
 			for _, m := range chunk {
 				switch m.kind {
 				case 0:
-					f := &f2[uint32(sc.joinA[m.i].key)]
-					sc.want(f.a, f.b)
+					sc.want2(&f2[uint32(sc.joinA[m.i].key)])
 				case 1:
-					y := &t2[uint32(sc.joinB[m.i].key)]
-					sc.want(y.b, y.a)
+					sc.want2(&t2[uint32(sc.joinB[m.i].key)])
 				default:
 					mt := sc.joinC[m.i]
-					sc.want(f2[mt.f].a, f2[mt.f].b)
-					sc.want(t2[mt.t].b, t2[mt.t].a)
+					sc.want2(&f2[mt.f])
+					sc.want2(&t2[mt.t])
 				}
 			}
 			sc.fetch()
