@@ -77,7 +77,9 @@ import (
 // PairBatcher, the pairs of the one-bridge phase, the end edges of the
 // joins and the middle edges of each chunk of matches are fetched in one
 // batch each (fetch), so that their cache misses overlap; the phase then
-// finds them in the memo. The budget is charged per edge by the phase
+// finds them in the memo. When it also implements HintedPairBatcher, the
+// end and middle edges, all reached through ranked lists, carry the stored
+// position of their pair, which spares each its binary search. The budget is charged per edge by the phase
 // exactly as without the batch, so no decision changes; a batch holds at
 // most the look-ups the remaining budget allows, so a decision's graph
 // look-ups stay below twice the budget's.
