@@ -199,8 +199,26 @@ func (sc *scratch) wantHint(a, b graphidx.EntityID, hint uint32) {
 	}
 }
 
-// want2 queues the second edge p.a → p.b of a layer path with its hint.
-func (sc *scratch) want2(p *step2) { sc.wantHint(p.a, p.b, p.hint) }
+// want2 queues the second edge p.a → p.b of a path of side's second layer
+// (0: s, 1: t) with its hint. The hint is the one beside p.b in p.a's
+// ranked list, kept by layer2: p.b is the path's r-th eligible entry, so
+// it sits at position r to r+3 of the list (at most the layer's two ends
+// and p.a itself come before it and are not eligible); a path from beyond
+// is in no ranked list and gets no hint. O(1).
+func (sc *scratch) want2(p *step2, side int) {
+	h := uint32(graphidx.NoPairHint)
+	if int(p.li) < len(sc.hks[side]) {
+		if rk, hk := sc.rks[side][p.li], sc.hks[side][p.li]; hk != nil {
+			for j := int(p.r); j < min(len(rk), int(p.r)+4); j++ {
+				if rk[j] == p.b {
+					h = hk[j]
+					break
+				}
+			}
+		}
+	}
+	sc.wantHint(p.a, p.b, h)
+}
 
 // rankedHints returns the graph's hints for id's ranked list when it has
 // them and they cover at least n entries, else nil. O(1).

@@ -11,6 +11,7 @@ import (
 	"path/filepath"
 	"reflect"
 	"runtime"
+	"sort"
 	"strings"
 	"sync/atomic"
 	"testing"
@@ -50,18 +51,28 @@ func (g nonClosingIndex) RankPrefix() int { return g.ix.RankPrefix() }
 func wrapIndex(ix *graphidx.Index) nonClosingIndex { return nonClosingIndex{nonClosing{ix}, ix} }
 
 // hintedIndex is nonClosingIndex that also forwards the hinted batch
-// look-up (HintedPairBatcher) and counts the pairs asked with a hint.
+// look-up (HintedPairBatcher), counts the pairs asked with a hint and
+// those whose hint does not name the pair (a wasted hint: the index falls
+// back to the search).
 type hintedIndex struct {
 	nonClosingIndex
-	hinted *atomic.Int64
+	hinted, wrong *atomic.Int64
 }
 
 func (g hintedIndex) RankedPairHints(id graphidx.EntityID) []uint32 { return g.ix.RankedPairHints(id) }
 
 func (g hintedIndex) PairBatchHinted(a, b []graphidx.EntityID, hint []uint32, out []graphidx.PairStats, ok []bool) {
-	for _, h := range hint[:len(a)] {
-		if h != graphidx.NoPairHint {
-			g.hinted.Add(1)
+	for i, h := range hint[:len(a)] {
+		if h == graphidx.NoPairHint {
+			continue
+		}
+		g.hinted.Add(1)
+		// The pair's position in lo's upper list (its neighbours > lo).
+		lo, hi := min(a[i], b[i]), max(a[i], b[i])
+		nb := g.ix.Neighbors(lo)
+		up := nb[sort.Search(len(nb), func(j int) bool { return nb[j] > lo }):]
+		if int(h) >= len(up) || up[h] != hi {
+			g.wrong.Add(1)
 		}
 	}
 	g.ix.PairBatchHinted(a, b, hint, out, ok)
@@ -243,13 +254,13 @@ func TestDecideGoldenDigest(t *testing.T) {
 		{"utility", []Option{WithUtility(2, 0.001)}, "96c0624b3435d2e0"},
 	}
 	fresh := map[string]string{} // with -update: the new digest of each case
-	var hinted atomic.Int64
+	var hinted, wrong atomic.Int64
 	for _, tc := range cases {
 		opts := append([]Option{WithCacheSize(0)}, tc.opts...)
 		for _, wrap := range []struct {
 			name string
 			g    Graph
-		}{{"hinted", hintedIndex{wrapIndex(ix), &hinted}}, {"batch", wrapIndex(ix)}, {"plain", nonClosing{ix}}} {
+		}{{"hinted", hintedIndex{wrapIndex(ix), &hinted, &wrong}}, {"batch", wrapIndex(ix)}, {"plain", nonClosing{ix}}} {
 			r := mustNew(t, wrap.g, opts...)
 			got, chains := decisionDigest(t, r, qs)
 			if *update {
@@ -267,6 +278,9 @@ func TestDecideGoldenDigest(t *testing.T) {
 	}
 	if hinted.Load() == 0 {
 		t.Error("no pair was looked up with a stored-position hint: the hinted path was not exercised")
+	}
+	if wrong.Load() != 0 {
+		t.Errorf("%d of %d hints did not name their pair", wrong.Load(), hinted.Load())
 	}
 	t.Logf("%d pairs looked up with a hint", hinted.Load())
 	if *update {

@@ -124,8 +124,7 @@ type step1 struct {
 type step2 struct {
 	a, b graphidx.EntityID
 	li   int32
-	r    int32  // position of b among a's eligible neighbours (rank order)
-	hint uint32 // stored position of the pair (a, b), graphidx.NoPairHint if unknown
+	r    int32 // position of b among a's eligible neighbours (rank order)
 	c2   float64
 }
 
@@ -242,8 +241,8 @@ type scratch struct {
 	nF2, nT2     []int32
 	totF2, totT2 int
 	keysF, keysT []uint64
-	rks          [][]graphidx.EntityID // ranked lists of the layer-1 nodes
-	hks          [][]uint32            // their pair hints (HintedPairBatcher), nil entries without
+	rks          [2][][]graphidx.EntityID // ranked lists of the layer-1 nodes, s side and t side
+	hks          [2][][]uint32            // their pair hints (HintedPairBatcher), nil entries without
 	heap         []cand
 	hits         []graphidx.EntityID
 	path         []graphidx.EntityID
@@ -306,8 +305,10 @@ func newScratch() *scratch {
 
 func (sc *scratch) reset() {
 	sc.g, sc.model, sc.st, sc.pb, sc.hp = nil, nil, nil, nil, nil
-	clear(sc.rks[:cap(sc.rks)]) // drop references into the index
-	clear(sc.hks[:cap(sc.hks)])
+	for side := range sc.rks { // drop references into the index
+		clear(sc.rks[side][:cap(sc.rks[side])])
+		clear(sc.hks[side][:cap(sc.hks[side])])
+	}
 	sc.dropped = 0
 	sc.bud = budget{}
 	sc.inc.ok = false
@@ -736,26 +737,29 @@ func known(x float64) float64 {
 // its count and flags are what extending it would give; liveNodes admits
 // that only when such a node's paths come from its ranked prefix alone
 // (no beyond) and the budget cannot run out.
-func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphidx.EntityID, live []bool, counts *[]int32) (l []step2, ok, beamCut bool) {
+//
+// side (0 for s, 1 for t) names where the nodes' ranked lists and pair
+// hints are kept for the joins (want2).
+func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphidx.EntityID, live []bool, counts *[]int32, side int) (l []step2, ok, beamCut bool) {
 	out = out[:0]
 	ok = l1ok
 	f := sc.st.fanOut
 	cnt := (*counts)[:0]
 	defer func() { *counts = cnt }()
-	rks, hks := sc.rks[:0], sc.hks[:0]
+	rks, hks := sc.rks[side][:0], sc.hks[side][:0]
 	for i, x := range l1 {
 		// A hub's first layer can hold 10⁵ nodes whose list offsets are
 		// read here, uncharged (cold pages of the mapping on a first
 		// call): poll the deadline.
 		if i%pollEvery == pollEvery-1 && sc.bud.poll() {
-			sc.rks, sc.hks = rks, hks
+			sc.rks[side], sc.hks[side] = rks, hks
 			return out, false, beamCut
 		}
 		rk := sc.g.RankedNeighbors(x.id)
 		rks = append(rks, rk)
 		hks = append(hks, sc.rankedHints(x.id, len(rk)))
 	}
-	sc.rks, sc.hks = rks, hks
+	sc.rks[side], sc.hks[side] = rks, hks
 	// Read the head of every ranked list in one tight loop first: the
 	// loads are independent, so their cache misses overlap, where the
 	// loop below (branchy, one list after the other) would meet them one
@@ -774,11 +778,11 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 	}
 	sc.touched += uint32(touch)
 	for i, x := range l1 {
-		rk, hk := rks[i], hks[i]
+		rk := rks[i]
 		n := 0
 		full := false
 		dead := live != nil && !live[i] // counted, not extended
-		for j, y := range rk {
+		for _, y := range rk {
 			if y == from || y == other || y == x.id {
 				continue
 			}
@@ -787,11 +791,7 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 				break
 			}
 			if !dead {
-				h := uint32(graphidx.NoPairHint)
-				if hk != nil {
-					h = hk[j]
-				}
-				out = append(out, step2{a: x.id, b: y, li: int32(i), r: int32(n), hint: h, c2: math.NaN()})
+				out = append(out, step2{a: x.id, b: y, li: int32(i), r: int32(n), c2: math.NaN()})
 			}
 			n++
 		}
@@ -823,7 +823,7 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 		}
 		extra, eok, ecut := sc.beyond(x.id, rk, f-n, from, other, x.id)
 		for _, y := range extra {
-			out = append(out, step2{a: x.id, b: y, li: int32(i), r: int32(n), hint: graphidx.NoPairHint, c2: math.NaN()})
+			out = append(out, step2{a: x.id, b: y, li: int32(i), r: int32(n), c2: math.NaN()})
 			n++
 		}
 		cnt = append(cnt, int32(n))
@@ -1031,8 +1031,8 @@ func (sc *scratch) generate() searchResult {
 	sc.f1, f1ok, f1cut = sc.layer1(sc.f1, s, t)
 	sc.t1, t1ok, t1cut = sc.layer1(sc.t1, t, s)
 	liveF, liveT := sc.liveNodes()
-	sc.f2, f2ok, f2cut = sc.layer2(sc.f2, sc.f1, f1ok, s, t, liveF, &sc.nF2)
-	sc.t2, t2ok, t2cut = sc.layer2(sc.t2, sc.t1, t1ok, t, s, liveT, &sc.nT2)
+	sc.f2, f2ok, f2cut = sc.layer2(sc.f2, sc.f1, f1ok, s, t, liveF, &sc.nF2, 0)
+	sc.t2, t2ok, t2cut = sc.layer2(sc.t2, sc.t1, t1ok, t, s, liveT, &sc.nT2, 1)
 	sc.totF2, sc.totT2 = sumCounts(sc.nF2), sumCounts(sc.nT2)
 	skip3 := H < 3 || (sc.inc.ok && sc.bound(3) <= sc.inc.score)
 	sc.matchJoins(skip3)
@@ -1396,13 +1396,13 @@ func (sc *scratch) joinAll() {
 			for _, m := range chunk {
 				switch m.kind {
 				case 0:
-					sc.want2(&f2[uint32(sc.joinA[m.i].key)])
+					sc.want2(&f2[uint32(sc.joinA[m.i].key)], 0)
 				case 1:
-					sc.want2(&t2[uint32(sc.joinB[m.i].key)])
+					sc.want2(&t2[uint32(sc.joinB[m.i].key)], 1)
 				default:
 					mt := sc.joinC[m.i]
-					sc.want2(&f2[mt.f])
-					sc.want2(&t2[mt.t])
+					sc.want2(&f2[mt.f], 0)
+					sc.want2(&t2[mt.t], 1)
 				}
 			}
 			sc.fetch()
