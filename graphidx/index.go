@@ -984,6 +984,7 @@ func (v *view) pairBatch(a, b []EntityID, hint []uint32, out []PairStats, ok []b
 			key               [pairBatchWidth]uint32 // hi
 			pb                [pairBatchWidth]uint64 // pairBase of lo
 			hinted            [pairBatchWidth]bool   // the window is the hinted entry
+			hit               [pairBatchWidth]bool   // and it holds hi
 		)
 		// Offsets of every lo's upper list (as upperNeighbors).
 		for j := 0; j < w; j++ {
@@ -1007,6 +1008,17 @@ func (v *view) pairBatch(a, b []EntityID, hint []uint32, out []PairStats, ok []b
 			if hint != nil {
 				if h := hint[s0+j]; uint64(h) < b1-b0 {
 					base[j], size[j], hinted[j] = start[j]+int(h), 1, true
+				}
+			}
+		}
+		// Check the hinted entries in a loop of their own: their loads
+		// are independent and the loop is short, so their cache misses
+		// overlap (the table loop below is too long for the core to run
+		// ahead to the next pair's load).
+		if hint != nil {
+			for j := 0; j < w; j++ {
+				if hinted[j] {
+					hit[j] = nbrs[base[j]] == key[j]
 				}
 			}
 		}
@@ -1035,10 +1047,12 @@ func (v *view) pairBatch(a, b []EntityID, hint []uint32, out []PairStats, ok []b
 		for j := 0; j < w; j++ {
 			i := s0 + j
 			out[i], ok[i] = PairStats{}, false
-			if size[j] != 1 || nbrs[base[j]] != key[j] {
-				if hinted[j] {
+			if hinted[j] {
+				if !hit[j] {
 					out[i], ok[i] = v.pair(a[i], b[i]) // a wrong hint: search
+					continue
 				}
+			} else if size[j] != 1 || nbrs[base[j]] != key[j] {
 				continue
 			}
 			q := pb[j] + uint64(base[j]-start[j])
