@@ -99,20 +99,8 @@ func ExampleIsCorruption() {
 // list with their stored positions, which spares each look-up its binary
 // search; the answers are Pair's.
 func ExampleIndex_PairBatchHinted() {
-	dir, err := os.MkdirTemp("", "hopwise-example")
-	if err != nil {
-		log.Fatal(err)
-	}
-	defer os.RemoveAll(dir)
-	path := filepath.Join(dir, "greenhouse.hwx")
-	if err := graphidx.WriteFile(path, greenhouse{}); err != nil {
-		log.Fatal(err)
-	}
-	x, err := graphidx.Open(path)
-	if err != nil {
-		log.Fatal(err)
-	}
-	defer x.Close()
+	x, done := openGreenhouse()
+	defer done()
 
 	vent, _ := x.Lookup("vent.east")
 	ranked, hints := x.RankedNeighbors(vent), x.RankedPairHints(vent)
@@ -127,4 +115,21 @@ func ExampleIndex_PairBatchHinted() {
 	}
 	// Output:
 	// pump.a hint 0 found true support 4
+}
+
+// openGreenhouse writes the greenhouse index to a temporary directory and
+// opens it; done closes it and removes the directory.
+func openGreenhouse() (x *graphidx.Index, done func()) {
+	dir, err := os.MkdirTemp("", "hopwise-example")
+	if err != nil {
+		log.Fatal(err)
+	}
+	path := filepath.Join(dir, "greenhouse.hwx")
+	if err := graphidx.WriteFile(path, greenhouse{}); err != nil {
+		log.Fatal(err)
+	}
+	if x, err = graphidx.Open(path); err != nil {
+		log.Fatal(err)
+	}
+	return x, func() { x.Close(); os.RemoveAll(dir) }
 }
