@@ -10,19 +10,21 @@ import (
 const (
 	// Magic is the 8-byte file signature at offset 0.
 	Magic = "HWLOCIX\x00"
-	// FormatVersion is the only format version this package reads and writes.
-	FormatVersion = 1
+	// FormatVersion is the only format version this package reads and
+	// writes. Version 2 added the ranked-pair-positions section; a
+	// version-1 file is refused with ErrVersion (rebuild it).
+	FormatVersion = 2
 
 	// DefaultRankPrefix is the default length of the support-ranked
 	// neighbour prefix stored per entity (WithRankPrefix).
 	DefaultRankPrefix = 64
 
-	// headerSize is the fixed size of a version-1 header, section table
+	// headerSize is the fixed size of a version-2 header, section table
 	// and header checksum included. Sections start at this offset.
-	headerSize = 496
+	headerSize = 520
 	// headerCRCOffset is where the header checksum (CRC-32C of bytes
 	// [0, headerCRCOffset)) is stored.
-	headerCRCOffset = 492
+	headerCRCOffset = 516
 	// tableOffset is where the section table starts.
 	tableOffset = 104
 	// tableEntrySize is the size of one section table entry.
@@ -33,7 +35,7 @@ const (
 	// flagUniformK marks an index whose entities all have the same number
 	// of values; it then carries no marginal or pair offset arrays.
 	flagUniformK = 1 << 0
-	// knownFlags is the set of flags version 1 defines.
+	// knownFlags is the set of flags version 2 defines.
 	knownFlags = flagUniformK
 )
 
@@ -55,7 +57,7 @@ const (
 	offRankPrefix = 84
 	offGeneration = 88
 	offFileSize   = 96
-	offReserved   = 488 // uint32, must be zero
+	offReserved   = 512 // uint32, must be zero
 )
 
 // Section identifiers; section i of the table has id i+1.
@@ -76,14 +78,15 @@ const (
 	secCounts                // uint32 K_lo×K_hi row-major tables, pair order
 	secRankOffs              // uint64[n+1] offsets into secRank
 	secRank                  // uint32 support-ranked neighbour prefixes
-	numSections   = secRank
+	secRankPos               // uint32 per secRank entry: the pair's position in lo's upper list
+	numSections   = secRankPos
 )
 
 var sectionNames = [numSections + 1]string{
 	"", "name-offsets", "name-bytes", "label-offsets", "label-bytes",
 	"valueset-offsets", "valueset-labels", "entity-valueset", "marginal-offsets",
 	"marginals", "neighbour-offsets", "neighbours", "pair-base", "pair-offsets",
-	"counts", "rank-offsets", "ranked-neighbours",
+	"counts", "rank-offsets", "ranked-neighbours", "ranked-pair-positions",
 }
 
 // sectionName returns the human name of a section id.

@@ -100,6 +100,7 @@ type view struct {
 	counts     []uint32
 	rankOffs   []uint64
 	rank       []uint32
+	rankPos    []uint32 // parallel to rank: the pair's position in lo's upper list
 
 	// names is Lookup's in-memory sample of the sorted names, built on
 	// the first Lookup (nameSample).
@@ -276,6 +277,9 @@ func parse(data []byte, full bool) (*view, error) {
 		return nil, corruptf(ErrCorrupt, "truncated: %d bytes, no version field", len(data))
 	}
 	if ver := le.Uint32(data[offVersion:]); ver != FormatVersion {
+		if ver < FormatVersion {
+			return nil, corruptf(ErrVersion, "file has format version %d, this build reads %d; rebuild the index (hopwise build) to add the ranked pair positions", ver, FormatVersion)
+		}
 		return nil, corruptf(ErrVersion, "file has format version %d, this build reads %d", ver, FormatVersion)
 	}
 	// 3. Header checksum.
@@ -387,6 +391,7 @@ func (v *view) checkHeader(size uint64) error {
 		{anyLen, 4},
 		{8 * (n + 1), 0},
 		{anyLen, 4},
+		{anyLen, 4}, // ranked pair positions: as long as the ranked neighbours, checked below
 	}
 	if v.uniform {
 		kk := uint64(v.k * v.k)
@@ -422,6 +427,9 @@ func (v *view) checkHeader(size uint64) error {
 	}
 	if pos != size {
 		return corruptf(ErrSectionTable, "sections end at %d, file has %d bytes", pos, size)
+	}
+	if r, rp := h.Sections[secRank-1].Length, h.Sections[secRankPos-1].Length; r != rp {
+		return corruptf(ErrSectionTable, "section %s has %d bytes, want %d (one entry per ranked neighbour)", sectionName(secRankPos), rp, r)
 	}
 	return nil
 }
@@ -468,6 +476,7 @@ func (v *view) decode() {
 	v.counts = asU32s(v.section(secCounts))
 	v.rankOffs = asU64s(v.section(secRankOffs))
 	v.rank = asU32s(v.section(secRank))
+	v.rankPos = asU32s(v.section(secRankPos))
 }
 
 // checkLabels validates the label dictionary and value sets and builds the
@@ -928,10 +937,43 @@ const pairBatchWidth = 64
 // conditional moves. Same O(log deg(min(a,b))) work per pair as Pair, no
 // allocation.
 func (x *Index) PairBatch(a, b []EntityID, out []PairStats, ok []bool) {
-	x.v.Load().pairBatch(a, b, out, ok)
+	x.v.Load().pairBatch(a, b, nil, out, ok)
 }
 
-func (v *view) pairBatch(a, b []EntityID, out []PairStats, ok []bool) {
+// NoPairHint is the hint of a pair whose position is not known
+// (PairBatchHinted).
+const NoPairHint = math.MaxUint32
+
+// RankedPairHints returns, for every entry j of RankedNeighbors(id), the
+// stored position of the pair {id, RankedNeighbors(id)[j]} (section
+// ranked-pair-positions of the format), to pass as the pair's hint to
+// PairBatchHinted. The slice aliases the index memory and has the length
+// of RankedNeighbors(id) (nil when that is nil). O(1).
+func (x *Index) RankedPairHints(id EntityID) []uint32 {
+	v := x.v.Load()
+	if uint64(id) >= v.n || len(v.rankPos) != len(v.rank) {
+		return nil
+	}
+	s, e, ok := span(v.rankOffs, uint64(id), len(v.rankPos))
+	if !ok {
+		return nil
+	}
+	return v.rankPos[s:e:e]
+}
+
+// PairBatchHinted is PairBatch where hint[i] (hint at least as long as a)
+// is the pair's stored position, from RankedPairHints, or NoPairHint. A
+// hinted look-up reads the one list entry the position names instead of
+// binary-searching the lower entity's upper list: O(1) instead of
+// O(log deg(min(a, b))) dependent reads. The entry is checked (it must be
+// the other entity of the pair); a hint that fails the check, from a
+// damaged file opened WithLazyVerify or a caller's mistake, falls back to
+// the search, so the answer is always what Pair(a[i], b[i]) returns.
+func (x *Index) PairBatchHinted(a, b []EntityID, hint []uint32, out []PairStats, ok []bool) {
+	x.v.Load().pairBatch(a, b, hint[:len(a)], out, ok)
+}
+
+func (v *view) pairBatch(a, b []EntityID, hint []uint32, out []PairStats, ok []bool) {
 	n := len(a)
 	b, out, ok = b[:n], out[:n], ok[:n]
 	nbrs := v.nbrs
@@ -941,6 +983,8 @@ func (v *view) pairBatch(a, b []EntityID, out []PairStats, ok []bool) {
 			base, size, start [pairBatchWidth]int    // search window and list start in nbrs
 			key               [pairBatchWidth]uint32 // hi
 			pb                [pairBatchWidth]uint64 // pairBase of lo
+			hinted            [pairBatchWidth]bool   // the window is the hinted entry
+			hit               [pairBatchWidth]bool   // and it holds hi
 		)
 		// Offsets of every lo's upper list (as upperNeighbors).
 		for j := 0; j < w; j++ {
@@ -961,6 +1005,22 @@ func (v *view) pairBatch(a, b []EntityID, out []PairStats, ok []bool) {
 			}
 			start[j] = e - int(b1-b0)
 			base[j], size[j], key[j], pb[j] = start[j], int(b1-b0), hi, b0
+			if hint != nil {
+				if h := hint[s0+j]; uint64(h) < b1-b0 {
+					base[j], size[j], hinted[j] = start[j]+int(h), 1, true
+				}
+			}
+		}
+		// Check the hinted entries in a loop of their own: their loads
+		// are independent and the loop is short, so their cache misses
+		// overlap (the table loop below is too long for the core to run
+		// ahead to the next pair's load).
+		if hint != nil {
+			for j := 0; j < w; j++ {
+				if hinted[j] {
+					hit[j] = nbrs[base[j]] == key[j]
+				}
+			}
 		}
 		// Lockstep halving: afterwards size is 1 and nbrs[base] is the
 		// last element ≤ key when the window was not empty.
@@ -987,7 +1047,12 @@ func (v *view) pairBatch(a, b []EntityID, out []PairStats, ok []bool) {
 		for j := 0; j < w; j++ {
 			i := s0 + j
 			out[i], ok[i] = PairStats{}, false
-			if size[j] != 1 || nbrs[base[j]] != key[j] {
+			if hinted[j] {
+				if !hit[j] {
+					out[i], ok[i] = v.pair(a[i], b[i]) // a wrong hint: search
+					continue
+				}
+			} else if size[j] != 1 || nbrs[base[j]] != key[j] {
 				continue
 			}
 			q := pb[j] + uint64(base[j]-start[j])

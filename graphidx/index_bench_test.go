@@ -331,3 +331,56 @@ func TestAppendNameMatchesName(t *testing.T) { // not parallel: AllocsPerRun
 		t.Errorf("AppendName allocated %v times with room in dst", n)
 	}
 }
+
+// BenchmarkPairBatchHinted compares PairBatch with PairBatchHinted on the
+// same pairs of the index of BenchmarkPairBatch: random entries of random
+// entities' ranked lists, each with its stored hint (RankedPairHints), so
+// that the hinted look-up reads one checked list entry where PairBatch
+// binary-searches the lower entity's upper list.
+func BenchmarkPairBatchHinted(b *testing.B) {
+	x, _ := benchIndex(b, 300_000, 32, 2)
+	const n = 1 << 16
+	a, c, hint := make([]EntityID, 0, n), make([]EntityID, 0, n), make([]uint32, 0, n)
+	rng := rand.New(rand.NewPCG(7, 8))
+	for len(a) < n {
+		e := EntityID(rng.IntN(x.NumEntities()))
+		rk, hk := x.RankedNeighbors(e), x.RankedPairHints(e)
+		if len(rk) == 0 || len(hk) != len(rk) {
+			continue
+		}
+		j := rng.IntN(len(rk))
+		a, c, hint = append(a, e), append(c, rk[j]), append(hint, hk[j])
+	}
+	const batch = 32
+	out := make([]PairStats, batch)
+	ok := make([]bool, batch)
+	for _, hinted := range []bool{false, true} {
+		name := "batch"
+		if hinted {
+			name = "hinted"
+		}
+		b.Run(name, func(b *testing.B) {
+			var sum uint64
+			i := 0
+			b.ReportAllocs()
+			for b.Loop() {
+				if hinted {
+					x.PairBatchHinted(a[i:i+batch], c[i:i+batch], hint[i:i+batch], out, ok)
+				} else {
+					x.PairBatch(a[i:i+batch], c[i:i+batch], out, ok)
+				}
+				for j := 0; j < batch; j++ {
+					if !ok[j] {
+						b.Fatal("stored pair not found")
+					}
+					sum += uint64(out[j].Count(0, 0))
+				}
+				i = (i + batch) & (n - 1)
+			}
+			b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N*batch), "ns/pair")
+			if sum == 0 {
+				b.Fatal("no counts read")
+			}
+		})
+	}
+}

@@ -110,8 +110,16 @@ func FuzzOpenResealed(f *testing.F) {
 			x := &Index{}
 			x.v.Store(v)
 			ixExercise(x)
-			if err := x.Verify(); full && err != nil {
+			err = x.Verify()
+			if full && err != nil {
 				t.Fatalf("full open accepted what Verify rejects: %v", err)
+			}
+			if err == nil {
+				for id := range x.NumEntities() {
+					if j := ixHintedDisagree(x, EntityID(id)); j >= 0 {
+						t.Fatalf("entity %d, ranked neighbour %d: hinted look-up differs from Pair on a verified file", id, j)
+					}
+				}
 			}
 		}
 	})

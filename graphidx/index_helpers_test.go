@@ -255,7 +255,50 @@ func ixExercise(x *Index) {
 			}
 		}
 		x.Pair(id, EntityID(n-1-i))
+		ixHintedDisagree(x, id)
 	}
 	x.Lookup("zzz")
 	x.Lookup("")
+}
+
+// ixHintedDisagree looks up id's ranked pairs with and without their
+// stored hints (PairBatchHinted, Pair) and returns the first ranked
+// neighbour whose answers differ, or -1. On a file whose lists are valid
+// they must agree whatever the hints hold.
+func ixHintedDisagree(x *Index, id EntityID) int {
+	rk, hints := x.RankedNeighbors(id), x.RankedPairHints(id)
+	if len(hints) != len(rk) {
+		hints = make([]uint32, len(rk))
+		for j := range hints {
+			hints[j] = NoPairHint
+		}
+	}
+	a := make([]EntityID, len(rk))
+	for j := range a {
+		a[j] = id
+	}
+	out, ok := make([]PairStats, len(rk)), make([]bool, len(rk))
+	x.PairBatchHinted(a, rk, hints, out, ok)
+	for j, y := range rk {
+		want, wok := x.Pair(id, y)
+		if ok[j] != wok || !ixSamePair(out[j], want) {
+			return j
+		}
+	}
+	return -1
+}
+
+// ixSamePair reports whether p and q are the same statistics.
+func ixSamePair(p, q PairStats) bool {
+	if p.A != q.A || p.B != q.B || p.KA != q.KA || p.KB != q.KB {
+		return false
+	}
+	for u := 0; u < p.KA; u++ {
+		for v := 0; v < p.KB; v++ {
+			if p.Count(u, v) != q.Count(u, v) {
+				return false
+			}
+		}
+	}
+	return true
 }

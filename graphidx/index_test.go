@@ -32,7 +32,7 @@ func TestRoundTripHandChecked(t *testing.T) {
 		if x.NumEntities() != 5 || x.NumContexts() != 8 || x.NumPairs() != 7 {
 			t.Fatalf("entities/contexts/pairs = %d/%d/%d, want 5/8/7", x.NumEntities(), x.NumContexts(), x.NumPairs())
 		}
-		if x.FormatVersion() != 1 || x.RankPrefix() != DefaultRankPrefix {
+		if x.FormatVersion() != FormatVersion || x.RankPrefix() != DefaultRankPrefix {
 			t.Fatalf("version %d rank prefix %d", x.FormatVersion(), x.RankPrefix())
 		}
 		id := func(name string) EntityID {
@@ -288,7 +288,8 @@ func TestOpenErrorOrder(t *testing.T) {
 		{"magic", mut(func(b []byte) { b[0] = 'X'; b[offVersion] = 9 }), ErrBadMagic},
 		{"notAnIndex", []byte("context,entity,value\nc1,pump.a,on\n"), ErrBadMagic},
 		// Version damaged (header CRC now wrong too): version wins.
-		{"version", mut(func(b []byte) { b[offVersion] = 2 }), ErrVersion},
+		{"version", mut(func(b []byte) { b[offVersion] = 9 }), ErrVersion},
+		{"oldVersion", mut(func(b []byte) { b[offVersion] = 1 }), ErrVersion},
 		{"headerCRC", mut(func(b []byte) { b[offContexts] ^= 1 }), ErrChecksum},
 		{"sectionCRC", mut(func(b []byte) { b[len(b)-1] ^= 1 }), ErrChecksum},
 	} {
@@ -398,6 +399,8 @@ func TestStructurallyInvalid(t *testing.T) {
 		{"namesUnsorted", secNameBytes, func(s []byte) { s[0] = 'z' }},
 		{"labelIDRange", secVSetLabels, func(s []byte) { le.PutUint32(s, 77) }},
 		{"pairOffsets", secPairOffs, func(s []byte) { le.PutUint64(s[8:], le.Uint64(s[8:])+1) }},
+		{"rankPosRange", secRankPos, func(s []byte) { le.PutUint32(s, 1000) }},
+		{"rankPosWrong", secRankPos, func(s []byte) { le.PutUint32(s, le.Uint32(s)+1) }},
 	} {
 		b := slices.Clone(good)
 		tc.f(sec(b, tc.id))

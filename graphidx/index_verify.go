@@ -211,6 +211,32 @@ func (v *view) checkStructure(ctx context.Context) error {
 				return corruptf(ErrCorrupt, "entity %d: ranked prefix is not the top %d by support", i, len(pre))
 			}
 		}
+		if err := v.checkRankPos(i, s, pre); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// checkRankPos checks the ranked pair positions of entity i, whose ranked
+// prefix pre starts at entry s: entry j must be the position of the pair
+// {i, pre[j]} in its lower entity's upper list. A wrong entry is reported
+// with its file offset. O(len(pre)).
+func (v *view) checkRankPos(i uint64, s int, pre []EntityID) error {
+	if len(v.rankPos) != len(v.rank) {
+		return corruptf(ErrCorrupt, "%d ranked pair positions for %d ranked neighbours", len(v.rankPos), len(v.rank))
+	}
+	for j, id := range pre {
+		lo, hi := EntityID(i), id
+		if hi < lo {
+			lo, hi = hi, lo
+		}
+		up, _ := v.upperNeighbors(lo)
+		if p := v.rankPos[s+j]; uint64(p) >= uint64(len(up)) || up[p] != hi {
+			off := v.h.Sections[secRankPos-1].Offset + 4*uint64(s+j)
+			return corruptf(ErrCorrupt, "section %s at file offset %d: entity %d, ranked neighbour %d: position %d does not hold the pair (%d, %d)",
+				sectionName(secRankPos), off, i, id, p, lo, hi)
+		}
 	}
 	return nil
 }

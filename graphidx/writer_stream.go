@@ -27,24 +27,27 @@ import (
 //     (neighbour id, support) to the adjacency bucket of its owner: a
 //     bucket is a run of consecutive entities whose edges fit in
 //     WithWriteMemory. The first bucket is filled in memory, the others
-//     are spooled to a temporary file as 16-byte records (position in the
-//     bucket, neighbour, support) at per-bucket regions;
+//     are spooled to a temporary file as 20-byte records (position in the
+//     bucket, neighbour, support, the pair's position in its lower
+//     entity's upper list) at per-bucket regions;
 //  3. bucket by bucket, in entity order, the edges are put in place (the
 //     CSR positions are known from the degrees, and the pair order puts
 //     each entity's lower neighbours before its upper ones, both
 //     ascending), appended to the neighbours section, and each entity's
-//     support ranking is appended to the ranked-neighbours section.
+//     support ranking is appended to the ranked-neighbours section, the
+//     pair positions of its entries to the ranked-pair-positions section.
 //
-// The bytes are exactly those of the in-memory writer this replaced (a
-// test keeps that writer as the reference), so FORMAT.md is unchanged.
+// Sections 1–16 hold exactly the bytes of the in-memory version-1 writer
+// this replaced (TestStreamingWriterMatchesReference pins them); version 2
+// added section 17.
 
 // Buffer sizes of the section and spool writers.
 const (
 	smallSectionBuf = 32 << 10
 	bigSectionBuf   = 256 << 10
 	maxAdjBuckets   = 4096
-	adjEdgeBytes    = 12 // a neighbour id and a support in a bucket
-	spoolRecBytes   = 16 // position in the bucket, neighbour id, support
+	adjEdgeBytes    = 16 // a neighbour id, a support and a pair position in a bucket
+	spoolRecBytes   = 20 // position in the bucket, neighbour id, support, pair position
 )
 
 // secOut writes one section at its offset in the file: a staging buffer
@@ -171,6 +174,7 @@ func (p *plan) layout() uint64 {
 	length[secCounts] = 4 * p.cells
 	length[secRankOffs] = 8 * uint64(len(p.rankOffs))
 	length[secRank] = 4 * p.rankOffs[n]
+	length[secRankPos] = 4 * p.rankOffs[n]
 	pos := uint64(headerSize)
 	for id := 1; id <= numSections; id++ {
 		pos = align8(pos)
@@ -275,10 +279,12 @@ func (p *plan) pairPass(f *os.File, spoolPath string, src Source, a *adjacency) 
 		}
 		sup := sumCounts(r.Counts)
 		fp = pairPrint(fp, lo, hi, sup)
-		if err := a.put(upCur[lo], hi, sup); err != nil {
+		// The pair's position in lo's upper list, for both directed edges.
+		upPos := uint32(upCur[lo] - p.nbrOffs[lo] - p.lowerDeg(lo))
+		if err := a.put(upCur[lo], hi, sup, upPos); err != nil {
 			return err
 		}
-		if err := a.put(lowCur[hi], lo, sup); err != nil {
+		if err := a.put(lowCur[hi], lo, sup, upPos); err != nil {
 			return err
 		}
 		upCur[lo]++
@@ -328,6 +334,7 @@ type adjacency struct {
 	edge  []uint64 // first edge position of each bucket; edge[nb] = E
 	nbr   []uint32 // the current bucket's neighbour ids, by position in the bucket
 	sup   []uint64 // and supports
+	upPos []uint32 // and the pair's position in its lower entity's upper list
 	// The spool holds buckets 1..nb-1; bucket b's records start at byte
 	// spoolRecBytes·(edge[b] − edge[1]).
 	spool    *os.File
@@ -367,6 +374,7 @@ func newAdjacency(p *plan) *adjacency {
 	a.edge = append(a.edge, E)
 	a.nbr = make([]uint32, largest)
 	a.sup = make([]uint64, largest)
+	a.upPos = make([]uint32, largest)
 	return a
 }
 
@@ -397,10 +405,11 @@ func (a *adjacency) start(path string) error {
 	return nil
 }
 
-// put hands over the directed edge at CSR position pos.
-func (a *adjacency) put(pos uint64, id uint32, sup uint64) error {
+// put hands over the directed edge at CSR position pos, whose pair sits
+// at position upPos of its lower entity's upper list.
+func (a *adjacency) put(pos uint64, id uint32, sup uint64, upPos uint32) error {
 	if pos < a.edge[1] {
-		a.nbr[pos], a.sup[pos] = id, sup
+		a.nbr[pos], a.sup[pos], a.upPos[pos] = id, sup, upPos
 		return nil
 	}
 	b, found := slices.BinarySearch(a.edge, pos)
@@ -416,6 +425,7 @@ func (a *adjacency) put(pos uint64, id uint32, sup uint64) error {
 	w.buf = le.AppendUint32(w.buf, uint32(pos-a.edge[b]))
 	w.buf = le.AppendUint32(w.buf, id)
 	w.buf = le.AppendUint64(w.buf, sup)
+	w.buf = le.AppendUint32(w.buf, upPos)
 	return nil
 }
 
@@ -460,23 +470,28 @@ func (a *adjacency) load(b int, block []byte) error {
 			}
 			a.nbr[rel] = le.Uint32(chunk[j+4:])
 			a.sup[rel] = le.Uint64(chunk[j+8:])
+			a.upPos[rel] = le.Uint32(chunk[j+16:])
 		}
 		left -= k
 	}
 	return nil
 }
 
-// emit writes the neighbours and ranked-neighbours sections bucket by
-// bucket. Ranking sorts each entity's edges by support descending, then id
-// ascending, and keeps the first R: O(deg·log deg) per entity.
+// emit writes the neighbours, ranked-neighbours and ranked-pair-positions
+// sections bucket by bucket. Ranking sorts each entity's edges by support
+// descending, then id ascending, and keeps the first R: O(deg·log deg) per
+// entity; each kept neighbour's pair position is found by a binary search
+// in the entity's id-sorted list, O(R·log deg).
 func (a *adjacency) emit(f *os.File) error {
 	p := a.p
 	nbrs := newSecOut(f, &p.h, secNbrs, bigSectionBuf)
 	rank := newSecOut(f, &p.h, secRank, bigSectionBuf)
+	rpos := newSecOut(f, &p.h, secRankPos, bigSectionBuf)
 	var (
 		keys    []uint64
 		scratch []ranked
 		ids     []uint32
+		pos     []uint32
 		block   []byte
 	)
 	R := uint64(p.h.RankPrefix)
@@ -495,15 +510,24 @@ func (a *adjacency) emit(f *os.File) error {
 			s, e := p.nbrOffs[i]-base, p.nbrOffs[i+1]-base
 			ids = appendRanked(ids[:0], a.nbr[s:e], a.sup[s:e], R, &keys, &scratch)
 			rank.u32s(ids)
+			pos = pos[:0]
+			for _, id := range ids {
+				j, _ := slices.BinarySearch(a.nbr[s:e], id) // ids come from the list
+				pos = append(pos, a.upPos[s+uint64(j)])
+			}
+			rpos.u32s(pos)
 		}
-		if nbrs.err != nil || rank.err != nil {
+		if nbrs.err != nil || rank.err != nil || rpos.err != nil {
 			break
 		}
 	}
 	if err := nbrs.finish(&p.h); err != nil {
 		return err
 	}
-	return rank.finish(&p.h)
+	if err := rank.finish(&p.h); err != nil {
+		return err
+	}
+	return rpos.finish(&p.h)
 }
 
 // ranked is a neighbour with its pair support, for the ranking.
@@ -559,7 +583,7 @@ func appendRanked(dst, nbr []uint32, sup []uint64, r uint64, keys *[]uint64, scr
 // close releases the bucket arrays and closes the spool (removing it where
 // it was not unlinked at creation).
 func (a *adjacency) close() {
-	a.nbr, a.sup = nil, nil
+	a.nbr, a.sup, a.upPos = nil, nil, nil
 	if a.spool != nil {
 		name := a.spool.Name()
 		a.spool.Close()

@@ -6,6 +6,7 @@ import (
 	"crypto/sha256"
 	"errors"
 	"fmt"
+	"hash/crc32"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
@@ -23,9 +24,12 @@ import (
 // bucket) down to 1 byte (one bucket per entity, every edge past the first
 // entity spooled). The reference files are pinned by their SHA-256 in
 // testdata/writer-v1.sha256, computed with that writer before it was
-// retired; the hand-checked greenhouse file itself is
-// testdata/golden-v1.hwx (TestGoldenIndexV1). -update rewrites the digests
-// from WriteFile, for a deliberate change of the format only.
+// retired; it wrote format version 1, so the check compares the version-1
+// projection of each file (asVersion1: sections 1–16 under a version-1
+// header), and the version-2 file must verify (the ranked pair positions
+// are checked by Verify). The hand-checked greenhouse file itself is
+// testdata/golden-v2.hwx (TestGoldenIndexV2). -update rewrites the digests
+// from WriteFile, for a deliberate change of sections 1–16 only.
 func TestStreamingWriterMatchesReference(t *testing.T) {
 	t.Parallel()
 	want := readWriterDigests(t)
@@ -35,7 +39,13 @@ func TestStreamingWriterMatchesReference(t *testing.T) {
 			key := fmt.Sprintf("%s %d", tc.name, rp)
 			var first string
 			for _, mem := range []int64{DefaultWriteMemory, 2000, 100, 1} {
-				got := fmt.Sprintf("%x", sha256.Sum256(ixReadFile(t, ixWriteTemp(t, tc.src, WithRankPrefix(rp), WithWriteMemory(mem)))))
+				path := ixWriteTemp(t, tc.src, WithRankPrefix(rp), WithWriteMemory(mem))
+				if x, err := Open(path); err != nil {
+					t.Errorf("%s, write memory %d: %v", key, mem, err)
+				} else {
+					x.Close()
+				}
+				got := fmt.Sprintf("%x", sha256.Sum256(asVersion1(t, ixReadFile(t, path))))
 				if first == "" {
 					first = got
 				}
@@ -84,17 +94,85 @@ func readWriterDigests(t *testing.T) map[string]string {
 	return m
 }
 
-// goldenFile is a tiny version-1 index of the hand-counted greenhouse
-// (ixGreenhouse), written by the in-memory writer that preceded the
-// streaming one.
-const goldenFile = "testdata/golden-v1.hwx"
+// asVersion1 returns the version-1 file with the content of the version-2
+// file b: sections 1–16 laid out after a 496-byte version-1 header (16
+// section entries, generation and header CRC recomputed over them), section
+// 17 dropped. It is how the digests of the retired version-1 writer still
+// pin sections 1–16. O(len(b)).
+func asVersion1(t *testing.T, b []byte) []byte {
+	t.Helper()
+	const (
+		v1Header   = 496
+		v1CRC      = 492
+		v1Sections = 16
+	)
+	if len(b) < headerSize {
+		t.Fatalf("asVersion1: %d bytes, shorter than the header", len(b))
+	}
+	h := decodeHeader(b)
+	shift := uint64(headerSize - v1Header)
+	out := make([]byte, v1Header, len(b))
+	copy(out, b[:tableOffset])
+	le.PutUint32(out[offVersion:], 1)
+	le.PutUint32(out[offHeaderSize:], v1Header)
+	le.PutUint32(out[offNumSect:], v1Sections)
+	last := h.Sections[v1Sections-1]
+	out = append(out, b[headerSize:last.Offset+last.Length]...)
+	// FNV-1a as generationOf, over the first 16 sections.
+	g := uint64(14695981039346656037)
+	mix := func(v uint64) {
+		for i := 0; i < 8; i++ {
+			g ^= v & 0xff
+			g *= 1099511628211
+			v >>= 8
+		}
+	}
+	for _, v := range []uint64{1, uint64(h.Flags), h.Contexts, h.Entities, h.Pairs, uint64(h.UniformK), uint64(h.RankPrefix)} {
+		mix(v)
+	}
+	for i, s := range h.Sections[:v1Sections] {
+		mix(s.Length)
+		mix(uint64(s.CRC))
+		e := out[tableOffset+i*tableEntrySize:]
+		le.PutUint64(e[0:], s.Offset-shift)
+		le.PutUint64(e[8:], s.Length)
+		le.PutUint32(e[16:], s.CRC)
+		le.PutUint32(e[20:], s.ID)
+	}
+	le.PutUint64(out[offGeneration:], g)
+	le.PutUint64(out[offFileSize:], uint64(len(out)))
+	le.PutUint32(out[v1CRC:], crc32.Checksum(out[:v1CRC], castagnoli))
+	return out
+}
 
-// TestGoldenIndexV1: the checked-in version-1 file opens and verifies, holds
+// goldenFile is a tiny version-2 index of the hand-counted greenhouse
+// (ixGreenhouse); its sections 1–16 are those of oldGoldenFile, written
+// by the in-memory version-1 writer that preceded the streaming one.
+const (
+	goldenFile    = "testdata/golden-v2.hwx"
+	oldGoldenFile = "testdata/golden-v1.hwx"
+)
+
+// TestGoldenIndexV1Refused: a version-1 file is refused with ErrVersion,
+// an error that names the file and says to rebuild it, and its content is
+// exactly the version-1 projection of the version-2 golden file.
+func TestGoldenIndexV1Refused(t *testing.T) {
+	t.Parallel()
+	_, err := Open(oldGoldenFile)
+	if !errors.Is(err, ErrVersion) || !strings.Contains(err.Error(), oldGoldenFile) || !strings.Contains(err.Error(), "rebuild") {
+		t.Fatalf("Open(%s) = %v, want ErrVersion naming the file and saying to rebuild", oldGoldenFile, err)
+	}
+	if got, want := asVersion1(t, ixReadFile(t, goldenFile)), ixReadFile(t, oldGoldenFile); !bytes.Equal(got, want) {
+		t.Errorf("version-1 projection of %s differs from %s at byte %d", goldenFile, oldGoldenFile, firstDiff(got, want))
+	}
+}
+
+// TestGoldenIndexV2: the checked-in version-2 file opens and verifies, holds
 // exactly the hand-counted greenhouse, and WriteFile reproduces it byte for
 // byte. A reader change that breaks old files, or a writer change that
 // alters the format, fails here. -update rewrites the file from WriteFile
 // (a deliberate format change only; bump the version then).
-func TestGoldenIndexV1(t *testing.T) {
+func TestGoldenIndexV2(t *testing.T) {
 	t.Parallel()
 	src := ixSourceFromContexts(ixGreenhouse())
 	got := ixReadFile(t, ixWriteTemp(t, src))
@@ -115,8 +193,8 @@ func TestGoldenIndexV1(t *testing.T) {
 	if err := x.Verify(); err != nil {
 		t.Fatal(err)
 	}
-	if x.FormatVersion() != 1 || x.NumContexts() != 8 || x.NumEntities() != 5 {
-		t.Errorf("version %d, %d contexts, %d entities; want 1, 8, 5", x.FormatVersion(), x.NumContexts(), x.NumEntities())
+	if x.FormatVersion() != 2 || x.NumContexts() != 8 || x.NumEntities() != 5 {
+		t.Errorf("version %d, %d contexts, %d entities; want 2, 8, 5", x.FormatVersion(), x.NumContexts(), x.NumEntities())
 	}
 	ixCheckMatches(t, x, src, DefaultRankPrefix)
 	// One cell counted by hand: bed.north=wet with pump.a=on in c1 and c2.

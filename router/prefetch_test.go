@@ -11,7 +11,9 @@ import (
 	"path/filepath"
 	"reflect"
 	"runtime"
+	"sort"
 	"strings"
+	"sync/atomic"
 	"testing"
 
 	"github.com/hopwise/hopwise/graphidx"
@@ -47,6 +49,34 @@ func (g nonClosingIndex) PairBatch(a, b []graphidx.EntityID, out []graphidx.Pair
 func (g nonClosingIndex) RankPrefix() int { return g.ix.RankPrefix() }
 
 func wrapIndex(ix *graphidx.Index) nonClosingIndex { return nonClosingIndex{nonClosing{ix}, ix} }
+
+// hintedIndex is nonClosingIndex that also forwards the hinted batch
+// look-up (HintedPairBatcher), counts the pairs asked with a hint and
+// those whose hint does not name the pair (a wasted hint: the index falls
+// back to the search).
+type hintedIndex struct {
+	nonClosingIndex
+	hinted, wrong *atomic.Int64
+}
+
+func (g hintedIndex) RankedPairHints(id graphidx.EntityID) []uint32 { return g.ix.RankedPairHints(id) }
+
+func (g hintedIndex) PairBatchHinted(a, b []graphidx.EntityID, hint []uint32, out []graphidx.PairStats, ok []bool) {
+	for i, h := range hint[:len(a)] {
+		if h == graphidx.NoPairHint {
+			continue
+		}
+		g.hinted.Add(1)
+		// The pair's position in lo's upper list (its neighbours > lo).
+		lo, hi := min(a[i], b[i]), max(a[i], b[i])
+		nb := g.ix.Neighbors(lo)
+		up := nb[sort.Search(len(nb), func(j int) bool { return nb[j] > lo }):]
+		if int(h) >= len(up) || up[h] != hi {
+			g.wrong.Add(1)
+		}
+	}
+	g.ix.PairBatchHinted(a, b, hint, out, ok)
+}
 
 // TestPrefetchMatchesSequential: the batch prefetch and the pair memo change
 // no decision. Every query of the brute-force graphs, under loose and tight
@@ -178,7 +208,9 @@ func f64bits(x []float64) []uint64 {
 }
 
 // TestDecideGoldenDigest pins every field of 2000 decisions per
-// configuration on a seeded 20k-entity power-law index. The digests were
+// configuration on a seeded 20k-entity power-law index, read with
+// stored-position hints (HintedPairBatcher), with PairBatch alone and with
+// Pair alone: the three give the same digests. The digests were
 // first computed by the router before the pair memo, the batch prefetch and
 // the other latency work (commit ffa682b), which left them unchanged; they
 // were recomputed once when the scorer gained the missing-signal chain bias
@@ -222,12 +254,13 @@ func TestDecideGoldenDigest(t *testing.T) {
 		{"utility", []Option{WithUtility(2, 0.001)}, "d9ea10061d463d05"},
 	}
 	fresh := map[string]string{} // with -update: the new digest of each case
+	var hinted, wrong atomic.Int64
 	for _, tc := range cases {
 		opts := append([]Option{WithCacheSize(0)}, tc.opts...)
 		for _, wrap := range []struct {
 			name string
 			g    Graph
-		}{{"batch", wrapIndex(ix)}, {"plain", nonClosing{ix}}} {
+		}{{"hinted", hintedIndex{wrapIndex(ix), &hinted, &wrong}}, {"batch", wrapIndex(ix)}, {"plain", nonClosing{ix}}} {
 			r := mustNew(t, wrap.g, opts...)
 			got, chains := decisionDigest(t, r, qs)
 			if *update {
@@ -243,6 +276,13 @@ func TestDecideGoldenDigest(t *testing.T) {
 			}
 		}
 	}
+	if hinted.Load() == 0 {
+		t.Error("no pair was looked up with a stored-position hint: the hinted path was not exercised")
+	}
+	if wrong.Load() != 0 {
+		t.Errorf("%d of %d hints did not name their pair", wrong.Load(), hinted.Load())
+	}
+	t.Logf("%d pairs looked up with a hint", hinted.Load())
 	if *update {
 		old := map[string]string{}
 		for _, tc := range cases {
@@ -306,6 +346,7 @@ func TestPrefetchBatchIsCapped(t *testing.T) {
 
 // The index offers every optional method the router looks for.
 var (
-	_ PairBatcher  = (*graphidx.Index)(nil)
-	_ NameAppender = (*graphidx.Index)(nil)
+	_ PairBatcher       = (*graphidx.Index)(nil)
+	_ HintedPairBatcher = (*graphidx.Index)(nil)
+	_ NameAppender      = (*graphidx.Index)(nil)
 )

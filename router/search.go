@@ -77,7 +77,9 @@ import (
 // PairBatcher, the pairs of the one-bridge phase, the end edges of the
 // joins and the middle edges of each chunk of matches are fetched in one
 // batch each (fetch), so that their cache misses overlap; the phase then
-// finds them in the memo. The budget is charged per edge by the phase
+// finds them in the memo. When it also implements HintedPairBatcher, the
+// end and middle edges, all reached through ranked lists, carry the stored
+// position of their pair, which spares each its binary search. The budget is charged per edge by the phase
 // exactly as without the batch, so no decision changes; a batch holds at
 // most the look-ups the remaining budget allows, so a decision's graph
 // look-ups stay below twice the budget's.
@@ -113,6 +115,7 @@ import (
 // NaN until a join needs it (cost1).
 type step1 struct {
 	id   graphidx.EntityID
+	hint uint32 // stored position of the pair (origin, id), graphidx.NoPairHint if unknown
 	cost float64
 }
 
@@ -238,7 +241,8 @@ type scratch struct {
 	nF2, nT2     []int32
 	totF2, totT2 int
 	keysF, keysT []uint64
-	rks          [][]graphidx.EntityID // ranked lists of the layer-1 nodes
+	rks          [2][][]graphidx.EntityID // ranked lists of the layer-1 nodes, s side and t side
+	hks          [2][][]uint32            // their pair hints (HintedPairBatcher), nil entries without
 	heap         []cand
 	hits         []graphidx.EntityID
 	path         []graphidx.EntityID
@@ -259,9 +263,11 @@ type scratch struct {
 	incDist []float64
 	err     error // model failure during generation
 	memo    pairMemo
-	pb      PairBatcher // the graph's batch look-up, or nil
-	pend    struct {    // pairs queued for fetch
+	pb      PairBatcher       // the graph's batch look-up, or nil
+	hp      HintedPairBatcher // the graph's hinted batch look-up, or nil
+	pend    struct {          // pairs queued for fetch
 		lo, hi []graphidx.EntityID
+		hint   []uint32 // stored pair positions, graphidx.NoPairHint when unknown
 		ps     []graphidx.PairStats
 		ok     []bool
 	}
@@ -298,8 +304,11 @@ func newScratch() *scratch {
 }
 
 func (sc *scratch) reset() {
-	sc.g, sc.model, sc.st, sc.pb = nil, nil, nil, nil
-	clear(sc.rks[:cap(sc.rks)]) // drop references into the index
+	sc.g, sc.model, sc.st, sc.pb, sc.hp = nil, nil, nil, nil, nil
+	for side := range sc.rks { // drop references into the index
+		clear(sc.rks[side][:cap(sc.rks[side])])
+		clear(sc.hks[side][:cap(sc.hks[side])])
+	}
 	sc.dropped = 0
 	sc.bud = budget{}
 	sc.inc.ok = false
@@ -549,7 +558,8 @@ func (sc *scratch) prunable(lower float64) bool {
 func (sc *scratch) layer1(out []step1, from, other graphidx.EntityID) (l []step1, ok, beamCut bool) {
 	out = out[:0]
 	rk := sc.g.RankedNeighbors(from)
-	for _, x := range rk {
+	hints := sc.rankedHints(from, len(rk))
+	for j, x := range rk {
 		if x == other || x == from {
 			continue
 		}
@@ -559,14 +569,18 @@ func (sc *scratch) layer1(out []step1, from, other graphidx.EntityID) (l []step1
 		if sc.bud.take(1) == 0 {
 			return out, false, false
 		}
-		out = append(out, step1{id: x, cost: math.NaN()})
+		h := uint32(graphidx.NoPairHint)
+		if hints != nil {
+			h = hints[j]
+		}
+		out = append(out, step1{id: x, hint: h, cost: math.NaN()})
 	}
 	if sc.whole(from, rk) {
 		return out, true, false
 	}
 	extra, ok, beamCut := sc.beyond(from, rk, sc.st.beam-len(out), from, other, from)
 	for _, x := range extra {
-		out = append(out, step1{id: x, cost: math.NaN()})
+		out = append(out, step1{id: x, hint: graphidx.NoPairHint, cost: math.NaN()})
 	}
 	return out, ok, beamCut
 }
@@ -723,34 +737,43 @@ func known(x float64) float64 {
 // its count and flags are what extending it would give; liveNodes admits
 // that only when such a node's paths come from its ranked prefix alone
 // (no beyond) and the budget cannot run out.
-func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphidx.EntityID, live []bool, counts *[]int32) (l []step2, ok, beamCut bool) {
+//
+// side (0 for s, 1 for t) names where the nodes' ranked lists and pair
+// hints are kept for the joins (want2).
+func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphidx.EntityID, live []bool, counts *[]int32, side int) (l []step2, ok, beamCut bool) {
 	out = out[:0]
 	ok = l1ok
 	f := sc.st.fanOut
 	cnt := (*counts)[:0]
 	defer func() { *counts = cnt }()
-	rks := sc.rks[:0]
+	rks, hks := sc.rks[side][:0], sc.hks[side][:0]
 	for i, x := range l1 {
 		// A hub's first layer can hold 10⁵ nodes whose list offsets are
 		// read here, uncharged (cold pages of the mapping on a first
 		// call): poll the deadline.
 		if i%pollEvery == pollEvery-1 && sc.bud.poll() {
-			sc.rks = rks
+			sc.rks[side], sc.hks[side] = rks, hks
 			return out, false, beamCut
 		}
-		rks = append(rks, sc.g.RankedNeighbors(x.id))
+		rk := sc.g.RankedNeighbors(x.id)
+		rks = append(rks, rk)
+		hks = append(hks, sc.rankedHints(x.id, len(rk)))
 	}
-	sc.rks = rks
+	sc.rks[side], sc.hks[side] = rks, hks
 	// Read the head of every ranked list in one tight loop first: the
 	// loads are independent, so their cache misses overlap, where the
 	// loop below (branchy, one list after the other) would meet them one
 	// by one.
 	// The last entry the loop can read (f paths plus the two ends) may
 	// sit on the list's next cache line: touch it too.
+	// The same for the pair hints the joins pass with the paths' edges.
 	var touch graphidx.EntityID
-	for _, rk := range rks {
+	for i, rk := range rks {
 		if len(rk) > 0 {
 			touch += rk[0] + rk[min(len(rk), f+2)-1]
+			if hk := hks[i]; hk != nil {
+				touch += hk[0] + hk[min(len(hk), f+2)-1]
+			}
 		}
 	}
 	sc.touched += uint32(touch)
@@ -866,12 +889,12 @@ func (sc *scratch) liveNodes() (liveF, liveT []bool) {
 	if sc.beginPrefetch(sc.bud.left/lookupUnits + 1) {
 		for i := range f1 {
 			if f1[i].cost != f1[i].cost {
-				sc.want(s, f1[i].id)
+				sc.wantHint(s, f1[i].id, f1[i].hint)
 			}
 		}
 		for i := range t1 {
 			if t1[i].cost != t1[i].cost {
-				sc.want(t1[i].id, t)
+				sc.wantHint(t1[i].id, t, t1[i].hint)
 			}
 		}
 		sc.fetch()
@@ -1008,8 +1031,8 @@ func (sc *scratch) generate() searchResult {
 	sc.f1, f1ok, f1cut = sc.layer1(sc.f1, s, t)
 	sc.t1, t1ok, t1cut = sc.layer1(sc.t1, t, s)
 	liveF, liveT := sc.liveNodes()
-	sc.f2, f2ok, f2cut = sc.layer2(sc.f2, sc.f1, f1ok, s, t, liveF, &sc.nF2)
-	sc.t2, t2ok, t2cut = sc.layer2(sc.t2, sc.t1, t1ok, t, s, liveT, &sc.nT2)
+	sc.f2, f2ok, f2cut = sc.layer2(sc.f2, sc.f1, f1ok, s, t, liveF, &sc.nF2, 0)
+	sc.t2, t2ok, t2cut = sc.layer2(sc.t2, sc.t1, t1ok, t, s, liveT, &sc.nT2, 1)
 	sc.totF2, sc.totT2 = sumCounts(sc.nF2), sumCounts(sc.nT2)
 	skip3 := H < 3 || (sc.inc.ok && sc.bound(3) <= sc.inc.score)
 	sc.matchJoins(skip3)
@@ -1277,13 +1300,13 @@ func (sc *scratch) joinAll() {
 		wantF := func(i int32) {
 			if !endF[i] && f1[i].cost != f1[i].cost { // not yet costed
 				endF[i] = true
-				sc.want(s, f1[i].id)
+				sc.wantHint(s, f1[i].id, f1[i].hint)
 			}
 		}
 		wantT := func(i int32) {
 			if !endT[i] && t1[i].cost != t1[i].cost {
 				endT[i] = true
-				sc.want(t1[i].id, t)
+				sc.wantHint(t1[i].id, t, t1[i].hint)
 			}
 		}
 		for _, p := range sc.joinA {
@@ -1373,15 +1396,13 @@ func (sc *scratch) joinAll() {
 			for _, m := range chunk {
 				switch m.kind {
 				case 0:
-					f := &f2[uint32(sc.joinA[m.i].key)]
-					sc.want(f.a, f.b)
+					sc.want2(&f2[uint32(sc.joinA[m.i].key)], 0)
 				case 1:
-					y := &t2[uint32(sc.joinB[m.i].key)]
-					sc.want(y.b, y.a)
+					sc.want2(&t2[uint32(sc.joinB[m.i].key)], 1)
 				default:
 					mt := sc.joinC[m.i]
-					sc.want(f2[mt.f].a, f2[mt.f].b)
-					sc.want(t2[mt.t].b, t2[mt.t].a)
+					sc.want2(&f2[mt.f], 0)
+					sc.want2(&t2[mt.t], 1)
 				}
 			}
 			sc.fetch()

@@ -680,8 +680,9 @@ func newRouter(g router.Graph, model scorer.Model, b Bounds, cache int) (*router
 }
 
 // noClose keeps the shared index open when a router retires it. It
-// forwards the optional methods the router uses: the batch pair look-up
-// (router.PairBatcher), RankPrefix and AppendName (router.NameAppender).
+// forwards the optional methods the router uses: the batch pair look-ups
+// (router.PairBatcher, router.HintedPairBatcher), RankPrefix and AppendName
+// (router.NameAppender).
 type noClose struct{ router.Graph }
 
 // RankPrefix forwards to the graph's RankPrefix, or returns 0 (unknown).
@@ -702,6 +703,25 @@ func (n noClose) PairBatch(a, b []graphidx.EntityID, out []graphidx.PairStats, o
 	for i := range a {
 		out[i], ok[i] = n.Graph.Pair(a[i], b[i])
 	}
+}
+
+// RankedPairHints forwards to the graph's RankedPairHints
+// (router.HintedPairBatcher), or returns nil (no hints).
+func (n noClose) RankedPairHints(id graphidx.EntityID) []uint32 {
+	if hp, has := n.Graph.(router.HintedPairBatcher); has {
+		return hp.RankedPairHints(id)
+	}
+	return nil
+}
+
+// PairBatchHinted forwards to the graph's PairBatchHinted, or to PairBatch
+// without the hints.
+func (n noClose) PairBatchHinted(a, b []graphidx.EntityID, hint []uint32, out []graphidx.PairStats, ok []bool) {
+	if hp, has := n.Graph.(router.HintedPairBatcher); has {
+		hp.PairBatchHinted(a, b, hint, out, ok)
+		return
+	}
+	n.PairBatch(a, b, out, ok)
 }
 
 // AppendName forwards to the graph's AppendName (router.NameAppender), or

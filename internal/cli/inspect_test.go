@@ -69,7 +69,7 @@ func TestInspect(t *testing.T) {
 		t.Fatalf("%v\n%s", err, out)
 	}
 	st, _ := os.Stat(path)
-	if rep.Entities != 3 || rep.Contexts != 5 || rep.Pairs != 3 || rep.FormatVersion != 1 || rep.Bytes != st.Size() || !rep.Verified {
+	if rep.Entities != 3 || rep.Contexts != 5 || rep.Pairs != 3 || rep.FormatVersion != graphidx.FormatVersion || rep.Bytes != st.Size() || !rep.Verified {
 		t.Fatalf("summary = %+v", rep)
 	}
 	e := rep.Entity

@@ -23,7 +23,7 @@ type mergeOpts struct {
 }
 
 // errIndexInput explains why merge takes count shards and not index files.
-var errIndexInput = errors.New("index files cannot be merged: an index (format v1) does not record whether it " +
+var errIndexInput = errors.New("index files cannot be merged: an index (format v2) does not record whether it " +
 	"was pruned (--min-support, --max-neighbors), and summing pruned counts would silently differ from a " +
 	"rebuild; merge the count-shard directories the indexes were compiled from (written by hopwise-beam, " +
 	"hopwise build --counts-out or hopwise merge --counts-out)")
