@@ -22,4 +22,8 @@
 // independent); units are what the allocation assigns and what the
 // bootstrap resamples when they repeat. Cost O(n log n + reps·n) for n
 // joined decisions.
+//
+// Concurrency: Compare keeps no state between calls and only reads the Set
+// it is given, so concurrent calls are safe, also over one Set; the Report
+// it returns belongs to the caller.
 package abreport

@@ -41,4 +41,8 @@
 // Sweep evaluates a whole grid of (τ, H) in O(reps·(n + G·H)) time by
 // bucketing each sample at the largest τ and smallest H for which the
 // target policy chains, then taking 2-D suffix/prefix sums.
+//
+// Concurrency: the estimators keep no state between calls and share only
+// read-only tables computed at package initialisation, so concurrent calls
+// are safe as long as no caller mutates the samples another call reads.
 package ope

@@ -8,4 +8,8 @@
 // spans, failed decisions, duplicate spans) and the join statistics
 // (decisions without key or outcome, outcomes without decision). Cost
 // O(total file size) time, O(decisions + outcomes) memory.
+//
+// Concurrency: Load keeps no state between calls and concurrent calls are
+// safe; a Set is read-only once returned and may be shared by concurrent
+// readers (abreport.Compare, tuner).
 package traceset

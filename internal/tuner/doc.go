@@ -24,4 +24,9 @@
 // never lost.
 //
 // Cost O(n log n + reps·(n + |τ|·|H|)) for n decisions (see ope.Sweep).
+//
+// Concurrency: the functions keep no state between calls and share only
+// read-only tables, so concurrent calls are safe; WriteConfig writes its
+// file atomically (a temporary file renamed into place), so two concurrent
+// writes to one path leave one whole file, the last renamed.
 package tuner
