@@ -28,7 +28,6 @@ import (
 	"log"
 	"net"
 	"net/http"
-	"net/url"
 	"os"
 	"os/signal"
 	"strings"
@@ -109,7 +108,7 @@ func parseFlags(args []string, getenv func(string) string, errw io.Writer) (opti
 	if o.maxBody < 0 {
 		return o, fmt.Errorf("-max-body-bytes %d: want ≥ 0 (0: the default)", o.maxBody)
 	}
-	if u, err := url.Parse(o.upstream); err != nil || (u.Scheme != "http" && u.Scheme != "https") || u.Host == "" {
+	if !gw.ValidUpstream(o.upstream) {
 		return o, fmt.Errorf("-upstream %q: want an http or https base URL such as http://127.0.0.1:9090/v1", o.upstream)
 	}
 	if o.traceMaxBytes < 0 || o.traceBackups < 1 {

@@ -58,6 +58,14 @@ const (
 	HeaderArm = "Hopwise-Arm"
 )
 
+// ValidUpstream reports whether raw is what Config.Upstream takes: an
+// absolute http or https URL with a host (the base the chat-completions
+// path is appended to).
+func ValidUpstream(raw string) bool {
+	u, err := url.Parse(raw)
+	return err == nil && (u.Scheme == "http" || u.Scheme == "https") && u.Host != ""
+}
+
 // ErrBadConfig is returned by New for a Config it cannot run with; the
 // message names the field (IndexPath, Upstream, a negative timeout or
 // size).
@@ -175,8 +183,7 @@ func New(cfg Config) (*Server, error) {
 	if cfg.IndexPath == "" {
 		return nil, fmt.Errorf("%w: IndexPath is empty", ErrBadConfig)
 	}
-	u, err := url.Parse(cfg.Upstream)
-	if err != nil || (u.Scheme != "http" && u.Scheme != "https") || u.Host == "" {
+	if !ValidUpstream(cfg.Upstream) {
 		return nil, fmt.Errorf("%w: Upstream %q is not an http or https base URL", ErrBadConfig, cfg.Upstream)
 	}
 	for _, f := range []struct {
@@ -229,6 +236,7 @@ func New(cfg Config) (*Server, error) {
 		tr = t
 	}
 	s.client = &http.Client{Transport: tr, CheckRedirect: func(*http.Request, []*http.Request) error { return http.ErrUseLastResponse }}
+	var err error
 	if s.recent, err = lru.New[string, pending](max(cfg.OutcomeSize, 1)); err != nil {
 		return nil, fmt.Errorf("gw: %w", err)
 	}
