@@ -358,22 +358,37 @@ func newBuildProgress(w io.Writer, total int64, quiet bool) (func(graphidx.Progr
 				_ = bar.Finish()
 			}
 	}
-	var last time.Time
-	phase := ""
+	var (
+		last    time.Time
+		phase   string
+		pending *graphidx.ProgressEvent // the newest event not printed, of phase
+	)
 	return func(ev graphidx.ProgressEvent) {
 		if ev.Phase == phase && time.Since(last) < 5*time.Second {
+			pending = &ev
 			return
 		}
-		phase, last = ev.Phase, time.Now()
+		if pending != nil && ev.Phase != phase {
+			// The phase ends: its last figures (the read totals, say)
+			// are shown before the next phase starts.
+			fmt.Fprintln(w, progressLine(*pending, total))
+		}
+		phase, last, pending = ev.Phase, time.Now(), nil
 		fmt.Fprintln(w, progressLine(ev, total))
 	}, func() {}
 }
 
-// progressLine is one line of the plain (not terminal) build progress. While
-// reading a corpus of known size it gives the share read (0% on the first
-// line) and, once some bytes are read, the time left to read at the rate so
+// progressLine is one line of the plain (not terminal) build progress. The
+// first line says that reading started (and the input's size, when known).
+// While reading a corpus of known size it gives the share read and, once some bytes are read, the time left to read at the rate so
 // far.
 func progressLine(ev graphidx.ProgressEvent, total int64) string {
+	if ev.Phase == graphidx.PhaseRead && ev.Contexts == 0 && ev.BytesRead <= 0 && ev.Elapsed < time.Second {
+		if total > 0 {
+			return fmt.Sprintf("build: read  started, %d bytes of input", total)
+		}
+		return "build: read  started"
+	}
 	msg := fmt.Sprintf("build: %-5s %s contexts, %d entities, %d spill runs", ev.Phase, humanCount(ev.Contexts), ev.Entities, ev.SpillRuns)
 	if ev.Phase == graphidx.PhaseRead && ev.BytesRead >= 0 && total > 0 {
 		msg += fmt.Sprintf(", %.0f%% of input", 100*float64(ev.BytesRead)/float64(total))

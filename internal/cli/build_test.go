@@ -217,7 +217,11 @@ func TestProgressLine(t *testing.T) {
 		want  string
 	}{
 		{graphidx.ProgressEvent{Phase: graphidx.PhaseRead}, 1000,
-			"build: read  0 contexts, 0 entities, 0 spill runs, 0% of input (0s)"},
+			"build: read  started, 1000 bytes of input"},
+		{graphidx.ProgressEvent{Phase: graphidx.PhaseRead}, -1,
+			"build: read  started"},
+		{graphidx.ProgressEvent{Phase: graphidx.PhaseRead, Elapsed: 6 * time.Second}, 1000,
+			"build: read  0 contexts, 0 entities, 0 spill runs, 0% of input (6s)"},
 		{graphidx.ProgressEvent{Phase: graphidx.PhaseRead, BytesRead: 250, Contexts: 20_000, Entities: 7, Elapsed: 3 * time.Second}, 1000,
 			"build: read  20k contexts, 7 entities, 0 spill runs, 25% of input, about 9s left to read (3s)"},
 		{graphidx.ProgressEvent{Phase: graphidx.PhaseRead, BytesRead: 250, Elapsed: 3 * time.Second}, -1,
@@ -244,5 +248,28 @@ func TestBuildHelpListsFormats(t *testing.T) {
 		if !strings.Contains(cmd.Long, "("+strings.Join(f.Extensions, " ")+")") {
 			t.Errorf("extensions of %s missing from the help", f.Name)
 		}
+	}
+}
+
+// TestPlainProgressShowsReadTotals: on a plain (non-terminal) writer the read
+// events within 5 s of the start are held back, but the last one is printed
+// when the phase changes, so the read totals are always shown. Before, a
+// build shorter than 5 s printed only "read 0 contexts" for its reading.
+func TestPlainProgressShowsReadTotals(t *testing.T) {
+	t.Parallel()
+	var out strings.Builder
+	emit, done := newBuildProgress(&out, 1000, false)
+	emit(graphidx.ProgressEvent{Phase: graphidx.PhaseRead})
+	emit(graphidx.ProgressEvent{Phase: graphidx.PhaseRead, BytesRead: 500, Contexts: 50, Entities: 3})
+	emit(graphidx.ProgressEvent{Phase: graphidx.PhaseRead, BytesRead: 1000, Contexts: 120, Entities: 4})
+	emit(graphidx.ProgressEvent{Phase: graphidx.PhaseMerge, Contexts: 120, Entities: 4})
+	emit(graphidx.ProgressEvent{Phase: graphidx.PhaseDone, Contexts: 120, Entities: 4, Pairs: 6})
+	done()
+	want := "build: read  started, 1000 bytes of input\n" +
+		"build: read  120 contexts, 4 entities, 0 spill runs, 100% of input (0s)\n" +
+		"build: merge 120 contexts, 4 entities, 0 spill runs (0s)\n" +
+		"build: done  120 contexts, 4 entities, 0 spill runs, 6 pairs (0s)\n"
+	if got := out.String(); got != want {
+		t.Errorf("progress =\n%s\nwant\n%s", got, want)
 	}
 }
