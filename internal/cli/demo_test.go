@@ -30,7 +30,7 @@ func TestDemoCommand(t *testing.T) {
 		}
 	}
 	runNextCommands(t, s)
-	if e := errb.String(); !strings.Contains(e, "build: read  0 contexts") || !strings.Contains(e, "measured ") {
+	if e := errb.String(); !strings.Contains(e, "build: read  10k contexts") || !strings.Contains(e, "measured ") {
 		t.Errorf("progress and stage lines not on stderr: %q", e)
 	}
 	if strings.Contains(s, "build: ") || strings.Contains(s, "measured ") {
