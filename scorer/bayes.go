@@ -160,11 +160,14 @@ import (
 // through a more moved w1 observed with t does not reject keeps, in B_t,
 // only the part of its term the test could not see (w1's term over the
 // table (w1, t) covers the rest; see explains). A chain's
-// missing-signal term is scaled by the same ratio E0'/E0 (the dependence it can miss is the target's distance
-// from its marginal); a one-bridge chain s → w → t, which computes the
-// route through w exactly, by min(E0, κ·2·(B_t − TV_w(d_t))² + Var(m̂_t),
-// R + Var(m̂_t))/E0 when w is observed with t (the routes it does not take;
-// the terms are kept in the workspace with the ratio). Cost at most 2·InfluenceFirst + InfluenceRefine·(1 +
+// missing-signal term is scaled by D/E0, D = min(E0, κ·2·B², R) the bound
+// on the target's squared distance from its marginal (the dependence a
+// chain can miss), without the marginal's own variance Var(m̂_t): that is
+// the error of answering m̂_t, which a chain does not answer with (it has
+// its own variance term); a one-bridge chain s → w → t, which computes the
+// route through w exactly, by min(E0, κ·2·(B_t − TV_w(d_t))², R)/E0 when w
+// is observed with t (the routes it does not take; the terms are kept in
+// the workspace with the ratio). Cost at most 2·InfluenceFirst + InfluenceRefine·(1 +
 // InfluenceSecond) pair look-ups per unobserved-pair direct estimate, plus
 // 2·ColliderTests for the tests and two per route tested against a common
 // effect;
@@ -180,7 +183,7 @@ import (
 //	Σ_v (p_v − m_v)² ≤ R = min(Σ_v max(U_v, D_v)², 2·min(Σ_v U_v, Σ_v D_v)²).
 //
 // E0 (after the influence bound) becomes min(E0, R + Var(m̂_t)), for every
-// pair, so the missing-signal term's ratio E0'/E0 carries it too. A target
+// pair, and the missing-signal term's ratio D/E0 carries R too. A target
 // value of small marginal cannot move far unless the observed value is rare
 // (P(asia = yes | smoke = yes) in ASIA is within 0.01 of P(asia = yes) =
 // 0.01, since P(smoke = yes) = 0.5). Derived, no constant; m̂ and P_u are the
@@ -365,14 +368,14 @@ func (b *Bayes) Direct(ws *Workspace, st Stats, s graphidx.EntityID, u int, t gr
 	}
 	e := max(0, (1-sq)/(d+1))
 	var rt routeTerms
-	e0Prior, e0, ok, err := b.unseenErrs(st, s, u, t, kt, sup, &rt)
+	e0Prior, e0, dep, ok, err := b.unseenErrs(st, s, u, t, kt, sup, &rt)
 	if err != nil {
 		return Estimate{}, err
 	}
 	if ok {
 		r := 1.0
 		if e0Prior > 0 {
-			r = e0 / e0Prior
+			r = dep / e0Prior
 		}
 		ws.remember(st, s, u, t, r, &rt)
 		// Shrinkage MSE: θ̂ = λ·N/n + (1 − λ)·a/a₀ with λ = n/(n + a₀).

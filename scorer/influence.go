@@ -270,25 +270,25 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 // routeTerms records, for one query (s = u, t) whose pair was never
 // observed together, the terms of B_t that the influence bound summed: for
 // each neighbour w of s observed with t, its route's term TV(d_t) (after the
-// common-effect and mediation tests), with E0's prior, Var(m̂_t) and the
-// range cap R + Var(m̂_t) (+Inf without). withoutRoute uses them to bound
+// common-effect and mediation tests), with E0's prior and the range bound
+// R (+Inf without). withoutRoute uses them to bound
 // what a one-bridge chain through w can miss (see Bayes, "Influence
 // bound"). ok is false when B_t was not computed in full.
 type routeTerms struct {
-	ok                bool
-	n                 int
-	id                [InfluenceFirst]graphidx.EntityID
-	term              [InfluenceFirst]float64
-	seen              [InfluenceFirst]bool
-	sum               float64
-	prior, floor, cap float64
+	ok         bool
+	n          int
+	id         [InfluenceFirst]graphidx.EntityID
+	term       [InfluenceFirst]float64
+	seen       [InfluenceFirst]bool
+	sum        float64
+	prior, rng float64
 }
 
-// withoutRoute returns the ratio E0_w/E0_prior for a one-bridge chain
-// s → w → t, E0_w = min(E0_prior, κ·2·(B_t − TV_w(d_t))² + Var(m̂_t), R +
-// Var(m̂_t)): the chain computes the route through w exactly (its estimate's
-// distance from the marginal is that route's deviation), so the dependence
-// it can miss is the rest of B_t. ok is false when the terms are not
+// withoutRoute returns the ratio D_w/E0_prior for a one-bridge chain
+// s → w → t, D_w = min(E0_prior, κ·2·(B_t − TV_w(d_t))², R): the chain
+// computes the route through w exactly (its estimate's distance from the
+// marginal is that route's deviation), so the dependence it can miss is
+// the rest of B_t (0 when w is the only route). ok is false when the terms are not
 // recorded or w is not among the neighbours observed with t. O(InfluenceFirst).
 func (rt *routeTerms) withoutRoute(w graphidx.EntityID, kappa float64) (float64, bool) {
 	if !rt.ok || !(rt.prior > 0) {
@@ -299,7 +299,7 @@ func (rt *routeTerms) withoutRoute(w graphidx.EntityID, kappa float64) (float64,
 			continue
 		}
 		rest := max(0, rt.sum-rt.term[i])
-		return min(rt.prior, kappa*2*rest*rest+rt.floor, rt.cap) / rt.prior, true
+		return min(rt.prior, kappa*2*rest*rest, rt.rng) / rt.prior, true
 	}
 	return 0, false
 }
@@ -309,38 +309,42 @@ func (rt *routeTerms) withoutRoute(w graphidx.EntityID, kappa float64) (float64,
 // sup = 0 and the bound applies (marginalVar), else E0 again (see Bayes, "Influence bound"),
 // then capped by the range bound, min(·, R + Var(m̂_t)) (rangeBound; for
 // every pair: E0 is the prior's distance from the marginal whatever the
-// support). ok is false without marginals. Cost that of influenceBound when
+// support). dep is the same without Var(m̂_t), min(E0, κ·2·B², R): the
+// bound on the target's squared distance from its marginal, the dependence
+// a chain's missing-signal term scales with. ok is false without marginals. Cost that of influenceBound when
 // sup = 0, plus O(K_s + K_t).
 //
 // rt, when not nil, receives the route terms of B_t (routeTerms).
-func (b *Bayes) unseenErrs(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, kt int, sup uint64, rt *routeTerms) (prior, e0 float64, ok bool, err error) {
+func (b *Bayes) unseenErrs(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, kt int, sup uint64, rt *routeTerms) (prior, e0, dep float64, ok bool, err error) {
 	if rt != nil {
 		rt.ok = false
 	}
 	prior, ok = b.unseenErr(st, s, u, kt)
 	if !ok {
-		return 0, 0, false, nil
+		return 0, 0, 0, false, nil
 	}
-	e0 = prior
+	e0, dep = prior, prior
 	if sup == 0 && b.influence > 0 && prior > 0 {
 		bb, ok, err := b.influenceBound(st, s, u, t, prior/b.influence, rt)
 		if err != nil {
-			return 0, 0, false, err
+			return 0, 0, 0, false, err
 		}
 		if ok {
 			// The marginal's own error adds its posterior variance.
+			dep = min(prior, b.influence*2*bb)
 			e0 = min(prior, b.influence*2*bb+b.marginalVar(st, t, kt))
 		}
 	}
-	capped := math.Inf(1)
+	rng := math.Inf(1)
 	if rb, ok := b.rangeBound(st, s, u, t, kt); ok {
-		capped = rb + b.marginalVar(st, t, kt)
-		e0 = min(e0, capped)
+		rng = rb
+		dep = min(dep, rb)
+		e0 = min(e0, rb+b.marginalVar(st, t, kt))
 	}
 	if rt != nil && rt.ok {
-		rt.prior, rt.floor, rt.cap = prior, b.marginalVar(st, t, kt), capped
+		rt.prior, rt.rng = prior, rng
 	}
-	return prior, e0, true, nil
+	return prior, e0, dep, true, nil
 }
 
 // marginalVar returns (1 − Σ_v m̂_v²)/(N + K_t α + 1), the posterior
@@ -369,7 +373,7 @@ func (b *Bayes) marginalVar(st Stats, t graphidx.EntityID, kt int) float64 {
 	return max(0, 1-sq) / (tot + 1)
 }
 
-// remember records r = E0/E0_prior of the query (s = u, t) over st in ws,
+// remember records r = D/E0_prior (unseenErrs' dep over its prior) of the query (s = u, t) over st in ws,
 // for the Chain calls that follow (unseenRatio). ws may be nil. O(1).
 // rt (may be nil: none recorded) is kept with it for Chain's one-bridge
 // chains (routeTerms.withoutRoute).
@@ -384,7 +388,7 @@ func (ws *Workspace) remember(st Stats, s graphidx.EntityID, u int, t graphidx.E
 	}
 }
 
-// unseenRatio returns r = E0/E0_prior ∈ [0, 1] for the query (s = u, t):
+// unseenRatio returns r = D/E0_prior ∈ [0, 1] for the query (s = u, t):
 // the factor by which the influence bound shrinks the missing-signal bias
 // of a chain (see Bayes, "Influence bound"); 1 when the pair was observed
 // together, without marginals or with the bound off. It reuses the value
@@ -409,12 +413,12 @@ func (b *Bayes) unseenRatio(ws *Workspace, st Stats, s graphidx.EntityID, u int,
 	}
 	r := 1.0
 	var rt routeTerms
-	prior, e0, ok, err := b.unseenErrs(st, s, u, t, kt, sup, &rt)
+	prior, _, dep, ok, err := b.unseenErrs(st, s, u, t, kt, sup, &rt)
 	if err != nil {
 		return 0, err
 	}
 	if ok && prior > 0 {
-		r = e0 / prior
+		r = dep / prior
 	}
 	ws.remember(st, s, u, t, r, &rt)
 	return r, nil

@@ -46,7 +46,7 @@ type Workspace struct {
 	sepU, sepM           int
 
 	// influence bound of the last query (Bayes.unseenRatio): the ratio
-	// E0/E0_prior for observed value inflU of inflS and target inflT over
+	// D/E0_prior for observed value inflU of inflS and target inflT over
 	// the Stats inflSt, valid when inflOK.
 	inflOK       bool
 	inflS, inflT graphidx.EntityID

@@ -20,16 +20,15 @@ const publishedContexts = 50000
 // sample (each run builds a real index in about 0.2 s).
 var publishedSeeds = []int64{1, 2, 3}
 
-// publishedMean runs net with every pair at skeleton distance ≥ minDist held
-// out (never observed together): the corpus is sampled as `hopwise eval`
-// samples it (local-geometric contexts), the index is built by the real
-// builder, and every held-out and supported pair is answered by the real
-// router, against exact answers by variable elimination. It returns the
-// reports of every seed and the mean of the held-out, supported and
-// calibration figures over seeds.
-func publishedMean(t *testing.T, net *world.World, minDist int, opts ...scorer.Option) (held, sup eval.Scores, rho float64) {
+// publishedMean runs net with the given pairs held out (never observed
+// together): the corpus is sampled as `hopwise eval` samples it
+// (local-geometric contexts), the index is built by the real builder, and
+// every held-out and supported pair is answered by the real router, against
+// exact answers by variable elimination. It returns the mean of the
+// held-out, supported and calibration figures over the seeds.
+func publishedMean(t *testing.T, net *world.World, heldOut [][2]int, opts ...scorer.Option) (held, sup eval.Scores, rho float64) {
 	t.Helper()
-	w, err := net.WithHeldOut(world.PublishedHeldOut(net, minDist))
+	w, err := net.WithHeldOut(heldOut)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -50,15 +49,40 @@ func publishedMean(t *testing.T, net *world.World, minDist int, opts ...scorer.O
 	return m.HeldOut, m.Supported, m.Calibration.Spearman
 }
 
+// publishedMinMI is the least mutual information (nats) of a held-out pair
+// in the second regime of TestPublishedNetworks, `hopwise eval`'s own choice
+// (world.PickHeldOut): dependent non-adjacent pairs only.
+const publishedMinMI = 0.001
+
+// A publishedRegime chooses the held-out pairs of a published network.
+type publishedRegime struct {
+	name string
+	pick func(*world.World) ([][2]int, error)
+}
+
+// publishedRegimes are the two held-out choices of TestPublishedNetworks:
+// every pair at skeleton distance ≥ 2 (independent pairs included, so no
+// table of the corpus shows two causes of a common effect together), and
+// `hopwise eval`'s own (world.PickHeldOut: every non-adjacent pair with
+// mutual information ≥ publishedMinMI; the other pairs, among them
+// independent causes of a common effect, are observed).
+var publishedRegimes = []publishedRegime{
+	{"distance ≥ 2", func(w *world.World) ([][2]int, error) { return world.PublishedHeldOut(w, 2), nil }},
+	{"MI ≥ 0.001", func(w *world.World) ([][2]int, error) {
+		return w.PickHeldOut(w.NumVars()*w.NumVars(), publishedMinMI, 1)
+	}},
+}
+
 // publishedNet is one published network of TestPublishedNetworks with the
-// bounds its routed answers must meet.
+// bounds its routed answers must meet, per regime (publishedRegimes).
 type publishedNet struct {
 	name  string
 	build func() (*world.World, error)
-	// chainTol is how far above the simple count chain the routed held-out
-	// MSE may be (1 = not above); minRho is the least Spearman ρ of
-	// predicted against realised error (a floor under today's value).
-	chainTol, minRho float64
+	// chainTol is how far above the better of the marginal and the simple
+	// count chain the routed held-out MSE may be (1 = not above); minRho
+	// is the least Spearman ρ of predicted against realised error (a floor
+	// under today's value). See publishedNets for each value's reason.
+	chainTol, minRho [2]float64
 }
 
 // publishedNets are the networks of TestPublishedNetworks, each typed from
@@ -72,69 +96,104 @@ type publishedNet struct {
 //   - Cancer, Korb & Nicholson (2004), "Bayesian Artificial Intelligence",
 //     §2.2: 5 binary variables, one common effect (world.Cancer;
 //     probabilities typed from memory).
+//   - Burglary, Russell & Norvig, AIMA 3rd ed. (2010), §14.2: 5 binary
+//     variables, one common effect of two rare causes (world.Burglary).
+//   - Sprinkler, AIMA 3rd ed. §14.5: 4 binary variables, one common effect
+//     with a deterministic zero (world.Sprinkler).
+//   - Student, Koller & Friedman (2009), "Probabilistic Graphical Models",
+//     Fig. 3.4: 5 variables, Grade with 3 values, one common effect
+//     (world.Student; probabilities typed from memory).
 //
 // None of them was used to fit a constant: the model is fitted on the
 // synthetic fit worlds (hopwise eval --fit), so these are held-out checks.
 //
-// Measured (3 seeds, 50 000 contexts; routed / marginal / count chain, ρ):
-// ASIA 0.01153 / 0.02862 / 0.01123, ρ 0.662; Survey 1.613e-5 / 2.464e-5 /
-// 1.885e-5, ρ 0.377; Cancer 3.461e-5 / 6.86e-5 / 2.424e-5, ρ 0.638. Before
-// the influence bound ρ was 0.403, 0.055 and 0.146; before the range bound
-// (Bayes' rule: a target value of small marginal cannot move far unless the
-// observed value is rare) ASIA's was 0.473, with the same routed answers;
-// before the one-bridge route terms (a chain s → w → t misses only the
-// routes of the influence bound not through w) Cancer's was 0.578. Survey's
-// floor is under what any predictor of the expected squared error reaches
-// there, and Cancer's at that level (TestPublishedOracle). The chain tolerances
-// are today's shortfalls, not targets: in ASIA the router and the count
-// chain take the same chains through the common effect "either" (tub →
-// either → lung), whose bias no table of a distance-2 corpus can show, and
-// the router's own choices differ on one query (lung → bronc); in Cancer
-// the gap (1.1e-5) is below the error of the marginal itself under local
-// sampling (up to 5e-4 per query), where near ties between the marginal
-// and the one-bridge chain through "cancer" fall either way.
+// Measured (3 seeds, 50 000 contexts; routed / marginal / count chain, ρ),
+// distance ≥ 2: ASIA 0.01153 / 0.02862 / 0.01123, ρ 0.662; Survey 1.625e-5
+// / 2.464e-5 / 1.885e-5, ρ 0.354; Cancer 2.528e-5 / 6.86e-5 / 2.424e-5,
+// ρ 0.613; Burglary 0.002229 / 0.04892 / 0.002229, ρ 0.837; Sprinkler
+// 0.002725 / 0.01496 / 0.01861, ρ 0.647; Student 0.002157 / 0.01784 /
+// 0.002157, ρ −0.041. MI ≥ 0.001: ASIA 0.002274 / 0.05707 / 0.009198,
+// ρ 0.689; Burglary 0.0004943 / 0.08943 / 0.0004939, ρ 0.885; Sprinkler as
+// above (its two dependent non-adjacent pairs are its only ones); Student
+// 2.967e-5 / 0.02624 / 2.967e-5, ρ 0.244; Survey and Cancer have no pair
+// that dependent. The tolerances above 1 are today's shortfalls, not
+// targets: in ASIA (distance ≥ 2) the router takes lung → either → dysp →
+// bronc for lung = yes, through the common effect dysp of either and bronc,
+// which were never observed together, so no table shows that chain's
+// invented dependence; in Cancer the gap (1.0e-6) is the three queries from
+// pollution = low, near ties at the noise of the marginal itself, where the
+// one-bridge chain through "cancer" is predicted 10 % worse; in Burglary
+// (both regimes) near ties between the marginal and the chain through Alarm
+// from the common values (Burglary = false, ...), at realised errors of
+// 1e-7 to 1e-6 per query, fall either way (routed/best 1.00002 and
+// 1.00089). Student's ρ at
+// distance ≥ 2 is that of chains through the common effect Grade
+// (Difficulty → Grade → Intelligence), whose causes were never observed
+// together: their realised errors (up to 0.017) cannot be predicted from
+// pair tables that are all consistent with Grade being a mediator, while
+// the other queries' errors are at the noise level; Survey's and Student's
+// MI ≥ 0.001 floors are under what any predictor of the expected error
+// reaches when every realised error is sampling noise (TestPublishedOracle).
 var publishedNets = []publishedNet{
-	{"asia", world.Asia, 1.1, 0.6},
-	{"survey", world.Survey, 1.0, 0.35},
-	{"cancer", world.Cancer, 1.6, 0.6},
+	{"asia", world.Asia, [2]float64{1.03, 1}, [2]float64{0.6, 0.6}},
+	{"survey", world.Survey, [2]float64{1, 1}, [2]float64{0.35, 0}},
+	{"cancer", world.Cancer, [2]float64{1.05, 1}, [2]float64{0.6, 0}},
+	{"burglary", world.Burglary, [2]float64{1.001, 1.002}, [2]float64{0.8, 0.85}},
+	{"sprinkler", world.Sprinkler, [2]float64{1, 1}, [2]float64{0.6, 0.6}},
+	{"student", world.Student, [2]float64{1, 1}, [2]float64{-0.1, 0.2}},
 }
 
-// TestPublishedNetworks checks routing on the published networks: every
-// non-adjacent pair (skeleton distance ≥ 2) is held out. Held-out pairs: the
-// routed answer must be no worse than the target's marginal and within the
-// network's tolerance of the simple count chain (fewest bridges, widest
-// support). Adjacent pairs: within 10 % of direct. Calibration: Spearman ρ at
-// least the network's floor. The mean routed MSE over the networks is
-// logged. Heavy (3 seeds per network): skipped under -short.
+// TestPublishedNetworks checks routing on the published networks in both
+// held-out regimes (publishedRegimes). Held-out pairs: the routed answer
+// must be no worse than the target's marginal and within the network's
+// tolerance of the better of the marginal and the simple count chain
+// (fewest bridges, widest support). Adjacent pairs: within 10 % of direct.
+// Calibration: Spearman ρ at least the network's floor. The
+// mean routed MSE over the networks is logged per regime. Heavy (3 seeds
+// per network and regime): skipped under -short.
 func TestPublishedNetworks(t *testing.T) {
 	if testing.Short() {
-		t.Skip("builds 9 indexes of 50 000 contexts")
+		t.Skip("builds 3 indexes of 50 000 contexts per network and regime")
 	}
 	t.Parallel()
-	mean := 0.0
-	for _, n := range publishedNets {
-		net, err := n.build()
-		if err != nil {
-			t.Fatal(err)
+	for ri, rg := range publishedRegimes {
+		mean, nets := 0.0, 0
+		for _, n := range publishedNets {
+			net, err := n.build()
+			if err != nil {
+				t.Fatal(err)
+			}
+			pairs, err := rg.pick(net)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if len(pairs) == 0 {
+				t.Logf("%s, %s: no pair qualifies", n.name, rg.name)
+				continue
+			}
+			held, sup, rho := publishedMean(t, net, pairs)
+			mean += held.Routed
+			nets++
+			best := min(held.Marginal, held.CountChain)
+			t.Logf("%s, %s (%d pairs): routed %.4g, marginal %.4g, count chain %.4g (routed/best %.5f); supported routed %.4g, direct %.4g; ρ %.3f",
+				n.name, rg.name, len(pairs), held.Routed, held.Marginal, held.CountChain, held.Routed/best, sup.Routed, sup.Direct, rho)
+			if held.Routed > held.Marginal {
+				t.Errorf("%s, %s: routed MSE %.4g above the marginal's %.4g", n.name, rg.name, held.Routed, held.Marginal)
+			}
+			// 1e-9: the router's and the count chain's estimates of the same
+			// chain are computed by different code paths (last-bit rounding).
+			if held.Routed > n.chainTol[ri]*best*(1+1e-9) {
+				t.Errorf("%s, %s: routed MSE %.4g above %g × the better of marginal and count chain, %.4g", n.name, rg.name, held.Routed, n.chainTol[ri], best)
+			}
+			if sup.Routed > 1.1*sup.Direct {
+				t.Errorf("%s, %s: adjacent pairs: routed MSE %.4g above 1.1 × direct %.4g", n.name, rg.name, sup.Routed, sup.Direct)
+			}
+			if rho < n.minRho[ri] {
+				t.Errorf("%s, %s: Spearman ρ %.3f of predicted against realised error, want ≥ %.2f", n.name, rg.name, rho, n.minRho[ri])
+			}
 		}
-		held, sup, rho := publishedMean(t, net, 2)
-		mean += held.Routed / float64(len(publishedNets))
-		t.Logf("%s, distance ≥ 2: routed %.4g, marginal %.4g, count chain %.4g; supported routed %.4g, direct %.4g; ρ %.3f",
-			n.name, held.Routed, held.Marginal, held.CountChain, sup.Routed, sup.Direct, rho)
-		if held.Routed > held.Marginal {
-			t.Errorf("%s: non-adjacent pairs: routed MSE %.4g above the marginal's %.4g", n.name, held.Routed, held.Marginal)
-		}
-		if held.Routed > n.chainTol*held.CountChain {
-			t.Errorf("%s: non-adjacent pairs: routed MSE %.4g above %g × the count chain's %.4g", n.name, held.Routed, n.chainTol, held.CountChain)
-		}
-		if sup.Routed > 1.1*sup.Direct {
-			t.Errorf("%s: adjacent pairs: routed MSE %.4g above 1.1 × direct %.4g", n.name, sup.Routed, sup.Direct)
-		}
-		if rho < n.minRho {
-			t.Errorf("%s: Spearman ρ %.3f of predicted against realised error, want ≥ %.2f", n.name, rho, n.minRho)
-		}
+		t.Logf("%s: mean routed held-out MSE over %d networks: %.4g", rg.name, nets, mean/float64(nets))
 	}
-	t.Logf("mean routed held-out MSE over %d networks: %.4g", len(publishedNets), mean)
 }
 
 // TestPublishedAsiaFar checks the far pairs of ASIA (skeleton distance ≥ 3,
@@ -160,8 +219,8 @@ func TestPublishedAsiaFar(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	far, _, _ := publishedMean(t, asia, 3)
-	off, _, _ := publishedMean(t, asia, 3, scorer.WithSeparation(0))
+	far, _, _ := publishedMean(t, asia, world.PublishedHeldOut(asia, 3))
+	off, _, _ := publishedMean(t, asia, world.PublishedHeldOut(asia, 3), scorer.WithSeparation(0))
 	t.Logf("distance ≥ 3: routed %.4g (without the separation check %.4g), marginal %.4g", far.Routed, off.Routed, far.Marginal)
 	if far.Routed > far.Marginal {
 		t.Errorf("far pairs: routed MSE %.4g above the marginal's %.4g", far.Routed, far.Marginal)
@@ -322,10 +381,13 @@ const oracleSeeds = 20
 // Cancer the model ranks about as well as the expected error itself, and
 // a ρ floor of 0.6 is out of reach of any predictor of the expected error
 // on Survey (one that reads the corpus could in principle follow part of
-// its noise). Heavy (60 indexes): skipped under -short.
+// its noise). The later networks (20 corpora, distance ≥ 2): Burglary model
+// 0.889, oracle 0.909; Sprinkler 0.476 and 0.533; Student −0.015 and 0.601
+// (chains through the common effect Grade whose causes were never observed
+// together: see publishedNets). Heavy (60 indexes): skipped under -short.
 func TestPublishedOracle(t *testing.T) {
 	if testing.Short() {
-		t.Skip("builds 60 indexes of 50 000 contexts")
+		t.Skip("builds 20 indexes of 50 000 contexts per published network")
 	}
 	t.Parallel()
 	type key struct {
