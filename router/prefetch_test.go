@@ -243,15 +243,15 @@ func TestDecideGoldenDigest(t *testing.T) {
 		opts []Option
 		want string
 	}{
-		{"default", nil, "2920714e6f09bb19"},
-		{"H1", []Option{WithMaxBridges(1)}, "bdeac82fac91c595"},
-		{"H2", []Option{WithMaxBridges(2)}, "9158cb3e69b084e6"},
-		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "bf05fcb902b5ca5e"},
-		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "3839949fa174ab5d"},
-		{"budget3000", []Option{WithExpansionBudget(3000)}, "5b1a5070070688a7"},
+		{"default", nil, "7bbd4a1d9a754eb1"},
+		{"H1", []Option{WithMaxBridges(1)}, "e104829e4f260e64"},
+		{"H2", []Option{WithMaxBridges(2)}, "26595454a8c7c90d"},
+		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "6293f0be6e5ba0fa"},
+		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "86036127b6452e0a"},
+		{"budget3000", []Option{WithExpansionBudget(3000)}, "9aaf519a89739d6b"},
 		{"support", []Option{WithModel(support)}, "e06acf7f4b69d29a"},
-		{"exact", []Option{WithModel(exact)}, "0309e9feeaf0652d"},
-		{"utility", []Option{WithUtility(2, 0.001)}, "3f5ba07b19e1f850"},
+		{"exact", []Option{WithModel(exact)}, "c36c6625cef40888"},
+		{"utility", []Option{WithUtility(2, 0.001)}, "0c32be9eaa565357"},
 	}
 	fresh := map[string]string{} // with -update: the new digest of each case
 	var hinted, wrong atomic.Int64

@@ -1,7 +1,9 @@
 package scorer_test
 
 import (
+	"errors"
 	"math"
+	"slices"
 	"testing"
 
 	"github.com/hopwise/hopwise/graphidx"
@@ -66,5 +68,68 @@ func TestOneBridgeRoute(t *testing.T) {
 	}
 	if got, want := bias(on, two, 4)/bias(off, two, 4), (d4.Err-margVar([]uint64{600, 400}))/prior; math.Abs(got-want) > 1e-9 {
 		t.Errorf("two-bridge chain 1 → 2 → 3 → 4: ratio %.6g, want the marginal's %.6g", got, want)
+	}
+}
+
+// TestProjectReference: on the path 1 — 2 — 3 — 4 the influence bound puts
+// P(4 | 1 = u) within √(2·B²) of the marginal (TestInfluenceBound), so the
+// ball of ProjectReference has radius ρ = √(E0' − Var(m̂_4)) + √Var(m̂_4),
+// E0' the direct estimate's error. A reference outside it moves onto its
+// sphere along the segment to m̂ (and stays a distribution); one inside
+// stays; a reference of the wrong length is an error; κ = 0 turns it off.
+// (The bound excess a chain outside the ball pays is checked on ASIA:
+// internal/eval TestCommonEffectBound.)
+func TestProjectReference(t *testing.T) {
+	t.Parallel()
+	st := pathWorld()
+	const u = 1
+	b, err := scorer.NewBayes()
+	if err != nil {
+		t.Fatal(err)
+	}
+	d, err := b.Direct(nil, st, 1, u, 4)
+	if err != nil {
+		t.Fatal(err)
+	}
+	mv := margVar([]uint64{600, 400})
+	rho := math.Sqrt(d.Err-mv) + math.Sqrt(mv)
+	m := smoothed([]uint64{600, 400})
+	dist := func(p []float64) float64 {
+		return math.Hypot(p[0]-m[0], p[1]-m[1])
+	}
+	far := []float64{0.05, 0.95}
+	if dist(far) <= rho {
+		t.Fatalf("test world: reference %v within the ball (ρ %.4g)", far, rho)
+	}
+	got := slices.Clone(far)
+	if err := b.ProjectReference(scorer.NewWorkspace(), st, 1, u, 4, got); err != nil {
+		t.Fatal(err)
+	}
+	if math.Abs(dist(got)-rho) > 1e-12 || math.Abs(got[0]+got[1]-1) > 1e-12 {
+		t.Errorf("projected %v: distance %.6g from the marginal, want ρ = %.6g; sum %.15g", got, dist(got), rho, got[0]+got[1])
+	}
+	// On the segment from m̂ to the reference.
+	if f := (got[0] - m[0]) / (far[0] - m[0]); math.Abs((got[1]-m[1])-f*(far[1]-m[1])) > 1e-12 || f <= 0 || f >= 1 {
+		t.Errorf("projected %v is not on the segment from %v to %v", got, m, far)
+	}
+	near := []float64{m[0] + 0.5*rho/math.Sqrt2, m[1] - 0.5*rho/math.Sqrt2}
+	in := slices.Clone(near)
+	if err := b.ProjectReference(nil, st, 1, u, 4, in); err != nil {
+		t.Fatal(err)
+	}
+	if !slices.Equal(in, near) {
+		t.Errorf("a reference inside the ball moved: %v → %v", near, in)
+	}
+	if err := b.ProjectReference(nil, st, 1, u, 4, []float64{1}); !errors.Is(err, scorer.ErrBadStats) {
+		t.Errorf("reference of 1 value for a binary target: err %v, want ErrBadStats", err)
+	}
+	// κ = 0 turns the bound, and so the projection, off.
+	off, err := scorer.NewBayes(scorer.WithInfluence(0))
+	if err != nil {
+		t.Fatal(err)
+	}
+	same := slices.Clone(far)
+	if err := off.ProjectReference(nil, st, 1, u, 4, same); err != nil || !slices.Equal(same, far) {
+		t.Errorf("κ = 0: reference %v → %v (err %v), want unchanged", far, same, err)
 	}
 }
