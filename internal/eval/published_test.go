@@ -523,3 +523,48 @@ func TestCommonEffectBound(t *testing.T) {
 		t.Fatal("query lung = yes → bronc not answered")
 	}
 }
+
+// TestSprinklerZeroEndToEnd: the sprinkler network (AIMA 3rd ed. §14.5) has
+// the deterministic zero P(WetGrass | ¬Sprinkler, ¬Rain) = 0. Its corpus
+// must build into an index whose every query (held-out pairs at distance
+// ≥ 2 and adjacent pairs, every value) the router answers with a
+// distribution (finite, in [0, 1], summing to 1) and a finite, non-negative
+// predicted error, and none is skipped.
+func TestSprinklerZeroEndToEnd(t *testing.T) {
+	t.Parallel()
+	sp, err := world.Sprinkler()
+	if err != nil {
+		t.Fatal(err)
+	}
+	w, err := sp.WithHeldOut(world.PublishedHeldOut(sp, 2))
+	if err != nil {
+		t.Fatal(err)
+	}
+	r, err := eval.Run(context.Background(), eval.Config{
+		Condition: world.CondLocalGeometric, Seed: 1, Network: w, Contexts: publishedContexts, KeepQueries: true,
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r.HeldOut.Skipped+r.Supported.Skipped != 0 || len(r.Queries) != 2*2*(2+4) {
+		t.Fatalf("%d queries answered, %d + %d skipped; want 24 and none", len(r.Queries), r.HeldOut.Skipped, r.Supported.Skipped)
+	}
+	for _, q := range r.Queries {
+		for _, est := range eval.Estimators() {
+			p := q.Est[est]
+			sum := 0.0
+			for _, x := range p {
+				if !(x >= 0 && x <= 1) {
+					t.Fatalf("%s %d=%d → %d: %s estimate %v", q.Set, q.From, q.Value, q.To, est, p)
+				}
+				sum += x
+			}
+			if math.Abs(sum-1) > 1e-9 {
+				t.Errorf("%s %d=%d → %d: %s estimate %v sums to %v", q.Set, q.From, q.Value, q.To, est, p, sum)
+			}
+		}
+		if !(q.RoutedErr >= 0) || math.IsInf(q.RoutedErr, 0) {
+			t.Errorf("%s %d=%d → %d: predicted error %v", q.Set, q.From, q.Value, q.To, q.RoutedErr)
+		}
+	}
+}
