@@ -490,20 +490,7 @@ func TestPublishedOracle(t *testing.T) {
 // dysp, realised squared error 0.049 on this corpus; now through smoke.
 func TestCommonEffectBound(t *testing.T) {
 	t.Parallel()
-	asia, err := world.Asia()
-	if err != nil {
-		t.Fatal(err)
-	}
-	w, err := asia.WithHeldOut(world.PublishedHeldOut(asia, 2))
-	if err != nil {
-		t.Fatal(err)
-	}
-	r, err := eval.Run(context.Background(), eval.Config{
-		Condition: world.CondLocalGeometric, Seed: 1, Network: w, Contexts: publishedContexts, KeepQueries: true,
-	})
-	if err != nil {
-		t.Fatal(err)
-	}
+	asia, r := publishedQueries(t, world.Asia)
 	lung, _ := asia.Index("lung")
 	bronc, _ := asia.Index("bronc")
 	found := false
@@ -532,20 +519,7 @@ func TestCommonEffectBound(t *testing.T) {
 // predicted error, and none is skipped.
 func TestSprinklerZeroEndToEnd(t *testing.T) {
 	t.Parallel()
-	sp, err := world.Sprinkler()
-	if err != nil {
-		t.Fatal(err)
-	}
-	w, err := sp.WithHeldOut(world.PublishedHeldOut(sp, 2))
-	if err != nil {
-		t.Fatal(err)
-	}
-	r, err := eval.Run(context.Background(), eval.Config{
-		Condition: world.CondLocalGeometric, Seed: 1, Network: w, Contexts: publishedContexts, KeepQueries: true,
-	})
-	if err != nil {
-		t.Fatal(err)
-	}
+	_, r := publishedQueries(t, world.Sprinkler)
 	if r.HeldOut.Skipped+r.Supported.Skipped != 0 || len(r.Queries) != 2*2*(2+4) {
 		t.Fatalf("%d queries answered, %d + %d skipped; want 24 and none", len(r.Queries), r.HeldOut.Skipped, r.Supported.Skipped)
 	}
@@ -567,4 +541,25 @@ func TestSprinklerZeroEndToEnd(t *testing.T) {
 			t.Errorf("%s %d=%d → %d: predicted error %v", q.Set, q.From, q.Value, q.To, q.RoutedErr)
 		}
 	}
+}
+
+// publishedQueries builds the network, holds out every pair at skeleton
+// distance ≥ 2 and runs one corpus (seed 1) with every answered query kept.
+func publishedQueries(t *testing.T, build func() (*world.World, error)) (*world.World, eval.Report) {
+	t.Helper()
+	net, err := build()
+	if err != nil {
+		t.Fatal(err)
+	}
+	w, err := net.WithHeldOut(world.PublishedHeldOut(net, 2))
+	if err != nil {
+		t.Fatal(err)
+	}
+	r, err := eval.Run(context.Background(), eval.Config{
+		Condition: world.CondLocalGeometric, Seed: 1, Network: w, Contexts: publishedContexts, KeepQueries: true,
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return net, r
 }
