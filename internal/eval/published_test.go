@@ -396,26 +396,32 @@ const oracleSeeds = 20
 // estimated without corpus i's own noise). It is logged beside the
 // model's ρ over the same corpora; the model's must not be above the
 // oracle's by more than 0.05 (else the oracle is too noisy to serve as the
-// reference). Measured with 20 corpora (seeds 1–20): ASIA model 0.602,
-// oracle 0.837; Survey 0.441 and 0.438; Cancer 0.635 and 0.638 (with 60
+// reference). Measured with 20 corpora (seeds 1–20): ASIA model 0.599,
+// oracle 0.826; Survey 0.435 and 0.440; Cancer 0.606 and 0.631 (before the
+// bound excess and the missing-signal ratio without Var(m̂): 0.602 and
+// 0.837, 0.441 and 0.438, 0.635 and 0.638; with 60
 // corpora: 0.601 / 0.826, 0.465 / 0.478, 0.583 / 0.606). On Survey and
 // Cancer the model ranks about as well as the expected error itself, and
 // a ρ floor of 0.6 is out of reach of any predictor of the expected error
 // on Survey (one that reads the corpus could in principle follow part of
-// its noise). The later networks (20 corpora, distance ≥ 2): Burglary model
-// 0.889, oracle 0.909; Sprinkler 0.476 and 0.533; Student −0.015 and 0.601
+// its noise). The later networks, measured once with this test run over
+// them (20 corpora, distance ≥ 2): Burglary model 0.889, oracle 0.909;
+// Sprinkler 0.476 and 0.533; Student −0.012 and 0.601
 // (chains through the common effect Grade whose causes were never observed
 // together: see publishedNets). Heavy (60 indexes): skipped under -short.
 func TestPublishedOracle(t *testing.T) {
 	if testing.Short() {
-		t.Skip("builds 20 indexes of 50 000 contexts per published network")
+		t.Skip("builds 60 indexes of 50 000 contexts")
 	}
 	t.Parallel()
 	type key struct {
 		set             string
 		from, to, value int
 	}
-	for _, n := range publishedNets {
+	// The first three networks, whose ρ floors the oracle explains; the
+	// others were measured once with this test over all six (see above),
+	// and are left out to keep it at 60 indexes.
+	for _, n := range publishedNets[:3] {
 		net, err := n.build()
 		if err != nil {
 			t.Fatal(err)
