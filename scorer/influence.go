@@ -563,7 +563,8 @@ func (b *Bayes) boundExcess(ws *Workspace, st Stats, s graphidx.EntityID, u int,
 // segment from m̂ to ref). A reference within the ball, or a query without
 // the bound, is left as it is. ws should hold the query's last Chain or
 // Direct call (else the bound is recomputed); call it after PendingBias of
-// that Chain (it resets the path's first cardinality). ErrBadStats for a reference
+// that Chain (it resets the path's first cardinality). A reference value
+// outside [0, 1] (NaN included) is ErrBadEstimate. ErrBadStats for a reference
 // of the wrong length. Cost as boundBall plus O(K_t).
 func (b *Bayes) ProjectReference(ws *Workspace, st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, ref []float64) error {
 	if st == nil {
@@ -572,6 +573,11 @@ func (b *Bayes) ProjectReference(ws *Workspace, st Stats, s graphidx.EntityID, u
 	kt := st.NumValues(t)
 	if len(ref) != kt || kt < 1 || kt > graphidx.MaxValues {
 		return fmt.Errorf("%w: reference of %d values for entity %d, which has %d", ErrBadStats, len(ref), t, kt)
+	}
+	for v, x := range ref {
+		if !(x >= 0 && x <= 1) {
+			return fmt.Errorf("%w: reference value %d is %v, not a probability", ErrBadEstimate, v, x)
+		}
 	}
 	ks := st.NumValues(s)
 	if u < 0 || u >= ks {

@@ -76,7 +76,8 @@ func TestOneBridgeRoute(t *testing.T) {
 // ball of ProjectReference has radius ρ = √(E0' − Var(m̂_4)) + √Var(m̂_4),
 // E0' the direct estimate's error. A reference outside it moves onto its
 // sphere along the segment to m̂ (and stays a distribution); one inside
-// stays; a reference of the wrong length is an error; κ = 0 turns it off.
+// stays; a reference of the wrong length or with a value outside [0, 1],
+// or an observed value out of range, is an error; κ = 0 turns it off.
 // (The bound excess a chain outside the ball pays is checked on ASIA:
 // internal/eval TestCommonEffectBound.)
 func TestProjectReference(t *testing.T) {
@@ -122,6 +123,14 @@ func TestProjectReference(t *testing.T) {
 	}
 	if err := b.ProjectReference(nil, st, 1, u, 4, []float64{1}); !errors.Is(err, scorer.ErrBadStats) {
 		t.Errorf("reference of 1 value for a binary target: err %v, want ErrBadStats", err)
+	}
+	for _, bad := range [][]float64{{math.NaN(), 0.5}, {-0.1, 1.1}} {
+		if err := b.ProjectReference(nil, st, 1, u, 4, bad); !errors.Is(err, scorer.ErrBadEstimate) {
+			t.Errorf("reference %v: err %v, want ErrBadEstimate", bad, err)
+		}
+	}
+	if err := b.ProjectReference(nil, st, 1, 7, 4, slices.Clone(far)); !errors.Is(err, scorer.ErrValueRange) {
+		t.Errorf("observed value 7 of a binary entity: err %v, want ErrValueRange", err)
 	}
 	// κ = 0 turns the bound, and so the projection, off.
 	off, err := scorer.NewBayes(scorer.WithInfluence(0))
