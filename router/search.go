@@ -52,7 +52,10 @@ import (
 //
 // where ref is the direct estimate when the pair has support > 0, else the
 // estimate of the proxy-cheapest generated chain (smallest cost, then fewer
-// bridges, then smaller ids), whose own bias term is 0. It picks the largest
+// bridges, then smaller ids), whose own bias term is 0, projected by the
+// model onto the ball its bound allows (scorer.ReferenceProjector): a
+// reference the bound shows to be biased would charge the chains that
+// disagree with it. It picks the largest
 // score: the gain E_direct − Err_c, or λ·gain − c_hop·m. Candidates are
 // scored shortest first, and one whose bound (Err_c ≥ β·m_c, so score ≤
 // bound(m)) cannot beat the best so far is skipped. When ref is the direct
@@ -250,9 +253,11 @@ type scratch struct {
 	ddist        []float64 // direct Dist copy
 	// ref is the reference estimate of the bias term (ddist, or incDist of
 	// the reference chain); nil until known. refVar is its variance part
-	// (scorer.Estimate.Var), for the gain margin (chainScore).
-	ref    []float64
-	refVar float64
+	// (scorer.Estimate.Var), for the gain margin (chainScore). refBuf
+	// holds a reference chain's estimate projected by the model
+	// (scorer.ReferenceProjector).
+	ref, refBuf []float64
+	refVar      float64
 
 	// incumbent: a chain scored exactly during generation
 	inc struct {
@@ -1589,6 +1594,16 @@ func (sc *scratch) scoreIncumbent(c cand) bool {
 	sc.incDist = append(sc.incDist[:0], est.Dist...)
 	if sc.ref == nil {
 		sc.ref, sc.refVar = sc.incDist, est.Var
+		if rp, ok := sc.model.(scorer.ReferenceProjector); ok {
+			// The reference chain's estimate, moved to the nearest point the
+			// model's bound allows; the incumbent keeps its own estimate.
+			sc.refBuf = append(sc.refBuf[:0], sc.incDist...)
+			if err := rp.ProjectReference(sc.ws, sc, sc.s, sc.u, sc.t, sc.refBuf); err != nil {
+				sc.err = err
+				return false
+			}
+			sc.ref = sc.refBuf
+		}
 	}
 	return true
 }

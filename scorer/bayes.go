@@ -89,9 +89,9 @@ import (
 // M_k·[R_k | R_k∘R_k] = [R_(k−1) | M_k(R_k∘R_k)] with one matrix product per
 // edge, so no covariance matrix is formed. Then
 //
-//	Err_chain = Σ_v Var(p̂_v) + β·m + γ·(δ − L)₊² + λ·S,   L = Π_k ℓ_k,
+//	Err_chain = Σ_v Var(p̂_v) + β·m + γ·(δ − L)₊² + max(λ·S, E),   L = Π_k ℓ_k,
 //
-// S the separation bias (below),
+// S the separation bias and E the bound excess (below),
 // where ℓ_k = max(0, V̂_k − z/√n_k) is edge k's association lower bound
 // (SignalBound; EdgeCost = −log ℓ_k, so L = exp(−Σ_k EdgeCost)). The last
 // term is the missing-signal bias: a chain whose signal cannot be told from
@@ -160,15 +160,39 @@ import (
 // through a more moved w1 observed with t does not reject keeps, in B_t,
 // only the part of its term the test could not see (w1's term over the
 // table (w1, t) covers the rest; see explains). A chain's
-// missing-signal term is scaled by the same ratio E0'/E0 (the dependence it can miss is the target's distance
-// from its marginal); a one-bridge chain s → w → t, which computes the
-// route through w exactly, by min(E0, κ·2·(B_t − TV_w(d_t))² + Var(m̂_t),
-// R + Var(m̂_t))/E0 when w is observed with t (the routes it does not take;
-// the terms are kept in the workspace with the ratio). Cost at most 2·InfluenceFirst + InfluenceRefine·(1 +
+// missing-signal term is scaled by D/E0, D = min(E0, κ·2·B², R) the bound
+// on the target's squared distance from its marginal (the dependence a
+// chain can miss), without the marginal's own variance Var(m̂_t): that is
+// the error of answering m̂_t, which a chain does not answer with (it has
+// its own variance term); a one-bridge chain s → w → t, which computes the
+// route through w exactly, by min(E0, κ·2·(B_t − TV_w(d_t))², R)/E0 when w
+// is observed with t (the routes it does not take; the terms are kept in
+// the workspace with the ratio). Cost at most 2·InfluenceFirst + InfluenceRefine·(1 +
 // InfluenceSecond) pair look-ups per unobserved-pair direct estimate, plus
 // 2·ColliderTests for the tests and two per route tested against a common
 // effect;
 // docs/QUALITY.md has the derivation and the measurements.
+//
+// # Bound excess
+//
+// Where the influence or range bound applies (κ > 0, marginals), the
+// conditional P(t | s = u) lies within √D_b of the target's marginal, D_b =
+// min(κ·2·B², R) (the bounds only, not the prior's E0; the influence bound
+// only when not cut short at E0), and m̂_t within about √Var(m̂_t) of the
+// marginal. A chain estimate p̂ farther from m̂_t than ρ = √D_b +
+// √Var(m̂_t) is biased by at least the excess (triangle inequality):
+//
+//	E = (‖p̂ − m̂_t‖ − ρ)₊².
+//
+// This sees a chain through a common effect whose causes were never
+// observed together, which no table of the chain's own hops shows and the
+// separation check cannot test (no table of the bridge's two neighbours).
+// E and the separation bias λ·S are two estimates of the same squared bias,
+// so the chain pays max(λ·S, E) (with the separation bias deferred,
+// PendingBias adds the part of λ·S above E). ProjectReference moves a
+// reference estimate onto the same ball (the router measures other chains
+// against it: see ReferenceProjector). Derived, no constant; O(K_t) after
+// the influence bound of the query's direct estimate.
 //
 // # Range bound
 //
@@ -180,7 +204,7 @@ import (
 //	Σ_v (p_v − m_v)² ≤ R = min(Σ_v max(U_v, D_v)², 2·min(Σ_v U_v, Σ_v D_v)²).
 //
 // E0 (after the influence bound) becomes min(E0, R + Var(m̂_t)), for every
-// pair, so the missing-signal term's ratio E0'/E0 carries it too. A target
+// pair, and the missing-signal term's ratio D/E0 carries R too. A target
 // value of small marginal cannot move far unless the observed value is rare
 // (P(asia = yes | smoke = yes) in ASIA is within 0.01 of P(asia = yes) =
 // 0.01, since P(smoke = yes) = 0.5). Derived, no constant; m̂ and P_u are the
@@ -365,16 +389,16 @@ func (b *Bayes) Direct(ws *Workspace, st Stats, s graphidx.EntityID, u int, t gr
 	}
 	e := max(0, (1-sq)/(d+1))
 	var rt routeTerms
-	e0Prior, e0, ok, err := b.unseenErrs(st, s, u, t, kt, sup, &rt)
+	e0Prior, e0, dep, bnd, ok, err := b.unseenErrs(st, s, u, t, kt, sup, &rt)
 	if err != nil {
 		return Estimate{}, err
 	}
 	if ok {
 		r := 1.0
 		if e0Prior > 0 {
-			r = e0 / e0Prior
+			r = dep / e0Prior
 		}
-		ws.remember(st, s, u, t, r, &rt)
+		ws.remember(st, s, u, t, r, bnd, &rt)
 		// Shrinkage MSE: θ̂ = λ·N/n + (1 − λ)·a/a₀ with λ = n/(n + a₀).
 		nf := float64(n)
 		lam := nf / d
@@ -411,8 +435,8 @@ func (b *Bayes) unseenErr(st Stats, s graphidx.EntityID, u, kt int) (float64, bo
 }
 
 // Chain returns p̂ = e_uᵀ M_1…M_(m+1) and Err = Σ_v Var(p̂_v) + β·m +
-// γ·(δ − L)₊² + λ·S (the missing-signal and separation biases; see the type
-// documentation), the
+// γ·(δ − L)₊² + max(λ·S, E) (the missing-signal and separation biases and
+// the bound excess; see the type documentation), the
 // variance by the delta method or, with WithVariance(ExactMoments), exactly
 // (see the type documentation and Variance). For m = 0 it is Direct (the
 // empirical-Bayes prior included). Support is the smallest
@@ -479,6 +503,10 @@ func (b *Bayes) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridg
 		ws.mul(ws.x[ws.xoff[k-1]:], kc, ws.x[ws.xoff[k-2]:], kp, ws.theta[ws.toff[k-1]:], kc, 1, kp, kc)
 	}
 	ws.sepPending = false
+	// sep is the separation bias λ·S; it and the bound excess are two
+	// estimates of the same invented dependence, so the chain pays the
+	// larger (sepOrExcess), not both.
+	sep := 0.0
 	if b.separation > 0 {
 		if ws.deferSep {
 			ws.sepPending, ws.sepU, ws.sepM = true, u, m
@@ -487,13 +515,17 @@ func (b *Bayes) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridg
 			if err != nil {
 				return Estimate{}, err
 			}
-			bias += b.separation * sb
+			sep = b.separation * sb
 		}
 	}
 	if b.variance == ExactMoments {
 		ws.exactMoments(u, m, dist, vr)
+		ex, err := b.sepOrExcess(ws, st, s, u, t, kt, dist, sep)
+		if err != nil {
+			return Estimate{}, err
+		}
 		v := sumClamped(vr)
-		return Estimate{Dist: dist, Err: v + bias, Var: v, Support: minSup}, nil
+		return Estimate{Dist: dist, Err: v + bias + ex, Var: v, Support: minSup}, nil
 	}
 
 	// Backward pass. P holds [R_(k−1) | M_k(R_k∘R_k)] with stride 2K_t and
@@ -557,12 +589,18 @@ func (b *Bayes) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridg
 		cur, nxt = nxt, cur
 	}
 	copy(dist, cur[:kt]) // row u of R_0 = M_1 R_1 is p̂
+	ex, err := b.sepOrExcess(ws, st, s, u, t, kt, dist, sep)
+	if err != nil {
+		return Estimate{}, err
+	}
 	v := sumClamped(vr)
-	return Estimate{Dist: dist, Err: v + bias, Var: v, Support: minSup}, nil
+	return Estimate{Dist: dist, Err: v + bias + ex, Var: v, Support: minSup}, nil
 }
 
-// PendingBias returns the separation bias λ·S that the last Chain call
-// with ws left out under Workspace.DeferSeparation (0 when none is pending:
+// PendingBias returns the separation bias that the last Chain call with
+// ws left out under Workspace.DeferSeparation, max(0, λ·S − E) beyond the
+// bound excess E that call charged (so the chain pays max(λ·S, E) in all;
+// 0 when none is pending:
 // the check is off, the chain had no bridges, or it was already returned),
 // and clears it. It reads the path, edges and forward vectors that call
 // loaded, so it must come before any other call with ws and with the same
@@ -576,7 +614,25 @@ func (b *Bayes) PendingBias(ws *Workspace, st Stats) (float64, error) {
 	if err != nil {
 		return 0, err
 	}
-	return b.separation * sb, nil
+	// The chain paid its bound excess already; the two estimate the same
+	// bias, so only the part of λ·S above it is added (see sepOrExcess).
+	return max(0, b.separation*sb-ws.sepEx), nil
+}
+
+// sepOrExcess returns max(sep, E), E the bound excess of the chain's
+// estimate dist (boundExcess): the separation bias λ·S and E are two lower
+// estimates of the one squared bias a chain that does not screen its
+// endpoints off carries (the dependence it invents), so the chain is
+// charged the larger, not their sum. With the separation bias deferred
+// (Workspace.DeferSeparation) sep is 0 here and E is kept in ws, so that
+// PendingBias adds only max(0, λ·S − E). Cost that of boundExcess.
+func (b *Bayes) sepOrExcess(ws *Workspace, st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, kt int, dist []float64, sep float64) (float64, error) {
+	ex, err := b.boundExcess(ws, st, s, u, t, kt, dist)
+	if err != nil {
+		return 0, err
+	}
+	ws.sepEx = ex
+	return max(sep, ex), nil
 }
 
 // mulSmall is the widest product row (n) that mul computes with matMul;

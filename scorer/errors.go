@@ -31,6 +31,7 @@ var (
 	ErrNoEstimates = errors.New("scorer: no estimates to combine")
 
 	// ErrBadEstimate reports an estimate Combine cannot use: a NaN or
-	// negative Err, or a Dist whose length differs from the others.
+	// negative Err, or a Dist whose length differs from the others; and a
+	// reference estimate with a value outside [0, 1] (ProjectReference).
 	ErrBadEstimate = errors.New("scorer: bad estimate")
 )

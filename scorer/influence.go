@@ -1,6 +1,7 @@
 package scorer
 
 import (
+	"fmt"
 	"math"
 	"reflect"
 
@@ -270,25 +271,25 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 // routeTerms records, for one query (s = u, t) whose pair was never
 // observed together, the terms of B_t that the influence bound summed: for
 // each neighbour w of s observed with t, its route's term TV(d_t) (after the
-// common-effect and mediation tests), with E0's prior, Var(m̂_t) and the
-// range cap R + Var(m̂_t) (+Inf without). withoutRoute uses them to bound
+// common-effect and mediation tests), with E0's prior and the range bound
+// R (+Inf without). withoutRoute uses them to bound
 // what a one-bridge chain through w can miss (see Bayes, "Influence
 // bound"). ok is false when B_t was not computed in full.
 type routeTerms struct {
-	ok                bool
-	n                 int
-	id                [InfluenceFirst]graphidx.EntityID
-	term              [InfluenceFirst]float64
-	seen              [InfluenceFirst]bool
-	sum               float64
-	prior, floor, cap float64
+	ok         bool
+	n          int
+	id         [InfluenceFirst]graphidx.EntityID
+	term       [InfluenceFirst]float64
+	seen       [InfluenceFirst]bool
+	sum        float64
+	prior, rng float64
 }
 
-// withoutRoute returns the ratio E0_w/E0_prior for a one-bridge chain
-// s → w → t, E0_w = min(E0_prior, κ·2·(B_t − TV_w(d_t))² + Var(m̂_t), R +
-// Var(m̂_t)): the chain computes the route through w exactly (its estimate's
-// distance from the marginal is that route's deviation), so the dependence
-// it can miss is the rest of B_t. ok is false when the terms are not
+// withoutRoute returns the ratio D_w/E0_prior for a one-bridge chain
+// s → w → t, D_w = min(E0_prior, κ·2·(B_t − TV_w(d_t))², R): the chain
+// computes the route through w exactly (its estimate's distance from the
+// marginal is that route's deviation), so the dependence it can miss is
+// the rest of B_t (0 when w is the only route). ok is false when the terms are not
 // recorded or w is not among the neighbours observed with t. O(InfluenceFirst).
 func (rt *routeTerms) withoutRoute(w graphidx.EntityID, kappa float64) (float64, bool) {
 	if !rt.ok || !(rt.prior > 0) {
@@ -299,7 +300,7 @@ func (rt *routeTerms) withoutRoute(w graphidx.EntityID, kappa float64) (float64,
 			continue
 		}
 		rest := max(0, rt.sum-rt.term[i])
-		return min(rt.prior, kappa*2*rest*rest+rt.floor, rt.cap) / rt.prior, true
+		return min(rt.prior, kappa*2*rest*rest, rt.rng) / rt.prior, true
 	}
 	return 0, false
 }
@@ -309,38 +310,51 @@ func (rt *routeTerms) withoutRoute(w graphidx.EntityID, kappa float64) (float64,
 // sup = 0 and the bound applies (marginalVar), else E0 again (see Bayes, "Influence bound"),
 // then capped by the range bound, min(·, R + Var(m̂_t)) (rangeBound; for
 // every pair: E0 is the prior's distance from the marginal whatever the
-// support). ok is false without marginals. Cost that of influenceBound when
+// support). dep is the same without Var(m̂_t), min(E0, κ·2·B², R): the
+// bound on the target's squared distance from its marginal, the dependence
+// a chain's missing-signal term scales with. bnd is the part of it that is
+// a bound and not the prior's expectation, min(κ·2·B², R) (+Inf when
+// neither applies, or when the influence bound was cut short at E0): the
+// bound excess of a chain (Bayes.boundExcess) is measured against it. ok is
+// false without marginals. Cost that of influenceBound when
 // sup = 0, plus O(K_s + K_t).
 //
 // rt, when not nil, receives the route terms of B_t (routeTerms).
-func (b *Bayes) unseenErrs(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, kt int, sup uint64, rt *routeTerms) (prior, e0 float64, ok bool, err error) {
+func (b *Bayes) unseenErrs(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, kt int, sup uint64, rt *routeTerms) (prior, e0, dep, bnd float64, ok bool, err error) {
 	if rt != nil {
 		rt.ok = false
 	}
 	prior, ok = b.unseenErr(st, s, u, kt)
 	if !ok {
-		return 0, 0, false, nil
+		return 0, 0, 0, 0, false, nil
 	}
-	e0 = prior
+	e0, dep, bnd = prior, prior, math.Inf(1)
 	if sup == 0 && b.influence > 0 && prior > 0 {
 		bb, ok, err := b.influenceBound(st, s, u, t, prior/b.influence, rt)
 		if err != nil {
-			return 0, 0, false, err
+			return 0, 0, 0, 0, false, err
 		}
 		if ok {
 			// The marginal's own error adds its posterior variance.
+			dep = min(prior, b.influence*2*bb)
 			e0 = min(prior, b.influence*2*bb+b.marginalVar(st, t, kt))
+			if b.influence*2*bb < prior {
+				// Not cut short (influenceBound stops at prior/κ).
+				bnd = b.influence * 2 * bb
+			}
 		}
 	}
-	capped := math.Inf(1)
+	rng := math.Inf(1)
 	if rb, ok := b.rangeBound(st, s, u, t, kt); ok {
-		capped = rb + b.marginalVar(st, t, kt)
-		e0 = min(e0, capped)
+		rng = rb
+		dep = min(dep, rb)
+		bnd = min(bnd, rb)
+		e0 = min(e0, rb+b.marginalVar(st, t, kt))
 	}
 	if rt != nil && rt.ok {
-		rt.prior, rt.floor, rt.cap = prior, b.marginalVar(st, t, kt), capped
+		rt.prior, rt.rng = prior, rng
 	}
-	return prior, e0, true, nil
+	return prior, e0, dep, bnd, true, nil
 }
 
 // marginalVar returns (1 − Σ_v m̂_v²)/(N + K_t α + 1), the posterior
@@ -369,22 +383,24 @@ func (b *Bayes) marginalVar(st Stats, t graphidx.EntityID, kt int) float64 {
 	return max(0, 1-sq) / (tot + 1)
 }
 
-// remember records r = E0/E0_prior of the query (s = u, t) over st in ws,
+// remember records r = D/E0_prior (unseenErrs' dep over its prior) and the
+// bound bnd (unseenErrs) of the query (s = u, t) over st in ws,
 // for the Chain calls that follow (unseenRatio). ws may be nil. O(1).
 // rt (may be nil: none recorded) is kept with it for Chain's one-bridge
 // chains (routeTerms.withoutRoute).
-func (ws *Workspace) remember(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, r float64, rt *routeTerms) {
+func (ws *Workspace) remember(st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, r, bnd float64, rt *routeTerms) {
 	if ws == nil {
 		return
 	}
 	ws.inflOK, ws.inflSt, ws.inflS, ws.inflU, ws.inflT, ws.inflRatio = true, st, s, u, t, r
+	ws.inflBnd = bnd
 	ws.inflTerms.ok = false
 	if rt != nil {
 		ws.inflTerms = *rt
 	}
 }
 
-// unseenRatio returns r = E0/E0_prior ∈ [0, 1] for the query (s = u, t):
+// unseenRatio returns r = D/E0_prior ∈ [0, 1] for the query (s = u, t):
 // the factor by which the influence bound shrinks the missing-signal bias
 // of a chain (see Bayes, "Influence bound"); 1 when the pair was observed
 // together, without marginals or with the bound off. It reuses the value
@@ -409,14 +425,17 @@ func (b *Bayes) unseenRatio(ws *Workspace, st Stats, s graphidx.EntityID, u int,
 	}
 	r := 1.0
 	var rt routeTerms
-	prior, e0, ok, err := b.unseenErrs(st, s, u, t, kt, sup, &rt)
+	prior, _, dep, bnd, ok, err := b.unseenErrs(st, s, u, t, kt, sup, &rt)
 	if err != nil {
 		return 0, err
 	}
 	if ok && prior > 0 {
-		r = e0 / prior
+		r = dep / prior
 	}
-	ws.remember(st, s, u, t, r, &rt)
+	if !ok {
+		bnd = math.Inf(1)
+	}
+	ws.remember(st, s, u, t, r, bnd, &rt)
 	return r, nil
 }
 
@@ -469,4 +488,127 @@ func (b *Bayes) twoHop(st Stats, w graphidx.EntityID, kw int, z graphidx.EntityI
 // (see Bayes, "Influence bound").
 type NeighborLister interface {
 	Neighbors(id graphidx.EntityID) []graphidx.EntityID
+}
+
+// boundBall returns the centre m̂_t (the target's smoothed marginal, in
+// out) and the radius ρ = √bnd + √Var(m̂_t) of the ball in which the
+// conditional P(t | s = u) must lie by the bound bnd on ‖P(t | s = u) −
+// P(t)‖² (min(κ·2·B², R), unseenErrs): ‖p − m‖ ≤ √bnd, with ‖m − m̂‖ at its
+// root mean square √Var(m̂_t) (marginalVar). ok is false when the bound
+// does not apply (it needs the influence bound on, κ > 0, and marginals of
+// K_t entries). Cost that of unseenRatio (O(1) after Direct or Chain with
+// the same workspace and query) plus O(K_t).
+func (b *Bayes) boundBall(ws *Workspace, st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, kt int, out []float64) (rho float64, ok bool, err error) {
+	if b.influence == 0 || ws == nil {
+		return 0, false, nil
+	}
+	if _, err := b.unseenRatio(ws, st, s, u, t, kt); err != nil {
+		return 0, false, err
+	}
+	bnd := ws.inflBnd
+	if math.IsInf(bnd, 1) || !(bnd >= 0) {
+		return 0, false, nil
+	}
+	ms, ok := st.(Marginals)
+	if !ok {
+		return 0, false, nil
+	}
+	c := ms.Marginal(t)
+	if len(c) != kt || len(out) < kt {
+		return 0, false, nil
+	}
+	tot := float64(kt) * b.alpha
+	for _, x := range c {
+		tot += float64(x)
+	}
+	for v, x := range c {
+		out[v] = (float64(x) + b.alpha) / tot
+	}
+	return math.Sqrt(bnd) + math.Sqrt(b.marginalVar(st, t, kt)), true, nil
+}
+
+// boundExcess returns (‖p̂ − m̂_t‖ − ρ)₊², the squared bias a chain's
+// estimate p̂ of t given s = u must carry because it lies outside the ball
+// of radius ρ around the target's smoothed marginal m̂_t that the bound
+// allows (boundBall): by the triangle inequality ‖p̂ − p‖ ≥ ‖p̂ − m̂‖ −
+// ‖p − m̂‖. A chain through a common effect whose causes were never
+// observed together invents a dependence that the tables of its own hops
+// cannot show; the bound, read from the observed entity's neighbours, can.
+// 0 when the bound does not apply or the estimate lies within it. Cost as
+// boundBall.
+func (b *Bayes) boundExcess(ws *Workspace, st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, kt int, dist []float64) (float64, error) {
+	var m [graphidx.MaxValues]float64
+	rho, ok, err := b.boundBall(ws, st, s, u, t, kt, m[:])
+	if err != nil || !ok || len(dist) != kt {
+		return 0, err
+	}
+	d2 := 0.0
+	for v := range kt {
+		d := dist[v] - m[v]
+		d2 += d * d
+	}
+	ex := math.Sqrt(d2) - rho
+	if ex <= 0 {
+		return 0, nil
+	}
+	return ex * ex, nil
+}
+
+// ProjectReference implements ReferenceProjector: it moves ref, an estimate
+// of t given s = u, onto the ball of radius ρ around m̂_t that the bound
+// allows (boundBall), ref ← m̂ + (ref − m̂)·min(1, ρ/‖ref − m̂‖). The ball is
+// convex and holds the truth, so the projection is never farther from the
+// truth than ref (projection onto a closed convex set is non-expansive,
+// common fact), and it stays on the probability simplex (a point of the
+// segment from m̂ to ref). A reference within the ball, or a query without
+// the bound, is left as it is. ws should hold the query's last Chain or
+// Direct call (else the bound is recomputed); call it after PendingBias of
+// that Chain (it resets the path's first cardinality). A reference value
+// outside [0, 1] (NaN included) is ErrBadEstimate. ErrBadStats for a reference
+// of the wrong length. Cost as boundBall plus O(K_t).
+func (b *Bayes) ProjectReference(ws *Workspace, st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, ref []float64) error {
+	if st == nil {
+		return fmt.Errorf("%w: nil Stats", ErrBadStats)
+	}
+	kt := st.NumValues(t)
+	if len(ref) != kt || kt < 1 || kt > graphidx.MaxValues {
+		return fmt.Errorf("%w: reference of %d values for entity %d, which has %d", ErrBadStats, len(ref), t, kt)
+	}
+	for v, x := range ref {
+		if !(x >= 0 && x <= 1) {
+			return fmt.Errorf("%w: reference value %d is %v, not a probability", ErrBadEstimate, v, x)
+		}
+	}
+	ks := st.NumValues(s)
+	if u < 0 || u >= ks {
+		return fmt.Errorf("%w: value %d of entity %d, which has %d values", ErrValueRange, u, s, ks)
+	}
+	if ws == nil {
+		ws = new(Workspace)
+	}
+	// unseenRatio reads K_s from the loaded path when it must recompute.
+	if len(ws.ks) == 0 {
+		ws.ks = append(ws.ks, ks)
+	} else {
+		ws.ks[0] = ks
+	}
+	var m [graphidx.MaxValues]float64
+	rho, ok, err := b.boundBall(ws, st, s, u, t, kt, m[:])
+	if err != nil || !ok {
+		return err
+	}
+	d2 := 0.0
+	for v := range kt {
+		d := ref[v] - m[v]
+		d2 += d * d
+	}
+	d := math.Sqrt(d2)
+	if d <= rho {
+		return nil
+	}
+	f := rho / d
+	for v := range kt {
+		ref[v] = m[v] + (ref[v]-m[v])*f
+	}
+	return nil
 }

@@ -63,7 +63,8 @@ func pathWorld() *localStats {
 // (s, t) never observed together, the error of the direct estimate of t
 // given s = u is min(E0, 2·B² + Var(m̂_t)), E0 the fitted prior error, B the
 // two-hop influence TV((π_w − m_w)ᵀ Θ_(w→z)) computed here by hand from the
-// tables (α = 1); a chain's missing-signal term shrinks by the same factor.
+// tables (α = 1); a chain's missing-signal term shrinks by 2·B²/E0 (the
+// dependence it can miss, without the marginal's variance).
 // The bound does not apply with κ = 0, to a pair observed together, or when
 // s has more neighbours than InfluenceFirst (the bound could not read them
 // all).
@@ -126,8 +127,10 @@ func TestInfluenceBound(t *testing.T) {
 	if terms[1] <= 0 {
 		t.Fatalf("test world: the weak chain pays no missing-signal term")
 	}
-	if r := terms[0] / terms[1]; !near(r, want/prior, 1e-9) {
-		t.Errorf("missing-signal term scaled by %.9g, want %.9g", r, want/prior)
+	// The dependence a chain can miss is 2·B², without the marginal's own
+	// variance (which the chain does not answer with).
+	if r := terms[0] / terms[1]; !near(r, 2*b*b/prior, 1e-9) {
+		t.Errorf("missing-signal term scaled by %.9g, want 2·B²/E0 = %.9g", r, 2*b*b/prior)
 	}
 	// A workspace reused across queries (as the router does) gives the
 	// same answers as a fresh one.

@@ -1,6 +1,10 @@
 package scorer
 
-import "math"
+import (
+	"math"
+
+	"github.com/hopwise/hopwise/graphidx"
+)
 
 // GainMarginer is an optional interface of a Model: a chain whose error
 // carries a bias estimated against a reference (ReferenceBias) may replace
@@ -9,6 +13,17 @@ import "math"
 // score (never from its reported gain). *Bayes implements it.
 type GainMarginer interface {
 	GainMargin(chainVar, refVar float64) float64
+}
+
+// ReferenceProjector is an optional interface of a Model whose answers
+// carry a bound on how far the truth lies from the target's marginal:
+// ProjectReference moves a reference chain's estimate ref of t given s = u
+// (in place) to the nearest point that the bound allows, before the router
+// measures other chains' bias against it (ReferenceBias). The router calls
+// it with the workspace and statistics of the query's last Chain call.
+// *Bayes implements it.
+type ReferenceProjector interface {
+	ProjectReference(ws *Workspace, st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, ref []float64) error
 }
 
 // PendingBiaser is an optional interface of a Model whose Chain can defer

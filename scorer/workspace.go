@@ -44,15 +44,20 @@ type Workspace struct {
 	// sepM bridges) that PendingBias computes from the loaded path.
 	deferSep, sepPending bool
 	sepU, sepM           int
+	// sepEx is the bound excess the last Chain call charged (sepOrExcess).
+	sepEx float64
 
 	// influence bound of the last query (Bayes.unseenRatio): the ratio
-	// E0/E0_prior for observed value inflU of inflS and target inflT over
+	// D/E0_prior for observed value inflU of inflS and target inflT over
 	// the Stats inflSt, valid when inflOK.
 	inflOK       bool
 	inflS, inflT graphidx.EntityID
 	inflU        int
 	inflSt       Stats
 	inflRatio    float64
+	// inflBnd is that query's bound on ‖P(t | s = u) − P(t)‖² (+Inf when
+	// none; Bayes.boundExcess).
+	inflBnd float64
 	// inflTerms are the route terms of B_t of that query (routeTerms).
 	inflTerms routeTerms
 

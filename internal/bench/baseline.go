@@ -142,7 +142,15 @@ func (sr *search) score(c *bcand) (float64, error) {
 			c.margin = gm.GainMargin(est.Var, sr.refVar)
 		}
 	} else {
-		sr.ref, sr.refVar = est.Dist, est.Var // the reference itself: bias 0, no margin
+		// The reference itself: bias 0, no margin; measured against as the
+		// model projects it (scorer.ReferenceProjector), as the router does.
+		ref := slices.Clone(est.Dist)
+		if rp, ok := sr.model.(scorer.ReferenceProjector); ok {
+			if err := rp.ProjectReference(sr.ws, sr.st, sr.sid, sr.u, sr.tid, ref); err != nil {
+				return 0, err
+			}
+		}
+		sr.ref, sr.refVar = ref, est.Var
 	}
 	return c.err, nil
 }

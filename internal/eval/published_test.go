@@ -20,16 +20,15 @@ const publishedContexts = 50000
 // sample (each run builds a real index in about 0.2 s).
 var publishedSeeds = []int64{1, 2, 3}
 
-// publishedMean runs net with every pair at skeleton distance ≥ minDist held
-// out (never observed together): the corpus is sampled as `hopwise eval`
-// samples it (local-geometric contexts), the index is built by the real
-// builder, and every held-out and supported pair is answered by the real
-// router, against exact answers by variable elimination. It returns the
-// reports of every seed and the mean of the held-out, supported and
-// calibration figures over seeds.
-func publishedMean(t *testing.T, net *world.World, minDist int, opts ...scorer.Option) (held, sup eval.Scores, rho float64) {
+// publishedMean runs net with the given pairs held out (never observed
+// together): the corpus is sampled as `hopwise eval` samples it
+// (local-geometric contexts), the index is built by the real builder, and
+// every held-out and supported pair is answered by the real router, against
+// exact answers by variable elimination. It returns the mean of the
+// held-out, supported and calibration figures over the seeds.
+func publishedMean(t *testing.T, net *world.World, heldOut [][2]int, opts ...scorer.Option) (held, sup eval.Scores, rho float64) {
 	t.Helper()
-	w, err := net.WithHeldOut(world.PublishedHeldOut(net, minDist))
+	w, err := net.WithHeldOut(heldOut)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -50,15 +49,40 @@ func publishedMean(t *testing.T, net *world.World, minDist int, opts ...scorer.O
 	return m.HeldOut, m.Supported, m.Calibration.Spearman
 }
 
+// publishedMinMI is the least mutual information (nats) of a held-out pair
+// in the second regime of TestPublishedNetworks, `hopwise eval`'s own choice
+// (world.PickHeldOut): dependent non-adjacent pairs only.
+const publishedMinMI = 0.001
+
+// A publishedRegime chooses the held-out pairs of a published network.
+type publishedRegime struct {
+	name string
+	pick func(*world.World) ([][2]int, error)
+}
+
+// publishedRegimes are the two held-out choices of TestPublishedNetworks:
+// every pair at skeleton distance ≥ 2 (independent pairs included, so no
+// table of the corpus shows two causes of a common effect together), and
+// `hopwise eval`'s own (world.PickHeldOut: every non-adjacent pair with
+// mutual information ≥ publishedMinMI; the other pairs, among them
+// independent causes of a common effect, are observed).
+var publishedRegimes = []publishedRegime{
+	{"distance ≥ 2", func(w *world.World) ([][2]int, error) { return world.PublishedHeldOut(w, 2), nil }},
+	{"MI ≥ 0.001", func(w *world.World) ([][2]int, error) {
+		return w.PickHeldOut(w.NumVars()*w.NumVars(), publishedMinMI, 1)
+	}},
+}
+
 // publishedNet is one published network of TestPublishedNetworks with the
-// bounds its routed answers must meet.
+// bounds its routed answers must meet, per regime (publishedRegimes).
 type publishedNet struct {
 	name  string
 	build func() (*world.World, error)
-	// chainTol is how far above the simple count chain the routed held-out
-	// MSE may be (1 = not above); minRho is the least Spearman ρ of
-	// predicted against realised error (a floor under today's value).
-	chainTol, minRho float64
+	// chainTol is how far above the better of the marginal and the simple
+	// count chain the routed held-out MSE may be (1 = not above); minRho
+	// is the least Spearman ρ of predicted against realised error (a floor
+	// under today's value). See publishedNets for each value's reason.
+	chainTol, minRho [2]float64
 }
 
 // publishedNets are the networks of TestPublishedNetworks, each typed from
@@ -72,69 +96,111 @@ type publishedNet struct {
 //   - Cancer, Korb & Nicholson (2004), "Bayesian Artificial Intelligence",
 //     §2.2: 5 binary variables, one common effect (world.Cancer;
 //     probabilities typed from memory).
+//   - Burglary, Russell & Norvig, AIMA 3rd ed. (2010), §14.2: 5 binary
+//     variables, one common effect of two rare causes (world.Burglary).
+//   - Sprinkler, AIMA 3rd ed. §14.5: 4 binary variables, one common effect
+//     with a deterministic zero (world.Sprinkler).
+//   - Student, Koller & Friedman (2009), "Probabilistic Graphical Models",
+//     Fig. 3.4: 5 variables, Grade with 3 values, one common effect
+//     (world.Student; probabilities typed from memory).
 //
 // None of them was used to fit a constant: the model is fitted on the
 // synthetic fit worlds (hopwise eval --fit), so these are held-out checks.
 //
-// Measured (3 seeds, 50 000 contexts; routed / marginal / count chain, ρ):
-// ASIA 0.01153 / 0.02862 / 0.01123, ρ 0.662; Survey 1.613e-5 / 2.464e-5 /
-// 1.885e-5, ρ 0.377; Cancer 3.461e-5 / 6.86e-5 / 2.424e-5, ρ 0.638. Before
-// the influence bound ρ was 0.403, 0.055 and 0.146; before the range bound
-// (Bayes' rule: a target value of small marginal cannot move far unless the
-// observed value is rare) ASIA's was 0.473, with the same routed answers;
-// before the one-bridge route terms (a chain s → w → t misses only the
-// routes of the influence bound not through w) Cancer's was 0.578. Survey's
-// floor is under what any predictor of the expected squared error reaches
-// there, and Cancer's at that level (TestPublishedOracle). The chain tolerances
-// are today's shortfalls, not targets: in ASIA the router and the count
-// chain take the same chains through the common effect "either" (tub →
-// either → lung), whose bias no table of a distance-2 corpus can show, and
-// the router's own choices differ on one query (lung → bronc); in Cancer
-// the gap (1.1e-5) is below the error of the marginal itself under local
-// sampling (up to 5e-4 per query), where near ties between the marginal
-// and the one-bridge chain through "cancer" fall either way.
+// Measured (3 seeds, 50 000 contexts; routed / marginal / count chain, ρ),
+// distance ≥ 2: ASIA 0.01123 / 0.02862 / 0.01123, ρ 0.665; Survey 1.633e-5
+// / 2.464e-5 / 1.885e-5, ρ 0.355; Cancer 2.528e-5 / 6.86e-5 / 2.424e-5,
+// ρ 0.613; Burglary 0.002229 / 0.04892 / 0.002229, ρ 0.837; Sprinkler
+// 0.002725 / 0.01496 / 0.01861, ρ 0.647; Student 0.002157 / 0.01784 /
+// 0.002157, ρ −0.040; mean 0.003063. MI ≥ 0.001: ASIA 0.002009 / 0.05707 /
+// 0.009198, ρ 0.663; Burglary 0.0004943 / 0.08943 / 0.0004939, ρ 0.885;
+// Sprinkler as above (its two dependent non-adjacent pairs are its only
+// ones); Student 2.967e-5 / 0.02624 / 2.967e-5, ρ 0.247; mean 0.001315;
+// Survey and Cancer have no pair that dependent. Before the bound excess
+// and the projected reference (scorer.ReferenceProjector) ASIA's routed
+// MSE was 0.01153 (1.027 × the count chain) at distance ≥ 2 and 0.002274
+// at MI ≥ 0.001: lung = yes → bronc went through the common effect dysp of
+// either and bronc (TestCommonEffectBound); before the missing-signal term
+// left out the marginal's variance Cancer's was 3.461e-5 (1.43 ×).
+//
+// Tolerances above 1 are where 3 corpora cannot tell near ties apart,
+// measured over 20 corpora (seeds 1–20, same regimes): Cancer routed
+// 3.061e-5 against the count chain's 3.099e-5 (on seeds 1–3 1.043 ×: the
+// three queries from pollution = low, where the marginal and the one-bridge
+// chain through "cancer" are both at the noise of the marginal itself and
+// the marginal wins over 20 corpora); Burglary equal to 4 digits in both
+// regimes (0.004474 and 0.001692; on seeds 1–3 1.00002 × and 1.00089 ×:
+// near ties from common values such as Burglary = false at realised errors
+// of 1e-7 to 1e-6 per query); ASIA 0.0108 against 0.01081. Student's ρ at
+// distance ≥ 2 is that of chains through the common effect Grade
+// (Difficulty → Grade → Intelligence), whose causes were never observed
+// together: their realised errors (up to 0.017; the count chain takes them
+// too) cannot be predicted from pair tables that are all consistent with
+// Grade being a mediator, and Difficulty's only neighbour is Grade, so no
+// bound from its neighbours binds; the other queries' errors are at the
+// noise level. Survey's and Student's MI ≥ 0.001 floors are under what any
+// predictor of the expected error reaches when every realised error is
+// sampling noise (TestPublishedOracle).
 var publishedNets = []publishedNet{
-	{"asia", world.Asia, 1.1, 0.6},
-	{"survey", world.Survey, 1.0, 0.35},
-	{"cancer", world.Cancer, 1.6, 0.6},
+	{"asia", world.Asia, [2]float64{1, 1}, [2]float64{0.6, 0.6}},
+	{"survey", world.Survey, [2]float64{1, 1}, [2]float64{0.35, 0}},
+	{"cancer", world.Cancer, [2]float64{1.05, 1}, [2]float64{0.6, 0}},
+	{"burglary", world.Burglary, [2]float64{1.001, 1.002}, [2]float64{0.8, 0.85}},
+	{"sprinkler", world.Sprinkler, [2]float64{1, 1}, [2]float64{0.6, 0.6}},
+	{"student", world.Student, [2]float64{1, 1}, [2]float64{-0.1, 0.2}},
 }
 
-// TestPublishedNetworks checks routing on the published networks: every
-// non-adjacent pair (skeleton distance ≥ 2) is held out. Held-out pairs: the
-// routed answer must be no worse than the target's marginal and within the
-// network's tolerance of the simple count chain (fewest bridges, widest
-// support). Adjacent pairs: within 10 % of direct. Calibration: Spearman ρ at
-// least the network's floor. The mean routed MSE over the networks is
-// logged. Heavy (3 seeds per network): skipped under -short.
+// TestPublishedNetworks checks routing on the published networks in both
+// held-out regimes (publishedRegimes). Held-out pairs: the routed answer
+// must be no worse than the target's marginal and within the network's
+// tolerance of the better of the marginal and the simple count chain
+// (fewest bridges, widest support). Adjacent pairs: within 10 % of direct.
+// Calibration: Spearman ρ at least the network's floor. The
+// mean routed MSE over the networks is logged per regime. Heavy (3 seeds
+// per network and regime): skipped under -short.
 func TestPublishedNetworks(t *testing.T) {
 	if testing.Short() {
-		t.Skip("builds 9 indexes of 50 000 contexts")
+		t.Skip("builds 3 indexes of 50 000 contexts per network and regime")
 	}
 	t.Parallel()
-	mean := 0.0
-	for _, n := range publishedNets {
-		net, err := n.build()
-		if err != nil {
-			t.Fatal(err)
+	for ri, rg := range publishedRegimes {
+		mean, nets := 0.0, 0
+		for _, n := range publishedNets {
+			net, err := n.build()
+			if err != nil {
+				t.Fatal(err)
+			}
+			pairs, err := rg.pick(net)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if len(pairs) == 0 {
+				t.Logf("%s, %s: no pair qualifies", n.name, rg.name)
+				continue
+			}
+			held, sup, rho := publishedMean(t, net, pairs)
+			mean += held.Routed
+			nets++
+			best := min(held.Marginal, held.CountChain)
+			t.Logf("%s, %s (%d pairs): routed %.4g, marginal %.4g, count chain %.4g (routed/best %.5f); supported routed %.4g, direct %.4g; ρ %.3f",
+				n.name, rg.name, len(pairs), held.Routed, held.Marginal, held.CountChain, held.Routed/best, sup.Routed, sup.Direct, rho)
+			if held.Routed > held.Marginal {
+				t.Errorf("%s, %s: routed MSE %.4g above the marginal's %.4g", n.name, rg.name, held.Routed, held.Marginal)
+			}
+			// 1e-9: the router's and the count chain's estimates of the same
+			// chain are computed by different code paths (last-bit rounding).
+			if held.Routed > n.chainTol[ri]*best*(1+1e-9) {
+				t.Errorf("%s, %s: routed MSE %.4g above %g × the better of marginal and count chain, %.4g", n.name, rg.name, held.Routed, n.chainTol[ri], best)
+			}
+			if sup.Routed > 1.1*sup.Direct {
+				t.Errorf("%s, %s: adjacent pairs: routed MSE %.4g above 1.1 × direct %.4g", n.name, rg.name, sup.Routed, sup.Direct)
+			}
+			if rho < n.minRho[ri] {
+				t.Errorf("%s, %s: Spearman ρ %.3f of predicted against realised error, want ≥ %.2f", n.name, rg.name, rho, n.minRho[ri])
+			}
 		}
-		held, sup, rho := publishedMean(t, net, 2)
-		mean += held.Routed / float64(len(publishedNets))
-		t.Logf("%s, distance ≥ 2: routed %.4g, marginal %.4g, count chain %.4g; supported routed %.4g, direct %.4g; ρ %.3f",
-			n.name, held.Routed, held.Marginal, held.CountChain, sup.Routed, sup.Direct, rho)
-		if held.Routed > held.Marginal {
-			t.Errorf("%s: non-adjacent pairs: routed MSE %.4g above the marginal's %.4g", n.name, held.Routed, held.Marginal)
-		}
-		if held.Routed > n.chainTol*held.CountChain {
-			t.Errorf("%s: non-adjacent pairs: routed MSE %.4g above %g × the count chain's %.4g", n.name, held.Routed, n.chainTol, held.CountChain)
-		}
-		if sup.Routed > 1.1*sup.Direct {
-			t.Errorf("%s: adjacent pairs: routed MSE %.4g above 1.1 × direct %.4g", n.name, sup.Routed, sup.Direct)
-		}
-		if rho < n.minRho {
-			t.Errorf("%s: Spearman ρ %.3f of predicted against realised error, want ≥ %.2f", n.name, rho, n.minRho)
-		}
+		t.Logf("%s: mean routed held-out MSE over %d networks: %.4g", rg.name, nets, mean/float64(nets))
 	}
-	t.Logf("mean routed held-out MSE over %d networks: %.4g", len(publishedNets), mean)
 }
 
 // TestPublishedAsiaFar checks the far pairs of ASIA (skeleton distance ≥ 3,
@@ -149,8 +215,9 @@ func TestPublishedNetworks(t *testing.T) {
 // passing tub's change of either on to lung's side. Measured (3 seeds):
 // routed 0.00267 before that test (0.00546 without the separation check),
 // 0.000318 with it (0.00546 without the check; 0.000315 before the
-// one-bridge route terms); marginal 0.00123. See
-// docs/QUALITY.md. Heavy: skipped under -short.
+// one-bridge route terms), 0.000280 with the bound excess (0.000752
+// without the check: the bound excess catches most of what it catches);
+// marginal 0.00123. See docs/QUALITY.md. Heavy: skipped under -short.
 func TestPublishedAsiaFar(t *testing.T) {
 	if testing.Short() {
 		t.Skip("builds 6 indexes of 50 000 contexts")
@@ -160,8 +227,8 @@ func TestPublishedAsiaFar(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	far, _, _ := publishedMean(t, asia, 3)
-	off, _, _ := publishedMean(t, asia, 3, scorer.WithSeparation(0))
+	far, _, _ := publishedMean(t, asia, world.PublishedHeldOut(asia, 3))
+	off, _, _ := publishedMean(t, asia, world.PublishedHeldOut(asia, 3), scorer.WithSeparation(0))
 	t.Logf("distance ≥ 3: routed %.4g (without the separation check %.4g), marginal %.4g", far.Routed, off.Routed, far.Marginal)
 	if far.Routed > far.Marginal {
 		t.Errorf("far pairs: routed MSE %.4g above the marginal's %.4g", far.Routed, far.Marginal)
@@ -177,7 +244,9 @@ func TestPublishedAsiaFar(t *testing.T) {
 // answers about 0.84 (explaining away: given either, tub and lung are
 // dependent). The bias must be in the chain's error: with the separation
 // check the predicted error must reach 75 % of the realised squared error,
-// and without it it stays below 25 % (the failure the check fixes). A chain
+// and without it and the influence bound (whose bound excess also sees
+// this chain: 0.173 of its 0.387) it stays below 25 % (the failure the
+// check fixes). A chain
 // whose bridges do separate (smoke → lung → either → xray) must be charged
 // less than 1 % of the invalid chain's charge.
 func TestExplainingAwayChain(t *testing.T) {
@@ -254,8 +323,19 @@ func TestExplainingAwayChain(t *testing.T) {
 	if cOn.Err < 0.75*realised {
 		t.Errorf("with the separation check the invalid chain's error %.4g is below 75%% of its realised squared error %.4g", cOn.Err, realised)
 	}
-	if cOff.Err >= 0.25*realised {
-		t.Errorf("without the check the invalid chain's error %.4g should be below 25%% of the realised %.4g (else this test shows nothing)", cOff.Err, realised)
+	// Without the check the bias can still show through the bound excess
+	// (the chain lies outside the influence bound's ball around the
+	// marginal); with neither, the chain's error misses it.
+	bare, err := scorer.NewBayes(scorer.WithSeparation(0), scorer.WithInfluence(0))
+	if err != nil {
+		t.Fatal(err)
+	}
+	cBare, err := bare.Chain(nil, ix, tub, yes, bad, smoke)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if cBare.Err >= 0.25*realised {
+		t.Errorf("without the check and the bound the invalid chain's error %.4g should be below 25%% of the realised %.4g (else this test shows nothing)", cBare.Err, realised)
 	}
 	good := []graphidx.EntityID{lung, either}
 	gOn, err := on.Chain(nil, ix, smoke, yes, good, xray)
@@ -316,13 +396,19 @@ const oracleSeeds = 20
 // estimated without corpus i's own noise). It is logged beside the
 // model's ρ over the same corpora; the model's must not be above the
 // oracle's by more than 0.05 (else the oracle is too noisy to serve as the
-// reference). Measured with 20 corpora (seeds 1–20): ASIA model 0.602,
-// oracle 0.837; Survey 0.441 and 0.438; Cancer 0.635 and 0.638 (with 60
+// reference). Measured with 20 corpora (seeds 1–20): ASIA model 0.599,
+// oracle 0.826; Survey 0.435 and 0.440; Cancer 0.606 and 0.631 (before the
+// bound excess and the missing-signal ratio without Var(m̂): 0.602 and
+// 0.837, 0.441 and 0.438, 0.635 and 0.638; with 60
 // corpora: 0.601 / 0.826, 0.465 / 0.478, 0.583 / 0.606). On Survey and
 // Cancer the model ranks about as well as the expected error itself, and
 // a ρ floor of 0.6 is out of reach of any predictor of the expected error
 // on Survey (one that reads the corpus could in principle follow part of
-// its noise). Heavy (60 indexes): skipped under -short.
+// its noise). The later networks, measured once with this test run over
+// them (20 corpora, distance ≥ 2): Burglary model 0.889, oracle 0.909;
+// Sprinkler 0.476 and 0.533; Student −0.012 and 0.601
+// (chains through the common effect Grade whose causes were never observed
+// together: see publishedNets). Heavy (60 indexes): skipped under -short.
 func TestPublishedOracle(t *testing.T) {
 	if testing.Short() {
 		t.Skip("builds 60 indexes of 50 000 contexts")
@@ -332,7 +418,10 @@ func TestPublishedOracle(t *testing.T) {
 		set             string
 		from, to, value int
 	}
-	for _, n := range publishedNets {
+	// The first three networks, whose ρ floors the oracle explains; the
+	// others were measured once with this test over all six (see above),
+	// and are left out to keep it at 60 indexes.
+	for _, n := range publishedNets[:3] {
 		net, err := n.build()
 		if err != nil {
 			t.Fatal(err)
@@ -391,4 +480,92 @@ func TestPublishedOracle(t *testing.T) {
 			t.Errorf("%s: model ρ %.3f above the oracle's %.3f by more than 0.05", n.name, model, oracle)
 		}
 	}
+}
+
+// TestCommonEffectBound: in ASIA (Lauritzen & Spiegelhalter 1988) with
+// every pair at distance ≥ 2 held out, the best-signal chain for
+// P(bronc | lung = yes) is lung → either → dysp → bronc, through the common
+// effect dysp of either and bronc, which were never observed together, so
+// neither its hop tables nor the separation check can show its invented
+// dependence (it answers P(bronc = yes) ≈ 0.73; exact 0.57). The influence
+// bound read from lung's neighbours can: the estimate lies farther from
+// the marginal than the bound allows, and the excess is charged (bound
+// excess), and as the router's reference it is projected onto the bound's
+// ball, where it no longer charges the valid chain through smoke for
+// disagreeing with it. Before: the router answered through either and
+// dysp, realised squared error 0.049 on this corpus; now through smoke.
+func TestCommonEffectBound(t *testing.T) {
+	t.Parallel()
+	asia, r := publishedQueries(t, world.Asia)
+	lung, _ := asia.Index("lung")
+	bronc, _ := asia.Index("bronc")
+	found := false
+	for _, q := range r.Queries {
+		if q.From != lung || q.To != bronc || q.Value != 1 {
+			continue
+		}
+		found = true
+		got := q.SqErr(eval.EstRouted)
+		t.Logf("P(bronc | lung = yes): exact %.3f, routed %.3f through %d bridge(s), squared error %.3g (predicted %.3g)",
+			q.Truth[1], q.Est[eval.EstRouted][1], q.ChainBridges, got, q.RoutedErr)
+		if q.ChainBridges != 1 || got > 0.001 {
+			t.Errorf("P(bronc | lung = yes): routed through %d bridges with squared error %.3g, want the one-bridge chain through smoke (≤ 0.001)", q.ChainBridges, got)
+		}
+	}
+	if !found {
+		t.Fatal("query lung = yes → bronc not answered")
+	}
+}
+
+// TestSprinklerZeroEndToEnd: the sprinkler network (AIMA 3rd ed. §14.5) has
+// the deterministic zero P(WetGrass | ¬Sprinkler, ¬Rain) = 0. Its corpus
+// must build into an index whose every query (held-out pairs at distance
+// ≥ 2 and adjacent pairs, every value) the router answers with a
+// distribution (finite, in [0, 1], summing to 1) and a finite, non-negative
+// predicted error, and none is skipped.
+func TestSprinklerZeroEndToEnd(t *testing.T) {
+	t.Parallel()
+	_, r := publishedQueries(t, world.Sprinkler)
+	if r.HeldOut.Skipped+r.Supported.Skipped != 0 || len(r.Queries) != 2*2*(2+4) {
+		t.Fatalf("%d queries answered, %d + %d skipped; want 24 and none", len(r.Queries), r.HeldOut.Skipped, r.Supported.Skipped)
+	}
+	for _, q := range r.Queries {
+		for _, est := range eval.Estimators() {
+			p := q.Est[est]
+			sum := 0.0
+			for _, x := range p {
+				if !(x >= 0 && x <= 1) {
+					t.Fatalf("%s %d=%d → %d: %s estimate %v", q.Set, q.From, q.Value, q.To, est, p)
+				}
+				sum += x
+			}
+			if math.Abs(sum-1) > 1e-9 {
+				t.Errorf("%s %d=%d → %d: %s estimate %v sums to %v", q.Set, q.From, q.Value, q.To, est, p, sum)
+			}
+		}
+		if !(q.RoutedErr >= 0) || math.IsInf(q.RoutedErr, 0) {
+			t.Errorf("%s %d=%d → %d: predicted error %v", q.Set, q.From, q.Value, q.To, q.RoutedErr)
+		}
+	}
+}
+
+// publishedQueries builds the network, holds out every pair at skeleton
+// distance ≥ 2 and runs one corpus (seed 1) with every answered query kept.
+func publishedQueries(t *testing.T, build func() (*world.World, error)) (*world.World, eval.Report) {
+	t.Helper()
+	net, err := build()
+	if err != nil {
+		t.Fatal(err)
+	}
+	w, err := net.WithHeldOut(world.PublishedHeldOut(net, 2))
+	if err != nil {
+		t.Fatal(err)
+	}
+	r, err := eval.Run(context.Background(), eval.Config{
+		Condition: world.CondLocalGeometric, Seed: 1, Network: w, Contexts: publishedContexts, KeepQueries: true,
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return net, r
 }

@@ -8,7 +8,10 @@
 //
 //   - Generate draws a random sparse DAG with Beta(0.2, 0.2) CPT rows;
 //     New builds a world from explicit variables and CPTs; Greenhouse builds
-//     the invented greenhouse scenario of the demo.
+//     the invented greenhouse scenario of the demo; Asia, Survey, Cancer,
+//     Burglary, Sprinkler and Student are published networks typed in with
+//     their sources (external checks; PublishedHeldOut holds out every pair
+//     at a given skeleton distance).
 //   - Posterior, Joint, JointMarginal, MutualInformation and TrueConditional
 //     are exact, by variable elimination over the ancestral set of the query
 //     with a greedy min-fill order.

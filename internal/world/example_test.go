@@ -83,3 +83,21 @@ func ExampleGreenhouse() {
 	// zone-2/thermometer → zone-2/air-temp → zone-3/air-temp → zone-4/air-temp → zone-5/air-temp → zone-6/air-temp → zone-6/vent-a
 	// P(zone-6/vent-a=closed | zone-2/thermometer=reads-cool): exact 0.570, through the bridges 0.570
 }
+
+// ExampleBurglary answers the query of AIMA 3rd ed. §14.4.1 on the
+// burglary network: P(Burglary | JohnCalls = true, MaryCalls = true).
+func ExampleBurglary() {
+	w, err := world.Burglary()
+	if err != nil {
+		panic(err)
+	}
+	b, _ := w.Index("Burglary")
+	j, _ := w.Index("JohnCalls")
+	m, _ := w.Index("MaryCalls")
+	p, err := w.Posterior(b, map[int]int{j: 1, m: 1})
+	if err != nil {
+		panic(err)
+	}
+	fmt.Printf("P(Burglary | j, m) = <%.3f, %.3f>\n", p[1], p[0])
+	// Output: P(Burglary | j, m) = <0.284, 0.716>
+}

@@ -9,37 +9,22 @@ import (
 
 var tf = []string{"false", "true"}
 
-// burglary returns the AIMA 3rd ed. §14.2 / Fig. 14.2 burglary network.
+// burglary returns Burglary (AIMA 3rd ed. §14.2 / Fig. 14.2).
 // Variable order: B, E, A, J, M. Value 1 = true.
 func burglary(t testing.TB) *World {
 	t.Helper()
-	bern := func(p float64) []float64 { return []float64{1 - p, p} }
-	w, err := New([]Variable{
-		{Name: "burglary", Labels: tf, CPT: bern(0.001)},
-		{Name: "earthquake", Labels: tf, CPT: bern(0.002)},
-		// Parents (B, E); rows (¬b,¬e), (¬b,e), (b,¬e), (b,e).
-		{Name: "alarm", Labels: tf, Parents: []int{0, 1}, CPT: concat(bern(0.001), bern(0.29), bern(0.94), bern(0.95))},
-		{Name: "john-calls", Labels: tf, Parents: []int{2}, CPT: concat(bern(0.05), bern(0.90))},
-		{Name: "mary-calls", Labels: tf, Parents: []int{2}, CPT: concat(bern(0.01), bern(0.70))},
-	})
+	w, err := Burglary()
 	if err != nil {
 		t.Fatal(err)
 	}
 	return w
 }
 
-// sprinkler returns the AIMA 3rd ed. §14.5 / Fig. 14.12(a) network.
+// sprinkler returns Sprinkler (AIMA 3rd ed. §14.5 / Fig. 14.12(a)).
 // Variable order: Cloudy, Sprinkler, Rain, WetGrass.
 func sprinkler(t testing.TB) *World {
 	t.Helper()
-	bern := func(p float64) []float64 { return []float64{1 - p, p} }
-	w, err := New([]Variable{
-		{Name: "cloudy", Labels: tf, CPT: bern(0.5)},
-		{Name: "sprinkler", Labels: tf, Parents: []int{0}, CPT: concat(bern(0.5), bern(0.1))},
-		{Name: "rain", Labels: tf, Parents: []int{0}, CPT: concat(bern(0.2), bern(0.8))},
-		// Parents (S, R); rows (¬s,¬r), (¬s,r), (s,¬r), (s,r).
-		{Name: "wet-grass", Labels: tf, Parents: []int{1, 2}, CPT: concat(bern(0), bern(0.90), bern(0.90), bern(0.99))},
-	})
+	w, err := Sprinkler()
 	if err != nil {
 		t.Fatal(err)
 	}

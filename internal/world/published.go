@@ -27,15 +27,7 @@ import "fmt"
 // either, tub and lung are dependent), and dysp one of either and bronc.
 func Asia() (*World, error) {
 	yn := []string{"no", "yes"}
-	// pYes builds a binary CPT from P(yes | configuration) in configuration
-	// order (first parent most significant, "no" before "yes").
-	pYes := func(ps ...float64) []float64 {
-		out := make([]float64, 0, 2*len(ps))
-		for _, p := range ps {
-			out = append(out, 1-p, p)
-		}
-		return out
-	}
+	pYes := binaryRows
 	const (
 		asia = iota
 		smoke
@@ -181,6 +173,133 @@ func Cancer() (*World, error) {
 	w, err := New(vars)
 	if err != nil {
 		return nil, fmt.Errorf("cancer: %w", err)
+	}
+	return w, nil
+}
+
+// binaryRows builds the CPT of a binary variable from P(second label |
+// configuration), one probability per parent configuration in
+// configuration order (first parent most significant, each parent's labels
+// in ascending order).
+func binaryRows(ps ...float64) []float64 {
+	out := make([]float64, 0, 2*len(ps))
+	for _, p := range ps {
+		out = append(out, 1-p, p)
+	}
+	return out
+}
+
+// falseTrue are the labels of the two AIMA networks, in ascending byte
+// order: value 0 is "false", value 1 "true".
+var falseTrue = []string{"false", "true"}
+
+// Burglary returns the burglary-alarm network of Russell & Norvig,
+// "Artificial Intelligence: A Modern Approach", 3rd ed. (2010), §14.2,
+// Fig. 14.2: five binary variables in this order (value 1 = "true").
+//
+//	Burglary                          P(true) = .001
+//	Earthquake                        P(true) = .002
+//	Alarm      ← Burglary, Earthquake (t,t) .95, (t,f) .94, (f,t) .29, (f,f) .001
+//	JohnCalls  ← Alarm                t .90, f .05
+//	MaryCalls  ← Alarm                t .70, f .01
+//
+// Alarm is a common effect of two independent causes; the book's results
+// P(Burglary | JohnCalls, MaryCalls) = ⟨0.284, 0.716⟩ (§14.4.1) and
+// P(j, m, a, ¬b, ¬e) = 0.000628 (§14.2.1) are checked in the tests.
+func Burglary() (*World, error) {
+	const (
+		b = iota
+		e
+		a
+	)
+	vars := []Variable{
+		{Name: "Burglary", Labels: falseTrue, CPT: binaryRows(0.001)},
+		{Name: "Earthquake", Labels: falseTrue, CPT: binaryRows(0.002)},
+		// (B, E): (f,f), (f,t), (t,f), (t,t).
+		{Name: "Alarm", Labels: falseTrue, Parents: []int{b, e}, CPT: binaryRows(0.001, 0.29, 0.94, 0.95)},
+		{Name: "JohnCalls", Labels: falseTrue, Parents: []int{a}, CPT: binaryRows(0.05, 0.90)},
+		{Name: "MaryCalls", Labels: falseTrue, Parents: []int{a}, CPT: binaryRows(0.01, 0.70)},
+	}
+	w, err := New(vars)
+	if err != nil {
+		return nil, fmt.Errorf("burglary: %w", err)
+	}
+	return w, nil
+}
+
+// Sprinkler returns the sprinkler network of Russell & Norvig, "Artificial
+// Intelligence: A Modern Approach", 3rd ed. (2010), §14.5, Fig. 14.12(a):
+// four binary variables in this order (value 1 = "true").
+//
+//	Cloudy                           P(true) = .5
+//	Sprinkler  ← Cloudy              t .10, f .50
+//	Rain       ← Cloudy              t .80, f .20
+//	WetGrass   ← Sprinkler, Rain     (t,t) .99, (t,f) .90, (f,t) .90, (f,f) 0
+//
+// WetGrass is a common effect of Sprinkler and Rain, which depend on each
+// other only through Cloudy. P(WetGrass | ¬Sprinkler, ¬Rain) = 0 is a
+// deterministic zero: the configuration (¬s, ¬r, w) never occurs, so a
+// context can never show it. The book's P(Rain | Sprinkler = true) =
+// ⟨0.3, 0.7⟩ (§14.5.1) is checked in the tests.
+func Sprinkler() (*World, error) {
+	const (
+		c = iota
+		s
+		r
+	)
+	vars := []Variable{
+		{Name: "Cloudy", Labels: falseTrue, CPT: binaryRows(0.5)},
+		{Name: "Sprinkler", Labels: falseTrue, Parents: []int{c}, CPT: binaryRows(0.5, 0.1)},
+		{Name: "Rain", Labels: falseTrue, Parents: []int{c}, CPT: binaryRows(0.2, 0.8)},
+		// (S, R): (f,f), (f,t), (t,f), (t,t).
+		{Name: "WetGrass", Labels: falseTrue, Parents: []int{s, r}, CPT: binaryRows(0, 0.90, 0.90, 0.99)},
+	}
+	w, err := New(vars)
+	if err != nil {
+		return nil, fmt.Errorf("sprinkler: %w", err)
+	}
+	return w, nil
+}
+
+// Student returns the student network of Koller & Friedman (2009),
+// "Probabilistic Graphical Models: Principles and Techniques", MIT Press,
+// Fig. 3.4: five variables, Grade with three values. The probabilities
+// below were typed from memory of that figure (not copied from the book at
+// hand); the tests check them against the posteriors the book's §3.2.1
+// quotes (also from memory), which they reproduce to the printed digits.
+//
+//	Difficulty    d0 | d1                       d0 .6, d1 .4
+//	Intelligence  i0 | i1                       i0 .7, i1 .3
+//	Grade         g1 | g2 | g3  ← Intelligence, Difficulty
+//	              (i0,d0) .3 .4 .3, (i0,d1) .05 .25 .7,
+//	              (i1,d0) .9 .08 .02, (i1,d1) .5 .3 .2
+//	SAT           s0 | s1       ← Intelligence  i0 .95 .05, i1 .2 .8
+//	Letter        l0 | l1       ← Grade         g1 .1 .9, g2 .4 .6, g3 .99 .01
+//
+// Grade is a common effect of Difficulty and Intelligence (g1 is the best
+// grade); the labels are the book's and already in ascending byte order.
+func Student() (*World, error) {
+	const (
+		d = iota
+		i
+		g
+	)
+	vars := []Variable{
+		{Name: "Difficulty", Labels: []string{"d0", "d1"}, CPT: []float64{0.6, 0.4}},
+		{Name: "Intelligence", Labels: []string{"i0", "i1"}, CPT: []float64{0.7, 0.3}},
+		// (I, D): (i0,d0), (i0,d1), (i1,d0), (i1,d1); each row g1, g2, g3.
+		{Name: "Grade", Labels: []string{"g1", "g2", "g3"}, Parents: []int{i, d}, CPT: []float64{
+			0.3, 0.4, 0.3,
+			0.05, 0.25, 0.7,
+			0.9, 0.08, 0.02,
+			0.5, 0.3, 0.2,
+		}},
+		{Name: "SAT", Labels: []string{"s0", "s1"}, Parents: []int{i}, CPT: []float64{0.95, 0.05, 0.2, 0.8}},
+		{Name: "Letter", Labels: []string{"l0", "l1"}, Parents: []int{g}, CPT: []float64{0.1, 0.9, 0.4, 0.6, 0.99, 0.01}},
+	}
+	w, err := New(vars)
+	if err != nil {
+		return nil, fmt.Errorf("student: %w", err)
 	}
 	return w, nil
 }
