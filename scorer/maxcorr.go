@@ -33,67 +33,136 @@ import (
 // edge at K = 4, 0.33·ρ_m over a two-edge chain, which made well-supported
 // chains of multi-valued networks look like chains without signal.
 //
-// G (k×k, k = min(K_a, K_b)) is diagonalised by cyclic Jacobi rotations
-// (Golub & Van Loan, Matrix Computations, 4th ed. §8.5), which converge
-// quadratically and need no starting vector; the result is the largest
-// diagonal entry, at least V² (rounding), at most 1. Cost O(K_a·K_b·k) for G
-// plus O(k³) per sweep (a handful of sweeps), no allocation.
+// The largest eigenvalue of G (k×k, k = min(K_a, K_b)) comes from its
+// characteristic polynomial for k = 3 and 4 (G is singular, so a quadratic
+// and a cubic; see gramMaxEigen) and from cyclic Jacobi rotations beyond
+// (Golub & Van Loan, Matrix Computations, 4th ed. §8.5); the result is at
+// least V (rounding), at most 1. A table with a binary side returns cramersV
+// exactly. Cost O(K_a·K_b·k) for G, O(1) for the closed forms, O(k³) per
+// Jacobi sweep (a handful); no allocation up to k = gramSmall (one k×k
+// buffer beyond).
+// gramSmall is the largest k whose Gram matrix maxCorrelation keeps on the
+// stack (an 8×8 buffer; clearing a 64×64 one cost about 1 µs per call, more
+// than the whole computation at K = 3–4).
+const gramSmall = 8
+
 func maxCorrelation(ps graphidx.PairStats, alpha float64) (rho, n float64) {
 	ka, kb := ps.KA, ps.KB
-	v, n := cramersV(ps, alpha)
 	if ka == 2 || kb == 2 {
-		return v, n
+		return cramersV(ps, alpha)
 	}
-	var row, col [graphidx.MaxValues]float64
-	for u := 0; u < ka; u++ {
-		for w := 0; w < kb; w++ {
-			c := float64(ps.Count(u, w))
-			row[u] += c
-			col[w] += c
+	// k ≤ c: G = Q̃Q̃ᵀ is formed over the smaller side; cell (i, w) of the
+	// oriented table is ps.Count(i, w), or ps.Count(w, i) when transposed.
+	k, c, tr := ka, kb, false
+	if kb < ka {
+		k, c, tr = kb, ka, true
+	}
+	count := func(i, w int) float64 {
+		if tr {
+			return float64(ps.Count(w, i)) + alpha
+		}
+		return float64(ps.Count(i, w)) + alpha
+	}
+	// Marginals of the posterior-mean table and 1/√ of them.
+	var ri, ci [graphidx.MaxValues]float64
+	for i := 0; i < k; i++ {
+		for w := 0; w < c; w++ {
+			x := count(i, w)
+			ri[i] += x
+			ci[w] += x
+			n += x
 		}
 	}
 	inv := 1 / n
-	for u := 0; u < ka; u++ {
-		row[u] = (row[u] + float64(kb)*alpha) * inv
-	}
-	for w := 0; w < kb; w++ {
-		col[w] = (col[w] + float64(ka)*alpha) * inv
-	}
-	// q holds Q̃ with the smaller side as rows: k×c.
-	k, c := ka, kb
-	if kb < ka {
-		k, c = kb, ka
-	}
-	var q [graphidx.MaxValues * graphidx.MaxValues]float64
-	for u := 0; u < ka; u++ {
-		for w := 0; w < kb; w++ {
-			e := row[u] * col[w]
-			d := ((float64(ps.Count(u, w))+alpha)*inv - e) / math.Sqrt(e)
-			if kb < ka {
-				q[w*c+u] = d
-			} else {
-				q[u*c+w] = d
-			}
-		}
-	}
-	var g [graphidx.MaxValues * graphidx.MaxValues]float64
+	var pr, pc [graphidx.MaxValues]float64
 	for i := 0; i < k; i++ {
-		for j := i; j < k; j++ {
-			s := 0.0
-			for w := 0; w < c; w++ {
-				s += q[i*c+w] * q[j*c+w]
+		pr[i] = ri[i] * inv
+		ri[i] = 1 / math.Sqrt(pr[i])
+	}
+	for w := 0; w < c; w++ {
+		pc[w] = ci[w] * inv
+		ci[w] = 1 / math.Sqrt(pc[w])
+	}
+	var gbuf [gramSmall * gramSmall]float64
+	var g []float64
+	if k <= gramSmall {
+		g = gbuf[:k*k]
+	} else {
+		g = make([]float64, k*k) // more than gramSmall values on both sides: rare
+	}
+	// G += d dᵀ, one column d = Q̃[:, w] at a time: Q̃ is never stored.
+	var d [graphidx.MaxValues]float64
+	for w := 0; w < c; w++ {
+		for i := 0; i < k; i++ {
+			d[i] = (count(i, w)*inv - pr[i]*pc[w]) * ri[i] * ci[w]
+		}
+		for i := 0; i < k; i++ {
+			di := d[i]
+			gi := g[i*k : i*k+k]
+			for j := 0; j < k; j++ {
+				gi[j] += di * d[j]
 			}
-			g[i*k+j], g[j*k+i] = s, s
 		}
 	}
-	lam := jacobiMaxEigen(g[:k*k], k)
-	rho = max(v, math.Sqrt(max(0, lam)))
-	return min(rho, 1), n
+	// V² = tr G/(k − 1), the lower end of ρ_m² (rounding may put the
+	// eigenvalue a hair below it).
+	trace := 0.0
+	for i := 0; i < k; i++ {
+		trace += g[i*k+i]
+	}
+	v2 := trace / float64(k-1)
+	lam := gramMaxEigen(g, k)
+	return min(math.Sqrt(max(0, lam, v2)), 1), n
+}
+
+// gramMaxEigen returns the largest eigenvalue of the k×k Gram matrix g of
+// maxCorrelation (symmetric, positive semi-definite, and singular: √p_u of
+// the smaller side is in its kernel, since Σ_u √p_u·Q̃_uv = 0). With e_j the
+// sum of its j×j principal minors (e_1 the trace), the other eigenvalues are
+// the roots of λ^(k−1) − e_1 λ^(k−2) + e_2 λ^(k−3) − …, so
+//
+//	k = 3:  λ_max = (e_1 + √(e_1² − 4e_2))/2,
+//	k = 4:  λ_max = m + 2√a·cos(acos(b/a^(3/2))/3),  m = e_1/3,
+//	        a = m² − e_2/3, b = m³ − m·e_2/2 + e_3/2
+//
+// (the trigonometric solution of a cubic with three real roots; Smith 1961,
+// "Eigenvalues of a symmetric 3 × 3 matrix", Commun. ACM 4(4)); larger k by
+// jacobiMaxEigen. g may be overwritten. O(k³), no allocation.
+func gramMaxEigen(g []float64, k int) float64 {
+	switch k {
+	case 3:
+		e1 := g[0] + g[4] + g[8]
+		e2 := g[0]*g[4] - g[1]*g[1] + g[0]*g[8] - g[2]*g[2] + g[4]*g[8] - g[5]*g[5]
+		return (e1 + math.Sqrt(max(0, e1*e1-4*e2))) / 2
+	case 4:
+		var e1, e2, e3 float64
+		for i := 0; i < 4; i++ {
+			e1 += g[i*5]
+			for j := i + 1; j < 4; j++ {
+				e2 += g[i*5]*g[j*5] - g[i*4+j]*g[i*4+j]
+				for l := j + 1; l < 4; l++ {
+					// det of the principal minor on {i, j, l}
+					a, b, c := g[i*4+i], g[i*4+j], g[i*4+l]
+					d, e, f := g[j*4+j], g[j*4+l], g[l*4+l]
+					e3 += a*(d*f-e*e) - b*(b*f-e*c) + c*(b*e-d*c)
+				}
+			}
+		}
+		m := e1 / 3
+		a := m*m - e2/3
+		if !(a > 0) {
+			return m
+		}
+		b := m*m*m - m*e2/2 + e3/2
+		c := max(-1, min(1, b/(a*math.Sqrt(a))))
+		return m + 2*math.Sqrt(a)*math.Cos(math.Acos(c)/3)
+	}
+	return jacobiMaxEigen(g, k)
 }
 
 // jacobiMaxEigen returns the largest eigenvalue of the symmetric k×k matrix
 // a (row-major), which it overwrites, by cyclic Jacobi rotations (Golub &
-// Van Loan §8.5.3): sweeps until the off-diagonal mass is below 10⁻³⁰ of the
+// Van Loan §8.5.3): sweeps until the off-diagonal mass is below 10⁻²⁴ of the
 // total (or 30 sweeps). O(k³) per sweep, no allocation.
 func jacobiMaxEigen(a []float64, k int) float64 {
 	for range 30 {
@@ -107,38 +176,45 @@ func jacobiMaxEigen(a []float64, k int) float64 {
 				}
 			}
 		}
-		if !(off > 1e-30*tot) {
+		if !(off > 1e-24*tot) {
 			break
 		}
-		for p := 0; p < k-1; p++ {
-			for r := p + 1; r < k; r++ {
-				apr := a[p*k+r]
-				if apr == 0 {
-					continue
-				}
-				// The rotation (c, s) that zeroes a[p][r] (the symmetric
-				// Schur decomposition, Golub & Van Loan Alg. 8.5.1).
-				tau := (a[r*k+r] - a[p*k+p]) / (2 * apr)
-				t := 1 / (math.Abs(tau) + math.Sqrt(1+tau*tau))
-				if tau < 0 {
-					t = -t
-				}
-				cs := 1 / math.Sqrt(1+t*t)
-				sn := t * cs
-				for i := 0; i < k; i++ { // columns p, r
-					aip, air := a[i*k+p], a[i*k+r]
-					a[i*k+p], a[i*k+r] = cs*aip-sn*air, sn*aip+cs*air
-				}
-				for i := 0; i < k; i++ { // rows p, r
-					api, ari := a[p*k+i], a[r*k+i]
-					a[p*k+i], a[r*k+i] = cs*api-sn*ari, sn*api+cs*ari
-				}
-			}
-		}
+		jacobiSweep(a, k)
 	}
 	best := math.Inf(-1)
 	for i := 0; i < k; i++ {
 		best = max(best, a[i*k+i])
 	}
 	return best
+}
+
+// jacobiSweep applies one cyclic sweep of Jacobi rotations to the symmetric
+// k×k matrix a (row-major), each zeroing one off-diagonal pair (the
+// symmetric Schur decomposition, Golub & Van Loan Alg. 8.5.1). O(k³).
+func jacobiSweep(a []float64, k int) {
+	for p := 0; p < k-1; p++ {
+		for r := p + 1; r < k; r++ {
+			apr := a[p*k+r]
+			if apr == 0 {
+				continue
+			}
+			// The rotation (c, s) that zeroes a[p][r] (the symmetric
+			// Schur decomposition, Golub & Van Loan Alg. 8.5.1).
+			tau := (a[r*k+r] - a[p*k+p]) / (2 * apr)
+			t := 1 / (math.Abs(tau) + math.Sqrt(1+tau*tau))
+			if tau < 0 {
+				t = -t
+			}
+			cs := 1 / math.Sqrt(1+t*t)
+			sn := t * cs
+			for i := 0; i < k; i++ { // columns p, r
+				aip, air := a[i*k+p], a[i*k+r]
+				a[i*k+p], a[i*k+r] = cs*aip-sn*air, sn*aip+cs*air
+			}
+			for i := 0; i < k; i++ { // rows p, r
+				api, ari := a[p*k+i], a[r*k+i]
+				a[p*k+i], a[r*k+i] = cs*api-sn*ari, sn*api+cs*ari
+			}
+		}
+	}
 }

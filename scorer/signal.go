@@ -61,8 +61,11 @@ var MaxEdgeCost = -math.Log(signalFloor)
 // at most MaxEdgeCost, which is also the
 // cost of an edge with K_a or K_b < 2 (presence-only entities carry no
 // signal to rank by). It is not monotone in support. O(K_a·K_b) with a
-// binary side, O(K_a·K_b·k + k³·sweeps) otherwise (k = min(K_a, K_b)), no
-// allocation.
+// binary side, O(K_a·K_b·k) plus O(k³) per Jacobi sweep otherwise (k =
+// min(K_a, K_b); closed forms for k = 3 and 4), no allocation up to k = 8.
+// Measured (BenchmarkEdgeSignal, one run, shared machine): 180 ns at K = 3,
+// 340 ns at K = 4, 8 µs at K = 8, against Cramér's V's 80, 118 and 368 ns;
+// binary tables unchanged.
 func (b *Bayes) EdgeCost(ps graphidx.PairStats) float64 {
 	lb := b.signalBound(ps, true)
 	if !(lb > signalFloor) { // also catches NaN
@@ -82,7 +85,12 @@ func (b *Bayes) signalBound(ps graphidx.PairStats, ok bool) float64 {
 	if !ok || ka < 2 || kb < 2 || ka > graphidx.MaxValues || kb > graphidx.MaxValues {
 		return 0
 	}
-	v, n := maxCorrelation(ps, b.alpha)
+	var v, n float64
+	if ka == 2 || kb == 2 {
+		v, n = cramersV(ps, b.alpha) // ρ_m = V with a binary side
+	} else {
+		v, n = maxCorrelation(ps, b.alpha)
+	}
 	lb := v - b.signalZ/math.Sqrt(n)
 	if !(lb > 0) {
 		return 0
