@@ -83,3 +83,26 @@ func ExampleGreenhouse() {
 	// zone-2/thermometer → zone-2/air-temp → zone-3/air-temp → zone-4/air-temp → zone-5/air-temp → zone-6/air-temp → zone-6/vent-a
 	// P(zone-6/vent-a=closed | zone-2/thermometer=reads-cool): exact 0.570, through the bridges 0.570
 }
+
+// ExampleGenerate generates a network of 3-valued variables with at most 3
+// parents each, after checking that the edges fit under the cap (0 + 1 + 2 +
+// 3·37 = 114 for 40 variables) and that a variable with the most parents has
+// a table of acceptable size (3⁴ cells).
+func ExampleGenerate() {
+	cfg := world.Config{Vars: 40, Edges: 60, Values: 3, MaxParents: 3, CPTAlpha: 0.5, CPTBeta: 0.5}
+	fmt.Println("edges possible:", world.MaxEdges(cfg.Vars, cfg.MaxParents))
+	fmt.Println("table fits:", world.CPTFits(cfg.Values, cfg.MaxParents))
+	w, err := world.Generate(cfg, 1)
+	if err != nil {
+		panic(err)
+	}
+	most := 0
+	for v := range w.NumVars() {
+		most = max(most, len(w.Parents(v)))
+	}
+	fmt.Println("variables:", w.NumVars(), "values:", w.Card(0), "most parents:", most)
+	// Output:
+	// edges possible: 114
+	// table fits: true
+	// variables: 40 values: 3 most parents: 3
+}
