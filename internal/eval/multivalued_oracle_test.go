@@ -32,10 +32,6 @@ var multiValuedConfigs = []struct {
 func TestMultiValuedOracle(t *testing.T) {
 	stress.Require(t, "TestMultiValuedOracle builds 240 worlds")
 	const corpora = 20
-	type key struct {
-		set             string
-		from, to, value int
-	}
 	for _, c := range multiValuedConfigs {
 		for _, seeds := range [][]int64{{1, 2, 3}, {6, 7, 8}} {
 			var model, oracle float64
@@ -45,7 +41,6 @@ func TestMultiValuedOracle(t *testing.T) {
 					t.Fatal(err)
 				}
 				runs := make([][]eval.QueryResult, corpora)
-				real := map[key][]float64{}
 				for i := range runs {
 					r, err := eval.Run(context.Background(), eval.Config{
 						Condition: world.CondLocalGeometric, Seed: int64(i + 1), Network: net, KeepQueries: true,
@@ -54,38 +49,10 @@ func TestMultiValuedOracle(t *testing.T) {
 						t.Fatal(err)
 					}
 					runs[i] = r.Queries
-					for _, q := range r.Queries {
-						k := key{q.Set, q.From, q.To, q.Value}
-						if real[k] == nil {
-							real[k] = make([]float64, corpora)
-							for j := range real[k] {
-								real[k][j] = math.NaN()
-							}
-						}
-						real[k][i] = q.SqErr(eval.EstRouted)
-					}
 				}
-				for i, qs := range runs {
-					var pred, orc, got []float64
-					for _, q := range qs {
-						sum, cnt := 0.0, 0
-						for j, x := range real[key{q.Set, q.From, q.To, q.Value}] {
-							if j != i && !math.IsNaN(x) {
-								sum += x
-								cnt++
-							}
-						}
-						if cnt < corpora/2 {
-							continue
-						}
-						pred = append(pred, q.RoutedErr)
-						orc = append(orc, sum/float64(cnt))
-						got = append(got, q.SqErr(eval.EstRouted))
-					}
-					n := float64(corpora * len(seeds))
-					model += eval.Spearman(pred, got) / n
-					oracle += eval.Spearman(orc, got) / n
-				}
+				m, o := oracleSpearman(runs)
+				model += m / float64(len(seeds))
+				oracle += o / float64(len(seeds))
 			}
 			t.Logf("%s, networks %v: Spearman ρ over %d corpora each: model %.3f, oracle of the expected squared error %.3f", c.name, seeds, corpora, model, oracle)
 			if math.IsNaN(model) || math.IsNaN(oracle) {
@@ -96,4 +63,51 @@ func TestMultiValuedOracle(t *testing.T) {
 			}
 		}
 	}
+}
+
+// oracleSpearman returns the mean over corpora of the Spearman ρ of the
+// model's predicted errors (Decision.Err) and of the leave-one-out oracle
+// against the realised errors, runs[i] holding the answered queries of
+// corpus i over one network. The oracle of a query is its realised error
+// averaged over the other corpora that asked it (at least half of them;
+// others are left out of that corpus's ρ). O(corpora² · queries).
+func oracleSpearman(runs [][]eval.QueryResult) (model, oracle float64) {
+	type key struct {
+		set             string
+		from, to, value int
+	}
+	real := map[key][]float64{} // realised error per corpus, NaN when not asked
+	for i, qs := range runs {
+		for _, q := range qs {
+			k := key{q.Set, q.From, q.To, q.Value}
+			if real[k] == nil {
+				real[k] = make([]float64, len(runs))
+				for j := range real[k] {
+					real[k][j] = math.NaN()
+				}
+			}
+			real[k][i] = q.SqErr(eval.EstRouted)
+		}
+	}
+	for i, qs := range runs {
+		var pred, orc, got []float64
+		for _, q := range qs {
+			sum, cnt := 0.0, 0
+			for j, x := range real[key{q.Set, q.From, q.To, q.Value}] {
+				if j != i && !math.IsNaN(x) {
+					sum += x
+					cnt++
+				}
+			}
+			if 2*cnt < len(runs) {
+				continue
+			}
+			pred = append(pred, q.RoutedErr)
+			orc = append(orc, sum/float64(cnt))
+			got = append(got, q.SqErr(eval.EstRouted))
+		}
+		model += eval.Spearman(pred, got) / float64(len(runs))
+		oracle += eval.Spearman(orc, got) / float64(len(runs))
+	}
+	return model, oracle
 }
