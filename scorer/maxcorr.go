@@ -39,11 +39,11 @@ import (
 // (Golub & Van Loan, Matrix Computations, 4th ed. §8.5); the result is at
 // least V (rounding), at most 1. A table with a binary side returns cramersV
 // exactly. Cost O(K_a·K_b·k) for G, O(1) for the closed forms, O(k³) per
-// Jacobi sweep (a handful); no allocation up to k = gramSmall (one k×k
-// buffer beyond).
-// gramSmall is the largest k whose Gram matrix maxCorrelation keeps on the
-// stack (an 8×8 buffer; clearing a 64×64 one cost about 1 µs per call, more
-// than the whole computation at K = 3–4).
+// Jacobi sweep (a handful); no allocation.
+// gramSmall is the most values per side for which maxCorrelation uses small
+// buffers (8×8; clearing 64×64 ones costs about 1 µs per call, more than the
+// whole computation at K = 3–4); larger tables use buffers of the largest
+// size.
 const gramSmall = 8
 
 func maxCorrelation(ps graphidx.PairStats, alpha float64) (rho, n float64) {
@@ -52,55 +52,69 @@ func maxCorrelation(ps graphidx.PairStats, alpha float64) (rho, n float64) {
 		return cramersV(ps, alpha)
 	}
 	// k ≤ c: G = Q̃Q̃ᵀ is formed over the smaller side; cell (i, w) of the
-	// oriented table is ps.Count(i, w), or ps.Count(w, i) when transposed.
-	k, c, tr := ka, kb, false
+	// oriented table is Count(i, w), or Count(w, i) when transposed.
+	k, c := ka, kb
 	if kb < ka {
-		k, c, tr = kb, ka, true
+		k, c = kb, ka
 	}
-	count := func(i, w int) float64 {
-		if tr {
-			return float64(ps.Count(w, i)) + alpha
-		}
-		return float64(ps.Count(i, w)) + alpha
+	if c <= gramSmall {
+		var cells [gramSmall * gramSmall]float64
+		var vecs [5 * gramSmall]float64
+		var g [gramSmall * gramSmall]float64
+		return maxCorrelationIn(ps, alpha, k, c, cells[:k*c], vecs[:5*c], g[:k*k])
 	}
-	// Marginals of the posterior-mean table and 1/√ of them.
-	var ri, ci [graphidx.MaxValues]float64
+	return maxCorrelationLarge(ps, alpha, k, c)
+}
+
+// maxCorrelationLarge is maxCorrelation for more than gramSmall values on a
+// side, with buffers of the largest size (64 KiB of stack, cleared per call:
+// about 1 µs, small beside the Jacobi sweeps at that size). No allocation.
+func maxCorrelationLarge(ps graphidx.PairStats, alpha float64, k, c int) (rho, n float64) {
+	var cells [graphidx.MaxValues * graphidx.MaxValues]float64
+	var vecs [5 * graphidx.MaxValues]float64
+	var g [graphidx.MaxValues * graphidx.MaxValues]float64
+	return maxCorrelationIn(ps, alpha, k, c, cells[:k*c], vecs[:5*c], g[:k*k])
+}
+
+// maxCorrelationIn is maxCorrelation with its buffers: cells (k·c), vecs
+// (5·c) and g (k·k), all zero. O(k·c·k) plus gramMaxEigen.
+func maxCorrelationIn(ps graphidx.PairStats, alpha float64, k, c int, cells, vecs, g []float64) (rho, n float64) {
+	tr := ps.KB < ps.KA
+	ri, ci, pr, pc, d := vecs[:k], vecs[c:2*c], vecs[2*c:2*c+k], vecs[3*c:4*c], vecs[4*c:4*c+k]
+	// The smoothed cells N + α, read once, and the marginals.
 	for i := 0; i < k; i++ {
 		for w := 0; w < c; w++ {
-			x := count(i, w)
-			ri[i] += x
-			ci[w] += x
-			n += x
+			var x uint32
+			if tr {
+				x = ps.Count(w, i)
+			} else {
+				x = ps.Count(i, w)
+			}
+			v := float64(x) + alpha
+			cells[i*c+w] = v
+			ri[i] += v
+			ci[w] += v
+			n += v
 		}
 	}
 	inv := 1 / n
-	var pr, pc [graphidx.MaxValues]float64
-	for i := 0; i < k; i++ {
+	for i := range ri {
 		pr[i] = ri[i] * inv
 		ri[i] = 1 / math.Sqrt(pr[i])
 	}
-	for w := 0; w < c; w++ {
+	for w := range ci {
 		pc[w] = ci[w] * inv
 		ci[w] = 1 / math.Sqrt(pc[w])
 	}
-	var gbuf [gramSmall * gramSmall]float64
-	var g []float64
-	if k <= gramSmall {
-		g = gbuf[:k*k]
-	} else {
-		g = make([]float64, k*k) // more than gramSmall values on both sides: rare
-	}
 	// G += d dᵀ, one column d = Q̃[:, w] at a time: Q̃ is never stored.
-	var d [graphidx.MaxValues]float64
 	for w := 0; w < c; w++ {
-		for i := 0; i < k; i++ {
-			d[i] = (count(i, w)*inv - pr[i]*pc[w]) * ri[i] * ci[w]
+		for i := range d {
+			d[i] = (cells[i*c+w]*inv - pr[i]*pc[w]) * ri[i] * ci[w]
 		}
-		for i := 0; i < k; i++ {
-			di := d[i]
+		for i, di := range d {
 			gi := g[i*k : i*k+k]
-			for j := 0; j < k; j++ {
-				gi[j] += di * d[j]
+			for j, dj := range d {
+				gi[j] += di * dj
 			}
 		}
 	}

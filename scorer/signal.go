@@ -62,9 +62,9 @@ var MaxEdgeCost = -math.Log(signalFloor)
 // cost of an edge with K_a or K_b < 2 (presence-only entities carry no
 // signal to rank by). It is not monotone in support. O(K_a·K_b) with a
 // binary side, O(K_a·K_b·k) plus O(k³) per Jacobi sweep otherwise (k =
-// min(K_a, K_b); closed forms for k = 3 and 4), no allocation up to k = 8.
-// Measured (BenchmarkEdgeSignal, one run, shared machine): 180 ns at K = 3,
-// 340 ns at K = 4, 8 µs at K = 8, against Cramér's V's 80, 118 and 368 ns;
+// min(K_a, K_b); closed forms for k = 3 and 4), no allocation.
+// Measured (BenchmarkEdgeSignal, one run, shared machine): 150 ns at K = 3,
+// 300 ns at K = 4, 7.7 µs at K = 8, against Cramér's V's 80, 117 and 351 ns;
 // binary tables unchanged.
 func (b *Bayes) EdgeCost(ps graphidx.PairStats) float64 {
 	lb := b.signalBound(ps, true)
