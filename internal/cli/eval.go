@@ -2,6 +2,7 @@ package cli
 
 import (
 	"encoding/json"
+	"errors"
 	"fmt"
 	"math"
 	"path/filepath"
@@ -233,7 +234,7 @@ func runEval(cmd *cobra.Command, o evalOptions) error {
 		fr, err := eval.Fit(ctx, eval.FitConfig{Base: base, Seeds: fitSeeds, Worlds: worlds, StartBeta: &beta,
 			Log: func(format string, args ...any) { fmt.Fprintf(cmd.ErrOrStderr(), format+"\n", args...) }})
 		if err != nil {
-			return err
+			return networkFlags(err)
 		}
 		if o.json {
 			enc := json.NewEncoder(out)
@@ -268,7 +269,7 @@ func runEval(cmd *cobra.Command, o evalOptions) error {
 			}
 			r, err := eval.Run(ctx, cfg)
 			if err != nil {
-				return err
+				return networkFlags(err)
 			}
 			reports = append(reports, r)
 			if !o.json {
@@ -346,6 +347,17 @@ func (o evalOptions) worldConfigs() ([]world.Config, error) {
 		out[i] = wc
 	}
 	return out, nil
+}
+
+// networkFlags names the flags behind a network the world generator
+// refused (world.ErrInvalidConfig: for example a variable drew so many
+// parents that its table would not fit, which only generation can tell
+// without --max-parents); other errors are returned as they are.
+func networkFlags(err error) error {
+	if errors.Is(err, world.ErrInvalidConfig) {
+		return fmt.Errorf("%w (the network is set by --vars, --edges, --held-out, --values, --cpt-alpha and --max-parents)", err)
+	}
+	return err
 }
 
 // parseList parses a comma-separated list of values of flag (at least one);

@@ -174,6 +174,9 @@ func TestEvalNetworkFlags(t *testing.T) {
 		{[]string{"--max-parents", "1", "--vars", "10", "--edges", "10"}, "--edges: 10 directed edges exceed the 9 possible for 10 variables with --max-parents 1"},
 		{[]string{"--values", "64", "--max-parents", "4"}, "--values 64 with --max-parents 4: a variable's conditional table of 64^5 cells would exceed 4194304"},
 		{[]string{"--fit", "--fit-seeds", "101", "--values", "0"}, "--values: K must be in 2..64, got 0"},
+		// Without a cap only generation finds a variable with 9 parents of
+		// 64 values (64^10 cells); the error names the flags.
+		{[]string{"--values", "64", "--vars", "30", "--edges", "200"}, "would exceed 4194304 cells (lower Values or set MaxParents) (the network is set by --vars, --edges, --held-out, --values, --cpt-alpha and --max-parents)"},
 	} {
 		_, _, err := evalCLI(t, append([]string{"eval", "--contexts", "100"}, c.args...)...)
 		if err == nil || !strings.Contains(err.Error(), c.want) {
