@@ -6,6 +6,12 @@ import (
 	"github.com/hopwise/hopwise/graphidx"
 )
 
+// gramSmall is the most values per side for which maxCorrelation uses small
+// buffers (8×8; clearing 64×64 ones costs about 1 µs per call, more than the
+// whole computation at K = 3–4); larger tables use buffers of the largest
+// size.
+const gramSmall = 8
+
 // maxCorrelation returns the maximal correlation ρ_m of the posterior-mean
 // joint table of ps (the same table as cramersV: p_uv = (N_uv + α)/n) and
 // the effective count n = support + K_a·K_b·α. 2 ≤ K_a, K_b ≤
@@ -35,17 +41,13 @@ import (
 //
 // The largest eigenvalue of G (k×k, k = min(K_a, K_b)) comes from its
 // characteristic polynomial for k = 3 and 4 (G is singular, so a quadratic
-// and a cubic; see gramMaxEigen) and from cyclic Jacobi rotations beyond
-// (Golub & Van Loan, Matrix Computations, 4th ed. §8.5); the result is at
-// least V (rounding), at most 1. A table with a binary side returns cramersV
-// exactly. Cost O(K_a·K_b·k) for G, O(1) for the closed forms, O(k³) per
-// Jacobi sweep (a handful); no allocation.
-// gramSmall is the most values per side for which maxCorrelation uses small
-// buffers (8×8; clearing 64×64 ones costs about 1 µs per call, more than the
-// whole computation at K = 3–4); larger tables use buffers of the largest
-// size.
-const gramSmall = 8
-
+// and a cubic; see gramMaxEigen), from Householder tridiagonalisation and
+// bisection up to exactLimit values (symMaxEigen; Golub & Van Loan, Matrix
+// Computations, 4th ed. §8.3–8.4), and beyond as a lower bound by power
+// iteration (maxCorrelationPower); the result is at least V (rounding), at
+// most 1. A table with a binary side returns cramersV exactly. Cost
+// O(K_a·K_b·k) for G, O(1) for the closed forms, O(k³) up to exactLimit,
+// O(K_a·K_b) per power step beyond; no allocation.
 func maxCorrelation(ps graphidx.PairStats, alpha float64) (rho, n float64) {
 	ka, kb := ps.KA, ps.KB
 	if ka == 2 || kb == 2 {
@@ -63,12 +65,106 @@ func maxCorrelation(ps graphidx.PairStats, alpha float64) (rho, n float64) {
 		var g [gramSmall * gramSmall]float64
 		return maxCorrelationIn(ps, alpha, k, c, cells[:k*c], vecs[:5*c], g[:k*k])
 	}
+	if c <= exactLimit {
+		return maxCorrelationMedium(ps, alpha, k, c)
+	}
 	return maxCorrelationLarge(ps, alpha, k, c)
 }
 
-// maxCorrelationLarge is maxCorrelation for more than gramSmall values on a
-// side, with buffers of the largest size (64 KiB of stack, cleared per call:
-// about 1 µs, small beside the Jacobi sweeps at that size). No allocation.
+// maxCorrelationMedium is maxCorrelation for gramSmall < c ≤ exactLimit,
+// with 16×16 buffers (4 KiB of stack). No allocation.
+func maxCorrelationMedium(ps graphidx.PairStats, alpha float64, k, c int) (rho, n float64) {
+	var cells [exactLimit * exactLimit]float64
+	var vecs [5 * exactLimit]float64
+	var g [exactLimit * exactLimit]float64
+	return maxCorrelationIn(ps, alpha, k, c, cells[:k*c], vecs[:5*c], g[:k*k])
+}
+
+// exactLimit is the most values on the smaller side for which
+// maxCorrelation computes ρ_m exactly (O(k³), 2 µs at k = 8); beyond it
+// (maxCorrelationPower) a lower bound in O(k·c) per step.
+const exactLimit = 16
+
+// powerSteps bounds maxCorrelationPower.
+const powerSteps = 16
+
+// maxCorrelationPower returns a lower bound of ρ_m for k > exactLimit: it
+// turns cells (the smoothed k×c table, row-major) into Q̃ in place and runs
+// power iteration on Q̃Q̃ᵀ without forming it (x ← Q̃(Q̃ᵀx), Golub & Van
+// Loan §8.2.1) from the row of Q̃ of largest norm, at most powerSteps steps,
+// stopping when ‖Q̃ᵀx‖² (the Rayleigh quotient, never above ρ_m²) changes
+// by less than 10⁻¹² (relative). The result is at least V and at most ρ_m,
+// equal to it up to (σ₂/σ₁)^(2·steps): a lower bound of the signal, as the
+// signal bound wants. x (k) and y (c) are scratch. O(k·c) per step, no
+// allocation.
+func maxCorrelationPower(cells []float64, k, c int, inv float64, ri, ci, pr, pc, x, y []float64) float64 {
+	trace, best, bi := 0.0, -1.0, 0
+	for i := 0; i < k; i++ {
+		row := cells[i*c : i*c+c]
+		s := 0.0
+		for w := range row {
+			q := (row[w]*inv - pr[i]*pc[w]) * ri[i] * ci[w]
+			row[w] = q
+			s += q * q
+		}
+		trace += s
+		if s > best {
+			best, bi = s, i
+		}
+	}
+	v2 := trace / float64(k-1)
+	if !(best > 0) {
+		return 0
+	}
+	// x = e_bi: its quotient is the row's squared norm.
+	clear(x)
+	x[bi] = 1
+	lam := best
+	for step := range powerSteps + 1 {
+		// y = Q̃ᵀx, then x = Q̃y normalised; ‖y‖² is xᵀGx for ‖x‖ = 1.
+		clear(y)
+		for i, xi := range x {
+			if xi == 0 {
+				continue
+			}
+			for w, q := range cells[i*c : i*c+c] {
+				y[w] += xi * q
+			}
+		}
+		yy := 0.0
+		for _, yw := range y {
+			yy += yw * yw
+		}
+		// Step 0 only recomputes the start's quotient.
+		done := step > 0 && math.Abs(yy-lam) <= 1e-12*yy
+		lam = max(lam, yy)
+		if done || step == powerSteps {
+			break
+		}
+		xx := 0.0
+		for i := range x {
+			s := 0.0
+			for w, q := range cells[i*c : i*c+c] {
+				s += q * y[w]
+			}
+			x[i] = s
+			xx += s * s
+		}
+		if !(xx > 0) {
+			break
+		}
+		xn := 1 / math.Sqrt(xx)
+		for i := range x {
+			x[i] *= xn
+		}
+	}
+	return min(math.Sqrt(max(lam, v2)), 1)
+}
+
+// maxCorrelationLarge is maxCorrelation for more than exactLimit values on
+// a side, with buffers of the largest size (64 KiB of stack, cleared per call:
+// about 1 µs, small beside the O(k³) eigenvalue at that size). No
+// allocation.
 func maxCorrelationLarge(ps graphidx.PairStats, alpha float64, k, c int) (rho, n float64) {
 	var cells [graphidx.MaxValues * graphidx.MaxValues]float64
 	var vecs [5 * graphidx.MaxValues]float64
@@ -79,7 +175,9 @@ func maxCorrelationLarge(ps graphidx.PairStats, alpha float64, k, c int) (rho, n
 // maxCorrelationIn is maxCorrelation with its buffers: cells (k·c), vecs
 // (5·c) and g (k·k), all zero. O(k·c·k) plus gramMaxEigen.
 func maxCorrelationIn(ps graphidx.PairStats, alpha float64, k, c int, cells, vecs, g []float64) (rho, n float64) {
-	tr := ps.KB < ps.KA
+	// Rows are the smaller side; a square table puts the smaller entity id
+	// first, so (a, b) and (b, a) run the same arithmetic.
+	tr := ps.KB < ps.KA || (ps.KB == ps.KA && ps.B < ps.A)
 	ri, ci, pr, pc, d := vecs[:k], vecs[c:2*c], vecs[2*c:2*c+k], vecs[3*c:4*c], vecs[4*c:4*c+k]
 	// The smoothed cells N + α, read once, and the marginals.
 	for i := 0; i < k; i++ {
@@ -105,6 +203,9 @@ func maxCorrelationIn(ps graphidx.PairStats, alpha float64, k, c int, cells, vec
 	for w := range ci {
 		pc[w] = ci[w] * inv
 		ci[w] = 1 / math.Sqrt(pc[w])
+	}
+	if k > exactLimit {
+		return maxCorrelationPower(cells, k, c, inv, ri, ci, pr, pc, d, vecs[c:2*c]), n
 	}
 	// G += d dᵀ, one column d = Q̃[:, w] at a time: Q̃ is never stored.
 	for w := 0; w < c; w++ {
@@ -141,7 +242,7 @@ func maxCorrelationIn(ps graphidx.PairStats, alpha float64, k, c int, cells, vec
 //
 // (the trigonometric solution of a cubic with three real roots; Smith 1961,
 // "Eigenvalues of a symmetric 3 × 3 matrix", Commun. ACM 4(4)); larger k by
-// jacobiMaxEigen. g may be overwritten. O(k³), no allocation.
+// symMaxEigen. O(1) for k ≤ 4, O(k³) beyond, no allocation.
 func gramMaxEigen(g []float64, k int) float64 {
 	switch k {
 	case 3:
@@ -171,64 +272,118 @@ func gramMaxEigen(g []float64, k int) float64 {
 		c := max(-1, min(1, b/(a*math.Sqrt(a))))
 		return m + 2*math.Sqrt(a)*math.Cos(math.Acos(c)/3)
 	}
-	return jacobiMaxEigen(g, k)
+	return symMaxEigen(g, k)
 }
 
-// jacobiMaxEigen returns the largest eigenvalue of the symmetric k×k matrix
-// a (row-major), which it overwrites, by cyclic Jacobi rotations (Golub &
-// Van Loan §8.5.3): sweeps until the off-diagonal mass is below 10⁻²⁴ of the
-// total (or 30 sweeps). O(k³) per sweep, no allocation.
-func jacobiMaxEigen(a []float64, k int) float64 {
-	for range 30 {
-		off, tot := 0.0, 0.0
-		for i := 0; i < k; i++ {
-			for j := 0; j < k; j++ {
-				x := a[i*k+j] * a[i*k+j]
-				tot += x
-				if i != j {
-					off += x
-				}
+// symMaxEigen returns the largest eigenvalue of the symmetric k×k matrix g
+// (row-major; its lower triangle is overwritten): Householder reduction to a
+// tridiagonal matrix (Golub & Van Loan §8.3.1; the EISPACK tred1 ordering,
+// Wilkinson & Reinsch 1971), then bisection on the Sturm sequence of the
+// tridiagonal matrix (Golub & Van Loan §8.4.1) between the trace/(k − 1)
+// bound below (g is singular, so the largest of the k − 1 others is at
+// least their mean) and Gershgorin's bound above, to 10⁻¹⁵ relative.
+// O(4k³/3) for the reduction, O(k) per bisection step (about 50), no
+// allocation.
+func symMaxEigen(g []float64, k int) float64 {
+	var db, eb [graphidx.MaxValues]float64
+	d, e := db[:k], eb[:k]
+	trace := 0.0
+	for i := 0; i < k; i++ {
+		trace += g[i*k+i]
+	}
+	for i := k - 1; i > 0; i-- {
+		l := i - 1
+		ai := g[i*k : i*k+k]
+		if l == 0 {
+			e[i] = ai[0]
+			continue
+		}
+		scale := 0.0
+		for c := 0; c <= l; c++ {
+			scale += math.Abs(ai[c])
+		}
+		if scale == 0 {
+			e[i] = ai[l]
+			continue
+		}
+		h := 0.0
+		for c := 0; c <= l; c++ {
+			ai[c] /= scale
+			h += ai[c] * ai[c]
+		}
+		f := ai[l]
+		gg := math.Sqrt(h)
+		if f >= 0 {
+			gg = -gg
+		}
+		e[i] = scale * gg
+		h -= f * gg
+		ai[l] = f - gg
+		f = 0
+		for j := 0; j <= l; j++ {
+			s := 0.0
+			for c := 0; c <= j; c++ {
+				s += g[j*k+c] * ai[c]
+			}
+			for c := j + 1; c <= l; c++ {
+				s += g[c*k+j] * ai[c]
+			}
+			e[j] = s / h
+			f += e[j] * ai[j]
+		}
+		hh := f / (h + h)
+		for j := 0; j <= l; j++ {
+			f = ai[j]
+			gj := e[j] - hh*f
+			e[j] = gj
+			for c := 0; c <= j; c++ {
+				g[j*k+c] -= f*e[c] + gj*ai[c]
 			}
 		}
-		if !(off > 1e-24*tot) {
+	}
+	for i := 0; i < k; i++ {
+		d[i] = g[i*k+i]
+	}
+	e[0] = 0
+	// Bisection for the largest eigenvalue of the tridiagonal (d, e).
+	hi := 0.0
+	for i := 0; i < k; i++ {
+		r := math.Abs(e[i])
+		if i+1 < k {
+			r += math.Abs(e[i+1])
+		}
+		hi = max(hi, d[i]+r)
+	}
+	hi = min(hi, trace)
+	lo := max(0, trace/float64(k-1))
+	if !(hi > lo) {
+		return max(lo, hi)
+	}
+	// below(x) counts the eigenvalues below x (Sturm sequence).
+	below := func(x float64) int {
+		n := 0
+		q := 1.0
+		for i := 0; i < k; i++ {
+			if q == 0 {
+				q = 1e-300
+			}
+			q = d[i] - x - e[i]*e[i]/q
+			if q < 0 {
+				n++
+			}
+		}
+		return n
+	}
+	for range 200 {
+		mid := (lo + hi) / 2
+		if !(mid > lo && mid < hi) || hi-lo <= 1e-15*hi {
 			break
 		}
-		jacobiSweep(a, k)
-	}
-	best := math.Inf(-1)
-	for i := 0; i < k; i++ {
-		best = max(best, a[i*k+i])
-	}
-	return best
-}
-
-// jacobiSweep applies one cyclic sweep of Jacobi rotations to the symmetric
-// k×k matrix a (row-major), each zeroing one off-diagonal pair (the
-// symmetric Schur decomposition, Golub & Van Loan Alg. 8.5.1). O(k³).
-func jacobiSweep(a []float64, k int) {
-	for p := 0; p < k-1; p++ {
-		for r := p + 1; r < k; r++ {
-			apr := a[p*k+r]
-			if apr == 0 {
-				continue
-			}
-			// The rotation (c, s) that zeroes a[p][r] (the symmetric
-			// Schur decomposition, Golub & Van Loan Alg. 8.5.1).
-			tau := (a[r*k+r] - a[p*k+p]) / (2 * apr)
-			t := 1 / (math.Abs(tau) + math.Sqrt(1+tau*tau))
-			if tau < 0 {
-				t = -t
-			}
-			cs := 1 / math.Sqrt(1+t*t)
-			sn := t * cs
-			for i := 0; i < k; i++ { // columns p, r
-				aip, air := a[i*k+p], a[i*k+r]
-				a[i*k+p], a[i*k+r] = cs*aip-sn*air, sn*aip+cs*air
-			}
-			for i := 0; i < k; i++ { // rows p, r
-				api, ari := a[p*k+i], a[r*k+i]
-				a[p*k+i], a[r*k+i] = cs*api-sn*ari, sn*api+cs*ari
-			}
+		if below(mid) == k {
+			hi = mid // every eigenvalue below mid
+		} else {
+			lo = mid
 		}
 	}
+	return (lo + hi) / 2
 }
