@@ -116,6 +116,63 @@ func secondSingularValue(obs, row, col []float64, n float64) float64 {
 	return svd.Values(nil)[1]
 }
 
+// TestMaxCorrelationPower: beyond 16 values the signal is a power
+// iteration's lower bound of ρ_m: between Cramér's V and the exact ρ_m
+// (gonum's SVD), equal to it on a table with a dominant two-block contrast,
+// and the same bits for (a, b) and (b, a) (z = 0, so exp(−EdgeCost) is the
+// signal itself).
+func TestMaxCorrelationPower(t *testing.T) {
+	t.Parallel()
+	m := mustBayes(t, scorer.WithSignalZ(0))
+	rng := rand.New(rand.NewPCG(8, 8))
+	for _, k := range []int{17, 24, 40} {
+		for trial := range 4 {
+			c := make([]uint32, k*k)
+			obs := make([]float64, k*k)
+			row, col := make([]float64, k), make([]float64, k)
+			n := 0.0
+			for u := range k {
+				for v := range k {
+					x := rng.IntN(50)
+					if trial%2 == 1 && (u < k/2) == (v < k/2) {
+						x += 400
+					}
+					c[u*k+v] = uint32(x)
+					obs[u*k+v] = float64(x) + 1
+					row[u] += float64(x) + 1
+					col[v] += float64(x) + 1
+					n += float64(x) + 1
+				}
+			}
+			exp := make([]float64, k*k)
+			for u := range k {
+				for v := range k {
+					exp[u*k+v] = row[u] * col[v] / n
+				}
+			}
+			v := math.Sqrt(stat.ChiSquare(obs, exp) / (n * float64(k-1)))
+			want := secondSingularValue(obs, row, col, n)
+			ps := graphidx.NewPairStats(1, 2, k, k, c)
+			got := math.Exp(-m.EdgeCost(ps))
+			if !(got >= v-1e-12 && got <= want+1e-12) {
+				t.Errorf("k %d trial %d: %g outside [V %g, ρ_m %g]", k, trial, got, v, want)
+			}
+			if trial%2 == 1 && math.Abs(got-want) > 1e-6 {
+				t.Errorf("k %d dominant contrast: %g, ρ_m %g", k, got, want)
+			}
+			tr := make([]uint32, k*k)
+			for u := range k {
+				for w := range k {
+					tr[w*k+u] = c[u*k+w]
+				}
+			}
+			if back := math.Exp(-m.EdgeCost(graphidx.NewPairStats(2, 1, k, k, tr))); back != got {
+				t.Errorf("k %d trial %d: (a, b) %v, (b, a) %v", k, trial, got, back)
+			}
+		}
+	}
+}
+
 // TestMaxCorrelationAlongMarkovChain: for X → Y → Z Markov with 3–4 values
 // each, the maximal correlation of (X, Z) is at most the product of those
 // of (X, Y) and (Y, Z) (Witsenhausen 1975), so the z = 0 costs satisfy
