@@ -92,7 +92,7 @@ import (
 //	Err_chain = Σ_v Var(p̂_v) + β·m + γ·(δ − L)₊² + max(λ·S, E),   L = Π_k ℓ_k,
 //
 // S the separation bias and E the bound excess (below),
-// where ℓ_k = max(0, V̂_k − z/√n_k) is edge k's association lower bound
+// where ℓ_k = max(0, ρ̂_k − z/√n_k) is edge k's association lower bound
 // (SignalBound; EdgeCost = −log ℓ_k, so L = exp(−Σ_k EdgeCost)). The last
 // term is the missing-signal bias: a chain whose signal cannot be told from
 // zero answers about the target's marginal, and when the endpoints are in

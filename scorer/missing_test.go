@@ -141,3 +141,48 @@ func TestFitChainBias(t *testing.T) {
 		t.Errorf("δ = 2: error %v, want ErrFit", err)
 	}
 }
+
+// TestMissingSignalMultiValued: a chain of 4-valued entities whose edges
+// each carry one strong binary contrast (values {0, 1} against {2, 3}) keeps
+// its signal: L is the product of the edges' maximal-correlation lower
+// bounds, here ≥ δ, so the chain pays no missing-signal term. Cramér's V of
+// such an edge is ρ_m/√3, and the product of V's would have fallen below δ
+// and charged γ·(δ − L)₊² to a chain that misses nothing.
+func TestMissingSignalMultiValued(t *testing.T) {
+	t.Parallel()
+	// Rows: a value in {0, 1} puts 90 % of its mass on {0, 1}, a value in
+	// {2, 3} 90 % on {2, 3}; 250 contexts per row.
+	contrast := [][]uint32{
+		{113, 112, 13, 12},
+		{112, 113, 12, 13},
+		{13, 12, 113, 112},
+		{12, 13, 112, 113},
+	}
+	st := newMemStats().entity(1, 4).entity(2, 4).entity(3, 4)
+	st.pair(1, 2, contrast).pair(2, 3, contrast)
+	const gamma, delta = 3.0, 0.4
+	off := mustBayes(t, scorer.WithMissingSignal(0, delta))
+	on := mustBayes(t, scorer.WithMissingSignal(gamma, delta))
+	ps, ok := st.Pair(1, 2)
+	if !ok {
+		t.Fatal("no pair (1, 2)")
+	}
+	// The maximal correlation is the contrast's |φ| on the 2×2 collapse,
+	// about 0.8 = 0.9 − 0.1 (each half of a row splits evenly inside its
+	// block), less z/√n = 2/√1016 ≈ 0.063: both edges together keep L ≥ δ.
+	lb := on.SignalBound(ps)
+	if l := lb * lb; !(l >= delta && lb <= 0.8) {
+		t.Fatalf("signal bound %g (L = %g), want ≤ 0.8 with L ≥ δ = %g", lb, l, delta)
+	}
+	e0, err := off.Chain(nil, st, 1, 0, []graphidx.EntityID{2}, 3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	e1, err := on.Chain(nil, st, 1, 0, []graphidx.EntityID{2}, 3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if e1.Err != e0.Err {
+		t.Errorf("L = %g ≥ δ: Err %g with the term, %g without; want equal", lb*lb, e1.Err, e0.Err)
+	}
+}

@@ -135,9 +135,9 @@ func WithN0(n0 float64) Option {
 }
 
 // WithSignalZ sets BayesConfig.SignalZ, z (finite, ≥ 0) of the Bayes model's
-// candidate-generation proxy EdgeCost = −log max(ε, V̂ − z/√n): how many
+// candidate-generation proxy EdgeCost = −log max(ε, ρ̂ − z/√n): how many
 // standard errors the edge association is discounted by. Default
-// DefaultSignalZ; 0 ranks edges by the point estimate V̂. Bayes model only.
+// DefaultSignalZ; 0 ranks edges by the point estimate ρ̂. Bayes model only.
 func WithSignalZ(z float64) Option {
 	return option{"WithSignalZ", func(c *BayesConfig) { c.SignalZ = z }, nil}
 }

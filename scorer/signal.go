@@ -24,39 +24,49 @@ var MaxEdgeCost = -math.Log(signalFloor)
 // EdgeCost is the signal-loss proxy of the edge (a, b) used to generate
 // chain candidates (docs/DESIGN.md, Bridge search):
 //
-//	cost = −log max(ε, V̂ − z/√n),   ε = 10⁻¹², n = support + K_a·K_b·α,
+//	cost = −log max(ε, ρ̂ − z/√n),   ε = 10⁻¹², n = support + K_a·K_b·α,
 //
-// where V̂ is Cramér's V of the posterior-mean joint table
-// p_uv = (N_uv + α)/(N + K_a K_b α) (a symmetric Dirichlet(α) over the K_a·K_b
-// cells; Gelman et al., BDA 3rd ed. §3.4),
+// where ρ̂ is the maximal correlation (Hirschfeld–Gebelein–Rényi) of the
+// posterior-mean joint table p_uv = (N_uv + α)/(N + K_a K_b α) (a symmetric
+// Dirichlet(α) over the K_a·K_b cells; Gelman et al., BDA 3rd ed. §3.4):
+// the second singular value of p_uv/√(p_u p_v) (see maxCorrelation). When
+// an entity is binary it equals Cramér's V (Cramér 1946, Mathematical
+// Methods of Statistics) of that table,
 //
 //	V̂ = sqrt( Σ_uv (p_uv − p_u p_v)² / (p_u p_v) / (min(K_a, K_b) − 1) ),
 //
-// i.e. Cramér's V (Cramér 1946, Mathematical Methods of Statistics) computed
-// on the probability table.
+// and for 2×2 tables |φ|, computed as such.
 //
-// Why: for binary variables Cramér's V is |φ|, the absolute correlation, and
-// along a Markov chain the correlation of the endpoints is the product of
-// the edge correlations. In a tree-structured model the true path between
-// two nodes maximises the product of |correlations| over all paths: every
-// edge of any other path has a correlation that is itself a product along
-// the tree path between its ends, all factors ≤ 1, and those tree paths
-// together cover the true path. This is the argument behind the
-// maximum-weight spanning trees of Chow & Liu (1968). So Σ_k −log V_k is an
+// Why: for binary variables |φ| is the absolute correlation, and along a
+// Markov chain the correlation of the endpoints is the product of the edge
+// correlations. In a tree-structured model the true path between two nodes
+// maximises the product of |correlations| over all paths: every edge of any
+// other path has a correlation that is itself a product along the tree path
+// between its ends, all factors ≤ 1, and those tree paths together cover
+// the true path. This is the argument behind the maximum-weight spanning
+// trees of Chow & Liu (1968). For K > 2 values the maximal correlation
+// keeps the product rule as a bound, ρ_m(a; c) ≤ ρ_m(a; b)·ρ_m(b; c) along
+// a Markov chain (Witsenhausen 1975); Cramér's V, the root mean square of
+// the K − 1 singular values, does not, and reads a dependence carried along
+// one direction √(K − 1) times too weak per edge. So Σ_k −log ρ_k is an
 // additive cost whose minimum is the chain that keeps the most signal, and
-// the k cheapest chains are the candidates worth scoring. Subtracting
-// z/√n turns V̂ into a lower confidence bound — the standard error of φ
-// under independence is about 1/√n (common practice) — so that edges of
-// little support do not look strong by chance. For K > 2 values V is no
-// longer a correlation and the product rule holds only approximately; the
-// cost is then a heuristic ranking.
+// the k cheapest chains are the candidates worth scoring. Subtracting z/√n
+// turns ρ̂ into a lower confidence bound — the standard error of φ under
+// independence is about 1/√n, and so is the first-order error of a simple
+// singular value (common practice) — so that edges of little support do
+// not look strong by chance.
 //
 // The cost is symmetric: (a, b) and (b, a) give the same value (bit for bit
-// for 2×2 tables, up to rounding otherwise). The result is ≥ 0 (V̂ ≤ 1) and
+// for 2×2 tables, up to rounding otherwise). The result is ≥ 0 (ρ̂ ≤ 1) and
 // at most MaxEdgeCost, which is also the
 // cost of an edge with K_a or K_b < 2 (presence-only entities carry no
-// signal to rank by). It is not monotone in support. O(K_a·K_b), no
-// allocation.
+// signal to rank by). It is not monotone in support. O(K_a·K_b) with a
+// binary side, O(K_a·K_b·k + k³) otherwise (k = min(K_a, K_b); closed
+// forms for k = 3 and 4; beyond 16 values a power-iteration lower bound in
+// O(K_a·K_b) per step), no allocation. Measured (BenchmarkEdgeSignal, one
+// run, shared machine): 150 ns at K = 3, 300 ns at K = 4, 1.9 µs at K = 8,
+// 23 µs at K = 32, against Cramér's V's 80, 116, 347 ns and 4.9 µs; binary
+// tables unchanged.
 func (b *Bayes) EdgeCost(ps graphidx.PairStats) float64 {
 	lb := b.signalBound(ps, true)
 	if !(lb > signalFloor) { // also catches NaN
@@ -68,7 +78,7 @@ func (b *Bayes) EdgeCost(ps graphidx.PairStats) float64 {
 	return -math.Log(lb)
 }
 
-// signalBound returns the edge's association lower bound V̂ − z/√n of
+// signalBound returns the edge's association lower bound ρ̂ − z/√n of
 // EdgeCost clamped to [0, 1]; 0 for an edge never observed (ok false), an
 // entity with fewer than 2 values, or NaN. O(K_a·K_b).
 func (b *Bayes) signalBound(ps graphidx.PairStats, ok bool) float64 {
@@ -76,7 +86,12 @@ func (b *Bayes) signalBound(ps graphidx.PairStats, ok bool) float64 {
 	if !ok || ka < 2 || kb < 2 || ka > graphidx.MaxValues || kb > graphidx.MaxValues {
 		return 0
 	}
-	v, n := cramersV(ps, b.alpha)
+	var v, n float64
+	if ka == 2 || kb == 2 {
+		v, n = cramersV(ps, b.alpha) // ρ_m = V with a binary side
+	} else {
+		v, n = maxCorrelation(ps, b.alpha)
+	}
 	lb := v - b.signalZ/math.Sqrt(n)
 	if !(lb > 0) {
 		return 0
@@ -84,7 +99,7 @@ func (b *Bayes) signalBound(ps graphidx.PairStats, ok bool) float64 {
 	return min(lb, 1)
 }
 
-// SignalBound returns the association lower bound max(0, min(1, V̂ − z/√n))
+// SignalBound returns the association lower bound max(0, min(1, ρ̂ − z/√n))
 // of the edge ps (see EdgeCost, whose cost is −log of it): 0 when the
 // association is not distinguishable from zero or an entity has fewer than
 // 2 values. The product of the bounds along a chain is the signal L of the

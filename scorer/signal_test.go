@@ -8,6 +8,7 @@ import (
 
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/scorer"
+	"gonum.org/v1/gonum/mat"
 	"gonum.org/v1/gonum/stat"
 )
 
@@ -36,11 +37,13 @@ func TestBayesEdgeCostHand(t *testing.T) {
 	}
 }
 
-// TestBayesEdgeCostMatchesFormulas compares EdgeCost (z = 0) with
-// −log V computed independently on the smoothed counts N + α: for 2×2
-// tables by the φ coefficient (ad − bc)/√((a+b)(c+d)(a+c)(b+d)) (common
-// practice), for larger tables by Pearson's χ² of gonum stat.ChiSquare and
-// V = √(χ²/(n·(min(K_a, K_b) − 1))) (Cramér 1946).
+// TestBayesEdgeCostMatchesFormulas compares EdgeCost (z = 0) with −log ρ_m
+// computed independently on the smoothed counts N + α: for 2×2 tables by
+// the φ coefficient (ad − bc)/√((a+b)(c+d)(a+c)(b+d)) (common practice),
+// for tables with a binary side by Pearson's χ² of gonum stat.ChiSquare
+// and V = √(χ²/(n·(min(K_a, K_b) − 1))) (Cramér 1946; ρ_m = V there), and
+// otherwise as the second singular value of p_uv/√(p_u p_v) by gonum's SVD
+// (the maximal correlation; Witsenhausen 1975).
 func TestBayesEdgeCostMatchesFormulas(t *testing.T) {
 	t.Parallel()
 	rng := rand.New(rand.NewPCG(17, 3))
@@ -70,10 +73,13 @@ func TestBayesEdgeCostMatchesFormulas(t *testing.T) {
 				}
 			}
 			var want float64
-			if ka == 2 && kb == 2 {
+			switch {
+			case ka == 2 && kb == 2:
 				a, b, c, d := obs[0], obs[1], obs[2], obs[3]
 				want = math.Abs(a*d-b*c) / math.Sqrt((a+b)*(c+d)*(a+c)*(b+d))
-			} else {
+			case ka > 2 && kb > 2:
+				want = secondSingularValue(obs, row, col, n)
+			default:
 				exp := make([]float64, ka*kb)
 				for u := range ka {
 					for v := range kb {
@@ -90,6 +96,176 @@ func TestBayesEdgeCostMatchesFormulas(t *testing.T) {
 				t.Errorf("α=%g %d×%d %v: V %.12g, want %.12g", alpha, ka, kb, counts, got, want)
 			}
 		}
+	}
+}
+
+// secondSingularValue returns the second singular value of the K_a×K_b
+// matrix p_uv/√(p_u p_v), p = obs/n, by gonum's SVD.
+func secondSingularValue(obs, row, col []float64, n float64) float64 {
+	ka, kb := len(row), len(col)
+	q := mat.NewDense(ka, kb, nil)
+	for u := range ka {
+		for v := range kb {
+			q.Set(u, v, obs[u*kb+v]/n/math.Sqrt(row[u]/n*col[v]/n))
+		}
+	}
+	var svd mat.SVD
+	if !svd.Factorize(q, mat.SVDNone) {
+		panic("SVD failed")
+	}
+	return svd.Values(nil)[1]
+}
+
+// TestMaxCorrelationPower: beyond 16 values the signal is a power
+// iteration's lower bound of ρ_m: between Cramér's V and the exact ρ_m
+// (gonum's SVD), equal to it on a table with a dominant two-block contrast,
+// and the same bits for (a, b) and (b, a) (z = 0, so exp(−EdgeCost) is the
+// signal itself).
+func TestMaxCorrelationPower(t *testing.T) {
+	t.Parallel()
+	m := mustBayes(t, scorer.WithSignalZ(0))
+	rng := rand.New(rand.NewPCG(8, 8))
+	for _, k := range []int{17, 24, 40} {
+		for trial := range 4 {
+			c := make([]uint32, k*k)
+			obs := make([]float64, k*k)
+			row, col := make([]float64, k), make([]float64, k)
+			n := 0.0
+			for u := range k {
+				for v := range k {
+					x := rng.IntN(50)
+					if trial%2 == 1 && (u < k/2) == (v < k/2) {
+						x += 400
+					}
+					c[u*k+v] = uint32(x)
+					obs[u*k+v] = float64(x) + 1
+					row[u] += float64(x) + 1
+					col[v] += float64(x) + 1
+					n += float64(x) + 1
+				}
+			}
+			exp := make([]float64, k*k)
+			for u := range k {
+				for v := range k {
+					exp[u*k+v] = row[u] * col[v] / n
+				}
+			}
+			v := math.Sqrt(stat.ChiSquare(obs, exp) / (n * float64(k-1)))
+			want := secondSingularValue(obs, row, col, n)
+			ps := graphidx.NewPairStats(1, 2, k, k, c)
+			got := math.Exp(-m.EdgeCost(ps))
+			if !(got >= v-1e-12 && got <= want+1e-12) {
+				t.Errorf("k %d trial %d: %g outside [V %g, ρ_m %g]", k, trial, got, v, want)
+			}
+			if trial%2 == 1 && math.Abs(got-want) > 1e-6 {
+				t.Errorf("k %d dominant contrast: %g, ρ_m %g", k, got, want)
+			}
+			tr := make([]uint32, k*k)
+			for u := range k {
+				for w := range k {
+					tr[w*k+u] = c[u*k+w]
+				}
+			}
+			if back := math.Exp(-m.EdgeCost(graphidx.NewPairStats(2, 1, k, k, tr))); back != got {
+				t.Errorf("k %d trial %d: (a, b) %v, (b, a) %v", k, trial, got, back)
+			}
+		}
+	}
+}
+
+// TestMaxCorrelationAlongMarkovChain: for X → Y → Z Markov with 3–4 values
+// each, the maximal correlation of (X, Z) is at most the product of those
+// of (X, Y) and (Y, Z) (Witsenhausen 1975), so the z = 0 costs satisfy
+// cost(X, Z) ≥ cost(X, Y) + cost(Y, Z); and for a channel that carries one
+// binary contrast (Y depends on X only through X < K/2), the bound holds
+// with equality while Cramér's V would read the edge √(K − 1) times weaker.
+func TestMaxCorrelationAlongMarkovChain(t *testing.T) {
+	t.Parallel()
+	m := mustBayes(t, scorer.WithSignalZ(0))
+	rng := rand.New(rand.NewPCG(9, 9))
+	dirichlet := func(k int) []float64 {
+		p := make([]float64, k)
+		s := 0.0
+		for i := range p {
+			p[i] = rng.ExpFloat64()
+			s += p[i]
+		}
+		for i := range p {
+			p[i] /= s
+		}
+		return p
+	}
+	table := func(p []float64, ka, kb int) graphidx.PairStats {
+		c := make([]uint32, len(p))
+		for i := range c {
+			c[i] = uint32(math.Round(p[i] * 1e9))
+		}
+		return graphidx.NewPairStats(1, 2, ka, kb, c)
+	}
+	for i := range 30 {
+		kx, ky, kz := 3+i%2, 3+(i/2)%2, 3+(i/4)%2
+		px := dirichlet(kx)
+		pyx := make([][]float64, kx) // P(Y | X = x)
+		contrast := i%3 == 0
+		for x := range kx {
+			if contrast && x > 0 && x < kx/2 {
+				pyx[x] = pyx[0]
+			} else if contrast && x > kx/2 {
+				pyx[x] = pyx[kx/2]
+			} else {
+				pyx[x] = dirichlet(ky)
+			}
+		}
+		pzy := make([][]float64, ky)
+		for y := range ky {
+			pzy[y] = dirichlet(kz)
+		}
+		xy, yz, xz := make([]float64, kx*ky), make([]float64, ky*kz), make([]float64, kx*kz)
+		for x := range kx {
+			for y := range ky {
+				for z := range kz {
+					p := px[x] * pyx[x][y] * pzy[y][z]
+					xy[x*ky+y] += p
+					yz[y*kz+z] += p
+					xz[x*kz+z] += p
+				}
+			}
+		}
+		cxy, cyz, cxz := m.EdgeCost(table(xy, kx, ky)), m.EdgeCost(table(yz, ky, kz)), m.EdgeCost(table(xz, kx, kz))
+		if cxz > 10 {
+			continue
+		}
+		if cxz < cxy+cyz-1e-4 {
+			t.Errorf("case %d: cost(X,Z) %.6f < cost(X,Y)+cost(Y,Z) %.6f", i, cxz, cxy+cyz)
+		}
+	}
+	// A rank-one channel: X with 4 values acts on Y (4 values) only through
+	// X ≥ 2; ρ_m(X; Y) is then the |φ| of that binary contrast, and V is
+	// ρ_m/√3.
+	px := []float64{0.1, 0.2, 0.3, 0.4}
+	lo, hi := []float64{0.6, 0.2, 0.1, 0.1}, []float64{0.1, 0.1, 0.2, 0.6}
+	xy := make([]float64, 16)
+	for x := range 4 {
+		r := lo
+		if x >= 2 {
+			r = hi
+		}
+		for y := range 4 {
+			xy[x*4+y] = px[x] * r[y]
+		}
+	}
+	// The contrast B = 1[X ≥ 2] with P(B = 1) = 0.7, and Y | B: the maximal
+	// correlation of (X, Y) equals that of (B, Y), which has a binary side,
+	// so its V is ρ_m.
+	by := make([]float64, 8)
+	for y := range 4 {
+		by[y] = 0.3 * lo[y]
+		by[4+y] = 0.7 * hi[y]
+	}
+	got := math.Exp(-m.EdgeCost(table(xy, 4, 4)))
+	want := math.Exp(-m.EdgeCost(table(by, 2, 4)))
+	if !near(got, want, 1e-6) {
+		t.Errorf("rank-one channel: ρ_m %.9f, want the contrast's %.9f", got, want)
 	}
 }
 

@@ -2,7 +2,9 @@ package cli
 
 import (
 	"encoding/json"
+	"errors"
 	"fmt"
+	"math"
 	"path/filepath"
 	"slices"
 	"strconv"
@@ -25,6 +27,9 @@ type evalOptions struct {
 	contexts     int
 	vars, edges  int
 	heldOut      int
+	values       string
+	cptAlpha     string
+	maxParents   string
 	json         bool
 	plot         string
 	fit          bool
@@ -85,12 +90,21 @@ is the one with the best Spearman ρ on the fit worlds), the gain margin k
 (the grid value with the smallest routed MSE) and the support model's v0,
 n0, β (scorer.FitSupport).
 
+--values, --cpt-alpha and --max-parents shape the generated networks: K
+values per variable, Beta(a, a) (binary) or Dirichlet(a, …, a) rows of
+every conditional table (smaller a: more nearly deterministic tables) and
+at most P parents per variable. Each takes one value or a comma-separated
+list; with a list, world i (in seed order) uses entry i modulo the list's
+length, so "--values 2,3,4 --cpt-alpha 0.2,0.5,1" alternates three kinds of
+network over the seeds (also for --fit).
+
 --write-queries DIR keeps, for the first world, DIR/corpus.jsonl,
 DIR/index.hwx, DIR/queries.jsonl (input of "hopwise route --queries") and
 DIR/truth.jsonl (the exact answers by id).`,
 		Example: `  hopwise eval
   hopwise eval --condition all --seed 1 --worlds 5 --plot eval.png
   hopwise eval --seeds 1,2,3 --json > eval.json
+  hopwise eval --values 3 --cpt-alpha 0.5 --max-parents 3 --vars 40 --edges 60 --held-out 40 --seeds 1,2,3
   hopwise eval --fit --fit-seeds 101,102,103,104,105`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error { return runEval(cmd, o) },
@@ -105,6 +119,9 @@ DIR/truth.jsonl (the exact answers by id).`,
 	f.IntVar(&o.vars, "vars", def.Vars, "variables per world")
 	f.IntVar(&o.edges, "edges", def.Edges, "directed edges per world")
 	f.IntVar(&o.heldOut, "held-out", def.HeldOut, "held-out pairs per world")
+	f.StringVar(&o.values, "values", "2", fmt.Sprintf("K: values per variable (2..%d), or a list cycled over the worlds", world.MaxValues))
+	f.StringVar(&o.cptAlpha, "cpt-alpha", "0.2", "a: Beta(a, a) / Dirichlet(a) concentration of the conditional tables (finite, > 0), or a list")
+	f.StringVar(&o.maxParents, "max-parents", "0", "P: most parents per variable (0: no cap), or a list")
 	f.BoolVar(&o.json, "json", false, "print the JSON summary instead of the table")
 	f.StringVar(&o.plot, "plot", "", "write a PNG bar chart of the per-condition means")
 	f.BoolVar(&o.fit, "fit", false, "fit β and the support-model constants instead of evaluating")
@@ -180,17 +197,13 @@ func runEval(cmd *cobra.Command, o evalOptions) error {
 	if o.contexts < 1 {
 		return fmt.Errorf("--contexts: must be ≥ 1, got %d", o.contexts)
 	}
-	if o.vars < 2 || o.edges < 0 || o.heldOut < 0 {
-		return fmt.Errorf("--vars ≥ 2, --edges ≥ 0 and --held-out ≥ 0 required")
-	}
-	wc := world.EvalConfig()
-	wc.Vars, wc.Edges, wc.HeldOut = o.vars, o.edges, o.heldOut
-	if o.edges == 0 {
-		wc.Edges = -1 // world.Config: negative means no edges
+	worlds, err := o.worldConfigs()
+	if err != nil {
+		return err
 	}
 	beta := o.beta
 	base := eval.Config{
-		World: &wc, Contexts: o.contexts, Beta: &beta, MaxBridges: o.maxBridges, Workers: o.workers,
+		World: &worlds[0], Contexts: o.contexts, Beta: &beta, MaxBridges: o.maxBridges, Workers: o.workers,
 		ModelOptions: []scorer.Option{
 			scorer.WithPriorStrength(o.prior), scorer.WithUnseenSpread(o.spread), scorer.WithSeparation(o.separation), scorer.WithNoiseK(o.noiseK), scorer.WithInfluence(o.influence),
 		},
@@ -218,17 +231,17 @@ func runEval(cmd *cobra.Command, o evalOptions) error {
 			return fmt.Errorf("--fit: give one --condition")
 		}
 		base.Condition = conds[0]
-		fr, err := eval.Fit(ctx, eval.FitConfig{Base: base, Seeds: fitSeeds, StartBeta: &beta,
+		fr, err := eval.Fit(ctx, eval.FitConfig{Base: base, Seeds: fitSeeds, Worlds: worlds, StartBeta: &beta,
 			Log: func(format string, args ...any) { fmt.Fprintf(cmd.ErrOrStderr(), format+"\n", args...) }})
 		if err != nil {
-			return err
+			return networkFlags(err)
 		}
 		if o.json {
 			enc := json.NewEncoder(out)
 			enc.SetIndent("", "  ")
 			return enc.Encode(fr)
 		}
-		fmt.Fprintf(out, "fitted on %s worlds, seeds %v (%d contexts each)\n", fr.Condition, fr.Seeds, o.contexts)
+		fmt.Fprintf(out, "fitted on %s worlds, seeds %v (%d contexts each; values %s, cpt-alpha %s, max-parents %s)\n", fr.Condition, fr.Seeds, o.contexts, o.values, o.cptAlpha, o.maxParents)
 		fmt.Fprintf(out, "bayes   A  = %.6g  η = %.6g   (direct prior strength and unseen-pair spread, %d unobserved-pair queries)\n", fr.PriorStrength, fr.UnseenSpread, fr.PriorSamples)
 		fmt.Fprintf(out, "bayes   β  = %.6g  γ = %.6g  δ = %.6g   (fixed point β %v, γ %v, %d chains)\n",
 			fr.Beta, fr.Gamma, fr.Delta, fr.BetaPath, fr.GammaPath, fr.ChainSamples)
@@ -250,12 +263,13 @@ func runEval(cmd *cobra.Command, o evalOptions) error {
 		for si, s := range seeds {
 			cfg := base
 			cfg.Condition, cfg.Seed = c, s
+			cfg.World = &worlds[si%len(worlds)]
 			if ci == 0 && si == 0 && o.writeQueries != "" {
 				cfg.Dir = o.writeQueries
 			}
 			r, err := eval.Run(ctx, cfg)
 			if err != nil {
-				return err
+				return networkFlags(err)
 			}
 			reports = append(reports, r)
 			if !o.json {
@@ -281,4 +295,85 @@ func runEval(cmd *cobra.Command, o evalOptions) error {
 		fmt.Fprintf(out, "plot: %s\n", filepath.Clean(o.plot))
 	}
 	return nil
+}
+
+// worldConfigs returns the network configurations of --vars, --edges,
+// --held-out, --values, --cpt-alpha and --max-parents: one per entry of the
+// longest list (world i uses entry i modulo its list's length). Every entry
+// is checked here, so that a bad value is reported with its flag before any
+// world is built: K in 2..world.MaxValues, a finite > 0, P ≥ 0, the edges
+// placeable under P, and no conditional table beyond world.MaxCPTCells.
+func (o evalOptions) worldConfigs() ([]world.Config, error) {
+	if o.vars < 2 || o.edges < 0 || o.heldOut < 0 {
+		return nil, fmt.Errorf("--vars ≥ 2, --edges ≥ 0 and --held-out ≥ 0 required")
+	}
+	ks, err := parseList("--values", o.values, strconv.Atoi)
+	if err != nil {
+		return nil, err
+	}
+	as, err := parseList("--cpt-alpha", o.cptAlpha, func(s string) (float64, error) { return strconv.ParseFloat(s, 64) })
+	if err != nil {
+		return nil, err
+	}
+	ps, err := parseList("--max-parents", o.maxParents, strconv.Atoi)
+	if err != nil {
+		return nil, err
+	}
+	n := max(len(ks), len(as), len(ps))
+	out := make([]world.Config, n)
+	for i := range out {
+		k, a, p := ks[i%len(ks)], as[i%len(as)], ps[i%len(ps)]
+		if k < 2 || k > world.MaxValues {
+			return nil, fmt.Errorf("--values: K must be in 2..%d, got %d", world.MaxValues, k)
+		}
+		if !(a > 0) || math.IsInf(a, 0) {
+			return nil, fmt.Errorf("--cpt-alpha: the concentration must be finite and > 0, got %v", a)
+		}
+		if p < 0 {
+			return nil, fmt.Errorf("--max-parents: must be ≥ 0 (0: no cap), got %d", p)
+		}
+		wc := world.EvalConfig()
+		wc.Vars, wc.Edges, wc.HeldOut = o.vars, o.edges, o.heldOut
+		if o.edges == 0 {
+			wc.Edges = -1 // world.Config: negative means no edges
+		}
+		wc.Values, wc.CPTAlpha, wc.CPTBeta, wc.MaxParents = k, a, a, p
+		if m := world.MaxEdges(o.vars, p); o.edges > m {
+			return nil, fmt.Errorf("--edges: %d directed edges exceed the %d possible for %d variables with --max-parents %d", o.edges, m, o.vars, p)
+		}
+		if p > 0 && !world.CPTFits(k, p) {
+			return nil, fmt.Errorf("--values %d with --max-parents %d: a variable's conditional table of %d^%d cells would exceed %d; lower one of them", k, p, k, p+1, world.MaxCPTCells)
+		}
+		out[i] = wc
+	}
+	return out, nil
+}
+
+// networkFlags names the flags behind a network the world generator
+// refused (world.ErrInvalidConfig: for example a variable drew so many
+// parents that its table would not fit, which only generation can tell
+// without --max-parents); other errors are returned as they are.
+func networkFlags(err error) error {
+	if errors.Is(err, world.ErrInvalidConfig) {
+		return fmt.Errorf("%w (the network is set by --vars, --edges, --held-out, --values, --cpt-alpha and --max-parents)", err)
+	}
+	return err
+}
+
+// parseList parses a comma-separated list of values of flag (at least one);
+// errors name the flag and the bad entry.
+func parseList[T any](flag, s string, parse func(string) (T, error)) ([]T, error) {
+	var out []T
+	for _, part := range strings.Split(s, ",") {
+		part = strings.TrimSpace(part)
+		if part == "" {
+			return nil, fmt.Errorf("%s: empty entry in %q", flag, s)
+		}
+		v, err := parse(part)
+		if err != nil {
+			return nil, fmt.Errorf("%s: bad value %q", flag, part)
+		}
+		out = append(out, v)
+	}
+	return out, nil
 }

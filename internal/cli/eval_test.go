@@ -151,6 +151,62 @@ func TestEvalFlagErrors(t *testing.T) {
 	}
 }
 
+// TestEvalNetworkFlags: --values, --cpt-alpha and --max-parents are
+// checked before any world is built, each error naming its flag and the
+// bad value; and a valid multi-valued setting reaches the generated worlds
+// (the index then holds K values per entity) for eval and for --fit.
+func TestEvalNetworkFlags(t *testing.T) {
+	t.Parallel()
+	for _, c := range []struct {
+		args []string
+		want string
+	}{
+		{[]string{"--values", "1"}, "--values: K must be in 2..64, got 1"},
+		{[]string{"--values", "65"}, "--values: K must be in 2..64, got 65"},
+		{[]string{"--values", "three"}, `--values: bad value "three"`},
+		{[]string{"--values", "2,,3"}, "--values: empty entry"},
+		{[]string{"--cpt-alpha", "0"}, "--cpt-alpha: the concentration must be finite and > 0, got 0"},
+		{[]string{"--cpt-alpha", "-1"}, "--cpt-alpha: the concentration must be finite and > 0, got -1"},
+		{[]string{"--cpt-alpha", "NaN"}, "--cpt-alpha: the concentration must be finite and > 0, got NaN"},
+		{[]string{"--cpt-alpha", "+Inf"}, "--cpt-alpha: the concentration must be finite and > 0, got +Inf"},
+		{[]string{"--cpt-alpha", "0.5,x"}, `--cpt-alpha: bad value "x"`},
+		{[]string{"--max-parents", "-1"}, "--max-parents: must be ≥ 0 (0: no cap), got -1"},
+		{[]string{"--max-parents", "1", "--vars", "10", "--edges", "10"}, "--edges: 10 directed edges exceed the 9 possible for 10 variables with --max-parents 1"},
+		{[]string{"--values", "64", "--max-parents", "4"}, "--values 64 with --max-parents 4: a variable's conditional table of 64^5 cells would exceed 4194304"},
+		{[]string{"--fit", "--fit-seeds", "101", "--values", "0"}, "--values: K must be in 2..64, got 0"},
+		// Without a cap only generation finds a variable with 9 parents of
+		// 64 values (64^10 cells); the error names the flags.
+		{[]string{"--values", "64", "--vars", "30", "--edges", "200"}, "would exceed 4194304 cells (lower Values or set MaxParents) (the network is set by --vars, --edges, --held-out, --values, --cpt-alpha and --max-parents)"},
+	} {
+		_, _, err := evalCLI(t, append([]string{"eval", "--contexts", "100"}, c.args...)...)
+		if err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%v: error %v, want it to contain %q", c.args, err, c.want)
+		}
+	}
+	// Valid settings: seed i uses entry i of each list; the index of the
+	// kept world (--write-queries: the first one) has K = 3 values.
+	dir := t.TempDir()
+	out, _, err := evalCLI(t, "eval", "--json", "--vars", "20", "--edges", "24", "--held-out", "4", "--contexts", "3000",
+		"--seeds", "5,6", "--values", "3,2", "--cpt-alpha", "0.5", "--max-parents", "3", "--write-queries", dir)
+	if err != nil {
+		t.Fatalf("eval: %v", err)
+	}
+	if !strings.Contains(out, `"worlds"`) {
+		t.Fatalf("eval JSON: %.300s", out)
+	}
+	tf, err := os.ReadFile(filepath.Join(dir, "truth.jsonl"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	first, _, _ := strings.Cut(string(tf), "\n")
+	var tl struct {
+		Truth map[string]float64 `json:"truth"`
+	}
+	if err := json.Unmarshal([]byte(first), &tl); err != nil || len(tl.Truth) != 3 {
+		t.Errorf("first truth line %q (%v): want a distribution over 3 values", first, err)
+	}
+}
+
 func TestEvalTableAndPlot(t *testing.T) {
 	t.Parallel()
 	png := filepath.Join(t.TempDir(), "eval.png")

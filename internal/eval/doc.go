@@ -73,7 +73,9 @@
 //	hopwise eval --fit --fit-seeds 101,102,103,104,105
 //
 // on local-geometric worlds (EvalConfig, 50000 contexts) and were evaluated on
-// seeds 1–5.
+// seeds 1–5. FitConfig.Worlds (the CLI's --values, --cpt-alpha and
+// --max-parents lists) gives each fit seed its own network, for fits on
+// multi-valued or mixed networks.
 //
 // Concurrency: Run and Bench.Answer answer queries on Config.Workers
 // goroutines, each with its own scorer.Workspace; results do not depend on

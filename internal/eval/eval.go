@@ -271,7 +271,10 @@ type QueryResult struct {
 	ChainBridges int
 	// ChainSignal is the best chain's signal L = Π_k SignalBound(edge k)
 	// (0 without a chain).
-	ChainSignal  float64
+	ChainSignal float64
+	// ChainPath is the best chain's path in index ids, observed entity,
+	// bridges, target (nil without a chain).
+	ChainPath    []graphidx.EntityID
 	IdealBridges int
 }
 
@@ -639,6 +642,7 @@ func (b *Bench) answer(ctx context.Context, rt *router.Router, model scorer.Mode
 			path = append(path, id)
 		}
 		path = append(path, t)
+		r.ChainPath = path
 		r.ChainSups = b.pathSupports(path)
 		if bm, ok := model.(*scorer.Bayes); ok {
 			r.ChainSignal = 1

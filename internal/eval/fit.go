@@ -6,6 +6,7 @@ import (
 	"math"
 	"slices"
 
+	"github.com/hopwise/hopwise/internal/world"
 	"github.com/hopwise/hopwise/router"
 	"github.com/hopwise/hopwise/scorer"
 )
@@ -17,6 +18,10 @@ type FitConfig struct {
 	// Seeds are the worlds to fit on. They must differ from the seeds the
 	// fitted values are evaluated on (Fit cannot check that; the CLI does).
 	Seeds []int64
+	// Worlds, when set, are the network configurations of the fit worlds:
+	// seed i is generated from Worlds[i mod len(Worlds)] (for example
+	// binary and multi-valued networks mixed); otherwise Base.World.
+	Worlds []world.Config
 	// StartBeta is the β of the first pass (default scorer.DefaultBeta).
 	StartBeta *float64
 	// Deltas are the candidate δ of the missing-signal bias (default
@@ -74,6 +79,9 @@ type FitResult struct {
 	Support scorer.SupportFit `json:"support"`
 	// Seeds are the worlds used.
 	Seeds []int64 `json:"seeds"`
+	// Values holds, per fit world (in seed order), the most values a
+	// variable of the generated network has.
+	Values []int `json:"values"`
 	// Condition is the world condition used.
 	Condition string `json:"condition"`
 }
@@ -177,9 +185,13 @@ func Fit(ctx context.Context, fc FitConfig) (FitResult, error) {
 			b.Close()
 		}
 	}()
-	for _, seed := range fc.Seeds {
+	for i, seed := range fc.Seeds {
 		c := fc.Base
 		c.Seed = seed
+		if len(fc.Worlds) > 0 {
+			w := fc.Worlds[i%len(fc.Worlds)]
+			c.World = &w
+		}
 		c.KeepQueries = true
 		c.Dir = ""
 		b, err := Prepare(ctx, c)
@@ -189,6 +201,13 @@ func Fit(ctx context.Context, fc FitConfig) (FitResult, error) {
 		benches = append(benches, b)
 	}
 	res := FitResult{Seeds: fc.Seeds, Condition: benches[0].cfg.Condition}
+	for _, b := range benches {
+		k := 0
+		for v := range b.World.NumVars() {
+			k = max(k, b.World.Card(v))
+		}
+		res.Values = append(res.Values, k)
+	}
 	// answerAll answers every fit world; rho and ratio are the means over
 	// worlds of the calibration figures.
 	var fitted []scorer.Option // constants fitted so far, applied after the base options

@@ -4,9 +4,11 @@ import (
 	"context"
 	"errors"
 	"math"
+	"slices"
 	"testing"
 
 	"github.com/hopwise/hopwise/internal/eval"
+	"github.com/hopwise/hopwise/internal/world"
 )
 
 // TestFitSmallWorlds runs the calibration on two small worlds with a
@@ -49,5 +51,25 @@ func TestFitSmallWorlds(t *testing.T) {
 
 	if _, err := eval.Fit(context.Background(), eval.FitConfig{Base: smallConfig(0), Seeds: []int64{5}, Deltas: []float64{1.5}}); !errors.Is(err, eval.ErrConfig) {
 		t.Errorf("δ 1.5: error %v, want ErrConfig", err)
+	}
+}
+
+// TestFitMixedWorlds: FitConfig.Worlds sets the network of each fit world
+// (seed i from Worlds[i mod len]), so a fit can mix binary and multi-valued
+// networks; the result names the K of every world it was fitted on.
+func TestFitMixedWorlds(t *testing.T) {
+	t.Parallel()
+	base := smallConfig(0)
+	bin, three := *base.World, *base.World
+	three.Values, three.CPTAlpha, three.CPTBeta, three.MaxParents = 3, 0.5, 0.5, 2
+	fr, err := eval.Fit(context.Background(), eval.FitConfig{
+		Base: base, Seeds: []int64{5, 6, 7}, Worlds: []world.Config{bin, three},
+		Deltas: []float64{0.125}, MaxIter: 1, NoiseKs: []float64{1},
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if want := []int{2, 3, 2}; !slices.Equal(fr.Values, want) {
+		t.Errorf("fit worlds have %v values, want %v", fr.Values, want)
 	}
 }

@@ -101,3 +101,26 @@ func ExampleBurglary() {
 	fmt.Printf("P(Burglary | j, m) = <%.3f, %.3f>\n", p[1], p[0])
 	// Output: P(Burglary | j, m) = <0.284, 0.716>
 }
+
+// ExampleGenerate generates a network of 3-valued variables with at most 3
+// parents each, after checking that the edges fit under the cap (0 + 1 + 2 +
+// 3·37 = 114 for 40 variables) and that a variable with the most parents has
+// a table of acceptable size (3⁴ cells).
+func ExampleGenerate() {
+	cfg := world.Config{Vars: 40, Edges: 60, Values: 3, MaxParents: 3, CPTAlpha: 0.5, CPTBeta: 0.5}
+	fmt.Println("edges possible:", world.MaxEdges(cfg.Vars, cfg.MaxParents))
+	fmt.Println("table fits:", world.CPTFits(cfg.Values, cfg.MaxParents))
+	w, err := world.Generate(cfg, 1)
+	if err != nil {
+		panic(err)
+	}
+	most := 0
+	for v := range w.NumVars() {
+		most = max(most, len(w.Parents(v)))
+	}
+	fmt.Println("variables:", w.NumVars(), "values:", w.Card(0), "most parents:", most)
+	// Output:
+	// edges possible: 114
+	// table fits: true
+	// variables: 40 values: 3 most parents: 3
+}

@@ -18,6 +18,49 @@ const (
 	streamWrong     = 0xa0761d6478bd642f
 )
 
+// MaxValues is the most values a variable may have (Config.Values, the
+// labels of a Variable): the index's limit (graphidx.MaxValues).
+const MaxValues = 64
+
+// MaxCPTCells is the most cells Generate gives one conditional table (K^(P+1)
+// for P parents of K values): beyond it the table, and exact inference over
+// it, would not fit in memory. About 32 MiB of float64.
+const MaxCPTCells = 1 << 22
+
+// MaxEdges returns the most directed edges Generate can place among vars
+// variables when each has at most maxParents parents (0: no cap): vars·(vars
+// − 1)/2 without a cap, Σ_pos min(pos, maxParents) with one. O(vars).
+func MaxEdges(vars, maxParents int) int {
+	if vars < 1 {
+		return 0
+	}
+	if maxParents <= 0 {
+		return vars * (vars - 1) / 2
+	}
+	m := 0
+	for pos := range vars {
+		m += min(pos, maxParents)
+	}
+	return m
+}
+
+// CPTFits reports whether a variable of k values with the given number of
+// parents (of k values each) has a conditional table of at most MaxCPTCells
+// cells. O(parents).
+func CPTFits(k, parents int) bool {
+	if k < 1 || parents < 0 {
+		return false
+	}
+	cells := k
+	for range parents {
+		if cells > MaxCPTCells/k {
+			return false
+		}
+		cells *= k
+	}
+	return true
+}
+
 func newRand(seed int64, stream uint64) *rand.Rand {
 	return rand.New(rand.NewPCG(uint64(seed), stream))
 }
@@ -80,8 +123,8 @@ func (c Config) withDefaults() (Config, error) {
 	if c.Values == 0 {
 		c.Values = 2
 	}
-	if c.Values < 2 || c.Values > 64 {
-		return c, fmt.Errorf("%w: Values = %d, want 2..64", ErrInvalidConfig, c.Values)
+	if c.Values < 2 || c.Values > MaxValues {
+		return c, fmt.Errorf("%w: Values = %d, want 2..%d", ErrInvalidConfig, c.Values, MaxValues)
 	}
 	if c.CPTAlpha == 0 {
 		c.CPTAlpha = 0.2
@@ -128,15 +171,7 @@ func Generate(cfg Config, seed int64) (*World, error) {
 	n := cfg.Vars
 	rs := newRand(seed, streamStructure)
 	perm := rs.Perm(n) // perm[pos] = variable at position pos in the order
-	maxEdges := n * (n - 1) / 2
-	if cfg.MaxParents > 0 {
-		m := 0
-		for pos := range n {
-			m += min(pos, cfg.MaxParents)
-		}
-		maxEdges = m
-	}
-	if cfg.Edges > maxEdges {
+	if maxEdges := MaxEdges(n, cfg.MaxParents); cfg.Edges > maxEdges {
 		return nil, fmt.Errorf("%w: Edges = %d exceeds the %d possible for %d variables (MaxParents %d)", ErrInvalidConfig, cfg.Edges, maxEdges, n, cfg.MaxParents)
 	}
 	parents := make([][]int, n)
@@ -216,6 +251,11 @@ func Generate(cfg Config, seed int64) (*World, error) {
 		names = make([]string, n)
 		for v := range n {
 			names[v] = fmt.Sprintf("v%0*d", width, v)
+		}
+	}
+	for v := range n {
+		if !CPTFits(k, len(parents[v])) {
+			return nil, fmt.Errorf("%w: variable %s has %d parents of %d values: its conditional table would exceed %d cells (lower Values or set MaxParents)", ErrInvalidConfig, names[v], len(parents[v]), k, MaxCPTCells)
 		}
 	}
 	rc := newRand(seed, streamCPT)

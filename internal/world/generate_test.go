@@ -113,3 +113,45 @@ func TestGenerateStructure(t *testing.T) {
 		t.Errorf("duplicate names: %v", err)
 	}
 }
+
+// TestMaxEdgesAndCPTFits checks the two limits of Generate by hand: the
+// edges placeable under a parent cap (Σ_pos min(pos, P)), and the size of a
+// conditional table K^(P+1) against MaxCPTCells; and Generate refusing a
+// network whose table would not fit, naming the variable.
+func TestMaxEdgesAndCPTFits(t *testing.T) {
+	t.Parallel()
+	for _, c := range []struct{ vars, parents, want int }{
+		{10, 0, 45}, {10, 1, 9}, {10, 3, 0 + 1 + 2 + 3*7}, {1, 0, 0}, {0, 2, 0},
+	} {
+		if got := MaxEdges(c.vars, c.parents); got != c.want {
+			t.Errorf("MaxEdges(%d, %d) = %d, want %d", c.vars, c.parents, got, c.want)
+		}
+	}
+	for _, c := range []struct {
+		k, parents int
+		want       bool
+	}{
+		{2, 21, true},  // 2^22 cells
+		{2, 22, false}, // 2^23
+		{64, 2, true},  // 2^18
+		{64, 3, false}, // 2^24
+		{4, 10, true},  // 4^11 = 2^22
+		{4, 11, false}, // 4^12
+		{3, 0, true},
+		{0, 1, false},
+		{2, -1, false},
+	} {
+		if got := CPTFits(c.k, c.parents); got != c.want {
+			t.Errorf("CPTFits(%d, %d) = %v, want %v", c.k, c.parents, got, c.want)
+		}
+	}
+	// 12 variables, every pair an edge: the last variable has 11 parents;
+	// with 4 values its table has 4^12 cells.
+	_, err := Generate(Config{Vars: 12, Edges: 66, Values: 4}, 1)
+	if !errors.Is(err, ErrInvalidConfig) {
+		t.Fatalf("dense 4-valued network: error %v, want ErrInvalidConfig", err)
+	}
+	if _, err := Generate(Config{Vars: 12, Edges: 30, Values: 4, MaxParents: 3}, 1); err != nil {
+		t.Errorf("capped network: %v", err)
+	}
+}
