@@ -414,10 +414,6 @@ func TestPublishedOracle(t *testing.T) {
 		t.Skip("builds 60 indexes of 50 000 contexts")
 	}
 	t.Parallel()
-	type key struct {
-		set             string
-		from, to, value int
-	}
 	// The first three networks, whose ρ floors the oracle explains; the
 	// others were measured once with this test over all six (see above),
 	// and are left out to keep it at 60 indexes.
@@ -431,7 +427,6 @@ func TestPublishedOracle(t *testing.T) {
 			t.Fatal(err)
 		}
 		runs := make([][]eval.QueryResult, oracleSeeds)
-		real := map[key][]float64{} // realised error per corpus, NaN when not asked
 		for i := range runs {
 			r, err := eval.Run(context.Background(), eval.Config{
 				Condition: world.CondLocalGeometric, Seed: int64(i + 1), Network: w, Contexts: publishedContexts, KeepQueries: true,
@@ -440,38 +435,8 @@ func TestPublishedOracle(t *testing.T) {
 				t.Fatal(err)
 			}
 			runs[i] = r.Queries
-			for _, q := range r.Queries {
-				k := key{q.Set, q.From, q.To, q.Value}
-				if real[k] == nil {
-					real[k] = make([]float64, oracleSeeds)
-					for j := range real[k] {
-						real[k][j] = math.NaN()
-					}
-				}
-				real[k][i] = q.SqErr(eval.EstRouted)
-			}
 		}
-		var model, oracle float64
-		for i, qs := range runs {
-			var pred, orc, got []float64
-			for _, q := range qs {
-				sum, cnt := 0.0, 0
-				for j, x := range real[key{q.Set, q.From, q.To, q.Value}] {
-					if j != i && !math.IsNaN(x) {
-						sum += x
-						cnt++
-					}
-				}
-				if cnt < oracleSeeds/2 {
-					continue // asked in too few other corpora to estimate its expectation
-				}
-				pred = append(pred, q.RoutedErr)
-				orc = append(orc, sum/float64(cnt))
-				got = append(got, q.SqErr(eval.EstRouted))
-			}
-			model += eval.Spearman(pred, got) / oracleSeeds
-			oracle += eval.Spearman(orc, got) / oracleSeeds
-		}
+		model, oracle := oracleSpearman(runs)
 		t.Logf("%s: Spearman ρ over %d corpora: model %.3f, oracle of the expected squared error %.3f", n.name, oracleSeeds, model, oracle)
 		if math.IsNaN(model) || math.IsNaN(oracle) {
 			t.Fatalf("%s: ρ model %v, oracle %v", n.name, model, oracle)
