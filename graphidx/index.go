@@ -601,24 +601,30 @@ func (v *view) pairIndex(lo, hi EntityID) (uint64, bool) {
 // table returns the stored count table of pair index q, which must have
 // exactly cells entries.
 func (v *view) table(q uint64, cells int) ([]uint32, bool) {
-	var s, e uint64
-	if v.uniform {
-		kk := uint64(v.k * v.k)
-		if q >= v.h.Pairs {
-			return nil, false
-		}
-		s, e = q*kk, (q+1)*kk
-	} else {
-		a, b, ok := span(v.pairOffs, q, len(v.counts))
-		if !ok {
-			return nil, false
-		}
-		s, e = uint64(a), uint64(b)
-	}
-	if e > uint64(len(v.counts)) || e-s != uint64(cells) {
+	s, e := v.tableSpan(q)
+	if e > uint64(len(v.counts)) || e < s || e-s != uint64(cells) {
 		return nil, false
 	}
 	return v.counts[s:e:e], true
+}
+
+// tableSpan returns the entries [s, e) of pair index q's table in the
+// counts section, or the empty span (0, 0) when q or its offsets are out
+// of range. The caller checks e against the counts and the table's size.
+// O(1).
+func (v *view) tableSpan(q uint64) (s, e uint64) {
+	if v.uniform {
+		kk := uint64(v.k * v.k)
+		if q >= v.h.Pairs {
+			return 0, 0
+		}
+		return q * kk, (q + 1) * kk
+	}
+	a, b, ok := span(v.pairOffs, q, len(v.counts))
+	if !ok {
+		return 0, 0
+	}
+	return uint64(a), uint64(b)
 }
 
 func (v *view) pair(a, b EntityID) (PairStats, bool) {
@@ -985,6 +991,7 @@ func (v *view) pairBatch(a, b []EntityID, hint []uint32, out []PairStats, ok []b
 			pb                [pairBatchWidth]uint64 // pairBase of lo
 			hinted            [pairBatchWidth]bool   // the window is the hinted entry
 			hit               [pairBatchWidth]bool   // and it holds hi
+			ts, te            [pairBatchWidth]uint64 // the table's entries [ts, te) in counts
 		)
 		// Offsets of every lo's upper list (as upperNeighbors).
 		for j := 0; j < w; j++ {
@@ -1043,28 +1050,31 @@ func (v *view) pairBatch(a, b []EntityID, hint []uint32, out []PairStats, ok []b
 				break
 			}
 		}
+		// The tables' places, from each found pair's position q, in a
+		// short loop of their own for the same reason: the pair-offsets
+		// entries are cache misses on a large index.
+		for j := 0; j < w; j++ {
+			if hit[j] || (!hinted[j] && size[j] == 1 && nbrs[base[j]] == key[j]) {
+				ts[j], te[j] = v.tableSpan(pb[j] + uint64(base[j]-start[j]))
+			}
+		}
 		// Tables.
 		for j := 0; j < w; j++ {
 			i := s0 + j
 			out[i], ok[i] = PairStats{}, false
-			if hinted[j] {
-				if !hit[j] {
-					out[i], ok[i] = v.pair(a[i], b[i]) // a wrong hint: search
-					continue
-				}
-			} else if size[j] != 1 || nbrs[base[j]] != key[j] {
+			if hinted[j] && !hit[j] {
+				out[i], ok[i] = v.pair(a[i], b[i]) // a wrong hint: search
 				continue
 			}
-			q := pb[j] + uint64(base[j]-start[j])
+			s, e := ts[j], te[j]
+			if e == 0 {
+				continue // not found
+			}
 			ka, kb := v.numValues(a[i]), v.numValues(b[i])
-			if ka == 0 || kb == 0 {
+			if ka == 0 || kb == 0 || e > uint64(len(v.counts)) || e < s || e-s != uint64(ka*kb) {
 				continue
 			}
-			t, found := v.table(q, ka*kb)
-			if !found {
-				continue
-			}
-			out[i], ok[i] = newStoredPairStats(a[i], b[i], ka, kb, t, a[i] > b[i]), true
+			out[i], ok[i] = newStoredPairStats(a[i], b[i], ka, kb, v.counts[s:e:e], a[i] > b[i]), true
 		}
 	}
 }
