@@ -7,7 +7,10 @@ import (
 
 // Graph is the read view of a locality index the router needs.
 // *graphidx.Index satisfies it. Implementations must be safe for concurrent
-// readers and must not allocate on the lookup paths.
+// readers and must not allocate on the lookup paths. Pair(a, b) must be ok
+// only when b is in Neighbors(a) (as for an index): the search reads chains
+// from the lists, and answers a pair with a query's endpoint whose list
+// leaves the other entity out as not observed, without a look-up.
 //
 // Two optional methods make the search faster without changing any
 // decision; *graphidx.Index has both, and a wrapper around an index should

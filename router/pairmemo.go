@@ -2,6 +2,7 @@ package router
 
 import (
 	"math"
+	"slices"
 
 	"github.com/hopwise/hopwise/graphidx"
 )
@@ -74,26 +75,84 @@ const memoMinSlots = 256
 
 func memoHash(key uint64, shift uint) int { return int((key * 0x9e3779b97f4a7c15) >> shift) }
 
-// get returns the entry of (lo, hi), looking the pair up in g on the first
-// request. The pointer is valid until the next get.
-func (m *pairMemo) get(g Graph, lo, hi graphidx.EntityID) *memoEntry {
+// entry returns the slot of (lo, hi) and whether it was filled before; a
+// new slot is entered with the key only, and the caller fills it before
+// the next call.
+func (m *pairMemo) entry(lo, hi graphidx.EntityID) (*memoEntry, bool) {
 	if m.tab == nil {
 		m.init(memoMinSlots)
 	}
 	key := uint64(lo)<<32 | uint64(hi)
 	i, found := m.find(key)
 	if found {
-		return &m.tab[i]
+		return &m.tab[i], true
 	}
 	if 2*(len(m.used)+1) > len(m.tab) {
 		m.grow()
 		i, _ = m.find(key)
 	}
 	e := &m.tab[i]
-	ps, ok := g.Pair(lo, hi)
-	*e = memoEntry{key: key, full: true, ok: ok, cost: math.NaN(), ps: ps}
+	*e = memoEntry{key: key, full: true, cost: math.NaN()}
 	m.used = append(m.used, int32(i))
+	return e, false
+}
+
+// memoGet returns the memo entry of (lo, hi), lo ≤ hi, looking the pair up
+// in the graph on the first request, unless an endpoint's adjacency list
+// held in the scratch (endLists) shows the pair was never observed. The
+// pointer is valid until the next memoGet.
+func (sc *scratch) memoGet(lo, hi graphidx.EntityID) *memoEntry {
+	e, found := sc.memo.entry(lo, hi)
+	if found || sc.ruledOut(lo, hi) {
+		return e
+	}
+	e.ps, e.ok = sc.g.Pair(lo, hi)
 	return e
+}
+
+// endListMax is the longest adjacency list of an endpoint that the scratch
+// keeps for ruledOut: 512 ids are 2 KiB, which the one-bridge phase's
+// intersection has just read, and a binary search in them is about nine
+// steps in cache, against a look-up in the index (the lower entity's list
+// offsets, then a binary search in its list: cache misses on a large
+// index).
+const endListMax = 512
+
+// endLists keeps the adjacency lists of the decision's endpoints s and t
+// when they have at most endListMax entries (else nil). O(1).
+func (sc *scratch) endLists() {
+	sc.nbrS, sc.nbrT = nil, nil
+	if l := sc.g.Neighbors(sc.s); len(l) <= endListMax {
+		sc.nbrS = l
+	}
+	if l := sc.g.Neighbors(sc.t); len(l) <= endListMax {
+		sc.nbrT = l
+	}
+}
+
+// ruledOut reports that the pair {a, b} has no statistics because one of
+// its entities is s or t, whose adjacency list is kept (endLists), and the
+// other is not in that list: a Graph's Pair is ok only for a listed
+// neighbour (Graph). Most pairs the separation check asks about (a
+// bridge's ranked neighbour with s or t) are of this kind. It changes no
+// answer, only spares the graph look-up. O(log endListMax).
+func (sc *scratch) ruledOut(a, b graphidx.EntityID) bool {
+	for range 2 {
+		var l []graphidx.EntityID
+		switch a {
+		case sc.s:
+			l = sc.nbrS
+		case sc.t:
+			l = sc.nbrT
+		}
+		if l != nil {
+			if _, in := slices.BinarySearch(l, b); !in {
+				return true
+			}
+		}
+		a, b = b, a
+	}
+	return false
 }
 
 func (m *pairMemo) init(slots int) {
@@ -144,7 +203,7 @@ func (sc *scratch) pairStats(a, b graphidx.EntityID) (graphidx.PairStats, bool) 
 	if a > b {
 		lo, hi = b, a
 	}
-	e := sc.memo.get(sc.g, lo, hi)
+	e := sc.memoGet(lo, hi)
 	if !e.ok {
 		return e.ps, false
 	}

@@ -307,6 +307,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	sc.hb = model.HopBias()
 	sc.bud = budget{left: st.budget, nextCheck: deadlinePoll, done: ctx.Done()}
 	sc.u = u
+	sc.endLists()
 
 	dir, err := model.Direct(sc.ws, sc, s, u, t)
 	if err != nil {

@@ -273,6 +273,9 @@ type scratch struct {
 	}
 	pendMax int
 	names   []byte // bridge names read by NameAppender (newResultBlock)
+	// nbrS, nbrT: the adjacency lists of s and t when short (endLists),
+	// else nil.
+	nbrS, nbrT []graphidx.EntityID
 	// rankPrefix is the graph's RankPrefix (ranked lists shorter than it
 	// are whole), or 0 when unknown.
 	rankPrefix int
@@ -315,6 +318,7 @@ func (sc *scratch) reset() {
 	sc.err = nil
 	sc.ref = nil
 	sc.memo.clear() // drop references into the index
+	sc.nbrS, sc.nbrT = nil, nil
 }
 
 // edge returns the proxy cost of the pair (a, b); ok is false when the pair
@@ -328,7 +332,7 @@ func (sc *scratch) edge(a, b graphidx.EntityID) (float64, bool) {
 	if a > b {
 		a, b = b, a
 	}
-	e := sc.memo.get(sc.g, a, b)
+	e := sc.memoGet(a, b)
 	if !e.ok {
 		return 0, false
 	}
