@@ -101,6 +101,11 @@ type view struct {
 	rankOffs   []uint64
 	rank       []uint32
 	rankPos    []uint32 // parallel to rank: the pair's position in lo's upper list
+	maxK       int      // the largest K of any value set
+	// checked: every section and invariant was checked at open (parse
+	// with full), among them that every pair's table has K_lo·K_hi
+	// entries, which pairKs relies on.
+	checked bool
 
 	// names is Lookup's in-memory sample of the sorted names, built on
 	// the first Lookup (nameSample).
@@ -311,6 +316,7 @@ func parse(data []byte, full bool) (*view, error) {
 		if err := v.checkStructure(context.Background()); err != nil {
 			return nil, err
 		}
+		v.checked = true
 	}
 	return v, nil
 }
@@ -524,6 +530,7 @@ func (v *view) checkLabels() error {
 			return corruptf(ErrCorrupt, "value set %d has %d values in a uniform-K=%d index", i, e-s, v.k)
 		}
 		v.sets[i] = flat[s:e:e]
+		v.maxK = max(v.maxK, len(v.sets[i]))
 	}
 	return nil
 }
@@ -639,15 +646,35 @@ func (v *view) pair(a, b EntityID) (PairStats, bool) {
 	if !ok {
 		return PairStats{}, false
 	}
-	ka, kb := v.numValues(a), v.numValues(b)
-	if ka == 0 || kb == 0 {
+	s, e := v.tableSpan(q)
+	return v.pairAt(a, b, s, e, swapped)
+}
+
+// pairAt returns the statistics of the pair (a, b) whose table is the
+// entries [s, e) of the counts, after checking the table against the
+// entities' value counts (pairKs). O(1).
+func (v *view) pairAt(a, b EntityID, s, e uint64, swapped bool) (PairStats, bool) {
+	if e > uint64(len(v.counts)) || e < s {
 		return PairStats{}, false
 	}
-	t, ok := v.table(q, ka*kb)
-	if !ok {
+	ka, kb := v.pairKs(a, b, e-s)
+	if ka == 0 || kb == 0 || e-s != uint64(ka*kb) {
 		return PairStats{}, false
 	}
-	return newStoredPairStats(a, b, ka, kb, t, swapped), true
+	return newStoredPairStats(a, b, ka, kb, v.counts[s:e:e], swapped), true
+}
+
+// pairKs returns K_a and K_b of a stored pair whose table has cells
+// entries. On an index checked at open, every table has K_a·K_b entries
+// and both are at most maxK, so a table of maxK² entries means K_a = K_b =
+// maxK: most pairs of an index whose entities mostly share one K, which
+// spares the two entity-valueset reads (cache misses on a large index).
+// O(1).
+func (v *view) pairKs(a, b EntityID, cells uint64) (int, int) {
+	if v.checked && cells == uint64(v.maxK*v.maxK) {
+		return v.maxK, v.maxK
+	}
+	return v.numValues(a), v.numValues(b)
 }
 
 func (v *view) marginal(id EntityID) []uint64 {
@@ -1066,15 +1093,10 @@ func (v *view) pairBatch(a, b []EntityID, hint []uint32, out []PairStats, ok []b
 				out[i], ok[i] = v.pair(a[i], b[i]) // a wrong hint: search
 				continue
 			}
-			s, e := ts[j], te[j]
-			if e == 0 {
+			if te[j] == 0 {
 				continue // not found
 			}
-			ka, kb := v.numValues(a[i]), v.numValues(b[i])
-			if ka == 0 || kb == 0 || e > uint64(len(v.counts)) || e < s || e-s != uint64(ka*kb) {
-				continue
-			}
-			out[i], ok[i] = newStoredPairStats(a[i], b[i], ka, kb, v.counts[s:e:e], a[i] > b[i]), true
+			out[i], ok[i] = v.pairAt(a[i], b[i], ts[j], te[j], a[i] > b[i])
 		}
 	}
 }

@@ -1,0 +1,66 @@
+package graphidx
+
+import (
+	"fmt"
+	"testing"
+)
+
+// TestPairKsCheckedEqualsLazy: on an index checked at open, Pair and
+// PairBatch take K_a = K_b = maxK from a table of maxK² entries (pairKs)
+// instead of reading the entities' value sets; every stored pair, and
+// every pair of a sample of absent ones, must read exactly as on the same
+// file opened WithLazyVerify (which reads them), with mixed K (1..4).
+func TestPairKsCheckedEqualsLazy(t *testing.T) {
+	t.Parallel()
+	for _, tc := range []struct {
+		n, deg, k int
+		seed      uint64
+	}{{300, 8, 0, 1}, {300, 8, 0, 2}, {200, 12, 0, 3}} {
+		t.Run(fmt.Sprintf("n%d-k%d-seed%d", tc.n, tc.k, tc.seed), func(t *testing.T) {
+			t.Parallel()
+			src := ixRandomSource(tc.n, tc.deg, tc.k, tc.seed)
+			path := ixWriteTemp(t, src)
+			full, err := Open(path)
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer full.Close()
+			lazy, err := Open(path, WithLazyVerify())
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer lazy.Close()
+			if !full.v.Load().checked || lazy.v.Load().checked {
+				t.Fatal("the full open must be checked, the lazy one not")
+			}
+			var a, b []EntityID
+			for i := range tc.n {
+				for j := range tc.n {
+					if i != j && (j%5 == 0 || len(a)%3 == 0) {
+						a, b = append(a, EntityID(i)), append(b, EntityID(j))
+					}
+				}
+			}
+			out := make([]PairStats, len(a))
+			ok := make([]bool, len(a))
+			full.PairBatch(a, b, out, ok)
+			found, maxKPairs := 0, 0
+			for i := range a {
+				p1, ok1 := full.Pair(a[i], b[i])
+				p2, ok2 := lazy.Pair(a[i], b[i])
+				if ok1 != ok2 || ok[i] != ok2 || (ok1 && (!ixSamePair(p1, p2) || !ixSamePair(out[i], p2))) {
+					t.Fatalf("pair (%d, %d): checked %v %+v, batch %v %+v, lazy %v %+v", a[i], b[i], ok1, p1, ok[i], out[i], ok2, p2)
+				}
+				if ok1 {
+					found++
+					if p1.KA == full.v.Load().maxK && p1.KB == p1.KA {
+						maxKPairs++
+					}
+				}
+			}
+			if found == 0 || maxKPairs == 0 || maxKPairs == found {
+				t.Fatalf("%d stored pairs drawn, %d of them of two max-K entities: the test needs both kinds", found, maxKPairs)
+			}
+		})
+	}
+}
