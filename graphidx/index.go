@@ -1136,6 +1136,96 @@ func (v *view) pairBatch(a, b []EntityID, hint []uint32, out []PairStats, ok []b
 	}
 }
 
+// PairBatchRanked is PairBatch where entry[i] (entry at least as long as
+// a) names the pair by its place in a ranked list: b[i] is
+// RankedNeighbors(a[i])[entry[i]], or entry[i] is NoPairHint. The answer
+// is always what Pair(a[i], b[i]) returns: an entry that does not hold
+// b[i] is ignored (the pair is searched). A named entry gives the pair's
+// stored position (RankedPairHints); on an index opened with the full check
+// (Open without WithLazyVerify), which checked every stored position, the
+// look-up then reads only the lower entity's pair base, the table's offsets
+// and the table: no adjacency offsets and no list entry, one dependent
+// cache miss fewer than PairBatchHinted, for ranked lists the caller has
+// just read (they are in cache). Opened WithLazyVerify, the position is
+// checked as PairBatchHinted checks it. No allocation.
+func (x *Index) PairBatchRanked(a, b []EntityID, entry []uint32, out []PairStats, ok []bool) {
+	x.v.Load().pairBatchRanked(a, b, entry[:len(a)], out, ok)
+}
+
+func (v *view) pairBatchRanked(a, b []EntityID, entry []uint32, out []PairStats, ok []bool) {
+	n := len(a)
+	b, out, ok = b[:n], out[:n], ok[:n]
+	for s0 := 0; s0 < n; s0 += pairBatchWidth {
+		w := min(pairBatchWidth, n-s0)
+		var (
+			hint   [pairBatchWidth]uint32 // stored position, NoPairHint
+			q      [pairBatchWidth]uint64 // pair index of a trusted position
+			ts, te [pairBatchWidth]uint64 // its table's entries in counts
+			rest   int                    // pairs left to pairBatch
+		)
+		// Entries to positions, from the ranked lists (in cache).
+		for j := 0; j < w; j++ {
+			i := s0 + j
+			hint[j] = NoPairHint
+			e := entry[i]
+			if e == NoPairHint || uint64(a[i]) >= v.n || len(v.rankPos) != len(v.rank) {
+				continue
+			}
+			s, t, okS := span(v.rankOffs, uint64(a[i]), len(v.rank))
+			if okS && uint64(e) < uint64(t-s) && v.rank[s+int(e)] == b[i] {
+				hint[j] = v.rankPos[s+int(e)]
+			}
+		}
+		if !v.checked {
+			v.pairBatch(a[s0:s0+w], b[s0:s0+w], hint[:w], out[s0:s0+w], ok[s0:s0+w])
+			continue
+		}
+		// Trusted positions: the pair base of the lower entity.
+		for j := 0; j < w; j++ {
+			i := s0 + j
+			lo := min(a[i], b[i])
+			if hint[j] == NoPairHint || uint64(lo)+1 >= uint64(len(v.pairBase)) {
+				hint[j] = NoPairHint
+				rest++
+				continue
+			}
+			q[j] = v.pairBase[lo] + uint64(hint[j])
+		}
+		// Their tables' places, in a loop of their own (cache misses).
+		for j := 0; j < w; j++ {
+			if hint[j] != NoPairHint {
+				ts[j], te[j] = v.tableSpan(q[j])
+			}
+		}
+		for j := 0; j < w; j++ {
+			if i := s0 + j; hint[j] != NoPairHint {
+				out[i], ok[i] = v.pairAt(a[i], b[i], ts[j], te[j], a[i] > b[i])
+			}
+		}
+		// The others (no entry named, or a wrong one) are searched, in
+		// one batch.
+		if rest > 0 {
+			var (
+				ra, rb [pairBatchWidth]EntityID
+				ro     [pairBatchWidth]PairStats
+				rok    [pairBatchWidth]bool
+				at     [pairBatchWidth]int
+			)
+			m := 0
+			for j := 0; j < w; j++ {
+				if i := s0 + j; hint[j] == NoPairHint {
+					ra[m], rb[m], at[m] = a[i], b[i], i
+					m++
+				}
+			}
+			v.pairBatch(ra[:m], rb[:m], nil, ro[:m], rok[:m])
+			for k := 0; k < m; k++ {
+				out[at[k]], ok[at[k]] = ro[k], rok[k]
+			}
+		}
+	}
+}
+
 // notFile is the ErrNotFile error for path of the given mode.
 func notFile(path string, m os.FileMode) error {
 	kind := "not a regular file"

@@ -64,3 +64,58 @@ func TestPairKsCheckedEqualsLazy(t *testing.T) {
 		})
 	}
 }
+
+// TestPairBatchRankedEqualsPair: PairBatchRanked answers every pair as Pair
+// does, checked at open (trusted stored positions) or not (checked
+// positions): pairs named by their ranked entry, by a wrong entry, by an
+// entry out of range, without one (NoPairHint), and absent pairs, mixed in
+// batches wider than pairBatchWidth.
+func TestPairBatchRankedEqualsPair(t *testing.T) {
+	t.Parallel()
+	path := ixWriteTemp(t, ixRandomSource(400, 10, 0, 5), WithRankPrefix(6))
+	for _, lazy := range []bool{false, true} {
+		var opts []OpenOption
+		if lazy {
+			opts = append(opts, WithLazyVerify())
+		}
+		x, err := Open(path, opts...)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var a, b []EntityID
+		var entry []uint32
+		kinds := [5]int{}
+		for id := range EntityID(400) {
+			rk := x.RankedNeighbors(id)
+			for j, nb := range rk {
+				kind := (int(id) + j) % 5
+				kinds[kind]++
+				e, other := uint32(j), nb
+				switch kind {
+				case 1: // a wrong entry: another ranked neighbour's
+					e = uint32((j + 1) % len(rk))
+				case 2: // out of range
+					e = uint32(len(rk) + j)
+				case 3:
+					e = NoPairHint
+				case 4: // an absent pair (or a stored one) with the entry of nb
+					other = (nb + 7) % 400
+				}
+				a, b, entry = append(a, id), append(b, other), append(entry, e)
+			}
+		}
+		out := make([]PairStats, len(a))
+		ok := make([]bool, len(a))
+		x.PairBatchRanked(a, b, entry, out, ok)
+		for i := range a {
+			p, pok := x.Pair(a[i], b[i])
+			if pok != ok[i] || (pok && !ixSamePair(p, out[i])) {
+				t.Fatalf("lazy %v: pair (%d, %d) entry %d: batch %v %+v, Pair %v %+v", lazy, a[i], b[i], entry[i], ok[i], out[i], pok, p)
+			}
+		}
+		x.Close()
+		if kinds[0] < 100 || len(a) <= pairBatchWidth {
+			t.Fatalf("%d pairs, kinds %v: too few", len(a), kinds)
+		}
+	}
+}

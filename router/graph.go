@@ -17,9 +17,10 @@ import (
 // forward them: PairBatch (see PairBatcher), and RankPrefix() int, the
 // length of the ranked prefix, which tells that a RankedNeighbors list
 // shorter than it holds every neighbour (so the search need not read
-// Neighbors to know). PairBatchHinted with RankedPairHints (see
-// HintedPairBatcher) lets the joins read the edges they reached through
-// ranked lists without a binary search; a wrapper should forward them too. A third, AppendName (see NameAppender), spares the
+// Neighbors to know). PairBatchRanked (see RankedPairBatcher), or
+// PairBatchHinted with RankedPairHints (see HintedPairBatcher), lets the
+// joins read the edges they reached through ranked lists without a binary
+// search; a wrapper should forward them too. A third, AppendName (see NameAppender), spares the
 // per-bridge copy that Name makes. A fourth, Marginal (scorer.Marginals),
 // gives the Bayes model the target's marginal counts, toward which it
 // shrinks the direct estimate of a pair seen rarely or never; a wrapper

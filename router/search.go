@@ -77,9 +77,10 @@ import (
 // PairBatcher, the pairs of the one-bridge phase, the end edges of the
 // joins and the middle edges of each chunk of matches are fetched in one
 // batch each (fetch), so that their cache misses overlap; the phase then
-// finds them in the memo. When it also implements HintedPairBatcher, the
-// end and middle edges, all reached through ranked lists, carry the stored
-// position of their pair, which spares each its binary search. The budget is charged per edge by the phase
+// finds them in the memo. When it also implements RankedPairBatcher (or
+// HintedPairBatcher), the end and middle edges, all reached through ranked
+// lists, are named by their ranked entry (or carry the stored position of
+// their pair), which spares each its binary search. The budget is charged per edge by the phase
 // exactly as without the batch, so no decision changes; a batch holds at
 // most the look-ups the remaining budget allows, so a decision's graph
 // look-ups stay below twice the budget's.
@@ -115,7 +116,7 @@ import (
 // NaN until a join needs it (cost1).
 type step1 struct {
 	id   graphidx.EntityID
-	hint uint32 // stored position of the pair (origin, id), graphidx.NoPairHint if unknown
+	ent  uint32 // position of id in the origin's ranked list, graphidx.NoPairHint if beyond it
 	cost float64
 }
 
@@ -242,7 +243,8 @@ type scratch struct {
 	totF2, totT2 int
 	keysF, keysT []uint64
 	rks          [2][][]graphidx.EntityID // ranked lists of the layer-1 nodes, s side and t side
-	hks          [2][][]uint32            // their pair hints (HintedPairBatcher), nil entries without
+	hks          [2][][]uint32            // their pair hints (HintedPairBatcher without RankedPairBatcher), nil entries without
+	h1           [2][]uint32              // the same for the ranked lists of s and t (layer1)
 	heap         []cand
 	hits         []graphidx.EntityID
 	path         []graphidx.EntityID
@@ -265,11 +267,13 @@ type scratch struct {
 	memo    pairMemo
 	pb      PairBatcher       // the graph's batch look-up, or nil
 	hp      HintedPairBatcher // the graph's hinted batch look-up, or nil
+	rb      RankedPairBatcher // the graph's ranked batch look-up, or nil
 	pend    struct {          // pairs queued for fetch
-		lo, hi []graphidx.EntityID
-		hint   []uint32 // stored pair positions, graphidx.NoPairHint when unknown
-		ps     []graphidx.PairStats
-		ok     []bool
+		a, b []graphidx.EntityID // the pairs, owner first when ent names an entry of its ranked list
+		ent  []uint32            // ranked-list entries (RankedPairBatcher), graphidx.NoPairHint when none
+		hint []uint32            // stored pair positions (HintedPairBatcher), graphidx.NoPairHint when unknown
+		ps   []graphidx.PairStats
+		ok   []bool
 	}
 	pendMax int
 	names   []byte // bridge names read by NameAppender (newResultBlock)
@@ -307,7 +311,8 @@ func newScratch() *scratch {
 }
 
 func (sc *scratch) reset() {
-	sc.g, sc.model, sc.st, sc.pb, sc.hp = nil, nil, nil, nil, nil
+	sc.g, sc.model, sc.st, sc.pb, sc.hp, sc.rb = nil, nil, nil, nil, nil, nil
+	sc.h1 = [2][]uint32{}
 	for side := range sc.rks { // drop references into the index
 		clear(sc.rks[side][:cap(sc.rks[side])])
 		clear(sc.hks[side][:cap(sc.hks[side])])
@@ -563,6 +568,11 @@ func (sc *scratch) layer1(out []step1, from, other graphidx.EntityID) (l []step1
 	out = out[:0]
 	rk := sc.g.RankedNeighbors(from)
 	hints := sc.rankedHints(from, len(rk))
+	side := 0
+	if from != sc.s {
+		side = 1
+	}
+	sc.h1[side] = hints
 	for j, x := range rk {
 		if x == other || x == from {
 			continue
@@ -573,18 +583,14 @@ func (sc *scratch) layer1(out []step1, from, other graphidx.EntityID) (l []step1
 		if sc.bud.take(1) == 0 {
 			return out, false, false
 		}
-		h := uint32(graphidx.NoPairHint)
-		if hints != nil {
-			h = hints[j]
-		}
-		out = append(out, step1{id: x, hint: h, cost: math.NaN()})
+		out = append(out, step1{id: x, ent: uint32(j), cost: math.NaN()})
 	}
 	if sc.whole(from, rk) {
 		return out, true, false
 	}
 	extra, ok, beamCut := sc.beyond(from, rk, sc.st.beam-len(out), from, other, from)
 	for _, x := range extra {
-		out = append(out, step1{id: x, hint: graphidx.NoPairHint, cost: math.NaN()})
+		out = append(out, step1{id: x, ent: graphidx.NoPairHint, cost: math.NaN()})
 	}
 	return out, ok, beamCut
 }
@@ -893,12 +899,12 @@ func (sc *scratch) liveNodes() (liveF, liveT []bool) {
 	if sc.beginPrefetch(sc.bud.left/lookupUnits + 1) {
 		for i := range f1 {
 			if f1[i].cost != f1[i].cost {
-				sc.wantHint(s, f1[i].id, f1[i].hint)
+				sc.wantEnd(0, int32(i))
 			}
 		}
 		for i := range t1 {
 			if t1[i].cost != t1[i].cost {
-				sc.wantHint(t1[i].id, t, t1[i].hint)
+				sc.wantEnd(1, int32(i))
 			}
 		}
 		sc.fetch()
@@ -1304,13 +1310,13 @@ func (sc *scratch) joinAll() {
 		wantF := func(i int32) {
 			if !endF[i] && f1[i].cost != f1[i].cost { // not yet costed
 				endF[i] = true
-				sc.wantHint(s, f1[i].id, f1[i].hint)
+				sc.wantEnd(0, i)
 			}
 		}
 		wantT := func(i int32) {
 			if !endT[i] && t1[i].cost != t1[i].cost {
 				endT[i] = true
-				sc.wantHint(t1[i].id, t, t1[i].hint)
+				sc.wantEnd(1, i)
 			}
 		}
 		for _, p := range sc.joinA {
