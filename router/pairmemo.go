@@ -294,12 +294,12 @@ func hintAt(hk []uint32, ent uint32) uint32 {
 	return graphidx.NoPairHint
 }
 
-// want2 queues the second edge p.a → p.b of a path of side's second layer
-// (0: s, 1: t) with its hint. The hint is the one beside p.b in p.a's
-// ranked list, kept by layer2: p.b is the path's r-th eligible entry, so
-// it sits at position r to r+3 of the list (at most the layer's two ends
-// and p.a itself come before it and are not eligible); a path from beyond
-// is in no ranked list and gets no hint. O(1).
+// want2 queues the second edge a → p.b of a path of side's second layer
+// (0: s, 1: t; a its first-layer node) with its entry in a's ranked list
+// (kept by layer2) and its hint: p.b is the path's r-th eligible entry,
+// so it sits at position r to r+3 of the list (at most the layer's two
+// ends and a itself come before it and are not eligible); a path from
+// beyond is in no ranked list and gets neither. O(1).
 func (sc *scratch) want2(p *step2, side int) {
 	ent, pos := uint32(graphidx.NoPairHint), uint32(graphidx.NoPairHint)
 	if int(p.li) < len(sc.rks[side]) {
@@ -312,7 +312,7 @@ func (sc *scratch) want2(p *step2, side int) {
 			}
 		}
 	}
-	sc.wantRanked(p.a, p.b, ent, pos)
+	sc.wantRanked(sc.pathA(side, p), p.b, ent, pos)
 }
 
 // rankedHints returns the graph's hints for id's ranked list when it has

@@ -120,13 +120,14 @@ type step1 struct {
 	cost float64
 }
 
-// step2 is a two-hop beam path origin → a → b; li indexes a in the
-// first-layer slice, c2 = cost(a, b) is NaN until a join needs it.
+// step2 is a two-hop beam path origin → a → b, a being the first-layer
+// node at position li (its id is the layer's l1[li].id). It is 12 bytes: a
+// second layer holds up to B·f of them, written afresh by every decision.
+// The cost of a → b, once a join computes it, is kept aside (edgeCost2).
 type step2 struct {
-	a, b graphidx.EntityID
-	li   int32
-	r    int32 // position of b among a's eligible neighbours (rank order)
-	c2   float64
+	b  graphidx.EntityID
+	li int32
+	r  int32 // position of b among a's eligible neighbours (rank order)
 }
 
 type cand struct {
@@ -232,6 +233,8 @@ type scratch struct {
 	jchunk         []jmatch // the matches of one join chunk, popped from jms
 	rcount         []int
 	f2ends, t2ends idIndex // layer-2 end nodes met by both sides (f2ends), of T2
+	c2s            idIndex // second-layer paths (side<<32 | position) whose second edge is costed: position in c2v
+	c2v            []float64
 	joinA, joinB   []jpair // F2 ⋈ T1 (A), F1 ⋈ T2 (B)
 	joinC          []match3
 	endF, endT     []bool // first-layer nodes whose end edge is queued (joinAll)
@@ -801,7 +804,7 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 				break
 			}
 			if !dead {
-				out = append(out, step2{a: x.id, b: y, li: int32(i), r: int32(n), c2: math.NaN()})
+				out = append(out, step2{b: y, li: int32(i), r: int32(n)})
 			}
 			n++
 		}
@@ -833,7 +836,7 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 		}
 		extra, eok, ecut := sc.beyond(x.id, rk, f-n, from, other, x.id)
 		for _, y := range extra {
-			out = append(out, step2{a: x.id, b: y, li: int32(i), r: int32(n), c2: math.NaN()})
+			out = append(out, step2{b: y, li: int32(i), r: int32(n)})
 			n++
 		}
 		cnt = append(cnt, int32(n))
@@ -937,16 +940,44 @@ func (sc *scratch) liveNodes() (liveF, liveT []bool) {
 	return liveF, liveT
 }
 
-// edgeCost2 returns the cost of p's second edge, looking it up once.
-func (sc *scratch) edgeCost2(p *step2) (float64, bool) {
-	if p.c2 == p.c2 { // not NaN
-		return p.c2, true
+// pathA is the first-layer node of path p of side (0: F2, 1: T2). O(1).
+func (sc *scratch) pathA(side int, p *step2) graphidx.EntityID {
+	if side == 0 {
+		return sc.f1[p.li].id
 	}
-	c, ok := sc.edge(p.a, p.b)
+	return sc.t1[p.li].id
+}
+
+// c2Key is the key of path i of side among the second-edge costs.
+func c2Key(side int, i uint32) uint64 { return uint64(side)<<32 | uint64(i) }
+
+// knownC2 returns the cost of the second edge of path i of side when
+// edgeCost2 has computed it, else NaN. O(1) expected.
+func (sc *scratch) knownC2(side int, i uint32) float64 {
+	if pos, ok := sc.c2s.get(c2Key(side, i)); ok {
+		return sc.c2v[pos]
+	}
+	return math.NaN()
+}
+
+// edgeCost2 returns the cost of the second edge of path i of side, looking
+// it up once; the costs computed are kept by path (c2s, reset by joinAll
+// with room for every match's paths). O(1) expected plus the look-up.
+func (sc *scratch) edgeCost2(side int, i uint32) (float64, bool) {
+	if c := sc.knownC2(side, i); c == c {
+		return c, true
+	}
+	l := sc.f2
+	if side == 1 {
+		l = sc.t2
+	}
+	p := &l[i]
+	c, ok := sc.edge(sc.pathA(side, p), p.b)
 	if !ok {
 		return 0, false
 	}
-	p.c2 = c
+	sc.c2s.put(c2Key(side, i), int32(len(sc.c2v)))
+	sc.c2v = append(sc.c2v, c)
 	return c, true
 }
 
@@ -1299,6 +1330,9 @@ func (sc *scratch) joinAll() {
 	if n == 0 {
 		return
 	}
+	// Every match costs at most two second edges.
+	sc.c2s.reset(len(sc.joinA) + len(sc.joinB) + 2*len(sc.joinC))
+	sc.c2v = sc.c2v[:0]
 	if sc.bud.left < (len(f1)+len(t1))*lookupUnits {
 		byKey := func(x, y jpair) int { return cmp.Compare(x.key, y.key) }
 		slices.SortFunc(sc.joinA, byKey)
@@ -1364,7 +1398,7 @@ func (sc *scratch) joinAll() {
 	}
 	for i, mt := range sc.joinC {
 		f, y := &f2[mt.f], &t2[mt.t]
-		if f.a == y.a {
+		if f1[f.li].id == t1[y.li].id {
 			continue // s→a→b→a→t is no simple chain
 		}
 		c1, ok1 := sc.cost1(f1, f.li, s)
@@ -1475,41 +1509,43 @@ func (sc *scratch) joinOne(m jmatch) {
 	hb := sc.hb
 	switch m.kind {
 	case 0: // s→a→b, b→t
-		f := &f2[uint32(sc.joinA[m.i].key)]
+		fi := uint32(sc.joinA[m.i].key)
+		f := &f2[fi]
 		yi := sc.joinA[m.i].end
-		if sc.prune(known(f1[f.li].cost)+known(f.c2)+known(t1[yi].cost)+2*hb, 2) {
+		if sc.prune(known(f1[f.li].cost)+known(sc.knownC2(0, fi))+known(t1[yi].cost)+2*hb, 2) {
 			return
 		}
 		c1, ok1 := sc.cost1(f1, f.li, s)
-		c2, ok2 := sc.edgeCost2(f)
+		c2, ok2 := sc.edgeCost2(0, fi)
 		c3, ok3 := sc.cost1(t1, yi, t)
 		if ok1 && ok2 && ok3 {
-			sc.push(cand{cost: c1 + c2 + c3 + 2*hb, b: [3]graphidx.EntityID{f.a, f.b}, m: 2}, true)
+			sc.push(cand{cost: c1 + c2 + c3 + 2*hb, b: [3]graphidx.EntityID{f1[f.li].id, f.b}, m: 2}, true)
 		}
 	case 1: // s→b (F1), t→c→b (T2): s→b→c→t
-		y := &t2[uint32(sc.joinB[m.i].key)]
+		ti := uint32(sc.joinB[m.i].key)
+		y := &t2[ti]
 		xi := sc.joinB[m.i].end
-		if sc.prune(known(f1[xi].cost)+known(y.c2)+known(t1[y.li].cost)+2*hb, 2) {
+		if sc.prune(known(f1[xi].cost)+known(sc.knownC2(1, ti))+known(t1[y.li].cost)+2*hb, 2) {
 			return
 		}
 		c1, ok1 := sc.cost1(f1, xi, s)
-		c2, ok2 := sc.edgeCost2(y)
+		c2, ok2 := sc.edgeCost2(1, ti)
 		c3, ok3 := sc.cost1(t1, y.li, t)
 		if ok1 && ok2 && ok3 {
-			sc.push(cand{cost: c1 + c2 + c3 + 2*hb, b: [3]graphidx.EntityID{f1[xi].id, y.a}, m: 2}, true)
+			sc.push(cand{cost: c1 + c2 + c3 + 2*hb, b: [3]graphidx.EntityID{f1[xi].id, t1[y.li].id}, m: 2}, true)
 		}
 	default: // s→a→b (F2), t→c→b (T2): s→a→b→c→t
 		mt := sc.joinC[m.i]
 		f, y := &f2[mt.f], &t2[mt.t]
-		if sc.prune(known(f1[f.li].cost)+known(f.c2)+known(y.c2)+known(t1[y.li].cost)+3*hb, 3) {
+		if sc.prune(known(f1[f.li].cost)+known(sc.knownC2(0, mt.f))+known(sc.knownC2(1, mt.t))+known(t1[y.li].cost)+3*hb, 3) {
 			return
 		}
 		c1, ok1 := sc.cost1(f1, f.li, s)
-		c2, ok2 := sc.edgeCost2(f)
-		c3, ok3 := sc.edgeCost2(y)
+		c2, ok2 := sc.edgeCost2(0, mt.f)
+		c3, ok3 := sc.edgeCost2(1, mt.t)
 		c4, ok4 := sc.cost1(t1, y.li, t)
 		if ok1 && ok2 && ok3 && ok4 {
-			sc.push(cand{cost: c1 + c2 + c3 + c4 + 3*hb, b: [3]graphidx.EntityID{f.a, f.b, y.a}, m: 3}, false)
+			sc.push(cand{cost: c1 + c2 + c3 + c4 + 3*hb, b: [3]graphidx.EntityID{f1[f.li].id, f.b, t1[y.li].id}, m: 3}, false)
 		}
 	}
 }
