@@ -104,7 +104,7 @@ type view struct {
 	maxK       int      // the largest K of any value set
 	// checked: every section and invariant was checked at open (parse
 	// with full), among them that every pair's table has K_lo·K_hi
-	// entries, which pairKs relies on.
+	// entries, which tables relies on.
 	checked bool
 
 	// names is Lookup's in-memory sample of the sorted names, built on
@@ -647,34 +647,19 @@ func (v *view) pair(a, b EntityID) (PairStats, bool) {
 		return PairStats{}, false
 	}
 	s, e := v.tableSpan(q)
-	return v.pairAt(a, b, s, e, swapped)
-}
-
-// pairAt returns the statistics of the pair (a, b) whose table is the
-// entries [s, e) of the counts, after checking the table against the
-// entities' value counts (pairKs). O(1).
-func (v *view) pairAt(a, b EntityID, s, e uint64, swapped bool) (PairStats, bool) {
 	if e > uint64(len(v.counts)) || e < s {
 		return PairStats{}, false
 	}
-	ka, kb := v.pairKs(a, b, e-s)
+	var ka, kb int
+	if v.checked && e-s == uint64(v.maxK*v.maxK) { // see tables
+		ka, kb = v.maxK, v.maxK
+	} else {
+		ka, kb = v.numValues(a), v.numValues(b)
+	}
 	if ka == 0 || kb == 0 || e-s != uint64(ka*kb) {
 		return PairStats{}, false
 	}
 	return newStoredPairStats(a, b, ka, kb, v.counts[s:e:e], swapped), true
-}
-
-// pairKs returns K_a and K_b of a stored pair whose table has cells
-// entries. On an index checked at open, every table has K_a·K_b entries
-// and both are at most maxK, so a table of maxK² entries means K_a = K_b =
-// maxK: most pairs of an index whose entities mostly share one K, which
-// spares the two entity-valueset reads (cache misses on a large index).
-// O(1).
-func (v *view) pairKs(a, b EntityID, cells uint64) (int, int) {
-	if v.checked && cells == uint64(v.maxK*v.maxK) {
-		return v.maxK, v.maxK
-	}
-	return v.numValues(a), v.numValues(b)
 }
 
 func (v *view) marginal(id EntityID) []uint64 {
@@ -1053,7 +1038,6 @@ func (v *view) pairBatch(a, b []EntityID, hint []uint32, out []PairStats, ok []b
 			pb                [pairBatchWidth]uint64 // pairBase of lo
 			hinted            [pairBatchWidth]bool   // the window is the hinted entry
 			hit               [pairBatchWidth]bool   // and it holds hi
-			ts, te            [pairBatchWidth]uint64 // the table's entries [ts, te) in counts
 		)
 		// Offsets of every lo's upper list (as upperNeighbors).
 		for j := 0; j < w; j++ {
@@ -1112,27 +1096,70 @@ func (v *view) pairBatch(a, b []EntityID, hint []uint32, out []PairStats, ok []b
 				break
 			}
 		}
-		// The tables' places, from each found pair's position q, in a
-		// short loop of their own for the same reason: the pair-offsets
-		// entries are cache misses on a large index.
+		var (
+			q     [pairBatchWidth]uint64
+			found [pairBatchWidth]bool
+		)
 		for j := 0; j < w; j++ {
-			if hit[j] || (!hinted[j] && size[j] == 1 && nbrs[base[j]] == key[j]) {
-				ts[j], te[j] = v.tableSpan(pb[j] + uint64(base[j]-start[j]))
-			}
+			found[j] = hit[j] || (!hinted[j] && size[j] == 1 && nbrs[base[j]] == key[j])
+			q[j] = pb[j] + uint64(base[j]-start[j])
 		}
-		// Tables.
+		v.tables(a[s0:s0+w], b[s0:s0+w], q[:w], found[:w], out[s0:s0+w], ok[s0:s0+w])
 		for j := 0; j < w; j++ {
-			i := s0 + j
-			out[i], ok[i] = PairStats{}, false
-			if hinted[j] && !hit[j] {
+			if i := s0 + j; hinted[j] && !hit[j] {
 				out[i], ok[i] = v.pair(a[i], b[i]) // a wrong hint: search
-				continue
 			}
-			if te[j] == 0 {
-				continue // not found
-			}
-			out[i], ok[i] = v.pairAt(a[i], b[i], ts[j], te[j], a[i] > b[i])
 		}
+	}
+}
+
+// tables sets out[j], ok[j] for one chunk of a batch (at most
+// pairBatchWidth pairs): the statistics of the pair (a[j], b[j]) stored at
+// pair index q[j] when found[j], else none. The table offsets are read in a
+// loop of their own, so that their cache misses overlap, then each table is
+// checked against the entities' value counts K_a·K_b. On an index checked
+// at open, every table has K_a·K_b entries and both are at most maxK, so a
+// table of maxK² entries means K_a = K_b = maxK: most pairs of an index
+// whose entities mostly share one K, which spares the two entity-valueset
+// reads (cache misses on a large index). O(len(a)).
+func (v *view) tables(a, b []EntityID, q []uint64, found []bool, out []PairStats, ok []bool) {
+	w := len(a)
+	b, q, found, out, ok = b[:w], q[:w], found[:w], out[:w], ok[:w]
+	var ts, te [pairBatchWidth]uint64
+	if v.uniform {
+		kk := uint64(v.k * v.k)
+		for j := range w {
+			if found[j] && q[j] < v.h.Pairs {
+				ts[j], te[j] = q[j]*kk, (q[j]+1)*kk
+			}
+		}
+	} else {
+		po := v.pairOffs
+		for j := range w {
+			if found[j] && q[j] < uint64(len(po)) && q[j]+1 < uint64(len(po)) {
+				ts[j], te[j] = po[q[j]], po[q[j]+1]
+			}
+		}
+	}
+	counts := v.counts
+	maxK := v.maxK
+	mk := uint64(maxK * maxK)
+	for j := range w {
+		out[j], ok[j] = PairStats{}, false
+		s, e := ts[j], te[j]
+		if !found[j] || e == 0 || e > uint64(len(counts)) || e < s {
+			continue
+		}
+		var ka, kb int
+		if c := e - s; v.checked && c == mk {
+			ka, kb = maxK, maxK
+		} else {
+			ka, kb = v.numValues(a[j]), v.numValues(b[j])
+		}
+		if ka == 0 || kb == 0 || e-s != uint64(ka*kb) {
+			continue
+		}
+		out[j], ok[j] = newStoredPairStats(a[j], b[j], ka, kb, counts[s:e:e], a[j] > b[j]), true
 	}
 }
 
@@ -1158,10 +1185,9 @@ func (v *view) pairBatchRanked(a, b []EntityID, entry []uint32, out []PairStats,
 	for s0 := 0; s0 < n; s0 += pairBatchWidth {
 		w := min(pairBatchWidth, n-s0)
 		var (
-			hint   [pairBatchWidth]uint32 // stored position, NoPairHint
-			q      [pairBatchWidth]uint64 // pair index of a trusted position
-			ts, te [pairBatchWidth]uint64 // its table's entries in counts
-			rest   int                    // pairs left to pairBatch
+			hint [pairBatchWidth]uint32 // stored position, NoPairHint
+			q    [pairBatchWidth]uint64 // pair index of a trusted position
+			rest int                    // pairs left to pairBatch
 		)
 		// Entries to positions, from the ranked lists (in cache).
 		for j := 0; j < w; j++ {
@@ -1181,6 +1207,7 @@ func (v *view) pairBatchRanked(a, b []EntityID, entry []uint32, out []PairStats,
 			continue
 		}
 		// Trusted positions: the pair base of the lower entity.
+		var found [pairBatchWidth]bool
 		for j := 0; j < w; j++ {
 			i := s0 + j
 			lo := min(a[i], b[i])
@@ -1189,19 +1216,9 @@ func (v *view) pairBatchRanked(a, b []EntityID, entry []uint32, out []PairStats,
 				rest++
 				continue
 			}
-			q[j] = v.pairBase[lo] + uint64(hint[j])
+			q[j], found[j] = v.pairBase[lo]+uint64(hint[j]), true
 		}
-		// Their tables' places, in a loop of their own (cache misses).
-		for j := 0; j < w; j++ {
-			if hint[j] != NoPairHint {
-				ts[j], te[j] = v.tableSpan(q[j])
-			}
-		}
-		for j := 0; j < w; j++ {
-			if i := s0 + j; hint[j] != NoPairHint {
-				out[i], ok[i] = v.pairAt(a[i], b[i], ts[j], te[j], a[i] > b[i])
-			}
-		}
+		v.tables(a[s0:s0+w], b[s0:s0+w], q[:w], found[:w], out[s0:s0+w], ok[s0:s0+w])
 		// The others (no entry named, or a wrong one) are searched, in
 		// one batch.
 		if rest > 0 {

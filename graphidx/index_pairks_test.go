@@ -6,7 +6,7 @@ import (
 )
 
 // TestPairKsCheckedEqualsLazy: on an index checked at open, Pair and
-// PairBatch take K_a = K_b = maxK from a table of maxK² entries (pairKs)
+// PairBatch take K_a = K_b = maxK from a table of maxK² entries (view.tables)
 // instead of reading the entities' value sets; every stored pair, and
 // every pair of a sample of absent ones, must read exactly as on the same
 // file opened WithLazyVerify (which reads them), with mixed K (1..4).

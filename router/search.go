@@ -233,12 +233,17 @@ type scratch struct {
 	jchunk         []jmatch // the matches of one join chunk, popped from jms
 	rcount         []int
 	f2ends, t2ends idIndex // layer-2 end nodes met by both sides (f2ends), of T2
-	c2s            idIndex // second-layer paths (side<<32 | position) whose second edge is costed: position in c2v
-	c2v            []float64
-	joinA, joinB   []jpair // F2 ⋈ T1 (A), F1 ⋈ T2 (B)
-	joinC          []match3
-	endF, endT     []bool // first-layer nodes whose end edge is queued (joinAll)
-	liveF, liveT   []bool // first-layer nodes extended by layer2 (liveNodes)
+	// c2: the costs of second-layer paths' second edges (edgeCost2),
+	// per side and path, valid where stamp equals epoch.
+	c2 struct {
+		epoch uint32
+		stamp [2][]uint32
+		val   [2][]float64
+	}
+	joinA, joinB []jpair // F2 ⋈ T1 (A), F1 ⋈ T2 (B)
+	joinC        []match3
+	endF, endT   []bool // first-layer nodes whose end edge is queued (joinAll)
+	liveF, liveT []bool // first-layer nodes extended by layer2 (liveNodes)
 	// nF2, nT2: the second-layer paths of each first-layer node, counted
 	// also for the nodes liveNodes leaves out (beam3); totF2, totT2 their
 	// sums.
@@ -948,21 +953,19 @@ func (sc *scratch) pathA(side int, p *step2) graphidx.EntityID {
 	return sc.t1[p.li].id
 }
 
-// c2Key is the key of path i of side among the second-edge costs.
-func c2Key(side int, i uint32) uint64 { return uint64(side)<<32 | uint64(i) }
-
 // knownC2 returns the cost of the second edge of path i of side when
-// edgeCost2 has computed it, else NaN. O(1) expected.
+// edgeCost2 has computed it in this decision, else NaN. O(1).
 func (sc *scratch) knownC2(side int, i uint32) float64 {
-	if pos, ok := sc.c2s.get(c2Key(side, i)); ok {
-		return sc.c2v[pos]
+	if sc.c2.stamp[side][i] == sc.c2.epoch {
+		return sc.c2.val[side][i]
 	}
 	return math.NaN()
 }
 
 // edgeCost2 returns the cost of the second edge of path i of side, looking
-// it up once; the costs computed are kept by path (c2s, reset by joinAll
-// with room for every match's paths). O(1) expected plus the look-up.
+// it up once; the cost is kept by path, stamped with the decision's epoch
+// (resetC2), so that no per-path memory is written for paths no join
+// costs. O(1) plus the look-up.
 func (sc *scratch) edgeCost2(side int, i uint32) (float64, bool) {
 	if c := sc.knownC2(side, i); c == c {
 		return c, true
@@ -976,9 +979,27 @@ func (sc *scratch) edgeCost2(side int, i uint32) (float64, bool) {
 	if !ok {
 		return 0, false
 	}
-	sc.c2s.put(c2Key(side, i), int32(len(sc.c2v)))
-	sc.c2v = append(sc.c2v, c)
+	sc.c2.stamp[side][i], sc.c2.val[side][i] = sc.c2.epoch, c
 	return c, true
+}
+
+// resetC2 forgets every second-edge cost (a new epoch) and makes room for
+// the current layers' paths. O(1), or O(paths) when the arrays grow or the
+// epoch wraps.
+func (sc *scratch) resetC2() {
+	sc.c2.epoch++
+	if sc.c2.epoch == 0 {
+		for side := range sc.c2.stamp {
+			clear(sc.c2.stamp[side])
+		}
+		sc.c2.epoch = 1
+	}
+	for side, n := range [2]int{len(sc.f2), len(sc.t2)} {
+		if len(sc.c2.stamp[side]) < n {
+			sc.c2.stamp[side] = make([]uint32, n)
+			sc.c2.val[side] = make([]float64, n)
+		}
+	}
 }
 
 // searchResult is the outcome of generate.
@@ -1330,9 +1351,7 @@ func (sc *scratch) joinAll() {
 	if n == 0 {
 		return
 	}
-	// Every match costs at most two second edges.
-	sc.c2s.reset(len(sc.joinA) + len(sc.joinB) + 2*len(sc.joinC))
-	sc.c2v = sc.c2v[:0]
+	sc.resetC2()
 	if sc.bud.left < (len(f1)+len(t1))*lookupUnits {
 		byKey := func(x, y jpair) int { return cmp.Compare(x.key, y.key) }
 		slices.SortFunc(sc.joinA, byKey)
