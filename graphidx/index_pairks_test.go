@@ -20,16 +20,7 @@ func TestPairKsCheckedEqualsLazy(t *testing.T) {
 			t.Parallel()
 			src := ixRandomSource(tc.n, tc.deg, tc.k, tc.seed)
 			path := ixWriteTemp(t, src)
-			full, err := Open(path)
-			if err != nil {
-				t.Fatal(err)
-			}
-			defer full.Close()
-			lazy, err := Open(path, WithLazyVerify())
-			if err != nil {
-				t.Fatal(err)
-			}
-			defer lazy.Close()
+			full, lazy := ixOpen(t, path), ixOpen(t, path, WithLazyVerify())
 			if !full.v.Load().checked || lazy.v.Load().checked {
 				t.Fatal("the full open must be checked, the lazy one not")
 			}
@@ -78,10 +69,7 @@ func TestPairBatchRankedEqualsPair(t *testing.T) {
 		if lazy {
 			opts = append(opts, WithLazyVerify())
 		}
-		x, err := Open(path, opts...)
-		if err != nil {
-			t.Fatal(err)
-		}
+		x := ixOpen(t, path, opts...)
 		var a, b []EntityID
 		var entry []uint32
 		kinds := [5]int{}
@@ -113,7 +101,6 @@ func TestPairBatchRankedEqualsPair(t *testing.T) {
 				t.Fatalf("lazy %v: pair (%d, %d) entry %d: batch %v %+v, Pair %v %+v", lazy, a[i], b[i], entry[i], ok[i], out[i], pok, p)
 			}
 		}
-		x.Close()
 		if kinds[0] < 100 || len(a) <= pairBatchWidth {
 			t.Fatalf("%d pairs, kinds %v: too few", len(a), kinds)
 		}
