@@ -247,7 +247,12 @@ type scratch struct {
 	// nF2, nT2: the second-layer paths of each first-layer node, counted
 	// also for the nodes liveNodes leaves out (beam3); totF2, totT2 their
 	// sums.
-	nF2, nT2     []int32
+	nF2, nT2 []int32
+	// starts: where each first-layer node's paths begin in F2 (side 0)
+	// and T2 (side 1), for the nodes layer2 reached; beamF, beamT the
+	// positions of the three-bridge beam's paths (beamPaths).
+	starts       [2][]int32
+	beamF, beamT []int32
 	totF2, totT2 int
 	keysF, keysT []uint64
 	rks          [2][][]graphidx.EntityID // ranked lists of the layer-1 nodes, s side and t side
@@ -763,7 +768,8 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 	ok = l1ok
 	f := sc.st.fanOut
 	cnt := (*counts)[:0]
-	defer func() { *counts = cnt }()
+	starts := sc.starts[side][:0]
+	defer func() { *counts, sc.starts[side] = cnt, starts }()
 	rks, hks := sc.rks[side][:0], sc.hks[side][:0]
 	for i, x := range l1 {
 		// A hub's first layer can hold 10⁵ nodes whose list offsets are
@@ -796,6 +802,7 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 	}
 	sc.touched += uint32(touch)
 	for i, x := range l1 {
+		starts = append(starts, int32(len(out)))
 		rk := rks[i]
 		n := 0
 		full := false
@@ -1198,17 +1205,14 @@ func (sc *scratch) matchJoins(skip3 bool) {
 	// of those (few, so their index is small), both sorted, then merged
 	// group by group.
 	r3f, r3t := sc.beam3(sc.nF2, sc.totF2), sc.beam3(sc.nT2, sc.totT2)
+	sc.beamF = beamPaths(sc.beamF[:0], f2, sc.starts[0], r3f)
+	sc.beamT = beamPaths(sc.beamT[:0], t2, sc.starts[1], r3t)
 	sc.t2ends.reset(len(t2))
-	for i := range t2 {
-		if r3t.in(&t2[i]) {
-			sc.t2ends.put(uint64(t2[i].b), int32(i))
-		}
+	for _, i := range sc.beamT {
+		sc.t2ends.put(uint64(t2[i].b), i)
 	}
 	fk, tk := sc.keysF[:0], sc.keysT[:0]
-	for i := range f2 {
-		if !r3f.in(&f2[i]) {
-			continue
-		}
+	for _, i := range sc.beamF {
 		if _, ok := sc.t2ends.get(uint64(f2[i].b)); ok {
 			fk = append(fk, uint64(f2[i].b)<<32|uint64(i))
 		}
@@ -1218,10 +1222,7 @@ func (sc *scratch) matchJoins(skip3 bool) {
 		for _, k := range fk {
 			sc.f2ends.put(k>>32, 0)
 		}
-		for i := range t2 {
-			if !r3t.in(&t2[i]) {
-				continue
-			}
+		for _, i := range sc.beamT {
 			if _, ok := sc.f2ends.get(uint64(t2[i].b)); ok {
 				tk = append(tk, uint64(t2[i].b)<<32|uint64(i))
 			}
@@ -1303,6 +1304,30 @@ func (sc *scratch) beam3(counts []int32, total int) rankCut {
 		return rankCut{r: int32(r), li: li}
 	}
 	return rankCut{r: math.MaxInt32}
+}
+
+// beamPaths appends to dst the positions, ascending, of the paths of the
+// second layer l that the three-bridge beam c admits. starts[li] is where
+// first-layer node li's paths begin in l; a node's paths have rank
+// positions 0, 1, … in order, so each node's run stops at its first path
+// past c.r. O(|F1| + B) instead of a pass over all B·f paths.
+func beamPaths(dst []int32, l []step2, starts []int32, c rankCut) []int32 {
+	for li, st := range starts {
+		end := int32(len(l))
+		if li+1 < len(starts) {
+			end = starts[li+1]
+		}
+		for i := st; i < end; i++ {
+			p := &l[i]
+			if p.r > c.r {
+				break
+			}
+			if c.in(p) {
+				dst = append(dst, i)
+			}
+		}
+	}
+	return dst
 }
 
 // sumCounts is the sum of path counts. O(len).
