@@ -117,6 +117,29 @@ func ExampleIndex_PairBatchHinted() {
 	// pump.a hint 0 found true support 4
 }
 
+// ExampleIndex_PairBatchRanked looks up a pair named by its entry in an
+// entity's ranked list (on an index checked at open the stored position is
+// used as it is), and the same pair with an entry that does not hold it,
+// which is searched instead: the answers are always Pair's.
+func ExampleIndex_PairBatchRanked() {
+	x, done := openGreenhouse()
+	defer done()
+
+	pump, _ := x.Lookup("pump.a")
+	vent := x.RankedNeighbors(pump)[0]
+	from := []graphidx.EntityID{pump, pump}
+	to := []graphidx.EntityID{vent, vent}
+	entry := []uint32{0, 5} // entry 5 is past the list
+	out, ok := make([]graphidx.PairStats, 2), make([]bool, 2)
+	x.PairBatchRanked(from, to, entry, out, ok)
+	for i := range out {
+		fmt.Println(x.Name(to[i]), "entry", entry[i], "found", ok[i], "support", out[i].Support(), "on", out[i].Count(1, 1))
+	}
+	// Output:
+	// vent.east entry 0 found true support 4 on 2
+	// vent.east entry 5 found true support 4 on 2
+}
+
 // openGreenhouse writes the greenhouse index to a temporary directory and
 // opens it; done closes it and removes the directory.
 func openGreenhouse() (x *graphidx.Index, done func()) {

@@ -101,6 +101,11 @@ type view struct {
 	rankOffs   []uint64
 	rank       []uint32
 	rankPos    []uint32 // parallel to rank: the pair's position in lo's upper list
+	maxK       int      // the largest K of any value set
+	// checked: every section and invariant was checked at open (parse
+	// with full), among them that every pair's table has K_lo·K_hi
+	// entries, which tables relies on.
+	checked bool
 
 	// names is Lookup's in-memory sample of the sorted names, built on
 	// the first Lookup (nameSample).
@@ -311,6 +316,7 @@ func parse(data []byte, full bool) (*view, error) {
 		if err := v.checkStructure(context.Background()); err != nil {
 			return nil, err
 		}
+		v.checked = true
 	}
 	return v, nil
 }
@@ -524,6 +530,7 @@ func (v *view) checkLabels() error {
 			return corruptf(ErrCorrupt, "value set %d has %d values in a uniform-K=%d index", i, e-s, v.k)
 		}
 		v.sets[i] = flat[s:e:e]
+		v.maxK = max(v.maxK, len(v.sets[i]))
 	}
 	return nil
 }
@@ -601,24 +608,30 @@ func (v *view) pairIndex(lo, hi EntityID) (uint64, bool) {
 // table returns the stored count table of pair index q, which must have
 // exactly cells entries.
 func (v *view) table(q uint64, cells int) ([]uint32, bool) {
-	var s, e uint64
-	if v.uniform {
-		kk := uint64(v.k * v.k)
-		if q >= v.h.Pairs {
-			return nil, false
-		}
-		s, e = q*kk, (q+1)*kk
-	} else {
-		a, b, ok := span(v.pairOffs, q, len(v.counts))
-		if !ok {
-			return nil, false
-		}
-		s, e = uint64(a), uint64(b)
-	}
-	if e > uint64(len(v.counts)) || e-s != uint64(cells) {
+	s, e := v.tableSpan(q)
+	if e > uint64(len(v.counts)) || e < s || e-s != uint64(cells) {
 		return nil, false
 	}
 	return v.counts[s:e:e], true
+}
+
+// tableSpan returns the entries [s, e) of pair index q's table in the
+// counts section, or the empty span (0, 0) when q or its offsets are out
+// of range. The caller checks e against the counts and the table's size.
+// O(1).
+func (v *view) tableSpan(q uint64) (s, e uint64) {
+	if v.uniform {
+		kk := uint64(v.k * v.k)
+		if q >= v.h.Pairs {
+			return 0, 0
+		}
+		return q * kk, (q + 1) * kk
+	}
+	a, b, ok := span(v.pairOffs, q, len(v.counts))
+	if !ok {
+		return 0, 0
+	}
+	return uint64(a), uint64(b)
 }
 
 func (v *view) pair(a, b EntityID) (PairStats, bool) {
@@ -633,15 +646,20 @@ func (v *view) pair(a, b EntityID) (PairStats, bool) {
 	if !ok {
 		return PairStats{}, false
 	}
-	ka, kb := v.numValues(a), v.numValues(b)
-	if ka == 0 || kb == 0 {
+	s, e := v.tableSpan(q)
+	if e > uint64(len(v.counts)) || e < s {
 		return PairStats{}, false
 	}
-	t, ok := v.table(q, ka*kb)
-	if !ok {
+	var ka, kb int
+	if v.checked && e-s == uint64(v.maxK*v.maxK) { // see tables
+		ka, kb = v.maxK, v.maxK
+	} else {
+		ka, kb = v.numValues(a), v.numValues(b)
+	}
+	if ka == 0 || kb == 0 || e-s != uint64(ka*kb) {
 		return PairStats{}, false
 	}
-	return newStoredPairStats(a, b, ka, kb, t, swapped), true
+	return newStoredPairStats(a, b, ka, kb, v.counts[s:e:e], swapped), true
 }
 
 func (v *view) marginal(id EntityID) []uint64 {
@@ -678,6 +696,7 @@ func (v *view) marginal(id EntityID) []uint64 {
 func (x *Index) Lookup(name string) (EntityID, bool) {
 	v := x.v.Load()
 	lo, hi := v.nameRange(name)
+	v.touchNames(lo, hi)
 	for lo < hi {
 		mid := lo + (hi-lo)/2
 		switch c := strings.Compare(v.nameAt(mid), name); {
@@ -691,6 +710,40 @@ func (x *Index) Lookup(name string) (EntityID, bool) {
 	}
 	return 0, false
 }
+
+// touchNames reads every cache line of the names [lo, hi) and of their
+// offsets before Lookup's binary search probes them: the reads are
+// independent, so their cache misses overlap (two rounds: the offsets, then
+// the bytes they name), where the search's probes would meet them one after
+// the other (about ten dependent misses for a range of nameSampleStep
+// names on an index larger than the caches). A range wider than a sample
+// step (names sharing a sampled key) is not touched. O(hi − lo).
+func (v *view) touchNames(lo, hi uint64) {
+	if hi <= lo || hi-lo > nameSampleStep || hi >= uint64(len(v.nameOffs)) {
+		return
+	}
+	var t uint64
+	for i := lo; i <= hi; i += 8 { // 8 offsets per 64-byte line
+		t += v.nameOffs[i]
+	}
+	t += v.nameOffs[hi]
+	s, e := v.nameOffs[lo], v.nameOffs[hi]
+	if s < e && e <= uint64(len(v.nameBytes)) {
+		for p := s; p < e; p += 64 {
+			t += uint64(v.nameBytes[p])
+		}
+	}
+	if t == touchMagic { // keeps the reads; practically never true
+		touchSink.Add(1)
+	}
+}
+
+// touchMagic and touchSink keep touch loops' reads from being optimised
+// away: the loop's sum is compared with a value it is practically never
+// equal to.
+const touchMagic = 0x9e3779b97f4a7c15
+
+var touchSink atomic.Uint64
 
 // nameSampleStep is the gap between sampled names: 32 keeps the sample at
 // 0.25 bytes per entity (256 KiB at 1M entities, mostly cache-resident)
@@ -1043,28 +1096,149 @@ func (v *view) pairBatch(a, b []EntityID, hint []uint32, out []PairStats, ok []b
 				break
 			}
 		}
-		// Tables.
+		var (
+			q     [pairBatchWidth]uint64
+			found [pairBatchWidth]bool
+		)
+		for j := 0; j < w; j++ {
+			found[j] = hit[j] || (!hinted[j] && size[j] == 1 && nbrs[base[j]] == key[j])
+			q[j] = pb[j] + uint64(base[j]-start[j])
+		}
+		v.tables(a[s0:s0+w], b[s0:s0+w], q[:w], found[:w], out[s0:s0+w], ok[s0:s0+w])
+		for j := 0; j < w; j++ {
+			if i := s0 + j; hinted[j] && !hit[j] {
+				out[i], ok[i] = v.pair(a[i], b[i]) // a wrong hint: search
+			}
+		}
+	}
+}
+
+// tables sets out[j], ok[j] for one chunk of a batch (at most
+// pairBatchWidth pairs): the statistics of the pair (a[j], b[j]) stored at
+// pair index q[j] when found[j], else none. The table offsets are read in a
+// loop of their own, so that their cache misses overlap, then each table is
+// checked against the entities' value counts K_a·K_b. On an index checked
+// at open, every table has K_a·K_b entries and both are at most maxK, so a
+// table of maxK² entries means K_a = K_b = maxK: most pairs of an index
+// whose entities mostly share one K, which spares the two entity-valueset
+// reads (cache misses on a large index). O(len(a)).
+func (v *view) tables(a, b []EntityID, q []uint64, found []bool, out []PairStats, ok []bool) {
+	w := len(a)
+	b, q, found, out, ok = b[:w], q[:w], found[:w], out[:w], ok[:w]
+	var ts, te [pairBatchWidth]uint64
+	if v.uniform {
+		kk := uint64(v.k * v.k)
+		for j := range w {
+			if found[j] && q[j] < v.h.Pairs {
+				ts[j], te[j] = q[j]*kk, (q[j]+1)*kk
+			}
+		}
+	} else {
+		po := v.pairOffs
+		for j := range w {
+			if found[j] && q[j] < uint64(len(po)) && q[j]+1 < uint64(len(po)) {
+				ts[j], te[j] = po[q[j]], po[q[j]+1]
+			}
+		}
+	}
+	counts := v.counts
+	maxK := v.maxK
+	mk := uint64(maxK * maxK)
+	for j := range w {
+		out[j], ok[j] = PairStats{}, false
+		s, e := ts[j], te[j]
+		if !found[j] || e == 0 || e > uint64(len(counts)) || e < s {
+			continue
+		}
+		var ka, kb int
+		if c := e - s; v.checked && c == mk {
+			ka, kb = maxK, maxK
+		} else {
+			ka, kb = v.numValues(a[j]), v.numValues(b[j])
+		}
+		if ka == 0 || kb == 0 || e-s != uint64(ka*kb) {
+			continue
+		}
+		out[j], ok[j] = newStoredPairStats(a[j], b[j], ka, kb, counts[s:e:e], a[j] > b[j]), true
+	}
+}
+
+// PairBatchRanked is PairBatch where entry[i] (entry at least as long as
+// a) names the pair by its place in a ranked list: b[i] is
+// RankedNeighbors(a[i])[entry[i]], or entry[i] is NoPairHint. The answer
+// is always what Pair(a[i], b[i]) returns: an entry that does not hold
+// b[i] is ignored (the pair is searched). A named entry gives the pair's
+// stored position (RankedPairHints); on an index opened with the full check
+// (Open without WithLazyVerify), which checked every stored position, the
+// look-up then reads only the lower entity's pair base, the table's offsets
+// and the table: no adjacency offsets and no list entry, one dependent
+// cache miss fewer than PairBatchHinted, for ranked lists the caller has
+// just read (they are in cache). Opened WithLazyVerify, the position is
+// checked as PairBatchHinted checks it. No allocation.
+func (x *Index) PairBatchRanked(a, b []EntityID, entry []uint32, out []PairStats, ok []bool) {
+	x.v.Load().pairBatchRanked(a, b, entry[:len(a)], out, ok)
+}
+
+func (v *view) pairBatchRanked(a, b []EntityID, entry []uint32, out []PairStats, ok []bool) {
+	n := len(a)
+	b, out, ok = b[:n], out[:n], ok[:n]
+	for s0 := 0; s0 < n; s0 += pairBatchWidth {
+		w := min(pairBatchWidth, n-s0)
+		var (
+			hint [pairBatchWidth]uint32 // stored position, NoPairHint
+			q    [pairBatchWidth]uint64 // pair index of a trusted position
+			rest int                    // pairs left to pairBatch
+		)
+		// Entries to positions, from the ranked lists (in cache).
 		for j := 0; j < w; j++ {
 			i := s0 + j
-			out[i], ok[i] = PairStats{}, false
-			if hinted[j] {
-				if !hit[j] {
-					out[i], ok[i] = v.pair(a[i], b[i]) // a wrong hint: search
-					continue
+			hint[j] = NoPairHint
+			e := entry[i]
+			if e == NoPairHint || uint64(a[i]) >= v.n || len(v.rankPos) != len(v.rank) {
+				continue
+			}
+			s, t, okS := span(v.rankOffs, uint64(a[i]), len(v.rank))
+			if okS && uint64(e) < uint64(t-s) && v.rank[s+int(e)] == b[i] {
+				hint[j] = v.rankPos[s+int(e)]
+			}
+		}
+		if !v.checked {
+			v.pairBatch(a[s0:s0+w], b[s0:s0+w], hint[:w], out[s0:s0+w], ok[s0:s0+w])
+			continue
+		}
+		// Trusted positions: the pair base of the lower entity.
+		var found [pairBatchWidth]bool
+		for j := 0; j < w; j++ {
+			i := s0 + j
+			lo := min(a[i], b[i])
+			if hint[j] == NoPairHint || uint64(lo)+1 >= uint64(len(v.pairBase)) {
+				hint[j] = NoPairHint
+				rest++
+				continue
+			}
+			q[j], found[j] = v.pairBase[lo]+uint64(hint[j]), true
+		}
+		v.tables(a[s0:s0+w], b[s0:s0+w], q[:w], found[:w], out[s0:s0+w], ok[s0:s0+w])
+		// The others (no entry named, or a wrong one) are searched, in
+		// one batch.
+		if rest > 0 {
+			var (
+				ra, rb [pairBatchWidth]EntityID
+				ro     [pairBatchWidth]PairStats
+				rok    [pairBatchWidth]bool
+				at     [pairBatchWidth]int
+			)
+			m := 0
+			for j := 0; j < w; j++ {
+				if i := s0 + j; hint[j] == NoPairHint {
+					ra[m], rb[m], at[m] = a[i], b[i], i
+					m++
 				}
-			} else if size[j] != 1 || nbrs[base[j]] != key[j] {
-				continue
 			}
-			q := pb[j] + uint64(base[j]-start[j])
-			ka, kb := v.numValues(a[i]), v.numValues(b[i])
-			if ka == 0 || kb == 0 {
-				continue
+			v.pairBatch(ra[:m], rb[:m], nil, ro[:m], rok[:m])
+			for k := 0; k < m; k++ {
+				out[at[k]], ok[at[k]] = ro[k], rok[k]
 			}
-			t, found := v.table(q, ka*kb)
-			if !found {
-				continue
-			}
-			out[i], ok[i] = newStoredPairStats(a[i], b[i], ka, kb, t, a[i] > b[i]), true
 		}
 	}
 }

@@ -194,6 +194,17 @@ func ixWriteTemp(tb testing.TB, src Source, opts ...WriteOption) string {
 	return path
 }
 
+// ixOpen opens path with opts and closes the index when the test ends.
+func ixOpen(tb testing.TB, path string, opts ...OpenOption) *Index {
+	tb.Helper()
+	x, err := Open(path, opts...)
+	if err != nil {
+		tb.Fatalf("Open: %v", err)
+	}
+	tb.Cleanup(func() { x.Close() })
+	return x
+}
+
 func ixReadFile(tb testing.TB, path string) []byte {
 	tb.Helper()
 	b, err := os.ReadFile(path)

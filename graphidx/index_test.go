@@ -558,16 +558,7 @@ func TestCloseContract(t *testing.T) {
 func TestWithoutMmap(t *testing.T) {
 	t.Parallel()
 	path := ixWriteTemp(t, ixRandomSource(80, 6, 0, 11))
-	a, err := Open(path)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer a.Close()
-	b, err := Open(path, WithoutMmap())
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer b.Close()
+	a, b := ixOpen(t, path), ixOpen(t, path, WithoutMmap())
 	for i := 0; i < a.NumEntities(); i++ {
 		id := EntityID(i)
 		if !slices.Equal(a.Neighbors(id), b.Neighbors(id)) || !slices.Equal(a.RankedNeighbors(id), b.RankedNeighbors(id)) {

@@ -7,16 +7,20 @@ import (
 
 // Graph is the read view of a locality index the router needs.
 // *graphidx.Index satisfies it. Implementations must be safe for concurrent
-// readers and must not allocate on the lookup paths.
+// readers and must not allocate on the lookup paths. Pair(a, b) must be ok
+// only when b is in Neighbors(a) (as for an index): the search reads chains
+// from the lists, and answers a pair with a query's endpoint whose list
+// leaves the other entity out as not observed, without a look-up.
 //
 // Two optional methods make the search faster without changing any
 // decision; *graphidx.Index has both, and a wrapper around an index should
 // forward them: PairBatch (see PairBatcher), and RankPrefix() int, the
 // length of the ranked prefix, which tells that a RankedNeighbors list
 // shorter than it holds every neighbour (so the search need not read
-// Neighbors to know). PairBatchHinted with RankedPairHints (see
-// HintedPairBatcher) lets the joins read the edges they reached through
-// ranked lists without a binary search; a wrapper should forward them too. A third, AppendName (see NameAppender), spares the
+// Neighbors to know). PairBatchRanked (see RankedPairBatcher), or
+// PairBatchHinted with RankedPairHints (see HintedPairBatcher), lets the
+// joins read the edges they reached through ranked lists without a binary
+// search; a wrapper should forward them too. A third, AppendName (see NameAppender), spares the
 // per-bridge copy that Name makes. A fourth, Marginal (scorer.Marginals),
 // gives the Bayes model the target's marginal counts, toward which it
 // shrinks the direct estimate of a pair seen rarely or never; a wrapper

@@ -2,6 +2,7 @@ package router
 
 import (
 	"math"
+	"slices"
 
 	"github.com/hopwise/hopwise/graphidx"
 )
@@ -74,26 +75,84 @@ const memoMinSlots = 256
 
 func memoHash(key uint64, shift uint) int { return int((key * 0x9e3779b97f4a7c15) >> shift) }
 
-// get returns the entry of (lo, hi), looking the pair up in g on the first
-// request. The pointer is valid until the next get.
-func (m *pairMemo) get(g Graph, lo, hi graphidx.EntityID) *memoEntry {
+// entry returns the slot of (lo, hi) and whether it was filled before; a
+// new slot is entered with the key only, and the caller fills it before
+// the next call.
+func (m *pairMemo) entry(lo, hi graphidx.EntityID) (*memoEntry, bool) {
 	if m.tab == nil {
 		m.init(memoMinSlots)
 	}
 	key := uint64(lo)<<32 | uint64(hi)
 	i, found := m.find(key)
 	if found {
-		return &m.tab[i]
+		return &m.tab[i], true
 	}
 	if 2*(len(m.used)+1) > len(m.tab) {
 		m.grow()
 		i, _ = m.find(key)
 	}
 	e := &m.tab[i]
-	ps, ok := g.Pair(lo, hi)
-	*e = memoEntry{key: key, full: true, ok: ok, cost: math.NaN(), ps: ps}
+	*e = memoEntry{key: key, full: true, cost: math.NaN()}
 	m.used = append(m.used, int32(i))
+	return e, false
+}
+
+// memoGet returns the memo entry of (lo, hi), lo ≤ hi, looking the pair up
+// in the graph on the first request, unless an endpoint's adjacency list
+// held in the scratch (endLists) shows the pair was never observed. The
+// pointer is valid until the next memoGet.
+func (sc *scratch) memoGet(lo, hi graphidx.EntityID) *memoEntry {
+	e, found := sc.memo.entry(lo, hi)
+	if found || sc.ruledOut(lo, hi) {
+		return e
+	}
+	e.ps, e.ok = sc.g.Pair(lo, hi)
 	return e
+}
+
+// endListMax is the longest adjacency list of an endpoint that the scratch
+// keeps for ruledOut: 512 ids are 2 KiB, which the one-bridge phase's
+// intersection has just read, and a binary search in them is about nine
+// steps in cache, against a look-up in the index (the lower entity's list
+// offsets, then a binary search in its list: cache misses on a large
+// index).
+const endListMax = 512
+
+// endLists keeps the adjacency lists of the decision's endpoints s and t
+// when they have at most endListMax entries (else nil). O(1).
+func (sc *scratch) endLists() {
+	sc.nbrS, sc.nbrT = nil, nil
+	if l := sc.g.Neighbors(sc.s); len(l) <= endListMax {
+		sc.nbrS = l
+	}
+	if l := sc.g.Neighbors(sc.t); len(l) <= endListMax {
+		sc.nbrT = l
+	}
+}
+
+// ruledOut reports that the pair {a, b} has no statistics because one of
+// its entities is s or t, whose adjacency list is kept (endLists), and the
+// other is not in that list: a Graph's Pair is ok only for a listed
+// neighbour (Graph). Most pairs the separation check asks about (a
+// bridge's ranked neighbour with s or t) are of this kind. It changes no
+// answer, only spares the graph look-up. O(log endListMax).
+func (sc *scratch) ruledOut(a, b graphidx.EntityID) bool {
+	for range 2 {
+		var l []graphidx.EntityID
+		switch a {
+		case sc.s:
+			l = sc.nbrS
+		case sc.t:
+			l = sc.nbrT
+		}
+		if l != nil {
+			if _, in := slices.BinarySearch(l, b); !in {
+				return true
+			}
+		}
+		a, b = b, a
+	}
+	return false
 }
 
 func (m *pairMemo) init(slots int) {
@@ -144,7 +203,7 @@ func (sc *scratch) pairStats(a, b graphidx.EntityID) (graphidx.PairStats, bool) 
 	if a > b {
 		lo, hi = b, a
 	}
-	e := sc.memo.get(sc.g, lo, hi)
+	e := sc.memoGet(lo, hi)
 	if !e.ok {
 		return e.ps, false
 	}
@@ -179,51 +238,88 @@ type HintedPairBatcher interface {
 	PairBatchHinted(a, b []graphidx.EntityID, hint []uint32, out []graphidx.PairStats, ok []bool)
 }
 
+// RankedPairBatcher is an optional interface of a Graph: PairBatchRanked
+// is PairBatch where entry[i] names the pair by its place in a ranked list
+// (b[i] is RankedNeighbors(a[i])[entry[i]], or entry[i] is
+// graphidx.NoPairHint), and returns the same statistics, in less time for
+// named pairs. *graphidx.Index implements it: on an index checked at open
+// the look-up uses the pair's stored position without reading adjacency
+// offsets or the list entry. When the graph implements it, the search
+// names every edge it reached through a ranked list this way (the joins'
+// end and middle edges) and need not read the ranked lists' pair hints
+// (HintedPairBatcher) up front. A wrapper around an Index should forward
+// it.
+type RankedPairBatcher interface {
+	PairBatchRanked(a, b []graphidx.EntityID, entry []uint32, out []graphidx.PairStats, ok []bool)
+}
+
 // want queues the unordered pair {a, b} for the next fetch unless the
 // memo already has it or the queue holds sc.pendMax pairs.
-func (sc *scratch) want(a, b graphidx.EntityID) { sc.wantHint(a, b, graphidx.NoPairHint) }
+func (sc *scratch) want(a, b graphidx.EntityID) {
+	sc.wantRanked(a, b, graphidx.NoPairHint, graphidx.NoPairHint)
+}
 
-// wantHint is want with the pair's stored position (hint), from a ranked
-// list's RankedPairHints, or graphidx.NoPairHint.
-func (sc *scratch) wantHint(a, b graphidx.EntityID, hint uint32) {
-	if len(sc.pend.lo) >= sc.pendMax {
+// wantRanked is want for a pair reached through owner's ranked list: other
+// is its entry ent (RankedPairBatcher), and pos is the pair's stored
+// position (HintedPairBatcher; graphidx.NoPairHint when unknown or not
+// needed).
+func (sc *scratch) wantRanked(owner, other graphidx.EntityID, ent, pos uint32) {
+	if len(sc.pend.a) >= sc.pendMax {
 		return
 	}
-	if a > b {
-		a, b = b, a
-	}
-	if sc.memo.reserve(a, b) {
-		sc.pend.lo = append(sc.pend.lo, a)
-		sc.pend.hi = append(sc.pend.hi, b)
-		sc.pend.hint = append(sc.pend.hint, hint)
+	if sc.memo.reserve(min(owner, other), max(owner, other)) {
+		sc.pend.a = append(sc.pend.a, owner)
+		sc.pend.b = append(sc.pend.b, other)
+		sc.pend.ent = append(sc.pend.ent, ent)
+		sc.pend.hint = append(sc.pend.hint, pos)
 	}
 }
 
-// want2 queues the second edge p.a → p.b of a path of side's second layer
-// (0: s, 1: t) with its hint. The hint is the one beside p.b in p.a's
-// ranked list, kept by layer2: p.b is the path's r-th eligible entry, so
-// it sits at position r to r+3 of the list (at most the layer's two ends
-// and p.a itself come before it and are not eligible); a path from beyond
-// is in no ranked list and gets no hint. O(1).
+// wantEnd queues the end edge of first-layer node i of side (0: s → F1[i],
+// 1: t → T1[i]), named by its entry in the origin's ranked list.
+func (sc *scratch) wantEnd(side int, i int32) {
+	l, origin := sc.f1, sc.s
+	if side == 1 {
+		l, origin = sc.t1, sc.t
+	}
+	x := &l[i]
+	sc.wantRanked(origin, x.id, x.ent, hintAt(sc.h1[side], x.ent))
+}
+
+// hintAt returns hk[ent], or graphidx.NoPairHint when ent is out of hk.
+func hintAt(hk []uint32, ent uint32) uint32 {
+	if uint64(ent) < uint64(len(hk)) {
+		return hk[ent]
+	}
+	return graphidx.NoPairHint
+}
+
+// want2 queues the second edge a → p.b of a path of side's second layer
+// (0: s, 1: t; a its first-layer node) with its entry in a's ranked list
+// (kept by layer2) and its hint: p.b is the path's r-th eligible entry,
+// so it sits at position r to r+3 of the list (at most the layer's two
+// ends and a itself come before it and are not eligible); a path from
+// beyond is in no ranked list and gets neither. O(1).
 func (sc *scratch) want2(p *step2, side int) {
-	h := uint32(graphidx.NoPairHint)
-	if int(p.li) < len(sc.hks[side]) {
-		if rk, hk := sc.rks[side][p.li], sc.hks[side][p.li]; hk != nil {
-			for j := int(p.r); j < min(len(rk), int(p.r)+4); j++ {
-				if rk[j] == p.b {
-					h = hk[j]
-					break
-				}
+	ent, pos := uint32(graphidx.NoPairHint), uint32(graphidx.NoPairHint)
+	if int(p.li) < len(sc.rks[side]) {
+		rk := sc.rks[side][p.li]
+		for j := int(p.r); j < min(len(rk), int(p.r)+4); j++ {
+			if rk[j] == p.b {
+				ent = uint32(j)
+				pos = hintAt(sc.hks[side][p.li], ent)
+				break
 			}
 		}
 	}
-	sc.wantHint(p.a, p.b, h)
+	sc.wantRanked(sc.pathA(side, p), p.b, ent, pos)
 }
 
 // rankedHints returns the graph's hints for id's ranked list when it has
-// them and they cover at least n entries, else nil. O(1).
+// them, they cover at least n entries and the graph has no
+// PairBatchRanked (which reads them itself), else nil. O(1).
 func (sc *scratch) rankedHints(id graphidx.EntityID, n int) []uint32 {
-	if sc.hp == nil {
+	if sc.hp == nil || sc.rb != nil {
 		return nil
 	}
 	h := sc.hp.RankedPairHints(id)
@@ -248,7 +344,7 @@ func (sc *scratch) beginPrefetch(n int) bool {
 		return false
 	}
 	sc.pendMax = min(n, maxPrefetch)
-	sc.pend.lo, sc.pend.hi, sc.pend.hint = sc.pend.lo[:0], sc.pend.hi[:0], sc.pend.hint[:0]
+	sc.pend.a, sc.pend.b, sc.pend.ent, sc.pend.hint = sc.pend.a[:0], sc.pend.b[:0], sc.pend.ent[:0], sc.pend.hint[:0]
 	return true
 }
 
@@ -260,7 +356,7 @@ func (sc *scratch) beginPrefetch(n int) bool {
 // phase itself (sc.edge). Pairs the phase then prunes were fetched in vain;
 // on the benchmark index that is about one in eight.
 func (sc *scratch) fetch() {
-	n := len(sc.pend.lo)
+	n := len(sc.pend.a)
 	if n == 0 {
 		return
 	}
@@ -269,10 +365,13 @@ func (sc *scratch) fetch() {
 		sc.pend.ok = make([]bool, n)
 	}
 	ps, ok := sc.pend.ps[:n], sc.pend.ok[:n]
-	if sc.hp != nil {
-		sc.hp.PairBatchHinted(sc.pend.lo, sc.pend.hi, sc.pend.hint, ps, ok)
-	} else {
-		sc.pb.PairBatch(sc.pend.lo, sc.pend.hi, ps, ok)
+	switch {
+	case sc.rb != nil:
+		sc.rb.PairBatchRanked(sc.pend.a, sc.pend.b, sc.pend.ent, ps, ok)
+	case sc.hp != nil:
+		sc.hp.PairBatchHinted(sc.pend.a, sc.pend.b, sc.pend.hint, ps, ok)
+	default:
+		sc.pb.PairBatch(sc.pend.a, sc.pend.b, ps, ok)
 	}
 	// Touch every table first: independent loads whose cache misses
 	// overlap, instead of one miss per EdgeCost later.
@@ -283,13 +382,20 @@ func (sc *scratch) fetch() {
 		}
 	}
 	sc.touched += touch
-	for i, lo := range sc.pend.lo {
-		j, _ := sc.memo.find(uint64(lo)<<32 | uint64(sc.pend.hi[i]))
+	for i, a := range sc.pend.a {
+		b, p := sc.pend.b[i], ps[i]
+		if a > b { // the memo holds the (lo, hi) orientation
+			a, b = b, a
+			if ok[i] {
+				p = p.Transpose()
+			}
+		}
+		j, _ := sc.memo.find(uint64(a)<<32 | uint64(b))
 		e := &sc.memo.tab[j]
-		e.ok, e.ps, e.cost = ok[i], ps[i], math.NaN()
+		e.ok, e.ps, e.cost = ok[i], p, math.NaN()
 		ps[i] = graphidx.PairStats{} // drop the reference into the index
 	}
-	sc.pend.lo, sc.pend.hi, sc.pend.hint = sc.pend.lo[:0], sc.pend.hi[:0], sc.pend.hint[:0]
+	sc.pend.a, sc.pend.b, sc.pend.ent, sc.pend.hint = sc.pend.a[:0], sc.pend.b[:0], sc.pend.ent[:0], sc.pend.hint[:0]
 }
 
 // NumValues implements scorer.Stats for the model calls of a decision.

@@ -78,6 +78,27 @@ func (g hintedIndex) PairBatchHinted(a, b []graphidx.EntityID, hint []uint32, ou
 	g.ix.PairBatchHinted(a, b, hint, out, ok)
 }
 
+// rankedIndex is nonClosingIndex that also forwards the ranked batch
+// look-up (RankedPairBatcher), counts the pairs named by a ranked entry and
+// those whose entry does not hold the pair (the index then searches).
+type rankedIndex struct {
+	nonClosingIndex
+	named, wrong *atomic.Int64
+}
+
+func (g rankedIndex) PairBatchRanked(a, b []graphidx.EntityID, entry []uint32, out []graphidx.PairStats, ok []bool) {
+	for i, e := range entry[:len(a)] {
+		if e == graphidx.NoPairHint {
+			continue
+		}
+		g.named.Add(1)
+		if rk := g.ix.RankedNeighbors(a[i]); int(e) >= len(rk) || rk[e] != b[i] {
+			g.wrong.Add(1)
+		}
+	}
+	g.ix.PairBatchRanked(a, b, entry, out, ok)
+}
+
 // TestPrefetchMatchesSequential: the batch prefetch and the pair memo change
 // no decision. Every query of the brute-force graphs, under loose and tight
 // bounds, decides the same with a PairBatcher graph as with the plain one
@@ -254,13 +275,14 @@ func TestDecideGoldenDigest(t *testing.T) {
 		{"utility", []Option{WithUtility(2, 0.001)}, "0c32be9eaa565357"},
 	}
 	fresh := map[string]string{} // with -update: the new digest of each case
-	var hinted, wrong atomic.Int64
+	var hinted, wrong, named, wrongEntry atomic.Int64
 	for _, tc := range cases {
 		opts := append([]Option{WithCacheSize(0)}, tc.opts...)
 		for _, wrap := range []struct {
 			name string
 			g    Graph
-		}{{"hinted", hintedIndex{wrapIndex(ix), &hinted, &wrong}}, {"batch", wrapIndex(ix)}, {"plain", nonClosing{ix}}} {
+		}{{"ranked", rankedIndex{wrapIndex(ix), &named, &wrongEntry}}, {"hinted", hintedIndex{wrapIndex(ix), &hinted, &wrong}},
+			{"batch", wrapIndex(ix)}, {"plain", nonClosing{ix}}} {
 			r := mustNew(t, wrap.g, opts...)
 			got, chains := decisionDigest(t, r, qs)
 			if *update {
@@ -282,7 +304,13 @@ func TestDecideGoldenDigest(t *testing.T) {
 	if wrong.Load() != 0 {
 		t.Errorf("%d of %d hints did not name their pair", wrong.Load(), hinted.Load())
 	}
-	t.Logf("%d pairs looked up with a hint", hinted.Load())
+	if named.Load() == 0 {
+		t.Error("no pair was looked up by its ranked entry: the ranked path was not exercised")
+	}
+	if wrongEntry.Load() != 0 {
+		t.Errorf("%d of %d ranked entries did not hold their pair", wrongEntry.Load(), named.Load())
+	}
+	t.Logf("%d pairs looked up with a hint, %d by their ranked entry", hinted.Load(), named.Load())
 	if *update {
 		old := map[string]string{}
 		for _, tc := range cases {

@@ -35,6 +35,7 @@ type handle struct {
 	g    Graph
 	pb   PairBatcher       // g's batch look-up, or nil
 	hp   HintedPairBatcher // g's hinted batch look-up, or nil
+	rb   RankedPairBatcher // g's ranked batch look-up, or nil
 	na   NameAppender      // g's name append, or nil
 	rp   int               // g's RankPrefix, or 0
 	seq  uint64
@@ -114,6 +115,7 @@ func (r *Router) newHandle(g Graph) *handle {
 	h := &handle{g: g, seq: r.seq.Add(1), gen: g.Generation(), r: r}
 	h.pb, _ = g.(PairBatcher)
 	h.hp, _ = g.(HintedPairBatcher)
+	h.rb, _ = g.(RankedPairBatcher)
 	h.na, _ = g.(NameAppender)
 	h.presence = scorer.PresenceOnly(g)
 	if p, ok := g.(interface{ RankPrefix() int }); ok {
@@ -303,10 +305,11 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	sc := r.pool.Get().(*scratch)
 	defer func() { sc.reset(); r.pool.Put(sc) }()
 	model := st.modelFor(h)
-	sc.g, sc.model, sc.st, sc.s, sc.t, sc.pb, sc.hp, sc.rankPrefix = g, model, st, s, t, h.pb, h.hp, h.rp
+	sc.g, sc.model, sc.st, sc.s, sc.t, sc.pb, sc.hp, sc.rb, sc.rankPrefix = g, model, st, s, t, h.pb, h.hp, h.rb, h.rp
 	sc.hb = model.HopBias()
 	sc.bud = budget{left: st.budget, nextCheck: deadlinePoll, done: ctx.Done()}
 	sc.u = u
+	sc.endLists()
 
 	dir, err := model.Direct(sc.ws, sc, s, u, t)
 	if err != nil {

@@ -681,7 +681,7 @@ func newRouter(g router.Graph, model scorer.Model, b Bounds, cache int) (*router
 
 // noClose keeps the shared index open when a router retires it. It
 // forwards the optional methods the router uses: the batch pair look-ups
-// (router.PairBatcher, router.HintedPairBatcher), RankPrefix and AppendName
+// (router.PairBatcher, router.HintedPairBatcher, router.RankedPairBatcher), RankPrefix and AppendName
 // (router.NameAppender).
 type noClose struct{ router.Graph }
 
@@ -719,6 +719,16 @@ func (n noClose) RankedPairHints(id graphidx.EntityID) []uint32 {
 func (n noClose) PairBatchHinted(a, b []graphidx.EntityID, hint []uint32, out []graphidx.PairStats, ok []bool) {
 	if hp, has := n.Graph.(router.HintedPairBatcher); has {
 		hp.PairBatchHinted(a, b, hint, out, ok)
+		return
+	}
+	n.PairBatch(a, b, out, ok)
+}
+
+// PairBatchRanked forwards to the graph's PairBatchRanked
+// (router.RankedPairBatcher), or looks the pairs up without their entries.
+func (n noClose) PairBatchRanked(a, b []graphidx.EntityID, entry []uint32, out []graphidx.PairStats, ok []bool) {
+	if rp, has := n.Graph.(router.RankedPairBatcher); has {
+		rp.PairBatchRanked(a, b, entry, out, ok)
 		return
 	}
 	n.PairBatch(a, b, out, ok)
