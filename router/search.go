@@ -1176,6 +1176,12 @@ func (sc *scratch) matchJoins(skip3 bool) {
 		}
 		return false
 	}
+	// The filters pay where most probes miss: a second-layer end is in
+	// the other first layer with odds about |layer|/N, so they are used
+	// when the index has at least filterMinRatio entities per first-layer
+	// node (on a dense index most probes hit, and a filter test is extra
+	// work on each).
+	filt := sc.g.NumEntities() >= filterMinRatio*max(len(f1), len(t1))
 	sc.f1ids.reset(len(f1))
 	sc.f1f.reset()
 	for i := range f1 {
@@ -1198,7 +1204,7 @@ func (sc *scratch) matchJoins(skip3 bool) {
 		if fired(i) {
 			return
 		}
-		if !sc.t1f.has(uint64(f2[i].b)) {
+		if filt && !sc.t1f.has(uint64(f2[i].b)) {
 			continue
 		}
 		if yi, ok := sc.t1ids.get(uint64(f2[i].b)); ok {
@@ -1209,7 +1215,7 @@ func (sc *scratch) matchJoins(skip3 bool) {
 		if fired(i) {
 			return
 		}
-		if !sc.f1f.has(uint64(t2[i].b)) {
+		if filt && !sc.f1f.has(uint64(t2[i].b)) {
 			continue
 		}
 		if xi, ok := sc.f1ids.get(uint64(t2[i].b)); ok {
@@ -1266,6 +1272,11 @@ func (sc *scratch) matchJoins(skip3 bool) {
 	}
 	sc.keysF, sc.keysT = fk, tk
 }
+
+// filterMinRatio is the number of index entities per first-layer node from
+// which matchJoins tests the Bloom filters before its hash probes (above
+// it, under one probe in 64 hits for a uniformly random end).
+const filterMinRatio = 64
 
 // rankCut selects the three-bridge beam of a second layer: the paths of
 // rank position below r, and those at position r of first-layer nodes
