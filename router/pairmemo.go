@@ -399,7 +399,47 @@ func (sc *scratch) fetch() {
 }
 
 // NumValues implements scorer.Stats for the model calls of a decision.
-func (sc *scratch) NumValues(id graphidx.EntityID) int { return sc.g.NumValues(id) }
+// For a bridge of the chain being scored (sc.path) it answers from the
+// memo's statistics of the edge into the bridge, which every candidate's
+// proxy cost has looked up (memoNumValues), instead of reading the
+// entity's value count: a cache miss per bridge on a large index. O(H).
+func (sc *scratch) NumValues(id graphidx.EntityID) int {
+	if k, ok := sc.memoNumValues(id); ok {
+		return k
+	}
+	return sc.g.NumValues(id)
+}
+
+// memoNumValues returns the number of values of id from the memo entry of
+// the edge (x, id), x the entity before id on sc.path (s before the
+// first bridge), when id is on sc.path and the memo holds the edge with
+// statistics. Only for a graph with PairBatchRanked (*graphidx.Index and
+// its wrappers), whose pair statistics carry the value counts NumValues
+// returns (an index checks them at open, or reads them with the pair); for
+// other graphs the scorer's own check of Pair's sizes against NumValues
+// (scorer.ErrBadStats) stays as it was. It changes no value, so no
+// decision. O(H) plus one memo probe.
+func (sc *scratch) memoNumValues(id graphidx.EntityID) (int, bool) {
+	if sc.rb == nil || len(sc.memo.tab) == 0 {
+		return 0, false
+	}
+	x := sc.s
+	for _, b := range sc.path {
+		if b == id {
+			lo, hi := min(x, id), max(x, id)
+			i, found := sc.memo.find(uint64(lo)<<32 | uint64(hi))
+			if e := &sc.memo.tab[i]; found && e.ok && lo != hi {
+				if e.ps.A == id {
+					return e.ps.KA, true
+				}
+				return e.ps.KB, true
+			}
+			return 0, false
+		}
+		x = b
+	}
+	return 0, false
+}
 
 // Pair implements scorer.Stats through the decision's pair memo.
 func (sc *scratch) Pair(a, b graphidx.EntityID) (graphidx.PairStats, bool) { return sc.pairStats(a, b) }

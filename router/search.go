@@ -227,8 +227,9 @@ type scratch struct {
 	f1, t1 []step1
 	f2, t2 []step2
 	// join matches (matchJoins)
-	f1ids, t1ids   idIndex // layer-1 node → position
-	rkSet          idIndex // a ranked prefix (beyond)
+	f1ids, t1ids   idIndex  // layer-1 node → position
+	f1f, t1f       idFilter // the ids of f1ids, t1ids
+	rkSet          idIndex  // a ranked prefix (beyond)
 	extra, extra2  []graphidx.EntityID
 	sups           []uint64
 	ord            []int32
@@ -1157,7 +1158,9 @@ func (sc *scratch) generate() searchResult {
 // sort-merge of the id-sorted beams would meet them in, which joinAll uses
 // to break ties; and, unless skip3, F2 ⋈ T2 in ascending (b, position in
 // F2, position in T2). The matches are found by hashing the ids of one
-// side (idIndex) instead of sorting all four beams and merging them (whose
+// side (idIndex; probed only for the ids its Bloom filter idFilter may
+// hold, which answers most misses with one bit test) instead of sorting
+// all four beams and merging them (whose
 // data-dependent branches mispredict about every other step); only the
 // three-bridge join sorts its few keys. O(B·f) expected plus O(M3·log M3)
 // for M3 three-bridge matches.
@@ -1173,23 +1176,36 @@ func (sc *scratch) matchJoins(skip3 bool) {
 		}
 		return false
 	}
+	// The filters pay where most probes miss: a second-layer end is in
+	// the other first layer with odds about |layer|/N, so they are used
+	// when the index has at least filterMinRatio entities per first-layer
+	// node (on a dense index most probes hit, and a filter test is extra
+	// work on each).
+	filt := sc.g.NumEntities() >= filterMinRatio*max(len(f1), len(t1))
 	sc.f1ids.reset(len(f1))
+	sc.f1f.reset()
 	for i := range f1 {
 		if fired(i) {
 			return
 		}
 		sc.f1ids.put(uint64(f1[i].id), int32(i))
+		sc.f1f.add(uint64(f1[i].id))
 	}
 	sc.t1ids.reset(len(t1))
+	sc.t1f.reset()
 	for i := range t1 {
 		if fired(i) {
 			return
 		}
 		sc.t1ids.put(uint64(t1[i].id), int32(i))
+		sc.t1f.add(uint64(t1[i].id))
 	}
 	for i := range f2 {
 		if fired(i) {
 			return
+		}
+		if filt && !sc.t1f.has(uint64(f2[i].b)) {
+			continue
 		}
 		if yi, ok := sc.t1ids.get(uint64(f2[i].b)); ok {
 			sc.joinA = append(sc.joinA, jpair{key: uint64(f2[i].b)<<32 | uint64(i), end: yi})
@@ -1198,6 +1214,9 @@ func (sc *scratch) matchJoins(skip3 bool) {
 	for i := range t2 {
 		if fired(i) {
 			return
+		}
+		if filt && !sc.f1f.has(uint64(t2[i].b)) {
+			continue
 		}
 		if xi, ok := sc.f1ids.get(uint64(t2[i].b)); ok {
 			sc.joinB = append(sc.joinB, jpair{key: uint64(t2[i].b)<<32 | uint64(i), end: xi})
@@ -1253,6 +1272,11 @@ func (sc *scratch) matchJoins(skip3 bool) {
 	}
 	sc.keysF, sc.keysT = fk, tk
 }
+
+// filterMinRatio is the number of index entities per first-layer node from
+// which matchJoins tests the Bloom filters before its hash probes (above
+// it, under one probe in 64 hits for a uniformly random end).
+const filterMinRatio = 64
 
 // rankCut selects the three-bridge beam of a second layer: the paths of
 // rank position below r, and those at position r of first-layer nodes
