@@ -39,7 +39,11 @@ const (
 // bound"): a route through a common effect w of s and another neighbour p
 // (colliderAt) to p or to a z on p's side of w (behind) is no route; and a
 // moved neighbour whose change a more moved neighbour observed with t
-// explains (explains) keeps in B_t only the part the test could not see. A result with 2·B² ≥ stop may
+// explains (explains) keeps in B_t only the part the test could not see.
+// B_t is used only when s = u moves (X² significant) a neighbour observed
+// with t, or moves no neighbour that was never observed with t: otherwise
+// the change leaves s through neighbours whose routes to t B_t cannot see,
+// and B alone bounds it. A result with 2·B² ≥ stop may
 // be cut short (the caller's cap cannot bind). ok is false when st lacks ranked neighbours, neighbour
 // lists or marginals, or no neighbour of s has a table and a marginal.
 // Cost as InfluenceFirst says plus at most 2·ColliderTests tables for the
@@ -192,9 +196,23 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 			}
 		}
 	}
+	// B_t rests on t being reached through a neighbour observed with it.
+	// When s = u moves a neighbour never observed with t and none of those
+	// observed with it (each of their X² within noise), nothing shows such
+	// a route: those tables exist but carry no change of s, and the change
+	// s does make leaves through a neighbour whose routes to t B_t does not
+	// see. Then B_t is no bound, and B alone is used.
+	movedSeen, movedUnseen := false, false
+	for i := range n {
+		if significant(nb[i].x2, nb[i].k) {
+			movedSeen = movedSeen || seenT[i]
+			movedUnseen = movedUnseen || !seenT[i]
+		}
+	}
+	reach := movedSeen || !movedUnseen
 	tsum, tseen := 0.0, false
 	for i := range n {
-		if !seenT[i] {
+		if !seenT[i] || !reach {
 			continue
 		}
 		tseen = true

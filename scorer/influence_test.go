@@ -329,3 +329,55 @@ func TestInfluenceBoundBadStats(t *testing.T) {
 		}
 	}
 }
+
+// TestInfluenceUnseenRoute: the one-bridge route terms B_t bound the
+// influence only when t is reached through a neighbour observed with it.
+// Here s = 1 has two neighbours: 2, which s = u moves strongly and which
+// reaches t = 4 only through 3 (never observed with 4), and 5, observed
+// with 4 but independent of both. B_t sums only the route through 5 (about
+// 0), so taken as a bound it put the marginal's error at its own variance
+// (2.5e-4) although the valid chain 1 → 2 → 3 → 4 moves P(4) by 0.26. The
+// bound must fall back to B, and the marginal's error must cover the
+// chain's squared distance from the marginal (capped by the prior E0). In
+// ASIA (Lauritzen & Spiegelhalter 1988) with hopwise eval's held-out pairs,
+// P(smoke | xray = yes) was answered by the marginal that way (realised
+// squared error 0.07; the valid chain through either and lung realises
+// 6e-5).
+func TestInfluenceUnseenRoute(t *testing.T) {
+	t.Parallel()
+	st := newLocalStats()
+	for id := graphidx.EntityID(1); id <= 5; id++ {
+		st.entity(id, 2)
+		st.marg[id] = []uint64{500, 500}
+	}
+	strong := [][]uint32{{450, 50}, {50, 450}}
+	flat := [][]uint32{{250, 250}, {250, 250}}
+	st.link(1, 2, strong)
+	st.link(1, 5, flat)
+	st.link(2, 3, strong)
+	st.link(3, 4, strong)
+	st.link(5, 4, flat)
+	const u = 1
+	m, err := scorer.NewBayes()
+	if err != nil {
+		t.Fatal(err)
+	}
+	d, err := m.Direct(nil, st, 1, u, 4)
+	if err != nil {
+		t.Fatal(err)
+	}
+	c, err := m.Chain(nil, st, 1, u, []graphidx.EntityID{2, 3}, 4)
+	if err != nil {
+		t.Fatal(err)
+	}
+	dev := 0.0
+	for v, p := range c.Dist {
+		dev += (p - d.Dist[v]) * (p - d.Dist[v])
+	}
+	prior := m.UnseenSpread() * 0.25 * 0.5 // E0 = η·(1 − P̂(1 = u))²·(1 − 1/K)
+	want := min(prior, dev)
+	t.Logf("marginal's error %.4g; the chain's squared distance from the marginal %.4g, E0 %.4g", d.Err, dev, prior)
+	if d.Err < 0.99*want {
+		t.Errorf("marginal's predicted error %.4g below min(E0, chain's squared distance) %.4g: the route through 2 and 3 was left out", d.Err, want)
+	}
+}
