@@ -264,15 +264,15 @@ func TestDecideGoldenDigest(t *testing.T) {
 		opts []Option
 		want string
 	}{
-		{"default", nil, "24408f42b76219e1"},
-		{"H1", []Option{WithMaxBridges(1)}, "8e3f2a27ec3c10b2"},
-		{"H2", []Option{WithMaxBridges(2)}, "969226703538957e"},
-		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "ef51dac5878c0835"},
-		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "334ca24124454eb2"},
-		{"budget3000", []Option{WithExpansionBudget(3000)}, "bcbaa269fa6e2ad6"},
+		{"default", nil, "f733ff5d74be33d9"},
+		{"H1", []Option{WithMaxBridges(1)}, "d11fca04838f608b"},
+		{"H2", []Option{WithMaxBridges(2)}, "f9d8b4c36375af5f"},
+		{"B8k4", []Option{WithBeam(8), WithMaxCandidates(4)}, "94eb8e69edce7d5a"},
+		{"B256k64", []Option{WithBeam(256), WithMaxCandidates(64)}, "d5e64b6af95c752e"},
+		{"budget3000", []Option{WithExpansionBudget(3000)}, "0b952f8afb0f26ef"},
 		{"support", []Option{WithModel(support)}, "e06acf7f4b69d29a"},
-		{"exact", []Option{WithModel(exact)}, "7aad8c0e4c69382c"},
-		{"utility", []Option{WithUtility(2, 0.001)}, "9b1be1477e91afce"},
+		{"exact", []Option{WithModel(exact)}, "15eb9c8a267e12af"},
+		{"utility", []Option{WithUtility(2, 0.001)}, "c57b7c500a2f9454"},
 	}
 	fresh := map[string]string{} // with -update: the new digest of each case
 	var hinted, wrong, named, wrongEntry atomic.Int64

@@ -268,3 +268,56 @@ func (b *Bayes) predict(q, pi []float64, ps graphidx.PairStats) {
 		}
 	}
 }
+
+// dependent reports whether the pair table ps rejects independence:
+// Pearson's X² = Σ_ij (N_ij − N_i·N_·j/N)²/(N_i·N_·j/N) against χ² with
+// (K_A − 1)(K_B − 1) degrees of freedom at ColliderLevel (chi2Crit, or the
+// Wilson–Hilferty approximation beyond its range). Empty rows and columns
+// carry no degree of freedom. O(K_A·K_B).
+func dependent(ps graphidx.PairStats) bool {
+	var rows, cols [graphidx.MaxValues]float64
+	tot := 0.0
+	for i := 0; i < ps.KA; i++ {
+		for j := 0; j < ps.KB; j++ {
+			c := float64(ps.Count(i, j))
+			rows[i] += c
+			cols[j] += c
+			tot += c
+		}
+	}
+	if !(tot > 0) {
+		return false
+	}
+	x2, ka, kb := 0.0, 0, 0
+	for i := 0; i < ps.KA; i++ {
+		if rows[i] == 0 {
+			continue
+		}
+		ka++
+		for j := 0; j < ps.KB; j++ {
+			if cols[j] == 0 {
+				continue
+			}
+			e := rows[i] * cols[j] / tot
+			d := float64(ps.Count(i, j)) - e
+			x2 += d * d / e
+		}
+	}
+	for j := 0; j < ps.KB; j++ {
+		if cols[j] > 0 {
+			kb++
+		}
+	}
+	df := (ka - 1) * (kb - 1)
+	if df < 1 {
+		return false
+	}
+	if df < graphidx.MaxValues {
+		return x2 > chi2Crit[df]
+	}
+	// Wilson–Hilferty: χ²_q ≈ d·(1 − 2/(9d) + z_q·√(2/(9d)))³, z at 0.99.
+	const z99 = 2.3263478740408408
+	f := 2 / (9 * float64(df))
+	c := 1 - f + z99*math.Sqrt(f)
+	return x2 > float64(df)*c*c*c
+}

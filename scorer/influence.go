@@ -197,19 +197,27 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 		}
 	}
 	// B_t rests on t being reached through a neighbour observed with it.
-	// When s = u moves a neighbour never observed with t and none of those
-	// observed with it (each of their X² within noise), nothing shows such
-	// a route: those tables exist but carry no change of s, and the change
-	// s does make leaves through a neighbour whose routes to t B_t does not
-	// see. Then B_t is no bound, and B alone is used.
-	movedSeen, movedUnseen := false, false
+	// When s = u moves a neighbour never observed with t, and no neighbour
+	// both moved by s = u (X² of row u) and dependent on t (X² of the table
+	// (w, t), dependent), nothing shows such a route: the tables with t
+	// carry no change of s, and the change s does make leaves through a
+	// neighbour whose routes to t B_t does not see. Then B_t is no bound,
+	// and B alone is used.
+	movedUnseen := false
 	for i := range n {
-		if significant(nb[i].x2, nb[i].k) {
-			movedSeen = movedSeen || seenT[i]
-			movedUnseen = movedUnseen || !seenT[i]
-		}
+		movedUnseen = movedUnseen || (!seenT[i] && significant(nb[i].x2, nb[i].k))
 	}
-	reach := movedSeen || !movedUnseen
+	reach := !movedUnseen
+	for i := 0; i < n && !reach; i++ {
+		if !seenT[i] || !significant(nb[i].x2, nb[i].k) {
+			continue
+		}
+		pt, ok, err := pair(st, nb[i].id, t, nb[i].k, st.NumValues(t))
+		if err != nil {
+			return 0, false, err
+		}
+		reach = ok && dependent(pt)
+	}
 	tsum, tseen := 0.0, false
 	for i := range n {
 		if !seenT[i] || !reach {

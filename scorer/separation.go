@@ -16,6 +16,18 @@ type RankedNeighborer interface {
 // the bound keeps the check at O(m·W) pair look-ups per chain.
 const SeparationWitnesses = 2
 
+// PrevWitnesses is the most neighbours of a bridge's predecessor on the
+// chain, in support order, tested as witnesses on its side
+// (prevWitnessBias): those that move the predecessor enough
+// (prevWitnessMoves); one never observed with the bridge's successor is
+// looked up and skipped, so it counts too.
+const PrevWitnesses = 2
+
+// PrevWitnessScale is the largest factor by which prevWitnessBias carries
+// a witness's bias over to the query: a witness must move prev by at least
+// half the query's own deviation (a choice, not fitted).
+const PrevWitnessScale = 4.0
+
 // separationBias returns S = Σ_k S_k of the Bayes model's separation check
 // (see Bayes, "Separation check") for the path set by setPath, whose edges
 // are loaded (loadEdges) and whose forward vectors x_1..x_(m−1) are in ws.x
@@ -149,6 +161,54 @@ func (ws *Workspace) separationBias(st Stats, u, m int, alpha float64) (float64,
 			wk := witness{mbw: ws.sepB, cbw: ws.sepBC, g: ws.sepG, kw: kw}
 			worst = max(worst, ws.witnessBias(&wk, psPW, y, z, mk, ck, kt, alpha))
 		}
+		// Witnesses on prev's side: neighbours w of prev observed with next,
+		// for the first bridge only (prev = s, whose tables the query's
+		// value moves most) and only when s has at most InfluenceFirst
+		// neighbours, like the influence bound (each witness costs a
+		// look-up of (w, next), which for a hub's neighbours is a long
+		// list: on the router's power-law benchmark reading them for every
+		// observed entity cost about 1 µs per uncached decision).
+		nl, ok := st.(NeighborLister)
+		if k > 1 || !ok || len(nl.Neighbors(prev)) > InfluenceFirst {
+			total += worst
+			continue
+		}
+		seen = 0
+		for _, w := range rn.RankedNeighbors(prev) {
+			if seen == PrevWitnesses {
+				break
+			}
+			if ws.onPath(w) {
+				continue
+			}
+			kw, err := numValues(st, w)
+			if err != nil {
+				return 0, err
+			}
+			// The table (prev, w) first (the decision has read it): only a
+			// w that moves prev enough is a witness (prevWitnessScale), and
+			// only such a w costs the look-up of (w, next).
+			psPW, ok, err := pair(st, prev, w, kp, kw)
+			if err != nil {
+				return 0, err
+			}
+			if !ok || !ws.prevWitnessMoves(psPW, y, alpha) {
+				continue
+			}
+			seen++
+			psWN, ok, err := pair(st, w, next, kw, kn)
+			if err != nil {
+				return 0, err
+			}
+			if !ok {
+				continue
+			}
+			psWB, okWB, err := pair(st, w, b, kw, kb)
+			if err != nil {
+				return 0, err
+			}
+			worst = max(worst, ws.prevWitnessBias(psPW, psWN, psWB, okWB, y, mk, ck, k, kt, alpha))
+		}
 		total += worst
 	}
 	if total == 0 {
@@ -243,6 +303,215 @@ func (ws *Workspace) witnessBias(wk *witness, ps graphidx.PairStats, y, z, mk, c
 		noise += zj * zj * wk.cbw[j] * quadForm(wk.mbw[j*kw:j*kw+kw], wk.g, kt)
 	}
 	return max(0, d2-noise)
+}
+
+// prevWitnessBias returns the separation bias that a witness w of bridge
+// b_k taken on prev's side shows at the query: w is a neighbour of prev =
+// b_(k−1) observed with next = b_(k+1) (prev and next never were). If b_k
+// separates prev from next and prev separates w from next, P(next | w) =
+// M(w, prev) M_k M_(k+1): moving w by d = π − m_w, π = y M(prev, w) its
+// distribution at the query and m_w its marginal, moves the target by
+//
+//	a = d M(w, prev) M_k R_k   (the chain's claim, R_k = M_(k+1) R_(k+1)),
+//	c = d D(w, next) R_(k+1)   (the table's),
+//
+// with E[a − c] = 0 (each side uses the marginal of w in its own table, so
+// the two tables' levels need not agree). V_w sums the delta-method terms of
+// the rows of D, M(w, prev) (the table (prev, w) read by column), M_k and
+// M_(k+1), each row weighted by its squared weight. Three rules keep it to
+// what it can show:
+//
+//   - One-sided: only a dependence the chain invents counts (‖a‖ > ‖c‖).
+//     When the table shows more than the chain claims, w reaches next by a
+//     route of its own, which says nothing about b_k.
+//   - prev must separate w from b_k; where (w, b_k) was observed that is
+//     tested, d M(w, prev) M_k against d M(w, b_k), at the χ² level of the
+//     collider tests (ColliderLevel), and a w that fails (prev a common
+//     effect of w and b_k) is no witness.
+//   - The bias at the query: where it is linear in prev's deviation from
+//     its marginal (exact for a binary prev), it is the witness's times
+//     ‖y − m_p‖²/‖y2 − m_p‖², y2 = π M(w, prev) the distribution of prev that
+//     w implies. A witness that moves prev by less than 1/√PrevWitnessScale
+//     of the query's deviation is not read (its noise would be blown up).
+//
+// In ASIA (Lauritzen & Spiegelhalter 1988) this is how xray, a child of
+// either, shows that either → dysp → bronc crosses the common effect dysp:
+// the chain claims that xray = yes raises P(bronc) to about 0.60; the table
+// says 0.46, about the marginal. psPW is the pair (prev, w), psWN the pair
+// (w, next), psWB the pair (w, b_k) when okWB; y over prev's values; M_k
+// (rows mk, row factors ck). O(K³), no look-up.
+func (ws *Workspace) prevWitnessBias(psPW, psWN, psWB graphidx.PairStats, okWB bool, y, mk, ck []float64, k, kt int, alpha float64) float64 {
+	kp, kb, kw, kn := len(y), ws.ks[k], psPW.KB, psWN.KB
+	rk := ws.rr[ws.roff[k-1]:ws.roff[k]]  // R_k, K_k × K_t
+	rk1 := ws.rr[ws.roff[k]:ws.roff[k+1]] // R_(k+1), K_(k+1) × K_t
+	mk1 := ws.theta[ws.toff[k]:ws.toff[k+1]]
+	ck1 := ws.cinv[ws.coff[k]:ws.coff[k+1]]
+	const km = graphidx.MaxValues
+	ws.sepD = growF(ws.sepD, 8*km+kw*kt)
+	z2, e := ws.sepD[5*km:5*km+kb], ws.sepD[6*km:6*km+kb]
+	f := ws.sepD[8*km : 8*km+kw*kt]
+	num, den, ok := ws.prevWitnessDev(psPW, y, alpha)
+	if !ok || !(num <= PrevWitnessScale*den) {
+		return 0
+	}
+	pi, d, dn := ws.sepD[:kw], ws.sepD[km:km+kw], ws.sepD[2*km:2*km+kw]
+	y2 := ws.sepD[3*km : 3*km+kp]
+	tot := 0.0
+	// H = M_k R_k (K_prev × K_t); F = Q H; a = d F.
+	ws.sepH = growF(ws.sepH, kp*kt)
+	matMul(ws.sepH, kt, mk, kb, rk, kt, kp, kb, kt)
+	matMul(f, kt, ws.sepQ, kp, ws.sepH, kt, kw, kp, kt)
+	ws.sepA = growF(ws.sepA, 2*kt)
+	a, c := ws.sepA[:kt], ws.sepA[kt:2*kt]
+	matMul(a, kt, d, kw, f, kt, 1, kw, kt)
+	// D = M(w, next) with its own marginal of w; G = D R_(k+1); c = dn G.
+	ws.sepW = growF(ws.sepW, kw*max(kn, kb))
+	ws.sepWC = growF(ws.sepWC, kw)
+	fillMeans(ws.sepW, ws.sepWC, psWN, true, kw, kn, alpha)
+	tot = 0.0
+	for j := 0; j < kw; j++ {
+		dn[j] = float64(psWN.RowSum(j))
+		tot += dn[j]
+	}
+	if !(tot > 0) {
+		return 0
+	}
+	for j := range dn {
+		dn[j] = pi[j] - dn[j]/tot
+	}
+	ws.sepG = growF(ws.sepG, kw*kt)
+	matMul(ws.sepG, kt, ws.sepW, kn, rk1, kt, kw, kn, kt)
+	matMul(c, kt, dn, kw, ws.sepG, kt, 1, kw, kt)
+	d2, na, nc := 0.0, 0.0, 0.0
+	for v := range a {
+		x := a[v] - c[v]
+		d2 += x * x
+		na += a[v] * a[v]
+		nc += c[v] * c[v]
+	}
+	if na <= nc {
+		return 0 // the table shows at least the dependence the chain claims
+	}
+	noise := 0.0
+	for j := 0; j < kw; j++ {
+		noise += dn[j] * dn[j] * ws.sepWC[j] * quadForm(ws.sepW[j*kn:j*kn+kn], rk1, kt)
+		noise += d[j] * d[j] * ws.sepQC[j] * quadForm(ws.sepQ[j*kp:j*kp+kp], ws.sepH, kt)
+	}
+	matMul(z2, kb, y2, kp, mk, kb, 1, kp, kb)
+	for r, yr := range y2 {
+		noise += yr * yr * ck[r] * quadForm(mk[r*kb:r*kb+kb], rk, kt)
+	}
+	for j, zj := range z2 {
+		noise += zj * zj * ck1[j] * quadForm(mk1[j*kn:j*kn+kn], rk1, kt)
+	}
+	if d2 <= noise {
+		return 0
+	}
+	if okWB && kb >= 2 {
+		// Does prev separate w from b_k? z2 = d Q M_k is the chain's claim
+		// at b_k, e = d' M(w, b_k) the table's (d' with that table's m_w).
+		fillMeans(ws.sepW, ws.sepWC, psWB, true, kw, kb, alpha)
+		tot = 0.0
+		for j := 0; j < kw; j++ {
+			dn[j] = float64(psWB.RowSum(j))
+			tot += dn[j]
+		}
+		if !(tot > 0) {
+			return 0
+		}
+		for j := range dn {
+			dn[j] = pi[j] - dn[j]/tot
+		}
+		matMul(e, kb, dn, kw, ws.sepW, kb, 1, kw, kb)
+		ea, va := 0.0, 0.0
+		for v := range e {
+			ea += (z2[v] - e[v]) * (z2[v] - e[v])
+		}
+		for j := 0; j < kw; j++ {
+			va += dn[j] * dn[j] * ws.sepWC[j] * rowVar(ws.sepW[j*kb:j*kb+kb])
+			va += d[j] * d[j] * ws.sepQC[j] * quadForm(ws.sepQ[j*kp:j*kp+kp], mk, kb)
+		}
+		for r, yr := range y2 {
+			va += yr * yr * ck[r] * rowVar(mk[r*kb:r*kb+kb])
+		}
+		if ea > va*chi2Crit[kb-1]/float64(kb-1) {
+			return 0
+		}
+	}
+	return num / den * (d2 - noise)
+}
+
+// prevWitnessMoves reports whether w, through the table psPW of (prev, w),
+// moves prev by enough to witness a bridge after prev: the deviation of prev
+// it implies, y2 − m_p, has ‖y − m_p‖² ≤ PrevWitnessScale·‖y2 − m_p‖² (see
+// prevWitnessBias). O(K²), no look-up.
+func (ws *Workspace) prevWitnessMoves(psPW graphidx.PairStats, y []float64, alpha float64) bool {
+	num, den, ok := ws.prevWitnessDev(psPW, y, alpha)
+	return ok && num <= PrevWitnessScale*den
+}
+
+// prevWitnessDev computes, from the table psPW of (prev, w): P = M(prev,
+// w) into ws.sepB, Q = M(w, prev) (the same counts read by column) into
+// ws.sepQ with its row factors, and into ws.sepD π = y P, d = π − m_w, y2 −
+// m_p = d Q and m_p (m_w and m_p the marginals of w and prev in that table);
+// it returns num = ‖y − m_p‖² and den = ‖y2 − m_p‖². ok is false for an
+// empty table. O(K²).
+func (ws *Workspace) prevWitnessDev(psPW graphidx.PairStats, y []float64, alpha float64) (num, den float64, ok bool) {
+	kp, kw := psPW.KA, psPW.KB
+	const km = graphidx.MaxValues
+	ws.sepD = growF(ws.sepD, 5*km)
+	pi, d, dn := ws.sepD[:kw], ws.sepD[km:km+kw], ws.sepD[2*km:2*km+kw]
+	y2, mp := ws.sepD[3*km:3*km+kp], ws.sepD[4*km:4*km+kp]
+	ws.sepB = growF(ws.sepB, kp*kw)
+	ws.sepBC = growF(ws.sepBC, kp)
+	fillMeans(ws.sepB, ws.sepBC, psPW, true, kp, kw, alpha)
+	ws.sepQ = growF(ws.sepQ, kw*kp)
+	ws.sepQC = growF(ws.sepQC, kw)
+	kpA := float64(kp) * alpha
+	tot := 0.0
+	clear(mp)
+	for j := 0; j < kw; j++ {
+		n := 0.0
+		for r := 0; r < kp; r++ {
+			c := float64(psPW.Count(r, j))
+			ws.sepQ[j*kp+r] = c + alpha
+			mp[r] += c
+			n += c
+		}
+		dn[j] = n
+		tot += n
+		den := n + kpA
+		for r := 0; r < kp; r++ {
+			ws.sepQ[j*kp+r] /= den
+		}
+		ws.sepQC[j] = 1 / (den + 1)
+	}
+	if !(tot > 0) {
+		return 0, 0, false
+	}
+	for r := range mp {
+		mp[r] /= tot
+	}
+	matMul(pi, kw, y, kp, ws.sepB, kw, 1, kp, kw)
+	for j := range d {
+		d[j] = pi[j] - dn[j]/tot
+	}
+	matMul(y2, kp, d, kw, ws.sepQ, kp, 1, kw, kp)
+	for r := 0; r < kp; r++ {
+		num += (y[r] - mp[r]) * (y[r] - mp[r])
+		den += y2[r] * y2[r]
+	}
+	return num, den, true
+}
+
+// rowVar returns 1 − Σ_v θ_v², the delta-method factor of a Dirichlet row
+// seen through the identity (quadForm with R = I). O(K).
+func rowVar(theta []float64) float64 {
+	sq := 0.0
+	for _, th := range theta {
+		sq += th * th
+	}
+	return max(0, 1-sq)
 }
 
 // onPath reports whether id is on the path set by setPath. O(m).

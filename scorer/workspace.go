@@ -38,6 +38,7 @@ type Workspace struct {
 	sepD, sepC, sepY, sepA []float64 // D(prev, w), its row factors, y|z|yD, Δ terms
 	sepB, sepBC, sepW      []float64 // M(b, w), its row factors, M(w, next)
 	sepWC, sepG, sepH      []float64 // M(w, next)'s row factors, G, H
+	sepQ, sepQC            []float64 // M(w, prev) of a witness of prev, its row factors
 
 	// deferSep defers the separation bias of Bayes.Chain (DeferSeparation);
 	// sepPending marks a deferred term for the last chain (value sepU,
