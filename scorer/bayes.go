@@ -122,8 +122,12 @@ import (
 // squared bias that b_k adds at the target (the classic case is a common
 // effect: prev → b_k ← next, where the chain invents a dependence that D_k
 // does not show). S = Σ_k max(0, ‖Δ_k‖² − V_k) over the checked bridges; a
-// bridge whose neighbours were never observed together is not checked.
-// S is capped at ‖p̂ − m̂_t‖², the chain's own squared distance from the
+// bridge whose neighbours were never observed together is tested against
+// witnesses instead: neighbours w of b_k observed with prev and next, and,
+// for a one-bridge chain when s has at most InfluenceFirst neighbours,
+// neighbours w of s observed with t that s moves, whose table with next
+// must show the dependence the chain claims through s (one-sided; see
+// prevWitnessBias). S is capped at ‖p̂ − m̂_t‖², the chain's own squared distance from the
 // target's smoothed marginal: the check measures a dependence the chain
 // invents, and that bias is at most the chain's distance from the marginal
 // (equal when the endpoints are independent, as through a common effect).
@@ -142,6 +146,10 @@ import (
 //	B   = Σ_w min(TV(π_w, m_w), max_z TV((π_w − m_w)ᵀ Θ_(w→z))),
 //	B_t = Σ_(w observed with t) TV((π_w − m_w)ᵀ Θ_(w→t)),
 //
+// B_t stands in only when s = u moves a neighbour observed with t that
+// depends on t (Pearson χ² of the table (w, t)), or moves none that was
+// never observed with t: otherwise the change leaves s through routes B_t
+// does not see, and B alone bounds it.
 // TV half the L1 norm; z ranges over t and the first InfluenceSecond ranked
 // neighbours of w, for the InfluenceRefine neighbours of largest TV (the
 // others keep TV(π_w, m_w)). By data processing, the deviation of P(t | s =

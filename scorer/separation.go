@@ -162,14 +162,14 @@ func (ws *Workspace) separationBias(st Stats, u, m int, alpha float64) (float64,
 			worst = max(worst, ws.witnessBias(&wk, psPW, y, z, mk, ck, kt, alpha))
 		}
 		// Witnesses on prev's side: neighbours w of prev observed with next,
-		// for the first bridge only (prev = s, whose tables the query's
-		// value moves most) and only when s has at most InfluenceFirst
-		// neighbours, like the influence bound (each witness costs a
-		// look-up of (w, next), which for a hub's neighbours is a long
-		// list: on the router's power-law benchmark reading them for every
-		// observed entity cost about 1 µs per uncached decision).
+		// for one-bridge chains only (prev = s, next = t, never observed
+		// together: the influence bound has just read every table (s, w))
+		// and only when s has at most InfluenceFirst neighbours, like the
+		// influence bound. Reading them for the first bridge of every chain
+		// read five times as many tables (s, w) on the router's benchmark,
+		// mostly of pairs observed together that nothing else reads.
 		nl, ok := st.(NeighborLister)
-		if k > 1 || !ok || len(nl.Neighbors(prev)) > InfluenceFirst {
+		if m > 1 || !ok || len(nl.Neighbors(prev)) > InfluenceFirst {
 			total += worst
 			continue
 		}
