@@ -360,3 +360,20 @@ func rankBySupport(ids []graphidx.EntityID, sup []uint64) {
 	}
 	copy(ids, out)
 }
+
+// copyMarginal returns a copy of id's marginal value counts when g has
+// them (scorer.Marginals), else nil: a baseline holds its own copy of
+// every statistic it scores with, as it does of the pair tables.
+func copyMarginal(g router.Graph, id graphidx.EntityID) []uint64 {
+	m, ok := g.(scorer.Marginals)
+	if !ok {
+		return nil
+	}
+	return append([]uint64(nil), m.Marginal(id)...)
+}
+
+// sortedIDs sorts ids in place in ascending order and returns them.
+func sortedIDs(ids []graphidx.EntityID) []graphidx.EntityID {
+	slices.Sort(ids)
+	return ids
+}

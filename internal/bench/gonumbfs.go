@@ -22,6 +22,9 @@ type GonumBaseline struct {
 	g      *simple.WeightedUndirectedGraph
 	ranked [][]int64
 	values [][]string
+	// margs holds each entity's marginal value counts (nil when the source
+	// graph has none), copied like the tables.
+	margs  [][]uint64
 	names  []string
 	ids    map[string]int64
 	model  scorer.Model
@@ -60,6 +63,7 @@ func LoadGonum(ix router.Graph, model scorer.Model, b Bounds) (*GonumBaseline, e
 		g:      simple.NewWeightedUndirectedGraph(0, 0),
 		ranked: make([][]int64, n),
 		values: make([][]string, n),
+		margs:  make([][]uint64, n),
 		names:  make([]string, n),
 		ids:    make(map[string]int64, n),
 		model:  model,
@@ -70,6 +74,7 @@ func LoadGonum(ix router.Graph, model scorer.Model, b Bounds) (*GonumBaseline, e
 		gb.names[i] = ix.Name(id)
 		gb.ids[gb.names[i]] = int64(i)
 		gb.values[i] = append([]string(nil), ix.Values(id)...)
+		gb.margs[i] = copyMarginal(ix, id)
 		gb.g.AddNode(simple.Node(i))
 	}
 	for i := 0; i < n; i++ {
@@ -135,6 +140,15 @@ func (gb *GonumBaseline) NumValues(id graphidx.EntityID) int {
 		return 0
 	}
 	return len(gb.values[id])
+}
+
+// Marginal implements scorer.Marginals, so the model's direct estimate
+// shrinks toward the same marginals as on the index.
+func (gb *GonumBaseline) Marginal(id graphidx.EntityID) []uint64 {
+	if int(id) >= len(gb.margs) {
+		return nil
+	}
+	return gb.margs[id]
 }
 
 // Pair implements scorer.Stats through WeightedEdge.
@@ -210,4 +224,11 @@ func (gb *GonumBaseline) RankedNeighbors(id graphidx.EntityID) []graphidx.Entity
 		out[i] = graphidx.EntityID(x)
 	}
 	return out
+}
+
+// Neighbors implements scorer.NeighborLister, so the model's influence
+// bound reads the same neighbour lists as on the index: ascending ids. It
+// allocates (a baseline, not a fast path).
+func (gb *GonumBaseline) Neighbors(id graphidx.EntityID) []graphidx.EntityID {
+	return sortedIDs(gb.RankedNeighbors(id))
 }

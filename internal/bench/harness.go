@@ -681,9 +681,22 @@ func newRouter(g router.Graph, model scorer.Model, b Bounds, cache int) (*router
 
 // noClose keeps the shared index open when a router retires it. It
 // forwards the optional methods the router uses: the batch pair look-ups
-// (router.PairBatcher, router.HintedPairBatcher, router.RankedPairBatcher), RankPrefix and AppendName
-// (router.NameAppender).
+// (router.PairBatcher, router.HintedPairBatcher, router.RankedPairBatcher), RankPrefix, AppendName
+// (router.NameAppender) and Marginal (scorer.Marginals), so that the timed
+// router decides exactly as one opened on the index itself
+// (TestBenchRouterDecidesAsIndex).
 type noClose struct{ router.Graph }
+
+// Marginal forwards to the graph's Marginal (scorer.Marginals), or returns
+// nil (the Bayes model's uniform prior). Without it the timed decisions
+// would skip the marginal-based terms of the direct estimate (the
+// empirical-Bayes prior and the influence bound) that real decisions pay.
+func (n noClose) Marginal(id graphidx.EntityID) []uint64 {
+	if m, has := n.Graph.(scorer.Marginals); has {
+		return m.Marginal(id)
+	}
+	return nil
+}
 
 // RankPrefix forwards to the graph's RankPrefix, or returns 0 (unknown).
 func (n noClose) RankPrefix() int {

@@ -18,6 +18,9 @@ type MapBaseline struct {
 	adj    map[string]map[string]*mapPair
 	ranked map[string][]string
 	values map[string][]string
+	// margs holds each entity's marginal value counts (nil when the
+	// source graph has none), copied like the tables.
+	margs  map[string][]uint64
 	ids    map[string]graphidx.EntityID
 	names  []string
 	model  scorer.Model
@@ -43,6 +46,7 @@ func LoadMap(ix router.Graph, model scorer.Model, b Bounds) (*MapBaseline, error
 		adj:    make(map[string]map[string]*mapPair, n),
 		ranked: make(map[string][]string, n),
 		values: make(map[string][]string, n),
+		margs:  make(map[string][]uint64, n),
 		ids:    make(map[string]graphidx.EntityID, n),
 		names:  make([]string, n),
 		model:  model,
@@ -54,6 +58,7 @@ func LoadMap(ix router.Graph, model scorer.Model, b Bounds) (*MapBaseline, error
 		m.names[i] = name
 		m.ids[name] = id
 		m.values[name] = append([]string(nil), ix.Values(id)...)
+		m.margs[name] = copyMarginal(ix, id)
 		m.adj[name] = make(map[string]*mapPair, len(ix.Neighbors(id)))
 	}
 	var sup []uint64
@@ -109,6 +114,15 @@ func (m *MapBaseline) NumValues(id graphidx.EntityID) int {
 		return 0
 	}
 	return len(m.values[m.names[id]])
+}
+
+// Marginal implements scorer.Marginals over the maps, so the model's
+// direct estimate shrinks toward the same marginals as on the index.
+func (m *MapBaseline) Marginal(id graphidx.EntityID) []uint64 {
+	if int(id) >= len(m.names) {
+		return nil
+	}
+	return m.margs[m.names[id]]
 }
 
 // Pair implements scorer.Stats over the maps.
@@ -176,4 +190,11 @@ func (m *MapBaseline) RankedNeighbors(id graphidx.EntityID) []graphidx.EntityID 
 		out[i] = m.ids[x]
 	}
 	return out
+}
+
+// Neighbors implements scorer.NeighborLister, so the model's influence
+// bound reads the same neighbour lists as on the index: ascending ids. It
+// allocates (a baseline, not a fast path).
+func (m *MapBaseline) Neighbors(id graphidx.EntityID) []graphidx.EntityID {
+	return sortedIDs(m.RankedNeighbors(id))
 }
