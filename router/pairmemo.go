@@ -125,8 +125,9 @@ func (sc *scratch) memoGet(lo, hi graphidx.EntityID) *memoEntry {
 // of s, the separation check's witnesses of the first and last bridge), and
 // the other side is often a hub, whose upper list a plain look-up would
 // binary-search (about twenty dependent cache misses for the benchmark
-// index's largest hub). Only for graphs with PairBatchRanked. O(len of the
-// ranked list), at most endRankMax steps, in cache.
+// index's largest hub). Only for graphs with PairBatchRanked, and ranked
+// lists that are whole (endLists). O(len of the ranked list), at most
+// endRankMax steps, in cache.
 func (sc *scratch) endEntry(a, b graphidx.EntityID) (owner, other graphidx.EntityID, ent uint32, ok bool) {
 	if sc.rb == nil {
 		return 0, 0, 0, false
@@ -149,7 +150,10 @@ func (sc *scratch) endEntry(a, b graphidx.EntityID) (owner, other graphidx.Entit
 	return 0, 0, 0, false
 }
 
-// endRankMax is the longest ranked list of s or t that endEntry scans.
+// endRankMax is the longest ranked list of s or t that endEntry scans. A
+// list is kept only when it is whole (it holds every neighbour), so a scan
+// fails only for a pair that was never observed, which ruledOut answers
+// first where the scratch asks the graph one pair at a time.
 const endRankMax = 64
 
 // rankedPair looks the pair (owner, RankedNeighbors(owner)[ent] = other)
@@ -178,10 +182,10 @@ func (sc *scratch) endLists() {
 	sc.nbrS, sc.nbrT = nil, nil
 	sc.rkS, sc.rkT = nil, nil
 	if sc.rb != nil {
-		if l := sc.g.RankedNeighbors(sc.s); len(l) <= endRankMax {
+		if l := sc.g.RankedNeighbors(sc.s); len(l) <= endRankMax && sc.whole(sc.s, l) {
 			sc.rkS = l
 		}
-		if l := sc.g.RankedNeighbors(sc.t); len(l) <= endRankMax {
+		if l := sc.g.RankedNeighbors(sc.t); len(l) <= endRankMax && sc.whole(sc.t, l) {
 			sc.rkT = l
 		}
 	}
@@ -318,7 +322,14 @@ type RankedPairBatcher interface {
 
 // want queues the unordered pair {a, b} for the next fetch unless the
 // memo already has it or the queue holds sc.pendMax pairs.
+// A pair with s or t on one side is named by its entry in that endpoint's
+// ranked list when it is there (endEntry): the one-bridge phase's pairs
+// (s, z) and (z, t), whose other side is often a hub.
 func (sc *scratch) want(a, b graphidx.EntityID) {
+	if owner, other, ent, named := sc.endEntry(a, b); named {
+		sc.wantRanked(owner, other, ent, graphidx.NoPairHint)
+		return
+	}
 	sc.wantRanked(a, b, graphidx.NoPairHint, graphidx.NoPairHint)
 }
 

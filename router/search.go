@@ -299,8 +299,9 @@ type scratch struct {
 	// nbrS, nbrT: the adjacency lists of s and t when short (endLists),
 	// else nil.
 	nbrS, nbrT []graphidx.EntityID
-	// rkS, rkT: the ranked lists of s and t when at most endRankMax
-	// long, for endEntry (graphs with PairBatchRanked), else nil.
+	// rkS, rkT: the ranked lists of s and t when whole and at most
+	// endRankMax long, for endEntry (graphs with PairBatchRanked), else
+	// nil.
 	rkS, rkT []graphidx.EntityID
 	// one: the arguments of a single ranked look-up (rankedPair), kept
 	// here so that passing them to the graph allocates nothing.

@@ -75,13 +75,19 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 	// Every pass-1 read up front, in one loop whose loads are independent
 	// (their cache misses overlap): the neighbours' value counts and
 	// marginals, and, with a PairPrefetcher, the pairs (s, w) and (w, t).
-	// The loop below reads the same values again; nothing else changes.
+	// The loop below reads the same values again (mTots: each marginal's
+	// smoothed total, summed here as there); nothing else changes.
 	var kws [InfluenceFirst]int
 	var mws [InfluenceFirst][]uint64
+	var mTots [InfluenceFirst]float64
 	pf, _ := st.(PairPrefetcher)
 	for i, w := range first {
 		kws[i] = st.NumValues(w)
 		mws[i] = ms.Marginal(w)
+		mTots[i] = float64(kws[i]) * b.alpha
+		for _, c := range mws[i] {
+			mTots[i] += float64(c)
+		}
 		if pf != nil && w != s {
 			pf.WantPair(s, w, graphidx.NoPairHint)
 			pf.WantPair(w, t, graphidx.NoPairHint)
@@ -114,10 +120,7 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 		e.id, e.k, e.ps, e.partner = w, kw, ps, -1
 		e.n = float64(ps.RowSum(u))
 		rowTot := e.n + float64(kw)*b.alpha
-		mTot := float64(kw) * b.alpha
-		for _, c := range mw {
-			mTot += float64(c)
-		}
+		mTot := mTots[fi] // float64(kw)·α + Σ mw
 		tvw := 0.0
 		for v := 0; v < kw; v++ {
 			e.pi[v] = (float64(ps.Count(u, v)) + b.alpha) / rowTot
