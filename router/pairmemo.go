@@ -106,6 +106,10 @@ func (sc *scratch) memoGet(lo, hi graphidx.EntityID) *memoEntry {
 	if found || sc.ruledOut(lo, hi) {
 		return e
 	}
+	if sc.rkS == nil && sc.rkT == nil {
+		e.ps, e.ok = sc.g.Pair(lo, hi)
+		return e
+	}
 	if owner, other, ent, named := sc.endEntry(lo, hi); named {
 		e.ps, e.ok = sc.rankedPair(owner, other, ent)
 		if e.ok && e.ps.A != lo {
@@ -325,10 +329,14 @@ type RankedPairBatcher interface {
 // A pair with s or t on one side is named by its entry in that endpoint's
 // ranked list when it is there (endEntry): the one-bridge phase's pairs
 // (s, z) and (z, t), whose other side is often a hub.
+// (The test of the two lists spares the call where neither is kept, as on
+// a dense index, whose phases queue thousands of pairs.)
 func (sc *scratch) want(a, b graphidx.EntityID) {
-	if owner, other, ent, named := sc.endEntry(a, b); named {
-		sc.wantRanked(owner, other, ent, graphidx.NoPairHint)
-		return
+	if sc.rkS != nil || sc.rkT != nil {
+		if owner, other, ent, named := sc.endEntry(a, b); named {
+			sc.wantRanked(owner, other, ent, graphidx.NoPairHint)
+			return
+		}
 	}
 	sc.wantRanked(a, b, graphidx.NoPairHint, graphidx.NoPairHint)
 }

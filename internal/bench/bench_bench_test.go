@@ -111,9 +111,20 @@ func reportShares(b *testing.B, n, trunc, chains int) {
 	}
 }
 
-// BenchmarkRouterUncached decides distinct queries without the cache.
+// BenchmarkRouterUncached decides distinct queries without the cache. It
+// also reports the deciding thread's CPU time per decision (p50, p99),
+// which the machine's other load inflates less than ns/op: with
+// HOPWISE_STRESS=1 the figures of the 1M-entity rows of docs/SEARCH.md.
 func BenchmarkRouterUncached(b *testing.B) {
-	decideLoop(b, benchRouter(b, 0), shared.qs, nil)
+	rt := benchRouter(b, 0)
+	runtime.LockOSThread()
+	defer runtime.UnlockOSThread()
+	var cpu []float64
+	decideLoop(b, rt, shared.qs, &cpu)
+	if l := summarize(cpu); l.P50 > 0 {
+		b.ReportMetric(l.P50/1e3, "cpu-p50-µs")
+		b.ReportMetric(l.P99/1e3, "cpu-p99-µs")
+	}
 }
 
 // decideLoop decides qs in turn under b.Loop and reports the shares of
