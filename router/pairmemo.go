@@ -106,8 +106,70 @@ func (sc *scratch) memoGet(lo, hi graphidx.EntityID) *memoEntry {
 	if found || sc.ruledOut(lo, hi) {
 		return e
 	}
+	if sc.rkS == nil && sc.rkT == nil {
+		e.ps, e.ok = sc.g.Pair(lo, hi)
+		return e
+	}
+	if owner, other, ent, named := sc.endEntry(lo, hi); named {
+		e.ps, e.ok = sc.rankedPair(owner, other, ent)
+		if e.ok && e.ps.A != lo {
+			e.ps = e.ps.Transpose() // the memo holds the (lo, hi) orientation
+		}
+		return e
+	}
 	e.ps, e.ok = sc.g.Pair(lo, hi)
 	return e
+}
+
+// endEntry names the pair {a, b} by its entry in the ranked list of s or
+// t when one of them is s or t and the other is in that endpoint's ranked
+// list (kept by endLists): owner is the endpoint, other the entity at its
+// ranked entry ent. Most pairs the scorer asks one at a time have an
+// endpoint on one side (the influence bound's (s, w) for the neighbours w
+// of s, the separation check's witnesses of the first and last bridge), and
+// the other side is often a hub, whose upper list a plain look-up would
+// binary-search (about twenty dependent cache misses for the benchmark
+// index's largest hub). Only for graphs with PairBatchRanked, and ranked
+// lists that are whole (endLists). O(len of the ranked list), at most
+// endRankMax steps, in cache.
+func (sc *scratch) endEntry(a, b graphidx.EntityID) (owner, other graphidx.EntityID, ent uint32, ok bool) {
+	if sc.rb == nil {
+		return 0, 0, 0, false
+	}
+	for range 2 {
+		var rk []graphidx.EntityID
+		switch a {
+		case sc.s:
+			rk = sc.rkS
+		case sc.t:
+			rk = sc.rkT
+		}
+		for j, x := range rk {
+			if x == b {
+				return a, b, uint32(j), true
+			}
+		}
+		a, b = b, a
+	}
+	return 0, 0, 0, false
+}
+
+// endRankMax is the longest ranked list of s or t that endEntry scans. A
+// list is kept only when it is whole (it holds every neighbour), so a scan
+// fails only for a pair that was never observed, which ruledOut answers
+// first where the scratch asks the graph one pair at a time.
+const endRankMax = 64
+
+// rankedPair looks the pair (owner, RankedNeighbors(owner)[ent] = other)
+// up by its ranked entry (RankedPairBatcher, one pair), in the
+// orientation (owner, other). O(1) reads of the index.
+func (sc *scratch) rankedPair(owner, other graphidx.EntityID, ent uint32) (graphidx.PairStats, bool) {
+	o := &sc.one
+	o.a[0], o.b[0], o.ent[0] = owner, other, ent
+	sc.rb.PairBatchRanked(o.a[:], o.b[:], o.ent[:], o.ps[:], o.ok[:])
+	ps, ok := o.ps[0], o.ok[0]
+	o.ps[0] = graphidx.PairStats{} // drop the reference into the index
+	return ps, ok
 }
 
 // endListMax is the longest adjacency list of an endpoint that the scratch
@@ -122,6 +184,15 @@ const endListMax = 512
 // when they have at most endListMax entries (else nil). O(1).
 func (sc *scratch) endLists() {
 	sc.nbrS, sc.nbrT = nil, nil
+	sc.rkS, sc.rkT = nil, nil
+	if sc.rb != nil {
+		if l := sc.g.RankedNeighbors(sc.s); len(l) <= endRankMax && sc.whole(sc.s, l) {
+			sc.rkS = l
+		}
+		if l := sc.g.RankedNeighbors(sc.t); len(l) <= endRankMax && sc.whole(sc.t, l) {
+			sc.rkT = l
+		}
+	}
 	if l := sc.g.Neighbors(sc.s); len(l) <= endListMax {
 		sc.nbrS = l
 	}
@@ -255,7 +326,18 @@ type RankedPairBatcher interface {
 
 // want queues the unordered pair {a, b} for the next fetch unless the
 // memo already has it or the queue holds sc.pendMax pairs.
+// A pair with s or t on one side is named by its entry in that endpoint's
+// ranked list when it is there (endEntry): the one-bridge phase's pairs
+// (s, z) and (z, t), whose other side is often a hub.
+// (The test of the two lists spares the call where neither is kept, as on
+// a dense index, whose phases queue thousands of pairs.)
 func (sc *scratch) want(a, b graphidx.EntityID) {
+	if sc.rkS != nil || sc.rkT != nil {
+		if owner, other, ent, named := sc.endEntry(a, b); named {
+			sc.wantRanked(owner, other, ent, graphidx.NoPairHint)
+			return
+		}
+	}
 	sc.wantRanked(a, b, graphidx.NoPairHint, graphidx.NoPairHint)
 }
 
@@ -443,3 +525,30 @@ func (sc *scratch) memoNumValues(id graphidx.EntityID) (int, bool) {
 
 // Pair implements scorer.Stats through the decision's pair memo.
 func (sc *scratch) Pair(a, b graphidx.EntityID) (graphidx.PairStats, bool) { return sc.pairStats(a, b) }
+
+// WantPair implements scorer.PairPrefetcher: it queues the pair {a, b} for
+// the next FetchPairs unless the memo has it, the endpoint lists rule it
+// out (ruledOut) or the graph has no PairBatch. A pair reached through a's
+// ranked list (ent) or with s or t on one side (endEntry) is named by its
+// ranked entry. It changes no answer: the memo then holds what Graph.Pair
+// returns. O(1) expected plus endEntry's scan.
+func (sc *scratch) WantPair(a, b graphidx.EntityID, ent uint32) {
+	if sc.pb == nil || a == b || len(sc.pend.a) >= maxPrefetch || sc.ruledOut(a, b) {
+		return
+	}
+	if ent == graphidx.NoPairHint {
+		if owner, other, e, named := sc.endEntry(a, b); named {
+			a, b, ent = owner, other, e
+		}
+	}
+	if sc.memo.reserve(min(a, b), max(a, b)) {
+		sc.pend.a = append(sc.pend.a, a)
+		sc.pend.b = append(sc.pend.b, b)
+		sc.pend.ent = append(sc.pend.ent, ent)
+		sc.pend.hint = append(sc.pend.hint, graphidx.NoPairHint)
+	}
+}
+
+// FetchPairs implements scorer.PairPrefetcher: the pairs WantPair queued
+// in one batch (fetch).
+func (sc *scratch) FetchPairs() { sc.fetch() }

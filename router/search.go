@@ -299,6 +299,18 @@ type scratch struct {
 	// nbrS, nbrT: the adjacency lists of s and t when short (endLists),
 	// else nil.
 	nbrS, nbrT []graphidx.EntityID
+	// rkS, rkT: the ranked lists of s and t when whole and at most
+	// endRankMax long, for endEntry (graphs with PairBatchRanked), else
+	// nil.
+	rkS, rkT []graphidx.EntityID
+	// one: the arguments of a single ranked look-up (rankedPair), kept
+	// here so that passing them to the graph allocates nothing.
+	one struct {
+		a, b [1]graphidx.EntityID
+		ent  [1]uint32
+		ps   [1]graphidx.PairStats
+		ok   [1]bool
+	}
 	// rankPrefix is the graph's RankPrefix (ranked lists shorter than it
 	// are whole), or 0 when unknown.
 	rankPrefix int
@@ -343,6 +355,7 @@ func (sc *scratch) reset() {
 	sc.ref = nil
 	sc.memo.clear() // drop references into the index
 	sc.nbrS, sc.nbrT = nil, nil
+	sc.rkS, sc.rkT = nil, nil
 }
 
 // edge returns the proxy cost of the pair (a, b); ok is false when the pair

@@ -76,12 +76,36 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 	var tvs, tvT [InfluenceFirst]float64
 	var seenT [InfluenceFirst]bool
 	var out [graphidx.MaxValues]float64
+	// Every pass-1 read up front, in one loop whose loads are independent
+	// (their cache misses overlap): the neighbours' value counts and
+	// marginals, and, with a PairPrefetcher, the pairs (s, w) and (w, t).
+	// The loop below reads the same values again (mTots: each marginal's
+	// smoothed total, summed here as there); nothing else changes.
+	var kws [InfluenceFirst]int
+	var mws [InfluenceFirst][]uint64
+	var mTots [InfluenceFirst]float64
+	pf, _ := st.(PairPrefetcher)
+	for i, w := range first {
+		kws[i] = st.NumValues(w)
+		mws[i] = ms.Marginal(w)
+		mTots[i] = float64(kws[i]) * b.alpha
+		for _, c := range mws[i] {
+			mTots[i] += float64(c)
+		}
+		if pf != nil && w != s {
+			pf.WantPair(s, w, graphidx.NoPairHint)
+			pf.WantPair(w, t, graphidx.NoPairHint)
+		}
+	}
+	if pf != nil {
+		pf.FetchPairs()
+	}
 	n := 0
-	for _, w := range first {
+	for fi, w := range first {
 		if w == s {
 			continue
 		}
-		kw := st.NumValues(w)
+		kw := kws[fi]
 		if kw < 1 || kw > graphidx.MaxValues {
 			continue
 		}
@@ -92,7 +116,7 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 		if !ok {
 			continue
 		}
-		mw := ms.Marginal(w)
+		mw := mws[fi]
 		if len(mw) != kw {
 			continue
 		}
@@ -100,10 +124,7 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 		e.id, e.k, e.ps, e.partner = w, kw, ps, -1
 		e.n = float64(ps.RowSum(u))
 		rowTot := e.n + float64(kw)*b.alpha
-		mTot := float64(kw) * b.alpha
-		for _, c := range mw {
-			mTot += float64(c)
-		}
+		mTot := mTots[fi] // float64(kw)·α + Σ mw
 		tvw := 0.0
 		for v := 0; v < kw; v++ {
 			e.pi[v] = (float64(ps.Count(u, v)) + b.alpha) / rowTot
@@ -255,6 +276,26 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 		return min(rest*rest, stop/2), true, nil // the refinement cannot go below stop
 	}
 	sum := rest
+	if pf != nil {
+		// The pairs (w, z) of the loop below: z ranges over the first
+		// InfluenceSecond ranked neighbours of w that are not s, w or t
+		// (each is observed with w, so each is read), named by entry.
+		for _, i := range idx[:refine] {
+			w, second := nb[i].id, 0
+			for j, z := range rn.RankedNeighbors(w) {
+				if second == InfluenceSecond {
+					break
+				}
+				if z == s || z == w || z == t {
+					continue
+				}
+				second++
+				st.NumValues(z) // read ahead, as the pair
+				pf.WantPair(w, z, uint32(j))
+			}
+		}
+		pf.FetchPairs()
+	}
 	for _, i := range idx[:refine] {
 		w, kw := nb[i].id, nb[i].k
 		dev := nb[i].dev()

@@ -140,6 +140,22 @@ func numValues(st Stats, id graphidx.EntityID) (int, error) {
 	return k, nil
 }
 
+// PairPrefetcher is an optional interface of a Stats whose Pair reads a
+// large index: WantPair announces that Pair(a, b) will be asked soon, ent
+// naming b's entry in RankedNeighbors(a) when the caller read b there
+// (graphidx.NoPairHint otherwise), and FetchPairs looks every announced
+// pair up at once, so that their cache misses overlap instead of forming
+// one dependent chain of reads per Pair call. Neither may change an answer
+// of Pair, and a caller calls FetchPairs after its WantPair calls before it
+// asks for any pair. The Bayes model announces the pairs of each pass of
+// its influence bound and of each witness of its separation check that it
+// will read whatever their answers. The router's per-decision statistics
+// implement it (through its pair memo).
+type PairPrefetcher interface {
+	WantPair(a, b graphidx.EntityID, ent uint32)
+	FetchPairs()
+}
+
 // pair looks up (a, b) and checks the answer against the request.
 func pair(st Stats, a, b graphidx.EntityID, ka, kb int) (graphidx.PairStats, bool, error) {
 	ps, ok := st.Pair(a, b)
