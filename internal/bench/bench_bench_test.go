@@ -127,38 +127,6 @@ func BenchmarkRouterUncached(b *testing.B) {
 	}
 }
 
-// BenchmarkRouterUncachedMarginals is BenchmarkRouterUncached with the
-// index's marginals forwarded to the router (the benchmark's index wrapper,
-// noClose, does not forward them, so its routers run the Bayes model with
-// the uniform prior and without the influence bound): the decisions a
-// router opened on the index makes. docs/SEARCH.md, sixth round.
-func BenchmarkRouterUncachedMarginals(b *testing.B) {
-	sharedIndex(b)
-	opts := append(DefaultBounds().RouterOptions(), router.WithModel(shared.model), router.WithCacheSize(0))
-	rt, err := router.New(withMarginals{noClose{shared.ix}, shared.ix}, opts...)
-	if err != nil {
-		b.Fatal(err)
-	}
-	b.Cleanup(func() { rt.Close() })
-	runtime.LockOSThread()
-	defer runtime.UnlockOSThread()
-	var cpu []float64
-	decideLoop(b, rt, shared.qs, &cpu)
-	if l := summarize(cpu); l.P50 > 0 {
-		b.ReportMetric(l.P50/1e3, "cpu-p50-µs")
-		b.ReportMetric(l.P99/1e3, "cpu-p99-µs")
-	}
-}
-
-// withMarginals is noClose that also forwards the index's marginals
-// (scorer.Marginals).
-type withMarginals struct {
-	noClose
-	ix *graphidx.Index
-}
-
-func (w withMarginals) Marginal(id graphidx.EntityID) []uint64 { return w.ix.Marginal(id) }
-
 // decideLoop decides qs in turn under b.Loop and reports the shares of
 // truncated decisions and chains (reportShares); with cpu not nil it
 // appends each decision's thread CPU time in nanoseconds (the caller locks
