@@ -356,7 +356,6 @@ func (ws *Workspace) prevWitnessBias(psPW, psWN, psWB graphidx.PairStats, okWB b
 	}
 	pi, d, dn := ws.sepD[:kw], ws.sepD[km:km+kw], ws.sepD[2*km:2*km+kw]
 	y2 := ws.sepD[3*km : 3*km+kp]
-	tot := 0.0
 	// H = M_k R_k (K_prev × K_t); F = Q H; a = d F.
 	ws.sepH = growF(ws.sepH, kp*kt)
 	matMul(ws.sepH, kt, mk, kb, rk, kt, kp, kb, kt)
@@ -368,16 +367,8 @@ func (ws *Workspace) prevWitnessBias(psPW, psWN, psWB graphidx.PairStats, okWB b
 	ws.sepW = growF(ws.sepW, kw*max(kn, kb))
 	ws.sepWC = growF(ws.sepWC, kw)
 	fillMeans(ws.sepW, ws.sepWC, psWN, true, kw, kn, alpha)
-	tot = 0.0
-	for j := 0; j < kw; j++ {
-		dn[j] = float64(psWN.RowSum(j))
-		tot += dn[j]
-	}
-	if !(tot > 0) {
+	if !shiftFromRows(dn, pi, psWN) {
 		return 0
-	}
-	for j := range dn {
-		dn[j] = pi[j] - dn[j]/tot
 	}
 	ws.sepG = growF(ws.sepG, kw*kt)
 	matMul(ws.sepG, kt, ws.sepW, kn, rk1, kt, kw, kn, kt)
@@ -411,16 +402,8 @@ func (ws *Workspace) prevWitnessBias(psPW, psWN, psWB graphidx.PairStats, okWB b
 		// Does prev separate w from b_k? z2 = d Q M_k is the chain's claim
 		// at b_k, e = d' M(w, b_k) the table's (d' with that table's m_w).
 		fillMeans(ws.sepW, ws.sepWC, psWB, true, kw, kb, alpha)
-		tot = 0.0
-		for j := 0; j < kw; j++ {
-			dn[j] = float64(psWB.RowSum(j))
-			tot += dn[j]
-		}
-		if !(tot > 0) {
+		if !shiftFromRows(dn, pi, psWB) {
 			return 0
-		}
-		for j := range dn {
-			dn[j] = pi[j] - dn[j]/tot
 		}
 		matMul(e, kb, dn, kw, ws.sepW, kb, 1, kw, kb)
 		ea, va := 0.0, 0.0
@@ -540,4 +523,22 @@ func quadForm(theta, r []float64, kt int) float64 {
 		s += m2 - m1*m1
 	}
 	return max(0, s)
+}
+
+// shiftFromRows writes into dn (length K_w) the shift π − m_w of w's
+// distribution π from w's marginal m_w as the table ps (rows are w's
+// values) counts it, and reports false when ps counts nothing. O(K_w).
+func shiftFromRows(dn, pi []float64, ps graphidx.PairStats) bool {
+	tot := 0.0
+	for j := range dn {
+		dn[j] = float64(ps.RowSum(j))
+		tot += dn[j]
+	}
+	if !(tot > 0) {
+		return false
+	}
+	for j := range dn {
+		dn[j] = pi[j] - dn[j]/tot
+	}
+	return true
 }

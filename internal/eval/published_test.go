@@ -532,7 +532,14 @@ func publishedQueries(t *testing.T, build func() (*world.World, error)) (*world.
 	if err != nil {
 		t.Fatal(err)
 	}
-	w, err := net.WithHeldOut(world.PublishedHeldOut(net, 2))
+	return net, heldOutQueries(t, net, world.PublishedHeldOut(net, 2))
+}
+
+// heldOutQueries holds out pairs of net and runs one corpus (seed 1) with
+// every answered query kept.
+func heldOutQueries(t *testing.T, net *world.World, pairs [][2]int) eval.Report {
+	t.Helper()
+	w, err := net.WithHeldOut(pairs)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -542,7 +549,7 @@ func publishedQueries(t *testing.T, build func() (*world.World, error)) (*world.
 	if err != nil {
 		t.Fatal(err)
 	}
-	return net, r
+	return r
 }
 
 // TestUnseenRoutesAsia: ASIA (Lauritzen & Spiegelhalter 1988) with
@@ -574,16 +581,7 @@ func TestUnseenRoutesAsia(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	w, err := asia.WithHeldOut(pairs)
-	if err != nil {
-		t.Fatal(err)
-	}
-	r, err := eval.Run(context.Background(), eval.Config{
-		Condition: world.CondLocalGeometric, Seed: 1, Network: w, Contexts: publishedContexts, KeepQueries: true,
-	})
-	if err != nil {
-		t.Fatal(err)
-	}
+	r := heldOutQueries(t, asia, pairs)
 	idx := func(name string) int {
 		i, ok := asia.Index(name)
 		if !ok {
