@@ -137,14 +137,7 @@ func (sc *scratch) endEntry(a, b graphidx.EntityID) (owner, other graphidx.Entit
 		return 0, 0, 0, false
 	}
 	for range 2 {
-		var rk []graphidx.EntityID
-		switch a {
-		case sc.s:
-			rk = sc.rkS
-		case sc.t:
-			rk = sc.rkT
-		}
-		for j, x := range rk {
+		for j, x := range sc.endOf(a, sc.rkS, sc.rkT) {
 			if x == b {
 				return a, b, uint32(j), true
 			}
@@ -209,14 +202,7 @@ func (sc *scratch) endLists() {
 // answer, only spares the graph look-up. O(log endListMax).
 func (sc *scratch) ruledOut(a, b graphidx.EntityID) bool {
 	for range 2 {
-		var l []graphidx.EntityID
-		switch a {
-		case sc.s:
-			l = sc.nbrS
-		case sc.t:
-			l = sc.nbrT
-		}
-		if l != nil {
+		if l := sc.endOf(a, sc.nbrS, sc.nbrT); l != nil {
 			if _, in := slices.BinarySearch(l, b); !in {
 				return true
 			}
@@ -224,6 +210,18 @@ func (sc *scratch) ruledOut(a, b graphidx.EntityID) bool {
 		a, b = b, a
 	}
 	return false
+}
+
+// endOf returns ofS when a is the decision's s, ofT when it is t, else
+// nil: the list kept for that endpoint (endLists). O(1).
+func (sc *scratch) endOf(a graphidx.EntityID, ofS, ofT []graphidx.EntityID) []graphidx.EntityID {
+	switch a {
+	case sc.s:
+		return ofS
+	case sc.t:
+		return ofT
+	}
+	return nil
 }
 
 func (m *pairMemo) init(slots int) {
@@ -349,9 +347,17 @@ func (sc *scratch) wantRanked(owner, other graphidx.EntityID, ent, pos uint32) {
 	if len(sc.pend.a) >= sc.pendMax {
 		return
 	}
-	if sc.memo.reserve(min(owner, other), max(owner, other)) {
-		sc.pend.a = append(sc.pend.a, owner)
-		sc.pend.b = append(sc.pend.b, other)
+	sc.queue(owner, other, ent, pos)
+}
+
+// queue adds the pair {a, b} to the next fetch, with b's entry ent in a's
+// ranked list and the pair's stored position pos (either may be
+// graphidx.NoPairHint), unless the memo already has or awaits it. The
+// caller checks the queue's bound.
+func (sc *scratch) queue(a, b graphidx.EntityID, ent, pos uint32) {
+	if sc.memo.reserve(min(a, b), max(a, b)) {
+		sc.pend.a = append(sc.pend.a, a)
+		sc.pend.b = append(sc.pend.b, b)
 		sc.pend.ent = append(sc.pend.ent, ent)
 		sc.pend.hint = append(sc.pend.hint, pos)
 	}
@@ -541,12 +547,7 @@ func (sc *scratch) WantPair(a, b graphidx.EntityID, ent uint32) {
 			a, b, ent = owner, other, e
 		}
 	}
-	if sc.memo.reserve(min(a, b), max(a, b)) {
-		sc.pend.a = append(sc.pend.a, a)
-		sc.pend.b = append(sc.pend.b, b)
-		sc.pend.ent = append(sc.pend.ent, ent)
-		sc.pend.hint = append(sc.pend.hint, graphidx.NoPairHint)
-	}
+	sc.queue(a, b, ent, graphidx.NoPairHint)
 }
 
 // FetchPairs implements scorer.PairPrefetcher: the pairs WantPair queued

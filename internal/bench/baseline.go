@@ -371,9 +371,3 @@ func copyMarginal(g router.Graph, id graphidx.EntityID) []uint64 {
 	}
 	return append([]uint64(nil), m.Marginal(id)...)
 }
-
-// sortedIDs sorts ids in place in ascending order and returns them.
-func sortedIDs(ids []graphidx.EntityID) []graphidx.EntityID {
-	slices.Sort(ids)
-	return ids
-}

@@ -3,6 +3,7 @@ package bench
 import (
 	"context"
 	"fmt"
+	"slices"
 
 	"gonum.org/v1/gonum/graph"
 	"gonum.org/v1/gonum/graph/simple"
@@ -230,5 +231,7 @@ func (gb *GonumBaseline) RankedNeighbors(id graphidx.EntityID) []graphidx.Entity
 // bound reads the same neighbour lists as on the index: ascending ids. It
 // allocates (a baseline, not a fast path).
 func (gb *GonumBaseline) Neighbors(id graphidx.EntityID) []graphidx.EntityID {
-	return sortedIDs(gb.RankedNeighbors(id))
+	l := gb.RankedNeighbors(id) // a fresh copy
+	slices.Sort(l)
+	return l
 }

@@ -3,6 +3,7 @@ package bench
 import (
 	"context"
 	"fmt"
+	"slices"
 
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/router"
@@ -196,5 +197,7 @@ func (m *MapBaseline) RankedNeighbors(id graphidx.EntityID) []graphidx.EntityID 
 // bound reads the same neighbour lists as on the index: ascending ids. It
 // allocates (a baseline, not a fast path).
 func (m *MapBaseline) Neighbors(id graphidx.EntityID) []graphidx.EntityID {
-	return sortedIDs(m.RankedNeighbors(id))
+	l := m.RankedNeighbors(id) // a fresh copy
+	slices.Sort(l)
+	return l
 }
