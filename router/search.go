@@ -315,6 +315,9 @@ type scratch struct {
 	// are whole), or 0 when unknown.
 	rankPrefix int
 	touched    uint32 // sink of fetch's table touches
+	// alt runs the alternative code path kept for a one-process A/B
+	// comparison (searchHooks.alt; tests only).
+	alt bool
 
 	// per call
 	u      int
