@@ -16,8 +16,8 @@ import (
 
 var (
 	abIndex   = flag.String("ab.index", "", "TestSearchAB: the index file to decide on (e.g. one kept by hopwise bench --index-out)")
-	abRounds  = flag.Int("ab.rounds", 16, "TestSearchAB: rounds, each timing both code paths")
-	abPasses  = flag.Int("ab.passes", 3, "TestSearchAB: passes over the queries per code path and round")
+	abRounds  = flag.Int("ab.rounds", 48, "TestSearchAB: rounds, each timing both code paths")
+	abPasses  = flag.Int("ab.passes", 1, "TestSearchAB: passes over the queries per code path and round")
 	abQueries = flag.Int("ab.queries", 4096, "TestSearchAB: queries, drawn as hopwise bench draws them")
 )
 
@@ -35,13 +35,16 @@ var (
 // two processes on a shared machine (their index files, page placement,
 // other load), which moves single benchmark runs by up to 15%; changes of
 // a few tenths of a microsecond resolve only this way (docs/SEARCH.md).
+// Short rounds resolve best: on the 1M-entity benchmark index 48 rounds of
+// one pass each (about 25 s) gave one sign in 45 of 48 rounds where 16
+// rounds of three passes gave it in 10 to 12 of 16.
 // When no alternative is wired in, both routers run the same code and the
 // figures measure the harness's own noise.
 //
 // It runs only with HOPWISE_STRESS=1 and an index file:
 //
 //	HOPWISE_STRESS=1 go test ./router -run TestSearchAB -v -timeout 60m \
-//	    -ab.index /tmp/bench1m.hwx [-ab.rounds 16] [-ab.passes 3]
+//	    -ab.index /tmp/bench1m.hwx [-ab.rounds 48] [-ab.passes 1]
 //
 // The queries are those of hopwise bench on that index (its 4 096 queries
 // of seed 2); the routers have the default bounds and model and no cache,

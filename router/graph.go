@@ -20,7 +20,10 @@ import (
 // Neighbors to know). PairBatchRanked (see RankedPairBatcher), or
 // PairBatchHinted with RankedPairHints (see HintedPairBatcher), lets the
 // joins read the edges they reached through ranked lists without a binary
-// search; a wrapper should forward them too. A third, AppendName (see NameAppender), spares the
+// search; a wrapper should forward them too, and PrefetchRankedOffsets
+// with PrefetchRankedHeads (see RankedPrefetcher), which let the first
+// layers' ranked lists load while the direct estimate and the one-bridge
+// phase run. A third, AppendName (see NameAppender), spares the
 // per-bridge copy that Name makes. A fourth, Marginal (scorer.Marginals),
 // gives the Bayes model the target's marginal counts, toward which it
 // shrinks the direct estimate of a pair seen rarely or never; a wrapper

@@ -322,6 +322,18 @@ type RankedPairBatcher interface {
 	PairBatchRanked(a, b []graphidx.EntityID, entry []uint32, out []graphidx.PairStats, ok []bool)
 }
 
+// RankedPrefetcher is an optional interface of a Graph: hints that the
+// ranked lists of some entities will soon be read, so that their cache
+// misses overlap the work before (*graphidx.Index implements it with
+// prefetch instructions). PrefetchRankedOffsets starts loading what
+// RankedNeighbors(id) reads to find each list; PrefetchRankedHeads the
+// first n entries of each list. Neither may change any answer of the
+// graph. A wrapper around an Index should forward both.
+type RankedPrefetcher interface {
+	PrefetchRankedOffsets(ids []graphidx.EntityID)
+	PrefetchRankedHeads(ids []graphidx.EntityID, n int)
+}
+
 // want queues the unordered pair {a, b} for the next fetch unless the
 // memo already has it or the queue holds sc.pendMax pairs.
 // A pair with s or t on one side is named by its entry in that endpoint's

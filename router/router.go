@@ -36,6 +36,7 @@ type handle struct {
 	pb   PairBatcher       // g's batch look-up, or nil
 	hp   HintedPairBatcher // g's hinted batch look-up, or nil
 	rb   RankedPairBatcher // g's ranked batch look-up, or nil
+	rpf  RankedPrefetcher  // g's ranked-list prefetch, or nil
 	na   NameAppender      // g's name append, or nil
 	rp   int               // g's RankPrefix, or 0
 	seq  uint64
@@ -116,6 +117,7 @@ func (r *Router) newHandle(g Graph) *handle {
 	h.pb, _ = g.(PairBatcher)
 	h.hp, _ = g.(HintedPairBatcher)
 	h.rb, _ = g.(RankedPairBatcher)
+	h.rpf, _ = g.(RankedPrefetcher)
 	h.na, _ = g.(NameAppender)
 	h.presence = scorer.PresenceOnly(g)
 	if p, ok := g.(interface{ RankPrefix() int }); ok {
@@ -308,9 +310,11 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	sc.g, sc.model, sc.st, sc.s, sc.t, sc.pb, sc.hp, sc.rb, sc.rankPrefix = g, model, st, s, t, h.pb, h.hp, h.rb, h.rp
 	sc.hb = model.HopBias()
 	sc.alt = st.hooks != nil && st.hooks.alt
+	sc.rpf = h.rpf
 	sc.bud = budget{left: st.budget, nextCheck: deadlinePoll, done: ctx.Done()}
 	sc.u = u
 	sc.endLists()
+	sc.prefetchLayerOffsets()
 
 	dir, err := model.Direct(sc.ws, sc, s, u, t)
 	if err != nil {
