@@ -11,5 +11,6 @@ import (
 var (
 	_ router.Graph            = (*graphidx.Index)(nil)
 	_ router.RankedPrefetcher = (*graphidx.Index)(nil)
+	_ router.TwoLookuper      = (*graphidx.Index)(nil)
 	_ scorer.Stats            = (*graphidx.Index)(nil)
 )

@@ -37,6 +37,7 @@ type handle struct {
 	hp   HintedPairBatcher // g's hinted batch look-up, or nil
 	rb   RankedPairBatcher // g's ranked batch look-up, or nil
 	rpf  RankedPrefetcher  // g's ranked-list prefetch, or nil
+	l2   TwoLookuper       // g's two-name look-up, or nil
 	na   NameAppender      // g's name append, or nil
 	rp   int               // g's RankPrefix, or 0
 	seq  uint64
@@ -118,6 +119,7 @@ func (r *Router) newHandle(g Graph) *handle {
 	h.hp, _ = g.(HintedPairBatcher)
 	h.rb, _ = g.(RankedPairBatcher)
 	h.rpf, _ = g.(RankedPrefetcher)
+	h.l2, _ = g.(TwoLookuper)
 	h.na, _ = g.(NameAppender)
 	h.presence = scorer.PresenceOnly(g)
 	if p, ok := g.(interface{ RankPrefix() int }); ok {
@@ -280,8 +282,14 @@ func (r *Router) Decide(ctx context.Context, q Query) (Decision, error) {
 // compute resolves the query and runs the search on the acquired handle.
 func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query) (core, bool, *Decision, error) {
 	g := h.g
-	s, okS := g.Lookup(q.From)
-	t, okT := g.Lookup(q.To)
+	var s, t graphidx.EntityID
+	var okS, okT bool
+	if h.l2 != nil && !(st.hooks != nil && st.hooks.alt) {
+		s, okS, t, okT = h.l2.LookupTwo(q.From, q.To)
+	} else {
+		s, okS = g.Lookup(q.From)
+		t, okT = g.Lookup(q.To)
+	}
 	if !okS || !okT {
 		name := q.From
 		if okS {

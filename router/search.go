@@ -905,7 +905,7 @@ func (sc *scratch) touchLayerLists() {
 		return
 	}
 	n := sc.st.beam + 2
-	if sc.rpf != nil && !sc.alt {
+	if sc.rpf != nil {
 		for _, e := range [2]graphidx.EntityID{sc.s, sc.t} {
 			rk := sc.g.RankedNeighbors(e)
 			sc.rpf.PrefetchRankedHeads(rk[:min(len(rk), n)], sc.st.fanOut+2)
@@ -929,7 +929,7 @@ func (sc *scratch) touchLayerLists() {
 // runs; touchLayerLists then finds them in cache. Same conditions as
 // touchLayerLists. It changes no decision. O(B).
 func (sc *scratch) prefetchLayerOffsets() {
-	if sc.rpf == nil || sc.alt || sc.st.maxBridges < 2 || sc.g.NumEntities() < touchMinEntities {
+	if sc.rpf == nil || sc.st.maxBridges < 2 || sc.g.NumEntities() < touchMinEntities {
 		return
 	}
 	n := sc.st.beam + 2

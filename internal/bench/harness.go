@@ -764,6 +764,17 @@ func (n noClose) PrefetchRankedHeads(ids []graphidx.EntityID, k int) {
 	}
 }
 
+// LookupTwo forwards to the graph's LookupTwo (router.TwoLookuper), or
+// looks the names up one after the other.
+func (n noClose) LookupTwo(a, b string) (graphidx.EntityID, bool, graphidx.EntityID, bool) {
+	if l2, has := n.Graph.(router.TwoLookuper); has {
+		return l2.LookupTwo(a, b)
+	}
+	ia, oka := n.Graph.Lookup(a)
+	ib, okb := n.Graph.Lookup(b)
+	return ia, oka, ib, okb
+}
+
 // AppendName forwards to the graph's AppendName (router.NameAppender), or
 // appends Name's copy.
 func (n noClose) AppendName(dst []byte, id graphidx.EntityID) []byte {
