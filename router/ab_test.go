@@ -19,6 +19,7 @@ var (
 	abRounds  = flag.Int("ab.rounds", 48, "TestSearchAB: rounds, each timing both code paths")
 	abPasses  = flag.Int("ab.passes", 1, "TestSearchAB: passes over the queries per code path and round")
 	abQueries = flag.Int("ab.queries", 4096, "TestSearchAB: queries, drawn as hopwise bench draws them")
+	abHub     = flag.Bool("ab.hub", false, "TestSearchAB: queries from and to the entity of largest degree instead (hopwise bench --hub)")
 )
 
 // TestSearchAB compares, in one process on one index, the search's
@@ -63,6 +64,9 @@ func TestSearchAB(t *testing.T) {
 	}
 	defer ix.Close()
 	qs := abQueriesOf(ix, *abQueries, 2)
+	if *abHub {
+		qs = abHubQueries(ix, *abQueries, 3)
+	}
 	prod, err := New(ix, WithCacheSize(0))
 	if err != nil {
 		t.Fatal(err)
@@ -142,6 +146,34 @@ func abQueriesOf(ix *graphidx.Index, n int, seed uint64) []Query {
 		s, t := graphidx.EntityID(rng.IntN(N)), graphidx.EntityID(rng.IntN(N))
 		if s == t {
 			continue
+		}
+		vs := ix.Values(s)
+		qs = append(qs, Query{From: ix.Name(s), Value: vs[rng.IntN(len(vs))], To: ix.Name(t)})
+	}
+	return qs
+}
+
+// abHubQueries draws n queries touching the entity of largest degree (the
+// hub) as hopwise bench --hub draws them: even ones from it, odd ones to it,
+// the other end uniform.
+func abHubQueries(ix *graphidx.Index, n int, seed uint64) []Query {
+	hub := graphidx.EntityID(0)
+	for i := range ix.NumEntities() {
+		if ix.Degree(graphidx.EntityID(i)) > ix.Degree(hub) {
+			hub = graphidx.EntityID(i)
+		}
+	}
+	rng := rand.New(rand.NewPCG(seed, 0x4b))
+	N := ix.NumEntities()
+	qs := make([]Query, 0, n)
+	for N > 1 && len(qs) < n {
+		o := graphidx.EntityID(rng.IntN(N))
+		if o == hub {
+			continue
+		}
+		s, t := hub, o
+		if len(qs)%2 == 1 {
+			s, t = o, hub
 		}
 		vs := ix.Values(s)
 		qs = append(qs, Query{From: ix.Name(s), Value: vs[rng.IntN(len(vs))], To: ix.Name(t)})

@@ -284,7 +284,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	g := h.g
 	var s, t graphidx.EntityID
 	var okS, okT bool
-	if h.l2 != nil && !(st.hooks != nil && st.hooks.alt) {
+	if h.l2 != nil {
 		s, okS, t, okT = h.l2.LookupTwo(q.From, q.To)
 	} else {
 		s, okS = g.Lookup(q.From)
