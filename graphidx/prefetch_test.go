@@ -6,9 +6,9 @@ import (
 )
 
 // TestPrefetchRankedChangesNothing: the prefetch hints accept any ids (in
-// range, out of range, empty lists, a hub, many ids, any n) and leave
-// every ranked list, neighbour list and pair answer as it was, on an open
-// and on a closed index.
+// range, out of range, empty lists, many ids, any n) and pair statistics
+// (with and without tables), and leave every ranked list, neighbour list
+// and pair answer as it was, on an open and on a closed index.
 func TestPrefetchRankedChangesNothing(t *testing.T) {
 	t.Parallel()
 	x, err := Open(ixWriteTemp(t, ixRandomSource(300, 12, 2, 1), WithRankPrefix(8)))
@@ -44,11 +44,20 @@ func TestPrefetchRankedChangesNothing(t *testing.T) {
 		return out
 	}
 	before := take()
+	var ps []PairStats
+	var oks []bool
+	for i := range 3 * prefetchChunk {
+		p, ok := x.Pair(EntityID(i%n), EntityID((i*7+1)%n))
+		ps, oks = append(ps, p), append(oks, ok)
+	}
+	ps, oks = append(ps, PairStats{}, PairStats{}), append(oks, true, false) // no table
 	for _, k := range []int{-1, 0, 1, 3, 8, 1000} {
 		x.PrefetchRankedOffsets(ids)
 		x.PrefetchRankedHeads(ids, k)
 		x.PrefetchRankedOffsets(nil)
 		x.PrefetchRankedHeads(nil, k)
+		PrefetchTables(ps, oks)
+		PrefetchTables(nil, nil)
 	}
 	after := take()
 	for i := range before {

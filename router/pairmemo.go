@@ -473,15 +473,12 @@ func (sc *scratch) fetch() {
 	default:
 		sc.pb.PairBatch(sc.pend.a, sc.pend.b, ps, ok)
 	}
-	// Touch every table first: independent loads whose cache misses
-	// overlap, instead of one miss per EdgeCost later.
-	var touch uint32
-	for i := range ps {
-		if ok[i] {
-			touch += ps[i].Count(0, 0)
-		}
-	}
-	sc.touched += touch
+	// Start loading every table first (prefetch instructions: the memo
+	// is filled meanwhile), instead of one cache miss per EdgeCost later.
+	// Loads that waited for the tables here instead cost 0.4–0.5 µs per
+	// decision more on the 1M-entity benchmark index (docs/SEARCH.md,
+	// eighth round).
+	graphidx.PrefetchTables(ps, ok)
 	for i, a := range sc.pend.a {
 		b, p := sc.pend.b[i], ps[i]
 		if a > b { // the memo holds the (lo, hi) orientation

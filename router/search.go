@@ -315,7 +315,7 @@ type scratch struct {
 	// rankPrefix is the graph's RankPrefix (ranked lists shorter than it
 	// are whole), or 0 when unknown.
 	rankPrefix int
-	touched    uint32 // sink of fetch's table touches
+	touched    uint32 // sink of the touch loops' reads (layer2, touchLayerLists)
 	// alt runs the alternative code path kept for a one-process A/B
 	// comparison (searchHooks.alt; tests only).
 	alt bool
