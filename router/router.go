@@ -321,7 +321,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	sc.dirErr = dir.Err
 	if dir.Support > 0 {
 		// The pair's own counts carry no screening-off bias.
-		sc.ref, sc.refVar = sc.ddist, dir.Var
+		sc.ref, sc.refVar, sc.refBias = sc.ddist, dir.Var, 0
 	}
 	res := sc.generate()
 
@@ -390,6 +390,22 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 		}
 	}
 
+	// The parallel answer through the two strongest one-bridge candidates
+	// (parallel.go) competes with the best chain on the same score.
+	par := false
+	if bestEst.ok {
+		p, e, score, err := sc.parallel(bestEst.score, bestC, sc.dist, bestEst.err)
+		if err != nil {
+			return core{}, false, nil, fmt.Errorf("router: parallel estimate %q → %q: %w", q.From, q.To, err)
+		}
+		if p {
+			par = true
+			bestC = sc.parCand
+			bestEst.err, bestEst.score = e, score
+			sc.dist = append(sc.dist[:0], sc.parDist...)
+		}
+	}
+
 	// Candidates left out of the k scored are a cut only when one could
 	// have won (search.go).
 	if sc.candidatesCut(bestEst.ok, bestEst.score) {
@@ -416,7 +432,18 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 		cut:        res.cut,
 		generation: h.gen,
 	}
-	if bestEst.ok {
+	if bestEst.ok && par {
+		*rb.chain = ChainResult{
+			Bridges:    rb.bridges,
+			Estimate:   rb.chainEst,
+			Err:        bestEst.err,
+			MinSupport: sc.parSup,
+			Parallel:   true,
+		}
+		c.chain = rb.chain
+		c.gain = dir.Err - bestEst.err
+		c.score = bestEst.score
+	} else if bestEst.ok {
 		cd := bestC
 		minSup := ^uint64(0)
 		prev := s

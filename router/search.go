@@ -274,6 +274,16 @@ type scratch struct {
 	// (scorer.ReferenceProjector).
 	ref, refBuf []float64
 	refVar      float64
+	// refBias is the reference chain's own bias allowance (its Err less
+	// its variance; 0 for the direct reference), for the parallel answer
+	// (parallel.go).
+	refBias  float64
+	refChain bool // the reference is a chain's estimate, refC
+	refC     cand
+	// the parallel answer of the decision (parallel.go)
+	parCand cand
+	parDist []float64
+	parSup  uint64
 
 	// incumbent: a chain scored exactly during generation
 	inc struct {
@@ -352,7 +362,7 @@ func (sc *scratch) reset() {
 	sc.bud = budget{}
 	sc.inc.ok = false
 	sc.err = nil
-	sc.ref = nil
+	sc.ref, sc.refChain = nil, false
 	sc.memo.clear() // drop references into the index
 	sc.nbrS, sc.nbrT = nil, nil
 	sc.rkS, sc.rkT = nil, nil
@@ -1777,6 +1787,7 @@ func (sc *scratch) scoreIncumbent(c cand) bool {
 	sc.incDist = append(sc.incDist[:0], est.Dist...)
 	if sc.ref == nil {
 		sc.ref, sc.refVar = sc.incDist, est.Var
+		sc.refBias, sc.refChain, sc.refC = max(0, e-est.Var), true, c
 		if rp, ok := sc.model.(scorer.ReferenceProjector); ok {
 			// The reference chain's estimate, moved to the nearest point the
 			// model's bound allows; the incumbent keeps its own estimate.

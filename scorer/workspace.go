@@ -67,6 +67,9 @@ type Workspace struct {
 	borrow bool
 	out    []float64
 
+	// par is the scratch of Bayes.Parallel (allocated on first use).
+	par *parWork
+
 	// gonum headers over the buffers above (set with SetRawMatrix, so that
 	// no mat.Dense is allocated per call).
 	hA, hB, hC mat.Dense
