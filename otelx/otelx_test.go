@@ -108,7 +108,7 @@ func TestDecideSpanAndMetrics(t *testing.T) {
 		}
 	}
 	// Flags are recorded only when true (readers take false).
-	for k, on := range map[attribute.Key]bool{KeyRouteTruncated: d.Truncated, KeyRouteExplored: d.Explored, KeyRouteCached: false} {
+	for k, on := range map[attribute.Key]bool{KeyRouteTruncated: d.Truncated, KeyRouteExplored: d.Explored, KeyRouteCached: false, KeyChainParallel: d.Chain.Parallel} {
 		if v, ok := a[k]; ok != on || (ok && !v.AsBool()) {
 			t.Errorf("attribute %s = %v (present %v), want present only as true: %v", k, v.AsInterface(), ok, on)
 		}

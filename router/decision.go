@@ -29,7 +29,7 @@ type ChainResult struct {
 	MinSupport uint64    // smallest pair support along the chain
 	// Parallel reports that the two bridges are read side by side, each
 	// given the observed value, and combined by the best linear predictor
-	// of the target on both (docs/QUALITY.md §8), instead of one after the
+	// of the target on both (docs/QUALITY.md §4e), instead of one after the
 	// other. Bridges then holds the two in the order of their proxy cost.
 	Parallel bool
 }

@@ -328,7 +328,7 @@ func WithExploration(epsilon float64, salt string) Option {
 
 // WithParallelBridges sets "parallel_bridges": whether the parallel answer
 // through the two strongest one-bridge candidates (ChainResult.Parallel,
-// docs/QUALITY.md §8) competes with the chains on estimated error. Default
+// docs/QUALITY.md §4e) competes with the chains on estimated error. Default
 // false. It needs a model that implements scorer.ParallelBridger (the
 // Bayes model); with another model it has no effect.
 func WithParallelBridges(on bool) Option {

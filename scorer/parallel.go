@@ -8,7 +8,7 @@ import (
 )
 
 // Parallel bridges: an answer through two bridges read side by side
-// (docs/QUALITY.md, section 8).
+// (docs/QUALITY.md, section 4e).
 //
 // For an observed value s = u and a target t with two bridges b1 and b2,
 // each a neighbour of both s and t, the estimate is the best linear

@@ -277,7 +277,7 @@ func Fit(ctx context.Context, fc FitConfig) (FitResult, error) {
 				q := &qs[i]
 				if q.Mode != router.ModeChain || q.ChainSups == nil || q.ChainParallel {
 					// A parallel answer is not a chain of the chain error
-					// model (docs/QUALITY.md §8).
+					// model (docs/QUALITY.md §4e).
 					continue
 				}
 				f := max(0, delta-q.ChainSignal)

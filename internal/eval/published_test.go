@@ -722,7 +722,7 @@ func (e exactStats) Pair(a, b graphidx.EntityID) (graphidx.PairStats, bool) {
 }
 
 // TestParallelBridgesExact checks the parallel estimate (scorer.Bayes.Parallel,
-// docs/QUALITY.md §8) on Sprinkler's exact tables (10⁷ contexts; AIMA 3rd
+// docs/QUALITY.md §4e) on Sprinkler's exact tables (10⁷ contexts; AIMA 3rd
 // ed. §14.5) against variable elimination, with Cloudy–WetGrass and
 // Sprinkler–Rain never observed together: within 0.02 of the exact answer
 // on all four queries, where the better one-bridge chain is off by more
@@ -781,7 +781,7 @@ func TestParallelBridgesExact(t *testing.T) {
 }
 
 // TestParallelBridgesSprinkler runs the parallel answer (router option
-// WithParallelBridges, docs/QUALITY.md §8) on Sprinkler's sampled corpora
+// WithParallelBridges, docs/QUALITY.md §4e) on Sprinkler's sampled corpora
 // (seeds 1–3, `hopwise eval`'s held-out pairs Cloudy–WetGrass and
 // Sprinkler–Rain) against the router without it. On the four
 // Cloudy ↔ WetGrass queries, whose separator is the pair {Sprinkler, Rain},
@@ -790,7 +790,7 @@ func TestParallelBridgesExact(t *testing.T) {
 // pair {Cloudy, WetGrass} does not separate (WetGrass is their common
 // effect) and the parallel answer is worse than the chain through Cloudy:
 // the four pair tables of the cycle cannot tell the two diagonals apart
-// (§8), which is why the option is off by default. The test records both.
+// (§4e), which is why the option is off by default. The test records both.
 func TestParallelBridgesSprinkler(t *testing.T) {
 	if testing.Short() {
 		t.Skip("builds 6 indexes of 50 000 contexts")
