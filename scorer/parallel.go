@@ -82,10 +82,10 @@ type parWork struct {
 	piv               []int
 }
 
-// ParallelHub selects which assumption gives the bridges' covariance when
+// parallelHub selects which assumption gives the bridges' covariance when
 // their own table is missing (test and diagnostic use; 0 = the average of
 // both, 1 = through s only, 2 = through t only).
-var ParallelHub = 0
+var parallelHub = 0
 
 // Parallel implements ParallelBridger (see the comment at the top of this
 // file). Err = Σ_v Var(p̂_v) + I + H + E + 2β: the delta-method variance
@@ -150,9 +150,9 @@ func (b *Bayes) Parallel(ws *Workspace, st Stats, s graphidx.EntityID, u int, b1
 			return Estimate{}, false, nil
 		}
 	} else {
-		switch ParallelHub {
+		switch parallelHub {
 		case 1, 2:
-			if !pw.eval(u, ParallelHub, pw.base) {
+			if !pw.eval(u, parallelHub, pw.base) {
 				return Estimate{}, false, nil
 			}
 		default:
@@ -412,9 +412,9 @@ func (pw *parWork) estimate(u int, out []float64) bool {
 	if pw.hasD {
 		return pw.eval(u, 0, out)
 	}
-	switch ParallelHub {
+	switch parallelHub {
 	case 1, 2:
-		return pw.eval(u, ParallelHub, out)
+		return pw.eval(u, parallelHub, out)
 	}
 	if !pw.eval(u, 1, out) || !pw.eval(u, 2, pw.hubT) {
 		return false
