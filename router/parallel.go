@@ -7,26 +7,29 @@ import (
 	"github.com/hopwise/hopwise/scorer"
 )
 
-// parCharge: charge the best chain, when it runs through one of the two
-// bridges, the part of its distance from the parallel answer that the
-// parallel answer's own error does not explain (see parallel). A test
-// switch.
+// parCharge turns on the comparison charge of the best chain (see
+// parallel); a test switch.
 var parCharge = true
 
-// parallel scores the parallel answer (scorer.ParallelBridger) through the
-// two one-bridge candidates of smallest proxy cost, when the one-bridge
-// phase scored at least two, and reports whether it beats best (the best
-// chain's score). Its Err adds, like a chain's, the squared distance from
-// the reference when that is the direct estimate, with the gain margin.
-// When the reference is a chain the parallel answer is charged only the
-// part of that distance the reference's own bias allowance b_ref does not
-// explain, (‖p̂ − ref‖ − √b_ref)₊² (triangle inequality: the reference is
-// within √b_ref of the truth if its allowance holds): the reference chain
-// is one of the single-bridge answers the parallel answer corrects.
-// On success sc.parCand, sc.parDist and sc.parSup hold the answer.
-// Cost: one scan of the heap, and when two candidates exist, 4–5 pair
-// look-ups (memoised) and the model's O(K⁴)-ish arithmetic.
-func (sc *scratch) parallel(best float64, bestC cand, bestDist []float64, bestErr float64) (ok bool, errP, score float64, fail error) {
+// parallel scores the parallel answer (scorer.ParallelBridger,
+// docs/QUALITY.md §4e) through the two one-bridge candidates of smallest
+// proxy cost, when the one-bridge phase produced at least two, and reports
+// whether it beats best, the best chain's score (bestC its candidate,
+// bestDist its estimate). Its Err adds, like a chain's, the squared
+// distance from the reference when that is the direct estimate (a
+// supported pair), with the gain margin; none when the reference is the
+// one-bridge chain through one of its own bridges, which is what it
+// corrects. When the best chain is the one-bridge chain through b1 or b2
+// and its separation check read no witness other than the two bridges
+// (checked), that chain is charged, for this comparison only,
+// (‖p̂_chain − p̂_par‖ − √Err_par)₊²: the part of its distance from the
+// parallel answer that the parallel answer's own error does not explain,
+// the route it misses if the pair is the separator. On success
+// sc.parCand, sc.parDist and sc.parSup hold the answer. Cost: one scan of
+// the heap and, when two candidates exist, 4–5 pair look-ups (memoised in
+// the decision) and the model's estimate (6 µs for binary entities,
+// scorer.BenchmarkParallel).
+func (sc *scratch) parallel(best float64, bestC cand, bestDist []float64) (ok bool, errP, score float64, fail error) {
 	if !sc.st.cfg.ParallelBridges {
 		return false, 0, 0, nil
 	}
@@ -75,7 +78,7 @@ func (sc *scratch) parallel(best float64, bestC cand, bestDist []float64, bestEr
 		margin = gm.GainMargin(est.Var, sc.refVar)
 	}
 	score = sc.scoreOf(sc.dirErr-errP-margin, 2)
-	if parCharge && bestC.m == 1 && (bestC.b[0] == b1 || bestC.b[0] == b2) {
+	if parCharge && bestC.m == 1 && (bestC.b[0] == b1 || bestC.b[0] == b2) && !sc.checked(b1, b2) {
 		// The best chain is one of the two single-bridge answers; the part
 		// of its distance from the parallel answer that the latter's own
 		// error does not explain is the route it misses.
@@ -91,4 +94,18 @@ func (sc *scratch) parallel(best float64, bestC cand, bestDist []float64, bestEr
 	sc.parDist = append(sc.parDist[:0], est.Dist...)
 	sc.parSup = est.Support
 	return true, errP, score, nil
+}
+
+// checked reports whether the best chain's separation check read a
+// witness other than the two bridges (sc.bestWit): then the check had a
+// table to catch a missed route and the chain is not charged for one.
+// The other bridge is no such witness: it reaches the target by a route of
+// its own, which the one-sided witness test ignores (docs/QUALITY.md §4d).
+func (sc *scratch) checked(b1, b2 graphidx.EntityID) bool {
+	for _, w := range sc.bestWit {
+		if w != b1 && w != b2 {
+			return true
+		}
+	}
+	return false
 }

@@ -15,7 +15,12 @@ import (
 // R) = 0.99, 0.90, 0.90, 0.0) as exact pair tables of n contexts, with
 // Cloudy–WetGrass and Sprinkler–Rain never observed together. It also
 // returns the exact P(WetGrass = true | Cloudy = true).
-func sprinklerGraph(n float64) (*memGraph, float64) {
+func sprinklerGraph(n float64) (*memGraph, float64) { return sprinklerGraphWitness(n, false) }
+
+// sprinklerGraphWitness is sprinklerGraph, with witness true an entity
+// "umbrella" independent of the four and observed with each of them (so
+// that the one-bridge chains' separation check has a table to read).
+func sprinklerGraphWitness(n float64, witness bool) (*memGraph, float64) {
 	var joint [2][2][2][2]float64 // c, s, r, w
 	for c := range 2 {
 		for s := range 2 {
@@ -58,6 +63,13 @@ func sprinklerGraph(n float64) (*memGraph, float64) {
 		b.entity("sprinkler", "false", "true"),
 		b.entity("wetgrass", "false", "true"),
 	}
+	if witness {
+		um := b.entity("umbrella", "no", "yes")
+		for _, id := range ids {
+			q := uint32(n / 4) // independent of every variable
+			b.pair(id, um, q, q, q, q)
+		}
+	}
 	const c, s, r, w = 0, 2, 1, 3 // positions in ids; joint order is c, s, r, w
 	order := [4]int{0, 2, 1, 3}   // ids position → joint axis
 	for _, e := range [][2]int{{c, s}, {c, r}, {s, w}, {r, w}} {
@@ -82,7 +94,9 @@ func sprinklerGraph(n float64) (*memGraph, float64) {
 // separates; with WithParallelBridges the router answers in parallel
 // through both, within 0.02 of the exact 0.7452 (the better single chain
 // is off by 0.063), and the JSON view and the bridge distributions say
-// so (the plan: plan.TestParallelPlan). Without the option the decision is a one-bridge chain.
+// so (the plan: plan.TestParallelPlan). Without the option, or with a
+// witness for the one-bridge chain's separation check, the decision is a
+// one-bridge chain. Without the option the decision is a one-bridge chain.
 func TestParallelDecision(t *testing.T) {
 	g, exact := sprinklerGraph(1e6)
 	q := Query{From: "cloudy", Value: "true", To: "wetgrass"}
@@ -120,6 +134,21 @@ func TestParallelDecision(t *testing.T) {
 	b, err := json.Marshal(NewView(q, d, rt.ErrorMeasure()))
 	if err != nil {
 		t.Fatal(err)
+	}
+	// With a witness table the best chain's check has something to read,
+	// so it is not charged the parallel answer's distance: a one-bridge
+	// chain again.
+	gw, _ := sprinklerGraphWitness(1e6, true)
+	rw, err := New(gw, WithParallelBridges(true))
+	if err != nil {
+		t.Fatal(err)
+	}
+	dw, err := rw.Decide(context.Background(), q)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if dw.Chain == nil || dw.Chain.Parallel {
+		t.Errorf("with a witness: chain %+v, want the one-bridge chain", dw.Chain)
 	}
 	if strings.Count(string(b), `"parallel":true`) != 2 {
 		t.Errorf("JSON view %s: want \"parallel\":true at the top level and in the chain", b)

@@ -321,7 +321,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	sc.dirErr = dir.Err
 	if dir.Support > 0 {
 		// The pair's own counts carry no screening-off bias.
-		sc.ref, sc.refVar, sc.refBias = sc.ddist, dir.Var, 0
+		sc.ref, sc.refVar = sc.ddist, dir.Var
 	}
 	res := sc.generate()
 
@@ -353,6 +353,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 		bestC = sc.inc.c
 		bestEst.ok, bestEst.err, bestEst.score = true, sc.inc.err, sc.inc.score
 		sc.dist = append(sc.dist[:0], sc.incDist...)
+		sc.bestWit = append(sc.bestWit[:0], sc.incWit...)
 	}
 	// The deadline is polled every scorePoll exact scores, so a large
 	// candidate limit k cannot outlast it: the chains left unscored are
@@ -387,6 +388,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 			bestC = *cd
 			bestEst.ok, bestEst.err, bestEst.score = true, e, score
 			sc.dist = append(sc.dist[:0], est.Dist...)
+			sc.bestWit = append(sc.bestWit[:0], sc.ws.SeparationWitnesses()...)
 		}
 	}
 
@@ -394,7 +396,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	// (parallel.go) competes with the best chain on the same score.
 	par := false
 	if bestEst.ok {
-		p, e, score, err := sc.parallel(bestEst.score, bestC, sc.dist, bestEst.err)
+		p, e, score, err := sc.parallel(bestEst.score, bestC, sc.dist)
 		if err != nil {
 			return core{}, false, nil, fmt.Errorf("router: parallel estimate %q → %q: %w", q.From, q.To, err)
 		}

@@ -274,12 +274,14 @@ type scratch struct {
 	// (scorer.ReferenceProjector).
 	ref, refBuf []float64
 	refVar      float64
-	// refBias is the reference chain's own bias allowance (its Err less
-	// its variance; 0 for the direct reference), for the parallel answer
-	// (parallel.go).
-	refBias  float64
-	refChain bool // the reference is a chain's estimate, refC
+	// refChain: the reference is the estimate of the chain refC (for the
+	// parallel answer, parallel.go).
+	refChain bool
 	refC     cand
+	// incWit and bestWit: the separation witnesses of the incumbent and
+	// of the best chain (scorer.Workspace.SeparationWitnesses), for the
+	// parallel answer (parallel.go)
+	incWit, bestWit []graphidx.EntityID
 	// the parallel answer of the decision (parallel.go)
 	parCand cand
 	parDist []float64
@@ -1785,9 +1787,10 @@ func (sc *scratch) scoreIncumbent(c cand) bool {
 	sc.inc.ok, sc.inc.c = true, c
 	sc.inc.err, sc.inc.score = e, score
 	sc.incDist = append(sc.incDist[:0], est.Dist...)
+	sc.incWit = append(sc.incWit[:0], sc.ws.SeparationWitnesses()...)
 	if sc.ref == nil {
 		sc.ref, sc.refVar = sc.incDist, est.Var
-		sc.refBias, sc.refChain, sc.refC = max(0, e-est.Var), true, c
+		sc.refChain, sc.refC = true, c
 		if rp, ok := sc.model.(scorer.ReferenceProjector); ok {
 			// The reference chain's estimate, moved to the nearest point the
 			// model's bound allows; the incumbent keeps its own estimate.

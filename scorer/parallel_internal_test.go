@@ -10,8 +10,8 @@ import (
 
 // TestParallelVarianceMonteCarlo checks the delta-method variance of the
 // parallel estimate (parWork.variance) against the variance of the
-// estimate over posterior draws of every row it reads (Dirichlet rows,
-// shares fixed), on random tables of a few hundred contexts per row with
+// estimate over posterior draws of every row it reads and of each table's
+// row shares (Dirichlet vectors), on random tables of a few hundred contexts per row with
 // K = 3, 3, 2 and 3 values (s, b1, b2, t), with and without the bridges'
 // own table. The delta method is first order, so they agree within 20 %.
 func TestParallelVarianceMonteCarlo(t *testing.T) {
@@ -42,6 +42,7 @@ func TestParallelVarianceMonteCarlo(t *testing.T) {
 		for r := range ka {
 			tb.w[r] /= tot
 		}
+		tb.cw = 1 / (tot + 1)
 		return tb
 	}
 	for _, withD := range []bool{false, true} {
@@ -61,8 +62,21 @@ func TestParallelVarianceMonteCarlo(t *testing.T) {
 			tabs = append(tabs, &pw.d)
 		}
 		orig := make([][]float64, len(tabs))
+		origW := make([][]float64, len(tabs))
 		for i, tb := range tabs {
 			orig[i] = append([]float64(nil), tb.th...)
+			origW[i] = append([]float64(nil), tb.w...)
+		}
+		draw := func(dst, mean []float64, conc float64) {
+			s := 0.0
+			for v := range dst {
+				g := distuv.Gamma{Alpha: conc * mean[v], Beta: 1, Src: rng}.Rand()
+				dst[v] = g
+				s += g
+			}
+			for v := range dst {
+				dst[v] /= s
+			}
 		}
 		mean := make([]float64, kt)
 		var sum, sumSq [8]float64
@@ -72,17 +86,9 @@ func TestParallelVarianceMonteCarlo(t *testing.T) {
 		for range draws {
 			for i, tb := range tabs {
 				for r := range tb.ka {
-					conc := 1/tb.ci[r] - 1
-					s := 0.0
-					for v := range tb.kb {
-						g := distuv.Gamma{Alpha: conc * orig[i][r*tb.kb+v], Beta: 1, Src: rng}.Rand()
-						tb.th[r*tb.kb+v] = g
-						s += g
-					}
-					for v := range tb.kb {
-						tb.th[r*tb.kb+v] /= s
-					}
+					draw(tb.th[r*tb.kb:r*tb.kb+tb.kb], orig[i][r*tb.kb:r*tb.kb+tb.kb], 1/tb.ci[r]-1)
 				}
+				draw(tb.w[:tb.ka], origW[i], 1/tb.cw-1)
 			}
 			if !pw.estimate(u, est) {
 				t.Fatal("no estimate on a draw")
@@ -94,6 +100,7 @@ func TestParallelVarianceMonteCarlo(t *testing.T) {
 		}
 		for i, tb := range tabs {
 			copy(tb.th, orig[i])
+			copy(tb.w, origW[i])
 		}
 		mc := 0.0
 		for v := range kt {

@@ -1,6 +1,7 @@
 package scorer_test
 
 import (
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"testing"
@@ -247,6 +248,9 @@ func TestParallelRefusals(t *testing.T) {
 	if _, ok, err := m.Parallel(nil, st, 0, 0, 1, g, 3); ok || err != nil {
 		t.Errorf("bridge never observed with s: ok %v, err %v; want no answer", ok, err)
 	}
+	if _, ok, err := m.Parallel(nil, randomFour(1, 2, 3, 4, 2), 0, 0, 1, 2, 3); ok || err != nil {
+		t.Errorf("bridges of 3 and 4 values: ok %v, err %v; want no answer (parallelMaxCols)", ok, err)
+	}
 	for _, c := range []struct {
 		u              int
 		b1, b2, s, tgt graphidx.EntityID
@@ -257,5 +261,46 @@ func TestParallelRefusals(t *testing.T) {
 	}
 	if _, _, err := m.Parallel(nil, nil, 0, 0, 1, 2, 3); err == nil {
 		t.Error("nil Stats accepted")
+	}
+}
+
+// randomFour returns Stats of s, b1, b2, t (ids 0–3) with ks, k1, k2, kt
+// values and random count tables for (s, b1), (s, b2), (b1, t), (b2, t).
+func randomFour(seed uint64, ks, k1, k2, kt int) *memStats {
+	rng := rand.New(rand.NewPCG(seed, 1))
+	tab := func(ka, kb int) [][]uint32 {
+		out := make([][]uint32, ka)
+		for i := range out {
+			out[i] = make([]uint32, kb)
+			for j := range out[i] {
+				out[i][j] = uint32(1 + rng.IntN(200))
+			}
+		}
+		return out
+	}
+	st := newMemStats().entity(0, ks).entity(1, k1).entity(2, k2).entity(3, kt)
+	return st.pair(0, 1, tab(ks, k1)).pair(0, 2, tab(ks, k2)).pair(1, 3, tab(k1, kt)).pair(2, 3, tab(k2, kt))
+}
+
+// BenchmarkParallel: one parallel estimate (no bridges' table, so both
+// covariance assumptions) for binary and three-valued entities (the size
+// bound, parallelMaxCols).
+// go test ./scorer -run '^$' -bench Parallel -benchmem
+func BenchmarkParallel(b *testing.B) {
+	m, err := scorer.NewBayes()
+	if err != nil {
+		b.Fatal(err)
+	}
+	for _, k := range [][4]int{{2, 2, 2, 2}, {3, 3, 3, 3}} {
+		st := randomFour(1, k[0], k[1], k[2], k[3])
+		ws := scorer.NewWorkspace()
+		ws.BorrowDist(true)
+		b.Run(fmt.Sprintf("K=%d,%d,%d,%d", k[0], k[1], k[2], k[3]), func(b *testing.B) {
+			for b.Loop() {
+				if _, ok, err := m.Parallel(ws, st, 0, 1, 1, 2, 3); err != nil || !ok {
+					b.Fatal(ok, err)
+				}
+			}
+		})
 	}
 }
