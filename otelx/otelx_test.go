@@ -600,3 +600,26 @@ func compactCase(t *testing.T, tau float64, mode router.Mode) {
 		t.Errorf("compact record %+v vs decision %+v", got, d)
 	}
 }
+
+// TestParallelChainAttr: a decision whose chain reads its two bridges side
+// by side carries hopwise.chain.parallel = true; a sequential chain does
+// not carry the key (readers take false).
+func TestParallelChainAttr(t *testing.T) {
+	in, err := New()
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, par := range []bool{true, false} {
+		d := router.Decision{Mode: router.ModeChain, Bridges: []string{"a", "b"},
+			Chain: &router.ChainResult{Bridges: []string{"a", "b"}, Parallel: par}}
+		found := false
+		for _, kv := range in.decisionAttrs(nil, router.Query{From: "s", Value: "v", To: "t"}, &d) {
+			if kv.Key == KeyChainParallel {
+				found = kv.Value.AsBool()
+			}
+		}
+		if found != par {
+			t.Errorf("parallel %v: attribute %s present and true: %v", par, KeyChainParallel, found)
+		}
+	}
+}

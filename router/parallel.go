@@ -27,7 +27,7 @@ var parCharge = true
 // the route it misses if the pair is the separator. On success
 // sc.parCand, sc.parDist and sc.parSup hold the answer. Cost: one scan of
 // the heap and, when two candidates exist, 4–5 pair look-ups (memoised in
-// the decision) and the model's estimate (6 µs for binary entities,
+// the decision) and the model's estimate (8.3 µs for binary entities,
 // scorer.BenchmarkParallel).
 func (sc *scratch) parallel(best float64, bestC cand, bestDist []float64) (ok bool, errP, score float64, fail error) {
 	if !sc.st.cfg.ParallelBridges {

@@ -439,8 +439,8 @@ func (pw *parWork) estimate(u int, out []float64) bool {
 // together (K_1 + K_2 − 2) and the values of s and t for which the
 // parallel answer is offered: its variance re-solves the normal equations
 // once per row entry read, O((K_s + K_1 + K_2)·K·n³) with n = K_1 + K_2 − 2
-// (BenchmarkParallel: 6.1 µs for binary entities, 30 µs for three values
-// each, 13 ms at K = 16, 9, 9, 16). Analytic gradients would lift it.
+// (BenchmarkParallel: 8.3 µs for binary entities, 38 µs for three values
+// each; 13 ms at K = 16, 9, 9, 16 before the row shares were added). Analytic gradients would lift it.
 const parallelMaxCols = 4
 
 // parStep is the finite-difference step of the delta-method gradient (the
