@@ -353,7 +353,9 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 		bestC = sc.inc.c
 		bestEst.ok, bestEst.err, bestEst.score = true, sc.inc.err, sc.inc.score
 		sc.dist = append(sc.dist[:0], sc.incDist...)
-		sc.bestWit = append(sc.bestWit[:0], sc.incWit...)
+		if st.cfg.ParallelBridges {
+			sc.bestWit = append(sc.bestWit[:0], sc.incWit...)
+		}
 	}
 	// The deadline is polled every scorePoll exact scores, so a large
 	// candidate limit k cannot outlast it: the chains left unscored are
@@ -388,7 +390,9 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 			bestC = *cd
 			bestEst.ok, bestEst.err, bestEst.score = true, e, score
 			sc.dist = append(sc.dist[:0], est.Dist...)
-			sc.bestWit = append(sc.bestWit[:0], sc.ws.SeparationWitnesses()...)
+			if st.cfg.ParallelBridges {
+				sc.bestWit = append(sc.bestWit[:0], sc.ws.SeparationWitnesses()...)
+			}
 		}
 	}
 

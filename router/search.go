@@ -1787,7 +1787,9 @@ func (sc *scratch) scoreIncumbent(c cand) bool {
 	sc.inc.ok, sc.inc.c = true, c
 	sc.inc.err, sc.inc.score = e, score
 	sc.incDist = append(sc.incDist[:0], est.Dist...)
-	sc.incWit = append(sc.incWit[:0], sc.ws.SeparationWitnesses()...)
+	if sc.st.cfg.ParallelBridges {
+		sc.incWit = append(sc.incWit[:0], sc.ws.SeparationWitnesses()...)
+	}
 	if sc.ref == nil {
 		sc.ref, sc.refVar = sc.incDist, est.Var
 		sc.refChain, sc.refC = true, c
