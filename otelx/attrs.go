@@ -32,6 +32,9 @@ const (
 	KeyChainErr     = "hopwise.chain.err"     // double; absent without a chain
 	KeyChainHops    = "hopwise.chain.hops"    // int: number of bridges
 	KeyChainBridges = "hopwise.chain.bridges" // string slice (maybe hashed)
+	// KeyChainParallel marks a chain whose two bridges are read side by
+	// side (router.ChainResult.Parallel); absent otherwise.
+	KeyChainParallel = "hopwise.chain.parallel" // bool, true when present
 
 	KeyABArm           = "hopwise.ab.arm"           // string; absent without arms
 	KeyIndexGeneration = "hopwise.index.generation" // string: 16 hex digits

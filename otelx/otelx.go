@@ -484,6 +484,9 @@ func (in *Instrumentation) decisionAttrs(attrs []attribute.KeyValue, q router.Qu
 			attribute.Int(KeyChainHops, len(d.Chain.Bridges)),
 			attribute.StringSlice(KeyChainBridges, bridges),
 		)
+		if d.Chain.Parallel {
+			attrs = append(attrs, attribute.Bool(KeyChainParallel, true))
+		}
 	}
 	if d.Arm != "" {
 		attrs = append(attrs, attribute.String(KeyABArm, d.Arm))

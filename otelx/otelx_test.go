@@ -108,7 +108,7 @@ func TestDecideSpanAndMetrics(t *testing.T) {
 		}
 	}
 	// Flags are recorded only when true (readers take false).
-	for k, on := range map[attribute.Key]bool{KeyRouteTruncated: d.Truncated, KeyRouteExplored: d.Explored, KeyRouteCached: false} {
+	for k, on := range map[attribute.Key]bool{KeyRouteTruncated: d.Truncated, KeyRouteExplored: d.Explored, KeyRouteCached: false, KeyChainParallel: d.Chain.Parallel} {
 		if v, ok := a[k]; ok != on || (ok && !v.AsBool()) {
 			t.Errorf("attribute %s = %v (present %v), want present only as true: %v", k, v.AsInterface(), ok, on)
 		}
@@ -598,5 +598,28 @@ func compactCase(t *testing.T, tau float64, mode router.Mode) {
 	if got.Mode != d.Mode.String() || got.Gain != d.Gain || got.Propensity != d.Propensity || !got.HasChain ||
 		got.ChainHops != len(d.Chain.Bridges) || got.Err != d.Err || got.SamplingRatio != 0.5 || got.Key != "u1" || got.Arm != router.ArmRouted {
 		t.Errorf("compact record %+v vs decision %+v", got, d)
+	}
+}
+
+// TestParallelChainAttr: a decision whose chain reads its two bridges side
+// by side carries hopwise.chain.parallel = true; a sequential chain does
+// not carry the key (readers take false).
+func TestParallelChainAttr(t *testing.T) {
+	in, err := New()
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, par := range []bool{true, false} {
+		d := router.Decision{Mode: router.ModeChain, Bridges: []string{"a", "b"},
+			Chain: &router.ChainResult{Bridges: []string{"a", "b"}, Parallel: par}}
+		found := false
+		for _, kv := range in.decisionAttrs(nil, router.Query{From: "s", Value: "v", To: "t"}, &d) {
+			if kv.Key == KeyChainParallel {
+				found = kv.Value.AsBool()
+			}
+		}
+		if found != par {
+			t.Errorf("parallel %v: attribute %s present and true: %v", par, KeyChainParallel, found)
+		}
 	}
 }

@@ -55,6 +55,9 @@ type DecisionRecord struct {
 	ChainErr  float64
 	ChainHops int
 	Bridges   []string
+	// ChainParallel: the chain's bridges are read side by side
+	// (KeyChainParallel).
+	ChainParallel bool
 
 	Arm        string
 	Generation string
@@ -494,6 +497,7 @@ func decisionFromSpan(sp *tracepb.Span, src string) (*DecisionRecord, error) {
 		d.ChainErr = a.finite(KeyChainErr, 0)
 		d.ChainHops = int(a.int(KeyChainHops))
 		d.Bridges = a.strings(KeyChainBridges)
+		d.ChainParallel = a.bool(KeyChainParallel)
 		if d.ChainHops < 0 {
 			a.fail(KeyChainHops, "negative hop count %d", d.ChainHops)
 		}

@@ -51,7 +51,8 @@ import (
 //	  "exploration": 0,             // ε in [0, 0.5]
 //	  "exploration_salt": "",       // separates exploration from arm draws
 //	  "arms": [{"arm": "routed", "weight": 0.9}, {"arm": "direct-only", "weight": 0.1}],
-//	  "hash_key": ""                // 32 hex digits (16-byte SipHash key), "" = DefaultHashKey
+//	  "hash_key": "",               // 32 hex digits (16-byte SipHash key), "" = DefaultHashKey
+//	  "parallel_bridges": false     // bayes: let the parallel answer through two bridges compete (docs/QUALITY.md §4e)
 //	}
 //
 // (JSON has no comments; they are annotations here.) The Bayes model's
@@ -92,6 +93,10 @@ type Config struct {
 	ExplorationSalt string      `json:"exploration_salt"`
 	Arms            []ArmWeight `json:"arms"`
 	HashKey         string      `json:"hash_key"`
+	// ParallelBridges lets the parallel answer (two bridges read side by
+	// side, ChainResult.Parallel) compete with the chains. Off by default:
+	// on the published networks it does not measure better (docs/QUALITY.md §4e).
+	ParallelBridges bool `json:"parallel_bridges,omitempty"`
 }
 
 // DefaultConfig returns the configuration New uses without options. The
@@ -140,7 +145,7 @@ var optionOf = map[string]string{
 	"fan_out": "WithFanOut", "max_candidates": "WithMaxCandidates", "alpha": "WithAlpha", "beta": "WithBeta",
 	"unknown_entity": "WithFallback", "cache_size": "WithCacheSize", "utility_lambda": "WithUtility",
 	"hop_cost": "WithUtility", "expansion_budget": "WithExpansionBudget", "exploration": "WithExploration",
-	"arms": "WithArms", "hash_key": "WithHashKey",
+	"arms": "WithArms", "hash_key": "WithHashKey", "parallel_bridges": "WithParallelBridges",
 }
 
 // modelFields lists the Config's model fields: the JSON name, the

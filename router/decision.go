@@ -27,6 +27,11 @@ type ChainResult struct {
 	Estimate   []float64 // chained estimate over Decision.Values
 	Err        float64   // expected error: Σ Var + β·m + squared distance from the reference (search.go)
 	MinSupport uint64    // smallest pair support along the chain
+	// Parallel reports that the two bridges are read side by side, each
+	// given the observed value, and combined by the best linear predictor
+	// of the target on both (docs/QUALITY.md §4e), instead of one after the
+	// other. Bridges then holds the two in the order of their proxy cost.
+	Parallel bool
 }
 
 // Decision is the router's answer to one Query.

@@ -332,6 +332,15 @@ func WithExploration(epsilon float64, salt string) Option {
 	return optionFunc(func(d *draft) { d.cfg.Exploration, d.cfg.ExplorationSalt = epsilon, salt })
 }
 
+// WithParallelBridges sets "parallel_bridges": whether the parallel answer
+// through the two strongest one-bridge candidates (ChainResult.Parallel,
+// docs/QUALITY.md §4e) competes with the chains on estimated error. Default
+// false. It needs a model that implements scorer.ParallelBridger (the
+// Bayes model); with another model it has no effect.
+func WithParallelBridges(on bool) Option {
+	return optionFunc(func(d *draft) { d.cfg.ParallelBridges = on })
+}
+
 // WithHashKey sets "hash_key", the 16-byte SipHash-2-4 key of the unit
 // assignment (arms and exploration). Default DefaultHashKey.
 func WithHashKey(key []byte) Option {

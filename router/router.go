@@ -366,6 +366,9 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 		bestC = sc.inc.c
 		bestEst.ok, bestEst.err, bestEst.score = true, sc.inc.err, sc.inc.score
 		sc.dist = append(sc.dist[:0], sc.incDist...)
+		if st.cfg.ParallelBridges {
+			sc.bestWit = append(sc.bestWit[:0], sc.incWit...)
+		}
 	}
 	// The deadline is polled every scorePoll exact scores, so a large
 	// candidate limit k cannot outlast it: the chains left unscored are
@@ -400,6 +403,25 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 			bestC = *cd
 			bestEst.ok, bestEst.err, bestEst.score = true, e, score
 			sc.dist = append(sc.dist[:0], est.Dist...)
+			if st.cfg.ParallelBridges {
+				sc.bestWit = append(sc.bestWit[:0], sc.ws.SeparationWitnesses()...)
+			}
+		}
+	}
+
+	// The parallel answer through the two strongest one-bridge candidates
+	// (parallel.go) competes with the best chain on the same score.
+	par := false
+	if bestEst.ok {
+		p, e, score, err := sc.parallel(bestEst.score, bestC, sc.dist)
+		if err != nil {
+			return core{}, false, nil, fmt.Errorf("router: parallel estimate %q → %q: %w", q.From, q.To, err)
+		}
+		if p {
+			par = true
+			bestC = sc.parCand
+			bestEst.err, bestEst.score = e, score
+			sc.dist = append(sc.dist[:0], sc.parDist...)
 		}
 	}
 
@@ -429,7 +451,18 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 		cut:        res.cut,
 		generation: h.gen,
 	}
-	if bestEst.ok {
+	if bestEst.ok && par {
+		*rb.chain = ChainResult{
+			Bridges:    rb.bridges,
+			Estimate:   rb.chainEst,
+			Err:        bestEst.err,
+			MinSupport: sc.parSup,
+			Parallel:   true,
+		}
+		c.chain = rb.chain
+		c.gain = dir.Err - bestEst.err
+		c.score = bestEst.score
+	} else if bestEst.ok {
 		cd := bestC
 		minSup := ^uint64(0)
 		prev := s

@@ -274,6 +274,18 @@ type scratch struct {
 	// (scorer.ReferenceProjector).
 	ref, refBuf []float64
 	refVar      float64
+	// refChain: the reference is the estimate of the chain refC (for the
+	// parallel answer, parallel.go).
+	refChain bool
+	refC     cand
+	// incWit and bestWit: the separation witnesses of the incumbent and
+	// of the best chain (scorer.Workspace.SeparationWitnesses), for the
+	// parallel answer (parallel.go)
+	incWit, bestWit []graphidx.EntityID
+	// the parallel answer of the decision (parallel.go)
+	parCand cand
+	parDist []float64
+	parSup  uint64
 
 	// incumbent: a chain scored exactly during generation
 	inc struct {
@@ -356,7 +368,7 @@ func (sc *scratch) reset() {
 	sc.bud = budget{}
 	sc.inc.ok = false
 	sc.err = nil
-	sc.ref = nil
+	sc.ref, sc.refChain = nil, false
 	sc.memo.clear() // drop references into the index
 	sc.nbrS, sc.nbrT = nil, nil
 	sc.rkS, sc.rkT = nil, nil
@@ -1809,8 +1821,12 @@ func (sc *scratch) scoreIncumbent(c cand) bool {
 	sc.inc.ok, sc.inc.c = true, c
 	sc.inc.err, sc.inc.score = e, score
 	sc.incDist = append(sc.incDist[:0], est.Dist...)
+	if sc.st.cfg.ParallelBridges {
+		sc.incWit = append(sc.incWit[:0], sc.ws.SeparationWitnesses()...)
+	}
 	if sc.ref == nil {
 		sc.ref, sc.refVar = sc.incDist, est.Var
+		sc.refChain, sc.refC = true, c
 		if rp, ok := sc.model.(scorer.ReferenceProjector); ok {
 			// The reference chain's estimate, moved to the nearest point the
 			// model's bound allows; the incumbent keeps its own estimate.

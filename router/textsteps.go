@@ -32,7 +32,9 @@ type BridgeDist struct {
 // P(b_j | b_(j−1) = i)). It is the distribution the scorer's own Chain
 // call gives for the prefix From → b_1 → … → b_k (so x_k is exactly what
 // the chain carries forward to the next link); the decision's
-// Chain.Estimate is x_(m+1) at the target.
+// Chain.Estimate is x_(m+1) at the target. For a parallel answer
+// (ChainResult.Parallel) each bridge's distribution is the model's estimate
+// from From alone, P(b_k | From = u), which is what that answer reads.
 //
 // The matrices are the current configuration's (a Reconfigure of α between
 // the decision and this call changes them). This is a separate call so
@@ -83,7 +85,12 @@ func (r *Router) ChainDists(ctx context.Context, q Query, d Decision) ([]BridgeD
 	ws := scorer.NewWorkspace()
 	out := make([]BridgeDist, len(ids))
 	for k, id := range ids {
-		est, err := model.Chain(ws, g, s, u, ids[:k], id)
+		prefix := ids[:k]
+		if d.Chain.Parallel {
+			// Each bridge of a parallel answer is read from s = u alone.
+			prefix = ids[:0]
+		}
+		est, err := model.Chain(ws, g, s, u, prefix, id)
 		if err != nil {
 			return nil, fmt.Errorf("router: chain distribution at bridge %q: %w", d.Chain.Bridges[k], err)
 		}

@@ -147,6 +147,8 @@ func (d *Dist) UnmarshalJSON(data []byte) error {
 //	mode                   "direct" or "chain"
 //	reason, explanation    the stable reason code and its text
 //	bridges                the chosen path's bridges ([] when direct)
+//	parallel               true when the chosen answer reads its two bridges
+//	                       side by side (ChainResult.Parallel); omitted otherwise
 //	estimate               the chosen distribution over the target's values,
 //	                       omitted when there is none: a presence-only target
 //	                       (one label) or a fallback decision
@@ -160,8 +162,9 @@ func (d *Dist) UnmarshalJSON(data []byte) error {
 //	truncated, cut         a bound cut the search (cut lists which)
 //	direct                 {estimate, sq_error_sum|error_proxy, support}:
 //	                       support = contexts that observed both endpoints
-//	chain                  {bridges, estimate, sq_error_sum|error_proxy,
+//	chain                  {bridges, parallel, estimate, sq_error_sum|error_proxy,
 //	                       weakest_edge_support} or null when none was found
+//	                       (parallel omitted unless true)
 //	generation             the index generation, 16 hex digits
 //	arm, propensity, explored, cached
 //	                       the A/B and exploration policy (omitted when
@@ -175,6 +178,7 @@ type View struct {
 	Reason      string       `json:"reason"`
 	Explanation string       `json:"explanation"`
 	Bridges     []string     `json:"bridges"`
+	Parallel    bool         `json:"parallel,omitempty"`
 	Estimate    *Dist        `json:"estimate,omitempty"`
 	Measure     ErrorMeasure `json:"error_measure"`
 	ErrorFigure
@@ -202,6 +206,7 @@ type DirectView struct {
 // ChainView is the best chain in a View.
 type ChainView struct {
 	Bridges  []string `json:"bridges"`
+	Parallel bool     `json:"parallel,omitempty"`
 	Estimate *Dist    `json:"estimate,omitempty"`
 	ErrorFigure
 	WeakestEdgeSupport uint64 `json:"weakest_edge_support"`
@@ -239,6 +244,7 @@ func NewView(q Query, d Decision, m ErrorMeasure) View {
 		Explored:    d.Explored,
 		Cached:      d.Cached,
 	}
+	v.Parallel = d.Mode == ModeChain && d.Chain != nil && d.Chain.Parallel
 	if d.Direct.Estimate == nil {
 		// A fallback decision: nothing was estimated, so no error figure.
 		v.ErrorFigure, v.Direct.ErrorFigure = ErrorFigure{}, ErrorFigure{}
@@ -250,6 +256,7 @@ func NewView(q Query, d Decision, m ErrorMeasure) View {
 	if d.Chain != nil {
 		v.Chain = &ChainView{
 			Bridges:            d.Chain.Bridges,
+			Parallel:           d.Chain.Parallel,
 			Estimate:           est(d.Chain.Estimate),
 			ErrorFigure:        NewErrorFigure(m, d.Chain.Err),
 			WeakestEdgeSupport: d.Chain.MinSupport,

@@ -457,6 +457,7 @@ func (b *Bayes) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridg
 	if err := ws.setPath(st, s, u, bridges, t); err != nil {
 		return Estimate{}, err
 	}
+	ws.sepWit = ws.sepWit[:0]
 	if len(bridges) == 0 {
 		ws.sepPending = false
 		return b.Direct(ws, st, s, u, t)

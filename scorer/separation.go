@@ -55,6 +55,7 @@ const PrevWitnessScale = 4.0
 // bridge when its neighbours were observed together), no allocation once
 // the buffers have grown.
 func (ws *Workspace) separationBias(st Stats, u, m int, alpha float64) (float64, error) {
+	ws.sepWit = ws.sepWit[:0]
 	kt := ws.ks[m+1]
 	// R_1..R_(m+1), R_j of K_j × K_t, concatenated at roff[j−1].
 	ws.roff = growI(ws.roff, m+2)
@@ -105,6 +106,7 @@ func (ws *Workspace) separationBias(st Stats, u, m int, alpha float64) (float64,
 				g: rk, kw: kn,
 			}
 			worst = max(worst, ws.witnessBias(&wk, ps, y, z, mk, ck, kt, alpha))
+			ws.sepWit = append(ws.sepWit, next)
 		}
 		if rn == nil || ok {
 			// With prev and next observed together the chain's own hop is
@@ -160,6 +162,7 @@ func (ws *Workspace) separationBias(st Stats, u, m int, alpha float64) (float64,
 			matMul(ws.sepG, kt, ws.sepW, kn, rk, kt, kw, kn, kt)
 			wk := witness{mbw: ws.sepB, cbw: ws.sepBC, g: ws.sepG, kw: kw}
 			worst = max(worst, ws.witnessBias(&wk, psPW, y, z, mk, ck, kt, alpha))
+			ws.sepWit = append(ws.sepWit, w)
 		}
 		// Witnesses on prev's side: neighbours w of prev observed with next,
 		// for one-bridge chains only (prev = s, next = t, never observed
@@ -208,6 +211,7 @@ func (ws *Workspace) separationBias(st Stats, u, m int, alpha float64) (float64,
 				return 0, err
 			}
 			worst = max(worst, ws.prevWitnessBias(psPW, psWN, psWB, okWB, y, mk, ck, k, kt, alpha))
+			ws.sepWit = append(ws.sepWit, w)
 		}
 		total += worst
 	}

@@ -47,6 +47,9 @@ type Workspace struct {
 	sepU, sepM           int
 	// sepEx is the bound excess the last Chain call charged (sepOrExcess).
 	sepEx float64
+	// sepWit lists the witnesses whose tables the last separation check
+	// read in full (SeparationWitnesses); reset by every Chain call.
+	sepWit []graphidx.EntityID
 
 	// influence bound of the last query (Bayes.unseenRatio): the ratio
 	// D/E0_prior for observed value inflU of inflS and target inflT over
@@ -66,6 +69,9 @@ type Workspace struct {
 	// (BorrowDist); out is never used as scratch by any computation.
 	borrow bool
 	out    []float64
+
+	// par is the scratch of Bayes.Parallel (allocated on first use).
+	par *parWork
 
 	// gonum headers over the buffers above (set with SetRawMatrix, so that
 	// no mat.Dense is allocated per call).
@@ -282,3 +288,12 @@ func dense(h *mat.Dense, data []float64, r, c, stride int) *mat.Dense {
 	h.SetRawMatrix(blas64.General{Rows: r, Cols: c, Stride: stride, Data: data[:(r-1)*stride+c]})
 	return h
 }
+
+// SeparationWitnesses returns the witnesses whose tables the separation
+// check of the last Chain call (or of its PendingBias, when deferred) read
+// in full, whether or not they charged the chain: for a bridge, its
+// successor when observed with its predecessor, else neighbours of the
+// bridge and, for a one-bridge chain, of the observed entity (docs/QUALITY.md
+// §1 and §4d). Empty when the check had no table to test against, or was
+// not run (yet). The slice is the workspace's: valid until its next call.
+func (ws *Workspace) SeparationWitnesses() []graphidx.EntityID { return ws.sepWit }

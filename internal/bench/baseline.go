@@ -23,6 +23,9 @@ type Bounds struct {
 	MaxCandidates int     `json:"max_candidates"`
 	Budget        int     `json:"expansion_budget"`
 	GainThreshold float64 `json:"gain_threshold"`
+	// Parallel turns on the router's parallel answer
+	// (router.WithParallelBridges); the baselines have none.
+	Parallel bool `json:"parallel_bridges,omitempty"`
 }
 
 // DefaultBounds returns the router's defaults (H, B, f, k, budget and τ:
@@ -55,6 +58,9 @@ func (b Bounds) RouterOptions() []router.Option {
 	}
 	if b.FanOut != 0 {
 		opts = append(opts, router.WithFanOut(b.FanOut))
+	}
+	if b.Parallel {
+		opts = append(opts, router.WithParallelBridges(true))
 	}
 	return opts
 }

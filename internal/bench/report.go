@@ -85,8 +85,12 @@ func (r *Report) WriteTable(w io.Writer) error {
 		g.Entities, g.MeanDegree, g.AvgDegreeCfg, g.Gamma, g.Seed, g.Pairs, g.Contexts, g.MeanSupport)
 	fmt.Fprintf(&b, "hub: %s with %d neighbours; index %d bytes (rank prefix %d, opened by %s) via %s (generate %.1fs, build %.1fs)\n",
 		g.HubName, g.HubDegree, g.IndexBytes, g.RankPrefix, g.Open, g.BuildMode, g.GenSeconds, g.BuildSeconds)
-	fmt.Fprintf(&b, "bounds: H=%d B=%d f=%d k=%d budget=%d τ=%g; GOMAXPROCS=%d; timer overhead %.0f ns\n\n",
-		r.Bounds.MaxBridges, r.Bounds.Beam, r.Bounds.FanOut, r.Bounds.MaxCandidates, r.Bounds.Budget, r.Bounds.GainThreshold, r.GOMAXPROCS, r.TimerNs)
+	par := ""
+	if r.Bounds.Parallel {
+		par = " parallel answer on;"
+	}
+	fmt.Fprintf(&b, "bounds: H=%d B=%d f=%d k=%d budget=%d τ=%g;%s GOMAXPROCS=%d; timer overhead %.0f ns\n\n",
+		r.Bounds.MaxBridges, r.Bounds.Beam, r.Bounds.FanOut, r.Bounds.MaxCandidates, r.Bounds.Budget, r.Bounds.GainThreshold, par, r.GOMAXPROCS, r.TimerNs)
 
 	tw := tabwriter.NewWriter(&b, 2, 8, 2, ' ', tabwriter.AlignRight)
 	fmt.Fprintln(tw, "workload\tn\tp50 µs\tp99 µs\tmean µs\tmax µs\tcpu p50 µs\tcpu p99 µs\tallocs/op\tfaults/op\ttruncated\tchain found\t")

@@ -35,6 +35,7 @@ type benchOptions struct {
 	maxCandidates int
 	budget        int
 	rankPrefix    int
+	parallel      bool
 }
 
 func newBenchCmd() *cobra.Command {
@@ -94,6 +95,7 @@ CPU columns leave out time spent waiting for a core.`,
 	f.IntVar(&o.maxCandidates, "max-candidates", bench.DefaultBounds().MaxCandidates, "k, candidates scored exactly")
 	f.IntVar(&o.budget, "expansion-budget", bench.DefaultBounds().Budget, "work units one search may spend (a hub costs at most this)")
 	f.IntVar(&o.rankPrefix, "rank-prefix", graphidx.DefaultRankPrefix, "rank prefix R of the generated index")
+	f.BoolVar(&o.parallel, "parallel-bridges", false, "let the router's parallel answer through two bridges compete (docs/QUALITY.md §4e)")
 	return cmd
 }
 
@@ -140,7 +142,7 @@ func runBench(cmd *cobra.Command, o benchOptions) error {
 	cfg := bench.RunConfig{
 		Graph:        bench.GraphConfig{Entities: o.entities, AvgDegree: o.avgDegree, Gamma: o.gamma, Seed: o.seed},
 		Queries:      o.queries,
-		Bounds:       bench.Bounds{MaxBridges: o.maxBridges, Beam: o.beam, FanOut: o.fanOut, MaxCandidates: o.maxCandidates, Budget: o.budget, GainThreshold: bench.DefaultBounds().GainThreshold},
+		Bounds:       bench.Bounds{MaxBridges: o.maxBridges, Beam: o.beam, FanOut: o.fanOut, MaxCandidates: o.maxCandidates, Budget: o.budget, GainThreshold: bench.DefaultBounds().GainThreshold, Parallel: o.parallel},
 		Build:        mode,
 		Baselines:    base,
 		Hub:          o.hub,

@@ -37,6 +37,7 @@ type evalOptions struct {
 	beta         float64
 	prior        float64
 	separation   float64
+	parallel     bool
 	noiseK       float64
 	influence    float64
 	spread       float64
@@ -136,6 +137,7 @@ DIR/truth.jsonl (the exact answers by id).`,
 	f.IntVar(&o.beam, "beam", router.DefaultBeam, "B: router beam width")
 	f.IntVar(&o.candidates, "max-candidates", router.DefaultMaxCandidates, "k: chains the router scores exactly")
 	f.Float64Var(&o.gainTau, "gain-threshold", router.DefaultGainThreshold, "τ_gain of the router")
+	f.BoolVar(&o.parallel, "parallel-bridges", false, "let the router's parallel answer through two bridges compete (docs/QUALITY.md §4e)")
 	workersFlag(f, &o.workers, "goroutines answering queries")
 	f.StringVar(&o.writeQueries, "write-queries", "", "keep the first world's corpus, index, queries and truth in DIR")
 	return cmd
@@ -209,6 +211,7 @@ func runEval(cmd *cobra.Command, o evalOptions) error {
 		},
 		RouterOptions: []router.Option{
 			router.WithBeam(o.beam), router.WithMaxCandidates(o.candidates), router.WithGainThreshold(o.gainTau),
+			router.WithParallelBridges(o.parallel),
 		},
 	}
 	if o.maxBridges < 1 || o.maxBridges > router.MaxBridgesLimit {

@@ -85,7 +85,9 @@ the decision view (router.View):
    "chain":{"bridges":[...],"estimate":{...},"sq_error_sum":y,
             "weakest_edge_support":n}|null,
    "generation":"<hex>"}
-with "cut":["beam"|"candidates"|"budget"|"deadline",...] added when truncated.
+with "cut":["beam"|"candidates"|"budget"|"deadline",...] added when truncated,
+and "parallel":true (top level and in "chain") when the chain reads its two
+bridges side by side (config "parallel_bridges"; docs/QUALITY.md §4e).
 sq_error_sum is the expected squared error summed over the target's values.
 On a presence-only index there is no distribution: "estimate" is absent and
 the figures are "error_proxy" (error_measure "support-proxy"), the support
@@ -836,7 +838,11 @@ func explain(w io.Writer, q routeQuery, d router.Decision, cfg router.Config, m 
 	fmt.Fprintf(&b, "query      %s = %s  →  %s\n", q.From, q.Value, q.To)
 	mode := d.Mode.String()
 	if d.Mode == router.ModeChain && len(d.Bridges) > 0 {
-		mode += " via " + strings.Join(escAll(d.Bridges), " → ")
+		if d.Chain != nil && d.Chain.Parallel {
+			mode += " via " + strings.Join(escAll(d.Bridges), " and ") + " in parallel"
+		} else {
+			mode += " via " + strings.Join(escAll(d.Bridges), " → ")
+		}
 	}
 	fmt.Fprintf(&b, "decision   %s\n", mode)
 	fmt.Fprintf(&b, "reason     %s: %s\n", d.Reason.Code, esc(d.Reason.Text))
@@ -875,7 +881,13 @@ func explain(w io.Writer, q routeQuery, d router.Decision, cfg router.Config, m 
 	}
 	if d.Chain != nil {
 		path := append(append([]string{q.From}, escAll(d.Chain.Bridges)...), q.To)
-		fmt.Fprintf(&b, "chain      %s\n", strings.Join(path, " → "))
+		if d.Chain.Parallel {
+			// s → {b1, b2} → t: both bridges read from s, the target from both.
+			fmt.Fprintf(&b, "chain      %s → {%s} → %s (parallel: each bridge from %s, %s from both)\n",
+				path[0], strings.Join(path[1:len(path)-1], ", "), path[len(path)-1], path[0], path[len(path)-1])
+		} else {
+			fmt.Fprintf(&b, "chain      %s\n", strings.Join(path, " → "))
+		}
 		fmt.Fprintf(&b, "           %s\n", withDist(d.Chain.Estimate, fmt.Sprintf("%s %.4g, weakest edge %d contexts", errName, d.Chain.Err, d.Chain.MinSupport)))
 		rule := fmt.Sprintf("direct %s − chain %s = %.4g", errName, errName, d.Gain)
 		if cfg.UtilityLambda > 0 {

@@ -11,6 +11,7 @@ import (
 	"testing"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/router"
 )
 
 // routeSource is a hand-made greenhouse index in which vent-north and
@@ -269,5 +270,33 @@ func TestRouteModelFlags(t *testing.T) {
 	}
 	if out, err := routeCLI(t, append([]string{"route", "--index", idx, "--noise-k", "0", "--separation", "0.5"}, q...)...); err != nil {
 		t.Errorf("in-domain model flags: %v\n%s", err, out)
+	}
+}
+
+// TestExplainParallel: a decision whose chain reads its two bridges side by
+// side (router.ChainResult.Parallel) is printed as such by route's text
+// output, and a sequential chain of the same bridges as before.
+func TestExplainParallel(t *testing.T) {
+	for _, par := range []bool{true, false} {
+		d := router.Decision{
+			Mode: router.ModeChain, Bridges: []string{"sprinkler", "rain"}, Values: []string{"false", "true"},
+			Estimate: []float64{0.27, 0.73}, Err: 2e-4, Reason: router.Reason{Code: router.ReasonGainAbove},
+			Direct: router.DirectResult{Estimate: []float64{0.35, 0.65}, Err: 0.02},
+			Chain:  &router.ChainResult{Bridges: []string{"sprinkler", "rain"}, Estimate: []float64{0.27, 0.73}, Err: 2e-4, MinSupport: 900, Parallel: par},
+		}
+		var b strings.Builder
+		if err := explain(&b, routeQuery{From: "cloudy", Value: "true", To: "wetgrass"}, d, router.DefaultConfig(), router.MeasureSqErrorSum); err != nil {
+			t.Fatal(err)
+		}
+		out := b.String()
+		want := []string{"decision   chain via sprinkler and rain in parallel", "chain      cloudy → {sprinkler, rain} → wetgrass (parallel"}
+		if !par {
+			want = []string{"decision   chain via sprinkler → rain", "chain      cloudy → sprinkler → rain → wetgrass"}
+		}
+		for _, w := range want {
+			if !strings.Contains(out, w) {
+				t.Errorf("parallel %v: output lacks %q:\n%s", par, w, out)
+			}
+		}
 	}
 }

@@ -274,8 +274,13 @@ type QueryResult struct {
 	ChainSignal float64
 	// ChainPath is the best chain's path in index ids, observed entity,
 	// bridges, target (nil without a chain).
-	ChainPath    []graphidx.EntityID
-	IdealBridges int
+	ChainPath []graphidx.EntityID
+	// ChainParallel reports that the best chain is a parallel answer
+	// (router.ChainResult.Parallel): ChainPath is then s, b1, b2, t, and
+	// ChainSups the supports of (s, b1), (b1, t), (s, b2), (b2, t);
+	// ChainSignal is the larger of the two routes' signals.
+	ChainParallel bool
+	IdealBridges  int
 }
 
 // SqErr returns Σ_v (p̂_v − p_v)² of the named estimate.
@@ -643,8 +648,28 @@ func (b *Bench) answer(ctx context.Context, rt *router.Router, model scorer.Mode
 		}
 		path = append(path, t)
 		r.ChainPath = path
-		r.ChainSups = b.pathSupports(path)
-		if bm, ok := model.(*scorer.Bayes); ok {
+		r.ChainParallel = d.Chain.Parallel
+		if d.Chain.Parallel && len(path) == 4 {
+			r.ChainSups = b.pathSupports([]graphidx.EntityID{s, path[1], t, path[2], s})
+			r.ChainSups[2], r.ChainSups[3] = r.ChainSups[3], r.ChainSups[2]
+			if bm, ok := model.(*scorer.Bayes); ok {
+				for _, br := range path[1:3] {
+					sig := 1.0
+					for _, e := range [2][2]graphidx.EntityID{{s, br}, {br, t}} {
+						ps, ok := b.Index.Pair(e[0], e[1])
+						if !ok {
+							sig = 0
+							break
+						}
+						sig *= bm.SignalBound(ps)
+					}
+					r.ChainSignal = max(r.ChainSignal, sig)
+				}
+			}
+		} else {
+			r.ChainSups = b.pathSupports(path)
+		}
+		if bm, ok := model.(*scorer.Bayes); ok && !d.Chain.Parallel {
 			r.ChainSignal = 1
 			for i := 0; i+1 < len(path); i++ {
 				ps, ok := b.Index.Pair(path[i], path[i+1])

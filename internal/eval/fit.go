@@ -275,7 +275,9 @@ func Fit(ctx context.Context, fc FitConfig) (FitResult, error) {
 			samples = samples[:0]
 			for i := range qs {
 				q := &qs[i]
-				if q.Mode != router.ModeChain || q.ChainSups == nil {
+				if q.Mode != router.ModeChain || q.ChainSups == nil || q.ChainParallel {
+					// A parallel answer is not a chain of the chain error
+					// model (docs/QUALITY.md §4e).
 					continue
 				}
 				f := max(0, delta-q.ChainSignal)

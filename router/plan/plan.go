@@ -58,6 +58,10 @@ type Plan struct {
 	// Steps has one entry per bridge, in order, when Mode is chain; it is
 	// empty for a direct plan.
 	Steps []Step `json:"steps"`
+	// Parallel: the chain's two bridges are each worked out from the
+	// observed value alone and the answer from both together
+	// (router.ChainResult.Parallel), instead of one after the other.
+	Parallel bool `json:"parallel,omitempty"`
 	// Answer summarises the chosen estimate: the target with its most
 	// probable value (HasValue false for a presence-only target or a
 	// fallback decision without an estimate).
@@ -118,6 +122,7 @@ func FromDists(q router.Query, d router.Decision, dists []router.BridgeDist, m r
 	}
 	if d.Chain != nil {
 		p.Support = d.Chain.MinSupport
+		p.Parallel = d.Chain.Parallel
 	}
 	if len(dists) != len(d.Bridges) {
 		return Plan{}, fmt.Errorf("%w: %d distributions for %d bridges", ErrMismatch, len(dists), len(d.Bridges))

@@ -226,3 +226,39 @@ func TestRendererTemplates(t *testing.T) {
 		t.Errorf("zero Renderer: %v", err)
 	}
 }
+
+// TestParallelPlan: a decision whose chain reads its two bridges side by
+// side (router.ChainResult.Parallel) gives a plan with Parallel set, and
+// the default chain template asks for each bridge from what is known alone
+// and for the answer from both together; a sequential chain of the same
+// bridges renders as before.
+func TestParallelPlan(t *testing.T) {
+	q := router.Query{From: "cloudy", Value: "true", To: "wetgrass"}
+	d := chainDecision("sprinkler", "rain")
+	d.Chain.Parallel = true
+	dists := []router.BridgeDist{
+		{Entity: "sprinkler", Values: []string{"false", "true"}, Dist: []float64{0.9, 0.1}},
+		{Entity: "rain", Values: []string{"false", "true"}, Dist: []float64{0.2, 0.8}},
+	}
+	r, err := plan.NewRenderer()
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, par := range []bool{true, false} {
+		d.Chain.Parallel = par
+		p, err := plan.FromDists(q, d, dists, router.MeasureSqErrorSum, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		text, err := r.Render(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		t.Logf("parallel %v:\n%s", par, text)
+		alone := strings.Count(text, "from what is known alone")
+		if p.Parallel != par || (par && (alone != 2 || !strings.Contains(text, "those states taken together"))) ||
+			(!par && (alone != 0 || !strings.Contains(text, "from those steps"))) {
+			t.Errorf("parallel %v: plan.Parallel %v, text\n%s", par, p.Parallel, text)
+		}
+	}
+}

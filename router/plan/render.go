@@ -17,11 +17,12 @@ var ErrTemplate = errors.New("plan: template")
 
 // DefaultChainTemplate is the chain template NewRenderer uses unless
 // WithChainTemplate replaces it: work through the bridges in order, then
-// answer.
+// answer; for a parallel plan (Plan.Parallel) work out each bridge from
+// what is known alone, then answer from both together.
 const DefaultChainTemplate = `Work this out in steps before answering.
 {{if .HasValue}}Known: {{.FromName}}: {{.Value}}.{{else}}Known: {{.FromName}} is involved.{{end}}
-{{range $i, $s := .Steps}}Step {{inc $i}}: work out the state of {{$s.Name}}{{if $s.HasValue}} (the records lean to "{{$s.Value}}", {{percent $s.Prob}}){{end}}.
-{{end}}Finally, from those steps, say {{if .Answer.HasValue}}what {{.ToName}} is likely to be{{else}}how {{.ToName}} is affected{{end}}. Put the answer after the steps.
+{{range $i, $s := .Steps}}Step {{inc $i}}: work out the state of {{$s.Name}}{{if $.Parallel}} from what is known alone{{end}}{{if $s.HasValue}} (the records lean to "{{$s.Value}}", {{percent $s.Prob}}){{end}}.
+{{end}}Finally, from {{if .Parallel}}those states taken together{{else}}those steps{{end}}, say {{if .Answer.HasValue}}what {{.ToName}} is likely to be{{else}}how {{.ToName}} is affected{{end}}. Put the answer after the steps.
 `
 
 // DefaultDirectTemplate is the direct template NewRenderer uses unless
@@ -126,12 +127,15 @@ func samplePlans() []Plan {
 	presence := Plan{Mode: router.ModeChain, From: "vent-a", FromName: "vent a", To: "bed-3", ToName: "bed 3",
 		Steps: []Step{step("pump-2", "pump 2", "", 0)}, Answer: step("bed-3", "bed 3", "", 0),
 		ErrorFigure: router.NewErrorFigure(router.MeasureSupportProxy, 0.3), Support: 52, Reason: router.ReasonGainAbove}
+	parallel := valued
+	parallel.Parallel = true
+	parallel.Steps = []Step{valued.Steps[0], step("pump-1", "pump 1", "idle", 0.7)}
 	direct, directPresence := valued, presence
 	direct.Mode, direct.Steps, direct.Reason = router.ModeDirect, nil, router.ReasonGainBelow
 	directPresence.Mode, directPresence.Steps, directPresence.Reason = router.ModeDirect, nil, router.ReasonGainBelow
 	fallback := direct
 	fallback.Answer, fallback.Reason, fallback.Support = step("bed-3/leaf-wilt", "bed 3 leaf wilt", "", 0), router.ReasonUnknownEntityFallback, 0
-	return []Plan{valued, long, presence, direct, directPresence, fallback}
+	return []Plan{valued, long, parallel, presence, direct, directPresence, fallback}
 }
 
 // sampleShape describes a sample plan for an error message.
@@ -141,6 +145,9 @@ func sampleShape(p Plan) string {
 		kind = "presence-only"
 	}
 	if Template(p) == "chain" {
+		if p.Parallel {
+			return fmt.Sprintf("%s parallel plan of %d steps", kind, len(p.Steps))
+		}
 		if len(p.Steps) == 1 {
 			return kind + " chain of 1 step"
 		}

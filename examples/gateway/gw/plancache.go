@@ -87,6 +87,9 @@ func appendPlanKey(b []byte, cgen uint64, q router.Query, d *router.Decision) []
 	if d.Truncated {
 		flags = 1
 	}
+	if d.Chain != nil && d.Chain.Parallel {
+		flags |= 2 // a parallel plan renders differently
+	}
 	b = append(b, byte(d.Mode), flags)
 	b = str(b, d.Reason.Code)
 	b = u64(u64(b, math.Float64bits(d.Err)), d.Direct.Support)

@@ -23,6 +23,7 @@ type RouteRequest struct {
 type RouteResponse struct {
 	Mode        string   `json:"mode"`
 	Bridges     []string `json:"bridges,omitempty"`
+	Parallel    bool     `json:"parallel,omitempty"` // the two bridges are read side by side (router.ChainResult.Parallel)
 	Reason      string   `json:"reason"`
 	Explanation string   `json:"explanation"`
 	Gain        float64  `json:"gain"`
@@ -81,6 +82,7 @@ func (s *Server) handleRoute(w http.ResponseWriter, r *http.Request) {
 	if d.Chain != nil {
 		e := d.Chain.Err
 		resp.ChainErr = &e
+		resp.Parallel = d.Mode == router.ModeChain && d.Chain.Parallel
 	}
 	writeJSON(w, http.StatusOK, resp)
 }

@@ -1,0 +1,111 @@
+package router
+
+import (
+	"math"
+
+	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/scorer"
+)
+
+// parCharge turns on the comparison charge of the best chain (see
+// parallel); a test switch.
+var parCharge = true
+
+// parallel scores the parallel answer (scorer.ParallelBridger,
+// docs/QUALITY.md §4e) through the two one-bridge candidates of smallest
+// proxy cost, when the one-bridge phase produced at least two, and reports
+// whether it beats best, the best chain's score (bestC its candidate,
+// bestDist its estimate). Its Err adds, like a chain's, the squared
+// distance from the reference when that is the direct estimate (a
+// supported pair), with the gain margin; none when the reference is the
+// one-bridge chain through one of its own bridges, which is what it
+// corrects. When the best chain is the one-bridge chain through b1 or b2
+// and its separation check read no witness other than the two bridges
+// (checked), that chain is charged, for this comparison only,
+// (‖p̂_chain − p̂_par‖ − √Err_par)₊²: the part of its distance from the
+// parallel answer that the parallel answer's own error does not explain,
+// the route it misses if the pair is the separator. On success
+// sc.parCand, sc.parDist and sc.parSup hold the answer. Cost: one scan of
+// the heap and, when two candidates exist, 4–5 pair look-ups (memoised in
+// the decision) and the model's estimate (8.3 µs for binary entities,
+// scorer.BenchmarkParallel).
+func (sc *scratch) parallel(best float64, bestC cand, bestDist []float64) (ok bool, errP, score float64, fail error) {
+	if !sc.st.cfg.ParallelBridges {
+		return false, 0, 0, nil
+	}
+	pm, isPar := sc.model.(scorer.ParallelBridger)
+	if !isPar || sc.ref == nil {
+		return false, 0, 0, nil
+	}
+	// The two one-bridge candidates of smallest proxy cost (ties by id).
+	i1, i2 := -1, -1
+	for i := range sc.heap {
+		c := &sc.heap[i]
+		if c.m != 1 {
+			continue
+		}
+		switch {
+		case i1 < 0 || candLess(c, &sc.heap[i1]):
+			i2, i1 = i1, i
+		case i2 < 0 || candLess(c, &sc.heap[i2]):
+			i2 = i
+		}
+	}
+	if i2 < 0 {
+		return false, 0, 0, nil
+	}
+	// Its Err is ≥ 0 (and ≥ 2β), so it cannot beat a score at the bound.
+	if sc.bound(2) <= best {
+		return false, 0, 0, nil
+	}
+	b1, b2 := sc.heap[i1].b[0], sc.heap[i2].b[0]
+	est, ok, err := pm.Parallel(sc.ws, sc, sc.s, sc.u, b1, b2, sc.t)
+	if err != nil || !ok {
+		return false, 0, 0, err
+	}
+	errP = est.Err
+	margin := 0.0
+	switch {
+	case !sc.refChain:
+		errP += scorer.ReferenceBias(est.Dist, sc.ref)
+	case sc.refC.m == 1 && (sc.refC.b[0] == b1 || sc.refC.b[0] == b2):
+		// The reference is one of the two single-bridge answers, which
+		// the parallel answer corrects: no distance charge.
+	default:
+		errP += scorer.ReferenceBias(est.Dist, sc.ref)
+	}
+	if gm, ok := sc.model.(scorer.GainMarginer); ok {
+		margin = gm.GainMargin(est.Var, sc.refVar)
+	}
+	score = sc.scoreOf(sc.dirErr-errP-margin, 2)
+	if parCharge && bestC.m == 1 && (bestC.b[0] == b1 || bestC.b[0] == b2) && !sc.checked(b1, b2) {
+		// The best chain is one of the two single-bridge answers; the part
+		// of its distance from the parallel answer that the latter's own
+		// error does not explain is the route it misses.
+		d := math.Sqrt(scorer.ReferenceBias(est.Dist, bestDist)) - math.Sqrt(est.Err)
+		if d > 0 {
+			best -= sc.scoreOf(d*d, 0) - sc.scoreOf(0, 0)
+		}
+	}
+	if !(score > best) {
+		return false, 0, 0, nil
+	}
+	sc.parCand = cand{b: [3]graphidx.EntityID{b1, b2}, m: 2}
+	sc.parDist = append(sc.parDist[:0], est.Dist...)
+	sc.parSup = est.Support
+	return true, errP, score, nil
+}
+
+// checked reports whether the best chain's separation check read a
+// witness other than the two bridges (sc.bestWit): then the check had a
+// table to catch a missed route and the chain is not charged for one.
+// The other bridge is no such witness: it reaches the target by a route of
+// its own, which the one-sided witness test ignores (docs/QUALITY.md §4d).
+func (sc *scratch) checked(b1, b2 graphidx.EntityID) bool {
+	for _, w := range sc.bestWit {
+		if w != b1 && w != b2 {
+			return true
+		}
+	}
+	return false
+}
