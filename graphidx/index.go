@@ -697,6 +697,31 @@ func (x *Index) Lookup(name string) (EntityID, bool) {
 	v := x.v.Load()
 	lo, hi := v.nameRange(name)
 	v.touchNames(lo, hi)
+	return v.searchName(name, lo, hi)
+}
+
+// LookupTwo is Lookup of two names at once: (ida, oka) = Lookup(a) and
+// (idb, okb) = Lookup(b). The cache lines of both names' ranges are read
+// together, the offsets of both, then the bytes of both, so that the two
+// look-ups' cache misses overlap: two rounds of misses instead of four on an
+// index larger than the caches. Same answers, no allocation.
+func (x *Index) LookupTwo(a, b string) (ida EntityID, oka bool, idb EntityID, okb bool) {
+	v := x.v.Load()
+	loA, hiA := v.nameRange(a)
+	loB, hiB := v.nameRange(b)
+	t := v.touchNameOffs(loA, hiA) + v.touchNameOffs(loB, hiB)
+	t += v.touchNameBytes(loA, hiA) + v.touchNameBytes(loB, hiB)
+	if t == touchMagic { // keeps the reads; practically never true
+		touchSink.Add(1)
+	}
+	ida, oka = v.searchName(a, loA, hiA)
+	idb, okb = v.searchName(b, loB, hiB)
+	return ida, oka, idb, okb
+}
+
+// searchName is the binary search of name among the names [lo, hi)
+// (nameRange). O(log(hi − lo)) name comparisons.
+func (v *view) searchName(name string, lo, hi uint64) (EntityID, bool) {
 	for lo < hi {
 		mid := lo + (hi-lo)/2
 		switch c := strings.Compare(v.nameAt(mid), name); {
@@ -719,23 +744,38 @@ func (x *Index) Lookup(name string) (EntityID, bool) {
 // names on an index larger than the caches). A range wider than a sample
 // step (names sharing a sampled key) is not touched. O(hi − lo).
 func (v *view) touchNames(lo, hi uint64) {
+	if t := v.touchNameOffs(lo, hi) + v.touchNameBytes(lo, hi); t == touchMagic { // keeps the reads; practically never true
+		touchSink.Add(1)
+	}
+}
+
+// touchNameOffs reads every cache line of the offsets of the names
+// [lo, hi] (touchNames' first round) and returns a sum of what it read.
+func (v *view) touchNameOffs(lo, hi uint64) uint64 {
 	if hi <= lo || hi-lo > nameSampleStep || hi >= uint64(len(v.nameOffs)) {
-		return
+		return 0
 	}
 	var t uint64
 	for i := lo; i <= hi; i += 8 { // 8 offsets per 64-byte line
 		t += v.nameOffs[i]
 	}
-	t += v.nameOffs[hi]
+	return t + v.nameOffs[hi]
+}
+
+// touchNameBytes reads every cache line of the bytes of the names
+// [lo, hi) (touchNames' second round) and returns a sum of what it read.
+func (v *view) touchNameBytes(lo, hi uint64) uint64 {
+	if hi <= lo || hi-lo > nameSampleStep || hi >= uint64(len(v.nameOffs)) {
+		return 0
+	}
+	var t uint64
 	s, e := v.nameOffs[lo], v.nameOffs[hi]
 	if s < e && e <= uint64(len(v.nameBytes)) {
 		for p := s; p < e; p += 64 {
 			t += uint64(v.nameBytes[p])
 		}
 	}
-	if t == touchMagic { // keeps the reads; practically never true
-		touchSink.Add(1)
-	}
+	return t
 }
 
 // touchMagic and touchSink keep touch loops' reads from being optimised

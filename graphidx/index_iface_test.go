@@ -9,6 +9,8 @@ import (
 // Compile-time checks that *Index serves the router and the scorer. They
 // live in an external test package because router imports graphidx.
 var (
-	_ router.Graph = (*graphidx.Index)(nil)
-	_ scorer.Stats = (*graphidx.Index)(nil)
+	_ router.Graph            = (*graphidx.Index)(nil)
+	_ router.RankedPrefetcher = (*graphidx.Index)(nil)
+	_ router.TwoLookuper      = (*graphidx.Index)(nil)
+	_ scorer.Stats            = (*graphidx.Index)(nil)
 )

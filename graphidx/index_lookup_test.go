@@ -14,7 +14,7 @@ import (
 // the 8-byte sample keys: many names sharing a long prefix (equal keys over
 // many samples), names shorter than 8 bytes and names with a zero byte
 // (padding ties), and for names absent from the index that fall between,
-// before and after the stored ones.
+// before and after the stored ones; and LookupTwo against Lookup.
 func TestLookupSampledMatchesScan(t *testing.T) {
 	t.Parallel()
 	cases := []struct {
@@ -67,11 +67,22 @@ func TestLookupSampledMatchesScan(t *testing.T) {
 				probes = append(probes, s+"\x00", s[:len(s)-1], s+"~")
 			}
 			probes = append(probes, "", "\xff\xff\xff\xff\xff\xff\xff\xff\xff")
-			for _, p := range probes {
+			for i, p := range probes {
 				want, found := slices.BinarySearch(names, p)
 				got, ok := ix.Lookup(p)
 				if ok != found || (ok && int(got) != want) {
 					t.Fatalf("Lookup(%q) = %d, %v; want %d, %v", p, got, ok, want, found)
+				}
+				// LookupTwo answers both names as Lookup does, whatever
+				// the other name (present, absent, the same).
+				q := probes[(i*7919+3)%len(probes)]
+				ga, oka, gb, okb := ix.LookupTwo(p, q)
+				wb, okq := ix.Lookup(q)
+				if ga != got || oka != ok || gb != wb || okb != okq {
+					t.Fatalf("LookupTwo(%q, %q) = %d, %v, %d, %v; Lookup gives %d, %v, %d, %v", p, q, ga, oka, gb, okb, got, ok, wb, okq)
+				}
+				if ga, oka, gb, okb := ix.LookupTwo(p, p); ga != got || oka != ok || gb != got || okb != ok {
+					t.Fatalf("LookupTwo(%q, %q) = %d, %v, %d, %v; Lookup gives %d, %v", p, p, ga, oka, gb, okb, got, ok)
 				}
 			}
 		})

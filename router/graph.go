@@ -20,7 +20,11 @@ import (
 // Neighbors to know). PairBatchRanked (see RankedPairBatcher), or
 // PairBatchHinted with RankedPairHints (see HintedPairBatcher), lets the
 // joins read the edges they reached through ranked lists without a binary
-// search; a wrapper should forward them too. A third, AppendName (see NameAppender), spares the
+// search; a wrapper should forward them too, and PrefetchRankedOffsets
+// with PrefetchRankedHeads (see RankedPrefetcher), which let the first
+// layers' ranked lists load while the direct estimate and the one-bridge
+// phase run, and LookupTwo (see TwoLookuper), which looks a query's two
+// names up with overlapping cache misses. A third, AppendName (see NameAppender), spares the
 // per-bridge copy that Name makes. A fourth, Marginal (scorer.Marginals),
 // gives the Bayes model the target's marginal counts, toward which it
 // shrinks the direct estimate of a pair seen rarely or never; a wrapper
@@ -56,4 +60,13 @@ type Graph interface {
 // should forward the method.
 type NameAppender interface {
 	AppendName(dst []byte, id graphidx.EntityID) []byte
+}
+
+// TwoLookuper is an optional interface of a Graph: LookupTwo(a, b) returns
+// what Lookup(a) and Lookup(b) return, in less time (*graphidx.Index reads
+// both names' cache lines together, so that their misses overlap). The
+// router looks a query's two endpoints up with it. A wrapper around an
+// Index should forward it.
+type TwoLookuper interface {
+	LookupTwo(a, b string) (ida graphidx.EntityID, oka bool, idb graphidx.EntityID, okb bool)
 }

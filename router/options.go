@@ -181,6 +181,12 @@ type draft struct {
 type searchHooks struct {
 	noLayerPruning bool   // liveNodes never prunes
 	layerPruned    func() // called when liveNodes prunes
+	// alt selects the alternative code path of a one-process A/B
+	// comparison (TestSearchAB): where a round of speed work keeps the
+	// code it replaces, that code runs when alt is set (scratch.alt), so
+	// that both can be timed and compared decision by decision in one
+	// process on one index. Production routers never set it.
+	alt bool
 }
 
 // Option configures a Router (New, Reconfigure): each option sets fields of

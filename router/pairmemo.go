@@ -322,6 +322,18 @@ type RankedPairBatcher interface {
 	PairBatchRanked(a, b []graphidx.EntityID, entry []uint32, out []graphidx.PairStats, ok []bool)
 }
 
+// RankedPrefetcher is an optional interface of a Graph: hints that the
+// ranked lists of some entities will soon be read, so that their cache
+// misses overlap the work before (*graphidx.Index implements it with
+// prefetch instructions). PrefetchRankedOffsets starts loading what
+// RankedNeighbors(id) reads to find each list; PrefetchRankedHeads the
+// first n entries of each list. Neither may change any answer of the
+// graph. A wrapper around an Index should forward both.
+type RankedPrefetcher interface {
+	PrefetchRankedOffsets(ids []graphidx.EntityID)
+	PrefetchRankedHeads(ids []graphidx.EntityID, n int)
+}
+
 // want queues the unordered pair {a, b} for the next fetch unless the
 // memo already has it or the queue holds sc.pendMax pairs.
 // A pair with s or t on one side is named by its entry in that endpoint's
@@ -461,15 +473,12 @@ func (sc *scratch) fetch() {
 	default:
 		sc.pb.PairBatch(sc.pend.a, sc.pend.b, ps, ok)
 	}
-	// Touch every table first: independent loads whose cache misses
-	// overlap, instead of one miss per EdgeCost later.
-	var touch uint32
-	for i := range ps {
-		if ok[i] {
-			touch += ps[i].Count(0, 0)
-		}
-	}
-	sc.touched += touch
+	// Start loading every table first (prefetch instructions: the memo
+	// is filled meanwhile), instead of one cache miss per EdgeCost later.
+	// Loads that waited for the tables here instead cost 0.4–0.5 µs per
+	// decision more on the 1M-entity benchmark index (docs/SEARCH.md,
+	// eighth round).
+	graphidx.PrefetchTables(ps, ok)
 	for i, a := range sc.pend.a {
 		b, p := sc.pend.b[i], ps[i]
 		if a > b { // the memo holds the (lo, hi) orientation

@@ -36,6 +36,8 @@ type handle struct {
 	pb   PairBatcher       // g's batch look-up, or nil
 	hp   HintedPairBatcher // g's hinted batch look-up, or nil
 	rb   RankedPairBatcher // g's ranked batch look-up, or nil
+	rpf  RankedPrefetcher  // g's ranked-list prefetch, or nil
+	l2   TwoLookuper       // g's two-name look-up, or nil
 	na   NameAppender      // g's name append, or nil
 	rp   int               // g's RankPrefix, or 0
 	seq  uint64
@@ -116,6 +118,8 @@ func (r *Router) newHandle(g Graph) *handle {
 	h.pb, _ = g.(PairBatcher)
 	h.hp, _ = g.(HintedPairBatcher)
 	h.rb, _ = g.(RankedPairBatcher)
+	h.rpf, _ = g.(RankedPrefetcher)
+	h.l2, _ = g.(TwoLookuper)
 	h.na, _ = g.(NameAppender)
 	h.presence = scorer.PresenceOnly(g)
 	if p, ok := g.(interface{ RankPrefix() int }); ok {
@@ -278,8 +282,14 @@ func (r *Router) Decide(ctx context.Context, q Query) (Decision, error) {
 // compute resolves the query and runs the search on the acquired handle.
 func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query) (core, bool, *Decision, error) {
 	g := h.g
-	s, okS := g.Lookup(q.From)
-	t, okT := g.Lookup(q.To)
+	var s, t graphidx.EntityID
+	var okS, okT bool
+	if h.l2 != nil {
+		s, okS, t, okT = h.l2.LookupTwo(q.From, q.To)
+	} else {
+		s, okS = g.Lookup(q.From)
+		t, okT = g.Lookup(q.To)
+	}
 	if !okS || !okT {
 		name := q.From
 		if okS {
@@ -307,9 +317,12 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	model := st.modelFor(h)
 	sc.g, sc.model, sc.st, sc.s, sc.t, sc.pb, sc.hp, sc.rb, sc.rankPrefix = g, model, st, s, t, h.pb, h.hp, h.rb, h.rp
 	sc.hb = model.HopBias()
+	sc.alt = st.hooks != nil && st.hooks.alt
+	sc.rpf = h.rpf
 	sc.bud = budget{left: st.budget, nextCheck: deadlinePoll, done: ctx.Done()}
 	sc.u = u
 	sc.endLists()
+	sc.prefetchLayerOffsets()
 
 	dir, err := model.Direct(sc.ws, sc, s, u, t)
 	if err != nil {

@@ -299,6 +299,7 @@ type scratch struct {
 	pb      PairBatcher       // the graph's batch look-up, or nil
 	hp      HintedPairBatcher // the graph's hinted batch look-up, or nil
 	rb      RankedPairBatcher // the graph's ranked batch look-up, or nil
+	rpf     RankedPrefetcher  // the graph's ranked-list prefetch, or nil
 	pend    struct {          // pairs queued for fetch
 		a, b []graphidx.EntityID // the pairs, owner first when ent names an entry of its ranked list
 		ent  []uint32            // ranked-list entries (RankedPairBatcher), graphidx.NoPairHint when none
@@ -326,7 +327,10 @@ type scratch struct {
 	// rankPrefix is the graph's RankPrefix (ranked lists shorter than it
 	// are whole), or 0 when unknown.
 	rankPrefix int
-	touched    uint32 // sink of fetch's table touches
+	touched    uint32 // sink of the touch loops' reads (layer2, touchLayerLists)
+	// alt runs the alternative code path kept for a one-process A/B
+	// comparison (searchHooks.alt; tests only).
+	alt bool
 
 	// per call
 	u      int
@@ -354,7 +358,7 @@ func newScratch() *scratch {
 }
 
 func (sc *scratch) reset() {
-	sc.g, sc.model, sc.st, sc.pb, sc.hp, sc.rb = nil, nil, nil, nil, nil, nil
+	sc.g, sc.model, sc.st, sc.pb, sc.hp, sc.rb, sc.rpf = nil, nil, nil, nil, nil, nil, nil
 	sc.h1 = [2][]uint32{}
 	for side := range sc.rks { // drop references into the index
 		clear(sc.rks[side][:cap(sc.rks[side])])
@@ -901,12 +905,25 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 // benchmark index: first and second layers −0.85 and −1.1 µs, the one-bridge
 // phase +1.4 µs, about −1.5 µs per decision. An index of fewer than
 // touchMinEntities entities has its offsets (8 bytes per entity) in cache
-// and is left alone. It charges nothing and changes no decision. O(B).
+// and is left alone. With a RankedPrefetcher (the index) it reads the
+// offsets (which prefetchLayerOffsets started loading before the direct
+// estimate) and only starts loading the lists' heads, the first f+2 entries
+// that layer2 reads, without waiting for them: they arrive while the
+// one-bridge phase runs (on the 1M-entity benchmark index −0.64 µs per
+// decision, docs/SEARCH.md, eighth round). It charges nothing and changes
+// no decision. O(B).
 func (sc *scratch) touchLayerLists() {
 	if sc.st.maxBridges < 2 || sc.g.NumEntities() < touchMinEntities {
 		return
 	}
 	n := sc.st.beam + 2
+	if sc.rpf != nil {
+		for _, e := range [2]graphidx.EntityID{sc.s, sc.t} {
+			rk := sc.g.RankedNeighbors(e)
+			sc.rpf.PrefetchRankedHeads(rk[:min(len(rk), n)], sc.st.fanOut+2)
+		}
+		return
+	}
 	var touch int
 	for _, e := range [2]graphidx.EntityID{sc.s, sc.t} {
 		rk := sc.g.RankedNeighbors(e)
@@ -915,6 +932,23 @@ func (sc *scratch) touchLayerLists() {
 		}
 	}
 	sc.touched += uint32(touch)
+}
+
+// prefetchLayerOffsets starts loading the ranked-list offsets of the
+// entities the first layers will hold (the heads of s's and t's ranked
+// lists, B+2 of each) before the direct estimate, without waiting for
+// them (RankedPrefetcher), so that they arrive while the direct estimate
+// runs; touchLayerLists then finds them in cache. Same conditions as
+// touchLayerLists. It changes no decision. O(B).
+func (sc *scratch) prefetchLayerOffsets() {
+	if sc.rpf == nil || sc.st.maxBridges < 2 || sc.g.NumEntities() < touchMinEntities {
+		return
+	}
+	n := sc.st.beam + 2
+	for _, e := range [2]graphidx.EntityID{sc.s, sc.t} {
+		rk := sc.g.RankedNeighbors(e)
+		sc.rpf.PrefetchRankedOffsets(rk[:min(len(rk), n)])
+	}
 }
 
 // touchMinEntities is the smallest index touchLayerLists reads ahead in:

@@ -681,7 +681,8 @@ func newRouter(g router.Graph, model scorer.Model, b Bounds, cache int) (*router
 
 // noClose keeps the shared index open when a router retires it. It
 // forwards the optional methods the router uses: the batch pair look-ups
-// (router.PairBatcher, router.HintedPairBatcher, router.RankedPairBatcher), RankPrefix, AppendName
+// (router.PairBatcher, router.HintedPairBatcher, router.RankedPairBatcher),
+// the ranked-list prefetch (router.RankedPrefetcher), RankPrefix, AppendName
 // (router.NameAppender) and Marginal (scorer.Marginals), so that the timed
 // router decides exactly as one opened on the index itself
 // (TestBenchRouterDecidesAsIndex).
@@ -745,6 +746,33 @@ func (n noClose) PairBatchRanked(a, b []graphidx.EntityID, entry []uint32, out [
 		return
 	}
 	n.PairBatch(a, b, out, ok)
+}
+
+// PrefetchRankedOffsets forwards to the graph's (router.RankedPrefetcher),
+// or does nothing (a hint).
+func (n noClose) PrefetchRankedOffsets(ids []graphidx.EntityID) {
+	if rp, has := n.Graph.(router.RankedPrefetcher); has {
+		rp.PrefetchRankedOffsets(ids)
+	}
+}
+
+// PrefetchRankedHeads forwards to the graph's (router.RankedPrefetcher),
+// or does nothing (a hint).
+func (n noClose) PrefetchRankedHeads(ids []graphidx.EntityID, k int) {
+	if rp, has := n.Graph.(router.RankedPrefetcher); has {
+		rp.PrefetchRankedHeads(ids, k)
+	}
+}
+
+// LookupTwo forwards to the graph's LookupTwo (router.TwoLookuper), or
+// looks the names up one after the other.
+func (n noClose) LookupTwo(a, b string) (graphidx.EntityID, bool, graphidx.EntityID, bool) {
+	if l2, has := n.Graph.(router.TwoLookuper); has {
+		return l2.LookupTwo(a, b)
+	}
+	ia, oka := n.Graph.Lookup(a)
+	ib, okb := n.Graph.Lookup(b)
+	return ia, oka, ib, okb
 }
 
 // AppendName forwards to the graph's AppendName (router.NameAppender), or

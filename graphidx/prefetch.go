@@ -1,0 +1,92 @@
+package graphidx
+
+import "unsafe"
+
+// prefetchChunk is the number of addresses one prefetchAll call takes.
+const prefetchChunk = 64
+
+// PrefetchRankedOffsets tells the index that RankedNeighbors will soon be
+// called for each of ids: it starts loading their ranked-list offsets into
+// the CPU cache and returns without waiting for them, so that the loads
+// overlap whatever the caller does next (on amd64 and arm64 a prefetch
+// instruction per id; elsewhere nothing). It reads no index data, changes
+// no answer and never fails; ids out of range are skipped. O(len(ids)).
+func (x *Index) PrefetchRankedOffsets(ids []EntityID) {
+	if !canPrefetch {
+		return
+	}
+	v := x.v.Load()
+	var addr [prefetchChunk]uintptr
+	n := 0
+	for _, id := range ids {
+		if uint64(id)+1 >= uint64(len(v.rankOffs)) {
+			continue
+		}
+		addr[n] = uintptr(unsafe.Pointer(&v.rankOffs[id]))
+		if n++; n == prefetchChunk {
+			prefetchAll(&addr[0], n)
+			n = 0
+		}
+	}
+	if n > 0 {
+		prefetchAll(&addr[0], n)
+	}
+}
+
+// PrefetchRankedHeads tells the index that the first n entries of
+// RankedNeighbors(id) will soon be read for each of ids: it reads their
+// offsets (best after PrefetchRankedOffsets, when they are in cache) and
+// starts loading the cache lines of the first and the n-th entry of each
+// list without waiting for them (amd64 and arm64; elsewhere nothing). It
+// changes no answer and never fails; ids out of range are skipped.
+// O(len(ids)).
+func (x *Index) PrefetchRankedHeads(ids []EntityID, n int) {
+	if !canPrefetch || n <= 0 {
+		return
+	}
+	v := x.v.Load()
+	var addr [prefetchChunk]uintptr
+	k := 0
+	for _, id := range ids {
+		s, e, ok := span(v.rankOffs, uint64(id), len(v.rank))
+		if !ok || s == e {
+			continue
+		}
+		addr[k] = uintptr(unsafe.Pointer(&v.rank[s]))
+		addr[k+1] = uintptr(unsafe.Pointer(&v.rank[min(e, s+n)-1]))
+		if k += 2; k == prefetchChunk {
+			prefetchAll(&addr[0], k)
+			k = 0
+		}
+	}
+	if k > 0 {
+		prefetchAll(&addr[0], k)
+	}
+}
+
+// PrefetchTables starts loading the count table of each ps[i] with ok[i]
+// (ok at least as long as ps) into the CPU cache, without waiting for it
+// (amd64 and arm64; elsewhere nothing): for a caller that has just looked
+// the pairs up (PairBatch and the like) and will read their counts after
+// other work. It changes no answer and never fails. O(len(ps)).
+func PrefetchTables(ps []PairStats, ok []bool) {
+	if !canPrefetch {
+		return
+	}
+	ok = ok[:len(ps)]
+	var addr [prefetchChunk]uintptr
+	k := 0
+	for i := range ps {
+		if !ok[i] || len(ps[i].counts) == 0 {
+			continue
+		}
+		addr[k] = uintptr(unsafe.Pointer(&ps[i].counts[0]))
+		if k++; k == prefetchChunk {
+			prefetchAll(&addr[0], k)
+			k = 0
+		}
+	}
+	if k > 0 {
+		prefetchAll(&addr[0], k)
+	}
+}
