@@ -43,6 +43,7 @@ type evalOptions struct {
 	spread       float64
 	maxBridges   int
 	beam         int
+	fanOut       int
 	candidates   int
 	gainTau      float64
 	workers      int
@@ -135,6 +136,7 @@ DIR/truth.jsonl (the exact answers by id).`,
 	f.Float64Var(&o.influence, "influence", scorer.DefaultInfluence, "κ: weight of the influence bound on an unobserved pair's error (0: off)")
 	f.IntVar(&o.maxBridges, "max-bridges", router.DefaultMaxBridges, "H: most bridges in a chain (1-3)")
 	f.IntVar(&o.beam, "beam", router.DefaultBeam, "B: router beam width")
+	f.IntVar(&o.fanOut, "fan-out", router.DefaultFanOut, "f: second-layer neighbours per first-layer node")
 	f.IntVar(&o.candidates, "max-candidates", router.DefaultMaxCandidates, "k: chains the router scores exactly")
 	f.Float64Var(&o.gainTau, "gain-threshold", router.DefaultGainThreshold, "τ_gain of the router")
 	f.BoolVar(&o.parallel, "parallel-bridges", false, "let the router's parallel answer through two bridges compete (docs/QUALITY.md §4e)")
@@ -210,12 +212,15 @@ func runEval(cmd *cobra.Command, o evalOptions) error {
 			scorer.WithPriorStrength(o.prior), scorer.WithUnseenSpread(o.spread), scorer.WithSeparation(o.separation), scorer.WithNoiseK(o.noiseK), scorer.WithInfluence(o.influence),
 		},
 		RouterOptions: []router.Option{
-			router.WithBeam(o.beam), router.WithMaxCandidates(o.candidates), router.WithGainThreshold(o.gainTau),
+			router.WithBeam(o.beam), router.WithFanOut(o.fanOut), router.WithMaxCandidates(o.candidates), router.WithGainThreshold(o.gainTau),
 			router.WithParallelBridges(o.parallel),
 		},
 	}
 	if o.maxBridges < 1 || o.maxBridges > router.MaxBridgesLimit {
 		return fmt.Errorf("--max-bridges: must be in 1..%d, got %d", router.MaxBridgesLimit, o.maxBridges)
+	}
+	if o.fanOut < 1 || o.fanOut > 1<<20 { // router.Config's range for fan_out, 0 (the default) left out
+		return fmt.Errorf("--fan-out: must be in 1..%d, got %d", 1<<20, o.fanOut)
 	}
 
 	if o.fit {

@@ -144,10 +144,46 @@ func TestEvalFlagErrors(t *testing.T) {
 		{"eval", "--worlds", "0"},
 		{"eval", "--fit", "--seeds", "1,2", "--fit-seeds", "2,3"},
 		{"eval", "--max-bridges", "4"},
+		{"eval", "--fan-out", "0"},
+		{"eval", "--fan-out", "-3"},
+		{"eval", "--fan-out", "1048577"},
 	} {
-		if _, _, err := evalCLI(t, args...); err == nil {
+		_, _, err := evalCLI(t, args...)
+		if err == nil {
 			t.Errorf("%v: no error", args)
+			continue
 		}
+		if args[1] == "--fan-out" && !strings.Contains(err.Error(), "--fan-out") {
+			t.Errorf("%v: error %q does not name the flag", args, err)
+		}
+	}
+}
+
+// TestEvalFanOut: --fan-out reaches the router. On this small world
+// (seed 3) a second layer of one neighbour per first-layer node misses
+// the chains that two neighbours find, so the held-out routed MSE is
+// larger at --fan-out 1 than at 2, and 2 equals the default.
+func TestEvalFanOut(t *testing.T) {
+	t.Parallel()
+	small := []string{"eval", "--json", "--vars", "30", "--edges", "30", "--held-out", "8", "--contexts", "5000", "--seed", "3"}
+	routed := func(extra ...string) float64 {
+		out, _, err := evalCLI(t, append(small, extra...)...)
+		if err != nil {
+			t.Fatalf("eval %v: %v", extra, err)
+		}
+		var sum struct {
+			Worlds []struct {
+				HeldOut struct{ Routed float64 } `json:"heldout"`
+			} `json:"worlds"`
+		}
+		if err := json.Unmarshal([]byte(out), &sum); err != nil || len(sum.Worlds) != 1 {
+			t.Fatalf("eval JSON (%v): %.300s", err, out)
+		}
+		return sum.Worlds[0].HeldOut.Routed
+	}
+	one, two, def := routed("--fan-out", "1"), routed("--fan-out", "2"), routed()
+	if !(one > two) || two != def {
+		t.Errorf("held-out routed MSE: --fan-out 1 %.6g, 2 %.6g, default %.6g; want 1 > 2 = default", one, two, def)
 	}
 }
 
