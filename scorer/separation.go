@@ -129,15 +129,22 @@ func (ws *Workspace) separationBias(st Stats, u, m int, alpha float64) (float64,
 				return 0, err
 			}
 			// Look-ups in order of how likely they are to fail (prev and a
-			// neighbour of b are the farthest apart), stopping at the first.
-			psPW, ok, err := pair(st, prev, w, kp, kw)
-			if err != nil || !ok {
-				if err != nil {
-					return 0, err
+			// neighbour of b are the farthest apart), stopping at the first;
+			// the witness needs all three, so the order changes only which
+			// are read. For the last bridge of a longer chain next is the
+			// target, and (w, next) comes first: it fails about as often,
+			// and a pair of a query's end is the one the statistics most
+			// likely answer without a look-up (the router keeps the ends'
+			// neighbour lists), where prev is a bridge.
+			var psPW, psWN graphidx.PairStats
+			var ok bool
+			if k == m && m > 1 {
+				if psWN, ok, err = pair(st, w, next, kw, kn); err == nil && ok {
+					psPW, ok, err = pair(st, prev, w, kp, kw)
 				}
-				continue
+			} else if psPW, ok, err = pair(st, prev, w, kp, kw); err == nil && ok {
+				psWN, ok, err = pair(st, w, next, kw, kn)
 			}
-			psWN, ok, err := pair(st, w, next, kw, kn)
 			if err != nil || !ok {
 				if err != nil {
 					return 0, err
