@@ -628,9 +628,9 @@ func TestUnseenRoutesAsia(t *testing.T) {
 // pair tables (b_i, t) and the dependence of the bridges through their
 // separator (Cloudy in both directions: P(b2 | b1) = Σ_c P(c | b1) P(b2 | c)),
 // lands within 0.025 of the exact answer on all four queries, where the
-// router's one-bridge answers realise 0.0025–0.009 per query. The router
-// has no answer through two bridges at once; this is the measure of what
-// one would gain.
+// router's one-bridge answers realise 0.0025–0.009 per query. This is the
+// measure of what the parallel answer (router option WithParallelBridges,
+// docs/QUALITY.md §4e; TestParallelBridgesExact) gains on this pair.
 func TestSprinklerNeedsTwoBridges(t *testing.T) {
 	t.Parallel()
 	w, err := world.Sprinkler()
