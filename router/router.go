@@ -413,7 +413,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	// (parallel.go) competes with the best chain on the same score.
 	par := false
 	if bestEst.ok {
-		p, e, score, err := sc.parallel(bestEst.score, bestC, sc.dist)
+		p, e, score, err := sc.parallel(bestEst.score, bestEst.err, bestC, sc.dist)
 		if err != nil {
 			return core{}, false, nil, fmt.Errorf("router: parallel estimate %q → %q: %w", q.From, q.To, err)
 		}
