@@ -52,7 +52,7 @@ import (
 //	  "exploration_salt": "",       // separates exploration from arm draws
 //	  "arms": [{"arm": "routed", "weight": 0.9}, {"arm": "direct-only", "weight": 0.1}],
 //	  "hash_key": "",               // 32 hex digits (16-byte SipHash key), "" = DefaultHashKey
-//	  "parallel_bridges": false     // bayes: let the parallel answer through two bridges compete (docs/QUALITY.md §4e)
+//	  "parallel_bridges": true      // bayes: let the parallel answer through two bridges compete (docs/QUALITY.md §4e)
 //	}
 //
 // (JSON has no comments; they are annotations here.) The Bayes model's
@@ -94,9 +94,9 @@ type Config struct {
 	Arms            []ArmWeight `json:"arms"`
 	HashKey         string      `json:"hash_key"`
 	// ParallelBridges lets the parallel answer (two bridges read side by
-	// side, ChainResult.Parallel) compete with the chains. Off by default:
-	// on the published networks it does not measure better (docs/QUALITY.md §4e).
-	ParallelBridges bool `json:"parallel_bridges,omitempty"`
+	// side, ChainResult.Parallel) compete with the chains
+	// (DefaultParallelBridges; docs/QUALITY.md §4e).
+	ParallelBridges bool `json:"parallel_bridges"`
 }
 
 // DefaultConfig returns the configuration New uses without options. The
@@ -123,6 +123,7 @@ func DefaultConfig() Config {
 		Fallback:        FallbackError.String(),
 		CacheSize:       DefaultCacheSize,
 		ExpansionBudget: DefaultExpansionBudget,
+		ParallelBridges: DefaultParallelBridges,
 	}
 }
 

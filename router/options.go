@@ -31,6 +31,12 @@ const (
 	// MSE on the evaluation worlds, while each exact score costs about
 	// 1.5 µs on the 1M-entity benchmark index (docs/SEARCH.md).
 	DefaultMaxCandidates = 4
+	// DefaultParallelBridges lets the parallel answer through two bridges
+	// compete with the chains (docs/QUALITY.md §4e): where no table tells
+	// which of two structures the pair tables fit, it answers their
+	// midpoint, which the published networks and the fit worlds measure
+	// better than either answer alone.
+	DefaultParallelBridges = true
 	// DefaultCacheSize is the number of cached decisions.
 	DefaultCacheSize = 1 << 16
 	// DefaultExpansionBudget bounds the adjacency entries a search may touch
@@ -335,7 +341,7 @@ func WithExploration(epsilon float64, salt string) Option {
 // WithParallelBridges sets "parallel_bridges": whether the parallel answer
 // through the two strongest one-bridge candidates (ChainResult.Parallel,
 // docs/QUALITY.md §4e) competes with the chains on estimated error. Default
-// false. It needs a model that implements scorer.ParallelBridger (the
+// true (DefaultParallelBridges). It needs a model that implements scorer.ParallelBridger (the
 // Bayes model); with another model it has no effect.
 func WithParallelBridges(on bool) Option {
 	return optionFunc(func(d *draft) { d.cfg.ParallelBridges = on })

@@ -1,8 +1,6 @@
 package router
 
 import (
-	"math"
-
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/scorer"
 )
@@ -29,8 +27,8 @@ var parCharge = true
 // the heap and, when two candidates exist, 4–5 pair look-ups (memoised in
 // the decision) and the model's estimate (8.3 µs for binary entities,
 // scorer.BenchmarkParallel).
-func (sc *scratch) parallel(best float64, bestC cand, bestDist []float64) (ok bool, errP, score float64, fail error) {
-	if !sc.st.cfg.ParallelBridges {
+func (sc *scratch) parallel(best, bestErr float64, bestC cand, bestDist []float64) (ok bool, errP, score float64, fail error) {
+	if !sc.st.cfg.ParallelBridges || sc.st.cfg.MaxBridges < 2 {
 		return false, 0, 0, nil
 	}
 	pm, isPar := sc.model.(scorer.ParallelBridger)
@@ -77,21 +75,30 @@ func (sc *scratch) parallel(best float64, bestC cand, bestDist []float64) (ok bo
 	if gm, ok := sc.model.(scorer.GainMarginer); ok {
 		margin = gm.GainMargin(est.Var, sc.refVar)
 	}
-	score = sc.scoreOf(sc.dirErr-errP-margin, 2)
-	if parCharge && bestC.m == 1 && (bestC.b[0] == b1 || bestC.b[0] == b2) && !sc.checked(b1, b2) {
-		// The best chain is one of the two single-bridge answers; the part
-		// of its distance from the parallel answer that the latter's own
-		// error does not explain is the route it misses.
-		d := math.Sqrt(scorer.ReferenceBias(est.Dist, bestDist)) - math.Sqrt(est.Err)
-		if d > 0 {
-			best -= sc.scoreOf(d*d, 0) - sc.scoreOf(0, 0)
-		}
+	blend := parCharge && bestC.m == 1 && (bestC.b[0] == b1 || bestC.b[0] == b2) && !sc.checked(b1, b2)
+	if blend {
+		// The best chain is one of the two single-bridge answers and no
+		// table tested it: the pair tables fit the chain's structure (the
+		// other bridge a common effect) and the pair's (the endpoint a
+		// common effect) alike (docs/QUALITY.md §4e). With both held
+		// equally likely, either answer alone expects d²/2 beyond its own
+		// error, d² = ‖p̂_chain − p̂_par‖², and their midpoint d²/4.
+		d2 := scorer.ReferenceBias(est.Dist, bestDist)
+		own := (errP + bestErr) / 2
+		errP = d2/4 + own
+		best -= sc.scoreOf(d2/2+own-bestErr, 0) - sc.scoreOf(0, 0)
 	}
+	score = sc.scoreOf(sc.dirErr-errP-margin, 2)
 	if !(score > best) {
 		return false, 0, 0, nil
 	}
 	sc.parCand = cand{b: [3]graphidx.EntityID{b1, b2}, m: 2}
 	sc.parDist = append(sc.parDist[:0], est.Dist...)
+	if blend {
+		for v, p := range bestDist {
+			sc.parDist[v] = (sc.parDist[v] + p) / 2
+		}
+	}
 	sc.parSup = est.Support
 	return true, errP, score, nil
 }

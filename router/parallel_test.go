@@ -91,16 +91,18 @@ func sprinklerGraphWitness(n float64, witness bool) (*memGraph, float64) {
 
 // TestParallelDecision: on the sprinkler network's tables (10⁶ contexts),
 // P(wetgrass | cloudy = true) has two one-bridge chains, neither of which
-// separates; with WithParallelBridges the router answers in parallel
-// through both, within 0.02 of the exact 0.7452 (the better single chain
-// is off by 0.063), and the JSON view and the bridge distributions say
-// so (the plan: plan.TestParallelPlan). Without the option, or with a
-// witness for the one-bridge chain's separation check, the decision is a
-// one-bridge chain. Without the option the decision is a one-bridge chain.
+// separates. No other table tests the better one, and the four edge tables
+// fit either structure (docs/QUALITY.md §4e), so with WithParallelBridges
+// the router answers through both bridges with the midpoint of the parallel
+// estimate and that chain: nearer the exact 0.7452 than the chain (off by
+// 0.063), with an Err of at least the squared half-distance between the
+// two; the JSON view and the bridge distributions say so (the plan:
+// plan.TestParallelPlan). Without the option, or with a witness for the
+// one-bridge chain's separation check, the decision is a one-bridge chain.
 func TestParallelDecision(t *testing.T) {
 	g, exact := sprinklerGraph(1e6)
 	q := Query{From: "cloudy", Value: "true", To: "wetgrass"}
-	off, err := New(g)
+	off, err := New(g, WithParallelBridges(false))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -125,8 +127,13 @@ func TestParallelDecision(t *testing.T) {
 	got := d.Estimate[1]
 	t.Logf("P(wetgrass = true | cloudy = true) = %.4f: parallel %.4f (Err %.3g) through %v; one-bridge chain %.4f through %v",
 		exact, got, d.Err, d.Bridges, d0.Chain.Estimate[1], d0.Chain.Bridges)
-	if math.Abs(got-exact) > 0.02 {
-		t.Errorf("parallel estimate %.4f, exact %.4f", got, exact)
+	chain := d0.Chain.Estimate[1]
+	if math.Abs(got-exact) > 0.035 || math.Abs(got-exact) >= math.Abs(chain-exact)/2+0.005 {
+		t.Errorf("parallel estimate %.4f, exact %.4f, one-bridge chain %.4f: want well within half the chain's error", got, exact, chain)
+	}
+	// Binary target: d² = Σ_v (p̂_par − p̂_chain)² = 2·(2·(got − chain))².
+	if half := 2 * (got - chain) * (got - chain); d.Err < half {
+		t.Errorf("Err %.4g below the squared half-distance %.4g of the two answers", d.Err, half)
 	}
 	if math.Abs(d0.Chain.Estimate[1]-exact) < 0.05 {
 		t.Errorf("one-bridge chain %.4f within 0.05 of %.4f: the fixture no longer needs two bridges", d0.Chain.Estimate[1], exact)

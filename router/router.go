@@ -414,7 +414,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	// (parallel.go) competes with the best chain on the same score.
 	par := false
 	if bestEst.ok {
-		p, e, score, err := sc.parallel(bestEst.score, bestC, sc.dist)
+		p, e, score, err := sc.parallel(bestEst.score, bestEst.err, bestC, sc.dist)
 		if err != nil {
 			return core{}, false, nil, fmt.Errorf("router: parallel estimate %q → %q: %w", q.From, q.To, err)
 		}
@@ -452,39 +452,31 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 		cut:        res.cut,
 		generation: h.gen,
 	}
-	if bestEst.ok && par {
-		*rb.chain = ChainResult{
-			Bridges:    rb.bridges,
-			Estimate:   rb.chainEst,
-			Err:        bestEst.err,
-			MinSupport: sc.parSup,
-			Parallel:   true,
-		}
-		c.chain = rb.chain
-		c.gain = dir.Err - bestEst.err
-		c.score = bestEst.score
-	} else if bestEst.ok {
-		cd := bestC
-		minSup := ^uint64(0)
-		prev := s
-		for i := 0; i <= int(cd.m); i++ {
-			b := t
-			if i < int(cd.m) {
-				b = cd.b[i]
+	if bestEst.ok {
+		minSup := sc.parSup
+		if !par {
+			minSup = ^uint64(0)
+			prev := s
+			for i := 0; i <= int(bestC.m); i++ {
+				b := t
+				if i < int(bestC.m) {
+					b = bestC.b[i]
+				}
+				ps, ok := sc.pairStats(prev, b)
+				if !ok {
+					minSup = 0
+				} else if sp := ps.Support(); sp < minSup {
+					minSup = sp
+				}
+				prev = b
 			}
-			ps, ok := sc.pairStats(prev, b)
-			if !ok {
-				minSup = 0
-			} else if sp := ps.Support(); sp < minSup {
-				minSup = sp
-			}
-			prev = b
 		}
 		*rb.chain = ChainResult{
 			Bridges:    rb.bridges,
 			Estimate:   rb.chainEst,
 			Err:        bestEst.err,
 			MinSupport: minSup,
+			Parallel:   par,
 		}
 		c.chain = rb.chain
 		c.gain = dir.Err - bestEst.err

@@ -127,9 +127,9 @@ func TestSearchMatchesBruteForce(t *testing.T) {
 			p := []float64{0.2, 0.35, 0.5}[seed%3]
 			g := randomGraph(seed, n, p)
 			for _, H := range []int{1, 2, 3} {
-				loose := mustNew(t, g, WithModel(model), WithMaxBridges(H), WithBeam(1<<10), WithMaxCandidates(1<<16), WithExpansionBudget(1<<30), WithCacheSize(0))
+				loose := mustNew(t, g, WithModel(model), WithMaxBridges(H), WithBeam(1<<10), WithMaxCandidates(1<<16), WithExpansionBudget(1<<30), WithCacheSize(0), WithParallelBridges(false))
 				B := 1 + int(seed%4)
-				tight := mustNew(t, g, WithModel(model), WithMaxBridges(H), WithBeam(B), WithMaxCandidates(1+int(seed%5)), WithCacheSize(0))
+				tight := mustNew(t, g, WithModel(model), WithMaxBridges(H), WithBeam(B), WithMaxCandidates(1+int(seed%5)), WithCacheSize(0), WithParallelBridges(false))
 				for s := 0; s < n; s++ {
 					for tt := 0; tt < n; tt++ {
 						if s == tt || (s+tt+H)%3 != 0 {

@@ -23,9 +23,9 @@ type Bounds struct {
 	MaxCandidates int     `json:"max_candidates"`
 	Budget        int     `json:"expansion_budget"`
 	GainThreshold float64 `json:"gain_threshold"`
-	// Parallel turns on the router's parallel answer
+	// Parallel lets the router's parallel answer compete
 	// (router.WithParallelBridges); the baselines have none.
-	Parallel bool `json:"parallel_bridges,omitempty"`
+	Parallel bool `json:"parallel_bridges"`
 }
 
 // DefaultBounds returns the router's defaults (H, B, f, k, budget and τ:
@@ -38,6 +38,7 @@ func DefaultBounds() Bounds {
 		MaxCandidates: router.DefaultMaxCandidates,
 		Budget:        router.DefaultExpansionBudget,
 		GainThreshold: router.DefaultGainThreshold,
+		Parallel:      router.DefaultParallelBridges,
 	}
 }
 
@@ -59,9 +60,7 @@ func (b Bounds) RouterOptions() []router.Option {
 	if b.FanOut != 0 {
 		opts = append(opts, router.WithFanOut(b.FanOut))
 	}
-	if b.Parallel {
-		opts = append(opts, router.WithParallelBridges(true))
-	}
+	opts = append(opts, router.WithParallelBridges(b.Parallel))
 	return opts
 }
 

@@ -95,7 +95,7 @@ CPU columns leave out time spent waiting for a core.`,
 	f.IntVar(&o.maxCandidates, "max-candidates", bench.DefaultBounds().MaxCandidates, "k, candidates scored exactly")
 	f.IntVar(&o.budget, "expansion-budget", bench.DefaultBounds().Budget, "work units one search may spend (a hub costs at most this)")
 	f.IntVar(&o.rankPrefix, "rank-prefix", graphidx.DefaultRankPrefix, "rank prefix R of the generated index")
-	f.BoolVar(&o.parallel, "parallel-bridges", false, "let the router's parallel answer through two bridges compete (docs/QUALITY.md §4e)")
+	f.BoolVar(&o.parallel, "parallel-bridges", bench.DefaultBounds().Parallel, "let the router's parallel answer through two bridges compete (docs/QUALITY.md §4e)")
 	return cmd
 }
 

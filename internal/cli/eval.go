@@ -139,7 +139,7 @@ DIR/truth.jsonl (the exact answers by id).`,
 	f.IntVar(&o.fanOut, "fan-out", router.DefaultFanOut, "f: second-layer neighbours per first-layer node")
 	f.IntVar(&o.candidates, "max-candidates", router.DefaultMaxCandidates, "k: chains the router scores exactly")
 	f.Float64Var(&o.gainTau, "gain-threshold", router.DefaultGainThreshold, "τ_gain of the router")
-	f.BoolVar(&o.parallel, "parallel-bridges", false, "let the router's parallel answer through two bridges compete (docs/QUALITY.md §4e)")
+	f.BoolVar(&o.parallel, "parallel-bridges", router.DefaultParallelBridges, "let the router's parallel answer through two bridges compete (docs/QUALITY.md §4e)")
 	workersFlag(f, &o.workers, "goroutines answering queries")
 	f.StringVar(&o.writeQueries, "write-queries", "", "keep the first world's corpus, index, queries and truth in DIR")
 	return cmd

@@ -162,10 +162,12 @@ func TestEvalFlagErrors(t *testing.T) {
 // TestEvalFanOut: --fan-out reaches the router. On this small world
 // (seed 3) a second layer of one neighbour per first-layer node misses
 // the chains that two neighbours find, so the held-out routed MSE is
-// larger at --fan-out 1 than at 2, and 2 equals the default.
+// larger at --fan-out 1 than at 2, and 2 equals the default (the parallel
+// answer off: which one-bridge candidates it reads depends on the heap the
+// wider layer fills).
 func TestEvalFanOut(t *testing.T) {
 	t.Parallel()
-	small := []string{"eval", "--json", "--vars", "30", "--edges", "30", "--held-out", "8", "--contexts", "5000", "--seed", "3"}
+	small := []string{"eval", "--json", "--vars", "30", "--edges", "30", "--held-out", "8", "--contexts", "5000", "--seed", "3", "--parallel-bridges=false"}
 	routed := func(extra ...string) float64 {
 		out, _, err := evalCLI(t, append(small, extra...)...)
 		if err != nil {
