@@ -5,6 +5,7 @@ import (
 	"slices"
 
 	"github.com/hopwise/hopwise/graphidx"
+	"github.com/hopwise/hopwise/scorer"
 )
 
 // pairMemo remembers the pair look-ups of one decision, keyed by the
@@ -68,6 +69,8 @@ type memoEntry struct {
 	full bool
 	ok   bool               // the graph has statistics for the pair
 	cost float64            // model.EdgeCost(ps), NaN until computed
+	lb   float64            // the Bayes model's signal bound of ps, when lbOK
+	lbOK bool               // lb was computed with cost (edgeCost)
 	ps   graphidx.PairStats // in (lo, hi) orientation
 }
 
@@ -489,7 +492,7 @@ func (sc *scratch) fetch() {
 		}
 		j, _ := sc.memo.find(uint64(a)<<32 | uint64(b))
 		e := &sc.memo.tab[j]
-		e.ok, e.ps, e.cost = ok[i], p, math.NaN()
+		e.ok, e.ps, e.cost, e.lbOK = ok[i], p, math.NaN(), false
 		ps[i] = graphidx.PairStats{} // drop the reference into the index
 	}
 	sc.pend.a, sc.pend.b, sc.pend.ent, sc.pend.hint = sc.pend.a[:0], sc.pend.b[:0], sc.pend.ent[:0], sc.pend.hint[:0]
@@ -562,3 +565,37 @@ func (sc *scratch) WantPair(a, b graphidx.EntityID, ent uint32) {
 // FetchPairs implements scorer.PairPrefetcher: the pairs WantPair queued
 // in one batch (fetch).
 func (sc *scratch) FetchPairs() { sc.fetch() }
+
+// edgeCost computes the edge cost of the memo entry e (e.ok) and keeps it;
+// with the Bayes model it keeps the signal bound the cost is −log of, too
+// (KnownSignalBound). O(model.EdgeCost).
+func (sc *scratch) edgeCost(e *memoEntry) float64 {
+	if sc.bayes != nil && !sc.alt {
+		e.cost, e.lb = sc.bayes.EdgeCostBound(e.ps)
+		e.lbOK = true
+		return e.cost
+	}
+	e.cost = sc.model.EdgeCost(e.ps)
+	return e.cost
+}
+
+// KnownSignalBound implements scorer.KnownSignalBounder: the signal bound
+// of the pair (a, b) that edgeCost kept in the memo, when sig is the
+// decision's model and it was computed in that orientation or the table
+// is 2×2 (whose bound is the same bit for bit either way: scorer's
+// cramersV). It looks nothing up. O(1) expected.
+func (sc *scratch) KnownSignalBound(sig *scorer.Bayes, a, b graphidx.EntityID) (float64, bool) {
+	if sig == nil || sig != sc.bayes || len(sc.memo.tab) == 0 {
+		return 0, false
+	}
+	lo, hi := min(a, b), max(a, b)
+	i, found := sc.memo.find(uint64(lo)<<32 | uint64(hi))
+	e := &sc.memo.tab[i]
+	if !found || !e.ok || !e.lbOK {
+		return 0, false
+	}
+	if a > b && (e.ps.KA != 2 || e.ps.KB != 2) {
+		return 0, false
+	}
+	return e.lb, true
+}

@@ -317,6 +317,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	model := st.modelFor(h)
 	sc.g, sc.model, sc.st, sc.s, sc.t, sc.pb, sc.hp, sc.rb, sc.rankPrefix = g, model, st, s, t, h.pb, h.hp, h.rb, h.rp
 	sc.hb = model.HopBias()
+	sc.bayes, _ = model.(*scorer.Bayes)
 	sc.alt = st.hooks != nil && st.hooks.alt
 	sc.rpf = h.rpf
 	sc.bud = budget{left: st.budget, nextCheck: deadlinePoll, done: ctx.Done()}

@@ -337,6 +337,7 @@ type scratch struct {
 	dirErr float64
 	g      Graph
 	model  scorer.Model
+	bayes  *scorer.Bayes // model, when it is the Bayes model (edgeCost)
 	st     *settings
 	s, t   graphidx.EntityID
 	hb     float64
@@ -358,7 +359,7 @@ func newScratch() *scratch {
 }
 
 func (sc *scratch) reset() {
-	sc.g, sc.model, sc.st, sc.pb, sc.hp, sc.rb, sc.rpf = nil, nil, nil, nil, nil, nil, nil
+	sc.g, sc.model, sc.bayes, sc.st, sc.pb, sc.hp, sc.rb, sc.rpf = nil, nil, nil, nil, nil, nil, nil, nil
 	sc.h1 = [2][]uint32{}
 	for side := range sc.rks { // drop references into the index
 		clear(sc.rks[side][:cap(sc.rks[side])])
@@ -392,8 +393,7 @@ func (sc *scratch) edge(a, b graphidx.EntityID) (float64, bool) {
 	if c := e.cost; c == c { // not NaN: computed before
 		return c, true
 	}
-	e.cost = sc.model.EdgeCost(e.ps)
-	return e.cost, true
+	return sc.edgeCost(e), true
 }
 
 // intersect puts a ∩ b (both ascending) into sc.hits. It reports false when
@@ -595,7 +595,7 @@ func (sc *scratch) peekCost(a, b graphidx.EntityID) (float64, bool) {
 	}
 	e := &sc.memo.tab[i]
 	if e.cost != e.cost {
-		e.cost = sc.model.EdgeCost(e.ps)
+		sc.edgeCost(e)
 	}
 	return e.cost, true
 }

@@ -76,7 +76,7 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 	var tvs, tvT [InfluenceFirst]float64
 	var seenT [InfluenceFirst]bool
 	var out [graphidx.MaxValues]float64
-	// Every pass-1 read up front, in one loop whose loads are independent
+	// Every pass-1 read up front, in loops whose loads are independent
 	// (their cache misses overlap): the neighbours' value counts and
 	// marginals, and, with a PairPrefetcher, the pairs (s, w) and (w, t).
 	// The loop below reads the same values again (mTots: each marginal's
@@ -85,19 +85,27 @@ func (b *Bayes) influenceBound(st Stats, s graphidx.EntityID, u int, t graphidx.
 	var mws [InfluenceFirst][]uint64
 	var mTots [InfluenceFirst]float64
 	pf, _ := st.(PairPrefetcher)
+	// Three loops: the value counts and the marginals' places, then the
+	// marginals' counts, then the pairs. Queueing a pair is long enough
+	// that in one loop with the reads the next neighbour's reads waited
+	// for it (docs/SEARCH.md, ninth round: 0.15–0.72 µs per decision).
 	for i, w := range first {
 		kws[i] = st.NumValues(w)
 		mws[i] = ms.Marginal(w)
+	}
+	for i := range first {
 		mTots[i] = float64(kws[i]) * b.alpha
 		for _, c := range mws[i] {
 			mTots[i] += float64(c)
 		}
-		if pf != nil && w != s {
-			pf.WantPair(s, w, graphidx.NoPairHint)
-			pf.WantPair(w, t, graphidx.NoPairHint)
-		}
 	}
 	if pf != nil {
+		for _, w := range first {
+			if w != s {
+				pf.WantPair(s, w, graphidx.NoPairHint)
+				pf.WantPair(w, t, graphidx.NoPairHint)
+			}
+		}
 		pf.FetchPairs()
 	}
 	n := 0

@@ -129,15 +129,22 @@ func (ws *Workspace) separationBias(st Stats, u, m int, alpha float64) (float64,
 				return 0, err
 			}
 			// Look-ups in order of how likely they are to fail (prev and a
-			// neighbour of b are the farthest apart), stopping at the first.
-			psPW, ok, err := pair(st, prev, w, kp, kw)
-			if err != nil || !ok {
-				if err != nil {
-					return 0, err
+			// neighbour of b are the farthest apart), stopping at the first;
+			// the witness needs all three, so the order changes only which
+			// are read. For the last bridge of a longer chain next is the
+			// target, and (w, next) comes first: it fails about as often,
+			// and a pair of a query's end is the one the statistics most
+			// likely answer without a look-up (the router keeps the ends'
+			// neighbour lists), where prev is a bridge.
+			var psPW, psWN graphidx.PairStats
+			var ok bool
+			if k == m && m > 1 {
+				if psWN, ok, err = pair(st, w, next, kw, kn); err == nil && ok {
+					psPW, ok, err = pair(st, prev, w, kp, kw)
 				}
-				continue
+			} else if psPW, ok, err = pair(st, prev, w, kp, kw); err == nil && ok {
+				psWN, ok, err = pair(st, w, next, kw, kn)
 			}
-			psWN, ok, err := pair(st, w, next, kw, kn)
 			if err != nil || !ok {
 				if err != nil {
 					return 0, err
@@ -195,7 +202,11 @@ func (ws *Workspace) separationBias(st Stats, u, m int, alpha float64) (float64,
 			if err != nil {
 				return 0, err
 			}
-			if !ok || !ws.prevWitnessMoves(psPW, y, alpha) {
+			if !ok {
+				continue
+			}
+			num, den, moves := ws.prevWitnessMoves(psPW, y, alpha)
+			if !moves {
 				continue
 			}
 			seen++
@@ -210,7 +221,7 @@ func (ws *Workspace) separationBias(st Stats, u, m int, alpha float64) (float64,
 			if err != nil {
 				return 0, err
 			}
-			worst = max(worst, ws.prevWitnessBias(psPW, psWN, psWB, okWB, y, mk, ck, k, kt, alpha))
+			worst = max(worst, ws.prevWitnessBias(psPW, psWN, psWB, okWB, y, mk, ck, k, kt, alpha, num, den))
 			ws.sepWit = append(ws.sepWit, w)
 		}
 		total += worst
@@ -343,21 +354,24 @@ func (ws *Workspace) witnessBias(wk *witness, ps graphidx.PairStats, y, z, mk, c
 // the chain claims that xray = yes raises P(bronc) to about 0.60; the table
 // says 0.46, about the marginal. psPW is the pair (prev, w), psWN the pair
 // (w, next), psWB the pair (w, b_k) when okWB; y over prev's values; M_k
-// (rows mk, row factors ck). O(K³), no look-up.
-func (ws *Workspace) prevWitnessBias(psPW, psWN, psWB graphidx.PairStats, okWB bool, y, mk, ck []float64, k, kt int, alpha float64) float64 {
+// (rows mk, row factors ck); num and den are what prevWitnessMoves found
+// for psPW and y, whose products prevWitnessDev left in the workspace
+// (nothing may write the workspace in between). O(K³), no look-up.
+func (ws *Workspace) prevWitnessBias(psPW, psWN, psWB graphidx.PairStats, okWB bool, y, mk, ck []float64, k, kt int, alpha, num, den float64) float64 {
 	kp, kb, kw, kn := len(y), ws.ks[k], psPW.KB, psWN.KB
 	rk := ws.rr[ws.roff[k-1]:ws.roff[k]]  // R_k, K_k × K_t
 	rk1 := ws.rr[ws.roff[k]:ws.roff[k+1]] // R_(k+1), K_(k+1) × K_t
 	mk1 := ws.theta[ws.toff[k]:ws.toff[k+1]]
 	ck1 := ws.cinv[ws.coff[k]:ws.coff[k+1]]
 	const km = graphidx.MaxValues
-	ws.sepD = growF(ws.sepD, 8*km+kw*kt)
+	if need := 8*km + kw*kt; cap(ws.sepD) < need {
+		// Growing drops what prevWitnessDev left in ws.sepD: again.
+		ws.sepD = growF(ws.sepD, need)
+		num, den, _ = ws.prevWitnessDev(psPW, y, alpha)
+	}
+	ws.sepD = ws.sepD[:8*km+kw*kt]
 	z2, e := ws.sepD[5*km:5*km+kb], ws.sepD[6*km:6*km+kb]
 	f := ws.sepD[8*km : 8*km+kw*kt]
-	num, den, ok := ws.prevWitnessDev(psPW, y, alpha)
-	if !ok || !(num <= PrevWitnessScale*den) {
-		return 0
-	}
 	pi, d, dn := ws.sepD[:kw], ws.sepD[km:km+kw], ws.sepD[2*km:2*km+kw]
 	y2 := ws.sepD[3*km : 3*km+kp]
 	// H = M_k R_k (K_prev × K_t); F = Q H; a = d F.
@@ -432,9 +446,9 @@ func (ws *Workspace) prevWitnessBias(psPW, psWN, psWB graphidx.PairStats, okWB b
 // moves prev by enough to witness a bridge after prev: the deviation of prev
 // it implies, y2 − m_p, has ‖y − m_p‖² ≤ PrevWitnessScale·‖y2 − m_p‖² (see
 // prevWitnessBias). O(K²), no look-up.
-func (ws *Workspace) prevWitnessMoves(psPW graphidx.PairStats, y []float64, alpha float64) bool {
+func (ws *Workspace) prevWitnessMoves(psPW graphidx.PairStats, y []float64, alpha float64) (num, den float64, moves bool) {
 	num, den, ok := ws.prevWitnessDev(psPW, y, alpha)
-	return ok && num <= PrevWitnessScale*den
+	return num, den, ok && num <= PrevWitnessScale*den
 }
 
 // prevWitnessDev computes, from the table psPW of (prev, w): P = M(prev,

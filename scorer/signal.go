@@ -67,8 +67,19 @@ var MaxEdgeCost = -math.Log(signalFloor)
 // run, shared machine): 150 ns at K = 3, 300 ns at K = 4, 1.9 µs at K = 8,
 // 23 µs at K = 32, against Cramér's V's 80, 116, 347 ns and 4.9 µs; binary
 // tables unchanged.
-func (b *Bayes) EdgeCost(ps graphidx.PairStats) float64 {
-	lb := b.signalBound(ps, true)
+func (b *Bayes) EdgeCost(ps graphidx.PairStats) float64 { return edgeCostOf(b.signalBound(ps, true)) }
+
+// EdgeCostBound returns EdgeCost(ps) and the signal bound lb it is −log
+// of (SignalBound(ps)), computed once. A Stats that keeps lb with the pair
+// can hand it back to the model's chain score (KnownSignalBounder) instead
+// of the model computing it again. Same cost as EdgeCost.
+func (b *Bayes) EdgeCostBound(ps graphidx.PairStats) (cost, lb float64) {
+	lb = b.signalBound(ps, true)
+	return edgeCostOf(lb), lb
+}
+
+// edgeCostOf is EdgeCost of an edge whose signal bound is lb.
+func edgeCostOf(lb float64) float64 {
 	if !(lb > signalFloor) { // also catches NaN
 		return MaxEdgeCost
 	}

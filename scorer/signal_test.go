@@ -350,6 +350,36 @@ func TestEdgeCostBounds(t *testing.T) {
 	}
 }
 
+// EdgeCostBound returns EdgeCost and SignalBound bit for bit (the router
+// keeps its bound for the chain score, KnownSignalBounder), and a 2×2
+// table's bound is the same bit for bit transposed (the router hands it
+// back for either orientation).
+func TestEdgeCostBoundMatches(t *testing.T) {
+	t.Parallel()
+	m := mustBayes(t)
+	rng := rand.New(rand.NewPCG(11, 3))
+	for range 500 {
+		ka, kb := 1+rng.IntN(6), 1+rng.IntN(6)
+		c := make([]uint32, ka*kb)
+		for i := range c {
+			c[i] = uint32(rng.IntN(40))
+		}
+		ps := graphidx.NewPairStats(1, 2, ka, kb, c)
+		cost, lb := m.EdgeCostBound(ps)
+		if want := m.EdgeCost(ps); math.Float64bits(cost) != math.Float64bits(want) {
+			t.Errorf("%d×%d %v: EdgeCostBound cost %v, EdgeCost %v", ka, kb, c, cost, want)
+		}
+		if want := m.SignalBound(ps); math.Float64bits(lb) != math.Float64bits(want) {
+			t.Errorf("%d×%d %v: EdgeCostBound bound %v, SignalBound %v", ka, kb, c, lb, want)
+		}
+		if ka == 2 && kb == 2 {
+			if tr := m.SignalBound(ps.Transpose()); math.Float64bits(tr) != math.Float64bits(lb) {
+				t.Errorf("2×2 %v: SignalBound %v, transposed %v", c, lb, tr)
+			}
+		}
+	}
+}
+
 func TestEdgeCostAllocationFree(t *testing.T) { // not parallel: AllocsPerRun
 	m := mustBayes(t)
 	ps := graphidx.NewPairStats(1, 2, 3, 4, []uint32{1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12})

@@ -162,6 +162,17 @@ type PairPrefetcher interface {
 	FetchPairs()
 }
 
+// KnownSignalBounder is an optional interface of a Stats that keeps, with
+// the pairs it has looked up, the signal bounds a Bayes model computed of
+// them (Bayes.EdgeCostBound): KnownSignalBound returns sig.SignalBound of
+// Pair(a, b) in that orientation when it has it, bit for bit, and ok false
+// otherwise (then the model computes it). The chain score's edges are
+// mostly edges the search has already costed; the router's per-decision
+// statistics implement it (through its pair memo).
+type KnownSignalBounder interface {
+	KnownSignalBound(sig *Bayes, a, b graphidx.EntityID) (lb float64, ok bool)
+}
+
 // pair looks up (a, b) and checks the answer against the request.
 func pair(st Stats, a, b graphidx.EntityID, ka, kb int) (graphidx.PairStats, bool, error) {
 	ps, ok := st.Pair(a, b)
@@ -240,7 +251,14 @@ func (ws *Workspace) loadEdges(st Stats, alpha float64, sig *Bayes) (uint64, err
 		sup := fillMeans(th, ci, ps, ok, ka, kb, alpha)
 		ws.sup = append(ws.sup, sup)
 		if sig != nil {
-			ws.lb = append(ws.lb, sig.signalBound(ps, ok))
+			lb, known := 0.0, false
+			if kb, isKB := st.(KnownSignalBounder); isKB && ok {
+				lb, known = kb.KnownSignalBound(sig, ws.path[k], ws.path[k+1])
+			}
+			if !known {
+				lb = sig.signalBound(ps, ok)
+			}
+			ws.lb = append(ws.lb, lb)
 		}
 		minSup = min(minSup, sup)
 	}
