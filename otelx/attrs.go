@@ -35,6 +35,10 @@ const (
 	// KeyChainParallel marks a chain whose two bridges are read side by
 	// side (router.ChainResult.Parallel); absent otherwise.
 	KeyChainParallel = "hopwise.chain.parallel" // bool, true when present
+	// KeyChainMidpoint marks a parallel chain whose estimate is the
+	// midpoint with a one-bridge chain (router.ChainResult.Midpoint);
+	// absent otherwise.
+	KeyChainMidpoint = "hopwise.chain.midpoint" // bool, true when present
 
 	KeyABArm           = "hopwise.ab.arm"           // string; absent without arms
 	KeyIndexGeneration = "hopwise.index.generation" // string: 16 hex digits

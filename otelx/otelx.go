@@ -487,6 +487,9 @@ func (in *Instrumentation) decisionAttrs(attrs []attribute.KeyValue, q router.Qu
 		if d.Chain.Parallel {
 			attrs = append(attrs, attribute.Bool(KeyChainParallel, true))
 		}
+		if d.Chain.Midpoint {
+			attrs = append(attrs, attribute.Bool(KeyChainMidpoint, true))
+		}
 	}
 	if d.Arm != "" {
 		attrs = append(attrs, attribute.String(KeyABArm, d.Arm))

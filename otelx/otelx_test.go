@@ -609,17 +609,20 @@ func TestParallelChainAttr(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, par := range []bool{true, false} {
+	for _, c := range []struct{ par, mid bool }{{true, true}, {true, false}, {false, false}} {
 		d := router.Decision{Mode: router.ModeChain, Bridges: []string{"a", "b"},
-			Chain: &router.ChainResult{Bridges: []string{"a", "b"}, Parallel: par}}
-		found := false
+			Chain: &router.ChainResult{Bridges: []string{"a", "b"}, Parallel: c.par, Midpoint: c.mid}}
+		found, mid := false, false
 		for _, kv := range in.decisionAttrs(nil, router.Query{From: "s", Value: "v", To: "t"}, &d) {
-			if kv.Key == KeyChainParallel {
+			switch kv.Key {
+			case KeyChainParallel:
 				found = kv.Value.AsBool()
+			case KeyChainMidpoint:
+				mid = kv.Value.AsBool()
 			}
 		}
-		if found != par {
-			t.Errorf("parallel %v: attribute %s present and true: %v", par, KeyChainParallel, found)
+		if found != c.par || mid != c.mid {
+			t.Errorf("parallel %v, midpoint %v: attributes %s %v, %s %v", c.par, c.mid, KeyChainParallel, found, KeyChainMidpoint, mid)
 		}
 	}
 }

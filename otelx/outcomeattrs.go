@@ -40,7 +40,7 @@ var reservedKeys = map[attribute.Key]bool{
 	KeyQueryKey: true, KeyQueryFrom: true, KeyQueryValue: true, KeyQueryTo: true,
 	KeyRouteMode: true, KeyRouteGain: true, KeyRouteScore: true, KeyRouteReason: true, KeyRouteTruncated: true,
 	KeyRoutePropensity: true, KeyRouteExplored: true, KeyRouteCached: true,
-	KeyDirectErr: true, KeyDirectSupport: true, KeyChainErr: true, KeyChainHops: true, KeyChainBridges: true, KeyChainParallel: true,
+	KeyDirectErr: true, KeyDirectSupport: true, KeyChainErr: true, KeyChainHops: true, KeyChainBridges: true, KeyChainParallel: true, KeyChainMidpoint: true,
 	KeyABArm: true, KeyIndexGeneration: true, KeySamplingRatio: true, KeyEntityHash: true,
 	KeyOutcomeScore: true, KeyOutcomeInputTokens: true, KeyOutcomeOutputTokens: true, KeyOutcomeLatencyMs: true,
 }

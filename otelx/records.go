@@ -58,6 +58,9 @@ type DecisionRecord struct {
 	// ChainParallel: the chain's bridges are read side by side
 	// (KeyChainParallel).
 	ChainParallel bool
+	// ChainMidpoint: its estimate is the midpoint with a one-bridge chain
+	// (KeyChainMidpoint).
+	ChainMidpoint bool
 
 	Arm        string
 	Generation string
@@ -498,6 +501,7 @@ func decisionFromSpan(sp *tracepb.Span, src string) (*DecisionRecord, error) {
 		d.ChainHops = int(a.int(KeyChainHops))
 		d.Bridges = a.strings(KeyChainBridges)
 		d.ChainParallel = a.bool(KeyChainParallel)
+		d.ChainMidpoint = a.bool(KeyChainMidpoint)
 		if d.ChainHops < 0 {
 			a.fail(KeyChainHops, "negative hop count %d", d.ChainHops)
 		}

@@ -32,6 +32,12 @@ type ChainResult struct {
 	// of the target on both (docs/QUALITY.md §4e), instead of one after the
 	// other. Bridges then holds the two in the order of their proxy cost.
 	Parallel bool
+	// Midpoint, set only with Parallel, reports that Estimate is the
+	// midpoint of the parallel estimate and the one-bridge chain through
+	// one of the two bridges: no table told which of the two structures the
+	// pair tables fit, and Err is the midpoint's expected error over both
+	// (docs/QUALITY.md §4e).
+	Midpoint bool
 }
 
 // Decision is the router's answer to one Query.

@@ -94,6 +94,7 @@ func (sc *scratch) parallel(best, bestErr float64, bestC cand, bestDist []float6
 	}
 	sc.parCand = cand{b: [3]graphidx.EntityID{b1, b2}, m: 2}
 	sc.parDist = append(sc.parDist[:0], est.Dist...)
+	sc.parMid = blend
 	if blend {
 		for v, p := range bestDist {
 			sc.parDist[v] = (sc.parDist[v] + p) / 2

@@ -121,8 +121,8 @@ func TestParallelDecision(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if d.Mode != ModeChain || d.Chain == nil || !d.Chain.Parallel || len(d.Bridges) != 2 {
-		t.Fatalf("with the option: mode %v, chain %+v, want the parallel answer", d.Mode, d.Chain)
+	if d.Mode != ModeChain || d.Chain == nil || !d.Chain.Parallel || !d.Chain.Midpoint || len(d.Bridges) != 2 {
+		t.Fatalf("with the option: mode %v, chain %+v, want the parallel answer's midpoint", d.Mode, d.Chain)
 	}
 	got := d.Estimate[1]
 	t.Logf("P(wetgrass = true | cloudy = true) = %.4f: parallel %.4f (Err %.3g) through %v; one-bridge chain %.4f through %v",
@@ -157,8 +157,8 @@ func TestParallelDecision(t *testing.T) {
 	if dw.Chain == nil || dw.Chain.Parallel {
 		t.Errorf("with a witness: chain %+v, want the one-bridge chain", dw.Chain)
 	}
-	if strings.Count(string(b), `"parallel":true`) != 2 {
-		t.Errorf("JSON view %s: want \"parallel\":true at the top level and in the chain", b)
+	if strings.Count(string(b), `"parallel":true`) != 2 || strings.Count(string(b), `"midpoint":true`) != 1 {
+		t.Errorf("JSON view %s: want \"parallel\":true at the top level and in the chain, \"midpoint\":true in the chain", b)
 	}
 	// Each bridge's distribution is the direct estimate from cloudy.
 	dists, err := rt.ChainDists(context.Background(), q, d)

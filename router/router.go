@@ -477,6 +477,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 			Err:        bestEst.err,
 			MinSupport: minSup,
 			Parallel:   par,
+			Midpoint:   par && sc.parMid,
 		}
 		c.chain = rb.chain
 		c.gain = dir.Err - bestEst.err

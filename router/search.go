@@ -286,6 +286,7 @@ type scratch struct {
 	parCand cand
 	parDist []float64
 	parSup  uint64
+	parMid  bool // parDist is the midpoint with the best one-bridge chain
 
 	// incumbent: a chain scored exactly during generation
 	inc struct {

@@ -207,6 +207,7 @@ type DirectView struct {
 type ChainView struct {
 	Bridges  []string `json:"bridges"`
 	Parallel bool     `json:"parallel,omitempty"`
+	Midpoint bool     `json:"midpoint,omitempty"`
 	Estimate *Dist    `json:"estimate,omitempty"`
 	ErrorFigure
 	WeakestEdgeSupport uint64 `json:"weakest_edge_support"`
@@ -257,6 +258,7 @@ func NewView(q Query, d Decision, m ErrorMeasure) View {
 		v.Chain = &ChainView{
 			Bridges:            d.Chain.Bridges,
 			Parallel:           d.Chain.Parallel,
+			Midpoint:           d.Chain.Midpoint,
 			Estimate:           est(d.Chain.Estimate),
 			ErrorFigure:        NewErrorFigure(m, d.Chain.Err),
 			WeakestEdgeSupport: d.Chain.MinSupport,

@@ -885,6 +885,10 @@ func explain(w io.Writer, q routeQuery, d router.Decision, cfg router.Config, m 
 			// s → {b1, b2} → t: both bridges read from s, the target from both.
 			fmt.Fprintf(&b, "chain      %s → {%s} → %s (parallel: each bridge from %s, %s from both)\n",
 				path[0], strings.Join(path[1:len(path)-1], ", "), path[len(path)-1], path[0], path[len(path)-1])
+			if d.Chain.Midpoint {
+				fmt.Fprintf(&b, "           estimate: the midpoint of that and the chain through one of the two, which the\n"+
+					"           pair tables fit equally well\n")
+			}
 		} else {
 			fmt.Fprintf(&b, "chain      %s\n", strings.Join(path, " → "))
 		}

@@ -24,6 +24,7 @@ type RouteResponse struct {
 	Mode        string   `json:"mode"`
 	Bridges     []string `json:"bridges,omitempty"`
 	Parallel    bool     `json:"parallel,omitempty"` // the two bridges are read side by side (router.ChainResult.Parallel)
+	Midpoint    bool     `json:"midpoint,omitempty"` // its estimate is the midpoint with a one-bridge chain (router.ChainResult.Midpoint)
 	Reason      string   `json:"reason"`
 	Explanation string   `json:"explanation"`
 	Gain        float64  `json:"gain"`
@@ -83,6 +84,7 @@ func (s *Server) handleRoute(w http.ResponseWriter, r *http.Request) {
 		e := d.Chain.Err
 		resp.ChainErr = &e
 		resp.Parallel = d.Mode == router.ModeChain && d.Chain.Parallel
+		resp.Midpoint = resp.Parallel && d.Chain.Midpoint
 	}
 	writeJSON(w, http.StatusOK, resp)
 }
