@@ -280,13 +280,7 @@ func (pw *parWork) eval(u, hub int, out []float64) bool {
 		// P(a | v) = P(a, v)/P(v) from (b1, t) and P(c | v) from (b2, t).
 		var c1, c2 [graphidx.MaxValues]float64
 		for v := range kt {
-			c1[v], c2[v] = 0, 0
-			for a := range k1 {
-				c1[v] += t1.w[a] * t1.th[a*kt+v]
-			}
-			for c := range k2 {
-				c2[v] += t2.w[c] * t2.th[c*kt+v]
-			}
+			c1[v], c2[v] = t1.colMarginal(v), t2.colMarginal(v)
 		}
 		for v := range kt {
 			if c1[v] <= 0 || c2[v] <= 0 {
@@ -317,24 +311,8 @@ func (pw *parWork) eval(u, hub int, out []float64) bool {
 		}
 	}
 	// Σ_XY from (b1, t) and (b2, t), each with its own marginals.
-	for i := range n1 {
-		for v := range kt {
-			jt := 0.0
-			for a := range k1 {
-				jt += t1.w[a] * t1.th[a*kt+v]
-			}
-			sxy[i*kt+v] = t1.w[i]*t1.th[i*kt+v] - t1.w[i]*jt
-		}
-	}
-	for i := range n2 {
-		for v := range kt {
-			jt := 0.0
-			for c := range k2 {
-				jt += t2.w[c] * t2.th[c*kt+v]
-			}
-			sxy[(n1+i)*kt+v] = t2.w[i]*t2.th[i*kt+v] - t2.w[i]*jt
-		}
-	}
+	t1.covRows(sxy, n1, 0)
+	t2.covRows(sxy, n2, n1)
 	pw.sol = growF(pw.sol, n*kt)
 	pw.piv = growI(pw.piv, n)
 	if !solveSPD(sxx, n, sxy, kt, pw.sol[:n*kt]) {
@@ -343,27 +321,44 @@ func (pw *parWork) eval(u, hub int, out []float64) bool {
 	// Deviations of the bridges at s = u, each from its marginal in the
 	// table (s, b_i), so that the tables' levels need not agree.
 	copy(out[:kt], mt)
-	for i := range n1 {
-		m := 0.0
-		for r := range a1.ka {
-			m += a1.w[r] * a1.th[r*k1+i]
-		}
-		d := a1.th[u*k1+i] - m
-		for v := range kt {
-			out[v] += pw.sol[i*kt+v] * d
-		}
-	}
-	for i := range n2 {
-		m := 0.0
-		for r := range a2.ka {
-			m += a2.w[r] * a2.th[r*k2+i]
-		}
-		d := a2.th[u*k2+i] - m
-		for v := range kt {
-			out[v] += pw.sol[(n1+i)*kt+v] * d
-		}
-	}
+	a1.addDeviations(out[:kt], pw.sol, u, n1, 0)
+	a2.addDeviations(out[:kt], pw.sol, u, n2, n1)
 	return true
+}
+
+// colMarginal is Σ_r w_r θ_rv, column v's marginal in tb.
+func (tb *ptab) colMarginal(v int) float64 {
+	m := 0.0
+	for r := range tb.ka {
+		m += tb.w[r] * tb.th[r*tb.kb+v]
+	}
+	return m
+}
+
+// covRows writes, for the table tb of (b, t) and i < n, the covariances
+// Cov(1_(b = i), 1_(t = v)) = w_i θ_iv − w_i P(t = v) into rows off + i of
+// dst (tb.kb columns), P(t = v) the column's marginal in tb.
+func (tb *ptab) covRows(dst []float64, n, off int) {
+	kt := tb.kb
+	for v := range kt {
+		jt := tb.colMarginal(v)
+		for i := range n {
+			dst[(off+i)*kt+v] = tb.w[i]*tb.th[i*kt+v] - tb.w[i]*jt
+		}
+	}
+}
+
+// addDeviations adds to out (len K_t), for the table tb of (s, b) and
+// i < n, the coefficient rows off + i of sol times b's deviation at s = u
+// from its marginal in tb, θ_ui − Σ_r w_r θ_ri.
+func (tb *ptab) addDeviations(out, sol []float64, u, n, off int) {
+	kt := len(out)
+	for i := range n {
+		d := tb.th[u*tb.kb+i] - tb.colMarginal(i)
+		for v := range kt {
+			out[v] += sol[(off+i)*kt+v] * d
+		}
+	}
 }
 
 // solveSPD solves A X = B for the symmetric positive-definite n×n matrix a
