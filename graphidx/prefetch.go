@@ -5,6 +5,38 @@ import "unsafe"
 // prefetchChunk is the number of addresses one prefetchAll call takes.
 const prefetchChunk = 64
 
+// prefetchBatch gathers addresses and hands them to prefetchAll
+// prefetchChunk at a time.
+type prefetchBatch struct {
+	addr [prefetchChunk]uintptr
+	n    int
+}
+
+// add queues the cache line at p, issuing the batch when it is full (n is
+// below prefetchChunk, a power of two, here: the mask only spares the
+// bounds check, so that add inlines).
+func (pb *prefetchBatch) add(p unsafe.Pointer) {
+	pb.addr[pb.n&(prefetchChunk-1)] = uintptr(p)
+	if pb.n++; pb.n == prefetchChunk {
+		pb.issue()
+	}
+}
+
+// issue hands the queued addresses to prefetchAll and empties the batch.
+//
+//go:noinline
+func (pb *prefetchBatch) issue() {
+	prefetchAll(&pb.addr[0], pb.n)
+	pb.n = 0
+}
+
+// flush issues what is queued.
+func (pb *prefetchBatch) flush() {
+	if pb.n > 0 {
+		pb.issue()
+	}
+}
+
 // PrefetchRankedOffsets tells the index that RankedNeighbors will soon be
 // called for each of ids: it starts loading their ranked-list offsets into
 // the CPU cache and returns without waiting for them, so that the loads
@@ -16,21 +48,14 @@ func (x *Index) PrefetchRankedOffsets(ids []EntityID) {
 		return
 	}
 	v := x.v.Load()
-	var addr [prefetchChunk]uintptr
-	n := 0
+	var pb prefetchBatch
 	for _, id := range ids {
 		if uint64(id)+1 >= uint64(len(v.rankOffs)) {
 			continue
 		}
-		addr[n] = uintptr(unsafe.Pointer(&v.rankOffs[id]))
-		if n++; n == prefetchChunk {
-			prefetchAll(&addr[0], n)
-			n = 0
-		}
+		pb.add(unsafe.Pointer(&v.rankOffs[id]))
 	}
-	if n > 0 {
-		prefetchAll(&addr[0], n)
-	}
+	pb.flush()
 }
 
 // PrefetchRankedHeads tells the index that the first n entries of
@@ -45,23 +70,16 @@ func (x *Index) PrefetchRankedHeads(ids []EntityID, n int) {
 		return
 	}
 	v := x.v.Load()
-	var addr [prefetchChunk]uintptr
-	k := 0
+	var pb prefetchBatch
 	for _, id := range ids {
 		s, e, ok := span(v.rankOffs, uint64(id), len(v.rank))
 		if !ok || s == e {
 			continue
 		}
-		addr[k] = uintptr(unsafe.Pointer(&v.rank[s]))
-		addr[k+1] = uintptr(unsafe.Pointer(&v.rank[min(e, s+n)-1]))
-		if k += 2; k == prefetchChunk {
-			prefetchAll(&addr[0], k)
-			k = 0
-		}
+		pb.add(unsafe.Pointer(&v.rank[s]))
+		pb.add(unsafe.Pointer(&v.rank[min(e, s+n)-1]))
 	}
-	if k > 0 {
-		prefetchAll(&addr[0], k)
-	}
+	pb.flush()
 }
 
 // PrefetchTables starts loading the count table of each ps[i] with ok[i]
@@ -74,19 +92,12 @@ func PrefetchTables(ps []PairStats, ok []bool) {
 		return
 	}
 	ok = ok[:len(ps)]
-	var addr [prefetchChunk]uintptr
-	k := 0
+	var pb prefetchBatch
 	for i := range ps {
 		if !ok[i] || len(ps[i].counts) == 0 {
 			continue
 		}
-		addr[k] = uintptr(unsafe.Pointer(&ps[i].counts[0]))
-		if k++; k == prefetchChunk {
-			prefetchAll(&addr[0], k)
-			k = 0
-		}
+		pb.add(unsafe.Pointer(&ps[i].counts[0]))
 	}
-	if k > 0 {
-		prefetchAll(&addr[0], k)
-	}
+	pb.flush()
 }
