@@ -654,30 +654,13 @@ func (b *Bench) answer(ctx context.Context, rt *router.Router, model scorer.Mode
 			r.ChainSups[2], r.ChainSups[3] = r.ChainSups[3], r.ChainSups[2]
 			if bm, ok := model.(*scorer.Bayes); ok {
 				for _, br := range path[1:3] {
-					sig := 1.0
-					for _, e := range [2][2]graphidx.EntityID{{s, br}, {br, t}} {
-						ps, ok := b.Index.Pair(e[0], e[1])
-						if !ok {
-							sig = 0
-							break
-						}
-						sig *= bm.SignalBound(ps)
-					}
-					r.ChainSignal = max(r.ChainSignal, sig)
+					r.ChainSignal = max(r.ChainSignal, b.pathSignal(bm, []graphidx.EntityID{s, br, t}))
 				}
 			}
 		} else {
 			r.ChainSups = b.pathSupports(path)
-		}
-		if bm, ok := model.(*scorer.Bayes); ok && !d.Chain.Parallel {
-			r.ChainSignal = 1
-			for i := 0; i+1 < len(path); i++ {
-				ps, ok := b.Index.Pair(path[i], path[i+1])
-				if !ok {
-					r.ChainSignal = 0
-					break
-				}
-				r.ChainSignal *= bm.SignalBound(ps)
+			if bm, ok := model.(*scorer.Bayes); ok {
+				r.ChainSignal = b.pathSignal(bm, path)
 			}
 		}
 	} else {
@@ -771,6 +754,20 @@ func (b *Bench) support(a, c graphidx.EntityID) uint64 {
 		return l[lo].sup
 	}
 	return 0
+}
+
+// pathSignal is the product of the model's signal bounds along path's
+// edges (bm.SignalBound), 0 when an edge was never observed.
+func (b *Bench) pathSignal(bm *scorer.Bayes, path []graphidx.EntityID) float64 {
+	sig := 1.0
+	for i := 0; i+1 < len(path); i++ {
+		ps, ok := b.Index.Pair(path[i], path[i+1])
+		if !ok {
+			return 0
+		}
+		sig *= bm.SignalBound(ps)
+	}
+	return sig
 }
 
 func (b *Bench) pathSupports(path []graphidx.EntityID) []uint64 {
