@@ -1,12 +1,15 @@
 package eval_test
 
 import (
+	"cmp"
 	"context"
 	"math"
+	"slices"
 	"testing"
 
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/internal/eval"
+	"github.com/hopwise/hopwise/internal/stress"
 	"github.com/hopwise/hopwise/internal/world"
 	"github.com/hopwise/hopwise/router"
 	"github.com/hopwise/hopwise/scorer"
@@ -26,17 +29,25 @@ var publishedSeeds = []int64{1, 2, 3}
 // (local-geometric contexts), the index is built by the real builder, and
 // every held-out and supported pair is answered by the real router, against
 // exact answers by variable elimination. It returns the mean of the
-// held-out, supported and calibration figures over the seeds.
+// held-out, supported and calibration figures over publishedSeeds.
 func publishedMean(t *testing.T, net *world.World, heldOut [][2]int, opts ...scorer.Option) (held, sup eval.Scores, rho float64) {
+	t.Helper()
+	return publishedMeanOver(t, publishedSeeds, net, heldOut, false, opts...)
+}
+
+// publishedMeanOver is publishedMean over the given corpus seeds; with keep
+// set, the queries of every corpus are kept and a per-query breakdown of the
+// held-out error is logged (publishedBreakdown).
+func publishedMeanOver(t *testing.T, seeds []int64, net *world.World, heldOut [][2]int, keep bool, opts ...scorer.Option) (held, sup eval.Scores, rho float64) {
 	t.Helper()
 	w, err := net.WithHeldOut(heldOut)
 	if err != nil {
 		t.Fatal(err)
 	}
 	var reps []eval.Report
-	for _, seed := range publishedSeeds {
+	for _, seed := range seeds {
 		r, err := eval.Run(context.Background(), eval.Config{
-			Condition: world.CondLocalGeometric, Seed: seed, Network: w, Contexts: publishedContexts, ModelOptions: opts,
+			Condition: world.CondLocalGeometric, Seed: seed, Network: w, Contexts: publishedContexts, ModelOptions: opts, KeepQueries: keep,
 		})
 		if err != nil {
 			t.Fatal(err)
@@ -45,6 +56,9 @@ func publishedMean(t *testing.T, net *world.World, heldOut [][2]int, opts ...sco
 			t.Fatalf("seed %d: %d held-out and %d supported queries scored", seed, r.HeldOut.N, r.Supported.N)
 		}
 		reps = append(reps, r)
+	}
+	if keep {
+		publishedBreakdown(t, net, reps)
 	}
 	m := eval.Summarize(reps).Mean[0]
 	return m.HeldOut, m.Supported, m.Calibration.Spearman
@@ -62,6 +76,9 @@ type publishedRegime struct {
 	// maxMean is the most the mean routed held-out MSE over the networks
 	// may be: a ceiling just above today's figure (see publishedNets).
 	maxMean float64
+	// maxMeanMany is the same ceiling over the 20 corpora of
+	// TestPublishedNetworksCorpora.
+	maxMeanMany float64
 }
 
 // publishedRegimes are the two held-out choices of TestPublishedNetworks:
@@ -71,10 +88,10 @@ type publishedRegime struct {
 // mutual information ≥ publishedMinMI; the other pairs, among them
 // independent causes of a common effect, are observed).
 var publishedRegimes = []publishedRegime{
-	{"distance ≥ 2", func(w *world.World) ([][2]int, error) { return world.PublishedHeldOut(w, 2), nil }, 0.00299},
+	{"distance ≥ 2", func(w *world.World) ([][2]int, error) { return world.PublishedHeldOut(w, 2), nil }, 0.00299, 0.00330},
 	{"MI ≥ 0.001", func(w *world.World) ([][2]int, error) {
 		return w.PickHeldOut(w.NumVars()*w.NumVars(), publishedMinMI, 1)
-	}, 0.00090},
+	}, 0.00090, 0.00115},
 }
 
 // publishedNet is one published network of TestPublishedNetworks with the
@@ -171,6 +188,41 @@ func TestPublishedNetworks(t *testing.T) {
 		t.Skip("builds 3 indexes of 50 000 contexts per network and regime")
 	}
 	t.Parallel()
+	checkPublished(t, publishedSeeds, false, func(rg publishedRegime) float64 { return rg.maxMean }, 0)
+}
+
+// publishedManySeeds is how many corpora TestPublishedNetworksCorpora
+// samples per network and regime (seeds 1 to publishedManySeeds).
+const publishedManySeeds = 20
+
+// TestPublishedNetworksCorpora is TestPublishedNetworks over 20 corpora
+// (seeds 1–20) instead of 3, with a per-query breakdown of each held-out
+// error into the bias and the spread of the routed answers over the
+// corpora (publishedBreakdown): the 3-corpus figures carry the noise of 3
+// samples of rare rows, which can hide or fake a change of a few per cent.
+// The checks are TestPublishedNetworks' (the same count-chain tolerances:
+// Burglary's near ties stay at 1.00001 and 1.00027 over 20 corpora), with
+// each ρ floor lowered by 0.02 (ASIA at distance ≥ 2 is 0.588 over these
+// 20 corpora, 0.601 over 60: the floor 0.6 is at its noise) and the mean
+// over the networks at most maxMeanMany of its regime. About 15 s:
+// HOPWISE_STRESS=1 only.
+//
+//	HOPWISE_STRESS=1 go test ./internal/eval -run TestPublishedNetworksCorpora -v
+func TestPublishedNetworksCorpora(t *testing.T) {
+	stress.Require(t, "TestPublishedNetworksCorpora builds 20 indexes per network and regime")
+	seeds := make([]int64, publishedManySeeds)
+	for i := range seeds {
+		seeds[i] = int64(i + 1)
+	}
+	checkPublished(t, seeds, true, func(rg publishedRegime) float64 { return rg.maxMeanMany }, 0.02)
+}
+
+// checkPublished runs every network of publishedNets in every regime of
+// publishedRegimes over the given corpus seeds and checks the figures of
+// TestPublishedNetworks against the mean ceiling maxMean(regime), each
+// network's count-chain tolerance and its ρ floor lowered by rhoSlack.
+func checkPublished(t *testing.T, seeds []int64, keep bool, maxMean func(publishedRegime) float64, rhoSlack float64) {
+	t.Helper()
 	for ri, rg := range publishedRegimes {
 		mean, nets := 0.0, 0
 		for _, n := range publishedNets {
@@ -186,7 +238,7 @@ func TestPublishedNetworks(t *testing.T) {
 				t.Logf("%s, %s: no pair qualifies", n.name, rg.name)
 				continue
 			}
-			held, sup, rho := publishedMean(t, net, pairs)
+			held, sup, rho := publishedMeanOver(t, seeds, net, pairs, keep)
 			mean += held.Routed
 			nets++
 			best := min(held.Marginal, held.CountChain)
@@ -203,14 +255,83 @@ func TestPublishedNetworks(t *testing.T) {
 			if sup.Routed > 1.1*sup.Direct {
 				t.Errorf("%s, %s: adjacent pairs: routed MSE %.4g above 1.1 × direct %.4g", n.name, rg.name, sup.Routed, sup.Direct)
 			}
-			if rho < n.minRho[ri] {
-				t.Errorf("%s, %s: Spearman ρ %.3f of predicted against realised error, want ≥ %.2f", n.name, rg.name, rho, n.minRho[ri])
+			if rho < n.minRho[ri]-rhoSlack {
+				t.Errorf("%s, %s: Spearman ρ %.3f of predicted against realised error, want ≥ %.2f", n.name, rg.name, rho, n.minRho[ri]-rhoSlack)
 			}
 		}
 		t.Logf("%s: mean routed held-out MSE over %d networks: %.4g", rg.name, nets, mean/float64(nets))
-		if mean/float64(nets) > rg.maxMean {
-			t.Errorf("%s: mean routed held-out MSE over %d networks %.4g, above %.4g", rg.name, nets, mean/float64(nets), rg.maxMean)
+		if m := maxMean(rg); mean/float64(nets) > m {
+			t.Errorf("%s: mean routed held-out MSE over %d networks %.4g, above %.4g", rg.name, nets, mean/float64(nets), m)
 		}
+	}
+}
+
+// publishedBreakdown logs, for the held-out queries of reps (one report per
+// corpus, queries kept), the queries that carry most of the routed MSE:
+// each query's mean error over the corpora (per value, Σ_v/K as in the
+// MSE) split into the squared bias of the mean routed answer and the
+// spread of the answers around it (MSE = bias² + variance, exactly, over
+// the corpora that asked the query), beside the marginal's and the count
+// chain's mean errors and how often the router chained.
+func publishedBreakdown(t *testing.T, net *world.World, reps []eval.Report) {
+	t.Helper()
+	type key struct{ from, value, to int }
+	type acc struct {
+		n                        int
+		truth, sum               []float64
+		sq, marg, count, chained float64
+		ests                     [][]float64
+	}
+	accs := map[key]*acc{}
+	var keys []key
+	total := 0.0
+	for _, r := range reps {
+		for _, q := range r.Queries {
+			if q.Set != eval.SetHeldOut {
+				continue
+			}
+			k := key{q.From, q.Value, q.To}
+			a := accs[k]
+			if a == nil {
+				a = &acc{truth: q.Truth, sum: make([]float64, len(q.Truth))}
+				accs[k] = a
+				keys = append(keys, k)
+			}
+			kk := float64(len(q.Truth))
+			a.n++
+			est := q.Est[eval.EstRouted]
+			for v := range est {
+				a.sum[v] += est[v]
+			}
+			a.ests = append(a.ests, est)
+			a.sq += q.SqErr(eval.EstRouted) / kk
+			a.marg += q.SqErr(eval.EstMarginal) / kk
+			a.count += q.SqErr(eval.EstCountChain) / kk
+			if q.Mode == router.ModeChain {
+				a.chained++
+			}
+		}
+	}
+	for _, a := range accs {
+		total += a.sq
+	}
+	slices.SortFunc(keys, func(x, y key) int { return cmp.Compare(accs[y].sq, accs[x].sq) })
+	for i, k := range keys {
+		if i == 6 {
+			break
+		}
+		a := accs[k]
+		n, kk := float64(a.n), float64(len(a.truth))
+		bias, spread := 0.0, 0.0
+		for v := range a.truth {
+			m := a.sum[v] / n
+			bias += (m - a.truth[v]) * (m - a.truth[v]) / kk
+			for _, e := range a.ests {
+				spread += (e[v] - m) * (e[v] - m) / kk / n
+			}
+		}
+		t.Logf("  %s = %s → %s (%d corpora, %.0f%% of the held-out sum): routed %.3g = bias² %.3g + variance %.3g; marginal %.3g, count chain %.3g; chained %.0f%%",
+			net.Name(k.from), net.Labels(k.from)[k.value], net.Name(k.to), a.n, 100*a.sq/total, a.sq/n, bias, spread, a.marg/n, a.count/n, 100*a.chained/n)
 	}
 }
 
