@@ -74,7 +74,11 @@ type publishedRegime struct {
 	name string
 	pick func(*world.World) ([][2]int, error)
 	// maxMean is the most the mean routed held-out MSE over the networks
-	// may be: a ceiling just above today's figure (see publishedNets).
+	// may be: a ceiling just above today's figure (see publishedNets). The
+	// hop prior Dirichlet(1/2) (scorer.DefaultHopAlpha) moved the 3-corpus
+	// means 0.002977 → 0.003005 and 0.000878 → 0.0008997 while the 20-corpus
+	// ones went 0.003245 → 0.003274 and 0.001113 → 0.00106: three corpora
+	// are too few to see a change of that size (docs/QUALITY.md §4f).
 	maxMean float64
 	// maxMeanMany is the same ceiling over the 20 corpora of
 	// TestPublishedNetworksCorpora.
@@ -88,10 +92,10 @@ type publishedRegime struct {
 // mutual information ≥ publishedMinMI; the other pairs, among them
 // independent causes of a common effect, are observed).
 var publishedRegimes = []publishedRegime{
-	{"distance ≥ 2", func(w *world.World) ([][2]int, error) { return world.PublishedHeldOut(w, 2), nil }, 0.00299, 0.00330},
+	{"distance ≥ 2", func(w *world.World) ([][2]int, error) { return world.PublishedHeldOut(w, 2), nil }, 0.00301, 0.00330},
 	{"MI ≥ 0.001", func(w *world.World) ([][2]int, error) {
 		return w.PickHeldOut(w.NumVars()*w.NumVars(), publishedMinMI, 1)
-	}, 0.00090, 0.00115},
+	}, 0.00091, 0.00107},
 }
 
 // publishedNet is one published network of TestPublishedNetworks with the
