@@ -59,6 +59,12 @@ func publishedMeanOver(t *testing.T, seeds []int64, net *world.World, heldOut []
 	}
 	if keep {
 		publishedBreakdown(t, net, reps)
+		runs := make([][]eval.QueryResult, len(reps))
+		for i, r := range reps {
+			runs[i] = r.Queries
+		}
+		model, oracle := oracleSpearman(runs)
+		t.Logf("  Spearman ρ over %d corpora: model %.3f, leave-one-out oracle of the expected squared error %.3f (TestPublishedOracle)", len(reps), model, oracle)
 	}
 	m := eval.Summarize(reps).Mean[0]
 	return m.HeldOut, m.Supported, m.Calibration.Spearman
@@ -202,7 +208,8 @@ const publishedManySeeds = 20
 // TestPublishedNetworksCorpora is TestPublishedNetworks over 20 corpora
 // (seeds 1–20) instead of 3, with a per-query breakdown of each held-out
 // error into the bias and the spread of the routed answers over the
-// corpora (publishedBreakdown): the 3-corpus figures carry the noise of 3
+// corpora (publishedBreakdown) and the ρ that the leave-one-out oracle of
+// TestPublishedOracle reaches on the same corpora: the 3-corpus figures carry the noise of 3
 // samples of rare rows, which can hide or fake a change of a few per cent.
 // The checks are TestPublishedNetworks' (the same count-chain tolerances:
 // Burglary's near ties stay at 1.00001 and 1.00027 over 20 corpora), with
