@@ -106,8 +106,8 @@ func ExampleRouter_Decide() {
 	// reason: gain-above-threshold
 	// direct support 0, error 0.0885
 	// chain error 0.0029, gain 0.0856
-	// P(bed-tomato=dry) = 0.768
-	// P(bed-tomato=wet) = 0.232
+	// P(bed-tomato=dry) = 0.773
+	// P(bed-tomato=wet) = 0.227
 }
 
 func ExampleRouter_Decide_errors() {

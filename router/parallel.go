@@ -22,7 +22,8 @@ var parCharge = true
 // (checked), that chain is charged, for this comparison only,
 // (‖p̂_chain − p̂_par‖ − √Err_par)₊²: the part of its distance from the
 // parallel answer that the parallel answer's own error does not explain,
-// the route it misses if the pair is the separator. On success
+// the route it misses if the pair is the separator. Both routes' chains'
+// separation bias is charged too, the larger (inheritedBias). On success
 // sc.parCand, sc.parDist and sc.parSup hold the answer. Cost: one scan of
 // the heap and, when two candidates exist, 4–5 pair look-ups (memoised in
 // the decision) and the model's estimate (8.3 µs for binary entities,
@@ -92,6 +93,26 @@ func (sc *scratch) parallel(best, bestErr float64, bestC cand, bestDist []float6
 	if !(score > best) {
 		return false, 0, 0, nil
 	}
+	// The separation bias the answer inherits from its bridges' chains
+	// (inheritedBias); only now, since it is ≥ 0 and can only lower the
+	// score.
+	dist := append(sc.parDist[:0], est.Dist...) // est.Dist may be the workspace's
+	sep, err := sc.inheritedBias(b1, b2)
+	if err != nil {
+		return false, 0, 0, err
+	}
+	est.Dist = dist
+	if sep > 0 {
+		if blend {
+			errP += sep / 2 // errP is d²/4 + (Err_par + Err_chain)/2
+		} else {
+			errP += sep
+		}
+		score = sc.scoreOf(sc.dirErr-errP-margin, 2)
+		if !(score > best) {
+			return false, 0, 0, nil
+		}
+	}
 	sc.parCand = cand{b: [3]graphidx.EntityID{b1, b2}, m: 2}
 	sc.parDist = append(sc.parDist[:0], est.Dist...)
 	sc.parMid = blend
@@ -102,6 +123,37 @@ func (sc *scratch) parallel(best, bestErr float64, bestC cand, bestDist []float6
 	}
 	sc.parSup = est.Support
 	return true, errP, score, nil
+}
+
+// inheritedBias returns the larger separation bias of the one-bridge
+// chains s → b1 → t and s → b2 → t (the model's PendingBias, deferred for
+// the call whatever the decision's setting): to first order each route of
+// the parallel answer carries the dependence the chain through its bridge
+// invents, so a route that a witness shows crossing a common effect
+// (docs/QUALITY.md §4f) charges the answer as it charges the chain. 0 for
+// models without a deferred separation bias. It overwrites the workspace's
+// estimate buffers. Cost: two chain estimates and their separation checks
+// (pair look-ups memoised in the decision), only for a parallel answer that
+// would otherwise win.
+func (sc *scratch) inheritedBias(b1, b2 graphidx.EntityID) (float64, error) {
+	pb, ok := sc.model.(scorer.PendingBiaser)
+	if !ok {
+		return 0, nil
+	}
+	sc.ws.DeferSeparation(true)
+	defer sc.ws.DeferSeparation(deferSeparation)
+	sep := 0.0
+	for _, b := range [2]graphidx.EntityID{b1, b2} {
+		if _, err := sc.model.Chain(sc.ws, sc, sc.s, sc.u, []graphidx.EntityID{b}, sc.t); err != nil {
+			return 0, err
+		}
+		extra, err := pb.PendingBias(sc.ws, sc)
+		if err != nil {
+			return 0, err
+		}
+		sep = max(sep, extra)
+	}
+	return sep, nil
 }
 
 // checked reports whether the best chain's separation check read a

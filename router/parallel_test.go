@@ -160,7 +160,10 @@ func TestParallelDecision(t *testing.T) {
 	if strings.Count(string(b), `"parallel":true`) != 2 || strings.Count(string(b), `"midpoint":true`) != 1 {
 		t.Errorf("JSON view %s: want \"parallel\":true at the top level and in the chain, \"midpoint\":true in the chain", b)
 	}
-	// Each bridge's distribution is the direct estimate from cloudy.
+	// Each bridge's distribution is the row the answer reads from cloudy:
+	// the direct estimate up to the prior (the hop row's prior is the
+	// chain's, scorer.Bayes.HopRow; on these pairs of about 10⁶ contexts
+	// the two differ by under 1e-5).
 	dists, err := rt.ChainDists(context.Background(), q, d)
 	if err != nil {
 		t.Fatal(err)
@@ -170,7 +173,7 @@ func TestParallelDecision(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		if math.Abs(bd.Dist[1]-dd.Direct.Estimate[1]) > 1e-12 {
+		if math.Abs(bd.Dist[1]-dd.Direct.Estimate[1]) > 1e-5 {
 			t.Errorf("bridge %s: distribution %v, want the direct estimate %v", bd.Entity, bd.Dist, dd.Direct.Estimate)
 		}
 	}

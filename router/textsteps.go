@@ -31,10 +31,13 @@ type BridgeDist struct {
 // model's posterior-mean conditional matrix of the j-th link (row i:
 // P(b_j | b_(j−1) = i)). It is the distribution the scorer's own Chain
 // call gives for the prefix From → b_1 → … → b_k (so x_k is exactly what
-// the chain carries forward to the next link); the decision's
-// Chain.Estimate is x_(m+1) at the target. For a parallel answer
-// (ChainResult.Parallel) each bridge's distribution is the model's estimate
-// from From alone, P(b_k | From = u), which is what that answer reads.
+// the chain carries forward to the next link); at the first bridge, where
+// that prefix has no bridge, it is row u of M_1 under the chain's hop prior
+// (scorer.Bayes.HopRow) rather than the direct estimate of (From, b_1),
+// whose prior differs. The decision's Chain.Estimate is x_(m+1) at the
+// target. For a parallel answer (ChainResult.Parallel) each bridge's
+// distribution is that row of (From, b_k), P(b_k | From = u), which is what
+// that answer reads.
 //
 // The matrices are the current configuration's (a Reconfigure of α between
 // the decision and this call changes them). This is a separate call so
@@ -82,6 +85,7 @@ func (r *Router) ChainDists(ctx context.Context, q Query, d Decision) ([]BridgeD
 		ids[i] = id
 	}
 	model := st.modelFor(h)
+	hr, hasHop := model.(hopRower)
 	ws := scorer.NewWorkspace()
 	out := make([]BridgeDist, len(ids))
 	for k, id := range ids {
@@ -90,13 +94,29 @@ func (r *Router) ChainDists(ctx context.Context, q Query, d Decision) ([]BridgeD
 			// Each bridge of a parallel answer is read from s = u alone.
 			prefix = ids[:0]
 		}
-		est, err := model.Chain(ws, g, s, u, prefix, id)
+		var dist []float64
+		if len(prefix) == 0 && hasHop {
+			// The first hop's row under the chain's own prior, not the
+			// direct estimate of (s, b_k), whose prior may differ.
+			dist, err = hr.HopRow(nil, g, s, u, id)
+		} else {
+			var est scorer.Estimate
+			est, err = model.Chain(ws, g, s, u, prefix, id)
+			dist = est.Dist
+		}
 		if err != nil {
 			return nil, fmt.Errorf("router: chain distribution at bridge %q: %w", d.Chain.Bridges[k], err)
 		}
-		out[k] = BridgeDist{Entity: d.Chain.Bridges[k], Values: cloneLabels(g.Values(id)), Dist: est.Dist}
+		out[k] = BridgeDist{Entity: d.Chain.Bridges[k], Values: cloneLabels(g.Values(id)), Dist: dist}
 	}
 	return out, nil
+}
+
+// hopRower is a model whose chains read their first hop under a prior of
+// their own (scorer.Bayes.HopRow): ChainDists shows that row at the first
+// bridge.
+type hopRower interface {
+	HopRow(dst []float64, st scorer.Stats, a graphidx.EntityID, r int, c graphidx.EntityID) ([]float64, error)
 }
 
 // ModelName is the name of the error model that scores decisions on the

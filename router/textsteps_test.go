@@ -5,6 +5,8 @@ import (
 	"errors"
 	"math"
 	"testing"
+
+	"github.com/hopwise/hopwise/scorer"
 )
 
 // pathGraph is vent → humidity → pump → bed with no shorter link, so the
@@ -22,7 +24,8 @@ func pathGraph(gen uint64) *memGraph {
 }
 
 // meanRows returns the posterior-mean matrix (N[i][j] + α)/(N_i + Kα) of a
-// row-major table with k columns (α = 1, the default).
+// row-major table with k columns, α the chain hop prior
+// (scorer.DefaultHopAlpha).
 func meanRows(counts []float64, k int) [][]float64 {
 	var out [][]float64
 	for i := 0; i+k <= len(counts); i += k {
@@ -32,7 +35,7 @@ func meanRows(counts []float64, k int) [][]float64 {
 		}
 		row := make([]float64, k)
 		for j, c := range counts[i : i+k] {
-			row[j] = (c + 1) / (n + float64(k))
+			row[j] = (c + scorer.DefaultHopAlpha) / (n + float64(k)*scorer.DefaultHopAlpha)
 		}
 		out = append(out, row)
 	}

@@ -229,11 +229,11 @@ import (
 // tests. WithVariance(ExactMoments) computes the exact value at the same
 // O(m·K³) cost.
 type Bayes struct {
-	alpha, beta, signalZ      float64
-	gamma, delta              float64
-	prior, separation, noiseK float64
-	spread, influence         float64
-	variance                  Variance
+	alpha, hopAlpha, beta, signalZ float64
+	gamma, delta                   float64
+	prior, separation, noiseK      float64
+	spread, influence              float64
+	variance                       Variance
 }
 
 // NewBayes returns the valued Dirichlet model: NewBayesFrom of
@@ -260,6 +260,9 @@ func (b *Bayes) Name() string { return "bayes" }
 
 // Variance returns the chain-variance method.
 func (b *Bayes) Variance() Variance { return b.variance }
+
+// HopAlpha returns the Dirichlet pseudo-count of a chain's hop tables.
+func (b *Bayes) HopAlpha() float64 { return b.hopAlpha }
 
 // Alpha returns the Dirichlet pseudo-count α.
 func (b *Bayes) Alpha() float64 { return b.alpha }
@@ -313,6 +316,27 @@ func (b *Bayes) Posterior(dst []float64, st Stats, s graphidx.EntityID, u int, t
 		dst = append(dst, c+prior[v])
 	}
 	return dst, nil
+}
+
+// HopRow appends to dst row r of the posterior-mean matrix that a chain's
+// hop from a to c carries, (N[r][v] + α_h)/(n_r + K_c·α_h) with α_h the hop
+// pseudo-count (WithHopAlpha; the uniform row when the pair was never
+// observed together), and returns the extended slice: a chain's first
+// forward vector x_1 = e_rᵀ M_1, which the direct estimate of (a, c) equals
+// only when its prior is the same. O(K_a·K_c).
+func (b *Bayes) HopRow(dst []float64, st Stats, a graphidx.EntityID, r int, c graphidx.EntityID) ([]float64, error) {
+	var ws Workspace
+	if err := ws.setPath(st, a, r, nil, c); err != nil {
+		return dst, err
+	}
+	ka, kc := ws.ks[0], ws.ks[1]
+	ps, ok, err := pair(st, a, c, ka, kc)
+	if err != nil {
+		return dst, err
+	}
+	th, ci := make([]float64, ka*kc), make([]float64, ka)
+	fillMeans(th, ci, ps, ok, ka, kc, b.hopAlpha)
+	return append(dst, th[r*kc:r*kc+kc]...), nil
 }
 
 // priorCounts fills pc (K_t entries) with the prior pseudo-counts of a
@@ -466,7 +490,7 @@ func (b *Bayes) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridg
 	if b.gamma > 0 && len(bridges) > 0 {
 		sig = b
 	}
-	minSup, err := ws.loadEdges(st, b.alpha, sig)
+	minSup, err := ws.loadEdges(st, b.hopAlpha, sig)
 	if err != nil {
 		return Estimate{}, err
 	}
@@ -520,7 +544,7 @@ func (b *Bayes) Chain(ws *Workspace, st Stats, s graphidx.EntityID, u int, bridg
 		if ws.deferSep {
 			ws.sepPending, ws.sepU, ws.sepM = true, u, m
 		} else {
-			sb, err := ws.separationBias(st, u, m, b.alpha)
+			sb, err := ws.separationBias(st, u, m, b.hopAlpha)
 			if err != nil {
 				return Estimate{}, err
 			}
@@ -619,7 +643,7 @@ func (b *Bayes) PendingBias(ws *Workspace, st Stats) (float64, error) {
 		return 0, nil
 	}
 	ws.sepPending = false
-	sb, err := ws.separationBias(st, ws.sepU, ws.sepM, b.alpha)
+	sb, err := ws.separationBias(st, ws.sepU, ws.sepM, b.hopAlpha)
 	if err != nil {
 		return 0, err
 	}

@@ -13,6 +13,9 @@ import (
 type BayesConfig struct {
 	// Alpha is the Dirichlet pseudo-count α (finite, > 0).
 	Alpha float64
+	// HopAlpha is the Dirichlet pseudo-count of the rows of a chain's hop
+	// tables (finite, > 0; see Bayes, "Hop prior").
+	HopAlpha float64
 	// Beta is the per-hop squared bias β (finite, ≥ 0).
 	Beta float64
 	// SignalZ is z of EdgeCost and of the signal bound (finite, ≥ 0).
@@ -35,12 +38,13 @@ type BayesConfig struct {
 	Variance Variance
 }
 
-// DefaultBayesConfig returns the fitted defaults (DefaultAlpha, DefaultBeta,
+// DefaultBayesConfig returns the fitted defaults (DefaultAlpha,
+// DefaultHopAlpha, DefaultBeta,
 // DefaultSignalZ, DefaultMissingGamma, DefaultMissingDelta,
 // DefaultPriorStrength, DefaultUnseenSpread, DefaultSeparation,
 // DefaultNoiseK, DefaultInfluence, DeltaMethod).
 func DefaultBayesConfig() BayesConfig {
-	return BayesConfig{Alpha: DefaultAlpha, Beta: DefaultBeta, SignalZ: DefaultSignalZ,
+	return BayesConfig{Alpha: DefaultAlpha, HopAlpha: DefaultHopAlpha, Beta: DefaultBeta, SignalZ: DefaultSignalZ,
 		MissingGamma: DefaultMissingGamma, MissingDelta: DefaultMissingDelta,
 		PriorStrength: DefaultPriorStrength, UnseenSpread: DefaultUnseenSpread,
 		Separation: DefaultSeparation, NoiseK: DefaultNoiseK, Influence: DefaultInfluence, Variance: DeltaMethod}
@@ -128,6 +132,7 @@ func firstBad(cs []check) error {
 func (c BayesConfig) Validate() error {
 	if err := firstBad([]check{
 		{"Alpha", c.Alpha, c.Alpha > 0, "α must be finite and > 0"},
+		{"HopAlpha", c.HopAlpha, c.HopAlpha > 0, "the hop pseudo-count must be finite and > 0"},
 		{"Beta", c.Beta, c.Beta >= 0, "β must be finite and ≥ 0"},
 		{"SignalZ", c.SignalZ, c.SignalZ >= 0, "z must be finite and ≥ 0"},
 		{"MissingGamma", c.MissingGamma, c.MissingGamma >= 0, "γ must be finite and ≥ 0"},
@@ -184,7 +189,7 @@ func NewBayesFrom(c BayesConfig) (*Bayes, error) {
 	if err := c.Validate(); err != nil {
 		return nil, err
 	}
-	return &Bayes{alpha: c.Alpha, beta: c.Beta, signalZ: c.SignalZ, gamma: c.MissingGamma, delta: c.MissingDelta,
+	return &Bayes{alpha: c.Alpha, hopAlpha: c.HopAlpha, beta: c.Beta, signalZ: c.SignalZ, gamma: c.MissingGamma, delta: c.MissingDelta,
 		prior: c.PriorStrength, separation: c.Separation, noiseK: c.NoiseK, spread: c.UnseenSpread, influence: c.Influence, variance: c.Variance}, nil
 }
 
@@ -200,7 +205,7 @@ func NewSupportFrom(c SupportConfig) (*Support, error) {
 // Config returns the configuration m was built from (NewBayesFrom of it
 // builds an equal model). O(1).
 func (b *Bayes) Config() BayesConfig {
-	return BayesConfig{Alpha: b.alpha, Beta: b.beta, SignalZ: b.signalZ, MissingGamma: b.gamma, MissingDelta: b.delta,
+	return BayesConfig{Alpha: b.alpha, HopAlpha: b.hopAlpha, Beta: b.beta, SignalZ: b.signalZ, MissingGamma: b.gamma, MissingDelta: b.delta,
 		PriorStrength: b.prior, UnseenSpread: b.spread, Separation: b.separation, NoiseK: b.noiseK, Influence: b.influence, Variance: b.variance}
 }
 

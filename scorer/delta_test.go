@@ -217,7 +217,13 @@ func TestDeltaMethodMonteCarlo(t *testing.T) {
 				}
 			}
 			src := rand.NewPCG(tc.c.seed, 0xd1c)
-			post := posteriors(tables, 1, src)
+			// A chain's hops use the hop prior; a path without bridges is
+			// the direct estimate, with α.
+			alpha := b.HopAlpha()
+			if len(tc.c.ks) == 2 {
+				alpha = b.Alpha()
+			}
+			post := posteriors(tables, alpha, src)
 			exact := exactChainVariance(post, u)
 			mc := monteCarloChainVariance(post, u, draws)
 			relMC := (est.Err - mc) / mc

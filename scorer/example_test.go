@@ -66,8 +66,8 @@ func ExampleBayes_Chain() {
 	fmt.Printf("gain %.4f\n", direct.Err-chain.Err)
 	// Output:
 	// direct: P(mildew=present|vent=open) = 0.3333  err 0.0635  support 8
-	// chain:  P(mildew=present|vent=open) = 0.1540  err 0.0057  support 400
-	// gain 0.0578
+	// chain:  P(mildew=present|vent=open) = 0.1520  err 0.0056  support 400
+	// gain 0.0579
 }
 
 func ExampleCombine() {
@@ -96,8 +96,8 @@ func ExampleCombine() {
 	fmt.Printf("via humidity %.4f (err %.5f), via pump %.4f (err %.5f)\n", a.Dist[1], a.Err, b.Dist[1], b.Err)
 	fmt.Printf("combined     %.4f (err %.5f)\n", c.Dist[1], c.Err)
 	// Output:
-	// via humidity 0.1540 (err 0.00569), via pump 0.2472 (err 0.09379)
-	// combined     0.1593 (err 0.00537)
+	// via humidity 0.1520 (err 0.00561), via pump 0.2460 (err 0.09379)
+	// combined     0.1573 (err 0.00530)
 }
 
 func ExampleSupport() {
@@ -138,7 +138,7 @@ func ExampleWorkspace_BorrowDist() {
 	}
 	fmt.Printf("best chain: P(mildew=present|vent=open) = %.4f  err %.5f\n", best[1], bestErr)
 	// Output:
-	// best chain: P(mildew=present|vent=open) = 0.1540  err 0.00569
+	// best chain: P(mildew=present|vent=open) = 0.1520  err 0.00561
 }
 
 // ExampleNew builds a model from its serialisable description: start from

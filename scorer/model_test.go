@@ -213,7 +213,7 @@ func TestChainUnobservedEdgeUsesPrior(t *testing.T) {
 	st := newMemStats().entity(1, 2).entity(2, 3).entity(3, 2).
 		pair(1, 2, [][]uint32{{50, 30, 20}, {10, 10, 80}})
 	// 2–3 never observed: M_2 is the prior, every row uniform.
-	b := mustBayes(t, scorer.WithBeta(0.01), scorer.WithMissingSignal(2, 0.1))
+	b := mustBayes(t, scorer.WithBeta(0.01), scorer.WithMissingSignal(2, 0.1), scorer.WithHopAlpha(0.5))
 	est, err := b.Chain(nil, st, 1, 0, []graphidx.EntityID{2}, 3)
 	if err != nil {
 		t.Fatal(err)
@@ -226,16 +226,17 @@ func TestChainUnobservedEdgeUsesPrior(t *testing.T) {
 			t.Errorf("Dist[%d] = %g, want 0.5 through a uniform prior edge", v, p)
 		}
 	}
-	// Hand derivation: rows of M_2 are Dirichlet(1,1) with Var = 1/12 per
-	// value; p̂_v = Σ_r x[r] M2[r,v] with x = θ̂ of row 0 of edge 1, so
-	// Var(p̂_v) = Σ_r x[r]²/12 from edge 2; edge 1 adds nothing because every
-	// column of R_1 = M_2 (means) is constant (0.5). Err = 2·Σ x²/12 + β +
-	// γδ²: the unobserved edge has signal 0, so the missing-signal term is
-	// γ·(δ − 0)² = 2·0.1².
-	x := []float64{51.0 / 103, 31.0 / 103, 21.0 / 103}
+	// Hand derivation (hop prior Dirichlet(1/2)): rows of M_2 are
+	// Dirichlet(1/2, 1/2) with Var = (1/4)/(1·2) = 1/8 per value; p̂_v =
+	// Σ_r x[r] M2[r,v] with x = θ̂ of row 0 of edge 1, (N + 1/2)/(100 + 3/2),
+	// so Var(p̂_v) = Σ_r x[r]²/8 from edge 2; edge 1 adds nothing because
+	// every column of R_1 = M_2 (means) is constant (0.5). Err = 2·Σ x²/8 +
+	// β + γδ²: the unobserved edge has signal 0, so the missing-signal term
+	// is γ·(δ − 0)² = 2·0.1².
+	x := []float64{50.5 / 101.5, 30.5 / 101.5, 20.5 / 101.5}
 	want := 0.01 + 2*0.1*0.1
 	for _, xi := range x {
-		want += 2 * xi * xi / 12
+		want += 2 * xi * xi / 8
 	}
 	if !near(est.Err, want, 1e-15) {
 		t.Errorf("Err %.17g, hand derivation %.17g", est.Err, want)
@@ -315,7 +316,9 @@ func TestSupportModelFormula(t *testing.T) {
 func TestSupportDistMatchesBayes(t *testing.T) {
 	t.Parallel()
 	st := randomStats(11, 6, 5, 30)
-	b, s := mustBayes(t), mustSupport(t)
+	// The support model smooths with α everywhere; the Bayes model's hops
+	// use their own prior, set to the same α here.
+	b, s := mustBayes(t, scorer.WithHopAlpha(scorer.DefaultAlpha)), mustSupport(t)
 	for _, path := range [][]graphidx.EntityID{{1, 2}, {1, 2, 3}, {4, 1, 6, 2}, {6, 5, 4, 3, 2}} {
 		be, err1 := b.Chain(nil, st, path[0], 0, path[1:len(path)-1], path[len(path)-1])
 		se, err2 := s.Chain(nil, st, path[0], 0, path[1:len(path)-1], path[len(path)-1])

@@ -135,7 +135,7 @@ func (b *Bayes) Parallel(ws *Workspace, st Stats, s graphidx.EntityID, u int, b1
 		if ps.KA != st.NumValues(q.a) || ps.KB != st.NumValues(q.c) || ps.KA < 1 || ps.KB < 1 {
 			return Estimate{}, false, fmt.Errorf("%w: pair (%d, %d) has a %d×%d table", ErrBadStats, q.a, q.c, ps.KA, ps.KB)
 		}
-		q.tb.load(ps, b.alpha)
+		q.tb.load(ps, b.hopAlpha)
 	}
 	if pw.a1.kb < 2 || pw.a2.kb < 2 || kt < 2 {
 		return Estimate{}, false, nil
@@ -146,7 +146,7 @@ func (b *Bayes) Parallel(ws *Workspace, st Stats, s graphidx.EntityID, u int, b1
 		return Estimate{}, false, nil
 	}
 	if ps, ok := st.Pair(b1, b2); ok && ps.KA == pw.a1.kb && ps.KB == pw.a2.kb {
-		pw.d.load(ps, b.alpha)
+		pw.d.load(ps, b.hopAlpha)
 		pw.hasD = true
 	} else {
 		pw.hasD = false

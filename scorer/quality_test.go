@@ -107,9 +107,12 @@ func TestSeparationCollider(t *testing.T) {
 	st.pair(2, 3, [][]uint32{{160, 50}, {40, 150}}) // c ← d (shows as dependence)
 	st.pair(1, 3, [][]uint32{{100, 100}, {99, 101}})
 	st.pair(2, 4, [][]uint32{{150, 60}, {50, 140}}) // c — e, e never seen with a
-	off := mustBayes(t, scorer.WithSeparation(0))
-	on := mustBayes(t)
-	twice := mustBayes(t, scorer.WithSeparation(2))
+	// The check reads the pair's own table with the hop prior; set to α
+	// here, so that its row is the direct estimate the expectation uses.
+	hop := scorer.WithHopAlpha(scorer.DefaultAlpha)
+	off := mustBayes(t, scorer.WithSeparation(0), hop)
+	on := mustBayes(t, hop)
+	twice := mustBayes(t, scorer.WithSeparation(2), hop)
 	for u := range 2 {
 		cOff, err := off.Chain(nil, st, 1, u, []graphidx.EntityID{2}, 3)
 		if err != nil {

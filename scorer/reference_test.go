@@ -89,7 +89,9 @@ func TestDirichletBDA34(t *testing.T) {
 		}
 	}
 	st.pair(2, 3, rows)
-	b := mustBayes(t, scorer.WithBeta(0), scorer.WithMissingSignal(0, 0))
+	// The chain's hop prior set to the direct estimate's uniform one, so
+	// that the chain's first row is the Dirichlet of the direct estimate.
+	b := mustBayes(t, scorer.WithBeta(0), scorer.WithMissingSignal(0, 0), scorer.WithHopAlpha(1))
 	params, err := b.Posterior(nil, st, 1, 0, 2)
 	if err != nil {
 		t.Fatal(err)

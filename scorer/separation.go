@@ -25,7 +25,9 @@ const PrevWitnesses = 2
 
 // PrevWitnessScale is the largest factor by which prevWitnessBias carries
 // a witness's bias over to the query: a witness must move prev by at least
-// half the query's own deviation (a choice, not fitted).
+// half the query's own deviation (a choice, not fitted). For a binary
+// witness w the bias does not depend on the scale of its deviation, and
+// the test asks it of the value w = r that π leans to (prevWitnessMoves).
 const PrevWitnessScale = 4.0
 
 // separationBias returns S = Σ_k S_k of the Bayes model's separation check
@@ -445,10 +447,41 @@ func (ws *Workspace) prevWitnessBias(psPW, psWN, psWB graphidx.PairStats, okWB b
 // prevWitnessMoves reports whether w, through the table psPW of (prev, w),
 // moves prev by enough to witness a bridge after prev: the deviation of prev
 // it implies, y2 − m_p, has ‖y − m_p‖² ≤ PrevWitnessScale·‖y2 − m_p‖² (see
-// prevWitnessBias). O(K²), no look-up.
+// prevWitnessBias). For a binary w, y2 − m_p is taken at w = r, the value π
+// leans to (d rescaled to e_r − m_w): the bias prevWitnessBias returns,
+// num/den·(d2 − noise), is the same for any scale of d, so only what w = r
+// itself does to prev can tell a witness from noise. In ASIA this admits
+// tub for either = yes (tub = yes implies either = yes, though
+// P(tub | either = yes) is 0.16), which shows that either → dysp → bronc
+// crosses the common effect dysp; it also admits a second cause of a
+// collider prev (bronc for dysp → either → tub), which the test of prev
+// separating w from b_k catches only when (w, b_k) was observed
+// (docs/QUALITY.md §4f). O(K²), no look-up.
 func (ws *Workspace) prevWitnessMoves(psPW graphidx.PairStats, y []float64, alpha float64) (num, den float64, moves bool) {
 	num, den, ok := ws.prevWitnessDev(psPW, y, alpha)
-	return num, den, ok && num <= PrevWitnessScale*den
+	if !ok {
+		return num, den, false
+	}
+	gate := den
+	if kw := psPW.KB; kw == 2 {
+		// A binary w: d = π − m_w is d_r·(e_r − m_w)/(1 − m_w[r]) for the
+		// value r it leans to, and the bias prevWitnessBias returns does not
+		// depend on d's scale (num/den grows as d2 and the noise shrink),
+		// so the gate asks whether w = r itself moves prev that far.
+		const km = graphidx.MaxValues
+		d, dn := ws.sepD[km:km+kw], ws.sepD[2*km:2*km+kw]
+		r := 0
+		if d[1] > d[0] {
+			r = 1
+		}
+		tot := dn[0] + dn[1]
+		if d[r] <= 0 || !(tot > 0) {
+			return num, den, false
+		}
+		sc := (1 - dn[r]/tot) / d[r]
+		gate = den * sc * sc
+	}
+	return num, den, num <= PrevWitnessScale*gate
 }
 
 // prevWitnessDev computes, from the table psPW of (prev, w): P = M(prev,

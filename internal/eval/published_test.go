@@ -1,12 +1,15 @@
 package eval_test
 
 import (
+	"cmp"
 	"context"
 	"math"
+	"slices"
 	"testing"
 
 	"github.com/hopwise/hopwise/graphidx"
 	"github.com/hopwise/hopwise/internal/eval"
+	"github.com/hopwise/hopwise/internal/stress"
 	"github.com/hopwise/hopwise/internal/world"
 	"github.com/hopwise/hopwise/router"
 	"github.com/hopwise/hopwise/scorer"
@@ -26,17 +29,25 @@ var publishedSeeds = []int64{1, 2, 3}
 // (local-geometric contexts), the index is built by the real builder, and
 // every held-out and supported pair is answered by the real router, against
 // exact answers by variable elimination. It returns the mean of the
-// held-out, supported and calibration figures over the seeds.
+// held-out, supported and calibration figures over publishedSeeds.
 func publishedMean(t *testing.T, net *world.World, heldOut [][2]int, opts ...scorer.Option) (held, sup eval.Scores, rho float64) {
+	t.Helper()
+	return publishedMeanOver(t, publishedSeeds, net, heldOut, false, opts...)
+}
+
+// publishedMeanOver is publishedMean over the given corpus seeds; with keep
+// set, the queries of every corpus are kept and a per-query breakdown of the
+// held-out error is logged (publishedBreakdown).
+func publishedMeanOver(t *testing.T, seeds []int64, net *world.World, heldOut [][2]int, keep bool, opts ...scorer.Option) (held, sup eval.Scores, rho float64) {
 	t.Helper()
 	w, err := net.WithHeldOut(heldOut)
 	if err != nil {
 		t.Fatal(err)
 	}
 	var reps []eval.Report
-	for _, seed := range publishedSeeds {
+	for _, seed := range seeds {
 		r, err := eval.Run(context.Background(), eval.Config{
-			Condition: world.CondLocalGeometric, Seed: seed, Network: w, Contexts: publishedContexts, ModelOptions: opts,
+			Condition: world.CondLocalGeometric, Seed: seed, Network: w, Contexts: publishedContexts, ModelOptions: opts, KeepQueries: keep,
 		})
 		if err != nil {
 			t.Fatal(err)
@@ -45,6 +56,15 @@ func publishedMean(t *testing.T, net *world.World, heldOut [][2]int, opts ...sco
 			t.Fatalf("seed %d: %d held-out and %d supported queries scored", seed, r.HeldOut.N, r.Supported.N)
 		}
 		reps = append(reps, r)
+	}
+	if keep {
+		publishedBreakdown(t, net, reps)
+		runs := make([][]eval.QueryResult, len(reps))
+		for i, r := range reps {
+			runs[i] = r.Queries
+		}
+		model, oracle := oracleSpearman(runs)
+		t.Logf("  Spearman ρ over %d corpora: model %.3f, leave-one-out oracle of the expected squared error %.3f (TestPublishedOracle)", len(reps), model, oracle)
 	}
 	m := eval.Summarize(reps).Mean[0]
 	return m.HeldOut, m.Supported, m.Calibration.Spearman
@@ -60,8 +80,17 @@ type publishedRegime struct {
 	name string
 	pick func(*world.World) ([][2]int, error)
 	// maxMean is the most the mean routed held-out MSE over the networks
-	// may be: a ceiling just above today's figure (see publishedNets).
+	// may be: a ceiling just above today's figure (see publishedNets). The
+	// hop prior Dirichlet(1/2) (scorer.DefaultHopAlpha) moved the 3-corpus
+	// means 0.002977 → 0.003005 and 0.000878 → 0.0008997 while the 20-corpus
+	// ones went 0.003245 → 0.003274 and 0.001113 → 0.00106: three corpora
+	// are too few to see a change of that size (docs/QUALITY.md §4f). The
+	// inherited separation bias and the scale-free witness gate then moved
+	// MI ≥ 0.001 to 0.0008303 (3 corpora) and 0.001008 (20).
 	maxMean float64
+	// maxMeanMany is the same ceiling over the 20 corpora of
+	// TestPublishedNetworksCorpora.
+	maxMeanMany float64
 }
 
 // publishedRegimes are the two held-out choices of TestPublishedNetworks:
@@ -71,10 +100,10 @@ type publishedRegime struct {
 // mutual information ≥ publishedMinMI; the other pairs, among them
 // independent causes of a common effect, are observed).
 var publishedRegimes = []publishedRegime{
-	{"distance ≥ 2", func(w *world.World) ([][2]int, error) { return world.PublishedHeldOut(w, 2), nil }, 0.00299},
+	{"distance ≥ 2", func(w *world.World) ([][2]int, error) { return world.PublishedHeldOut(w, 2), nil }, 0.00301, 0.00330},
 	{"MI ≥ 0.001", func(w *world.World) ([][2]int, error) {
 		return w.PickHeldOut(w.NumVars()*w.NumVars(), publishedMinMI, 1)
-	}, 0.00090},
+	}, 0.00084, 0.00102},
 }
 
 // publishedNet is one published network of TestPublishedNetworks with the
@@ -131,6 +160,13 @@ type publishedNet struct {
 // either and bronc (TestCommonEffectBound); before the missing-signal term
 // left out the marginal's variance Cancer's was 3.461e-5 (1.43 ×).
 //
+// ASIA's MI ≥ 0.001 floor is 0.58: with the scale-free witness gate of
+// docs/QUALITY.md §4f (the witness bronc of dysp → either → tub is a second
+// cause of dysp, which no table can show) valid chains from dysp are
+// charged up to their squared distance from the marginal, which costs ρ
+// 0.637 → 0.588 on seeds 1–3 and 0.654 → 0.607 over 20 corpora, for a
+// routed MSE 0.000848 → 0.000570 and 0.000765 → 0.000556.
+//
 // Tolerances above 1 are where 3 corpora cannot tell near ties apart,
 // measured over 20 corpora (seeds 1–20, same regimes): Cancer routed
 // 3.061e-5 against the count chain's 3.099e-5 (on seeds 1–3 1.043 ×: the
@@ -150,7 +186,7 @@ type publishedNet struct {
 // predictor of the expected error reaches when every realised error is
 // sampling noise (TestPublishedOracle).
 var publishedNets = []publishedNet{
-	{"asia", world.Asia, [2]float64{1, 1}, [2]float64{0.6, 0.6}},
+	{"asia", world.Asia, [2]float64{1, 1}, [2]float64{0.6, 0.58}},
 	{"survey", world.Survey, [2]float64{1, 1}, [2]float64{0.35, 0}},
 	{"cancer", world.Cancer, [2]float64{1.05, 1}, [2]float64{0.6, 0}},
 	{"burglary", world.Burglary, [2]float64{1.001, 1.002}, [2]float64{0.8, 0.85}},
@@ -171,6 +207,42 @@ func TestPublishedNetworks(t *testing.T) {
 		t.Skip("builds 3 indexes of 50 000 contexts per network and regime")
 	}
 	t.Parallel()
+	checkPublished(t, publishedSeeds, false, func(rg publishedRegime) float64 { return rg.maxMean }, 0)
+}
+
+// publishedManySeeds is how many corpora TestPublishedNetworksCorpora
+// samples per network and regime (seeds 1 to publishedManySeeds).
+const publishedManySeeds = 20
+
+// TestPublishedNetworksCorpora is TestPublishedNetworks over 20 corpora
+// (seeds 1–20) instead of 3, with a per-query breakdown of each held-out
+// error into the bias and the spread of the routed answers over the
+// corpora (publishedBreakdown) and the ρ that the leave-one-out oracle of
+// TestPublishedOracle reaches on the same corpora: the 3-corpus figures carry the noise of 3
+// samples of rare rows, which can hide or fake a change of a few per cent.
+// The checks are TestPublishedNetworks' (the same count-chain tolerances:
+// Burglary's near ties stay at 1.00001 and 1.00027 over 20 corpora), with
+// each ρ floor lowered by 0.02 (ASIA at distance ≥ 2 is 0.588 over these
+// 20 corpora, 0.601 over 60: the floor 0.6 is at its noise) and the mean
+// over the networks at most maxMeanMany of its regime. About 15 s:
+// HOPWISE_STRESS=1 only.
+//
+//	HOPWISE_STRESS=1 go test ./internal/eval -run TestPublishedNetworksCorpora -v
+func TestPublishedNetworksCorpora(t *testing.T) {
+	stress.Require(t, "TestPublishedNetworksCorpora builds 20 indexes per network and regime")
+	seeds := make([]int64, publishedManySeeds)
+	for i := range seeds {
+		seeds[i] = int64(i + 1)
+	}
+	checkPublished(t, seeds, true, func(rg publishedRegime) float64 { return rg.maxMeanMany }, 0.02)
+}
+
+// checkPublished runs every network of publishedNets in every regime of
+// publishedRegimes over the given corpus seeds and checks the figures of
+// TestPublishedNetworks against the mean ceiling maxMean(regime), each
+// network's count-chain tolerance and its ρ floor lowered by rhoSlack.
+func checkPublished(t *testing.T, seeds []int64, keep bool, maxMean func(publishedRegime) float64, rhoSlack float64) {
+	t.Helper()
 	for ri, rg := range publishedRegimes {
 		mean, nets := 0.0, 0
 		for _, n := range publishedNets {
@@ -186,7 +258,7 @@ func TestPublishedNetworks(t *testing.T) {
 				t.Logf("%s, %s: no pair qualifies", n.name, rg.name)
 				continue
 			}
-			held, sup, rho := publishedMean(t, net, pairs)
+			held, sup, rho := publishedMeanOver(t, seeds, net, pairs, keep)
 			mean += held.Routed
 			nets++
 			best := min(held.Marginal, held.CountChain)
@@ -203,14 +275,83 @@ func TestPublishedNetworks(t *testing.T) {
 			if sup.Routed > 1.1*sup.Direct {
 				t.Errorf("%s, %s: adjacent pairs: routed MSE %.4g above 1.1 × direct %.4g", n.name, rg.name, sup.Routed, sup.Direct)
 			}
-			if rho < n.minRho[ri] {
-				t.Errorf("%s, %s: Spearman ρ %.3f of predicted against realised error, want ≥ %.2f", n.name, rg.name, rho, n.minRho[ri])
+			if rho < n.minRho[ri]-rhoSlack {
+				t.Errorf("%s, %s: Spearman ρ %.3f of predicted against realised error, want ≥ %.2f", n.name, rg.name, rho, n.minRho[ri]-rhoSlack)
 			}
 		}
 		t.Logf("%s: mean routed held-out MSE over %d networks: %.4g", rg.name, nets, mean/float64(nets))
-		if mean/float64(nets) > rg.maxMean {
-			t.Errorf("%s: mean routed held-out MSE over %d networks %.4g, above %.4g", rg.name, nets, mean/float64(nets), rg.maxMean)
+		if m := maxMean(rg); mean/float64(nets) > m {
+			t.Errorf("%s: mean routed held-out MSE over %d networks %.4g, above %.4g", rg.name, nets, mean/float64(nets), m)
 		}
+	}
+}
+
+// publishedBreakdown logs, for the held-out queries of reps (one report per
+// corpus, queries kept), the queries that carry most of the routed MSE:
+// each query's mean error over the corpora (per value, Σ_v/K as in the
+// MSE) split into the squared bias of the mean routed answer and the
+// spread of the answers around it (MSE = bias² + variance, exactly, over
+// the corpora that asked the query), beside the marginal's and the count
+// chain's mean errors and how often the router chained.
+func publishedBreakdown(t *testing.T, net *world.World, reps []eval.Report) {
+	t.Helper()
+	type key struct{ from, value, to int }
+	type acc struct {
+		n                        int
+		truth, sum               []float64
+		sq, marg, count, chained float64
+		ests                     [][]float64
+	}
+	accs := map[key]*acc{}
+	var keys []key
+	total := 0.0
+	for _, r := range reps {
+		for _, q := range r.Queries {
+			if q.Set != eval.SetHeldOut {
+				continue
+			}
+			k := key{q.From, q.Value, q.To}
+			a := accs[k]
+			if a == nil {
+				a = &acc{truth: q.Truth, sum: make([]float64, len(q.Truth))}
+				accs[k] = a
+				keys = append(keys, k)
+			}
+			kk := float64(len(q.Truth))
+			a.n++
+			est := q.Est[eval.EstRouted]
+			for v := range est {
+				a.sum[v] += est[v]
+			}
+			a.ests = append(a.ests, est)
+			a.sq += q.SqErr(eval.EstRouted) / kk
+			a.marg += q.SqErr(eval.EstMarginal) / kk
+			a.count += q.SqErr(eval.EstCountChain) / kk
+			if q.Mode == router.ModeChain {
+				a.chained++
+			}
+		}
+	}
+	for _, a := range accs {
+		total += a.sq
+	}
+	slices.SortFunc(keys, func(x, y key) int { return cmp.Compare(accs[y].sq, accs[x].sq) })
+	for i, k := range keys {
+		if i == 6 {
+			break
+		}
+		a := accs[k]
+		n, kk := float64(a.n), float64(len(a.truth))
+		bias, spread := 0.0, 0.0
+		for v := range a.truth {
+			m := a.sum[v] / n
+			bias += (m - a.truth[v]) * (m - a.truth[v]) / kk
+			for _, e := range a.ests {
+				spread += (e[v] - m) * (e[v] - m) / kk / n
+			}
+		}
+		t.Logf("  %s = %s → %s (%d corpora, %.0f%% of the held-out sum): routed %.3g = bias² %.3g + variance %.3g; marginal %.3g, count chain %.3g; chained %.0f%%",
+			net.Name(k.from), net.Labels(k.from)[k.value], net.Name(k.to), a.n, 100*a.sq/total, a.sq/n, bias, spread, a.marg/n, a.count/n, 100*a.chained/n)
 	}
 }
 
@@ -852,5 +993,56 @@ func TestParallelBridgesSprinkler(t *testing.T) {
 	}
 	if errs[1][0] > errs[0][0]/5 {
 		t.Errorf("Cloudy ↔ WetGrass: routed MSE %.4g with the parallel answer, want below a fifth of %.4g without", errs[1][0], errs[0][0])
+	}
+}
+
+// TestInheritedWitnessAsia: ASIA (Lauritzen & Spiegelhalter 1988) with
+// `hopwise eval`'s own held-out pairs, corpus seed 2. P(bronc | either = yes)
+// (exact 0.553) has the one-bridge chain through the common effect dysp
+// (answer 0.74). Before docs/QUALITY.md §4f its separation check read no
+// witness that could show it (tub, which either = yes implies, was gated
+// out because P(tub | either = yes) is small), and once tub's test charged
+// it, the parallel answer through dysp and xray, which carries the same
+// invented route, took its place (0.735). With the witness gate asking
+// whether tub = yes itself moves either, and the parallel answer charged the
+// separation bias of its bridges' chains, the router answers through the
+// valid chain either → lung → smoke → bronc (realised 8e-7).
+func TestInheritedWitnessAsia(t *testing.T) {
+	t.Parallel()
+	asia, err := world.Asia()
+	if err != nil {
+		t.Fatal(err)
+	}
+	pairs, err := asia.PickHeldOut(asia.NumVars()*asia.NumVars(), publishedMinMI, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	w, err := asia.WithHeldOut(pairs)
+	if err != nil {
+		t.Fatal(err)
+	}
+	r, err := eval.Run(context.Background(), eval.Config{
+		Condition: world.CondLocalGeometric, Seed: 2, Network: w, Contexts: publishedContexts, KeepQueries: true,
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	either, _ := asia.Index("either")
+	bronc, _ := asia.Index("bronc")
+	found := false
+	for _, q := range r.Queries {
+		if q.From != either || q.To != bronc || q.Value != 1 || q.Set != eval.SetHeldOut {
+			continue
+		}
+		found = true
+		got := q.SqErr(eval.EstRouted)
+		t.Logf("P(bronc | either = yes): exact %.3f, routed %.3f through %d bridge(s) (parallel %v), squared error %.3g (predicted %.3g)",
+			q.Truth[1], q.Est[eval.EstRouted][1], q.ChainBridges, q.ChainParallel, got, q.RoutedErr)
+		if got > 0.005 {
+			t.Errorf("P(bronc | either = yes): squared error %.3g, want ≤ 0.005 (the chain through dysp realises 0.067)", got)
+		}
+	}
+	if !found {
+		t.Fatal("query either = yes → bronc not answered")
 	}
 }
