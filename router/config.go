@@ -32,6 +32,7 @@ import (
 //	  "max_candidates": 4,          // k in [1, 2^16]
 //	  "error_model": "bayes",       // "bayes" (support on presence-only indexes) or "support"
 //	  "alpha": 1,                   // Dirichlet α > 0 (bayes; smoothing for support)
+//	  "hop_alpha": 0.5,             // bayes: Dirichlet α > 0 of a chain's hop tables
 //	  "beta": 0.001,                // per-hop squared bias β ≥ 0
 //	  "signal_z": 1,                // bayes: z ≥ 0 of the edge-cost signal bound
 //	  "missing_gamma": 5.881,       // bayes: γ ≥ 0 of the missing-signal bias γ·(δ − L)₊²
@@ -73,6 +74,7 @@ type Config struct {
 	MaxCandidates   int         `json:"max_candidates"`
 	Model           string      `json:"error_model"`
 	Alpha           float64     `json:"alpha"`
+	HopAlpha        float64     `json:"hop_alpha"`
 	Beta            float64     `json:"beta"`
 	SignalZ         float64     `json:"signal_z"`
 	MissingGamma    float64     `json:"missing_gamma"`
@@ -111,6 +113,7 @@ func DefaultConfig() Config {
 		MaxCandidates:   DefaultMaxCandidates,
 		Model:           scorer.ModelBayes,
 		Alpha:           b.Alpha,
+		HopAlpha:        b.HopAlpha,
 		Beta:            b.Beta,
 		SignalZ:         b.SignalZ,
 		MissingGamma:    b.MissingGamma,
@@ -160,6 +163,7 @@ var modelFields = []struct {
 }{
 	{"error_model", "Name", false, func(c *Config) any { return cmp.Or(c.Model, scorer.ModelBayes) }},
 	{"alpha", "Alpha", false, func(c *Config) any { return c.Alpha }},
+	{"hop_alpha", "HopAlpha", true, func(c *Config) any { return c.HopAlpha }},
 	{"beta", "Beta", false, func(c *Config) any { return c.Beta }},
 	{"signal_z", "SignalZ", true, func(c *Config) any { return c.SignalZ }},
 	{"missing_gamma", "MissingGamma", true, func(c *Config) any { return c.MissingGamma }},
@@ -227,7 +231,7 @@ func (c Config) modelConfig() (scorer.ModelConfig, error) {
 		return m, configError("chain_variance", "unknown method %q (want %s or %s)", c.ChainVariance, scorer.DeltaMethod, scorer.ExactMoments)
 	}
 	b := &m.Bayes
-	b.Alpha, b.Beta, b.SignalZ, b.MissingGamma, b.MissingDelta = c.Alpha, c.Beta, c.SignalZ, c.MissingGamma, c.MissingDelta
+	b.Alpha, b.HopAlpha, b.Beta, b.SignalZ, b.MissingGamma, b.MissingDelta = c.Alpha, c.HopAlpha, c.Beta, c.SignalZ, c.MissingGamma, c.MissingDelta
 	b.PriorStrength, b.UnseenSpread, b.Separation, b.NoiseK = c.PriorStrength, c.UnseenSpread, c.Separation, c.NoiseK
 	m.Support.Alpha = c.Alpha
 	// The Bayes constants are checked under either name (under "support"

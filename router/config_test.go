@@ -113,7 +113,7 @@ func TestConfigModelFields(t *testing.T) {
 	c := DefaultConfig()
 	c.SignalZ, c.MissingGamma, c.MissingDelta = 0.5, 2, 0.2
 	c.PriorStrength, c.UnseenSpread, c.Separation, c.NoiseK = 5, 0.3, 0.5, 2
-	c.ChainVariance = "exact"
+	c.ChainVariance, c.HopAlpha = "exact", 0.75
 	path := filepath.Join(t.TempDir(), "model.json")
 	if err := SaveConfig(path, c); err != nil {
 		t.Fatal(err)
@@ -132,7 +132,7 @@ func TestConfigModelFields(t *testing.T) {
 	}
 	defer r.Close()
 	want, err := scorer.NewBayes(scorer.WithSignalZ(0.5), scorer.WithMissingSignal(2, 0.2), scorer.WithPriorStrength(5),
-		scorer.WithUnseenSpread(0.3), scorer.WithSeparation(0.5), scorer.WithNoiseK(2), scorer.WithVariance(scorer.ExactMoments))
+		scorer.WithUnseenSpread(0.3), scorer.WithSeparation(0.5), scorer.WithNoiseK(2), scorer.WithVariance(scorer.ExactMoments), scorer.WithHopAlpha(0.75))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -145,6 +145,8 @@ func TestConfigModelFields(t *testing.T) {
 		{`{"missing_gamma": -0.5}`, `"missing_gamma"`},
 		{`{"missing_delta": 2}`, `"missing_delta"`},
 		{`{"prior_strength": 0}`, `"prior_strength"`},
+		{`{"hop_alpha": 0}`, `"hop_alpha"`},
+		{`{"hop_alpha": -1}`, `"hop_alpha"`},
 		{`{"unseen_spread": -1}`, `"unseen_spread"`},
 		{`{"separation": -1}`, `"separation"`},
 		{`{"noise_k": -0.1}`, `"noise_k"`},

@@ -35,6 +35,7 @@ type evalOptions struct {
 	fit          bool
 	fitSeeds     string
 	beta         float64
+	hopAlpha     float64
 	prior        float64
 	separation   float64
 	parallel     bool
@@ -129,6 +130,7 @@ DIR/truth.jsonl (the exact answers by id).`,
 	f.BoolVar(&o.fit, "fit", false, "fit β and the support-model constants instead of evaluating")
 	f.StringVar(&o.fitSeeds, "fit-seeds", "101,102,103,104,105", "world seeds for --fit")
 	f.Float64Var(&o.beta, "beta", router.DefaultConfig().Beta, "per-hop squared bias β of the Bayes model")
+	f.Float64Var(&o.hopAlpha, "hop-alpha", scorer.DefaultHopAlpha, "Dirichlet pseudo-count of a chain's hop tables")
 	f.Float64Var(&o.prior, "prior-strength", scorer.DefaultPriorStrength, "A: pseudo-count of the direct estimate's prior centred on the target's marginal")
 	f.Float64Var(&o.spread, "unseen-spread", scorer.DefaultUnseenSpread, "η: a never-seen pair's direct error is η·(1 − P(observed value))²·(1 − 1/K)")
 	f.Float64Var(&o.separation, "separation", scorer.DefaultSeparation, "λ: weight of the chain's separation bias (0: off)")
@@ -209,7 +211,7 @@ func runEval(cmd *cobra.Command, o evalOptions) error {
 	base := eval.Config{
 		World: &worlds[0], Contexts: o.contexts, Beta: &beta, MaxBridges: o.maxBridges, Workers: o.workers,
 		ModelOptions: []scorer.Option{
-			scorer.WithPriorStrength(o.prior), scorer.WithUnseenSpread(o.spread), scorer.WithSeparation(o.separation), scorer.WithNoiseK(o.noiseK), scorer.WithInfluence(o.influence),
+			scorer.WithHopAlpha(o.hopAlpha), scorer.WithPriorStrength(o.prior), scorer.WithUnseenSpread(o.spread), scorer.WithSeparation(o.separation), scorer.WithNoiseK(o.noiseK), scorer.WithInfluence(o.influence),
 		},
 		RouterOptions: []router.Option{
 			router.WithBeam(o.beam), router.WithFanOut(o.fanOut), router.WithMaxCandidates(o.candidates), router.WithGainThreshold(o.gainTau),

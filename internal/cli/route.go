@@ -42,6 +42,7 @@ type routeOptions struct {
 	maxCandidates    int
 	fanOut           int
 	alpha, beta      float64
+	hopAlpha         float64 // α of a chain's hop tables
 	prior, spread    float64 // A and η of the Bayes model's direct estimate
 	separation       float64 // λ of the separation bias
 	noiseK           float64 // k of the gain margin
@@ -155,6 +156,7 @@ about an unknown value (the entity's values) and an expired --timeout.`,
 	f.IntVar(&o.fanOut, "fan-out", def.FanOut, "f: second-layer neighbours per first-layer node")
 	f.IntVar(&o.maxCandidates, "max-candidates", def.MaxCandidates, "k: chains scored exactly")
 	f.Float64Var(&o.alpha, "alpha", def.Alpha, "Dirichlet pseudo-count α")
+	f.Float64Var(&o.hopAlpha, "hop-alpha", def.HopAlpha, "Dirichlet pseudo-count of a chain's hop tables (bayes)")
 	f.Float64Var(&o.beta, "beta", def.Beta, "per-hop squared bias β")
 	f.Float64Var(&o.prior, "prior-strength", def.PriorStrength, "A: pseudo-count of the direct estimate's prior centred on the target's marginal (bayes)")
 	f.Float64Var(&o.spread, "unseen-spread", def.UnseenSpread, "η: a never-seen pair's direct error is η·(1 − P(observed value))²·(1 − 1/K) (bayes)")
@@ -191,6 +193,7 @@ func routeConfig(cmd *cobra.Command, o routeOptions) (router.Config, error) {
 	set("fan-out", func() { c.FanOut = o.fanOut })
 	set("max-candidates", func() { c.MaxCandidates = o.maxCandidates })
 	set("alpha", func() { c.Alpha = o.alpha })
+	set("hop-alpha", func() { c.HopAlpha = o.hopAlpha })
 	set("beta", func() { c.Beta = o.beta })
 	set("prior-strength", func() { c.PriorStrength = o.prior })
 	set("unseen-spread", func() { c.UnseenSpread = o.spread })

@@ -260,6 +260,7 @@ func TestRouteModelFlags(t *testing.T) {
 	}{
 		{[]string{"--noise-k", "-1"}, `"noise_k"`},
 		{[]string{"--prior-strength", "0"}, `"prior_strength"`},
+		{[]string{"--hop-alpha", "0"}, `"hop_alpha"`},
 		{[]string{"--unseen-spread", "-0.5"}, `"unseen_spread"`},
 		{[]string{"--config", support, "--separation", "0"}, `"separation"`},
 	} {
