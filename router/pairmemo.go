@@ -570,7 +570,7 @@ func (sc *scratch) FetchPairs() { sc.fetch() }
 // with the Bayes model it keeps the signal bound the cost is −log of, too
 // (KnownSignalBound). O(model.EdgeCost).
 func (sc *scratch) edgeCost(e *memoEntry) float64 {
-	if sc.bayes != nil && !sc.alt {
+	if sc.bayes != nil {
 		e.cost, e.lb = sc.bayes.EdgeCostBound(e.ps)
 		e.lbOK = true
 		return e.cost
