@@ -803,8 +803,8 @@ func known(x float64) float64 {
 //
 // With probe set (indexFirstLayers has indexed both first layers), every
 // path is probed in the other side's first layer as it is written, and a
-// match is appended to the join list of its side (F2 ⋈ T1 to joinA, T2 ⋈
-// F1 to joinB) in layer order, as matchJoins would list it after the layer
+// match is appended to the join list of its side (F2 ⋈ T1 to joinA, F1 ⋈
+// T2 to joinB) in layer order, as matchJoins would list it after the layer
 // is built. The probes are work without a cache miss; here they run while
 // the loop waits for the ranked lists it reads, and the paths are not read
 // a second time.
