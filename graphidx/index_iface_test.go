@@ -11,6 +11,7 @@ import (
 var (
 	_ router.Graph            = (*graphidx.Index)(nil)
 	_ router.RankedPrefetcher = (*graphidx.Index)(nil)
+	_ router.EntityPrefetcher = (*graphidx.Index)(nil)
 	_ router.TwoLookuper      = (*graphidx.Index)(nil)
 	_ scorer.Stats            = (*graphidx.Index)(nil)
 )

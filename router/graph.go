@@ -23,7 +23,9 @@ import (
 // search; a wrapper should forward them too, and PrefetchRankedOffsets
 // with PrefetchRankedHeads (see RankedPrefetcher), which let the first
 // layers' ranked lists load while the direct estimate and the one-bridge
-// phase run, and LookupTwo (see TwoLookuper), which looks a query's two
+// phase run, PrefetchEntity (see EntityPrefetcher), which lets the
+// endpoints' records load as soon as their names are looked up, and
+// LookupTwo (see TwoLookuper), which looks a query's two
 // names up with overlapping cache misses. A third, AppendName (see NameAppender), spares the
 // per-bridge copy that Name makes. A fourth, Marginal (scorer.Marginals),
 // gives the Bayes model the target's marginal counts, toward which it

@@ -337,6 +337,24 @@ type RankedPrefetcher interface {
 	PrefetchRankedHeads(ids []graphidx.EntityID, n int)
 }
 
+// EntityPrefetcher is an optional interface of a Graph: PrefetchEntity
+// hints that the value count, the marginal and the first n entries of the
+// neighbour list and of the ranked list of id will soon be read, so that
+// their cache misses overlap the work before (*graphidx.Index implements it
+// with prefetch instructions). It may not change any answer of the graph.
+// The router calls it for a query's two endpoints as soon as their names
+// are looked up: the direct estimate and the one-bridge phase read those
+// records first. A wrapper around an Index should forward it.
+type EntityPrefetcher interface {
+	PrefetchEntity(id graphidx.EntityID, n int)
+}
+
+// endPrefetch is how many entries of an endpoint's neighbour list and
+// ranked list the router asks EntityPrefetcher to load: 8 cache lines of
+// each, the whole list of a typical entity and the head of the ranked
+// list that the first layer reads (B + 2 entries at the default beam).
+const endPrefetch = 128
+
 // want queues the unordered pair {a, b} for the next fetch unless the
 // memo already has it or the queue holds sc.pendMax pairs.
 // A pair with s or t on one side is named by its entry in that endpoint's
@@ -570,7 +588,7 @@ func (sc *scratch) FetchPairs() { sc.fetch() }
 // with the Bayes model it keeps the signal bound the cost is −log of, too
 // (KnownSignalBound). O(model.EdgeCost).
 func (sc *scratch) edgeCost(e *memoEntry) float64 {
-	if sc.bayes != nil && !sc.alt {
+	if sc.bayes != nil {
 		e.cost, e.lb = sc.bayes.EdgeCostBound(e.ps)
 		e.lbOK = true
 		return e.cost

@@ -37,6 +37,8 @@ type handle struct {
 	hp   HintedPairBatcher // g's hinted batch look-up, or nil
 	rb   RankedPairBatcher // g's ranked batch look-up, or nil
 	rpf  RankedPrefetcher  // g's ranked-list prefetch, or nil
+	epf  EntityPrefetcher  // g's entity-record prefetch, or nil
+	big  bool              // g has at least touchMinEntities entities (its records are not all in cache)
 	l2   TwoLookuper       // g's two-name look-up, or nil
 	na   NameAppender      // g's name append, or nil
 	rp   int               // g's RankPrefix, or 0
@@ -119,6 +121,8 @@ func (r *Router) newHandle(g Graph) *handle {
 	h.hp, _ = g.(HintedPairBatcher)
 	h.rb, _ = g.(RankedPairBatcher)
 	h.rpf, _ = g.(RankedPrefetcher)
+	h.epf, _ = g.(EntityPrefetcher)
+	h.big = g.NumEntities() >= touchMinEntities
 	h.l2, _ = g.(TwoLookuper)
 	h.na, _ = g.(NameAppender)
 	h.presence = scorer.PresenceOnly(g)
@@ -303,6 +307,12 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	}
 	if s == t {
 		return core{}, false, nil, fmt.Errorf("%w: %q and %q resolve to one entity", ErrSameEntity, q.From, q.To)
+	}
+	if h.epf != nil && h.big && (st.hooks == nil || !st.hooks.alt) {
+		// The endpoints' records load while the value is looked up and
+		// the scratch set up (EntityPrefetcher).
+		h.epf.PrefetchEntity(s, endPrefetch)
+		h.epf.PrefetchEntity(t, endPrefetch)
 	}
 	u, okU := g.ValueIndex(s, q.Value)
 	if !okU {

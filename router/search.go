@@ -229,6 +229,7 @@ type scratch struct {
 	// join matches (matchJoins)
 	f1ids, t1ids   idIndex  // layer-1 node → position
 	f1f, t1f       idFilter // the ids of f1ids, t1ids
+	joinFilt       bool     // the probes test f1f, t1f (indexFirstLayers)
 	rkSet          idIndex  // a ranked prefix (beyond)
 	extra, extra2  []graphidx.EntityID
 	sups           []uint64
@@ -799,13 +800,42 @@ func known(x float64) float64 {
 //
 // side (0 for s, 1 for t) names where the nodes' ranked lists and pair
 // hints are kept for the joins (want2).
-func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphidx.EntityID, live []bool, counts *[]int32, side int) (l []step2, ok, beamCut bool) {
+//
+// With probe set (indexFirstLayers has indexed both first layers), every
+// path is probed in the other side's first layer as it is written, and a
+// match is appended to the join list of its side (F2 ⋈ T1 to joinA, F1 ⋈
+// T2 to joinB) in layer order, as matchJoins would list it after the layer
+// is built. The probes are work without a cache miss; here they run while
+// the loop waits for the ranked lists it reads, and the paths are not read
+// a second time.
+func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphidx.EntityID, live []bool, counts *[]int32, side int, probe bool) (l []step2, ok, beamCut bool) {
 	out = out[:0]
 	ok = l1ok
 	f := sc.st.fanOut
 	cnt := (*counts)[:0]
 	starts := sc.starts[side][:0]
-	defer func() { *counts, sc.starts[side] = cnt, starts }()
+	// The other side's first layer (its index and filter) and this side's
+	// join list, for probe.
+	pix, pflt, joins := &sc.t1ids, &sc.t1f, sc.joinA
+	if side == 1 {
+		pix, pflt, joins = &sc.f1ids, &sc.f1f, sc.joinB
+	}
+	filt := sc.joinFilt
+	defer func() {
+		*counts, sc.starts[side] = cnt, starts
+		if probe {
+			// A node cut by the budget keeps only the paths it
+			// could pay for: so do the matches.
+			for len(joins) > 0 && int(uint32(joins[len(joins)-1].key)) >= len(out) {
+				joins = joins[:len(joins)-1]
+			}
+			if side == 0 {
+				sc.joinA = joins
+			} else {
+				sc.joinB = joins
+			}
+		}
+	}()
 	rks, hks := sc.rks[side][:0], sc.hks[side][:0]
 	for i, x := range l1 {
 		// A hub's first layer can hold 10⁵ nodes whose list offsets are
@@ -852,6 +882,11 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 				break
 			}
 			if !dead {
+				if probe && (!filt || pflt.has(uint64(y))) {
+					if yi, hit := pix.get(uint64(y)); hit {
+						joins = append(joins, jpair{key: uint64(y)<<32 | uint64(len(out)), end: yi})
+					}
+				}
 				out = append(out, step2{b: y, li: int32(i), r: int32(n)})
 			}
 			n++
@@ -884,6 +919,11 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 		}
 		extra, eok, ecut := sc.beyond(x.id, rk, f-n, from, other, x.id)
 		for _, y := range extra {
+			if probe && (!filt || pflt.has(uint64(y))) {
+				if yi, hit := pix.get(uint64(y)); hit {
+					joins = append(joins, jpair{key: uint64(y)<<32 | uint64(len(out)), end: yi})
+				}
+			}
 			out = append(out, step2{b: y, li: int32(i), r: int32(n)})
 			n++
 		}
@@ -1194,11 +1234,17 @@ func (sc *scratch) generate() searchResult {
 	sc.f1, f1ok, f1cut = sc.layer1(sc.f1, s, t)
 	sc.t1, t1ok, t1cut = sc.layer1(sc.t1, t, s)
 	liveF, liveT := sc.liveNodes()
-	sc.f2, f2ok, f2cut = sc.layer2(sc.f2, sc.f1, f1ok, s, t, liveF, &sc.nF2, 0)
-	sc.t2, t2ok, t2cut = sc.layer2(sc.t2, sc.t1, t1ok, t, s, liveT, &sc.nT2, 1)
+	// The two-bridge matches are found while the second layers are
+	// written (layer2's probe); the old way, after them, under alt.
+	inline, fired := !sc.alt, false
+	if inline {
+		fired = sc.indexFirstLayers()
+	}
+	sc.f2, f2ok, f2cut = sc.layer2(sc.f2, sc.f1, f1ok, s, t, liveF, &sc.nF2, 0, inline && !fired)
+	sc.t2, t2ok, t2cut = sc.layer2(sc.t2, sc.t1, t1ok, t, s, liveT, &sc.nT2, 1, inline && !fired)
 	sc.totF2, sc.totT2 = sumCounts(sc.nF2), sumCounts(sc.nT2)
 	skip3 := H < 3 || (sc.inc.ok && sc.bound(3) <= sc.inc.score)
-	sc.matchJoins(skip3)
+	sc.matchJoins(skip3, inline, fired)
 	sc.joinAll()
 
 	// A layer cut only by the budget counts as whole here: the budget cut
@@ -1213,6 +1259,44 @@ func (sc *scratch) generate() searchResult {
 	return sc.result(beamOK)
 }
 
+// indexFirstLayers resets the join lists and indexes the two first
+// layers for the two-bridge joins (f1ids, t1ids and their Bloom filters
+// f1f, t1f; joinFilt reports whether the filters are tested), before the
+// second layers are built, so that layer2 can probe every path as it
+// writes it. It reports whether the deadline fired meanwhile (then the
+// joins stay empty). The first layers hold 10⁵–10⁶ nodes for a hub, indexed
+// without a budget charge: the deadline is polled every pollEvery nodes.
+// O(|F1| + |T1|).
+func (sc *scratch) indexFirstLayers() (fired bool) {
+	f1, t1 := sc.f1, sc.t1
+	sc.joinA, sc.joinB, sc.joinC = sc.joinA[:0], sc.joinB[:0], sc.joinC[:0]
+	// The filters pay where most probes miss: a second-layer end is in
+	// the other first layer with odds about |layer|/N, so they are used
+	// when the index has at least filterMinRatio entities per first-layer
+	// node (on a dense index most probes hit, and a filter test is extra
+	// work on each).
+	sc.joinFilt = sc.g.NumEntities() >= filterMinRatio*max(len(f1), len(t1))
+	sc.f1ids.reset(len(f1))
+	sc.f1f.reset()
+	for i := range f1 {
+		if i%pollEvery == pollEvery-1 && sc.bud.poll() {
+			return true
+		}
+		sc.f1ids.put(uint64(f1[i].id), int32(i))
+		sc.f1f.add(uint64(f1[i].id))
+	}
+	sc.t1ids.reset(len(t1))
+	sc.t1f.reset()
+	for i := range t1 {
+		if i%pollEvery == pollEvery-1 && sc.bud.poll() {
+			return true
+		}
+		sc.t1ids.put(uint64(t1[i].id), int32(i))
+		sc.t1f.add(uint64(t1[i].id))
+	}
+	return false
+}
+
 // matchJoins lists the matches of the joins: F2 ⋈ T1 and F1 ⋈ T2 in layer
 // order, each with its key (b, position in F2 or T2), the order a
 // sort-merge of the id-sorted beams would meet them in, which joinAll uses
@@ -1224,62 +1308,67 @@ func (sc *scratch) generate() searchResult {
 // data-dependent branches mispredict about every other step); only the
 // three-bridge join sorts its few keys. O(B·f) expected plus O(M3·log M3)
 // for M3 three-bridge matches.
-func (sc *scratch) matchJoins(skip3 bool) {
-	f1, t1, f2, t2 := sc.f1, sc.t1, sc.f2, sc.t2
-	sc.joinA, sc.joinB, sc.joinC = sc.joinA[:0], sc.joinB[:0], sc.joinC[:0]
+//
+// With inline, indexFirstLayers indexed the first layers before the second
+// layers were built and layer2 listed the two-bridge matches (fired: the
+// deadline fired while indexing, and there are none); matchJoins then
+// polls the deadline as its own pass over the layers would, and lists the
+// three-bridge matches. Without inline it does all of it here, after the
+// second layers (the code before the tenth round, kept under alt).
+func (sc *scratch) matchJoins(skip3, inline, fired bool) {
+	f2, t2 := sc.f2, sc.t2
 	// The layers of a hub hold 10⁵–10⁶ entries, indexed here without a
 	// budget charge: poll the deadline, and join nothing once it fired.
-	fired := func(i int) bool {
-		if i%pollEvery == pollEvery-1 && sc.bud.poll() {
-			sc.joinA, sc.joinB, sc.joinC = sc.joinA[:0], sc.joinB[:0], sc.joinC[:0]
-			return true
-		}
-		return false
+	clearJoins := func() {
+		sc.joinA, sc.joinB, sc.joinC = sc.joinA[:0], sc.joinB[:0], sc.joinC[:0]
 	}
-	// The filters pay where most probes miss: a second-layer end is in
-	// the other first layer with odds about |layer|/N, so they are used
-	// when the index has at least filterMinRatio entities per first-layer
-	// node (on a dense index most probes hit, and a filter test is extra
-	// work on each).
-	filt := sc.g.NumEntities() >= filterMinRatio*max(len(f1), len(t1))
-	sc.f1ids.reset(len(f1))
-	sc.f1f.reset()
-	for i := range f1 {
-		if fired(i) {
+	if inline {
+		if fired {
+			clearJoins()
 			return
 		}
-		sc.f1ids.put(uint64(f1[i].id), int32(i))
-		sc.f1f.add(uint64(f1[i].id))
-	}
-	sc.t1ids.reset(len(t1))
-	sc.t1f.reset()
-	for i := range t1 {
-		if fired(i) {
+		for _, n := range [2]int{len(f2), len(t2)} {
+			for i := pollEvery - 1; i < n; i += pollEvery {
+				if sc.bud.poll() {
+					clearJoins()
+					return
+				}
+			}
+		}
+	} else {
+		if sc.indexFirstLayers() {
+			clearJoins()
 			return
 		}
-		sc.t1ids.put(uint64(t1[i].id), int32(i))
-		sc.t1f.add(uint64(t1[i].id))
-	}
-	for i := range f2 {
-		if fired(i) {
-			return
+		fired := func(i int) bool {
+			if i%pollEvery == pollEvery-1 && sc.bud.poll() {
+				clearJoins()
+				return true
+			}
+			return false
 		}
-		if filt && !sc.t1f.has(uint64(f2[i].b)) {
-			continue
+		filt := sc.joinFilt
+		for i := range f2 {
+			if fired(i) {
+				return
+			}
+			if filt && !sc.t1f.has(uint64(f2[i].b)) {
+				continue
+			}
+			if yi, ok := sc.t1ids.get(uint64(f2[i].b)); ok {
+				sc.joinA = append(sc.joinA, jpair{key: uint64(f2[i].b)<<32 | uint64(i), end: yi})
+			}
 		}
-		if yi, ok := sc.t1ids.get(uint64(f2[i].b)); ok {
-			sc.joinA = append(sc.joinA, jpair{key: uint64(f2[i].b)<<32 | uint64(i), end: yi})
-		}
-	}
-	for i := range t2 {
-		if fired(i) {
-			return
-		}
-		if filt && !sc.f1f.has(uint64(t2[i].b)) {
-			continue
-		}
-		if xi, ok := sc.f1ids.get(uint64(t2[i].b)); ok {
-			sc.joinB = append(sc.joinB, jpair{key: uint64(t2[i].b)<<32 | uint64(i), end: xi})
+		for i := range t2 {
+			if fired(i) {
+				return
+			}
+			if filt && !sc.f1f.has(uint64(t2[i].b)) {
+				continue
+			}
+			if xi, ok := sc.f1ids.get(uint64(t2[i].b)); ok {
+				sc.joinB = append(sc.joinB, jpair{key: uint64(t2[i].b)<<32 | uint64(i), end: xi})
+			}
 		}
 	}
 	if skip3 {

@@ -764,6 +764,14 @@ func (n noClose) PrefetchRankedHeads(ids []graphidx.EntityID, k int) {
 	}
 }
 
+// PrefetchEntity forwards to the graph's (router.EntityPrefetcher), or
+// does nothing (a hint).
+func (n noClose) PrefetchEntity(id graphidx.EntityID, k int) {
+	if ep, has := n.Graph.(router.EntityPrefetcher); has {
+		ep.PrefetchEntity(id, k)
+	}
+}
+
 // LookupTwo forwards to the graph's LookupTwo (router.TwoLookuper), or
 // looks the names up one after the other.
 func (n noClose) LookupTwo(a, b string) (graphidx.EntityID, bool, graphidx.EntityID, bool) {
