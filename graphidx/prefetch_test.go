@@ -56,6 +56,8 @@ func TestPrefetchRankedChangesNothing(t *testing.T) {
 		x.PrefetchRankedHeads(ids, k)
 		x.PrefetchRankedOffsets(nil)
 		x.PrefetchRankedHeads(nil, k)
+		x.PrefetchRankedTables(ids, k)
+		x.PrefetchRankedTables(nil, k)
 		PrefetchTables(ps, oks)
 		PrefetchTables(nil, nil)
 	}
@@ -71,4 +73,5 @@ func TestPrefetchRankedChangesNothing(t *testing.T) {
 	}
 	x.PrefetchRankedOffsets(ids) // a closed index holds nothing to load
 	x.PrefetchRankedHeads(ids, 4)
+	x.PrefetchRankedTables(ids, 4)
 }

@@ -326,6 +326,16 @@ type RankedPairBatcher interface {
 	PairBatchRanked(a, b []graphidx.EntityID, entry []uint32, out []graphidx.PairStats, ok []bool)
 }
 
+// RankedTablePrefetcher is an optional interface of a Graph: a hint that
+// pairs named by the first n entries of the ranked lists of ids will soon
+// be looked up by entry (RankedPairBatcher), so that what those look-ups
+// read first starts loading now (*graphidx.Index: the entries' stored
+// table references, with prefetch instructions). It may change no answer
+// of the graph. A wrapper around an Index should forward it.
+type RankedTablePrefetcher interface {
+	PrefetchRankedTables(ids []graphidx.EntityID, n int)
+}
+
 // RankedPrefetcher is an optional interface of a Graph: hints that the
 // ranked lists of some entities will soon be read, so that their cache
 // misses overlap the work before (*graphidx.Index implements it with
