@@ -58,6 +58,8 @@ func TestPrefetchRankedChangesNothing(t *testing.T) {
 		x.PrefetchRankedHeads(nil, k)
 		x.PrefetchRankedTables(ids, k)
 		x.PrefetchRankedTables(nil, k)
+		x.PrefetchRankedCounts(ids, k)
+		x.PrefetchRankedCounts(nil, k)
 		PrefetchTables(ps, oks)
 		PrefetchTables(nil, nil)
 	}
@@ -74,4 +76,5 @@ func TestPrefetchRankedChangesNothing(t *testing.T) {
 	x.PrefetchRankedOffsets(ids) // a closed index holds nothing to load
 	x.PrefetchRankedHeads(ids, 4)
 	x.PrefetchRankedTables(ids, 4)
+	x.PrefetchRankedCounts(ids, 4)
 }

@@ -326,14 +326,17 @@ type RankedPairBatcher interface {
 	PairBatchRanked(a, b []graphidx.EntityID, entry []uint32, out []graphidx.PairStats, ok []bool)
 }
 
-// RankedTablePrefetcher is an optional interface of a Graph: a hint that
+// RankedTablePrefetcher is an optional interface of a Graph: hints that
 // pairs named by the first n entries of the ranked lists of ids will soon
-// be looked up by entry (RankedPairBatcher), so that what those look-ups
-// read first starts loading now (*graphidx.Index: the entries' stored
-// table references, with prefetch instructions). It may change no answer
-// of the graph. A wrapper around an Index should forward it.
+// be looked up by entry (RankedPairBatcher) and read, so that what those
+// look-ups read starts loading now (*graphidx.Index, with prefetch
+// instructions: PrefetchRankedTables the entries' stored table
+// references, PrefetchRankedCounts, best after it, the pairs' count
+// tables). Neither may change any answer of the graph. A wrapper around an
+// Index should forward both.
 type RankedTablePrefetcher interface {
 	PrefetchRankedTables(ids []graphidx.EntityID, n int)
+	PrefetchRankedCounts(ids []graphidx.EntityID, n int)
 }
 
 // RankedPrefetcher is an optional interface of a Graph: hints that the
