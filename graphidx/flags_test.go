@@ -7,9 +7,9 @@ import "flag"
 // They are listed in DEVELOPERS.md; everything else that is heavy runs under
 // HOPWISE_STRESS=1 (internal/stress).
 var (
-	// update rewrites the golden writer outputs (TestGoldenIndexV2,
+	// update rewrites the golden writer outputs (TestGoldenIndexV3,
 	// TestStreamingWriterMatchesReference) from WriteFile.
-	update            = flag.Bool("update", false, "rewrite testdata/golden-v2.hwx and testdata/writer-v1.sha256 from WriteFile")
+	update            = flag.Bool("update", false, "rewrite testdata/golden-v3.hwx and testdata/writer-v1.sha256 from WriteFile")
 	benchCorpusFlag   = flag.String("bench-corpus", "", "TestWriteBenchCorpus: write the benchmark corpus to this file")
 	benchContextsFlag = flag.Int("bench-contexts", 2_000_000, "TestWriteBenchCorpus: contexts to write")
 	benchEntitiesFlag = flag.Int("bench-entities", 200_000, "TestWriteBenchCorpus: distinct entities")

@@ -11,20 +11,21 @@ const (
 	// Magic is the 8-byte file signature at offset 0.
 	Magic = "HWLOCIX\x00"
 	// FormatVersion is the only format version this package reads and
-	// writes. Version 2 added the ranked-pair-positions section; a
-	// version-1 file is refused with ErrVersion (rebuild it).
-	FormatVersion = 2
+	// writes. Version 2 added the ranked-pair-positions section, version 3
+	// the ranked-pair-tables section; an older file is refused with
+	// ErrVersion (rebuild it).
+	FormatVersion = 3
 
 	// DefaultRankPrefix is the default length of the support-ranked
 	// neighbour prefix stored per entity (WithRankPrefix).
 	DefaultRankPrefix = 64
 
-	// headerSize is the fixed size of a version-2 header, section table
+	// headerSize is the fixed size of a version-3 header, section table
 	// and header checksum included. Sections start at this offset.
-	headerSize = 520
+	headerSize = 544
 	// headerCRCOffset is where the header checksum (CRC-32C of bytes
 	// [0, headerCRCOffset)) is stored.
-	headerCRCOffset = 516
+	headerCRCOffset = 540
 	// tableOffset is where the section table starts.
 	tableOffset = 104
 	// tableEntrySize is the size of one section table entry.
@@ -35,7 +36,7 @@ const (
 	// flagUniformK marks an index whose entities all have the same number
 	// of values; it then carries no marginal or pair offset arrays.
 	flagUniformK = 1 << 0
-	// knownFlags is the set of flags version 2 defines.
+	// knownFlags is the set of flags version 3 defines.
 	knownFlags = flagUniformK
 )
 
@@ -57,7 +58,7 @@ const (
 	offRankPrefix = 84
 	offGeneration = 88
 	offFileSize   = 96
-	offReserved   = 512 // uint32, must be zero
+	offReserved   = 536 // uint32, must be zero
 )
 
 // Section identifiers; section i of the table has id i+1.
@@ -79,7 +80,8 @@ const (
 	secRankOffs              // uint64[n+1] offsets into secRank
 	secRank                  // uint32 support-ranked neighbour prefixes
 	secRankPos               // uint32 per secRank entry: the pair's position in lo's upper list
-	numSections   = secRankPos
+	secRankTab               // uint64 per secRank entry: the pair's table (rankTabRef)
+	numSections   = secRankTab
 )
 
 var sectionNames = [numSections + 1]string{
@@ -87,6 +89,32 @@ var sectionNames = [numSections + 1]string{
 	"valueset-offsets", "valueset-labels", "entity-valueset", "marginal-offsets",
 	"marginals", "neighbour-offsets", "neighbours", "pair-base", "pair-offsets",
 	"counts", "rank-offsets", "ranked-neighbours", "ranked-pair-positions",
+	"ranked-pair-tables",
+}
+
+// A ranked-pair-tables entry (section 18) names the count table of the
+// pair {i, y} of a ranked entry: bits 0–51 hold the index in the counts
+// section (in uint32 entries) of the table's first count, bits 52–57
+// K_lo−1 and bits 58–63 K_hi−1 (lo = min(i, y), hi = max(i, y)), so the
+// table is counts[start : start+K_lo·K_hi]. FORMAT.md, Ranked pair tables.
+const (
+	rankTabStartBits = 52
+	rankTabStartMask = 1<<rankTabStartBits - 1
+	// maxRankTabStart bounds the counts a version-3 file can address
+	// through its ranked pair tables (2⁵² entries, 16 PiB of counts).
+	maxRankTabStart = rankTabStartMask
+)
+
+// rankTabRef encodes a ranked-pair-tables entry: the table starting at
+// counts entry start of a pair whose lower entity has kLo values and upper
+// entity kHi (both 1..64; start ≤ maxRankTabStart).
+func rankTabRef(start uint64, kLo, kHi int) uint64 {
+	return start | uint64(kLo-1)<<rankTabStartBits | uint64(kHi-1)<<(rankTabStartBits+6)
+}
+
+// rankTabSplit decodes a ranked-pair-tables entry (rankTabRef).
+func rankTabSplit(r uint64) (start uint64, kLo, kHi int) {
+	return r & rankTabStartMask, int(r>>rankTabStartBits&63) + 1, int(r>>(rankTabStartBits+6)) + 1
 }
 
 // sectionName returns the human name of a section id.

@@ -101,6 +101,7 @@ type view struct {
 	rankOffs   []uint64
 	rank       []uint32
 	rankPos    []uint32 // parallel to rank: the pair's position in lo's upper list
+	rankTab    []uint64 // parallel to rank: the pair's table (rankTabRef)
 	maxK       int      // the largest K of any value set
 	// checked: every section and invariant was checked at open (parse
 	// with full), among them that every pair's table has K_lo·K_hi
@@ -283,7 +284,7 @@ func parse(data []byte, full bool) (*view, error) {
 	}
 	if ver := le.Uint32(data[offVersion:]); ver != FormatVersion {
 		if ver < FormatVersion {
-			return nil, corruptf(ErrVersion, "file has format version %d, this build reads %d; rebuild the index (hopwise build) to add the ranked pair positions", ver, FormatVersion)
+			return nil, corruptf(ErrVersion, "file has format version %d, this build reads %d; rebuild the index (hopwise build) to add the ranked pair tables", ver, FormatVersion)
 		}
 		return nil, corruptf(ErrVersion, "file has format version %d, this build reads %d", ver, FormatVersion)
 	}
@@ -398,6 +399,7 @@ func (v *view) checkHeader(size uint64) error {
 		{8 * (n + 1), 0},
 		{anyLen, 4},
 		{anyLen, 4}, // ranked pair positions: as long as the ranked neighbours, checked below
+		{anyLen, 8}, // ranked pair tables: twice as long, checked below
 	}
 	if v.uniform {
 		kk := uint64(v.k * v.k)
@@ -436,6 +438,9 @@ func (v *view) checkHeader(size uint64) error {
 	}
 	if r, rp := h.Sections[secRank-1].Length, h.Sections[secRankPos-1].Length; r != rp {
 		return corruptf(ErrSectionTable, "section %s has %d bytes, want %d (one entry per ranked neighbour)", sectionName(secRankPos), rp, r)
+	}
+	if r, rt := h.Sections[secRank-1].Length, h.Sections[secRankTab-1].Length; r > math.MaxUint64/2 || rt != 2*r {
+		return corruptf(ErrSectionTable, "section %s has %d bytes, want %d (8 bytes per ranked neighbour)", sectionName(secRankTab), rt, 2*r)
 	}
 	return nil
 }
@@ -483,6 +488,7 @@ func (v *view) decode() {
 	v.rankOffs = asU64s(v.section(secRankOffs))
 	v.rank = asU32s(v.section(secRank))
 	v.rankPos = asU32s(v.section(secRankPos))
+	v.rankTab = asU64s(v.section(secRankTab))
 }
 
 // checkLabels validates the label dictionary and value sets and builds the
@@ -1207,14 +1213,15 @@ func (v *view) tables(a, b []EntityID, q []uint64, found []bool, out []PairStats
 // a) names the pair by its place in a ranked list: b[i] is
 // RankedNeighbors(a[i])[entry[i]], or entry[i] is NoPairHint. The answer
 // is always what Pair(a[i], b[i]) returns: an entry that does not hold
-// b[i] is ignored (the pair is searched). A named entry gives the pair's
-// stored position (RankedPairHints); on an index opened with the full check
-// (Open without WithLazyVerify), which checked every stored position, the
-// look-up then reads only the lower entity's pair base, the table's offsets
-// and the table: no adjacency offsets and no list entry, one dependent
-// cache miss fewer than PairBatchHinted, for ranked lists the caller has
-// just read (they are in cache). Opened WithLazyVerify, the position is
-// checked as PairBatchHinted checks it. No allocation.
+// b[i] is ignored (the pair is searched), so a caller cannot get another
+// pair's table by naming a wrong entry. On an index opened with the full
+// check (Open without WithLazyVerify), which checked every stored table
+// reference, a named entry's look-up reads only the pair's table reference
+// (section ranked-pair-tables, beside the ranked entry the caller has just
+// read) and the table: no adjacency offsets, list entry, pair base or
+// table offsets. Opened WithLazyVerify, the table references are not used:
+// the stored position (RankedPairHints) is checked as PairBatchHinted
+// checks it. No allocation.
 func (x *Index) PairBatchRanked(a, b []EntityID, entry []uint32, out []PairStats, ok []bool) {
 	x.v.Load().pairBatchRanked(a, b, entry[:len(a)], out, ok)
 }
@@ -1222,14 +1229,82 @@ func (x *Index) PairBatchRanked(a, b []EntityID, entry []uint32, out []PairStats
 func (v *view) pairBatchRanked(a, b []EntityID, entry []uint32, out []PairStats, ok []bool) {
 	n := len(a)
 	b, out, ok = b[:n], out[:n], ok[:n]
+	// The table references are trusted only when Open checked them all.
+	trusted := v.checked && len(v.rankTab) == len(v.rank)
+	if !trusted {
+		v.pairBatchPositions(a, b, entry, out, ok)
+		return
+	}
+	counts := v.counts
 	for s0 := 0; s0 < n; s0 += pairBatchWidth {
 		w := min(pairBatchWidth, n-s0)
 		var (
-			hint [pairBatchWidth]uint32 // stored position, NoPairHint
-			q    [pairBatchWidth]uint64 // pair index of a trusted position
-			rest int                    // pairs left to pairBatch
+			ref  [pairBatchWidth]uint64 // table reference of a named entry
+			at   [pairBatchWidth]int    // pairs left to pairBatch
+			rest int
 		)
-		// Entries to positions, from the ranked lists (in cache).
+		// Named entries to table references, from the ranked lists (in
+		// cache): the only read of the index the look-up waits for
+		// besides the table itself.
+		for j := 0; j < w; j++ {
+			i := s0 + j
+			ref[j] = math.MaxUint64
+			e := entry[i]
+			if e == NoPairHint || uint64(a[i]) >= v.n {
+				continue
+			}
+			s, t, okS := span(v.rankOffs, uint64(a[i]), len(v.rank))
+			if okS && uint64(e) < uint64(t-s) && v.rank[s+int(e)] == b[i] {
+				ref[j] = v.rankTab[s+int(e)]
+			}
+		}
+		for j := 0; j < w; j++ {
+			i := s0 + j
+			out[i], ok[i] = PairStats{}, false
+			if ref[j] == math.MaxUint64 {
+				at[rest] = i
+				rest++
+				continue
+			}
+			st, kLo, kHi := rankTabSplit(ref[j])
+			en := st + uint64(kLo*kHi)
+			if en > uint64(len(counts)) {
+				continue // cannot happen on a checked index; bounds kept
+			}
+			ka, kb, swapped := kLo, kHi, a[i] > b[i]
+			if swapped {
+				ka, kb = kHi, kLo
+			}
+			out[i], ok[i] = newStoredPairStats(a[i], b[i], ka, kb, counts[st:en:en], swapped), true
+		}
+		// The others (no entry named, or a wrong one) are searched, in
+		// one batch.
+		if rest > 0 {
+			var (
+				ra, rb [pairBatchWidth]EntityID
+				ro     [pairBatchWidth]PairStats
+				rok    [pairBatchWidth]bool
+			)
+			for k := 0; k < rest; k++ {
+				ra[k], rb[k] = a[at[k]], b[at[k]]
+			}
+			v.pairBatch(ra[:rest], rb[:rest], nil, ro[:rest], rok[:rest])
+			for k := 0; k < rest; k++ {
+				out[at[k]], ok[at[k]] = ro[k], rok[k]
+			}
+		}
+	}
+}
+
+// pairBatchPositions is pairBatchRanked through the stored pair positions
+// (section ranked-pair-positions), each checked against the lower entity's
+// upper list (PairBatchHinted): the path of an index opened WithLazyVerify,
+// whose table references were not checked.
+func (v *view) pairBatchPositions(a, b []EntityID, entry []uint32, out []PairStats, ok []bool) {
+	n := len(a)
+	for s0 := 0; s0 < n; s0 += pairBatchWidth {
+		w := min(pairBatchWidth, n-s0)
+		var hint [pairBatchWidth]uint32 // stored position, NoPairHint
 		for j := 0; j < w; j++ {
 			i := s0 + j
 			hint[j] = NoPairHint
@@ -1242,44 +1317,7 @@ func (v *view) pairBatchRanked(a, b []EntityID, entry []uint32, out []PairStats,
 				hint[j] = v.rankPos[s+int(e)]
 			}
 		}
-		if !v.checked {
-			v.pairBatch(a[s0:s0+w], b[s0:s0+w], hint[:w], out[s0:s0+w], ok[s0:s0+w])
-			continue
-		}
-		// Trusted positions: the pair base of the lower entity.
-		var found [pairBatchWidth]bool
-		for j := 0; j < w; j++ {
-			i := s0 + j
-			lo := min(a[i], b[i])
-			if hint[j] == NoPairHint || uint64(lo)+1 >= uint64(len(v.pairBase)) {
-				hint[j] = NoPairHint
-				rest++
-				continue
-			}
-			q[j], found[j] = v.pairBase[lo]+uint64(hint[j]), true
-		}
-		v.tables(a[s0:s0+w], b[s0:s0+w], q[:w], found[:w], out[s0:s0+w], ok[s0:s0+w])
-		// The others (no entry named, or a wrong one) are searched, in
-		// one batch.
-		if rest > 0 {
-			var (
-				ra, rb [pairBatchWidth]EntityID
-				ro     [pairBatchWidth]PairStats
-				rok    [pairBatchWidth]bool
-				at     [pairBatchWidth]int
-			)
-			m := 0
-			for j := 0; j < w; j++ {
-				if i := s0 + j; hint[j] == NoPairHint {
-					ra[m], rb[m], at[m] = a[i], b[i], i
-					m++
-				}
-			}
-			v.pairBatch(ra[:m], rb[:m], nil, ro[:m], rok[:m])
-			for k := 0; k < m; k++ {
-				out[at[k]], ok[at[k]] = ro[k], rok[k]
-			}
-		}
+		v.pairBatch(a[s0:s0+w], b[s0:s0+w], hint[:w], out[s0:s0+w], ok[s0:s0+w])
 	}
 }
 

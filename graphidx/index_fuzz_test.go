@@ -83,6 +83,10 @@ func FuzzOpenResealed(f *testing.F) {
 		f.Add(b, uint16(len(b)-1), byte(1))
 		f.Add(b, uint16(headerSize+3), byte(0x80))
 		f.Add(b, uint16(offPairs), byte(1))
+		rt := decodeHeader(b).Sections[secRankTab-1]
+		f.Add(b, uint16(rt.Offset), byte(1))      // a table reference's start
+		f.Add(b, uint16(rt.Offset+6), byte(0x10)) // its K_lo
+		f.Add(b, uint16(rt.Offset+7), byte(0xf0)) // its K_hi
 	}
 	f.Fuzz(func(t *testing.T, data []byte, pos uint16, mask byte) {
 		data = append([]byte(nil), data...)
@@ -118,6 +122,9 @@ func FuzzOpenResealed(f *testing.F) {
 				for id := range x.NumEntities() {
 					if j := ixHintedDisagree(x, EntityID(id)); j >= 0 {
 						t.Fatalf("entity %d, ranked neighbour %d: hinted look-up differs from Pair on a verified file", id, j)
+					}
+					if j := ixRankedDisagree(x, EntityID(id)); j >= 0 {
+						t.Fatalf("entity %d, ranked entry %d: look-up by ranked entry differs from Pair on a verified file (full open %v)", id, j, full)
 					}
 				}
 			}

@@ -267,6 +267,7 @@ func ixExercise(x *Index) {
 		}
 		x.Pair(id, EntityID(n-1-i))
 		ixHintedDisagree(x, id)
+		ixRankedDisagree(x, id)
 	}
 	x.Lookup("zzz")
 	x.Lookup("")

@@ -3,10 +3,12 @@ package graphidx
 import (
 	"errors"
 	"fmt"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
 	"testing"
+	"unsafe"
 )
 
 // TestRankedPairHints: every stored hint names its pair's position in the
@@ -109,4 +111,114 @@ func TestRankedPairHintCorrupt(t *testing.T) {
 			x.Close()
 		}
 	}
+}
+
+// ixRankedDisagree returns the first ranked entry j of id whose look-up by
+// PairBatchRanked differs from Pair, or -1.
+func ixRankedDisagree(x *Index, id EntityID) int {
+	rk := x.RankedNeighbors(id)
+	a, ent := make([]EntityID, len(rk)), make([]uint32, len(rk))
+	for j := range a {
+		a[j], ent[j] = id, uint32(j)
+	}
+	out, ok := make([]PairStats, len(rk)), make([]bool, len(rk))
+	x.PairBatchRanked(a, rk, ent, out, ok)
+	for j, y := range rk {
+		want, wok := x.Pair(id, y)
+		if ok[j] != wok || !ixSamePair(out[j], want) {
+			return j
+		}
+	}
+	return -1
+}
+
+// TestRankedPairTableCorrupt: a wrong ranked pair table reference (section
+// ranked-pair-tables) is an error of Open and Verify that names the file
+// and the entry's file offset; opened WithLazyVerify, where the references
+// are not used, every look-up by ranked entry still answers as Pair does.
+// Every entry of the section is damaged in turn, four ways (another start,
+// a start past the counts, another K, all bits set), checksums resealed as
+// a crafted file would be. And a view that trusts damaged references (as
+// if they had been checked) still never reads outside the counts: every
+// look-up returns a table inside the section or none, without a panic.
+func TestRankedPairTableCorrupt(t *testing.T) {
+	t.Parallel()
+	good := ixReadFile(t, ixWriteTemp(t, ixRandomSource(60, 8, 2, 5), WithRankPrefix(3)))
+	h := decodeHeader(good)
+	sec := h.Sections[secRankTab-1]
+	dir := t.TempDir()
+	damage := []struct {
+		name string
+		f    func(r uint64) uint64
+	}{
+		{"start+1", func(r uint64) uint64 { return r + 1 }},
+		{"pastCounts", func(r uint64) uint64 { return r + 1<<40 }},
+		{"kLo", func(r uint64) uint64 { return r ^ 1<<rankTabStartBits }},
+		{"ones", func(uint64) uint64 { return math.MaxUint64 }},
+	}
+	for e := uint64(0); e < sec.Length/8; e++ {
+		for _, d := range damage {
+			b := append([]byte(nil), good...)
+			off := sec.Offset + 8*e
+			le.PutUint64(b[off:], d.f(le.Uint64(b[off:])))
+			ixResealSection(b, secRankTab)
+			path := filepath.Join(dir, fmt.Sprintf("e%d-%s.hwx", e, d.name))
+			if err := os.WriteFile(path, b, 0o644); err != nil {
+				t.Fatal(err)
+			}
+			_, err := Open(path)
+			wantOff := fmt.Sprintf("file offset %d:", off)
+			if !errors.Is(err, ErrCorrupt) || !strings.Contains(err.Error(), path) || !strings.Contains(err.Error(), wantOff) {
+				t.Fatalf("entry %d %s: Open = %v, want ErrCorrupt naming %s and %q", e, d.name, err, path, wantOff)
+			}
+			x, err := Open(path, WithLazyVerify())
+			if err != nil {
+				t.Fatalf("entry %d %s: lazy open: %v", e, d.name, err)
+			}
+			if err := x.Verify(); !errors.Is(err, ErrCorrupt) || !strings.Contains(err.Error(), wantOff) {
+				t.Fatalf("entry %d %s: Verify = %v, want ErrCorrupt naming %q", e, d.name, err, wantOff)
+			}
+			for i := range x.NumEntities() {
+				if j := ixRankedDisagree(x, EntityID(i)); j >= 0 {
+					t.Fatalf("entry %d %s: entity %d, ranked entry %d: look-up by entry differs from Pair", e, d.name, i, j)
+				}
+			}
+			x.Close()
+			// Trusted although damaged: bounds only.
+			v, err := parse(b, false)
+			if err != nil {
+				t.Fatalf("entry %d %s: lazy parse: %v", e, d.name, err)
+			}
+			v.checked = true
+			y := &Index{}
+			y.v.Store(v)
+			for i := range y.NumEntities() {
+				rk := y.RankedNeighbors(EntityID(i))
+				a, ent := make([]EntityID, len(rk)), make([]uint32, len(rk))
+				for j := range a {
+					a[j], ent[j] = EntityID(i), uint32(j)
+				}
+				out, ok := make([]PairStats, len(rk)), make([]bool, len(rk))
+				y.PairBatchRanked(a, rk, ent, out, ok)
+				for j := range rk {
+					if !ok[j] {
+						continue
+					}
+					if p := out[j]; p.KA < 1 || p.KB < 1 || len(p.counts) != p.KA*p.KB ||
+						!ixWithin(p.counts, v.counts) {
+						t.Fatalf("entry %d %s: entity %d, ranked entry %d: table outside the counts", e, d.name, i, j)
+					}
+				}
+			}
+		}
+	}
+}
+
+// ixWithin reports whether the non-empty slice s lies inside all.
+func ixWithin(s, all []uint32) bool {
+	if len(s) == 0 || len(all) == 0 {
+		return len(s) == 0
+	}
+	p, lo := uintptr(unsafe.Pointer(&s[0])), uintptr(unsafe.Pointer(&all[0]))
+	return p >= lo && p+uintptr(4*len(s)) <= lo+uintptr(4*len(all))
 }

@@ -5,6 +5,7 @@ import (
 	"context"
 	"errors"
 	"hash/crc32"
+	"math"
 	"os"
 	"path/filepath"
 	"slices"
@@ -324,6 +325,31 @@ func ixResealSection(b []byte, id int) {
 	ixResealHeader(b)
 }
 
+// TestRankTabSectionShort: a file whose ranked-pair-tables section has 4
+// bytes per ranked entry instead of 8 (the file cut to match, every
+// checksum and the generation resealed) is rejected with ErrSectionTable
+// by the lazy open too, before any look-up could read past the section.
+func TestRankTabSectionShort(t *testing.T) {
+	t.Parallel()
+	good := ixReadFile(t, ixWriteTemp(t, ixSourceFromContexts(ixGreenhouse())))
+	e := good[tableOffset+(secRankTab-1)*tableEntrySize:]
+	rank := decodeHeader(good).Sections[secRank-1].Length
+	if rank == 0 {
+		t.Fatal("no ranked entries")
+	}
+	le.PutUint64(e[8:], rank)
+	size := le.Uint64(e) + rank
+	b := slices.Clone(good[:size])
+	le.PutUint64(b[offFileSize:], size)
+	ixResealSection(b, secRankTab)
+	for _, full := range []bool{false, true} {
+		_, err := parse(b, full)
+		if !errors.Is(err, ErrSectionTable) || !strings.Contains(err.Error(), "ranked-pair-tables") {
+			t.Errorf("full %v: err = %v, want ErrSectionTable naming ranked-pair-tables", full, err)
+		}
+	}
+}
+
 // TestBadSectionTable: a right-size file whose section table lies, with
 // valid checksums, is rejected with ErrSectionTable.
 func TestBadSectionTable(t *testing.T) {
@@ -401,6 +427,10 @@ func TestStructurallyInvalid(t *testing.T) {
 		{"pairOffsets", secPairOffs, func(s []byte) { le.PutUint64(s[8:], le.Uint64(s[8:])+1) }},
 		{"rankPosRange", secRankPos, func(s []byte) { le.PutUint32(s, 1000) }},
 		{"rankPosWrong", secRankPos, func(s []byte) { le.PutUint32(s, le.Uint32(s)+1) }},
+		{"rankTabRange", secRankTab, func(s []byte) { le.PutUint64(s, le.Uint64(s)+1<<40) }},
+		{"rankTabWrong", secRankTab, func(s []byte) { le.PutUint64(s, le.Uint64(s)+1) }},
+		{"rankTabK", secRankTab, func(s []byte) { le.PutUint64(s, le.Uint64(s)^1<<52) }},
+		{"rankTabOnes", secRankTab, func(s []byte) { le.PutUint64(s, math.MaxUint64) }},
 	} {
 		b := slices.Clone(good)
 		tc.f(sec(b, tc.id))

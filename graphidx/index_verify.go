@@ -214,6 +214,9 @@ func (v *view) checkStructure(ctx context.Context) error {
 		if err := v.checkRankPos(i, s, pre); err != nil {
 			return err
 		}
+		if err := v.checkRankTab(i, s, pre); err != nil {
+			return err
+		}
 	}
 	return nil
 }
@@ -236,6 +239,35 @@ func (v *view) checkRankPos(i uint64, s int, pre []EntityID) error {
 			off := v.h.Sections[secRankPos-1].Offset + 4*uint64(s+j)
 			return corruptf(ErrCorrupt, "section %s at file offset %d: entity %d, ranked neighbour %d: position %d does not hold the pair (%d, %d)",
 				sectionName(secRankPos), off, i, id, p, lo, hi)
+		}
+	}
+	return nil
+}
+
+// checkRankTab checks the ranked pair tables of entity i, whose ranked
+// prefix pre starts at entry s: entry j must name the count table of the
+// pair {i, pre[j]} and the value counts of its lower and upper entity
+// (rankTabRef). It runs after checkRankPos, so the pair's stored position
+// is known to be right. A wrong entry is reported with its file offset.
+// O(len(pre)).
+func (v *view) checkRankTab(i uint64, s int, pre []EntityID) error {
+	if len(v.rankTab) != len(v.rank) {
+		return corruptf(ErrCorrupt, "%d ranked pair tables for %d ranked neighbours", len(v.rankTab), len(v.rank))
+	}
+	for j, id := range pre {
+		lo, hi := EntityID(i), id
+		if hi < lo {
+			lo, hi = hi, lo
+		}
+		_, base := v.upperNeighbors(lo)
+		st, en := v.tableSpan(base + uint64(v.rankPos[s+j]))
+		kLo, kHi := v.numValues(lo), v.numValues(hi)
+		got := v.rankTab[s+j]
+		if kLo == 0 || kHi == 0 || en < st || en-st != uint64(kLo*kHi) || st > maxRankTabStart || got != rankTabRef(st, kLo, kHi) {
+			off := v.h.Sections[secRankTab-1].Offset + 8*uint64(s+j)
+			gs, gl, gh := rankTabSplit(got)
+			return corruptf(ErrCorrupt, "section %s at file offset %d: entity %d, ranked neighbour %d: table at count %d of %d×%d does not name the pair (%d, %d)'s table at count %d of %d×%d",
+				sectionName(secRankTab), off, i, id, gs, gl, gh, lo, hi, st, kLo, kHi)
 		}
 	}
 	return nil

@@ -82,6 +82,67 @@ func (x *Index) PrefetchRankedHeads(ids []EntityID, n int) {
 	pb.flush()
 }
 
+// PrefetchRankedTables tells the index that pairs named by the first n
+// entries of the ranked lists of ids will soon be looked up with
+// PairBatchRanked: it starts loading those entries' table references
+// (section ranked-pair-tables), every cache line they span, without
+// waiting for them (amd64 and arm64; elsewhere nothing). Only on an index
+// checked at open, the only kind whose references PairBatchRanked reads.
+// It reads the lists' offsets (best when they are in cache), changes no
+// answer and never fails; ids out of range are skipped. O(len(ids)·n/8).
+func (x *Index) PrefetchRankedTables(ids []EntityID, n int) {
+	v := x.v.Load()
+	if !canPrefetch || n <= 0 || !v.checked || len(v.rankTab) != len(v.rank) {
+		return
+	}
+	const perLine = 8 // references per 64-byte cache line
+	var pb prefetchBatch
+	for _, id := range ids {
+		s, e, ok := span(v.rankOffs, uint64(id), len(v.rankTab))
+		if !ok || s == e {
+			continue
+		}
+		// Addresses 64 bytes apart from the first entry hit every line up
+		// to the last step; the last entry covers the line after it.
+		e = min(e, s+n)
+		for k := s; k < e; k += perLine {
+			pb.add(unsafe.Pointer(&v.rankTab[k]))
+		}
+		if (e-1-s)%perLine != 0 {
+			pb.add(unsafe.Pointer(&v.rankTab[e-1]))
+		}
+	}
+	pb.flush()
+}
+
+// PrefetchRankedCounts tells the index that the pairs named by the first
+// n entries of the ranked lists of ids will soon be read: it reads those
+// entries' table references (best after PrefetchRankedTables, when they
+// are in cache) and starts loading the first cache line of each pair's
+// count table without waiting for it (amd64 and arm64; elsewhere
+// nothing). Only on an index checked at open; a reference past the counts
+// is skipped. It changes no answer and never fails; ids out of range are
+// skipped. O(len(ids)·n).
+func (x *Index) PrefetchRankedCounts(ids []EntityID, n int) {
+	v := x.v.Load()
+	if !canPrefetch || n <= 0 || !v.checked || len(v.rankTab) != len(v.rank) {
+		return
+	}
+	var pb prefetchBatch
+	for _, id := range ids {
+		s, e, ok := span(v.rankOffs, uint64(id), len(v.rankTab))
+		if !ok || s == e {
+			continue
+		}
+		for _, r := range v.rankTab[s:min(e, s+n)] {
+			if st, _, _ := rankTabSplit(r); st < uint64(len(v.counts)) {
+				pb.add(unsafe.Pointer(&v.counts[st]))
+			}
+		}
+	}
+	pb.flush()
+}
+
 // PrefetchTables starts loading the count table of each ps[i] with ok[i]
 // (ok at least as long as ps) into the CPU cache, without waiting for it
 // (amd64 and arm64; elsewhere nothing): for a caller that has just looked

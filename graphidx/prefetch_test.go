@@ -69,6 +69,10 @@ func prefetchChangesNothing(t *testing.T, values int) {
 		x.PrefetchRankedHeads(ids, k)
 		x.PrefetchRankedOffsets(nil)
 		x.PrefetchRankedHeads(nil, k)
+		x.PrefetchRankedTables(ids, k)
+		x.PrefetchRankedTables(nil, k)
+		x.PrefetchRankedCounts(ids, k)
+		x.PrefetchRankedCounts(nil, k)
 		PrefetchTables(ps, oks)
 		PrefetchTables(nil, nil)
 		for _, id := range ids {
@@ -89,4 +93,6 @@ func prefetchChangesNothing(t *testing.T, values int) {
 	x.PrefetchRankedOffsets(ids) // a closed index holds nothing to load
 	x.PrefetchRankedHeads(ids, 4)
 	x.PrefetchEntity(0, 4)
+	x.PrefetchRankedTables(ids, 4)
+	x.PrefetchRankedCounts(ids, 4)
 }

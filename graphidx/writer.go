@@ -68,9 +68,9 @@ const DefaultWriteMemory = 64 << 20
 // arrays in memory and streams everything that grows with the number of
 // pairs: the count tables go straight to the file, and the adjacency is
 // assembled in buckets of consecutive entities whose edges take at most
-// bytes (16 bytes per directed edge: a neighbour id, a support and the
-// pair's position), the buckets after the first spooled to a temporary
-// file next to the output (20 bytes per edge). A single entity whose edges need more than bytes
+// bytes (24 bytes per directed edge: a neighbour id, a support, the
+// pair's position and its table's start), the buckets after the first
+// spooled to a temporary file next to the output (28 bytes per edge). A single entity whose edges need more than bytes
 // gets a bucket of its own, and a bucket may always hold E/4096 edges (E
 // directed edges), which keeps the buckets under about 8200 and their spool
 // buffers (4–256 KiB each, together about a quarter of bytes when that is
@@ -143,7 +143,7 @@ func CheckOutput(path string) error {
 // (or one entity's degree, if larger), and about 1 MiB of write buffers
 // plus 4–256 KiB per spooled bucket; nothing grows with the number of
 // pairs. Disk: the output plus, when the adjacency needs more than one
-// bucket, a spool of 20 bytes per directed edge outside the first bucket,
+// bucket, a spool of 28 bytes per directed edge outside the first bucket,
 // removed before WriteFile returns (on Unix it is unlinked at once, so not
 // even a crash leaves it; elsewhere its name starts with TempPrefix(path)
 // and the pid, like the temporary output). Time: O(V + P + E·log(deg))

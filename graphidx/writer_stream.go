@@ -27,27 +27,29 @@ import (
 //     (neighbour id, support) to the adjacency bucket of its owner: a
 //     bucket is a run of consecutive entities whose edges fit in
 //     WithWriteMemory. The first bucket is filled in memory, the others
-//     are spooled to a temporary file as 20-byte records (position in the
+//     are spooled to a temporary file as 28-byte records (position in the
 //     bucket, neighbour, support, the pair's position in its lower
-//     entity's upper list) at per-bucket regions;
+//     entity's upper list, the first count of its table) at per-bucket
+//     regions;
 //  3. bucket by bucket, in entity order, the edges are put in place (the
 //     CSR positions are known from the degrees, and the pair order puts
 //     each entity's lower neighbours before its upper ones, both
 //     ascending), appended to the neighbours section, and each entity's
 //     support ranking is appended to the ranked-neighbours section, the
-//     pair positions of its entries to the ranked-pair-positions section.
+//     pair positions of its entries to the ranked-pair-positions section
+//     and their table references to the ranked-pair-tables section.
 //
 // Sections 1–16 hold exactly the bytes of the in-memory version-1 writer
 // this replaced (TestStreamingWriterMatchesReference pins them); version 2
-// added section 17.
+// added section 17, version 3 section 18.
 
 // Buffer sizes of the section and spool writers.
 const (
 	smallSectionBuf = 32 << 10
 	bigSectionBuf   = 256 << 10
 	maxAdjBuckets   = 4096
-	adjEdgeBytes    = 16 // a neighbour id, a support and a pair position in a bucket
-	spoolRecBytes   = 20 // position in the bucket, neighbour id, support, pair position
+	adjEdgeBytes    = 24 // a neighbour id, a support, a pair position and a table start in a bucket
+	spoolRecBytes   = 28 // position in the bucket, neighbour id, support, pair position, table start
 )
 
 // secOut writes one section at its offset in the file: a staging buffer
@@ -175,6 +177,7 @@ func (p *plan) layout() uint64 {
 	length[secRankOffs] = 8 * uint64(len(p.rankOffs))
 	length[secRank] = 4 * p.rankOffs[n]
 	length[secRankPos] = 4 * p.rankOffs[n]
+	length[secRankTab] = 8 * p.rankOffs[n]
 	pos := uint64(headerSize)
 	for id := 1; id <= numSections; id++ {
 		pos = align8(pos)
@@ -187,6 +190,9 @@ func (p *plan) layout() uint64 {
 // write writes the whole file to f (see the comment at the top of this
 // file); spoolPath names the adjacency spool if one is needed.
 func (p *plan) write(f *os.File, spoolPath string, src Source) error {
+	if p.cells > maxRankTabStart {
+		return fmt.Errorf("graphidx: %d counts exceed the %d a format-version-%d file can address", p.cells, uint64(maxRankTabStart), FormatVersion)
+	}
 	size := p.layout()
 	h := &p.h
 	// A zero header until the real one is written last (FORMAT.md, Writing).
@@ -264,6 +270,7 @@ func (p *plan) pairPass(f *os.File, spoolPath string, src Source, a *adjacency) 
 	}
 	var (
 		q, cell, fp  uint64
+		start        uint64 // the pair's first count in the counts section
 		prevA, prevB uint32
 	)
 	differs := func() error { return sourceErrorf("second Pairs pass differs from the first at pair %d", q) }
@@ -281,12 +288,13 @@ func (p *plan) pairPass(f *os.File, spoolPath string, src Source, a *adjacency) 
 		fp = pairPrint(fp, lo, hi, sup)
 		// The pair's position in lo's upper list, for both directed edges.
 		upPos := uint32(upCur[lo] - p.nbrOffs[lo] - p.lowerDeg(lo))
-		if err := a.put(upCur[lo], hi, sup, upPos); err != nil {
+		if err := a.put(upCur[lo], hi, sup, upPos, start); err != nil {
 			return err
 		}
-		if err := a.put(lowCur[hi], lo, sup, upPos); err != nil {
+		if err := a.put(lowCur[hi], lo, sup, upPos, start); err != nil {
 			return err
 		}
+		start += uint64(len(r.Counts))
 		upCur[lo]++
 		lowCur[hi]++
 		counts.u32s(r.Counts)
@@ -335,6 +343,7 @@ type adjacency struct {
 	nbr   []uint32 // the current bucket's neighbour ids, by position in the bucket
 	sup   []uint64 // and supports
 	upPos []uint32 // and the pair's position in its lower entity's upper list
+	tab   []uint64 // and the first count of the pair's table
 	// The spool holds buckets 1..nb-1; bucket b's records start at byte
 	// spoolRecBytes·(edge[b] − edge[1]).
 	spool    *os.File
@@ -375,6 +384,7 @@ func newAdjacency(p *plan) *adjacency {
 	a.nbr = make([]uint32, largest)
 	a.sup = make([]uint64, largest)
 	a.upPos = make([]uint32, largest)
+	a.tab = make([]uint64, largest)
 	return a
 }
 
@@ -406,10 +416,11 @@ func (a *adjacency) start(path string) error {
 }
 
 // put hands over the directed edge at CSR position pos, whose pair sits
-// at position upPos of its lower entity's upper list.
-func (a *adjacency) put(pos uint64, id uint32, sup uint64, upPos uint32) error {
+// at position upPos of its lower entity's upper list and whose table
+// starts at count tab.
+func (a *adjacency) put(pos uint64, id uint32, sup uint64, upPos uint32, tab uint64) error {
 	if pos < a.edge[1] {
-		a.nbr[pos], a.sup[pos], a.upPos[pos] = id, sup, upPos
+		a.nbr[pos], a.sup[pos], a.upPos[pos], a.tab[pos] = id, sup, upPos, tab
 		return nil
 	}
 	b, found := slices.BinarySearch(a.edge, pos)
@@ -426,6 +437,7 @@ func (a *adjacency) put(pos uint64, id uint32, sup uint64, upPos uint32) error {
 	w.buf = le.AppendUint32(w.buf, id)
 	w.buf = le.AppendUint64(w.buf, sup)
 	w.buf = le.AppendUint32(w.buf, upPos)
+	w.buf = le.AppendUint64(w.buf, tab)
 	return nil
 }
 
@@ -471,23 +483,26 @@ func (a *adjacency) load(b int, block []byte) error {
 			a.nbr[rel] = le.Uint32(chunk[j+4:])
 			a.sup[rel] = le.Uint64(chunk[j+8:])
 			a.upPos[rel] = le.Uint32(chunk[j+16:])
+			a.tab[rel] = le.Uint64(chunk[j+20:])
 		}
 		left -= k
 	}
 	return nil
 }
 
-// emit writes the neighbours, ranked-neighbours and ranked-pair-positions
-// sections bucket by bucket. Ranking sorts each entity's edges by support
+// emit writes the neighbours, ranked-neighbours, ranked-pair-positions and
+// ranked-pair-tables sections bucket by bucket. Ranking sorts each entity's edges by support
 // descending, then id ascending, and keeps the first R: O(deg·log deg) per
-// entity; each kept neighbour's pair position is found by a binary search
-// in the entity's id-sorted list, O(R·log deg).
+// entity; each kept neighbour's pair position and table are found by a
+// binary search in the entity's id-sorted list, O(R·log deg).
 func (a *adjacency) emit(f *os.File) error {
 	p := a.p
 	nbrs := newSecOut(f, &p.h, secNbrs, bigSectionBuf)
 	rank := newSecOut(f, &p.h, secRank, bigSectionBuf)
 	rpos := newSecOut(f, &p.h, secRankPos, bigSectionBuf)
+	rtab := newSecOut(f, &p.h, secRankTab, bigSectionBuf)
 	var (
+		tabs    []uint64
 		keys    []uint64
 		scratch []ranked
 		ids     []uint32
@@ -510,14 +525,20 @@ func (a *adjacency) emit(f *os.File) error {
 			s, e := p.nbrOffs[i]-base, p.nbrOffs[i+1]-base
 			ids = appendRanked(ids[:0], a.nbr[s:e], a.sup[s:e], R, &keys, &scratch)
 			rank.u32s(ids)
-			pos = pos[:0]
+			pos, tabs = pos[:0], tabs[:0]
 			for _, id := range ids {
 				j, _ := slices.BinarySearch(a.nbr[s:e], id) // ids come from the list
 				pos = append(pos, a.upPos[s+uint64(j)])
+				kLo, kHi := int(p.k[i]), int(p.k[id])
+				if id < i {
+					kLo, kHi = kHi, kLo
+				}
+				tabs = append(tabs, rankTabRef(a.tab[s+uint64(j)], kLo, kHi))
 			}
 			rpos.u32s(pos)
+			rtab.u64s(tabs)
 		}
-		if nbrs.err != nil || rank.err != nil || rpos.err != nil {
+		if nbrs.err != nil || rank.err != nil || rpos.err != nil || rtab.err != nil {
 			break
 		}
 	}
@@ -527,7 +548,10 @@ func (a *adjacency) emit(f *os.File) error {
 	if err := rank.finish(&p.h); err != nil {
 		return err
 	}
-	return rpos.finish(&p.h)
+	if err := rpos.finish(&p.h); err != nil {
+		return err
+	}
+	return rtab.finish(&p.h)
 }
 
 // ranked is a neighbour with its pair support, for the ranking.
@@ -583,7 +607,7 @@ func appendRanked(dst, nbr []uint32, sup []uint64, r uint64, keys *[]uint64, scr
 // close releases the bucket arrays and closes the spool (removing it where
 // it was not unlinked at creation).
 func (a *adjacency) close() {
-	a.nbr, a.sup, a.upPos = nil, nil, nil
+	a.nbr, a.sup, a.upPos, a.tab = nil, nil, nil, nil
 	if a.spool != nil {
 		name := a.spool.Name()
 		a.spool.Close()

@@ -28,7 +28,7 @@ import (
 // projection of each file (asVersion1: sections 1–16 under a version-1
 // header), and the version-2 file must verify (the ranked pair positions
 // are checked by Verify). The hand-checked greenhouse file itself is
-// testdata/golden-v2.hwx (TestGoldenIndexV2). -update rewrites the digests
+// testdata/golden-v3.hwx (TestGoldenIndexV3). -update rewrites the digests
 // from WriteFile, for a deliberate change of sections 1–16 only.
 func TestStreamingWriterMatchesReference(t *testing.T) {
 	t.Parallel()
@@ -145,13 +145,43 @@ func asVersion1(t *testing.T, b []byte) []byte {
 	return out
 }
 
-// goldenFile is a tiny version-2 index of the hand-counted greenhouse
+// goldenFile is a tiny version-3 index of the hand-counted greenhouse
 // (ixGreenhouse); its sections 1–16 are those of oldGoldenFile, written
-// by the in-memory version-1 writer that preceded the streaming one.
+// by the in-memory version-1 writer that preceded the streaming one, and
+// its sections 1–17 those of v2GoldenFile, written by the version-2
+// streaming writer.
 const (
-	goldenFile    = "testdata/golden-v2.hwx"
+	goldenFile    = "testdata/golden-v3.hwx"
+	v2GoldenFile  = "testdata/golden-v2.hwx"
 	oldGoldenFile = "testdata/golden-v1.hwx"
 )
+
+// TestGoldenIndexV2Refused: a version-2 file is refused with ErrVersion,
+// an error that names the file and says to rebuild it, and its sections
+// 1–17 hold exactly the bytes of the version-3 golden file's sections
+// 1–17 (version 3 added section 18 and one section-table entry).
+func TestGoldenIndexV2Refused(t *testing.T) {
+	t.Parallel()
+	_, err := Open(v2GoldenFile)
+	if !errors.Is(err, ErrVersion) || !strings.Contains(err.Error(), v2GoldenFile) || !strings.Contains(err.Error(), "rebuild") {
+		t.Fatalf("Open(%s) = %v, want ErrVersion naming the file and saying to rebuild", v2GoldenFile, err)
+	}
+	v2, v3 := ixReadFile(t, v2GoldenFile), ixReadFile(t, goldenFile)
+	if len(v2) < headerSize || len(v3) < headerSize {
+		t.Fatalf("golden files of %d and %d bytes", len(v2), len(v3))
+	}
+	h2, h3 := decodeHeader(v2), decodeHeader(v3)
+	if le.Uint32(v2[offVersion:]) != 2 || le.Uint32(v2[offNumSect:]) != 17 {
+		t.Fatalf("%s: version %d with %d sections, want 2 with 17", v2GoldenFile, le.Uint32(v2[offVersion:]), le.Uint32(v2[offNumSect:]))
+	}
+	for i := range 17 { // the version-2 table has 17 entries
+		s2, s3 := h2.Sections[i], h3.Sections[i]
+		if s2.Length != s3.Length || s2.CRC != s3.CRC || s2.Offset+s2.Length > uint64(len(v2)) ||
+			!bytes.Equal(v2[s2.Offset:s2.Offset+s2.Length], v3[s3.Offset:s3.Offset+s3.Length]) {
+			t.Errorf("section %s differs between %s and %s", sectionName(i+1), v2GoldenFile, goldenFile)
+		}
+	}
+}
 
 // TestGoldenIndexV1Refused: a version-1 file is refused with ErrVersion,
 // an error that names the file and says to rebuild it, and its content is
@@ -167,12 +197,12 @@ func TestGoldenIndexV1Refused(t *testing.T) {
 	}
 }
 
-// TestGoldenIndexV2: the checked-in version-2 file opens and verifies, holds
+// TestGoldenIndexV3: the checked-in version-3 file opens and verifies, holds
 // exactly the hand-counted greenhouse, and WriteFile reproduces it byte for
 // byte. A reader change that breaks old files, or a writer change that
 // alters the format, fails here. -update rewrites the file from WriteFile
 // (a deliberate format change only; bump the version then).
-func TestGoldenIndexV2(t *testing.T) {
+func TestGoldenIndexV3(t *testing.T) {
 	t.Parallel()
 	src := ixSourceFromContexts(ixGreenhouse())
 	got := ixReadFile(t, ixWriteTemp(t, src))
@@ -193,8 +223,8 @@ func TestGoldenIndexV2(t *testing.T) {
 	if err := x.Verify(); err != nil {
 		t.Fatal(err)
 	}
-	if x.FormatVersion() != 2 || x.NumContexts() != 8 || x.NumEntities() != 5 {
-		t.Errorf("version %d, %d contexts, %d entities; want 2, 8, 5", x.FormatVersion(), x.NumContexts(), x.NumEntities())
+	if x.FormatVersion() != 3 || x.NumContexts() != 8 || x.NumEntities() != 5 {
+		t.Errorf("version %d, %d contexts, %d entities; want 3, 8, 5", x.FormatVersion(), x.NumContexts(), x.NumEntities())
 	}
 	ixCheckMatches(t, x, src, DefaultRankPrefix)
 	// One cell counted by hand: bed.north=wet with pump.a=on in c1 and c2.

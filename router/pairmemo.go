@@ -300,7 +300,7 @@ type PairBatcher interface {
 // where the pair is stored, and PairBatchHinted is PairBatch that takes a
 // hint per pair (graphidx.NoPairHint when unknown) and returns the same
 // statistics, in less time for hinted pairs. *graphidx.Index implements it
-// (format version 2: a hinted look-up reads one checked list entry instead
+// (format version 2 and later: a hinted look-up reads one checked list entry instead
 // of binary-searching a neighbour list). The search passes the hint of
 // every edge it reached through a ranked list: the first-layer edges (end
 // edges of the joins) and the second-layer edges (their middle edges). A
@@ -315,14 +315,28 @@ type HintedPairBatcher interface {
 // (b[i] is RankedNeighbors(a[i])[entry[i]], or entry[i] is
 // graphidx.NoPairHint), and returns the same statistics, in less time for
 // named pairs. *graphidx.Index implements it: on an index checked at open
-// the look-up uses the pair's stored position without reading adjacency
-// offsets or the list entry. When the graph implements it, the search
+// the look-up reads the pair's table reference stored beside the ranked
+// entry (format version 3) and the table, no adjacency offsets, list
+// entry, pair base or table offsets. When the graph implements it, the search
 // names every edge it reached through a ranked list this way (the joins'
 // end and middle edges) and need not read the ranked lists' pair hints
 // (HintedPairBatcher) up front. A wrapper around an Index should forward
 // it.
 type RankedPairBatcher interface {
 	PairBatchRanked(a, b []graphidx.EntityID, entry []uint32, out []graphidx.PairStats, ok []bool)
+}
+
+// RankedTablePrefetcher is an optional interface of a Graph: hints that
+// pairs named by the first n entries of the ranked lists of ids will soon
+// be looked up by entry (RankedPairBatcher) and read, so that what those
+// look-ups read starts loading now (*graphidx.Index, with prefetch
+// instructions: PrefetchRankedTables the entries' stored table
+// references, PrefetchRankedCounts, best after it, the pairs' count
+// tables). Neither may change any answer of the graph. A wrapper around an
+// Index should forward both.
+type RankedTablePrefetcher interface {
+	PrefetchRankedTables(ids []graphidx.EntityID, n int)
+	PrefetchRankedCounts(ids []graphidx.EntityID, n int)
 }
 
 // RankedPrefetcher is an optional interface of a Graph: hints that the

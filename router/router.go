@@ -33,15 +33,16 @@ type Router struct {
 // reaches zero it can never be acquired again.
 type handle struct {
 	g    Graph
-	pb   PairBatcher       // g's batch look-up, or nil
-	hp   HintedPairBatcher // g's hinted batch look-up, or nil
-	rb   RankedPairBatcher // g's ranked batch look-up, or nil
-	rpf  RankedPrefetcher  // g's ranked-list prefetch, or nil
-	epf  EntityPrefetcher  // g's entity-record prefetch, or nil
-	big  bool              // g has at least touchMinEntities entities (its records are not all in cache)
-	l2   TwoLookuper       // g's two-name look-up, or nil
-	na   NameAppender      // g's name append, or nil
-	rp   int               // g's RankPrefix, or 0
+	pb   PairBatcher           // g's batch look-up, or nil
+	hp   HintedPairBatcher     // g's hinted batch look-up, or nil
+	rb   RankedPairBatcher     // g's ranked batch look-up, or nil
+	rpf  RankedPrefetcher      // g's ranked-list prefetch, or nil
+	rtp  RankedTablePrefetcher // g's table-reference prefetch, or nil
+	epf  EntityPrefetcher      // g's entity-record prefetch, or nil
+	big  bool                  // g has at least touchMinEntities entities (its records are not all in cache)
+	l2   TwoLookuper           // g's two-name look-up, or nil
+	na   NameAppender          // g's name append, or nil
+	rp   int                   // g's RankPrefix, or 0
 	seq  uint64
 	gen  uint64
 	refs atomic.Int64
@@ -123,6 +124,7 @@ func (r *Router) newHandle(g Graph) *handle {
 	h.rpf, _ = g.(RankedPrefetcher)
 	h.epf, _ = g.(EntityPrefetcher)
 	h.big = g.NumEntities() >= touchMinEntities
+	h.rtp, _ = g.(RankedTablePrefetcher)
 	h.l2, _ = g.(TwoLookuper)
 	h.na, _ = g.(NameAppender)
 	h.presence = scorer.PresenceOnly(g)
@@ -329,7 +331,10 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	sc.hb = model.HopBias()
 	sc.bayes, _ = model.(*scorer.Bayes)
 	sc.alt = st.hooks != nil && st.hooks.alt
-	sc.rpf = h.rpf
+	sc.rpf, sc.rtp = h.rpf, h.rtp
+	if sc.alt { // the tenth round's A/B: without the table-reference and table prefetches
+		sc.rtp = nil
+	}
 	sc.bud = budget{left: st.budget, nextCheck: deadlinePoll, done: ctx.Done()}
 	sc.u = u
 	sc.endLists()

@@ -298,11 +298,12 @@ type scratch struct {
 	incDist []float64
 	err     error // model failure during generation
 	memo    pairMemo
-	pb      PairBatcher       // the graph's batch look-up, or nil
-	hp      HintedPairBatcher // the graph's hinted batch look-up, or nil
-	rb      RankedPairBatcher // the graph's ranked batch look-up, or nil
-	rpf     RankedPrefetcher  // the graph's ranked-list prefetch, or nil
-	pend    struct {          // pairs queued for fetch
+	pb      PairBatcher           // the graph's batch look-up, or nil
+	hp      HintedPairBatcher     // the graph's hinted batch look-up, or nil
+	rb      RankedPairBatcher     // the graph's ranked batch look-up, or nil
+	rpf     RankedPrefetcher      // the graph's ranked-list prefetch, or nil
+	rtp     RankedTablePrefetcher // the graph's table-reference prefetch, or nil
+	pend    struct {              // pairs queued for fetch
 		a, b []graphidx.EntityID // the pairs, owner first when ent names an entry of its ranked list
 		ent  []uint32            // ranked-list entries (RankedPairBatcher), graphidx.NoPairHint when none
 		hint []uint32            // stored pair positions (HintedPairBatcher), graphidx.NoPairHint when unknown
@@ -333,6 +334,8 @@ type scratch struct {
 	// alt runs the alternative code path kept for a one-process A/B
 	// comparison (searchHooks.alt; tests only).
 	alt bool
+	// ends holds s and t for the RankedTablePrefetcher calls.
+	ends [2]graphidx.EntityID
 
 	// per call
 	u      int
@@ -361,7 +364,7 @@ func newScratch() *scratch {
 }
 
 func (sc *scratch) reset() {
-	sc.g, sc.model, sc.bayes, sc.st, sc.pb, sc.hp, sc.rb, sc.rpf = nil, nil, nil, nil, nil, nil, nil, nil
+	sc.g, sc.model, sc.bayes, sc.st, sc.pb, sc.hp, sc.rb, sc.rpf, sc.rtp = nil, nil, nil, nil, nil, nil, nil, nil, nil
 	sc.h1 = [2][]uint32{}
 	for side := range sc.rks { // drop references into the index
 		clear(sc.rks[side][:cap(sc.rks[side])])
@@ -951,8 +954,12 @@ func (sc *scratch) layer2(out []step2, l1 []step1, l1ok bool, from, other graphi
 // estimate) and only starts loading the lists' heads, the first f+2 entries
 // that layer2 reads, without waiting for them: they arrive while the
 // one-bridge phase runs (on the 1M-entity benchmark index −0.64 µs per
-// decision, docs/SEARCH.md, eighth round). It charges nothing and changes
-// no decision. O(B).
+// decision, docs/SEARCH.md, eighth round). With a RankedTablePrefetcher it
+// also starts loading the count tables of the pairs named by the first
+// B+2 entries of s's and t's lists (the end edges and the one-bridge
+// pairs of s or t), whose references prefetchLayerOffsets started loading:
+// about −0.45 µs per decision (tenth round). It charges nothing and
+// changes no decision. O(B).
 func (sc *scratch) touchLayerLists() {
 	if sc.st.maxBridges < 2 || sc.g.NumEntities() < touchMinEntities {
 		return
@@ -962,6 +969,10 @@ func (sc *scratch) touchLayerLists() {
 		for _, e := range [2]graphidx.EntityID{sc.s, sc.t} {
 			rk := sc.g.RankedNeighbors(e)
 			sc.rpf.PrefetchRankedHeads(rk[:min(len(rk), n)], sc.st.fanOut+2)
+		}
+		if sc.rtp != nil {
+			sc.ends = [2]graphidx.EntityID{sc.s, sc.t}
+			sc.rtp.PrefetchRankedCounts(sc.ends[:], n)
 		}
 		return
 	}
@@ -979,7 +990,14 @@ func (sc *scratch) touchLayerLists() {
 // entities the first layers will hold (the heads of s's and t's ranked
 // lists, B+2 of each) before the direct estimate, without waiting for
 // them (RankedPrefetcher), so that they arrive while the direct estimate
-// runs; touchLayerLists then finds them in cache. Same conditions as
+// runs; touchLayerLists then finds them in cache. With a
+// RankedTablePrefetcher (the index) it also starts loading the stored
+// table references of those B+2 entries of s's and t's lists (9 or 10
+// cache lines per list at B = 64), which the joins' end edges and the
+// one-bridge phase's pairs of s or t are looked up by: on the
+// 1M-entity benchmark index −1.0 to −1.3 µs per decision (docs/SEARCH.md,
+// tenth round; the same for the first f+4 entries of every first-layer
+// node's list, the middle edges, added nothing). Same conditions as
 // touchLayerLists. It changes no decision. O(B).
 func (sc *scratch) prefetchLayerOffsets() {
 	if sc.rpf == nil || sc.st.maxBridges < 2 || sc.g.NumEntities() < touchMinEntities {
@@ -989,6 +1007,10 @@ func (sc *scratch) prefetchLayerOffsets() {
 	for _, e := range [2]graphidx.EntityID{sc.s, sc.t} {
 		rk := sc.g.RankedNeighbors(e)
 		sc.rpf.PrefetchRankedOffsets(rk[:min(len(rk), n)])
+	}
+	if sc.rtp != nil {
+		sc.ends = [2]graphidx.EntityID{sc.s, sc.t} // a field: a literal would escape
+		sc.rtp.PrefetchRankedTables(sc.ends[:], n)
 	}
 }
 

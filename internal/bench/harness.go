@@ -772,6 +772,22 @@ func (n noClose) PrefetchEntity(id graphidx.EntityID, k int) {
 	}
 }
 
+// PrefetchRankedTables forwards to the graph's
+// (router.RankedTablePrefetcher), or does nothing (a hint).
+func (n noClose) PrefetchRankedTables(ids []graphidx.EntityID, k int) {
+	if rp, has := n.Graph.(router.RankedTablePrefetcher); has {
+		rp.PrefetchRankedTables(ids, k)
+	}
+}
+
+// PrefetchRankedCounts forwards to the graph's
+// (router.RankedTablePrefetcher), or does nothing (a hint).
+func (n noClose) PrefetchRankedCounts(ids []graphidx.EntityID, k int) {
+	if rp, has := n.Graph.(router.RankedTablePrefetcher); has {
+		rp.PrefetchRankedCounts(ids, k)
+	}
+}
+
 // LookupTwo forwards to the graph's LookupTwo (router.TwoLookuper), or
 // looks the names up one after the other.
 func (n noClose) LookupTwo(a, b string) (graphidx.EntityID, bool, graphidx.EntityID, bool) {
