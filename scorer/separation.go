@@ -465,7 +465,8 @@ func (ws *Workspace) prevWitnessBias(psPW, psWN, psWB graphidx.PairStats, okWB b
 // P(tub | either = yes) is 0.16), which shows that either → dysp → bronc
 // crosses the common effect dysp; it also admits a second cause of a
 // collider prev (bronc for dysp → either → tub), which the test of prev
-// separating w from b_k catches only when (w, b_k) was observed
+// separating w from b_k catches when (w, b_k) was observed, and
+// prevWitnessRefuted otherwise where a neighbour of b_k beyond it can tell
 // (docs/QUALITY.md §4f). O(K²), no look-up.
 func (ws *Workspace) prevWitnessMoves(psPW graphidx.PairStats, y []float64, alpha float64) (num, den float64, moves bool) {
 	num, den, ok := ws.prevWitnessDev(psPW, y, alpha)
