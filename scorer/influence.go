@@ -639,8 +639,15 @@ func (b *Bayes) boundExcess(ws *Workspace, st Stats, s graphidx.EntityID, u int,
 // the bound, is left as it is. ws should hold the query's last Chain or
 // Direct call (else the bound is recomputed); call it after PendingBias of
 // that Chain (it resets the path's first cardinality). A reference value
-// outside [0, 1] (NaN included) is ErrBadEstimate. ErrBadStats for a reference
+// outside [0, 1] by more than refRounding (NaN included) is ErrBadEstimate;
+// one within it is clamped to [0, 1]. ErrBadStats for a reference
 // of the wrong length. Cost as boundBall plus O(K_t).
+// refRounding is how far outside [0, 1] ProjectReference accepts a
+// reference value as the rounding of a product of stochastic matrices (a
+// chain's estimate came out 1.0000000000000002 on the router's 1M-entity
+// benchmark, and the decision failed).
+const refRounding = 1e-12
+
 func (b *Bayes) ProjectReference(ws *Workspace, st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, ref []float64) error {
 	if st == nil {
 		return fmt.Errorf("%w: nil Stats", ErrBadStats)
@@ -650,9 +657,10 @@ func (b *Bayes) ProjectReference(ws *Workspace, st Stats, s graphidx.EntityID, u
 		return fmt.Errorf("%w: reference of %d values for entity %d, which has %d", ErrBadStats, len(ref), t, kt)
 	}
 	for v, x := range ref {
-		if !(x >= 0 && x <= 1) {
+		if !(x >= -refRounding && x <= 1+refRounding) {
 			return fmt.Errorf("%w: reference value %d is %v, not a probability", ErrBadEstimate, v, x)
 		}
+		ref[v] = min(1, max(0, x))
 	}
 	ks := st.NumValues(s)
 	if u < 0 || u >= ks {

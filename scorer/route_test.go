@@ -124,7 +124,14 @@ func TestProjectReference(t *testing.T) {
 	if err := b.ProjectReference(nil, st, 1, u, 4, []float64{1}); !errors.Is(err, scorer.ErrBadStats) {
 		t.Errorf("reference of 1 value for a binary target: err %v, want ErrBadStats", err)
 	}
-	for _, bad := range [][]float64{{math.NaN(), 0.5}, {-0.1, 1.1}} {
+	// Rounding of a chain's products: accepted and clamped.
+	round := []float64{math.Nextafter(0, -1), math.Nextafter(1, 2)}
+	if err := b.ProjectReference(nil, st, 1, u, 4, round); err != nil {
+		t.Errorf("reference %v (rounding): %v", round, err)
+	} else if round[0] < 0 || round[1] > 1 {
+		t.Errorf("reference with rounding not clamped to [0, 1]: %v", round)
+	}
+	for _, bad := range [][]float64{{math.NaN(), 0.5}, {-0.1, 1.1}, {-1e-9, 1 + 1e-9}} {
 		if err := b.ProjectReference(nil, st, 1, u, 4, bad); !errors.Is(err, scorer.ErrBadEstimate) {
 			t.Errorf("reference %v: err %v, want ErrBadEstimate", bad, err)
 		}

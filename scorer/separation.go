@@ -223,7 +223,17 @@ func (ws *Workspace) separationBias(st Stats, u, m int, alpha float64) (float64,
 			if err != nil {
 				return 0, err
 			}
-			worst = max(worst, ws.prevWitnessBias(psPW, psWN, psWB, okWB, y, mk, ck, k, kt, alpha, num, den))
+			pb := ws.prevWitnessBias(psPW, psWN, psWB, okWB, y, mk, ck, k, kt, alpha, num, den)
+			if pb > 0 && !okWB {
+				refuted, err := ws.prevWitnessRefuted(st, rn, w, kw, k, alpha)
+				if err != nil {
+					return 0, err
+				}
+				if refuted {
+					pb = 0
+				}
+			}
+			worst = max(worst, pb)
 			ws.sepWit = append(ws.sepWit, w)
 		}
 		total += worst
@@ -455,7 +465,8 @@ func (ws *Workspace) prevWitnessBias(psPW, psWN, psWB graphidx.PairStats, okWB b
 // P(tub | either = yes) is 0.16), which shows that either → dysp → bronc
 // crosses the common effect dysp; it also admits a second cause of a
 // collider prev (bronc for dysp → either → tub), which the test of prev
-// separating w from b_k catches only when (w, b_k) was observed
+// separating w from b_k catches when (w, b_k) was observed, and
+// prevWitnessRefuted otherwise where a neighbour of b_k beyond it can tell
 // (docs/QUALITY.md §4f). O(K²), no look-up.
 func (ws *Workspace) prevWitnessMoves(psPW graphidx.PairStats, y []float64, alpha float64) (num, den float64, moves bool) {
 	num, den, ok := ws.prevWitnessDev(psPW, y, alpha)
@@ -592,4 +603,128 @@ func shiftFromRows(dn, pi []float64, ps graphidx.PairStats) bool {
 		dn[j] = pi[j] - dn[j]/tot
 	}
 	return true
+}
+
+// prevWitnessRefuted reports whether a prev-side witness w of bridge b_k
+// whose table with b_k is missing (so prevWitnessBias could not test that
+// prev separates w from b_k) is better explained by prev being a common
+// effect of w and b_k than by b_k failing to separate prev from next.
+// prevWitnessBias must have just returned a positive bias for w; its
+// products (π, d, y2 − m_p = d Q and z2 = (y2 − m_p) M_k, the shift of b_k
+// the chain claims for w) are read from the workspace.
+//
+// The witness's deficit at next has two explanations that the tables
+// (prev, w), (w, next), (prev, b_k) and (b_k, next) cannot tell apart:
+// (1) b_k does not separate prev from next (the chain is wrong), or (2) w
+// does not reach b_k through prev, as when prev is a common effect of w and
+// b_k (the chain may be right). They differ beyond b_k: for a neighbour x
+// of b_k that prev was never observed with (so prev reaches it, if at all,
+// through b_k), (1) keeps the route w → prev → b_k → x and predicts the
+// shift a = z2 M(b_k, x) in the table (w, x); (2) predicts none. With c =
+// d' M(w, x) the table's shift (d' = π − m_w with that table's marginal of
+// w), the nearer prediction wins, as between two point hypotheses of equal
+// prior and equal noise: w is refuted when ‖c‖² < ‖a − c‖². An x whose
+// predicted shift is within the noise, ‖a‖² ≤ V (V the delta-method
+// variance of a − c: the rows of M(w, x), M(b_k, x), M_k and Q), cannot
+// tell and is skipped; the first x that can decides. Without one the
+// witness stands.
+//
+// In ASIA (Lauritzen & Spiegelhalter 1988) bronc is a witness of
+// dysp → either → tub (dysp a common effect of either and bronc; the table
+// (bronc, either) held out): the route bronc → dysp → either → xray claims
+// a shift of xray the table (bronc, xray) does not show, so bronc is
+// refuted on the corpora where that claim is above the noise. tub, the
+// witness of either → dysp → bronc, has no such x (dysp's neighbours other
+// than either and bronc were observed with either) and stands.
+// The neighbours read are the first 2·SeparationWitnesses ranked ones off
+// the path, of which at most SeparationWitnesses are tested: O(W·K³), at
+// most 4·SeparationWitnesses look-ups, only for a witness that charges.
+func (ws *Workspace) prevWitnessRefuted(st Stats, rn RankedNeighborer, w graphidx.EntityID, kw, k int, alpha float64) (bool, error) {
+	if rn == nil {
+		return false, nil
+	}
+	prev, b := ws.path[k-1], ws.path[k]
+	kp, kb := ws.ks[k-1], ws.ks[k]
+	const km = graphidx.MaxValues
+	pi, d := ws.sepD[:kw], ws.sepD[km:km+kw]
+	y2, z2 := ws.sepD[3*km:3*km+kp], ws.sepD[5*km:5*km+kb]
+	dx := ws.sepD[7*km : 7*km+kw]
+	mk := ws.theta[ws.toff[k-1]:ws.toff[k]]
+	ck := ws.cinv[ws.coff[k-1]:ws.coff[k]]
+	seen, tested := 0, 0
+	for _, x := range rn.RankedNeighbors(b) {
+		if seen == 2*SeparationWitnesses || tested == SeparationWitnesses {
+			break
+		}
+		if x == w || ws.onPath(x) {
+			continue
+		}
+		seen++
+		kx, err := numValues(st, x)
+		if err != nil {
+			return false, err
+		}
+		// x must be reached from prev only through b: (prev, x) never
+		// observed together.
+		_, ok, err := pair(st, prev, x, kp, kx)
+		if err != nil {
+			return false, err
+		}
+		if ok {
+			continue
+		}
+		tested++
+		psWX, ok, err := pair(st, w, x, kw, kx)
+		if err != nil {
+			return false, err
+		}
+		if !ok {
+			continue
+		}
+		psBX, ok, err := pair(st, b, x, kb, kx)
+		if err != nil {
+			return false, err
+		}
+		if !ok {
+			continue
+		}
+		ws.sepB = growF(ws.sepB, kb*kx)
+		ws.sepBC = growF(ws.sepBC, kb)
+		fillMeans(ws.sepB, ws.sepBC, psBX, true, kb, kx, alpha)
+		ws.sepW = growF(ws.sepW, kw*kx)
+		ws.sepWC = growF(ws.sepWC, kw)
+		fillMeans(ws.sepW, ws.sepWC, psWX, true, kw, kx, alpha)
+		if !shiftFromRows(dx, pi, psWX) {
+			continue
+		}
+		// The chain's claim at x, z2 M(b, x), and the table's, dx M(w, x).
+		ws.sepG = growF(ws.sepG, kp*kx)
+		matMul(ws.sepG, kx, mk, kb, ws.sepB, kx, kp, kb, kx)
+		ws.sepA = growF(ws.sepA, 2*km)
+		a, c := ws.sepA[:kx], ws.sepA[km:km+kx]
+		matMul(a, kx, z2, kb, ws.sepB, kx, 1, kb, kx)
+		matMul(c, kx, dx, kw, ws.sepW, kx, 1, kw, kx)
+		d2, na, nc := 0.0, 0.0, 0.0
+		for v := range a {
+			d2 += (a[v] - c[v]) * (a[v] - c[v])
+			na += a[v] * a[v]
+			nc += c[v] * c[v]
+		}
+		noise := 0.0
+		for j := 0; j < kw; j++ {
+			noise += dx[j] * dx[j] * ws.sepWC[j] * rowVar(ws.sepW[j*kx:j*kx+kx])
+			noise += d[j] * d[j] * ws.sepQC[j] * quadForm(ws.sepQ[j*kp:j*kp+kp], ws.sepG, kx)
+		}
+		for r, yr := range y2 {
+			noise += yr * yr * ck[r] * quadForm(mk[r*kb:r*kb+kb], ws.sepB, kx)
+		}
+		for j, zj := range z2 {
+			noise += zj * zj * ws.sepBC[j] * rowVar(ws.sepB[j*kx:j*kx+kx])
+		}
+		if na <= noise {
+			continue // x cannot tell the two apart
+		}
+		return nc < d2, nil
+	}
+	return false, nil
 }
