@@ -998,19 +998,11 @@ func TestParallelBridgesSprinkler(t *testing.T) {
 	}
 }
 
-// TestInheritedWitnessAsia: ASIA (Lauritzen & Spiegelhalter 1988) with
-// `hopwise eval`'s own held-out pairs, corpus seed 2. P(bronc | either = yes)
-// (exact 0.553) has the one-bridge chain through the common effect dysp
-// (answer 0.74). Before docs/QUALITY.md §4f its separation check read no
-// witness that could show it (tub, which either = yes implies, was gated
-// out because P(tub | either = yes) is small), and once tub's test charged
-// it, the parallel answer through dysp and xray, which carries the same
-// invented route, took its place (0.735). With the witness gate asking
-// whether tub = yes itself moves either, and the parallel answer charged the
-// separation bias of its bridges' chains, the router answers through the
-// valid chain either → lung → smoke → bronc (realised 8e-7).
-func TestInheritedWitnessAsia(t *testing.T) {
-	t.Parallel()
+// asiaMIRun runs ASIA (Lauritzen & Spiegelhalter 1988) with `hopwise
+// eval`'s own held-out pairs (every non-adjacent pair with MI ≥
+// publishedMinMI) on the corpus of the given seed, keeping every query.
+func asiaMIRun(t *testing.T, seed int64) (*world.World, eval.Report) {
+	t.Helper()
 	asia, err := world.Asia()
 	if err != nil {
 		t.Fatal(err)
@@ -1024,11 +1016,28 @@ func TestInheritedWitnessAsia(t *testing.T) {
 		t.Fatal(err)
 	}
 	r, err := eval.Run(context.Background(), eval.Config{
-		Condition: world.CondLocalGeometric, Seed: 2, Network: w, Contexts: publishedContexts, KeepQueries: true,
+		Condition: world.CondLocalGeometric, Seed: seed, Network: w, Contexts: publishedContexts, KeepQueries: true,
 	})
 	if err != nil {
 		t.Fatal(err)
 	}
+	return asia, r
+}
+
+// TestInheritedWitnessAsia: ASIA (Lauritzen & Spiegelhalter 1988) with
+// `hopwise eval`'s own held-out pairs, corpus seed 2. P(bronc | either = yes)
+// (exact 0.553) has the one-bridge chain through the common effect dysp
+// (answer 0.74). Before docs/QUALITY.md §4f its separation check read no
+// witness that could show it (tub, which either = yes implies, was gated
+// out because P(tub | either = yes) is small), and once tub's test charged
+// it, the parallel answer through dysp and xray, which carries the same
+// invented route, took its place (0.735). With the witness gate asking
+// whether tub = yes itself moves either, and the parallel answer charged the
+// separation bias of its bridges' chains, the router answers through the
+// valid chain either → lung → smoke → bronc (realised 8e-7).
+func TestInheritedWitnessAsia(t *testing.T) {
+	t.Parallel()
+	asia, r := asiaMIRun(t, 2)
 	either, _ := asia.Index("either")
 	bronc, _ := asia.Index("bronc")
 	found := false
@@ -1061,24 +1070,7 @@ func TestInheritedWitnessAsia(t *testing.T) {
 // neighbour and still charges that chain (TestInheritedWitnessAsia).
 func TestRefutedWitnessAsia(t *testing.T) {
 	t.Parallel()
-	asia, err := world.Asia()
-	if err != nil {
-		t.Fatal(err)
-	}
-	pairs, err := asia.PickHeldOut(asia.NumVars()*asia.NumVars(), publishedMinMI, 1)
-	if err != nil {
-		t.Fatal(err)
-	}
-	w, err := asia.WithHeldOut(pairs)
-	if err != nil {
-		t.Fatal(err)
-	}
-	r, err := eval.Run(context.Background(), eval.Config{
-		Condition: world.CondLocalGeometric, Seed: 3, Network: w, Contexts: publishedContexts, KeepQueries: true,
-	})
-	if err != nil {
-		t.Fatal(err)
-	}
+	asia, r := asiaMIRun(t, 3)
 	dysp, _ := asia.Index("dysp")
 	xray, _ := asia.Index("xray")
 	found := 0
