@@ -22,7 +22,11 @@ var shrinkCharged = true
 // noise (no bias) E_0 + S, so E_0 + S covers both (and every bias up to
 // 2√S along the deviation); the score and the decision are unchanged.
 // Only for a pair never observed together, whose direct estimate sc.ddist
-// is the target's smoothed marginal (scorer.Bayes.Direct). O(K).
+// is the target's smoothed marginal (scorer.Bayes.Direct). The share S
+// is known apart only with the separation bias deferred (chainScore),
+// which production always does; under the test switch deferSeparation =
+// false the bias sits inside the chain's Err and nothing moves. O(K), no
+// look-up.
 func (sc *scratch) shrink(dirSupport uint64) {
 	if !shrinkCharged || dirSupport > 0 || !(sc.bestSep > 0) {
 		return
