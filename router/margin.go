@@ -36,6 +36,7 @@ func (sc *scratch) Marginal(id graphidx.EntityID) []uint64 {
 func (sc *scratch) chainScore(est scorer.Estimate, m int, beat *float64) (err, score float64, fail error) {
 	err = est.Err
 	margin := 0.0
+	sc.lastSep = 0
 	if sc.ref != nil {
 		err += scorer.ReferenceBias(est.Dist, sc.ref)
 		if gm, ok := sc.model.(scorer.GainMarginer); ok {
@@ -48,6 +49,7 @@ func (sc *scratch) chainScore(est scorer.Estimate, m int, beat *float64) (err, s
 		if e != nil {
 			return 0, 0, e
 		}
+		sc.lastSep = extra * sc.ws.SeparationPrevShare()
 		if extra > 0 {
 			err += extra
 			score = sc.scoreOf(sc.dirErr-err-margin, m)

@@ -381,6 +381,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	if sc.inc.ok {
 		bestC = sc.inc.c
 		bestEst.ok, bestEst.err, bestEst.score = true, sc.inc.err, sc.inc.score
+		sc.bestSep = sc.inc.sep
 		sc.dist = append(sc.dist[:0], sc.incDist...)
 		if st.cfg.ParallelBridges {
 			sc.bestWit = append(sc.bestWit[:0], sc.incWit...)
@@ -418,6 +419,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 		if !bestEst.ok || score > bestEst.score {
 			bestC = *cd
 			bestEst.ok, bestEst.err, bestEst.score = true, e, score
+			sc.bestSep = sc.lastSep
 			sc.dist = append(sc.dist[:0], est.Dist...)
 			if st.cfg.ParallelBridges {
 				sc.bestWit = append(sc.bestWit[:0], sc.ws.SeparationWitnesses()...)
@@ -439,6 +441,10 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 			bestEst.err, bestEst.score = e, score
 			sc.dist = append(sc.dist[:0], sc.parDist...)
 		}
+	}
+	if bestEst.ok && !par {
+		// A chain charged by a witness on the observed side (shrink.go).
+		sc.shrink(dir.Support)
 	}
 
 	// Candidates left out of the k scored are a cut only when one could

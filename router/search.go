@@ -294,7 +294,13 @@ type scratch struct {
 		ok         bool
 		c          cand
 		err, score float64
+		sep        float64 // its part of lastSep
 	}
+	// lastSep: the separation bias that the last chainScore call charged
+	// and that witnesses on the observed side account for (shrink.go);
+	// bestSep: that of the best chain.
+	lastSep, bestSep float64
+
 	incDist []float64
 	err     error // model failure during generation
 	memo    pairMemo
@@ -1931,7 +1937,7 @@ func (sc *scratch) scoreIncumbent(c cand) bool {
 		return false
 	}
 	sc.inc.ok, sc.inc.c = true, c
-	sc.inc.err, sc.inc.score = e, score
+	sc.inc.err, sc.inc.score, sc.inc.sep = e, score, sc.lastSep
 	sc.incDist = append(sc.incDist[:0], est.Dist...)
 	if sc.st.cfg.ParallelBridges {
 		sc.incWit = append(sc.incWit[:0], sc.ws.SeparationWitnesses()...)

@@ -58,6 +58,7 @@ const PrevWitnessScale = 4.0
 // the buffers have grown.
 func (ws *Workspace) separationBias(st Stats, u, m int, alpha float64) (float64, error) {
 	ws.sepWit = ws.sepWit[:0]
+	ws.sepPrevFrac = 0
 	kt := ws.ks[m+1]
 	// R_1..R_(m+1), R_j of K_j × K_t, concatenated at roff[j−1].
 	ws.roff = growI(ws.roff, m+2)
@@ -81,7 +82,7 @@ func (ws *Workspace) separationBias(st Stats, u, m int, alpha float64) (float64,
 	rn, _ := st.(RankedNeighborer)
 	const km = graphidx.MaxValues
 	ws.sepY = growF(ws.sepY, 3*km)
-	total := 0.0
+	total, prevTotal := 0.0, 0.0
 	for k := 1; k <= m; k++ {
 		kp, kb, kn := ws.ks[k-1], ws.ks[k], ws.ks[k+1]
 		prev, b, next := ws.path[k-1], ws.path[k], ws.path[k+1]
@@ -186,6 +187,7 @@ func (ws *Workspace) separationBias(st Stats, u, m int, alpha float64) (float64,
 			continue
 		}
 		seen = 0
+		prevWorst := 0.0
 		for _, w := range rn.RankedNeighbors(prev) {
 			if seen == PrevWitnesses {
 				break
@@ -234,13 +236,16 @@ func (ws *Workspace) separationBias(st Stats, u, m int, alpha float64) (float64,
 				}
 			}
 			worst = max(worst, pb)
+			prevWorst = max(prevWorst, pb)
 			ws.sepWit = append(ws.sepWit, w)
 		}
 		total += worst
+		prevTotal += prevWorst
 	}
 	if total == 0 {
 		return 0, nil
 	}
+	ws.sepPrevFrac = min(1, prevTotal/total)
 	// The check measures a dependence the chain invents through a bridge
 	// that does not separate; the bias that adds is at most the chain's
 	// own distance from the target's marginal, ‖p̂ − m_t‖² (equal when the

@@ -47,6 +47,9 @@ type Workspace struct {
 	sepU, sepM           int
 	// sepEx is the bound excess the last Chain call charged (sepOrExcess).
 	sepEx float64
+	// sepPrevFrac is the share of the last separation check's S that its
+	// prev-side witnesses account for (separationBias).
+	sepPrevFrac float64
 	// sepWit lists the witnesses whose tables the last separation check
 	// read in full (SeparationWitnesses); reset by every Chain call.
 	sepWit []graphidx.EntityID
@@ -315,3 +318,11 @@ func dense(h *mat.Dense, data []float64, r, c, stride int) *mat.Dense {
 // §1 and §4d). Empty when the check had no table to test against, or was
 // not run (yet). The slice is the workspace's: valid until its next call.
 func (ws *Workspace) SeparationWitnesses() []graphidx.EntityID { return ws.sepWit }
+
+// SeparationPrevShare returns the share, in [0, 1], of the last separation
+// check's bias S that witnesses on the observed entity's side (docs/QUALITY.md
+// §4d) account for: Σ_k of each bridge's largest prev-side bias over S,
+// capped at 1. A prev-side witness tests the route into the target itself,
+// so its deficit says the chain's shift of the target is overstated
+// (docs/QUALITY.md §4g). 0 when the check charged nothing or was not run.
+func (ws *Workspace) SeparationPrevShare() float64 { return ws.sepPrevFrac }
