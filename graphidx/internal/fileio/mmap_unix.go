@@ -67,9 +67,14 @@ func CopyAnon(parts [][]byte) ([][]byte, func() error, error) {
 	if total == 0 {
 		return parts, func() error { return nil }, nil
 	}
-	b, err := unix.Mmap(-1, 0, total, unix.PROT_READ|unix.PROT_WRITE, unix.MAP_PRIVATE|unix.MAP_ANON)
+	// A length that is a multiple of 2 MiB: the kernel then aligns the
+	// mapping to a huge page, so that all of it, not all but its ends,
+	// can be backed by huge pages.
+	const hugePage = 2 << 20
+	size := (total + hugePage - 1) &^ (hugePage - 1)
+	b, err := unix.Mmap(-1, 0, size, unix.PROT_READ|unix.PROT_WRITE, unix.MAP_PRIVATE|unix.MAP_ANON)
 	if err != nil {
-		return nil, nil, fmt.Errorf("graphidx: allocate %d bytes: %w", total, err)
+		return nil, nil, fmt.Errorf("graphidx: allocate %d bytes: %w", size, err)
 	}
 	release := func() error { return unix.Munmap(b) }
 	adviseHuge(b)
