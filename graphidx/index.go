@@ -3,6 +3,7 @@ package graphidx
 import (
 	"context"
 	"encoding/binary"
+	"errors"
 	"fmt"
 	"hash/crc32"
 	"math"
@@ -20,8 +21,10 @@ import (
 type OpenOption interface{ applyOpen(*openConfig) }
 
 type openConfig struct {
-	lazy   bool
-	noMmap bool
+	lazy      bool
+	noMmap    bool
+	noHotCopy bool
+	hotMin    uint64 // smallest index copied; 0: hotCopyMinEntities
 }
 
 type openOptionFunc func(*openConfig)
@@ -50,6 +53,79 @@ func WithLazyVerify() OpenOption { return openOptionFunc(func(c *openConfig) { c
 // about 15% less thread CPU (docs/PERFORMANCE.md). Choose it for a large
 // index on a host with memory to spare.
 func WithoutMmap() OpenOption { return openOptionFunc(func(c *openConfig) { c.noMmap = true }) }
+
+// WithoutHotCopy keeps every section in the shared file mapping. By
+// default Open (checked, memory-mapped, on Linux and other Unix systems)
+// copies the per-entity sections that every query reads at random — the
+// name, neighbour, ranked-list, marginal and pair-base offsets, the value
+// set numbers and the marginals — into private memory advised to use
+// transparent huge pages (about 60 bytes per entity: 60 MB of the 831 MB
+// 1M-entity benchmark index), when the index has at least
+// hotCopyMinEntities entities; their random reads then take far fewer TLB
+// misses than through the page cache's 4 KiB pages (docs/SEARCH.md,
+// twelfth round). An index opened WithLazyVerify or WithoutMmap is never
+// copied this way (the first keeps its O(1) open, the second is all private
+// memory already). Use this option to share all of the index's memory
+// between processes.
+func WithoutHotCopy() OpenOption {
+	return openOptionFunc(func(c *openConfig) { c.noHotCopy = true })
+}
+
+// hotCopyMinEntities is the smallest index whose hot sections Open copies
+// (WithoutHotCopy): below it they fit the TLB's reach anyway.
+const hotCopyMinEntities = 1 << 16
+
+// withHotCopyMin sets the smallest index Open copies the hot sections of
+// (tests copy small indexes with it).
+func withHotCopyMin(n uint64) OpenOption {
+	return openOptionFunc(func(c *openConfig) { c.hotMin = n })
+}
+
+// hotSections are the sections Open copies into private memory
+// (WithoutHotCopy): O(entities) each, read at random by every query.
+var hotSections = [...]int{secNameOffs, secEntVSet, secMargOffs, secMarginals, secNbrOffs, secPairBase, secRankOffs}
+
+// copyHot copies the hot sections of a checked, mapped view into private
+// memory (fileio.CopyAnon) and points the view's slices at the copies. It
+// returns the copy's release function, or nil when it copied nothing (an
+// allocation that fails leaves the view on the mapping: the copy only
+// speeds reads up). O(size of the hot sections).
+func (v *view) copyHot(min uint64) func() error {
+	if min == 0 {
+		min = hotCopyMinEntities
+	}
+	if !hostLittleEndian || !v.checked || v.n < min {
+		return nil
+	}
+	var parts [len(hotSections)][]byte
+	for i, id := range hotSections {
+		parts[i] = v.section(id)
+	}
+	cp, release, err := fileio.CopyAnon(parts[:])
+	if err != nil {
+		return nil
+	}
+	for i, id := range hotSections {
+		b := cp[i]
+		switch id {
+		case secNameOffs:
+			v.nameOffs = asU64s(b)
+		case secEntVSet:
+			v.entVSet = asU32s(b)
+		case secMargOffs:
+			v.margOffs = asU64s(b)
+		case secMarginals:
+			v.marg = asU64s(b)
+		case secNbrOffs:
+			v.nbrOffs = asU64s(b)
+		case secPairBase:
+			v.pairBase = asU64s(b)
+		case secRankOffs:
+			v.rankOffs = asU64s(b)
+		}
+	}
+	return release
+}
 
 // Index is an opened locality index. All read methods are safe for
 // concurrent use, allocate nothing (except Name and the Verify pass), and
@@ -186,8 +262,15 @@ func Open(path string, opts ...OpenOption) (*Index, error) {
 		}
 		return nil, err
 	}
+	mapped := size >= headerSize && !cfg.noMmap && fileio.MmapSupported
+	if mapped && !cfg.noHotCopy {
+		if rel := v.copyHot(cfg.hotMin); rel != nil {
+			unmap := release
+			release = func() error { return errors.Join(rel(), unmap()) }
+		}
+	}
 	x := &Index{path: path, size: size, fi: st, release: release}
-	if size >= headerSize && !cfg.noMmap && fileio.MmapSupported {
+	if mapped {
 		x.mapped = data
 	}
 	x.v.Store(v)

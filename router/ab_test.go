@@ -20,6 +20,7 @@ var (
 	abPasses  = flag.Int("ab.passes", 1, "TestSearchAB: passes over the queries per code path and round")
 	abQueries = flag.Int("ab.queries", 4096, "TestSearchAB: queries, drawn as hopwise bench draws them")
 	abHub     = flag.Bool("ab.hub", false, "TestSearchAB: queries from and to the entity of largest degree instead (hopwise bench --hub)")
+	abHotCopy = flag.Bool("ab.hotcopy", false, "TestSearchAB: the alternative is the same code on the index opened graphidx.WithoutHotCopy (instead of searchHooks.alt)")
 )
 
 // TestSearchAB compares, in one process on one index, the search's
@@ -40,7 +41,9 @@ var (
 // one pass each (about 25 s) gave one sign in 45 of 48 rounds where 16
 // rounds of three passes gave it in 10 to 12 of 16.
 // When no alternative is wired in, both routers run the same code and the
-// figures measure the harness's own noise.
+// figures measure the harness's own noise. With -ab.hotcopy the
+// alternative is instead the same code on a second opening of the file
+// without the private copy of its hot sections (graphidx.WithoutHotCopy).
 //
 // It runs only with HOPWISE_STRESS=1 and an index file:
 //
@@ -71,7 +74,17 @@ func TestSearchAB(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	alt, err := New(ix, WithCacheSize(0), withSearchHooks(&searchHooks{alt: true}))
+	var alt *Router
+	if *abHotCopy {
+		plain, err := graphidx.Open(*abIndex, graphidx.WithoutHotCopy())
+		if err != nil {
+			t.Fatal(err)
+		}
+		defer plain.Close()
+		alt, err = New(plain, WithCacheSize(0))
+	} else {
+		alt, err = New(ix, WithCacheSize(0), withSearchHooks(&searchHooks{alt: true}))
+	}
 	if err != nil {
 		t.Fatal(err)
 	}
