@@ -77,6 +77,9 @@ type RunConfig struct {
 	// ReadIndex opens the index with graphidx.WithoutMmap (a private copy,
 	// on Linux with transparent huge pages) instead of mapping it.
 	ReadIndex bool
+	// SharedIndex opens the mapped index with graphidx.WithoutHotCopy
+	// (every section in the shared page cache); ignored with ReadIndex.
+	SharedIndex bool
 	// Progress receives one line per phase (nil: silent).
 	Progress io.Writer
 }
@@ -186,7 +189,8 @@ type GraphInfo struct {
 	BuildSeconds float64 `json:"build_seconds"`
 	IndexBytes   int64   `json:"index_bytes"`
 	RankPrefix   int     `json:"rank_prefix"`
-	// Open is how the index was opened: "mmap" or "read" (ReadIndex).
+	// Open is how the index was opened: "mmap", "shared" (SharedIndex) or
+	// "read" (ReadIndex).
 	Open string `json:"open"`
 }
 
@@ -276,8 +280,11 @@ func Run(ctx context.Context, cfg RunConfig) (*Report, error) {
 	}
 	var openOpts []graphidx.OpenOption
 	rep.Graph.Open = "mmap"
-	if cfg.ReadIndex {
+	switch {
+	case cfg.ReadIndex:
 		openOpts, rep.Graph.Open = append(openOpts, graphidx.WithoutMmap()), "read"
+	case cfg.SharedIndex:
+		openOpts, rep.Graph.Open = append(openOpts, graphidx.WithoutHotCopy()), "shared"
 	}
 	ix, err := graphidx.Open(path, openOpts...)
 	if err != nil {

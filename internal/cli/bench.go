@@ -88,7 +88,7 @@ CPU columns leave out time spent waiting for a core.`,
 	f.StringVar(&o.baselines, "baselines", "auto", `run the baselines: "auto" (up to 200k entities), "on" or "off"`)
 	f.StringVar(&o.build, "build", "auto", `index build: "auto", "contexts" (graphidx.Build) or "direct" (WriteFile of the Source)`)
 	f.StringVar(&o.indexOut, "index-out", "", "keep the generated index at this path (default: a temp file, removed)")
-	f.StringVar(&o.open, "open", "mmap", `how to open the index: "mmap" (shared page cache) or "read" (a private copy, on Linux with transparent huge pages)`)
+	f.StringVar(&o.open, "open", "mmap", `how to open the index: "mmap" (the default open: mapped, with its per-entity offsets and marginals copied into private huge pages from 65 536 entities), "shared" (mapped, everything in the shared page cache) or "read" (a private copy of the whole file, on Linux with transparent huge pages)`)
 	f.IntVar(&o.maxBridges, "max-bridges", bench.DefaultBounds().MaxBridges, "H, largest number of bridges")
 	f.IntVar(&o.beam, "beam", bench.DefaultBounds().Beam, "B, width of the first search layer")
 	f.IntVar(&o.fanOut, "fan-out", bench.DefaultBounds().FanOut, "f, second-layer neighbours per first-layer node")
@@ -127,13 +127,15 @@ func runBench(cmd *cobra.Command, o benchOptions) error {
 	default:
 		return fmt.Errorf("bench: --build must be auto, contexts or direct, got %q", o.build)
 	}
-	var read bool
+	var read, shared bool
 	switch strings.ToLower(o.open) {
 	case "mmap", "":
+	case "shared":
+		shared = true
 	case "read":
 		read = true
 	default:
-		return fmt.Errorf("bench: --open must be mmap or read, got %q", o.open)
+		return fmt.Errorf("bench: --open must be mmap, shared or read, got %q", o.open)
 	}
 	if o.queries < 1 || o.hubQueries < 1 || o.agreeQueries < 1 {
 		return fmt.Errorf("bench: --queries, --hub-queries and --agree-queries must be ≥ 1")
@@ -151,6 +153,7 @@ func runBench(cmd *cobra.Command, o benchOptions) error {
 		RankPrefix:   o.rankPrefix,
 		IndexPath:    o.indexOut,
 		ReadIndex:    read,
+		SharedIndex:  shared,
 		Progress:     progress,
 	}
 	rep, err := bench.Run(cmd.Context(), cfg)

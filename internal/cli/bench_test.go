@@ -42,6 +42,26 @@ func TestBenchJSON(t *testing.T) {
 	}
 }
 
+// TestBenchOpenShared: --open shared opens the mapped index without the
+// private copy of its per-entity sections and says so in the report.
+func TestBenchOpenShared(t *testing.T) {
+	if testing.Short() {
+		t.Skip("builds and queries an index")
+	}
+	out, _, err := runBenchCmd(t, "--entities", "1500", "--avg-degree", "4", "--queries", "20",
+		"--agree-queries", "10", "--baselines", "off", "--seed", "7", "--open", "shared", "--json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var rep bench.Report
+	if err := json.Unmarshal([]byte(out), &rep); err != nil {
+		t.Fatalf("not JSON: %v\n%s", err, out)
+	}
+	if rep.Graph.Open != "shared" || rep.Uncached.Latency.N != 20 {
+		t.Errorf("open %q, %d uncached decisions; want shared, 20", rep.Graph.Open, rep.Uncached.Latency.N)
+	}
+}
+
 func TestBenchBadFlags(t *testing.T) {
 	t.Parallel()
 	for _, args := range [][]string{
