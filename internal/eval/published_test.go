@@ -1105,24 +1105,7 @@ func TestRefutedWitnessAsia(t *testing.T) {
 // covering the realised one.
 func TestShrunkChargedChainAsia(t *testing.T) {
 	t.Parallel()
-	asia, err := world.Asia()
-	if err != nil {
-		t.Fatal(err)
-	}
-	pairs, err := asia.PickHeldOut(asia.NumVars()*asia.NumVars(), publishedMinMI, 1)
-	if err != nil {
-		t.Fatal(err)
-	}
-	w, err := asia.WithHeldOut(pairs)
-	if err != nil {
-		t.Fatal(err)
-	}
-	r, err := eval.Run(context.Background(), eval.Config{
-		Condition: world.CondLocalGeometric, Seed: 1, Network: w, Contexts: publishedContexts, KeepQueries: true,
-	})
-	if err != nil {
-		t.Fatal(err)
-	}
+	asia, r := asiaMIRun(t, 1)
 	either, _ := asia.Index("either")
 	bronc, _ := asia.Index("bronc")
 	found := false
