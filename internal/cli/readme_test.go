@@ -82,3 +82,46 @@ func TestREADMECLIReference(t *testing.T) {
 	}
 	t.Errorf("%s differs from the commands' --help output; run: go test ./internal/cli -run TestREADMECLIReference -update", path)
 }
+
+// TestREADMEDecisionExample keeps the README's "What a decision looks like"
+// block equal to what `hopwise route` prints for it on the demo's index
+// (the demo's defaults, as the README's first command writes them), so a
+// change of the model or the index format cannot leave a stale example.
+func TestREADMEDecisionExample(t *testing.T) {
+	if testing.Short() {
+		t.Skip("builds the demo's index")
+	}
+	raw, err := os.ReadFile(filepath.Join("..", "..", "README.md"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	const prompt = "$ hopwise route --index hopwise-demo/index.hwx --from bed-8/moisture-probe --value reads-dry --to bed-7/leaf-wilt\n"
+	readme := string(raw)
+	i := strings.Index(readme, prompt)
+	if i < 0 {
+		t.Fatalf("README.md has no example starting %q", prompt)
+	}
+	block := readme[i+len(prompt):]
+	block = block[:strings.Index(block, "```")]
+
+	dir := filepath.Join(t.TempDir(), "hopwise-demo")
+	root := NewRoot()
+	var out, errb bytes.Buffer
+	root.SetOut(&out)
+	root.SetErr(&errb)
+	root.SetArgs([]string{"demo", "--dir", dir, "--quiet"})
+	if err := root.Execute(); err != nil {
+		t.Fatalf("demo: %v\n%s", err, errb.String())
+	}
+	root = NewRoot()
+	out.Reset()
+	root.SetOut(&out)
+	root.SetErr(&errb)
+	root.SetArgs([]string{"route", "--index", filepath.Join(dir, "index.hwx"), "--from", "bed-8/moisture-probe", "--value", "reads-dry", "--to", "bed-7/leaf-wilt"})
+	if err := root.Execute(); err != nil {
+		t.Fatalf("route: %v\n%s", err, errb.String())
+	}
+	if got := out.String(); got != block {
+		t.Errorf("README.md's decision example is stale; hopwise route prints:\n%s\nREADME.md shows:\n%s", got, block)
+	}
+}
