@@ -105,25 +105,12 @@ func (v *view) copyHot(min uint64) func() error {
 	if err != nil {
 		return nil
 	}
-	for i, id := range hotSections {
-		b := cp[i]
-		switch id {
-		case secNameOffs:
-			v.nameOffs = asU64s(b)
-		case secEntVSet:
-			v.entVSet = asU32s(b)
-		case secMargOffs:
-			v.margOffs = asU64s(b)
-		case secMarginals:
-			v.marg = asU64s(b)
-		case secNbrOffs:
-			v.nbrOffs = asU64s(b)
-		case secPairBase:
-			v.pairBase = asU64s(b)
-		case secRankOffs:
-			v.rankOffs = asU64s(b)
+	v.decodeFrom(func(id int) []byte {
+		if i := slices.Index(hotSections[:], id); i >= 0 {
+			return cp[i]
 		}
-	}
+		return v.section(id)
+	})
 	return release
 }
 
@@ -555,23 +542,27 @@ func (v *view) checkSums(ctx context.Context) error {
 }
 
 // decode slices the sections (zero-copy on little-endian hosts).
-func (v *view) decode() {
-	v.nameOffs = asU64s(v.section(secNameOffs))
-	v.nameBytes = v.section(secNameBytes)
-	v.vsetOffs = asU32s(v.section(secVSetOffs))
-	v.vsetLabels = asU32s(v.section(secVSetLabels))
-	v.entVSet = asU32s(v.section(secEntVSet))
-	v.margOffs = asU64s(v.section(secMargOffs))
-	v.marg = asU64s(v.section(secMarginals))
-	v.nbrOffs = asU64s(v.section(secNbrOffs))
-	v.nbrs = asU32s(v.section(secNbrs))
-	v.pairBase = asU64s(v.section(secPairBase))
-	v.pairOffs = asU64s(v.section(secPairOffs))
-	v.counts = asU32s(v.section(secCounts))
-	v.rankOffs = asU64s(v.section(secRankOffs))
-	v.rank = asU32s(v.section(secRank))
-	v.rankPos = asU32s(v.section(secRankPos))
-	v.rankTab = asU64s(v.section(secRankTab))
+func (v *view) decode() { v.decodeFrom(v.section) }
+
+// decodeFrom points the view's typed slices at the sections sec returns
+// (the file's, or copyHot's private copies of some).
+func (v *view) decodeFrom(sec func(id int) []byte) {
+	v.nameOffs = asU64s(sec(secNameOffs))
+	v.nameBytes = sec(secNameBytes)
+	v.vsetOffs = asU32s(sec(secVSetOffs))
+	v.vsetLabels = asU32s(sec(secVSetLabels))
+	v.entVSet = asU32s(sec(secEntVSet))
+	v.margOffs = asU64s(sec(secMargOffs))
+	v.marg = asU64s(sec(secMarginals))
+	v.nbrOffs = asU64s(sec(secNbrOffs))
+	v.nbrs = asU32s(sec(secNbrs))
+	v.pairBase = asU64s(sec(secPairBase))
+	v.pairOffs = asU64s(sec(secPairOffs))
+	v.counts = asU32s(sec(secCounts))
+	v.rankOffs = asU64s(sec(secRankOffs))
+	v.rank = asU32s(sec(secRank))
+	v.rankPos = asU32s(sec(secRankPos))
+	v.rankTab = asU64s(sec(secRankTab))
 }
 
 // checkLabels validates the label dictionary and value sets and builds the

@@ -445,7 +445,7 @@ const parStep = 1e-6
 // variance is the delta-method variance Σ_v Var(p̂_v) over every row of
 // the tables the estimate reads, rows independent a posteriori, each a
 // Dirichlet row of covariance (diag θ − θθᵀ)·c_r (as the chain variance,
-// docs/DESIGN.md §3): Σ_rows Σ_v g_vᵀ (diag θ − θθᵀ) g_v c_r with g_v the
+// docs/DESIGN.md, Error model): Σ_rows Σ_v g_vᵀ (diag θ − θθᵀ) g_v c_r with g_v the
 // gradient of p̂_v in the row, by forward differences; plus the same form
 // for each table's row shares, a Dirichlet vector of scale 1/(N + 1).
 // pw.base must hold the estimate.
