@@ -30,6 +30,22 @@ func (pb *prefetchBatch) issue() {
 	pb.n = 0
 }
 
+// addLines queues every cache line xs spans: entries a line apart from the
+// first hit every line up to the last step, and the last entry covers the
+// line after it (an empty xs queues nothing).
+func addLines[T uint32 | uint64](pb *prefetchBatch, xs []T) {
+	if len(xs) == 0 {
+		return
+	}
+	perLine := 64 / int(unsafe.Sizeof(xs[0]))
+	for k := 0; k < len(xs); k += perLine {
+		pb.add(unsafe.Pointer(&xs[k]))
+	}
+	if (len(xs)-1)%perLine != 0 {
+		pb.add(unsafe.Pointer(&xs[len(xs)-1]))
+	}
+}
+
 // flush issues what is queued.
 func (pb *prefetchBatch) flush() {
 	if pb.n > 0 {
@@ -95,21 +111,10 @@ func (x *Index) PrefetchRankedTables(ids []EntityID, n int) {
 	if !canPrefetch || n <= 0 || !v.checked || len(v.rankTab) != len(v.rank) {
 		return
 	}
-	const perLine = 8 // references per 64-byte cache line
 	var pb prefetchBatch
 	for _, id := range ids {
-		s, e, ok := span(v.rankOffs, uint64(id), len(v.rankTab))
-		if !ok || s == e {
-			continue
-		}
-		// Addresses 64 bytes apart from the first entry hit every line up
-		// to the last step; the last entry covers the line after it.
-		e = min(e, s+n)
-		for k := s; k < e; k += perLine {
-			pb.add(unsafe.Pointer(&v.rankTab[k]))
-		}
-		if (e-1-s)%perLine != 0 {
-			pb.add(unsafe.Pointer(&v.rankTab[e-1]))
+		if s, e, ok := span(v.rankOffs, uint64(id), len(v.rankTab)); ok {
+			addLines(&pb, v.rankTab[s:min(e, s+n)])
 		}
 	}
 	pb.flush()
@@ -190,24 +195,13 @@ func (x *Index) PrefetchEntity(id EntityID, n int) {
 			pb.add(unsafe.Pointer(&v.marg[b-1]))
 		}
 	}
-	const perLine = 16 // 4-byte ids per 64-byte cache line
-	if n <= 0 {
-		pb.flush()
-		return
-	}
-	if s, e, ok := span(v.nbrOffs, uint64(id), len(v.nbrs)); ok && s < e {
-		e = min(e, s+n)
-		for i := s; i < e; i += perLine {
-			pb.add(unsafe.Pointer(&v.nbrs[i]))
+	if n > 0 {
+		if s, e, ok := span(v.nbrOffs, uint64(id), len(v.nbrs)); ok {
+			addLines(&pb, v.nbrs[s:min(e, s+n)])
 		}
-		pb.add(unsafe.Pointer(&v.nbrs[e-1]))
-	}
-	if s, e, ok := span(v.rankOffs, uint64(id), len(v.rank)); ok && s < e {
-		e = min(e, s+n)
-		for i := s; i < e; i += perLine {
-			pb.add(unsafe.Pointer(&v.rank[i]))
+		if s, e, ok := span(v.rankOffs, uint64(id), len(v.rank)); ok {
+			addLines(&pb, v.rank[s:min(e, s+n)])
 		}
-		pb.add(unsafe.Pointer(&v.rank[e-1]))
 	}
 	pb.flush()
 }
