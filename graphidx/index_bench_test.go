@@ -340,7 +340,7 @@ func TestAppendNameMatchesName(t *testing.T) { // not parallel: AllocsPerRun
 func BenchmarkPairBatchHinted(b *testing.B) {
 	x, _ := benchIndex(b, 300_000, 32, 2)
 	const n = 1 << 16
-	a, c, hint := make([]EntityID, 0, n), make([]EntityID, 0, n), make([]uint32, 0, n)
+	a, c, hint, entry := make([]EntityID, 0, n), make([]EntityID, 0, n), make([]uint32, 0, n), make([]uint32, 0, n)
 	rng := rand.New(rand.NewPCG(7, 8))
 	for len(a) < n {
 		e := EntityID(rng.IntN(x.NumEntities()))
@@ -349,24 +349,23 @@ func BenchmarkPairBatchHinted(b *testing.B) {
 			continue
 		}
 		j := rng.IntN(len(rk))
-		a, c, hint = append(a, e), append(c, rk[j]), append(hint, hk[j])
+		a, c, hint, entry = append(a, e), append(c, rk[j]), append(hint, hk[j]), append(entry, uint32(j))
 	}
 	const batch = 32
 	out := make([]PairStats, batch)
 	ok := make([]bool, batch)
-	for _, hinted := range []bool{false, true} {
-		name := "batch"
-		if hinted {
-			name = "hinted"
-		}
+	for _, name := range []string{"batch", "hinted", "ranked"} {
 		b.Run(name, func(b *testing.B) {
 			var sum uint64
 			i := 0
 			b.ReportAllocs()
 			for b.Loop() {
-				if hinted {
+				switch name {
+				case "hinted":
 					x.PairBatchHinted(a[i:i+batch], c[i:i+batch], hint[i:i+batch], out, ok)
-				} else {
+				case "ranked":
+					x.PairBatchRanked(a[i:i+batch], c[i:i+batch], entry[i:i+batch], out, ok)
+				default:
 					x.PairBatch(a[i:i+batch], c[i:i+batch], out, ok)
 				}
 				for j := 0; j < batch; j++ {
