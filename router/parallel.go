@@ -64,13 +64,9 @@ func (sc *scratch) parallel(best, bestErr float64, bestC cand, bestDist []float6
 	}
 	errP = est.Err
 	margin := 0.0
-	switch {
-	case !sc.refChain:
-		errP += scorer.ReferenceBias(est.Dist, sc.ref)
-	case sc.refC.m == 1 && (sc.refC.b[0] == b1 || sc.refC.b[0] == b2):
-		// The reference is one of the two single-bridge answers, which
-		// the parallel answer corrects: no distance charge.
-	default:
+	// No distance charge when the reference is one of the two
+	// single-bridge answers, which the parallel answer corrects.
+	if !sc.refChain || sc.refC.m != 1 || (sc.refC.b[0] != b1 && sc.refC.b[0] != b2) {
 		errP += scorer.ReferenceBias(est.Dist, sc.ref)
 	}
 	if gm, ok := sc.model.(scorer.GainMarginer); ok {
@@ -96,12 +92,12 @@ func (sc *scratch) parallel(best, bestErr float64, bestC cand, bestDist []float6
 	// The separation bias the answer inherits from its bridges' chains
 	// (inheritedBias); only now, since it is ≥ 0 and can only lower the
 	// score.
-	dist := append(sc.parDist[:0], est.Dist...) // est.Dist may be the workspace's
+	// est.Dist may be the workspace's, which inheritedBias overwrites.
+	sc.parDist = append(sc.parDist[:0], est.Dist...)
 	sep, err := sc.inheritedBias(b1, b2)
 	if err != nil {
 		return false, 0, 0, err
 	}
-	est.Dist = dist
 	if sep > 0 {
 		if blend {
 			errP += sep / 2 // errP is d²/4 + (Err_par + Err_chain)/2
@@ -114,7 +110,6 @@ func (sc *scratch) parallel(best, bestErr float64, bestC cand, bestDist []float6
 		}
 	}
 	sc.parCand = cand{b: [3]graphidx.EntityID{b1, b2}, m: 2}
-	sc.parDist = append(sc.parDist[:0], est.Dist...)
 	sc.parMid = blend
 	if blend {
 		for v, p := range bestDist {

@@ -332,7 +332,7 @@ func (r *Router) compute(ctx context.Context, h *handle, st *settings, q *Query)
 	sc.bayes, _ = model.(*scorer.Bayes)
 	sc.alt = st.hooks != nil && st.hooks.alt
 	sc.rpf, sc.rtp = h.rpf, h.rtp
-	if sc.alt { // the tenth round's A/B: without the table-reference and table prefetches
+	if sc.alt { // the eleventh round's A/B: without the table-reference and table prefetches
 		sc.rtp = nil
 	}
 	sc.bud = budget{left: st.budget, nextCheck: deadlinePoll, done: ctx.Done()}
