@@ -162,12 +162,8 @@ func (ws *Workspace) separationBias(st Stats, u, m int, alpha float64) (float64,
 				continue
 			}
 			// M(b, w) with row factors, and G = M(w, next) R_(k+1).
-			ws.sepB = growF(ws.sepB, kb*kw)
-			ws.sepBC = growF(ws.sepBC, kb)
-			fillMeans(ws.sepB, ws.sepBC, psBW, true, kb, kw, alpha)
-			ws.sepW = growF(ws.sepW, kw*kn)
-			ws.sepWC = growF(ws.sepWC, kw)
-			fillMeans(ws.sepW, ws.sepWC, psWN, true, kw, kn, alpha)
+			ws.sepB, ws.sepBC = growMeans(ws.sepB, ws.sepBC, psBW, kb, kw, alpha)
+			ws.sepW, ws.sepWC = growMeans(ws.sepW, ws.sepWC, psWN, kw, kn, alpha)
 			ws.sepG = growF(ws.sepG, kw*kt)
 			matMul(ws.sepG, kt, ws.sepW, kn, rk, kt, kw, kn, kt)
 			wk := witness{mbw: ws.sepB, cbw: ws.sepBC, g: ws.sepG, kw: kw}
@@ -302,9 +298,7 @@ type witness struct {
 // row factors ck). See separationBias. O(K³).
 func (ws *Workspace) witnessBias(wk *witness, ps graphidx.PairStats, y, z, mk, ck []float64, kt int, alpha float64) float64 {
 	kp, kb, kw := len(y), len(z), wk.kw
-	ws.sepD = growF(ws.sepD, kp*kw)
-	ws.sepC = growF(ws.sepC, kp)
-	fillMeans(ws.sepD, ws.sepC, ps, true, kp, kw, alpha)
+	ws.sepD, ws.sepC = growMeans(ws.sepD, ws.sepC, ps, kp, kw, alpha)
 	// H = M(b, w) G; a = z H; c = (y D) G.
 	ws.sepH = growF(ws.sepH, kb*kt)
 	matMul(ws.sepH, kt, wk.mbw, kw, wk.g, kt, kb, kw, kt)
@@ -512,9 +506,7 @@ func (ws *Workspace) prevWitnessDev(psPW graphidx.PairStats, y []float64, alpha 
 	ws.sepD = growF(ws.sepD, 5*km)
 	pi, d, dn := ws.sepD[:kw], ws.sepD[km:km+kw], ws.sepD[2*km:2*km+kw]
 	y2, mp := ws.sepD[3*km:3*km+kp], ws.sepD[4*km:4*km+kp]
-	ws.sepB = growF(ws.sepB, kp*kw)
-	ws.sepBC = growF(ws.sepBC, kp)
-	fillMeans(ws.sepB, ws.sepBC, psPW, true, kp, kw, alpha)
+	ws.sepB, ws.sepBC = growMeans(ws.sepB, ws.sepBC, psPW, kp, kw, alpha)
 	ws.sepQ = growF(ws.sepQ, kw*kp)
 	ws.sepQC = growF(ws.sepQC, kw)
 	kpA := float64(kp) * alpha
@@ -693,12 +685,8 @@ func (ws *Workspace) prevWitnessRefuted(st Stats, rn RankedNeighborer, w graphid
 		if !ok {
 			continue
 		}
-		ws.sepB = growF(ws.sepB, kb*kx)
-		ws.sepBC = growF(ws.sepBC, kb)
-		fillMeans(ws.sepB, ws.sepBC, psBX, true, kb, kx, alpha)
-		ws.sepW = growF(ws.sepW, kw*kx)
-		ws.sepWC = growF(ws.sepWC, kw)
-		fillMeans(ws.sepW, ws.sepWC, psWX, true, kw, kx, alpha)
+		ws.sepB, ws.sepBC = growMeans(ws.sepB, ws.sepBC, psBX, kb, kx, alpha)
+		ws.sepW, ws.sepWC = growMeans(ws.sepW, ws.sepWC, psWX, kw, kx, alpha)
 		if !shiftFromRows(dx, pi, psWX) {
 			continue
 		}

@@ -268,6 +268,15 @@ func (ws *Workspace) loadEdges(st Stats, alpha float64, sig *Bayes) (uint64, err
 	return minSup, nil
 }
 
+// growMeans is fillMeans of a stored table (ok = true) into th and ci
+// grown to hold it (ka·kb and ka entries, growF); it returns the grown
+// slices. No allocation once they have grown.
+func growMeans(th, ci []float64, ps graphidx.PairStats, ka, kb int, alpha float64) ([]float64, []float64) {
+	th, ci = growF(th, ka*kb), growF(ci, ka)
+	fillMeans(th, ci, ps, true, ka, kb, alpha)
+	return th, ci
+}
+
 // fillMeans writes θ_r = (N[r][·] + α)/(n_r + K_b α) for every row r into th
 // (ka×kb, row-major) and 1/(n_r + K_b α + 1) into ci; it returns the pair
 // support Σ_r n_r. ok=false means all-zero counts.
