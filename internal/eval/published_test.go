@@ -679,19 +679,19 @@ func publishedQueries(t *testing.T, build func() (*world.World, error)) (*world.
 	if err != nil {
 		t.Fatal(err)
 	}
-	return net, heldOutQueries(t, net, world.PublishedHeldOut(net, 2))
+	return net, heldOutQueries(t, net, world.PublishedHeldOut(net, 2), 1)
 }
 
-// heldOutQueries holds out pairs of net and runs one corpus (seed 1) with
+// heldOutQueries holds out pairs of net and runs one corpus (of the seed) with
 // every answered query kept.
-func heldOutQueries(t *testing.T, net *world.World, pairs [][2]int) eval.Report {
+func heldOutQueries(t *testing.T, net *world.World, pairs [][2]int, seed int64) eval.Report {
 	t.Helper()
 	w, err := net.WithHeldOut(pairs)
 	if err != nil {
 		t.Fatal(err)
 	}
 	r, err := eval.Run(context.Background(), eval.Config{
-		Condition: world.CondLocalGeometric, Seed: 1, Network: w, Contexts: publishedContexts, KeepQueries: true,
+		Condition: world.CondLocalGeometric, Seed: seed, Network: w, Contexts: publishedContexts, KeepQueries: true,
 	})
 	if err != nil {
 		t.Fatal(err)
@@ -728,7 +728,7 @@ func TestUnseenRoutesAsia(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	r := heldOutQueries(t, asia, pairs)
+	r := heldOutQueries(t, asia, pairs, 1)
 	idx := func(name string) int {
 		i, ok := asia.Index(name)
 		if !ok {
@@ -1014,17 +1014,26 @@ func asiaMIRun(t *testing.T, seed int64) (*world.World, eval.Report) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	w, err := asia.WithHeldOut(pairs)
-	if err != nil {
-		t.Fatal(err)
+	return asia, heldOutQueries(t, asia, pairs, seed)
+}
+
+// queriesOf returns the held-out queries of r from the variable named
+// from to the one named to, for the observed value value (every value when
+// value < 0).
+func queriesOf(t *testing.T, w *world.World, r eval.Report, from, to string, value int) []eval.QueryResult {
+	t.Helper()
+	f, okF := w.Index(from)
+	g, okG := w.Index(to)
+	if !okF || !okG {
+		t.Fatalf("no variable %q or %q", from, to)
 	}
-	r, err := eval.Run(context.Background(), eval.Config{
-		Condition: world.CondLocalGeometric, Seed: seed, Network: w, Contexts: publishedContexts, KeepQueries: true,
-	})
-	if err != nil {
-		t.Fatal(err)
+	var qs []eval.QueryResult
+	for _, q := range r.Queries {
+		if q.From == f && q.To == g && q.Set == eval.SetHeldOut && (value < 0 || q.Value == value) {
+			qs = append(qs, q)
+		}
 	}
-	return asia, r
+	return qs
 }
 
 // TestInheritedWitnessAsia: ASIA (Lauritzen & Spiegelhalter 1988) with
@@ -1041,14 +1050,8 @@ func asiaMIRun(t *testing.T, seed int64) (*world.World, eval.Report) {
 func TestInheritedWitnessAsia(t *testing.T) {
 	t.Parallel()
 	asia, r := asiaMIRun(t, 2)
-	either, _ := asia.Index("either")
-	bronc, _ := asia.Index("bronc")
-	found := false
-	for _, q := range r.Queries {
-		if q.From != either || q.To != bronc || q.Value != 1 || q.Set != eval.SetHeldOut {
-			continue
-		}
-		found = true
+	qs := queriesOf(t, asia, r, "either", "bronc", 1)
+	for _, q := range qs {
 		got := q.SqErr(eval.EstRouted)
 		t.Logf("P(bronc | either = yes): exact %.3f, routed %.3f through %d bridge(s) (parallel %v), squared error %.3g (predicted %.3g)",
 			q.Truth[1], q.Est[eval.EstRouted][1], q.ChainBridges, q.ChainParallel, got, q.RoutedErr)
@@ -1056,7 +1059,7 @@ func TestInheritedWitnessAsia(t *testing.T) {
 			t.Errorf("P(bronc | either = yes): squared error %.3g, want ≤ 0.005 (the chain through dysp realises 0.067)", got)
 		}
 	}
-	if !found {
+	if len(qs) == 0 {
 		t.Fatal("query either = yes → bronc not answered")
 	}
 }
@@ -1074,14 +1077,8 @@ func TestInheritedWitnessAsia(t *testing.T) {
 func TestRefutedWitnessAsia(t *testing.T) {
 	t.Parallel()
 	asia, r := asiaMIRun(t, 3)
-	dysp, _ := asia.Index("dysp")
-	xray, _ := asia.Index("xray")
-	found := 0
-	for _, q := range r.Queries {
-		if q.From != dysp || q.To != xray || q.Set != eval.SetHeldOut {
-			continue
-		}
-		found++
+	qs := queriesOf(t, asia, r, "dysp", "xray", -1)
+	for _, q := range qs {
 		got := q.SqErr(eval.EstRouted)
 		t.Logf("P(xray | dysp = %d): exact %.3f, routed %.3f through %d bridge(s), squared error %.3g, predicted %.3g",
 			q.Value, q.Truth[1], q.Est[eval.EstRouted][1], q.ChainBridges, got, q.RoutedErr)
@@ -1089,8 +1086,8 @@ func TestRefutedWitnessAsia(t *testing.T) {
 			t.Errorf("P(xray | dysp = %d): predicted error %.3g, want ≤ 0.002 (realised %.3g; bronc's charge gave 0.003–0.006)", q.Value, q.RoutedErr, got)
 		}
 	}
-	if found != 2 {
-		t.Fatalf("%d queries dysp → xray answered, want 2", found)
+	if len(qs) != 2 {
+		t.Fatalf("%d queries dysp → xray answered, want 2", len(qs))
 	}
 }
 
@@ -1106,14 +1103,8 @@ func TestRefutedWitnessAsia(t *testing.T) {
 func TestShrunkChargedChainAsia(t *testing.T) {
 	t.Parallel()
 	asia, r := asiaMIRun(t, 1)
-	either, _ := asia.Index("either")
-	bronc, _ := asia.Index("bronc")
-	found := false
-	for _, q := range r.Queries {
-		if q.From != either || q.To != bronc || q.Value != 1 || q.Set != eval.SetHeldOut {
-			continue
-		}
-		found = true
+	qs := queriesOf(t, asia, r, "either", "bronc", 1)
+	for _, q := range qs {
 		got, marg := q.SqErr(eval.EstRouted), q.SqErr(eval.EstMarginal)
 		t.Logf("P(bronc | either = yes): exact %.3f, routed %.3f through %d bridge(s), squared error Σ_v %.3g (predicted %.3g), marginal %.3f (%.3g)",
 			q.Truth[1], q.Est[eval.EstRouted][1], q.ChainBridges, got, q.RoutedErr, q.Est[eval.EstMarginal][1], marg)
@@ -1127,7 +1118,7 @@ func TestShrunkChargedChainAsia(t *testing.T) {
 			t.Errorf("predicted error %.3g below the realised %.3g", q.RoutedErr, got)
 		}
 	}
-	if !found {
+	if len(qs) == 0 {
 		t.Fatal("query either = yes → bronc not answered")
 	}
 }
