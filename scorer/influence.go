@@ -629,6 +629,12 @@ func (b *Bayes) boundExcess(ws *Workspace, st Stats, s graphidx.EntityID, u int,
 	return ex * ex, nil
 }
 
+// refRounding is how far outside [0, 1] ProjectReference accepts a
+// reference value as the rounding of a product of stochastic matrices (a
+// chain's estimate came out 1.0000000000000002 on the router's 1M-entity
+// benchmark, and the decision failed).
+const refRounding = 1e-12
+
 // ProjectReference implements ReferenceProjector: it moves ref, an estimate
 // of t given s = u, onto the ball of radius ρ around m̂_t that the bound
 // allows (boundBall), ref ← m̂ + (ref − m̂)·min(1, ρ/‖ref − m̂‖). The ball is
@@ -640,14 +646,8 @@ func (b *Bayes) boundExcess(ws *Workspace, st Stats, s graphidx.EntityID, u int,
 // Direct call (else the bound is recomputed); call it after PendingBias of
 // that Chain (it resets the path's first cardinality). A reference value
 // outside [0, 1] by more than refRounding (NaN included) is ErrBadEstimate;
-// one within it is clamped to [0, 1]. ErrBadStats for a reference
+// one within it is clamped to [0, 1] in ref. ErrBadStats for a reference
 // of the wrong length. Cost as boundBall plus O(K_t).
-// refRounding is how far outside [0, 1] ProjectReference accepts a
-// reference value as the rounding of a product of stochastic matrices (a
-// chain's estimate came out 1.0000000000000002 on the router's 1M-entity
-// benchmark, and the decision failed).
-const refRounding = 1e-12
-
 func (b *Bayes) ProjectReference(ws *Workspace, st Stats, s graphidx.EntityID, u int, t graphidx.EntityID, ref []float64) error {
 	if st == nil {
 		return fmt.Errorf("%w: nil Stats", ErrBadStats)
