@@ -650,8 +650,8 @@ func (b *Bench) answer(ctx context.Context, rt *router.Router, model scorer.Mode
 		r.ChainPath = path
 		r.ChainParallel = d.Chain.Parallel
 		if d.Chain.Parallel && len(path) == 4 {
-			r.ChainSups = b.pathSupports([]graphidx.EntityID{s, path[1], t, path[2], s})
-			r.ChainSups[2], r.ChainSups[3] = r.ChainSups[3], r.ChainSups[2]
+			b1, b2 := path[1], path[2]
+			r.ChainSups = []uint64{b.support(s, b1), b.support(b1, t), b.support(s, b2), b.support(b2, t)}
 			if bm, ok := model.(*scorer.Bayes); ok {
 				for _, br := range path[1:3] {
 					r.ChainSignal = max(r.ChainSignal, b.pathSignal(bm, []graphidx.EntityID{s, br, t}))
