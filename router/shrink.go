@@ -1,6 +1,10 @@
 package router
 
-import "math"
+import (
+	"math"
+
+	"github.com/hopwise/hopwise/scorer"
+)
 
 // shrinkCharged turns on shrinkCharged's correction (shrink); a test switch.
 var shrinkCharged = true
@@ -31,12 +35,11 @@ func (sc *scratch) shrink(dirSupport uint64) {
 	if !shrinkCharged || dirSupport > 0 || !(sc.bestSep > 0) {
 		return
 	}
-	d2 := 0.0
-	for v, p := range sc.ddist {
-		d := p - sc.dist[v]
-		d2 += d * d
+	if len(sc.ddist) != len(sc.dist) {
+		return
 	}
-	if !(d2 > 0) || len(sc.ddist) != len(sc.dist) {
+	d2 := scorer.ReferenceBias(sc.dist, sc.ddist) // D
+	if !(d2 > 0) {
 		return
 	}
 	f := math.Sqrt(min(1, sc.bestSep/d2))
